@@ -1,0 +1,3 @@
+from orbitdesk.cli import main
+
+raise SystemExit(main())

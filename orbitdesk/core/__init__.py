@@ -1,0 +1,1 @@
+"""Headless core: model language, compiled systems, engine, analyses, project document. No Qt here."""

@@ -1,0 +1,289 @@
+"""Single runs: integrate a flow or iterate a map, with sampling, events, bounds and cancel.
+
+Flows step with scipy's ``OdeSolver`` classes (DOP853, RK45, Radau) one step at a time, so a run
+can report progress, stop cleanly on blow-up or cancel and keep what it computed so far. Event
+crossings are found on each step's dense output with a bracketing root finder, never by linear
+interpolation between output samples.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Callable
+
+import numpy as np
+from scipy.integrate import DOP853, RK45, Radau
+from scipy.optimize import brentq
+
+from .progress import CancelToken, Cancelled, Reporter
+from .system import MAP, CompiledSystem, UndefinedValue
+
+OK, DIVERGED, UNDEFINED, CANCELLED, STEP_FAILED = "ok", "diverged", "undefined", "cancelled", "step_failed"
+METHODS = ("dop853", "rk45", "stiff", "rk4")
+_SOLVERS = {"dop853": DOP853, "rk45": RK45, "stiff": Radau}
+
+
+@dataclass
+class RunSettings:
+    method: str = "dop853"
+    rtol: float = 1e-8
+    atol: float = 1e-10
+    max_step: float | None = None
+    dt: float = 0.01  # fixed step of rk4
+    t_start: float = 0.0
+    t_end: float = 100.0
+    samples: int = 4000  # output points over [t_start, t_end]; 0 = every step
+    steps: int = 1000  # iterations of a map
+    bound: float = 1e10  # |state| beyond this counts as blow-up
+    transient: float = 0.0  # output before t_start + transient is dropped
+
+
+@dataclass
+class Event:
+    """A crossing of g(t, u) = 0; direction +1 (g rising), -1 (falling) or 0 (both)."""
+
+    g: Callable[[float, np.ndarray], float]
+    direction: int = 0
+    terminal: bool = False
+
+
+@dataclass
+class Trajectory:
+    kind: str
+    time: np.ndarray
+    states: np.ndarray  # (n_states, K)
+    state_names: list[str]
+    params: dict[str, float]
+    status: str = OK
+    message: str = ""
+    derived: dict[str, np.ndarray] = field(default_factory=dict)
+    event_times: list[np.ndarray] = field(default_factory=list)
+    event_states: list[np.ndarray] = field(default_factory=list)  # each (n_states, M)
+    steps_taken: int = 0
+
+    @property
+    def ok(self) -> bool:
+        return self.status == OK
+
+    @property
+    def final_state(self) -> np.ndarray:
+        return self.states[:, -1]
+
+    def series(self, name: str) -> np.ndarray:
+        """A state, a derived quantity or the time ('t' or 'n') by name."""
+        if name in ("t", "n"):
+            return self.time
+        if name in self.state_names:
+            return self.states[self.state_names.index(name)]
+        if name in self.derived:
+            return self.derived[name]
+        raise KeyError(f"no series named '{name}'")
+
+
+class _Stop(Exception):
+    def __init__(self, status, message):
+        super().__init__(message)
+        self.status, self.message = status, message
+
+
+def _describe_state(system: CompiledSystem, u) -> str:
+    return ", ".join(f"{s} = {float(v):.6g}" for s, v in zip(system.states, u))
+
+
+def _check_state(system, t, u, bound):
+    bad = ~np.isfinite(u) | (np.abs(u) > bound)
+    if bad.any():
+        which = system.states[int(np.argmax(bad))]
+        name = system.time_name
+        if system.kind == MAP:
+            raise _Stop(DIVERGED, f"the orbit escapes to infinity: {which} passes {bound:g} at {name} = {t:g}")
+        raise _Stop(DIVERGED, f"the solution blows up: {which} passes {bound:g} in size at {name} = {t:.6g} "
+                              f"({_describe_state(system, u)})")
+
+
+def simulate(system: CompiledSystem, settings: RunSettings | None = None, u0=None, p=None,
+             events: list[Event] | tuple = (), cancel: CancelToken | None = None,
+             progress=None) -> Trajectory:
+    """One run of a flow or a map from ``u0`` (default: the model's) with parameters ``p``."""
+    settings = settings or RunSettings()
+    u0 = system.initial.copy() if u0 is None else np.asarray(u0, dtype=float)
+    p = system.param_values.copy() if p is None else np.asarray(p, dtype=float)
+    report = Reporter(progress, cancel)
+    if system.kind == MAP:
+        return _iterate(system, settings, u0, p, report)
+    if settings.method not in METHODS:
+        raise ValueError(f"unknown method '{settings.method}'; choose one of {', '.join(METHODS)}")
+    return _integrate(system, settings, u0, p, list(events), report)
+
+
+def _iterate(system, settings, u0, p, report) -> Trajectory:
+    steps = int(settings.steps)
+    out = np.empty((system.n_states, steps + 1))
+    out[:, 0] = u0
+    f = system.rhs_function(p)
+    u = [float(v) for v in u0]
+    status, message, last = OK, "", steps
+    try:
+        _check_state(system, 0, u0, settings.bound)
+        for n in range(steps):
+            if n % 1000 == 0:
+                report(n / max(steps, 1))
+            try:
+                u = f(n, u)
+            except (ValueError, ZeroDivisionError, TypeError, OverflowError):
+                raise _Stop(UNDEFINED, system.explain_undefined(n, u, p) or f"undefined value at n = {n}") from None
+            out[:, n + 1] = u
+            if not all(abs(v) <= settings.bound for v in u):
+                _check_state(system, n + 1, out[:, n + 1], settings.bound)
+    except _Stop as stop:
+        status, message, last = stop.status, stop.message, n
+    except Cancelled:
+        status, message, last = CANCELLED, "cancelled", n
+    n_time = np.arange(last + 1, dtype=float)
+    states = out[:, :last + 1]
+    return Trajectory(MAP, n_time, states, list(system.states), system.param_dict(p), status, message,
+                      system.derived_values(n_time, states, p), steps_taken=last)
+
+
+class _RK4Stepper:
+    """Fixed-step classical Runge-Kutta with a cubic Hermite dense output per step."""
+
+    def __init__(self, fun, t0, y0, t_bound, dt):
+        self.fun, self.t, self.y, self.t_bound = fun, t0, np.asarray(y0, float), t_bound
+        self.h = abs(dt) * (1 if t_bound >= t0 else -1)
+        self.status = "running"
+        self.f = np.asarray(fun(t0, self.y), float)
+        self.t_old = None
+
+    def step(self):
+        h = self.h
+        if (self.t + h - self.t_bound) * np.sign(h) > 0:
+            h = self.t_bound - self.t
+        t, y, fun = self.t, self.y, self.fun
+        k1 = self.f
+        k2 = np.asarray(fun(t + h / 2, y + h / 2 * k1), float)
+        k3 = np.asarray(fun(t + h / 2, y + h / 2 * k2), float)
+        k4 = np.asarray(fun(t + h, y + h * k3), float)
+        self.y_old, self.f_old, self.t_old = y, k1, t
+        self.y = y + h / 6 * (k1 + 2 * k2 + 2 * k3 + k4)
+        self.t = t + h
+        self.f = np.asarray(fun(self.t, self.y), float)
+        if abs(self.t - self.t_bound) <= 1e-12 * max(1.0, abs(self.t_bound)):
+            self.status = "finished"
+
+    def dense_output(self):
+        t0, h, y0, y1, f0, f1 = self.t_old, self.t - self.t_old, self.y_old, self.y, self.f_old, self.f
+
+        def sol(tq):
+            s = (np.asarray(tq, float) - t0) / h
+            h00, h10, h01, h11 = 2 * s**3 - 3 * s**2 + 1, s**3 - 2 * s**2 + s, -2 * s**3 + 3 * s**2, s**3 - s**2
+            if np.ndim(s) == 0:
+                return h00 * y0 + h10 * h * f0 + h01 * y1 + h11 * h * f1
+            return (np.outer(y0, h00) + np.outer(h * f0, h10) + np.outer(y1, h01) + np.outer(h * f1, h11))
+
+        return sol
+
+
+def _make_rhs(system, p):
+    f = system.rhs_function(p)
+
+    def fun(t, y):
+        try:
+            return f(t, y)
+        except (ValueError, ZeroDivisionError, TypeError, OverflowError):
+            raise _Stop(UNDEFINED, system.explain_undefined(t, y, p)
+                        or f"an expression is undefined at {system.time_name} = {t:.6g}") from None
+
+    return fun
+
+
+def _integrate(system, settings, u0, p, events, report) -> Trajectory:
+    t0, t1 = float(settings.t_start), float(settings.t_end)
+    if not t1 != t0 or not (math.isfinite(t0) and math.isfinite(t1)):
+        raise ValueError("the end time must differ from the start time")
+    fun = _make_rhs(system, p)
+    direction = 1.0 if t1 > t0 else -1.0
+    n = system.n_states
+    sample_t = np.linspace(t0, t1, settings.samples) if settings.samples > 1 else None
+    t_keep = t0 + direction * max(settings.transient, 0.0)
+    ts, ys = [], []
+    ev_t = [[] for _ in events]
+    ev_y = [[] for _ in events]
+    status, message, steps = OK, "", 0
+    try:
+        if settings.method == "rk4":
+            solver = _RK4Stepper(fun, t0, u0, t1, settings.dt)
+        else:
+            kwargs = dict(rtol=settings.rtol, atol=settings.atol)
+            if settings.max_step:
+                kwargs["max_step"] = settings.max_step
+            if settings.method == "stiff":
+                kwargs["jac"] = lambda t, y: system.jac(t, y, p)
+            solver = _SOLVERS[settings.method](fun, t0, u0, t1, **kwargs)
+        if sample_t is None:
+            ts.append(t0)
+            ys.append(u0.copy())
+        elif sample_t[0] == t0:
+            ts.append(t0)
+            ys.append(u0.copy())
+        next_sample = 1 if sample_t is not None else None
+        g_prev = [ev.g(t0, u0) for ev in events]
+        while solver.status == "running":
+            message_step = solver.step()
+            steps += 1
+            if solver.status == "failed":
+                raise _Stop(STEP_FAILED, f"the step size collapsed at {system.time_name} = {solver.t:.6g} "
+                                         f"({message_step}); the system may be stiff: try the stiff method")
+            t_new, y_new = solver.t, solver.y
+            _check_state(system, t_new, y_new, settings.bound)
+            sol = None
+            if sample_t is not None:
+                j = next_sample
+                while j < len(sample_t) and (sample_t[j] - t_new) * direction <= 0:
+                    j += 1
+                if j > next_sample:
+                    sol = solver.dense_output()
+                    block = sample_t[next_sample:j]
+                    values = sol(block).reshape(n, -1)
+                    ts.extend(block)
+                    ys.extend(values.T)
+                    next_sample = j
+            else:
+                ts.append(t_new)
+                ys.append(y_new.copy())
+            stop_here = False
+            for k, ev in enumerate(events):
+                g_new = ev.g(t_new, y_new)
+                g_old = g_prev[k]
+                g_prev[k] = g_new
+                if not (g_old * g_new < 0 or (g_new == 0 and g_old != 0)):
+                    continue
+                rising = g_new > g_old
+                if ev.direction and (ev.direction > 0) != rising:
+                    continue
+                sol = sol or solver.dense_output()
+                if g_new == 0:
+                    te = t_new
+                else:
+                    te = brentq(lambda tq: ev.g(tq, sol(tq)), solver.t_old, t_new, xtol=1e-14)
+                ev_t[k].append(te)
+                ev_y[k].append(np.asarray(sol(te), float).reshape(n))
+                stop_here = stop_here or ev.terminal
+            if stop_here:
+                break
+            report((t_new - t0) / (t1 - t0))
+    except _Stop as stop:
+        status, message = stop.status, stop.message
+    except Cancelled:
+        status, message = CANCELLED, "cancelled"
+    time = np.array(ts, dtype=float)
+    states = np.array(ys, dtype=float).reshape(-1, n).T if ys else np.empty((n, 0))
+    if settings.transient > 0:
+        keep = (time - t_keep) * direction >= 0
+        time, states = time[keep], states[:, keep]
+    return Trajectory("flow", time, states, list(system.states), system.param_dict(p), status, message,
+                      system.derived_values(time, states, p) if time.size else {},
+                      [np.array(v) for v in ev_t],
+                      [np.array(v).reshape(-1, n).T if v else np.empty((n, 0)) for v in ev_y],
+                      steps_taken=steps)

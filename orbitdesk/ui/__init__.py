@@ -1,0 +1,1 @@
+"""Qt side: windows, docks and views over the core."""
