@@ -1,0 +1,489 @@
+"""The OrbitDesk project document: a versioned JSON file (``*.orbitdesk``).
+
+Plain data in and out. Loading validates every field and names the JSON path of
+the first problem; unknown keys are ignored and recorded in
+``Project.load_warnings``. Saving is atomic and keeps ``NAME.orbitdesk.bak``.
+Nothing read from a file is ever executed.
+
+Version history:
+  0  ``{"format", "version": 0, "name", "equations": str, "parameters": {name: number},
+     "ranges": {name: [lo, hi]}, "initial", "solver", "views"}`` (no walkthrough, no notes)
+  1  current: see ``project_to_dict``.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import numbers
+import os
+import re
+import secrets
+import stat
+from contextlib import suppress
+from dataclasses import dataclass, field
+
+FORMAT_NAME = "orbitdesk-project"
+FORMAT_VERSION = 1
+MAX_FILE_BYTES = 20 * 1024 * 1024
+MAX_DEPTH = 64
+MAX_TEXT = 1024 * 1024          # model text, notes, any string
+MAX_KEY = 1000                  # keys of free objects
+MAX_NAME = 100                  # parameter / state names
+MAX_INT = 2**63
+METHODS = ("dop853", "rk45", "stiff", "rk4")
+_NAME_RE = re.compile(r"[A-Za-z_][A-Za-z0-9_]*'*")
+_PLAIN_KEY_RE = re.compile(r"[A-Za-z_][A-Za-z0-9_]*")
+_TOKEN_RE = re.compile(r'"[^"\\]*(?:\\.[^"\\]*)*"|[\[\]{}]', re.S)
+_REQUIRED = object()
+
+
+class ProjectError(Exception):
+    """A project document that cannot be read or written; ``path`` is a JSON path like ``$.solver.rtol``."""
+
+    def __init__(self, path: str, message: str):
+        super().__init__(f"{path}: {message}")
+        self.path = path
+        self.message = message
+
+
+@dataclass
+class SolverSettings:
+    method: str = "dop853"
+    rtol: float = 1e-8
+    atol: float = 1e-10
+    max_step: float | None = None
+    dt: float = 0.01            # fixed step for rk4
+    t_start: float = 0.0
+    t_end: float = 100.0
+    samples: int = 4000
+    steps: int = 1000           # iterations for maps
+    transient: float = 0.0
+
+
+@dataclass
+class ParameterSetting:
+    value: float
+    lo: float | None = None
+    hi: float | None = None
+
+
+@dataclass
+class WalkthroughStep:
+    title: str
+    note: str = ""
+    snapshot: dict = field(default_factory=dict)
+
+
+@dataclass
+class Project:
+    name: str = "Untitled"
+    model: str = ""
+    parameters: dict[str, ParameterSetting] = field(default_factory=dict)
+    initial: dict[str, float] = field(default_factory=dict)
+    solver: SolverSettings = field(default_factory=SolverSettings)
+    views: dict[str, dict] = field(default_factory=dict)
+    walkthrough: list[WalkthroughStep] = field(default_factory=list)
+    notes: str = ""
+    load_warnings: list[str] = field(default_factory=list, compare=False, repr=False)
+
+
+# ---------------------------------------------------------------- validation helpers
+
+def _sub(path: str, key) -> str:
+    if isinstance(key, int):
+        return f"{path}[{key}]"
+    if _PLAIN_KEY_RE.fullmatch(key):
+        return f"{path}.{key}"
+    shown = key if len(key) <= 60 else key[:60] + "..."
+    return f"{path}[{json.dumps(shown)}]"
+
+
+def _kind(v) -> str:
+    if v is None:
+        return "null"
+    if isinstance(v, bool):
+        return "boolean"
+    if isinstance(v, numbers.Real):
+        return "number"
+    if isinstance(v, str):
+        return "string"
+    if isinstance(v, (list, tuple)):
+        return "array"
+    if isinstance(v, dict):
+        return "object"
+    return type(v).__name__
+
+
+def _expected(what: str, v, path: str) -> ProjectError:
+    return ProjectError(path, f"expected {what}, got {_kind(v)}")
+
+
+def _text(v, path: str, limit: int = MAX_TEXT) -> str:
+    if not isinstance(v, str):
+        raise _expected("a string", v, path)
+    if len(v) > limit:
+        raise ProjectError(path, f"string too long ({len(v)} characters, limit {limit})")
+    if "\x00" in v:
+        raise ProjectError(path, "string contains a NUL character")
+    try:
+        v.encode("utf-8")
+    except UnicodeEncodeError:
+        raise ProjectError(path, "string contains an unpaired surrogate") from None
+    return str(v)
+
+
+def _obj(v, path: str) -> dict:
+    if not isinstance(v, dict):
+        raise _expected("an object", v, path)
+    for key in getattr(v, "duplicates", ()):
+        raise ProjectError(_sub(path, key), "duplicate key")
+    for key in v:
+        if not isinstance(key, str):
+            raise ProjectError(path, f"object key {key!r} is not a string")
+        _text(key, _sub(path, key), MAX_KEY)
+    return v
+
+
+def _num(v, path: str) -> float:
+    if isinstance(v, bool) or not isinstance(v, numbers.Real):
+        raise _expected("a number", v, path)
+    try:
+        f = float(v)
+    except OverflowError:
+        raise ProjectError(path, "number out of range") from None
+    if not math.isfinite(f):
+        raise ProjectError(path, f"expected a finite number, got {f}")
+    return f
+
+
+def _opt_num(v, path: str) -> float | None:
+    return None if v is None else _num(v, path)
+
+
+def _positive(v, path: str) -> float:
+    f = _num(v, path)
+    if f <= 0:
+        raise ProjectError(path, f"expected a positive number, got {f}")
+    return f
+
+
+def _int_in(lo: int, hi: int):
+    def check(v, path: str) -> int:
+        if isinstance(v, float) and v.is_integer() and abs(v) <= MAX_INT:
+            v = int(v)
+        if isinstance(v, bool) or not isinstance(v, numbers.Integral):
+            raise _expected("an integer", v, path)
+        if not lo <= v <= hi:
+            raise ProjectError(path, f"expected an integer from {lo} to {hi}, got {v}")
+        return int(v)
+    return check
+
+
+def _name(key: str, path: str) -> str:
+    if not (len(key) <= MAX_NAME and _NAME_RE.fullmatch(key)):
+        raise ProjectError(_sub(path, key), "not a valid name (letters, digits, _ and trailing primes only)")
+    return key
+
+
+def _free(v, path: str, depth: int = 0):
+    """Deep-copy a free JSON value into plain dict/list/str/int/float/bool/None, validating it."""
+    if depth > MAX_DEPTH:
+        raise ProjectError(path, f"nested deeper than {MAX_DEPTH} levels")
+    if v is None or isinstance(v, bool):
+        return v
+    if isinstance(v, numbers.Integral):
+        if abs(v) > MAX_INT:
+            raise ProjectError(path, "integer out of range")
+        return int(v)
+    if isinstance(v, numbers.Real):
+        return _num(v, path)
+    if isinstance(v, str):
+        return _text(v, path)
+    if isinstance(v, (list, tuple)):
+        return [_free(x, _sub(path, i), depth + 1) for i, x in enumerate(v)]
+    if isinstance(v, dict):
+        return {k: _free(x, _sub(path, k), depth + 1) for k, x in _obj(v, path).items()}
+    raise _expected("a JSON value", v, path)
+
+
+def _free_obj(v, path: str) -> dict:
+    return _free(_obj(v, path), path)
+
+
+def _fields(v, path: str, schema: dict, warnings: list[str]) -> dict:
+    """Check object ``v`` against ``schema`` {key: (check, default)}; unknown keys become warnings."""
+    obj = _obj(v, path)
+    for key in obj:
+        if key not in schema:
+            warnings.append(f"{_sub(path, key)}: unknown key ignored")
+    out = {}
+    for key, (check, default) in schema.items():
+        if key in obj:
+            out[key] = check(obj[key], _sub(path, key))
+        elif default is _REQUIRED:
+            raise ProjectError(_sub(path, key), "missing")
+        else:
+            out[key] = default
+    return out
+
+
+def _named(check):
+    def check_map(v, path: str) -> dict:
+        return {_name(k, path): check(x, _sub(path, k)) for k, x in _obj(v, path).items()}
+    return check_map
+
+
+# ---------------------------------------------------------------- dict <-> Project
+
+def _migrate_v0(d: dict, warnings: list[str]) -> dict:
+    """Version 0 -> 1: ``equations`` becomes ``model``; plain parameter numbers plus ``ranges`` become settings."""
+    d = dict(d)
+    if "equations" in d:
+        d["model"] = _text(d.pop("equations"), "$.equations")
+    ranges = _obj(d.pop("ranges", {}), "$.ranges")
+    params = {}
+    for k, v in _obj(d.get("parameters", {}), "$.parameters").items():
+        params[k] = {"value": _num(v, _sub("$.parameters", k))}
+    for k, r in ranges.items():
+        p = _sub("$.ranges", k)
+        if not (isinstance(r, list) and len(r) == 2):
+            raise _expected("an array [lo, hi]", r, p)
+        if k not in params:
+            warnings.append(f"{p}: range for unknown parameter ignored")
+            continue
+        params[k]["lo"], params[k]["hi"] = _opt_num(r[0], _sub(p, 0)), _opt_num(r[1], _sub(p, 1))
+    d["parameters"] = params
+    d["version"] = 1
+    return d
+
+
+_MIGRATIONS = {0: _migrate_v0}
+
+
+def project_from_dict(d) -> Project:
+    """Validate (and migrate, if older) a decoded document; raises ProjectError naming the JSON path."""
+    warnings: list[str] = []
+    d = _obj(d, "$")
+    if "format" not in d:
+        raise ProjectError("$.format", "missing (this is not an OrbitDesk project)")
+    if d["format"] != FORMAT_NAME:
+        raise ProjectError("$.format", f"expected {FORMAT_NAME!r}, got {_text(d['format'], '$.format', 200)!r}")
+    if "version" not in d:
+        raise ProjectError("$.version", "missing")
+    version = d["version"]
+    if isinstance(version, bool) or not isinstance(version, int):
+        raise _expected("an integer", version, "$.version")
+    if version < 0:
+        raise ProjectError("$.version", f"unknown project format version {version}")
+    if version > FORMAT_VERSION:
+        raise ProjectError("$.version", f"this file is project format version {version}, but this OrbitDesk "
+                           f"only understands up to version {FORMAT_VERSION}; open it with a newer OrbitDesk")
+    while version < FORMAT_VERSION:
+        d = _MIGRATIONS[version](d, warnings)
+        version += 1
+
+    def solver(v, path):
+        s = _fields(v, path, {
+            "method": (_text, "dop853"), "rtol": (_positive, 1e-8), "atol": (_positive, 1e-10),
+            "max_step": (lambda x, p: None if x is None else _positive(x, p), None), "dt": (_positive, 0.01),
+            "t_start": (_num, 0.0), "t_end": (_num, 100.0), "samples": (_int_in(2, 10**7), 4000),
+            "steps": (_int_in(1, 10**8), 1000), "transient": (_num, 0.0)}, warnings)
+        if s["method"] not in METHODS:
+            raise ProjectError(_sub(path, "method"), f"expected one of {', '.join(METHODS)}, got {s['method']!r}")
+        if s["t_end"] == s["t_start"]:
+            raise ProjectError(_sub(path, "t_end"), "must differ from t_start")
+        if s["transient"] < 0:
+            raise ProjectError(_sub(path, "transient"), "must not be negative")
+        return SolverSettings(**s)
+
+    def parameter(v, path):
+        p = ParameterSetting(**_fields(v, path, {"value": (_num, _REQUIRED), "lo": (_opt_num, None),
+                                                 "hi": (_opt_num, None)}, warnings))
+        if p.lo is not None and p.hi is not None and p.lo > p.hi:
+            raise ProjectError(_sub(path, "hi"), f"range upper bound {p.hi} is below lower bound {p.lo}")
+        return p
+
+    def step(v, path):
+        return WalkthroughStep(**_fields(v, path, {"title": (_text, _REQUIRED), "note": (_text, ""),
+                                                   "snapshot": (_free_obj, {})}, warnings))
+
+    def steps(v, path):
+        if not isinstance(v, (list, tuple)):
+            raise _expected("an array", v, path)
+        return [step(x, _sub(path, i)) for i, x in enumerate(v)]
+
+    def views(v, path):
+        return {k: _free_obj(x, _sub(path, k)) for k, x in _obj(v, path).items()}
+
+    const = lambda v, p: v  # noqa: E731  (format/version already checked)
+    f = _fields(d, "$", {
+        "format": (const, None), "version": (const, None), "name": (_text, "Untitled"), "model": (_text, ""),
+        "parameters": (_named(parameter), {}), "initial": (_named(_num), {}), "solver": (solver, SolverSettings()),
+        "views": (views, {}), "walkthrough": (steps, []), "notes": (_text, "")}, warnings)
+    del f["format"], f["version"]
+    return Project(**f, load_warnings=warnings)
+
+
+def _raw(p: Project) -> dict:
+    try:
+        return {
+            "format": FORMAT_NAME, "version": FORMAT_VERSION, "name": p.name, "model": p.model,
+            "parameters": {k: {"value": v.value, "lo": v.lo, "hi": v.hi} for k, v in p.parameters.items()},
+            "initial": dict(p.initial),
+            "solver": {k: getattr(p.solver, k) for k in SolverSettings.__dataclass_fields__},
+            "views": dict(p.views),
+            "walkthrough": [{"title": w.title, "note": w.note, "snapshot": w.snapshot} for w in p.walkthrough],
+            "notes": p.notes,
+        }
+    except (AttributeError, TypeError) as e:
+        raise ProjectError("$", f"not a valid Project: {e}") from None
+
+
+def project_to_dict(p: Project) -> dict:
+    """Return the current-version document for ``p`` as plain JSON data; raises ProjectError if ``p`` is invalid."""
+    return _raw(project_from_dict(_raw(p)))  # validating round trip: never emit what we would refuse to load
+
+
+# ---------------------------------------------------------------- text and files
+
+class _DupDict(dict):
+    """A decoded JSON object that had repeated keys (reported by ``_obj`` with their path)."""
+    duplicates: tuple = ()
+
+
+def _pairs(pairs):
+    obj, dups = {}, []
+    for k, v in pairs:
+        if k in obj:
+            dups.append(k)
+        obj[k] = v
+    if dups:
+        obj = _DupDict(obj)
+        obj.duplicates = dups
+    return obj
+
+
+def dumps(p: Project) -> str:
+    """Serialise a project to JSON text (validated, UTF-8 safe, no NaN/Infinity)."""
+    return json.dumps(project_to_dict(p), indent=2, ensure_ascii=False, allow_nan=False) + "\n"
+
+
+def loads(text: str) -> Project:
+    """Parse JSON text into a Project; raises ProjectError for bad JSON (with line:column) or bad structure."""
+    if not isinstance(text, str):
+        raise ProjectError("$", f"expected text, got {type(text).__name__}")
+    if len(text) > MAX_FILE_BYTES:
+        raise ProjectError("$", f"document too large ({len(text)} characters, limit {MAX_FILE_BYTES})")
+    text = text.removeprefix("\ufeff")
+    if "\x00" in text:
+        raise ProjectError("$", "contains NUL characters (not a text file)")
+    depth = 0
+    for m in _TOKEN_RE.finditer(text):
+        c = m.group()
+        if c in "[{":
+            depth += 1
+            if depth > MAX_DEPTH:
+                line = text.count("\n", 0, m.start()) + 1
+                col = m.start() - text.rfind("\n", 0, m.start())
+                raise ProjectError("$", f"JSON nested deeper than {MAX_DEPTH} levels at line {line} column {col}")
+        elif c in "]}":
+            depth -= 1
+    try:
+        data = json.loads(text, object_pairs_hook=_pairs, parse_constant=float)
+    except json.JSONDecodeError as e:
+        raise ProjectError("$", f"not valid JSON: {e.msg} at line {e.lineno} column {e.colno}") from None
+    except (ValueError, RecursionError) as e:  # e.g. integers with too many digits
+        raise ProjectError("$", f"not valid JSON: {e}") from None
+    return project_from_dict(data)
+
+
+def _read(path: str) -> bytes | None:
+    """Bytes of a regular file (None if it does not exist), refusing oversized or special files."""
+    try:
+        with open(path, "rb") as f:
+            if not stat.S_ISREG(os.fstat(f.fileno()).st_mode):
+                raise ProjectError("$", f"{path!r} is not a regular file")
+            data = f.read(MAX_FILE_BYTES + 1)
+    except FileNotFoundError:
+        return None
+    except OSError as e:
+        raise ProjectError("$", f"cannot read {path!r}: {e.strerror or e}") from None
+    if len(data) > MAX_FILE_BYTES:
+        raise ProjectError("$", f"file too large (over {MAX_FILE_BYTES} bytes): {path!r}")
+    return data
+
+
+def _decode(data: bytes) -> Project:
+    nul = data.find(b"\x00")
+    if nul >= 0:
+        raise ProjectError("$", f"contains NUL bytes (first at byte {nul}); not a project file")
+    try:
+        text = data.decode("utf-8")
+    except UnicodeDecodeError as e:
+        raise ProjectError("$", f"not valid UTF-8 text (bad byte at offset {e.start})") from None
+    return loads(text)
+
+
+def load(path) -> Project:
+    """Read and validate a project file; never modifies the file. Raises ProjectError on any problem."""
+    path = os.fspath(path)
+    data = _read(path)
+    if data is None:
+        raise ProjectError("$", f"cannot read {path!r}: no such file")
+    return _decode(data)
+
+
+def _atomic_write(target: str, data: bytes, mode: int | None) -> None:
+    directory = os.path.dirname(target) or "."
+    tmp = os.path.join(directory, f".{os.path.basename(target)[:100]}.{secrets.token_hex(6)}.tmp")
+    fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_EXCL | getattr(os, "O_BINARY", 0), 0o666)
+    try:
+        with os.fdopen(fd, "wb") as f:
+            f.write(data)
+            f.flush()
+            if mode is not None:
+                os.chmod(tmp, mode)
+            os.fsync(f.fileno())
+        os.replace(tmp, target)
+    except BaseException:
+        with suppress(OSError):
+            os.unlink(tmp)
+        raise
+    if os.name != "nt":  # directories cannot be opened for fsync on Windows
+        dfd = os.open(directory, os.O_RDONLY)
+        try:
+            os.fsync(dfd)
+        finally:
+            os.close(dfd)
+
+
+def save(path, p: Project, *, force: bool = False) -> None:
+    """Atomically write ``p`` to ``path``, first copying the previous document to ``path + '.bak'``.
+
+    An existing file at ``path`` that is not a valid project is not overwritten unless ``force=True``
+    (then the old ``.bak`` is left alone). On failure raises ProjectError and the old file is intact.
+    """
+    target = os.path.realpath(os.fspath(path))
+    data = dumps(p).encode("utf-8")
+    old = _read(target)
+    if old is not None:
+        try:
+            _decode(old)
+        except ProjectError as e:
+            if not force:
+                raise ProjectError(e.path, f"refusing to overwrite {target!r}, which is not a readable project "
+                                   f"({e.message}); save elsewhere or pass force=True") from None
+            old = None  # never back up an unreadable document
+    try:
+        mode = stat.S_IMODE(os.stat(target).st_mode)
+    except FileNotFoundError:
+        mode = None
+    except OSError as e:
+        raise ProjectError("$", f"could not save {target!r}: {e.strerror or e}") from None
+    try:
+        if old is not None:
+            _atomic_write(target + ".bak", old, mode)
+        _atomic_write(target, data, mode)
+    except OSError as e:
+        raise ProjectError("$", f"could not save {target!r}: {e.strerror or e}") from e
