@@ -1,0 +1,53 @@
+"""The command line: ``orbitdesk [open PATH] | check | run | equilibria | ...``.
+
+Each command lives in its own module in this package and exposes ``register(subparsers)``;
+the module list below is the whole table. Commands are thin layers over ``orbitdesk.core``.
+"""
+
+from __future__ import annotations
+
+import argparse
+import importlib
+import sys
+
+from .common import CommandError, EXIT_ERRORS, EXIT_UNREADABLE
+
+COMMAND_MODULES = ["open", "check", "run", "equilibria", "cycle", "section", "lyapunov", "sweep", "export"]
+
+
+class _Parser(argparse.ArgumentParser):
+    def error(self, message):  # usage errors: a message and exit 2, never a traceback
+        self.print_usage(sys.stderr)
+        raise CommandError(f"{self.prog}: {message}", EXIT_UNREADABLE)
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = _Parser(prog="orbitdesk", description="OrbitDesk: build, run and analyse small dynamical models.")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+    for name in COMMAND_MODULES:
+        try:
+            module = importlib.import_module(f"{__name__}.{name}")
+        except ModuleNotFoundError as exc:
+            if exc.name and exc.name.startswith(__name__):
+                continue  # command not installed in this build
+            raise
+        module.register(sub)
+    return parser
+
+
+def main(argv=None) -> int:
+    argv = list(sys.argv[1:] if argv is None else argv)
+    try:
+        parser = build_parser()
+        args = parser.parse_args(argv)
+        if args.command is None:
+            from orbitdesk.ui.app import main as app_main
+
+            return app_main([], path=None)
+        return int(args.handler(args) or 0)
+    except CommandError as err:
+        print(err.message, file=sys.stderr)
+        return err.code
+    except KeyboardInterrupt:
+        print("interrupted", file=sys.stderr)
+        return 130

@@ -1,0 +1,34 @@
+"""``orbitdesk check PATH [--json]``: the model's diagnostics."""
+
+from orbitdesk.core.model import parse_model
+
+from .common import EXIT_ERRORS, EXIT_OK, print_json, read_source
+
+
+def register(sub):
+    parser = sub.add_parser("check", help="validate a model and list its diagnostics")
+    parser.add_argument("path")
+    parser.add_argument("--json", action="store_true", help="print the result as JSON")
+    parser.set_defaults(handler=run)
+
+
+def run(args) -> int:
+    source = read_source(args.path)
+    parsed = parse_model(source.text)
+    if args.json:
+        print_json({
+            "ok": parsed.ok,
+            "kind": parsed.kind,
+            "states": parsed.states,
+            "parameters": {name: p.value for name, p in parsed.parameters.items()},
+            "diagnostics": [
+                {"line": d.line, "column": d.column, "end_column": d.end_column,
+                 "severity": d.severity, "message": d.message} for d in parsed.diagnostics],
+        })
+    else:
+        for d in parsed.diagnostics:
+            print(d.format())
+        if parsed.ok:
+            print(f"ok: {parsed.kind} with {len(parsed.states)} states ({', '.join(parsed.states)}), "
+                  f"{len(parsed.parameters)} parameters")
+    return EXIT_OK if parsed.ok else EXIT_ERRORS

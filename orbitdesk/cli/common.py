@@ -1,0 +1,153 @@
+"""What every command shares: reading a model or project, --set/--init, JSON and CSV output."""
+
+from __future__ import annotations
+
+import csv
+import json
+import math
+import re
+import sys
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+EXIT_OK, EXIT_ERRORS, EXIT_UNREADABLE = 0, 1, 2
+
+
+class CommandError(Exception):
+    def __init__(self, message: str, code: int = EXIT_ERRORS):
+        super().__init__(message)
+        self.message, self.code = message, code
+
+
+@dataclass
+class Source:
+    """What a PATH holds: model text, and the project's stored values if it is a project."""
+
+    path: Path
+    text: str
+    project: object | None = None  # core.project.Project when PATH is a project
+
+
+def read_source(path_text: str) -> Source:
+    path = Path(path_text)
+    if path.suffix == ".orbitdesk":
+        from orbitdesk.core import project as project_module
+
+        try:
+            project = project_module.load(path)
+        except project_module.ProjectError as err:
+            raise CommandError(f"{path}: {err}", EXIT_UNREADABLE) from None
+        except OSError as err:
+            raise CommandError(f"{path}: cannot read: {err.strerror or err}", EXIT_UNREADABLE) from None
+        return Source(path, project.model, project)
+    from orbitdesk.core.model_file import read_model_file
+
+    try:
+        return Source(path, read_model_file(path))
+    except (OSError, ValueError) as err:
+        raise CommandError(f"{path}: {err}", EXIT_UNREADABLE) from None
+
+
+def load_system(source: Source):
+    """Compile the source's model; errors become a CommandError listing the diagnostics."""
+    from orbitdesk.core.model import parse_model
+    from orbitdesk.core.system import compile_model
+
+    parsed = parse_model(source.text)
+    if not parsed.ok:
+        lines = [f"{source.path}:{d.format()}" for d in parsed.errors]
+        raise CommandError("the model has errors:\n" + "\n".join(lines), EXIT_ERRORS)
+    return compile_model(parsed)
+
+
+_ASSIGN = re.compile(r"^\s*([A-Za-z_][A-Za-z0-9_]*'*)\s*=\s*(.+?)\s*$")
+
+
+def parse_assignments(items, what: str) -> dict[str, float]:
+    values = {}
+    for item in items or ():
+        m = _ASSIGN.match(item)
+        if not m:
+            raise CommandError(f"--{what} expects NAME=VALUE, got '{item}'")
+        values[m.group(1)] = parse_number(m.group(2), f"--{what} {m.group(1)}")
+    return values
+
+
+def parse_number(text: str, what: str) -> float:
+    try:
+        value = float(text)
+    except ValueError:
+        raise CommandError(f"{what}: '{text}' is not a number") from None
+    if not math.isfinite(value):
+        raise CommandError(f"{what}: '{text}' is not a finite number")
+    return value
+
+
+def values_for(system, source: Source, sets, inits):
+    """Parameter and initial vectors: the model's, then the project's stored ones, then --set/--init."""
+    params, initial = {}, {}
+    if source.project is not None:
+        params = {k: v.value for k, v in source.project.parameters.items() if k in system.parameters}
+        initial = {k: v for k, v in source.project.initial.items() if k in system.states}
+    params.update(parse_assignments(sets, "set"))
+    initial.update(parse_assignments(inits, "init"))
+    try:
+        return system.param_vector(params), system.initial_vector(initial)
+    except KeyError as err:
+        known_p = ", ".join(system.parameters) or "none"
+        known_s = ", ".join(system.states)
+        raise CommandError(f"{err.args[0]} (parameters: {known_p}; states: {known_s})") from None
+
+
+def add_value_options(parser, initial=True):
+    parser.add_argument("--set", action="append", metavar="NAME=VALUE", help="set a parameter (repeatable)")
+    if initial:
+        parser.add_argument("--init", action="append", metavar="STATE=VALUE", help="set an initial value (repeatable)")
+
+
+def to_jsonable(value):
+    if isinstance(value, dict):
+        return {str(k): to_jsonable(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [to_jsonable(v) for v in value]
+    if isinstance(value, np.ndarray):
+        return to_jsonable(value.tolist())
+    if isinstance(value, (np.floating, float)):
+        v = float(value)
+        return v if math.isfinite(v) else None
+    if isinstance(value, (np.integer,)):
+        return int(value)
+    if isinstance(value, complex):
+        return {"re": value.real, "im": value.imag}
+    return value
+
+
+def print_json(data) -> None:
+    json.dump(to_jsonable(data), sys.stdout, allow_nan=False)
+    sys.stdout.write("\n")
+
+
+def write_csv(path: str, header: list[str], columns) -> None:
+    try:
+        with open(path, "w", newline="", encoding="utf-8") as handle:
+            writer = csv.writer(handle)
+            writer.writerow(header)
+            writer.writerows(np.column_stack(columns).tolist() if len(columns) else [])
+    except OSError as err:
+        raise CommandError(f"cannot write {path}: {err.strerror or err}") from None
+
+
+def stderr_progress(label: str):
+    """A progress callback that draws on stderr when it is a terminal, else None."""
+    if not sys.stderr.isatty():
+        return None
+
+    def report(fraction: float) -> None:
+        sys.stderr.write(f"\r{label} {fraction * 100:5.1f}%")
+        sys.stderr.flush()
+        if fraction >= 1.0:
+            sys.stderr.write("\n")
+
+    return report

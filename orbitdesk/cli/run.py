@@ -1,0 +1,75 @@
+"""``orbitdesk run PATH ...``: one run of a flow or a map, as JSON or CSV."""
+
+from orbitdesk.core.engine import METHODS, RunSettings, simulate
+from orbitdesk.core.system import MAP
+
+from .common import (CommandError, add_value_options, load_system, parse_number, print_json, read_source,
+                     stderr_progress, values_for, write_csv)
+
+
+def register(sub):
+    parser = sub.add_parser("run", help="integrate a flow or iterate a map")
+    parser.add_argument("path")
+    span = parser.add_mutually_exclusive_group()
+    span.add_argument("--t-end", type=str, metavar="T", help="end time of a flow")
+    span.add_argument("--steps", type=int, metavar="N", help="iterations of a map")
+    parser.add_argument("--samples", type=int, metavar="K", help="output points of a flow")
+    add_value_options(parser)
+    parser.add_argument("--method", choices=METHODS, help="integration method")
+    parser.add_argument("--rtol", type=str, metavar="R")
+    parser.add_argument("--atol", type=str, metavar="A")
+    parser.add_argument("--csv", metavar="FILE", help="write the run as CSV")
+    parser.add_argument("--json", action="store_true", help="print the run as JSON")
+    parser.set_defaults(handler=run)
+
+
+def settings_for(source, args) -> RunSettings:
+    """Run settings: defaults, then the project's solver settings, then the command's options."""
+    settings = RunSettings()
+    if source.project is not None:
+        stored = source.project.solver
+        for name in ("method", "rtol", "atol", "max_step", "dt", "t_start", "t_end", "samples", "steps", "transient"):
+            if hasattr(stored, name) and getattr(stored, name) is not None:
+                setattr(settings, name, getattr(stored, name))
+    if getattr(args, "t_end", None) is not None:
+        settings.t_end = parse_number(args.t_end, "--t-end")
+    if getattr(args, "steps", None) is not None:
+        if args.steps < 1:
+            raise CommandError("--steps must be at least 1")
+        settings.steps = args.steps
+    if getattr(args, "samples", None) is not None:
+        if args.samples < 2:
+            raise CommandError("--samples must be at least 2")
+        settings.samples = args.samples
+    if getattr(args, "method", None):
+        settings.method = args.method
+    for name in ("rtol", "atol"):
+        if getattr(args, name, None) is not None:
+            value = parse_number(getattr(args, name), f"--{name}")
+            if value <= 0:
+                raise CommandError(f"--{name} must be positive")
+            setattr(settings, name, value)
+    return settings
+
+
+def run(args) -> int:
+    source = read_source(args.path)
+    system = load_system(source)
+    p, u0 = values_for(system, source, args.set, args.init)
+    settings = settings_for(source, args)
+    if system.kind != MAP and settings.t_end == settings.t_start:
+        raise CommandError("--t-end must differ from the start time")
+    traj = simulate(system, settings, u0, p, progress=stderr_progress("run"))
+    time_key = "n" if system.kind == MAP else "t"
+    if args.csv:
+        header = [time_key, *system.states, *traj.derived]
+        write_csv(args.csv, header, [traj.time, *traj.states, *traj.derived.values()])
+    if args.json or not args.csv:
+        print_json({
+            "status": traj.status,
+            "message": traj.message,
+            time_key: traj.time,
+            "states": {name: traj.states[i] for i, name in enumerate(system.states)},
+            "derived": traj.derived,
+        })
+    return 0 if traj.ok else 1
