@@ -1,0 +1,112 @@
+"""The command line contract of check and run."""
+
+import json
+import subprocess
+import sys
+
+import numpy as np
+import pytest
+
+from orbitdesk.cli import main
+
+LORENZ = "sigma = 10\nr = 28\nbeta = 8/3\nx' = sigma*(y - x)\ny' = x*(r - z) - y\nz' = x*y - beta*z\nx(0) = 1\n"
+
+
+@pytest.fixture
+def lorenz_file(tmp_path):
+    path = tmp_path / "loop.txt"
+    path.write_text(LORENZ)
+    return path
+
+
+def run_cli(capsys, *args):
+    code = main([str(a) for a in args])
+    out, err = capsys.readouterr()
+    return code, out, err
+
+
+def test_check_ok_lists_infos_and_exits_zero(capsys, lorenz_file):
+    code, out, _ = run_cli(capsys, "check", lorenz_file)
+    assert code == 0
+    assert "5:1: info: no initial value for y" in out
+
+
+def test_check_json_contract(capsys, tmp_path):
+    bad = tmp_path / "bad.txt"
+    bad.write_text("sigma = 10\nx' = sigam*(y - x)\ny' = -x\n")
+    code, out, _ = run_cli(capsys, "check", bad, "--json")
+    data = json.loads(out)
+    assert code == 1
+    assert data["ok"] is False and data["kind"] == "flow"
+    assert data["states"] == ["x", "y"] and data["parameters"] == {"sigma": 10.0}
+    error = [d for d in data["diagnostics"] if d["severity"] == "error"][0]
+    assert (error["line"], error["column"], error["end_column"]) == (2, 6, 11)
+    assert "did you mean 'sigma'" in error["message"]
+    assert set(error) == {"line", "column", "end_column", "severity", "message"}
+
+
+def test_check_unreadable_file_exits_two(capsys, tmp_path):
+    code, _, err = run_cli(capsys, "check", tmp_path / "missing.txt")
+    assert code == 2 and "missing.txt" in err
+    binary = tmp_path / "binary.txt"
+    binary.write_bytes(b"x' = 1\n\xff\xfe\n")
+    code, _, err = run_cli(capsys, "check", binary)
+    assert code == 2 and "UTF-8" in err
+
+
+def test_run_json_contract_with_overrides(capsys, lorenz_file):
+    code, out, _ = run_cli(capsys, "run", lorenz_file, "--t-end", "2", "--samples", "5",
+                           "--set", "r=0.5", "--init", "z=1", "--json")
+    data = json.loads(out)
+    assert code == 0 and data["status"] == "ok"
+    assert data["t"] == [0.0, 0.5, 1.0, 1.5, 2.0]
+    assert data["states"]["z"][0] == 1.0
+    # below r = 1 the origin attracts everything (Strogatz, sec. 9.2): the run decays
+    assert abs(data["states"]["x"][-1]) < abs(data["states"]["x"][0])
+
+
+def test_run_map_and_csv(capsys, tmp_path):
+    model = tmp_path / "pop.txt"
+    model.write_text("r = 2.8\nx[n+1] = r*x*(1 - x)\nx[0] = 0.2\n")
+    csv_path = tmp_path / "out.csv"
+    code, out, _ = run_cli(capsys, "run", model, "--steps", "300", "--csv", csv_path)
+    assert code == 0
+    table = np.genfromtxt(csv_path, delimiter=",", names=True)
+    assert table["n"][-1] == 300
+    assert table["x"][-1] == pytest.approx(1 - 1 / 2.8)  # fixed point 1 - 1/r (closed form)
+
+
+def test_run_reports_divergence_in_json(capsys, tmp_path):
+    model = tmp_path / "blow.txt"
+    model.write_text("x' = x^2\nx(0) = 1\n")
+    code, out, _ = run_cli(capsys, "run", model, "--t-end", "5", "--json")
+    data = json.loads(out)
+    assert code == 1 and data["status"] == "diverged" and "t = 1" in data["message"]
+
+
+@pytest.mark.parametrize("args, fragment", [
+    (["--set", "q=1"], "unknown parameter 'q'"),
+    (["--set", "r"], "NAME=VALUE"),
+    (["--init", "w=1"], "unknown state 'w'"),
+    (["--t-end", "soon"], "not a number"),
+    (["--rtol", "-1"], "positive"),
+    (["--method", "magic"], "invalid choice"),
+])
+def test_run_refuses_bad_input_without_traceback(capsys, lorenz_file, args, fragment):
+    code, _, err = run_cli(capsys, "run", lorenz_file, *args)
+    assert code != 0
+    assert fragment in err and "Traceback" not in err
+
+
+def test_model_with_errors_refused_by_run(capsys, tmp_path):
+    bad = tmp_path / "bad.txt"
+    bad.write_text("x' = y\n")
+    code, _, err = run_cli(capsys, "run", bad)
+    assert code == 1 and "unknown name 'y'" in err
+
+
+def test_entry_point_as_module(tmp_path, lorenz_file):
+    done = subprocess.run([sys.executable, "-m", "orbitdesk", "check", str(lorenz_file), "--json"],
+                          capture_output=True, text=True, timeout=120)
+    assert done.returncode == 0
+    assert json.loads(done.stdout)["states"] == ["x", "y", "z"]
