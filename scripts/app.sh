@@ -11,4 +11,7 @@ if [ -z "${DISPLAY:-}" ] && [ -z "${WAYLAND_DISPLAY:-}" ]; then
   echo "  .venv/bin/orbitdesk --help" >&2
   exit 3
 fi
-exec "$here/.venv/bin/orbitdesk" open "$target"
+if [ -f "$target" ]; then
+  exec "$here/.venv/bin/orbitdesk" open "$target"
+fi
+exec "$here/.venv/bin/orbitdesk"
