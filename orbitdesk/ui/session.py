@@ -1,0 +1,569 @@
+"""The single live document every panel talks to: model text, values, solver settings, runs, undo.
+
+Validation parses the text on the GUI thread after a short pause in typing; compiling and running
+happen on worker threads. While the text has errors the last valid system stays active. Values the
+user set (sliders, spin boxes) survive edits of the text unless the value written in the text for
+that name changes.
+"""
+
+from __future__ import annotations
+
+import copy
+import dataclasses
+import math
+import time
+from pathlib import Path
+
+import numpy as np
+from PySide6.QtCore import QObject, QTimer, Signal
+from PySide6.QtGui import QUndoCommand, QUndoStack
+
+from orbitdesk.core import project as core_project
+from orbitdesk.core.project import ParameterSetting, Project, ProjectError, SolverSettings
+
+from .worker import JobRunner
+
+VALIDATE_DELAY_MS = 120
+TEXT_MERGE_SECONDS = 2.0     # typing pauses longer than this start a new undo step
+VALUE_MERGE_SECONDS = 1.5    # same for slider moves of one parameter
+MAX_TEXT_FILE_BYTES = 1024 * 1024
+PROJECT_SUFFIXES = (".orbitdesk", ".json")
+SOLVER_FIELDS = tuple(f.name for f in dataclasses.fields(SolverSettings))
+
+
+def _parse(text):
+    from orbitdesk.core.model import parse_model  # sympy: imported on first use, after the window shows
+
+    return parse_model(text)
+
+
+def _signature(parsed) -> tuple:
+    """What a compiled system depends on; equal signatures give the same system."""
+    return (
+        parsed.kind,
+        tuple(parsed.states),
+        tuple((s, str(parsed.equations[s])) for s in parsed.states),
+        tuple((n, i.value, i.lo, i.hi) for n, i in parsed.parameters.items()),
+        tuple(sorted(parsed.initial.items())),
+        tuple((n, str(e)) for n, e in parsed.derived.items()),
+        str(parsed.time_symbol),
+    )
+
+
+def read_document(path) -> tuple[Project, Path | None]:
+    """Read a project file or a plain model text file. Returns (project, project_path or None).
+
+    Raises ProjectError with a readable message for anything that cannot be opened.
+    """
+    path = Path(path)
+    if path.suffix.lower() in PROJECT_SUFFIXES:
+        return core_project.load(path), path
+    try:
+        with open(path, "rb") as f:
+            data = f.read(MAX_TEXT_FILE_BYTES + 1)
+    except FileNotFoundError:
+        raise ProjectError("$", f"cannot read {str(path)!r}: no such file") from None
+    except OSError as e:
+        raise ProjectError("$", f"cannot read {str(path)!r}: {e.strerror or e}") from None
+    if len(data) > MAX_TEXT_FILE_BYTES:
+        raise ProjectError("$", f"file too large for a model (over {MAX_TEXT_FILE_BYTES} bytes)")
+    if data.lstrip().startswith(b"{"):
+        return core_project.load(path), path
+    if b"\x00" in data:
+        raise ProjectError("$", "this is not a text file (it contains NUL bytes)")
+    try:
+        text = data.decode("utf-8").removeprefix("\ufeff")
+    except UnicodeDecodeError as e:
+        raise ProjectError("$", f"not a UTF-8 text file (bad byte at offset {e.start})") from None
+    return Project(name=path.stem or "Untitled", model=text.replace("\r\n", "\n")), None
+
+
+# ---------------------------------------------------------------- undo commands
+
+class _TextCommand(QUndoCommand):
+    ID = 1001
+
+    def __init__(self, session: "Session", old: str, new: str):
+        super().__init__("Edit model")
+        self.s, self.old, self.new = session, old, new
+        self.stamp = time.monotonic()
+        self.first = True
+
+    def id(self):
+        return self.ID
+
+    def redo(self):
+        self.s._apply_text(self.new, emit=not self.first)
+        self.first = False
+
+    def undo(self):
+        self.s._apply_text(self.old, emit=True)
+
+    def mergeWith(self, other):
+        if other.id() != self.ID or other.stamp - self.stamp > TEXT_MERGE_SECONDS:
+            return False
+        self.new, self.stamp = other.new, other.stamp
+        if self.new == self.old:
+            self.setObsolete(True)
+        return True
+
+
+class _ValueCommand(QUndoCommand):
+    """One parameter or initial value; consecutive changes of the same name merge."""
+
+    ID = 1002
+
+    def __init__(self, session: "Session", table: str, name: str, old, new):
+        what = "parameter" if table == "params" else "initial value"
+        super().__init__(f"Change {what} {name}")
+        self.s, self.table, self.name, self.old, self.new = session, table, name, old, new
+        self.stamp = time.monotonic()
+
+    def id(self):
+        return self.ID
+
+    def redo(self):
+        self.s._apply_value(self.table, self.name, self.new)
+
+    def undo(self):
+        self.s._apply_value(self.table, self.name, self.old)
+
+    def mergeWith(self, other):
+        if (other.id() != self.ID or (other.table, other.name) != (self.table, self.name)
+                or other.stamp - self.stamp > VALUE_MERGE_SECONDS):
+            return False
+        self.new, self.stamp = other.new, other.stamp
+        if self.new == self.old:
+            self.setObsolete(True)
+        return True
+
+
+class _ValuesCommand(QUndoCommand):
+    """Replace all parameter and initial values at once (reset)."""
+
+    def __init__(self, session: "Session", label: str, old: tuple, new: tuple):
+        super().__init__(label)
+        self.s, self.old, self.new = session, old, new
+
+    def redo(self):
+        self.s._apply_values(*self.new)
+
+    def undo(self):
+        self.s._apply_values(*self.old)
+
+
+class _RangeCommand(QUndoCommand):
+    def __init__(self, session: "Session", name: str, old, new):
+        super().__init__(f"Change range of {name}")
+        self.s, self.name, self.old, self.new = session, name, old, new
+
+    def redo(self):
+        self.s._apply_range(self.name, self.new)
+
+    def undo(self):
+        self.s._apply_range(self.name, self.old)
+
+
+class _SolverCommand(QUndoCommand):
+    ID = 1003
+
+    def __init__(self, session: "Session", old: SolverSettings, new: SolverSettings, keys: frozenset):
+        super().__init__("Change solver settings")
+        self.s, self.old, self.new, self.keys = session, old, new, keys
+        self.stamp = time.monotonic()
+
+    def id(self):
+        return self.ID
+
+    def redo(self):
+        self.s._apply_solver(self.new)
+
+    def undo(self):
+        self.s._apply_solver(self.old)
+
+    def mergeWith(self, other):
+        if other.id() != self.ID or other.keys != self.keys or other.stamp - self.stamp > VALUE_MERGE_SECONDS:
+            return False
+        self.new, self.stamp = other.new, other.stamp
+        if self.new == self.old:
+            self.setObsolete(True)
+        return True
+
+
+# ---------------------------------------------------------------- session
+
+class Session(QObject):
+    textChanged = Signal(str)          # model text replaced programmatically (load, undo/redo, walkthrough)
+    modelParsed = Signal(object)       # ParsedModel after each validation; may have errors
+    systemChanged = Signal(object)     # CompiledSystem, only when a valid model compiled
+    valuesChanged = Signal()           # parameter / initial values changed
+    settingsChanged = Signal()         # solver settings changed
+    trajectoryChanged = Signal(object) # engine Trajectory for the current system + values
+    timeCursorChanged = Signal(float)  # shared time cursor (t or n)
+    dirtyChanged = Signal(bool)
+    projectLoaded = Signal()           # a project was opened/new; views re-read their settings
+    statusMessage = Signal(str)
+    busyChanged = Signal(bool)         # any background job running
+    runProgress = Signal(float)        # progress of the main run, 0..1
+    runFailed = Signal(str)            # the main run raised (plain message)
+
+    def __init__(self, parent=None):
+        super().__init__(parent)
+        self.project = Project()
+        self.path: Path | None = None
+        self.text = ""
+        self.parsed = None
+        self.system = None
+        self.params: dict[str, float] = {}
+        self.initial: dict[str, float] = {}
+        self.ranges: dict[str, tuple] = {}   # slider ranges the user set (overriding the model's)
+        self.solver = SolverSettings()
+        self.trajectory = None
+        self.time_cursor = math.inf
+        self.generation = 0
+        self.auto_run = True
+        self.undo_stack = QUndoStack(self)
+        self.jobs = JobRunner(self)
+        self.jobs.busyChanged.connect(self.busyChanged)
+        self._save_hooks: list = []
+        self._written_params: dict[str, float] = {}
+        self._written_ranges: dict[str, tuple] = {}
+        self._written_initial: dict[str, float] = {}
+        self._signature = None
+        self._text_gen = 0
+        self._forced_dirty = False
+        self._last_dirty = False
+        self._validate_timer = QTimer(self, singleShot=True, interval=VALIDATE_DELAY_MS)
+        self._validate_timer.timeout.connect(self.validate_now)
+        self._run_timer = QTimer(self, singleShot=True, interval=0)
+        self._run_timer.timeout.connect(self.run)
+        self.undo_stack.cleanChanged.connect(self._on_clean_changed)
+
+    # ------------------------------------------------------------ state
+    @property
+    def dirty(self) -> bool:
+        return self._forced_dirty or not self.undo_stack.isClean()
+
+    @property
+    def name(self) -> str:
+        return self.project.name or "Untitled"
+
+    @property
+    def busy(self) -> bool:
+        return self.jobs.busy
+
+    def mark_dirty(self) -> None:
+        """Unsaved work that is not on the undo stack (e.g. restored from an autosave)."""
+        self._forced_dirty = True
+        self._update_dirty()
+
+    def _on_clean_changed(self, _clean: bool) -> None:
+        try:
+            self._update_dirty()
+        except RuntimeError:  # the stack is being destroyed with the session
+            pass
+
+    def _update_dirty(self) -> None:
+        d = self.dirty
+        if d != self._last_dirty:
+            self._last_dirty = d
+            self.dirtyChanged.emit(d)
+
+    def param_range(self, name: str) -> tuple:
+        """Slider range (lo, hi) of a parameter: the user's, else the model's (either may be None)."""
+        if name in self.ranges:
+            return self.ranges[name]
+        return self._written_ranges.get(name, (None, None))
+
+    def written_values(self) -> tuple[dict, dict]:
+        """Parameter and initial values as written in the model text (last valid model)."""
+        return dict(self._written_params), dict(self._written_initial)
+
+    def param_vector(self) -> np.ndarray:
+        if self.system is None:
+            return np.array(list(self.params.values()), dtype=float)
+        return self.system.param_vector({n: v for n, v in self.params.items() if n in self.system.parameters})
+
+    def initial_vector(self) -> np.ndarray:
+        if self.system is None:
+            return np.array(list(self.initial.values()), dtype=float)
+        return self.system.initial_vector({n: v for n, v in self.initial.items() if n in self.system.states})
+
+    def run_settings(self, **changes):
+        """The engine's RunSettings for the current solver settings (with ``changes`` applied)."""
+        from orbitdesk.core.engine import RunSettings
+
+        values = {k: getattr(self.solver, k) for k in SOLVER_FIELDS}
+        values.update(changes)
+        return RunSettings(**values)
+
+    # ------------------------------------------------------------ edits (undoable)
+    def set_text(self, text: str) -> None:
+        if text == self.text:
+            return
+        self.undo_stack.push(_TextCommand(self, self.text, text))
+
+    def set_param(self, name: str, value: float) -> None:
+        value = float(value)
+        if self.params.get(name) == value:
+            return
+        self.undo_stack.push(_ValueCommand(self, "params", name, self.params.get(name, value), value))
+
+    def set_initial(self, name: str, value: float) -> None:
+        value = float(value)
+        if self.initial.get(name) == value:
+            return
+        self.undo_stack.push(_ValueCommand(self, "initial", name, self.initial.get(name, value), value))
+
+    def reset_values(self) -> None:
+        old = (dict(self.params), dict(self.initial))
+        new = ({n: self._written_params.get(n, v) for n, v in self.params.items()},
+               {n: self._written_initial.get(n, v) for n, v in self.initial.items()})
+        if new != old:
+            self.undo_stack.push(_ValuesCommand(self, "Reset values", old, new))
+
+    def set_param_range(self, name: str, lo, hi) -> None:
+        old = self.ranges.get(name)
+        new = (None if lo is None else float(lo), None if hi is None else float(hi))
+        if new != self.param_range(name):
+            self.undo_stack.push(_RangeCommand(self, name, old, new))
+
+    def set_solver(self, **changes) -> None:
+        unknown = set(changes) - set(SOLVER_FIELDS)
+        if unknown:
+            raise KeyError(f"unknown solver setting(s): {', '.join(sorted(unknown))}")
+        new = dataclasses.replace(self.solver, **changes)
+        if new != self.solver:
+            self.undo_stack.push(_SolverCommand(self, copy.copy(self.solver), new, frozenset(changes)))
+
+    def set_time_cursor(self, t: float) -> None:
+        t = float(t)
+        if t != self.time_cursor:
+            self.time_cursor = t
+            self.timeCursorChanged.emit(t)
+
+    # ------------------------------------------------------------ appliers (called by undo commands)
+    def _apply_text(self, text: str, emit: bool) -> None:
+        self.text = text
+        self._text_gen += 1
+        if emit:
+            self.textChanged.emit(text)
+        self._validate_timer.start()
+
+    def _apply_value(self, table: str, name: str, value: float) -> None:
+        getattr(self, table)[name] = value
+        self._values_changed()
+
+    def _apply_values(self, params: dict, initial: dict) -> None:
+        self.params, self.initial = dict(params), dict(initial)
+        self._values_changed()
+
+    def _apply_range(self, name: str, value) -> None:
+        if value is None:
+            self.ranges.pop(name, None)
+        else:
+            self.ranges[name] = value
+        self.valuesChanged.emit()
+
+    def _apply_solver(self, solver: SolverSettings) -> None:
+        self.solver = copy.copy(solver)
+        self.generation += 1
+        self.settingsChanged.emit()
+        self.schedule_run()
+
+    def _values_changed(self) -> None:
+        self.generation += 1
+        self.valuesChanged.emit()
+        self.schedule_run()
+
+    # ------------------------------------------------------------ validation and compiling
+    def validate_now(self) -> None:
+        """Parse the current text now (normally done after a short pause in typing)."""
+        self._validate_timer.stop()
+        parsed = _parse(self.text)
+        self.parsed = parsed
+        self.modelParsed.emit(parsed)
+        if parsed.ok:
+            self._compile(parsed)
+
+    def _compile(self, parsed) -> None:
+        sig = _signature(parsed)
+        if self.system is not None and sig == self._signature:
+            self.jobs.cancel("compile")  # back to the active system: a pending compile is moot
+            return
+        text_gen = self._text_gen
+
+        def job(cancel, report):
+            from orbitdesk.core.system import compile_model
+
+            system = compile_model(parsed)
+            cancel.check()
+            system.rhs_function()  # build the evaluators here rather than on the GUI thread
+            system.rhs_vec(0.0, np.zeros((system.n_states, 1)))
+            return system
+
+        self.jobs.submit("compile", job, lambda system: self._adopt_system(system, sig),
+                         on_error=lambda msg: self.statusMessage.emit(f"The model could not be compiled: {msg}"),
+                         is_current=lambda: text_gen == self._text_gen)
+
+    def _adopt_system(self, system, sig) -> None:
+        model = system.model
+        written_p = {n: float(i.value) for n, i in model.parameters.items()}
+        written_r = {n: (i.lo, i.hi) for n, i in model.parameters.items()}
+        written_u = {s: float(model.initial.get(s, 0.0)) for s in system.states}
+        params = {n: (self.params[n] if n in self.params and self._written_params.get(n) == v else v)
+                  for n, v in written_p.items()}
+        initial = {s: (self.initial[s] if s in self.initial and self._written_initial.get(s) == v else v)
+                   for s, v in written_u.items()}
+        self.ranges = {n: r for n, r in self.ranges.items()
+                       if n in written_r and self._written_ranges.get(n, written_r[n]) == written_r[n]
+                       and r != written_r[n]}
+        values_changed = params != self.params or initial != self.initial
+        self.params, self.initial = params, initial
+        self._written_params, self._written_ranges, self._written_initial = written_p, written_r, written_u
+        self.system, self._signature = system, sig
+        self.generation += 1
+        self.systemChanged.emit(system)
+        if values_changed:
+            self.valuesChanged.emit()
+        self.schedule_run()
+
+    # ------------------------------------------------------------ running
+    def schedule_run(self) -> None:
+        """Re-run soon (coalesces bursts of changes into one run)."""
+        if self.auto_run:
+            self._run_timer.start()
+
+    def run(self) -> None:
+        """Integrate / iterate the current system with the current values and settings."""
+        self._run_timer.stop()
+        system = self.system
+        if system is None:
+            return
+        try:
+            settings = self.run_settings()
+        except (TypeError, ValueError) as e:
+            self.statusMessage.emit(f"Cannot run: {e}")
+            return
+        u0, p = self.initial_vector(), self.param_vector()
+
+        def job(cancel, report):
+            from orbitdesk.core.engine import simulate
+
+            return simulate(system, settings, u0, p, cancel=cancel, progress=report)
+
+        self.run_job("run", job, self._adopt_trajectory, on_progress=self.runProgress.emit,
+                     on_error=self._run_failed)
+
+    def _adopt_trajectory(self, trajectory) -> None:
+        self.trajectory = trajectory
+        if trajectory.status != "ok" and trajectory.message:
+            self.statusMessage.emit(trajectory.message[0].upper() + trajectory.message[1:])
+        self.trajectoryChanged.emit(trajectory)
+        if trajectory.time.size:
+            lo, hi = sorted((float(trajectory.time[0]), float(trajectory.time[-1])))
+            self.set_time_cursor(min(max(self.time_cursor, lo), hi))
+
+    def _run_failed(self, message: str) -> None:
+        self.statusMessage.emit(f"The run failed: {message}")
+        self.runFailed.emit(message)
+
+    def run_job(self, key: str, fn, on_done, on_progress=None, on_error=None):
+        """Run ``fn(cancel_token, reporter)`` on a worker thread; see the module docstring of worker.py.
+
+        A newer job with the same key cancels the older; results of a job started before the model or
+        the values changed are dropped. ``on_done(result)`` runs on the GUI thread. Returns the CancelToken.
+        """
+        generation = self.generation
+        if on_error is None:
+            on_error = lambda msg: self.statusMessage.emit(msg)  # noqa: E731
+        return self.jobs.submit(key, fn, on_done, on_progress, on_error,
+                                is_current=lambda: generation == self.generation)
+
+    def cancel_all(self) -> None:
+        self._run_timer.stop()
+        self.jobs.cancel_all()
+
+    def shutdown(self) -> None:
+        """Cancel everything and wait for the worker threads (on close)."""
+        self._run_timer.stop()
+        self._validate_timer.stop()
+        self.jobs.shutdown()
+
+    # ------------------------------------------------------------ documents
+    def add_save_hook(self, fn) -> None:
+        """``fn()`` runs before the session is turned into a Project (views write their settings)."""
+        self._save_hooks.append(fn)
+
+    def to_project(self) -> Project:
+        for hook in list(self._save_hooks):
+            hook()
+        proj = copy.deepcopy(self.project)
+        proj.model = self.text
+        proj.parameters = {n: ParameterSetting(v, *self.param_range(n)) for n, v in self.params.items()}
+        proj.initial = dict(self.initial)
+        proj.solver = copy.copy(self.solver)
+        return proj
+
+    def load_project(self, project: Project, path=None) -> None:
+        """Replace the whole document (no undo); the model is parsed at once and compiled in the background."""
+        self.cancel_all()
+        self._validate_timer.stop()
+        project = copy.deepcopy(project)
+        parsed = _parse(project.model)
+        self.project, self.path = project, (Path(path) if path is not None else None)
+        self.text = project.model
+        self._written_params = {n: float(i.value) for n, i in parsed.parameters.items()}
+        self._written_ranges = {n: (i.lo, i.hi) for n, i in parsed.parameters.items()}
+        self._written_initial = {s: float(parsed.initial.get(s, 0.0)) for s in parsed.states}
+        self.params = {n: float(s.value) for n, s in project.parameters.items()}
+        self.ranges = {n: (s.lo, s.hi) for n, s in project.parameters.items()
+                       if (s.lo, s.hi) != self._written_ranges.get(n, (None, None))}
+        self.initial = {k: float(v) for k, v in project.initial.items()}
+        self.solver = copy.copy(project.solver)
+        self.system, self._signature, self.trajectory = None, None, None
+        self.time_cursor = math.inf
+        self.generation += 1
+        self._text_gen += 1
+        self.undo_stack.clear()
+        self.undo_stack.setClean()
+        self._forced_dirty = False
+        self.textChanged.emit(self.text)
+        self.parsed = parsed
+        self.modelParsed.emit(parsed)
+        self.settingsChanged.emit()
+        self.valuesChanged.emit()
+        self.projectLoaded.emit()
+        self._update_dirty()
+        if parsed.ok:
+            self._compile(parsed)
+
+    def new(self) -> None:
+        self.load_project(Project(), None)
+
+    def open(self, path) -> None:
+        """Open a project or model text file; raises ProjectError and changes nothing if it cannot be read."""
+        proj, project_path = read_document(path)
+        self.load_project(proj, project_path)
+
+    def revert(self) -> None:
+        if self.path is None:
+            raise ProjectError("$", "this project has not been saved yet")
+        self.open(self.path)
+
+    def save(self, path=None) -> Path:
+        """Save to ``path`` (default: the current path); raises ProjectError on failure."""
+        target = Path(path) if path is not None else self.path
+        if target is None:
+            raise ProjectError("$", "no file name given")
+        proj = self.to_project()
+        if proj.name in ("", "Untitled"):
+            proj.name = target.stem
+        core_project.save(target, proj)
+        self.project.name = proj.name
+        self.project.views = copy.deepcopy(proj.views)
+        self.path = target
+        self._forced_dirty = False
+        self.undo_stack.setClean()
+        self._update_dirty()
+        return target

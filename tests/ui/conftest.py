@@ -1,0 +1,92 @@
+"""Fixtures for the Qt side: a live Session, a MainWindow, and per-user folders inside a temp dir."""
+
+import os
+import tempfile
+
+if os.environ.get("DISPLAY"):
+    os.environ.setdefault("QT_QPA_PLATFORM", "xcb")
+else:
+    os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
+# Per-user data (autosave, error log) and settings go to a private folder for the whole run.
+_USER_DIR = tempfile.mkdtemp(prefix="orbitdesk-ui-tests-")
+os.environ["ORBITDESK_DATA_DIR"] = os.path.join(_USER_DIR, "data")
+os.environ["ORBITDESK_NO_DIALOGS"] = "1"
+
+import pytest  # noqa: E402
+from PySide6.QtCore import QSettings, QStandardPaths  # noqa: E402
+from PySide6.QtWidgets import QMessageBox  # noqa: E402
+
+QStandardPaths.setTestModeEnabled(True)
+for _fmt in (QSettings.Format.NativeFormat, QSettings.Format.IniFormat):
+    QSettings.setPath(_fmt, QSettings.Scope.UserScope, os.path.join(_USER_DIR, "config"))
+
+ARTIFACTS = os.path.join(os.path.dirname(__file__), "..", "..", "test-artifacts")
+
+
+class MessageBoxes:
+    """Stands in for QMessageBox's static functions: records each call and gives a set answer."""
+
+    def __init__(self):
+        self.calls = []
+        self.answer = QMessageBox.StandardButton.Discard
+
+    def ask(self, kind):
+        def box(parent, title, text, *args, **kwargs):
+            self.calls.append((kind, title, text))
+            if kind in ("question", "warning") and self.answer is not None:
+                return self.answer
+            return QMessageBox.StandardButton.Ok
+        return box
+
+    def texts(self, kind=None):
+        return [t for k, _title, t in self.calls if kind is None or k == kind]
+
+
+@pytest.fixture(autouse=True)
+def message_boxes(monkeypatch):
+    """No test ever blocks on a modal message box; tests can read what was asked and set the answer."""
+    boxes = MessageBoxes()
+    for kind in ("question", "warning", "critical", "information"):
+        monkeypatch.setattr(QMessageBox, kind, staticmethod(boxes.ask(kind)))
+    return boxes
+
+
+@pytest.fixture
+def artifacts():
+    os.makedirs(ARTIFACTS, exist_ok=True)
+    return os.path.abspath(ARTIFACTS)
+
+
+@pytest.fixture
+def session(qtbot):
+    from orbitdesk.ui.session import Session
+
+    s = Session()
+    yield s
+    s.shutdown()
+    assert s.jobs.pool.activeThreadCount() == 0
+    s.deleteLater()
+
+
+@pytest.fixture
+def window(qtbot):
+    from orbitdesk.ui.main_window import MainWindow
+
+    w = MainWindow()
+    qtbot.addWidget(w)
+    w.resize(1440, 900)
+    w.show()
+    qtbot.waitExposed(w)
+    yield w
+    w.session.shutdown()
+    w.session.undo_stack.setClean()
+    w.session._forced_dirty = False
+
+
+def wait_for_trajectory(qtbot, session, action=None, timeout=20000, check=None):
+    """Run ``action`` and wait for the trajectory it causes (optionally one that satisfies ``check``)."""
+    with qtbot.waitSignal(session.trajectoryChanged, timeout=timeout,
+                          check_params_cb=(lambda t: check(t)) if check else None) as blocker:
+        if action is not None:
+            action()
+    return blocker.args[0]
