@@ -13,7 +13,7 @@ from dataclasses import dataclass, field
 from typing import Callable
 
 import numpy as np
-from scipy.integrate import DOP853, RK45, Radau
+from scipy.integrate import DOP853, RK45, Radau, ode
 from scipy.optimize import brentq
 
 from .progress import CancelToken, Cancelled, Reporter
@@ -114,6 +114,8 @@ def simulate(system: CompiledSystem, settings: RunSettings | None = None, u0=Non
         return _iterate(system, settings, u0, p, report)
     if settings.method not in METHODS:
         raise ValueError(f"unknown method '{settings.method}'; choose one of {', '.join(METHODS)}")
+    if settings.method == "dop853" and not events and system.smooth:
+        return _integrate_compiled(system, settings, u0, p, report)
     return _integrate(system, settings, u0, p, list(events), report)
 
 
@@ -287,3 +289,100 @@ def _integrate(system, settings, u0, p, events, report) -> Trajectory:
                       [np.array(v) for v in ev_t],
                       [np.array(v).reshape(-1, n).T if v else np.empty((n, 0)) for v in ev_y],
                       steps_taken=steps)
+
+
+_DOP_CODES = {-1: "the input is not consistent", -2: "too many steps were needed",
+              -3: "the step size became too small", -4: "the problem is probably stiff"}
+
+
+def _integrate_compiled(system, settings, u0, p, report) -> Trajectory:
+    """DOP853 in compiled code (scipy's ``ode``) calling generated code with the parameters folded in.
+
+    With ``samples`` > 1 the integrator is stopped exactly at each output time (no interpolation);
+    with ``samples`` = 0 every accepted step is returned.
+    """
+    t0, t1 = float(settings.t_start), float(settings.t_end)
+    if not t1 != t0 or not (math.isfinite(t0) and math.isfinite(t1)):
+        raise ValueError("the end time must differ from the start time")
+    n = system.n_states
+    fixed = system.rhs_for_params(p)
+    failure: list = []
+    nan_row = [math.nan] * n
+
+    def rhs(t, y):
+        try:
+            return fixed(t, y)
+        except (ValueError, ZeroDivisionError, TypeError, OverflowError):
+            if not failure:
+                failure.append((t, y.copy()))
+            return nan_row
+
+    step_t: list[float] = [t0]
+    step_y: list[np.ndarray] = [np.asarray(u0, float).copy()]
+    stop: list[_Stop] = []
+    bound = settings.bound
+    span = t1 - t0
+    every_step = settings.samples <= 1
+
+    def solout(t, y):
+        if failure:
+            return -1
+        if every_step:
+            step_t.append(t)
+            step_y.append(y.copy())
+        if not (abs(y) <= bound).all():
+            try:
+                _check_state(system, t, y, bound)
+            except _Stop as reason:
+                stop.append(reason)
+                return -1
+        solout.count += 1
+        if solout.count % 256 == 0:
+            try:
+                report((t - t0) / span)
+            except Cancelled:
+                stop.append(_Stop(CANCELLED, "cancelled"))
+                return -1
+        return 0
+
+    solout.count = 0
+    solver = ode(rhs)
+    kwargs = dict(rtol=settings.rtol, atol=settings.atol, nsteps=2**31 - 1)
+    if settings.max_step:
+        kwargs["max_step"] = settings.max_step
+    solver.set_integrator("dop853", **kwargs)
+    solver.set_solout(solout)
+    solver.set_initial_value(np.asarray(u0, float), t0)
+    status, message = OK, ""
+    targets = [t1] if every_step else np.linspace(t0, t1, settings.samples)[1:]
+    for target in targets:
+        y = solver.integrate(target)
+        if failure or stop or solver.get_return_code() < 0:
+            break
+        if not every_step:
+            step_t.append(float(target))
+            step_y.append(np.array(y, dtype=float))
+    code = solver.get_return_code()
+    if failure:
+        t_bad, y_bad = failure[0]
+        status = UNDEFINED
+        message = system.explain_undefined(t_bad, y_bad, p) or (
+            f"an expression is undefined at {system.time_name} = {t_bad:.6g}")
+    elif stop:
+        status, message = stop[0].status, stop[0].message
+    elif code < 0:
+        status = STEP_FAILED
+        message = (f"the integration stopped at {system.time_name} = {solver.t:.6g}: "
+                   f"{_DOP_CODES.get(code, f'code {code}')}; try the stiff method")
+    time = np.array(step_t, dtype=float)
+    states = np.array(step_y, dtype=float).reshape(-1, n).T
+    finite = np.all(np.isfinite(states), axis=0) & np.all(np.abs(states) <= bound, axis=0)
+    time, states = time[finite], states[:, finite]
+    if settings.transient > 0:
+        keep = (time - (t0 + np.sign(span) * settings.transient)) * np.sign(span) >= 0
+        time, states = time[keep], states[:, keep]
+    return Trajectory("flow", time, states, list(system.states), system.param_dict(p), status, message,
+                      system.derived_values(time, states, p) if time.size else {},
+                      steps_taken=solout.count)
+
+

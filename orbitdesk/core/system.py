@@ -136,6 +136,28 @@ class CompiledSystem:
     def _derived_vector(self):
         return self._compile(self.derived_exprs, "numpy") if self.derived_exprs else None
 
+    @cached_property
+    def _f_packed(self):
+        t, u, p, _ = self._plain
+        return sp.lambdify([t, u, p], self.plain(self.f), modules="math", cse=len(self.f) > 1)
+
+    def packed_rhs(self):
+        """The fastest scalar evaluator, ``f(t, u, p) -> list`` with u and p as sequences."""
+        return self._f_packed
+
+    def rhs_for_params(self, p=None):
+        """``f(t, u) -> list`` with the parameter values folded into the generated code (cached)."""
+        key = tuple(float(v) for v in (self.param_values if p is None else p))
+        cache = self.__dict__.setdefault("_fixed_rhs_cache", {})
+        if key not in cache:
+            t, u, plain_p, _ = self._plain
+            values = {sym: sp.Float(v) for sym, v in zip(plain_p, key)}
+            exprs = [e.xreplace(values) for e in self.plain(self.f)]
+            if len(cache) >= 16:
+                cache.pop(next(iter(cache)))
+            cache[key] = sp.lambdify([t, u], exprs, modules="math", cse=len(exprs) > 1)
+        return cache[key]
+
     def rhs_function(self, p=None):
         """A fast ``f(t, u) -> list`` for one trajectory with parameters fixed at ``p``."""
         fn = self._f_scalar
