@@ -1,0 +1,421 @@
+"""Walkthroughs: recorded steps of a study that a reader replays one by one.
+
+A step is a ``WalkthroughStep(title, note, snapshot)``; the snapshot is plain JSON data::
+
+    {"parameters": {name: value}, "initial": {state: value}, "solver": {subset of SolverSettings},
+     "views": {view_id: {settings}}, "open_views": [view_id, ...], "camera": {...},
+     "selected_equilibrium": int | None, "section": {"plane": "x=0", "direction": "up"} | {"strobe": T},
+     "time_cursor": float}
+
+Every key is optional. ``apply_step`` applies what still fits the model and says in plain words what
+it could not; ``render_note`` turns a note's light markup into safe HTML.
+"""
+
+from __future__ import annotations
+
+import copy
+import html
+import math
+import numbers
+import re
+
+from .project import METHODS, WalkthroughStep
+
+SNAPSHOT_KEYS = ("parameters", "initial", "solver", "views", "open_views", "camera",
+                 "selected_equilibrium", "section", "time_cursor")
+VIEW_IDS = ("timeseries", "phase_plane", "phase_space_3d", "equilibria", "sections", "sweep", "lyapunov")
+_SOLVER_NUMBERS = {"rtol": "positive", "atol": "positive", "max_step": "positive_or_null", "dt": "positive",
+                   "t_start": "number", "t_end": "number", "transient": "non_negative"}
+_SOLVER_INTEGERS = {"samples": 2, "steps": 1}
+_AXIS_KEYS = ("x", "y", "z")
+_DIRECTIONS = ("up", "down", "both")
+_PLANE = re.compile(r"^\s*([A-Za-z_][A-Za-z0-9_]*'*)\s*=\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*$")
+
+
+# ---------------------------------------------------------------- validation
+
+def _is_number(v) -> bool:
+    return isinstance(v, numbers.Real) and not isinstance(v, bool) and math.isfinite(float(v))
+
+
+def _is_json(v, depth=0) -> bool:
+    if depth > 32:
+        return False
+    if v is None or isinstance(v, (bool, str)):
+        return True
+    if isinstance(v, numbers.Real):
+        return math.isfinite(float(v))
+    if isinstance(v, (list, tuple)):
+        return all(_is_json(x, depth + 1) for x in v)
+    if isinstance(v, dict):
+        return all(isinstance(k, str) and _is_json(x, depth + 1) for k, x in v.items())
+    return False
+
+
+def _check_numbers(v, what: str, problems: list[str]) -> dict:
+    if not isinstance(v, dict):
+        problems.append(f"{what} should be a table of names and numbers")
+        return {}
+    good = {}
+    for name, value in v.items():
+        if not isinstance(name, str):
+            problems.append(f"{what} has a name that is not text ({name!r})")
+        elif not _is_number(value):
+            problems.append(f"{what}: the value of '{name}' should be a finite number, not {value!r}")
+        else:
+            good[name] = float(value)
+    return good
+
+
+def _check_solver(v, problems: list[str]) -> dict:
+    if not isinstance(v, dict):
+        problems.append("the solver settings should be a table")
+        return {}
+    good = {}
+    for key, value in v.items():
+        if key == "method":
+            if value in METHODS:
+                good[key] = value
+            else:
+                problems.append(f"the solver method {value!r} is not one of {', '.join(METHODS)}")
+        elif key in _SOLVER_INTEGERS:
+            low = _SOLVER_INTEGERS[key]
+            if isinstance(value, float) and value.is_integer():
+                value = int(value)
+            if isinstance(value, bool) or not isinstance(value, numbers.Integral) or value < low:
+                problems.append(f"the solver setting {key} should be a whole number of at least {low}, not {value!r}")
+            else:
+                good[key] = int(value)
+        elif key in _SOLVER_NUMBERS:
+            rule = _SOLVER_NUMBERS[key]
+            if value is None and rule == "positive_or_null":
+                good[key] = None
+            elif not _is_number(value):
+                problems.append(f"the solver setting {key} should be a number, not {value!r}")
+            elif rule.startswith("positive") and value <= 0:
+                problems.append(f"the solver setting {key} should be positive, not {value!r}")
+            elif rule == "non_negative" and value < 0:
+                problems.append(f"the solver setting {key} should not be negative, not {value!r}")
+            else:
+                good[key] = float(value)
+        else:
+            problems.append(f"the solver has no setting called '{key}'")
+    if "t_start" in good and "t_end" in good and good["t_start"] == good["t_end"]:
+        problems.append("the solver's end time equals its start time")
+        del good["t_end"]
+    return good
+
+
+def _check_section(v, problems: list[str]) -> dict | None:
+    if not isinstance(v, dict):
+        problems.append("the section should be a table such as {\"plane\": \"x=0\", \"direction\": \"up\"} "
+                        "or {\"strobe\": T}")
+        return None
+    if "strobe" in v:
+        if not _is_number(v["strobe"]) or v["strobe"] <= 0:
+            problems.append(f"the stroboscopic period should be a positive number, not {v['strobe']!r}")
+            return None
+        extra = set(v) - {"strobe", "phase"}
+        if extra:
+            problems.append(f"a stroboscopic section has no setting {', '.join(sorted(extra))}")
+        out = {"strobe": float(v["strobe"])}
+        if "phase" in v and _is_number(v["phase"]):
+            out["phase"] = float(v["phase"])
+        return out
+    plane = v.get("plane")
+    if not isinstance(plane, str) or not _PLANE.match(plane):
+        problems.append(f"the section plane should read like \"x=0\" (a state, '=' and a number), not {plane!r}")
+        return None
+    direction = v.get("direction", "up")
+    if direction not in _DIRECTIONS:
+        problems.append(f"the section direction should be up, down or both, not {direction!r}")
+        direction = "up"
+    return {"plane": plane.replace(" ", ""), "direction": direction}
+
+
+def _clean(snapshot, problems: list[str]) -> dict:
+    """The parts of ``snapshot`` whose types are right; everything wrong is described in ``problems``."""
+    if not isinstance(snapshot, dict):
+        problems.append("the step's snapshot is not a table of settings")
+        return {}
+    out: dict = {}
+    for key, value in snapshot.items():
+        if key not in SNAPSHOT_KEYS:
+            problems.append(f"the step has a setting '{key}' that OrbitDesk does not know")
+        elif key == "parameters":
+            out[key] = _check_numbers(value, "the step's parameter values", problems)
+        elif key == "initial":
+            out[key] = _check_numbers(value, "the step's initial values", problems)
+        elif key == "solver":
+            out[key] = _check_solver(value, problems)
+        elif key == "views":
+            if not isinstance(value, dict):
+                problems.append("the step's views should be a table of view names and their settings")
+                continue
+            views = {}
+            for view_id, settings in value.items():
+                if not isinstance(settings, dict) or not _is_json(settings):
+                    problems.append(f"the settings of the view '{view_id}' should be a table of plain values")
+                else:
+                    views[view_id] = copy.deepcopy(settings)
+            out[key] = views
+        elif key == "open_views":
+            if not isinstance(value, (list, tuple)) or not all(isinstance(v, str) for v in value):
+                problems.append("the step's open views should be a list of view names")
+            else:
+                out[key] = list(dict.fromkeys(value))
+        elif key == "camera":
+            if not isinstance(value, dict) or not _is_json(value):
+                problems.append("the step's camera should be a table of plain values")
+            else:
+                out[key] = copy.deepcopy(value)
+        elif key == "selected_equilibrium":
+            if isinstance(value, float) and value.is_integer():
+                value = int(value)
+            if value is None or (isinstance(value, numbers.Integral) and not isinstance(value, bool) and value >= 0):
+                out[key] = None if value is None else int(value)
+            else:
+                problems.append(f"the selected equilibrium should be a number from 0 up, or empty, not {value!r}")
+        elif key == "section":
+            section = _check_section(value, problems)
+            if section is not None:
+                out[key] = section
+        elif key == "time_cursor":
+            if _is_number(value):
+                out[key] = float(value)
+            else:
+                problems.append(f"the time cursor should be a number, not {value!r}")
+    return out
+
+
+def validate_snapshot(snapshot) -> list[str]:
+    """Plain-word descriptions of everything wrong with the types in ``snapshot`` (empty when it is fine)."""
+    problems: list[str] = []
+    _clean(snapshot, problems)
+    return problems
+
+
+# ---------------------------------------------------------------- record / apply
+
+def record_step(title: str, note: str, state: dict) -> WalkthroughStep:
+    """A step holding the known settings of ``state`` (deep-copied); raises ValueError if any is malformed."""
+    if not isinstance(title, str) or not title.strip():
+        raise ValueError("a step needs a title")
+    if not isinstance(note, str):
+        raise ValueError("a step's note should be text")
+    if not isinstance(state, dict):
+        raise ValueError("the state to record should be a table of settings")
+    problems: list[str] = []
+    known = {k: v for k, v in state.items() if k in SNAPSHOT_KEYS}
+    snapshot = _clean(known, problems)
+    if problems:
+        raise ValueError("cannot record this step: " + "; ".join(problems))
+    return WalkthroughStep(title.strip(), note, snapshot)
+
+
+def _names(info, attr: str) -> list[str]:
+    if isinstance(info, dict):
+        return list(info.get(attr, ()))
+    value = getattr(info, attr, ())
+    return list(value.keys() if isinstance(value, dict) else value)
+
+
+def _model_names(info):
+    states = _names(info, "states")
+    params = _names(info, "parameters")
+    derived = _names(info, "derived_names") or _names(info, "derived")
+    time = "n" if (info.get("kind") if isinstance(info, dict) else getattr(info, "kind", None)) == "map" else "t"
+    return states, params, derived, time
+
+
+def _view_problems(view_id: str, settings: dict, series: set[str], states: list[str], params: list[str]):
+    """Axis or parameter names in a view's settings that the model no longer has."""
+    problems, keep = [], dict(settings)
+    for key in _AXIS_KEYS:
+        name = settings.get(key)
+        if isinstance(name, str) and name not in series:
+            problems.append(f"the {view_id.replace('_', ' ')} view's {key} axis shows '{name}', which the model "
+                            f"no longer has; that axis is left as it was")
+            del keep[key]
+    axes = settings.get("axes")
+    if isinstance(axes, list):
+        missing = [a for a in axes if not isinstance(a, str) or a not in series]
+        if missing:
+            problems.append(f"the {view_id.replace('_', ' ')} view's axes name {', '.join(map(str, missing))}, "
+                            f"which the model no longer has; the axes are left as they were")
+            del keep["axes"]
+    param = settings.get("param")
+    if isinstance(param, str) and param not in params:
+        problems.append(f"the {view_id.replace('_', ' ')} view sweeps '{param}', which is no longer a parameter; "
+                        f"that view's settings are left as they were")
+        return problems, None
+    plane = settings.get("plane")
+    if isinstance(plane, str):
+        m = _PLANE.match(plane)
+        if not m or m.group(1) not in states:
+            problems.append(f"the {view_id.replace('_', ' ')} view cuts at '{plane}', which does not name a state; "
+                            f"that setting is left as it was")
+            del keep["plane"]
+    return problems, keep
+
+
+def apply_step(step: WalkthroughStep, model_info, current_state: dict) -> tuple[dict, list[str]]:
+    """Apply ``step`` to ``current_state`` (not modified) for a model with the given names.
+
+    ``model_info`` is a CompiledSystem, a ParsedModel, or a dict with "states", "parameters" and
+    optionally "derived" and "kind". Returns the new state and a list of plain-word problems: names
+    the model no longer has, wrong types. Everything that fits is applied.
+    """
+    problems: list[str] = []
+    snapshot = _clean(getattr(step, "snapshot", None), problems)
+    states, params, derived, time = _model_names(model_info)
+    series = set(states) | set(derived) | {time}
+    state = copy.deepcopy(current_state) if isinstance(current_state, dict) else {}
+
+    values = snapshot.get("parameters", {})
+    gone = [n for n in values if n not in params]
+    if gone:
+        problems.append(_gone(gone, "parameter", "parameters", "set"))
+    if values:
+        state.setdefault("parameters", {})
+        state["parameters"] = dict(state["parameters"]) if isinstance(state["parameters"], dict) else {}
+        state["parameters"].update({n: v for n, v in values.items() if n in params})
+
+    values = snapshot.get("initial", {})
+    gone = [n for n in values if n not in states]
+    if gone:
+        problems.append(_gone(gone, "state", "states", "start"))
+    if values:
+        old = state.get("initial")
+        state["initial"] = dict(old) if isinstance(old, dict) else {}
+        state["initial"].update({n: v for n, v in values.items() if n in states})
+
+    if snapshot.get("solver"):
+        old = state.get("solver")
+        state["solver"] = {**(old if isinstance(old, dict) else {}), **snapshot["solver"]}
+
+    if "views" in snapshot:
+        old = state.get("views")
+        views = {k: dict(v) for k, v in old.items()} if isinstance(old, dict) else {}
+        for view_id, settings in snapshot["views"].items():
+            found, keep = _view_problems(view_id, settings, series, states, params)
+            problems.extend(found)
+            if keep is not None:
+                views[view_id] = {**views.get(view_id, {}), **keep}
+        state["views"] = views
+
+    for key in ("open_views", "camera", "selected_equilibrium", "time_cursor"):
+        if key in snapshot:
+            state[key] = copy.deepcopy(snapshot[key])
+
+    if "section" in snapshot:
+        section = snapshot["section"]
+        m = _PLANE.match(section.get("plane", "")) if "plane" in section else None
+        if m and m.group(1) not in states:
+            problems.append(f"the section cuts at '{section['plane']}', but '{m.group(1)}' is not a state of the "
+                            f"model; the section is left as it was")
+        else:
+            state["section"] = dict(section)
+    return state, problems
+
+
+def _gone(names: list[str], one: str, many: str, verb: str) -> str:
+    quoted = ", ".join(f"'{n}'" for n in names)
+    if len(names) == 1:
+        return f"this step {verb}s the {one} {quoted}, which the model no longer has; the rest of the step is applied"
+    return f"this step {verb}s the {many} {quoted}, which the model no longer has; the rest of the step is applied"
+
+
+# ---------------------------------------------------------------- editing the list
+
+def move_step(steps: list, i: int, j: int) -> list:
+    """A new list with the step at ``i`` moved to position ``j``; raises IndexError for bad positions."""
+    n = len(steps)
+    if not (0 <= i < n and 0 <= j < n):
+        raise IndexError(f"step positions run from 0 to {n - 1}; got {i} and {j}")
+    out = list(steps)
+    out.insert(j, out.pop(i))
+    return out
+
+
+def delete_step(steps: list, i: int) -> list:
+    """A new list without the step at ``i``; raises IndexError for a bad position."""
+    if not 0 <= i < len(steps):
+        raise IndexError(f"there is no step {i} (the walkthrough has {len(steps)})")
+    return steps[:i] + steps[i + 1:]
+
+
+# ---------------------------------------------------------------- notes
+
+_CODE = re.compile(r"`([^`\n]+)`")
+_STRONG = re.compile(r"\*\*(?=\S)(.+?)(?<=\S)\*\*")
+_EMPH = re.compile(r"(?<![\w*])\*(?=[^\s*])(.+?)(?<=[^\s*])\*(?![\w*])")
+_BULLET = re.compile(r"^\s{0,3}[-*]\s+(.*)$")
+_NUMBERED = re.compile(r"^\s{0,3}(\d{1,9})[.)]\s+(.*)$")
+
+
+def _inline(text: str) -> str:
+    parts, last = [], 0
+    for m in _CODE.finditer(text):
+        parts.append(_styled(text[last:m.start()]))
+        parts.append(f"<code>{html.escape(m.group(1), quote=False)}</code>")
+        last = m.end()
+    parts.append(_styled(text[last:]))
+    return "".join(parts)
+
+
+def _styled(text: str) -> str:
+    text = html.escape(text, quote=False)
+    text = _STRONG.sub(r"<strong>\1</strong>", text)
+    return _EMPH.sub(r"<em>\1</em>", text)
+
+
+def render_note(text: str) -> str:
+    """Light markup -> HTML: paragraphs, ``- `` bullets, ``1. `` numbered lists, *emphasis*, **strong**,
+    `code`. Everything else is escaped, so no HTML in a note ever reaches the page as markup."""
+    blocks: list[str] = []
+    paragraph: list[str] = []
+    items: list[str] = []
+    list_kind: str | None = None
+    start = 1
+
+    def flush_paragraph():
+        if paragraph:
+            blocks.append("<p>" + _inline(" ".join(s.strip() for s in paragraph)) + "</p>")
+            paragraph.clear()
+
+    def flush_list():
+        nonlocal list_kind
+        if items:
+            body = "".join(f"<li>{_inline(item)}</li>" for item in items)
+            first = f' start="{start}"' if list_kind == "ol" and start != 1 else ""
+            blocks.append(f"<{list_kind}{first}>{body}</{list_kind}>")
+            items.clear()
+        list_kind = None
+
+    for line in (text or "").replace("\r\n", "\n").replace("\r", "\n").split("\n"):
+        if not line.strip():
+            flush_paragraph()
+            flush_list()
+            continue
+        bullet, numbered = _BULLET.match(line), _NUMBERED.match(line)
+        if bullet or numbered:
+            kind = "ul" if bullet else "ol"
+            flush_paragraph()
+            if list_kind != kind:
+                flush_list()
+                list_kind = kind
+                start = int(numbered.group(1)) if numbered else 1
+            items.append((bullet.group(1) if bullet else numbered.group(2)).strip())
+        elif list_kind and line[:1] in (" ", "\t"):
+            items[-1] += " " + line.strip()
+        else:
+            flush_list()
+            paragraph.append(line)
+    flush_paragraph()
+    flush_list()
+    return "\n".join(blocks)
+
+
+__all__ = ["SNAPSHOT_KEYS", "VIEW_IDS", "record_step", "apply_step", "validate_snapshot", "move_step",
+           "delete_step", "render_note"]
