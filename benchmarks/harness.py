@@ -1,0 +1,71 @@
+"""Shared timing and table printing for the benchmark modules."""
+
+from __future__ import annotations
+
+import statistics
+import time
+from dataclasses import dataclass
+
+
+@dataclass
+class Row:
+    case: str
+    ours: float | None  # seconds (median)
+    baseline: float | None  # seconds (median), measured in the same run
+    check: str  # the accuracy check that shows both computed the same thing
+    baseline_name: str = ""
+    goal: str = ""
+
+    @property
+    def ratio(self) -> float | None:
+        if self.ours and self.baseline:
+            return self.baseline / self.ours
+        return None
+
+
+def median_time(fn, repeats: int = 5, warmup: int = 1) -> float:
+    """Median wall time of ``fn()`` over ``repeats`` runs after ``warmup`` runs."""
+    for _ in range(warmup):
+        fn()
+    times = []
+    for _ in range(repeats):
+        start = time.perf_counter()
+        fn()
+        times.append(time.perf_counter() - start)
+    return statistics.median(times)
+
+
+def interleaved(ours, baseline, repeats: int = 5) -> tuple[float, float]:
+    """Medians of two callables timed alternately, so machine noise hits both alike."""
+    ours(), baseline()
+    a, b = [], []
+    for _ in range(repeats):
+        start = time.perf_counter()
+        ours()
+        a.append(time.perf_counter() - start)
+        start = time.perf_counter()
+        baseline()
+        b.append(time.perf_counter() - start)
+    return statistics.median(a), statistics.median(b)
+
+
+def fmt_seconds(value: float | None) -> str:
+    if value is None:
+        return "—"
+    if value < 1e-3:
+        return f"{value * 1e6:.1f} µs"
+    if value < 1:
+        return f"{value * 1e3:.1f} ms"
+    return f"{value:.2f} s"
+
+
+def print_table(rows: list[Row]) -> str:
+    header = "| case | ours | baseline | ratio | goal | check |\n|---|---|---|---|---|---|"
+    lines = [header]
+    for row in rows:
+        ratio = f"{row.ratio:.1f}x" if row.ratio else "—"
+        base = fmt_seconds(row.baseline) + (f" ({row.baseline_name})" if row.baseline_name else "")
+        lines.append(f"| {row.case} | {fmt_seconds(row.ours)} | {base} | {ratio} | {row.goal} | {row.check} |")
+    text = "\n".join(lines)
+    print(text)
+    return text
