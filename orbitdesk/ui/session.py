@@ -26,7 +26,6 @@ from .worker import JobRunner
 VALIDATE_DELAY_MS = 120
 TEXT_MERGE_SECONDS = 2.0     # typing pauses longer than this start a new undo step
 VALUE_MERGE_SECONDS = 1.5    # same for slider moves of one parameter
-MAX_TEXT_FILE_BYTES = 1024 * 1024
 PROJECT_SUFFIXES = (".orbitdesk", ".json")
 SOLVER_FIELDS = tuple(f.name for f in dataclasses.fields(SolverSettings))
 
@@ -55,26 +54,21 @@ def read_document(path) -> tuple[Project, Path | None]:
 
     Raises ProjectError with a readable message for anything that cannot be opened.
     """
+    from orbitdesk.core.model_file import read_model_file
+
     path = Path(path)
     if path.suffix.lower() in PROJECT_SUFFIXES:
         return core_project.load(path), path
     try:
-        with open(path, "rb") as f:
-            data = f.read(MAX_TEXT_FILE_BYTES + 1)
+        text = read_model_file(path)
     except FileNotFoundError:
         raise ProjectError("$", f"cannot read {str(path)!r}: no such file") from None
     except OSError as e:
         raise ProjectError("$", f"cannot read {str(path)!r}: {e.strerror or e}") from None
-    if len(data) > MAX_TEXT_FILE_BYTES:
-        raise ProjectError("$", f"file too large for a model (over {MAX_TEXT_FILE_BYTES} bytes)")
-    if data.lstrip().startswith(b"{"):
+    except ValueError as e:
+        raise ProjectError("$", str(e)) from None
+    if text.lstrip().startswith("{"):
         return core_project.load(path), path
-    if b"\x00" in data:
-        raise ProjectError("$", "this is not a text file (it contains NUL bytes)")
-    try:
-        text = data.decode("utf-8").removeprefix("\ufeff")
-    except UnicodeDecodeError as e:
-        raise ProjectError("$", f"not a UTF-8 text file (bad byte at offset {e.start})") from None
     return Project(name=path.stem or "Untitled", model=text.replace("\r\n", "\n")), None
 
 

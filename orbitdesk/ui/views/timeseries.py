@@ -1,0 +1,305 @@
+"""Time series: chosen states and derived quantities against t (or n), or their power spectra."""
+
+from __future__ import annotations
+
+import numpy as np
+import pyqtgraph as pg
+from PySide6.QtCore import QEvent, QSize, Qt
+from PySide6.QtGui import QColor, QIcon, QPainter, QPixmap
+from PySide6.QtWidgets import (QCheckBox, QHBoxLayout, QLabel, QListWidget, QListWidgetItem, QToolButton,
+                               QVBoxLayout, QWidget)
+
+from . import muted_colour, series_colour, style_plot
+
+
+def swatch(colour: QColor, size: int = 12) -> QIcon:
+    pix = QPixmap(size, size)
+    pix.fill(Qt.GlobalColor.transparent)
+    p = QPainter(pix)
+    p.setRenderHint(QPainter.RenderHint.Antialiasing)
+    p.setPen(Qt.PenStyle.NoPen)
+    p.setBrush(colour)
+    p.drawRoundedRect(1, 1, size - 2, size - 2, 3, 3)
+    p.end()
+    return QIcon(pix)
+
+
+def power_spectrum(time: np.ndarray, values: np.ndarray):
+    """(frequency, power) of a uniformly sampled series, Hann-windowed, mean removed; None if not uniform."""
+    if time.size < 8:
+        return None
+    dt = np.diff(time)
+    step = float(np.median(dt))
+    if step <= 0 or np.max(np.abs(dt - step)) > 1e-6 * step + 1e-12:
+        return None
+    y = np.asarray(values, dtype=float)
+    ok = np.isfinite(y)
+    if not ok.all():
+        y = y[: int(np.argmin(ok))]  # the finite stretch before a blow-up
+    if y.size < 8:
+        return None
+    w = np.hanning(y.size)
+    spec = np.fft.rfft((y - y.mean()) * w)
+    power = (np.abs(spec) ** 2) / np.sum(w**2)
+    freq = np.fft.rfftfreq(y.size, step)
+    return freq[1:], power[1:]
+
+
+class TimeSeriesView(QWidget):
+    view_id = "timeseries"
+    title = "Time series"
+
+    def __init__(self, session, parent=None):
+        super().__init__(parent)
+        self.session = session
+        self.trajectory = None
+        self._names: list[str] = []
+        self._wanted: list[str] | None = None  # selection from view settings, applied when names are known
+        self._curves: dict[str, pg.PlotDataItem] = {}
+        self._moving_cursor = False
+
+        self.series_list = QListWidget()
+        self.series_list.setToolTip("Tick the quantities to plot")
+        self.series_list.setFixedWidth(112)
+        self.series_list.setIconSize(QSize(12, 12))
+        self.series_list.itemChanged.connect(self._on_item_changed)
+
+        self.log_y = QCheckBox("Log scale")
+        self.log_y.setToolTip("Logarithmic vertical axis (values at or below zero are left out)")
+        self.spectrum = QCheckBox("Spectrum")
+        self.spectrum.setToolTip("Show the power spectrum of each series instead of the series itself")
+        self.fit = QToolButton(text="Fit")
+        self.fit.setToolTip("Zoom to show all the data")
+        self.fit.clicked.connect(self.fit_view)
+        self.log_y.toggled.connect(self._on_mode)
+        self.spectrum.toggled.connect(self._on_mode)
+        self.note = QLabel()
+        self.note.setStyleSheet("color: palette(placeholder-text);")
+
+        self.plot_widget = pg.PlotWidget()
+        self.plot_widget.setToolTip("")
+        self.plot = self.plot_widget.getPlotItem()
+        self.plot.setClipToView(True)
+        self.plot.setDownsampling(auto=True, mode="peak")
+        self.cursor = pg.InfiniteLine(angle=90, movable=True)
+        self.cursor.setToolTip("Time cursor: drag to move it")
+        self.cursor.sigPositionChanged.connect(self._on_cursor_dragged)
+        self.plot.addItem(self.cursor, ignoreBounds=True)
+
+        options = QHBoxLayout()
+        options.setContentsMargins(0, 0, 0, 0)
+        options.addWidget(self.log_y)
+        options.addWidget(self.spectrum)
+        options.addStretch(1)
+        options.addWidget(self.note)
+        options.addWidget(self.fit)
+        right = QVBoxLayout()
+        right.setContentsMargins(0, 0, 0, 0)
+        right.setSpacing(4)
+        right.addLayout(options)
+        right.addWidget(self.plot_widget, 1)
+        layout = QHBoxLayout(self)
+        layout.setContentsMargins(6, 6, 6, 6)
+        layout.setSpacing(6)
+        layout.addWidget(self.series_list)
+        layout.addLayout(right, 1)
+
+        self._restyle()
+        session.systemChanged.connect(self._on_system)
+        session.trajectoryChanged.connect(self._on_trajectory)
+        session.timeCursorChanged.connect(self._on_time_cursor)
+        session.projectLoaded.connect(self._on_project_loaded)
+        self._on_project_loaded()
+        if session.system is not None:
+            self._on_system(session.system)
+        if session.trajectory is not None:
+            self._on_trajectory(session.trajectory)
+
+    # ------------------------------------------------------------ view protocol
+    def view_settings(self) -> dict:
+        return {"series": self.checked(), "log_y": self.log_y.isChecked(), "spectrum": self.spectrum.isChecked()}
+
+    def apply_view_settings(self, d: dict) -> None:
+        if not isinstance(d, dict):
+            return
+        if isinstance(d.get("series"), list):
+            self._wanted = [s for s in d["series"] if isinstance(s, str)]
+            if self._names:
+                self._set_checked(self._wanted)
+        self.log_y.setChecked(bool(d.get("log_y", False)))
+        self.spectrum.setChecked(bool(d.get("spectrum", False)))
+
+    def export_data(self):
+        """Full-resolution data of the ticked series (or their spectra in spectrum mode)."""
+        traj, names = self.trajectory, self.checked()
+        if traj is None or not names:
+            return None
+        if self.spectrum.isChecked():
+            cols, freq = [], None
+            for name in names:
+                spec = power_spectrum(traj.time, traj.series(name))
+                if spec is not None:
+                    n = spec[0].size if freq is None else min(freq.size, spec[0].size)
+                    freq = spec[0][:n]
+                    cols = [c[:n] for c in cols] + [spec[1][:n]]
+            if freq is None:
+                return None
+            return ["frequency"] + [f"power({n})" for n in names], np.column_stack([freq] + cols)
+        time_name = "n" if traj.kind == "map" else "t"
+        return [time_name] + names, np.column_stack([traj.time] + [traj.series(n) for n in names])
+
+    # ------------------------------------------------------------ selection
+    def checked(self) -> list[str]:
+        out = []
+        for i in range(self.series_list.count()):
+            item = self.series_list.item(i)
+            if item.checkState() == Qt.CheckState.Checked:
+                out.append(item.text())
+        return out
+
+    def set_series(self, names: list[str]) -> None:
+        """Tick exactly these series."""
+        self._set_checked(names)
+
+    def _set_checked(self, names) -> None:
+        self.series_list.blockSignals(True)
+        for i in range(self.series_list.count()):
+            item = self.series_list.item(i)
+            item.setCheckState(Qt.CheckState.Checked if item.text() in names else Qt.CheckState.Unchecked)
+        self.series_list.blockSignals(False)
+        self._redraw()
+
+    def _on_item_changed(self, _item) -> None:
+        self._wanted = None
+        self._redraw()
+
+    def _on_system(self, system) -> None:
+        names = list(system.states) + list(system.derived_names)
+        if names == self._names:
+            return
+        keep = self._wanted if self._wanted is not None else self.checked()
+        keep = [n for n in keep if n in names]
+        if not keep:
+            keep = list(system.states[:3])
+        self._names = names
+        self.series_list.blockSignals(True)
+        self.series_list.clear()
+        for i, name in enumerate(names):
+            item = QListWidgetItem(swatch(series_colour(i, self)), name)
+            item.setFlags(item.flags() | Qt.ItemFlag.ItemIsUserCheckable)
+            item.setCheckState(Qt.CheckState.Checked if name in keep else Qt.CheckState.Unchecked)
+            kind = "state" if name in system.states else "derived quantity"
+            item.setToolTip(f"{name} ({kind})")
+            self.series_list.addItem(item)
+        self.series_list.blockSignals(False)
+        self._redraw(refit=True)
+
+    def _on_project_loaded(self) -> None:
+        self._names = []
+        self.trajectory = None
+        self.apply_view_settings(self.session.project.views.get(self.view_id, {}))
+
+    # ------------------------------------------------------------ drawing
+    def _on_trajectory(self, trajectory) -> None:
+        first = self.trajectory is None
+        self.trajectory = trajectory
+        self._redraw(refit=first)
+
+    def _on_mode(self, _checked=None) -> None:
+        self._redraw(refit=True)
+
+    def _redraw(self, refit: bool = False) -> None:
+        traj = self.trajectory
+        names = self.checked()
+        spectrum = self.spectrum.isChecked()
+        for name in list(self._curves):
+            if name not in names or traj is None:
+                self.plot.removeItem(self._curves.pop(name))
+        self.note.setText("")
+        log_y = self.log_y.isChecked() or spectrum
+        self.plot.setLogMode(x=False, y=log_y)
+        time_label = "n" if traj is not None and traj.kind == "map" else "t"
+        if spectrum:
+            unit = "per step" if time_label == "n" else f"cycles per unit {time_label}"
+            self.plot.setLabel("bottom", f"frequency ({unit})")
+            self.plot.setLabel("left", "power")
+        else:
+            self.plot.setLabel("bottom", time_label)
+            self.plot.setLabel("left", "")
+        self.cursor.setVisible(not spectrum and traj is not None)
+        if traj is None:
+            return
+        discrete = traj.kind == "map"
+        missing = []
+        for name in names:
+            index = self._names.index(name) if name in self._names else len(self._curves)
+            try:
+                y = traj.series(name)
+            except KeyError:
+                continue
+            x = traj.time
+            if spectrum:
+                spec = power_spectrum(x, y)
+                if spec is None:
+                    missing.append(name)
+                    if name in self._curves:
+                        self.plot.removeItem(self._curves.pop(name))
+                    continue
+                x, y = spec
+            elif log_y:
+                y = np.where(y > 0, y, np.nan)
+            curve = self._curves.get(name)
+            if curve is None:
+                curve = pg.PlotDataItem(name=name)
+                curve.setDownsampling(auto=True, method="peak")
+                curve.setClipToView(True)
+                curve.setSkipFiniteCheck(False)
+                self.plot.addItem(curve)
+                self._curves[name] = curve
+            colour = series_colour(index, self)
+            pen = pg.mkPen(colour, width=1.6)
+            if discrete and not spectrum and x.size <= 600:
+                curve.setData(x, y, pen=pg.mkPen(colour, width=1), symbol="o", symbolSize=4,
+                              symbolPen=None, symbolBrush=colour, connect="finite")
+            else:
+                curve.setData(x, y, pen=pen, symbol=None, connect="finite")
+        if missing:
+            self.note.setText("Spectrum needs evenly spaced samples")
+        if refit:
+            self.fit_view()
+        self._on_time_cursor(self.session.time_cursor)
+
+    def fit_view(self) -> None:
+        self.plot.enableAutoRange()
+        self.plot.autoRange()
+
+    # ------------------------------------------------------------ time cursor
+    def _on_time_cursor(self, t: float) -> None:
+        if not np.isfinite(t):
+            return
+        self._moving_cursor = True
+        try:
+            self.cursor.setValue(t)
+        finally:
+            self._moving_cursor = False
+
+    def _on_cursor_dragged(self) -> None:
+        if not self._moving_cursor:
+            self.session.set_time_cursor(float(self.cursor.value()))
+
+    def changeEvent(self, event) -> None:
+        super().changeEvent(event)
+        if event.type() == QEvent.Type.PaletteChange:
+            self._restyle()
+
+    def _restyle(self) -> None:
+        style_plot(self.plot_widget, self)
+        self.cursor.setPen(pg.mkPen(muted_colour(self), width=1, style=Qt.PenStyle.DashLine))
+        self.cursor.setHoverPen(pg.mkPen(muted_colour(self), width=2))
+        for i in range(self.series_list.count()):
+            self.series_list.item(i).setIcon(swatch(series_colour(i, self)))
+        if self.trajectory is not None:
+            self._redraw()
+
+
+VIEW = TimeSeriesView
