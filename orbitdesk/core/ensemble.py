@@ -76,8 +76,7 @@ def _states(system, U0) -> np.ndarray:
 
 def bad_members(U, bound) -> np.ndarray:
     """Members (columns) that are non-finite or beyond ``bound`` in any component."""
-    with np.errstate(invalid="ignore"):
-        return ~(np.abs(U).max(axis=0) <= bound)
+    return ~(np.abs(U).max(axis=0) <= bound)
 
 
 def _kind_of_failure(U) -> np.ndarray:
@@ -100,7 +99,7 @@ class _Freezer:
         bad = bad_members(Y_new[:self.rows], self.bound)
         if self.any:
             bad &= ~self.frozen
-        if bad.any():
+        if bad.any():  # rare: only then are the bad members located
             self.status[bad] = _kind_of_failure(Y_new[:self.rows, bad])
             self.time[bad] = t
             self.frozen |= bad

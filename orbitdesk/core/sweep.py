@@ -286,11 +286,15 @@ class _EverySampler(_Samples):
         super().__init__(M, K)
         self.first, self.every, self.observed = first, every, observed
         self.all = np.arange(M)
+        self.column = 0  # every member gets each sample, so one column index serves all
 
     def __call__(self, step, t, U, F=None):
-        if step >= self.first and (step - self.first) % self.every == 0:
-            self.add(self.all, t, self.observed(t, U, self.all))
-        return self.full
+        if step >= self.first and (step - self.first) % self.every == 0 and self.column < self.K:
+            self.values[:, self.column] = self.observed(t, U, self.all)
+            self.times[:, self.column] = t
+            self.column += 1
+            self.count[:] = self.column
+        return self.column >= self.K
 
 
 class _Lyapunov:
@@ -447,6 +451,8 @@ def _execute(system, P, U0, h, n_steps, keep_from, sampler, stop, lyapunov, t_st
 def sweep(system, parameter: str, values, settings: SweepSettings | None = None, u0=None, p=None,
           cancel=None, progress=None, executor=None, chunk_size: int | None = None) -> SweepResult:
     """Orbit diagram over ``values`` of ``parameter``: all values run together as one ensemble.
+
+    ``u0`` is one starting state for every value (n,) or one per value (n, M); ``p`` the other parameters.
 
     With an ``executor`` or a ``chunk_size`` the values are split into chunks (default size 64)
     run by ``chunks.run_chunks`` (default executor: a local process pool); the model text and plain
