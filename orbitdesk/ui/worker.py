@@ -8,13 +8,17 @@ Exceptions become plain messages for the user; the full traceback goes to the er
 
 from __future__ import annotations
 
+import functools
+import gc
 import itertools
 import logging
 import traceback
+import weakref
 from dataclasses import dataclass, field
 from typing import Any, Callable
 
-from PySide6.QtCore import QObject, QRunnable, QThreadPool, Signal, Slot
+import shiboken6
+from PySide6.QtCore import QCoreApplication, QObject, QRunnable, QThreadPool, QTimer, Signal, Slot
 
 from orbitdesk.core.progress import CancelToken, Cancelled, Reporter
 
@@ -44,53 +48,118 @@ class Job:
     runnable: QRunnable | None = field(default=None, repr=False)
 
 
+class _Relay(QObject):
+    """Carries results from worker threads to the GUI thread. Lives as long as the program, so a task
+    never holds a Qt object that could be destroyed under it; closures and results are released on the
+    GUI thread (the worker hands them over in a list that the GUI side empties)."""
+
+    finished = Signal(object)        # [runner_ref, job_id, result, error, fn]
+    progress = Signal(object, int, float)
+
+    @Slot(object)
+    def on_finished(self, box) -> None:
+        runner_ref, job_id, result, error, _fn = box
+        box.clear()
+        runner = runner_ref()
+        if runner is not None and shiboken6.isValid(runner):
+            runner._on_finished(job_id, result, error)
+
+    @Slot(object, int, float)
+    def on_progress(self, runner_ref, job_id, fraction) -> None:
+        runner = runner_ref()
+        if runner is not None and shiboken6.isValid(runner):
+            runner._on_progress(job_id, fraction)
+
+
+_relay: _Relay | None = None
+
+
+class GuiThreadCollector(QObject):
+    """Python's cycle collector may run in whatever thread allocates; if it frees a Qt object in a
+    worker thread, Qt crashes. So automatic collection is switched off and done here, on the GUI
+    thread, on a timer (only when the allocation counters say it is due)."""
+
+    def __init__(self, parent=None, interval_ms: int = 500):
+        super().__init__(parent)
+        self.threshold = gc.get_threshold() if gc.isenabled() else (700, 10, 10)
+        gc.disable()
+        self.timer = QTimer(self)
+        self.timer.timeout.connect(self.check)
+        self.timer.start(interval_ms)
+
+    def check(self) -> None:
+        l0, l1, l2 = gc.get_count()
+        if l0 > self.threshold[0]:
+            gen = 0
+            if l1 > self.threshold[1]:
+                gen = 1
+                if l2 > self.threshold[2]:
+                    gen = 2
+            gc.collect(gen)
+
+
+_collector: GuiThreadCollector | None = None
+
+
+def _get_relay() -> _Relay:
+    """The relay (created on first use, on the GUI thread), with GUI-thread garbage collection."""
+    global _relay, _collector
+    if _relay is None:
+        _relay = _Relay()
+        _relay.finished.connect(_relay.on_finished)
+        _relay.progress.connect(_relay.on_progress)
+    if _collector is None and QCoreApplication.instance() is not None:
+        _collector = GuiThreadCollector(QCoreApplication.instance())
+    return _relay
+
+
+def _cancel_tokens(jobs: dict, *_args) -> None:
+    for job in list(jobs.values()):
+        job.token.cancel()
+
+
 class _Task(QRunnable):
     def __init__(self, runner: "JobRunner", job_id: int, fn, token: CancelToken):
         super().__init__()
         self.setAutoDelete(False)  # the runner keeps a reference until the job is finished
-        self._runner, self._id, self._fn, self._token = runner, job_id, fn, token
+        self._runner_ref = weakref.ref(runner)
+        self._relay = _get_relay()
+        self._id, self._fn, self._token = job_id, fn, token
 
     def run(self):
-        runner, job_id, token = self._runner, self._id, self._token
-        result, error = None, None
+        job_id, token, relay, ref = self._id, self._token, self._relay, self._runner_ref
+        box = [ref, job_id, None, None, self._fn]
+        self._fn = None
         try:
             if token.cancelled:
                 raise Cancelled("cancelled")
-            reporter = Reporter(lambda f: runner._progress.emit(job_id, float(f)), token)
-            result = self._fn(token, reporter)
+            reporter = Reporter(lambda f: relay.progress.emit(ref, job_id, float(f)), token)
+            box[2] = box[4](token, reporter)
         except Cancelled:
             token.cancel()
         except BaseException as exc:  # noqa: BLE001 - reported to the user as a message
-            error = plain_message(exc)
+            box[3] = plain_message(exc)
             detail = "".join(traceback.format_exception(type(exc), exc, exc.__traceback__))
-            runner._log_error(detail)
-        finally:
-            self._fn = None
-        runner._finished.emit(job_id, result, error)
+            log.error("background job failed:\n%s", detail)  # the traceback goes to the log only
+            del exc
+        relay.finished.emit(box)
 
 
 class JobRunner(QObject):
-    """A small keyed job queue over a private QThreadPool."""
+    """A small keyed job queue over the shared QThreadPool."""
 
     busyChanged = Signal(bool)
     jobProgress = Signal(str, float)  # key, fraction
 
-    _progress = Signal(int, float)
-    _finished = Signal(int, object, object)
-
-    def __init__(self, parent=None, max_threads: int | None = None):
+    def __init__(self, parent=None):
         super().__init__(parent)
-        self.pool = QThreadPool(self)
-        ideal = QThreadPool.globalInstance().maxThreadCount()
-        self.pool.setMaxThreadCount(max_threads or max(2, min(4, ideal)))
-        self.pool.setExpiryTimeout(10_000)
+        _get_relay()
+        self.pool = QThreadPool.globalInstance()
         self._jobs: dict[int, Job] = {}
         self._by_key: dict[str, int] = {}
         self._ids = itertools.count(1)
         self._was_busy = False
-        self._progress.connect(self._on_progress)
-        self._finished.connect(self._on_finished)
-        self.error_log: Callable[[str], None] | None = None
+        self.destroyed.connect(functools.partial(_cancel_tokens, self._jobs))
 
     # ------------------------------------------------------------ public
     def submit(self, key: str, fn, on_done, on_progress=None, on_error=None,
@@ -134,7 +203,7 @@ class JobRunner(QObject):
         return [j.key for j in self._jobs.values() if not j.token.cancelled]
 
     def wait(self, msecs: int = 30_000) -> bool:
-        """Block until every started task has returned (used on shutdown and in tests)."""
+        """Block until every started task of the pool has returned (used on shutdown and in tests)."""
         return self.pool.waitForDone(msecs)
 
     def shutdown(self, msecs: int = 5_000) -> bool:
@@ -155,15 +224,6 @@ class JobRunner(QObject):
             self._was_busy = busy
             self.busyChanged.emit(busy)
 
-    def _log_error(self, detail: str) -> None:
-        log.error("background job failed:\n%s", detail)
-        if self.error_log is not None:
-            try:
-                self.error_log(detail)
-            except Exception:  # noqa: BLE001 - logging must never raise
-                pass
-
-    @Slot(int, float)
     def _on_progress(self, job_id: int, fraction: float) -> None:
         job = self._jobs.get(job_id)
         if job is None or job.token.cancelled:
@@ -172,7 +232,6 @@ class JobRunner(QObject):
         if job.on_progress is not None:
             job.on_progress(fraction)
 
-    @Slot(int, object, object)
     def _on_finished(self, job_id: int, result, error) -> None:
         job = self._jobs.pop(job_id, None)
         if job is None:
