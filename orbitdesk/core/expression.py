@@ -8,8 +8,9 @@ tree of plain nodes that ``symbolic`` turns into sympy expressions.
 
 from __future__ import annotations
 
+import keyword
 import re
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 from .diagnostics import ParseError
 
@@ -24,6 +25,7 @@ FUNCTIONS = {
 }
 NONSMOOTH_FUNCTIONS = frozenset({"abs", "sign", "min", "max", "heaviside", "mod", "floor"})
 CONSTANTS = ("pi", "e")
+KEYWORDS = frozenset(keyword.kwlist)  # Python's words (lambda, import, ...) are never names here
 
 # ---------------------------------------------------------------- tokens
 
@@ -36,7 +38,7 @@ class Token:
     end: int  # exclusive
 
 
-_NUMBER = re.compile(r"(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?")
+_NUMBER = re.compile(r"(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?", re.ASCII)
 _NAME = re.compile(r"[A-Za-z_][A-Za-z0-9_]*'*")
 _OPS = ("**", "+", "-", "*", "/", "^", "(", ")", ",", "[", "]")
 
@@ -53,7 +55,7 @@ def tokenize(text: str, offset: int = 1) -> list[Token]:
             i += 1
             continue
         m = _NUMBER.match(text, i)
-        if m and (ch.isdigit() or ch == "."):
+        if m and ch in "0123456789.":
             digits = m.group(1).replace(".", "")
             if len(digits.lstrip("0")) > MAX_NUMBER_DIGITS:
                 raise ParseError(f"number has more than {MAX_NUMBER_DIGITS} digits", col, offset + m.end())
@@ -65,6 +67,8 @@ def tokenize(text: str, offset: int = 1) -> list[Token]:
             continue
         m = _NAME.match(text, i)
         if m:
+            if m.group(0) in KEYWORDS:
+                raise ParseError(f"'{m.group(0)}' is not part of the model language", col, offset + m.end())
             tokens.append(Token("name", m.group(0), col, offset + m.end()))
             i = m.end()
             if i < n and text[i] == ".":
@@ -241,8 +245,6 @@ class _Parser:
             return Num(tok.text, tok.column, tok.end)
         if tok.kind == "name":
             self.advance()
-            if tok.text in ("lambda", "import", "def", "class", "for", "while", "if", "in"):
-                raise ParseError(f"'{tok.text}' is not part of the model language here", tok.column, tok.end)
             if self.tok.kind == "op" and self.tok.text == "(":
                 return self.call(tok)
             if self.tok.kind == "op" and self.tok.text == "[":
@@ -251,7 +253,9 @@ class _Parser:
         if tok.kind == "op" and tok.text == "(":
             self.advance()
             inner = self.expr()
-            self.expect(")", "')'")
+            close = self.expect(")", "')'")
+            if isinstance(inner, (Binary, Unary)):  # the span of "(a + b)" includes its parentheses
+                inner = replace(inner, column=tok.column, end=close.end)
             return inner
         if tok.kind == "end":
             raise ParseError("expression ends too early", tok.column, tok.end)

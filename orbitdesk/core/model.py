@@ -16,13 +16,15 @@ from difflib import get_close_matches
 import sympy as sp
 
 from .diagnostics import ERROR, INFO, WARNING, Diagnostic, ParseError
-from .expression import (CONSTANTS, FUNCTIONS, MAX_LINE_LENGTH, NONSMOOTH_FUNCTIONS, Call, Name,
+from .expression import (CONSTANTS, FUNCTIONS, KEYWORDS, MAX_LINE_LENGTH, NONSMOOTH_FUNCTIONS, Call, Name,
                          parse_expression, walk)
-from .symbolic import constant_value, to_sympy
+from .symbolic import Span, constant_value, substitute, to_sympy, tree_size
 
 MAX_MODEL_CHARS = 1_000_000
 MAX_STATEMENTS = 5_000
 MAX_ORDER = 9
+MAX_EXPRESSION_SIZE = 100_000  # nodes of one equation after derived quantities are put in
+SUGGESTION_BUDGET = 100_000  # name comparisons spent on did-you-mean fixes per model
 
 FLOW, MAP = "flow", "map"
 
@@ -104,6 +106,14 @@ class _Builder:
     def add(self, line, col, end, severity, message, fix=None):
         self.diags.append(Diagnostic(line, col, max(end, col + 1), severity, message, fix))
 
+    def suggest(self, name, candidates) -> list[str]:
+        """The closest known name (for a did-you-mean fix), within a per-model budget of comparisons."""
+        budget = getattr(self, "suggestion_budget", SUGGESTION_BUDGET)
+        if len(candidates) > budget:
+            return []
+        self.suggestion_budget = budget - len(candidates)
+        return get_close_matches(name, candidates, n=1, cutoff=0.6)
+
     # ------------------------------------------------------------ pass 1: statements
     def split_lines(self, text: str) -> list[_Statement]:
         statements = []
@@ -134,6 +144,10 @@ class _Builder:
                 continue
             for form, pattern in _LHS_FORMS:
                 m = pattern.match(lhs)
+                if m and m.group(1) in KEYWORDS:
+                    self.add(number, lhs_col, lhs_col + len(m.group(1)), ERROR,
+                             f"'{m.group(1)}' is a reserved word and cannot be a name; choose another")
+                    break
                 if m:
                     primes = len(m.group(2)) if form in ("ode", "init") else 0
                     statements.append(_Statement(number, form, m.group(1), primes, lhs_col, lhs_end,
@@ -282,7 +296,9 @@ class _Builder:
             if lo is not None and not lo < hi:
                 self.add(st.line, st.range_col, st.range_col + 2, ERROR, f"the range [{lo:g}, {hi:g}] is empty")
             elif lo is not None and not lo <= value <= hi:
-                self.add(st.line, st.rhs_col, st.rhs_col + len(st.rhs.split(" in")[0].rstrip()), WARNING,
+                value_text = st.rhs[:st.range_col - st.rhs_col]
+                start = st.rhs_col + len(value_text) - len(value_text.lstrip())
+                self.add(st.line, start, st.rhs_col + len(value_text.rstrip()), WARNING,
                          f"the value {value:g} lies outside its range [{lo:g}, {hi:g}]",
                          f"widen the range or set a value inside it")
 
@@ -292,6 +308,7 @@ class _Builder:
         for st in derived_statements:
             m.symbols.setdefault(st.name, sp.Symbol(st.name, real=True))
         derived_names = {s.name for s in derived_statements}
+        self.broken = {s.name: s.line for s in statements if s.form == "name" and s.tree is None}
         # placeholders for x^(k) where k is the typed order: "the right side of x's equation"
         self.top_placeholders: dict[str, sp.Symbol] = {}
         self.depends: dict[str, set[str]] = {}
@@ -314,14 +331,36 @@ class _Builder:
                 lines[key] = st
         order = self.topological(raw, lines, derived_names)
         resolved: dict[str, sp.Expr] = {}
+        failed: set[str] = set()
+        sizes: dict = {}
         for key in order:
             expr = raw[key]
             subs = {}
             for sym in expr.free_symbols:
                 dep = self.placeholder_key(sym, derived_names)
+                if dep in failed:
+                    failed.add(key)  # its own error is reported already
+                    break
                 if dep is not None and dep in resolved:
                     subs[sym] = resolved[dep]
-            resolved[key] = expr.xreplace(subs) if subs else expr
+            if key in failed:
+                continue
+            st = lines[key]
+            where = Span(st.rhs_col + len(st.rhs) - len(st.rhs.lstrip()), st.rhs_col + len(st.rhs.rstrip()))
+            try:
+                value = substitute(expr, subs, where) if subs else expr
+            except ParseError as err:
+                self.add(st.line, err.column, err.end_column, ERROR,
+                         err.message + " once the definitions it uses are put in")
+                failed.add(key)
+                continue
+            if subs and tree_size(value, sizes) > MAX_EXPRESSION_SIZE:
+                self.add(st.line, where.column, where.end, ERROR,
+                         f"with the definitions it uses put in, this expression has more than "
+                         f"{MAX_EXPRESSION_SIZE:,} parts; simplify the chain of definitions")
+                failed.add(key)
+                continue
+            resolved[key] = value
         for key, expr in resolved.items():
             if key.startswith("eq:"):
                 base = key[3:]
@@ -397,8 +436,11 @@ class _Builder:
             if name in ("t", "n"):
                 other = "flows" if name == "t" else "maps"
                 raise ParseError(f"'{name}' is the time of {other}; this model is a {kind}", node.column, node.end)
+            if name in self.broken:
+                raise ParseError(f"'{name}' cannot be used: its definition on line {self.broken[name]} has an error",
+                                 node.column, node.end)
             known = list(m.states) + list(m.parameters) + list(derived_names) + list(CONSTANTS)
-            close = get_close_matches(name, known, n=1, cutoff=0.6)
+            close = self.suggest(name, known)
             fix = f"did you mean '{close[0]}'?" if close else None
             message = f"unknown name '{name}'" + (f"; {fix}" if fix else "")
             raise ParseError(message, node.column, node.end, fix)
@@ -453,10 +495,13 @@ class _Builder:
         return [k for k in order if k not in bad]
 
     def report_cycle(self, cycle, lines):
-        self.cyclic = getattr(self, "cyclic", set()) | set(cycle)
+        reported = getattr(self, "cyclic", set())
+        self.cyclic = reported | set(cycle)
         names = [k[3:] + "'" * self.model.typed_order.get(k[3:], 0) if k.startswith("eq:") else k for k in cycle]
         loop = " -> ".join(names + [names[0]])
         for key in cycle:
+            if key in reported:
+                continue  # one diagnostic per definition, however many loops pass through it
             st = lines[key]
             self.add(st.line, st.lhs_col, st.lhs_end, ERROR, f"these definitions depend on each other in a loop: {loop}")
 
@@ -477,7 +522,7 @@ class _Builder:
                 continue
             target = derivative_name(st.name, st.primes) if m.kind == FLOW else st.name
             if target not in m.states:
-                close = get_close_matches(target, m.states, n=1)
+                close = self.suggest(target, m.states)
                 fix = f"did you mean '{close[0]}'?" if close else None
                 self.add(st.line, st.lhs_col, st.lhs_end, ERROR,
                          f"initial value for '{target}', which is not a state" + (f"; {fix}" if fix else ""), fix)

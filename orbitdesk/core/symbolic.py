@@ -8,7 +8,7 @@ Trees are folded iteratively, so very long sums do not hit Python's recursion li
 from __future__ import annotations
 
 import math
-from fractions import Fraction
+from dataclasses import dataclass
 
 import sympy as sp
 
@@ -17,6 +17,7 @@ from .expression import FUNCTIONS, Binary, Call, Name, Num, Unary
 
 MAX_MAGNITUDE = 1e300
 EXACT_POWER_LIMIT = 64
+MAX_EXACT = 10**300  # exact rationals with larger numerator or denominator become floats
 
 
 def _log10(x):
@@ -41,34 +42,113 @@ MATH_FUNCTIONS = {
 
 
 def number_from_text(text: str) -> sp.Expr:
-    """An exact sympy number for a literal: integers stay integers, decimals become rationals."""
-    if any(c in text for c in ".eE"):
-        frac = Fraction(text)
-        if abs(frac) > MAX_MAGNITUDE:
-            raise ValueError("too large")
-        return sp.Rational(frac.numerator, frac.denominator) if frac.denominator < 10**12 else sp.Float(text)
-    return sp.Integer(int(text))
+    """An exact sympy number for a literal: integers stay integers, decimals become rationals.
+
+    The size is checked with ``float`` first (it reads any exponent at once), so ``1e99999999``
+    is refused before an exact form with a hundred million digits is built.
+    """
+    value = float(text)
+    if not math.isfinite(value) or abs(value) > MAX_MAGNITUDE:
+        raise ValueError("too large")
+    mantissa, _, exponent = text.lower().partition("e")
+    whole, _, fraction = mantissa.partition(".")
+    digits = (whole + fraction).lstrip("0")
+    if not digits:
+        return sp.Integer(0)
+    if len(exponent.lstrip("+-").lstrip("0")) > 4:
+        return sp.Float(value)  # below 1e-9999: only the float value means anything
+    scale = int(exponent or 0) - len(fraction)
+    if scale >= 0:
+        return sp.Integer(int(digits) * 10**scale)
+    exact = sp.Rational(int(digits), 10**-scale)
+    return exact if exact.q < 10**12 else sp.Float(text)
 
 
 def _too_large(node) -> ParseError:
     return ParseError("this constant is too large to represent (over 1e300)", node.column, node.end)
 
 
-def _checked_power(base: sp.Expr, exponent: sp.Expr, node) -> sp.Expr:
-    if not (base.is_Number and exponent.is_Number):
-        return sp.Pow(base, exponent)
-    b, x = float(base), float(exponent)
+def _approx(expr: sp.Expr) -> complex:
+    """The value of a constant expression whose parts were all checked (so evalf is cheap)."""
+    if expr.has(sp.nan, sp.zoo, sp.oo, -sp.oo):
+        raise ValueError("not finite")
+    return complex(expr.evalf(17))
+
+
+def _checked_constant(expr: sp.Expr, node, what: str = "this constant") -> sp.Expr:
+    """Refuse a constant (no symbols) that is undefined, complex or beyond 1e300; tame huge exact rationals.
+
+    Numeric coefficients of sums and products are checked the same way.
+    """
+    if expr.free_symbols:
+        if expr.is_Add or expr.is_Mul:
+            numbers = [a for a in expr.args if a.is_Number]
+            if numbers:
+                tamed = {a: _checked_constant(a, node, what) for a in numbers}
+                if any(tamed[a] is not a for a in numbers):
+                    expr = expr.func(*[tamed.get(a, a) for a in expr.args])
+        return expr
     try:
-        approx = abs(b) ** x if b != 0 or x >= 0 else math.inf
+        value = _approx(expr)
+    except (TypeError, ValueError, ZeroDivisionError, OverflowError):
+        raise ParseError(f"{what} is undefined", node.column, node.end) from None
+    if not (math.isfinite(value.real) and math.isfinite(value.imag)) or abs(value) > MAX_MAGNITUDE:
+        raise _too_large(node)
+    if abs(value.imag) > 1e-12 * max(1.0, abs(value.real)):
+        raise ParseError(f"{what} is not a real number", node.column, node.end)
+    if expr.is_Rational and max(abs(expr.p), expr.q) > MAX_EXACT:
+        return sp.Float(value.real)
+    return expr
+
+
+def _checked_power(base: sp.Expr, exponent: sp.Expr, node) -> sp.Expr:
+    """base ** exponent, sized with floats before sympy builds it when both are constants.
+
+    Exact powers are kept only for small rational exponents; otherwise a float power is used, so
+    ``2^(10^10)`` or ``sqrt(2)^(10^12)`` never make sympy compute a gigantic exact number.
+    """
+    if base.free_symbols or exponent.free_symbols:
+        return sp.Pow(base, exponent)
+    b, x = _approx(base).real, _approx(exponent).real
+    if b == 0 and x < 0:
+        raise ParseError("division by zero (0 raised to a negative power)", node.column, node.end)
+    try:
+        approx = abs(b) ** x
     except OverflowError:
         raise _too_large(node) from None
-    except ZeroDivisionError:
-        raise ParseError("zero raised to a negative power", node.column, node.end) from None
-    if isinstance(approx, complex) or not math.isfinite(approx) or approx > MAX_MAGNITUDE:
+    if not math.isfinite(approx) or approx > MAX_MAGNITUDE:
         raise _too_large(node)
-    if exponent.is_Integer and abs(int(exponent)) <= EXACT_POWER_LIMIT:
-        return sp.Pow(base, exponent)
-    return sp.Pow(sp.Float(b), sp.Float(x))
+    if base.is_Number:
+        exact = exponent.is_Integer and abs(int(exponent)) <= EXACT_POWER_LIMIT
+        result = sp.Pow(base, exponent) if exact else sp.Pow(sp.Float(b), sp.Float(x))
+    elif exponent.is_Rational and abs(exponent) <= EXACT_POWER_LIMIT:
+        result = sp.Pow(base, exponent)
+    else:
+        result = sp.Pow(sp.Float(b), sp.Float(x))
+    return _checked_constant(result, node)
+
+
+def _product_bounded(items, node):
+    """Refuse a product of constants that would exceed 1e300, before sympy multiplies them out."""
+    logs = 0.0
+    for item in items:
+        if item.is_Number:
+            value = abs(float(item))
+            if value == 0:
+                return
+            logs += math.log10(value)
+    if logs > math.log10(MAX_MAGNITUDE):
+        raise _too_large(node)
+
+
+def _checked_call(func: str, args, node) -> sp.Expr:
+    try:
+        result = SYMPY_FUNCTIONS[func](*args)
+    except ZeroDivisionError:
+        raise ParseError(f"{func}() divides by zero here", node.column, node.end) from None
+    except (ValueError, TypeError, ArithmeticError):
+        raise ParseError(f"{func}() of this constant is undefined", node.column, node.end) from None
+    return _checked_constant(result, node, f"{func}() of this constant")
 
 
 def fold(node, leaf, combine):
@@ -117,22 +197,26 @@ def _check_call(node: Call):
 class _Terms(list):
     """Operands of a chain of '+' (or '*'), collected so sympy builds one n-ary node, not n nested ones."""
 
-    def __init__(self, op, items):
+    def __init__(self, op, items, node):
         super().__init__(items)
         self.op = op
+        self.node = node
 
 
 def _materialize(value):
     if isinstance(value, _Terms):
-        return sp.Add(*value) if value.op == "+" else sp.Mul(*value)
+        if value.op == "*":
+            _product_bounded(value, value.node)
+        return _checked_constant(sp.Add(*value) if value.op == "+" else sp.Mul(*value), value.node)
     return value
 
 
-def _chain(op, left, right):
+def _chain(op, left, right, node):
     if isinstance(left, _Terms) and left.op == op:
         left.append(right)
+        left.node = node
         return left
-    return _Terms(op, [_materialize(left), right])
+    return _Terms(op, [_materialize(left), right], node)
 
 
 def to_sympy(node, resolve) -> sp.Expr:
@@ -149,29 +233,87 @@ def to_sympy(node, resolve) -> sp.Expr:
     def combine(item, args):
         if isinstance(item, Binary) and item.op in "+-":
             right = _materialize(args[1])
-            return _chain("+", args[0], right if item.op == "+" else -right)
+            return _chain("+", args[0], right if item.op == "+" else -right, item)
         if isinstance(item, Binary) and item.op == "*":
-            return _chain("*", args[0], _materialize(args[1]))
+            return _chain("*", args[0], _materialize(args[1]), item)
         args = [_materialize(a) for a in args]
         if isinstance(item, Unary):
             return -args[0]
         if isinstance(item, Call):
             _check_call(item)
-            result = SYMPY_FUNCTIONS[item.func](*args)
-            if result.is_Number and not result.is_finite:
-                raise ParseError(f"{item.func}() of this constant is undefined", item.column, item.end)
-            return result
+            return _checked_call(item.func, args, item)
         left, right = args
         if item.op == "/":
             if right.is_zero:
                 raise ParseError("division by zero", item.column, item.end)
-            return sp.Mul(left, sp.Pow(right, -1))
+            return _chain("*", left, _checked_power(right, sp.Integer(-1), item), item)
         return _checked_power(left, right, item)
 
-    result = _materialize(fold(node, leaf, combine))
-    if result.is_Number and (not result.is_finite or abs(float(result)) > MAX_MAGNITUDE):
-        raise _too_large(node)
-    return result
+    return _checked_constant(_materialize(fold(node, leaf, combine)), node)
+
+
+@dataclass(frozen=True)
+class Span:
+    """Where to report a problem found while combining finished expressions."""
+
+    column: int
+    end: int
+
+
+def substitute(expr: sp.Expr, values: dict, where: Span) -> sp.Expr:
+    """``expr.xreplace(values)`` rebuilt bottom-up with the same size checks as ``to_sympy``.
+
+    A plain xreplace lets sympy evaluate what the substitution creates (``d^(10^10)`` with
+    ``d = 2``) without bound; here every rebuilt node goes through the checked constructors.
+    Shared subexpressions are visited once.
+    """
+    done: dict = {}
+    stack = [(expr, False)]
+    while stack:
+        item, ready = stack.pop()
+        if item in done:
+            continue
+        if not item.args:
+            done[item] = values.get(item, item)
+            continue
+        if not ready:
+            stack.append((item, True))
+            stack.extend((a, False) for a in item.args if a not in done)
+            continue
+        args = [done[a] for a in item.args]
+        if all(new is old for new, old in zip(args, item.args)):
+            done[item] = item
+        elif item.is_Pow:
+            done[item] = _checked_power(args[0], args[1], where)
+        elif item.is_Mul:
+            _product_bounded(args, where)
+            done[item] = _checked_constant(sp.Mul(*args), where)
+        elif item.is_Add:
+            done[item] = _checked_constant(sp.Add(*args), where)
+        else:
+            try:
+                rebuilt = item.func(*args)
+            except (ZeroDivisionError, ValueError, TypeError, ArithmeticError):
+                raise ParseError(f"{item.func.__name__.lower()}() is undefined here", where.column, where.end) from None
+            done[item] = _checked_constant(rebuilt, where)
+    return done[expr]
+
+
+def tree_size(expr: sp.Expr, seen: dict) -> int:
+    """Number of nodes of ``expr`` written out as a tree (shared parts counted each time they occur)."""
+    stack = [(expr, False)]
+    while stack:
+        item, ready = stack.pop()
+        if item in seen:
+            continue
+        if not item.args:
+            seen[item] = 1
+        elif ready:
+            seen[item] = 1 + sum(seen[a] for a in item.args)
+        else:
+            stack.append((item, True))
+            stack.extend((a, False) for a in item.args if a not in seen)
+    return seen[expr]
 
 
 def constant_value(node, constants: dict[str, float]) -> float:
