@@ -170,7 +170,7 @@ def model_latex(model, parameters: dict | None = None, initial: dict | None = No
     if not standalone:
         return snippet
     heading = tex_escape(title) if title else "Model"
-    return ("\\documentclass[11pt]{article}\n\\usepackage{amsmath}\n\\usepackage[margin=25mm]{geometry}\n"
+    return ("\\documentclass[11pt]{article}\n\\usepackage{amsmath}\n"
             "\\begin{document}\n"
             f"\\section*{{{heading}}}\n"
             f"{snippet}"

@@ -237,13 +237,21 @@ def _view_problems(view_id: str, settings: dict, series: set[str], states: list[
             problems.append(f"the {view_id.replace('_', ' ')} view's {key} axis shows '{name}', which the model "
                             f"no longer has; that axis is left as it was")
             del keep[key]
-    axes = settings.get("axes")
-    if isinstance(axes, list):
-        missing = [a for a in axes if not isinstance(a, str) or a not in series]
-        if missing:
-            problems.append(f"the {view_id.replace('_', ' ')} view's axes name {', '.join(map(str, missing))}, "
-                            f"which the model no longer has; the axes are left as they were")
-            del keep["axes"]
+    for key in ("axes", "series"):
+        names = settings.get(key)
+        if isinstance(names, list):
+            missing = [a for a in names if not isinstance(a, str) or a not in series]
+            if missing:
+                problems.append(f"the {view_id.replace('_', ' ')} view's {key} name "
+                                f"{', '.join(map(str, missing))}, which the model no longer has; "
+                                f"the {key} are left as they were")
+                del keep[key]
+    for key in ("observe", "maxima"):
+        name = settings.get(key)
+        if isinstance(name, str) and name not in series:
+            problems.append(f"the {view_id.replace('_', ' ')} view observes '{name}', which the model no longer "
+                            f"has; that setting is left as it was")
+            del keep[key]
     param = settings.get("param")
     if isinstance(param, str) and param not in params:
         problems.append(f"the {view_id.replace('_', ' ')} view sweeps '{param}', which is no longer a parameter; "

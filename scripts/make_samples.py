@@ -1,0 +1,509 @@
+"""Writes the sample projects in sample_projects/ from the data below, so they always load and parse.
+
+Run from the repository root:  .venv/bin/python scripts/make_samples.py
+Each sample is a scenario of our own with a teaching walkthrough; published models keep their names.
+Every step stores all parameter and initial values, so a reader can jump to any step in any order.
+"""
+
+from __future__ import annotations
+
+import math
+import sys
+from pathlib import Path
+
+from orbitdesk.core.model import parse_model
+from orbitdesk.core.project import ParameterSetting, Project, SolverSettings, dumps
+from orbitdesk.core.walkthrough import apply_step, record_step
+
+OUT = Path(__file__).resolve().parent.parent / "sample_projects"
+
+
+def sample(file, name, model, solver, views, notes, steps):
+    """A Project whose steps are (title, note, overrides) with overrides of the snapshot keys."""
+    parsed = parse_model(model)
+    if not parsed.ok:
+        raise SystemExit(f"{file}: the model has errors: {[d.format() for d in parsed.errors]}")
+    params = {n: p.value for n, p in parsed.parameters.items()}
+    initial = dict(parsed.initial)
+    walkthrough = []
+    for title, note, over in steps:
+        state = {"parameters": {**params, **over.pop("parameters", {})},
+                 "initial": {**initial, **over.pop("initial", {})}, **over}
+        step = record_step(title, note, state)
+        _, problems = apply_step(step, parsed, {})
+        if problems:
+            raise SystemExit(f"{file}: step '{title}': {problems}")
+        walkthrough.append(step)
+    return file, Project(
+        name=name, model=model,
+        parameters={n: ParameterSetting(p.value, p.lo, p.hi) for n, p in parsed.parameters.items()},
+        initial=initial, solver=SolverSettings(**solver), views=views, walkthrough=walkthrough, notes=notes)
+
+
+# ---------------------------------------------------------------- a shaken beam with two rest positions
+
+FORCING_PERIOD = 2 * math.pi / 1.2
+
+SHAKEN_BEAM = sample(
+    "shaken_beam.orbitdesk", "Shaken beam with two rest positions",
+    """\
+# A thin steel strip stands upright in a clamp, between two magnets. It cannot stay straight:
+# it leans against one magnet or the other. A shaker moves the clamp from side to side.
+# x is the sideways deflection of the tip, scaled so that the two rest positions are x = -1
+# and x = +1; x' is the speed of the tip.
+# Forced two-well Duffing equation:  x'' + delta x' - x + x^3 = gamma cos(omega t)
+
+delta = 0.3 in [0, 1]        # damping of the strip
+gamma = 0.5 in [0, 0.8]      # how hard the shaker moves the clamp
+omega = 1.2 in [0.5, 2]      # shaking frequency (the period is 2 pi / omega)
+
+x'' = -delta*x' + x - x^3 + gamma*cos(omega*t)
+x(0) = 1
+x'(0) = 0
+
+energy = x'^2/2 - x^2/2 + x^4/4     # motion plus magnetic energy: -1/4 at rest on a magnet, 0 on the hump
+""",
+    dict(method="dop853", t_end=400.0, samples=16000, rtol=1e-9, atol=1e-11),
+    {"timeseries": {"series": ["x"]}, "phase_plane": {"x": "x", "y": "x'"},
+     "sections": {"strobe": round(FORCING_PERIOD, 6), "count": 600, "transient": 60.0},
+     "sweep": {"param": "gamma", "from": 0.2, "to": 0.5, "count": 200, "strobe": round(FORCING_PERIOD, 6),
+               "transient": 300.0, "samples": 64}},
+    "A strip of steel between two magnets, shaken at its foot: from a steady wobble to chaos.",
+    [
+        ("Without shaking, the strip picks a magnet",
+         "With the shaker off (`gamma = 0`) the strip swings a few times and comes to rest against a "
+         "magnet. In the phase plane the path *spirals in* to the point `x = 1, x' = 0`.\n\n"
+         "Watch the **energy** curve in the time series: it only goes down, because damping takes "
+         "energy out and nothing puts it back.",
+         {"parameters": {"gamma": 0.0}, "initial": {"x": 0.2, "x'": 0.9},
+          "open_views": ["timeseries", "phase_plane"],
+          "views": {"timeseries": {"series": ["x", "energy"]}}}),
+        ("Three rest positions, two of them stable",
+         "Without shaking the strip can rest wherever `x' = 0` and `x - x^3 = 0`: at `x = -1`, `0` and "
+         "`+1`. Linearising the equation there tells them apart:\n\n"
+         "- against either magnet, `x = ±1`, the eigenvalues are `-0.15 ± 1.41i`: **stable foci**, so "
+         "a disturbed strip spirals back;\n"
+         "- standing straight up, `x = 0`, they are `0.86` and `-1.16`: a **saddle**. The strip could "
+         "balance there in principle, but the smallest push sends it to one side.\n\n"
+         "Which magnet wins depends on where the strip starts. Started at `x = -0.4` with speed 0.9 "
+         "it swings over the hump and ends on the right; started at `x = -0.6` with speed 0.5 (this "
+         "step) it stays on the left. The stable curves of the saddle divide the phase plane into the "
+         "two *basins*, which wind around each other in bands.",
+         {"parameters": {"gamma": 0.0}, "initial": {"x": -0.6, "x'": 0.5},
+          "open_views": ["phase_plane", "timeseries"]}),
+        ("Gentle shaking: a steady wobble",
+         "Now the shaker runs with `gamma = 0.2`. After a short settling time the strip wobbles about "
+         "one magnet, once per shaking period `T = 2 pi / omega`, about 5.24.\n\n"
+         "The **stroboscopic section** looks at the strip once per period, like a flash photograph. "
+         "A motion that repeats every period shows up as a *single dot*.",
+         {"parameters": {"gamma": 0.2}, "open_views": ["timeseries", "phase_plane", "sections"],
+          "section": {"strobe": round(FORCING_PERIOD, 6)}}),
+        ("Harder shaking: period doubling",
+         "At `gamma = 0.28` the wobble repeats only every *second* shaking period: the section shows "
+         "**two dots**, and the time series has a tall and a short swing taking turns. A little "
+         "harder, near `gamma = 0.29`, it needs four periods to repeat.",
+         {"parameters": {"gamma": 0.28}, "open_views": ["timeseries", "sections"],
+          "section": {"strobe": round(FORCING_PERIOD, 6)}}),
+        ("Hard shaking: the strip hops between magnets",
+         "At `gamma = 0.5` the strip never settles into a pattern. It hops from one magnet to the "
+         "other at irregular times, and two starts that differ in the sixth decimal soon do "
+         "completely different things.\n\n"
+         "The flash photographs no longer fall on a few dots: they trace out a folded, layered "
+         "curve, the *strange attractor* of the stroboscopic map. Run the section longer and the "
+         "folds fill in.",
+         {"parameters": {"gamma": 0.5}, "open_views": ["timeseries", "sections"],
+          "section": {"strobe": round(FORCING_PERIOD, 6)}}),
+        ("The whole story in one picture",
+         "The sweep runs the strip for 200 shaking strengths from 0.2 to 0.5 and plots the flash "
+         "photographs of each one above its `gamma`. Read it from left to right:\n\n"
+         "1. one branch: a steady wobble;\n"
+         "2. the branch splits in two near `gamma = 0.27` and again near 0.29: **period doubling**;\n"
+         "3. a smeared band from about 0.30: chaos, first around one magnet, then across both;\n"
+         "4. a clear gap near 0.35 to 0.38 where five dots return: a periodic *window* inside the chaos.",
+         {"parameters": {"gamma": 0.5}, "open_views": ["sweep"]}),
+    ])
+
+# ---------------------------------------------------------------- a heated convection loop
+
+CONVECTION_LOOP = sample(
+    "convection_loop.orbitdesk", "Heated convection loop",
+    """\
+# A ring of glass tubing stands upright, full of water, warmed at the bottom and cooled at the top.
+# Warm water wants to rise, so the water may start to circulate around the ring, one way or the other.
+# x: speed of the water around the ring (positive: clockwise)
+# y: temperature difference between the rising and the falling side of the ring
+# z: how far the temperature from bottom to top departs from a straight-line profile
+# Lorenz equations.
+
+sigma = 10 in [1, 20]      # how quickly the water's motion spreads, compared with heat
+r = 28 in [0, 50]          # heating, relative to the heating at which the water first moves
+beta = 8/3 in [0.5, 4]     # shape factor of the ring
+
+x' = sigma*(y - x)
+y' = x*(r - z) - y
+z' = x*y - beta*z
+
+x(0) = 1
+y(0) = 1
+z(0) = 1
+""",
+    dict(method="dop853", t_end=100.0, samples=10000),
+    {"timeseries": {"series": ["x"]}, "phase_space_3d": {"axes": ["x", "y", "z"]},
+     "phase_plane": {"x": "x", "y": "z"}, "equilibria": {},
+     "sections": {"plane": "z=27", "direction": "up", "count": 500},
+     "lyapunov": {"t_end": 400.0, "transient": 20.0}},
+    "Water warmed from below in an upright ring of tubing: still, circulating, or reversing at random.",
+    [
+        ("Too little heat: the water stays still",
+         "With the heating low (`r = 0.5`) any stirring dies away and the water comes to rest. "
+         "The only equilibrium is the origin, and it is a **stable node**: all three eigenvalues are "
+         "real and negative, so the motion fades without swinging.",
+         {"parameters": {"r": 0.5}, "open_views": ["timeseries", "equilibria"]}),
+        ("More heat: steady circulation",
+         "At `r = 10` the still state has become a **saddle**, and two new equilibria have appeared: "
+         "steady circulation clockwise and anticlockwise, at `x = y = ±sqrt(beta (r - 1))`, `z = r - 1`.\n\n"
+         "Both are **stable foci**: the water sloshes a little, then settles into turning at a steady "
+         "speed. Which way it turns depends on how it was started.",
+         {"parameters": {"r": 10.0}, "open_views": ["timeseries", "phase_space_3d", "equilibria"],
+          "selected_equilibrium": 2}),
+        ("Strong heating: random reversals",
+         "At `r = 28` the water turns one way, speeds up, slows down, and now and then reverses, "
+         "with no pattern in how long each spell lasts.\n\n"
+         "Drag in the 3D view to turn the picture. The path winds around two holes, one for each "
+         "direction of circulation, and never closes on itself: this is the Lorenz *attractor*.",
+         {"parameters": {"r": 28.0}, "open_views": ["phase_space_3d", "timeseries"],
+          "camera": {"azimuth": 35.0, "elevation": 20.0, "distance": 95.0, "center": [0.0, 0.0, 25.0]}}),
+        ("Every rest state is unstable",
+         "Look at the equilibria at `r = 28`:\n\n"
+         "- the origin is a **saddle** with one unstable direction;\n"
+         "- the two steady circulations are **saddle-foci**: a complex pair of eigenvalues with "
+         "*positive* real part (about 0.094) spirals the path away, while one large negative "
+         "eigenvalue pulls it flat onto a sheet.\n\n"
+         "With nothing stable to settle on, the path keeps wandering between them.",
+         {"parameters": {"r": 28.0}, "open_views": ["equilibria", "phase_space_3d"], "selected_equilibrium": 0}),
+        ("A slice through the attractor",
+         "The section marks each time the path passes upward through the level `z = 27`, the height "
+         "of the two circulation states. The points fall on thin curves rather than filling an area: "
+         "the attractor is almost a surface, folded over and over.",
+         {"parameters": {"r": 28.0}, "open_views": ["phase_space_3d", "sections"],
+          "section": {"plane": "z=27", "direction": "up"}}),
+        ("How fast do nearby starts separate?",
+         "The Lyapunov spectrum measures the average rate at which tiny differences grow or shrink. "
+         "At `r = 28` expect about `+0.91, 0, -14.57` (per unit time):\n\n"
+         "- one **positive** exponent: nearby starts separate, so the reversals cannot be forecast "
+         "far ahead;\n"
+         "- a zero exponent, along the path itself;\n"
+         "- a strongly negative one: the flattening onto the sheet.\n\n"
+         "A check you can make by hand: the three add up to `-(sigma + 1 + beta)`, about -13.67, "
+         "because the flow shrinks every volume at that constant rate.",
+         {"parameters": {"r": 28.0}, "open_views": ["lyapunov", "timeseries"]}),
+    ])
+
+# ---------------------------------------------------------------- a relaxation oscillator
+
+RELAXATION_CIRCUIT = sample(
+    "relaxation_circuit.orbitdesk", "Relaxation oscillator in a buoy lamp",
+    """\
+# The blinker of a harbour buoy: a capacitor and a coil joined to an amplifying element that
+# pushes small voltages up and holds large ones back. Whatever the start, the lamp settles into
+# one rhythm of its own.
+# x: the capacitor voltage (scaled), x': its rate of change.
+# Van der Pol equation:  x'' - mu (1 - x^2) x' + x = 0
+
+mu = 1 in [0, 10]     # strength of the amplifying element, compared with the coil and capacitor
+
+x'' = mu*(1 - x^2)*x' - x
+x(0) = 0.1
+x'(0) = 0
+""",
+    dict(method="dop853", t_end=80.0, samples=8000),
+    {"timeseries": {"series": ["x"]}, "phase_plane": {"x": "x", "y": "x'"}, "equilibria": {}},
+    "A blinker circuit that finds its own rhythm: a limit cycle, its period, and the slow-fast shape.",
+    [
+        ("A weak amplifier: almost a pure tone",
+         "With `mu = 0.1` the voltage swings like a plain coil-and-capacitor circuit, a near sine wave "
+         "with period close to `2 pi`, about 6.28. The amplifier only slowly pumps the swing up, over "
+         "many periods, until it reaches a size of about 2.",
+         {"parameters": {"mu": 0.1}, "open_views": ["timeseries", "phase_plane"]}),
+        ("A small start grows",
+         "At `mu = 1`, start the circuit almost at rest. The path in the phase plane spirals *outward* "
+         "and then runs around one closed curve for ever: a **limit cycle**.\n\n"
+         "The rest state at the origin is an **unstable focus**: eigenvalues `0.5 ± 0.87i`, with a "
+         "positive real part.",
+         {"parameters": {"mu": 1.0}, "initial": {"x": 0.1, "x'": 0.0},
+          "open_views": ["phase_plane", "equilibria"]}),
+        ("A big start shrinks to the same cycle",
+         "Now start far out, at `x = 4`. The path spirals *inward*, onto the very same closed curve. "
+         "The cycle attracts from both sides: that is what makes it a stable limit cycle, and why "
+         "the lamp blinks the same way however it is switched on.",
+         {"parameters": {"mu": 1.0}, "initial": {"x": 4.0, "x'": 0.0}, "open_views": ["phase_plane"]}),
+        ("The period of the cycle",
+         "Ask for the cycle: OrbitDesk finds it exactly by shooting and reports its **period**, about "
+         "6.663 at `mu = 1`, a little longer than the `2 pi` of the weak amplifier. Its swing in `x` "
+         "goes from about -2 to +2.",
+         {"parameters": {"mu": 1.0}, "open_views": ["phase_plane", "timeseries"]}),
+        ("A strong amplifier: relaxation",
+         "At `mu = 5` the wave changes shape: long slow stretches where the capacitor creeps, broken "
+         "by sudden jumps where it flips its voltage. This slow-fast shape is a **relaxation "
+         "oscillation**. The period has grown to about 11.6.\n\n"
+         "In the phase plane the cycle has sharp corners; the origin is now an **unstable node** "
+         "(two real positive eigenvalues).",
+         {"parameters": {"mu": 5.0}, "open_views": ["timeseries", "phase_plane"]}),
+    ])
+
+# ---------------------------------------------------------------- a chemical clock
+
+CLOCK_REACTION = sample(
+    "clock_reaction.orbitdesk", "Chemical clock in a stirred beaker",
+    """\
+# A stirred beaker is fed steadily with two reagents and the used liquid drains away. Two short-lived
+# substances form inside; an indicator shows their balance as a colour. The beaker may settle to one
+# steady colour, or flash back and forth like a clock.
+# x, y: concentrations of the two short-lived substances (scaled).
+# Brusselator:  x' = a - (b + 1) x + x^2 y,   y' = b x - x^2 y
+
+a = 1 in [0.2, 3]      # feed of the first reagent
+b = 1.5 in [0, 5]      # feed of the second reagent
+
+x' = a - (b + 1)*x + x^2*y
+y' = b*x - x^2*y
+
+x(0) = 1.5
+y(0) = 1
+""",
+    dict(method="dop853", t_end=60.0, samples=6000),
+    {"timeseries": {"series": ["x", "y"]}, "phase_plane": {"x": "x", "y": "y"}, "equilibria": {},
+     "sweep": {"param": "b", "from": 1.0, "to": 3.0, "count": 121, "maxima": "x", "transient": 200.0}},
+    "A reaction that settles or ticks: the Hopf bifurcation of the Brusselator at b = 1 + a^2.",
+    [
+        ("A slow feed: the colour settles",
+         "With `b = 1.5` the two substances swing a few times and settle to a steady mixture: the "
+         "colour stops changing. The steady state is at `x = a`, `y = b / a`.",
+         {"parameters": {"b": 1.5}, "open_views": ["timeseries", "phase_plane"]}),
+        ("Why it settles",
+         "The equilibria view classifies the steady state as a **stable focus**: eigenvalues "
+         "`-0.25 ± 0.97i`. The imaginary part makes it swing, the negative real part makes the "
+         "swings die out.",
+         {"parameters": {"b": 1.5}, "open_views": ["equilibria", "phase_plane"], "selected_equilibrium": 0}),
+        ("A faster feed: the clock ticks",
+         "Raise the feed to `b = 2.5`. Now the swings do not die out: they grow until the mixture "
+         "runs around a closed loop, flashing from one colour to the other every 6.6 time units or "
+         "so. The steady state still exists, but it is an **unstable focus** (`0.25 ± 0.97i`), and "
+         "the path runs away from it onto a **limit cycle**.",
+         {"parameters": {"b": 2.5}, "open_views": ["timeseries", "phase_plane", "equilibria"]}),
+        ("Where the change happens",
+         "The real part of the eigenvalues is `(b - 1 - a^2) / 2`. It crosses zero at "
+         "`b = 1 + a^2`, which is 2 for `a = 1`. There the steady state loses its stability and a "
+         "small cycle is born around it: a **Hopf bifurcation**.\n\n"
+         "The sweep plots the peaks of `x` for feeds from 1 to 3, after a long settling time. Left of "
+         "`b = 2` the swings have died out: any peaks left sit at the steady value `x = a = 1`. Right "
+         "of it the peaks rise away from that value as the cycle grows.",
+         {"parameters": {"b": 2.5}, "open_views": ["sweep"]}),
+        ("Move the threshold",
+         "With more of the first reagent, `a = 1.5`, the threshold moves up to `1 + 1.5^2 = 3.25`. "
+         "The same feed `b = 2.5` that ticked before now settles to a steady colour again.",
+         {"parameters": {"a": 1.5, "b": 2.5}, "open_views": ["timeseries", "equilibria"]}),
+    ])
+
+# ---------------------------------------------------------------- predators and prey in a pond
+
+POND_PREDATORS = sample(
+    "pond_predators.orbitdesk", "Water fleas and fish in a garden pond",
+    """\
+# A garden pond holds water fleas, which graze on algae, and small fish, which eat the fleas.
+# Counts in hundreds. Without fish the fleas grow until the algae cannot feed more of them.
+# Lotka-Volterra equations with logistic growth of the prey.
+
+growth = 1 in [0, 3]          # growth rate of the fleas when they are few
+capacity = 8 in [1, 30]       # the most fleas the pond can feed
+attack = 0.5 in [0, 2]        # how fast one fish finds and eats fleas
+efficiency = 0.4 in [0, 1]    # new fish per flea eaten
+death = 0.6 in [0, 3]         # death rate of the fish
+
+fleas' = growth*fleas*(1 - fleas/capacity) - attack*fleas*fish
+fish' = efficiency*attack*fleas*fish - death*fish
+
+fleas(0) = 4
+fish(0) = 1
+""",
+    dict(method="dop853", t_end=120.0, samples=6000),
+    {"timeseries": {"series": ["fleas", "fish"]},
+     "phase_plane": {"x": "fleas", "y": "fish", "nullclines": True, "field": True}, "equilibria": {}},
+    "Fleas and the fish that eat them: nullclines, kinds of equilibria, and what enrichment does.",
+    [
+        ("Fleas alone",
+         "With no fish (`fish(0) = 0`) the fleas grow quickly at first, then more slowly as food runs "
+         "short, and level off at the pond's **capacity**, 8 hundred.",
+         {"initial": {"fleas": 0.5, "fish": 0.0}, "open_views": ["timeseries"]}),
+        ("Add a few fish",
+         "Put in twenty fish (`fish(0) = 0.2`). They feast, multiply, eat the fleas down, then starve "
+         "back. The booms and busts come round again and again, each a little smaller, until both "
+         "counts settle.",
+         {"initial": {"fleas": 8.0, "fish": 0.2}, "open_views": ["timeseries", "phase_plane"]}),
+        ("Nullclines: where a count stands still",
+         "The phase plane draws the **nullclines**, the curves where one count is momentarily "
+         "not changing:\n\n"
+         "- fleas stand still on the axis `fleas = 0` and on the falling line "
+         "`fish = (growth / attack) (1 - fleas / capacity)`;\n"
+         "- fish stand still on the axis `fish = 0` and on the upright line "
+         "`fleas = death / (efficiency attack)`, here 3.\n\n"
+         "Where a fleas-nullcline meets a fish-nullcline, nothing changes: an equilibrium. Between "
+         "them the arrows show the turning, counter-clockwise motion of the booms and busts.",
+         {"initial": {"fleas": 8.0, "fish": 0.2}, "open_views": ["phase_plane"]}),
+        ("Three kinds of rest",
+         "The equilibria view finds three rest states:\n\n"
+         "- the empty pond `(0, 0)`: a **saddle**, since fleas put in alone grow away from it;\n"
+         "- fleas only `(8, 0)`: also a **saddle**, since a few fish added to it multiply;\n"
+         "- both together `(3, 1.25)`: a **stable focus**, eigenvalues `-0.19 ± 0.58i`. The complex "
+         "pair is the boom-and-bust swing; the negative real part damps it.",
+         {"initial": {"fleas": 8.0, "fish": 0.2}, "open_views": ["equilibria", "phase_plane"],
+          "selected_equilibrium": 1}),
+        ("A richer pond",
+         "Feed the algae so the pond can hold 20 hundred fleas. Surprisingly, the fleas at the shared "
+         "rest state stay at 3: more food only means **more fish** (1.7 instead of 1.25). The swings "
+         "now die out much more slowly (real part -0.075): enriching the pond makes it *less* steady.",
+         {"parameters": {"capacity": 20.0}, "initial": {"fleas": 8.0, "fish": 0.2},
+          "open_views": ["timeseries", "equilibria"]}),
+        ("Fish that die too fast",
+         "Raise the fish death rate to 2. Fish now need 10 hundred fleas to break even, more than "
+         "the pond can hold, and they die out. The state with fleas only, `(8, 0)`, has turned into a "
+         "**stable node**; the shared state has moved to a negative number of fish, outside the "
+         "meaningful part of the plane.",
+         {"parameters": {"death": 2.0}, "initial": {"fleas": 4.0, "fish": 1.0},
+          "open_views": ["timeseries", "phase_plane", "equilibria"]}),
+    ])
+
+# ---------------------------------------------------------------- insect generations
+
+INSECT_GENERATIONS = sample(
+    "insect_generations.orbitdesk", "Moths counted year by year",
+    """\
+# Moths in an orchard breed once a year and the adults die before the next summer. x is this year's
+# count as a fraction of the most the orchard could ever hold. Crowded larvae go hungry, so a big year
+# is followed by fewer offspring per moth.
+# Logistic map:  x[n+1] = r x[n] (1 - x[n])
+
+r = 2.8 in [2.5, 4]     # offspring per moth that survive to breed, when moths are few
+
+x[n+1] = r*x*(1 - x)
+x[0] = 0.1
+""",
+    dict(steps=300),
+    {"timeseries": {"series": ["x"], "style": "dots"}, "equilibria": {},
+     "sweep": {"param": "r", "from": 2.5, "to": 4.0, "count": 600, "transient": 500, "samples": 200},
+     "lyapunov": {"steps": 5000, "transient": 500}},
+    "A yearly count that settles, alternates, doubles its period and turns chaotic: the logistic map.",
+    [
+        ("A steady population",
+         "With `r = 2.8` the count overshoots and undershoots for a few years and then settles at "
+         "`1 - 1/r`, about 0.643. That value is a **stable fixed point** of the map: its multiplier "
+         "`2 - r = -0.8` is inside the unit circle, and being negative it makes the approach zig-zag.",
+         {"parameters": {"r": 2.8}, "open_views": ["timeseries", "equilibria"]}),
+        ("Boom and bust",
+         "At `r = 3.2` the count no longer settles. Good and bad years take turns for ever: a cycle "
+         "of **period 2**. The fixed point is still there, but its multiplier `2 - r` has passed -1, "
+         "so it repels; the change happened at `r = 3`.",
+         {"parameters": {"r": 3.2}, "open_views": ["timeseries", "equilibria"]}),
+        ("Period four",
+         "At `r = 3.5` the pattern repeats only every four years. Each doubling comes sooner than the "
+         "last, the gaps shrinking by a nearly constant factor.",
+         {"parameters": {"r": 3.5}, "open_views": ["timeseries"]}),
+        ("The orbit diagram",
+         "The sweep runs 600 values of `r` from 2.5 to 4, drops the first 500 years of each, and "
+         "plots the next 200 counts above their `r`. Read it from left to right:\n\n"
+         "1. one branch: a steady count;\n"
+         "2. splits into 2, 4, 8, ...: the **period-doubling cascade**, ending near `r = 3.57`;\n"
+         "3. bands of scattered dots: chaos;\n"
+         "4. clear gaps, the largest starting at `r = 1 + sqrt(8)`, about 3.83: **windows** of "
+         "periodic behaviour inside the chaos.",
+         {"parameters": {"r": 3.5}, "open_views": ["sweep"]}),
+        ("A window of period three",
+         "At `r = 3.83`, in the middle of the chaotic range, the count settles into a cycle of "
+         "**period 3**: low, middle, high, and again.",
+         {"parameters": {"r": 3.83}, "open_views": ["timeseries", "sweep"]}),
+        ("Chaos, measured",
+         "At `r = 3.9` the counts never repeat, and two orchards whose counts differ by one moth in "
+         "a million drift apart within a few dozen years.\n\n"
+         "The **Lyapunov exponent** gives the average rate of that drift per year: positive here "
+         "(about 0.5), negative in the steady and periodic ranges. At `r = 4` it is exactly "
+         "`ln 2`, about 0.693: the gap doubles every year on average.",
+         {"parameters": {"r": 3.9}, "open_views": ["timeseries", "lyapunov"]}),
+    ])
+
+# ---------------------------------------------------------------- a swinging pendulum
+
+G = 9.81
+PENDULUM = sample(
+    "pendulum.orbitdesk", "A swinging pendulum",
+    """\
+# A weight on a light, stiff rod swings from a pivot. Typed as one second-order equation;
+# OrbitDesk reduces it to first order with the states theta and theta'.
+# theta: angle from hanging straight down (radians); theta': angular speed (radians per second).
+
+g = 9.81 in [1, 20]     # gravity (m/s^2)
+L = 1 in [0.1, 5]       # length of the rod (m)
+c = 0 in [0, 2]         # friction at the pivot (1/s)
+
+theta'' = -(g/L)*sin(theta) - c*theta'
+theta(0) = 0.3
+theta'(0) = 0
+
+energy = theta'^2/2 + (g/L)*(1 - cos(theta))    # per unit of mass times L^2; 0 hanging still
+""",
+    dict(method="dop853", t_end=20.0, samples=4000),
+    {"timeseries": {"series": ["theta"]}, "phase_plane": {"x": "theta", "y": "theta'", "field": True},
+     "equilibria": {}},
+    "A pendulum typed as theta'' = ..., with its energy as a derived quantity and the separatrix.",
+    [
+        ("Small swings",
+         "Released from 0.3 radians (about 17 degrees) the pendulum swings with a period close to "
+         "`2 pi sqrt(L / g)`, about 2.006 s for a one-metre rod. In the phase plane the motion is a "
+         "small closed oval around the resting point.",
+         {"initial": {"theta": 0.3, "theta'": 0.0}, "open_views": ["timeseries", "phase_plane"]}),
+        ("Wide swings take longer",
+         "Released from 2.5 radians (143 degrees) the pendulum lingers near the top of each swing, and "
+         "the period grows to about 3.30 s. The oval in the phase plane has become lemon-shaped.",
+         {"initial": {"theta": 2.5, "theta'": 0.0}, "open_views": ["timeseries", "phase_plane"]}),
+        ("Energy is kept",
+         "Plot the derived quantity **energy** next to the angle. Without friction it is a flat line: "
+         "the swing trades motion for height and back, and nothing is lost. A flat energy curve is "
+         "also a handy check that the solver's tolerances are tight enough.",
+         {"initial": {"theta": 2.5, "theta'": 0.0}, "open_views": ["timeseries"],
+          "views": {"timeseries": {"series": ["theta", "energy"]}}}),
+        ("Over the top",
+         "Give the hanging pendulum a hard push, `theta'(0) = 6.5`. It goes right over the top and keeps "
+         "turning in circles: the angle grows without end, and the path in the phase plane is a wavy "
+         "line instead of a closed oval.",
+         {"initial": {"theta": 0.0, "theta'": 6.5}, "open_views": ["phase_plane", "timeseries"]}),
+        ("The separatrix",
+         "Between swinging and turning lies a single borderline motion with energy exactly `2 g / L`: "
+         "a push of `theta'(0) = 2 sqrt(g / L)`, about 6.264, sends the pendulum creeping up towards "
+         "the top for ever, never quite arriving. In the phase plane this curve, the **separatrix**, "
+         "joins the upside-down positions.\n\n"
+         "The equilibria view shows why: hanging down is a **centre** (the linearisation alone "
+         "cannot settle this; the kept energy does), and standing on end, `theta = pi`, is a "
+         "**saddle**. Try pushes of 6.2 and 6.3 to see the two sides.",
+         {"initial": {"theta": 0.0, "theta'": 6.2}, "open_views": ["phase_plane", "equilibria"]}),
+        ("Friction",
+         "Add friction, `c = 0.3`. Each swing is a little smaller than the one before, the energy "
+         "curve steps down, and the phase-plane path spirals into the resting point, which has "
+         "become a **stable focus**.",
+         {"parameters": {"c": 0.3}, "initial": {"theta": 2.5, "theta'": 0.0},
+          "open_views": ["timeseries", "phase_plane"],
+          "views": {"timeseries": {"series": ["theta", "energy"]}}}),
+    ])
+
+SAMPLES = [SHAKEN_BEAM, CONVECTION_LOOP, RELAXATION_CIRCUIT, CLOCK_REACTION, POND_PREDATORS,
+           INSECT_GENERATIONS, PENDULUM]
+
+
+def main(argv=None) -> int:
+    OUT.mkdir(exist_ok=True)
+    for file, project in SAMPLES:
+        (OUT / file).write_text(dumps(project), encoding="utf-8")
+        print(f"wrote {OUT.name}/{file}: {len(project.walkthrough)} steps")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main(sys.argv))
