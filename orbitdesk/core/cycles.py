@@ -181,7 +181,7 @@ class _Flow:
 def find_cycle(system: CompiledSystem, p=None, guess=None, period_guess: float | None = None,
                section=None, forcing_period: float | None = None, forcing_multiple: int | None = None,
                transient: float | None = None, rtol: float = 1e-10, atol: float = 1e-12,
-               max_iter: int = 40, samples: int = 2001, cancel: CancelToken | None = None,
+               max_iter: int = 40, samples: int = 2001, initial=None, cancel: CancelToken | None = None,
                progress=None) -> Cycle:
     """A periodic orbit of a flow near ``guess`` (state dict or vector; default: the end of a transient run).
 
@@ -189,7 +189,8 @@ def find_cycle(system: CompiledSystem, p=None, guess=None, period_guess: float |
     ((normal, point) of a hyperplane; default through the guess, normal to the flow). Forced flows:
     ``forcing_period`` (default: detected from sin/cos(omega t) terms) and optionally
     ``forcing_multiple`` k (default: tried from the transient's stroboscopic points). Raises
-    CycleError when no orbit is found, ValueError for bad input.
+    CycleError when no orbit is found, ValueError for bad input. ``initial`` is where the transient
+    run starts (default: the model's initial values).
     """
     if system.kind == MAP:
         raise ValueError("this is a map: look for its cycles with a period K (find_map_cycle)")
@@ -197,6 +198,7 @@ def find_cycle(system: CompiledSystem, p=None, guess=None, period_guess: float |
     report = Reporter(progress, cancel)
     flow = _Flow(system, p, rtol, atol, cancel)
     u_guess = _guess_vector(system, guess)
+    start = system.initial if initial is None else np.asarray(initial, dtype=float)
     warnings = []
     if system.nonsmooth:
         warnings.append(NONSMOOTH_WARNING.format(names=", ".join(system.nonsmooth)))
@@ -211,12 +213,12 @@ def find_cycle(system: CompiledSystem, p=None, guess=None, period_guess: float |
         forcing_period = float(forcing_period)
         if not (math.isfinite(forcing_period) and forcing_period > 0):
             raise ValueError("the forcing period must be a positive number")
-        cycle = _forced_cycle(system, p, flow, u_guess, forcing_period, forcing_multiple, transient,
+        cycle = _forced_cycle(system, p, flow, u_guess, start, forcing_period, forcing_multiple, transient,
                               max_iter, samples, report, cancel)
     else:
         if period_guess is not None and not (math.isfinite(period_guess) and period_guess > 0):
             raise ValueError("the period guess must be a positive number")
-        cycle = _autonomous_cycle(system, p, flow, u_guess, period_guess, section, transient, max_iter,
+        cycle = _autonomous_cycle(system, p, flow, u_guess, start, period_guess, section, transient, max_iter,
                                   samples, report, cancel)
     cycle.warnings = warnings + cycle.warnings
     report(1.0)
@@ -244,14 +246,14 @@ def _run(system, p, u0, t_end, samples, cancel, report, events=()):
     return run
 
 
-def _autonomous_cycle(system, p, flow, u_guess, period_guess, section, transient, max_iter, samples,
+def _autonomous_cycle(system, p, flow, u_guess, start, period_guess, section, transient, max_iter, samples,
                       report, cancel) -> Cycle:
     n = system.n_states
     transient = 200.0 if transient is None else float(transient)
     if period_guess is not None:
         transient = max(transient, 30 * period_guess)
     if u_guess is None:
-        run = _run(system, p, system.initial, transient, 4000, cancel, report.part(0.0, 0.3))
+        run = _run(system, p, start, transient, 4000, cancel, report.part(0.0, 0.3))
         u_ref, where = run.final_state.copy(), "the run from the initial values settles"
     else:
         u_ref, where = u_guess, "the guess is"
@@ -350,13 +352,13 @@ def _return_time(system, p, u_ref, normal, point, t_max, cancel, report) -> floa
     return float(times[near[0]] if near.size else times[int(np.argmin(distances))])
 
 
-def _forced_cycle(system, p, flow, u_guess, Tf, k_given, transient, max_iter, samples, report,
+def _forced_cycle(system, p, flow, u_guess, start, Tf, k_given, transient, max_iter, samples, report,
                   cancel) -> Cycle:
     n = system.n_states
     transient = max(200.0, 50 * Tf) if transient is None else float(transient)
     periods = max(int(math.ceil(transient / Tf)), 2 * MAX_FORCING_MULTIPLE)
     per = 8
-    start = system.initial if u_guess is None else u_guess
+    start = start if u_guess is None else u_guess
     run = _run(system, p, start, periods * Tf, periods * per + 1, cancel, report.part(0.0, 0.3))
     strobe = run.states[:, ::per]
     if k_given is not None:
@@ -460,12 +462,13 @@ def _cycle(system, T, u0, time, orbit, multipliers, trivial, stable, M, Tf, k, i
 
 # ---------------------------------------------------------------- maps
 def find_map_cycle(system: CompiledSystem, p=None, period_k: int = 1, guess=None, transient: int = 1000,
-                   starts: int = 40, max_iter: int = 60, cancel: CancelToken | None = None,
+                   starts: int = 40, max_iter: int = 60, initial=None, cancel: CancelToken | None = None,
                    progress=None) -> MapCycle:
     """A cycle of minimal period ``period_k`` of a map, by Newton on f^k(u) - u.
 
     Starts: the guess, then points of a transient orbit from the guess (or the initial values), then
-    quasi-random points in that orbit's bounding box. Raises CycleError when none converges.
+    quasi-random points in that orbit's bounding box (the orbit starts at ``initial``, default the
+    model's initial values, when no guess is given). Raises CycleError when none converges.
     """
     if system.kind != MAP:
         raise ValueError("this is a flow: look for its periodic orbits with find_cycle")
@@ -478,7 +481,8 @@ def find_map_cycle(system: CompiledSystem, p=None, period_k: int = 1, guess=None
     report = Reporter(progress, cancel)
     n = system.n_states
     u_guess = _guess_vector(system, guess)
-    run = simulate(system, RunSettings(steps=int(transient)), system.initial if u_guess is None else u_guess,
+    start = system.initial if initial is None else np.asarray(initial, dtype=float)
+    run = simulate(system, RunSettings(steps=int(transient)), start if u_guess is None else u_guess,
                    p, cancel=cancel)
     if run.status == "cancelled":
         raise Cancelled("cancelled")
