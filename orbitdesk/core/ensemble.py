@@ -1,8 +1,8 @@
 """Ensembles: many initial conditions and/or parameter sets advanced together.
 
 Every member is a column of ``U`` (shape ``(n_states, N)``); parameters are ``P`` of shape
-``(n_params,)`` (shared) or ``(n_params, N)`` (one set per member). Each stage evaluates
-``system.rhs_vec`` once for all members; there is no Python loop over members.
+``(n_params,)`` (shared) or ``(n_params, N)`` (one set per member). Each stage evaluates the
+system's generated vector evaluator once for all members; there is no Python loop over members.
 
 * ``rk4_ensemble``: fixed-step classical Runge-Kutta, in place, with an ``observer`` hook so samplers
   (strobe, maxima, section crossings) see every step without whole trajectories being stored.
@@ -65,6 +65,50 @@ def member_params(system, P, n_members: int) -> np.ndarray:
     return P
 
 
+def _shared_rows(P):
+    """Parameter rows as numbers where every member has the same value (cheaper to evaluate)."""
+    return [float(row[0]) if row.size and np.all(row == row[0]) else row for row in P]
+
+
+def member_rhs(system, P):
+    """``f(t, U) -> (n, N)`` for the members' parameters ``P``; call it under ``np.errstate(all="ignore")``.
+
+    A parameter every member shares is passed to the generated evaluator as a number, so expressions
+    such as ``cos(omega*t)`` are computed once instead of once per member."""
+    P = np.asarray(P, dtype=float)
+    fn = getattr(system, "_f_vector", None)
+    if P.ndim == 1 or fn is None:
+        return lambda t, U: system.rhs_vec(t, U, P)
+    rows = _shared_rows(P)
+
+    def rhs(t, U):
+        return _stacked(fn(t, *U, *rows), U.shape[1:])
+
+    return rhs
+
+
+def member_jac(system, P):
+    """``J(t, U) -> (n, n, N)`` like ``member_rhs``."""
+    P = np.asarray(P, dtype=float)
+    fn = getattr(system, "_jac_vector", None)
+    if P.ndim == 1 or fn is None:
+        return lambda t, U: system.jac_vec(t, U, P)
+    rows = _shared_rows(P)
+    n = system.n_states
+
+    def jac(t, U):
+        return _stacked(fn(t, *U, *rows), U.shape[1:]).reshape((n, n) + U.shape[1:])
+
+    return jac
+
+
+def _stacked(values, shape):
+    out = np.empty((len(values),) + tuple(shape))
+    for i, v in enumerate(values):
+        out[i] = v
+    return out
+
+
 def _states(system, U0) -> np.ndarray:
     U = np.array(U0, dtype=float)  # a copy: the ensemble updates it in place
     if U.ndim == 1:
@@ -120,10 +164,8 @@ def rk4_ensemble(system, U0, P=None, t0: float = 0.0, dt: float = 0.01, n_steps:
     U = _states(system, U0)
     P = member_params(system, P, U.shape[1])
 
-    def fun(t, Y):
-        return system.rhs_vec(t, Y, P)
-
-    return rk4_run(fun, U, t0, dt, n_steps, observer, Reporter(progress, cancel), bound, U.shape[0])
+    return rk4_run(member_rhs(system, P), U, t0, dt, n_steps, observer, Reporter(progress, cancel), bound,
+                   U.shape[0])
 
 
 def rk4_run(fun, Y, t0, dt, n_steps, observer, report, bound, check_rows) -> EnsembleResult:
@@ -187,10 +229,7 @@ def iterate_ensemble(system, U0, P=None, n_steps: int = 1000, observer=None, can
     U = _states(system, U0)
     P = member_params(system, P, U.shape[1])
 
-    def fun(n, Y):
-        return system.rhs_vec(n, Y, P)
-
-    return iterate_run(fun, U, n0, n_steps, observer, Reporter(progress, cancel), bound, U.shape[0])
+    return iterate_run(member_rhs(system, P), U, n0, n_steps, observer, Reporter(progress, cancel), bound, U.shape[0])
 
 
 def iterate_run(fun, Y, n0, n_steps, observer, report, bound, check_rows) -> EnsembleResult:
@@ -272,12 +311,9 @@ def dopri5_ensemble(system, U0, P=None, t0: float = 0.0, t_end=1.0, sample_times
 
     # working set: members still running
     idx = np.arange(N)
-    Pw = P
     shared_p = P.ndim == 1
 
-    def fun(t, Y):
-        return system.rhs_vec(t, Y, Pw)
-
+    fun = member_rhs(system, P)
     Y = U
     t = np.full(N, float(t0))
     tend = t_end.copy()
@@ -357,7 +393,7 @@ def dopri5_ensemble(system, U0, P=None, t0: float = 0.0, t_end=1.0, sample_times
                 K = K[:, :, keep].copy()
                 t, tend, h, nxt, last_rejected = t[keep], tend[keep], h[keep], nxt[keep], last_rejected[keep]
                 if not shared_p:
-                    Pw = P[:, idx]
+                    fun = member_rhs(system, P[:, idx])
             if idx.size and iteration % 16 == 0:
                 report(1.0 - float(np.max((tend - t) * direction)) / total)
     return EnsembleResult(time=time_out, states=states_out, status=status, steps=accepted, rejected=rejected,

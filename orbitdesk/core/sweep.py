@@ -26,7 +26,7 @@ from dataclasses import asdict, dataclass, field, replace
 import numpy as np
 
 from .chunks import compiled_system, run_chunks, split
-from .ensemble import OK, iterate_run, rk4_run
+from .ensemble import OK, iterate_run, member_jac, member_rhs, rk4_run
 from .progress import Reporter
 from .system import MAP
 
@@ -362,17 +362,17 @@ def _start_vector(n):
 def _augmented(system, P, U, lyapunov):
     """Initial Y and the step function, with perturbation rows when the exponent is wanted."""
     n, M = U.shape
-    flow = system.kind != MAP
+    rhs = member_rhs(system, P)
     if not lyapunov:
-        return U.copy(), (lambda t, Y: system.rhs_vec(t, Y, P)), None
-    smooth = system.smooth
-    if smooth:
+        return U.copy(), rhs, None
+    if system.smooth:
+        jac = member_jac(system, P)
         V0 = np.repeat(_start_vector(n)[:, None], M, axis=1)
 
         def fun(t, Y):
             out = np.empty_like(Y)
-            out[:n] = system.rhs_vec(t, Y[:n], P)
-            out[n:] = np.einsum("ijm,jm->im", system.jac_vec(t, Y[:n], P), Y[n:])
+            out[:n] = rhs(t, Y[:n])
+            out[n:] = np.einsum("ijm,jm->im", jac(t, Y[:n]), Y[n:])
             return out
 
         return np.vstack([U, V0]), fun, None
@@ -380,11 +380,11 @@ def _augmented(system, P, U, lyapunov):
 
     def fun(t, Y):
         out = np.empty_like(Y)
-        out[:n] = system.rhs_vec(t, Y[:n], P)
-        out[n:] = system.rhs_vec(t, Y[n:], P)
+        out[:n] = rhs(t, Y[:n])
+        out[n:] = rhs(t, Y[n:])
         return out
 
-    return np.vstack([U, W0]), fun, ((lambda t, W: system.rhs_vec(t, W, P)) if flow else None)
+    return np.vstack([U, W0]), fun, (rhs if system.kind != MAP else None)
 
 
 def run_members(system, P, U0, settings: SweepSettings, cancel=None, progress=None):
