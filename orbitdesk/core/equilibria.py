@@ -412,8 +412,9 @@ def find_equilibria(system: CompiledSystem, p=None, box: dict | None = None, sta
     for k, x0 in enumerate(candidates):
         newton_report(k / len(candidates))
         try:
-            sol = root(G, x0, jac=DG, method="hybr")
-            refined = _refine(G, DG, sol.x)
+            with np.errstate(all="ignore"):
+                sol = root(G, x0, jac=DG, method="hybr")
+                refined = _refine(G, DG, sol.x)
         except (_Undefined, np.linalg.LinAlgError, ValueError, FloatingPointError):
             continue
         if _accept(refined, f_scale) and _inside(refined[0], lows, highs):
@@ -426,9 +427,27 @@ def find_equilibria(system: CompiledSystem, p=None, box: dict | None = None, sta
         eq = _equilibrium(system, p, x, method)
         if eq is not None:
             results.append(eq)
+    results = _thin_continuum(results, notes)
     if not results:
         notes.append("no equilibrium found in the search box")
     return Equilibria(results, notes, full_box)
+
+
+def _thin_continuum(results, notes, keep=5, limit=10):
+    """Many points with a zero eigenvalue from the Newton search lie on a curve or surface of
+    equilibria: list a few of them, say so, and keep every isolated point."""
+    def singular(eq):
+        zero = np.abs(eq.eigenvalues - (1.0 if eq.is_map else 0.0)) <= 1e-9 * max(1.0, float(np.max(np.abs(eq.eigenvalues))))
+        return bool(np.any(zero)) and eq.method == NEWTON
+    loose = [eq for eq in results if singular(eq)]
+    if len(loose) <= limit:
+        return results
+    shown = {id(loose[int(k)]) for k in np.linspace(0, len(loose) - 1, keep).round()}
+    message = (f"{len(loose)} of the points found are not isolated (the Jacobian is singular there): the "
+               f"equilibria form a curve or surface; {len(shown)} of them are listed")
+    if message not in notes:
+        notes.append(message)
+    return [eq for eq in results if not singular(eq) or id(eq) in shown]
 
 
 def _inside(x, lows, highs) -> bool:

@@ -191,3 +191,12 @@ def test_to_dict_contract():
     assert set(d) == {"state", "eigenvalues", "kind", "stable", "stable_dim", "unstable_dim", "method", "warnings"}
     assert d["state"] == {"x": pytest.approx(1.0), "y": pytest.approx(2.0)}
     assert all(set(v) == {"re", "im"} for v in d["eigenvalues"])
+
+
+def test_line_of_equilibria_is_reported_as_such():
+    # x' = x y, y' = -y: every point of the line y = 0 is an equilibrium (closed form)
+    eqs = find_equilibria(compile_model("x' = x*y\ny' = -y\n"))
+    assert 1 <= len(eqs) <= 5
+    assert all(e.vector[1] == 0 and e.kind == "non-hyperbolic" for e in eqs)
+    assert any("curve or surface" in note for note in eqs.notes)
+    assert len({round(e.vector[0], 6) for e in eqs}) == len(eqs)
