@@ -7,7 +7,7 @@ from dataclasses import dataclass
 
 from PySide6.QtCore import QEvent, QPoint, QRect, QSize, Qt, Signal
 from PySide6.QtGui import (QAction, QColor, QFontDatabase, QIcon, QKeySequence, QPainter, QPainterPath,
-                           QPalette, QPen, QPixmap, QPolygonF, QTextCharFormat, QTextCursor, QTextFormat)
+                           QPalette, QPen, QPixmap, QPolygonF, QTextCharFormat, QTextCursor)
 from PySide6.QtWidgets import (QListView, QListWidget, QListWidgetItem, QPlainTextEdit, QStyledItemDelegate,
                                QTextEdit, QToolTip, QWidget)
 
@@ -122,7 +122,8 @@ class EquationEditor(QPlainTextEdit):
         self._numbers = _LineNumberArea(self)
         self.blockCountChanged.connect(self._update_margin)
         self.updateRequest.connect(self._scroll_numbers)
-        self.cursorPositionChanged.connect(self._refresh_selections)
+        self.cursorPositionChanged.connect(self._on_cursor_moved)
+        self._current_block = 0
         self._update_margin()
         self._build_formats()
 
@@ -395,29 +396,40 @@ class EquationEditor(QPlainTextEdit):
                 fmt.setBackground(tint)
             self._formats[severity] = fmt
 
+    def _on_cursor_moved(self) -> None:
+        number = self.textCursor().blockNumber()
+        if number != self._current_block:
+            self._current_block = number
+            self.viewport().update()
+            self._numbers.update()
+
     def _refresh_selections(self) -> None:
         selections = []
-        line = QTextEdit.ExtraSelection()
-        base = self.palette().color(QPalette.ColorRole.Base)
-        tint = self.palette().color(QPalette.ColorRole.Highlight)
-        current = QColor(base)
-        mix = 0.07
-        current.setRgbF(base.redF() * (1 - mix) + tint.redF() * mix, base.greenF() * (1 - mix) + tint.greenF() * mix,
-                        base.blueF() * (1 - mix) + tint.blueF() * mix)
-        fmt = QTextCharFormat()
-        fmt.setBackground(current)
-        fmt.setProperty(QTextFormat.Property.FullWidthSelection, True)
-        line.format = fmt
-        cursor = self.textCursor()
-        cursor.clearSelection()
-        line.cursor = cursor
-        selections.append(line)
         for mark in self._marks:
             sel = QTextEdit.ExtraSelection()
             sel.cursor = mark.cursor
             sel.format = self._formats.get(mark.diagnostic.severity, self._formats[INFO])
             selections.append(sel)
         self.setExtraSelections(selections)
+
+    def paintEvent(self, event) -> None:
+        # The current line gets a faint tint, painted under the text (a full-width extra
+        # selection would hide it behind coloured text).
+        block = self.textCursor().block()
+        rect = self.blockBoundingGeometry(block).translated(self.contentOffset()).toRect()
+        if rect.intersects(event.rect()):
+            painter = QPainter(self.viewport())
+            painter.fillRect(QRect(0, rect.top(), self.viewport().width(), rect.height()), self._current_line_colour())
+            painter.end()
+        super().paintEvent(event)
+
+    def _current_line_colour(self) -> QColor:
+        base = self.palette().color(QPalette.ColorRole.Base)
+        tint = self.palette().color(QPalette.ColorRole.Highlight)
+        mix = 0.07
+        return QColor.fromRgbF(base.redF() * (1 - mix) + tint.redF() * mix,
+                               base.greenF() * (1 - mix) + tint.greenF() * mix,
+                               base.blueF() * (1 - mix) + tint.blueF() * mix)
 
     def line_number_width(self) -> int:
         digits = max(2, len(str(self.blockCount())))
@@ -519,6 +531,7 @@ class DiagnosticsList(QListWidget):
         self.setSpacing(2)
         self.setResizeMode(QListView.ResizeMode.Adjust)
         self.setItemDelegate(_TopAligned(self))
+        self.setIconSize(QSize(14, 14))
         self.itemClicked.connect(self._activate)
         self.itemActivated.connect(self._activate)
         session.modelParsed.connect(self.on_model_parsed)

@@ -2,8 +2,7 @@
 
 import os
 
-import pytest
-from PySide6.QtCore import QPoint, Qt
+from PySide6.QtCore import Qt
 from PySide6.QtGui import QTextCharFormat, QTextCursor
 from PySide6.QtWidgets import QSplitter
 
@@ -223,7 +222,7 @@ def test_screenshot_editor_with_diagnostics(qtbot, session, artifacts):
     text = LORENZ.replace("beta*z", "beta*zz").replace("rho = 28 in [0, 50]", "rho = 28 in [0, 50]\nscale = abs(x)")
     session.load_project(Project(model=text))
     qtbot.waitUntil(lambda: bool(errors(editor)), timeout=3000)
-    qtbot.wait(50)
+    qtbot.wait(150)  # let the list lay out its wrapped rows
     path = os.path.join(artifacts, "editor.png")
     assert splitter.grab().save(path)
     assert listing.count() == len(editor.diagnostics()) >= 2

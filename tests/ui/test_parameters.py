@@ -189,7 +189,7 @@ def test_screenshots_of_the_panel_and_of_all_three_together(qtbot, session, arti
     editor.setTextCursor(cursor)
     qtbot.keyClicks(editor, "z")  # beta*z -> beta*zz
     qtbot.waitUntil(lambda: "error" in readback.note_text(), timeout=3000)
-    qtbot.wait(50)
+    qtbot.wait(150)
     assert splitter.grab().save(os.path.join(artifacts, "panels_error.png"))
     assert listing.count() >= 1 and "zz" in listing.item(0).text()
     assert panel.row("rho").spin.value() == 24.5  # the last valid system's controls stay
