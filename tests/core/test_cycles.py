@@ -208,3 +208,12 @@ def test_wrong_kind_and_cancel():
     token.cancel()
     with pytest.raises(Cancelled):
         find_cycle(compile_model(CIRCLE), cancel=token)
+
+
+def test_explicit_section_and_progress():
+    # the cycle r = 1 of the circle system crosses the section y = 0 upwards at (1, 0) (closed form)
+    seen = []
+    cycle = find_cycle(compile_model(CIRCLE), guess={"x": 0.9, "y": 0.0}, period_guess=6.0,
+                       section=([0.0, 1.0], [0.0, 0.0]), progress=seen.append)
+    assert cycle.state["x"] == pytest.approx(1.0, abs=1e-9) and abs(cycle.state["y"]) < 1e-12
+    assert seen == sorted(seen) and seen[-1] == pytest.approx(1.0)

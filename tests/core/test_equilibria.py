@@ -200,3 +200,14 @@ def test_line_of_equilibria_is_reported_as_such():
     assert all(e.vector[1] == 0 and e.kind == "non-hyperbolic" for e in eqs)
     assert any("curve or surface" in note for note in eqs.notes)
     assert len({round(e.vector[0], 6) for e in eqs}) == len(eqs)
+
+
+def test_search_from_a_worker_thread():
+    # the app runs analyses on worker threads; the exact solve's child process must work from there
+    import threading
+
+    out = {}
+    thread = threading.Thread(target=lambda: out.setdefault("eqs", find_equilibria(compile_model(LORENZ))))
+    thread.start()
+    thread.join(60)
+    assert len(out["eqs"]) == 3 and {e.method for e in out["eqs"]} == {"exact+newton"}
