@@ -1,0 +1,121 @@
+"""``orbitdesk export PATH (--latex [--standalone] | --script | --report) [-o FILE]``: the model as
+LaTeX, a standalone Python script reproducing the run, or an HTML report. Prints to stdout without -o."""
+
+from __future__ import annotations
+
+import copy
+import io
+import os
+import sys
+
+from orbitdesk.core.engine import simulate
+from orbitdesk.core.project import ParameterSetting, Project
+
+from .common import CommandError, add_value_options, load_system, read_source, values_for
+from .run import settings_for
+
+
+def register(sub):
+    parser = sub.add_parser("export", help="the model as LaTeX, a standalone Python script or an HTML report")
+    parser.add_argument("path")
+    what = parser.add_mutually_exclusive_group(required=True)
+    what.add_argument("--latex", action="store_true", help="the model's equations and values as LaTeX")
+    what.add_argument("--script", action="store_true", help="a Python script (numpy, scipy) reproducing the run")
+    what.add_argument("--report", action="store_true", help="a self-contained HTML report")
+    parser.add_argument("--standalone", action="store_true", help="with --latex: a complete document")
+    parser.add_argument("-o", "--output", metavar="FILE", help="write to FILE instead of printing")
+    add_value_options(parser)
+    parser.set_defaults(handler=run)
+
+
+def _project_for(source, system, p, u0) -> Project:
+    """The project to export (a bare model file becomes one) with the effective values filled in."""
+    project = copy.deepcopy(source.project) if source.project is not None else Project(
+        name=source.path.stem, model=source.text)
+    for name, value in zip(system.parameters, p):
+        old = project.parameters.get(name)
+        lo, hi = system.param_ranges.get(name, (None, None))
+        project.parameters[name] = ParameterSetting(float(value), old.lo if old else lo, old.hi if old else hi)
+    project.initial = {name: float(v) for name, v in zip(system.states, u0)}
+    return project
+
+
+def _equilibria(system, p):
+    if not system.autonomous:
+        return None
+    try:
+        from orbitdesk.core.equilibria import find_equilibria
+    except ModuleNotFoundError:
+        return None
+    try:
+        return find_equilibria(system, p=p, exact_timeout=2.0)
+    except ValueError:
+        return None
+
+
+def _figures(system, project, settings, u0, p) -> dict:
+    """A time-series figure when matplotlib is installed; none otherwise (the app passes its own views)."""
+    try:
+        import matplotlib
+        matplotlib.use("Agg")
+        import matplotlib.pyplot as plt
+    except ImportError:
+        return {}
+    run = simulate(system, settings, u0, p)
+    figure, axes = plt.subplots(figsize=(8, 3.6), dpi=110)
+    for name in system.states:
+        axes.plot(run.time, run.series(name), linewidth=1, label=name)
+    axes.set_xlabel(system.time_name)
+    axes.legend(frameon=False)
+    figure.tight_layout()
+    buffer = io.BytesIO()
+    figure.savefig(buffer, format="png")
+    plt.close(figure)
+    return {"Time series of the stored run": buffer.getvalue()}
+
+
+def _write(text: str, output: str | None) -> None:
+    if output is None:
+        sys.stdout.write(text)
+        return
+    try:
+        with open(output, "w", encoding="utf-8", newline="\n") as handle:
+            handle.write(text)
+    except OSError as err:
+        raise CommandError(f"cannot write {output}: {err.strerror or err}") from None
+    if output.endswith(".py"):
+        try:
+            os.chmod(output, 0o755)
+        except OSError:
+            pass
+
+
+def run(args) -> int:
+    if args.standalone and not args.latex:
+        raise CommandError("--standalone goes with --latex")
+    source = read_source(args.path)
+    system = load_system(source)
+    p, u0 = values_for(system, source, args.set, args.init)
+    title = source.project.name if source.project is not None else source.path.stem
+    if args.latex:
+        from orbitdesk.core.export_latex import model_latex
+
+        text = model_latex(system, system.param_dict(p), dict(zip(system.states, map(float, u0))),
+                           standalone=args.standalone, title=title)
+    elif args.script:
+        from orbitdesk.core.export_script import run_script
+
+        settings = settings_for(source, args)
+        if system.kind != "map" and settings.t_end == settings.t_start:
+            raise CommandError("the stored end time equals the start time")
+        output = os.path.splitext(os.path.basename(args.output))[0] + ".csv" if args.output else "run.csv"
+        text = run_script(system, settings, u0, p, title=title, output=output)
+    else:
+        from orbitdesk.core.report import render_report
+
+        settings = settings_for(source, args)
+        project = _project_for(source, system, p, u0)
+        text = render_report(project, system, _figures(system, project, settings, u0, p),
+                             equilibria=_equilibria(system, p))
+    _write(text, args.output)
+    return 0
