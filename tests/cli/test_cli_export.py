@@ -1,0 +1,95 @@
+"""The command line contract of export."""
+
+import csv
+import subprocess
+import sys
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from orbitdesk.cli import main
+from orbitdesk.core import project as project_module
+from orbitdesk.core.engine import simulate
+from orbitdesk.core.system import compile_model
+
+SAMPLES = Path(__file__).resolve().parents[2] / "sample_projects"
+PENDULUM = "g = 9.81\nL = 1\ntheta'' = -(g/L)*sin(theta)\ntheta(0) = 0.3\n"
+
+
+def run_cli(capsys, *args):
+    code = main([str(a) for a in args])
+    out, err = capsys.readouterr()
+    return code, out, err
+
+
+@pytest.fixture
+def pendulum_file(tmp_path):
+    path = tmp_path / "swing.txt"
+    path.write_text(PENDULUM)
+    return path
+
+
+def test_latex_to_stdout_with_overrides(capsys, pendulum_file):
+    code, out, _ = run_cli(capsys, "export", pendulum_file, "--latex", "--set", "L=2", "--init", "theta=0.5")
+    assert code == 0
+    assert r"\ddot{\theta} &= - \frac{g \sin{\left(\theta \right)}}{L}" in out
+    assert "L &= 2" in out and r"\theta(0) &= 0.5" in out
+
+
+def test_latex_standalone_to_file(capsys, tmp_path):
+    target = tmp_path / "loop.tex"
+    code, out, _ = run_cli(capsys, "export", SAMPLES / "convection_loop.orbitdesk", "--latex", "--standalone",
+                           "-o", target)
+    assert code == 0 and out == ""
+    text = target.read_text()
+    assert r"\section*{Heated convection loop}" in text and r"\end{document}" in text
+
+
+def test_script_from_a_project_reproduces_its_stored_run(capsys, tmp_path):
+    source = SAMPLES / "relaxation_circuit.orbitdesk"
+    target = tmp_path / "buoy.py"
+    code, _, _ = run_cli(capsys, "export", source, "--script", "-o", target, "--set", "mu=2")
+    assert code == 0
+    done = subprocess.run([sys.executable, str(target)], cwd=tmp_path, capture_output=True, text=True, timeout=60)
+    assert done.returncode == 0, done.stderr
+    with open(tmp_path / "buoy.csv", newline="") as handle:  # default output named after the script
+        rows = list(csv.reader(handle))
+    data = np.array(rows[1:], dtype=float)
+    project = project_module.load(source)
+    system = compile_model(project.model)
+    from orbitdesk.cli.run import settings_for
+    from orbitdesk.cli.common import Source
+    settings = settings_for(Source(source, project.model, project), None)
+    reference = simulate(system, settings, p=system.param_vector({"mu": 2.0}),
+                         u0=system.initial_vector(project.initial))
+    assert rows[0] == ["t", "x", "x'"] and data.shape[0] == project.solver.samples
+    assert np.abs(data[:, 1:].T - reference.states).max() < 1e-6
+
+
+def test_report_to_file(capsys, tmp_path):
+    target = tmp_path / "moths.html"
+    code, _, _ = run_cli(capsys, "export", SAMPLES / "insect_generations.orbitdesk", "--report", "-o", target)
+    assert code == 0
+    text = target.read_text()
+    assert "<h1>Moths counted year by year</h1>" in text and "<h2>Walkthrough</h2>" in text
+    assert "A window of period three" in text
+
+
+def test_bad_input_is_refused_cleanly(capsys, tmp_path, pendulum_file):
+    code, _, err = run_cli(capsys, "export", pendulum_file)
+    assert code == 2 and "one of the arguments --latex --script --report is required" in err
+    code, _, err = run_cli(capsys, "export", pendulum_file, "--latex", "--script")
+    assert code == 2 and "not allowed with" in err
+    code, _, err = run_cli(capsys, "export", pendulum_file, "--script", "--standalone")
+    assert code == 1 and "--standalone goes with --latex" in err
+    code, _, err = run_cli(capsys, "export", pendulum_file, "--latex", "--set", "q=1")
+    assert code == 1 and "unknown parameter 'q'" in err
+    broken = tmp_path / "broken.txt"
+    broken.write_text("x' = y +\n")
+    code, _, err = run_cli(capsys, "export", broken, "--report")
+    assert code == 1 and "the model has errors" in err
+    code, _, err = run_cli(capsys, "export", tmp_path / "missing.orbitdesk", "--latex")
+    assert code == 2 and "no such file" in err
+    code, _, err = run_cli(capsys, "export", pendulum_file, "--latex", "-o", tmp_path / "no" / "dir.tex")
+    assert code == 1 and "cannot write" in err
