@@ -43,7 +43,7 @@ class SweepSettings:
     plane: tuple[str, float] | None = None  # the section STATE = VALUE
     direction: int = UP  # crossings with the state rising (+1), falling (-1) or both (0)
     period: float | None = None  # strobe period T
-    transient: float = 100.0  # time (flows) or iterations (maps) discarded first
+    transient: float = 100.0  # time (flows; strobe: rounded up to whole periods) or iterations (maps) dropped
     samples: int = 100  # samples kept per value
     dt: float = 0.01  # RK4 step (strobe: the nearest step dividing T that is not larger)
     duration: float = 500.0  # plane/maxima: longest sampling time after the transient
