@@ -114,7 +114,7 @@ def _chains(segments):
 
     def walk(start):
         chain = [start]
-        prev, current = None, start
+        current = start
         while True:
             nxt = None
             for cand in neighbours[current]:
@@ -126,7 +126,7 @@ def _chains(segments):
             if nxt is None:
                 return chain
             chain.append(nxt)
-            prev, current = current, nxt
+            current = nxt
             if current == start:
                 return chain
 
