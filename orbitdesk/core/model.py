@@ -24,7 +24,7 @@ MAX_MODEL_CHARS = 1_000_000
 MAX_STATEMENTS = 5_000
 MAX_ORDER = 9
 MAX_EXPRESSION_SIZE = 100_000  # nodes of one equation after derived quantities are put in
-SUGGESTION_BUDGET = 100_000  # name comparisons spent on did-you-mean fixes per model
+SUGGESTION_BUDGET = 20_000  # name comparisons spent on did-you-mean fixes per model
 
 FLOW, MAP = "flow", "map"
 
@@ -107,12 +107,17 @@ class _Builder:
         self.diags.append(Diagnostic(line, col, max(end, col + 1), severity, message, fix))
 
     def suggest(self, name, candidates) -> list[str]:
-        """The closest known name (for a did-you-mean fix), within a per-model budget of comparisons."""
+        """The closest of ``candidates()`` to ``name`` (a did-you-mean fix), within a per-model budget.
+
+        The budget bounds the name comparisons spent on one model, so thousands of unknown names
+        among thousands of known ones stay quick; past it, errors simply carry no suggestion.
+        """
         budget = getattr(self, "suggestion_budget", SUGGESTION_BUDGET)
-        if len(candidates) > budget:
+        if budget <= 0:
             return []
-        self.suggestion_budget = budget - len(candidates)
-        return get_close_matches(name, candidates, n=1, cutoff=0.6)
+        names = candidates()
+        self.suggestion_budget = budget - len(names)
+        return get_close_matches(name, names, n=1, cutoff=0.6) if len(names) <= budget else []
 
     # ------------------------------------------------------------ pass 1: statements
     def split_lines(self, text: str) -> list[_Statement]:
@@ -331,7 +336,7 @@ class _Builder:
                 lines[key] = st
         order = self.topological(raw, lines, derived_names)
         resolved: dict[str, sp.Expr] = {}
-        failed: set[str] = set()
+        failed: set[str] = set(getattr(self, "cyclic", ()))  # definitions in a loop are reported already
         sizes: dict = {}
         for key in order:
             expr = raw[key]
@@ -439,8 +444,7 @@ class _Builder:
             if name in self.broken:
                 raise ParseError(f"'{name}' cannot be used: its definition on line {self.broken[name]} has an error",
                                  node.column, node.end)
-            known = list(m.states) + list(m.parameters) + list(derived_names) + list(CONSTANTS)
-            close = self.suggest(name, known)
+            close = self.suggest(name, lambda: [*m.states, *m.parameters, *derived_names, *CONSTANTS])
             fix = f"did you mean '{close[0]}'?" if close else None
             message = f"unknown name '{name}'" + (f"; {fix}" if fix else "")
             raise ParseError(message, node.column, node.end, fix)
@@ -470,6 +474,7 @@ class _Builder:
             stack = [(start, iter(sorted(self.depends.get(start, ()))))]
             state[start] = 1
             path = [start]
+            depth = {start: 0}
             while stack:
                 node, children = stack[-1]
                 advanced = False
@@ -477,11 +482,11 @@ class _Builder:
                     if child not in raw:
                         continue
                     if state.get(child) == 1:
-                        cycle = path[path.index(child):]
-                        self.report_cycle(cycle, lines)
+                        self.report_cycle(path[depth[child]:], lines)
                         continue
                     if child not in state:
                         state[child] = 1
+                        depth[child] = len(path)
                         path.append(child)
                         stack.append((child, iter(sorted(self.depends.get(child, ())))))
                         advanced = True
@@ -495,13 +500,15 @@ class _Builder:
         return [k for k in order if k not in bad]
 
     def report_cycle(self, cycle, lines):
-        reported = getattr(self, "cyclic", set())
-        self.cyclic = reported | set(cycle)
+        if not hasattr(self, "cyclic"):
+            self.cyclic = set()
+        new = [key for key in cycle if key not in self.cyclic]
+        if not new:
+            return  # one diagnostic per definition, however many loops pass through it
+        self.cyclic.update(new)
         names = [k[3:] + "'" * self.model.typed_order.get(k[3:], 0) if k.startswith("eq:") else k for k in cycle]
         loop = " -> ".join(names + [names[0]])
-        for key in cycle:
-            if key in reported:
-                continue  # one diagnostic per definition, however many loops pass through it
+        for key in new:
             st = lines[key]
             self.add(st.line, st.lhs_col, st.lhs_end, ERROR, f"these definitions depend on each other in a loop: {loop}")
 
@@ -522,7 +529,7 @@ class _Builder:
                 continue
             target = derivative_name(st.name, st.primes) if m.kind == FLOW else st.name
             if target not in m.states:
-                close = self.suggest(target, m.states)
+                close = self.suggest(target, lambda: m.states)
                 fix = f"did you mean '{close[0]}'?" if close else None
                 self.add(st.line, st.lhs_col, st.lhs_end, ERROR,
                          f"initial value for '{target}', which is not a state" + (f"; {fix}" if fix else ""), fix)

@@ -120,11 +120,11 @@ def _checked_power(base: sp.Expr, exponent: sp.Expr, node) -> sp.Expr:
         raise _too_large(node)
     if base.is_Number:
         exact = exponent.is_Integer and abs(int(exponent)) <= EXACT_POWER_LIMIT
-        result = sp.Pow(base, exponent) if exact else sp.Pow(sp.Float(b), sp.Float(x))
+        result = sp.Pow(base, exponent) if exact else sp.Pow(base.evalf(30), exponent.evalf(30))
     elif exponent.is_Rational and abs(exponent) <= EXACT_POWER_LIMIT:
         result = sp.Pow(base, exponent)
     else:
-        result = sp.Pow(sp.Float(b), sp.Float(x))
+        result = sp.Pow(base.evalf(30), exponent.evalf(30))
     return _checked_constant(result, node)
 
 

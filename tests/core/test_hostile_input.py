@@ -1,0 +1,333 @@
+"""Hostile and broken model input: every case ends in a clear diagnostic, nothing runs, nothing hangs.
+
+The cases are the files in tests/data/hostile (see its README for what each one is) and the
+large ones built by ``GENERATED`` below. All of them are parsed in one child process, one case
+at a time; a case that gives no answer within ``HANG_LIMIT`` seconds fails as a hang. That limit
+is a hang detector, not a speed test (typical cases take milliseconds). Run this file with
+``-s`` to see the time each case took.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import os
+import random
+import selectors
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import pytest
+
+from orbitdesk.core.diagnostics import ERROR, ParseError
+from orbitdesk.core.expression import MAX_DEPTH, MAX_LINE_LENGTH, _Parser, parse_expression, tokenize
+from orbitdesk.core.model import MAX_MODEL_CHARS, MAX_STATEMENTS, parse_model
+from orbitdesk.core.model_file import MAX_MODEL_FILE_BYTES, read_model_file
+
+ROOT = Path(__file__).resolve().parents[2]
+HOSTILE_DIR = ROOT / "tests" / "data" / "hostile"
+HANG_LIMIT = 20.0  # seconds for one case; only catches hangs
+
+
+def corpus() -> dict[str, str]:
+    """file name -> expected outcome, read from the corpus README table."""
+    expected = {}
+    for line in (HOSTILE_DIR / "README.md").read_text(encoding="utf-8").splitlines():
+        if line.startswith("| `"):
+            cells = [c.strip() for c in line.strip().strip("|").split(" | ")]
+            expected[cells[0].strip("`")] = cells[2][1:-1]
+    return expected
+
+
+def _lines(prefix: str, count: int, body) -> str:
+    return prefix + "".join(body(i) for i in range(count))
+
+
+# name -> (what it is, builder returning bytes, expected outcome as in the README)
+GENERATED = {
+    "nested_parentheses_100k": (
+        "100,000 nested parentheses on one line",
+        lambda: ("x' = " + "(" * 100_000 + "x" + ")" * 100_000).encode(), "line is longer than"),
+    "nested_parentheses_9000": (
+        "9,000 nested parentheses within the line limit (the depth limit answers)",
+        lambda: ("x' = " + "(" * 9000 + "x" + ")" * 9000).encode(), f"nested more than {MAX_DEPTH} levels"),
+    "nested_unary_minus": (
+        "19,000 unary minus signs", lambda: ("x' = " + "-" * 19_000 + "x").encode(), "nested more than"),
+    "nested_power_tower": (
+        "x^x^...^x with 9,000 powers", lambda: ("x' = " + "x^" * 9000 + "x").encode(), "nested more than"),
+    "nested_function_calls": (
+        "3,900 nested sin( calls", lambda: ("x' = " + "sin(" * 3900 + "x" + ")" * 3900).encode(), "nested more than"),
+    "nested_in_range": (
+        "9,000 nested parentheses inside a slider range",
+        lambda: ("a = 1 in [" + "(" * 9000 + "0" + ")" * 9000 + ", 1]\nx' = a").encode(), "nested more than"),
+    "nested_in_initial_value": (
+        "9,000 nested parentheses in an initial value",
+        lambda: ("x' = 1\nx(0) = " + "(" * 9000 + "1" + ")" * 9000).encode(), "nested more than"),
+    "line_of_one_megabyte": (
+        "one line of almost 1 MB (x+x+...)",
+        lambda: ("x' = " + "x+" * 499_000 + "x").encode(), "line is longer than"),
+    "file_of_50_megabytes": (
+        "50 MB of text (a comment)", lambda: b"x' = -x\n# " + b"a" * 50_000_000, "read: model files are limited"),
+    "million_lines": (
+        "one equation and 999,000 empty lines", lambda: b"x' = -x\n" + b"\n" * 999_000,
+        f"more than {MAX_STATEMENTS} lines"),
+    "million_statements": (
+        "a million copies of an equation (7 MB)", lambda: b"x' = x\n" * 1_000_000, "read: model files are limited"),
+    "million_comment_lines": (
+        "a million comment lines (2 MB, within the file limit)", lambda: b"#\n" * 1_000_000,
+        "larger than 1000000 characters"),
+    "parameters_5000": (
+        "5,000 parameters and one equation",
+        lambda: _lines("", 5000, lambda i: f"p{i} = {i}\n").encode() + b"x' = p1*x", f"more than {MAX_STATEMENTS} lines"),
+    "parameters_4998_legal": (
+        "4,998 parameters, one equation using 500 of them and its initial value (5,000 lines): legal",
+        lambda: (_lines("", 4998, lambda i: f"p{i} = {i}\n")
+                 + "x' = -(" + "+".join(f"p{i}" for i in range(0, 4998, 10)) + ")*x\nx(0) = 1").encode(), "ok"),
+    "errors_on_every_line": (
+        "5,000 lines, each a syntax error", lambda: b"x' = $\n" * 5000, "unexpected character '$'"),
+    "unknown_names_2400": (
+        "2,400 parameters and 2,400 definitions using unknown names (did-you-mean cost)",
+        lambda: (_lines("", 2400, lambda i: f"p{i} = 1\n") + _lines("", 2400, lambda i: f"d{i} = pp{i}\n")
+                 + "x' = 1").encode(), "unknown name"),
+    "cycles_dense_300": (
+        "300 definitions, each using all 300 (tens of thousands of loops)",
+        lambda: (_lines("", 300, lambda i: "a%d = x + %s\n" % (i, "+".join(f"a{j}" for j in range(300))))
+                 + "x' = a0").encode(), "depend on each other in a loop"),
+    "product_of_huge_constants": (
+        "x + 10^299*10^299*... with 2,800 factors",
+        lambda: ("x' = x + " + "*".join(["10^299"] * 2800)).encode(), "too large to represent"),
+    "sum_of_2000_decimals_legal": (
+        "2,000 different decimals added (exact sum with a huge denominator): legal",
+        lambda: ("x' = x + " + "+".join(f"1.{i:05d}7" for i in range(1, 2000))).encode(), "ok"),
+    "product_of_2000_decimals_legal": (
+        "2,000 different decimals multiplied: legal",
+        lambda: ("x' = x * " + "*".join(f"1.{i:05d}7" for i in range(1, 2000))).encode(), "ok"),
+    "long_sum_legal": (
+        "a sum of 10,000 terms on one line: legal", lambda: ("x' = " + "x+" * 9990 + "x").encode(), "ok"),
+    "nonsmooth_2800_legal": (
+        "2,800 abs() calls (as many warnings): legal",
+        lambda: ("x' = " + "+".join(["abs(x)"] * 2800)).encode(), "ok"),
+    "range_keyword_repeated": (
+        "'in[' repeated 6,000 times (regular-expression backtracking)",
+        lambda: ("a = 1 " + "in[" * 6000 + "]\nx' = a").encode(), "a range is written"),
+    "primes_19000": (
+        "a left side with 19,000 primes", lambda: ("x" + "'" * 19_000 + " = 1").encode(), "derivatives above order"),
+    "random_bytes": (
+        "100 kB of random bytes (seeded)", lambda: random.Random(7).randbytes(100_000), "read: "),
+    "random_printable": (
+        "100 kB of random printable ASCII (seeded)",
+        lambda: "".join(random.Random(8).choice([chr(c) for c in range(32, 127)] + ["\n"])
+                        for _ in range(100_000)).encode(), "error"),
+}
+
+
+# ---------------------------------------------------------------- the child process
+
+
+def _bytes_of(case: str) -> bytes:
+    if case in GENERATED:
+        return GENERATED[case][1]()
+    return (HOSTILE_DIR / case).read_bytes()
+
+
+def _run_case(case: str, workdir: str) -> dict:
+    from orbitdesk.core.system import UndefinedValue, compile_model
+
+    data = _bytes_of(case)
+    path = Path(workdir) / "case.txt"
+    path.write_bytes(data)
+    out: dict = {"case": case, "bytes": len(data)}
+    start = time.perf_counter()
+    try:
+        text = read_model_file(path)
+        out["read_error"] = None
+    except ValueError as err:
+        out["read_error"] = str(err)
+        text = data.decode("utf-8", "replace").replace("\x00", "\ufffd")
+    out["read_seconds"] = time.perf_counter() - start
+    start = time.perf_counter()
+    try:
+        model = parse_model(text)
+    except BaseException as exc:  # noqa: BLE001  (any escape is the failure being tested for)
+        out["raised"] = f"{type(exc).__name__}: {exc}"[:500]
+        return out
+    out["parse_seconds"] = time.perf_counter() - start
+    n_lines = text.count("\n") + 1
+    out["ok"] = model.ok
+    out["errors"] = [d.format()[:300] for d in model.errors[:5]]
+    out["n_diagnostics"] = len(model.diagnostics)
+    out["bad_positions"] = [d.format()[:200] for d in model.diagnostics
+                            if not (1 <= d.column < d.end_column and 1 <= d.line <= max(n_lines, MAX_STATEMENTS + 1))][:5]
+    if model.ok:
+        start = time.perf_counter()
+        try:
+            system = compile_model(model)
+            value = system.rhs(0.0, system.initial)
+            out["rhs"] = [float(v) for v in value[:3]]
+        except UndefinedValue as exc:
+            out["rhs"] = f"UndefinedValue: {exc}"[:200]
+        except BaseException as exc:  # noqa: BLE001
+            out["raised"] = f"compile/rhs {type(exc).__name__}: {exc}"[:500]
+        out["compile_seconds"] = time.perf_counter() - start
+    return out
+
+
+def _worker():
+    """Child process: read case names from stdin, answer one JSON line per case."""
+    with tempfile.TemporaryDirectory() as workdir:
+        for line in sys.stdin:
+            result = _run_case(line.strip(), workdir)
+            sys.stdout.write(json.dumps(result) + "\n")
+            sys.stdout.flush()
+
+
+class _Child:
+    def __init__(self):
+        self.proc = subprocess.Popen(
+            [sys.executable, "-c", "from tests.core.test_hostile_input import _worker; _worker()"],
+            cwd=ROOT, stdin=subprocess.PIPE, stdout=subprocess.PIPE, text=True,
+            env={**os.environ, "PYTHONPATH": str(ROOT)})
+        self.selector = selectors.DefaultSelector()
+        self.selector.register(self.proc.stdout, selectors.EVENT_READ)
+
+    def ask(self, case: str, limit: float) -> dict | None:
+        self.proc.stdin.write(case + "\n")
+        self.proc.stdin.flush()
+        if not self.selector.select(timeout=limit):
+            return None
+        line = self.proc.stdout.readline()
+        return json.loads(line) if line else {"case": case, "raised": "the child process died"}
+
+    def close(self):
+        self.selector.close()
+        if self.proc.poll() is None:
+            self.proc.kill()
+        self.proc.wait()
+
+
+ALL_CASES = sorted(corpus()) + sorted(GENERATED)
+
+
+@pytest.fixture(scope="module")
+def outcomes():
+    results = {}
+    child = _Child()
+    try:
+        # the first answer includes the child's start-up and imports
+        for case in ALL_CASES:
+            started = time.perf_counter()
+            answer = child.ask(case, HANG_LIMIT + (30 if not results else 0))
+            if answer is None:
+                results[case] = {"case": case, "hung": time.perf_counter() - started}
+                child.close()
+                child = _Child()
+                continue
+            results[case] = answer
+    finally:
+        child.close()
+    print("\nhostile input: read + parse (+ compile) seconds")
+    for case, r in results.items():
+        parse = r.get("parse_seconds", float("nan"))
+        print(f"  {case:40s} read {r.get('read_seconds', float('nan')):7.3f}  parse {parse:7.3f}"
+              f"  compile {r.get('compile_seconds', 0.0):6.3f}  {'ok' if r.get('ok') else (r.get('errors') or [''])[0][:60]}")
+    return results
+
+
+def expected_of(case: str) -> str:
+    return GENERATED[case][2] if case in GENERATED else corpus()[case]
+
+
+@pytest.mark.parametrize("case", ALL_CASES)
+def test_hostile_case_ends_in_the_expected_diagnostic(case, outcomes):
+    result = outcomes[case]
+    assert "hung" not in result, f"{case}: no answer within {HANG_LIMIT} s"
+    assert "raised" not in result, result["raised"]
+    assert result["bad_positions"] == []
+    expected = expected_of(case)
+    if expected == "ok":
+        assert result["read_error"] is None
+        assert result["ok"], result["errors"]
+        assert "rhs" in result
+        return
+    if expected.startswith("read:"):
+        # refused when read; the text decoded with replacement characters was still parsed safely
+        assert result["read_error"] is not None and expected[5:].strip() in result["read_error"]
+        return
+    assert result["read_error"] is None, result["read_error"]
+    assert not result["ok"], f"{case} parsed without errors"
+    if expected != "error":
+        assert any(expected in e for e in result["errors"]), result["errors"]
+
+
+def test_corpus_index_and_files_agree():
+    files = {p.name for p in HOSTILE_DIR.iterdir()} - {"README.md"}
+    assert files == set(corpus())
+    assert len(files) >= 60
+
+
+def test_legal_hostile_looking_inputs_evaluate_correctly(outcomes):
+    # sqrt(b)^(10^12) with b the double nearest 1.000000000001: exp(5e11 * log(b)), log via log1p
+    # (b - 1 is exact in floating point), so the reference has no cancellation
+    b = 1.000000000001
+    assert outcomes["sqrt_power_near_one.txt"]["rhs"][0] == pytest.approx(math.exp(0.5e12 * math.log1p(b - 1)),
+                                                                           rel=1e-12)
+    # x' = -(p0 + p10 + ... + p4990) x at x = 1, with p_i = i
+    assert outcomes["parameters_4998_legal"]["rhs"] == [-float(sum(range(0, 4998, 10)))]
+    assert outcomes["long_sum_legal"]["rhs"] == [0.0]
+
+
+# ---------------------------------------------------------------- in-process checks of the guards
+
+
+def test_depth_limit_stops_100k_levels_without_recursion_error():
+    text = "(" * 100_000 + "x" + ")" * 100_000
+    with pytest.raises(ParseError) as info:
+        _Parser(tokenize(text)).parse()
+    assert f"nested more than {MAX_DEPTH} levels" in info.value.message
+    assert info.value.column == MAX_DEPTH + 1
+    with pytest.raises(ParseError, match="line is longer than"):
+        parse_expression(text)
+
+
+def test_size_limits_come_before_any_work():
+    big = "x' = -x\n" + "#" * (MAX_MODEL_CHARS + 1)
+    model = parse_model(big)
+    assert [(d.line, d.column, d.severity) for d in model.diagnostics] == [(1, 1, ERROR)]
+    assert "larger than" in model.diagnostics[0].message
+    model = parse_model("x' = " + "1+" * (MAX_LINE_LENGTH // 2) + "1")
+    assert [d.message for d in model.errors] == [f"line is longer than {MAX_LINE_LENGTH} characters"]
+
+
+def test_model_file_size_is_refused_from_the_directory_entry(tmp_path):
+    path = tmp_path / "huge.txt"
+    with open(path, "wb") as handle:  # sparse: 50 MB without writing them
+        handle.truncate(50_000_000)
+    with pytest.raises(ValueError, match="model files are limited to"):
+        read_model_file(path)
+
+
+@pytest.mark.skipif(not Path("/dev/zero").exists(), reason="needs /dev/zero")
+def test_endless_device_is_refused_after_a_bounded_read():
+    with pytest.raises(ValueError, match="larger than"):
+        read_model_file("/dev/zero")
+
+
+def test_model_file_decoding(tmp_path):
+    path = tmp_path / "m.txt"
+    path.write_bytes(b"\xef\xbb\xbfx' = -x\r\nx(0) = 1\r\n")
+    assert read_model_file(path) == "x' = -x\r\nx(0) = 1\r\n"
+    assert parse_model(read_model_file(path)).ok
+    path.write_bytes("x' = -x  # décroissance ✓\n".encode())
+    assert "✓" in read_model_file(path)
+    path.write_bytes(b"x' = -x\ny' = \xff\n")
+    with pytest.raises(ValueError, match=r"not UTF-8 text \(invalid byte 0xff at line 2, byte 6 of the line\)"):
+        read_model_file(path)
+    path.write_bytes(b"x' = -x\n\n\x00")
+    with pytest.raises(ValueError, match="NUL bytes .first at line 3"):
+        read_model_file(path)
+    path.write_bytes(b"x" * (MAX_MODEL_FILE_BYTES + 1))
+    with pytest.raises(ValueError, match="limited to"):
+        read_model_file(path)
