@@ -193,3 +193,40 @@ def test_screenshots_of_the_panel_and_of_all_three_together(qtbot, session, arti
     assert splitter.grab().save(os.path.join(artifacts, "panels_error.png"))
     assert listing.count() >= 1 and "zz" in listing.item(0).text()
     assert panel.row("rho").spin.value() == 24.5  # the last valid system's controls stay
+
+
+def dark_palette():
+    from PySide6.QtGui import QColor, QPalette
+
+    pal = QPalette()
+    roles = {QPalette.ColorRole.Window: "#2b2d31", QPalette.ColorRole.Base: "#1e1f22",
+             QPalette.ColorRole.AlternateBase: "#26282c", QPalette.ColorRole.Text: "#dfe1e5",
+             QPalette.ColorRole.WindowText: "#dfe1e5", QPalette.ColorRole.Button: "#34363b",
+             QPalette.ColorRole.ButtonText: "#dfe1e5", QPalette.ColorRole.Highlight: "#3d6fb4",
+             QPalette.ColorRole.HighlightedText: "#ffffff", QPalette.ColorRole.PlaceholderText: "#8a8d93",
+             QPalette.ColorRole.ToolTipBase: "#34363b", QPalette.ColorRole.ToolTipText: "#dfe1e5"}
+    for role, value in roles.items():
+        pal.setColor(role, QColor(value))
+    return pal
+
+
+def test_screenshot_on_a_dark_palette(qtbot, session, artifacts):
+    from orbitdesk.ui.highlighter import FLOW_EQ, colour
+
+    splitter, editor, listing, readback, panel = _three_panels(qtbot, session)
+    splitter.setPalette(dark_palette())
+    with qtbot.waitSignal(session.systemChanged, timeout=10000):
+        session.load_project(Project(model=LORENZ.replace("beta = 8/3", "beta = 8/3\nwarmth = abs(z)")))
+    editor.setFocus()
+    cursor = editor.textCursor()
+    cursor.setPosition(editor.position_of(4, 17))
+    editor.setTextCursor(cursor)
+    qtbot.keyClicks(editor, "z")  # beta*z -> beta*zz
+    qtbot.waitUntil(lambda: "error" in readback.note_text(), timeout=3000)
+    qtbot.wait(150)
+    block = editor.document().findBlockByNumber(1)
+    first = next(fr for fr in block.layout().formats() if fr.start == 0)
+    assert first.format.foreground().color().name() == colour(FLOW_EQ, True).name()
+    assert colour(FLOW_EQ, True).name() in readback.html()  # the read-back follows the palette too
+    assert colour(FLOW_EQ, False).name() not in readback.html()
+    assert splitter.grab().save(os.path.join(artifacts, "panels_dark.png"))
