@@ -2,9 +2,9 @@
 
 import os
 
-from PySide6.QtCore import Qt
-from PySide6.QtGui import QTextCharFormat, QTextCursor
-from PySide6.QtWidgets import QSplitter
+from PySide6.QtCore import QEvent, Qt
+from PySide6.QtGui import QHelpEvent, QTextCharFormat, QTextCursor
+from PySide6.QtWidgets import QApplication, QSplitter, QToolTip
 
 from orbitdesk.core.diagnostics import ERROR, INFO
 from orbitdesk.core.project import Project
@@ -123,6 +123,11 @@ def test_hovering_an_underline_shows_its_message(qtbot, session):
     cursor.setPosition((start + end) // 2)
     rect = editor.cursorRect(cursor)
     assert "unknown name 'wobble'" in editor._tooltip_at(rect.center())
+    # the same through a real tooltip event on the text area
+    help_event = QHelpEvent(QEvent.Type.ToolTip, rect.center(), editor.viewport().mapToGlobal(rect.center()))
+    QApplication.sendEvent(editor.viewport(), help_event)
+    qtbot.waitUntil(lambda: "wobble" in QToolTip.text(), timeout=2000)
+    QToolTip.hideText()
     cursor.setPosition(3)  # the '=' has no diagnostic
     assert editor._tooltip_at(editor.cursorRect(cursor).center()) == ""
 
