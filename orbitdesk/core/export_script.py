@@ -4,7 +4,8 @@ The right-hand side is printed by sympy's code printers from the compiled system
 generated names (``_t``, ``_u0``, ``_p0``...), so states such as ``x'`` need no renaming; common
 subexpressions are shared exactly as the engine shares them. Flows are printed with numpy functions
 and integrated as the engine does: dop853 by scipy's compiled Dormand-Prince stopped at every output
-time, rk45 and stiff by ``solve_ivp`` (RK45, Radau), rk4 by a fixed-step loop written into the script;
+time (models with kinks: ``solve_ivp``'s DOP853, as the engine does), rk45 and stiff by ``solve_ivp``
+(RK45, Radau), rk4 by a fixed-step loop written into the script;
 maps are printed with the ``math`` module, as the engine evaluates them, so the orbit is bit for bit
 the same. The script writes the columns of ``orbitdesk run --csv``: time, states, derived quantities.
 """
@@ -95,6 +96,7 @@ def run_script(system: CompiledSystem, settings: RunSettings | None = None, u0=N
         max_step = float(settings.max_step) if settings.max_step else None
         head += [
             f"METHOD = {settings.method!r}",
+            f"SMOOTH = {bool(system.smooth)!r}  # False: the model uses abs, min, sign, ... (kinks)",
             f"RTOL = {float(settings.rtol)!r}",
             f"ATOL = {float(settings.atol)!r}",
             f"MAX_STEP = {max_step!r}",
@@ -167,7 +169,7 @@ def run():
     t_eval = numpy.linspace(T_START, T_END, SAMPLES)
     if METHOD == "rk4":
         time, states = rk4(rhs, T_START, T_END, INITIAL, DT, t_eval, (p,))
-    elif METHOD == "dop853":
+    elif METHOD == "dop853" and SMOOTH:
         # Dormand-Prince 8(5,3) stopped exactly at every output time (no interpolation).
         options = {"rtol": RTOL, "atol": ATOL, "nsteps": 2**31 - 1}
         if MAX_STEP:
@@ -190,7 +192,8 @@ def run():
             options["max_step"] = MAX_STEP
         if METHOD == "stiff":
             options["jac"] = jac
-        solver = {"rk45": "RK45", "stiff": "Radau"}[METHOD]
+        # models with kinks (abs, min, sign, ...) step with scipy's Python Dormand-Prince, as OrbitDesk does
+        solver = {"dop853": "DOP853", "rk45": "RK45", "stiff": "Radau"}[METHOD]
         solution = solve_ivp(rhs, (T_START, T_END), INITIAL, method=solver, t_eval=t_eval, args=(p,), **options)
         if solution.status < 0:
             print("integration stopped early:", solution.message, file=sys.stderr)
