@@ -49,7 +49,7 @@ _PRINTER = _ModelPrinter()
 
 def model_str(expr) -> str:
     """One expression as the model language would write it."""
-    return _PRINTER.doprint(sp.sympify(expr) if not isinstance(expr, sp.Basic) else expr).replace("**", "^")
+    return _PRINTER.doprint(sp.sympify(expr, strict=True) if not isinstance(expr, sp.Basic) else expr).replace("**", "^")
 
 
 def number_str(value: float) -> str:
