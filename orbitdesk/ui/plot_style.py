@@ -151,6 +151,7 @@ class NumberBox(QDoubleSpinBox):
         if step is not None:
             self.setSingleStep(step)
         self.setValue(value)
+        self.setMinimumWidth(self.fontMetrics().horizontalAdvance("−0.000001e-10") + 8)
 
     def textFromValue(self, value: float) -> str:
         text = f"{value:.{self._digits}g}"
@@ -272,6 +273,12 @@ class JobStrip(QWidget):
         self.bar.setVisible(on)
         self.cancel_button.setVisible(on)
         self.cancel_button.setEnabled(on)
+
+
+def plain_axes(plot_item) -> None:
+    """Tick labels in the data's own numbers (no automatic 'x0.001' scale factors on unit-less axes)."""
+    for name in ("left", "bottom", "right", "top"):
+        plot_item.getAxis(name).enableAutoSIPrefix(False)
 
 
 def hint_label(text: str = "") -> QLabel:
