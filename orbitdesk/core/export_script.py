@@ -192,7 +192,7 @@ def run():
             options["max_step"] = MAX_STEP
         if METHOD == "stiff":
             options["jac"] = jac
-        # models with kinks (abs, min, sign, ...) step with scipy's Python Dormand-Prince, as OrbitDesk does
+        # models with kinks (abs, min, sign, ...) step with scipy's Python Dormand-Prince, like the original run
         solver = {"dop853": "DOP853", "rk45": "RK45", "stiff": "Radau"}[METHOD]
         solution = solve_ivp(rhs, (T_START, T_END), INITIAL, method=solver, t_eval=t_eval, args=(p,), **options)
         if solution.status < 0:
