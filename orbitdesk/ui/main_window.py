@@ -11,7 +11,7 @@ from PySide6.QtCore import QByteArray, QSettings, QSize, Qt, QTimer, Signal
 from PySide6.QtGui import QAction, QKeySequence
 from PySide6.QtWidgets import (QApplication, QComboBox, QDockWidget, QDoubleSpinBox, QFileDialog, QLabel,
                                QMainWindow, QMessageBox, QProgressBar, QPushButton, QSizePolicy, QSlider,
-                               QSpinBox, QSplitter, QToolBar, QToolButton, QVBoxLayout, QWidget)
+                               QSpinBox, QSplitter, QStyle, QToolBar, QToolButton, QVBoxLayout, QWidget)
 
 from orbitdesk.core.project import ProjectError
 
@@ -84,11 +84,13 @@ class RunBar(QToolBar):
         self.t_end.setDecimals(3)
         self.t_end.setKeyboardTracking(False)
         self.t_end.setToolTip("End time of the run")
+        self.t_end.setMaximumWidth(120)
         self.t_end.valueChanged.connect(lambda v: self._set(t_end=float(v)))
         self.steps = QSpinBox()
         self.steps.setRange(1, 10**8)
         self.steps.setKeyboardTracking(False)
         self.steps.setToolTip("Number of iterations of the map")
+        self.steps.setMaximumWidth(120)
         self.steps.valueChanged.connect(lambda v: self._set(steps=int(v)))
         self.samples_label = QLabel("  samples ")
         self.samples = QSpinBox()
@@ -107,6 +109,8 @@ class RunBar(QToolBar):
 
         self.play = QToolButton()
         self.play.setCheckable(True)
+        self.play.setToolButtonStyle(Qt.ToolButtonStyle.ToolButtonTextBesideIcon)
+        self.play.setIcon(self.style().standardIcon(QStyle.StandardPixmap.SP_MediaPlay))
         self.play.setText("Play")
         self.play.setToolTip("Move the time cursor through the run (Space when the slider has focus)")
         self.play.toggled.connect(self._play_toggled)
@@ -120,7 +124,7 @@ class RunBar(QToolBar):
         self.time_label = QLabel()
         self.time_label.setMinimumWidth(110)
         self.time_label.setToolTip("Time at the cursor")
-        self.addWidget(QLabel(" cursor "))
+        self.addWidget(QLabel(" Time cursor "))
         self.addWidget(self.play)
         self.addWidget(self.slider)
         self.addWidget(self.time_label)
@@ -193,6 +197,8 @@ class RunBar(QToolBar):
 
     def _play_toggled(self, on: bool) -> None:
         self.play.setText("Pause" if on else "Play")
+        self.play.setIcon(self.style().standardIcon(
+            QStyle.StandardPixmap.SP_MediaPause if on else QStyle.StandardPixmap.SP_MediaPlay))
         span = self.time_span()
         if on and span is not None:
             t0, t1 = span
@@ -511,7 +517,6 @@ class MainWindow(QMainWindow):
     def _update_title(self, *_args) -> None:
         dirty = self.session.dirty
         self.setWindowTitle(f"{'• ' if dirty else ''}{self.session.name} — {APP_NAME}")
-        self.setWindowModified(dirty)
         self.revert_action.setEnabled(self.session.path is not None)
 
     def _on_busy(self, busy: bool) -> None:
@@ -659,20 +664,21 @@ class MainWindow(QMainWindow):
             return False
         path = Path(path)
         plot_widget = getattr(view, "plot_widget", None)
+        target = plot_widget if plot_widget is not None else view
         if path.suffix.lower() == ".svg":
-            if plot_widget is not None and hasattr(plot_widget, "getPlotItem"):
-                from pyqtgraph.exporters import SVGExporter
-
-                SVGExporter(plot_widget.getPlotItem()).export(str(path))
-                return path.exists()
+            from PySide6.QtCore import QRect
+            from PySide6.QtGui import QPainter
             from PySide6.QtSvg import QSvgGenerator
 
             gen = QSvgGenerator()
             gen.setFileName(str(path))
-            gen.setSize(view.size())
-            view.render(gen)
+            gen.setSize(target.size())
+            gen.setViewBox(QRect(0, 0, target.width(), target.height()))
+            gen.setTitle(f"{self.session.name} — {getattr(view, 'title', 'plot')}")
+            painter = QPainter(gen)
+            target.render(painter)
+            painter.end()
             return path.exists()
-        target = plot_widget if plot_widget is not None else view
         ratio = max(2.0, target.devicePixelRatioF())
         from PySide6.QtGui import QPixmap, QPainter
 

@@ -45,6 +45,11 @@ def power_spectrum(time: np.ndarray, values: np.ndarray):
     return freq[1:], power[1:]
 
 
+def _span(traj):
+    t = traj.time
+    return (float(t[0]), float(t[-1])) if t.size else None
+
+
 class TimeSeriesView(QWidget):
     view_id = "timeseries"
     title = "Time series"
@@ -201,9 +206,9 @@ class TimeSeriesView(QWidget):
 
     # ------------------------------------------------------------ drawing
     def _on_trajectory(self, trajectory) -> None:
-        first = self.trajectory is None
+        old = self.trajectory
         self.trajectory = trajectory
-        self._redraw(refit=first)
+        self._redraw(refit=old is None or _span(old) != _span(trajectory))
 
     def _on_mode(self, _checked=None) -> None:
         self._redraw(refit=True)
@@ -251,6 +256,7 @@ class TimeSeriesView(QWidget):
             curve = self._curves.get(name)
             if curve is None:
                 curve = pg.PlotDataItem(name=name)
+                curve.opts["autoDownsampleFactor"] = 1.0  # one min/max pair per pixel column
                 curve.setDownsampling(auto=True, method="peak")
                 curve.setClipToView(True)
                 curve.setSkipFiniteCheck(False)

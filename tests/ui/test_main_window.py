@@ -1,0 +1,306 @@
+"""The main window: open, run, look at the views, save and reopen, unsaved-work prompts, bad files,
+undo of a parameter, exports, dock layout, and a screenshot of the whole window."""
+
+import base64
+import csv
+import os
+
+import numpy as np
+import pytest
+from PySide6.QtCore import QPointF, Qt
+from PySide6.QtWidgets import QFileDialog, QMessageBox
+
+from orbitdesk.core import project as core_project
+from orbitdesk.core.project import ProjectError
+
+from .conftest import wait_for_trajectory
+
+# Lorenz, "Deterministic nonperiodic flow", J. Atmos. Sci. 20 (1963); Strogatz, Nonlinear Dynamics and
+# Chaos, 2nd ed., sec. 9.2, with sigma = 10, r = 28, b = 8/3.
+LORENZ = """# Lorenz convection model
+x' = sigma*(y - x)
+y' = r*x - y - x*z
+z' = x*y - beta*z
+sigma = 10 in [0, 20]
+r = 28 in [0, 50]
+beta = 8/3 in [0, 5]
+x(0) = 1
+y(0) = 1
+z(0) = 1
+"""
+
+# Harmonic oscillator x'' = -w^2 x: x(t) = cos(w t) for x(0) = 1, x'(0) = 0 (closed form).
+OSCILLATOR = """# spring
+x'' = -w^2*x
+w = 2 in [0.5, 4]
+x(0) = 1
+x'(0) = 0
+"""
+
+
+def open_model(qtbot, window, tmp_path, text, name="model.txt", **solver):
+    """Open a model text file (and apply solver settings as if they had been saved with it)."""
+    path = tmp_path / name
+    path.write_text(text, encoding="utf-8")
+    s = window.session
+    traj = wait_for_trajectory(qtbot, s, lambda: window.open_path(path))
+    if solver:
+        traj = wait_for_trajectory(qtbot, s, lambda: s.set_solver(**solver))
+        s.undo_stack.clear()
+    return path, traj
+
+
+def test_open_sample_model_run_and_see_it_in_both_views(qtbot, window, tmp_path):
+    _, traj = open_model(qtbot, window, tmp_path, OSCILLATOR, "spring.txt", t_end=10.0)
+    assert window.windowTitle() == "spring — OrbitDesk"
+    np.testing.assert_allclose(traj.series("x"), np.cos(2 * traj.time), atol=1e-6)
+    ts, pp = window.views["timeseries"], window.views["phase_plane"]
+    assert ts.trajectory is traj and pp.trajectory is traj
+    assert ts.checked() == ["x", "x'"]
+    x_curve = ts._curves["x"]
+    assert np.array_equal(x_curve.xData, traj.time) and np.array_equal(x_curve.yData, traj.series("x"))
+    assert (pp.x_name, pp.y_name) == ("x", "x'")
+    px, py = pp.curve.getData()
+    # the orbit is the ellipse x^2 + (x'/w)^2 = 1
+    np.testing.assert_allclose(px**2 + (py / 2) ** 2, 1.0, atol=1e-6)
+    assert pp.field_item.getData()[0].size > 0  # a two-state flow gets direction arrows
+    # Run again explicitly (F5 / Run action)
+    again = wait_for_trajectory(qtbot, window.session, window.run_action.trigger)
+    assert again is not traj and np.array_equal(again.states, traj.states)
+    assert "points" in window.run_status.text()
+
+
+def test_time_series_display_is_decimated_but_export_is_full(qtbot, window, tmp_path):
+    _, traj = open_model(qtbot, window, tmp_path, OSCILLATOR, samples=200_000, t_end=50.0)
+    ts = window.views["timeseries"]
+    qtbot.wait(50)
+    shown = ts._curves["x"].getData()[0]
+    width = ts.plot.getViewBox().width()
+    assert traj.time.size == 200_000
+    assert shown.size <= 2 * width + 10  # peak decimation: a min/max pair per pixel column
+    header, rows = ts.export_data()
+    assert header == ["t", "x", "x'"] and rows.shape == (200_000, 3)
+    path = tmp_path / "data.csv"
+    assert window.export_data(path, ts)
+    with open(path, newline="") as f:
+        data = list(csv.reader(f))
+    assert data[0] == ["t", "x", "x'"] and len(data) == 200_001
+    assert float(data[-1][1]) == traj.series("x")[-1]
+
+
+def test_power_spectrum_peaks_at_the_oscillation_frequency(qtbot, window, tmp_path):
+    open_model(qtbot, window, tmp_path, OSCILLATOR, t_end=200.0, samples=20_001)
+    ts = window.views["timeseries"]
+    ts.set_series(["x"])
+    ts.spectrum.setChecked(True)
+    header, rows = ts.export_data()
+    freq, power = rows[:, 0], rows[:, 1]
+    # x = cos(2 t) has frequency w / (2 pi) = 1/pi cycles per unit time (closed form)
+    assert freq[np.argmax(power)] == pytest.approx(1 / np.pi, abs=2 / 200.0)
+
+
+def test_save_reopen_compare(qtbot, window, tmp_path, monkeypatch):
+    _, traj = open_model(qtbot, window, tmp_path, LORENZ, "lorenz.txt")
+    s = window.session
+    wait_for_trajectory(qtbot, s, lambda: s.set_param("r", 24.5))
+    window.views["timeseries"].set_series(["z"])
+    window.views["phase_plane"].set_axes("x", "z")
+    window.view_docks["phase_plane"].hide()
+    assert window.windowTitle().startswith("• ")
+    target = tmp_path / "saved.orbitdesk"
+    monkeypatch.setattr(QFileDialog, "getSaveFileName", staticmethod(lambda *a, **k: (str(target)[:-10], "")))
+    assert window.save()  # Save on an unsaved document asks for a name; the suffix is added
+    assert window.windowTitle() == "lorenz — OrbitDesk"
+    saved = core_project.load(target)
+    assert saved.model == LORENZ and saved.parameters["r"].value == 24.5
+    assert saved.parameters["r"].lo == 0 and saved.parameters["r"].hi == 50
+    assert saved.views["timeseries"]["series"] == ["z"]
+    assert saved.views["phase_plane"]["x"] == "x" and saved.views["phase_plane"]["y"] == "z"
+    assert base64.b64decode(saved.views["_window"]["state"])
+
+    window.view_docks["phase_plane"].show()
+    window.views["phase_plane"].set_axes("x", "y")
+    wait_for_trajectory(qtbot, s, lambda: window.open_path(tmp_path / "lorenz.txt"))
+    assert s.params["r"] == 28.0
+    traj = wait_for_trajectory(qtbot, s, lambda: window.open_path(target))
+    assert traj.params["r"] == 24.5 and s.path == target and not s.dirty
+    assert window.views["timeseries"].checked() == ["z"]
+    assert not window.view_docks["phase_plane"].isVisible()  # the dock layout came back
+    window.view_docks["phase_plane"].show()
+    pp = window.views["phase_plane"]
+    assert (pp.x_name, pp.y_name) == ("x", "z")
+    again = s.to_project()
+    assert (again.model, again.parameters, again.initial, again.solver) == \
+        (saved.model, saved.parameters, saved.initial, saved.solver)
+    assert again.views["timeseries"] == saved.views["timeseries"]
+    assert again.views["phase_plane"] == saved.views["phase_plane"]
+
+
+def test_closing_with_unsaved_work_asks_first(qtbot, window, tmp_path, message_boxes):
+    open_model(qtbot, window, tmp_path, OSCILLATOR)
+    window.session.set_param("w", 3.0)
+    message_boxes.answer = QMessageBox.StandardButton.Cancel
+    assert not window.close()
+    assert window.isVisible() and len(message_boxes.texts("question")) == 1
+    assert "not saved" in message_boxes.texts("question")[0]
+    # replacing the document asks too; Cancel keeps it
+    assert not window.new_document()
+    assert window.session.params["w"] == 3.0
+    message_boxes.answer = QMessageBox.StandardButton.Discard
+    assert window.close()
+    assert len(message_boxes.texts("question")) == 3
+
+
+def test_closing_saved_work_does_not_ask(qtbot, window, tmp_path, message_boxes):
+    open_model(qtbot, window, tmp_path, OSCILLATOR)
+    assert window.close()
+    assert message_boxes.calls == []
+
+
+def test_save_answer_saves_before_closing(qtbot, window, tmp_path, message_boxes):
+    open_model(qtbot, window, tmp_path, OSCILLATOR)
+    window.session.save(tmp_path / "spring.orbitdesk")
+    window.session.set_param("w", 1.5)
+    message_boxes.answer = QMessageBox.StandardButton.Save
+    assert window.close()
+    assert core_project.load(tmp_path / "spring.orbitdesk").parameters["w"].value == 1.5
+
+
+def test_bad_file_is_refused_with_the_message_and_nothing_changes(qtbot, window, tmp_path, message_boxes):
+    _, traj = open_model(qtbot, window, tmp_path, OSCILLATOR, "spring.txt")
+    window.session.set_param("w", 3.0)
+    title, text, params = window.windowTitle(), window.session.text, dict(window.session.params)
+    bad = tmp_path / "bad.orbitdesk"
+    bad.write_text('{"format": "orbitdesk-project", "version": 1, "solver": {"method": "euler"}}',
+                   encoding="utf-8")
+    with pytest.raises(ProjectError) as err:
+        core_project.load(bad)
+    assert not window.open_path(bad, ask=False)
+    shown = message_boxes.texts("critical")
+    assert len(shown) == 1 and err.value.message in shown[0] and "$.solver.method" in shown[0]
+    assert window.windowTitle() == title and window.session.text == text and window.session.params == params
+    assert window.session.dirty
+    assert not window.open_path(tmp_path / "missing.orbitdesk", ask=False)
+    assert "no such file" in message_boxes.texts("critical")[-1]
+
+
+def test_undo_redo_of_a_parameter_change_through_the_menu(qtbot, window, tmp_path):
+    _, traj = open_model(qtbot, window, tmp_path, OSCILLATOR)
+    s = window.session
+    traj = wait_for_trajectory(qtbot, s, lambda: s.set_param("w", 3.0))
+    np.testing.assert_allclose(traj.series("x"), np.cos(3 * traj.time), atol=1e-6)
+    assert window.undo_action.isEnabled() and "w" in window.undo_action.text()
+    traj = wait_for_trajectory(qtbot, s, window.undo_action.trigger)
+    assert s.params["w"] == 2.0 and traj.params["w"] == 2.0 and not s.dirty
+    assert window.windowTitle() == "model — OrbitDesk"
+    traj = wait_for_trajectory(qtbot, s, window.redo_action.trigger)
+    assert traj.params["w"] == 3.0 and window.windowTitle() == "• model — OrbitDesk"
+
+
+def test_clicking_the_phase_plane_starts_trajectories(qtbot, window, tmp_path):
+    open_model(qtbot, window, tmp_path, OSCILLATOR, t_end=5.0)
+    pp = window.views["phase_plane"]
+    assert pp.start_trajectory(0.5, 0.0)
+    qtbot.waitUntil(lambda: pp.seed_runs and pp.seed_runs[0][0] is not None, timeout=10000)
+    fwd, back = pp.seed_runs[0]
+    assert back is None
+    np.testing.assert_allclose(fwd.series("x"), 0.5 * np.cos(2 * fwd.time), atol=1e-6)
+    # a real mouse click in the plot, with Shift: forward and backward
+    vb = pp.plot.getViewBox()
+    scene_pt = vb.mapViewToScene(QPointF(0.0, 1.0))
+    view_pt = pp.plot_widget.mapFromScene(scene_pt)
+    qtbot.mouseClick(pp.plot_widget.viewport(), Qt.MouseButton.LeftButton, Qt.KeyboardModifier.ShiftModifier,
+                     view_pt)
+    qtbot.waitUntil(lambda: len(pp.seed_runs) == 2 and pp.seed_runs[1][0] is not None, timeout=10000)
+    fwd, back = pp.seed_runs[1]
+    assert fwd.states[0, 0] == pytest.approx(0.0, abs=0.05) and fwd.states[1, 0] == pytest.approx(1.0, abs=0.1)
+    assert back is not None and back.time[-1] == pytest.approx(-5.0)
+    # changing a value recomputes the kept trajectories for the new value
+    window.session.set_param("w", 1.0)
+    qtbot.waitUntil(lambda: pp.seed_runs and pp.seed_runs[0][0] is not None
+                    and pp.seed_runs[0][0].params["w"] == 1.0, timeout=10000)
+    pp.clear_seeds()
+    assert pp.seeds == [] and not any(item.isVisible() for item in pp.seed_items)
+
+
+def test_equilibria_markers(qtbot, window, tmp_path):
+    open_model(qtbot, window, tmp_path, OSCILLATOR)
+    pp = window.views["phase_plane"]
+    pp.set_equilibria([{"state": {"x": 0.0, "x'": 0.0}, "stable": None, "kind": "centre (linear)"},
+                       {"state": {"x": 1.0, "x'": 0.0}, "stable": False, "kind": "saddle"},
+                       {"state": {"x": -1.0, "x'": 0.0}, "stable": True, "kind": "stable node"}])
+    spots = pp.eq_item.points()
+    assert [p.symbol() for p in spots] == ["s", "x", "o"]
+    pp.set_equilibria([])
+    assert len(pp.eq_item.points()) == 0
+
+
+def test_time_cursor_is_shared(qtbot, window, tmp_path):
+    open_model(qtbot, window, tmp_path, OSCILLATOR, t_end=10.0)
+    bar = window.run_bar
+    bar.slider.setValue(500)
+    assert window.session.time_cursor == pytest.approx(5.0)
+    assert window.views["timeseries"].cursor.value() == pytest.approx(5.0)
+    (px,), (py,) = window.views["phase_plane"].cursor_marker.getData()
+    assert px == pytest.approx(np.cos(10.0), abs=1e-3) and py == pytest.approx(-2 * np.sin(10.0), abs=1e-2)
+    window.views["timeseries"].cursor.setValue(2.5)
+    assert window.session.time_cursor == pytest.approx(2.5) and bar.slider.value() == 250
+    bar.play.setChecked(True)
+    qtbot.waitUntil(lambda: window.session.time_cursor > 3.0, timeout=5000)
+    bar.play.setChecked(False)
+
+
+def test_run_bar_changes_solver_settings(qtbot, window, tmp_path):
+    open_model(qtbot, window, tmp_path, OSCILLATOR)
+    bar = window.run_bar
+    traj = wait_for_trajectory(qtbot, window.session, lambda: bar.t_end.setValue(3.0))
+    assert traj.time[-1] == pytest.approx(3.0)
+    bar.method.setCurrentIndex(bar.method.findData("rk4"))
+    assert window.session.solver.method == "rk4"
+    window.session.undo_stack.undo()
+    assert bar.method.currentData() == "dop853"
+
+
+def test_map_model_switches_the_run_bar_to_steps(qtbot, window, tmp_path):
+    open_model(qtbot, window, tmp_path, "x[n+1] = r*x*(1 - x)\nx[0] = 0.2\nr = 3.2\n")
+    bar = window.run_bar
+    assert bar.steps_action.isVisible() and not bar.t_end_action.isVisible()
+    traj = wait_for_trajectory(qtbot, window.session, lambda: bar.steps.setValue(50))
+    assert traj.time[-1] == 50
+
+
+def test_exports_plot_png_and_svg(qtbot, window, tmp_path):
+    open_model(qtbot, window, tmp_path, OSCILLATOR)
+    png, svg = tmp_path / "plot.png", tmp_path / "plot.svg"
+    assert window.export_plot(png, window.views["phase_plane"])
+    assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    assert window.export_plot(svg, window.views["timeseries"])
+    assert "<svg" in svg.read_text(encoding="utf-8")[:2000]
+
+
+def test_view_menu_toggles_every_dock(qtbot, window):
+    texts = [a.text() for a in window.view_menu.actions()]
+    for dock in window.view_docks.values():
+        assert dock.toggleViewAction().text() in texts
+    dock = window.view_docks["timeseries"]
+    dock.toggleViewAction().trigger()
+    assert not dock.isVisible()
+    dock.toggleViewAction().trigger()
+    assert dock.isVisible()
+    assert window.help_menu.title() == "&Help"
+
+
+def test_screenshot_lorenz(qtbot, window, tmp_path, artifacts):
+    s = window.session
+    path, traj = open_model(qtbot, window, tmp_path, LORENZ, "lorenz.txt", t_end=40.0, samples=8000)
+    assert traj.params == pytest.approx({"sigma": 10.0, "r": 28.0, "beta": 8 / 3})
+    # The Lorenz attractor at these values lies within |x| < 20, |y| < 30, 0 < z < 50 (value from memory;
+    # Strogatz, sec. 9.2, fig. 9.2.2 shows the x-z butterfly) and never settles down.
+    x, y, z = traj.states[:, traj.time > 5]
+    assert np.abs(x).max() < 25 and np.abs(y).max() < 35 and 0 < z.min() and z.max() < 55
+    assert np.sign(x).min() == -1 and np.sign(x).max() == 1  # visits both wings
+    window.views["phase_plane"].set_axes("x", "z")
+    qtbot.wait(300)
+    out = os.path.join(artifacts, "main_window_lorenz.png")
+    assert window.grab().save(out)
+    assert os.path.getsize(out) > 20_000
