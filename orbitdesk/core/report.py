@@ -53,7 +53,8 @@ footer { margin-top: 3rem; color: var(--soft); font-size: .8rem; border-top: 1px
          padding-top: .6rem; }
 @media print {
   html { background: none; }
-  body { margin: 0; padding: 0; max-width: none; box-shadow: none; font-size: 11pt; }
+  body { margin: 0; padding: 0; max-width: none; box-shadow: none; font-size: 11pt; background: #fff; }
+  pre, code { background: #fafafa; }
   h2 { page-break-after: avoid; break-after: avoid; }
   pre { white-space: pre-wrap; }
 }
