@@ -336,6 +336,18 @@ class Session(QObject):
             self.time_cursor = t
             self.timeCursorChanged.emit(t)
 
+    def show_state(self, params: dict | None = None, initial: dict | None = None,
+                   solver: dict | None = None) -> None:
+        """Put values and solver settings on screen without an undo step or an unsaved mark: a
+        walkthrough showing one of its steps, or giving the user's own state back."""
+        new_p = {**self.params, **{n: float(v) for n, v in (params or {}).items()}}
+        new_u = {**self.initial, **{n: float(v) for n, v in (initial or {}).items()}}
+        new_s = dataclasses.replace(self.solver, **{k: v for k, v in (solver or {}).items() if k in SOLVER_FIELDS})
+        if new_s != self.solver:
+            self._apply_solver(new_s)
+        if (new_p, new_u) != (self.params, self.initial):
+            self._apply_values(new_p, new_u)
+
     # ------------------------------------------------------------ appliers (called by undo commands)
     def _apply_text(self, text: str, emit: bool) -> None:
         self.text = text
