@@ -41,11 +41,16 @@ class RunSettings:
 
 @dataclass
 class Event:
-    """A crossing of g(t, u) = 0; direction +1 (g rising), -1 (falling) or 0 (both)."""
+    """A crossing of g(t, u) = 0; direction +1 (g rising), -1 (falling) or 0 (both).
+
+    ``rate`` (optional) is dg/dt along the solution; with it a step is split where g turns, so a
+    pair of crossings inside one step (a near-grazing pass) is found too.
+    """
 
     g: Callable[[float, np.ndarray], float]
     direction: int = 0
     terminal: bool = False
+    rate: Callable[[float, np.ndarray], float] | None = None
 
 
 @dataclass
@@ -200,6 +205,18 @@ def _make_rhs(system, p):
     return fun
 
 
+def _root(fn, ta, tb):
+    """A zero of fn between ta and tb, where the step's end values showed a sign change.
+
+    On the dense output an end value can differ from the step's by round-off and lose the sign
+    change (brentq would refuse); the zero then sits at that end.
+    """
+    fa, fb = fn(ta), fn(tb)
+    if fa == 0 or fb == 0 or fa * fb > 0:
+        return ta if abs(fa) <= abs(fb) else tb
+    return brentq(fn, ta, tb, xtol=1e-14)
+
+
 def _integrate(system, settings, u0, p, events, report) -> Trajectory:
     t0, t1 = float(settings.t_start), float(settings.t_end)
     if not t1 != t0 or not (math.isfinite(t0) and math.isfinite(t1)):
@@ -231,6 +248,7 @@ def _integrate(system, settings, u0, p, events, report) -> Trajectory:
             ys.append(u0.copy())
         next_sample = 1 if sample_t is not None else None
         g_prev = [ev.g(t0, u0) for ev in events]
+        r_prev = [ev.rate(t0, u0) if ev.rate else 0.0 for ev in events]
         while solver.status == "running":
             message_step = solver.step()
             steps += 1
@@ -259,19 +277,27 @@ def _integrate(system, settings, u0, p, events, report) -> Trajectory:
                 g_new = ev.g(t_new, y_new)
                 g_old = g_prev[k]
                 g_prev[k] = g_new
-                if not (g_old * g_new < 0 or (g_new == 0 and g_old != 0)):
-                    continue
-                rising = g_new > g_old
-                if ev.direction and (ev.direction > 0) != rising:
-                    continue
-                sol = sol or solver.dense_output()
-                if g_new == 0:
-                    te = t_new
-                else:
-                    te = brentq(lambda tq: ev.g(tq, sol(tq)), solver.t_old, t_new, xtol=1e-14)
-                ev_t[k].append(te)
-                ev_y[k].append(np.asarray(sol(te), float).reshape(n))
-                stop_here = stop_here or ev.terminal
+                pieces = [(solver.t_old, g_old, t_new, g_new)]
+                if ev.rate is not None:
+                    r_new = ev.rate(t_new, y_new)
+                    if r_prev[k] * r_new < 0:  # g turns inside the step: test both sides of the turn
+                        sol = sol or solver.dense_output()
+                        tm = _root(lambda tq: ev.rate(tq, sol(tq)), solver.t_old, t_new)
+                        if tm != solver.t_old and tm != t_new:
+                            gm = ev.g(tm, sol(tm))
+                            pieces = [(solver.t_old, g_old, tm, gm), (tm, gm, t_new, g_new)]
+                    r_prev[k] = r_new
+                for ta, ga, tb, gb in pieces:
+                    if not (ga * gb < 0 or (gb == 0 and ga != 0)):
+                        continue
+                    rising = gb > ga
+                    if ev.direction and (ev.direction > 0) != rising:
+                        continue
+                    sol = sol or solver.dense_output()
+                    te = tb if gb == 0 else _root(lambda tq: ev.g(tq, sol(tq)), ta, tb)
+                    ev_t[k].append(te)
+                    ev_y[k].append(np.asarray(sol(te), float).reshape(n))
+                    stop_here = stop_here or ev.terminal
             if stop_here:
                 break
             report((t_new - t0) / (t1 - t0))
