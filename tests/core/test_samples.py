@@ -183,3 +183,25 @@ def test_pond_and_pendulum_equilibria():
     box = {"theta": (-1.0, 4.0), "theta'": (-1.0, 1.0)}
     found = {round(e.state["theta"], 9): e.kind for e in find_equilibria(system, box=box, exact_timeout=2.0)}
     assert found[0.0].startswith("centre") and found[round(math.pi, 9)] == "saddle"
+
+
+def test_convection_loop_section_and_shaken_beam_strobe():
+    """Crossing z = 27 upward needs dz/dt = x y - beta z > 0, so x y > 27 beta = 72 at every point (from
+    the equations); at gamma = 0.2 the strobed beam repeats every period (a single point, period 1)."""
+    sections = module("sections")
+    project = load("convection_loop")
+    system = compile_model(project.model)
+    p, u0 = step_values(project, system, "A slice")
+    result = sections.plane_section(system, p=p, u0=u0, coordinate="z", value=27.0, direction="up",
+                                    count=40, transient=5.0)
+    x, y, z = result.points
+    assert result.times.size == 40
+    assert z == pytest.approx(np.full(40, 27.0), abs=1e-7)
+    assert np.all(x * y > 72.0)
+    project = load("shaken_beam")
+    system = compile_model(project.model)
+    p, u0 = step_values(project, system, "Gentle shaking")
+    T = project.walkthrough[2].snapshot["section"]["strobe"]
+    result = sections.strobe_section(system, p=p, u0=u0, period=T, count=10, transient=60 * T)
+    assert np.ptp(result.points, axis=1) == pytest.approx([0.0, 0.0], abs=1e-5)
+    assert np.diff(result.times) == pytest.approx(np.full(9, T), rel=1e-9)
