@@ -147,7 +147,7 @@ def test_convection_loop_largest_lyapunov_exponent():
     system = compile_model(project.model)
     p, u0 = step_values(project, system, "How fast")
     settings = sweep_module.SweepSettings(mode="maxima", observe="z", transient=10.0, samples=2000,
-                                          duration=120.0, dt=0.005, lyapunov=True)
+                                          duration=120.0, dt=0.01, lyapunov=True)
     result = sweep_module.sweep(system, "r", [28.0], settings, u0=u0, p=p)
     assert result.lyapunov[0] == pytest.approx(0.906, abs=0.15)
 
@@ -160,7 +160,7 @@ def test_shaken_beam_sections_and_sweep():
     project = load("shaken_beam")
     system = compile_model(project.model)
     T = 2 * math.pi / 1.2
-    settings = sweep_module.SweepSettings(mode="strobe", period=T, transient=60 * T, samples=24, lyapunov=True)
+    settings = sweep_module.SweepSettings(mode="strobe", period=T, transient=40 * T, samples=24, lyapunov=True)
     result = sweep_module.sweep(system, "gamma", [0.2, 0.28, 0.5], settings)
     counts = [len(np.unique(np.round(result.points(i), 4))) for i in range(3)]
     assert counts[:2] == [1, 2]
