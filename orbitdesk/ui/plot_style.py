@@ -127,6 +127,25 @@ def eigenvalues_text(values, digits: int = 4) -> str:
     return ",  ".join(out)
 
 
+def round_significant(x: float, digits: int = 3) -> float:
+    if x == 0 or not math.isfinite(x):
+        return 0.0
+    return round(x, digits - 1 - int(math.floor(math.log10(abs(x)))))
+
+
+def orbit_middle(trajectory, name: str) -> float | None:
+    """A round value in the middle (the mean) of a series of the current run: a default section plane
+    the orbit crosses. None without a run or such a series."""
+    if trajectory is None or trajectory.time.size == 0:
+        return None
+    try:
+        values = np.asarray(trajectory.series(name), dtype=float)
+    except KeyError:
+        return None
+    values = values[np.isfinite(values)]
+    return round_significant(float(np.mean(values))) if values.size else None
+
+
 def parse_number(text: str) -> float | None:
     """A plain number typed in a field (``6.2832``, ``1e-3``, ``−2``); None unless it is finite."""
     text = text.strip().replace("−", "-").replace(",", ".")
@@ -151,7 +170,7 @@ class NumberBox(QDoubleSpinBox):
         if step is not None:
             self.setSingleStep(step)
         self.setValue(value)
-        self.setMinimumWidth(self.fontMetrics().horizontalAdvance("−0.000001e-10") + 8)
+        self.setMinimumWidth(self.fontMetrics().horizontalAdvance("−1.23456e-10") + 4)
 
     def textFromValue(self, value: float) -> str:
         text = f"{value:.{self._digits}g}"

@@ -16,7 +16,7 @@ from PySide6.QtWidgets import (QCheckBox, QComboBox, QHBoxLayout, QLabel, QPushB
                                QStackedWidget, QVBoxLayout, QWidget)
 
 from . import muted_colour, series_colour, style_plot
-from ..plot_style import JobStrip, NumberBox, hint_label, number_text, plain_axes
+from ..plot_style import JobStrip, NumberBox, hint_label, number_text, orbit_middle, plain_axes
 
 PLANE, STROBE = "plane", "strobe"
 DIRECTIONS = ("up", "down", "both")
@@ -25,7 +25,7 @@ AUTO_DELAY_MS = 300
 MAX_COUNT = 100_000
 
 
-def _detected_period(system, p):
+def detected_period(system, p):
     """The forcing period the core reads off the model (cos/sin of omega*t), or None."""
     try:
         from orbitdesk.core.cycles import detect_forcing_period
@@ -35,12 +35,6 @@ def _detected_period(system, p):
         return detect_forcing_period(system, p)
     except (TypeError, ValueError, ArithmeticError):
         return None
-
-
-def _round_sig(x: float, digits: int = 3) -> float:
-    if x == 0 or not math.isfinite(x):
-        return 0.0
-    return round(x, digits - 1 - int(math.floor(math.log10(abs(x)))))
 
 
 class SectionsView(QWidget):
@@ -348,7 +342,7 @@ class SectionsView(QWidget):
             self.r_combo.setCurrentIndex(plane_names.index(keep[3]) if keep[3] in plane_names else 0)
             self._block_all(False)
             self._apply_wanted_names()
-        period = None if is_map else _detected_period(system, self.session.param_vector())
+        period = None if is_map else detected_period(system, self.session.param_vector())
         if period is not None and not self._user_period:
             self.period.blockSignals(True)
             self.period.setValue(period)
@@ -369,7 +363,7 @@ class SectionsView(QWidget):
 
     def _on_values(self) -> None:
         if self.system is not None and self.system.kind != "map":
-            period = _detected_period(self.system, self.session.param_vector())
+            period = detected_period(self.system, self.session.param_vector())
             if period is not None and not self._user_period:
                 self.period.blockSignals(True)
                 self.period.setValue(period)
@@ -417,7 +411,7 @@ class SectionsView(QWidget):
 
     def _on_period_edited(self, _v=None) -> None:
         self._user_period = True
-        self._update_period_note(_detected_period(self.system, self.session.param_vector())
+        self._update_period_note(detected_period(self.system, self.session.param_vector())
                                  if self.system is not None and self.system.kind != "map" else None)
         self._changed()
 
@@ -426,17 +420,10 @@ class SectionsView(QWidget):
 
     def _default_plane_value(self) -> None:
         """Put the plane through the middle of the current orbit (its mean), so that the orbit crosses it."""
-        traj = self.session.trajectory
-        if self._user_value or traj is None or traj.time.size == 0:
-            return
-        try:
-            values = np.asarray(traj.series(self.coordinate.currentText()), dtype=float)
-        except KeyError:
-            return
-        values = values[np.isfinite(values)]
-        if values.size:
+        middle = orbit_middle(self.session.trajectory, self.coordinate.currentText())
+        if not self._user_value and middle is not None:
             self.value.blockSignals(True)
-            self.value.setValue(_round_sig(float(np.mean(values))))
+            self.value.setValue(middle)
             self.value.blockSignals(False)
 
     def _update_period_note(self, period) -> None:

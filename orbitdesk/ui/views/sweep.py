@@ -1,0 +1,557 @@
+"""Parameter sweep: the orbit diagram of one observed quantity over a range of one parameter, optionally
+with the largest Lyapunov exponent below it. Clicking the diagram sets the parameter there.
+
+All values run together as one ensemble in the core (``core.sweep``) on a worker thread, with progress
+and a Cancel button.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pyqtgraph as pg
+from PySide6.QtCore import QEvent, Qt, QTimer, Signal
+from PySide6.QtGui import QColor
+from PySide6.QtWidgets import (QCheckBox, QComboBox, QHBoxLayout, QLabel, QPushButton, QSpinBox, QStackedWidget,
+                               QVBoxLayout, QWidget)
+
+from . import muted_colour, series_colour, style_plot
+from ..plot_style import JobStrip, NumberBox, hint_label, number_text, orbit_middle, plain_axes
+from .sections import detected_period
+
+PLANE, STROBE, MAXIMA, ITERATE = "plane", "strobe", "maxima", "iterate"
+FLOW_MODES = (MAXIMA, STROBE, PLANE)
+MODE_LABELS = {MAXIMA: "its maxima", STROBE: "once every period", PLANE: "plane crossings", ITERATE: "every iterate"}
+DIRECTIONS = (1, -1, 0)
+DIRECTION_LABELS = ("upward", "downward", "both ways")
+MAX_VALUES = 5000
+MAX_SAMPLES = 5000
+
+
+class SweepView(QWidget):
+    view_id = "sweep"
+    title = "Parameter sweep"
+
+    sweepChanged = Signal(object)  # the SweepResult shown (None when cleared)
+
+    def __init__(self, session, parent=None):
+        super().__init__(parent)
+        self.session = session
+        self.system = None
+        self.result = None
+        self._computed_with = None  # the other values the shown diagram was computed with
+        self._wanted: dict | None = None
+        self._user_period = False
+        self._user_plane_value = False
+        self._range_for: str | None = None  # parameter whose range the from/to fields hold
+
+        # ---- what to sweep
+        self.parameter = QComboBox()
+        self.parameter.setToolTip("The parameter to sweep")
+        self.parameter.setSizeAdjustPolicy(QComboBox.SizeAdjustPolicy.AdjustToContents)
+        self.parameter.currentIndexChanged.connect(self._on_parameter)
+        self.lo = NumberBox(0.0, -1e12, 1e12, step=0.1)
+        self.lo.setToolTip("First value of the parameter")
+        self.hi = NumberBox(1.0, -1e12, 1e12, step=0.1)
+        self.hi.setToolTip("Last value of the parameter")
+        self.count = QSpinBox()
+        self.count.setRange(2, MAX_VALUES)
+        self.count.setValue(300)
+        self.count.setToolTip("How many parameter values, evenly spaced")
+        self.observe = QComboBox()
+        self.observe.setToolTip("The quantity plotted for each parameter value")
+        self.observe.setSizeAdjustPolicy(QComboBox.SizeAdjustPolicy.AdjustToContents)
+        self.observe.currentIndexChanged.connect(self._on_observe)
+
+        # ---- how to sample
+        self.mode = QComboBox()
+        self.mode.setToolTip("Which points of each orbit are plotted: local maxima of the observed state, the state "
+                             "once every forcing period, or crossings of a plane; a map plots its iterates")
+        self.mode.currentIndexChanged.connect(self._on_mode)
+        self.plane_state = QComboBox()
+        self.plane_state.setToolTip("The state that defines the plane")
+        self.plane_state.currentIndexChanged.connect(self._on_plane_state)
+        self.plane_value = NumberBox(0.0, -1e12, 1e12, step=0.1)
+        self.plane_value.setToolTip("Where the plane lies")
+        self.plane_value.valueChanged.connect(lambda _v: setattr(self, "_user_plane_value", True))
+        self.direction = QComboBox()
+        self.direction.addItems(DIRECTION_LABELS)
+        self.direction.setToolTip("Crossings with the state rising, falling, or both")
+        self.period = NumberBox(2 * math.pi, 1e-9, 1e9, step=0.1)
+        self.period.setToolTip("Sampling period")
+        self.period.valueChanged.connect(lambda _v: setattr(self, "_user_period", True))
+        plane_row = QWidget()
+        pl = QHBoxLayout(plane_row)
+        pl.setContentsMargins(0, 0, 0, 0)
+        pl.setSpacing(4)
+        pl.addWidget(QLabel("of"))
+        pl.addWidget(self.plane_state)
+        pl.addWidget(QLabel("="))
+        pl.addWidget(self.plane_value)
+        pl.addWidget(self.direction)
+        strobe_row = QWidget()
+        sl = QHBoxLayout(strobe_row)
+        sl.setContentsMargins(0, 0, 0, 0)
+        sl.setSpacing(4)
+        sl.addWidget(QLabel("period"))
+        sl.addWidget(self.period)
+        self.mode_stack = QStackedWidget()
+        self.mode_stack.addWidget(QWidget())
+        self.mode_stack.addWidget(strobe_row)
+        self.mode_stack.addWidget(plane_row)
+
+        self.transient = NumberBox(200.0, 0.0, 1e9, step=10.0)
+        self.transient.setToolTip("Time (iterations for maps) each orbit settles before it is sampled")
+        self.samples = QSpinBox()
+        self.samples.setRange(1, MAX_SAMPLES)
+        self.samples.setValue(80)
+        self.samples.setToolTip("Points kept for each parameter value")
+        self.dt = NumberBox(0.01, 1e-6, 10.0, ratio=2.0)
+        self.dt.setToolTip("Fixed time step of the sweep's Runge-Kutta integration")
+        self.duration = NumberBox(400.0, 1e-3, 1e9, step=50.0)
+        self.duration.setToolTip("Longest time spent collecting the points of one value (maxima and planes)")
+        self.lyapunov = QCheckBox("Lyapunov exponent")
+        self.lyapunov.setToolTip("Also estimate the largest Lyapunov exponent at every value (slower)")
+        self.run_button = QPushButton("Run")
+        self.run_button.setToolTip("Compute the orbit diagram")
+        self.run_button.clicked.connect(self.run)
+        self.strip = JobStrip(session, "Sweeping")
+        self.info = hint_label()
+
+        # ---- plots
+        self.plot_widget = pg.PlotWidget()
+        self.plot = self.plot_widget.getPlotItem()
+        self.plot_widget.setToolTip("Click to set the parameter to that value")
+        self.points = pg.ScatterPlotItem(size=2, pen=None)
+        self.plot.addItem(self.points)
+        self.marker = pg.InfiniteLine(angle=90, movable=True)
+        self.marker.setToolTip("The parameter's current value: drag it, or click the diagram")
+        self.marker.sigPositionChangeFinished.connect(self._on_marker_dragged)
+        self.plot.addItem(self.marker, ignoreBounds=True)
+        self.plot_widget.scene().sigMouseClicked.connect(self._on_click)
+        self.lyap_widget = pg.PlotWidget()
+        self.lyap_plot = self.lyap_widget.getPlotItem()
+        self.lyap_curve = pg.PlotDataItem()
+        self.lyap_plot.addItem(self.lyap_curve)
+        self.lyap_zero = pg.InfiniteLine(pos=0.0, angle=0, movable=False)
+        self.lyap_plot.addItem(self.lyap_zero, ignoreBounds=True)
+        self.lyap_marker = pg.InfiniteLine(angle=90, movable=False)
+        self.lyap_plot.addItem(self.lyap_marker, ignoreBounds=True)
+        self.lyap_plot.setXLink(self.plot)
+        self.lyap_widget.setToolTip("Largest Lyapunov exponent: above zero, nearby orbits separate (chaos)")
+        self.lyap_widget.setMaximumHeight(170)
+        self.lyap_widget.hide()
+
+        row1 = QHBoxLayout()
+        row1.setContentsMargins(0, 0, 0, 0)
+        row1.setSpacing(4)
+        row1.addWidget(QLabel("Sweep"))
+        row1.addWidget(self.parameter)
+        row1.addWidget(QLabel("from"))
+        row1.addWidget(self.lo)
+        row1.addWidget(QLabel("to"))
+        row1.addWidget(self.hi)
+        row1.addWidget(QLabel("in"))
+        row1.addWidget(self.count)
+        row1.addWidget(QLabel("steps, showing"))
+        row1.addWidget(self.observe)
+        row1.addWidget(QLabel("at"))
+        row1.addWidget(self.mode)
+        row1.addWidget(self.mode_stack)
+        row1.addStretch(1)
+        row2 = QHBoxLayout()
+        row2.setContentsMargins(0, 0, 0, 0)
+        row2.setSpacing(4)
+        self.transient_label = QLabel("Settle for")
+        row2.addWidget(self.transient_label)
+        row2.addWidget(self.transient)
+        row2.addSpacing(6)
+        row2.addWidget(QLabel("keep"))
+        row2.addWidget(self.samples)
+        row2.addWidget(QLabel("points"))
+        self.dt_label = QLabel("step")
+        row2.addSpacing(6)
+        row2.addWidget(self.dt_label)
+        row2.addWidget(self.dt)
+        self.duration_label = QLabel("collect for at most")
+        row2.addSpacing(6)
+        row2.addWidget(self.duration_label)
+        row2.addWidget(self.duration)
+        row2.addSpacing(6)
+        row2.addWidget(self.lyapunov)
+        row2.addSpacing(6)
+        row2.addWidget(self.run_button)
+        row2.addWidget(self.strip, 1)
+        layout = QVBoxLayout(self)
+        layout.setContentsMargins(6, 6, 6, 6)
+        layout.setSpacing(4)
+        layout.addLayout(row1)
+        layout.addLayout(row2)
+        layout.addWidget(self.plot_widget, 3)
+        layout.addWidget(self.lyap_widget, 1)
+        layout.addWidget(self.info)
+
+        self._restyle()
+        session.systemChanged.connect(self._on_system)
+        session.valuesChanged.connect(self._on_values)
+        session.projectLoaded.connect(self._on_project_loaded)
+        self._on_project_loaded()
+        if session.system is not None:
+            self._on_system(session.system)
+
+    # ------------------------------------------------------------ view protocol
+    def view_settings(self) -> dict:
+        return {"parameter": self.parameter.currentText(), "from": float(self.lo.value()),
+                "to": float(self.hi.value()), "count": self.count.value(), "observe": self.observe.currentText(),
+                "mode": self.sampling_mode(),
+                "plane": {"state": self.plane_state.currentText(), "value": float(self.plane_value.value()),
+                          "direction": DIRECTIONS[self.direction.currentIndex()]},
+                "period": float(self.period.value()), "transient": float(self.transient.value()),
+                "samples": self.samples.value(), "dt": float(self.dt.value()),
+                "duration": float(self.duration.value()), "lyapunov": self.lyapunov.isChecked()}
+
+    def apply_view_settings(self, d: dict) -> None:
+        if not isinstance(d, dict):
+            return
+        self._wanted = dict(d)
+        for widget, key, kind in ((self.count, "count", int), (self.period, "period", float),
+                                  (self.transient, "transient", float), (self.samples, "samples", int),
+                                  (self.dt, "dt", float), (self.duration, "duration", float)):
+            v = d.get(key)
+            if isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v):
+                widget.blockSignals(True)
+                widget.setValue(kind(v))
+                widget.blockSignals(False)
+        self._user_period = isinstance(d.get("period"), (int, float))
+        self.lyapunov.setChecked(bool(d.get("lyapunov", False)))
+        if self.system is not None:
+            self._apply_wanted()
+
+    def export_data(self):
+        """Every point of the diagram: parameter value, observed value (and the exponent at that value)."""
+        r = self.result
+        if r is None:
+            return None
+        M, K = r.samples.shape
+        x = np.repeat(r.values, K)
+        y = r.samples.ravel()
+        ok = np.isfinite(y)
+        header = [r.parameter, r.observed]
+        cols = [x[ok], y[ok]]
+        if r.lyapunov is not None:
+            header.append("largest Lyapunov exponent")
+            cols.append(np.repeat(r.lyapunov, K)[ok])
+        return header, np.column_stack(cols)
+
+    # ------------------------------------------------------------ public
+    def sampling_mode(self) -> str:
+        if self.system is not None and self.system.kind == "map":
+            return ITERATE
+        i = self.mode.currentIndex()
+        return FLOW_MODES[i] if 0 <= i < len(FLOW_MODES) else MAXIMA
+
+    def settings(self):
+        """The core SweepSettings for the controls."""
+        from orbitdesk.core.sweep import SweepSettings
+
+        mode = self.sampling_mode()
+        s = SweepSettings(mode=mode, observe=self.observe.currentText() or None,
+                          transient=float(self.transient.value()), samples=self.samples.value(),
+                          dt=float(self.dt.value()), duration=float(self.duration.value()),
+                          lyapunov=self.lyapunov.isChecked(), t_start=float(self.session.solver.t_start))
+        if mode == PLANE:
+            s.plane = (self.plane_state.currentText(), float(self.plane_value.value()))
+            s.direction = DIRECTIONS[self.direction.currentIndex()]
+        elif mode == STROBE:
+            s.period = float(self.period.value())
+        return s
+
+    def set_range(self, parameter: str, lo: float, hi: float, count: int | None = None) -> None:
+        i = self.parameter.findText(parameter)
+        if i >= 0:
+            self.parameter.setCurrentIndex(i)
+        self.lo.setValue(float(lo))
+        self.hi.setValue(float(hi))
+        if count is not None:
+            self.count.setValue(int(count))
+
+    def set_sampling(self, mode: str, observe: str | None = None, **kw) -> None:
+        if observe is not None and self.observe.findText(observe) >= 0:
+            self.observe.setCurrentIndex(self.observe.findText(observe))
+        if mode in FLOW_MODES and self.system is not None and self.system.kind != "map":
+            self.mode.setCurrentIndex(FLOW_MODES.index(mode))
+        if "period" in kw:
+            self.period.setValue(float(kw["period"]))
+        if "plane" in kw:
+            state, value = kw["plane"]
+            if self.plane_state.findText(state) >= 0:
+                self.plane_state.setCurrentIndex(self.plane_state.findText(state))
+            self.plane_value.setValue(float(value))
+        if "direction" in kw:
+            self.direction.setCurrentIndex(DIRECTIONS.index(kw["direction"]))
+
+    def run(self) -> None:
+        s = self.system
+        if s is None or not s.parameters:
+            self.info.setText("The model has no parameter to sweep" if s is not None else "No model yet")
+            return
+        from orbitdesk.core.sweep import sweep
+
+        name = self.parameter.currentText()
+        lo, hi, count = float(self.lo.value()), float(self.hi.value()), self.count.value()
+        if not lo < hi:
+            self.info.setText("The first value must be below the last")
+            return
+        try:
+            settings = self.settings().checked(s)
+        except ValueError as e:
+            self.info.setText(str(e)[:1].upper() + str(e)[1:])
+            return
+        values = np.linspace(lo, hi, count)
+        u0, p = self.session.initial_vector(), self.session.param_vector()
+        self._pending = self._fingerprint(name)
+
+        def job(cancel, report):
+            return sweep(s, name, values, settings, u0=u0, p=p, cancel=cancel, progress=report)
+
+        self.info.setText("")
+        self.strip.what = f"Sweeping {name} over {count} values"
+        self.strip.run("sweep", job, self._adopt, on_error=lambda m: None)
+
+    def cancel(self) -> None:
+        self.strip.cancel()
+
+    # ------------------------------------------------------------ session events
+    def _on_project_loaded(self) -> None:
+        self.system = None
+        self._clear_result()
+        self._range_for = None
+        self._user_period = self._user_plane_value = False
+        self.apply_view_settings(self.session.project.views.get(self.view_id, {}))
+
+    def _on_system(self, system) -> None:
+        old = self.system
+        self.system = system
+        if old is None or list(old.parameters) != list(system.parameters) or list(old.states) != list(system.states):
+            self._clear_result()
+        is_map = system.kind == "map"
+        keep = (self.parameter.currentText(), self.observe.currentText(), self.plane_state.currentText(),
+                self.sampling_mode() if old is not None else None)
+        for combo in (self.parameter, self.observe, self.plane_state, self.mode):
+            combo.blockSignals(True)
+        self.parameter.clear()
+        self.parameter.addItems(list(system.parameters))
+        self.observe.clear()
+        self.observe.addItems(list(system.states) + list(system.derived_names))
+        self.plane_state.clear()
+        self.plane_state.addItems(list(system.states))
+        self.mode.clear()
+        self.mode.addItems([MODE_LABELS[ITERATE]] if is_map else [MODE_LABELS[m] for m in FLOW_MODES])
+        for combo, name in ((self.parameter, keep[0]), (self.observe, keep[1]), (self.plane_state, keep[2])):
+            if name and combo.findText(name) >= 0:
+                combo.setCurrentIndex(combo.findText(name))
+        period = None if is_map else detected_period(system, self.session.param_vector())
+        if not is_map:
+            if keep[3] in FLOW_MODES:
+                self.mode.setCurrentIndex(FLOW_MODES.index(keep[3]))
+            else:
+                self.mode.setCurrentIndex(FLOW_MODES.index(STROBE if period is not None else MAXIMA))
+        for combo in (self.parameter, self.observe, self.plane_state, self.mode):
+            combo.blockSignals(False)
+        if period is not None and not self._user_period:
+            self.period.blockSignals(True)
+            self.period.setValue(period)
+            self.period.blockSignals(False)
+        for w in (self.dt, self.dt_label, self.duration, self.duration_label):
+            w.setVisible(not is_map)
+        self.transient_label.setText("Skip the first" if is_map else "Settle for")
+        if self.parameter.currentText() != self._range_for:
+            self._range_for = None
+        self._apply_wanted()
+        self._on_parameter()
+        self._on_mode()
+        self._default_plane_value()
+        self.run_button.setEnabled(bool(system.parameters))
+        if not system.parameters:
+            self.info.setText("The model has no parameter to sweep")
+
+    def _apply_wanted(self) -> None:
+        d, self._wanted = self._wanted, None
+        if not d or self.system is None:
+            return
+        if isinstance(d.get("parameter"), str) and self.parameter.findText(d["parameter"]) >= 0:
+            self.parameter.blockSignals(True)
+            self.parameter.setCurrentIndex(self.parameter.findText(d["parameter"]))
+            self.parameter.blockSignals(False)
+        if all(isinstance(d.get(k), (int, float)) and not isinstance(d.get(k), bool) for k in ("from", "to")):
+            self.lo.setValue(float(d["from"]))
+            self.hi.setValue(float(d["to"]))
+            self._range_for = self.parameter.currentText()
+        if isinstance(d.get("observe"), str) and self.observe.findText(d["observe"]) >= 0:
+            self.observe.setCurrentIndex(self.observe.findText(d["observe"]))
+        if d.get("mode") in FLOW_MODES and self.system.kind != "map":
+            self.mode.setCurrentIndex(FLOW_MODES.index(d["mode"]))
+        plane = d.get("plane")
+        if isinstance(plane, dict):
+            if isinstance(plane.get("state"), str) and self.plane_state.findText(plane["state"]) >= 0:
+                self.plane_state.setCurrentIndex(self.plane_state.findText(plane["state"]))
+            if isinstance(plane.get("value"), (int, float)) and not isinstance(plane.get("value"), bool):
+                self.plane_value.setValue(float(plane["value"]))
+            if plane.get("direction") in DIRECTIONS:
+                self.direction.setCurrentIndex(DIRECTIONS.index(plane["direction"]))
+
+    def _on_values(self) -> None:
+        self._update_marker()
+        if self.system is not None and self.system.kind != "map" and not self._user_period:
+            period = detected_period(self.system, self.session.param_vector())
+            if period is not None:
+                self.period.blockSignals(True)
+                self.period.setValue(period)
+                self.period.blockSignals(False)
+        if self.result is not None and self._fingerprint(self.result.parameter) != self._computed_with:
+            self.info.setText("Other values changed since this diagram was computed: press Run to update it")
+
+    # ------------------------------------------------------------ controls
+    def _on_parameter(self, _index=None) -> None:
+        name = self.parameter.currentText()
+        if not name or self.system is None:
+            return
+        if self._range_for != name:
+            from orbitdesk.ui.parameters import slider_range
+
+            lo, hi = slider_range(self.session.params.get(name, 0.0), *self.session.param_range(name))
+            self.lo.setValue(lo)
+            self.hi.setValue(hi)
+            self._range_for = name
+        self.plot.setLabel("bottom", name)
+        self.lyap_plot.setLabel("bottom", name)
+        self._update_marker()
+
+    def _on_observe(self, _index=None) -> None:
+        self.plot.setLabel("left", self.observe.currentText())
+
+    def _on_mode(self, _index=None) -> None:
+        mode = self.sampling_mode()
+        self.mode_stack.setCurrentIndex({STROBE: 1, PLANE: 2}.get(mode, 0))
+        for w in (self.duration, self.duration_label):
+            w.setVisible(mode in (PLANE, MAXIMA))
+        self._on_observe()
+
+    def _on_plane_state(self, _index=None) -> None:
+        self._user_plane_value = False
+        self._default_plane_value()
+
+    def _default_plane_value(self) -> None:
+        middle = orbit_middle(self.session.trajectory, self.plane_state.currentText())
+        if not self._user_plane_value and middle is not None:
+            self.plane_value.blockSignals(True)
+            self.plane_value.setValue(middle)
+            self.plane_value.blockSignals(False)
+
+    def _fingerprint(self, swept: str):
+        """The values a diagram over ``swept`` depends on: every other parameter and the initial state."""
+        return (tuple((n, v) for n, v in sorted(self.session.params.items()) if n != swept),
+                tuple(sorted(self.session.initial.items())), id(self.system))
+
+    # ------------------------------------------------------------ the diagram
+    def _clear_result(self) -> None:
+        self.result = None
+        self._computed_with = None
+        self.points.setData([], [])
+        self.lyap_curve.setData([], [])
+        self.lyap_widget.hide()
+        self.info.setText("")
+
+    def _adopt(self, result) -> None:
+        self.result = result
+        self._computed_with = getattr(self, "_pending", None)
+        self._draw(refit=True)
+        self.sweepChanged.emit(result)
+
+    def _draw(self, refit: bool = False) -> None:
+        result = self.result
+        if result is None:
+            return
+        M, K = result.samples.shape
+        x = np.repeat(result.values, K)
+        y = result.samples.ravel()
+        ok = np.isfinite(y)
+        colour = QColor(series_colour(0, self))
+        colour.setAlpha(170)
+        size = 2.0 if ok.sum() > 20_000 else 2.5
+        self.points.setData(x[ok], y[ok], brush=pg.mkBrush(colour), size=size, pen=None)
+        self.plot.setLabel("left", result.observed)
+        self.plot.setLabel("bottom", result.parameter)
+        if result.lyapunov is not None:
+            self.lyap_curve.setData(result.values, result.lyapunov, connect="finite",
+                                    pen=pg.mkPen(series_colour(4, self), width=1.4))
+            self.lyap_plot.setLabel("left", "λ max")
+            self.lyap_widget.show()
+        else:
+            self.lyap_curve.setData([], [])
+            self.lyap_widget.hide()
+        if refit:
+            self.plot.enableAutoRange()
+            self.plot.autoRange(padding=0.02)
+            self.plot.setXRange(float(result.values[0]), float(result.values[-1]), padding=0.01)
+        failed = int(np.sum(np.asarray(result.status) != "ok"))
+        empty = int(np.sum(~np.isfinite(result.samples).any(axis=1)))
+        parts = [f"{M} values × up to {K} points ({MODE_LABELS.get(result.mode, result.mode)} of {result.observed})"]
+        if failed:
+            parts.append(f"{failed} value{'s' if failed != 1 else ''} blew up or failed")
+        if empty:
+            parts.append(f"{empty} value{'s' if empty != 1 else ''} gave no points")
+        self.info.setText("; ".join(parts))
+        self._update_marker()
+
+    def _update_marker(self) -> None:
+        name = self.parameter.currentText()
+        value = self.session.params.get(name)
+        show = value is not None and math.isfinite(value)
+        for line in (self.marker, self.lyap_marker):
+            line.setVisible(show)
+            if show:
+                line.blockSignals(True)
+                line.setValue(value)
+                line.blockSignals(False)
+        if show:
+            self.marker.setToolTip(f"{name} = {number_text(value)}: drag the line, or click the diagram")
+
+    def _set_parameter(self, x: float) -> None:
+        name = self.result.parameter if self.result is not None else self.parameter.currentText()
+        if name and self.system is not None and name in self.system.parameters:
+            self.session.set_param(name, float(x))
+
+    def _on_click(self, event) -> None:
+        if event.button() != Qt.MouseButton.LeftButton or event.double():
+            return
+        vb = self.plot.getViewBox()
+        pos = event.scenePos()
+        if not vb.sceneBoundingRect().contains(pos):
+            return
+        self._set_parameter(vb.mapSceneToView(pos).x())
+        event.accept()
+
+    def _on_marker_dragged(self, line) -> None:
+        self._set_parameter(line.value())
+
+    # ------------------------------------------------------------ look
+    def changeEvent(self, event) -> None:
+        super().changeEvent(event)
+        if event.type() == QEvent.Type.PaletteChange:
+            self._restyle()
+
+    def _restyle(self) -> None:
+        for w in (self.plot_widget, self.lyap_widget):
+            style_plot(w, self)
+            plain_axes(w.getPlotItem())
+        accent = series_colour(1, self)
+        self.marker.setPen(pg.mkPen(accent, width=1.5))
+        self.marker.setHoverPen(pg.mkPen(accent, width=3))
+        self.lyap_marker.setPen(pg.mkPen(accent, width=1))
+        self.lyap_zero.setPen(pg.mkPen(muted_colour(self), width=1, style=Qt.PenStyle.DashLine))
+        self._draw()
+
+
+VIEW = SweepView
