@@ -49,7 +49,9 @@ _PRINTER = _ModelPrinter()
 
 def model_str(expr) -> str:
     """One expression as the model language would write it."""
-    return _PRINTER.doprint(sp.sympify(expr, strict=True) if not isinstance(expr, sp.Basic) else expr).replace("**", "^")
+    if not isinstance(expr, sp.Basic):  # plain numbers only; text is never converted here
+        expr = sp.Integer(expr) if isinstance(expr, int) else sp.Float(float(expr))
+    return _PRINTER.doprint(expr).replace("**", "^")
 
 
 def number_str(value: float) -> str:
