@@ -150,3 +150,37 @@ def test_time_dependent_model_explains_itself(qtbot, session):
 
 
 AUTO_WAIT = 500
+
+
+def test_in_the_window_equilibria_reach_the_other_views(qtbot, window, artifacts):
+    s = window.session
+    plane, space = window.ensure_view("phase_plane"), window.ensure_view("phase_space_3d")
+    view = window.ensure_view("equilibria")
+    window.view_docks["equilibria"].show()
+    window.view_docks["phase_space_3d"].show()
+    found = wait_found(qtbot, view, lambda: load(qtbot, s, LORENZ))
+    assert len(plane.equilibria) == 3 and len(space.equilibria) == 3
+    saddle_row = [r for r, eq in enumerate(found) if eq.kind == "saddle"][0]
+    view.select(saddle_row)
+    assert space.selected_equilibrium is found[saddle_row]
+    with qtbot.waitSignal(space.addedChanged, timeout=20000):
+        starts = view.start_along("+v1")  # the unstable direction of the origin
+    assert len(starts) == 1 and not starts[0]["backward"]
+    run = space.added_runs[0]
+    np.testing.assert_allclose(run.states[:, 0], starts[0]["u0"])
+    # leaving along the unstable direction the orbit goes out to the attractor (Strogatz sec. 9.3)
+    assert np.max(np.abs(run.series("z"))) > 10
+    assert "3D" in view.starts_note.text()
+
+
+def test_planar_starts_go_to_the_phase_plane(qtbot, window):
+    s = window.session
+    plane = window.ensure_view("phase_plane")
+    view = window.ensure_view("equilibria")
+    window.view_docks["equilibria"].show()
+    found = wait_found(qtbot, view, lambda: load(qtbot, s, SADDLE_2D))
+    view.select([r for r, eq in enumerate(found) if eq.kind == "saddle"][0])
+    before = len(plane.seeds)
+    view.start_along(None)  # four starts: +-v1, +-v2
+    assert len(plane.seeds) == before + 4
+    assert sum(1 for seed in plane.seeds[before:] if seed["both"]) == 2  # the stable direction runs backward too

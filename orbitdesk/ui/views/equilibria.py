@@ -432,7 +432,7 @@ class EquilibriaView(QWidget):
                     u = dict(zip(s.states, st["u0"]))
                     view.start_trajectory(u[view.x_name], u[view.y_name], both=st["backward"])
                 where.append(view.title)
-        return " and ".join(w.lower() for w in where)
+        return " and ".join(f"{w[:1].lower()}{w[1:]} view" for w in where)
 
 
 VIEW = EquilibriaView
