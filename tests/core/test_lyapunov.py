@@ -1,0 +1,189 @@
+"""Lyapunov exponents: published spectra, closed forms, the two-trajectory cross-check, edge cases."""
+
+import math
+
+import numpy as np
+import pytest
+from scipy.integrate import solve_ivp
+from scipy.linalg import expm
+
+from orbitdesk.core.lyapunov import (QR, TWO_TRAJECTORY, kaplan_yorke_dimension, largest_lyapunov_two_trajectory,
+                                     lyapunov_spectrum)
+from orbitdesk.core.progress import CancelToken
+from orbitdesk.core.system import compile_model
+from orbitdesk.core.variational import map_with_jacobian, variational_rhs, variational_rk4_step
+
+LORENZ = ("x' = sigma*(y - x)\ny' = x*(r - z) - y\nz' = x*y - beta*z\n"
+          "sigma = 10\nr = 28\nbeta = 8/3\nx(0) = 1\ny(0) = 1\nz(0) = 1\n")
+HENON = "x[n+1] = 1 - a*x^2 + y\ny[n+1] = b*x\na = 1.4\nb = 0.3\nx[0] = 0.1\ny[0] = 0.1\n"
+# r = 4: start away from the dyadic points, whose float orbits fall onto 0 (0.5 -> 1 -> 0).
+LOGISTIC = "x[n+1] = r*x*(1 - x)\nr = 4\nx[0] = 0.1234567\n"
+
+
+@pytest.fixture(scope="module")
+def lorenz_spectrum():
+    return lyapunov_spectrum(compile_model(LORENZ), t_end=1020, transient=20)
+
+
+# ---------------------------------------------------------------- published values
+def test_lorenz_spectrum_sprott(lorenz_spectrum):
+    # Sprott, Chaos and Time-Series Analysis (2003), table of exponents: 0.9056, 0, -14.5723.
+    result = lorenz_spectrum
+    assert result.ok and result.method == QR
+    l1, l2, l3 = result.exponents
+    assert l1 == pytest.approx(0.906, abs=0.05)
+    assert abs(l2) < 0.05
+    assert l3 == pytest.approx(-14.57, abs=0.1)
+    # closed form: the trace of the Jacobian is -(sigma + 1 + beta) everywhere
+    assert result.exponents.sum() == pytest.approx(-(10 + 1 + 8 / 3), abs=1e-3)
+
+
+def test_lorenz_kaplan_yorke_dimension_sprott(lorenz_spectrum):
+    # Sprott (2003): D_KY = 2.062 for the Lorenz attractor.
+    assert lorenz_spectrum.kaplan_yorke_dimension == pytest.approx(2.06, abs=0.01)
+
+
+def test_lorenz_running_estimates_converge(lorenz_spectrum):
+    result = lorenz_spectrum
+    assert result.running.shape[1] == 3 and result.running.shape[0] == result.times.size > 100
+    assert np.allclose(result.running[-1], result.exponents)
+    assert np.all(np.diff(result.times) > 0) and result.times[-1] == pytest.approx(1020)
+    late = result.running[result.times > 520]
+    assert np.ptp(late[:, 0]) < 0.1  # the largest estimate has settled
+
+
+def test_two_trajectory_agrees_with_qr_for_lorenz(lorenz_spectrum):
+    # Benettin et al. (1980): the two methods estimate the same largest exponent.
+    two = largest_lyapunov_two_trajectory(compile_model(LORENZ), t_end=1020, transient=20)
+    assert two.ok and two.method == TWO_TRAJECTORY and two.exponents.size == 1
+    assert two.kaplan_yorke_dimension is None
+    assert two.largest == pytest.approx(lorenz_spectrum.largest, abs=0.1)
+
+
+def test_henon_spectrum_sprott():
+    # Sprott (2003): 0.41922, -1.62319 for a = 1.4, b = 0.3.
+    result = lyapunov_spectrum(compile_model(HENON), steps=50000, transient=500)
+    assert result.ok
+    assert result.exponents[0] == pytest.approx(0.419, abs=0.01)
+    assert result.exponents[1] == pytest.approx(-1.623, abs=0.01)
+    # closed form: det J = -b at every point, so the sum is ln b
+    assert result.exponents.sum() == pytest.approx(math.log(0.3), abs=1e-10)
+    assert result.averaged_over == 49500
+    # Sprott (2003): D_KY = 1.258
+    assert result.kaplan_yorke_dimension == pytest.approx(1.258, abs=0.01)
+
+
+def test_henon_two_trajectory():
+    two = largest_lyapunov_two_trajectory(compile_model(HENON), steps=50000, transient=500)
+    assert two.largest == pytest.approx(0.419, abs=0.01)
+
+
+def test_logistic_map_at_four_is_ln2():
+    # closed form: x = sin^2(pi theta) conjugates r = 4 to the doubling map, lambda = ln 2.
+    result = lyapunov_spectrum(compile_model(LOGISTIC), steps=50000, transient=100)
+    assert result.ok and not result.warnings
+    assert result.exponents[0] == pytest.approx(math.log(2), abs=1e-2)
+
+
+# ---------------------------------------------------------------- closed forms
+def test_linear_flow_exponents_are_real_parts_of_eigenvalues():
+    system = compile_model("x' = -x + 2*y\ny' = -3*y + 5*z\nz' = 0.5*z\nx(0) = 1\ny(0) = 1\nz(0) = 1\n")
+    result = lyapunov_spectrum(system, t_end=60, transient=5)
+    assert np.allclose(result.exponents, [0.5, -1, -3], atol=0.02)
+    assert result.exponents.sum() == pytest.approx(-3.5, abs=1e-3)  # trace, up to the RK4 step's error
+
+
+def test_cat_map_exponents_closed_form():
+    # Arnold's cat map (mod 1 keeps the orbit bounded): lambda = +-ln((3 + sqrt 5) / 2).
+    system = compile_model("x[n+1] = mod(2*x + y, 1)\ny[n+1] = mod(x + y, 1)\nx[0] = 0.1\ny[0] = 0.3\n")
+    result = lyapunov_spectrum(system, steps=200)
+    assert result.method == TWO_TRAJECTORY and "mod" in result.warnings[0]
+    linear = compile_model("x[n+1] = 2*x + y\ny[n+1] = x + y\nx[0] = 0.1\ny[0] = 0.3\n")
+    spectrum = lyapunov_spectrum(linear, steps=20, transient=0, settings=None)
+    golden = math.log((3 + math.sqrt(5)) / 2)
+    assert np.allclose(spectrum.exponents, [golden, -golden], atol=0.05)
+    assert result.largest == pytest.approx(golden, abs=0.05)
+
+
+def test_forced_linear_flow_time_enters_the_jacobian():
+    # x' = (-1 + 2 cos t) x: lambda = mean of -1 + 2 cos t = -1 (closed form); t_end a whole number of periods.
+    system = compile_model("x' = (-1 + 2*cos(t))*x\nx(0) = 1\n")
+    result = lyapunov_spectrum(system, t_end=2 * math.pi * 44, transient=2 * math.pi * 4)
+    assert result.exponents[0] == pytest.approx(-1.0, abs=1e-4)
+
+
+def test_kaplan_yorke_closed_forms():
+    assert kaplan_yorke_dimension([0.5, 0.0, -1.0]) == pytest.approx(2.5)
+    assert kaplan_yorke_dimension([-1.0, -2.0]) == 0.0
+    assert kaplan_yorke_dimension([1.0, 0.5]) == 2.0
+    assert kaplan_yorke_dimension([-2.0, 1.0]) == pytest.approx(1.5)  # sorted first
+
+
+# ---------------------------------------------------------------- variational evaluators
+def test_variational_rhs_gives_the_matrix_exponential():
+    system = compile_model("x' = -x + 2*y\ny' = 3*x - 4*y\nx(0) = 1\ny(0) = 0\n")
+    rhs = variational_rhs(system)
+    z0 = np.concatenate([system.initial, np.eye(2).ravel()])
+    sol = solve_ivp(rhs, (0, 1.5), z0, method="DOP853", rtol=1e-11, atol=1e-12)
+    a = np.array([[-1.0, 2.0], [3.0, -4.0]])
+    assert np.allclose(sol.y[2:, -1].reshape(2, 2), expm(1.5 * a), atol=1e-9)
+    step = variational_rk4_step(system)
+    z = list(z0)
+    for k in range(150):
+        z = step(k * 0.01, 0.01, z)
+    assert np.allclose(np.reshape(z[2:], (2, 2)), expm(1.5 * a), atol=1e-7)
+
+
+def test_map_with_jacobian_henon():
+    system = compile_model(HENON)
+    g = map_with_jacobian(system)
+    u, jac = g(0, [0.2, -0.1])
+    assert np.allclose(u, [1 - 1.4 * 0.04 - 0.1, 0.3 * 0.2])
+    assert np.allclose(jac, [[-2 * 1.4 * 0.2, 1.0], [0.3, 0.0]])
+    with pytest.raises(ValueError, match="smooth"):
+        variational_rhs(compile_model("x' = -abs(x)\nx(0) = 1\n"))
+
+
+# ---------------------------------------------------------------- edge cases
+def test_nonsmooth_flow_falls_back_with_a_warning():
+    system = compile_model("x' = y\ny' = -0.2*y - x + 0.5*sign(x) + 0.3*cos(1.1*t)\nx(0) = 0.1\n")
+    result = lyapunov_spectrum(system, t_end=200)
+    assert result.method == TWO_TRAJECTORY and result.exponents.size == 1
+    assert "sign" in result.warnings[0] and "two nearby trajectories" in result.warnings[0]
+    assert result.kaplan_yorke_dimension is None and math.isfinite(result.largest)
+
+
+def test_logistic_orbit_through_the_critical_point():
+    system = compile_model(LOGISTIC)
+    result = lyapunov_spectrum(system, u0=[0.5], steps=100, transient=0)
+    assert result.status == "undefined" and "critical point" in result.message
+    collapsed = lyapunov_spectrum(system, u0=[0.5], steps=100, transient=10)  # 0.5 -> 1 -> 0, then stays
+    assert "fixed point" in collapsed.warnings[0]
+    assert collapsed.exponents[0] == pytest.approx(math.log(4))  # f'(0) = r
+
+
+def test_blow_up_is_reported_not_raised():
+    result = lyapunov_spectrum(compile_model("x' = x^2\nx(0) = 1\n"), t_end=5, transient=0, dt=0.01)
+    assert result.status == "diverged" and result.message
+
+
+def test_cancel_returns_a_cancelled_result():
+    token = CancelToken()
+    token.cancel()
+    result = lyapunov_spectrum(compile_model(HENON), steps=100000, transient=0, cancel=token)
+    assert result.status == "cancelled"
+
+
+def test_refuses_a_run_shorter_than_the_transient():
+    with pytest.raises(ValueError, match="transient"):
+        lyapunov_spectrum(compile_model(LORENZ), t_end=10, transient=20)
+    with pytest.raises(ValueError, match="transient"):
+        lyapunov_spectrum(compile_model(HENON), steps=10, transient=10)
+
+
+def test_escaping_map_orbit_is_reported_not_raised():
+    system = compile_model("x[n+1] = x^2 + 3\nx[0] = 2\n")
+    for result in (lyapunov_spectrum(system, steps=100, transient=0),
+                   lyapunov_spectrum(system, steps=100, transient=50),
+                   largest_lyapunov_two_trajectory(system, steps=100, transient=0)):
+        assert result.status == "diverged" and "infinity" in result.message
