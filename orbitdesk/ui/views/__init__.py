@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import importlib
 
-VIEW_MODULES = ["timeseries", "phase_plane", "phase_space_3d", "equilibria", "sections", "sweep"]
+VIEW_MODULES = ["timeseries", "phase_plane", "phase_space_3d", "equilibria", "sections", "sweep", "lyapunov"]
 DEFAULT_VISIBLE = ("timeseries", "phase_plane")
 
 # Our own series colours: muted, distinguishable on light and dark backgrounds (light, dark variants).
