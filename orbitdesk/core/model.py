@@ -378,8 +378,7 @@ class _Builder:
                     m.equations[base] = expr
             else:
                 m.derived[key] = expr
-        if len(m.equations) != len(m.states):
-            m.equations = {s: m.equations[s] for s in m.states if s in m.equations}
+        m.equations = {s: m.equations[s] for s in m.states if s in m.equations}  # in state order
 
     def placeholder_key(self, sym, derived_names):
         name = sym.name

@@ -1,0 +1,250 @@
+"""Property-based fuzzing of the model language parser (hypothesis).
+
+(a) arbitrary text never makes parse_model raise; (b) generated models over states, parameters
+and functions parse without raising, and when they parse cleanly they compile and their right
+side is finite or raises UndefinedValue; (c) random edits of the Lorenz model never make the
+parser raise. Every diagnostic must point inside the text: 1 <= column < end_column, and the
+line exists.
+
+The default run tries a few thousand examples in all (well under a minute). For a long, deep
+run set ORBITDESK_FUZZ_EXAMPLES to the number of examples per test, e.g.
+
+    ORBITDESK_FUZZ_EXAMPLES=50000 .venv/bin/python -m pytest -q tests/core/test_fuzz_parser.py
+"""
+
+from __future__ import annotations
+
+import math
+import os
+import re
+
+import numpy as np
+import sympy as sp
+from hypothesis import HealthCheck, assume, given, settings
+from hypothesis import strategies as st
+
+from orbitdesk.core.diagnostics import SEVERITIES
+from orbitdesk.core.expression import FUNCTIONS
+from orbitdesk.core.model import MAX_STATEMENTS, parse_model
+from orbitdesk.core.system import UndefinedValue, compile_model
+
+_DEEP = int(os.environ.get("ORBITDESK_FUZZ_EXAMPLES", "0"))
+
+
+def budget(default: int):
+    return settings(max_examples=_DEEP or default, deadline=None, derandomize=not _DEEP,
+                    suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large,
+                                           HealthCheck.filter_too_much])
+
+
+def check_diagnostics(text: str, model) -> None:
+    lines = text.split("\n")
+    for d in model.diagnostics:
+        assert d.severity in SEVERITIES, d
+        assert 1 <= d.column < d.end_column, d
+        assert 1 <= d.line <= max(len(lines), 1) or d.line == MAX_STATEMENTS + 1, d
+        if d.line <= len(lines):
+            assert d.column <= len(lines[d.line - 1]) + 1, (d, lines[d.line - 1])
+        assert d.message
+
+
+def overflows_floats(system, t, u) -> bool:
+    """True when some right side is really beyond the float range (then inf is the right float answer)."""
+    values = {system.t_symbol: t, **dict(zip(system.state_symbols, u)),
+              **dict(zip(system.param_symbols, system.param_values))}
+    for expr in system.f:
+        exact = expr.xreplace({k: sp.Float(float(v), 30) for k, v in values.items()}).evalf(30)
+        if exact.is_finite is False or (exact.is_Number and abs(exact) > 1.7e308):
+            return True
+    return False
+
+
+def check_compiled(model) -> None:
+    """A model that parsed cleanly compiles, and its right side is finite or UndefinedValue."""
+    allowed = {model.symbols[s] for s in model.states} | {model.symbols[p] for p in model.parameters}
+    allowed.add(model.time_symbol)
+    for state, expr in model.equations.items():
+        assert expr.free_symbols <= allowed, (state, expr)
+    assert list(model.equations) == model.states
+    system = compile_model(model)
+    assert system.n_states == len(model.states)
+    for t, u in ((0.0, system.initial), (0.7, system.initial + 0.25)):
+        try:
+            value = system.rhs(t, u)
+        except UndefinedValue as exc:
+            assert str(exc)
+            continue
+        assert value.shape == (system.n_states,)
+        if not np.all(np.isfinite(value)):
+            assert overflows_floats(system, t, u), (model.text, value)
+
+
+# ---------------------------------------------------------------- (a) arbitrary text
+
+MODEL_CHARS = "xyzvn t'()[]+-*/^=.,0123456789eE#\n\t abcsinpiqrt_"
+odd_text = st.text(st.characters(codec=None, exclude_categories=()), max_size=400)
+model_like_text = st.lists(st.sampled_from(list(MODEL_CHARS) + ["**", "x' = ", "(0)", "[n+1]", "sin(", " in [",
+                                                               "\x00", "\r", "\u202e", "\ufffd", "é", "\u2032"]),
+                           max_size=120).map("".join)
+
+
+@budget(1500)
+@given(st.one_of(odd_text, model_like_text))
+def test_arbitrary_text_only_gives_diagnostics(text):
+    model = parse_model(text)
+    check_diagnostics(text, model)
+    if model.ok:
+        check_compiled(model)
+
+
+# ---------------------------------------------------------------- (b) generated models
+
+STATE_NAMES = ["x", "y", "z", "v", "theta", "u1"]
+PARAM_NAMES = ["a", "b", "c", "k", "mu", "sigma"]
+DERIVED_NAMES = ["d1", "energy"]
+UNARY = [f for f, n in FUNCTIONS.items() if n == 1]
+BINARY_FUNCS = [f for f, n in FUNCTIONS.items() if n == 2]
+
+numbers = st.one_of(
+    st.integers(0, 1000).map(str),
+    st.decimals(min_value=0, max_value=100, places=3, allow_nan=False, allow_infinity=False).map(str),
+    st.builds(lambda m, e: f"{m}e{e}", st.integers(1, 99), st.integers(-12, 12)),
+    st.sampled_from(["pi", "e", "0.5", ".25", "1.", "2.5E-1"]),
+)
+
+
+def _extend(inner):
+    return st.one_of(
+        st.builds(lambda a, op, b: f"{a} {op} {b}", inner, st.sampled_from(["+", "-", "*", "/", "^", "**"]), inner),
+        st.builds(lambda a: f"-{a}", inner),
+        st.builds(lambda a: f"({a})", inner),
+        st.builds(lambda f, a: f"{f}({a})", st.sampled_from(UNARY), inner),
+        st.builds(lambda f, a, b: f"{f}({a}, {b})", st.sampled_from(BINARY_FUNCS), inner, inner),
+    )
+
+
+# built once: names are drawn as placeholders "@k@" and bound to a model's own names afterwards
+expressions = st.recursive(st.one_of(st.integers(0, 30).map(lambda k: f"@{k}@"), numbers), _extend, max_leaves=12)
+_PLACEHOLDER = re.compile(r"@(\d+)@")
+
+
+def bind(expr: str, names: list[str]) -> str:
+    return _PLACEHOLDER.sub(lambda m: names[int(m.group(1)) % len(names)], expr)
+
+
+@st.composite
+def models(draw):
+    kind = draw(st.sampled_from(["flow", "map"]))
+    n_states = draw(st.integers(1, 4))
+    states = STATE_NAMES[:n_states]
+    orders = {s: (draw(st.sampled_from([1, 1, 1, 2, 3])) if kind == "flow" else 1) for s in states}
+    params = draw(st.lists(st.sampled_from(PARAM_NAMES), max_size=4, unique=True))
+    derived = draw(st.lists(st.sampled_from(DERIVED_NAMES), max_size=2, unique=True))
+    refs = []
+    for s in states:
+        if kind == "flow":
+            refs += [s + "'" * j for j in range(orders[s] + (1 if draw(st.booleans()) else 0))]
+        else:
+            refs += [s, f"{s}[n]"]
+    refs += params + derived + ["t" if kind == "flow" else "n"]
+    lines = []
+    for s in states:
+        lhs = s + "'" * orders[s] if kind == "flow" else f"{s}[n+1]"
+        lines.append(f"{lhs} = {bind(draw(expressions), refs)}")
+    for p in params:
+        value = draw(numbers)
+        rng = draw(st.one_of(st.just(""), st.builds(lambda lo, hi: f" in [{lo}, {hi}]", numbers, numbers)))
+        lines.append(f"{p} = {value}{rng}")
+    for d in derived:
+        lines.append(f"{d} = {bind(draw(expressions), refs)}")
+    for s in states:
+        for j in range(orders[s]):
+            if draw(st.booleans()):
+                name = s + "'" * j
+                lhs = f"{name}(0)" if kind == "flow" else f"{s}[0]"
+                lines.append(f"{lhs} = {draw(st.one_of(numbers, st.builds(lambda v: '-' + v, numbers)))}")
+    if draw(st.booleans()):
+        lines.insert(draw(st.integers(0, len(lines))), "# comment " + draw(st.sampled_from(["", "x' = 1", "é"])))
+    order = draw(st.permutations(range(len(lines))))
+    return "\n".join(lines[i] for i in order)
+
+
+@budget(600)
+@given(models())
+def test_generated_models_parse_and_compile(text):
+    model = parse_model(text)
+    check_diagnostics(text, model)
+    if model.ok:
+        check_compiled(model)
+        for name, order in model.typed_order.items():
+            for j in range(order - 1):
+                assert model.equations[name + "'" * j] == model.symbols[name + "'" * (j + 1)]
+
+
+def test_the_generator_reaches_clean_models():
+    # the property above is only worth something if many generated models parse cleanly
+    clean = []
+
+    @settings(max_examples=150, deadline=None, derandomize=True,
+              suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large])
+    @given(models())
+    def collect(text):
+        clean.append(parse_model(text).ok)
+
+    collect()
+    assert sum(clean) >= 0.3 * len(clean)
+
+
+# ---------------------------------------------------------------- (c) mutations of a valid model
+
+LORENZ = """# Lorenz (1963)
+x' = sigma*(y - x)
+y' = x*(rho - z) - y
+z' = x*y - beta*z
+sigma = 10 in [0, 20]
+rho = 28
+beta = 8/3
+x(0) = 1
+y(0) = 1
+z(0) = 1.05
+"""
+
+edit = st.tuples(st.sampled_from(["insert", "delete", "replace", "duplicate_line", "drop_line"]),
+                 st.floats(0, 1, exclude_max=True),
+                 st.one_of(st.sampled_from(list("xyz'()[]+-*/^=.,0123456789e#\n in")), st.characters()),
+                 st.integers(1, 8))
+
+
+def apply_edits(text: str, edits) -> str:
+    for op, where, char, count in edits:
+        i = int(where * (len(text) + 1))
+        if op == "insert":
+            text = text[:i] + char * count + text[i:]
+        elif op == "delete":
+            text = text[:i] + text[i + count:]
+        elif op == "replace":
+            text = text[:i] + char + text[i + 1:]
+        else:
+            lines = text.split("\n")
+            k = int(where * len(lines))
+            lines = lines[:k] + ([lines[k]] * 2 if op == "duplicate_line" else []) + lines[k + 1:]
+            text = "\n".join(lines)
+    return text
+
+
+@budget(1200)
+@given(st.lists(edit, min_size=1, max_size=6))
+def test_mutations_of_lorenz_never_raise(edits):
+    text = apply_edits(LORENZ, edits)
+    model = parse_model(text)
+    check_diagnostics(text, model)
+    if model.ok:
+        check_compiled(model)
+
+
+def test_unmutated_lorenz_is_clean():
+    model = parse_model(LORENZ)
+    assert model.ok and model.states == ["x", "y", "z"]
+    check_compiled(model)
+    assert apply_edits(LORENZ, [("insert", 0.0, "#", 1)]).startswith("##")
+    assert math.isclose(compile_model(model).rhs(0.0, [1, 1, 1.05])[2], 1 - 8 / 3 * 1.05)
