@@ -619,6 +619,7 @@ def _nullcline_curves(result):
     out = []
     for key, value in entries:
         index = key if isinstance(key, int) else len(out)
+        value = getattr(value, "segments", value)  # core.nullclines.Nullcline: polylines, each (2, K)
         segments = []
         if isinstance(value, np.ndarray) and value.ndim == 2 and value.shape[1] == 2:
             segments.append((value[:, 0], value[:, 1]))
