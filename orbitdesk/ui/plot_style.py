@@ -11,7 +11,7 @@ import math
 
 import numpy as np
 from PySide6.QtCore import Qt, QTimer, Signal
-from PySide6.QtGui import QColor, QFontDatabase, QValidator
+from PySide6.QtGui import QColor, QFontDatabase, QKeySequence, QShortcut, QValidator
 from PySide6.QtWidgets import (QDoubleSpinBox, QHBoxLayout, QLabel, QProgressBar, QSizePolicy, QToolButton,
                                QWidget)
 
@@ -220,7 +220,7 @@ class JobStrip(QWidget):
         self.bar.setMaximumWidth(180)
         self.bar.setToolTip("Progress of the computation")
         self.cancel_button = QToolButton(text="Cancel")
-        self.cancel_button.setToolTip("Stop this computation")
+        self.cancel_button.setToolTip("Stop this computation (Esc)")
         self.cancel_button.clicked.connect(self.cancel)
         self.label = QLabel()
         self.label.setStyleSheet("color: palette(placeholder-text);")
@@ -232,6 +232,7 @@ class JobStrip(QWidget):
         layout.addWidget(self.label, 1)
         layout.addWidget(self.bar)
         layout.addWidget(self.cancel_button)
+        self._shortcut = None
         self._watch = QTimer(self, interval=150)
         self._watch.timeout.connect(self._check_alive)
         self._set_running(False)
@@ -253,6 +254,11 @@ class JobStrip(QWidget):
             if on_error is not None:
                 on_error(message)
 
+        if self._shortcut is None and self.parentWidget() is not None:
+            # Esc in the view that holds this strip cancels its job
+            self._shortcut = QShortcut(QKeySequence(QKeySequence.StandardKey.Cancel), self.parentWidget())
+            self._shortcut.setContext(Qt.ShortcutContext.WidgetWithChildrenShortcut)
+            self._shortcut.activated.connect(self.cancel)
         self.bar.setValue(0)
         self.state = "running"
         self.label.setText(f"{self.what}…")

@@ -163,6 +163,16 @@ def test_cancelling_a_long_sweep(qtbot, session):
     view.lyapunov.setChecked(False)
     result = run_sweep(qtbot, view)
     assert result.values.size == 4
+    # Esc in the view cancels too (the shortcut itself: key events need an active window, which a bare
+    # virtual X server does not always give)
+    view.set_range("r", 20.0, 200.0, 2000)
+    view.transient.setValue(2000.0)
+    view.run_button.click()
+    shortcut = view.strip._shortcut
+    assert shortcut.key().toString() == "Esc" and shortcut.parent() is view
+    shortcut.activated.emit()
+    assert view.strip.state == "cancelled"
+    qtbot.waitUntil(lambda: session.jobs.pool.activeThreadCount() == 0, timeout=10000)
 
 
 def test_settings_round_trip(qtbot, session):

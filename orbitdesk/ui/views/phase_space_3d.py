@@ -540,6 +540,7 @@ class PhaseSpace3DView(QWidget):
 
     def _redraw_all(self) -> None:
         main = self._coords(self.trajectory) if self.trajectory is not None and self.trajectory.time.size else None
+        self._main_xyz = main  # kept for the time cursor, which moves often
         extras = []  # (xyz, time, kind, role index)
         for i, run in enumerate(self.added_runs):
             if run is not None and run.time.size:
@@ -691,7 +692,9 @@ class PhaseSpace3DView(QWidget):
 
     def _update_cursor(self, t: float) -> None:
         traj = self.trajectory
-        xyz = self._coords(traj) if traj is not None and traj.time.size else None
+        xyz = getattr(self, "_main_xyz", None)
+        if xyz is not None and (traj is None or xyz.shape[0] != traj.time.size):
+            xyz = None
         if xyz is None or not np.isfinite(t):
             self.cursor_item.setVisible(False)
             return
