@@ -283,7 +283,7 @@ def _map_spectrum(system, p, u, steps, transient, bound, report):
         for k in range(transient):
             state = list(f(k, state))
             if not all(abs(v) <= bound for v in state):
-                return _failed("map", QR, DIVERGED, f"the orbit escapes to infinity during the transient (n = {k + 1})", n)
+                raise OverflowError
     except OverflowError:
         return _failed("map", QR, DIVERGED, f"the orbit escapes to infinity during the transient (n = {k + 1})", n)
     except (ValueError, ZeroDivisionError, TypeError):

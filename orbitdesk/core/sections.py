@@ -64,7 +64,7 @@ def return_map(points, coordinate) -> tuple[np.ndarray, np.ndarray]:
 
 # ---------------------------------------------------------------- hyperplane sections
 def _section_function(system: CompiledSystem, coordinate: str, value: float, p):
-    """(g, rate, scale): g(t, u) = coordinate - value and dg/dt along the flow (or None)."""
+    """(g, rate): g(t, u) = coordinate - value, and dg/dt along the flow (None if not smooth)."""
     t, u, ps, _ = system._plain
     pv = tuple(float(v) for v in p)
     if coordinate in system.states:
@@ -107,7 +107,10 @@ def _crossing_rate(g, rate, system, p, t, u) -> float:
     """dg/dt at a crossing: the exact rate, else a central difference along the flow."""
     if rate is not None:
         return rate(t, u)
-    f = system.rhs(t, u, p)
+    try:
+        f = system.rhs(t, u, p)
+    except ArithmeticError:  # UndefinedValue
+        return math.nan
     eps = 1e-7 * max(1.0, float(np.max(np.abs(u))) / max(float(np.max(np.abs(f))), 1e-300))
     return (g(t + eps, u + eps * f) - g(t - eps, u - eps * f)) / (2 * eps)
 
@@ -123,7 +126,10 @@ def _refine(g, rate, system, p, t, u):
         if abs(delta) > 1e-6 * max(1.0, abs(best_t)):
             break
         t_new = best_t + delta
-        u_new = best_u + delta * system.rhs(best_t, best_u, p)
+        try:
+            u_new = best_u + delta * system.rhs(best_t, best_u, p)
+        except ArithmeticError:
+            break
         g_new = abs(g(t_new, u_new))
         if not g_new < best_g:
             break
@@ -150,7 +156,7 @@ def _select(times, rates, direction, tolerance):
                 touch.append(True)
                 k += 2
                 continue
-        if k > 0 and keep and keep[-1] == k - 1 and np.sign(rates[k - 1]) == np.sign(r) != 0 \
+        if k > 0 and np.sign(rates[k - 1]) == np.sign(r) != 0 \
                 and abs(times[k] - times[k - 1]) <= 1e-12 * max(1.0, abs(times[k])):
             k += 1  # the same crossing seen twice (round-off at a step end)
             continue
@@ -211,7 +217,7 @@ def plane_section(system: CompiledSystem, p=None, u0=None, coordinate: str = "",
     t_limit = t_begin + 100.0 * span if t_max is None else max(float(t_max), t_begin)
     raw_t, raw_u, raw_r = [], [], []
     keep, touch = [], []
-    chunk = span
+    chunk = 0.1 * span  # grows to what the crossing rate so far says is left
     status, message = OK, ""
     while len(keep) < count and t < t_limit:
         t_end = min(t + chunk, t_limit)
@@ -238,7 +244,8 @@ def plane_section(system: CompiledSystem, p=None, u0=None, coordinate: str = "",
             status, message = CANCELLED, "cancelled"
             break
         per_time = found / max(t - t_begin, 1e-300)
-        chunk = span if found == 0 else min(max(1.2 * (count - found) / per_time, 0.1 * span), 10 * span)
+        chunk = min(2 * chunk, span) if found == 0 else min(max(1.2 * (count - found) / per_time, 0.1 * span),
+                                                            10 * span)
     keep = keep[:count]
     touches = sum(touch[:count])
     if status == OK and not message and len(keep) < count:

@@ -90,8 +90,18 @@ def test_grazing_pass_recorded_at_most_once(value, direction):
     assert np.all(np.abs(result.points[0] - value) < 1e-10)
     passes = np.round((result.times - math.pi / 2) / (2 * math.pi))
     assert np.allclose(result.times, math.pi / 2 + 2 * math.pi * passes, atol=1e-3)
-    if value < 1:
-        assert result.complete and result.touches == 6
+    assert result.touches == result.times.size  # whether the computed orbit reaches 1 - 1e-9 is below rtol
+
+
+def test_near_grazing_pass_beyond_the_tolerance_is_resolved():
+    # x = 1 - 1e-6 is crossed at pi/2 -+ acos(1 - 1e-6) (closed form), 2.8e-3 apart: two crossings.
+    system = compile_model(CIRCLE)
+    half_gap = math.acos(1 - 1e-6)
+    up = plane_section(system, coordinate="x", value=1 - 1e-6, direction="up", count=4)
+    assert np.allclose(up.times, math.pi / 2 - half_gap + 2 * math.pi * np.arange(4), atol=1e-5)
+    both = plane_section(system, coordinate="x", value=1 - 1e-6, direction="both", count=4)
+    expected = math.pi / 2 + 2 * math.pi * np.repeat(np.arange(2), 2) + np.tile([-half_gap, half_gap], 2)
+    assert np.allclose(both.times, expected, atol=1e-5) and both.touches == 0
 
 
 def test_shallow_crossing_pair_inside_one_step_is_found():
@@ -208,3 +218,16 @@ def test_return_map_and_rows():
     assert rows[3]["z"] == result.points[2, 3] and rows[3]["t"] == result.times[3]
     empty = SectionResult(np.empty((2, 0)), np.empty(0), ["x", "y"], 5)
     assert empty.as_rows() == [] and not empty.complete
+
+
+def test_selection_of_touches_and_repeated_crossings():
+    from orbitdesk.core.sections import _select
+
+    # an up/down pair 1e-6 apart at rate 1e-3 only dips 2.5e-10 beyond the plane: one touch
+    times, rates = [1.0, 1.0 + 1e-6, 5.0, 5.0, 9.0], [1e-3, -1e-3, 2.0, 2.0, -2.0]
+    keep, touch = _select(times, rates, "both", 1e-7)
+    assert keep == [0, 2, 4] and touch == [True, False, False]  # the repeated crossing at t = 5 once
+    keep, touch = _select(times, rates, "down", 1e-7)
+    assert keep == [1, 4] and touch == [True, False]
+    keep, _ = _select(times, rates, "up", 1e-12)  # a tighter tolerance resolves the pair
+    assert keep == [0, 2]
