@@ -39,10 +39,13 @@ def run(args) -> int:
         if transient < 0:
             raise CommandError("--transient must not be negative")
     compute = largest_lyapunov_two_trajectory if args.two_trajectory else lyapunov_spectrum
+    progress = stderr_progress("lyapunov")
     try:
-        result = compute(system, p, u0, transient=transient, settings=settings, progress=stderr_progress("lyapunov"))
+        result = compute(system, p, u0, transient=transient, settings=settings, progress=progress)
     except ValueError as err:
         raise CommandError(str(err)) from None
+    if progress is not None:
+        progress(1.0)
     if args.json:
         print_json({"exponents": result.exponents, "kaplan_yorke_dimension": result.kaplan_yorke_dimension,
                     "method": result.method, "warnings": result.warnings, "status": result.status,

@@ -57,6 +57,8 @@ def run(args) -> int:
                                     progress=progress)
     except ValueError as err:
         raise CommandError(str(err)) from None
+    if progress is not None:
+        progress(1.0)
     if args.csv:
         header = [*system.states, "t"]
         write_csv(args.csv, header, [*result.points, result.times])
