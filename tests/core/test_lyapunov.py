@@ -187,3 +187,13 @@ def test_escaping_map_orbit_is_reported_not_raised():
                    lyapunov_spectrum(system, steps=100, transient=50),
                    largest_lyapunov_two_trajectory(system, steps=100, transient=0)):
         assert result.status == "diverged" and "infinity" in result.message
+
+
+def test_forced_duffing_sum_is_minus_delta():
+    # x'' + delta x' - x + x^3 = gamma cos(omega t): trace of the Jacobian is -delta everywhere (closed form);
+    # gamma = 0.5 is in the chaotic range, so the largest exponent is positive.
+    system = compile_model("x'' = -delta*x' + x - x^3 + gamma*cos(omega*t)\n"
+                           "delta = 0.3\ngamma = 0.5\nomega = 1.2\nx(0) = 1\nx'(0) = 0\n")
+    result = lyapunov_spectrum(system, t_end=1000, transient=100)
+    assert result.exponents.sum() == pytest.approx(-0.3, abs=1e-3)
+    assert result.exponents[0] > 0.05
