@@ -7,12 +7,14 @@ generated names first, so derivative states such as ``x'`` need no special handl
 
 from __future__ import annotations
 
+import linecache
 import math
 from dataclasses import dataclass, field
 from functools import cached_property
 
 import numpy as np
 import sympy as sp
+from sympy.printing.pycode import PythonCodePrinter
 
 from .model import FLOW, MAP, ParsedModel, parse_model
 
@@ -145,18 +147,20 @@ class CompiledSystem:
         """The fastest scalar evaluator, ``f(t, u, p) -> list`` with u and p as sequences."""
         return self._f_packed
 
-    def rhs_for_params(self, p=None):
-        """``f(t, u) -> list`` with the parameter values folded into the generated code (cached)."""
-        key = tuple(float(v) for v in (self.param_values if p is None else p))
-        cache = self.__dict__.setdefault("_fixed_rhs_cache", {})
-        if key not in cache:
-            t, u, plain_p, _ = self._plain
-            values = {sym: sp.Float(v) for sym, v in zip(plain_p, key)}
-            exprs = [e.xreplace(values) for e in self.plain(self.f)]
-            if len(cache) >= 16:
-                cache.pop(next(iter(cache)))
-            cache[key] = sp.lambdify([t, u], exprs, modules="math", cse=len(exprs) > 1)
-        return cache[key]
+    @cached_property
+    def _scalar_binder(self):
+        t, u, p, _ = self._plain
+        return _compile_binder(scalar_source(t, u, p, self.plain(self.f)))
+
+    def rhs_for_params(self, p=None, on_error=None):
+        """``f(t, y) -> list`` for a float ndarray ``y``, with the parameter values ``p`` bound.
+
+        The code is generated once per model; binding values is cheap. Expressions of the
+        parameters alone are computed once, at binding. When an expression is undefined the
+        function returns ``on_error(t, y)`` (default: the error propagates).
+        """
+        values = [float(v) for v in (self.param_values if p is None else p)]
+        return self._scalar_binder(*values, on_error)
 
     def rhs_function(self, p=None):
         """A fast ``f(t, u) -> list`` for one trajectory with parameters fixed at ``p``."""
@@ -225,6 +229,110 @@ class CompiledSystem:
                 return (f"{sp.sstr(bad)} is undefined in the equation for {state} at "
                         f"{self.time_name} = {float(t):.6g} ({where})")
         return None
+
+
+UNDEFINED_ERRORS = (ValueError, ZeroDivisionError, TypeError, OverflowError)
+
+
+class _ScalarPrinter(PythonCodePrinter):
+    """lambdify's printer for the ``math`` module, with floats printed exactly."""
+
+    def _print_Float(self, expr):
+        return repr(float(expr))
+
+    def _print_Pow(self, expr, rational=False):
+        # a negative base to a fractional power is undefined (math.pow raises) rather than complex
+        exp = expr.exp
+        if exp.is_Integer or exp in (sp.S.Half, -sp.S.Half):
+            return super()._print_Pow(expr, rational)
+        return f"pow({self._print(expr.base)}, {self._print(exp)})"
+
+
+def _printer():
+    return _ScalarPrinter({"fully_qualified_modules": False, "inline": True, "allow_unknown_functions": True,
+                           "user_functions": {}})
+
+
+def hoist_constants(exprs, params):
+    """Pull the non-trivial subexpressions of ``params`` and numbers alone out of ``exprs``.
+
+    Returns ``(constants, exprs)``: ``constants`` is a list of ``(symbol, expression)`` to be computed
+    once per parameter set; inside Add and Mul the parameter-only arguments are grouped together."""
+    params = set(params)
+    found: dict = {}
+
+    def const(e):
+        return not e.is_Atom and e.free_symbols <= params
+
+    def name(e):
+        if e not in found:
+            found[e] = sp.Symbol(f"_c{len(found)}", real=True)
+        return found[e]
+
+    def visit(e):
+        if e.is_Atom:
+            return e
+        if const(e):
+            return name(e)
+        args = [visit(a) for a in e.args]
+        if isinstance(e, (sp.Add, sp.Mul)):
+            fixed = [a for a, orig in zip(args, e.args) if orig.free_symbols <= params]
+            if len(fixed) >= 2:
+                rest = [a for a, orig in zip(args, e.args) if not orig.free_symbols <= params]
+                group = e.func(*[orig for orig in e.args if orig.free_symbols <= params])
+                return e.func(name(group), *rest, evaluate=False)
+        return e.func(*args)
+
+    new = [visit(e) for e in exprs]
+    return [(sym, e) for e, sym in found.items()], new
+
+
+def scalar_source(t, u, p, exprs) -> str:
+    """Python source of ``_bind(*p, on_error) -> rhs`` for the plain-symbol expressions ``exprs``.
+
+    Generated from sympy trees (the parser's whitelisted functions), never from model text. The
+    returned ``rhs(t, y)`` unpacks ``y.tolist()`` (float arithmetic, no numpy scalars) and catches
+    undefined values inside itself, so no wrapper frame is needed."""
+    printer = _printer()
+    constants, exprs = hoist_constants(list(exprs), p)
+    replacements, reduced = sp.cse(exprs, symbols=sp.numbered_symbols("_x"), optimizations=None)
+    pnames = [printer.doprint(s) for s in p]
+    unpack = ", ".join(printer.doprint(s) for s in u) + ("," if len(u) == 1 else "")
+    lines = [f"def _bind({', '.join(pnames + ['_on_error'])}):"]
+    if constants:
+        lines.append("    try:")
+        lines += [f"        {printer.doprint(s)} = {printer.doprint(e)}" for s, e in constants]
+        lines += ["    except _UNDEFINED:",
+                  "        def _undefined(_t, _y):",
+                  "            if _on_error is None:",
+                  "                raise ValueError('an expression of the parameters is undefined') from None",
+                  "            return _on_error(_t, _y)",
+                  "        return _undefined"]
+    lines += [f"    def _rhs({printer.doprint(t)}, _y):", "        try:",
+              f"            {unpack} = _y.tolist()" if u else "            pass"]
+    lines += [f"            {printer.doprint(s)} = {printer.doprint(e)}" for s, e in replacements]
+    lines += ["            return [" + ", ".join(printer.doprint(e) for e in reduced) + "]",
+              "        except _UNDEFINED:",
+              "            if _on_error is None:",
+              "                raise",
+              "            return _on_error(_t, _y)",
+              "    return _rhs"]
+    return "\n".join(lines) + "\n"
+
+
+_generated_count = 0
+
+
+def _compile_binder(source: str):
+    """Compile generated evaluator source (see ``scalar_source``) in a namespace of ``math`` names."""
+    global _generated_count
+    _generated_count += 1
+    namespace = {name: getattr(math, name) for name in dir(math) if not name.startswith("_")}
+    namespace.update(_UNDEFINED=UNDEFINED_ERRORS, math=math)
+    filename = f"<orbitdesk-generated-{_generated_count}>"
+    linecache.cache[filename] = (len(source), None, source.splitlines(True), filename)
+    exec(compile(source, filename, "exec"), namespace)  # generated from sympy trees, not model text
+    return namespace["_bind"]
 
 
 def _missing(name, what):
