@@ -30,9 +30,11 @@ py=${PYTHON:-python3}
 if [ ! -x .venv/bin/python ]; then
   "$py" -m venv .venv
 fi
-stamp=.venv/.orbitdesk-installed
+# The tests also cover the optional extras: Dask for cluster runs, numba for compiled ensembles.
+extras="test,cluster,jit"
+stamp=.venv/.orbitdesk-installed-${extras//,/-}
 if [ ! -f "$stamp" ] || [ pyproject.toml -nt "$stamp" ]; then
   .venv/bin/python -m pip install -q --upgrade pip >/dev/null
-  .venv/bin/python -m pip install -q -e ".[test]"
+  .venv/bin/python -m pip install -q -e ".[$extras]"
   touch "$stamp"
 fi

@@ -4,6 +4,7 @@ import argparse
 
 import numpy as np
 
+from orbitdesk.core.executors import SchedulerError, executor_for
 from orbitdesk.core.sweep import BOTH, DOWN, ITERATE, MAXIMA, PLANE, STROBE, UP, SweepSettings, sweep
 from orbitdesk.core.system import MAP
 
@@ -32,6 +33,11 @@ def register(sub):
     parser.add_argument("--duration", metavar="T", help="longest sampling time for --plane/--maxima")
     parser.add_argument("--dt", metavar="H", help="integration step (a strobe period is divided exactly)")
     parser.add_argument("--lyapunov", action="store_true", help="also the largest Lyapunov exponent per value")
+    where = parser.add_argument_group("where the sweep runs (default: one ensemble in this process)")
+    where.add_argument("--workers", type=int, metavar="N",
+                       help="split the values into chunks run by N local worker processes")
+    where.add_argument("--scheduler", metavar="ADDRESS",
+                       help="send the chunks to the Dask cluster whose scheduler is at ADDRESS (tcp://host:8786)")
     add_value_options(parser)
     out = parser.add_mutually_exclusive_group()
     out.add_argument("--json", action="store_true", help="print the sweep as JSON (the default)")
@@ -105,8 +111,17 @@ def run(args) -> int:
     p, u0 = values_for(system, source, args.set, args.init)
     settings = sweep_settings(system, source, args)
     values = np.linspace(start, stop, args.count)
+    if args.workers is not None and args.workers < 1:
+        raise CommandError("--workers must be at least 1")
     try:
-        result = sweep(system, args.param, values, settings, u0=u0, p=p, progress=stderr_progress("sweep"))
+        if args.scheduler or args.workers:
+            with executor_for(args.scheduler, args.workers) as executor:
+                result = sweep(system, args.param, values, settings, u0=u0, p=p, progress=stderr_progress("sweep"),
+                               executor=executor)
+        else:
+            result = sweep(system, args.param, values, settings, u0=u0, p=p, progress=stderr_progress("sweep"))
+    except SchedulerError as err:
+        raise CommandError(str(err)) from None
     except ValueError as err:
         raise CommandError(str(err)) from None
     if args.csv:
