@@ -252,6 +252,7 @@ class MainWindow(QMainWindow):
         self._make_view_docks()
         self._make_status_bar()
         self._make_menus()
+        self._install_teaching_tools()
         self._default_state = self.saveState()
 
         s = self.session
@@ -442,6 +443,16 @@ class MainWindow(QMainWindow):
         self.help_menu.addAction(self.about_action)
         for menu in (file_menu, edit_menu, view_menu, run_menu, self.help_menu):
             menu.setToolTipsVisible(True)
+
+    # ------------------------------------------------------------ teaching tools
+    def _install_teaching_tools(self) -> None:
+        """The Walkthrough dock, Help > Language Reference and Sample Projects, File > Export (LaTeX,
+        script, report); each module adds its own parts."""
+        from . import exports, help as help_ui, walkthrough_panel
+
+        walkthrough_panel.install(self)
+        exports.install(self)
+        help_ui.install(self)
 
     # ------------------------------------------------------------ views
     def ensure_view(self, name: str):
