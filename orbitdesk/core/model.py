@@ -384,7 +384,7 @@ class _Builder:
         name = sym.name
         if sym in self.top_placeholders.values():
             return f"eq:{name.split(chr(39))[0]}"
-        if name in derived_names and sym is self.model.symbols.get(name):
+        if name in derived_names and sym == self.model.symbols.get(name):  # equal, not identical: sympy caches
             return name
         return None
 

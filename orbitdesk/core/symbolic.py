@@ -17,6 +17,7 @@ from .expression import FUNCTIONS, Binary, Call, Name, Num, Unary
 
 MAX_MAGNITUDE = 1e300
 EXACT_POWER_LIMIT = 64
+MAX_SYMBOLIC_EXPONENT = 1000  # |exponent| of a power of an expression (sympy works in time ~ exponent)
 MAX_EXACT = 10**300  # exact rationals with larger numerator or denominator become floats
 
 
@@ -64,8 +65,8 @@ def number_from_text(text: str) -> sp.Expr:
     return exact if exact.q < 10**12 else sp.Float(text)
 
 
-def _too_large(node) -> ParseError:
-    return ParseError("this constant is too large to represent (over 1e300)", node.column, node.end)
+def _too_large(node, what: str = "this constant") -> ParseError:
+    return ParseError(f"{what} is too large to represent (over 1e300)", node.column, node.end)
 
 
 def _approx(expr: sp.Expr) -> complex:
@@ -78,13 +79,20 @@ def _approx(expr: sp.Expr) -> complex:
 def _checked_constant(expr: sp.Expr, node, what: str = "this constant") -> sp.Expr:
     """Refuse a constant (no symbols) that is undefined, complex or beyond 1e300; tame huge exact rationals.
 
-    Numeric coefficients of sums and products are checked the same way.
+    Numeric coefficients of sums and products are checked the same way, and so are the exponents
+    of powers of expressions (sympy merges ``(x^64)^64`` or ``x*x*...*x`` into one power).
     """
     if expr.free_symbols:
+        for part in (expr, *expr.args):
+            if part.is_Pow and part.exp.is_Number and abs(part.exp) > MAX_SYMBOLIC_EXPONENT:
+                shown = sp.sstr(part.exp) if part.exp.is_Integer and abs(part.exp) < 10**15 else f"{float(part.exp):g}"
+                raise ParseError(f"the exponent {shown} is too large: powers of expressions are "
+                                 f"limited to exponents within \u00b1{MAX_SYMBOLIC_EXPONENT}", node.column, node.end)
         if expr.is_Add or expr.is_Mul:
             numbers = [a for a in expr.args if a.is_Number]
             if numbers:
-                tamed = {a: _checked_constant(a, node, what) for a in numbers}
+                tamed = {a: _checked_constant(a, node, "a numeric factor or term of this expression")
+                         for a in numbers}
                 if any(tamed[a] is not a for a in numbers):
                     expr = expr.func(*[tamed.get(a, a) for a in expr.args])
         return expr
@@ -93,7 +101,7 @@ def _checked_constant(expr: sp.Expr, node, what: str = "this constant") -> sp.Ex
     except (TypeError, ValueError, ZeroDivisionError, OverflowError):
         raise ParseError(f"{what} is undefined", node.column, node.end) from None
     if not (math.isfinite(value.real) and math.isfinite(value.imag)) or abs(value) > MAX_MAGNITUDE:
-        raise _too_large(node)
+        raise _too_large(node, what)
     if abs(value.imag) > 1e-12 * max(1.0, abs(value.real)):
         raise ParseError(f"{what} is not a real number", node.column, node.end)
     if expr.is_Rational and max(abs(expr.p), expr.q) > MAX_EXACT:
@@ -108,7 +116,9 @@ def _checked_power(base: sp.Expr, exponent: sp.Expr, node) -> sp.Expr:
     ``2^(10^10)`` or ``sqrt(2)^(10^12)`` never make sympy compute a gigantic exact number.
     """
     if base.free_symbols or exponent.free_symbols:
-        return sp.Pow(base, exponent)
+        if exponent.is_Number and abs(exponent) > MAX_SYMBOLIC_EXPONENT:  # before sympy expands (x/3)^(10^10)
+            return _checked_constant(sp.Pow(sp.Symbol("x"), exponent), node)
+        return _checked_constant(sp.Pow(base, exponent), node)
     b, x = _approx(base).real, _approx(exponent).real
     if b == 0 and x < 0:
         raise ParseError("division by zero (0 raised to a negative power)", node.column, node.end)
