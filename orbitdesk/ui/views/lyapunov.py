@@ -40,8 +40,8 @@ class LyapunovView(QWidget):
         self.length.setToolTip("How long the orbit is followed (time units for flows, iterations for maps)")
         self.transient = NumberBox(FLOW_TRANSIENT, 0.0, 1e12, step=10.0)
         self.transient.setToolTip("The first part of the run, left out of the averages so the orbit can settle")
-        self.length_label, self.transient_label = QLabel("Follow the orbit for"), QLabel("after settling for")
-        self.auto_step = QCheckBox("Automatic step")
+        self.length_label, self.transient_label = QLabel("Run for"), QLabel("settle")
+        self.auto_step = QCheckBox("Auto step")
         self.auto_step.setChecked(True)
         self.auto_step.setToolTip("Choose the fixed integration step from the model's fastest rate (flows)")
         self.dt = NumberBox(0.01, 1e-7, 10.0, ratio=2.0)
@@ -96,7 +96,8 @@ class LyapunovView(QWidget):
         self.splitter.addWidget(self.plot_widget)
         self.splitter.setStretchFactor(0, 0)
         self.splitter.setStretchFactor(1, 1)
-        self.splitter.setSizes([260, 600])
+        self.splitter.setSizes([240, 600])
+        left.setMinimumWidth(180)
         self.splitter.setChildrenCollapsible(False)
 
         row = QHBoxLayout()
@@ -113,12 +114,13 @@ class LyapunovView(QWidget):
         row.addSpacing(8)
         row.addWidget(self.compute_button)
         row.addWidget(self.auto)
-        row.addWidget(self.strip, 1)
+        row.addStretch(1)
         layout = QVBoxLayout(self)
         layout.setContentsMargins(6, 6, 6, 6)
         layout.setSpacing(4)
         layout.addLayout(row)
         layout.addWidget(self.splitter, 1)
+        layout.addWidget(self.strip)
 
         self._timer = QTimer(self, singleShot=True, interval=AUTO_DELAY_MS)
         self._timer.timeout.connect(self._auto_compute)
@@ -241,8 +243,8 @@ class LyapunovView(QWidget):
             box.setValue(v)
             box.blockSignals(False)
         is_map = self._kind == "map"
-        self.length_label.setText("Iterate" if is_map else "Follow the orbit for")
-        self.transient_label.setText("times, after skipping" if is_map else "after settling for")
+        self.length_label.setText("Iterate" if is_map else "Run for")
+        self.transient_label.setText("times, skip" if is_map else "settle")
         for w in (self.auto_step, self.dt):
             w.setVisible(not is_map)
 

@@ -27,6 +27,7 @@ MAX_SPREAD = 64
 MAX_ADDED = 40
 DEFAULT_CAMERA = {"distance": 23.0, "elevation": 22.0, "azimuth": -58.0, "center": [0.0, 0.0, 0.0], "fov": 60.0}
 COLOUR_MODES = ("time", "trajectory")
+WIDE_ASPECT = 1.6  # width / height up to which the starting camera shows the whole box
 
 
 _ITEM_CLASSES: dict = {}
@@ -140,6 +141,7 @@ class PhaseSpace3DView(QWidget):
         self._names: list[str] = []
         self._wanted_axes: tuple | None = None
         self._box = [(-1.0, 1.0)] * 3
+        self._default_camera = None
 
         # ---- controls
         self.axis_combos = []
@@ -341,7 +343,19 @@ class PhaseSpace3DView(QWidget):
         return image
 
     def reset_camera(self) -> None:
-        self.set_camera(DEFAULT_CAMERA)
+        """The starting camera, moved back in wide, short views so that the whole box shows
+        (the field of view is horizontal, so the box's height is what gets cut off)."""
+        cam = dict(DEFAULT_CAMERA)
+        w, h = self.glview.width(), self.glview.height()
+        if w > 0 and h > 0 and w / h > WIDE_ASPECT:
+            cam["distance"] *= (w / h) / WIDE_ASPECT
+        self.set_camera(cam)
+        self._default_camera = self.camera()
+
+    def resizeEvent(self, event) -> None:
+        super().resizeEvent(event)
+        if self._default_camera is not None and self.camera() == self._default_camera:
+            self.reset_camera()  # still where it started: keep the whole box in view
 
     def add_starts(self, starts) -> None:
         """Add trajectories from full initial states: dicts with ``u0`` and optionally ``backward``."""

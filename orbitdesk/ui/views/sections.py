@@ -12,8 +12,8 @@ import math
 import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import QEvent, Qt, QTimer, Signal
-from PySide6.QtWidgets import (QCheckBox, QComboBox, QHBoxLayout, QLabel, QPushButton, QSpinBox, QSplitter,
-                               QStackedWidget, QVBoxLayout, QWidget)
+from PySide6.QtWidgets import (QCheckBox, QComboBox, QHBoxLayout, QLabel, QPushButton, QSizePolicy, QSpinBox,
+                               QSplitter, QStackedWidget, QVBoxLayout, QWidget)
 
 from . import muted_colour, series_colour, style_plot
 from ..plot_style import JobStrip, NumberBox, hint_label, number_text, orbit_middle, plain_axes
@@ -137,6 +137,8 @@ class SectionsView(QWidget):
         self.plot_widget.setToolTip("Section points")
         self.return_widget.setToolTip("Return map: each value against the next; the dashed line is x_{k+1} = x_k")
         self.info = hint_label()
+        self.info.setWordWrap(False)
+        self.info.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
 
         left = QWidget()
         ll = QVBoxLayout(left)
@@ -183,14 +185,18 @@ class SectionsView(QWidget):
         row2.addSpacing(8)
         row2.addWidget(self.compute_button)
         row2.addWidget(self.auto)
-        row2.addWidget(self.strip, 1)
+        row2.addStretch(1)
         layout = QVBoxLayout(self)
         layout.setContentsMargins(6, 6, 6, 6)
         layout.setSpacing(4)
         layout.addLayout(row1)
         layout.addLayout(row2)
         layout.addWidget(self.splitter, 1)
-        layout.addWidget(self.info)
+        bottom = QHBoxLayout()
+        bottom.setContentsMargins(0, 0, 0, 0)
+        bottom.addWidget(self.info, 1)
+        bottom.addWidget(self.strip, 1)
+        layout.addLayout(bottom)
 
         self._timer = QTimer(self, singleShot=True, interval=AUTO_DELAY_MS)
         self._timer.timeout.connect(self._auto_compute)

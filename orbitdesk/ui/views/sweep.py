@@ -13,7 +13,7 @@ import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import QEvent, Qt, QTimer, Signal
 from PySide6.QtGui import QColor
-from PySide6.QtWidgets import (QCheckBox, QComboBox, QHBoxLayout, QLabel, QPushButton, QSpinBox, QStackedWidget,
+from PySide6.QtWidgets import (QCheckBox, QComboBox, QHBoxLayout, QLabel, QPushButton, QSizePolicy, QSpinBox, QStackedWidget,
                                QVBoxLayout, QWidget)
 
 from . import muted_colour, series_colour, style_plot
@@ -90,12 +90,14 @@ class SweepView(QWidget):
         pl.addWidget(QLabel("="))
         pl.addWidget(self.plane_value)
         pl.addWidget(self.direction)
+        pl.addStretch(1)
         strobe_row = QWidget()
         sl = QHBoxLayout(strobe_row)
         sl.setContentsMargins(0, 0, 0, 0)
         sl.setSpacing(4)
         sl.addWidget(QLabel("period"))
         sl.addWidget(self.period)
+        sl.addStretch(1)
         self.mode_stack = QStackedWidget()
         self.mode_stack.addWidget(QWidget())
         self.mode_stack.addWidget(strobe_row)
@@ -118,6 +120,8 @@ class SweepView(QWidget):
         self.run_button.clicked.connect(self.run)
         self.strip = JobStrip(session, "Sweeping")
         self.info = hint_label()
+        self.info.setWordWrap(False)
+        self.info.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
 
         # ---- plots
         self.plot_widget = pg.PlotWidget()
@@ -143,54 +147,43 @@ class SweepView(QWidget):
         self.lyap_widget.setMaximumHeight(170)
         self.lyap_widget.hide()
 
-        row1 = QHBoxLayout()
-        row1.setContentsMargins(0, 0, 0, 0)
-        row1.setSpacing(4)
-        row1.addWidget(QLabel("Sweep"))
-        row1.addWidget(self.parameter)
-        row1.addWidget(QLabel("from"))
-        row1.addWidget(self.lo)
-        row1.addWidget(QLabel("to"))
-        row1.addWidget(self.hi)
-        row1.addWidget(QLabel("in"))
-        row1.addWidget(self.count)
-        row1.addWidget(QLabel("steps, showing"))
-        row1.addWidget(self.observe)
-        row1.addWidget(QLabel("at"))
-        row1.addWidget(self.mode)
-        row1.addWidget(self.mode_stack)
+        def row():
+            r = QHBoxLayout()
+            r.setContentsMargins(0, 0, 0, 0)
+            r.setSpacing(4)
+            return r
+
+        row1 = row()
+        for w in (QLabel("Sweep"), self.parameter, QLabel("from"), self.lo, QLabel("to"), self.hi, QLabel("in"),
+                  self.count, QLabel("steps")):
+            row1.addWidget(w)
         row1.addStretch(1)
-        row2 = QHBoxLayout()
-        row2.setContentsMargins(0, 0, 0, 0)
-        row2.setSpacing(4)
-        self.transient_label = QLabel("Settle for")
-        row2.addWidget(self.transient_label)
-        row2.addWidget(self.transient)
-        row2.addSpacing(6)
-        row2.addWidget(QLabel("keep"))
-        row2.addWidget(self.samples)
-        row2.addWidget(QLabel("points"))
-        self.dt_label = QLabel("step")
-        row2.addSpacing(6)
-        row2.addWidget(self.dt_label)
-        row2.addWidget(self.dt)
-        self.duration_label = QLabel("collect for at most")
-        row2.addSpacing(6)
-        row2.addWidget(self.duration_label)
-        row2.addWidget(self.duration)
-        row2.addSpacing(6)
+        row1.addWidget(self.run_button)
+        row2 = row()
+        for w in (QLabel("Plot"), self.observe, QLabel("at"), self.mode, self.mode_stack):
+            row2.addWidget(w)
+        row2.addStretch(1)
         row2.addWidget(self.lyapunov)
-        row2.addSpacing(6)
-        row2.addWidget(self.run_button)
-        row2.addWidget(self.strip, 1)
+        row3 = row()
+        self.transient_label = QLabel("Settle for")
+        self.dt_label = QLabel("step")
+        self.duration_label = QLabel("collect for at most")
+        for w in (self.transient_label, self.transient, QLabel("keep"), self.samples, QLabel("points,"),
+                  self.dt_label, self.dt, self.duration_label, self.duration):
+            row3.addWidget(w)
+        row3.addStretch(1)
+        bottom = row()
+        bottom.addWidget(self.info, 1)
+        bottom.addWidget(self.strip, 1)
         layout = QVBoxLayout(self)
         layout.setContentsMargins(6, 6, 6, 6)
         layout.setSpacing(4)
         layout.addLayout(row1)
         layout.addLayout(row2)
+        layout.addLayout(row3)
         layout.addWidget(self.plot_widget, 3)
         layout.addWidget(self.lyap_widget, 1)
-        layout.addWidget(self.info)
+        layout.addLayout(bottom)
 
         self._restyle()
         session.systemChanged.connect(self._on_system)
@@ -348,6 +341,9 @@ class SweepView(QWidget):
         self.plane_state.addItems(list(system.states))
         self.mode.clear()
         self.mode.addItems([MODE_LABELS[ITERATE]] if is_map else [MODE_LABELS[m] for m in FLOW_MODES])
+        ranged = [n for n in system.parameters if None not in self.session.param_range(n)]
+        if ranged and not (keep[0] and self.parameter.findText(keep[0]) >= 0):
+            self.parameter.setCurrentIndex(self.parameter.findText(ranged[0]))  # one the model gives a range
         for combo, name in ((self.parameter, keep[0]), (self.observe, keep[1]), (self.plane_state, keep[2])):
             if name and combo.findText(name) >= 0:
                 combo.setCurrentIndex(combo.findText(name))
@@ -375,6 +371,8 @@ class SweepView(QWidget):
         self.run_button.setEnabled(bool(system.parameters))
         if not system.parameters:
             self.info.setText("The model has no parameter to sweep")
+        elif self.result is None:
+            self.info.setText("Run draws the orbit diagram: the plotted points of each orbit against the parameter")
 
     def _apply_wanted(self) -> None:
         d, self._wanted = self._wanted, None
