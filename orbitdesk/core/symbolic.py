@@ -84,10 +84,8 @@ def _checked_constant(expr: sp.Expr, node, what: str = "this constant") -> sp.Ex
     """
     if expr.free_symbols:
         for part in (expr, *expr.args):
-            if part.is_Pow and part.exp.is_Number and abs(part.exp) > MAX_SYMBOLIC_EXPONENT:
-                shown = sp.sstr(part.exp) if part.exp.is_Integer and abs(part.exp) < 10**15 else f"{float(part.exp):g}"
-                raise ParseError(f"the exponent {shown} is too large: powers of expressions are "
-                                 f"limited to exponents within \u00b1{MAX_SYMBOLIC_EXPONENT}", node.column, node.end)
+            if part.is_Pow:
+                _check_exponent(part.exp, node)
         if expr.is_Add or expr.is_Mul:
             numbers = [a for a in expr.args if a.is_Number]
             if numbers:
@@ -109,6 +107,17 @@ def _checked_constant(expr: sp.Expr, node, what: str = "this constant") -> sp.Ex
     return expr
 
 
+def _check_exponent(exponent: sp.Expr, node) -> None:
+    """Refuse a constant exponent beyond MAX_SYMBOLIC_EXPONENT on a power of an expression."""
+    if exponent.free_symbols:
+        return
+    size = abs(_approx(exponent))
+    if size > MAX_SYMBOLIC_EXPONENT:
+        shown = sp.sstr(exponent) if exponent.is_Integer and size < 1e15 else f"{_approx(exponent).real:g}"
+        raise ParseError(f"the exponent {shown} is too large: powers of expressions are limited to "
+                         f"exponents within \u00b1{MAX_SYMBOLIC_EXPONENT}", node.column, node.end)
+
+
 def _checked_power(base: sp.Expr, exponent: sp.Expr, node) -> sp.Expr:
     """base ** exponent, sized with floats before sympy builds it when both are constants.
 
@@ -116,8 +125,7 @@ def _checked_power(base: sp.Expr, exponent: sp.Expr, node) -> sp.Expr:
     ``2^(10^10)`` or ``sqrt(2)^(10^12)`` never make sympy compute a gigantic exact number.
     """
     if base.free_symbols or exponent.free_symbols:
-        if exponent.is_Number and abs(exponent) > MAX_SYMBOLIC_EXPONENT:  # before sympy expands (x/3)^(10^10)
-            return _checked_constant(sp.Pow(sp.Symbol("x"), exponent), node)
+        _check_exponent(exponent, node)  # before sympy expands (x/3)^(10^10) into 3^(-10^10) x^(10^10)
         return _checked_constant(sp.Pow(base, exponent), node)
     b, x = _approx(base).real, _approx(exponent).real
     if b == 0 and x < 0:
