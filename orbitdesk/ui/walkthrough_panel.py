@@ -14,8 +14,8 @@ import math
 import time
 
 from PySide6.QtCore import QByteArray, QEvent, Qt, QTimer, Signal
-from PySide6.QtGui import QFont, QKeySequence, QPalette, QShortcut, QUndoCommand
-from PySide6.QtWidgets import (QAbstractItemView, QDockWidget, QFrame, QHBoxLayout, QLabel, QLineEdit, QListWidget,
+from PySide6.QtGui import QFont, QKeySequence, QPalette, QUndoCommand
+from PySide6.QtWidgets import (QAbstractItemView, QAbstractSpinBox, QApplication, QComboBox, QDockWidget, QFrame, QHBoxLayout, QLabel, QLineEdit, QListWidget,
                                QListWidgetItem, QPlainTextEdit, QPushButton, QSizePolicy, QSplitter,
                                QTextBrowser, QToolButton, QVBoxLayout, QWidget)
 
@@ -33,6 +33,9 @@ WALKTHROUGH_WIDTH = 340       # width of the dock when a project with steps open
 NOTE_CSS = "code { font-family: monospace; } li { margin-bottom: 4px; } p { margin-bottom: 8px; }"
 MARKUP_HINT = ("Note markup: a blank line starts a paragraph; *emphasis*, **strong**, `code`, "
                "lines starting with - or 1. make lists.")
+PRESENT_KEYS = {Qt.Key.Key_Right: "next", Qt.Key.Key_PageDown: "next", Qt.Key.Key_Left: "previous",
+                Qt.Key.Key_PageUp: "previous", Qt.Key.Key_Escape: "stop"}
+KEYPAD = Qt.KeyboardModifier.KeypadModifier
 CAMERA_VIEW, EQUILIBRIA_VIEW, SECTIONS_VIEW = "phase_space_3d", "equilibria", "sections"
 
 
@@ -455,16 +458,6 @@ class WalkthroughPanel(QWidget):
         layout.setContentsMargins(8, 6, 8, 8)
         layout.addWidget(self.splitter)
 
-        self._shortcuts = []
-        for keys, slot in (((Qt.Key.Key_Right, Qt.Key.Key_PageDown), self.next),
-                           ((Qt.Key.Key_Left, Qt.Key.Key_PageUp), self.previous),
-                           ((Qt.Key.Key_Escape,), lambda: self.set_presenting(False))):
-            for key in keys:
-                sc = QShortcut(QKeySequence(key), self.main_window)
-                sc.setContext(Qt.ShortcutContext.ApplicationShortcut)
-                sc.setEnabled(False)
-                sc.activated.connect(slot)
-                self._shortcuts.append(sc)
         self._apply_fonts()
 
     # ------------------------------------------------------------ state
@@ -670,8 +663,11 @@ class WalkthroughPanel(QWidget):
         self.present_button.setChecked(on)
         self.present_button.blockSignals(False)
         self.present_button.setText("Stop presenting" if on else "Present")
-        for sc in self._shortcuts:
-            sc.setEnabled(on)
+        app = QApplication.instance()
+        if on:
+            app.installEventFilter(self)
+        else:
+            app.removeEventFilter(self)
         self.steps_box.setVisible(not on)
         dock = self.parentWidget()
         if on:
@@ -693,6 +689,20 @@ class WalkthroughPanel(QWidget):
                 self.main_window.showNormal()
         self._apply_fonts()
         self.presentingChanged.emit(on)
+
+    def eventFilter(self, obj, event) -> bool:
+        """While presenting: arrows and Page Up/Down (what presentation remotes send) step through the
+        walkthrough, Esc stops; a field the user is typing in keeps its keys."""
+        if not self.presenting or event.type() != QEvent.Type.KeyPress or event.modifiers() & ~KEYPAD:
+            return False
+        action = PRESENT_KEYS.get(event.key())
+        if action is None or not isinstance(obj, QWidget) or obj.window() is not self.main_window:
+            return False
+        focus = QApplication.focusWidget()
+        if action != "stop" and _takes_arrows(focus):
+            return False
+        {"next": self.next, "previous": self.previous, "stop": lambda: self.set_presenting(False)}[action]()
+        return True
 
     def _apply_fonts(self) -> None:
         base = QFont(self.font())
@@ -840,6 +850,19 @@ class WalkthroughPanel(QWidget):
         if event.type() == QEvent.Type.PaletteChange and hasattr(self, "problems_label"):
             self._show_problems()
         super().changeEvent(event)
+
+
+def _takes_arrows(widget) -> bool:
+    """Widgets in which the arrow keys edit or move something the user chose."""
+    if isinstance(widget, (QLineEdit, QAbstractSpinBox, QComboBox)):
+        return True
+    if isinstance(widget, QPlainTextEdit):
+        return not widget.isReadOnly()
+    from PySide6.QtWidgets import QAbstractSlider, QTextEdit
+
+    if isinstance(widget, QTextEdit):
+        return not widget.isReadOnly()
+    return isinstance(widget, QAbstractSlider)
 
 
 def _escape(text: str) -> str:
