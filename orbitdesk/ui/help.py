@@ -6,7 +6,7 @@ from __future__ import annotations
 from pathlib import Path
 
 from PySide6.QtCore import Qt
-from PySide6.QtGui import QKeySequence, QTextCursor, QTextDocument
+from PySide6.QtGui import QKeySequence, QPalette, QTextBlockFormat, QTextCursor, QTextDocument, QTextFormat
 from PySide6.QtWidgets import (QHBoxLayout, QLabel, QLineEdit, QListWidget, QListWidgetItem, QMenu, QSplitter,
                                QTextBrowser, QVBoxLayout, QWidget)
 
@@ -38,6 +38,27 @@ def headings(document: QTextDocument) -> list[tuple[int, str, int]]:
     return out
 
 
+def _space_out(document: QTextDocument, code_background) -> None:
+    """Air above headings and a quiet background behind code blocks (markdown import sets neither)."""
+    cursor = QTextCursor(document)
+    block = document.begin()
+    while block.isValid():
+        fmt = block.blockFormat()
+        change = QTextBlockFormat()
+        if fmt.headingLevel() > 0:
+            change.setTopMargin(18 if fmt.headingLevel() > 1 else 4)
+            change.setBottomMargin(6)
+        elif fmt.hasProperty(QTextFormat.Property.BlockCodeFence) or fmt.nonBreakableLines():
+            change.setBackground(code_background)
+            change.setLeftMargin(6)
+        else:
+            block = block.next()
+            continue
+        cursor.setPosition(block.position())
+        cursor.mergeBlockFormat(change)
+        block = block.next()
+
+
 class LanguageReference(QWidget):
     """The quick reference: contents on the left, the text on the right, and a find box."""
 
@@ -61,6 +82,7 @@ class LanguageReference(QWidget):
         self.find_box.returnPressed.connect(self.find_next)
         self.find_status = QLabel()
         self.find_status.setStyleSheet("color: palette(placeholder-text);")
+        self.find_status.setMinimumWidth(self.find_status.fontMetrics().horizontalAdvance("not found") + 8)
 
         side = QWidget()
         side_layout = QVBoxLayout(side)
@@ -86,6 +108,7 @@ class LanguageReference(QWidget):
 
     def reload(self) -> None:
         self.browser.setMarkdown(language_text())
+        _space_out(self.browser.document(), self.palette().color(QPalette.ColorRole.AlternateBase))
         self.contents.clear()
         for level, text, position in headings(self.browser.document()):
             item = QListWidgetItem(("    " * (level - 1)) + text)
