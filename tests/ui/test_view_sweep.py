@@ -190,3 +190,13 @@ def test_settings_round_trip(qtbot, session):
     assert view.view_settings() == d
     s = view.settings()
     assert s.mode == "plane" and s.plane == ("z", 27.0) and s.direction == -1 and s.observe == "x"
+
+
+def test_before_a_run_the_axis_shows_the_range_and_the_current_value(qtbot, session):
+    view = make_view(qtbot, session)
+    load(qtbot, session, LORENZ)
+    assert view.parameter.currentText() == "r"  # the parameter the model gives a range
+    assert (view.lo.value(), view.hi.value()) == (20.0, 200.0)
+    (x0, x1), _ = view.plot.getViewBox().viewRange()
+    assert x0 <= 28.0 <= x1 and x0 < 25 and x1 > 190
+    assert view.marker.isVisible() and view.marker.value() == 28.0

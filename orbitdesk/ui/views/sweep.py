@@ -55,6 +55,8 @@ class SweepView(QWidget):
         self.lo.setToolTip("First value of the parameter")
         self.hi = NumberBox(1.0, -1e12, 1e12, step=0.1)
         self.hi.setToolTip("Last value of the parameter")
+        self.lo.valueChanged.connect(self._show_range)
+        self.hi.valueChanged.connect(self._show_range)
         self.count = QSpinBox()
         self.count.setRange(2, MAX_VALUES)
         self.count.setValue(300)
@@ -424,7 +426,14 @@ class SweepView(QWidget):
             self._range_for = name
         self.plot.setLabel("bottom", name)
         self.lyap_plot.setLabel("bottom", name)
+        self._show_range()
         self._update_marker()
+
+    def _show_range(self, *_args) -> None:
+        """Before a diagram exists, the axis spans the chosen range (so the current value's line shows)."""
+        lo, hi = float(self.lo.value()), float(self.hi.value())
+        if self.result is None and lo < hi:
+            self.plot.setXRange(lo, hi, padding=0.01)
 
     def _on_observe(self, _index=None) -> None:
         self.plot.setLabel("left", self.observe.currentText())
