@@ -179,5 +179,9 @@ def test_added_starts_and_time_cursor(qtbot, session):
     session.set_time_cursor(float(traj.time[k]))
     expected = view._to_box(np.array([[traj.series(n)[k] for n in "xyz"]]))
     np.testing.assert_allclose(view.cursor_item.pos, expected, atol=1e-5)
+    # "Keep start" keeps the current initial state as an added trajectory
+    with qtbot.waitSignal(view.addedChanged, timeout=20000):
+        view.keep_button.click()
+    assert view.added[-1]["u0"] == [1.0, 1.0, 1.0] and len(view.added_runs) == 3
     view.clear_extra()
     assert view.added == [] and view.view_settings()["starts"] == []

@@ -169,6 +169,10 @@ class PhaseSpace3DView(QWidget):
         self.spread_radius = NumberBox(1e-3, 1e-12, 1e6, ratio=10 ** 0.5)
         self.spread_radius.setToolTip("Radius of the ball of starts around the initial state (state units)")
         self.spread_radius.valueChanged.connect(self._spread_params_changed)
+        self.keep_button = QToolButton(text="Keep start")
+        self.keep_button.setToolTip("Keep a trajectory from the current initial state, to compare it with runs "
+                                    "from other initial values")
+        self.keep_button.clicked.connect(self.keep_current_start)
         self.clear_button = QToolButton(text="Clear")
         self.clear_button.setToolTip("Remove the added trajectories and the nearby starts")
         self.clear_button.clicked.connect(self.clear_extra)
@@ -219,6 +223,8 @@ class PhaseSpace3DView(QWidget):
         spread_bar.addSpacing(4)
         spread_bar.addWidget(QLabel("within"))
         spread_bar.addWidget(self.spread_radius)
+        spread_bar.addSpacing(8)
+        spread_bar.addWidget(self.keep_button)
         spread_bar.addWidget(self.clear_button)
         spread_bar.addSpacing(8)
         spread_bar.addWidget(self.strip, 1)
@@ -371,6 +377,11 @@ class PhaseSpace3DView(QWidget):
         del self.added[:-MAX_ADDED]
         del self.added_runs[:-MAX_ADDED]
         self._run_added()
+
+    def keep_current_start(self) -> None:
+        """Add a trajectory from the session's current initial state (it stays when the state changes)."""
+        if self.system is not None:
+            self.add_starts([{"u0": [float(v) for v in self.session.initial_vector()]}])
 
     def clear_extra(self) -> None:
         self.added, self.added_runs, self.spread_runs = [], [], []
