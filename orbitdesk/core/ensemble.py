@@ -159,11 +159,19 @@ def _call(observer, wants_rates, step, t, Y, F):
 
 
 def rk4_ensemble(system, U0, P=None, t0: float = 0.0, dt: float = 0.01, n_steps: int = 1000,
-                 observer=None, cancel=None, progress=None, bound: float = 1e10) -> EnsembleResult:
-    """Fixed-step RK4 for all members at once; times are ``t0 + k*dt`` exactly (no accumulation)."""
+                 observer=None, cancel=None, progress=None, bound: float = 1e10,
+                 compiled: bool | None = None) -> EnsembleResult:
+    """Fixed-step RK4 for all members at once; times are ``t0 + k*dt`` exactly (no accumulation).
+
+    Without an observer the run may use the compiled loops of ``jit`` (numba, optional): with
+    ``compiled`` None when the work pays for compiling, True to insist (if numba is there), False never."""
     U = _states(system, U0)
     P = member_params(system, P, U.shape[1])
+    if observer is None and compiled is not False:
+        from . import jit
 
+        if jit.available() and (compiled or jit.worth_it(system, U.shape[1] * float(n_steps))):
+            return _rk4_compiled(jit, system, U, P, t0, dt, n_steps, Reporter(progress, cancel), bound)
     return rk4_run(member_rhs(system, P), U, t0, dt, n_steps, observer, Reporter(progress, cancel), bound,
                    U.shape[0])
 
@@ -215,6 +223,17 @@ def rk4_run(fun, Y, t0, dt, n_steps, observer, report, bound, check_rows) -> Ens
             if step % 8 == 0:
                 report(step / n_steps)
     return _finish(freezer, Y, t0 + steps_done * dt, steps_done)
+
+
+def _rk4_compiled(jit, system, U, P, t0, dt, n_steps, report, bound) -> EnsembleResult:
+    U, codes, when = jit.rk4_final(system, U, P, t0, dt, int(n_steps), bound, report)
+    status = np.full(U.shape[1], OK, dtype=_STATUS_WIDTH)
+    status[codes == jit.STATUS_DIVERGED] = DIVERGED
+    status[codes == jit.STATUS_UNDEFINED] = UNDEFINED
+    frozen = codes != jit.STATUS_OK
+    time = np.where(frozen, when, t0 + int(n_steps) * dt)
+    report(1.0)
+    return EnsembleResult(time=time, states=U, status=status, steps=np.full(U.shape[1], int(n_steps)))
 
 
 def _finish(freezer, Y, t_end, steps_done):
