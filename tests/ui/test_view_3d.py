@@ -3,7 +3,6 @@
 import os
 
 import numpy as np
-import pytest
 
 from orbitdesk.core.project import Project, SolverSettings
 

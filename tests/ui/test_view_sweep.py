@@ -101,7 +101,8 @@ def test_clicking_the_diagram_sets_the_parameter(qtbot, session):
     scene = vb.mapViewToScene(pg_point(3.7, 0.5))
     where = view.plot_widget.mapFromScene(scene)
     with qtbot.waitSignal(session.valuesChanged, timeout=3000):
-        qtbot.mouseClick(view.plot_widget.viewport(), Qt.MouseButton.LeftButton, pos=QPoint(int(where.x()), int(where.y())))
+        qtbot.mouseClick(view.plot_widget.viewport(), Qt.MouseButton.LeftButton,
+                         pos=QPoint(int(where.x()), int(where.y())))
     assert session.params["r"] == pytest.approx(3.7, abs=0.01)
     assert view.marker.value() == pytest.approx(session.params["r"])
     # the session re-runs with the new value: every view sees it

@@ -288,7 +288,8 @@ class LyapunovView(QWidget):
             self.table.setItem(k, 1, value)
         self.table.resizeRowsToContents()
         rows_height = sum(self.table.rowHeight(k) for k in range(values.size))
-        self.table.setMaximumHeight(self.table.horizontalHeader().height() + rows_height + 2 * self.table.frameWidth() + 2)
+        frame = 2 * self.table.frameWidth() + 2
+        self.table.setMaximumHeight(self.table.horizontalHeader().height() + rows_height + frame)
         lines = []
         if r.kaplan_yorke_dimension is not None and math.isfinite(r.kaplan_yorke_dimension):
             lines.append(f"Kaplan–Yorke dimension <b>{number_text(r.kaplan_yorke_dimension, 4)}</b>")

@@ -10,7 +10,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from PySide6.QtCore import QEvent, Qt, QTimer, Signal
+from PySide6.QtCore import QEvent, QTimer, Signal
 from PySide6.QtGui import QColor, QFont, QImage, QPainter, QSurfaceFormat, QVector3D
 from PySide6.QtWidgets import (QCheckBox, QComboBox, QHBoxLayout, QLabel, QSpinBox, QToolButton, QVBoxLayout,
                                QWidget)
