@@ -81,14 +81,14 @@ class _TextCommand(QUndoCommand):
         super().__init__("Edit model")
         self.s, self.old, self.new = session, old, new
         self.stamp = time.monotonic()
-        self.first = True
 
     def id(self):
         return self.ID
 
     def redo(self):
-        self.s._apply_text(self.new, emit=not self.first)
-        self.first = False
+        # always announced, so every panel (the editor too) shows text set by anyone; the editor
+        # ignores an announcement of the text it already has
+        self.s._apply_text(self.new, emit=True)
 
     def undo(self):
         self.s._apply_text(self.old, emit=True)
@@ -187,7 +187,7 @@ class _SolverCommand(QUndoCommand):
 # ---------------------------------------------------------------- session
 
 class Session(QObject):
-    textChanged = Signal(str)          # model text replaced programmatically (load, undo/redo, walkthrough)
+    textChanged = Signal(str)          # model text changed (load, undo/redo, walkthrough, set_text)
     modelParsed = Signal(object)       # ParsedModel after each validation; may have errors
     systemChanged = Signal(object)     # CompiledSystem, only when a valid model compiled
     valuesChanged = Signal()           # parameter / initial values changed
