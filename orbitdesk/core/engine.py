@@ -382,13 +382,15 @@ def _integrate_compiled(system, settings, u0, p, report) -> Trajectory:
     solver.set_solout(solout)
     solver.set_initial_value(u0, t0)
     targets = [t1] if every_step else np.linspace(t0, t1, settings.samples)[1:].tolist()
+    sampled = None if every_step else np.empty((len(targets) + 1, n))  # rows filled as samples come
+    reached = 0
     for target in targets:
         y = solver.integrate(target)
         if failure or stop or solver.get_return_code() < 0:
             break
         if not every_step:
-            out_t.append(target)
-            out_y.append(y.tolist())
+            reached += 1
+            sampled[reached] = y
     code = solver.get_return_code()
     status, message = OK, ""
     if failure:
@@ -402,8 +404,13 @@ def _integrate_compiled(system, settings, u0, p, report) -> Trajectory:
         status = STEP_FAILED
         message = (f"the integration stopped at {system.time_name} = {solver.t:.6g}: "
                    f"{_DOP_CODES.get(code, f'code {code}')}; try the stiff method")
-    time = np.array(out_t, dtype=float)
-    states = np.array(out_y, dtype=float).reshape(-1, n).T
+    if every_step:
+        time = np.array(out_t, dtype=float)
+        states = np.array(out_y, dtype=float).reshape(-1, n).T
+    else:
+        sampled[0] = u0
+        time = np.array([t0] + targets[:reached], dtype=float)
+        states = sampled[:reached + 1].T
     finite = np.all(np.isfinite(states), axis=0) & np.all(np.abs(states) <= bound, axis=0)
     time, states = time[finite], states[:, finite]
     if settings.transient > 0:
