@@ -266,7 +266,15 @@ class MainWindow(QMainWindow):
         s.add_save_hook(self.store_view_settings)
         QApplication.instance().focusChanged.connect(self._on_focus_changed)
         self.resize(1440, 900)
+        self._sized = False
         self._update_title()
+
+    def showEvent(self, event) -> None:
+        super().showEvent(event)
+        if not self._sized:
+            self._sized = True
+            if not self.session.project.views.get(WINDOW_KEY):
+                QTimer.singleShot(0, self.apply_default_sizes)
 
     # ------------------------------------------------------------ construction
     def _make_actions(self) -> None:
@@ -382,9 +390,18 @@ class MainWindow(QMainWindow):
                 self.ensure_view(name)
         if visible:
             self.view_docks[views_pkg.DEFAULT_VISIBLE[-1]].raise_()
-            self.resizeDocks([self.model_dock] + visible[:1], [430, 1000], Qt.Orientation.Horizontal)
-            if len(visible) > 1:
-                self.resizeDocks(visible[:2], [330, 470], Qt.Orientation.Vertical)
+
+    def apply_default_sizes(self) -> None:
+        """Model panel about 430 px wide; the time series above a taller phase plane."""
+        visible = [self.view_docks[n] for n in views_pkg.DEFAULT_VISIBLE if n in self.view_docks]
+        if not visible:
+            return
+        width = max(self.width(), 800)
+        self.resizeDocks([self.model_dock, visible[0]], [min(430, width // 3), width - min(430, width // 3)],
+                         Qt.Orientation.Horizontal)
+        if len(visible) > 1:
+            height = max(self.height() - 120, 400)
+            self.resizeDocks(visible[:2], [int(height * 0.42), int(height * 0.58)], Qt.Orientation.Vertical)
 
     def _make_status_bar(self) -> None:
         bar = self.statusBar()

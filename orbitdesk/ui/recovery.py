@@ -7,7 +7,8 @@ which file it belongs to. On a clean exit the files go away. At start-up, files 
 belong to a session that crashed; their work is offered for recovery.
 
 For tests and scripts, ``ORBITDESK_RECOVERY=restore`` (or ``discard``) answers the question without a
-dialog; ``set_auto_answer()`` does the same in-process. ``ORBITDESK_DATA_DIR`` overrides the data folder.
+dialog; ``set_auto_answer()`` does the same in-process; with ``ORBITDESK_NO_DIALOGS`` set and no answer
+given, the work is kept on disk and nothing is asked. ``ORBITDESK_DATA_DIR`` overrides the data folder.
 """
 
 from __future__ import annotations
@@ -30,7 +31,7 @@ AUTOSAVE_INTERVAL_MS = 20_000
 CHANGE_DELAY_MS = 2_000
 ENV_ANSWER = "ORBITDESK_RECOVERY"
 ENV_DATA_DIR = "ORBITDESK_DATA_DIR"
-RESTORE, DISCARD = "restore", "discard"
+RESTORE, DISCARD, KEEP = "restore", "discard", "keep"
 
 _auto_answer: str | None = None
 _crash_log_file = None
@@ -267,6 +268,8 @@ def _answer(parent, rec: Recoverable) -> str:
     forced = _auto_answer or os.environ.get(ENV_ANSWER, "").strip().lower()
     if forced in (RESTORE, DISCARD):
         return forced
+    if os.environ.get("ORBITDESK_NO_DIALOGS"):
+        return KEEP  # nobody to ask: leave the work on disk for a later start
     when = time.strftime("%Y-%m-%d %H:%M", time.localtime(rec.saved_at)) if rec.saved_at else "recently"
     where = f"\nIt belongs to {rec.original_path}." if rec.original_path else ""
     box = QMessageBox(parent)
@@ -288,8 +291,10 @@ def offer_recovery(window, directory: Path | None = None) -> bool:
     if not recs:
         return False
     rec = recs[0]
-    if _answer(window, rec) != RESTORE:
-        rec.discard()
+    answer = _answer(window, rec)
+    if answer != RESTORE:
+        if answer == DISCARD:
+            rec.discard()
         return False
     try:
         project = rec.load()

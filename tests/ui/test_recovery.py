@@ -146,6 +146,8 @@ def test_discarding_recovered_work_removes_it(qtbot, window, tmp_path):
     saver.lock.release(remove=False)  # as if the process had died
     found = recovery.find_recoverable(tmp_path)
     assert [r.session_id for r in found] == [saver.session_id] and found[0].original_path is None
+    assert not recovery.offer_recovery(window, tmp_path)  # no one to ask (tests): the work stays on disk
+    assert found[0].autosave.exists()
     recovery.set_auto_answer(recovery.DISCARD)
     try:
         assert not recovery.offer_recovery(window, tmp_path)

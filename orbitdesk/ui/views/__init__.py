@@ -81,3 +81,23 @@ def style_plot(plot_widget, host=None) -> None:
         axis.setPen(axis_pen)
         axis.setTextPen(pg.mkPen(fg))
     item.showGrid(x=True, y=True, alpha=0.12)
+
+
+def empty_hint(plot_item, text: str):
+    """A quiet centred note shown in an empty plot (returns the item; hide it when data arrives)."""
+    import pyqtgraph as pg
+    from PySide6.QtWidgets import QGraphicsSimpleTextItem
+
+    label = QGraphicsSimpleTextItem(text)
+    host = plot_item.getViewWidget()
+    label.setBrush(pg.mkBrush(muted_colour(host) if host is not None else "#888888"))
+    label.setParentItem(plot_item.getViewBox())
+
+    def centre(*_args):
+        box = plot_item.getViewBox().boundingRect()
+        r = label.boundingRect()
+        label.setPos(box.center().x() - r.width() / 2, box.center().y() - r.height() / 2)
+
+    plot_item.getViewBox().sigResized.connect(centre)
+    centre()
+    return label

@@ -9,7 +9,7 @@ from PySide6.QtCore import QEvent, QPointF, Qt, QTimer
 from PySide6.QtGui import QColor
 from PySide6.QtWidgets import QCheckBox, QComboBox, QHBoxLayout, QLabel, QToolButton, QVBoxLayout, QWidget
 
-from . import muted_colour, series_colour, style_plot
+from . import empty_hint, muted_colour, series_colour, style_plot
 
 FIELD_POINTS = 21          # arrows along the longer side of the view
 MAX_SEEDS = 40
@@ -109,6 +109,7 @@ class PhasePlaneView(QWidget):
         self.plot.addItem(self.eq_item, ignoreBounds=True)
         self.eq_item.setZValue(20)
         self.cursor_marker.setZValue(15)
+        self.empty_hint = empty_hint(self.plot, "The trajectory will be drawn here; click to start more")
         self.plot_widget.scene().sigMouseClicked.connect(self._on_click)
         self.plot.getViewBox().sigRangeChangedManually.connect(self._on_manual_range)
         self.plot.getViewBox().sigRangeChanged.connect(self._on_range_changed)
@@ -344,6 +345,7 @@ class PhasePlaneView(QWidget):
 
     def _draw_trajectory(self) -> None:
         traj = self.trajectory
+        self.empty_hint.setVisible(traj is None)
         if traj is None or traj.time.size == 0:
             self.curve.setData([], [])
             self.start_marker.setData([], [])

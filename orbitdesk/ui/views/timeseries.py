@@ -9,7 +9,7 @@ from PySide6.QtGui import QColor, QIcon, QPainter, QPixmap
 from PySide6.QtWidgets import (QCheckBox, QHBoxLayout, QLabel, QListWidget, QListWidgetItem, QToolButton,
                                QVBoxLayout, QWidget)
 
-from . import muted_colour, series_colour, style_plot
+from . import empty_hint, muted_colour, series_colour, style_plot
 
 
 def swatch(colour: QColor, size: int = 12) -> QIcon:
@@ -89,7 +89,9 @@ class TimeSeriesView(QWidget):
         self.cursor = pg.InfiniteLine(angle=90, movable=True)
         self.cursor.setToolTip("Time cursor: drag to move it")
         self.cursor.sigPositionChanged.connect(self._on_cursor_dragged)
+        self.cursor.setVisible(False)
         self.plot.addItem(self.cursor, ignoreBounds=True)
+        self.empty_hint = empty_hint(self.plot, "The run of the model will be plotted here")
 
         options = QHBoxLayout()
         options.setContentsMargins(0, 0, 0, 0)
@@ -232,6 +234,7 @@ class TimeSeriesView(QWidget):
             self.plot.setLabel("bottom", time_label)
             self.plot.setLabel("left", "")
         self.cursor.setVisible(not spectrum and traj is not None)
+        self.empty_hint.setVisible(traj is None)
         if traj is None:
             return
         discrete = traj.kind == "map"
