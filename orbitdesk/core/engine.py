@@ -120,8 +120,23 @@ def simulate(system: CompiledSystem, settings: RunSettings | None = None, u0=Non
     if settings.method not in METHODS:
         raise ValueError(f"unknown method '{settings.method}'; choose one of {', '.join(METHODS)}")
     if settings.method == "dop853" and not events and system.smooth:
-        return _integrate_compiled(system, settings, u0, p, report)
+        if settings.samples <= DENSE_SAMPLES or not _denser_than_steps(system, settings, u0, p, report):
+            return _integrate_compiled(system, settings, u0, p, report)
     return _integrate(system, settings, u0, p, list(events), report)
+
+
+DENSE_SAMPLES = 20_000
+
+
+def _denser_than_steps(system, settings, u0, p, report) -> bool:
+    """Whether the output grid is several times finer than the integrator's own steps.
+
+    Stopping the compiled integrator at every sample then costs more than stepping in Python and
+    filling the samples from each step's dense output (the method's own interpolant).
+    """
+    probe = RunSettings(**{**settings.__dict__, "samples": 0, "transient": 0.0})
+    steps = _integrate_compiled(system, probe, u0, p, report.part(0.0, 0.1)).steps_taken
+    return settings.samples > 4 * max(steps, 1)
 
 
 def _iterate(system, settings, u0, p, report) -> Trajectory:
