@@ -16,7 +16,7 @@ import time
 from PySide6.QtCore import QByteArray, QEvent, Qt, QTimer, Signal
 from PySide6.QtGui import QFont, QKeySequence, QPalette, QUndoCommand
 from PySide6.QtWidgets import (QAbstractItemView, QAbstractSpinBox, QApplication, QComboBox, QDockWidget, QFrame, QHBoxLayout, QLabel, QLineEdit, QListWidget,
-                               QListWidgetItem, QPlainTextEdit, QPushButton, QSizePolicy, QSplitter,
+                               QListWidgetItem, QPlainTextEdit, QPushButton, QSizePolicy, QSplitter, QStyle,
                                QTextBrowser, QToolButton, QVBoxLayout, QWidget)
 
 from orbitdesk.core.project import WalkthroughStep
@@ -131,6 +131,7 @@ def put_on_screen(window, new_state: dict, snapshot: dict, arrange: bool = True,
     Settings for a view that has not been created yet go to ``defer(module, changes, section)``."""
     s, out = window.session, ScreenResult()
     modules = _view_modules(window)
+    generation = s.generation
     s.show_state(new_state.get("parameters") if "parameters" in snapshot else None,
                  new_state.get("initial") if "initial" in snapshot else None,
                  new_state.get("solver") if "solver" in snapshot else None)
@@ -180,7 +181,23 @@ def put_on_screen(window, new_state: dict, snapshot: dict, arrange: bool = True,
 
     if "time_cursor" in snapshot and "time_cursor" in new_state:
         s.set_time_cursor(new_state["time_cursor"])
+    if "open_views" in snapshot:
+        for view_id in new_state.get("open_views", []):
+            view = window.views.get(modules.get(view_id, ""))
+            if view is not None and view_id != SECTIONS_VIEW:
+                _bring_up_to_date(view, s.generation != generation)
     return out
+
+
+def _bring_up_to_date(view, values_changed: bool) -> None:
+    """A view that computes only on request (a sweep, the Lyapunov spectrum) computes for the step's
+    values; views that follow the values by themselves are left alone."""
+    auto = getattr(view, "auto", None)
+    if auto is not None and hasattr(auto, "isChecked") and auto.isChecked():
+        return
+    compute = getattr(view, "compute", None) or getattr(view, "run", None)
+    if callable(compute) and (values_changed or getattr(view, "result", None) is None):
+        compute()
 
 
 def _apply_to_view(view, changes: dict, section: dict | None) -> None:
@@ -214,23 +231,76 @@ def _show_docks(window, wanted: list[str], arrange: bool) -> None:
     shared = any(d in window.tabifiedDockWidgets(other) for i, d in enumerate(docks) for other in docks[:i])
     if not shared:
         return
-    floating = [d for d in docks if d.isFloating()]
-    docks = [d for d in docks if not d.isFloating()]
+    _rebuild_docks(window, [d for d in docks if not d.isFloating()])
+
+
+def keep_side_widths(window, walkthrough_width: int | None = None):
+    """A function that gives the model panel and the walkthrough dock back their present widths (or
+    ``walkthrough_width``) after the view docks were rearranged; the views take the rest."""
+    side = [d for d in (getattr(window, "model_dock", None), getattr(window, "walkthrough_dock", None))
+            if d is not None and d.isVisible() and not d.isFloating()]
+    widths = [d.width() for d in side]
+    if walkthrough_width is not None and getattr(window, "walkthrough_dock", None) is not None:
+        dock = window.walkthrough_dock
+        if dock in side:
+            widths[side.index(dock)] = walkthrough_width
+        elif not dock.isFloating():
+            side.append(dock)
+            widths.append(walkthrough_width)
+
+    def restore(view_dock=None):
+        shown = [(d, w) for d, w in zip(side, widths) if d.isVisible() and not d.isFloating()]
+        if not shown:
+            return
+        docks, sizes = [d for d, _ in shown], [w for _, w in shown]
+        if view_dock is not None and view_dock.isVisible() and not view_dock.isFloating():
+            sep = window.style().pixelMetric(QStyle.PixelMetric.PM_DockWidgetSeparatorExtent, None, window)
+            docks.append(view_dock)
+            sizes.append(max(view_dock.minimumWidth(), window.width() - sum(sizes) - (len(sizes) + 1) * sep))
+        for _ in range(8):  # Qt moves a separator only part of the way when several areas share the change
+            window.resizeDocks(docks, sizes, Qt.Orientation.Horizontal)
+            if all(abs(d.width() - w) <= 2 for d, w in zip(docks, sizes)):
+                break
+    return restore
+
+
+def _rebuild_docks(window, docks: list) -> None:
+    """Lay the view docks out afresh: ``docks`` side by side in the view area (1: alone, 2: one above the
+    other, 3: one above two, 4+: two rows), the other view docks hidden behind them. Splitting alone
+    cannot do this: Qt adds a dock split off a tabbed one as one more tab."""
+    if not docks:
+        return
     V, H = Qt.Orientation.Vertical, Qt.Orientation.Horizontal
+    others = [d for d in window.view_docks.values() if d not in docks and not d.isFloating()]
+    for dock in list(window.view_docks.values()):
+        if not dock.isFloating():
+            window.removeDockWidget(dock)
+    widths = keep_side_widths(window)
+    first = docks[0]
+    window.addDockWidget(Qt.DockWidgetArea.RightDockWidgetArea, first)
+    first.show()
+    walkthrough = getattr(window, "walkthrough_dock", None)
+    beside = (walkthrough is not None and walkthrough.isVisible() and not walkthrough.isFloating()
+              and window.dockWidgetArea(walkthrough) == Qt.DockWidgetArea.RightDockWidgetArea)
+    if beside:
+        window.splitDockWidget(first, walkthrough, H)
+    rows = [docks] if len(docks) <= 2 else [docks[:1], docks[1:]] if len(docks) == 3 else \
+        [docks[:(len(docks) + 1) // 2], docks[(len(docks) + 1) // 2:]]
     if len(docks) == 2:
-        window.splitDockWidget(docks[0], docks[1], V)
-    elif len(docks) == 3:
-        window.splitDockWidget(docks[0], docks[1], V)
-        window.splitDockWidget(docks[1], docks[2], H)
-    elif len(docks) >= 4:
-        window.splitDockWidget(docks[0], docks[2], V)
-        window.splitDockWidget(docks[0], docks[1], H)
-        window.splitDockWidget(docks[2], docks[3], H)
-        for extra in docks[4:]:
-            window.splitDockWidget(docks[3], extra, H)
-    for dock in docks + floating:
+        window.splitDockWidget(first, docks[1], V)
+    else:
+        for row in rows[1:]:
+            window.splitDockWidget(rows[0][0], row[0], V)
+        for row in rows:
+            for left, right in zip(row, row[1:]):
+                window.splitDockWidget(left, right, H)
+    for dock in docks:
         dock.show()
-        dock.raise_()
+    for dock in others:
+        window.tabifyDockWidget(docks[-1], dock)
+        dock.hide()
+    docks[-1].raise_()
+    QTimer.singleShot(0, lambda: widths(first))  # once the new layout has settled
 
 
 # ---------------------------------------------------------------- undo commands
@@ -365,9 +435,9 @@ class WalkthroughPanel(QWidget):
         self.next_button.setToolTip("Show the next step (Right arrow or Page Down while presenting)")
         self.next_button.clicked.connect(self.next)
         self.next_button.setDefault(True)
-        self.leave_button = QPushButton("Leave walkthrough")
-        self.leave_button.setToolTip("Put your own values, views and layout back, as they were before the "
-                                     "walkthrough started")
+        self.leave_button = QPushButton("Leave")
+        self.leave_button.setToolTip("Leave the walkthrough: your own values, views and layout come back, as "
+                                     "they were before it started")
         self.leave_button.clicked.connect(self.leave)
         self.present_button = QPushButton("Present")
         self.present_button.setCheckable(True)
@@ -379,7 +449,6 @@ class WalkthroughPanel(QWidget):
         nav.addWidget(self.previous_button)
         nav.addWidget(self.next_button)
         nav.addStretch(1)
-        nav.addWidget(self.present_button)
 
         show = QWidget()
         show_layout = QVBoxLayout(show)
@@ -392,6 +461,8 @@ class WalkthroughPanel(QWidget):
         show_layout.addWidget(self.missing_label)
         show_layout.addLayout(nav)
         leave_row = QHBoxLayout()
+        leave_row.setSpacing(6)
+        leave_row.addWidget(self.present_button)
         leave_row.addStretch(1)
         leave_row.addWidget(self.leave_button)
         show_layout.addLayout(leave_row)
@@ -400,14 +471,14 @@ class WalkthroughPanel(QWidget):
         self.step_list = _StepList()
         self.step_list.itemSelectionChanged.connect(self._on_list_selection)
         self.step_list.model().rowsMoved.connect(lambda *_a: QTimer.singleShot(0, self._on_rows_dropped))
-        self.record_button = _tool("Record step", "Add a step that shows what is on screen now: values, "
+        self.record_button = _tool("Record", "Add a step that shows what is on screen now: values, "
                                    "open views and their settings, camera, section, time cursor", self.record)
         self.update_button = _tool("Update", "Replace the selected step's snapshot with what is on screen now "
                                    "(its title and note stay)", self.update_selected)
         self.up_button = _tool("▲", "Move the selected step up", lambda: self._move_selected(-1))
         self.down_button = _tool("▼", "Move the selected step down", lambda: self._move_selected(+1))
         self.delete_button = _tool("Delete", "Delete the selected step", self.delete_selected)
-        self.edit_button = _tool("Edit text", "Edit the title and note of the selected step", self._toggle_edit,
+        self.edit_button = _tool("Edit", "Edit the title and note of the selected step", self._toggle_edit,
                                  checkable=True)
         tools = QHBoxLayout()
         tools.setSpacing(2)
@@ -770,7 +841,7 @@ class WalkthroughPanel(QWidget):
             hint = ("<p>A walkthrough is a list of steps a reader replays one by one. Set the values and the "
                     "views as you want them, then press <b>Record step</b>; give the step a title and a note.</p>"
                     if n == 0 else
-                    f"<p>{n} step{'s' if n != 1 else ''}. Press <b>Next</b> to start; <b>Leave walkthrough</b> "
+                    f"<p>{n} step{'s' if n != 1 else ''}. Press <b>Start</b> to begin; <b>Leave</b> "
                     "gives you your own values and views back.</p>")
             self.note_view.setHtml(hint)
             self.position_label.setText("")
@@ -839,6 +910,8 @@ class WalkthroughPanel(QWidget):
     # ------------------------------------------------------------ session events
     def _on_project_loaded(self) -> None:
         self.set_presenting(False)
+        if self._own_layout is not None:  # the user's layout from before the walkthrough
+            self.main_window.restoreState(self._own_layout)
         self._own_state, self._own_layout, self.current = None, None, None
         self._pending.clear()
         self.problems, self.missing_views = [], []
@@ -878,7 +951,6 @@ def install(window) -> WalkthroughPanel:
     dock = QDockWidget("Walkthrough", window)
     dock.setObjectName("walkthrough")
     dock.setWidget(panel)
-    dock.setMinimumWidth(260)
     window.addDockWidget(Qt.DockWidgetArea.RightDockWidgetArea, dock, Qt.Orientation.Horizontal)
     dock.hide()
     toggle = dock.toggleViewAction()
@@ -893,12 +965,10 @@ def install(window) -> WalkthroughPanel:
 
     def on_loaded():
         if window.session.project.walkthrough and not dock.isVisible():
-            model = getattr(window, "model_dock", None)
-            keep = [model] if model is not None and model.isVisible() and not model.isFloating() else []
-            widths = [model.width() for model in keep]
+            widths = keep_side_widths(window, WALKTHROUGH_WIDTH)
             dock.show()
             dock.raise_()
-            window.resizeDocks(keep + [dock], widths + [WALKTHROUGH_WIDTH], Qt.Orientation.Horizontal)
+            widths()
 
     window.session.projectLoaded.connect(on_loaded)
     return panel
