@@ -108,3 +108,11 @@ def test_events_locate_crossings_on_dense_output():
     expected = [(1.5 * math.pi + 2 * math.pi * k) / 2 for k in range(3)]
     assert run.event_times[0] == pytest.approx(expected, abs=1e-9)
     assert np.all(np.abs(run.event_states[0][0]) < 1e-9)
+
+
+def test_very_fine_output_grid_stays_on_the_closed_form():
+    # more samples than steps: filled from the method's dense output; x = cos(2t) (closed form)
+    system = compile_model(OSCILLATOR)
+    run = simulate(system, RunSettings(t_end=20, samples=50_001, rtol=1e-10, atol=1e-12))
+    assert run.status == OK and run.time.size == 50_001
+    assert np.max(np.abs(run.series("x") - np.cos(2 * run.time))) < 1e-8
