@@ -351,9 +351,10 @@ def find_equilibria(system: CompiledSystem, p=None, box: dict | None = None, sta
 
     ``box`` ({state: (lo, hi)}, partial allowed) bounds the Newton starts; by default a box around the
     initial values (``u0``, default the model's), the origin and the exact solutions. Raises ValueError
-    for a flow whose right-hand side depends on time (equilibria are then not defined).
+    for a flow whose right-hand side depends on time at these parameter values (equilibria are then
+    not defined); a forcing term whose amplitude is zero does not count.
     """
-    if not system.autonomous:
+    if not system.autonomous_at(p):
         what = "step n" if system.kind == MAP else f"time {system.time_name}"
         raise ValueError(f"the equations depend on the {what}, so the model has no "
                          f"{'fixed points' if system.kind == MAP else 'equilibria'} in the usual sense; "

@@ -63,6 +63,14 @@ class CompiledSystem:
     def autonomous(self) -> bool:
         return not any(self.t_symbol in e.free_symbols for e in self.f)
 
+    def autonomous_at(self, p=None) -> bool:
+        """Whether f is free of time once the parameter values ``p`` are put in (forcing set to zero, say)."""
+        if self.autonomous:
+            return True
+        values = dict(zip(self.param_symbols, (sp.Float(float(v)) for v in
+                                               (self.param_values if p is None else p))))
+        return not any(self.t_symbol in e.xreplace(values).free_symbols for e in self.f)
+
     @property
     def smooth(self) -> bool:
         return not self.nonsmooth

@@ -211,3 +211,14 @@ def test_search_from_a_worker_thread():
     thread.start()
     thread.join(60)
     assert len(out["eqs"]) == 3 and {e.method for e in out["eqs"]} == {"exact+newton"}
+
+
+def test_forcing_switched_off_leaves_the_unforced_equilibria():
+    # two-well Duffing x'' + delta x' - x + x^3 = gamma cos(omega t) with gamma = 0: rest points
+    # x = 0 (saddle) and x = ±1 (closed form: x - x^3 = 0; Jacobian [[0, 1], [1 - 3x^2, -delta]])
+    system = compile_model("delta = 0.3\ngamma = 0\nomega = 1.2\nx'' = -delta*x' + x - x^3 + gamma*cos(omega*t)\n")
+    found = sorted(find_equilibria(system), key=lambda e: e.vector[0])
+    assert [round(e.vector[0], 12) for e in found] == [-1.0, 0.0, 1.0]
+    assert [e.kind for e in found] == ["stable focus", "saddle", "stable focus"]
+    with pytest.raises(ValueError, match="depend on the time"):
+        find_equilibria(system, p=system.param_vector({"gamma": 0.1}))
