@@ -839,7 +839,7 @@ class WalkthroughPanel(QWidget):
         if index is None or not 0 <= index < n:
             self.title_label.setText("No walkthrough yet" if n == 0 else "Walkthrough")
             hint = ("<p>A walkthrough is a list of steps a reader replays one by one. Set the values and the "
-                    "views as you want them, then press <b>Record step</b>; give the step a title and a note.</p>"
+                    "views as you want them, then press <b>Record</b>; give the step a title and a note with <b>Edit</b>.</p>"
                     if n == 0 else
                     f"<p>{n} step{'s' if n != 1 else ''}. Press <b>Start</b> to begin; <b>Leave</b> "
                     "gives you your own values and views back.</p>")
@@ -904,6 +904,9 @@ class WalkthroughPanel(QWidget):
 
     def _toggle_edit(self, on: bool) -> None:
         self.edit_box.setVisible(on)
+        total = sum(self.splitter.sizes()) or self.height()
+        share = 0.38 if on else 0.6  # editing: room for the list and the fields
+        self.splitter.setSizes([int(total * share), total - int(total * share)])
         if on:
             self.title_edit.setFocus()
 
