@@ -549,6 +549,9 @@ class WalkthroughPanel(QWidget):
         """Put step ``index`` on screen (entering the walkthrough if needed); returns its problems."""
         if not 0 <= index < len(self.steps):
             raise IndexError(f"there is no step {index + 1} (the walkthrough has {len(self.steps)})")
+        dock = self.parentWidget()
+        if isinstance(dock, QDockWidget) and not dock.isVisible():
+            dock.show()
         if self._own_state is None:
             self._own_state = capture_state(self.main_window)
             self._own_layout = self.main_window.saveState()

@@ -168,6 +168,24 @@ def test_step_naming_a_removed_parameter_says_so_and_applies_the_rest(qtbot, win
     assert "k_old" in panel.problems_label.text()
 
 
+def test_recorded_step_survives_an_edit_of_the_model(qtbot, window, tmp_path):
+    open_oscillator(qtbot, window, tmp_path)
+    s, panel = window.session, window.walkthrough_panel
+    wait_for_trajectory(qtbot, s, lambda: s.set_param("c", 0.1))
+    panel.record("Damped")
+    # the damping term and its parameter are taken out of the model
+    wait_for_trajectory(qtbot, s, lambda: (s.set_text(OSCILLATOR.replace(" - c*x'", "").replace(
+        "c = 0 in [0, 1]\n", "").replace("w = 2", "w = 2.5")), s.validate_now()))
+    assert "c" not in s.params and s.params["w"] == 2.5
+    traj = wait_for_trajectory(qtbot, s, lambda: panel.show_step(0))
+    assert s.params["w"] == 2.0  # the rest of the step is applied
+    np.testing.assert_allclose(traj.series("x"), np.cos(2.0 * traj.time), atol=1e-6)
+    assert len(panel.problems) == 1 and "'c'" in panel.problems[0] and "no longer has" in panel.problems[0]
+    assert panel.problems_label.isVisible()
+    wait_for_trajectory(qtbot, s, panel.leave)
+    assert s.params["w"] == 2.5  # and leaving gives the edited model's value back
+
+
 def test_presenting_mode_enlarges_the_type_and_takes_the_arrow_keys(qtbot, window, tmp_path, artifacts):
     steps = [WalkthroughStep(f"Step {k}", f"Note **{k}** with a list:\n\n- first\n- second",
                              {"parameters": {"w": float(k)}}) for k in (1, 2, 3)]
