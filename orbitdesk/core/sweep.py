@@ -16,17 +16,22 @@ a second trajectory a small distance away, pulled back every step.
 
 Large sweeps and two-parameter grids can be split into chunks run on any
 ``concurrent.futures.Executor`` (``chunks.py``); workers recompile the model text.
+
+Exponent grids of smooth maps use the compiled loop of ``jit.map_lyapunov`` (numba, optional)
+when it is installed and the work pays for compiling; the numpy ensemble is the fallback.
 """
 
 from __future__ import annotations
 
 import math
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import asdict, dataclass, field, replace
+from functools import partial
 
 import numpy as np
 
-from .chunks import compiled_system, run_chunks, split
-from .ensemble import OK, iterate_run, member_jac, member_rhs, rk4_run
+from .chunks import compiled_system, run_chunks, split, worker_count
+from .ensemble import _STATUS_WIDTH, DIVERGED, OK, UNDEFINED, iterate_run, member_jac, member_rhs, rk4_run
 from .progress import Reporter
 from .system import MAP
 
@@ -519,11 +524,15 @@ class LyapunovGrid:
 
 def lyapunov_grid(system, pname_x: str, xs, pname_y: str, ys, settings: GridSettings | None = None,
                   u0=None, p=None, executor=None, chunk_size: int = 256, cancel=None,
-                  progress=None) -> LyapunovGrid:
+                  progress=None, compiled: bool | None = None) -> LyapunovGrid:
     """Largest Lyapunov exponent over the grid ``ys x xs`` (rows: y), in chunks of ``chunk_size`` points.
 
     Chunks run on ``executor`` (default: a local process pool over the machine's cores; a grid that
-    fits one chunk runs in this thread). Results do not depend on the executor."""
+    fits one chunk runs in this thread). Results do not depend on the executor.
+
+    Smooth maps use the compiled exponent loop (``jit``) with ``compiled`` None when the whole grid's
+    work pays for compiling, True whenever numba is there, False never; the choice is made once for
+    the grid. Compiled chunks run on threads of this process by default (the loop releases the GIL)."""
     settings = settings or GridSettings()
     for name in (pname_x, pname_y):
         if name not in system.parameters:
@@ -540,32 +549,88 @@ def lyapunov_grid(system, pname_x: str, xs, pname_y: str, ys, settings: GridSett
     u0 = system.initial.astype(float) if u0 is None else np.asarray(u0, dtype=float)
     gx, gy = np.meshgrid(xs, ys)
     points = np.vstack([gx.ravel(), gy.ravel()])
-    text = system.model.text
-    args = [(text, pname_x, pname_y, points[:, piece], asdict(settings), u0, base_p)
-            for piece in split(points.shape[1], chunk_size)]
-    parts = run_chunks(_grid_chunk, args, executor=executor, cancel=cancel, progress=progress)
+    pieces = split(points.shape[1], chunk_size)
+    use_jit = _use_compiled(system, points.shape[1] * _grid_steps(system, settings)[1], compiled)
+    if use_jit and executor is None and len(pieces) > 1:
+        # the compiled loop runs without the GIL: threads here, no worker processes to start
+        chunk = partial(_grid_chunk_local, system)
+        args = [(pname_x, pname_y, points[:, piece], settings, u0, base_p) for piece in pieces]
+        with ThreadPoolExecutor(max_workers=min(worker_count(), len(pieces))) as pool:
+            parts = run_chunks(chunk, args, executor=pool, cancel=cancel, progress=progress)
+    else:
+        text = system.model.text
+        args = [(text, pname_x, pname_y, points[:, piece], asdict(settings), u0, base_p, use_jit)
+                for piece in pieces]
+        parts = run_chunks(_grid_chunk, args, executor=executor, cancel=cancel, progress=progress)
     exponent = np.concatenate([part[0] for part in parts]).reshape(ys.size, xs.size)
     status = np.concatenate([part[1] for part in parts]).reshape(ys.size, xs.size)
     return LyapunovGrid(pname_x, xs, pname_y, ys, exponent, status)
 
 
-def _grid_chunk(text, pname_x, pname_y, points, settings, u0, base_p):
-    system = compiled_system(text)
+def _grid_params(system, pname_x, pname_y, points, base_p):
     P = np.repeat(base_p[:, None], points.shape[1], axis=1)
     P[system.parameters.index(pname_x)] = points[0]
     P[system.parameters.index(pname_y)] = points[1]
-    return grid_exponents(system, P, u0, GridSettings(**settings))
+    return P
 
 
-def grid_exponents(system, P, u0, grid: GridSettings, cancel=None, progress=None):
-    """Largest exponent for each column of P: (exponents (M,), status (M,))."""
+def _grid_chunk(text, pname_x, pname_y, points, settings, u0, base_p, compiled=False):
+    system = compiled_system(text)
+    P = _grid_params(system, pname_x, pname_y, points, base_p)
+    return grid_exponents(system, P, u0, GridSettings(**settings), compiled=compiled)
+
+
+def _grid_chunk_local(system, pname_x, pname_y, points, settings, u0, base_p):
+    P = _grid_params(system, pname_x, pname_y, points, base_p)
+    return grid_exponents(system, P, u0, settings, compiled=True)
+
+
+def _grid_steps(system, grid: GridSettings) -> tuple[float, int, int]:
+    """(step h, total steps, steps before averaging) of a grid run."""
     if system.kind == MAP:
-        h, keep_from = 1, int(math.ceil(grid.transient))
-        n_steps = keep_from + max(1, int(math.ceil(grid.duration)))
-    else:
-        h = float(grid.dt)
-        keep_from = int(math.ceil(grid.transient / h - 1e-9))
-        n_steps = keep_from + max(1, int(math.ceil(grid.duration / h - 1e-9)))
+        keep_from = int(math.ceil(grid.transient))
+        return 1, keep_from + max(1, int(math.ceil(grid.duration))), keep_from
+    h = float(grid.dt)
+    keep_from = int(math.ceil(grid.transient / h - 1e-9))
+    return h, keep_from + max(1, int(math.ceil(grid.duration / h - 1e-9))), keep_from
+
+
+def _use_compiled(system, member_steps: float, compiled: bool | None) -> bool:
+    """The compiled exponent loop applies (smooth maps), numba is there, and it is wanted or pays."""
+    if compiled is False or system.kind != MAP or not system.smooth:
+        return False
+    from . import jit
+
+    return jit.available() if compiled else jit.worth_it(system, member_steps)
+
+
+def grid_exponents(system, P, u0, grid: GridSettings, cancel=None, progress=None, compiled: bool | None = None):
+    """Largest exponent for each column of P: (exponents (M,), status (M,)).
+
+    ``compiled`` as in ``lyapunov_grid``: the numba loop for smooth maps (None: when the work pays)."""
+    h, n_steps, keep_from = _grid_steps(system, grid)
+    M = P.shape[1]
+    if _use_compiled(system, M * n_steps, compiled):
+        return _compiled_exponents(system, P, u0, n_steps, keep_from, grid, Reporter(progress, cancel))
     exponents, result = _execute(system, P, u0, h, n_steps, keep_from, None, False, True, grid.t_start,
                                  grid.bound, Reporter(progress, cancel))
     return exponents, result.status
+
+
+def _compiled_exponents(system, P, u0, n_steps, keep_from, grid, report):
+    """``grid_exponents`` of a smooth map by ``jit.map_lyapunov``: the same tangent-vector start,
+    renormalisation and averaging as the numpy path."""
+    from . import jit
+
+    n, M = system.n_states, P.shape[1]
+    U = np.array(u0, dtype=float)
+    U = np.repeat(U[:, None], M, axis=1) if U.ndim == 1 else np.ascontiguousarray(U)
+    total, codes = jit.map_lyapunov(system, U, P, int(grid.t_start), keep_from, n_steps, float(grid.bound),
+                                    _start_vector(n), report)
+    counted = n_steps - keep_from
+    exponents = np.where(codes == jit.STATUS_OK, total / counted, np.nan)
+    status = np.full(M, OK, dtype=_STATUS_WIDTH)
+    status[codes == jit.STATUS_DIVERGED] = DIVERGED
+    status[codes == jit.STATUS_UNDEFINED] = UNDEFINED
+    report(1.0)
+    return exponents, status

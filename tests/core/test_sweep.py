@@ -9,7 +9,7 @@ import pytest
 from orbitdesk.core.engine import Event, RunSettings, simulate
 from orbitdesk.core.progress import CancelToken, Cancelled
 from orbitdesk.core.sweep import (BOTH, DOWN, MAXIMA, PLANE, STROBE, UP, GridSettings, SweepSettings,
-                                  lyapunov_grid, sweep)
+                                  grid_exponents, lyapunov_grid, sweep)
 from orbitdesk.core.system import compile_model
 
 LOGISTIC = "r = 3.5\nx[n+1] = r*x*(1 - x)\nx[0] = 0.2\n"
@@ -261,3 +261,24 @@ def test_map_and_parameter_errors():
         sweep(system, "q", [3.0])
     with pytest.raises(ValueError, match="two different parameters"):
         lyapunov_grid(compile_model(HENON), "a", [1.0], "a", [1.0])
+
+
+def test_compiled_grid_equals_the_numpy_grid():
+    # the numba exponent loop (extra 'jit') and the numpy ensemble on the same Henon grid, escapes
+    # (a = 1.5 leaves the basin from (0.1, 0.1)) included; Sprott, Chaos and Time-Series Analysis
+    # (2003): (a, b) = (1.4, 0.3) has lambda = 0.41922
+    from orbitdesk.core import jit
+
+    if not jit.available():
+        pytest.skip("numba is not installed (extra 'jit') or ORBITDESK_JIT=0")
+    system = compile_model(HENON)
+    settings = GridSettings(transient=100, duration=3000)
+    xs, ys = np.linspace(1.0, 1.5, 11), np.array([0.1, 0.2, 0.3])
+    compiled = lyapunov_grid(system, "a", xs, "b", ys, settings, chunk_size=10, compiled=True)
+    plain = lyapunov_grid(system, "a", xs, "b", ys, settings, chunk_size=1000, compiled=False)
+    np.testing.assert_array_equal(compiled.status, plain.status)
+    assert (plain.status == "diverged").any() and (plain.status == "ok").any()
+    np.testing.assert_allclose(compiled.exponent, plain.exponent, rtol=0, atol=1e-9, equal_nan=True)
+    assert compiled.exponent[2, 8] == pytest.approx(0.41922, abs=0.01)
+    exponents, status = grid_exponents(system, np.array([[1.4], [0.3]]), system.initial, settings, compiled=True)
+    assert list(status) == ["ok"] and exponents[0] == compiled.exponent[2, 8]
