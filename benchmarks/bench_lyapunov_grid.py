@@ -47,7 +47,7 @@ def run(log=print) -> list[Row]:
     xs, ys = np.linspace(1.0, 1.4, SIZE), np.linspace(0.0, 0.3, SIZE)
     settings = GridSettings(transient=TRANSIENT, duration=DURATION)
     start = time.perf_counter()
-    grid = lyapunov_grid(system, "a", xs, "b", ys, settings)
+    grid = lyapunov_grid(system, "a", xs, "b", ys, settings, compiled=False)  # the numpy path
     ours = time.perf_counter() - start
 
     rng = np.random.default_rng(0)
