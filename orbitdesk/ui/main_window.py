@@ -265,9 +265,16 @@ class MainWindow(QMainWindow):
         s.runFailed.connect(lambda m: self.run_status.setText("Run failed"))
         s.add_save_hook(self.store_view_settings)
         QApplication.instance().focusChanged.connect(self._on_focus_changed)
-        self.resize(1440, 900)
+        self.resize(self._initial_size())
         self._sized = False
         self._update_title()
+
+    def _initial_size(self) -> QSize:
+        screen = self.screen() or QApplication.primaryScreen()
+        if screen is None:
+            return QSize(1440, 900)
+        avail = screen.availableGeometry()
+        return QSize(min(1440, int(avail.width() * 0.94)), min(900, int(avail.height() * 0.92)))
 
     def showEvent(self, event) -> None:
         super().showEvent(event)
@@ -392,13 +399,21 @@ class MainWindow(QMainWindow):
             self.view_docks[views_pkg.DEFAULT_VISIBLE[-1]].raise_()
 
     def apply_default_sizes(self) -> None:
-        """Model panel about 430 px wide; the time series above a taller phase plane."""
-        visible = [self.view_docks[n] for n in views_pkg.DEFAULT_VISIBLE if n in self.view_docks]
+        """Model panel about 430 px wide, side panels (e.g. a walkthrough) about 290 px, the views the rest;
+        the time series above a taller phase plane."""
+        visible = [self.view_docks[n] for n in views_pkg.DEFAULT_VISIBLE
+                   if n in self.view_docks and self.view_docks[n].isVisible()]
         if not visible:
             return
+        side = [d for d in self.findChildren(QDockWidget)
+                if d.isVisible() and not d.isFloating() and d is not self.model_dock
+                and d not in self.view_docks.values() and d.parentWidget() is self
+                and self.dockWidgetArea(d) == Qt.DockWidgetArea.RightDockWidgetArea]
         width = max(self.width(), 800)
-        self.resizeDocks([self.model_dock, visible[0]], [min(430, width // 3), width - min(430, width // 3)],
-                         Qt.Orientation.Horizontal)
+        model_w = min(430, width // 3)
+        side_w = [min(290, width // 5) for _ in side]
+        rest = max(width - model_w - sum(side_w), 300)
+        self.resizeDocks([self.model_dock, visible[0], *side], [model_w, rest, *side_w], Qt.Orientation.Horizontal)
         if len(visible) > 1:
             height = max(self.height() - 120, 400)
             self.resizeDocks(visible[:2], [int(height * 0.42), int(height * 0.58)], Qt.Orientation.Vertical)
@@ -538,7 +553,8 @@ class MainWindow(QMainWindow):
 
     # ------------------------------------------------------------ session events
     def _on_project_loaded(self) -> None:
-        self.restore_layout(self.session.project.views.get(WINDOW_KEY, {}))
+        if not self.restore_layout(self.session.project.views.get(WINDOW_KEY, {})) and self.isVisible():
+            QTimer.singleShot(0, self.apply_default_sizes)  # after other panels have reacted to the load
         self.run_status.setText("")
         self._update_title()
 
