@@ -264,18 +264,37 @@ def keep_side_widths(window, walkthrough_width: int | None = None):
     return restore
 
 
+def _rows(window, docks: list) -> list[list]:
+    """Rows of docks, top to bottom: two or more side by side only where their controls fit the width
+    the views have beside the model panel and the walkthrough."""
+    if len(docks) <= 2:
+        return [[d] for d in docks]
+    side = sum(d.width() for d in (getattr(window, "model_dock", None), getattr(window, "walkthrough_dock", None))
+               if d is not None and d.isVisible() and not d.isFloating())
+    room = window.width() - side - 24
+
+    def fits(row):
+        return sum(d.minimumSizeHint().width() for d in row) + 8 * (len(row) - 1) <= room
+
+    if len(docks) == 3:
+        return [docks[:1], docks[1:]] if fits(docks[1:]) else [[d] for d in docks]
+    half = (len(docks) + 1) // 2
+    pairs = [docks[:half], docks[half:]]
+    return pairs if all(fits(r) for r in pairs) else [docks[:1], docks[1:2], docks[2:]]
+
+
 def _rebuild_docks(window, docks: list) -> None:
-    """Lay the view docks out afresh: ``docks`` side by side in the view area (1: alone, 2: one above the
-    other, 3: one above two, 4+: two rows), the other view docks hidden behind them. Splitting alone
-    cannot do this: Qt adds a dock split off a tabbed one as one more tab."""
+    """Lay the view docks out afresh: ``docks`` in rows in the view area (see ``_rows``), the other view
+    docks hidden behind them. Splitting alone cannot do this: Qt adds a dock split off a tabbed one as
+    one more tab."""
     if not docks:
         return
     V, H = Qt.Orientation.Vertical, Qt.Orientation.Horizontal
     others = [d for d in window.view_docks.values() if d not in docks and not d.isFloating()]
+    widths, rows = keep_side_widths(window), _rows(window, docks)
     for dock in list(window.view_docks.values()):
         if not dock.isFloating():
             window.removeDockWidget(dock)
-    widths = keep_side_widths(window)
     first = docks[0]
     window.addDockWidget(Qt.DockWidgetArea.RightDockWidgetArea, first)
     first.show()
@@ -284,23 +303,23 @@ def _rebuild_docks(window, docks: list) -> None:
               and window.dockWidgetArea(walkthrough) == Qt.DockWidgetArea.RightDockWidgetArea)
     if beside:
         window.splitDockWidget(first, walkthrough, H)
-    rows = [docks] if len(docks) <= 2 else [docks[:1], docks[1:]] if len(docks) == 3 else \
-        [docks[:(len(docks) + 1) // 2], docks[(len(docks) + 1) // 2:]]
-    if len(docks) == 2:
-        window.splitDockWidget(first, docks[1], V)
-    else:
-        for row in rows[1:]:
-            window.splitDockWidget(rows[0][0], row[0], V)
-        for row in rows:
-            for left, right in zip(row, row[1:]):
-                window.splitDockWidget(left, right, H)
+    for upper, lower in zip(rows, rows[1:]):
+        window.splitDockWidget(upper[0], lower[0], V)
+    for row in rows:
+        for left, right in zip(row, row[1:]):
+            window.splitDockWidget(left, right, H)
     for dock in docks:
         dock.show()
     for dock in others:
         window.tabifyDockWidget(docks[-1], dock)
         dock.hide()
     docks[-1].raise_()
-    QTimer.singleShot(0, lambda: widths(first))  # once the new layout has settled
+    def settle():  # once the new layout has settled: side panels as they were, rows of equal height
+        widths(first)
+        if len(rows) > 1:
+            height = sum(row[0].height() for row in rows) // len(rows)
+            window.resizeDocks([row[0] for row in rows], [height] * len(rows), V)
+    QTimer.singleShot(0, settle)
 
 
 # ---------------------------------------------------------------- undo commands
