@@ -14,7 +14,7 @@ import math
 import time
 
 from PySide6.QtCore import QByteArray, QEvent, Qt, QTimer, Signal
-from PySide6.QtGui import QFont, QKeySequence, QPalette, QUndoCommand
+from PySide6.QtGui import QFont, QPalette, QUndoCommand
 from PySide6.QtWidgets import (QAbstractItemView, QAbstractSpinBox, QApplication, QComboBox, QDockWidget, QFrame, QHBoxLayout, QLabel, QLineEdit, QListWidget,
                                QListWidgetItem, QPlainTextEdit, QPushButton, QSizePolicy, QSplitter, QStyle,
                                QTextBrowser, QToolButton, QVBoxLayout, QWidget)
@@ -981,7 +981,6 @@ def install(window) -> WalkthroughPanel:
     toggle = dock.toggleViewAction()
     toggle.setText("Walkthrough")
     toggle.setToolTip("Show or hide the walkthrough: the project's steps, one at a time")
-    toggle.setShortcut(QKeySequence("Ctrl+Shift+W"))
     menu = getattr(window, "view_menu", None)
     if menu is not None:
         actions = menu.actions()
