@@ -120,7 +120,9 @@ class Shooter:
         self.spin(0.3)
         path = self.out / f"{name}.png"
         (widget or self.window).grab().save(str(path), "PNG")
-        print(f"  wrote {path.relative_to(ROOT) if path.is_relative_to(ROOT) else path} ({self.window.width()}x{self.window.height()}, model {self.window.model_dock.width()})")
+        shown = path.relative_to(ROOT) if path.is_relative_to(ROOT) else path
+        size = (widget or self.window).size()
+        print(f"  wrote {shown} ({size.width()}x{size.height()})")
         return path
 
 

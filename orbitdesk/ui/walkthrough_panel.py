@@ -10,17 +10,19 @@ the window and the snapshot shape of ``orbitdesk.core.walkthrough``.
 from __future__ import annotations
 
 import copy
+import html
 import math
 import time
 
 from PySide6.QtCore import QByteArray, QEvent, Qt, QTimer, Signal
 from PySide6.QtGui import QFont, QPalette, QUndoCommand
-from PySide6.QtWidgets import (QAbstractItemView, QAbstractSpinBox, QApplication, QComboBox, QDockWidget, QFrame, QHBoxLayout, QLabel, QLineEdit, QListWidget,
-                               QListWidgetItem, QPlainTextEdit, QPushButton, QSizePolicy, QSplitter, QStyle,
-                               QTextBrowser, QToolButton, QVBoxLayout, QWidget)
+from PySide6.QtWidgets import (QAbstractItemView, QAbstractSlider, QAbstractSpinBox, QApplication, QComboBox,
+                               QDockWidget, QFrame, QHBoxLayout, QLabel, QLineEdit, QListWidget, QListWidgetItem,
+                               QPlainTextEdit, QPushButton, QSizePolicy, QSplitter, QStyle, QTextBrowser, QTextEdit,
+                               QToolButton, QVBoxLayout, QWidget)
 
 from orbitdesk.core.project import WalkthroughStep
-from orbitdesk.core.walkthrough import VIEW_IDS, apply_step, record_step, render_note
+from orbitdesk.core.walkthrough import VIEW_IDS, apply_step, delete_step, move_step, record_step, render_note
 
 from . import views as views_pkg
 from .session import SOLVER_FIELDS
@@ -670,8 +672,6 @@ class WalkthroughPanel(QWidget):
         self._push("Update walkthrough step", new, i)
 
     def delete_step(self, index: int) -> None:
-        from orbitdesk.core.walkthrough import delete_step
-
         new = delete_step(self.steps, index)
         if self.current is not None:
             if self.current == index:
@@ -688,8 +688,6 @@ class WalkthroughPanel(QWidget):
             self.delete_step(i)
 
     def move_step(self, i: int, j: int) -> None:
-        from orbitdesk.core.walkthrough import move_step
-
         new = move_step(self.steps, i, j)
         if self.current is not None:
             order = list(range(len(self.steps)))
@@ -861,7 +859,8 @@ class WalkthroughPanel(QWidget):
         if index is None or not 0 <= index < n:
             self.title_label.setText("No walkthrough yet" if n == 0 else "Walkthrough")
             hint = ("<p>A walkthrough is a list of steps a reader replays one by one. Set the values and the "
-                    "views as you want them, then press <b>Record</b>; give the step a title and a note with <b>Edit</b>.</p>"
+                    "views as you want them, then press <b>Record</b>; give the step a title and a note "
+                    "with <b>Edit</b>.</p>"
                     if n == 0 else
                     f"<p>{n} step{'s' if n != 1 else ''}. Press <b>Start</b> to begin; <b>Leave</b> "
                     "gives you your own values and views back.</p>")
@@ -954,18 +953,12 @@ def _takes_arrows(widget) -> bool:
     """Widgets in which the arrow keys edit or move something the user chose."""
     if isinstance(widget, (QLineEdit, QAbstractSpinBox, QComboBox)):
         return True
-    if isinstance(widget, QPlainTextEdit):
-        return not widget.isReadOnly()
-    from PySide6.QtWidgets import QAbstractSlider, QTextEdit
-
-    if isinstance(widget, QTextEdit):
+    if isinstance(widget, (QPlainTextEdit, QTextEdit)):
         return not widget.isReadOnly()
     return isinstance(widget, QAbstractSlider)
 
 
 def _escape(text: str) -> str:
-    import html
-
     return html.escape(text, quote=False)
 
 
