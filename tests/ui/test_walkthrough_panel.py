@@ -168,6 +168,40 @@ def test_step_naming_a_removed_parameter_says_so_and_applies_the_rest(qtbot, win
     assert "k_old" in panel.problems_label.text()
 
 
+def test_camera_selected_equilibrium_and_time_cursor_come_back(qtbot, window, tmp_path):
+    # Lorenz (1963) at r = 28 has three equilibria: the origin and (+-sqrt(beta (r - 1)), ..., r - 1)
+    # (Strogatz, Nonlinear Dynamics and Chaos, 2nd ed., sec. 9.2).
+    path = tmp_path / "lorenz.txt"
+    path.write_text("sigma = 10\nr = 28\nbeta = 8/3\nx' = sigma*(y - x)\ny' = x*(r - z) - y\n"
+                    "z' = x*y - beta*z\nx(0) = 1\ny(0) = 1\nz(0) = 1\n", encoding="utf-8")
+    s, panel = window.session, window.walkthrough_panel
+    wait_for_trajectory(qtbot, s, lambda: window.open_path(path, ask=False))
+    wait_for_trajectory(qtbot, s, lambda: s.set_solver(t_end=20.0))
+    window.view_docks["phase_space_3d"].show()
+    window.view_docks["equilibria"].show()
+    view3d, eq = window.ensure_view("phase_space_3d"), window.ensure_view("equilibria")
+    qtbot.waitUntil(lambda: len(eq.equilibria) == 3, timeout=30000)
+    eq.select(2)
+    view3d.set_camera({"distance": 31.0, "elevation": 12.0, "azimuth": 40.0})
+    s.set_time_cursor(7.5)
+    panel.record("Looking from the side")
+    snap = panel.steps[0].snapshot
+    assert snap["camera"]["distance"] == 31.0 and snap["selected_equilibrium"] == 2
+    assert snap["time_cursor"] == 7.5 and {"phase_space_3d", "equilibria"} <= set(snap["open_views"])
+
+    eq.select(0)
+    view3d.set_camera({"distance": 18.0, "elevation": 50.0, "azimuth": -90.0})
+    s.set_time_cursor(3.0)
+    panel.show_step(0)
+    cam = view3d.camera()
+    assert (cam["distance"], cam["elevation"], cam["azimuth"]) == (31.0, 12.0, 40.0)
+    assert eq.selected_index() == 2 and s.time_cursor == 7.5
+    panel.leave()
+    cam = view3d.camera()
+    assert (cam["distance"], cam["elevation"], cam["azimuth"]) == (18.0, 50.0, -90.0)
+    assert eq.selected_index() == 0 and s.time_cursor == 3.0
+
+
 def test_recorded_step_survives_an_edit_of_the_model(qtbot, window, tmp_path):
     open_oscillator(qtbot, window, tmp_path)
     s, panel = window.session, window.walkthrough_panel
