@@ -16,6 +16,7 @@ from .diagnostics import ParseError
 from .expression import FUNCTIONS, Binary, Call, Name, Num, Unary
 
 MAX_MAGNITUDE = 1e300
+MIN_MAGNITUDE = 1e-300  # smaller constants are replaced by their double (often 0.0)
 EXACT_POWER_LIMIT = 64
 MAX_SYMBOLIC_EXPONENT = 1000  # |exponent| of a power of an expression (sympy works in time ~ exponent)
 MAX_EXACT = 10**300  # exact rationals with larger numerator or denominator become floats
@@ -56,9 +57,11 @@ def number_from_text(text: str) -> sp.Expr:
     digits = (whole + fraction).lstrip("0")
     if not digits:
         return sp.Integer(0)
-    if len(exponent.lstrip("+-").lstrip("0")) > 4:
-        return sp.Float(value)  # below 1e-9999: only the float value means anything
-    scale = int(exponent or 0) - len(fraction)
+    if abs(value) < MIN_MAGNITUDE:
+        return sp.Float(value)  # 0.0 or a denormal double: an exact 10^(-99999999) would stall sympy
+    # (within the float range an exponent has at most a few digits once leading zeros are gone)
+    power = int(exponent.lstrip("+-").lstrip("0") or "0") * (-1 if exponent.startswith("-") else 1)
+    scale = power - len(fraction)
     if scale >= 0:
         return sp.Integer(int(digits) * 10**scale)
     exact = sp.Rational(int(digits), 10**-scale)
@@ -102,8 +105,8 @@ def _checked_constant(expr: sp.Expr, node, what: str = "this constant") -> sp.Ex
         raise _too_large(node, what)
     if abs(value.imag) > 1e-12 * max(1.0, abs(value.real)):
         raise ParseError(f"{what} is not a real number", node.column, node.end)
-    if expr.is_Rational and max(abs(expr.p), expr.q) > MAX_EXACT:
-        return sp.Float(value.real)
+    if abs(value) < MIN_MAGNITUDE and expr != 0 or expr.is_Rational and max(abs(expr.p), expr.q) > MAX_EXACT:
+        return sp.Float(value.real)  # the double: exact forms of 3^(-10^10) make sympy's mod, floor, ... hang
     return expr
 
 

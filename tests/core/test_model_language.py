@@ -461,6 +461,15 @@ def test_constants_are_bounded_and_must_be_real(rhs, fragment, position):
     assert pos == position
 
 
+def test_constants_below_1e_minus_300_become_their_double():
+    m = parse_model("x' = mod(exp(-10^10)*x + (1/3)^(10^10), 7) + 1e-99999999 + 1e-320*x")
+    assert m.ok
+    x = m.symbols["x"]
+    assert m.equations["x"] == sp.Float(1e-320) * x  # 1e-320 is a denormal double, the rest is 0.0
+    pos, _ = error_at("x' = mod(x, 2^(-10^10))", "mod() divides by zero")
+    assert pos == (1, 6, 24)
+
+
 def test_constants_inside_bounds_fold_exactly():
     m = parse_model("x' = 2^64 + 0.1 + 1e-3 + 10^60/10^59 + (2/3)^2")
     assert m.ok
