@@ -17,6 +17,11 @@ from PySide6.QtCore import QSettings, QStandardPaths  # noqa: E402
 from PySide6.QtWidgets import QMessageBox  # noqa: E402
 
 QStandardPaths.setTestModeEnabled(True)
+# One GL context share group for every 3D view the tests create (as the app does at start-up):
+# pyqtgraph's GL items keep their shader programs per context group.
+from PySide6.QtCore import QCoreApplication, Qt  # noqa: E402
+
+QCoreApplication.setAttribute(Qt.ApplicationAttribute.AA_ShareOpenGLContexts)
 for _fmt in (QSettings.Format.NativeFormat, QSettings.Format.IniFormat):
     QSettings.setPath(_fmt, QSettings.Scope.UserScope, os.path.join(_USER_DIR, "config"))
 
