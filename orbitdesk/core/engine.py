@@ -9,6 +9,7 @@ interpolation between output samples.
 from __future__ import annotations
 
 import math
+import warnings
 from dataclasses import dataclass, field
 from typing import Callable
 
@@ -18,6 +19,9 @@ from scipy.optimize import brentq
 
 from .progress import CancelToken, Cancelled, Reporter
 from .system import MAP, CompiledSystem, UndefinedValue
+
+# scipy's compiled DOP853 also warns about the failures it returns; the engine reports them itself
+warnings.filterwarnings("ignore", message=r"dop853: ", category=UserWarning)
 
 OK, DIVERGED, UNDEFINED, CANCELLED, STEP_FAILED = "ok", "diverged", "undefined", "cancelled", "step_failed"
 METHODS = ("dop853", "rk45", "stiff", "rk4")
