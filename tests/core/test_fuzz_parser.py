@@ -14,9 +14,12 @@ run set ORBITDESK_FUZZ_EXAMPLES to the number of examples per test, e.g.
 
 from __future__ import annotations
 
+import contextlib
 import math
 import os
 import re
+import signal
+import threading
 
 import numpy as np
 import sympy as sp
@@ -35,6 +38,28 @@ def budget(default: int):
     return settings(max_examples=_DEEP or default, deadline=None, derandomize=not _DEEP,
                     suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large,
                                            HealthCheck.filter_too_much])
+
+
+HANG_LIMIT = 20  # seconds for one example: a hang detector, not a speed test
+
+
+@contextlib.contextmanager
+def hang_guard():
+    """Turn an example that runs for HANG_LIMIT seconds into a failure hypothesis can shrink."""
+    if not hasattr(signal, "SIGALRM") or threading.current_thread() is not threading.main_thread():
+        yield
+        return
+
+    def hung(signum, frame):
+        raise TimeoutError(f"one example ran for more than {HANG_LIMIT} s")
+
+    previous = signal.signal(signal.SIGALRM, hung)
+    signal.alarm(HANG_LIMIT)
+    try:
+        yield
+    finally:
+        signal.alarm(0)
+        signal.signal(signal.SIGALRM, previous)
 
 
 def check_diagnostics(text: str, model) -> None:
@@ -91,10 +116,11 @@ model_like_text = st.lists(st.sampled_from(list(MODEL_CHARS) + ["**", "x' = ", "
 @budget(1500)
 @given(st.one_of(odd_text, model_like_text))
 def test_arbitrary_text_only_gives_diagnostics(text):
-    model = parse_model(text)
-    check_diagnostics(text, model)
-    if model.ok:
-        check_compiled(model)
+    with hang_guard():
+        model = parse_model(text)
+        check_diagnostics(text, model)
+        if model.ok:
+            check_compiled(model)
 
 
 # ---------------------------------------------------------------- (b) generated models
@@ -172,13 +198,14 @@ def models(draw):
 @budget(600)
 @given(models())
 def test_generated_models_parse_and_compile(text):
-    model = parse_model(text)
-    check_diagnostics(text, model)
-    if model.ok:
-        check_compiled(model)
-        for name, order in model.typed_order.items():
-            for j in range(order - 1):
-                assert model.equations[name + "'" * j] == model.symbols[name + "'" * (j + 1)]
+    with hang_guard():
+        model = parse_model(text)
+        check_diagnostics(text, model)
+        if model.ok:
+            check_compiled(model)
+            for name, order in model.typed_order.items():
+                for j in range(order - 1):
+                    assert model.equations[name + "'" * j] == model.symbols[name + "'" * (j + 1)]
 
 
 def test_the_generator_reaches_clean_models():
@@ -236,10 +263,11 @@ def apply_edits(text: str, edits) -> str:
 @given(st.lists(edit, min_size=1, max_size=6))
 def test_mutations_of_lorenz_never_raise(edits):
     text = apply_edits(LORENZ, edits)
-    model = parse_model(text)
-    check_diagnostics(text, model)
-    if model.ok:
-        check_compiled(model)
+    with hang_guard():
+        model = parse_model(text)
+        check_diagnostics(text, model)
+        if model.ok:
+            check_compiled(model)
 
 
 def test_unmutated_lorenz_is_clean():
