@@ -102,6 +102,8 @@ class _Builder:
     def __init__(self, text: str):
         self.model = ParsedModel(text=text)
         self.diags = self.model.diagnostics
+        self.cyclic: set[str] = set()  # definitions found in a loop (each reported once)
+        self.suggestion_budget = SUGGESTION_BUDGET
 
     def add(self, line, col, end, severity, message, fix=None):
         self.diags.append(Diagnostic(line, col, max(end, col + 1), severity, message, fix))
@@ -112,12 +114,11 @@ class _Builder:
         The budget bounds the name comparisons spent on one model, so thousands of unknown names
         among thousands of known ones stay quick; past it, errors simply carry no suggestion.
         """
-        budget = getattr(self, "suggestion_budget", SUGGESTION_BUDGET)
-        if budget <= 0:
+        if self.suggestion_budget <= 0:
             return []
         names = candidates()
-        self.suggestion_budget = budget - len(names)
-        return get_close_matches(name, names, n=1, cutoff=0.6) if len(names) <= budget else []
+        self.suggestion_budget -= len(names)
+        return get_close_matches(name, names, n=1, cutoff=0.6) if self.suggestion_budget >= 0 else []
 
     # ------------------------------------------------------------ pass 1: statements
     def split_lines(self, text: str) -> list[_Statement]:
@@ -336,7 +337,7 @@ class _Builder:
                 lines[key] = st
         order = self.topological(raw, lines, derived_names)
         resolved: dict[str, sp.Expr] = {}
-        failed: set[str] = set(getattr(self, "cyclic", ()))  # definitions in a loop are reported already
+        failed = set(self.cyclic)  # definitions in a loop are reported already
         sizes: dict = {}
         for key in order:
             expr = raw[key]
@@ -495,12 +496,9 @@ class _Builder:
                     path.pop()
                     state[node] = 2
                     order.append(node)
-        bad = getattr(self, "cyclic", set())
-        return [k for k in order if k not in bad]
+        return [k for k in order if k not in self.cyclic]
 
     def report_cycle(self, cycle, lines):
-        if not hasattr(self, "cyclic"):
-            self.cyclic = set()
         new = [key for key in cycle if key not in self.cyclic]
         if not new:
             return  # one diagnostic per definition, however many loops pass through it
