@@ -7,29 +7,13 @@ import math
 import numpy as np
 import pytest
 
-from orbitdesk.cli import main
+from .conftest import run_cli
 
 BRUSSELATOR = "a = 1\nb = 2.5\nx' = a - (b+1)*x + x^2*y\ny' = b*x - x^2*y\nx(0) = 1\ny(0) = 1.5\n"
 SADDLE = "x' = x\ny' = -y + x^2\n"
 LOGISTIC = "r = 3.2\nx[n+1] = r*x*(1 - x)\nx[0] = 0.2\n"
 CIRCLE = "x' = x - y - x*(x^2 + y^2)\ny' = x + y - y*(x^2 + y^2)\nx(0) = 0.5\n"
 FORCED = "x' = -x + sin(t)\n"
-
-
-@pytest.fixture
-def model(tmp_path):
-    def write(text, name="model.txt"):
-        path = tmp_path / name
-        path.write_text(text)
-        return path
-
-    return write
-
-
-def run_cli(capsys, *args):
-    code = main([str(a) for a in args])
-    out, err = capsys.readouterr()
-    return code, out, err
 
 
 def test_equilibria_json_contract(capsys, model):

@@ -7,7 +7,7 @@ import math
 import numpy as np
 import pytest
 
-from orbitdesk.cli import main
+from .conftest import run_cli
 
 OSCILLATOR = "x' = y\ny' = -w^2*x\nw = 2\nx(0) = 0.3\ny(0) = 1\n"
 DUFFING = ("x'' = -delta*x' + x - x^3 + gamma*cos(omega*t)\n"
@@ -15,22 +15,6 @@ DUFFING = ("x'' = -delta*x' + x - x^3 + gamma*cos(omega*t)\n"
 LORENZ = ("x' = sigma*(y - x)\ny' = x*(r - z) - y\nz' = x*y - beta*z\n"
           "sigma = 10\nr = 28\nbeta = 8/3\nx(0) = 1\ny(0) = 1\nz(0) = 1\n")
 HENON = "x[n+1] = 1 - a*x^2 + y\ny[n+1] = b*x\na = 1.4\nb = 0.3\nx[0] = 0.1\ny[0] = 0.1\n"
-
-
-@pytest.fixture
-def model(tmp_path):
-    def write(text, name="model.txt"):
-        path = tmp_path / name
-        path.write_text(text)
-        return path
-
-    return write
-
-
-def run_cli(capsys, *args):
-    code = main([str(a) for a in args])
-    out, err = capsys.readouterr()
-    return code, out, err
 
 
 # ---------------------------------------------------------------- section
