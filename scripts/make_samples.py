@@ -172,7 +172,7 @@ z(0) = 1
          "Drag in the 3D view to turn the picture. The path winds around two holes, one for each "
          "direction of circulation, and never closes on itself: this is the Lorenz *attractor*.",
          {"parameters": {"r": 28.0}, "open_views": ["phase_space_3d", "timeseries"],
-          "camera": {"azimuth": 35.0, "elevation": 20.0, "distance": 95.0, "center": [0.0, 0.0, 25.0]}}),
+          "camera": {"azimuth": 35.0, "elevation": 20.0, "distance": 23.0, "center": [0.0, 0.0, 0.0]}}),
         ("Every rest state is unstable",
          "Look at the equilibria at `r = 28`:\n\n"
          "- the origin is a **saddle** with one unstable direction;\n"
@@ -180,7 +180,7 @@ z(0) = 1
          "*positive* real part (about 0.094) spirals the path away, while one large negative "
          "eigenvalue pulls it flat onto a sheet.\n\n"
          "With nothing stable to settle on, the path keeps wandering between them.",
-         {"parameters": {"r": 28.0}, "open_views": ["equilibria", "phase_space_3d"], "selected_equilibrium": 0}),
+         {"parameters": {"r": 28.0}, "open_views": ["equilibria", "phase_space_3d"], "selected_equilibrium": 1}),
         ("A slice through the attractor",
          "The section marks each time the path passes upward through the level `z = 27`, the height "
          "of the two circulation states. The points fall on thin curves rather than filling an area: "
