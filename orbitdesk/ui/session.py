@@ -200,6 +200,9 @@ class Session(QObject):
     busyChanged = Signal(bool)         # any background job running
     runProgress = Signal(float)        # progress of the main run, 0..1
     runFailed = Signal(str)            # the main run raised (plain message)
+    equilibriaChanged = Signal(object)   # list of equilibria found for the current system and values
+    equilibriumSelected = Signal(object) # index into that list, or None
+    startsRequested = Signal(object)     # list of {"u0": [...], "backward": bool}: trajectories to start
 
     def __init__(self, parent=None):
         super().__init__(parent)
@@ -214,6 +217,9 @@ class Session(QObject):
         self.solver = SolverSettings()
         self.trajectory = None
         self.time_cursor = math.inf
+        self.equilibria: list = []                   # shared by the views that show equilibria
+        self.selected_equilibrium: int | None = None  # index into ``equilibria``
+        self._start_takers: list[str] | None = None
         self.generation = 0
         self.auto_run = True
         self.undo_stack = QUndoStack(self)
@@ -336,6 +342,50 @@ class Session(QObject):
             self.time_cursor = t
             self.timeCursorChanged.emit(t)
 
+    # ------------------------------------------------------------ equilibria and added starts (not undoable)
+    def set_equilibria(self, items) -> None:
+        """Share the equilibria found for the current system and values; a selection that no longer
+        points into the list is dropped. Cleared by the session when the model or its values change."""
+        self.equilibria = list(items or [])
+        self.equilibriaChanged.emit(list(self.equilibria))
+        if self.selected_equilibrium is not None and self.selected_equilibrium >= len(self.equilibria):
+            self.select_equilibrium(None)
+
+    def select_equilibrium(self, index) -> None:
+        """Select one of the shared equilibria by its index (None: no selection)."""
+        if index is not None and not 0 <= int(index) < len(self.equilibria):
+            index = None
+        index = None if index is None else int(index)
+        if index != self.selected_equilibrium:
+            self.selected_equilibrium = index
+            self.equilibriumSelected.emit(index)
+
+    def request_starts(self, starts) -> list[str]:
+        """Ask the views that draw added trajectories to start them from these full initial states:
+        dicts with ``u0`` (a value per state, in system order) and ``backward`` (run backward in time).
+
+        Returns the titles of the views that took them (each calls ``note_starts_taken``)."""
+        starts = [{"u0": [float(v) for v in st["u0"]], "backward": bool(st.get("backward", False))}
+                  for st in starts]
+        self._start_takers = []
+        try:
+            if starts:
+                self.startsRequested.emit(starts)
+            return list(self._start_takers)
+        finally:
+            self._start_takers = None
+
+    def note_starts_taken(self, title: str) -> None:
+        """Called by a view handling ``startsRequested``: it drew the starts (``title`` names it)."""
+        if self._start_takers is not None and title not in self._start_takers:
+            self._start_takers.append(title)
+
+    def _clear_equilibria(self) -> None:
+        if self.equilibria or self.selected_equilibrium is not None:
+            self.equilibria, self.selected_equilibrium = [], None
+            self.equilibriaChanged.emit([])
+            self.equilibriumSelected.emit(None)
+
     def show_state(self, params: dict | None = None, initial: dict | None = None,
                    solver: dict | None = None) -> None:
         """Put values and solver settings on screen without an undo step or an unsaved mark: a
@@ -379,6 +429,7 @@ class Session(QObject):
 
     def _values_changed(self) -> None:
         self.generation += 1
+        self._clear_equilibria()
         self.valuesChanged.emit()
         self.schedule_run()
 
@@ -429,6 +480,7 @@ class Session(QObject):
         self._written_params, self._written_ranges, self._written_initial = written_p, written_r, written_u
         self.system, self._signature = system, sig
         self.generation += 1
+        self._clear_equilibria()
         self.systemChanged.emit(system)
         if values_changed:
             self.valuesChanged.emit()
@@ -529,6 +581,7 @@ class Session(QObject):
         self.solver = copy.copy(project.solver)
         self.system, self._signature, self.trajectory = None, None, None
         self.time_cursor = math.inf
+        self._clear_equilibria()
         self.generation += 1
         self._text_gen += 1
         self.undo_stack.clear()

@@ -164,6 +164,7 @@ class EquilibriaView(QWidget):
         session.systemChanged.connect(self._on_system)
         session.valuesChanged.connect(self._on_values)
         session.projectLoaded.connect(self._on_project_loaded)
+        session.equilibriumSelected.connect(self._on_shared_selection)
         self._on_project_loaded()
         if session.system is not None:
             self._on_system(session.system)
@@ -240,7 +241,8 @@ class EquilibriaView(QWidget):
         if not starts:
             return []
         self.startsRequested.emit(starts)
-        where = self._deliver_starts(starts)
+        taken = self.session.request_starts(starts)
+        where = " and ".join(f"{w[:1].lower()}{w[1:]} view" for w in taken)
         self.starts_note.setText(f"Started {len(starts)} trajector{'y' if len(starts) == 1 else 'ies'}"
                                  + (f" in the {where}" if where else "; open the 3D view to see them"))
         return starts
@@ -277,13 +279,17 @@ class EquilibriaView(QWidget):
             self.find()
 
     def _failed(self, message: str) -> None:
+        if self._owns_shared_list():
+            self.session.set_equilibria([])
         self._set_results([], [])
         self.summary.setText("")
 
     def _adopt(self, result) -> None:
-        self._set_results(list(result), list(getattr(result, "notes", [])))
+        items = list(result)
+        self.session.set_equilibria(items)  # shared first, so that the selection indexes this list
+        self._set_results(items, list(getattr(result, "notes", [])))
+        self._publish_selection()
         self.equilibriaChanged.emit(result)
-        self._push_to_peers()
 
     # ------------------------------------------------------------ table and details
     def _set_results(self, items, notes) -> None:
@@ -342,7 +348,7 @@ class EquilibriaView(QWidget):
         self._show_details(eq)
         self._fill_start_buttons()
         self.equilibriumSelected.emit(eq)
-        self._push_selection_to_peers(eq)
+        self._publish_selection()
 
     def _show_details(self, eq) -> None:
         s = self.system
@@ -402,37 +408,19 @@ class EquilibriaView(QWidget):
                 self.starts_grid.addWidget(b, row, col)
         self.starts_grid.setColumnStretch(3, 1)
 
-    # ------------------------------------------------------------ other views
-    def _peers(self) -> list:
-        views = getattr(self.window(), "views", None)
-        return [v for v in views.values() if v is not self] if isinstance(views, dict) else []
+    # ------------------------------------------------------------ the session's shared equilibria
+    def _owns_shared_list(self) -> bool:
+        """Whether the session's shared equilibria are the ones in this table."""
+        shared = self.session.equilibria
+        return len(shared) == len(self.equilibria) and all(a is b for a, b in zip(shared, self.equilibria))
 
-    def _push_to_peers(self) -> None:
-        for view in self._peers():
-            if hasattr(view, "set_equilibria"):
-                view.set_equilibria(list(self.equilibria))
+    def _publish_selection(self) -> None:
+        if self._owns_shared_list():
+            self.session.select_equilibrium(self.selected_index())
 
-    def _push_selection_to_peers(self, eq) -> None:
-        for view in self._peers():
-            if hasattr(view, "select_equilibrium"):
-                view.select_equilibrium(eq)
-
-    def _deliver_starts(self, starts) -> str:
-        """Hand the starts to the views that draw added trajectories; returns where they went."""
-        where = []
-        s = self.system
-        for view in self._peers():
-            if hasattr(view, "add_starts"):
-                view.add_starts(starts)
-                where.append(view.title)
-            elif (hasattr(view, "start_trajectory") and s is not None and s.n_states == 2
-                  and {getattr(view, "x_name", None), getattr(view, "y_name", None)} == set(s.states)):
-                # the phase plane takes points of its plane: exact when the model has two states
-                for st in starts:
-                    u = dict(zip(s.states, st["u0"]))
-                    view.start_trajectory(u[view.x_name], u[view.y_name], both=st["backward"])
-                where.append(view.title)
-        return " and ".join(f"{w[:1].lower()}{w[1:]} view" for w in where)
+    def _on_shared_selection(self, index) -> None:
+        if index is not None and self._owns_shared_list() and index != self.selected_index():
+            self.select(index)
 
 
 VIEW = EquilibriaView

@@ -149,11 +149,15 @@ class PhasePlaneView(QWidget):
         session.valuesChanged.connect(self._on_values)
         session.timeCursorChanged.connect(self._update_cursor)
         session.projectLoaded.connect(self._on_project_loaded)
+        session.equilibriaChanged.connect(self.set_equilibria)
+        session.startsRequested.connect(self._on_starts_requested)
         self._on_project_loaded()
         if session.system is not None:
             self._on_system(session.system)
         if session.trajectory is not None:
             self._on_trajectory(session.trajectory)
+        if session.equilibria:
+            self.set_equilibria(session.equilibria)
 
     # ------------------------------------------------------------ view protocol
     def view_settings(self) -> dict:
@@ -244,6 +248,16 @@ class PhasePlaneView(QWidget):
         self.session.run_job(f"phase_plane.seed.{id(seed)}", self._seed_job([seed]),
                              lambda runs: self._seed_done(index, seed, runs[0]))
         return True
+
+    def _on_starts_requested(self, starts) -> None:
+        """Full initial states from another view: taken when the plane is the model's two states."""
+        s = self.system
+        if s is None or s.n_states != 2 or {self.x_name, self.y_name} != set(s.states):
+            return
+        for st in starts:
+            u = dict(zip(s.states, st["u0"]))
+            self.start_trajectory(u[self.x_name], u[self.y_name], both=st["backward"])
+        self.session.note_starts_taken(self.title)
 
     def clear_seeds(self) -> None:
         self.seeds, self.seed_runs = [], []

@@ -243,11 +243,17 @@ class PhaseSpace3DView(QWidget):
         session.valuesChanged.connect(self._on_values)
         session.timeCursorChanged.connect(self._update_cursor)
         session.projectLoaded.connect(self._on_project_loaded)
+        session.equilibriaChanged.connect(self.set_equilibria)
+        session.equilibriumSelected.connect(self._on_equilibrium_selected)
+        session.startsRequested.connect(self._on_starts_requested)
         self._on_project_loaded()
         if session.system is not None:
             self._on_system(session.system)
         if session.trajectory is not None:
             self._on_trajectory(session.trajectory)
+        if session.equilibria:
+            self.set_equilibria(session.equilibria)
+            self._on_equilibrium_selected(session.selected_equilibrium)
 
     # ------------------------------------------------------------ view protocol
     def view_settings(self) -> dict:
@@ -394,13 +400,22 @@ class PhaseSpace3DView(QWidget):
 
     def set_equilibria(self, items) -> None:
         self.equilibria = list(items or [])
-        if self.selected_equilibrium is not None and self.selected_equilibrium not in self.equilibria:
+        if not any(eq is self.selected_equilibrium for eq in self.equilibria):
             self.selected_equilibrium = None
         self._draw_equilibria()
 
     def select_equilibrium(self, eq) -> None:
         self.selected_equilibrium = eq
         self._draw_equilibria()
+
+    def _on_equilibrium_selected(self, index) -> None:
+        ok = index is not None and 0 <= index < len(self.equilibria)
+        self.select_equilibrium(self.equilibria[index] if ok else None)
+
+    def _on_starts_requested(self, starts) -> None:
+        if self.system is not None:
+            self.add_starts(starts)
+            self.session.note_starts_taken(self.title)
 
     def spread_starts(self) -> np.ndarray:
         """The K nearby starts (K, n): uniform in a ball of the chosen radius around the initial state."""

@@ -1,0 +1,83 @@
+"""What the views share: the session's equilibria and start requests, and the helpers in views/common.py."""
+
+import numpy as np
+
+from orbitdesk.core.project import Project, SolverSettings
+
+from .conftest import wait_for_trajectory
+
+SADDLE_2D = """x' = y
+y' = x - x^3
+a = 1
+x(0) = 0.5
+"""
+
+
+def load(qtbot, session, text):
+    session.solver = SolverSettings(t_end=5.0, samples=501)
+    return wait_for_trajectory(qtbot, session, lambda: session.load_project(
+        Project(name="m", model=text, solver=session.solver)))
+
+
+def test_shared_equilibria_selection_and_clearing(qtbot, session):
+    load(qtbot, session, SADDLE_2D)
+    seen, picked = [], []
+    session.equilibriaChanged.connect(seen.append)
+    session.equilibriumSelected.connect(picked.append)
+    items = [{"state": {"x": 0.0, "y": 0.0}}, {"state": {"x": 1.0, "y": 0.0}}]
+    session.set_equilibria(items)
+    assert seen == [items] and session.equilibria == items
+    session.select_equilibrium(1)
+    session.select_equilibrium(1)  # the same selection again says nothing
+    session.select_equilibrium(7)  # out of range: no selection
+    assert picked == [1, None] and session.selected_equilibrium is None
+    session.select_equilibrium(0)
+    session.set_equilibria(items[:1])  # index 0 still points into the list
+    assert session.selected_equilibrium == 0
+    # a changed value makes them stale: the session clears the list and the selection
+    session.set_param("a", 2.0)
+    assert session.equilibria == [] and session.selected_equilibrium is None
+    assert seen[-1] == [] and picked[-1] is None
+
+
+def test_start_requests_report_the_views_that_took_them(qtbot, session):
+    load(qtbot, session, SADDLE_2D)
+    assert session.request_starts([{"u0": [0.1, 0.0]}]) == []  # nobody listens
+    got = []
+
+    def taker(starts):
+        got.append(starts)
+        session.note_starts_taken("Phase plane")
+
+    session.startsRequested.connect(taker)
+    taken = session.request_starts([{"u0": [0.1, 0], "backward": 1, "label": "+v1"}])
+    assert taken == ["Phase plane"]
+    assert got == [[{"u0": [0.1, 0.0], "backward": True}]]  # plain full states
+    session.note_starts_taken("late")  # outside a request: ignored
+    assert session.request_starts([]) == [] and len(got) == 1
+
+
+def test_phase_plane_and_3d_follow_the_session(qtbot, session):
+    from orbitdesk.ui.views.phase_plane import PhasePlaneView
+    from orbitdesk.ui.views.phase_space_3d import PhaseSpace3DView
+
+    load(qtbot, session, SADDLE_2D)
+    plane = PhasePlaneView(session)
+    qtbot.addWidget(plane)
+    items = [{"state": {"x": 0.0, "y": 0.0}, "stable": False, "kind": "saddle"},
+             {"state": {"x": 1.0, "y": 0.0}, "stable": None, "kind": "centre (linear)"}]
+    session.set_equilibria(items)
+    session.select_equilibrium(1)
+    assert len(plane.eq_item.points()) == 2
+    space = PhaseSpace3DView(session)  # created later: catches up with what the session holds
+    qtbot.addWidget(space)
+    assert space.equilibria == items and space.selected_equilibrium is items[1]
+    session.select_equilibrium(0)
+    assert space.selected_equilibrium is items[0]
+    # x' = y, y' = x - x^3 through (0.1, 0): both views take a start of the two-state model
+    taken = session.request_starts([{"u0": [0.1, 0.0], "backward": True}])
+    assert sorted(taken) == ["Phase plane", "Phase space 3D"]
+    assert plane.seeds[-1] == {"u0": [0.1, 0.0], "both": True}
+    assert space.added[-1] == {"u0": [0.1, 0.0], "backward": True}
+    np.testing.assert_array_equal(plane.seeds[-1]["u0"], space.added[-1]["u0"])
+    session.cancel_all()
