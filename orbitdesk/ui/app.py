@@ -5,10 +5,12 @@ Heavy modules (sympy, scipy, OpenGL, analyses) are imported when first needed, a
 
 from __future__ import annotations
 
+import os
 import sys
+import time
 from pathlib import Path
 
-from PySide6.QtCore import Qt
+from PySide6.QtCore import QEvent, QObject, Qt, QTimer
 from PySide6.QtGui import QGuiApplication, QIcon
 from PySide6.QtWidgets import QApplication
 
@@ -43,6 +45,27 @@ def make_application(argv=None) -> QApplication:
     return app
 
 
+class _FirstPaint(QObject):
+    """``ORBITDESK_REPORT_SHOWN=1``: print ``shown SECONDS`` (``time.time()``) once the window has
+    painted for the first time; ``=quit``: then quit (the start-up benchmark)."""
+
+    def __init__(self, window, quit: bool = False):
+        super().__init__(window)
+        self.quit = quit
+        window.installEventFilter(self)
+
+    def eventFilter(self, obj, event):
+        if event.type() == QEvent.Type.Paint:
+            obj.removeEventFilter(self)
+            QTimer.singleShot(0, self._report)  # after this first frame is painted
+        return False
+
+    def _report(self):
+        print(f"shown {time.time():.6f}", flush=True)
+        if self.quit:
+            QApplication.instance().quit()
+
+
 def create(argv=None, path=None):
     """Build the application and its window (shown); offer recovery, then open ``path``.
 
@@ -57,6 +80,8 @@ def create(argv=None, path=None):
     errors.install(app)
     window = MainWindow()
     window.autosaver = recovery.Autosaver(window.session, parent=window)
+    if os.environ.get("ORBITDESK_REPORT_SHOWN"):
+        window._first_paint = _FirstPaint(window, quit=os.environ["ORBITDESK_REPORT_SHOWN"] == "quit")
     window.show()
     restored = recovery.offer_recovery(window)
     if path is not None and not restored:
