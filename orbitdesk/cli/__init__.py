@@ -38,6 +38,8 @@ def build_parser() -> argparse.ArgumentParser:
 def main(argv=None) -> int:
     argv = list(sys.argv[1:] if argv is None else argv)
     try:
+        if len(argv) == 2 and argv[0] == "open" and not argv[1].startswith("-"):  # no other command's imports
+            return int(importlib.import_module(f"{__name__}.open").run(argparse.Namespace(path=argv[1])) or 0)
         parser = build_parser()
         args = parser.parse_args(argv)
         if args.command is None:
