@@ -44,14 +44,14 @@ HANG_LIMIT = 20  # seconds for one example: a hang detector, not a speed test
 
 
 @contextlib.contextmanager
-def hang_guard():
+def hang_guard(text: str):
     """Turn an example that runs for HANG_LIMIT seconds into a failure hypothesis can shrink."""
     if not hasattr(signal, "SIGALRM") or threading.current_thread() is not threading.main_thread():
         yield
         return
 
     def hung(signum, frame):
-        raise TimeoutError(f"one example ran for more than {HANG_LIMIT} s")
+        raise TimeoutError(f"one example ran for more than {HANG_LIMIT} s: {text!r}")
 
     previous = signal.signal(signal.SIGALRM, hung)
     signal.alarm(HANG_LIMIT)
@@ -116,7 +116,7 @@ model_like_text = st.lists(st.sampled_from(list(MODEL_CHARS) + ["**", "x' = ", "
 @budget(1500)
 @given(st.one_of(odd_text, model_like_text))
 def test_arbitrary_text_only_gives_diagnostics(text):
-    with hang_guard():
+    with hang_guard(text):
         model = parse_model(text)
         check_diagnostics(text, model)
         if model.ok:
@@ -198,7 +198,7 @@ def models(draw):
 @budget(600)
 @given(models())
 def test_generated_models_parse_and_compile(text):
-    with hang_guard():
+    with hang_guard(text):
         model = parse_model(text)
         check_diagnostics(text, model)
         if model.ok:
@@ -263,7 +263,7 @@ def apply_edits(text: str, edits) -> str:
 @given(st.lists(edit, min_size=1, max_size=6))
 def test_mutations_of_lorenz_never_raise(edits):
     text = apply_edits(LORENZ, edits)
-    with hang_guard():
+    with hang_guard(text):
         model = parse_model(text)
         check_diagnostics(text, model)
         if model.ok:
