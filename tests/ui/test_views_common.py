@@ -1,6 +1,7 @@
 """What the views share: the session's equilibria and start requests, and the helpers in views/common.py."""
 
 import numpy as np
+import pytest
 
 from orbitdesk.core.project import Project, SolverSettings
 
@@ -81,3 +82,48 @@ def test_phase_plane_and_3d_follow_the_session(qtbot, session):
     assert space.added[-1] == {"u0": [0.1, 0.0], "backward": True}
     np.testing.assert_array_equal(plane.seeds[-1]["u0"], space.added[-1]["u0"])
     session.cancel_all()
+
+
+@pytest.mark.parametrize("value, ok", [(1, True), (2.5, True), (True, False), (float("nan"), False),
+                                       ("3", False), (None, False)])
+def test_is_number(value, ok):
+    from orbitdesk.ui.views.common import is_number
+
+    assert is_number(value) is ok
+
+
+def test_values_at_time_interpolates_flows_and_steps_maps():
+    from orbitdesk.ui.views.common import values_at_time
+
+    # x = 2 t + 1 sampled every 0.5: linear interpolation is exact for a straight line (closed form)
+    time = np.arange(0.0, 5.01, 0.5)
+    x, xy = 2 * time + 1, np.column_stack([time, -time])
+    (v,) = values_at_time(time, 1.3, False, x)
+    assert v == pytest.approx(3.6)
+    (row,) = values_at_time(time, 1.3, False, xy)
+    np.testing.assert_allclose(row, [1.3, -1.3])
+    assert values_at_time(-time, -1.3, False, x)[0] == pytest.approx(3.6)  # a backward run
+    assert values_at_time(time, 1.3, True, x)[0] == 2 * 1.5 + 1  # a map: the iterate at or after
+    assert values_at_time(time, 99.0, False, x)[0] == x[-1]  # past the end: the last sample
+
+
+def test_settings_helpers_set_quietly(qtbot):
+    from PySide6.QtWidgets import QCheckBox, QComboBox, QSpinBox
+
+    from orbitdesk.ui.views.common import apply_numbers, control_row, fill_combo, select_text, set_quietly
+
+    box, combo, check = QSpinBox(), QComboBox(), QCheckBox()
+    box.setRange(0, 100)
+    fired = []
+    for signal in (box.valueChanged, combo.currentIndexChanged, check.toggled):
+        signal.connect(fired.append)
+    fill_combo(combo, ["x", "y", "z"])
+    apply_numbers({"n": 7, "skip": float("inf")}, ((box, "n", int), (box, "skip", int)))
+    set_quietly(combo, 2)
+    set_quietly(check, True)
+    assert (box.value(), combo.currentText(), check.isChecked()) == (7, "z", True)
+    assert fired == []  # nothing announced
+    assert select_text(combo, "y") and not select_text(combo, "w") and not select_text(combo, None)
+    assert combo.currentText() == "y" and fired == [1]
+    row = control_row("Sweep", box, 8, None, combo)
+    assert row.count() == 6 and row.itemAt(0).widget().text() == "Sweep"

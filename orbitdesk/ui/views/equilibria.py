@@ -4,12 +4,12 @@ Jacobian and eigenvectors, and trajectories started just off it along each real 
 from __future__ import annotations
 
 import numpy as np
-from PySide6.QtCore import Qt, QTimer, Signal
-from PySide6.QtWidgets import (QAbstractItemView, QCheckBox, QGridLayout, QHBoxLayout,
-                               QHeaderView, QLabel, QPushButton, QSplitter, QTableWidget, QTableWidgetItem,
-                               QTextBrowser, QToolButton, QVBoxLayout, QWidget)
+from PySide6.QtCore import Qt, Signal
+from PySide6.QtWidgets import (QAbstractItemView, QGridLayout, QHeaderView, QLabel, QSplitter, QTableWidget,
+                               QTableWidgetItem, QTextBrowser, QToolButton, QVBoxLayout, QWidget)
 
 from ..plot_style import JobStrip, NumberBox, complex_text, eigenvalues_text, hint_label, mono_font, number_text
+from .common import SessionView, auto_timer, check_box, control_row, push_button
 
 AUTO_MAX_STATES = 4      # models this small are searched again by themselves when they change
 AUTO_DELAY_MS = 350
@@ -68,7 +68,7 @@ def _matrix_html(rows, col_heads=None, row_heads=None) -> str:
     return f"<table cellspacing='0'>{''.join(cells)}</table>"
 
 
-class EquilibriaView(QWidget):
+class EquilibriaView(SessionView):
     view_id = "equilibria"
     title = "Equilibria"
 
@@ -77,22 +77,16 @@ class EquilibriaView(QWidget):
     startsRequested = Signal(object)       # list of start dicts (see eigen_starts)
 
     def __init__(self, session, parent=None):
-        super().__init__(parent)
-        self.session = session
-        self.system = None
+        super().__init__(session, parent)
         self.equilibria: list = []
         self.notes: list[str] = []
         self._wanted_selection: int | None = None
         self._searched_generation = None
 
-        self.find_button = QPushButton("Find")
-        self.find_button.setToolTip("Search for equilibria with the current parameter values")
-        self.find_button.clicked.connect(self.find)
-        self.auto = QCheckBox("Automatic")
-        self.auto.setChecked(True)
-        self.auto.setToolTip(f"Search again whenever the model or its values change "
-                             f"(models with up to {AUTO_MAX_STATES} states)")
-        self.auto.toggled.connect(lambda on: on and self._schedule())
+        self.find_button = push_button("Find", "Search for equilibria with the current parameter values", self.find)
+        self.auto = check_box("Automatic", f"Search again whenever the model or its values change "
+                              f"(models with up to {AUTO_MAX_STATES} states)", True,
+                              lambda on: on and self._schedule())
         self.strip = JobStrip(session, "Searching")
         self.summary = hint_label()
         self.summary.setWordWrap(False)
@@ -123,11 +117,7 @@ class EquilibriaView(QWidget):
         self.all_button.clicked.connect(lambda: self.start_along(None))
         self.starts_note = hint_label()
 
-        top = QHBoxLayout()
-        top.setContentsMargins(0, 0, 0, 0)
-        top.setSpacing(8)
-        top.addWidget(self.find_button)
-        top.addWidget(self.auto)
+        top = control_row(self.find_button, self.auto, spacing=8, stretch=False)
         top.addWidget(self.summary, 1)
         top.addWidget(self.strip, 1)
 
@@ -136,13 +126,8 @@ class EquilibriaView(QWidget):
         lower_layout.setContentsMargins(0, 0, 0, 0)
         lower_layout.setSpacing(4)
         lower_layout.addWidget(self.details, 1)
-        starts_head = QHBoxLayout()
-        starts_head.setSpacing(6)
-        starts_head.addWidget(QLabel("Start trajectories off it, offset"))
-        starts_head.addWidget(self.eps)
-        starts_head.addWidget(self.all_button)
-        starts_head.addStretch(1)
-        lower_layout.addLayout(starts_head)
+        lower_layout.addLayout(control_row("Start trajectories off it, offset", self.eps, self.all_button,
+                                           spacing=6))
         lower_layout.addWidget(self.starts_box)
         lower_layout.addWidget(self.starts_note)
 
@@ -153,21 +138,13 @@ class EquilibriaView(QWidget):
         self.splitter.setStretchFactor(1, 3)
         self.splitter.setChildrenCollapsible(False)
 
-        layout = QVBoxLayout(self)
-        layout.setContentsMargins(6, 6, 6, 6)
-        layout.setSpacing(4)
+        layout = self.main_layout()
         layout.addLayout(top)
         layout.addWidget(self.splitter, 1)
 
-        self._timer = QTimer(self, singleShot=True, interval=AUTO_DELAY_MS)
-        self._timer.timeout.connect(self._auto_find)
-        session.systemChanged.connect(self._on_system)
-        session.valuesChanged.connect(self._on_values)
-        session.projectLoaded.connect(self._on_project_loaded)
+        self._timer = auto_timer(self, AUTO_DELAY_MS, self.find, self._auto_ok)
         session.equilibriumSelected.connect(self._on_shared_selection)
-        self._on_project_loaded()
-        if session.system is not None:
-            self._on_system(session.system)
+        self.follow_session(values=self._on_values)
 
     # ------------------------------------------------------------ view protocol
     def view_settings(self) -> dict:
@@ -251,7 +228,7 @@ class EquilibriaView(QWidget):
     def _on_project_loaded(self) -> None:
         self.system = None
         self._set_results([], [])
-        self.apply_view_settings(self.session.project.views.get(self.view_id, {}))
+        self.apply_view_settings(self.saved_view_settings())
 
     def _on_system(self, system) -> None:
         self.system = system
@@ -273,10 +250,6 @@ class EquilibriaView(QWidget):
             self._timer.start()
         elif self.system is not None and not getattr(self.system, "autonomous", True):
             self.summary.setText("The equations depend on time: no equilibria in the usual sense")
-
-    def _auto_find(self) -> None:
-        if self._auto_ok():
-            self.find()
 
     def _failed(self, message: str) -> None:
         if self._owns_shared_list():

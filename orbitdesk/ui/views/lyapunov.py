@@ -8,12 +8,13 @@ import math
 
 import numpy as np
 import pyqtgraph as pg
-from PySide6.QtCore import QEvent, Qt, QTimer, Signal
-from PySide6.QtWidgets import (QAbstractItemView, QCheckBox, QHBoxLayout, QHeaderView, QLabel, QPushButton,
-                               QSplitter, QTableWidget, QTableWidgetItem, QVBoxLayout, QWidget)
+from PySide6.QtCore import Qt, Signal
+from PySide6.QtWidgets import (QAbstractItemView, QHeaderView, QLabel, QSplitter, QTableWidget, QTableWidgetItem,
+                               QVBoxLayout, QWidget)
 
 from . import muted_colour, series_colour, style_plot
 from ..plot_style import JobStrip, NumberBox, hint_label, mono_font, number_text, plain_axes
+from .common import SessionView, auto_timer, check_box, control_row, push_button, quiet, set_quietly
 
 FLOW_LENGTH, FLOW_TRANSIENT = 500.0, 50.0
 MAP_LENGTH, MAP_TRANSIENT = 20000, 1000
@@ -21,16 +22,14 @@ AUTO_DELAY_MS = 400
 NEAR_ZERO = 0.01  # |exponent| below this (relative to the largest magnitude) is read as zero
 
 
-class LyapunovView(QWidget):
+class LyapunovView(SessionView):
     view_id = "lyapunov"
     title = "Lyapunov exponents"
 
     resultChanged = Signal(object)  # the LyapunovResult shown (None when cleared)
 
     def __init__(self, session, parent=None):
-        super().__init__(parent)
-        self.session = session
-        self.system = None
+        super().__init__(session, parent)
         self.result = None
         self._computed_with = None
         self._lengths = {"flow": [FLOW_LENGTH, FLOW_TRANSIENT], "map": [MAP_LENGTH, MAP_TRANSIENT]}
@@ -41,9 +40,8 @@ class LyapunovView(QWidget):
         self.transient = NumberBox(FLOW_TRANSIENT, 0.0, 1e12, step=10.0)
         self.transient.setToolTip("The first part of the run, left out of the averages so the orbit can settle")
         self.length_label, self.transient_label = QLabel("Run for"), QLabel("settle")
-        self.auto_step = QCheckBox("Auto step")
-        self.auto_step.setChecked(True)
-        self.auto_step.setToolTip("Choose the fixed integration step from the model's fastest rate (flows)")
+        self.auto_step = check_box("Auto step", "Choose the fixed integration step from the model's fastest rate "
+                                   "(flows)", True)
         self.dt = NumberBox(0.01, 1e-7, 10.0, ratio=2.0)
         self.dt.setToolTip("Fixed Runge-Kutta step of the tangent equations")
         self.dt.setEnabled(False)
@@ -51,12 +49,9 @@ class LyapunovView(QWidget):
         for w in (self.length, self.transient, self.dt):
             w.valueChanged.connect(self._on_controls)
         self.auto_step.toggled.connect(self._on_controls)
-        self.compute_button = QPushButton("Compute")
-        self.compute_button.setToolTip("Compute the exponents with the current values")
-        self.compute_button.clicked.connect(self.compute)
-        self.auto = QCheckBox("Automatic")
-        self.auto.setToolTip("Compute again whenever the model or its values change")
-        self.auto.toggled.connect(lambda on: on and self._schedule())
+        self.compute_button = push_button("Compute", "Compute the exponents with the current values", self.compute)
+        self.auto = check_box("Automatic", "Compute again whenever the model or its values change", False,
+                              lambda on: on and self._schedule())
         self.strip = JobStrip(session, "Following the tangent vectors")
 
         self.table = QTableWidget(0, 2)
@@ -100,37 +95,16 @@ class LyapunovView(QWidget):
         left.setMinimumWidth(180)
         self.splitter.setChildrenCollapsible(False)
 
-        row = QHBoxLayout()
-        row.setContentsMargins(0, 0, 0, 0)
-        row.setSpacing(4)
-        row.addWidget(self.length_label)
-        row.addWidget(self.length)
-        row.addSpacing(4)
-        row.addWidget(self.transient_label)
-        row.addWidget(self.transient)
-        row.addSpacing(8)
-        row.addWidget(self.auto_step)
-        row.addWidget(self.dt)
-        row.addSpacing(8)
-        row.addWidget(self.compute_button)
-        row.addWidget(self.auto)
-        row.addStretch(1)
-        layout = QVBoxLayout(self)
-        layout.setContentsMargins(6, 6, 6, 6)
-        layout.setSpacing(4)
+        row = control_row(self.length_label, self.length, 4, self.transient_label, self.transient, 8,
+                          self.auto_step, self.dt, 8, self.compute_button, self.auto)
+        layout = self.main_layout()
         layout.addLayout(row)
         layout.addWidget(self.splitter, 1)
         layout.addWidget(self.strip)
 
-        self._timer = QTimer(self, singleShot=True, interval=AUTO_DELAY_MS)
-        self._timer.timeout.connect(self._auto_compute)
+        self._timer = auto_timer(self, AUTO_DELAY_MS, self.compute, self.auto.isChecked)
         self._restyle()
-        session.systemChanged.connect(self._on_system)
-        session.valuesChanged.connect(self._on_values)
-        session.projectLoaded.connect(self._on_project_loaded)
-        self._on_project_loaded()
-        if session.system is not None:
-            self._on_system(session.system)
+        self.follow_session(values=self._on_values)
 
     # ------------------------------------------------------------ view protocol
     def view_settings(self) -> dict:
@@ -152,14 +126,10 @@ class LyapunovView(QWidget):
         if isinstance(maps, dict) and num(maps.get("steps")) and num(maps.get("transient")):
             self._lengths["map"] = [int(maps["steps"]), int(maps["transient"])]
         dt = d.get("dt")
-        self.auto_step.blockSignals(True)
-        self.auto_step.setChecked(not num(dt))
-        self.auto_step.blockSignals(False)
+        set_quietly(self.auto_step, not num(dt))
         self.dt.setEnabled(num(dt))
         if num(dt) and dt > 0:
-            self.dt.blockSignals(True)
-            self.dt.setValue(float(dt))
-            self.dt.blockSignals(False)
+            set_quietly(self.dt, float(dt))
         self.auto.setChecked(bool(d.get("auto", False)))
         self._show_lengths()
 
@@ -190,7 +160,7 @@ class LyapunovView(QWidget):
         else:
             kwargs = {"t_end": settings.t_start + float(length) + float(transient), "transient": float(transient),
                       "dt": dt}
-        self._pending = self._fingerprint()
+        self._pending = self.values_fingerprint()
 
         def job(cancel, report):
             return lyapunov_spectrum(s, p, u0, settings=settings, cancel=cancel, progress=report, **kwargs)
@@ -201,7 +171,7 @@ class LyapunovView(QWidget):
     def _on_project_loaded(self) -> None:
         self.system = None
         self._clear()
-        self.apply_view_settings(self.session.project.views.get(self.view_id, {}))
+        self.apply_view_settings(self.saved_view_settings())
 
     def _on_system(self, system) -> None:
         self._remember_lengths()
@@ -212,7 +182,7 @@ class LyapunovView(QWidget):
         self._schedule()
 
     def _on_values(self) -> None:
-        if self.result is not None and self._fingerprint() != self._computed_with:
+        if self.result is not None and self.values_fingerprint() != self._computed_with:
             self.notes.setText("Values changed since these exponents were computed"
                                + ("" if self.auto.isChecked() else ": press Compute to update them"))
         self._schedule()
@@ -225,23 +195,14 @@ class LyapunovView(QWidget):
         if self.auto.isChecked() and self.system is not None:
             self._timer.start()
 
-    def _auto_compute(self) -> None:
-        if self.auto.isChecked():
-            self.compute()
-
-    def _fingerprint(self):
-        return (tuple(sorted(self.session.params.items())), tuple(sorted(self.session.initial.items())),
-                id(self.system))
-
     def _remember_lengths(self) -> None:
         self._lengths[self._kind] = [float(self.length.value()), float(self.transient.value())]
 
     def _show_lengths(self) -> None:
         length, transient = self._lengths[self._kind]
-        for box, v in ((self.length, length), (self.transient, transient)):
-            box.blockSignals(True)
-            box.setValue(v)
-            box.blockSignals(False)
+        with quiet(self.length, self.transient):
+            self.length.setValue(length)
+            self.transient.setValue(transient)
         is_map = self._kind == "map"
         self.length_label.setText("Iterate" if is_map else "Run for")
         self.transient_label.setText("times, skip" if is_map else "settle")
@@ -317,11 +278,6 @@ class LyapunovView(QWidget):
             self.curves.append(curve)
         self.plot.enableAutoRange()
         self.plot.autoRange(padding=0.05)
-
-    def changeEvent(self, event) -> None:
-        super().changeEvent(event)
-        if event.type() == QEvent.Type.PaletteChange:
-            self._restyle()
 
     def _restyle(self) -> None:
         style_plot(self.plot_widget, self)

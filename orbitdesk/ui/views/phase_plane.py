@@ -5,11 +5,13 @@ from __future__ import annotations
 
 import numpy as np
 import pyqtgraph as pg
-from PySide6.QtCore import QEvent, QPointF, Qt, QTimer
+from PySide6.QtCore import Qt, QTimer
 from PySide6.QtGui import QColor
-from PySide6.QtWidgets import QCheckBox, QComboBox, QHBoxLayout, QLabel, QToolButton, QVBoxLayout, QWidget
+from PySide6.QtWidgets import QLabel, QToolButton
 
 from . import empty_hint, muted_colour, series_colour, style_plot
+from .common import (SessionView, check_box, clicked_point, combo_box, control_row, coordinate_names,
+                     equilibrium_coordinates, equilibrium_fields, fill_combo, runs_job, values_at_time)
 
 FIELD_POINTS = 21          # arrows along the longer side of the view
 MAX_SEEDS = 40
@@ -43,21 +45,12 @@ def arrow_segments(X, Y, U, V, cell_w, cell_h, length=0.42, head=0.32):
     return xs, ys
 
 
-def _equilibrium_fields(item):
-    """(state dict, stable, kind) from an Equilibrium-like object or a dict."""
-    get = (lambda k, d=None: item.get(k, d)) if isinstance(item, dict) else (lambda k, d=None: getattr(item, k, d))
-    state = get("state") or get("point") or {}
-    return dict(state), get("stable"), str(get("kind", "") or "")
-
-
-class PhasePlaneView(QWidget):
+class PhasePlaneView(SessionView):
     view_id = "phase_plane"
     title = "Phase plane"
 
     def __init__(self, session, parent=None):
-        super().__init__(parent)
-        self.session = session
-        self.system = None
+        super().__init__(session, parent)
         self.trajectory = None
         self.seeds: list[dict] = []        # {"u0": [...], "both": bool}
         self.seed_runs: list[tuple] = []   # (forward Trajectory, backward Trajectory | None) per seed
@@ -66,22 +59,14 @@ class PhasePlaneView(QWidget):
         self._wanted_axes: tuple | None = None
         self._fitted = False
 
-        self.x_combo = QComboBox()
-        self.x_combo.setToolTip("Quantity on the horizontal axis")
-        self.y_combo = QComboBox()
-        self.y_combo.setToolTip("Quantity on the vertical axis")
-        for combo in (self.x_combo, self.y_combo):
-            combo.setSizeAdjustPolicy(QComboBox.SizeAdjustPolicy.AdjustToContents)
-            combo.currentIndexChanged.connect(self._on_axes)
-        self.arrows = QCheckBox("Arrows")
-        self.arrows.setChecked(True)
-        self.arrows.setToolTip("Direction of the flow on a grid (two-state flows)")
-        self.arrows.toggled.connect(self._update_field)
-        self.nullclines_box = QCheckBox("Nullclines")
-        self.nullclines_box.setToolTip("Curves where one state's rate of change is zero (two-state flows)")
-        self.nullclines_box.toggled.connect(self._request_nullclines)
-        self.backward = QCheckBox("Backward too")
-        self.backward.setToolTip("Clicked trajectories also run backward in time (Shift+click does this once)")
+        self.x_combo = combo_box("Quantity on the horizontal axis", slot=self._on_axes)
+        self.y_combo = combo_box("Quantity on the vertical axis", slot=self._on_axes)
+        self.arrows = check_box("Arrows", "Direction of the flow on a grid (two-state flows)", True,
+                                self._update_field)
+        self.nullclines_box = check_box("Nullclines", "Curves where one state's rate of change is zero "
+                                        "(two-state flows)", False, self._request_nullclines)
+        self.backward = check_box("Backward too", "Clicked trajectories also run backward in time "
+                                  "(Shift+click does this once)")
         self.clear_button = QToolButton(text="Clear")
         self.clear_button.setToolTip("Remove the trajectories started by clicking")
         self.clear_button.clicked.connect(self.clear_seeds)
@@ -121,41 +106,17 @@ class PhasePlaneView(QWidget):
         self._seed_timer = QTimer(self, singleShot=True, interval=0)
         self._seed_timer.timeout.connect(self._rerun_seeds)
 
-        bar = QHBoxLayout()
-        bar.setContentsMargins(0, 0, 0, 0)
-        bar.setSpacing(6)
-        bar.addWidget(QLabel("Horizontal"))
-        bar.addWidget(self.x_combo)
-        bar.addSpacing(6)
-        bar.addWidget(QLabel("Vertical"))
-        bar.addWidget(self.y_combo)
-        bar.addSpacing(10)
-        bar.addWidget(self.arrows)
-        bar.addWidget(self.nullclines_box)
-        bar.addWidget(self.backward)
-        bar.addStretch(1)
-        bar.addWidget(self.hint)
-        bar.addWidget(self.clear_button)
-        bar.addWidget(self.fit_button)
-        layout = QVBoxLayout(self)
-        layout.setContentsMargins(6, 6, 6, 6)
-        layout.setSpacing(4)
+        bar = control_row("Horizontal", self.x_combo, 6, "Vertical", self.y_combo, 10, self.arrows,
+                          self.nullclines_box, self.backward, None, self.hint, self.clear_button, self.fit_button,
+                          spacing=6, stretch=False)
+        layout = self.main_layout()
         layout.addLayout(bar)
         layout.addWidget(self.plot_widget, 1)
 
         self._restyle()
-        session.systemChanged.connect(self._on_system)
-        session.trajectoryChanged.connect(self._on_trajectory)
-        session.valuesChanged.connect(self._on_values)
-        session.timeCursorChanged.connect(self._update_cursor)
-        session.projectLoaded.connect(self._on_project_loaded)
         session.equilibriaChanged.connect(self.set_equilibria)
         session.startsRequested.connect(self._on_starts_requested)
-        self._on_project_loaded()
-        if session.system is not None:
-            self._on_system(session.system)
-        if session.trajectory is not None:
-            self._on_trajectory(session.trajectory)
+        self.follow_session(values=self._on_values, trajectory=self._on_trajectory, cursor=self._update_cursor)
         if session.equilibria:
             self.set_equilibria(session.equilibria)
 
@@ -277,14 +238,14 @@ class PhasePlaneView(QWidget):
         self.seeds, self.seed_runs = [], []
         self.equilibria = []
         self._fitted = False
-        self.apply_view_settings(self.session.project.views.get(self.view_id, {}))
+        self.apply_view_settings(self.saved_view_settings())
         self._draw_seeds()
         self._draw_equilibria()
 
     def _on_system(self, system) -> None:
         old = self.system
         self.system = system
-        names = list(system.states) + list(system.derived_names) + [system.time_name]
+        names = coordinate_names(system)
         if old is not None and list(old.states) != list(system.states):
             self.seeds, self.seed_runs = [], []
         self.equilibria = []
@@ -292,10 +253,7 @@ class PhasePlaneView(QWidget):
             want = self._wanted_axes or (self.x_name, self.y_name)
             self._names = names
             for combo in (self.x_combo, self.y_combo):
-                combo.blockSignals(True)
-                combo.clear()
-                combo.addItems(names)
-                combo.blockSignals(False)
+                fill_combo(combo, names)
             states = system.states
             default = (states[0], states[1]) if len(states) > 1 else (system.time_name, states[0])
             if want[0] in names and want[1] in names and want[0] != want[1]:
@@ -348,7 +306,7 @@ class PhasePlaneView(QWidget):
             self.fit_view()
 
     def _user_range_set(self) -> bool:
-        return bool(self.session.project.views.get(self.view_id, {}).get("range")) and not self._fitted
+        return bool(self.saved_view_settings().get("range")) and not self._fitted
 
     def _xy(self, traj, x_name=None, y_name=None):
         x_name, y_name = x_name or self.x_name, y_name or self.y_name
@@ -386,42 +344,26 @@ class PhasePlaneView(QWidget):
         x, y = self._xy(traj)
         if x is None:
             return
-        time = traj.time
-        if time[-1] >= time[0]:
-            k = int(np.clip(np.searchsorted(time, t), 0, time.size - 1))
-        else:
-            k = int(np.clip(np.searchsorted(-time, -t), 0, time.size - 1))
-        if 0 < k and time[k] != time[k - 1] and traj.kind != "map":
-            w = (t - time[k - 1]) / (time[k] - time[k - 1])
-            w = float(np.clip(w, 0, 1))
-            px, py = x[k - 1] + w * (x[k] - x[k - 1]), y[k - 1] + w * (y[k] - y[k - 1])
-        else:
-            px, py = x[k], y[k]
+        px, py = values_at_time(traj.time, t, traj.kind == "map", x, y)
         accent = series_colour(1, self)
         self.cursor_marker.setData([px], [py], brush=pg.mkBrush(self._base()), pen=pg.mkPen(accent, width=2.5))
 
     # ------------------------------------------------------------ clicked trajectories
     def _seed_job(self, seeds):
-        system, p = self.system, self.session.param_vector()
-        fwd = self.session.run_settings(samples=min(self.session.solver.samples, SEED_SAMPLES))
-        span = fwd.t_end - fwd.t_start
-        back = self.session.run_settings(samples=fwd.samples, t_end=fwd.t_start - span, transient=0.0)
+        """A job giving (forward, backward or None) runs per seed; maps run forward only."""
+        flow = self.system.kind == "flow"
+        starts = []
+        for seed in seeds:
+            starts.append((seed["u0"], False))
+            if seed["both"] and flow:
+                starts.append((seed["u0"], True))
+        job = runs_job(self.session, self.system, starts, SEED_SAMPLES)
 
-        def job(cancel, report):
-            from orbitdesk.core.engine import simulate
+        def paired(cancel, report):
+            runs = iter(job(cancel, report))
+            return [(next(runs), next(runs) if seed["both"] and flow else None) for seed in seeds]
 
-            runs = []
-            for k, seed in enumerate(seeds):
-                part = report.part(k / len(seeds), 1 / len(seeds))
-                u0 = np.array(seed["u0"], dtype=float)
-                f = simulate(system, fwd, u0, p, cancel=cancel, progress=part)
-                b = None
-                if seed["both"] and system.kind == "flow":
-                    b = simulate(system, back, u0, p, cancel=cancel, progress=part)
-                runs.append((f, b))
-            return runs
-
-        return job
+        return paired
 
     def _seed_done(self, index, seed, run) -> None:
         if index < len(self.seeds) and self.seeds[index] is seed:
@@ -472,13 +414,9 @@ class PhasePlaneView(QWidget):
             item.setVisible(False)
 
     def _on_click(self, event) -> None:
-        if event.button() != Qt.MouseButton.LeftButton or event.double():
+        point = clicked_point(self.plot, event)
+        if point is None:
             return
-        vb = self.plot.getViewBox()
-        pos = event.scenePos()
-        if not vb.sceneBoundingRect().contains(pos):
-            return
-        point = vb.mapSceneToView(pos)
         both = True if event.modifiers() & Qt.KeyboardModifier.ShiftModifier else None
         if self.start_trajectory(point.x(), point.y(), both=both):
             event.accept()
@@ -570,18 +508,13 @@ class PhasePlaneView(QWidget):
         text = self._text()
         base = self._base()
         spots = []
+        p = self.session.param_vector()
         for item in self.equilibria:
-            state, stable, kind = _equilibrium_fields(item)
-            try:
-                u = np.array([float(state[name]) for name in s.states])
-            except (KeyError, TypeError, ValueError):
+            _state, stable, kind = equilibrium_fields(item)
+            found = equilibrium_coordinates(s, item, (self.x_name, self.y_name), p)
+            if found is None:
                 continue
-            point = {**dict(zip(s.states, u)), s.time_name: 0.0}
-            if self.x_name not in point or self.y_name not in point:
-                derived = s.derived_values(np.zeros(1), u.reshape(-1, 1), self.session.param_vector())
-                point.update({k: float(v[0]) for k, v in derived.items()})
-            if self.x_name not in point or self.y_name not in point:
-                continue
+            u, xy = found
             if "saddle" in kind:
                 symbol, brush, pen = "x", pg.mkBrush(text), pg.mkPen(base, width=0.5)
             elif stable is True:
@@ -591,7 +524,7 @@ class PhasePlaneView(QWidget):
             else:
                 symbol, brush, pen = "s", pg.mkBrush(base), pg.mkPen(text, width=1.5)
             where = ", ".join(f"{n} = {v:.4g}" for n, v in zip(s.states, u))
-            spots.append({"pos": (point[self.x_name], point[self.y_name]), "symbol": symbol, "brush": brush,
+            spots.append({"pos": tuple(xy), "symbol": symbol, "brush": brush,
                           "pen": pen, "data": f"{kind or 'equilibrium'}\n{where}"})
         self.eq_item.setData(spots)
 
@@ -605,11 +538,6 @@ class PhasePlaneView(QWidget):
 
     def _text(self) -> QColor:
         return self.palette().color(self.palette().ColorRole.Text)
-
-    def changeEvent(self, event) -> None:
-        super().changeEvent(event)
-        if event.type() == QEvent.Type.PaletteChange:
-            self._restyle()
 
     def _restyle(self) -> None:
         style_plot(self.plot_widget, self)

@@ -12,10 +12,11 @@ import math
 import numpy as np
 from PySide6.QtCore import QEvent, QTimer, Signal
 from PySide6.QtGui import QColor, QFont, QImage, QPainter, QSurfaceFormat, QVector3D
-from PySide6.QtWidgets import (QCheckBox, QComboBox, QHBoxLayout, QLabel, QSpinBox, QToolButton, QVBoxLayout,
-                               QWidget)
+from PySide6.QtWidgets import QSpinBox, QToolButton
 
 from . import SERIES_COLOURS
+from .common import (SessionView, check_box, combo_box, control_row, coordinate_names, equilibrium_coordinates,
+                     apply_numbers, fill_combo, is_number, run_time_name, runs_job, set_quietly, values_at_time)
 from ..plot_style import (SCENE_BACKGROUND, SCENE_GRID, SCENE_MARKER, SCENE_TEXT, JobStrip, NumberBox, number_text,
                           rgba, time_colours)
 
@@ -117,7 +118,7 @@ def _solid_rgba(colour, alpha: float, n: int) -> np.ndarray:
     return np.tile(np.array(rgba(colour, alpha), dtype=np.float32), (max(n, 0), 1))
 
 
-class PhaseSpace3DView(QWidget):
+class PhaseSpace3DView(SessionView):
     view_id = "phase_space_3d"
     title = "Phase space 3D"
 
@@ -125,13 +126,11 @@ class PhaseSpace3DView(QWidget):
     addedChanged = Signal()   # added trajectories arrived (or were cleared)
 
     def __init__(self, session, parent=None):
-        super().__init__(parent)
+        super().__init__(session, parent)
         import pyqtgraph.opengl as gl  # imported with this view only
 
         self._gl = gl
         self._Line, self._Points = _gl_item_classes(gl)
-        self.session = session
-        self.system = None
         self.trajectory = None
         self.added: list[dict] = []       # {"u0": [...], "backward": bool}
         self.added_runs: list = []        # Trajectory per added start (None until it arrives)
@@ -144,22 +143,13 @@ class PhaseSpace3DView(QWidget):
         self._default_camera = None
 
         # ---- controls
-        self.axis_combos = []
-        for axis in "XYZ":
-            combo = QComboBox()
-            combo.setToolTip(f"Quantity on the {axis} axis")
-            combo.setSizeAdjustPolicy(QComboBox.SizeAdjustPolicy.AdjustToContents)
-            combo.currentIndexChanged.connect(self._on_axes)
-            self.axis_combos.append(combo)
-        self.colour_combo = QComboBox()
-        self.colour_combo.addItems(["by time", "by trajectory"])
-        self.colour_combo.setToolTip("Colour lines along time (early blue, late ember) or one colour per line; "
-                                     "nearby starts always get one colour each")
-        self.colour_combo.currentIndexChanged.connect(lambda _i: self._redraw_all())
-        self.spread_box = QCheckBox("Nearby starts")
-        self.spread_box.setToolTip("Run trajectories from starts scattered in a small ball around the initial "
-                                   "state, to see neighbouring orbits tangle and separate")
-        self.spread_box.toggled.connect(self._on_spread_toggled)
+        self.axis_combos = [combo_box(f"Quantity on the {axis} axis", slot=self._on_axes) for axis in "XYZ"]
+        self.colour_combo = combo_box("Colour lines along time (early blue, late ember) or one colour per line; "
+                                      "nearby starts always get one colour each", ["by time", "by trajectory"],
+                                      lambda _i: self._redraw_all())
+        self.spread_box = check_box("Nearby starts", "Run trajectories from starts scattered in a small ball "
+                                    "around the initial state, to see neighbouring orbits tangle and separate",
+                                    False, self._on_spread_toggled)
         self.spread_count = QSpinBox()
         self.spread_count.setRange(2, MAX_SPREAD)
         self.spread_count.setValue(12)
@@ -203,34 +193,12 @@ class PhaseSpace3DView(QWidget):
         self.eq_item.setDepthValue(10)
         self.cursor_item.setDepthValue(20)
 
-        bar = QHBoxLayout()
-        bar.setContentsMargins(0, 0, 0, 0)
-        bar.setSpacing(4)
-        for axis, combo in zip("XYZ", self.axis_combos):
-            bar.addWidget(QLabel(axis))
-            bar.addWidget(combo)
-            bar.addSpacing(4)
-        bar.addSpacing(6)
-        bar.addWidget(QLabel("Colour"))
-        bar.addWidget(self.colour_combo)
-        bar.addStretch(1)
-        bar.addWidget(self.fit_button)
-        spread_bar = QHBoxLayout()
-        spread_bar.setContentsMargins(0, 0, 0, 0)
-        spread_bar.setSpacing(4)
-        spread_bar.addWidget(self.spread_box)
-        spread_bar.addWidget(self.spread_count)
-        spread_bar.addSpacing(4)
-        spread_bar.addWidget(QLabel("within"))
-        spread_bar.addWidget(self.spread_radius)
-        spread_bar.addSpacing(8)
-        spread_bar.addWidget(self.keep_button)
-        spread_bar.addWidget(self.clear_button)
-        spread_bar.addSpacing(8)
+        axes = [part for axis, combo in zip("XYZ", self.axis_combos) for part in (axis, combo, 4)]
+        bar = control_row(*axes, 6, "Colour", self.colour_combo, None, self.fit_button, stretch=False)
+        spread_bar = control_row(self.spread_box, self.spread_count, 4, "within", self.spread_radius, 8,
+                                 self.keep_button, self.clear_button, 8, stretch=False)
         spread_bar.addWidget(self.strip, 1)
-        layout = QVBoxLayout(self)
-        layout.setContentsMargins(6, 6, 6, 6)
-        layout.setSpacing(4)
+        layout = self.main_layout()
         layout.addLayout(bar)
         layout.addLayout(spread_bar)
         layout.addWidget(self.glview, 1)
@@ -238,19 +206,10 @@ class PhaseSpace3DView(QWidget):
         self._rerun_timer = QTimer(self, singleShot=True, interval=0)
         self._rerun_timer.timeout.connect(self._rerun_extra)
         self.reset_camera()
-        session.systemChanged.connect(self._on_system)
-        session.trajectoryChanged.connect(self._on_trajectory)
-        session.valuesChanged.connect(self._on_values)
-        session.timeCursorChanged.connect(self._update_cursor)
-        session.projectLoaded.connect(self._on_project_loaded)
         session.equilibriaChanged.connect(self.set_equilibria)
         session.equilibriumSelected.connect(self._on_equilibrium_selected)
         session.startsRequested.connect(self._on_starts_requested)
-        self._on_project_loaded()
-        if session.system is not None:
-            self._on_system(session.system)
-        if session.trajectory is not None:
-            self._on_trajectory(session.trajectory)
+        self.follow_session(values=self._on_values, trajectory=self._on_trajectory, cursor=self._update_cursor)
         if session.equilibria:
             self.set_equilibria(session.equilibria)
             self._on_equilibrium_selected(session.selected_equilibrium)
@@ -274,15 +233,8 @@ class PhaseSpace3DView(QWidget):
             self.colour_combo.setCurrentIndex(COLOUR_MODES.index(d["colour"]))
         spread = d.get("spread")
         if isinstance(spread, dict):
-            for widget, key, kind in ((self.spread_count, "count", int), (self.spread_radius, "radius", float)):
-                value = spread.get(key)
-                if isinstance(value, (int, float)) and not isinstance(value, bool):
-                    widget.blockSignals(True)
-                    widget.setValue(kind(value))
-                    widget.blockSignals(False)
-            self.spread_box.blockSignals(True)
-            self.spread_box.setChecked(bool(spread.get("on", False)))
-            self.spread_box.blockSignals(False)
+            apply_numbers(spread, ((self.spread_count, "count", int), (self.spread_radius, "radius", float)))
+            set_quietly(self.spread_box, spread.get("on", False))
         starts = d.get("starts")
         if isinstance(starts, list):
             self.added = [{"u0": [float(v) for v in s["u0"]], "backward": bool(s.get("backward", False))}
@@ -302,8 +254,7 @@ class PhaseSpace3DView(QWidget):
         xyz = self._coords(traj)
         if xyz is None:
             return None
-        time_name = "n" if traj.kind == "map" else "t"
-        return [time_name] + self.axes(), np.column_stack([traj.time, xyz])
+        return [run_time_name(traj)] + self.axes(), np.column_stack([traj.time, xyz])
 
     # ------------------------------------------------------------ public
     def axes(self) -> list[str]:
@@ -329,15 +280,13 @@ class PhaseSpace3DView(QWidget):
     def set_camera(self, cam: dict) -> None:
         def num(key, lo, hi):
             v = cam.get(key)
-            if isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v):
-                return float(min(max(v, lo), hi))
-            return None
+            return float(min(max(v, lo), hi)) if is_number(v) else None
 
         distance, elevation, azimuth = num("distance", 0.01, 1e6), num("elevation", -90, 90), num("azimuth", -1e6, 1e6)
         center = cam.get("center")
         pos = None
         if (isinstance(center, list) and len(center) == 3
-                and all(isinstance(v, (int, float)) and math.isfinite(v) for v in center)):
+                and all(is_number(v) for v in center)):
             pos = QVector3D(*[float(v) for v in center])
         self.glview.setCameraPosition(pos=pos, distance=distance, elevation=elevation, azimuth=azimuth)
         fov = num("fov", 5, 120)
@@ -433,7 +382,7 @@ class PhaseSpace3DView(QWidget):
         self._names = []
         self.added, self.added_runs, self.spread_runs = [], [], []
         self.equilibria, self.selected_equilibrium = [], None
-        self.apply_view_settings(self.session.project.views.get(self.view_id, {}))
+        self.apply_view_settings(self.saved_view_settings())
         self._redraw_all()
 
     def _on_system(self, system) -> None:
@@ -442,15 +391,12 @@ class PhaseSpace3DView(QWidget):
         if old is not None and list(old.states) != list(system.states):
             self.added, self.added_runs = [], []
         self.equilibria, self.selected_equilibrium = [], None
-        names = list(system.states) + list(system.derived_names) + [system.time_name]
+        names = coordinate_names(system)
         if names != self._names:
             want = self._wanted_axes or tuple(self.axes())
             self._names = names
             for combo in self.axis_combos:
-                combo.blockSignals(True)
-                combo.clear()
-                combo.addItems(names)
-                combo.blockSignals(False)
+                fill_combo(combo, names)
             states = list(system.states)
             default = (states + [n for n in names if n not in states])[:3]
             if len(set(want)) == 3 and all(w in names for w in want):
@@ -474,32 +420,9 @@ class PhaseSpace3DView(QWidget):
         self._redraw_all()
 
     # ------------------------------------------------------------ added and nearby runs
-    def _run_settings(self, backward: bool = False):
-        fwd = self.session.run_settings(samples=min(self.session.solver.samples or EXTRA_SAMPLES, EXTRA_SAMPLES))
-        if not backward:
-            return fwd
-        span = fwd.t_end - fwd.t_start
-        return self.session.run_settings(samples=fwd.samples, t_end=fwd.t_start - span, transient=0.0)
-
     def _runs_job(self, starts):
         """A job running one engine run per start: starts are (u0, backward) pairs."""
-        system, p = self.system, self.session.param_vector()
-        settings = {False: self._run_settings(False), True: self._run_settings(True)}
-
-        def job(cancel, report):
-            from orbitdesk.core.engine import simulate
-
-            runs = []
-            for k, (u0, backward) in enumerate(starts):
-                part = report.part(k / len(starts), 1 / len(starts))
-                if backward and system.kind == "map":
-                    runs.append(None)
-                    continue
-                runs.append(simulate(system, settings[bool(backward)], np.asarray(u0, dtype=float), p,
-                                     cancel=cancel, progress=part))
-            return runs
-
-        return job
+        return runs_job(self.session, self.system, starts, EXTRA_SAMPLES)
 
     def _schedule_extra(self) -> None:
         if self.added or self.spread_box.isChecked():
@@ -708,18 +631,10 @@ class PhaseSpace3DView(QWidget):
         names = self.axes()
         p = self.session.param_vector()
         for eq in self.equilibria:
-            state = getattr(eq, "state", None) or (eq.get("state") if isinstance(eq, dict) else None) or {}
-            try:
-                u = np.array([float(state[n]) for n in s.states])
-            except (KeyError, TypeError, ValueError):
+            found = equilibrium_coordinates(s, eq, names, p)
+            if found is None:
                 continue
-            point = {**dict(zip(s.states, u)), s.time_name: 0.0}
-            if any(n not in point for n in names):
-                derived = s.derived_values(np.zeros(1), u.reshape(-1, 1), p)
-                point.update({k: float(v[0]) for k, v in derived.items()})
-            if any(n not in point for n in names):
-                continue
-            pts.append([point[n] for n in names])
+            pts.append(found[1])
             chosen = eq is self.selected_equilibrium
             sizes.append(15.0 if chosen else 9.0)
             colours.append(rgba(QColor(SERIES_COLOURS[1][1]), 1.0) if chosen else rgba(SCENE_MARKER, 0.9))
@@ -738,14 +653,7 @@ class PhaseSpace3DView(QWidget):
         if xyz is None or not np.isfinite(t):
             self.cursor_item.setVisible(False)
             return
-        time = traj.time
-        forward = time[-1] >= time[0]
-        k = int(np.clip(np.searchsorted(time if forward else -time, t if forward else -t), 0, time.size - 1))
-        if 0 < k and time[k] != time[k - 1] and traj.kind != "map":
-            w = float(np.clip((t - time[k - 1]) / (time[k] - time[k - 1]), 0, 1))
-            point = xyz[k - 1] + w * (xyz[k] - xyz[k - 1])
-        else:
-            point = xyz[k]
+        (point,) = values_at_time(traj.time, t, traj.kind == "map", xyz)
         if not np.all(np.isfinite(point)):
             self.cursor_item.setVisible(False)
             return

@@ -11,42 +11,29 @@ import math
 
 import numpy as np
 import pyqtgraph as pg
-from PySide6.QtCore import QEvent, Qt, QTimer, Signal
-from PySide6.QtWidgets import (QCheckBox, QComboBox, QHBoxLayout, QLabel, QPushButton, QSizePolicy, QSpinBox,
-                               QSplitter, QStackedWidget, QVBoxLayout, QWidget)
+from PySide6.QtCore import Qt, Signal
+from PySide6.QtWidgets import QSpinBox, QSplitter, QStackedWidget, QVBoxLayout, QWidget
 
 from . import muted_colour, series_colour, style_plot
-from ..plot_style import JobStrip, NumberBox, hint_label, number_text, orbit_middle, plain_axes
+from ..plot_style import JobStrip, NumberBox, hint_label, number_text, plain_axes
+from .common import (SessionView, apply_numbers, auto_timer, check_box, combo_box, control_row, detected_period,
+                     direction_combo, fill_combo, follow_forcing_period, push_button, put_through_orbit, quiet,
+                     row_widget, select_text, set_quietly, status_label)
 
 PLANE, STROBE = "plane", "strobe"
 DIRECTIONS = ("up", "down", "both")
-DIRECTION_LABELS = ("upward", "downward", "both ways")
 AUTO_DELAY_MS = 300
 MAX_COUNT = 100_000
 
 
-def detected_period(system, p):
-    """The forcing period the core reads off the model (cos/sin of omega*t), or None."""
-    try:
-        from orbitdesk.core.cycles import detect_forcing_period
-    except ImportError:
-        return None
-    try:
-        return detect_forcing_period(system, p)
-    except (TypeError, ValueError, ArithmeticError):
-        return None
-
-
-class SectionsView(QWidget):
+class SectionsView(SessionView):
     view_id = "sections"
     title = "Poincaré section"
 
     sectionChanged = Signal(object)  # the SectionResult shown (None when cleared)
 
     def __init__(self, session, parent=None):
-        super().__init__(parent)
-        self.session = session
-        self.system = None
+        super().__init__(session, parent)
         self.result = None            # SectionResult of the last computation (flows)
         self._columns: dict[str, np.ndarray] = {}   # name -> values at the section points
         self._names: list[str] = []
@@ -56,48 +43,24 @@ class SectionsView(QWidget):
         self._computed_once = False
 
         # ---- what to section
-        self.kind = QComboBox()
-        self.kind.addItems(["Plane", "Every period"])
-        self.kind.setToolTip("Section by a plane COORDINATE = VALUE, or sample the state once every forcing period")
-        self.kind.currentIndexChanged.connect(self._on_kind)
-        self.coordinate = QComboBox()
-        self.coordinate.setToolTip("The coordinate that defines the plane (a state or a derived quantity)")
-        self.coordinate.setSizeAdjustPolicy(QComboBox.SizeAdjustPolicy.AdjustToContents)
-        self.coordinate.currentIndexChanged.connect(self._on_coordinate)
+        self.kind = combo_box("Section by a plane COORDINATE = VALUE, or sample the state once every forcing "
+                              "period", ["Plane", "Every period"], self._on_kind)
+        self.coordinate = combo_box("The coordinate that defines the plane (a state or a derived quantity)",
+                                    slot=self._on_coordinate)
         self.value = NumberBox(0.0, -1e12, 1e12, step=0.1)
         self.value.setToolTip("Where the plane lies")
         self.value.valueChanged.connect(self._on_value_edited)
-        self.direction = QComboBox()
-        self.direction.addItems(DIRECTION_LABELS)
-        self.direction.setToolTip("Count crossings with the coordinate rising, falling, or both")
-        self.direction.currentIndexChanged.connect(self._changed)
+        self.direction = direction_combo("Count crossings with the coordinate rising, falling, or both",
+                                         self._changed)
         self.period = NumberBox(2 * math.pi, 1e-9, 1e9, ratio=None, step=0.1)
         self.period.setToolTip("Sampling period: one point every this much time")
         self.period.valueChanged.connect(self._on_period_edited)
         self.period_note = hint_label()
         self.period_note.setWordWrap(False)
 
-        plane_row = QWidget()
-        pl = QHBoxLayout(plane_row)
-        pl.setContentsMargins(0, 0, 0, 0)
-        pl.setSpacing(4)
-        pl.addWidget(self.coordinate)
-        pl.addWidget(QLabel("="))
-        pl.addWidget(self.value)
-        pl.addWidget(QLabel("crossed"))
-        pl.addWidget(self.direction)
-        pl.addStretch(1)
-        strobe_row = QWidget()
-        sl = QHBoxLayout(strobe_row)
-        sl.setContentsMargins(0, 0, 0, 0)
-        sl.setSpacing(4)
-        sl.addWidget(QLabel("period"))
-        sl.addWidget(self.period)
-        sl.addWidget(self.period_note)
-        sl.addStretch(1)
         self.kind_stack = QStackedWidget()
-        self.kind_stack.addWidget(plane_row)
-        self.kind_stack.addWidget(strobe_row)
+        self.kind_stack.addWidget(row_widget(self.coordinate, "=", self.value, "crossed", self.direction))
+        self.kind_stack.addWidget(row_widget("period", self.period, self.period_note))
 
         self.count = QSpinBox()
         self.count.setRange(2, MAX_COUNT)
@@ -108,22 +71,17 @@ class SectionsView(QWidget):
         self.transient = NumberBox(100.0, 0.0, 1e9, step=10.0)
         self.transient.setToolTip("Time to let the orbit settle before points are collected")
         self.transient.valueChanged.connect(self._changed)
-        self.compute_button = QPushButton("Compute")
-        self.compute_button.setToolTip("Collect the section points with the current values")
-        self.compute_button.clicked.connect(self.compute)
-        self.auto = QCheckBox("Automatic")
-        self.auto.setChecked(True)
-        self.auto.setToolTip("Compute again when the model, its values or these settings change")
+        self.compute_button = push_button("Compute", "Collect the section points with the current values",
+                                          self.compute)
+        self.auto = check_box("Automatic", "Compute again when the model, its values or these settings change",
+                              True)
         self.strip = JobStrip(session, "Collecting points")
 
         # ---- plots
-        self.h_combo, self.v_combo, self.r_combo = QComboBox(), QComboBox(), QComboBox()
-        self.h_combo.setToolTip("Horizontal coordinate of the section points")
-        self.v_combo.setToolTip("Vertical coordinate of the section points")
-        self.r_combo.setToolTip("Coordinate whose successive values make the return map")
-        for combo in (self.h_combo, self.v_combo, self.r_combo):
-            combo.setSizeAdjustPolicy(QComboBox.SizeAdjustPolicy.AdjustToContents)
-            combo.currentIndexChanged.connect(lambda _i: self._draw())
+        self.h_combo = combo_box("Horizontal coordinate of the section points", slot=lambda _i: self._draw())
+        self.v_combo = combo_box("Vertical coordinate of the section points", slot=lambda _i: self._draw())
+        self.r_combo = combo_box("Coordinate whose successive values make the return map",
+                                 slot=lambda _i: self._draw())
         self.plot_widget = pg.PlotWidget()
         self.section_plot = self.plot_widget.getPlotItem()
         self.section_points = pg.ScatterPlotItem(size=3, pen=None)
@@ -136,79 +94,41 @@ class SectionsView(QWidget):
         self.return_plot.addItem(self.return_points)
         self.plot_widget.setToolTip("Section points")
         self.return_widget.setToolTip("Return map: each value against the next; the dashed line is x_{k+1} = x_k")
-        self.info = hint_label()
-        self.info.setWordWrap(False)
-        self.info.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
+        self.info = status_label()
 
         left = QWidget()
         ll = QVBoxLayout(left)
         ll.setContentsMargins(0, 0, 0, 0)
         ll.setSpacing(2)
-        lh = QHBoxLayout()
-        lh.setSpacing(4)
-        lh.addWidget(QLabel("Section points:"))
-        lh.addWidget(self.h_combo)
-        lh.addWidget(QLabel("against"))
-        lh.addWidget(self.v_combo)
-        lh.addStretch(1)
-        ll.addLayout(lh)
+        ll.addLayout(control_row("Section points:", self.h_combo, "against", self.v_combo))
         ll.addWidget(self.plot_widget, 1)
         right = QWidget()
         rl = QVBoxLayout(right)
         rl.setContentsMargins(0, 0, 0, 0)
         rl.setSpacing(2)
-        rh = QHBoxLayout()
-        rh.setSpacing(4)
-        rh.addWidget(QLabel("Return map of"))
-        rh.addWidget(self.r_combo)
-        rh.addStretch(1)
-        rl.addLayout(rh)
+        rl.addLayout(control_row("Return map of", self.r_combo))
         rl.addWidget(self.return_widget, 1)
         self.splitter = QSplitter(Qt.Orientation.Horizontal)
         self.splitter.addWidget(left)
         self.splitter.addWidget(right)
         self.splitter.setChildrenCollapsible(False)
 
-        row1 = QHBoxLayout()
-        row1.setContentsMargins(0, 0, 0, 0)
-        row1.setSpacing(6)
-        row1.addWidget(self.kind)
+        row1 = control_row(self.kind, spacing=6, stretch=False)
         row1.addWidget(self.kind_stack, 1)
-        row2 = QHBoxLayout()
-        row2.setContentsMargins(0, 0, 0, 0)
-        row2.setSpacing(4)
-        row2.addWidget(QLabel("Points"))
-        row2.addWidget(self.count)
-        row2.addSpacing(8)
-        row2.addWidget(QLabel("after a transient of"))
-        row2.addWidget(self.transient)
-        row2.addSpacing(8)
-        row2.addWidget(self.compute_button)
-        row2.addWidget(self.auto)
-        row2.addStretch(1)
-        layout = QVBoxLayout(self)
-        layout.setContentsMargins(6, 6, 6, 6)
-        layout.setSpacing(4)
+        row2 = control_row("Points", self.count, 8, "after a transient of", self.transient, 8, self.compute_button,
+                           self.auto)
+        layout = self.main_layout()
         layout.addLayout(row1)
         layout.addLayout(row2)
         layout.addWidget(self.splitter, 1)
-        bottom = QHBoxLayout()
-        bottom.setContentsMargins(0, 0, 0, 0)
+        bottom = control_row(spacing=6, stretch=False)
         bottom.addWidget(self.info, 1)
         bottom.addWidget(self.strip, 1)
         layout.addLayout(bottom)
 
-        self._timer = QTimer(self, singleShot=True, interval=AUTO_DELAY_MS)
-        self._timer.timeout.connect(self._auto_compute)
+        self._timer = auto_timer(self, AUTO_DELAY_MS, self.compute, self.auto.isChecked)
         self._restyle()
-        session.systemChanged.connect(self._on_system)
-        session.valuesChanged.connect(self._on_values)
-        session.settingsChanged.connect(self._on_values)
-        session.trajectoryChanged.connect(self._on_trajectory)
-        session.projectLoaded.connect(self._on_project_loaded)
-        self._on_project_loaded()
-        if session.system is not None:
-            self._on_system(session.system)
+        self.follow_session(values=self._on_values, settings=self._on_values, trajectory=self._on_trajectory)
 
     # ------------------------------------------------------------ view protocol
     def view_settings(self) -> dict:
@@ -223,24 +143,14 @@ class SectionsView(QWidget):
         if not isinstance(d, dict):
             return
         self._wanted = dict(d)
-        widgets = ((self.value, "value", float), (self.period, "period", float), (self.count, "count", int),
-                   (self.transient, "transient", float))
-        for widget, key, kind in widgets:
-            v = d.get(key)
-            if isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v):
-                widget.blockSignals(True)
-                widget.setValue(kind(v))
-                widget.blockSignals(False)
+        apply_numbers(d, ((self.value, "value", float), (self.period, "period", float), (self.count, "count", int),
+                          (self.transient, "transient", float)))
         self._user_value = isinstance(d.get("value"), (int, float))
         self._user_period = isinstance(d.get("period"), (int, float))
         if d.get("direction") in DIRECTIONS:
-            self.direction.blockSignals(True)
-            self.direction.setCurrentIndex(DIRECTIONS.index(d["direction"]))
-            self.direction.blockSignals(False)
+            set_quietly(self.direction, DIRECTIONS.index(d["direction"]))
         if d.get("kind") in (PLANE, STROBE):
-            self.kind.blockSignals(True)
-            self.kind.setCurrentIndex(0 if d["kind"] == PLANE else 1)
-            self.kind.blockSignals(False)
+            set_quietly(self.kind, 0 if d["kind"] == PLANE else 1)
             self.kind_stack.setCurrentIndex(self.kind.currentIndex())
         self.auto.setChecked(bool(d.get("auto", True)))
         if self._names:
@@ -258,29 +168,24 @@ class SectionsView(QWidget):
         return PLANE if self.kind.currentIndex() == 0 else STROBE
 
     def set_plane(self, coordinate: str, value: float, direction: str = "up") -> None:
-        self._block_all(True)
-        i = self.coordinate.findText(coordinate)
-        if i >= 0:
-            self.coordinate.setCurrentIndex(i)
-        self.value.setValue(float(value))
-        self.direction.setCurrentIndex(DIRECTIONS.index(direction))
-        self.kind.setCurrentIndex(0)
-        self.kind_stack.setCurrentIndex(0)
-        self._block_all(False)
+        with quiet(*self._settings_widgets()):
+            select_text(self.coordinate, coordinate)
+            self.value.setValue(float(value))
+            self.direction.setCurrentIndex(DIRECTIONS.index(direction))
+            self.kind.setCurrentIndex(0)
+            self.kind_stack.setCurrentIndex(0)
         self._user_value = True
 
     def set_strobe(self, period: float) -> None:
-        self._block_all(True)
-        self.period.setValue(float(period))
-        self.kind.setCurrentIndex(1)
-        self.kind_stack.setCurrentIndex(1)
-        self._block_all(False)
+        with quiet(*self._settings_widgets()):
+            self.period.setValue(float(period))
+            self.kind.setCurrentIndex(1)
+            self.kind_stack.setCurrentIndex(1)
         self._user_period = True
 
     def set_view_axes(self, h: str, v: str, return_of: str | None = None) -> None:
         for combo, name in ((self.h_combo, h), (self.v_combo, v), (self.r_combo, return_of)):
-            if name is not None and combo.findText(name) >= 0:
-                combo.setCurrentIndex(combo.findText(name))
+            select_text(combo, name)
 
     def compute(self) -> None:
         """Collect the section points with the current system, values and settings (in the background)."""
@@ -320,7 +225,7 @@ class SectionsView(QWidget):
         self._names, self._columns = [], {}
         self._computed_once = False
         self._user_value = self._user_period = False
-        self.apply_view_settings(self.session.project.views.get(self.view_id, {}))
+        self.apply_view_settings(self.saved_view_settings())
         self._draw()
 
     def _on_system(self, system) -> None:
@@ -334,25 +239,21 @@ class SectionsView(QWidget):
             keep = (self.coordinate.currentText(), self.h_combo.currentText(), self.v_combo.currentText(),
                     self.r_combo.currentText())
             self._names = names
-            self._block_all(True)
-            for combo, items in ((self.coordinate, plane_names), (self.h_combo, names), (self.v_combo, names),
-                                 (self.r_combo, plane_names)):
-                combo.clear()
-                combo.addItems(items)
-            states = list(system.states)
-            self.coordinate.setCurrentIndex(max(0, plane_names.index(keep[0]) if keep[0] in plane_names else 0))
-            h = keep[1] if keep[1] in names and keep[1] != system.time_name else states[0]
-            v = keep[2] if keep[2] in names and keep[2] != h else (states[1] if len(states) > 1 else system.time_name)
-            self.h_combo.setCurrentIndex(names.index(h))
-            self.v_combo.setCurrentIndex(names.index(v))
-            self.r_combo.setCurrentIndex(plane_names.index(keep[3]) if keep[3] in plane_names else 0)
-            self._block_all(False)
+            with quiet(*self._settings_widgets()):
+                for combo, items in ((self.coordinate, plane_names), (self.h_combo, names), (self.v_combo, names),
+                                     (self.r_combo, plane_names)):
+                    fill_combo(combo, items)
+                states = list(system.states)
+                self.coordinate.setCurrentIndex(plane_names.index(keep[0]) if keep[0] in plane_names else 0)
+                h = keep[1] if keep[1] in names and keep[1] != system.time_name else states[0]
+                v = keep[2] if keep[2] in names and keep[2] != h else (states[1] if len(states) > 1
+                                                                         else system.time_name)
+                self.h_combo.setCurrentIndex(names.index(h))
+                self.v_combo.setCurrentIndex(names.index(v))
+                self.r_combo.setCurrentIndex(plane_names.index(keep[3]) if keep[3] in plane_names else 0)
             self._apply_wanted_names()
-        period = None if is_map else detected_period(system, self.session.param_vector())
+        period = follow_forcing_period(self.period, system, self.session.param_vector(), self._user_period)
         if period is not None and not self._user_period:
-            self.period.blockSignals(True)
-            self.period.setValue(period)
-            self.period.blockSignals(False)
             if not (self._wanted and self._wanted.get("kind") in (PLANE, STROBE)):
                 self.kind.setCurrentIndex(1)
         self._wanted = None
@@ -369,12 +270,8 @@ class SectionsView(QWidget):
 
     def _on_values(self) -> None:
         if self.system is not None and self.system.kind != "map":
-            period = detected_period(self.system, self.session.param_vector())
-            if period is not None and not self._user_period:
-                self.period.blockSignals(True)
-                self.period.setValue(period)
-                self.period.blockSignals(False)
-            self._update_period_note(period)
+            self._update_period_note(follow_forcing_period(self.period, self.system, self.session.param_vector(),
+                                                           self._user_period))
         self._schedule()
 
     def _on_trajectory(self, trajectory) -> None:
@@ -384,23 +281,19 @@ class SectionsView(QWidget):
             self._default_plane_value()
 
     # ------------------------------------------------------------ settings changes
-    def _block_all(self, on: bool) -> None:
-        for w in (self.kind, self.coordinate, self.value, self.direction, self.period, self.h_combo,
-                  self.v_combo, self.r_combo):
-            w.blockSignals(on)
+    def _settings_widgets(self) -> tuple:
+        return (self.kind, self.coordinate, self.value, self.direction, self.period, self.h_combo, self.v_combo,
+                self.r_combo)
 
     def _apply_wanted_names(self) -> None:
         d = self._wanted or {}
-        self._block_all(True)
-        for combo, key in ((self.coordinate, "coordinate"), (self.r_combo, "return_of")):
-            if isinstance(d.get(key), str) and combo.findText(d[key]) >= 0:
-                combo.setCurrentIndex(combo.findText(d[key]))
-        axes = d.get("axes")
-        if isinstance(axes, list) and len(axes) == 2:
-            for combo, name in zip((self.h_combo, self.v_combo), axes):
-                if isinstance(name, str) and combo.findText(name) >= 0:
-                    combo.setCurrentIndex(combo.findText(name))
-        self._block_all(False)
+        with quiet(*self._settings_widgets()):
+            select_text(self.coordinate, d.get("coordinate"))
+            select_text(self.r_combo, d.get("return_of"))
+            axes = d.get("axes")
+            if isinstance(axes, list) and len(axes) == 2:
+                for combo, name in zip((self.h_combo, self.v_combo), axes):
+                    select_text(combo, name)
 
     def _on_kind(self, index: int) -> None:
         self.kind_stack.setCurrentIndex(index)
@@ -425,12 +318,7 @@ class SectionsView(QWidget):
         self._schedule(force=True)
 
     def _default_plane_value(self) -> None:
-        """Put the plane through the middle of the current orbit (its mean), so that the orbit crosses it."""
-        middle = orbit_middle(self.session.trajectory, self.coordinate.currentText())
-        if not self._user_value and middle is not None:
-            self.value.blockSignals(True)
-            self.value.setValue(middle)
-            self.value.blockSignals(False)
+        put_through_orbit(self.value, self.session.trajectory, self.coordinate.currentText(), self._user_value)
 
     def _update_period_note(self, period) -> None:
         if period is None:
@@ -446,10 +334,6 @@ class SectionsView(QWidget):
             return
         if force or self._computed_once:
             self._timer.start()
-
-    def _auto_compute(self) -> None:
-        if self.auto.isChecked():
-            self.compute()
 
     # ------------------------------------------------------------ results
     def _adopt(self, result) -> None:
@@ -519,11 +403,6 @@ class SectionsView(QWidget):
         if refit:
             self.section_plot.autoRange(padding=0.06)
             self.return_plot.autoRange(padding=0.06)
-
-    def changeEvent(self, event) -> None:
-        super().changeEvent(event)
-        if event.type() == QEvent.Type.PaletteChange:
-            self._restyle()
 
     def _restyle(self) -> None:
         style_plot(self.plot_widget, self)

@@ -11,34 +11,40 @@ import math
 
 import numpy as np
 import pyqtgraph as pg
-from PySide6.QtCore import QEvent, Qt, Signal
+from PySide6.QtCore import Qt, Signal
 from PySide6.QtGui import QColor
-from PySide6.QtWidgets import (QCheckBox, QComboBox, QHBoxLayout, QLabel, QPushButton, QSizePolicy, QSpinBox,
-                               QStackedWidget, QVBoxLayout, QWidget)
+from PySide6.QtWidgets import QLabel, QSpinBox, QStackedWidget, QWidget
 
 from . import muted_colour, series_colour, style_plot
-from ..plot_style import JobStrip, NumberBox, hint_label, number_text, orbit_middle, plain_axes
-from .sections import detected_period
+from ..plot_style import JobStrip, NumberBox, number_text, plain_axes
+from .common import (SessionView, apply_numbers, check_box, clicked_point, combo_box, control_row,
+                     direction_combo, fill_combo, follow_forcing_period, is_number, push_button, put_through_orbit,
+                     quiet, row_widget, select_text, status_label)
 
 PLANE, STROBE, MAXIMA, ITERATE = "plane", "strobe", "maxima", "iterate"
 FLOW_MODES = (MAXIMA, STROBE, PLANE)
 MODE_LABELS = {MAXIMA: "its maxima", STROBE: "once every period", PLANE: "plane crossings", ITERATE: "every iterate"}
 DIRECTIONS = (1, -1, 0)
-DIRECTION_LABELS = ("upward", "downward", "both ways")
 MAX_VALUES = 5000
 MAX_SAMPLES = 5000
 
 
-class SweepView(QWidget):
+def diagram_points(result):
+    """The orbit diagram as points: parameter value and observed value of every finite sample."""
+    K = result.samples.shape[1]
+    y = result.samples.ravel()
+    ok = np.isfinite(y)
+    return np.repeat(result.values, K)[ok], y[ok], ok
+
+
+class SweepView(SessionView):
     view_id = "sweep"
     title = "Parameter sweep"
 
     sweepChanged = Signal(object)  # the SweepResult shown (None when cleared)
 
     def __init__(self, session, parent=None):
-        super().__init__(parent)
-        self.session = session
-        self.system = None
+        super().__init__(session, parent)
         self.result = None
         self._computed_with = None  # the other values the shown diagram was computed with
         self._wanted: dict | None = None
@@ -47,10 +53,7 @@ class SweepView(QWidget):
         self._range_for: str | None = None  # parameter whose range the from/to fields hold
 
         # ---- what to sweep
-        self.parameter = QComboBox()
-        self.parameter.setToolTip("The parameter to sweep")
-        self.parameter.setSizeAdjustPolicy(QComboBox.SizeAdjustPolicy.AdjustToContents)
-        self.parameter.currentIndexChanged.connect(self._on_parameter)
+        self.parameter = combo_box("The parameter to sweep", slot=self._on_parameter)
         self.lo = NumberBox(0.0, -1e12, 1e12, step=0.1)
         self.lo.setToolTip("First value of the parameter")
         self.hi = NumberBox(1.0, -1e12, 1e12, step=0.1)
@@ -61,49 +64,24 @@ class SweepView(QWidget):
         self.count.setRange(2, MAX_VALUES)
         self.count.setValue(300)
         self.count.setToolTip("How many parameter values, evenly spaced")
-        self.observe = QComboBox()
-        self.observe.setToolTip("The quantity plotted for each parameter value")
-        self.observe.setSizeAdjustPolicy(QComboBox.SizeAdjustPolicy.AdjustToContents)
-        self.observe.currentIndexChanged.connect(self._on_observe)
+        self.observe = combo_box("The quantity plotted for each parameter value", slot=self._on_observe)
 
         # ---- how to sample
-        self.mode = QComboBox()
-        self.mode.setToolTip("Which points of each orbit are plotted: local maxima of the observed state, the state "
-                             "once every forcing period, or crossings of a plane; a map plots its iterates")
-        self.mode.currentIndexChanged.connect(self._on_mode)
-        self.plane_state = QComboBox()
-        self.plane_state.setToolTip("The state that defines the plane")
-        self.plane_state.currentIndexChanged.connect(self._on_plane_state)
+        self.mode = combo_box("Which points of each orbit are plotted: local maxima of the observed state, the "
+                              "state once every forcing period, or crossings of a plane; a map plots its iterates",
+                              slot=self._on_mode)
+        self.plane_state = combo_box("The state that defines the plane", slot=self._on_plane_state)
         self.plane_value = NumberBox(0.0, -1e12, 1e12, step=0.1)
         self.plane_value.setToolTip("Where the plane lies")
         self.plane_value.valueChanged.connect(lambda _v: setattr(self, "_user_plane_value", True))
-        self.direction = QComboBox()
-        self.direction.addItems(DIRECTION_LABELS)
-        self.direction.setToolTip("Crossings with the state rising, falling, or both")
+        self.direction = direction_combo("Crossings with the state rising, falling, or both")
         self.period = NumberBox(2 * math.pi, 1e-9, 1e9, step=0.1)
         self.period.setToolTip("Sampling period")
         self.period.valueChanged.connect(lambda _v: setattr(self, "_user_period", True))
-        plane_row = QWidget()
-        pl = QHBoxLayout(plane_row)
-        pl.setContentsMargins(0, 0, 0, 0)
-        pl.setSpacing(4)
-        pl.addWidget(QLabel("of"))
-        pl.addWidget(self.plane_state)
-        pl.addWidget(QLabel("="))
-        pl.addWidget(self.plane_value)
-        pl.addWidget(self.direction)
-        pl.addStretch(1)
-        strobe_row = QWidget()
-        sl = QHBoxLayout(strobe_row)
-        sl.setContentsMargins(0, 0, 0, 0)
-        sl.setSpacing(4)
-        sl.addWidget(QLabel("period"))
-        sl.addWidget(self.period)
-        sl.addStretch(1)
         self.mode_stack = QStackedWidget()
         self.mode_stack.addWidget(QWidget())
-        self.mode_stack.addWidget(strobe_row)
-        self.mode_stack.addWidget(plane_row)
+        self.mode_stack.addWidget(row_widget("period", self.period))
+        self.mode_stack.addWidget(row_widget("of", self.plane_state, "=", self.plane_value, self.direction))
 
         self.transient = NumberBox(200.0, 0.0, 1e9, step=10.0)
         self.transient.setToolTip("Time (iterations for maps) each orbit settles before it is sampled")
@@ -115,15 +93,11 @@ class SweepView(QWidget):
         self.dt.setToolTip("Fixed time step of the sweep's Runge-Kutta integration")
         self.duration = NumberBox(400.0, 1e-3, 1e9, step=50.0)
         self.duration.setToolTip("Longest time spent collecting the points of one value (maxima and planes)")
-        self.lyapunov = QCheckBox("Lyapunov exponent")
-        self.lyapunov.setToolTip("Also estimate the largest Lyapunov exponent at every value (slower)")
-        self.run_button = QPushButton("Run")
-        self.run_button.setToolTip("Compute the orbit diagram")
-        self.run_button.clicked.connect(self.run)
+        self.lyapunov = check_box("Lyapunov exponent", "Also estimate the largest Lyapunov exponent at every value "
+                                  "(slower)")
+        self.run_button = push_button("Run", "Compute the orbit diagram", self.run)
         self.strip = JobStrip(session, "Sweeping")
-        self.info = hint_label()
-        self.info.setWordWrap(False)
-        self.info.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
+        self.info = status_label()
 
         # ---- plots
         self.plot_widget = pg.PlotWidget()
@@ -149,37 +123,19 @@ class SweepView(QWidget):
         self.lyap_widget.setMaximumHeight(170)
         self.lyap_widget.hide()
 
-        def row():
-            r = QHBoxLayout()
-            r.setContentsMargins(0, 0, 0, 0)
-            r.setSpacing(4)
-            return r
-
-        row1 = row()
-        for w in (QLabel("Sweep"), self.parameter, QLabel("from"), self.lo, QLabel("to"), self.hi, QLabel("in"),
-                  self.count, QLabel("steps")):
-            row1.addWidget(w)
-        row1.addStretch(1)
-        row1.addWidget(self.run_button)
-        row2 = row()
-        for w in (QLabel("Plot"), self.observe, QLabel("at"), self.mode, self.mode_stack):
-            row2.addWidget(w)
-        row2.addStretch(1)
-        row2.addWidget(self.lyapunov)
-        row3 = row()
+        row1 = control_row("Sweep", self.parameter, "from", self.lo, "to", self.hi, "in", self.count, "steps", None,
+                           self.run_button, stretch=False)
+        row2 = control_row("Plot", self.observe, "at", self.mode, self.mode_stack, None, self.lyapunov,
+                           stretch=False)
         self.transient_label = QLabel("Settle for")
         self.dt_label = QLabel("step")
         self.duration_label = QLabel("collect for at most")
-        for w in (self.transient_label, self.transient, QLabel("keep"), self.samples, QLabel("points,"),
-                  self.dt_label, self.dt, self.duration_label, self.duration):
-            row3.addWidget(w)
-        row3.addStretch(1)
-        bottom = row()
+        row3 = control_row(self.transient_label, self.transient, "keep", self.samples, "points,", self.dt_label,
+                           self.dt, self.duration_label, self.duration)
+        bottom = control_row(stretch=False)
         bottom.addWidget(self.info, 1)
         bottom.addWidget(self.strip, 1)
-        layout = QVBoxLayout(self)
-        layout.setContentsMargins(6, 6, 6, 6)
-        layout.setSpacing(4)
+        layout = self.main_layout()
         layout.addLayout(row1)
         layout.addLayout(row2)
         layout.addLayout(row3)
@@ -188,12 +144,7 @@ class SweepView(QWidget):
         layout.addLayout(bottom)
 
         self._restyle()
-        session.systemChanged.connect(self._on_system)
-        session.valuesChanged.connect(self._on_values)
-        session.projectLoaded.connect(self._on_project_loaded)
-        self._on_project_loaded()
-        if session.system is not None:
-            self._on_system(session.system)
+        self.follow_session(values=self._on_values)
 
     # ------------------------------------------------------------ view protocol
     def view_settings(self) -> dict:
@@ -210,14 +161,9 @@ class SweepView(QWidget):
         if not isinstance(d, dict):
             return
         self._wanted = dict(d)
-        for widget, key, kind in ((self.count, "count", int), (self.period, "period", float),
-                                  (self.transient, "transient", float), (self.samples, "samples", int),
-                                  (self.dt, "dt", float), (self.duration, "duration", float)):
-            v = d.get(key)
-            if isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v):
-                widget.blockSignals(True)
-                widget.setValue(kind(v))
-                widget.blockSignals(False)
+        apply_numbers(d, ((self.count, "count", int), (self.period, "period", float),
+                          (self.transient, "transient", float), (self.samples, "samples", int),
+                          (self.dt, "dt", float), (self.duration, "duration", float)))
         self._user_period = isinstance(d.get("period"), (int, float))
         self.lyapunov.setChecked(bool(d.get("lyapunov", False)))
         if self.system is not None:
@@ -228,15 +174,11 @@ class SweepView(QWidget):
         r = self.result
         if r is None:
             return None
-        M, K = r.samples.shape
-        x = np.repeat(r.values, K)
-        y = r.samples.ravel()
-        ok = np.isfinite(y)
-        header = [r.parameter, r.observed]
-        cols = [x[ok], y[ok]]
+        x, y, ok = diagram_points(r)
+        header, cols = [r.parameter, r.observed], [x, y]
         if r.lyapunov is not None:
             header.append("largest Lyapunov exponent")
-            cols.append(np.repeat(r.lyapunov, K)[ok])
+            cols.append(np.repeat(r.lyapunov, r.samples.shape[1])[ok])
         return header, np.column_stack(cols)
 
     # ------------------------------------------------------------ public
@@ -263,25 +205,21 @@ class SweepView(QWidget):
         return s
 
     def set_range(self, parameter: str, lo: float, hi: float, count: int | None = None) -> None:
-        i = self.parameter.findText(parameter)
-        if i >= 0:
-            self.parameter.setCurrentIndex(i)
+        select_text(self.parameter, parameter)
         self.lo.setValue(float(lo))
         self.hi.setValue(float(hi))
         if count is not None:
             self.count.setValue(int(count))
 
     def set_sampling(self, mode: str, observe: str | None = None, **kw) -> None:
-        if observe is not None and self.observe.findText(observe) >= 0:
-            self.observe.setCurrentIndex(self.observe.findText(observe))
+        select_text(self.observe, observe)
         if mode in FLOW_MODES and self.system is not None and self.system.kind != "map":
             self.mode.setCurrentIndex(FLOW_MODES.index(mode))
         if "period" in kw:
             self.period.setValue(float(kw["period"]))
         if "plane" in kw:
             state, value = kw["plane"]
-            if self.plane_state.findText(state) >= 0:
-                self.plane_state.setCurrentIndex(self.plane_state.findText(state))
+            select_text(self.plane_state, state)
             self.plane_value.setValue(float(value))
         if "direction" in kw:
             self.direction.setCurrentIndex(DIRECTIONS.index(kw["direction"]))
@@ -305,7 +243,7 @@ class SweepView(QWidget):
             return
         values = np.linspace(lo, hi, count)
         u0, p = self.session.initial_vector(), self.session.param_vector()
-        self._pending = self._fingerprint(name)
+        self._pending = self.values_fingerprint(skip=name)
 
         def job(cancel, report):
             return sweep(s, name, values, settings, u0=u0, p=p, cancel=cancel, progress=report)
@@ -323,7 +261,7 @@ class SweepView(QWidget):
         self._clear_result()
         self._range_for = None
         self._user_period = self._user_plane_value = False
-        self.apply_view_settings(self.session.project.views.get(self.view_id, {}))
+        self.apply_view_settings(self.saved_view_settings())
 
     def _on_system(self, system) -> None:
         old = self.system
@@ -333,34 +271,22 @@ class SweepView(QWidget):
         is_map = system.kind == "map"
         keep = (self.parameter.currentText(), self.observe.currentText(), self.plane_state.currentText(),
                 self.sampling_mode() if old is not None else None)
-        for combo in (self.parameter, self.observe, self.plane_state, self.mode):
-            combo.blockSignals(True)
-        self.parameter.clear()
-        self.parameter.addItems(list(system.parameters))
-        self.observe.clear()
-        self.observe.addItems(list(system.states) + list(system.derived_names))
-        self.plane_state.clear()
-        self.plane_state.addItems(list(system.states))
-        self.mode.clear()
-        self.mode.addItems([MODE_LABELS[ITERATE]] if is_map else [MODE_LABELS[m] for m in FLOW_MODES])
-        ranged = [n for n in system.parameters if None not in self.session.param_range(n)]
-        if ranged and not (keep[0] and self.parameter.findText(keep[0]) >= 0):
-            self.parameter.setCurrentIndex(self.parameter.findText(ranged[0]))  # one the model gives a range
-        for combo, name in ((self.parameter, keep[0]), (self.observe, keep[1]), (self.plane_state, keep[2])):
-            if name and combo.findText(name) >= 0:
-                combo.setCurrentIndex(combo.findText(name))
-        period = None if is_map else detected_period(system, self.session.param_vector())
-        if not is_map:
-            if keep[3] in FLOW_MODES:
-                self.mode.setCurrentIndex(FLOW_MODES.index(keep[3]))
-            else:
-                self.mode.setCurrentIndex(FLOW_MODES.index(STROBE if period is not None else MAXIMA))
-        for combo in (self.parameter, self.observe, self.plane_state, self.mode):
-            combo.blockSignals(False)
-        if period is not None and not self._user_period:
-            self.period.blockSignals(True)
-            self.period.setValue(period)
-            self.period.blockSignals(False)
+        with quiet(self.parameter, self.observe, self.plane_state, self.mode):
+            fill_combo(self.parameter, system.parameters)
+            fill_combo(self.observe, list(system.states) + list(system.derived_names))
+            fill_combo(self.plane_state, system.states)
+            fill_combo(self.mode, [MODE_LABELS[ITERATE]] if is_map else [MODE_LABELS[m] for m in FLOW_MODES])
+            ranged = [n for n in system.parameters if None not in self.session.param_range(n)]
+            if ranged and not (keep[0] and self.parameter.findText(keep[0]) >= 0):
+                select_text(self.parameter, ranged[0])  # one the model gives a range
+            for combo, name in ((self.parameter, keep[0]), (self.observe, keep[1]), (self.plane_state, keep[2])):
+                select_text(combo, name)
+            period = follow_forcing_period(self.period, system, self.session.param_vector(), self._user_period)
+            if not is_map:
+                if keep[3] in FLOW_MODES:
+                    self.mode.setCurrentIndex(FLOW_MODES.index(keep[3]))
+                else:
+                    self.mode.setCurrentIndex(FLOW_MODES.index(STROBE if period is not None else MAXIMA))
         for w in (self.dt, self.dt_label, self.duration, self.duration_label):
             w.setVisible(not is_map)
         self.transient_label.setText("Skip the first" if is_map else "Settle for")
@@ -380,36 +306,28 @@ class SweepView(QWidget):
         d, self._wanted = self._wanted, None
         if not d or self.system is None:
             return
-        if isinstance(d.get("parameter"), str) and self.parameter.findText(d["parameter"]) >= 0:
-            self.parameter.blockSignals(True)
-            self.parameter.setCurrentIndex(self.parameter.findText(d["parameter"]))
-            self.parameter.blockSignals(False)
-        if all(isinstance(d.get(k), (int, float)) and not isinstance(d.get(k), bool) for k in ("from", "to")):
+        with quiet(self.parameter):
+            select_text(self.parameter, d.get("parameter"))
+        if is_number(d.get("from")) and is_number(d.get("to")):
             self.lo.setValue(float(d["from"]))
             self.hi.setValue(float(d["to"]))
             self._range_for = self.parameter.currentText()
-        if isinstance(d.get("observe"), str) and self.observe.findText(d["observe"]) >= 0:
-            self.observe.setCurrentIndex(self.observe.findText(d["observe"]))
+        select_text(self.observe, d.get("observe"))
         if d.get("mode") in FLOW_MODES and self.system.kind != "map":
             self.mode.setCurrentIndex(FLOW_MODES.index(d["mode"]))
         plane = d.get("plane")
         if isinstance(plane, dict):
-            if isinstance(plane.get("state"), str) and self.plane_state.findText(plane["state"]) >= 0:
-                self.plane_state.setCurrentIndex(self.plane_state.findText(plane["state"]))
-            if isinstance(plane.get("value"), (int, float)) and not isinstance(plane.get("value"), bool):
+            select_text(self.plane_state, plane.get("state"))
+            if is_number(plane.get("value")):
                 self.plane_value.setValue(float(plane["value"]))
             if plane.get("direction") in DIRECTIONS:
                 self.direction.setCurrentIndex(DIRECTIONS.index(plane["direction"]))
 
     def _on_values(self) -> None:
         self._update_marker()
-        if self.system is not None and self.system.kind != "map" and not self._user_period:
-            period = detected_period(self.system, self.session.param_vector())
-            if period is not None:
-                self.period.blockSignals(True)
-                self.period.setValue(period)
-                self.period.blockSignals(False)
-        if self.result is not None and self._fingerprint(self.result.parameter) != self._computed_with:
+        if not self._user_period:
+            follow_forcing_period(self.period, self.system, self.session.param_vector(), False)
+        if self.result is not None and self.values_fingerprint(skip=self.result.parameter) != self._computed_with:
             self.info.setText("Other values changed since this diagram was computed: press Run to update it")
 
     # ------------------------------------------------------------ controls
@@ -450,16 +368,8 @@ class SweepView(QWidget):
         self._default_plane_value()
 
     def _default_plane_value(self) -> None:
-        middle = orbit_middle(self.session.trajectory, self.plane_state.currentText())
-        if not self._user_plane_value and middle is not None:
-            self.plane_value.blockSignals(True)
-            self.plane_value.setValue(middle)
-            self.plane_value.blockSignals(False)
-
-    def _fingerprint(self, swept: str):
-        """The values a diagram over ``swept`` depends on: every other parameter and the initial state."""
-        return (tuple((n, v) for n, v in sorted(self.session.params.items()) if n != swept),
-                tuple(sorted(self.session.initial.items())), id(self.system))
+        put_through_orbit(self.plane_value, self.session.trajectory, self.plane_state.currentText(),
+                          self._user_plane_value)
 
     # ------------------------------------------------------------ the diagram
     def _clear_result(self) -> None:
@@ -481,13 +391,11 @@ class SweepView(QWidget):
         if result is None:
             return
         M, K = result.samples.shape
-        x = np.repeat(result.values, K)
-        y = result.samples.ravel()
-        ok = np.isfinite(y)
+        x, y, _ok = diagram_points(result)
         colour = QColor(series_colour(0, self))
         colour.setAlpha(170)
-        size = 2.0 if ok.sum() > 20_000 else 2.5
-        self.points.setData(x[ok], y[ok], brush=pg.mkBrush(colour), size=size, pen=None)
+        size = 2.0 if x.size > 20_000 else 2.5
+        self.points.setData(x, y, brush=pg.mkBrush(colour), size=size, pen=None)
         self.plot.setLabel("left", result.observed)
         self.plot.setLabel("bottom", result.parameter)
         if result.lyapunov is not None:
@@ -531,24 +439,15 @@ class SweepView(QWidget):
             self.session.set_param(name, float(x))
 
     def _on_click(self, event) -> None:
-        if event.button() != Qt.MouseButton.LeftButton or event.double():
-            return
-        vb = self.plot.getViewBox()
-        pos = event.scenePos()
-        if not vb.sceneBoundingRect().contains(pos):
-            return
-        self._set_parameter(vb.mapSceneToView(pos).x())
-        event.accept()
+        point = clicked_point(self.plot, event)
+        if point is not None:
+            self._set_parameter(point.x())
+            event.accept()
 
     def _on_marker_dragged(self, line) -> None:
         self._set_parameter(line.value())
 
     # ------------------------------------------------------------ look
-    def changeEvent(self, event) -> None:
-        super().changeEvent(event)
-        if event.type() == QEvent.Type.PaletteChange:
-            self._restyle()
-
     def _restyle(self) -> None:
         for w in (self.plot_widget, self.lyap_widget):
             style_plot(w, self)

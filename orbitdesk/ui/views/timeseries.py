@@ -4,12 +4,12 @@ from __future__ import annotations
 
 import numpy as np
 import pyqtgraph as pg
-from PySide6.QtCore import QEvent, QSize, Qt
+from PySide6.QtCore import QSize, Qt
 from PySide6.QtGui import QColor, QIcon, QPainter, QPixmap
-from PySide6.QtWidgets import (QCheckBox, QHBoxLayout, QLabel, QListWidget, QListWidgetItem, QToolButton,
-                               QVBoxLayout, QWidget)
+from PySide6.QtWidgets import QHBoxLayout, QLabel, QListWidget, QListWidgetItem, QToolButton, QVBoxLayout
 
 from . import empty_hint, muted_colour, series_colour, style_plot
+from .common import SessionView, check_box, control_row, run_time_name
 
 
 def swatch(colour: QColor, size: int = 12) -> QIcon:
@@ -50,13 +50,12 @@ def _span(traj):
     return (float(t[0]), float(t[-1])) if t.size else None
 
 
-class TimeSeriesView(QWidget):
+class TimeSeriesView(SessionView):
     view_id = "timeseries"
     title = "Time series"
 
     def __init__(self, session, parent=None):
-        super().__init__(parent)
-        self.session = session
+        super().__init__(session, parent)
         self.trajectory = None
         self._names: list[str] = []
         self._wanted: list[str] | None = None  # selection from view settings, applied when names are known
@@ -69,15 +68,13 @@ class TimeSeriesView(QWidget):
         self.series_list.setIconSize(QSize(12, 12))
         self.series_list.itemChanged.connect(self._on_item_changed)
 
-        self.log_y = QCheckBox("Log scale")
-        self.log_y.setToolTip("Logarithmic vertical axis (values at or below zero are left out)")
-        self.spectrum = QCheckBox("Spectrum")
-        self.spectrum.setToolTip("Show the power spectrum of each series instead of the series itself")
+        self.log_y = check_box("Log scale", "Logarithmic vertical axis (values at or below zero are left out)",
+                               False, self._on_mode)
+        self.spectrum = check_box("Spectrum", "Show the power spectrum of each series instead of the series itself",
+                                  False, self._on_mode)
         self.fit = QToolButton(text="Fit")
         self.fit.setToolTip("Zoom to show all the data")
         self.fit.clicked.connect(self.fit_view)
-        self.log_y.toggled.connect(self._on_mode)
-        self.spectrum.toggled.connect(self._on_mode)
         self.note = QLabel()
         self.note.setStyleSheet("color: palette(placeholder-text);")
 
@@ -93,13 +90,7 @@ class TimeSeriesView(QWidget):
         self.plot.addItem(self.cursor, ignoreBounds=True)
         self.empty_hint = empty_hint(self.plot, "The run of the model will be plotted here")
 
-        options = QHBoxLayout()
-        options.setContentsMargins(0, 0, 0, 0)
-        options.addWidget(self.log_y)
-        options.addWidget(self.spectrum)
-        options.addStretch(1)
-        options.addWidget(self.note)
-        options.addWidget(self.fit)
+        options = control_row(self.log_y, self.spectrum, None, self.note, self.fit, spacing=6, stretch=False)
         right = QVBoxLayout()
         right.setContentsMargins(0, 0, 0, 0)
         right.setSpacing(4)
@@ -112,15 +103,7 @@ class TimeSeriesView(QWidget):
         layout.addLayout(right, 1)
 
         self._restyle()
-        session.systemChanged.connect(self._on_system)
-        session.trajectoryChanged.connect(self._on_trajectory)
-        session.timeCursorChanged.connect(self._on_time_cursor)
-        session.projectLoaded.connect(self._on_project_loaded)
-        self._on_project_loaded()
-        if session.system is not None:
-            self._on_system(session.system)
-        if session.trajectory is not None:
-            self._on_trajectory(session.trajectory)
+        self.follow_session(trajectory=self._on_trajectory, cursor=self._on_time_cursor)
 
     # ------------------------------------------------------------ view protocol
     def view_settings(self) -> dict:
@@ -152,8 +135,7 @@ class TimeSeriesView(QWidget):
             if freq is None:
                 return None
             return ["frequency"] + [f"power({n})" for n in names], np.column_stack([freq] + cols)
-        time_name = "n" if traj.kind == "map" else "t"
-        return [time_name] + names, np.column_stack([traj.time] + [traj.series(n) for n in names])
+        return [run_time_name(traj)] + names, np.column_stack([traj.time] + [traj.series(n) for n in names])
 
     # ------------------------------------------------------------ selection
     def checked(self) -> list[str]:
@@ -204,7 +186,7 @@ class TimeSeriesView(QWidget):
     def _on_project_loaded(self) -> None:
         self._names = []
         self.trajectory = None
-        self.apply_view_settings(self.session.project.views.get(self.view_id, {}))
+        self.apply_view_settings(self.saved_view_settings())
 
     # ------------------------------------------------------------ drawing
     def _on_trajectory(self, trajectory) -> None:
@@ -225,7 +207,7 @@ class TimeSeriesView(QWidget):
         self.note.setText("")
         log_y = self.log_y.isChecked() or spectrum
         self.plot.setLogMode(x=False, y=log_y)
-        time_label = "n" if traj is not None and traj.kind == "map" else "t"
+        time_label = run_time_name(traj) if traj is not None else "t"
         if spectrum:
             unit = "per step" if time_label == "n" else f"cycles per unit {time_label}"
             self.plot.setLabel("bottom", f"frequency ({unit})")
@@ -295,11 +277,6 @@ class TimeSeriesView(QWidget):
     def _on_cursor_dragged(self) -> None:
         if not self._moving_cursor:
             self.session.set_time_cursor(float(self.cursor.value()))
-
-    def changeEvent(self, event) -> None:
-        super().changeEvent(event)
-        if event.type() == QEvent.Type.PaletteChange:
-            self._restyle()
 
     def _restyle(self) -> None:
         style_plot(self.plot_widget, self)

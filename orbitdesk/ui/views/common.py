@@ -1,0 +1,321 @@
+"""What the views share: a base class that follows the session, small control factories and rows,
+quiet setting of controls for settings round-trips, and the run, cursor and equilibrium helpers of the
+views that draw trajectories."""
+
+from __future__ import annotations
+
+import math
+from contextlib import contextmanager
+
+import numpy as np
+from PySide6.QtCore import QEvent, Qt, QTimer
+from PySide6.QtWidgets import (QAbstractButton, QCheckBox, QComboBox, QHBoxLayout, QLabel, QPushButton,
+                               QSizePolicy, QVBoxLayout, QWidget)
+
+from ..plot_style import hint_label, orbit_middle
+
+DIRECTION_LABELS = ("upward", "downward", "both ways")
+
+
+class SessionView(QWidget):
+    """A view of the session's document: ``follow_session`` wires the handlers and catches up, a palette
+    change calls ``_restyle``. Subclasses define ``_on_project_loaded`` and ``_on_system``."""
+
+    view_id = ""
+    title = ""
+
+    def __init__(self, session, parent=None):
+        super().__init__(parent)
+        self.session = session
+        self.system = None
+
+    def follow_session(self, values=None, settings=None, trajectory=None, cursor=None) -> None:
+        """Connect the session's signals to this view's handlers, then catch up with what the session
+        holds now: the saved view settings, the system and (with ``trajectory``) the current run."""
+        s = self.session
+        s.systemChanged.connect(self._on_system)
+        for signal, handler in ((s.valuesChanged, values), (s.settingsChanged, settings),
+                                (s.trajectoryChanged, trajectory), (s.timeCursorChanged, cursor)):
+            if handler is not None:
+                signal.connect(handler)
+        s.projectLoaded.connect(self._on_project_loaded)
+        self._on_project_loaded()
+        if s.system is not None:
+            self._on_system(s.system)
+        if trajectory is not None and s.trajectory is not None:
+            trajectory(s.trajectory)
+
+    def main_layout(self) -> QVBoxLayout:
+        """The view's own layout: controls above the plots, with the margins every view uses."""
+        layout = QVBoxLayout(self)
+        layout.setContentsMargins(6, 6, 6, 6)
+        layout.setSpacing(4)
+        return layout
+
+    def saved_view_settings(self) -> dict:
+        """This view's settings as the open project keeps them."""
+        return self.session.project.views.get(self.view_id, {})
+
+    def values_fingerprint(self, skip: str | None = None) -> tuple:
+        """What a computed result depends on besides its own controls: every parameter (but ``skip``,
+        the swept one), the initial state and the system."""
+        s = self.session
+        return (tuple((n, v) for n, v in sorted(s.params.items()) if n != skip),
+                tuple(sorted(s.initial.items())), id(self.system))
+
+    def changeEvent(self, event) -> None:
+        super().changeEvent(event)
+        if event.type() == QEvent.Type.PaletteChange:
+            self._restyle()
+
+    def _restyle(self) -> None:
+        """Colours from the (new) palette; views with plots redraw."""
+
+    def _on_project_loaded(self) -> None:
+        raise NotImplementedError
+
+    def _on_system(self, system) -> None:
+        raise NotImplementedError
+
+
+# ---------------------------------------------------------------- controls
+def combo_box(tip: str, items=(), slot=None) -> QComboBox:
+    """A combo box as wide as its longest entry, with a tooltip and an optional index-changed slot."""
+    combo = QComboBox()
+    combo.setToolTip(tip)
+    combo.setSizeAdjustPolicy(QComboBox.SizeAdjustPolicy.AdjustToContents)
+    combo.addItems(list(items))
+    if slot is not None:
+        combo.currentIndexChanged.connect(slot)
+    return combo
+
+
+def direction_combo(tip: str, slot=None) -> QComboBox:
+    """Crossing direction: upward, downward, both ways (in that order)."""
+    return combo_box(tip, DIRECTION_LABELS, slot)
+
+
+def check_box(text: str, tip: str, checked: bool = False, slot=None) -> QCheckBox:
+    box = QCheckBox(text)
+    box.setChecked(checked)
+    box.setToolTip(tip)
+    if slot is not None:
+        box.toggled.connect(slot)
+    return box
+
+
+def push_button(text: str, tip: str, slot) -> QPushButton:
+    button = QPushButton(text)
+    button.setToolTip(tip)
+    button.clicked.connect(slot)
+    return button
+
+
+def status_label() -> QLabel:
+    """A one-line quiet note that is clipped rather than widening the view (tooltip for the full text)."""
+    label = hint_label()
+    label.setWordWrap(False)
+    label.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
+    return label
+
+
+def control_row(*items, spacing: int = 4, stretch: bool = True) -> QHBoxLayout:
+    """A row of controls without margins: widgets, text (becomes a label), an int (extra space) or
+    None (a stretch); a final stretch unless ``stretch`` is False."""
+    row = QHBoxLayout()
+    row.setContentsMargins(0, 0, 0, 0)
+    row.setSpacing(spacing)
+    for item in items:
+        if item is None:
+            row.addStretch(1)
+        elif isinstance(item, str):
+            row.addWidget(QLabel(item))
+        elif isinstance(item, int):
+            row.addSpacing(item)
+        else:
+            row.addWidget(item)
+    if stretch:
+        row.addStretch(1)
+    return row
+
+
+def row_widget(*items, spacing: int = 4) -> QWidget:
+    """``control_row`` in a widget of its own (a page of a QStackedWidget)."""
+    widget = QWidget()
+    widget.setLayout(control_row(*items, spacing=spacing))
+    return widget
+
+
+def auto_timer(parent, delay_ms: int, action, enabled) -> QTimer:
+    """A single-shot timer (start it on every change) that runs ``action`` if ``enabled()`` still holds."""
+    timer = QTimer(parent, singleShot=True, interval=delay_ms)
+    timer.timeout.connect(lambda: action() if enabled() else None)
+    return timer
+
+
+# ---------------------------------------------------------------- settings round-trips
+def is_number(value) -> bool:
+    """A finite int or float (not a bool): what a number in a view's settings must be."""
+    return isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value)
+
+
+@contextmanager
+def quiet(*widgets):
+    """Change these widgets without their signals firing."""
+    before = [w.blockSignals(True) for w in widgets]
+    try:
+        yield
+    finally:
+        for w, was in zip(widgets, before):
+            w.blockSignals(was)
+
+
+def set_quietly(widget, value) -> None:
+    """Set a spin box's value, a button's check state or a combo box's index without signals."""
+    with quiet(widget):
+        if isinstance(widget, QComboBox):
+            widget.setCurrentIndex(int(value))
+        elif isinstance(widget, QAbstractButton):
+            widget.setChecked(bool(value))
+        else:
+            widget.setValue(value)
+
+
+def apply_numbers(d: dict, fields) -> None:
+    """Set spin boxes quietly from a settings dict: ``fields`` holds (widget, key, int or float);
+    a key that is missing or not a finite number leaves its widget as it is."""
+    for widget, key, kind in fields:
+        if is_number(d.get(key)):
+            set_quietly(widget, kind(d[key]))
+
+
+def select_text(combo: QComboBox, text) -> bool:
+    """Make ``text`` the current entry if the combo box has it."""
+    i = combo.findText(text) if isinstance(text, str) else -1
+    if i >= 0:
+        combo.setCurrentIndex(i)
+    return i >= 0
+
+
+def fill_combo(combo: QComboBox, names) -> None:
+    """Replace the entries without signals (the caller chooses the current one)."""
+    with quiet(combo):
+        combo.clear()
+        combo.addItems(list(names))
+
+
+def coordinate_names(system, time_last: bool = True) -> list[str]:
+    """The quantities a view can put on an axis: states, derived quantities and time."""
+    names = list(system.states) + list(system.derived_names)
+    return names + [system.time_name] if time_last else [system.time_name] + names
+
+
+# ---------------------------------------------------------------- forcing and section planes
+def detected_period(system, p):
+    """The forcing period the core reads off the model (cos/sin of omega*t), or None."""
+    try:
+        from orbitdesk.core.cycles import detect_forcing_period
+    except ImportError:
+        return None
+    try:
+        return detect_forcing_period(system, p)
+    except (TypeError, ValueError, ArithmeticError):
+        return None
+
+
+def follow_forcing_period(box, system, p, user_set: bool):
+    """Put the model's forcing period in ``box`` unless the user typed one; returns the period or None."""
+    period = None if system is None or system.kind == "map" else detected_period(system, p)
+    if period is not None and not user_set:
+        set_quietly(box, period)
+    return period
+
+
+def put_through_orbit(box, trajectory, name: str, user_set: bool) -> None:
+    """Unless the user typed a value, put a section plane ``name = value`` through the middle of the
+    current orbit (its mean), so that the orbit crosses it."""
+    middle = orbit_middle(trajectory, name)
+    if not user_set and middle is not None:
+        set_quietly(box, middle)
+
+
+# ---------------------------------------------------------------- runs, the time cursor, equilibria
+def run_time_name(trajectory) -> str:
+    return "n" if trajectory.kind == "map" else "t"
+
+
+def start_run_settings(session, max_samples: int) -> dict:
+    """Engine settings for trajectories started from other states: {False: forward, True: backward over
+    the same span}, with at most ``max_samples`` output points each."""
+    fwd = session.run_settings(samples=min(session.solver.samples or max_samples, max_samples))
+    span = fwd.t_end - fwd.t_start
+    back = session.run_settings(samples=fwd.samples, t_end=fwd.t_start - span, transient=0.0)
+    return {False: fwd, True: back}
+
+
+def runs_job(session, system, starts, max_samples: int):
+    """A job for ``session.run_job`` running one engine run per start, a (u0, backward) pair; it returns
+    the Trajectories in order (None for a backward start of a map, which cannot run backward)."""
+    p = session.param_vector()
+    settings = start_run_settings(session, max_samples)
+
+    def job(cancel, report):
+        from orbitdesk.core.engine import simulate
+
+        runs = []
+        for k, (u0, backward) in enumerate(starts):
+            part = report.part(k / len(starts), 1 / len(starts))
+            if backward and system.kind == "map":
+                runs.append(None)
+                continue
+            runs.append(simulate(system, settings[bool(backward)], np.asarray(u0, dtype=float), p,
+                                 cancel=cancel, progress=part))
+        return runs
+
+    return job
+
+
+def values_at_time(time, t: float, discrete: bool, *series) -> tuple:
+    """Each series at time ``t`` of a run: linear between the samples of a flow, the sample at or after
+    ``t`` for a map; runs may go backward in time. Rows of 2D arrays are interpolated alike."""
+    forward = time[-1] >= time[0]
+    k = int(np.clip(np.searchsorted(time if forward else -time, t if forward else -t), 0, time.size - 1))
+    if 0 < k and time[k] != time[k - 1] and not discrete:
+        w = float(np.clip((t - time[k - 1]) / (time[k] - time[k - 1]), 0, 1))
+        return tuple(s[k - 1] + w * (s[k] - s[k - 1]) for s in series)
+    return tuple(s[k] for s in series)
+
+
+def equilibrium_fields(item):
+    """(state dict, stable, kind) from an Equilibrium (core.equilibria) or a dict with the same keys."""
+    get = (lambda k, d=None: item.get(k, d)) if isinstance(item, dict) else (lambda k, d=None: getattr(item, k, d))
+    state = get("state") or get("point") or {}
+    return dict(state), get("stable"), str(get("kind", "") or "")
+
+
+def equilibrium_coordinates(system, item, names, p):
+    """(u, [value of each name]) of an equilibrium, derived quantities evaluated there (time 0);
+    None when its state is incomplete or a name is unknown."""
+    state = equilibrium_fields(item)[0]
+    try:
+        u = np.array([float(state[n]) for n in system.states])
+    except (KeyError, TypeError, ValueError):
+        return None
+    point = {**dict(zip(system.states, u)), system.time_name: 0.0}
+    if any(n not in point for n in names):
+        derived = system.derived_values(np.zeros(1), u.reshape(-1, 1), p)
+        point.update({k: float(v[0]) for k, v in derived.items()})
+    if any(n not in point for n in names):
+        return None
+    return u, [point[n] for n in names]
+
+
+def clicked_point(plot_item, event):
+    """The data point of a plain left click inside the plot's view box, else None."""
+    if event.button() != Qt.MouseButton.LeftButton or event.double():
+        return None
+    vb = plot_item.getViewBox()
+    pos = event.scenePos()
+    if not vb.sceneBoundingRect().contains(pos):
+        return None
+    return vb.mapSceneToView(pos)
