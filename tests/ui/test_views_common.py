@@ -127,3 +127,17 @@ def test_settings_helpers_set_quietly(qtbot):
     assert combo.currentText() == "y" and fired == [1]
     row = control_row("Sweep", box, 8, None, combo)
     assert row.count() == 6 and row.itemAt(0).widget().text() == "Sweep"
+
+
+def test_sweep_sampler_shows_its_whole_text(qtbot, session):
+    from orbitdesk.ui.views.sweep import SweepView
+
+    load(qtbot, session, "r = 3.5 in [2.5, 4]\nx[n+1] = r*x*(1 - x)\nx[0] = 0.3\n")
+    view = SweepView(session)
+    qtbot.addWidget(view)
+    view.resize(1100, 600)
+    view.show()
+    qtbot.waitExposed(view)
+    combo = view.mode
+    assert combo.currentText() == "every iterate"
+    assert combo.width() > combo.fontMetrics().horizontalAdvance("every iterate")

@@ -130,7 +130,8 @@ class SweepView(SessionView):
         self.transient_label = QLabel("Settle for")
         self.dt_label = QLabel("step")
         self.duration_label = QLabel("collect for at most")
-        row3 = control_row(self.transient_label, self.transient, "keep", self.samples, "points,", self.dt_label,
+        self.points_label = QLabel("points,")
+        row3 = control_row(self.transient_label, self.transient, "keep", self.samples, self.points_label, self.dt_label,
                            self.dt, self.duration_label, self.duration)
         bottom = control_row(stretch=False)
         bottom.addWidget(self.info, 1)
@@ -290,6 +291,7 @@ class SweepView(SessionView):
         for w in (self.dt, self.dt_label, self.duration, self.duration_label):
             w.setVisible(not is_map)
         self.transient_label.setText("Skip the first" if is_map else "Settle for")
+        self.points_label.setText("points" if is_map else "points,")  # a map has no step to follow
         if self.parameter.currentText() != self._range_for:
             self._range_for = None
         self._apply_wanted()
