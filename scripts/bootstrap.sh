@@ -35,6 +35,10 @@ extras="test,cluster,jit"
 stamp=.venv/.orbitdesk-installed-${extras//,/-}
 if [ ! -f "$stamp" ] || [ pyproject.toml -nt "$stamp" ]; then
   .venv/bin/python -m pip install -q --upgrade pip >/dev/null
-  .venv/bin/python -m pip install -q -e ".[$extras]"
+  echo "orbitdesk: installing the package and its dependencies into .venv ..." >&2
+  if ! .venv/bin/python -m pip install -q -e ".[$extras]" > .venv/install.log 2>&1; then
+    cat .venv/install.log >&2
+    exit 1
+  fi
   touch "$stamp"
 fi
