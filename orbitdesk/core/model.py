@@ -424,7 +424,7 @@ class _Builder:
                     return m.symbols[name]
                 if primes == typed:
                     deps.add(f"eq:{base}")
-                    return self.top_placeholders.setdefault(base, sp.Symbol(name + "\u2020"))
+                    return self.top_placeholders.setdefault(base, sp.Symbol(name + "\u2020", real=True))
                 raise ParseError(f"{name} is a higher derivative than the equation for {base} gives",
                                  node.column, node.end)
             if name in m.symbols and (name in m.parameters or name in m.states):
