@@ -1,0 +1,247 @@
+"""Interaction in the real main window: slider to redrawn phase plane, and 3D frames while orbiting.
+
+Each case runs in a child process on X (the current DISPLAY or a private Xvfb, see
+``bench_app.display``), so the GL context, the window and the memory are its own.
+
+* Slider to redraw: a Van der Pol oscillator, 20,000 samples over t in [0, 100] (the solver's
+  other defaults). The ``mu`` slider of the parameter panel is moved 30 times; each time is
+  measured from ``slider.setValue`` to the end of the first paint of the phase plane after the
+  session announced the new trajectory (an event filter on the plot's viewport; the event loop
+  runs normally, it is not spun). Also recorded: when the engine run started and ended on the
+  worker thread (``engine.simulate`` wrapped for the measurement) and when ``trajectoryChanged``
+  arrived. Baseline, after each move once everything is idle: the bare engine run for the same
+  system, settings and values on this thread. Goal ≤ 100 ms.
+* Orbit: a 1,000,000-sample Lorenz run shown in the 3D view (which thins the line it draws);
+  the camera's azimuth is stepped and each frame forced: ``repaint()``, ``glFinish()`` and
+  ``processEvents()``; median time per frame over 30 frames. Baselines, frames alternating with
+  ours: a bare pyqtgraph GLViewWidget of the same size and surface format drawing all 1,000,000
+  points as one line (what drawing without thinning costs), and the same widget empty (the
+  floor: clearing, multisample resolve and putting the frame on the screen). With Mesa's
+  software renderer (llvmpipe) every vertex and fragment is computed by the CPU.
+"""
+
+from __future__ import annotations
+
+import json
+import statistics
+import subprocess
+import sys
+
+from benchmarks.bench_app import ROOT, display
+from benchmarks.harness import Row
+
+MOVES = 30
+FRAMES = 30
+
+CHILD_SETUP = r"""
+import json, sys, time, statistics
+from PySide6.QtCore import QEvent, QEventLoop, QObject, QStandardPaths, QTimer
+QStandardPaths.setTestModeEnabled(True)
+from orbitdesk.ui.app import make_application
+app = make_application(["orbitdesk-benchmark"])
+from orbitdesk.core.project import Project, SolverSettings
+from orbitdesk.ui.main_window import MainWindow
+
+def wait(done, seconds):
+    '''Run the event loop (sleeping when idle) until done() or the time is up.'''
+    loop, poll = QEventLoop(), QTimer()
+    poll.timeout.connect(lambda: done() and loop.quit())
+    poll.start(1)
+    QTimer.singleShot(int(seconds * 1000), loop.quit)
+    if not done():
+        loop.exec()
+    poll.stop()
+    return done()
+
+window = MainWindow()
+window.resize(1440, 900)
+window.show()
+session = window.session
+"""
+
+SLIDER = CHILD_SETUP + r"""
+import orbitdesk.core.engine as engine
+
+VDP = "mu = 1.5 in [0.5, 3]\nx' = y\ny' = mu*(1 - x^2)*y - x\nx(0) = 2\ny(0) = 0\n"
+session.load_project(Project(name="slider", model=VDP, solver=SolverSettings(t_end=100.0, samples=20000)))
+wait(lambda: session.trajectory is not None and not session.busy, 120)
+wait(lambda: False, 0.5)
+view = window.views["phase_plane"]
+row = window.panel_parts["ParameterPanel"].row("mu")
+
+marks = {}
+original = engine.simulate
+def simulate(*args, **kwargs):  # the session's job looks simulate up when it runs
+    marks["start"] = time.perf_counter()
+    result = original(*args, **kwargs)
+    marks["end"] = time.perf_counter()
+    return result
+engine.simulate = simulate
+adopt = session._adopt_trajectory  # the run's result on the GUI thread, before any view has seen it
+def arrived(trajectory):
+    marks["arrived"] = time.perf_counter()
+    marks["trajectory"] = trajectory
+    adopt(trajectory)
+session._adopt_trajectory = arrived
+
+class PaintEnd(QObject):
+    '''The end of the phase plane's first paint after the new trajectory arrived: taken when control
+    comes back to the event loop after the paint event.'''
+    def __init__(self):
+        super().__init__()
+        self.end = None
+    def eventFilter(self, obj, event):
+        if event.type() == QEvent.Type.Paint and "arrived" in marks and self.end is None:
+            QTimer.singleShot(0, self.done)
+        return False
+    def done(self):
+        self.end = time.perf_counter()
+
+total, to_start, in_worker, delivery, to_paint, bare, shown_new = [], [], [], [], [], [], []
+system = session.system
+for k in range(MOVES):
+    position = 150 + (k * 373) % 700
+    marks.clear()
+    end = PaintEnd()
+    view.plot_widget.viewport().installEventFilter(end)
+    t0 = time.perf_counter()
+    row.slider.setValue(position)
+    wait(lambda: end.end is not None, 60)
+    view.plot_widget.viewport().removeEventFilter(end)
+    total.append(end.end - t0)
+    to_start.append(marks["start"] - t0)
+    in_worker.append(marks["end"] - marks["start"])
+    delivery.append(marks["arrived"] - marks["end"])
+    to_paint.append(end.end - marks["arrived"])
+    shown_new.append(view.trajectory is marks["trajectory"] and abs(
+        session.params["mu"] - row._from_slider(position)) < 1e-12)
+    wait(lambda: not session.busy, 30)
+    wait(lambda: False, 0.05)
+    start = time.perf_counter()
+    original(system, session.run_settings(), session.initial_vector(), session.param_vector())
+    bare.append(time.perf_counter() - start)
+    wait(lambda: False, 0.05)
+median = statistics.median
+print(json.dumps({"total": median(total), "to_start": median(to_start), "in_worker": median(in_worker),
+                  "delivery": median(delivery), "to_paint": median(to_paint), "bare": median(bare),
+                  "spread": [min(total), max(total)], "samples": int(session.trajectory.time.size),
+                  "all_new": all(shown_new), "moves": MOVES}))
+""".replace("MOVES", str(MOVES))
+
+ORBIT = CHILD_SETUP + r"""
+import numpy as np
+import pyqtgraph.opengl as gl
+from OpenGL import GL
+from PySide6.QtWidgets import QApplication
+from PySide6.QtGui import QColor, QSurfaceFormat
+from orbitdesk.ui.plot_style import SCENE_BACKGROUND, time_colours
+from orbitdesk.ui.views.phase_space_3d import _gl_item_classes
+
+LORENZ = "sigma = 10\nr = 28\nbeta = 8/3\nx' = sigma*(y - x)\ny' = x*(r - z) - y\nz' = x*y - beta*z\nx(0) = 1\n"
+dock = window.view_docks["phase_space_3d"]
+dock.show()
+dock.raise_()
+view = window.ensure_view("phase_space_3d")
+session.load_project(Project(name="orbit", model=LORENZ, solver=SolverSettings(t_end=1000.0, samples=1_000_000)))
+wait(lambda: session.trajectory is not None and not session.busy, 600)
+wait(lambda: False, 1.0)
+scene = view.glview
+size = (scene.width(), scene.height())
+scene.makeCurrent()
+msaa = int(GL.glGetIntegerv(GL.GL_SAMPLES))  # of the widget's framebuffer (format() shows the context's)
+renderer = GL.glGetString(GL.GL_RENDERER).decode()
+scene.doneCurrent()
+
+# the baselines: the same widget class, size and surface format; pyqtgraph's line item with one shader
+# program per context (the view's own subclass), all points in the view's box coordinates
+Line, _points = _gl_item_classes(gl)
+run = session.trajectory
+xyz = np.column_stack([run.series(name) for name in "xyz"])
+box = view._to_box(xyz)
+def bare_widget(with_line):
+    widget = gl.GLViewWidget()
+    surface = QSurfaceFormat.defaultFormat()
+    surface.setSamples(msaa)
+    widget.setFormat(surface)
+    widget.setBackgroundColor(QColor(*SCENE_BACKGROUND))
+    widget.resize(*size)
+    if with_line:
+        widget.addItem(Line(pos=box, color=time_colours(run.time, 0.95), width=1.6, mode="line_strip",
+                            antialias=False, glOptions="translucent"))
+    widget.setCameraPosition(distance=scene.opts["distance"], elevation=scene.opts["elevation"],
+                             azimuth=scene.opts["azimuth"])
+    widget.show()
+    return widget
+full, empty = bare_widget(True), bare_widget(False)
+wait(lambda: False, 1.0)
+
+def frame(widget, azimuth):
+    start = time.perf_counter()
+    widget.setCameraPosition(azimuth=azimuth)
+    widget.repaint()
+    widget.makeCurrent()
+    GL.glFinish()
+    widget.doneCurrent()
+    QApplication.processEvents()
+    return time.perf_counter() - start
+
+times = {"ours": [], "full": [], "empty": []}
+for k in range(FRAMES + 3):
+    azimuth = -58.0 + 4.0 * k
+    for name, widget in (("ours", scene), ("full", full), ("empty", empty)):
+        t = frame(widget, azimuth)
+        if k >= 3:
+            times[name].append(t)
+full.makeCurrent()
+same = int(GL.glGetIntegerv(GL.GL_SAMPLES)) == msaa
+full.doneCurrent()
+median = statistics.median
+print(json.dumps({"ours": median(times["ours"]), "full": median(times["full"]), "empty": median(times["empty"]),
+                  "renderer": renderer, "size": list(size), "samples": int(run.time.size),
+                  "drawn": int(len(view.main_item.pos)), "msaa": msaa, "same": same, "frames": FRAMES}))
+""".replace("FRAMES", str(FRAMES))
+
+
+def _child(script: str, env) -> dict:
+    out = subprocess.run([sys.executable, "-c", script], capture_output=True, text=True, cwd=ROOT, env=env,
+                         timeout=1800)
+    lines = [line for line in out.stdout.splitlines() if line.startswith("{")]
+    if out.returncode != 0 or not lines:
+        raise RuntimeError(f"benchmark child failed ({out.returncode}):\n{out.stderr[-3000:]}")
+    return json.loads(lines[-1])
+
+
+def run(log=print) -> list[Row]:
+    rows = []
+    with display() as env:
+        s = _child(SLIDER, env)
+        ms = {k: 1e3 * s[k] for k in ("total", "to_start", "in_worker", "delivery", "to_paint", "bare")}
+        log(f"slider to redraw {ms['total']:.0f} ms (range {1e3 * s['spread'][0]:.0f}–{1e3 * s['spread'][1]:.0f}): "
+            f"to the run's start {ms['to_start']:.1f}, run on the worker {ms['in_worker']:.0f}, "
+            f"to trajectoryChanged {ms['delivery']:.1f}, to the end of the paint {ms['to_paint']:.1f}; "
+            f"bare run {ms['bare']:.0f} ms")
+        rows.append(Row(
+            f"slider to redrawn phase plane: Van der Pol, {s['samples']:,} samples, main window "
+            f"(median of {s['moves']} moves)", s["total"], s["bare"],
+            f"medians: to the run's start {ms['to_start']:.0f} ms, run on the worker {ms['in_worker']:.0f}, "
+            f"to trajectoryChanged {ms['delivery']:.0f}, to the end of the paint {ms['to_paint']:.0f}; "
+            f"new run shown every time: {s['all_new']}",
+            "the bare engine run, same settings", "≤ 100 ms"))
+
+        o = _child(ORBIT, env)
+        log(f"3D orbit: {1e3 * o['ours']:.0f} ms per frame ({1 / o['ours']:.1f} fps), all points "
+            f"{1e3 * o['full']:.0f} ms, empty scene {1e3 * o['empty']:.0f} ms; {o['renderer']}, "
+            f"{o['size'][0]}x{o['size'][1]} px, {o['msaa']}x multisampling")
+        rows.append(Row(
+            f"3D view orbiting a {o['samples']:,}-point Lorenz run, time per frame (median of {o['frames']}): "
+            f"{1 / o['ours']:.1f} frames per second", o["ours"], o["full"],
+            f"{o['drawn']:,} points drawn; empty scene {1e3 * o['empty']:.0f} ms per frame; {o['renderer']}, "
+            f"{o['size'][0]}x{o['size'][1]} px, {o['msaa']}x multisampling (both: {o['same']})",
+            f"bare GLViewWidget, all {o['samples']:,} points as one line"))
+    return rows
+
+
+if __name__ == "__main__":
+    from benchmarks.harness import print_table
+
+    print_table(run(log=lambda text: print(text, file=sys.stderr)))
