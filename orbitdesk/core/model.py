@@ -337,36 +337,19 @@ class _Builder:
                 lines[key] = st
         order = self.topological(raw, lines, derived_names)
         resolved: dict[str, sp.Expr] = {}
-        failed = set(self.cyclic)  # definitions in a loop are reported already
         sizes: dict = {}
         for key in order:
             expr = raw[key]
             subs = {}
             for sym in expr.free_symbols:
                 dep = self.placeholder_key(sym, derived_names)
-                if dep in failed:
-                    failed.add(key)  # its own error is reported already
-                    break
-                if dep is not None and dep in resolved:
-                    subs[sym] = resolved[dep]
-            if key in failed:
-                continue
-            st = lines[key]
-            where = Span(st.rhs_col + len(st.rhs) - len(st.rhs.lstrip()), st.rhs_col + len(st.rhs.rstrip()))
-            try:
-                value = substitute(expr, subs, where) if subs else expr
-            except ParseError as err:
-                self.add(st.line, err.column, err.end_column, ERROR,
-                         err.message + " once the definitions it uses are put in")
-                failed.add(key)
-                continue
-            if subs and tree_size(value, sizes) > MAX_EXPRESSION_SIZE:
-                self.add(st.line, where.column, where.end, ERROR,
-                         f"with the definitions it uses put in, this expression has more than "
-                         f"{MAX_EXPRESSION_SIZE:,} parts; simplify the chain of definitions")
-                failed.add(key)
-                continue
-            resolved[key] = value
+                if dep is None:
+                    continue
+                if dep not in resolved:
+                    break  # (topological order) the definition failed or is in a loop: reported already
+                subs[sym] = resolved[dep]
+            else:
+                self.resolve_one(key, expr, subs, lines[key], resolved, sizes)
         for key, expr in resolved.items():
             if key.startswith("eq:"):
                 base = key[3:]
@@ -380,6 +363,21 @@ class _Builder:
             else:
                 m.derived[key] = expr
         m.equations = {s: m.equations[s] for s in m.states if s in m.equations}  # in state order
+
+    def resolve_one(self, key, expr, subs, st, resolved, sizes):
+        """Put the finished definitions ``subs`` into ``expr``; on success it joins ``resolved``."""
+        where = Span(st.rhs_col + len(st.rhs) - len(st.rhs.lstrip()), st.rhs_col + len(st.rhs.rstrip()))
+        try:
+            value = substitute(expr, subs, where) if subs else expr
+        except ParseError as err:
+            self.add(st.line, err.column, err.end_column, ERROR, err.message + " once the definitions it uses are put in")
+            return
+        if subs and tree_size(value, sizes) > MAX_EXPRESSION_SIZE:
+            self.add(st.line, where.column, where.end, ERROR,
+                     f"with the definitions it uses put in, this expression has more than "
+                     f"{MAX_EXPRESSION_SIZE:,} parts; simplify the chain of definitions")
+            return
+        resolved[key] = value
 
     def placeholder_key(self, sym, derived_names):
         name = sym.name

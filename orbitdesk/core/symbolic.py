@@ -72,9 +72,12 @@ def _too_large(node, what: str = "this constant") -> ParseError:
     return ParseError(f"{what} is too large to represent (over 1e300)", node.column, node.end)
 
 
+_NOT_FINITE = (sp.nan, sp.zoo, sp.oo, -sp.oo)
+
+
 def _approx(expr: sp.Expr) -> complex:
     """The value of a constant expression whose parts were all checked (so evalf is cheap)."""
-    if expr.has(sp.nan, sp.zoo, sp.oo, -sp.oo):
+    if expr.has(*_NOT_FINITE):
         raise ValueError("not finite")
     return complex(expr.evalf(17))
 
@@ -89,6 +92,8 @@ def _checked_constant(expr: sp.Expr, node, what: str = "this constant") -> sp.Ex
         for part in (expr, *expr.args):
             if part.is_Pow:
                 _check_exponent(part.exp, node)
+            elif part in _NOT_FINITE:  # where sympy made it, e.g. 0^(-x) = zoo^x
+                raise ParseError("this expression is undefined: it divides by zero", node.column, node.end)
         if expr.is_Add or expr.is_Mul:
             numbers = [a for a in expr.args if a.is_Number]
             if numbers:

@@ -528,3 +528,17 @@ def test_derived_quantities_are_put_in_even_when_sympy_returns_cached_equal_symb
     sp.sin(twin)
     m = parse_model("z[n+1] = sin(d1)\nd1 = z")
     assert m.ok and m.equations["z"] == sp.sin(m.symbols["z"])
+
+
+def test_zero_to_a_negative_symbolic_power_is_an_error():
+    pos, _ = error_at("x' = x^2 + 0^(-x^2)", "this expression is undefined: it divides by zero")
+    assert pos == (1, 12, 20)
+    assert parse_model("x' = 0^x").ok  # 0^x is 0 for x > 0: not refused
+
+
+def test_nothing_half_resolved_is_left_behind_by_a_failed_definition():
+    m = parse_model("x' = a + y'\na = 1/0 + x\ny' = b\nb = 2*y\nz' = x'")
+    assert not m.ok
+    assert [d.message for d in m.errors] == ["division by zero"]
+    y = m.symbols["y"]
+    assert m.equations == {"y": 2 * y} and m.derived == {"b": 2 * y}
