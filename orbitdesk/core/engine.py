@@ -124,23 +124,51 @@ def simulate(system: CompiledSystem, settings: RunSettings | None = None, u0=Non
     if settings.method not in METHODS:
         raise ValueError(f"unknown method '{settings.method}'; choose one of {', '.join(METHODS)}")
     if settings.method == "dop853" and not events and system.smooth:
-        if settings.samples <= DENSE_SAMPLES or not _denser_than_steps(system, settings, u0, p, report):
-            return _integrate_compiled(system, settings, u0, p, report)
+        if settings.samples > FILL_ABOVE:
+            probe = RunSettings(**{**settings.__dict__, "samples": 0, "transient": 0.0})
+            steps = _integrate_compiled(system, probe, u0, p, report)
+            if settings.samples > 2 * steps.time.size:
+                return _fill_between_steps(system, settings, steps, p)
+        return _integrate_compiled(system, settings, u0, p, report)
     return _integrate(system, settings, u0, p, list(events), report)
 
 
-DENSE_SAMPLES = 20_000
+FILL_ABOVE = 2_000
+FILL_SUBSTEPS = 16
 
 
-def _denser_than_steps(system, settings, u0, p, report) -> bool:
-    """Whether the output grid is several times finer than the integrator's own steps.
+def _fill_between_steps(system, settings, steps: Trajectory, p) -> Trajectory:
+    """Output samples on a grid finer than the integrator's steps, from the exact step points.
 
-    Stopping the compiled integrator at every sample then costs more than stepping in Python and
-    filling the samples from each step's dense output (the method's own interpolant).
+    Stopping the compiled integrator at every sample costs far more than its own steps; instead each
+    sample is reached from the step point before it by ``FILL_SUBSTEPS`` classical RK4 substeps, all
+    samples at once through the vectorized evaluator. A substep is at most 1/16 of an accepted
+    DOP853 step, so its error stays far below the step's own tolerance on smooth problems.
     """
-    probe = RunSettings(**{**settings.__dict__, "samples": 0, "transient": 0.0})
-    steps = _integrate_compiled(system, probe, u0, p, report.part(0.0, 0.1)).steps_taken
-    return settings.samples > 4 * max(steps, 1)
+    t0, t1 = float(settings.t_start), float(settings.t_end)
+    ts, ys = steps.time, steps.states
+    grid = np.linspace(t0, t1, settings.samples)
+    sign = 1.0 if t1 > t0 else -1.0
+    grid = grid[(grid - ts[-1]) * sign <= 0] if ts.size else grid[:0]
+    k = np.clip(np.searchsorted(sign * ts, sign * grid, side="right") - 1, 0, max(ts.size - 1, 0))
+    t = ts[k].copy()
+    U = ys[:, k].copy()
+    h = (grid - t) / FILL_SUBSTEPS
+    with np.errstate(all="ignore"):
+        for _ in range(FILL_SUBSTEPS):
+            k1 = system.rhs_vec(t, U, p)
+            k2 = system.rhs_vec(t + h / 2, U + h / 2 * k1, p)
+            k3 = system.rhs_vec(t + h / 2, U + h / 2 * k2, p)
+            k4 = system.rhs_vec(t + h, U + h * k3, p)
+            U += h / 6 * (k1 + 2 * k2 + 2 * k3 + k4)
+            t = t + h
+    time, states = grid, U
+    if settings.transient > 0:
+        keep = (time - (t0 + sign * settings.transient)) * sign >= 0
+        time, states = time[keep], states[:, keep]
+    return Trajectory("flow", time, states, list(system.states), system.param_dict(p), steps.status,
+                      steps.message, system.derived_values(time, states, p) if time.size else {},
+                      steps_taken=steps.steps_taken)
 
 
 def _iterate(system, settings, u0, p, report) -> Trajectory:
