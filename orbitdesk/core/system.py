@@ -34,7 +34,10 @@ class UndefinedValue(ArithmeticError):
 
 
 def _lambdify(args, exprs, modules):
-    return sp.lambdify(args, exprs, modules=modules, cse=len(exprs) > 1)
+    # scalar code uses the printer that writes non-integer powers as math.pow: float arithmetic,
+    # so 2^floor(x) with a large x overflows instead of building an exact huge integer
+    printer = _printer() if modules == "math" else None
+    return sp.lambdify(args, exprs, modules=modules, cse=len(exprs) > 1, printer=printer)
 
 
 @dataclass
@@ -149,7 +152,7 @@ class CompiledSystem:
     @cached_property
     def _f_packed(self):
         t, u, p, _ = self._plain
-        return sp.lambdify([t, u, p], self.plain(self.f), modules="math", cse=len(self.f) > 1)
+        return sp.lambdify([t, u, p], self.plain(self.f), modules="math", cse=len(self.f) > 1, printer=_printer())
 
     def packed_rhs(self):
         """The fastest scalar evaluator, ``f(t, u, p) -> list`` with u and p as sequences."""
@@ -355,12 +358,15 @@ def _stack(values, shape) -> np.ndarray:
 
 
 def _first_undefined(expr, values):
+    """The first subexpression (innermost first) whose value is undefined, evaluated in floats."""
     for sub in sp.postorder_traversal(expr):
         if sub.is_Atom:
             continue
-        try:
-            value = complex(sub.xreplace(values).evalf(15))
-        except (TypeError, ValueError, ZeroDivisionError):
+        names = sorted(sub.free_symbols, key=lambda s: s.name)
+        try:  # never let sympy evaluate with the numbers put in: 477^max(2e7, -x) would be exact
+            fn = sp.lambdify(names, sub, modules="math", printer=_printer())
+            value = complex(fn(*(values[s] for s in names)))
+        except (TypeError, ValueError, ZeroDivisionError, OverflowError, KeyError):
             return sub
         if not (math.isfinite(value.real) and abs(value.imag) < 1e-12 * max(1.0, abs(value.real))):
             return sub

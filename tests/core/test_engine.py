@@ -116,3 +116,12 @@ def test_very_fine_output_grid_stays_on_the_closed_form():
     run = simulate(system, RunSettings(t_end=20, samples=50_001, rtol=1e-10, atol=1e-12))
     assert run.status == OK and run.time.size == 50_001
     assert np.max(np.abs(run.series("x") - np.cos(2 * run.time))) < 1e-8
+
+
+@pytest.mark.parametrize("text, fragment", [
+    ("x' = 477^max(21e6, -x)\n", "477**Max(21000000, -x)"),  # exact evaluation would never finish
+    ("x' = 1\ny' = -min(1, x)^(7/1000000)\nx(0) = -1\n", "Min(1, x)**(7/1000000)"),
+])
+def test_undefined_powers_are_explained_in_floats_without_hanging(text, fragment):
+    run = simulate(compile_model(text), RunSettings(t_end=1))
+    assert run.status == UNDEFINED and fragment in run.message
