@@ -4,9 +4,8 @@ import os
 
 import numpy as np
 
-from orbitdesk.core.project import Project, SolverSettings
 
-from .conftest import wait_for_trajectory
+from .conftest import load_model, wait_for_trajectory
 
 LORENZ = """# Lorenz equations
 sigma = 10
@@ -22,9 +21,7 @@ z(0) = 1
 
 
 def load(qtbot, session, text, **solver):
-    session.solver = SolverSettings(**{**dict(t_end=40.0, samples=8001), **solver})
-    return wait_for_trajectory(qtbot, session, lambda: session.load_project(
-        Project(name="m", model=text, solver=session.solver)))
+    return load_model(qtbot, session, text, dict(t_end=40.0, samples=8001), **solver)
 
 
 def make_view(qtbot, session, size=(760, 560)):

@@ -6,9 +6,8 @@ import os
 import numpy as np
 import pytest
 
-from orbitdesk.core.project import Project, SolverSettings
 
-from .conftest import wait_for_trajectory
+from .conftest import load_model, wait_for_trajectory
 
 pytest.importorskip("orbitdesk.core.lyapunov")
 
@@ -38,9 +37,7 @@ x'' = -0.2*x' - k*max(x, 0) - x + 2*cos(1.3*t)
 
 
 def load(qtbot, session, text, **solver):
-    session.solver = SolverSettings(**{**dict(t_end=20.0, samples=1001, steps=500), **solver})
-    return wait_for_trajectory(qtbot, session, lambda: session.load_project(
-        Project(name="m", model=text, solver=session.solver)))
+    return load_model(qtbot, session, text, dict(t_end=20.0, samples=1001, steps=500), **solver)
 
 
 def make_view(qtbot, session):

@@ -6,9 +6,8 @@ import os
 import numpy as np
 import pytest
 
-from orbitdesk.core.project import Project, SolverSettings
 
-from .conftest import wait_for_trajectory
+from .conftest import load_model
 
 # x'' + 2 zeta x' + x = cos(w t), written as a first-order model
 FORCED_LINEAR = """zeta = 0.1
@@ -49,9 +48,7 @@ y[0] = 0
 
 
 def load(qtbot, session, text, **solver):
-    session.solver = SolverSettings(**{**dict(t_end=50.0, samples=2001), **solver})
-    return wait_for_trajectory(qtbot, session, lambda: session.load_project(
-        Project(name="m", model=text, solver=session.solver)))
+    return load_model(qtbot, session, text, dict(t_end=50.0, samples=2001), **solver)
 
 
 def make_view(qtbot, session):

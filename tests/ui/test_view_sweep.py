@@ -7,9 +7,8 @@ import numpy as np
 import pytest
 from PySide6.QtCore import QPoint, Qt
 
-from orbitdesk.core.project import Project, SolverSettings
 
-from .conftest import wait_for_trajectory
+from .conftest import load_model, wait_for_trajectory
 
 LOGISTIC = """r = 3.5 in [2.5, 4]
 x[n+1] = r*x*(1 - x)
@@ -37,9 +36,7 @@ z(0) = 1
 
 
 def load(qtbot, session, text, **solver):
-    session.solver = SolverSettings(**{**dict(t_end=20.0, samples=1001, steps=500), **solver})
-    return wait_for_trajectory(qtbot, session, lambda: session.load_project(
-        Project(name="m", model=text, solver=session.solver)))
+    return load_model(qtbot, session, text, dict(t_end=20.0, samples=1001, steps=500), **solver)
 
 
 def make_view(qtbot, session):
