@@ -85,6 +85,13 @@ def parse_number(text: str, what: str) -> float:
     return value
 
 
+def parse_positive(text: str, what: str) -> float:
+    value = parse_number(text, what)
+    if value <= 0:
+        raise CommandError(f"{what} must be positive")
+    return value
+
+
 def values_for(system, source: Source, sets, inits):
     """Parameter and initial vectors: the model's, then the project's stored ones, then --set/--init."""
     params, initial = {}, {}

@@ -5,7 +5,8 @@ from orbitdesk.core.cycles import CycleError, find_cycle, find_map_cycle
 from orbitdesk.core.progress import Cancelled
 from orbitdesk.core.system import MAP
 
-from .common import (CommandError, add_value_options, load_system, parse_assignments, parse_number, print_json,
+from .common import (CommandError, add_value_options, load_system, parse_assignments, parse_number, parse_positive,
+                     print_json,
                      read_source, stderr_progress, values_for, write_csv)
 
 
@@ -23,13 +24,6 @@ def register(sub):
     parser.add_argument("--csv", metavar="FILE", help="write one period of the orbit (flows) or the points (maps)")
     parser.add_argument("--json", action="store_true", help="print the result as JSON")
     parser.set_defaults(handler=run)
-
-
-def _positive(text, what):
-    value = parse_number(text, what)
-    if value <= 0:
-        raise CommandError(f"{what} must be positive")
-    return value
 
 
 def run(args) -> int:
@@ -82,8 +76,8 @@ def _map_cycle(system, p, u0, guess, args, progress) -> int:
 def _flow_cycle(system, p, u0, guess, args, progress) -> int:
     if args.period is not None:
         raise CommandError("--period K is for maps; for a flow give --period-guess T")
-    period_guess = _positive(args.period_guess, "--period-guess") if args.period_guess is not None else None
-    forcing = _positive(args.forcing_period, "--forcing-period") if args.forcing_period is not None else None
+    period_guess = parse_positive(args.period_guess, "--period-guess") if args.period_guess is not None else None
+    forcing = parse_positive(args.forcing_period, "--forcing-period") if args.forcing_period is not None else None
     if args.forcing_multiple is not None and args.forcing_multiple < 1:
         raise CommandError("--forcing-multiple must be at least 1")
     if not system.autonomous and period_guess is not None:

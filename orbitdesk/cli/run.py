@@ -3,7 +3,7 @@
 from orbitdesk.core.engine import METHODS, RunSettings, simulate
 from orbitdesk.core.system import MAP
 
-from .common import (CommandError, add_value_options, load_system, parse_number, print_json, read_source,
+from .common import (CommandError, add_value_options, load_system, parse_number, parse_positive, print_json, read_source,
                      stderr_progress, values_for, write_csv)
 
 
@@ -45,10 +45,7 @@ def settings_for(source, args) -> RunSettings:
         settings.method = args.method
     for name in ("rtol", "atol"):
         if getattr(args, name, None) is not None:
-            value = parse_number(getattr(args, name), f"--{name}")
-            if value <= 0:
-                raise CommandError(f"--{name} must be positive")
-            setattr(settings, name, value)
+            setattr(settings, name, parse_positive(getattr(args, name), f"--{name}"))
     return settings
 
 

@@ -8,7 +8,8 @@ from orbitdesk.core.executors import SchedulerError, executor_for
 from orbitdesk.core.sweep import BOTH, DOWN, ITERATE, MAXIMA, PLANE, STROBE, UP, SweepSettings, sweep
 from orbitdesk.core.system import MAP
 
-from .common import (CommandError, add_value_options, load_system, parse_assignments, parse_number, print_json,
+from .common import (CommandError, add_value_options, load_system, parse_assignments, parse_number, parse_positive,
+                     print_json,
                      read_source, stderr_progress, values_for, write_csv)
 from .run import settings_for
 
@@ -63,17 +64,17 @@ def sweep_settings(system, source, args) -> SweepSettings:
         settings.mode, settings.plane = PLANE, (name, value)
         settings.direction = _DIRECTIONS[args.direction or "up"]
     elif args.strobe:
-        settings.mode, settings.period = STROBE, _positive(args.strobe, "--strobe")
+        settings.mode, settings.period = STROBE, parse_positive(args.strobe, "--strobe")
     elif args.maxima:
         settings.mode = MAXIMA
     if args.duration is not None:
         if is_map:
             raise CommandError("--duration applies to flows; a map runs --samples iterations")
-        settings.duration = _positive(args.duration, "--duration")
+        settings.duration = parse_positive(args.duration, "--duration")
     if args.dt is not None:
         if is_map:
             raise CommandError("--dt applies to flows")
-        settings.dt = _positive(args.dt, "--dt")
+        settings.dt = parse_positive(args.dt, "--dt")
     if args.transient is not None:
         settings.transient = parse_number(args.transient, "--transient")
         if settings.transient < 0:
@@ -88,13 +89,6 @@ def sweep_settings(system, source, args) -> SweepSettings:
         return settings.checked(system)
     except ValueError as err:
         raise CommandError(str(err)) from None
-
-
-def _positive(text, what):
-    value = parse_number(text, what)
-    if value <= 0:
-        raise CommandError(f"{what} must be positive")
-    return value
 
 
 def run(args) -> int:

@@ -7,7 +7,8 @@ import sys
 import numpy as np
 import pytest
 
-from orbitdesk.cli import main
+from .conftest import run_cli
+
 
 LORENZ = "sigma = 10\nr = 28\nbeta = 8/3\nx' = sigma*(y - x)\ny' = x*(r - z) - y\nz' = x*y - beta*z\nx(0) = 1\n"
 
@@ -17,12 +18,6 @@ def lorenz_file(tmp_path):
     path = tmp_path / "loop.txt"
     path.write_text(LORENZ)
     return path
-
-
-def run_cli(capsys, *args):
-    code = main([str(a) for a in args])
-    out, err = capsys.readouterr()
-    return code, out, err
 
 
 def test_check_ok_lists_infos_and_exits_zero(capsys, lorenz_file):

@@ -8,19 +8,14 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from orbitdesk.cli import main
 from orbitdesk.core import project as project_module
 from orbitdesk.core.engine import simulate
 from orbitdesk.core.system import compile_model
 
+from .conftest import run_cli
+
 SAMPLES = Path(__file__).resolve().parents[2] / "sample_projects"
 PENDULUM = "g = 9.81\nL = 1\ntheta'' = -(g/L)*sin(theta)\ntheta(0) = 0.3\n"
-
-
-def run_cli(capsys, *args):
-    code = main([str(a) for a in args])
-    out, err = capsys.readouterr()
-    return code, out, err
 
 
 @pytest.fixture

@@ -8,7 +8,8 @@ import sys
 
 import pytest
 
-from orbitdesk.cli import main
+from .conftest import run_cli
+
 
 LOGISTIC = "r = 3.5\nx[n+1] = r*x*(1 - x)\nx[0] = 0.2\n"
 DUFFING = ("delta = 0.3\ngamma = 0.3\nomega = 1.2\n"
@@ -28,12 +29,6 @@ def duffing_file(tmp_path):
     path = tmp_path / "two_wells.txt"
     path.write_text(DUFFING)
     return path
-
-
-def run_cli(capsys, *args):
-    code = main([str(a) for a in args])
-    out, err = capsys.readouterr()
-    return code, out, err
 
 
 def test_map_sweep_json_contract(capsys, logistic_file):
