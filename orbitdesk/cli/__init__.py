@@ -12,7 +12,7 @@ import sys
 
 from .common import CommandError, EXIT_ERRORS, EXIT_UNREADABLE
 
-COMMAND_MODULES = ["open", "check", "run", "equilibria", "cycle", "section", "lyapunov", "sweep", "export"]
+COMMAND_MODULES = ["open", "check", "run", "equilibria", "cycle", "section", "lyapunov", "sweep", "export", "fit"]
 
 
 class _Parser(argparse.ArgumentParser):

@@ -8,7 +8,8 @@ Nothing read from a file is ever executed.
 Version history:
   0  ``{"format", "version": 0, "name", "equations": str, "parameters": {name: number},
      "ranges": {name: [lo, hi]}, "initial", "solver", "views"}`` (no walkthrough, no notes)
-  1  current: see ``project_to_dict``.
+  1  current: see ``project_to_dict``. Optional ``datasets`` (measured records, see core/datasets.py) and
+     ``parameter_sets`` ({name: {parameter: value}}) were added within version 1; files without them load.
 """
 
 from __future__ import annotations
@@ -31,6 +32,7 @@ MAX_TEXT = 1024 * 1024          # model text, notes, any string
 MAX_KEY = 1000                  # keys of free objects
 MAX_NAME = 100                  # parameter / state names
 MAX_INT = 2**63
+MAX_PARAMETER_SETS = 100        # kept alternative parameter sets
 METHODS = ("dop853", "rk45", "stiff", "rk4")
 _NAME_RE = re.compile(r"[A-Za-z_][A-Za-z0-9_]*'*")
 _PLAIN_KEY_RE = re.compile(r"[A-Za-z_][A-Za-z0-9_]*")
@@ -85,6 +87,8 @@ class Project:
     views: dict[str, dict] = field(default_factory=dict)
     walkthrough: list[WalkthroughStep] = field(default_factory=list)
     notes: str = ""
+    datasets: list = field(default_factory=list)          # core.datasets.DataSet, measured records
+    parameter_sets: dict[str, dict[str, float]] = field(default_factory=dict)  # kept alternatives (fits)
     load_warnings: list[str] = field(default_factory=list, compare=False, repr=False)
 
 
@@ -316,16 +320,28 @@ def project_from_dict(d) -> Project:
     def views(v, path):
         return {k: _free_obj(x, _sub(path, k)) for k, x in _obj(v, path).items()}
 
+    def datasets(v, path):
+        from .datasets import datasets_from_json
+        return datasets_from_json(v, path, warnings)
+
+    def parameter_sets(v, path):
+        obj = _obj(v, path)
+        if len(obj) > MAX_PARAMETER_SETS:
+            raise ProjectError(path, f"too many parameter sets ({len(obj)}, limit {MAX_PARAMETER_SETS})")
+        return {_text(k, _sub(path, k), MAX_NAME): _named(_num)(x, _sub(path, k)) for k, x in obj.items()}
+
     const = lambda v, p: v  # noqa: E731  (format/version already checked)
     f = _fields(d, "$", {
         "format": (const, None), "version": (const, None), "name": (_text, "Untitled"), "model": (_text, ""),
         "parameters": (_named(parameter), {}), "initial": (_named(_num), {}), "solver": (solver, SolverSettings()),
-        "views": (views, {}), "walkthrough": (steps, []), "notes": (_text, "")}, warnings)
+        "views": (views, {}), "walkthrough": (steps, []), "notes": (_text, ""),
+        "datasets": (datasets, []), "parameter_sets": (parameter_sets, {})}, warnings)
     del f["format"], f["version"]
     return Project(**f, load_warnings=warnings)
 
 
 def _raw(p: Project) -> dict:
+    from .datasets import dataset_to_json
     try:
         return {
             "format": FORMAT_NAME, "version": FORMAT_VERSION, "name": p.name, "model": p.model,
@@ -335,6 +351,8 @@ def _raw(p: Project) -> dict:
             "views": dict(p.views),
             "walkthrough": [{"title": w.title, "note": w.note, "snapshot": w.snapshot} for w in p.walkthrough],
             "notes": p.notes,
+            **({"datasets": [dataset_to_json(d) for d in p.datasets]} if p.datasets else {}),
+            **({"parameter_sets": {k: dict(v) for k, v in p.parameter_sets.items()}} if p.parameter_sets else {}),
         }
     except (AttributeError, TypeError) as e:
         raise ProjectError("$", f"not a valid Project: {e}") from None
