@@ -340,8 +340,14 @@ def project_from_dict(d) -> Project:
     return Project(**f, load_warnings=warnings)
 
 
+def _datasets_json(sets) -> dict:
+    if not sets:
+        return {}
+    from .datasets import dataset_to_json  # only when there are data sets: project.py stands alone otherwise
+    return {"datasets": [dataset_to_json(d) for d in sets]}
+
+
 def _raw(p: Project) -> dict:
-    from .datasets import dataset_to_json
     try:
         return {
             "format": FORMAT_NAME, "version": FORMAT_VERSION, "name": p.name, "model": p.model,
@@ -351,7 +357,7 @@ def _raw(p: Project) -> dict:
             "views": dict(p.views),
             "walkthrough": [{"title": w.title, "note": w.note, "snapshot": w.snapshot} for w in p.walkthrough],
             "notes": p.notes,
-            **({"datasets": [dataset_to_json(d) for d in p.datasets]} if p.datasets else {}),
+            **_datasets_json(p.datasets),
             **({"parameter_sets": {k: dict(v) for k, v in p.parameter_sets.items()}} if p.parameter_sets else {}),
         }
     except (AttributeError, TypeError) as e:
