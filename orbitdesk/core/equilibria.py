@@ -72,16 +72,39 @@ class Equilibria(list):
 
 
 # ---------------------------------------------------------------- classification
+ROUND_OFF = 1e-12  # entries this small against the largest of their matrix or vector are round-off
+
+
+def zero_round_off(a, scale: float | None = None) -> np.ndarray:
+    """A copy of ``a`` with every entry (real and imaginary parts apart) smaller than ``ROUND_OFF``
+    times ``scale`` (default: the largest entry) set to exactly 0, so that a Jacobian entry of
+    6.1e-17 that is 0 in exact arithmetic prints as 0 in the app, the report and the command line."""
+    a = np.array(a, copy=True)
+    if a.size == 0:
+        return a
+    scale = float(np.max(np.abs(a))) if scale is None else float(scale)
+    limit = ROUND_OFF * scale
+    if np.iscomplexobj(a):
+        re, im = a.real.copy(), a.imag.copy()
+        re[np.abs(re) < limit] = 0.0
+        im[np.abs(im) < limit] = 0.0
+        return (re + 0.0) + 1j * (im + 0.0)
+    a[np.abs(a) < limit] = 0.0
+    return a + 0.0  # no negative zeros
+
+
 def classify(jacobian, is_map: bool = False) -> tuple:
-    """(kind, stable, n_stable, n_unstable, n_center, eigenvalues, eigenvectors, warnings)."""
-    jacobian = np.asarray(jacobian, dtype=float)
+    """(kind, stable, n_stable, n_unstable, n_center, eigenvalues, eigenvectors, warnings); round-off
+    entries of the Jacobian are zeroed first, and those of each eigenvector and of the eigenvalues after."""
+    jacobian = zero_round_off(np.asarray(jacobian, dtype=float))
     values, vectors = np.linalg.eig(jacobian)
-    values = values.astype(complex)
+    values = zero_round_off(values.astype(complex), max(float(np.max(np.abs(jacobian), initial=0.0)),
+                                                        float(np.max(np.abs(values), initial=0.0))))
     vectors = vectors.astype(complex)
     order = np.lexsort((-values.imag, -np.abs(values) if is_map else -values.real))
     values, vectors = values[order], vectors[:, order]
     for k in range(vectors.shape[1]):
-        vectors[:, k] = _canonical_sign(vectors[:, k])
+        vectors[:, k] = zero_round_off(_canonical_sign(vectors[:, k]))
     rho = float(np.max(np.abs(values))) if values.size else 0.0
     tol = HYPERBOLIC_RTOL * max(1.0, rho)
     return (*(_classify_map(values, tol) if is_map else _classify_flow(values, tol)), values, vectors)
@@ -471,10 +494,11 @@ def _equilibrium(system, p, x, method) -> Equilibrium | None:
     if not np.all(np.isfinite(J)):
         return None
     is_map = system.kind == MAP
+    J = zero_round_off(J)
     kind, stable, ns, nu, nc, warnings, values, vectors = classify(J, is_map)
     if system.nonsmooth:
         warnings.append(NONSMOOTH_WARNING.format(names=", ".join(system.nonsmooth)))
-    x = np.where(np.abs(x) < 1e-300, 0.0, x) + 0.0  # no negative zeros in reports
+    x = zero_round_off(np.where(np.abs(x) < 1e-300, 0.0, x))  # no negative zeros, no 6e-18 for 0
     return Equilibrium({s: float(v) for s, v in zip(system.states, x)}, x, J, values, vectors, kind, stable,
                        ns, nu, nc, method, warnings, is_map)
 

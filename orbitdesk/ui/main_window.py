@@ -302,9 +302,10 @@ class MainWindow(QMainWindow):
         self.save_as_action = action("Save &As…", self.save_as, SK.SaveAs, "Save the project under a new name")
         self.revert_action = action("&Revert", self.revert, None, "Go back to the saved version of the project")
         self.export_png_action = action("Export Plot as &PNG…", lambda: self.export_plot_dialog("png"), None,
-                                        "Save the active plot as a PNG image")
+                                        "Save a plot (the active view's or another) as a PNG image, at a size you pick")
         self.export_svg_action = action("Export Plot as S&VG…", lambda: self.export_plot_dialog("svg"), None,
-                                        "Save the active plot as an SVG drawing")
+                                        "Save a plot (the active view's or another) as an SVG drawing, at a size you "
+                                        "pick")
         self.export_csv_action = action("Export &Data as CSV…", self.export_data_dialog, None,
                                         "Save the data of the active view as comma-separated values")
         self.quit_action = action("&Quit", self.close, SK.Quit, "Close OrbitDesk")
@@ -503,6 +504,9 @@ class MainWindow(QMainWindow):
         dock.toggleViewAction().setText(dock.windowTitle())
         dock.setWidget(view)
         self.views[name] = view
+        from .figures import install_plot_menu
+
+        install_plot_menu(self, view)
         if self._active_view is None:
             self._active_view = name
         return view
@@ -701,38 +705,28 @@ class MainWindow(QMainWindow):
             clear.triggered.connect(lambda: settings().setValue("recent_files", []))
 
     # ------------------------------------------------------------ export
-    def export_plot(self, path, view=None) -> bool:
-        """Save the active (or given) view as PNG or SVG, chosen by the file suffix."""
+    def export_plot(self, path, view=None, size=None, legend=None, plot=None) -> bool:
+        """Save a plot of the active (or given) view as PNG or SVG, chosen by the file suffix, drawn off
+        screen at ``size`` (width, height; default: as big as on screen) with the same view range;
+        ``plot`` picks one of the view's plots (``figures.view_plots``), ``legend`` names the curves."""
+        from . import figures
+
         view = view or self.active_view()
         if view is None:
             return False
-        path = Path(path)
-        plot_widget = getattr(view, "plot_widget", None)
-        target = plot_widget if plot_widget is not None else view
-        if path.suffix.lower() == ".svg":
-            from PySide6.QtCore import QRect
-            from PySide6.QtGui import QPainter
-            from PySide6.QtSvg import QSvgGenerator
-
-            gen = QSvgGenerator()
-            gen.setFileName(str(path))
-            gen.setSize(target.size())
-            gen.setViewBox(QRect(0, 0, target.width(), target.height()))
-            gen.setTitle(f"{self.session.name} — {getattr(view, 'title', 'plot')}")
-            painter = QPainter(gen)
-            target.render(painter)
-            painter.end()
-            return path.exists()
-        ratio = max(2.0, target.devicePixelRatioF())
-        from PySide6.QtGui import QPixmap, QPainter
-
-        pix = QPixmap(target.size() * ratio)
-        pix.setDevicePixelRatio(ratio)
-        pix.fill(target.palette().color(target.backgroundRole()))
-        painter = QPainter(pix)
-        target.render(painter)
-        painter.end()
-        return pix.save(str(path), "PNG")
+        if plot is None:
+            plots = figures.view_plots(view)
+            if not plots:
+                return False
+            plot = plots[0].plot
+        if size is None:
+            shown = plot.getViewWidget()
+            size = (shown.width(), shown.height()) if shown is not None and shown.isVisible() else \
+                figures.REPORT_SIZE
+        if legend is None:
+            legend = figures.has_named_curves(plot)
+        title = f"{self.session.name} — {getattr(view, 'title', 'plot')}"
+        return figures.save_plot(plot, path, *size, legend=legend, host=view, title=title)
 
     def export_data(self, path, view=None) -> bool:
         """Write the active view's data (full resolution) as CSV."""
@@ -748,12 +742,19 @@ class MainWindow(QMainWindow):
             np.savetxt(f, rows, delimiter=",", fmt="%.17g")
         return True
 
-    def export_plot_dialog(self, kind: str) -> bool:
-        view = self.active_view()
-        if view is None:
-            self.statusBar().showMessage("No view to export", 5000)
+    def export_plot_dialog(self, kind: str, plot=None) -> bool:
+        """Ask which plot (default: ``plot``, else the active view's), its size, a legend and the format;
+        then the file name; the status bar says which plot went where."""
+        from .figures import ExportPlotDialog
+
+        form = ExportPlotDialog(self, kind, plot)
+        if form.choice is None:
+            self.statusBar().showMessage("No plot to export", 5000)
             return False
-        name = f"{self.session.name} {getattr(view, 'title', 'plot')}.{kind}"
+        if form.dialog.exec() != form.dialog.DialogCode.Accepted:
+            return False
+        kind = form.kind
+        name = f"{self.session.name} {getattr(form.choice.view, 'title', 'plot')}.{kind}"
         start = (self.session.path.parent if self.session.path else Path.home()) / name
         flt = "PNG image (*.png)" if kind == "png" else "SVG drawing (*.svg)"
         path, _ = QFileDialog.getSaveFileName(self, "Export Plot", str(start), flt)
@@ -761,8 +762,10 @@ class MainWindow(QMainWindow):
             return False
         if not path.lower().endswith("." + kind):
             path += "." + kind
-        ok = self.export_plot(path, view)
-        self.statusBar().showMessage(f"Exported {Path(path).name}" if ok else "Export failed", 5000)
+        ok = form.export(path)
+        size = f"{form.width.value()}×{form.height.value()}"
+        self.statusBar().showMessage(f"Exported {form.choice.caption} to {Path(path).name} ({size})" if ok
+                                     else f"Could not write {Path(path).name}", 8000)
         return ok
 
     def export_data_dialog(self) -> bool:

@@ -10,6 +10,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
+import pyqtgraph as pg
 from PySide6.QtCore import Qt, QTimer, Signal
 from PySide6.QtGui import QColor, QFontDatabase, QKeySequence, QShortcut, QValidator
 from PySide6.QtWidgets import (QDoubleSpinBox, QHBoxLayout, QLabel, QProgressBar, QSizePolicy, QToolButton,
@@ -300,10 +301,120 @@ class JobStrip(QWidget):
         self.cancel_button.setEnabled(on)
 
 
+# ---------------------------------------------------------------- axes and curves
+def tick_texts(values, spacing: float) -> list[str]:
+    """Tick labels in the data's own numbers: as many decimals as the spacing needs (0.0008, 2.5, 150),
+    or a short scientific form (8e-4, 1.25e6) for tiny spacings and large values; a true minus."""
+    values = [float(v) for v in values]
+    spacing = abs(float(spacing))
+    big = max((abs(v) for v in values if math.isfinite(v)), default=0.0)
+    if not (spacing > 0 and math.isfinite(spacing)):
+        return [number_text(v, 4) for v in values]
+    out = []
+    if spacing < 1e-4 or big >= 1e6:
+        digits = max(0, int(math.floor(math.log10(big))) - int(math.floor(math.log10(spacing)))) if big else 0
+        digits = min(digits + (0 if _is_whole_power(spacing) else 1), 12)
+        for v in values:
+            if abs(v) < spacing * 1e-6:
+                out.append("0")
+                continue
+            mantissa, exponent = f"{v:.{digits}e}".split("e")
+            if "." in mantissa:
+                mantissa = mantissa.rstrip("0").rstrip(".")
+            out.append(f"{mantissa}e{int(exponent)}".replace("-", "\u2212"))
+        return out
+    decimals = 0
+    while decimals < 12 and abs(round(spacing, decimals) - spacing) > 1e-9 * spacing:
+        decimals += 1
+    for v in values:
+        text = "0" if abs(v) < spacing * 1e-6 else f"{v:.{decimals}f}"
+        out.append(text.replace("-", "\u2212"))
+    return out
+
+
+def _is_whole_power(spacing: float) -> bool:
+    mantissa = spacing / 10 ** math.floor(math.log10(spacing))
+    return abs(mantissa - round(mantissa)) < 1e-9
+
+
+def _plain_tick_strings(axis, values, scale, spacing):
+    if axis.logMode:
+        return type(axis).tickStrings(axis, values, scale, spacing)
+    return tick_texts([v * scale for v in values], spacing * scale)
+
+
 def plain_axes(plot_item) -> None:
-    """Tick labels in the data's own numbers (no automatic 'x0.001' scale factors on unit-less axes)."""
+    """Tick labels in the data's own numbers on every axis of a plot: no automatic SI-prefix scale
+    factors ("x (x0.001)" with ticks of 800 misleads), ticks formatted by ``tick_texts``. Every plot of
+    the app goes through this (``views.style_plot`` calls it)."""
     for name in ("left", "bottom", "right", "top"):
-        plot_item.getAxis(name).enableAutoSIPrefix(False)
+        axis = plot_item.getAxis(name)
+        axis.enableAutoSIPrefix(False)
+        if getattr(axis, "_plain_ticks", False):
+            continue
+        axis._plain_ticks = True
+        axis.tickStrings = lambda values, scale, spacing, axis=axis: _plain_tick_strings(axis, values, scale,
+                                                                                           spacing)
+        axis.picture = None  # drawn again with the new labels
+
+
+class ScreenCurve(pg.PlotDataItem):
+    """A line drawn at screen resolution: ``core.decimate.screen_path`` over the part in view, redone
+    when the view's range or size changes. The full data stays in the item (``getOriginalDataset``)
+    for exports, auto-range and the cursor readout. ``ordered_x``: x never decreases (time series:
+    min/max per pixel column, in their own order, so the line is smooth and of even thickness)."""
+
+    def __init__(self, *args, ordered_x: bool = False, **kwargs):
+        self._ordered_x = ordered_x
+        self._screen = (None, None)
+        self._bounds: dict = {}
+        super().__init__(*args, **kwargs)
+
+    def setData(self, *args, **kwargs):
+        self._screen = (None, None)
+        self._bounds = {}
+        super().setData(*args, **kwargs)
+
+    def viewRangeChanged(self, vb=None, ranges=None, changed=None):
+        super().viewRangeChanged(vb, ranges, changed)
+        if self._dataset is not None and self.opts["pen"] is not None and self.opts["symbol"] is None:
+            self.updateItems(styleUpdate=False)
+
+    def _getDisplayDataset(self):
+        full = super()._getDisplayDataset()
+        vb = self.getViewBox()
+        if (full is None or not isinstance(vb, pg.ViewBox) or self.opts["pen"] is None
+                or self.opts["symbol"] is not None):
+            return full
+        from pyqtgraph.graphicsItems.PlotDataItem import PlotDataset
+
+        from orbitdesk.core.decimate import screen_path
+
+        rect = vb.viewRect()
+        key = (id(full.x), id(full.y), rect.left(), rect.right(), rect.top(), rect.bottom(),
+               round(vb.width()), round(vb.height()))
+        if self._screen[0] == key:
+            return self._screen[1]
+        view = ((rect.left(), rect.right()), (rect.top(), rect.bottom()))
+        if any(vb.autoRangeEnabled()):  # the range is about to follow the data: reduce over all of it
+            (a, b), (c, d) = self.dataBounds(0), self.dataBounds(1)
+            if None not in (a, b, c, d):
+                view = ((a, b if b > a else a + 1.0), (c, d if d > c else c + 1.0))
+        x, y, connect = screen_path(full.x, full.y, view, (vb.width(), vb.height()), self._ordered_x)
+        shown = PlotDataset(x, y, None, None, connect)
+        self._screen = (key, shown)
+        return shown
+
+    def dataBounds(self, ax, frac=1.0, orthoRange=None):
+        """The bounds of all the data (not of what is drawn), so that auto-range sees every point."""
+        if frac != 1.0 or orthoRange is not None or self._dataset is None:
+            return super().dataBounds(ax, frac, orthoRange)
+        if ax not in self._bounds:
+            full = super()._getDisplayDataset()
+            values = np.asarray(full.x if ax == 0 else full.y, dtype=float)
+            values = values[np.isfinite(values)]
+            self._bounds[ax] = (float(values.min()), float(values.max())) if values.size else (None, None)
+        return self._bounds[ax]
 
 
 def hint_label(text: str = "") -> QLabel:

@@ -269,15 +269,6 @@ def test_map_model_switches_the_run_bar_to_steps(qtbot, window, tmp_path):
     assert traj.time[-1] == 50
 
 
-def test_exports_plot_png_and_svg(qtbot, window, tmp_path):
-    open_model(qtbot, window, tmp_path, OSCILLATOR)
-    png, svg = tmp_path / "plot.png", tmp_path / "plot.svg"
-    assert window.export_plot(png, window.views["phase_plane"])
-    assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
-    assert window.export_plot(svg, window.views["timeseries"])
-    assert "<svg" in svg.read_text(encoding="utf-8")[:2000]
-
-
 def test_view_menu_toggles_every_dock(qtbot, window):
     texts = [a.text() for a in window.view_menu.actions()]
     for dock in window.view_docks.values():

@@ -63,7 +63,8 @@ def muted_colour(widget=None, alpha: int = 255):
 
 
 def style_plot(plot_widget, host=None) -> None:
-    """Colours from the system palette, a light grid, no pyqtgraph context menu or corner button."""
+    """Colours from the system palette, a light grid, plain tick numbers (``plot_style.plain_axes``), no
+    pyqtgraph context menu or corner button."""
     import pyqtgraph as pg
     from PySide6.QtGui import QPalette
 
@@ -81,6 +82,9 @@ def style_plot(plot_widget, host=None) -> None:
         axis.setPen(axis_pen)
         axis.setTextPen(pg.mkPen(fg))
     item.showGrid(x=True, y=True, alpha=0.12)
+    from ..plot_style import plain_axes
+
+    plain_axes(item)
 
 
 def empty_hint(plot_item, text: str):

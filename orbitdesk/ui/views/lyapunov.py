@@ -13,7 +13,7 @@ from PySide6.QtWidgets import (QAbstractItemView, QHeaderView, QLabel, QSplitter
                                QVBoxLayout, QWidget)
 
 from . import muted_colour, series_colour, style_plot
-from ..plot_style import JobStrip, NumberBox, hint_label, mono_font, number_text, plain_axes
+from ..plot_style import JobStrip, NumberBox, hint_label, mono_font, number_text
 from .common import SessionView, auto_timer, check_box, control_row, push_button, quiet, set_quietly
 
 FLOW_LENGTH, FLOW_TRANSIENT = 500.0, 50.0
@@ -281,7 +281,6 @@ class LyapunovView(SessionView):
 
     def _restyle(self) -> None:
         style_plot(self.plot_widget, self)
-        plain_axes(self.plot)
         self.zero.setPen(pg.mkPen(muted_colour(self), width=1, style=Qt.PenStyle.DashLine))
         if self.result is not None:
             result = self.result

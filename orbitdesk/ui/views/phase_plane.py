@@ -10,12 +10,13 @@ from PySide6.QtGui import QColor
 from PySide6.QtWidgets import QLabel, QToolButton
 
 from . import empty_hint, muted_colour, series_colour, style_plot
+from ..plot_style import ScreenCurve
 from .common import (SessionView, check_box, clicked_point, combo_box, control_row, coordinate_names,
                      equilibrium_coordinates, equilibrium_fields, fill_combo, runs_job, values_at_time)
 
 FIELD_POINTS = 21          # arrows along the longer side of the view
 MAX_SEEDS = 40
-MAX_DRAWN_POINTS = 20_000  # a curve longer than this is thinned evenly for drawing
+MAX_DRAWN_POINTS = 200_000  # a run longer than this is thinned evenly before its screen-resolution path
 SEED_SAMPLES = 3000
 
 
@@ -84,7 +85,7 @@ class PhasePlaneView(SessionView):
         self.plot.addItem(self.field_item, ignoreBounds=True)
         self.nullcline_items: list[pg.PlotDataItem] = []
         self.seed_items: list[pg.PlotDataItem] = []
-        self.curve = pg.PlotDataItem()
+        self.curve = ScreenCurve()
         self.plot.addItem(self.curve)
         self.start_marker = pg.ScatterPlotItem(size=7, symbol="o")
         self.plot.addItem(self.start_marker, ignoreBounds=True)
@@ -399,7 +400,7 @@ class PhasePlaneView(SessionView):
                 if x is not None:
                     curves.append((x, y, style, run.kind))
         while len(self.seed_items) < len(curves):
-            item = pg.PlotDataItem()
+            item = ScreenCurve()
             self.plot.addItem(item, ignoreBounds=True)
             self.seed_items.append(item)
         for item, (x, y, style, kind) in zip(self.seed_items, curves):

@@ -15,7 +15,7 @@ from PySide6.QtCore import Qt, Signal
 from PySide6.QtWidgets import QSpinBox, QSplitter, QStackedWidget, QVBoxLayout, QWidget
 
 from . import muted_colour, series_colour, style_plot
-from ..plot_style import JobStrip, NumberBox, hint_label, number_text, plain_axes
+from ..plot_style import JobStrip, NumberBox, hint_label, number_text
 from .common import (SessionView, apply_numbers, auto_timer, check_box, combo_box, control_row, detected_period,
                      direction_combo, fill_combo, follow_forcing_period, push_button, put_through_orbit, quiet,
                      row_widget, select_text, set_quietly, status_label)
@@ -407,8 +407,6 @@ class SectionsView(SessionView):
     def _restyle(self) -> None:
         style_plot(self.plot_widget, self)
         style_plot(self.return_widget, self)
-        plain_axes(self.section_plot)
-        plain_axes(self.return_plot)
         self._draw()
 
 

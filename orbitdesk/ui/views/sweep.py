@@ -16,7 +16,7 @@ from PySide6.QtGui import QColor
 from PySide6.QtWidgets import QLabel, QSpinBox, QStackedWidget, QWidget
 
 from . import muted_colour, series_colour, style_plot
-from ..plot_style import JobStrip, NumberBox, number_text, plain_axes
+from ..plot_style import JobStrip, NumberBox, number_text
 from .common import (SessionView, apply_numbers, check_box, clicked_point, combo_box, control_row,
                      direction_combo, fill_combo, follow_forcing_period, is_number, push_button, put_through_orbit,
                      quiet, row_widget, select_text, status_label)
@@ -453,7 +453,6 @@ class SweepView(SessionView):
     def _restyle(self) -> None:
         for w in (self.plot_widget, self.lyap_widget):
             style_plot(w, self)
-            plain_axes(w.getPlotItem())
         accent = series_colour(1, self)
         self.marker.setPen(pg.mkPen(accent, width=1.5))
         self.marker.setHoverPen(pg.mkPen(accent, width=3))

@@ -9,6 +9,7 @@ from PySide6.QtGui import QColor, QIcon, QPainter, QPixmap
 from PySide6.QtWidgets import QHBoxLayout, QLabel, QListWidget, QListWidgetItem, QToolButton, QVBoxLayout
 
 from . import empty_hint, muted_colour, series_colour, style_plot
+from ..plot_style import ScreenCurve
 from .common import SessionView, check_box, control_row, run_time_name
 
 
@@ -81,8 +82,6 @@ class TimeSeriesView(SessionView):
         self.plot_widget = pg.PlotWidget()
         self.plot_widget.setToolTip("")
         self.plot = self.plot_widget.getPlotItem()
-        self.plot.setClipToView(True)
-        self.plot.setDownsampling(auto=True, mode="peak")
         self.cursor = pg.InfiniteLine(angle=90, movable=True)
         self.cursor.setToolTip("Time cursor: drag to move it")
         self.cursor.sigPositionChanged.connect(self._on_cursor_dragged)
@@ -240,11 +239,7 @@ class TimeSeriesView(SessionView):
                 y = np.where(y > 0, y, np.nan)
             curve = self._curves.get(name)
             if curve is None:
-                curve = pg.PlotDataItem(name=name)
-                curve.opts["autoDownsampleFactor"] = 1.0  # one min/max pair per pixel column
-                curve.setDownsampling(auto=True, method="peak")
-                curve.setClipToView(True)
-                curve.setSkipFiniteCheck(False)
+                curve = ScreenCurve(name=name, ordered_x=True)  # min/max per pixel column of what is in view
                 self.plot.addItem(curve)
                 self._curves[name] = curve
             colour = series_colour(index, self)
