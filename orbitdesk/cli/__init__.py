@@ -12,7 +12,8 @@ import sys
 
 from .common import CommandError, EXIT_ERRORS, EXIT_UNREADABLE
 
-COMMAND_MODULES = ["open", "check", "run", "equilibria", "cycle", "section", "lyapunov", "sweep", "export", "fit"]
+COMMAND_MODULES = ["open", "check", "run", "equilibria", "cycle", "section", "lyapunov", "sweep", "export", "fit",
+                   "continuation"]
 
 
 class _Parser(argparse.ArgumentParser):

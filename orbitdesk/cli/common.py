@@ -75,6 +75,15 @@ def parse_assignments(items, what: str) -> dict[str, float]:
     return values
 
 
+def parse_guess(items, system) -> dict[str, float]:
+    """``--guess STATE=VALUE`` items as a dict, refusing names that are not states."""
+    guess = parse_assignments(items, "guess")
+    unknown = [name for name in guess if name not in system.states]
+    if unknown:
+        raise CommandError(f"--guess: unknown state '{unknown[0]}' (states: {', '.join(system.states)})")
+    return guess
+
+
 def parse_number(text: str, what: str) -> float:
     try:
         value = float(text)

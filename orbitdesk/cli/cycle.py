@@ -5,7 +5,7 @@ from orbitdesk.core.cycles import CycleError, find_cycle, find_map_cycle
 from orbitdesk.core.progress import Cancelled
 from orbitdesk.core.system import MAP
 
-from .common import (CommandError, add_value_options, load_system, parse_assignments, parse_number, parse_positive,
+from .common import (CommandError, add_value_options, load_system, parse_guess, parse_number, parse_positive,
                      print_json,
                      read_source, stderr_progress, values_for, write_csv)
 
@@ -30,10 +30,7 @@ def run(args) -> int:
     source = read_source(args.path)
     system = load_system(source)
     p, u0 = values_for(system, source, args.set, args.init)
-    guess = parse_assignments(args.guess, "guess")
-    unknown = [name for name in guess if name not in system.states]
-    if unknown:
-        raise CommandError(f"--guess: unknown state '{unknown[0]}' (states: {', '.join(system.states)})")
+    guess = parse_guess(args.guess, system)
     progress = stderr_progress("cycle")
     try:
         if system.kind == MAP:

@@ -1,0 +1,94 @@
+"""``orbitdesk continue PATH``: branches of equilibria, fixed points or cycles in one parameter with
+their special points (fold, Hopf, branch point, cycle fold, period doubling, torus), or with
+``--locus fold|hopf`` the curve of a fold or Hopf point in two parameters."""
+
+from orbitdesk.core.progress import Cancelled
+from orbitdesk.core.system import MAP
+
+from .common import (CommandError, add_value_options, load_system, parse_guess, parse_number, print_json,
+                     read_source, stderr_progress, values_for)
+
+STARTS = ("equilibrium", "fixed point")
+
+
+def register(sub):
+    parser = sub.add_parser("continue", help="follow equilibria, fixed points or cycles as a parameter moves "
+                                             "and locate their bifurcations")
+    parser.add_argument("path")
+    parser.add_argument("--param", required=True, metavar="NAME", help="the parameter that moves")
+    parser.add_argument("--from", dest="lo", required=True, metavar="A", help="one end of the parameter interval")
+    parser.add_argument("--to", dest="hi", required=True, metavar="B", help="the other end")
+    parser.add_argument("--start", choices=STARTS, metavar="WHAT",
+                        help="what to continue: equilibrium (flows), fixed point (maps) or cycle "
+                             "(default: equilibrium for flows, fixed point for maps)")
+    parser.add_argument("--guess", action="append", metavar="STATE=VALUE",
+                        help="continue only the solution nearest this point (repeatable)")
+    parser.add_argument("--period", type=int, metavar="K", help="maps: continue fixed points of the K-th iterate")
+    parser.add_argument("--max-points", type=int, default=400, metavar="N",
+                        help="most points per direction of a branch (default 400)")
+    parser.add_argument("--no-switch", action="store_true",
+                        help="do not follow the other branches through branch points and period doublings")
+    add_value_options(parser)
+    parser.add_argument("--json", action="store_true", help="print the result as JSON")
+    parser.set_defaults(handler=run)
+
+
+def run(args) -> int:
+    source = read_source(args.path)
+    system = load_system(source)
+    p, u0 = values_for(system, source, args.set, args.init)
+    guess = parse_guess(args.guess, system)
+    lo, hi = parse_number(args.lo, "--from"), parse_number(args.hi, "--to")
+    if args.max_points < 2:
+        raise CommandError("--max-points must be at least 2")
+    if args.param not in system.parameters:
+        raise CommandError(f"--param: unknown parameter '{args.param}' "
+                           f"(parameters: {', '.join(system.parameters) or 'none'})")
+    start = args.start or ("fixed point" if system.kind == MAP else "equilibrium")
+    if system.kind == MAP and start == "equilibrium":
+        start = "fixed point"
+    if system.kind != MAP and start == "fixed point":
+        raise CommandError("--start fixed point is for maps; a flow has equilibria (or cycles)")
+    if args.period is not None and (system.kind != MAP or args.period < 1):
+        raise CommandError("--period K (K at least 1) is for maps")
+    progress = stderr_progress("continue")
+    from orbitdesk.core.continuation import ContinuationError, StepSettings, steady_branches
+    from orbitdesk.core.continuation.branches import default_settings
+
+    settings: StepSettings = default_settings(lo, hi, args.max_points)
+    try:
+        result = steady_branches(system, args.param, lo, hi, p, guess=guess or None, map_period=args.period or 1,
+                                 settings=settings, switch=not args.no_switch, initial=u0, progress=progress)
+    except (ContinuationError, ValueError, KeyError) as err:
+        raise CommandError(str(err.args[0] if isinstance(err, KeyError) else err)) from None
+    except Cancelled:
+        raise CommandError("cancelled") from None
+    if args.json:
+        print_json(result.to_dict())
+    else:
+        print_branches(result)
+    return 0
+
+
+def print_branches(result) -> None:
+    if not result.branches:
+        print("no branch")
+    for number, branch in enumerate(result.branches, start=1):
+        what = branch.kind if branch.map_period == 1 else f"{branch.kind} of the {branch.map_period}th iterate"
+        lo, hi = float(branch.values.min()), float(branch.values.max())
+        print(f"branch {number}: {what}, {branch.size} points, {result.parameter} from {lo:.6g} to {hi:.6g}")
+        for s in branch.special:
+            extra = []
+            if s.frequency is not None:
+                extra.append(f"frequency {s.frequency:.8g}")
+            if s.first_lyapunov_coefficient is not None:
+                extra.append(f"first Lyapunov coefficient {s.first_lyapunov_coefficient:.6g}")
+            if s.period is not None:
+                extra.append(f"period {s.period:.8g}")
+            state = ", ".join(f"{k} = {v:.8g}" for k, v in s.state.items())
+            print(f"  {s.describe()} at {result.parameter} = {s.value:.12g} ({state})"
+                  + (f"; {', '.join(extra)}" if extra else ""))
+        for reason in branch.reasons:
+            print(f"  ended: {reason}")
+    for note in result.notes:
+        print(f"note: {note}")

@@ -1,0 +1,209 @@
+"""Results of continuation: branches with their special points, two-parameter loci, response curves."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+# the words a person reads (and the JSON contract's type strings)
+FOLD, HOPF, BRANCH_POINT = "fold", "hopf", "branch point"
+CYCLE_FOLD, PERIOD_DOUBLING, TORUS = "cycle fold", "period doubling", "torus"
+CUSP, BOGDANOV_TAKENS, GENERALISED_HOPF = "cusp", "bogdanov-takens", "generalised hopf"
+LABELS = {FOLD: "fold", HOPF: "Hopf", BRANCH_POINT: "branch point", CYCLE_FOLD: "cycle fold",
+          PERIOD_DOUBLING: "period doubling", TORUS: "torus", CUSP: "cusp",
+          BOGDANOV_TAKENS: "Bogdanov-Takens", GENERALISED_HOPF: "generalised Hopf"}
+
+EQUILIBRIUM, CYCLE, FIXED_POINT = "equilibrium", "cycle", "fixed point"
+
+
+def _complex_list(values):
+    return [{"re": float(np.real(v)), "im": float(np.imag(v))} for v in values]
+
+
+@dataclass
+class Special:
+    """A located special point of a branch."""
+
+    type: str
+    value: float
+    state: dict[str, float]
+    index: int = 0  # it lies between points index - 1 and index of its branch
+    frequency: float | None = None
+    first_lyapunov_coefficient: float | None = None
+    period: float | None = None
+    note: str = ""
+    internal: dict = field(default_factory=dict, repr=False)  # vectors for switching, not exported
+
+    @property
+    def label(self) -> str:
+        return LABELS.get(self.type, self.type)
+
+    def describe(self) -> str:
+        """One line in words: 'Hopf at r = 24.74 (subcritical: hard onset), frequency 9.62'."""
+        text = self.label
+        if self.type == HOPF and self.first_lyapunov_coefficient is not None:
+            l1 = self.first_lyapunov_coefficient
+            if l1 < 0:
+                text += " (supercritical: soft onset)"
+            elif l1 > 0:
+                text += " (subcritical: hard onset)"
+        return text
+
+    def to_dict(self) -> dict:
+        data = {"type": self.type, "value": self.value, "state": dict(self.state)}
+        for key in ("frequency", "first_lyapunov_coefficient", "period"):
+            if getattr(self, key) is not None:
+                data[key] = getattr(self, key)
+        if self.note:
+            data["note"] = self.note
+        return data
+
+
+@dataclass
+class Branch:
+    """One continued branch: the parameter values, the states and what each point's linearisation says."""
+
+    kind: str
+    parameter: str
+    states: list[str]
+    values: np.ndarray  # (N,)
+    points: np.ndarray  # (n, N): equilibria, fixed points, or a point on each cycle
+    stable: list  # True / False / None per point
+    spectra: list  # eigenvalues (flows) or multipliers (maps, cycles) per point
+    special: list[Special] = field(default_factory=list)
+    reasons: list[str] = field(default_factory=list)
+    periods: np.ndarray | None = None  # cycles
+    maxima: dict[str, np.ndarray] | None = None  # cycles: max of each state over the orbit
+    minima: dict[str, np.ndarray] | None = None
+    map_period: int = 1  # maps: the period K of the fixed points of f^K
+
+    @property
+    def size(self) -> int:
+        return len(self.values)
+
+    @property
+    def spectrum_name(self) -> str:
+        return "eigenvalues" if self.kind == EQUILIBRIUM else "multipliers"
+
+    def amplitude(self, state: str) -> np.ndarray | None:
+        if self.maxima is None:
+            return None
+        return self.maxima[state] - self.minima[state]
+
+    def state_at(self, i: int) -> dict[str, float]:
+        return {s: float(self.points[k, i]) for k, s in enumerate(self.states)}
+
+    def to_dict(self) -> dict:
+        points = []
+        for i in range(self.size):
+            entry = {"value": float(self.values[i]), "state": self.state_at(i), "stable": self.stable[i],
+                     self.spectrum_name: _complex_list(self.spectra[i])}
+            if self.periods is not None:
+                entry["period"] = float(self.periods[i])
+            if self.maxima is not None:
+                entry["amplitude"] = {s: float(self.maxima[s][i] - self.minima[s][i]) for s in self.states}
+            points.append(entry)
+        data = {"kind": self.kind, "points": points, "special": [s.to_dict() for s in self.special],
+                "ended": list(self.reasons)}
+        if self.kind == FIXED_POINT:
+            data["map_period"] = self.map_period
+        return data
+
+    # project storage: plain lists, read back by from_saved
+    def to_saved(self) -> dict:
+        data = self.to_dict()
+        data["parameter"] = self.parameter
+        data["states"] = list(self.states)
+        if self.maxima is not None:
+            data["maxima"] = {s: self.maxima[s].tolist() for s in self.states}
+            data["minima"] = {s: self.minima[s].tolist() for s in self.states}
+        return data
+
+    @classmethod
+    def from_saved(cls, data: dict) -> "Branch":
+        states = [str(s) for s in data["states"]]
+        pts = data["points"]
+        spectrum = "eigenvalues" if data["kind"] == EQUILIBRIUM else "multipliers"
+        values = np.array([float(p["value"]) for p in pts])
+        points = np.array([[float(p["state"][s]) for p in pts] for s in states]).reshape(len(states), len(pts))
+        stable = [p.get("stable") if p.get("stable") in (True, False) else None for p in pts]
+        spectra = [np.array([complex(float(e["re"]), float(e["im"])) for e in p.get(spectrum, [])]) for p in pts]
+        periods = np.array([float(p["period"]) for p in pts]) if pts and "period" in pts[0] else None
+        maxima = minima = None
+        if "maxima" in data:
+            maxima = {s: np.array(data["maxima"][s], dtype=float) for s in states}
+            minima = {s: np.array(data["minima"][s], dtype=float) for s in states}
+        special = []
+        for s in data.get("special", []):
+            special.append(Special(str(s["type"]), float(s["value"]),
+                                   {k: float(v) for k, v in s.get("state", {}).items()},
+                                   frequency=s.get("frequency"),
+                                   first_lyapunov_coefficient=s.get("first_lyapunov_coefficient"),
+                                   period=s.get("period"), note=str(s.get("note", ""))))
+        return cls(str(data["kind"]), str(data["parameter"]), states, values, points, stable, spectra, special,
+                   [str(r) for r in data.get("ended", [])], periods, maxima, minima,
+                   int(data.get("map_period", 1)))
+
+
+@dataclass
+class BranchSet:
+    """Every branch of one continuation run, with notes about the run itself."""
+
+    parameter: str
+    branches: list[Branch]
+    notes: list[str] = field(default_factory=list)
+
+    def to_dict(self) -> dict:
+        return {"parameter": self.parameter, "branches": [b.to_dict() for b in self.branches],
+                "notes": list(self.notes)}
+
+
+@dataclass
+class Locus:
+    """The curve of a fold or Hopf point in two parameters."""
+
+    kind: str  # "fold" or "hopf"
+    parameters: tuple[str, str]
+    states: list[str]
+    values: np.ndarray  # (2, N): first and second parameter
+    points: np.ndarray  # (n, N)
+    special: list[dict] = field(default_factory=list)  # {"type", "values": {p1, p2}, "state"}
+    reasons: list[str] = field(default_factory=list)
+
+    def to_dict(self) -> dict:
+        p1, p2 = self.parameters
+        curve = [{"values": {p1: float(self.values[0, i]), p2: float(self.values[1, i])},
+                  "state": {s: float(self.points[k, i]) for k, s in enumerate(self.states)}}
+                 for i in range(self.values.shape[1])]
+        return {"kind": self.kind, "curve": curve, "special": [dict(s) for s in self.special],
+                "ended": list(self.reasons)}
+
+
+@dataclass
+class ResponseCurve:
+    """The periodic response of a forced flow against a parameter (continued, or stepped)."""
+
+    parameter: str
+    observe: str
+    values: np.ndarray
+    amplitudes: np.ndarray  # half peak-to-peak of the observed state
+    stable: list
+    states: list[str]
+    points: np.ndarray  # (n, N): the response's state at the forcing phase zero
+    special: list[Special] = field(default_factory=list)
+    reasons: list[str] = field(default_factory=list)
+    stepped: str | None = None  # "up" or "down" for a stepped sweep
+
+    def to_dict(self) -> dict:
+        points = [{"value": float(self.values[i]), "amplitude": float(self.amplitudes[i]),
+                   "stable": self.stable[i],
+                   "state": {s: float(self.points[k, i]) for k, s in enumerate(self.states)}}
+                  for i in range(len(self.values))]
+        data = {"parameter": self.parameter, "observe": self.observe, "points": points,
+                "special": [s.to_dict() for s in self.special]}
+        if self.stepped:
+            data["stepped"] = self.stepped
+        if self.reasons:
+            data["ended"] = list(self.reasons)
+        return data
