@@ -13,7 +13,7 @@ import sys
 from .common import CommandError, EXIT_ERRORS, EXIT_UNREADABLE
 
 COMMAND_MODULES = ["open", "check", "run", "equilibria", "cycle", "section", "lyapunov", "sweep", "export", "fit",
-                   "continuation"]
+                   "continuation", "response"]
 
 
 class _Parser(argparse.ArgumentParser):

@@ -117,6 +117,20 @@ def values_for(system, source: Source, sets, inits):
         raise CommandError(f"{err.args[0]} (parameters: {known_p}; states: {known_s})") from None
 
 
+def add_interval_options(parser, what="the parameter that moves"):
+    """--param NAME --from A --to B, read back by ``parse_interval``."""
+    parser.add_argument("--param", required=True, metavar="NAME", help=what)
+    parser.add_argument("--from", dest="lo", required=True, metavar="A", help="one end of the parameter interval")
+    parser.add_argument("--to", dest="hi", required=True, metavar="B", help="the other end")
+
+
+def parse_interval(args, system) -> tuple[float, float]:
+    if args.param not in system.parameters:
+        raise CommandError(f"--param: unknown parameter '{args.param}' "
+                           f"(parameters: {', '.join(system.parameters) or 'none'})")
+    return parse_number(args.lo, "--from"), parse_number(args.hi, "--to")
+
+
 def add_value_options(parser, initial=True):
     parser.add_argument("--set", action="append", metavar="NAME=VALUE", help="set a parameter (repeatable)")
     if initial:

@@ -5,22 +5,22 @@ their special points (fold, Hopf, branch point, cycle fold, period doubling, tor
 from orbitdesk.core.progress import Cancelled
 from orbitdesk.core.system import MAP
 
-from .common import (CommandError, add_value_options, load_system, parse_guess, parse_number, print_json,
-                     read_source, stderr_progress, values_for)
+from .common import (CommandError, add_interval_options, add_value_options, load_system, parse_guess,
+                     parse_interval, print_json, read_source, stderr_progress, values_for)
 
-STARTS = ("equilibrium", "fixed point")
+STARTS = ("equilibrium", "cycle", "fixed point")
 
 
 def register(sub):
     parser = sub.add_parser("continue", help="follow equilibria, fixed points or cycles as a parameter moves "
                                              "and locate their bifurcations")
     parser.add_argument("path")
-    parser.add_argument("--param", required=True, metavar="NAME", help="the parameter that moves")
-    parser.add_argument("--from", dest="lo", required=True, metavar="A", help="one end of the parameter interval")
-    parser.add_argument("--to", dest="hi", required=True, metavar="B", help="the other end")
+    add_interval_options(parser)
     parser.add_argument("--start", choices=STARTS, metavar="WHAT",
-                        help="what to continue: equilibrium (flows), fixed point (maps) or cycle "
-                             "(default: equilibrium for flows, fixed point for maps)")
+                        help="what to continue: equilibrium (flows), fixed point (maps) or cycle (the cycle "
+                             "found from --guess; default: equilibrium for flows, fixed point for maps)")
+    parser.add_argument("--cycles", action="store_true",
+                        help="also continue the cycles born at every Hopf point found")
     parser.add_argument("--guess", action="append", metavar="STATE=VALUE",
                         help="continue only the solution nearest this point (repeatable)")
     parser.add_argument("--period", type=int, metavar="K", help="maps: continue fixed points of the K-th iterate")
@@ -38,17 +38,16 @@ def run(args) -> int:
     system = load_system(source)
     p, u0 = values_for(system, source, args.set, args.init)
     guess = parse_guess(args.guess, system)
-    lo, hi = parse_number(args.lo, "--from"), parse_number(args.hi, "--to")
+    lo, hi = parse_interval(args, system)
     if args.max_points < 2:
         raise CommandError("--max-points must be at least 2")
-    if args.param not in system.parameters:
-        raise CommandError(f"--param: unknown parameter '{args.param}' "
-                           f"(parameters: {', '.join(system.parameters) or 'none'})")
     start = args.start or ("fixed point" if system.kind == MAP else "equilibrium")
     if system.kind == MAP and start == "equilibrium":
         start = "fixed point"
     if system.kind != MAP and start == "fixed point":
         raise CommandError("--start fixed point is for maps; a flow has equilibria (or cycles)")
+    if args.cycles and (system.kind == MAP or start == "cycle"):
+        raise CommandError("--cycles continues the cycles born at the Hopf points of a flow's equilibria")
     if args.period is not None and (system.kind != MAP or args.period < 1):
         raise CommandError("--period K (K at least 1) is for maps")
     progress = stderr_progress("continue")
@@ -57,8 +56,19 @@ def run(args) -> int:
 
     settings: StepSettings = default_settings(lo, hi, args.max_points)
     try:
-        result = steady_branches(system, args.param, lo, hi, p, guess=guess or None, map_period=args.period or 1,
-                                 settings=settings, switch=not args.no_switch, initial=u0, progress=progress)
+        if start == "cycle":
+            from orbitdesk.core.continuation.cycles import cycle_branches
+
+            result = cycle_branches(system, args.param, lo, hi, p, guess=guess or None, initial=u0,
+                                    settings=settings, progress=progress)
+        else:
+            result = steady_branches(system, args.param, lo, hi, p, guess=guess or None,
+                                     map_period=args.period or 1, settings=settings, switch=not args.no_switch,
+                                     initial=u0, progress=progress)
+            if args.cycles:
+                from orbitdesk.core.continuation.cycles import cycles_from_hopf_points
+
+                result = cycles_from_hopf_points(system, result, lo, hi, p, settings)
     except (ContinuationError, ValueError, KeyError) as err:
         raise CommandError(str(err.args[0] if isinstance(err, KeyError) else err)) from None
     except Cancelled:

@@ -55,3 +55,44 @@ def test_continue_refuses_bad_input(capsys, model):
     assert code != 0 and "interval" in err
     code, _, err = run_cli(capsys, "continue", path, "--param", "b", "--from", "0", "--to", "1", "--period", "2")
     assert code != 0 and "maps" in err
+
+
+def test_continue_cycles_from_the_hopf_point(capsys, model):
+    # Strogatz 8.2: r' = mu r + r^3 - r^5 has its cycle fold at mu = -1/4 with period 2 pi
+    text = ("mu = -0.1\nx' = mu*x - y + x*(x^2 + y^2) - x*(x^2 + y^2)^2\n"
+            "y' = x + mu*y + y*(x^2 + y^2) - y*(x^2 + y^2)^2\n")
+    code, out, _ = run_cli(capsys, "continue", model(text), "--param", "mu", "--from", "-0.4", "--to", "0.2",
+                           "--cycles", "--json")
+    assert code == 0
+    branches = json.loads(out)["branches"]
+    assert [b["kind"] for b in branches] == ["equilibrium", "cycle"]
+    cycle = branches[1]
+    assert {"period", "amplitude", "multipliers", "stable"} <= set(cycle["points"][0])
+    (fold,) = [s for s in cycle["special"] if s["type"] == "cycle fold"]
+    assert fold["value"] == pytest.approx(-0.25, abs=1e-9) and fold["period"] == pytest.approx(2 * math.pi)
+
+
+DUFFING = "c = 0.05\nb = 0.1\nF = 0.1\nw = 0.8\nx'' = -c*x' - x - b*x^3 + F*cos(w*t)\n"
+
+
+def test_response_json_contract(capsys, model):
+    path = model(DUFFING)
+    code, out, _ = run_cli(capsys, "response", path, "--param", "w", "--from", "0.8", "--to", "1.4", "--json")
+    assert code == 0
+    data = json.loads(out)
+    assert data["parameter"] == "w"
+    assert set(data["points"][0]) >= {"value", "amplitude", "stable", "state"}
+    folds = sorted(s["value"] for s in data["special"] if s["type"] == "fold")
+    # harmonic balance (Nayfeh & Mook 1979) puts the jumps near w = 1.0761 and 1.1155 for these values
+    assert folds == [pytest.approx(1.0761, rel=2e-3), pytest.approx(1.1155, rel=2e-3)]
+    code, out, _ = run_cli(capsys, "response", path, "--param", "w", "--from", "1.0", "--to", "1.2",
+                           "--stepped", "down", "--count", "5", "--json")
+    assert code == 0
+    points = json.loads(out)["points"]
+    assert [p["value"] for p in points] == pytest.approx([1.2, 1.15, 1.1, 1.05, 1.0])
+    assert all(p["stable"] for p in points)
+
+
+def test_response_refuses_an_unforced_model(capsys, model):
+    code, _, err = run_cli(capsys, "response", model(BRUSSELATOR), "--param", "b", "--from", "0", "--to", "1")
+    assert code != 0 and "forced" in err

@@ -8,7 +8,8 @@ functions are watched between consecutive points; a sign change is located by th
 checking and polishing (for instance Newton on an augmented system).
 
 A problem provides ``size`` (m + 1), ``residual(x)``, ``jacobian(x)`` (m x (m+1)), ``describe(x)``
-(what to store at an accepted point), ``tests(x, tangent, data)`` ({name: float}),
+(what to store at an accepted point; optionally ``quick_describe(x)``, just what the tests need),
+``tests(x, tangent, data, only=None)`` ({name: float}),
 ``special(name, x, tangent, data)`` (a SpecialPoint or None to reject), optionally ``accept(x)``
 (e.g. to move a phase condition's reference) and ``out_of_bounds(x)`` (a reason or None).
 """
@@ -218,9 +219,9 @@ def _one_direction(problem, x0, t0, lo, hi, settings, cancel, report):
             reason = STEP_REASONS["closed"]
             break
         x, t, tests = x_new, t_new, tests_new
-        if its <= 2:
-            ds = min(ds * 1.5, settings.ds_max)
-        elif its >= 5:
+        if its <= 3:
+            ds = min(ds * (1.5 if its <= 2 else 1.25), settings.ds_max)
+        elif its >= 6:
             ds = max(ds * 0.6, settings.ds_min)
         if turn > 0.5 * settings.max_turn:
             ds = max(ds * 0.7, settings.ds_min)
@@ -279,4 +280,5 @@ def _test_value(problem, name, x, reference):
     tangent = tangent_at(problem, x, reference)
     if tangent is None:
         return None
-    return problem.tests(x, tangent, problem.describe(x), only=name).get(name)
+    describe = getattr(problem, "quick_describe", problem.describe)  # what the tests need, no more
+    return problem.tests(x, tangent, describe(x), only=name).get(name)

@@ -16,7 +16,7 @@ from functools import cached_property
 
 import numpy as np
 import sympy as sp
-from scipy.integrate import ode
+from scipy.integrate import ode, solve_ivp
 
 from ..system import MAP, CompiledSystem, UndefinedValue
 
@@ -199,15 +199,15 @@ class ModelFunctions:
             return f(t, *u, *pv)
 
         times = np.linspace(t0, t1, samples)
-        out = np.empty((self.n, samples))
-        out[:, 0] = u0
-        solver = _solver(rhs, u0, t0, rtol, atol)
-        for i, t in enumerate(times[1:], start=1):
+        try:
             with np.errstate(all="ignore"):
-                out[:, i] = solver.integrate(t)
-            if not solver.successful():
-                raise ContinuationError("the integration along the orbit failed")
-        return times, out
+                sol = solve_ivp(rhs, (t0, t1), np.asarray(u0, dtype=float), method="DOP853", t_eval=times,
+                                rtol=rtol, atol=atol)
+        except UNDEFINED:
+            sol = None
+        if sol is None or sol.status != 0 or sol.y.shape[1] != samples:
+            raise ContinuationError("the integration along the orbit failed")
+        return times, sol.y
 
 
 def _solver(rhs, y0, t0, rtol, atol):
@@ -252,10 +252,11 @@ def _complex_multilinear(real_form, *vectors):
 
 def peak_to_peak(values: np.ndarray) -> float:
     """max - min of an evenly sampled periodic signal, with each extreme refined by a parabola."""
-    return _extreme(values, max) - _extreme(values, min)
+    return extreme(values, max) - extreme(values, min)
 
 
-def _extreme(values, pick):
+def extreme(values, pick) -> float:
+    """The max (``pick=max``) or min of one evenly sampled closed period, refined by a parabola."""
     values = np.asarray(values, dtype=float)
     k = int(np.argmax(values) if pick is max else np.argmin(values))
     m = len(values) - 1  # the last sample repeats the first (one closed period)

@@ -32,6 +32,7 @@ class Special:
     frequency: float | None = None
     first_lyapunov_coefficient: float | None = None
     period: float | None = None
+    amplitude: float | None = None  # forced responses: half peak-to-peak of the observed state
     note: str = ""
     internal: dict = field(default_factory=dict, repr=False)  # vectors for switching, not exported
 
@@ -52,7 +53,7 @@ class Special:
 
     def to_dict(self) -> dict:
         data = {"type": self.type, "value": self.value, "state": dict(self.state)}
-        for key in ("frequency", "first_lyapunov_coefficient", "period"):
+        for key in ("frequency", "first_lyapunov_coefficient", "period", "amplitude"):
             if getattr(self, key) is not None:
                 data[key] = getattr(self, key)
         if self.note:
@@ -140,7 +141,8 @@ class Branch:
                                    {k: float(v) for k, v in s.get("state", {}).items()},
                                    frequency=s.get("frequency"),
                                    first_lyapunov_coefficient=s.get("first_lyapunov_coefficient"),
-                                   period=s.get("period"), note=str(s.get("note", ""))))
+                                   period=s.get("period"), amplitude=s.get("amplitude"),
+                                   note=str(s.get("note", ""))))
         return cls(str(data["kind"]), str(data["parameter"]), states, values, points, stable, spectra, special,
                    [str(r) for r in data.get("ended", [])], periods, maxima, minima,
                    int(data.get("map_period", 1)))

@@ -1,0 +1,61 @@
+"""``orbitdesk response PATH``: the periodic response of a periodically forced flow against a parameter
+(the frequency-response curve, with its unstable part and jump points), or a stepped sweep up or down
+that starts each value from the previous value's final state."""
+
+from orbitdesk.core.progress import Cancelled
+
+from .common import (CommandError, add_interval_options, add_value_options, load_system, parse_guess,
+                     parse_interval, print_json, read_source, stderr_progress, values_for)
+
+
+def register(sub):
+    parser = sub.add_parser("response", help="frequency-response curve of a periodically forced flow")
+    parser.add_argument("path")
+    add_interval_options(parser, "the parameter that moves (e.g. the forcing frequency)")
+    parser.add_argument("--observe", metavar="STATE", help="the state whose amplitude is reported (default: the first)")
+    parser.add_argument("--stepped", choices=("up", "down"),
+                        help="step the parameter up or down from the model's initial state instead of continuing")
+    parser.add_argument("--count", type=int, default=60, metavar="N", help="values of a stepped sweep (default 60)")
+    parser.add_argument("--max-points", type=int, default=400, metavar="N",
+                        help="most points per direction of the continued curve (default 400)")
+    parser.add_argument("--guess", action="append", metavar="STATE=VALUE",
+                        help="a state near the response to start the continuation from (repeatable)")
+    add_value_options(parser)
+    parser.add_argument("--json", action="store_true", help="print the result as JSON")
+    parser.set_defaults(handler=run)
+
+
+def run(args) -> int:
+    source = read_source(args.path)
+    system = load_system(source)
+    p, u0 = values_for(system, source, args.set, args.init)
+    guess = parse_guess(args.guess, system)
+    lo, hi = parse_interval(args, system)
+    if args.count < 2 or args.max_points < 2:
+        raise CommandError("--count and --max-points must be at least 2")
+    from orbitdesk.core.continuation import ContinuationError
+    from orbitdesk.core.continuation.response import response_curve, response_settings, stepped_sweep
+
+    progress = stderr_progress("response")
+    try:
+        if args.stepped:
+            curve = stepped_sweep(system, args.param, lo, hi, args.stepped, args.count, p, args.observe,
+                                  initial=u0, progress=progress)
+        else:
+            curve = response_curve(system, args.param, lo, hi, p, args.observe, guess=guess or None, initial=u0,
+                                   settings=response_settings(lo, hi, args.max_points), progress=progress)
+    except (ContinuationError, ValueError, KeyError) as err:
+        raise CommandError(str(err.args[0] if isinstance(err, KeyError) else err)) from None
+    except Cancelled:
+        raise CommandError("cancelled") from None
+    if args.json:
+        print_json(curve.to_dict())
+        return 0
+    what = f"stepped {curve.stepped}" if curve.stepped else "continued"
+    print(f"response of {curve.observe} against {curve.parameter} ({what}): {len(curve.values)} points, "
+          f"largest amplitude {curve.amplitudes.max():.6g}")
+    for s in curve.special:
+        print(f"  {s.describe()} at {curve.parameter} = {s.value:.10g}, amplitude {s.amplitude:.6g}")
+    for reason in curve.reasons:
+        print(f"  ended: {reason}")
+    return 0
