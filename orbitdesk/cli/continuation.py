@@ -6,7 +6,7 @@ from orbitdesk.core.progress import Cancelled
 from orbitdesk.core.system import MAP
 
 from .common import (CommandError, add_interval_options, add_value_options, load_system, parse_guess,
-                     parse_interval, print_json, read_source, stderr_progress, values_for)
+                     parse_interval, parse_number, print_json, read_source, stderr_progress, values_for)
 
 STARTS = ("equilibrium", "cycle", "fixed point")
 
@@ -28,6 +28,11 @@ def register(sub):
                         help="most points per direction of a branch (default 400)")
     parser.add_argument("--no-switch", action="store_true",
                         help="do not follow the other branches through branch points and period doublings")
+    parser.add_argument("--locus", choices=("fold", "hopf"),
+                        help="follow the fold or Hopf point of the branch in two parameters")
+    parser.add_argument("--param2", metavar="NAME", help="the second parameter of a locus")
+    parser.add_argument("--range2", metavar="LO:HI",
+                        help="bounds of the second parameter (default: its slider range, else 10 units around it)")
     add_value_options(parser)
     parser.add_argument("--json", action="store_true", help="print the result as JSON")
     parser.set_defaults(handler=run)
@@ -56,6 +61,10 @@ def run(args) -> int:
 
     settings: StepSettings = default_settings(lo, hi, args.max_points)
     try:
+        if args.locus:
+            return _locus(system, p, u0, guess, lo, hi, args, progress)
+        if args.param2 or args.range2:
+            raise CommandError("--param2 and --range2 go with --locus fold|hopf")
         if start == "cycle":
             from orbitdesk.core.continuation.cycles import cycle_branches
 
@@ -102,3 +111,33 @@ def print_branches(result) -> None:
             print(f"  ended: {reason}")
     for note in result.notes:
         print(f"note: {note}")
+
+
+def _locus(system, p, u0, guess, lo, hi, args, progress) -> int:
+    from orbitdesk.core.continuation.loci import locus
+    from orbitdesk.core.continuation.results import LABELS
+
+    if not args.param2:
+        raise CommandError("--locus needs the second parameter: --param2 NAME")
+    if args.param2 not in system.parameters or args.param2 == args.param:
+        raise CommandError(f"--param2: give a parameter other than {args.param} "
+                           f"(parameters: {', '.join(system.parameters) or 'none'})")
+    range2 = None
+    if args.range2:
+        lo2, sep, hi2 = args.range2.partition(":")
+        if not sep:
+            raise CommandError(f"--range2 expects LO:HI, got '{args.range2}'")
+        range2 = (parse_number(lo2, "--range2"), parse_number(hi2, "--range2"))
+    result = locus(system, args.locus, args.param, args.param2, lo, hi, p, guess=guess or None, initial=u0,
+                   range2=range2, progress=progress)
+    if args.json:
+        print_json(result.to_dict())
+        return 0
+    p1, p2 = result.parameters
+    print(f"{args.locus} locus in ({p1}, {p2}): {result.values.shape[1]} points")
+    for s in result.special:
+        values = ", ".join(f"{k} = {v:.10g}" for k, v in s["values"].items())
+        print(f"  {LABELS.get(s['type'], s['type'])} at {values}")
+    for reason in result.reasons:
+        print(f"  ended: {reason}")
+    return 0

@@ -96,3 +96,17 @@ def test_response_json_contract(capsys, model):
 def test_response_refuses_an_unforced_model(capsys, model):
     code, _, err = run_cli(capsys, "response", model(BRUSSELATOR), "--param", "b", "--from", "0", "--to", "1")
     assert code != 0 and "forced" in err
+
+
+def test_continue_locus_json_contract(capsys, model):
+    code, out, _ = run_cli(capsys, "continue", model("a = 0.1\nb = 1\nx' = a + b*x - x^3\n"), "--locus", "fold",
+                           "--param", "a", "--param2", "b", "--from", "-1", "--to", "1", "--json")
+    assert code == 0
+    data = json.loads(out)
+    assert set(data["curve"][0]) == {"values", "state"} and set(data["curve"][0]["values"]) == {"a", "b"}
+    for point in data["curve"]:  # closed form: 27 a^2 = 4 b^3
+        assert 27 * point["values"]["a"] ** 2 == pytest.approx(4 * point["values"]["b"] ** 3, abs=1e-9)
+    assert [s["type"] for s in data["special"]] == ["cusp"]
+    code, _, err = run_cli(capsys, "continue", model("a = 0.1\nb = 1\nx' = a + b*x - x^3\n"), "--locus", "fold",
+                           "--param", "a", "--from", "-1", "--to", "1")
+    assert code != 0 and "--param2" in err
