@@ -13,6 +13,7 @@ from pathlib import Path
 
 from orbitdesk.core.model import parse_model
 from orbitdesk.core.project import ParameterSetting, Project, SolverSettings, dumps
+from orbitdesk.core.view_settings import missing_names, unknown_keys
 from orbitdesk.core.walkthrough import apply_step, record_step
 
 OUT = Path(__file__).resolve().parent.parent / "sample_projects"
@@ -24,6 +25,13 @@ def sample(file, name, model, solver, views, notes, steps):
     if not parsed.ok:
         raise SystemExit(f"{file}: the model has errors: {[d.format() for d in parsed.errors]}")
     params = {n: p.value for n, p in parsed.parameters.items()}
+    known = {"series": set(parsed.states) | set(parsed.derived) | {str(parsed.time_symbol)},
+             "state": set(parsed.states), "parameter": set(parsed.parameters)}
+    for view_id, settings in views.items():
+        wrong = unknown_keys(view_id, settings) + [f"{path} = {n}" for path, _k, n in
+                                                   missing_names(view_id, settings, known)]
+        if wrong:
+            raise SystemExit(f"{file}: the {view_id} view does not have {wrong}")
     initial = dict(parsed.initial)
     walkthrough = []
     for title, note, over in steps:
@@ -65,9 +73,9 @@ energy = x'^2/2 - x^2/2 + x^4/4     # motion plus magnetic energy: -1/4 at rest 
 """,
     dict(method="dop853", t_end=400.0, samples=16000, rtol=1e-9, atol=1e-11),
     {"timeseries": {"series": ["x"]}, "phase_plane": {"x": "x", "y": "x'"},
-     "sections": {"strobe": round(FORCING_PERIOD, 6), "count": 600, "transient": 60.0},
-     "sweep": {"param": "gamma", "from": 0.2, "to": 0.5, "count": 200, "strobe": round(FORCING_PERIOD, 6),
-               "transient": 300.0, "samples": 64}},
+     "sections": {"kind": "strobe", "period": round(FORCING_PERIOD, 6), "count": 600, "transient": 60.0},
+     "sweep": {"parameter": "gamma", "from": 0.2, "to": 0.5, "count": 200, "observe": "x", "mode": "strobe",
+               "period": round(FORCING_PERIOD, 6), "transient": 300.0, "samples": 64}},
     "A strip of steel between two magnets, shaken at its foot: from a steady wobble to chaos.",
     [
         ("Without shaking, the strip picks a magnet",
@@ -150,8 +158,8 @@ z(0) = 1
     dict(method="dop853", t_end=100.0, samples=10000),
     {"timeseries": {"series": ["x"]}, "phase_space_3d": {"axes": ["x", "y", "z"]},
      "phase_plane": {"x": "x", "y": "z"}, "equilibria": {},
-     "sections": {"plane": "z=27", "direction": "up", "count": 500},
-     "lyapunov": {"t_end": 400.0, "transient": 20.0}},
+     "sections": {"kind": "plane", "coordinate": "z", "value": 27.0, "direction": "up", "count": 500},
+     "lyapunov": {"flow": {"length": 400.0, "transient": 20.0}}},
     "Water warmed from below in an upright ring of tubing: still, circulating, or reversing at random.",
     [
         ("Too little heat: the water stays still",
@@ -273,7 +281,8 @@ y(0) = 1
 """,
     dict(method="dop853", t_end=60.0, samples=6000),
     {"timeseries": {"series": ["x", "y"]}, "phase_plane": {"x": "x", "y": "y"}, "equilibria": {},
-     "sweep": {"param": "b", "from": 1.0, "to": 3.0, "count": 121, "maxima": "x", "transient": 200.0}},
+     "sweep": {"parameter": "b", "from": 1.0, "to": 3.0, "count": 121, "observe": "x", "mode": "maxima",
+               "transient": 200.0}},
     "A reaction that settles or ticks: the Hopf bifurcation of the Brusselator at b = 1 + a^2.",
     [
         ("A slow feed: the colour settles",
@@ -328,7 +337,7 @@ fish(0) = 1
 """,
     dict(method="dop853", t_end=120.0, samples=6000),
     {"timeseries": {"series": ["fleas", "fish"]},
-     "phase_plane": {"x": "fleas", "y": "fish", "nullclines": True, "field": True}, "equilibria": {}},
+     "phase_plane": {"x": "fleas", "y": "fish", "nullclines": True, "arrows": True}, "equilibria": {}},
     "Fleas and the fish that eat them: nullclines, kinds of equilibria, and what enrichment does.",
     [
         ("Fleas alone",
@@ -389,9 +398,10 @@ x[n+1] = r*x*(1 - x)
 x[0] = 0.1
 """,
     dict(steps=300),
-    {"timeseries": {"series": ["x"], "style": "dots"}, "equilibria": {},
-     "sweep": {"param": "r", "from": 2.5, "to": 4.0, "count": 600, "transient": 500, "samples": 200},
-     "lyapunov": {"steps": 5000, "transient": 500}},
+    {"timeseries": {"series": ["x"]}, "equilibria": {},
+     "sweep": {"parameter": "r", "from": 2.5, "to": 4.0, "count": 600, "observe": "x", "transient": 500,
+               "samples": 200},
+     "lyapunov": {"map": {"steps": 5000, "transient": 500}}},
     "A yearly count that settles, alternates, doubles its period and turns chaotic: the logistic map.",
     [
         ("A steady population",
@@ -451,7 +461,7 @@ theta'(0) = 0
 energy = theta'^2/2 + (g/L)*(1 - cos(theta))    # per unit of mass times L^2; 0 hanging still
 """,
     dict(method="dop853", t_end=20.0, samples=4000),
-    {"timeseries": {"series": ["theta"]}, "phase_plane": {"x": "theta", "y": "theta'", "field": True},
+    {"timeseries": {"series": ["theta"]}, "phase_plane": {"x": "theta", "y": "theta'", "arrows": True},
      "equilibria": {}},
     "A pendulum typed as theta'' = ..., with its energy as a derived quantity and the separatrix.",
     [

@@ -20,10 +20,11 @@ import numbers
 import re
 
 from .project import METHODS, WalkthroughStep
+from .view_settings import VIEW_SETTINGS, missing_names, unknown_keys, without
 
 SNAPSHOT_KEYS = ("parameters", "initial", "solver", "views", "open_views", "camera",
                  "selected_equilibrium", "section", "time_cursor")
-VIEW_IDS = ("timeseries", "phase_plane", "phase_space_3d", "equilibria", "sections", "sweep", "lyapunov")
+VIEW_IDS = tuple(VIEW_SETTINGS)
 _SOLVER_NUMBERS = {"rtol": "positive", "atol": "positive", "max_step": "positive_or_null", "dt": "positive",
                    "t_start": "number", "t_end": "number", "transient": "non_negative"}
 _SOLVER_INTEGERS = {"samples": 2, "steps": 1}
@@ -229,41 +230,37 @@ def _model_names(info):
 
 
 def _view_problems(view_id: str, settings: dict, series: set[str], states: list[str], params: list[str]):
-    """Axis or parameter names in a view's settings that the model no longer has."""
+    """Names in a view's settings that the model no longer has (by the views' one definition of their
+    settings, ``view_settings.VIEW_SETTINGS``), and the settings without them; None for the settings
+    when the view's parameter is gone (its other settings belong to that parameter)."""
     problems, keep = [], dict(settings)
-    for key in _AXIS_KEYS:
-        name = settings.get(key)
-        if isinstance(name, str) and name not in series:
-            problems.append(f"the {view_id.replace('_', ' ')} view's {key} axis shows '{name}', which the model "
-                            f"no longer has; that axis is left as it was")
-            del keep[key]
-    for key in ("axes", "series"):
-        names = settings.get(key)
-        if isinstance(names, list):
-            missing = [a for a in names if not isinstance(a, str) or a not in series]
-            if missing:
-                problems.append(f"the {view_id.replace('_', ' ')} view's {key} name "
-                                f"{', '.join(map(str, missing))}, which the model no longer has; "
-                                f"the {key} are left as they were")
-                del keep[key]
-    for key in ("observe", "maxima"):
-        name = settings.get(key)
-        if isinstance(name, str) and name not in series:
-            problems.append(f"the {view_id.replace('_', ' ')} view observes '{name}', which the model no longer "
-                            f"has; that setting is left as it was")
-            del keep[key]
-    param = settings.get("param")
-    if isinstance(param, str) and param not in params:
-        problems.append(f"the {view_id.replace('_', ' ')} view sweeps '{param}', which is no longer a parameter; "
-                        f"that view's settings are left as they were")
-        return problems, None
-    plane = settings.get("plane")
-    if isinstance(plane, str):
-        m = _PLANE.match(plane)
-        if not m or m.group(1) not in states:
-            problems.append(f"the {view_id.replace('_', ' ')} view cuts at '{plane}', which does not name a state; "
-                            f"that setting is left as it was")
-            del keep["plane"]
+    where = f"the {view_id.replace('_', ' ')} view"
+    known = {"series": series, "state": set(states), "parameter": set(params)}
+    missing = missing_names(view_id, settings, known)
+    lists = {}
+    for path, kind, name in missing:
+        key = path.split(".")[-1]
+        if kind == "parameter":
+            problems.append(f"{where} sweeps '{name}', which is no longer a parameter; that view's settings "
+                            f"are left as they were")
+            return problems, None
+        if VIEW_SETTINGS[view_id].get(path) == "series list":
+            lists.setdefault(path, []).append(name)
+        elif key in _AXIS_KEYS:
+            problems.append(f"{where}'s {key} axis shows '{name}', which the model no longer has; that axis is "
+                            f"left as it was")
+            keep = without(keep, path)
+        else:
+            problems.append(f"{where}'s {path.replace('.', ' ').replace('_', ' ')} names '{name}', which the "
+                            f"model no longer has; that setting is left as it was")
+            keep = without(keep, path)
+    for path, names in lists.items():
+        problems.append(f"{where}'s {path} name {', '.join(names)}, which the model no longer has; "
+                        f"the {path} are left as they were")
+        keep = without(keep, path)
+    for path in unknown_keys(view_id, settings) if view_id in VIEW_SETTINGS else ():
+        problems.append(f"{where} has no setting '{path}'; it is left out")
+        keep = without(keep, path)
     return problems, keep
 
 

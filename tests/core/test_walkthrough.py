@@ -82,7 +82,7 @@ def test_apply_after_model_edit_names_what_is_gone_and_applies_the_rest():
 
 def test_apply_accepts_plain_names_and_reports_bad_types():
     step = WalkthroughStep("odd", "", {"parameters": {"a": True}, "time_cursor": "soon", "zoom": 3,
-                                       "section": {"strobe": -1}, "views": {"sweep": {"param": "b"}}})
+                                       "section": {"strobe": -1}, "views": {"sweep": {"parameter": "b"}, "sections": {"plane": "x=1"}}})
     new, problems = apply_step(step, {"states": ["x"], "parameters": ["a"]}, {"time_cursor": 1.0})
     text = " | ".join(problems)
     assert "value of 'a' should be a finite number" in text
@@ -90,6 +90,7 @@ def test_apply_accepts_plain_names_and_reports_bad_types():
     assert "setting 'zoom' that OrbitDesk does not know" in text
     assert "stroboscopic period should be a positive number" in text
     assert "sweeps 'b', which is no longer a parameter" in text
+    assert "sections view has no setting 'plane'" in text  # the sections view keeps coordinate and value
     assert new["time_cursor"] == 1.0 and "sweep" not in new.get("views", {})
 
 

@@ -3,11 +3,13 @@ through the walkthrough panel (Next until the end): each step puts the values wr
 on screen, runs cleanly and reports no problems; leaving gives the sample's own values back."""
 
 import json
+import re
 from pathlib import Path
 
 import pytest
 from PySide6.QtCore import Qt
 
+from orbitdesk.core.view_settings import names_in, unknown_keys
 from orbitdesk.ui import help as help_ui
 
 SAMPLES = sorted(help_ui.SAMPLES_DIR.glob("*.orbitdesk"))
@@ -17,6 +19,37 @@ def wait_idle_run(qtbot, session, timeout=30000):
     """Until the main run for the values now on screen has finished (and it went well)."""
     qtbot.waitUntil(lambda: session.system is not None and session.trajectory is not None
                     and not session.jobs.running("run") and not session._run_timer.isActive(), timeout=timeout)
+
+
+def setting(d, path):
+    for key in path.split("."):
+        d = d[key]
+    return d
+
+
+def check_views_show_the_step(window, raw, step):
+    """Each open view shows the names the sample's settings and the step give it, and the parameter a
+    sweep runs over is the one the step's note speaks of."""
+    title, snap = step["title"], step["snapshot"]
+    for view_id in snap.get("open_views", []):
+        view = window.views.get(view_id)
+        if view is None:
+            continue
+        wanted = {**raw["views"].get(view_id, {}), **snap.get("views", {}).get(view_id, {})}
+        assert unknown_keys(view_id, wanted) == [], (title, view_id)
+        shown = view.view_settings()
+        for path, _kind, name in names_in(view_id, wanted):
+            value = setting(shown, path)
+            assert (name in value) if isinstance(value, list) else value == name, (title, view_id, path, value)
+        if view_id == "sweep":
+            assert re.search(rf"`{re.escape(shown['parameter'])}\b", step["note"]), (title, shown["parameter"])
+            assert (shown["from"], shown["to"]) == (wanted["from"], wanted["to"]), title
+        if view_id == "sections" and "section" in snap:
+            if "strobe" in snap["section"]:
+                assert (shown["kind"], shown["period"]) == ("strobe", snap["section"]["strobe"]), title
+            else:
+                name, _, value = snap["section"]["plane"].partition("=")
+                assert (shown["kind"], shown["coordinate"], shown["value"]) == ("plane", name, float(value)), title
 
 
 def test_every_sample_is_listed():
@@ -60,6 +93,7 @@ def test_sample_walkthrough_replays_in_the_app(qtbot, window, path):
             if view_id in window.view_docks:
                 assert window.view_docks[view_id].isVisible(), (steps[i]["title"], view_id)
                 assert window.views.get(view_id) is not None
+        check_views_show_the_step(window, raw, steps[i])
         wait_idle_run(qtbot, s)
         assert s.trajectory.status == "ok", (steps[i]["title"], s.trajectory.message)
         if panel.missing_views:
