@@ -77,7 +77,7 @@ def _flow_cycle(system, p, u0, guess, args, progress) -> int:
     forcing = parse_positive(args.forcing_period, "--forcing-period") if args.forcing_period is not None else None
     if args.forcing_multiple is not None and args.forcing_multiple < 1:
         raise CommandError("--forcing-multiple must be at least 1")
-    if not system.autonomous and period_guess is not None:
+    if not system.autonomous_at(p) and period_guess is not None:
         raise CommandError("this flow depends on time: its period is a multiple of the forcing period; "
                            "give --forcing-period (and --forcing-multiple) instead of --period-guess")
     cycle = find_cycle(system, p, guess=system.initial_vector(guess) if guess else None, period_guess=period_guess,

@@ -41,7 +41,7 @@ def _project_for(source, system, p, u0) -> Project:
 
 
 def _equilibria(system, p):
-    if not system.autonomous:
+    if not system.autonomous_at(p):
         return None
     try:
         from orbitdesk.core.equilibria import find_equilibria

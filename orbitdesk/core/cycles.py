@@ -204,7 +204,7 @@ def find_cycle(system: CompiledSystem, p=None, guess=None, period_guess: float |
         warnings.append(NONSMOOTH_WARNING.format(names=", ".join(system.nonsmooth)))
     if system.autonomous and forcing_period is not None:
         raise ValueError(f"the equations do not depend on {system.time_name}: there is no forcing period")
-    if not system.autonomous:
+    if forcing_period is not None or not system.autonomous_at(p):  # a forcing switched off counts as absent
         if forcing_period is None:
             forcing_period = detect_forcing_period(system, p)
             if forcing_period is None:

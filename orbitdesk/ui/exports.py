@@ -179,7 +179,7 @@ def export_report(window, path, on_done=None, search_equilibria: bool = True) ->
         _done(None, str(e))
         return
     equilibria = _view_equilibria(window, system)
-    if equilibria is not None or not search_equilibria or not system.autonomous:
+    if equilibria is not None or not search_equilibria or not system.autonomous_at(session.param_vector()):
         finish(equilibria)
         return
     p, u0 = session.param_vector(), session.initial_vector()

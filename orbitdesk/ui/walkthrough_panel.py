@@ -761,6 +761,13 @@ class WalkthroughPanel(QWidget):
             app.removeEventFilter(self)
         self.steps_box.setVisible(not on)
         dock = self.parentWidget()
+        model_dock = getattr(self.main_window, "model_dock", None)
+        if model_dock is not None:  # the editor and the sliders leave the stage while presenting
+            if on:
+                self._model_dock_was_open = model_dock.isVisible()
+                model_dock.hide()
+            elif getattr(self, "_model_dock_was_open", False):
+                model_dock.show()
         if on:
             self._was_full_screen = self.main_window.isFullScreen()
             self._was_maximized = self.main_window.isMaximized()
@@ -784,10 +791,17 @@ class WalkthroughPanel(QWidget):
     def eventFilter(self, obj, event) -> bool:
         """While presenting: arrows and Page Up/Down (what presentation remotes send) step through the
         walkthrough, Esc stops; a field the user is typing in keeps its keys."""
-        if not self.presenting or event.type() != QEvent.Type.KeyPress or event.modifiers() & ~KEYPAD:
+        kind = event.type()
+        if (not self.presenting or kind not in (QEvent.Type.KeyPress, QEvent.Type.ShortcutOverride)
+                or event.modifiers() & ~KEYPAD):
             return False
         action = PRESENT_KEYS.get(event.key())
         if action is None or not isinstance(obj, QWidget) or obj.window() is not self.main_window:
+            return False
+        if kind == QEvent.Type.ShortcutOverride:
+            # Esc belongs to presenting (a view's Esc-cancels-its-job shortcut must not take it first)
+            if action == "stop":
+                event.accept()
             return False
         focus = QApplication.focusWidget()
         if action != "stop" and _takes_arrows(focus):

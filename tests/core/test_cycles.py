@@ -38,6 +38,16 @@ def test_van_der_pol_mu_one_period(vdp):
     assert np.allclose(cycle.orbit[:, 0], cycle.orbit[:, -1], atol=1e-7)
 
 
+def test_forcing_switched_off_by_its_parameter_is_an_autonomous_cycle():
+    # the same Van der Pol cycle (period 6.6633 at mu = 1, from memory) with a forcing term whose
+    # amplitude is zero: found by autonomous shooting, with the trivial multiplier 1
+    forced = compile_model("mu = 1\nA = 0\nw = 1.1\nx'' = mu*(1 - x^2)*x' - x + A*cos(w*t)\nx(0) = 0.5\n")
+    assert not forced.autonomous and forced.autonomous_at(forced.param_vector({}))
+    cycle = find_cycle(forced, forced.param_vector({}))
+    assert cycle.period == pytest.approx(6.6633, abs=5e-5)
+    assert cycle.forcing_period is None and abs(cycle.multipliers[cycle.trivial_index] - 1) < 1e-6
+
+
 def test_van_der_pol_relaxation_period(vdp):
     # Strogatz, sec. 7.5: for mu >> 1 the period is (3 - 2 ln 2) mu to leading order; the plain form has
     # corrections of order mu^(-1/3), about 3% at mu = 40, so 10% is an honest tolerance.

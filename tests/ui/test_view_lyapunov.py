@@ -119,7 +119,8 @@ def test_settings_round_trip_and_stale_note(qtbot, session):
     assert d["flow"] == {"length": 50.0, "transient": 5.0} and d["dt"] == 0.005 and d["auto"] is False
     assert view.result.dt == pytest.approx(0.005)
     wait_for_trajectory(qtbot, session, lambda: session.set_param("r", 30.0))
-    assert "Values changed" in view.notes.text()
+    assert view.is_stale() and not view.stale_bar.isHidden()
+    assert "r = 28 (now 30)" in view.stale_bar.label.text()
     other = make_view(qtbot, session)
     other.apply_view_settings(d)
     assert other.view_settings() == d

@@ -2,6 +2,8 @@
 the user's own state; undoable record/delete/reorder/edit; save and reopen; a step that names a parameter
 the model lost; presenting mode."""
 
+import time
+
 import numpy as np
 import pytest
 from PySide6.QtCore import QModelIndex, Qt
@@ -249,6 +251,34 @@ def test_presenting_mode_enlarges_the_type_and_takes_the_arrow_keys(qtbot, windo
     assert panel.steps_box.isVisible() and panel.in_walkthrough
     qtbot.keyClick(window, Qt.Key.Key_Right)  # arrows are the user's again
     assert panel.current == 1
+
+
+def test_escape_leaves_presenting_even_while_a_view_computes(qtbot, window, tmp_path):
+    steps = [WalkthroughStep("One", "note", {"parameters": {"w": 1.5}, "open_views": ["phase_plane"]})]
+    open_oscillator(qtbot, window, tmp_path, steps)
+    s, panel = window.session, window.walkthrough_panel
+    assert window.model_dock.isVisible()
+    qtbot.mouseClick(panel.present_button, Qt.MouseButton.LeftButton)
+    qtbot.waitUntil(window.isFullScreen)
+    assert not window.model_dock.isVisible()  # no editor and no sliders on the stage
+    view = window.views["phase_plane"]
+    from orbitdesk.ui.plot_style import JobStrip
+
+    strip = JobStrip(s, "Waiting", view)
+    view.layout().addWidget(strip)
+
+    def wait_for_cancel(cancel, report):
+        while not cancel.cancelled:
+            time.sleep(0.01)
+
+    strip.run("long", wait_for_cancel, lambda _r: None)
+    view.setFocus()
+    qtbot.keyClick(view, Qt.Key.Key_Escape)
+    assert not panel.presenting  # the first Esc ends presenting
+    assert strip.running  # and the view's job goes on
+    qtbot.waitUntil(lambda: not window.isFullScreen())
+    assert window.model_dock.isVisible()
+    strip.cancel()
 
 
 def test_opening_another_project_ends_the_walkthrough(qtbot, window, tmp_path):

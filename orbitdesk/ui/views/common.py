@@ -4,30 +4,61 @@ views that draw trajectories."""
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from contextlib import contextmanager
 
 import numpy as np
 from PySide6.QtCore import QEvent, Qt, QTimer
-from PySide6.QtWidgets import (QAbstractButton, QCheckBox, QComboBox, QHBoxLayout, QLabel, QPushButton,
+from PySide6.QtWidgets import (QAbstractButton, QCheckBox, QComboBox, QFrame, QHBoxLayout, QLabel, QPushButton,
                                QSizePolicy, QVBoxLayout, QWidget)
 
-from ..plot_style import hint_label, orbit_middle
+from ..plot_style import hint_label, number_text, orbit_middle
 
 DIRECTION_LABELS = ("upward", "downward", "both ways")
 
 
+class StaleBar(QFrame):
+    """A strip over a view's result: "Computed for other values (r = 28, now 30)" and a Recompute button."""
+
+    def __init__(self, recompute, parent=None):
+        super().__init__(parent)
+        self.setObjectName("stale_bar")
+        self.setFrameShape(QFrame.Shape.StyledPanel)
+        self.setStyleSheet("#stale_bar { background: palette(alternate-base); border-radius: 3px; }")
+        self.label = QLabel()
+        self.label.setWordWrap(True)
+        self.label.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
+        self.button = push_button("Recompute", "Compute this result again for the values now set", recompute)
+        row = QHBoxLayout(self)
+        row.setContentsMargins(6, 2, 2, 2)
+        row.setSpacing(6)
+        row.addWidget(self.label, 1)
+        row.addWidget(self.button)
+        self.hide()
+
+
 class SessionView(QWidget):
     """A view of the session's document: ``follow_session`` wires the handlers and catches up, a palette
-    change calls ``_restyle``. Subclasses define ``_on_project_loaded`` and ``_on_system``."""
+    change calls ``_restyle``. Subclasses define ``_on_project_loaded`` and ``_on_system``.
+
+    Results computed on request are marked stale the same way everywhere: call ``begin_computing()``
+    when a computation starts, ``shown_computed()`` when its result is shown and ``shown_nothing()`` when
+    the view is cleared; whenever the values, the solver settings or the model differ from those the
+    shown result was computed for, a bar over the view says so and offers ``recompute()``."""
 
     view_id = ""
     title = ""
+    stale_follows_solver = False   # results depend on the solver settings too (runs, sections)
 
     def __init__(self, session, parent=None):
         super().__init__(parent)
         self.session = session
         self.system = None
+        self._computing_for = None
+        self._computed_for = None
+        self._stale_skip = None
+        self.stale_bar = StaleBar(self.recompute)
 
     def follow_session(self, values=None, settings=None, trajectory=None, cursor=None) -> None:
         """Connect the session's signals to this view's handlers, then catch up with what the session
@@ -39,6 +70,8 @@ class SessionView(QWidget):
             if handler is not None:
                 signal.connect(handler)
         s.projectLoaded.connect(self._on_project_loaded)
+        for signal in (s.valuesChanged, s.settingsChanged, s.systemChanged):
+            signal.connect(self.update_stale)
         self._on_project_loaded()
         if s.system is not None:
             self._on_system(s.system)
@@ -50,18 +83,65 @@ class SessionView(QWidget):
         layout = QVBoxLayout(self)
         layout.setContentsMargins(6, 6, 6, 6)
         layout.setSpacing(4)
+        layout.addWidget(self.stale_bar)
         return layout
 
     def saved_view_settings(self) -> dict:
         """This view's settings as the open project keeps them."""
         return self.session.project.views.get(self.view_id, {})
 
-    def values_fingerprint(self, skip: str | None = None) -> tuple:
-        """What a computed result depends on besides its own controls: every parameter (but ``skip``,
-        the swept one), the initial state and the system."""
+    # ------------------------------------------------------------ stale results
+    def values_now(self, skip: str | None = None) -> dict:
+        """What a result computed now is computed for (``skip``: a parameter the result runs over)."""
         s = self.session
-        return (tuple((n, v) for n, v in sorted(s.params.items()) if n != skip),
-                tuple(sorted(s.initial.items())), id(self.system))
+        return {"params": {n: v for n, v in s.params.items() if n != skip}, "initial": dict(s.initial),
+                "system": id(self.system),
+                "solver": dataclasses.astuple(s.solver) if self.stale_follows_solver else None}
+
+    def begin_computing(self, skip: str | None = None) -> None:
+        self._computing_for, self._stale_skip = self.values_now(skip), skip
+
+    def shown_computed(self) -> None:
+        self._computed_for = self._computing_for
+        self.update_stale()
+
+    def shown_nothing(self) -> None:
+        self._computed_for = None
+        self.update_stale()
+
+    def is_stale(self) -> bool:
+        return self._computed_for is not None and self._computed_for != self.values_now(self._stale_skip)
+
+    def stale_text(self) -> str:
+        then, now = self._computed_for, self.values_now(self._stale_skip)
+        if then is None or then == now:
+            return ""
+        parts = []
+        if then["system"] != now["system"]:
+            parts.append("an earlier version of the model")
+        changed = [n for n in then["params"] if n in now["params"] and then["params"][n] != now["params"][n]]
+        if changed:
+            parts.append(", ".join(f"{n} = {number_text(then['params'][n])} (now {number_text(now['params'][n])})"
+                                   for n in changed[:3]) + (", …" if len(changed) > 3 else ""))
+        if then["initial"] != now["initial"]:
+            parts.append("other initial values")
+        if then["solver"] != now["solver"]:
+            parts.append("other solver settings")
+        return "Computed for " + ("; ".join(parts) if parts else "other values")
+
+    def update_stale(self, *_args) -> None:
+        text = self.stale_text()
+        self.stale_bar.label.setText(text)
+        self.stale_bar.label.setToolTip(text)
+        self.stale_bar.setVisible(bool(text))
+
+    def recompute(self) -> None:
+        """Compute the shown result again for the present values (the view's compute or run)."""
+        for name in ("compute", "run"):
+            method = getattr(self, name, None)
+            if callable(method):
+                method()
+                return
 
     def changeEvent(self, event) -> None:
         super().changeEvent(event)

@@ -190,12 +190,16 @@ class EquilibriaView(SessionView):
 
         p, u0 = self.session.param_vector(), self.session.initial_vector()
         self._searched_generation = self.session.generation
+        self.begin_computing()
 
         def job(cancel, report):
             return find_equilibria(system, p, u0=u0, cancel=cancel, progress=report)
 
         self.summary.setText("")
         self.strip.run("equilibria", job, self._adopt, on_error=self._failed)
+
+    def recompute(self) -> None:
+        self.find()
 
     def selected_index(self) -> int | None:
         rows = self.table.selectionModel().selectedRows() if self.table.selectionModel() else []
@@ -243,13 +247,19 @@ class EquilibriaView(SessionView):
     def _auto_ok(self) -> bool:
         s = self.system
         return (self.auto.isChecked() and s is not None and s.n_states <= AUTO_MAX_STATES
-                and getattr(s, "autonomous", True))
+                and self._autonomous_now())
+
+    def _autonomous_now(self) -> bool:
+        """Free of time at the present values: a forcing switched off by its parameter counts as absent."""
+        s = self.system
+        return s is None or s.autonomous or s.autonomous_at(self.session.param_vector())
 
     def _schedule(self) -> None:
         if self._auto_ok():
             self._timer.start()
-        elif self.system is not None and not getattr(self.system, "autonomous", True):
-            self.summary.setText("The equations depend on time: no equilibria in the usual sense")
+        elif self.system is not None and not self._autonomous_now():
+            self.summary.setText("The equations depend on time at these values: no equilibria in the usual "
+                                 "sense (switch the forcing off to find the rest points)")
 
     def _failed(self, message: str) -> None:
         if self._owns_shared_list():
@@ -261,6 +271,7 @@ class EquilibriaView(SessionView):
         items = list(result)
         self.session.set_equilibria(items)  # shared first, so that the selection indexes this list
         self._set_results(items, list(getattr(result, "notes", [])))
+        self.shown_computed()
         self._publish_selection()
         self.equilibriaChanged.emit(result)
 
@@ -268,6 +279,8 @@ class EquilibriaView(SessionView):
     def _set_results(self, items, notes) -> None:
         previous = self.selected_index()
         self.equilibria, self.notes = items, notes
+        if not items:
+            self.shown_nothing()
         s = self.system
         states = list(s.states) if s is not None else []
         point_word = "fixed point" if s is not None and s.kind == "map" else "equilibrium"

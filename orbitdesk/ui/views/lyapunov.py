@@ -31,7 +31,6 @@ class LyapunovView(SessionView):
     def __init__(self, session, parent=None):
         super().__init__(session, parent)
         self.result = None
-        self._computed_with = None
         self._lengths = {"flow": [FLOW_LENGTH, FLOW_TRANSIENT], "map": [MAP_LENGTH, MAP_TRANSIENT]}
         self._kind = "flow"
 
@@ -160,7 +159,7 @@ class LyapunovView(SessionView):
         else:
             kwargs = {"t_end": settings.t_start + float(length) + float(transient), "transient": float(transient),
                       "dt": dt}
-        self._pending = self.values_fingerprint()
+        self.begin_computing()
 
         def job(cancel, report):
             return lyapunov_spectrum(s, p, u0, settings=settings, cancel=cancel, progress=report, **kwargs)
@@ -182,9 +181,6 @@ class LyapunovView(SessionView):
         self._schedule()
 
     def _on_values(self) -> None:
-        if self.result is not None and self.values_fingerprint() != self._computed_with:
-            self.notes.setText("Values changed since these exponents were computed"
-                               + ("" if self.auto.isChecked() else ": press Compute to update them"))
         self._schedule()
 
     def _on_controls(self, *_args) -> None:
@@ -212,6 +208,7 @@ class LyapunovView(SessionView):
     # ------------------------------------------------------------ results
     def _clear(self) -> None:
         self.result = None
+        self.shown_nothing()
         self.table.setRowCount(0)
         self.summary.setText("")
         self.notes.setText("")
@@ -222,7 +219,7 @@ class LyapunovView(SessionView):
     def _adopt(self, result) -> None:
         self._clear()
         self.result = result
-        self._computed_with = getattr(self, "_pending", None)
+        self.shown_computed()
         self._draw()
         self.resultChanged.emit(result)
 

@@ -29,6 +29,7 @@ MAX_COUNT = 100_000
 class SectionsView(SessionView):
     view_id = "sections"
     title = "Poincaré section"
+    stale_follows_solver = True
 
     sectionChanged = Signal(object)  # the SectionResult shown (None when cleared)
 
@@ -202,6 +203,7 @@ class SectionsView(SessionView):
         settings = self.session.run_settings(transient=0.0)
         count, transient = self.count.value(), float(self.transient.value())
         self._computed_once = True
+        self.begin_computing()
         if self.section_kind() == PLANE:
             coordinate, value = self.coordinate.currentText(), float(self.value.value())
             direction = DIRECTIONS[self.direction.currentIndex()]
@@ -222,6 +224,7 @@ class SectionsView(SessionView):
     # ------------------------------------------------------------ session events
     def _on_project_loaded(self) -> None:
         self.system, self.result = None, None
+        self.shown_nothing()
         self._names, self._columns = [], {}
         self._computed_once = False
         self._user_value = self._user_period = False
@@ -231,6 +234,7 @@ class SectionsView(SessionView):
     def _on_system(self, system) -> None:
         self.system = system
         self.result = None
+        self.shown_nothing()
         self._columns = {}
         is_map = system.kind == "map"
         plane_names = list(system.states) + list(system.derived_names)
@@ -338,6 +342,7 @@ class SectionsView(SessionView):
     # ------------------------------------------------------------ results
     def _adopt(self, result) -> None:
         self.result = result
+        self.shown_computed()
         s = self.system
         cols = {s.time_name: np.asarray(result.times, dtype=float)}
         for i, name in enumerate(result.state_names):

@@ -46,7 +46,6 @@ class SweepView(SessionView):
     def __init__(self, session, parent=None):
         super().__init__(session, parent)
         self.result = None
-        self._computed_with = None  # the other values the shown diagram was computed with
         self._wanted: dict | None = None
         self._user_period = False
         self._user_plane_value = False
@@ -244,7 +243,7 @@ class SweepView(SessionView):
             return
         values = np.linspace(lo, hi, count)
         u0, p = self.session.initial_vector(), self.session.param_vector()
-        self._pending = self.values_fingerprint(skip=name)
+        self.begin_computing(skip=name)
 
         def job(cancel, report):
             return sweep(s, name, values, settings, u0=u0, p=p, cancel=cancel, progress=report)
@@ -329,8 +328,6 @@ class SweepView(SessionView):
         self._update_marker()
         if not self._user_period:
             follow_forcing_period(self.period, self.system, self.session.param_vector(), False)
-        if self.result is not None and self.values_fingerprint(skip=self.result.parameter) != self._computed_with:
-            self.info.setText("Other values changed since this diagram was computed: press Run to update it")
 
     # ------------------------------------------------------------ controls
     def _on_parameter(self, _index=None) -> None:
@@ -376,7 +373,7 @@ class SweepView(SessionView):
     # ------------------------------------------------------------ the diagram
     def _clear_result(self) -> None:
         self.result = None
-        self._computed_with = None
+        self.shown_nothing()
         self.points.setData([], [])
         self.lyap_curve.setData([], [])
         self.lyap_widget.hide()
@@ -384,7 +381,7 @@ class SweepView(SessionView):
 
     def _adopt(self, result) -> None:
         self.result = result
-        self._computed_with = getattr(self, "_pending", None)
+        self.shown_computed()
         self._draw(refit=True)
         self.sweepChanged.emit(result)
 
