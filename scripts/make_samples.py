@@ -246,10 +246,14 @@ x'(0) = 0
          "the lamp blinks the same way however it is switched on.",
          {"parameters": {"mu": 1.0}, "initial": {"x": 4.0, "x'": 0.0}, "open_views": ["phase_plane"]}),
         ("The period of the cycle",
-         "Ask for the cycle: OrbitDesk finds it exactly by shooting and reports its **period**, about "
-         "6.663 at `mu = 1`, a little longer than the `2 pi` of the weak amplifier. Its swing in `x` "
-         "goes from about -2 to +2.",
-         {"parameters": {"mu": 1.0}, "open_views": ["phase_plane", "timeseries"]}),
+         "The **limit cycle** view looks for the cycle from the end of the run (or press *Find cycle* "
+         "after clicking a start in the phase plane): it finds the orbit exactly by shooting, draws it "
+         "bold in the phase plane and reports its **period**, about 6.663 at `mu = 1`, a little longer "
+         "than the `2 pi` of the weak amplifier. Its swing in `x` goes from about -2 to +2.\n\n"
+         "The Floquet multipliers tell how a disturbed swing returns: one is always 1 (a shift along "
+         "the cycle), the other is about 0.0009, far inside the unit circle, so the cycle is strongly "
+         "**stable**.",
+         {"parameters": {"mu": 1.0}, "initial": {"x": 0.1, "x'": 0.0}, "open_views": ["phase_plane", "cycles"]}),
         ("A strong amplifier: relaxation",
          "At `mu = 5` the wave changes shape: long slow stretches where the capacitor creeps, broken "
          "by sudden jumps where it flips its voltage. This slow-fast shape is a **relaxation "

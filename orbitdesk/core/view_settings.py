@@ -28,6 +28,8 @@ VIEW_SETTINGS: dict[str, dict] = {
               "plane": {"state": "state", "value": "number", "direction": (1, -1, 0)},
               "period": "number", "transient": "number", "samples": "integer", "dt": "number",
               "duration": "number", "lyapunov": "bool"},
+    "cycles": {"start": ("end", "clicked"), "period_guess": "number", "forcing_multiple": "integer",
+               "map_period": "integer"},
     "lyapunov": {"flow": {"length": "number", "transient": "number"},
                  "map": {"steps": "integer", "transient": "integer"}, "dt": "number", "auto": "bool"},
 }

@@ -203,6 +203,7 @@ class Session(QObject):
     equilibriaChanged = Signal(object)   # list of equilibria found for the current system and values
     equilibriumSelected = Signal(object) # index into that list, or None
     startsRequested = Signal(object)     # list of {"u0": [...], "backward": bool}: trajectories to start
+    cycleChanged = Signal(object)        # the limit cycle (core Cycle / MapCycle) for these values, or None
 
     def __init__(self, parent=None):
         super().__init__(parent)
@@ -220,6 +221,8 @@ class Session(QObject):
         self.equilibria: list = []                   # shared by the views that show equilibria
         self.selected_equilibrium: int | None = None  # index into ``equilibria``
         self._start_takers: list[str] | None = None
+        self.cycle = None                            # the limit cycle found for the current values
+        self.clicked_start: list[float] | None = None  # full state of the last trajectory started by a click
         self.generation = 0
         self.auto_run = True
         self.undo_stack = QUndoStack(self)
@@ -380,7 +383,20 @@ class Session(QObject):
         if self._start_takers is not None and title not in self._start_takers:
             self._start_takers.append(title)
 
-    def _clear_equilibria(self) -> None:
+    def set_cycle(self, cycle) -> None:
+        """Share a limit cycle found for the current system and values (None: none); cleared by the
+        session when the model or its values change."""
+        self.cycle = cycle
+        self.cycleChanged.emit(cycle)
+
+    def note_clicked_start(self, u0) -> None:
+        """A view started a trajectory from a clicked point: its full state (a start for a cycle search)."""
+        self.clicked_start = [float(v) for v in u0]
+
+    def _clear_shared_results(self) -> None:
+        """Equilibria and the cycle belong to the values they were found for."""
+        if self.cycle is not None:
+            self.set_cycle(None)
         if self.equilibria or self.selected_equilibrium is not None:
             self.equilibria, self.selected_equilibrium = [], None
             self.equilibriaChanged.emit([])
@@ -429,7 +445,7 @@ class Session(QObject):
 
     def _values_changed(self) -> None:
         self.generation += 1
-        self._clear_equilibria()
+        self._clear_shared_results()
         self.valuesChanged.emit()
         self.schedule_run()
 
@@ -480,7 +496,7 @@ class Session(QObject):
         self._written_params, self._written_ranges, self._written_initial = written_p, written_r, written_u
         self.system, self._signature = system, sig
         self.generation += 1
-        self._clear_equilibria()
+        self._clear_shared_results()
         self.systemChanged.emit(system)
         if values_changed:
             self.valuesChanged.emit()
@@ -491,6 +507,10 @@ class Session(QObject):
         """Re-run soon (coalesces bursts of changes into one run)."""
         if self.auto_run:
             self._run_timer.start()
+
+    def run_pending(self) -> bool:
+        """A run for the values now set is scheduled or under way (the trajectory held is an older one)."""
+        return self._run_timer.isActive() or self.jobs.running("run")
 
     def run(self) -> None:
         """Integrate / iterate the current system with the current values and settings."""
@@ -581,7 +601,7 @@ class Session(QObject):
         self.solver = copy.copy(project.solver)
         self.system, self._signature, self.trajectory = None, None, None
         self.time_cursor = math.inf
-        self._clear_equilibria()
+        self._clear_shared_results()
         self.generation += 1
         self._text_gen += 1
         self.undo_stack.clear()

@@ -27,7 +27,7 @@ def setting(d, path):
     return d
 
 
-def check_views_show_the_step(window, raw, step):
+def check_views_show_the_step(qtbot, window, raw, step):
     """Each open view shows the names the sample's settings and the step give it, and the parameter a
     sweep runs over is the one the step's note speaks of."""
     title, snap = step["title"], step["snapshot"]
@@ -44,6 +44,10 @@ def check_views_show_the_step(window, raw, step):
         if view_id == "sweep":
             assert re.search(rf"`{re.escape(shown['parameter'])}\b", step["note"]), (title, shown["parameter"])
             assert (shown["from"], shown["to"]) == (wanted["from"], wanted["to"]), title
+        if view_id == "cycles":  # the cycle is found by itself, with the period the note gives
+            qtbot.waitUntil(lambda: view.cycle is not None, timeout=60000)
+            assert f"about {view.cycle.period:.4g}" in step["note"], (title, view.cycle.period)
+            assert window.session.cycle is view.cycle
         if view_id == "sections" and "section" in snap:
             if "strobe" in snap["section"]:
                 assert (shown["kind"], shown["period"]) == ("strobe", snap["section"]["strobe"]), title
@@ -93,7 +97,7 @@ def test_sample_walkthrough_replays_in_the_app(qtbot, window, path):
             if view_id in window.view_docks:
                 assert window.view_docks[view_id].isVisible(), (steps[i]["title"], view_id)
                 assert window.views.get(view_id) is not None
-        check_views_show_the_step(window, raw, steps[i])
+        check_views_show_the_step(qtbot, window, raw, steps[i])
         wait_idle_run(qtbot, s)
         assert s.trajectory.status == "ok", (steps[i]["title"], s.trajectory.message)
         if panel.missing_views:

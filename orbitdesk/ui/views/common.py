@@ -355,6 +355,26 @@ def runs_job(session, system, starts, max_samples: int):
     return job
 
 
+def cycle_columns(system, cycle, p) -> dict:
+    """Every coordinate of a limit cycle (core Cycle: one period, closed) or a map cycle (its points, in
+    orbit order, the first repeated to close it): the time or step, the states and derived quantities."""
+    if system is None or cycle is None:
+        return {}
+    if hasattr(cycle, "orbit"):
+        time, states = np.asarray(cycle.time, dtype=float), np.asarray(cycle.orbit, dtype=float)
+    else:
+        points = np.asarray(cycle.points, dtype=float)
+        states = np.concatenate([points, points[:, :1]], axis=1)
+        time = np.arange(states.shape[1], dtype=float)
+    if states.shape[0] != system.n_states:
+        return {}
+    cols = {system.time_name: time, **{name: states[i] for i, name in enumerate(system.states)}}
+    if system.derived_names and time.size:
+        derived = system.derived_values(time, states, p)
+        cols.update({k: np.asarray(v, dtype=float) for k, v in derived.items()})
+    return cols
+
+
 def values_at_time(time, t: float, discrete: bool, *series) -> tuple:
     """Each series at time ``t`` of a run: linear between the samples of a flow, the sample at or after
     ``t`` for a map; runs may go backward in time. Rows of 2D arrays are interpolated alike."""

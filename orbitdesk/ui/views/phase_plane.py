@@ -12,7 +12,7 @@ from PySide6.QtWidgets import QLabel, QToolButton
 from . import empty_hint, muted_colour, series_colour, style_plot
 from ..plot_style import ScreenCurve
 from .common import (SessionView, check_box, clicked_point, combo_box, control_row, coordinate_names,
-                     equilibrium_coordinates, equilibrium_fields, fill_combo, runs_job, values_at_time)
+                     cycle_columns, equilibrium_coordinates, equilibrium_fields, fill_combo, runs_job, values_at_time)
 
 FIELD_POINTS = 21          # arrows along the longer side of the view
 MAX_SEEDS = 40
@@ -87,6 +87,9 @@ class PhasePlaneView(SessionView):
         self.seed_items: list[pg.PlotDataItem] = []
         self.curve = ScreenCurve()
         self.plot.addItem(self.curve)
+        self.cycle_item = pg.PlotDataItem()  # the limit cycle found in the cycle view, drawn bold
+        self.cycle_item.setZValue(10)
+        self.plot.addItem(self.cycle_item, ignoreBounds=True)
         self.start_marker = pg.ScatterPlotItem(size=7, symbol="o")
         self.plot.addItem(self.start_marker, ignoreBounds=True)
         self.cursor_marker = pg.ScatterPlotItem(size=11, symbol="o")
@@ -116,6 +119,7 @@ class PhasePlaneView(SessionView):
 
         self._restyle()
         session.equilibriaChanged.connect(self.set_equilibria)
+        session.cycleChanged.connect(lambda _c: self._draw_cycle())
         session.startsRequested.connect(self._on_starts_requested)
         self.follow_session(values=self._on_values, trajectory=self._on_trajectory, cursor=self._update_cursor)
         if session.equilibria:
@@ -292,6 +296,7 @@ class PhasePlaneView(SessionView):
         self._draw_trajectory()
         self._draw_seeds()
         self._draw_equilibria()
+        self._draw_cycle()
         if refit:
             self.fit_view()
         self._update_field()
@@ -305,6 +310,19 @@ class PhasePlaneView(SessionView):
             self.fit_view()
         elif self._fitted:
             self.fit_view()
+
+    def _draw_cycle(self) -> None:
+        cols = cycle_columns(self.system, self.session.cycle, self.session.param_vector())
+        if self.x_name not in cols or self.y_name not in cols:
+            self.cycle_item.setData([], [])
+            return
+        colour = series_colour(1, self)
+        if self.system.kind == "map":
+            self.cycle_item.setData(cols[self.x_name][:-1], cols[self.y_name][:-1], pen=None, symbol="o",
+                                    symbolSize=10, symbolBrush=None, symbolPen=pg.mkPen(colour, width=2))
+        else:
+            self.cycle_item.setData(cols[self.x_name], cols[self.y_name], pen=pg.mkPen(colour, width=3), symbol=None)
+        self.cycle_item.setToolTip("The limit cycle found in the cycle view")
 
     def _user_range_set(self) -> bool:
         return bool(self.saved_view_settings().get("range")) and not self._fitted
@@ -420,6 +438,7 @@ class PhasePlaneView(SessionView):
             return
         both = True if event.modifiers() & Qt.KeyboardModifier.ShiftModifier else None
         if self.start_trajectory(point.x(), point.y(), both=both):
+            self.session.note_clicked_start(self.seeds[-1]["u0"])
             event.accept()
 
     # ------------------------------------------------------------ direction field and nullclines

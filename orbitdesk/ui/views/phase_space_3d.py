@@ -15,7 +15,8 @@ from PySide6.QtGui import QColor, QFont, QImage, QPainter, QSurfaceFormat, QVect
 from PySide6.QtWidgets import QSpinBox, QToolButton
 
 from . import SERIES_COLOURS
-from .common import (SessionView, check_box, combo_box, control_row, coordinate_names, equilibrium_coordinates,
+from .common import (SessionView, check_box, combo_box, control_row, coordinate_names, cycle_columns,
+                     equilibrium_coordinates,
                      apply_numbers, fill_combo, is_number, run_time_name, runs_job, set_quietly, values_at_time)
 from ..plot_style import (SCENE_BACKGROUND, SCENE_GRID, SCENE_MARKER, SCENE_TEXT, JobStrip, NumberBox, number_text,
                           rgba, time_colours)
@@ -187,8 +188,10 @@ class PhaseSpace3DView(SessionView):
         self.main_points = self._Points(pxMode=True, size=3, glOptions="translucent")
         self.extra_items: list = []
         self.eq_item = self._Points(pxMode=True, size=9, glOptions="translucent")
+        self.cycle_item = self._Line(mode="line_strip", antialias=False, width=3.0, glOptions="translucent")
         self.cursor_item = self._Points(pxMode=True, size=11, glOptions="translucent")
-        for item in (self.grid_item, self.axes_item, self.main_item, self.main_points, self.eq_item, self.cursor_item):
+        for item in (self.grid_item, self.axes_item, self.main_item, self.main_points, self.eq_item, self.cycle_item,
+                     self.cursor_item):
             self.glview.addItem(item)
         self.eq_item.setDepthValue(10)
         self.cursor_item.setDepthValue(20)
@@ -208,6 +211,7 @@ class PhaseSpace3DView(SessionView):
         self.reset_camera()
         session.equilibriaChanged.connect(self.set_equilibria)
         session.equilibriumSelected.connect(self._on_equilibrium_selected)
+        session.cycleChanged.connect(lambda _c: self._draw_cycle())
         session.startsRequested.connect(self._on_starts_requested)
         self.follow_session(values=self._on_values, trajectory=self._on_trajectory, cursor=self._update_cursor)
         if session.equilibria:
@@ -520,6 +524,7 @@ class PhaseSpace3DView(SessionView):
         self._draw_main(main)
         self._draw_extras(extras)
         self._draw_equilibria()
+        self._draw_cycle()
         self._update_cursor(self.session.time_cursor)
 
     def _draw_main(self, xyz) -> None:
@@ -644,6 +649,19 @@ class PhaseSpace3DView(SessionView):
         self.eq_item.setData(pos=self._to_box(np.array(pts, dtype=float)), size=np.array(sizes),
                              color=np.array(colours, dtype=np.float32))
         self.eq_item.setVisible(True)
+
+    def _draw_cycle(self) -> None:
+        """The limit cycle of the cycle view, bold and in the highlight colour (a map's: its points)."""
+        cols = cycle_columns(self.system, self.session.cycle, self.session.param_vector())
+        names = self.axes()
+        if not all(n in cols for n in names) or getattr(self, "_box", None) is None:
+            self.cycle_item.setVisible(False)
+            return
+        pos = self._to_box(np.column_stack([cols[n] for n in names]))
+        colour = _solid(SERIES_COLOURS[1][1], 1.0, len(pos))
+        self.cycle_item.setData(pos=pos, color=colour, width=3.0,
+                                mode="lines" if self.system.kind == "map" else "line_strip")
+        self.cycle_item.setVisible(True)
 
     def _update_cursor(self, t: float) -> None:
         traj = self.trajectory

@@ -1,0 +1,93 @@
+"""The limit-cycle view: finds the cycle from the end of the run or from a clicked start, shows its
+period, ranges and multipliers, shares it with the phase plane, exports one period, marks itself stale."""
+
+import csv
+import math
+
+import numpy as np
+import pytest
+from scipy.integrate import simpson
+
+from orbitdesk.ui import views as views_pkg
+
+from .conftest import load_model, wait_for_trajectory
+
+VAN_DER_POL = "mu = 1 in [0, 5]\nx'' = mu*(1 - x^2)*x' - x\nx(0) = 0.1\nx'(0) = 0\n"
+LOGISTIC = "r = 3.2\nx[n+1] = r*x*(1 - x)\nx[0] = 0.2\n"
+
+
+def make(qtbot, session, module):
+    view = views_pkg.load_view_class(module)(session)
+    qtbot.addWidget(view)
+    view.resize(700, 600)
+    view.show()
+    return view
+
+
+def find(qtbot, view):
+    with qtbot.waitSignal(view.cycleChanged, timeout=60000, check_params_cb=lambda c: c is not None):
+        view.compute()
+    return view.cycle
+
+
+def test_van_der_pol_cycle_from_the_end_of_the_run(qtbot, session, tmp_path, artifacts):
+    view = make(qtbot, session, "cycles")
+    plane = make(qtbot, session, "phase_plane")
+    load_model(qtbot, session, VAN_DER_POL, dict(t_end=60.0, samples=3000))
+    cycle = find(qtbot, view)
+    # period of the Van der Pol cycle at mu = 1: 6.6633 (value from memory, four figures)
+    assert cycle.period == pytest.approx(6.6633, abs=5e-4)
+    text = view.report.toPlainText()
+    assert "Period 6.6632" in text and "stable" in text and "Floquet multipliers" in text
+    # Liouville: the product of the multipliers is exp(integral of the trace of the Jacobian over one
+    # period); the trivial one is 1, so the other is exp(integral of mu (1 - x^2) dt)
+    header, rows = view.export_data()
+    assert header[:3] == ["t", "x", "x'"]
+    path = tmp_path / "cycle.csv"
+    with open(path, "w", newline="") as f:
+        csv.writer(f).writerows([header, *rows.tolist()])
+    table = np.array(list(csv.reader(open(path)))[1:], dtype=float)
+    liouville = math.exp(simpson(1.0 - table[:, 1] ** 2, x=table[:, 0]))
+    other = cycle.multipliers[1 - cycle.trivial_index]
+    assert abs(other) == pytest.approx(liouville, rel=1e-3)
+    assert f"{abs(other):.4g}"[:4] in text
+    # the cycle swings x between -2.0086 and 2.0086 (value from memory, five figures)
+    assert "−2.00862" in text and "2.00862" in text
+    # the range of x over the cycle, as the report shows it, is the exported one
+    assert cycle.amplitude["x"] == pytest.approx(table[:, 1].max() - table[:, 1].min(), rel=1e-9)
+    # drawn in the phase plane
+    x, y = plane.cycle_item.getData()
+    assert x.size == table.shape[0] and np.allclose(x, table[:, 1]) and np.allclose(y, table[:, 2])
+    view.grab().save(f"{artifacts}/cycle_view.png")
+    # new values: the shared cycle goes, the view says what its cycle was computed for
+    wait_for_trajectory(qtbot, session, lambda: session.set_param("mu", 2.0))
+    assert session.cycle is None and plane.cycle_item.getData()[0] is None or len(plane.cycle_item.getData()[0]) == 0
+    assert not view.stale_bar.isHidden() and "mu = 1 (now 2)" in view.stale_bar.label.text()
+
+
+def test_cycle_from_a_clicked_start(qtbot, session):
+    view = make(qtbot, session, "cycles")
+    load_model(qtbot, session, VAN_DER_POL, dict(t_end=20.0, samples=1000))
+    view.apply_view_settings({"start": "clicked"})
+    view.compute()
+    assert "click in the phase plane first" in view.guess_label.text()
+    session.note_clicked_start([3.0, -1.0])
+    cycle = find(qtbot, view)
+    assert "the clicked start (x = 3, x' = −1)" in view.guess_label.text()
+    assert cycle.period == pytest.approx(6.6633, abs=5e-4)
+
+
+def test_logistic_two_cycle(qtbot, session):
+    view = make(qtbot, session, "cycles")
+    load_model(qtbot, session, LOGISTIC, dict(steps=200))
+    view.apply_view_settings({"map_period": 2})
+    assert view.map_period.isVisibleTo(view) and not view.period_guess.isVisibleTo(view)
+    cycle = find(qtbot, view)
+    # closed form of the logistic 2-cycle: x = (r + 1 +- sqrt((r - 3)(r + 1))) / (2 r)
+    r = 3.2
+    expected = sorted((r + 1 + s * math.sqrt((r - 3) * (r + 1))) / (2 * r) for s in (1, -1))
+    header, rows = view.export_data()
+    assert header[:2] == ["n", "x"] and sorted(rows[:, 1]) == pytest.approx(expected, abs=1e-10)
+    # multiplier of the 2-cycle: 4 + 2r - r^2 (closed form)
+    assert cycle.multipliers[0].real == pytest.approx(4 + 2 * r - r * r, abs=1e-8)
+    assert "Cycle of period 2" in view.report.toPlainText()
