@@ -252,12 +252,12 @@ class MainWindow(QMainWindow):
         self._make_view_docks()
         self._make_status_bar()
         self._make_menus()
+        s = self.session
+        s.projectLoaded.connect(self._on_project_loaded)  # before the walkthrough shows its dock on a load
         self._install_teaching_tools()
         self._default_state = self.saveState()
 
-        s = self.session
         s.dirtyChanged.connect(self._update_title)
-        s.projectLoaded.connect(self._on_project_loaded)
         s.statusMessage.connect(lambda m: self.statusBar().showMessage(m, 10_000))
         s.busyChanged.connect(self._on_busy)
         s.runProgress.connect(self._on_progress)
@@ -379,6 +379,7 @@ class MainWindow(QMainWindow):
             dock.setWidget(_Placeholder(""))
             dock.toggleViewAction().setToolTip(f"Show or hide the {views_pkg.module_title(name).lower()} view")
             dock.visibilityChanged.connect(lambda visible, n=name: visible and self.ensure_view(n))
+            dock.toggleViewAction().triggered.connect(lambda checked, n=name: checked and self.show_view(n))
             self.view_docks[name] = dock
             if name not in views_pkg.DEFAULT_VISIBLE:
                 self.addDockWidget(Qt.DockWidgetArea.RightDockWidgetArea, dock)
@@ -511,6 +512,16 @@ class MainWindow(QMainWindow):
             self._active_view = name
         return view
 
+    def show_view(self, name: str):
+        """Open the view ``name`` where it is seen: beside the views already open (split, never a tab
+        behind another view). Returns the view."""
+        from .dock_layout import is_open, show_docks
+
+        wanted = [n for n in views_pkg.VIEW_MODULES if n != name and is_open(self.view_docks[n])
+                  and not self.view_docks[n].isFloating()] + [name]
+        show_docks(self, wanted, arrange=True)
+        return self.ensure_view(name)
+
     def active_view(self):
         """The view the user last worked in (else the first visible one)."""
         if self._active_view in self.views and self.view_docks[self._active_view].isVisible():
@@ -557,8 +568,11 @@ class MainWindow(QMainWindow):
 
     # ------------------------------------------------------------ session events
     def _on_project_loaded(self) -> None:
-        if not self.restore_layout(self.session.project.views.get(WINDOW_KEY, {})) and self.isVisible():
-            QTimer.singleShot(0, self.apply_default_sizes)  # after other panels have reacted to the load
+        """The project's own layout, or the starting one: never the layout of the project before."""
+        if not self.restore_layout(self.session.project.views.get(WINDOW_KEY, {})):
+            self.reset_layout()
+            if self.isVisible():
+                QTimer.singleShot(0, self.apply_default_sizes)  # after other panels have reacted to the load
         self.run_status.setText("")
         self._update_title()
 

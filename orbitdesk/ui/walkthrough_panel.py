@@ -18,13 +18,14 @@ from PySide6.QtCore import QByteArray, QEvent, Qt, QTimer, Signal
 from PySide6.QtGui import QFont, QPalette, QUndoCommand
 from PySide6.QtWidgets import (QAbstractItemView, QAbstractSlider, QAbstractSpinBox, QApplication, QComboBox,
                                QDockWidget, QFrame, QHBoxLayout, QLabel, QLineEdit, QListWidget, QListWidgetItem,
-                               QPlainTextEdit, QPushButton, QSizePolicy, QSplitter, QStyle, QTextBrowser, QTextEdit,
+                               QPlainTextEdit, QPushButton, QSizePolicy, QSplitter, QTextBrowser, QTextEdit,
                                QToolButton, QVBoxLayout, QWidget)
 
 from orbitdesk.core.project import WalkthroughStep
 from orbitdesk.core.walkthrough import VIEW_IDS, apply_step, delete_step, move_step, record_step, render_note
 
 from . import views as views_pkg
+from .dock_layout import is_open, keep_side_widths, show_docks
 from .session import SOLVER_FIELDS
 
 EDIT_MERGE_SECONDS = 2.0
@@ -52,10 +53,6 @@ def _view_modules(window) -> dict[str, str]:
     return out
 
 
-def _is_open(dock) -> bool:
-    return dock.toggleViewAction().isChecked()
-
-
 def model_info(session):
     """What apply_step checks names against: the active system, else the last parse, else nothing."""
     if session.system is not None:
@@ -72,7 +69,7 @@ def capture_state(window) -> dict:
              "solver": {k: getattr(s.solver, k) for k in SOLVER_FIELDS}}
     open_views, settings = [], {}
     for view_id, module in _view_modules(window).items():
-        if not _is_open(window.view_docks[module]):
+        if not is_open(window.view_docks[module]):
             continue
         open_views.append(view_id)
         view = window.views.get(module)
@@ -152,7 +149,7 @@ def put_on_screen(window, new_state: dict, snapshot: dict, arrange: bool = True,
                 wanted.append(modules[view_id])
             else:
                 unknown(view_id)
-        _show_docks(window, wanted, arrange)
+        show_docks(window, wanted, arrange)
         for module in wanted:
             if window.ensure_view(module) is None:
                 out.problems.append(f"the {views_pkg.module_title(module).lower()} view could not be opened")
@@ -215,113 +212,6 @@ def _apply_to_view(view, changes: dict, section: dict | None) -> None:
     compute = getattr(view, "compute", None)
     if compute is not None:
         compute()
-
-
-def _show_docks(window, wanted: list[str], arrange: bool) -> None:
-    """Show exactly the docks of ``wanted`` (module names); docks that would hide one another in a tab
-    group are split so that every wanted view is in sight."""
-    for module, dock in window.view_docks.items():
-        if module not in wanted and _is_open(dock):
-            dock.hide()
-    docks = [window.view_docks[m] for m in wanted]
-    for dock in docks:
-        if not _is_open(dock):
-            dock.show()
-        dock.raise_()
-    if not arrange or len(docks) < 2:
-        return
-    shared = any(d in window.tabifiedDockWidgets(other) for i, d in enumerate(docks) for other in docks[:i])
-    if not shared:
-        return
-    _rebuild_docks(window, [d for d in docks if not d.isFloating()])
-
-
-def keep_side_widths(window, walkthrough_width: int | None = None):
-    """A function that gives the model panel and the walkthrough dock back their present widths (or
-    ``walkthrough_width``) after the view docks were rearranged; the views take the rest."""
-    side = [d for d in (getattr(window, "model_dock", None), getattr(window, "walkthrough_dock", None))
-            if d is not None and d.isVisible() and not d.isFloating()]
-    widths = [d.width() for d in side]
-    if walkthrough_width is not None and getattr(window, "walkthrough_dock", None) is not None:
-        dock = window.walkthrough_dock
-        if dock in side:
-            widths[side.index(dock)] = walkthrough_width
-        elif not dock.isFloating():
-            side.append(dock)
-            widths.append(walkthrough_width)
-
-    def restore(view_dock=None):
-        shown = [(d, w) for d, w in zip(side, widths) if d.isVisible() and not d.isFloating()]
-        if not shown:
-            return
-        docks, sizes = [d for d, _ in shown], [w for _, w in shown]
-        if view_dock is not None and view_dock.isVisible() and not view_dock.isFloating():
-            sep = window.style().pixelMetric(QStyle.PixelMetric.PM_DockWidgetSeparatorExtent, None, window)
-            docks.append(view_dock)
-            sizes.append(max(view_dock.minimumWidth(), window.width() - sum(sizes) - (len(sizes) + 1) * sep))
-        for _ in range(8):  # Qt moves a separator only part of the way when several areas share the change
-            window.resizeDocks(docks, sizes, Qt.Orientation.Horizontal)
-            if all(abs(d.width() - w) <= 2 for d, w in zip(docks, sizes)):
-                break
-    return restore
-
-
-def _rows(window, docks: list) -> list[list]:
-    """Rows of docks, top to bottom: two or more side by side only where their controls fit the width
-    the views have beside the model panel and the walkthrough."""
-    if len(docks) <= 2:
-        return [[d] for d in docks]
-    side = sum(d.width() for d in (getattr(window, "model_dock", None), getattr(window, "walkthrough_dock", None))
-               if d is not None and d.isVisible() and not d.isFloating())
-    room = window.width() - side - 24
-
-    def fits(row):
-        return sum(d.minimumSizeHint().width() for d in row) + 8 * (len(row) - 1) <= room
-
-    if len(docks) == 3:
-        return [docks[:1], docks[1:]] if fits(docks[1:]) else [[d] for d in docks]
-    half = (len(docks) + 1) // 2
-    pairs = [docks[:half], docks[half:]]
-    return pairs if all(fits(r) for r in pairs) else [docks[:1], docks[1:2], docks[2:]]
-
-
-def _rebuild_docks(window, docks: list) -> None:
-    """Lay the view docks out afresh: ``docks`` in rows in the view area (see ``_rows``), the other view
-    docks hidden behind them. Splitting alone cannot do this: Qt adds a dock split off a tabbed one as
-    one more tab."""
-    if not docks:
-        return
-    V, H = Qt.Orientation.Vertical, Qt.Orientation.Horizontal
-    others = [d for d in window.view_docks.values() if d not in docks and not d.isFloating()]
-    widths, rows = keep_side_widths(window), _rows(window, docks)
-    for dock in list(window.view_docks.values()):
-        if not dock.isFloating():
-            window.removeDockWidget(dock)
-    first = docks[0]
-    window.addDockWidget(Qt.DockWidgetArea.RightDockWidgetArea, first)
-    first.show()
-    walkthrough = getattr(window, "walkthrough_dock", None)
-    beside = (walkthrough is not None and walkthrough.isVisible() and not walkthrough.isFloating()
-              and window.dockWidgetArea(walkthrough) == Qt.DockWidgetArea.RightDockWidgetArea)
-    if beside:
-        window.splitDockWidget(first, walkthrough, H)
-    for upper, lower in zip(rows, rows[1:]):
-        window.splitDockWidget(upper[0], lower[0], V)
-    for row in rows:
-        for left, right in zip(row, row[1:]):
-            window.splitDockWidget(left, right, H)
-    for dock in docks:
-        dock.show()
-    for dock in others:
-        window.tabifyDockWidget(docks[-1], dock)
-        dock.hide()
-    docks[-1].raise_()
-    def settle():  # once the new layout has settled: side panels as they were, rows of equal height
-        widths(first)
-        if len(rows) > 1:
-            height = sum(row[0].height() for row in rows) // len(rows)
-            window.resizeDocks([row[0] for row in rows], [height] * len(rows), V)
-    QTimer.singleShot(0, settle)
 
 
 # ---------------------------------------------------------------- undo commands

@@ -295,3 +295,34 @@ def test_screenshot_lorenz(qtbot, window, tmp_path, artifacts):
     out = os.path.join(artifacts, "main_window_lorenz.png")
     assert window.grab().save(out)
     assert os.path.getsize(out) > 20_000
+
+
+def test_a_view_opened_from_the_menu_is_in_sight_beside_the_others(qtbot, window, tmp_path):
+    open_model(qtbot, window, tmp_path, OSCILLATOR, "spring.txt")
+    docks = window.view_docks
+    docks["equilibria"].toggleViewAction().trigger()
+    qtbot.wait(50)
+    eq, pp, ts = docks["equilibria"], docks["phase_plane"], docks["timeseries"]
+    for dock in (eq, pp, ts):
+        assert dock.isVisible() and not dock.visibleRegion().isEmpty(), dock.objectName()
+        assert all(not other.isVisible() for other in window.tabifiedDockWidgets(dock))
+    # the equilibria table sits beside the phase plane (same row, to its right), the time series above
+    g = {d: d.geometry() for d in (eq, pp, ts)}
+    assert abs(g[eq].top() - g[pp].top()) < 5 and g[eq].left() > g[pp].left()
+    assert g[ts].bottom() < g[pp].top()
+    assert window.views["equilibria"] is not None
+
+
+def test_opening_a_project_never_keeps_the_layout_or_camera_of_the_one_before(qtbot, window, tmp_path):
+    open_model(qtbot, window, tmp_path, LORENZ, "lorenz.txt", t_end=5.0, samples=500)
+    window.show_view("phase_space_3d")
+    view3d = window.views["phase_space_3d"]
+    start_camera = view3d.camera()
+    view3d.set_camera({**start_camera, "azimuth": 123.0, "elevation": 61.0})
+    window.show_view("lyapunov")
+    assert window.view_docks["lyapunov"].isVisible()
+    open_model(qtbot, window, tmp_path, OSCILLATOR, "spring.txt")  # a model file: no layout of its own
+    assert not window.view_docks["lyapunov"].isVisible() and not window.view_docks["phase_space_3d"].isVisible()
+    assert window.view_docks["timeseries"].isVisible() and window.view_docks["phase_plane"].isVisible()
+    cam = view3d.camera()
+    assert (cam["azimuth"], cam["elevation"]) == (start_camera["azimuth"], start_camera["elevation"])

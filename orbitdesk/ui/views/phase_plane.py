@@ -60,13 +60,14 @@ class PhasePlaneView(SessionView):
         self._wanted_axes: tuple | None = None
         self._fitted = False
 
-        self.x_combo = combo_box("Quantity on the horizontal axis", slot=self._on_axes)
+        self.x_combo = combo_box("Quantity on the horizontal axis (plotted against the vertical one)",
+                                 slot=self._on_axes)
         self.y_combo = combo_box("Quantity on the vertical axis", slot=self._on_axes)
         self.arrows = check_box("Arrows", "Direction of the flow on a grid (two-state flows)", True,
                                 self._update_field)
         self.nullclines_box = check_box("Nullclines", "Curves where one state's rate of change is zero "
                                         "(two-state flows)", False, self._request_nullclines)
-        self.backward = check_box("Backward too", "Clicked trajectories also run backward in time "
+        self.backward = check_box("Backward", "Clicked trajectories also run backward in time "
                                   "(Shift+click does this once)")
         self.clear_button = QToolButton(text="Clear")
         self.clear_button.setToolTip("Remove the trajectories started by clicking")
@@ -110,7 +111,7 @@ class PhasePlaneView(SessionView):
         self._seed_timer = QTimer(self, singleShot=True, interval=0)
         self._seed_timer.timeout.connect(self._rerun_seeds)
 
-        bar = control_row("Horizontal", self.x_combo, 6, "Vertical", self.y_combo, 10, self.arrows,
+        bar = control_row(self.x_combo, "against", self.y_combo, 8, self.arrows,
                           self.nullclines_box, self.backward, None, self.hint, self.clear_button, self.fit_button,
                           spacing=6, stretch=False)
         layout = self.main_layout()

@@ -386,7 +386,10 @@ class PhaseSpace3DView(SessionView):
         self._names = []
         self.added, self.added_runs, self.spread_runs = [], [], []
         self.equilibria, self.selected_equilibrium = [], None
-        self.apply_view_settings(self.saved_view_settings())
+        saved = self.saved_view_settings()
+        if not isinstance(saved.get("camera"), dict):
+            self.reset_camera()  # the starting camera, never the one of the project before
+        self.apply_view_settings(saved)
         self._redraw_all()
 
     def _on_system(self, system) -> None:
