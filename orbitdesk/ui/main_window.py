@@ -16,6 +16,7 @@ from PySide6.QtWidgets import (QApplication, QComboBox, QDockWidget, QDoubleSpin
 from orbitdesk.core.project import ProjectError
 
 from . import views as views_pkg
+from .file_guard import DocumentGuard
 from .session import Session
 
 log = logging.getLogger("orbitdesk.ui.main_window")
@@ -264,6 +265,7 @@ class MainWindow(QMainWindow):
         s.trajectoryChanged.connect(self._on_trajectory)
         s.runFailed.connect(lambda m: self.run_status.setText("Run failed"))
         s.add_save_hook(self.store_view_settings)
+        self.guard = DocumentGuard(self)
         QApplication.instance().focusChanged.connect(self._on_focus_changed)
         self.resize(self._initial_size())
         self._sized = False
@@ -643,6 +645,8 @@ class MainWindow(QMainWindow):
         """Open a project or model file; a file that cannot be read is reported and nothing changes."""
         if ask and not self.maybe_save():
             return False
+        if not self.guard.confirm_open(path):
+            return False
         try:
             self.session.open(path)
         except ProjectError as e:
@@ -669,10 +673,7 @@ class MainWindow(QMainWindow):
         return self._save_to(path)
 
     def _save_to(self, path: Path) -> bool:
-        try:
-            self.session.save(path)
-        except ProjectError as e:
-            QMessageBox.critical(self, "Could not save", e.message)
+        if not self.guard.save(path):  # asks before overwriting changes on disk or a read-only file
             return False
         self.add_recent(path)
         self._update_title()
@@ -813,6 +814,7 @@ class MainWindow(QMainWindow):
             return
         self.run_bar.play.setChecked(False)
         self.session.shutdown()
+        self.guard.release()
         event.accept()
 
 

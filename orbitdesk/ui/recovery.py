@@ -192,7 +192,9 @@ def find_recoverable(directory: Path | None = None) -> list[Recoverable]:
 class Autosaver(QObject):
     """Writes the session's unsaved work to the autosave folder on a timer and soon after changes."""
 
-    saved = Signal(str)  # path of the autosave file
+    saved = Signal(str)    # path of the autosave file
+    failed = Signal(str)   # autosave stopped working (plain message); emitted once until it works again
+    recovered = Signal()   # autosave works again after a failure
 
     def __init__(self, session, parent=None, directory: Path | None = None,
                  interval_ms: int = AUTOSAVE_INTERVAL_MS, delay_ms: int = CHANGE_DELAY_MS):
@@ -206,7 +208,11 @@ class Autosaver(QObject):
             raise OSError(f"cannot lock {self.lock.path}")
         self.path = self.directory / f"{self.session_id}.orbitdesk"
         self.meta_path = self.directory / f"{self.session_id}.json"
-        self._write_meta(saved_at=0.0)
+        self.failing: str | None = None  # the plain message while autosave does not work
+        try:
+            self._write_meta(saved_at=0.0)
+        except OSError as e:  # e.g. a full disk: keep trying on the timer
+            self.failing = _autosave_problem(self.directory, e)
         self.timer = QTimer(self, interval=interval_ms)
         self.timer.timeout.connect(self.autosave_now)
         self.timer.start()
@@ -243,8 +249,15 @@ class Autosaver(QObject):
         try:
             core_project.save(self.path, self.session.to_project(), force=True)
             self._write_meta(saved_at=time.time())
-        except (ProjectError, OSError):
+        except (ProjectError, OSError) as e:
+            first = self.failing is None
+            self.failing = _autosave_problem(self.directory, e)
+            if first:
+                self.failed.emit(self.failing)
             return False
+        if self.failing is not None:
+            self.failing = None
+            self.recovered.emit()
         self.saved.emit(str(self.path))
         return True
 
@@ -260,6 +273,12 @@ class Autosaver(QObject):
             self._remove_autosave()
             _unlink(self.meta_path)
             self.lock.release(remove=True)
+
+
+def _autosave_problem(directory: Path, e: Exception) -> str:
+    cause = e if isinstance(e, OSError) else e.__cause__
+    reason = getattr(cause, "strerror", None) or getattr(e, "message", None) or str(e)
+    return f"Unsaved work cannot be kept safe: autosave failed ({reason}).\nAutosave folder: {directory}"
 
 
 # ---------------------------------------------------------------- offering recovery
