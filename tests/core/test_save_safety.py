@@ -2,6 +2,7 @@
 read-only files, hard links, a full disk, and temporary files left by interrupted saves."""
 
 import errno
+import hashlib
 import os
 import subprocess
 import sys
@@ -179,3 +180,52 @@ def test_temporary_file_names_carry_host_and_pid(tmp_path):
     name = os.path.basename(safe_files.temp_name(str(tmp_path / "p.orbitdesk")))
     assert name.startswith(f".p.orbitdesk.{safe_files.HOST_TAG}-{os.getpid()}-") and name.endswith(".tmp")
     assert safe_files.pid_alive(os.getpid()) and not safe_files.pid_alive(dead_pid())
+
+
+# ---------------------------------------------------------------- property: no change on disk is ever lost
+
+from hypothesis import HealthCheck, given, settings  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402
+
+_OTHER = st.sampled_from(["write", "same content", "touch", "delete", "read-only", "writable", "nothing"])
+
+
+@settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(steps=st.lists(st.tuples(_OTHER, st.booleans()), min_size=1, max_size=8))
+def test_guarded_saves_never_lose_another_writers_change(tmp_path_factory, steps):
+    """Another writer acts between our saves; a guarded save succeeds exactly when the content is still
+    what we last read or wrote, and whenever it refuses, the file is byte-for-byte what the other left."""
+    f = tmp_path_factory.mktemp("guarded") / "p.orbitdesk"
+    state = save(f, Project(name="ours 0"))
+    for i, (other, confirm_read_only) in enumerate(steps):
+        if other == "write":
+            if f.exists():
+                os.chmod(f, 0o644)
+            save(f, Project(name=f"theirs {i}"))
+        elif other == "same content" and f.exists():
+            os.chmod(f, 0o644)
+            f.write_bytes(f.read_bytes())
+        elif other == "touch" and f.exists():
+            os.utime(f, ns=(10**18 + i, 10**18 + i))
+        elif other == "delete" and f.exists():
+            f.unlink()
+        elif other in ("read-only", "writable") and f.exists():
+            os.chmod(f, 0o444 if other == "read-only" else 0o644)
+        before = f.read_bytes() if f.exists() else None
+        if state is None:
+            unchanged = before is None
+        else:
+            unchanged = before is not None and hashlib.sha256(before).hexdigest() == state.digest
+        read_only = f.exists() and not f.stat().st_mode & 0o222
+        try:
+            state = save(f, Project(name=f"ours {i + 1}"), expected=state, overwrite_read_only=confirm_read_only)
+        except ProjectConflict:
+            assert not unchanged
+            assert (f.read_bytes() if f.exists() else None) == before
+            state = load_with_state(f)[1] if f.exists() else None  # the user reloads what is there
+            continue
+        except ProjectReadOnly:
+            assert unchanged and read_only and not confirm_read_only
+            assert f.read_bytes() == before
+            continue
+        assert unchanged and load(f).name == f"ours {i + 1}"
