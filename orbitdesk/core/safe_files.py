@@ -94,15 +94,23 @@ def is_read_only(path, st: os.stat_result | None = None) -> bool:
 
 # ---------------------------------------------------------------- temporary files
 
+def _stem(base: str) -> str:
+    """The file name cut to at most 100 bytes, so the temporary name stays within the 255-byte limit
+    whatever the script of the name."""
+    return os.fsdecode(os.fsencode(base)[:100])
+
+
 def temp_name(target: str) -> str:
     """A fresh temporary file name beside ``target`` in our own pattern (host, pid, random)."""
     directory, base = os.path.split(target)
-    return os.path.join(directory, f".{base[:100]}.{HOST_TAG}-{os.getpid()}-{secrets.token_hex(6)}.tmp")
+    return os.path.join(directory, f".{_stem(base)}.{HOST_TAG}-{os.getpid()}-{secrets.token_hex(6)}.tmp")
 
 
 def _temp_pattern(base: str) -> re.Pattern:
-    # Also matches ``.NAME.RANDOM.tmp``, the name earlier versions used (no owner: judged by age).
-    return re.compile(re.escape(f".{base[:100]}.") + r"(?:([0-9a-f]{8})-([0-9]{1,10})-)?[0-9a-f]{12}\.tmp")
+    # Also matches ``.NAME.RANDOM.tmp`` (earlier versions: no owner, judged by age; the name cut at 100
+    # characters).
+    stems = "|".join(re.escape(s) for s in {_stem(base), base[:100]})
+    return re.compile(r"\.(?:" + stems + r")\.(?:([0-9a-f]{8})-([0-9]{1,10})-)?[0-9a-f]{12}\.tmp")
 
 
 def pid_alive(pid: int) -> bool:

@@ -229,3 +229,19 @@ def test_guarded_saves_never_lose_another_writers_change(tmp_path_factory, steps
             assert f.read_bytes() == before
             continue
         assert unchanged and load(f).name == f"ours {i + 1}"
+
+
+@pytest.mark.parametrize("stem", ["π" * 120, "日本語の長いプロジェクト名" * 9, "a+b (1) [x]*.?^$|{2}", "ü" * 40 + "\u0301"])
+def test_long_and_unusual_file_names_save_and_clean_up(tmp_path, stem):
+    """Hostile names: many multi-byte characters (the temporary name must stay within 255 bytes),
+    regular-expression metacharacters, combining marks."""
+    name = (stem.encode()[:240].decode("utf-8", "ignore")) + ".orbitdesk"
+    f = tmp_path / name
+    save(f, Project(name="one"))
+    save(f, Project(name="two"))
+    assert load(f).name == "two" and load(str(f) + ".bak").name == "one"
+    leftover = Path(safe_files.temp_name(str(f)).replace(f"-{os.getpid()}-", f"-{dead_pid()}-"))
+    leftover.write_bytes(b"partial")
+    assert len(os.fsencode(leftover.name)) <= 255
+    assert remove_stale_temps(f) == [str(leftover)]
+    assert sorted(p.name for p in tmp_path.iterdir()) == sorted([name, name + ".bak"])
