@@ -426,8 +426,8 @@ def loads(text: str) -> Project:
     return project_from_dict(data)
 
 
-def _read(path: str) -> tuple[bytes, DiskState] | None:
-    """Bytes of a regular file and its state (None if it does not exist), refusing oversized or special files."""
+def _read(path: str) -> tuple[bytes, os.stat_result] | None:
+    """Bytes of a regular file and its fstat (None if it does not exist), refusing oversized or special files."""
     try:
         fd = os.open(path, os.O_RDONLY | getattr(os, "O_NONBLOCK", 0) | getattr(os, "O_BINARY", 0))
     except FileNotFoundError:
@@ -444,7 +444,7 @@ def _read(path: str) -> tuple[bytes, DiskState] | None:
         raise ProjectError("$", f"cannot read {path!r}: {e.strerror or e}") from None
     if len(data) > MAX_FILE_BYTES:
         raise ProjectError("$", f"file too large (over {MAX_FILE_BYTES} bytes): {path!r}")
-    return data, state_of(data, st)
+    return data, st
 
 
 def _decode(data: bytes) -> Project:
@@ -464,7 +464,7 @@ def load_with_state(path) -> tuple[Project, DiskState]:
     got = _read(path)
     if got is None:
         raise ProjectError("$", f"cannot read {path!r}: no such file")
-    return _decode(got[0]), got[1]
+    return _decode(got[0]), state_of(*got)
 
 
 def load(path) -> Project:
@@ -546,9 +546,11 @@ def save(path, p: Project, *, force: bool = False, expected=UNCHECKED,
     data = dumps(p).encode("utf-8")
     safe_files.remove_stale_temps(target)
     got = _read(target)
-    old, state = got if got is not None else (None, None)
-    if expected is not UNCHECKED and not _unchanged(expected, state):
-        raise ProjectConflict(target, expected, state)
+    old = got[0] if got is not None else None
+    if expected is not UNCHECKED:
+        state = state_of(*got) if got is not None else None
+        if not _unchanged(expected, state):
+            raise ProjectConflict(target, expected, state)
     if old is not None:
         try:
             _decode(old)
