@@ -55,6 +55,20 @@ class DiskState:
     def modified(self) -> float:
         return self.mtime_ns / 1e9
 
+    def to_json(self) -> dict:
+        return {"mtime_ns": self.mtime_ns, "size": self.size, "sha256": self.digest}
+
+    @classmethod
+    def from_json(cls, d) -> "DiskState | None":
+        """The state written by ``to_json`` (None for anything else: it is read from a file)."""
+        if not isinstance(d, dict):
+            return None
+        mtime, size, digest = d.get("mtime_ns"), d.get("size"), d.get("sha256")
+        if not (type(mtime) is int and type(size) is int and size >= 0 and isinstance(digest, str)
+                and re.fullmatch(r"[0-9a-f]{64}", digest)):
+            return None
+        return cls(mtime, size, digest)
+
 
 def state_of(data: bytes, st: os.stat_result) -> DiskState:
     """The state of a file whose bytes ``data`` were read from an open file with ``fstat`` result ``st``."""

@@ -26,6 +26,7 @@ from PySide6.QtWidgets import QMessageBox
 
 from orbitdesk.core import project as core_project
 from orbitdesk.core.project import ProjectError
+from orbitdesk.core.safe_files import DiskState
 
 AUTOSAVE_INTERVAL_MS = 20_000
 CHANGE_DELAY_MS = 2_000
@@ -137,6 +138,7 @@ class Recoverable:
     name: str
     saved_at: float
     directory: Path
+    original_state: object = core_project.UNCHECKED  # what the original file was when last opened or saved
 
     def load(self):
         return core_project.load(self.autosave)
@@ -176,6 +178,7 @@ def find_recoverable(directory: Path | None = None) -> list[Recoverable]:
             original = meta.get("original_path")
             if isinstance(original, str) and original:
                 rec.original_path = Path(original)
+                rec.original_state = DiskState.from_json(meta.get("original_state")) or core_project.UNCHECKED
             if autosave.exists():
                 if not rec.saved_at:
                     rec.saved_at = autosave.stat().st_mtime
@@ -234,7 +237,8 @@ class Autosaver(QObject):
     def _write_meta(self, saved_at: float) -> None:
         s = self.session
         meta = {"pid": os.getpid(), "name": s.name, "saved_at": saved_at,
-                "original_path": str(s.path) if s.path is not None else None}
+                "original_path": str(s.path) if s.path is not None else None,
+                "original_state": s.disk_state.to_json() if isinstance(s.disk_state, DiskState) else None}
         tmp = self.meta_path.with_suffix(".json.tmp")
         tmp.write_text(json.dumps(meta), encoding="utf-8")
         os.replace(tmp, self.meta_path)
@@ -321,7 +325,9 @@ def offer_recovery(window, directory: Path | None = None) -> bool:
         QMessageBox.warning(window, "Could not restore", f"The saved work could not be read: {e.message}")
         return False
     original = rec.original_path if rec.original_path is not None and rec.original_path.exists() else None
-    window.session.load_project(project, original)
+    # saving the restored work checks that the original was not changed since the crashed session read it
+    window.session.load_project(project, original, rec.original_state if original is not None
+                                else core_project.UNCHECKED)
     window.session.mark_dirty()
     rec.discard()
     window.statusBar().showMessage(f"Restored unsaved work on “{project.name}”", 10_000)

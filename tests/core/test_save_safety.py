@@ -245,3 +245,12 @@ def test_long_and_unusual_file_names_save_and_clean_up(tmp_path, stem):
     assert len(os.fsencode(leftover.name)) <= 255
     assert remove_stale_temps(f) == [str(leftover)]
     assert sorted(p.name for p in tmp_path.iterdir()) == sorted([name, name + ".bak"])
+
+
+def test_disk_state_round_trips_through_json_and_refuses_anything_else(tmp_path):
+    state = save(tmp_path / "p.orbitdesk", Project(name="one"))
+    assert safe_files.DiskState.from_json(state.to_json()) == state
+    good = state.to_json()
+    for bad in [None, [], "x", {**good, "size": -1}, {**good, "size": True}, {**good, "mtime_ns": 1.5},
+                {**good, "sha256": "g" * 64}, {**good, "sha256": state.digest + "\n"}, {"size": 1}]:
+        assert safe_files.DiskState.from_json(bad) is None, bad

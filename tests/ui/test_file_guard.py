@@ -311,3 +311,34 @@ def test_screenshots_of_the_new_dialogs(qtbot, window, changed_behind, artifacts
     qtbot.waitExposed(dialog)
     assert dialog.grab().save(os.path.join(artifacts, "file_guard_compare.png"))
     dialog.close()
+
+
+def test_restored_work_still_checks_the_original_for_changes(qtbot, window, tmp_path, answers):
+    """A session crashed with unsaved edits on a file; the file was changed by someone else before the
+    work was restored. Saving the restored work must ask, not overwrite."""
+    path = tmp_path / "spring.orbitdesk"
+    core_project.save(path, project(2.0))
+    assert window.open_path(path)
+    saver = recovery.Autosaver(window.session, parent=window, directory=tmp_path / "autosave", interval_ms=60_000)
+    window.session.set_param("w", 3.0)
+    assert saver.autosave_now()
+    saver.lock.release(remove=False)  # as if the process had died
+    core_project.save(path, project(1.0))  # edited elsewhere meanwhile
+    from orbitdesk.ui.main_window import MainWindow
+
+    restarted = MainWindow()  # the next start of the app
+    qtbot.addWidget(restarted)
+    recovery.set_auto_answer(recovery.RESTORE)
+    try:
+        assert recovery.offer_recovery(restarted, tmp_path / "autosave")
+        s = restarted.session
+        assert s.path == path and s.params["w"] == 3.0 and s.dirty
+        answers.queue = [file_guard.CANCEL]
+        assert not restarted.save()
+        assert answers.titles == ["File changed on disk"] and w_on_disk(path) == 1.0
+    finally:
+        recovery.set_auto_answer(None)
+        restarted.session.undo_stack.setClean()
+        restarted.session._forced_dirty = False
+        restarted.close()
+        saver.finish()
