@@ -251,6 +251,7 @@ class Autosaver(QObject):
             self._remove_autosave()
             return False
         try:
+            self.directory.mkdir(parents=True, exist_ok=True)  # back again if it was removed meanwhile
             core_project.save(self.path, self.session.to_project(), force=True)
             self._write_meta(saved_at=time.time())
         except (ProjectError, OSError) as e:

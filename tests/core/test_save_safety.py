@@ -187,10 +187,15 @@ def test_temporary_file_names_carry_host_and_pid(tmp_path):
 from hypothesis import HealthCheck, given, settings  # noqa: E402
 from hypothesis import strategies as st  # noqa: E402
 
+# A deep fuzz run (ORBITDESK_FUZZ_EXAMPLES, as in test_fuzz_parser.py) also runs these; the one that
+# writes files takes a hundredth of the examples.
+_DEEP = int(os.environ.get("ORBITDESK_FUZZ_EXAMPLES", "0"))
+
 _OTHER = st.sampled_from(["write", "same content", "touch", "delete", "read-only", "writable", "nothing"])
 
 
-@settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@settings(max_examples=max(60, _DEEP // 100), deadline=None, derandomize=not _DEEP,
+          suppress_health_check=[HealthCheck.function_scoped_fixture])
 @given(steps=st.lists(st.tuples(_OTHER, st.booleans()), min_size=1, max_size=8))
 def test_guarded_saves_never_lose_another_writers_change(tmp_path_factory, steps):
     """Another writer acts between our saves; a guarded save succeeds exactly when the content is still
@@ -254,3 +259,34 @@ def test_disk_state_round_trips_through_json_and_refuses_anything_else(tmp_path)
     for bad in [None, [], "x", {**good, "size": -1}, {**good, "size": True}, {**good, "mtime_ns": 1.5},
                 {**good, "sha256": "g" * 64}, {**good, "sha256": state.digest + "\n"}, {"size": 1}]:
         assert safe_files.DiskState.from_json(bad) is None, bad
+
+
+_file_names = st.text(st.characters(blacklist_categories=("Cs",), blacklist_characters="/\x00"),
+                      min_size=1, max_size=120).filter(lambda n: n not in (".", "..") and len(n.encode()) <= 250)
+
+
+@settings(max_examples=_DEEP or 400, deadline=None, derandomize=not _DEEP)
+@given(name=_file_names)
+def test_temporary_names_fit_and_are_recognised_for_any_file_name(name):
+    """Any file name: the temporary name stays within 255 bytes, is recognised as ours for that file, and
+    neither the file, its backup nor another file's temporary is taken for one."""
+    target = os.path.join("/somewhere", name)
+    tmp = os.path.basename(safe_files.temp_name(target))
+    assert len(os.fsencode(tmp)) <= 255
+    mine = safe_files._temp_pattern(name)
+    assert mine.fullmatch(tmp)
+    assert not mine.fullmatch(name) and not mine.fullmatch(name + ".bak") and not mine.fullmatch("." + name)
+    other = os.path.basename(safe_files.temp_name(os.path.join("/somewhere", "x" + name)))
+    assert not mine.fullmatch(other) or os.fsencode("x" + name)[:100] == os.fsencode(name)[:100]
+
+
+_json = st.recursive(st.none() | st.booleans() | st.integers() | st.floats() | st.text(max_size=70),
+                     lambda inner: st.lists(inner, max_size=3) | st.dictionaries(st.text(max_size=8), inner,
+                                                                                 max_size=4), max_leaves=10)
+
+
+@settings(max_examples=_DEEP or 400, deadline=None, derandomize=not _DEEP)
+@given(value=_json | st.fixed_dictionaries({"mtime_ns": _json, "size": _json, "sha256": _json}))
+def test_disk_state_from_any_json_never_raises(value):
+    state = safe_files.DiskState.from_json(value)
+    assert state is None or safe_files.DiskState.from_json(state.to_json()) == state
