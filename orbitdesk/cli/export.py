@@ -78,9 +78,10 @@ def _write(text: str, output: str | None) -> None:
     if output is None:
         sys.stdout.write(text)
         return
-    try:
-        with open(output, "w", encoding="utf-8", newline="\n") as handle:
-            handle.write(text)
+    from orbitdesk.core.safe_write import write_atomically
+
+    try:  # complete or not at all
+        write_atomically(output, text, newline="\n", mode=0o777 if output.endswith(".py") else 0o666)
     except OSError as err:
         raise CommandError(f"cannot write {output}: {err.strerror or err}") from None
     if output.endswith(".py"):

@@ -135,9 +135,11 @@ def report_html(window, equilibria=None) -> str:
 # ---------------------------------------------------------------- writing
 
 def _write(path, text: str, executable: bool = False) -> Path:
+    from orbitdesk.core.safe_write import write_atomically
+
     path = Path(path)
-    try:
-        path.write_text(text, encoding="utf-8", newline="\n")
+    try:  # complete or not at all
+        write_atomically(path, text, newline="\n", mode=0o777 if executable else 0o666)
         if executable:
             os.chmod(path, 0o755)
     except OSError as e:

@@ -13,10 +13,12 @@ from PySide6.QtWidgets import (QApplication, QComboBox, QDockWidget, QDoubleSpin
                                QMainWindow, QMessageBox, QProgressBar, QPushButton, QSizePolicy, QSlider,
                                QSpinBox, QSplitter, QStyle, QToolBar, QToolButton, QVBoxLayout, QWidget)
 
+from orbitdesk.core.export_csv import write_csv
 from orbitdesk.core.project import ProjectError
 
 from . import views as views_pkg
 from .file_guard import DocumentGuard
+from .plain_text import plain_message
 from .session import Session
 
 log = logging.getLogger("orbitdesk.ui.main_window")
@@ -752,9 +754,7 @@ class MainWindow(QMainWindow):
             return False
         header, rows = data
         rows = np.atleast_2d(np.asarray(rows, dtype=float))
-        with open(path, "w", encoding="utf-8", newline="") as f:
-            f.write(",".join(_csv_field(h) for h in header) + "\n")
-            np.savetxt(f, rows, delimiter=",", fmt="%.17g")
+        write_csv(path, header, rows.tolist())  # atomic: a failure leaves no partial file
         return True
 
     def export_plot_dialog(self, kind: str, plot=None) -> bool:
@@ -795,7 +795,11 @@ class MainWindow(QMainWindow):
             return False
         if not path.lower().endswith(".csv"):
             path += ".csv"
-        ok = self.export_data(path, view)
+        try:
+            ok = self.export_data(path, view)
+        except OSError as e:
+            plain_message(self, "warning", "Export Data", f"Could not write {Path(path).name}: {e.strerror or e}")
+            return False
         self.statusBar().showMessage(f"Exported {Path(path).name}" if ok else "Nothing to export yet", 5000)
         return ok
 
@@ -816,10 +820,3 @@ class MainWindow(QMainWindow):
         self.session.shutdown()
         self.guard.release()
         event.accept()
-
-
-def _csv_field(text: str) -> str:
-    text = str(text)
-    if any(c in text for c in ',"\n'):
-        return '"' + text.replace('"', '""') + '"'
-    return text
