@@ -84,7 +84,7 @@ class ErrorDialog(QDialog):
 
     def add(self, message: str, details: str, log_file: Path | None) -> None:
         self.count += 1
-        where = f"<p>The details were written to <code>{log_file}</code>.</p>" if log_file else ""
+        where = f"<p>The details were written to <code>{_escape(str(log_file))}</code>.</p>" if log_file else ""
         more = f"<p>({self.count} problems so far in this session.)</p>" if self.count > 1 else ""
         self.message.setText(
             f"<p><b>OrbitDesk ran into an internal problem</b> and stopped what it was doing.</p>"

@@ -9,7 +9,9 @@ from pathlib import Path
 
 from PySide6.QtCore import QBuffer, QByteArray, QIODevice
 from PySide6.QtGui import QAction, QImage, QPixmap
-from PySide6.QtWidgets import QFileDialog, QMenu, QMessageBox
+from PySide6.QtWidgets import QFileDialog, QMenu
+
+from .plain_text import plain_message
 
 LATEX_DOCUMENT = "LaTeX document (*.tex)"
 LATEX_SNIPPET = "LaTeX equations only, to paste into a document (*.tex)"
@@ -217,7 +219,7 @@ def _report(window, ok: bool, what: str, path=None, message: str = "") -> bool:
     if ok:
         window.statusBar().showMessage(f"Exported {what} to {Path(path).name}", 8000)
     else:
-        QMessageBox.warning(window, "Export", f"Could not export {what}: {message}")
+        plain_message(window, "warning", "Export", f"Could not export {what}: {message}")
     return ok
 
 

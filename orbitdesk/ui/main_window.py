@@ -18,7 +18,7 @@ from orbitdesk.core.project import ProjectError
 
 from . import views as views_pkg
 from .file_guard import DocumentGuard
-from .plain_text import plain_message
+from .plain_text import menu_text, plain_message, rich_tip
 from .session import Session
 
 log = logging.getLogger("orbitdesk.ui.main_window")
@@ -613,7 +613,7 @@ class MainWindow(QMainWindow):
             labels = {"diverged": "Blew up", "undefined": "Undefined value", "cancelled": "Stopped",
                       "step_failed": "Step size collapsed"}
             text = f"{labels.get(traj.status, traj.status)} after {n:,} points"
-            self.run_status.setToolTip(traj.message or "State of the last run")
+            self.run_status.setToolTip(rich_tip(traj.message) if traj.message else "State of the last run")
         self.run_status.setText(text)
 
     # ------------------------------------------------------------ documents
@@ -621,8 +621,8 @@ class MainWindow(QMainWindow):
         """Ask before unsaved work is closed or replaced. True means: go ahead."""
         if not self.session.dirty:
             return True
-        answer = QMessageBox.question(
-            self, "Unsaved changes", f"“{self.session.name}” has changes that are not saved. Save them first?",
+        answer = plain_message(
+            self, "question", "Unsaved changes", f"“{self.session.name}” has changes that are not saved. Save them first?",
             QMessageBox.StandardButton.Save | QMessageBox.StandardButton.Discard
             | QMessageBox.StandardButton.Cancel, QMessageBox.StandardButton.Save)
         if answer == QMessageBox.StandardButton.Save:
@@ -653,7 +653,7 @@ class MainWindow(QMainWindow):
             self.session.open(path)
         except ProjectError as e:
             where = f"\n\n(at {e.path} in the file)" if e.path not in ("", "$") else ""
-            QMessageBox.critical(self, "Could not open the file", f"{Path(path).name}: {e.message}{where}")
+            plain_message(self, "critical", "Could not open the file", f"{Path(path).name}: {e.message}{where}")
             return False
         self.add_recent(Path(path))
         self.documentOpened.emit()
@@ -686,8 +686,8 @@ class MainWindow(QMainWindow):
         if self.session.path is None:
             return False
         if self.session.dirty:
-            answer = QMessageBox.question(
-                self, "Revert", f"Discard the changes to “{self.session.name}” and reload the saved version?",
+            answer = plain_message(
+                self, "question", "Revert", f"Discard the changes to “{self.session.name}” and reload the saved version?",
                 QMessageBox.StandardButton.Discard | QMessageBox.StandardButton.Cancel,
                 QMessageBox.StandardButton.Cancel)
             if answer != QMessageBox.StandardButton.Discard:
@@ -710,8 +710,8 @@ class MainWindow(QMainWindow):
         self.recent_menu.clear()
         files = self.recent_files()
         for f in files:
-            a = self.recent_menu.addAction(Path(f).name)
-            a.setToolTip(f)
+            a = self.recent_menu.addAction(menu_text(Path(f).name))
+            a.setToolTip(rich_tip(f))
             a.triggered.connect(lambda _=False, f=f: self.open_path(f))
         if not files:
             a = self.recent_menu.addAction("No recent files")

@@ -21,12 +21,14 @@ import time
 from dataclasses import dataclass
 from pathlib import Path
 
-from PySide6.QtCore import QObject, QStandardPaths, QTimer, Signal
+from PySide6.QtCore import QObject, QStandardPaths, Qt, QTimer, Signal
 from PySide6.QtWidgets import QMessageBox
 
 from orbitdesk.core import project as core_project
 from orbitdesk.core.project import ProjectError
 from orbitdesk.core.safe_files import DiskState
+
+from .plain_text import plain_message
 
 AUTOSAVE_INTERVAL_MS = 20_000
 CHANGE_DELAY_MS = 2_000
@@ -299,6 +301,7 @@ def _answer(parent, rec: Recoverable) -> str:
     box = QMessageBox(parent)
     box.setIcon(QMessageBox.Icon.Question)
     box.setWindowTitle("Restore unsaved work?")
+    box.setTextFormat(Qt.TextFormat.PlainText)  # the name comes from the file
     box.setText(f"OrbitDesk did not close normally last time.\n\nUnsaved work on “{rec.name}” "
                 f"from {when} was kept.{where}")
     box.setInformativeText("Restore it now? If you discard it, it cannot be brought back.")
@@ -323,7 +326,7 @@ def offer_recovery(window, directory: Path | None = None) -> bool:
     try:
         project = rec.load()
     except ProjectError as e:
-        QMessageBox.warning(window, "Could not restore", f"The saved work could not be read: {e.message}")
+        plain_message(window, "warning", "Could not restore", f"The saved work could not be read: {e.message}")
         return False
     original = rec.original_path if rec.original_path is not None and rec.original_path.exists() else None
     # saving the restored work checks that the original was not changed since the crashed session read it
