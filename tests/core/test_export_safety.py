@@ -144,6 +144,7 @@ def test_corpus_texts_as_titles_and_comments(name, text, baseline, hostile_syste
         script = run_script(system, SETTINGS, title=name, output="run.csv")
         assert set(script) <= PRINTABLE_ASCII
         assert _tree(script) == _tree(run_script(compile_model(stripped), SETTINGS, title="t", output="run.csv"))
+        _check_tex_commands(model_latex(model, standalone=True, title=text))
 
 
 # ---------------------------------------------------------------- LaTeX
@@ -160,6 +161,27 @@ def _check_tex_text(escaped: str) -> None:
     assert not set(bare) & set("\\{}$&#%_^~"), escaped
     assert "\n" not in escaped and "\r" not in escaped
     assert all(c.isprintable() for c in escaped), escaped
+
+
+DANGEROUS_TEX = {"input", "include", "write", "immediate", "openout", "openin", "read", "catcode", "def", "edef",
+                 "gdef", "let", "csname", "special", "newcommand", "renewcommand", "usepackage", "documentclass",
+                 "end", "begin", "makeatletter", "string", "jobname", "loop", "expandafter"}
+OUR_TEX = {"documentclass", "usepackage", "begin", "end"}  # used once each by our own document frame
+
+
+def _check_tex_commands(document: str) -> None:
+    words = re.findall(r"\\([A-Za-z]+)", document)
+    assert not (set(words) & DANGEROUS_TEX) - OUR_TEX, set(words) & DANGEROUS_TEX
+    assert words.count("documentclass") <= 1 and words.count("usepackage") <= 1
+    assert [w for w in words if w in ("begin", "end")] in (["begin", "begin", "end", "end"], ["begin", "end"])
+
+
+def test_latex_names_like_tex_primitives_stay_names():
+    names = ["input", "write", "immediate", "catcode", "openout", "special", "csname", "expandafter", "jobname"]
+    text = "".join(f"{n} = 1\n" for n in names) + "x' = " + " + ".join(names) + " + input_write*x\ninput_write = 2\n"
+    document = model_latex(text, standalone=True, title="T")
+    _check_tex_commands(document)
+    assert r"\mathit{input}" in document and r"\mathit{input}_{write}" in document
 
 
 @pytest.mark.parametrize("title", TEX_TITLES)
