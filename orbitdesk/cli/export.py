@@ -78,17 +78,12 @@ def _write(text: str, output: str | None) -> None:
     if output is None:
         sys.stdout.write(text)
         return
-    from orbitdesk.core.safe_write import write_atomically
+    from orbitdesk.core.safe_files import atomic_write
 
     try:  # complete or not at all
-        write_atomically(output, text, newline="\n", mode=0o777 if output.endswith(".py") else 0o666)
+        atomic_write(output, text.encode("utf-8"), 0o755 if output.endswith(".py") else None)
     except OSError as err:
         raise CommandError(f"cannot write {output}: {err.strerror or err}") from None
-    if output.endswith(".py"):
-        try:
-            os.chmod(output, 0o755)
-        except OSError:
-            pass
 
 
 def run(args) -> int:

@@ -5,16 +5,17 @@ formula — beginning with ``=``, ``+``, ``-``, ``@``, a tab or a carriage retur
 apostrophe, which spreadsheets take as "this is text". Quoting is the ``csv`` module's (commas,
 quotes and line breaks inside a cell are quoted). Numbers are written as the shortest text that reads
 back as the same double (``repr``), so ``-1.5`` stays a number. The file is written by
-``safe_write.write_atomically``: a failure (full disk, unwritable folder, an error while producing
+``safe_files.atomic_write``: a failure (full disk, unwritable folder, an error while producing
 the rows) leaves no partial file and keeps an existing file as it was.
 """
 
 from __future__ import annotations
 
 import csv
+import io
 from typing import Iterable, Sequence
 
-from .safe_write import write_atomically
+from .safe_files import atomic_write
 
 FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
 
@@ -31,14 +32,12 @@ def number_cell(value) -> str:
 
 def write_csv(path, header: Sequence, rows: Iterable[Sequence]) -> None:
     """Write ``header`` (text cells) and ``rows`` (numbers) to ``path`` atomically; raises OSError."""
-
-    def fill(handle):
-        writer = csv.writer(handle)
-        writer.writerow([text_cell(h) for h in header])
-        for row in rows:
-            writer.writerow([number_cell(v) for v in row])
-
-    write_atomically(path, fill, newline="")
+    buffer = io.StringIO(newline="")
+    writer = csv.writer(buffer)
+    writer.writerow([text_cell(h) for h in header])
+    for row in rows:
+        writer.writerow([number_cell(v) for v in row])
+    atomic_write(str(path), buffer.getvalue().encode("utf-8"), None)
 
 
 __all__ = ["FORMULA_STARTS", "number_cell", "text_cell", "write_csv"]

@@ -30,7 +30,7 @@ import threading
 import types
 from pathlib import Path
 
-from .safe_write import write_atomically
+from .safe_files import atomic_write
 
 log = logging.getLogger("orbitdesk.cache")
 _lock = threading.Lock()
@@ -130,7 +130,7 @@ def verified_source(folder: Path, name: str, source: str) -> tuple[str, str]:
     expected = source_hash(source)
     data = _read_own_file(path)
     if data is None or hashlib.sha256(data).hexdigest() != expected:
-        write_atomically(path, source.encode("utf-8"), mode=0o600)
+        atomic_write(str(path), source.encode("utf-8"), 0o600)
         data = _read_own_file(path)
     if data is None or hashlib.sha256(data).hexdigest() != expected:
         raise OSError(f"{path} does not hold the code written there")

@@ -4,7 +4,6 @@ this module gathers what is on screen and writes the files."""
 
 from __future__ import annotations
 
-import os
 from pathlib import Path
 
 from PySide6.QtCore import QBuffer, QByteArray, QIODevice
@@ -137,13 +136,11 @@ def report_html(window, equilibria=None) -> str:
 # ---------------------------------------------------------------- writing
 
 def _write(path, text: str, executable: bool = False) -> Path:
-    from orbitdesk.core.safe_write import write_atomically
+    from orbitdesk.core.safe_files import atomic_write
 
     path = Path(path)
     try:  # complete or not at all
-        write_atomically(path, text, newline="\n", mode=0o777 if executable else 0o666)
-        if executable:
-            os.chmod(path, 0o755)
+        atomic_write(str(path), text.encode("utf-8"), 0o755 if executable else None)
     except OSError as e:
         raise ExportError(f"cannot write {path.name}: {e.strerror or e}") from None
     return path

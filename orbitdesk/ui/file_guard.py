@@ -30,6 +30,7 @@ from orbitdesk.core.project import Project, ProjectConflict, ProjectError, Proje
 from orbitdesk.core.project_changes import describe_changes, model_diff
 
 from . import recovery
+from .plain_text import plain_message
 
 ENV_NO_DIALOGS = "ORBITDESK_NO_DIALOGS"
 COMPARE, SAVE_AS, RELOAD, OVERWRITE, CANCEL, OPEN = "compare", "save_as", "reload", "overwrite", "cancel", "open"
@@ -271,7 +272,7 @@ class DocumentGuard(QObject):
                     return self.window.save_as()
                 return False
             except ProjectError as e:
-                QMessageBox.critical(self.window, "Could not save", e.message)
+                plain_message(self.window, "critical", "Could not save", e.message)
                 return False
             self.follow()
             return True

@@ -16,6 +16,7 @@ headline. Everything here shows such text literally:
 from __future__ import annotations
 
 import html
+import os
 
 from PySide6.QtCore import Qt
 from PySide6.QtWidgets import QLabel, QMessageBox
@@ -66,7 +67,11 @@ def message_box(parent, kind: str, title: str, text: str, buttons=None, default=
 
 
 def show_box(box: QMessageBox, kind: str):
-    """Run the box modally and return the standard button chosen (tests replace this)."""
+    """Run the box modally and return the standard button chosen (tests replace this). With dialogs
+    switched off (``ORBITDESK_NO_DIALOGS``) nothing is shown and the answer is Cancel when offered."""
+    if os.environ.get("ORBITDESK_NO_DIALOGS"):
+        cancel = QMessageBox.StandardButton.Cancel
+        return cancel if box.standardButtons() & cancel else QMessageBox.StandardButton.NoButton
     box.exec()
     return box.standardButton(box.clickedButton()) if box.clickedButton() else QMessageBox.StandardButton.NoButton
 

@@ -271,6 +271,40 @@ def test_csv_text_cells_are_never_formulas(tmp_path, cell):
     assert text_cell("x") == "x" and text_cell("-x") == "'-x"
 
 
+def test_csv_export_that_fails_while_writing_leaves_no_partial_file(tmp_path, monkeypatch):
+    from orbitdesk.core import safe_files
+
+    path = tmp_path / "out.csv"
+    real_fdopen = os.fdopen
+
+    class FullDisk:  # a file that takes part of the data, then reports a full disk
+        def __init__(self, handle):
+            self.handle = handle
+
+        def __enter__(self):
+            return self
+
+        def __exit__(self, *exc):
+            self.handle.close()
+
+        def write(self, data):
+            self.handle.write(data[: len(data) // 2])
+            raise OSError(28, "No space left on device")
+
+        def __getattr__(self, name):
+            return getattr(self.handle, name)
+
+    monkeypatch.setattr(safe_files.os, "fdopen", lambda fd, *a, **k: FullDisk(real_fdopen(fd, *a, **k)))
+    for existing in (None, "old,content\n"):
+        if existing is not None:
+            path.write_text(existing)
+        with pytest.raises(OSError, match="No space left"):
+            write_csv(path, ["a", "b"], [[float(i), 2.0] for i in range(1000)])
+        assert [p.name for p in tmp_path.iterdir()] == ([] if existing is None else ["out.csv"])
+        if existing is not None:
+            assert path.read_text() == existing
+
+
 def test_csv_export_that_fails_leaves_no_partial_file(tmp_path):
     path = tmp_path / "out.csv"
 
@@ -290,7 +324,7 @@ def test_csv_export_that_fails_leaves_no_partial_file(tmp_path):
 def test_csv_into_an_unwritable_folder_is_an_error_without_a_file(tmp_path, monkeypatch):
     from orbitdesk.cli.common import CommandError
     from orbitdesk.cli.common import write_csv as cli_write_csv
-    from orbitdesk.core import safe_write
+    from orbitdesk.core import safe_files
 
     real_open = os.open
 
@@ -299,7 +333,7 @@ def test_csv_into_an_unwritable_folder_is_an_error_without_a_file(tmp_path, monk
             raise PermissionError(13, "Permission denied", str(path))
         return real_open(path, flags, *args)
 
-    monkeypatch.setattr(safe_write.os, "open", refusing_open)
+    monkeypatch.setattr(safe_files.os, "open", refusing_open)
     with pytest.raises(CommandError, match="cannot write .*Permission denied"):
         cli_write_csv(str(tmp_path / "x.csv"), ["t"], [[0.0, 1.0]])
     assert list(tmp_path.iterdir()) == []

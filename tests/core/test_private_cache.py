@@ -18,7 +18,7 @@ import pytest
 
 from orbitdesk.core import jit, private_cache
 from orbitdesk.core.ensemble import rk4_ensemble
-from orbitdesk.core.safe_write import scratch_name, write_atomically
+from orbitdesk.core.safe_files import atomic_write, temp_name
 from orbitdesk.core.system import compile_model
 
 OSCILLATOR = "w = 1.5\nx'' = -w^2*x\nx(0) = 1\n"
@@ -145,7 +145,7 @@ def test_a_planted_pyc_is_never_executed(cache, tmp_path):
     source = jit.module_source(system)
     key = jit._key(source)
     folder = private_cache.private_folder("jit")
-    write_atomically(folder / f"m{key}.py", source.encode(), mode=0o600)
+    atomic_write(str(folder / f"m{key}.py"), source.encode(), 0o600)
     marker = tmp_path / "pwned"
     payload = MARKER_CODE.format(marker=str(marker))
     tag = sys.implementation.cache_tag
@@ -170,7 +170,7 @@ def test_a_replaced_source_file_is_rewritten_not_run(cache, tmp_path):
 def test_temporary_files_are_unpredictable_and_exclusive(cache, tmp_path):
     folder = private_cache.private_folder("jit")
     target = folder / "mgen.py"
-    names = {scratch_name(str(target)) for _ in range(50)}
+    names = {temp_name(str(target)) for _ in range(50)}
     assert len(names) == 50
     # a link planted at the name a process id would give is never followed
     victim = tmp_path / "victim.txt"
