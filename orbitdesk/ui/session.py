@@ -19,6 +19,7 @@ import numpy as np
 from PySide6.QtCore import QObject, QTimer, Signal
 from PySide6.QtGui import QUndoCommand, QUndoStack
 
+from orbitdesk.core.families import with_structural_value
 from orbitdesk.core import project as core_project
 from orbitdesk.core.project import ParameterSetting, Project, ProjectError, SolverSettings
 
@@ -325,6 +326,12 @@ class Session(QObject):
     def set_param(self, name: str, value: float) -> None:
         value = float(value)
         if self.params.get(name) == value:
+            return
+        parsed = self.parsed
+        if parsed is not None and name in parsed.structural and name in parsed.parameters:
+            # the size of a family: the model itself changes, so the new value goes into its line
+            self.set_text(with_structural_value(self.text, parsed.parameters[name].line, name, value))
+            self.validate_now()
             return
         self.undo_stack.push(_ValueCommand(self, "params", name, self.params.get(name, value), value))
 
