@@ -28,6 +28,7 @@ from .worker import JobRunner
 VALIDATE_DELAY_MS = 120
 TEXT_MERGE_SECONDS = 2.0     # typing pauses longer than this start a new undo step
 VALUE_MERGE_SECONDS = 1.5    # same for slider moves of one parameter
+clock = time.monotonic       # what undo merging reads (tests replace it to be independent of load)
 PROJECT_SUFFIXES = (".orbitdesk", ".json")
 SOLVER_FIELDS = tuple(f.name for f in dataclasses.fields(SolverSettings))
 
@@ -96,7 +97,7 @@ class _TextCommand(QUndoCommand):
     def __init__(self, session: "Session", old: str, new: str):
         super().__init__("Edit model")
         self.s, self.old, self.new = session, old, new
-        self.stamp = time.monotonic()
+        self.stamp = clock()
 
     def id(self):
         return self.ID
@@ -127,7 +128,7 @@ class _ValueCommand(QUndoCommand):
         what = "parameter" if table == "params" else "initial value"
         super().__init__(f"Change {what} {name}")
         self.s, self.table, self.name, self.old, self.new = session, table, name, old, new
-        self.stamp = time.monotonic()
+        self.stamp = clock()
 
     def id(self):
         return self.ID
@@ -180,7 +181,7 @@ class _SolverCommand(QUndoCommand):
     def __init__(self, session: "Session", old: SolverSettings, new: SolverSettings, keys: frozenset):
         super().__init__("Change solver settings")
         self.s, self.old, self.new, self.keys = session, old, new, keys
-        self.stamp = time.monotonic()
+        self.stamp = clock()
 
     def id(self):
         return self.ID
