@@ -4,11 +4,9 @@ LaTeX, a standalone Python script reproducing the run, or an HTML report. Prints
 from __future__ import annotations
 
 import copy
-import io
 import os
 import sys
 
-from orbitdesk.core.engine import simulate
 from orbitdesk.core.project import ParameterSetting, Project
 
 from .common import CommandError, add_value_options, load_system, read_source, values_for
@@ -53,37 +51,32 @@ def _equilibria(system, p):
         return None
 
 
-def _figures(system, project, settings, u0, p) -> dict:
-    """A time-series figure when matplotlib is installed; none otherwise (the app passes its own views)."""
+def _figures_and_results(project, equilibria):
+    """The report's figures and computed results, drawn by the app's own plots on Qt's offscreen
+    platform (``orbitdesk.ui.figures``, imported only here, so that the other commands never load Qt);
+    none when Qt cannot start."""
     try:
-        import matplotlib
-        matplotlib.use("Agg")
-        import matplotlib.pyplot as plt
-    except ImportError:
-        return {}
-    run = simulate(system, settings, u0, p)
-    figure, axes = plt.subplots(figsize=(8, 3.6), dpi=110)
-    for name in system.states:
-        axes.plot(run.time, run.series(name), linewidth=1, label=name)
-    axes.set_xlabel(system.time_name)
-    axes.legend(frameon=False)
-    figure.tight_layout()
-    buffer = io.BytesIO()
-    figure.savefig(buffer, format="png")
-    plt.close(figure)
-    return {"Time series of the stored run": buffer.getvalue()}
+        from orbitdesk.ui.figures import headless_report_parts
+    except ImportError as err:
+        print(f"orbitdesk export: no figures ({err})", file=sys.stderr)
+        return {}, {}
+    return headless_report_parts(project, equilibria)
 
 
 def _write(text: str, output: str | None) -> None:
     if output is None:
         sys.stdout.write(text)
         return
-    from orbitdesk.core.safe_files import atomic_write
-
-    try:  # complete or not at all
-        atomic_write(output, text.encode("utf-8"), 0o755 if output.endswith(".py") else None)
+    try:
+        with open(output, "w", encoding="utf-8", newline="\n") as handle:
+            handle.write(text)
     except OSError as err:
         raise CommandError(f"cannot write {output}: {err.strerror or err}") from None
+    if output.endswith(".py"):
+        try:
+            os.chmod(output, 0o755)
+        except OSError:
+            pass
 
 
 def run(args) -> int:
@@ -109,9 +102,9 @@ def run(args) -> int:
     else:
         from orbitdesk.core.report import render_report
 
-        settings = settings_for(source, args)
         project = _project_for(source, system, p, u0)
-        text = render_report(project, system, _figures(system, project, settings, u0, p),
-                             equilibria=_equilibria(system, p))
+        equilibria = _equilibria(system, p)
+        figures, results = _figures_and_results(project, equilibria)
+        text = render_report(project, system, figures, equilibria=equilibria, results=results)
     _write(text, args.output)
     return 0

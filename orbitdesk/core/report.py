@@ -159,9 +159,72 @@ def _step_summary(snapshot: dict, params: dict, initial: dict) -> str:
     return "; ".join(parts)
 
 
-def render_report(project, system, figures: dict | None = None, equilibria=None) -> str:
+def _lyapunov_rows(r, time_name: str) -> list[list[str]]:
+    per = "per step" if r.kind == MAP else f"per unit {time_name}"
+    values = [float(v) for v in r.exponents]
+    rows = [[f"\u03bb{k + 1}", _num(v, 5), per] for k, v in enumerate(values)]
+    if len(values) > 1 and all(math.isfinite(v) for v in values):
+        rows.append(["sum", _num(sum(values), 5), per])
+    if r.kaplan_yorke_dimension is not None and math.isfinite(r.kaplan_yorke_dimension):
+        rows.append(["Kaplan\u2013Yorke dimension", _num(r.kaplan_yorke_dimension, 4), ""])
+    method = "QR of the tangent vectors" if r.method == "qr" else "two nearby trajectories"
+    over = f"{int(r.averaged_over)} steps" if r.kind == MAP else f"{_num(r.averaged_over, 4)} time units"
+    rows.append(["method", _e(method), f"averaged over {over}"])
+    return rows
+
+
+def _sweep_rows(r) -> list[list[str]]:
+    values = [float(v) for v in r.values]
+    counts = [int(sum(1 for v in row if math.isfinite(float(v)))) for row in r.samples]
+    rows = [["parameter", f'<span class="math">{_e(r.parameter)}</span>',
+             f"{len(values)} values from {_num(values[0])} to {_num(values[-1])}" if values else ""],
+            ["observed", f'<span class="math">{_e(r.observed)}</span>', _e(r.mode)],
+            ["points", _num(sum(counts)), f"{_num(min(counts))} to {_num(max(counts))} per value" if counts else ""]]
+    if r.lyapunov is not None:
+        lam = [float(v) for v in r.lyapunov if math.isfinite(float(v))]
+        if lam:
+            positive = sum(1 for v in lam if v > 0)
+            rows.append(["largest exponent", f"{_num(min(lam), 4)} to {_num(max(lam), 4)}",
+                         f"positive (chaotic) at {positive} of {len(lam)} values"])
+    return rows
+
+
+def _section_rows(r) -> list[list[str]]:
+    n = int(r.times.size)
+    rows = [["crossings", _num(n), f"of {_num(r.requested)} asked for"]]
+    for k, name in enumerate(r.state_names):
+        values = [float(v) for v in r.points[k] if math.isfinite(float(v))] if n else []
+        if values and min(values) != max(values):  # (not the coordinate the plane fixes)
+            rows.append([f'<span class="math">{_e(name)}</span>', f"{_num(min(values), 5)} to {_num(max(values), 5)}",
+                         "range on the section"])
+    return rows
+
+
+def _results_html(results: dict, system) -> list[str]:
+    """Numbers of the computed results the caller passes: ``{"lyapunov": LyapunovResult,
+    "sweep": SweepResult, "section": SectionResult}`` (any may be missing)."""
+    out = []
+    parts = (("lyapunov", "Lyapunov exponents", lambda r: _lyapunov_rows(r, system.time_name)),
+             ("sweep", "Parameter sweep", _sweep_rows), ("section", "Section", _section_rows))
+    for key, heading, rows_of in parts:
+        result = results.get(key)
+        if result is None:
+            continue
+        out.append(f"<h3>{heading}</h3>")
+        out.append(_table(None, rows_of(result), numeric=(1,)))
+        notes = list(getattr(result, "warnings", []) or [])
+        if getattr(result, "status", "ok") != "ok" and getattr(result, "message", ""):
+            notes.insert(0, result.message)
+        out.extend(f'<p class="muted">{_e(note)}</p>' for note in notes)
+    if out:
+        out.insert(0, "<h2>Computed results</h2>")
+    return out
+
+
+def render_report(project, system, figures: dict | None = None, equilibria=None, results: dict | None = None) -> str:
     """The report as HTML text. ``figures`` maps a caption to PNG bytes (drawn by the caller);
-    ``equilibria`` is a list of Equilibrium objects or their ``to_dict()`` forms, or None."""
+    ``equilibria`` is a list of Equilibrium objects or their ``to_dict()`` forms, or None; ``results``
+    holds the other computed results whose numbers go in (see ``_results_html``)."""
     figures = dict(figures or {})
     for title, data in figures.items():
         if not isinstance(data, (bytes, bytearray)) or not bytes(data[:8]) == PNG_SIGNATURE:
@@ -239,6 +302,8 @@ def render_report(project, system, figures: dict | None = None, equilibria=None)
             out.append('<p class="muted">None found in the search box.</p>')
         for note in getattr(equilibria, "notes", []) or []:
             out.append(f'<p class="muted">{_e(note)}</p>')
+
+    out.extend(_results_html(results or {}, system))
 
     if figures:
         out.append("<h2>Figures</h2>")

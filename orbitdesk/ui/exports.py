@@ -4,13 +4,11 @@ this module gathers what is on screen and writes the files."""
 
 from __future__ import annotations
 
+import os
 from pathlib import Path
 
-from PySide6.QtCore import QBuffer, QByteArray, QIODevice
-from PySide6.QtGui import QAction, QImage, QPixmap
-from PySide6.QtWidgets import QFileDialog, QMenu
-
-from .plain_text import plain_message
+from PySide6.QtGui import QAction
+from PySide6.QtWidgets import QFileDialog, QMenu, QMessageBox
 
 LATEX_DOCUMENT = "LaTeX document (*.tex)"
 LATEX_SNIPPET = "LaTeX equations only, to paste into a document (*.tex)"
@@ -65,20 +63,43 @@ def script_text(session, csv_name: str = "run.csv") -> str:
         raise ExportError(str(e)) from None
 
 
-def png_bytes(widget) -> bytes:
-    """A picture of ``widget`` as PNG (OpenGL views through their framebuffer)."""
-    image = None
-    grab_fb = getattr(widget, "grabFramebuffer", None)
-    if grab_fb is not None:
-        image = grab_fb()
-    if image is None or (isinstance(image, QImage) and image.isNull()):
-        image = widget.grab()
-    data = QByteArray()
-    buffer = QBuffer(data)
-    buffer.open(QIODevice.OpenModeFlag.WriteOnly)
-    (image if isinstance(image, (QImage, QPixmap)) else QPixmap()).save(buffer, "PNG")
-    buffer.close()
-    return bytes(data)
+def view_figures(window) -> dict[str, bytes]:
+    """Caption -> PNG of every plot of every view the window has made (in sight, behind a tab or closed),
+    drawn off screen at one fixed, readable size from what each plot holds, fitted to its data (plots
+    without data are left out); the 3D scene rendered at that size too when it has drawn once."""
+    from . import figures
+
+    found: dict[str, bytes] = {}
+
+    def add(caption, data):
+        name, k = caption, 2
+        while name in found:
+            name, k = f"{caption} ({k})", k + 1
+        found[name] = data
+
+    for module, view in window.views.items():
+        if module in NO_FIGURE_VIEWS:
+            continue
+        for choice in figures.view_plots(view, module):
+            if figures.has_data(choice.plot):
+                add(choice.caption, figures.png_data(figures.plot_image(
+                    choice.plot, *figures.REPORT_SIZE, legend=figures.has_named_curves(choice.plot), host=view,
+                    fit=True)))
+        image = figures.scene_image(view, *figures.REPORT_SIZE)
+        if image is not None:
+            add(_caption(view), figures.png_data(image))
+    return found
+
+
+def view_results(window) -> dict:
+    """The computed results the report gives the numbers of (``core.report._results_html``)."""
+    out = {}
+    for module, key in (("lyapunov", "lyapunov"), ("sweep", "sweep"), ("sections", "section")):
+        view = window.views.get(module)
+        result = getattr(view, "result", None) if view is not None else None
+        if result is not None:
+            out[key] = result
+    return out
 
 
 def _caption(view) -> str:
@@ -87,31 +108,9 @@ def _caption(view) -> str:
         d = view.view_settings()
     except Exception:  # noqa: BLE001
         return title
-    if isinstance(d.get("x"), str) and isinstance(d.get("y"), str):
-        return f"{title}: {d['y']} against {d['x']}"
     if isinstance(d.get("axes"), list) and all(isinstance(a, str) for a in d["axes"]):
         return f"{title}: {', '.join(d['axes'])}"
-    if isinstance(d.get("series"), list) and d["series"]:
-        return f"{title}: {', '.join(map(str, d['series']))}"
     return title
-
-
-def view_figures(window) -> dict[str, bytes]:
-    """Caption -> PNG of every view in sight (its plot, else the whole view)."""
-    figures: dict[str, bytes] = {}
-    for module, view in window.views.items():
-        dock = window.view_docks.get(module)
-        if dock is None or not dock.isVisible() or module in NO_FIGURE_VIEWS:
-            continue
-        target = getattr(view, "plot_widget", None) or view
-        data = png_bytes(target)
-        if not data:
-            continue
-        caption, k = _caption(view), 2
-        while caption in figures:
-            caption, k = f"{_caption(view)} ({k})", k + 1
-        figures[caption] = data
-    return figures
 
 
 def _view_equilibria(window, system):
@@ -130,17 +129,18 @@ def report_html(window, equilibria=None) -> str:
     project = session.to_project()
     if equilibria is None:
         equilibria = _view_equilibria(window, system)
-    return render_report(project, system, view_figures(window), equilibria=equilibria)
+    return render_report(project, system, view_figures(window), equilibria=equilibria,
+                         results=view_results(window))
 
 
 # ---------------------------------------------------------------- writing
 
 def _write(path, text: str, executable: bool = False) -> Path:
-    from orbitdesk.core.safe_files import atomic_write
-
     path = Path(path)
-    try:  # complete or not at all
-        atomic_write(str(path), text.encode("utf-8"), 0o755 if executable else None)
+    try:
+        path.write_text(text, encoding="utf-8", newline="\n")
+        if executable:
+            os.chmod(path, 0o755)
     except OSError as e:
         raise ExportError(f"cannot write {path.name}: {e.strerror or e}") from None
     return path
@@ -216,7 +216,7 @@ def _report(window, ok: bool, what: str, path=None, message: str = "") -> bool:
     if ok:
         window.statusBar().showMessage(f"Exported {what} to {Path(path).name}", 8000)
     else:
-        plain_message(window, "warning", "Export", f"Could not export {what}: {message}")
+        QMessageBox.warning(window, "Export", f"Could not export {what}: {message}")
     return ok
 
 

@@ -14,7 +14,7 @@ from dataclasses import dataclass
 
 import numpy as np
 import pyqtgraph as pg
-from PySide6.QtCore import QBuffer, QByteArray, QIODevice, QRect, QRectF, QSize, Qt
+from PySide6.QtCore import QBuffer, QByteArray, QIODevice, QRect, QRectF, QSize, Qt, QTimer
 from PySide6.QtGui import QImage, QPainter
 from PySide6.QtWidgets import QApplication
 
@@ -85,7 +85,7 @@ def _copy_scatter(item):
 
 
 def _copy_item(item):
-    if not item.isVisible():
+    if not item.isVisible() or getattr(item, "_plot_tool", False):  # readout marks stay on screen
         return None
     if isinstance(item, pg.PlotDataItem):
         return _copy_curve(item)
@@ -96,9 +96,10 @@ def _copy_item(item):
     return None
 
 
-def copy_plot(source, width: int, height: int, legend: bool = False, host=None) -> pg.PlotWidget:
+def copy_plot(source, width: int, height: int, legend: bool = False, host=None, fit: bool = False) -> pg.PlotWidget:
     """A PlotWidget, never shown on screen, holding a copy of the PlotItem ``source`` laid out at
-    ``width`` x ``height`` pixels with the same view range (and a legend of the named curves)."""
+    ``width`` x ``height`` pixels with the same view range, or (``fit``) a range fitted to the data the
+    source fits to (and a legend of the named curves)."""
     from .views import style_plot
 
     widget = pg.PlotWidget()
@@ -118,17 +119,26 @@ def copy_plot(source, width: int, height: int, legend: bool = False, host=None) 
     plot.setLogMode(x=bool(source.getAxis("bottom").logMode), y=bool(source.getAxis("left").logMode))
     if legend:
         plot.addLegend(offset=(-12, 12), labelTextColor=widget.palette().color(widget.foregroundRole()))
+    bounded = source.getViewBox().addedItems
     for item in source.items:
         copy = _copy_item(item)
         if copy is None:
             continue
         copy.setZValue(item.zValue())
-        plot.addItem(copy)
+        plot.addItem(copy, ignoreBounds=item not in bounded)
+    vb = plot.getViewBox()
     (x0, x1), (y0, y1) = source.getViewBox().viewRange()
-    plot.getViewBox().disableAutoRange()
-    plot.getViewBox().setRange(xRange=(x0, x1), yRange=(y0, y1), padding=0)
+    # the range is set before the first layout too: axes widen for the widest tick text they ever drew
+    if fit:
+        vb.autoRange()
+    else:
+        vb.disableAutoRange()
+        vb.setRange(xRange=(x0, x1), yRange=(y0, y1), padding=0)
     _lay_out(widget, width, height)
-    plot.getViewBox().setRange(xRange=(x0, x1), yRange=(y0, y1), padding=0)
+    if fit:
+        vb.autoRange()
+    else:
+        vb.setRange(xRange=(x0, x1), yRange=(y0, y1), padding=0)
     return widget
 
 
@@ -146,9 +156,10 @@ def _finish(widget) -> None:
 
 
 # ---------------------------------------------------------------- pictures
-def plot_image(source, width: int, height: int, legend: bool = False, host=None) -> QImage:
-    """The plot ``source`` (a PlotItem) as a ``width`` x ``height`` image, one pixel per unit."""
-    widget = copy_plot(source, width, height, legend, host)
+def plot_image(source, width: int, height: int, legend: bool = False, host=None, fit: bool = False) -> QImage:
+    """The plot ``source`` (a PlotItem) as a ``width`` x ``height`` image, one pixel per unit (``fit``:
+    the range fitted to the data rather than as on screen)."""
+    widget = copy_plot(source, width, height, legend, host, fit)
     try:
         image = QImage(QSize(int(width), int(height)), QImage.Format.Format_ARGB32_Premultiplied)
         image.setDevicePixelRatio(1.0)
@@ -210,6 +221,34 @@ def save_plot(source, path, width: int, height: int, legend: bool = False, host=
     except OSError:
         return False
     return bool(data)
+
+
+def has_data(plot_item) -> bool:
+    """Whether a plot shows any data (a curve or points, not only guide lines)."""
+    for item in plot_item.items:
+        if not item.isVisible() or getattr(item, "_plot_tool", False):
+            continue
+        if isinstance(item, pg.PlotDataItem):
+            x, _y = item.getOriginalDataset()
+            if x is not None and len(x):
+                return True
+        elif isinstance(item, pg.ScatterPlotItem) and item.data.size:
+            return True
+    return False
+
+
+def scene_image(view, width: int, height: int) -> QImage | None:
+    """A 3D view's scene (``view.glview``) rendered off screen at ``width`` x ``height``; None for other
+    views or a scene that has never been drawn (no OpenGL context yet)."""
+    glview = getattr(view, "glview", None)
+    if glview is None or not glview.isValid() or glview.context() is None:
+        return None
+    try:
+        array = glview.renderToArray((int(width), int(height)))
+    except Exception:  # noqa: BLE001 - no offscreen framebuffer on this driver
+        return None
+    image = pg.functions.makeQImage(array, alpha=True, transpose=True)
+    return image.copy()
 
 
 def curve_names(plot_item) -> list[str]:
@@ -311,8 +350,20 @@ class ExportPlotDialog:
                                        legend=self.legend.isChecked(), plot=choice.plot)
 
 
-def install_plot_menu(window, view) -> None:
-    """A right-click menu on each plot of ``view``: export this very plot as PNG or SVG."""
+def equip_plots(window, view) -> None:
+    """Every plot of a new view gets the readout, measurement and axis names of ``plot_tools`` (names
+    from the project's view settings, again on each project load) and a right-click menu: export this
+    very plot as PNG or SVG, name the axes, clear the measurement."""
+    from . import plot_tools
+
+    plot_tools.install(view)
+    session = window.session
+
+    def apply_names(view=view):
+        plot_tools.set_axis_names(view, session.project.views.get(view.view_id, {}).get(plot_tools.SETTINGS_KEY))
+
+    apply_names()
+    session.projectLoaded.connect(apply_names)
     for choice in view_plots(view):
         widget = choice.plot.getViewWidget()
         if widget is None or getattr(widget, "_export_menu", False):
@@ -326,6 +377,71 @@ def install_plot_menu(window, view) -> None:
             menu = QMenu(widget)
             menu.addAction("Export This Plot as PNG…", lambda: window.export_plot_dialog("png", plot=plot))
             menu.addAction("Export This Plot as SVG…", lambda: window.export_plot_dialog("svg", plot=plot))
+            menu.addSeparator()
+            menu.addAction("Axis Names and Units…", lambda: plot_tools.edit_axis_names(view, window))
+            measured = [r for r in plot_tools.readouts(view) if r.plot is plot and r.points]
+            if measured:
+                menu.addAction("Clear the Measurement", measured[0].clear)
             menu.exec(widget.mapToGlobal(pos))
 
         widget.customContextMenuRequested.connect(show_menu)
+
+
+# ---------------------------------------------------------------- the report's figures without a window
+HEADLESS_VIEWS = ("timeseries", "phase_plane", "sections")  # views that draw from the run by themselves
+
+
+def _wait(done, seconds: float) -> bool:
+    import time
+
+    from PySide6.QtCore import QEventLoop
+
+    end = time.monotonic() + seconds
+    while not done() and time.monotonic() < end:
+        QApplication.processEvents(QEventLoop.ProcessEventsFlag.AllEvents, 50)
+        time.sleep(0.005)
+    return done()
+
+
+def headless_report_parts(project, equilibria=None, timeout: float = 600.0):
+    """(figures, results) of the HTML report for ``project`` with no window, as the app's report makes
+    them: a Session loads the project on Qt's offscreen platform (when no application runs yet and
+    QT_QPA_PLATFORM names none), the views that draw from the run by themselves are made with the project's view settings
+    (time series, phase plane, and the section when the project keeps settings for it), the
+    equilibria go to them as the Equilibria view would send them, and ``exports.view_figures`` draws
+    every plot off screen at the report's size."""
+    import os
+    from types import SimpleNamespace
+
+    from .exports import view_figures, view_results
+    from .session import Session
+    from .views import DEFAULT_VISIBLE, load_view_class
+
+    if QApplication.instance() is None:  # Qt's offscreen platform unless one is chosen (no display needed)
+        QApplication(["orbitdesk-export", "-platform", os.environ.get("QT_QPA_PLATFORM") or "offscreen"])
+    session = Session()
+    views = {}
+    try:
+        session.load_project(project)
+        _wait(lambda: session.trajectory is not None and not session.busy, timeout)
+        if session.trajectory is None:
+            raise RuntimeError("the run for the report's figures did not finish")
+        if equilibria:
+            session.set_equilibria(list(equilibria))
+        for module in HEADLESS_VIEWS:
+            if module in DEFAULT_VISIBLE or module in project.views:
+                views[module] = load_view_class(module)(session)
+        for view in views.values():
+            view.resize(*REPORT_SIZE)
+        timers = [t for view in views.values() for t in view.findChildren(QTimer) if t.isSingleShot()]
+        # views start their own work after a short delay (the section): let it start, then finish
+        _wait(lambda: not any(t.isActive() for t in timers) and not session.busy, timeout)
+        QApplication.processEvents()
+        holder = SimpleNamespace(views=views)
+        return view_figures(holder), view_results(holder)
+    finally:
+        session.shutdown()
+        for view in views.values():
+            view.deleteLater()
+        session.deleteLater()
+        QApplication.processEvents()

@@ -13,12 +13,9 @@ from PySide6.QtWidgets import (QApplication, QComboBox, QDockWidget, QDoubleSpin
                                QMainWindow, QMessageBox, QProgressBar, QPushButton, QSizePolicy, QSlider,
                                QSpinBox, QSplitter, QStyle, QToolBar, QToolButton, QVBoxLayout, QWidget)
 
-from orbitdesk.core.export_csv import write_csv
 from orbitdesk.core.project import ProjectError
 
 from . import views as views_pkg
-from .file_guard import DocumentGuard
-from .plain_text import menu_text, plain_message, rich_tip
 from .session import Session
 
 log = logging.getLogger("orbitdesk.ui.main_window")
@@ -267,7 +264,6 @@ class MainWindow(QMainWindow):
         s.trajectoryChanged.connect(self._on_trajectory)
         s.runFailed.connect(lambda m: self.run_status.setText("Run failed"))
         s.add_save_hook(self.store_view_settings)
-        self.guard = DocumentGuard(self)
         QApplication.instance().focusChanged.connect(self._on_focus_changed)
         self.resize(self._initial_size())
         self._sized = False
@@ -509,9 +505,9 @@ class MainWindow(QMainWindow):
         dock.toggleViewAction().setText(dock.windowTitle())
         dock.setWidget(view)
         self.views[name] = view
-        from .figures import install_plot_menu
+        from .figures import equip_plots
 
-        install_plot_menu(self, view)
+        equip_plots(self, view)
         if self._active_view is None:
             self._active_view = name
         return view
@@ -546,10 +542,12 @@ class MainWindow(QMainWindow):
 
     def store_view_settings(self) -> None:
         """Write each view's settings and the dock layout into the session's project."""
+        from . import plot_tools
+
         views = self.session.project.views
         for name, view in self.views.items():
             try:
-                views[view.view_id] = view.view_settings()
+                views[view.view_id] = {**view.view_settings(), **plot_tools.settings(view)}
             except Exception:  # noqa: BLE001 - keep what was there
                 log.exception("view %s could not report its settings", name)
         views[WINDOW_KEY] = {"state": bytes(self.saveState().toBase64()).decode("ascii")}
@@ -613,7 +611,7 @@ class MainWindow(QMainWindow):
             labels = {"diverged": "Blew up", "undefined": "Undefined value", "cancelled": "Stopped",
                       "step_failed": "Step size collapsed"}
             text = f"{labels.get(traj.status, traj.status)} after {n:,} points"
-            self.run_status.setToolTip(rich_tip(traj.message) if traj.message else "State of the last run")
+            self.run_status.setToolTip(traj.message or "State of the last run")
         self.run_status.setText(text)
 
     # ------------------------------------------------------------ documents
@@ -621,8 +619,8 @@ class MainWindow(QMainWindow):
         """Ask before unsaved work is closed or replaced. True means: go ahead."""
         if not self.session.dirty:
             return True
-        answer = plain_message(
-            self, "question", "Unsaved changes", f"“{self.session.name}” has changes that are not saved. Save them first?",
+        answer = QMessageBox.question(
+            self, "Unsaved changes", f"“{self.session.name}” has changes that are not saved. Save them first?",
             QMessageBox.StandardButton.Save | QMessageBox.StandardButton.Discard
             | QMessageBox.StandardButton.Cancel, QMessageBox.StandardButton.Save)
         if answer == QMessageBox.StandardButton.Save:
@@ -647,13 +645,11 @@ class MainWindow(QMainWindow):
         """Open a project or model file; a file that cannot be read is reported and nothing changes."""
         if ask and not self.maybe_save():
             return False
-        if not self.guard.confirm_open(path):
-            return False
         try:
             self.session.open(path)
         except ProjectError as e:
             where = f"\n\n(at {e.path} in the file)" if e.path not in ("", "$") else ""
-            plain_message(self, "critical", "Could not open the file", f"{Path(path).name}: {e.message}{where}")
+            QMessageBox.critical(self, "Could not open the file", f"{Path(path).name}: {e.message}{where}")
             return False
         self.add_recent(Path(path))
         self.documentOpened.emit()
@@ -675,7 +671,10 @@ class MainWindow(QMainWindow):
         return self._save_to(path)
 
     def _save_to(self, path: Path) -> bool:
-        if not self.guard.save(path):  # asks before overwriting changes on disk or a read-only file
+        try:
+            self.session.save(path)
+        except ProjectError as e:
+            QMessageBox.critical(self, "Could not save", e.message)
             return False
         self.add_recent(path)
         self._update_title()
@@ -686,8 +685,8 @@ class MainWindow(QMainWindow):
         if self.session.path is None:
             return False
         if self.session.dirty:
-            answer = plain_message(
-                self, "question", "Revert", f"Discard the changes to “{self.session.name}” and reload the saved version?",
+            answer = QMessageBox.question(
+                self, "Revert", f"Discard the changes to “{self.session.name}” and reload the saved version?",
                 QMessageBox.StandardButton.Discard | QMessageBox.StandardButton.Cancel,
                 QMessageBox.StandardButton.Cancel)
             if answer != QMessageBox.StandardButton.Discard:
@@ -710,8 +709,8 @@ class MainWindow(QMainWindow):
         self.recent_menu.clear()
         files = self.recent_files()
         for f in files:
-            a = self.recent_menu.addAction(menu_text(Path(f).name))
-            a.setToolTip(rich_tip(f))
+            a = self.recent_menu.addAction(Path(f).name)
+            a.setToolTip(f)
             a.triggered.connect(lambda _=False, f=f: self.open_path(f))
         if not files:
             a = self.recent_menu.addAction("No recent files")
@@ -754,7 +753,9 @@ class MainWindow(QMainWindow):
             return False
         header, rows = data
         rows = np.atleast_2d(np.asarray(rows, dtype=float))
-        write_csv(path, header, rows.tolist())  # atomic: a failure leaves no partial file
+        with open(path, "w", encoding="utf-8", newline="") as f:
+            f.write(",".join(_csv_field(h) for h in header) + "\n")
+            np.savetxt(f, rows, delimiter=",", fmt="%.17g")
         return True
 
     def export_plot_dialog(self, kind: str, plot=None) -> bool:
@@ -795,11 +796,7 @@ class MainWindow(QMainWindow):
             return False
         if not path.lower().endswith(".csv"):
             path += ".csv"
-        try:
-            ok = self.export_data(path, view)
-        except OSError as e:
-            plain_message(self, "warning", "Export Data", f"Could not write {Path(path).name}: {e.strerror or e}")
-            return False
+        ok = self.export_data(path, view)
         self.statusBar().showMessage(f"Exported {Path(path).name}" if ok else "Nothing to export yet", 5000)
         return ok
 
@@ -818,5 +815,11 @@ class MainWindow(QMainWindow):
             return
         self.run_bar.play.setChecked(False)
         self.session.shutdown()
-        self.guard.release()
         event.accept()
+
+
+def _csv_field(text: str) -> str:
+    text = str(text)
+    if any(c in text for c in ',"\n'):
+        return '"' + text.replace('"', '""') + '"'
+    return text

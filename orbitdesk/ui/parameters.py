@@ -66,6 +66,8 @@ class ValueRow:
         self.written_range = written_range
         self.set_range(lo, hi, written_range)
         self.slider.valueChanged.connect(self._slid)
+        self.slider.sliderPressed.connect(lambda: panel.session.set_held(True))
+        self.slider.sliderReleased.connect(lambda: panel.session.set_held(False))
         self.spin.valueChanged.connect(self._spun)
         self.show_value(self.model_value)
 

@@ -362,13 +362,17 @@ class ScreenCurve(pg.PlotDataItem):
     """A line drawn at screen resolution: ``core.decimate.screen_path`` over the part in view, redone
     when the view's range or size changes. The full data stays in the item (``getOriginalDataset``)
     for exports, auto-range and the cursor readout. ``ordered_x``: x never decreases (time series:
-    min/max per pixel column, in their own order, so the line is smooth and of even thickness)."""
+    min/max per pixel column, in their own order, drawn antialiased, so the line is smooth and of even
+    thickness)."""
 
     def __init__(self, *args, ordered_x: bool = False, **kwargs):
         self._ordered_x = ordered_x
         self._screen = (None, None)
         self._bounds: dict = {}
         super().__init__(*args, **kwargs)
+        if ordered_x and "antialias" not in kwargs:
+            # at most two points per pixel column: smoothing costs little and evens the thickness
+            self.opts["antialias"] = True
 
     def setData(self, *args, **kwargs):
         self._screen = (None, None)
@@ -419,7 +423,6 @@ class ScreenCurve(pg.PlotDataItem):
 
 def hint_label(text: str = "") -> QLabel:
     label = QLabel(text)
-    label.setTextFormat(Qt.TextFormat.PlainText)  # notes and messages may quote names from files
     label.setStyleSheet("color: palette(placeholder-text);")
     label.setWordWrap(True)
     label.setAlignment(Qt.AlignmentFlag.AlignLeft | Qt.AlignmentFlag.AlignVCenter)

@@ -128,14 +128,22 @@ def test_a_million_points_are_thinned_for_drawing_only(qtbot, session):
     # the camera still turns: a drag on the scene changes the azimuth
     from PySide6.QtCore import QPoint, Qt
 
+    from orbitdesk.ui.views.phase_space_3d import MOVING_POINTS
+
     before = view.camera()["azimuth"]
+    full = view.main_item.pos.copy()
     centre = view.glview.rect().center()
     qtbot.mousePress(view.glview, Qt.MouseButton.LeftButton, pos=centre)
     for dx in range(5, 60, 5):
         qtbot.mouseMove(view.glview, centre + QPoint(dx, 0))
+    # while the camera moves a coarser line of the same orbit is drawn (a subset of the full one)
+    moving = view.main_item.pos.copy()
+    assert 0 < moving.shape[0] <= MOVING_POINTS < full.shape[0]
+    assert np.isin(moving[:, 0], full[:, 0]).all() and np.array_equal(moving[0], full[0])
     qtbot.mouseRelease(view.glview, Qt.MouseButton.LeftButton, pos=centre + QPoint(60, 0))
     frame(qtbot, view)
     assert view.camera()["azimuth"] != before
+    assert np.array_equal(view.main_item.pos, full)  # the full line again on release
 
 
 def test_nearby_starts_separate_on_the_attractor(qtbot, session, artifacts):

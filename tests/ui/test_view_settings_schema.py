@@ -35,7 +35,8 @@ def test_view_saves_exactly_its_defined_settings(qtbot, session, module):
     assert view.view_id in VIEW_SETTINGS
     saved = view.view_settings()
     schema = VIEW_SETTINGS[view.view_id]
-    optional = {"range"}  # the phase plane's range: only once the user zoomed
+    # the phase plane's range: only once the user zoomed; axis names: saved by the window once given
+    optional = {"range", "axis_names"}
     assert keys(saved) - optional == keys(schema) - optional
 
 

@@ -411,8 +411,10 @@ def equilibrium_coordinates(system, item, names, p):
 
 
 def clicked_point(plot_item, event):
-    """The data point of a plain left click inside the plot's view box, else None."""
-    if event.button() != Qt.MouseButton.LeftButton or event.double():
+    """The data point of a plain left click inside the plot's view box, else None (Ctrl+click measures,
+    see ``plot_tools``)."""
+    if (event.button() != Qt.MouseButton.LeftButton or event.double()
+            or event.modifiers() & Qt.KeyboardModifier.ControlModifier):
         return None
     vb = plot_item.getViewBox()
     pos = event.scenePos()

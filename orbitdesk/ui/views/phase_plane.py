@@ -59,6 +59,7 @@ class PhasePlaneView(SessionView):
         self._names: list[str] = []
         self._wanted_axes: tuple | None = None
         self._fitted = False
+        self._refit_on_release = False
 
         self.x_combo = combo_box("Quantity on the horizontal axis (plotted against the vertical one)",
                                  slot=self._on_axes)
@@ -122,6 +123,7 @@ class PhasePlaneView(SessionView):
         session.equilibriaChanged.connect(self.set_equilibria)
         session.cycleChanged.connect(lambda _c: self._draw_cycle())
         session.startsRequested.connect(self._on_starts_requested)
+        session.heldChanged.connect(self._on_held)
         self.follow_session(values=self._on_values, trajectory=self._on_trajectory, cursor=self._update_cursor)
         if session.equilibria:
             self.set_equilibria(session.equilibria)
@@ -310,7 +312,14 @@ class PhasePlaneView(SessionView):
         if first and (self._fitted or not self._user_range_set()):
             self.fit_view()
         elif self._fitted:
+            self._refit_on_release = self.session.held  # a held slider: the range stays until let go
+            if not self.session.held:
+                self.fit_view()
+
+    def _on_held(self, held: bool) -> None:
+        if not held and self._refit_on_release and self._fitted:
             self.fit_view()
+        self._refit_on_release = False
 
     def _draw_cycle(self) -> None:
         cols = cycle_columns(self.system, self.session.cycle, self.session.param_vector())

@@ -24,6 +24,7 @@ from ..plot_style import (SCENE_BACKGROUND, SCENE_GRID, SCENE_MARKER, SCENE_TEXT
 HALF = 5.0                  # the box spans [-HALF, HALF] on every axis
 MAX_DRAWN_POINTS = 300_000  # the current trajectory is thinned evenly beyond this for drawing
 MAX_EXTRA_POINTS = 20_000   # same for each added or nearby trajectory
+MOVING_POINTS = 40_000      # the current trajectory while the camera moves (the full one on release)
 EXTRA_SAMPLES = 4000        # output points of each added or nearby run
 MAX_SPREAD = 64
 MAX_ADDED = 40
@@ -207,6 +208,10 @@ class PhaseSpace3DView(SessionView):
         layout.addWidget(self.glview, 1)
 
         self._rerun_timer = QTimer(self, singleShot=True, interval=0)
+        self._moving, self._main_data = False, None  # camera in motion; (full, coarse) (pos, colour) of the run
+        self._still_timer = QTimer(self, singleShot=True, interval=250)  # the wheel stopped turning
+        self._still_timer.timeout.connect(lambda: self._set_moving(False))
+        self.glview.installEventFilter(self)
         self._rerun_timer.timeout.connect(self._rerun_extra)
         self.reset_camera()
         session.equilibriaChanged.connect(self.set_equilibria)
@@ -533,6 +538,7 @@ class PhaseSpace3DView(SessionView):
     def _draw_main(self, xyz) -> None:
         traj = self.trajectory
         if xyz is None or traj is None:
+            self._main_data = None
             self.main_item.setData(pos=np.zeros((0, 3), dtype=np.float32))
             self.main_item.setVisible(False)
             self.main_points.setVisible(False)
@@ -543,13 +549,35 @@ class PhaseSpace3DView(SessionView):
         pos, time = self._to_box(pos[ok]), time[ok]
         alpha = 0.3 if self.spread_runs else 0.95  # in the background while nearby starts are shown
         colour = time_colours(time, alpha) if self._colour_by_time() else _solid(SERIES_COLOURS[0][1], alpha, len(pos))
-        discrete = traj.kind == "map"
-        self.main_item.setVisible(not discrete)
-        self.main_points.setVisible(discrete)
-        if discrete:
+        coarse = thin_indices(len(pos), MOVING_POINTS)
+        self._main_data = ((pos, colour), (pos[coarse], colour[coarse]))
+        self.main_item.setVisible(traj.kind != "map")
+        self.main_points.setVisible(traj.kind == "map")
+        self._show_main()
+
+    def _show_main(self) -> None:
+        """The run's line (or points), coarser while the camera moves: a software renderer then keeps up."""
+        if self._main_data is None:
+            return
+        pos, colour = self._main_data[1 if self._moving else 0]
+        if self.main_points.visible():
             self.main_points.setData(pos=pos, color=colour, size=3)
         else:
             self.main_item.setData(pos=pos, color=colour, width=1.6, mode="line_strip")
+
+    def _set_moving(self, moving: bool) -> None:
+        if moving != self._moving:
+            self._moving = moving
+            self._show_main()
+
+    def eventFilter(self, obj, event) -> bool:
+        kind = event.type()
+        if obj is self.glview and kind in (QEvent.Type.MouseButtonPress, QEvent.Type.MouseButtonRelease):
+            self._set_moving(kind == QEvent.Type.MouseButtonPress)
+        elif obj is self.glview and kind == QEvent.Type.Wheel:
+            self._set_moving(True)
+            self._still_timer.start()
+        return False
 
     def _draw_extras(self, extras) -> None:
         gl = self._gl

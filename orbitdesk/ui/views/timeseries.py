@@ -62,6 +62,8 @@ class TimeSeriesView(SessionView):
         self._wanted: list[str] | None = None  # selection from view settings, applied when names are known
         self._curves: dict[str, pg.PlotDataItem] = {}
         self._moving_cursor = False
+        self._fitted = True              # follows the data until the user pans or zooms
+        self._refit_on_release = False
 
         self.series_list = QListWidget()
         self.series_list.setToolTip("Tick the quantities to plot")
@@ -88,6 +90,8 @@ class TimeSeriesView(SessionView):
         self.cursor.setVisible(False)
         self.plot.addItem(self.cursor, ignoreBounds=True)
         self.empty_hint = empty_hint(self.plot, "The run of the model will be plotted here")
+        self.plot.getViewBox().sigRangeChangedManually.connect(self._on_manual_range)
+        session.heldChanged.connect(self._on_held)
 
         options = control_row(self.log_y, self.spectrum, None, self.note, self.fit, spacing=6, stretch=False)
         right = QVBoxLayout()
@@ -191,7 +195,18 @@ class TimeSeriesView(SessionView):
     def _on_trajectory(self, trajectory) -> None:
         old = self.trajectory
         self.trajectory = trajectory
-        self._redraw(refit=old is None or _span(old) != _span(trajectory))
+        refit = old is None or _span(old) != _span(trajectory) or self._fitted
+        # while a slider is held the range stays (only the curves are drawn again); fitted on release
+        self._refit_on_release = refit and self.session.held
+        self._redraw(refit=refit and not self.session.held)
+
+    def _on_held(self, held: bool) -> None:
+        if not held and self._refit_on_release:
+            self.fit_view()
+        self._refit_on_release = False
+
+    def _on_manual_range(self, *_args) -> None:
+        self._fitted = False
 
     def _on_mode(self, _checked=None) -> None:
         self._redraw(refit=True)
@@ -256,6 +271,7 @@ class TimeSeriesView(SessionView):
         self._on_time_cursor(self.session.time_cursor)
 
     def fit_view(self) -> None:
+        self._fitted = True
         self.plot.enableAutoRange()
         self.plot.autoRange()
 
