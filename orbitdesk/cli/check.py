@@ -21,6 +21,10 @@ def run(args) -> int:
             "kind": parsed.kind,
             "states": parsed.states,
             "parameters": {name: p.value for name, p in parsed.parameters.items()},
+            "functions": {name: {"arguments": list(args), "line": parsed.functions[name].line}
+                          for name, args in parsed.function_arguments.items() if name in parsed.functions},
+            "derived": list(parsed.derived),
+            "structural_parameters": sorted(parsed.structural),
             "diagnostics": [
                 {"line": d.line, "column": d.column, "end_column": d.end_column,
                  "severity": d.severity, "message": d.message} for d in parsed.diagnostics],

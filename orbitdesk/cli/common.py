@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import csv
 import json
 import math
 import re
@@ -160,11 +159,10 @@ def print_json(data) -> None:
 
 
 def write_csv(path: str, header: list[str], columns) -> None:
+    from orbitdesk.core.export_csv import write_csv as write_table
+
     try:
-        with open(path, "w", newline="", encoding="utf-8") as handle:
-            writer = csv.writer(handle)
-            writer.writerow(header)
-            writer.writerows(np.column_stack(columns).tolist() if len(columns) else [])
+        write_table(path, header, np.column_stack(columns).tolist() if len(columns) else [])
     except OSError as err:
         raise CommandError(f"cannot write {path}: {err.strerror or err}") from None
 

@@ -67,16 +67,12 @@ def _write(text: str, output: str | None) -> None:
     if output is None:
         sys.stdout.write(text)
         return
-    try:
-        with open(output, "w", encoding="utf-8", newline="\n") as handle:
-            handle.write(text)
+    from orbitdesk.core.safe_files import atomic_write
+
+    try:  # complete or not at all
+        atomic_write(output, text.encode("utf-8"), 0o755 if output.endswith(".py") else None)
     except OSError as err:
         raise CommandError(f"cannot write {output}: {err.strerror or err}") from None
-    if output.endswith(".py"):
-        try:
-            os.chmod(output, 0o755)
-        except OSError:
-            pass
 
 
 def run(args) -> int:

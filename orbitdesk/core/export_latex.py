@@ -8,6 +8,7 @@ names stay as typed instead of being substituted) and printed with ``sympy.latex
 from __future__ import annotations
 
 import re
+import unicodedata
 
 import sympy as sp
 
@@ -36,8 +37,23 @@ def latex_name(name: str) -> str:
 
 
 def tex_escape(text: str) -> str:
-    """Plain text safe inside a LaTeX document."""
-    return "".join(_TEX_SPECIAL.get(c, c) for c in text)
+    """Plain text safe inside a LaTeX document, on one line.
+
+    Every TeX special character is escaped (so no control sequence such as ``\\input`` or
+    ``\\write18``, no ``^^5c`` character code, no ``%`` comment and no unbalanced brace can come
+    through); line ends of any kind, tabs and other spacing become one space (a blank line would end
+    the paragraph inside ``\\section*{...}``); control and format characters (bidi overrides,
+    zero-width marks, BOM) are dropped."""
+    out = []
+    for c in str(text):
+        if c.isspace():
+            if out and out[-1] != " ":
+                out.append(" ")
+        elif unicodedata.category(c) in ("Cc", "Cf", "Cs", "Co", "Cn"):
+            continue
+        else:
+            out.append(_TEX_SPECIAL.get(c, c))
+    return "".join(out).strip()
 
 
 def _rhs_text(parsed: ParsedModel, line: int) -> str:

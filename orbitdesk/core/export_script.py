@@ -8,6 +8,12 @@ time (models with kinks: ``solve_ivp``'s DOP853, as the engine does), rk45 and s
 (RK45, Radau), rk4 by a fixed-step loop written into the script;
 maps are printed with the ``math`` module, as the engine evaluates them, so the orbit is bit for bit
 the same. The script writes the columns of ``orbitdesk run --csv``: time, states, derived quantities.
+
+Nothing a user or a file supplies can change how the script is read or what it runs: the first two
+lines (shebang and our own ``coding: utf-8`` declaration, which Python reads only there) are fixed;
+the title, the model text and the output name appear only in comments reduced to printable ASCII
+(every other character, line ends of any kind included, is written as its backslash escape, so a
+comment cannot end early) and in string literals written by ``ascii()``. The script is pure ASCII.
 """
 
 from __future__ import annotations
@@ -24,9 +30,15 @@ from .system import MAP, CompiledSystem
 SCIPY_METHODS = {"dop853": "dop853 (scipy.integrate.ode)", "rk45": "RK45", "stiff": "Radau"}
 
 
+def comment_text(text: str) -> str:
+    """``text`` for one Python comment line: printable ASCII kept, any other character (line ends of
+    every kind, form feeds, controls, bidi overrides, non-ASCII letters) written as its escape."""
+    return "".join(c if " " <= c <= "~" else ascii(c)[1:-1] for c in str(text))
+
+
 def _comment(text: str) -> str:
-    lines = re.split(r"\r\n|\r|\n", text.rstrip())
-    return "\n".join(("#   " + line).rstrip() for line in lines)
+    lines = re.split(r"\r\n|\n", text.rstrip())
+    return "\n".join(("#   " + comment_text(line)).rstrip() for line in lines)
 
 
 def _function(name: str, args: list[str], system: CompiledSystem, exprs, printer, unpack: bool = True) -> str:
@@ -63,13 +75,14 @@ def run_script(system: CompiledSystem, settings: RunSettings | None = None, u0=N
     math_printer = PythonCodePrinter()
     np_printer = NumPyPrinter()
     time_name = "n" if is_map else "t"
-    one_line_title = re.sub(r"[\r\n]+", " ", title)
 
     head = [
         "#!/usr/bin/env python3",
-        f"# {one_line_title}: one run, exported from OrbitDesk.",
+        "# -*- coding: utf-8 -*-",
+        "# One run, exported from OrbitDesk.",
+        f"# Title: {comment_text(title)}",
         "# Standalone: needs numpy and scipy; draws a plot too when matplotlib is installed.",
-        f"# Usage: python this_script.py [OUTPUT.csv]   (default {output})",
+        f"# Usage: python this_script.py [OUTPUT.csv]   (default {comment_text(output)})",
         "#",
         "# The model as typed:",
         _comment(system.model.text),
@@ -85,9 +98,9 @@ def run_script(system: CompiledSystem, settings: RunSettings | None = None, u0=N
         head.append("from scipy.integrate import ode, solve_ivp")
     head += [
         "",
-        f"STATES = {list(system.states)!r}",
-        f"DERIVED = {list(system.derived_names)!r}",
-        "PARAMETERS = {" + ", ".join(f"{name!r}: {float(v)!r}" for name, v in zip(system.parameters, p)) + "}",
+        f"STATES = {list(system.states)!a}",
+        f"DERIVED = {list(system.derived_names)!a}",
+        "PARAMETERS = {" + ", ".join(f"{name!a}: {float(v)!r}" for name, v in zip(system.parameters, p)) + "}",
         f"INITIAL = [{', '.join(repr(float(v)) for v in u0)}]",
     ]
     if is_map:
@@ -95,7 +108,7 @@ def run_script(system: CompiledSystem, settings: RunSettings | None = None, u0=N
     else:
         max_step = float(settings.max_step) if settings.max_step else None
         head += [
-            f"METHOD = {settings.method!r}",
+            f"METHOD = {settings.method!a}",
             f"SMOOTH = {bool(system.smooth)!r}  # False: the model uses abs, min, sign, ... (kinks)",
             f"RTOL = {float(settings.rtol)!r}",
             f"ATOL = {float(settings.atol)!r}",
@@ -119,7 +132,7 @@ def run_script(system: CompiledSystem, settings: RunSettings | None = None, u0=N
     if system.derived_exprs:
         parts.append(_function("derived", ["t", "U", "p"], system, system.derived_exprs, np_printer))
     parts.append(_MAP_RUN if is_map else _FLOW_RUN)
-    parts.append(_OUTPUT.replace("__TIME__", time_name).replace("__OUTPUT__", repr(output)))
+    parts.append(_OUTPUT.replace("__TIME__", time_name).replace("__OUTPUT__", ascii(str(output))))
     return "\n\n\n".join(parts) + "\n"
 
 
@@ -241,4 +254,4 @@ if __name__ == "__main__":
     sys.exit(main(sys.argv))'''
 
 
-__all__ = ["SCIPY_METHODS", "run_script"]
+__all__ = ["SCIPY_METHODS", "comment_text", "run_script"]

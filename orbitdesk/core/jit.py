@@ -2,9 +2,13 @@
 
 For a model, ``kernels(system)`` generates a small module — the right-hand side printed from the
 compiled sympy trees (as ``system.scalar_source`` does, never from model text) plus fixed-step
-loops over members — writes it into a per-user cache directory under a name that is the hash of
-its text, and imports it. The loops are ``numba.njit(cache=True)``: numba keeps the machine code
-next to the file, so a model compiled once loads in a fraction of a second in later processes.
+loops over members — and loads it with ``private_cache.load_source_module``: the text is kept in the
+private per-user cache folder (mode 0700, refused if anybody else could write it) under a name that
+is the hash of its text, read back, checked against that hash and compiled; no bytecode file is
+ever loaded from there. The loops are ``numba.njit(cache=CACHE)``: when the folder is verified,
+numba keeps its machine code (pickles) in its ``__pycache__`` (also verified private), so a model
+compiled once loads in a fraction of a second in later processes; otherwise (refused folder, or
+numba told to cache elsewhere by ``NUMBA_CACHE_DIR``) nothing is cached on disk.
 
 * ``rk4_final``: classical RK4 for each member in turn (all steps of a member while it sits in
   registers), the same arithmetic order as ``ensemble.rk4_run``; members that pass ``bound`` or
@@ -27,6 +31,7 @@ from pathlib import Path
 import numpy as np
 import sympy as sp
 
+from . import private_cache
 from .system import MAP, _printer
 
 STATUS_OK, STATUS_DIVERGED, STATUS_UNDEFINED = 0, 1, 2
@@ -43,9 +48,22 @@ def available() -> bool:
 
 
 def cache_dir() -> Path:
-    base = os.environ.get("ORBITDESK_CACHE") or os.path.join(
-        os.environ.get("XDG_CACHE_HOME") or os.path.join(os.path.expanduser("~"), ".cache"), "orbitdesk")
-    return Path(base) / "jit"
+    return private_cache.cache_root() / "jit"
+
+
+def _numba_cache_folder(create: bool = True) -> Path | None:
+    """The verified private folder for the generated modules, or None (no disk cache)."""
+    folder = private_cache.private_folder("jit", create=create)
+    if folder is None or private_cache.private_folder("jit", "__pycache__", create=create) is None:
+        return None
+    return folder
+
+
+def _numba_caches_there() -> bool:
+    """numba puts its cache beside the module file (not in a folder of its own choosing)."""
+    import numba
+
+    return not numba.config.CACHE_DIR and not getattr(numba.config, "CACHE_LOCATOR_CLASSES", "")
 
 
 def _function(name, t, u, p, exprs) -> list[str]:
@@ -53,7 +71,7 @@ def _function(name, t, u, p, exprs) -> list[str]:
     printer = _printer()
     replacements, reduced = sp.cse(list(exprs), symbols=sp.numbered_symbols("_x"), optimizations=None)
     args = ", ".join(printer.doprint(s) for s in [t, *u, *p])
-    lines = ["@numba.njit(cache=True, error_model='numpy', nogil=True, inline='always')",
+    lines = ["@numba.njit(cache=CACHE, error_model='numpy', nogil=True, inline='always')",
              f"def {name}({args}):"]
     lines += [f"    {printer.doprint(s)} = {printer.doprint(e)}" for s, e in replacements]
     lines.append("    return (" + ", ".join(printer.doprint(e) for e in reduced) + ",)")
@@ -98,7 +116,7 @@ def _rk4_loop(n, n_p) -> list[str]:
         return lines
 
     body = [
-        "@numba.njit(cache=True, error_model='numpy', nogil=True)",
+        "@numba.njit(cache=CACHE, error_model='numpy', nogil=True)",
         "def rk4_final(U, P, t0, dt, first, count, bound, status, when):",
         "    N = U.shape[1]",
         "    shared = P.shape[1] == 1",
@@ -130,7 +148,7 @@ def _lyapunov_loop(n, n_p) -> list[str]:
     tup = lambda names: ", ".join(names) + ("," if len(names) == 1 else "")  # noqa: E731
     args = ", ".join(u + p)
     body = [
-        "@numba.njit(cache=True, error_model='numpy', nogil=True)",
+        "@numba.njit(cache=CACHE, error_model='numpy', nogil=True)",
         "def map_lyapunov(U, P, n0, keep_from, n_steps, bound, v0, status, total):",
         "    N = U.shape[1]",
         "    shared = P.shape[1] == 1",
@@ -198,29 +216,24 @@ def is_compiled(system) -> bool:
     if not available():
         return False
     key = _key(module_source(system))
-    folder = cache_dir()
-    return key in _loaded or (folder / f"m{key}.py").exists() and any((folder / "__pycache__").glob(f"m{key}.*.nbi"))
+    if key in _loaded:
+        return True
+    folder = _numba_cache_folder(create=False)
+    return (folder is not None and (folder / f"m{key}.py").exists()
+            and any((folder / "__pycache__").glob(f"m{key}.*.nbi")))
 
 
 def kernels(system):
-    """The imported generated module for ``system`` (its functions compile on first call)."""
+    """The generated module for ``system`` (its functions compile on first call)."""
     source = module_source(system)
     key = _key(source)
     with _lock:
         if key in _loaded:
             return _loaded[key]
-        folder = cache_dir()
-        folder.mkdir(parents=True, exist_ok=True)
-        path = folder / f"m{key}.py"
-        if not path.exists() or path.read_text(encoding="utf-8") != source:
-            scratch = path.with_suffix(f".{os.getpid()}.tmp")
-            scratch.write_text(source, encoding="utf-8")
-            os.replace(scratch, path)
-        name = f"orbitdesk_jit_m{key}"
-        spec = importlib.util.spec_from_file_location(name, path)
-        module = importlib.util.module_from_spec(spec)
-        sys.modules[name] = module
-        spec.loader.exec_module(module)  # the module printed above from sympy trees
+        folder = _numba_cache_folder()
+        on_disk = folder is not None and _numba_caches_there()
+        module = private_cache.load_source_module(folder if on_disk else None, f"m{key}", source,
+                                                  {"CACHE": on_disk}, module_name=f"orbitdesk_jit_m{key}")
         _loaded[key] = module
         return module
 

@@ -3,38 +3,46 @@
 One statement per line; ``#`` starts a comment. The form of the left side says what a line is:
 ``x' = ...`` / ``x'' = ...`` (flow equations), ``x[n+1] = ...`` (map equations), ``x(0) = ...`` /
 ``x'(0) = ...`` / ``x[0] = ...`` (initial values), ``NAME = CONSTANT [in [LO, HI]]`` (parameters)
-and ``NAME = EXPR`` (derived quantities).
+``NAME(ARG, ...) = EXPR`` (functions, inlined where they are called) and ``NAME = EXPR`` (derived
+quantities). A line ending in ``for i in A..B`` stands for one line per index value (families of
+states, see ``families``).
 """
 
 from __future__ import annotations
 
 import math
 import re
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from difflib import get_close_matches
 
 import sympy as sp
 
 from .diagnostics import ERROR, INFO, WARNING, Diagnostic, ParseError
-from .expression import (CONSTANTS, FUNCTIONS, KEYWORDS, MAX_LINE_LENGTH, NONSMOOTH_FUNCTIONS, Call, Name,
+from .expression import (CONSTANTS, FUNCTIONS, KEYWORDS, MAX_LINE_LENGTH, NONSMOOTH_FUNCTIONS, Call, If, Name,
                          parse_expression, walk)
-from .symbolic import Span, constant_value, substitute, to_sympy, tree_size
+from .families import expand_statements, parse_clause_bounds, split_family_clause
+from .model_functions import define_functions, function_nonsmooth
+from .symbolic import ModelFunction, Span, constant_value, substitute, to_sympy, tree_size
 
 MAX_MODEL_CHARS = 1_000_000
 MAX_STATEMENTS = 5_000
 MAX_ORDER = 9
 MAX_EXPRESSION_SIZE = 100_000  # nodes of one equation after derived quantities are put in
+MAX_EXPANDED_STATEMENTS = 20_000  # statements once family lines are written out
+RESERVED_NAMES = frozenset({"sum", "if"})
 SUGGESTION_BUDGET = 20_000  # name comparisons spent on did-you-mean fixes per model
 
 FLOW, MAP = "flow", "map"
 
 _IDENT = r"[A-Za-z_][A-Za-z0-9_]*"
+_FIDENT = _IDENT + r"(?:(?<=_)\{[^{}]*\})?"  # a name, or a family member such as x_{i+1}
 _LHS_FORMS = [
-    ("ode", re.compile(rf"^({_IDENT})('+)$")),
-    ("init", re.compile(rf"^({_IDENT})('*)\s*\(\s*0\s*\)$")),
-    ("map", re.compile(rf"^({_IDENT})\s*\[\s*n\s*\+\s*1\s*\]$")),
-    ("mapinit", re.compile(rf"^({_IDENT})\s*\[\s*0\s*\]$")),
-    ("name", re.compile(rf"^({_IDENT})$")),
+    ("ode", re.compile(rf"^({_FIDENT})('+)$")),
+    ("init", re.compile(rf"^({_FIDENT})('*)\s*\(\s*0\s*\)$")),
+    ("map", re.compile(rf"^({_FIDENT})\s*\[\s*n\s*\+\s*1\s*\]$")),
+    ("mapinit", re.compile(rf"^({_FIDENT})\s*\[\s*0\s*\]$")),
+    ("func", re.compile(rf"^({_IDENT})\s*\(\s*({_IDENT}(?:\s*,\s*{_IDENT})*)\s*\)$")),
+    ("name", re.compile(rf"^({_FIDENT})$")),
 ]
 _RANGE = re.compile(r"\bin\s*\[(.*)\]\s*$")
 
@@ -65,6 +73,9 @@ class ParsedModel:
     time_symbol: sp.Symbol | None = None
     nonsmooth: list[str] = field(default_factory=list)
     diagnostics: list[Diagnostic] = field(default_factory=list)
+    functions: dict[str, ModelFunction] = field(default_factory=dict)
+    function_arguments: dict[str, tuple[str, ...]] = field(default_factory=dict)  # as written
+    structural: set[str] = field(default_factory=set)  # parameters that set family ranges
     equation_lines: dict[str, int] = field(default_factory=dict)
     equation_spans: dict[str, tuple[int, int, int]] = field(default_factory=dict)  # state -> line, col, end
     typed_order: dict[str, int] = field(default_factory=dict)  # base name -> order typed
@@ -96,6 +107,8 @@ class _Statement:
     tree: object = None
     range_trees: tuple = ()
     range_col: int = 0
+    family: tuple | None = None  # (index name, first-index tree, last-index tree) of 'for i in A..B'
+    arguments: tuple = ()  # of a function definition
 
 
 class _Builder:
@@ -141,6 +154,14 @@ class _Builder:
                          "expected a statement such as x' = ..., x[n+1] = ..., x(0) = ... or name = ...")
                 continue
             eq = code.index("=")
+            code, clause = split_family_clause(code, eq)
+            family = None
+            if clause is not None:
+                try:
+                    family = (clause[0], *parse_clause_bounds(clause))
+                except ParseError as err:
+                    self.add(number, err.column, err.end_column, ERROR, err.message, err.fix)
+                    continue
             lhs_raw = code[:eq]
             lhs = lhs_raw.strip()
             lhs_col = len(lhs_raw) - len(lhs_raw.lstrip()) + 1
@@ -150,18 +171,20 @@ class _Builder:
                 continue
             for form, pattern in _LHS_FORMS:
                 m = pattern.match(lhs)
-                if m and m.group(1) in KEYWORDS:
+                if m and (m.group(1) in KEYWORDS or m.group(1) in RESERVED_NAMES):
                     self.add(number, lhs_col, lhs_col + len(m.group(1)), ERROR,
                              f"'{m.group(1)}' is a reserved word and cannot be a name; choose another")
                     break
                 if m:
                     primes = len(m.group(2)) if form in ("ode", "init") else 0
+                    arguments = tuple(a.strip() for a in m.group(2).split(",")) if form == "func" else ()
                     statements.append(_Statement(number, form, m.group(1), primes, lhs_col, lhs_end,
-                                                 code[eq + 1:], eq + 2))
+                                                 code[eq + 1:], eq + 2, family=family, arguments=arguments))
                     break
             else:
                 self.add(number, lhs_col, lhs_end, ERROR,
-                         f"cannot read the left side '{lhs}'; expected x', x'', x[n+1], x(0), x[0] or a name")
+                         f"cannot read the left side '{lhs}'; expected x', x'', x[n+1], x(0), x[0], "
+                         "f(a, b) or a name")
         return statements
 
     def parse_rhs(self, st: _Statement) -> bool:
@@ -201,6 +224,7 @@ class _Builder:
         statements = self.split_lines(text)
         for st in statements:
             self.parse_rhs(st)
+        statements = expand_statements(self, statements)
         self.classify(statements)
         if self.model.kind is None:
             if not any(d.severity == ERROR for d in self.diags):
@@ -208,6 +232,7 @@ class _Builder:
             return self.model
         self.define_states(statements)
         self.define_parameters(statements)
+        define_functions(self, statements)
         self.resolve_expressions(statements)
         self.define_initial(statements)
         return self.model
@@ -434,7 +459,7 @@ class _Builder:
                 return m.time_symbol
             if name in CONSTANTS and name not in self.redefined:
                 return sp.pi if name == "pi" else sp.E
-            if name in FUNCTIONS:
+            if name in FUNCTIONS or name in m.functions:
                 raise ParseError(f"{name} is a function; call it as {name}(...)", node.column, node.end)
             if name in ("t", "n"):
                 other = "flows" if name == "t" else "maps"
@@ -442,26 +467,41 @@ class _Builder:
             if name in self.broken:
                 raise ParseError(f"'{name}' cannot be used: its definition on line {self.broken[name]} has an error",
                                  node.column, node.end)
+            if node.origin:
+                member = re.sub(r"_(\d+)('*)$", r"_{\1}\2", name)
+                raise ParseError(f"{member} is not defined: {node.origin}", node.column, node.end)
             close = self.suggest(name, lambda: [*m.states, *m.parameters, *derived_names, *CONSTANTS])
             fix = f"did you mean '{close[0]}'?" if close else None
             message = f"unknown name '{name}'" + (f"; {fix}" if fix else "")
             raise ParseError(message, node.column, node.end, fix)
 
         try:
-            expr = to_sympy(st.tree, resolve)
+            expr = to_sympy(st.tree, resolve, self.callable_functions)
         except ParseError as err:
             self.add(st.line, err.column, err.end_column, ERROR, err.message, err.fix)
             return None
-        for node in walk(st.tree):
-            if isinstance(node, Call) and node.func in NONSMOOTH_FUNCTIONS:
-                if node.func not in m.nonsmooth:
-                    m.nonsmooth.append(node.func)
-                self.add(st.line, node.column, node.column + len(node.func), WARNING,
-                         f"{node.func}() is not smooth: the Jacobian is undefined where it switches, "
-                         "which affects equilibria, cycles and Lyapunov exponents there")
+        self.note_nonsmooth(st.line, st.tree)
         key = f"eq:{st.name}" if st.form in ("ode", "map") else st.name
         self.depends[key] = deps
         return expr
+
+    def note_nonsmooth(self, line, tree):
+        """Warn at each non-smooth call or if() of ``tree``; calls of model functions pass on theirs."""
+        m = self.model
+        for node in walk(tree):
+            if isinstance(node, Call) and node.func in m.functions:
+                for func in function_nonsmooth(self, node.func):
+                    if func not in m.nonsmooth:
+                        m.nonsmooth.append(func)
+                continue
+            func = "if" if isinstance(node, If) else node.func if isinstance(node, Call) else None
+            if func is None or func not in NONSMOOTH_FUNCTIONS and func != "if":
+                continue
+            if func not in m.nonsmooth:
+                m.nonsmooth.append(func)
+            self.add(line, node.column, node.column + len(func), WARNING,
+                     f"{func}() is not smooth: the Jacobian is undefined where it switches, "
+                     "which affects equilibria, cycles and Lyapunov exponents there")
 
     def topological(self, raw, lines, derived_names) -> list[str]:
         order, state = [], {}
@@ -536,7 +576,7 @@ class _Builder:
             if st.tree is None:
                 continue
             try:
-                value = constant_value(st.tree, constants)
+                value = constant_value(st.tree, constants, self.callable_functions)
             except ParseError as err:
                 message = err.message
                 if "is not a constant" in message:
@@ -545,12 +585,19 @@ class _Builder:
                 continue
             set_by[target] = st.line
             m.initial[target] = value
+        missing: dict[tuple, list[str]] = {}
         for name in m.states:
             if name not in m.initial:
                 m.initial[name] = 0.0
-                line, col, end = m.equation_spans[name]
-                form = f"{name}(0)" if m.kind == FLOW else f"{name}[0]"
-                self.add(line, col, end, INFO, f"no initial value for {name}; it starts at 0 (write {form} = ...)")
+                missing.setdefault(m.equation_spans[name], []).append(name)
+        for (line, col, end), names in missing.items():
+            forms = [f"{name}(0)" if m.kind == FLOW else f"{name}[0]" for name in names]
+            if len(names) <= 2:
+                for name, form in zip(names, forms):
+                    self.add(line, col, end, INFO, f"no initial value for {name}; it starts at 0 (write {form} = ...)")
+            else:  # a family line: one note for all its members
+                self.add(line, col, end, INFO, f"no initial values for {names[0]} ... {names[-1]} "
+                         f"({len(names)} states); they start at 0 (write {forms[0]} = ... for i in ...)")
 
 
 def _split_top_level_comma(text: str) -> list[tuple[str, int]]:
@@ -568,7 +615,9 @@ def _split_top_level_comma(text: str) -> list[tuple[str, int]]:
 
 
 def _is_constant(tree, constants) -> bool:
-    return all(not isinstance(node, Name) or (node.name in constants and node.subscript is None)
+    """Only numbers, the given constants and built-in functions (a model function makes it derived)."""
+    return all((not isinstance(node, Name) or (node.name in constants and node.subscript is None))
+               and (not isinstance(node, Call) or node.func in FUNCTIONS)
                for node in walk(tree))
 
 
@@ -581,5 +630,6 @@ def parse_model(text: str) -> ParsedModel:
         model.diagnostics.append(Diagnostic(line, col, col + 1, ERROR, "NUL character in the text"))
         return model
     model = _Builder(text).build()
-    model.diagnostics.sort(key=lambda d: (d.line, d.column))
+    unique = {(d.line, d.column, d.end_column, d.severity, d.message): d for d in model.diagnostics}
+    model.diagnostics[:] = sorted(unique.values(), key=lambda d: (d.line, d.column))  # a family repeats its line
     return model

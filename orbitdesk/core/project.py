@@ -2,7 +2,9 @@
 
 Plain data in and out. Loading validates every field and names the JSON path of
 the first problem; unknown keys are ignored and recorded in
-``Project.load_warnings``. Saving is atomic and keeps ``NAME.orbitdesk.bak``.
+``Project.load_warnings``. Saving is atomic and keeps ``NAME.orbitdesk.bak``; it refuses to overwrite
+a file that changed on disk since it was read (``expected=``) or that is read-only, keeps hard links
+joined, and cleans up temporary files of interrupted saves (see safe_files.py).
 Nothing read from a file is ever executed.
 
 Version history:
@@ -14,15 +16,17 @@ Version history:
 
 from __future__ import annotations
 
+import hashlib
 import json
 import math
 import numbers
 import os
 import re
-import secrets
 import stat
-from contextlib import suppress
 from dataclasses import dataclass, field
+
+from orbitdesk.core import safe_files
+from orbitdesk.core.safe_files import DiskState, current_state, state_of
 
 FORMAT_NAME = "orbitdesk-project"
 FORMAT_VERSION = 1
@@ -422,20 +426,25 @@ def loads(text: str) -> Project:
     return project_from_dict(data)
 
 
-def _read(path: str) -> bytes | None:
-    """Bytes of a regular file (None if it does not exist), refusing oversized or special files."""
+def _read(path: str) -> tuple[bytes, os.stat_result] | None:
+    """Bytes of a regular file and its fstat (None if it does not exist), refusing oversized or special files."""
     try:
-        with open(path, "rb") as f:
-            if not stat.S_ISREG(os.fstat(f.fileno()).st_mode):
-                raise ProjectError("$", f"{path!r} is not a regular file")
-            data = f.read(MAX_FILE_BYTES + 1)
+        fd = os.open(path, os.O_RDONLY | getattr(os, "O_NONBLOCK", 0) | getattr(os, "O_BINARY", 0))
     except FileNotFoundError:
         return None
     except OSError as e:
         raise ProjectError("$", f"cannot read {path!r}: {e.strerror or e}") from None
+    try:
+        with os.fdopen(fd, "rb") as f:
+            st = os.fstat(f.fileno())
+            if not stat.S_ISREG(st.st_mode):
+                raise ProjectError("$", f"{path!r} is not a regular file")
+            data = f.read(MAX_FILE_BYTES + 1)
+    except OSError as e:
+        raise ProjectError("$", f"cannot read {path!r}: {e.strerror or e}") from None
     if len(data) > MAX_FILE_BYTES:
         raise ProjectError("$", f"file too large (over {MAX_FILE_BYTES} bytes): {path!r}")
-    return data
+    return data, st
 
 
 def _decode(data: bytes) -> Project:
@@ -449,48 +458,99 @@ def _decode(data: bytes) -> Project:
     return loads(text)
 
 
+def load_with_state(path) -> tuple[Project, DiskState]:
+    """Read and validate a project file; also returns what the file was (for ``save(expected=...)``)."""
+    path = os.fspath(path)
+    got = _read(path)
+    if got is None:
+        raise ProjectError("$", f"cannot read {path!r}: no such file")
+    return _decode(got[0]), state_of(*got)
+
+
 def load(path) -> Project:
     """Read and validate a project file; never modifies the file. Raises ProjectError on any problem."""
-    path = os.fspath(path)
-    data = _read(path)
-    if data is None:
-        raise ProjectError("$", f"cannot read {path!r}: no such file")
-    return _decode(data)
+    return load_with_state(path)[0]
 
 
-def _atomic_write(target: str, data: bytes, mode: int | None) -> None:
-    directory = os.path.dirname(target) or "."
-    tmp = os.path.join(directory, f".{os.path.basename(target)[:100]}.{secrets.token_hex(6)}.tmp")
-    fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_EXCL | getattr(os, "O_BINARY", 0), 0o666)
+class _Unchecked:
+    def __repr__(self) -> str:
+        return "UNCHECKED"
+
+
+UNCHECKED = _Unchecked()  # ``save(expected=UNCHECKED)``: overwrite whatever is on disk
+
+
+class ProjectConflict(ProjectError):
+    """The file changed on disk since it was read or last written (another window or program wrote it)."""
+
+    def __init__(self, target: str, expected: DiskState | None, current: DiskState | None):
+        name = os.path.basename(target)
+        if current is None:
+            what = f"{name} was removed or renamed since it was opened or last saved"
+        elif expected is None:
+            what = f"{name} was created by someone else in the meantime"
+        else:
+            what = f"{name} was changed on disk since it was opened or last saved (by another window or program)"
+        super().__init__("$", f"{what}; it was not overwritten")
+        self.target, self.expected, self.current = target, expected, current
+
+
+class ProjectReadOnly(ProjectError):
+    """The file is marked read-only; it is replaced only with ``overwrite_read_only=True``."""
+
+    def __init__(self, target: str):
+        super().__init__("$", f"{os.path.basename(target)} is read-only; it was not overwritten")
+        self.target = target
+
+
+def disk_state(path) -> DiskState | None:
+    """What the file at ``path`` is now (None if there is none); raises ProjectError if it cannot be read."""
     try:
-        with os.fdopen(fd, "wb") as f:
-            f.write(data)
-            f.flush()
-            if mode is not None:
-                os.chmod(tmp, mode)
-            os.fsync(f.fileno())
-        os.replace(tmp, target)
-    except BaseException:
-        with suppress(OSError):
-            os.unlink(tmp)
-        raise
-    if os.name != "nt":  # directories cannot be opened for fsync on Windows
-        dfd = os.open(directory, os.O_RDONLY)
-        try:
-            os.fsync(dfd)
-        finally:
-            os.close(dfd)
+        return current_state(os.path.realpath(os.fspath(path)))
+    except (OSError, ValueError) as e:
+        raise ProjectError("$", f"cannot read {os.fspath(path)!r}: {getattr(e, 'strerror', None) or e}") from None
 
 
-def save(path, p: Project, *, force: bool = False) -> None:
-    """Atomically write ``p`` to ``path``, first copying the previous document to ``path + '.bak'``.
+def check_unchanged(path, expected: DiskState | None) -> None:
+    """Raise ProjectConflict unless the file still holds what ``expected`` recorded (None: no file)."""
+    current = disk_state(path)
+    if not _unchanged(expected, current):
+        raise ProjectConflict(os.path.realpath(os.fspath(path)), expected, current)
 
-    An existing file at ``path`` that is not a valid project is not overwritten unless ``force=True``
-    (then the old ``.bak`` is left alone). On failure raises ProjectError and the old file is intact.
+
+def _unchanged(expected: DiskState | None, current: DiskState | None) -> bool:
+    return current is None if expected is None else expected.same_content(current)
+
+
+def remove_stale_temps(path) -> list[str]:
+    """Remove temporary files that interrupted saves of this project left beside it (and its backup)."""
+    return safe_files.remove_stale_temps(os.path.realpath(os.fspath(path)))
+
+
+def save(path, p: Project, *, force: bool = False, expected=UNCHECKED,
+         overwrite_read_only: bool = False) -> DiskState:
+    """Write ``p`` to ``path`` safely, first copying the previous document to ``path + '.bak'``; returns
+    what the file now is.
+
+    - ``expected``: what the file was when it was read or last saved (``load_with_state``, or None for
+      "no file"); if the file differs now, ProjectConflict is raised and nothing is written.
+    - A read-only file raises ProjectReadOnly unless ``overwrite_read_only=True`` (its mode is kept).
+    - An existing file that is not a valid project is not overwritten unless ``force=True`` (then the
+      old ``.bak`` is left alone).
+    - Normally: temporary file in the same folder, fsync, rename, fsync the folder. A file with other
+      hard links is rewritten in place after the backup, so the links stay joined.
+    - Temporary files left by earlier interrupted saves of this file are removed.
+    On failure raises ProjectError and the old file is intact.
     """
     target = os.path.realpath(os.fspath(path))
     data = dumps(p).encode("utf-8")
-    old = _read(target)
+    safe_files.remove_stale_temps(target)
+    got = _read(target)
+    old = got[0] if got is not None else None
+    if expected is not UNCHECKED:
+        state = state_of(*got) if got is not None else None
+        if not _unchanged(expected, state):
+            raise ProjectConflict(target, expected, state)
     if old is not None:
         try:
             _decode(old)
@@ -500,14 +560,22 @@ def save(path, p: Project, *, force: bool = False) -> None:
                                    f"({e.message}); save elsewhere or pass force=True") from None
             old = None  # never back up an unreadable document
     try:
-        mode = stat.S_IMODE(os.stat(target).st_mode)
+        st = os.stat(target)
     except FileNotFoundError:
-        mode = None
+        st = None
     except OSError as e:
         raise ProjectError("$", f"could not save {target!r}: {e.strerror or e}") from None
+    if st is not None and not overwrite_read_only and safe_files.is_read_only(target, st):
+        raise ProjectReadOnly(target)
+    mode = stat.S_IMODE(st.st_mode) if st is not None else None
     try:
         if old is not None:
-            _atomic_write(target + ".bak", old, mode)
-        _atomic_write(target, data, mode)
+            safe_files.atomic_write(target + ".bak", old, mode)
+        if st is not None and st.st_nlink > 1 and old is not None:
+            safe_files.write_in_place(target, data)
+        else:
+            safe_files.atomic_write(target, data, mode)
+        written = os.stat(target)
     except OSError as e:
         raise ProjectError("$", f"could not save {target!r}: {e.strerror or e}") from e
+    return DiskState(written.st_mtime_ns, len(data), hashlib.sha256(data).hexdigest())

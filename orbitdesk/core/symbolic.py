@@ -13,7 +13,7 @@ from dataclasses import dataclass
 import sympy as sp
 
 from .diagnostics import ParseError
-from .expression import FUNCTIONS, Binary, Call, Name, Num, Unary
+from .expression import FUNCTIONS, Binary, Call, Compare, If, Logic, Name, Num, Unary, children
 
 MAX_MAGNITUDE = 1e300
 MIN_MAGNITUDE = 1e-300  # smaller constants are replaced by their double (often 0.0)
@@ -88,6 +88,8 @@ def _checked_constant(expr: sp.Expr, node, what: str = "this constant") -> sp.Ex
     Numeric coefficients of sums and products are checked the same way, and so are the exponents
     of powers of expressions (sympy merges ``(x^64)^64`` or ``x*x*...*x`` into one power).
     """
+    if not isinstance(expr, sp.Expr):
+        return expr  # a condition of if() (true, false or a relation): no magnitude to check
     if expr.free_symbols:
         for part in (expr, *expr.args):
             if part.is_Pow:
@@ -186,35 +188,32 @@ def fold(node, leaf, combine):
         if isinstance(item, (Num, Name)):
             values.append(leaf(item))
             continue
-        children = _children(item)
+        parts = children(item)
         if ready:
-            args = values[len(values) - len(children):]
-            del values[len(values) - len(children):]
+            args = values[len(values) - len(parts):]
+            del values[len(values) - len(parts):]
             values.append(combine(item, args))
         else:
             stack.append((item, True))
-            for child in reversed(children):
+            for child in reversed(parts):
                 stack.append((child, False))
     return values[0]
 
 
-def _children(node):
-    if isinstance(node, Binary):
-        return (node.left, node.right)
-    if isinstance(node, Unary):
-        return (node.operand,)
-    return node.args
-
-
-def _check_call(node: Call):
-    if node.func not in FUNCTIONS:
+def _check_call(node: Call, functions=None):
+    """The function exists (built in, or defined by the model in ``functions``) and gets its arguments."""
+    functions = functions or {}
+    if node.func not in FUNCTIONS and node.func not in functions:
         from difflib import get_close_matches
 
-        close = get_close_matches(node.func, FUNCTIONS, n=1)
+        close = get_close_matches(node.func, [*FUNCTIONS, *functions], n=1)
         fix = f"did you mean '{close[0]}'?" if close else None
         msg = f"unknown function '{node.func}'" + (f"; {fix}" if fix else "")
         raise ParseError(msg, node.column, node.column + len(node.func), fix)
-    want = FUNCTIONS[node.func]
+    if node.func not in FUNCTIONS and functions[node.func].body is None:
+        raise ParseError(f"'{node.func}' cannot be used: its definition on line {functions[node.func].line} "
+                         "has an error", node.column, node.column + len(node.func))
+    want = FUNCTIONS[node.func] if node.func in FUNCTIONS else len(functions[node.func].arguments)
     if len(node.args) != want:
         raise ParseError(f"{node.func}() takes {want} argument{'s' if want > 1 else ''}, "
                          f"got {len(node.args)}", node.column, node.end)
@@ -245,8 +244,26 @@ def _chain(op, left, right, node):
     return _Terms(op, [_materialize(left), right], node)
 
 
-def to_sympy(node, resolve) -> sp.Expr:
-    """Build a sympy expression; ``resolve(Name)`` returns the sympy object a name stands for."""
+_RELATIONS = {"<": sp.StrictLessThan, "<=": sp.LessThan, ">": sp.StrictGreaterThan, ">=": sp.GreaterThan}
+_LOGIC = {"and": sp.And, "or": sp.Or, "not": sp.Not}
+
+
+@dataclass(frozen=True)
+class ModelFunction:
+    """A function the model defines, ``sat(u) = u/(1 + abs(u))``: its body over placeholder arguments."""
+
+    name: str
+    arguments: tuple  # placeholder symbols, one per argument
+    body: sp.Expr | None  # None: the definition has an error (calls say so)
+    line: int = 0
+
+
+def to_sympy(node, resolve, functions=None) -> sp.Expr:
+    """Build a sympy expression; ``resolve(Name)`` returns the sympy object a name stands for.
+
+    ``functions`` maps the names of model-defined functions to ModelFunction; their calls are
+    inlined (the body with the arguments put in), so derivatives of the result stay exact.
+    """
 
     def leaf(item):
         if isinstance(item, Num):
@@ -265,9 +282,18 @@ def to_sympy(node, resolve) -> sp.Expr:
         args = [_materialize(a) for a in args]
         if isinstance(item, Unary):
             return -args[0]
+        if isinstance(item, Compare):
+            return _RELATIONS[item.op](*args)
+        if isinstance(item, Logic):
+            return _LOGIC[item.op](*args)
+        if isinstance(item, If):
+            return _checked_constant(sp.Piecewise((args[1], args[0]), (args[2], True)), item)
         if isinstance(item, Call):
-            _check_call(item)
-            return _checked_call(item.func, args, item)
+            _check_call(item, functions)
+            if item.func in FUNCTIONS:
+                return _checked_call(item.func, args, item)
+            definition = functions[item.func]
+            return substitute(definition.body, dict(zip(definition.arguments, args)), item)
         left, right = args
         if item.op == "/":
             if right.is_zero:
@@ -342,8 +368,15 @@ def tree_size(expr: sp.Expr, seen: dict) -> int:
     return seen[expr]
 
 
-def constant_value(node, constants: dict[str, float]) -> float:
-    """Evaluate a constant expression with floats; ``constants`` maps the allowed names."""
+_FLOAT_RELATIONS = {"<": lambda a, b: a < b, "<=": lambda a, b: a <= b,
+                    ">": lambda a, b: a > b, ">=": lambda a, b: a >= b}
+
+
+def constant_value(node, constants: dict[str, float], functions=None) -> float:
+    """Evaluate a constant expression with floats; ``constants`` maps the allowed names.
+
+    Calls of model-defined ``functions`` (name -> ModelFunction) are evaluated through their bodies.
+    """
 
     def leaf(item):
         if isinstance(item, Num):
@@ -356,9 +389,21 @@ def constant_value(node, constants: dict[str, float]) -> float:
         raise ParseError(f"'{item.name}' is not a constant", item.column, item.end)
 
     def combine(item, args):
+        if isinstance(item, Compare):
+            return _FLOAT_RELATIONS[item.op](*args)
+        if isinstance(item, Logic):
+            return (all(args) if item.op == "and" else any(args)) if item.op != "not" else not args[0]
+        if isinstance(item, If):
+            return args[1] if args[0] else args[2]
         try:
             if isinstance(item, Unary):
                 value = -args[0]
+            elif isinstance(item, Call) and item.func not in FUNCTIONS:
+                _check_call(item, functions)
+                definition = functions[item.func]
+                result = definition.body.xreplace({a: sp.Float(v) for a, v in zip(definition.arguments, args)})
+                value = complex(result.evalf())
+                value = value.real if abs(value.imag) <= 1e-12 * max(1.0, abs(value.real)) else complex(value)
             elif isinstance(item, Call):
                 _check_call(item)
                 value = float(MATH_FUNCTIONS[item.func](*args))
@@ -374,7 +419,7 @@ def constant_value(node, constants: dict[str, float]) -> float:
                 value = args[0] ** args[1]
         except ZeroDivisionError:
             raise ParseError("division by zero", item.column, item.end) from None
-        except (OverflowError, ValueError):
+        except (OverflowError, ValueError, TypeError):
             raise ParseError("this constant expression is undefined or too large", item.column, item.end) from None
         if isinstance(value, complex) or not math.isfinite(value) or abs(value) > MAX_MAGNITUDE:
             raise ParseError("this constant expression is undefined or too large", item.column, item.end)

@@ -14,6 +14,8 @@ from functools import cached_property
 
 import numpy as np
 import sympy as sp
+from sympy.functions.elementary.piecewise import ExprCondPair
+from sympy.printing.numpy import NumPyPrinter
 from sympy.printing.pycode import PythonCodePrinter
 
 from .model import FLOW, MAP, ParsedModel, parse_model
@@ -36,7 +38,8 @@ class UndefinedValue(ArithmeticError):
 def _lambdify(args, exprs, modules):
     # scalar code uses the printer that writes non-integer powers as math.pow: float arithmetic,
     # so 2^floor(x) with a large x overflows instead of building an exact huge integer
-    printer = _printer() if modules == "math" else None
+    printer = _printer() if modules == "math" else _VectorPrinter({"fully_qualified_modules": False, "inline": True,
+                                                                           "allow_unknown_functions": True, "user_functions": {}})
     return sp.lambdify(args, exprs, modules=modules, cse=len(exprs) > 1, printer=printer)
 
 
@@ -259,6 +262,36 @@ class _ScalarPrinter(PythonCodePrinter):
         return f"pow({self._print(expr.base)}, {self._print(exp)})"
 
 
+class _VectorPrinter(NumPyPrinter):
+    """lambdify's printer for numpy: if() and its conditions as elementwise where / logical_and, which
+    broadcast a parameter (a number) against states (arrays) where select() and reduce() do not."""
+
+    def _print_Piecewise(self, expr):
+        *rest, last = expr.args
+        where = self._module_format("numpy.where")
+        if last.cond == sp.true:
+            code = self._print(last.expr)
+        else:
+            code = f"{where}({self._print(last.cond)}, {self._print(last.expr)}, {self._module_format('numpy.nan')})"
+        for pair in reversed(rest):
+            code = f"{where}({self._print(pair.cond)}, {self._print(pair.expr)}, {code})"
+        return code
+
+    def _logical(self, expr, name):
+        func = self._module_format(name)
+        args = [self._print(a) for a in expr.args]
+        code = args[0]
+        for arg in args[1:]:
+            code = f"{func}({code}, {arg})"
+        return code
+
+    def _print_And(self, expr):
+        return self._logical(expr, "numpy.logical_and")
+
+    def _print_Or(self, expr):
+        return self._logical(expr, "numpy.logical_or")
+
+
 def _printer():
     return _ScalarPrinter({"fully_qualified_modules": False, "inline": True, "allow_unknown_functions": True,
                            "user_functions": {}})
@@ -360,8 +393,8 @@ def _stack(values, shape) -> np.ndarray:
 def _first_undefined(expr, values):
     """The first subexpression (innermost first) whose value is undefined, evaluated in floats."""
     for sub in sp.postorder_traversal(expr):
-        if sub.is_Atom:
-            continue
+        if sub.is_Atom or not isinstance(sub, sp.Expr) or isinstance(sub, ExprCondPair):
+            continue  # conditions and the branches' pairs of if() have no value of their own
         names = sorted(sub.free_symbols, key=lambda s: s.name)
         try:  # never let sympy evaluate with the numbers put in: 477^max(2e7, -x) would be exact
             fn = sp.lambdify(names, sub, modules="math", printer=_printer())

@@ -13,6 +13,7 @@ it could not; ``render_note`` turns a note's light markup into safe HTML.
 
 from __future__ import annotations
 
+import bisect
 import copy
 import html
 import math
@@ -352,27 +353,85 @@ def delete_step(steps: list, i: int) -> list:
 
 # ---------------------------------------------------------------- notes
 
-_CODE = re.compile(r"`([^`\n]+)`")
-_STRONG = re.compile(r"\*\*(?=\S)(.+?)(?<=\S)\*\*")
-_EMPH = re.compile(r"(?<![\w*])\*(?=[^\s*])(.+?)(?<=[^\s*])\*(?![\w*])")
 _BULLET = re.compile(r"^\s{0,3}[-*]\s+(.*)$")
 _NUMBERED = re.compile(r"^\s{0,3}(\d{1,9})[.)]\s+(.*)$")
+_PAIRS = re.compile(r"(?=\*\*)")  # every position of "**", overlapping ("***" has two)
+_STAR = re.compile(r"\*")
 
 
-def _inline(text: str) -> str:
-    parts, last = [], 0
-    for m in _CODE.finditer(text):
-        parts.append(_styled(text[last:m.start()]))
-        parts.append(f"<code>{html.escape(m.group(1), quote=False)}</code>")
-        last = m.end()
-    parts.append(_styled(text[last:]))
-    return "".join(parts)
+# Inline markup in linear time. The rules are those of the patterns
+#   code    `([^`\n]+)`
+#   strong  \*\*(?=\S)(.+?)(?<=\S)\*\*
+#   emph    (?<![\w*])\*(?=[^\s*])(.+?)(?<=[^\s*])\*(?![\w*])
+# (code spans first; strong, then emphasis, over the escaped text between them), but a backtracking
+# engine tries every opening star against the whole rest of the text: quadratic in the length of
+# unclosed markup. Here the possible closing positions are listed once, and each opening star looks
+# up the first one after it (bisect), so the work is O(m log m) in the number m of stars.
+
+def _is_word(c: str) -> bool:
+    return c.isalnum() or c == "_"
+
+
+def _wrap(text: str, openers, closers, width: int, min_content: int, tag: str) -> str:
+    """Replace, left to right without overlap, each opener at i that has a closer j >= i + width +
+    min_content by <tag>text[i+width:j]</tag> (the first such closer: the shortest match)."""
+    out, last = [], 0
+    for i in openers:
+        if i < last:
+            continue
+        k = bisect.bisect_left(closers, i + width + min_content)
+        if k == len(closers):
+            break  # no closer after this opener, so none after any later one either
+        j = closers[k]
+        out.append(text[last:i])
+        out.append(f"<{tag}>{text[i + width:j]}</{tag}>")
+        last = j + width
+    out.append(text[last:])
+    return "".join(out)
+
+
+def _strong(text: str) -> str:
+    n = len(text)
+    pairs = [m.start() for m in _PAIRS.finditer(text)]
+    openers = [i for i in pairs if i + 2 < n and not text[i + 2].isspace()]
+    closers = [j for j in pairs if j >= 1 and not text[j - 1].isspace()]
+    return _wrap(text, openers, closers, 2, 1, "strong")
+
+
+def _emphasis(text: str) -> str:
+    n = len(text)
+    stars = [m.start() for m in _STAR.finditer(text)]
+
+    def free(c: str) -> bool:  # not a word character and not a star
+        return not (_is_word(c) or c == "*")
+
+    openers = [i for i in stars if (i == 0 or free(text[i - 1]))
+               and i + 1 < n and not text[i + 1].isspace() and text[i + 1] != "*"]
+    closers = [j for j in stars if j >= 1 and not text[j - 1].isspace() and text[j - 1] != "*"
+               and (j + 1 == n or free(text[j + 1]))]
+    return _wrap(text, openers, closers, 1, 1, "em")
 
 
 def _styled(text: str) -> str:
-    text = html.escape(text, quote=False)
-    text = _STRONG.sub(r"<strong>\1</strong>", text)
-    return _EMPH.sub(r"<em>\1</em>", text)
+    return _emphasis(_strong(html.escape(text, quote=False)))
+
+
+def _inline(text: str) -> str:
+    """Code spans (`...`, not empty, on one line), then strong and emphasis in the rest."""
+    parts, last, start = [], 0, 0
+    while True:
+        i = text.find("`", start)
+        k = text.find("`", i + 1) if i >= 0 else -1
+        if k < 0:
+            break
+        if k == i + 1 or "\n" in text[i + 1:k]:
+            start = i + 1  # no span opens here; the next try starts at the closing backtick
+            continue
+        parts.append(_styled(text[last:i]))
+        parts.append(f"<code>{html.escape(text[i + 1:k], quote=False)}</code>")
+        last = start = k + 1
+    parts.append(_styled(text[last:]))
+    return "".join(parts)
 
 
 def render_note(text: str) -> str:
@@ -380,7 +439,7 @@ def render_note(text: str) -> str:
     `code`. Everything else is escaped, so no HTML in a note ever reaches the page as markup."""
     blocks: list[str] = []
     paragraph: list[str] = []
-    items: list[str] = []
+    items: list[list[str]] = []
     list_kind: str | None = None
     start = 1
 
@@ -392,7 +451,7 @@ def render_note(text: str) -> str:
     def flush_list():
         nonlocal list_kind
         if items:
-            body = "".join(f"<li>{_inline(item)}</li>" for item in items)
+            body = "".join(f"<li>{_inline(' '.join(item))}</li>" for item in items)
             first = f' start="{start}"' if list_kind == "ol" and start != 1 else ""
             blocks.append(f"<{list_kind}{first}>{body}</{list_kind}>")
             items.clear()
@@ -411,9 +470,9 @@ def render_note(text: str) -> str:
                 flush_list()
                 list_kind = kind
                 start = int(numbered.group(1)) if numbered else 1
-            items.append((bullet.group(1) if bullet else numbered.group(2)).strip())
+            items.append([(bullet.group(1) if bullet else numbered.group(2)).strip()])
         elif list_kind and line[:1] in (" ", "\t"):
-            items[-1] += " " + line.strip()
+            items[-1].append(line.strip())
         else:
             flush_list()
             paragraph.append(line)

@@ -73,17 +73,30 @@ def create(argv=None, path=None):
     the event loop ends.
     """
     app = make_application(argv)
-    from . import errors, recovery
+    from . import errors, file_guard, recovery
     from .main_window import MainWindow
 
-    recovery.enable_crash_log()
+    data_problem = None  # an unusable data folder: run without autosave, recovery and crash log
+    try:
+        recovery.enable_crash_log()
+    except OSError as e:
+        data_problem = e
     errors.install(app)
     window = MainWindow()
-    window.autosaver = recovery.Autosaver(window.session, parent=window)
+    window.autosaver = None
+    if data_problem is None:
+        try:
+            window.autosaver = recovery.Autosaver(window.session, parent=window)
+        except OSError as e:
+            data_problem = e
+    if window.autosaver is not None:
+        window.autosave_notice = file_guard.AutosaveNotice(window, window.autosaver)
     if os.environ.get("ORBITDESK_REPORT_SHOWN"):
         window._first_paint = _FirstPaint(window, quit=os.environ["ORBITDESK_REPORT_SHOWN"] == "quit")
     window.show()
-    restored = recovery.offer_recovery(window)
+    if data_problem is not None:
+        file_guard.tell_data_folder_unusable(window, data_problem)
+    restored = data_problem is None and recovery.offer_recovery(window)
     if path is not None and not restored:
         window.open_path(path, ask=False)
     return app, window
@@ -92,6 +105,7 @@ def create(argv=None, path=None):
 def finish(window) -> None:
     """After the event loop: stop the workers and remove this run's autosave (a clean exit)."""
     window.session.shutdown()
+    window.guard.release()
     autosaver = getattr(window, "autosaver", None)
     if autosaver is not None:
         autosaver.finish()

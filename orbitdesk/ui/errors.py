@@ -84,7 +84,7 @@ class ErrorDialog(QDialog):
 
     def add(self, message: str, details: str, log_file: Path | None) -> None:
         self.count += 1
-        where = f"<p>The details were written to <code>{log_file}</code>.</p>" if log_file else ""
+        where = f"<p>The details were written to <code>{_escape(str(log_file))}</code>.</p>" if log_file else ""
         more = f"<p>({self.count} problems so far in this session.)</p>" if self.count > 1 else ""
         self.message.setText(
             f"<p><b>OrbitDesk ran into an internal problem</b> and stopped what it was doing.</p>"
@@ -111,7 +111,12 @@ class ErrorReporter(QObject):
         if show_dialogs is None:
             show_dialogs = not os.environ.get(ENV_NO_DIALOGS)
         self.show_dialogs = show_dialogs
-        self.log_file = Path(log_file) if log_file is not None else error_log_path()
+        if log_file is None:
+            try:
+                log_file = error_log_path()
+            except OSError:  # data folder unusable: no log file, the app still runs
+                log_file = None
+        self.log_file = Path(log_file) if log_file is not None else None
         self.dialog: ErrorDialog | None = None
         self._previous = None
         self._previous_thread = None
@@ -123,10 +128,15 @@ class ErrorReporter(QObject):
         self._previous, self._previous_thread = sys.excepthook, threading.excepthook
         sys.excepthook = self.excepthook
         threading.excepthook = self.thread_excepthook
-        self._handler = RotatingFileHandler(self.log_file, maxBytes=1_000_000, backupCount=2, encoding="utf-8")
-        self._handler.setFormatter(logging.Formatter("%(asctime)s %(levelname)s %(name)s: %(message)s"))
-        self._handler.setLevel(logging.WARNING)
-        log.addHandler(self._handler)
+        try:
+            self._handler = RotatingFileHandler(self.log_file, maxBytes=1_000_000, backupCount=2,
+                                                encoding="utf-8") if self.log_file is not None else None
+        except OSError:
+            self._handler = self.log_file = None
+        if self._handler is not None:
+            self._handler.setFormatter(logging.Formatter("%(asctime)s %(levelname)s %(name)s: %(message)s"))
+            self._handler.setLevel(logging.WARNING)
+            log.addHandler(self._handler)
         return self
 
     def uninstall(self) -> None:
@@ -164,9 +174,10 @@ class ErrorReporter(QObject):
 
     def write_log(self, text: str) -> None:
         try:
-            self.log_file.parent.mkdir(parents=True, exist_ok=True)
-            with open(self.log_file, "a", encoding="utf-8") as f:
-                f.write(f"--- {time.strftime('%Y-%m-%d %H:%M:%S')} pid {os.getpid()}\n{text}\n")
+            if self.log_file is not None:
+                self.log_file.parent.mkdir(parents=True, exist_ok=True)
+                with open(self.log_file, "a", encoding="utf-8") as f:
+                    f.write(f"--- {time.strftime('%Y-%m-%d %H:%M:%S')} pid {os.getpid()}\n{text}\n")
         except OSError:
             pass
         try:

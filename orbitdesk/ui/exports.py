@@ -4,11 +4,12 @@ this module gathers what is on screen and writes the files."""
 
 from __future__ import annotations
 
-import os
 from pathlib import Path
 
 from PySide6.QtGui import QAction
-from PySide6.QtWidgets import QFileDialog, QMenu, QMessageBox
+from PySide6.QtWidgets import QFileDialog, QMenu
+
+from .plain_text import plain_message
 
 LATEX_DOCUMENT = "LaTeX document (*.tex)"
 LATEX_SNIPPET = "LaTeX equations only, to paste into a document (*.tex)"
@@ -136,11 +137,11 @@ def report_html(window, equilibria=None) -> str:
 # ---------------------------------------------------------------- writing
 
 def _write(path, text: str, executable: bool = False) -> Path:
+    from orbitdesk.core.safe_files import atomic_write
+
     path = Path(path)
-    try:
-        path.write_text(text, encoding="utf-8", newline="\n")
-        if executable:
-            os.chmod(path, 0o755)
+    try:  # complete or not at all
+        atomic_write(str(path), text.encode("utf-8"), 0o755 if executable else None)
     except OSError as e:
         raise ExportError(f"cannot write {path.name}: {e.strerror or e}") from None
     return path
@@ -216,7 +217,7 @@ def _report(window, ok: bool, what: str, path=None, message: str = "") -> bool:
     if ok:
         window.statusBar().showMessage(f"Exported {what} to {Path(path).name}", 8000)
     else:
-        QMessageBox.warning(window, "Export", f"Could not export {what}: {message}")
+        plain_message(window, "warning", "Export", f"Could not export {what}: {message}")
     return ok
 
 

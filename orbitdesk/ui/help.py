@@ -179,9 +179,9 @@ def open_sample(window, path) -> bool:
     try:
         project = core_project.load(path)
     except ProjectError as e:
-        from PySide6.QtWidgets import QMessageBox
+        from .plain_text import plain_message
 
-        QMessageBox.critical(window, "Could not open the sample", f"{Path(path).name}: {e.message}")
+        plain_message(window, "critical", "Could not open the sample", f"{Path(path).name}: {e.message}")
         return False
     window.session.load_project(project, None)
     window.documentOpened.emit()

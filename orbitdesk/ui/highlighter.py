@@ -67,6 +67,7 @@ class ModelHighlighter(QSyntaxHighlighter):
     def __init__(self, document, palette: QPalette | None = None):
         super().__init__(document)
         self._kinds: dict[str, str] = {}
+        self._functions: frozenset[str] = frozenset()  # the model's own functions
         self._formats: dict[str, QTextCharFormat] = {}
         self.set_palette(palette or QPalette())
 
@@ -90,8 +91,9 @@ class ModelHighlighter(QSyntaxHighlighter):
         """Take parameter/derived names from a parse; re-colours only when they changed."""
         kinds = {name: PARAMETER for name in getattr(parsed, "parameters", {})}
         kinds.update({name: DERIVED for name in getattr(parsed, "derived", {})})
-        if kinds != self._kinds:
-            self._kinds = kinds
+        functions = frozenset(getattr(parsed, "function_arguments", {}))
+        if kinds != self._kinds or functions != self._functions:
+            self._kinds, self._functions = kinds, functions
             self.rehighlight()
 
     def highlightBlock(self, text: str) -> None:
@@ -113,8 +115,10 @@ class ModelHighlighter(QSyntaxHighlighter):
             self.setFormat(rhs_start + m.start(), m.end() - m.start(), self._formats[NUMBER])
         for m in _WORD.finditer(rhs):
             word = m.group(0)
-            if word in FUNCTIONS:
+            if word in FUNCTIONS or word in ("if", "sum") or word in self._functions:
                 role = FUNCTION
+            elif word in ("and", "or", "not", "for"):
+                role = RANGE
             elif word in CONSTANTS:
                 role = CONSTANT
             elif word == "in" and _RANGE.match(rhs, m.start()):

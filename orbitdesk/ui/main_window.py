@@ -13,9 +13,12 @@ from PySide6.QtWidgets import (QApplication, QComboBox, QDockWidget, QDoubleSpin
                                QMainWindow, QMessageBox, QProgressBar, QPushButton, QSizePolicy, QSlider,
                                QSpinBox, QSplitter, QStyle, QToolBar, QToolButton, QVBoxLayout, QWidget)
 
+from orbitdesk.core.export_csv import write_csv
 from orbitdesk.core.project import ProjectError
 
 from . import views as views_pkg
+from .file_guard import DocumentGuard
+from .plain_text import menu_text, plain_message, rich_tip
 from .session import Session
 
 log = logging.getLogger("orbitdesk.ui.main_window")
@@ -264,6 +267,7 @@ class MainWindow(QMainWindow):
         s.trajectoryChanged.connect(self._on_trajectory)
         s.runFailed.connect(lambda m: self.run_status.setText("Run failed"))
         s.add_save_hook(self.store_view_settings)
+        self.guard = DocumentGuard(self)
         QApplication.instance().focusChanged.connect(self._on_focus_changed)
         self.resize(self._initial_size())
         self._sized = False
@@ -611,7 +615,7 @@ class MainWindow(QMainWindow):
             labels = {"diverged": "Blew up", "undefined": "Undefined value", "cancelled": "Stopped",
                       "step_failed": "Step size collapsed"}
             text = f"{labels.get(traj.status, traj.status)} after {n:,} points"
-            self.run_status.setToolTip(traj.message or "State of the last run")
+            self.run_status.setToolTip(rich_tip(traj.message) if traj.message else "State of the last run")
         self.run_status.setText(text)
 
     # ------------------------------------------------------------ documents
@@ -619,8 +623,8 @@ class MainWindow(QMainWindow):
         """Ask before unsaved work is closed or replaced. True means: go ahead."""
         if not self.session.dirty:
             return True
-        answer = QMessageBox.question(
-            self, "Unsaved changes", f"“{self.session.name}” has changes that are not saved. Save them first?",
+        answer = plain_message(
+            self, "question", "Unsaved changes", f"“{self.session.name}” has changes that are not saved. Save them first?",
             QMessageBox.StandardButton.Save | QMessageBox.StandardButton.Discard
             | QMessageBox.StandardButton.Cancel, QMessageBox.StandardButton.Save)
         if answer == QMessageBox.StandardButton.Save:
@@ -645,11 +649,13 @@ class MainWindow(QMainWindow):
         """Open a project or model file; a file that cannot be read is reported and nothing changes."""
         if ask and not self.maybe_save():
             return False
+        if not self.guard.confirm_open(path):
+            return False
         try:
             self.session.open(path)
         except ProjectError as e:
             where = f"\n\n(at {e.path} in the file)" if e.path not in ("", "$") else ""
-            QMessageBox.critical(self, "Could not open the file", f"{Path(path).name}: {e.message}{where}")
+            plain_message(self, "critical", "Could not open the file", f"{Path(path).name}: {e.message}{where}")
             return False
         self.add_recent(Path(path))
         self.documentOpened.emit()
@@ -671,10 +677,7 @@ class MainWindow(QMainWindow):
         return self._save_to(path)
 
     def _save_to(self, path: Path) -> bool:
-        try:
-            self.session.save(path)
-        except ProjectError as e:
-            QMessageBox.critical(self, "Could not save", e.message)
+        if not self.guard.save(path):  # asks before overwriting changes on disk or a read-only file
             return False
         self.add_recent(path)
         self._update_title()
@@ -685,8 +688,8 @@ class MainWindow(QMainWindow):
         if self.session.path is None:
             return False
         if self.session.dirty:
-            answer = QMessageBox.question(
-                self, "Revert", f"Discard the changes to “{self.session.name}” and reload the saved version?",
+            answer = plain_message(
+                self, "question", "Revert", f"Discard the changes to “{self.session.name}” and reload the saved version?",
                 QMessageBox.StandardButton.Discard | QMessageBox.StandardButton.Cancel,
                 QMessageBox.StandardButton.Cancel)
             if answer != QMessageBox.StandardButton.Discard:
@@ -709,8 +712,8 @@ class MainWindow(QMainWindow):
         self.recent_menu.clear()
         files = self.recent_files()
         for f in files:
-            a = self.recent_menu.addAction(Path(f).name)
-            a.setToolTip(f)
+            a = self.recent_menu.addAction(menu_text(Path(f).name))
+            a.setToolTip(rich_tip(f))
             a.triggered.connect(lambda _=False, f=f: self.open_path(f))
         if not files:
             a = self.recent_menu.addAction("No recent files")
@@ -753,9 +756,7 @@ class MainWindow(QMainWindow):
             return False
         header, rows = data
         rows = np.atleast_2d(np.asarray(rows, dtype=float))
-        with open(path, "w", encoding="utf-8", newline="") as f:
-            f.write(",".join(_csv_field(h) for h in header) + "\n")
-            np.savetxt(f, rows, delimiter=",", fmt="%.17g")
+        write_csv(path, header, rows.tolist())  # atomic: a failure leaves no partial file
         return True
 
     def export_plot_dialog(self, kind: str, plot=None) -> bool:
@@ -796,7 +797,11 @@ class MainWindow(QMainWindow):
             return False
         if not path.lower().endswith(".csv"):
             path += ".csv"
-        ok = self.export_data(path, view)
+        try:
+            ok = self.export_data(path, view)
+        except OSError as e:
+            plain_message(self, "warning", "Export Data", f"Could not write {Path(path).name}: {e.strerror or e}")
+            return False
         self.statusBar().showMessage(f"Exported {Path(path).name}" if ok else "Nothing to export yet", 5000)
         return ok
 
@@ -815,11 +820,5 @@ class MainWindow(QMainWindow):
             return
         self.run_bar.play.setChecked(False)
         self.session.shutdown()
+        self.guard.release()
         event.accept()
-
-
-def _csv_field(text: str) -> str:
-    text = str(text)
-    if any(c in text for c in ',"\n'):
-        return '"' + text.replace('"', '""') + '"'
-    return text

@@ -423,6 +423,7 @@ class ScreenCurve(pg.PlotDataItem):
 
 def hint_label(text: str = "") -> QLabel:
     label = QLabel(text)
+    label.setTextFormat(Qt.TextFormat.PlainText)  # notes and messages may quote names from files
     label.setStyleSheet("color: palette(placeholder-text);")
     label.setWordWrap(True)
     label.setAlignment(Qt.AlignmentFlag.AlignLeft | Qt.AlignmentFlag.AlignVCenter)

@@ -21,11 +21,14 @@ import time
 from dataclasses import dataclass
 from pathlib import Path
 
-from PySide6.QtCore import QObject, QStandardPaths, QTimer, Signal
+from PySide6.QtCore import QObject, QStandardPaths, Qt, QTimer, Signal
 from PySide6.QtWidgets import QMessageBox
 
 from orbitdesk.core import project as core_project
 from orbitdesk.core.project import ProjectError
+from orbitdesk.core.safe_files import DiskState
+
+from .plain_text import plain_message
 
 AUTOSAVE_INTERVAL_MS = 20_000
 CHANGE_DELAY_MS = 2_000
@@ -137,6 +140,7 @@ class Recoverable:
     name: str
     saved_at: float
     directory: Path
+    original_state: object = core_project.UNCHECKED  # what the original file was when last opened or saved
 
     def load(self):
         return core_project.load(self.autosave)
@@ -176,6 +180,7 @@ def find_recoverable(directory: Path | None = None) -> list[Recoverable]:
             original = meta.get("original_path")
             if isinstance(original, str) and original:
                 rec.original_path = Path(original)
+                rec.original_state = DiskState.from_json(meta.get("original_state")) or core_project.UNCHECKED
             if autosave.exists():
                 if not rec.saved_at:
                     rec.saved_at = autosave.stat().st_mtime
@@ -192,7 +197,9 @@ def find_recoverable(directory: Path | None = None) -> list[Recoverable]:
 class Autosaver(QObject):
     """Writes the session's unsaved work to the autosave folder on a timer and soon after changes."""
 
-    saved = Signal(str)  # path of the autosave file
+    saved = Signal(str)    # path of the autosave file
+    failed = Signal(str)   # autosave stopped working (plain message); emitted once until it works again
+    recovered = Signal()   # autosave works again after a failure
 
     def __init__(self, session, parent=None, directory: Path | None = None,
                  interval_ms: int = AUTOSAVE_INTERVAL_MS, delay_ms: int = CHANGE_DELAY_MS):
@@ -206,7 +213,11 @@ class Autosaver(QObject):
             raise OSError(f"cannot lock {self.lock.path}")
         self.path = self.directory / f"{self.session_id}.orbitdesk"
         self.meta_path = self.directory / f"{self.session_id}.json"
-        self._write_meta(saved_at=0.0)
+        self.failing: str | None = None  # the plain message while autosave does not work
+        try:
+            self._write_meta(saved_at=0.0)
+        except OSError as e:  # e.g. a full disk: keep trying on the timer
+            self.failing = _autosave_problem(self.directory, e)
         self.timer = QTimer(self, interval=interval_ms)
         self.timer.timeout.connect(self.autosave_now)
         self.timer.start()
@@ -228,7 +239,8 @@ class Autosaver(QObject):
     def _write_meta(self, saved_at: float) -> None:
         s = self.session
         meta = {"pid": os.getpid(), "name": s.name, "saved_at": saved_at,
-                "original_path": str(s.path) if s.path is not None else None}
+                "original_path": str(s.path) if s.path is not None else None,
+                "original_state": s.disk_state.to_json() if isinstance(s.disk_state, DiskState) else None}
         tmp = self.meta_path.with_suffix(".json.tmp")
         tmp.write_text(json.dumps(meta), encoding="utf-8")
         os.replace(tmp, self.meta_path)
@@ -241,10 +253,18 @@ class Autosaver(QObject):
             self._remove_autosave()
             return False
         try:
+            self.directory.mkdir(parents=True, exist_ok=True)  # back again if it was removed meanwhile
             core_project.save(self.path, self.session.to_project(), force=True)
             self._write_meta(saved_at=time.time())
-        except (ProjectError, OSError):
+        except (ProjectError, OSError) as e:
+            first = self.failing is None
+            self.failing = _autosave_problem(self.directory, e)
+            if first:
+                self.failed.emit(self.failing)
             return False
+        if self.failing is not None:
+            self.failing = None
+            self.recovered.emit()
         self.saved.emit(str(self.path))
         return True
 
@@ -262,6 +282,12 @@ class Autosaver(QObject):
             self.lock.release(remove=True)
 
 
+def _autosave_problem(directory: Path, e: Exception) -> str:
+    cause = e if isinstance(e, OSError) else e.__cause__
+    reason = getattr(cause, "strerror", None) or getattr(e, "message", None) or str(e)
+    return f"Unsaved work cannot be kept safe: autosave failed ({reason}).\nAutosave folder: {directory}"
+
+
 # ---------------------------------------------------------------- offering recovery
 
 def _answer(parent, rec: Recoverable) -> str:
@@ -275,6 +301,7 @@ def _answer(parent, rec: Recoverable) -> str:
     box = QMessageBox(parent)
     box.setIcon(QMessageBox.Icon.Question)
     box.setWindowTitle("Restore unsaved work?")
+    box.setTextFormat(Qt.TextFormat.PlainText)  # the name comes from the file
     box.setText(f"OrbitDesk did not close normally last time.\n\nUnsaved work on “{rec.name}” "
                 f"from {when} was kept.{where}")
     box.setInformativeText("Restore it now? If you discard it, it cannot be brought back.")
@@ -299,10 +326,12 @@ def offer_recovery(window, directory: Path | None = None) -> bool:
     try:
         project = rec.load()
     except ProjectError as e:
-        QMessageBox.warning(window, "Could not restore", f"The saved work could not be read: {e.message}")
+        plain_message(window, "warning", "Could not restore", f"The saved work could not be read: {e.message}")
         return False
     original = rec.original_path if rec.original_path is not None and rec.original_path.exists() else None
-    window.session.load_project(project, original)
+    # saving the restored work checks that the original was not changed since the crashed session read it
+    window.session.load_project(project, original, rec.original_state if original is not None
+                                else core_project.UNCHECKED)
     window.session.mark_dirty()
     rec.discard()
     window.statusBar().showMessage(f"Restored unsaved work on “{project.name}”", 10_000)

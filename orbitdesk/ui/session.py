@@ -11,6 +11,7 @@ from __future__ import annotations
 import copy
 import dataclasses
 import math
+import os
 import time
 from pathlib import Path
 
@@ -18,6 +19,7 @@ import numpy as np
 from PySide6.QtCore import QObject, QTimer, Signal
 from PySide6.QtGui import QUndoCommand, QUndoStack
 
+from orbitdesk.core.families import with_structural_value
 from orbitdesk.core import project as core_project
 from orbitdesk.core.project import ParameterSetting, Project, ProjectError, SolverSettings
 
@@ -26,6 +28,7 @@ from .worker import JobRunner
 VALIDATE_DELAY_MS = 120
 TEXT_MERGE_SECONDS = 2.0     # typing pauses longer than this start a new undo step
 VALUE_MERGE_SECONDS = 1.5    # same for slider moves of one parameter
+clock = time.monotonic       # what undo merging reads (tests replace it to be independent of load)
 PROJECT_SUFFIXES = (".orbitdesk", ".json")
 SOLVER_FIELDS = tuple(f.name for f in dataclasses.fields(SolverSettings))
 
@@ -54,11 +57,16 @@ def read_document(path) -> tuple[Project, Path | None]:
 
     Raises ProjectError with a readable message for anything that cannot be opened.
     """
+    return read_document_with_state(path)[:2]
+
+
+def read_document_with_state(path) -> tuple[Project, Path | None, object]:
+    """``read_document`` plus what a project file was on disk (a DiskState; UNCHECKED for model text)."""
     from orbitdesk.core.model_file import read_model_file
 
     path = Path(path)
     if path.suffix.lower() in PROJECT_SUFFIXES:
-        return core_project.load(path), path
+        return _project_with_state(path)
     try:
         text = read_model_file(path)
     except FileNotFoundError:
@@ -68,8 +76,17 @@ def read_document(path) -> tuple[Project, Path | None]:
     except ValueError as e:
         raise ProjectError("$", str(e)) from None
     if text.lstrip().startswith("{"):
-        return core_project.load(path), path
-    return Project(name=path.stem or "Untitled", model=text.replace("\r\n", "\n")), None
+        return _project_with_state(path)
+    return Project(name=path.stem or "Untitled", model=text.replace("\r\n", "\n")), None, core_project.UNCHECKED
+
+
+def _same_path(a: Path, b: Path) -> bool:
+    return os.path.realpath(a) == os.path.realpath(b)
+
+
+def _project_with_state(path: Path) -> tuple[Project, Path, object]:
+    project, state = core_project.load_with_state(path)
+    return project, path, state
 
 
 # ---------------------------------------------------------------- undo commands
@@ -80,7 +97,7 @@ class _TextCommand(QUndoCommand):
     def __init__(self, session: "Session", old: str, new: str):
         super().__init__("Edit model")
         self.s, self.old, self.new = session, old, new
-        self.stamp = time.monotonic()
+        self.stamp = clock()
 
     def id(self):
         return self.ID
@@ -111,7 +128,7 @@ class _ValueCommand(QUndoCommand):
         what = "parameter" if table == "params" else "initial value"
         super().__init__(f"Change {what} {name}")
         self.s, self.table, self.name, self.old, self.new = session, table, name, old, new
-        self.stamp = time.monotonic()
+        self.stamp = clock()
 
     def id(self):
         return self.ID
@@ -164,7 +181,7 @@ class _SolverCommand(QUndoCommand):
     def __init__(self, session: "Session", old: SolverSettings, new: SolverSettings, keys: frozenset):
         super().__init__("Change solver settings")
         self.s, self.old, self.new, self.keys = session, old, new, keys
-        self.stamp = time.monotonic()
+        self.stamp = clock()
 
     def id(self):
         return self.ID
@@ -210,6 +227,7 @@ class Session(QObject):
         super().__init__(parent)
         self.project = Project()
         self.path: Path | None = None
+        self.disk_state = core_project.UNCHECKED  # what the file at ``path`` was when opened or last saved
         self.text = ""
         self.parsed = None
         self.system = None
@@ -311,6 +329,12 @@ class Session(QObject):
     def set_param(self, name: str, value: float) -> None:
         value = float(value)
         if self.params.get(name) == value:
+            return
+        parsed = self.parsed
+        if parsed is not None and name in parsed.structural and name in parsed.parameters:
+            # the size of a family: the model itself changes, so the new value goes into its line
+            self.set_text(with_structural_value(self.text, parsed.parameters[name].line, name, value))
+            self.validate_now()
             return
         self.undo_stack.push(_ValueCommand(self, "params", name, self.params.get(name, value), value))
 
@@ -593,13 +617,15 @@ class Session(QObject):
         proj.solver = copy.copy(self.solver)
         return proj
 
-    def load_project(self, project: Project, path=None) -> None:
-        """Replace the whole document (no undo); the model is parsed at once and compiled in the background."""
+    def load_project(self, project: Project, path=None, disk_state=core_project.UNCHECKED) -> None:
+        """Replace the whole document (no undo); the model is parsed at once and compiled in the background.
+        ``disk_state``: what the file at ``path`` held when read (saving checks it has not changed since)."""
         self.cancel_all()
         self._validate_timer.stop()
         project = copy.deepcopy(project)
         parsed = _parse(project.model)
         self.project, self.path = project, (Path(path) if path is not None else None)
+        self.disk_state = disk_state if path is not None else core_project.UNCHECKED
         self.text = project.model
         self._written_params = {n: float(i.value) for n, i in parsed.parameters.items()}
         self._written_ranges = {n: (i.lo, i.hi) for n, i in parsed.parameters.items()}
@@ -631,24 +657,34 @@ class Session(QObject):
         self.load_project(Project(), None)
 
     def open(self, path) -> None:
-        """Open a project or model text file; raises ProjectError and changes nothing if it cannot be read."""
-        proj, project_path = read_document(path)
-        self.load_project(proj, project_path)
+        """Open a project or model text file; raises ProjectError and changes nothing if it cannot be read.
+        Temporary files left beside a project by interrupted saves are cleaned up."""
+        proj, project_path, state = read_document_with_state(path)
+        if project_path is not None:
+            core_project.remove_stale_temps(project_path)
+        self.load_project(proj, project_path, state)
 
     def revert(self) -> None:
         if self.path is None:
             raise ProjectError("$", "this project has not been saved yet")
         self.open(self.path)
 
-    def save(self, path=None) -> Path:
-        """Save to ``path`` (default: the current path); raises ProjectError on failure."""
+    def save(self, path=None, *, overwrite: bool = False, overwrite_read_only: bool = False) -> Path:
+        """Save to ``path`` (default: the current path); raises ProjectError on failure.
+
+        Saving over the open file raises ProjectConflict if it changed on disk since it was opened or last
+        saved (another window or program wrote it), unless ``overwrite``; a read-only file raises
+        ProjectReadOnly unless ``overwrite_read_only`` (it stays read-only).
+        """
         target = Path(path) if path is not None else self.path
         if target is None:
             raise ProjectError("$", "no file name given")
         proj = self.to_project()
         if proj.name in ("", "Untitled"):
             proj.name = target.stem
-        core_project.save(target, proj)
+        same_file = self.path is not None and _same_path(target, self.path)
+        expected = self.disk_state if same_file and not overwrite else core_project.UNCHECKED
+        self.disk_state = core_project.save(target, proj, expected=expected, overwrite_read_only=overwrite_read_only)
         self.project.name = proj.name
         self.project.views = copy.deepcopy(proj.views)
         self.path = target

@@ -26,6 +26,7 @@ from orbitdesk.core.walkthrough import VIEW_IDS, apply_step, delete_step, move_s
 
 from . import views as views_pkg
 from .dock_layout import is_open, keep_side_widths, show_docks
+from .plain_text import rich_tip
 from .session import SOLVER_FIELDS
 
 EDIT_MERGE_SECONDS = 2.0
@@ -335,6 +336,7 @@ class WalkthroughPanel(QWidget):
         self.problems_label.setToolTip("Parts of this step that no longer fit the model; the rest was applied")
         self.problems_label.hide()
         self.missing_label = QLabel()
+        self.missing_label.setTextFormat(Qt.TextFormat.PlainText)  # view names come from the file
         self.missing_label.setWordWrap(True)
         self.missing_label.setStyleSheet("color: palette(placeholder-text);")
         self.missing_label.hide()
@@ -730,7 +732,7 @@ class WalkthroughPanel(QWidget):
             for i in range(len(self.steps)):
                 item = QListWidgetItem(self._item_text(i))
                 item.setData(Qt.ItemDataRole.UserRole, i)
-                item.setToolTip(self.steps[i].title)
+                item.setToolTip(rich_tip(self.steps[i].title))
                 self.step_list.addItem(item)
             if select is not None and 0 <= select < len(self.steps):
                 self.step_list.setCurrentRow(select)

@@ -17,7 +17,7 @@ from pathlib import Path
 import pytest
 
 import orbitdesk.core.project as pj
-from orbitdesk.core.project import ParameterSetting, Project, ProjectError, WalkthroughStep, dumps, load
+from orbitdesk.core.project import ParameterSetting, Project, ProjectError, WalkthroughStep, dumps, load, save
 
 KILLS = 200
 
@@ -125,5 +125,7 @@ def test_sigkill_during_save_never_leaves_a_partial_document(tmp_path):
     assert all(n.startswith(".kill.orbitdesk.") and n.endswith(".tmp") for n in leftovers), leftovers
     print(f"\nkill test: seed={seed} kills={KILLS} survived={KILLS} mid-save kills={mid_save} "
           f"saves completed={completed} orphaned temp files={len(leftovers)} time={elapsed:.1f}s")
+    save(target, docs["A"])  # the next save cleans up what the killed saves left (their pids are dead)
+    assert sorted(p.name for p in work.iterdir()) == [target.name, backup.name]
     assert seen == {"doc A", "doc B"}, f"seed={seed}: only {seen} ever seen on disk; test is not probing"
     assert mid_save >= KILLS // 2, f"seed={seed}: only {mid_save} kills landed inside save(); test is not probing"

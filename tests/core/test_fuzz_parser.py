@@ -106,10 +106,12 @@ def check_compiled(model) -> None:
 
 # ---------------------------------------------------------------- (a) arbitrary text
 
-MODEL_CHARS = "xyzvn t'()[]+-*/^=.,0123456789eE#\n\t abcsinpiqrt_"
+MODEL_CHARS = "xyzvn t'()[]+-*/^=.,0123456789eE#\n\t abcsinpiqrt_{}<>"
 odd_text = st.text(st.characters(codec=None, exclude_categories=()), max_size=400)
 model_like_text = st.lists(st.sampled_from(list(MODEL_CHARS) + ["**", "x' = ", "(0)", "[n+1]", "sin(", " in [",
-                                                               "\x00", "\r", "\u202e", "\ufffd", "é", "\u2032"]),
+                                                               "\x00", "\r", "\u202e", "\ufffd", "é", "\u2032",
+                                                               "_{i}", "_{i+1}", " for i in 1..", "..", "if(",
+                                                               " and ", " not ", "sum(", " j in ", "f(a, b) = "]),
                            max_size=120).map("".join)
 
 
@@ -146,6 +148,8 @@ def _extend(inner):
         st.builds(lambda a: f"({a})", inner),
         st.builds(lambda f, a: f"{f}({a})", st.sampled_from(UNARY), inner),
         st.builds(lambda f, a, b: f"{f}({a}, {b})", st.sampled_from(BINARY_FUNCS), inner, inner),
+        st.builds(lambda a, op, b, join, c, x, y: f"if({a} {op} {b} {join} not {c} < 1, {x}, {y})", inner,
+                  st.sampled_from(["<", "<=", ">", ">="]), inner, st.sampled_from(["and", "or"]), inner, inner, inner),
     )
 
 
@@ -276,3 +280,30 @@ def test_unmutated_lorenz_is_clean():
     check_compiled(model)
     assert apply_edits(LORENZ, [("insert", 0.0, "#", 1)]).startswith("##")
     assert math.isclose(compile_model(model).rhs(0.0, [1, 1, 1.05])[2], 1 - 8 / 3 * 1.05)
+
+
+# ---------------------------------------------------------------- (d) functions and families
+
+
+@st.composite
+def family_models(draw):
+    """A family of states with functions, sums, conditions and ring indices, in any line order."""
+    size = draw(st.integers(0, 6))
+    refs = ["x_{i}", "x_{i-1}", "x_{mod(i, N) + 1}", "c", "i", "N", "sat(x_{i})", "pull(x_{i}, c)",
+            "sum(x_{j}, j in 1..N)", "t", "x_{0}"]
+    body = bind(draw(expressions), refs)
+    lines = [f"N = {size}", "c = 0.5", "sat(u) = u/(1 + abs(u))", "pull(a, b) = -b*sat(a)",
+             f"x_{{i}}' = {body}   for i in {draw(st.sampled_from(['1', '0', '2']))}..N",
+             "x_{0} = 0", f"x_{{i}}(0) = {draw(numbers)}*i   for i in 1..N"]
+    order = draw(st.permutations(range(len(lines))))
+    return "\n".join(lines[i] for i in order)
+
+
+@budget(300)
+@given(family_models())
+def test_generated_family_models_parse_and_compile(text):
+    with hang_guard(text):
+        model = parse_model(text)
+        check_diagnostics(text, model)
+        if model.ok:
+            check_compiled(model)

@@ -33,6 +33,7 @@ class MessageBoxes:
 
     def __init__(self):
         self.calls = []
+        self.boxes = []  # the QMessageBox objects built by orbitdesk.ui.plain_text, to inspect
         self.answer = QMessageBox.StandardButton.Discard
 
     def ask(self, kind):
@@ -42,6 +43,10 @@ class MessageBoxes:
                 return self.answer
             return QMessageBox.StandardButton.Ok
         return box
+
+    def show(self, box, kind):
+        self.boxes.append(box)
+        return self.ask(kind)(box.parent(), box.windowTitle(), box.text())
 
     def texts(self, kind=None):
         return [t for k, _title, t in self.calls if kind is None or k == kind]
@@ -53,6 +58,9 @@ def message_boxes(monkeypatch):
     boxes = MessageBoxes()
     for kind in ("question", "warning", "critical", "information"):
         monkeypatch.setattr(QMessageBox, kind, staticmethod(boxes.ask(kind)))
+    from orbitdesk.ui import plain_text
+
+    monkeypatch.setattr(plain_text, "show_box", boxes.show)
     return boxes
 
 

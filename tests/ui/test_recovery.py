@@ -39,7 +39,8 @@ import json
 from PySide6.QtCore import QTimer
 from PySide6.QtWidgets import QMessageBox
 from orbitdesk.ui import app
-QMessageBox.question = staticmethod(lambda *a, **k: QMessageBox.StandardButton.Discard)
+from orbitdesk.ui import plain_text
+plain_text.show_box = lambda box, kind: QMessageBox.StandardButton.Discard  # "discard unsaved changes?"
 qapp, win = app.create(["orbitdesk"])
 s = win.session
 print("STATE", json.dumps({"text": s.text, "t_end": s.solver.t_end, "dirty": s.dirty,

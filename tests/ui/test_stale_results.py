@@ -8,6 +8,7 @@ from PySide6.QtCore import QThreadPool
 
 from orbitdesk.core.engine import simulate
 from orbitdesk.core.project import Project, SolverSettings
+from orbitdesk.ui import session as session_module
 
 from .conftest import wait_for_trajectory
 
@@ -41,6 +42,10 @@ def test_thousand_moves_show_only_the_final_value(qtbot, window, monkeypatch):
         return original_submit(key, *args, **kwargs)
 
     monkeypatch.setattr(s.jobs, "submit", counting_submit)
+    # undo merging reads a clock: one that ticks a millisecond per move keeps the 1,000 moves one quick
+    # drag however loaded the machine is
+    ticks = iter(range(10**9))
+    monkeypatch.setattr(session_module, "clock", lambda: next(ticks) * 1e-3)
     shown = []
     s.trajectoryChanged.connect(lambda t: shown.append(t.params["r"]))
 
