@@ -113,3 +113,12 @@ def load_model(qtbot, session, text, defaults, **solver):
     session.solver = SolverSettings(**{**defaults, **solver})
     return wait_for_trajectory(qtbot, session, lambda: session.load_project(
         Project(name="m", model=text, solver=session.solver)))
+
+
+def show_view(qtbot, view, size):
+    """Show a view widget at ``size`` and wait until it is on screen."""
+    qtbot.addWidget(view)
+    view.resize(*size)
+    view.show()
+    qtbot.waitExposed(view)
+    return view

@@ -214,6 +214,7 @@ def locus(system: CompiledSystem, kind: str, param: str, param2: str, lo: float,
     xs = np.array(curve.xs)
     special = []
     for s in curve.special:
+        s.x = np.where(np.abs(s.x) < 1e-13 * max(1.0, float(np.max(np.abs(s.x)))), 0.0, s.x) + 0.0
         special.append({"type": s.type, "values": {param: float(s.x[-1]), param2: float(s.x[-2])},
                         "state": {name: float(v) for name, v in zip(system.states, s.x[:funcs.n])}})
     report(1.0)

@@ -178,8 +178,8 @@ class Locus:
         curve = [{"values": {p1: float(self.values[0, i]), p2: float(self.values[1, i])},
                   "state": {s: float(self.points[k, i]) for k, s in enumerate(self.states)}}
                  for i in range(self.values.shape[1])]
-        return {"kind": self.kind, "curve": curve, "special": [dict(s) for s in self.special],
-                "ended": list(self.reasons)}
+        return {"kind": self.kind, "parameters": [p1, p2], "states": list(self.states), "curve": curve,
+                "special": [dict(s) for s in self.special], "ended": list(self.reasons)}
 
 
 @dataclass
@@ -202,10 +202,34 @@ class ResponseCurve:
                    "stable": self.stable[i],
                    "state": {s: float(self.points[k, i]) for k, s in enumerate(self.states)}}
                   for i in range(len(self.values))]
-        data = {"parameter": self.parameter, "observe": self.observe, "points": points,
+        data = {"parameter": self.parameter, "observe": self.observe, "states": list(self.states), "points": points,
                 "special": [s.to_dict() for s in self.special]}
         if self.stepped:
             data["stepped"] = self.stepped
         if self.reasons:
             data["ended"] = list(self.reasons)
         return data
+
+
+def response_from_saved(data: dict) -> ResponseCurve:
+    """A ResponseCurve from its ``to_dict`` form (as a project keeps it)."""
+    points = data["points"]
+    states = [str(s) for s in data["states"]] if "states" in data else sorted(points[0]["state"]) if points else []
+    special = [Special(str(s["type"]), float(s["value"]), {k: float(v) for k, v in s.get("state", {}).items()},
+                       amplitude=s.get("amplitude")) for s in data.get("special", [])]
+    return ResponseCurve(str(data["parameter"]), str(data["observe"]), np.array([float(p["value"]) for p in points]),
+                         np.array([float(p["amplitude"]) for p in points]),
+                         [p.get("stable") if p.get("stable") in (True, False) else None for p in points], states,
+                         np.array([[float(p["state"][s]) for p in points] for s in states]).reshape(len(states), -1),
+                         special, [str(r) for r in data.get("ended", [])], data.get("stepped"))
+
+
+def locus_from_saved(data: dict) -> Locus:
+    """A Locus from its ``to_dict`` form plus "parameters" and "states" (as a project keeps it)."""
+    p1, p2 = (str(n) for n in data["parameters"])
+    states = [str(s) for s in data["states"]]
+    curve = data["curve"]
+    values = np.array([[float(c["values"][p1]) for c in curve], [float(c["values"][p2]) for c in curve]])
+    points = np.array([[float(c["state"][s]) for c in curve] for s in states]).reshape(len(states), -1)
+    return Locus(str(data["kind"]), (p1, p2), states, values, points, [dict(s) for s in data.get("special", [])],
+                 [str(r) for r in data.get("ended", [])])

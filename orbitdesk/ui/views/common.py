@@ -219,6 +219,15 @@ def control_row(*items, spacing: int = 4, stretch: bool = True) -> QHBoxLayout:
     return row
 
 
+def fill_default_range(session, name: str, lo_box, hi_box) -> None:
+    """Put the slider range of parameter ``name`` (around its value) into two number boxes."""
+    from orbitdesk.ui.parameters import slider_range
+
+    lo, hi = slider_range(session.params.get(name, 0.0), *session.param_range(name))
+    lo_box.setValue(lo)
+    hi_box.setValue(hi)
+
+
 def row_widget(*items, spacing: int = 4) -> QWidget:
     """``control_row`` in a widget of its own (a page of a QStackedWidget)."""
     widget = QWidget()

@@ -18,8 +18,8 @@ from PySide6.QtWidgets import QLabel, QSpinBox, QStackedWidget, QWidget
 from . import muted_colour, series_colour, style_plot
 from ..plot_style import JobStrip, NumberBox, number_text
 from .common import (SessionView, apply_numbers, check_box, clicked_point, combo_box, control_row,
-                     direction_combo, fill_combo, follow_forcing_period, is_number, push_button, put_through_orbit,
-                     quiet, row_widget, select_text, status_label)
+                     direction_combo, fill_combo, fill_default_range, follow_forcing_period, is_number,
+                     push_button, put_through_orbit, quiet, row_widget, select_text, status_label)
 
 PLANE, STROBE, MAXIMA, ITERATE = "plane", "strobe", "maxima", "iterate"
 FLOW_MODES = (MAXIMA, STROBE, PLANE)
@@ -335,11 +335,7 @@ class SweepView(SessionView):
         if not name or self.system is None:
             return
         if self._range_for != name:
-            from orbitdesk.ui.parameters import slider_range
-
-            lo, hi = slider_range(self.session.params.get(name, 0.0), *self.session.param_range(name))
-            self.lo.setValue(lo)
-            self.hi.setValue(hi)
+            fill_default_range(self.session, name, self.lo, self.hi)
             self._range_for = name
         self.plot.setLabel("bottom", name)
         self.lyap_plot.setLabel("bottom", name)
