@@ -166,15 +166,10 @@ class BifurcationView(SessionView):
              "to": float(self.hi.value()), "measure": self.measure.currentText(), "overlay": self.overlay.isChecked(),
              "stepped": self.stepped_box.isChecked(), "locus_kind": self.locus_kind.currentText(),
              "param2": self.param2.currentText(), "from2": float(self.lo2.value()), "to2": float(self.hi2.value()),
-             "tab": self.tabs.currentIndex()}
-        if self.branches:
-            d["branches"] = [b.to_saved() for b in self.branches]
-        if self.response is not None:
-            d["response"] = self.response.to_dict()
-        if self.stepped:
-            d["stepped_sweeps"] = [c.to_dict() for c in self.stepped]
-        if self.locus_result is not None:
-            d["locus"] = self.locus_result.to_dict()
+             "tab": self.tabs.currentIndex(), "branches": [b.to_saved() for b in self.branches],
+             "response": self.response.to_dict() if self.response is not None else {},
+             "stepped_sweeps": [c.to_dict() for c in self.stepped],
+             "locus": self.locus_result.to_dict() if self.locus_result is not None else {}}
         return d
 
     def apply_view_settings(self, d: dict) -> None:
@@ -245,6 +240,7 @@ class BifurcationView(SessionView):
             return ("branches", result, None)
 
         self.info.setText("")
+        self.begin_computing(skip=name)
         self.strip.what = f"Following {FOLLOW_LABELS[mode]} in {name}"
         self.strip.run("bifurcation", job, self._adopt, on_error=lambda m: None)
 
@@ -281,16 +277,26 @@ class BifurcationView(SessionView):
         else:
             self.branches, self.response, self.stepped = list(result.branches), None, []
             self.notes = list(result.notes)
+        if kind != "locus":
+            self.shown_computed()
         self._fill_measures()
         self._redraw()
         self.resultChanged.emit()
         self.session.mark_dirty()  # the branches are kept in the project
+
+    def values_now(self, skip=None) -> dict:
+        """Branches do not depend on the initial state (it only picks where the search starts), so a
+        click that moves the state onto a branch does not make them stale."""
+        values = super().values_now(skip)
+        values["initial"] = None
+        return values
 
     # ------------------------------------------------------------ session events
     def _on_project_loaded(self) -> None:
         self.system = None
         self.branches, self.response, self.stepped, self.locus_result = [], None, [], None
         self._range_for = None
+        self.shown_nothing()
         self.apply_view_settings(self.saved_view_settings())
 
     def _on_system(self, system) -> None:
@@ -299,6 +305,7 @@ class BifurcationView(SessionView):
         if old is not None and (list(old.parameters) != list(system.parameters)
                                 or list(old.states) != list(system.states)):
             self.branches, self.response, self.stepped, self.locus_result = [], None, [], None
+            self.shown_nothing()
         keep = (self.parameter.currentText(), self.param2.currentText(), self.follow_mode())
         forced = system.kind != "map" and not system.autonomous
         with quiet(self.parameter, self.param2, self.follow):
@@ -348,10 +355,10 @@ class BifurcationView(SessionView):
         self.branches, self.response, self.stepped, self.locus_result = [], None, [], None
         try:
             self.branches = [Branch.from_saved(b) for b in d.get("branches", [])]
-            if isinstance(d.get("response"), dict):
+            if isinstance(d.get("response"), dict) and d["response"]:
                 self.response = response_from_saved(d["response"])
             self.stepped = [response_from_saved(c) for c in d.get("stepped_sweeps", [])]
-            if isinstance(d.get("locus"), dict):
+            if isinstance(d.get("locus"), dict) and d["locus"]:
                 self.locus_result = locus_from_saved(d["locus"])
         except (KeyError, TypeError, ValueError, AttributeError, IndexError):
             self.branches, self.response, self.stepped, self.locus_result = [], None, [], None
