@@ -48,13 +48,52 @@ def sample(file, name, model, solver, views, notes, steps):
         initial=initial, solver=SolverSettings(**solver), views=views, walkthrough=walkthrough, notes=notes)
 
 
+def bifurcation_view(model, param, lo, hi, follow="steady", measure=None, values=None, locus=None):
+    """The bifurcation view's settings with its branches computed now (core.continuation), so the sample
+    opens with the diagram drawn. ``locus``: (kind, second parameter, lo2, hi2) for the second tab."""
+    from orbitdesk.core.continuation import steady_branches
+    from orbitdesk.core.continuation.cycles import cycles_from_hopf_points
+    from orbitdesk.core.continuation.loci import locus as follow_locus
+    from orbitdesk.core.continuation.response import response_curve, stepped_sweep
+    from orbitdesk.core.system import compile_model
+
+    system = compile_model(model)
+    p = system.param_vector(values or {})
+    view = {"follow": follow, "parameter": param, "from": lo, "to": hi, "measure": measure or system.states[0],
+            "overlay": False, "stepped": follow == "response", "locus_kind": "fold", "param2": "", "from2": 0.0,
+            "to2": 1.0, "tab": 0, "branches": [], "response": {}, "stepped_sweeps": [], "locus": {}}
+    if follow == "response":
+        view["response"] = response_curve(system, param, lo, hi, p, measure).to_dict()
+        view["stepped_sweeps"] = [stepped_sweep(system, param, lo, hi, d, 41, p, measure).to_dict()
+                                  for d in ("up", "down")]
+    else:
+        result = steady_branches(system, param, lo, hi, p)
+        if follow == "cycles":
+            result = cycles_from_hopf_points(system, result, lo, hi, p)
+        view["branches"] = [b.to_saved() for b in result.branches]
+    if locus is not None:
+        kind, name2, lo2, hi2 = locus
+        view.update(locus_kind="fold" if kind == "fold" else "Hopf", param2=name2, from2=lo2, to2=hi2, tab=1)
+        view["locus"] = follow_locus(system, kind, param, name2, lo, hi, p, range2=(lo2, hi2)).to_dict()
+    return _rounded(view)
+
+
+def _rounded(value, digits=10):
+    """Numbers to ``digits`` significant digits: the stored branches stay exact enough and the file small."""
+    if isinstance(value, float):
+        return float(f"{value:.{digits}g}")
+    if isinstance(value, dict):
+        return {k: _rounded(v, digits) for k, v in value.items()}
+    if isinstance(value, list):
+        return [_rounded(v, digits) for v in value]
+    return value
+
+
 # ---------------------------------------------------------------- a shaken beam with two rest positions
 
 FORCING_PERIOD = 2 * math.pi / 1.2
 
-SHAKEN_BEAM = sample(
-    "shaken_beam.orbitdesk", "Shaken beam with two rest positions",
-    """\
+BEAM_MODEL = """\
 # A thin steel strip stands upright in a clamp, between two magnets. It cannot stay straight:
 # it leans against one magnet or the other. A shaker moves the clamp from side to side.
 # x is the sideways deflection of the tip, scaled so that the two rest positions are x = -1
@@ -70,7 +109,12 @@ x(0) = 1
 x'(0) = 0
 
 energy = x'^2/2 - x^2/2 + x^4/4     # motion plus magnetic energy: -1/4 at rest on a magnet, 0 on the hump
-""",
+"""
+BEAM_RESPONSE = bifurcation_view(BEAM_MODEL, "omega", 0.8, 1.8, "response", "x",
+                                 {"delta": 0.1, "gamma": 0.05, "omega": 1.2})
+
+SHAKEN_BEAM = sample(
+    "shaken_beam.orbitdesk", "Shaken beam with two rest positions", BEAM_MODEL,
     dict(method="dop853", t_end=400.0, samples=16000, rtol=1e-9, atol=1e-11),
     {"timeseries": {"series": ["x"]}, "phase_plane": {"x": "x", "y": "x'"},
      "sections": {"kind": "strobe", "period": round(FORCING_PERIOD, 6), "count": 600, "transient": 60.0},
@@ -129,6 +173,21 @@ energy = x'^2/2 - x^2/2 + x^4/4     # motion plus magnetic energy: -1/4 at rest 
          "3. a smeared band from about 0.30: chaos, first around one magnet, then across both;\n"
          "4. a clear gap near 0.35 to 0.38 where five dots return: a periodic *window* inside the chaos.",
          {"parameters": {"gamma": 0.5}, "open_views": ["sweep"]}),
+        ("Turning the shaking frequency: where the wobble jumps",
+         "Back to a gentle shake (`gamma = 0.05`) with less damping (`delta = 0.1`), and now the "
+         "*frequency* `omega` moves. The bifurcation diagram shows the **frequency-response curve**: "
+         "half the swing of `x` in the steady wobble, for each `omega` from 0.8 to 1.8.\n\n"
+         "Near the magnet the strip is a softening spring, so the peak leans to the left: its top is the "
+         "**fold** at about `omega = 1.238`, and a second fold sits at about `1.294`. Between them there are "
+         "three wobbles: a small and a large one, both stable (solid), and an unstable one between them "
+         "(dashed).\n\n"
+         "The triangles are what a test rig shows when the frequency is stepped slowly, each value "
+         "starting from the last one's motion. Going up (△) the strip keeps the small wobble until the "
+         "fold at 1.294 and then *jumps* to the large one; going down (▽) it rides the large wobble up to "
+         "the peak at 1.238 and then drops. Between the folds the answer depends on the way you came: "
+         "**hysteresis**.",
+         {"parameters": {"gamma": 0.05, "delta": 0.1, "omega": 1.2}, "initial": {"x": 1.0, "x'": 0.0},
+          "open_views": ["bifurcation", "timeseries"], "views": {"bifurcation": BEAM_RESPONSE}}),
     ])
 
 # ---------------------------------------------------------------- a heated convection loop
@@ -265,9 +324,7 @@ x'(0) = 0
 
 # ---------------------------------------------------------------- a chemical clock
 
-CLOCK_REACTION = sample(
-    "clock_reaction.orbitdesk", "Chemical clock in a stirred beaker",
-    """\
+CLOCK_MODEL = """\
 # A stirred beaker is fed steadily with two reagents and the used liquid drains away. Two short-lived
 # substances form inside; an indicator shows their balance as a colour. The beaker may settle to one
 # steady colour, or flash back and forth like a clock.
@@ -282,7 +339,11 @@ y' = b*x - x^2*y
 
 x(0) = 1.5
 y(0) = 1
-""",
+"""
+CLOCK_BRANCHES = bifurcation_view(CLOCK_MODEL, "b", 0.5, 3.5, "cycles", "x", {"a": 1.0})
+
+CLOCK_REACTION = sample(
+    "clock_reaction.orbitdesk", "Chemical clock in a stirred beaker", CLOCK_MODEL,
     dict(method="dop853", t_end=60.0, samples=6000),
     {"timeseries": {"series": ["x", "y"]}, "phase_plane": {"x": "x", "y": "y"}, "equilibria": {},
      "sweep": {"parameter": "b", "from": 1.0, "to": 3.0, "count": 121, "observe": "x", "mode": "maxima",
@@ -316,6 +377,17 @@ y(0) = 1
          "With more of the first reagent, `a = 1.5`, the threshold moves up to `1 + 1.5^2 = 3.25`. "
          "The same feed `b = 2.5` that ticked before now settles to a steady colour again.",
          {"parameters": {"a": 1.5, "b": 2.5}, "open_views": ["timeseries", "equilibria"]}),
+        ("The Hopf point, located",
+         "The bifurcation diagram follows the steady state as the feed `b` goes from 0.5 to 3.5 "
+         "(`a = 1`), and the cycle born where it loses stability. The table lists one **Hopf** point, "
+         "at `b = 2` exactly, with frequency 1 (period `2 pi`): both as the formulas say.\n\n"
+         "Its *first Lyapunov coefficient* is negative, so the onset is **soft**: just past `b = 2` the "
+         "cycle is tiny and grows steadily with the feed (the two violet curves are the lowest and "
+         "highest `x` on the cycle). No jump, and no hysteresis: turning the feed back down shrinks the "
+         "ticking smoothly to nothing.\n\n"
+         "Click a branch to set the feed there and see the run.",
+         {"parameters": {"a": 1.0, "b": 2.5}, "open_views": ["bifurcation", "timeseries"],
+          "views": {"bifurcation": CLOCK_BRANCHES}}),
     ])
 
 # ---------------------------------------------------------------- predators and prey in a pond
@@ -507,8 +579,78 @@ energy = theta'^2/2 + (g/L)*(1 - cos(theta))    # per unit of mass times L^2; 0 
           "views": {"timeseries": {"series": ["theta", "energy"]}}}),
     ])
 
+# ---------------------------------------------------------------- a tank that ignites and goes out
+
+TANK_MODEL = """\
+# An insulated, stirred tank is fed with a dilute solution of a compound that breaks down and gives
+# off heat; the warmer the liquid, the faster it breaks down. A pump sets how long the liquid stays.
+# c: share of the compound broken down in the tank (0 to 1); T: how much warmer the tank is than the feed (scaled)
+# stay: time the liquid stays in the tank, in units of the break-down time at feed temperature
+# heat: the temperature rise if all of it broke down
+# Exothermic stirred-tank reactor (Uppal, Ray and Poore 1974), large activation energy, no cooling
+
+stay = 0.05 in [0, 0.15]
+heat = 6 in [2, 10]
+
+c' = -c + stay*(1 - c)*exp(T)
+T' = -T + heat*stay*(1 - c)*exp(T)
+
+c(0) = 0
+T(0) = 0
+"""
+TANK_BRANCHES = bifurcation_view(TANK_MODEL, "stay", 0.0, 0.15, "steady", "T", {"stay": 0.05})
+TANK_LOCUS = bifurcation_view(TANK_MODEL, "stay", 0.0, 0.15, "steady", "T", {"stay": 0.05},
+                              locus=("fold", "heat", 2.0, 10.0))
+
+STIRRED_TANK = sample(
+    "stirred_tank.orbitdesk", "A stirred tank that ignites and goes out", TANK_MODEL,
+    dict(method="dop853", t_end=30.0, samples=3000),
+    {"timeseries": {"series": ["T"]}, "phase_plane": {"x": "c", "y": "T"}, "equilibria": {},
+     "bifurcation": TANK_BRANCHES},
+    "Two steady states and hysteresis: the tank lights up at one pump setting and goes out at another.",
+    [
+        ("A fast feed: the tank stays cool",
+         "The liquid stays only `stay = 0.03` (in units of the break-down time at feed temperature). "
+         "Little of the compound breaks down before it is pumped out, little heat is given off, and the "
+         "tank settles a bit above the feed temperature: `T` about 0.2.",
+         {"parameters": {"stay": 0.03}, "initial": {"c": 0.0, "T": 0.0},
+          "open_views": ["timeseries", "phase_plane"]}),
+        ("A slower feed: it lights up",
+         "Slow the pump so that the liquid stays `0.08`. At first the tank warms a little, as before; "
+         "then the warmth speeds up the break-down, which gives more heat, and `T` shoots up to about 5.8: "
+         "the tank has **ignited**. Nearly all the compound now breaks down (`c` near 1).",
+         {"parameters": {"stay": 0.08}, "initial": {"c": 0.0, "T": 0.0},
+          "open_views": ["timeseries", "phase_plane"]}),
+        ("Back to a faster feed: it stays hot",
+         "Now speed the pump up again to `stay = 0.05`, starting from the hot tank. It does *not* go back "
+         "to the cool state: it stays hot. Start the same setting from a cold tank (step 1's start) and it "
+         "stays cool. At `stay = 0.05` the tank has **two stable steady states**; where it ends up depends "
+         "on its history. The equilibria view lists three: cool and hot are stable nodes, the one between "
+         "is a saddle, the watershed between them.",
+         {"parameters": {"stay": 0.05}, "initial": {"c": 0.8, "T": 4.8},
+          "open_views": ["timeseries", "phase_plane", "equilibria"]}),
+        ("The S-shaped curve",
+         "The bifurcation diagram follows the steady temperature as `stay` goes from 0 to 0.15. It is an "
+         "S: solid where the state is stable, dashed in the middle where it is not. The two **fold** "
+         "points are where a stable state meets the unstable one and vanishes:\n\n"
+         "- at `stay = 0.0754` the cool state ends: a tank fed more slowly than this **ignites**;\n"
+         "- at `stay = 0.0329` the hot state ends: a hot tank fed faster than this **goes out**.\n\n"
+         "Between the folds the tank remembers where it came from: **hysteresis**. For this model the folds "
+         "sit where `T^2 - heat T + heat = 0`, at `T = 3 ± sqrt(3)` for `heat = 6`. Click the diagram to "
+         "set `stay` and the state there.",
+         {"parameters": {"stay": 0.05}, "initial": {"c": 0.8, "T": 4.8},
+          "open_views": ["bifurcation", "timeseries"], "views": {"bifurcation": TANK_BRANCHES}}),
+        ("When is there hysteresis at all?",
+         "The second tab follows the two folds as the heat of break-down changes too. They trace two curves "
+         "in the (`stay`, `heat`) plane that meet in a **cusp** at `heat = 4`. Inside the wedge the tank has "
+         "two stable steady states and can ignite and go out at different feeds; below `heat = 4` there is "
+         "one steady state for every feed, and the temperature rises smoothly as the pump slows.",
+         {"parameters": {"stay": 0.05}, "initial": {"c": 0.8, "T": 4.8},
+          "open_views": ["bifurcation"], "views": {"bifurcation": TANK_LOCUS}}),
+    ])
+
 SAMPLES = [SHAKEN_BEAM, CONVECTION_LOOP, RELAXATION_CIRCUIT, CLOCK_REACTION, POND_PREDATORS,
-           INSECT_GENERATIONS, PENDULUM]
+           INSECT_GENERATIONS, PENDULUM, STIRRED_TANK]
 
 
 def main(argv=None) -> int:

@@ -15,7 +15,7 @@ from orbitdesk.core.walkthrough import apply_step
 
 SAMPLES = Path(__file__).resolve().parents[2] / "sample_projects"
 NAMES = ["shaken_beam", "convection_loop", "relaxation_circuit", "clock_reaction", "pond_predators",
-         "insect_generations", "pendulum"]
+         "insect_generations", "pendulum", "stirred_tank"]
 
 
 def load(name):

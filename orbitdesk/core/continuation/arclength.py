@@ -68,6 +68,8 @@ def newton_bordered(problem, x_pred, tangent, settings: StepSettings, anchor=Non
     anchor = x_pred if anchor is None else anchor
     x = np.array(x_pred, dtype=float)
     scale = 1.0 + float(np.linalg.norm(x))
+    # problems whose residual comes from an integration set a looser tolerance (``problem.tolerance``)
+    tolerance = max(settings.tolerance, getattr(problem, "tolerance", 0.0))
     last = math.inf
     for it in range(1, settings.max_iterations + 1):
         try:
@@ -85,7 +87,7 @@ def newton_bordered(problem, x_pred, tangent, settings: StepSettings, anchor=Non
             return None, it
         x = x + dx
         last = size
-        if size <= settings.tolerance * scale:
+        if size <= tolerance * scale:
             try:
                 ok = np.all(np.isfinite(problem.residual(x)))
             except ContinuationError:
@@ -190,7 +192,8 @@ def _one_direction(problem, x0, t0, lo, hi, settings, cancel, report):
                 point.index = len(xs)
                 found.append(point)
         if hasattr(problem, "accept"):
-            problem.accept(x_new)
+            problem.accept(x_new)  # the problem may change (a phase condition's reference): its tangent too
+            t_new = _or(tangent_at(problem, x_new, t_new), t_new)
         p_new = x_new[-1]
         if p_new < lo or p_new > hi:
             end = lo if p_new < lo else hi
@@ -226,6 +229,10 @@ def _one_direction(problem, x0, t0, lo, hi, settings, cancel, report):
         if turn > 0.5 * settings.max_turn:
             ds = max(ds * 0.7, settings.ds_min)
     return xs, ts, ds_list, found, reason
+
+
+def _or(value, fallback):
+    return fallback if value is None else value
 
 
 def _at_parameter(problem, x_in, x_out, end, settings):

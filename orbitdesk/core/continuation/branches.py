@@ -69,6 +69,7 @@ def steady_branches(system: CompiledSystem, param: str, lo: float, hi: float, p=
         problem = _problem(funcs, pv, k, K)
         x0 = np.append(np.asarray(u, dtype=float), pv[k]) if tangent is None else u
         if tangent is None:
+            _scale_steps(settings, lo, hi, x0)
             x0, tangent = _first_point(problem, x0, settings)
             if x0 is None:
                 notes.append("a start point could not be corrected onto its branch")
@@ -89,6 +90,13 @@ def steady_branches(system: CompiledSystem, param: str, lo: float, hi: float, p=
         notes.append(f"stopped after {MAX_BRANCHES} branches")
     report(1.0)
     return BranchSet(param, branches, notes)
+
+
+def _scale_steps(settings, lo, hi, x0):
+    """Longest step from the larger of the interval and the state's size: a branch that travels far in
+    the state while the parameter moves little (an S-shaped branch) then needs no more points."""
+    size = 1.0 + float(np.max(np.abs(x0[:-1]), initial=0.0))
+    settings.ds_max = max(settings.ds_max, max(abs(hi - lo), size) / 40)
 
 
 def _problem(funcs, pv, k, K):

@@ -36,6 +36,8 @@ SAMPLES = 200  # points per orbit for the maxima and minima
 
 
 class CycleProblem:
+    tolerance = 1e-8  # the residual is integrated to rtol 1e-10; near a Hopf point the system is ill-conditioned
+
     def __init__(self, funcs: ModelFunctions, p_vector, k: int, u_ref, max_period: float):
         self.funcs, self.n, self.k = funcs, funcs.n, k
         self.p_vector = np.array(p_vector, dtype=float)

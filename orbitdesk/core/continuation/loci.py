@@ -201,8 +201,9 @@ def locus(system: CompiledSystem, kind: str, param: str, param2: str, lo: float,
         x0 = np.concatenate([u, v, [omega ** 2, pv[k2], start.value]])
         problem = HopfLocus(funcs, pv, k1, k2, v)
     problem.range2 = _range2(system, param2, pv[k2], range2)
-    settings = settings or StepSettings(ds=abs(hi - lo) / 200, ds_min=abs(hi - lo) * 1e-9, ds_max=abs(hi - lo) / 30,
-                                        max_points=300)
+    size = max(abs(hi - lo), 1.0 + float(np.max(np.abs(x0[:funcs.n]))), abs(problem.range2[1] - problem.range2[0]))
+    settings = settings or StepSettings(ds=abs(hi - lo) / 200, ds_min=abs(hi - lo) * 1e-9,
+                                        ds_max=max(abs(hi - lo) / 30, size / 40), max_points=300)
     fixed = np.zeros(len(x0))
     fixed[-2] = 1.0
     x0c, _ = newton_bordered(problem, x0, fixed, settings)

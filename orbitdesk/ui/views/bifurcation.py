@@ -46,6 +46,12 @@ def stable_runs(values, measure, stable):
     return runs
 
 
+def _label_anchor(x, span):
+    """Labels right of a point in the left part of the plot, left of it in the right part (never clipped)."""
+    lo, hi = span
+    return (1.1, 1.1) if x > lo + 0.7 * (hi - lo) else (-0.15, 1.1)
+
+
 def _same_place(a, b) -> bool:
     """Two special points at one parameter value and state (found on two branches through it)."""
     scale = 1.0 + abs(a.value) + sum(abs(v) for v in a.state.values())
@@ -69,6 +75,7 @@ class BifurcationView(SessionView):
         self._wanted = None
         self._range_for = None
         self._specials = []  # (Special, Branch or None) in table order
+        self._shown_request = None  # (follow, parameter, from, to, stepped) of the branches shown
 
         # ---- one-parameter controls
         self.follow = combo_box("What to follow: the steady states (equilibria of a flow, fixed points of a map), "
@@ -96,7 +103,7 @@ class BifurcationView(SessionView):
         self.plot_widget.scene().sigMouseClicked.connect(self._on_click)
         self.marker = pg.InfiniteLine(angle=90, movable=False)
         self.plot.addItem(self.marker, ignoreBounds=True)
-        self.legend = self.plot.addLegend(offset=(8, 8))
+        self.legend = self.plot.addLegend(offset=(-8, 8))
         self.table = QTableWidget(0, 4)
         self.table.setHorizontalHeaderLabels(["Point", "At", "State", "What it means"])
         self.table.verticalHeader().setVisible(False)
@@ -181,8 +188,17 @@ class BifurcationView(SessionView):
         if isinstance(d.get("tab"), int) and 0 <= d["tab"] < self.tabs.count():
             self.tabs.setCurrentIndex(d["tab"])
         self._restore_results(d)
+        if self.branches or self.response is not None:
+            # stored branches are shown as they are: they were computed for the values set with them
+            self._shown_request = (d.get("follow"), d.get("parameter"), d.get("from"), d.get("to"),
+                                   bool(d.get("stepped", True)))
+            self.begin_computing(skip=d.get("parameter"))
+            self.shown_computed()
         if self.system is not None:
             self._apply_wanted()
+            self._fill_measures()
+            select_text(self.measure, d.get("measure"))
+            self._redraw()
 
     def export_data(self):
         """Every point of every branch: branch number, parameter, state, stability."""
@@ -202,7 +218,16 @@ class BifurcationView(SessionView):
         text = self.follow.currentText()
         return next((k for k, v in FOLLOW_LABELS.items() if v == text), STEADY)
 
+    def request(self) -> tuple:
+        """What Compute would follow: (follow, parameter, from, to, stepped)."""
+        return (self.follow_mode(), self.parameter.currentText(), float(self.lo.value()), float(self.hi.value()),
+                self.stepped_box.isChecked())
+
     def compute(self) -> None:
+        """Follow the branches for the controls' settings (nothing to do when they are shown already)."""
+        if (self.branches or self.response is not None) and self._shown_request == self.request() \
+                and not self.is_stale():
+            return
         s = self.system
         if s is None or not s.parameters:
             self.info.setText("The model has no parameter to follow" if s is not None else "No model yet")
@@ -240,6 +265,7 @@ class BifurcationView(SessionView):
             return ("branches", result, None)
 
         self.info.setText("")
+        self._pending_request = self.request()
         self.begin_computing(skip=name)
         self.strip.what = f"Following {FOLLOW_LABELS[mode]} in {name}"
         self.strip.run("bifurcation", job, self._adopt, on_error=lambda m: None)
@@ -278,6 +304,7 @@ class BifurcationView(SessionView):
             self.branches, self.response, self.stepped = list(result.branches), None, []
             self.notes = list(result.notes)
         if kind != "locus":
+            self._shown_request = getattr(self, "_pending_request", None)
             self.shown_computed()
         self._fill_measures()
         self._redraw()
@@ -504,7 +531,7 @@ class BifurcationView(SessionView):
             if key in labelled:
                 continue
             labelled.add(key)
-            text = pg.TextItem(s.label, color=text_colour, anchor=(-0.15, 1.1))
+            text = pg.TextItem(s.label, color=text_colour, anchor=_label_anchor(s.value, self._x_span()))
             text.setPos(s.value, y)
             self.plot.addItem(text)
 
@@ -562,13 +589,20 @@ class BifurcationView(SessionView):
             symbol_colour = series_colour(SYMBOL_COLOUR.get(s["type"], 1), self)
             self.locus_plot.addItem(pg.ScatterPlotItem([x], [y], symbol=SYMBOLS.get(s["type"], "o"), size=13,
                                                        pen=pg.mkPen(symbol_colour), brush=pg.mkBrush(symbol_colour)))
-            label = pg.TextItem(LABELS.get(s["type"], s["type"]), color=text_colour, anchor=(-0.15, 1.1))
+            span = (float(np.min(L.values[0])), float(np.max(L.values[0])))
+            label = pg.TextItem(LABELS.get(s["type"], s["type"]), color=text_colour, anchor=_label_anchor(x, span))
             label.setPos(x, y)
             self.locus_plot.addItem(label)
             cells = [LABELS.get(s["type"], s["type"]), f"{p1} = {x:.8g}, {p2} = {y:.8g}", meanings.get(s["type"], "")]
             for col, text in enumerate(cells):
                 self.locus_table.setItem(row, col, QTableWidgetItem(text))
         self.locus_table.resizeColumnsToContents()
+
+    def _x_span(self) -> tuple[float, float]:
+        values = [b.values for b in self.branches] + ([self.response.values] if self.response is not None else [])
+        if not values:
+            return (0.0, 1.0)
+        return (min(float(np.min(v)) for v in values), max(float(np.max(v)) for v in values))
 
     def _x_name(self) -> str:
         if self.branches:
@@ -684,6 +718,9 @@ class BifurcationView(SessionView):
     # ------------------------------------------------------------ look
     def _restyle(self) -> None:
         style_plot(self.plot_widget, self)
+        back = self.palette().color(self.backgroundRole())
+        back.setAlpha(215)
+        self.legend.setBrush(pg.mkBrush(back))
         style_plot(self.locus_widget, self)
         accent = muted_colour(self)
         self.marker.setPen(pg.mkPen(accent, width=1, style=Qt.PenStyle.DotLine))
