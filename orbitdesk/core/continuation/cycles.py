@@ -33,6 +33,7 @@ from .points import map_stability, pair_product
 from .results import CYCLE, CYCLE_FOLD, HOPF, PERIOD_DOUBLING, TORUS, Branch, BranchSet
 
 SAMPLES = 200  # points per orbit for the maxima and minima
+SHRUNK = 2e-3  # a cycle smaller than this (relative to the state's size) has shrunk to an equilibrium
 
 
 class CycleProblem:
@@ -95,7 +96,12 @@ class CycleProblem:
         _, orbit = self.funcs.orbit(x[:self.n], self.params(x), 0.0, float(x[-2]), SAMPLES)
         data["max"] = np.array([extreme(row, max) for row in orbit])
         data["min"] = np.array([extreme(row, min) for row in orbit])
+        self._size = float(np.max(data["max"] - data["min"]))
         return data
+
+    def shrunk(self, x) -> bool:
+        """Whether the last described cycle is so small that it is an equilibrium (the end at a Hopf point)."""
+        return getattr(self, "_size", 1.0) < SHRUNK * max(1.0, float(np.max(np.abs(x[:self.n]))))
 
     def tests(self, x, tangent, data, only=None):
         out = {}
@@ -109,6 +115,8 @@ class CycleProblem:
         return out
 
     def special(self, name, x, tangent, data):
+        if name == CYCLE_FOLD and self.shrunk(x):
+            return None  # the branch turns back through a Hopf point, where the cycle is a point
         info = {"period": float(x[-2])}
         if name == TORUS:
             pair = [v for v in data["nontrivial"] if v.imag > 1e-8 and abs(abs(v) - 1) < 1e-5]
@@ -118,6 +126,9 @@ class CycleProblem:
         return SpecialPoint(name, x, info, tangent=tangent)
 
     def out_of_bounds(self, x):
+        if self.shrunk(x):
+            return (f"the cycle shrank to an equilibrium at {self.funcs.system.parameters[self.k]} = {x[-1]:.6g} "
+                    "(a Hopf point)")
         if x[-2] > self.max_period:
             return (f"the period grew beyond {self.max_period:.6g} (the cycle may be approaching a "
                     "homoclinic orbit)")
