@@ -54,3 +54,12 @@ def main(argv=None) -> int:
     except KeyboardInterrupt:
         print("interrupted", file=sys.stderr)
         return 130
+    except (RecursionError, MemoryError) as exc:
+        print(f"orbitdesk: the request is too large to work out ({type(exc).__name__}); "
+              "simplify the model or ask for less", file=sys.stderr)
+        return EXIT_ERRORS
+    except Exception as exc:  # noqa: BLE001 - the last guard: one line, never a traceback
+        detail = str(exc).strip().splitlines()[0][:300] if str(exc).strip() else ""
+        print(f"orbitdesk: could not finish ({type(exc).__name__}{': ' + detail if detail else ''}); "
+              "this is a fault in OrbitDesk, please report it with the model", file=sys.stderr)
+        return EXIT_ERRORS

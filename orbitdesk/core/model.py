@@ -133,6 +133,11 @@ class _Builder:
         self.suggestion_budget -= len(names)
         return get_close_matches(name, names, n=1, cutoff=0.6) if self.suggestion_budget >= 0 else []
 
+    def unexpected(self, st: _Statement, exc: Exception) -> None:
+        """A failure of the symbolic library on this line: an error diagnostic instead of a crash."""
+        start = st.rhs_col + len(st.rhs) - len(st.rhs.lstrip())
+        self.add(st.line, start, st.rhs_col + len(st.rhs.rstrip()), ERROR, unexpected_message(exc))
+
     # ------------------------------------------------------------ pass 1: statements
     def split_lines(self, text: str) -> list[_Statement]:
         statements = []
@@ -397,6 +402,9 @@ class _Builder:
         except ParseError as err:
             self.add(st.line, err.column, err.end_column, ERROR, err.message + " once the definitions it uses are put in")
             return
+        except Exception as exc:  # noqa: BLE001 - as in expression()
+            self.unexpected(st, exc)
+            return
         if subs and tree_size(value, sizes) > MAX_EXPRESSION_SIZE:
             self.add(st.line, where.column, where.end, ERROR,
                      f"with the definitions it uses put in, this expression has more than "
@@ -479,6 +487,9 @@ class _Builder:
             expr = to_sympy(st.tree, resolve, self.callable_functions)
         except ParseError as err:
             self.add(st.line, err.column, err.end_column, ERROR, err.message, err.fix)
+            return None
+        except Exception as exc:  # noqa: BLE001 - sympy's own failures become a diagnostic, never a crash
+            self.unexpected(st, exc)
             return None
         self.note_nonsmooth(st.line, st.tree)
         key = f"eq:{st.name}" if st.form in ("ode", "map") else st.name
@@ -629,7 +640,22 @@ def parse_model(text: str) -> ParsedModel:
         model = ParsedModel(text=text)
         model.diagnostics.append(Diagnostic(line, col, col + 1, ERROR, "NUL character in the text"))
         return model
-    model = _Builder(text).build()
+    try:
+        model = _Builder(text).build()
+    except Exception as exc:  # noqa: BLE001 - the last guard: a model that cannot be read is an error, not a crash
+        model = ParsedModel(text=text)
+        model.diagnostics.append(Diagnostic(1, 1, 2, ERROR, unexpected_message(exc)))
     unique = {(d.line, d.column, d.end_column, d.severity, d.message): d for d in model.diagnostics}
     model.diagnostics[:] = sorted(unique.values(), key=lambda d: (d.line, d.column))  # a family repeats its line
     return model
+
+
+def unexpected_message(exc: BaseException) -> str:
+    """Plain words for a failure inside the symbolic library (not a mistake in the text as such)."""
+    if isinstance(exc, RecursionError):
+        return "this expression is nested too deeply to be worked with; split it with derived quantities"
+    if isinstance(exc, MemoryError):
+        return "this expression needs more memory than is available; simplify it"
+    detail = str(exc).strip().splitlines()[0][:120] if str(exc).strip() else ""
+    return (f"this expression could not be worked out exactly ({type(exc).__name__}"
+            + (f": {detail}" if detail else "") + "); simplify it or write its value as a number")

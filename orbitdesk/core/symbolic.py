@@ -39,7 +39,7 @@ MATH_FUNCTIONS = {
     "exp": math.exp, "log": math.log, "log10": math.log10, "sqrt": math.sqrt, "abs": abs,
     "sign": lambda x: float((x > 0) - (x < 0)), "min": min, "max": max,
     "heaviside": lambda x: 0.0 if x < 0 else (0.5 if x == 0 else 1.0),
-    "mod": lambda a, b: a - b * math.floor(a / b), "floor": math.floor,
+    "mod": lambda a, b: a % b, "floor": math.floor,  # float % is exact: the sawtooth a - b*floor(a/b)
 }
 
 
@@ -75,11 +75,95 @@ def _too_large(node, what: str = "this constant") -> ParseError:
 _NOT_FINITE = (sp.nan, sp.zoo, sp.oo, -sp.oo)
 
 
+class _FloatsOnly(ValueError):
+    """sympy could not evaluate a constant exactly enough; its value in floats is ``value``."""
+
+    def __init__(self, value: complex):
+        super().__init__("evaluated in floats")
+        self.value = value
+
+
 def _approx(expr: sp.Expr) -> complex:
-    """The value of a constant expression whose parts were all checked (so evalf is cheap)."""
+    """The value of a constant expression (in floats where sympy gives up); ValueError if undefined."""
+    try:
+        return _evaluate(expr)
+    except _FloatsOnly as only:
+        return only.value
+
+
+def _evaluate(expr: sp.Expr) -> complex:
+    """The value of a constant expression whose parts were all checked (so evalf is cheap).
+
+    Where sympy cannot reach the precision it wants (``floor(cosh(690))`` needs 300 exact digits:
+    PrecisionExhausted) or leaves a function unevaluated, the expression is evaluated in floats
+    and ``_FloatsOnly`` carries that value; anything else sympy raises becomes ValueError.
+    """
     if expr.has(*_NOT_FINITE):
         raise ValueError("not finite")
-    return complex(expr.evalf(17))
+    try:
+        return complex(expr.evalf(17, strict=True))  # strict: no silently cancelled digits
+    except (ValueError, ZeroDivisionError, OverflowError):
+        raise
+    except Exception:  # noqa: BLE001 - PrecisionExhausted, unevaluated functions (TypeError), ...
+        try:
+            value = float_value(expr)
+        except Exception:  # noqa: BLE001 - whatever the float evaluation meets, the constant is undefined
+            raise ValueError("cannot be evaluated") from None
+        raise _FloatsOnly(complex(value)) from None
+
+
+_FLOAT_OF = {
+    sp.sin: math.sin, sp.cos: math.cos, sp.tan: math.tan, sp.asin: math.asin, sp.acos: math.acos,
+    sp.atan: math.atan, sp.atan2: math.atan2, sp.sinh: math.sinh, sp.cosh: math.cosh, sp.tanh: math.tanh,
+    sp.exp: math.exp, sp.Abs: abs, sp.sign: MATH_FUNCTIONS["sign"], sp.floor: math.floor,
+    sp.ceiling: math.ceil, sp.Mod: MATH_FUNCTIONS["mod"], sp.Min: min, sp.Max: max,
+    sp.log: lambda x, base=None: math.log(x) if base is None else math.log(x, base),
+    sp.Heaviside: lambda x, *_: MATH_FUNCTIONS["heaviside"](x),
+}
+
+
+def map_tree(expr: sp.Expr, leaf, combine):
+    """Bottom-up over a sympy tree without recursion, each shared part once:
+    ``leaf(atom)`` for nodes without arguments, ``combine(node, values of its arguments)`` for the rest."""
+    done: dict = {}
+    stack = [(expr, False)]
+    while stack:
+        item, ready = stack.pop()
+        if item in done:
+            continue
+        if not item.args:
+            done[item] = leaf(item)
+        elif ready:
+            done[item] = combine(item, [done[a] for a in item.args])
+        else:
+            stack.append((item, True))
+            stack.extend((a, False) for a in item.args if a not in done)
+    return done[expr]
+
+
+def float_value(expr: sp.Expr) -> float:
+    """A constant sympy expression evaluated in floats.
+
+    Used where sympy's own evaluation gives up; raises ValueError (or ArithmeticError) when a part
+    is undefined, OverflowError when it is beyond the float range."""
+
+    def leaf(item):
+        if item.is_Number or item in (sp.pi, sp.E):
+            return float(item)
+        raise ValueError(f"{item} is not a constant")
+
+    def combine(item, args):
+        if item.is_Add:
+            return math.fsum(args)
+        if item.is_Mul:
+            return math.prod(args)
+        if item.is_Pow:
+            return math.pow(*args)
+        if item.func in _FLOAT_OF:
+            return float(_FLOAT_OF[item.func](*args))
+        raise ValueError(f"no float form of {item.func}")
+
+    return map_tree(expr, leaf, combine)
 
 
 def _checked_constant(expr: sp.Expr, node, what: str = "this constant") -> sp.Expr:
@@ -104,15 +188,19 @@ def _checked_constant(expr: sp.Expr, node, what: str = "this constant") -> sp.Ex
                 if any(tamed[a] is not a for a in numbers):
                     expr = expr.func(*[tamed.get(a, a) for a in expr.args])
         return expr
+    floats_only = False
     try:
-        value = _approx(expr)
+        value = _evaluate(expr)
+    except _FloatsOnly as only:
+        value, floats_only = only.value, True
     except (TypeError, ValueError, ZeroDivisionError, OverflowError):
         raise ParseError(f"{what} is undefined", node.column, node.end) from None
     if not (math.isfinite(value.real) and math.isfinite(value.imag)) or abs(value) > MAX_MAGNITUDE:
         raise _too_large(node, what)
     if abs(value.imag) > 1e-12 * max(1.0, abs(value.real)):
         raise ParseError(f"{what} is not a real number", node.column, node.end)
-    if abs(value) < MIN_MAGNITUDE and expr != 0 or expr.is_Rational and max(abs(expr.p), expr.q) > MAX_EXACT:
+    if (floats_only or abs(value) < MIN_MAGNITUDE and expr != 0
+            or expr.is_Rational and max(abs(expr.p), expr.q) > MAX_EXACT):
         return sp.Float(value.real)  # the double: exact forms of 3^(-10^10) make sympy's mod, floor, ... hang
     return expr
 
@@ -169,7 +257,20 @@ def _product_bounded(items, node):
         raise _too_large(node)
 
 
+FLOAT_EXACT = 2.0**53  # beyond this every double is an integer: floor and mod are taken in floats
+
+
 def _checked_call(func: str, args, node) -> sp.Expr:
+    if func in ("floor", "mod") and not any(a.free_symbols for a in args):
+        values = [_approx(a).real for a in args]
+        if max(abs(v) for v in values) > FLOAT_EXACT:
+            # exactly, floor(cosh(690)) needs 300 digits and sympy's exact mod cancels them all away;
+            # the model's numbers are doubles, so the double's floor or exact remainder is the answer
+            try:
+                value = MATH_FUNCTIONS[func](*values)
+            except ZeroDivisionError:
+                raise ParseError(f"{func}() divides by zero here", node.column, node.end) from None
+            return _checked_constant(sp.Float(value), node, f"{func}() of this constant")
     try:
         result = SYMPY_FUNCTIONS[func](*args)
     except ZeroDivisionError:
@@ -319,36 +420,24 @@ def substitute(expr: sp.Expr, values: dict, where: Span) -> sp.Expr:
     ``d = 2``) without bound; here every rebuilt node goes through the checked constructors.
     Shared subexpressions are visited once.
     """
-    done: dict = {}
-    stack = [(expr, False)]
-    while stack:
-        item, ready = stack.pop()
-        if item in done:
-            continue
-        if not item.args:
-            done[item] = values.get(item, item)
-            continue
-        if not ready:
-            stack.append((item, True))
-            stack.extend((a, False) for a in item.args if a not in done)
-            continue
-        args = [done[a] for a in item.args]
+
+    def combine(item, args):
         if all(new is old for new, old in zip(args, item.args)):
-            done[item] = item
-        elif item.is_Pow:
-            done[item] = _checked_power(args[0], args[1], where)
-        elif item.is_Mul:
+            return item
+        if item.is_Pow:
+            return _checked_power(args[0], args[1], where)
+        if item.is_Mul:
             _product_bounded(args, where)
-            done[item] = _checked_constant(sp.Mul(*args), where)
-        elif item.is_Add:
-            done[item] = _checked_constant(sp.Add(*args), where)
-        else:
-            try:
-                rebuilt = item.func(*args)
-            except (ZeroDivisionError, ValueError, TypeError, ArithmeticError):
-                raise ParseError(f"{item.func.__name__.lower()}() is undefined here", where.column, where.end) from None
-            done[item] = _checked_constant(rebuilt, where)
-    return done[expr]
+            return _checked_constant(sp.Mul(*args), where)
+        if item.is_Add:
+            return _checked_constant(sp.Add(*args), where)
+        try:
+            rebuilt = item.func(*args)
+        except (ZeroDivisionError, ValueError, TypeError, ArithmeticError):
+            raise ParseError(f"{item.func.__name__.lower()}() is undefined here", where.column, where.end) from None
+        return _checked_constant(rebuilt, where)
+
+    return map_tree(expr, lambda item: values.get(item, item), combine)
 
 
 def tree_size(expr: sp.Expr, seen: dict) -> int:

@@ -18,6 +18,7 @@ from sympy.functions.elementary.piecewise import ExprCondPair
 from sympy.printing.numpy import NumPyPrinter
 from sympy.printing.pycode import PythonCodePrinter
 
+from .derivatives import jacobian_almost_everywhere
 from .model import FLOW, MAP, ParsedModel, parse_model
 
 
@@ -38,8 +39,7 @@ class UndefinedValue(ArithmeticError):
 def _lambdify(args, exprs, modules):
     # scalar code uses the printer that writes non-integer powers as math.pow: float arithmetic,
     # so 2^floor(x) with a large x overflows instead of building an exact huge integer
-    printer = _printer() if modules == "math" else _VectorPrinter({"fully_qualified_modules": False, "inline": True,
-                                                                           "allow_unknown_functions": True, "user_functions": {}})
+    printer = _printer() if modules == "math" else _vector_printer() if modules == "numpy" else None
     return sp.lambdify(args, exprs, modules=modules, cse=len(exprs) > 1, printer=printer)
 
 
@@ -113,15 +113,13 @@ class CompiledSystem:
 
     @cached_property
     def jacobian(self) -> sp.Matrix:
-        """d f_i / d u_j in the model's symbols."""
-        return sp.Matrix(self.f).jacobian(sp.Matrix(self.state_symbols))
+        """d f_i / d u_j in the model's symbols (floor, sign, heaviside, mod: the derivative between jumps)."""
+        return jacobian_almost_everywhere(self.f, self.state_symbols)
 
     @cached_property
     def param_jacobian(self) -> sp.Matrix:
         """d f_i / d p_k in the model's symbols."""
-        if not self.param_symbols:
-            return sp.zeros(self.n_states, 0)
-        return sp.Matrix(self.f).jacobian(sp.Matrix(self.param_symbols))
+        return jacobian_almost_everywhere(self.f, self.param_symbols)
 
     def plain(self, exprs):
         swap = self._plain[3]
@@ -264,7 +262,9 @@ class _ScalarPrinter(PythonCodePrinter):
 
 class _VectorPrinter(NumPyPrinter):
     """lambdify's printer for numpy: if() and its conditions as elementwise where / logical_and, which
-    broadcast a parameter (a number) against states (arrays) where select() and reduce() do not."""
+    broadcast a parameter (a number) against states (arrays) where select() and reduce() do not;
+    integers beyond 2^53 written as floats (numpy has no ufuncs for Python's big integers, so
+    sin(10^299) would fail as an object array)."""
 
     def _print_Piecewise(self, expr):
         *rest, last = expr.args
@@ -290,6 +290,19 @@ class _VectorPrinter(NumPyPrinter):
 
     def _print_Or(self, expr):
         return self._logical(expr, "numpy.logical_or")
+
+    def _print_Integer(self, expr):
+        return repr(float(expr)) if abs(int(expr)) > 2**53 else super()._print_Integer(expr)
+
+    def _print_Rational(self, expr):
+        if max(abs(expr.p), expr.q) > 2**53:
+            return repr(float(expr))
+        return super()._print_Rational(expr)
+
+
+def _vector_printer():
+    return _VectorPrinter({"fully_qualified_modules": False, "inline": True, "allow_unknown_functions": True,
+                           "user_functions": {}})
 
 
 def _printer():

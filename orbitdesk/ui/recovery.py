@@ -28,7 +28,7 @@ from orbitdesk.core import project as core_project
 from orbitdesk.core.project import ProjectError
 from orbitdesk.core.safe_files import DiskState
 
-from .plain_text import plain_message
+from .plain_text import message_box, plain_message
 
 AUTOSAVE_INTERVAL_MS = 20_000
 CHANGE_DELAY_MS = 2_000
@@ -328,11 +328,53 @@ def offer_recovery(window, directory: Path | None = None) -> bool:
     except ProjectError as e:
         plain_message(window, "warning", "Could not restore", f"The saved work could not be read: {e.message}")
         return False
+    except Exception as e:  # noqa: BLE001 - recovery must never stop the app from starting
+        plain_message(window, "warning", "Could not restore", f"The saved work could not be read: {e}")
+        return False
     original = rec.original_path if rec.original_path is not None and rec.original_path.exists() else None
-    # saving the restored work checks that the original was not changed since the crashed session read it
-    window.session.load_project(project, original, rec.original_state if original is not None
-                                else core_project.UNCHECKED)
+    try:
+        # saving the restored work checks that the original was not changed since the crashed session read it
+        window.session.load_project(project, original, rec.original_state if original is not None
+                                    else core_project.UNCHECKED)
+    except Exception as e:  # noqa: BLE001 - the document failed: offer its text instead of crashing
+        try:
+            window.session.new()
+        except Exception:  # noqa: BLE001 - whatever the half-loaded state, the window stays up
+            pass
+        if offer_text(window, project.model, f"{type(e).__name__}: {e}"):
+            rec.discard()
+        return False
     window.session.mark_dirty()
     rec.discard()
     window.statusBar().showMessage(f"Restored unsaved work on “{project.name}”", 10_000)
+    return True
+
+
+def offer_text(window, text: str, reason: str) -> bool:
+    """The restored document could not be opened: show its model text (plain text) to copy or save.
+
+    Returns True when the text was saved to a file the user chose. Without anyone to ask
+    (``ORBITDESK_NO_DIALOGS``) nothing is shown and the work stays in the autosave folder."""
+    window.statusBar().showMessage("The restored work could not be opened; its model text is kept", 10_000)
+    if os.environ.get("ORBITDESK_NO_DIALOGS"):
+        return False
+    from PySide6.QtWidgets import QFileDialog
+
+    box = message_box(window, "warning", "Restored work could not be opened",
+                      "The unsaved work was found, but opening it failed:\n" + reason[:300], buttons=QMessageBox.StandardButton.NoButton)
+    box.setInformativeText("Its model text is under Show Details: copy it from there, or save it as a text file.")
+    box.setDetailedText(text)
+    save = box.addButton("Save Text As\u2026", QMessageBox.ButtonRole.AcceptRole)
+    box.addButton("Keep for Later", QMessageBox.ButtonRole.RejectRole)
+    box.exec()
+    if box.clickedButton() is not save:
+        return False
+    path, _ = QFileDialog.getSaveFileName(window, "Save the model text", str(Path.home() / "restored-model.txt"))
+    if not path:
+        return False
+    try:
+        Path(path).write_text(text, encoding="utf-8")
+    except OSError as e:
+        plain_message(window, "warning", "Could not save", f"{path}: {e.strerror or e}")
+        return False
     return True

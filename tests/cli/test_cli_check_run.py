@@ -105,3 +105,24 @@ def test_entry_point_as_module(tmp_path, lorenz_file):
                           capture_output=True, text=True, timeout=120)
     assert done.returncode == 0
     assert json.loads(done.stdout)["states"] == ["x", "y", "z"]
+
+
+@pytest.mark.parametrize("text", ["x' = x + floor(cosh(690))\n", "a = mod(sinh(690), 3)\nx' = a*x\n"])
+def test_check_of_constants_sympy_cannot_evaluate_prints_no_traceback(capsys, tmp_path, text):
+    path = tmp_path / "huge.txt"
+    path.write_text(text)
+    code, out, err = run_cli(capsys, "check", path)
+    assert code == 0 and "Traceback" not in out + err and "ok: flow with 1 states (x)" in out
+
+
+def test_an_internal_failure_is_one_line_not_a_traceback(capsys, lorenz_file, monkeypatch):
+    from orbitdesk.cli import check
+
+    def broken(text):
+        raise RuntimeError("something inside broke")
+
+    monkeypatch.setattr(check, "parse_model", broken)
+    code, out, err = run_cli(capsys, "check", lorenz_file)
+    assert code == 1 and "Traceback" not in err
+    assert err.strip() == ("orbitdesk: could not finish (RuntimeError: something inside broke); "
+                           "this is a fault in OrbitDesk, please report it with the model")

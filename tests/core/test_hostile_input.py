@@ -167,6 +167,9 @@ def _run_case(case: str, workdir: str) -> dict:
             system = compile_model(model)
             value = system.rhs(0.0, system.initial)
             out["rhs"] = [float(v) for v in value[:3]]
+            # the vectorized evaluator and the Jacobian (used by ensembles, equilibria, the stiff method)
+            out["vec"] = [float(v) for v in system.rhs_vec(0.0, system.initial.reshape(-1, 1))[:3, 0]]
+            out["jac"] = system.jac(0.0, system.initial)[:3, :3].tolist()
         except UndefinedValue as exc:
             out["rhs"] = f"UndefinedValue: {exc}"[:200]
         except BaseException as exc:  # noqa: BLE001
@@ -277,6 +280,19 @@ def test_legal_hostile_looking_inputs_evaluate_correctly(outcomes):
     # x' = -(p0 + p10 + ... + p4990) x at x = 1, with p_i = i
     assert outcomes["parameters_4998_legal"]["rhs"] == [-float(sum(range(0, 4998, 10)))]
     assert outcomes["long_sum_legal"]["rhs"] == [0.0]
+    # constants sympy cannot evaluate exactly are taken in floats: floor of a double beyond 2^53 is
+    # itself; the remainder is the exact remainder of the double (Python integer arithmetic)
+    assert outcomes["floor_of_large_cosh.txt"]["rhs"] == [math.cosh(690)]
+    assert outcomes["mod_of_large_sinh.txt"]["rhs"] == [float(int(math.sinh(690)) % 3),
+                                                         float(int(math.sinh(690)) % 7)]
+    # the integer 10^299 is taken as the double 1e299 by both evaluators: the C library's sine of it
+    huge = outcomes["functions_of_huge_integers.txt"]
+    assert huge["vec"] == huge["rhs"] == [math.sin(1e299) + 1.0]
+    # x' = y, y' = -x + 0.5 sign(y) + H(x) - 0.1 floor(x) + 0.2 mod(x, 1) + |y| + max(x, y) at (1.25, 0.5):
+    # between the jumps d/dx = -1 + 0.2 + 1 (max picks x), d/dy = sign(y) = 1
+    smooth_parts = outcomes["nonsmooth_jacobian.txt"]
+    assert smooth_parts["jac"] == [[0.0, 1.0], [pytest.approx(0.2), 1.0]]
+    assert smooth_parts["rhs"][1] == pytest.approx(-1.25 + 0.5 + 1 - 0.1 + 0.2 * 0.25 + 0.5 + 1.25)
 
 
 # ---------------------------------------------------------------- in-process checks of the guards

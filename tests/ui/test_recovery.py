@@ -201,3 +201,65 @@ def test_crash_log_is_enabled(tmp_path, monkeypatch):
     assert path.parent.parent == tmp_path or path.exists()
     if not was:
         faulthandler.disable()
+
+
+def _left_behind(window, tmp_path, text):
+    """Unsaved work on ``text`` left by a session that died."""
+    saver = recovery.Autosaver(window.session, directory=tmp_path, interval_ms=60_000)
+    window.session.set_text(text)
+    assert saver.autosave_now()
+    saver.lock.release(remove=False)  # as if the process had died; its autosaver hears no more
+    saver.timer.stop()
+    window.session.undo_stack.indexChanged.disconnect(saver._changed)
+    window.session.dirtyChanged.disconnect(saver._dirty_changed)
+    window.session.projectLoaded.disconnect(saver._changed)
+    window.session.new()
+
+
+def test_restoring_a_model_sympy_cannot_evaluate_does_not_crash(qtbot, window, tmp_path):
+    # floor(cosh(690)) once raised out of the parser: the app died at every start with Restore
+    text = "x' = -x + floor(cosh(690))\nx(0) = 1\n"
+    _left_behind(window, tmp_path, text)
+    recovery.set_auto_answer(recovery.RESTORE)
+    try:
+        assert recovery.offer_recovery(window, tmp_path)
+    finally:
+        recovery.set_auto_answer(None)
+    assert window.session.text == text and window.session.parsed.ok
+
+
+def test_a_restored_document_that_fails_offers_its_text(qtbot, window, tmp_path, monkeypatch):
+    text = "# work that cannot be opened\nx' = -x\n"
+    _left_behind(window, tmp_path, text)
+
+    load = window.session.load_project
+
+    def fails(project, path=None, *rest):
+        if "cannot be opened" in project.model:
+            raise RuntimeError("opening broke")
+        load(project, path, *rest)
+
+    shown = {}
+
+    def exec_box(box):
+        shown.update(text=box.text(), details=box.detailedText(), buttons=[b.text() for b in box.buttons()])
+        return 0
+
+    monkeypatch.setattr(window.session, "load_project", fails)
+    monkeypatch.delenv("ORBITDESK_NO_DIALOGS")
+    monkeypatch.setattr(recovery.QMessageBox, "exec", exec_box)
+    recovery.set_auto_answer(recovery.RESTORE)
+    try:
+        assert not recovery.offer_recovery(window, tmp_path)
+    finally:
+        recovery.set_auto_answer(None)
+    assert shown["details"] == text and "RuntimeError: opening broke" in shown["text"]
+    assert "Save Text As\u2026" in shown["buttons"]
+    assert len(recovery.find_recoverable(tmp_path)) == 1  # not saved elsewhere: the work stays on disk
+
+
+def test_opening_a_model_sympy_cannot_evaluate_exactly(qtbot, window, tmp_path):
+    path = tmp_path / "huge.txt"
+    path.write_text("x' = -x + mod(sinh(690), 3)\n")
+    assert window.open_path(path, ask=False)
+    assert window.session.parsed.ok
