@@ -3,7 +3,8 @@
 ``floor``, ``sign``, ``heaviside`` and ``mod`` jump on isolated surfaces. sympy differentiates them
 into objects no evaluator can print (an unevaluated ``Derivative(floor(x), x)``) or into Dirac
 deltas. Between the jumps the derivatives are plain: d floor(u) = 0, d sign(u) = 0,
-d heaviside(u) = 0, and d mod(a, m) = da - floor(a/m) dm. Those are the ones used here, so every
+d heaviside(u) = 0, and d mod(a, m) = da - floor(a/m) dm; d abs(u) = sign(u) du (the model's values
+are real even where sympy cannot tell). Those are the ones used here, so every
 Jacobian can be evaluated; the model's warning about non-smooth functions says where they fail
 (on the jumps themselves).
 """
@@ -32,6 +33,14 @@ class _FlatStep(sp.Function):
         return sp.S.Zero
 
 
+class _RealAbs(sp.Function):
+    """abs of a real argument: the derivative is sign(u) (sympy, not told that u is real, would
+    write re() and im() parts that no evaluator knows)."""
+
+    def fdiff(self, argindex=1):
+        return sp.sign(self.args[0])
+
+
 class _SawMod(sp.Function):
     """mod(a, m) = a - m*floor(a/m): slope 1 in a and -floor(a/m) in m between the jumps."""
 
@@ -42,8 +51,10 @@ class _SawMod(sp.Function):
         return sp.S.One if argindex == 1 else -sp.floor(a / m)
 
 
-_TO_FLAT = ((sp.floor, _FlatFloor), (sp.sign, _FlatSign), (sp.Heaviside, _FlatStep), (sp.Mod, _SawMod))
-_FROM_FLAT = ((_FlatFloor, sp.floor), (_FlatSign, sp.sign), (_FlatStep, sp.Heaviside), (_SawMod, sp.Mod))
+_TO_FLAT = ((sp.floor, _FlatFloor), (sp.sign, _FlatSign), (sp.Heaviside, _FlatStep), (sp.Mod, _SawMod),
+            (sp.Abs, _RealAbs))
+_FROM_FLAT = ((_FlatFloor, sp.floor), (_FlatSign, sp.sign), (_FlatStep, sp.Heaviside), (_SawMod, sp.Mod),
+              (_RealAbs, sp.Abs))
 
 
 def _swap(expr: sp.Expr, table) -> sp.Expr:

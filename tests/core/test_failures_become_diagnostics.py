@@ -70,3 +70,9 @@ def test_almost_everywhere_derivatives():
             back[j] -= h
             numeric = (np.array(f(*step)) - np.array(f(*back))) / (2 * h)
             assert np.allclose(np.array(jf(*point), dtype=float)[:, j], numeric, atol=1e-5)
+
+
+def test_abs_of_an_expression_sympy_cannot_prove_real_has_a_printable_derivative():
+    # |x * sqrt(y)|: sympy's own derivative holds re() and im() parts; between the jumps it is sign() * ...
+    system = compile_model("x' = abs(x*sqrt(y))\ny' = -y\nx(0) = 2\ny(0) = 4\n")
+    assert system.jac(0.0, [2.0, 4.0]).tolist() == [[2.0, 0.5], [0.0, -1.0]]
