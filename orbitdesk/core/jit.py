@@ -233,7 +233,7 @@ def kernels(system):
         folder = _numba_cache_folder()
         on_disk = folder is not None and _numba_caches_there()
         module = private_cache.load_source_module(folder if on_disk else None, f"m{key}", source,
-                                                  {"CACHE": on_disk}, module_name=f"orbitdesk_jit_m{key}")
+                                                  module_name=f"orbitdesk_jit_m{key}", on_disk_flag="CACHE")
         _loaded[key] = module
         return module
 

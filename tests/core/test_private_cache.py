@@ -167,6 +167,20 @@ def test_a_replaced_source_file_is_rewritten_not_run(cache, tmp_path):
 
 
 @posix
+def test_a_cache_that_cannot_be_written_falls_back_to_memory(cache, monkeypatch, caplog):
+    def full_disk(*args, **kwargs):
+        raise OSError(28, "No space left on device")
+
+    monkeypatch.setattr(private_cache, "atomic_write", full_disk)
+    folder = private_cache.private_folder("jit")
+    with caplog.at_level(logging.WARNING, logger="orbitdesk.cache"):
+        module = private_cache.load_source_module(folder, "mfull", "VALUE = 3\n", on_disk_flag="ON_DISK")
+    assert module.VALUE == 3 and module.ON_DISK is False and "No space left" in caplog.text
+    if jit.available():
+        _rk4_works(compile_model(OSCILLATOR))  # numba is then told not to cache on disk
+
+
+@posix
 def test_temporary_files_are_unpredictable_and_exclusive(cache, tmp_path):
     folder = private_cache.private_folder("jit")
     target = folder / "mgen.py"
