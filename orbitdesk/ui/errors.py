@@ -195,6 +195,37 @@ class ErrorReporter(QObject):
         self.dialog.add(message, details, self.log_file)
 
 
+class _Forward(logging.Handler):
+    def __init__(self, signal):
+        super().__init__(logging.WARNING)
+        self.signal = signal
+
+    def emit(self, record) -> None:
+        try:
+            self.signal.emit(record.getMessage())
+        except RuntimeError:  # the window is gone
+            pass
+
+
+class Notices(QObject):
+    """Warnings of the core meant for the user (a refused compiled-code cache folder, ...), logged from
+    any thread, shown in the window's status bar (each is logged once by the core)."""
+
+    text = Signal(str)
+    LOGGERS = ("orbitdesk.cache",)
+
+    def __init__(self, window):
+        super().__init__(window)
+        self.text.connect(window.statusBar().showMessage)  # queued to the GUI thread when logged elsewhere
+        self._handler = _Forward(self.text)
+        for name in self.LOGGERS:
+            logging.getLogger(name).addHandler(self._handler)
+
+    def close(self) -> None:
+        for name in self.LOGGERS:
+            logging.getLogger(name).removeHandler(self._handler)
+
+
 _installed: ErrorReporter | None = None
 
 

@@ -17,6 +17,7 @@ from orbitdesk.core.export_csv import write_csv
 from orbitdesk.core.project import ProjectError
 
 from . import views as views_pkg
+from .errors import Notices
 from .file_guard import DocumentGuard
 from .plain_text import menu_text, plain_message, rich_tip
 from .session import Session
@@ -268,6 +269,7 @@ class MainWindow(QMainWindow):
         s.runFailed.connect(lambda m: self.run_status.setText("Run failed"))
         s.add_save_hook(self.store_view_settings)
         self.guard = DocumentGuard(self)
+        self.notices = Notices(self)
         QApplication.instance().focusChanged.connect(self._on_focus_changed)
         self.resize(self._initial_size())
         self._sized = False
@@ -821,4 +823,5 @@ class MainWindow(QMainWindow):
         self.run_bar.play.setChecked(False)
         self.session.shutdown()
         self.guard.release()
+        self.notices.close()
         event.accept()
