@@ -106,6 +106,19 @@ def is_read_only(path, st: os.stat_result | None = None) -> bool:
     return not os.access(path, os.W_OK)
 
 
+def plain_reason(e: BaseException) -> str:
+    """An operating-system error in plain words (for messages about files and folders)."""
+    cause = e if isinstance(e, OSError) else e.__cause__
+    code = getattr(cause, "errno", None)
+    words = {errno.ENOSPC: "the disk is full", getattr(errno, "EDQUOT", -1): "the disk quota is used up",
+             errno.EACCES: "no permission to write there", errno.EPERM: "no permission to write there",
+             errno.EROFS: "the disk is read-only", errno.EEXIST: "a file is in the way where a folder should be",
+             errno.ENOTDIR: "a file is in the way where a folder should be"}
+    if code in words:
+        return words[code]
+    return getattr(cause, "strerror", None) or getattr(e, "message", None) or str(e)
+
+
 # ---------------------------------------------------------------- temporary files
 
 def _stem(base: str) -> str:

@@ -28,6 +28,7 @@ from orbitdesk.core import open_markers
 from orbitdesk.core import project as core_project
 from orbitdesk.core.project import Project, ProjectConflict, ProjectError, ProjectReadOnly
 from orbitdesk.core.project_changes import describe_changes, model_diff
+from orbitdesk.core.safe_files import plain_reason
 
 from . import recovery
 from .plain_text import plain_message
@@ -326,9 +327,8 @@ class AutosaveNotice(QObject):
 
 def tell_data_folder_unusable(window, error: Exception) -> None:
     """The app runs without autosave and crash recovery: say so once, plainly."""
-    reason = getattr(error, "strerror", None) or str(error)
     where = getattr(error, "filename", None)
-    message = (f"OrbitDesk cannot use its data folder{f' {where}' if where else ''} ({reason}). "
+    message = (f"OrbitDesk cannot use its data folder{f' {where}' if where else ''} ({plain_reason(error)}). "
                "It runs without autosave and crash recovery until this is fixed.")
     window.statusBar().showMessage(message, 60_000)
     if os.environ.get(ENV_NO_DIALOGS):

@@ -26,7 +26,7 @@ from PySide6.QtWidgets import QMessageBox
 
 from orbitdesk.core import project as core_project
 from orbitdesk.core.project import ProjectError
-from orbitdesk.core.safe_files import DiskState
+from orbitdesk.core.safe_files import DiskState, plain_reason
 
 from .plain_text import message_box, plain_message
 
@@ -283,9 +283,7 @@ class Autosaver(QObject):
 
 
 def _autosave_problem(directory: Path, e: Exception) -> str:
-    cause = e if isinstance(e, OSError) else e.__cause__
-    reason = getattr(cause, "strerror", None) or getattr(e, "message", None) or str(e)
-    return f"Unsaved work cannot be kept safe: autosave failed ({reason}).\nAutosave folder: {directory}"
+    return f"Unsaved work cannot be kept safe: autosave failed ({plain_reason(e)}).\nAutosave folder: {directory}"
 
 
 # ---------------------------------------------------------------- offering recovery

@@ -224,7 +224,7 @@ def test_failed_autosave_is_told_once_and_its_return_too(qtbot, window, tmp_path
         monkeypatch.setattr(core_project, "save", full_disk)
         assert not any(saver.autosave_now() for _ in range(3))
         assert len(warnings) == 1 and "Unsaved work cannot be kept safe" in warnings[0]
-        assert "keeps trying" in warnings[0] and notice.label.isVisible()
+        assert "keeps trying" in warnings[0] and "the disk is full" in warnings[0] and notice.label.isVisible()
         window.statusBar().grab().save(os.path.join(_artifacts(), "autosave_failing_status.png"))
         monkeypatch.setattr(core_project, "save", real_save)
         assert saver.autosave_now()
@@ -242,12 +242,26 @@ def test_autosave_that_cannot_start_writing_keeps_trying(qtbot, window, tmp_path
     saver = recovery.Autosaver(window.session, parent=window, directory=tmp_path, interval_ms=60_000)
     try:
         file_guard.AutosaveNotice(window, saver)
-        assert len(warnings) == 1 and "No space left on device" in warnings[0]
+        assert len(warnings) == 1 and "autosave failed (the disk is full)" in warnings[0]
     finally:
         saver.finish()
 
 
 STARTUP_DRIVER = r"""
+import builtins, os, sys
+if sys.argv[1:] == ["deny"]:  # an unwritable folder (root ignores permission bits, so refuse here)
+    data = os.environ["ORBITDESK_DATA_DIR"]
+    def refuse(path):
+        raise PermissionError(13, "Permission denied", os.fspath(path))
+    def guard(real, writes):
+        def call(path, *args, **kwargs):
+            if isinstance(path, (str, os.PathLike)) and os.fspath(path).startswith(data) and writes(args, kwargs):
+                refuse(path)
+            return real(path, *args, **kwargs)
+        return call
+    os.mkdir = guard(os.mkdir, lambda a, k: True)
+    os.open = guard(os.open, lambda a, k: (a[0] if a else k.get("flags", 0)) & (os.O_WRONLY | os.O_RDWR))
+    builtins.open = guard(builtins.open, lambda a, k: any(c in (a[0] if a else k.get("mode", "r")) for c in "wax+"))
 from PySide6.QtCore import QTimer
 from orbitdesk.ui import app
 qapp, win = app.create(["orbitdesk"])
@@ -259,20 +273,25 @@ print("CLEAN EXIT", flush=True)
 """
 
 
-@pytest.mark.parametrize("where", ["a file", "under a file"])
+@pytest.mark.parametrize("where", ["a file", "under a file", "unwritable"])
 def test_app_starts_when_its_data_folder_is_unusable(tmp_path, where):
     blocker = tmp_path / "not-a-folder"
     blocker.write_text("a regular file where the data folder should be")
-    data = blocker if where == "a file" else blocker / "orbitdesk"
+    data = {"a file": blocker, "under a file": blocker / "orbitdesk", "unwritable": tmp_path / "locked"}[where]
+    if where == "unwritable":
+        data.mkdir(mode=0o500)
     home = tmp_path / "home"
     home.mkdir()
-    proc = subprocess.run([sys.executable, "-c", STARTUP_DRIVER], env=child_env(home, ORBITDESK_DATA_DIR=str(data)),
-                          capture_output=True, text=True, timeout=180)
+    args = ["deny"] if where == "unwritable" else []
+    proc = subprocess.run([sys.executable, "-c", STARTUP_DRIVER, *args],
+                          env=child_env(home, ORBITDESK_DATA_DIR=str(data)), capture_output=True, text=True,
+                          timeout=180)
     assert "Traceback" not in proc.stderr, proc.stderr
     assert proc.returncode == 0 and "CLEAN EXIT" in proc.stdout
     started = next(line for line in proc.stdout.splitlines() if line.startswith("STARTED"))
     assert started.startswith("STARTED True") and "cannot use its data folder" in started
     assert "runs without autosave" in proc.stderr
+    assert ("no permission to write there" if where == "unwritable" else "a file is in the way") in started
 
 
 # ---------------------------------------------------------------- how the new dialogs look
@@ -299,7 +318,7 @@ def test_screenshots_of_the_new_dialogs(qtbot, window, changed_behind, artifacts
         assert box.grab().save(os.path.join(artifacts, f"file_guard_{name}.png"))
         box.close()
     box = file_guard.warning_box(window, *file_guard.autosave_warning(
-        "Unsaved work cannot be kept safe: autosave failed (No space left on device).\n"
+        "Unsaved work cannot be kept safe: autosave failed (the disk is full).\n"
         "Autosave folder: /home/ana/.local/share/OrbitDesk/autosave"))
     box.show()
     qtbot.waitExposed(box)
