@@ -31,7 +31,7 @@ from orbitdesk.core.project_changes import describe_changes, model_diff
 from orbitdesk.core.safe_files import plain_reason
 
 from . import recovery
-from .plain_text import plain_message
+from .plain_text import plain_message, rich_tip
 
 ENV_NO_DIALOGS = "ORBITDESK_NO_DIALOGS"
 COMPARE, SAVE_AS, RELOAD, OVERWRITE, CANCEL, OPEN = "compare", "save_as", "reload", "overwrite", "cancel", "open"
@@ -67,21 +67,6 @@ def ask(parent, title: str, text: str, informative: str, choices, default: str, 
     box, answers = choice_box(parent, title, text, informative, choices, default)
     box.exec()
     return answers.get(box.clickedButton(), CANCEL)
-
-
-def warning_box(parent, title: str, text: str) -> QMessageBox:
-    box = QMessageBox(parent)
-    box.setIcon(QMessageBox.Icon.Warning)
-    box.setWindowTitle(title)
-    box.setTextFormat(Qt.TextFormat.PlainText)
-    box.setText(text)
-    return box
-
-
-def show_warning(parent, title: str, text: str) -> None:
-    """A plain-text warning with an OK button (not shown when dialogs are switched off)."""
-    if not os.environ.get(ENV_NO_DIALOGS):
-        warning_box(parent, title, text).exec()
 
 
 def _when(state) -> str:
@@ -313,12 +298,12 @@ class AutosaveNotice(QObject):
 
     def on_failed(self, message: str) -> None:
         self.label.setText("Autosave is not working")
-        self.label.setToolTip(message + "\nOrbitDesk keeps trying.")
+        self.label.setToolTip(rich_tip(message + "\nOrbitDesk keeps trying."))
         self.label.show()
         self.window.statusBar().showMessage(message.splitlines()[0], 30_000)
         if not self.told:
             self.told = True
-            show_warning(self.window, *autosave_warning(message))
+            plain_message(self.window, "warning", *autosave_warning(message))
 
     def on_recovered(self) -> None:
         self.label.hide()
@@ -333,5 +318,5 @@ def tell_data_folder_unusable(window, error: Exception) -> None:
     window.statusBar().showMessage(message, 60_000)
     if os.environ.get(ENV_NO_DIALOGS):
         print(f"OrbitDesk: {message}", file=sys.stderr, flush=True)
-    show_warning(window, "Data folder unusable", f"{message}\n\nSave your work yourself. To use another "
+    plain_message(window, "warning", "Data folder unusable", f"{message}\n\nSave your work yourself. To use another "
                  f"folder, set {recovery.ENV_DATA_DIR} to it before starting OrbitDesk.")

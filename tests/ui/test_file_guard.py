@@ -15,6 +15,7 @@ from orbitdesk.core import open_markers, safe_files
 from orbitdesk.core import project as core_project
 from orbitdesk.core.project import ParameterSetting, Project, ProjectError
 from orbitdesk.ui import file_guard, recovery
+from orbitdesk.ui.plain_text import message_box
 
 from .test_recovery import child_env
 
@@ -45,10 +46,12 @@ def answers(monkeypatch):
 
 
 @pytest.fixture
-def warnings(monkeypatch):
-    told = []
-    monkeypatch.setattr(file_guard, "show_warning", lambda parent, title, text: told.append(text))
-    return told
+def warnings(message_boxes):
+    return message_boxes.calls  # (kind, title, text) of each plain-text message box
+
+
+def texts(calls, kind="warning"):
+    return [text for k, _title, text in calls if k == kind]
 
 
 @pytest.fixture
@@ -223,13 +226,14 @@ def test_failed_autosave_is_told_once_and_its_return_too(qtbot, window, tmp_path
         window.session.set_param("w", 3.0)
         monkeypatch.setattr(core_project, "save", full_disk)
         assert not any(saver.autosave_now() for _ in range(3))
-        assert len(warnings) == 1 and "Unsaved work cannot be kept safe" in warnings[0]
-        assert "keeps trying" in warnings[0] and "the disk is full" in warnings[0] and notice.label.isVisible()
+        told = texts(warnings)
+        assert len(told) == 1 and "Unsaved work cannot be kept safe" in told[0]
+        assert "keeps trying" in told[0] and "the disk is full" in told[0] and notice.label.isVisible()
         window.statusBar().grab().save(os.path.join(_artifacts(), "autosave_failing_status.png"))
         monkeypatch.setattr(core_project, "save", real_save)
         assert saver.autosave_now()
         assert not notice.label.isVisible() and "works again" in window.statusBar().currentMessage()
-        assert len(warnings) == 1
+        assert len(texts(warnings)) == 1
     finally:
         saver.finish()
 
@@ -242,7 +246,7 @@ def test_autosave_that_cannot_start_writing_keeps_trying(qtbot, window, tmp_path
     saver = recovery.Autosaver(window.session, parent=window, directory=tmp_path, interval_ms=60_000)
     try:
         file_guard.AutosaveNotice(window, saver)
-        assert len(warnings) == 1 and "autosave failed (the disk is full)" in warnings[0]
+        assert len(texts(warnings)) == 1 and "autosave failed (the disk is full)" in texts(warnings)[0]
     finally:
         saver.finish()
 
@@ -317,7 +321,7 @@ def test_screenshots_of_the_new_dialogs(qtbot, window, changed_behind, artifacts
         qtbot.waitExposed(box)
         assert box.grab().save(os.path.join(artifacts, f"file_guard_{name}.png"))
         box.close()
-    box = file_guard.warning_box(window, *file_guard.autosave_warning(
+    box = message_box(window, "warning", *file_guard.autosave_warning(
         "Unsaved work cannot be kept safe: autosave failed (the disk is full).\n"
         "Autosave folder: /home/ana/.local/share/OrbitDesk/autosave"))
     box.show()
