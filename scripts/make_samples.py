@@ -649,8 +649,78 @@ STIRRED_TANK = sample(
           "open_views": ["bifurcation"], "views": {"bifurcation": TANK_LOCUS}}),
     ])
 
+# ---------------------------------------------------------------- a train of wagons (a family of states)
+
+WAGON_TRAIN = sample(
+    "wagon_train.orbitdesk", "A freight train starting off",
+    """\
+# A freight train of N wagons joined by sprung couplings, standing still. At t = 0 the locomotive
+# starts to pull the front wagon, the pull building up over 'ramp' seconds.
+# x_{i}: how far wagon i has moved (m), wagon 1 at the front; x_{i}': its speed (m/s).
+N = 12 in [2, 30]            # wagons (changing it rewrites the model)
+m = 1 in [0.2, 5]            # mass of a wagon (in units of 10 tonnes)
+k = 4 in [0.5, 20]           # stiffness of a coupling
+c = 0.05 in [0, 5]           # damping in a coupling
+F = 1 in [0, 5]              # full pull of the locomotive
+ramp = 2 in [0.1, 10]        # seconds for the pull to build up
+
+pull(s) = F*if(s < ramp, s/ramp, 1)
+coupling(stretch, rate) = k*stretch + c*rate      # force in a stretched coupling
+
+x_{1}'' = (pull(t) - coupling(x_{1} - x_{2}, x_{1}' - x_{2}'))/m
+x_{i}'' = (coupling(x_{i-1} - x_{i}, x_{i-1}' - x_{i}') - coupling(x_{i} - x_{i+1}, x_{i}' - x_{i+1}'))/m   for i in 2..N-1
+x_{N}'' = coupling(x_{N-1} - x_{N}, x_{N-1}' - x_{N}')/m
+x_{i}(0) = 0    for i in 1..N    # standing still, couplings slack
+x_{i}'(0) = 0   for i in 1..N
+
+front_coupling = x_{1} - x_{2}       # stretch of the first coupling (m)
+last_coupling = x_{N-1} - x_{N}      # stretch of the last coupling (m)
+train_centre = sum(x_{j}, j in 1..N)/N
+""",
+    dict(method="dop853", t_end=40.0, samples=4000),
+    {"timeseries": {"series": ["front_coupling", "last_coupling"]},
+     "phase_plane": {"x": "x_1", "y": "x_1'", "arrows": False}},
+    "Twelve wagons typed as one family of equations: a stretch wave runs down the train when it starts.",
+    [
+        ("The pull runs down the train",
+         "The locomotive's pull builds up over two seconds. The **first coupling** stretches at once; the "
+         "**last coupling** feels nothing for about five seconds, until a wave of stretch has run down "
+         "the train. In a chain of masses `m` joined by springs `k` long waves travel at `sqrt(k/m)` "
+         "wagons per second: 2 here, so twelve wagons take about six seconds. When it arrives the last "
+         "coupling, which in steady pulling carries only one wagon's share (`F/(N k)`, 0.021 m), is "
+         "snatched to about six times that.\n\n"
+         "The model is written once for a general wagon, `x_{i}'' = ... for i in 2..N-1`, with two lines "
+         "for the ends; the read-back shows all twelve written out.",
+         {"open_views": ["timeseries"]}),
+        ("Stiffer couplings",
+         "Four times stiffer couplings, `k = 16`: the wave runs twice as fast (`sqrt(16) = 4` wagons per "
+         "second, three seconds to the end) and every coupling stretches a quarter as far for the same "
+         "force.",
+         {"parameters": {"k": 16.0}, "open_views": ["timeseries"]}),
+        ("Heavier wagons",
+         "Loaded wagons, `m = 4` with the first couplings: the wave slows to one wagon per second, and "
+         "the rear of the train only starts to move after about twelve seconds.",
+         {"parameters": {"m": 4.0}, "open_views": ["timeseries"]}),
+        ("A snatch start",
+         "Let the pull build up in a tenth of a second, `ramp = 0.1`. The first coupling overshoots its "
+         "steady stretch by a third and the last one is snatched to about eight times its share, and the "
+         "train keeps surging, because the couplings hardly damp anything (`c = 0.05`). This is why "
+         "drivers take up the slack gently: with `ramp = 10` the last coupling peaks at 1.4 times.",
+         {"parameters": {"ramp": 0.1}, "open_views": ["timeseries", "phase_plane"]}),
+        ("Damped couplings",
+         "With dampers in the couplings, `c = 4`, the snatch start is tamed: the last coupling peaks at "
+         "under twice its share, the surging dies out within a few passes, and the train settles to a "
+         "steady pull in which each coupling carries the force that accelerates the wagons behind it.",
+         {"parameters": {"ramp": 0.1, "c": 4.0}, "open_views": ["timeseries", "phase_plane"]}),
+        ("A longer train",
+         "Move the **N** slider to 24: OrbitDesk writes the new value into the model's first line and "
+         "reads it again, so the train now has 48 states and the wave needs twice as long to reach the "
+         "end. Undo returns to twelve wagons.",
+         {"open_views": ["timeseries"]}),
+    ])
+
 SAMPLES = [SHAKEN_BEAM, CONVECTION_LOOP, RELAXATION_CIRCUIT, CLOCK_REACTION, POND_PREDATORS,
-           INSECT_GENERATIONS, PENDULUM, STIRRED_TANK]
+           INSECT_GENERATIONS, PENDULUM, STIRRED_TANK, WAGON_TRAIN]
 
 
 def main(argv=None) -> int:

@@ -21,11 +21,10 @@ from __future__ import annotations
 import re
 
 import sympy as sp
-from sympy.printing.numpy import NumPyPrinter
 from sympy.printing.pycode import PythonCodePrinter
 
 from .engine import RunSettings
-from .system import MAP, CompiledSystem
+from .system import MAP, CompiledSystem, VectorPrinter
 
 SCIPY_METHODS = {"dop853": "dop853 (scipy.integrate.ode)", "rk45": "RK45", "stiff": "Radau"}
 
@@ -73,7 +72,7 @@ def run_script(system: CompiledSystem, settings: RunSettings | None = None, u0=N
     if not is_map and settings.t_end == settings.t_start:
         raise ValueError("the end time must differ from the start time")
     math_printer = PythonCodePrinter()
-    np_printer = NumPyPrinter()
+    np_printer = VectorPrinter()  # the compiled system's printer: if() as numpy.where
     time_name = "n" if is_map else "t"
 
     head = [

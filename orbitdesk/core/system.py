@@ -260,7 +260,7 @@ class _ScalarPrinter(PythonCodePrinter):
         return f"pow({self._print(expr.base)}, {self._print(exp)})"
 
 
-class _VectorPrinter(NumPyPrinter):
+class VectorPrinter(NumPyPrinter):
     """lambdify's printer for numpy: if() and its conditions as elementwise where / logical_and, which
     broadcast a parameter (a number) against states (arrays) where select() and reduce() do not;
     integers beyond 2^53 written as floats (numpy has no ufuncs for Python's big integers, so
@@ -301,7 +301,7 @@ class _VectorPrinter(NumPyPrinter):
 
 
 def _vector_printer():
-    return _VectorPrinter({"fully_qualified_modules": False, "inline": True, "allow_unknown_functions": True,
+    return VectorPrinter({"fully_qualified_modules": False, "inline": True, "allow_unknown_functions": True,
                            "user_functions": {}})
 
 

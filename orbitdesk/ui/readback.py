@@ -40,6 +40,22 @@ class _ModelPrinter(StrPrinter):
     def _print_Exp1(self, expr):
         return "e"
 
+    def _print_Piecewise(self, expr):
+        *rest, last = expr.args
+        text = self._print(last.expr) if last.cond == True else "nan"  # noqa: E712 (sympy's true)
+        for pair in reversed(rest):
+            text = f"if({self._print(pair.cond)}, {self._print(pair.expr)}, {text})"
+        return text
+
+    def _print_And(self, expr):
+        return " and ".join(f"({self._print(a)})" if isinstance(a, sp.Or) else self._print(a) for a in expr.args)
+
+    def _print_Or(self, expr):
+        return " or ".join(self._print(a) for a in expr.args)
+
+    def _print_Not(self, expr):
+        return f"not ({self._print(expr.args[0])})"
+
     def _print_Float(self, expr):
         return f"{float(expr):.10g}"
 

@@ -15,7 +15,7 @@ from orbitdesk.core.walkthrough import apply_step
 
 SAMPLES = Path(__file__).resolve().parents[2] / "sample_projects"
 NAMES = ["shaken_beam", "convection_loop", "relaxation_circuit", "clock_reaction", "pond_predators",
-         "insect_generations", "pendulum", "stirred_tank"]
+         "insect_generations", "pendulum", "stirred_tank", "wagon_train"]
 
 
 def load(name):
@@ -205,3 +205,25 @@ def test_convection_loop_section_and_shaken_beam_strobe():
     result = sections.strobe_section(system, p=p, u0=u0, period=T, count=10, transient=60 * T)
     assert np.ptp(result.points, axis=1) == pytest.approx([0.0, 0.0], abs=1e-5)
     assert np.diff(result.times) == pytest.approx(np.full(9, T), rel=1e-9)
+
+
+def test_wagon_train_stretch_wave_travels_at_the_long_wave_speed():
+    """A chain of masses m joined by springs k carries long waves at sqrt(k/m) masses per unit time
+    (the continuum limit of the lattice, e.g. Brillouin, Wave Propagation in Periodic Structures, 1946):
+    quadrupling k halves the time the stretch takes to reach the last coupling, quadrupling m doubles it."""
+    project = load("wagon_train")
+    system = compile_model(project.model)
+    assert len(system.states) == 24 and parse_model(project.model).structural == {"N"}
+
+    def arrival(title):
+        p, u0 = step_values(project, system, title)
+        run = simulate(system, RunSettings(t_end=30.0, samples=3001), u0, p)
+        last = system.derived_values(run.time, run.states, p)["last_coupling"]
+        values = dict(zip(system.parameters, p))
+        share = values["F"] / (values["N"] * values["k"])  # its stretch in steady pulling
+        return run.time[np.argmax(last > 0.5 * share)]
+
+    base, stiff, heavy = arrival("The pull"), arrival("Stiffer"), arrival("Heavier")
+    assert 4.0 < base < 7.0  # about N / sqrt(k/m) = 6 s, less the spread of the two-second ramp
+    assert stiff / base == pytest.approx(0.5, abs=0.08)
+    assert heavy / base == pytest.approx(2.0, abs=0.2)
