@@ -185,8 +185,22 @@ def language_reference(sh: Shooter) -> None:
     ref.close()
 
 
+def bracket_fit(sh: Shooter) -> None:
+    """A plucked bracket: the invented records over the first guess, then fitted with residuals shown."""
+    sh.open_sample("bracket_pluck")
+    sh.show_step(0)
+    sh.save("bracket_fit_overlay")
+    sh.show_step(3)
+    view = sh.window.ensure_view("fit")
+    view.run_fit()
+    sh.settle()
+    view.residuals_box.setChecked(True)
+    sh.settle()
+    sh.save("bracket_fit_results")
+
+
 SHOTS = [convection_loop_3d, shaken_beam_sections, pendulum_separatrix, insect_generations_sweep,
-         walkthrough_presenting, language_reference]
+         walkthrough_presenting, language_reference, bracket_fit]
 
 
 def main(argv=None) -> int:

@@ -1,5 +1,6 @@
-"""``orbitdesk export PATH (--latex [--standalone] | --script | --report) [-o FILE]``: the model as
-LaTeX, a standalone Python script reproducing the run, or an HTML report. Prints to stdout without -o."""
+"""``orbitdesk export PATH (--latex [--standalone] | --script | --report | --fit-script) [-o FILE]``: the
+model as LaTeX, a standalone Python script reproducing the run, an HTML report, or a standalone script
+reproducing the project's fit to its data. Prints to stdout without -o."""
 
 from __future__ import annotations
 
@@ -20,6 +21,8 @@ def register(sub):
     what.add_argument("--latex", action="store_true", help="the model's equations and values as LaTeX")
     what.add_argument("--script", action="store_true", help="a Python script (numpy, scipy) reproducing the run")
     what.add_argument("--report", action="store_true", help="a self-contained HTML report")
+    what.add_argument("--fit-script", action="store_true", help="a Python script (numpy, scipy) reproducing the "
+                      "fit set up in the project's Fit panel, on its stored data sets")
     parser.add_argument("--standalone", action="store_true", help="with --latex: a complete document")
     parser.add_argument("-o", "--output", metavar="FILE", help="write to FILE instead of printing")
     add_value_options(parser)
@@ -75,6 +78,23 @@ def _write(text: str, output: str | None) -> None:
         raise CommandError(f"cannot write {output}: {err.strerror or err}") from None
 
 
+def _fit_script(source, system, p, u0, title) -> str:
+    from orbitdesk.core.export_fit import fit_script
+    from orbitdesk.core.fitting import FitError
+    from orbitdesk.core.report_fit import fit_settings_from_project, project_vectors
+
+    project = source.project
+    if project is None or not project.datasets:
+        raise CommandError("--fit-script needs a project that holds data sets")
+    settings = fit_settings_from_project(project)
+    if settings is None:
+        raise CommandError("the project has no fit set up (tick values to estimate in the Fit panel)")
+    try:
+        return fit_script(system, project.datasets, settings, p, u0, project_vectors(project, system)[2], title=title)
+    except FitError as err:
+        raise CommandError(f"cannot export the fit: {err}") from None
+
+
 def run(args) -> int:
     if args.standalone and not args.latex:
         raise CommandError("--standalone goes with --latex")
@@ -95,6 +115,8 @@ def run(args) -> int:
             raise CommandError("the stored end time equals the start time")
         output = os.path.splitext(os.path.basename(args.output))[0] + ".csv" if args.output else "run.csv"
         text = run_script(system, settings, u0, p, title=title, output=output)
+    elif args.fit_script:
+        text = _fit_script(source, system, p, u0, title)
     else:
         from orbitdesk.core.report import render_report
 

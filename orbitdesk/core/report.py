@@ -221,10 +221,12 @@ def _results_html(results: dict, system) -> list[str]:
     return out
 
 
-def render_report(project, system, figures: dict | None = None, equilibria=None, results: dict | None = None) -> str:
+def render_report(project, system, figures: dict | None = None, equilibria=None, results: dict | None = None,
+                  fit=None) -> str:
     """The report as HTML text. ``figures`` maps a caption to PNG bytes (drawn by the caller);
     ``equilibria`` is a list of Equilibrium objects or their ``to_dict()`` forms, or None; ``results``
-    holds the other computed results whose numbers go in (see ``_results_html``)."""
+    holds the other computed results whose numbers go in (see ``_results_html``); ``fit`` a FitResult for
+    the project's data sets (None: the fit saved in the project is run, if any)."""
     figures = dict(figures or {})
     for title, data in figures.items():
         if not isinstance(data, (bytes, bytearray)) or not bytes(data[:8]) == PNG_SIGNATURE:
@@ -304,6 +306,13 @@ def render_report(project, system, figures: dict | None = None, equilibria=None,
             out.append(f'<p class="muted">{_e(note)}</p>')
 
     out.extend(_results_html(results or {}, system))
+
+    if getattr(project, "datasets", None):
+        from .report_fit import fit_for_report, fit_section
+        reason = ""
+        if fit is None:
+            fit, reason = fit_for_report(project, system)
+        out.append(fit_section(project, system, fit, reason))
 
     if figures:
         out.append("<h2>Figures</h2>")

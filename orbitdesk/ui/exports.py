@@ -130,8 +130,9 @@ def report_html(window, equilibria=None) -> str:
     project = session.to_project()
     if equilibria is None:
         equilibria = _view_equilibria(window, system)
+    fit = getattr(getattr(session, "_data_store", None), "result", None)  # the Fit panel's latest result
     return render_report(project, system, view_figures(window), equilibria=equilibria,
-                         results=view_results(window))
+                         results=view_results(window), fit=fit)
 
 
 # ---------------------------------------------------------------- writing

@@ -488,10 +488,11 @@ class MainWindow(QMainWindow):
     def _install_teaching_tools(self) -> None:
         """The Walkthrough dock, Help > Language Reference and Sample Projects, File > Export (LaTeX,
         script, report); each module adds its own parts."""
-        from . import exports, help as help_ui, walkthrough_panel
+        from . import data_import, exports, help as help_ui, walkthrough_panel
 
         walkthrough_panel.install(self)
         exports.install(self)
+        data_import.install(self)
         help_ui.install(self)
 
     # ------------------------------------------------------------ views

@@ -96,3 +96,17 @@ def test_bad_data_file_names_line_and_column(tmp_path, model, capsys):
     assert code == 1 and "'nope' is not a parameter" in err
     code, out, err = run_cli(capsys, "fit", path, "--param", "k1")
     assert code == 1 and "no data" in err
+
+
+def test_export_fit_script_and_report_of_a_project(tmp_path, capsys):
+    t = np.arange(1, 9) / 2
+    d = parse_data("t,a,b\n" + "".join(f"{x},{y},{z}\n" for x, y, z in zip(t, *bateman(t, 0.9, 0.35, 1))), "batch")
+    save(tmp_path / "r.orbitdesk", Project(model=MODEL, datasets=[d]))
+    code, out, err = run_cli(capsys, "export", tmp_path / "r.orbitdesk", "--fit-script")
+    assert code == 1 and "no fit set up" in err
+    save(tmp_path / "r.orbitdesk", Project(model=MODEL, datasets=[d], views={"fit": {"parameters": ["k1", "k2"]}}))
+    code, out, err = run_cli(capsys, "export", tmp_path / "r.orbitdesk", "--fit-script", "-o", tmp_path / "fit.py")
+    assert code == 0, err
+    compile((tmp_path / "fit.py").read_text(), "fit.py", "exec")  # a valid script (run by test_fit_exports)
+    code, out, err = run_cli(capsys, "export", tmp_path / "r.orbitdesk", "--report")
+    assert code == 0 and "Measured data and fit" in out and "<svg" in out

@@ -10,6 +10,7 @@ from PySide6.QtGui import QColor
 from PySide6.QtWidgets import QLabel, QToolButton
 
 from . import empty_hint, muted_colour, series_colour, style_plot
+from ..data_overlay import DataOverlay
 from ..plot_style import ScreenCurve
 from .common import (SessionView, check_box, clicked_point, combo_box, control_row, coordinate_names,
                      cycle_columns, equilibrium_coordinates, equilibrium_fields, fill_combo, runs_job, values_at_time)
@@ -101,6 +102,7 @@ class PhasePlaneView(SessionView):
         self.eq_item.setZValue(20)
         self.cursor_marker.setZValue(15)
         self.empty_hint = empty_hint(self.plot, "The trajectory will be drawn here; click to start more")
+        self.data_overlay = DataOverlay(session, self.plot, lambda: [(self.x_name, self.y_name, series_colour(1, self))])
         self.plot_widget.scene().sigMouseClicked.connect(self._on_click)
         self.plot.getViewBox().sigRangeChangedManually.connect(self._on_manual_range)
         self.plot.getViewBox().sigRangeChanged.connect(self._on_range_changed)
@@ -300,6 +302,7 @@ class PhasePlaneView(SessionView):
         self._draw_seeds()
         self._draw_equilibria()
         self._draw_cycle()
+        self.data_overlay.refresh()
         if refit:
             self.fit_view()
         self._update_field()

@@ -9,6 +9,7 @@ from PySide6.QtGui import QColor, QIcon, QPainter, QPixmap
 from PySide6.QtWidgets import QHBoxLayout, QLabel, QListWidget, QListWidgetItem, QToolButton, QVBoxLayout
 
 from . import empty_hint, muted_colour, series_colour, style_plot
+from ..data_overlay import TIME, DataOverlay
 from ..plot_style import ScreenCurve
 from .common import SessionView, check_box, control_row, run_time_name
 
@@ -92,6 +93,7 @@ class TimeSeriesView(SessionView):
         self.empty_hint = empty_hint(self.plot, "The run of the model will be plotted here")
         self.plot.getViewBox().sigRangeChangedManually.connect(self._on_manual_range)
         session.heldChanged.connect(self._on_held)
+        self.data_overlay = DataOverlay(session, self.plot, self._overlay_pairs)
 
         options = control_row(self.log_y, self.spectrum, None, self.note, self.fit, spacing=6, stretch=False)
         right = QVBoxLayout()
@@ -231,6 +233,7 @@ class TimeSeriesView(SessionView):
             self.plot.setLabel("left", "")
         self.cursor.setVisible(not spectrum and traj is not None)
         self.empty_hint.setVisible(traj is None)
+        self.data_overlay.refresh()
         if traj is None:
             return
         discrete = traj.kind == "map"
@@ -269,6 +272,12 @@ class TimeSeriesView(SessionView):
         if refit:
             self.fit_view()
         self._on_time_cursor(self.session.time_cursor)
+
+    def _overlay_pairs(self) -> list:
+        """Measured data that belongs here: the ticked series against time (not their spectra)."""
+        if self.spectrum.isChecked():
+            return []
+        return [(TIME, n, series_colour(self._names.index(n) if n in self._names else 0, self)) for n in self.checked()]
 
     def fit_view(self) -> None:
         self._fitted = True
