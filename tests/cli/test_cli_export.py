@@ -73,7 +73,7 @@ def test_report_to_file(capsys, tmp_path):
 
 def test_bad_input_is_refused_cleanly(capsys, tmp_path, pendulum_file):
     code, _, err = run_cli(capsys, "export", pendulum_file)
-    assert code == 2 and "one of the arguments --latex --script --report is required" in err
+    assert code == 2 and "one of the arguments --latex --script --report --fit-script is required" in err
     code, _, err = run_cli(capsys, "export", pendulum_file, "--latex", "--script")
     assert code == 2 and "not allowed with" in err
     code, _, err = run_cli(capsys, "export", pendulum_file, "--script", "--standalone")

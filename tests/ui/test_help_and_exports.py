@@ -166,7 +166,7 @@ def test_exports_refuse_a_model_with_errors(qtbot, window, tmp_path, monkeypatch
 
 def test_export_menu_entries(window):
     texts = [a.text().replace("&", "") for a in window.export_menu.actions()]
-    assert texts == ["Model as LaTeX…", "Standalone Python Script…", "HTML Report…"]
+    assert texts == ["Model as LaTeX…", "Standalone Python Script…", "HTML Report…", "Python Script of the Fit…"]
     assert all(a.toolTip() for a in window.export_menu.actions())
     file_texts = [a.text() for a in window.file_menu.actions()]
     assert file_texts.index("E&xport") < file_texts.index("&Quit")
