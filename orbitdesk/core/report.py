@@ -136,7 +136,8 @@ def _equilibrium_row(eq, index: int, states: list[str]) -> list[str]:
 
 
 VIEW_NAMES = {"timeseries": "time series", "phase_plane": "phase plane", "phase_space_3d": "3D phase space",
-              "equilibria": "equilibria", "sections": "sections", "sweep": "sweep", "lyapunov": "Lyapunov exponents"}
+              "equilibria": "equilibria", "sections": "sections", "sweep": "sweep", "lyapunov": "Lyapunov exponents",
+              "fit": "fit to data"}
 
 
 def _step_summary(snapshot: dict, params: dict, initial: dict) -> str:

@@ -28,22 +28,42 @@ def _n(v, digits: int = 6) -> str:
     return f"{v:.{digits}g}".replace("-", "\u2212")
 
 
+def _number_or_none(v) -> bool:
+    return v is None or (isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v))
+
+
+def saved_bounds(saved: dict) -> dict:
+    """``{name: (lo, hi)}`` from the Fit panel's saved ``bounds`` rows ``[name, lo, hi]`` (bad rows skipped)."""
+    out = {}
+    for row in saved.get("bounds") or []:
+        if isinstance(row, list) and len(row) == 3 and isinstance(row[0], str) and all(map(_number_or_none, row[1:])):
+            out[row[0]] = (row[1], row[2])
+    return out
+
+
+def saved_weights(saved: dict) -> dict:
+    """``{quantity: weight}`` from the Fit panel's saved ``weights`` rows ``[quantity, weight]``."""
+    out = {}
+    for row in saved.get("weights") or []:
+        if (isinstance(row, list) and len(row) == 2 and isinstance(row[0], str) and _number_or_none(row[1])
+                and row[1] is not None and row[1] > 0):
+            out[row[0]] = float(row[1])
+    return out
+
+
 def fit_settings_from_project(project) -> FitSettings | None:
     """The choices saved by the Fit panel (``views["fit"]``), or None when nothing is ticked there."""
     saved = project.views.get("fit") or {}
+    if not isinstance(saved, dict):
+        return None
     lists = {k: [x for x in saved.get(k, []) if isinstance(x, str)] if isinstance(saved.get(k), list) else []
              for k in ("parameters", "local", "initial")}
     if not any(lists.values()):
         return None
-    bounds = {}
-    for k, v in (saved.get("bounds") or {}).items():
-        if isinstance(v, list) and len(v) == 2 and all(b is None or isinstance(b, (int, float)) for b in v):
-            bounds[k] = (v[0], v[1])
-    weights = {k: float(v) for k, v in (saved.get("weights") or {}).items()
-               if isinstance(v, (int, float)) and not isinstance(v, bool) and v > 0}
     seg = saved.get("segments", 1)
+    seg = seg if isinstance(seg, int) and not isinstance(seg, bool) and 0 < seg <= 1000 else 1
     return FitSettings(parameters=lists["parameters"], local=lists["local"], initial=lists["initial"],
-                       bounds=bounds, weights=weights, multiple_shooting=seg if isinstance(seg, int) and seg > 0 else 1,
+                       bounds=saved_bounds(saved), weights=saved_weights(saved), multiple_shooting=seg,
                        t_start=project.solver.t_start, method=project.solver.method)
 
 
@@ -209,4 +229,4 @@ def fit_section(project, system, result=None, reason: str = "") -> str:
     return "\n".join(out)
 
 
-__all__ = ["fit_for_report", "fit_section", "fit_settings_from_project", "svg_plot"]
+__all__ = ["fit_for_report", "fit_section", "fit_settings_from_project", "saved_bounds", "saved_weights", "svg_plot"]

@@ -35,6 +35,8 @@ VIEW_SETTINGS: dict[str, dict] = {
                     "locus_kind": ("fold", "Hopf"), "param2": "parameter", "from2": "number", "to2": "number",
                     "tab": "integer", "branches": "list", "response": "table", "stepped_sweeps": "list",
                     "locus": "table"},
+    "fit": {"parameters": "list", "local": "list", "initial": "list", "bounds": "list", "weights": "list",
+            "segments": "integer", "max_evaluations": "integer"},
     "lyapunov": {"flow": {"length": "number", "transient": "number"},
                  "map": {"steps": "integer", "transient": "integer"}, "dt": "number", "auto": "bool"},
 }

@@ -15,6 +15,7 @@ from PySide6.QtWidgets import (QAbstractItemView, QComboBox, QHeaderView, QInput
                                QWidget)
 
 from orbitdesk.core.fitting import FitSettings, fit, predict
+from orbitdesk.core.report_fit import saved_bounds, saved_weights
 
 from ..datastore import data_store
 from ..plot_style import JobStrip, hint_label, number_text
@@ -198,15 +199,19 @@ class FitView(SessionView):
     # ------------------------------------------------------------ view protocol
     def view_settings(self) -> dict:
         self._read_choices()
-        return {**self._choices, "segments": self.segments.value(), "max_evaluations": self.max_evals.value()}
+        ch = self._choices
+        return {"parameters": list(ch["parameters"]), "local": list(ch["local"]), "initial": list(ch["initial"]),
+                "bounds": [[k, lo, hi] for k, (lo, hi) in ch["bounds"].items()],
+                "weights": [[k, w] for k, w in ch["weights"].items()],
+                "segments": self.segments.value(), "max_evaluations": self.max_evals.value()}
 
     def apply_view_settings(self, d: dict) -> None:
         if not isinstance(d, dict):
             d = {}
         self._choices = {k: [x for x in d.get(k, []) if isinstance(x, str)] if isinstance(d.get(k), list) else []
                          for k in ("parameters", "local", "initial")}
-        for k in ("bounds", "weights"):
-            self._choices[k] = d.get(k) if isinstance(d.get(k), dict) else {}
+        self._choices["bounds"] = saved_bounds(d)
+        self._choices["weights"] = saved_weights(d)
         seg, ev = d.get("segments"), d.get("max_evaluations")
         self.segments.setValue(seg if isinstance(seg, int) and not isinstance(seg, bool) else 1)
         self.max_evals.setValue(ev if isinstance(ev, int) and not isinstance(ev, bool) else 400)
@@ -289,7 +294,7 @@ class FitView(SessionView):
                 pair = [_parse_bound(self.unknowns.item(r, 3).text()), _parse_bound(self.unknowns.item(r, 4).text())]
                 default = self.session.param_range(name) if kind == "parameter" else (None, None)
                 if [None if v is None else float(_bound_text(v)) for v in default] != pair:
-                    bounds[name] = pair  # only bounds the user changed; the rest follow the slider ranges
+                    bounds[name] = tuple(pair)  # only bounds the user changed; the rest follow the slider ranges
             ch.update(parameters=params, local=local, initial=initial, bounds=bounds)
         if self.weights.rowCount():
             weights = {}
@@ -331,7 +336,7 @@ class FitView(SessionView):
                 self.unknowns.setItem(r, 2, _item("each", tip="Initial values always belong to each data set"))
                 lo = hi = None
             saved = ch.get("bounds", {}).get(name)
-            if isinstance(saved, list) and len(saved) == 2:
+            if saved is not None:
                 lo, hi = saved
             self.unknowns.setItem(r, 3, _item(_bound_text(lo), True, "Lower bound (empty: none)"))
             self.unknowns.setItem(r, 4, _item(_bound_text(hi), True, "Upper bound (empty: none)"))
@@ -364,7 +369,7 @@ class FitView(SessionView):
         self._read_choices()
         ch = self._choices
         s = self.session.solver
-        bounds = {k: tuple(v) for k, v in ch.get("bounds", {}).items()}
+        bounds = dict(ch.get("bounds", {}))
         return FitSettings(parameters=list(ch["parameters"]), local=list(ch["local"]), initial=list(ch["initial"]),
                            bounds=bounds, weights=dict(ch.get("weights", {})),
                            multiple_shooting=self.segments.value(), max_evaluations=self.max_evals.value(),
