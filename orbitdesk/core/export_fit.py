@@ -2,23 +2,23 @@
 
 The model is printed by sympy's code printers from the compiled system's expressions in generated names,
 as ``export_script`` prints a run; the data are written as Python literals (numbers by ``repr`` of
-floats, names and labels by ``repr`` of strings), so nothing from the project is ever spliced into the
-code as text. The script solves the same weighted least-squares problem as ``core.fitting`` with
-scipy's ``least_squares`` (central finite differences on tightly integrated runs instead of the
-sensitivity equations), then prints the estimates, standard errors, 95 % intervals, correlations and
-residual RMS as the ``orbitdesk fit --json`` document.
+floats, names and labels by ``ascii()``), and the title and model text appear only in comments reduced
+to printable ASCII (``export_script.comment_text``) below our own first two lines, so nothing from the
+project is ever spliced into the code as text. The script is pure ASCII. It solves the same weighted
+least-squares problem as ``core.fitting`` with scipy's ``least_squares`` (central finite differences on
+tightly integrated runs instead of the sensitivity equations), then prints the estimates, standard
+errors, 95 % intervals, correlations and residual RMS as the ``orbitdesk fit --json`` document.
 """
 
 from __future__ import annotations
 
 import math
-import re
 
 from sympy.printing.numpy import NumPyPrinter
 from sympy.printing.pycode import PythonCodePrinter
 
 from .datasets import DataSet
-from .export_script import _comment, _function
+from .export_script import _comment, _function, comment_text
 from .fitting import FitSettings, _display_names, _Problem
 from .system import MAP, CompiledSystem
 
@@ -43,22 +43,23 @@ def fit_script(system: CompiledSystem, datasets: list[DataSet], settings: FitSet
     x0 = problem.start_vector()
     names = _display_names(problem)
     is_map = system.kind == MAP
-    one_line_title = re.sub(r"[\r\n\u2028\u2029\x0b\x0c\x1c-\x1e\x85]+", " ", title)
     sets = []
     for d, ds in enumerate(datasets):
         p, u = problem.values_for(d, x0)
         cols = []
         for c in ds.columns:
-            cols.append("{" + f"'quantity': {c.quantity!r}, 'values': {_floats(c.values)}, "
+            cols.append("{" + f"'quantity': {c.quantity!a}, 'values': {_floats(c.values)}, "
                         f"'weights': {_floats(problem.weights(ds, c.quantity))}" + "}")
-        sets.append("    {" + f"'name': {ds.name!r}, 'time': {_floats(ds.time)},\n     'columns': ["
+        sets.append("    {" + f"'name': {ds.name!a}, 'time': {_floats(ds.time)},\n     'columns': ["
                     + ",\n                 ".join(cols) + f"],\n     'parameters': {_floats(p)}, "
                     f"'initial': {_floats(u)}" + "},")
-    unknowns = [f"    ({u.kind!r}, {u.index!r}, {u.dataset!r}),  # {names[j]!r}"
+    unknowns = [f"    ({u.kind!a}, {u.index!r}, {u.dataset!r}),  # {comment_text(names[j])}"
                 for j, u in enumerate(problem.unknowns)]
     head = [
         "#!/usr/bin/env python3",
-        f"# {one_line_title}: a fit to measured data, exported from OrbitDesk.",
+        "# -*- coding: utf-8 -*-",
+        "# A fit to measured data, exported from OrbitDesk.",
+        f"# Title: {comment_text(title)}",
         "# Standalone: needs numpy and scipy. Prints the estimates as JSON (the shape of `orbitdesk fit --json`).",
         "#",
         "# The model as typed:",
@@ -75,14 +76,14 @@ def fit_script(system: CompiledSystem, datasets: list[DataSet], settings: FitSet
         head.append("from scipy.integrate import solve_ivp")
     head += [
         "",
-        f"STATES = {list(system.states)!r}",
-        f"DERIVED = {list(system.derived_names)!r}",
-        f"PARAMETERS = {list(system.parameters)!r}",
+        f"STATES = {list(system.states)!a}",
+        f"DERIVED = {list(system.derived_names)!a}",
+        f"PARAMETERS = {list(system.parameters)!a}",
         f"T_START = {0.0 if is_map else float(settings.t_start)!r}",
         f"RTOL, ATOL = {float(min(settings.rtol, 1e-10))!r}, {float(min(settings.atol, 1e-12))!r}",
         "# one entry per estimated value: (kind, index of the parameter or state, data set or None = shared)",
         "UNKNOWNS = [", *unknowns, "]",
-        f"NAMES = {names!r}",
+        f"NAMES = {names!a}",
         f"START = {_floats(x0)}",
         f"LOWER = [{', '.join(_bound(v) for v in lo)}]",
         f"UPPER = [{', '.join(_bound(v) for v in hi)}]",

@@ -136,8 +136,10 @@ def export_fit_script_dialog(window) -> bool:
     path, _ = QFileDialog.getSaveFileName(window, "Export Python Script of the Fit", "fit.py", "Python script (*.py)")
     if not path:
         return False
-    try:
-        Path(path).write_text(fit_script_text(window), encoding="utf-8", newline="\n")
+    from orbitdesk.core.safe_files import atomic_write
+
+    try:  # complete or not at all, like the other exports
+        atomic_write(str(path), fit_script_text(window).encode("utf-8"), 0o755)
     except (ValueError, OSError) as e:
         QMessageBox.warning(window, "Export", f"The script of the fit could not be written: {e}")
         return False

@@ -89,3 +89,18 @@ def test_report_shows_data_over_fitted_model_and_estimates():
     k1 = result.estimates[0]
     assert f"{k1.value:.7g}" in text and "95 % interval" in text.replace("\u00a0", " ")
     assert "Correlations" in text
+
+
+def test_hostile_names_stay_out_of_the_code(tmp_path):
+    """Data set names, title and model comments with line ends of every kind, coding declarations and quotes:
+    the script is ASCII, compiles, and none of them becomes a statement (the rules of export_script)."""
+    system = compile_model("# -*- coding: latin-1 -*- \"\"\" import os\n" + MODEL)
+    sets = batches()
+    sets[0].name = "a'\"\u2028\x0cimport os; os.system('x')\r\n#"
+    text = fit_script(system, sets, FitSettings(parameters=["k1"]), title="t\u2029\x85import os\n# -*- coding: latin-1 -*-")
+    assert text.isascii()
+    assert text.splitlines()[1] == "# -*- coding: utf-8 -*-"
+    compile(text, "fit.py", "exec")
+    for line in text.splitlines():
+        if "import os" in line:
+            assert line.lstrip().startswith("#") or "'name':" in line, line
