@@ -719,6 +719,7 @@ train_centre = sum(x_{j}, j in 1..N)/N
          {"open_views": ["timeseries"]}),
     ])
 
+
 # ---------------------------------------------------------------- a plucked bracket, fitted to an invented record
 
 BRACKET_MODEL = """\
