@@ -115,3 +115,20 @@ def test_cancel_stops_continuation():
     token.cancel()
     with pytest.raises(Cancelled):
         steady_branches(compile_model(LORENZ), "r", 0, 30, cancel=token)
+
+
+def test_a_closed_branch_is_recognised():
+    # x' = x^2 + p^2 - 1: the equilibria form the unit circle in (p, x) (closed form); folds at p = +-1
+    result = steady_branches(compile_model("p = 0\nx' = x^2 + p^2 - 1\nx(0) = 1\n"), "p", -2, 2)
+    (branch,) = result.branches  # the two equilibria at p = 0 lie on one closed branch
+    assert "the branch closed on itself" in branch.reasons
+    assert np.allclose(branch.points[0] ** 2 + branch.values ** 2, 1, atol=1e-10)
+    assert sorted(s.value for s in branch.special if s.type == FOLD) == pytest.approx([-1, 1], abs=1e-10)
+
+
+def test_a_failing_corrector_ends_the_branch_in_plain_words():
+    # sqrt(p) is undefined for p < 0: the branch x = sqrt(p) cannot be followed past p = 0
+    result = steady_branches(compile_model("p = 0.5\nx' = sqrt(p) - x\nx(0) = 0.7\n"), "p", -1, 1)
+    (branch,) = result.branches
+    assert branch.values.min() >= 0 and branch.values.max() == pytest.approx(1)
+    assert any("smallest step" in reason for reason in branch.reasons)

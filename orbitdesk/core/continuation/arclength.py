@@ -136,6 +136,8 @@ def continue_curve(problem, x0, tangent0, lo: float, hi: float, settings: StepSe
     for d, t in enumerate(directions):
         runs.append(_one_direction(problem, np.asarray(x0, float), t, lo, hi, settings, cancel,
                                    report.part(d / len(directions), 1 / len(directions))))
+        if runs[-1][4] == STEP_REASONS["closed"]:
+            break  # a closed branch is complete after one way round
     if len(runs) == 1:
         xs, ts, data, special, reason = runs[0]
         return Curve(xs, ts, data, special, [reason])

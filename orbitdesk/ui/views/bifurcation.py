@@ -122,7 +122,7 @@ class BifurcationView(SessionView):
         split = QSplitter(Qt.Orientation.Vertical)
         split.addWidget(self.plot_widget)
         split.addWidget(self.table)
-        split.setStretchFactor(0, 4)
+        split.setStretchFactor(0, 3)
         split.setStretchFactor(1, 1)
         layout.addWidget(split, 1)
 
@@ -468,6 +468,7 @@ class BifurcationView(SessionView):
         if self.response is not None:
             self._draw_response()
         self._draw_specials()
+        self._place_legend()
         self._fill_table()
         self.plot.setLabel("bottom", self._x_name())
         self.plot.setLabel("left", self._y_label())
@@ -547,6 +548,7 @@ class BifurcationView(SessionView):
                 item.setToolTip(text)
                 self.table.setItem(row, col, item)
         self.table.resizeColumnsToContents()
+        self.table.resizeRowsToContents()
 
     @staticmethod
     def _meaning(s, response=False) -> str:
@@ -597,6 +599,30 @@ class BifurcationView(SessionView):
             for col, text in enumerate(cells):
                 self.locus_table.setItem(row, col, QTableWidgetItem(text))
         self.locus_table.resizeColumnsToContents()
+
+    def _place_legend(self) -> None:
+        """Put the legend in the corner of the plot where the fewest drawn points lie."""
+        xs, ys = [], []
+        for item in self.plot.listDataItems():
+            x, y = item.getData() if hasattr(item, "getData") else (None, None)
+            if x is not None and len(x):
+                xs.append(np.asarray(x, float))
+                ys.append(np.asarray(y, float))
+        if not xs:
+            return
+        x, y = np.concatenate(xs), np.concatenate(ys)
+        ok = np.isfinite(x) & np.isfinite(y)
+        x, y = x[ok], y[ok]
+        if not x.size:
+            return
+        (x0, x1), (y0, y1) = (x.min(), x.max()), (y.min(), y.max())
+        u = (x - x0) / max(x1 - x0, 1e-300)
+        v = (y - y0) / max(y1 - y0, 1e-300)
+        corners = {(0, 0): (u < 0.4) & (v > 0.6), (1, 0): (u > 0.6) & (v > 0.6),
+                   (0, 1): (u < 0.4) & (v < 0.4), (1, 1): (u > 0.6) & (v < 0.4)}
+        corner = min(corners, key=lambda c: (int(np.sum(corners[c])), c[1], -c[0]))
+        offset = (8 if corner[0] == 0 else -8, 8 if corner[1] == 0 else -8)
+        self.legend.anchor(itemPos=corner, parentPos=corner, offset=offset)
 
     def _x_span(self) -> tuple[float, float]:
         values = [b.values for b in self.branches] + ([self.response.values] if self.response is not None else [])
