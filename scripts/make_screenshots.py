@@ -156,6 +156,13 @@ def insect_generations_sweep(sh: Shooter) -> None:
     sh.save("insect_generations_sweep")
 
 
+def stirred_tank_bifurcation(sh: Shooter) -> None:
+    """A stirred tank that ignites and goes out: the S-shaped branch with its two folds."""
+    sh.open_sample("stirred_tank")
+    sh.show_step(3)
+    sh.save("stirred_tank_bifurcation")
+
+
 def walkthrough_presenting(sh: Shooter) -> None:
     """A walkthrough in presenting mode: full screen, large type."""
     sh.open_sample("pond_predators")
@@ -200,7 +207,7 @@ def bracket_fit(sh: Shooter) -> None:
 
 
 SHOTS = [convection_loop_3d, shaken_beam_sections, pendulum_separatrix, insect_generations_sweep,
-         walkthrough_presenting, language_reference, bracket_fit]
+         stirred_tank_bifurcation, walkthrough_presenting, language_reference, bracket_fit]
 
 
 def main(argv=None) -> int:
