@@ -43,8 +43,9 @@ def steady_branches(system: CompiledSystem, param: str, lo: float, hi: float, p=
     """Branches of equilibria (flows) or of fixed points of f^K (maps, K = ``map_period``)."""
     lo, hi = check_interval(system, param, lo, hi)
     if not system.autonomous_at(p) and system.kind != MAP:
-        raise ValueError(f"the equations depend on {system.time_name}: a forced flow has no equilibria; "
-                         "continue its periodic response instead")
+        raise ValueError(f"the equations depend on {system.time_name}: a forced flow has no equilibria; follow "
+                         "its periodic response instead (orbitdesk response, or the bifurcation diagram's "
+                         "forced response)")
     report = Reporter(progress, cancel)
     funcs = ModelFunctions(system)
     k = funcs.param_index(param)
