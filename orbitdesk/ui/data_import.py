@@ -8,12 +8,12 @@ project (an undoable step).
 from __future__ import annotations
 
 from PySide6.QtGui import QAction
-from PySide6.QtWidgets import (QComboBox, QDialog, QDialogButtonBox, QFileDialog, QFormLayout, QLabel, QMessageBox,
-                               QVBoxLayout)
+from PySide6.QtWidgets import QComboBox, QDialog, QDialogButtonBox, QFileDialog, QFormLayout, QVBoxLayout
 
 from orbitdesk.core.datasets import DataError, DataSet, read_data_file
 
 from .datastore import data_store
+from .plain_text import plain_label, plain_message, rich_tip
 
 LEAVE_OUT = "(leave out)"
 FILE_FILTER = "Data files (*.csv *.txt *.dat *.tsv);;All files (*)"
@@ -27,8 +27,8 @@ class MappingDialog(QDialog):
         self.setWindowTitle("Match the columns to the model")
         self.dataset = dataset
         layout = QVBoxLayout(self)
-        intro = QLabel(f"Some columns of {dataset.source or dataset.name} are not named after a state or derived "
-                       "quantity of the model. Choose what each one measures, or leave it out.")
+        intro = plain_label(f"Some columns of {dataset.source or dataset.name} are not named after a state or "
+                            "derived quantity of the model. Choose what each one measures, or leave it out.")
         intro.setWordWrap(True)
         layout.addWidget(intro)
         form = QFormLayout()
@@ -37,11 +37,11 @@ class MappingDialog(QDialog):
         for name in dataset.unmatched(names):
             combo = QComboBox()
             combo.addItems([LEAVE_OUT] + [n for n in names if n not in taken])
-            combo.setToolTip(f"The model quantity that column '{name}' measures")
-            form.addRow(dataset.column(name).label, combo)
+            combo.setToolTip(rich_tip(f"The model quantity that column '{name}' measures"))
+            form.addRow(plain_label(dataset.column(name).label), combo)
             self.choices[name] = combo
         layout.addLayout(form)
-        self.problem = QLabel()
+        self.problem = plain_label()
         self.problem.setWordWrap(True)
         layout.addWidget(self.problem)
         buttons = QDialogButtonBox(QDialogButtonBox.StandardButton.Ok | QDialogButtonBox.StandardButton.Cancel)
@@ -84,7 +84,7 @@ def import_file(window, path) -> DataSet | None:
     try:
         ds = read_data_file(path, kind=kind)
     except DataError as e:
-        QMessageBox.warning(window, "Import data", f"This file cannot be imported:\n\n{e}\n\nNothing was imported.")
+        plain_message(window, "warning", "Import data", f"This file cannot be imported:\n\n{e}\n\nNothing was imported.")
         return None
     names = model_quantities(session)
     if names and ds.unmatched(names):
@@ -141,7 +141,7 @@ def export_fit_script_dialog(window) -> bool:
     try:  # complete or not at all, like the other exports
         atomic_write(str(path), fit_script_text(window).encode("utf-8"), 0o755)
     except (ValueError, OSError) as e:
-        QMessageBox.warning(window, "Export", f"The script of the fit could not be written: {e}")
+        plain_message(window, "warning", "Export", f"The script of the fit could not be written: {e}")
         return False
     window.statusBar().showMessage(f"Wrote a script that reproduces the fit: {Path(path).name}", 8000)
     return True

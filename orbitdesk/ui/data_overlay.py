@@ -12,6 +12,7 @@ import pyqtgraph as pg
 from PySide6.QtGui import QColor
 
 from .datastore import data_store
+from .plain_text import rich_tip
 
 SYMBOLS = ["o", "s", "t", "d", "+", "x", "star", "p"]
 TIME = "time"
@@ -61,7 +62,7 @@ class DataOverlay:
         fill.setAlpha(0 if hollow else 150)
         item = pg.PlotDataItem(x, y, pen=None, symbol=symbol, symbolSize=size, symbolBrush=fill,
                                symbolPen=pg.mkPen(colour, width=1.0), name=name)
-        item.setToolTip(f"measured: {name}")
+        item.setToolTip(rich_tip(f"measured: {name}"))
         item.setZValue(-1)
         self.plot.addItem(item)
         self.items.append(item)

@@ -117,3 +117,32 @@ MARKUP_PIECES = ["<h1>", "</h1>", "<img src=x onerror=y>", "<a href='file:///'>"
 def test_any_text_in_a_tool_tip_is_shown_as_itself(text):
     # (QTextDocument.toPlainText gives no-break spaces back as plain spaces)
     assert shown_by_qt(rich_tip(text)) == text.replace("\xa0", " ")
+
+
+def test_imported_data_names_and_errors_are_shown_literally(qtbot, window, tmp_path, message_boxes, monkeypatch):
+    from PySide6.QtWidgets import QDialog
+
+    from orbitdesk.ui import data_import
+
+    window.session.set_text("x' = -x\nx(0) = 1\n")
+    window.session.validate_now()
+    qtbot.waitUntil(lambda: window.session.system is not None, timeout=10000)
+    bad = tmp_path / "bad.csv"
+    bad.write_text("t,x\n0,1\n1,<img src=x>\n")
+    assert data_import.import_file(window, bad) is None
+    box = message_boxes.boxes[-1]
+    assert box.textFormat() == Qt.TextFormat.PlainText
+    seen = {}
+
+    def look(dialog):
+        seen["labels"] = [(label.text(), label.textFormat()) for label in dialog.findChildren(QLabel)]
+        seen["tips"] = [shown_by_qt(c.toolTip()) for c in dialog.choices.values()]
+        return QDialog.DialogCode.Rejected
+
+    monkeypatch.setattr(data_import.MappingDialog, "exec", look)
+    path = tmp_path / "run <b>1.csv"
+    path.write_text("t,disp [<h1>mm</h1>]\n0,1\n1,0.5\n")  # a unit may be any text
+    assert data_import.import_file(window, path) is None
+    assert ("disp [<h1>mm</h1>]", Qt.TextFormat.PlainText) in seen["labels"]
+    assert all(fmt == Qt.TextFormat.PlainText for text, fmt in seen["labels"] if "<" in text)
+    assert any("run <b>1.csv" in text for text, _ in seen["labels"])

@@ -161,6 +161,7 @@ class FitView(SessionView):
         self.results.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
         self.summary = QLabel()
         self.summary.setWordWrap(True)
+        self.summary.setTextFormat(Qt.TextFormat.PlainText)
         self.correlation = _table([], "Correlations of the estimates (strong ones, above 0.95, are marked)")
         self.correlation.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
         self.correlation.verticalHeader().setVisible(True)
