@@ -77,7 +77,8 @@ from PySide6.QtCore import QEventLoop, QStandardPaths, QTimer
 QStandardPaths.setTestModeEnabled(True)
 from orbitdesk.ui.app import make_application
 app = make_application(["orbitdesk-benchmark"])
-from orbitdesk.core.project import Project, SolverSettings
+from orbitdesk.core.integrators import RunSettings
+from orbitdesk.core.project import Project
 from orbitdesk.ui.main_window import MainWindow
 
 def wait(done, seconds):
@@ -100,7 +101,7 @@ session = window.session
 if sys.argv[2] == "trace":
     tracemalloc.start()
 session.load_project(Project(name="memory", model=sys.argv[1],
-                             solver=SolverSettings(t_end=1000, rtol=1e-9, atol=1e-9, samples=int(sys.argv[3]))))
+                             solver=RunSettings(t_end=1000, rtol=1e-9, atol=1e-9, samples=int(sys.argv[3]))))
 wait(lambda: session.trajectory is not None and not session.busy, 600)
 dock.raise_()
 for k in range(10):

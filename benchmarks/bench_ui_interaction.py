@@ -41,7 +41,8 @@ from PySide6.QtCore import QEvent, QEventLoop, QObject, QStandardPaths, QTimer
 QStandardPaths.setTestModeEnabled(True)
 from orbitdesk.ui.app import make_application
 app = make_application(["orbitdesk-benchmark"])
-from orbitdesk.core.project import Project, SolverSettings
+from orbitdesk.core.integrators import RunSettings
+from orbitdesk.core.project import Project
 from orbitdesk.ui.main_window import MainWindow
 
 def wait(done, seconds):
@@ -65,7 +66,7 @@ SLIDER = CHILD_SETUP + r"""
 import orbitdesk.core.engine as engine
 
 VDP = "mu = 1.5 in [0.5, 3]\nx' = y\ny' = mu*(1 - x^2)*y - x\nx(0) = 2\ny(0) = 0\n"
-session.load_project(Project(name="slider", model=VDP, solver=SolverSettings(t_end=100.0, samples=20000)))
+session.load_project(Project(name="slider", model=VDP, solver=RunSettings(t_end=100.0, samples=20000)))
 wait(lambda: session.trajectory is not None and not session.busy, 120)
 wait(lambda: False, 0.5)
 view = window.views["phase_plane"]
@@ -146,7 +147,7 @@ dock = window.view_docks["phase_space_3d"]
 dock.show()
 dock.raise_()
 view = window.ensure_view("phase_space_3d")
-session.load_project(Project(name="orbit", model=LORENZ, solver=SolverSettings(t_end=1000.0, samples=1_000_000)))
+session.load_project(Project(name="orbit", model=LORENZ, solver=RunSettings(t_end=1000.0, samples=1_000_000)))
 wait(lambda: session.trajectory is not None and not session.busy, 600)
 wait(lambda: False, 1.0)
 scene = view.glview

@@ -1,6 +1,8 @@
 """``orbitdesk run PATH ...``: one run of a flow or a map, as JSON or CSV."""
 
-from orbitdesk.core.engine import METHODS, RunSettings, simulate
+from orbitdesk.core.engine import simulate
+from orbitdesk.core.integrators.methods import NAMES
+from orbitdesk.core.integrators.settings import RunSettings, SettingsError
 from orbitdesk.core.system import MAP
 
 from .common import (CommandError, add_value_options, load_system, parse_number, parse_positive, print_json, read_source,
@@ -15,7 +17,7 @@ def register(sub):
     span.add_argument("--steps", type=int, metavar="N", help="iterations of a map")
     parser.add_argument("--samples", type=int, metavar="K", help="output points of a flow")
     add_value_options(parser)
-    parser.add_argument("--method", choices=METHODS, help="integration method")
+    parser.add_argument("--method", choices=NAMES, help="integration method")
     parser.add_argument("--rtol", type=str, metavar="R")
     parser.add_argument("--atol", type=str, metavar="A")
     parser.add_argument("--csv", metavar="FILE", help="write the run as CSV")
@@ -25,28 +27,24 @@ def register(sub):
 
 def settings_for(source, args) -> RunSettings:
     """Run settings: defaults, then the project's solver settings, then the command's options."""
-    settings = RunSettings()
-    if source.project is not None:
-        stored = source.project.solver
-        for name in ("method", "rtol", "atol", "max_step", "dt", "t_start", "t_end", "samples", "steps", "transient"):
-            if hasattr(stored, name) and getattr(stored, name) is not None:
-                setattr(settings, name, getattr(stored, name))
+    settings = source.project.solver if source.project is not None else RunSettings()
+    changes = {}
     if getattr(args, "t_end", None) is not None:
-        settings.t_end = parse_number(args.t_end, "--t-end")
+        changes["t_end"] = parse_number(args.t_end, "--t-end")
     if getattr(args, "steps", None) is not None:
-        if args.steps < 1:
-            raise CommandError("--steps must be at least 1")
-        settings.steps = args.steps
+        changes["steps"] = args.steps
     if getattr(args, "samples", None) is not None:
-        if args.samples < 2:
-            raise CommandError("--samples must be at least 2")
-        settings.samples = args.samples
+        changes["samples"] = args.samples
     if getattr(args, "method", None):
-        settings.method = args.method
+        changes["method"] = args.method
     for name in ("rtol", "atol"):
         if getattr(args, name, None) is not None:
-            setattr(settings, name, parse_positive(getattr(args, name), f"--{name}"))
-    return settings
+            changes[name] = parse_positive(getattr(args, name), f"--{name}")
+    try:
+        return settings.replace(**changes)
+    except SettingsError as problem:
+        option = "--" + problem.name.replace("_", "-")
+        raise CommandError(f"{option if problem.name in changes else problem.name}: {problem.message}") from None
 
 
 def run(args) -> int:
@@ -54,8 +52,6 @@ def run(args) -> int:
     system = load_system(source)
     p, u0 = values_for(system, source, args.set, args.init)
     settings = settings_for(source, args)
-    if system.kind != MAP and settings.t_end == settings.t_start:
-        raise CommandError("--t-end must differ from the start time")
     traj = simulate(system, settings, u0, p, progress=stderr_progress("run"))
     time_key = "n" if system.kind == MAP else "t"
     if args.csv:

@@ -14,33 +14,20 @@ from dataclasses import dataclass, field
 from typing import Callable
 
 import numpy as np
-from scipy.integrate import DOP853, RK45, Radau, ode
+import scipy.integrate
+from scipy.integrate import ode
 from scipy.optimize import brentq
 
+from .integrators.methods import NAMES
+from .integrators.settings import RunSettings
+from .integrators.status import CANCELLED, DIVERGED, OK, STEP_FAILED, UNDEFINED
 from .progress import CancelToken, Cancelled, Reporter
 from .system import MAP, CompiledSystem, UndefinedValue
 
 # scipy's compiled DOP853 also warns about the failures it returns; the engine reports them itself
 warnings.filterwarnings("ignore", message=r"dop853: ", category=UserWarning)
 
-OK, DIVERGED, UNDEFINED, CANCELLED, STEP_FAILED = "ok", "diverged", "undefined", "cancelled", "step_failed"
-METHODS = ("dop853", "rk45", "stiff", "rk4")
-_SOLVERS = {"dop853": DOP853, "rk45": RK45, "stiff": Radau}
-
-
-@dataclass
-class RunSettings:
-    method: str = "dop853"
-    rtol: float = 1e-8
-    atol: float = 1e-10
-    max_step: float | None = None
-    dt: float = 0.01  # fixed step of rk4
-    t_start: float = 0.0
-    t_end: float = 100.0
-    samples: int = 4000  # output points over [t_start, t_end]; 0 = every step
-    steps: int = 1000  # iterations of a map
-    bound: float = 1e10  # |state| beyond this counts as blow-up
-    transient: float = 0.0  # output before t_start + transient is dropped
+METHODS = NAMES
 
 
 @dataclass
@@ -125,7 +112,7 @@ def simulate(system: CompiledSystem, settings: RunSettings | None = None, u0=Non
         raise ValueError(f"unknown method '{settings.method}'; choose one of {', '.join(METHODS)}")
     if settings.method == "dop853" and not events and system.smooth:
         if settings.samples > FILL_ABOVE:
-            probe = RunSettings(**{**settings.__dict__, "samples": 0, "transient": 0.0})
+            probe = settings.replace(samples=0, transient=0.0)
             steps = _integrate_compiled(system, probe, u0, p, report)
             if settings.samples > 2 * steps.time.size:
                 return _fill_between_steps(system, settings, steps, p)
@@ -284,9 +271,9 @@ def _integrate(system, settings, u0, p, events, report) -> Trajectory:
             kwargs = dict(rtol=settings.rtol, atol=settings.atol)
             if settings.max_step:
                 kwargs["max_step"] = settings.max_step
-            if settings.method == "stiff":
+            if settings.method_info.stiff:
                 kwargs["jac"] = lambda t, y: system.jac(t, y, p)
-            solver = _SOLVERS[settings.method](fun, t0, u0, t1, **kwargs)
+            solver = getattr(scipy.integrate, settings.method_info.scipy_name)(fun, t0, u0, t1, **kwargs)
         if sample_t is None:
             ts.append(t0)
             ys.append(u0.copy())

@@ -30,10 +30,9 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.integrate import RK45
 
+from .integrators.status import DIVERGED, OK, STEP_FAILED, UNDEFINED
+from .integrators.status import WIDTH as _STATUS_WIDTH
 from .progress import Reporter
-
-OK, DIVERGED, UNDEFINED, STEP_FAILED = "ok", "diverged", "undefined", "step_failed"
-_STATUS_WIDTH = "<U12"
 
 
 @dataclass

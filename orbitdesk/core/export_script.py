@@ -23,10 +23,9 @@ import re
 import sympy as sp
 from sympy.printing.pycode import PythonCodePrinter
 
-from .engine import RunSettings
+from .integrators.settings import RunSettings
 from .system import MAP, CompiledSystem, VectorPrinter
 
-SCIPY_METHODS = {"dop853": "dop853 (scipy.integrate.ode)", "rk45": "RK45", "stiff": "Radau"}
 
 
 def comment_text(text: str) -> str:
@@ -67,10 +66,7 @@ def run_script(system: CompiledSystem, settings: RunSettings | None = None, u0=N
     u0 = list(system.initial if u0 is None else u0)
     p = list(system.param_values if p is None else p)
     is_map = system.kind == MAP
-    if not is_map and settings.method not in SCIPY_METHODS and settings.method != "rk4":
-        raise ValueError(f"unknown method '{settings.method}'")
-    if not is_map and settings.t_end == settings.t_start:
-        raise ValueError("the end time must differ from the start time")
+    method = settings.method_info
     math_printer = PythonCodePrinter()
     np_printer = VectorPrinter()  # the compiled system's printer: if() as numpy.where
     time_name = "n" if is_map else "t"
@@ -107,7 +103,9 @@ def run_script(system: CompiledSystem, settings: RunSettings | None = None, u0=N
     else:
         max_step = float(settings.max_step) if settings.max_step else None
         head += [
-            f"METHOD = {settings.method!a}",
+            f"METHOD = {settings.method!a}  # {comment_text(method.label)}",
+            f"SOLVER = {method.scipy_name!a}  # scipy's solve_ivp method (None: the fixed-step loop below)",
+            f"STIFF = {method.stiff!r}",
             f"SMOOTH = {bool(system.smooth)!r}  # False: the model uses abs, min, sign, ... (kinks)",
             f"RTOL = {float(settings.rtol)!r}",
             f"ATOL = {float(settings.atol)!r}",
@@ -123,7 +121,7 @@ def run_script(system: CompiledSystem, settings: RunSettings | None = None, u0=N
         parts.append(_function("step", ["n", "u", "p"], system, system.f, math_printer))
     else:
         parts.append(_function("rhs", ["t", "u", "p"], system, system.f, np_printer))
-        if settings.method == "stiff":
+        if method.stiff:
             n = system.n_states
             jac = _function("_jac_entries", ["t", "u", "p"], system, list(system.jacobian), np_printer)
             parts.append(jac + f"\n\n\ndef jac(t, u, p):\n    return numpy.array(_jac_entries(t, u, p), "
@@ -179,7 +177,7 @@ def run():
     """Integrate from T_START to T_END; returns the sample times and the states (one row per state)."""
     p = list(PARAMETERS.values())
     t_eval = numpy.linspace(T_START, T_END, SAMPLES)
-    if METHOD == "rk4":
+    if SOLVER is None:
         time, states = rk4(rhs, T_START, T_END, INITIAL, DT, t_eval, (p,))
     elif METHOD == "dop853" and SMOOTH:
         # Dormand-Prince 8(5,3) stopped exactly at every output time (no interpolation).
@@ -202,11 +200,10 @@ def run():
         options = {"rtol": RTOL, "atol": ATOL}
         if MAX_STEP:
             options["max_step"] = MAX_STEP
-        if METHOD == "stiff":
+        if STIFF:
             options["jac"] = jac
         # models with kinks (abs, min, sign, ...) step with scipy's Python Dormand-Prince, like the original run
-        solver = {"dop853": "DOP853", "rk45": "RK45", "stiff": "Radau"}[METHOD]
-        solution = solve_ivp(rhs, (T_START, T_END), INITIAL, method=solver, t_eval=t_eval, args=(p,), **options)
+        solution = solve_ivp(rhs, (T_START, T_END), INITIAL, method=SOLVER, t_eval=t_eval, args=(p,), **options)
         if solution.status < 0:
             print("integration stopped early:", solution.message, file=sys.stderr)
         time, states = solution.t, solution.y
@@ -253,4 +250,4 @@ if __name__ == "__main__":
     sys.exit(main(sys.argv))'''
 
 
-__all__ = ["SCIPY_METHODS", "comment_text", "run_script"]
+__all__ = ["comment_text", "run_script"]

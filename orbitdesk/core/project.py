@@ -26,6 +26,7 @@ import stat
 from dataclasses import dataclass, field
 
 from orbitdesk.core import safe_files
+from orbitdesk.core.integrators.settings import RULES, SAVED, RunSettings, SettingsError
 from orbitdesk.core.safe_files import DiskState, current_state, state_of
 
 FORMAT_NAME = "orbitdesk-project"
@@ -37,7 +38,6 @@ MAX_KEY = 1000                  # keys of free objects
 MAX_NAME = 100                  # parameter / state names
 MAX_INT = 2**63
 MAX_PARAMETER_SETS = 100        # kept alternative parameter sets
-METHODS = ("dop853", "rk45", "stiff", "rk4")
 _NAME_RE = re.compile(r"[A-Za-z_][A-Za-z0-9_]*'*")
 _PLAIN_KEY_RE = re.compile(r"[A-Za-z_][A-Za-z0-9_]*")
 _TOKEN_RE = re.compile(r'"[^"\\]*(?:\\.[^"\\]*)*"|[\[\]{}]', re.S)
@@ -51,20 +51,6 @@ class ProjectError(Exception):
         super().__init__(f"{path}: {message}")
         self.path = path
         self.message = message
-
-
-@dataclass
-class SolverSettings:
-    method: str = "dop853"
-    rtol: float = 1e-8
-    atol: float = 1e-10
-    max_step: float | None = None
-    dt: float = 0.01            # fixed step for rk4
-    t_start: float = 0.0
-    t_end: float = 100.0
-    samples: int = 4000
-    steps: int = 1000           # iterations for maps
-    transient: float = 0.0
 
 
 @dataclass
@@ -87,7 +73,7 @@ class Project:
     model: str = ""
     parameters: dict[str, ParameterSetting] = field(default_factory=dict)
     initial: dict[str, float] = field(default_factory=dict)
-    solver: SolverSettings = field(default_factory=SolverSettings)
+    solver: RunSettings = field(default_factory=RunSettings)
     views: dict[str, dict] = field(default_factory=dict)
     walkthrough: list[WalkthroughStep] = field(default_factory=list)
     notes: str = ""
@@ -292,18 +278,21 @@ def project_from_dict(d) -> Project:
         version += 1
 
     def solver(v, path):
-        s = _fields(v, path, {
-            "method": (_text, "dop853"), "rtol": (_positive, 1e-8), "atol": (_positive, 1e-10),
-            "max_step": (lambda x, p: None if x is None else _positive(x, p), None), "dt": (_positive, 0.01),
-            "t_start": (_num, 0.0), "t_end": (_num, 100.0), "samples": (_int_in(2, 10**7), 4000),
-            "steps": (_int_in(1, 10**8), 1000), "transient": (_num, 0.0)}, warnings)
-        if s["method"] not in METHODS:
-            raise ProjectError(_sub(path, "method"), f"expected one of {', '.join(METHODS)}, got {s['method']!r}")
-        if s["t_end"] == s["t_start"]:
-            raise ProjectError(_sub(path, "t_end"), "must differ from t_start")
-        if s["transient"] < 0:
-            raise ProjectError(_sub(path, "transient"), "must not be negative")
-        return SolverSettings(**s)
+        values = {}
+        for key, x in _obj(v, path).items():
+            if key not in SAVED:
+                warnings.append(f"{_sub(path, key)}: unknown key ignored")
+                continue
+            kind = RULES[key][0]
+            if x is not None and kind == "count":
+                x = _int_in(-MAX_INT, MAX_INT)(x, _sub(path, key))
+            elif x is not None and kind != "method":
+                x = _num(x, _sub(path, key))
+            values[key] = x
+        try:
+            return RunSettings.from_mapping(values)
+        except SettingsError as problem:
+            raise ProjectError(_sub(path, problem.name), problem.message) from None
 
     def parameter(v, path):
         p = ParameterSetting(**_fields(v, path, {"value": (_num, _REQUIRED), "lo": (_opt_num, None),
@@ -337,7 +326,7 @@ def project_from_dict(d) -> Project:
     const = lambda v, p: v  # noqa: E731  (format/version already checked)
     f = _fields(d, "$", {
         "format": (const, None), "version": (const, None), "name": (_text, "Untitled"), "model": (_text, ""),
-        "parameters": (_named(parameter), {}), "initial": (_named(_num), {}), "solver": (solver, SolverSettings()),
+        "parameters": (_named(parameter), {}), "initial": (_named(_num), {}), "solver": (solver, RunSettings()),
         "views": (views, {}), "walkthrough": (steps, []), "notes": (_text, ""),
         "datasets": (datasets, []), "parameter_sets": (parameter_sets, {})}, warnings)
     del f["format"], f["version"]
@@ -357,7 +346,7 @@ def _raw(p: Project) -> dict:
             "format": FORMAT_NAME, "version": FORMAT_VERSION, "name": p.name, "model": p.model,
             "parameters": {k: {"value": v.value, "lo": v.lo, "hi": v.hi} for k, v in p.parameters.items()},
             "initial": dict(p.initial),
-            "solver": {k: getattr(p.solver, k) for k in SolverSettings.__dataclass_fields__},
+            "solver": p.solver.saved(),
             "views": dict(p.views),
             "walkthrough": [{"title": w.title, "note": w.note, "snapshot": w.snapshot} for w in p.walkthrough],
             "notes": p.notes,

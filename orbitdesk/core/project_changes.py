@@ -4,7 +4,8 @@ from __future__ import annotations
 
 import difflib
 
-from orbitdesk.core.project import Project, SolverSettings
+from orbitdesk.core.integrators.settings import SAVED
+from orbitdesk.core.project import Project
 
 
 def _num(x) -> str:
@@ -46,7 +47,7 @@ def describe_changes(mine: Project, theirs: Project) -> list[str]:
         out.append(f"Model text: {removed} line(s) here differ from {added} line(s) on disk")
     out += _table("Parameter", mine.parameters, theirs.parameters, _setting)
     out += _table("Initial value", mine.initial, theirs.initial, _num)
-    for key in SolverSettings.__dataclass_fields__:
+    for key in SAVED:
         a, b = getattr(mine.solver, key), getattr(theirs.solver, key)
         if a != b:
             out.append(f"Solver {key.replace('_', ' ')}: {_num(a)} here, {_num(b)} on disk")

@@ -288,8 +288,8 @@ def render_report(project, system, figures: dict | None = None, equilibria=None,
     if is_map:
         run = f"{s.steps} iterations"
     else:
-        run = (f"from {t} = {_num(s.t_start)} to {_num(s.t_end)}, {s.samples} samples, method {_e(s.method)}"
-               + (f" (step {_num(s.dt)})" if s.method == "rk4" else
+        run = (f"from {t} = {_num(s.t_start)} to {_num(s.t_end)}, {s.samples} samples, method {_e(s.method_info.label)}"
+               + (f" (step {_num(s.dt)})" if not s.method_info.adaptive else
                   f", tolerances {_num(s.rtol)} relative / {_num(s.atol)} absolute"))
         if s.transient:
             run += f", first {_num(s.transient)} discarded as transient"

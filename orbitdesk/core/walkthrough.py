@@ -2,7 +2,7 @@
 
 A step is a ``WalkthroughStep(title, note, snapshot)``; the snapshot is plain JSON data::
 
-    {"parameters": {name: value}, "initial": {state: value}, "solver": {subset of SolverSettings},
+    {"parameters": {name: value}, "initial": {state: value}, "solver": {subset of RunSettings.saved()},
      "views": {view_id: {settings}}, "open_views": [view_id, ...], "camera": {...},
      "selected_equilibrium": int | None, "section": {"plane": "x=0", "direction": "up"} | {"strobe": T},
      "time_cursor": float}
@@ -20,15 +20,13 @@ import math
 import numbers
 import re
 
-from .project import METHODS, WalkthroughStep
+from .integrators.settings import SAVED, SettingsError, check_value
+from .project import WalkthroughStep
 from .view_settings import VIEW_SETTINGS, missing_names, unknown_keys, without
 
 SNAPSHOT_KEYS = ("parameters", "initial", "solver", "views", "open_views", "camera",
                  "selected_equilibrium", "section", "time_cursor")
 VIEW_IDS = tuple(VIEW_SETTINGS)
-_SOLVER_NUMBERS = {"rtol": "positive", "atol": "positive", "max_step": "positive_or_null", "dt": "positive",
-                   "t_start": "number", "t_end": "number", "transient": "non_negative"}
-_SOLVER_INTEGERS = {"samples": 2, "steps": 1}
 _AXIS_KEYS = ("x", "y", "z")
 _DIRECTIONS = ("up", "down", "both")
 _PLANE = re.compile(r"^\s*([A-Za-z_][A-Za-z0-9_]*'*)\s*=\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*$")
@@ -75,33 +73,13 @@ def _check_solver(v, problems: list[str]) -> dict:
         return {}
     good = {}
     for key, value in v.items():
-        if key == "method":
-            if value in METHODS:
-                good[key] = value
-            else:
-                problems.append(f"the solver method {value!r} is not one of {', '.join(METHODS)}")
-        elif key in _SOLVER_INTEGERS:
-            low = _SOLVER_INTEGERS[key]
-            if isinstance(value, float) and value.is_integer():
-                value = int(value)
-            if isinstance(value, bool) or not isinstance(value, numbers.Integral) or value < low:
-                problems.append(f"the solver setting {key} should be a whole number of at least {low}, not {value!r}")
-            else:
-                good[key] = int(value)
-        elif key in _SOLVER_NUMBERS:
-            rule = _SOLVER_NUMBERS[key]
-            if value is None and rule == "positive_or_null":
-                good[key] = None
-            elif not _is_number(value):
-                problems.append(f"the solver setting {key} should be a number, not {value!r}")
-            elif rule.startswith("positive") and value <= 0:
-                problems.append(f"the solver setting {key} should be positive, not {value!r}")
-            elif rule == "non_negative" and value < 0:
-                problems.append(f"the solver setting {key} should not be negative, not {value!r}")
-            else:
-                good[key] = float(value)
-        else:
+        if key not in SAVED:
             problems.append(f"the solver has no setting called '{key}'")
+            continue
+        try:
+            good[key] = check_value(key, value)
+        except SettingsError as problem:
+            problems.append(f"the solver setting {key}: {problem.message}")
     if "t_start" in good and "t_end" in good and good["t_start"] == good["t_end"]:
         problems.append("the solver's end time equals its start time")
         del good["t_end"]

@@ -14,6 +14,8 @@ from PySide6.QtWidgets import (QApplication, QComboBox, QDockWidget, QDoubleSpin
                                QSpinBox, QSplitter, QStyle, QToolBar, QToolButton, QVBoxLayout, QWidget)
 
 from orbitdesk.core.export_csv import write_csv
+from orbitdesk.core.integrators.methods import METHODS
+from orbitdesk.core.integrators.settings import SettingsError
 from orbitdesk.core.project import ProjectError
 
 from . import views as views_pkg
@@ -27,12 +29,6 @@ log = logging.getLogger("orbitdesk.ui.main_window")
 APP_NAME = "OrbitDesk"
 MAX_RECENT = 8
 WINDOW_KEY = "_window"
-METHOD_LABELS = [
-    ("dop853", "DOP853 — adaptive, 8th order"),
-    ("rk45", "RK45 — adaptive, 5th order"),
-    ("stiff", "Radau — for stiff systems"),
-    ("rk4", "RK4 — fixed step"),
-]
 PROJECT_FILTER = "OrbitDesk projects (*.orbitdesk)"
 OPEN_FILTER = "OrbitDesk projects and models (*.orbitdesk *.txt *.model);;Model text (*.txt *.model);;All files (*)"
 SLIDER_STEPS = 1000
@@ -78,8 +74,8 @@ class RunBar(QToolBar):
         self.addAction(window.run_action)
         self.addSeparator()
         self.method = QComboBox()
-        for key, label in METHOD_LABELS:
-            self.method.addItem(label, key)
+        for entry in METHODS.values():
+            self.method.addItem(entry.summary, entry.name)
         self.method.setToolTip("Integration method for flows")
         self.method.currentIndexChanged.connect(self._method_changed)
         self.t_end_label = QLabel(" until t = ")
@@ -146,7 +142,11 @@ class RunBar(QToolBar):
     # ------------------------------------------------------------ settings
     def _set(self, **changes) -> None:
         if not self._syncing:
-            self.session.set_solver(**changes)
+            try:
+                self.session.set_solver(**changes)
+            except SettingsError as problem:
+                self.window().statusBar().showMessage(f"Not changed: {problem}", 8000)
+                self.sync()
 
     def _method_changed(self, _index) -> None:
         self._set(method=self.method.currentData())

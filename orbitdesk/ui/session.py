@@ -21,7 +21,8 @@ from PySide6.QtGui import QUndoCommand, QUndoStack
 
 from orbitdesk.core.families import with_structural_value
 from orbitdesk.core import project as core_project
-from orbitdesk.core.project import ParameterSetting, Project, ProjectError, SolverSettings
+from orbitdesk.core.integrators.settings import SAVED, RunSettings
+from orbitdesk.core.project import ParameterSetting, Project, ProjectError
 
 from .worker import JobRunner
 
@@ -30,7 +31,7 @@ TEXT_MERGE_SECONDS = 2.0     # typing pauses longer than this start a new undo s
 VALUE_MERGE_SECONDS = 1.5    # same for slider moves of one parameter
 clock = time.monotonic       # what undo merging reads (tests replace it to be independent of load)
 PROJECT_SUFFIXES = (".orbitdesk", ".json")
-SOLVER_FIELDS = tuple(f.name for f in dataclasses.fields(SolverSettings))
+SOLVER_FIELDS = SAVED
 
 
 def _parse(text):
@@ -178,7 +179,7 @@ class _RangeCommand(QUndoCommand):
 class _SolverCommand(QUndoCommand):
     ID = 1003
 
-    def __init__(self, session: "Session", old: SolverSettings, new: SolverSettings, keys: frozenset):
+    def __init__(self, session: "Session", old: RunSettings, new: RunSettings, keys: frozenset):
         super().__init__("Change solver settings")
         self.s, self.old, self.new, self.keys = session, old, new, keys
         self.stamp = clock()
@@ -234,7 +235,7 @@ class Session(QObject):
         self.params: dict[str, float] = {}
         self.initial: dict[str, float] = {}
         self.ranges: dict[str, tuple] = {}   # slider ranges the user set (overriding the model's)
-        self.solver = SolverSettings()
+        self.solver = RunSettings()
         self.trajectory = None
         self.time_cursor = math.inf
         self.equilibria: list = []                   # shared by the views that show equilibria
@@ -313,12 +314,8 @@ class Session(QObject):
         return self.system.initial_vector({n: v for n, v in self.initial.items() if n in self.system.states})
 
     def run_settings(self, **changes):
-        """The engine's RunSettings for the current solver settings (with ``changes`` applied)."""
-        from orbitdesk.core.engine import RunSettings
-
-        values = {k: getattr(self.solver, k) for k in SOLVER_FIELDS}
-        values.update(changes)
-        return RunSettings(**values)
+        """The current solver settings with ``changes`` applied (checked: SettingsError when they do not fit)."""
+        return self.solver.replace(**changes)
 
     # ------------------------------------------------------------ edits (undoable)
     def set_text(self, text: str) -> None:
@@ -358,6 +355,7 @@ class Session(QObject):
             self.undo_stack.push(_RangeCommand(self, name, old, new))
 
     def set_solver(self, **changes) -> None:
+        """Change solver settings (undoable); SettingsError says in plain words what does not fit."""
         unknown = set(changes) - set(SOLVER_FIELDS)
         if unknown:
             raise KeyError(f"unknown solver setting(s): {', '.join(sorted(unknown))}")
@@ -471,7 +469,7 @@ class Session(QObject):
             self.ranges[name] = value
         self.valuesChanged.emit()
 
-    def _apply_solver(self, solver: SolverSettings) -> None:
+    def _apply_solver(self, solver: RunSettings) -> None:
         self.solver = copy.copy(solver)
         self.generation += 1
         self.settingsChanged.emit()

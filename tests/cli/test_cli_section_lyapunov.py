@@ -130,7 +130,7 @@ def test_lyapunov_two_trajectory_and_nonsmooth_warning(capsys, model):
     (LORENZ, ["--t-end", "10", "--transient", "20"], "transient"),
     (LORENZ, ["--transient", "-1"], "--transient must not be negative"),
     (LORENZ, ["--set", "q=1"], "unknown parameter 'q'"),
-    (HENON, ["--steps", "0"], "--steps must be at least 1"),
+    (HENON, ["--steps", "0"], "--steps: expected a whole number from 1"),
 ])
 def test_lyapunov_refuses_bad_input(capsys, model, text, args, message):
     code, out, err = run_cli(capsys, "lyapunov", model(text), *args)

@@ -10,8 +10,9 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from orbitdesk.core import project as pj
+from orbitdesk.core.integrators import RunSettings
 from orbitdesk.core.project import (
-    FORMAT_NAME, FORMAT_VERSION, ParameterSetting, Project, ProjectError, SolverSettings, WalkthroughStep,
+    FORMAT_NAME, FORMAT_VERSION, ParameterSetting, Project, ProjectError, WalkthroughStep,
     dumps, load, loads, project_from_dict, project_to_dict, save,
 )
 
@@ -23,7 +24,7 @@ def full_project() -> Project:
         parameters={"sigma": ParameterSetting(10.0, 0.0, 20.0), "rho": ParameterSetting(28.0, lo=0.0),
                     "beta": ParameterSetting(8 / 3)},
         initial={"x": 1.0, "y": 1.0, "z": 1.05, "v'": -0.5},
-        solver=SolverSettings(method="rk4", rtol=1e-6, atol=1e-9, max_step=0.5, dt=0.005, t_start=-1.0,
+        solver=RunSettings(method="rk4", rtol=1e-6, atol=1e-9, max_step=0.5, dt=0.005, t_start=-1.0,
                               t_end=50.0, samples=1234, steps=77, transient=3.5),
         views={"phase": {"axes": ["x", "z"], "zoom": 1.5, "grid": True, "colour": None, "nested": {"a": [1, [2]]}},
                "time series": {}},
@@ -284,7 +285,7 @@ def test_version_0_migrates(tmp_path):
     p = load(f)
     assert p == Project(name="old lorenz", model="x' = sigma*(y - x)",
                         parameters={"sigma": ParameterSetting(10.0, 0.0, 20.0), "rho": ParameterSetting(28.0)},
-                        initial={"x": 1.0}, solver=SolverSettings(method="rk45", t_end=20.0),
+                        initial={"x": 1.0}, solver=RunSettings(method="rk45", t_end=20.0),
                         views={"phase": {"axes": ["x", "y"]}}, walkthrough=[])
     assert p.load_warnings == ['$.ranges.ghost: range for unknown parameter ignored']
     save(f, p)  # saved in the current version; the old document becomes the backup

@@ -108,9 +108,10 @@ def wait_for_trajectory(qtbot, session, action=None, timeout=20000, check=None):
 def load_model(qtbot, session, text, defaults, **solver):
     """Load ``text`` as a fresh project with solver settings ``defaults`` updated by ``solver``, and
     wait for its first trajectory."""
-    from orbitdesk.core.project import Project, SolverSettings
+    from orbitdesk.core.integrators import RunSettings
+    from orbitdesk.core.project import Project
 
-    session.solver = SolverSettings(**{**defaults, **solver})
+    session.solver = RunSettings(**{**defaults, **solver})
     return wait_for_trajectory(qtbot, session, lambda: session.load_project(
         Project(name="m", model=text, solver=session.solver)))
 

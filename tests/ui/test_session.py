@@ -7,7 +7,8 @@ import numpy as np
 import pytest
 
 from orbitdesk.core import project as core_project
-from orbitdesk.core.project import ParameterSetting, Project, ProjectError, SolverSettings, WalkthroughStep
+from orbitdesk.core.integrators import RunSettings
+from orbitdesk.core.project import ParameterSetting, Project, ProjectError, WalkthroughStep
 
 from .conftest import wait_for_trajectory
 
@@ -15,7 +16,7 @@ DECAY = "x' = -k*x\nx(0) = 2\nk = 0.5 in [0, 2]\n"
 
 
 def load_text(qtbot, session, text, **solver):
-    session.solver = SolverSettings(**{**dict(t_end=4.0, samples=401), **solver})
+    session.solver = RunSettings(**{**dict(t_end=4.0, samples=401), **solver})
     return wait_for_trajectory(qtbot, session, lambda: session.load_project(
         Project(name="m", model=text, solver=session.solver)))
 
@@ -117,7 +118,7 @@ def test_dirty_tracking(qtbot, session):
 def test_project_round_trip_keeps_everything(qtbot, session, tmp_path):
     proj = Project(
         name="Decay", model=DECAY, parameters={"k": ParameterSetting(0.9, 0.1, 3.0)}, initial={"x": 1.5},
-        solver=SolverSettings(method="rk45", t_end=3.0, samples=301),
+        solver=RunSettings(method="rk45", t_end=3.0, samples=301),
         views={"timeseries": {"series": ["x"]}},
         walkthrough=[WalkthroughStep("Start", "look at the decay", {"params": {"k": 0.9}})],
         notes="a note")

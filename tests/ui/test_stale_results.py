@@ -7,7 +7,8 @@ import numpy as np
 from PySide6.QtCore import QThreadPool
 
 from orbitdesk.core.engine import simulate
-from orbitdesk.core.project import Project, SolverSettings
+from orbitdesk.core.integrators import RunSettings
+from orbitdesk.core.project import Project
 from orbitdesk.ui import session as session_module
 
 from .conftest import wait_for_trajectory
@@ -29,7 +30,7 @@ z(0) = 1
 def test_thousand_moves_show_only_the_final_value(qtbot, window, monkeypatch):
     s = window.session
     wait_for_trajectory(qtbot, s, lambda: s.load_project(
-        Project(name="stress", model=LORENZ, solver=SolverSettings(t_end=60.0, samples=20000))))
+        Project(name="stress", model=LORENZ, solver=RunSettings(t_end=60.0, samples=20000))))
     pp = window.views["phase_plane"]
     assert pp.start_trajectory(5.0, 5.0)  # a clicked trajectory is recomputed on each change too
     qtbot.waitUntil(lambda: bool(pp.seed_runs) and pp.seed_runs[0][0] is not None, timeout=20000)

@@ -3,7 +3,9 @@
 import numpy as np
 import pytest
 
-from orbitdesk.core.project import Project, SolverSettings
+from orbitdesk.core.integrators import RunSettings
+
+from orbitdesk.core.project import Project
 
 from .conftest import wait_for_trajectory
 
@@ -15,7 +17,7 @@ x(0) = 0.5
 
 
 def load(qtbot, session, text):
-    session.solver = SolverSettings(t_end=5.0, samples=501)
+    session.solver = RunSettings(t_end=5.0, samples=501)
     return wait_for_trajectory(qtbot, session, lambda: session.load_project(
         Project(name="m", model=text, solver=session.solver)))
 
