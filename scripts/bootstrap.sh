@@ -30,7 +30,7 @@ py=${PYTHON:-python3}
 if [ ! -x .venv/bin/python ]; then
   "$py" -m venv .venv
 fi
-# The tests also cover the optional extras: Dask for cluster runs, numba for compiled ensembles.
+# The tests also cover the optional extras: Dask for cluster runs (numba is a regular dependency).
 extras="test,cluster,jit"
 stamp=.venv/.orbitdesk-installed-${extras//,/-}
 if [ ! -f "$stamp" ] || [ pyproject.toml -nt "$stamp" ]; then

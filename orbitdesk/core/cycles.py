@@ -15,11 +15,13 @@ from fractions import Fraction
 
 import numpy as np
 import sympy as sp
-from scipy.integrate import solve_ivp
 from scipy.stats import qmc
 
 from .engine import Event, RunSettings, simulate
 from .equilibria import NONSMOOTH_WARNING
+from .integrators import compiled, drivers
+from .integrators.status import C_CANCELLED
+from .integrators.status import word as status_word
 from .progress import CancelToken, Cancelled, Reporter
 from .system import MAP, CompiledSystem
 
@@ -119,62 +121,45 @@ def detect_forcing_period(system: CompiledSystem, p=None) -> float | None:
 
 # ---------------------------------------------------------------- variational equations
 class _Flow:
-    """phi_T(u0) and its monodromy matrix, by DOP853 on the state plus variational equations."""
+    """phi_T(u0) and its monodromy matrix: the state with n tangent vectors in the compiled loop
+    (Dormand-Prince 8(5,3), the model's kernel with its sparse Jacobian)."""
 
     def __init__(self, system: CompiledSystem, p, rtol, atol, cancel):
         self.system, self.n = system, system.n_states
-        t, u, ps, _ = system._plain
-        exprs = system.plain(list(system.f) + list(system.jacobian))
-        self._fj = sp.lambdify([t, *u, *ps], exprs, modules="math", cse=True)
-        self.pv = tuple(float(v) for v in p)
-        self.f = system.rhs_function(p)
-        self.rtol, self.atol, self.cancel = rtol, atol, cancel
-        self._calls = 0
-
-    def _check(self):
-        self._calls += 1
-        if self.cancel is not None and self._calls % 200 == 0:
-            self.cancel.check()
-
-    def augmented(self, t, y):
-        self._check()
-        n = self.n
-        try:
-            values = self._fj(t, *y[:n], *self.pv)
-        except (ValueError, ZeroDivisionError, TypeError, OverflowError):
-            raise CycleError(self.system.explain_undefined(t, y[:n], self.pv)
-                             or f"an expression is undefined at {self.system.time_name} = {t:.6g}") from None
-        J = np.array(values[n:], dtype=float).reshape(n, n)
-        return np.concatenate([np.asarray(values[:n], dtype=float), (J @ y[n:].reshape(n, n)).ravel()])
-
-    def plain(self, t, y):
-        self._check()
-        try:
-            return self.f(t, y)
-        except (ValueError, ZeroDivisionError, TypeError, OverflowError):
-            raise CycleError(self.system.explain_undefined(t, y, self.pv)
-                             or f"an expression is undefined at {self.system.time_name} = {t:.6g}") from None
+        self.p = np.asarray(p, dtype=float)
+        self.rtol, self.atol = rtol, atol
+        self.report = Reporter(None, cancel)
+        self.engine = compiled.engine_for_work(system, 1e6)
 
     def rhs(self, t, u) -> np.ndarray:
-        return np.asarray(self.plain(t, u), dtype=float)
+        try:
+            return self.system.rhs(t, u, self.p)
+        except ArithmeticError as err:  # UndefinedValue
+            raise CycleError(str(err)) from None
+
+    def _run(self, z0, t0, t1, grid, which):
+        with np.errstate(all="ignore"):
+            out = drivers.flow_run(self.engine, "dop853", t0, t1, z0, self.p, self.rtol, self.atol, grid=grid,
+                                   which=which, report=self.report)
+        if out.code == C_CANCELLED:
+            raise Cancelled("cancelled")
+        if out.code != 0 or out.time.size != len(grid):
+            where = f"{self.system.time_name} = {out.t:.6g}"
+            raise CycleError(f"the integration over one period failed ({status_word(out.code)} near {where})")
+        return out
 
     def monodromy(self, u0, t0, T):
         n = self.n
-        y0 = np.concatenate([np.asarray(u0, dtype=float), np.eye(n).ravel()])
-        with np.errstate(all="ignore"):
-            sol = solve_ivp(self.augmented, (t0, t0 + T), y0, method="DOP853", rtol=self.rtol, atol=self.atol)
-        end = sol.y[:, -1]
-        if sol.status != 0 or not np.all(np.isfinite(end)):
-            raise CycleError(f"the integration over one period failed ({sol.message})")
+        z0 = np.concatenate([np.asarray(u0, dtype=float), np.eye(n).ravel()])
+        end = self._run(z0, t0, t0 + T, [t0 + T], n).states[:, -1]
+        if not np.all(np.isfinite(end)):
+            raise CycleError("the integration over one period failed (not a number)")
         return end[:n], end[n:].reshape(n, n)
 
     def sample(self, u0, t0, T, samples):
         times = np.linspace(t0, t0 + T, samples)
-        sol = solve_ivp(self.plain, (t0, t0 + T), np.asarray(u0, dtype=float), method="DOP853",
-                        rtol=self.rtol, atol=self.atol, t_eval=times)
-        if sol.status != 0:
-            raise CycleError(f"the integration over one period failed ({sol.message})")
-        return sol.t - t0, sol.y
+        out = self._run(np.asarray(u0, dtype=float), t0, t0 + T, times[1:], 0)
+        return times - t0, np.concatenate([np.asarray(u0, float)[:, None], out.states], axis=1)
 
 
 # ---------------------------------------------------------------- flows
@@ -339,7 +324,7 @@ def _shoot_residual(phi, u0, normal, point):
 
 def _return_time(system, p, u_ref, normal, point, t_max, cancel, report) -> float:
     """The first time the run from u_ref crosses the section again, near u_ref, in the same direction."""
-    event = Event(lambda t, u: float(normal @ (np.asarray(u) - point)), direction=1)
+    event = Event.on_plane(normal, float(normal @ point), direction=1)
     run = _run(system, p, u_ref, t_max, 2000, cancel, report, events=[event])
     size = float(np.linalg.norm(np.ptp(run.states, axis=1))) if run.states.size else 0.0
     times, states = run.event_times[0], run.event_states[0]

@@ -1,31 +1,31 @@
 """Single runs: integrate a flow or iterate a map, with sampling, events, bounds and cancel.
 
-Flows step with scipy's ``OdeSolver`` classes (DOP853, RK45, Radau) one step at a time, so a run
-can report progress, stop cleanly on blow-up or cancel and keep what it computed so far. Event
-crossings are found on each step's dense output with a bracketing root finder, never by linear
-interpolation between output samples.
+Explicit methods (Dormand-Prince 8(5,3) and 5(4), RK4) and maps run in the compiled loops of
+``integrators`` on the model's kernels: output samples are read off each step's dense output in
+the same pass, plane events are located there by one root finder. Stiff methods, and events given
+as arbitrary functions, step with scipy's ``OdeSolver`` classes one step at a time. Every path
+reports progress, stops cleanly on blow-up, undefined values or cancel and keeps what it computed.
 """
 
 from __future__ import annotations
 
 import math
-import warnings
 from dataclasses import dataclass, field
 from typing import Callable
 
 import numpy as np
 import scipy.integrate
-from scipy.integrate import ode
 from scipy.optimize import brentq
 
 from .integrators.methods import NAMES
 from .integrators.settings import RunSettings
-from .integrators.status import CANCELLED, DIVERGED, OK, STEP_FAILED, UNDEFINED
+from .integrators import compiled, drivers
+from .integrators.status import (C_CANCELLED, C_DIVERGED, C_STEP_FAILED, C_UNDEFINED, CANCELLED, DIVERGED,
+                                 OK, STEP_FAILED, UNDEFINED)
+from .integrators.status import word as status_word
 from .progress import CancelToken, Cancelled, Reporter
 from .system import MAP, CompiledSystem, UndefinedValue
 
-# scipy's compiled DOP853 also warns about the failures it returns; the engine reports them itself
-warnings.filterwarnings("ignore", message=r"dop853: ", category=UserWarning)
 
 METHODS = NAMES
 
@@ -35,13 +35,22 @@ class Event:
     """A crossing of g(t, u) = 0; direction +1 (g rising), -1 (falling) or 0 (both).
 
     ``rate`` (optional) is dg/dt along the solution; with it a step is split where g turns, so a
-    pair of crossings inside one step (a near-grazing pass) is found too.
+    pair of crossings inside one step (a near-grazing pass) is found too. An event made by
+    ``Event.on_plane`` is located inside the compiled loop, on the step's dense output.
     """
 
     g: Callable[[float, np.ndarray], float]
     direction: int = 0
     terminal: bool = False
     rate: Callable[[float, np.ndarray], float] | None = None
+    plane: tuple | None = None  # (normal (n,), value) when g is that plane
+
+    @classmethod
+    def on_plane(cls, normal, value: float, direction: int = 0, terminal: bool = False) -> "Event":
+        """g = normal . u - value, located inside the compiled loop."""
+        normal = np.asarray(normal, dtype=float).ravel()
+        value = float(value)
+        return cls(lambda t, u: float(normal @ np.asarray(u)) - value, direction, terminal, plane=(normal, value))
 
 
 @dataclass
@@ -108,83 +117,106 @@ def simulate(system: CompiledSystem, settings: RunSettings | None = None, u0=Non
     report = Reporter(progress, cancel)
     if system.kind == MAP:
         return _iterate(system, settings, u0, p, report)
-    if settings.method not in METHODS:
-        raise ValueError(f"unknown method '{settings.method}'; choose one of {', '.join(METHODS)}")
-    if settings.method == "dop853" and not events and system.smooth:
-        if settings.samples > FILL_ABOVE:
-            probe = settings.replace(samples=0, transient=0.0)
-            steps = _integrate_compiled(system, probe, u0, p, report)
-            if settings.samples > 2 * steps.time.size:
-                return _fill_between_steps(system, settings, steps, p)
-        return _integrate_compiled(system, settings, u0, p, report)
+    if settings.method_info.family == "explicit_rk" and all(ev.plane is not None for ev in events):
+        return _integrate_loop(system, settings, u0, p, list(events), report)
     return _integrate(system, settings, u0, p, list(events), report)
 
 
-FILL_ABOVE = 2_000
-FILL_SUBSTEPS = 16
+def _describe_stop(system, code, t, y, p, h, bound) -> str:
+    name = system.time_name
+    if code == C_DIVERGED:
+        which = system.states[int(np.argmax(np.abs(y)))] if y.size else "the state"
+        return (f"the solution blows up: {which} passes {bound:g} in size at {name} = {t:.6g} "
+                f"({_describe_state(system, y)})")
+    if code == C_UNDEFINED:
+        return _explain_near(system, t, y, p, h) or f"an expression is undefined at {name} = {t:.6g}"
+    if code == C_STEP_FAILED:
+        return (f"the step size collapsed at {name} = {t:.6g}; the system may be stiff: "
+                "try the stiff method")
+    return ""
 
 
-def _fill_between_steps(system, settings, steps: Trajectory, p) -> Trajectory:
-    """Output samples on a grid finer than the integrator's steps, from the exact step points.
+def _explain_near(system, t, y, p, h) -> str | None:
+    """Name what is undefined at the run's last good point, or just beyond it along the flow."""
+    found = system.explain_undefined(t, y, p)
+    if found is not None:
+        return found
+    try:
+        slope = system.rhs(t, y, p)
+    except ArithmeticError:
+        return None
+    for k in range(0, 60, 3):
+        step = h * 2.0 ** k
+        found = system.explain_undefined(t + step, y + step * slope, p)
+        if found is not None:
+            return found
+    return None
 
-    Stopping the compiled integrator at every sample costs far more than its own steps; instead each
-    sample is reached from the step point before it by ``FILL_SUBSTEPS`` classical RK4 substeps, all
-    samples at once through the vectorized evaluator. A substep is at most 1/16 of an accepted
-    DOP853 step, so its error stays far below the step's own tolerance on smooth problems.
-    """
+
+def _integrate_loop(system, settings, u0, p, events, report) -> Trajectory:
+    """A run of an explicit method in the compiled loop (plain Python until the model's kernels are compiled)."""
     t0, t1 = float(settings.t_start), float(settings.t_end)
-    ts, ys = steps.time, steps.states
-    grid = np.linspace(t0, t1, settings.samples)
-    sign = 1.0 if t1 > t0 else -1.0
-    grid = grid[(grid - ts[-1]) * sign <= 0] if ts.size else grid[:0]
-    k = np.clip(np.searchsorted(sign * ts, sign * grid, side="right") - 1, 0, max(ts.size - 1, 0))
-    t = ts[k].copy()
-    U = ys[:, k].copy()
-    h = (grid - t) / FILL_SUBSTEPS
+    n = system.n_states
+    per_time = 4 / settings.dt if settings.method == "rk4" else 1200
+    engine = compiled.engine_for_work(system, abs(t1 - t0) * per_time * max(1.0, n / 3))
+    every_step = settings.samples <= 1
+    grid = None if every_step else np.linspace(t0, t1, settings.samples)[1:]
+    planes = None
+    if events:
+        rows = np.array([np.append(ev.plane[0], ev.plane[1]) for ev in events], dtype=float)
+        planes = (rows, np.array([int(np.sign(ev.direction)) for ev in events]),
+                  np.array([bool(ev.terminal) for ev in events]))
     with np.errstate(all="ignore"):
-        for _ in range(FILL_SUBSTEPS):
-            k1 = system.rhs_vec(t, U, p)
-            k2 = system.rhs_vec(t + h / 2, U + h / 2 * k1, p)
-            k3 = system.rhs_vec(t + h / 2, U + h / 2 * k2, p)
-            k4 = system.rhs_vec(t + h, U + h * k3, p)
-            U += h / 6 * (k1 + 2 * k2 + 2 * k3 + k4)
-            t = t + h
-    time, states = grid, U
+        out = drivers.flow_run(engine, settings.method, t0, t1, u0, p, settings.rtol, settings.atol,
+                               settings.max_step, settings.dt, settings.bound, grid=grid, every_step=every_step,
+                               planes=planes, report=report)
+    if every_step:
+        time, states = out.time, out.states
+    else:
+        time = np.concatenate([[t0], out.time])
+        states = np.concatenate([np.asarray(u0, float)[:, None], out.states], axis=1)
+    status = status_word(out.code)
+    last_step = 1e-12 * max(1.0, abs(out.t))
+    message = "cancelled" if status == CANCELLED else _describe_stop(system, out.code, out.t, out.y, p,
+                                                                      last_step, settings.bound)
     if settings.transient > 0:
-        keep = (time - (t0 + sign * settings.transient)) * sign >= 0
+        direction = 1.0 if t1 > t0 else -1.0
+        keep = (time - (t0 + direction * settings.transient)) * direction >= 0
         time, states = time[keep], states[:, keep]
-    return Trajectory("flow", time, states, list(system.states), system.param_dict(p), steps.status,
-                      steps.message, system.derived_values(time, states, p) if time.size else {},
-                      steps_taken=steps.steps_taken)
+    ev_t = [out.event_t[out.event_k == k] for k in range(len(events))]
+    ev_y = [out.event_y[:, out.event_k == k] for k in range(len(events))]
+    return Trajectory("flow", time, states, list(system.states), system.param_dict(p), status, message,
+                      system.derived_values(time, states, p) if time.size else {}, ev_t, ev_y,
+                      steps_taken=out.steps)
 
 
 def _iterate(system, settings, u0, p, report) -> Trajectory:
     steps = int(settings.steps)
-    out = np.empty((system.n_states, steps + 1))
-    out[:, 0] = u0
-    f = system.rhs_function(p)
-    u = [float(v) for v in u0]
-    status, message, last = OK, "", steps
+    engine = compiled.engine_for_work(system, steps * max(1.0, system.n_states / 3))
     try:
         _check_state(system, 0, u0, settings.bound)
-        for n in range(steps):
-            if n % 1000 == 0:
-                report(n / max(steps, 1))
-            try:
-                u = f(n, u)
-            except (ValueError, ZeroDivisionError, TypeError, OverflowError):
-                raise _Stop(UNDEFINED, system.explain_undefined(n, u, p) or f"undefined value at n = {n}") from None
-            out[:, n + 1] = u
-            if not all(abs(v) <= settings.bound for v in u):
-                _check_state(system, n + 1, out[:, n + 1], settings.bound)
     except _Stop as stop:
-        status, message, last = stop.status, stop.message, n
-    except Cancelled:
-        status, message, last = CANCELLED, "cancelled", n
-    n_time = np.arange(last + 1, dtype=float)
-    states = out[:, :last + 1]
+        states, status, message = np.asarray(u0, float)[:, None], stop.status, stop.message
+    else:
+        with np.errstate(all="ignore"):
+            states, code = drivers.map_run(engine, 0, steps, u0, p, settings.bound, report)
+        last = states.shape[1] - 1
+        status, message = status_word(code), ""
+        if code == C_CANCELLED:
+            message = "cancelled"
+        elif code == C_UNDEFINED:
+            message = system.explain_undefined(last, states[:, -1], p) or f"undefined value at n = {last}"
+        elif code == C_DIVERGED:
+            message = f"the orbit escapes to infinity at n = {last + 1}"
+            try:
+                _check_state(system, last + 1, system.rhs(last, states[:, -1], p), settings.bound)
+            except _Stop as stop:
+                message = stop.message
+            except ArithmeticError:
+                pass
+    n_time = np.arange(states.shape[1], dtype=float)
     return Trajectory(MAP, n_time, states, list(system.states), system.param_dict(p), status, message,
-                      system.derived_values(n_time, states, p), steps_taken=last)
+                      system.derived_values(n_time, states, p), steps_taken=states.shape[1] - 1)
 
 
 class _RK4Stepper:
@@ -349,107 +381,3 @@ def _integrate(system, settings, u0, p, events, report) -> Trajectory:
                       [np.array(v) for v in ev_t],
                       [np.array(v).reshape(-1, n).T if v else np.empty((n, 0)) for v in ev_y],
                       steps_taken=steps)
-
-
-_DOP_CODES = {-1: "the input is not consistent", -2: "too many steps were needed",
-              -3: "the step size became too small", -4: "the problem is probably stiff"}
-
-
-def _integrate_compiled(system, settings, u0, p, report) -> Trajectory:
-    """DOP853 in compiled code (scipy's ``ode``: Hairer's Fortran) calling generated code with ``p`` bound.
-
-    With ``samples`` > 1 the integrator is stopped exactly at each output time (no interpolation);
-    with ``samples`` = 0 every accepted step is returned. The generated right-hand side unpacks
-    ``y.tolist()`` and catches undefined values itself; the per-step check costs a ``sum`` of
-    absolute values unless that sum passes the bound.
-    """
-    t0, t1 = float(settings.t_start), float(settings.t_end)
-    if not t1 != t0 or not (math.isfinite(t0) and math.isfinite(t1)):
-        raise ValueError("the end time must differ from the start time")
-    u0 = np.asarray(u0, float)
-    n = system.n_states
-    failure: list = []
-    nan_row = [math.nan] * n
-
-    def on_error(t, y):
-        if not failure:
-            failure.append((t, np.array(y, dtype=float)))
-        return nan_row
-
-    fixed = system.rhs_for_params(p, on_error=on_error)
-    bound = settings.bound
-    span = t1 - t0
-    every_step = settings.samples <= 1
-    out_t: list[float] = [t0]
-    out_y: list = [u0.tolist()]
-    stop: list[_Stop] = []
-    count = 0
-
-    def solout(t, y):
-        nonlocal count
-        if failure:
-            return -1
-        yl = y.tolist()
-        if not sum(map(abs, yl)) <= bound and not all(abs(v) <= bound for v in yl):
-            try:
-                _check_state(system, t, y, bound)
-            except _Stop as reason:
-                stop.append(reason)
-                return -1
-        count += 1
-        if every_step and count > 1:  # the first call is at the start point
-            out_t.append(t)
-            out_y.append(yl)
-        if count % 256 == 0:
-            try:
-                report((t - t0) / span)
-            except Cancelled:
-                stop.append(_Stop(CANCELLED, "cancelled"))
-                return -1
-        return 0
-
-    solver = ode(fixed)
-    kwargs = dict(rtol=settings.rtol, atol=settings.atol, nsteps=2**31 - 1)
-    if settings.max_step:
-        kwargs["max_step"] = settings.max_step
-    solver.set_integrator("dop853", **kwargs)
-    solver.set_solout(solout)
-    solver.set_initial_value(u0, t0)
-    targets = [t1] if every_step else np.linspace(t0, t1, settings.samples)[1:].tolist()
-    sampled = None if every_step else np.empty((len(targets) + 1, n))  # rows filled as samples come
-    reached = 0
-    for target in targets:
-        y = solver.integrate(target)
-        if failure or stop or solver.get_return_code() < 0:
-            break
-        if not every_step:
-            reached += 1
-            sampled[reached] = y
-    code = solver.get_return_code()
-    status, message = OK, ""
-    if failure:
-        t_bad, y_bad = failure[0]
-        status = UNDEFINED
-        message = system.explain_undefined(t_bad, y_bad, p) or (
-            f"an expression is undefined at {system.time_name} = {t_bad:.6g}")
-    elif stop:
-        status, message = stop[0].status, stop[0].message
-    elif code < 0:
-        status = STEP_FAILED
-        message = (f"the integration stopped at {system.time_name} = {solver.t:.6g}: "
-                   f"{_DOP_CODES.get(code, f'code {code}')}; try the stiff method")
-    if every_step:
-        time = np.array(out_t, dtype=float)
-        states = np.array(out_y, dtype=float).reshape(-1, n).T
-    else:
-        sampled[0] = u0
-        time = np.array([t0] + targets[:reached], dtype=float)
-        states = sampled[:reached + 1].T
-    finite = np.all(np.isfinite(states), axis=0) & np.all(np.abs(states) <= bound, axis=0)
-    time, states = time[finite], states[:, finite]
-    if settings.transient > 0:
-        keep = (time - (t0 + np.sign(span) * settings.transient)) * np.sign(span) >= 0
-        time, states = time[keep], states[:, keep]
-    return Trajectory("flow", time, states, list(system.states), system.param_dict(p), status, message,
-                      system.derived_values(time, states, p) if time.size else {},
-                      steps_taken=count - 1 if every_step else count)

@@ -44,6 +44,10 @@ def available() -> bool:
     """numba is importable and the compiled path is not turned off."""
     if os.environ.get("ORBITDESK_JIT", "1").strip().lower() in ("0", "no", "off", "false"):
         return False
+    from .integrators.jitting import enabled
+
+    if not enabled():
+        return False
     return importlib.util.find_spec("numba") is not None
 
 

@@ -74,13 +74,13 @@ def saddle_manifolds(system: CompiledSystem, eq: Equilibrium, p=None, box: dict 
         box = {s: (x0[i] - half, x0[i] + half) for i, s in enumerate(system.states)}
     lows = np.array([float(box[s][0]) for s in system.states])
     highs = np.array([float(box[s][1]) for s in system.states])
-    centre, halfwidth = (lows + highs) / 2, (highs - lows) / 2
     size = float(np.linalg.norm(highs - lows))
     eps = 1e-6 * size if eps is None else float(eps)
     spacing = 1e-3 * size if min_spacing is None else float(min_spacing)
 
-    def outside(t, u):
-        return float(np.max(np.abs(np.asarray(u) - centre) / halfwidth)) - 1.0
+    n = len(system.states)
+    faces = [Event.on_plane(sign * np.eye(n)[i], sign * bound, direction=1, terminal=True)
+             for i in range(n) for sign, bound in ((1.0, highs[i]), (-1.0, lows[i]))]
 
     branches = []
     jobs = []
@@ -96,13 +96,14 @@ def saddle_manifolds(system: CompiledSystem, eq: Equilibrium, p=None, box: dict 
         start = x0 + eps * direction
         duration = t_max if t_max is not None else 3.0 * math.log(max(size / eps, math.e)) / max(rate, 1e-12)
         settings = RunSettings(t_start=0.0, t_end=time_sign * duration, samples=samples, rtol=1e-10, atol=1e-12)
-        run = simulate(system, settings, start, p, events=[Event(outside, direction=1, terminal=True)],
-                       cancel=cancel, progress=report.part(index / 4, 1 / 4))
+        run = simulate(system, settings, start, p, events=faces, cancel=cancel,
+                       progress=report.part(index / 4, 1 / 4))
         pts, times = run.states, run.time
-        if run.event_times and run.event_times[0].size:
-            te = run.event_times[0][0]
+        exits = [(float(t[0]), y[:, 0]) for t, y in zip(run.event_times, run.event_states) if t.size]
+        if exits:  # the branch leaves the box through the face it reaches first
+            te, exit_point = min(exits, key=lambda e: e[0] * time_sign)
             keep = (times - te) * time_sign < 0
-            pts = np.column_stack([pts[:, keep], run.event_states[0][:, :1]])
+            pts = np.column_stack([pts[:, keep], exit_point[:, None]])
         pts = np.column_stack([x0[:, None], pts])
         branches.append(Branch(label, _thin(pts, spacing), direction, run.status, run.message))
     report(1.0)

@@ -195,6 +195,10 @@ def plane_section(system: CompiledSystem, p=None, u0=None, coordinate: str = "",
     p = system.param_values.copy() if p is None else np.asarray(p, dtype=float)
     u = system.initial.copy() if u0 is None else np.asarray(u0, dtype=float)
     g, rate = _section_function(system, coordinate, value, p)
+    if coordinate in system.states:  # a plane: located inside the compiled loop
+        event = Event.on_plane(np.eye(system.n_states)[system.states.index(coordinate)], value)
+    else:
+        event = Event(g, 0, rate=rate)
     span = abs(settings.t_end - settings.t_start) or 100.0
     t = float(settings.t_start)
     report = Reporter(progress, cancel)
@@ -221,8 +225,7 @@ def plane_section(system: CompiledSystem, p=None, u0=None, coordinate: str = "",
     status, message = OK, ""
     while len(keep) < count and t < t_limit:
         t_end = min(t + chunk, t_limit)
-        run = simulate(system, replace(base, t_start=t, t_end=t_end), u, p,
-                       events=[Event(g, 0, rate=rate)], cancel=cancel)
+        run = simulate(system, replace(base, t_start=t, t_end=t_end), u, p, events=[event], cancel=cancel)
         for te, ue in zip(run.event_times[0], run.event_states[0].T):
             te, ue = _refine(g, rate, system, p, float(te), ue)
             raw_t.append(te)

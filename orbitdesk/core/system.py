@@ -113,8 +113,11 @@ class CompiledSystem:
 
     @cached_property
     def jacobian(self) -> sp.Matrix:
-        """d f_i / d u_j in the model's symbols (floor, sign, heaviside, mod: the derivative between jumps)."""
-        return jacobian_almost_everywhere(self.f, self.state_symbols)
+        """d f_i / d u_j in the model's symbols: each equation differentiated only by the states it
+        holds; at kinks the derivative that holds almost everywhere (codegen.sparse_jacobian)."""
+        from .codegen import dense_jacobian
+
+        return dense_jacobian(self)
 
     @cached_property
     def param_jacobian(self) -> sp.Matrix:

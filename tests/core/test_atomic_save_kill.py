@@ -21,13 +21,12 @@ from orbitdesk.core.project import ParameterSetting, Project, ProjectError, Walk
 
 KILLS = 200
 
-# Loads project.py by file path so the child starts fast whatever the package __init__ files import.
+# Imports project.py from the tree under test (its folder's parents put first on the path).
 CHILD = r"""
-import importlib.util, sys
-spec = importlib.util.spec_from_file_location("project_under_test", sys.argv[1])
-pj = importlib.util.module_from_spec(spec)
-sys.modules[spec.name] = pj
-spec.loader.exec_module(pj)
+import sys
+from pathlib import Path
+sys.path.insert(0, str(Path(sys.argv[1]).resolve().parents[2]))
+import orbitdesk.core.project as pj
 docs = [pj.loads(open(p, encoding="utf-8").read()) for p in (sys.argv[3], sys.argv[4])]
 target = sys.argv[2]
 out = sys.stdout

@@ -11,6 +11,8 @@ from orbitdesk.core.cycles import CycleError, detect_forcing_period, find_cycle,
 from orbitdesk.core.progress import CancelToken, Cancelled
 from orbitdesk.core.system import compile_model
 
+pytestmark = pytest.mark.fallback  # published values: run with the compiler and without
+
 VAN_DER_POL = "mu = 1\nx'' = mu*(1 - x^2)*x' - x\nx(0) = 0.5\n"
 CIRCLE = "x' = x - y - x*(x^2 + y^2)\ny' = x + y - y*(x^2 + y^2)\nx(0) = 0.5\n"
 BRUSSELATOR = "a = 1\nb = 2.5\nx' = a - (b+1)*x + x^2*y\ny' = b*x - x^2*y\nx(0) = 1\ny(0) = 1.5\n"

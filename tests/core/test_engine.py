@@ -10,6 +10,8 @@ from orbitdesk.core.engine import CANCELLED, DIVERGED, OK, STEP_FAILED, UNDEFINE
 from orbitdesk.core.progress import CancelToken
 from orbitdesk.core.system import compile_model
 
+pytestmark = pytest.mark.fallback  # published values: run with the compiler and without
+
 OSCILLATOR = "w = 2\nx'' = -w^2*x\nx(0) = 1\nx'(0) = 0\n"
 
 

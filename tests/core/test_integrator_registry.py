@@ -6,6 +6,8 @@ import scipy.integrate
 from orbitdesk.core.integrators import METHODS, RunSettings, SettingsError, method
 from orbitdesk.core.integrators import status
 
+pytestmark = pytest.mark.fallback  # published values: run with the compiler and without
+
 
 def test_every_scipy_name_is_a_scipy_solver():
     # scipy's solve_ivp documentation lists RK45, RK23, DOP853, Radau, BDF, LSODA as OdeSolver classes

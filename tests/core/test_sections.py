@@ -9,6 +9,8 @@ from orbitdesk.core.engine import Event, RunSettings, simulate
 from orbitdesk.core.sections import SectionResult, plane_section, return_map, strobe_section
 from orbitdesk.core.system import compile_model
 
+pytestmark = pytest.mark.fallback  # published values: run with the compiler and without
+
 OSCILLATOR = "x' = y\ny' = -w^2*x\nw = 2\nx(0) = 0.3\ny(0) = 1\n"
 CIRCLE = "x' = y\ny' = -x\nx(0) = 0\ny(0) = 1\n"  # orbits on x^2 + y^2 = 1, period 2 pi
 LORENZ = ("x' = sigma*(y - x)\ny' = x*(r - z) - y\nz' = x*y - beta*z\n"

@@ -13,7 +13,8 @@ import numpy as np
 import pytest
 from PySide6.QtGui import QImage
 
-from orbitdesk.core.project import Project, SolverSettings
+from orbitdesk.core.integrators import RunSettings
+from orbitdesk.core.project import Project
 from orbitdesk.ui import exports
 from orbitdesk.ui.figures import REPORT_SIZE
 from orbitdesk.ui.views import series_colour

@@ -18,9 +18,9 @@ class Method:
     order: int
     adaptive: bool
     stiff: bool
-    family: str  # "explicit_rk" (compiled loop), "fixed" (compiled fixed-step loop), "stiff" (scipy)
+    family: str  # "explicit_rk" (the compiled loop of explicit_rk.py), "stiff" (scipy, stiff.py)
     scipy_name: str | None  # the scipy solve_ivp method the exported script uses (None: a loop in the script)
-    tableau: str | None = None  # explicit_rk: which tableau in explicit_rk.TABLEAUX
+    tableau: str | None = None  # explicit_rk: the tableau's name in explicit_rk.KINDS
 
     @property
     def summary(self) -> str:
@@ -33,7 +33,7 @@ METHODS: dict[str, Method] = {m.name: m for m in (
     Method("rk45", "Dormand–Prince 5(4)", 5, True, False, "explicit_rk", "RK45", "dopri5"),
     Method("stiff", "Radau IIA (implicit)", 5, True, True, "stiff", "Radau"),
     Method("bdf", "BDF (implicit, variable order)", 5, True, True, "stiff", "BDF"),
-    Method("rk4", "Classical Runge–Kutta", 4, False, False, "fixed", None),
+    Method("rk4", "Classical Runge–Kutta", 4, False, False, "explicit_rk", None, "rk4"),
 )}
 NAMES = tuple(METHODS)
 DEFAULT = "dop853"

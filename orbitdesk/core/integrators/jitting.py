@@ -1,0 +1,98 @@
+"""Compiling the loops of this package with numba, or running them as plain Python.
+
+Loops are marked ``@loop`` (or ``@inner`` for helpers that receive a kernel: those are inlined into
+their callers). The modules stay plain Python; ``compiled_loops`` makes numba versions of every
+marked function in one namespace (``cache=True``: machine code kept next to this package, compiled
+once per machine) and ``python_loops`` gives the plain ones. Importing this package therefore never
+imports numba: a short run that uses plain Python starts as fast as numpy and scipy.
+
+The model's kernel reaches the loops as an argument (numba's first-class function type), so the
+loops are compiled once for every model; only the kernels are compiled per model
+(``compiled.py``). One kernel argument only: a second function-typed argument, or passing a kernel
+into a compiled function that is not inlined, makes every call through it several times slower.
+"""
+
+from __future__ import annotations
+
+import importlib.util
+import os
+import threading
+from types import FunctionType, SimpleNamespace
+
+_MARK = "_orbitdesk_loop"
+_lock = threading.Lock()
+_namespaces: dict[tuple, SimpleNamespace] = {}
+
+
+def enabled() -> bool:
+    """numba can be imported and the plain-Python path is not forced (ORBITDESK_NO_JIT=1)."""
+    if os.environ.get("ORBITDESK_NO_JIT", "").strip().lower() not in ("", "0", "no", "off", "false"):
+        return False
+    return importlib.util.find_spec("numba") is not None
+
+
+def loop(f):
+    """Mark ``f`` as a loop to compile."""
+    setattr(f, _MARK, "loop")
+    return f
+
+
+def inner(f):
+    """Mark ``f`` as a helper to compile inlined into its callers."""
+    setattr(f, _MARK, "inner")
+    return f
+
+
+def _loops(modules, wrap) -> SimpleNamespace:
+    """The modules' names in one namespace, each marked function rebuilt on it and passed to ``wrap``."""
+    key = (wrap.__name__,) + tuple(m.__name__ for m in modules)
+    with _lock:
+        cached = _namespaces.get(key)
+        if cached is None:
+            namespace = {}
+            for module in modules:
+                namespace.update(vars(module))
+            for name, value in list(namespace.items()):
+                kind = getattr(value, _MARK, None)
+                if kind is not None:
+                    copy = FunctionType(value.__code__, namespace, name, value.__defaults__, value.__closure__)
+                    copy.__module__, copy.__qualname__ = value.__module__, value.__qualname__
+                    namespace[name] = wrap(copy, kind)
+            cached = _namespaces[key] = SimpleNamespace(**namespace)
+    return cached
+
+
+def _plain(f, kind):
+    return f
+
+
+def _numba(f, kind):
+    import numba
+
+    options = dict(cache=True, error_model="numpy", nogil=True)
+    if kind == "inner":
+        options["inline"] = "always"
+    return numba.njit(**options)(f)
+
+
+def python_loops(*modules) -> SimpleNamespace:
+    """The functions of the loop modules as plain Python, in one namespace."""
+    return _loops(modules, _plain)
+
+
+def compiled_loops(*modules) -> SimpleNamespace:
+    """numba versions of the marked functions of ``modules``, calling each other compiled."""
+    return _loops(modules, _numba)
+
+
+def signature(name: str):
+    """The numba signature of a kernel: MODEL (model(which, t, z, p, out)), JAC (jac(t, u, p, out))
+    or VALUES (jac_values(t, u, p, out))."""
+    from numba import types as t
+
+    a1, a2 = t.float64[::1], t.float64[:, ::1]
+    return {"MODEL": t.void(t.int64, t.float64, a1, a1, a1), "JAC": t.void(t.float64, a1, a1, a2),
+            "VALUES": t.void(t.float64, a1, a1, a1)}[name]
+
+
+__all__ = ["enabled", "loop", "inner", "python_loops", "compiled_loops", "signature"]
