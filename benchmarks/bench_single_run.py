@@ -12,7 +12,7 @@ import sympy as sp
 from scipy.integrate import solve_ivp
 from scipy.integrate._ivp import dop853_coefficients as D
 
-from benchmarks.harness import Row, interleaved
+from benchmarks.harness import Row, interleaved, interleaved_best
 from orbitdesk.core.engine import RunSettings, simulate
 from orbitdesk.core.integrators import compiled
 from orbitdesk.core.system import compile_model
@@ -112,10 +112,10 @@ def run() -> list[Row]:
 
         a, b = interleaved(ours, baseline, repeats=5)
         rows.append(Row(f"Lorenz trajectory, {label}", a, b, check, "solve_ivp DOP853 + lambdify", "≥ 30x"))
-        a, c = interleaved(ours, plain, repeats=21)
-        rows.append(Row(f"same, {label}, against a plain numba loop", a, c,
-                        "plain loop stores every step, no samples, no checks", "plain numba DOP853 loop",
-                        "within 2x (ratio ≥ 0.5)"))
+        a, c = interleaved_best(ours, plain, repeats=41)
+        rows.append(Row(f"same, {label}, against a plain numba loop (fastest of 41 each)", a, c,
+                        "the plain loop stores every step: no samples, bound or NaN checks, events, progress",
+                        "plain numba DOP853 loop", "within 2x (ratio ≥ 0.5)"))
     return rows
 
 

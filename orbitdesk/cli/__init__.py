@@ -22,10 +22,11 @@ class _Parser(argparse.ArgumentParser):
         raise CommandError(f"{self.prog}: {message}", EXIT_UNREADABLE)
 
 
-def build_parser() -> argparse.ArgumentParser:
+def build_parser(only: str | None = None) -> argparse.ArgumentParser:
+    """The parser of every command, or of the command ``only`` (so only its module is imported)."""
     parser = _Parser(prog="orbitdesk", description="OrbitDesk: build, run and analyse small dynamical models.")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
-    for name in COMMAND_MODULES:
+    for name in COMMAND_MODULES if only not in COMMAND_MODULES else [only]:
         try:
             module = importlib.import_module(f"{__name__}.{name}")
         except ModuleNotFoundError as exc:
@@ -41,7 +42,7 @@ def main(argv=None) -> int:
     try:
         if len(argv) == 2 and argv[0] == "open" and not argv[1].startswith("-"):  # no other command's imports
             return int(importlib.import_module(f"{__name__}.open").run(argparse.Namespace(path=argv[1])) or 0)
-        parser = build_parser()
+        parser = build_parser(argv[0] if argv else None)  # a named command imports only its own module
         args = parser.parse_args(argv)
         if args.command is None:
             from orbitdesk.ui.app import main as app_main

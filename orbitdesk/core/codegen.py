@@ -106,21 +106,23 @@ def kernel_source(system: CompiledSystem, guard: bool) -> str:
            f"JAC_COLS = np.array({cols!r}, dtype=np.int64)", "", ""]
     names = [f"_j{k}" for k in range(len(entries))]
 
-    def tangent(values):
-        lines = [f"out[{i}] = {v}" for i, v in enumerate(values[:n])]
-        lines += [f"{name} = {v}" for name, v in zip(names, values[n:])]
-        lines.append("for _k in range(which):")
+    def products(values):
+        # the Jacobian's entries are computed inside the loop over the tangent vectors: a value kept
+        # from before a loop makes numba reference-count the arrays on every call (several times slower)
+        lines = [f"{name} = {v}" for name, v in zip(names, values)]
         terms: dict[int, list[str]] = {}
         for k, (r, c) in enumerate(zip(rows, cols)):
             terms.setdefault(r, []).append(f"{names[k]} * z[{n} + {c} * which + _k]")
         for r in range(n):
-            lines.append(f"    out[{n} + {r} * which + _k] = " + (" + ".join(terms[r]) if r in terms else "0.0"))
+            lines.append(f"out[{n} + {r} * which + _k] = " + (" + ".join(terms[r]) if r in terms else "0.0"))
         return lines
 
+    store_f = (lambda values: [f"out[{i}] = {v}" for i, v in enumerate(values)])
     out += ["@_model_kernel", f"def model(which, {t}, z, p, out):", "    if which == 0:"]
-    out += _indent(w.lines(f, lambda values: [f"out[{i}] = {v}" for i, v in enumerate(values)], "z"), guard, " " * 8)
-    out += ["        return"]
-    out += _indent(w.lines(list(f) + list(entries), tangent, "z"), guard)
+    out += _indent(w.lines(f, store_f, "z"), guard, " " * 8)
+    out += ["    else:", "        for _k in range(which):", "            if _k == 0:"]
+    out += _indent(w.lines(f, store_f, "z"), guard, " " * 16)
+    out += _indent(w.lines(entries, products, "z"), guard, " " * 12)
     out += ["", ""]
     out += ["@_jac_kernel", f"def jac({t}, u, p, out):"]
     out += _indent(w.lines(entries, lambda values: [f"out[{r}, {c}] = {v}" for r, c, v in zip(rows, cols, values)]),

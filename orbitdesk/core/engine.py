@@ -10,6 +10,7 @@ reports progress, stops cleanly on blow-up, undefined values or cancel and keeps
 from __future__ import annotations
 
 import math
+from time import perf_counter
 from dataclasses import dataclass, field
 from typing import Callable
 
@@ -28,6 +29,7 @@ from .system import MAP, CompiledSystem, UndefinedValue
 
 
 METHODS = NAMES
+PREPARE_AFTER = 0.3  # seconds of a plain-Python run after which the model's kernels compile in the background
 
 
 @dataclass
@@ -166,10 +168,13 @@ def _integrate_loop(system, settings, u0, p, events, report) -> Trajectory:
         rows = np.array([np.append(ev.plane[0], ev.plane[1]) for ev in events], dtype=float)
         planes = (rows, np.array([int(np.sign(ev.direction)) for ev in events]),
                   np.array([bool(ev.terminal) for ev in events]))
+    started = perf_counter()
     with np.errstate(all="ignore"):
         out = drivers.flow_run(engine, settings.method, t0, t1, u0, p, settings.rtol, settings.atol,
                                settings.max_step, settings.dt, settings.bound, grid=grid, every_step=every_step,
                                planes=planes, report=report)
+    if not engine.compiled and perf_counter() - started > PREPARE_AFTER:
+        compiled.prepare(system)  # runs this slow are worth compiling: in the background, for the next ones
     if every_step:
         time, states = out.time, out.states
     else:

@@ -1,14 +1,13 @@
 """Ensembles: many initial conditions and/or parameter sets advanced together.
 
 Every member is a column of ``U`` (shape ``(n_states, N)``); parameters are ``P`` of shape
-``(n_params,)`` (shared) or ``(n_params, N)`` (one set per member). Each stage evaluates the
-system's generated vector evaluator once for all members; there is no Python loop over members.
+``(n_params,)`` (shared) or ``(n_params, N)`` (one set per member).
 
-* ``rk4_ensemble``: fixed-step classical Runge-Kutta, in place, with an ``observer`` hook so samplers
-  (strobe, maxima, section crossings) see every step without whole trajectories being stored.
-* ``dopri5_ensemble``: Dormand-Prince 5(4) with a step size per member (accepted or rejected per
-  member, Hairer, Norsett & Wanner, Solving ODEs I, sec. II.4), output at common sample times by
-  the method's dense output; finished members are dropped from the working set.
+* ``rk4_ensemble`` and ``dopri5_ensemble``: the members run one after the other in the compiled loop
+  of ``integrators/members.py`` (the explicit Runge-Kutta loop of single runs, a step size per
+  member for Dormand-Prince 5(4), output at common sample times off each step's dense output).
+* ``rk4_ensemble`` with an ``observer`` (the sweeps' samplers): all members at once through the
+  system's vectorized evaluator, in place, so samplers see every step without whole trajectories.
 * ``iterate_ensemble``: maps.
 
 Members that go non-finite or pass ``bound`` are frozen at their last good state and flagged in
@@ -28,7 +27,6 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.integrate import RK45
 
 from .integrators.status import DIVERGED, OK, STEP_FAILED, UNDEFINED
 from .integrators.status import WIDTH as _STATUS_WIDTH
@@ -166,11 +164,9 @@ def rk4_ensemble(system, U0, P=None, t0: float = 0.0, dt: float = 0.01, n_steps:
     ``compiled`` None when the work pays for compiling, True to insist (if numba is there), False never."""
     U = _states(system, U0)
     P = member_params(system, P, U.shape[1])
-    if observer is None and compiled is not False:
-        from . import jit
-
-        if jit.available() and (compiled or jit.worth_it(system, U.shape[1] * float(n_steps))):
-            return _rk4_compiled(jit, system, U, P, t0, dt, n_steps, Reporter(progress, cancel), bound)
+    if observer is None:
+        return _members(system, "rk4", U, P, t0, t0 + int(n_steps) * dt, Reporter(progress, cancel),
+                        4.0 * U.shape[1] * n_steps, compiled, dt=dt, bound=bound)
     return rk4_run(member_rhs(system, P), U, t0, dt, n_steps, observer, Reporter(progress, cancel), bound,
                    U.shape[0])
 
@@ -224,15 +220,31 @@ def rk4_run(fun, Y, t0, dt, n_steps, observer, report, bound, check_rows) -> Ens
     return _finish(freezer, Y, t0 + steps_done * dt, steps_done)
 
 
-def _rk4_compiled(jit, system, U, P, t0, dt, n_steps, report, bound) -> EnsembleResult:
-    U, codes, when = jit.rk4_final(system, U, P, t0, dt, int(n_steps), bound, report)
-    status = np.full(U.shape[1], OK, dtype=_STATUS_WIDTH)
-    status[codes == jit.STATUS_DIVERGED] = DIVERGED
-    status[codes == jit.STATUS_UNDEFINED] = UNDEFINED
-    frozen = codes != jit.STATUS_OK
-    time = np.where(frozen, when, t0 + int(n_steps) * dt)
+def _members(system, method, U, P, t0, t_end, report, evaluations, compiled=None, sample_times=None,
+             **options) -> EnsembleResult:
+    """Members run one after the other in the compiled loop (integrators/members.py), each with its
+    own step control; ``compiled`` False keeps to plain Python, True compiles now, None when it pays."""
+    from .integrators import compiled as kernels
+    from .integrators import drivers
+    from .integrators.status import words
+
+    if compiled is False:
+        engine = kernels.python_engine(system)
+    else:
+        engine = kernels.engine_for(system, wait=bool(compiled)) if compiled else kernels.engine_for_work(
+            system, evaluations)
+    ts = None if sample_times is None else np.asarray(sample_times, dtype=float).ravel()
+    grid = None if ts is None else ts[ts != t0]
+    with np.errstate(all="ignore"):
+        out = drivers.members_run(engine, method, t0, t_end, U, P, grid=grid, report=report, **options)
+    samples = None
+    if ts is not None:
+        samples = np.empty((U.shape[0], U.shape[1], ts.size))
+        samples[:, :, ts == t0] = U[:, :, None]
+        samples[:, :, ts != t0] = out.samples
     report(1.0)
-    return EnsembleResult(time=time, states=U, status=status, steps=np.full(U.shape[1], int(n_steps)))
+    return EnsembleResult(time=out.t, states=out.states, status=words(out.codes), steps=out.steps,
+                          sample_times=ts, samples=samples)
 
 
 def _finish(freezer, Y, t_end, steps_done):
@@ -271,28 +283,6 @@ def iterate_run(fun, Y, n0, n_steps, observer, report, bound, check_rows) -> Ens
 
 
 # ---------------------------------------------------------------- adaptive Dormand-Prince 5(4)
-# Tableau, error weights and dense-output polynomial of Dormand & Prince (1980), as scipy's RK45 holds them.
-_A, _B, _C, _E, _P = RK45.A, RK45.B, RK45.C, RK45.E, RK45.P
-_SAFETY, _FAC_MIN, _FAC_MAX = 0.9, 0.2, 10.0
-
-
-def _rms(X, scale):
-    return np.sqrt(np.mean((X / scale) ** 2, axis=0))
-
-
-def _initial_step(fun, t0, Y, F0, direction, rtol, atol, order=5):
-    """Starting step per member (Hairer, Norsett & Wanner, Solving ODEs I, sec. II.4)."""
-    scale = atol + np.abs(Y) * rtol
-    d0, d1 = _rms(Y, scale), _rms(F0, scale)
-    h0 = np.where((d0 < 1e-5) | (d1 < 1e-5), 1e-6, 0.01 * d0 / np.where(d1 > 0, d1, 1.0))
-    F1 = fun(t0 + direction * h0, Y + direction * h0 * F0)
-    d2 = _rms(F1 - F0, scale) / h0
-    big = np.maximum(d1, d2)
-    h1 = np.where(big <= 1e-15, np.maximum(1e-6, h0 * 1e-3), (0.01 / np.where(big > 0, big, 1.0)) ** (1 / order))
-    h = np.minimum(100 * h0, h1)
-    return np.where(np.isfinite(h) & (h > 0), h, 1e-6)
-
-
 def dopri5_ensemble(system, U0, P=None, t0: float = 0.0, t_end=1.0, sample_times=None,
                     rtol: float = 1e-8, atol: float = 1e-10, max_step: float = math.inf,
                     bound: float = 1e10, max_steps: int = 10_000_000, cancel=None, progress=None) -> EnsembleResult:
@@ -300,7 +290,8 @@ def dopri5_ensemble(system, U0, P=None, t0: float = 0.0, t_end=1.0, sample_times
 
     ``t_end`` is a number or one per member (all on the same side of ``t0``). ``sample_times`` (K,)
     are common output times; each member's values there come from the dense output of the step that
-    covers them. Finished and frozen members leave the working arrays, so their cost stops."""
+    covers them. Members run one after the other in the compiled loop (``max_steps`` is not used: a
+    member whose step collapses stops with the status step_failed)."""
     U = _states(system, U0)
     n, N = U.shape
     P = member_params(system, P, N)
@@ -314,124 +305,6 @@ def dopri5_ensemble(system, U0, P=None, t0: float = 0.0, t_end=1.0, sample_times
     ts = None if sample_times is None else np.asarray(sample_times, dtype=float).ravel()
     if ts is not None and ts.size > 1 and np.any(np.diff(ts) * direction <= 0):
         raise ValueError("sample times must be strictly ordered in the direction of integration")
-    report = Reporter(progress, cancel)
-
-    status = np.full(N, OK, dtype=_STATUS_WIDTH)
-    time_out = np.full(N, float(t0))
-    states_out = U.copy()
-    accepted = np.zeros(N, dtype=np.int64)
-    rejected = np.zeros(N, dtype=np.int64)
-    samples = None
-    if ts is not None:
-        samples = np.full((n, N, ts.size), np.nan)
-        at_start = np.nonzero(ts == t0)[0]
-        samples[:, :, at_start] = U[:, :, None]
-
-    # working set: members still running
-    idx = np.arange(N)
-    shared_p = P.ndim == 1
-
-    fun = member_rhs(system, P)
-    Y = U
-    t = np.full(N, float(t0))
-    tend = t_end.copy()
-    nxt = np.zeros(N, dtype=np.int64) if ts is None else np.full(N, np.searchsorted(ts * direction, t0 * direction,
-                                                                                    side="right"))
-    K = np.empty((7, n, N))
-    with np.errstate(all="ignore"):
-        K[0] = fun(t, Y)
-        h = np.minimum(_initial_step(fun, t, Y, K[0], direction, rtol, atol), max_step)
-        last_rejected = np.zeros(N, dtype=bool)
-        Ynew, tmp, err = np.empty_like(Y), np.empty_like(Y), np.empty_like(Y)
-        total = float(np.max(np.abs(span)))
-        iteration = 0
-        while idx.size:
-            iteration += 1
-            if iteration > max_steps:
-                status[idx] = STEP_FAILED
-                time_out[idx] = t
-                states_out[:, idx] = Y
-                break
-            hh = np.minimum(h, (tend - t) * direction)  # positive step lengths, never past the end
-            hs = direction * hh
-            flat = K.reshape(7, -1)
-            for s in range(1, 6):
-                np.dot(_A[s, :s], flat[:s], out=tmp.reshape(-1))
-                tmp *= hs
-                tmp += Y
-                K[s] = fun(t + _C[s] * hs, tmp)
-            np.dot(_B, flat[:6], out=Ynew.reshape(-1))
-            Ynew *= hs
-            Ynew += Y
-            t_new = t + hs
-            K[6] = fun(t_new, Ynew)
-            np.dot(_E, flat, out=err.reshape(-1))
-            err *= hs
-            np.maximum(np.abs(Y), np.abs(Ynew), out=tmp)
-            tmp *= rtol
-            tmp += atol
-            err /= tmp
-            err *= err
-            en = np.sqrt(err.sum(axis=0) / n)
-            finite = np.isfinite(en)
-            accept = en <= 1.0
-            factor = _SAFETY * en ** -0.2
-            factor[~finite] = _FAC_MIN
-            np.minimum(factor, np.where(accept, np.where(last_rejected, 1.0, _FAC_MAX), 1.0), out=factor)
-            np.maximum(factor, _FAC_MIN, out=factor)
-            h = np.minimum(hh * factor, max_step)
-            last_rejected = ~accept
-
-            bad = accept & bad_members(Ynew, bound)
-            if bad.any():
-                accept &= ~bad
-                status[idx[bad]] = _kind_of_failure(Ynew[:, bad])
-            if ts is not None and accept.any():
-                _dense_samples(ts, direction, accept, nxt, t, t_new, hs, Y, K, samples, idx)
-
-            np.copyto(Y, Ynew, where=accept[None, :])
-            np.copyto(K[0], K[6], where=accept[None, :])
-            t = np.where(accept, t_new, t)
-            accepted[idx] += accept
-            rejected[idx] += ~accept & ~bad
-
-            done = accept & ((tend - t) * direction <= 1e-12 * np.maximum(1.0, np.abs(tend)))
-            tiny = ~accept & ~bad & (h <= 16 * np.finfo(float).eps * np.maximum(1.0, np.abs(t)))
-            if tiny.any():
-                status[idx[tiny]] = np.where(np.isnan(Ynew[:, tiny]).any(axis=0), UNDEFINED, STEP_FAILED)
-            leaving = done | bad | tiny
-            if leaving.any():
-                gone = idx[leaving]
-                time_out[gone] = np.where(bad, t_new, t)[leaving]  # frozen: when it went bad
-                states_out[:, gone] = Y[:, leaving]  # frozen members keep their last good state
-                keep = ~leaving
-                idx = idx[keep]
-                Y = Y[:, keep].copy()
-                Ynew, tmp, err = np.empty_like(Y), np.empty_like(Y), np.empty_like(Y)
-                K = K[:, :, keep].copy()
-                t, tend, h, nxt, last_rejected = t[keep], tend[keep], h[keep], nxt[keep], last_rejected[keep]
-                if not shared_p:
-                    fun = member_rhs(system, P[:, idx])
-            if idx.size and iteration % 16 == 0:
-                report(1.0 - float(np.max((tend - t) * direction)) / total)
-    return EnsembleResult(time=time_out, states=states_out, status=status, steps=accepted, rejected=rejected,
-                          sample_times=ts, samples=samples)
-
-
-def _dense_samples(ts, direction, accept, nxt, t_old, t_new, hs, Y, K, samples, idx):
-    """Fill the sample times inside each accepted step from the step's quartic dense output."""
-    n_ts = ts.size
-    while True:
-        j = np.minimum(nxt, n_ts - 1)
-        sel = accept & (nxt < n_ts) & ((ts[j] - t_new) * direction <= 0)
-        if not sel.any():
-            return
-        w = np.nonzero(sel)[0]
-        jw = nxt[w]
-        x = (ts[jw] - t_old[w]) / hs[w]
-        powers = np.stack([x, x * x, x ** 3, x ** 4])  # (4, m)
-        weights = _P @ powers  # (7, m): stage weights at each x
-        Kw = K[:, :, w]  # (7, n, m)
-        values = Y[:, w] + hs[w] * np.einsum("snm,sm->nm", Kw, weights)
-        samples[:, idx[w], jw] = values
-        nxt[w] += 1
+    return _members(system, "rk45", U, P, t0, t_end, Reporter(progress, cancel), 7.0 * N * 1000.0, None,
+                    sample_times=ts, rtol=rtol, atol=atol, max_step=max_step if math.isfinite(max_step) else None,
+                    bound=bound)

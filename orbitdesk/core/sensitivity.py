@@ -24,10 +24,15 @@ from scipy.integrate import solve_ivp
 
 from .progress import CancelToken
 from .system import MAP, UNDEFINED_ERRORS, CompiledSystem, _printer
-from .variational import matrix_symbols
+from .integrators.methods import METHODS
 
-_SOLVE_METHODS = {"dop853": "DOP853", "rk45": "RK45", "rk4": "DOP853", "stiff": "Radau"}
 CANCEL_EVERY = 2000  # right-hand-side calls between cancel checks
+
+
+def _scipy_method(name: str) -> str:
+    """The registry's scipy solver for ``name``; fixed-step and unknown methods use DOP853."""
+    entry = METHODS.get(name)
+    return entry.scipy_name if entry is not None and entry.scipy_name else "DOP853"
 
 
 class SensitivityFailure(Exception):
@@ -62,7 +67,7 @@ class Sensitivities:
         pj = system.param_jacobian
         fp = sp.Matrix(n, m, lambda i, j: system.plain([pj[i, self.selected[j]]])[0]) if m else sp.zeros(n, 0)
         s = sp.Matrix(n, m, [sp.Symbol(f"_s{i}", real=True) for i in range(n * m)]) if m else sp.zeros(n, 0)
-        phi = matrix_symbols(n)
+        phi = sp.Matrix(n, n, [sp.Symbol(f"_m{i}", real=True) for i in range(n * n)])
         exprs = list(system.plain(system.f)) + list(jac * s + fp) + list(jac * phi)
         z = list(u) + list(s) + list(phi)
         return sp.lambdify([t, *z, *p], exprs, modules="math", cse=True, printer=_printer())
@@ -104,7 +109,7 @@ class Sensitivities:
         if t_end == t_start:
             return self._split(np.repeat(z0[:, None], times.size, axis=1), times)
         with np.errstate(all="ignore"):
-            sol = solve_ivp(rhs, (float(t_start), t_end), z0, method=_SOLVE_METHODS.get(method, "DOP853"),
+            sol = solve_ivp(rhs, (float(t_start), t_end), z0, method=_scipy_method(method),
                             t_eval=times, rtol=rtol, atol=atol)
         if sol.status != 0 or sol.y.shape[1] != times.size or not np.all(np.isfinite(sol.y)):
             raise SensitivityFailure(f"the model could not be integrated to {self.system.time_name} = {t_end:.6g} "

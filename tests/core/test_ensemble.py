@@ -161,7 +161,8 @@ def test_cancel_and_progress():
 
     with pytest.raises(Cancelled):
         rk4_ensemble(system, _members(system, 4), None, dt=0.01, n_steps=2000, cancel=token, progress=progress)
-    assert 0.3 < fractions[-1] < 0.5 and fractions == sorted(fractions)
+    # members run one after the other: progress (and cancel) come between members, here one each
+    assert 0.3 < fractions[-1] <= 0.5 and fractions == sorted(fractions)
     seen = []
     dopri5_ensemble(system, _members(system, 2), None, t_end=50.0, progress=seen.append)
     assert seen and seen == sorted(seen) and seen[-1] <= 1.0

@@ -1,9 +1,8 @@
 """Generated evaluators: the plain-Python scalar code and the optional numba loops against references.
 
 The scalar code of ``CompiledSystem.rhs_for_params`` is checked against sympy's own evaluation of
-the model's expressions; the numba RK4 loop against the numpy ensemble on the same model and
-against the closed form of RK4 on a linear system; the numba Lyapunov loop of a map against the
-numpy grid code and a published value.
+the model's expressions; the numba Lyapunov loop of a map against the numpy grid code and a
+published value. (The integrators' compiled loops: tests/core/test_kernels.py.)
 """
 
 from __future__ import annotations
@@ -59,48 +58,6 @@ def test_negative_base_to_a_fractional_power_is_reported_undefined():
 
 
 @needs_numba
-def test_compiled_rk4_equals_the_numpy_ensemble_on_a_forced_oscillator():
-    system = compile_model(DUFFING)
-    rng = np.random.default_rng(1)
-    U0 = rng.uniform(-1.5, 1.5, size=(2, 300))
-    P = np.repeat(system.param_values[:, None], 300, axis=1)
-    P[1] = np.linspace(0.2, 0.5, 300)  # gamma per member
-    numpy_run = rk4_ensemble(system, U0, P, dt=0.01, n_steps=800, compiled=False)
-    compiled_run = rk4_ensemble(system, U0, P, dt=0.01, n_steps=800, compiled=True)
-    assert np.allclose(compiled_run.states, numpy_run.states, rtol=1e-11, atol=1e-11)
-    assert np.array_equal(compiled_run.status, numpy_run.status)
-    shared = rk4_ensemble(system, U0, dt=0.01, n_steps=800, compiled=True)
-    assert np.allclose(shared.states, rk4_ensemble(system, U0, dt=0.01, n_steps=800, compiled=False).states,
-                       rtol=1e-11, atol=1e-11)
-
-
-@needs_numba
-def test_compiled_rk4_matches_the_closed_form_of_rk4_on_a_linear_system():
-    # u' = lam u: one RK4 step multiplies by R(z) = 1 + z + z^2/2 + z^3/6 + z^4/24, z = lam h
-    # (Hairer, Norsett & Wanner, Solving ODEs I, sec. IV.2, stability function of RK4)
-    system = compile_model("lam = -0.7\nu' = lam*u\nu(0) = 1\n")
-    lams = np.linspace(-3.0, 0.5, 50)
-    h, steps = 0.05, 400
-    run = rk4_ensemble(system, np.ones((1, 50)), lams[None, :], dt=h, n_steps=steps, compiled=True)
-    z = lams * h
-    expected = (1 + z + z**2 / 2 + z**3 / 6 + z**4 / 24) ** steps
-    assert np.allclose(run.states[0], expected, rtol=1e-12)
-
-
-@needs_numba
-def test_compiled_rk4_freezes_a_blow_up_like_the_numpy_path():
-    # x' = x^2 from x0 has the closed form x0/(1 - x0 t): it blows up at t = 1/x0
-    system = compile_model("x' = x^2\nx(0) = 1\n")
-    U0 = np.array([[0.5, 1.0, 2.0, -1.0]])
-    a = rk4_ensemble(system, U0, dt=0.001, n_steps=3000, compiled=True)
-    b = rk4_ensemble(system, U0, dt=0.001, n_steps=3000, compiled=False)
-    assert list(a.status) == list(b.status) == ["diverged", "diverged", "diverged", "ok"]
-    assert np.array_equal(a.time, b.time)
-    assert a.time[:3] == pytest.approx([2.0, 1.0, 0.5], abs=0.01)
-    assert np.array_equal(a.states, b.states)
-
-
-@needs_numba
 def test_compiled_map_exponent_equals_the_numpy_grid_code():
     system = compile_model(HENON)
     P = np.vstack([np.linspace(1.0, 1.4, 40), np.full(40, 0.3)])
@@ -115,18 +72,6 @@ def test_compiled_map_exponent_equals_the_numpy_grid_code():
     # Sprott, Chaos and Time-Series Analysis (2003): Henon a = 1.4, b = 0.3, largest exponent ~0.419
     # (value from memory)
     assert exponents[-1] == pytest.approx(0.419, abs=0.02)
-
-
-@needs_numba
-def test_compiled_code_is_cached_per_model(tmp_path, monkeypatch):
-    monkeypatch.setenv("ORBITDESK_CACHE", str(tmp_path))
-    system = compile_model("w = 1.5\nx'' = -w^2*x\nx(0) = 1\n")
-    rk4_ensemble(system, np.ones((2, 8)), dt=0.01, n_steps=10, compiled=True)
-    files = list((tmp_path / "jit").glob("m*.py"))
-    assert len(files) == 1
-    assert jit.is_compiled(system)
-    other = compile_model("w = 1.5\nx'' = -w^2*x + 0.1*x^3\nx(0) = 1\n")
-    assert not jit.is_compiled(other)
 
 
 def test_without_numba_everything_runs_on_numpy(monkeypatch):

@@ -124,7 +124,9 @@ def test_exported_script_reproduces_the_run_on_screen(qtbot, window, tmp_path, m
     head, data = rows[0], np.array(rows[1:], dtype=float)
     assert head[:2] == ["t", "x"] and data.shape[0] == 501
     np.testing.assert_allclose(data[:, 1], np.cos(3.0 * data[:, 0]), atol=1e-6)
-    np.testing.assert_allclose(data[:, 1], s.trajectory.series("x"), atol=1e-9)
+    # the script steps with scipy's DOP853, the app with its own Dormand-Prince 8(5,3) and dense
+    # output, both at rtol 1e-8: they agree to the tolerance's level, not bit for bit
+    np.testing.assert_allclose(data[:, 1], s.trajectory.series("x"), atol=1e-7)
 
 
 def test_html_report_embeds_pictures_of_the_open_views(qtbot, window, tmp_path, monkeypatch):

@@ -101,10 +101,13 @@ def test_non_smooth_model_is_flagged(qtbot, session):
     view.length.setValue(200.0)
     view.transient.setValue(20.0)
     result = compute(qtbot, view)
-    assert result.method == "two-trajectory" and result.exponents.size == 1
-    assert view.table.rowCount() == 1
-    assert "max" in view.notes.text() and "Jacobian" in view.notes.text()
-    assert "two nearby trajectories" in view.summary.text()
+    # the full spectrum from the Jacobian that holds almost everywhere, with a note that says so;
+    # closed form: that Jacobian's trace is -0.2 everywhere, so the exponents sum to -0.2
+    assert result.method == "qr" and result.exponents.size == 2
+    assert result.exponents.sum() == pytest.approx(-0.2, abs=1e-3)
+    assert view.table.rowCount() == 2
+    assert "max" in view.notes.text() and "almost everywhere" in view.notes.text()
+    assert "QR of the tangent vectors" in view.summary.text()
 
 
 def test_settings_round_trip_and_stale_note(qtbot, session):

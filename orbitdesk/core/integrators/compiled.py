@@ -26,10 +26,10 @@ from types import ModuleType, SimpleNamespace
 from .. import private_cache
 from ..codegen import HEADER, kernel_source
 from ..system import UNDEFINED_ERRORS
-from . import explicit_rk, jitting, maps, tangent
+from . import explicit_rk, jitting, maps, members, tangent
 
-LOOP_MODULES = (explicit_rk, maps, tangent)
-_SIGNATURES = {"model": "MODEL", "jac_values": "VALUES", "jac": "JAC"}
+LOOP_MODULES = (explicit_rk, maps, tangent, members)
+_SIGNATURES = {"model": "MODEL"}  # the kernels the loops call; jac and jac_values stay plain Python
 _CACHE_OPTION = "cache=True"
 _lock = threading.Lock()
 _engines: dict[str, "Engine"] = {}  # source hash -> compiled engine, its loops ready
@@ -60,7 +60,8 @@ def module_source(system, jit: bool) -> str:
     if cached is None:
         if jit:
             head = ["import math", "from math import *  # noqa: F401,F403", "import numpy as np",
-                    "from numba import cfunc", "from orbitdesk.core.integrators import jitting", ""]
+                    "from numba import cfunc", "from orbitdesk.core.integrators import jitting", "", "",
+                    "def _plain(f):", "    return f", ""]
             head += [f"_{name}_kernel = cfunc(jitting.signature({sig!r}), {_CACHE_OPTION}, error_model='numpy')"
                      for name, sig in _SIGNATURES.items()]
         else:
@@ -68,6 +69,7 @@ def module_source(system, jit: bool) -> str:
                     "def _plain(f):", "    return f", "", "",
                     "def _fill_nan(a):", "    a[...] = math.nan", ""]
             head += [f"_{name}_kernel = _plain" for name in _SIGNATURES]
+        head += ["_jac_kernel = _jac_values_kernel = _plain  # called from Python (stiff solvers, Newton)"]
         cached = system.__dict__[key] = HEADER + "\n".join(head) + "\n\n\n" + kernel_source(system, guard=not jit) + "\n"
     return cached
 
@@ -132,7 +134,7 @@ def engine_for(system, wait: bool = False) -> Engine:
         thread = _pending.get(digest)
     if engine is not None:
         return engine
-    if not wait:
+    if not wait and not _cached_on_disk(digest):
         return python_engine(system)
     if thread is not None:
         thread.join()
@@ -140,6 +142,16 @@ def engine_for(system, wait: bool = False) -> Engine:
             if digest in _engines:
                 return _engines[digest]
     return _compile(source, digest)
+
+
+def _cached_on_disk(digest: str) -> bool:
+    """The model's kernels are in the cache from an earlier process and numba is loaded already:
+    loading them costs less than a plain-Python run."""
+    if "numba" not in sys.modules:
+        return False
+    folder = cache_folder()
+    return folder is not None and (folder / f"m{digest}.py").exists() and any(
+        (folder / "__pycache__").glob(f"m{digest}.*.nbi"))
 
 
 def prepare(system) -> None:

@@ -199,6 +199,61 @@ def map_tangent(engine, n0, n_end, keep_from, u0, V0, p, bound=1e10, max_rows=50
     return TangentOutput(sums, float(st[8]), rows[:r].copy(), row_t[:r].copy(), int(code), float(st[0]), z[:n].copy())
 
 
+@dataclass
+class MembersOutput:
+    states: np.ndarray  # (n, N) where each member ended (a stopped member: its last good state)
+    codes: np.ndarray  # (N,) status codes
+    t: np.ndarray  # (N,) where each member ended
+    steps: np.ndarray  # (N,) accepted steps
+    samples: np.ndarray | None  # (n, N, K) at the grid times, NaN where a member never got there
+    event_t: np.ndarray | None  # (N, E) crossing times, NaN beyond ev_count
+    event_y: np.ndarray | None  # (n, N, E)
+    event_count: np.ndarray | None  # (N,)
+
+
+def members_run(engine, name, t0, t_end, U0, P, rtol=1e-8, atol=1e-10, max_step=None, dt=0.01, bound=1e10,
+                grid=None, planes=None, max_events=0, report=None, chunk=None) -> MembersOutput:
+    """Run the columns of U0 (n, N) from t0 to t_end (a number or one per member) with parameters
+    P ((n_p,) shared or (n_p, N)); samples at ``grid``; the first ``max_events`` crossings of
+    ``planes`` per member. Members go in chunks so progress and cancel (raising Cancelled) are
+    honoured between them."""
+    kind, adaptive, rtol, atol, max_step = _step_options(name, rtol, atol, max_step, dt)
+    U = np.ascontiguousarray(np.asarray(U0, dtype=float).T)
+    N, n = U.shape
+    P = np.asarray(P, dtype=float)
+    rows = np.ascontiguousarray(P[None, :] if P.ndim == 1 else P.T)
+    if rows.shape[1] == 0:
+        rows = np.zeros((rows.shape[0], 1))
+    ends = np.ascontiguousarray(np.broadcast_to(np.asarray(t_end, dtype=float), (N,)))
+    grid = np.empty(0) if grid is None else np.ascontiguousarray(grid, dtype=float)
+    samples = np.empty((N, grid.size, n))
+    plane_rows, dirs, terminal = _no_planes(n) if planes is None else (
+        np.ascontiguousarray(planes[0], dtype=float), np.ascontiguousarray(planes[1], dtype=np.int64),
+        np.ascontiguousarray(planes[2], dtype=np.bool_))
+    E = max(int(max_events), 1)
+    ev_t, ev_y = np.full((N, E), np.nan), np.full((N, E, n), np.nan)
+    ev_count = np.zeros(N)
+    codes, t_reached, steps = np.zeros(N, dtype=np.int64), np.zeros(N), np.zeros(N)
+    chunk = chunk or max(1, min(64, N // 16))
+    for start in range(0, N, chunk):
+        stop = min(N, start + chunk)
+        part = rows if rows.shape[0] == 1 else rows[start:stop]
+        engine.loops.members_advance(engine.f, kind, adaptive, U[start:stop], part, float(t0), ends[start:stop], rtol,
+                                     atol, max_step, float(bound), grid, samples[start:stop], plane_rows, dirs,
+                                     terminal, ev_t[start:stop], ev_y[start:stop], ev_count[start:stop],
+                                     codes[start:stop], t_reached[start:stop], steps[start:stop])
+        if report is not None:
+            report(stop / N)  # Cancelled goes to the caller
+    count = ev_count.astype(np.int64)
+    beyond = np.arange(E)[None, :] >= count[:, None]
+    ev_t[beyond] = np.nan
+    ev_y[beyond] = np.nan
+    return MembersOutput(U.T.copy(), codes, t_reached, steps.astype(np.int64),
+                         np.moveaxis(samples, 2, 0) if grid.size else None,
+                         ev_t if planes is not None else None, np.moveaxis(ev_y, 2, 0) if planes is not None else None,
+                         count if planes is not None else None)
+
+
 def warm_up(engine) -> None:
     """Compile every loop with the drivers' argument types (or load it from numba's cache)."""
     k = engine.kernels
@@ -212,7 +267,9 @@ def warm_up(engine) -> None:
     planes = (np.zeros((1, n + 1)), np.zeros(1, dtype=np.int64), np.zeros(1, dtype=np.bool_))
     flow_run(engine, "dop853", 0.0, 1e-9, y0, p, grid=np.array([0.0, 1e-9]), planes=planes)
     flow_tangent(engine, "dop853", 0.0, 1e-9, 0.0, y0, np.eye(n), p, 1e-9)
+    members_run(engine, "dop853", 0.0, 1e-9, y0[:, None], p, grid=np.array([1e-9]), planes=planes, max_events=1)
 
 
-__all__ = ["FlowOutput", "TangentOutput", "flow_run", "map_run", "flow_tangent", "map_tangent", "warm_up",
+__all__ = ["FlowOutput", "TangentOutput", "MembersOutput", "flow_run", "map_run", "flow_tangent", "map_tangent",
+           "members_run", "warm_up",
            "PAUSE_STEPS"]
