@@ -10,9 +10,6 @@ numba keeps its machine code (pickles) in its ``__pycache__`` (also verified pri
 compiled once loads in a fraction of a second in later processes; otherwise (refused folder, or
 numba told to cache elsewhere by ``NUMBA_CACHE_DIR``) nothing is cached on disk.
 
-* ``rk4_final``: classical RK4 for each member in turn (all steps of a member while it sits in
-  registers), the same arithmetic order as ``ensemble.rk4_run``; members that pass ``bound`` or
-  go non-finite are frozen at their last good state.
 * ``map_lyapunov``: the largest Lyapunov exponent of a map for each member, with the tangent
   vector evolved by the exact Jacobian and renormalised every step (as ``sweep.grid_exponents``).
 
@@ -86,65 +83,6 @@ def _names(prefix, count):
     return [f"{prefix}{i}" for i in range(count)]
 
 
-def _rk4_loop(n, n_p) -> list[str]:
-    """RK4 over members for a model of ``n`` states and ``n_p`` parameters, unrolled over the states.
-
-    Steps outside, members inside, branch-free so the member loop vectorises: every member computes
-    its step, a member that goes bad (or was frozen) keeps its state, and the rare new failures are
-    booked after the member loop. The arithmetic order is that of ``ensemble.rk4_run``."""
-    u, p = _names("u", n), _names("p", n_p)
-    k = {s: _names(f"k{s}_", n) for s in (1, 2, 3, 4)}
-    v = _names("v", n)
-    tup = lambda names: ", ".join(names) + ("," if len(names) == 1 else "")  # noqa: E731
-    pl = ", ".join(p)
-    call = (lambda tt, args: f"rhs({tt}, {', '.join(args)}{', ' + pl if p else ''})")
-
-    def member_loop(indent, load_params):
-        pad = " " * indent
-        lines = [f"{pad}for i in range(N):"]
-        lines += [f"{pad}    {p[r]} = P[{r}, i]" for r in range(n_p)] if load_params else []
-        lines += [f"{pad}    {u[r]} = U[{r}, i]" for r in range(n)]
-        lines.append(f"{pad}    {tup(k[1])} = {call('t', u)}")
-        lines.append(f"{pad}    {tup(k[2])} = {call('t + half', [f'{k[1][r]} * half + {u[r]}' for r in range(n)])}")
-        lines.append(f"{pad}    {tup(k[3])} = {call('t + half', [f'{k[2][r]} * half + {u[r]}' for r in range(n)])}")
-        lines.append(f"{pad}    {tup(k[4])} = {call('t + dt', [f'{k[3][r]} * dt + {u[r]}' for r in range(n)])}")
-        lines += [f"{pad}    {v[r]} = (((({k[2][r]} * 2.0 + {k[1][r]}) + {k[3][r]}) + {k[3][r]}) + {k[4][r]})"
-                  f" * sixth + {u[r]}" for r in range(n)]
-        lines.append(f"{pad}    ok = " + " & ".join(f"(abs({x}) <= bound)" for x in v))
-        lines.append(f"{pad}    go = ok & live[i]")
-        lines += [f"{pad}    U[{r}, i] = {v[r]} if go else {u[r]}" for r in range(n)]
-        lines.append(f"{pad}    fresh = live[i] & (not ok)")
-        lines.append(f"{pad}    mark[i] = fresh * (1 + (" + " | ".join(f"({x} != {x})" for x in v) + "))")
-        lines.append(f"{pad}    live[i] = go")
-        lines.append(f"{pad}    failed += fresh")
-        return lines
-
-    body = [
-        "@numba.njit(cache=CACHE, error_model='numpy', nogil=True)",
-        "def rk4_final(U, P, t0, dt, first, count, bound, status, when):",
-        "    N = U.shape[1]",
-        "    shared = P.shape[1] == 1",
-        "    live = status == 0",
-        "    mark = np.zeros(N, dtype=np.int8)",
-        "    half = dt / 2.0",
-        "    sixth = dt / 6.0",
-    ]
-    body += [f"    {p[r]} = P[{r}, 0]" for r in range(n_p)]
-    body += ["    for step in range(first + 1, first + count + 1):",
-             "        t = t0 + (step - 1) * dt",
-             "        failed = 0",
-             "        if shared:"]
-    body += member_loop(12, False)
-    body.append("        else:")
-    body += member_loop(12, True)
-    body += ["        if failed:",
-             "            for i in range(N):",
-             "                if mark[i]:",
-             "                    status[i] = mark[i]",
-             "                    when[i] = t0 + step * dt"]
-    return body
-
-
 def _lyapunov_loop(n, n_p) -> list[str]:
     """Largest exponent of a map per member: tangent vector by the exact Jacobian, renormalised each step."""
     u, p, w, v = _names("u", n), _names("p", n_p), _names("w", n), _names("y", n)
@@ -203,8 +141,6 @@ def _module_source(system) -> str:
     if system.kind == MAP and system.smooth:  # the exponent loop needs the exact Jacobian
         lines += _function("jac", t, u, p, system.plain(list(system.jacobian))) + [""]
         lines += _lyapunov_loop(n, n_p) + [""]
-    if system.kind != MAP:
-        lines += _rk4_loop(n, n_p) + [""]
     return "\n".join(lines) + "\n"
 
 
@@ -245,28 +181,6 @@ def kernels(system):
 def worth_it(system, member_steps: float) -> bool:
     """Use the compiled loops: numba is there and the work pays for compiling (or it is compiled)."""
     return available() and (member_steps >= MIN_WORK or is_compiled(system))
-
-
-def rk4_final(system, U, P, t0, dt, n_steps, bound, report=None, pieces=20):
-    """Final states of RK4 runs, in place in ``U`` (n, N); returns (U, status codes, freeze times).
-
-    The steps are run in about ``pieces`` stretches so progress and cancel are honoured between them;
-    times are ``t0 + k*dt`` exactly, as in ``ensemble.rk4_run``."""
-    module = kernels(system)
-    U = np.ascontiguousarray(U, dtype=float)
-    N = U.shape[1]
-    P = np.asarray(P, dtype=float)
-    P2 = P[:, None].copy() if P.ndim == 1 else np.ascontiguousarray(P)
-    status = np.zeros(N, dtype=np.int64)
-    when = np.full(N, np.nan)
-    n_steps = int(n_steps)
-    stretch = max(1, -(-n_steps // max(1, pieces)))
-    for done in range(0, n_steps, stretch):
-        count = min(stretch, n_steps - done)
-        module.rk4_final(U, P2, float(t0), float(dt), done, count, float(bound), status, when)
-        if report is not None:
-            report((done + count) / n_steps)
-    return U, status, when
 
 
 def map_lyapunov(system, U, P, n0, keep_from, n_steps, bound, v0, report=None, block=None):

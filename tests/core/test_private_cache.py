@@ -16,14 +16,15 @@ import sys
 import numpy as np
 import pytest
 
-from orbitdesk.core import jit, private_cache
+from orbitdesk.core import private_cache
+from orbitdesk.core.integrators import compiled
 from orbitdesk.core.ensemble import rk4_ensemble
 from orbitdesk.core.safe_files import atomic_write, temp_name
 from orbitdesk.core.system import compile_model
 
 OSCILLATOR = "w = 1.5\nx'' = -w^2*x\nx(0) = 1\n"
 MARKER_CODE = "open({marker!r}, 'w').close()\n"
-needs_numba = pytest.mark.skipif(not jit.available(), reason="numba is not installed (extra 'jit') or ORBITDESK_JIT=0")
+needs_numba = pytest.mark.skipif(not compiled.available(), reason="numba missing or ORBITDESK_NO_JIT set")
 posix = pytest.mark.skipif(not hasattr(os, "getuid"), reason="POSIX owners and modes")
 
 
@@ -31,7 +32,7 @@ posix = pytest.mark.skipif(not hasattr(os, "getuid"), reason="POSIX owners and m
 def cache(tmp_path, monkeypatch):
     root = tmp_path / "cache"
     monkeypatch.setenv("ORBITDESK_CACHE", str(root))
-    monkeypatch.setattr(jit, "_loaded", {})
+    monkeypatch.setattr(compiled, "_engines", {})
     return root
 
 
@@ -40,7 +41,7 @@ def _mode(path) -> int:
 
 
 def _rk4_works(system) -> None:
-    """One compiled RK4 ensemble step against the numpy path (the same arithmetic)."""
+    """One compiled RK4 ensemble against the plain-Python path (the same loop)."""
     U = np.array([[1.0, 0.5], [0.0, 0.2]])
     compiled = rk4_ensemble(system, U.copy(), dt=0.01, n_steps=20, compiled=True)
     reference = rk4_ensemble(system, U.copy(), dt=0.01, n_steps=20, compiled=False)
@@ -62,12 +63,12 @@ def test_numba_cache_files_stay_in_the_private_folder(cache, monkeypatch, tmp_pa
     elsewhere = tmp_path / "numba-elsewhere"
     system = compile_model(OSCILLATOR)
     _rk4_works(system)
-    assert _mode(cache / "jit") == 0o700 and _mode(cache / "jit" / "__pycache__") == 0o700
-    assert list((cache / "jit" / "__pycache__").glob("m*.nbi"))
-    assert jit.is_compiled(system)
+    assert _mode(cache / "kernels") == 0o700 and _mode(cache / "kernels" / "__pycache__") == 0o700
+    assert list((cache / "kernels" / "__pycache__").glob("m*.nbi"))
+    assert compiled.is_compiled(system)
     # numba told to cache in a folder of its own: our code is then not cached on disk at all
     monkeypatch.setattr(numba.config, "CACHE_DIR", str(elsewhere))
-    monkeypatch.setattr(jit, "_loaded", {})
+    monkeypatch.setattr(compiled, "_engines", {})
     _rk4_works(compile_model("w = 1.5\nx'' = -w^2*x - 0.1*x'\nx(0) = 1\n"))
     assert not elsewhere.exists()
 
@@ -75,22 +76,22 @@ def test_numba_cache_files_stay_in_the_private_folder(cache, monkeypatch, tmp_pa
 @posix
 @pytest.mark.parametrize("mode", [0o777, 0o775, 0o722])
 def test_a_folder_others_can_write_is_refused_once_and_the_run_still_works(cache, caplog, mode):
-    (cache / "jit").mkdir(parents=True)
-    os.chmod(cache / "jit", mode)
+    (cache / "kernels").mkdir(parents=True)
+    os.chmod(cache / "kernels", mode)
     with caplog.at_level(logging.WARNING, logger="orbitdesk.cache"):
-        assert private_cache.private_folder("jit") is None
-        assert private_cache.private_folder("jit") is None
+        assert private_cache.private_folder("kernels") is None
+        assert private_cache.private_folder("kernels") is None
     refusals = [r.getMessage() for r in caplog.records if "is not used" in r.getMessage()]
     assert len(refusals) == 1 and "written by other users" in refusals[0]
-    assert any(str(cache / "jit") in m for m in private_cache.problems())
-    if jit.available():
+    assert any(str(cache / "kernels") in m for m in private_cache.problems())
+    if compiled.available():
         _rk4_works(compile_model(OSCILLATOR))
-        assert list((cache / "jit").iterdir()) == []  # nothing was written into the refused folder
+        assert list((cache / "kernels").iterdir()) == []  # nothing was written into the refused folder
 
 
 @posix
 def test_a_folder_of_another_user_is_refused(cache, monkeypatch, caplog):
-    victim = cache / "jit"
+    victim = cache / "kernels"
     victim.mkdir(parents=True, mode=0o700)
     real_lstat = os.lstat
 
@@ -104,9 +105,9 @@ def test_a_folder_of_another_user_is_refused(cache, monkeypatch, caplog):
 
     monkeypatch.setattr(os, "lstat", lstat)
     with caplog.at_level(logging.WARNING, logger="orbitdesk.cache"):
-        assert private_cache.private_folder("jit") is None
+        assert private_cache.private_folder("kernels") is None
     assert "belongs to another user" in caplog.text
-    if jit.available():
+    if compiled.available():
         _rk4_works(compile_model(OSCILLATOR))
 
 
@@ -142,9 +143,9 @@ def _plant_pyc(source_path, code_text, pyc_path) -> None:
 @needs_numba
 def test_a_planted_pyc_is_never_executed(cache, tmp_path):
     system = compile_model(OSCILLATOR)
-    source = jit.module_source(system)
-    key = jit._key(source)
-    folder = private_cache.private_folder("jit")
+    source = compiled.module_source(system, jit=True)
+    key = compiled._digest(source)
+    folder = private_cache.private_folder("kernels")
     atomic_write(str(folder / f"m{key}.py"), source.encode(), 0o600)
     marker = tmp_path / "pwned"
     payload = MARKER_CODE.format(marker=str(marker))

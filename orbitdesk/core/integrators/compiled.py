@@ -77,13 +77,17 @@ def module_source(system, jit: bool) -> str:
 def _digest(source: str) -> str:
     import numba
 
-    text = f"{source}\n# numba {numba.__version__}, python {sys.version_info[:2]}"
+    text = f"{source}\n# numba {numba.__version__}, python {sys.version_info[:2]}, loaded by private_cache"
     return hashlib.sha256(text.encode()).hexdigest()[:32]
 
 
 def cache_folder() -> Path | None:
-    """The private folder of compiled kernels (private_cache.py), or None when it is refused."""
-    return private_cache.private_folder("kernels")
+    """The private folder of compiled kernels (private_cache.py), or None when it or the folder of
+    numba's machine code in it (pickles numba loads) is refused."""
+    folder = private_cache.private_folder("kernels")
+    if folder is None or private_cache.private_folder("kernels", "__pycache__") is None:
+        return None
+    return folder
 
 
 def _exec_module(source: str, name: str, folder: Path | None = None) -> ModuleType:
@@ -93,8 +97,10 @@ def _exec_module(source: str, name: str, folder: Path | None = None) -> ModuleTy
 
 
 def _import_compiled(source: str, digest: str) -> ModuleType:
+    import numba
+
     folder = cache_folder()
-    if folder is None:  # no safe place for numba's machine code: compile in memory
+    if folder is None or numba.config.CACHE_DIR:  # no safe place for its machine code: compile in memory
         return _exec_module(source.replace(_CACHE_OPTION, "cache=False"), f"m{digest}")
     return _exec_module(source, f"m{digest}", folder)
 
