@@ -79,6 +79,15 @@ class _Writer:
         return lines + store([self.printer.doprint(e) for e in reduced])
 
 
+def scalar_function(system: CompiledSystem, name: str, exprs) -> str:
+    """``def name(_t, u, p)`` returning the list of ``exprs`` (plain symbols) with the kernels' own
+    printing and shared subexpressions, so the exported script computes bit for bit what they do.
+    Function names are printed bare: the text needs ``from math import *``."""
+    w = _Writer(system)
+    body = w.lines(exprs, lambda values: ["return [" + ", ".join(values) + ("," if len(values) == 1 else "") + "]"])
+    return "\n".join([f"def {name}({w.t.name}, u, p):"] + ["    " + line for line in body])
+
+
 def _indent(lines, guard: bool, pad: str = "    ") -> list[str]:
     if not lines:
         return [pad + "pass"]
@@ -133,4 +142,4 @@ def kernel_source(system: CompiledSystem, guard: bool) -> str:
     return "\n".join(out) + "\n"
 
 
-__all__ = ["HEADER", "sparse_jacobian", "dense_jacobian", "kernel_source"]
+__all__ = ["HEADER", "sparse_jacobian", "dense_jacobian", "kernel_source", "scalar_function"]

@@ -21,8 +21,8 @@ from __future__ import annotations
 import re
 
 import sympy as sp
-from sympy.printing.pycode import PythonCodePrinter
 
+from .codegen import scalar_function
 from .integrators.settings import RunSettings
 from .system import MAP, CompiledSystem, VectorPrinter
 
@@ -67,7 +67,6 @@ def run_script(system: CompiledSystem, settings: RunSettings | None = None, u0=N
     p = list(system.param_values if p is None else p)
     is_map = system.kind == MAP
     method = settings.method_info
-    math_printer = PythonCodePrinter()
     np_printer = VectorPrinter()  # the compiled system's printer: if() as numpy.where
     time_name = "n" if is_map else "t"
 
@@ -89,7 +88,9 @@ def run_script(system: CompiledSystem, settings: RunSettings | None = None, u0=N
         "",
         "import numpy",
     ]
-    if not is_map:
+    if is_map:  # the step is printed as the engine prints it: math functions by their bare names
+        head.append("from math import *  # noqa: F401,F403")
+    else:
         head.append("from scipy.integrate import ode, solve_ivp")
     head += [
         "",
@@ -118,7 +119,7 @@ def run_script(system: CompiledSystem, settings: RunSettings | None = None, u0=N
         ]
     parts = ["\n".join(head)]
     if is_map:
-        parts.append(_function("step", ["n", "u", "p"], system, system.f, math_printer))
+        parts.append(scalar_function(system, "step", system.plain(system.f)))  # the engine's own arithmetic
     else:
         parts.append(_function("rhs", ["t", "u", "p"], system, system.f, np_printer))
         if method.stiff:

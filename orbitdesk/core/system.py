@@ -258,6 +258,9 @@ class _ScalarPrinter(PythonCodePrinter):
     def _print_Pow(self, expr, rational=False):
         # a negative base to a fractional power is undefined (math.pow raises) rather than complex
         exp = expr.exp
+        if exp == 2:  # a product, rounded once the same way by Python, numpy and compiled code
+            base = self.parenthesize(expr.base, sp.printing.precedence.PRECEDENCE["Mul"], strict=False)
+            return f"({base}*{base})"
         if exp.is_Integer or exp in (sp.S.Half, -sp.S.Half):
             return super()._print_Pow(expr, rational)
         return f"pow({self._print(expr.base)}, {self._print(exp)})"

@@ -75,10 +75,17 @@ def module_source(system, jit: bool) -> str:
 
 
 def _digest(source: str) -> str:
-    import numba
-
-    text = f"{source}\n# numba {numba.__version__}, python {sys.version_info[:2]}, loaded by private_cache"
+    text = f"{source}\n# numba {_numba_version()}, python {sys.version_info[:2]}, loaded by private_cache"
     return hashlib.sha256(text.encode()).hexdigest()[:32]
+
+
+def _numba_version() -> str:
+    """numba's version without importing it (a plain-Python run never pays for that import)."""
+    if "numba" in sys.modules:
+        return sys.modules["numba"].__version__
+    from importlib.metadata import version
+
+    return version("numba")
 
 
 def cache_folder() -> Path | None:
