@@ -177,7 +177,7 @@ def test_a_cache_that_cannot_be_written_falls_back_to_memory(cache, monkeypatch,
     with caplog.at_level(logging.WARNING, logger="orbitdesk.cache"):
         module = private_cache.load_source_module(folder, "mfull", "VALUE = 3\n", on_disk_flag="ON_DISK")
     assert module.VALUE == 3 and module.ON_DISK is False and "No space left" in caplog.text
-    if jit.available():
+    if compiled.available():
         _rk4_works(compile_model(OSCILLATOR))  # numba is then told not to cache on disk
 
 

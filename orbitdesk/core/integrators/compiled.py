@@ -30,7 +30,7 @@ from . import explicit_rk, jitting, maps, members, tangent
 
 LOOP_MODULES = (explicit_rk, maps, tangent, members)
 _SIGNATURES = {"model": "MODEL"}  # the kernels the loops call; jac and jac_values stay plain Python
-_CACHE_OPTION = "cache=True"
+_CACHE_OPTION = "cache=_ON_DISK"  # private_cache sets _ON_DISK: the module is backed by its verified file
 _lock = threading.Lock()
 _engines: dict[str, "Engine"] = {}  # source hash -> compiled engine, its loops ready
 _pending: dict[str, threading.Thread] = {}
@@ -100,7 +100,7 @@ def cache_folder() -> Path | None:
 def _exec_module(source: str, name: str, folder: Path | None = None) -> ModuleType:
     """The module of ``source`` (our printer's output, never model text), kept in ``folder`` if given."""
     return private_cache.load_source_module(folder, name, source, {"_UNDEFINED": UNDEFINED_ERRORS},
-                                            module_name=f"orbitdesk_kernels_{name}")
+                                            module_name=f"orbitdesk_kernels_{name}", on_disk_flag="_ON_DISK")
 
 
 def _import_compiled(source: str, digest: str) -> ModuleType:
@@ -108,7 +108,7 @@ def _import_compiled(source: str, digest: str) -> ModuleType:
 
     folder = cache_folder()
     if folder is None or numba.config.CACHE_DIR:  # no safe place for its machine code: compile in memory
-        return _exec_module(source.replace(_CACHE_OPTION, "cache=False"), f"m{digest}")
+        return _exec_module(source, f"m{digest}")  # no folder: _ON_DISK is False
     return _exec_module(source, f"m{digest}", folder)
 
 
