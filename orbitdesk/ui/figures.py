@@ -247,7 +247,7 @@ def scene_image(view, width: int, height: int) -> QImage | None:
         array = glview.renderToArray((int(width), int(height)))
     except Exception:  # noqa: BLE001 - no offscreen framebuffer on this driver
         return None
-    image = pg.functions.makeQImage(array, alpha=True, transpose=True)
+    image = pg.functions.makeQImage(array, alpha=True, transpose=False)
     return image.copy()
 
 

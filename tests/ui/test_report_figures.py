@@ -91,3 +91,23 @@ def test_command_line_report_has_the_same_figures_as_the_app(qtbot, window, tmp_
         # the same curve at the same place (different font engines may move the axes by a pixel or two)
         for p, q in ((ra.min(), rc.min()), (ra.max(), rc.max()), (ca.min(), cc.min()), (ca.max(), cc.max())):
             assert abs(int(p) - int(q)) <= 4, caption
+
+
+def test_the_3d_scene_is_drawn_at_the_report_size_even_when_hidden(qtbot, window):
+    from orbitdesk.ui.figures import scene_image
+
+    from .conftest import load_model
+
+    window.view_docks["phase_space_3d"].show()
+    view = window.ensure_view("phase_space_3d")
+    load_model(qtbot, window.session, "x' = -y\ny' = x\nz' = -z\nx(0) = 1\nz(0) = 1\n",
+               {"t_end": 20.0, "samples": 2000})
+    qtbot.wait(200)
+    window.view_docks["phase_space_3d"].hide()
+    image = scene_image(view, *REPORT_SIZE)
+    assert image is not None and (image.width(), image.height()) == REPORT_SIZE
+    rgb = pixels(image)
+    lit = np.nonzero((rgb.max(axis=2) - rgb.min(axis=2)) > 60)  # the run's coloured line on the dark scene
+    assert lit[0].size > 200
+    # the helix x = cos t, y = sin t, z = e^-t sits in the middle of the picture, wider than a corner
+    assert np.ptp(lit[1]) > 0.15 * REPORT_SIZE[0] and abs(np.mean(lit[1]) - REPORT_SIZE[0] / 2) < 0.25 * REPORT_SIZE[0]
