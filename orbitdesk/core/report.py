@@ -214,7 +214,8 @@ def _results_html(results: dict, system) -> list[str]:
         out.append(f"<h3>{heading}</h3>")
         out.append(_table(None, rows_of(result), numeric=(1,)))
         notes = list(getattr(result, "warnings", []) or [])
-        if getattr(result, "status", "ok") != "ok" and getattr(result, "message", ""):
+        status = getattr(result, "status", "ok")  # (a sweep has one per value)
+        if isinstance(status, str) and status != "ok" and getattr(result, "message", ""):
             notes.insert(0, result.message)
         out.extend(f'<p class="muted">{_e(note)}</p>' for note in notes)
     if out:

@@ -111,3 +111,26 @@ def test_the_3d_scene_is_drawn_at_the_report_size_even_when_hidden(qtbot, window
     assert lit[0].size > 200
     # the helix x = cos t, y = sin t, z = e^-t sits in the middle of the picture, wider than a corner
     assert np.ptp(lit[1]) > 0.15 * REPORT_SIZE[0] and abs(np.mean(lit[1]) - REPORT_SIZE[0] / 2) < 0.25 * REPORT_SIZE[0]
+
+
+def test_report_gives_the_orbit_diagram_and_its_numbers(qtbot, window, tmp_path, monkeypatch):
+    from .conftest import load_model
+
+    load_model(qtbot, window.session, "x[n+1] = r*x*(1 - x)\nr = 3.2 in [2.5, 4]\nx[0] = 0.3\n", {"steps": 300})
+    window.view_docks["sweep"].show()
+    sweep = window.ensure_view("sweep")
+    sweep.set_range("r", 2.8, 3.4, 61)
+    sweep.lyapunov.setChecked(True)
+    with qtbot.waitSignal(sweep.sweepChanged, timeout=60000):
+        sweep.run()
+    window.view_docks["sweep"].hide()  # closed before the report: its results still go in
+    html = write_report(qtbot, window, monkeypatch, tmp_path / "logistic.html")
+    section = html[html.index("<h3>Parameter sweep</h3>"):]
+    assert "61 values from 2.8 to 3.4" in section
+    # the logistic map's first period doubling is at r = 3 (May 1976, Nature 261: 459): the largest
+    # exponent is negative on both sides and the orbit is periodic, so no value is chaotic
+    assert "positive (chaotic) at 0 of 61 values" in section
+    images = report_images(html)
+    diagram = [c for c in images if c.startswith("Parameter sweep") or c.startswith("Sweep")]
+    assert diagram, list(images)
+    assert all((images[c].width(), images[c].height()) == REPORT_SIZE for c in diagram)
