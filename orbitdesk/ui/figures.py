@@ -262,11 +262,37 @@ def has_named_curves(plot_item) -> bool:
 
 # ---------------------------------------------------------------- choosing what to export
 def all_plots(window) -> list[PlotChoice]:
-    """Every plot of every view the window has created, in the order of the View menu."""
+    """Every plot of every view the window has created, in the order of the View menu; a 3D scene is a
+    choice with ``plot`` None."""
     out = []
     for module, view in window.views.items():
         out.extend(view_plots(view, module))
+        if getattr(view, "glview", None) is not None:
+            axes = view.axes() if hasattr(view, "axes") else []
+            title = getattr(view, "title", "3D view")
+            out.append(PlotChoice(module, view, None, f"{title}: {', '.join(axes)}" if axes else title))
     return out
+
+
+def save_scene(view, path, width: int, height: int) -> bool:
+    """A 3D view's scene at ``width`` x ``height`` as PNG, or as SVG holding that picture."""
+    import base64
+
+    image = scene_image(view, width, height)
+    if image is None:
+        return False
+    data = png_data(image)
+    if str(path).lower().endswith(".svg"):
+        uri = base64.b64encode(data).decode("ascii")
+        data = (f'<svg xmlns="http://www.w3.org/2000/svg" width="{int(width)}" height="{int(height)}" '
+                f'viewBox="0 0 {int(width)} {int(height)}"><image width="{int(width)}" height="{int(height)}" '
+                f'href="data:image/png;base64,{uri}"/></svg>\n').encode("ascii")
+    try:
+        with open(path, "wb") as f:
+            f.write(data)
+    except OSError:
+        return False
+    return True
 
 
 def on_screen_size(plot_item) -> tuple[int, int]:
@@ -326,11 +352,16 @@ class ExportPlotDialog:
 
     def _on_plot(self, index: int) -> None:
         if 0 <= index < len(self.choices):
-            plot = self.choices[index].plot
-            w, h = on_screen_size(plot)
+            choice = self.choices[index]
+            if choice.plot is None:  # a 3D scene: a picture, no legend
+                scene = choice.view.glview
+                w, h = (scene.width(), scene.height()) if scene.isVisible() else REPORT_SIZE
+            else:
+                w, h = on_screen_size(choice.plot)
             self.width.setValue(w)
             self.height.setValue(h)
-            self.legend.setChecked(has_named_curves(plot))
+            self.legend.setEnabled(choice.plot is not None)
+            self.legend.setChecked(choice.plot is not None and has_named_curves(choice.plot))
 
     @property
     def choice(self) -> PlotChoice | None:

@@ -738,6 +738,10 @@ class MainWindow(QMainWindow):
             return False
         if plot is None:
             plots = figures.view_plots(view)
+            if not plots and getattr(view, "glview", None) is not None:  # the 3D scene, as a picture
+                scene = view.glview
+                size = size or ((scene.width(), scene.height()) if scene.isVisible() else figures.REPORT_SIZE)
+                return figures.save_scene(view, path, *size)
             if not plots:
                 return False
             plot = plots[0].plot

@@ -158,3 +158,23 @@ def test_every_plot_has_an_export_menu(qtbot, window, oscillator):
     for view in window.views.values():
         for widget in view.findChildren(type(oscillator.plot_widget)):
             assert widget.contextMenuPolicy() == Qt.ContextMenuPolicy.CustomContextMenu
+
+
+def test_the_3d_scene_exports_as_a_picture_of_the_size_picked(qtbot, window, tmp_path, oscillator):
+    from orbitdesk.ui.figures import ExportPlotDialog
+
+    window.show_view("phase_space_3d")
+    qtbot.wait(200)
+    form = ExportPlotDialog(window, "png")
+    scene = [i for i, c in enumerate(form.choices) if c.plot is None]
+    assert scene and form.choices[scene[0]].caption.startswith("Phase space 3D")
+    form.plot_combo.setCurrentIndex(scene[0])
+    assert not form.legend.isEnabled()
+    form.width.setValue(700)
+    form.height.setValue(500)
+    path = tmp_path / "scene.png"
+    assert form.export(path)
+    image = QImage(str(path))
+    assert (image.width(), image.height()) == (700, 500)
+    rgb = pixels(image)
+    assert ((rgb.max(axis=2) - rgb.min(axis=2)) > 60).sum() > 100  # the coloured orbit on the dark scene
