@@ -353,6 +353,9 @@ def plain_axes(plot_item) -> None:
         if getattr(axis, "_plain_ticks", False):
             continue
         axis._plain_ticks = True
+        # the axis (its text and the grid it draws) is painted once into a pixmap and reused until its
+        # ticks change: replaying its QPicture cost as much as drawing a 20,000-point curve each frame
+        axis.setCacheMode(axis.CacheMode.DeviceCoordinateCache)
         axis.tickStrings = lambda values, scale, spacing, axis=axis: _plain_tick_strings(axis, values, scale,
                                                                                            spacing)
         axis.picture = None  # drawn again with the new labels

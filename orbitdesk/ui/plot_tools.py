@@ -169,8 +169,10 @@ def _axis_setter(axis, names: dict):
         axis._quantity = text
         named = names.get(text) if isinstance(text, str) else None
         if named:
-            return original(text=named.get("text") or text, units=named.get("units") or None,
-                            unitPrefix=unitPrefix, **args)
+            text, units = named.get("text") or text, named.get("units") or None
+        if (not args and unitPrefix is None and text == axis.labelText and (units or "") == (axis.labelUnits or "")
+                and axis.label.isVisible() == bool(text or units)):
+            return None  # the same label: the axis keeps its cached picture
         return original(text=text, units=units, unitPrefix=unitPrefix, **args)
 
     return set_label

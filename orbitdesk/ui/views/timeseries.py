@@ -222,7 +222,8 @@ class TimeSeriesView(SessionView):
                 self.plot.removeItem(self._curves.pop(name))
         self.note.setText("")
         log_y = self.log_y.isChecked() or spectrum
-        self.plot.setLogMode(x=False, y=log_y)
+        if bool(self.plot.getAxis("left").logMode) != log_y:  # (each change redraws the axes)
+            self.plot.setLogMode(x=False, y=log_y)
         time_label = run_time_name(traj) if traj is not None else "t"
         if spectrum:
             unit = "per step" if time_label == "n" else f"cycles per unit {time_label}"
