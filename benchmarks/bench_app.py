@@ -93,9 +93,6 @@ def wait(done, seconds):
 window = MainWindow()
 window.resize(1440, 900)
 window.show()
-dock = window.view_docks["phase_space_3d"]
-dock.show()
-view = window.ensure_view("phase_space_3d")
 wait(lambda: False, 0.5)
 session = window.session
 if sys.argv[2] == "trace":
@@ -103,7 +100,8 @@ if sys.argv[2] == "trace":
 session.load_project(Project(name="memory", model=sys.argv[1],
                              solver=RunSettings(t_end=1000, rtol=1e-9, atol=1e-9, samples=int(sys.argv[3]))))
 wait(lambda: session.trajectory is not None and not session.busy, 600)
-dock.raise_()
+view = window.show_view("phase_space_3d")  # after the load: a project brings its own layout
+wait(lambda: False, 0.5)
 for k in range(10):
     view.glview.setCameraPosition(azimuth=-58 + 4 * k)
     view.glview.repaint()

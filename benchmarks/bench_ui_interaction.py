@@ -143,9 +143,10 @@ from orbitdesk.ui.plot_style import SCENE_BACKGROUND, time_colours
 from orbitdesk.ui.views.phase_space_3d import _gl_item_classes
 
 LORENZ = "sigma = 10\nr = 28\nbeta = 8/3\nx' = sigma*(y - x)\ny' = x*(r - z) - y\nz' = x*y - beta*z\nx(0) = 1\n"
-view = window.show_view("phase_space_3d")  # opened where it is seen, as the View menu does
 session.load_project(Project(name="orbit", model=LORENZ, solver=RunSettings(t_end=1000.0, samples=1_000_000)))
 wait(lambda: session.trajectory is not None and not session.busy, 600)
+# opened where it is seen, as the View menu does (after the load: a project brings its own layout)
+view = window.show_view("phase_space_3d")
 wait(lambda: False, 1.0)
 scene = view.glview
 size = (scene.width(), scene.height())
