@@ -24,7 +24,7 @@ from ..plot_style import (SCENE_BACKGROUND, SCENE_GRID, SCENE_MARKER, SCENE_TEXT
 HALF = 5.0                  # the box spans [-HALF, HALF] on every axis
 MAX_DRAWN_POINTS = 300_000  # the current trajectory is thinned evenly beyond this for drawing
 MAX_EXTRA_POINTS = 20_000   # same for each added or nearby trajectory
-MOVING_POINTS = 40_000      # the current trajectory while the camera moves (the full one on release)
+MOVING_POINTS = 20_000      # the current trajectory while the camera moves (the full one on release)
 EXTRA_SAMPLES = 4000        # output points of each added or nearby run
 MAX_SPREAD = 64
 MAX_ADDED = 40
@@ -563,7 +563,7 @@ class PhaseSpace3DView(SessionView):
         if self.main_points.visible():
             self.main_points.setData(pos=pos, color=colour, size=3)
         else:
-            self.main_item.setData(pos=pos, color=colour, width=1.6, mode="line_strip")
+            self.main_item.setData(pos=pos, color=colour, width=1.0 if self._moving else 1.6, mode="line_strip")
 
     def _set_moving(self, moving: bool) -> None:
         if moving != self._moving:
