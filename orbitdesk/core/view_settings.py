@@ -44,7 +44,7 @@ VIEW_SETTINGS: dict[str, dict] = {
 # Saved by the window for every view with plots, once the user names an axis quantity
 # (``ui.plot_tools``): {quantity: {"text": name, "units": units}}.
 PLOT_SETTINGS = {"axis_names": "table"}
-for _view in ("timeseries", "phase_plane", "sections", "sweep", "lyapunov", "cycles"):
+for _view in ("timeseries", "phase_plane", "sections", "sweep", "lyapunov", "cycles", "bifurcation"):
     VIEW_SETTINGS[_view].update(PLOT_SETTINGS)
 
 _NAME_KINDS = {"series": "series", "state": "states", "parameter": "parameters"}
