@@ -182,8 +182,8 @@ def _integrate_loop(system, settings, u0, p, events, report) -> Trajectory:
         states = np.concatenate([np.asarray(u0, float)[:, None], out.states], axis=1)
     status = status_word(out.code)
     last_step = 1e-12 * max(1.0, abs(out.t))
-    message = "cancelled" if status == CANCELLED else _describe_stop(system, out.code, out.t, out.y, p,
-                                                                      last_step, settings.bound)
+    message = "cancelled" if status == CANCELLED else out.note or _describe_stop(
+        system, out.code, out.t, out.y, p, last_step, settings.bound)
     if settings.transient > 0:
         direction = 1.0 if t1 > t0 else -1.0
         keep = (time - (t0 + direction * settings.transient)) * direction >= 0

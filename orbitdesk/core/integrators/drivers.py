@@ -16,9 +16,13 @@ import numpy as np
 from ..progress import Cancelled
 from .explicit_rk import KINDS, PAUSED
 from .methods import method as method_info
-from .status import C_CANCELLED
+from .status import C_CANCELLED, C_STEP_FAILED
 
 PAUSE_STEPS = 512
+# a run whose pace would need more steps than this (judged after STEP_CHECK_AFTER steps) ends with
+# step_failed: a solution sliding along a kink (sign, abs, if) otherwise steps for days
+MAX_PROJECTED_STEPS = 50_000_000
+STEP_CHECK_AFTER = 100_000
 _BUFFER = 4096
 
 
@@ -34,6 +38,7 @@ class FlowOutput:
     event_t: np.ndarray = field(default_factory=lambda: np.empty(0))
     event_y: np.ndarray = field(default_factory=lambda: np.empty((0, 0)))  # (n, M)
     event_k: np.ndarray = field(default_factory=lambda: np.empty(0, dtype=np.int64))
+    note: str = ""  # why the run stopped early, when the code alone does not say
 
 
 def _no_planes(n):
@@ -72,6 +77,7 @@ def flow_run(engine, name, t0, t1, y0, p, rtol=1e-8, atol=1e-10, max_step=None, 
     ev_t, ev_y, ev_k = np.empty(256), np.empty((256, n)), np.empty(256, dtype=np.int64)
     steps_t, steps_y, events = [], [], []
     span = t1 - t0
+    note = ""
     while True:
         code = engine.loops.erk_advance(engine.f, kind, which, adaptive, y, p, K, F, st, float(t1), rtol, atol, max_step,
                                   float(bound), grid, out_t, out_y, bool(every_step), rows, dirs, terminal,
@@ -86,6 +92,10 @@ def flow_run(engine, name, t0, t1, y0, p, rtol=1e-8, atol=1e-10, max_step=None, 
             st[7] = 0
         if code != PAUSED:
             break
+        note = _too_slow(st, t0, span)
+        if note:
+            code = C_STEP_FAILED
+            break
         if report is not None:
             try:
                 report((st[0] - t0) / span)
@@ -98,7 +108,7 @@ def flow_run(engine, name, t0, t1, y0, p, rtol=1e-8, atol=1e-10, max_step=None, 
     else:
         count = int(st[6])
         time, states = out_t[:count], out_y[:count].T
-    out = FlowOutput(time, states, int(code), float(st[0]), y, int(st[2]), int(st[3]))
+    out = FlowOutput(time, states, int(code), float(st[0]), y, int(st[2]), int(st[3]), note=note)
     if events:
         out.event_t = np.concatenate([e[0] for e in events])
         out.event_y = np.concatenate([e[1] for e in events]).T
@@ -106,6 +116,21 @@ def flow_run(engine, name, t0, t1, y0, p, rtol=1e-8, atol=1e-10, max_step=None, 
     else:
         out.event_y = np.empty((n, 0))
     return out
+
+
+def _too_slow(st, t0, span) -> str:
+    """A plain-words reason to stop when the run's pace would need more than MAX_PROJECTED_STEPS."""
+    taken = st[2] + st[3]
+    if taken < STEP_CHECK_AFTER:
+        return ""
+    done = abs(st[0] - t0)
+    projected = taken * abs(span) / done if done > 0 else float("inf")
+    if projected <= MAX_PROJECTED_STEPS:
+        return ""
+    return (f"the run stopped after {int(taken):,} steps at t = {st[0]:.6g}: at this pace it would need about "
+            f"{projected:.2g} steps (the limit is {MAX_PROJECTED_STEPS:,}). The solution may be sliding along a "
+            "kink of the model (abs, sign, heaviside, if) where the right side switches back and forth, or "
+            "the system is stiff: try the stiff method, a looser tolerance or a shorter run")
 
 
 def map_run(engine, n0, n_end, y0, p, bound=1e10, report=None):
