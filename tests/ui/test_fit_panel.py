@@ -148,3 +148,21 @@ def test_import_with_mapping_dialog(qtbot, window, tmp_path, monkeypatch, messag
     assert data_store(window.session).datasets[0].source == "run1.csv"
     assert window.session.dirty
     assert window.import_data_action in window.file_menu.actions()
+
+
+def test_run_as_a_data_set_and_take_the_model_values(qtbot, session, loaded):
+    from orbitdesk.ui.views.fit import FitView
+
+    view = FitView(session)
+    qtbot.addWidget(view)
+    d = loaded.datasets[0]
+    d.initial = {"x": 0.7}
+    view.data_list.setCurrentRow(0)
+    view._run_as_set()
+    assert session.initial["x"] == 0.7
+    session.undo_stack.undo()
+    assert session.initial["x"] == 1.0
+    view._take_values()
+    assert loaded.datasets[0].initial == {"x": 1.0, "x'": 0.0}
+    session.undo_stack.undo()
+    assert loaded.datasets[0].initial == {"x": 0.7}

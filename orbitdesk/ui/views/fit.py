@@ -126,10 +126,16 @@ class FitView(SessionView):
         self.empty_note = hint_label("No data yet: import a record with a time column and columns named after "
                                      "the model's states (File > Import Data...).")
         self.empty_note.setWordWrap(True)
+        self.show_button = push_button("Run as this set", "Start the model from the selected data set's own "
+                                        "values, so the curves on screen belong to its points (undoable)",
+                                        self._run_as_set)
+        self.take_button = push_button("Take model values", "Give the selected data set the model's current "
+                                       "initial values as its own (undoable)", self._take_values)
         layout.addLayout(control_row(_heading("Data sets"), None, self.import_button, self.remove_button))
         layout.addWidget(self.empty_note)
         layout.addWidget(self.data_list)
         layout.addWidget(self.details)
+        layout.addLayout(control_row(self.show_button, self.take_button))
 
         self.unknowns = _table(["Name", "Estimate", "Per data set", "Low", "High"],
                                "Tick what to estimate; the bounds start at the slider ranges (empty: none)")
@@ -231,6 +237,26 @@ class FitView(SessionView):
         from ..data_import import import_dialog
         import_dialog(self.window())
 
+    def _selected(self):
+        item = self.data_list.currentItem()
+        return self.store.get(item.text()) if item is not None else None
+
+    def _run_as_set(self) -> None:
+        d = self._selected()
+        if d is not None and self.system is not None:
+            params = {k: v for k, v in d.parameters.items() if k in self.system.parameters}
+            initial = {k: v for k, v in d.initial.items() if k in self.system.states}
+            self.store.apply_values(params, initial, f"Run as data set {d.name}")
+
+    def _take_values(self) -> None:
+        import copy
+
+        d = self._selected()
+        if d is not None and self.system is not None:
+            new = copy.copy(d)
+            new.initial = {s: float(v) for s, v in zip(self.system.states, self.session.initial_vector())}
+            self.store.replace(d.name, new, f"Initial values of {d.name}")
+
     def _remove(self) -> None:
         item = self.data_list.currentItem()
         if item is not None:
@@ -248,7 +274,8 @@ class FitView(SessionView):
         self.data_list.setCurrentRow(names.index(current) if current in names else (0 if names else -1))
         self.empty_note.setVisible(not sets)
         self.data_list.setVisible(bool(sets))
-        self.remove_button.setEnabled(bool(sets))
+        for button in (self.remove_button, self.show_button, self.take_button):
+            button.setEnabled(bool(sets))
         self.fit_button.setEnabled(bool(sets))
         self._show_details(self.data_list.currentRow())
         self._fill_weights()
