@@ -236,10 +236,11 @@ z(0) = 1
         ("Strong heating: random reversals",
          "At `r = 28` the water turns one way, speeds up, slows down, and now and then reverses, "
          "with no pattern in how long each spell lasts.\n\n"
-         "Drag in the 3D view to turn the picture. The path winds around two holes, one for each "
-         "direction of circulation, and never closes on itself: this is the Lorenz *attractor*.",
+         "The 3D view looks at the path from the front, across `y`: it winds around two holes, one for "
+         "each direction of circulation, and never closes on itself: this is the Lorenz *attractor*. "
+         "Drag to turn it and see how thin the two wings are.",
          {"parameters": {"r": 28.0}, "open_views": ["phase_space_3d", "timeseries"],
-          "camera": {"azimuth": 35.0, "elevation": 20.0, "distance": 23.0, "center": [0.0, 0.0, 0.0]}}),
+          "camera": {"azimuth": -90.0, "elevation": 8.0, "distance": 23.0, "center": [0.0, 0.0, 0.0]}}),
         ("Every rest state is unstable",
          "Look at the equilibria at `r = 28`:\n\n"
          "- the origin is a **saddle** with one unstable direction;\n"

@@ -6,6 +6,7 @@ import json
 import re
 from pathlib import Path
 
+import numpy as np
 import pytest
 from PySide6.QtCore import Qt
 
@@ -56,6 +57,33 @@ def check_views_show_the_step(qtbot, window, raw, step):
                 assert (shown["kind"], shown["coordinate"], shown["value"]) == ("plane", name, float(value)), title
 
 
+def inside(values, lo, hi):
+    values = np.asarray(values, dtype=float)
+    values = values[np.isfinite(values)]
+    slack = 1e-6 * max(1.0, hi - lo)
+    return values.size == 0 or (values.min() >= lo - slack and values.max() <= hi + slack)
+
+
+def check_plots_show_the_whole_run(window, step):
+    """The time series and the phase plane of a step show the whole run (nothing leaves the axes); the
+    3D camera is the step's."""
+    title, snap, traj = step["title"], step["snapshot"], window.session.trajectory
+    open_views = snap.get("open_views", [])
+    if "timeseries" in open_views:
+        view = window.views["timeseries"]
+        (t0, t1), (y0, y1) = view.plot.getViewBox().viewRange()
+        assert inside(traj.time, t0, t1), title
+        for name in view.checked():
+            assert inside(traj.series(name), y0, y1), (title, name, y0, y1)
+    if "phase_plane" in open_views:
+        view = window.views["phase_plane"]
+        (x0, x1), (y0, y1) = view.plot.getViewBox().viewRange()
+        assert inside(traj.series(view.x_name), x0, x1) and inside(traj.series(view.y_name), y0, y1), title
+    if "camera" in snap and "phase_space_3d" in open_views:
+        cam = window.views["phase_space_3d"].camera()
+        assert (cam["azimuth"], cam["elevation"]) == (snap["camera"]["azimuth"], snap["camera"]["elevation"])
+
+
 def test_every_sample_is_listed():
     assert len(SAMPLES) >= 7
     names = {p.name for p in SAMPLES}
@@ -100,6 +128,7 @@ def test_sample_walkthrough_replays_in_the_app(qtbot, window, path):
         check_views_show_the_step(qtbot, window, raw, steps[i])
         wait_idle_run(qtbot, s)
         assert s.trajectory.status == "ok", (steps[i]["title"], s.trajectory.message)
+        check_plots_show_the_whole_run(window, steps[i])
         if panel.missing_views:
             print(f"{path.stem} step {i + 1}: views not in this build: {panel.missing_views}")
     assert seen == list(range(len(steps)))

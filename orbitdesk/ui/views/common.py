@@ -58,6 +58,7 @@ class SessionView(QWidget):
         self._computing_for = None
         self._computed_for = None
         self._stale_skip = None
+        self._fit_pending = False
         self.stale_bar = StaleBar(self.recompute)
 
     def follow_session(self, values=None, settings=None, trajectory=None, cursor=None) -> None:
@@ -65,6 +66,8 @@ class SessionView(QWidget):
         holds now: the saved view settings, the system and (with ``trajectory``) the current run."""
         s = self.session
         s.systemChanged.connect(self._on_system)
+        if trajectory is not None:
+            trajectory = self._fitting_after(trajectory)
         for signal, handler in ((s.valuesChanged, values), (s.settingsChanged, settings),
                                 (s.trajectoryChanged, trajectory), (s.timeCursorChanged, cursor)):
             if handler is not None:
@@ -77,6 +80,25 @@ class SessionView(QWidget):
             self._on_system(s.system)
         if trajectory is not None and s.trajectory is not None:
             trajectory(s.trajectory)
+
+    def _fitting_after(self, handler):
+        def on_trajectory(trajectory):
+            handler(trajectory)
+            if self._fit_pending and not self.session.run_pending():
+                self._fit_pending = False
+                self.fit_view()
+        return on_trajectory
+
+    def fit_after_next_run(self) -> None:
+        """Fit the plots to what they show once the run for the values now set has arrived (now, if it
+        has): a walkthrough step shows its plots whole."""
+        self._fit_pending = True
+        if not self.session.run_pending():
+            self._fit_pending = False
+            self.fit_view()
+
+    def fit_view(self) -> None:
+        """Zoom the plots to their data (views with plots override this)."""
 
     def main_layout(self) -> QVBoxLayout:
         """The view's own layout: controls above the plots, with the margins every view uses."""
