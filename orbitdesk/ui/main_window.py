@@ -11,7 +11,8 @@ from PySide6.QtCore import QByteArray, QSettings, QSize, Qt, QTimer, Signal
 from PySide6.QtGui import QAction, QKeySequence
 from PySide6.QtWidgets import (QApplication, QComboBox, QDockWidget, QDoubleSpinBox, QFileDialog, QLabel,
                                QMainWindow, QMessageBox, QProgressBar, QPushButton, QSizePolicy, QSlider,
-                               QSpinBox, QSplitter, QStyle, QToolBar, QToolButton, QVBoxLayout, QWidget)
+                               QSpinBox, QSplitter, QStyle, QTabWidget, QToolBar, QToolButton, QVBoxLayout,
+                               QWidget)
 
 from orbitdesk.core.export_csv import write_csv
 from orbitdesk.core.integrators.methods import METHODS
@@ -39,9 +40,10 @@ PLAY_INTERVAL_MS = 30
 PANEL_PARTS = [
     ("editor", "EquationEditor", "Model", "The model editor is not available in this build."),
     ("editor", "DiagnosticsList", "Problems", ""),
-    ("readback", "ModelReadback", "Read-back", "The model read-back is not available in this build."),
     ("parameters", "ParameterPanel", "Values", "The parameter panel is not available in this build."),
+    ("readback", "ModelReadback", "Read-back", "The model read-back is not available in this build."),
 ]
+TABBED_PARTS = ("ParameterPanel", "ModelReadback")  # tabs in the lower part of the model panel, in this order
 
 
 def settings() -> QSettings:
@@ -339,6 +341,10 @@ class MainWindow(QMainWindow):
         self.model_splitter.setChildrenCollapsible(False)
         self.model_splitter.setHandleWidth(6)
         editor = None
+        # the values and the read-back share the lower part as tabs, so the read-back has the room of the
+        # whole lower part (the Jacobian in sight) rather than a strip between editor and sliders
+        self.model_tabs = QTabWidget()
+        self.model_tabs.setDocumentMode(True)
         for module, cls_name, title, placeholder in PANEL_PARTS:
             widget = self._make_part(module, cls_name, placeholder, editor=editor)
             if widget is None:
@@ -346,12 +352,19 @@ class MainWindow(QMainWindow):
             if cls_name == "EquationEditor" and not isinstance(widget, _Placeholder):
                 editor = widget
             self.panel_parts[cls_name] = widget
-            self.model_splitter.addWidget(widget)
+            if cls_name in TABBED_PARTS:
+                self.model_tabs.addTab(widget, title)
+            else:
+                self.model_splitter.addWidget(widget)
+        if "ParameterPanel" in self.panel_parts:
+            self.model_tabs.setCurrentWidget(self.panel_parts["ParameterPanel"])
+        self.model_splitter.addWidget(self.model_tabs)
         layout.addWidget(self.model_splitter)
-        sizes = {"EquationEditor": 300, "DiagnosticsList": 60, "ModelReadback": 170, "ParameterPanel": 280}
-        self.model_splitter.setSizes([sizes.get(k, 100) for k in self.panel_parts])
-        for i, key in enumerate(self.panel_parts):
-            self.model_splitter.setStretchFactor(i, {"EquationEditor": 3, "ParameterPanel": 2}.get(key, 1))
+        parts = [k for k in self.panel_parts if k not in TABBED_PARTS] + ["tabs"]
+        sizes = {"EquationEditor": 320, "DiagnosticsList": 60, "tabs": 420}
+        self.model_splitter.setSizes([sizes.get(k, 100) for k in parts])
+        for i, key in enumerate(parts):
+            self.model_splitter.setStretchFactor(i, {"EquationEditor": 3, "tabs": 3}.get(key, 1))
         dock = QDockWidget("Model", self)
         dock.setObjectName("model_panel")
         dock.setWidget(panel)

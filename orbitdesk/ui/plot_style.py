@@ -225,6 +225,7 @@ class JobStrip(QWidget):
         self.cancel_button.clicked.connect(self.cancel)
         self.label = QLabel()
         self.label.setStyleSheet("color: palette(placeholder-text);")
+        self.label.setWordWrap(True)  # a long message takes a second line rather than being cut off
         self.label.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
         self.label.setMinimumWidth(40)
         layout = QHBoxLayout(self)

@@ -74,8 +74,22 @@ def number_str(value: float) -> str:
     return f"{float(value):.6g}"
 
 
+def _grouped(state: str) -> str:
+    """A state name as one unit in notation: x stays x, the introduced state x' is written (x')."""
+    return f"({state})" if state.endswith("'") else state
+
+
 def equation_lhs(system, state: str) -> str:
-    return f"{state}'" if system.kind == FLOW else f"{state}[n+1]"
+    """The left side of a state's first-order equation: dx/dt, d(x')/dt for the speed x' that a
+    second-order equation introduces (never x'' or a bare x' that reads like the state), x[n+1] for maps."""
+    if system.kind != FLOW:
+        return f"{state}[n+1]"
+    return f"d{_grouped(state)}/d{system.time_name}"
+
+
+def partial_label(state: str) -> str:
+    """A Jacobian column head: the derivative with respect to a state, ∂/∂x or ∂/∂(x')."""
+    return "\u2202/\u2202" + _grouped(state)
 
 
 def time_dependent_states(system) -> list[str]:
@@ -113,7 +127,7 @@ class ModelReadback(QWidget):
         self.browser.setOpenLinks(False)
         self.browser.setFrameShape(QTextBrowser.Shape.NoFrame)
         self.browser.setToolTip("What the tool understood from the model text")
-        self.browser.setLineWrapMode(QTextBrowser.LineWrapMode.NoWrap)
+        self.browser.setLineWrapMode(QTextBrowser.LineWrapMode.WidgetWidth)  # notes wrap, never cut off
         self.browser.document().setDocumentMargin(12)
         layout.addWidget(self.note)
         layout.addWidget(self.browser, 1)
@@ -276,8 +290,11 @@ class ModelReadback(QWidget):
         for base, order in reduced_orders(system).items():
             new = ", ".join(self._m(base + "'" * k) for k in range(1, order))
             plural = order > 2
-            notes.append(f"{self._m(base + chr(39) * order + ' = ...')} was reduced to first order with {new} "
-                         f"as state{'s' if plural else ''} of {'their' if plural else 'its'} own")
+            what = "the rates" if plural else "the rate"
+            notes.append(f"{self._m(base + chr(39) * order + ' = ...')} was reduced to first order: {what} {new} "
+                         f"{'are states' if plural else 'is a state'} of {'their' if plural else 'its'} own, so "
+                         f"{self._m(equation_lhs(system, base) + ' = ' + base + chr(39))} just says that "
+                         f"{self._m(base + chr(39))} is the rate of change of {self._m(base)}")
         return self._heading(title) + self._table(rows) + (self._muted("<br>".join(notes), 4) if notes else "")
 
     def _initial(self, system) -> str:
@@ -320,7 +337,7 @@ class ModelReadback(QWidget):
     def _jacobian(self, system) -> str:
         J = system.jacobian
         c = self._c
-        head = "".join(self._td(self._m("\u2202/\u2202" + s, c["muted"]), "center", "padding:1px 10px")
+        head = "".join(self._td(self._m(partial_label(s), c["muted"]), "center", "padding:1px 10px")
                        for s in system.states)
         rows = ["<tr><td></td>" + head + "</tr>"]
         for i, state in enumerate(system.states):

@@ -25,7 +25,8 @@ def test_second_order_equation_is_shown_in_its_reduced_first_order_form(qtbot, s
     # x'' = -x is the harmonic oscillator; as a first-order system the states are x and x'
     # with x' = x' and (x')' = -x (e.g. Strogatz, Nonlinear Dynamics and Chaos, 2nd ed., sec. 5.1).
     view = show_readback(qtbot, session, "x'' = -x\nx(0) = 1\n")
-    assert view.equation_lines() == ["x' = x'", "x'' = -x"]
+    assert view.equation_lines() == ["dx/dt = x'", "d(x')/dt = -x"]  # never the puzzling x' = x'
+    assert "x' is the rate of change of x" in view.plain_text()
     text = view.plain_text()
     assert "Flow in 2 states" in text
     assert "reduced to first order" in text
@@ -70,7 +71,7 @@ def test_time_dependence_nonsmooth_functions_and_derived_quantities_are_named(qt
     assert "non-autonomous" in text and "x''" in text
     assert "not smooth" in text and "sign" in text
     assert "energy" in text and "x'^2/2 + x^4/4" in text.replace("x^4/4 + x'^2/2", "x'^2/2 + x^4/4")
-    assert view.equation_lines()[1].startswith("x'' = ")
+    assert view.equation_lines()[1].startswith("d(x')/dt = ")
 
 
 def test_map_read_back(qtbot, session):
@@ -100,4 +101,4 @@ def test_empty_session_shows_a_hint(qtbot, session):
     assert "No model yet" in view.plain_text()
     view.resize(300, 200)
     assert view.browser.toolTip() and view.note.toolTip()
-    assert view.browser.lineWrapMode() == view.browser.LineWrapMode.NoWrap
+    assert view.browser.lineWrapMode() == view.browser.LineWrapMode.WidgetWidth  # long notes wrap, never cut off

@@ -181,3 +181,16 @@ def test_planar_starts_go_to_the_phase_plane(qtbot, window):
     view.start_along(None)  # four starts: +-v1, +-v2
     assert len(plane.seeds) == before + 4
     assert sum(1 for seed in plane.seeds[before:] if seed["both"]) == 2  # the stable direction runs backward too
+
+
+def test_jacobian_rows_and_columns_are_labelled_as_in_the_read_back(qtbot, session):
+    from orbitdesk.ui.readback import ModelReadback
+
+    view = make_view(qtbot, session)
+    readback = ModelReadback(session)
+    qtbot.addWidget(readback)
+    # damped oscillator x'' = -x - x': Jacobian [[0, 1], [-1, -1]] at the origin (closed form)
+    wait_found(qtbot, view, lambda: load(qtbot, session, "x'' = -x - x'\nx(0) = 1\n"))
+    details, listing = view.details.toPlainText(), readback.plain_text()
+    for label in ("dx/dt", "d(x')/dt", "\u2202/\u2202x", "\u2202/\u2202(x')"):
+        assert label in details and label in listing, label

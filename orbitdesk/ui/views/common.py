@@ -214,9 +214,9 @@ def push_button(text: str, tip: str, slot) -> QPushButton:
 
 
 def status_label() -> QLabel:
-    """A one-line quiet note that is clipped rather than widening the view (tooltip for the full text)."""
+    """A quiet note that wraps onto a second line rather than widening the view or being cut off."""
     label = hint_label()
-    label.setWordWrap(False)
+    label.setWordWrap(True)
     label.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
     return label
 

@@ -56,6 +56,7 @@ class CyclesView(SessionView):
         self.plot_widget = pg.PlotWidget()
         self.plot = self.plot_widget.getPlotItem()
         plain_axes(self.plot)
+        self.plot.setLabel("bottom", "t within one period")  # room for the label from the start
         self.plot.addLegend(offset=(-8, 8), labelTextSize="8pt")
         self.curves: list = []
         self.empty = empty_hint(self.plot, "One period of the cycle will be drawn here")

@@ -3,11 +3,14 @@ Jacobian and eigenvectors, and trajectories started just off it along each real 
 
 from __future__ import annotations
 
+from html import escape
+
 import numpy as np
 from PySide6.QtCore import Qt, Signal
 from PySide6.QtWidgets import (QAbstractItemView, QGridLayout, QHeaderView, QLabel, QSplitter, QTableWidget,
                                QTableWidgetItem, QTextBrowser, QToolButton, QVBoxLayout, QWidget)
 
+from ..readback import equation_lhs, partial_label
 from ..plot_style import JobStrip, NumberBox, complex_text, eigenvalues_text, hint_label, mono_font, number_text
 from .common import SessionView, auto_timer, check_box, control_row, push_button
 
@@ -356,7 +359,9 @@ class EquilibriaView(SessionView):
                 f"({_stability_text(eq)}; {eq.n_stable} stable, {eq.n_unstable} unstable"
                 f"{f', {eq.n_center} neutral' if eq.n_center else ''} direction"
                 f"{'s' if len(eq.eigenvalues) != 1 else ''})<br>{where}</p>",
-                "<p><b>Jacobian</b></p>", _matrix_html(J, states, states),
+                "<p><b>Jacobian</b></p>",
+                _matrix_html(J, [escape(partial_label(n)) for n in states],
+                             [escape(equation_lhs(self.system, n)) for n in states]),
                 f"<p><b>{'Multipliers' if multipliers else 'Eigenvalues'} and eigenvectors</b> "
                 "(columns, unit length)</p>", _matrix_html(vecs, lam_heads, states)]
         if eq.warnings:
