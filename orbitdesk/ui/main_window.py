@@ -453,6 +453,13 @@ class MainWindow(QMainWindow):
         self.cancel_button.setToolTip("Stop the computations in progress (Shift+F5)")
         self.cancel_button.setEnabled(False)
         self.cancel_button.clicked.connect(self.session.cancel_all)
+        self.jobs_label = QLabel("")
+        self.jobs_label.setToolTip("The computations under way")
+        self._jobs_timer = QTimer(self, singleShot=True, interval=120)
+        self._jobs_timer.timeout.connect(self._show_jobs)
+        self.session.jobs.jobsChanged.connect(self._jobs_timer.start)
+        self.session.jobs.jobProgress.connect(lambda *_a: self._jobs_timer.isActive() or self._jobs_timer.start())
+        bar.addPermanentWidget(self.jobs_label)
         bar.addPermanentWidget(self.run_status)
         bar.addPermanentWidget(self.progress)
         bar.addPermanentWidget(self.cancel_button)
@@ -615,6 +622,17 @@ class MainWindow(QMainWindow):
             self.progress.hide()
             if self.run_status.text() == "Running…":
                 self.run_status.setText("Stopped")
+
+    def _show_jobs(self) -> None:
+        """Each job under way with what it does and how far it is ("Sweeping gamma 40% · Nullclines"),
+        the overall bar at the least advanced one; the full list in the tooltip."""
+        jobs = [(label, fraction) for key, label, fraction in self.session.jobs.active_jobs() if key != "compile"]
+        parts = [f"{label} {int(fraction * 100)}%" if fraction > 0 else label for label, fraction in jobs]
+        text = " · ".join(parts[:3]) + (f" · {len(parts) - 3} more" if len(parts) > 3 else "")
+        self.jobs_label.setText(text)
+        self.jobs_label.setToolTip("\n".join(parts) if parts else "The computations under way")
+        if jobs:
+            self.progress.setValue(int(min(f for _l, f in jobs) * 1000))
 
     def _on_progress(self, fraction: float) -> None:
         self.progress.setValue(int(fraction * 1000))

@@ -243,9 +243,11 @@ class JobStrip(QWidget):
     def running(self) -> bool:
         return self.state == "running"
 
-    def run(self, key: str, fn, on_done, on_error=None):
-        """Start ``fn(cancel, report)`` as the session job ``key``; returns the CancelToken."""
+    def run(self, key: str, fn, on_done, on_error=None, on_progress=None):
+        """Start ``fn(cancel, report)`` as the session job ``key``; returns the CancelToken.
+        ``on_progress(fraction)`` runs on the GUI thread as the job reports (to show partial results)."""
         self.key = key
+        self._on_progress = on_progress
 
         def done(result):
             self._end("done", "")
@@ -266,7 +268,7 @@ class JobStrip(QWidget):
         self.label.setText(f"{self.what}…")
         self.label.setToolTip("")
         self._set_running(True)
-        token = self.session.run_job(key, fn, done, on_progress=self._progress, on_error=failed)
+        token = self.session.run_job(key, fn, done, on_progress=self._progress, on_error=failed, label=self.what)
         self._watch.start()
         return token
 
@@ -282,6 +284,8 @@ class JobStrip(QWidget):
     def _progress(self, fraction: float) -> None:
         if self.running:
             self.bar.setValue(int(max(0.0, min(1.0, fraction)) * 1000))
+            if getattr(self, "_on_progress", None) is not None:
+                self._on_progress(fraction)
 
     def _check_alive(self) -> None:
         if self.running and not self.session.jobs.running(self.key):

@@ -578,7 +578,7 @@ class Session(QObject):
         self.statusMessage.emit(f"The run failed: {message}")
         self.runFailed.emit(message)
 
-    def run_job(self, key: str, fn, on_done, on_progress=None, on_error=None):
+    def run_job(self, key: str, fn, on_done, on_progress=None, on_error=None, label: str | None = None):
         """Run ``fn(cancel_token, reporter)`` on a worker thread; see the module docstring of worker.py.
 
         A newer job with the same key cancels the older; results of a job started before the model or
@@ -588,7 +588,7 @@ class Session(QObject):
         if on_error is None:
             on_error = lambda msg: self.statusMessage.emit(msg)  # noqa: E731
         return self.jobs.submit(key, fn, on_done, on_progress, on_error,
-                                is_current=lambda: generation == self.generation)
+                                is_current=lambda: generation == self.generation, label=label)
 
     def cancel_all(self) -> None:
         self._run_timer.stop()

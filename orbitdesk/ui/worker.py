@@ -46,6 +46,27 @@ class Job:
     on_error: Callable[[str], None] | None = None
     is_current: Callable[[], bool] = lambda: True
     runnable: QRunnable | None = field(default=None, repr=False)
+    label: str = ""
+    fraction: float = 0.0
+
+
+# What the status bar calls a job whose owner gave it no words of its own (by key, or key prefix)
+JOB_LABELS = {"run": "Running the model", "compile": "Compiling the model", "equilibria": "Finding equilibria",
+              "cycles": "Looking for the cycle", "sections": "Collecting the section", "sweep": "Sweeping",
+              "lyapunov": "Lyapunov exponents", "phase_plane.seed": "Clicked trajectory",
+              "phase_plane.seeds": "Clicked trajectories", "phase_plane.nullclines": "Nullclines",
+              "phase_space_3d.added": "Added trajectories", "phase_space_3d.spread": "Nearby starts",
+              "export_report": "Preparing the report"}
+
+
+def job_label(key: str) -> str:
+    """Words for a job key: the longest known prefix of it, else the key itself."""
+    parts = key.split(".")
+    for n in range(len(parts), 0, -1):
+        label = JOB_LABELS.get(".".join(parts[:n]))
+        if label:
+            return label
+    return key.replace("_", " ")
 
 
 class _Relay(QObject):
@@ -150,6 +171,7 @@ class JobRunner(QObject):
 
     busyChanged = Signal(bool)
     jobProgress = Signal(str, float)  # key, fraction
+    jobsChanged = Signal()            # a job started, ended or was cancelled
 
     def __init__(self, parent=None):
         super().__init__(parent)
@@ -163,22 +185,26 @@ class JobRunner(QObject):
 
     # ------------------------------------------------------------ public
     def submit(self, key: str, fn, on_done, on_progress=None, on_error=None,
-               is_current: Callable[[], bool] | None = None) -> CancelToken:
-        """Start ``fn(cancel_token, reporter)``; a running or queued job with the same key is cancelled."""
+               is_current: Callable[[], bool] | None = None, label: str | None = None) -> CancelToken:
+        """Start ``fn(cancel_token, reporter)``; a running or queued job with the same key is cancelled.
+        ``label`` says in words what it does (default: from the key)."""
         self._cancel_key(key)
         token = CancelToken()
-        job = Job(next(self._ids), key, token, on_done, on_progress, on_error, is_current or (lambda: True))
+        job = Job(next(self._ids), key, token, on_done, on_progress, on_error, is_current or (lambda: True),
+                  label=label or job_label(key))
         task = _Task(self, job.id, fn, token)
         job.runnable = task
         self._jobs[job.id] = job
         self._by_key[key] = job.id
         self.pool.start(task)
         self._update_busy()
+        self.jobsChanged.emit()
         return token
 
     def cancel(self, key: str) -> None:
         self._cancel_key(key)
         self._update_busy()
+        self.jobsChanged.emit()
 
     def _cancel_key(self, key: str) -> None:
         job_id = self._by_key.pop(key, None)
@@ -190,6 +216,7 @@ class JobRunner(QObject):
             self._cancel_job(job)
         self._by_key.clear()
         self._update_busy()
+        self.jobsChanged.emit()
 
     def running(self, key: str) -> bool:
         job_id = self._by_key.get(key)
@@ -201,6 +228,10 @@ class JobRunner(QObject):
 
     def active_keys(self) -> list[str]:
         return [j.key for j in self._jobs.values() if not j.token.cancelled]
+
+    def active_jobs(self) -> list[tuple[str, str, float]]:
+        """(key, label, fraction done) of every job running or queued, oldest first."""
+        return [(j.key, j.label, j.fraction) for j in self._jobs.values() if not j.token.cancelled]
 
     def wait(self, msecs: int = 30_000) -> bool:
         """Block until every started task of the pool has returned (used on shutdown and in tests)."""
@@ -228,6 +259,7 @@ class JobRunner(QObject):
         job = self._jobs.get(job_id)
         if job is None or job.token.cancelled:
             return
+        job.fraction = fraction
         self.jobProgress.emit(job.key, fraction)
         if job.on_progress is not None:
             job.on_progress(fraction)
@@ -249,3 +281,4 @@ class JobRunner(QObject):
                 job.on_done(result)
         finally:
             self._update_busy()
+            self.jobsChanged.emit()

@@ -326,3 +326,34 @@ def test_opening_a_project_never_keeps_the_layout_or_camera_of_the_one_before(qt
     assert window.view_docks["timeseries"].isVisible() and window.view_docks["phase_plane"].isVisible()
     cam = view3d.camera()
     assert (cam["azimuth"], cam["elevation"]) == (start_camera["azimuth"], start_camera["elevation"])
+
+
+def test_a_backward_run_that_blows_up_is_cut_where_it_leaves_the_plot(qtbot, window, tmp_path):
+    # x' = x^2 run backward from x = -1 is x(t) = -1/(1 + t): infinite at t = -1 (closed form);
+    # y' = -y is harmless
+    open_model(qtbot, window, tmp_path, "x' = x^2\ny' = -y\nx(0) = -0.5\ny(0) = 0.5\n", "blowup.txt", t_end=3.0)
+    pp = window.views["phase_plane"]
+    pp.fit_view()
+    (x0, x1), (y0, y1) = pp.plot.getViewBox().viewRange()
+    assert pp.start_trajectory(-1.0, 0.5, both=True)
+    qtbot.waitUntil(lambda: pp.seed_runs and pp.seed_runs[0][1] is not None, timeout=10000)
+    back = pp.seed_runs[0][1]
+    assert back.status != "ok" and np.nanmin(back.series("x")) < -100 * (x1 - x0)  # it did blow up
+    drawn = [item.getOriginalDataset()[0] for item in pp.seed_items if item.isVisible()]
+    lowest = min(np.nanmin(x) for x in drawn if x is not None and len(x))
+    assert lowest >= x0 - 3 * (x1 - x0)  # cut a little past the edge: no streak to minus infinity
+
+
+def test_the_status_bar_names_each_job_under_way_with_its_progress(qtbot, window, tmp_path):
+    open_model(qtbot, window, tmp_path, LORENZ, "lorenz.txt", t_end=5.0, samples=500)
+    sweep = window.show_view("sweep")
+    sweep.set_range("r", 20.0, 40.0, 400)
+    sweep.transient.setValue(2000.0)  # far longer than the test waits
+    sweep.run_button.click()
+    lyap = window.show_view("lyapunov")
+    lyap.length.setValue(1e5)
+    lyap.compute()
+    qtbot.waitUntil(lambda: "Sweeping r over 400 values" in window.jobs_label.text()
+                    and "Lyapunov" in window.jobs_label.text() and "%" in window.jobs_label.text(), timeout=20000)
+    window.session.cancel_all()
+    qtbot.waitUntil(lambda: window.jobs_label.text() == "", timeout=20000)

@@ -198,3 +198,28 @@ def test_before_a_run_the_axis_shows_the_range_and_the_current_value(qtbot, sess
     (x0, x1), _ = view.plot.getViewBox().viewRange()
     assert x0 <= 28.0 <= x1 and x0 < 25 and x1 > 190
     assert view.marker.isVisible() and view.marker.value() == 28.0
+
+
+def test_a_sweep_draws_its_pieces_as_they_arrive_and_keeps_them_when_cancelled(qtbot, session):
+    from orbitdesk.core.sweep import sweep
+
+    view = make_view(qtbot, session)
+    load(qtbot, session, LORENZ)
+    view.set_range("r", 20.0, 40.0, 96)
+    view.set_sampling("maxima", observe="z")
+    view.transient.setValue(300.0)
+    view.run_button.click()
+    qtbot.waitUntil(lambda: "so far" in view.info.text(), timeout=60000)  # drawn before the end
+    assert view.strip.running and view.points.data.size > 0
+    qtbot.mouseClick(view.strip.cancel_button, Qt.MouseButton.LeftButton)
+    qtbot.waitUntil(lambda: session.jobs.pool.activeThreadCount() == 0, timeout=30000)
+    kept = view.result
+    assert kept is not None and 8 <= kept.values.size < 96
+    assert f"first {kept.values.size} of 96 values" in view.info.text()
+    np.testing.assert_array_equal(kept.values, np.linspace(20.0, 40.0, 96)[:kept.values.size])
+    # what is kept is what the core computes for those values
+    direct = sweep(session.system, "r", kept.values[:8], view.settings().checked(session.system),
+                   u0=session.initial_vector(), p=session.param_vector())
+    np.testing.assert_allclose(kept.samples[:8, :direct.samples.shape[1]], direct.samples, equal_nan=True)
+    header, rows = view.export_data()
+    assert set(np.unique(rows[:, 0])) <= set(kept.values)

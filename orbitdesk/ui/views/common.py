@@ -406,6 +406,21 @@ def cycle_columns(system, cycle, p) -> dict:
     return cols
 
 
+def cut_at_escape(x, y, view_range, status: str, margin: float = 2.0):
+    """A run that blew up (or hit an undefined value) cut just after it leaves the plot by more than
+    ``margin`` view widths, so that its last, enormous points draw no streak across the plot."""
+    if status == "ok" or x.size == 0:
+        return x, y
+    (x0, x1), (y0, y1) = view_range
+    wx, wy = (x1 - x0) * margin, (y1 - y0) * margin
+    with np.errstate(invalid="ignore"):
+        out = ~((x >= x0 - wx) & (x <= x1 + wx) & (y >= y0 - wy) & (y <= y1 + wy))
+    if not out.any():
+        return x, y
+    k = int(np.argmax(out))
+    return x[:k + 1], y[:k + 1]
+
+
 def values_at_time(time, t: float, discrete: bool, *series) -> tuple:
     """Each series at time ``t`` of a run: linear between the samples of a flow, the sample at or after
     ``t`` for a map; runs may go backward in time. Rows of 2D arrays are interpolated alike."""

@@ -51,7 +51,7 @@ class LyapunovView(SessionView):
         self.compute_button = push_button("Compute", "Compute the exponents with the current values", self.compute)
         self.auto = check_box("Automatic", "Compute again whenever the model or its values change", False,
                               lambda on: on and self._schedule())
-        self.strip = JobStrip(session, "Following the tangent vectors")
+        self.strip = JobStrip(session, "Lyapunov exponents: following tangent vectors")
 
         self.table = QTableWidget(0, 2)
         self.table.setHorizontalHeaderLabels(["", "Exponent"])

@@ -13,7 +13,7 @@ from . import empty_hint, muted_colour, series_colour, style_plot
 from ..data_overlay import DataOverlay
 from ..plot_style import ScreenCurve
 from .common import (SessionView, check_box, clicked_point, combo_box, control_row, coordinate_names,
-                     cycle_columns, equilibrium_coordinates, equilibrium_fields, fill_combo, runs_job, values_at_time)
+                     cut_at_escape, cycle_columns, equilibrium_coordinates, equilibrium_fields, fill_combo, runs_job, values_at_time)
 
 FIELD_POINTS = 21          # arrows along the longer side of the view
 MAX_SEEDS = 40
@@ -429,6 +429,7 @@ class PhasePlaneView(SessionView):
                     continue
                 x, y = self._xy(run)
                 if x is not None:
+                    x, y = cut_at_escape(x, y, self.plot.getViewBox().viewRange(), run.status)
                     curves.append((x, y, style, run.kind))
         while len(self.seed_items) < len(curves):
             item = ScreenCurve()
@@ -456,6 +457,8 @@ class PhasePlaneView(SessionView):
 
     # ------------------------------------------------------------ direction field and nullclines
     def _on_range_changed(self, *_args) -> None:
+        if any(run is not None and run.status != "ok" for pair in self.seed_runs for run in pair):
+            self._draw_seeds()  # runs that blew up are cut at the new edges
         self._field_timer.start()
         self._nullcline_timer.start()
 

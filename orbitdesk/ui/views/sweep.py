@@ -26,6 +26,27 @@ FLOW_MODES = (MAXIMA, STROBE, PLANE)
 MODE_LABELS = {MAXIMA: "its maxima", STROBE: "once every period", PLANE: "plane crossings", ITERATE: "every iterate"}
 DIRECTIONS = (1, -1, 0)
 MAX_VALUES = 5000
+PIECES, MIN_PIECE = 12, 8   # a sweep runs in up to 12 pieces of at least 8 values, drawn as they arrive
+
+
+def join_sweeps(parts):
+    """One SweepResult from pieces over consecutive values (samples padded with NaN to the widest)."""
+    from orbitdesk.core.sweep import SweepResult
+
+    if len(parts) == 1:
+        return parts[0]
+    width = max(p.samples.shape[1] for p in parts)
+
+    def padded(a):
+        return np.pad(a, ((0, 0), (0, width - a.shape[1])), constant_values=np.nan)
+
+    first = parts[0]
+    return SweepResult(
+        parameter=first.parameter, values=np.concatenate([p.values for p in parts]),
+        samples=np.vstack([padded(p.samples) for p in parts]), observed=first.observed, mode=first.mode,
+        lyapunov=None if first.lyapunov is None else np.concatenate([p.lyapunov for p in parts]),
+        status=np.concatenate([p.status for p in parts]),
+        times=None if first.times is None else np.vstack([padded(p.times) for p in parts]))
 MAX_SAMPLES = 5000
 
 
@@ -96,6 +117,8 @@ class SweepView(SessionView):
                                   "(slower)")
         self.run_button = push_button("Run", "Compute the orbit diagram", self.run)
         self.strip = JobStrip(session, "Sweeping")
+        self.strip.finished.connect(self._on_strip_finished)
+        self._parts, self._parts_shown, self._parts_total = [], 0, 0
         self.info = status_label()
 
         # ---- plots
@@ -244,16 +267,44 @@ class SweepView(SessionView):
         values = np.linspace(lo, hi, count)
         u0, p = self.session.initial_vector(), self.session.param_vector()
         self.begin_computing(skip=name)
+        # in pieces, from left to right: the diagram grows as they arrive, and a cancelled sweep keeps them
+        pieces = np.array_split(values, max(1, min(PIECES, count // MIN_PIECE)))
+        parts: list = []  # appended by the worker, read on the GUI thread
+        self._parts, self._parts_shown, self._parts_total = parts, 0, count
+        self._parts_range = (lo, hi)
 
         def job(cancel, report):
-            return sweep(s, name, values, settings, u0=u0, p=p, cancel=cancel, progress=report)
+            for k, piece in enumerate(pieces):
+                parts.append(sweep(s, name, piece, settings, u0=u0, p=p, cancel=cancel,
+                                   progress=report.part(k / len(pieces), 1 / len(pieces))))
+            return join_sweeps(parts)
 
         self.info.setText("")
         self.strip.what = f"Sweeping {name} over {count} values"
-        self.strip.run("sweep", job, self._adopt, on_error=lambda m: None)
+        self.strip.run("sweep", job, self._adopt, on_error=lambda m: None, on_progress=self._show_parts)
 
     def cancel(self) -> None:
         self.strip.cancel()
+
+    def _show_parts(self, _fraction=None) -> None:
+        """Draw the pieces computed so far (the job goes on)."""
+        parts = list(self._parts)
+        if len(parts) > self._parts_shown:
+            self._parts_shown = len(parts)
+            self.result = join_sweeps(parts)
+            self.shown_computed()
+            self._draw(refit=True)
+            self.plot.setXRange(*self._parts_range, padding=0.01)  # the whole sweep's range, filling in
+            done = self.result.values.size
+            self.info.setText(f"{done} of {self._parts_total} values so far")
+
+    def _on_strip_finished(self, state: str) -> None:
+        if state == "cancelled" and self._parts:
+            self._parts_shown = 0
+            self._show_parts()
+            done = self.result.values.size
+            self.info.setText(f"Cancelled: the diagram holds the first {done} of {self._parts_total} values")
+            self.sweepChanged.emit(self.result)
 
     # ------------------------------------------------------------ session events
     def _on_project_loaded(self) -> None:
