@@ -23,6 +23,7 @@ from . import views as views_pkg
 from .errors import Notices
 from .file_guard import DocumentGuard
 from .plain_text import menu_text, plain_message, rich_tip
+from .result_store import RESULTS_KEY
 from .session import Session
 
 log = logging.getLogger("orbitdesk.ui.main_window")
@@ -577,7 +578,24 @@ class MainWindow(QMainWindow):
                 views[view.view_id] = {**view.view_settings(), **plot_tools.settings(view)}
             except Exception:  # noqa: BLE001 - keep what was there
                 log.exception("view %s could not report its settings", name)
-        views[WINDOW_KEY] = {"state": bytes(self.saveState().toBase64()).decode("ascii")}
+        window = {"state": bytes(self.saveState().toBase64()).decode("ascii")}
+        if self.session.trajectory is not None and np.isfinite(self.session.time_cursor):
+            window["time_cursor"] = float(self.session.time_cursor)
+        views[WINDOW_KEY] = window
+        kept = {}
+        for view in self.views.values():
+            try:
+                d = view.kept_result() if hasattr(view, "kept_result") else None
+            except Exception:  # noqa: BLE001 - a result that cannot be kept is left out
+                log.exception("view %s could not keep its result", view)
+                d = None
+            if d is not None:
+                kept[view.view_id] = d
+        previous = views.get(RESULTS_KEY)
+        for view_id, d in (previous.items() if isinstance(previous, dict) else ()):
+            if view_id not in kept and view_id not in {v.view_id for v in self.views.values()}:
+                kept[view_id] = d  # a view not opened in this session keeps what the file had
+        views[RESULTS_KEY] = kept
 
     def restore_layout(self, window_settings: dict) -> bool:
         state = window_settings.get("state") if isinstance(window_settings, dict) else None
@@ -597,8 +615,13 @@ class MainWindow(QMainWindow):
 
     # ------------------------------------------------------------ session events
     def _on_project_loaded(self) -> None:
-        """The project's own layout, or the starting one: never the layout of the project before."""
-        if not self.restore_layout(self.session.project.views.get(WINDOW_KEY, {})):
+        """The project's own layout, or the starting one: never the layout of the project before; the
+        time cursor where it was (the first run puts it inside its span)."""
+        window = self.session.project.views.get(WINDOW_KEY, {})
+        cursor = window.get("time_cursor") if isinstance(window, dict) else None
+        if isinstance(cursor, (int, float)) and not isinstance(cursor, bool) and np.isfinite(cursor):
+            self.session.time_cursor = float(cursor)
+        if not self.restore_layout(window):
             self.reset_layout()
             if self.isVisible():
                 QTimer.singleShot(0, self.apply_default_sizes)  # after other panels have reacted to the load

@@ -357,3 +357,52 @@ def test_the_status_bar_names_each_job_under_way_with_its_progress(qtbot, window
                     and "Lyapunov" in window.jobs_label.text() and "%" in window.jobs_label.text(), timeout=20000)
     window.session.cancel_all()
     qtbot.waitUntil(lambda: window.jobs_label.text() == "", timeout=20000)
+
+
+def test_reopening_restores_zoom_cursor_and_computed_results(qtbot, window, tmp_path):
+    _, traj = open_model(qtbot, window, tmp_path, LORENZ, "lorenz.txt", t_end=20.0, samples=2000)
+    s = window.session
+    pp = window.views["phase_plane"]
+    pp.plot.getViewBox().setRange(xRange=(-5.0, 7.0), yRange=(-3.0, 4.0), padding=0)
+    pp.plot.getViewBox().sigRangeChangedManually.emit([True, True])
+    s.set_time_cursor(12.5)
+    sweep = window.show_view("sweep")
+    sweep.set_range("r", 20.0, 30.0, 6)
+    sweep.set_sampling("maxima", observe="z")
+    sweep.transient.setValue(10.0)
+    with qtbot.waitSignal(sweep.sweepChanged, timeout=60000, check_params_cb=lambda r: r is not None
+                          and r.values.size == 6):
+        sweep.run()
+    lyap = window.show_view("lyapunov")
+    lyap.length.setValue(30.0)
+    lyap.transient.setValue(5.0)
+    with qtbot.waitSignal(lyap.resultChanged, timeout=60000):
+        lyap.compute()
+    sections = window.show_view("sections")
+    sections.auto.setChecked(False)
+    sections.set_plane("z", 27.0, "up")
+    sections.count.setValue(20)
+    with qtbot.waitSignal(sections.sectionChanged, timeout=60000):
+        sections.compute()
+    kept = (sweep.result.samples.copy(), lyap.result.exponents.copy(), sections.result.times.copy())
+    target = tmp_path / "kept.orbitdesk"
+    s.save(target)
+    wait_for_trajectory(qtbot, s, lambda: window.open_path(tmp_path / "lorenz.txt", ask=False))
+    assert sweep.result is None and lyap.result is None
+    wait_for_trajectory(qtbot, s, lambda: window.open_path(target, ask=False))
+    qtbot.waitUntil(lambda: sweep.result is not None and lyap.result is not None and sections.result is not None,
+                    timeout=20000)
+    (x0, x1), (y0, y1) = pp.plot.getViewBox().viewRange()
+    assert (x0, x1, y0, y1) == pytest.approx((-5.0, 7.0, -3.0, 4.0), abs=1e-9)
+    assert s.time_cursor == 12.5
+    np.testing.assert_array_equal(sweep.result.samples, kept[0])
+    np.testing.assert_array_equal(lyap.result.exponents, kept[1])
+    np.testing.assert_array_equal(sections.result.times, kept[2])
+    assert sweep.stale_bar.isHidden() and lyap.stale_bar.isHidden() and sections.stale_bar.isHidden()
+    # the same project with an edited model: the kept results come back marked stale
+    saved = core_project.load(target)
+    saved.model = saved.model.replace("z' = x*y - beta*z", "z' = x*y - beta*z + 0")
+    core_project.save(tmp_path / "edited.orbitdesk", saved)
+    wait_for_trajectory(qtbot, s, lambda: window.open_path(tmp_path / "edited.orbitdesk", ask=False))
+    qtbot.waitUntil(lambda: sweep.result is not None, timeout=20000)
+    assert not sweep.stale_bar.isHidden() and "earlier version of the model" in sweep.stale_bar.label.text()

@@ -50,6 +50,7 @@ class SessionView(QWidget):
     view_id = ""
     title = ""
     stale_follows_solver = False   # results depend on the solver settings too (runs, sections)
+    result_class = None            # the core result this view keeps in the project (see result_store)
 
     def __init__(self, session, parent=None):
         super().__init__(parent)
@@ -59,6 +60,7 @@ class SessionView(QWidget):
         self._computed_for = None
         self._stale_skip = None
         self._fit_pending = False
+        self._restore_pending = True
         self.stale_bar = StaleBar(self.recompute)
 
     def follow_session(self, values=None, settings=None, trajectory=None, cursor=None) -> None:
@@ -72,6 +74,7 @@ class SessionView(QWidget):
                                 (s.trajectoryChanged, trajectory), (s.timeCursorChanged, cursor)):
             if handler is not None:
                 signal.connect(handler)
+        s.projectLoaded.connect(lambda: setattr(self, "_restore_pending", True))
         s.projectLoaded.connect(self._on_project_loaded)
         for signal in (s.valuesChanged, s.settingsChanged, s.systemChanged):
             signal.connect(self.update_stale)
@@ -156,6 +159,54 @@ class SessionView(QWidget):
         self.stale_bar.label.setText(text)
         self.stale_bar.label.setToolTip(text)
         self.stale_bar.setVisible(bool(text))
+
+    # ------------------------------------------------------------ results kept in the project
+    def kept_result(self) -> dict | None:
+        """The shown result as the project keeps it, with the values it was computed for."""
+        from ..result_store import pack, text_digest
+
+        r, f = getattr(self, "result", None), self._computed_for
+        if self.result_class is None or r is None or f is None:
+            return None
+        data = pack(r)
+        if data is None:
+            return None
+        current = f["system"] == id(self.system)
+        return {"for": {"params": f["params"], "initial": f["initial"],
+                        "solver": None if f["solver"] is None else list(f["solver"]),
+                        "model": text_digest(self.session.text) if current else None},
+                "skip": self._stale_skip, "data": data}
+
+    def restore_kept_result(self) -> bool:
+        """Once after a project is opened (call at the end of ``_on_system``): show the result the
+        project kept, marked stale if the model or the values differ from those it was computed for."""
+        from ..result_store import RESULTS_KEY, text_digest, unpack
+
+        if not self._restore_pending or self.result_class is None or self.system is None:
+            return False
+        self._restore_pending = False
+        kept = self.session.project.views.get(RESULTS_KEY, {})
+        d = kept.get(self.view_id) if isinstance(kept, dict) else None
+        if not isinstance(d, dict) or not isinstance(d.get("for"), dict):
+            return False
+        result = unpack(self.result_class, d.get("data"))
+        f = d["for"]
+        if result is None or not isinstance(f.get("params"), dict) or not isinstance(f.get("initial"), dict):
+            return False
+        try:
+            self.show_kept_result(result)
+        except (AttributeError, KeyError, IndexError, TypeError, ValueError):
+            return False  # a kept result that does not fit this model is left out
+        same_model = f.get("model") == text_digest(self.session.text)
+        self._computed_for = {"params": f["params"], "initial": f["initial"],
+                              "system": id(self.system) if same_model else -1,
+                              "solver": None if f.get("solver") is None else tuple(f["solver"])}
+        self._stale_skip = d.get("skip") if isinstance(d.get("skip"), str) else None
+        self.update_stale()
+        return True
+
+    def show_kept_result(self, result) -> None:
+        """Show a result read back from the project (views with ``result_class`` override this)."""
 
     def recompute(self) -> None:
         """Compute the shown result again for the present values (the view's compute or run)."""

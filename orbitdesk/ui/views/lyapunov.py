@@ -12,6 +12,8 @@ from PySide6.QtCore import Qt, Signal
 from PySide6.QtWidgets import (QAbstractItemView, QHeaderView, QLabel, QSplitter, QTableWidget, QTableWidgetItem,
                                QVBoxLayout, QWidget)
 
+from orbitdesk.core.lyapunov import LyapunovResult
+
 from . import muted_colour, series_colour, style_plot
 from ..plot_style import JobStrip, NumberBox, hint_label, mono_font, number_text
 from .common import SessionView, auto_timer, check_box, control_row, push_button, quiet, set_quietly
@@ -25,6 +27,7 @@ NEAR_ZERO = 0.01  # |exponent| below this (relative to the largest magnitude) is
 class LyapunovView(SessionView):
     view_id = "lyapunov"
     title = "Lyapunov exponents"
+    result_class = LyapunovResult
 
     resultChanged = Signal(object)  # the LyapunovResult shown (None when cleared)
 
@@ -179,6 +182,14 @@ class LyapunovView(SessionView):
         self._show_lengths()
         self._clear()
         self._schedule()
+        self.restore_kept_result()
+
+    def show_kept_result(self, result) -> None:
+        if result.kind != self.system.kind or np.asarray(result.exponents).size != self.system.n_states:
+            raise ValueError("the kept exponents belong to another kind of model")
+        self.result = result
+        self._draw()
+        self.resultChanged.emit(result)
 
     def _on_values(self) -> None:
         self._schedule()

@@ -13,7 +13,7 @@ from . import empty_hint, muted_colour, series_colour, style_plot
 from ..data_overlay import DataOverlay
 from ..plot_style import ScreenCurve
 from .common import (SessionView, check_box, clicked_point, combo_box, control_row, coordinate_names,
-                     cut_at_escape, cycle_columns, equilibrium_coordinates, equilibrium_fields, fill_combo, runs_job, values_at_time)
+                     cut_at_escape, cycle_columns, equilibrium_coordinates, quiet, equilibrium_fields, fill_combo, runs_job, values_at_time)
 
 FIELD_POINTS = 21          # arrows along the longer side of the view
 MAX_SEEDS = 40
@@ -268,8 +268,9 @@ class PhasePlaneView(SessionView):
             default = (states[0], states[1]) if len(states) > 1 else (system.time_name, states[0])
             if want[0] in names and want[1] in names and want[0] != want[1]:
                 default = want
-            self.x_combo.setCurrentIndex(names.index(default[0]))
-            self.y_combo.setCurrentIndex(names.index(default[1]))
+            with quiet(self.x_combo, self.y_combo):  # no refit here: a zoom kept in the project stays
+                self.x_combo.setCurrentIndex(names.index(default[0]))
+                self.y_combo.setCurrentIndex(names.index(default[1]))
             self._wanted_axes = None
         self._on_axes(refit=False)
         self._schedule_seeds()

@@ -14,6 +14,8 @@ import pyqtgraph as pg
 from PySide6.QtCore import Qt, Signal
 from PySide6.QtWidgets import QSpinBox, QSplitter, QStackedWidget, QVBoxLayout, QWidget
 
+from orbitdesk.core.sections import SectionResult
+
 from . import muted_colour, series_colour, style_plot
 from ..plot_style import JobStrip, NumberBox, hint_label, number_text
 from .common import (SessionView, apply_numbers, auto_timer, check_box, combo_box, control_row, detected_period,
@@ -30,6 +32,7 @@ class SectionsView(SessionView):
     view_id = "sections"
     title = "Poincaré section"
     stale_follows_solver = True
+    result_class = SectionResult
 
     sectionChanged = Signal(object)  # the SectionResult shown (None when cleared)
 
@@ -270,7 +273,13 @@ class SectionsView(SessionView):
                               "of the current run")
         self._default_plane_value()
         self._draw()
-        self._schedule(force=True)
+        if not self.restore_kept_result():
+            self._schedule(force=True)
+
+    def show_kept_result(self, result) -> None:
+        if self.system.kind == "map" or list(result.state_names) != list(self.system.states):
+            raise ValueError("the kept section belongs to other states")
+        self._show_section(result)
 
     def _on_values(self) -> None:
         if self.system is not None and self.system.kind != "map":
@@ -341,8 +350,12 @@ class SectionsView(SessionView):
 
     # ------------------------------------------------------------ results
     def _adopt(self, result) -> None:
-        self.result = result
         self.shown_computed()
+        self._show_section(result)
+        self.sectionChanged.emit(result)
+
+    def _show_section(self, result) -> None:
+        self.result = result
         s = self.system
         cols = {s.time_name: np.asarray(result.times, dtype=float)}
         for i, name in enumerate(result.state_names):
@@ -359,7 +372,6 @@ class SectionsView(SessionView):
         self.info.setText("; ".join(parts))
         self.info.setToolTip("\n".join(parts))
         self._draw(refit=True)
-        self.sectionChanged.emit(result)
 
     def _from_map_orbit(self) -> None:
         traj, s = self.session.trajectory, self.system

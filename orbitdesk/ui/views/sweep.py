@@ -15,6 +15,8 @@ from PySide6.QtCore import Qt, Signal
 from PySide6.QtGui import QColor
 from PySide6.QtWidgets import QLabel, QSpinBox, QStackedWidget, QWidget
 
+from orbitdesk.core.sweep import SweepResult
+
 from . import muted_colour, series_colour, style_plot
 from ..plot_style import JobStrip, NumberBox, number_text
 from .common import (SessionView, apply_numbers, check_box, clicked_point, combo_box, control_row,
@@ -61,6 +63,7 @@ def diagram_points(result):
 class SweepView(SessionView):
     view_id = "sweep"
     title = "Parameter sweep"
+    result_class = SweepResult
 
     sweepChanged = Signal(object)  # the SweepResult shown (None when cleared)
 
@@ -353,6 +356,14 @@ class SweepView(SessionView):
             self.info.setText("The model has no parameter to sweep")
         elif self.result is None:
             self.info.setText("Run draws the orbit diagram: the plotted points of each orbit against the parameter")
+        self.restore_kept_result()
+
+    def show_kept_result(self, result) -> None:
+        if result.parameter not in self.system.parameters:
+            raise ValueError("the kept diagram sweeps a parameter the model no longer has")
+        self.result = result
+        self._draw(refit=True)
+        self.sweepChanged.emit(result)
 
     def _apply_wanted(self) -> None:
         d, self._wanted = self._wanted, None
