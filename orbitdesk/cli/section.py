@@ -1,4 +1,5 @@
-"""``orbitdesk section PATH (--plane NAME=VALUE | --strobe T)``: Poincaré section points of a flow."""
+"""``orbitdesk section PATH (--plane NAME=VALUE | --strobe T [--phase S])``: Poincaré section points of a
+flow."""
 
 import math
 import sys
@@ -17,6 +18,7 @@ def register(sub):
     kind = parser.add_mutually_exclusive_group(required=True)
     kind.add_argument("--plane", metavar="NAME=VALUE", help="crossings of a state or derived quantity with a value")
     kind.add_argument("--strobe", metavar="T", help="the state every period T (forced flows)")
+    parser.add_argument("--phase", metavar="S", help="strobe: sample at t0 + S + k T (0 <= S < T; default 0)")
     parser.add_argument("--direction", choices=DIRECTIONS, default="up", help="crossing direction (default up)")
     parser.add_argument("--count", type=int, default=100, metavar="N", help="number of points (default 100)")
     parser.add_argument("--transient", metavar="T", help="time discarded first (strobe: rounded up to whole periods)")
@@ -44,17 +46,20 @@ def run(args) -> int:
     progress = stderr_progress("section")
     try:
         if args.plane is not None:
+            if args.phase is not None:
+                raise CommandError("--phase applies to --strobe sections")
             ((name, value),) = _plane(args.plane, system).items()
             result = plane_section(system, p, u0, name, value, args.direction, args.count, transient, settings,
                                    progress=progress)
         else:
             if args.direction != "up":
                 raise CommandError("--direction applies to --plane sections")
+            phase = parse_number(args.phase, "--phase") if args.phase is not None else 0.0
             period = parse_number(args.strobe, "--strobe")
             if period <= 0:
                 raise CommandError("--strobe: the period must be positive")
-            result = strobe_section(system, p, u0, period, args.count, transient=transient, settings=settings,
-                                    progress=progress)
+            result = strobe_section(system, p, u0, period, args.count, transient=transient, phase=phase,
+                                    settings=settings, progress=progress)
     except ValueError as err:
         raise CommandError(str(err)) from None
     if progress is not None:

@@ -102,6 +102,9 @@ def _section_of(d: dict, session) -> dict | None:
     kind = d.get("kind")
     states = list(session.system.states) if session.system is not None else []
     if kind == "strobe" and isinstance(d.get("period"), (int, float)) and d["period"] > 0:
+        phase = d.get("phase")
+        if isinstance(phase, (int, float)) and phase > 0:
+            return {"strobe": float(d["period"]), "phase": float(phase)}
         return {"strobe": float(d["period"])}
     if kind == "plane" and d.get("coordinate") in states and isinstance(d.get("value"), (int, float)):
         return {"plane": f"{d['coordinate']}={float(d['value'])!r}", "direction": d.get("direction", "up")}
@@ -208,7 +211,7 @@ def _apply_to_view(view, changes: dict, section: dict | None) -> None:
     if section is None:
         return
     if "strobe" in section and hasattr(view, "set_strobe"):
-        view.set_strobe(section["strobe"])
+        view.set_strobe(section["strobe"], section.get("phase", 0.0))
     elif "plane" in section and hasattr(view, "set_plane"):
         name, _, value = section["plane"].partition("=")
         view.set_plane(name, float(value), section.get("direction", "up"))

@@ -57,6 +57,22 @@ def test_section_strobe_json_and_csv(capsys, model, tmp_path):
     assert float(rows[1][0]) == pytest.approx(points[0]["x"], rel=1e-12)
 
 
+def test_section_strobe_phase(capsys, model):
+    # linearised response at small forcing x = 1 + A cos(omega t - phi) (see tests/core/test_sections.py):
+    # a quarter period later the samples sit at x = 1 + A sin(phi)
+    period, omega, delta, gamma = 2 * math.pi / 1.2, 1.2, 0.3, 0.005
+    code, out, _ = run_cli(capsys, "section", model(DUFFING), "--strobe", repr(period), "--phase", repr(period / 4),
+                           "--count", "3", "--transient", repr(60 * period), "--json")
+    assert code == 0
+    points = json.loads(out)["points"]
+    assert [p["t"] for p in points] == pytest.approx(period * np.arange(60, 63) + period / 4, rel=1e-12)
+    phi = math.atan2(delta * omega, 2 - omega**2)
+    amplitude = gamma / math.hypot(2 - omega**2, delta * omega)
+    assert points[0]["x"] == pytest.approx(1 + amplitude * math.sin(phi), abs=2e-4)
+    code, _, err = run_cli(capsys, "section", model(DUFFING), "--plane", "x=0", "--phase", "1")
+    assert code != 0 and "--phase applies to --strobe" in err
+
+
 def test_section_plain_table(capsys, model):
     code, out, _ = run_cli(capsys, "section", model(OSCILLATOR), "--plane", "x=0", "--count", "3")
     lines = out.splitlines()

@@ -172,6 +172,20 @@ def test_duffing_small_forcing_strobe_is_a_fixed_point():
     assert np.allclose(long.final_state, result.points[:, -1], atol=1e-8)
 
 
+def test_strobe_phase_samples_a_quarter_period_later():
+    # the same linearised response x = 1 + A cos(omega t - phi), x' = -A omega sin(omega t - phi):
+    # sampled at k T + T/4 (omega T/4 = pi/2) it is (1 + A sin phi, -A omega cos phi)
+    system = compile_model(DUFFING)
+    delta, gamma, omega = 0.3, 0.005, 1.2
+    period = 2 * math.pi / omega
+    result = strobe_section(system, period=period, count=5, transient_periods=60, phase=period / 4)
+    assert np.allclose(result.times, period * np.arange(60, 65) + period / 4, rtol=1e-14)
+    amplitude = gamma / math.hypot(2 - omega**2, delta * omega)
+    phi = math.atan2(delta * omega, 2 - omega**2)
+    assert result.points[0, 0] == pytest.approx(1 + amplitude * math.sin(phi), abs=2e-4)
+    assert result.points[1, 0] == pytest.approx(-amplitude * omega * math.cos(phi), abs=2e-4)
+
+
 def test_duffing_period_one_turns_twice_per_forcing_period():
     system = compile_model(DUFFING)
     period = 2 * math.pi / 1.2

@@ -169,3 +169,22 @@ def test_values_change_recomputes_and_maps_show_their_iterates(qtbot, session):
     header, rows = view.export_data()
     assert header == ["n", "x", "y"]
     np.testing.assert_allclose(rows[1:, 2], 0.3 * rows[:-1, 1], rtol=1e-12)
+
+
+def test_a_strobe_phase_samples_later_in_each_period(qtbot, session):
+    from orbitdesk.core.engine import RunSettings, simulate
+
+    view = make_view(qtbot, session)
+    view.apply_view_settings({"kind": "strobe", "count": 4, "transient": 20.0, "auto": False})
+    load(qtbot, session, DUFFING)
+    period = view.period.value()
+    assert period == pytest.approx(2 * math.pi)  # read off cos(w t), w = 1
+    view.phase.setValue(1.5)
+    result = wait_section(qtbot, view, view.compute)
+    k0 = math.ceil(20.0 / period - 1e-9)
+    assert result.times == pytest.approx(1.5 + period * np.arange(k0, k0 + 4), rel=1e-12)
+    # the state there is the state of a plain run to that time
+    direct = simulate(session.system, RunSettings(t_end=float(result.times[0]), samples=2, rtol=1e-10, atol=1e-12),
+                      session.initial_vector(), session.param_vector())
+    assert result.points[:, 0] == pytest.approx(direct.final_state, abs=1e-6)
+    assert view.view_settings()["phase"] == 1.5

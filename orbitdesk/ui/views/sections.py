@@ -61,10 +61,13 @@ class SectionsView(SessionView):
         self.period.valueChanged.connect(self._on_period_edited)
         self.period_note = hint_label()
         self.period_note.setWordWrap(False)
+        self.phase = NumberBox(0.0, 0.0, 1e9, step=0.1)
+        self.phase.setToolTip("Where in the period the samples are taken: at t0 + phase + k T")
+        self.phase.valueChanged.connect(self._changed)
 
         self.kind_stack = QStackedWidget()
         self.kind_stack.addWidget(row_widget(self.coordinate, "=", self.value, "crossed", self.direction))
-        self.kind_stack.addWidget(row_widget("period", self.period, self.period_note))
+        self.kind_stack.addWidget(row_widget("period", self.period, "at phase", self.phase, self.period_note))
 
         self.count = QSpinBox()
         self.count.setRange(2, MAX_COUNT)
@@ -138,7 +141,7 @@ class SectionsView(SessionView):
     def view_settings(self) -> dict:
         return {"kind": self.section_kind(), "coordinate": self.coordinate.currentText(),
                 "value": float(self.value.value()), "direction": DIRECTIONS[self.direction.currentIndex()],
-                "period": float(self.period.value()), "count": self.count.value(),
+                "period": float(self.period.value()), "phase": float(self.phase.value()), "count": self.count.value(),
                 "transient": float(self.transient.value()), "auto": self.auto.isChecked(),
                 "axes": [self.h_combo.currentText(), self.v_combo.currentText()],
                 "return_of": self.r_combo.currentText()}
@@ -147,7 +150,8 @@ class SectionsView(SessionView):
         if not isinstance(d, dict):
             return
         self._wanted = dict(d)
-        apply_numbers(d, ((self.value, "value", float), (self.period, "period", float), (self.count, "count", int),
+        apply_numbers(d, ((self.value, "value", float), (self.period, "period", float), (self.phase, "phase", float),
+                          (self.count, "count", int),
                           (self.transient, "transient", float)))
         self._user_value = isinstance(d.get("value"), (int, float))
         self._user_period = isinstance(d.get("period"), (int, float))
@@ -180,9 +184,10 @@ class SectionsView(SessionView):
             self.kind_stack.setCurrentIndex(0)
         self._user_value = True
 
-    def set_strobe(self, period: float) -> None:
+    def set_strobe(self, period: float, phase: float = 0.0) -> None:
         with quiet(*self._settings_widgets()):
             self.period.setValue(float(period))
+            self.phase.setValue(float(phase))
             self.kind.setCurrentIndex(1)
             self.kind_stack.setCurrentIndex(1)
         self._user_period = True
@@ -217,11 +222,13 @@ class SectionsView(SessionView):
             self.strip.what = f"Crossings of {coordinate} = {number_text(value)}"
         else:
             period = float(self.period.value())
+            phase = float(self.phase.value()) % period
 
             def job(cancel, report):
-                return sections.strobe_section(s, p, u0, period, count, transient, settings=settings,
+                return sections.strobe_section(s, p, u0, period, count, transient, phase=phase, settings=settings,
                                                cancel=cancel, progress=report)
-            self.strip.what = f"Every {number_text(period)} time units"
+            self.strip.what = f"Every {number_text(period)} time units" + (
+                f" at phase {number_text(phase)}" if phase else "")
         self.strip.run("sections", job, self._adopt, on_error=lambda m: self.info.setText(""))
 
     # ------------------------------------------------------------ session events
@@ -295,7 +302,8 @@ class SectionsView(SessionView):
 
     # ------------------------------------------------------------ settings changes
     def _settings_widgets(self) -> tuple:
-        return (self.kind, self.coordinate, self.value, self.direction, self.period, self.h_combo, self.v_combo,
+        return (self.kind, self.coordinate, self.value, self.direction, self.period, self.phase, self.h_combo,
+                self.v_combo,
                 self.r_combo)
 
     def _apply_wanted_names(self) -> None:
