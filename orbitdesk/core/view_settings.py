@@ -37,6 +37,10 @@ VIEW_SETTINGS: dict[str, dict] = {
                     "locus": "table"},
     "fit": {"parameters": "list", "local": "list", "initial": "list", "bounds": "list", "weights": "list",
             "segments": "integer", "max_evaluations": "integer"},
+    "parameter_map": {"what": ("lyapunov", "period"),
+                      "x": {"parameter": "parameter", "from": "number", "to": "number", "count": "integer"},
+                      "y": {"parameter": "parameter", "from": "number", "to": "number", "count": "integer"},
+                      "transient": "number", "duration": "number", "max_period": "integer", "period": "number"},
     "lyapunov": {"flow": {"length": "number", "transient": "number"},
                  "map": {"steps": "integer", "transient": "integer"}, "dt": "number", "auto": "bool"},
 }

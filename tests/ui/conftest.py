@@ -123,3 +123,14 @@ def show_view(qtbot, view, size):
     view.show()
     qtbot.waitExposed(view)
     return view
+
+
+def open_view(qtbot, session, module, size=(800, 600)):
+    """A view of ``module`` (views.VIEW_MODULES) on ``session``, shown at ``size``."""
+    from orbitdesk.ui import views as views_pkg
+
+    view = views_pkg.load_view_class(module)(session)
+    qtbot.addWidget(view)
+    view.resize(*size)
+    view.show()
+    return view

@@ -5,9 +5,7 @@ switched off by its parameter are found as for an autonomous model."""
 import numpy as np
 import pytest
 
-from orbitdesk.ui import views as views_pkg
-
-from .conftest import load_model, wait_for_trajectory
+from .conftest import load_model, open_view, wait_for_trajectory
 
 # Two-well Duffing x'' + delta x' - x + x^3 = gamma cos(omega t): with gamma = 0 the rest points are
 # x = 0 (a saddle) and x = +-1 (stable foci for delta > 0) -- closed form.
@@ -19,15 +17,8 @@ x(0) = 1
 """
 
 
-def make(qtbot, session, module):
-    view = views_pkg.load_view_class(module)(session)
-    qtbot.addWidget(view)
-    view.show()
-    return view
-
-
 def test_equilibria_of_a_forced_model_at_zero_forcing_and_stale_when_forcing_returns(qtbot, session):
-    view = make(qtbot, session, "equilibria")
+    view = open_view(qtbot, session, "equilibria")
     load_model(qtbot, session, DUFFING, dict(t_end=10.0, samples=200))
     assert "no equilibria in the usual sense" in view.summary.text()
     assert view.equilibria == []
@@ -45,7 +36,7 @@ def test_equilibria_of_a_forced_model_at_zero_forcing_and_stale_when_forcing_ret
 
 @pytest.mark.parametrize("module", ["sweep", "sections"])
 def test_result_panels_mark_their_result_stale(qtbot, session, module):
-    view = make(qtbot, session, module)
+    view = open_view(qtbot, session, module)
     load_model(qtbot, session, DUFFING, dict(t_end=10.0, samples=200))
     if module == "sweep":
         view.apply_view_settings({"parameter": "gamma", "from": 0.1, "to": 0.2, "count": 3, "mode": "strobe",

@@ -8,20 +8,10 @@ import numpy as np
 import pytest
 from scipy.integrate import simpson
 
-from orbitdesk.ui import views as views_pkg
-
-from .conftest import load_model, wait_for_trajectory
+from .conftest import load_model, open_view, wait_for_trajectory
 
 VAN_DER_POL = "mu = 1 in [0, 5]\nx'' = mu*(1 - x^2)*x' - x\nx(0) = 0.1\nx'(0) = 0\n"
 LOGISTIC = "r = 3.2\nx[n+1] = r*x*(1 - x)\nx[0] = 0.2\n"
-
-
-def make(qtbot, session, module):
-    view = views_pkg.load_view_class(module)(session)
-    qtbot.addWidget(view)
-    view.resize(700, 600)
-    view.show()
-    return view
 
 
 def find(qtbot, view):
@@ -31,8 +21,8 @@ def find(qtbot, view):
 
 
 def test_van_der_pol_cycle_from_the_end_of_the_run(qtbot, session, tmp_path, artifacts):
-    view = make(qtbot, session, "cycles")
-    plane = make(qtbot, session, "phase_plane")
+    view = open_view(qtbot, session, "cycles", (700, 600))
+    plane = open_view(qtbot, session, "phase_plane", (700, 600))
     load_model(qtbot, session, VAN_DER_POL, dict(t_end=60.0, samples=3000))
     cycle = find(qtbot, view)
     # period of the Van der Pol cycle at mu = 1: 6.6633 (value from memory, four figures)
@@ -66,7 +56,7 @@ def test_van_der_pol_cycle_from_the_end_of_the_run(qtbot, session, tmp_path, art
 
 
 def test_cycle_from_a_clicked_start(qtbot, session):
-    view = make(qtbot, session, "cycles")
+    view = open_view(qtbot, session, "cycles", (700, 600))
     load_model(qtbot, session, VAN_DER_POL, dict(t_end=20.0, samples=1000))
     view.apply_view_settings({"start": "clicked"})
     view.compute()
@@ -78,7 +68,7 @@ def test_cycle_from_a_clicked_start(qtbot, session):
 
 
 def test_logistic_two_cycle(qtbot, session):
-    view = make(qtbot, session, "cycles")
+    view = open_view(qtbot, session, "cycles", (700, 600))
     load_model(qtbot, session, LOGISTIC, dict(steps=200))
     view.apply_view_settings({"map_period": 2})
     assert view.map_period.isVisibleTo(view) and not view.period_guess.isVisibleTo(view)

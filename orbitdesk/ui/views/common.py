@@ -116,10 +116,12 @@ class SessionView(QWidget):
         return self.session.project.views.get(self.view_id, {})
 
     # ------------------------------------------------------------ stale results
-    def values_now(self, skip: str | None = None) -> dict:
-        """What a result computed now is computed for (``skip``: a parameter the result runs over)."""
+    def values_now(self, skip=None) -> dict:
+        """What a result computed now is computed for (``skip``: a parameter, or a list of parameters, the
+        result runs over)."""
         s = self.session
-        return {"params": {n: v for n, v in s.params.items() if n != skip}, "initial": dict(s.initial),
+        skip = (skip,) if isinstance(skip, str) else tuple(skip or ())
+        return {"params": {n: v for n, v in s.params.items() if n not in skip}, "initial": dict(s.initial),
                 "system": id(self.system),
                 "solver": dataclasses.astuple(s.solver) if self.stale_follows_solver else None}
 
@@ -201,7 +203,9 @@ class SessionView(QWidget):
         self._computed_for = {"params": f["params"], "initial": f["initial"],
                               "system": id(self.system) if same_model else -1,
                               "solver": None if f.get("solver") is None else tuple(f["solver"])}
-        self._stale_skip = d.get("skip") if isinstance(d.get("skip"), str) else None
+        skip = d.get("skip")
+        self._stale_skip = skip if isinstance(skip, str) or (
+            isinstance(skip, list) and all(isinstance(n, str) for n in skip)) else None
         self.update_stale()
         return True
 

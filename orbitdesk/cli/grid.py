@@ -1,0 +1,110 @@
+"""``orbitdesk grid PATH --x NAME=LO:HI:N --y NAME=LO:HI:N (--lyapunov | --period)``: a two-parameter map of
+the largest Lyapunov exponent or of the period of the attractor, as JSON or CSV (one row per grid point)."""
+
+import numpy as np
+
+from orbitdesk.core.parameter_maps import period_grid
+from orbitdesk.core.progress import Cancelled
+from orbitdesk.core.sweep import STROBE, GridSettings, SweepSettings, lyapunov_grid
+from orbitdesk.core.system import MAP
+
+from .common import (CommandError, add_value_options, load_system, parse_number, parse_positive, print_json,
+                     read_source, stderr_progress, values_for, write_csv)
+
+MAX_POINTS = 1_000_000
+
+
+def register(sub):
+    parser = sub.add_parser("grid", help="two-parameter map of the largest Lyapunov exponent or of the period")
+    parser.add_argument("path")
+    parser.add_argument("--x", required=True, metavar="NAME=LO:HI:N", help="the parameter across, N values")
+    parser.add_argument("--y", required=True, metavar="NAME=LO:HI:N", help="the parameter up, N values")
+    what = parser.add_mutually_exclusive_group(required=True)
+    what.add_argument("--lyapunov", action="store_true", help="the largest Lyapunov exponent at each point")
+    what.add_argument("--period", action="store_true",
+                      help="the period of the attractor (maps: iterations; forced flows: forcing periods, "
+                           "with --strobe T)")
+    parser.add_argument("--strobe", metavar="T", help="forcing period of a flow (--period)")
+    parser.add_argument("--max-period", type=int, default=32, metavar="K", help="longest period looked for (32)")
+    parser.add_argument("--transient", metavar="T", help="time (flows) or iterations (maps) dropped first")
+    parser.add_argument("--duration", metavar="T", help="averaging time or iterations of the exponent")
+    parser.add_argument("--dt", metavar="H", help="integration step of flows")
+    add_value_options(parser)
+    parser.add_argument("--csv", metavar="FILE", help="write one row per grid point: x, y, value")
+    parser.add_argument("--json", action="store_true", help="print the grid as JSON (the default)")
+    parser.set_defaults(handler=run)
+
+
+def _axis(text: str, option: str, system):
+    name, sep, rest = (text or "").partition("=")
+    parts = rest.split(":")
+    if not sep or len(parts) != 3:
+        raise CommandError(f"{option} reads NAME=LO:HI:N, e.g. {option} r=2.5:4:200")
+    name = name.strip()
+    if name not in system.parameters:
+        raise CommandError(f"{option}: unknown parameter '{name}' (parameters: {', '.join(system.parameters)})")
+    lo, hi = parse_number(parts[0], option), parse_number(parts[1], option)
+    try:
+        count = int(parts[2])
+    except ValueError:
+        raise CommandError(f"{option}: the number of values must be a whole number, not {parts[2]!r}") from None
+    if count < 1 or lo == hi and count > 1:
+        raise CommandError(f"{option}: give at least one value and two different ends")
+    return name, np.linspace(lo, hi, count)
+
+
+def run(args) -> int:
+    source = read_source(args.path)
+    system = load_system(source)
+    p, u0 = values_for(system, source, args.set, args.init)
+    x_name, xs = _axis(args.x, "--x", system)
+    y_name, ys = _axis(args.y, "--y", system)
+    if x_name == y_name:
+        raise CommandError("--x and --y need two different parameters")
+    if xs.size * ys.size > MAX_POINTS:
+        raise CommandError(f"the grid has {xs.size * ys.size:,} points; the limit is {MAX_POINTS:,}")
+    transient = parse_number(args.transient, "--transient") if args.transient is not None else None
+    if transient is not None and transient < 0:
+        raise CommandError("--transient must be zero or positive")
+    progress = stderr_progress("grid")
+    try:
+        if args.lyapunov:
+            if args.strobe is not None or args.max_period != 32:
+                raise CommandError("--strobe and --max-period go with --period")
+            settings = GridSettings()
+            if transient is not None:
+                settings.transient = transient
+            if args.duration is not None:
+                settings.duration = parse_positive(args.duration, "--duration")
+            if args.dt is not None:
+                settings.dt = parse_positive(args.dt, "--dt")
+            grid = lyapunov_grid(system, x_name, xs, y_name, ys, settings, u0=u0, p=p, progress=progress)
+            values, label, data = grid.exponent, "largest Lyapunov exponent", grid.to_dict()
+        else:
+            if args.duration is not None:
+                raise CommandError("--duration goes with --lyapunov")
+            settings = SweepSettings(transient=1000.0 if system.kind == MAP else 200.0)
+            if system.kind != MAP:
+                if args.strobe is None:
+                    raise CommandError("the period of a flow's attractor is counted in forcing periods: "
+                                       "give --strobe T")
+                settings.mode, settings.period = STROBE, parse_positive(args.strobe, "--strobe")
+            elif args.strobe is not None:
+                raise CommandError("--strobe applies to flows; a map's period is counted in iterations")
+            if transient is not None:
+                settings.transient = transient
+            if args.dt is not None:
+                settings.dt = parse_positive(args.dt, "--dt")
+            grid = period_grid(system, x_name, xs, y_name, ys, settings, max_period=args.max_period, u0=u0, p=p,
+                               progress=progress)
+            values, label, data = grid.period, f"period ({grid.unit})", grid.to_dict()
+    except ValueError as err:
+        raise CommandError(str(err)) from None
+    except Cancelled:
+        raise CommandError("cancelled") from None
+    if args.csv:
+        gx, gy = np.meshgrid(xs, ys)
+        write_csv(args.csv, [x_name, y_name, label], [gx.ravel(), gy.ravel(), np.asarray(values, float).ravel()])
+    if args.json or not args.csv:
+        print_json(data)
+    return 0
