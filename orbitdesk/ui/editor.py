@@ -5,13 +5,13 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from PySide6.QtCore import QEvent, QPoint, QRect, QSize, Qt, Signal
+from PySide6.QtCore import QEvent, QPoint, QRect, QSize, Qt, QTimer, Signal
 from PySide6.QtGui import (QAction, QColor, QFontDatabase, QIcon, QKeySequence, QPainter, QPainterPath,
                            QPalette, QPen, QPixmap, QPolygonF, QTextCharFormat, QTextCursor)
-from PySide6.QtWidgets import (QListView, QListWidget, QListWidgetItem, QPlainTextEdit, QStyledItemDelegate,
+from PySide6.QtWidgets import (QListView, QListWidget, QListWidgetItem, QMenu, QPlainTextEdit, QStyledItemDelegate,
                                QTextEdit, QToolTip, QWidget)
 
-from orbitdesk.core.diagnostics import ERROR, INFO, WARNING, Diagnostic
+from orbitdesk.core.diagnostics import ERROR, INFO, WARNING, Diagnostic, apply_fix, quick_fix
 
 from .highlighter import ModelHighlighter, is_dark
 
@@ -497,7 +497,10 @@ def _diagnostic_html(d: Diagnostic) -> str:
 
 def diagnostic_label(d: Diagnostic) -> str:
     text = f"{d.line}:{d.column}  {d.message}"
-    if d.fix and d.fix not in d.message:
+    fix = quick_fix(d)
+    if fix is not None:
+        text += f"\n      quick fix: {fix.label} (double-click)"
+    elif d.fix and d.fix not in d.message:
         text += f"\n      fix: {d.fix}"
     return text
 
@@ -534,6 +537,10 @@ class DiagnosticsList(QListWidget):
         self.setIconSize(QSize(14, 14))
         self.itemClicked.connect(self._activate)
         self.itemActivated.connect(self._activate)
+        # after the click is handled: applying rebuilds the list under the item
+        self.itemDoubleClicked.connect(lambda item: QTimer.singleShot(0, lambda: self.apply_fix_of(self.row(item))))
+        self.setContextMenuPolicy(Qt.ContextMenuPolicy.CustomContextMenu)
+        self.customContextMenuRequested.connect(self._context_menu)
         session.modelParsed.connect(self.on_model_parsed)
         if editor is not None:
             self.set_editor(editor)
@@ -575,7 +582,39 @@ class DiagnosticsList(QListWidget):
             item.setToolTip(_diagnostic_html(d) + f"<br><small>line {d.line}, column {d.column}</small>")
             self.addItem(item)
 
+    def fix_of(self, row: int):
+        return quick_fix(self._diagnostics[row]) if 0 <= row < len(self._diagnostics) else None
+
+    def apply_fix_of(self, row: int) -> bool:
+        """Apply the quick fix of the problem in ``row`` to the model text (one undoable edit); False if it
+        has none."""
+        fix = self.fix_of(row)
+        if fix is None:
+            return False
+        text = self.editor.toPlainText() if self.editor is not None else self.session.text
+        parsed = getattr(self.session, "parsed", None)
+        if parsed is None or parsed.text != text:
+            return False  # the list is of an older text: its fixes may no longer fit
+        new = apply_fix(text, fix)
+        if new == text:
+            return False
+        self.session.set_text(new)
+        self.session.validate_now()
+        return True
+
+    def _context_menu(self, pos) -> None:
+        item = self.itemAt(pos)
+        row = self.row(item) if item is not None else -1
+        fix = self.fix_of(row)
+        if fix is None:
+            return
+        menu = QMenu(self)
+        menu.addAction(f"Quick fix: {fix.label}", lambda: self.apply_fix_of(row))
+        menu.exec(self.viewport().mapToGlobal(pos))
+
     def _activate(self, item: QListWidgetItem) -> None:
+        if item is None:
+            return
         where = item.data(Qt.ItemDataRole.UserRole)
         if where:
             self.diagnosticActivated.emit(int(where[0]), int(where[1]))

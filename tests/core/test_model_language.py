@@ -543,3 +543,19 @@ def test_nothing_half_resolved_is_left_behind_by_a_failed_definition():
     assert [d.message for d in m.errors] == ["division by zero"]
     y = m.symbols["y"]
     assert m.equations == {"y": 2 * y} and m.derived == {"b": 2 * y}
+
+
+def test_quick_fixes_are_offered_only_where_they_are_certain():
+    from orbitdesk.core.diagnostics import apply_fix, quick_fix
+
+    text = "sigma = 1\nx' = -sgima*sin(x\ny' = frobnicate(y)\n"
+    fixes = [f for f in map(quick_fix, parse_model(text).diagnostics) if f is not None]
+    # one at a time: the line does not parse until its parenthesis closes, then the name is checked
+    assert [(f.line, f.text, f.label) for f in fixes] == [(2, ")", "close the parenthesis")]
+    fixed = apply_fix(text, fixes[0])
+    fixes = [f for f in map(quick_fix, parse_model(fixed).diagnostics) if f is not None]
+    assert [(f.line, f.text, f.label) for f in fixes] == [(2, "sigma", "write 'sigma'")]
+    fixed = apply_fix(fixed, fixes[0])
+    assert fixed.splitlines()[1] == "x' = -sigma*sin(x)"
+    # an unknown function with no close name gets no quick fix
+    assert [d for d in parse_model(fixed).errors if quick_fix(d) is not None] == []

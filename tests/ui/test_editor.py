@@ -231,3 +231,30 @@ def test_screenshot_editor_with_diagnostics(qtbot, session, artifacts):
     path = os.path.join(artifacts, "editor.png")
     assert splitter.grab().save(path)
     assert listing.count() == len(editor.diagnostics()) >= 2
+
+
+def test_quick_fixes_from_the_problem_list(qtbot, session):
+    editor, listing = make_editor(qtbot, session, with_list=True)
+    listing.resize(520, 200)
+    listing.show()
+    qtbot.waitExposed(listing)
+    # a misspelt parameter and a line that ends before its parenthesis closes
+    broken = LORENZ.replace("sigma*(y - x)", "sgima*(y - x)").replace("x*y - beta*z", "x*(y - beta*z  # heat")
+    session.load_project(Project(model=broken))
+    qtbot.waitUntil(lambda: len(errors(editor)) == 2, timeout=3000)
+    labels = [listing.item(i).text() for i in range(listing.count())]
+    assert any("quick fix: write 'sigma'" in t for t in labels)
+    assert any("quick fix: close the parenthesis" in t for t in labels)
+    for _ in range(2):
+        before = session.text
+        item = next(listing.item(i) for i in range(listing.count()) if "quick fix" in listing.item(i).text())
+        where = listing.visualItemRect(item).center()
+        qtbot.mouseClick(listing.viewport(), Qt.MouseButton.LeftButton, pos=where)  # a real double-click:
+        qtbot.mouseDClick(listing.viewport(), Qt.MouseButton.LeftButton, pos=where)  # press, release, press
+        qtbot.waitUntil(lambda: session.text != before and editor.toPlainText() == session.text
+                        and session.parsed.text == session.text, timeout=3000)
+    assert session.text == LORENZ.replace("x*y - beta*z", "x*(y - beta*z)  # heat")
+    qtbot.waitUntil(lambda: not errors(editor), timeout=3000)
+    assert session.parsed.ok
+    session.undo_stack.undo()  # the fixes are edits of the text that undo takes back
+    assert session.text == broken
