@@ -532,6 +532,7 @@ L = 1 in [0.1, 5]       # length of the rod (m)
 c = 0 in [0, 2]         # friction at the pivot (1/s)
 
 theta'' = -(g/L)*sin(theta) - c*theta'
+angle theta             # shown wrapped to (-pi, pi]: one turn of the rod is one strip of the phase plane
 theta(0) = 0.3
 theta'(0) = 0
 
@@ -559,8 +560,10 @@ energy = theta'^2/2 + (g/L)*(1 - cos(theta))    # per unit of mass times L^2; 0 
           "views": {"timeseries": {"series": ["theta", "energy"]}}}),
         ("Over the top",
          "Give the hanging pendulum a hard push, `theta'(0) = 6.5`. It goes right over the top and keeps "
-         "turning in circles: the angle grows without end, and the path in the phase plane is a wavy "
-         "line instead of a closed oval.",
+         "turning in circles: the angle grows without end in the time series. The model declares "
+         "`angle theta`, so the phase plane shows the angle wrapped to (-pi, pi]: each turn crosses the "
+         "strip once as a wavy line, leaving at `theta = pi` and coming back in at `-pi`, the same "
+         "upright position.",
          {"initial": {"theta": 0.0, "theta'": 6.5}, "open_views": ["phase_plane", "timeseries"]}),
         ("The separatrix",
          "Between swinging and turning lies a single borderline motion with energy exactly `2 g / L`: "
@@ -569,7 +572,8 @@ energy = theta'^2/2 + (g/L)*(1 - cos(theta))    # per unit of mass times L^2; 0 
          "joins the upside-down positions.\n\n"
          "The equilibria view shows why: hanging down is a **centre** (the linearisation alone "
          "cannot settle this; the kept energy does), and standing on end, `theta = pi`, is a "
-         "**saddle**. Try pushes of 6.2 and 6.3 to see the two sides.",
+         "**saddle**, listed once because `theta` is an angle (`-pi` is the same position). Try pushes "
+         "of 6.2 and 6.3 to see the two sides.",
          {"initial": {"theta": 0.0, "theta'": 6.2}, "open_views": ["phase_plane", "equilibria"]}),
         ("Friction",
          "Add friction, `c = 0.3`. Each swing is a little smaller than the one before, the energy "

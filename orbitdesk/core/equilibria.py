@@ -19,6 +19,7 @@ import sympy as sp
 from scipy.optimize import root
 from scipy.stats import qmc
 
+from .angles import wrap_equilibria
 from .progress import CancelToken, Cancelled, Reporter
 from .system import MAP, CompiledSystem, UndefinedValue
 
@@ -451,7 +452,7 @@ def find_equilibria(system: CompiledSystem, p=None, box: dict | None = None, sta
         eq = _equilibrium(system, p, x, method)
         if eq is not None:
             results.append(eq)
-    results = _thin_continuum(results, notes)
+    results = wrap_equilibria(system, _thin_continuum(results, notes))  # an angle's turns are one point
     if not results:
         notes.append("no equilibrium found in the search box")
     return Equilibria(results, notes, full_box)

@@ -45,6 +45,7 @@ _LHS_FORMS = [
     ("name", re.compile(rf"^({_FIDENT})$")),
 ]
 _RANGE = re.compile(r"\bin\s*\[(.*)\]\s*$")
+_ANGLE = re.compile(rf"^(\s*)angle\s+({_IDENT}'*(?:\s*,\s*{_IDENT}'*)*)\s*$")  # angle theta, phi
 
 
 def derivative_name(base: str, order: int) -> str:
@@ -79,6 +80,7 @@ class ParsedModel:
     equation_lines: dict[str, int] = field(default_factory=dict)
     equation_spans: dict[str, tuple[int, int, int]] = field(default_factory=dict)  # state -> line, col, end
     typed_order: dict[str, int] = field(default_factory=dict)  # base name -> order typed
+    angles: list[str] = field(default_factory=list)  # states declared angles: wrapped to (-pi, pi]
 
     @property
     def ok(self) -> bool:
@@ -116,6 +118,7 @@ class _Builder:
         self.model = ParsedModel(text=text)
         self.diags = self.model.diagnostics
         self.cyclic: set[str] = set()  # definitions found in a loop (each reported once)
+        self.angle_lines: list[tuple[int, int, int, str]] = []  # (line, column, end, name) of "angle NAME"
         self.suggestion_budget = SUGGESTION_BUDGET
 
     def add(self, line, col, end, severity, message, fix=None):
@@ -152,6 +155,14 @@ class _Builder:
                 continue
             code = raw.split("#", 1)[0]
             if not code.strip():
+                continue
+            angle = _ANGLE.match(code)
+            if angle:
+                col = len(angle.group(1)) + len("angle") + 1
+                for name in angle.group(2).split(","):
+                    start = code.index(name.strip(), col - 1) + 1
+                    self.angle_lines.append((number, start, start + len(name.strip()), name.strip()))
+                    col = start + len(name.strip())
                 continue
             if "=" not in code:
                 col = len(code) - len(code.lstrip()) + 1
@@ -240,7 +251,20 @@ class _Builder:
         define_functions(self, statements)
         self.resolve_expressions(statements)
         self.define_initial(statements)
+        self.define_angles()
         return self.model
+
+    def define_angles(self):
+        """``angle NAME``: the state NAME is an angle, shown and compared wrapped to (-pi, pi]."""
+        m = self.model
+        for line, col, end, name in self.angle_lines:
+            if name not in m.states:
+                close = self.suggest(name, lambda: m.states)
+                fix = f"did you mean '{close[0]}'?" if close else None
+                self.add(line, col, end, ERROR, f"'{name}' is not a state, so it cannot be an angle"
+                         + (f"; {fix}" if fix else ""), fix)
+            elif name not in m.angles:
+                m.angles.append(name)
 
     def classify(self, statements):
         flows = [s for s in statements if s.form in ("ode", "init")]

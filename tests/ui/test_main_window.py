@@ -406,3 +406,20 @@ def test_reopening_restores_zoom_cursor_and_computed_results(qtbot, window, tmp_
     wait_for_trajectory(qtbot, s, lambda: window.open_path(tmp_path / "edited.orbitdesk", ask=False))
     qtbot.waitUntil(lambda: sweep.result is not None, timeout=20000)
     assert not sweep.stale_bar.isHidden() and "earlier version of the model" in sweep.stale_bar.label.text()
+
+
+def test_an_angle_is_drawn_wrapped_in_the_phase_plane(qtbot, window, tmp_path):
+    # a pendulum pushed over the top (theta'(0) = 6.5 > 2 sqrt(g), the separatrix speed): theta grows
+    # without end, but drawn wrapped it stays in (-pi, pi], broken where it goes round
+    text = "g = 9.81\ntheta'' = -g*sin(theta)\nangle theta\ntheta(0) = 0\ntheta'(0) = 6.5\n"
+    _, traj = open_model(qtbot, window, tmp_path, text, "pendulum.txt", t_end=10.0, samples=4000)
+    assert traj.series("theta")[-1] > 10  # the run itself is not wrapped
+    pp = window.views["phase_plane"]
+    x, _y = pp.curve.getOriginalDataset()
+    finite = x[np.isfinite(x)]
+    assert finite.min() >= -np.pi - 1e-12 and finite.max() <= np.pi + 1e-12
+    assert np.isnan(x).sum() >= 3  # broken at every turn
+    window.session.set_time_cursor(7.3)
+    (px,), _ = pp.cursor_marker.getData()
+    expected = traj.series("theta")[np.searchsorted(traj.time, 7.3)]
+    assert px == pytest.approx(np.pi - np.mod(np.pi - expected, 2 * np.pi), abs=0.05)

@@ -9,6 +9,8 @@ from PySide6.QtCore import Qt, QTimer
 from PySide6.QtGui import QColor
 from PySide6.QtWidgets import QLabel, QToolButton
 
+from orbitdesk.core.angles import angle_states, break_at_wraps, wrap
+
 from . import empty_hint, muted_colour, series_colour, style_plot
 from ..data_overlay import DataOverlay
 from ..plot_style import ScreenCurve
@@ -341,12 +343,24 @@ class PhasePlaneView(SessionView):
     def _user_range_set(self) -> bool:
         return bool(self.saved_view_settings().get("range")) and not self._fitted
 
-    def _xy(self, traj, x_name=None, y_name=None):
+    def _xy(self, traj, x_name=None, y_name=None, wrapped=True):
+        """The run's values on the two axes; a state the model declares an angle wrapped to (-pi, pi]."""
         x_name, y_name = x_name or self.x_name, y_name or self.y_name
         try:
-            return traj.series(x_name), traj.series(y_name)
+            x, y = traj.series(x_name), traj.series(y_name)
         except KeyError:
             return None, None
+        if wrapped:
+            angles = angle_states(self.system) if self.system is not None else []
+            x, y = (wrap(x) if x_name in angles else x), (wrap(y) if y_name in angles else y)
+        return x, y
+
+    def _drawn_xy(self, traj):
+        """``_xy`` broken where a wrapped angle goes round (no line across the plane)."""
+        x, y = self._xy(traj)
+        if x is None or traj.kind == "map":
+            return x, y
+        return break_at_wraps(x, y)
 
     def _draw_trajectory(self) -> None:
         traj = self.trajectory
@@ -356,7 +370,7 @@ class PhasePlaneView(SessionView):
             self.start_marker.setData([], [])
             self.cursor_marker.setData([], [])
             return
-        x, y = self._xy(traj)
+        x, y = self._drawn_xy(traj)
         if x is None:
             return
         colour = series_colour(0, self)
@@ -374,10 +388,12 @@ class PhasePlaneView(SessionView):
         if traj is None or traj.time.size == 0 or not np.isfinite(t):
             self.cursor_marker.setData([], [])
             return
-        x, y = self._xy(traj)
+        x, y = self._xy(traj, wrapped=False)
         if x is None:
             return
         px, py = values_at_time(traj.time, t, traj.kind == "map", x, y)
+        angles = angle_states(self.system)
+        px, py = (wrap(px) if self.x_name in angles else px), (wrap(py) if self.y_name in angles else py)
         accent = series_colour(1, self)
         self.cursor_marker.setData([px], [py], brush=pg.mkBrush(self._base()), pen=pg.mkPen(accent, width=2.5))
 
@@ -428,7 +444,7 @@ class PhasePlaneView(SessionView):
             for run, style in ((fwd, Qt.PenStyle.SolidLine), (back, Qt.PenStyle.DashLine)):
                 if run is None or run.time.size == 0:
                     continue
-                x, y = self._xy(run)
+                x, y = self._drawn_xy(run)
                 if x is not None:
                     x, y = cut_at_escape(x, y, self.plot.getViewBox().viewRange(), run.status)
                     curves.append((x, y, style, run.kind))

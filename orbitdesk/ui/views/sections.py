@@ -14,6 +14,7 @@ import pyqtgraph as pg
 from PySide6.QtCore import Qt, Signal
 from PySide6.QtWidgets import QSpinBox, QSplitter, QStackedWidget, QVBoxLayout, QWidget
 
+from orbitdesk.core.angles import wrap_columns
 from orbitdesk.core.sections import SectionResult
 
 from . import muted_colour, series_colour, style_plot
@@ -371,7 +372,7 @@ class SectionsView(SessionView):
         if s.derived_names and result.times.size:
             derived = s.derived_values(result.times, result.points, self.session.param_vector())
             cols.update({k: np.asarray(v, dtype=float) for k, v in derived.items()})
-        self._columns = cols
+        self._columns = wrap_columns(s, cols)  # angles wrapped to (-pi, pi]
         n = result.times.size
         parts = [f"{n} point{'s' if n != 1 else ''}"]
         if result.message:
@@ -393,7 +394,7 @@ class SectionsView(SessionView):
                 cols[name] = np.asarray(traj.series(name), dtype=float)
             except KeyError:
                 pass
-        self._columns = cols
+        self._columns = wrap_columns(s, cols)
         self._draw(refit=True)
 
     def _draw(self, refit: bool = False) -> None:
