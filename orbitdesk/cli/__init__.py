@@ -12,8 +12,8 @@ import sys
 
 from .common import CommandError, EXIT_ERRORS, EXIT_UNREADABLE
 
-COMMAND_MODULES = ["open", "check", "run", "equilibria", "cycle", "section", "lyapunov", "sweep", "grid", "export",
-                   "fit", "continuation", "response"]
+COMMAND_MODULES = ["open", "check", "run", "equilibria", "cycle", "section", "lyapunov", "sweep", "grid", "basins",
+                   "export", "fit", "continuation", "response"]
 
 
 class _Parser(argparse.ArgumentParser):

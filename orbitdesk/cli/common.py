@@ -130,6 +130,25 @@ def parse_interval(args, system) -> tuple[float, float]:
     return parse_number(args.lo, "--from"), parse_number(args.hi, "--to")
 
 
+def parse_axis(text: str, option: str, names, what: str):
+    """``NAME=LO:HI:N`` -> (NAME, N evenly spaced values); NAME must be one of ``names`` (a ``what``)."""
+    name, sep, rest = (text or "").partition("=")
+    parts = rest.split(":")
+    if not sep or len(parts) != 3:
+        raise CommandError(f"{option} reads NAME=LO:HI:N, e.g. {option} {list(names)[0] if names else 'r'}=0:1:100")
+    name = name.strip()
+    if name not in names:
+        raise CommandError(f"{option}: unknown {what} '{name}' ({what}s: {', '.join(names) or 'none'})")
+    lo, hi = parse_number(parts[0], option), parse_number(parts[1], option)
+    try:
+        count = int(parts[2])
+    except ValueError:
+        raise CommandError(f"{option}: the number of values must be a whole number, not {parts[2]!r}") from None
+    if count < 1 or (lo == hi and count > 1):
+        raise CommandError(f"{option}: give at least one value and two different ends")
+    return name, np.linspace(lo, hi, count)
+
+
 def add_value_options(parser, initial=True):
     parser.add_argument("--set", action="append", metavar="NAME=VALUE", help="set a parameter (repeatable)")
     if initial:

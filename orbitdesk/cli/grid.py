@@ -8,8 +8,8 @@ from orbitdesk.core.progress import Cancelled
 from orbitdesk.core.sweep import STROBE, GridSettings, SweepSettings, lyapunov_grid
 from orbitdesk.core.system import MAP
 
-from .common import (CommandError, add_value_options, load_system, parse_number, parse_positive, print_json,
-                     read_source, stderr_progress, values_for, write_csv)
+from .common import (CommandError, add_value_options, load_system, parse_axis, parse_number, parse_positive,
+                     print_json, read_source, stderr_progress, values_for, write_csv)
 
 MAX_POINTS = 1_000_000
 
@@ -35,30 +35,12 @@ def register(sub):
     parser.set_defaults(handler=run)
 
 
-def _axis(text: str, option: str, system):
-    name, sep, rest = (text or "").partition("=")
-    parts = rest.split(":")
-    if not sep or len(parts) != 3:
-        raise CommandError(f"{option} reads NAME=LO:HI:N, e.g. {option} r=2.5:4:200")
-    name = name.strip()
-    if name not in system.parameters:
-        raise CommandError(f"{option}: unknown parameter '{name}' (parameters: {', '.join(system.parameters)})")
-    lo, hi = parse_number(parts[0], option), parse_number(parts[1], option)
-    try:
-        count = int(parts[2])
-    except ValueError:
-        raise CommandError(f"{option}: the number of values must be a whole number, not {parts[2]!r}") from None
-    if count < 1 or lo == hi and count > 1:
-        raise CommandError(f"{option}: give at least one value and two different ends")
-    return name, np.linspace(lo, hi, count)
-
-
 def run(args) -> int:
     source = read_source(args.path)
     system = load_system(source)
     p, u0 = values_for(system, source, args.set, args.init)
-    x_name, xs = _axis(args.x, "--x", system)
-    y_name, ys = _axis(args.y, "--y", system)
+    x_name, xs = parse_axis(args.x, "--x", system.parameters, "parameter")
+    y_name, ys = parse_axis(args.y, "--y", system.parameters, "parameter")
     if x_name == y_name:
         raise CommandError("--x and --y need two different parameters")
     if xs.size * ys.size > MAX_POINTS:

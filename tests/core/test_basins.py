@@ -1,0 +1,63 @@
+"""Basins of attraction against single runs of scipy's solve_ivp and closed-form equilibria."""
+
+import math
+
+import numpy as np
+import pytest
+from scipy.integrate import solve_ivp
+
+from orbitdesk.core.basins import ESCAPE, BasinSettings, basins
+from orbitdesk.core.progress import CancelToken, Cancelled
+from orbitdesk.core.system import compile_model
+
+# unforced two-well Duffing x'' = -delta x' + x - x^3: stable foci at x = +-1, a saddle at 0 (closed form)
+WELLS = "delta = 0.3\ngamma = 0\nomega = 1.2\nx'' = -delta*x' + x - x^3 + gamma*cos(omega*t)\nx(0) = 0\n"
+HENON = "a = 1.4\nb = 0.3\nx[n+1] = 1 - a*x^2 + y\ny[n+1] = b*x\nx[0] = 0\ny[0] = 0\n"
+
+
+def reference_well(x0, v0):
+    sol = solve_ivp(lambda t, u: [u[1], -0.3 * u[1] + u[0] - u[0] ** 3], (0, 150), [x0, v0], rtol=1e-10,
+                    atol=1e-12)
+    return 1 if sol.y[0, -1] > 0 else -1
+
+
+def test_two_wells_each_start_ends_where_a_single_run_ends():
+    system = compile_model(WELLS)
+    xs, ys = np.linspace(-2, 2, 8), np.linspace(-1.5, 1.5, 7)  # no start exactly on the saddle
+    result = basins(system, "x", xs, "x'", ys, BasinSettings(transient=150.0, samples=8, every=0.5, dt=0.01))
+    kinds = sorted((round(a["centre"]["x"], 3), a["kind"]) for a in result.attractors)
+    assert kinds == [(-1.0, "equilibrium"), (1.0, "equilibrium")]
+    assert not (result.labels == ESCAPE).any()
+    sign = {a["label"]: 1 if a["centre"]["x"] > 0 else -1 for a in result.attractors}
+    for j in range(0, 7, 2):
+        for i in range(0, 8, 2):
+            assert sign[result.labels[j, i]] == reference_well(xs[i], ys[j]), (xs[i], ys[j])
+    assert sum(a["share"] for a in result.attractors) == pytest.approx(1.0)
+
+
+def test_stroboscopic_basins_of_the_shaken_wells():
+    # small forcing: one period-1 response in each well (the linearised response, see test_sections.py)
+    system = compile_model(WELLS.replace("gamma = 0", "gamma = 0.05"))
+    T = 2 * math.pi / 1.2
+    result = basins(system, "x", [-1.2, 1.2], "x'", [0.0], BasinSettings(transient=60 * T, samples=6, period=T,
+                                                                        dt=T / 200))
+    assert result.stroboscopic
+    assert [a["kind"] for a in result.attractors] == ["period-1 response"] * 2
+    assert result.labels[0, 0] != result.labels[0, 1]
+
+
+def test_henon_attractor_and_escape_and_cancel():
+    # the Henon attractor (a = 1.4, b = 0.3) attracts the origin; (2, 2) runs off to infinity
+    system = compile_model(HENON)
+    result = basins(system, "x", [0.0, 2.0], "y", [0.0, 2.0], BasinSettings(transient=500, samples=64, every=1))
+    assert result.labels[0, 0] >= 0 and result.labels[1, 1] == ESCAPE
+    (attractor,) = result.attractors
+    assert attractor["kind"] == "no period (chaotic or quasi-periodic)"
+    data = result.to_dict()
+    assert data["escape"] == ESCAPE and data["labels"][1][1] == ESCAPE
+    token = CancelToken()
+    token.cancel()
+    with pytest.raises(Cancelled):
+        basins(system, "x", [0.0], "y", [0.0], BasinSettings(transient=10, samples=4), cancel=token)
+    with pytest.raises(ValueError, match="not a state"):
+        basins(system, "x", [0.0], "a", [0.0])
