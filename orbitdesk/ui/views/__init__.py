@@ -11,7 +11,8 @@ from __future__ import annotations
 import importlib
 
 VIEW_MODULES = ["timeseries", "phase_plane", "phase_space_3d", "equilibria", "cycles", "sections", "sweep",
-                "lyapunov", "parameter_map", "bifurcation", "fit"]
+                "lyapunov", "parameter_map", "basins", "bifurcation",
+                "fit"]
 DEFAULT_VISIBLE = ("timeseries", "phase_plane")
 
 # Our own series colours: muted, distinguishable on light and dark backgrounds (light, dark variants).
