@@ -9,26 +9,19 @@ import html
 
 import numpy as np
 import pyqtgraph as pg
-from PySide6.QtCore import QRectF, Signal
+from PySide6.QtCore import Signal
 from PySide6.QtGui import QColor
-from PySide6.QtWidgets import QLabel, QSpinBox
+from PySide6.QtWidgets import QLabel
 
 from . import SERIES_COLOURS, empty_hint, is_dark, style_plot
 from ..plot_style import JobStrip, NumberBox, number_text, plain_axes
-from .common import (SessionView, apply_numbers, check_box, combo_box, control_row, fill_combo,
-                     follow_forcing_period, push_button, quiet, select_text, set_quietly, status_label)
+from .common import (SessionView, apply_axis_settings, apply_numbers, check_box, combo_box, control_row, count_box,
+                     fill_combo, follow_forcing_period, grid_rect, push_button, quiet, select_text, set_quietly,
+                     status_label)
 
 ESCAPE_COLOUR = "#9a9a9a"
 MAX_SIDE = 300
 
-
-def _count_box(value: int) -> QSpinBox:
-    box = QSpinBox()
-    box.setRange(2, MAX_SIDE)
-    box.setValue(value)
-    box.setKeyboardTracking(False)
-    box.setToolTip("How many starts, evenly spaced")
-    return box
 
 
 class BasinsView(SessionView):
@@ -45,7 +38,7 @@ class BasinsView(SessionView):
         self.x_state, self.y_state = combo_box("The state across"), combo_box("The state up")
         self.x_lo, self.x_hi = NumberBox(-2.0, step=0.1), NumberBox(2.0, step=0.1)
         self.y_lo, self.y_hi = NumberBox(-2.0, step=0.1), NumberBox(2.0, step=0.1)
-        self.x_count, self.y_count = _count_box(80), _count_box(60)
+        self.x_count, self.y_count = count_box(80, MAX_SIDE), count_box(60, MAX_SIDE)
         self.transient = NumberBox(200.0, 0.0, 1e9, step=10.0)
         self.transient.setToolTip("Time (flows) or iterations (maps) before looking where a start has gone")
         self.strobe = check_box("Once per forcing period", "The stroboscopic basins of a forced flow: look at "
@@ -171,13 +164,8 @@ class BasinsView(SessionView):
 
     def _apply_wanted(self) -> None:
         wanted, self._wanted = getattr(self, "_wanted", None) or {}, None
-        for key, combo, lo, hi, count in (("x", self.x_state, self.x_lo, self.x_hi, self.x_count),
-                                          ("y", self.y_state, self.y_lo, self.y_hi, self.y_count)):
-            d = wanted.get(key)
-            if d:
-                with quiet(combo):
-                    select_text(combo, d.get("state"))
-                apply_numbers(d, ((lo, "from", float), (hi, "to", float), (count, "count", int)))
+        apply_axis_settings(wanted, (("x", self.x_state, self.x_lo, self.x_hi, self.x_count),
+                                     ("y", self.y_state, self.y_lo, self.y_hi, self.y_count)), "state")
 
     def _on_values(self) -> None:
         if self.system is not None and self.system.kind != "map":
@@ -215,10 +203,8 @@ class BasinsView(SessionView):
             c = self.colour_of(int(label))
             rgba[labels == label] = (c.red(), c.green(), c.blue(), 255 if label >= 0 else 150)
         xs, ys = result.xs, result.ys
-        dx = (xs[-1] - xs[0]) / max(1, xs.size - 1) if xs.size > 1 else 1.0
-        dy = (ys[-1] - ys[0]) / max(1, ys.size - 1) if ys.size > 1 else 1.0
         self.image.setImage(rgba, autoLevels=False)
-        self.image.setRect(QRectF(xs[0] - dx / 2, ys[0] - dy / 2, dx * xs.size, dy * ys.size))
+        self.image.setRect(grid_rect(xs, ys))
         self.plot.setLabel("bottom", result.x_name)
         self.plot.setLabel("left", result.y_name)
         points = [(a["centre"].get(result.x_name), a["centre"].get(result.y_name), a["label"])

@@ -312,6 +312,38 @@ def row_widget(*items, spacing: int = 4) -> QWidget:
     return widget
 
 
+def count_box(value: int, maximum: int, tip: str = "How many values, evenly spaced"):
+    """A spin box for the number of grid values along one axis (2 .. ``maximum``)."""
+    from PySide6.QtWidgets import QSpinBox
+
+    box = QSpinBox()
+    box.setRange(2, maximum)
+    box.setValue(value)
+    box.setKeyboardTracking(False)
+    box.setToolTip(tip)
+    return box
+
+
+def grid_rect(xs, ys):
+    """The rectangle an image of one cell per grid point covers: cells centred on the values."""
+    from PySide6.QtCore import QRectF
+
+    dx = (xs[-1] - xs[0]) / (xs.size - 1) if xs.size > 1 else 1.0
+    dy = (ys[-1] - ys[0]) / (ys.size - 1) if ys.size > 1 else 1.0
+    return QRectF(xs[0] - dx / 2, ys[0] - dy / 2, dx * xs.size, dy * ys.size)
+
+
+def apply_axis_settings(wanted: dict, axes, name_key: str) -> None:
+    """Settings {"x": {name_key: NAME, "from", "to", "count"}, "y": {...}} onto the controls of two grid axes:
+    ``axes`` holds (key, combo, from box, to box, count box)."""
+    for key, combo, lo, hi, count in axes:
+        d = wanted.get(key)
+        if d:
+            with quiet(combo):
+                select_text(combo, d.get(name_key))
+            apply_numbers(d, ((lo, "from", float), (hi, "to", float), (count, "count", int)))
+
+
 def auto_timer(parent, delay_ms: int, action, enabled) -> QTimer:
     """A single-shot timer (start it on every change) that runs ``action`` if ``enabled()`` still holds."""
     timer = QTimer(parent, singleShot=True, interval=delay_ms)

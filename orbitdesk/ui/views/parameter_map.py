@@ -11,22 +11,15 @@ from PySide6.QtWidgets import QLabel, QSpinBox, QStackedWidget
 
 from . import empty_hint, muted_colour, style_plot
 from ..plot_style import JobStrip, NumberBox, plain_axes, round_significant
-from .common import (SessionView, apply_numbers, clicked_point, combo_box, control_row, fill_combo,
-                     follow_forcing_period, push_button, quiet, row_widget, select_text, set_quietly, status_label)
+from .common import (SessionView, apply_axis_settings, apply_numbers, clicked_point, combo_box, control_row,
+                     count_box, fill_combo, follow_forcing_period, grid_rect, push_button, quiet, row_widget,
+                     select_text, set_quietly, status_label)
 
 LYAPUNOV, PERIOD = "lyapunov", "period"
 WHATS = (LYAPUNOV, PERIOD)
 WHAT_LABELS = {LYAPUNOV: "largest Lyapunov exponent", PERIOD: "period of the attractor"}
 MAX_SIDE = 400
 
-
-def _count_box(value: int) -> QSpinBox:
-    box = QSpinBox()
-    box.setRange(2, MAX_SIDE)
-    box.setValue(value)
-    box.setKeyboardTracking(False)
-    box.setToolTip("How many values, evenly spaced")
-    return box
 
 
 class ParameterMapView(SessionView):
@@ -45,7 +38,7 @@ class ParameterMapView(SessionView):
         self.y_param = combo_box("The parameter up")
         self.x_lo, self.x_hi = NumberBox(0.0, step=0.1), NumberBox(1.0, step=0.1)
         self.y_lo, self.y_hi = NumberBox(0.0, step=0.1), NumberBox(1.0, step=0.1)
-        self.x_count, self.y_count = _count_box(60), _count_box(40)
+        self.x_count, self.y_count = count_box(60, MAX_SIDE), count_box(40, MAX_SIDE)
         self.x_param.currentIndexChanged.connect(lambda _i: self._default_range(self.x_param, self.x_lo, self.x_hi))
         self.y_param.currentIndexChanged.connect(lambda _i: self._default_range(self.y_param, self.y_lo, self.y_hi))
         self.transient = NumberBox(200.0, 0.0, 1e9, step=10.0)
@@ -200,14 +193,8 @@ class ParameterMapView(SessionView):
 
     def _apply_wanted(self) -> None:
         wanted, self._wanted = getattr(self, "_wanted", None) or {}, None
-        for key, combo, lo, hi, count in (("x", self.x_param, self.x_lo, self.x_hi, self.x_count),
-                                          ("y", self.y_param, self.y_lo, self.y_hi, self.y_count)):
-            d = wanted.get(key)
-            if not d:
-                continue
-            with quiet(combo):
-                select_text(combo, d.get("parameter"))
-            apply_numbers(d, ((lo, "from", float), (hi, "to", float), (count, "count", int)))
+        apply_axis_settings(wanted, (("x", self.x_param, self.x_lo, self.x_hi, self.x_count),
+                                     ("y", self.y_param, self.y_lo, self.y_hi, self.y_count)), "parameter")
 
     def _on_values(self) -> None:
         if self.system is not None and self.system.kind != "map":
@@ -253,8 +240,6 @@ class ParameterMapView(SessionView):
             return
         self.empty.setVisible(False)
         xs, ys = result.xs, result.ys
-        dx = (xs[-1] - xs[0]) / max(1, xs.size - 1) if xs.size > 1 else 1.0
-        dy = (ys[-1] - ys[0]) / max(1, ys.size - 1) if ys.size > 1 else 1.0
         if hasattr(result, "exponent"):
             data = np.asarray(result.exponent, dtype=float)
             span = float(np.nanmax(np.abs(data))) if np.isfinite(data).any() else 1.0
@@ -283,7 +268,7 @@ class ParameterMapView(SessionView):
             self.info.setText(f"In {result.unit}. {common or 'no period found'}; 0: none up to "
                               f"{result.max_period}; blank: blew up")
         self.image.setImage(data, autoLevels=False)
-        self.image.setRect(pg.QtCore.QRectF(xs[0] - dx / 2, ys[0] - dy / 2, dx * xs.size, dy * ys.size))
+        self.image.setRect(grid_rect(xs, ys))
         self.plot.setLabel("bottom", result.x_name)
         self.plot.setLabel("left", result.y_name)
         self.colour_bar.getAxis("right").setLabel(self._value_name())
