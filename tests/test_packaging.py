@@ -67,13 +67,7 @@ def png_size(path: Path) -> tuple[int, int]:
 
 
 def project_suffix() -> str:
-    try:
-        from orbitdesk.core.project import PROJECT_SUFFIX
-    except ImportError:
-        # orbitdesk.core.project does not export PROJECT_SUFFIX (yet): the
-        # project file suffix is documented as ".orbitdesk", compare to that.
-        return ".orbitdesk"
-    return PROJECT_SUFFIX
+    return ".orbitdesk"  # the project file suffix the README documents
 
 
 def spec_string_constants() -> dict[str, str]:
@@ -141,10 +135,8 @@ def test_mime_glob_matches_project_suffix():
 def test_mime_magic_names_the_project_format():
     matches = mime_type_element().findall(f"{MIME_NS}magic/{MIME_NS}match")
     values = {m.get("value") for m in matches}
-    try:
-        from orbitdesk.core.project import FORMAT_NAME
-    except ImportError:
-        FORMAT_NAME = "orbitdesk-project"
+    from orbitdesk.core.project import FORMAT_NAME
+
     assert FORMAT_NAME in values
 
 

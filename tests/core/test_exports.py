@@ -164,7 +164,8 @@ def test_report_is_self_contained_and_escaped():
 
 def test_report_equilibria_table():
     """Van der Pol at mu = 1: the origin with eigenvalues mu/2 +- i sqrt(1 - mu^2/4) = 0.5 +- 0.866i."""
-    find_equilibria = pytest.importorskip("orbitdesk.core.equilibria").find_equilibria
+    from orbitdesk.core.equilibria import find_equilibria
+
     project = report_project()
     system = compile_model(project.model)
     text = render_report(project, system, {}, equilibria=find_equilibria(system, p=[1.0], exact_timeout=2.0))

@@ -9,8 +9,6 @@ import pytest
 
 from .conftest import load_model, wait_for_trajectory
 
-pytest.importorskip("orbitdesk.core.lyapunov")
-
 LORENZ = """sigma = 10
 r = 28
 beta = 8/3
