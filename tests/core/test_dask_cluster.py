@@ -29,6 +29,9 @@ LOGISTIC = "r = 3.5\nx[n+1] = r*x*(1 - x)\nx[0] = 0.3\n"
 ROOT = Path(__file__).resolve().parents[2]
 
 
+pytestmark = pytest.mark.slow  # starts a local Dask cluster
+
+
 @pytest.fixture(scope="module")
 def cluster():
     cluster = distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",

@@ -22,6 +22,7 @@ import signal
 import threading
 
 import numpy as np
+import pytest
 import sympy as sp
 from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
@@ -208,6 +209,7 @@ def models(draw):
     return "\n".join(lines[i] for i in order)
 
 
+@pytest.mark.slow
 @budget(600)
 @given(models())
 def test_generated_models_parse_and_compile(text):

@@ -87,6 +87,7 @@ def start(script: str, env, *args):
                             stderr=subprocess.PIPE, text=True)
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("from_file", [False, True])
 def test_unsaved_edits_survive_a_kill(tmp_path, from_file):
     home = tmp_path / "home"

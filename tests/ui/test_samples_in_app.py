@@ -92,6 +92,7 @@ def test_every_sample_is_listed():
             "insect_generations.orbitdesk"} <= names
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("path", SAMPLES, ids=[p.stem for p in SAMPLES])
 def test_sample_walkthrough_replays_in_the_app(qtbot, window, path):
     raw = json.loads(Path(path).read_text(encoding="utf-8"))  # the file itself is the reference

@@ -4,6 +4,7 @@ Only results for the final value may be shown, nothing may raise, and no worker 
 """
 
 import numpy as np
+import pytest
 from PySide6.QtCore import QThreadPool
 
 from orbitdesk.core.engine import simulate
@@ -27,6 +28,7 @@ z(0) = 1
 """
 
 
+@pytest.mark.slow
 def test_thousand_moves_show_only_the_final_value(qtbot, window, monkeypatch):
     s = window.session
     wait_for_trajectory(qtbot, s, lambda: s.load_project(
