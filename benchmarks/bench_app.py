@@ -60,8 +60,8 @@ LORENZ = "sigma = 10\nr = 28\nbeta = 8/3\nx' = sigma*(y - x)\ny' = x*(r - z) - y
 
 MEMORY = r"""
 import resource, sys, tracemalloc
-from orbitdesk.core.engine import RunSettings, simulate
-from orbitdesk.core.system import compile_model
+from orbitdesk.engine.runs import RunSettings, simulate
+from orbitdesk.system.compiled_system import compile_model
 system = compile_model(sys.argv[1])
 if sys.argv[2] == "trace":
     tracemalloc.start()
@@ -75,11 +75,11 @@ DRAWN = r"""
 import resource, sys, time, tracemalloc
 from PySide6.QtCore import QEventLoop, QStandardPaths, QTimer
 QStandardPaths.setTestModeEnabled(True)
-from orbitdesk.ui.app import make_application
+from orbitdesk.app.launch import make_application
 app = make_application(["orbitdesk-benchmark"])
-from orbitdesk.core.integrators import RunSettings
-from orbitdesk.core.project import Project
-from orbitdesk.ui.main_window import MainWindow
+from orbitdesk.engine import RunSettings
+from orbitdesk.document.project import Project
+from orbitdesk.app.main_window import MainWindow
 
 def wait(done, seconds):
     loop, poll = QEventLoop(), QTimer()

@@ -21,9 +21,9 @@ import time
 import numpy as np
 
 from benchmarks.harness import Row
-from orbitdesk.core.continuation import HOPF, StepSettings, steady_branches
-from orbitdesk.core.continuation.response import response_curve, stepped_sweep
-from orbitdesk.core.system import compile_model
+from orbitdesk.analyses.continuation import HOPF, StepSettings, steady_branches
+from orbitdesk.analyses.continuation.response import response_curve, stepped_sweep
+from orbitdesk.system.compiled_system import compile_model
 
 LORENZ = "sigma = 10\nr = 28\nbeta = 8/3\nx' = sigma*(y - x)\ny' = r*x - y - x*z\nz' = x*y - beta*z\n"
 BEAM = "delta = 0.1\ngamma = 0.05\nomega = 1.2\nx'' = -delta*x' + x - x^3 + gamma*cos(omega*t)\nx(0) = 1\n"

@@ -20,9 +20,9 @@ import time
 import numpy as np
 
 from benchmarks.harness import Row
-from orbitdesk.core.integrators import compiled
-from orbitdesk.core.ensemble import rk4_ensemble
-from orbitdesk.core.system import compile_model
+from orbitdesk.engine import compiled
+from orbitdesk.engine.ensembles import rk4_ensemble
+from orbitdesk.system.compiled_system import compile_model
 
 LORENZ = "sigma = 10\nr = 28\nbeta = 8/3\nx' = sigma*(y - x)\ny' = x*(r - z) - y\nz' = x*y - beta*z\nx(0) = 1\n"
 CHECK_STEPS, DT = 200, 0.01

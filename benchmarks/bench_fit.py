@@ -8,9 +8,9 @@ from scipy.integrate import solve_ivp
 from scipy.optimize import least_squares
 
 from benchmarks.harness import Row, interleaved
-from orbitdesk.core.datasets import DataColumn, DataSet
-from orbitdesk.core.fitting import FitSettings, fit
-from orbitdesk.core.system import compile_model
+from orbitdesk.document.datasets import DataColumn, DataSet
+from orbitdesk.analyses.fitting import FitSettings, fit
+from orbitdesk.system.compiled_system import compile_model
 
 MODEL = """c = 0.5 in [0, 5]
 k = 3 in [0.1, 20]

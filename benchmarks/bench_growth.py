@@ -19,13 +19,13 @@ import time
 import numpy as np
 
 from benchmarks.harness import Row
-from orbitdesk.core.cycles import CycleError, find_cycle
-from orbitdesk.core.engine import RunSettings, simulate
-from orbitdesk.core.equilibria import find_equilibria
-from orbitdesk.core.integrators import compiled
-from orbitdesk.core.lyapunov import lyapunov_spectrum
-from orbitdesk.core.model import parse_model
-from orbitdesk.core.system import compile_model
+from orbitdesk.analyses.cycles import CycleError, find_cycle
+from orbitdesk.engine.runs import RunSettings, simulate
+from orbitdesk.analyses.equilibria import find_equilibria
+from orbitdesk.engine import compiled
+from orbitdesk.analyses.lyapunov import lyapunov_spectrum
+from orbitdesk.language.model import parse_model
+from orbitdesk.system.compiled_system import compile_model
 
 CHAIN_SIZES = (5, 10, 25, 50, 100)  # masses: 10 .. 200 states
 L96_SIZES = (5, 10, 20, 40, 80)

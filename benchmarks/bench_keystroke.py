@@ -57,10 +57,10 @@ def run() -> list[Row]:
     from PySide6.QtTest import QTest
     from PySide6.QtWidgets import QPlainTextEdit
 
-    from orbitdesk.core.model import parse_model
-    from orbitdesk.core.project import Project
-    from orbitdesk.ui import session as session_mod
-    from orbitdesk.ui.editor import DiagnosticsList, EquationEditor
+    from orbitdesk.language.model import parse_model
+    from orbitdesk.document.project import Project
+    from orbitdesk.app import session as session_mod
+    from orbitdesk.app.panels.editor import DiagnosticsList, EquationEditor
 
     text = twenty_line_model()
     session = session_mod.Session()

@@ -18,10 +18,10 @@ import numpy as np
 from scipy.integrate import solve_ivp
 
 from benchmarks.harness import Row
-from orbitdesk.core.engine import RunSettings, simulate
-from orbitdesk.core.integrators import compiled
-from orbitdesk.core.lyapunov import lyapunov_spectrum
-from orbitdesk.core.system import compile_model
+from orbitdesk.engine.runs import RunSettings, simulate
+from orbitdesk.engine import compiled
+from orbitdesk.analyses.lyapunov import lyapunov_spectrum
+from orbitdesk.system.compiled_system import compile_model
 
 LORENZ = ("x' = sigma*(y - x)\ny' = x*(r - z) - y\nz' = x*y - beta*z\n"
           "sigma = 10\nr = 28\nbeta = 8/3\nx(0) = 1\ny(0) = 1\nz(0) = 1\n")

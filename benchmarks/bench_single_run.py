@@ -13,9 +13,9 @@ from scipy.integrate import solve_ivp
 from scipy.integrate._ivp import dop853_coefficients as D
 
 from benchmarks.harness import Row, interleaved, interleaved_best
-from orbitdesk.core.engine import RunSettings, simulate
-from orbitdesk.core.integrators import compiled
-from orbitdesk.core.system import compile_model
+from orbitdesk.engine.runs import RunSettings, simulate
+from orbitdesk.engine import compiled
+from orbitdesk.system.compiled_system import compile_model
 
 LORENZ = "sigma = 10\nr = 28\nbeta = 8/3\nx' = sigma*(y - x)\ny' = x*(r - z) - y\nz' = x*y - beta*z\nx(0) = 1\n"
 A, B, C, E3, E5 = D.A[:12, :12].copy(), D.B.copy(), D.C[:12].copy(), D.E3.copy(), D.E5.copy()

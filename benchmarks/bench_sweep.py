@@ -18,8 +18,8 @@ import numpy as np
 from scipy.integrate import solve_ivp
 
 from benchmarks.harness import Row
-from orbitdesk.core.sweep import STROBE, SweepSettings, sweep
-from orbitdesk.core.system import compile_model
+from orbitdesk.analyses.sweep import STROBE, SweepSettings, sweep
+from orbitdesk.system.compiled_system import compile_model
 
 DUFFING = ("delta = 0.3\ngamma = 0.3\nomega = 1.2\n"
            "x'' = -delta*x' + x - x^3 + gamma*cos(omega*t)\nx(0) = 1\nx'(0) = 0\n")

@@ -39,11 +39,11 @@ CHILD_SETUP = r"""
 import json, sys, time, statistics
 from PySide6.QtCore import QEvent, QEventLoop, QObject, QStandardPaths, QTimer
 QStandardPaths.setTestModeEnabled(True)
-from orbitdesk.ui.app import make_application
+from orbitdesk.app.launch import make_application
 app = make_application(["orbitdesk-benchmark"])
-from orbitdesk.core.integrators import RunSettings
-from orbitdesk.core.project import Project
-from orbitdesk.ui.main_window import MainWindow
+from orbitdesk.engine import RunSettings
+from orbitdesk.document.project import Project
+from orbitdesk.app.main_window import MainWindow
 
 def wait(done, seconds):
     '''Run the event loop (sleeping when idle) until done() or the time is up.'''
@@ -63,7 +63,7 @@ session = window.session
 """
 
 SLIDER = CHILD_SETUP + r"""
-import orbitdesk.core.engine as engine
+import orbitdesk.engine.runs as engine
 
 VDP = "mu = 1.5 in [0.5, 3]\nx' = y\ny' = mu*(1 - x^2)*y - x\nx(0) = 2\ny(0) = 0\n"
 session.load_project(Project(name="slider", model=VDP, solver=RunSettings(t_end=100.0, samples=20000)))
@@ -139,8 +139,8 @@ import pyqtgraph.opengl as gl
 from OpenGL import GL
 from PySide6.QtWidgets import QApplication
 from PySide6.QtGui import QColor, QSurfaceFormat
-from orbitdesk.ui.plot_style import SCENE_BACKGROUND, time_colours
-from orbitdesk.ui.views.phase_space_3d import _gl_item_classes
+from orbitdesk.app.plots.plot_style import SCENE_BACKGROUND, time_colours
+from orbitdesk.app.views.phase_space_3d import _gl_item_classes
 
 LORENZ = "sigma = 10\nr = 28\nbeta = 8/3\nx' = sigma*(y - x)\ny' = x*(r - z) - y\nz' = x*y - beta*z\nx(0) = 1\n"
 session.load_project(Project(name="orbit", model=LORENZ, solver=RunSettings(t_end=1000.0, samples=1_000_000)))

@@ -6,7 +6,7 @@ import statistics
 import time
 
 from benchmarks.harness import Row
-from orbitdesk.core.model import parse_model
+from orbitdesk.language.model import parse_model
 
 
 def fifty_line_model() -> str:

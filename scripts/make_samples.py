@@ -11,10 +11,10 @@ import math
 import sys
 from pathlib import Path
 
-from orbitdesk.core.model import parse_model
-from orbitdesk.core.project import ParameterSetting, Project, SolverSettings, dumps
-from orbitdesk.core.view_settings import missing_names, unknown_keys
-from orbitdesk.core.walkthrough import apply_step, record_step
+from orbitdesk.language.model import parse_model
+from orbitdesk.document.project import ParameterSetting, Project, SolverSettings, dumps
+from orbitdesk.document.view_settings import missing_names, unknown_keys
+from orbitdesk.document.walkthrough import apply_step, record_step
 
 OUT = Path(__file__).resolve().parent.parent / "sample_projects"
 
@@ -51,11 +51,11 @@ def sample(file, name, model, solver, views, notes, steps):
 def bifurcation_view(model, param, lo, hi, follow="steady", measure=None, values=None, locus=None):
     """The bifurcation view's settings with its branches computed now (core.continuation), so the sample
     opens with the diagram drawn. ``locus``: (kind, second parameter, lo2, hi2) for the second tab."""
-    from orbitdesk.core.continuation import steady_branches
-    from orbitdesk.core.continuation.cycles import cycles_from_hopf_points
-    from orbitdesk.core.continuation.loci import locus as follow_locus
-    from orbitdesk.core.continuation.response import response_curve, stepped_sweep
-    from orbitdesk.core.system import compile_model
+    from orbitdesk.analyses.continuation import steady_branches
+    from orbitdesk.analyses.continuation.cycles import cycles_from_hopf_points
+    from orbitdesk.analyses.continuation.loci import locus as follow_locus
+    from orbitdesk.analyses.continuation.response import response_curve, stepped_sweep
+    from orbitdesk.system.compiled_system import compile_model
 
     system = compile_model(model)
     p = system.param_vector(values or {})
@@ -751,7 +751,7 @@ def bracket_records():
     import numpy as np
     from scipy.integrate import solve_ivp
 
-    from orbitdesk.core.datasets import read_data_file
+    from orbitdesk.document.datasets import read_data_file
 
     c, k, k3 = BRACKET_TRUTH["c"], BRACKET_TRUTH["k"], BRACKET_TRUTH["k3"]
     t = np.round(np.arange(0, 301) * 0.01, 2)
@@ -772,8 +772,8 @@ def bracket_records():
 
 
 def bracket_fits(sets):
-    from orbitdesk.core.fitting import FitSettings, fit
-    from orbitdesk.core.system import compile_model
+    from orbitdesk.analyses.fitting import FitSettings, fit
+    from orbitdesk.system.compiled_system import compile_model
 
     system = compile_model(BRACKET_MODEL)
     both = fit(system, sets, FitSettings(parameters=["c", "k", "k3"], initial=["x"]))

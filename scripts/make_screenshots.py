@@ -66,11 +66,11 @@ class Shooter:
         from PySide6.QtCore import QSettings, QStandardPaths
 
         QStandardPaths.setTestModeEnabled(True)  # no recent files or window settings of the user
-        from orbitdesk.ui.app import make_application
+        from orbitdesk.app.launch import make_application
 
         self.app = make_application(["orbitdesk"])
         QSettings().clear()
-        from orbitdesk.ui.main_window import MainWindow
+        from orbitdesk.app.main_window import MainWindow
 
         self.window = MainWindow()
         self.window.resize(*WINDOW)
@@ -102,7 +102,7 @@ class Shooter:
         print("  (still busy after the timeout; shooting anyway)")
 
     def open_sample(self, name: str) -> None:
-        from orbitdesk.ui import help as help_ui
+        from orbitdesk.app import help as help_ui
 
         w = self.window
         w.session.undo_stack.setClean()
@@ -183,7 +183,7 @@ def walkthrough_presenting(sh: Shooter) -> None:
 
 def language_reference(sh: Shooter) -> None:
     """Help > Model Language."""
-    from orbitdesk.ui import help as help_ui
+    from orbitdesk.app import help as help_ui
 
     ref = help_ui.show_language_reference(sh.window)
     ref.resize(900, 640)

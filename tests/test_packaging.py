@@ -135,7 +135,7 @@ def test_mime_glob_matches_project_suffix():
 def test_mime_magic_names_the_project_format():
     matches = mime_type_element().findall(f"{MIME_NS}magic/{MIME_NS}match")
     values = {m.get("value") for m in matches}
-    from orbitdesk.core.project import FORMAT_NAME
+    from orbitdesk.document.project import FORMAT_NAME
 
     assert FORMAT_NAME in values
 

@@ -1,7 +1,7 @@
 """The command line: ``orbitdesk [open PATH] | check | run | equilibria | ...``.
 
 Each command lives in its own module in this package and exposes ``register(subparsers)``;
-the module list below is the whole table. Commands are thin layers over ``orbitdesk.core``.
+the module list below is the whole table. Commands are thin layers over the headless packages (``orbitdesk.document``, ``orbitdesk.analyses``, ...).
 """
 
 from __future__ import annotations
@@ -10,7 +10,7 @@ import argparse
 import importlib
 import sys
 
-from .common import CommandError, EXIT_ERRORS, EXIT_UNREADABLE
+from orbitdesk.cli.common import CommandError, EXIT_ERRORS, EXIT_UNREADABLE
 
 COMMAND_MODULES = ["open", "check", "run", "equilibria", "cycle", "section", "lyapunov", "sweep", "grid", "basins",
                    "export", "fit", "continuation", "response"]
@@ -45,7 +45,7 @@ def main(argv=None) -> int:
         parser = build_parser(argv[0] if argv else None)  # a named command imports only its own module
         args = parser.parse_args(argv)
         if args.command is None:
-            from orbitdesk.ui.app import main as app_main
+            from orbitdesk.app.launch import main as app_main
 
             return app_main([], path=None)
         return int(args.handler(args) or 0)

@@ -4,11 +4,11 @@ stroboscopic basins of a forced flow."""
 
 import numpy as np
 
-from orbitdesk.core.basins import BasinSettings, basins
-from orbitdesk.core.progress import Cancelled
-from orbitdesk.core.system import MAP
+from orbitdesk.analyses.basins import BasinSettings, basins
+from orbitdesk.engine.progress import Cancelled
+from orbitdesk.system.compiled_system import MAP
 
-from .common import (CommandError, add_value_options, load_system, parse_axis, parse_number, parse_positive,
+from orbitdesk.cli.common import (CommandError, add_value_options, load_system, parse_axis, parse_number, parse_positive,
                      print_json, read_source, stderr_progress, values_for, write_csv)
 
 

@@ -1,8 +1,8 @@
 """``orbitdesk check PATH [--json]``: the model's diagnostics."""
 
-from orbitdesk.core.model import parse_model
+from orbitdesk.language.model import parse_model
 
-from .common import EXIT_ERRORS, EXIT_OK, print_json, read_source
+from orbitdesk.cli.common import EXIT_ERRORS, EXIT_OK, print_json, read_source
 
 
 def register(sub):

@@ -32,7 +32,7 @@ class Source:
 def read_source(path_text: str) -> Source:
     path = Path(path_text)
     if path.suffix == ".orbitdesk":
-        from orbitdesk.core import project as project_module
+        from orbitdesk.document import project as project_module
 
         try:
             project = project_module.load(path)
@@ -41,7 +41,7 @@ def read_source(path_text: str) -> Source:
         except OSError as err:
             raise CommandError(f"{path}: cannot read: {err.strerror or err}", EXIT_UNREADABLE) from None
         return Source(path, project.model, project)
-    from orbitdesk.core.model_file import read_model_file
+    from orbitdesk.language.model_file import read_model_file
 
     try:
         return Source(path, read_model_file(path))
@@ -51,8 +51,8 @@ def read_source(path_text: str) -> Source:
 
 def load_system(source: Source):
     """Compile the source's model; errors become a CommandError listing the diagnostics."""
-    from orbitdesk.core.model import parse_model
-    from orbitdesk.core.system import compile_model
+    from orbitdesk.language.model import parse_model
+    from orbitdesk.system.compiled_system import compile_model
 
     parsed = parse_model(source.text)
     if not parsed.ok:
@@ -178,7 +178,7 @@ def print_json(data) -> None:
 
 
 def write_csv(path: str, header: list[str], columns) -> None:
-    from orbitdesk.core.export_csv import write_csv as write_table
+    from orbitdesk.exports.csv_table import write_csv as write_table
 
     try:
         write_table(path, header, np.column_stack(columns).tolist() if len(columns) else [])

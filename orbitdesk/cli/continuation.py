@@ -2,10 +2,10 @@
 their special points (fold, Hopf, branch point, cycle fold, period doubling, torus), or with
 ``--locus fold|hopf`` the curve of a fold or Hopf point in two parameters."""
 
-from orbitdesk.core.progress import Cancelled
-from orbitdesk.core.system import MAP
+from orbitdesk.engine.progress import Cancelled
+from orbitdesk.system.compiled_system import MAP
 
-from .common import (CommandError, add_interval_options, add_value_options, load_system, parse_guess,
+from orbitdesk.cli.common import (CommandError, add_interval_options, add_value_options, load_system, parse_guess,
                      parse_interval, parse_number, print_json, read_source, stderr_progress, values_for)
 
 STARTS = ("equilibrium", "cycle", "fixed point")
@@ -56,8 +56,8 @@ def run(args) -> int:
     if args.period is not None and (system.kind != MAP or args.period < 1):
         raise CommandError("--period K (K at least 1) is for maps")
     progress = stderr_progress("continue")
-    from orbitdesk.core.continuation import ContinuationError, StepSettings, steady_branches
-    from orbitdesk.core.continuation.branches import default_settings
+    from orbitdesk.analyses.continuation import ContinuationError, StepSettings, steady_branches
+    from orbitdesk.analyses.continuation.branches import default_settings
 
     settings: StepSettings = default_settings(lo, hi, args.max_points)
     try:
@@ -66,7 +66,7 @@ def run(args) -> int:
         if args.param2 or args.range2:
             raise CommandError("--param2 and --range2 go with --locus fold|hopf")
         if start == "cycle":
-            from orbitdesk.core.continuation.cycles import cycle_branches
+            from orbitdesk.analyses.continuation.cycles import cycle_branches
 
             result = cycle_branches(system, args.param, lo, hi, p, guess=guess or None, initial=u0,
                                     settings=settings, progress=progress)
@@ -75,7 +75,7 @@ def run(args) -> int:
                                      map_period=args.period or 1, settings=settings, switch=not args.no_switch,
                                      initial=u0, progress=progress)
             if args.cycles:
-                from orbitdesk.core.continuation.cycles import cycles_from_hopf_points
+                from orbitdesk.analyses.continuation.cycles import cycles_from_hopf_points
 
                 result = cycles_from_hopf_points(system, result, lo, hi, p, settings)
     except (ContinuationError, ValueError, KeyError) as err:
@@ -114,8 +114,8 @@ def print_branches(result) -> None:
 
 
 def _locus(system, p, u0, guess, lo, hi, args, progress) -> int:
-    from orbitdesk.core.continuation.loci import locus
-    from orbitdesk.core.continuation.results import LABELS
+    from orbitdesk.analyses.continuation.loci import locus
+    from orbitdesk.analyses.continuation.results import LABELS
 
     if not args.param2:
         raise CommandError("--locus needs the second parameter: --param2 NAME")

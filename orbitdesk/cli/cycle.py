@@ -1,11 +1,11 @@
 """``orbitdesk cycle PATH``: a periodic orbit of a flow (period, amplitude, Floquet multipliers) or a
 cycle of a map (``--period K``)."""
 
-from orbitdesk.core.cycles import CycleError, find_cycle, find_map_cycle
-from orbitdesk.core.progress import Cancelled
-from orbitdesk.core.system import MAP
+from orbitdesk.analyses.cycles import CycleError, find_cycle, find_map_cycle
+from orbitdesk.engine.progress import Cancelled
+from orbitdesk.system.compiled_system import MAP
 
-from .common import (CommandError, add_value_options, load_system, parse_guess, parse_number, parse_positive,
+from orbitdesk.cli.common import (CommandError, add_value_options, load_system, parse_guess, parse_number, parse_positive,
                      print_json,
                      read_source, stderr_progress, values_for, write_csv)
 

@@ -1,11 +1,11 @@
 """``orbitdesk equilibria PATH``: equilibria of a flow or fixed points of a map, classified."""
 
-from orbitdesk.core.equilibria import find_equilibria
-from orbitdesk.core.manifolds import is_planar_saddle, saddle_manifolds
-from orbitdesk.core.progress import Cancelled
-from orbitdesk.core.system import MAP
+from orbitdesk.analyses.equilibria import find_equilibria
+from orbitdesk.analyses.manifolds import is_planar_saddle, saddle_manifolds
+from orbitdesk.engine.progress import Cancelled
+from orbitdesk.system.compiled_system import MAP
 
-from .common import (CommandError, add_value_options, load_system, parse_number, print_json, read_source,
+from orbitdesk.cli.common import (CommandError, add_value_options, load_system, parse_number, print_json, read_source,
                      stderr_progress, values_for)
 
 MANIFOLD_POINTS = 400  # points per branch in the JSON output

@@ -8,10 +8,10 @@ import copy
 import os
 import sys
 
-from orbitdesk.core.project import ParameterSetting, Project
+from orbitdesk.document.project import ParameterSetting, Project
 
-from .common import CommandError, add_value_options, load_system, read_source, values_for
-from .run import settings_for
+from orbitdesk.cli.common import CommandError, add_value_options, load_system, read_source, values_for
+from orbitdesk.cli.run import settings_for
 
 
 def register(sub):
@@ -45,7 +45,7 @@ def _equilibria(system, p):
     if not system.autonomous_at(p):
         return None
     try:
-        from orbitdesk.core.equilibria import find_equilibria
+        from orbitdesk.analyses.equilibria import find_equilibria
     except ModuleNotFoundError:
         return None
     try:
@@ -56,10 +56,10 @@ def _equilibria(system, p):
 
 def _figures_and_results(project, equilibria):
     """The report's figures and computed results, drawn by the app's own plots on Qt's offscreen
-    platform (``orbitdesk.ui.figures``, imported only here, so that the other commands never load Qt);
+    platform (``orbitdesk.app.plots.figures``, imported only here, so that the other commands never load Qt);
     none when Qt cannot start."""
     try:
-        from orbitdesk.ui.figures import headless_report_parts
+        from orbitdesk.app.plots.figures import headless_report_parts
     except ImportError as err:
         print(f"orbitdesk export: no figures ({err})", file=sys.stderr)
         return {}, {}
@@ -70,7 +70,7 @@ def _write(text: str, output: str | None) -> None:
     if output is None:
         sys.stdout.write(text)
         return
-    from orbitdesk.core.safe_files import atomic_write
+    from orbitdesk.document.safe_files import atomic_write
 
     try:  # complete or not at all
         atomic_write(output, text.encode("utf-8"), 0o755 if output.endswith(".py") else None)
@@ -79,9 +79,9 @@ def _write(text: str, output: str | None) -> None:
 
 
 def _fit_script(source, system, p, u0, title) -> str:
-    from orbitdesk.core.export_fit import fit_script
-    from orbitdesk.core.fitting import FitError
-    from orbitdesk.core.report_fit import fit_settings_from_project, project_vectors
+    from orbitdesk.exports.fit_script import fit_script
+    from orbitdesk.analyses.fitting import FitError
+    from orbitdesk.exports.report_fit import fit_settings_from_project, project_vectors
 
     project = source.project
     if project is None or not project.datasets:
@@ -103,12 +103,12 @@ def run(args) -> int:
     p, u0 = values_for(system, source, args.set, args.init)
     title = source.project.name if source.project is not None else source.path.stem
     if args.latex:
-        from orbitdesk.core.export_latex import model_latex
+        from orbitdesk.exports.latex import model_latex
 
         text = model_latex(system, system.param_dict(p), dict(zip(system.states, map(float, u0))),
                            standalone=args.standalone, title=title)
     elif args.script:
-        from orbitdesk.core.export_script import run_script
+        from orbitdesk.exports.run_script import run_script
 
         settings = settings_for(source, args)
         if system.kind != "map" and settings.t_end == settings.t_start:
@@ -118,7 +118,7 @@ def run(args) -> int:
     elif args.fit_script:
         text = _fit_script(source, system, p, u0, title)
     else:
-        from orbitdesk.core.report import render_report
+        from orbitdesk.exports.report import render_report
 
         project = _project_for(source, system, p, u0)
         equilibria = _equilibria(system, p)

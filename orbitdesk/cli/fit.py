@@ -1,12 +1,12 @@
 """``orbitdesk fit PATH --data FILE --param NAME ...``: estimate parameters and initial values from data."""
 
-from orbitdesk.core.datasets import DataError, read_data_file
-from orbitdesk.core.fitting import FitError, FitSettings, fit
-from orbitdesk.core.progress import Cancelled
-from orbitdesk.core.sensitivity import SensitivityFailure
-from orbitdesk.core.system import MAP
+from orbitdesk.document.datasets import DataError, read_data_file
+from orbitdesk.analyses.fitting import FitError, FitSettings, fit
+from orbitdesk.engine.progress import Cancelled
+from orbitdesk.analyses.sensitivity import SensitivityFailure
+from orbitdesk.system.compiled_system import MAP
 
-from .common import (EXIT_UNREADABLE, CommandError, load_system, parse_assignments, parse_number, print_json,
+from orbitdesk.cli.common import (EXIT_UNREADABLE, CommandError, load_system, parse_assignments, parse_number, print_json,
                      read_source, stderr_progress, values_for)
 
 

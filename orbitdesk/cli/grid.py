@@ -3,12 +3,12 @@ the largest Lyapunov exponent or of the period of the attractor, as JSON or CSV 
 
 import numpy as np
 
-from orbitdesk.core.parameter_maps import period_grid
-from orbitdesk.core.progress import Cancelled
-from orbitdesk.core.sweep import STROBE, GridSettings, SweepSettings, lyapunov_grid
-from orbitdesk.core.system import MAP
+from orbitdesk.analyses.parameter_maps import period_grid
+from orbitdesk.engine.progress import Cancelled
+from orbitdesk.analyses.sweep import STROBE, GridSettings, SweepSettings, lyapunov_grid
+from orbitdesk.system.compiled_system import MAP
 
-from .common import (CommandError, add_value_options, load_system, parse_axis, parse_number, parse_positive,
+from orbitdesk.cli.common import (CommandError, add_value_options, load_system, parse_axis, parse_number, parse_positive,
                      print_json, read_source, stderr_progress, values_for, write_csv)
 
 MAX_POINTS = 1_000_000

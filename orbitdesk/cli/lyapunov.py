@@ -2,12 +2,12 @@
 
 import sys
 
-from orbitdesk.core.lyapunov import largest_lyapunov_two_trajectory, lyapunov_spectrum
-from orbitdesk.core.system import MAP
+from orbitdesk.analyses.lyapunov import largest_lyapunov_two_trajectory, lyapunov_spectrum
+from orbitdesk.system.compiled_system import MAP
 
-from .common import CommandError, add_value_options, load_system, parse_number, print_json, read_source, \
+from orbitdesk.cli.common import CommandError, add_value_options, load_system, parse_number, print_json, read_source, \
     stderr_progress, values_for
-from .run import settings_for
+from orbitdesk.cli.run import settings_for
 
 
 def register(sub):

@@ -2,7 +2,7 @@
 
 from pathlib import Path
 
-from .common import CommandError, EXIT_UNREADABLE
+from orbitdesk.cli.common import CommandError, EXIT_UNREADABLE
 
 
 def register(sub):
@@ -15,6 +15,6 @@ def run(args) -> int:
     path = Path(args.path)
     if not path.exists():
         raise CommandError(f"{path}: no such file", EXIT_UNREADABLE)
-    from orbitdesk.ui.app import main as app_main
+    from orbitdesk.app.launch import main as app_main
 
     return app_main([], path=str(path))

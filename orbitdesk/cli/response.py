@@ -2,9 +2,9 @@
 (the frequency-response curve, with its unstable part and jump points), or a stepped sweep up or down
 that starts each value from the previous value's final state."""
 
-from orbitdesk.core.progress import Cancelled
+from orbitdesk.engine.progress import Cancelled
 
-from .common import (CommandError, add_interval_options, add_value_options, load_system, parse_guess,
+from orbitdesk.cli.common import (CommandError, add_interval_options, add_value_options, load_system, parse_guess,
                      parse_interval, print_json, read_source, stderr_progress, values_for)
 
 
@@ -33,8 +33,8 @@ def run(args) -> int:
     lo, hi = parse_interval(args, system)
     if args.count < 2 or args.max_points < 2:
         raise CommandError("--count and --max-points must be at least 2")
-    from orbitdesk.core.continuation import ContinuationError
-    from orbitdesk.core.continuation.response import response_curve, response_settings, stepped_sweep
+    from orbitdesk.analyses.continuation import ContinuationError
+    from orbitdesk.analyses.continuation.response import response_curve, response_settings, stepped_sweep
 
     progress = stderr_progress("response")
     try:

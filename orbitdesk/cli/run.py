@@ -1,11 +1,11 @@
 """``orbitdesk run PATH ...``: one run of a flow or a map, as JSON or CSV."""
 
-from orbitdesk.core.engine import simulate
-from orbitdesk.core.integrators.methods import NAMES
-from orbitdesk.core.integrators.settings import RunSettings, SettingsError
-from orbitdesk.core.system import MAP
+from orbitdesk.engine.runs import simulate
+from orbitdesk.engine.methods import NAMES
+from orbitdesk.engine.settings import RunSettings, SettingsError
+from orbitdesk.system.compiled_system import MAP
 
-from .common import (CommandError, add_value_options, load_system, parse_number, parse_positive, print_json, read_source,
+from orbitdesk.cli.common import (CommandError, add_value_options, load_system, parse_number, parse_positive, print_json, read_source,
                      stderr_progress, values_for, write_csv)
 
 

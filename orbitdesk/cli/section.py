@@ -4,12 +4,12 @@ flow."""
 import math
 import sys
 
-from orbitdesk.core.sections import DIRECTIONS, plane_section, strobe_section
-from orbitdesk.core.system import MAP
+from orbitdesk.analyses.sections import DIRECTIONS, plane_section, strobe_section
+from orbitdesk.system.compiled_system import MAP
 
-from .common import (CommandError, add_value_options, load_system, parse_assignments, parse_number, print_json,
+from orbitdesk.cli.common import (CommandError, add_value_options, load_system, parse_assignments, parse_number, print_json,
                      read_source, stderr_progress, values_for, write_csv)
-from .run import settings_for
+from orbitdesk.cli.run import settings_for
 
 
 def register(sub):

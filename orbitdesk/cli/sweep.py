@@ -4,14 +4,14 @@ import argparse
 
 import numpy as np
 
-from orbitdesk.core.executors import SchedulerError, executor_for
-from orbitdesk.core.sweep import BOTH, DOWN, ITERATE, MAXIMA, PLANE, STROBE, UP, SweepSettings, sweep
-from orbitdesk.core.system import MAP
+from orbitdesk.engine.executors import SchedulerError, executor_for
+from orbitdesk.analyses.sweep import BOTH, DOWN, ITERATE, MAXIMA, PLANE, STROBE, UP, SweepSettings, sweep
+from orbitdesk.system.compiled_system import MAP
 
-from .common import (CommandError, add_value_options, load_system, parse_assignments, parse_number, parse_positive,
+from orbitdesk.cli.common import (CommandError, add_value_options, load_system, parse_assignments, parse_number, parse_positive,
                      print_json,
                      read_source, stderr_progress, values_for, write_csv)
-from .run import settings_for
+from orbitdesk.cli.run import settings_for
 
 _DIRECTIONS = {"up": UP, "down": DOWN, "both": BOTH}
 

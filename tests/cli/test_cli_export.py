@@ -8,9 +8,9 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from orbitdesk.core import project as project_module
-from orbitdesk.core.engine import simulate
-from orbitdesk.core.system import compile_model
+from orbitdesk.document import project as project_module
+from orbitdesk.engine.runs import simulate
+from orbitdesk.system.compiled_system import compile_model
 
 from .conftest import run_cli
 

@@ -9,8 +9,8 @@ import json
 import numpy as np
 from scipy.optimize import least_squares
 
-from orbitdesk.core.datasets import parse_data
-from orbitdesk.core.project import ParameterSetting, Project, save
+from orbitdesk.document.datasets import parse_data
+from orbitdesk.document.project import ParameterSetting, Project, save
 
 from .conftest import run_cli
 

@@ -5,10 +5,10 @@ import math
 import numpy as np
 import pytest
 
-from orbitdesk.core.angles import break_at_wraps, wrap
-from orbitdesk.core.equilibria import find_equilibria
-from orbitdesk.core.model import parse_model
-from orbitdesk.core.system import compile_model
+from orbitdesk.language.angles import break_at_wraps, wrap
+from orbitdesk.analyses.equilibria import find_equilibria
+from orbitdesk.language.model import parse_model
+from orbitdesk.system.compiled_system import compile_model
 
 PENDULUM = "g = 9.81\ntheta'' = -g*sin(theta)\nangle theta\ntheta(0) = 0.3\n"
 

@@ -22,7 +22,7 @@ from pathlib import Path
 
 import pytest
 
-from orbitdesk.core.project import ParameterSetting, Project, ProjectError, WalkthroughStep, dumps, load, save
+from orbitdesk.document.project import ParameterSetting, Project, ProjectError, WalkthroughStep, dumps, load, save
 
 KILLS = 200
 SEED = int(os.environ.get("ORBITDESK_KILL_SEED", "20261202"))
@@ -36,7 +36,8 @@ REPO = Path(__file__).resolve().parents[2]
 CHILD = r"""
 import json, os, sys
 sys.path.insert(0, sys.argv[1])
-from orbitdesk.core import project as pj, safe_files
+from orbitdesk.document import project as pj
+from orbitdesk.document import safe_files
 target, sources = sys.argv[2], sys.argv[3:5]
 docs = {key: pj.loads(open(path, encoding="utf-8").read()) for key, path in zip("AB", sources)}
 real_os = os

@@ -6,9 +6,9 @@ import numpy as np
 import pytest
 from scipy.integrate import solve_ivp
 
-from orbitdesk.core.basins import ESCAPE, BasinSettings, basins
-from orbitdesk.core.progress import CancelToken, Cancelled
-from orbitdesk.core.system import compile_model
+from orbitdesk.analyses.basins import ESCAPE, BasinSettings, basins
+from orbitdesk.engine.progress import CancelToken, Cancelled
+from orbitdesk.system.compiled_system import compile_model
 
 # unforced two-well Duffing x'' = -delta x' + x - x^3: stable foci at x = +-1, a saddle at 0 (closed form)
 WELLS = "delta = 0.3\ngamma = 0\nomega = 1.2\nx'' = -delta*x' + x - x^3 + gamma*cos(omega*t)\nx(0) = 0\n"

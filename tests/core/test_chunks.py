@@ -7,8 +7,8 @@ from concurrent.futures import ThreadPoolExecutor
 
 import pytest
 
-from orbitdesk.core.chunks import ChunkError, run_chunks, split
-from orbitdesk.core.progress import CancelToken, Cancelled
+from orbitdesk.engine.chunks import ChunkError, run_chunks, split
+from orbitdesk.engine.progress import CancelToken, Cancelled
 
 
 class Flaky:

@@ -5,9 +5,9 @@ import math
 import numpy as np
 import pytest
 
-from orbitdesk.core.continuation import CYCLE_FOLD, HOPF, steady_branches
-from orbitdesk.core.continuation.cycles import cycle_branches, hopf_points
-from orbitdesk.core.system import compile_model
+from orbitdesk.analyses.continuation import CYCLE_FOLD, HOPF, steady_branches
+from orbitdesk.analyses.continuation.cycles import cycle_branches, hopf_points
+from orbitdesk.system.compiled_system import compile_model
 
 # Strogatz, Nonlinear Dynamics and Chaos, section 8.2: r' = mu r + r^3 - r^5, theta' = 1, written in x, y
 SUBCRITICAL = ("mu = -0.1\nx' = mu*x - y + x*(x^2 + y^2) - x*(x^2 + y^2)^2\n"

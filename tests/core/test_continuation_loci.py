@@ -3,9 +3,9 @@
 import numpy as np
 import pytest
 
-from orbitdesk.core.continuation import BOGDANOV_TAKENS, CUSP, GENERALISED_HOPF
-from orbitdesk.core.continuation.loci import locus
-from orbitdesk.core.system import compile_model
+from orbitdesk.analyses.continuation import BOGDANOV_TAKENS, CUSP, GENERALISED_HOPF
+from orbitdesk.analyses.continuation.loci import locus
+from orbitdesk.system.compiled_system import compile_model
 
 # Kuznetsov 2004, section 8.4: the Bogdanov-Takens normal form (s = -1); folds on b1 = b2^2 / 4,
 # Hopf points on b1 = 0 with b2 < 0, both curves meeting at the Bogdanov-Takens point (0, 0)

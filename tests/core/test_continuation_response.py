@@ -4,9 +4,9 @@ import numpy as np
 import pytest
 from scipy.optimize import brentq, minimize_scalar
 
-from orbitdesk.core.continuation import FOLD
-from orbitdesk.core.continuation.response import response_curve, stepped_sweep
-from orbitdesk.core.system import compile_model
+from orbitdesk.analyses.continuation import FOLD
+from orbitdesk.analyses.continuation.response import response_curve, stepped_sweep
+from orbitdesk.system.compiled_system import compile_model
 
 LINEAR = "c = 0.1\nF = 0.5\nw = 0.5\nx'' = -c*x' - x + F*cos(w*t)\n"
 C, BETA, F = 0.05, 0.1, 0.1

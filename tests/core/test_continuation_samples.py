@@ -6,10 +6,10 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from orbitdesk.core import project as project_module
-from orbitdesk.core.continuation.results import Branch, locus_from_saved, response_from_saved
-from orbitdesk.core.engine import RunSettings, simulate
-from orbitdesk.core.system import compile_model
+from orbitdesk.document import project as project_module
+from orbitdesk.analyses.continuation.results import Branch, locus_from_saved, response_from_saved
+from orbitdesk.engine.runs import RunSettings, simulate
+from orbitdesk.system.compiled_system import compile_model
 
 SAMPLES = Path(__file__).resolve().parents[2] / "sample_projects"
 

@@ -5,11 +5,11 @@ import math
 import numpy as np
 import pytest
 
-from orbitdesk.core.continuation import BRANCH_POINT, FOLD, HOPF, PERIOD_DOUBLING, steady_branches
-from orbitdesk.core.continuation.functions import ModelFunctions
-from orbitdesk.core.continuation.hopf import first_lyapunov_coefficient
-from orbitdesk.core.progress import CancelToken, Cancelled
-from orbitdesk.core.system import compile_model
+from orbitdesk.analyses.continuation import BRANCH_POINT, FOLD, HOPF, PERIOD_DOUBLING, steady_branches
+from orbitdesk.analyses.continuation.functions import ModelFunctions
+from orbitdesk.analyses.continuation.hopf import first_lyapunov_coefficient
+from orbitdesk.engine.progress import CancelToken, Cancelled
+from orbitdesk.system.compiled_system import compile_model
 
 LORENZ = "sigma = 10\nr = 28\nbeta = 8/3\nx' = sigma*(y - x)\ny' = r*x - y - x*z\nz' = x*y - beta*z\nx(0) = 1\n"
 BRUSSELATOR = "a = 1.5\nb = 1\nx' = a - (b + 1)*x + x^2*y\ny' = b*x - x^2*y\n"

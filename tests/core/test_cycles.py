@@ -7,9 +7,9 @@ import pytest
 from scipy.integrate import simpson
 from scipy.special import ai_zeros
 
-from orbitdesk.core.cycles import CycleError, detect_forcing_period, find_cycle, find_map_cycle
-from orbitdesk.core.progress import CancelToken, Cancelled
-from orbitdesk.core.system import compile_model
+from orbitdesk.analyses.cycles import CycleError, detect_forcing_period, find_cycle, find_map_cycle
+from orbitdesk.engine.progress import CancelToken, Cancelled
+from orbitdesk.system.compiled_system import compile_model
 
 pytestmark = pytest.mark.fallback  # published values: run with the compiler and without
 

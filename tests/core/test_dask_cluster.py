@@ -18,11 +18,11 @@ import pytest
 
 distributed = pytest.importorskip("distributed", reason="Dask distributed is not installed (extra 'cluster')")
 
-from orbitdesk.core.chunks import ChunkError, run_chunks  # noqa: E402
-from orbitdesk.core.executors import ClusterExecutor, SchedulerError, cluster_executor  # noqa: E402
-from orbitdesk.core.progress import CancelToken, Cancelled  # noqa: E402
-from orbitdesk.core.sweep import GridSettings, SweepSettings, lyapunov_grid, sweep  # noqa: E402
-from orbitdesk.core.system import compile_model  # noqa: E402
+from orbitdesk.engine.chunks import ChunkError, run_chunks  # noqa: E402
+from orbitdesk.engine.executors import ClusterExecutor, SchedulerError, cluster_executor  # noqa: E402
+from orbitdesk.engine.progress import CancelToken, Cancelled  # noqa: E402
+from orbitdesk.analyses.sweep import GridSettings, SweepSettings, lyapunov_grid, sweep  # noqa: E402
+from orbitdesk.system.compiled_system import compile_model  # noqa: E402
 
 HENON = "a = 1.4\nb = 0.3\nx[n+1] = 1 - a*x^2 + y\ny[n+1] = b*x\nx[0] = 0.1\ny[0] = 0.1\n"
 LOGISTIC = "r = 3.5\nx[n+1] = r*x*(1 - x)\nx[0] = 0.3\n"

@@ -8,9 +8,9 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from orbitdesk.core import datasets as dsm
-from orbitdesk.core.datasets import DataError, parse_data, read_data_file
-from orbitdesk.core.project import Project, ProjectError, dumps, loads
+from orbitdesk.document import datasets as dsm
+from orbitdesk.document.datasets import DataError, parse_data, read_data_file
+from orbitdesk.document.project import Project, ProjectError, dumps, loads
 
 CORPUS = Path(__file__).parent.parent / "data" / "malformed_data"
 

@@ -2,7 +2,7 @@
 
 import numpy as np
 
-from orbitdesk.core.decimate import minmax_decimate
+from orbitdesk.analyses.decimate import minmax_decimate
 
 
 def _columns(x, n_bins, lo, hi):
@@ -45,7 +45,7 @@ def test_gaps_stay_and_small_series_pass_through():
 
 # ---------------------------------------------------------------- screen-resolution paths
 def test_a_time_series_path_keeps_each_pixel_columns_extremes_of_what_is_in_view():
-    from orbitdesk.core.decimate import screen_path
+    from orbitdesk.analyses.decimate import screen_path
 
     x = np.linspace(0.0, 100.0, 400_001)
     y = np.sin(x) * np.exp(-x / 50)
@@ -59,7 +59,7 @@ def test_a_time_series_path_keeps_each_pixel_columns_extremes_of_what_is_in_view
 
 
 def test_a_portrait_path_stays_within_half_a_pixel_and_breaks_at_gaps():
-    from orbitdesk.core.decimate import screen_path
+    from orbitdesk.analyses.decimate import screen_path
 
     t = np.linspace(0.0, 20 * np.pi, 1_000_000)
     x, y = np.cos(t), np.sin(t)
@@ -77,7 +77,7 @@ def test_a_portrait_path_stays_within_half_a_pixel_and_breaks_at_gaps():
 
 
 def test_a_portrait_path_leaves_out_segments_beyond_the_view():
-    from orbitdesk.core.decimate import screen_path
+    from orbitdesk.analyses.decimate import screen_path
 
     x = np.linspace(-100.0, 100.0, 20_001)
     y = np.zeros_like(x)

@@ -6,9 +6,9 @@ import numpy as np
 import pytest
 from scipy.special import ellipk
 
-from orbitdesk.core.engine import CANCELLED, DIVERGED, OK, STEP_FAILED, UNDEFINED, Event, RunSettings, simulate
-from orbitdesk.core.progress import CancelToken
-from orbitdesk.core.system import compile_model
+from orbitdesk.engine.runs import CANCELLED, DIVERGED, OK, STEP_FAILED, UNDEFINED, Event, RunSettings, simulate
+from orbitdesk.engine.progress import CancelToken
+from orbitdesk.system.compiled_system import compile_model
 
 pytestmark = pytest.mark.fallback  # published values: run with the compiler and without
 

@@ -3,11 +3,11 @@
 import numpy as np
 import pytest
 
-from orbitdesk.core.engine import RunSettings, simulate
-from orbitdesk.core.ensemble import (DIVERGED, OK, UNDEFINED, dopri5_ensemble, iterate_ensemble,
+from orbitdesk.engine.runs import RunSettings, simulate
+from orbitdesk.engine.ensembles import (DIVERGED, OK, UNDEFINED, dopri5_ensemble, iterate_ensemble,
                                      rk4_ensemble)
-from orbitdesk.core.progress import CancelToken, Cancelled
-from orbitdesk.core.system import compile_model
+from orbitdesk.engine.progress import CancelToken, Cancelled
+from orbitdesk.system.compiled_system import compile_model
 
 OSCILLATOR = "w = 1\nx'' = -w^2*x\nx(0) = 1\nx'(0) = 0\n"
 VAN_DER_POL = "mu = 1\nx'' = mu*(1 - x^2)*x' - x\nx(0) = 2\nx'(0) = 0\n"

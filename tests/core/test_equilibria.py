@@ -5,9 +5,9 @@ import math
 import numpy as np
 import pytest
 
-from orbitdesk.core.equilibria import classify, find_equilibria
-from orbitdesk.core.progress import CancelToken, Cancelled
-from orbitdesk.core.system import compile_model
+from orbitdesk.analyses.equilibria import classify, find_equilibria
+from orbitdesk.engine.progress import CancelToken, Cancelled
+from orbitdesk.system.compiled_system import compile_model
 
 LORENZ = "sigma = 10\nr = 28\nbeta = 8/3\nx' = sigma*(y - x)\ny' = x*(r - z) - y\nz' = x*y - beta*z\nx(0) = 1\n"
 BRUSSELATOR = "a = 1\nb = 2\nx' = a - (b+1)*x + x^2*y\ny' = b*x - x^2*y\n"

@@ -26,14 +26,14 @@ from pathlib import Path
 
 import pytest
 
-from orbitdesk.core.engine import RunSettings
-from orbitdesk.core.export_csv import text_cell, write_csv
-from orbitdesk.core.export_latex import model_latex, tex_escape
-from orbitdesk.core.export_script import comment_text, run_script
-from orbitdesk.core.model import parse_model
-from orbitdesk.core.project import Project, WalkthroughStep
-from orbitdesk.core.report import render_report
-from orbitdesk.core.system import compile_model
+from orbitdesk.engine.runs import RunSettings
+from orbitdesk.exports.csv_table import text_cell, write_csv
+from orbitdesk.exports.latex import model_latex, tex_escape
+from orbitdesk.exports.run_script import comment_text, run_script
+from orbitdesk.language.model import parse_model
+from orbitdesk.document.project import Project, WalkthroughStep
+from orbitdesk.exports.report import render_report
+from orbitdesk.system.compiled_system import compile_model
 
 ROOT = Path(__file__).resolve().parents[2]
 HOSTILE_DIR = ROOT / "tests" / "data" / "hostile"
@@ -272,7 +272,7 @@ def test_csv_text_cells_are_never_formulas(tmp_path, cell):
 
 
 def test_csv_export_that_fails_while_writing_leaves_no_partial_file(tmp_path, monkeypatch):
-    from orbitdesk.core import safe_files
+    from orbitdesk.document import safe_files
 
     path = tmp_path / "out.csv"
     real_fdopen = os.fdopen
@@ -324,7 +324,7 @@ def test_csv_export_that_fails_leaves_no_partial_file(tmp_path):
 def test_csv_into_an_unwritable_folder_is_an_error_without_a_file(tmp_path, monkeypatch):
     from orbitdesk.cli.common import CommandError
     from orbitdesk.cli.common import write_csv as cli_write_csv
-    from orbitdesk.core import safe_files
+    from orbitdesk.document import safe_files
 
     real_open = os.open
 

@@ -12,12 +12,12 @@ import zlib
 import numpy as np
 import pytest
 
-from orbitdesk.core.engine import RunSettings, simulate
-from orbitdesk.core.export_latex import latex_name, model_latex
-from orbitdesk.core.export_script import run_script
-from orbitdesk.core.project import ParameterSetting, Project, WalkthroughStep
-from orbitdesk.core.report import render_report
-from orbitdesk.core.system import compile_model
+from orbitdesk.engine.runs import RunSettings, simulate
+from orbitdesk.exports.latex import latex_name, model_latex
+from orbitdesk.exports.run_script import run_script
+from orbitdesk.document.project import ParameterSetting, Project, WalkthroughStep
+from orbitdesk.exports.report import render_report
+from orbitdesk.system.compiled_system import compile_model
 
 LORENZ = ("sigma = 10 in [0, 20]\nr = 28\nbeta = 8/3\nx' = sigma*(y - x)\ny' = x*(r - z) - y\n"
           "z' = x*y - beta*z\nx(0) = 1\n")
@@ -164,7 +164,7 @@ def test_report_is_self_contained_and_escaped():
 
 def test_report_equilibria_table():
     """Van der Pol at mu = 1: the origin with eigenvalues mu/2 +- i sqrt(1 - mu^2/4) = 0.5 +- 0.866i."""
-    from orbitdesk.core.equilibria import find_equilibria
+    from orbitdesk.analyses.equilibria import find_equilibria
 
     project = report_project()
     system = compile_model(project.model)

@@ -9,10 +9,10 @@ import numpy as np
 import pytest
 import sympy as sp
 
-from orbitdesk.core import symbolic
-from orbitdesk.core.derivatives import jacobian_almost_everywhere
-from orbitdesk.core.model import parse_model
-from orbitdesk.core.system import compile_model
+from orbitdesk.language import symbolic
+from orbitdesk.system.derivatives import jacobian_almost_everywhere
+from orbitdesk.language.model import parse_model
+from orbitdesk.system.compiled_system import compile_model
 
 
 @pytest.mark.parametrize("text, value", [
@@ -40,7 +40,7 @@ def test_a_failure_of_sympy_is_a_diagnostic_on_its_line(monkeypatch):
 
 
 def test_the_last_guard_turns_any_failure_into_one_error(monkeypatch):
-    from orbitdesk.core import model as model_module
+    from orbitdesk.language import model as model_module
 
     def broken(self):
         raise RecursionError("deep")

@@ -3,8 +3,8 @@
 import numpy as np
 import pytest
 
-from orbitdesk.core.field import direction_field
-from orbitdesk.core.system import compile_model
+from orbitdesk.analyses.field import direction_field
+from orbitdesk.system.compiled_system import compile_model
 
 
 def test_linear_centre_field_is_rotation():

@@ -9,12 +9,12 @@ from html.parser import HTMLParser
 
 import numpy as np
 
-from orbitdesk.core.datasets import DataColumn, DataSet
-from orbitdesk.core.export_fit import fit_script
-from orbitdesk.core.fitting import FitSettings, fit
-from orbitdesk.core.project import Project
-from orbitdesk.core.report import render_report
-from orbitdesk.core.system import compile_model
+from orbitdesk.document.datasets import DataColumn, DataSet
+from orbitdesk.exports.fit_script import fit_script
+from orbitdesk.analyses.fitting import FitSettings, fit
+from orbitdesk.document.project import Project
+from orbitdesk.exports.report import render_report
+from orbitdesk.system.compiled_system import compile_model
 
 MODEL = """k1 = 0.5 in [0, 5]
 k2 = 0.2 in [0, 5]

@@ -11,11 +11,11 @@ import pytest
 from scipy.integrate import solve_ivp
 from scipy.optimize import least_squares
 
-from orbitdesk.core.datasets import DataColumn, DataSet
-from orbitdesk.core.fitting import FitError, FitSettings, fit, predict
-from orbitdesk.core.progress import CancelToken, Cancelled
-from orbitdesk.core.sensitivity import Observer, Sensitivities
-from orbitdesk.core.system import compile_model
+from orbitdesk.document.datasets import DataColumn, DataSet
+from orbitdesk.analyses.fitting import FitError, FitSettings, fit, predict
+from orbitdesk.engine.progress import CancelToken, Cancelled
+from orbitdesk.analyses.sensitivity import Observer, Sensitivities
+from orbitdesk.system.compiled_system import compile_model
 
 TIGHT = dict(rtol=1e-11, atol=1e-13, tolerance=1e-12)
 REF = dict(method="trf", ftol=1e-14, xtol=1e-14, gtol=1e-14, jac="3-point")

@@ -17,12 +17,12 @@ import io
 from hypothesis import given
 from hypothesis import strategies as st
 
-from orbitdesk.core.export_csv import FORMULA_STARTS, text_cell
-from orbitdesk.core.export_latex import tex_escape
-from orbitdesk.core.export_script import run_script
-from orbitdesk.core.model import parse_model
-from orbitdesk.core.report import render_report
-from orbitdesk.core.system import compile_model
+from orbitdesk.exports.csv_table import FORMULA_STARTS, text_cell
+from orbitdesk.exports.latex import tex_escape
+from orbitdesk.exports.run_script import run_script
+from orbitdesk.language.model import parse_model
+from orbitdesk.exports.report import render_report
+from orbitdesk.system.compiled_system import compile_model
 from tests.core.test_export_safety import (COMMENT_PAYLOADS, ENCODING_TRICKS, LINE_ENDS, MODEL, PRINTABLE_ASCII,
                                            SETTINGS, _check_tex_text, _hostile_project, _structure, _tree)
 from tests.core.test_fuzz_parser import budget

@@ -27,10 +27,10 @@ import sympy as sp
 from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 
-from orbitdesk.core.diagnostics import SEVERITIES
-from orbitdesk.core.expression import FUNCTIONS
-from orbitdesk.core.model import MAX_STATEMENTS, parse_model
-from orbitdesk.core.system import UndefinedValue, compile_model
+from orbitdesk.language.diagnostics import SEVERITIES
+from orbitdesk.language.expression import FUNCTIONS
+from orbitdesk.language.model import MAX_STATEMENTS, parse_model
+from orbitdesk.system.compiled_system import UndefinedValue, compile_model
 
 _DEEP = int(os.environ.get("ORBITDESK_FUZZ_EXAMPLES", "0"))
 

@@ -22,10 +22,10 @@ from pathlib import Path
 
 import pytest
 
-from orbitdesk.core.diagnostics import ERROR, ParseError
-from orbitdesk.core.expression import MAX_DEPTH, MAX_LINE_LENGTH, _Parser, parse_expression, tokenize
-from orbitdesk.core.model import MAX_MODEL_CHARS, MAX_STATEMENTS, parse_model
-from orbitdesk.core.model_file import MAX_MODEL_FILE_BYTES, read_model_file
+from orbitdesk.language.diagnostics import ERROR, ParseError
+from orbitdesk.language.expression import MAX_DEPTH, MAX_LINE_LENGTH, _Parser, parse_expression, tokenize
+from orbitdesk.language.model import MAX_MODEL_CHARS, MAX_STATEMENTS, parse_model
+from orbitdesk.language.model_file import MAX_MODEL_FILE_BYTES, read_model_file
 
 ROOT = Path(__file__).resolve().parents[2]
 HOSTILE_DIR = ROOT / "tests" / "data" / "hostile"
@@ -134,7 +134,7 @@ def _bytes_of(case: str) -> bytes:
 
 
 def _run_case(case: str, workdir: str) -> dict:
-    from orbitdesk.core.system import UndefinedValue, compile_model
+    from orbitdesk.system.compiled_system import UndefinedValue, compile_model
 
     data = _bytes_of(case)
     path = Path(workdir) / "case.txt"

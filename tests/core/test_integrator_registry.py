@@ -1,10 +1,10 @@
-"""The method registry, the run settings and the status table of orbitdesk.core.integrators."""
+"""The method registry, the run settings and the status table of orbitdesk.engine."""
 
 import pytest
 import scipy.integrate
 
-from orbitdesk.core.integrators import METHODS, RunSettings, SettingsError, method
-from orbitdesk.core.integrators import status
+from orbitdesk.engine import METHODS, RunSettings, SettingsError, method
+from orbitdesk.engine import status
 
 pytestmark = pytest.mark.fallback  # published values: run with the compiler and without
 

@@ -13,11 +13,11 @@ import numpy as np
 import pytest
 import sympy as sp
 
-from orbitdesk.core import jit
-from orbitdesk.core.engine import UNDEFINED, RunSettings, simulate
-from orbitdesk.core.ensemble import rk4_ensemble
-from orbitdesk.core.sweep import GridSettings, grid_exponents
-from orbitdesk.core.system import compile_model
+from orbitdesk.engine import jit
+from orbitdesk.engine.runs import UNDEFINED, RunSettings, simulate
+from orbitdesk.engine.ensembles import rk4_ensemble
+from orbitdesk.analyses.sweep import GridSettings, grid_exponents
+from orbitdesk.system.compiled_system import compile_model
 
 MIXED = ("a = 2 in [0, 5]\nk = 3\n"
          "x' = -x^(1/3) + sqrt(k/a)*y + log10(x) + exp(-a)*x + atan2(y, x) + abs(x)^1.5 + x^y + 1/x\n"

@@ -10,10 +10,10 @@ import numpy as np
 import pytest
 import sympy as sp
 
-from orbitdesk.core.codegen import sparse_jacobian
-from orbitdesk.core.ensemble import dopri5_ensemble, rk4_ensemble
-from orbitdesk.core.integrators import compiled, drivers
-from orbitdesk.core.system import compile_model
+from orbitdesk.system.codegen import sparse_jacobian
+from orbitdesk.engine.ensembles import dopri5_ensemble, rk4_ensemble
+from orbitdesk.engine import compiled, drivers
+from orbitdesk.system.compiled_system import compile_model
 
 pytestmark = pytest.mark.fallback  # run with the compiler and without
 

@@ -9,9 +9,9 @@ import numpy as np
 import pytest
 import sympy as sp
 
-from orbitdesk.core.engine import RunSettings, simulate
-from orbitdesk.core.model import parse_model
-from orbitdesk.core.system import compile_model
+from orbitdesk.engine.runs import RunSettings, simulate
+from orbitdesk.language.model import parse_model
+from orbitdesk.system.compiled_system import compile_model
 
 
 def errors(text):

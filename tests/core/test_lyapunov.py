@@ -6,10 +6,10 @@ import numpy as np
 import pytest
 from scipy.linalg import expm
 
-from orbitdesk.core.lyapunov import (QR, TWO_TRAJECTORY, kaplan_yorke_dimension, largest_lyapunov_two_trajectory,
+from orbitdesk.analyses.lyapunov import (QR, TWO_TRAJECTORY, kaplan_yorke_dimension, largest_lyapunov_two_trajectory,
                                      lyapunov_spectrum)
-from orbitdesk.core.progress import CancelToken
-from orbitdesk.core.system import compile_model
+from orbitdesk.engine.progress import CancelToken
+from orbitdesk.system.compiled_system import compile_model
 
 pytestmark = pytest.mark.fallback  # published values: run with the compiler and without
 
@@ -133,7 +133,7 @@ def test_kaplan_yorke_closed_forms():
 # ---------------------------------------------------------------- the tangent kernel
 def test_tangent_kernel_gives_the_matrix_exponential():
     # Phi' = A Phi, Phi(0) = I has the closed form Phi(t) = expm(A t) (scipy.linalg.expm)
-    from orbitdesk.core.integrators import compiled, drivers
+    from orbitdesk.engine import compiled, drivers
 
     system = compile_model("x' = -x + 2*y\ny' = 3*x - 4*y\nx(0) = 1\ny(0) = 0\n")
     z0 = np.concatenate([system.initial, np.eye(2).ravel()])
@@ -144,7 +144,7 @@ def test_tangent_kernel_gives_the_matrix_exponential():
 
 
 def test_tangent_kernel_of_a_map_is_the_jacobian_henon():
-    from orbitdesk.core.integrators import compiled
+    from orbitdesk.engine import compiled
 
     system = compile_model(HENON)
     engine = compiled.engine_for(system)

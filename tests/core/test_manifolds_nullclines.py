@@ -3,10 +3,10 @@
 import numpy as np
 import pytest
 
-from orbitdesk.core.equilibria import find_equilibria
-from orbitdesk.core.manifolds import saddle_manifolds
-from orbitdesk.core.nullclines import contour_zero, nullclines
-from orbitdesk.core.system import compile_model
+from orbitdesk.analyses.equilibria import find_equilibria
+from orbitdesk.analyses.manifolds import saddle_manifolds
+from orbitdesk.analyses.nullclines import contour_zero, nullclines
+from orbitdesk.system.compiled_system import compile_model
 
 
 def saddle_of(system):

@@ -13,10 +13,10 @@ import numpy as np
 import pytest
 import sympy as sp
 
-from orbitdesk.core.diagnostics import ERROR, INFO, WARNING
-from orbitdesk.core.expression import MAX_DEPTH
-from orbitdesk.core.model import FLOW, MAP, parse_model
-from orbitdesk.core.system import compile_model
+from orbitdesk.language.diagnostics import ERROR, INFO, WARNING
+from orbitdesk.language.expression import MAX_DEPTH
+from orbitdesk.language.model import FLOW, MAP, parse_model
+from orbitdesk.system.compiled_system import compile_model
 
 LORENZ = """# Lorenz (1963)
 x' = sigma*(y - x)
@@ -546,7 +546,7 @@ def test_nothing_half_resolved_is_left_behind_by_a_failed_definition():
 
 
 def test_quick_fixes_are_offered_only_where_they_are_certain():
-    from orbitdesk.core.diagnostics import apply_fix, quick_fix
+    from orbitdesk.language.diagnostics import apply_fix, quick_fix
 
     text = "sigma = 1\nx' = -sgima*sin(x\ny' = frobnicate(y)\n"
     fixes = [f for f in map(quick_fix, parse_model(text).diagnostics) if f is not None]

@@ -16,11 +16,11 @@ import sys
 import numpy as np
 import pytest
 
-from orbitdesk.core import private_cache
-from orbitdesk.core.integrators import compiled
-from orbitdesk.core.ensemble import rk4_ensemble
-from orbitdesk.core.safe_files import atomic_write, temp_name
-from orbitdesk.core.system import compile_model
+from orbitdesk.system import private_cache
+from orbitdesk.engine import compiled
+from orbitdesk.engine.ensembles import rk4_ensemble
+from orbitdesk.document.safe_files import atomic_write, temp_name
+from orbitdesk.system.compiled_system import compile_model
 
 OSCILLATOR = "w = 1.5\nx'' = -w^2*x\nx(0) = 1\n"
 MARKER_CODE = "open({marker!r}, 'w').close()\n"

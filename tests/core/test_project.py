@@ -9,9 +9,9 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from orbitdesk.core import project as pj
-from orbitdesk.core.integrators import RunSettings
-from orbitdesk.core.project import (
+from orbitdesk.document import project as pj
+from orbitdesk.engine import RunSettings
+from orbitdesk.document.project import (
     FORMAT_NAME, FORMAT_VERSION, ParameterSetting, Project, ProjectError, WalkthroughStep,
     dumps, load, loads, project_from_dict, project_to_dict, save,
 )

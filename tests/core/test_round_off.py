@@ -2,8 +2,8 @@
 
 import numpy as np
 
-from orbitdesk.core.equilibria import classify, find_equilibria, zero_round_off
-from orbitdesk.core.system import compile_model
+from orbitdesk.analyses.equilibria import classify, find_equilibria, zero_round_off
+from orbitdesk.system.compiled_system import compile_model
 
 # At (pi/2, 0): x' = y cos x - x + pi/2 and y' = -y + sin x - 1 vanish, and in exact arithmetic the
 # Jacobian [[-y sin x - 1, cos x], [cos x, -1]] is -I (cos(pi/2) = 0): a double eigenvalue -1 with the

@@ -7,11 +7,11 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from orbitdesk.core import project as project_module
-from orbitdesk.core.engine import RunSettings, simulate
-from orbitdesk.core.model import parse_model
-from orbitdesk.core.system import compile_model
-from orbitdesk.core.walkthrough import apply_step
+from orbitdesk.document import project as project_module
+from orbitdesk.engine.runs import RunSettings, simulate
+from orbitdesk.language.model import parse_model
+from orbitdesk.system.compiled_system import compile_model
+from orbitdesk.document.walkthrough import apply_step
 
 SAMPLES = Path(__file__).resolve().parents[2] / "sample_projects"
 NAMES = ["shaken_beam", "convection_loop", "relaxation_circuit", "clock_reaction", "pond_predators",
@@ -23,7 +23,7 @@ def load(name):
 
 
 def module(name):
-    return importlib.import_module(f"orbitdesk.core.{name}")
+    return importlib.import_module(f"orbitdesk.analyses.{name}")
 
 
 def test_every_sample_is_listed_and_the_app_sample_exists():
@@ -230,8 +230,8 @@ def test_bracket_sample_data_match_their_files_and_fit_back_to_what_made_them():
     """The invented pluck records were made with c = 0.9, k = 158, k3 = 22 (scripts/make_samples.py): a joint
     fit of the stored data sets recovers those within three standard errors, and each stored data set is
     the file it names (same SHA-256)."""
-    from orbitdesk.core.datasets import read_data_file
-    from orbitdesk.core.fitting import FitSettings, fit
+    from orbitdesk.document.datasets import read_data_file
+    from orbitdesk.analyses.fitting import FitSettings, fit
 
     project = load("bracket_pluck")
     for d in project.datasets:

@@ -11,8 +11,8 @@ from pathlib import Path
 
 import pytest
 
-from orbitdesk.core import safe_files
-from orbitdesk.core.project import (
+from orbitdesk.document import safe_files
+from orbitdesk.document.project import (
     UNCHECKED, Project, ProjectConflict, ProjectError, ProjectReadOnly, check_unchanged, disk_state, load,
     load_with_state, remove_stale_temps, save,
 )

@@ -5,9 +5,9 @@ import math
 import numpy as np
 import pytest
 
-from orbitdesk.core.engine import Event, RunSettings, simulate
-from orbitdesk.core.sections import SectionResult, plane_section, return_map, strobe_section
-from orbitdesk.core.system import compile_model
+from orbitdesk.engine.runs import Event, RunSettings, simulate
+from orbitdesk.analyses.sections import SectionResult, plane_section, return_map, strobe_section
+from orbitdesk.system.compiled_system import compile_model
 
 pytestmark = pytest.mark.fallback  # published values: run with the compiler and without
 
@@ -237,7 +237,7 @@ def test_return_map_and_rows():
 
 
 def test_selection_of_touches_and_repeated_crossings():
-    from orbitdesk.core.sections import _select
+    from orbitdesk.analyses.sections import _select
 
     # an up/down pair 1e-6 apart at rate 1e-3 only dips 2.5e-10 beyond the plane: one touch
     times, rates = [1.0, 1.0 + 1e-6, 5.0, 5.0, 9.0], [1e-3, -1e-3, 2.0, 2.0, -2.0]

@@ -7,9 +7,9 @@ from t = 1/0.6 on, the exact solution stays at x = 1 while the right side switch
 
 import pytest
 
-from orbitdesk.core.engine import RunSettings, simulate
-from orbitdesk.core.integrators import drivers
-from orbitdesk.core.system import compile_model
+from orbitdesk.engine.runs import RunSettings, simulate
+from orbitdesk.engine import drivers
+from orbitdesk.system.compiled_system import compile_model
 
 
 @pytest.mark.parametrize("method", ["dop853", "rk45"])

@@ -6,11 +6,11 @@ from concurrent.futures import ThreadPoolExecutor
 import numpy as np
 import pytest
 
-from orbitdesk.core.engine import Event, RunSettings, simulate
-from orbitdesk.core.progress import CancelToken, Cancelled
-from orbitdesk.core.sweep import (BOTH, DOWN, MAXIMA, PLANE, STROBE, UP, GridSettings, SweepSettings,
+from orbitdesk.engine.runs import Event, RunSettings, simulate
+from orbitdesk.engine.progress import CancelToken, Cancelled
+from orbitdesk.analyses.sweep import (BOTH, DOWN, MAXIMA, PLANE, STROBE, UP, GridSettings, SweepSettings,
                                   grid_exponents, lyapunov_grid, sweep)
-from orbitdesk.core.system import compile_model
+from orbitdesk.system.compiled_system import compile_model
 
 LOGISTIC = "r = 3.5\nx[n+1] = r*x*(1 - x)\nx[0] = 0.2\n"
 HENON = "a = 1.4\nb = 0.3\nx[n+1] = 1 - a*x^2 + y\ny[n+1] = b*x\nx[0] = 0.1\ny[0] = 0.1\n"
@@ -267,7 +267,7 @@ def test_compiled_grid_equals_the_numpy_grid():
     # the numba exponent loop (extra 'jit') and the numpy ensemble on the same Henon grid, escapes
     # (a = 1.5 leaves the basin from (0.1, 0.1)) included; Sprott, Chaos and Time-Series Analysis
     # (2003): (a, b) = (1.4, 0.3) has lambda = 0.41922
-    from orbitdesk.core import jit
+    from orbitdesk.engine import jit
 
     if not jit.available():
         pytest.skip("numba is not installed (extra 'jit') or ORBITDESK_JIT=0")

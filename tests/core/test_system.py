@@ -4,7 +4,7 @@ import numpy as np
 import pytest
 import sympy as sp
 
-from orbitdesk.core.system import ModelError, UndefinedValue, compile_model
+from orbitdesk.system.compiled_system import ModelError, UndefinedValue, compile_model
 
 LORENZ = "sigma = 10\nr = 28\nbeta = 8/3\nx' = sigma*(y - x)\ny' = x*(r - z) - y\nz' = x*y - beta*z\nx(0) = 1\n"
 

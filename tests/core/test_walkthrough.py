@@ -2,9 +2,9 @@
 
 import pytest
 
-from orbitdesk.core.project import WalkthroughStep, dumps, loads, Project
-from orbitdesk.core.system import compile_model
-from orbitdesk.core.walkthrough import (apply_step, delete_step, move_step, record_step, render_note,
+from orbitdesk.document.project import WalkthroughStep, dumps, loads, Project
+from orbitdesk.system.compiled_system import compile_model
+from orbitdesk.document.walkthrough import (apply_step, delete_step, move_step, record_step, render_note,
                                         validate_snapshot)
 
 LORENZ = "sigma = 10\nr = 28\nbeta = 8/3\nx' = sigma*(y - x)\ny' = x*(r - z) - y\nz' = x*y - beta*z\nx(0) = 1\n"

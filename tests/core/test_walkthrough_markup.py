@@ -20,9 +20,9 @@ import pytest
 from hypothesis import given
 from hypothesis import strategies as st
 
-from orbitdesk.core import walkthrough
-from orbitdesk.core.project import MAX_TEXT
-from orbitdesk.core.walkthrough import render_note
+from orbitdesk.document import walkthrough
+from orbitdesk.document.project import MAX_TEXT
+from orbitdesk.document.walkthrough import render_note
 from tests.core.test_fuzz_parser import budget
 
 HOSTILE_DIR = Path(__file__).resolve().parents[1] / "data" / "hostile"

@@ -1,0 +1,1 @@
+"""What people ask of a model: equilibria, cycles, sections, Lyapunov exponents, sweeps, continuation, fits."""

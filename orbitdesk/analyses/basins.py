@@ -1,0 +1,171 @@
+"""Basins of attraction: a grid of starts in two states (the other states at their initial values), each
+labelled by the attractor its orbit settles on.
+
+All starts run together on the ensemble engine (RK4 for flows, iteration for maps): a transient, then
+``samples`` states taken every ``every`` (time, or iterations of a map; a forced flow is sampled once per
+forcing period, which makes these the stroboscopic basins). Orbits that leave ``escape`` or fail are
+labelled escape (-1). The others are grouped by where their samples lie (the range of every state over
+the samples, to ``tol`` of the grid's size): each group is one attractor, described as an equilibrium
+(the samples do not move), a cycle of period k of the map or the stroboscopic map, or an oscillation /
+no period (limit cycles of autonomous flows, chaos).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from orbitdesk.engine.ensembles import iterate_ensemble, rk4_ensemble
+from orbitdesk.analyses.parameter_maps import minimal_periods
+from orbitdesk.engine.progress import Reporter
+from orbitdesk.system.compiled_system import MAP
+
+ESCAPE = -1
+MAX_STARTS = 250_000
+
+
+@dataclass
+class BasinSettings:
+    transient: float = 200.0  # time (flows; a forced flow: rounded up to whole periods) or iterations (maps)
+    samples: int = 48         # states kept per start after the transient
+    every: float = 0.5        # between samples (flows without forcing); maps: iterations (rounded)
+    period: float | None = None  # forcing period: sample once per period (stroboscopic basins)
+    dt: float = 0.01          # RK4 step (a forcing period is divided exactly)
+    escape: float = 1e3       # |state| beyond this counts as escape
+    tol: float = 1e-3         # attractors closer than this (relative to the grid's size) are one
+
+
+@dataclass
+class BasinResult:
+    x_name: str
+    xs: np.ndarray  # (nx,)
+    y_name: str
+    ys: np.ndarray  # (ny,)
+    labels: np.ndarray  # (ny, nx): index into attractors, or ESCAPE
+    attractors: list[dict] = field(default_factory=list)  # {"label", "kind", "period", "centre", "share"}
+    stroboscopic: bool = False
+
+    def to_dict(self) -> dict:
+        return {"x": {"state": self.x_name, "values": self.xs.tolist()},
+                "y": {"state": self.y_name, "values": self.ys.tolist()},
+                "labels": self.labels.tolist(), "attractors": self.attractors, "escape": ESCAPE,
+                "stroboscopic": self.stroboscopic}
+
+
+def basins(system, x_name: str, xs, y_name: str, ys, settings: BasinSettings | None = None, u0=None, p=None,
+           cancel=None, progress=None) -> BasinResult:
+    """The basins of attraction over the grid ``ys x xs`` of starts (rows: y); see the module notes."""
+    s = settings or BasinSettings()
+    for name in (x_name, y_name):
+        if name not in system.states:
+            raise ValueError(f"'{name}' is not a state (states: {', '.join(system.states)})")
+    if x_name == y_name:
+        raise ValueError("the starts need two different states")
+    xs, ys = np.asarray(xs, dtype=float).ravel(), np.asarray(ys, dtype=float).ravel()
+    if xs.size < 1 or ys.size < 1 or not (np.all(np.isfinite(xs)) and np.all(np.isfinite(ys))):
+        raise ValueError("the grid of starts must be finite numbers")
+    if xs.size * ys.size > MAX_STARTS:
+        raise ValueError(f"{xs.size * ys.size:,} starts is more than the {MAX_STARTS:,} allowed")
+    if int(s.samples) < 4 or not (s.transient >= 0 and s.escape > 0 and s.tol > 0):
+        raise ValueError("basins need at least 4 samples, a transient of 0 or more and a positive escape bound")
+    p = system.param_values.astype(float) if p is None else np.asarray(p, dtype=float)
+    u0 = system.initial.astype(float) if u0 is None else np.asarray(u0, dtype=float)
+    gx, gy = np.meshgrid(xs, ys)
+    U = np.repeat(u0[:, None], gx.size, axis=1)
+    U[system.states.index(x_name)] = gx.ravel()
+    U[system.states.index(y_name)] = gy.ravel()
+    report = Reporter(progress, cancel)
+    samples, ok = _run(system, U, p, s, report)
+    labels, attractors = _group(system, samples, ok, s, span=max(np.ptp(xs), np.ptp(ys), 1e-12))
+    report(1.0)
+    return BasinResult(x_name, xs, y_name, ys, labels.reshape(ys.size, xs.size), attractors,
+                       stroboscopic=system.kind != MAP and s.period is not None)
+
+
+def _run(system, U, p, s: BasinSettings, report):
+    """(samples (n, M, K), ok (M,)): the states after the transient, and which starts stayed bounded."""
+    K = int(s.samples)
+    M = U.shape[1]
+    out = np.full((system.n_states, M, K), np.nan)
+    ok = np.ones(M, dtype=bool)
+    if system.kind == MAP:
+        first, every = int(math.ceil(s.transient)), max(1, int(round(s.every)))
+        steps = [first] + [every] * (K - 1)
+
+        def advance(V, n_steps, t, part):
+            return iterate_ensemble(system, V, p, n_steps=n_steps, n0=int(t), bound=s.escape, cancel=report.cancel,
+                                    progress=part), float(n_steps)
+    else:
+        if s.period is not None:
+            T = float(s.period)
+            per = max(1, int(math.ceil(T / s.dt - 1e-9)))
+            h = T / per
+            steps = [per * int(math.ceil(s.transient / T - 1e-9))] + [per] * (K - 1)
+        else:
+            h = float(s.dt)
+            every = max(1, int(round(s.every / h)))
+            steps = [int(math.ceil(s.transient / h - 1e-9))] + [every] * (K - 1)
+
+        def advance(V, n_steps, t, part):
+            return rk4_ensemble(system, V, p, t0=t, dt=h, n_steps=n_steps, bound=s.escape, cancel=report.cancel,
+                                progress=part), n_steps * h
+    total, done, t = float(sum(steps)) or 1.0, 0.0, 0.0
+    V = U
+    for k, n_steps in enumerate(steps):
+        if n_steps > 0:
+            result, span = advance(V, n_steps, t, report.part(done / total, n_steps / total))
+            V, t = result.states, t + span
+            ok &= result.status == "ok"
+        done += n_steps
+        report(done / total)  # also where a cancel is noticed
+        out[:, :, k] = V
+    ok &= np.all(np.isfinite(out), axis=(0, 2)) & np.all(np.abs(np.nan_to_num(out, nan=np.inf)) <= s.escape, axis=(0, 2))
+    return out, ok
+
+
+def _group(system, samples, ok, s: BasinSettings, span: float):
+    """Labels per start and the attractors: starts whose samples cover the same ranges share one."""
+    n, M, K = samples.shape
+    labels = np.full(M, ESCAPE, dtype=int)
+    lo, hi = np.nanmin(samples, axis=2), np.nanmax(samples, axis=2)  # (n, M)
+    scale = max(span, float(np.nanmax(np.abs(samples[:, ok]), initial=0.0)) if ok.any() else span, 1e-12)
+    tol = s.tol * scale
+    signature = np.vstack([lo, hi]).T  # (M, 2n)
+    attractors: list[dict] = []
+    centres: list[np.ndarray] = []
+    members = np.flatnonzero(ok)
+    keys = np.round(signature[members] / (4 * tol)).astype(np.int64)
+    _, first, inverse = np.unique(keys, axis=0, return_index=True, return_inverse=True)
+    group_label = {}
+    for g, i in enumerate(first):
+        sig = signature[members[i]]
+        match = next((a for a, c in enumerate(centres) if np.max(np.abs(c - sig)) <= 8 * tol), None)
+        if match is None:
+            match = len(centres)
+            centres.append(sig)
+            attractors.append(_describe(system, samples[:, members[i], :], tol, s, match))
+        group_label[g] = match
+    labels[members] = np.array([group_label[g] for g in np.ravel(inverse)], dtype=int)
+    for a in attractors:
+        a["share"] = float(np.mean(labels == a["label"]))
+    return labels, attractors
+
+
+def _describe(system, track, tol, s: BasinSettings, label: int) -> dict:
+    """What one attractor is, from the samples of one orbit on it: (n, K)."""
+    spread = float(np.max(np.ptp(track, axis=1)))
+    centre = {name: float(v) for name, v in zip(system.states, np.mean(track, axis=1))}
+    if spread <= tol:
+        kind, period = ("fixed point" if system.kind == MAP else
+                        "period-1 response" if s.period is not None else "equilibrium"), 1
+    elif system.kind == MAP or s.period is not None:
+        period = int(minimal_periods(track[0:1], track.shape[1] // 2, tol=1e-5)[0])
+        kind = f"cycle of period {period}" if period > 0 else "no period (chaotic or quasi-periodic)"
+    else:
+        kind, period = "oscillation (a limit cycle or more)", 0
+    return {"label": label, "kind": kind, "period": period, "centre": centre, "spread": spread}
+
+
+__all__ = ["BasinSettings", "BasinResult", "basins", "ESCAPE"]

@@ -1,0 +1,557 @@
+"""Periodic orbits: limit cycles of flows by shooting, cycles of maps by Newton on f^k(u) - u.
+
+Autonomous flows: Newton on the unknowns (u0, T) with phi_T(u0) = u0 and the phase condition that
+u0 lies on a hyperplane section through the guess, normal to the flow there. Periodically forced
+flows: Newton on the stroboscopic map P^k(u) = u, P advancing one forcing period. The monodromy
+matrix comes from the variational equations dPhi/dt = J(t, u) Phi integrated alongside; its
+eigenvalues are the Floquet multipliers.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from fractions import Fraction
+
+import numpy as np
+import sympy as sp
+from scipy.stats import qmc
+
+from orbitdesk.engine.runs import Event, RunSettings, simulate
+from orbitdesk.analyses.equilibria import NONSMOOTH_WARNING
+from orbitdesk.engine import compiled, drivers
+from orbitdesk.engine.status import C_CANCELLED
+from orbitdesk.engine.status import word as status_word
+from orbitdesk.engine.progress import CancelToken, Cancelled, Reporter
+from orbitdesk.system.compiled_system import MAP, CompiledSystem
+
+MAX_FORCING_MULTIPLE = 8
+
+
+class CycleError(ValueError):
+    """No periodic orbit was found; the message says why in plain words."""
+
+
+@dataclass
+class Cycle:
+    period: float
+    state: dict[str, float]  # a point on the orbit
+    vector: np.ndarray
+    time: np.ndarray  # (K,) from 0 to period
+    orbit: np.ndarray  # (n, K) one period
+    amplitude: dict[str, float]  # max - min of each state over the orbit
+    multipliers: np.ndarray  # Floquet multipliers (complex), sorted by modulus, descending
+    trivial_index: int | None  # the multiplier along the flow (autonomous flows), else None
+    stable: bool
+    monodromy: np.ndarray
+    forcing_period: float | None = None
+    forcing_multiple: int | None = None
+    iterations: int = 0
+    residual: float = 0.0
+    warnings: list[str] = field(default_factory=list)
+
+    @property
+    def nontrivial_multipliers(self) -> np.ndarray:
+        if self.trivial_index is None:
+            return self.multipliers
+        return np.delete(self.multipliers, self.trivial_index)
+
+    def to_dict(self) -> dict:
+        data = {"period": self.period, "state": dict(self.state), "amplitude": dict(self.amplitude),
+                "multipliers": [{"re": float(m.real), "im": float(m.imag)} for m in self.multipliers],
+                "stable": self.stable, "warnings": list(self.warnings)}
+        if self.forcing_period is not None:
+            data["forcing_period"] = self.forcing_period
+            data["forcing_multiple"] = self.forcing_multiple
+        return data
+
+
+@dataclass
+class MapCycle:
+    period: int
+    points: np.ndarray  # (n, k): the cycle's points in orbit order
+    states: list[dict[str, float]]
+    multipliers: np.ndarray  # eigenvalues of the Jacobian of f^k along the cycle
+    stable: bool
+    warnings: list[str] = field(default_factory=list)
+
+    def to_dict(self) -> dict:
+        return {"period": self.period, "points": [dict(s) for s in self.states],
+                "multipliers": [{"re": float(m.real), "im": float(m.imag)} for m in self.multipliers],
+                "stable": self.stable, "warnings": list(self.warnings)}
+
+
+# ---------------------------------------------------------------- forcing period
+def detect_forcing_period(system: CompiledSystem, p=None) -> float | None:
+    """The common period of sin/cos/tan(omega*t + phase) terms when time enters only through them."""
+    if system.autonomous:
+        return None
+    p = system.param_values if p is None else np.asarray(p, dtype=float)
+    t = system.t_symbol
+    subs = {s: sp.Float(float(v)) for s, v in zip(system.param_symbols, p)}
+    periods = []
+    for expr in system.f:
+        expr = expr.xreplace(subs)
+        replacements = {}
+        for node in sp.preorder_traversal(expr):
+            if isinstance(node, (sp.sin, sp.cos, sp.tan)) and t in node.free_symbols:
+                arg = sp.expand(node.args[0])
+                if not arg.is_polynomial(t) or sp.degree(arg, t) != 1:
+                    return None
+                omega = arg.coeff(t, 1)
+                if omega.free_symbols or not omega.is_number:
+                    return None
+                omega = abs(float(omega))
+                if omega == 0:
+                    return None
+                periods.append(2 * math.pi / omega)
+                replacements[node] = sp.Dummy()
+        if t in expr.xreplace(replacements).free_symbols:
+            return None
+    if not periods:
+        return None
+    common = periods[0]
+    for other in periods[1:]:
+        ratio = Fraction(common / other).limit_denominator(64)
+        if abs(float(ratio) - common / other) > 1e-9 * common / other:
+            return None  # incommensurate frequencies: quasi-periodic forcing
+        common = common * ratio.denominator
+    return common
+
+
+# ---------------------------------------------------------------- variational equations
+class _Flow:
+    """phi_T(u0) and its monodromy matrix: the state with n tangent vectors in the compiled loop
+    (Dormand-Prince 8(5,3), the model's kernel with its sparse Jacobian)."""
+
+    def __init__(self, system: CompiledSystem, p, rtol, atol, cancel):
+        self.system, self.n = system, system.n_states
+        self.p = np.asarray(p, dtype=float)
+        self.rtol, self.atol = rtol, atol
+        self.report = Reporter(None, cancel)
+        self.engine = compiled.engine_for_work(system, 1e6)
+
+    def rhs(self, t, u) -> np.ndarray:
+        try:
+            return self.system.rhs(t, u, self.p)
+        except ArithmeticError as err:  # UndefinedValue
+            raise CycleError(str(err)) from None
+
+    def _run(self, z0, t0, t1, grid, which):
+        with np.errstate(all="ignore"):
+            out = drivers.flow_run(self.engine, "dop853", t0, t1, z0, self.p, self.rtol, self.atol, grid=grid,
+                                   which=which, report=self.report)
+        if out.code == C_CANCELLED:
+            raise Cancelled("cancelled")
+        if out.code != 0 or out.time.size != len(grid):
+            where = f"{self.system.time_name} = {out.t:.6g}"
+            raise CycleError(f"the integration over one period failed ({status_word(out.code)} near {where})")
+        return out
+
+    def monodromy(self, u0, t0, T):
+        n = self.n
+        z0 = np.concatenate([np.asarray(u0, dtype=float), np.eye(n).ravel()])
+        end = self._run(z0, t0, t0 + T, [t0 + T], n).states[:, -1]
+        if not np.all(np.isfinite(end)):
+            raise CycleError("the integration over one period failed (not a number)")
+        return end[:n], end[n:].reshape(n, n)
+
+    def sample(self, u0, t0, T, samples):
+        times = np.linspace(t0, t0 + T, samples)
+        out = self._run(np.asarray(u0, dtype=float), t0, t0 + T, times[1:], 0)
+        return times - t0, np.concatenate([np.asarray(u0, float)[:, None], out.states], axis=1)
+
+
+# ---------------------------------------------------------------- flows
+def find_cycle(system: CompiledSystem, p=None, guess=None, period_guess: float | None = None,
+               section=None, forcing_period: float | None = None, forcing_multiple: int | None = None,
+               transient: float | None = None, rtol: float = 1e-10, atol: float = 1e-12,
+               max_iter: int = 40, samples: int = 2001, initial=None, cancel: CancelToken | None = None,
+               progress=None) -> Cycle:
+    """A periodic orbit of a flow near ``guess`` (state dict or vector; default: the end of a transient run).
+
+    Autonomous flows: ``period_guess`` (default: the first return to the section) and ``section``
+    ((normal, point) of a hyperplane; default through the guess, normal to the flow). Forced flows:
+    ``forcing_period`` (default: detected from sin/cos(omega t) terms) and optionally
+    ``forcing_multiple`` k (default: tried from the transient's stroboscopic points). Raises
+    CycleError when no orbit is found, ValueError for bad input. ``initial`` is where the transient
+    run starts (default: the model's initial values).
+    """
+    if system.kind == MAP:
+        raise ValueError("this is a map: look for its cycles with a period K (find_map_cycle)")
+    p = system.param_values.astype(float) if p is None else np.asarray(p, dtype=float)
+    report = Reporter(progress, cancel)
+    flow = _Flow(system, p, rtol, atol, cancel)
+    u_guess = _guess_vector(system, guess)
+    start = system.initial if initial is None else np.asarray(initial, dtype=float)
+    warnings = []
+    if system.nonsmooth:
+        warnings.append(NONSMOOTH_WARNING.format(names=", ".join(system.nonsmooth)))
+    if system.autonomous and forcing_period is not None:
+        raise ValueError(f"the equations do not depend on {system.time_name}: there is no forcing period")
+    if forcing_period is not None or not system.autonomous_at(p):  # a forcing switched off counts as absent
+        if forcing_period is None:
+            forcing_period = detect_forcing_period(system, p)
+            if forcing_period is None:
+                raise ValueError(f"the equations depend on {system.time_name} but not only through "
+                                 "sin/cos of a fixed frequency: give the forcing period")
+        forcing_period = float(forcing_period)
+        if not (math.isfinite(forcing_period) and forcing_period > 0):
+            raise ValueError("the forcing period must be a positive number")
+        cycle = _forced_cycle(system, p, flow, u_guess, start, forcing_period, forcing_multiple, transient,
+                              max_iter, samples, report, cancel)
+    else:
+        if period_guess is not None and not (math.isfinite(period_guess) and period_guess > 0):
+            raise ValueError("the period guess must be a positive number")
+        cycle = _autonomous_cycle(system, p, flow, u_guess, start, period_guess, section, transient, max_iter,
+                                  samples, report, cancel)
+    cycle.warnings = warnings + cycle.warnings
+    report(1.0)
+    return cycle
+
+
+def _guess_vector(system, guess):
+    if guess is None:
+        return None
+    if isinstance(guess, dict):
+        return system.initial_vector(guess)
+    u = np.asarray(guess, dtype=float).reshape(-1)
+    if u.size != system.n_states:
+        raise ValueError(f"the guess needs {system.n_states} values ({', '.join(system.states)})")
+    return u
+
+
+def _run(system, p, u0, t_end, samples, cancel, report, events=()):
+    settings = RunSettings(t_start=0.0, t_end=t_end, samples=samples)
+    run = simulate(system, settings, u0, p, events=list(events), cancel=cancel, progress=report)
+    if run.status == "cancelled":
+        raise Cancelled("cancelled")
+    if not run.ok:
+        raise CycleError(f"the run towards the cycle stopped: {run.message}")
+    return run
+
+
+def _autonomous_cycle(system, p, flow, u_guess, start, period_guess, section, transient, max_iter, samples,
+                      report, cancel) -> Cycle:
+    n = system.n_states
+    transient = 200.0 if transient is None else float(transient)
+    if period_guess is not None:
+        transient = max(transient, 30 * period_guess)
+    if u_guess is None:
+        run = _run(system, p, start, transient, 4000, cancel, report.part(0.0, 0.3))
+        u_ref, where = run.final_state.copy(), "the run from the initial values settles"
+    else:
+        u_ref, where = u_guess, "the guess is"
+    f_ref = flow.rhs(0.0, u_ref)
+    if np.linalg.norm(f_ref) <= 1e-9 * max(1.0, float(np.linalg.norm(u_ref))):
+        raise CycleError(f"{where} at an equilibrium (the vector field vanishes there): no periodic orbit "
+                         "found; give a guess on the cycle")
+    if section is None:
+        normal, point = f_ref / np.linalg.norm(f_ref), u_ref.copy()
+    else:
+        normal, point = (np.asarray(v, dtype=float).reshape(n) for v in section)
+        normal = normal / np.linalg.norm(normal)
+
+    T = period_guess
+    if T is None:
+        T = _return_time(system, p, u_ref, normal, point, transient, cancel, report.part(0.3, 0.1))
+
+    u0 = u_ref.copy()
+    phi, M = flow.monodromy(u0, 0.0, T)
+    residual = _shoot_residual(phi, u0, normal, point)
+    newton = report.part(0.4, 0.5)
+    scale = max(1.0, float(np.max(np.abs(u0))))
+    it = 0
+    for it in range(1, max_iter + 1):
+        newton(it / max_iter)
+        if np.linalg.norm(phi - u0) <= 1e-10 * _travel(flow, u0, T):
+            break
+        A = np.zeros((n + 1, n + 1))
+        A[:n, :n] = M - np.eye(n)
+        A[:n, n] = flow.rhs(T, phi)
+        A[n, :n] = normal
+        b = -np.concatenate([phi - u0, [normal @ (u0 - point)]])
+        try:
+            step = np.linalg.solve(A, b)
+        except np.linalg.LinAlgError:
+            raise CycleError("the shooting equations are singular here (a non-hyperbolic cycle or a "
+                             "family of cycles?); no isolated periodic orbit found") from None
+        lam, accepted = 1.0, False
+        while lam >= 1 / 64:
+            u_new, T_new = u0 + lam * step[:n], T + lam * step[n]
+            if T_new > 0.05 * T:
+                try:
+                    phi_new, M_new = flow.monodromy(u_new, 0.0, T_new)
+                    r_new = _shoot_residual(phi_new, u_new, normal, point)
+                except CycleError:
+                    r_new = math.inf
+                if r_new < residual:
+                    u0, T, phi, M, residual, accepted = u_new, T_new, phi_new, M_new, r_new, True
+                    break
+            lam /= 2
+        if not accepted:
+            break
+    gap = float(np.linalg.norm(phi - u0))
+    if np.linalg.norm(flow.rhs(0.0, u0)) <= 1e-9 * scale:
+        raise CycleError("the shooting converged to an equilibrium, not a periodic orbit")
+    if not gap <= 1e-8 * _travel(flow, u0, T):
+        raise CycleError(f"no periodic orbit found near the guess: the shooting did not converge "
+                         f"(return gap {gap:.3g} after {it} Newton steps)")
+
+    multipliers = _sorted_multipliers(M)
+    trivial = int(np.argmin(np.abs(multipliers - 1)))
+    others = np.delete(multipliers, trivial)
+    warnings = []
+    if abs(multipliers[trivial] - 1) > 1e-4:
+        warnings.append(f"the trivial multiplier is {abs(multipliers[trivial]):.6g}, not 1: the monodromy "
+                        "matrix is inaccurate (try a tighter tolerance)")
+    stable = bool(np.all(np.abs(others) < 1))
+    if np.any(np.abs(np.abs(others) - 1) < 1e-6):
+        warnings.append("a multiplier lies on the unit circle: the cycle is at a bifurcation")
+    report(0.9)
+    time, orbit = flow.sample(u0, 0.0, T, samples)
+    return _cycle(system, T, u0, time, orbit, multipliers, trivial, stable, M, None, None, it, gap, warnings)
+
+
+def _travel(flow, u0, T) -> float:
+    """A length scale of the orbit: speed at u0 times the period (its length if the speed were uniform)."""
+    return float(np.linalg.norm(flow.rhs(0.0, u0))) * T
+
+
+def _shoot_residual(phi, u0, normal, point):
+    return float(np.linalg.norm(np.concatenate([phi - u0, [normal @ (u0 - point)]])))
+
+
+def _return_time(system, p, u_ref, normal, point, t_max, cancel, report) -> float:
+    """The first time the run from u_ref crosses the section again, near u_ref, in the same direction."""
+    event = Event.on_plane(normal, float(normal @ point), direction=1)
+    run = _run(system, p, u_ref, t_max, 2000, cancel, report, events=[event])
+    size = float(np.linalg.norm(np.ptp(run.states, axis=1))) if run.states.size else 0.0
+    times, states = run.event_times[0], run.event_states[0]
+    if times.size == 0:
+        raise CycleError(f"the run from the guess never returns to the section through it within "
+                         f"{system.time_name} = {t_max:g}: no periodic orbit found (it may settle to an "
+                         "equilibrium)")
+    distances = np.linalg.norm(states - u_ref[:, None], axis=0)
+    near = np.flatnonzero(distances <= 0.1 * max(size, 1e-12))
+    return float(times[near[0]] if near.size else times[int(np.argmin(distances))])
+
+
+def _forced_cycle(system, p, flow, u_guess, start, Tf, k_given, transient, max_iter, samples, report,
+                  cancel) -> Cycle:
+    n = system.n_states
+    transient = max(200.0, 50 * Tf) if transient is None else float(transient)
+    periods = max(int(math.ceil(transient / Tf)), 2 * MAX_FORCING_MULTIPLE)
+    per = 8
+    start = start if u_guess is None else u_guess
+    run = _run(system, p, start, periods * Tf, periods * per + 1, cancel, report.part(0.0, 0.3))
+    strobe = run.states[:, ::per]
+    if k_given is not None:
+        if int(k_given) < 1:
+            raise ValueError("the forcing multiple must be at least 1")
+        order = [int(k_given)]
+    else:
+        gaps = [float(np.max(np.linalg.norm(strobe[:, -1 - 2 * MAX_FORCING_MULTIPLE:][:, k:]
+                                            - strobe[:, -1 - 2 * MAX_FORCING_MULTIPLE:][:, :-k], axis=0)))
+                for k in range(1, MAX_FORCING_MULTIPLE + 1)]
+        scale = max(1.0, float(np.max(np.abs(strobe[:, -1]))))
+        settled = [k for k, g in zip(range(1, MAX_FORCING_MULTIPLE + 1), gaps) if g <= 1e-3 * scale]
+        order = settled[:1] + [k for k in range(1, MAX_FORCING_MULTIPLE + 1) if k not in settled[:1]]
+    # the phase of the section: the transient ends at t_end, a whole number of forcing periods
+    starts = [u_guess] if u_guess is not None else []
+    starts.append(strobe[:, -1])
+    newton = report.part(0.3, 0.6)
+    failure = "the Newton iteration on the stroboscopic map did not converge"
+    for index, k in enumerate(order):
+        for u_start in starts:
+            newton(index / len(order))
+            try:
+                u0, M, it, gap = _strobe_newton(flow, u_start, Tf, k, max_iter)
+            except CycleError as err:
+                failure = str(err)
+                continue
+            k_min = _minimal_multiple(flow, u0, Tf, k)
+            if k_min != k:
+                if k_given is not None:
+                    failure = f"the orbit found repeats after {k_min} forcing periods, not {k}"
+                    continue
+                k = k_min
+                _, M = flow.monodromy(u0, 0.0, k * Tf)
+            multipliers = _sorted_multipliers(M)
+            stable = bool(np.all(np.abs(multipliers) < 1))
+            warnings = []
+            if np.any(np.abs(np.abs(multipliers) - 1) < 1e-6):
+                warnings.append("a multiplier lies on the unit circle: the orbit is at a bifurcation")
+            report(0.9)
+            time, orbit = flow.sample(u0, 0.0, k * Tf, samples)
+            return _cycle(system, k * Tf, u0, time, orbit, multipliers, None, stable, M, Tf, k, it, gap,
+                          warnings)
+    raise CycleError(f"no periodic orbit found with a period of up to {MAX_FORCING_MULTIPLE} forcing "
+                     f"periods ({failure})")
+
+
+def _strobe_newton(flow, u0, Tf, k, max_iter):
+    n = flow.n
+    u0 = np.asarray(u0, dtype=float).copy()
+    phi, M = flow.monodromy(u0, 0.0, k * Tf)
+    residual = float(np.linalg.norm(phi - u0))
+    scale = max(1.0, float(np.max(np.abs(u0))))
+    it = 0
+    for it in range(1, max_iter + 1):
+        if residual <= 1e-9 * scale:
+            break
+        try:
+            step = np.linalg.solve(M - np.eye(n), -(phi - u0))
+        except np.linalg.LinAlgError:
+            raise CycleError("the stroboscopic map has a multiplier 1 here; no isolated orbit") from None
+        lam, accepted = 1.0, False
+        while lam >= 1 / 64:
+            u_new = u0 + lam * step
+            try:
+                phi_new, M_new = flow.monodromy(u_new, 0.0, k * Tf)
+                r_new = float(np.linalg.norm(phi_new - u_new))
+            except CycleError:
+                r_new = math.inf
+            if r_new < residual:
+                u0, phi, M, residual, accepted = u_new, phi_new, M_new, r_new, True
+                break
+            lam /= 2
+        if not accepted:
+            break
+    if not residual <= 1e-7 * scale:
+        raise CycleError(f"the Newton iteration on P^{k} did not converge (gap {residual:.3g})")
+    return u0, M, it, residual
+
+
+def _minimal_multiple(flow, u0, Tf, k):
+    scale = max(1.0, float(np.max(np.abs(u0))))
+    for d in range(1, k):
+        if k % d == 0:
+            phi, _ = flow.monodromy(u0, 0.0, d * Tf)
+            if np.linalg.norm(phi - u0) <= 1e-6 * scale:
+                return d
+    return k
+
+
+def _sorted_multipliers(M):
+    values = np.linalg.eigvals(M).astype(complex)
+    return values[np.lexsort((-values.imag, -np.abs(values)))]
+
+
+def _cycle(system, T, u0, time, orbit, multipliers, trivial, stable, M, Tf, k, it, gap, warnings) -> Cycle:
+    amplitude = {name: float(np.ptp(orbit[i])) for i, name in enumerate(system.states)}
+    state = {name: float(v) for name, v in zip(system.states, u0)}
+    return Cycle(float(T), state, np.asarray(u0, dtype=float), time, orbit, amplitude, multipliers, trivial,
+                 stable, M, Tf, k, it, gap, warnings)
+
+
+# ---------------------------------------------------------------- maps
+def find_map_cycle(system: CompiledSystem, p=None, period_k: int = 1, guess=None, transient: int = 1000,
+                   starts: int = 40, max_iter: int = 60, initial=None, cancel: CancelToken | None = None,
+                   progress=None) -> MapCycle:
+    """A cycle of minimal period ``period_k`` of a map, by Newton on f^k(u) - u.
+
+    Starts: the guess, then points of a transient orbit from the guess (or the initial values), then
+    quasi-random points in that orbit's bounding box (the orbit starts at ``initial``, default the
+    model's initial values, when no guess is given). Raises CycleError when none converges.
+    """
+    if system.kind != MAP:
+        raise ValueError("this is a flow: look for its periodic orbits with find_cycle")
+    if not system.autonomous:
+        raise ValueError("the map depends on the step n, so its cycles are not defined in the usual sense")
+    k = int(period_k)
+    if k < 1:
+        raise ValueError("the period of a map cycle must be a whole number of at least 1")
+    p = system.param_values.astype(float) if p is None else np.asarray(p, dtype=float)
+    report = Reporter(progress, cancel)
+    n = system.n_states
+    u_guess = _guess_vector(system, guess)
+    start = system.initial if initial is None else np.asarray(initial, dtype=float)
+    run = simulate(system, RunSettings(steps=int(transient)), start if u_guess is None else u_guess,
+                   p, cancel=cancel)
+    if run.status == "cancelled":
+        raise Cancelled("cancelled")
+    orbit = run.states[:, np.all(np.isfinite(run.states), axis=0)]
+    candidates = [] if u_guess is None else [u_guess]
+    tail = orbit[:, -min(starts, orbit.shape[1]):]
+    candidates += [tail[:, j] for j in range(tail.shape[1] - 1, -1, -1)]
+    if orbit.size:
+        lo, hi = orbit.min(axis=1), orbit.max(axis=1)
+        pad = np.maximum(0.1 * (hi - lo), 1e-3)
+        points = qmc.scale(qmc.LatinHypercube(d=n, seed=7).random(starts), lo - pad, hi + pad)
+        candidates += list(points)
+    f = system.rhs_function(p)
+    lower = None
+    for index, u in enumerate(candidates):
+        report(index / len(candidates))
+        found = _map_newton(system, f, p, np.asarray(u, dtype=float), k, max_iter)
+        if found is None:
+            continue
+        points, product = found
+        m = _map_minimal_period(points)
+        if m != k:
+            lower = m
+            continue
+        points = np.roll(points, -int(np.lexsort(points[::-1])[0]), axis=1)
+        multipliers = _sorted_multipliers(product)
+        warnings = []
+        if np.any(np.abs(np.abs(multipliers) - 1) < 1e-6):
+            warnings.append("a multiplier lies on the unit circle: the cycle is at a bifurcation")
+        if system.nonsmooth:
+            warnings.append(NONSMOOTH_WARNING.format(names=", ".join(system.nonsmooth)))
+        report(1.0)
+        states = [{s: float(v) for s, v in zip(system.states, points[:, j])} for j in range(k)]
+        return MapCycle(k, points, states, multipliers, bool(np.all(np.abs(multipliers) < 1)), warnings)
+    extra = f" (only cycles of period {lower} were found)" if lower is not None else ""
+    raise CycleError(f"no cycle of minimal period {k} found{extra}")
+
+
+def _map_newton(system, f, p, u, k, max_iter):
+    n = system.n_states
+    eye = np.eye(n)
+
+    def orbit_of(u):
+        pts = [u]
+        product = eye
+        for _ in range(k):
+            product = system.jac(0.0, pts[-1], p) @ product
+            pts.append(np.asarray(f(0, pts[-1]), dtype=float))
+        return np.column_stack(pts), product
+
+    try:
+        pts, product = orbit_of(u)
+        residual = float(np.linalg.norm(pts[:, -1] - u))
+        for _ in range(max_iter):
+            scale = max(1.0, float(np.max(np.abs(u))))
+            if residual <= 1e-13 * scale:
+                break
+            step = np.linalg.solve(product - eye, -(pts[:, -1] - u))
+            lam, accepted = 1.0, False
+            while lam >= 1 / 64:
+                u_new = u + lam * step
+                pts_new, product_new = orbit_of(u_new)
+                r_new = float(np.linalg.norm(pts_new[:, -1] - u_new))
+                if r_new < residual:
+                    u, pts, product, residual, accepted = u_new, pts_new, product_new, r_new, True
+                    break
+                lam /= 2
+            if not accepted:
+                break
+    except (ArithmeticError, ValueError, TypeError, np.linalg.LinAlgError):
+        return None
+    scale = max(1.0, float(np.max(np.abs(u))))
+    if not (np.all(np.isfinite(pts)) and residual <= 1e-10 * scale):
+        return None
+    return pts[:, :-1], product
+
+
+def _map_minimal_period(points):
+    k = points.shape[1]
+    scale = max(1.0, float(np.max(np.abs(points))))
+    for d in range(1, k):
+        if k % d == 0 and np.linalg.norm(points[:, d] - points[:, 0]) <= 1e-8 * scale:
+            return d
+    return k
+
+
+__all__ = ["Cycle", "MapCycle", "CycleError", "find_cycle", "find_map_cycle", "detect_forcing_period"]

@@ -1,0 +1,508 @@
+"""Equilibria of flows (f(u) = 0) and fixed points of maps (f(u) = u), with their linearisation.
+
+Two searches are combined: an exact one (sympy, in a forked child process under a time limit,
+because a symbolic solve cannot be interrupted in-thread) and a multi-start Newton search from
+quasi-random starts in a box. Every point is refined with Newton steps before points are compared,
+so that genuinely distinct nearby equilibria stay distinct.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import multiprocessing
+from dataclasses import dataclass, field
+from fractions import Fraction
+
+import numpy as np
+import sympy as sp
+from scipy.optimize import root
+from scipy.stats import qmc
+
+from orbitdesk.language.angles import wrap_equilibria
+from orbitdesk.engine.progress import CancelToken, Cancelled, Reporter
+from orbitdesk.system.compiled_system import MAP, CompiledSystem, UndefinedValue
+
+HYPERBOLIC_RTOL = 1e-9  # |Re lambda| (flows) or ||mu| - 1| (maps) below this * max(1, rho) counts as zero
+NEAR_UNIT_TOL = 1e-6  # maps: warn about a multiplier this close to +1, -1 or the unit circle
+EXACT, NEWTON, BOTH = "exact", "newton", "exact+newton"
+
+NONSMOOTH_WARNING = ("the model uses {names}; its Jacobian is undefined at the kinks, so the "
+                     "linearisation may not describe the point if it lies on one")
+
+
+@dataclass
+class Equilibrium:
+    """An equilibrium of a flow or a fixed point of a map, with its linearisation."""
+
+    state: dict[str, float]
+    vector: np.ndarray
+    jacobian: np.ndarray
+    eigenvalues: np.ndarray  # complex; flows: sorted by real part, descending; maps: the multipliers
+    eigenvectors: np.ndarray  # columns, in the order of the eigenvalues
+    kind: str
+    stable: bool | None
+    n_stable: int
+    n_unstable: int
+    n_center: int
+    method: str
+    warnings: list[str] = field(default_factory=list)
+    is_map: bool = False
+
+    @property
+    def hyperbolic(self) -> bool:
+        return self.n_center == 0
+
+    def to_dict(self) -> dict:
+        eig = [{"re": float(v.real), "im": float(v.imag)} for v in self.eigenvalues]
+        data = {"state": dict(self.state), "eigenvalues": eig, "kind": self.kind, "stable": self.stable,
+                "stable_dim": self.n_stable, "unstable_dim": self.n_unstable, "method": self.method,
+                "warnings": list(self.warnings)}
+        if self.is_map:
+            data["multipliers"] = eig
+        return data
+
+
+class Equilibria(list):
+    """The equilibria found (a list), plus notes about the search itself (``notes``)."""
+
+    def __init__(self, items=(), notes=None, box=None):
+        super().__init__(items)
+        self.notes: list[str] = list(notes or [])
+        self.box: dict[str, tuple[float, float]] = dict(box or {})
+
+
+# ---------------------------------------------------------------- classification
+ROUND_OFF = 1e-12  # entries this small against the largest of their matrix or vector are round-off
+
+
+def zero_round_off(a, scale: float | None = None) -> np.ndarray:
+    """A copy of ``a`` with every entry (real and imaginary parts apart) smaller than ``ROUND_OFF``
+    times ``scale`` (default: the largest entry) set to exactly 0, so that a Jacobian entry of
+    6.1e-17 that is 0 in exact arithmetic prints as 0 in the app, the report and the command line."""
+    a = np.array(a, copy=True)
+    if a.size == 0:
+        return a
+    scale = float(np.max(np.abs(a))) if scale is None else float(scale)
+    limit = ROUND_OFF * scale
+    if np.iscomplexobj(a):
+        re, im = a.real.copy(), a.imag.copy()
+        re[np.abs(re) < limit] = 0.0
+        im[np.abs(im) < limit] = 0.0
+        return (re + 0.0) + 1j * (im + 0.0)
+    a[np.abs(a) < limit] = 0.0
+    return a + 0.0  # no negative zeros
+
+
+def classify(jacobian, is_map: bool = False) -> tuple:
+    """(kind, stable, n_stable, n_unstable, n_center, eigenvalues, eigenvectors, warnings); round-off
+    entries of the Jacobian are zeroed first, and those of each eigenvector and of the eigenvalues after."""
+    jacobian = zero_round_off(np.asarray(jacobian, dtype=float))
+    values, vectors = np.linalg.eig(jacobian)
+    values = zero_round_off(values.astype(complex), max(float(np.max(np.abs(jacobian), initial=0.0)),
+                                                        float(np.max(np.abs(values), initial=0.0))))
+    vectors = vectors.astype(complex)
+    order = np.lexsort((-values.imag, -np.abs(values) if is_map else -values.real))
+    values, vectors = values[order], vectors[:, order]
+    for k in range(vectors.shape[1]):
+        vectors[:, k] = zero_round_off(_canonical_sign(vectors[:, k]))
+    rho = float(np.max(np.abs(values))) if values.size else 0.0
+    tol = HYPERBOLIC_RTOL * max(1.0, rho)
+    return (*(_classify_map(values, tol) if is_map else _classify_flow(values, tol)), values, vectors)
+
+
+def _canonical_sign(v):
+    """Scale an eigenvector so that its largest component is real and positive."""
+    k = int(np.argmax(np.abs(v)))
+    if abs(v[k]) == 0:
+        return v
+    return v * (abs(v[k]) / v[k])
+
+
+def _classify_flow(values, tol):
+    re = values.real
+    n_stable, n_unstable = int(np.sum(re < -tol)), int(np.sum(re > tol))
+    n_center = len(values) - n_stable - n_unstable
+    oscillating = bool(np.any(np.abs(values.imag) > tol))
+    warnings: list[str] = []
+    if n_center:
+        if len(values) == 2 and n_center == 2 and oscillating:
+            kind = "centre (linear)"
+            warnings.append("the linearisation has a pure imaginary pair: the nonlinear terms decide "
+                            "whether the point is a centre or a weak focus")
+        else:
+            kind = "non-hyperbolic"
+            warnings.append("an eigenvalue has zero real part: the linearisation does not decide stability")
+        stable = False if n_unstable else None
+    elif n_unstable == 0:
+        kind, stable = ("stable focus" if oscillating else "stable node"), True
+    elif n_stable == 0:
+        kind, stable = ("unstable focus" if oscillating else "unstable node"), False
+    else:
+        kind, stable = ("saddle-focus" if oscillating else "saddle"), False
+    return kind, stable, n_stable, n_unstable, n_center, warnings
+
+
+def _classify_map(values, tol):
+    mod = np.abs(values)
+    n_stable, n_unstable = int(np.sum(mod < 1 - tol)), int(np.sum(mod > 1 + tol))
+    n_center = len(values) - n_stable - n_unstable
+    warnings: list[str] = []
+    for mu in values:
+        if abs(mu.imag) <= NEAR_UNIT_TOL:
+            if abs(mu.real + 1) <= NEAR_UNIT_TOL:
+                warnings.append("flip (multiplier near -1)")
+            elif abs(mu.real - 1) <= NEAR_UNIT_TOL:
+                warnings.append("fold (multiplier near +1)")
+        elif mu.imag > 0 and abs(abs(mu) - 1) <= NEAR_UNIT_TOL:
+            warnings.append("Neimark-Sacker (complex pair on the unit circle)")
+    warnings = list(dict.fromkeys(warnings))
+    if n_center:
+        kind, stable = "non-hyperbolic fixed point", (False if n_unstable else None)
+    elif n_unstable == 0:
+        kind, stable = "stable fixed point", True
+    elif n_stable == 0:
+        kind, stable = "unstable fixed point", False
+    else:
+        kind, stable = "saddle fixed point", False
+    return kind, stable, n_stable, n_unstable, n_center, warnings
+
+
+# ---------------------------------------------------------------- exact solve (child process)
+def exact_number(value: float) -> sp.Expr:
+    """A parameter value as an exact rational: short fractions (8/3) when they round-trip, else the decimal."""
+    value = float(value)
+    if value == int(value) and abs(value) < 1e15:
+        return sp.Integer(int(value))
+    short = Fraction(value).limit_denominator(10**6)
+    if float(short) == value:
+        return sp.Rational(short.numerator, short.denominator)
+    exact = Fraction(repr(value))
+    return sp.Rational(exact.numerator, exact.denominator)
+
+
+def _exact_equations(system: CompiledSystem, p):
+    t, u, psyms, _ = system._plain
+    exprs = system.plain(list(system.f))
+    subs = {s: exact_number(v) for s, v in zip(psyms, p)}
+    subs[t] = sp.Integer(0)
+    eqs = [sp.expand(e.xreplace(subs)) if e.is_polynomial(*u) else e.xreplace(subs) for e in exprs]
+    if system.kind == MAP:
+        eqs = [e - ui for e, ui in zip(eqs, u)]
+    return eqs, u
+
+
+def _solve_all(eqs, syms):
+    try:
+        return sp.solve(eqs, syms, dict=True)
+    except NotImplementedError:
+        solutions = sp.nonlinsolve(eqs, syms)
+        if not isinstance(solutions, sp.FiniteSet):
+            raise
+        return [dict(zip(syms, sol)) for sol in solutions]
+
+
+def _exact_child(conn, eqs, syms):
+    """Runs in the forked child: solve, evaluate numerically, send back JSON (plain floats)."""
+    try:
+        out, continuum = [], False
+        for sol in _solve_all(eqs, syms):
+            if any(s not in sol for s in syms) or any(sol[s].free_symbols for s in syms):
+                continuum = True
+                continue
+            point = []
+            for s in syms:
+                try:
+                    z = complex(sp.N(sol[s], 30))
+                except (TypeError, ValueError):
+                    point = None
+                    break
+                if not (math.isfinite(z.real) and math.isfinite(z.imag)) or abs(z.imag) > 1e-12 * max(1.0, abs(z.real)):
+                    point = None
+                    break
+                point.append(z.real)
+            if point is not None:
+                out.append(point)
+        conn.send_bytes(json.dumps({"solutions": out, "continuum": continuum}).encode())
+    except Exception as exc:  # the child must always answer; the parent reports the reason
+        conn.send_bytes(json.dumps({"error": f"{type(exc).__name__}: {exc}"}).encode())
+    finally:
+        conn.close()
+
+
+def exact_solutions(system: CompiledSystem, p, timeout: float = 3.0, report=None) -> tuple[list, list[str]]:
+    """Real finite solutions from sympy, computed in a forked child killed after ``timeout`` seconds."""
+    notes: list[str] = []
+    if "fork" not in multiprocessing.get_all_start_methods():
+        return [], ["the exact solve needs the 'fork' start method, not available here; Newton search only"]
+    eqs, syms = _exact_equations(system, p)
+    ctx = multiprocessing.get_context("fork")
+    receive, send = ctx.Pipe(duplex=False)
+    child = ctx.Process(target=_exact_child, args=(send, eqs, syms), daemon=True)
+    child.start()
+    send.close()
+    waited, answer = 0.0, None
+    try:
+        while waited < timeout:
+            wait = min(0.05, timeout - waited)
+            if receive.poll(wait):
+                try:
+                    answer = json.loads(receive.recv_bytes().decode())
+                except (EOFError, OSError, ValueError):
+                    answer = {"error": "the exact solver stopped without an answer"}
+                break
+            if not child.is_alive() and not receive.poll(0):
+                answer = {"error": "the exact solver stopped without an answer"}
+                break
+            waited += wait
+            if report is not None:
+                report(min(waited / timeout, 1.0))
+    finally:
+        if child.is_alive():
+            child.kill()
+        child.join(1.0)
+        receive.close()
+    if answer is None:
+        notes.append(f"the exact solve did not finish within {timeout:g} s; Newton search only")
+        return [], notes
+    if "error" in answer:
+        notes.append(f"no exact solution ({answer['error']}); Newton search only")
+        return [], notes
+    if answer.get("continuum"):
+        notes.append("the equilibria include a curve or surface (a solution with a free coordinate)")
+    return [np.array(s, dtype=float) for s in answer["solutions"]], notes
+
+
+# ---------------------------------------------------------------- Newton search
+def default_box(system: CompiledSystem, p, u0=None, extra=()) -> dict[str, tuple[float, float]]:
+    """A search box around the initial values, the origin and known points, sized by the problem's scale."""
+    u0 = system.initial if u0 is None else np.asarray(u0, dtype=float)
+    values = [abs(v) for v in list(u0) + list(p) if math.isfinite(v)]
+    scale = max([1.0] + values)
+    box = {}
+    for i, name in enumerate(system.states):
+        known = [u0[i], 0.0] + [float(x[i]) for x in extra]
+        box[name] = (min(known) - 2 * scale, max(known) + 2 * scale)
+    return box
+
+
+class _Undefined(Exception):
+    pass
+
+
+def _residual_functions(system: CompiledSystem, p):
+    n = system.n_states
+    eye = np.eye(n)
+    is_map = system.kind == MAP
+
+    def G(x):
+        try:
+            value = system.rhs(0.0, x, p)
+        except (UndefinedValue, OverflowError):
+            raise _Undefined from None
+        return value - x if is_map else value
+
+    def DG(x):
+        try:
+            J = system.jac(0.0, x, p)
+        except (UndefinedValue, OverflowError):
+            raise _Undefined from None
+        return J - eye if is_map else J
+
+    return G, DG
+
+
+def _refine(G, DG, x, max_steps=100):
+    """Newton steps to full precision; returns (x, last step size, residual norm) or None."""
+    x = np.array(x, dtype=float)
+    r = G(x)
+    rn = float(np.linalg.norm(r))
+    step_norm, slow = math.inf, 0
+    for _ in range(max_steps):
+        if not np.all(np.isfinite(r)):
+            return None
+        if rn == 0.0:
+            step_norm = 0.0
+            break
+        J = DG(x)
+        if not np.all(np.isfinite(J)):
+            return None
+        try:
+            step = np.linalg.solve(J, -r)
+        except np.linalg.LinAlgError:  # exactly singular: the least-squares step
+            step = np.linalg.lstsq(J, -r, rcond=None)[0]
+        new = x + step
+        try:
+            r_new = G(new)
+        except _Undefined:
+            break
+        rn_new = float(np.linalg.norm(r_new))
+        if not np.isfinite(rn_new) or rn_new > rn:  # stuck at the rounding level
+            step_norm = min(step_norm, float(np.linalg.norm(step)))
+            break
+        new_norm = float(np.linalg.norm(step))
+        slow = slow + 1 if new_norm > 0.95 * step_norm else 0
+        step_norm = new_norm
+        x, r, rn = new, r_new, rn_new
+        if slow >= 5:  # not converging (a root at infinity, or a very high multiplicity)
+            break
+        if step_norm <= 1e-15 * max(1.0, float(np.linalg.norm(x))):
+            break
+    return x, step_norm, rn
+
+
+def _accept(refined, f_scale):
+    if refined is None:
+        return False
+    x, step, rn = refined
+    return (np.all(np.isfinite(x)) and step <= 1e-6 * max(1.0, float(np.linalg.norm(x)))
+            and rn <= 1e-8 * f_scale)
+
+
+def _same(a, b) -> bool:
+    """Points a, b = (x, step) are one equilibrium when closer than their own uncertainty."""
+    (xa, sa), (xb, sb) = a, b
+    gap = float(np.linalg.norm(xa - xb))
+    size = max(1.0, float(np.linalg.norm(xa)), float(np.linalg.norm(xb)))
+    return gap <= 1e-11 * size + 10.0 * (sa + sb)
+
+
+# ---------------------------------------------------------------- the search
+def find_equilibria(system: CompiledSystem, p=None, box: dict | None = None, starts: int = 200,
+                    exact: bool = True, exact_timeout: float = 3.0, cancel: CancelToken | None = None,
+                    progress=None, u0=None) -> Equilibria:
+    """Equilibria of a flow (fixed points of a map) with their classification, as an ``Equilibria`` list.
+
+    ``box`` ({state: (lo, hi)}, partial allowed) bounds the Newton starts; by default a box around the
+    initial values (``u0``, default the model's), the origin and the exact solutions. Raises ValueError
+    for a flow whose right-hand side depends on time at these parameter values (equilibria are then
+    not defined); a forcing term whose amplitude is zero does not count.
+    """
+    if not system.autonomous_at(p):
+        what = "step n" if system.kind == MAP else f"time {system.time_name}"
+        raise ValueError(f"the equations depend on the {what}, so the model has no "
+                         f"{'fixed points' if system.kind == MAP else 'equilibria'} in the usual sense; "
+                         "use a periodic orbit or a Poincaré section instead")
+    p = system.param_values.astype(float) if p is None else np.asarray(p, dtype=float)
+    report = Reporter(progress, cancel)
+    notes: list[str] = []
+    n = system.n_states
+    G, DG = _residual_functions(system, p)
+
+    exact_points: list[np.ndarray] = []
+    if exact:
+        exact_points, exact_notes = exact_solutions(system, p, exact_timeout, report.part(0.0, 0.3))
+        notes += exact_notes
+    report(0.3)
+
+    full_box = default_box(system, p, u0, exact_points)
+    for name, (lo, hi) in (box or {}).items():
+        if name not in system.states:
+            raise KeyError(f"unknown state '{name}' in the search box")
+        lo, hi = float(lo), float(hi)
+        if not (math.isfinite(lo) and math.isfinite(hi) and hi > lo):
+            raise ValueError(f"the search range of {name} must be finite with low < high")
+        full_box[name] = (lo, hi)
+    lows = np.array([full_box[s][0] for s in system.states])
+    highs = np.array([full_box[s][1] for s in system.states])
+    sampler = qmc.LatinHypercube(d=n, seed=12345)
+    points = qmc.scale(sampler.random(max(int(starts), 1)), lows, highs) if n > 0 else np.empty((0, 0))
+    u_start = system.initial if u0 is None else np.asarray(u0, dtype=float)
+    candidates = [np.asarray(u_start, dtype=float)] + list(points)
+
+    f_values = [np.abs(G(np.asarray(c))) for c in candidates[:20] if _safe(G, c) is not None]
+    f_scale = max([1.0] + [float(np.max(v)) for v in f_values if np.all(np.isfinite(v))])
+
+    found: list[list] = []  # [x, step, methods set]
+
+    def add(x, step, method):
+        for entry in found:
+            if _same((entry[0], entry[1]), (x, step)):
+                entry[2].add(method)
+                if method == EXACT:  # exact coordinates are the better ones
+                    entry[0], entry[1] = x, step
+                return
+        found.append([x, step, {method}])
+
+    for x in exact_points:
+        try:
+            refined = _refine(G, DG, x, max_steps=5)
+        except _Undefined:
+            refined = None
+        # keep the exact coordinates; the refinement only measures their uncertainty
+        step = refined[1] if refined is not None and math.isfinite(refined[1]) else 0.0
+        add(np.array(x, dtype=float), min(step, 1e-12 * max(1.0, float(np.linalg.norm(x)))), EXACT)
+
+    newton_report = report.part(0.3, 0.7)
+    for k, x0 in enumerate(candidates):
+        newton_report(k / len(candidates))
+        try:
+            with np.errstate(all="ignore"):
+                sol = root(G, x0, jac=DG, method="hybr")
+                refined = _refine(G, DG, sol.x)
+        except (_Undefined, np.linalg.LinAlgError, ValueError, FloatingPointError):
+            continue
+        if _accept(refined, f_scale) and _inside(refined[0], lows, highs):
+            add(refined[0], refined[1], NEWTON)
+    report(1.0)
+
+    results = []
+    for x, _step, methods in sorted(found, key=lambda e: tuple(np.round(e[0], 12))):
+        method = BOTH if len(methods) == 2 else next(iter(methods))
+        eq = _equilibrium(system, p, x, method)
+        if eq is not None:
+            results.append(eq)
+    results = wrap_equilibria(system, _thin_continuum(results, notes))  # an angle's turns are one point
+    if not results:
+        notes.append("no equilibrium found in the search box")
+    return Equilibria(results, notes, full_box)
+
+
+def _thin_continuum(results, notes, keep=5, limit=10):
+    """Many points with a zero eigenvalue from the Newton search lie on a curve or surface of
+    equilibria: list a few of them, say so, and keep every isolated point."""
+    def singular(eq):
+        zero = np.abs(eq.eigenvalues - (1.0 if eq.is_map else 0.0)) <= 1e-9 * max(1.0, float(np.max(np.abs(eq.eigenvalues))))
+        return bool(np.any(zero)) and eq.method == NEWTON
+    loose = [eq for eq in results if singular(eq)]
+    if len(loose) <= limit:
+        return results
+    shown = {id(loose[int(k)]) for k in np.linspace(0, len(loose) - 1, keep).round()}
+    message = (f"{len(loose)} of the points found are not isolated (the Jacobian is singular there): the "
+               f"equilibria form a curve or surface; {len(shown)} of them are listed")
+    if message not in notes:
+        notes.append(message)
+    return [eq for eq in results if not singular(eq) or id(eq) in shown]
+
+
+def _inside(x, lows, highs) -> bool:
+    margin = 1e-9 * np.maximum(1.0, np.maximum(np.abs(lows), np.abs(highs)))
+    return bool(np.all(x >= lows - margin) and np.all(x <= highs + margin))
+
+
+def _safe(G, x):
+    try:
+        return G(np.asarray(x, dtype=float))
+    except _Undefined:
+        return None
+
+
+def _equilibrium(system, p, x, method) -> Equilibrium | None:
+    try:
+        J = system.jac(0.0, x, p)
+    except UndefinedValue:
+        return None
+    if not np.all(np.isfinite(J)):
+        return None
+    is_map = system.kind == MAP
+    J = zero_round_off(J)
+    kind, stable, ns, nu, nc, warnings, values, vectors = classify(J, is_map)
+    if system.nonsmooth:
+        warnings.append(NONSMOOTH_WARNING.format(names=", ".join(system.nonsmooth)))
+    x = zero_round_off(np.where(np.abs(x) < 1e-300, 0.0, x))  # no negative zeros, no 6e-18 for 0
+    return Equilibrium({s: float(v) for s, v in zip(system.states, x)}, x, J, values, vectors, kind, stable,
+                       ns, nu, nc, method, warnings, is_map)
+
+
+__all__ = ["Equilibrium", "Equilibria", "find_equilibria", "classify", "exact_solutions", "default_box",
+           "Cancelled"]

@@ -1,0 +1,361 @@
+"""Lyapunov exponents: the full spectrum by the variational equations with QR, and the largest
+exponent by two nearby trajectories.
+
+Spectrum (Benettin, Galgani, Giorgilli, Strelcyn 1980; Wolf, Swift, Swinney, Vastano 1985): the
+tangent matrix Phi is carried along the orbit - flows: dPhi/dt = J(t, u) Phi, integrated with
+the state; maps: Phi -> J(u) Phi each step - and re-orthonormalised by modified Gram-Schmidt (a QR
+factorisation) every renormalisation interval; the logarithms of R's diagonal, averaged over the
+time after the transient, are the exponents. All of it runs in the compiled loops of
+``integrators/tangent.py`` on the model's kernel (J Phi through the sparse Jacobian).
+
+Flows step with the run's explicit method and tolerances (a stiff choice steps with Dormand-Prince
+8(5,3)), or with RK4 at a fixed ``dt`` when one is given; they are renormalised every
+``dt_renorm`` (default: five over the Jacobian's largest rate along the transient). A forced
+(non-autonomous) flow gets its n state exponents; the direction of time itself would add one zero
+exponent only if the forcing phase were a state, so none is reported for it.
+
+Models with kinks (abs, min, max, sign, heaviside, floor, mod) use the Jacobian that holds almost
+everywhere (Lozi map: 0.470, -1.163, Sprott 2003), with a note that says so. The largest exponent
+from two nearby trajectories stays as a cross-check that needs no Jacobian.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field, replace
+
+import numpy as np
+import sympy as sp
+
+from orbitdesk.engine.runs import CANCELLED, DIVERGED, OK, UNDEFINED, RunSettings, simulate
+from orbitdesk.engine.progress import Cancelled, Reporter
+from orbitdesk.system.compiled_system import MAP, CompiledSystem
+from orbitdesk.engine import compiled, drivers
+from orbitdesk.engine.status import word as status_word
+
+QR, TWO_TRAJECTORY = "qr", "two-trajectory"
+MAX_RUNNING = 5000  # rows of running estimates kept
+STEP_TOLERANCE = 1e-5  # local RK4 error per step, relative to max(1, |u|), accepted by the dt check
+RENORM_STEPS = 10  # renormalisation interval in steps of a given dt (flows)
+NONSMOOTH_NOTE = ("the model uses {names}: the exponents use the Jacobian that holds almost everywhere "
+                  "(kinks and jumps contribute nothing)")
+
+
+@dataclass
+class LyapunovResult:
+    exponents: np.ndarray  # descending
+    kind: str
+    method: str  # "qr" or "two-trajectory"
+    times: np.ndarray  # (K,) time (flows) or step (maps) of each running estimate
+    running: np.ndarray  # (K, m) the estimates after each renormalisation, columns as exponents
+    kaplan_yorke_dimension: float | None
+    averaged_over: float  # time (flows) or steps (maps) after the transient
+    dt: float | None = None  # fixed step of a flow
+    renorm_interval: float | None = None
+    status: str = OK
+    message: str = ""
+    warnings: list[str] = field(default_factory=list)
+
+    @property
+    def ok(self) -> bool:
+        return self.status == OK
+
+    @property
+    def largest(self) -> float:
+        return float(self.exponents[0]) if self.exponents.size else math.nan
+
+
+def kaplan_yorke_dimension(exponents) -> float:
+    """D = j + (l_1 + ... + l_j) / |l_{j+1}|, j the largest index with a non-negative partial sum."""
+    values = np.sort(np.asarray(exponents, dtype=float))[::-1]
+    if values.size == 0 or not np.all(np.isfinite(values)):
+        return math.nan
+    sums = np.cumsum(values)
+    nonneg = np.nonzero(sums >= 0)[0]
+    if nonneg.size == 0:
+        return 0.0
+    j = int(nonneg[-1]) + 1
+    if j == values.size:
+        return float(j)
+    return j + float(sums[j - 1]) / abs(float(values[j]))
+
+
+# ---------------------------------------------------------------- shared pieces
+def _span(system, settings, t_end, steps, transient):
+    """(start, end, transient) of a flow in time or of a map in steps; a tenth of the run by default."""
+    if system.kind == MAP:
+        end = int(settings.steps if steps is None else steps)
+        start = 0
+    else:
+        end = float(settings.t_end if t_end is None else t_end)
+        start = float(settings.t_start)
+    if transient is None:
+        transient = settings.transient if settings.transient > 0 else 0.1 * (end - start)
+    transient = int(round(transient)) if system.kind == MAP else float(transient)
+    if not (math.isfinite(float(end)) and math.isfinite(float(transient)) and transient >= 0):
+        raise ValueError("the run length and the transient must be finite, the transient non-negative")
+    if not end - start - transient > 0:
+        what = "steps" if system.kind == MAP else "the end time"
+        raise ValueError(f"{what} must leave a run after the transient (run {end - start:g}, transient {transient:g})")
+    return start, end, transient
+
+
+def _transient_flow(system, settings, u, p, t0, transient, cancel):
+    """The state after the transient and states along it (for choosing dt)."""
+    if transient <= 0:
+        return u, u.reshape(-1, 1), np.array([t0]), None
+    run = simulate(system, replace(settings, t_start=t0, t_end=t0 + transient, samples=200, transient=0.0),
+                   u, p, cancel=cancel)
+    if not run.ok:
+        return None, None, None, run
+    return run.final_state.copy(), run.states, run.time, None
+
+
+def _renorm_interval(system, p, samples, times, span):
+    """Five over the largest rate of the Jacobian along the transient (at most a hundredth of the run)."""
+    guess = span / 100.0
+    with np.errstate(all="ignore"):
+        jac = np.moveaxis(system.jac_vec(times, samples, p), -1, 0)
+    finite = np.all(np.isfinite(jac), axis=(1, 2))
+    if finite.any():
+        rate = float(np.max(np.abs(np.linalg.eigvals(jac[finite]))))
+        if rate > 0:
+            guess = min(guess, 5.0 / rate)
+    return guess
+
+
+def _stride(count):
+    return max(1, math.ceil(count / MAX_RUNNING))
+
+
+def _sorted_result(sums, rows, row_times, kind, method, averaged, **extra):
+    exponents = np.asarray(sums, dtype=float) / averaged if averaged > 0 else np.full(len(sums), np.nan)
+    order = np.argsort(-exponents, kind="stable")
+    running = np.asarray(rows, dtype=float).reshape(-1, len(sums))[:, order]
+    exponents = exponents[order]
+    dimension = kaplan_yorke_dimension(exponents) if method == QR else None
+    return LyapunovResult(exponents, kind, method, np.asarray(row_times, dtype=float), running, dimension,
+                          averaged, **extra)
+
+
+# ---------------------------------------------------------------- spectrum
+def lyapunov_spectrum(system: CompiledSystem, p=None, u0=None, t_end: float | None = None,
+                      steps: int | None = None, transient: float | None = None,
+                      dt_renorm: float | None = None, dt: float | None = None,
+                      settings: RunSettings | None = None, cancel=None, progress=None) -> LyapunovResult:
+    """All n exponents, in descending order, with running estimates and the Kaplan-Yorke dimension.
+
+    Flows run from ``settings.t_start`` to ``t_end`` (default ``settings.t_end``); maps for
+    ``steps`` iterations (default ``settings.steps``). The first ``transient`` (default
+    ``settings.transient``, or a tenth of the run) is discarded. ``dt_renorm``: time between
+    re-orthonormalisations of a flow; ``dt``: a fixed RK4 step instead of the adaptive method.
+    """
+    settings = settings or RunSettings()
+    p = system.param_values.copy() if p is None else np.asarray(p, dtype=float)
+    u = system.initial.copy() if u0 is None else np.asarray(u0, dtype=float)
+    start, end, transient = _span(system, settings, t_end, steps, transient)
+    if system.kind == MAP:
+        result = _map_spectrum(system, p, u, end, transient, settings.bound, Reporter(progress, cancel))
+    else:
+        result = _flow_spectrum(system, p, u, start, end, transient, dt_renorm, dt, settings, cancel, progress)
+    if system.nonsmooth:
+        result.warnings.insert(0, NONSMOOTH_NOTE.format(names=", ".join(f"{f}()" for f in system.nonsmooth)))
+    return result
+
+
+def _failed(kind, method, status, message, n, **extra):
+    return LyapunovResult(np.full(n, np.nan), kind, method, np.empty(0), np.empty((0, n)), None, 0.0,
+                          status=status, message=message, **extra)
+
+
+def _flow_spectrum(system, p, u, t0, t1, transient, dt_renorm, dt, settings, cancel, progress):
+    n = system.n_states
+    report = Reporter(progress, cancel)
+    u, samples, times, failed = _transient_flow(system, settings, u, p, t0, transient, cancel)
+    if failed is not None:
+        return _failed("flow", QR, failed.status, f"during the transient: {failed.message}", n)
+    ts = t0 + transient
+    interval = float(dt_renorm) if dt_renorm is not None else _renorm_interval(system, p, samples, times, t1 - ts)
+    if not (math.isfinite(interval) and interval > 0):
+        raise ValueError("the renormalisation interval must be positive")
+    method = "rk4" if dt is not None else (settings.method if settings.method_info.family == "explicit_rk"
+                                           else "dop853")
+    step = float(dt) if dt is not None else settings.dt
+    if not (math.isfinite(step) and step > 0):
+        raise ValueError("the step dt must be positive")
+    if dt is not None and dt_renorm is None:
+        interval = RENORM_STEPS * step
+    engine = compiled.engine_for_work(system, (t1 - ts) * 1500 * (n + 1) * max(1.0, n / 3))
+    with np.errstate(all="ignore"):
+        out = drivers.flow_tangent(engine, method, ts, t1, ts, u, np.eye(n), p, interval, settings.rtol,
+                                   settings.atol, settings.max_step, step, settings.bound, MAX_RUNNING, report)
+    status, message = status_word(out.code), ""
+    if out.code != 0:
+        where = f"{system.time_name} = {out.t:.6g}"
+        message = {"diverged": f"the solution blows up near {where}",
+                   "undefined": (system.explain_undefined(out.t, out.y, p) or
+                                 f"an expression is undefined (or the tangent vectors collapsed) near {where}"),
+                   "step_failed": f"the step size collapsed near {where}; the system may be stiff",
+                   "cancelled": "cancelled"}[status]
+    return _sorted_result(out.sums, out.rows, out.row_t, "flow", QR, out.averaged,
+                          dt=step if method == "rk4" else None, renorm_interval=interval,
+                          status=status, message=message)
+
+
+def _map_spectrum(system, p, u, steps, transient, bound, report):
+    n = system.n_states
+    engine = compiled.engine_for_work(system, steps * (n + 1) * max(1.0, n / 3))
+    with np.errstate(all="ignore"):
+        orbit, code = drivers.map_run(engine, 0, transient, u, p, bound)
+        if code:
+            k = orbit.shape[1] - 1
+            message = (f"the orbit escapes to infinity during the transient (n = {k + 1})" if code == 1 else
+                       system.explain_undefined(k, orbit[:, -1], p) or f"undefined value at n = {k}")
+            return _failed("map", QR, status_word(code), message, n)
+        out = drivers.map_tangent(engine, transient, steps, transient, orbit[:, -1], np.eye(n), p, bound,
+                                  MAX_RUNNING, report)
+    status, message, warnings = status_word(out.code), "", []
+    k = int(out.t)
+    if status == "cancelled":
+        message = "cancelled"
+    elif status == "diverged":
+        message = f"the orbit escapes to infinity at n = {k + 1}"
+    elif status == "undefined":
+        if _defined(system, k, out.y, p) and np.all(np.isfinite(system.rhs(k, out.y, p))):
+            message = (f"the Jacobian is singular on the orbit at n = {k} (a critical point): "
+                       "the exponent is minus infinity for this orbit; start elsewhere")
+        else:
+            message = system.explain_undefined(k, out.y, p) or f"undefined value at n = {k}"
+    if status != "diverged" and _defined(system, k, out.y, p) and np.array_equal(system.rhs(k, out.y, p), out.y):
+        warnings.append("the orbit sits exactly on a fixed point (round-off); the exponents are that fixed point's")
+    return _sorted_result(out.sums, out.rows, out.row_t, "map", QR, out.averaged, status=status,
+                          message=message, warnings=warnings)
+
+
+def _defined(system, k, y, p) -> bool:
+    try:
+        system.rhs(k, y, p)
+    except ArithmeticError:
+        return False
+    return True
+
+
+# ---------------------------------------------------------------- two trajectories
+def largest_lyapunov_two_trajectory(system: CompiledSystem, p=None, u0=None, t_end: float | None = None,
+                                    steps: int | None = None, transient: float | None = None,
+                                    d0: float = 1e-8, renorm_every: float | None = None,
+                                    dt: float | None = None, settings: RunSettings | None = None,
+                                    cancel=None, progress=None) -> LyapunovResult:
+    """The largest exponent from a reference orbit and a companion started ``d0`` away, pulled back
+    to distance ``d0`` along their separation every ``renorm_every`` (Benettin et al. 1976/1980).
+
+    Needs no Jacobian, so it serves non-smooth models. Flows: ``renorm_every`` is a time (default
+    10 steps of dt); maps: a number of steps (default 1). Distances are Euclidean in the states.
+    """
+    settings = settings or RunSettings()
+    if not (math.isfinite(d0) and d0 > 0):
+        raise ValueError("d0 must be a small positive distance")
+    p = system.param_values.copy() if p is None else np.asarray(p, dtype=float)
+    u = system.initial.copy() if u0 is None else np.asarray(u0, dtype=float)
+    start, end, transient = _span(system, settings, t_end, steps, transient)
+    n = system.n_states
+    report = Reporter(progress, cancel)
+    direction = [1.0 / math.sqrt(n)] * n
+    if system.kind == MAP:
+        return _map_pair(system, p, u, end, transient, d0, renorm_every, direction, settings.bound, report)
+    u, samples, times, failed = _transient_flow(system, settings, u, p, start, transient, cancel)
+    if failed is not None:
+        return _failed("flow", TWO_TRAJECTORY, failed.status, f"during the transient: {failed.message}", 1)
+    ts = start + transient
+    if dt is None:
+        dt = min(_renorm_interval(system, p, samples, times, end - ts) / RENORM_STEPS, (end - ts) / 1000.0)
+    n_steps = max(1, math.ceil((end - ts) / dt - 1e-9))
+    dt = (end - ts) / n_steps
+    every = RENORM_STEPS if renorm_every is None else max(1, int(round(float(renorm_every) / dt)))
+    engine = compiled.engine_for_work(system, 8 * n_steps * max(1.0, n / 3))
+    a = np.asarray(u, dtype=float)
+    b = a + d0 * np.asarray(direction)
+    total, done, renorms = 0.0, 0, 0
+    rows, row_times = [], []
+    stride = _stride(math.ceil(n_steps / every))
+    status, message = OK, ""
+    while done < n_steps and status == OK:
+        block = min(every, n_steps - done)
+        t, t_next = ts + done * dt, ts + (done + block) * dt
+        runs = [drivers.flow_run(engine, "rk4", t, t_next, y, p, dt=dt, bound=settings.bound, grid=[t_next])
+                for y in (a, b)]
+        codes = [r.code for r in runs]
+        if any(codes):
+            status = status_word(max(codes))
+            where = f"{system.time_name} = {t:.6g}"
+            message = (f"the solution blows up near {where}" if status == DIVERGED else
+                       system.explain_undefined(t, a, p) or f"an expression is undefined near {where}")
+            break
+        done += block
+        a, b = runs[0].states[:, -1], runs[1].states[:, -1]
+        sep = b - a
+        dist = float(np.linalg.norm(sep))
+        if not dist > 0:
+            status, message = UNDEFINED, f"the two trajectories merged near {system.time_name} = {t_next:.6g}"
+            break
+        total += math.log(dist / d0)
+        b = a + d0 * sep / dist
+        renorms += 1
+        if renorms % stride == 0 or done == n_steps:
+            rows.append([total / (t_next - ts)])
+            row_times.append(t_next)
+        if renorms % 50 == 0:
+            try:
+                report(done / n_steps)
+            except Cancelled:
+                status, message = CANCELLED, "cancelled"
+    averaged = done * dt if status == OK else (row_times[-1] - ts if row_times else 0.0)
+    if status != OK and row_times:
+        total = rows[-1][0] * averaged
+    return _sorted_result([total], rows, row_times, "flow", TWO_TRAJECTORY, averaged, dt=dt,
+                          renorm_interval=every * dt, status=status, message=message)
+
+
+def _map_pair(system, p, u, steps, transient, d0, renorm_every, direction, bound, report):
+    f = system.rhs_function(p)
+    every = 1 if renorm_every is None else max(1, int(round(renorm_every)))
+    a = [float(v) for v in u]
+    k, total, measured = 0, 0.0, 0  # measured: iterations whose growth is in total
+    rows, row_times = [], []
+    run = steps - transient
+    stride = _stride(math.ceil(run / every))
+    status, message = OK, ""
+    try:
+        for k in range(transient):
+            a = list(f(k, a))
+        b = [x + d0 * s for x, s in zip(a, direction)]
+        renorms = 0
+        for k in range(transient, steps):
+            a, b = list(f(k, a)), list(f(k, b))
+            if not all(abs(v) <= bound for v in a):
+                status, message = DIVERGED, f"the orbit escapes to infinity at n = {k + 1}"
+                break
+            done = k + 1 - transient
+            if done % every == 0 or done == run:
+                sep = [y - x for x, y in zip(a, b)]
+                dist = math.sqrt(sum(s * s for s in sep))
+                if not dist > 0:
+                    raise ZeroDivisionError("the two orbits merged")
+                total += math.log(dist / d0)
+                measured = done
+                b = [x + d0 * s / dist for x, s in zip(a, sep)]
+                renorms += 1
+                if renorms % stride == 0 or done == run:
+                    rows.append([total / done])
+                    row_times.append(k + 1)
+            if done % 2000 == 0:
+                report(done / run)
+    except OverflowError:
+        status, message = DIVERGED, f"the orbit escapes to infinity at n = {k + 1}"
+    except (ValueError, ZeroDivisionError, TypeError) as err:
+        status = UNDEFINED
+        message = system.explain_undefined(k, a, p) or f"{err} at n = {k}"
+    except Cancelled:
+        status, message = CANCELLED, "cancelled"
+    return _sorted_result([total], rows, row_times, "map", TWO_TRAJECTORY, float(measured), status=status,
+                          message=message)

@@ -1,0 +1,138 @@
+"""The project's measured data sets and fit results as the app sees them (one per Session).
+
+``data_store(session)`` returns the store, created on first use. Data sets live in
+``session.project.datasets`` (saved with the project); adding, removing and editing them, applying
+fitted values and keeping them as a named parameter set are undoable commands on the session's stack.
+The latest fit result and the residuals on screen are not saved.
+"""
+
+from __future__ import annotations
+
+import copy
+
+from PySide6.QtCore import QObject, Signal
+from PySide6.QtGui import QUndoCommand
+
+from orbitdesk.document.datasets import DataSet, unique_name
+
+
+class _Replace(QUndoCommand):
+    """Swap the list of data sets (or the kept parameter sets) for another."""
+
+    def __init__(self, store: "DataStore", label: str, attr: str, old, new):
+        super().__init__(label)
+        self.store, self.attr, self.old, self.new = store, attr, old, new
+
+    def redo(self):
+        self.store._set(self.attr, self.new)
+
+    def undo(self):
+        self.store._set(self.attr, self.old)
+
+
+class _ApplyValues(QUndoCommand):
+    """Put fitted values into the model's parameters and initial values (one undo step)."""
+
+    def __init__(self, session, label: str, params: dict, initial: dict):
+        super().__init__(label)
+        self.s = session
+        self.old = (dict(session.params), dict(session.initial))
+        self.new = ({**session.params, **params}, {**session.initial, **initial})
+
+    def redo(self):
+        self.s._apply_values(*self.new)
+
+    def undo(self):
+        self.s._apply_values(*self.old)
+
+
+class DataStore(QObject):
+    changed = Signal()           # data sets, kept parameter sets or residuals changed
+    resultChanged = Signal(object)  # the latest FitResult (or None)
+
+    def __init__(self, session):
+        super().__init__(session)
+        self.session = session
+        self.result = None
+        self.residuals: dict[str, dict] = {}   # data set name -> {quantity: model value at each sample}
+        self.show_residuals = False
+        session.projectLoaded.connect(self._on_project_loaded)
+        session.systemChanged.connect(lambda _s: self.clear_residuals())
+        session.valuesChanged.connect(self.clear_residuals)
+
+    # ------------------------------------------------------------ reading
+    @property
+    def datasets(self) -> list[DataSet]:
+        return list(self.session.project.datasets)
+
+    @property
+    def parameter_sets(self) -> dict[str, dict]:
+        return dict(self.session.project.parameter_sets)
+
+    def get(self, name: str) -> DataSet | None:
+        for d in self.session.project.datasets:
+            if d.name == name:
+                return d
+        return None
+
+    # ------------------------------------------------------------ edits (undoable)
+    def add(self, dataset: DataSet) -> DataSet:
+        dataset = copy.copy(dataset)
+        dataset.name = unique_name(dataset.name, [d.name for d in self.datasets])
+        self._push(f"Import data {dataset.name}", "datasets", self.datasets + [dataset])
+        return dataset
+
+    def remove(self, name: str) -> None:
+        self._push(f"Remove data {name}", "datasets", [d for d in self.datasets if d.name != name])
+
+    def replace(self, name: str, dataset: DataSet, label: str) -> None:
+        self._push(label, "datasets", [dataset if d.name == name else d for d in self.datasets])
+
+    def keep_parameter_set(self, name: str, values: dict) -> str:
+        sets = self.parameter_sets
+        name = unique_name(name, sets)
+        sets[name] = {k: float(v) for k, v in values.items()}
+        self._push(f"Keep parameter set {name}", "parameter_sets", sets)
+        return name
+
+    def apply_values(self, params: dict, initial: dict, label: str = "Apply fitted values") -> None:
+        self.session.undo_stack.push(_ApplyValues(self.session, label, params, initial))
+
+    def _push(self, label, attr, new) -> None:
+        old = copy.copy(getattr(self.session.project, attr))
+        self.session.undo_stack.push(_Replace(self, label, attr, old, new))
+
+    def _set(self, attr, value) -> None:
+        setattr(self.session.project, attr, copy.copy(value))
+        if attr == "datasets":
+            names = {d.name for d in value}
+            self.residuals = {k: v for k, v in self.residuals.items() if k in names}
+        self.changed.emit()
+
+    # ------------------------------------------------------------ results (not saved)
+    def set_result(self, result) -> None:
+        self.result = result
+        self.resultChanged.emit(result)
+
+    def set_residuals(self, residuals: dict) -> None:
+        self.residuals = dict(residuals)
+        self.show_residuals = True
+        self.changed.emit()
+
+    def clear_residuals(self) -> None:
+        if self.residuals or self.show_residuals:
+            self.residuals, self.show_residuals = {}, False
+            self.changed.emit()
+
+    def _on_project_loaded(self) -> None:
+        self.residuals, self.show_residuals = {}, False
+        self.set_result(None)
+        self.changed.emit()
+
+
+def data_store(session) -> DataStore:
+    store = getattr(session, "_data_store", None)
+    if store is None:
+        store = DataStore(session)
+        session._data_store = store
+    return store

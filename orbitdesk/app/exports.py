@@ -1,0 +1,280 @@
+"""File > Export: the model as LaTeX, a standalone Python script reproducing the run, and an HTML report
+with pictures of the open views. The texts come from the core (export_latex, export_script, report);
+this module gathers what is on screen and writes the files."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from PySide6.QtGui import QAction
+from PySide6.QtWidgets import QFileDialog, QMenu
+
+from orbitdesk.app.plain_text import plain_message
+
+LATEX_DOCUMENT = "LaTeX document (*.tex)"
+LATEX_SNIPPET = "LaTeX equations only, to paste into a document (*.tex)"
+NO_FIGURE_VIEWS = ("equilibria",)   # the report lists equilibria as a table of its own
+
+
+class ExportError(Exception):
+    """Something the user must fix before exporting (plain words)."""
+
+
+def _checked_model(session):
+    parsed = session.parsed
+    if parsed is None:
+        session.validate_now()
+        parsed = session.parsed
+    if parsed is None or not parsed.ok:
+        raise ExportError("the model has errors; fix them first (see the Problems list)")
+    return parsed
+
+
+def _current_system(session):
+    _checked_model(session)
+    system = session.system
+    if system is None or list(system.states) != list(session.parsed.states):
+        raise ExportError("the model is still being compiled; try again in a moment")
+    return system
+
+
+# ---------------------------------------------------------------- texts
+
+def latex_text(session, standalone: bool = True) -> str:
+    from orbitdesk.exports.latex import model_latex
+
+    parsed = _checked_model(session)
+    params = {n: v for n, v in session.params.items() if n in parsed.parameters}
+    initial = {n: v for n, v in session.initial.items() if n in parsed.states}
+    return model_latex(parsed, params, initial, standalone=standalone, title=session.name)
+
+
+def script_text(session, csv_name: str = "run.csv") -> str:
+    from orbitdesk.exports.run_script import run_script
+
+    system = _current_system(session)
+    try:
+        settings = session.run_settings()
+    except (TypeError, ValueError) as e:
+        raise ExportError(f"the solver settings are not usable: {e}") from None
+    try:
+        return run_script(system, settings, session.initial_vector(), session.param_vector(),
+                          title=session.name, output=csv_name)
+    except ValueError as e:
+        raise ExportError(str(e)) from None
+
+
+def view_figures(window) -> dict[str, bytes]:
+    """Caption -> PNG of every plot of every view the window has made (in sight, behind a tab or closed),
+    drawn off screen at one fixed, readable size from what each plot holds, fitted to its data (plots
+    without data are left out); the 3D scene rendered at that size too when it has drawn once."""
+    from orbitdesk.app.plots import figures
+
+    found: dict[str, bytes] = {}
+
+    def add(caption, data):
+        name, k = caption, 2
+        while name in found:
+            name, k = f"{caption} ({k})", k + 1
+        found[name] = data
+
+    for module, view in window.views.items():
+        if module in NO_FIGURE_VIEWS:
+            continue
+        for choice in figures.view_plots(view, module):
+            if figures.has_data(choice.plot):
+                add(choice.caption, figures.png_data(figures.plot_image(
+                    choice.plot, *figures.REPORT_SIZE, legend=figures.has_named_curves(choice.plot), host=view,
+                    fit=True)))
+        image = figures.scene_image(view, *figures.REPORT_SIZE)
+        if image is not None:
+            add(_caption(view), figures.png_data(image))
+    return found
+
+
+def view_results(window) -> dict:
+    """The computed results the report gives the numbers of (``core.report._results_html``)."""
+    out = {}
+    for module, key in (("lyapunov", "lyapunov"), ("sweep", "sweep"), ("sections", "section")):
+        view = window.views.get(module)
+        result = getattr(view, "result", None) if view is not None else None
+        if result is not None:
+            out[key] = result
+    return out
+
+
+def _caption(view) -> str:
+    title = getattr(view, "title", "View")
+    try:
+        d = view.view_settings()
+    except Exception:  # noqa: BLE001
+        return title
+    if isinstance(d.get("axes"), list) and all(isinstance(a, str) for a in d["axes"]):
+        return f"{title}: {', '.join(d['axes'])}"
+    return title
+
+
+def _view_equilibria(window, system):
+    view = window.views.get("equilibria")
+    if view is None or getattr(view, "system", None) is not system:
+        return None
+    found = getattr(view, "equilibria", None)
+    return list(found) if found else None
+
+
+def report_html(window, equilibria=None) -> str:
+    from orbitdesk.exports.report import render_report
+
+    session = window.session
+    system = _current_system(session)
+    project = session.to_project()
+    if equilibria is None:
+        equilibria = _view_equilibria(window, system)
+    fit = getattr(getattr(session, "_data_store", None), "result", None)  # the Fit panel's latest result
+    return render_report(project, system, view_figures(window), equilibria=equilibria,
+                         results=view_results(window), fit=fit)
+
+
+# ---------------------------------------------------------------- writing
+
+def _write(path, text: str, executable: bool = False) -> Path:
+    from orbitdesk.document.safe_files import atomic_write
+
+    path = Path(path)
+    try:  # complete or not at all
+        atomic_write(str(path), text.encode("utf-8"), 0o755 if executable else None)
+    except OSError as e:
+        raise ExportError(f"cannot write {path.name}: {e.strerror or e}") from None
+    return path
+
+
+def export_latex(window, path, standalone: bool = True) -> Path:
+    return _write(path, latex_text(window.session, standalone))
+
+
+def export_script(window, path) -> Path:
+    path = Path(path)
+    return _write(path, script_text(window.session, path.with_suffix(".csv").name), executable=True)
+
+
+def export_report(window, path, on_done=None, search_equilibria: bool = True) -> None:
+    """Write the report. Equilibria come from the Equilibria view when it has them; otherwise they are
+    searched for first on a worker thread (autonomous models), and the file is written when that ends.
+    ``on_done(path or None, message)`` is called on the GUI thread in every case."""
+    session = window.session
+    path = Path(path)
+
+    def finish(equilibria):
+        try:
+            written = _write(path, report_html(window, equilibria))
+        except ExportError as e:
+            _done(None, str(e))
+            return
+        _done(written, "")
+
+    def _done(written, message):
+        if on_done is not None:
+            on_done(written, message)
+
+    try:
+        system = _current_system(session)
+    except ExportError as e:
+        _done(None, str(e))
+        return
+    equilibria = _view_equilibria(window, system)
+    if equilibria is not None or not search_equilibria or not system.autonomous_at(session.param_vector()):
+        finish(equilibria)
+        return
+    p, u0 = session.param_vector(), session.initial_vector()
+
+    def job(cancel, report):
+        from orbitdesk.analyses.equilibria import find_equilibria
+
+        return find_equilibria(system, p, u0=u0, exact_timeout=2.0, cancel=cancel, progress=report)
+
+    window.statusBar().showMessage("Looking for equilibria for the report…")
+    session.jobs.submit("export_report", job, finish, on_error=lambda _msg: finish(None))
+
+
+# ---------------------------------------------------------------- dialogs and menu
+
+def _start(window, suffix: str) -> str:
+    s = window.session
+    folder = s.path.parent if s.path is not None else Path.home()
+    stem = s.path.stem if s.path is not None else (s.name or "model")
+    return str(folder / f"{stem}{suffix}")
+
+
+def _ask_path(window, title: str, suffix: str, filters: str):
+    path, chosen = QFileDialog.getSaveFileName(window, title, _start(window, suffix), filters)
+    if not path:
+        return None, chosen
+    if not path.lower().endswith(suffix):
+        path += suffix
+    return Path(path), chosen
+
+
+def _report(window, ok: bool, what: str, path=None, message: str = "") -> bool:
+    if ok:
+        window.statusBar().showMessage(f"Exported {what} to {Path(path).name}", 8000)
+    else:
+        plain_message(window, "warning", "Export", f"Could not export {what}: {message}")
+    return ok
+
+
+def export_latex_dialog(window) -> bool:
+    path, chosen = _ask_path(window, "Export Model as LaTeX", ".tex", f"{LATEX_DOCUMENT};;{LATEX_SNIPPET}")
+    if path is None:
+        return False
+    try:
+        export_latex(window, path, standalone=chosen != LATEX_SNIPPET)
+    except (ExportError, ValueError) as e:
+        return _report(window, False, "the model as LaTeX", message=str(e))
+    return _report(window, True, "the model as LaTeX", path)
+
+
+def export_script_dialog(window) -> bool:
+    path, _ = _ask_path(window, "Export Standalone Python Script", ".py", "Python script (*.py)")
+    if path is None:
+        return False
+    try:
+        export_script(window, path)
+    except ExportError as e:
+        return _report(window, False, "the script", message=str(e))
+    return _report(window, True, "a script that reproduces the run", path)
+
+
+def export_report_dialog(window) -> bool:
+    path, _ = _ask_path(window, "Export HTML Report", ".html", "HTML report (*.html)")
+    if path is None:
+        return False
+    export_report(window, path, on_done=lambda written, message: _report(
+        window, written is not None, "the report", written, message))
+    return True
+
+
+def install(window) -> None:
+    """File > Export > Model as LaTeX…, Standalone Python Script…, HTML Report… (above Quit)."""
+    menu = QMenu("E&xport", window.file_menu)
+    menu.setToolTipsVisible(True)
+    entries = (
+        ("Model as &LaTeX…", export_latex_dialog,
+         "The equations, parameters and initial values as LaTeX (a document, or the equations alone)"),
+        ("Standalone &Python Script…", export_script_dialog,
+         "A Python script (numpy and scipy only) that reproduces the current run and writes it as CSV"),
+        ("HTML &Report…", export_report_dialog,
+         "One self-contained web page: the model, values, equilibria, pictures of the open views, the "
+         "walkthrough"),
+    )
+    actions = []
+    for text, fn, tip in entries:
+        action = QAction(text, window)
+        action.setToolTip(tip)
+        action.setStatusTip(tip)
+        action.triggered.connect(lambda _=False, fn=fn: fn(window))
+        menu.addAction(action)
+        actions.append(action)
+    window.file_menu.insertMenu(window.quit_action, menu)
+    window.file_menu.insertSeparator(window.quit_action)
+    window.export_menu = menu
+    window.export_latex_action, window.export_script_action, window.export_report_action = actions

@@ -1,0 +1,889 @@
+"""The main window: a model panel, dockable views, a run bar with a shared time cursor, menus."""
+
+from __future__ import annotations
+
+import importlib
+import logging
+from pathlib import Path
+
+import numpy as np
+from PySide6.QtCore import QByteArray, QSettings, QSize, Qt, QTimer, Signal
+from PySide6.QtGui import QAction, QKeySequence
+from PySide6.QtWidgets import (QApplication, QComboBox, QDockWidget, QDoubleSpinBox, QFileDialog, QLabel,
+                               QMainWindow, QMessageBox, QProgressBar, QPushButton, QSizePolicy, QSlider,
+                               QSpinBox, QSplitter, QStyle, QTabWidget, QToolBar, QToolButton, QVBoxLayout,
+                               QWidget)
+
+from orbitdesk.exports.csv_table import write_csv
+from orbitdesk.engine.methods import METHODS
+from orbitdesk.engine.settings import SettingsError
+from orbitdesk.document.project import ProjectError
+
+from orbitdesk.app import views as views_pkg
+from orbitdesk.app.errors import Notices
+from orbitdesk.app.file_guard import DocumentGuard
+from orbitdesk.app.plain_text import menu_text, plain_message, rich_tip
+from orbitdesk.app.result_store import RESULTS_KEY
+from orbitdesk.app.session import Session
+
+log = logging.getLogger("orbitdesk.app.main_window")
+
+APP_NAME = "OrbitDesk"
+MAX_RECENT = 8
+WINDOW_KEY = "_window"
+PROJECT_FILTER = "OrbitDesk projects (*.orbitdesk)"
+OPEN_FILTER = "OrbitDesk projects and models (*.orbitdesk *.txt *.model);;Model text (*.txt *.model);;All files (*)"
+SLIDER_STEPS = 1000
+PLAY_SECONDS = 8.0
+PLAY_INTERVAL_MS = 30
+
+# Model panel parts written elsewhere: (module, class, title, placeholder text)
+PANEL_PARTS = [
+    ("editor", "EquationEditor", "Model", "The model editor is not available in this build."),
+    ("editor", "DiagnosticsList", "Problems", ""),
+    ("parameters", "ParameterPanel", "Values", "The parameter panel is not available in this build."),
+    ("readback", "ModelReadback", "Read-back", "The model read-back is not available in this build."),
+]
+TABBED_PARTS = ("ParameterPanel", "ModelReadback")  # tabs in the lower part of the model panel, in this order
+
+
+def settings() -> QSettings:
+    return QSettings(APP_NAME, APP_NAME)
+
+
+def _number_text(x: float) -> str:
+    return f"{x:.6g}"
+
+
+class _Placeholder(QLabel):
+    def __init__(self, text: str, parent=None):
+        super().__init__(text, parent)
+        self.setAlignment(Qt.AlignmentFlag.AlignCenter)
+        self.setWordWrap(True)
+        self.setStyleSheet("color: palette(placeholder-text); padding: 12px;")
+
+
+class RunBar(QToolBar):
+    """Method, end time / steps, samples, Run, and the time cursor (play and scrub)."""
+
+    def __init__(self, window: "MainWindow"):
+        super().__init__("Run bar", window)
+        self.setObjectName("run_bar")
+        self.setMovable(False)
+        self.setIconSize(QSize(18, 18))
+        self.session = window.session
+        self._syncing = False
+
+        self.addAction(window.run_action)
+        self.addSeparator()
+        self.method = QComboBox()
+        for entry in METHODS.values():
+            self.method.addItem(entry.summary, entry.name)
+        self.method.setToolTip("Integration method for flows")
+        self.method.currentIndexChanged.connect(self._method_changed)
+        self.t_end_label = QLabel(" until t = ")
+        self.t_end = QDoubleSpinBox()
+        self.t_end.setRange(-1e9, 1e9)
+        self.t_end.setDecimals(3)
+        self.t_end.setKeyboardTracking(False)
+        self.t_end.setToolTip("End time of the run")
+        self.t_end.setMaximumWidth(120)
+        self.t_end.valueChanged.connect(lambda v: self._set(t_end=float(v)))
+        self.steps = QSpinBox()
+        self.steps.setRange(1, 10**8)
+        self.steps.setKeyboardTracking(False)
+        self.steps.setToolTip("Number of iterations of the map")
+        self.steps.setMaximumWidth(120)
+        self.steps.valueChanged.connect(lambda v: self._set(steps=int(v)))
+        self.samples_label = QLabel("  samples ")
+        self.samples = QSpinBox()
+        self.samples.setRange(2, 10**7)
+        self.samples.setSingleStep(1000)
+        self.samples.setKeyboardTracking(False)
+        self.samples.setToolTip("Number of evenly spaced output points of a run")
+        self.samples.valueChanged.connect(lambda v: self._set(samples=int(v)))
+        self.method_action = self.addWidget(self.method)
+        self.addWidget(self.t_end_label)
+        self.t_end_action = self.addWidget(self.t_end)
+        self.steps_action = self.addWidget(self.steps)
+        self.samples_label_action = self.addWidget(self.samples_label)
+        self.samples_action = self.addWidget(self.samples)
+        self.addSeparator()
+
+        self.play = QToolButton()
+        self.play.setCheckable(True)
+        self.play.setToolButtonStyle(Qt.ToolButtonStyle.ToolButtonTextBesideIcon)
+        self.play.setIcon(self.style().standardIcon(QStyle.StandardPixmap.SP_MediaPlay))
+        self.play.setText("Play")
+        self.play.setToolTip("Move the time cursor through the run (Space when the slider has focus)")
+        self.play.toggled.connect(self._play_toggled)
+        self.slider = QSlider(Qt.Orientation.Horizontal)
+        self.slider.setRange(0, SLIDER_STEPS)
+        self.slider.setValue(SLIDER_STEPS)
+        self.slider.setMinimumWidth(180)
+        self.slider.setSizePolicy(QSizePolicy.Policy.Expanding, QSizePolicy.Policy.Preferred)
+        self.slider.setToolTip("Time cursor shared by the views: drag to scrub")
+        self.slider.valueChanged.connect(self._slider_moved)
+        self.time_label = QLabel()
+        self.time_label.setMinimumWidth(110)
+        self.time_label.setToolTip("Time at the cursor")
+        self.addWidget(QLabel(" Time cursor "))
+        self.addWidget(self.play)
+        self.addWidget(self.slider)
+        self.addWidget(self.time_label)
+        self._timer = QTimer(self, interval=PLAY_INTERVAL_MS)
+        self._timer.timeout.connect(self._tick)
+
+        s = self.session
+        s.settingsChanged.connect(self.sync)
+        s.systemChanged.connect(self.sync)
+        s.projectLoaded.connect(self.sync)
+        s.timeCursorChanged.connect(self._cursor_changed)
+        s.trajectoryChanged.connect(lambda _t: self._cursor_changed(s.time_cursor))
+        self.sync()
+
+    # ------------------------------------------------------------ settings
+    def _set(self, **changes) -> None:
+        if not self._syncing:
+            try:
+                self.session.set_solver(**changes)
+            except SettingsError as problem:
+                self.window().statusBar().showMessage(f"Not changed: {problem}", 8000)
+                self.sync()
+
+    def _method_changed(self, _index) -> None:
+        self._set(method=self.method.currentData())
+
+    def sync(self, *_args) -> None:
+        s, solver = self.session, self.session.solver
+        self._syncing = True
+        try:
+            self.method.setCurrentIndex(max(0, self.method.findData(solver.method)))
+            self.t_end.setValue(solver.t_end)
+            self.steps.setValue(solver.steps)
+            self.samples.setValue(solver.samples)
+        finally:
+            self._syncing = False
+        is_map = s.system is not None and s.system.kind == "map"
+        self.method_action.setVisible(not is_map)
+        self.t_end_label.setText(" steps " if is_map else " until t = ")
+        self.t_end_action.setVisible(not is_map)
+        self.steps_action.setVisible(is_map)
+        self.samples_label_action.setVisible(not is_map)
+        self.samples_action.setVisible(not is_map)
+
+    # ------------------------------------------------------------ time cursor
+    def time_span(self):
+        traj = self.session.trajectory
+        if traj is None or traj.time.size == 0:
+            return None
+        return float(traj.time[0]), float(traj.time[-1])
+
+    def _slider_moved(self, value: int) -> None:
+        if self._syncing:
+            return
+        span = self.time_span()
+        if span is not None:
+            t0, t1 = span
+            self.session.set_time_cursor(t0 + (t1 - t0) * value / SLIDER_STEPS)
+
+    def _cursor_changed(self, t: float) -> None:
+        span = self.time_span()
+        name = self.session.system.time_name if self.session.system is not None else "t"
+        if span is None or not np.isfinite(t):
+            self.time_label.setText("")
+            return
+        t0, t1 = span
+        frac = 0.0 if t1 == t0 else (t - t0) / (t1 - t0)
+        self._syncing = True
+        try:
+            self.slider.setValue(int(round(min(max(frac, 0.0), 1.0) * SLIDER_STEPS)))
+        finally:
+            self._syncing = False
+        self.time_label.setText(f" {name} = {t:.0f}" if name == "n" else f" {name} = {_number_text(t)}")
+
+    def _play_toggled(self, on: bool) -> None:
+        self.play.setText("Pause" if on else "Play")
+        self.play.setIcon(self.style().standardIcon(
+            QStyle.StandardPixmap.SP_MediaPause if on else QStyle.StandardPixmap.SP_MediaPlay))
+        span = self.time_span()
+        if on and span is not None:
+            t0, t1 = span
+            if abs(self.session.time_cursor - t1) <= 1e-12 * max(1.0, abs(t1)):
+                self.session.set_time_cursor(t0)
+            self._timer.start()
+        else:
+            self._timer.stop()
+            if on:
+                self.play.setChecked(False)
+
+    def _tick(self) -> None:
+        span = self.time_span()
+        if span is None:
+            self.play.setChecked(False)
+            return
+        t0, t1 = span
+        step = (t1 - t0) * PLAY_INTERVAL_MS / 1000.0 / PLAY_SECONDS
+        t = self.session.time_cursor + step
+        if (t - t1) * np.sign(t1 - t0) >= 0:
+            t = t1
+            self.play.setChecked(False)
+        self.session.set_time_cursor(t)
+
+
+class MainWindow(QMainWindow):
+    """The document window. ``session`` is its live document; ``help_menu`` takes extra Help entries."""
+
+    documentOpened = Signal()
+
+    def __init__(self, session: Session | None = None, parent=None):
+        super().__init__(parent)
+        self.session = session or Session(self)
+        self.view_docks: dict[str, QDockWidget] = {}
+        self.views: dict[str, QWidget] = {}
+        self.panel_parts: dict[str, QWidget] = {}
+        self._active_view: str | None = None
+        self.setObjectName("orbitdesk_main_window")
+        self.setDockOptions(QMainWindow.DockOption.AnimatedDocks | QMainWindow.DockOption.AllowNestedDocks
+                            | QMainWindow.DockOption.AllowTabbedDocks)
+        self.setDockNestingEnabled(True)
+        central = QWidget()
+        central.setMaximumSize(0, 0)
+        self.setCentralWidget(central)
+        central.hide()
+
+        self._make_actions()
+        self.run_bar = RunBar(self)
+        self.addToolBar(Qt.ToolBarArea.TopToolBarArea, self.run_bar)
+        self._make_model_panel()
+        self._make_view_docks()
+        self._make_status_bar()
+        self._make_menus()
+        s = self.session
+        s.projectLoaded.connect(self._on_project_loaded)  # before the walkthrough shows its dock on a load
+        self._install_teaching_tools()
+        self._default_state = self.saveState()
+
+        s.dirtyChanged.connect(self._update_title)
+        s.statusMessage.connect(lambda m: self.statusBar().showMessage(m, 10_000))
+        s.busyChanged.connect(self._on_busy)
+        s.runProgress.connect(self._on_progress)
+        s.trajectoryChanged.connect(self._on_trajectory)
+        s.runFailed.connect(lambda m: self.run_status.setText("Run failed"))
+        s.add_save_hook(self.store_view_settings)
+        self.guard = DocumentGuard(self)
+        self.notices = Notices(self)
+        QApplication.instance().focusChanged.connect(self._on_focus_changed)
+        self.resize(self._initial_size())
+        self._sized = False
+        self._update_title()
+
+    def _initial_size(self) -> QSize:
+        screen = self.screen() or QApplication.primaryScreen()
+        if screen is None:
+            return QSize(1440, 900)
+        avail = screen.availableGeometry()
+        return QSize(min(1440, int(avail.width() * 0.94)), min(900, int(avail.height() * 0.92)))
+
+    def showEvent(self, event) -> None:
+        super().showEvent(event)
+        if not self._sized:
+            self._sized = True
+            if not self.session.project.views.get(WINDOW_KEY):
+                QTimer.singleShot(0, self.apply_default_sizes)
+
+    # ------------------------------------------------------------ construction
+    def _make_actions(self) -> None:
+        def action(text, slot, shortcut=None, tip=None):
+            a = QAction(text, self)
+            if shortcut is not None:
+                a.setShortcut(shortcut)
+            a.setToolTip(tip or text)
+            a.setStatusTip(tip or text)
+            a.triggered.connect(slot)
+            self.addAction(a)
+            return a
+
+        SK = QKeySequence.StandardKey
+        self.new_action = action("&New", self.new_document, SK.New, "Start a new, empty project")
+        self.open_action = action("&Open…", self.open_dialog, SK.Open, "Open a project or a model text file")
+        self.save_action = action("&Save", self.save, SK.Save, "Save the project")
+        self.save_as_action = action("Save &As…", self.save_as, SK.SaveAs, "Save the project under a new name")
+        self.revert_action = action("&Revert", self.revert, None, "Go back to the saved version of the project")
+        self.export_png_action = action("Export Plot as &PNG…", lambda: self.export_plot_dialog("png"), None,
+                                        "Save a plot (the active view's or another) as a PNG image, at a size you pick")
+        self.export_svg_action = action("Export Plot as S&VG…", lambda: self.export_plot_dialog("svg"), None,
+                                        "Save a plot (the active view's or another) as an SVG drawing, at a size you "
+                                        "pick")
+        self.export_csv_action = action("Export &Data as CSV…", self.export_data_dialog, None,
+                                        "Save the data of the active view as comma-separated values")
+        self.quit_action = action("&Quit", self.close, SK.Quit, "Close OrbitDesk")
+        self.undo_action = self.session.undo_stack.createUndoAction(self, "&Undo")
+        self.undo_action.setShortcut(SK.Undo)
+        self.redo_action = self.session.undo_stack.createRedoAction(self, "&Redo")
+        self.redo_action.setShortcut(SK.Redo)
+        for a in (self.undo_action, self.redo_action):
+            a.setShortcutContext(Qt.ShortcutContext.WindowShortcut)
+            self.addAction(a)
+        self.run_action = action("Run", self.session.run, QKeySequence("F5"), "Run the model again (F5)")
+        self.run_action.setShortcuts([QKeySequence("F5"), QKeySequence("Ctrl+R")])
+        self.cancel_action = action("Cancel", self.session.cancel_all, QKeySequence("Shift+F5"),
+                                    "Stop the computations in progress (Shift+F5)")
+        self.cancel_action.setEnabled(False)
+        self.about_action = action("&About OrbitDesk", self.about, None, "About this program")
+
+    def _make_model_panel(self) -> None:
+        panel = QWidget()
+        panel.setObjectName("model_panel_widget")
+        layout = QVBoxLayout(panel)
+        layout.setContentsMargins(4, 4, 4, 4)
+        layout.setSpacing(0)
+        self.model_splitter = QSplitter(Qt.Orientation.Vertical)
+        self.model_splitter.setChildrenCollapsible(False)
+        self.model_splitter.setHandleWidth(6)
+        editor = None
+        # the values and the read-back share the lower part as tabs, so the read-back has the room of the
+        # whole lower part (the Jacobian in sight) rather than a strip between editor and sliders
+        self.model_tabs = QTabWidget()
+        self.model_tabs.setDocumentMode(True)
+        for module, cls_name, title, placeholder in PANEL_PARTS:
+            widget = self._make_part(module, cls_name, placeholder, editor=editor)
+            if widget is None:
+                continue
+            if cls_name == "EquationEditor" and not isinstance(widget, _Placeholder):
+                editor = widget
+            self.panel_parts[cls_name] = widget
+            if cls_name in TABBED_PARTS:
+                self.model_tabs.addTab(widget, title)
+            else:
+                self.model_splitter.addWidget(widget)
+        if "ParameterPanel" in self.panel_parts:
+            self.model_tabs.setCurrentWidget(self.panel_parts["ParameterPanel"])
+        self.model_splitter.addWidget(self.model_tabs)
+        layout.addWidget(self.model_splitter)
+        parts = [k for k in self.panel_parts if k not in TABBED_PARTS] + ["tabs"]
+        sizes = {"EquationEditor": 320, "DiagnosticsList": 60, "tabs": 420}
+        self.model_splitter.setSizes([sizes.get(k, 100) for k in parts])
+        for i, key in enumerate(parts):
+            self.model_splitter.setStretchFactor(i, {"EquationEditor": 3, "tabs": 3}.get(key, 1))
+        dock = QDockWidget("Model", self)
+        dock.setObjectName("model_panel")
+        dock.setWidget(panel)
+        dock.setFeatures(QDockWidget.DockWidgetFeature.DockWidgetMovable
+                         | QDockWidget.DockWidgetFeature.DockWidgetFloatable
+                         | QDockWidget.DockWidgetFeature.DockWidgetClosable)
+        dock.toggleViewAction().setText("Model Panel")
+        dock.toggleViewAction().setToolTip("Show or hide the model editor, read-back and values")
+        self.addDockWidget(Qt.DockWidgetArea.LeftDockWidgetArea, dock)
+        self.model_dock = dock
+
+    def _make_part(self, module, cls_name, placeholder, editor=None):
+        try:
+            mod = importlib.import_module(f"orbitdesk.app.panels.{module}")
+            cls = getattr(mod, cls_name)
+        except (ImportError, AttributeError):
+            return _Placeholder(placeholder) if placeholder else None
+        try:
+            if cls_name == "DiagnosticsList":
+                return cls(self.session, editor=editor)
+            return cls(self.session)
+        except Exception:  # noqa: BLE001 - a broken panel must not keep the window from opening
+            log.exception("could not create %s", cls_name)
+            return _Placeholder(placeholder or f"{cls_name} could not be created.")
+
+    def _make_view_docks(self) -> None:
+        previous = None
+        for name in views_pkg.VIEW_MODULES:
+            dock = QDockWidget(views_pkg.module_title(name), self)
+            dock.setObjectName(f"view_{name}")
+            dock.setWidget(_Placeholder(""))
+            dock.toggleViewAction().setToolTip(f"Show or hide the {views_pkg.module_title(name).lower()} view")
+            dock.visibilityChanged.connect(lambda visible, n=name: visible and self.ensure_view(n))
+            dock.toggleViewAction().triggered.connect(lambda checked, n=name: checked and self.show_view(n))
+            self.view_docks[name] = dock
+            if name not in views_pkg.DEFAULT_VISIBLE:
+                self.addDockWidget(Qt.DockWidgetArea.RightDockWidgetArea, dock)
+                anchor = self.view_docks.get(views_pkg.DEFAULT_VISIBLE[-1])
+                if anchor is not None:
+                    self.tabifyDockWidget(anchor, dock)
+                dock.hide()
+                continue
+            if previous is None:
+                self.addDockWidget(Qt.DockWidgetArea.RightDockWidgetArea, dock)
+            else:
+                self.splitDockWidget(previous, dock, Qt.Orientation.Vertical)
+            previous = dock
+        visible = [self.view_docks[n] for n in views_pkg.DEFAULT_VISIBLE if n in self.view_docks]
+        for name in views_pkg.DEFAULT_VISIBLE:
+            if name in self.view_docks:
+                self.ensure_view(name)
+        if visible:
+            self.view_docks[views_pkg.DEFAULT_VISIBLE[-1]].raise_()
+
+    def apply_default_sizes(self) -> None:
+        """Model panel about 430 px wide, side panels (e.g. a walkthrough) about 290 px, the views the rest;
+        the time series above a taller phase plane."""
+        visible = [self.view_docks[n] for n in views_pkg.DEFAULT_VISIBLE
+                   if n in self.view_docks and self.view_docks[n].isVisible()]
+        if not visible:
+            return
+        side = [d for d in self.findChildren(QDockWidget)
+                if d.isVisible() and not d.isFloating() and d is not self.model_dock
+                and d not in self.view_docks.values() and d.parentWidget() is self
+                and self.dockWidgetArea(d) == Qt.DockWidgetArea.RightDockWidgetArea]
+        width = max(self.width(), 800)
+        model_w = min(430, width // 3)
+        side_w = [min(290, width // 5) for _ in side]
+        rest = max(width - model_w - sum(side_w), 300)
+        self.resizeDocks([self.model_dock, visible[0], *side], [model_w, rest, *side_w], Qt.Orientation.Horizontal)
+        if len(visible) > 1:
+            height = max(self.height() - 120, 400)
+            self.resizeDocks(visible[:2], [int(height * 0.42), int(height * 0.58)], Qt.Orientation.Vertical)
+
+    def _make_status_bar(self) -> None:
+        bar = self.statusBar()
+        self.run_status = QLabel("")
+        self.run_status.setToolTip("State of the last run")
+        self.progress = QProgressBar()
+        self.progress.setRange(0, 1000)
+        self.progress.setMaximumWidth(160)
+        self.progress.setTextVisible(False)
+        self.progress.setToolTip("Progress of the computation")
+        self.progress.hide()
+        self.cancel_button = QPushButton("Cancel")
+        self.cancel_button.setToolTip("Stop the computations in progress (Shift+F5)")
+        self.cancel_button.setEnabled(False)
+        self.cancel_button.clicked.connect(self.session.cancel_all)
+        self.jobs_label = QLabel("")
+        self.jobs_label.setToolTip("The computations under way")
+        self._jobs_timer = QTimer(self, singleShot=True, interval=120)
+        self._jobs_timer.timeout.connect(self._show_jobs)
+        self.session.jobs.jobsChanged.connect(self._jobs_timer.start)
+        self.session.jobs.jobProgress.connect(lambda *_a: self._jobs_timer.isActive() or self._jobs_timer.start())
+        bar.addPermanentWidget(self.jobs_label)
+        bar.addPermanentWidget(self.run_status)
+        bar.addPermanentWidget(self.progress)
+        bar.addPermanentWidget(self.cancel_button)
+
+    def _make_menus(self) -> None:
+        mb = self.menuBar()
+        file_menu = mb.addMenu("&File")
+        file_menu.addActions([self.new_action, self.open_action])
+        self.recent_menu = file_menu.addMenu("Open &Recent")
+        self.recent_menu.setToolTipsVisible(True)
+        self.recent_menu.aboutToShow.connect(self._fill_recent)
+        file_menu.addSeparator()
+        file_menu.addActions([self.save_action, self.save_as_action, self.revert_action])
+        file_menu.addSeparator()
+        file_menu.addActions([self.export_png_action, self.export_svg_action, self.export_csv_action])
+        file_menu.addSeparator()
+        file_menu.addAction(self.quit_action)
+        self.file_menu = file_menu
+
+        edit_menu = mb.addMenu("&Edit")
+        edit_menu.addActions([self.undo_action, self.redo_action])
+        self.edit_menu = edit_menu
+
+        view_menu = mb.addMenu("&View")
+        view_menu.addAction(self.model_dock.toggleViewAction())
+        view_menu.addAction(self.run_bar.toggleViewAction())
+        view_menu.addSeparator()
+        for dock in self.view_docks.values():
+            view_menu.addAction(dock.toggleViewAction())
+        view_menu.addSeparator()
+        reset = view_menu.addAction("Reset Layout")
+        reset.setToolTip("Put the panels back where they start")
+        reset.triggered.connect(self.reset_layout)
+        self.view_menu = view_menu
+
+        run_menu = mb.addMenu("&Run")
+        run_menu.addActions([self.run_action, self.cancel_action])
+        self.run_menu = run_menu
+
+        self.help_menu = mb.addMenu("&Help")
+        self.help_menu.addAction(self.about_action)
+        for menu in (file_menu, edit_menu, view_menu, run_menu, self.help_menu):
+            menu.setToolTipsVisible(True)
+
+    # ------------------------------------------------------------ teaching tools
+    def _install_teaching_tools(self) -> None:
+        """The Walkthrough dock, Help > Language Reference and Sample Projects, File > Export (LaTeX,
+        script, report); each module adds its own parts."""
+        from orbitdesk.app.panels import data_import
+        from orbitdesk.app import exports
+        from orbitdesk.app import help as help_ui
+        from orbitdesk.app.panels import walkthrough as walkthrough_panel
+
+        walkthrough_panel.install(self)
+        exports.install(self)
+        data_import.install(self)
+        help_ui.install(self)
+
+    # ------------------------------------------------------------ views
+    def ensure_view(self, name: str):
+        """The view widget of module ``name``, imported and created on first use."""
+        if name in self.views:
+            return self.views[name]
+        dock = self.view_docks[name]
+        try:
+            cls = views_pkg.load_view_class(name)
+            view = cls(self.session, dock)
+        except Exception as exc:  # noqa: BLE001 - one broken view must not take the window down
+            log.exception("could not create the view %s", name)
+            dock.setWidget(_Placeholder(f"This view could not be opened: {exc}"))
+            return None
+        dock.setWindowTitle(getattr(cls, "title", views_pkg.module_title(name)))
+        dock.toggleViewAction().setText(dock.windowTitle())
+        dock.setWidget(view)
+        self.views[name] = view
+        from orbitdesk.app.plots.figures import equip_plots
+
+        equip_plots(self, view)
+        if self._active_view is None:
+            self._active_view = name
+        return view
+
+    def show_view(self, name: str):
+        """Open the view ``name`` where it is seen: beside the views already open (split, never a tab
+        behind another view). Returns the view."""
+        from orbitdesk.app.dock_layout import is_open, show_docks
+
+        wanted = [n for n in views_pkg.VIEW_MODULES if n != name and is_open(self.view_docks[n])
+                  and not self.view_docks[n].isFloating()] + [name]
+        show_docks(self, wanted, arrange=True)
+        return self.ensure_view(name)
+
+    def active_view(self):
+        """The view the user last worked in (else the first visible one)."""
+        if self._active_view in self.views and self.view_docks[self._active_view].isVisible():
+            return self.views[self._active_view]
+        for name, view in self.views.items():
+            if self.view_docks[name].isVisible():
+                return view
+        return None
+
+    def _on_focus_changed(self, _old, new) -> None:
+        w = new
+        while w is not None:
+            for name, dock in self.view_docks.items():
+                if w is dock:
+                    self._active_view = name
+                    return
+            w = w.parentWidget()
+
+    def store_view_settings(self) -> None:
+        """Write each view's settings and the dock layout into the session's project."""
+        from orbitdesk.app.plots import plot_tools
+
+        views = self.session.project.views
+        for name, view in self.views.items():
+            try:
+                views[view.view_id] = {**view.view_settings(), **plot_tools.settings(view)}
+            except Exception:  # noqa: BLE001 - keep what was there
+                log.exception("view %s could not report its settings", name)
+        window = {"state": bytes(self.saveState().toBase64()).decode("ascii")}
+        if self.session.trajectory is not None and np.isfinite(self.session.time_cursor):
+            window["time_cursor"] = float(self.session.time_cursor)
+        views[WINDOW_KEY] = window
+        kept = {}
+        for view in self.views.values():
+            try:
+                d = view.kept_result() if hasattr(view, "kept_result") else None
+            except Exception:  # noqa: BLE001 - a result that cannot be kept is left out
+                log.exception("view %s could not keep its result", view)
+                d = None
+            if d is not None:
+                kept[view.view_id] = d
+        previous = views.get(RESULTS_KEY)
+        for view_id, d in (previous.items() if isinstance(previous, dict) else ()):
+            if view_id not in kept and view_id not in {v.view_id for v in self.views.values()}:
+                kept[view_id] = d  # a view not opened in this session keeps what the file had
+        views[RESULTS_KEY] = kept
+
+    def restore_layout(self, window_settings: dict) -> bool:
+        state = window_settings.get("state") if isinstance(window_settings, dict) else None
+        if not isinstance(state, str):
+            return False
+        try:
+            data = QByteArray.fromBase64(state.encode("ascii"))
+        except UnicodeEncodeError:
+            return False
+        return bool(self.restoreState(data))
+
+    def reset_layout(self) -> None:
+        self.restoreState(self._default_state)
+        for name in views_pkg.DEFAULT_VISIBLE:
+            if name in self.view_docks:
+                self.view_docks[name].show()
+
+    # ------------------------------------------------------------ session events
+    def _on_project_loaded(self) -> None:
+        """The project's own layout, or the starting one: never the layout of the project before; the
+        time cursor where it was (the first run puts it inside its span)."""
+        window = self.session.project.views.get(WINDOW_KEY, {})
+        cursor = window.get("time_cursor") if isinstance(window, dict) else None
+        if isinstance(cursor, (int, float)) and not isinstance(cursor, bool) and np.isfinite(cursor):
+            self.session.time_cursor = float(cursor)
+        if not self.restore_layout(window):
+            self.reset_layout()
+            if self.isVisible():
+                QTimer.singleShot(0, self.apply_default_sizes)  # after other panels have reacted to the load
+        self.run_status.setText("")
+        self._update_title()
+
+    def _update_title(self, *_args) -> None:
+        dirty = self.session.dirty
+        self.setWindowTitle(f"{'• ' if dirty else ''}{self.session.name} — {APP_NAME}")
+        self.revert_action.setEnabled(self.session.path is not None)
+
+    def _on_busy(self, busy: bool) -> None:
+        self.cancel_button.setEnabled(busy)
+        self.cancel_action.setEnabled(busy)
+        if busy:
+            self.progress.setValue(0)
+            self.progress.show()
+            if self.session.jobs.running("run"):
+                self.run_status.setText("Running…")
+        else:
+            self.progress.hide()
+            if self.run_status.text() == "Running…":
+                self.run_status.setText("Stopped")
+
+    def _show_jobs(self) -> None:
+        """Each job under way with what it does and how far it is ("Sweeping gamma 40% · Nullclines"),
+        the overall bar at the least advanced one; the full list in the tooltip."""
+        jobs = [(label, fraction) for key, label, fraction in self.session.jobs.active_jobs() if key != "compile"]
+        parts = [f"{label} {int(fraction * 100)}%" if fraction > 0 else label for label, fraction in jobs]
+        text = " · ".join(parts[:3]) + (f" · {len(parts) - 3} more" if len(parts) > 3 else "")
+        self.jobs_label.setText(text)
+        self.jobs_label.setToolTip("\n".join(parts) if parts else "The computations under way")
+        if jobs:
+            self.progress.setValue(int(min(f for _l, f in jobs) * 1000))
+
+    def _on_progress(self, fraction: float) -> None:
+        self.progress.setValue(int(fraction * 1000))
+
+    def _on_trajectory(self, traj) -> None:
+        n = traj.time.size
+        if traj.status == "ok":
+            if traj.kind == "map":
+                text = f"{n:,} points, n = 0 … {int(traj.time[-1]) if n else 0}"
+            else:
+                text = f"{n:,} points, t = {_number_text(traj.time[0])} … {_number_text(traj.time[-1])}" if n \
+                    else "no points"
+        else:
+            labels = {"diverged": "Blew up", "undefined": "Undefined value", "cancelled": "Stopped",
+                      "step_failed": "Step size collapsed"}
+            text = f"{labels.get(traj.status, traj.status)} after {n:,} points"
+            self.run_status.setToolTip(rich_tip(traj.message) if traj.message else "State of the last run")
+        self.run_status.setText(text)
+
+    # ------------------------------------------------------------ documents
+    def maybe_save(self) -> bool:
+        """Ask before unsaved work is closed or replaced. True means: go ahead."""
+        if not self.session.dirty:
+            return True
+        answer = plain_message(
+            self, "question", "Unsaved changes", f"“{self.session.name}” has changes that are not saved. Save them first?",
+            QMessageBox.StandardButton.Save | QMessageBox.StandardButton.Discard
+            | QMessageBox.StandardButton.Cancel, QMessageBox.StandardButton.Save)
+        if answer == QMessageBox.StandardButton.Save:
+            return self.save()
+        return answer == QMessageBox.StandardButton.Discard
+
+    def new_document(self) -> bool:
+        if not self.maybe_save():
+            return False
+        self.session.new()
+        self.documentOpened.emit()
+        return True
+
+    def open_dialog(self) -> bool:
+        if not self.maybe_save():
+            return False
+        start = str(self.session.path.parent) if self.session.path else ""
+        path, _ = QFileDialog.getOpenFileName(self, "Open", start, OPEN_FILTER)
+        return bool(path) and self.open_path(path, ask=False)
+
+    def open_path(self, path, ask: bool = True) -> bool:
+        """Open a project or model file; a file that cannot be read is reported and nothing changes."""
+        if ask and not self.maybe_save():
+            return False
+        if not self.guard.confirm_open(path):
+            return False
+        try:
+            self.session.open(path)
+        except ProjectError as e:
+            where = f"\n\n(at {e.path} in the file)" if e.path not in ("", "$") else ""
+            plain_message(self, "critical", "Could not open the file", f"{Path(path).name}: {e.message}{where}")
+            return False
+        self.add_recent(Path(path))
+        self.documentOpened.emit()
+        return True
+
+    def save(self) -> bool:
+        if self.session.path is None:
+            return self.save_as()
+        return self._save_to(self.session.path)
+
+    def save_as(self) -> bool:
+        suggested = self.session.path or Path.home() / f"{self.session.name}.orbitdesk"
+        path, _ = QFileDialog.getSaveFileName(self, "Save As", str(suggested), PROJECT_FILTER)
+        if not path:
+            return False
+        path = Path(path)
+        if path.suffix.lower() != ".orbitdesk":
+            path = path.with_name(path.name + ".orbitdesk")
+        return self._save_to(path)
+
+    def _save_to(self, path: Path) -> bool:
+        if not self.guard.save(path):  # asks before overwriting changes on disk or a read-only file
+            return False
+        self.add_recent(path)
+        self._update_title()
+        self.statusBar().showMessage(f"Saved {path.name}", 5000)
+        return True
+
+    def revert(self) -> bool:
+        if self.session.path is None:
+            return False
+        if self.session.dirty:
+            answer = plain_message(
+                self, "question", "Revert", f"Discard the changes to “{self.session.name}” and reload the saved version?",
+                QMessageBox.StandardButton.Discard | QMessageBox.StandardButton.Cancel,
+                QMessageBox.StandardButton.Cancel)
+            if answer != QMessageBox.StandardButton.Discard:
+                return False
+        return self.open_path(self.session.path, ask=False)
+
+    # ------------------------------------------------------------ recent files
+    def recent_files(self) -> list[str]:
+        value = settings().value("recent_files", [])
+        if isinstance(value, str):
+            value = [value]
+        return [v for v in (value or []) if isinstance(v, str)]
+
+    def add_recent(self, path: Path) -> None:
+        p = str(Path(path).resolve())
+        files = [p] + [f for f in self.recent_files() if f != p]
+        settings().setValue("recent_files", files[:MAX_RECENT])
+
+    def _fill_recent(self) -> None:
+        self.recent_menu.clear()
+        files = self.recent_files()
+        for f in files:
+            a = self.recent_menu.addAction(menu_text(Path(f).name))
+            a.setToolTip(rich_tip(f))
+            a.triggered.connect(lambda _=False, f=f: self.open_path(f))
+        if not files:
+            a = self.recent_menu.addAction("No recent files")
+            a.setEnabled(False)
+        else:
+            self.recent_menu.addSeparator()
+            clear = self.recent_menu.addAction("Clear List")
+            clear.triggered.connect(lambda: settings().setValue("recent_files", []))
+
+    # ------------------------------------------------------------ export
+    def export_plot(self, path, view=None, size=None, legend=None, plot=None) -> bool:
+        """Save a plot of the active (or given) view as PNG or SVG, chosen by the file suffix, drawn off
+        screen at ``size`` (width, height; default: as big as on screen) with the same view range;
+        ``plot`` picks one of the view's plots (``figures.view_plots``), ``legend`` names the curves."""
+        from orbitdesk.app.plots import figures
+
+        view = view or self.active_view()
+        if view is None:
+            return False
+        if plot is None:
+            plots = figures.view_plots(view)
+            if not plots and getattr(view, "glview", None) is not None:  # the 3D scene, as a picture
+                scene = view.glview
+                size = size or ((scene.width(), scene.height()) if scene.isVisible() else figures.REPORT_SIZE)
+                return figures.save_scene(view, path, *size)
+            if not plots:
+                return False
+            plot = plots[0].plot
+        if size is None:
+            shown = plot.getViewWidget()
+            size = (shown.width(), shown.height()) if shown is not None and shown.isVisible() else \
+                figures.REPORT_SIZE
+        if legend is None:
+            legend = figures.has_named_curves(plot)
+        title = f"{self.session.name} — {getattr(view, 'title', 'plot')}"
+        return figures.save_plot(plot, path, *size, legend=legend, host=view, title=title)
+
+    def export_data(self, path, view=None) -> bool:
+        """Write the active view's data (full resolution) as CSV."""
+        view = view or self.active_view()
+        getter = getattr(view, "export_data", None)
+        data = getter() if getter is not None else None
+        if not data:
+            return False
+        header, rows = data
+        rows = np.atleast_2d(np.asarray(rows, dtype=float))
+        write_csv(path, header, rows.tolist())  # atomic: a failure leaves no partial file
+        return True
+
+    def export_plot_dialog(self, kind: str, plot=None) -> bool:
+        """Ask which plot (default: ``plot``, else the active view's), its size, a legend and the format;
+        then the file name; the status bar says which plot went where."""
+        from orbitdesk.app.plots.figures import ExportPlotDialog
+
+        form = ExportPlotDialog(self, kind, plot)
+        if form.choice is None:
+            self.statusBar().showMessage("No plot to export", 5000)
+            return False
+        if form.dialog.exec() != form.dialog.DialogCode.Accepted:
+            return False
+        kind = form.kind
+        name = f"{self.session.name} {getattr(form.choice.view, 'title', 'plot')}.{kind}"
+        start = (self.session.path.parent if self.session.path else Path.home()) / name
+        flt = "PNG image (*.png)" if kind == "png" else "SVG drawing (*.svg)"
+        path, _ = QFileDialog.getSaveFileName(self, "Export Plot", str(start), flt)
+        if not path:
+            return False
+        if not path.lower().endswith("." + kind):
+            path += "." + kind
+        ok = form.export(path)
+        size = f"{form.width.value()}×{form.height.value()}"
+        self.statusBar().showMessage(f"Exported {form.choice.caption} to {Path(path).name} ({size})" if ok
+                                     else f"Could not write {Path(path).name}", 8000)
+        return ok
+
+    def export_data_dialog(self) -> bool:
+        view = self.active_view()
+        if view is None or not hasattr(view, "export_data"):
+            self.statusBar().showMessage("The active view has no data to export", 5000)
+            return False
+        name = f"{self.session.name} {getattr(view, 'title', 'data')}.csv"
+        start = (self.session.path.parent if self.session.path else Path.home()) / name
+        path, _ = QFileDialog.getSaveFileName(self, "Export Data", str(start), "CSV (*.csv)")
+        if not path:
+            return False
+        if not path.lower().endswith(".csv"):
+            path += ".csv"
+        try:
+            ok = self.export_data(path, view)
+        except OSError as e:
+            plain_message(self, "warning", "Export Data", f"Could not write {Path(path).name}: {e.strerror or e}")
+            return False
+        self.statusBar().showMessage(f"Exported {Path(path).name}" if ok else "Nothing to export yet", 5000)
+        return ok
+
+    # ------------------------------------------------------------ misc
+    def about(self) -> None:
+        import orbitdesk
+
+        version = getattr(orbitdesk, "__version__", "")
+        QMessageBox.about(self, "About OrbitDesk",
+                          f"<b>OrbitDesk</b> {version}<p>A workbench for hand-built dynamical models: flows and maps, "
+                          "trajectories, phase planes, equilibria and more.</p>")
+
+    def closeEvent(self, event) -> None:
+        if not self.maybe_save():
+            event.ignore()
+            return
+        self.run_bar.play.setChecked(False)
+        self.session.shutdown()
+        self.guard.release()
+        self.notices.close()
+        event.accept()

@@ -1,0 +1,354 @@
+"""A live read-back of what the tool understood from the model text: kind, states, the
+first-order form, parameters, derived quantities, time dependence, smoothness and the Jacobian."""
+
+from __future__ import annotations
+
+import html
+
+import sympy as sp
+from PySide6.QtCore import Qt, QTimer
+from PySide6.QtGui import QColor, QFontDatabase, QPalette
+from PySide6.QtWidgets import QLabel, QTextBrowser, QVBoxLayout, QWidget
+from sympy.printing.str import StrPrinter
+
+from orbitdesk.language.model import FLOW
+
+from orbitdesk.app.panels.highlighter import colour, is_dark, FLOW_EQ, MAP_EQ, PARAMETER, DERIVED, INITIAL
+
+_FUNCTION_NAMES = {"Abs": "abs", "Min": "min", "Max": "max", "Mod": "mod", "Heaviside": "heaviside",
+                   "DiracDelta": "\u03b4"}
+
+
+class _ModelPrinter(StrPrinter):
+    """Prints sympy expressions back in the model language's spelling (``^``, ``abs``, ``e``)."""
+
+    def _print_Function(self, expr):
+        name = _FUNCTION_NAMES.get(type(expr).__name__)
+        if name is None:
+            return super()._print_Function(expr)
+        return f"{name}({self.stringify(expr.args, ', ')})"
+
+    def _print_Heaviside(self, expr):
+        return f"heaviside({self._print(expr.args[0])})"
+
+    def _print_Min(self, expr):
+        return f"min({self.stringify(expr.args, ', ')})"
+
+    def _print_Max(self, expr):
+        return f"max({self.stringify(expr.args, ', ')})"
+
+    def _print_Exp1(self, expr):
+        return "e"
+
+    def _print_Piecewise(self, expr):
+        *rest, last = expr.args
+        text = self._print(last.expr) if last.cond == True else "nan"  # noqa: E712 (sympy's true)
+        for pair in reversed(rest):
+            text = f"if({self._print(pair.cond)}, {self._print(pair.expr)}, {text})"
+        return text
+
+    def _print_And(self, expr):
+        return " and ".join(f"({self._print(a)})" if isinstance(a, sp.Or) else self._print(a) for a in expr.args)
+
+    def _print_Or(self, expr):
+        return " or ".join(self._print(a) for a in expr.args)
+
+    def _print_Not(self, expr):
+        return f"not ({self._print(expr.args[0])})"
+
+    def _print_Float(self, expr):
+        return f"{float(expr):.10g}"
+
+
+_PRINTER = _ModelPrinter()
+
+
+def model_str(expr) -> str:
+    """One expression as the model language would write it."""
+    if not isinstance(expr, sp.Basic):  # plain numbers only; text is never converted here
+        expr = sp.Integer(expr) if isinstance(expr, int) else sp.Float(float(expr))
+    return _PRINTER.doprint(expr).replace("**", "^")
+
+
+def number_str(value: float) -> str:
+    return f"{float(value):.6g}"
+
+
+def _grouped(state: str) -> str:
+    """A state name as one unit in notation: x stays x, the introduced state x' is written (x')."""
+    return f"({state})" if state.endswith("'") else state
+
+
+def equation_lhs(system, state: str) -> str:
+    """The left side of a state's first-order equation: dx/dt, d(x')/dt for the speed x' that a
+    second-order equation introduces (never x'' or a bare x' that reads like the state), x[n+1] for maps."""
+    if system.kind != FLOW:
+        return f"{state}[n+1]"
+    return f"d{_grouped(state)}/d{system.time_name}"
+
+
+def partial_label(state: str) -> str:
+    """A Jacobian column head: the derivative with respect to a state, ∂/∂x or ∂/∂(x')."""
+    return "\u2202/\u2202" + _grouped(state)
+
+
+def time_dependent_states(system) -> list[str]:
+    return [s for s, f in zip(system.states, system.f) if system.t_symbol in f.free_symbols]
+
+
+def reduced_orders(system) -> dict[str, int]:
+    """Base names whose equation was typed above first order, with the typed order."""
+    typed = getattr(system.model, "typed_order", {}) if system.kind == FLOW else {}
+    return {base: k for base, k in typed.items() if k > 1}
+
+
+def _esc(text: str) -> str:
+    return html.escape(text, quote=False)
+
+
+class ModelReadback(QWidget):
+    """Shows the last valid system of the session; a note says when the current text has errors."""
+
+    def __init__(self, session, parent=None):
+        super().__init__(parent)
+        self.session = session
+        self._system = None
+        self._static_html: dict[str, str] = {}
+        layout = QVBoxLayout(self)
+        layout.setContentsMargins(0, 0, 0, 0)
+        layout.setSpacing(0)
+        self.note = QLabel(self)
+        self.note.setWordWrap(True)
+        self.note.setTextFormat(Qt.TextFormat.RichText)
+        self.note.setContentsMargins(10, 6, 10, 6)
+        self.note.setToolTip("The read-back below is of the last model that had no errors")
+        self.note.hide()
+        self.browser = QTextBrowser(self)
+        self.browser.setOpenLinks(False)
+        self.browser.setFrameShape(QTextBrowser.Shape.NoFrame)
+        self.browser.setToolTip("What the tool understood from the model text")
+        self.browser.setLineWrapMode(QTextBrowser.LineWrapMode.WidgetWidth)  # notes wrap, never cut off
+        self.browser.document().setDocumentMargin(12)
+        layout.addWidget(self.note)
+        layout.addWidget(self.browser, 1)
+        self._values_timer = QTimer(self)
+        self._values_timer.setSingleShot(True)
+        self._values_timer.setInterval(80)
+        self._values_timer.timeout.connect(self.render)
+        session.systemChanged.connect(self.on_system_changed)
+        session.modelParsed.connect(self.on_model_parsed)
+        session.valuesChanged.connect(self._values_timer.start)
+        self._style_note()
+        self.on_system_changed(getattr(session, "system", None))
+        self.on_model_parsed(getattr(session, "parsed", None))
+
+    # ------------------------------------------------------------ public API
+    @property
+    def system(self):
+        return self._system
+
+    def html(self) -> str:
+        return self.browser.toHtml()
+
+    def plain_text(self) -> str:
+        return self.browser.toPlainText()
+
+    def note_text(self) -> str:
+        return self.note.text() if not self.note.isHidden() else ""
+
+    def equation_lines(self) -> list[str]:
+        """The shown equations as plain 'lhs = rhs' lines (first-order form for flows)."""
+        s = self._system
+        if s is None:
+            return []
+        return [f"{equation_lhs(s, state)} = {model_str(f)}" for state, f in zip(s.states, s.f)]
+
+    def jacobian_entries(self) -> list[list[str]]:
+        s = self._system
+        if s is None:
+            return []
+        J = s.jacobian
+        return [[model_str(J[i, j]) for j in range(s.n_states)] for i in range(s.n_states)]
+
+    def on_system_changed(self, system) -> None:
+        self._system = system
+        self._static_html = {}
+        self.render()
+
+    def on_model_parsed(self, parsed) -> None:
+        if parsed is None or parsed.ok:
+            self.note.hide()
+            return
+        n = len(parsed.errors)
+        errors = f"{n} error{'s' if n != 1 else ''}"
+        if self._system is None:
+            text = f"The text has {errors}; the read-back appears once the model reads cleanly."
+        else:
+            text = f"The text has {errors}; this shows the last model that read without errors."
+        first = parsed.errors[0]
+        text = f"<b>{_esc(text)}</b><br>line {first.line}: {_esc(first.message)}"
+        self.note.setText(text)
+        self.note.show()
+
+    def render(self) -> None:
+        bar = self.browser.verticalScrollBar().value()
+        self.browser.setHtml(self._compose())
+        self.browser.verticalScrollBar().setValue(bar)
+
+    # ------------------------------------------------------------ HTML
+    def changeEvent(self, event) -> None:
+        super().changeEvent(event)
+        if event.type() in (event.Type.PaletteChange, event.Type.ApplicationPaletteChange):
+            self._style_note()
+            self._static_html = {}
+            self.render()
+
+    def _style_note(self) -> None:
+        pal = self.palette()
+        dark = is_dark(pal)
+        bg = QColor("#5a4312" if dark else "#fbf1d9")
+        fg = QColor("#f5e2b8" if dark else "#5c4410")
+        self.note.setStyleSheet(f"QLabel {{ background: {bg.name()}; color: {fg.name()}; }}")
+
+    def _colours(self) -> dict[str, str]:
+        pal = self.palette()
+        dark = is_dark(pal)
+        text, base = pal.color(QPalette.ColorRole.Text), pal.color(QPalette.ColorRole.Base)
+        return {
+            "text": text.name(),
+            "muted": _blend(text, base, 0.42).name(),
+            "cell": _blend(text, base, 0.06).name(),
+            "lhs": colour(FLOW_EQ if self._system is None or self._system.kind == FLOW else MAP_EQ, dark).name(),
+            "param": colour(PARAMETER, dark).name(),
+            "derived": colour(DERIVED, dark).name(),
+            "initial": colour(INITIAL, dark).name(),
+            "mono": QFontDatabase.systemFont(QFontDatabase.SystemFont.FixedFont).family(),
+        }
+
+    def _compose(self) -> str:
+        system = self._system
+        c = self._colours()
+        self._c = c
+        if system is None:
+            example = self._m("x' = -x")
+            return (f"<p style='color:{c['muted']}'>No model yet. Type equations such as {example} in the "
+                    "editor; what the tool reads from them appears here.</p>")
+        if not self._static_html:
+            self._static_html = {
+                "summary": self._summary(system),
+                "equations": self._equations(system),
+                "derived": self._derived(system),
+                "jacobian": self._jacobian(system),
+            }
+        s = self._static_html
+        return "".join([s["summary"], s["equations"], self._initial(system), self._parameters(system),
+                        s["derived"], s["jacobian"]])
+
+    # small builders with inline styles (Qt's rich text honours those, not class rules, for margins)
+    def _m(self, text: str, colour: str | None = None) -> str:
+        tint = f" color:{colour};" if colour else ""
+        return f"<span style=\"font-family:'{self._c['mono']}';{tint}\">{_esc(text)}</span>"
+
+    def _heading(self, title: str) -> str:
+        return f"<p style='margin-top:14px; margin-bottom:4px'><b>{_esc(title)}</b></p>"
+
+    def _muted(self, html_text: str, top: int = 2) -> str:
+        return f"<p style='margin-top:{top}px; color:{self._c['muted']}'>{html_text}</p>"
+
+    def _td(self, content: str, align: str = "left", style: str = "") -> str:
+        return f"<td align='{align}' valign='middle' style='padding:1px 6px 1px 0; {style}'>{content}</td>"
+
+    def _table(self, rows: list[str], spacing: int = 0) -> str:
+        return f"<table cellspacing='{spacing}' cellpadding='0'>{''.join(rows)}</table>"
+
+    def _equation_row(self, lhs: str, rhs: str, tint: str) -> str:
+        return ("<tr>" + self._td(self._m(lhs, tint), "right") + self._td(self._m("=")) +
+                self._td(self._m(rhs)) + "</tr>")
+
+    def _summary(self, system) -> str:
+        n = system.n_states
+        kind = "Flow" if system.kind == FLOW else "Map"
+        states = ", ".join(self._m(s) for s in system.states)
+        facts = []
+        if system.autonomous:
+            facts.append(f"autonomous: no explicit {self._m(system.time_name)}")
+        else:
+            where = ", ".join(self._m(equation_lhs(system, s)) for s in time_dependent_states(system))
+            facts.append(f"non-autonomous: depends on {self._m(system.time_name)} in {where}")
+        if system.smooth:
+            facts.append("smooth")
+        else:
+            facts.append("not smooth: uses " + ", ".join(self._m(f) for f in system.nonsmooth))
+        return (f"<p style='margin-bottom:2px'><b>{kind}</b> in {n} state{'s' if n != 1 else ''}: {states}</p>"
+                + self._muted(" \u00b7 ".join(facts)))
+
+    def _equations(self, system) -> str:
+        title = "First-order form" if system.kind == FLOW else "Map"
+        rows = [self._equation_row(equation_lhs(system, s), model_str(f), self._c["lhs"])
+                for s, f in zip(system.states, system.f)]
+        notes = []
+        for base, order in reduced_orders(system).items():
+            new = ", ".join(self._m(base + "'" * k) for k in range(1, order))
+            plural = order > 2
+            what = "the rates" if plural else "the rate"
+            notes.append(f"{self._m(base + chr(39) * order + ' = ...')} was reduced to first order: {what} {new} "
+                         f"{'are states' if plural else 'is a state'} of {'their' if plural else 'its'} own, so "
+                         f"{self._m(equation_lhs(system, base) + ' = ' + base + chr(39))} just says that "
+                         f"{self._m(base + chr(39))} is the rate of change of {self._m(base)}")
+        return self._heading(title) + self._table(rows) + (self._muted("<br>".join(notes), 4) if notes else "")
+
+    def _initial(self, system) -> str:
+        current = getattr(self.session, "initial", None) or {}
+        label = "Initial values" if system.kind == FLOW else "Starting values"
+        rows = [self._value_row(f"{name}(0)" if system.kind == FLOW else f"{name}[0]", value, current.get(name),
+                                self._c["initial"], "")
+                for name, value in zip(system.states, system.initial)]
+        return self._heading(label) + self._table(rows)
+
+    def _parameters(self, system) -> str:
+        if not system.parameters:
+            return self._heading("Parameters") + self._muted("none", 0)
+        current = getattr(self.session, "params", None) or {}
+        rows = []
+        for name, value in zip(system.parameters, system.param_values):
+            lo, hi = system.param_ranges.get(name, (None, None))
+            span = f"in [{number_str(lo)}, {number_str(hi)}]" if lo is not None else ""
+            rows.append(self._value_row(name, value, current.get(name), self._c["param"], span))
+        return self._heading("Parameters") + self._table(rows)
+
+    def _value_row(self, label, value, now, tint, extra) -> str:
+        muted = self._c["muted"]
+        changed = ""
+        if now is not None and float(now) != float(value):
+            changed = f"now {number_str(now)}"
+        return ("<tr>" + self._td(self._m(label, tint), "right") + self._td(self._m("=")) +
+                self._td(self._m(number_str(value))) +
+                self._td(self._m(extra, muted) if extra else "&nbsp;") +  # an empty cell would eat the
+                self._td(f"<span style='color:{muted}'>{changed}</span>" if changed else "&nbsp;") +  # next gap
+                "</tr>")
+
+    def _derived(self, system) -> str:
+        if not system.derived_names:
+            return ""
+        rows = [self._equation_row(n, model_str(e), self._c["derived"])
+                for n, e in zip(system.derived_names, system.derived_exprs)]
+        return self._heading("Derived quantities") + self._table(rows)
+
+    def _jacobian(self, system) -> str:
+        J = system.jacobian
+        c = self._c
+        head = "".join(self._td(self._m(partial_label(s), c["muted"]), "center", "padding:1px 10px")
+                       for s in system.states)
+        rows = ["<tr><td></td>" + head + "</tr>"]
+        for i, state in enumerate(system.states):
+            cells = "".join(f"<td align='center' valign='middle' bgcolor='{c['cell']}' style='padding:4px 12px'>"
+                            f"{self._m(model_str(J[i, j]))}</td>" for j in range(system.n_states))
+            rows.append("<tr>" + self._td(self._m(equation_lhs(system, state), c["lhs"]), "right",
+                                          "padding-right:8px") + cells + "</tr>")
+        return self._heading("Jacobian") + self._table(rows, spacing=2)
+
+
+def _blend(a: QColor, b: QColor, t: float) -> QColor:
+    """``a`` mixed into ``b`` by the fraction ``t``."""
+    return QColor.fromRgbF(a.redF() * t + b.redF() * (1 - t), a.greenF() * t + b.greenF() * (1 - t),
+                           a.blueF() * t + b.blueF() * (1 - t))

@@ -1,0 +1,902 @@
+"""The walkthrough panel: a project's recorded steps, shown one at a time, with Previous and Next.
+
+Showing a step puts its snapshot on screen (values, solver settings, which views are open and how they
+are set, the 3D camera, the selected equilibrium, the section, the time cursor) without touching the
+undo history; leaving the walkthrough gives the user's own state back. Recording, deleting, moving and
+editing steps are undoable edits of the project. ``capture_state`` and ``put_on_screen`` translate between
+the window and the snapshot shape of ``orbitdesk.document.walkthrough``.
+"""
+
+from __future__ import annotations
+
+import copy
+import html
+import math
+import time
+
+from PySide6.QtCore import QByteArray, QEvent, Qt, QTimer, Signal
+from PySide6.QtGui import QFont, QPalette, QUndoCommand
+from PySide6.QtWidgets import (QAbstractItemView, QAbstractSlider, QAbstractSpinBox, QApplication, QComboBox,
+                               QDockWidget, QFrame, QHBoxLayout, QLabel, QLineEdit, QListWidget, QListWidgetItem,
+                               QPlainTextEdit, QPushButton, QSizePolicy, QSplitter, QTextBrowser, QTextEdit,
+                               QToolButton, QVBoxLayout, QWidget)
+
+from orbitdesk.document.project import WalkthroughStep
+from orbitdesk.document.walkthrough import VIEW_IDS, apply_step, delete_step, move_step, record_step, render_note
+
+from orbitdesk.app import views as views_pkg
+from orbitdesk.app.dock_layout import is_open, keep_side_widths, show_docks
+from orbitdesk.app.plain_text import rich_tip
+from orbitdesk.app.session import SOLVER_FIELDS
+
+EDIT_MERGE_SECONDS = 2.0
+TITLE_SCALE = (1.3, 2.3)       # step title: normal, presenting (times the panel's font)
+NOTE_SCALE = (1.0, 1.75)       # note text
+PRESENT_WIDTH = 0.32           # share of the window the panel takes while presenting
+WALKTHROUGH_WIDTH = 340       # width of the dock when a project with steps opens
+NOTE_CSS = "code { font-family: monospace; } li { margin-bottom: 4px; } p { margin-bottom: 8px; }"
+MARKUP_HINT = ("Note markup: a blank line starts a paragraph; *emphasis*, **strong**, `code`, "
+               "lines starting with - or 1. make lists.")
+PRESENT_KEYS = {Qt.Key.Key_Right: "next", Qt.Key.Key_PageDown: "next", Qt.Key.Key_Left: "previous",
+                Qt.Key.Key_PageUp: "previous", Qt.Key.Key_Escape: "stop"}
+KEYPAD = Qt.KeyboardModifier.KeypadModifier
+CAMERA_VIEW, EQUILIBRIA_VIEW, SECTIONS_VIEW = "phase_space_3d", "equilibria", "sections"
+
+
+# ---------------------------------------------------------------- window <-> snapshot
+
+def _view_modules(window) -> dict[str, str]:
+    """view_id -> module name for every view this window can show (module name when not yet imported)."""
+    out = {}
+    for module in window.view_docks:
+        view = window.views.get(module)
+        out[getattr(view, "view_id", module)] = module
+    return out
+
+
+def model_info(session):
+    """What apply_step checks names against: the active system, else the last parse, else nothing."""
+    if session.system is not None:
+        return session.system
+    if session.parsed is not None:
+        return session.parsed
+    return {"states": [], "parameters": []}
+
+
+def capture_state(window) -> dict:
+    """What is on screen now, in the snapshot shape of ``orbitdesk.document.walkthrough``."""
+    s = window.session
+    state = {"parameters": dict(s.params), "initial": dict(s.initial),
+             "solver": {k: getattr(s.solver, k) for k in SOLVER_FIELDS}}
+    open_views, settings = [], {}
+    for view_id, module in _view_modules(window).items():
+        if not is_open(window.view_docks[module]):
+            continue
+        open_views.append(view_id)
+        view = window.views.get(module)
+        if view is None:
+            continue
+        try:
+            d = copy.deepcopy(view.view_settings())
+        except Exception:  # noqa: BLE001 - a view that cannot report is left out of the step
+            continue
+        if view_id == CAMERA_VIEW and isinstance(d.get("camera"), dict):
+            state["camera"] = d.pop("camera")
+        if view_id == EQUILIBRIA_VIEW and "selected" in d:
+            selected = d.pop("selected")
+            state["selected_equilibrium"] = selected if isinstance(selected, int) else None
+        if view_id == SECTIONS_VIEW:
+            section = _section_of(d, s)
+            if section is not None:
+                state["section"] = section
+        settings[view_id] = d
+    state["open_views"] = open_views
+    state["views"] = settings
+    if s.trajectory is not None and math.isfinite(s.time_cursor):
+        state["time_cursor"] = float(s.time_cursor)
+    return state
+
+
+def _section_of(d: dict, session) -> dict | None:
+    """The snapshot's section ({"plane": "x=0", "direction": ...} or {"strobe": T}) from a sections view's settings."""
+    kind = d.get("kind")
+    states = list(session.system.states) if session.system is not None else []
+    if kind == "strobe" and isinstance(d.get("period"), (int, float)) and d["period"] > 0:
+        phase = d.get("phase")
+        if isinstance(phase, (int, float)) and phase > 0:
+            return {"strobe": float(d["period"]), "phase": float(phase)}
+        return {"strobe": float(d["period"])}
+    if kind == "plane" and d.get("coordinate") in states and isinstance(d.get("value"), (int, float)):
+        return {"plane": f"{d['coordinate']}={float(d['value'])!r}", "direction": d.get("direction", "up")}
+    return None
+
+
+def _apply_view(view, changes: dict) -> None:
+    """Apply ``changes`` over the view's present settings (views reset keys a partial dict leaves out)."""
+    try:
+        current = view.view_settings()
+    except Exception:  # noqa: BLE001
+        current = {}
+    view.apply_view_settings({**current, **changes})
+
+
+class ScreenResult:
+    """What ``put_on_screen`` could not do: ``problems`` (plain words) and views this build does not have."""
+
+    def __init__(self):
+        self.problems: list[str] = []
+        self.missing_views: list[str] = []
+
+
+def put_on_screen(window, new_state: dict, snapshot: dict, arrange: bool = True, defer=None) -> ScreenResult:
+    """Show ``new_state`` (from ``apply_step``) in the window; only what ``snapshot`` names is changed.
+
+    Settings for a view that has not been created yet go to ``defer(module, changes, section)``."""
+    s, out = window.session, ScreenResult()
+    modules = _view_modules(window)
+    generation = s.generation
+    s.show_state(new_state.get("parameters") if "parameters" in snapshot else None,
+                 new_state.get("initial") if "initial" in snapshot else None,
+                 new_state.get("solver") if "solver" in snapshot else None)
+
+    def unknown(view_id):
+        if view_id in VIEW_IDS:
+            if view_id not in out.missing_views:
+                out.missing_views.append(view_id)
+        else:
+            out.problems.append(f"this step names a view '{view_id}' that OrbitDesk does not have")
+
+    if "open_views" in snapshot:
+        wanted = []
+        for view_id in new_state.get("open_views", []):
+            if view_id in modules:
+                wanted.append(modules[view_id])
+            else:
+                unknown(view_id)
+        show_docks(window, wanted, arrange)
+        for module in wanted:
+            if window.ensure_view(module) is None:
+                out.problems.append(f"the {views_pkg.module_title(module).lower()} view could not be opened")
+
+    changes: dict[str, dict] = {}
+    for view_id in snapshot.get("views", {}) if isinstance(snapshot.get("views"), dict) else ():
+        if view_id in new_state.get("views", {}):
+            changes[view_id] = dict(new_state["views"][view_id])
+    if "camera" in snapshot and "camera" in new_state:
+        changes.setdefault(CAMERA_VIEW, {})["camera"] = new_state["camera"]
+    if "selected_equilibrium" in snapshot:
+        changes.setdefault(EQUILIBRIA_VIEW, {})["selected"] = new_state.get("selected_equilibrium")
+    section = new_state.get("section") if "section" in snapshot else None
+    if section is not None:
+        changes.setdefault(SECTIONS_VIEW, {})
+    for view_id, d in changes.items():
+        module = modules.get(view_id)
+        if module is None:
+            if view_id in snapshot.get("views", {}) or view_id == SECTIONS_VIEW:
+                unknown(view_id)
+            continue
+        view = window.views.get(module)
+        if view is None:
+            if defer is not None:
+                defer(module, d, section if view_id == SECTIONS_VIEW else None)
+            continue
+        _apply_to_view(view, d, section if view_id == SECTIONS_VIEW else None)
+
+    if "time_cursor" in snapshot and "time_cursor" in new_state:
+        s.set_time_cursor(new_state["time_cursor"])
+    if "open_views" in snapshot:
+        for view_id in new_state.get("open_views", []):
+            view = window.views.get(modules.get(view_id, ""))
+            if view is not None and view_id != SECTIONS_VIEW:
+                _bring_up_to_date(view, s.generation != generation)
+            if view is not None and hasattr(view, "fit_after_next_run"):
+                view.fit_after_next_run()  # the step's plots shown whole, once its run is in
+    return out
+
+
+def _bring_up_to_date(view, values_changed: bool) -> None:
+    """A view that computes only on request (a sweep, the Lyapunov spectrum) computes for the step's
+    values; views that follow the values by themselves are left alone."""
+    auto = getattr(view, "auto", None)
+    if auto is not None and hasattr(auto, "isChecked") and auto.isChecked():
+        return
+    compute = getattr(view, "compute", None) or getattr(view, "run", None)
+    if callable(compute) and (values_changed or getattr(view, "result", None) is None):
+        compute()
+
+
+def _apply_to_view(view, changes: dict, section: dict | None) -> None:
+    if changes:
+        _apply_view(view, changes)
+    if section is None:
+        return
+    if "strobe" in section and hasattr(view, "set_strobe"):
+        view.set_strobe(section["strobe"], section.get("phase", 0.0))
+    elif "plane" in section and hasattr(view, "set_plane"):
+        name, _, value = section["plane"].partition("=")
+        view.set_plane(name, float(value), section.get("direction", "up"))
+    compute = getattr(view, "compute", None)
+    if compute is not None:
+        compute()
+
+
+# ---------------------------------------------------------------- undo commands
+
+class _StepsCommand(QUndoCommand):
+    """Replace the whole list of steps (record, delete, move); ``select`` is the row to select after."""
+
+    def __init__(self, panel: "WalkthroughPanel", label: str, old: list, new: list, select_old, select_new):
+        super().__init__(label)
+        self.panel, self.old, self.new = panel, copy.deepcopy(old), copy.deepcopy(new)
+        self.select_old, self.select_new = select_old, select_new
+
+    def redo(self):
+        self.panel._set_steps(copy.deepcopy(self.new), self.select_new)
+
+    def undo(self):
+        self.panel._set_steps(copy.deepcopy(self.old), self.select_old)
+
+
+class _StepTextCommand(QUndoCommand):
+    """A step's title or note; consecutive typing in the same field merges into one undo step."""
+
+    ID = 2001
+
+    def __init__(self, panel: "WalkthroughPanel", index: int, field: str, old: str, new: str):
+        super().__init__("Edit step title" if field == "title" else "Edit step note")
+        self.panel, self.index, self.field, self.old, self.new = panel, index, field, old, new
+        self.stamp = time.monotonic()
+
+    def id(self):
+        return self.ID
+
+    def redo(self):
+        self.panel._set_text(self.index, self.field, self.new)
+
+    def undo(self):
+        self.panel._set_text(self.index, self.field, self.old)
+
+    def mergeWith(self, other):
+        if (other.id() != self.ID or (other.index, other.field) != (self.index, self.field)
+                or other.stamp - self.stamp > EDIT_MERGE_SECONDS):
+            return False
+        self.new, self.stamp = other.new, other.stamp
+        if self.new == self.old:
+            self.setObsolete(True)
+        return True
+
+
+# ---------------------------------------------------------------- the panel
+
+def _tool(text: str, tip: str, slot, checkable: bool = False) -> QToolButton:
+    b = QToolButton()
+    b.setText(text)
+    b.setToolTip(tip)
+    b.setCheckable(checkable)
+    b.setToolButtonStyle(Qt.ToolButtonStyle.ToolButtonTextOnly)
+    (b.toggled if checkable else b.clicked).connect(slot)
+    return b
+
+
+class _StepList(QListWidget):
+    """The steps, numbered; drag to reorder."""
+
+    def __init__(self, parent=None):
+        super().__init__(parent)
+        self.setDragDropMode(QAbstractItemView.DragDropMode.InternalMove)
+        self.setDefaultDropAction(Qt.DropAction.MoveAction)
+        self.setSelectionMode(QAbstractItemView.SelectionMode.SingleSelection)
+        self.setAlternatingRowColors(True)
+        self.setToolTip("The steps of the walkthrough: click one to show it, drag to reorder")
+        self.setSizePolicy(QSizePolicy.Policy.Preferred, QSizePolicy.Policy.Expanding)
+
+
+class WalkthroughPanel(QWidget):
+    """Dock contents. ``window`` is the MainWindow (views, docks, session)."""
+
+    stepShown = Signal(int)            # index of the step now on screen
+    walkthroughLeft = Signal()         # the user's own state is back
+    presentingChanged = Signal(bool)
+
+    def __init__(self, window, parent=None):
+        super().__init__(parent)
+        self.main_window = window
+        self.session = window.session
+        self.current: int | None = None          # index of the step on screen (None: not in the walkthrough)
+        self.problems: list[str] = []             # what the last shown step could not apply
+        self.missing_views: list[str] = []
+        self.presenting = False
+        self._own_state: dict | None = None       # the user's state, kept while the walkthrough is on screen
+        self._own_layout: QByteArray | None = None
+        self._was_full_screen = self._was_maximized = False
+        self._pending: dict[str, tuple] = {}      # module -> (changes, section) for views not created yet
+        self._syncing = False
+        self._build()
+        self.session.projectLoaded.connect(self._on_project_loaded)
+        for module, dock in window.view_docks.items():
+            dock.visibilityChanged.connect(lambda visible, m=module: visible and self._apply_pending(m))
+        self._refresh_list(None)
+        self._update_controls()
+
+    # ------------------------------------------------------------ construction
+    def _build(self) -> None:
+        self.position_label = QLabel()
+        self.position_label.setStyleSheet("color: palette(placeholder-text);")
+        self.position_label.setToolTip("Where you are in the walkthrough")
+        self.title_label = QLabel()
+        self.title_label.setWordWrap(True)
+        self.title_label.setTextFormat(Qt.TextFormat.PlainText)
+        self.title_label.setToolTip("Title of the step")
+        self.title_label.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
+        self.note_view = QTextBrowser()
+        self.note_view.setOpenLinks(False)
+        self.note_view.setFrameShape(QFrame.Shape.NoFrame)
+        self.note_view.viewport().setAutoFillBackground(False)
+        self.note_view.setToolTip("What to look at in this step")
+        self.note_view.document().setDefaultStyleSheet(NOTE_CSS)
+        self.note_view.document().setDocumentMargin(2)
+        self.problems_label = QLabel()
+        self.problems_label.setWordWrap(True)
+        self.problems_label.setTextFormat(Qt.TextFormat.RichText)
+        self.problems_label.setToolTip("Parts of this step that no longer fit the model; the rest was applied")
+        self.problems_label.hide()
+        self.missing_label = QLabel()
+        self.missing_label.setTextFormat(Qt.TextFormat.PlainText)  # view names come from the file
+        self.missing_label.setWordWrap(True)
+        self.missing_label.setStyleSheet("color: palette(placeholder-text);")
+        self.missing_label.hide()
+
+        self.previous_button = QPushButton("◀  Previous")
+        self.previous_button.setToolTip("Show the previous step (Left arrow or Page Up while presenting)")
+        self.previous_button.clicked.connect(self.previous)
+        self.next_button = QPushButton("Next  ▶")
+        self.next_button.setToolTip("Show the next step (Right arrow or Page Down while presenting)")
+        self.next_button.clicked.connect(self.next)
+        self.next_button.setDefault(True)
+        self.leave_button = QPushButton("Leave")
+        self.leave_button.setToolTip("Leave the walkthrough: your own values, views and layout come back, as "
+                                     "they were before it started")
+        self.leave_button.clicked.connect(self.leave)
+        self.present_button = QPushButton("Present")
+        self.present_button.setCheckable(True)
+        self.present_button.setToolTip("Presenting: large type for a projector or a shared screen, the window "
+                                       "full screen, arrow keys for Previous and Next (Esc stops)")
+        self.present_button.toggled.connect(self.set_presenting)
+        nav = QHBoxLayout()
+        nav.setSpacing(6)
+        nav.addWidget(self.previous_button)
+        nav.addWidget(self.next_button)
+        nav.addStretch(1)
+
+        show = QWidget()
+        show_layout = QVBoxLayout(show)
+        show_layout.setContentsMargins(0, 0, 0, 0)
+        show_layout.setSpacing(6)
+        show_layout.addWidget(self.position_label)
+        show_layout.addWidget(self.title_label)
+        show_layout.addWidget(self.note_view, 1)
+        show_layout.addWidget(self.problems_label)
+        show_layout.addWidget(self.missing_label)
+        show_layout.addLayout(nav)
+        leave_row = QHBoxLayout()
+        leave_row.setSpacing(6)
+        leave_row.addWidget(self.present_button)
+        leave_row.addStretch(1)
+        leave_row.addWidget(self.leave_button)
+        show_layout.addLayout(leave_row)
+
+        # ---- the list of steps and its editing tools
+        self.step_list = _StepList()
+        self.step_list.itemSelectionChanged.connect(self._on_list_selection)
+        self.step_list.model().rowsMoved.connect(lambda *_a: QTimer.singleShot(0, self._on_rows_dropped))
+        self.record_button = _tool("Record", "Add a step that shows what is on screen now: values, "
+                                   "open views and their settings, camera, section, time cursor", self.record)
+        self.update_button = _tool("Update", "Replace the selected step's snapshot with what is on screen now "
+                                   "(its title and note stay)", self.update_selected)
+        self.up_button = _tool("▲", "Move the selected step up", lambda: self._move_selected(-1))
+        self.down_button = _tool("▼", "Move the selected step down", lambda: self._move_selected(+1))
+        self.delete_button = _tool("Delete", "Delete the selected step", self.delete_selected)
+        self.edit_button = _tool("Edit", "Edit the title and note of the selected step", self._toggle_edit,
+                                 checkable=True)
+        tools = QHBoxLayout()
+        tools.setSpacing(2)
+        for b in (self.record_button, self.update_button, self.up_button, self.down_button, self.delete_button):
+            tools.addWidget(b)
+        tools.addStretch(1)
+        tools.addWidget(self.edit_button)
+
+        self.title_edit = QLineEdit()
+        self.title_edit.setPlaceholderText("Title of the step")
+        self.title_edit.setToolTip("Title of the selected step")
+        self.title_edit.textEdited.connect(lambda text: self._edited("title", text))
+        self.note_edit = QPlainTextEdit()
+        self.note_edit.setPlaceholderText("What should the reader look at? " + MARKUP_HINT)
+        self.note_edit.setToolTip(MARKUP_HINT)
+        self.note_edit.textChanged.connect(lambda: self._edited("note", self.note_edit.toPlainText()))
+        self.edit_box = QWidget()
+        edit_layout = QVBoxLayout(self.edit_box)
+        edit_layout.setContentsMargins(0, 0, 0, 0)
+        edit_layout.setSpacing(4)
+        edit_layout.addWidget(self.title_edit)
+        edit_layout.addWidget(self.note_edit, 1)
+        hint = QLabel(MARKUP_HINT)
+        hint.setWordWrap(True)
+        hint.setStyleSheet("color: palette(placeholder-text);")
+        edit_layout.addWidget(hint)
+        self.edit_box.hide()
+
+        steps = QWidget()
+        steps_layout = QVBoxLayout(steps)
+        steps_layout.setContentsMargins(0, 0, 0, 0)
+        steps_layout.setSpacing(4)
+        heading = QLabel("Steps")
+        heading.setStyleSheet("font-weight: 600;")
+        steps_layout.addWidget(heading)
+        steps_layout.addWidget(self.step_list, 1)
+        steps_layout.addLayout(tools)
+        steps_layout.addWidget(self.edit_box, 2)
+        self.steps_box = steps
+
+        self.splitter = QSplitter(Qt.Orientation.Vertical)
+        self.splitter.setChildrenCollapsible(False)
+        self.splitter.addWidget(show)
+        self.splitter.addWidget(steps)
+        self.splitter.setStretchFactor(0, 3)
+        self.splitter.setStretchFactor(1, 2)
+        layout = QVBoxLayout(self)
+        layout.setContentsMargins(8, 6, 8, 8)
+        layout.addWidget(self.splitter)
+
+        self._apply_fonts()
+
+    # ------------------------------------------------------------ state
+    @property
+    def steps(self) -> list[WalkthroughStep]:
+        return self.session.project.walkthrough
+
+    @property
+    def in_walkthrough(self) -> bool:
+        return self._own_state is not None
+
+    def selected_index(self) -> int | None:
+        rows = [self.step_list.row(i) for i in self.step_list.selectedItems()]
+        return rows[0] if rows else None
+
+    # ------------------------------------------------------------ showing steps
+    def show_step(self, index: int) -> list[str]:
+        """Put step ``index`` on screen (entering the walkthrough if needed); returns its problems."""
+        if not 0 <= index < len(self.steps):
+            raise IndexError(f"there is no step {index + 1} (the walkthrough has {len(self.steps)})")
+        dock = self.parentWidget()
+        if isinstance(dock, QDockWidget) and not dock.isVisible():
+            dock.show()
+        if self._own_state is None:
+            self._own_state = capture_state(self.main_window)
+            self._own_layout = self.main_window.saveState()
+        step = self.steps[index]
+        self.current = index
+        self._show_snapshot(step)
+        self._select_row(index)
+        self._show_text(index)
+        self._update_controls()
+        self.stepShown.emit(index)
+        return list(self.problems)
+
+    def _show_snapshot(self, step: WalkthroughStep) -> None:
+        new_state, problems = apply_step(step, model_info(self.session), capture_state(self.main_window))
+        result = put_on_screen(self.main_window, new_state, step.snapshot if isinstance(step.snapshot, dict) else {},
+                               defer=self._defer)
+        self.problems = problems + result.problems
+        self.missing_views = result.missing_views
+        self._show_problems()
+
+    def next(self) -> None:
+        if not self.steps:
+            return
+        if self.current is None:
+            start = self.selected_index()
+            self.show_step(0 if start is None else start)
+        elif self.current + 1 < len(self.steps):
+            self.show_step(self.current + 1)
+
+    def previous(self) -> None:
+        if self.current is not None and self.current > 0:
+            self.show_step(self.current - 1)
+        elif self.current is None and self.steps:
+            self.show_step(0)
+
+    def leave(self) -> None:
+        """Back to the user's own state (values, views, layout) from before the walkthrough."""
+        if self._own_state is None:
+            return
+        own, layout = self._own_state, self._own_layout
+        self._own_state, self._own_layout, self.current = None, None, None
+        self.set_presenting(False)
+        new_state, problems = apply_step(WalkthroughStep("own", "", own), model_info(self.session),
+                                         capture_state(self.main_window))
+        result = put_on_screen(self.main_window, new_state, own, arrange=False, defer=self._defer)
+        if layout is not None:
+            self.main_window.restoreState(layout)
+        self.problems = [p.replace("this step", "your own state") for p in problems + result.problems]
+        self.missing_views = []
+        self._show_problems()
+        self._show_text(self.selected_index())
+        self._update_controls()
+        self.walkthroughLeft.emit()
+
+    def _defer(self, module: str, changes: dict, section) -> None:
+        self._pending[module] = (changes, section)
+
+    def _apply_pending(self, module: str) -> None:
+        if module in self._pending and module in self.main_window.views:
+            changes, section = self._pending.pop(module)
+            _apply_to_view(self.main_window.views[module], changes, section)
+
+    # ------------------------------------------------------------ editing (undoable)
+    def _push(self, label: str, new: list, select_new) -> None:
+        self.session.undo_stack.push(_StepsCommand(self, label, self.steps, new, self.selected_index(), select_new))
+
+    def record(self, title: str | None = None, note: str = "") -> WalkthroughStep | None:
+        """Add a step showing what is on screen now, after the selected step (else at the end)."""
+        at = self.selected_index()
+        at = len(self.steps) if at is None else at + 1
+        title = title or f"Step {len(self.steps) + 1}"
+        try:
+            step = record_step(title, note, capture_state(self.main_window))
+        except ValueError as e:
+            self.main_window.statusBar().showMessage(str(e)[:1].upper() + str(e)[1:], 10_000)
+            return None
+        new = list(self.steps)
+        new.insert(at, step)
+        self._push("Record walkthrough step", new, at)
+        if self.in_walkthrough:
+            self.current = at
+        self._update_controls()
+        return step
+
+    def update_selected(self) -> None:
+        i = self.selected_index()
+        if i is None:
+            return
+        old = self.steps[i]
+        try:
+            step = record_step(old.title, old.note, capture_state(self.main_window))
+        except ValueError as e:
+            self.main_window.statusBar().showMessage(str(e)[:1].upper() + str(e)[1:], 10_000)
+            return
+        new = list(self.steps)
+        new[i] = step
+        self._push("Update walkthrough step", new, i)
+
+    def delete_step(self, index: int) -> None:
+        new = delete_step(self.steps, index)
+        if self.current is not None:
+            if self.current == index:
+                self.current = None
+            elif self.current > index:
+                self.current -= 1
+        self._push("Delete walkthrough step", new, min(index, len(new) - 1) if new else None)
+        if self.in_walkthrough and not new:
+            self.leave()
+
+    def delete_selected(self) -> None:
+        i = self.selected_index()
+        if i is not None:
+            self.delete_step(i)
+
+    def move_step(self, i: int, j: int) -> None:
+        new = move_step(self.steps, i, j)
+        if self.current is not None:
+            order = list(range(len(self.steps)))
+            order.insert(j, order.pop(i))
+            self.current = order.index(self.current)
+        self._push("Move walkthrough step", new, j)
+
+    def _move_selected(self, delta: int) -> None:
+        i = self.selected_index()
+        if i is not None and 0 <= i + delta < len(self.steps):
+            self.move_step(i, i + delta)
+
+    def set_title(self, index: int, text: str) -> None:
+        text = text if text.strip() else self.steps[index].title
+        if text != self.steps[index].title:
+            self.session.undo_stack.push(_StepTextCommand(self, index, "title", self.steps[index].title, text))
+
+    def set_note(self, index: int, text: str) -> None:
+        if text != self.steps[index].note:
+            self.session.undo_stack.push(_StepTextCommand(self, index, "note", self.steps[index].note, text))
+
+    def _edited(self, field: str, text: str) -> None:
+        i = self.selected_index()
+        if self._syncing or i is None:
+            return
+        (self.set_title if field == "title" else self.set_note)(i, text)
+
+    def _on_rows_dropped(self) -> None:
+        order = [self.step_list.item(r).data(Qt.ItemDataRole.UserRole) for r in range(self.step_list.count())]
+        if order == list(range(len(self.steps))) or sorted(order) != list(range(len(self.steps))):
+            return
+        moved = self.selected_index()
+        new = [self.steps[k] for k in order]
+        if self.current is not None:
+            self.current = order.index(self.current)
+        self.session.undo_stack.push(_StepsCommand(self, "Move walkthrough step", self.steps, new,
+                                                   order[moved] if moved is not None else None, moved))
+
+    # appliers called by the undo commands
+    def _set_steps(self, steps: list, select) -> None:
+        self.session.project.walkthrough = steps
+        if self.current is not None and self.current >= len(steps):
+            self.current = len(steps) - 1 if steps else None
+        self._refresh_list(select)
+        self._update_controls()
+
+    def _set_text(self, index: int, field: str, value: str) -> None:
+        if not 0 <= index < len(self.steps):
+            return
+        setattr(self.steps[index], field, value)
+        item = self.step_list.item(index)
+        if item is not None:
+            item.setText(self._item_text(index))
+        if self.selected_index() == index:
+            self._show_text(index)
+
+    # ------------------------------------------------------------ presenting
+    def set_presenting(self, on: bool) -> None:
+        on = bool(on)
+        if on == self.presenting:
+            return
+        self.presenting = on
+        self.present_button.blockSignals(True)
+        self.present_button.setChecked(on)
+        self.present_button.blockSignals(False)
+        self.present_button.setText("Stop presenting" if on else "Present")
+        app = QApplication.instance()
+        if on:
+            app.installEventFilter(self)
+        else:
+            app.removeEventFilter(self)
+        self.steps_box.setVisible(not on)
+        dock = self.parentWidget()
+        model_dock = getattr(self.main_window, "model_dock", None)
+        if model_dock is not None:  # the editor and the sliders leave the stage while presenting
+            if on:
+                self._model_dock_was_open = model_dock.isVisible()
+                model_dock.hide()
+            elif getattr(self, "_model_dock_was_open", False):
+                model_dock.show()
+        if on:
+            self._was_full_screen = self.main_window.isFullScreen()
+            self._was_maximized = self.main_window.isMaximized()
+            if isinstance(dock, QDockWidget):
+                dock.show()
+                dock.raise_()
+            self.main_window.showFullScreen()
+            if isinstance(dock, QDockWidget) and not dock.isFloating():
+                self.main_window.resizeDocks([dock], [max(dock.width(), int(self.main_window.width() * PRESENT_WIDTH))],
+                                        Qt.Orientation.Horizontal)
+            if self.current is None and self.steps:
+                self.show_step(self.selected_index() or 0)
+        elif not self._was_full_screen:
+            if self._was_maximized:
+                self.main_window.showMaximized()
+            else:
+                self.main_window.showNormal()
+        self._apply_fonts()
+        self.presentingChanged.emit(on)
+
+    def eventFilter(self, obj, event) -> bool:
+        """While presenting: arrows and Page Up/Down (what presentation remotes send) step through the
+        walkthrough, Esc stops; a field the user is typing in keeps its keys."""
+        kind = event.type()
+        if (not self.presenting or kind not in (QEvent.Type.KeyPress, QEvent.Type.ShortcutOverride)
+                or event.modifiers() & ~KEYPAD):
+            return False
+        action = PRESENT_KEYS.get(event.key())
+        if action is None or not isinstance(obj, QWidget) or obj.window() is not self.main_window:
+            return False
+        if kind == QEvent.Type.ShortcutOverride:
+            # Esc belongs to presenting (a view's Esc-cancels-its-job shortcut must not take it first)
+            if action == "stop":
+                event.accept()
+            return False
+        focus = QApplication.focusWidget()
+        if action != "stop" and _takes_arrows(focus):
+            return False
+        {"next": self.next, "previous": self.previous, "stop": lambda: self.set_presenting(False)}[action]()
+        return True
+
+    def _apply_fonts(self) -> None:
+        base = QFont(self.font())
+        size = base.pointSizeF() if base.pointSizeF() > 0 else 10.0
+        k = 1 if self.presenting else 0
+        title = QFont(base)
+        title.setPointSizeF(size * TITLE_SCALE[k])
+        title.setWeight(QFont.Weight.DemiBold)
+        self.title_label.setFont(title)
+        note = QFont(base)
+        note.setPointSizeF(size * NOTE_SCALE[k])
+        self.note_view.setFont(note)
+        self.note_view.document().setDefaultFont(note)
+        self.problems_label.setFont(note if self.presenting else base)
+        buttons = QFont(base)
+        buttons.setPointSizeF(size * (1.3 if self.presenting else 1.0))
+        for b in (self.previous_button, self.next_button, self.present_button, self.leave_button):
+            b.setFont(buttons)
+        self._show_text(self.current if self.current is not None else self.selected_index())
+
+    # ------------------------------------------------------------ display
+    def _item_text(self, index: int) -> str:
+        return f"{index + 1}.  {self.steps[index].title}"
+
+    def _refresh_list(self, select) -> None:
+        self._syncing = True
+        self.step_list.blockSignals(True)
+        try:
+            self.step_list.clear()
+            for i in range(len(self.steps)):
+                item = QListWidgetItem(self._item_text(i))
+                item.setData(Qt.ItemDataRole.UserRole, i)
+                item.setToolTip(rich_tip(self.steps[i].title))
+                self.step_list.addItem(item)
+            if select is not None and 0 <= select < len(self.steps):
+                self.step_list.setCurrentRow(select)
+        finally:
+            self.step_list.blockSignals(False)
+            self._syncing = False
+        self._show_text(self.selected_index())
+
+    def _select_row(self, index: int) -> None:
+        self.step_list.blockSignals(True)
+        self.step_list.setCurrentRow(index)
+        self.step_list.blockSignals(False)
+        item = self.step_list.item(index)
+        if item is not None:
+            self.step_list.scrollToItem(item)
+
+    def _on_list_selection(self) -> None:
+        i = self.selected_index()
+        if i is None or self._syncing:
+            self._update_controls()
+            return
+        if self.edit_button.isChecked() and not self.in_walkthrough:
+            self._show_text(i)           # editing: choose a step without putting it on screen
+            self._update_controls()
+        else:
+            self.show_step(i)
+
+    def _show_text(self, index) -> None:
+        n = len(self.steps)
+        if index is None or not 0 <= index < n:
+            self.title_label.setText("No walkthrough yet" if n == 0 else "Walkthrough")
+            hint = ("<p>A walkthrough is a list of steps a reader replays one by one. Set the values and the "
+                    "views as you want them, then press <b>Record</b>; give the step a title and a note "
+                    "with <b>Edit</b>.</p>"
+                    if n == 0 else
+                    f"<p>{n} step{'s' if n != 1 else ''}. Press <b>Start</b> to begin; <b>Leave</b> "
+                    "gives you your own values and views back.</p>")
+            self.note_view.setHtml(hint)
+            self.position_label.setText("")
+        else:
+            step = self.steps[index]
+            self.title_label.setText(step.title)
+            self.note_view.setHtml(render_note(step.note) or "<p></p>")
+            if self.current == index:
+                self.position_label.setText(f"Step {index + 1} of {n}")
+            else:
+                self.position_label.setText(f"Step {index + 1} of {n} (not on screen)")
+        self._syncing = True
+        try:
+            step = self.steps[index] if index is not None and 0 <= index < n else None
+            if self.title_edit.text() != (step.title if step else ""):
+                self.title_edit.setText(step.title if step else "")
+            if self.note_edit.toPlainText() != (step.note if step else ""):
+                self.note_edit.setPlainText(step.note if step else "")
+        finally:
+            self._syncing = False
+
+    def _show_problems(self) -> None:
+        if self.problems:
+            items = "".join(f"<li>{_escape(p[:1].upper() + p[1:])}.</li>" for p in self.problems)
+            self.problems_label.setText(f"<b>Not all of this step fits the model now:</b>"
+                                        f"<ul style='margin-left: -24px'>{items}</ul>")
+            pal = self.palette()
+            dark = pal.color(QPalette.ColorRole.Base).lightness() < 128
+            bg, fg, edge = ("#3a2f1c", "#f1dcb0", "#7d6332") if dark else ("#fdf3dc", "#5a3d06", "#e2c27a")
+            self.problems_label.setStyleSheet(f"QLabel {{ background: {bg}; color: {fg}; border: 1px solid {edge};"
+                                              f" border-radius: 4px; padding: 6px; }}")
+            self.problems_label.show()
+        else:
+            self.problems_label.hide()
+        if self.missing_views:
+            names = [views_pkg.module_title(v) for v in self.missing_views]
+            self.missing_label.setText(f"This step also uses the {', '.join(names)} "
+                                       f"view{'s' if len(names) > 1 else ''}, not in this version of OrbitDesk.")
+            self.missing_label.show()
+        else:
+            self.missing_label.hide()
+
+    def _update_controls(self) -> None:
+        n, sel = len(self.steps), self.selected_index()
+        cur = self.current
+        self.previous_button.setEnabled(n > 0 and (cur is None or cur > 0))
+        self.next_button.setEnabled(n > 0 and (cur is None or cur + 1 < n))
+        self.next_button.setText("Start  ▶" if cur is None and n else "Next  ▶")
+        self.leave_button.setEnabled(self.in_walkthrough)
+        self.present_button.setEnabled(n > 0 or self.presenting)
+        for b in (self.update_button, self.delete_button):
+            b.setEnabled(sel is not None)
+        self.up_button.setEnabled(sel is not None and sel > 0)
+        self.down_button.setEnabled(sel is not None and sel + 1 < n)
+        self.edit_button.setEnabled(sel is not None or self.edit_button.isChecked())
+        self.title_edit.setEnabled(sel is not None)
+        self.note_edit.setEnabled(sel is not None)
+        if cur is not None:
+            self.position_label.setText(f"Step {cur + 1} of {n}")
+
+    def _toggle_edit(self, on: bool) -> None:
+        self.edit_box.setVisible(on)
+        total = sum(self.splitter.sizes()) or self.height()
+        share = 0.38 if on else 0.6  # editing: room for the list and the fields
+        self.splitter.setSizes([int(total * share), total - int(total * share)])
+        if on:
+            self.title_edit.setFocus()
+
+    # ------------------------------------------------------------ session events
+    def _on_project_loaded(self) -> None:
+        self.set_presenting(False)
+        if self._own_layout is not None:  # the user's layout from before the walkthrough
+            self.main_window.restoreState(self._own_layout)
+        self._own_state, self._own_layout, self.current = None, None, None
+        self._pending.clear()
+        self.problems, self.missing_views = [], []
+        self._show_problems()
+        self._refresh_list(None)
+        self._update_controls()
+
+    def changeEvent(self, event) -> None:
+        if event.type() == QEvent.Type.PaletteChange and hasattr(self, "problems_label"):
+            self._show_problems()
+        super().changeEvent(event)
+
+
+def _takes_arrows(widget) -> bool:
+    """Widgets in which the arrow keys edit or move something the user chose."""
+    if isinstance(widget, (QLineEdit, QAbstractSpinBox, QComboBox)):
+        return True
+    if isinstance(widget, (QPlainTextEdit, QTextEdit)):
+        return not widget.isReadOnly()
+    return isinstance(widget, QAbstractSlider)
+
+
+def _escape(text: str) -> str:
+    return html.escape(text, quote=False)
+
+
+def install(window) -> WalkthroughPanel:
+    """Add the Walkthrough dock (right of the views, hidden until a project with steps is opened) and its
+    entry in the View menu. Sets ``window.walkthrough_dock`` and ``window.walkthrough_panel``."""
+    panel = WalkthroughPanel(window)
+    dock = QDockWidget("Walkthrough", window)
+    dock.setObjectName("walkthrough")
+    dock.setWidget(panel)
+    window.addDockWidget(Qt.DockWidgetArea.RightDockWidgetArea, dock, Qt.Orientation.Horizontal)
+    dock.hide()
+    toggle = dock.toggleViewAction()
+    toggle.setText("Walkthrough")
+    toggle.setToolTip("Show or hide the walkthrough: the project's steps, one at a time")
+    menu = getattr(window, "view_menu", None)
+    if menu is not None:
+        actions = menu.actions()
+        menu.insertAction(actions[2] if len(actions) > 2 else None, toggle)
+    window.walkthrough_dock, window.walkthrough_panel = dock, panel
+
+    def on_loaded():
+        if window.session.project.walkthrough and not dock.isVisible():
+            widths = keep_side_widths(window, WALKTHROUGH_WIDTH)
+            dock.show()
+            dock.raise_()
+            widths()
+
+    window.session.projectLoaded.connect(on_loaded)
+    return panel

@@ -1,0 +1,280 @@
+"""Basins of attraction: a grid of starts in two states coloured by the attractor each reaches
+(``core.basins``, on the ensemble engine as a job with progress and Cancel), escape in grey; for a forced
+flow, once per forcing period (the stroboscopic basins). Over it, the stable manifolds of the saddles of a
+two-state flow (``core.manifolds``), which are the basin boundaries."""
+
+from __future__ import annotations
+
+import html
+
+import numpy as np
+import pyqtgraph as pg
+from PySide6.QtCore import Signal
+from PySide6.QtGui import QColor
+from PySide6.QtWidgets import QLabel
+
+from orbitdesk.app.views import SERIES_COLOURS, empty_hint, is_dark, style_plot
+from orbitdesk.app.plots.plot_style import JobStrip, NumberBox, number_text, plain_axes
+from orbitdesk.app.views.common import (SessionView, apply_axis_settings, apply_numbers, check_box, combo_box, control_row, count_box,
+                     fill_combo, follow_forcing_period, grid_rect, push_button, quiet, select_text, set_quietly,
+                     status_label)
+
+ESCAPE_COLOUR = "#9a9a9a"
+MAX_SIDE = 300
+
+
+
+class BasinsView(SessionView):
+    view_id = "basins"
+    title = "Basins of attraction"
+
+    resultChanged = Signal(object)  # BasinResult or None
+
+    def __init__(self, session, parent=None):
+        super().__init__(session, parent)
+        self.result = None
+        self.manifold_items: list = []
+        self._user_period = False
+        self.x_state, self.y_state = combo_box("The state across"), combo_box("The state up")
+        self.x_lo, self.x_hi = NumberBox(-2.0, step=0.1), NumberBox(2.0, step=0.1)
+        self.y_lo, self.y_hi = NumberBox(-2.0, step=0.1), NumberBox(2.0, step=0.1)
+        self.x_count, self.y_count = count_box(80, MAX_SIDE), count_box(60, MAX_SIDE)
+        self.transient = NumberBox(200.0, 0.0, 1e9, step=10.0)
+        self.transient.setToolTip("Time (flows) or iterations (maps) before looking where a start has gone")
+        self.strobe = check_box("Once per forcing period", "The stroboscopic basins of a forced flow: look at "
+                                "each start once per forcing period")
+        self.period = NumberBox(2 * np.pi, 1e-9, 1e9, step=0.1)
+        self.period.setToolTip("The forcing period")
+        self.period.valueChanged.connect(lambda _v: setattr(self, "_user_period", True))
+        self.manifolds = check_box("Saddle manifolds", "Draw the stable manifolds of the saddles (two-state "
+                                   "flows): the edges of the basins", True, self._manifolds_toggled)
+        self.run_button = push_button("Compute", "Run every start and colour it by where it goes", self.compute)
+        self.strip = JobStrip(session, "Basins")
+        self.info = status_label()
+        self.legend = QLabel()
+        self.legend.setWordWrap(True)
+
+        self.plot_widget = pg.PlotWidget()
+        self.plot = self.plot_widget.getPlotItem()
+        plain_axes(self.plot)
+        self.image = pg.ImageItem(axisOrder="row-major")
+        self.plot.addItem(self.image)
+        self.centres = pg.ScatterPlotItem(size=9, symbol="o")
+        self.plot.addItem(self.centres)
+        self.empty = empty_hint(self.plot, "Compute colours each start by the attractor it reaches")
+
+        layout = self.main_layout()
+        layout.addLayout(control_row("Across", self.x_state, "from", self.x_lo, "to", self.x_hi, self.x_count,
+                                     "starts", None, self.run_button, stretch=False))
+        layout.addLayout(control_row("Up", self.y_state, "from", self.y_lo, "to", self.y_hi, self.y_count,
+                                     "starts"))
+        layout.addLayout(control_row("Settle for", self.transient, 8, self.strobe, self.period, 8, self.manifolds))
+        row = control_row(self.info, stretch=False)
+        row.setStretch(0, 1)
+        row.addWidget(self.strip, 1)
+        layout.addLayout(row)
+        layout.addWidget(self.plot_widget, 1)
+        layout.addWidget(self.legend)
+        self._restyle()
+        self.follow_session(values=self._on_values)
+
+    # ------------------------------------------------------------ view protocol
+    def view_settings(self) -> dict:
+        return {"x": {"state": self.x_state.currentText(), "from": float(self.x_lo.value()),
+                      "to": float(self.x_hi.value()), "count": self.x_count.value()},
+                "y": {"state": self.y_state.currentText(), "from": float(self.y_lo.value()),
+                      "to": float(self.y_hi.value()), "count": self.y_count.value()},
+                "transient": float(self.transient.value()), "strobe": self.strobe.isChecked(),
+                "period": float(self.period.value()), "manifolds": self.manifolds.isChecked()}
+
+    def apply_view_settings(self, d: dict) -> None:
+        if not isinstance(d, dict):
+            return
+        apply_numbers(d, ((self.transient, "transient", float), (self.period, "period", float)))
+        self._user_period = isinstance(d.get("period"), (int, float))
+        if isinstance(d.get("strobe"), bool):
+            set_quietly(self.strobe, d["strobe"])
+        if isinstance(d.get("manifolds"), bool):
+            set_quietly(self.manifolds, d["manifolds"])
+        self._wanted = {k: d[k] for k in ("x", "y") if isinstance(d.get(k), dict)}
+        if self.system is not None:
+            self._apply_wanted()
+
+    def export_data(self):
+        r = self.result
+        if r is None:
+            return None
+        gx, gy = np.meshgrid(r.xs, r.ys)
+        return [r.x_name, r.y_name, "attractor (-1: escape)"], np.column_stack(
+            [gx.ravel(), gy.ravel(), r.labels.ravel().astype(float)])
+
+    # ------------------------------------------------------------ public
+    def compute(self) -> None:
+        s = self.system
+        if s is None or s.n_states < 2:
+            self.info.setText("Basins need a model with at least two states")
+            return
+        xn, yn = self.x_state.currentText(), self.y_state.currentText()
+        if xn == yn:
+            self.info.setText("Choose two different states")
+            return
+        from orbitdesk.analyses.basins import BasinSettings, basins
+
+        xs = np.linspace(self.x_lo.value(), self.x_hi.value(), self.x_count.value())
+        ys = np.linspace(self.y_lo.value(), self.y_hi.value(), self.y_count.value())
+        settings = BasinSettings(transient=float(self.transient.value()),
+                                 dt=float(getattr(self.session.solver, "dt", None) or 0.01))
+        if s.kind != "map" and self.strobe.isChecked():
+            settings.period = float(self.period.value())
+        p, u0 = self.session.param_vector(), self.session.initial_vector()
+
+        def job(cancel, report):
+            return basins(s, xn, xs, yn, ys, settings, u0=u0, p=p, cancel=cancel, progress=report)
+
+        self.begin_computing()
+        self.info.setText("")
+        self.strip.what = f"Running {xs.size * ys.size:,} starts"
+        self.strip.run("basins", job, self._adopt, on_error=lambda m: self.info.setText(m[:1].upper() + m[1:]))
+
+    # ------------------------------------------------------------ session events
+    def _on_project_loaded(self) -> None:
+        self.system, self._wanted = None, None
+        self._show(None)
+        self.apply_view_settings(self.saved_view_settings())
+
+    def _on_system(self, system) -> None:
+        self.system = system
+        keep = (self.x_state.currentText(), self.y_state.currentText())
+        with quiet(self.x_state, self.y_state):
+            fill_combo(self.x_state, system.states)
+            fill_combo(self.y_state, system.states)
+            if len(system.states) > 1:
+                self.y_state.setCurrentIndex(1)
+            select_text(self.x_state, keep[0])
+            select_text(self.y_state, keep[1])
+        self._apply_wanted()
+        forced = system.kind != "map" and not system.autonomous
+        self.strobe.setEnabled(system.kind != "map")
+        if forced and not self.strobe.isChecked() and not self._user_period:
+            set_quietly(self.strobe, True)
+        if self.result is not None and (self.result.x_name not in system.states
+                                        or self.result.y_name not in system.states):
+            self._show(None)
+        self._on_values()
+
+    def _apply_wanted(self) -> None:
+        wanted, self._wanted = getattr(self, "_wanted", None) or {}, None
+        apply_axis_settings(wanted, (("x", self.x_state, self.x_lo, self.x_hi, self.x_count),
+                                     ("y", self.y_state, self.y_lo, self.y_hi, self.y_count)), "state")
+
+    def _on_values(self) -> None:
+        if self.system is not None and self.system.kind != "map":
+            follow_forcing_period(self.period, self.system, self.session.param_vector(), self._user_period)
+
+    # ------------------------------------------------------------ results
+    def _adopt(self, result) -> None:
+        self._show(result)
+        self.shown_computed()
+        self._request_manifolds()
+
+    def colour_of(self, label: int) -> QColor:
+        if label < 0:
+            return QColor(ESCAPE_COLOUR)
+        light, dark = SERIES_COLOURS[label % len(SERIES_COLOURS)]
+        return QColor(dark if is_dark(self) else light)
+
+    def _show(self, result) -> None:
+        self.result = result
+        for item in self.manifold_items:
+            self.plot.removeItem(item)
+        self.manifold_items = []
+        if result is None:
+            self.shown_nothing()
+            self.image.clear()
+            self.centres.setData([], [])
+            self.legend.setText("")
+            self.empty.setVisible(True)
+            self.resultChanged.emit(None)
+            return
+        self.empty.setVisible(False)
+        labels = result.labels
+        rgba = np.zeros(labels.shape + (4,), dtype=np.ubyte)
+        for label in np.unique(labels):
+            c = self.colour_of(int(label))
+            rgba[labels == label] = (c.red(), c.green(), c.blue(), 255 if label >= 0 else 150)
+        xs, ys = result.xs, result.ys
+        self.image.setImage(rgba, autoLevels=False)
+        self.image.setRect(grid_rect(xs, ys))
+        self.plot.setLabel("bottom", result.x_name)
+        self.plot.setLabel("left", result.y_name)
+        points = [(a["centre"].get(result.x_name), a["centre"].get(result.y_name), a["label"])
+                  for a in result.attractors if a["kind"] in ("equilibrium", "fixed point", "period-1 response")]
+        self.centres.setData([p[0] for p in points], [p[1] for p in points],
+                             brush=[pg.mkBrush("w") for _ in points],
+                             pen=[pg.mkPen(self.colour_of(p[2]).darker(160), width=2) for p in points])
+        rows = []
+        for a in result.attractors:
+            c = self.colour_of(a["label"]).name()
+            where = ", ".join(f"{html.escape(k)} ≈ {number_text(v if abs(v) > 1e-7 else 0.0, 4)}"
+                              for k, v in a["centre"].items())  # round-off shown as 0
+            rows.append(f"<span style='color:{c}'>■</span> {html.escape(a['kind'])} near ({where}): "
+                        f"{a['share'] * 100:.0f}% of the starts")
+        escaped = float(np.mean(labels < 0))
+        if escaped:
+            rows.append(f"<span style='color:{ESCAPE_COLOUR}'>■</span> escape (ran off or failed): "
+                        f"{escaped * 100:.0f}%")
+        what = "stroboscopic basins, once per forcing period" if result.stroboscopic else "basins"
+        self.legend.setText(f"<b>{len(result.attractors)} attractor{'s' if len(result.attractors) != 1 else ''}"
+                            f"</b> ({what})<br>" + "<br>".join(rows))
+        self.plot.autoRange(padding=0.02)
+        self.resultChanged.emit(result)
+
+    # ------------------------------------------------------------ saddle manifolds
+    def _manifolds_toggled(self, on: bool) -> None:
+        for item in self.manifold_items:
+            item.setVisible(on)
+        if on and not self.manifold_items:
+            self._request_manifolds()
+
+    def _request_manifolds(self) -> None:
+        s, r = self.system, self.result
+        if (s is None or r is None or not self.manifolds.isChecked() or s.kind == "map" or s.n_states != 2
+                or not s.autonomous_at(self.session.param_vector())):
+            return
+        from orbitdesk.analyses.equilibria import find_equilibria
+        from orbitdesk.analyses.manifolds import is_planar_saddle, saddle_manifolds
+
+        p = self.session.param_vector()
+        box = {r.x_name: (float(r.xs[0]), float(r.xs[-1])), r.y_name: (float(r.ys[0]), float(r.ys[-1]))}
+
+        def job(cancel, report):
+            eqs = find_equilibria(s, p, box=box, cancel=cancel, progress=report.part(0.0, 0.3))
+            saddles = [eq for eq in eqs if is_planar_saddle(s, eq)]
+            out = []
+            for k, eq in enumerate(saddles):
+                out.append(saddle_manifolds(s, eq, p, box=box, cancel=cancel,
+                                            progress=report.part(0.3 + 0.7 * k / len(saddles), 0.7 / len(saddles))))
+            return out
+
+        self.session.run_job("basins.manifolds", job, self._draw_manifolds, label="Saddle manifolds over the basins")
+
+    def _draw_manifolds(self, found) -> None:
+        r, s = self.result, self.system
+        if r is None or s is None:
+            return
+        ix, iy = s.states.index(r.x_name), s.states.index(r.y_name)
+        pen = pg.mkPen("k" if not is_dark(self) else "w", width=2)
+        for m in found:
+            for branch in m.stable:
+                item = pg.PlotDataItem(branch.points[ix], branch.points[iy], pen=pen)
+                item.setToolTip("A stable manifold of a saddle: a basin boundary")
+                self.plot.addItem(item, ignoreBounds=True)
+                self.manifold_items.append(item)
+        self.info.setText(f"{sum(len(m.stable) for m in found)} stable manifold branches of "
+                          f"{len(found)} saddle{'s' if len(found) != 1 else ''} drawn" if found else "")
+
+    def _restyle(self) -> None:
+        style_plot(self.plot_widget, self)
+
+
+VIEW = BasinsView

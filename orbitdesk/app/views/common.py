@@ -1,0 +1,556 @@
+"""What the views share: a base class that follows the session, small control factories and rows,
+quiet setting of controls for settings round-trips, and the run, cursor and equilibrium helpers of the
+views that draw trajectories."""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+from contextlib import contextmanager
+
+import numpy as np
+from PySide6.QtCore import QEvent, Qt, QTimer
+from PySide6.QtWidgets import (QAbstractButton, QCheckBox, QComboBox, QFrame, QHBoxLayout, QLabel, QPushButton,
+                               QSizePolicy, QVBoxLayout, QWidget)
+
+from orbitdesk.app.plots.plot_style import hint_label, number_text, orbit_middle
+
+DIRECTION_LABELS = ("upward", "downward", "both ways")
+
+
+class StaleBar(QFrame):
+    """A strip over a view's result: "Computed for other values (r = 28, now 30)" and a Recompute button."""
+
+    def __init__(self, recompute, parent=None):
+        super().__init__(parent)
+        self.setObjectName("stale_bar")
+        self.setFrameShape(QFrame.Shape.StyledPanel)
+        self.setStyleSheet("#stale_bar { background: palette(alternate-base); border-radius: 3px; }")
+        self.label = QLabel()
+        self.label.setWordWrap(True)
+        self.label.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
+        self.button = push_button("Recompute", "Compute this result again for the values now set", recompute)
+        row = QHBoxLayout(self)
+        row.setContentsMargins(6, 2, 2, 2)
+        row.setSpacing(6)
+        row.addWidget(self.label, 1)
+        row.addWidget(self.button)
+        self.hide()
+
+
+class SessionView(QWidget):
+    """A view of the session's document: ``follow_session`` wires the handlers and catches up, a palette
+    change calls ``_restyle``. Subclasses define ``_on_project_loaded`` and ``_on_system``.
+
+    Results computed on request are marked stale the same way everywhere: call ``begin_computing()``
+    when a computation starts, ``shown_computed()`` when its result is shown and ``shown_nothing()`` when
+    the view is cleared; whenever the values, the solver settings or the model differ from those the
+    shown result was computed for, a bar over the view says so and offers ``recompute()``."""
+
+    view_id = ""
+    title = ""
+    stale_follows_solver = False   # results depend on the solver settings too (runs, sections)
+    result_class = None            # the core result this view keeps in the project (see result_store)
+
+    def __init__(self, session, parent=None):
+        super().__init__(parent)
+        self.session = session
+        self.system = None
+        self._computing_for = None
+        self._computed_for = None
+        self._stale_skip = None
+        self._fit_pending = False
+        self._restore_pending = True
+        self.stale_bar = StaleBar(self.recompute)
+
+    def follow_session(self, values=None, settings=None, trajectory=None, cursor=None) -> None:
+        """Connect the session's signals to this view's handlers, then catch up with what the session
+        holds now: the saved view settings, the system and (with ``trajectory``) the current run."""
+        s = self.session
+        s.systemChanged.connect(self._on_system)
+        if trajectory is not None:
+            trajectory = self._fitting_after(trajectory)
+        for signal, handler in ((s.valuesChanged, values), (s.settingsChanged, settings),
+                                (s.trajectoryChanged, trajectory), (s.timeCursorChanged, cursor)):
+            if handler is not None:
+                signal.connect(handler)
+        s.projectLoaded.connect(lambda: setattr(self, "_restore_pending", True))
+        s.projectLoaded.connect(self._on_project_loaded)
+        for signal in (s.valuesChanged, s.settingsChanged, s.systemChanged):
+            signal.connect(self.update_stale)
+        self._on_project_loaded()
+        if s.system is not None:
+            self._on_system(s.system)
+        if trajectory is not None and s.trajectory is not None:
+            trajectory(s.trajectory)
+
+    def _fitting_after(self, handler):
+        def on_trajectory(trajectory):
+            handler(trajectory)
+            if self._fit_pending and not self.session.run_pending():
+                self._fit_pending = False
+                self.fit_view()
+        return on_trajectory
+
+    def fit_after_next_run(self) -> None:
+        """Fit the plots to what they show once the run for the values now set has arrived (now, if it
+        has): a walkthrough step shows its plots whole."""
+        self._fit_pending = True
+        if not self.session.run_pending():
+            self._fit_pending = False
+            self.fit_view()
+
+    def fit_view(self) -> None:
+        """Zoom the plots to their data (views with plots override this)."""
+
+    def main_layout(self) -> QVBoxLayout:
+        """The view's own layout: controls above the plots, with the margins every view uses."""
+        layout = QVBoxLayout(self)
+        layout.setContentsMargins(6, 6, 6, 6)
+        layout.setSpacing(4)
+        layout.addWidget(self.stale_bar)
+        return layout
+
+    def saved_view_settings(self) -> dict:
+        """This view's settings as the open project keeps them."""
+        return self.session.project.views.get(self.view_id, {})
+
+    # ------------------------------------------------------------ stale results
+    def values_now(self, skip=None) -> dict:
+        """What a result computed now is computed for (``skip``: a parameter, or a list of parameters, the
+        result runs over)."""
+        s = self.session
+        skip = (skip,) if isinstance(skip, str) else tuple(skip or ())
+        return {"params": {n: v for n, v in s.params.items() if n not in skip}, "initial": dict(s.initial),
+                "system": id(self.system),
+                "solver": dataclasses.astuple(s.solver) if self.stale_follows_solver else None}
+
+    def begin_computing(self, skip: str | None = None) -> None:
+        self._computing_for, self._stale_skip = self.values_now(skip), skip
+
+    def shown_computed(self) -> None:
+        self._computed_for = self._computing_for
+        self.update_stale()
+
+    def shown_nothing(self) -> None:
+        self._computed_for = None
+        self.update_stale()
+
+    def is_stale(self) -> bool:
+        return self._computed_for is not None and self._computed_for != self.values_now(self._stale_skip)
+
+    def stale_text(self) -> str:
+        then, now = self._computed_for, self.values_now(self._stale_skip)
+        if then is None or then == now:
+            return ""
+        parts = []
+        if then["system"] != now["system"]:
+            parts.append("an earlier version of the model")
+        changed = [n for n in then["params"] if n in now["params"] and then["params"][n] != now["params"][n]]
+        if changed:
+            parts.append(", ".join(f"{n} = {number_text(then['params'][n])} (now {number_text(now['params'][n])})"
+                                   for n in changed[:3]) + (", …" if len(changed) > 3 else ""))
+        if then["initial"] != now["initial"]:
+            parts.append("other initial values")
+        if then["solver"] != now["solver"]:
+            parts.append("other solver settings")
+        return "Computed for " + ("; ".join(parts) if parts else "other values")
+
+    def update_stale(self, *_args) -> None:
+        text = self.stale_text()
+        self.stale_bar.label.setText(text)
+        self.stale_bar.label.setToolTip(text)
+        self.stale_bar.setVisible(bool(text))
+
+    # ------------------------------------------------------------ results kept in the project
+    def kept_result(self) -> dict | None:
+        """The shown result as the project keeps it, with the values it was computed for."""
+        from orbitdesk.app.result_store import pack, text_digest
+
+        r, f = getattr(self, "result", None), self._computed_for
+        if self.result_class is None or r is None or f is None:
+            return None
+        data = pack(r)
+        if data is None:
+            return None
+        current = f["system"] == id(self.system)
+        return {"for": {"params": f["params"], "initial": f["initial"],
+                        "solver": None if f["solver"] is None else list(f["solver"]),
+                        "model": text_digest(self.session.text) if current else None},
+                "skip": self._stale_skip, "data": data}
+
+    def restore_kept_result(self) -> bool:
+        """Once after a project is opened (call at the end of ``_on_system``): show the result the
+        project kept, marked stale if the model or the values differ from those it was computed for."""
+        from orbitdesk.app.result_store import RESULTS_KEY, text_digest, unpack
+
+        if not self._restore_pending or self.result_class is None or self.system is None:
+            return False
+        self._restore_pending = False
+        kept = self.session.project.views.get(RESULTS_KEY, {})
+        d = kept.get(self.view_id) if isinstance(kept, dict) else None
+        if not isinstance(d, dict) or not isinstance(d.get("for"), dict):
+            return False
+        result = unpack(self.result_class, d.get("data"))
+        f = d["for"]
+        if result is None or not isinstance(f.get("params"), dict) or not isinstance(f.get("initial"), dict):
+            return False
+        try:
+            self.show_kept_result(result)
+        except (AttributeError, KeyError, IndexError, TypeError, ValueError):
+            return False  # a kept result that does not fit this model is left out
+        same_model = f.get("model") == text_digest(self.session.text)
+        self._computed_for = {"params": f["params"], "initial": f["initial"],
+                              "system": id(self.system) if same_model else -1,
+                              "solver": None if f.get("solver") is None else tuple(f["solver"])}
+        skip = d.get("skip")
+        self._stale_skip = skip if isinstance(skip, str) or (
+            isinstance(skip, list) and all(isinstance(n, str) for n in skip)) else None
+        self.update_stale()
+        return True
+
+    def show_kept_result(self, result) -> None:
+        """Show a result read back from the project (views with ``result_class`` override this)."""
+
+    def recompute(self) -> None:
+        """Compute the shown result again for the present values (the view's compute or run)."""
+        for name in ("compute", "run"):
+            method = getattr(self, name, None)
+            if callable(method):
+                method()
+                return
+
+    def changeEvent(self, event) -> None:
+        super().changeEvent(event)
+        if event.type() == QEvent.Type.PaletteChange:
+            self._restyle()
+
+    def _restyle(self) -> None:
+        """Colours from the (new) palette; views with plots redraw."""
+
+    def _on_project_loaded(self) -> None:
+        raise NotImplementedError
+
+    def _on_system(self, system) -> None:
+        raise NotImplementedError
+
+
+# ---------------------------------------------------------------- controls
+def combo_box(tip: str, items=(), slot=None) -> QComboBox:
+    """A combo box as wide as its longest entry, with a tooltip and an optional index-changed slot."""
+    combo = QComboBox()
+    combo.setToolTip(tip)
+    combo.setSizeAdjustPolicy(QComboBox.SizeAdjustPolicy.AdjustToContents)
+    combo.addItems(list(items))
+    if slot is not None:
+        combo.currentIndexChanged.connect(slot)
+    return combo
+
+
+def direction_combo(tip: str, slot=None) -> QComboBox:
+    """Crossing direction: upward, downward, both ways (in that order)."""
+    return combo_box(tip, DIRECTION_LABELS, slot)
+
+
+def check_box(text: str, tip: str, checked: bool = False, slot=None) -> QCheckBox:
+    box = QCheckBox(text)
+    box.setChecked(checked)
+    box.setToolTip(tip)
+    if slot is not None:
+        box.toggled.connect(slot)
+    return box
+
+
+def push_button(text: str, tip: str, slot) -> QPushButton:
+    button = QPushButton(text)
+    button.setToolTip(tip)
+    button.clicked.connect(slot)
+    return button
+
+
+def status_label() -> QLabel:
+    """A quiet note that wraps onto a second line rather than widening the view or being cut off."""
+    label = hint_label()
+    label.setWordWrap(True)
+    label.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
+    return label
+
+
+def control_row(*items, spacing: int = 4, stretch: bool = True) -> QHBoxLayout:
+    """A row of controls without margins: widgets, text (becomes a label), an int (extra space) or
+    None (a stretch); a final stretch unless ``stretch`` is False."""
+    row = QHBoxLayout()
+    row.setContentsMargins(0, 0, 0, 0)
+    row.setSpacing(spacing)
+    for item in items:
+        if item is None:
+            row.addStretch(1)
+        elif isinstance(item, str):
+            row.addWidget(QLabel(item))
+        elif isinstance(item, int):
+            row.addSpacing(item)
+        else:
+            row.addWidget(item)
+    if stretch:
+        row.addStretch(1)
+    return row
+
+
+def fill_default_range(session, name: str, lo_box, hi_box) -> None:
+    """Put the slider range of parameter ``name`` (around its value) into two number boxes."""
+    from orbitdesk.app.panels.parameters import slider_range
+
+    lo, hi = slider_range(session.params.get(name, 0.0), *session.param_range(name))
+    lo_box.setValue(lo)
+    hi_box.setValue(hi)
+
+
+def row_widget(*items, spacing: int = 4) -> QWidget:
+    """``control_row`` in a widget of its own (a page of a QStackedWidget)."""
+    widget = QWidget()
+    widget.setLayout(control_row(*items, spacing=spacing))
+    return widget
+
+
+def count_box(value: int, maximum: int, tip: str = "How many values, evenly spaced"):
+    """A spin box for the number of grid values along one axis (2 .. ``maximum``)."""
+    from PySide6.QtWidgets import QSpinBox
+
+    box = QSpinBox()
+    box.setRange(2, maximum)
+    box.setValue(value)
+    box.setKeyboardTracking(False)
+    box.setToolTip(tip)
+    return box
+
+
+def grid_rect(xs, ys):
+    """The rectangle an image of one cell per grid point covers: cells centred on the values."""
+    from PySide6.QtCore import QRectF
+
+    dx = (xs[-1] - xs[0]) / (xs.size - 1) if xs.size > 1 else 1.0
+    dy = (ys[-1] - ys[0]) / (ys.size - 1) if ys.size > 1 else 1.0
+    return QRectF(xs[0] - dx / 2, ys[0] - dy / 2, dx * xs.size, dy * ys.size)
+
+
+def apply_axis_settings(wanted: dict, axes, name_key: str) -> None:
+    """Settings {"x": {name_key: NAME, "from", "to", "count"}, "y": {...}} onto the controls of two grid axes:
+    ``axes`` holds (key, combo, from box, to box, count box)."""
+    for key, combo, lo, hi, count in axes:
+        d = wanted.get(key)
+        if d:
+            with quiet(combo):
+                select_text(combo, d.get(name_key))
+            apply_numbers(d, ((lo, "from", float), (hi, "to", float), (count, "count", int)))
+
+
+def auto_timer(parent, delay_ms: int, action, enabled) -> QTimer:
+    """A single-shot timer (start it on every change) that runs ``action`` if ``enabled()`` still holds."""
+    timer = QTimer(parent, singleShot=True, interval=delay_ms)
+    timer.timeout.connect(lambda: action() if enabled() else None)
+    return timer
+
+
+# ---------------------------------------------------------------- settings round-trips
+def is_number(value) -> bool:
+    """A finite int or float (not a bool): what a number in a view's settings must be."""
+    return isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value)
+
+
+@contextmanager
+def quiet(*widgets):
+    """Change these widgets without their signals firing."""
+    before = [w.blockSignals(True) for w in widgets]
+    try:
+        yield
+    finally:
+        for w, was in zip(widgets, before):
+            w.blockSignals(was)
+
+
+def set_quietly(widget, value) -> None:
+    """Set a spin box's value, a button's check state or a combo box's index without signals."""
+    with quiet(widget):
+        if isinstance(widget, QComboBox):
+            widget.setCurrentIndex(int(value))
+        elif isinstance(widget, QAbstractButton):
+            widget.setChecked(bool(value))
+        else:
+            widget.setValue(value)
+
+
+def apply_numbers(d: dict, fields) -> None:
+    """Set spin boxes quietly from a settings dict: ``fields`` holds (widget, key, int or float);
+    a key that is missing or not a finite number leaves its widget as it is."""
+    for widget, key, kind in fields:
+        if is_number(d.get(key)):
+            set_quietly(widget, kind(d[key]))
+
+
+def select_text(combo: QComboBox, text) -> bool:
+    """Make ``text`` the current entry if the combo box has it."""
+    i = combo.findText(text) if isinstance(text, str) else -1
+    if i >= 0:
+        combo.setCurrentIndex(i)
+    return i >= 0
+
+
+def fill_combo(combo: QComboBox, names) -> None:
+    """Replace the entries without signals (the caller chooses the current one)."""
+    with quiet(combo):
+        combo.clear()
+        combo.addItems(list(names))
+
+
+def coordinate_names(system, time_last: bool = True) -> list[str]:
+    """The quantities a view can put on an axis: states, derived quantities and time."""
+    names = list(system.states) + list(system.derived_names)
+    return names + [system.time_name] if time_last else [system.time_name] + names
+
+
+# ---------------------------------------------------------------- forcing and section planes
+def detected_period(system, p):
+    """The forcing period the core reads off the model (cos/sin of omega*t), or None."""
+    try:
+        from orbitdesk.analyses.cycles import detect_forcing_period
+    except ImportError:
+        return None
+    try:
+        return detect_forcing_period(system, p)
+    except (TypeError, ValueError, ArithmeticError):
+        return None
+
+
+def follow_forcing_period(box, system, p, user_set: bool):
+    """Put the model's forcing period in ``box`` unless the user typed one; returns the period or None."""
+    period = None if system is None or system.kind == "map" else detected_period(system, p)
+    if period is not None and not user_set:
+        set_quietly(box, period)
+    return period
+
+
+def put_through_orbit(box, trajectory, name: str, user_set: bool) -> None:
+    """Unless the user typed a value, put a section plane ``name = value`` through the middle of the
+    current orbit (its mean), so that the orbit crosses it."""
+    middle = orbit_middle(trajectory, name)
+    if not user_set and middle is not None:
+        set_quietly(box, middle)
+
+
+# ---------------------------------------------------------------- runs, the time cursor, equilibria
+def run_time_name(trajectory) -> str:
+    return "n" if trajectory.kind == "map" else "t"
+
+
+def start_run_settings(session, max_samples: int) -> dict:
+    """Engine settings for trajectories started from other states: {False: forward, True: backward over
+    the same span}, with at most ``max_samples`` output points each."""
+    fwd = session.run_settings(samples=min(session.solver.samples or max_samples, max_samples))
+    span = fwd.t_end - fwd.t_start
+    back = session.run_settings(samples=fwd.samples, t_end=fwd.t_start - span, transient=0.0)
+    return {False: fwd, True: back}
+
+
+def runs_job(session, system, starts, max_samples: int):
+    """A job for ``session.run_job`` running one engine run per start, a (u0, backward) pair; it returns
+    the Trajectories in order (None for a backward start of a map, which cannot run backward)."""
+    p = session.param_vector()
+    settings = start_run_settings(session, max_samples)
+
+    def job(cancel, report):
+        from orbitdesk.engine.runs import simulate
+
+        runs = []
+        for k, (u0, backward) in enumerate(starts):
+            part = report.part(k / len(starts), 1 / len(starts))
+            if backward and system.kind == "map":
+                runs.append(None)
+                continue
+            runs.append(simulate(system, settings[bool(backward)], np.asarray(u0, dtype=float), p,
+                                 cancel=cancel, progress=part))
+        return runs
+
+    return job
+
+
+def cycle_columns(system, cycle, p) -> dict:
+    """Every coordinate of a limit cycle (core Cycle: one period, closed) or a map cycle (its points, in
+    orbit order, the first repeated to close it): the time or step, the states and derived quantities."""
+    if system is None or cycle is None:
+        return {}
+    if hasattr(cycle, "orbit"):
+        time, states = np.asarray(cycle.time, dtype=float), np.asarray(cycle.orbit, dtype=float)
+    else:
+        points = np.asarray(cycle.points, dtype=float)
+        states = np.concatenate([points, points[:, :1]], axis=1)
+        time = np.arange(states.shape[1], dtype=float)
+    if states.shape[0] != system.n_states:
+        return {}
+    cols = {system.time_name: time, **{name: states[i] for i, name in enumerate(system.states)}}
+    if system.derived_names and time.size:
+        derived = system.derived_values(time, states, p)
+        cols.update({k: np.asarray(v, dtype=float) for k, v in derived.items()})
+    return cols
+
+
+def cut_at_escape(x, y, view_range, status: str, margin: float = 2.0):
+    """A run that blew up (or hit an undefined value) cut just after it leaves the plot by more than
+    ``margin`` view widths, so that its last, enormous points draw no streak across the plot."""
+    if status == "ok" or x.size == 0:
+        return x, y
+    (x0, x1), (y0, y1) = view_range
+    wx, wy = (x1 - x0) * margin, (y1 - y0) * margin
+    with np.errstate(invalid="ignore"):
+        out = ~((x >= x0 - wx) & (x <= x1 + wx) & (y >= y0 - wy) & (y <= y1 + wy))
+    if not out.any():
+        return x, y
+    k = int(np.argmax(out))
+    return x[:k + 1], y[:k + 1]
+
+
+def values_at_time(time, t: float, discrete: bool, *series) -> tuple:
+    """Each series at time ``t`` of a run: linear between the samples of a flow, the sample at or after
+    ``t`` for a map; runs may go backward in time. Rows of 2D arrays are interpolated alike."""
+    forward = time[-1] >= time[0]
+    k = int(np.clip(np.searchsorted(time if forward else -time, t if forward else -t), 0, time.size - 1))
+    if 0 < k and time[k] != time[k - 1] and not discrete:
+        w = float(np.clip((t - time[k - 1]) / (time[k] - time[k - 1]), 0, 1))
+        return tuple(s[k - 1] + w * (s[k] - s[k - 1]) for s in series)
+    return tuple(s[k] for s in series)
+
+
+def equilibrium_fields(item):
+    """(state dict, stable, kind) from an Equilibrium (core.equilibria) or a dict with the same keys."""
+    get = (lambda k, d=None: item.get(k, d)) if isinstance(item, dict) else (lambda k, d=None: getattr(item, k, d))
+    state = get("state") or get("point") or {}
+    return dict(state), get("stable"), str(get("kind", "") or "")
+
+
+def equilibrium_coordinates(system, item, names, p):
+    """(u, [value of each name]) of an equilibrium, derived quantities evaluated there (time 0);
+    None when its state is incomplete or a name is unknown."""
+    state = equilibrium_fields(item)[0]
+    try:
+        u = np.array([float(state[n]) for n in system.states])
+    except (KeyError, TypeError, ValueError):
+        return None
+    point = {**dict(zip(system.states, u)), system.time_name: 0.0}
+    if any(n not in point for n in names):
+        derived = system.derived_values(np.zeros(1), u.reshape(-1, 1), p)
+        point.update({k: float(v[0]) for k, v in derived.items()})
+    if any(n not in point for n in names):
+        return None
+    return u, [point[n] for n in names]
+
+
+def clicked_point(plot_item, event):
+    """The data point of a plain left click inside the plot's view box, else None (Ctrl+click measures,
+    see ``plot_tools``)."""
+    if (event.button() != Qt.MouseButton.LeftButton or event.double()
+            or event.modifiers() & Qt.KeyboardModifier.ControlModifier):
+        return None
+    vb = plot_item.getViewBox()
+    pos = event.scenePos()
+    if not vb.sceneBoundingRect().contains(pos):
+        return None
+    return vb.mapSceneToView(pos)

@@ -1,0 +1,304 @@
+"""Two-parameter map: the largest Lyapunov exponent (``core.sweep.lyapunov_grid``) or the period of the
+attractor (``core.parameter_maps.period_grid``) over a grid of two parameters, as a coloured map with a
+colour bar. Clicking the map sets both parameters there; a cross marks the values now set."""
+
+from __future__ import annotations
+
+import numpy as np
+import pyqtgraph as pg
+from PySide6.QtCore import Qt, Signal
+from PySide6.QtWidgets import QLabel, QSpinBox, QStackedWidget
+
+from orbitdesk.app.views import empty_hint, muted_colour, style_plot
+from orbitdesk.app.plots.plot_style import JobStrip, NumberBox, plain_axes, round_significant
+from orbitdesk.app.views.common import (SessionView, apply_axis_settings, apply_numbers, clicked_point, combo_box, control_row,
+                     count_box, fill_combo, follow_forcing_period, grid_rect, push_button, quiet, row_widget,
+                     select_text, set_quietly, status_label)
+
+LYAPUNOV, PERIOD = "lyapunov", "period"
+WHATS = (LYAPUNOV, PERIOD)
+WHAT_LABELS = {LYAPUNOV: "largest Lyapunov exponent", PERIOD: "period of the attractor"}
+MAX_SIDE = 400
+
+
+
+class ParameterMapView(SessionView):
+    view_id = "parameter_map"
+    title = "Two-parameter map"
+
+    resultChanged = Signal(object)  # LyapunovGrid / PeriodGrid, or None
+
+    def __init__(self, session, parent=None):
+        super().__init__(session, parent)
+        self.result = None
+        self._user_period = False
+        self.what = combo_box("What is coloured at each pair of values", [WHAT_LABELS[w] for w in WHATS],
+                              self._on_what)
+        self.x_param = combo_box("The parameter across")
+        self.y_param = combo_box("The parameter up")
+        self.x_lo, self.x_hi = NumberBox(0.0, step=0.1), NumberBox(1.0, step=0.1)
+        self.y_lo, self.y_hi = NumberBox(0.0, step=0.1), NumberBox(1.0, step=0.1)
+        self.x_count, self.y_count = count_box(60, MAX_SIDE), count_box(40, MAX_SIDE)
+        self.x_param.currentIndexChanged.connect(lambda _i: self._default_range(self.x_param, self.x_lo, self.x_hi))
+        self.y_param.currentIndexChanged.connect(lambda _i: self._default_range(self.y_param, self.y_lo, self.y_hi))
+        self.transient = NumberBox(200.0, 0.0, 1e9, step=10.0)
+        self.transient.setToolTip("Time (flows) or iterations (maps) dropped before measuring")
+        self.duration = NumberBox(500.0, 1.0, 1e9, step=100.0)
+        self.duration.setToolTip("Averaging time (flows) or iterations (maps) of the exponent")
+        self.max_period = QSpinBox()
+        self.max_period.setRange(1, 256)
+        self.max_period.setValue(16)
+        self.max_period.setToolTip("The longest period looked for; longer or no period is coloured as 'none'")
+        self.period = NumberBox(2 * np.pi, 1e-9, 1e9, step=0.1)
+        self.period.setToolTip("Forcing period of a flow: the period is counted in these")
+        self.period.valueChanged.connect(lambda _v: setattr(self, "_user_period", True))
+        self.period_label = QLabel("forcing period")
+        self.duration_page = row_widget("average over", self.duration)
+        self.period_page = row_widget("up to", self.max_period, self.period_label, self.period)
+        self.what_stack = QStackedWidget()
+        self.what_stack.addWidget(self.duration_page)
+        self.what_stack.addWidget(self.period_page)
+        self.run_button = push_button("Compute", "Compute the map for the values now set", self.compute)
+        self.strip = JobStrip(session, "Mapping")
+        self.info = status_label()
+
+        self.plot_widget = pg.PlotWidget()
+        self.plot = self.plot_widget.getPlotItem()
+        plain_axes(self.plot)
+        self.plot_widget.setToolTip("Click to set both parameters there")
+        self.image = pg.ImageItem(axisOrder="row-major")
+        self.plot.addItem(self.image)
+        self.marker = pg.ScatterPlotItem(size=14, symbol="+", pen=pg.mkPen("k", width=2))
+        self.plot.addItem(self.marker, ignoreBounds=True)
+        self.colour_bar = pg.ColorBarItem(values=(0, 1), width=14, interactive=False)
+        self.colour_bar.setImageItem(self.image, insert_in=self.plot)
+        self.colour_bar.getAxis("right").enableAutoSIPrefix(False)  # plain numbers, no "(x0.001)"
+        self.empty = empty_hint(self.plot, "Compute draws the map; click it to set both parameters")
+        self.plot_widget.scene().sigMouseClicked.connect(self._on_click)
+
+        layout = self.main_layout()
+        layout.addLayout(control_row("Colour by", self.what, 8, self.what_stack, None, self.run_button,
+                                     stretch=False))
+        layout.addLayout(control_row("Across", self.x_param, "from", self.x_lo, "to", self.x_hi, self.x_count,
+                                     "values", spacing=4))
+        layout.addLayout(control_row("Up", self.y_param, "from", self.y_lo, "to", self.y_hi, self.y_count, "values",
+                                     8, "settle for", self.transient, spacing=4))
+        row = control_row(self.info, stretch=False)
+        row.setStretch(0, 1)
+        row.addWidget(self.strip, 1)
+        layout.addLayout(row)
+        layout.addWidget(self.plot_widget, 1)
+        self._restyle()
+        self.follow_session(values=self._on_values)
+
+    # ------------------------------------------------------------ view protocol
+    def view_settings(self) -> dict:
+        return {"what": WHATS[self.what.currentIndex()],
+                "x": {"parameter": self.x_param.currentText(), "from": float(self.x_lo.value()),
+                      "to": float(self.x_hi.value()), "count": self.x_count.value()},
+                "y": {"parameter": self.y_param.currentText(), "from": float(self.y_lo.value()),
+                      "to": float(self.y_hi.value()), "count": self.y_count.value()},
+                "transient": float(self.transient.value()), "duration": float(self.duration.value()),
+                "max_period": self.max_period.value(), "period": float(self.period.value())}
+
+    def apply_view_settings(self, d: dict) -> None:
+        if not isinstance(d, dict):
+            return
+        if d.get("what") in WHATS:
+            self.what.setCurrentIndex(WHATS.index(d["what"]))
+        apply_numbers(d, ((self.transient, "transient", float), (self.duration, "duration", float),
+                          (self.max_period, "max_period", int), (self.period, "period", float)))
+        self._user_period = isinstance(d.get("period"), (int, float))
+        self._wanted = {k: d[k] for k in ("x", "y") if isinstance(d.get(k), dict)}
+        if self.system is not None:
+            self._apply_wanted()
+
+    def export_data(self):
+        r = self.result
+        if r is None:
+            return None
+        gx, gy = np.meshgrid(r.xs, r.ys)
+        values = r.exponent if hasattr(r, "exponent") else r.period
+        return [r.x_name, r.y_name, self._value_name()], np.column_stack([gx.ravel(), gy.ravel(),
+                                                                           np.asarray(values, float).ravel()])
+
+    # ------------------------------------------------------------ public
+    def compute(self) -> None:
+        s = self.system
+        if s is None or len(s.parameters) < 2:
+            self.info.setText("A two-parameter map needs a model with two parameters")
+            return
+        xn, yn = self.x_param.currentText(), self.y_param.currentText()
+        if xn == yn:
+            self.info.setText("Choose two different parameters")
+            return
+        xs = np.linspace(self.x_lo.value(), self.x_hi.value(), self.x_count.value())
+        ys = np.linspace(self.y_lo.value(), self.y_hi.value(), self.y_count.value())
+        p, u0 = self.session.param_vector(), self.session.initial_vector()
+        what = WHATS[self.what.currentIndex()]
+        transient = float(self.transient.value())
+        if what == LYAPUNOV:
+            from orbitdesk.analyses.sweep import GridSettings, lyapunov_grid
+
+            settings = GridSettings(transient=transient, duration=float(self.duration.value()),
+                                    dt=float(getattr(self.session.solver, "dt", None) or 0.01))
+
+            def job(cancel, report):
+                return lyapunov_grid(s, xn, xs, yn, ys, settings, u0=u0, p=p, cancel=cancel, progress=report)
+        else:
+            from orbitdesk.analyses.parameter_maps import period_grid
+            from orbitdesk.analyses.sweep import STROBE, SweepSettings
+
+            settings = SweepSettings(transient=transient)
+            if s.kind != "map":
+                settings.mode, settings.period = STROBE, float(self.period.value())
+            max_period = self.max_period.value()
+
+            def job(cancel, report):
+                return period_grid(s, xn, xs, yn, ys, settings, max_period=max_period, u0=u0, p=p,
+                                   cancel=cancel, progress=report)
+        self.begin_computing(skip=[xn, yn])
+        self.info.setText("")
+        self.strip.what = f"Mapping the {WHAT_LABELS[what]} over {xs.size} × {ys.size} values"
+        self.strip.run("parameter_map", job, self._adopt, on_error=lambda m: self.info.setText(m[:1].upper() + m[1:]))
+
+    # ------------------------------------------------------------ session events
+    def _on_project_loaded(self) -> None:
+        self.system = None
+        self._show(None)
+        self._wanted = None
+        self.apply_view_settings(self.saved_view_settings())
+
+    def _on_system(self, system) -> None:
+        self.system = system
+        keep = (self.x_param.currentText(), self.y_param.currentText())
+        with quiet(self.x_param, self.y_param):
+            fill_combo(self.x_param, system.parameters)
+            fill_combo(self.y_param, system.parameters)
+            ranged = [n for n in system.parameters if None not in self.session.param_range(n)]
+            order = ranged + [n for n in system.parameters if n not in ranged]
+            if len(order) >= 2:
+                select_text(self.x_param, order[0])
+                select_text(self.y_param, order[1])
+            select_text(self.x_param, keep[0])
+            select_text(self.y_param, keep[1])
+        self._default_range(self.x_param, self.x_lo, self.x_hi)
+        self._default_range(self.y_param, self.y_lo, self.y_hi)
+        self._apply_wanted()
+        if self.result is not None and (self.result.x_name not in system.parameters
+                                        or self.result.y_name not in system.parameters):
+            self._show(None)
+        self._on_what()
+        self._on_values()
+
+    def _apply_wanted(self) -> None:
+        wanted, self._wanted = getattr(self, "_wanted", None) or {}, None
+        apply_axis_settings(wanted, (("x", self.x_param, self.x_lo, self.x_hi, self.x_count),
+                                     ("y", self.y_param, self.y_lo, self.y_hi, self.y_count)), "parameter")
+
+    def _on_values(self) -> None:
+        if self.system is not None and self.system.kind != "map":
+            follow_forcing_period(self.period, self.system, self.session.param_vector(), self._user_period)
+        self._draw_marker()
+
+    def _on_what(self, _index=None) -> None:
+        what = WHATS[self.what.currentIndex()]
+        self.what_stack.setCurrentIndex(WHATS.index(what))
+        flow = self.system is not None and self.system.kind != "map"
+        self.period_label.setVisible(flow)
+        self.period.setVisible(flow)
+
+    def _default_range(self, combo, lo_box, hi_box) -> None:
+        name = combo.currentText()
+        if not name or self.system is None:
+            return
+        lo, hi = self.session.param_range(name)
+        value = self.session.params.get(name, 0.0)
+        if lo is None or hi is None:
+            lo, hi = (value - 1.0, value + 1.0) if value == 0 else (value * 0.5, value * 1.5)
+        set_quietly(lo_box, float(min(lo, hi)))
+        set_quietly(hi_box, float(max(lo, hi)))
+
+    # ------------------------------------------------------------ results
+    def _adopt(self, result) -> None:
+        self._show(result)
+        self.shown_computed()
+
+    def _value_name(self) -> str:
+        r = self.result
+        if r is None:
+            return ""
+        return "largest Lyapunov exponent" if hasattr(r, "exponent") else f"period ({r.unit})"
+
+    def _show(self, result) -> None:
+        self.result = result
+        if result is None:
+            self.shown_nothing()
+            self.image.clear()
+            self.empty.setVisible(True)
+            self.resultChanged.emit(None)
+            return
+        self.empty.setVisible(False)
+        xs, ys = result.xs, result.ys
+        if hasattr(result, "exponent"):
+            data = np.asarray(result.exponent, dtype=float)
+            span = float(np.nanmax(np.abs(data))) if np.isfinite(data).any() else 1.0
+            span = span or 1.0
+            self.colour_bar.setColorMap(pg.colormap.get("CET-D1"))
+            self.colour_bar.setLevels((-span, span))  # zero in the middle: chaos red, order blue
+            self.colour_bar.getAxis("right").setTicks(None)
+            finite = data[np.isfinite(data)]
+            chaotic = int(np.sum(finite > 1e-3))
+            self.info.setText(f"{chaotic} of {data.size} points with a positive exponent (red: chaos; blue: "
+                              f"settling or periodic); blank: blew up")
+        else:
+            # coloured by log2 of the period, so a doubling cascade 1, 2, 4, 8 takes evenly spaced colours;
+            # none up to the longest period looked for at the dark end, a blow-up left blank
+            period = np.asarray(result.period)
+            data = np.full(period.shape, np.nan)
+            data[period == 0] = -1.0
+            data[period > 0] = np.log2(period[period > 0])
+            top = float(np.log2(result.max_period))
+            self.colour_bar.setColorMap(pg.colormap.get("turbo"))
+            self.colour_bar.setLevels((-1.0, max(top, 0.5)))
+            ticks = [(-1.0, "none")] + [(float(k), str(2 ** k)) for k in range(int(top) + 1)]
+            self.colour_bar.getAxis("right").setTicks([ticks, []])
+            counts = {int(k): int(np.sum(result.period == k)) for k in np.unique(result.period) if k > 0}
+            common = ", ".join(f"period {k}: {n}" for k, n in sorted(counts.items(), key=lambda kv: -kv[1])[:4])
+            self.info.setText(f"In {result.unit}. {common or 'no period found'}; 0: none up to "
+                              f"{result.max_period}; blank: blew up")
+        self.image.setImage(data, autoLevels=False)
+        self.image.setRect(grid_rect(xs, ys))
+        self.plot.setLabel("bottom", result.x_name)
+        self.plot.setLabel("left", result.y_name)
+        self.colour_bar.getAxis("right").setLabel(self._value_name())
+        self.plot.autoRange(padding=0.02)
+        self._draw_marker()
+        self.resultChanged.emit(result)
+
+    def _draw_marker(self) -> None:
+        r = self.result
+        if r is None or r.x_name not in self.session.params or r.y_name not in self.session.params:
+            self.marker.setData([], [])
+            return
+        self.marker.setData([self.session.params[r.x_name]], [self.session.params[r.y_name]])
+
+    def _on_click(self, event) -> None:
+        r = self.result
+        point = clicked_point(self.plot, event)
+        if r is None or point is None:
+            return
+        x, y = float(point.x()), float(point.y())
+        if not (min(r.xs[0], r.xs[-1]) <= x <= max(r.xs[0], r.xs[-1])
+                and min(r.ys[0], r.ys[-1]) <= y <= max(r.ys[0], r.ys[-1])):
+            return
+        self.session.set_param(r.x_name, round_significant(x, 6))
+        self.session.set_param(r.y_name, round_significant(y, 6))
+        event.accept()
+
+    def _restyle(self) -> None:
+        style_plot(self.plot_widget, self)
+        self.marker.setPen(pg.mkPen(muted_colour(self), width=2))
+
+
+VIEW = ParameterMapView

@@ -1,0 +1,718 @@
+"""Phase space in 3D: any three coordinates, trajectories coloured by time, a spread of nearby starts,
+trajectories added from other views, equilibria and the time cursor; orbit, zoom and pan with the mouse.
+
+The scene is drawn in box coordinates: each axis's data range is mapped onto the same length, so
+coordinates of very different size share one readable cube; ticks show the data values.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from PySide6.QtCore import QEvent, QTimer, Signal
+from PySide6.QtGui import QColor, QFont, QImage, QPainter, QSurfaceFormat, QVector3D
+from PySide6.QtWidgets import QSpinBox, QToolButton
+
+from orbitdesk.app.views import SERIES_COLOURS
+from orbitdesk.app.views.common import (SessionView, check_box, combo_box, control_row, coordinate_names, cycle_columns,
+                     equilibrium_coordinates,
+                     apply_numbers, fill_combo, is_number, run_time_name, runs_job, set_quietly, values_at_time)
+from orbitdesk.app.plots.plot_style import (SCENE_BACKGROUND, SCENE_GRID, SCENE_MARKER, SCENE_TEXT, JobStrip, NumberBox, number_text,
+                          rgba, time_colours)
+
+HALF = 5.0                  # the box spans [-HALF, HALF] on every axis
+MAX_DRAWN_POINTS = 300_000  # the current trajectory is thinned evenly beyond this for drawing
+MAX_EXTRA_POINTS = 20_000   # same for each added or nearby trajectory
+MOVING_POINTS = 20_000      # the current trajectory while the camera moves (the full one on release)
+EXTRA_SAMPLES = 4000        # output points of each added or nearby run
+MAX_SPREAD = 64
+MAX_ADDED = 40
+DEFAULT_CAMERA = {"distance": 23.0, "elevation": 22.0, "azimuth": -58.0, "center": [0.0, 0.0, 0.0], "fov": 60.0}
+COLOUR_MODES = ("time", "trajectory")
+WIDE_ASPECT = 1.6  # width / height up to which the starting camera shows the whole box
+
+
+_ITEM_CLASSES: dict = {}
+
+
+def _gl_item_classes(gl):
+    """Line and point items that keep one shader program per OpenGL context.
+
+    pyqtgraph 0.14 caches each item class's shader program for the first context that drew it, so
+    a second 3D scene (another view, or this one re-created) would draw with a program from a
+    foreign context (pyqtgraph issue #3455). These subclasses swap the cached program per context.
+    """
+    if _ITEM_CLASSES:
+        return _ITEM_CLASSES["line"], _ITEM_CLASSES["points"]
+    from PySide6.QtGui import QOpenGLContext
+
+    def per_context(base):
+        programs: dict[int, object] = {}
+
+        def paint(self):
+            ctx = QOpenGLContext.currentContext()
+            key = id(ctx)
+            if key not in programs and ctx is not None:
+                programs[key] = None
+                ctx.aboutToBeDestroyed.connect(lambda k=key: programs.pop(k, None))
+            base._shaderProgram = programs.get(key)
+            try:
+                base.paint(self)
+            finally:
+                programs[key] = base._shaderProgram
+
+        return type(base.__name__, (base,), {"paint": paint})
+
+    _ITEM_CLASSES["line"] = per_context(gl.GLLinePlotItem)
+    _ITEM_CLASSES["points"] = per_context(gl.GLScatterPlotItem)
+    return _ITEM_CLASSES["line"], _ITEM_CLASSES["points"]
+
+
+def thin_indices(n: int, limit: int) -> np.ndarray:
+    """Evenly spaced indices (first and last kept) so that at most ``limit`` of ``n`` points remain."""
+    if n <= limit:
+        return np.arange(n)
+    return np.unique(np.linspace(0, n - 1, limit).round().astype(np.int64))
+
+
+def nice_ticks(lo: float, hi: float, count: int = 5) -> np.ndarray:
+    """Round tick values (1, 2, 5 times a power of ten) inside [lo, hi]."""
+    span = hi - lo
+    if not (math.isfinite(span) and span > 0):
+        return np.array([lo])
+    raw = span / max(count, 1)
+    mag = 10 ** math.floor(math.log10(raw))
+    step = next(m * mag for m in (1, 2, 5, 10) if m * mag >= raw)
+    first = math.ceil(lo / step - 1e-9) * step
+    ticks = np.arange(first, hi + step * 1e-9, step)
+    return np.where(np.abs(ticks) < step * 1e-9, 0.0, ticks)
+
+
+def data_box(arrays, pad: float = 0.04):
+    """(lo, hi) per axis over the finite values of the given (N, 3) arrays, padded a little."""
+    lo, hi = np.full(3, np.inf), np.full(3, -np.inf)
+    for a in arrays:
+        if a is None or a.size == 0:
+            continue
+        finite = a[np.all(np.isfinite(a), axis=1)]
+        if finite.size:
+            lo, hi = np.minimum(lo, finite.min(axis=0)), np.maximum(hi, finite.max(axis=0))
+    out = []
+    for k in range(3):
+        a, b = lo[k], hi[k]
+        if not (math.isfinite(a) and math.isfinite(b)):
+            a, b = -1.0, 1.0
+        if b - a <= 1e-12 * max(1.0, abs(a), abs(b)):
+            w = max(abs(a) * 0.1, 1.0)
+            a, b = a - w, b + w
+        d = (b - a) * pad
+        out.append((a - d, b + d))
+    return out
+
+
+def _solid(colour: str, alpha: float, n: int) -> np.ndarray:
+    """One colour for n points as an (n, 4) array (items that once had per-point colours need arrays)."""
+    return _solid_rgba(QColor(colour), alpha, n)
+
+
+def _solid_rgba(colour, alpha: float, n: int) -> np.ndarray:
+    return np.tile(np.array(rgba(colour, alpha), dtype=np.float32), (max(n, 0), 1))
+
+
+class PhaseSpace3DView(SessionView):
+    view_id = "phase_space_3d"
+    title = "Phase space 3D"
+
+    spreadChanged = Signal()  # the nearby-starts runs arrived (or were cleared)
+    addedChanged = Signal()   # added trajectories arrived (or were cleared)
+
+    def __init__(self, session, parent=None):
+        super().__init__(session, parent)
+        import pyqtgraph.opengl as gl  # imported with this view only
+
+        self._gl = gl
+        self._Line, self._Points = _gl_item_classes(gl)
+        self.trajectory = None
+        self.added: list[dict] = []       # {"u0": [...], "backward": bool}
+        self.added_runs: list = []        # Trajectory per added start (None until it arrives)
+        self.spread_runs: list = []
+        self.equilibria: list = []
+        self.selected_equilibrium = None
+        self._names: list[str] = []
+        self._wanted_axes: tuple | None = None
+        self._box = [(-1.0, 1.0)] * 3
+        self._default_camera = None
+
+        # ---- controls
+        self.axis_combos = [combo_box(f"Quantity on the {axis} axis", slot=self._on_axes) for axis in "XYZ"]
+        self.colour_combo = combo_box("Colour lines along time (early blue, late ember) or one colour per line; "
+                                      "nearby starts always get one colour each", ["by time", "by trajectory"],
+                                      lambda _i: self._redraw_all())
+        self.spread_box = check_box("Nearby starts", "Run trajectories from starts scattered in a small ball "
+                                    "around the initial state, to see neighbouring orbits tangle and separate",
+                                    False, self._on_spread_toggled)
+        self.spread_count = QSpinBox()
+        self.spread_count.setRange(2, MAX_SPREAD)
+        self.spread_count.setValue(12)
+        self.spread_count.setToolTip("How many nearby starts")
+        self.spread_count.setKeyboardTracking(False)
+        self.spread_count.valueChanged.connect(self._spread_params_changed)
+        self.spread_radius = NumberBox(1e-3, 1e-12, 1e6, ratio=10 ** 0.5)
+        self.spread_radius.setToolTip("Radius of the ball of starts around the initial state (state units)")
+        self.spread_radius.valueChanged.connect(self._spread_params_changed)
+        self.keep_button = QToolButton(text="Keep start")
+        self.keep_button.setToolTip("Keep a trajectory from the current initial state, to compare it with runs "
+                                    "from other initial values")
+        self.keep_button.clicked.connect(self.keep_current_start)
+        self.clear_button = QToolButton(text="Clear")
+        self.clear_button.setToolTip("Remove the added trajectories and the nearby starts")
+        self.clear_button.clicked.connect(self.clear_extra)
+        self.fit_button = QToolButton(text="Reset view")
+        self.fit_button.setToolTip("Turn the camera back to its starting place")
+        self.fit_button.clicked.connect(self.reset_camera)
+        self.strip = JobStrip(session, "Running")
+
+        # ---- scene
+        self.glview = gl.GLViewWidget()
+        fmt = QSurfaceFormat.defaultFormat()
+        fmt.setSamples(4)  # multisampling: smooth lines without per-line smoothing (which dots them)
+        self.glview.setFormat(fmt)
+        self.glview.setBackgroundColor(QColor(*SCENE_BACKGROUND))
+        self.glview.setToolTip("Drag to turn, wheel to zoom, middle-drag (or Ctrl+drag) to move")
+        self.glview.setMinimumSize(200, 160)
+        self.plot_widget = self.glview  # image export grabs the scene
+        self.grid_item = self._Line(mode="lines", antialias=False, glOptions="translucent")
+        self.axes_item = self._Line(mode="lines", antialias=False, width=1.5, glOptions="translucent")
+        self.text_items: list = []
+        self.main_item = self._Line(mode="line_strip", antialias=False, width=1.6, glOptions="translucent")
+        self.main_points = self._Points(pxMode=True, size=3, glOptions="translucent")
+        self.extra_items: list = []
+        self.eq_item = self._Points(pxMode=True, size=9, glOptions="translucent")
+        self.cycle_item = self._Line(mode="line_strip", antialias=False, width=3.0, glOptions="translucent")
+        self.cursor_item = self._Points(pxMode=True, size=11, glOptions="translucent")
+        for item in (self.grid_item, self.axes_item, self.main_item, self.main_points, self.eq_item, self.cycle_item,
+                     self.cursor_item):
+            self.glview.addItem(item)
+        self.eq_item.setDepthValue(10)
+        self.cursor_item.setDepthValue(20)
+
+        axes = [part for axis, combo in zip("XYZ", self.axis_combos) for part in (axis, combo, 4)]
+        bar = control_row(*axes, 6, "Colour", self.colour_combo, None, self.fit_button, stretch=False)
+        spread_bar = control_row(self.spread_box, self.spread_count, 4, "within", self.spread_radius, 8,
+                                 self.keep_button, self.clear_button, 8, stretch=False)
+        spread_bar.addWidget(self.strip, 1)
+        layout = self.main_layout()
+        layout.addLayout(bar)
+        layout.addLayout(spread_bar)
+        layout.addWidget(self.glview, 1)
+
+        self._rerun_timer = QTimer(self, singleShot=True, interval=0)
+        self._moving, self._main_data = False, None  # camera in motion; (full, coarse) (pos, colour) of the run
+        self._still_timer = QTimer(self, singleShot=True, interval=250)  # the wheel stopped turning
+        self._still_timer.timeout.connect(lambda: self._set_moving(False))
+        self.glview.installEventFilter(self)
+        self._rerun_timer.timeout.connect(self._rerun_extra)
+        self.reset_camera()
+        session.equilibriaChanged.connect(self.set_equilibria)
+        session.equilibriumSelected.connect(self._on_equilibrium_selected)
+        session.cycleChanged.connect(lambda _c: self._draw_cycle())
+        session.startsRequested.connect(self._on_starts_requested)
+        self.follow_session(values=self._on_values, trajectory=self._on_trajectory, cursor=self._update_cursor)
+        if session.equilibria:
+            self.set_equilibria(session.equilibria)
+            self._on_equilibrium_selected(session.selected_equilibrium)
+
+    # ------------------------------------------------------------ view protocol
+    def view_settings(self) -> dict:
+        return {"axes": self.axes(), "colour": COLOUR_MODES[self.colour_combo.currentIndex()],
+                "spread": {"on": self.spread_box.isChecked(), "count": self.spread_count.value(),
+                           "radius": float(self.spread_radius.value())},
+                "starts": [dict(s) for s in self.added], "camera": self.camera()}
+
+    def apply_view_settings(self, d: dict) -> None:
+        if not isinstance(d, dict):
+            return
+        axes = d.get("axes")
+        if isinstance(axes, list) and len(axes) == 3 and all(isinstance(a, str) for a in axes):
+            self._wanted_axes = tuple(axes)
+            if self._names:
+                self.set_axes(*axes)
+        if d.get("colour") in COLOUR_MODES:
+            self.colour_combo.setCurrentIndex(COLOUR_MODES.index(d["colour"]))
+        spread = d.get("spread")
+        if isinstance(spread, dict):
+            apply_numbers(spread, ((self.spread_count, "count", int), (self.spread_radius, "radius", float)))
+            set_quietly(self.spread_box, spread.get("on", False))
+        starts = d.get("starts")
+        if isinstance(starts, list):
+            self.added = [{"u0": [float(v) for v in s["u0"]], "backward": bool(s.get("backward", False))}
+                          for s in starts[:MAX_ADDED]
+                          if isinstance(s, dict) and isinstance(s.get("u0"), list)
+                          and all(isinstance(v, (int, float)) for v in s["u0"])]
+            self.added_runs = [None] * len(self.added)
+        if isinstance(d.get("camera"), dict):
+            self.set_camera(d["camera"])
+        self._schedule_extra()
+
+    def export_data(self):
+        """The current trajectory at full resolution: time and the three chosen coordinates."""
+        traj = self.trajectory
+        if traj is None or traj.time.size == 0:
+            return None
+        xyz = self._coords(traj)
+        if xyz is None:
+            return None
+        return [run_time_name(traj)] + self.axes(), np.column_stack([traj.time, xyz])
+
+    # ------------------------------------------------------------ public
+    def axes(self) -> list[str]:
+        return [c.currentText() for c in self.axis_combos]
+
+    def set_axes(self, x: str, y: str, z: str) -> None:
+        idx = [c.findText(n) for c, n in zip(self.axis_combos, (x, y, z))]
+        if min(idx) < 0:
+            return
+        for combo, i in zip(self.axis_combos, idx):
+            combo.blockSignals(True)
+            combo.setCurrentIndex(i)
+            combo.blockSignals(False)
+        self._on_axes()
+
+    def camera(self) -> dict:
+        o = self.glview.opts
+        c = o["center"]
+        return {"distance": float(o["distance"]), "elevation": float(o["elevation"]),
+                "azimuth": float(o["azimuth"]), "center": [float(c.x()), float(c.y()), float(c.z())],
+                "fov": float(o["fov"])}
+
+    def set_camera(self, cam: dict) -> None:
+        def num(key, lo, hi):
+            v = cam.get(key)
+            return float(min(max(v, lo), hi)) if is_number(v) else None
+
+        distance, elevation, azimuth = num("distance", 0.01, 1e6), num("elevation", -90, 90), num("azimuth", -1e6, 1e6)
+        center = cam.get("center")
+        pos = None
+        if (isinstance(center, list) and len(center) == 3
+                and all(is_number(v) for v in center)):
+            pos = QVector3D(*[float(v) for v in center])
+        self.glview.setCameraPosition(pos=pos, distance=distance, elevation=elevation, azimuth=azimuth)
+        fov = num("fov", 5, 120)
+        if fov is not None:
+            self.glview.setCameraParams(fov=fov)
+        self.glview.update()
+
+    def grab_image(self) -> QImage:
+        """The whole view as an image, with the 3D scene read from its framebuffer."""
+        image = self.grab().toImage()
+        painter = QPainter(image)
+        scene = self.glview.grabFramebuffer()
+        painter.drawImage(self.glview.geometry(), scene)
+        painter.end()
+        return image
+
+    def reset_camera(self) -> None:
+        """The starting camera, moved back in wide, short views so that the whole box shows
+        (the field of view is horizontal, so the box's height is what gets cut off)."""
+        cam = dict(DEFAULT_CAMERA)
+        w, h = self.glview.width(), self.glview.height()
+        if w > 0 and h > 0 and w / h > WIDE_ASPECT:
+            cam["distance"] *= (w / h) / WIDE_ASPECT
+        self.set_camera(cam)
+        self._default_camera = self.camera()
+
+    def resizeEvent(self, event) -> None:
+        super().resizeEvent(event)
+        if self._default_camera is not None and self.camera() == self._default_camera:
+            self.reset_camera()  # still where it started: keep the whole box in view
+
+    def add_starts(self, starts) -> None:
+        """Add trajectories from full initial states: dicts with ``u0`` and optionally ``backward``."""
+        s = self.system
+        if s is None:
+            return
+        for st in starts:
+            u0 = [float(v) for v in st["u0"]]
+            if len(u0) != s.n_states:
+                continue
+            self.added.append({"u0": u0, "backward": bool(st.get("backward", False))})
+            self.added_runs.append(None)
+        del self.added[:-MAX_ADDED]
+        del self.added_runs[:-MAX_ADDED]
+        self._run_added()
+
+    def keep_current_start(self) -> None:
+        """Add a trajectory from the session's current initial state (it stays when the state changes)."""
+        if self.system is not None:
+            self.add_starts([{"u0": [float(v) for v in self.session.initial_vector()]}])
+
+    def clear_extra(self) -> None:
+        self.added, self.added_runs, self.spread_runs = [], [], []
+        self.session.jobs.cancel("phase_space_3d.added")
+        if self.spread_box.isChecked():
+            self.spread_box.setChecked(False)  # cancels the spread job too
+        self._redraw_all()
+        self.addedChanged.emit()
+        self.spreadChanged.emit()
+
+    def set_equilibria(self, items) -> None:
+        self.equilibria = list(items or [])
+        if not any(eq is self.selected_equilibrium for eq in self.equilibria):
+            self.selected_equilibrium = None
+        self._draw_equilibria()
+
+    def select_equilibrium(self, eq) -> None:
+        self.selected_equilibrium = eq
+        self._draw_equilibria()
+
+    def _on_equilibrium_selected(self, index) -> None:
+        ok = index is not None and 0 <= index < len(self.equilibria)
+        self.select_equilibrium(self.equilibria[index] if ok else None)
+
+    def _on_starts_requested(self, starts) -> None:
+        if self.system is not None:
+            self.add_starts(starts)
+            self.session.note_starts_taken(self.title)
+
+    def spread_starts(self) -> np.ndarray:
+        """The K nearby starts (K, n): uniform in a ball of the chosen radius around the initial state."""
+        u0 = self.session.initial_vector()
+        n, K = u0.size, self.spread_count.value()
+        rng = np.random.default_rng(20240917)  # the same starts every time, so runs can be compared
+        d = rng.standard_normal((K, n))
+        d /= np.linalg.norm(d, axis=1, keepdims=True)
+        r = float(self.spread_radius.value()) * rng.random(K) ** (1.0 / max(n, 1))
+        return u0[None, :] + r[:, None] * d
+
+    # ------------------------------------------------------------ session events
+    def _on_project_loaded(self) -> None:
+        self.system, self.trajectory = None, None
+        self._names = []
+        self.added, self.added_runs, self.spread_runs = [], [], []
+        self.equilibria, self.selected_equilibrium = [], None
+        saved = self.saved_view_settings()
+        if not isinstance(saved.get("camera"), dict):
+            self.reset_camera()  # the starting camera, never the one of the project before
+        self.apply_view_settings(saved)
+        self._redraw_all()
+
+    def _on_system(self, system) -> None:
+        old = self.system
+        self.system = system
+        if old is not None and list(old.states) != list(system.states):
+            self.added, self.added_runs = [], []
+        self.equilibria, self.selected_equilibrium = [], None
+        names = coordinate_names(system)
+        if names != self._names:
+            want = self._wanted_axes or tuple(self.axes())
+            self._names = names
+            for combo in self.axis_combos:
+                fill_combo(combo, names)
+            states = list(system.states)
+            default = (states + [n for n in names if n not in states])[:3]
+            if len(set(want)) == 3 and all(w in names for w in want):
+                default = list(want)
+            for combo, name in zip(self.axis_combos, default):
+                combo.setCurrentIndex(names.index(name))
+            self._wanted_axes = None
+        self._on_axes()
+        self._schedule_extra()
+
+    def _on_values(self) -> None:
+        self.equilibria, self.selected_equilibrium = [], None
+        self._draw_equilibria()
+        self._schedule_extra()
+
+    def _on_trajectory(self, trajectory) -> None:
+        self.trajectory = trajectory
+        self._redraw_all()
+
+    def _on_axes(self, _index=None) -> None:
+        self._redraw_all()
+
+    # ------------------------------------------------------------ added and nearby runs
+    def _runs_job(self, starts):
+        """A job running one engine run per start: starts are (u0, backward) pairs."""
+        return runs_job(self.session, self.system, starts, EXTRA_SAMPLES)
+
+    def _schedule_extra(self) -> None:
+        if self.added or self.spread_box.isChecked():
+            self._rerun_timer.start()
+
+    def _rerun_extra(self) -> None:
+        if self.system is None:
+            return
+        n = self.system.n_states
+        keep = [i for i, s in enumerate(self.added) if len(s["u0"]) == n]
+        self.added = [self.added[i] for i in keep]
+        self.added_runs = [None] * len(self.added)
+        if self.added:
+            self._run_added()
+        if self.spread_box.isChecked():
+            self._run_spread()
+        self._redraw_all()
+
+    def _run_added(self) -> None:
+        if self.system is None or not self.added:
+            return
+        starts = [(s["u0"], s["backward"]) for s in self.added]
+        added = list(self.added)
+
+        def done(runs):
+            if self.added == added:
+                self.added_runs = list(runs)
+                self._redraw_all()
+                self.addedChanged.emit()
+
+        self.session.run_job("phase_space_3d.added", self._runs_job(starts), done)
+
+    def _on_spread_toggled(self, on: bool) -> None:
+        if on:
+            self._run_spread()
+        else:
+            self.strip.cancel()
+            self.session.jobs.cancel("phase_space_3d.spread")
+            self.spread_runs = []
+            self._redraw_all()
+            self.spreadChanged.emit()
+
+    def _spread_params_changed(self, *_args) -> None:
+        if self.spread_box.isChecked():
+            self._run_spread()
+
+    def _run_spread(self) -> None:
+        if self.system is None:
+            return
+        starts = [(u0, False) for u0 in self.spread_starts()]
+
+        def done(runs):
+            self.spread_runs = list(runs)
+            self._redraw_all()
+            self.spreadChanged.emit()
+
+        self.strip.what = f"Running {len(starts)} nearby starts"
+        self.strip.run("phase_space_3d.spread", self._runs_job(starts), done)
+
+    # ------------------------------------------------------------ drawing
+    def _coords(self, traj):
+        try:
+            cols = [np.asarray(traj.series(n), dtype=float) for n in self.axes()]
+        except KeyError:
+            return None
+        if any(c.shape != traj.time.shape for c in cols):
+            return None
+        return np.column_stack(cols)
+
+    def _to_box(self, xyz: np.ndarray) -> np.ndarray:
+        out = np.empty_like(xyz, dtype=np.float32)
+        for k, (lo, hi) in enumerate(self._box):
+            out[:, k] = (xyz[:, k] - lo) / (hi - lo) * (2 * HALF) - HALF
+        return out
+
+    def _colour_by_time(self) -> bool:
+        return self.colour_combo.currentIndex() == 0
+
+    def _redraw_all(self) -> None:
+        main = self._coords(self.trajectory) if self.trajectory is not None and self.trajectory.time.size else None
+        self._main_xyz = main  # kept for the time cursor, which moves often
+        extras = []  # (xyz, time, kind, role index)
+        for i, run in enumerate(self.added_runs):
+            if run is not None and run.time.size:
+                xyz = self._coords(run)
+                if xyz is not None:
+                    extras.append((xyz, run.time, run.kind, ("added", i)))
+        for i, run in enumerate(self.spread_runs):
+            if run is not None and run.time.size:
+                xyz = self._coords(run)
+                if xyz is not None:
+                    extras.append((xyz, run.time, run.kind, ("spread", i)))
+        self._box = data_box([main] + [e[0] for e in extras])
+        self._draw_frame()
+        self._draw_main(main)
+        self._draw_extras(extras)
+        self._draw_equilibria()
+        self._draw_cycle()
+        self._update_cursor(self.session.time_cursor)
+
+    def _draw_main(self, xyz) -> None:
+        traj = self.trajectory
+        if xyz is None or traj is None:
+            self._main_data = None
+            self.main_item.setData(pos=np.zeros((0, 3), dtype=np.float32))
+            self.main_item.setVisible(False)
+            self.main_points.setVisible(False)
+            return
+        keep = thin_indices(xyz.shape[0], MAX_DRAWN_POINTS)
+        pos, time = xyz[keep], traj.time[keep]
+        ok = np.all(np.isfinite(pos), axis=1)
+        pos, time = self._to_box(pos[ok]), time[ok]
+        alpha = 0.3 if self.spread_runs else 0.95  # in the background while nearby starts are shown
+        colour = time_colours(time, alpha) if self._colour_by_time() else _solid(SERIES_COLOURS[0][1], alpha, len(pos))
+        coarse = thin_indices(len(pos), MOVING_POINTS)
+        self._main_data = ((pos, colour), (pos[coarse], colour[coarse]))
+        self.main_item.setVisible(traj.kind != "map")
+        self.main_points.setVisible(traj.kind == "map")
+        self._show_main()
+
+    def _show_main(self) -> None:
+        """The run's line (or points), coarser while the camera moves: a software renderer then keeps up."""
+        if self._main_data is None:
+            return
+        pos, colour = self._main_data[1 if self._moving else 0]
+        if self.main_points.visible():
+            self.main_points.setData(pos=pos, color=colour, size=3)
+        else:
+            self.main_item.setData(pos=pos, color=colour, width=1.0 if self._moving else 1.6, mode="line_strip")
+
+    def _set_moving(self, moving: bool) -> None:
+        if moving != self._moving:
+            self._moving = moving
+            self._show_main()
+
+    def eventFilter(self, obj, event) -> bool:
+        kind = event.type()
+        if obj is self.glview and kind in (QEvent.Type.MouseButtonPress, QEvent.Type.MouseButtonRelease):
+            self._set_moving(kind == QEvent.Type.MouseButtonPress)
+        elif obj is self.glview and kind == QEvent.Type.Wheel:
+            self._set_moving(True)
+            self._still_timer.start()
+        return False
+
+    def _draw_extras(self, extras) -> None:
+        gl = self._gl
+        while len(self.extra_items) < len(extras):
+            line = self._Line(mode="line_strip", antialias=False, width=1.2, glOptions="translucent")
+            dots = self._Points(pxMode=True, size=2.5, glOptions="translucent")
+            self.glview.addItem(line)
+            self.glview.addItem(dots)
+            self.extra_items.append((line, dots))
+        by_time = self._colour_by_time()
+        for (line, dots), (xyz, time, kind, (role, i)) in zip(self.extra_items, extras):
+            keep = thin_indices(xyz.shape[0], MAX_EXTRA_POINTS)
+            pos, t = xyz[keep], time[keep]
+            ok = np.all(np.isfinite(pos), axis=1)
+            pos, t = self._to_box(pos[ok]), t[ok]
+            if role == "spread":  # one hue per nearby start, so their separation shows
+                colour = _solid(SERIES_COLOURS[i % len(SERIES_COLOURS)][1], 0.85, len(pos))
+            elif by_time:
+                colour = time_colours(np.abs(t - t[0]) if t.size else t, 0.8)
+            else:
+                colour = _solid(SERIES_COLOURS[2][1], 0.85, len(pos))
+            if kind == "map":
+                dots.setData(pos=pos, color=colour, size=2.5)
+                dots.setVisible(True)
+                line.setVisible(False)
+            else:
+                line.setData(pos=pos, color=colour, width=1.2, mode="line_strip")
+                line.setVisible(True)
+                dots.setVisible(False)
+        for line, dots in self.extra_items[len(extras):]:
+            line.setVisible(False)
+            dots.setVisible(False)
+
+    def _draw_frame(self) -> None:
+        """A floor grid, two back walls, the three axes with tick values and names, scaled to the data.
+
+        Seen from the starting camera (from +x, -y, above): x runs along the front-left floor edge,
+        y along the front-right one, z up the left corner; the walls x = low and y = high are behind."""
+        for item in self.text_items:
+            self.glview.removeItem(item)
+        self.text_items = []
+        ticks = [nice_ticks(lo, hi, 5) for lo, hi in self._box]
+        tx, ty, tz = ((t - lo) / (hi - lo) * 2 * HALF - HALF for t, (lo, hi) in zip(ticks, self._box))
+        h = HALF
+        seg = []
+        for x in tx:  # floor, and up the back wall y = high
+            seg += [(x, -h, -h), (x, h, -h), (x, h, -h), (x, h, h)]
+        for y in ty:  # floor, and up the back wall x = low
+            seg += [(-h, y, -h), (h, y, -h), (-h, y, -h), (-h, y, h)]
+        for z in tz:  # rungs on both back walls
+            seg += [(-h, -h, z), (-h, h, z), (-h, h, z), (h, h, z)]
+        self.grid_item.setData(pos=np.array(seg, dtype=np.float32).reshape(-1, 3),
+                               color=_solid_rgba(SCENE_GRID, 0.28, len(seg)), width=1.0, mode="lines")
+        edges = [(-h, -h, -h), (h, -h, -h),   # x axis
+                 (h, -h, -h), (h, h, -h),     # y axis
+                 (-h, -h, -h), (-h, -h, h),   # z axis
+                 (-h, h, -h), (-h, h, h), (h, h, -h), (h, h, h), (-h, -h, h), (-h, h, h), (-h, h, h), (h, h, h)]
+        self.axes_item.setData(pos=np.array(edges, dtype=np.float32), color=_solid_rgba(SCENE_GRID, 0.9, len(edges)),
+                               width=1.4, mode="lines")
+        font = QFont(self.font())
+        font.setPointSizeF(max(7.0, font.pointSizeF() * 0.85))
+        bold = QFont(font)
+        bold.setBold(True)
+        text = QColor(*SCENE_TEXT)
+        names = self.axes()
+        label_pos = [(0.0, -h * 1.28, -h), (h * 1.28, 0.0, -h), (-h * 1.08, -h * 1.08, h * 1.1)]
+        for k in range(3):
+            for v, b in zip(ticks[k], (tx, ty, tz)[k]):
+                if abs(b) > h * 0.94 and (k < 2 or b < 0):
+                    continue  # keep the corners free for the neighbouring axis
+                where = [(b, -h * 1.1, -h), (h * 1.1, b, -h), (-h * 1.08, -h * 1.08, b)][k]
+                self._text(where, number_text(v, 4), text, font)
+            if names[k]:
+                self._text(label_pos[k], names[k], text, bold)
+
+    def _text(self, pos, text, colour, font) -> None:
+        item = self._gl.GLTextItem(pos=np.array(pos, dtype=float), text=text, color=colour, font=font)
+        self.glview.addItem(item)
+        self.text_items.append(item)
+
+    def _draw_equilibria(self) -> None:
+        s = self.system
+        if s is None or not self.equilibria:
+            self.eq_item.setVisible(False)
+            return
+        pts, sizes, colours = [], [], []
+        names = self.axes()
+        p = self.session.param_vector()
+        for eq in self.equilibria:
+            found = equilibrium_coordinates(s, eq, names, p)
+            if found is None:
+                continue
+            pts.append(found[1])
+            chosen = eq is self.selected_equilibrium
+            sizes.append(15.0 if chosen else 9.0)
+            colours.append(rgba(QColor(SERIES_COLOURS[1][1]), 1.0) if chosen else rgba(SCENE_MARKER, 0.9))
+        if not pts:
+            self.eq_item.setVisible(False)
+            return
+        self.eq_item.setData(pos=self._to_box(np.array(pts, dtype=float)), size=np.array(sizes),
+                             color=np.array(colours, dtype=np.float32))
+        self.eq_item.setVisible(True)
+
+    def _draw_cycle(self) -> None:
+        """The limit cycle of the cycle view, bold and in the highlight colour (a map's: its points)."""
+        cols = cycle_columns(self.system, self.session.cycle, self.session.param_vector())
+        names = self.axes()
+        if not all(n in cols for n in names) or getattr(self, "_box", None) is None:
+            self.cycle_item.setVisible(False)
+            return
+        pos = self._to_box(np.column_stack([cols[n] for n in names]))
+        colour = _solid(SERIES_COLOURS[1][1], 1.0, len(pos))
+        self.cycle_item.setData(pos=pos, color=colour, width=3.0,
+                                mode="lines" if self.system.kind == "map" else "line_strip")
+        self.cycle_item.setVisible(True)
+
+    def _update_cursor(self, t: float) -> None:
+        traj = self.trajectory
+        xyz = getattr(self, "_main_xyz", None)
+        if xyz is not None and (traj is None or xyz.shape[0] != traj.time.size):
+            xyz = None
+        if xyz is None or not np.isfinite(t):
+            self.cursor_item.setVisible(False)
+            return
+        (point,) = values_at_time(traj.time, t, traj.kind == "map", xyz)
+        if not np.all(np.isfinite(point)):
+            self.cursor_item.setVisible(False)
+            return
+        self.cursor_item.setData(pos=self._to_box(point.reshape(1, 3)), size=12.0, color=rgba(SCENE_MARKER, 1.0))
+        self.cursor_item.setVisible(True)
+
+    def changeEvent(self, event) -> None:
+        super().changeEvent(event)
+        if event.type() == QEvent.Type.FontChange:
+            self._draw_frame()
+
+
+VIEW = PhaseSpace3DView

@@ -1,0 +1,312 @@
+"""Time series: chosen states and derived quantities against t (or n), or their power spectra."""
+
+from __future__ import annotations
+
+import numpy as np
+import pyqtgraph as pg
+from PySide6.QtCore import QSize, Qt
+from PySide6.QtGui import QColor, QIcon, QPainter, QPixmap
+from PySide6.QtWidgets import QHBoxLayout, QLabel, QListWidget, QListWidgetItem, QToolButton, QVBoxLayout
+
+from orbitdesk.app.views import empty_hint, muted_colour, series_colour, style_plot
+from orbitdesk.app.plots.data_overlay import TIME, DataOverlay
+from orbitdesk.app.plots.plot_style import ScreenCurve
+from orbitdesk.app.views.common import SessionView, check_box, control_row, run_time_name
+
+
+def swatch(colour: QColor, size: int = 12) -> QIcon:
+    pix = QPixmap(size, size)
+    pix.fill(Qt.GlobalColor.transparent)
+    p = QPainter(pix)
+    p.setRenderHint(QPainter.RenderHint.Antialiasing)
+    p.setPen(Qt.PenStyle.NoPen)
+    p.setBrush(colour)
+    p.drawRoundedRect(1, 1, size - 2, size - 2, 3, 3)
+    p.end()
+    return QIcon(pix)
+
+
+def power_spectrum(time: np.ndarray, values: np.ndarray):
+    """(frequency, power) of a uniformly sampled series, Hann-windowed, mean removed; None if not uniform."""
+    if time.size < 8:
+        return None
+    dt = np.diff(time)
+    step = float(np.median(dt))
+    if step <= 0 or np.max(np.abs(dt - step)) > 1e-6 * step + 1e-12:
+        return None
+    y = np.asarray(values, dtype=float)
+    ok = np.isfinite(y)
+    if not ok.all():
+        y = y[: int(np.argmin(ok))]  # the finite stretch before a blow-up
+    if y.size < 8:
+        return None
+    w = np.hanning(y.size)
+    spec = np.fft.rfft((y - y.mean()) * w)
+    power = (np.abs(spec) ** 2) / np.sum(w**2)
+    freq = np.fft.rfftfreq(y.size, step)
+    return freq[1:], power[1:]
+
+
+def _span(traj):
+    t = traj.time
+    return (float(t[0]), float(t[-1])) if t.size else None
+
+
+class TimeSeriesView(SessionView):
+    view_id = "timeseries"
+    title = "Time series"
+
+    def __init__(self, session, parent=None):
+        super().__init__(session, parent)
+        self.trajectory = None
+        self._names: list[str] = []
+        self._wanted: list[str] | None = None  # selection from view settings, applied when names are known
+        self._curves: dict[str, pg.PlotDataItem] = {}
+        self._moving_cursor = False
+        self._fitted = True              # follows the data until the user pans or zooms
+        self._refit_on_release = False
+
+        self.series_list = QListWidget()
+        self.series_list.setToolTip("Tick the quantities to plot")
+        self.series_list.setFixedWidth(112)
+        self.series_list.setIconSize(QSize(12, 12))
+        self.series_list.itemChanged.connect(self._on_item_changed)
+
+        self.log_y = check_box("Log scale", "Logarithmic vertical axis (values at or below zero are left out)",
+                               False, self._on_mode)
+        self.spectrum = check_box("Spectrum", "Show the power spectrum of each series instead of the series itself",
+                                  False, self._on_mode)
+        self.fit = QToolButton(text="Fit")
+        self.fit.setToolTip("Zoom to show all the data")
+        self.fit.clicked.connect(self.fit_view)
+        self.note = QLabel()
+        self.note.setStyleSheet("color: palette(placeholder-text);")
+
+        self.plot_widget = pg.PlotWidget()
+        self.plot_widget.setToolTip("")
+        self.plot = self.plot_widget.getPlotItem()
+        self.cursor = pg.InfiniteLine(angle=90, movable=True)
+        self.cursor.setToolTip("Time cursor: drag to move it")
+        self.cursor.sigPositionChanged.connect(self._on_cursor_dragged)
+        self.cursor.setVisible(False)
+        self.plot.addItem(self.cursor, ignoreBounds=True)
+        self.empty_hint = empty_hint(self.plot, "The run of the model will be plotted here")
+        self.plot.getViewBox().sigRangeChangedManually.connect(self._on_manual_range)
+        session.heldChanged.connect(self._on_held)
+        self.data_overlay = DataOverlay(session, self.plot, self._overlay_pairs)
+
+        options = control_row(self.log_y, self.spectrum, None, self.note, self.fit, spacing=6, stretch=False)
+        right = QVBoxLayout()
+        right.setContentsMargins(0, 0, 0, 0)
+        right.setSpacing(4)
+        right.addLayout(options)
+        right.addWidget(self.plot_widget, 1)
+        layout = QHBoxLayout(self)
+        layout.setContentsMargins(6, 6, 6, 6)
+        layout.setSpacing(6)
+        layout.addWidget(self.series_list)
+        layout.addLayout(right, 1)
+
+        self._restyle()
+        self.follow_session(trajectory=self._on_trajectory, cursor=self._on_time_cursor)
+
+    # ------------------------------------------------------------ view protocol
+    def view_settings(self) -> dict:
+        return {"series": self.checked(), "log_y": self.log_y.isChecked(), "spectrum": self.spectrum.isChecked()}
+
+    def apply_view_settings(self, d: dict) -> None:
+        if not isinstance(d, dict):
+            return
+        if isinstance(d.get("series"), list):
+            self._wanted = [s for s in d["series"] if isinstance(s, str)]
+            if self._names:
+                self._set_checked(self._wanted)
+        self.log_y.setChecked(bool(d.get("log_y", False)))
+        self.spectrum.setChecked(bool(d.get("spectrum", False)))
+
+    def export_data(self):
+        """Full-resolution data of the ticked series (or their spectra in spectrum mode)."""
+        traj, names = self.trajectory, self.checked()
+        if traj is None or not names:
+            return None
+        if self.spectrum.isChecked():
+            cols, freq = [], None
+            for name in names:
+                spec = power_spectrum(traj.time, traj.series(name))
+                if spec is not None:
+                    n = spec[0].size if freq is None else min(freq.size, spec[0].size)
+                    freq = spec[0][:n]
+                    cols = [c[:n] for c in cols] + [spec[1][:n]]
+            if freq is None:
+                return None
+            return ["frequency"] + [f"power({n})" for n in names], np.column_stack([freq] + cols)
+        return [run_time_name(traj)] + names, np.column_stack([traj.time] + [traj.series(n) for n in names])
+
+    # ------------------------------------------------------------ selection
+    def checked(self) -> list[str]:
+        out = []
+        for i in range(self.series_list.count()):
+            item = self.series_list.item(i)
+            if item.checkState() == Qt.CheckState.Checked:
+                out.append(item.text())
+        return out
+
+    def set_series(self, names: list[str]) -> None:
+        """Tick exactly these series."""
+        self._set_checked(names)
+
+    def _set_checked(self, names) -> None:
+        self.series_list.blockSignals(True)
+        for i in range(self.series_list.count()):
+            item = self.series_list.item(i)
+            item.setCheckState(Qt.CheckState.Checked if item.text() in names else Qt.CheckState.Unchecked)
+        self.series_list.blockSignals(False)
+        self._redraw()
+
+    def _on_item_changed(self, _item) -> None:
+        self._wanted = None
+        self._redraw()
+
+    def _on_system(self, system) -> None:
+        names = list(system.states) + list(system.derived_names)
+        if names == self._names:
+            return
+        keep = self._wanted if self._wanted is not None else self.checked()
+        keep = [n for n in keep if n in names]
+        if not keep:
+            keep = list(system.states[:3])
+        self._names = names
+        self.series_list.blockSignals(True)
+        self.series_list.clear()
+        for i, name in enumerate(names):
+            item = QListWidgetItem(swatch(series_colour(i, self)), name)
+            item.setFlags(item.flags() | Qt.ItemFlag.ItemIsUserCheckable)
+            item.setCheckState(Qt.CheckState.Checked if name in keep else Qt.CheckState.Unchecked)
+            kind = "state" if name in system.states else "derived quantity"
+            item.setToolTip(f"{name} ({kind})")
+            self.series_list.addItem(item)
+        self.series_list.blockSignals(False)
+        self._redraw(refit=True)
+
+    def _on_project_loaded(self) -> None:
+        self._names = []
+        self.trajectory = None
+        self.apply_view_settings(self.saved_view_settings())
+
+    # ------------------------------------------------------------ drawing
+    def _on_trajectory(self, trajectory) -> None:
+        old = self.trajectory
+        self.trajectory = trajectory
+        refit = old is None or _span(old) != _span(trajectory) or self._fitted
+        # while a slider is held the range stays (only the curves are drawn again); fitted on release
+        self._refit_on_release = refit and self.session.held
+        self._redraw(refit=refit and not self.session.held)
+
+    def _on_held(self, held: bool) -> None:
+        if not held and self._refit_on_release:
+            self.fit_view()
+        self._refit_on_release = False
+
+    def _on_manual_range(self, *_args) -> None:
+        self._fitted = False
+
+    def _on_mode(self, _checked=None) -> None:
+        self._redraw(refit=True)
+
+    def _redraw(self, refit: bool = False) -> None:
+        traj = self.trajectory
+        names = self.checked()
+        spectrum = self.spectrum.isChecked()
+        for name in list(self._curves):
+            if name not in names or traj is None:
+                self.plot.removeItem(self._curves.pop(name))
+        self.note.setText("")
+        log_y = self.log_y.isChecked() or spectrum
+        if bool(self.plot.getAxis("left").logMode) != log_y:  # (each change redraws the axes)
+            self.plot.setLogMode(x=False, y=log_y)
+        time_label = run_time_name(traj) if traj is not None else "t"
+        if spectrum:
+            unit = "per step" if time_label == "n" else f"cycles per unit {time_label}"
+            self.plot.setLabel("bottom", f"frequency ({unit})")
+            self.plot.setLabel("left", "power")
+        else:
+            self.plot.setLabel("bottom", time_label)
+            self.plot.setLabel("left", "")
+        self.cursor.setVisible(not spectrum and traj is not None)
+        self.empty_hint.setVisible(traj is None)
+        self.data_overlay.refresh()
+        if traj is None:
+            return
+        discrete = traj.kind == "map"
+        missing = []
+        for name in names:
+            index = self._names.index(name) if name in self._names else len(self._curves)
+            try:
+                y = traj.series(name)
+            except KeyError:
+                continue
+            x = traj.time
+            if spectrum:
+                spec = power_spectrum(x, y)
+                if spec is None:
+                    missing.append(name)
+                    if name in self._curves:
+                        self.plot.removeItem(self._curves.pop(name))
+                    continue
+                x, y = spec
+            elif log_y:
+                y = np.where(y > 0, y, np.nan)
+            curve = self._curves.get(name)
+            if curve is None:
+                curve = ScreenCurve(name=name, ordered_x=True)  # min/max per pixel column of what is in view
+                self.plot.addItem(curve)
+                self._curves[name] = curve
+            colour = series_colour(index, self)
+            pen = pg.mkPen(colour, width=1.6)
+            if discrete and not spectrum and x.size <= 600:
+                curve.setData(x, y, pen=pg.mkPen(colour, width=1), symbol="o", symbolSize=4,
+                              symbolPen=None, symbolBrush=colour, connect="finite")
+            else:
+                curve.setData(x, y, pen=pen, symbol=None, connect="finite")
+        if missing:
+            self.note.setText("Spectrum needs evenly spaced samples")
+        if refit:
+            self.fit_view()
+        self._on_time_cursor(self.session.time_cursor)
+
+    def _overlay_pairs(self) -> list:
+        """Measured data that belongs here: the ticked series against time (not their spectra)."""
+        if self.spectrum.isChecked():
+            return []
+        return [(TIME, n, series_colour(self._names.index(n) if n in self._names else 0, self)) for n in self.checked()]
+
+    def fit_view(self) -> None:
+        self._fitted = True
+        self.plot.enableAutoRange()
+        self.plot.autoRange()
+
+    # ------------------------------------------------------------ time cursor
+    def _on_time_cursor(self, t: float) -> None:
+        if not np.isfinite(t):
+            return
+        self._moving_cursor = True
+        try:
+            self.cursor.setValue(t)
+        finally:
+            self._moving_cursor = False
+
+    def _on_cursor_dragged(self) -> None:
+        if not self._moving_cursor:
+            self.session.set_time_cursor(float(self.cursor.value()))
+
+    def _restyle(self) -> None:
+        style_plot(self.plot_widget, self)
+        self.cursor.setPen(pg.mkPen(muted_colour(self), width=1, style=Qt.PenStyle.DashLine))
+        self.cursor.setHoverPen(pg.mkPen(muted_colour(self), width=2))
+        for i in range(self.series_list.count()):
+            self.series_list.item(i).setIcon(swatch(series_colour(i, self)))
+        if self.trajectory is not None:
+            self._redraw()
+
+
+VIEW = TimeSeriesView

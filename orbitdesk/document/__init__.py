@@ -1,0 +1,1 @@
+"""The project document: the saved file, walkthroughs, view settings, data sets, safe writing."""

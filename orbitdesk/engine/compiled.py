@@ -1,0 +1,201 @@
+"""Each model's kernels (``codegen.py``) as a module: numba ``cfunc``s cached on disk, or plain
+Python; paired with the loops of this package (``jitting.py``) as one ``Engine``.
+
+* ``engine_for(system)`` gives the compiled engine when it is ready; otherwise the plain-Python one
+  (same source, same results, slower). ``wait=True`` compiles now; ``prepare(system)`` compiles on
+  a background thread, so the app never waits for the compiler while the Python path serves.
+* The compiled kernels live in the private cache folder ``kernels`` (``private_cache.py``: 0700,
+  refused when foreign or writable by others); a file is named by the hash of its text (the
+  generated source, the numba version) and compiled from the text read back and checked against
+  that hash. numba keeps the machine code next to it (``cache=True``), so a model compiled once
+  loads quickly in later processes. Without a safe folder the kernels are compiled in memory.
+* ``ORBITDESK_NO_JIT=1`` forces the plain-Python path (the fallback CI also tests); so does a
+  missing numba. ``ORBITDESK_CACHE`` moves the cache folder.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import math
+import sys
+import threading
+from dataclasses import dataclass
+from pathlib import Path
+from types import ModuleType, SimpleNamespace
+
+from orbitdesk.system import private_cache
+from orbitdesk.system.codegen import HEADER, kernel_source
+from orbitdesk.system.compiled_system import UNDEFINED_ERRORS
+from orbitdesk.engine import explicit_rk, jitting, maps, members, tangent
+
+LOOP_MODULES = (explicit_rk, maps, tangent, members)
+_SIGNATURES = {"model": "MODEL"}  # the kernels the loops call; jac and jac_values stay plain Python
+_CACHE_OPTION = "cache=_ON_DISK"  # private_cache sets _ON_DISK: the module is backed by its verified file
+_lock = threading.Lock()
+_engines: dict[str, "Engine"] = {}  # source hash -> compiled engine, its loops ready
+_pending: dict[str, threading.Thread] = {}
+
+
+@dataclass
+class Engine:
+    """The loops and one model's kernels, both compiled or both plain Python."""
+
+    loops: SimpleNamespace
+    kernels: ModuleType
+    compiled: bool
+
+    @property
+    def f(self):
+        return self.kernels.model
+
+
+def available() -> bool:
+    return jitting.enabled()
+
+
+def module_source(system, jit: bool) -> str:
+    """The kernels' module text (kept on the system)."""
+    key = "_kernel_source_jit" if jit else "_kernel_source_py"
+    cached = system.__dict__.get(key)
+    if cached is None:
+        if jit:
+            head = ["import math", "from math import *  # noqa: F401,F403", "import numpy as np",
+                    "from numba import cfunc", "from orbitdesk.engine import jitting", "", "",
+                    "def _plain(f):", "    return f", ""]
+            head += [f"_{name}_kernel = cfunc(jitting.signature({sig!r}), {_CACHE_OPTION}, error_model='numpy')"
+                     for name, sig in _SIGNATURES.items()]
+        else:
+            head = ["import math", "from math import *  # noqa: F401,F403", "import numpy as np", "", "",
+                    "def _plain(f):", "    return f", "", "",
+                    "def _fill_nan(a):", "    a[...] = math.nan", ""]
+            head += [f"_{name}_kernel = _plain" for name in _SIGNATURES]
+        head += ["_jac_kernel = _jac_values_kernel = _plain  # called from Python (stiff solvers, Newton)"]
+        cached = system.__dict__[key] = HEADER + "\n".join(head) + "\n\n\n" + kernel_source(system, guard=not jit) + "\n"
+    return cached
+
+
+def _digest(source: str) -> str:
+    text = f"{source}\n# numba {_numba_version()}, python {sys.version_info[:2]}, loaded by private_cache"
+    return hashlib.sha256(text.encode()).hexdigest()[:32]
+
+
+def _numba_version() -> str:
+    """numba's version without importing it (a plain-Python run never pays for that import)."""
+    if "numba" in sys.modules:
+        return sys.modules["numba"].__version__
+    from importlib.metadata import version
+
+    return version("numba")
+
+
+def cache_folder() -> Path | None:
+    """The private folder of compiled kernels (private_cache.py), or None when it or the folder of
+    numba's machine code in it (pickles numba loads) is refused."""
+    folder = private_cache.private_folder("kernels")
+    if folder is None or private_cache.private_folder("kernels", "__pycache__") is None:
+        return None
+    return folder
+
+
+def _exec_module(source: str, name: str, folder: Path | None = None) -> ModuleType:
+    """The module of ``source`` (our printer's output, never model text), kept in ``folder`` if given."""
+    return private_cache.load_source_module(folder, name, source, {"_UNDEFINED": UNDEFINED_ERRORS},
+                                            module_name=f"orbitdesk_kernels_{name}", on_disk_flag="_ON_DISK")
+
+
+def _import_compiled(source: str, digest: str) -> ModuleType:
+    import numba
+
+    folder = cache_folder()
+    if folder is None or numba.config.CACHE_DIR:  # no safe place for its machine code: compile in memory
+        return _exec_module(source, f"m{digest}")  # no folder: _ON_DISK is False
+    return _exec_module(source, f"m{digest}", folder)
+
+
+def _compile(source: str, digest: str) -> Engine:
+    from orbitdesk.engine.drivers import warm_up
+
+    engine = Engine(jitting.compiled_loops(*LOOP_MODULES), _import_compiled(source, digest), True)
+    warm_up(engine)  # compile the loops for these kernels (or load them from numba's cache)
+    with _lock:
+        _engines[digest] = engine
+        _pending.pop(digest, None)
+    return engine
+
+
+def python_engine(system) -> Engine:
+    """The plain-Python engine of the model (kept on the system)."""
+    cached = system.__dict__.get("_python_engine")
+    if cached is None:
+        kernels = _exec_module(module_source(system, jit=False), f"py{id(system)}")
+        cached = system.__dict__["_python_engine"] = Engine(jitting.python_loops(*LOOP_MODULES), kernels, False)
+    return cached
+
+
+def is_compiled(system) -> bool:
+    return available() and _digest(module_source(system, jit=True)) in _engines
+
+
+def engine_for(system, wait: bool = False) -> Engine:
+    """The compiled engine when ready (``wait``: compile now if needed), else the plain-Python one."""
+    if not available():
+        return python_engine(system)
+    source = module_source(system, jit=True)
+    digest = _digest(source)
+    with _lock:
+        engine = _engines.get(digest)
+        thread = _pending.get(digest)
+    if engine is not None:
+        return engine
+    if not wait and not _cached_on_disk(digest):
+        return python_engine(system)
+    if thread is not None:
+        thread.join()
+        with _lock:
+            if digest in _engines:
+                return _engines[digest]
+    return _compile(source, digest)
+
+
+def _cached_on_disk(digest: str) -> bool:
+    """The model's kernels are in the cache from an earlier process and numba is loaded already:
+    loading them costs less than a plain-Python run."""
+    if "numba" not in sys.modules:
+        return False
+    folder = cache_folder()
+    return folder is not None and (folder / f"m{digest}.py").exists() and any(
+        (folder / "__pycache__").glob(f"m{digest}.*.nbi"))
+
+
+def prepare(system) -> None:
+    """Compile the model's kernels on a background thread (nothing when ready or under way)."""
+    if not available():
+        return
+    source = module_source(system, jit=True)
+    digest = _digest(source)
+    with _lock:
+        if digest in _engines or digest in _pending:
+            return
+        thread = _pending[digest] = threading.Thread(target=_background, args=(source, digest), daemon=True,
+                                                     name="orbitdesk-compile")
+    thread.start()
+
+
+def _background(source, digest):
+    try:
+        _compile(source, digest)
+    except Exception:  # the Python engine keeps serving; a later wait=True call reports the problem
+        with _lock:
+            _pending.pop(digest, None)
+
+
+WORTH_COMPILING = 100_000  # estimated right-hand-side evaluations above which a caller waits for the compiler
+
+
+def engine_for_work(system, evaluations: float) -> Engine:
+    """The compiled engine if ready; for work large enough that compiling pays, compile now."""
+    return engine_for(system, wait=math.isfinite(evaluations) and evaluations >= WORTH_COMPILING)
+
+
+__all__ = ["Engine", "available", "module_source", "cache_folder", "engine_for", "engine_for_work", "prepare",
+           "python_engine", "is_compiled", "WORTH_COMPILING"]

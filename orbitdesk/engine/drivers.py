@@ -1,0 +1,300 @@
+"""Python-side drivers of the compiled loops: buffers, pauses for progress and cancel, results.
+
+Every call into a loop passes the same argument types, so each loop is compiled once per model
+(``warm_up`` compiles them all, or loads them from the cache). The loops pause every
+``PAUSE_STEPS`` steps; between pauses the driver reports progress (which raises ``Cancelled`` when
+the user cancels) and empties full output buffers.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from orbitdesk.engine.progress import Cancelled
+from orbitdesk.engine.explicit_rk import KINDS, PAUSED
+from orbitdesk.engine.methods import method as method_info
+from orbitdesk.engine.status import C_CANCELLED, C_STEP_FAILED
+
+PAUSE_STEPS = 512
+# a run whose pace would need more steps than this (judged after STEP_CHECK_AFTER steps) ends with
+# step_failed: a solution sliding along a kink (sign, abs, if) otherwise steps for days
+MAX_PROJECTED_STEPS = 50_000_000
+STEP_CHECK_AFTER = 100_000
+_BUFFER = 4096
+
+
+@dataclass
+class FlowOutput:
+    time: np.ndarray  # (K,)
+    states: np.ndarray  # (n, K)
+    code: int  # status code (status.py)
+    t: float  # where the run ended
+    y: np.ndarray  # state there (the last good one)
+    steps: int
+    rejected: int
+    event_t: np.ndarray = field(default_factory=lambda: np.empty(0))
+    event_y: np.ndarray = field(default_factory=lambda: np.empty((0, 0)))  # (n, M)
+    event_k: np.ndarray = field(default_factory=lambda: np.empty(0, dtype=np.int64))
+    note: str = ""  # why the run stopped early, when the code alone does not say
+
+
+def _no_planes(n):
+    return (np.empty((0, n + 1)), np.empty(0, dtype=np.int64), np.empty(0, dtype=np.bool_))
+
+
+def _step_options(name, rtol, atol, max_step, dt):
+    info = method_info(name)
+    kind = KINDS[info.tableau]
+    if info.adaptive:
+        return kind, 1, float(rtol), float(atol), float(max_step) if max_step else math.inf
+    return kind, 0, 1.0, 1.0, float(dt)
+
+
+def flow_run(engine, name, t0, t1, y0, p, rtol=1e-8, atol=1e-10, max_step=None, dt=0.01, bound=1e10,
+             grid=None, every_step=False, planes=None, report=None, which=0) -> FlowOutput:
+    """Integrate from t0 to t1 with the method ``name``: samples at ``grid`` (read off the dense
+    output) or every step's end; crossings of ``planes`` = (rows [normal..., value], directions,
+    terminal flags)."""
+    kind, adaptive, rtol, atol, max_step = _step_options(name, rtol, atol, max_step, dt)
+    y = np.array(y0, dtype=float)
+    n = y.size
+    p = np.ascontiguousarray(p, dtype=float)
+    K = np.zeros((16, n))
+    F = np.zeros((7, n))
+    st = np.zeros(12)
+    st[0] = t0
+    grid = np.empty(0) if grid is None else np.ascontiguousarray(grid, dtype=float)
+    if every_step:
+        out_t, out_y = np.empty(_BUFFER), np.empty((_BUFFER, n))
+    else:
+        out_t, out_y = np.empty(grid.size), np.empty((grid.size, n))
+    rows, dirs, terminal = _no_planes(n) if planes is None else (
+        np.ascontiguousarray(planes[0], dtype=float), np.ascontiguousarray(planes[1], dtype=np.int64),
+        np.ascontiguousarray(planes[2], dtype=np.bool_))
+    ev_t, ev_y, ev_k = np.empty(256), np.empty((256, n)), np.empty(256, dtype=np.int64)
+    steps_t, steps_y, events = [], [], []
+    span = t1 - t0
+    note = ""
+    while True:
+        code = engine.loops.erk_advance(engine.f, kind, which, adaptive, y, p, K, F, st, float(t1), rtol, atol, max_step,
+                                  float(bound), grid, out_t, out_y, bool(every_step), rows, dirs, terminal,
+                                  ev_t, ev_y, ev_k, PAUSE_STEPS)
+        if every_step and st[5]:
+            steps_t.append(out_t[:int(st[5])].copy())
+            steps_y.append(out_y[:int(st[5])].copy())
+            st[5] = 0
+        if st[7]:
+            m = int(st[7])
+            events.append((ev_t[:m].copy(), ev_y[:m].copy(), ev_k[:m].copy()))
+            st[7] = 0
+        if code != PAUSED:
+            break
+        note = _too_slow(st, t0, span)
+        if note:
+            code = C_STEP_FAILED
+            break
+        if report is not None:
+            try:
+                report((st[0] - t0) / span)
+            except Cancelled:
+                code = C_CANCELLED
+                break
+    if every_step:
+        time = np.concatenate([[t0]] + steps_t)
+        states = np.concatenate([y0[None, :]] + steps_y).T if steps_y else np.asarray(y0, float)[:, None].copy()
+    else:
+        count = int(st[6])
+        time, states = out_t[:count], out_y[:count].T
+    out = FlowOutput(time, states, int(code), float(st[0]), y, int(st[2]), int(st[3]), note=note)
+    if events:
+        out.event_t = np.concatenate([e[0] for e in events])
+        out.event_y = np.concatenate([e[1] for e in events]).T
+        out.event_k = np.concatenate([e[2] for e in events])
+    else:
+        out.event_y = np.empty((n, 0))
+    return out
+
+
+def _too_slow(st, t0, span) -> str:
+    """A plain-words reason to stop when the run's pace would need more than MAX_PROJECTED_STEPS."""
+    taken = st[2] + st[3]
+    if taken < STEP_CHECK_AFTER:
+        return ""
+    done = abs(st[0] - t0)
+    projected = taken * abs(span) / done if done > 0 else float("inf")
+    if projected <= MAX_PROJECTED_STEPS:
+        return ""
+    return (f"the run stopped after {int(taken):,} steps at t = {st[0]:.6g}: at this pace it would need about "
+            f"{projected:.2g} steps (the limit is {MAX_PROJECTED_STEPS:,}). The solution may be sliding along a "
+            "kink of the model (abs, sign, heaviside, if) where the right side switches back and forth, or "
+            "the system is stiff: try the stiff method, a looser tolerance or a shorter run")
+
+
+def map_run(engine, n0, n_end, y0, p, bound=1e10, report=None):
+    """Iterates n0+1 .. n_end of a map: (states (n, K+1) with the start first, status code)."""
+    y = np.array(y0, dtype=float)
+    n = y.size
+    total = int(n_end) - int(n0)
+    out = np.empty((total + 1, n))
+    out[0] = y
+    view = out[1:]
+    st = np.zeros(12)
+    st[0] = n0
+    p = np.ascontiguousarray(p, dtype=float)
+    while True:
+        code = engine.loops.map_advance(engine.f, y, p, st, int(n_end), view, float(bound), 65536)
+        if code != PAUSED:
+            break
+        if report is not None:
+            try:
+                report((st[0] - n0) / max(total, 1))
+            except Cancelled:
+                code = C_CANCELLED
+                break
+    return out[:int(st[5]) + 1].T, int(code)
+
+
+@dataclass
+class TangentOutput:
+    sums: np.ndarray  # (m,) summed logarithms over the averaged span
+    averaged: float  # time (flows) or steps (maps) averaged over
+    rows: np.ndarray  # (R, m) running estimates
+    row_t: np.ndarray  # (R,)
+    code: int
+    t: float  # where it ended
+    y: np.ndarray
+
+
+def flow_tangent(engine, name, t0, t1, keep_from, u0, V0, p, interval, rtol=1e-9, atol=1e-12,
+                 max_step=None, dt=0.01, bound=1e10, max_rows=5000, report=None) -> TangentOutput:
+    """Lyapunov sums of a flow: the state with the tangent vectors V0 (n x m) from t0 to t1,
+    re-orthonormalised every ``interval``, logarithms summed after ``keep_from``."""
+    kind, adaptive, rtol, atol, max_step = _step_options(name, rtol, atol, max_step, dt)
+    n, m = V0.shape
+    z = np.concatenate([np.asarray(u0, float), np.asarray(V0, float).ravel()])
+    p = np.ascontiguousarray(p, dtype=float)
+    K = np.zeros((16, z.size))
+    F = np.zeros((7, z.size))
+    st = np.zeros(12)
+    st[0] = t0
+    sums = np.zeros(m)
+    count = max(1.0, abs(t1 - keep_from) / interval)
+    stride = max(1, math.ceil(count / max_rows))
+    rows, row_t = np.empty((max_rows + 2, m)), np.empty(max_rows + 2)
+    while True:
+        code = engine.loops.flow_tangent(engine.f, kind, adaptive, z, p, K, F, st, float(t1), rtol, atol, max_step, float(bound),
+                                   float(interval), int(m), sums, float(keep_from), rows, row_t, int(stride), 64)
+        if code != PAUSED:
+            break
+        if report is not None:
+            try:
+                report((st[0] - t0) / (t1 - t0))
+            except Cancelled:
+                code = C_CANCELLED
+                break
+    r = int(st[9])
+    return TangentOutput(sums, float(st[10]), rows[:r].copy(), row_t[:r].copy(), int(code), float(st[0]), z[:n].copy())
+
+
+def map_tangent(engine, n0, n_end, keep_from, u0, V0, p, bound=1e10, max_rows=5000, report=None) -> TangentOutput:
+    V0 = np.asarray(V0, dtype=float)
+    n, m = V0.shape
+    z = np.concatenate([np.asarray(u0, float), V0.ravel()])
+    p = np.ascontiguousarray(p, dtype=float)
+    st = np.zeros(12)
+    st[0] = n0
+    sums = np.zeros(m)
+    stride = max(1, math.ceil(max(1, n_end - keep_from) / max_rows))
+    rows, row_t = np.empty((max_rows + 2, m)), np.empty(max_rows + 2)
+    while True:
+        code = engine.loops.map_tangent(engine.f, z, int(m), p, st, int(n_end), int(keep_from), sums, float(bound),
+                                        rows, row_t, int(stride), 65536)
+        if code != PAUSED:
+            break
+        if report is not None:
+            try:
+                report((st[0] - n0) / max(1, n_end - n0))
+            except Cancelled:
+                code = C_CANCELLED
+                break
+    r = int(st[9])
+    return TangentOutput(sums, float(st[8]), rows[:r].copy(), row_t[:r].copy(), int(code), float(st[0]), z[:n].copy())
+
+
+@dataclass
+class MembersOutput:
+    states: np.ndarray  # (n, N) where each member ended (a stopped member: its last good state)
+    codes: np.ndarray  # (N,) status codes
+    t: np.ndarray  # (N,) where each member ended
+    steps: np.ndarray  # (N,) accepted steps
+    samples: np.ndarray | None  # (n, N, K) at the grid times, NaN where a member never got there
+    event_t: np.ndarray | None  # (N, E) crossing times, NaN beyond ev_count
+    event_y: np.ndarray | None  # (n, N, E)
+    event_count: np.ndarray | None  # (N,)
+
+
+def members_run(engine, name, t0, t_end, U0, P, rtol=1e-8, atol=1e-10, max_step=None, dt=0.01, bound=1e10,
+                grid=None, planes=None, max_events=0, report=None, chunk=None) -> MembersOutput:
+    """Run the columns of U0 (n, N) from t0 to t_end (a number or one per member) with parameters
+    P ((n_p,) shared or (n_p, N)); samples at ``grid``; the first ``max_events`` crossings of
+    ``planes`` per member. Members go in chunks so progress and cancel (raising Cancelled) are
+    honoured between them."""
+    kind, adaptive, rtol, atol, max_step = _step_options(name, rtol, atol, max_step, dt)
+    U = np.ascontiguousarray(np.asarray(U0, dtype=float).T)
+    N, n = U.shape
+    P = np.asarray(P, dtype=float)
+    rows = np.ascontiguousarray(P[None, :] if P.ndim == 1 else P.T)
+    if rows.shape[1] == 0:
+        rows = np.zeros((rows.shape[0], 1))
+    ends = np.ascontiguousarray(np.broadcast_to(np.asarray(t_end, dtype=float), (N,)))
+    grid = np.empty(0) if grid is None else np.ascontiguousarray(grid, dtype=float)
+    samples = np.empty((N, grid.size, n))
+    plane_rows, dirs, terminal = _no_planes(n) if planes is None else (
+        np.ascontiguousarray(planes[0], dtype=float), np.ascontiguousarray(planes[1], dtype=np.int64),
+        np.ascontiguousarray(planes[2], dtype=np.bool_))
+    E = max(int(max_events), 1)
+    ev_t, ev_y = np.full((N, E), np.nan), np.full((N, E, n), np.nan)
+    ev_count = np.zeros(N)
+    codes, t_reached, steps = np.zeros(N, dtype=np.int64), np.zeros(N), np.zeros(N)
+    chunk = chunk or max(1, min(64, N // 16))
+    for start in range(0, N, chunk):
+        stop = min(N, start + chunk)
+        part = rows if rows.shape[0] == 1 else rows[start:stop]
+        engine.loops.members_advance(engine.f, kind, adaptive, U[start:stop], part, float(t0), ends[start:stop], rtol,
+                                     atol, max_step, float(bound), grid, samples[start:stop], plane_rows, dirs,
+                                     terminal, ev_t[start:stop], ev_y[start:stop], ev_count[start:stop],
+                                     codes[start:stop], t_reached[start:stop], steps[start:stop])
+        if report is not None:
+            report(stop / N)  # Cancelled goes to the caller
+    count = ev_count.astype(np.int64)
+    beyond = np.arange(E)[None, :] >= count[:, None]
+    ev_t[beyond] = np.nan
+    ev_y[beyond] = np.nan
+    return MembersOutput(U.T.copy(), codes, t_reached, steps.astype(np.int64),
+                         np.moveaxis(samples, 2, 0) if grid.size else None,
+                         ev_t if planes is not None else None, np.moveaxis(ev_y, 2, 0) if planes is not None else None,
+                         count if planes is not None else None)
+
+
+def warm_up(engine) -> None:
+    """Compile every loop with the drivers' argument types (or load it from numba's cache)."""
+    k = engine.kernels
+    n = int(k.N_STATES)
+    y0 = np.full(n, 0.5)
+    p = np.full(int(k.N_PARAMS), 0.5)
+    if k.IS_MAP:
+        map_run(engine, 0, 1, y0, p)
+        map_tangent(engine, 0, 1, 0, y0, np.eye(n), p)
+        return
+    planes = (np.zeros((1, n + 1)), np.zeros(1, dtype=np.int64), np.zeros(1, dtype=np.bool_))
+    flow_run(engine, "dop853", 0.0, 1e-9, y0, p, grid=np.array([0.0, 1e-9]), planes=planes)
+    flow_tangent(engine, "dop853", 0.0, 1e-9, 0.0, y0, np.eye(n), p, 1e-9)
+    members_run(engine, "dop853", 0.0, 1e-9, y0[:, None], p, grid=np.array([1e-9]), planes=planes, max_events=1)
+
+
+__all__ = ["FlowOutput", "TangentOutput", "MembersOutput", "flow_run", "map_run", "flow_tangent", "map_tangent",
+           "members_run", "warm_up",
+           "PAUSE_STEPS"]

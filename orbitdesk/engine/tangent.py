@@ -1,0 +1,152 @@
+"""Tangent vectors along an orbit: variational equations with QR re-orthonormalisation, the
+Lyapunov spectrum (Benettin, Galgani, Giorgilli & Strelcyn 1980), for flows and maps.
+
+Flows: the state and m tangent vectors V (n x m) are integrated together by the explicit
+Runge-Kutta loop (the model's kernel with ``which = m``: u' = f, V' = J V) over
+each renormalisation interval; maps: V -> J(u) V each step. After each interval the columns of V
+are re-orthonormalised by modified Gram-Schmidt (a QR factorisation, with a second pass when the
+first cancels most of a column) and the logarithms of R's diagonal are summed from ``keep_from``
+on. Running estimates go to ``rows`` every ``stride`` renormalisations.
+
+The model's kernel comes in as an argument, as in ``explicit_rk.py``.
+"""
+
+import math
+
+import numpy as np
+
+from orbitdesk.engine.explicit_rk import PAUSED, erk_advance, state_code
+from orbitdesk.engine.jitting import inner, loop
+
+
+@inner
+def orthonormalise(V, logs):
+    """Modified Gram-Schmidt on the columns of V in place; logs[j] = log of R's j-th diagonal.
+    Returns False when a column collapses to zero."""
+    n, m = V.shape
+    for j in range(m):
+        before = 0.0
+        for i in range(n):
+            before += V[i, j] * V[i, j]
+        before = math.sqrt(before)
+        norm = before
+        for _ in range(2):
+            for q in range(j):
+                d = 0.0
+                for i in range(n):
+                    d += V[i, q] * V[i, j]
+                for i in range(n):
+                    V[i, j] -= d * V[i, q]
+            norm = 0.0
+            for i in range(n):
+                norm += V[i, j] * V[i, j]
+            norm = math.sqrt(norm)
+            if norm > 0.5 * before or norm == 0.0:
+                break
+            before = norm
+        if not norm > 0.0 or not math.isfinite(norm):
+            return False
+        logs[j] = math.log(norm)
+        for i in range(n):
+            V[i, j] /= norm
+    return True
+
+
+@inner
+def _record(sums, span, rows, row_t, st, t):
+    r = int(st[9])
+    if r < rows.shape[0]:
+        for j in range(sums.shape[0]):
+            rows[r, j] = sums[j] / span
+        row_t[r] = t
+        st[9] = r + 1
+
+
+@loop
+def flow_tangent(f, kind, adaptive, z, p, K, F, st, t_end, rtol, atol, max_step, bound, interval, m,
+                 sums, keep_from, rows, row_t, stride, max_intervals):
+    """Integrate z = (u, V) from st[0] to ``t_end`` renormalising every ``interval``.
+
+    ``st`` as erk_advance's plus [8] renormalisations done, [9] rows written, [10] time averaged.
+    At most ``max_intervals`` intervals per call (PAUSED after them). Returns a status code."""
+    n = z.shape[0] // (m + 1)
+    logs = np.empty(m)
+    grid = np.empty(0)
+    out_t = np.empty(0)
+    out_y = np.empty((0, z.shape[0]))
+    planes = np.empty((0, z.shape[0] + 1))
+    plane_dir = np.empty(0, dtype=np.int64)
+    terminal = np.empty(0, dtype=np.bool_)
+    ev_t = np.empty(1)
+    ev_y = np.empty((1, z.shape[0]))
+    ev_k = np.empty(1, dtype=np.int64)
+    direction = 1.0 if t_end > st[0] else -1.0
+    done = 0
+    while (t_end - st[0]) * direction > 1e-13 * max(1.0, abs(t_end)):
+        if done >= max_intervals:
+            return PAUSED
+        t_start = st[0]
+        target = t_start + direction * interval
+        if (target - t_end) * direction > 0.0 or (t_end - target) * direction <= 1e-9 * interval:
+            target = t_end
+        while True:
+            code = erk_advance(f, kind, m, adaptive, z, p, K, F, st, target, rtol, atol, max_step, bound,
+                               grid, out_t, out_y, False, planes, plane_dir, terminal, ev_t, ev_y, ev_k,
+                               1 << 40)
+            if code != PAUSED:
+                break
+        if code != 0:
+            return code
+        st[0] = target
+        V = z[n:].reshape((n, m))
+        if not orthonormalise(V, logs):
+            return 2
+        st[11] = 1.0  # f at the new tangent vectors
+        if st[0] * direction > keep_from * direction:
+            for j in range(m):
+                sums[j] += logs[j]
+            st[10] = (st[0] - keep_from) * direction
+            st[8] += 1
+            if int(st[8]) % stride == 0 or (t_end - st[0]) * direction <= 1e-13 * max(1.0, abs(t_end)):
+                _record(sums, st[10], rows, row_t, st, st[0])
+        done += 1
+        if state_code(z[:n], bound) != 0:
+            return state_code(z[:n], bound)
+    return 0
+
+
+@loop
+def map_tangent(f, z, m, p, st, n_end, keep_from, sums, bound, rows, row_t, stride, max_steps):
+    """Iterate the map with m tangent vectors, z = (u, V) with V (n x m) row by row, from step
+    st[0] to ``n_end``; st[8] counts the steps averaged, st[9] the rows written. Returns a status
+    code (2 also when the Jacobian is singular on the orbit: a column of V collapsed)."""
+    n = z.shape[0] // (m + 1)
+    nxt = np.empty(z.shape[0])
+    W = nxt[n:].reshape((n, m))
+    logs = np.empty(m)
+    k = int(st[0])
+    steps = 0
+    while k < n_end:
+        if steps >= max_steps:
+            st[0] = k
+            return PAUSED
+        f(m, float(k), z, p, nxt)
+        code = state_code(nxt[:n], bound)
+        if code != 0:
+            st[0] = k
+            return code
+        if not orthonormalise(W, logs):  # the Jacobian is singular on the orbit
+            st[0] = k
+            return 2
+        for i in range(z.shape[0]):
+            z[i] = nxt[i]
+        k += 1
+        steps += 1
+        if k > keep_from:
+            for j in range(m):
+                sums[j] += logs[j]
+            st[8] += 1
+            if int(st[8]) % stride == 0 or k == n_end:
+                _record(sums, st[8], rows, row_t, st, float(k))
+    st[0] = k
+    return 0

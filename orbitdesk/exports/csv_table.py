@@ -1,0 +1,43 @@
+"""CSV files of numbers with a header, safe to open in a spreadsheet and never left half-written.
+
+Header cells (and any other text cell) are *neutralised*: a cell that a spreadsheet would read as a
+formula — beginning with ``=``, ``+``, ``-``, ``@``, a tab or a carriage return — gets a leading
+apostrophe, which spreadsheets take as "this is text". Quoting is the ``csv`` module's (commas,
+quotes and line breaks inside a cell are quoted). Numbers are written as the shortest text that reads
+back as the same double (``repr``), so ``-1.5`` stays a number. The file is written by
+``safe_files.atomic_write``: a failure (full disk, unwritable folder, an error while producing
+the rows) leaves no partial file and keeps an existing file as it was.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+from typing import Iterable, Sequence
+
+from orbitdesk.document.safe_files import atomic_write
+
+FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
+
+
+def text_cell(value) -> str:
+    """A text cell a spreadsheet shows as text, never evaluates."""
+    text = str(value)
+    return "'" + text if text.startswith(FORMULA_STARTS) else text
+
+
+def number_cell(value) -> str:
+    return repr(float(value))
+
+
+def write_csv(path, header: Sequence, rows: Iterable[Sequence]) -> None:
+    """Write ``header`` (text cells) and ``rows`` (numbers) to ``path`` atomically; raises OSError."""
+    buffer = io.StringIO(newline="")
+    writer = csv.writer(buffer)
+    writer.writerow([text_cell(h) for h in header])
+    for row in rows:
+        writer.writerow([number_cell(v) for v in row])
+    atomic_write(str(path), buffer.getvalue().encode("utf-8"), None)
+
+
+__all__ = ["FORMULA_STARTS", "number_cell", "text_cell", "write_csv"]

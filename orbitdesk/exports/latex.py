@@ -1,0 +1,206 @@
+"""The model as LaTeX: equations as typed (x'' as \\ddot{x}, maps as x_{n+1}), parameters with their
+values and ranges, derived quantities and initial values, in an ``align*`` environment.
+
+Right-hand sides are re-read from the model text with the whitelisting expression parser (so derived
+names stay as typed instead of being substituted) and printed with ``sympy.latex``.
+"""
+
+from __future__ import annotations
+
+import re
+import unicodedata
+
+import sympy as sp
+
+from orbitdesk.language.expression import Num, parse_expression, walk
+from orbitdesk.language.model import FLOW, MAP, ParsedModel, derivative_name, parse_model
+from orbitdesk.language.symbolic import number_from_text, to_sympy
+
+_GREEK_OR_PLAIN = re.compile(r"^[A-Za-z]+$")
+_TEX_SPECIAL = {"\\": r"\textbackslash{}", "{": r"\{", "}": r"\}", "$": r"\$", "&": r"\&", "#": r"\#",
+                "%": r"\%", "_": r"\_", "^": r"\^{}", "~": r"\~{}"}
+
+
+def latex_name(name: str) -> str:
+    """A model name in LaTeX: Greek names as letters, longer names upright-italic, x' as \\dot{x}."""
+    base = name.rstrip("'")
+    primes = len(name) - len(base)
+    text = sp.latex(sp.Symbol(base))
+    head, sep, tail = text.partition("_")
+    if _GREEK_OR_PLAIN.match(head) and len(head) > 1:
+        text = rf"\mathit{{{head}}}" + sep + tail
+    if primes == 0:
+        return text
+    if primes <= 3:
+        return {1: r"\dot", 2: r"\ddot", 3: r"\dddot"}[primes] + "{" + text + "}"
+    return "{" + text + "}^{(" + str(primes) + ")}"
+
+
+def tex_escape(text: str) -> str:
+    """Plain text safe inside a LaTeX document, on one line.
+
+    Every TeX special character is escaped (so no control sequence such as ``\\input`` or
+    ``\\write18``, no ``^^5c`` character code, no ``%`` comment and no unbalanced brace can come
+    through); line ends of any kind, tabs and other spacing become one space (a blank line would end
+    the paragraph inside ``\\section*{...}``); control and format characters (bidi overrides,
+    zero-width marks, BOM) are dropped."""
+    out = []
+    for c in str(text):
+        if c.isspace():
+            if out and out[-1] != " ":
+                out.append(" ")
+        elif unicodedata.category(c) in ("Cc", "Cf", "Cs", "Co", "Cn"):
+            continue
+        else:
+            out.append(_TEX_SPECIAL.get(c, c))
+    return "".join(out).strip()
+
+
+def _rhs_text(parsed: ParsedModel, line: int) -> str:
+    code = parsed.text.split("\n")[line - 1].rstrip("\r").split("#", 1)[0]
+    return code[code.index("=") + 1:]
+
+
+def _lhs_lines(parsed: ParsedModel) -> dict[str, int]:
+    """Line number of each ``NAME = ...`` statement, by name (first occurrence)."""
+    out: dict[str, int] = {}
+    for number, raw in enumerate(parsed.text.split("\n"), start=1):
+        code = raw.split("#", 1)[0]
+        if "=" in code:
+            out.setdefault(code[:code.index("=")].strip(), number)
+    return out
+
+
+def _typed(parsed: ParsedModel, rhs: str, fallback: sp.Expr) -> sp.Expr:
+    """The right side re-read as typed (derived names kept, decimals kept as decimals)."""
+    try:
+        tree = parse_expression(_strip_range(rhs))
+
+        def resolve(node):
+            name = node.name
+            if name in ("pi", "e") and name not in parsed.parameters:
+                return sp.pi if name == "pi" else sp.E
+            return parsed.symbols.get(name) or (parsed.time_symbol if name == parsed.time_symbol.name
+                                                else sp.Symbol(name, real=True))
+
+        expr = to_sympy(tree, resolve)
+        decimals = {}
+        for node in walk(tree):
+            if isinstance(node, Num) and any(c in node.text for c in ".eE"):
+                value = number_from_text(node.text)
+                if value.is_Rational and not value.is_Integer:
+                    decimals[value] = sp.Float(node.text)
+        return expr.xreplace(decimals) if decimals else expr
+    except Exception:  # noqa: BLE001  (any surprise: show the compiled form, which is equivalent)
+        return fallback
+
+
+def _strip_range(text: str) -> str:
+    m = re.search(r"\bin\s*\[.*\]\s*$", text)
+    return text[:m.start()] if m else text
+
+
+def _number(value: float) -> str:
+    text = f"{value:.10g}"
+    if "e" in text:
+        mantissa, exponent = text.split("e")
+        return rf"{mantissa} \cdot 10^{{{int(exponent)}}}"
+    return text
+
+
+def model_latex(model, parameters: dict | None = None, initial: dict | None = None, *,
+                standalone: bool = False, title: str | None = None) -> str:
+    """LaTeX for a model (text, ParsedModel or CompiledSystem) with optional parameter/initial overrides."""
+    parsed = getattr(model, "model", model)
+    if isinstance(parsed, str):
+        parsed = parse_model(parsed)
+    if not isinstance(parsed, ParsedModel):
+        raise TypeError("model_latex needs model text, a ParsedModel or a CompiledSystem")
+    if not parsed.ok:
+        raise ValueError("the model has errors; fix them before exporting")
+    parameters = {**{n: p.value for n, p in parsed.parameters.items()}, **(parameters or {})}
+    initial = {**parsed.initial, **(initial or {})}
+    is_map = parsed.kind == MAP
+
+    names = {sym: latex_name(name) for name, sym in parsed.symbols.items()}
+    if is_map:
+        for state in parsed.states:
+            text = names[parsed.symbols[state]]
+            names[parsed.symbols[state]] = ("{" + text + "}" if "_" in text else text) + "_{n}"
+
+    def tex(expr):
+        return sp.latex(expr, symbol_names=names)
+
+    lines: list[str] = []
+    lhs_lines = _lhs_lines(parsed)
+    for base, order in parsed.typed_order.items():
+        top = derivative_name(base, order - 1) if parsed.kind == FLOW else base
+        expr = _typed(parsed, _rhs_text(parsed, parsed.equation_lines[top]), parsed.equations[top])
+        if is_map:
+            text = latex_name(base)
+            lhs = ("{" + text + "}" if "_" in text else text) + "_{n+1}"
+        else:
+            lhs = latex_name(derivative_name(base, order))
+        lines.append(f"{lhs} &= {tex(expr)}")
+
+    sections = []
+    if parsed.parameters:
+        rows = []
+        for name, info in parsed.parameters.items():
+            value = parameters[name]
+            typed = _typed(parsed, _rhs_text(parsed, info.line), sp.Float(value))
+            shown = _number(value)
+            if value == info.value and tex(typed) not in (shown, _number(float(value))) and not typed.is_Float:
+                shown = f"{tex(typed)} \\approx {shown}"  # typed as 8/3 or 2*pi: show both
+            row = f"{latex_name(name)} &= {shown}"
+            if info.lo is not None and info.hi is not None:
+                row += rf" && \text{{in }} [{_number(info.lo)}, {_number(info.hi)}]"
+            rows.append(row)
+        sections.append(("with the parameters", rows))
+    if parsed.derived:
+        rows = []
+        for name, resolved in parsed.derived.items():
+            line = lhs_lines.get(name)
+            expr = _typed(parsed, _rhs_text(parsed, line), resolved) if line else resolved
+            rows.append(f"{latex_name(name)} &= {tex(expr)}")
+        sections.append(("derived quantities", rows))
+    rows = []
+    for state in parsed.states:
+        if is_map:
+            text = latex_name(state)
+            lhs = ("{" + text + "}" if "_" in text else text) + "_{0}"
+        else:
+            lhs = latex_name(state) + "(0)"
+        rows.append(f"{lhs} &= {_number(initial.get(state, 0.0))}")
+    sections.append(("and the initial values", rows))
+
+    body = [r"\begin{align*}", " \\\\\n".join(lines)]
+    for heading, rows in sections:
+        body[-1] += " \\\\"
+        body.append(rf"\intertext{{{heading}}}")
+        body.append(" \\\\\n".join(rows))
+    body.append(r"\end{align*}")
+    where = (f"% OrbitDesk model: a {'map in the step n' if is_map else 'flow in time t'}, "
+             f"states {', '.join(parsed.states)}")
+    snippet = where + "\n" + "\n".join(body) + "\n"
+    if not standalone:
+        return snippet
+    heading = tex_escape(title) if title else "Model"
+    return ("\\documentclass[11pt]{article}\n\\usepackage{amsmath}\n"
+            "\\begin{document}\n"
+            f"\\section*{{{heading}}}\n"
+            f"{snippet}"
+            "\\end{document}\n")
+
+
+def project_latex(project, *, standalone: bool = False) -> str:
+    """LaTeX for a project's model with the project's stored parameter and initial values."""
+    parsed = parse_model(project.model)
+    if not parsed.ok:
+        raise ValueError("the project's model has errors; fix them before exporting")
+    params = {k: v.value for k, v in project.parameters.items() if k in parsed.parameters}
+    initial = {k: v for k, v in project.initial.items() if k in parsed.states}
+    return model_latex(parsed, params, initial, standalone=standalone, title=project.name)
+
+
+__all__ = ["latex_name", "model_latex", "project_latex", "tex_escape"]

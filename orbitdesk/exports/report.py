@@ -1,0 +1,341 @@
+"""A self-contained HTML report of a project: model, first-order form, values, equilibria, figures and
+the walkthrough notes. One file with inline CSS and images as data URIs; no external resources."""
+
+from __future__ import annotations
+
+import base64
+import html
+import math
+
+import sympy as sp
+
+from orbitdesk.language.model import MAP
+from orbitdesk.document.walkthrough import render_note
+
+PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"
+
+_CSS = """
+:root { --ink: #222a31; --soft: #5b6670; --rule: #d9dde1; --accent: #7a4b2a; --paper: #fffefb; }
+* { box-sizing: border-box; }
+html { background: #f3f1ec; }
+body { margin: 2.5rem auto; padding: 2.5rem 3.2rem 3rem; max-width: 58rem; background: var(--paper);
+       color: var(--ink); font: 16px/1.55 "Iowan Old Style", "Palatino Linotype", Palatino, "DejaVu Serif",
+       Georgia, serif; box-shadow: 0 1px 3px rgba(0,0,0,.08); }
+h1 { font-size: 2rem; font-weight: 600; margin: 0 0 .25rem; letter-spacing: -.01em; }
+.lede { color: var(--soft); margin: 0 0 2rem; font-style: italic; }
+h2 { font-size: 1.2rem; font-weight: 600; margin: 2.4rem 0 .8rem; padding-bottom: .25rem;
+     border-bottom: 1px solid var(--rule); color: var(--accent); }
+h3 { font-size: 1.05rem; margin: 1.6rem 0 .4rem; }
+p { margin: .5rem 0; }
+pre, code, .math { font-family: "DejaVu Sans Mono", Menlo, Consolas, monospace; font-size: .86rem; }
+pre { background: #f6f4ef; border: 1px solid var(--rule); border-radius: 4px; padding: .8rem 1rem;
+      overflow-x: auto; line-height: 1.45; white-space: pre-wrap; }
+code { background: #f1eee7; padding: 0 .2em; border-radius: 3px; white-space: nowrap; }
+table { border-collapse: collapse; margin: .6rem 0 1rem; font-size: .95rem; }
+th, td { text-align: left; padding: .3rem 1.1rem .3rem 0; border-bottom: 1px solid var(--rule);
+         vertical-align: top; }
+th { font-weight: 600; color: var(--soft); font-size: .85rem; text-transform: uppercase; letter-spacing: .04em; }
+td.num { font-variant-numeric: tabular-nums; white-space: nowrap; }
+.kind { font-style: italic; }
+figure { margin: 1.2rem 0; page-break-inside: avoid; break-inside: avoid; }
+figure img { max-width: 100%; border: 1px solid var(--rule); border-radius: 3px; }
+figcaption { color: var(--soft); font-size: .9rem; margin-top: .3rem; }
+ol.steps { padding-left: 0; list-style: none; counter-reset: step; }
+ol.steps > li { counter-increment: step; margin: 0 0 1.4rem; padding-left: 2.4rem; position: relative;
+                page-break-inside: avoid; break-inside: avoid; }
+ol.steps > li::before { content: counter(step); position: absolute; left: 0; top: .05rem; width: 1.6rem;
+                        height: 1.6rem; border-radius: 50%; background: var(--accent); color: #fff;
+                        font: 600 .85rem/1.6rem sans-serif; text-align: center; }
+ol.steps h3 { margin-top: 0; }
+.sets { color: var(--soft); font-size: .88rem; }
+.muted { color: var(--soft); }
+footer { margin-top: 3rem; color: var(--soft); font-size: .8rem; border-top: 1px solid var(--rule);
+         padding-top: .6rem; }
+@media print {
+  html { background: none; }
+  body { margin: 0; padding: 0; max-width: none; box-shadow: none; font-size: 11pt; background: #fff; }
+  pre, code { background: #fafafa; }
+  h2 { page-break-after: avoid; break-after: avoid; }
+  pre { white-space: pre-wrap; }
+}
+@page { margin: 20mm 18mm; }
+"""
+
+
+def _e(text) -> str:
+    return html.escape(str(text), quote=True)
+
+
+_SUPERSCRIPT = str.maketrans("-0123456789", "\u207b\u2070\u00b9\u00b2\u00b3\u2074\u2075\u2076\u2077\u2078\u2079")
+
+
+def _num(value, digits: int = 6) -> str:
+    """A number for reading: 6 significant digits, a true minus sign, 2.5 × 10⁻⁸ for tiny or huge ones."""
+    v = float(value)
+    if not math.isfinite(v):
+        return "\u2014"
+    if v == 0:
+        return "0"
+    text = f"{v:.{digits}g}"
+    if "e" in text:
+        mantissa, exponent = text.split("e")
+        power = "10" + str(int(exponent)).translate(_SUPERSCRIPT)
+        text = power if mantissa in ("1", "-1") else f"{mantissa} \u00d7 {power}"
+        text = ("-" + text) if mantissa == "-1" else text
+    return text.replace("-", "\u2212")
+
+
+def _complex(z, digits: int = 4) -> str:
+    z = complex(z)
+    re, im = z.real, z.imag
+    scale = max(abs(re), abs(im), 1e-300)
+    if abs(im) <= 1e-12 * scale:
+        return _num(re, digits)
+    if abs(re) <= 1e-12 * scale:
+        return f"{_num(im, digits)}i"
+    sign = "+" if im > 0 else "\u2212"
+    return f"{_num(re, digits)} {sign} {_num(abs(im), digits)}i"
+
+
+def _expr(expr) -> str:
+    """An expression in the model language's own notation (``^`` for powers)."""
+    return sp.sstr(expr).replace("**", "^")
+
+
+def _table(head: list[str] | None, rows: list[list[str]], numeric=()) -> str:
+    out = ["<table>"]
+    if head:
+        out.append("<thead><tr>" + "".join(f"<th>{_e(h)}</th>" for h in head) + "</tr></thead>")
+    out.append("<tbody>")
+    for row in rows:
+        cells = "".join(f'<td class="num">{c}</td>' if i in numeric else f"<td>{c}</td>"
+                        for i, c in enumerate(row))
+        out.append(f"<tr>{cells}</tr>")
+    out.append("</tbody></table>")
+    return "".join(out)
+
+
+def _equilibrium_row(eq, index: int, states: list[str]) -> list[str]:
+    if isinstance(eq, dict):
+        state, kind = eq.get("state", {}), eq.get("kind", "")
+        eig = [complex(v["re"], v["im"]) if isinstance(v, dict) else complex(v)
+               for v in eq.get("eigenvalues", [])]
+    else:
+        state, kind, eig = getattr(eq, "state", {}), getattr(eq, "kind", ""), list(getattr(eq, "eigenvalues", []))
+    point = ", ".join(f"{_e(s)} = {_num(state[s], 5)}" for s in states if s in state)
+    shown = []
+    for z in map(complex, eig):  # a complex pair is shown once, as a ± b i
+        partner = any(abs(w - z.conjugate()) <= 1e-9 * max(1.0, abs(z)) for w in map(complex, eig))
+        if z.imag < 0 and partner:
+            continue
+        text = _complex(z)
+        if z.imag > 0 and partner:
+            text = text.replace(" + ", " \u00b1 ") if " + " in text else "\u00b1" + text
+        shown.append(text)
+    return [str(index), point, f'<span class="kind">{_e(kind)}</span>', _e("; ".join(shown))]
+
+
+VIEW_NAMES = {"timeseries": "time series", "phase_plane": "phase plane", "phase_space_3d": "3D phase space",
+              "equilibria": "equilibria", "sections": "sections", "sweep": "sweep", "lyapunov": "Lyapunov exponents",
+              "fit": "fit to data"}
+
+
+def _step_summary(snapshot: dict, params: dict, initial: dict) -> str:
+    """What a step changes from the project's values, and which views it opens."""
+    parts = []
+    changed = {k: v for k, v in (snapshot.get("parameters") or {}).items() if params.get(k) != v}
+    if changed:
+        parts.append("sets " + ", ".join(f"{_e(k)} = {_num(v)}" for k, v in changed.items()))
+    changed = {k: v for k, v in (snapshot.get("initial") or {}).items() if initial.get(k) != v}
+    if changed:
+        parts.append("starts at " + ", ".join(f"{_e(k)} = {_num(v)}" for k, v in changed.items()))
+    section = snapshot.get("section") or {}
+    if "plane" in section:
+        parts.append(f"cuts at {_e(section['plane'])} ({_e(section.get('direction', 'up'))})")
+    elif "strobe" in section:
+        parts.append(f"strobes every {_num(section['strobe'])}")
+    views = [VIEW_NAMES.get(v, v) for v in snapshot.get("open_views") or []]
+    if views:
+        parts.append("opens " + _e(", ".join(views)))
+    return "; ".join(parts)
+
+
+def _lyapunov_rows(r, time_name: str) -> list[list[str]]:
+    per = "per step" if r.kind == MAP else f"per unit {time_name}"
+    values = [float(v) for v in r.exponents]
+    rows = [[f"\u03bb{k + 1}", _num(v, 5), per] for k, v in enumerate(values)]
+    if len(values) > 1 and all(math.isfinite(v) for v in values):
+        rows.append(["sum", _num(sum(values), 5), per])
+    if r.kaplan_yorke_dimension is not None and math.isfinite(r.kaplan_yorke_dimension):
+        rows.append(["Kaplan\u2013Yorke dimension", _num(r.kaplan_yorke_dimension, 4), ""])
+    method = "QR of the tangent vectors" if r.method == "qr" else "two nearby trajectories"
+    over = f"{int(r.averaged_over)} steps" if r.kind == MAP else f"{_num(r.averaged_over, 4)} time units"
+    rows.append(["method", _e(method), f"averaged over {over}"])
+    return rows
+
+
+def _sweep_rows(r) -> list[list[str]]:
+    values = [float(v) for v in r.values]
+    counts = [int(sum(1 for v in row if math.isfinite(float(v)))) for row in r.samples]
+    rows = [["parameter", f'<span class="math">{_e(r.parameter)}</span>',
+             f"{len(values)} values from {_num(values[0])} to {_num(values[-1])}" if values else ""],
+            ["observed", f'<span class="math">{_e(r.observed)}</span>', _e(r.mode)],
+            ["points", _num(sum(counts)), f"{_num(min(counts))} to {_num(max(counts))} per value" if counts else ""]]
+    if r.lyapunov is not None:
+        lam = [float(v) for v in r.lyapunov if math.isfinite(float(v))]
+        if lam:
+            positive = sum(1 for v in lam if v > 0)
+            rows.append(["largest exponent", f"{_num(min(lam), 4)} to {_num(max(lam), 4)}",
+                         f"positive (chaotic) at {positive} of {len(lam)} values"])
+    return rows
+
+
+def _section_rows(r) -> list[list[str]]:
+    n = int(r.times.size)
+    rows = [["crossings", _num(n), f"of {_num(r.requested)} asked for"]]
+    for k, name in enumerate(r.state_names):
+        values = [float(v) for v in r.points[k] if math.isfinite(float(v))] if n else []
+        if values and min(values) != max(values):  # (not the coordinate the plane fixes)
+            rows.append([f'<span class="math">{_e(name)}</span>', f"{_num(min(values), 5)} to {_num(max(values), 5)}",
+                         "range on the section"])
+    return rows
+
+
+def _results_html(results: dict, system) -> list[str]:
+    """Numbers of the computed results the caller passes: ``{"lyapunov": LyapunovResult,
+    "sweep": SweepResult, "section": SectionResult}`` (any may be missing)."""
+    out = []
+    parts = (("lyapunov", "Lyapunov exponents", lambda r: _lyapunov_rows(r, system.time_name)),
+             ("sweep", "Parameter sweep", _sweep_rows), ("section", "Section", _section_rows))
+    for key, heading, rows_of in parts:
+        result = results.get(key)
+        if result is None:
+            continue
+        out.append(f"<h3>{heading}</h3>")
+        out.append(_table(None, rows_of(result), numeric=(1,)))
+        notes = list(getattr(result, "warnings", []) or [])
+        status = getattr(result, "status", "ok")  # (a sweep has one per value)
+        if isinstance(status, str) and status != "ok" and getattr(result, "message", ""):
+            notes.insert(0, result.message)
+        out.extend(f'<p class="muted">{_e(note)}</p>' for note in notes)
+    if out:
+        out.insert(0, "<h2>Computed results</h2>")
+    return out
+
+
+def render_report(project, system, figures: dict | None = None, equilibria=None, results: dict | None = None,
+                  fit=None) -> str:
+    """The report as HTML text. ``figures`` maps a caption to PNG bytes (drawn by the caller);
+    ``equilibria`` is a list of Equilibrium objects or their ``to_dict()`` forms, or None; ``results``
+    holds the other computed results whose numbers go in (see ``_results_html``); ``fit`` a FitResult for
+    the project's data sets (None: the fit saved in the project is run, if any)."""
+    figures = dict(figures or {})
+    for title, data in figures.items():
+        if not isinstance(data, (bytes, bytearray)) or not bytes(data[:8]) == PNG_SIGNATURE:
+            raise ValueError(f"the figure '{title}' is not PNG image data")
+    is_map = system.kind == MAP
+    t = system.time_name
+    params = {name: float(v) for name, v in zip(system.parameters, system.param_values)}
+    params.update({k: v.value for k, v in project.parameters.items() if k in params})
+    initial = {name: float(v) for name, v in zip(system.states, system.initial)}
+    initial.update({k: v for k, v in project.initial.items() if k in initial})
+
+    what = "map, iterated in the step n" if is_map else "flow in time t"
+    out = ["<!DOCTYPE html>", '<html lang="en"><head><meta charset="utf-8">',
+           f"<title>{_e(project.name)}</title>",
+           '<meta name="viewport" content="width=device-width, initial-scale=1">',
+           f"<style>{_CSS}</style></head><body>",
+           f"<h1>{_e(project.name)}</h1>",
+           f'<p class="lede">A {what} with {len(system.states)} state{"s" if len(system.states) != 1 else ""} '
+           f'({_e(", ".join(system.states))}) and {len(system.parameters)} '
+           f'parameter{"s" if len(system.parameters) != 1 else ""}.</p>']
+    if project.notes.strip():
+        out.append(render_note(project.notes))
+
+    out.append("<h2>The model as typed</h2>")
+    out.append(f"<pre>{_e(project.model.rstrip())}</pre>")
+
+    out.append("<h2>First-order form</h2>")
+    rows = []
+    for state, expr in zip(system.states, system.f):
+        lhs = f"{state}[n+1]" if is_map else f"d({state})/d{t}" if "'" in state else f"d{state}/d{t}"
+        rows.append([f'<span class="math">{_e(lhs)}</span>', f'<span class="math">= {_e(_expr(expr))}</span>'])
+    out.append(_table(None, rows))
+
+    if system.parameters:
+        out.append("<h2>Parameters</h2>")
+        rows = []
+        for name in system.parameters:
+            lo, hi = system.param_ranges.get(name, (None, None))
+            setting = project.parameters.get(name)
+            if setting is not None and setting.lo is not None and setting.hi is not None:
+                lo, hi = setting.lo, setting.hi
+            rng = f"{_num(lo)} to {_num(hi)}" if lo is not None and hi is not None else '<span class="muted">—</span>'
+            rows.append([f'<span class="math">{_e(name)}</span>', _num(params[name]), rng])
+        out.append(_table(["name", "value", "slider range"], rows, numeric=(1,)))
+
+    out.append("<h2>Initial values</h2>")
+    rows = [[f'<span class="math">{_e(s + ("[0]" if is_map else "(0)"))}</span>', _num(initial[s])]
+            for s in system.states]
+    out.append(_table(["state", "value"], rows, numeric=(1,)))
+
+    if system.derived_names:
+        out.append("<h2>Derived quantities</h2>")
+        rows = [[f'<span class="math">{_e(n)}</span>', f'<span class="math">= {_e(_expr(e))}</span>']
+                for n, e in zip(system.derived_names, system.derived_exprs)]
+        out.append(_table(["name", "definition"], rows))
+
+    s = project.solver
+    if is_map:
+        run = f"{s.steps} iterations"
+    else:
+        run = (f"from {t} = {_num(s.t_start)} to {_num(s.t_end)}, {s.samples} samples, method {_e(s.method_info.label)}"
+               + (f" (step {_num(s.dt)})" if not s.method_info.adaptive else
+                  f", tolerances {_num(s.rtol)} relative / {_num(s.atol)} absolute"))
+        if s.transient:
+            run += f", first {_num(s.transient)} discarded as transient"
+    out.append(f'<p class="muted">Run: {run}.</p>')
+
+    if equilibria is not None:
+        out.append("<h2>" + ("Fixed points" if is_map else "Equilibria") + "</h2>")
+        if len(equilibria):
+            rows = [_equilibrium_row(eq, i + 1, system.states) for i, eq in enumerate(equilibria)]
+            out.append(_table(["#", "where", "kind", "multipliers" if is_map else "eigenvalues"], rows,
+                              numeric=(0,)))
+        else:
+            out.append('<p class="muted">None found in the search box.</p>')
+        for note in getattr(equilibria, "notes", []) or []:
+            out.append(f'<p class="muted">{_e(note)}</p>')
+
+    out.extend(_results_html(results or {}, system))
+
+    if getattr(project, "datasets", None):
+        from orbitdesk.exports.report_fit import fit_for_report, fit_section
+        reason = ""
+        if fit is None:
+            fit, reason = fit_for_report(project, system)
+        out.append(fit_section(project, system, fit, reason))
+
+    if figures:
+        out.append("<h2>Figures</h2>")
+        for title, data in figures.items():
+            uri = "data:image/png;base64," + base64.b64encode(bytes(data)).decode("ascii")
+            out.append(f'<figure><img src="{uri}" alt="{_e(title)}"><figcaption>{_e(title)}</figcaption></figure>')
+
+    if project.walkthrough:
+        out.append("<h2>Walkthrough</h2>")
+        out.append('<ol class="steps">')
+        for step in project.walkthrough:
+            summary = _step_summary(step.snapshot, params, initial)
+            out.append(f"<li><h3>{_e(step.title)}</h3>{render_note(step.note)}"
+                       + (f'<p class="sets">{summary[:1].upper() + summary[1:]}.</p>' if summary else "")
+                       + "</li>")
+        out.append("</ol>")
+
+    out.append("<footer>Made with OrbitDesk. Results are outputs of the model above, computed numerically."
+               "</footer>")
+    out.append("</body></html>")
+    return "\n".join(out) + "\n"
+
+
+__all__ = ["render_report"]

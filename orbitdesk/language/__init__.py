@@ -1,0 +1,1 @@
+"""The model language: text -> parsed model with diagnostics (tokenizer, parser, functions, families, sympy trees)."""

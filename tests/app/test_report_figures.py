@@ -1,0 +1,136 @@
+"""The HTML report as a reader sees it: every figure drawn at one readable size from the results,
+whether its view is in sight or not, the numbers of every computed result, and the command line's
+report with the same figures as the app's."""
+
+import base64
+import html as html_lib
+import os
+import re
+import subprocess
+import sys
+
+import numpy as np
+import pytest
+from PySide6.QtGui import QImage
+
+from orbitdesk.engine import RunSettings
+from orbitdesk.document.project import Project
+from orbitdesk.app import exports
+from orbitdesk.app.plots.figures import REPORT_SIZE
+from orbitdesk.app.views import series_colour
+
+from .test_help_and_exports import SPRING, open_spring, save_dialog
+from .test_plot_export import near, pixels
+
+
+def report_images(html: str) -> dict:
+    """Caption -> QImage of every figure of a report."""
+    out = {}
+    for data, alt in re.findall(r'<img src="data:image/png;base64,([^"]+)" alt="([^"]*)"', html):
+        image = QImage()
+        assert image.loadFromData(base64.b64decode(data), "PNG")
+        out[html_lib.unescape(alt)] = image
+    return out
+
+
+def write_report(qtbot, window, monkeypatch, path):
+    save_dialog(monkeypatch, path)
+    assert exports.export_report_dialog(window)
+    qtbot.waitUntil(path.exists, timeout=60000)
+    return path.read_text(encoding="utf-8")
+
+
+def test_report_draws_hidden_views_at_a_readable_size_with_the_lyapunov_numbers(qtbot, window, tmp_path,
+                                                                               monkeypatch):
+    open_spring(qtbot, window, tmp_path, w=3.0)
+    lyapunov = window.ensure_view("lyapunov")
+    lyapunov.length.setValue(200.0)
+    lyapunov.transient.setValue(0.0)
+    with qtbot.waitSignal(lyapunov.resultChanged, timeout=60000):
+        lyapunov.compute()
+    # the phase plane sits collapsed behind nothing: its dock is closed; the Lyapunov view was never shown
+    window.view_docks["phase_plane"].hide()
+    html = write_report(qtbot, window, monkeypatch, tmp_path / "spring.html")
+    images = report_images(html)
+    assert "Phase plane: x' against x" in images and any(c.startswith("Lyapunov") for c in images)
+    for caption, image in images.items():
+        assert (image.width(), image.height()) == REPORT_SIZE, caption
+    # the orbit of x'' = -9 x from x = 1 is the ellipse x^2 + (x'/3)^2 = 1 (closed form): it fills the
+    # phase plane figure from side to side and top to bottom, not a 305 x 75 strip
+    rows, cols = np.nonzero(near(pixels(images["Phase plane: x' against x"]), series_colour(0, window)))
+    assert cols.max() - cols.min() > 0.7 * REPORT_SIZE[0] and rows.max() - rows.min() > 0.7 * REPORT_SIZE[1]
+    # the exponents of a linear centre are both 0 (closed form); the report gives the view's numbers
+    section = html[html.index("<h3>Lyapunov exponents</h3>"):]
+    shown = re.findall(r"<td>λ(\d)</td><td class=\"num\">([^<]+)</td>", section)
+    assert [k for k, _ in shown] == ["1", "2"]
+    values = [float(v.replace("\u2212", "-").replace(" \u00d7 10", "e").translate(
+        str.maketrans("\u207b\u2070\u00b9\u00b2\u00b3\u2074\u2075\u2076\u2077\u2078\u2079", "-0123456789")))
+        for _, v in shown]
+    assert values == pytest.approx(list(lyapunov.result.exponents), rel=1e-4, abs=1e-12)
+    assert max(abs(v) for v in values) < 0.05
+
+
+def test_command_line_report_has_the_same_figures_as_the_app(qtbot, window, tmp_path, monkeypatch):
+    open_spring(qtbot, window, tmp_path, w=3.0)
+    project_path = tmp_path / "spring.orbitdesk"
+    assert window._save_to(project_path)
+    app_html = write_report(qtbot, window, monkeypatch, tmp_path / "app.html")
+    cli_html_path = tmp_path / "cli.html"
+    done = subprocess.run([sys.executable, "-m", "orbitdesk", "export", str(project_path), "--report", "-o",
+                           str(cli_html_path)], capture_output=True, text=True, timeout=300,
+                          env={k: v for k, v in os.environ.items() if k not in ("QT_QPA_PLATFORM", "DISPLAY")})
+    assert done.returncode == 0, done.stderr
+    app_images, cli_images = report_images(app_html), report_images(cli_html_path.read_text(encoding="utf-8"))
+    assert set(cli_images) == set(app_images) >= {"Time series: x, x' against t", "Phase plane: x' against x"}
+    colour = series_colour(0, window)
+    for caption in app_images:
+        a, c = app_images[caption], cli_images[caption]
+        assert (a.width(), a.height()) == (c.width(), c.height()) == REPORT_SIZE
+        ra, ca = np.nonzero(near(pixels(a), colour))
+        rc, cc = np.nonzero(near(pixels(c), colour))
+        # the same curve at the same place (different font engines may move the axes by a pixel or two)
+        for p, q in ((ra.min(), rc.min()), (ra.max(), rc.max()), (ca.min(), cc.min()), (ca.max(), cc.max())):
+            assert abs(int(p) - int(q)) <= 4, caption
+
+
+def test_the_3d_scene_is_drawn_at_the_report_size_even_when_hidden(qtbot, window):
+    from orbitdesk.app.plots.figures import scene_image
+
+    from .conftest import load_model
+
+    window.view_docks["phase_space_3d"].show()
+    view = window.ensure_view("phase_space_3d")
+    load_model(qtbot, window.session, "x' = -y\ny' = x\nz' = -z\nx(0) = 1\nz(0) = 1\n",
+               {"t_end": 20.0, "samples": 2000})
+    qtbot.wait(200)
+    window.view_docks["phase_space_3d"].hide()
+    image = scene_image(view, *REPORT_SIZE)
+    assert image is not None and (image.width(), image.height()) == REPORT_SIZE
+    rgb = pixels(image)
+    lit = np.nonzero((rgb.max(axis=2) - rgb.min(axis=2)) > 60)  # the run's coloured line on the dark scene
+    assert lit[0].size > 200
+    # the helix x = cos t, y = sin t, z = e^-t sits in the middle of the picture, wider than a corner
+    assert np.ptp(lit[1]) > 0.15 * REPORT_SIZE[0] and abs(np.mean(lit[1]) - REPORT_SIZE[0] / 2) < 0.25 * REPORT_SIZE[0]
+
+
+def test_report_gives_the_orbit_diagram_and_its_numbers(qtbot, window, tmp_path, monkeypatch):
+    from .conftest import load_model
+
+    load_model(qtbot, window.session, "x[n+1] = r*x*(1 - x)\nr = 3.2 in [2.5, 4]\nx[0] = 0.3\n", {"steps": 300})
+    window.view_docks["sweep"].show()
+    sweep = window.ensure_view("sweep")
+    sweep.set_range("r", 2.8, 3.4, 61)
+    sweep.lyapunov.setChecked(True)
+    with qtbot.waitSignal(sweep.sweepChanged, timeout=60000):
+        sweep.run()
+    window.view_docks["sweep"].hide()  # closed before the report: its results still go in
+    html = write_report(qtbot, window, monkeypatch, tmp_path / "logistic.html")
+    section = html[html.index("<h3>Parameter sweep</h3>"):]
+    assert "61 values from 2.8 to 3.4" in section
+    # the logistic map's first period doubling is at r = 3 (May 1976, Nature 261: 459): the largest
+    # exponent is negative on both sides and the orbit is periodic, so no value is chaotic
+    assert "positive (chaotic) at 0 of 61 values" in section
+    images = report_images(html)
+    diagram = [c for c in images if c.startswith("Parameter sweep") or c.startswith("Sweep")]
+    assert diagram, list(images)
+    assert all((images[c].width(), images[c].height()) == REPORT_SIZE for c in diagram)

@@ -1,0 +1,140 @@
+"""Every sample project opened from Help > Sample Projects in the main window, its walkthrough replayed
+through the walkthrough panel (Next until the end): each step puts the values written in the sample file
+on screen, runs cleanly and reports no problems; leaving gives the sample's own values back."""
+
+import json
+import re
+from pathlib import Path
+
+import numpy as np
+import pytest
+from PySide6.QtCore import Qt
+
+from orbitdesk.document.view_settings import names_in, unknown_keys
+from orbitdesk.app import help as help_ui
+
+SAMPLES = sorted(help_ui.SAMPLES_DIR.glob("*.orbitdesk"))
+
+
+def wait_idle_run(qtbot, session, timeout=30000):
+    """Until the main run for the values now on screen has finished (and it went well)."""
+    qtbot.waitUntil(lambda: session.system is not None and session.trajectory is not None
+                    and not session.jobs.running("run") and not session._run_timer.isActive(), timeout=timeout)
+
+
+def setting(d, path):
+    for key in path.split("."):
+        d = d[key]
+    return d
+
+
+def check_views_show_the_step(qtbot, window, raw, step):
+    """Each open view shows the names the sample's settings and the step give it, and the parameter a
+    sweep runs over is the one the step's note speaks of."""
+    title, snap = step["title"], step["snapshot"]
+    for view_id in snap.get("open_views", []):
+        view = window.views.get(view_id)
+        if view is None:
+            continue
+        wanted = {**raw["views"].get(view_id, {}), **snap.get("views", {}).get(view_id, {})}
+        assert unknown_keys(view_id, wanted) == [], (title, view_id)
+        shown = view.view_settings()
+        for path, _kind, name in names_in(view_id, wanted):
+            value = setting(shown, path)
+            assert (name in value) if isinstance(value, list) else value == name, (title, view_id, path, value)
+        if view_id == "sweep":
+            assert re.search(rf"`{re.escape(shown['parameter'])}\b", step["note"]), (title, shown["parameter"])
+            assert (shown["from"], shown["to"]) == (wanted["from"], wanted["to"]), title
+        if view_id == "cycles":  # the cycle is found by itself, with the period the note gives
+            qtbot.waitUntil(lambda: view.cycle is not None, timeout=60000)
+            assert f"about {view.cycle.period:.4g}" in step["note"], (title, view.cycle.period)
+            assert window.session.cycle is view.cycle
+        if view_id == "sections" and "section" in snap:
+            if "strobe" in snap["section"]:
+                assert (shown["kind"], shown["period"]) == ("strobe", snap["section"]["strobe"]), title
+            else:
+                name, _, value = snap["section"]["plane"].partition("=")
+                assert (shown["kind"], shown["coordinate"], shown["value"]) == ("plane", name, float(value)), title
+
+
+def inside(values, lo, hi):
+    values = np.asarray(values, dtype=float)
+    values = values[np.isfinite(values)]
+    slack = 1e-6 * max(1.0, hi - lo)
+    return values.size == 0 or (values.min() >= lo - slack and values.max() <= hi + slack)
+
+
+def check_plots_show_the_whole_run(window, step):
+    """The time series and the phase plane of a step show the whole run (nothing leaves the axes); the
+    3D camera is the step's."""
+    title, snap, traj = step["title"], step["snapshot"], window.session.trajectory
+    open_views = snap.get("open_views", [])
+    if "timeseries" in open_views:
+        view = window.views["timeseries"]
+        (t0, t1), (y0, y1) = view.plot.getViewBox().viewRange()
+        assert inside(traj.time, t0, t1), title
+        for name in view.checked():
+            assert inside(traj.series(name), y0, y1), (title, name, y0, y1)
+    if "phase_plane" in open_views:
+        view = window.views["phase_plane"]
+        (x0, x1), (y0, y1) = view.plot.getViewBox().viewRange()
+        x, y = view._xy(traj)  # as drawn: an angle wrapped
+        assert inside(x, x0, x1) and inside(y, y0, y1), title
+    if "camera" in snap and "phase_space_3d" in open_views:
+        cam = window.views["phase_space_3d"].camera()
+        assert (cam["azimuth"], cam["elevation"]) == (snap["camera"]["azimuth"], snap["camera"]["elevation"])
+
+
+def test_every_sample_is_listed():
+    assert len(SAMPLES) >= 7
+    names = {p.name for p in SAMPLES}
+    assert {"convection_loop.orbitdesk", "shaken_beam.orbitdesk", "pendulum.orbitdesk",
+            "insect_generations.orbitdesk"} <= names
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("path", SAMPLES, ids=[p.stem for p in SAMPLES])
+def test_sample_walkthrough_replays_in_the_app(qtbot, window, path):
+    raw = json.loads(Path(path).read_text(encoding="utf-8"))  # the file itself is the reference
+    menu = window.samples_menu
+    menu.aboutToShow.emit()
+    action = next(a for a in menu.actions() if a.data() == str(path))
+    action.trigger()
+    s, panel = window.session, window.walkthrough_panel
+    assert s.project.name == raw["name"] and s.path is None  # an unsaved copy: Save asks where
+    assert window.walkthrough_dock.isVisible()
+    wait_idle_run(qtbot, s)
+    own = dict(s.params)
+    steps = raw["walkthrough"]
+    assert len(panel.steps) == len(steps) > 0
+    seen = []
+    while True:
+        before = panel.current
+        qtbot.mouseClick(panel.next_button, Qt.MouseButton.LeftButton)
+        if panel.current == before:
+            break
+        i = panel.current
+        seen.append(i)
+        snap = steps[i]["snapshot"]
+        assert panel.problems == [], (steps[i]["title"], panel.problems)
+        assert not panel.problems_label.isVisibleTo(panel)
+        assert panel.title_label.text() == steps[i]["title"]
+        for name, value in snap.get("parameters", {}).items():
+            assert s.params[name] == pytest.approx(value, rel=0, abs=0)
+        for name, value in snap.get("initial", {}).items():
+            assert s.initial[name] == pytest.approx(value, rel=0, abs=0)
+        for view_id in snap.get("open_views", []):
+            if view_id in window.view_docks:
+                assert window.view_docks[view_id].isVisible(), (steps[i]["title"], view_id)
+                assert window.views.get(view_id) is not None
+        check_views_show_the_step(qtbot, window, raw, steps[i])
+        wait_idle_run(qtbot, s)
+        assert s.trajectory.status == "ok", (steps[i]["title"], s.trajectory.message)
+        check_plots_show_the_whole_run(window, steps[i])
+        if panel.missing_views:
+            print(f"{path.stem} step {i + 1}: views not in this build: {panel.missing_views}")
+    assert seen == list(range(len(steps)))
+    assert not panel.next_button.isEnabled()
+    assert not s.dirty  # looking at a walkthrough is not an edit
+    panel.leave()
+    assert s.params == own and not panel.in_walkthrough and not s.dirty

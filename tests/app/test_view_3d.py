@@ -1,0 +1,191 @@
+"""Phase space 3D: a Lorenz trajectory drawn on the GL scene, the camera saved and restored, nearby starts."""
+
+import os
+
+import numpy as np
+
+
+from .conftest import load_model, wait_for_trajectory
+
+LORENZ = """# Lorenz equations
+sigma = 10
+r = 28
+beta = 8/3
+x' = sigma*(y - x)
+y' = x*(r - z) - y
+z' = x*y - beta*z
+x(0) = 1
+y(0) = 1
+z(0) = 1
+"""
+
+
+def load(qtbot, session, text, **solver):
+    return load_model(qtbot, session, text, dict(t_end=40.0, samples=8001), **solver)
+
+
+def make_view(qtbot, session, size=(760, 560)):
+    from orbitdesk.app.views.phase_space_3d import PhaseSpace3DView
+
+    view = PhaseSpace3DView(session)
+    qtbot.addWidget(view)
+    view.resize(*size)
+    view.show()
+    qtbot.waitExposed(view)
+    return view
+
+
+def frame(qtbot, view):
+    qtbot.wait(30)
+    view.glview.update()
+    qtbot.wait(30)
+    return view.glview.grabFramebuffer()
+
+
+def pixels(image) -> np.ndarray:
+    from PySide6.QtGui import QImage
+
+    img = image.convertToFormat(QImage.Format.Format_RGB888)
+    w, h, stride = img.width(), img.height(), img.bytesPerLine()
+    buf = np.frombuffer(img.constBits(), dtype=np.uint8, count=stride * h).reshape(h, stride)
+    return buf[:, : 3 * w].reshape(h, w, 3).astype(int)
+
+
+def test_lorenz_trajectory_is_drawn_coloured_by_time(qtbot, session, artifacts):
+    view = make_view(qtbot, session)
+    load(qtbot, session, LORENZ)
+    assert view.axes() == ["x", "y", "z"]
+    px = pixels(frame(qtbot, view))
+    from orbitdesk.app.plots.plot_style import SCENE_BACKGROUND, TIME_RAMP
+
+    background = np.array(SCENE_BACKGROUND)
+    lit = np.abs(px - background).sum(axis=2) > 60
+    assert lit.mean() > 0.02  # the attractor covers a visible part of the scene
+    colours = {tuple(c) for c in px[lit][::7] // 16}
+    assert len(colours) > 20  # not one flat colour: a ramp along time
+    # both ends of the time ramp are on screen (early dusk blue, late ember), within blending tolerance
+    for _f, stop in (TIME_RAMP[0], TIME_RAMP[-1]):
+        assert np.min(np.abs(px[lit] - np.array(stop)).sum(axis=1)) < 60
+    view.glview.grabFramebuffer().save(os.path.join(artifacts, "view_3d_lorenz_scene.png"))
+    view.grab_image().save(os.path.join(artifacts, "view_3d_lorenz.png"))
+
+
+def test_camera_round_trips_through_view_settings(qtbot, session):
+    view = make_view(qtbot, session, (400, 300))
+    view.glview.setFixedSize(360, 240)
+    load(qtbot, session, LORENZ)
+    cam = {"distance": 31.5, "elevation": 12.0, "azimuth": 140.0, "center": [0.5, -1.0, 2.0], "fov": 45.0}
+    view.set_camera(cam)
+    before = pixels(frame(qtbot, view))
+    d = view.view_settings()
+    assert d["camera"] == cam
+    import json
+
+    d = json.loads(json.dumps(d))  # what a project file keeps
+    other = make_view(qtbot, session, (400, 300))
+    other.glview.setFixedSize(360, 240)
+    other.apply_view_settings(d)
+    assert other.camera() == cam
+    # the same camera draws the same picture
+    after = pixels(frame(qtbot, other))
+    assert np.mean(np.abs(before - after).sum(axis=2) > 30) < 0.01
+    other.reset_camera()
+    assert other.camera() != cam
+
+
+def test_axes_and_settings_survive_a_project_round_trip(qtbot, session):
+    view = make_view(qtbot, session, (400, 300))
+    load(qtbot, session, LORENZ)
+    view.set_axes("z", "x", "t")
+    view.colour_combo.setCurrentIndex(1)
+    d = view.view_settings()
+    assert d["axes"] == ["z", "x", "t"] and d["colour"] == "trajectory"
+    proj = session.to_project()
+    proj.views["phase_space_3d"] = d
+    wait_for_trajectory(qtbot, session, lambda: session.load_project(proj))
+    assert view.axes() == ["z", "x", "t"] and view.colour_combo.currentIndex() == 1
+    header, rows = view.export_data()
+    assert header == ["t", "z", "x", "t"] and rows.shape[0] == 8001
+
+
+def test_a_million_points_are_thinned_for_drawing_only(qtbot, session):
+    from orbitdesk.engine.runs import Trajectory
+    from orbitdesk.app.views.phase_space_3d import MAX_DRAWN_POINTS
+
+    view = make_view(qtbot, session, (400, 300))
+    base = load(qtbot, session, LORENZ, t_end=100.0, samples=20001)
+    # a million samples of the same orbit (the engine's own long runs are measured by the benchmarks)
+    time = np.linspace(0.0, 100.0, 1_000_001)
+    states = np.vstack([np.interp(time, base.time, base.states[k]) for k in range(3)])
+    big = Trajectory("flow", time, states, list(base.state_names), dict(base.params))
+    session.trajectory = big
+    session.trajectoryChanged.emit(big)
+    frame(qtbot, view)
+    assert 0 < view.main_item.pos.shape[0] <= MAX_DRAWN_POINTS
+    header, rows = view.export_data()
+    assert rows.shape == (1_000_001, 4)  # the full data stays for export
+    np.testing.assert_array_equal(rows[:, 1], big.series("x"))
+    # the camera still turns: a drag on the scene changes the azimuth
+    from PySide6.QtCore import QPoint, Qt
+
+    from orbitdesk.app.views.phase_space_3d import MOVING_POINTS
+
+    before = view.camera()["azimuth"]
+    full = view.main_item.pos.copy()
+    centre = view.glview.rect().center()
+    qtbot.mousePress(view.glview, Qt.MouseButton.LeftButton, pos=centre)
+    for dx in range(5, 60, 5):
+        qtbot.mouseMove(view.glview, centre + QPoint(dx, 0))
+    # while the camera moves a coarser line of the same orbit is drawn (a subset of the full one)
+    moving = view.main_item.pos.copy()
+    assert 0 < moving.shape[0] <= MOVING_POINTS < full.shape[0]
+    assert np.isin(moving[:, 0], full[:, 0]).all() and np.array_equal(moving[0], full[0])
+    qtbot.mouseRelease(view.glview, Qt.MouseButton.LeftButton, pos=centre + QPoint(60, 0))
+    frame(qtbot, view)
+    assert view.camera()["azimuth"] != before
+    assert np.array_equal(view.main_item.pos, full)  # the full line again on release
+
+
+def test_nearby_starts_separate_on_the_attractor(qtbot, session, artifacts):
+    view = make_view(qtbot, session)
+    load(qtbot, session, LORENZ)
+    view.spread_count.setValue(8)
+    view.spread_radius.setValue(1e-4)
+    with qtbot.waitSignal(view.spreadChanged, timeout=30000):
+        view.spread_box.setChecked(True)
+    runs = view.spread_runs
+    assert len(runs) == 8
+    starts = np.array([r.states[:, 0] for r in runs])
+    u0 = session.initial_vector()
+    assert np.all(np.linalg.norm(starts - u0, axis=1) <= 1e-4 * (1 + 1e-12))
+    # sensitive dependence on initial conditions (Strogatz, Nonlinear Dynamics and Chaos, 2nd ed., sec. 9.3):
+    # starts 1e-4 apart are far apart on the attractor after t = 40 (largest exponent about 0.9, value from memory)
+    ends = np.array([r.final_state for r in runs])
+    assert np.max(np.linalg.norm(ends - ends.mean(axis=0), axis=1)) > 1.0
+    assert sum(line.visible() for line, _dots in view.extra_items) == 8
+    frame(qtbot, view)
+    view.grab_image().save(os.path.join(artifacts, "view_3d_lorenz_nearby_starts.png"))
+    with qtbot.waitSignal(view.spreadChanged, timeout=5000):
+        view.spread_box.setChecked(False)
+    assert not any(line.visible() for line, _dots in view.extra_items)
+
+
+def test_added_starts_and_time_cursor(qtbot, session):
+    view = make_view(qtbot, session, (400, 300))
+    traj = load(qtbot, session, LORENZ)
+    with qtbot.waitSignal(view.addedChanged, timeout=20000):
+        view.add_starts([{"u0": [0.01, 0.0, 0.0]}, {"u0": [0.0, 0.0, 1.0], "backward": True}])
+    fwd, back = view.added_runs
+    assert fwd.time[-1] > fwd.time[0] and back.time[-1] < back.time[0]
+    assert view.view_settings()["starts"][1] == {"u0": [0.0, 0.0, 1.0], "backward": True}
+    # the cursor marker sits on the trajectory at the cursor time
+    k = 2000
+    session.set_time_cursor(float(traj.time[k]))
+    expected = view._to_box(np.array([[traj.series(n)[k] for n in "xyz"]]))
+    np.testing.assert_allclose(view.cursor_item.pos, expected, atol=1e-5)
+    # "Keep start" keeps the current initial state as an added trajectory
+    with qtbot.waitSignal(view.addedChanged, timeout=20000):
+        view.keep_button.click()
+    assert view.added[-1]["u0"] == [1.0, 1.0, 1.0] and len(view.added_runs) == 3
+    view.clear_extra()
+    assert view.added == [] and view.view_settings()["starts"] == []

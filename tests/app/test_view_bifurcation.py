@@ -1,0 +1,72 @@
+"""Bifurcation diagram view: branches computed in the background, special points listed in words, a
+click on a row sets the parameter and state, results kept in the view's settings."""
+
+import pytest
+
+from .conftest import load_model, show_view
+
+BRUSSELATOR = "a = 1.5\nb = 2 in [0, 5]\nx' = a - (b + 1)*x + x^2*y\ny' = b*x - x^2*y\nx(0) = 1\ny(0) = 1\n"
+DUFFING = ("c = 0.05\nb = 0.1\nF = 0.1\nw = 1.0 in [0.8, 1.4]\nx'' = -c*x' - x - b*x^3 + F*cos(w*t)\n"
+           "x(0) = 0\n")
+
+
+def make_view(qtbot, session):
+    from orbitdesk.app.views.bifurcation import BifurcationView
+
+    return show_view(qtbot, BifurcationView(session), (1000, 640))
+
+
+def compute(qtbot, view, timeout=120000):
+    with qtbot.waitSignal(view.resultChanged, timeout=timeout):
+        view.compute_button.click()
+
+
+def table_rows(table):
+    return [[table.item(r, c).text() for c in range(table.columnCount())] for r in range(table.rowCount())]
+
+
+def test_hopf_point_listed_in_words_and_click_goes_there(qtbot, session):
+    load_model(qtbot, session, BRUSSELATOR, dict(t_end=20.0, samples=501))
+    view = make_view(qtbot, session)
+    assert view.parameter.currentText() == "b" and (view.lo.value(), view.hi.value()) == (0.0, 5.0)
+    compute(qtbot, view)
+    rows = table_rows(view.table)
+    assert len(rows) == 1
+    label, at, state, meaning = rows[0]
+    # closed form: Hopf at b = 1 + a^2 = 3.25 with frequency a = 1.5, supercritical
+    assert label == "Hopf" and at == "b = 3.25"
+    assert "soft onset" in meaning and "frequency 1.5" in meaning
+    view.table.cellClicked.emit(0, 0)
+    assert session.params["b"] == pytest.approx(3.25)
+    assert session.initial["x"] == pytest.approx(1.5) and session.initial["y"] == pytest.approx(3.25 / 1.5)
+    session.undo_stack.undo()  # one undo step takes the whole jump back
+    assert session.params["b"] == 2.0 and session.initial["x"] == 1.0
+
+    saved = view.view_settings()
+    assert saved["branches"] and saved["branches"][0]["special"][0]["type"] == "hopf"
+    again = make_view(qtbot, session)
+    again.apply_view_settings(saved)
+    again._redraw()
+    assert table_rows(again.table) == rows
+
+
+def test_frequency_response_with_stepped_sweeps(qtbot, session):
+    load_model(qtbot, session, DUFFING, dict(t_end=20.0, samples=501))
+    view = make_view(qtbot, session)
+    assert view.follow.currentText() == "forced response" and view.stepped_box.isVisible()
+    compute(qtbot, view, timeout=300000)
+    folds = sorted(float(row[1].split("=")[1]) for row in table_rows(view.table))
+    # harmonic balance (Nayfeh & Mook 1979) for these values: jumps near w = 1.0761 and 1.1155
+    assert folds == [pytest.approx(1.0761, rel=2e-3), pytest.approx(1.1155, rel=2e-3)]
+    assert [c.stepped for c in view.stepped] == ["up", "down"]
+    assert "jumps at w = 1.07" in view.info.text() or "jumps at w = 1.11" in view.info.text()
+    names = [item.name() for item in view.plot.listDataItems() if item.name()]
+    assert {"response, stable", "response, unstable", "stepped up", "stepped down"} <= set(names)
+
+
+def test_unreadable_saved_branches_are_dropped_with_a_note(qtbot, session):
+    load_model(qtbot, session, BRUSSELATOR, dict(t_end=20.0, samples=501))
+    view = make_view(qtbot, session)
+    view.apply_view_settings({"branches": [{"kind": 5, "points": "no"}], "locus": {"curve": 3}})
+    assert view.branches == [] and view.locus_result is None
+    assert "could not be read" in view.info.text()

@@ -1,0 +1,134 @@
+"""Lyapunov view: the spectrum computed in the background, its table, dimension and convergence curves."""
+
+import math
+import os
+
+import numpy as np
+import pytest
+
+
+from .conftest import load_model, wait_for_trajectory
+
+LORENZ = """sigma = 10
+r = 28
+beta = 8/3
+x' = sigma*(y - x)
+y' = x*(r - z) - y
+z' = x*y - beta*z
+x(0) = 1
+y(0) = 1
+z(0) = 1
+"""
+
+HENON = """a = 1.4
+b = 0.3
+x[n+1] = 1 - a*x^2 + y
+y[n+1] = b*x
+x[0] = 0.1
+y[0] = 0
+"""
+
+KINKED = """# a forced oscillator with a one-sided spring
+k = 4
+x'' = -0.2*x' - k*max(x, 0) - x + 2*cos(1.3*t)
+"""
+
+
+def load(qtbot, session, text, **solver):
+    return load_model(qtbot, session, text, dict(t_end=20.0, samples=1001, steps=500), **solver)
+
+
+def make_view(qtbot, session):
+    from orbitdesk.app.views.lyapunov import LyapunovView
+
+    view = LyapunovView(session)
+    qtbot.addWidget(view)
+    view.resize(900, 460)
+    view.show()
+    return view
+
+
+def compute(qtbot, view, timeout=60000):
+    with qtbot.waitSignal(view.resultChanged, timeout=timeout) as blocker:
+        view.compute_button.click()
+    return blocker.args[0]
+
+
+def test_lorenz_spectrum(qtbot, session, artifacts):
+    view = make_view(qtbot, session)
+    load(qtbot, session, LORENZ)
+    view.length.setValue(400.0)
+    view.transient.setValue(20.0)
+    result = compute(qtbot, view)
+    lam = result.exponents
+    # the sum of the exponents is the average divergence of the flow, here the constant -(sigma + 1 + beta)
+    assert lam.sum() == pytest.approx(-(10 + 1 + 8 / 3), abs=1e-3)
+    # a flow's exponent along the orbit is zero; the largest is about 0.906 and the Kaplan-Yorke
+    # dimension about 2.06 (Sprott, Chaos and Time-Series Analysis, 2003, values from memory)
+    assert abs(lam[1]) < 0.05
+    assert lam[0] == pytest.approx(0.906, abs=0.1)
+    assert result.kaplan_yorke_dimension == pytest.approx(2.06, abs=0.02)
+    assert view.table.rowCount() == 3
+    assert view.table.item(0, 1).text().startswith("0.9")
+    assert "Kaplan–Yorke dimension" in view.summary.text()
+    assert len(view.curves) == 3
+    header, rows = view.export_data()
+    assert header == ["t", "exponent 1", "exponent 2", "exponent 3"] and rows.shape[1] == 4
+    np.testing.assert_allclose(rows[-1, 1:], lam)  # the last running estimate is the result
+    qtbot.wait(30)
+    view.grab().save(os.path.join(artifacts, "view_lyapunov_lorenz.png"))
+
+
+def test_henon_map_exponents(qtbot, session):
+    view = make_view(qtbot, session)
+    load(qtbot, session, HENON)
+    assert view.length_label.text() == "Iterate" and not view.dt.isVisible()
+    view.length.setValue(20000)
+    view.transient.setValue(500)
+    result = compute(qtbot, view)
+    # det J = -b, so the exponents add up to ln b exactly (closed form); the largest is about 0.42
+    # (Sprott 2003, value from memory)
+    assert result.exponents.sum() == pytest.approx(math.log(0.3), abs=1e-9)
+    assert result.exponents[0] == pytest.approx(0.42, abs=0.02)
+    assert "per step" in view.table.item(0, 1).toolTip()
+
+
+def test_non_smooth_model_is_flagged(qtbot, session):
+    view = make_view(qtbot, session)
+    load(qtbot, session, KINKED)
+    view.length.setValue(200.0)
+    view.transient.setValue(20.0)
+    result = compute(qtbot, view)
+    # the full spectrum from the Jacobian that holds almost everywhere, with a note that says so;
+    # closed form: that Jacobian's trace is -0.2 everywhere, so the exponents sum to -0.2
+    assert result.method == "qr" and result.exponents.size == 2
+    assert result.exponents.sum() == pytest.approx(-0.2, abs=1e-3)
+    assert view.table.rowCount() == 2
+    assert "max" in view.notes.text() and "almost everywhere" in view.notes.text()
+    assert "QR of the tangent vectors" in view.summary.text()
+
+
+def test_settings_round_trip_and_stale_note(qtbot, session):
+    view = make_view(qtbot, session)
+    load(qtbot, session, LORENZ)
+    view.length.setValue(50.0)
+    view.transient.setValue(5.0)
+    view.auto_step.setChecked(False)
+    view.dt.setValue(0.005)
+    compute(qtbot, view)
+    d = view.view_settings()
+    assert d["flow"] == {"length": 50.0, "transient": 5.0} and d["dt"] == 0.005 and d["auto"] is False
+    assert view.result.dt == pytest.approx(0.005)
+    wait_for_trajectory(qtbot, session, lambda: session.set_param("r", 30.0))
+    assert view.is_stale() and not view.stale_bar.isHidden()
+    assert "r = 28 (now 30)" in view.stale_bar.label.text()
+    other = make_view(qtbot, session)
+    other.apply_view_settings(d)
+    assert other.view_settings() == d
+    # automatic mode follows the values
+    with qtbot.waitSignal(view.resultChanged, timeout=30000):
+        view.auto.setChecked(True)
+    with qtbot.waitSignal(view.resultChanged, timeout=30000) as blocker:
+        session.set_param("r", 20.0)
+    # below r_H about 24.74 the orbit settles on C+ or C-: no positive exponent (Strogatz sec. 9.2)
+    assert blocker.args[0].exponents[0] < 0.01
