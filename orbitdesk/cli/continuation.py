@@ -69,7 +69,7 @@ def run(args) -> int:
             from orbitdesk.analyses.continuation.cycles import cycle_branches
 
             result = cycle_branches(system, args.param, lo, hi, p, guess=guess or None, initial=u0,
-                                    settings=settings, progress=progress)
+                                    settings=settings, switch=not args.no_switch, progress=progress)
         else:
             result = steady_branches(system, args.param, lo, hi, p, guess=guess or None,
                                      map_period=args.period or 1, settings=settings, switch=not args.no_switch,

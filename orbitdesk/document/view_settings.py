@@ -30,7 +30,7 @@ VIEW_SETTINGS: dict[str, dict] = {
               "duration": "number", "lyapunov": "bool"},
     "cycles": {"start": ("end", "clicked"), "period_guess": "number", "forcing_multiple": "integer",
                "map_period": "integer"},
-    "bifurcation": {"follow": ("steady", "cycles", "response"), "parameter": "parameter", "from": "number",
+    "bifurcation": {"follow": ("steady", "cycles", "cycle", "response"), "parameter": "parameter", "from": "number",
                     "to": "number", "measure": "text", "overlay": "bool", "stepped": "bool",
                     "locus_kind": ("fold", "Hopf"), "param2": "parameter", "from2": "number", "to2": "number",
                     "tab": "integer", "branches": "list", "response": "table", "stepped_sweeps": "list",

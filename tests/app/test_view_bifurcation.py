@@ -70,3 +70,25 @@ def test_unreadable_saved_branches_are_dropped_with_a_note(qtbot, session):
     view.apply_view_settings({"branches": [{"kind": 5, "points": "no"}], "locus": {"curve": 3}})
     assert view.branches == [] and view.locus_result is None
     assert "could not be read" in view.info.text()
+
+
+ROSSLER = ("a = 0.2\nb = 0.2\nc = 2.6 in [2.5, 3.2]\nx' = -y - z\ny' = x + a*y\nz' = b + z*(x - c)\n"
+           "x(0) = 1\ny(0) = 1\nz(0) = 0\n")
+
+
+def test_the_cycle_of_the_run_and_the_cycle_of_twice_its_period(qtbot, session):
+    # Rössler (1976) at a = b = 0.2: the first period doubling near c = 2.83 (value from memory; the core
+    # test checks it against scipy's multipliers)
+    load_model(qtbot, session, ROSSLER, dict(t_end=50.0, samples=501))
+    view = make_view(qtbot, session)
+    view.follow.setCurrentText("the cycle the run settles on")
+    view.lo.setValue(2.5)
+    view.hi.setValue(3.1)
+    compute(qtbot, view, timeout=300000)
+    assert len(view.branches) == 2
+    parent, doubled = view.branches
+    assert doubled.periods[0] == pytest.approx(2 * parent.periods[-1], rel=0.1)
+    rows = table_rows(view.table)
+    (doubling,) = [row for row in rows if row[0] == "period doubling"]
+    assert float(doubling[1].split("=")[1]) == pytest.approx(2.83, abs=0.01)
+    assert view.view_settings()["follow"] == "cycle"

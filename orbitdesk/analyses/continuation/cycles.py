@@ -15,6 +15,13 @@ fails and the branch ends with that reason in words. Collocation would be the ch
 Test functions on the nontrivial multipliers (the trivial one, nearest 1, is left out):
 cycle fold (the parameter component of the tangent), period doubling (prod (mu + 1)), torus
 (prod_{i<j} (mu_i mu_j - 1), real pairs rejected when located).
+
+Branch switching at a period doubling: the cycle of twice the period is born there. At the point
+(u0, T, p) the monodromy matrix has the multiplier -1 with eigenvector v; the doubled cycle passes
+through u0 + eps v with period near 2T, so the doubled problem is corrected from (u0 + eps v, 2T, p)
+on the hyperplane v . (u - u0) = eps and continued away from the parent (the other way it only
+returns to the parent cycle run through twice). Doubled branches switch again at their own period
+doublings, up to ``MAX_DOUBLINGS`` levels (the start of a cascade: Feigenbaum 1978).
 """
 
 from __future__ import annotations
@@ -34,6 +41,7 @@ from orbitdesk.analyses.continuation.results import CYCLE, CYCLE_FOLD, HOPF, PER
 
 SAMPLES = 200  # points per orbit for the maxima and minima
 SHRUNK = 2e-3  # a cycle smaller than this (relative to the state's size) has shrunk to an equilibrium
+MAX_DOUBLINGS = 3  # levels of period doubling followed by switching (periods 2T, 4T, 8T)
 
 
 class CycleProblem:
@@ -137,8 +145,9 @@ class CycleProblem:
 
 def cycle_branches(system: CompiledSystem, param: str, lo: float, hi: float, p=None, guess=None, initial=None,
                    hopf=None, settings: StepSettings | None = None, max_period_factor: float = 30.0,
-                   cancel: CancelToken | None = None, progress=None) -> BranchSet:
-    """The branch of the cycle found near ``guess`` (or born at the Hopf point ``hopf``, a Special)."""
+                   switch: bool = True, cancel: CancelToken | None = None, progress=None) -> BranchSet:
+    """The branch of the cycle found near ``guess`` (or born at the Hopf point ``hopf``, a Special), and
+    with ``switch`` the branches of doubled period born at its period doublings."""
     lo, hi = check_interval(system, param, lo, hi)
     if system.kind == MAP or not system.autonomous:
         raise ValueError("cycle branches are for autonomous flows; a forced flow's periodic response is "
@@ -155,16 +164,76 @@ def cycle_branches(system: CompiledSystem, param: str, lo: float, hi: float, p=N
         x0, tangent, problem = _from_cycle(system, funcs, pv, k, lo, hi, guess, initial, settings,
                                            max_period_factor, cancel)
         both = True
-    curve = continue_curve(problem, x0, tangent, lo, hi, settings, both=both, cancel=cancel,
-                           progress=report.part(0.05, 0.95))
-    xs = np.array(curve.xs)
-    branch = Branch(CYCLE, param, list(system.states), xs[:, -1], xs[:, :funcs.n].T,
-                    [d["stable"] for d in curve.data], [d["spectrum"] for d in curve.data],
-                    [to_special(system, s) for s in curve.special], list(curve.reasons), periods=xs[:, -2],
-                    maxima={s: np.array([d["max"][i] for d in curve.data]) for i, s in enumerate(system.states)},
-                    minima={s: np.array([d["min"][i] for d in curve.data]) for i, s in enumerate(system.states)})
+    queue = [(x0, tangent, problem, both, 0)]
+    branches, notes = [], []
+    while queue:
+        x0, tangent, problem, both, level = queue.pop(0)
+        share = 0.9 / (1 + level)
+        curve = continue_curve(problem, x0, tangent, lo, hi, settings, both=both, cancel=cancel,
+                               progress=report.part(0.05 if not branches else 0.95 - share, share))
+        branch = _branch(system, funcs, param, curve, level)
+        branches.append(branch)
+        if not switch or level >= MAX_DOUBLINGS:
+            continue
+        for special in curve.special:
+            if special.type != PERIOD_DOUBLING:
+                continue
+            try:
+                queue.append((*_doubled(funcs, problem, special, settings), False, level + 1))
+            except ContinuationError as err:
+                notes.append(f"the doubled cycle at {param} = {special.x[-1]:.6g}: {err}")
     report(1.0)
-    return BranchSet(param, [branch])
+    return BranchSet(param, branches, notes)
+
+
+def _branch(system, funcs, param, curve, level) -> Branch:
+    xs = np.array(curve.xs)
+    specials = [to_special(system, s) for s in curve.special]
+    if level:  # the first point is next to the period doubling the branch was switched from: no repeat
+        specials = [s for s in specials if s.index > 1]
+    return Branch(CYCLE, param, list(system.states), xs[:, -1], xs[:, :funcs.n].T,
+                  [d["stable"] for d in curve.data], [d["spectrum"] for d in curve.data], specials,
+                  list(curve.reasons), periods=xs[:, -2],
+                  maxima={s: np.array([d["max"][i] for d in curve.data]) for i, s in enumerate(system.states)},
+                  minima={s: np.array([d["min"][i] for d in curve.data]) for i, s in enumerate(system.states)})
+
+
+def _doubled(funcs, parent: CycleProblem, special, settings):
+    """Start (x, tangent, problem) of the cycle of twice the period born at a period doubling."""
+    x = np.asarray(special.x, dtype=float)
+    n, k = funcs.n, parent.k
+    u0, period, value = x[:n], float(x[-2]), float(x[-1])
+    pv = parent.params(x)
+    values, vectors = np.linalg.eig(parent._flow(x)[1])
+    i = int(np.argmin(np.abs(values + 1.0)))
+    if abs(values[i] + 1.0) > 1e-2:
+        raise ContinuationError("no multiplier near -1 at the located point")
+    v = np.real(vectors[:, i])
+    f0 = funcs.f(u0, pv)
+    f0 = f0 / max(float(np.linalg.norm(f0)), 1e-300)
+    v = v - (v @ f0) * f0  # transverse to the flow, so the phase condition holds along it
+    if np.linalg.norm(v) < 1e-8:
+        raise ContinuationError("the doubling direction is along the flow")
+    v = v / np.linalg.norm(v)
+    problem = CycleProblem(funcs, pv, k, u0, parent.max_period * 2)
+    anchor = np.concatenate([u0, [2 * period, value]])
+    e = np.concatenate([v, [0.0, 0.0]])
+    eps = 0.005 * max(1.0, float(np.linalg.norm(u0)))
+    for _ in range(6):
+        x1, _ = newton_bordered(problem, anchor + eps * e, e, settings, anchor=anchor, target=eps)
+        if x1 is not None and _truly_doubled(problem, x1):
+            problem.accept(x1)
+            return x1, (x1 - anchor) / np.linalg.norm(x1 - anchor), problem
+        eps *= 0.5
+    raise ContinuationError("no cycle of twice the period could be corrected next to the point")
+
+
+def _truly_doubled(problem: CycleProblem, x) -> bool:
+    """Whether the corrected cycle is not the parent run twice: half its period does not close it."""
+    half = x.copy()
+    half[-2] = 0.5 * x[-2]
+    end = problem.funcs.flow(x[:problem.n], problem.params(x), 0.0, float(half[-2]), problem.k)[0]
+    return float(np.linalg.norm(end - x[:problem.n])) > 1e-4 * (1.0 + float(np.linalg.norm(x[:problem.n])))
 
 
 def _from_hopf(funcs, pv, k, hopf, settings, factor):

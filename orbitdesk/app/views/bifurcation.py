@@ -23,8 +23,9 @@ from orbitdesk.app.plots.plot_style import JobStrip, NumberBox, number_text
 from orbitdesk.app.views.common import (SessionView, check_box, clicked_point, combo_box, control_row, fill_combo,
                      fill_default_range, is_number, push_button, quiet, select_text, status_label)
 
-STEADY, CYCLES, RESPONSE = "steady", "cycles", "response"
-FOLLOW_LABELS = {STEADY: "steady states", CYCLES: "steady states and their cycles", RESPONSE: "forced response"}
+STEADY, CYCLES, CYCLE_HERE, RESPONSE = "steady", "cycles", "cycle", "response"
+FOLLOW_LABELS = {STEADY: "steady states", CYCLES: "steady states and their cycles",
+                 CYCLE_HERE: "the cycle the run settles on", RESPONSE: "forced response"}
 NORM, PERIOD, AMPLITUDE = "size of the state (norm)", "period", "amplitude"
 # a marker shape per kind of point (pyqtgraph symbols); colours come from the series palette
 SYMBOLS = {"fold": "d", "hopf": "star", "branch point": "+", "cycle fold": "d", "period doubling": "s",
@@ -79,7 +80,9 @@ class BifurcationView(SessionView):
 
         # ---- one-parameter controls
         self.follow = combo_box("What to follow: the steady states (equilibria of a flow, fixed points of a map), "
-                                "also the cycles born at their Hopf points, or a forced model's periodic response",
+                                "also the cycles born at their Hopf points, the cycle the current run settles on (with the cycles "
+                                "of twice the period born at its period doublings), or a forced model's periodic "
+                                "response",
                                 slot=self._on_follow)
         self.parameter = combo_box("The parameter that moves", slot=self._on_parameter)
         self.lo = NumberBox(0.0, -1e12, 1e12, step=0.1)
@@ -255,6 +258,11 @@ class BifurcationView(SessionView):
                                                     initial=u0, cancel=cancel,
                                                     progress=lambda f, i=i: report((i + f) / parts)))
                 return ("response", curve, sweeps)
+            if mode == CYCLE_HERE:
+                from orbitdesk.analyses.continuation.cycles import cycle_branches
+
+                return ("branches", cycle_branches(s, name, lo, hi, p, initial=u0, cancel=cancel, progress=report),
+                        None)
             result = cont.steady_branches(s, name, lo, hi, p, initial=u0, cancel=cancel,
                                           progress=lambda f: report(f * (0.4 if mode == CYCLES else 1.0)))
             if mode == CYCLES:
@@ -338,7 +346,7 @@ class BifurcationView(SessionView):
         with quiet(self.parameter, self.param2, self.follow):
             fill_combo(self.parameter, system.parameters)
             fill_combo(self.param2, system.parameters)
-            modes = [RESPONSE] if forced else [STEADY] if system.kind == "map" else [STEADY, CYCLES]
+            modes = [RESPONSE] if forced else [STEADY] if system.kind == "map" else [STEADY, CYCLES, CYCLE_HERE]
             fill_combo(self.follow, [FOLLOW_LABELS[m] for m in modes])
             select_text(self.follow, FOLLOW_LABELS.get(keep[2]))
             ranged = [n for n in system.parameters if None not in self.session.param_range(n)]
@@ -413,7 +421,7 @@ class BifurcationView(SessionView):
         items = list(self.system.states)
         if self.follow_mode() != RESPONSE:
             items.append(NORM)
-            if any(b.periods is not None for b in self.branches) or self.follow_mode() == CYCLES:
+            if any(b.periods is not None for b in self.branches) or self.follow_mode() in (CYCLES, CYCLE_HERE):
                 items.append(PERIOD)
         with quiet(self.measure):
             fill_combo(self.measure, items)
