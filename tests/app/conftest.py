@@ -77,6 +77,9 @@ def session(qtbot):
     s = Session()
     yield s
     s.shutdown()
+    # a job may be inside a call that cannot be interrupted (a first compile on a cold cache takes long on a
+    # loaded machine): wait for it to end, then check that nothing is left running
+    assert s.jobs.wait(180_000)
     assert s.jobs.pool.activeThreadCount() == 0
     s.deleteLater()
 
@@ -92,6 +95,7 @@ def window(qtbot):
     qtbot.waitExposed(w)
     yield w
     w.session.shutdown()
+    assert w.session.jobs.wait(180_000)  # as in the session fixture: an uninterruptible first compile ends
     w.session.undo_stack.setClean()
     w.session._forced_dirty = False
 
