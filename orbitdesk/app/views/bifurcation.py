@@ -524,6 +524,13 @@ class BifurcationView(SessionView):
             return s.period
         if m == NORM:
             return float(np.linalg.norm(list(s.state.values())))
+        if branch.maxima is not None and m in branch.maxima and 0 < s.index <= len(branch.values) - 1:
+            # a cycle is drawn by its highest and lowest values: mark the point on the highest curve, not at
+            # the state where the orbit happens to start
+            i, j = s.index - 1, s.index
+            a, b = branch.values[i], branch.values[j]
+            w = 0.5 if a == b else min(max((s.value - a) / (b - a), 0.0), 1.0)
+            return float((1 - w) * branch.maxima[m][i] + w * branch.maxima[m][j])
         return s.state.get(m)
 
     def _draw_specials(self) -> None:
