@@ -1,1 +1,1 @@
-"""Qt side: windows, docks and views over the core."""
+"""Qt side: the window, its panels (panels/), plot helpers (plots/) and views (views/) over the headless document."""
