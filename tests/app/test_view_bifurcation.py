@@ -1,6 +1,7 @@
 """Bifurcation diagram view: branches computed in the background, special points listed in words, a
 click on a row sets the parameter and state, results kept in the view's settings."""
 
+import numpy as np
 import pytest
 
 from .conftest import load_model, show_view
@@ -92,3 +93,31 @@ def test_the_cycle_of_the_run_and_the_cycle_of_twice_its_period(qtbot, session):
     (doubling,) = [row for row in rows if row[0] == "period doubling"]
     assert float(doubling[1].split("=")[1]) == pytest.approx(2.83, abs=0.01)
     assert view.view_settings()["follow"] == "cycle"
+
+
+CUSP = "a = -0.5 in [-1, 1]\nb = 1 in [0, 1.5]\nx' = a + b*x - x^3\nx(0) = -1\n"
+
+
+def test_fold_curves_meeting_at_a_cusp_shade_the_region_of_three_steady_states(qtbot, session):
+    # closed form: x' = a + b x - x^3 has three equilibria exactly where 27 a^2 < 4 b^3 (the cusp at the origin)
+    from PySide6.QtCore import QPointF, Qt
+
+    load_model(qtbot, session, CUSP, dict(t_end=10.0, samples=201))
+    view = make_view(qtbot, session)
+    view.parameter.setCurrentText("a")
+    view.lo.setValue(-1.0)
+    view.hi.setValue(1.0)
+    view.param2.setCurrentText("b")
+    view.lo2.setValue(0.0)
+    view.hi2.setValue(1.5)
+    with qtbot.waitSignal(view.resultChanged, timeout=300000):
+        view.locus_button.click()
+    assert [s["type"] for s in view.locus_result.special] == ["cusp"]
+    region = view.locus_region
+    assert region is not None
+    polygon = region.polygon()
+    for a in np.linspace(-0.95, 0.95, 9):
+        for b in np.linspace(0.05, 1.45, 8):
+            margin = 4 * b ** 3 - 27 * a ** 2
+            if abs(margin) > 0.15:
+                assert polygon.containsPoint(QPointF(a, b), Qt.FillRule.OddEvenFill) == (margin > 0), (a, b)

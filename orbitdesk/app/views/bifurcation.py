@@ -14,9 +14,10 @@ import math
 
 import numpy as np
 import pyqtgraph as pg
-from PySide6.QtCore import Qt, Signal
-from PySide6.QtWidgets import (QAbstractItemView, QHeaderView, QSplitter, QTableWidget, QTableWidgetItem,
-                               QTabWidget, QVBoxLayout, QWidget)
+from PySide6.QtCore import QPointF, Qt, Signal
+from PySide6.QtGui import QColor, QPolygonF
+from PySide6.QtWidgets import (QAbstractItemView, QGraphicsPolygonItem, QHeaderView, QSplitter, QTableWidget,
+                               QTableWidgetItem, QTabWidget, QVBoxLayout, QWidget)
 
 from orbitdesk.app.views import muted_colour, series_colour, style_plot
 from orbitdesk.app.plots.plot_style import JobStrip, NumberBox, number_text
@@ -72,6 +73,7 @@ class BifurcationView(SessionView):
         self.response = None  # ResponseCurve (continued)
         self.stepped = []  # ResponseCurve (stepped up / down)
         self.locus_result = None
+        self.locus_region = None  # the shaded region between fold curves meeting at a cusp
         self.notes: list[str] = []
         self._wanted = None
         self._range_for = None
@@ -590,6 +592,22 @@ class BifurcationView(SessionView):
         if L is None:
             return
         colour = series_colour(1 if L.kind == "fold" else 4, self)
+        self.locus_region = None
+        if L.kind == "fold" and any(s["type"] == "cusp" for s in L.special):
+            box = (float(self.lo.value()), float(self.hi.value()), float(self.lo2.value()), float(self.hi2.value()))
+            corners = region_between_fold_curves(L.values[0], L.values[1], box)
+            if corners is not None:
+                fill = QColor(colour)
+                fill.setAlpha(45)
+                inside = QPolygonF([QPointF(box[0], box[2]), QPointF(box[1], box[2]), QPointF(box[1], box[3]),
+                                    QPointF(box[0], box[3])])
+                polygon = QPolygonF([QPointF(x, y) for x, y in corners]).intersected(inside)
+                self.locus_region = QGraphicsPolygonItem(polygon)
+                self.locus_region.setBrush(fill)
+                self.locus_region.setPen(pg.mkPen(None))
+                self.locus_region.setToolTip("Between the fold curves: two more steady states than outside, so the "
+                                             "state depends on the way there (hysteresis)")
+                self.locus_plot.addItem(self.locus_region)
         self.locus_plot.plot(L.values[0], L.values[1], pen=pg.mkPen(colour, width=2))
         p1, p2 = L.parameters
         self.locus_plot.setLabel("bottom", p1)
@@ -773,3 +791,32 @@ class BifurcationView(SessionView):
 VIEW = BifurcationView
 
 __all__ = ["BifurcationView", "VIEW", "stable_runs"]
+
+
+def region_between_fold_curves(x, y, box):
+    """The polygon between the two arms of a fold curve that meet at a cusp, closed along the edge of the
+    computed range ``box`` = (x0, x1, y0, y1) where the arms leave it (through its corner when they leave by
+    two adjacent edges); None when an arm ends inside the range or the arms leave by opposite edges (the
+    region is then not drawn)."""
+    x, y = np.asarray(x, float), np.asarray(y, float)
+    if len(x) < 3:
+        return None
+    size = (max(box[1] - box[0], 1e-300), max(box[3] - box[2], 1e-300))
+
+    def edge(i):
+        beyond = [(box[0] - x[i]) / size[0], (x[i] - box[1]) / size[0],
+                  (box[2] - y[i]) / size[1], (y[i] - box[3]) / size[1]]
+        k = int(np.argmax(beyond))
+        return k if beyond[k] > -0.01 else None
+
+    first, last = edge(0), edge(-1)
+    if first is None or last is None:
+        return None
+    points = list(zip(x, y))
+    if first != last:
+        if {first, last} in ({0, 1}, {2, 3}):
+            return None
+        vertical = last if last in (0, 1) else first
+        horizontal = last if last in (2, 3) else first
+        points.append((box[vertical], box[horizontal]))
+    return points
