@@ -1,24 +1,25 @@
 """Parameter sweeps: orbit diagrams over one parameter and grids of the largest Lyapunov exponent.
 
-All parameter values of a sweep run together as one ensemble (``ensemble.py``). After a transient
-each member contributes samples of an observed quantity:
+Every parameter value of a sweep is a member of one ensemble run by the engine's compiled loops
+(``engine/members.py`` for flows, ``engine/maps.py`` for maps), each with its own step control.
+After a transient each member contributes samples of an observed quantity:
 
-* ``plane``: crossings of ``STATE = VALUE`` in a direction, located within the RK4 step on the
-  cubic Hermite interpolant through the step's end values and rates (safeguarded Newton);
-* ``strobe``: the state every forcing period ``T``; the RK4 step divides ``T`` exactly;
-* ``maxima``: local maxima of a state, where its rate changes sign from + to -, located on the same
-  Hermite interpolant;
+* ``plane``: crossings of ``STATE = VALUE`` in a direction, located on the step's dense output;
+* ``strobe``: the state every forcing period ``T``, read off the dense output at those times;
+* ``maxima``: local maxima of a state, where its rate changes sign from + to -, located on the
+  dense output;
 * ``iterate``: iterates of a map.
 
-Optionally the largest Lyapunov exponent per value: a tangent vector evolved with
-``system.jac_vec`` alongside each member and renormalised every step, or for non-smooth models
-a second trajectory a small distance away, pulled back every step.
+The accuracy is set like a run's: adaptive Dormand-Prince (``method``, ``rtol``, ``atol``, the
+defaults of a single run) unless a fixed step ``dt`` is given (classical RK4; a strobe period is
+divided exactly). Optionally the largest Lyapunov exponent per value: one tangent vector evolved
+with the model's Jacobian (for non-smooth models the one that holds almost everywhere) beside
+each member and renormalised every time unit (maps: every step).
 
 Large sweeps and two-parameter grids can be split into chunks run on any
-``concurrent.futures.Executor`` (``chunks.py``); workers recompile the model text.
-
-Exponent grids of smooth maps use the compiled loop of ``jit.map_lyapunov`` (numba, optional)
-when it is installed and the work pays for compiling; the numpy ensemble is the fallback.
+``concurrent.futures.Executor`` (``chunks.py``); workers recompile the model text. The engine is
+compiled when the work pays for it (``engine.compiled.engine_for_work``); otherwise the same
+loops run as plain Python.
 """
 
 from __future__ import annotations
@@ -31,14 +32,13 @@ from functools import partial
 import numpy as np
 
 from orbitdesk.engine.chunks import compiled_system, run_chunks, split, worker_count
-from orbitdesk.engine.ensembles import _STATUS_WIDTH, DIVERGED, OK, UNDEFINED, iterate_run, member_jac, member_rhs, rk4_run
 from orbitdesk.engine.progress import Reporter
+from orbitdesk.engine.status import OK
 from orbitdesk.system.compiled_system import MAP
 
 PLANE, STROBE, MAXIMA, ITERATE = "plane", "strobe", "maxima", "iterate"
 MODES = (PLANE, STROBE, MAXIMA, ITERATE)
 UP, DOWN, BOTH = 1, -1, 0
-_SEPARATION = 1e-8  # distance of the companion trajectory (non-smooth models)
 
 
 @dataclass
@@ -50,7 +50,10 @@ class SweepSettings:
     period: float | None = None  # strobe period T
     transient: float = 100.0  # time (flows; strobe: rounded up to whole periods) or iterations (maps) dropped
     samples: int = 100  # samples kept per value
-    dt: float = 0.01  # RK4 step (strobe: the nearest step dividing T that is not larger)
+    dt: float | None = None  # a fixed RK4 step (strobe: the nearest step dividing T that is not larger)
+    method: str = "dop853"  # without dt: an adaptive explicit method of engine/methods.py
+    rtol: float = 1e-8  # its tolerances (a single run's defaults)
+    atol: float = 1e-10
     duration: float = 500.0  # plane/maxima: longest sampling time after the transient
     lyapunov: bool = False
     t_start: float = 0.0
@@ -95,11 +98,37 @@ class SweepSettings:
         if not (math.isfinite(s.transient) and s.transient >= 0):
             raise ValueError("the transient must be zero or positive")
         if system.kind != MAP:
-            if not (math.isfinite(s.dt) and s.dt > 0):
-                raise ValueError("the step dt must be positive")
+            _check_accuracy(s)
             if s.mode in (PLANE, MAXIMA) and not (math.isfinite(s.duration) and s.duration > 0):
                 raise ValueError("the sampling duration must be positive")
         return s
+
+
+def accuracy_like(run) -> dict:
+    """A sweep's (or grid's) accuracy fields from a single run's settings (``engine.settings.RunSettings``):
+    a fixed-step method keeps its step, an adaptive explicit one its tolerances; a stiff method's
+    tolerances go to DOP853 (sweeps run explicit methods)."""
+    info = run.method_info
+    if not info.adaptive:
+        return {"dt": run.dt, "method": "dop853", "rtol": run.rtol, "atol": run.atol}
+    name = run.method if info.family == "explicit_rk" else "dop853"
+    return {"dt": None, "method": name, "rtol": run.rtol, "atol": run.atol}
+
+
+def _check_accuracy(s) -> None:
+    """The step or the adaptive method and tolerances of a sweep or grid; ValueError in plain words."""
+    from orbitdesk.engine.methods import method
+
+    if s.dt is not None:
+        if not (math.isfinite(s.dt) and s.dt > 0):
+            raise ValueError("the step dt must be positive")
+        return
+    info = method(s.method)
+    if info.family != "explicit_rk" or not info.adaptive:
+        raise ValueError(f"sweeps run an adaptive explicit method (dop853 or rk45) or a fixed step dt; "
+                         f"'{s.method}' is not one")
+    if not (0 < s.rtol <= 1 and s.atol > 0 and math.isfinite(s.atol)):
+        raise ValueError("the tolerances must be positive (rtol at most 1)")
 
 
 @dataclass
@@ -126,342 +155,140 @@ class SweepResult:
                 "status": [str(s) for s in self.status]}
 
 
-# ---------------------------------------------------------------- Hermite pieces and root refinement
-def _hermite(s, y0, y1, d0, d1):
-    """Cubic Hermite value at s in [0, 1]; d0, d1 are h * rates at the ends."""
-    s2 = s * s
-    s3 = s2 * s
-    return (2 * s3 - 3 * s2 + 1) * y0 + (s3 - 2 * s2 + s) * d0 + (3 * s2 - 2 * s3) * y1 + (s3 - s2) * d1
-
-
-def _hermite_ds(s, y0, y1, d0, d1):
-    return (6 * s * s - 6 * s) * (y0 - y1) + (3 * s * s - 4 * s + 1) * d0 + (3 * s * s - 2 * s) * d1
-
-
-def _hermite_ds2(s, y0, y1, d0, d1):
-    return (12 * s - 6) * (y0 - y1) + (6 * s - 4) * d0 + (6 * s - 2) * d1
-
-
-def bracketed_root(fn, g0, g1, iterations: int = 60, tol: float = 1e-14):
-    """Roots in [0, 1] of many functions at once, ``fn(s) -> (g, dg/ds)`` with g0, g1 of opposite sign
-    (or g1 = 0): Newton steps kept inside a shrinking bracket, bisection when Newton leaves it."""
-    a = np.zeros_like(g0)
-    b = np.ones_like(g0)
-    ga = g0.copy()
-    with np.errstate(all="ignore"):
-        s = np.where(g0 != g1, g0 / (g0 - g1), 0.5)
-        s = np.clip(np.nan_to_num(s, nan=0.5), 0.0, 1.0)
-        for _ in range(iterations):
-            g, dg = fn(s)
-            same = np.sign(g) == np.sign(ga)
-            a = np.where(same, s, a)
-            ga = np.where(same, g, ga)
-            b = np.where(same, b, s)
-            new = s - g / dg
-            outside = ~((new > a) & (new < b))
-            new = np.where(outside, 0.5 * (a + b), new)
-            new = np.where(g == 0, s, new)
-            moved = np.max(np.abs(new - s))
-            s = new
-            if moved <= tol:
-                break
-    return s
-
-
-class _Samples:
-    """Up to K values per member, with the time of each."""
-
-    def __init__(self, M, K):
-        self.values = np.full((M, K), np.nan)
-        self.times = np.full((M, K), np.nan)
-        self.count = np.zeros(M, dtype=np.int64)
-        self.K = K
-
-    def add(self, members, t, v):
-        room = self.count[members] < self.K
-        m = members[room]
-        c = self.count[m]
-        self.values[m, c] = np.broadcast_to(v, members.shape)[room]
-        self.times[m, c] = np.broadcast_to(t, members.shape)[room]
-        self.count[m] += 1
-
-    @property
-    def full(self) -> bool:
-        return bool(np.all(self.count >= self.K))
-
-
-class _Observed:
-    """The observed quantity for a subset of members: a state row, or a derived quantity."""
-
-    def __init__(self, system, name, P):
-        self.system, self.name, self.P = system, name, P
-        self.row = system.states.index(name) if name in system.states else None
-
-    def __call__(self, t, U, members):
-        if self.row is not None:
-            return U[self.row]
-        P = self.P if self.P.ndim == 1 else self.P[:, members]
-        return self.system.derived_values(t, U, P)[self.name]
-
-
-class _StepSampler(_Samples):
-    """Crossings within RK4 steps, refined on the cubic Hermite interpolant of the step."""
-
-    wants_rates = True
-
-    def __init__(self, M, K, n, h, t_keep, observed):
-        super().__init__(M, K)
-        self.h, self.t_keep, self.observed = h, t_keep, observed
-        self.U_prev = np.empty((n, M))
-        self.F_prev = np.empty((n, M))
-        self.g_prev = None
-        self.t_prev = None
-
-    def _g(self, U, F):
-        raise NotImplementedError
-
-    def _root(self, members, y0, y1, d0, d1):
-        raise NotImplementedError
-
-    def __call__(self, step, t, U, F):
-        g = self._g(U, F)
-        if step > 0 and t > self.t_keep:
-            hit = self._hits(self.g_prev, g)
-            if hit.any():
-                w = np.nonzero(hit)[0]
-                y0, y1 = self.U_prev[:, w], U[:, w]
-                d0, d1 = self.h * self.F_prev[:, w], self.h * F[:, w]
-                s = self._root(w, y0, y1, d0, d1)
-                tc = self.t_prev + s * self.h
-                late = tc >= self.t_keep
-                if late.any():
-                    w, s, tc = w[late], s[late], tc[late]
-                    y0, y1, d0, d1 = y0[:, late], y1[:, late], d0[:, late], d1[:, late]
-                    states = _hermite(s, y0, y1, d0, d1)
-                    self.add(w, tc, self.observed(tc, states, w))
-        self.U_prev[...] = U
-        self.F_prev[...] = F
-        self.g_prev = g
-        self.t_prev = t
-        return self.full
-
-
-class _PlaneSampler(_StepSampler):
-    def __init__(self, M, K, n, h, t_keep, observed, row, value, direction):
-        super().__init__(M, K, n, h, t_keep, observed)
-        self.row, self.value, self.direction = row, value, direction
-
-    def _g(self, U, F):
-        return U[self.row] - self.value
-
-    def _hits(self, g0, g1):
-        up = (g0 < 0) & (g1 >= 0)
-        down = (g0 > 0) & (g1 <= 0)
-        return up if self.direction == UP else down if self.direction == DOWN else up | down
-
-    def _root(self, members, y0, y1, d0, d1):
-        k, v = self.row, self.value
-        a, b, c, d = y0[k], y1[k], d0[k], d1[k]
-        return bracketed_root(lambda s: (_hermite(s, a, b, c, d) - v, _hermite_ds(s, a, b, c, d)), a - v, b - v)
-
-
-class _MaximaSampler(_StepSampler):
-    def __init__(self, M, K, n, h, t_keep, observed, row):
-        super().__init__(M, K, n, h, t_keep, observed)
-        self.row = row
-
-    def _g(self, U, F):
-        return F[self.row].copy()
-
-    def _hits(self, g0, g1):
-        return (g0 > 0) & (g1 <= 0)
-
-    def _root(self, members, y0, y1, d0, d1):
-        k = self.row
-        a, b, c, d = y0[k], y1[k], d0[k], d1[k]
-        return bracketed_root(lambda s: (_hermite_ds(s, a, b, c, d), _hermite_ds2(s, a, b, c, d)), c, d)
-
-
-class _EverySampler(_Samples):
-    """Every ``every``-th step from ``first`` on: strobe samples of flows, iterates of maps."""
-
-    wants_rates = False
-
-    def __init__(self, M, K, first, every, observed):
-        super().__init__(M, K)
-        self.first, self.every, self.observed = first, every, observed
-        self.all = np.arange(M)
-        self.column = 0  # every member gets each sample, so one column index serves all
-
-    def __call__(self, step, t, U, F=None):
-        if step >= self.first and (step - self.first) % self.every == 0 and self.column < self.K:
-            self.values[:, self.column] = self.observed(t, U, self.all)
-            self.times[:, self.column] = t
-            self.column += 1
-            self.count[:] = self.column
-        return self.column >= self.K
-
-
-class _Lyapunov:
-    """Largest exponent: the perturbation rows of Y (n: 2n) renormalised after every step."""
-
-    wants_rates = True
-
-    def __init__(self, n, M, keep_from_step, smooth, companion_rhs=None):
-        self.n, self.keep_from = n, keep_from_step
-        self.smooth = smooth
-        self.companion_rhs = companion_rhs  # f(t, W) for the companion trajectory (non-smooth flows)
-        self.total = np.zeros(M)
-        self.counted = 0
-
-    def __call__(self, step, t, Y, F):
-        if step == 0:
-            return False
-        n = self.n
-        if self.smooth:
-            V = Y[n:]
-            norm = np.sqrt(np.einsum("im,im->m", V, V))
-            scale = 1.0 / np.where(norm > 0, norm, 1.0)
-            V *= scale
-            if F is not None:
-                F[n:] *= scale
-        else:
-            U, W = Y[:n], Y[n:]
-            D = W - U
-            norm = np.sqrt(np.einsum("im,im->m", D, D)) / _SEPARATION
-            scale = 1.0 / np.where(norm > 0, norm, 1.0)
-            D *= scale
-            np.add(U, D, out=W)
-            if F is not None:
-                F[n:] = self.companion_rhs(t, W)
-        if step > self.keep_from:
-            self.total += np.log(np.maximum(norm, 1e-300))
-            self.counted += 1
-        return False
-
-
-class _Observers:
-    def __init__(self, lyapunov, sampler, n, stop_when_full):
-        self.lyapunov, self.sampler, self.n, self.stop = lyapunov, sampler, n, stop_when_full
-        self.wants_rates = bool(getattr(lyapunov, "wants_rates", False) or getattr(sampler, "wants_rates", False))
-
-    def __call__(self, step, t, Y, F=None):
-        if self.lyapunov is not None:
-            self.lyapunov(step, t, Y, F)
-        n = self.n
-        full = False
-        if self.sampler is not None:
-            if self.sampler.wants_rates:
-                full = self.sampler(step, t, Y[:n], F[:n])
-            else:
-                full = self.sampler(step, t, Y[:n])
-        return full and self.stop
-
-
 # ---------------------------------------------------------------- running members
 def _start_vector(n):
     v = np.arange(1.0, n + 1.0)
     return v / np.linalg.norm(v)
 
 
-def _augmented(system, P, U, lyapunov):
-    """Initial Y and the step function, with perturbation rows when the exponent is wanted."""
-    n, M = U.shape
-    rhs = member_rhs(system, P)
-    if not lyapunov:
-        return U.copy(), rhs, None
-    if system.smooth:
-        jac = member_jac(system, P)
-        V0 = np.repeat(_start_vector(n)[:, None], M, axis=1)
+def _engine(system, evaluations: float, compiled: bool | None = None):
+    """The engine for this much work: compiled when it pays (``compiled`` None), now (True) or never (False)."""
+    from orbitdesk.engine import compiled as kernels
 
-        def fun(t, Y):
-            out = np.empty_like(Y)
-            out[:n] = rhs(t, Y[:n])
-            out[n:] = np.einsum("ijm,jm->im", jac(t, Y[:n]), Y[n:])
-            return out
-
-        return np.vstack([U, V0]), fun, None
-    W0 = U + _SEPARATION * _start_vector(n)[:, None]
-
-    def fun(t, Y):
-        out = np.empty_like(Y)
-        out[:n] = rhs(t, Y[:n])
-        out[n:] = rhs(t, Y[n:])
-        return out
-
-    return np.vstack([U, W0]), fun, (rhs if system.kind != MAP else None)
+    if compiled is False:
+        return kernels.python_engine(system)
+    if compiled:
+        return kernels.engine_for(system, wait=True)
+    return kernels.engine_for_work(system, evaluations)
 
 
-def run_members(system, P, U0, settings: SweepSettings, cancel=None, progress=None):
-    """One ensemble over the columns of P (and U0) with checked settings: (samples, exponents, EnsembleResult)."""
+@dataclass
+class MemberSamples:
+    values: np.ndarray  # (M, K) the observed quantity, NaN where a member has fewer than K samples
+    times: np.ndarray  # (M, K) time (or step) of each sample
+    states: np.ndarray  # (n, M, K) the states there
+
+
+@dataclass
+class MemberRun:
+    status: np.ndarray  # (M,) status words
+    time: np.ndarray  # (M,) where each member ended (a stopped member: when it stopped)
+
+
+def _observed(system, name, t, states, P):
+    """The observed quantity at samples ``states`` (n, M, K) taken at ``t`` (M, K)."""
+    if name in system.states:
+        return states[system.states.index(name)].copy()
+    n, M, K = states.shape
+    flat_P = np.repeat(P, K, axis=1) if P.ndim == 2 else P
+    with np.errstate(all="ignore"):
+        values = system.derived_values(t.reshape(-1), states.reshape(n, M * K), flat_P)[name]
+    return np.broadcast_to(np.asarray(values, dtype=float), (M * K,)).reshape(M, K).copy()
+
+
+def _fixed_step(s: SweepSettings, period: float | None = None) -> float | None:
+    """The RK4 step of a sweep given ``dt`` (a strobe period divided exactly), None when adaptive."""
+    if s.dt is None:
+        return None
+    if period is None:
+        return float(s.dt)
+    return period / max(1, int(math.ceil(period / s.dt - 1e-9)))
+
+
+def run_members(system, P, U0, settings: SweepSettings, cancel=None, progress=None, compiled: bool | None = None):
+    """One ensemble over the columns of P (and U0) with checked settings: (MemberSamples, exponents or
+    None, MemberRun). Every member runs the engine's compiled loops (``drivers.members_run``, maps
+    ``drivers.members_iterate``): samples at the strobe times off the dense output, crossings and
+    maxima located on it, the largest exponent from one tangent vector renormalised as it goes."""
+    from orbitdesk.engine import drivers
+    from orbitdesk.engine.explicit_rk import TURNS_DOWN
+    from orbitdesk.engine.status import words
+
     s = settings
-    n = system.n_states
-    M = P.shape[1]
-    observed = _Observed(system, s.observe, P)
-    if system.kind == MAP:
-        first = int(math.ceil(s.transient))
-        sampler = _EverySampler(M, s.samples, first + 1, 1, observed)
-        h, n_steps, keep_from, stop = 1, first + s.samples, first, False
-    elif s.mode == STROBE:
-        T = float(s.period)
-        per = max(1, int(math.ceil(T / s.dt - 1e-9)))
-        periods = int(math.ceil(s.transient / T - 1e-9))
-        keep_from = periods * per
-        sampler = _EverySampler(M, s.samples, keep_from + per, per, observed)
-        h, n_steps, stop = T / per, (periods + s.samples) * per, False
-    else:
-        h = float(s.dt)
-        keep_from = int(math.ceil(s.transient / h - 1e-9))
-        n_steps = keep_from + int(math.ceil(s.duration / h - 1e-9))
-        t_keep = float(s.t_start) + s.transient
-        if s.mode == PLANE:
-            name, value = s.plane
-            sampler = _PlaneSampler(M, s.samples, n, h, t_keep, observed, system.states.index(name), value,
-                                    s.direction)
-        else:
-            sampler = _MaximaSampler(M, s.samples, n, h, t_keep, observed, system.states.index(s.observe))
-        stop = not s.lyapunov  # without the exponent, stop once every member has its samples
-    exponents, result = _execute(system, P, U0, h, n_steps, keep_from, sampler, stop, s.lyapunov,
-                                 s.t_start, s.bound, Reporter(progress, cancel))
-    failed = result.status != OK
-    if failed.any():  # a frozen member contributes nothing from the moment it froze
-        late = failed[:, None] & ~(sampler.times < result.time[:, None])
-        sampler.values[late] = np.nan
-        sampler.times[late] = np.nan
-    return sampler, exponents, result
-
-
-def _execute(system, P, U0, h, n_steps, keep_from, sampler, stop, lyapunov, t_start, bound, report):
-    n = system.n_states
-    M = P.shape[1]
+    n, M, K = system.n_states, P.shape[1], s.samples
     U0 = np.array(U0, dtype=float)
     if U0.ndim == 1:
         U0 = np.repeat(U0[:, None], M, axis=1)
-    Y, fun, companion = _augmented(system, P, U0, lyapunov)
-    lyap = _Lyapunov(n, M, keep_from, system.smooth, companion) if lyapunov else None
-    observer = _Observers(lyap, sampler, n, stop)
-    if system.kind == MAP:
-        result = iterate_run(fun, Y, int(t_start), n_steps, observer, report, bound, n)
-    else:
-        result = rk4_run(fun, Y, float(t_start), h, n_steps, observer, report, bound, n)
-    exponents = None
-    if lyap is not None:
-        span = lyap.counted * h
-        exponents = lyap.total / span if span > 0 else np.full(M, np.nan)
-        exponents = np.where(result.status == OK, exponents, np.nan)
+    report = Reporter(progress, cancel)
+    tangents = _start_vector(n)[:, None] if s.lyapunov else 0
+    width = n * (2 if s.lyapunov else 1)
+    with np.errstate(all="ignore"):
+        if system.kind == MAP:
+            first = int(math.ceil(s.transient))
+            n0 = int(s.t_start)
+            engine = _engine(system, M * (first + K) * width, compiled)
+            out = drivers.members_iterate(engine, n0, n0 + first + K, n0 + first, U0, P, samples=K, bound=s.bound,
+                                          tangents=tangents, report=report)
+            states = out.samples
+            times = np.broadcast_to(n0 + first + 1.0 + np.arange(K), (M, K)).copy()
+            times[np.isnan(states[0])] = np.nan
+        else:
+            t0 = float(s.t_start)
+            grid = planes = None
+            events = 0
+            if s.mode == STROBE:
+                T = float(s.period)
+                t_keep = t0 + T * int(math.ceil(s.transient / T - 1e-9))
+                grid = t_keep + T * np.arange(1, K + 1)
+                t_end = grid[-1]
+                h = _fixed_step(s, T)
+                interval = T if h is None else h * max(1, round(min(T, 1.0) / h))
+            else:
+                t_keep = t0 + s.transient
+                h = _fixed_step(s)
+                t_end = t_keep + s.duration
+                interval = 1.0 if h is None else h * max(1, round(1.0 / h))
+                row = np.zeros((1, n + 1))
+                if s.mode == PLANE:
+                    name, value = s.plane
+                    row[0, system.states.index(name)], row[0, n] = 1.0, value
+                    direction = s.direction
+                else:
+                    row[0, system.states.index(s.observe)] = 1.0
+                    direction = TURNS_DOWN
+                planes = (row, np.array([direction]), np.zeros(1, dtype=bool))
+                events = K
+            steps = abs(t_end - t0) / (h or 0.05)
+            engine = _engine(system, M * steps * (4 if h else 12) * (2 if s.lyapunov else 1), compiled)
+            method = "rk4" if h else s.method
+            out = drivers.members_run(engine, method, t0, t_end, U0, P, rtol=s.rtol, atol=s.atol, dt=h or 0.01,
+                                      bound=s.bound, grid=grid, planes=planes, max_events=events, report=report,
+                                      t_keep=t_keep, tangents=tangents, interval=interval,
+                                      keep_going=bool(s.lyapunov))
+            if s.mode == STROBE:
+                states = out.samples
+                times = np.broadcast_to(grid, (M, K)).copy()
+                times[np.isnan(states[0])] = np.nan
+            else:
+                states, times = out.event_y, out.event_t
+        values = _observed(system, s.observe, times, states, P)
+    status = words(out.codes)
+    exponents = _exponents(out, status) if s.lyapunov else None
     report(1.0)
-    return exponents, result
+    return MemberSamples(values, times, states), exponents, MemberRun(status, out.t)
 
 
 def sweep(system, parameter: str, values, settings: SweepSettings | None = None, u0=None, p=None,
-          cancel=None, progress=None, executor=None, chunk_size: int | None = None) -> SweepResult:
+          cancel=None, progress=None, executor=None, chunk_size: int | None = None,
+          compiled: bool | None = None) -> SweepResult:
     """Orbit diagram over ``values`` of ``parameter``: all values run together as one ensemble.
 
     ``u0`` is one starting state for every value (n,) or one per value (n, M); ``p`` the other parameters.
 
     With an ``executor`` or a ``chunk_size`` the values are split into chunks (default size 64)
     run by ``chunks.run_chunks`` (default executor: a local process pool); the model text and plain
-    settings travel to the workers. ``Cancelled`` is raised when ``cancel`` is set."""
+    settings travel to the workers. ``Cancelled`` is raised when ``cancel`` is set. ``compiled``: None
+    compiles the engine when the work pays for it, True always, False never (plain Python)."""
     settings = (settings or SweepSettings()).checked(system)
     if parameter not in system.parameters:
         raise ValueError(f"unknown parameter '{parameter}' (parameters: {', '.join(system.parameters) or 'none'})")
@@ -482,14 +309,14 @@ def sweep(system, parameter: str, values, settings: SweepSettings | None = None,
         status = np.concatenate([part[3] for part in parts])
     else:
         samples, times, lyap, status = _sweep_arrays(system, parameter, values, settings, u0, base_p,
-                                                     cancel, progress)
+                                                     cancel, progress, compiled)
     return SweepResult(parameter, values, samples, settings.observe, settings.mode, lyap, status, times)
 
 
-def _sweep_arrays(system, parameter, values, settings, u0, base_p, cancel=None, progress=None):
+def _sweep_arrays(system, parameter, values, settings, u0, base_p, cancel=None, progress=None, compiled=None):
     P = np.repeat(base_p[:, None], values.size, axis=1)
     P[system.parameters.index(parameter)] = values
-    sampler, exponents, result = run_members(system, P, u0, settings, cancel, progress)
+    sampler, exponents, result = run_members(system, P, u0, settings, cancel, progress, compiled)
     return sampler.values, sampler.times, exponents, result.status
 
 
@@ -502,9 +329,12 @@ def _sweep_chunk(text, parameter, values, settings, u0, base_p):
 class GridSettings:
     transient: float = 100.0  # time (flows) or iterations (maps) before averaging
     duration: float = 1000.0  # averaging time (flows) or iterations (maps)
-    dt: float = 0.01  # RK4 step of flows
+    dt: float | None = None  # a fixed RK4 step of flows; None: adaptive, as a single run
     t_start: float = 0.0
     bound: float = 1e10
+    method: str = "dop853"
+    rtol: float = 1e-8
+    atol: float = 1e-10
 
 
 @dataclass
@@ -530,9 +360,9 @@ def lyapunov_grid(system, pname_x: str, xs, pname_y: str, ys, settings: GridSett
     Chunks run on ``executor`` (default: a local process pool over the machine's cores; a grid that
     fits one chunk runs in this thread). Results do not depend on the executor.
 
-    Smooth maps use the compiled exponent loop (``jit``) with ``compiled`` None when the whole grid's
-    work pays for compiling, True whenever numba is there, False never; the choice is made once for
-    the grid. Compiled chunks run on threads of this process by default (the loop releases the GIL)."""
+    The engine is compiled with ``compiled`` None when the whole grid's work pays for compiling, True
+    whenever numba is there, False never; the choice is made once for the grid. Compiled chunks run
+    on threads of this process by default (the loops release the GIL)."""
     settings = settings or GridSettings()
     for name in (pname_x, pname_y):
         if name not in system.parameters:
@@ -543,14 +373,16 @@ def lyapunov_grid(system, pname_x: str, xs, pname_y: str, ys, settings: GridSett
     ys = np.asarray(ys, dtype=float).ravel()
     if xs.size == 0 or ys.size == 0 or not (np.all(np.isfinite(xs)) and np.all(np.isfinite(ys))):
         raise ValueError("the grid values must be finite numbers")
-    if system.kind != MAP and not (settings.dt > 0 and settings.duration > 0):
-        raise ValueError("the step and the averaging duration must be positive")
+    if system.kind != MAP:
+        _check_accuracy(settings)
+        if not (settings.duration > 0):
+            raise ValueError("the averaging duration must be positive")
     base_p = system.param_values.astype(float) if p is None else np.asarray(p, dtype=float)
     u0 = system.initial.astype(float) if u0 is None else np.asarray(u0, dtype=float)
     gx, gy = np.meshgrid(xs, ys)
     points = np.vstack([gx.ravel(), gy.ravel()])
     pieces = split(points.shape[1], chunk_size)
-    use_jit = _use_compiled(system, points.shape[1] * _grid_steps(system, settings)[1], compiled)
+    use_jit = _engine(system, points.shape[1] * _grid_work(system, settings), compiled).compiled
     if use_jit and executor is None and len(pieces) > 1:
         # the compiled loop runs without the GIL: threads here, no worker processes to start
         chunk = partial(_grid_chunk_local, system)
@@ -574,7 +406,7 @@ def _grid_params(system, pname_x, pname_y, points, base_p):
     return P
 
 
-def _grid_chunk(text, pname_x, pname_y, points, settings, u0, base_p, compiled=False):
+def _grid_chunk(text, pname_x, pname_y, points, settings, u0, base_p, compiled=None):
     system = compiled_system(text)
     P = _grid_params(system, pname_x, pname_y, points, base_p)
     return grid_exponents(system, P, u0, GridSettings(**settings), compiled=compiled)
@@ -585,52 +417,48 @@ def _grid_chunk_local(system, pname_x, pname_y, points, settings, u0, base_p):
     return grid_exponents(system, P, u0, settings, compiled=True)
 
 
-def _grid_steps(system, grid: GridSettings) -> tuple[float, int, int]:
-    """(step h, total steps, steps before averaging) of a grid run."""
+def _grid_work(system, grid: GridSettings) -> float:
+    """Kernel calls per grid point (the state and one tangent vector)."""
     if system.kind == MAP:
-        keep_from = int(math.ceil(grid.transient))
-        return 1, keep_from + max(1, int(math.ceil(grid.duration))), keep_from
-    h = float(grid.dt)
-    keep_from = int(math.ceil(grid.transient / h - 1e-9))
-    return h, keep_from + max(1, int(math.ceil(grid.duration / h - 1e-9))), keep_from
-
-
-def _use_compiled(system, member_steps: float, compiled: bool | None) -> bool:
-    """The compiled exponent loop applies (smooth maps), numba is there, and it is wanted or pays."""
-    if compiled is False or system.kind != MAP or not system.smooth:
-        return False
-    from orbitdesk.engine import jit
-
-    return jit.available() if compiled else jit.worth_it(system, member_steps)
+        return 2.0 * (math.ceil(grid.transient) + max(1, math.ceil(grid.duration)))
+    return 2.0 * (grid.transient + grid.duration) / (grid.dt or 0.05) * (4 if grid.dt else 12)
 
 
 def grid_exponents(system, P, u0, grid: GridSettings, cancel=None, progress=None, compiled: bool | None = None):
-    """Largest exponent for each column of P: (exponents (M,), status (M,)).
-
-    ``compiled`` as in ``lyapunov_grid``: the numba loop for smooth maps (None: when the work pays)."""
-    h, n_steps, keep_from = _grid_steps(system, grid)
-    M = P.shape[1]
-    if _use_compiled(system, M * n_steps, compiled):
-        return _compiled_exponents(system, P, u0, n_steps, keep_from, grid, Reporter(progress, cancel))
-    exponents, result = _execute(system, P, u0, h, n_steps, keep_from, None, False, True, grid.t_start,
-                                 grid.bound, Reporter(progress, cancel))
-    return exponents, result.status
-
-
-def _compiled_exponents(system, P, u0, n_steps, keep_from, grid, report):
-    """``grid_exponents`` of a smooth map by ``jit.map_lyapunov``: the same tangent-vector start,
-    renormalisation and averaging as the numpy path."""
-    from orbitdesk.engine import jit
+    """Largest exponent for each column of P: (exponents (M,), status (M,)), the members on the
+    engine's compiled loops with one tangent vector each (``compiled`` None: when the work pays,
+    True: always, False: plain Python)."""
+    from orbitdesk.engine import drivers
+    from orbitdesk.engine.status import words
 
     n, M = system.n_states, P.shape[1]
-    U = np.array(u0, dtype=float)
-    U = np.repeat(U[:, None], M, axis=1) if U.ndim == 1 else np.ascontiguousarray(U)
-    total, codes = jit.map_lyapunov(system, U, P, int(grid.t_start), keep_from, n_steps, float(grid.bound),
-                                    _start_vector(n), report)
-    counted = n_steps - keep_from
-    exponents = np.where(codes == jit.STATUS_OK, total / counted, np.nan)
-    status = np.full(M, OK, dtype=_STATUS_WIDTH)
-    status[codes == jit.STATUS_DIVERGED] = DIVERGED
-    status[codes == jit.STATUS_UNDEFINED] = UNDEFINED
+    U0 = np.array(u0, dtype=float)
+    if U0.ndim == 1:
+        U0 = np.repeat(U0[:, None], M, axis=1)
+    report = Reporter(progress, cancel)
+    v0 = _start_vector(n)[:, None]
+    with np.errstate(all="ignore"):
+        if system.kind == MAP:
+            first, length = int(math.ceil(grid.transient)), max(1, int(math.ceil(grid.duration)))
+            n0 = int(grid.t_start)
+            engine = _engine(system, M * _grid_work(system, grid), compiled)
+            out = drivers.members_iterate(engine, n0, n0 + first + length, n0 + first, U0, P, bound=grid.bound,
+                                          tangents=v0, report=report)
+        else:
+            t0 = float(grid.t_start)
+            h = grid.dt
+            span = grid.transient + grid.duration
+            engine = _engine(system, M * _grid_work(system, grid), compiled)
+            out = drivers.members_run(engine, "rk4" if h else grid.method, t0, t0 + span, U0, P, rtol=grid.rtol,
+                                      atol=grid.atol, dt=h or 0.01, bound=grid.bound, report=report,
+                                      t_keep=t0 + grid.transient, tangents=v0,
+                                      interval=1.0 if h is None else h * max(1, round(1.0 / h)), keep_going=True)
+    status = words(out.codes)
     report(1.0)
-    return exponents, status
+    return _exponents(out, status), status
+
+
+def _exponents(out, status):
+    """The largest exponent of each member from its log sums (NaN where it stopped early)."""
+    with np.errstate(all="ignore"):
+        return np.where((status == OK) & (out.log_span > 0), out.log_sums[:, 0] / out.log_span, np.nan)

@@ -5,7 +5,8 @@ import argparse
 import numpy as np
 
 from orbitdesk.engine.executors import SchedulerError, executor_for
-from orbitdesk.analyses.sweep import BOTH, DOWN, ITERATE, MAXIMA, PLANE, STROBE, UP, SweepSettings, sweep
+from orbitdesk.analyses.sweep import (BOTH, DOWN, ITERATE, MAXIMA, PLANE, STROBE, UP, SweepSettings, accuracy_like,
+                                      sweep)
 from orbitdesk.system.compiled_system import MAP
 
 from orbitdesk.cli.common import (CommandError, add_value_options, load_system, parse_assignments, parse_number, parse_positive,
@@ -32,7 +33,10 @@ def register(sub):
     parser.add_argument("--transient", metavar="T", help="time (flows) or iterations (maps) dropped first")
     parser.add_argument("--samples", type=int, metavar="K", help="samples per value (default 100)")
     parser.add_argument("--duration", metavar="T", help="longest sampling time for --plane/--maxima")
-    parser.add_argument("--dt", metavar="H", help="integration step (a strobe period is divided exactly)")
+    parser.add_argument("--dt", metavar="H", help="a fixed RK4 step (a strobe period is divided exactly); "
+                        "default: adaptive steps with the run's tolerances")
+    parser.add_argument("--rtol", metavar="R", help="relative tolerance of the adaptive steps (default: the run's)")
+    parser.add_argument("--atol", metavar="A", help="absolute tolerance of the adaptive steps (default: the run's)")
     parser.add_argument("--lyapunov", action="store_true", help="also the largest Lyapunov exponent per value")
     where = parser.add_argument_group("where the sweep runs (default: one ensemble in this process)")
     where.add_argument("--workers", type=int, metavar="N",
@@ -48,7 +52,7 @@ def register(sub):
 
 def sweep_settings(system, source, args) -> SweepSettings:
     stored = settings_for(source, argparse.Namespace())  # the project's solver settings, if any
-    settings = SweepSettings(dt=stored.dt, bound=stored.bound)
+    settings = SweepSettings(bound=stored.bound, **accuracy_like(stored))
     is_map = system.kind == MAP
     chosen = "--plane" if args.plane else "--strobe" if args.strobe else "--maxima" if args.maxima else None
     if is_map:
@@ -71,10 +75,17 @@ def sweep_settings(system, source, args) -> SweepSettings:
         if is_map:
             raise CommandError("--duration applies to flows; a map runs --samples iterations")
         settings.duration = parse_positive(args.duration, "--duration")
+    for option in ("dt", "rtol", "atol"):
+        if getattr(args, option) is not None and is_map:
+            raise CommandError(f"--{option} applies to flows")
     if args.dt is not None:
-        if is_map:
-            raise CommandError("--dt applies to flows")
+        if args.rtol is not None or args.atol is not None:
+            raise CommandError("--dt fixes the step; --rtol and --atol go with adaptive steps")
         settings.dt = parse_positive(args.dt, "--dt")
+    for option in ("rtol", "atol"):
+        if getattr(args, option) is not None:
+            setattr(settings, option, parse_positive(getattr(args, option), f"--{option}"))
+            settings.dt = None
     if args.transient is not None:
         settings.transient = parse_number(args.transient, "--transient")
         if settings.transient < 0:

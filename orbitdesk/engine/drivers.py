@@ -19,6 +19,7 @@ from orbitdesk.engine.methods import method as method_info
 from orbitdesk.engine.status import C_CANCELLED, C_STEP_FAILED
 
 PAUSE_STEPS = 512
+MEMBER_PAUSE_STEPS = 5_000  # ensembles: steps between pauses (summed over members)
 # a run whose pace would need more steps than this (judged after STEP_CHECK_AFTER steps) ends with
 # step_failed: a solution sliding along a kink (sign, abs, if) otherwise steps for days
 MAX_PROJECTED_STEPS = 50_000_000
@@ -234,49 +235,111 @@ class MembersOutput:
     event_t: np.ndarray | None  # (N, E) crossing times, NaN beyond ev_count
     event_y: np.ndarray | None  # (n, N, E)
     event_count: np.ndarray | None  # (N,)
+    log_sums: np.ndarray | None = None  # (N, m) summed logarithms of the tangent vectors' stretches after t_keep
+    log_span: np.ndarray | None = None  # (N,) the time they cover
 
 
-def members_run(engine, name, t0, t_end, U0, P, rtol=1e-8, atol=1e-10, max_step=None, dt=0.01, bound=1e10,
-                grid=None, planes=None, max_events=0, report=None, chunk=None) -> MembersOutput:
-    """Run the columns of U0 (n, N) from t0 to t_end (a number or one per member) with parameters
-    P ((n_p,) shared or (n_p, N)); samples at ``grid``; the first ``max_events`` crossings of
-    ``planes`` per member. Members go in chunks so progress and cancel (raising Cancelled) are
-    honoured between them."""
-    kind, adaptive, rtol, atol, max_step = _step_options(name, rtol, atol, max_step, dt)
-    U = np.ascontiguousarray(np.asarray(U0, dtype=float).T)
+def _member_rows(U0, P, tangents):
+    """(members' rows z = (u, V) (N x n(m+1)), parameter rows (1 or N), n, m) for the member loops;
+    ``tangents`` is m (the first m columns of the identity) or an (n, m) start."""
+    U = np.asarray(U0, dtype=float).T
     N, n = U.shape
+    V0 = None
+    if not isinstance(tangents, (int, np.integer)):
+        V0 = np.asarray(tangents, dtype=float).reshape(n, -1)
+    elif tangents:
+        V0 = np.eye(n)[:, :int(tangents)]
+    m = 0 if V0 is None else V0.shape[1]
+    if m:
+        U = np.hstack([U, np.repeat(V0.ravel()[None, :], N, axis=0)])
     P = np.asarray(P, dtype=float)
     rows = np.ascontiguousarray(P[None, :] if P.ndim == 1 else P.T)
     if rows.shape[1] == 0:
         rows = np.zeros((rows.shape[0], 1))
+    return np.ascontiguousarray(U), rows, n, m
+
+
+def members_run(engine, name, t0, t_end, U0, P, rtol=1e-8, atol=1e-10, max_step=None, dt=0.01, bound=1e10,
+                grid=None, planes=None, max_events=0, report=None, t_keep=None, tangents=0,
+                interval=1.0, keep_going=False) -> MembersOutput:
+    """Run the columns of U0 (n, N) from t0 to t_end (a number or one per member) with parameters
+    P ((n_p,) shared or (n_p, N)); samples at ``grid``; the first ``max_events`` crossings of
+    ``planes`` per member after ``t_keep`` (then the member stops, or with ``keep_going`` runs on
+    to its end). Plane directions: +1, -1, 0 or ``explicit_rk.TURNS_DOWN`` (maxima).
+
+    With ``tangents`` = m > 0 each member carries m tangent vectors (starting as the first m
+    columns of the identity, or ``tangents`` columns given as an (n, m) array), re-orthonormalised
+    every ``interval``; ``log_sums`` / ``log_span`` are their exponents' sums after ``t_keep``.
+    The loop pauses every ``MEMBER_PAUSE_STEPS`` steps for progress and cancel (raising Cancelled)."""
+    kind, adaptive, rtol, atol, max_step = _step_options(name, rtol, atol, max_step, dt)
+    U, rows, n, m = _member_rows(U0, P, tangents)
+    N, nz = U.shape
     ends = np.ascontiguousarray(np.broadcast_to(np.asarray(t_end, dtype=float), (N,)))
     grid = np.empty(0) if grid is None else np.ascontiguousarray(grid, dtype=float)
-    samples = np.empty((N, grid.size, n))
-    plane_rows, dirs, terminal = _no_planes(n) if planes is None else (
-        np.ascontiguousarray(planes[0], dtype=float), np.ascontiguousarray(planes[1], dtype=np.int64),
-        np.ascontiguousarray(planes[2], dtype=np.bool_))
+    samples = np.empty((N, grid.size, nz))
+    if planes is None:
+        plane_rows, dirs, terminal = _no_planes(nz)
+    else:
+        plane_rows = np.zeros((len(planes[0]), nz + 1))
+        given = np.asarray(planes[0], dtype=float)
+        plane_rows[:, :n] = given[:, :n]
+        plane_rows[:, nz] = given[:, n]
+        dirs = np.ascontiguousarray(planes[1], dtype=np.int64)
+        terminal = np.ascontiguousarray(planes[2], dtype=np.bool_)
     E = max(int(max_events), 1)
-    ev_t, ev_y = np.full((N, E), np.nan), np.full((N, E, n), np.nan)
+    ev_t, ev_y = np.full((N, E), np.nan), np.full((N, E, nz), np.nan)
     ev_count = np.zeros(N)
     codes, t_reached, steps = np.zeros(N, dtype=np.int64), np.zeros(N), np.zeros(N)
-    chunk = chunk or max(1, min(64, N // 16))
-    for start in range(0, N, chunk):
-        stop = min(N, start + chunk)
-        part = rows if rows.shape[0] == 1 else rows[start:stop]
-        engine.loops.members_advance(engine.f, kind, adaptive, U[start:stop], part, float(t0), ends[start:stop], rtol,
-                                     atol, max_step, float(bound), grid, samples[start:stop], plane_rows, dirs,
-                                     terminal, ev_t[start:stop], ev_y[start:stop], ev_count[start:stop],
-                                     codes[start:stop], t_reached[start:stop], steps[start:stop])
+    sums = np.zeros((N, m + 1))
+    keep = float(t0 if t_keep is None else t_keep)
+    K, F, st, mst = np.zeros((16, nz)), np.zeros((7, nz)), np.zeros(12), np.zeros(8)
+    while True:
+        code = engine.loops.members_advance(engine.f, kind, adaptive, U, rows, float(t0), ends, rtol, atol, max_step,
+                                            float(bound), grid, samples, plane_rows, dirs, terminal, ev_t, ev_y,
+                                            ev_count, codes, t_reached, steps, keep, int(m), float(interval),
+                                            bool(keep_going), sums, K, F, st, mst, MEMBER_PAUSE_STEPS)
+        if code != PAUSED:
+            break
         if report is not None:
-            report(stop / N)  # Cancelled goes to the caller
+            i = int(mst[0])
+            span = ends[i] - t0 if i < N else 1.0
+            within = min(1.0, max(0.0, (st[0] - t0) / span)) if mst[1] and span else 0.0
+            report((i + within) / N)  # Cancelled goes to the caller
     count = ev_count.astype(np.int64)
     beyond = np.arange(E)[None, :] >= count[:, None]
     ev_t[beyond] = np.nan
     ev_y[beyond] = np.nan
-    return MembersOutput(U.T.copy(), codes, t_reached, steps.astype(np.int64),
-                         np.moveaxis(samples, 2, 0) if grid.size else None,
-                         ev_t if planes is not None else None, np.moveaxis(ev_y, 2, 0) if planes is not None else None,
-                         count if planes is not None else None)
+    return MembersOutput(U[:, :n].T.copy(), codes, t_reached, steps.astype(np.int64),
+                         np.moveaxis(samples[:, :, :n], 2, 0) if grid.size else None,
+                         ev_t if planes is not None else None,
+                         np.moveaxis(ev_y[:, :, :n], 2, 0) if planes is not None else None,
+                         count if planes is not None else None,
+                         sums[:, :m] if m else None, sums[:, m] if m else None)
+
+
+def members_iterate(engine, n0, n_end, keep_from, U0, P, samples=0, bound=1e10, tangents=0, report=None,
+                    chunk=None) -> MembersOutput:
+    """Iterate the columns of U0 (n, N) of a map from step n0 to ``n_end`` with parameters P
+    ((n_p,) shared or (n_p, N)); the first ``samples`` iterates after ``keep_from`` kept; with
+    ``tangents`` (m, or an (n, m) start) the tangent vectors' log sums after ``keep_from``
+    (``log_span`` counts the steps). Chunks of members between progress reports."""
+    U, rows, n, m = _member_rows(U0, P, tangents)
+    N = U.shape[0]
+    out = np.empty((N, int(samples), n))
+    codes, reached = np.zeros(N, dtype=np.int64), np.zeros(N, dtype=np.int64)
+    sums = np.zeros((N, m + 1))
+    chunk = chunk or max(1, min(256, N // 16))
+    for start in range(0, N, chunk):
+        stop = min(N, start + chunk)
+        part = rows if rows.shape[0] == 1 else rows[start:stop]
+        engine.loops.members_iterate(engine.f, U[start:stop], part, int(n0), int(n_end), int(keep_from),
+                                     float(bound), out[start:stop], codes[start:stop], reached[start:stop], int(m),
+                                     sums[start:stop])
+        if report is not None:
+            report(stop / N)
+    return MembersOutput(U[:, :n].T.copy(), codes, reached.astype(float), reached - int(n0),
+                         np.moveaxis(out, 2, 0), None, None, None,
+                         sums[:, :m] if m else None, sums[:, m] if m else None)
 
 
 def warm_up(engine) -> None:
@@ -288,6 +351,7 @@ def warm_up(engine) -> None:
     if k.IS_MAP:
         map_run(engine, 0, 1, y0, p)
         map_tangent(engine, 0, 1, 0, y0, np.eye(n), p)
+        members_iterate(engine, 0, 1, 0, y0[:, None], p, samples=1, tangents=1)
         return
     planes = (np.zeros((1, n + 1)), np.zeros(1, dtype=np.int64), np.zeros(1, dtype=np.bool_))
     flow_run(engine, "dop853", 0.0, 1e-9, y0, p, grid=np.array([0.0, 1e-9]), planes=planes)
@@ -296,5 +360,5 @@ def warm_up(engine) -> None:
 
 
 __all__ = ["FlowOutput", "TangentOutput", "MembersOutput", "flow_run", "map_run", "flow_tangent", "map_tangent",
-           "members_run", "warm_up",
+           "members_run", "members_iterate", "warm_up",
            "PAUSE_STEPS"]

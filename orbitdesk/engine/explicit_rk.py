@@ -53,6 +53,8 @@ C_ALL[2, :4] = 0.0, 0.5, 0.5, 1.0
 SAFETY, MIN_FACTOR, MAX_FACTOR = 0.9, 0.2, 10.0
 # returned by the loops besides the status codes (status.py): the loop paused
 PAUSED = -1
+# a plane direction beyond +1 / -1 / 0: the turning points where normal . y has a maximum
+TURNS_DOWN = 2
 
 
 @inner
@@ -281,6 +283,17 @@ def state_code(y, bound):
 
 
 @inner
+def _event(kind, F, y, x, t, h, k, ev_t, ev_y, ev_k, n_ev, tmp):
+    """Record the crossing of plane k at x (fraction of the step) as event n_ev; returns n_ev + 1."""
+    dense_value(kind, F, y, x, tmp)
+    ev_t[n_ev] = t + x * h
+    for i in range(y.shape[0]):
+        ev_y[n_ev, i] = tmp[i]
+    ev_k[n_ev] = k
+    return n_ev + 1
+
+
+@inner
 def _save(st, t, h_abs, n_out, gi, n_ev):
     st[0] = t
     st[1] = h_abs
@@ -300,8 +313,8 @@ def erk_advance(f, kind, which, adaptive, y, p, K, F, st, t_end, rtol, atol, max
     outputs written, grid index, events written, -, -, -, y changed by the caller]. Samples at ``grid`` times (ordered in the
     direction of time) are read off each step's dense output; with ``every_step`` each accepted
     step's end goes to ``out_t``/``out_y`` instead. Crossings of the planes ``planes[k, :n] . y =
-    planes[k, n]`` in direction ``plane_dir[k]`` (+1 rising, -1 falling, 0 both) are located on the
-    dense output by ``dense_root``; a crossing of a ``terminal`` plane ends the run. Returns a
+    planes[k, n]`` in direction ``plane_dir[k]`` (+1 rising, -1 falling, 0 both; TURNS_DOWN: the
+    maxima of ``planes[k, :n] . y`` instead) are located on the dense output by ``dense_root``; a crossing of a ``terminal`` plane ends the run. Returns a
     status code (status.py) or PAUSED when the step budget or an output buffer ran out.
     """
     n = y.shape[0]
@@ -403,6 +416,16 @@ def erk_advance(f, kind, which, adaptive, y, p, K, F, st, t_end, rtol, atol, max
                 ra += planes[k, i] * K[0, i]
                 rb += planes[k, i] * K[s_n, i]
                 size += abs(planes[k, i] * y[i])
+            if plane_dir[k] == TURNS_DOWN:  # maxima of normal . y: its rate goes from + to -
+                if ra > 0.0 and rb <= 0.0 and n_ev < ev_t.shape[0]:
+                    if not dense_ready:
+                        dense_coefficients(f, kind, which, t, y, y_new, h, p, K, F, tmp)
+                        dense_ready = True
+                    x = dense_root(kind, F, y, planes[k, :n], 0.0, 0.0, ra * h, 1.0, rb * h, tmp, True)
+                    n_ev = _event(kind, F, y, x, t, h, k, ev_t, ev_y, ev_k, n_ev, tmp)
+                    if terminal[k]:
+                        stop = True
+                continue
             if st[2] == 1.0 and abs(ga) <= 1e-14 * size:  # the start on the plane to round-off is no crossing
                 ga = 0.0
             if (ra > 0.0) == (rb > 0.0) and not ((ga < 0.0) != (gb < 0.0) or (gb == 0.0 and ga != 0.0)):
@@ -426,12 +449,7 @@ def erk_advance(f, kind, which, adaptive, y, p, K, F, st, t_end, rtol, atol, max
                     if plane_dir[k] == 0 or (plane_dir[k] > 0) == rising:
                         if n_ev < ev_t.shape[0]:
                             x = dense_root(kind, F, y, planes[k, :n], planes[k, n], xa, g_left, xb, g_right, tmp, False)
-                            dense_value(kind, F, y, x, tmp)
-                            ev_t[n_ev] = t + x * h
-                            for i in range(n):
-                                ev_y[n_ev, i] = tmp[i]
-                            ev_k[n_ev] = k
-                            n_ev += 1
+                            n_ev = _event(kind, F, y, x, t, h, k, ev_t, ev_y, ev_k, n_ev, tmp)
                             if terminal[k]:
                                 stop = True
                 xa = xb

@@ -1,12 +1,16 @@
-"""Iterated maps u[k+1] = f(k, u[k]): the orbit loop.
+"""Iterated maps u[k+1] = f(k, u[k]): the orbit loop, and many members (starts and/or parameter
+sets) one after the other with their iterates and tangent vectors (sweeps, exponent grids).
 
 The model's kernel ``f`` (here: the map) comes in as an argument, as in ``explicit_rk.py``.
 """
+
+import math
 
 import numpy as np
 
 from orbitdesk.engine.explicit_rk import PAUSED, state_code
 from orbitdesk.engine.jitting import loop
+from orbitdesk.engine.tangent import orthonormalise
 
 
 @loop
@@ -37,3 +41,53 @@ def map_advance(f, y, p, st, n_end, out_y, bound, max_steps):
     st[0] = k
     st[5] = written
     return code
+
+
+@loop
+def members_iterate(f, U, P, n0, n_end, keep_from, bound, samples, codes, reached, m, sums):
+    """Iterate every row of U (N x n(m+1), in place) from step n0 to ``n_end`` with the parameters
+    P[i] (or P[0] for all); the iterates after step ``keep_from`` go to ``samples[i]`` (the first K).
+    With m tangent vectors (z = (u, V), the kernel's ``which = m``) V is re-orthonormalised every
+    step and the logarithms after ``keep_from`` summed into ``sums[i, :m]`` (``sums[i, m]`` counts the
+    steps). ``codes``, ``reached``: per member status code and the step reached."""
+    N, nz = U.shape
+    n = nz // (m + 1)
+    nxt = np.empty(nz)
+    W = nxt[n:].reshape((n, m))
+    logs = np.empty(max(m, 1))
+    shared = P.shape[0] == 1
+    K = samples.shape[1]
+    for i in range(N):
+        p = P[0] if shared else P[i]
+        z = U[i]
+        k = n0
+        code = 0
+        while k < n_end:
+            f(m, float(k), z, p, nxt)
+            code = state_code(nxt[:n], bound)
+            if code != 0:
+                break
+            if m > 0 and not orthonormalise(W, logs):  # the Jacobian is singular on the orbit
+                if k + 1 > keep_from:
+                    code = 2
+                    break
+                for a in range(n):  # within the transient (a start that lands on a critical point): afresh
+                    for b in range(m):
+                        W[a, b] = 1.0 if a == b else 0.0
+            for j in range(nz):
+                z[j] = nxt[j]
+            k += 1
+            if k > keep_from:
+                r = k - keep_from - 1
+                if r < K:
+                    for j in range(n):
+                        samples[i, r, j] = z[j]
+                for j in range(m):
+                    sums[i, j] += logs[j]
+                sums[i, m] += 1.0
+        codes[i] = code
+        reached[i] = k
+        for r in range(max(0, k - keep_from), K):  # iterates never reached
+            for j in range(n):
+                samples[i, r, j] = math.nan
+    return 0

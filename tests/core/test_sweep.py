@@ -69,7 +69,7 @@ def test_logistic_lyapunov_exponent_at_r_4_is_ln_2():
     assert np.mean(result.lyapunov) == pytest.approx(math.log(2), abs=0.01)
 
 
-def test_tent_map_exponent_by_two_trajectories():
+def test_tent_map_exponent_with_the_jacobian_that_holds_almost_everywhere():
     # the tent map uses min(), a non-smooth function; closed form: |f'| = mu everywhere, so lambda = ln mu
     system = compile_model("mu = 1.9\nx[n+1] = mu*min(x, 1 - x)\nx[0] = 0.1234\n")
     assert not system.smooth
@@ -159,6 +159,35 @@ def test_strobe_samples_equal_tight_single_runs_and_the_step_divides_the_period(
         np.testing.assert_allclose(result.samples[i], run.states[0, 26:31], atol=1e-6)
 
 
+def test_default_accuracy_is_a_single_runs():
+    # without a step the sweep runs adaptive DOP853 with a single run's tolerances: strobe points and
+    # section crossings (x' = 0 downward: the maxima of x) of the period-1 responses agree with tight
+    # single runs (rtol 1e-11) to 1e-6
+    system = compile_model(DUFFING)
+    strobe = sweep(system, "gamma", [0.2, 0.25], SweepSettings(mode=STROBE, period=PERIOD, transient=25 * PERIOD,
+                                                               samples=5))
+    maxima = sweep(system, "gamma", [0.2, 0.25], SweepSettings(mode=MAXIMA, observe="x", transient=30 * PERIOD,
+                                                               samples=4))
+    for i, gamma in enumerate([0.2, 0.25]):
+        run = simulate(system, RunSettings(t_end=30 * PERIOD, samples=31, rtol=1e-11, atol=1e-12),
+                       p=system.param_vector({"gamma": gamma}))
+        np.testing.assert_allclose(strobe.samples[i], run.states[0, 26:31], atol=1e-6)
+        times, states = _section_reference(system, gamma, maxima.times[i, -1] + 1.0)
+        late = times >= 30 * PERIOD
+        np.testing.assert_allclose(maxima.times[i], times[late][:4], atol=1e-6)
+        np.testing.assert_allclose(maxima.samples[i], states[0, late][:4], atol=1e-7)
+
+
+def test_rk45_sweep_agrees_with_dop853():
+    system = compile_model(DUFFING)
+    settings = SweepSettings(mode=PLANE, plane=("x", 0.0), direction=UP, transient=20.0, samples=5, duration=60.0)
+    a = sweep(system, "gamma", [0.2, 0.25], settings)
+    b = sweep(system, "gamma", [0.2, 0.25], SweepSettings(**{**settings.__dict__, "method": "rk45"}))
+    np.testing.assert_allclose(a.samples, b.samples, atol=1e-6)
+    with pytest.raises(ValueError, match="adaptive explicit method"):
+        sweep(system, "gamma", [0.2], SweepSettings(**{**settings.__dict__, "method": "stiff"}))
+
+
 def test_flow_sweep_equals_each_value_alone():
     system = compile_model(DUFFING)
     gammas = np.array([0.2, 0.28, 0.35, 0.5])
@@ -195,7 +224,7 @@ def test_periodic_response_exponent_is_minus_half_the_damping():
     np.testing.assert_allclose(result.lyapunov, [-0.15, -0.15], atol=0.003)
 
 
-def test_non_smooth_flow_exponent_by_two_trajectories():
+def test_non_smooth_flow_exponent_with_the_jacobian_that_holds_almost_everywhere():
     # x' = -a |x| from x = 3 > 0 stays positive: x = 3 exp(-a t), nearby solutions approach at rate a
     system = compile_model("a = 1\nx' = -a*abs(x)\nx(0) = 3\n")
     result = sweep(system, "a", [0.5, 1.0, 2.0], SweepSettings(mode=STROBE, period=1.0, transient=1.0,
