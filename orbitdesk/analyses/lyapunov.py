@@ -150,6 +150,7 @@ def lyapunov_spectrum(system: CompiledSystem, p=None, u0=None, t_end: float | No
     ``settings.transient``, or a tenth of the run) is discarded. ``dt_renorm``: time between
     re-orthonormalisations of a flow; ``dt``: a fixed RK4 step instead of the adaptive method.
     """
+    system.refuse_delays("the Lyapunov spectrum (QR)")
     settings = settings or RunSettings()
     p = system.param_values.copy() if p is None else np.asarray(p, dtype=float)
     u = system.initial.copy() if u0 is None else np.asarray(u0, dtype=float)

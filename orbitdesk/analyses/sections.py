@@ -268,6 +268,7 @@ def strobe_section(system: CompiledSystem, p=None, u0=None, period: float = 2 * 
     periods so every point has the same forcing phase. Points come from the integrator's dense
     output at exactly those times.
     """
+    system.refuse_delays("the stroboscopic section")
     if system.kind == MAP:
         raise ValueError("stroboscopic sections are for forced flows; a map is already sampled at each step")
     period = float(period)

@@ -363,6 +363,7 @@ def lyapunov_grid(system, pname_x: str, xs, pname_y: str, ys, settings: GridSett
     The engine is compiled with ``compiled`` None when the whole grid's work pays for compiling, True
     whenever numba is there, False never; the choice is made once for the grid. Compiled chunks run
     on threads of this process by default (the loops release the GIL)."""
+    system.refuse_delays("the two-parameter map of exponents")
     settings = settings or GridSettings()
     for name in (pname_x, pname_y):
         if name not in system.parameters:

@@ -52,7 +52,10 @@ def run(args) -> int:
     system = load_system(source)
     p, u0 = values_for(system, source, args.set, args.init)
     settings = settings_for(source, args)
-    traj = simulate(system, settings, u0, p, progress=stderr_progress("run"))
+    try:
+        traj = simulate(system, settings, u0, p, progress=stderr_progress("run"))
+    except ValueError as err:  # a delay model run backwards, a delay set to zero: said plainly
+        raise CommandError(str(err)) from None
     time_key = "n" if system.kind == MAP else "t"
     if args.csv:
         header = [time_key, *system.states, *traj.derived]

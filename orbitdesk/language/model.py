@@ -17,6 +17,7 @@ from difflib import get_close_matches
 
 import sympy as sp
 
+from orbitdesk.language import delays
 from orbitdesk.language.diagnostics import ERROR, INFO, WARNING, Diagnostic, ParseError
 from orbitdesk.language.expression import (CONSTANTS, FUNCTIONS, KEYWORDS, MAX_LINE_LENGTH, NONSMOOTH_FUNCTIONS, Call, If, Name,
                          parse_expression, walk)
@@ -81,6 +82,9 @@ class ParsedModel:
     equation_spans: dict[str, tuple[int, int, int]] = field(default_factory=dict)  # state -> line, col, end
     typed_order: dict[str, int] = field(default_factory=dict)  # base name -> order typed
     angles: list[str] = field(default_factory=list)  # states declared angles: wrapped to (-pi, pi]
+    delays: list = field(default_factory=list)  # delays.Delay: each x(t - tau) the equations use
+    history: dict[str, sp.Expr] = field(default_factory=dict)  # state -> its value for t <= 0 (an expr of t)
+    history_lines: dict[str, int] = field(default_factory=dict)  # state -> line of its history as written
 
     @property
     def ok(self) -> bool:
@@ -120,6 +124,7 @@ class _Builder:
         self.cyclic: set[str] = set()  # definitions found in a loop (each reported once)
         self.angle_lines: list[tuple[int, int, int, str]] = []  # (line, column, end, name) of "angle NAME"
         self.suggestion_budget = SUGGESTION_BUDGET
+        self.history_lines, self.lag_symbols, self.lag_keys = [], {}, {}  # delays.py: x(t) = ... for t <= 0, x(t - tau)
 
     def add(self, line, col, end, severity, message, fix=None):
         self.diags.append(Diagnostic(line, col, max(end, col + 1), severity, message, fix))
@@ -155,6 +160,8 @@ class _Builder:
                 continue
             code = raw.split("#", 1)[0]
             if not code.strip():
+                continue
+            if delays.split_history_line(self, number, code):
                 continue
             angle = _ANGLE.match(code)
             if angle:
@@ -248,8 +255,10 @@ class _Builder:
             return self.model
         self.define_states(statements)
         self.define_parameters(statements)
+        delays.rewrite_delays(self, statements)
         define_functions(self, statements)
         self.resolve_expressions(statements)
+        delays.define_history(self)
         self.define_initial(statements)
         self.define_angles()
         return self.model
@@ -451,6 +460,8 @@ class _Builder:
 
         def resolve(node: Name):
             name, sub = node.name, node.subscript
+            if name in self.lag_symbols:
+                return self.lag_symbols[name]
             base = name.rstrip("'")
             primes = len(name) - len(base)
             if sub is not None:
