@@ -262,6 +262,11 @@ def largest_lyapunov_two_trajectory(system: CompiledSystem, p=None, u0=None, t_e
     n = system.n_states
     report = Reporter(progress, cancel)
     direction = [1.0 / math.sqrt(n)] * n
+    if system.delays:  # the state is a segment of the solution: two nearby histories
+        from orbitdesk.analyses.delay_lyapunov import largest_delay_exponent
+
+        return largest_delay_exponent(system, p, u, start, end, transient, d0, renorm_every, settings, cancel,
+                                      progress)
     if system.kind == MAP:
         return _map_pair(system, p, u, end, transient, d0, renorm_every, direction, settings.bound, report)
     u, samples, times, failed = _transient_flow(system, settings, u, p, start, transient, cancel)

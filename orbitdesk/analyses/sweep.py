@@ -316,6 +316,10 @@ def sweep(system, parameter: str, values, settings: SweepSettings | None = None,
 def _sweep_arrays(system, parameter, values, settings, u0, base_p, cancel=None, progress=None, compiled=None):
     P = np.repeat(base_p[:, None], values.size, axis=1)
     P[system.parameters.index(parameter)] = values
+    if system.delays:  # one method-of-steps run per value
+        from orbitdesk.analyses.delay_sweep import delay_sweep_arrays
+
+        return delay_sweep_arrays(system, P, u0, settings, cancel, progress)
     sampler, exponents, result = run_members(system, P, u0, settings, cancel, progress, compiled)
     return sampler.values, sampler.times, exponents, result.status
 

@@ -22,7 +22,7 @@ from orbitdesk.document.project import ProjectError
 from orbitdesk.app import views as views_pkg
 from orbitdesk.app.errors import Notices
 from orbitdesk.app.file_guard import DocumentGuard
-from orbitdesk.app.plain_text import menu_text, plain_message, rich_tip
+from orbitdesk.app.plain_text import make_plain, menu_text, plain_message, rich_tip
 from orbitdesk.app.result_store import RESULTS_KEY
 from orbitdesk.app.session import Session
 
@@ -103,6 +103,8 @@ class RunBar(QToolBar):
         self.samples.setToolTip("Number of evenly spaced output points of a run")
         self.samples.valueChanged.connect(lambda v: self._set(samples=int(v)))
         self.method_action = self.addWidget(self.method)
+        self.delay_note = make_plain(QLabel())  # delay models: the method of steps and the history used
+        self.delay_note_action = self.addWidget(self.delay_note)
         self.addWidget(self.t_end_label)
         self.t_end_action = self.addWidget(self.t_end)
         self.steps_action = self.addWidget(self.steps)
@@ -165,7 +167,16 @@ class RunBar(QToolBar):
         finally:
             self._syncing = False
         is_map = s.system is not None and s.system.kind == "map"
-        self.method_action.setVisible(not is_map)
+        delays = s.system is not None and s.system.has_delays
+        self.method_action.setVisible(not is_map and not delays)
+        self.delay_note_action.setVisible(delays)
+        if delays:
+            from orbitdesk.engine.delay import METHOD_LABEL, uses_history
+
+            history = uses_history(s.system)
+            self.delay_note.setText(f" Delays: Dormand–Prince 5(4), method of steps · {history} ")
+            self.delay_note.setToolTip(f"This model has delays: it runs with {METHOD_LABEL}; the method menu "
+                                       f"does not apply.\nBefore the start: {history}.")
         self.t_end_label.setText(" steps " if is_map else " until t = ")
         self.t_end_action.setVisible(not is_map)
         self.steps_action.setVisible(is_map)

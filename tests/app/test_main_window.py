@@ -423,3 +423,15 @@ def test_an_angle_is_drawn_wrapped_in_the_phase_plane(qtbot, window, tmp_path):
     (px,), _ = pp.cursor_marker.getData()
     expected = traj.series("theta")[np.searchsorted(traj.time, 7.3)]
     assert px == pytest.approx(np.pi - np.mod(np.pi - expected, 2 * np.pi), abs=0.05)
+
+
+def test_delay_model_run_bar_says_which_history_is_used(qtbot, window, tmp_path, artifacts):
+    text = ("beta = 0.2\ngamma = 0.1\ntau = 17\nx' = beta*x(t - tau)/(1 + x(t - tau)^10) - gamma*x\n"
+            "x(t) = 0.5 + 0.01*t for t <= 0\n")
+    _path, traj = open_model(qtbot, window, tmp_path, text, "cells.txt", t_end=600.0, samples=3000)
+    bar = window.run_bar
+    assert bar.delay_note_action.isVisible() and not bar.method_action.isVisible()
+    assert "x(t) = t/100 + 1/2 for t <= 0" in bar.delay_note.text()
+    # Mackey & Glass (1977): at tau = 17 the solution stays within roughly 0.4..1.4 (values from memory)
+    assert traj.ok and 0.2 < traj.states[0, traj.time > 100].min() < traj.states[0].max() < 1.6
+    window.grab().save(os.path.join(artifacts, "delay_run_bar.png"))

@@ -230,3 +230,58 @@ def test_two_state_delay_model_against_the_characteristic_determinant():
     assert roots.size >= 4
     for lam in roots[:4]:
         assert abs(np.linalg.det(characteristic_matrix(A0, parts, lam))) < 1e-8 * (1 + abs(lam)) ** 2
+
+
+# ---------------------------------------------------------------- analyses
+MACKEY_GLASS = ("beta = 0.2\ngamma = 0.1\ntau = {tau}\nx' = beta*x(t - tau)/(1 + x(t - tau)^10) - gamma*x\n"
+                "x(t) = 0.5 for t <= 0\n")
+
+
+@pytest.mark.slow
+def test_mackey_glass_largest_exponent_positive_at_a_chaotic_delay():
+    # Mackey & Glass, Science 197 (1977) 287: chaotic at tau = 17 (Farmer, Physica 4D (1982): a positive
+    # largest exponent there); at tau = 5 the solution settles on a periodic orbit (exponent zero)
+    from orbitdesk.analyses.lyapunov import largest_lyapunov_two_trajectory
+
+    chaotic = largest_lyapunov_two_trajectory(compile_model(MACKEY_GLASS.format(tau=17)), t_end=3500,
+                                              transient=500)
+    assert chaotic.ok and chaotic.largest > 0.003
+    periodic = largest_lyapunov_two_trajectory(compile_model(MACKEY_GLASS.format(tau=5)), t_end=3500,
+                                               transient=500)
+    assert periodic.ok and abs(periodic.largest) < 0.001
+    assert any("segments over the longest delay" in w for w in chaotic.warnings)
+
+
+def test_plane_section_of_a_delay_model_lands_on_the_plane_once_per_period():
+    # a tau = pi/2: x = cos(pi t / (2 tau)) continues the history exactly; it rises through 0 at t = 3 + 4k (tau = 1)
+    from orbitdesk.analyses.sections import plane_section
+
+    system = compile_model("a = pi/2\nx' = -a*x(t - 1)\nx(t) = cos(a*t) for t <= 0\n")
+    result = plane_section(system, coordinate="x", value=0.0, direction="up", count=4, transient=2.0,
+                           settings=RunSettings(t_end=10, rtol=1e-10, atol=1e-12))
+    assert result.complete and result.status == OK
+    assert result.times == pytest.approx([3.0, 7.0, 11.0, 15.0], abs=1e-6)
+    assert np.all(np.abs(result.points[0]) < 1e-9)
+
+
+def test_analyses_without_delays_say_so():
+    from orbitdesk.analyses.cycles import find_cycle
+    from orbitdesk.analyses.lyapunov import lyapunov_spectrum
+
+    system = compile_model(MACKEY_GLASS.format(tau=17))
+    for call in (lambda: find_cycle(system), lambda: lyapunov_spectrum(system)):
+        with pytest.raises(ValueError, match="not available for models with delays"):
+            call()
+
+
+def test_sweep_of_the_delay_finds_the_oscillation_past_the_stability_boundary():
+    # x' = -a x(t - 1) - x^3: the equilibrium 0 loses stability at a = pi/2 (a Hopf point of the
+    # linear part, closed form); below it the maxima decay to 0, above it a cycle of finite size remains
+    from orbitdesk.analyses.sweep import MAXIMA, SweepSettings, sweep
+
+    system = compile_model("a = 1\nx' = -a*x(t - 1) - x^3\nx(0) = 0.5\n")
+    result = sweep(system, "a", [1.2, 1.9], SweepSettings(mode=MAXIMA, transient=150, duration=30, samples=3))
+    assert list(result.status) == ["ok", "ok"]
+    below, above = result.points(0), result.points(1)
+    assert below.size == 0 or np.max(below) < 1e-3
+    assert above.size == 3 and np.ptp(above) < 1e-4 and above[0] > 0.1
