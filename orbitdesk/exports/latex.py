@@ -131,6 +131,9 @@ def model_latex(model, parameters: dict | None = None, initial: dict | None = No
     def tex(expr):
         return sp.latex(expr, symbol_names=names)
 
+    for d in parsed.delays:  # x(t - tau), the delay as the model writes it (Greek names as letters)
+        names[d.symbol] = rf"{latex_name(d.state)}(t - {tex(d.amount)})"
+
     lines: list[str] = []
     lhs_lines = _lhs_lines(parsed)
     for base, order in parsed.typed_order.items():
@@ -164,6 +167,10 @@ def model_latex(model, parameters: dict | None = None, initial: dict | None = No
             expr = _typed(parsed, _rhs_text(parsed, line), resolved) if line else resolved
             rows.append(f"{latex_name(name)} &= {tex(expr)}")
         sections.append(("derived quantities", rows))
+    if parsed.history_lines:
+        rows = [rf"{latex_name(name)}(t) &= {tex(parsed.history[name])} && \text{{for }} t \le 0"
+                for name in parsed.history_lines]
+        sections.append(("with the history", rows))
     rows = []
     for state in parsed.states:
         if is_map:

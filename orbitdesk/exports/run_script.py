@@ -62,6 +62,9 @@ def _function(name: str, args: list[str], system: CompiledSystem, exprs, printer
 def run_script(system: CompiledSystem, settings: RunSettings | None = None, u0=None, p=None,
                title: str = "OrbitDesk model", output: str = "run.csv") -> str:
     """The text of a script that reproduces ``simulate(system, settings, u0, p)`` and writes CSV."""
+    if system.delays:
+        raise ValueError("the standalone script does not reproduce models with delays such as "
+                         f"{system.delays[0].label}: export the run itself as CSV (orbitdesk run --csv) instead")
     settings = settings or RunSettings()
     u0 = list(system.initial if u0 is None else u0)
     p = list(system.param_values if p is None else p)

@@ -285,3 +285,28 @@ def test_sweep_of_the_delay_finds_the_oscillation_past_the_stability_boundary():
     below, above = result.points(0), result.points(1)
     assert below.size == 0 or np.max(below) < 1e-3
     assert above.size == 3 and np.ptp(above) < 1e-4 and above[0] > 0.1
+
+
+# ---------------------------------------------------------------- exports
+def test_latex_writes_the_delay_and_the_history(tmp_path):
+    import shutil
+    import subprocess
+
+    from orbitdesk.exports.latex import model_latex
+
+    text = model_latex(MACKEY_GLASS.format(tau=17).replace("x(t) = 0.5", "x(t) = 0.5 + t/100"), standalone=True)
+    assert r"\frac{\beta x(t - \tau)}{x(t - \tau)^{10} + 1} - \gamma x" in text
+    assert r"x(t) &= \frac{t}{100} + \frac{1}{2} && \text{for } t \le 0" in text
+    if shutil.which("pdflatex") is None:
+        pytest.skip("pdflatex is not installed; the document was checked for its parts only")
+    (tmp_path / "m.tex").write_text(text)
+    done = subprocess.run(["pdflatex", "-interaction=nonstopmode", "-halt-on-error", "-no-shell-escape", "m.tex"],
+                          cwd=tmp_path, capture_output=True, timeout=120)
+    assert done.returncode == 0
+
+
+def test_standalone_script_refuses_delay_models_plainly():
+    from orbitdesk.exports.run_script import run_script
+
+    with pytest.raises(ValueError, match="does not reproduce models with delays"):
+        run_script(compile_model(UNIT))
