@@ -137,7 +137,7 @@ def with_delay_stability(system, p, eq):
         kind, stable = "non-hyperbolic", (False if n_unstable else None)
         warnings.append("a characteristic root has zero real part: the linearisation does not decide stability")
     elif n_unstable == 0:
-        kind, stable = ("stable, oscillating decay" if oscillating else "stable"), True
+        kind, stable = ("stable, oscillating" if oscillating else "stable"), True
     else:
         kind = f"unstable ({n_unstable} root{'s' if n_unstable > 1 else ''} with positive real part)"
         stable = False

@@ -15,7 +15,7 @@ from orbitdesk.document.walkthrough import apply_step
 
 SAMPLES = Path(__file__).resolve().parents[2] / "sample_projects"
 NAMES = ["shaken_beam", "convection_loop", "relaxation_circuit", "clock_reaction", "pond_predators",
-         "insect_generations", "pendulum", "stirred_tank", "wagon_train", "bracket_pluck"]
+         "insect_generations", "pendulum", "stirred_tank", "wagon_train", "bracket_pluck", "long_shower"]
 
 
 def load(name):
@@ -243,3 +243,25 @@ def test_bracket_sample_data_match_their_files_and_fit_back_to_what_made_them():
     for e in result.estimates:
         assert abs(e.value - truth[e.name]) < 3 * e.stderr, e
     assert project.views["fit"]["parameters"] == ["c", "k", "k3"]
+
+
+def test_long_shower_roots_and_onset_as_its_walkthrough_says():
+    # near rest u' = -k (u(t - tau) - want): rightmost roots W_0(-k tau)/tau (closed form, scipy's lambertw),
+    # stable exactly when k tau < pi/2, i.e. k < pi/4 = 0.785 at tau = 2
+    from scipy.special import lambertw
+
+    from orbitdesk.analyses.equilibria import find_equilibria
+
+    project = load("long_shower")
+    system = compile_model(project.model)
+    p, _ = step_values(project, system, "Why it settles")
+    eq = find_equilibria(system, p, exact=False, starts=5)[0]
+    assert eq.vector == pytest.approx([38.0])
+    assert eq.eigenvalues[0] == pytest.approx(complex(lambertw(-1.0) / 2.0), abs=1e-9)  # -0.159 + 0.669i
+    assert eq.stable is True
+    for k, stable in ((0.77, True), (0.80, False)):
+        assert find_equilibria(system, system.param_vector({"k": k}), exact=False, starts=5)[0].stable is stable
+    p, _ = step_values(project, system, "Impatient hands")
+    run = simulate(system, RunSettings(t_end=150, samples=3001), p=p)
+    late = run.states[0, run.time > 100]
+    assert 33.4 < late.min() < 33.8 and 42.2 < late.max() < 42.6  # "between about 33.6 and 42.4 degrees"
