@@ -115,7 +115,7 @@ class ModelReadback(QWidget):
         s = self._system
         if s is None:
             return []
-        return [f"{equation_lhs(s, state)} = {model_str(f)}" for state, f in zip(s.states, s.f)]
+        return [f"{equation_lhs(s, state)} = {model_str(f)}" for state, f in zip(s.states, s.f_delayed or s.f)]
 
     def jacobian_entries(self) -> list[list[str]]:
         s = self._system
@@ -229,6 +229,11 @@ class ModelReadback(QWidget):
         else:
             where = ", ".join(self._m(equation_lhs(system, s)) for s in time_dependent_states(system))
             facts.append(f"non-autonomous: depends on {self._m(system.time_name)} in {where}")
+        if system.delays:
+            from orbitdesk.engine.delay import uses_history
+
+            delays = ", ".join(self._m(f"{d.label} ({number_str(d.value)})") for d in system.delays)
+            facts.append(f"delays: {delays}; {_esc(uses_history(system))}")
         if system.smooth:
             facts.append("smooth")
         else:
@@ -239,7 +244,7 @@ class ModelReadback(QWidget):
     def _equations(self, system) -> str:
         title = "First-order form" if _is_flow(system) else "Map"
         rows = [self._equation_row(equation_lhs(system, s), model_str(f), self._c["lhs"])
-                for s, f in zip(system.states, system.f)]
+                for s, f in zip(system.states, system.f_delayed or system.f)]
         notes = []
         for base, order in reduced_orders(system).items():
             new = ", ".join(self._m(base + "'" * k) for k in range(1, order))
@@ -299,7 +304,8 @@ class ModelReadback(QWidget):
                             f"{self._m(model_str(J[i, j]))}</td>" for j in range(system.n_states))
             rows.append("<tr>" + self._td(self._m(equation_lhs(system, state), c["lhs"]), "right",
                                           "padding-right:8px") + cells + "</tr>")
-        return self._heading("Jacobian") + self._table(rows, spacing=2)
+        title = "Jacobian with the delays dropped" if system.delays else "Jacobian"
+        return self._heading(title) + self._table(rows, spacing=2)
 
 
 def _blend(a: QColor, b: QColor, t: float) -> QColor:
