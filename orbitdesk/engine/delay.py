@@ -27,7 +27,6 @@ from __future__ import annotations
 import math
 from bisect import bisect_right
 from dataclasses import dataclass
-from itertools import combinations_with_replacement
 
 import numpy as np
 import sympy as sp
@@ -128,19 +127,18 @@ def uses_history(system: CompiledSystem) -> str:
 
 
 def breakpoints(t0: float, t1: float, taus) -> list[float]:
-    """t0 + m_1 tau_1 + ... + m_k tau_k in (t0, t1] with 1 <= sum m_j <= DISCONTINUITY_ORDER, sorted."""
+    """t0 + m_1 tau_1 + ... + m_k tau_k in (t0, t1] with 1 <= sum m_j <= DISCONTINUITY_ORDER, sorted
+    (at most MAX_BREAKPOINTS of them, the earliest)."""
     taus = sorted(set(float(x) for x in taus))
+    span = t1 - t0
+    level = {0.0}
     found: set[float] = set()
-    for order in range(1, DISCONTINUITY_ORDER + 1):
-        if t0 + order * taus[0] > t1:
+    for _order in range(DISCONTINUITY_ORDER):
+        level = {round(a + tau, 12) for a in level for tau in taus if a + tau <= span * (1 + 1e-12)}
+        found |= level
+        if not level or len(found) > MAX_BREAKPOINTS:
             break
-        for combo in combinations_with_replacement(taus, order):
-            point = t0 + math.fsum(combo)
-            if point <= t1:
-                found.add(point)
-        if len(found) > MAX_BREAKPOINTS:
-            break
-    points = sorted(found)
+    points = sorted(t0 + x for x in found)
     merged = []
     for x in points:  # points closer than round-off are one
         if not merged or x - merged[-1] > 1e-12 * max(1.0, abs(x)):
@@ -351,6 +349,9 @@ def simulate_delay(system: CompiledSystem, settings: RunSettings, u0, p, events=
     if not t1 > t0:
         raise ValueError("a model with delays runs forward in time only: the end must come after the start")
     model = DelayModel(system, p)
+    if (t1 - t0) / min(model.taus) > MAX_STEPS:
+        raise ValueError(f"the shortest delay ({min(model.taus):g}) is too short for a run of {t1 - t0:g} time "
+                         f"units: every step is at most one delay long")
     n = system.n_states
     solver = model.integrator(t0, u0, settings.rtol, settings.atol, settings.max_step, t1)
     sample_t = np.linspace(t0, t1, settings.samples) if settings.samples > 1 else None

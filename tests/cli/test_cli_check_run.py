@@ -143,3 +143,19 @@ def test_check_json_lists_delays_and_history_and_run_integrates_them(capsys, tmp
     assert data["states"]["x"] == pytest.approx([1.0, 0.0, -0.5, -1 / 6], abs=1e-12)
     code, _, err = run_cli(capsys, "run", path, "--set", "tau=0", "--json")
     assert code != 0 and "a delay must be" in err
+
+
+def test_equilibria_of_a_delay_model_list_characteristic_roots(capsys, tmp_path):
+    # x' = -a x(t - 1) at a = 1.2 < pi/2: stable; the rightmost root is W_0(-1.2) (scipy's lambertw)
+    from scipy.special import lambertw
+
+    path = tmp_path / "lag.txt"
+    path.write_text("a = 1.2\nx' = -a*x(t - 1)\n")
+    code, out, _ = run_cli(capsys, "equilibria", path, "--json")
+    data = json.loads(out)
+    assert code == 0
+    eq = data["equilibria"][0] if isinstance(data, dict) else data[0]
+    assert eq["stable"] is True
+    root = complex(lambertw(-1.2))
+    assert (eq["eigenvalues"][0]["re"], abs(eq["eigenvalues"][0]["im"])) == pytest.approx((root.real, abs(root.imag)),
+                                                                                           abs=1e-9)

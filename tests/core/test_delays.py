@@ -310,3 +310,14 @@ def test_standalone_script_refuses_delay_models_plainly():
 
     with pytest.raises(ValueError, match="does not reproduce models with delays"):
         run_script(compile_model(UNIT))
+
+
+def test_two_delays_against_an_exponential_solution():
+    # x' = a x(t - 1) + b x(t - 1/2) has the solution exp(lam t) (history the same exponential) when
+    # lam = a exp(-lam) + b exp(-lam/2): choose lam and b, solve for a (closed form)
+    lam, b = -0.3, 0.5
+    a = (lam - b * math.exp(-lam / 2)) * math.exp(lam)
+    system = compile_model(f"a = {a!r}\nb = {b!r}\nx' = a*x(t - 1) + b*x(t - 0.5)\nx(t) = exp({lam}*t) for t <= 0\n")
+    run = simulate(system, RunSettings(t_end=10, samples=101, rtol=1e-10, atol=1e-12))
+    assert run.status == OK
+    assert np.max(np.abs(run.states[0] - np.exp(lam * run.time))) < 1e-9
