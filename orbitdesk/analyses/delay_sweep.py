@@ -15,10 +15,11 @@ from dataclasses import replace
 
 import numpy as np
 
+from orbitdesk.engine.delay import delay_values
 from orbitdesk.engine.progress import Cancelled, Reporter
 from orbitdesk.engine.runs import CANCELLED, OK, Event, RunSettings, simulate
 
-MAXIMA_GRID = 0.05  # sampling step for maxima, in units of the shortest delay (at most dt)
+MAXIMA_GRID = 0.05  # sampling step for maxima, in units of the shortest delay (at most dt when one is given)
 
 
 def delay_sweep_arrays(system, P, U0, settings, cancel=None, progress=None):
@@ -39,7 +40,8 @@ def delay_sweep_arrays(system, P, U0, settings, cancel=None, progress=None):
     t0 = float(s.t_start)
     t_keep = t0 + s.transient
     k_obs = system.states.index(s.observe)
-    base = RunSettings(t_start=t0, t_end=t_keep + s.duration, samples=2, bound=s.bound, rtol=1e-8, atol=1e-10)
+    base = RunSettings(t_start=t0, t_end=t_keep + s.duration, samples=2, bound=s.bound,
+                       rtol=getattr(s, "rtol", 1e-8), atol=getattr(s, "atol", 1e-10))
     for m in range(M):
         p, u = P[:, m], U0[:, m]
         events = []
@@ -56,7 +58,8 @@ def delay_sweep_arrays(system, P, U0, settings, cancel=None, progress=None):
                            cancel=cancel)
             t_found, values = run.time[periods:], run.states[k_obs, periods:]
         elif s.mode == MAXIMA:
-            step = min(float(s.dt), MAXIMA_GRID * float(min(d.value for d in system.delays)))
+            step = MAXIMA_GRID * float(min(delay_values(system, p)))
+            step = min(float(s.dt), step) if s.dt else step
             run = simulate(system, replace(base, t_start=t0, samples=max(2, int(math.ceil(
                 (t_keep + s.duration - t0) / step)) + 1)), u, p, cancel=cancel)
             t_found, values = _maxima(run.time, run.states[k_obs], t_keep)
