@@ -305,11 +305,38 @@ def test_latex_writes_the_delay_and_the_history(tmp_path):
     assert done.returncode == 0
 
 
-def test_standalone_script_refuses_delay_models_plainly():
+@pytest.mark.parametrize("text, end", [
+    (UNIT + "lag = x(t - 1)\n", 3.0),
+    ("a = 1.8\nx'' = -0.1*x' - a*x(t - 1.5) - x^3\nx(t) = cos(t) for t <= 0\n", 12.0),
+])
+def test_standalone_script_reproduces_a_delay_run(tmp_path, text, end):
+    # the script carries the engine's method of steps: it gives the run's numbers (and x(2) = -1/2,
+    # x(3) = -1/6 for the unit delay, by hand)
+    import csv
+    import subprocess
+    import sys
+
     from orbitdesk.exports.run_script import run_script
 
-    with pytest.raises(ValueError, match="does not reproduce models with delays"):
-        run_script(compile_model(UNIT))
+    system = compile_model(text)
+    settings = RunSettings(t_end=end, samples=31, rtol=1e-9, atol=1e-11)
+    script = run_script(system, settings)
+    assert script.isascii()
+    (tmp_path / "run.py").write_text(script)
+    done = subprocess.run([sys.executable, "run.py", "out.csv"], cwd=tmp_path, capture_output=True, text=True,
+                          timeout=300)
+    assert done.returncode == 0, done.stderr
+    with open(tmp_path / "out.csv") as handle:
+        rows = list(csv.reader(handle))
+    assert rows[0] == ["t", *system.states, *system.derived_names]
+    table = np.array(rows[1:], dtype=float)
+    run = simulate(system, settings)
+    assert table[:, 0] == pytest.approx(run.time, abs=1e-12)
+    assert np.max(np.abs(table[:, 1:1 + system.n_states].T - run.states)) < 1e-12
+    for k, name in enumerate(system.derived_names):
+        assert np.max(np.abs(table[:, 1 + system.n_states + k] - run.series(name))) < 1e-12
+    if "lag" in system.derived_names:
+        assert table[20, 1] == pytest.approx(-0.5, abs=1e-12) and table[30, 1] == pytest.approx(-1 / 6, abs=1e-12)
 
 
 def test_two_delays_against_an_exponential_solution():
