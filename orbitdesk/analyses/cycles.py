@@ -24,6 +24,7 @@ from orbitdesk.engine.status import C_CANCELLED
 from orbitdesk.engine.status import word as status_word
 from orbitdesk.engine.progress import CancelToken, Cancelled, Reporter
 from orbitdesk.system.compiled_system import MAP, CompiledSystem
+from orbitdesk.engine import limits
 
 MAX_FORCING_MULTIPLE = 8
 
@@ -463,6 +464,9 @@ def find_map_cycle(system: CompiledSystem, p=None, period_k: int = 1, guess=None
     k = int(period_k)
     if k < 1:
         raise ValueError("the period of a map cycle must be a whole number of at least 1")
+    # every Newton iteration of every start follows the orbit k steps
+    limits.check_steps(float(k) * starts * max_iter + transient, f"a period-{k:,} cycle ({starts} starts of "
+                                                                 f"up to {max_iter} Newton iterations)")
     p = system.param_values.astype(float) if p is None else np.asarray(p, dtype=float)
     report = Reporter(progress, cancel)
     n = system.n_states

@@ -22,6 +22,7 @@ from scipy.stats import qmc
 from orbitdesk.language.angles import wrap_equilibria
 from orbitdesk.engine.progress import CancelToken, Cancelled, Reporter
 from orbitdesk.system.compiled_system import MAP, CompiledSystem, UndefinedValue
+from orbitdesk.engine import limits
 
 HYPERBOLIC_RTOL = 1e-9  # |Re lambda| (flows) or ||mu| - 1| (maps) below this * max(1, rho) counts as zero
 NEAR_UNIT_TOL = 1e-6  # maps: warn about a multiplier this close to +1, -1 or the unit circle
@@ -202,9 +203,11 @@ def _solve_all(eqs, syms):
         return [dict(zip(syms, sol)) for sol in solutions]
 
 
-def _exact_child(conn, eqs, syms):
-    """Runs in the forked child: solve, evaluate numerically, send back JSON (plain floats)."""
+def _exact_child(conn, system, p):
+    """Runs in the forked child: build the equations (expand can blow up too), solve, evaluate
+    numerically, send back JSON (plain floats)."""
     try:
+        eqs, syms = _exact_equations(system, p)
         out, continuum = [], False
         for sol in _solve_all(eqs, syms):
             if any(s not in sol for s in syms) or any(sol[s].free_symbols for s in syms):
@@ -235,10 +238,10 @@ def exact_solutions(system: CompiledSystem, p, timeout: float = 3.0, report=None
     notes: list[str] = []
     if "fork" not in multiprocessing.get_all_start_methods():
         return [], ["the exact solve needs the 'fork' start method, not available here; Newton search only"]
-    eqs, syms = _exact_equations(system, p)
     ctx = multiprocessing.get_context("fork")
     receive, send = ctx.Pipe(duplex=False)
-    child = ctx.Process(target=_exact_child, args=(send, eqs, syms), daemon=True)
+    # every symbolic step runs in the child, under the time limit: the parent only forks and waits
+    child = ctx.Process(target=_exact_child, args=(send, system, p), daemon=True)
     child.start()
     send.close()
     waited, answer = 0.0, None
@@ -383,6 +386,8 @@ def find_equilibria(system: CompiledSystem, p=None, box: dict | None = None, sta
         raise ValueError(f"the equations depend on the {what}, so the model has no "
                          f"{'fixed points' if system.kind == MAP else 'equilibria'} in the usual sense; "
                          "use a periodic orbit or a Poincaré section instead")
+    # each start costs up to 100 Newton steps (see _refine)
+    limits.check_steps(100.0 * float(starts), f"{float(starts):,.0f} Newton starts")
     p = system.param_values.astype(float) if p is None else np.asarray(p, dtype=float)
     report = Reporter(progress, cancel)
     notes: list[str] = []

@@ -30,7 +30,7 @@ import sympy as sp
 from orbitdesk.engine.runs import CANCELLED, DIVERGED, OK, UNDEFINED, RunSettings, simulate
 from orbitdesk.engine.progress import Cancelled, Reporter
 from orbitdesk.system.compiled_system import MAP, CompiledSystem
-from orbitdesk.engine import compiled, drivers
+from orbitdesk.engine import compiled, drivers, limits
 from orbitdesk.engine.status import word as status_word
 
 QR, TWO_TRAJECTORY = "qr", "two-trajectory"
@@ -87,8 +87,11 @@ def _span(system, settings, t_end, steps, transient):
         end = int(settings.steps if steps is None else steps)
         start = 0
     else:
-        end = float(settings.t_end if t_end is None else t_end)
+        end = limits.check_span(float(settings.t_end if t_end is None else t_end), "the end time")
         start = float(settings.t_start)
+        if end < start:
+            raise ValueError(f"Lyapunov exponents average forward in time: the end time ({end:g}) must come after "
+                             f"the start ({start:g})")
     if transient is None:
         transient = settings.transient if settings.transient > 0 else 0.1 * (end - start)
     transient = int(round(transient)) if system.kind == MAP else float(transient)
@@ -97,6 +100,8 @@ def _span(system, settings, t_end, steps, transient):
     if not end - start - transient > 0:
         what = "steps" if system.kind == MAP else "the end time"
         raise ValueError(f"{what} must leave a run after the transient (run {end - start:g}, transient {transient:g})")
+    if system.kind == MAP:
+        limits.check_steps(float(end), f"a run of {end:,} iterations")
     return start, end, transient
 
 
@@ -184,6 +189,8 @@ def _flow_spectrum(system, p, u, t0, t1, transient, dt_renorm, dt, settings, can
     step = float(dt) if dt is not None else settings.dt
     if not (math.isfinite(step) and step > 0):
         raise ValueError("the step dt must be positive")
+    if dt is not None:
+        limits.check_steps(limits.steps_of(t1 - ts, step), f"a run over {t1 - ts:g} time units with dt = {step:g}")
     if dt is not None and dt_renorm is None:
         interval = RENORM_STEPS * step
     engine = compiled.engine_for_work(system, (t1 - ts) * 1500 * (n + 1) * max(1.0, n / 3))
@@ -275,7 +282,9 @@ def largest_lyapunov_two_trajectory(system: CompiledSystem, p=None, u0=None, t_e
     ts = start + transient
     if dt is None:
         dt = min(_renorm_interval(system, p, samples, times, end - ts) / RENORM_STEPS, (end - ts) / 1000.0)
-    n_steps = max(1, math.ceil((end - ts) / dt - 1e-9))
+    if not (math.isfinite(dt) and dt > 0):
+        raise ValueError("the step dt must be positive")
+    n_steps = max(1, math.ceil(limits.check_steps((end - ts) / dt - 1e-9, f"the run with dt = {dt:g}")))
     dt = (end - ts) / n_steps
     every = RENORM_STEPS if renorm_every is None else max(1, int(round(float(renorm_every) / dt)))
     engine = compiled.engine_for_work(system, 8 * n_steps * max(1.0, n / 3))

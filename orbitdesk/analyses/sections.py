@@ -16,7 +16,8 @@ import sympy as sp
 
 from orbitdesk.engine.runs import CANCELLED, OK, Event, RunSettings, simulate
 from orbitdesk.engine.progress import Cancelled, Reporter
-from orbitdesk.system.compiled_system import MAP, CompiledSystem
+from orbitdesk.system.compiled_system import MAP, CompiledSystem, lambdify
+from orbitdesk.engine import limits
 
 DIRECTIONS = ("up", "down", "both")
 TOUCH_FACTOR = 10.0  # a pass nearer the plane than this many tolerances counts as a touch
@@ -70,17 +71,17 @@ def _section_function(system: CompiledSystem, coordinate: str, value: float, p):
     if coordinate in system.states:
         i = system.states.index(coordinate)
         rate_expr = system.plain([system.f[i]])[0]
-        rate_fn = sp.lambdify([t, *u, *ps], rate_expr, modules="math")
+        rate_fn = lambdify([t, *u, *ps], rate_expr)
 
         def g(tt, uu):
             return uu[i] - value
     elif coordinate in system.derived_names:
         expr = system.plain([system.derived_exprs[system.derived_names.index(coordinate)]])[0]
-        g_fn = sp.lambdify([t, *u, *ps], expr, modules="math")
+        g_fn = lambdify([t, *u, *ps], expr)
         f = system.plain(system.f)
         rate_expr = sp.diff(expr, t) + sum(sp.diff(expr, uj) * fj for uj, fj in zip(u, f))
         smooth = not rate_expr.has(sp.DiracDelta, sp.Derivative, sp.Subs)
-        rate_fn = sp.lambdify([t, *u, *ps], rate_expr, modules="math") if smooth else None
+        rate_fn = lambdify([t, *u, *ps], rate_expr) if smooth else None
 
         def g(tt, uu):
             try:
@@ -170,6 +171,12 @@ def _select(times, rates, direction, tolerance):
     return keep, touch
 
 
+def _size_section(system, count, transient) -> None:
+    """Refuse a section whose points or transient are beyond the limits (limits.py) before it starts."""
+    limits.check_memory(8.0 * (system.n_states + 1) * count, f"a section of {count:,} points")
+    limits.check_span(float(transient), "the transient")
+
+
 def plane_section(system: CompiledSystem, p=None, u0=None, coordinate: str = "", value: float = 0.0,
                   direction: str = "up", count: int = 100, transient: float = 0.0,
                   settings: RunSettings | None = None, cancel=None, progress=None,
@@ -191,6 +198,7 @@ def plane_section(system: CompiledSystem, p=None, u0=None, coordinate: str = "",
     if not math.isfinite(value) or not math.isfinite(float(transient)) or transient < 0:
         raise ValueError("the plane's value must be finite and the transient non-negative")
     count = int(count)
+    _size_section(system, count, transient)
     settings = settings or RunSettings()
     p = system.param_values.copy() if p is None else np.asarray(p, dtype=float)
     u = system.initial.copy() if u0 is None else np.asarray(u0, dtype=float)
@@ -316,11 +324,14 @@ def strobe_section(system: CompiledSystem, p=None, u0=None, period: float = 2 * 
     if not (0 <= phase < period):
         raise ValueError("the phase must lie in [0, period)")
     count = int(count)
+    _size_section(system, count, transient)
     settings = settings or RunSettings()
     p = system.param_values.copy() if p is None else np.asarray(p, dtype=float)
     u = system.initial.copy() if u0 is None else np.asarray(u0, dtype=float)
     names = list(system.states)
     k0 = int(transient_periods) if transient_periods is not None else math.ceil(transient / period - 1e-9)
+    limits.check_steps(k0 + float(count), f"a section of {count:,} points after {float(k0):.6g} transient "
+                                          f"periods of {period:g}")
     t0 = float(settings.t_start)
     t_first = t0 + phase + k0 * period
     report = Reporter(progress, cancel)

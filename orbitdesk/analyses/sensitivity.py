@@ -23,7 +23,7 @@ import sympy as sp
 from scipy.integrate import solve_ivp
 
 from orbitdesk.engine.progress import CancelToken
-from orbitdesk.system.compiled_system import MAP, UNDEFINED_ERRORS, CompiledSystem, _printer
+from orbitdesk.system.compiled_system import MAP, UNDEFINED_ERRORS, CompiledSystem, lambdify
 from orbitdesk.engine.methods import METHODS
 
 CANCEL_EVERY = 2000  # right-hand-side calls between cancel checks
@@ -71,7 +71,7 @@ class Sensitivities:
         phi = sp.Matrix(n, n, [sp.Symbol(f"_m{i}", real=True) for i in range(n * n)])
         exprs = list(system.plain(system.f)) + list(jac * s + fp) + list(jac * phi)
         z = list(u) + list(s) + list(phi)
-        return sp.lambdify([t, *z, *p], exprs, modules="math", cse=True, printer=_printer())
+        return lambdify([t, *z, *p], exprs)
 
     def start(self, u0) -> np.ndarray:
         n, m = self.n, self.m
@@ -163,7 +163,7 @@ class Observer:
                 continue
             expr = system.plain([system.derived_exprs[system.derived_names.index(q)]])[0]
             exprs = [expr] + [sp.diff(expr, s) for s in u] + [sp.diff(expr, s) for s in p]
-            out[q] = sp.lambdify([t, *u, *p], exprs, modules="numpy", cse=True)
+            out[q] = lambdify([t, *u, *p], exprs, modules="numpy")
         return out
 
     def observe(self, q: str, run: SensitivityRun, p) -> tuple[np.ndarray, np.ndarray, np.ndarray]:

@@ -35,6 +35,7 @@ from orbitdesk.engine.chunks import compiled_system, run_chunks, split, worker_c
 from orbitdesk.engine.progress import Reporter
 from orbitdesk.engine.status import OK
 from orbitdesk.system.compiled_system import MAP
+from orbitdesk.engine import limits
 
 PLANE, STROBE, MAXIMA, ITERATE = "plane", "strobe", "maxima", "iterate"
 MODES = (PLANE, STROBE, MAXIMA, ITERATE)
@@ -290,6 +291,7 @@ def sweep(system, parameter: str, values, settings: SweepSettings | None = None,
     settings travel to the workers. ``Cancelled`` is raised when ``cancel`` is set. ``compiled``: None
     compiles the engine when the work pays for it, True always, False never (plain Python)."""
     settings = (settings or SweepSettings()).checked(system)
+    check_sweep_size(system, len(np.ravel(values)), settings)
     if parameter not in system.parameters:
         raise ValueError(f"unknown parameter '{parameter}' (parameters: {', '.join(system.parameters) or 'none'})")
     values = np.asarray(values, dtype=float).ravel()
@@ -311,6 +313,26 @@ def sweep(system, parameter: str, values, settings: SweepSettings | None = None,
         samples, times, lyap, status = _sweep_arrays(system, parameter, values, settings, u0, base_p,
                                                      cancel, progress, compiled)
     return SweepResult(parameter, values, samples, settings.observe, settings.mode, lyap, status, times)
+
+
+def check_sweep_size(system, count: int, s: SweepSettings) -> None:
+    """Refuse a sweep of ``count`` values beyond the limits (limits.py) before anything is allocated;
+    ``s`` as returned by ``SweepSettings.checked``."""
+    # a value and a time per sample, and the states, parameters and working arrays of each member
+    limits.check_memory(16.0 * count * max(s.samples, 1) + 8.0 * count * (8 + 6 * system.n_states),
+                        f"a sweep of {count:,} values with {s.samples:,} samples each")
+    if system.kind == MAP:
+        per_member = float(s.transient) + s.samples
+    else:
+        limits.check_span(float(s.transient), "the transient")
+        limits.check_span(float(s.duration), "the duration")
+        strobe = s.mode == STROBE and s.period
+        length = float(s.transient) + (s.samples * s.period if strobe else s.duration)
+        if s.dt:  # fixed RK4 steps
+            per_member = limits.steps_of(length, min(s.dt, s.period) if strobe else s.dt)
+        else:  # adaptive: at least one step per strobe period (the pace of each member is judged as it runs)
+            per_member = limits.steps_of(length, s.period) if strobe else 0.0
+    limits.check_steps(per_member * count, f"a sweep of {count:,} values")
 
 
 def _sweep_arrays(system, parameter, values, settings, u0, base_p, cancel=None, progress=None, compiled=None):

@@ -27,6 +27,7 @@ from PySide6.QtWidgets import QMessageBox
 from orbitdesk.document import project as core_project
 from orbitdesk.document.project import ProjectError
 from orbitdesk.document.safe_files import DiskState, plain_reason
+from orbitdesk.language.model_file import read_regular
 
 from orbitdesk.app.plain_text import message_box, plain_message
 
@@ -156,7 +157,7 @@ class Recoverable:
 
 def _read_meta(path: Path) -> dict:
     try:
-        data = json.loads(path.read_text(encoding="utf-8"))
+        data = json.loads(read_regular(path, 1_000_000)[0].decode("utf-8"))
     except (OSError, ValueError):
         return {}
     return data if isinstance(data, dict) else {}

@@ -10,7 +10,8 @@ import argparse
 import importlib
 import sys
 
-from orbitdesk.cli.common import CommandError, EXIT_ERRORS, EXIT_UNREADABLE
+from orbitdesk.cli.common import CommandError, EXIT_ERRORS, EXIT_UNREADABLE, parse_positive
+from orbitdesk.engine import limits
 
 COMMAND_MODULES = ["open", "check", "run", "equilibria", "cycle", "section", "lyapunov", "sweep", "grid", "basins",
                    "export", "fit", "continuation", "response"]
@@ -34,7 +35,27 @@ def build_parser(only: str | None = None) -> argparse.ArgumentParser:
                 continue  # command not installed in this build
             raise
         module.register(sub)
+    for name, command in sub.choices.items():
+        if name != "open":
+            add_limit_options(command)
     return parser
+
+
+def add_limit_options(parser) -> None:
+    group = parser.add_argument_group("limits (a request beyond them is refused before it starts)")
+    group.add_argument("--max-steps", metavar="N",
+                       help=f"steps one request may take: integration steps, iterations, periods, Newton "
+                            f"steps (default {limits.DEFAULTS.steps:.0e})")
+    group.add_argument("--max-memory", metavar="MB",
+                       help=f"megabytes of results one request may hold (default {limits.DEFAULTS.memory / 1e6:,.0f})")
+
+
+def _limits_for(args):
+    steps = getattr(args, "max_steps", None)
+    memory = getattr(args, "max_memory", None)
+    return limits.using_limits(
+        steps=None if steps is None else parse_positive(steps, "--max-steps"),
+        memory=None if memory is None else parse_positive(memory, "--max-memory") * 1e6)
 
 
 def main(argv=None) -> int:
@@ -48,10 +69,14 @@ def main(argv=None) -> int:
             from orbitdesk.app.launch import main as app_main
 
             return app_main([], path=None)
-        return int(args.handler(args) or 0)
+        with _limits_for(args):
+            return int(args.handler(args) or 0)
     except CommandError as err:
         print(err.message, file=sys.stderr)
         return err.code
+    except limits.LimitExceeded as err:
+        print(f"orbitdesk: {err}", file=sys.stderr)
+        return EXIT_ERRORS
     except KeyboardInterrupt:
         print("interrupted", file=sys.stderr)
         return 130

@@ -6,7 +6,8 @@ import numpy as np
 
 from orbitdesk.engine.executors import SchedulerError, executor_for
 from orbitdesk.analyses.sweep import (BOTH, DOWN, ITERATE, MAXIMA, PLANE, STROBE, UP, SweepSettings, accuracy_like,
-                                      sweep)
+                                      check_sweep_size, sweep)
+from orbitdesk.engine.limits import LimitExceeded
 from orbitdesk.system.compiled_system import MAP
 
 from orbitdesk.cli.common import (CommandError, add_value_options, load_system, parse_assignments, parse_number, parse_positive,
@@ -115,6 +116,12 @@ def run(args) -> int:
         raise CommandError("--from and --to must differ")
     p, u0 = values_for(system, source, args.set, args.init)
     settings = sweep_settings(system, source, args)
+    try:
+        check_sweep_size(system, args.count, settings.checked(system))  # before the values are allocated
+    except LimitExceeded:
+        raise  # the command line's limit message
+    except ValueError as err:
+        raise CommandError(str(err)) from None
     values = np.linspace(start, stop, args.count)
     if args.workers is not None and args.workers < 1:
         raise CommandError("--workers must be at least 1")

@@ -18,10 +18,11 @@ import io
 import math
 import os
 import re
-import stat
 from dataclasses import dataclass, field
 
 import numpy as np
+
+from orbitdesk.language.model_file import read_regular
 
 MAX_DATA_BYTES = 8 * 1024 * 1024     # one data file
 MAX_ROWS = 200_000                   # samples of one data set
@@ -124,21 +125,12 @@ def read_bytes(path) -> bytes:
     """The bytes of a regular file no larger than MAX_DATA_BYTES; FIFOs and devices are refused unopened."""
     path = os.fspath(path)
     try:
-        st = os.stat(path)
+        data = read_regular(path, MAX_DATA_BYTES)[0]
     except OSError as e:
         raise DataError(f"cannot read the file: {e.strerror or e}", source=os.path.basename(path)) from None
-    if not stat.S_ISREG(st.st_mode):
-        raise DataError("not a regular file (a pipe, device or folder cannot be imported)",
-                        source=os.path.basename(path))
-    flags = os.O_RDONLY | getattr(os, "O_NONBLOCK", 0) | getattr(os, "O_BINARY", 0)
-    try:
-        fd = os.open(path, flags)
-    except OSError as e:
-        raise DataError(f"cannot read the file: {e.strerror or e}", source=os.path.basename(path)) from None
-    with os.fdopen(fd, "rb") as f:
-        if not stat.S_ISREG(os.fstat(f.fileno()).st_mode):  # replaced between the checks
-            raise DataError("not a regular file", source=os.path.basename(path))
-        data = f.read(MAX_DATA_BYTES + 1)
+    except ValueError as e:
+        raise DataError(f"{e} (a pipe, device or folder cannot be imported)",
+                        source=os.path.basename(path)) from None
     if len(data) > MAX_DATA_BYTES:
         raise DataError(f"file too large (over {MAX_DATA_BYTES // (1024 * 1024)} MiB)", source=os.path.basename(path))
     return data

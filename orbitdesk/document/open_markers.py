@@ -21,6 +21,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from orbitdesk.document.safe_files import HOST_TAG, pid_alive
+from orbitdesk.language.model_file import read_regular
 
 FOREIGN_AGE = 7 * 24 * 3600.0
 _live_tokens: set[str] = set()   # markers held by windows of this process
@@ -104,7 +105,7 @@ def others(folder, path, mine: Marker | None = None, now: float | None = None) -
                 os.unlink(entry.path)
             continue
         try:
-            data = json.loads(Path(entry.path).read_text(encoding="utf-8"))
+            data = json.loads(read_regular(entry.path, 100_000)[0].decode("utf-8"))  # never blocks on a FIFO
             opened_at = float(data.get("opened_at") or 0.0)
             host = str(data.get("host") or "")[:200]
         except (OSError, ValueError, TypeError, AttributeError):

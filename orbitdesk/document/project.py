@@ -28,6 +28,9 @@ from dataclasses import dataclass, field
 from orbitdesk.document import safe_files
 from orbitdesk.engine.settings import RULES, SAVED, RunSettings, SettingsError
 from orbitdesk.document.safe_files import DiskState, current_state, state_of
+from orbitdesk.engine import limits
+from orbitdesk.document.view_settings import clean_settings
+from orbitdesk.language.model_file import read_regular
 
 FORMAT_NAME = "orbitdesk-project"
 FORMAT_VERSION = 1
@@ -290,9 +293,13 @@ def project_from_dict(d) -> Project:
                 x = _num(x, _sub(path, key))
             values[key] = x
         try:
-            return RunSettings.from_mapping(values)
+            settings = RunSettings.from_mapping(values)
+            limits.check_run_settings(settings)  # stored steps and times that would make a run endless
         except SettingsError as problem:
             raise ProjectError(_sub(path, problem.name), problem.message) from None
+        except limits.LimitExceeded as problem:
+            raise ProjectError(path, str(problem)) from None
+        return settings
 
     def parameter(v, path):
         p = ParameterSetting(**_fields(v, path, {"value": (_num, _REQUIRED), "lo": (_opt_num, None),
@@ -311,7 +318,12 @@ def project_from_dict(d) -> Project:
         return [step(x, _sub(path, i)) for i, x in enumerate(v)]
 
     def views(v, path):
-        return {k: _free_obj(x, _sub(path, k)) for k, x in _obj(v, path).items()}
+        out = {}
+        for k, x in _obj(v, path).items():
+            # every view setting is checked and clamped here, once (a count of 3e9, a range of 1e308)
+            out[k], notes = clean_settings(k, _free_obj(x, _sub(path, k)))
+            warnings.extend(f"{path}.{note}" for note in notes)
+        return out
 
     def datasets(v, path):
         from orbitdesk.document.datasets import datasets_from_json
@@ -416,21 +428,16 @@ def loads(text: str) -> Project:
 
 
 def _read(path: str) -> tuple[bytes, os.stat_result] | None:
-    """Bytes of a regular file and its fstat (None if it does not exist), refusing oversized or special files."""
+    """Bytes of a regular file and its fstat (None if it does not exist), refusing oversized or special
+    files (a FIFO, device, socket or folder unopened)."""
     try:
-        fd = os.open(path, os.O_RDONLY | getattr(os, "O_NONBLOCK", 0) | getattr(os, "O_BINARY", 0))
+        data, st = read_regular(path, MAX_FILE_BYTES)
     except FileNotFoundError:
         return None
     except OSError as e:
         raise ProjectError("$", f"cannot read {path!r}: {e.strerror or e}") from None
-    try:
-        with os.fdopen(fd, "rb") as f:
-            st = os.fstat(f.fileno())
-            if not stat.S_ISREG(st.st_mode):
-                raise ProjectError("$", f"{path!r} is not a regular file")
-            data = f.read(MAX_FILE_BYTES + 1)
-    except OSError as e:
-        raise ProjectError("$", f"cannot read {path!r}: {e.strerror or e}") from None
+    except ValueError as e:
+        raise ProjectError("$", f"cannot read {path!r}: {e}") from None
     if len(data) > MAX_FILE_BYTES:
         raise ProjectError("$", f"file too large (over {MAX_FILE_BYTES} bytes): {path!r}")
     return data, st

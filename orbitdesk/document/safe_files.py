@@ -25,6 +25,8 @@ import time
 from contextlib import suppress
 from dataclasses import dataclass
 
+from orbitdesk.language.model_file import open_regular
+
 STALE_AGE = 3600.0      # seconds: a temporary file whose owner cannot be checked is stale after this
 _CHUNK = 1 << 20
 
@@ -81,13 +83,10 @@ def current_state(path) -> DiskState | None:
     Raises OSError if it cannot be read, ValueError if it is not a regular file (never blocks on a FIFO).
     """
     try:
-        fd = os.open(os.fspath(path), os.O_RDONLY | getattr(os, "O_NONBLOCK", 0) | getattr(os, "O_BINARY", 0))
+        fd, st = open_regular(path)
     except FileNotFoundError:
         return None
     try:
-        st = os.fstat(fd)
-        if not stat.S_ISREG(st.st_mode):
-            raise ValueError(f"{os.fspath(path)!r} is not a regular file")
         h, size = hashlib.sha256(), 0
         while chunk := os.read(fd, _CHUNK):
             h.update(chunk)

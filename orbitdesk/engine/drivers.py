@@ -13,6 +13,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from orbitdesk.engine import limits
 from orbitdesk.engine.progress import Cancelled
 from orbitdesk.engine.explicit_rk import KINDS, PAUSED
 from orbitdesk.engine.methods import method as method_info
@@ -20,9 +21,8 @@ from orbitdesk.engine.status import C_CANCELLED, C_STEP_FAILED
 
 PAUSE_STEPS = 512
 MEMBER_PAUSE_STEPS = 5_000  # ensembles: steps between pauses (summed over members)
-# a run whose pace would need more steps than this (judged after STEP_CHECK_AFTER steps) ends with
-# step_failed: a solution sliding along a kink (sign, abs, if) otherwise steps for days
-MAX_PROJECTED_STEPS = 50_000_000
+# a run whose pace would need more steps than the step limit (limits.py; judged after STEP_CHECK_AFTER
+# steps) ends with step_failed: a solution sliding along a kink (sign, abs, if) otherwise steps for days
 STEP_CHECK_AFTER = 100_000
 _BUFFER = 4096
 
@@ -120,16 +120,17 @@ def flow_run(engine, name, t0, t1, y0, p, rtol=1e-8, atol=1e-10, max_step=None, 
 
 
 def _too_slow(st, t0, span) -> str:
-    """A plain-words reason to stop when the run's pace would need more than MAX_PROJECTED_STEPS."""
+    """A plain-words reason to stop when the run's pace would need more steps than the step limit."""
     taken = st[2] + st[3]
     if taken < STEP_CHECK_AFTER:
         return ""
     done = abs(st[0] - t0)
     projected = taken * abs(span) / done if done > 0 else float("inf")
-    if projected <= MAX_PROJECTED_STEPS:
+    limit = limits.current().steps
+    if projected <= limit:
         return ""
     return (f"the run stopped after {int(taken):,} steps at t = {st[0]:.6g}: at this pace it would need about "
-            f"{projected:.2g} steps (the limit is {MAX_PROJECTED_STEPS:,}). The solution may be sliding along a "
+            f"{projected:.2g} steps (the limit is {limit:,.0f}; {limits.TABLE['steps'][1]} raises it). The solution may be sliding along a "
             "kink of the model (abs, sign, heaviside, if) where the right side switches back and forth, or "
             "the system is stiff: try the stiff method, a looser tolerance or a shorter run")
 

@@ -20,7 +20,7 @@ from scipy.optimize import brentq
 
 from orbitdesk.engine.methods import NAMES
 from orbitdesk.engine.settings import RunSettings
-from orbitdesk.engine import compiled, drivers
+from orbitdesk.engine import compiled, drivers, limits
 from orbitdesk.engine.status import (C_CANCELLED, C_DIVERGED, C_STEP_FAILED, C_UNDEFINED, CANCELLED, DIVERGED,
                                  OK, STEP_FAILED, UNDEFINED)
 from orbitdesk.engine.status import word as status_word
@@ -117,6 +117,7 @@ def simulate(system: CompiledSystem, settings: RunSettings | None = None, u0=Non
     u0 = system.initial.copy() if u0 is None else np.asarray(u0, dtype=float)
     p = system.param_values.copy() if p is None else np.asarray(p, dtype=float)
     report = Reporter(progress, cancel)
+    check_request(system, settings)
     if system.kind == MAP:
         return _iterate(system, settings, u0, p, report)
     if system.delays:  # delay models: the method of steps (engine/delay.py)
@@ -126,6 +127,17 @@ def simulate(system: CompiledSystem, settings: RunSettings | None = None, u0=Non
     if settings.method_info.family == "explicit_rk" and all(ev.plane is not None for ev in events):
         return _integrate_loop(system, settings, u0, p, list(events), report)
     return _integrate(system, settings, u0, p, list(events), report)
+
+
+def check_request(system: CompiledSystem, settings: RunSettings) -> None:
+    """Size a run before it starts (limits.py): the steps it implies and the memory of its output;
+    LimitExceeded names the limit and how to raise it."""
+    row = 8.0 * (system.n_states + 1 + len(system.derived_names))  # bytes per output point
+    limits.check_run_settings(settings, system.kind == MAP)
+    if system.kind == MAP:
+        limits.check_memory(row * (settings.steps + 1.0), f"a run of {settings.steps:,} iterations")
+    elif settings.samples > 1:
+        limits.check_memory(row * settings.samples, f"a run of {settings.samples:,} samples")
 
 
 def _describe_stop(system, code, t, y, p, h, bound) -> str:

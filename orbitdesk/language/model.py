@@ -23,12 +23,16 @@ from orbitdesk.language.expression import (CONSTANTS, FUNCTIONS, KEYWORDS, MAX_L
                          parse_expression, walk)
 from orbitdesk.language.families import expand_statements, parse_clause_bounds, split_family_clause
 from orbitdesk.language.functions import define_functions, function_nonsmooth
-from orbitdesk.language.symbolic import ModelFunction, Span, constant_value, substitute, to_sympy, tree_size
+from orbitdesk.language.symbolic import ModelFunction, Span, constant_value, substitute, to_sympy, tree_depth, tree_size
 
 MAX_MODEL_CHARS = 1_000_000
 MAX_STATEMENTS = 5_000
 MAX_ORDER = 9
 MAX_EXPRESSION_SIZE = 100_000  # nodes of one equation after derived quantities are put in
+# levels of one equation after derived quantities are put in: sympy differentiates, substitutes and
+# prints recursively (about five frames per level), so this keeps a model's symbolic work well within
+# Python's default recursion limit; generated code stays flat at any depth (system/flat_code.py)
+MAX_TREE_DEPTH = 80
 MAX_EXPANDED_STATEMENTS = 20_000  # statements once family lines are written out
 RESERVED_NAMES = frozenset({"sum", "if"})
 SUGGESTION_BUDGET = 20_000  # name comparisons spent on did-you-mean fixes per model
@@ -442,6 +446,13 @@ class _Builder:
             self.add(st.line, where.column, where.end, ERROR,
                      f"with the definitions it uses put in, this expression has more than "
                      f"{MAX_EXPRESSION_SIZE:,} parts; simplify the chain of definitions")
+            return
+        if tree_depth(value) > MAX_TREE_DEPTH:
+            self.add(st.line, where.column, where.end, ERROR,
+                     ("with the definitions it uses put in, this" if subs else "this")
+                     + f" expression is nested more than {MAX_TREE_DEPTH} levels deep (the symbolic work on it "
+                       f"would recurse too deep); " + ("shorten the chain of definitions" if subs else
+                                                        "split it with derived quantities"))
             return
         resolved[key] = value
 

@@ -440,6 +440,11 @@ def substitute(expr: sp.Expr, values: dict, where: Span) -> sp.Expr:
     return map_tree(expr, lambda item: values.get(item, item), combine)
 
 
+def tree_depth(expr: sp.Expr) -> int:
+    """Levels of ``expr`` (an atom has one)."""
+    return map_tree(expr, lambda item: 1, lambda item, args: 1 + max(args))
+
+
 def tree_size(expr: sp.Expr, seen: dict) -> int:
     """Number of nodes of ``expr`` written out as a tree (shared parts counted each time they occur)."""
     stack = [(expr, False)]

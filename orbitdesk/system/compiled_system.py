@@ -20,6 +20,7 @@ from sympy.printing.pycode import PythonCodePrinter
 
 from orbitdesk.system.derivatives import jacobian_almost_everywhere
 from orbitdesk.language.model import FLOW, MAP, ParsedModel, parse_model
+from orbitdesk.system.flat_code import flat_cse
 
 
 class ModelError(ValueError):
@@ -36,11 +37,13 @@ class UndefinedValue(ArithmeticError):
     """An expression of the model is undefined (log of a negative, division by zero, ...)."""
 
 
-def _lambdify(args, exprs, modules):
+def lambdify(args, exprs, modules="math"):
+    """``sympy.lambdify`` of trees in plain symbols with this module's printers and flat code
+    (``flat_code.flat_cse``): every evaluator made from a model's trees is made here."""
     # scalar code uses the printer that writes non-integer powers as math.pow: float arithmetic,
     # so 2^floor(x) with a large x overflows instead of building an exact huge integer
     printer = _printer() if modules == "math" else _vector_printer() if modules == "numpy" else None
-    return sp.lambdify(args, exprs, modules=modules, cse=len(exprs) > 1, printer=printer)
+    return sp.lambdify(args, exprs, modules=modules, cse=flat_cse, printer=printer)
 
 
 @dataclass
@@ -146,7 +149,7 @@ class CompiledSystem:
 
     def _compile(self, exprs, modules):
         t, u, p, _ = self._plain
-        return _lambdify([t, *u, *p], self.plain(exprs), modules)
+        return lambdify([t, *u, *p], self.plain(exprs), modules)
 
     # ------------------------------------------------------------ evaluators
     @cached_property
@@ -172,7 +175,7 @@ class CompiledSystem:
     @cached_property
     def _f_packed(self):
         t, u, p, _ = self._plain
-        return sp.lambdify([t, u, p], self.plain(self.f), modules="math", cse=len(self.f) > 1, printer=_printer())
+        return lambdify([t, u, p], self.plain(self.f))
 
     def packed_rhs(self):
         """The fastest scalar evaluator, ``f(t, u, p) -> list`` with u and p as sequences."""
@@ -374,7 +377,7 @@ def scalar_source(t, u, p, exprs) -> str:
     undefined values inside itself, so no wrapper frame is needed."""
     printer = _printer()
     constants, exprs = hoist_constants(list(exprs), p)
-    replacements, reduced = sp.cse(exprs, symbols=sp.numbered_symbols("_x"), optimizations=None)
+    replacements, reduced = flat_cse(exprs, symbols=sp.numbered_symbols("_x"))
     pnames = [printer.doprint(s) for s in p]
     unpack = ", ".join(printer.doprint(s) for s in u) + ("," if len(u) == 1 else "")
     lines = [f"def _bind({', '.join(pnames + ['_on_error'])}):"]
@@ -432,7 +435,7 @@ def _first_undefined(expr, values):
             continue  # conditions and the branches' pairs of if() have no value of their own
         names = sorted(sub.free_symbols, key=lambda s: s.name)
         try:  # never let sympy evaluate with the numbers put in: 477^max(2e7, -x) would be exact
-            fn = sp.lambdify(names, sub, modules="math", printer=_printer())
+            fn = lambdify(names, sub)
             value = complex(fn(*(values[s] for s in names)))
         except (TypeError, ValueError, ZeroDivisionError, OverflowError, KeyError):
             return sub

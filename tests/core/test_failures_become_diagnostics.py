@@ -76,3 +76,97 @@ def test_abs_of_an_expression_sympy_cannot_prove_real_has_a_printable_derivative
     # |x * sqrt(y)|: sympy's own derivative holds re() and im() parts; between the jumps it is sign() * ...
     system = compile_model("x' = abs(x*sqrt(y))\ny' = -y\nx(0) = 2\ny(0) = 4\n")
     assert system.jac(0.0, [2.0, 4.0]).tolist() == [[2.0, 0.5], [0.0, -1.0]]
+
+
+# ---------------------------------------------------------------- large and deep models (item 5)
+
+def test_a_sum_of_six_thousand_terms_runs_and_has_equilibria():
+    # four definitions of 1,499 cosines each: Python's compiler recursed once per term of the generated sum
+    lines = [f"d{j} = " + "+".join(f"cos({i}*x+{j})" for i in range(1, 1500)) for j in range(4)]
+    system = compile_model("\n".join(lines) + "\nx' = -x + 1e-6*(d0+d1+d2+d3)\n")
+    reference = -0.3 + 1e-6 * sum(math.cos(i * 0.3 + j) for j in range(4) for i in range(1, 1500))  # plain floats
+    assert system.rhs(0.0, [0.3])[0] == pytest.approx(reference, rel=1e-12)
+    assert system.rhs_vec(0.0, np.array([[0.3]]))[0, 0] == pytest.approx(reference, rel=1e-12)
+    from orbitdesk.analyses.equilibria import find_equilibria
+
+    found = find_equilibria(system, starts=5, exact=False)
+    assert len(found) >= 1 and abs(system.rhs(0.0, found[0].vector)[0]) < 1e-12
+
+
+def test_a_tower_of_nested_square_roots_has_the_golden_ratio_as_equilibrium():
+    # x' = -x + sqrt(1 + sqrt(1 + ... sqrt(1 + x))): the fixed point of x = sqrt(1 + x) is (1 + sqrt 5)/2
+    # (closed form). A tower as deep as the language allows runs; the generated code is flat
+    from orbitdesk.language.model import MAX_TREE_DEPTH
+
+    levels = (MAX_TREE_DEPTH - 2) // 2
+    system = compile_model("x' = -x + " + "sqrt(1+" * levels + "x" + ")" * levels + "\nx(0) = 1\n")
+    from orbitdesk.analyses.equilibria import find_equilibria
+
+    found = find_equilibria(system, starts=5, exact=False)
+    assert [round(float(e.vector[0]), 12) for e in found] == [round((1 + math.sqrt(5)) / 2, 12)]
+    assert system.jac(0.0, [1.0])[0, 0] == pytest.approx(-1.0 + 0.5 ** levels / math.prod(
+        math.sqrt(v) for v in _tower_values(levels, 1.0)), rel=1e-9)
+
+
+def _tower_values(levels, x):
+    values = []  # 1 + x, 1 + sqrt(1 + x), ... : d/dx of the tower is prod 1/(2 sqrt(v)) over these
+    for _ in range(levels):
+        values.append(1 + x)
+        x = math.sqrt(1 + x)
+    return values
+
+
+@pytest.mark.parametrize("text", [
+    "x' = -x + " + "sqrt(1+" * 60 + "x" + ")" * 60 + "\n",  # one line, deeper than the bound
+    "a0 = sqrt(1+x)\n" + "".join(f"a{i} = sqrt(1+a{i - 1})\n" for i in range(1, 300)) + "x' = -x + a299\n",
+])
+def test_a_tower_deeper_than_the_bound_is_a_diagnostic_not_a_crash(text):
+    # the bound keeps sympy's recursion (differentiation, printing) within Python's default limit
+    import sys
+
+    limit = sys.getrecursionlimit()
+    model = parse_model(text)
+    assert not model.ok and any("levels deep" in d.message for d in model.errors)
+    assert sys.getrecursionlimit() == limit
+
+
+def test_every_symbolic_step_of_the_exact_solve_runs_under_its_time_limit(monkeypatch):
+    # building the equations (sympy's expand of a 699-factor product took 176 s) happens in the child
+    import time
+
+    from orbitdesk.analyses import equilibria
+
+    def slow_equations(system, p):
+        time.sleep(30)
+
+    monkeypatch.setattr(equilibria, "_exact_equations", slow_equations)
+    system = compile_model("x' = x*(1 - x)\n")
+    points, notes = equilibria.exact_solutions(system, system.param_values, timeout=0.5)
+    assert points == [] and notes == ["the exact solve did not finish within 0.5 s; Newton search only"]
+
+
+NONSMOOTH = "x' = y\ny' = -x - 0.3*y + 0.5*sign(y) + heaviside(x) - 0.1*floor(x) + 0.2*mod(x, 1)\nx(0) = 1\n"
+
+
+def test_the_stiff_method_runs_a_model_with_jumps():
+    # Radau with our Jacobian against scipy's Radau with its finite-difference Jacobian
+    from scipy.integrate import solve_ivp
+
+    from orbitdesk.engine.runs import RunSettings, simulate
+
+    system = compile_model(NONSMOOTH)
+    run = simulate(system, RunSettings(method="stiff", t_end=3.0, samples=7, rtol=1e-9, atol=1e-11))
+    ref = solve_ivp(lambda t, u: system.rhs(t, u), (0, 3), [1.0, 0.0], method="Radau", t_eval=np.linspace(0, 3, 7),
+                    rtol=1e-9, atol=1e-11)
+    assert run.ok and np.allclose(run.states, ref.y, atol=1e-5)
+
+
+@pytest.mark.parametrize("command", [["equilibria"], ["cycle"], ["export", "--report"], ["run", "--method", "stiff"]])
+def test_commands_on_a_model_with_jumps_end_without_a_traceback(tmp_path, capsys, command):
+    from orbitdesk.cli import main
+
+    path = tmp_path / "jumps.txt"
+    path.write_text(NONSMOOTH)
+    code = main([*command, str(path)] + (["-o", str(tmp_path / "r.html")] if "--report" in command else []))
+    out, err = capsys.readouterr()
+    assert code in (0, 1) and "Traceback" not in err and "could not finish" not in err, err

@@ -326,9 +326,32 @@ def test_model_file_size_is_refused_from_the_directory_entry(tmp_path):
 
 
 @pytest.mark.skipif(not Path("/dev/zero").exists(), reason="needs /dev/zero")
-def test_endless_device_is_refused_after_a_bounded_read():
-    with pytest.raises(ValueError, match="larger than"):
+def test_endless_device_is_refused_unopened():
+    with pytest.raises(ValueError, match="this is a device, not a regular file"):
         read_model_file("/dev/zero")
+
+
+@pytest.mark.skipif(not hasattr(os, "mkfifo"), reason="needs FIFOs")
+def test_fifo_folder_and_socket_paths_are_refused_without_blocking(tmp_path):
+    # open() of a FIFO with no writer blocks for ever; these are refused from the directory entry
+    import socket
+
+    from orbitdesk.document import project
+
+    fifo = tmp_path / "model.txt"
+    os.mkfifo(fifo)
+    with pytest.raises(ValueError, match="this is a pipe .FIFO., not a regular file"):
+        read_model_file(fifo)
+    project_fifo = tmp_path / "work.orbitdesk"
+    os.mkfifo(project_fifo)
+    with pytest.raises(project.ProjectError, match="not a regular file"):
+        project.load(project_fifo)
+    with pytest.raises(ValueError, match="this is a folder, not a regular file"):
+        read_model_file(tmp_path)
+    with socket.socket(socket.AF_UNIX) as server:
+        server.bind(str(tmp_path / "s.txt"))
+        with pytest.raises(ValueError, match="this is a socket, not a regular file"):
+            read_model_file(tmp_path / "s.txt")
 
 
 def test_model_file_decoding(tmp_path):

@@ -18,17 +18,13 @@ import numpy as np
 import sympy as sp
 from scipy.integrate import ode, solve_ivp
 
-from orbitdesk.system.compiled_system import MAP, CompiledSystem, UndefinedValue
+from orbitdesk.system.compiled_system import MAP, CompiledSystem, UndefinedValue, lambdify
 
 UNDEFINED = (ValueError, ZeroDivisionError, TypeError, OverflowError)
 
 
 class ContinuationError(ArithmeticError):
     """A function of the model could not be evaluated; the message says where, in plain words."""
-
-
-def _lambdify(args, exprs):
-    return sp.lambdify(args, exprs, modules="math", cse=len(exprs) > 1)
 
 
 class ModelFunctions:
@@ -101,15 +97,15 @@ class ModelFunctions:
     # ------------------------------------------------------------ generated code
     @cached_property
     def _f(self):
-        return _lambdify([self.t, *self.u, *self.p], self.f_exprs)
+        return lambdify([self.t, *self.u, *self.p], self.f_exprs)
 
     @cached_property
     def _jac(self):
-        return _lambdify([self.t, *self.u, *self.p], list(self.jac_exprs))
+        return lambdify([self.t, *self.u, *self.p], list(self.jac_exprs))
 
     @cached_property
     def _fp(self):
-        return [_lambdify([self.t, *self.u, *self.p], [sp.diff(e, s) for e in self.f_exprs]) for s in self.p]
+        return [lambdify([self.t, *self.u, *self.p], [sp.diff(e, s) for e in self.f_exprs]) for s in self.p]
 
     @cached_property
     def _vectors(self):
@@ -125,7 +121,7 @@ class ModelFunctions:
     def _B(self):
         a, b, _ = self._vectors
         at0 = {self.t: 0}
-        return _lambdify([*self.u, *self.p, *a, *b], [e.xreplace(at0) for e in self._bilinear_exprs])
+        return lambdify([*self.u, *self.p, *a, *b], [e.xreplace(at0) for e in self._bilinear_exprs])
 
     @cached_property
     def _C(self):
@@ -133,7 +129,7 @@ class ModelFunctions:
         at0 = {self.t: 0}
         exprs = [sum((sp.diff(e, self.u[j]) * c[j] for j in range(self.n)), sp.S.Zero).xreplace(at0)
                  for e in self._bilinear_exprs]
-        return _lambdify([*self.u, *self.p, *a, *b, *c], exprs)
+        return lambdify([*self.u, *self.p, *a, *b, *c], exprs)
 
     @cached_property
     def _stacked_exprs(self):
@@ -156,7 +152,7 @@ class ModelFunctions:
             if k is not None:
                 exprs += [jw[i] + sp.diff(self.f_exprs[i], self.p[k]) for i in range(self.n)]
                 args += w
-            cache[key] = _lambdify([*args, *self.p], exprs)
+            cache[key] = lambdify([*args, *self.p], exprs)
         fn = cache[key]
         pv = tuple(float(v) for v in p)
 

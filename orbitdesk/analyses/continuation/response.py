@@ -20,7 +20,7 @@ import sympy as sp
 
 from orbitdesk.analyses.cycles import CycleError, detect_forcing_period, find_cycle
 from orbitdesk.engine.progress import CancelToken, Reporter
-from orbitdesk.system.compiled_system import MAP, CompiledSystem
+from orbitdesk.system.compiled_system import MAP, CompiledSystem, lambdify
 from orbitdesk.analyses.continuation.arclength import StepSettings, continue_curve, newton_bordered, null_tangent
 from orbitdesk.analyses.continuation.branches import check_interval, default_settings, to_special
 from orbitdesk.analyses.continuation.functions import ContinuationError, ModelFunctions, extreme, integrate
@@ -96,7 +96,7 @@ def _single_frequency(funcs: ModelFunctions):
     omega = omegas.pop()
     if omega.free_symbols - set(funcs.p):
         return None
-    return sp.lambdify(funcs.p, omega, modules="math")
+    return lambdify(funcs.p, omega)
 
 
 def response_settings(lo, hi, max_points=400) -> StepSettings:

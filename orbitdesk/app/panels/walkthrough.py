@@ -23,6 +23,7 @@ from PySide6.QtWidgets import (QAbstractItemView, QAbstractSlider, QAbstractSpin
 
 from orbitdesk.document.project import WalkthroughStep
 from orbitdesk.document.walkthrough import VIEW_IDS, apply_step, delete_step, move_step, record_step, render_note
+from orbitdesk.document.view_settings import clean_settings
 
 from orbitdesk.app import views as views_pkg
 from orbitdesk.app.dock_layout import is_open, keep_side_widths, show_docks
@@ -117,7 +118,7 @@ def _apply_view(view, changes: dict) -> None:
         current = view.view_settings()
     except Exception:  # noqa: BLE001
         current = {}
-    view.apply_view_settings({**current, **changes})
+    view.apply_view_settings(clean_settings(view.view_id, {**current, **changes})[0])
 
 
 class ScreenResult:

@@ -13,6 +13,8 @@ from PySide6.QtCore import QEvent, Qt, QTimer
 from PySide6.QtWidgets import (QAbstractButton, QCheckBox, QComboBox, QFrame, QHBoxLayout, QLabel, QPushButton,
                                QSizePolicy, QVBoxLayout, QWidget)
 
+from orbitdesk.document.view_settings import clean_settings
+
 from orbitdesk.app.plots.plot_style import hint_label, number_text, orbit_middle
 
 DIRECTION_LABELS = ("upward", "downward", "both ways")
@@ -112,8 +114,8 @@ class SessionView(QWidget):
         return layout
 
     def saved_view_settings(self) -> dict:
-        """This view's settings as the open project keeps them."""
-        return self.session.project.views.get(self.view_id, {})
+        """This view's settings as the open project keeps them, checked and clamped (view_settings.py)."""
+        return clean_settings(self.view_id, self.session.project.views.get(self.view_id, {}))[0]
 
     # ------------------------------------------------------------ stale results
     def values_now(self, skip=None) -> dict:
