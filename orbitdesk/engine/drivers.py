@@ -24,6 +24,7 @@ MEMBER_PAUSE_STEPS = 5_000  # ensembles: steps between pauses (summed over membe
 # a run whose pace would need more steps than the step limit (limits.py; judged after STEP_CHECK_AFTER
 # steps) ends with step_failed: a solution sliding along a kink (sign, abs, if) otherwise steps for days
 STEP_CHECK_AFTER = 100_000
+SLOW_WINDOWS = 16  # pauses in a row at a pace beyond the limit
 _BUFFER = 4096
 
 
@@ -79,6 +80,7 @@ def flow_run(engine, name, t0, t1, y0, p, rtol=1e-8, atol=1e-10, max_step=None, 
     steps_t, steps_y, events = [], [], []
     span = t1 - t0
     note = ""
+    pace = _Pace(t0, t1)
     while True:
         code = engine.loops.erk_advance(engine.f, kind, which, adaptive, y, p, K, F, st, float(t1), rtol, atol, max_step,
                                   float(bound), grid, out_t, out_y, bool(every_step), rows, dirs, terminal,
@@ -93,7 +95,7 @@ def flow_run(engine, name, t0, t1, y0, p, rtol=1e-8, atol=1e-10, max_step=None, 
             st[7] = 0
         if code != PAUSED:
             break
-        note = _too_slow(st, t0, span)
+        note = pace.check(st)
         if note:
             code = C_STEP_FAILED
             break
@@ -119,20 +121,36 @@ def flow_run(engine, name, t0, t1, y0, p, rtol=1e-8, atol=1e-10, max_step=None, 
     return out
 
 
-def _too_slow(st, t0, span) -> str:
-    """A plain-words reason to stop when the run's pace would need more steps than the step limit."""
-    taken = st[2] + st[3]
-    if taken < STEP_CHECK_AFTER:
-        return ""
-    done = abs(st[0] - t0)
-    projected = taken * abs(span) / done if done > 0 else float("inf")
-    limit = limits.current().steps
-    if projected <= limit:
-        return ""
-    return (f"the run stopped after {int(taken):,} steps at t = {st[0]:.6g}: at this pace it would need about "
-            f"{projected:.2g} steps (the limit is {limit:,.0f}; {limits.TABLE['steps'][1]} raises it). The solution may be sliding along a "
-            "kink of the model (abs, sign, heaviside, if) where the right side switches back and forth, or "
-            "the system is stiff: try the stiff method, a looser tolerance or a shorter run")
+class _Pace:
+    """Judges a run's pace at each pause: it ends (a plain-words reason) when the steps it still needs
+    exceed the step limit (limits.py), at the pace of the last SLOW_WINDOWS pauses (a solution that
+    starts sliding along a jump late in the run) or, after STEP_CHECK_AFTER steps, of the whole run."""
+
+    def __init__(self, t0, t1):
+        self.t0, self.t1 = float(t0), float(t1)
+        self.last_t, self.last_taken, self.slow = float(t0), 0.0, 0
+
+    def check(self, st) -> str:
+        taken, t, limit = st[2] + st[3], st[0], limits.current().steps
+        window, advanced = taken - self.last_taken, abs(t - self.last_t)
+        self.last_t, self.last_taken = t, taken
+        remaining = abs(self.t1 - t)
+        needed = window * remaining / advanced if advanced > 0 else (math.inf if remaining > 0 else 0.0)
+        self.slow = self.slow + 1 if needed > limit else 0
+        done = abs(t - self.t0)
+        if self.slow >= SLOW_WINDOWS:
+            projected = taken + needed
+        elif taken >= STEP_CHECK_AFTER:
+            projected = taken * abs(self.t1 - self.t0) / done if done > 0 else math.inf
+        else:
+            return ""
+        if projected <= limit:
+            return ""
+        return (f"the run stopped after {int(taken):,} steps at t = {t:.6g}: at this pace it would need about "
+                f"{projected:.2g} steps (the limit is {limit:,.0f}; {limits.TABLE['steps'][1]} raises it). The "
+                "solution may be sliding along a kink or jump of the model (abs, sign, heaviside, mod, floor, if) "
+                "where the right side switches back and forth, or the system is stiff: try the stiff method, a "
+                "looser tolerance or a shorter run")
 
 
 def map_run(engine, n0, n_end, y0, p, bound=1e10, report=None):
@@ -168,6 +186,7 @@ class TangentOutput:
     code: int
     t: float  # where it ended
     y: np.ndarray
+    note: str = ""  # why the run stopped early, when the code alone does not say
 
 
 def flow_tangent(engine, name, t0, t1, keep_from, u0, V0, p, interval, rtol=1e-9, atol=1e-12,
@@ -180,16 +199,21 @@ def flow_tangent(engine, name, t0, t1, keep_from, u0, V0, p, interval, rtol=1e-9
     p = np.ascontiguousarray(p, dtype=float)
     K = np.zeros((16, z.size))
     F = np.zeros((7, z.size))
-    st = np.zeros(12)
+    st = np.zeros(14)
     st[0] = t0
     sums = np.zeros(m)
     count = max(1.0, abs(t1 - keep_from) / interval)
     stride = max(1, math.ceil(count / max_rows))
     rows, row_t = np.empty((max_rows + 2, m)), np.empty(max_rows + 2)
+    note, pace = "", _Pace(t0, t1)
     while True:
         code = engine.loops.flow_tangent(engine.f, kind, adaptive, z, p, K, F, st, float(t1), rtol, atol, max_step, float(bound),
                                    float(interval), int(m), sums, float(keep_from), rows, row_t, int(stride), 64)
         if code != PAUSED:
+            break
+        note = pace.check(st)
+        if note:
+            code = C_STEP_FAILED
             break
         if report is not None:
             try:
@@ -198,7 +222,8 @@ def flow_tangent(engine, name, t0, t1, keep_from, u0, V0, p, interval, rtol=1e-9
                 code = C_CANCELLED
                 break
     r = int(st[9])
-    return TangentOutput(sums, float(st[10]), rows[:r].copy(), row_t[:r].copy(), int(code), float(st[0]), z[:n].copy())
+    return TangentOutput(sums, float(st[10]), rows[:r].copy(), row_t[:r].copy(), int(code), float(st[0]), z[:n].copy(),
+                         note)
 
 
 def map_tangent(engine, n0, n_end, keep_from, u0, V0, p, bound=1e10, max_rows=5000, report=None) -> TangentOutput:

@@ -62,13 +62,17 @@ def _record(sums, span, rows, row_t, st, t):
         st[9] = r + 1
 
 
+INTERVAL_STEPS = 4096
+
+
 @loop
 def flow_tangent(f, kind, adaptive, z, p, K, F, st, t_end, rtol, atol, max_step, bound, interval, m,
                  sums, keep_from, rows, row_t, stride, max_intervals):
     """Integrate z = (u, V) from st[0] to ``t_end`` renormalising every ``interval``.
 
-    ``st`` as erk_advance's plus [8] renormalisations done, [9] rows written, [10] time averaged.
-    At most ``max_intervals`` intervals per call (PAUSED after them). Returns a status code."""
+    ``st`` as erk_advance's plus [8] renormalisations done, [9] rows written, [10] time averaged,
+    [12] the end of the interval under way, [13] 1 while one is. At most ``max_intervals`` intervals
+    and ``INTERVAL_STEPS`` steps of one interval per call (PAUSED after them). Returns a status code."""
     n = z.shape[0] // (m + 1)
     logs = np.empty(m)
     grid = np.empty(0)
@@ -85,16 +89,20 @@ def flow_tangent(f, kind, adaptive, z, p, K, F, st, t_end, rtol, atol, max_step,
     while (t_end - st[0]) * direction > 1e-13 * max(1.0, abs(t_end)):
         if done >= max_intervals:
             return PAUSED
-        t_start = st[0]
-        target = t_start + direction * interval
-        if (target - t_end) * direction > 0.0 or (t_end - target) * direction <= 1e-9 * interval:
-            target = t_end
-        while True:
-            code = erk_advance(f, kind, m, adaptive, z, p, K, F, st, target, rtol, atol, max_step, bound,
-                               grid, out_t, out_y, False, planes, plane_dir, terminal, ev_t, ev_y, ev_k,
-                               1 << 40)
-            if code != PAUSED:
-                break
+        if st[13] == 0.0:  # a new interval: its end is kept in st[12] while it is under way
+            target = st[0] + direction * interval
+            if (target - t_end) * direction > 0.0 or (t_end - target) * direction <= 1e-9 * interval:
+                target = t_end
+            st[12], st[13] = target, 1.0
+        target = st[12]
+        # a budget of steps per call: an interval that needs millions (a solution sliding along a jump)
+        # pauses inside, so the driver can judge the pace, report progress and cancel
+        code = erk_advance(f, kind, m, adaptive, z, p, K, F, st, target, rtol, atol, max_step, bound,
+                           grid, out_t, out_y, False, planes, plane_dir, terminal, ev_t, ev_y, ev_k,
+                           INTERVAL_STEPS)
+        if code == PAUSED:
+            return PAUSED
+        st[13] = 0.0
         if code != 0:
             return code
         st[0] = target

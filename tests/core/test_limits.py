@@ -88,10 +88,11 @@ def test_a_backward_run_goes_back_in_time_and_lyapunov_refuses_it(flow):
 
 def test_a_lyapunov_run_of_a_sliding_mod_model_ends():
     # x' = 0.5 - mod(-x, 1) pulls x onto x = 0 from both sides, where it jumps: adaptive steps shrink
-    # to 1e-9 and the run crept on for ever; it now stops with a plain status
+    # to 1e-9 and the run crept on for ever (the whole run's pace looked fine: the sliding starts
+    # late); the pace of the last pauses now ends it with a plain status
     system = compile_model("x' = 0.5 - mod(-x, 1)\ny' = -y + x\nx(0) = 0.3\n")
     result = lyapunov_spectrum(system, t_end=20.0)
-    assert not result.ok and "the step size collapsed" in result.message and "slides along the jump" in result.message
+    assert not result.ok and "sliding along a kink or jump" in result.message and "--max-steps" in result.message
 
 
 def test_the_command_line_states_the_limit_and_its_option(tmp_path, capsys):
