@@ -36,7 +36,7 @@ from orbitdesk.engine.progress import Cancelled, Reporter
 from orbitdesk.engine.settings import RunSettings
 from orbitdesk.engine.status import CANCELLED, DIVERGED, OK, STEP_FAILED, UNDEFINED
 from orbitdesk.language.symbolic import float_value
-from orbitdesk.system.compiled_system import FLOW, UNDEFINED_ERRORS, CompiledSystem, _printer
+from orbitdesk.system.compiled_system import FLOW, UNDEFINED_ERRORS, CompiledSystem, lambdify
 
 DISCONTINUITY_ORDER = 6  # jumps of the derivative up to this order are stepped onto
 MAX_BREAKPOINTS = 20_000
@@ -103,7 +103,7 @@ def history_functions(system: CompiledSystem, p, u0):
             value = float(u0[i])
             out.append(lambda t, v=value: v)
             continue
-        fn = sp.lambdify([system.t_symbol, *system.param_symbols], expr, modules="math", printer=_printer())
+        fn = lambdify([system.t_symbol, *system.param_symbols], expr)
         pv = [float(v) for v in p]
         out.append(lambda t, fn=fn, pv=pv: float(fn(t, *pv)))
     return out

@@ -26,6 +26,7 @@ import sympy as sp
 from orbitdesk.system.codegen import scalar_function
 from orbitdesk.engine.settings import RunSettings
 from orbitdesk.system.compiled_system import MAP, CompiledSystem, VectorPrinter
+from orbitdesk.system.flat_code import flat_cse
 
 
 
@@ -44,10 +45,7 @@ def _function(name: str, args: list[str], system: CompiledSystem, exprs, printer
     """``def name(args): ...`` returning the list of ``exprs`` (in the system's plain symbols)."""
     _, u, p, _ = system._plain
     plain = system.plain(exprs)
-    if len(plain) > 1:
-        subs, plain = sp.cse(plain, list=False)
-    else:
-        subs = []
+    subs, plain = flat_cse(plain)  # shared parts; no line too wide or deep for Python's compiler
     body = [f"def {name}({', '.join(args)}):"]
     body.append(f"    _t = {args[0]}")
     if unpack and u:
