@@ -11,6 +11,8 @@ from pathlib import Path
 
 import numpy as np
 
+from orbitdesk.engine import limits
+
 EXIT_OK, EXIT_ERRORS, EXIT_UNREADABLE = 0, 1, 2
 
 
@@ -146,6 +148,7 @@ def parse_axis(text: str, option: str, names, what: str):
         raise CommandError(f"{option}: the number of values must be a whole number, not {parts[2]!r}") from None
     if count < 1 or (lo == hi and count > 1):
         raise CommandError(f"{option}: give at least one value and two different ends")
+    limits.check_memory(8.0 * count, f"{option} with {count:,} values")  # before the values are made
     return name, np.linspace(lo, hi, count)
 
 

@@ -21,7 +21,6 @@ from __future__ import annotations
 
 import re
 
-import sympy as sp
 
 from orbitdesk.system.codegen import scalar_function
 from orbitdesk.engine.settings import RunSettings

@@ -318,3 +318,46 @@ def test_generated_family_models_parse_and_compile(text):
         check_diagnostics(text, model)
         if model.ok:
             check_compiled(model)
+
+
+# ---------------------------------------------------------------- (e) deep chains and wide sums
+
+WRAPPERS = ["sqrt(1 + {})", "sin({})", "0.5*exp(-{})", "abs({})", "mod({} + 1, 3)", "atan2({}, 2)", "({})^2/(1 + ({})^2)",
+            "if({} > 0, 1, -1)", "floor({})", "tanh({})", "log(1 + ({})^2)", "min({}, 1)"]
+
+
+@st.composite
+def deep_models(draw):
+    """Chains of definitions, each wrapping the previous in a function, around the depth bound, and
+    sums of many terms: the symbolic work must end in a diagnostic or a compiled model, never a
+    RecursionError, and never by changing Python's recursion limit."""
+    length = draw(st.integers(1, 60))
+    lines = ["a0 = x"]
+    for i in range(1, length + 1):
+        lines.append(f"a{i} = " + draw(st.sampled_from(WRAPPERS)).replace("{}", f"a{i - 1}"))
+    terms = draw(st.integers(0, 3000))
+    wide = "+".join(f"cos({k}*x)" for k in range(terms)) if terms else "0"
+    lines.append(f"x' = -x + 0.1*a{length} + 1e-6*({wide})")
+    return "\n".join(lines) + "\nx(0) = 0.5\n"
+
+
+@budget(25)
+@given(deep_models())
+def test_deep_chains_and_wide_sums_end_in_a_model_or_a_diagnostic(text):
+    import sys
+
+    limit = sys.getrecursionlimit()
+    with hang_guard(text):
+        model = parse_model(text)
+        check_diagnostics(text, model)
+        if model.ok:
+            system = compile_model(model)
+            try:
+                value = system.rhs(0.0, [0.5])[0]
+                jac = system.jac(0.0, [0.5])
+            except UndefinedValue:
+                return
+            assert math.isfinite(value) and jac.shape == (1, 1)
+        else:
+            assert any("levels deep" in d.message or "parts" in d.message for d in model.errors), model.errors
+    assert sys.getrecursionlimit() == limit
