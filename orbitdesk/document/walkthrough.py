@@ -20,9 +20,10 @@ import math
 import numbers
 import re
 
-from orbitdesk.engine.settings import SAVED, SettingsError, check_value
+from orbitdesk.engine import limits
+from orbitdesk.engine.settings import SAVED, RunSettings, SettingsError, check_value
 from orbitdesk.document.project import WalkthroughStep
-from orbitdesk.document.view_settings import VIEW_SETTINGS, missing_names, unknown_keys, without
+from orbitdesk.document.view_settings import VIEW_SETTINGS, clean_settings, missing_names, unknown_keys, without
 
 SNAPSHOT_KEYS = ("parameters", "initial", "solver", "views", "open_views", "camera",
                  "selected_equilibrium", "section", "time_cursor")
@@ -276,7 +277,13 @@ def apply_step(step: WalkthroughStep, model_info, current_state: dict) -> tuple[
 
     if snapshot.get("solver"):
         old = state.get("solver")
-        state["solver"] = {**(old if isinstance(old, dict) else {}), **snapshot["solver"]}
+        merged = {**(old if isinstance(old, dict) else {}), **snapshot["solver"]}
+        try:  # together with the settings in force: a run that would never end is not set up
+            limits.check_run_settings(RunSettings.from_mapping({k: v for k, v in merged.items() if k in SAVED}))
+        except (SettingsError, limits.LimitExceeded) as problem:
+            problems.append(f"the step's solver settings are not used: {problem}")
+        else:
+            state["solver"] = merged
 
     if "views" in snapshot:
         old = state.get("views")
@@ -285,6 +292,8 @@ def apply_step(step: WalkthroughStep, model_info, current_state: dict) -> tuple[
             found, keep = _view_problems(view_id, settings, series, states, params)
             problems.extend(found)
             if keep is not None:
+                keep, notes = clean_settings(view_id, keep)  # a count of 3e9, a range of 1e308
+                problems.extend(f"the step's view setting {note}" for note in notes)
                 views[view_id] = {**views.get(view_id, {}), **keep}
         state["views"] = views
 

@@ -27,15 +27,15 @@ def paths(tmp_path):
     ("forced", ["run", "--samples", "100000000"], "samples"),
     ("logistic", ["run", "--steps", "100000000"], "--max-steps"),
     ("forced", ["run", "--t-end", "1e300"], "finite time"),
-    ("forced", ["run", "--method", "rk4", "--dt", "1e-300"], "--max-steps"),
-    ("forced", ["equilibria", "--starts", "100000000"], "Newton starts"),
+    ("forced", ["run", "--method", "rk4", "--t-end", "1e9"], "--max-steps"),
+    ("logistic", ["equilibria", "--starts", "100000000"], "Newton starts"),
     ("logistic", ["sweep", "--param", "r", "--from", "3", "--to", "4", "--count", "1000000000"],
      "a sweep of 1,000,000,000 values"),
     ("forced", ["section", "--plane", "x=0", "--count", "1000000000"], "--max-memory"),
     ("forced", ["section", "--strobe", "6.283185307179586", "--transient", "1e300"], "finite time"),
     ("forced", ["section", "--strobe", "1e-300", "--transient", "1"], "--max-steps"),
     ("logistic", ["cycle", "--period", "1000000000"], "a period-1,000,000,000 cycle"),
-    ("logistic", ["grid", "--x", "r=3:4:1000000000", "--y", "r=3:4:2"], "1,000,000,000"),
+    ("logistic", ["grid", "--lyapunov", "--x", "r=3:4:1000000000", "--y", "r=3:4:2"], "1,000,000,000"),
 ])
 def test_endless_requests_end_at_once_with_the_limit_named(paths, capsys, model, args, words):
     code = main([*args, paths[model]])

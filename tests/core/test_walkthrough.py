@@ -130,3 +130,16 @@ def test_render_note_lets_no_html_through():
 def test_render_note_leaves_products_alone():
     assert render_note("2*x*3 and a * b") == "<p>2*x*3 and a * b</p>"
     assert render_note("") == ""
+
+
+def test_a_step_cannot_set_up_endless_work_or_views_beyond_their_bounds():
+    # issue 10, items 6 and 7: a step's solver settings are checked together with those in force
+    # (limits.py), its view settings clamped like a project's (view_settings.BOUNDS)
+    step = WalkthroughStep("huge", "", {"solver": {"method": "rk4", "dt": 1e-300},
+                                        "views": {"sweep": {"count": 3e9}, "phase_plane": {"range": [[0, 1e308], [0, 1]]}}})
+    new, problems = apply_step(step, compile_model(LORENZ), {"solver": {"t_end": 60.0}})
+    text = " | ".join(problems)
+    assert "the step's solver settings are not used" in text and "--max-steps" in text
+    assert new["solver"] == {"t_end": 60.0}
+    assert new["views"]["sweep"]["count"] == 10_000 and "range" not in new["views"]["phase_plane"]
+    assert "sweep.count: 3000000000.0 is out of range; 10000 is used" in text
