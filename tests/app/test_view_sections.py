@@ -188,3 +188,17 @@ def test_a_strobe_phase_samples_later_in_each_period(qtbot, session):
                       session.initial_vector(), session.param_vector())
     assert result.points[:, 0] == pytest.approx(direct.final_state, abs=1e-6)
     assert view.view_settings()["phase"] == 1.5
+
+
+def test_plane_section_of_a_delay_model(qtbot, session, artifacts):
+    # x' = -(pi/2) x(t - 1) with the history cos(pi t / 2): the solution stays cos(pi t / 2) (closed form),
+    # rising through 0 at t = 3, 7, 11, ... with x'(t) = pi/2 there
+    view = make_view(qtbot, session)
+    view.auto.setChecked(False)
+    load(qtbot, session, "a = pi/2\nx' = -a*x(t - 1)\nx(t) = cos(a*t) for t <= 0\ny' = -y + x\n")
+    view.set_plane("x", 0.0, "up")
+    view.count.setValue(5)
+    view.transient.setValue(0.0)
+    result = wait_section(qtbot, view, view.compute)
+    np.testing.assert_allclose(result.times, [3.0, 7.0, 11.0, 15.0, 19.0], atol=1e-6)
+    view.grab().save(os.path.join(artifacts, "view_sections_delay.png"))
