@@ -312,7 +312,8 @@ def _integrate(system, settings, u0, p, events, report) -> Trajectory:
             solver = _RK4Stepper(fun, t0, u0, t1, settings.dt)
         elif settings.method_info.stiff:  # every step's interpolant held to the tolerance (stiff.py)
             solver = StiffStepper(settings.method_info.scipy_name, fun, lambda t, y: system.jac(t, y, p), t0, u0,
-                                  t1, settings.rtol, settings.atol, settings.max_step)
+                                  t1, settings.rtol, settings.atol, settings.max_step,
+                                  check=settings.samples > 2 or bool(events))  # only step ends read otherwise
         else:
             kwargs = dict(rtol=settings.rtol, atol=settings.atol)
             if settings.max_step:

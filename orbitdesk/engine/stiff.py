@@ -28,12 +28,13 @@ class StiffStepper:
     ``t_old``, ``status``, ``dense_output``), whose accepted steps all pass the interpolant check."""
 
     def __init__(self, scipy_name: str, fun, jac, t0: float, y0, t_bound: float, rtol: float, atol: float,
-                 max_step: float | None = None):
+                 max_step: float | None = None, check: bool = True):
         self._cls = getattr(scipy.integrate, scipy_name)
         self._fun, self._jac, self._t_bound = fun, jac, float(t_bound)
         self.rtol, self.atol = float(rtol), float(atol)
         self.max_step = self._user_max = np.inf if not max_step else float(max_step)
         self._passed = 0
+        self.check = check  # False: nothing is read between step ends (no samples, no crossings)
         self.redone = 0  # steps redone shorter because their interpolant missed the tolerance
         self.t, self.y, self.t_old = float(t0), np.asarray(y0, dtype=float).copy(), None
         self._start(self.t, self.y)
@@ -52,7 +53,7 @@ class StiffStepper:
             if self.status == "failed":
                 return message
             h = self._solver.t - t_old
-            if self._interpolant_fits(t_old, y_old, h):
+            if not self.check or self._interpolant_fits(t_old, y_old, h):
                 break
             self.redone += 1
             self._passed = 0
@@ -101,4 +102,65 @@ def _snapshot(solver):
     return copy
 
 
-__all__ = ["StiffStepper"]
+def solve_at(scipy_name: str, fun, jac, t0: float, y0, t1: float, rtol: float, atol: float, grid,
+             report=None, max_step: float | None = None):
+    """The solution at the times ``grid`` (increasing towards t1, the last may be t1) by a checked
+    stiff stepper; (values (len(y0), len(grid)), steps, None) or (values so far, steps, the failure)."""
+    grid = np.asarray(grid, dtype=float)
+    inside = bool(np.any((grid - t1) * (1.0 if t1 >= t0 else -1.0) < 0))  # read off an interpolant
+    stepper = StiffStepper(scipy_name, fun, jac, t0, y0, t1, rtol, atol, max_step, check=inside)
+    out, k, steps = [], 0, 0
+    direction = 1.0 if t1 >= t0 else -1.0
+    while stepper.status == "running" and k < grid.size:
+        message = stepper.step()
+        steps += 1
+        if stepper.status == "failed":
+            return _columns(out, len(y0)), steps, message or "the step size collapsed"
+        if not np.all(np.isfinite(stepper.y)):
+            return _columns(out, len(y0)), steps, "the solution is not a number"
+        j = k
+        while j < grid.size and (grid[j] - stepper.t) * direction <= 0:
+            j += 1
+        if j > k:
+            values = np.asarray(stepper.dense_output()(grid[k:j]), dtype=float).reshape(len(y0), -1)
+            out.extend(values.T)
+            k = j
+        if report is not None:
+            report((stepper.t - t0) / (t1 - t0))
+    return _columns(out, len(y0)), steps, None
+
+
+def _columns(rows, n):
+    return np.array(rows, dtype=float).reshape(-1, n).T if rows else np.empty((n, 0))
+
+
+def spectral_radius(system, p, states) -> float:
+    """The largest |eigenvalue| of the Jacobian over the given states (columns): the fastest rate."""
+    rates = [0.0]
+    for u in np.asarray(states, dtype=float).T:
+        try:
+            rates.append(float(np.max(np.abs(np.linalg.eigvals(system.jac(0.0, u, p))))))
+        except (ArithmeticError, np.linalg.LinAlgError, ValueError):
+            continue
+    return max(rates)
+
+
+STIFF_STEPS = 20000  # an explicit run shorter than this is cheap whatever holds its step back
+
+
+def looks_stiff(system, p, run, min_steps: int = STIFF_STEPS) -> bool:
+    """Whether an explicit run was held back by stability rather than accuracy, enough for the implicit
+    method to pay: its step size collapsed, or it took more than ``min_steps`` steps and its mean step
+    times the fastest rate along it (spectral radius of the Jacobian at 40 of its samples) is above
+    1.5 (explicit Runge-Kutta methods are stable up to about 3 to 6 there; accuracy alone keeps it
+    well below 1 on non-stiff problems)."""
+    if run.status == "step_failed":
+        return True
+    if run.time.size < 2 or run.steps_taken < max(min_steps, 10):
+        return False
+    mean_step = abs(float(run.time[-1] - run.time[0])) / run.steps_taken
+    picks = np.linspace(0, run.time.size - 1, min(40, run.time.size)).astype(int)
+    return mean_step * spectral_radius(system, p, run.states[:, picks]) > 1.5
+
+
+__all__ = ["StiffStepper", "looks_stiff", "solve_at", "spectral_radius"]
