@@ -349,3 +349,16 @@ def test_two_delays_against_an_exponential_solution():
     run = simulate(system, RunSettings(t_end=10, samples=101, rtol=1e-10, atol=1e-12))
     assert run.status == OK
     assert np.max(np.abs(run.states[0] - np.exp(lam * run.time))) < 1e-9
+
+
+def test_largest_exponent_at_a_stable_equilibrium_is_the_rightmost_root():
+    # near a stable equilibrium nearby histories close in at the rate of the rightmost characteristic root:
+    # x' = -a x(t - 1) - x^3 at a = 1.2 gives Re W_0(-1.2) (closed form; scipy's lambertw)
+    from scipy.special import lambertw
+
+    from orbitdesk.analyses.lyapunov import largest_lyapunov_two_trajectory
+
+    system = compile_model("a = 1.2\nx' = -a*x(t - 1) - x^3\nx(0) = 0.5\n")
+    result = largest_lyapunov_two_trajectory(system, t_end=120, transient=20)
+    assert result.ok
+    assert result.largest == pytest.approx(lambertw(-1.2).real, abs=0.01)
