@@ -362,3 +362,16 @@ def test_largest_exponent_at_a_stable_equilibrium_is_the_rightmost_root():
     result = largest_lyapunov_two_trajectory(system, t_end=120, transient=20)
     assert result.ok
     assert result.largest == pytest.approx(lambertw(-1.2).real, abs=0.01)
+
+
+def test_section_on_a_derived_quantity_with_a_delay_finds_the_maxima():
+    # x' = -(pi/2) x(t - 1), history cos(pi t / 2): x = cos(pi t / 2) (closed form); the rate, a derived
+    # quantity with the delayed value in it, falls through 0 at the maxima t = 4, 8, 12 where x = 1
+    from orbitdesk.analyses.sections import plane_section
+
+    system = compile_model("a = pi/2\nrate = -a*x(t - 1)\nx' = rate\nx(t) = cos(a*t) for t <= 0\n")
+    result = plane_section(system, coordinate="rate", value=0.0, direction="down", count=3, transient=1.0,
+                           settings=RunSettings(t_end=10, rtol=1e-10, atol=1e-12))
+    assert result.status == OK and result.complete
+    assert result.times == pytest.approx([4.0, 8.0, 12.0], abs=1e-6)
+    assert result.points[0] == pytest.approx([1.0, 1.0, 1.0], abs=1e-9)
