@@ -115,11 +115,9 @@ def _caption(view) -> str:
 
 
 def _view_equilibria(window, system):
-    view = window.views.get("equilibria")
-    if view is None or getattr(view, "system", None) is not system:
-        return None
-    found = getattr(view, "equilibria", None)
-    return list(found) if found else None
+    """The equilibria the live document holds for this system and the present values (None: none found)."""
+    s = window.session
+    return list(s.equilibria) if s.system is system and s.equilibria else None
 
 
 def report_html(window, equilibria=None) -> str:
@@ -193,7 +191,7 @@ def export_report(window, path, on_done=None, search_equilibria: bool = True) ->
         return find_equilibria(system, p, u0=u0, exact_timeout=2.0, cancel=cancel, progress=report)
 
     window.statusBar().showMessage("Looking for equilibria for the report…")
-    session.jobs.submit("export_report", job, finish, on_error=lambda _msg: finish(None))
+    session.run_job("export_report", job, finish, on_error=lambda _msg: finish(None))
 
 
 # ---------------------------------------------------------------- dialogs and menu

@@ -653,7 +653,7 @@ class MainWindow(QMainWindow):
         if busy:
             self.progress.setValue(0)
             self.progress.show()
-            if self.session.jobs.running("run"):
+            if self.session.job_running("run"):
                 self.run_status.setText("Running…")
         else:
             self.progress.hide()

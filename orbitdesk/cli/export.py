@@ -4,11 +4,10 @@ reproducing the project's fit to its data. Prints to stdout without -o."""
 
 from __future__ import annotations
 
-import copy
 import os
 import sys
 
-from orbitdesk.document.project import ParameterSetting, Project
+from orbitdesk.document.project import Project
 
 from orbitdesk.cli.common import CommandError, add_value_options, load_system, read_source, values_for
 from orbitdesk.cli.run import settings_for
@@ -30,15 +29,12 @@ def register(sub):
 
 
 def _project_for(source, system, p, u0) -> Project:
-    """The project to export (a bare model file becomes one) with the effective values filled in."""
-    project = copy.deepcopy(source.project) if source.project is not None else Project(
-        name=source.path.stem, model=source.text)
-    for name, value in zip(system.parameters, p):
-        old = project.parameters.get(name)
-        lo, hi = system.param_ranges.get(name, (None, None))
-        project.parameters[name] = ParameterSetting(float(value), old.lo if old else lo, old.hi if old else hi)
-    project.initial = {name: float(v) for name, v in zip(system.states, u0)}
-    return project
+    """The project to export (a bare model file becomes one) with the effective values filled in: the
+    live document's project (``values_for`` put --set/--init into it)."""
+    if source.doc.system is not system:
+        source.doc.adopt_system(system, None)
+    source.doc.show_state(dict(zip(system.parameters, map(float, p))), dict(zip(system.states, map(float, u0))))
+    return source.doc.to_project()
 
 
 def _equilibria(system, p):

@@ -26,8 +26,8 @@ def register(sub):
 
 
 def settings_for(source, args) -> RunSettings:
-    """Run settings: defaults, then the project's solver settings, then the command's options."""
-    settings = source.project.solver if source.project is not None else RunSettings()
+    """Run settings: defaults, then the project's solver settings (the live document's), then the
+    command's options."""
     changes = {}
     if getattr(args, "t_end", None) is not None:
         changes["t_end"] = parse_number(args.t_end, "--t-end")
@@ -41,7 +41,7 @@ def settings_for(source, args) -> RunSettings:
         if getattr(args, name, None) is not None:
             changes[name] = parse_positive(getattr(args, name), f"--{name}")
     try:
-        return settings.replace(**changes)
+        return source.doc.run_settings(**changes)
     except SettingsError as problem:
         option = "--" + problem.name.replace("_", "-")
         raise CommandError(f"{option if problem.name in changes else problem.name}: {problem.message}") from None

@@ -12,10 +12,9 @@ from __future__ import annotations
 import copy
 import html
 import math
-import time
 
 from PySide6.QtCore import QByteArray, QEvent, Qt, QTimer, Signal
-from PySide6.QtGui import QFont, QPalette, QUndoCommand
+from PySide6.QtGui import QFont, QPalette
 from PySide6.QtWidgets import (QAbstractItemView, QAbstractSlider, QAbstractSpinBox, QApplication, QComboBox,
                                QDockWidget, QFrame, QHBoxLayout, QLabel, QLineEdit, QListWidget, QListWidgetItem,
                                QPlainTextEdit, QPushButton, QSizePolicy, QSplitter, QTextBrowser, QTextEdit,
@@ -29,7 +28,7 @@ from orbitdesk.app.dock_layout import is_open, keep_side_widths, show_docks
 from orbitdesk.app.plain_text import rich_tip
 from orbitdesk.app.session import SOLVER_FIELDS
 
-EDIT_MERGE_SECONDS = 2.0
+_SELECTED = object()   # the row selected now
 TITLE_SCALE = (1.3, 2.3)       # step title: normal, presenting (times the panel's font)
 NOTE_SCALE = (1.0, 1.75)       # note text
 PRESENT_WIDTH = 0.32           # share of the window the panel takes while presenting
@@ -220,52 +219,6 @@ def _apply_to_view(view, changes: dict, section: dict | None) -> None:
         compute()
 
 
-# ---------------------------------------------------------------- undo commands
-
-class _StepsCommand(QUndoCommand):
-    """Replace the whole list of steps (record, delete, move); ``select`` is the row to select after."""
-
-    def __init__(self, panel: "WalkthroughPanel", label: str, old: list, new: list, select_old, select_new):
-        super().__init__(label)
-        self.panel, self.old, self.new = panel, copy.deepcopy(old), copy.deepcopy(new)
-        self.select_old, self.select_new = select_old, select_new
-
-    def redo(self):
-        self.panel._set_steps(copy.deepcopy(self.new), self.select_new)
-
-    def undo(self):
-        self.panel._set_steps(copy.deepcopy(self.old), self.select_old)
-
-
-class _StepTextCommand(QUndoCommand):
-    """A step's title or note; consecutive typing in the same field merges into one undo step."""
-
-    ID = 2001
-
-    def __init__(self, panel: "WalkthroughPanel", index: int, field: str, old: str, new: str):
-        super().__init__("Edit step title" if field == "title" else "Edit step note")
-        self.panel, self.index, self.field, self.old, self.new = panel, index, field, old, new
-        self.stamp = time.monotonic()
-
-    def id(self):
-        return self.ID
-
-    def redo(self):
-        self.panel._set_text(self.index, self.field, self.new)
-
-    def undo(self):
-        self.panel._set_text(self.index, self.field, self.old)
-
-    def mergeWith(self, other):
-        if (other.id() != self.ID or (other.index, other.field) != (self.index, self.field)
-                or other.stamp - self.stamp > EDIT_MERGE_SECONDS):
-            return False
-        self.new, self.stamp = other.new, other.stamp
-        if self.new == self.old:
-            self.setObsolete(True)
-        return True
-
-
 # ---------------------------------------------------------------- the panel
 
 def _tool(text: str, tip: str, slot, checkable: bool = False) -> QToolButton:
@@ -313,6 +266,7 @@ class WalkthroughPanel(QWidget):
         self._syncing = False
         self._build()
         self.session.projectLoaded.connect(self._on_project_loaded)
+        self.session.stepChanged.connect(self._step_text_changed)
         for module, dock in window.view_docks.items():
             dock.visibilityChanged.connect(lambda visible, m=module: visible and self._apply_pending(m))
         self._refresh_list(None)
@@ -533,8 +487,11 @@ class WalkthroughPanel(QWidget):
             _apply_to_view(self.main_window.views[module], changes, section)
 
     # ------------------------------------------------------------ editing (undoable)
-    def _push(self, label: str, new: list, select_new) -> None:
-        self.session.undo_stack.push(_StepsCommand(self, label, self.steps, new, self.selected_index(), select_new))
+    def _push(self, label: str, new: list, select_new, select_old=_SELECTED) -> None:
+        """Replace the steps (record, delete, move) as one undo step; the row to select after redo / undo."""
+        select_old = self.selected_index() if select_old is _SELECTED else select_old
+        self.session.replace_part("walkthrough", new, label,
+                                  after=lambda redone: self._steps_replaced(select_new if redone else select_old))
 
     def record(self, title: str | None = None, note: str = "") -> WalkthroughStep | None:
         """Add a step showing what is on screen now, after the selected step (else at the end)."""
@@ -600,11 +557,10 @@ class WalkthroughPanel(QWidget):
     def set_title(self, index: int, text: str) -> None:
         text = text if text.strip() else self.steps[index].title
         if text != self.steps[index].title:
-            self.session.undo_stack.push(_StepTextCommand(self, index, "title", self.steps[index].title, text))
+            self.session.doc.set_step_text(index, "title", text)
 
     def set_note(self, index: int, text: str) -> None:
-        if text != self.steps[index].note:
-            self.session.undo_stack.push(_StepTextCommand(self, index, "note", self.steps[index].note, text))
+        self.session.doc.set_step_text(index, "note", text)
 
     def _edited(self, field: str, text: str) -> None:
         i = self.selected_index()
@@ -620,21 +576,19 @@ class WalkthroughPanel(QWidget):
         new = [self.steps[k] for k in order]
         if self.current is not None:
             self.current = order.index(self.current)
-        self.session.undo_stack.push(_StepsCommand(self, "Move walkthrough step", self.steps, new,
-                                                   order[moved] if moved is not None else None, moved))
+        self._push("Move walkthrough step", new, moved, order[moved] if moved is not None else None)
 
-    # appliers called by the undo commands
-    def _set_steps(self, steps: list, select) -> None:
-        self.session.project.walkthrough = steps
+    # after the document's walkthrough changed
+    def _steps_replaced(self, select) -> None:
+        steps = self.steps
         if self.current is not None and self.current >= len(steps):
             self.current = len(steps) - 1 if steps else None
         self._refresh_list(select)
         self._update_controls()
 
-    def _set_text(self, index: int, field: str, value: str) -> None:
+    def _step_text_changed(self, index: int) -> None:
         if not 0 <= index < len(self.steps):
             return
-        setattr(self.steps[index], field, value)
         item = self.step_list.item(index)
         if item is not None:
             item.setText(self._item_text(index))

@@ -274,7 +274,7 @@ class JobStrip(QWidget):
 
     def cancel(self) -> None:
         if self.key is not None and self.running:
-            self.session.jobs.cancel(self.key)
+            self.session.cancel_job(self.key)
             self._end("cancelled", "Cancelled")
 
     def show_message(self, text: str) -> None:
@@ -288,7 +288,7 @@ class JobStrip(QWidget):
                 self._on_progress(fraction)
 
     def _check_alive(self) -> None:
-        if self.running and not self.session.jobs.running(self.key):
+        if self.running and not self.session.job_running(self.key):
             self._end("dropped", "Stopped: the model or its values changed")
 
     def _end(self, state: str, message: str) -> None:
