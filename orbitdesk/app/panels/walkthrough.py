@@ -21,6 +21,7 @@ from PySide6.QtWidgets import (QAbstractItemView, QAbstractSlider, QAbstractSpin
                                QToolButton, QVBoxLayout, QWidget)
 
 from orbitdesk.document.project import WalkthroughStep
+from orbitdesk.document.views import VIEWS
 from orbitdesk.document.walkthrough import VIEW_IDS, apply_step, delete_step, move_step, record_step, render_note
 
 from orbitdesk.app import views as views_pkg
@@ -46,11 +47,7 @@ CAMERA_VIEW, EQUILIBRIA_VIEW, SECTIONS_VIEW = "phase_space_3d", "equilibria", "s
 
 def _view_modules(window) -> dict[str, str]:
     """view_id -> module name for every view this window can show (module name when not yet imported)."""
-    out = {}
-    for module in window.view_docks:
-        view = window.views.get(module)
-        out[getattr(view, "view_id", module)] = module
-    return out
+    return {v.id: v.module for v in VIEWS if v.module in window.view_docks}
 
 
 def model_info(session):
@@ -188,7 +185,7 @@ def put_on_screen(window, new_state: dict, snapshot: dict, arrange: bool = True,
             view = window.views.get(modules.get(view_id, ""))
             if view is not None and view_id != SECTIONS_VIEW:
                 _bring_up_to_date(view, s.generation != generation)
-            if view is not None and hasattr(view, "fit_after_next_run"):
+            if view is not None:
                 view.fit_after_next_run()  # the step's plots shown whole, once its run is in
     return out
 
@@ -196,12 +193,8 @@ def put_on_screen(window, new_state: dict, snapshot: dict, arrange: bool = True,
 def _bring_up_to_date(view, values_changed: bool) -> None:
     """A view that computes only on request (a sweep, the Lyapunov spectrum) computes for the step's
     values; views that follow the values by themselves are left alone."""
-    auto = getattr(view, "auto", None)
-    if auto is not None and hasattr(auto, "isChecked") and auto.isChecked():
-        return
-    compute = getattr(view, "compute", None) or getattr(view, "run", None)
-    if callable(compute) and (values_changed or getattr(view, "result", None) is None):
-        compute()
+    if not view.follows_values() and (values_changed or view.result is None):
+        view.compute()
 
 
 def _apply_to_view(view, changes: dict, section: dict | None) -> None:
@@ -209,14 +202,12 @@ def _apply_to_view(view, changes: dict, section: dict | None) -> None:
         _apply_view(view, changes)
     if section is None:
         return
-    if "strobe" in section and hasattr(view, "set_strobe"):
+    if "strobe" in section:
         view.set_strobe(section["strobe"], section.get("phase", 0.0))
-    elif "plane" in section and hasattr(view, "set_plane"):
+    elif "plane" in section:
         name, _, value = section["plane"].partition("=")
         view.set_plane(name, float(value), section.get("direction", "up"))
-    compute = getattr(view, "compute", None)
-    if compute is not None:
-        compute()
+    view.compute()
 
 
 # ---------------------------------------------------------------- the panel

@@ -1,4 +1,5 @@
 """Views: one module per view, each exposing ``VIEW = TheClass``; imported when its dock is first shown.
+Which views there are, their ids and titles: the registry ``orbitdesk.document.views.VIEWS``.
 
 A view is a QWidget with class attributes ``view_id`` and ``title``, constructed as ``View(session, parent)``,
 with ``view_settings() -> dict`` (JSON-able) and ``apply_view_settings(d)``, and optionally
@@ -10,10 +11,11 @@ from __future__ import annotations
 
 import importlib
 
-VIEW_MODULES = ["timeseries", "phase_plane", "phase_space_3d", "equilibria", "cycles", "sections", "sweep",
-                "lyapunov", "parameter_map", "basins", "bifurcation",
-                "fit"]
-DEFAULT_VISIBLE = ("timeseries", "phase_plane")
+from orbitdesk.document.views import VIEWS, title_of
+
+# read from the one registry of views (document/views.py); add a view there
+VIEW_MODULES = [v.module for v in VIEWS]
+DEFAULT_VISIBLE = tuple(v.module for v in VIEWS if v.shown_at_start)
 
 # Our own series colours: muted, distinguishable on light and dark backgrounds (light, dark variants).
 SERIES_COLOURS = [
@@ -29,9 +31,8 @@ SERIES_COLOURS = [
 
 
 def module_title(module_name: str) -> str:
-    """A title for a view that has not been imported yet ("phase_plane" -> "Phase plane")."""
-    words = module_name.replace("_", " ").strip()
-    return words[:1].upper() + words[1:]
+    """The registry's title of a view (before its module is imported)."""
+    return title_of(module_name)
 
 
 def load_view_class(module_name: str):

@@ -26,6 +26,7 @@ MAX_SIDE = 300
 
 class BasinsView(SessionView):
     view_id = "basins"
+    on_request = True
     title = "Basins of attraction"
 
     resultChanged = Signal(object)  # BasinResult or None

@@ -73,6 +73,7 @@ def _matrix_html(rows, col_heads=None, row_heads=None) -> str:
 
 class EquilibriaView(SessionView):
     view_id = "equilibria"
+    on_request = True
     title = "Equilibria"
 
     equilibriaChanged = Signal(object)     # the Equilibria list after each search (may be empty)
@@ -201,7 +202,7 @@ class EquilibriaView(SessionView):
         self.summary.setText("")
         self.strip.run("equilibria", job, self._adopt, on_error=self._failed)
 
-    def recompute(self) -> None:
+    def compute(self) -> None:
         self.find()
 
     def selected_index(self) -> int | None:

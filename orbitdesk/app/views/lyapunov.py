@@ -26,6 +26,7 @@ NEAR_ZERO = 0.01  # |exponent| below this (relative to the largest magnitude) is
 
 class LyapunovView(SessionView):
     view_id = "lyapunov"
+    on_request = True
     title = "Lyapunov exponents"
     result_class = LyapunovResult
 

@@ -24,6 +24,7 @@ MAX_SIDE = 400
 
 class ParameterMapView(SessionView):
     view_id = "parameter_map"
+    on_request = True
     title = "Two-parameter map"
 
     resultChanged = Signal(object)  # LyapunovGrid / PeriodGrid, or None
