@@ -11,10 +11,11 @@ import pytest
 from orbitdesk.document import project as project_module
 from orbitdesk.engine.runs import simulate
 from orbitdesk.system.compiled_system import compile_model
+from orbitdesk.samples import SAMPLES_DIR
 
 from .conftest import run_cli
 
-SAMPLES = Path(__file__).resolve().parents[2] / "sample_projects"
+SAMPLES = SAMPLES_DIR
 PENDULUM = "g = 9.81\nL = 1\ntheta'' = -(g/L)*sin(theta)\ntheta(0) = 0.3\n"
 
 

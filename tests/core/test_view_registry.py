@@ -12,9 +12,10 @@ from orbitdesk.document.view_settings import VIEW_SETTINGS, missing_names, unkno
 from orbitdesk.document.views import VIEW_IDS, VIEWS, title_of, view_info
 from orbitdesk.document.walkthrough import VIEW_IDS as WALKTHROUGH_VIEW_IDS
 from orbitdesk.language.model import parse_model
+from orbitdesk.samples import sample_paths
 
 ROOT = Path(__file__).resolve().parents[2]
-SAMPLES = sorted((ROOT / "sample_projects").glob("*.orbitdesk"))
+SAMPLES = sample_paths()
 
 
 def test_registry_and_settings_name_the_same_views():
