@@ -30,6 +30,7 @@ import time
 from pathlib import Path
 
 from benchmarks.harness import Row
+from orbitdesk.samples.models import LORENZ_REF, model
 
 ROOT = Path(__file__).resolve().parents[1]
 PROJECT = ROOT / "orbitdesk" / "samples" / "convection_loop.orbitdesk"
@@ -57,7 +58,7 @@ window.show()
 app.exec()
 """
 
-LORENZ = "sigma = 10\nr = 28\nbeta = 8/3\nx' = sigma*(y - x)\ny' = x*(r - z) - y\nz' = x*y - beta*z\nx(0) = 1\n"
+LORENZ = model(LORENZ_REF, initial={'y(0)': None, 'z(0)': None})
 
 MEMORY = r"""
 import resource, sys, tracemalloc

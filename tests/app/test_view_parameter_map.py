@@ -3,10 +3,11 @@ period doubling, the colour bar, clicks setting both parameters, CSV export and 
 
 import numpy as np
 import pytest
+from orbitdesk.samples.models import HENON_REF, model
 
 from .conftest import load_model, open_view
 
-HENON = "a = 1.4 in [0, 1.4]\nb = 0.3 in [0, 0.4]\nx[n+1] = 1 - a*x^2 + y\ny[n+1] = b*x\nx[0] = 0.1\ny[0] = 0.1\n"
+HENON = model(HENON_REF, ranges={'a': (0, 1.4), 'b': (0, 0.4)})
 
 
 def compute(qtbot, view):

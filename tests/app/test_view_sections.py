@@ -6,6 +6,7 @@ import os
 import numpy as np
 import pytest
 
+from orbitdesk.samples.models import HENON_REF, model
 
 from .conftest import load_model
 
@@ -38,13 +39,7 @@ x'' = -delta*x' + x - x^3 + gamma*cos(w*t)
 x(0) = 0.1
 """
 
-HENON = """a = 1.4
-b = 0.3
-x[n+1] = 1 - a*x^2 + y
-y[n+1] = b*x
-x[0] = 0
-y[0] = 0
-"""
+HENON = model(HENON_REF, initial={'x[0]': 0, 'y[0]': 0})
 
 
 def load(qtbot, session, text, **solver):

@@ -5,10 +5,10 @@ import json
 import math
 
 import pytest
+from orbitdesk.samples.models import HENON
 
 from .conftest import run_cli
 
-HENON = "a = 1.4\nb = 0.3\nx[n+1] = 1 - a*x^2 + y\ny[n+1] = b*x\nx[0] = 0.1\ny[0] = 0.1\n"
 FORCED = "c = 0.5\nA = 1\nw = 1.3\nx'' = -c*x' - x + A*cos(w*t)\nx(0) = 0\nx'(0) = 0\n"
 
 

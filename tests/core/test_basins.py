@@ -9,10 +9,11 @@ from scipy.integrate import solve_ivp
 from orbitdesk.analyses.basins import ESCAPE, BasinSettings, basins
 from orbitdesk.engine.progress import CancelToken, Cancelled
 from orbitdesk.system.compiled_system import compile_model
+from orbitdesk.samples.models import DUFFING_REF, HENON_REF, model
 
 # unforced two-well Duffing x'' = -delta x' + x - x^3: stable foci at x = +-1, a saddle at 0 (closed form)
-WELLS = "delta = 0.3\ngamma = 0\nomega = 1.2\nx'' = -delta*x' + x - x^3 + gamma*cos(omega*t)\nx(0) = 0\n"
-HENON = "a = 1.4\nb = 0.3\nx[n+1] = 1 - a*x^2 + y\ny[n+1] = b*x\nx[0] = 0\ny[0] = 0\n"
+WELLS = model(DUFFING_REF, gamma=0, initial={'x(0)': 0})
+HENON = model(HENON_REF, initial={'x[0]': 0, 'y[0]': 0})
 
 
 def reference_well(x0, v0):

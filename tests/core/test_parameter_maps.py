@@ -8,8 +8,8 @@ import pytest
 from orbitdesk.analyses.parameter_maps import DIVERGED, NONE, minimal_periods, period_grid
 from orbitdesk.analyses.sweep import GridSettings, STROBE, SweepSettings, lyapunov_grid
 from orbitdesk.system.compiled_system import compile_model
+from orbitdesk.samples.models import HENON
 
-HENON = "a = 1.4\nb = 0.3\nx[n+1] = 1 - a*x^2 + y\ny[n+1] = b*x\nx[0] = 0.1\ny[0] = 0.1\n"
 FORCED = "c = 0.5\nA = 1\nw = 1.3\nx'' = -c*x' - x + A*cos(w*t)\nx(0) = 0\nx'(0) = 0\n"
 
 
