@@ -8,8 +8,8 @@ from orbitdesk.analyses.basins import BasinSettings, basins
 from orbitdesk.engine.progress import Cancelled
 from orbitdesk.system.compiled_system import MAP
 
-from orbitdesk.cli.common import (CommandError, add_value_options, load_system, parse_axis, parse_number, parse_positive,
-                     print_json, read_source, stderr_progress, values_for, write_csv)
+from orbitdesk.cli.common import (CommandError, add_value_options, open_model, parse_axis, parse_number,
+                                  parse_positive, print_json, stderr_progress, write_csv)
 
 
 def register(sub):
@@ -30,9 +30,7 @@ def register(sub):
 
 
 def run(args) -> int:
-    source = read_source(args.path)
-    system = load_system(source)
-    p, u0 = values_for(system, source, args.set, args.init)
+    source, system, p, u0 = open_model(args)
     x_name, xs = parse_axis(args.x, "--x", system.states, "state")
     y_name, ys = parse_axis(args.y, "--y", system.states, "state")
     settings = BasinSettings()

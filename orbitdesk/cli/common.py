@@ -68,6 +68,15 @@ def load_system(source: Source):
     return source.doc.compile_now()
 
 
+def open_model(args):
+    """What most commands start with: the PATH's live document, its compiled system and the parameter and
+    initial vectors (project values, then --set/--init). Returns (source, system, p, u0)."""
+    source = read_source(args.path)
+    system = load_system(source)
+    p, u0 = values_for(system, source, args.set, args.init)
+    return source, system, p, u0
+
+
 _ASSIGN = re.compile(r"^\s*([A-Za-z_][A-Za-z0-9_]*'*)\s*=\s*(.+?)\s*$")
 
 

@@ -5,9 +5,8 @@ from orbitdesk.analyses.cycles import CycleError, find_cycle, find_map_cycle
 from orbitdesk.engine.progress import Cancelled
 from orbitdesk.system.compiled_system import MAP
 
-from orbitdesk.cli.common import (CommandError, add_value_options, load_system, parse_guess, parse_number, parse_positive,
-                     print_json,
-                     read_source, stderr_progress, values_for, write_csv)
+from orbitdesk.cli.common import (CommandError, add_value_options, open_model, parse_guess, parse_positive,
+                                  print_json, stderr_progress, write_csv)
 
 
 def register(sub):
@@ -27,9 +26,7 @@ def register(sub):
 
 
 def run(args) -> int:
-    source = read_source(args.path)
-    system = load_system(source)
-    p, u0 = values_for(system, source, args.set, args.init)
+    source, system, p, u0 = open_model(args)
     guess = parse_guess(args.guess, system)
     progress = stderr_progress("cycle")
     try:

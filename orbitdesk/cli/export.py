@@ -9,7 +9,7 @@ import sys
 
 from orbitdesk.document.project import Project
 
-from orbitdesk.cli.common import CommandError, add_value_options, load_system, read_source, values_for
+from orbitdesk.cli.common import CommandError, add_value_options, open_model, values_for
 from orbitdesk.cli.run import settings_for
 
 
@@ -94,9 +94,7 @@ def _fit_script(source, system, p, u0, title) -> str:
 def run(args) -> int:
     if args.standalone and not args.latex:
         raise CommandError("--standalone goes with --latex")
-    source = read_source(args.path)
-    system = load_system(source)
-    p, u0 = values_for(system, source, args.set, args.init)
+    source, system, p, u0 = open_model(args)
     title = source.project.name if source.project is not None else source.path.stem
     if args.latex:
         from orbitdesk.exports.latex import model_latex

@@ -8,8 +8,8 @@ from orbitdesk.engine.progress import Cancelled
 from orbitdesk.analyses.sweep import STROBE, GridSettings, SweepSettings, lyapunov_grid
 from orbitdesk.system.compiled_system import MAP
 
-from orbitdesk.cli.common import (CommandError, add_value_options, load_system, parse_axis, parse_number, parse_positive,
-                     print_json, read_source, stderr_progress, values_for, write_csv)
+from orbitdesk.cli.common import (CommandError, add_value_options, open_model, parse_axis, parse_number,
+                                  parse_positive, print_json, stderr_progress, write_csv)
 
 MAX_POINTS = 1_000_000
 
@@ -36,9 +36,7 @@ def register(sub):
 
 
 def run(args) -> int:
-    source = read_source(args.path)
-    system = load_system(source)
-    p, u0 = values_for(system, source, args.set, args.init)
+    source, system, p, u0 = open_model(args)
     x_name, xs = parse_axis(args.x, "--x", system.parameters, "parameter")
     y_name, ys = parse_axis(args.y, "--y", system.parameters, "parameter")
     if x_name == y_name:

@@ -5,8 +5,8 @@ from orbitdesk.engine.methods import NAMES
 from orbitdesk.engine.settings import RunSettings, SettingsError
 from orbitdesk.system.compiled_system import MAP
 
-from orbitdesk.cli.common import (CommandError, add_value_options, load_system, parse_number, parse_positive, print_json, read_source,
-                     stderr_progress, values_for, write_csv)
+from orbitdesk.cli.common import (CommandError, add_value_options, open_model, parse_number, parse_positive,
+                                  print_json, stderr_progress, write_csv)
 
 
 def register(sub):
@@ -48,9 +48,7 @@ def settings_for(source, args) -> RunSettings:
 
 
 def run(args) -> int:
-    source = read_source(args.path)
-    system = load_system(source)
-    p, u0 = values_for(system, source, args.set, args.init)
+    source, system, p, u0 = open_model(args)
     settings = settings_for(source, args)
     try:
         traj = simulate(system, settings, u0, p, progress=stderr_progress("run"))
