@@ -1,5 +1,5 @@
-"""File > Export: the model as LaTeX, a standalone Python script reproducing the run, and an HTML report
-with pictures of the open views. The texts come from the core (export_latex, export_script, report);
+"""File > Export: the model as LaTeX, the model text with the values now set, a standalone Python script
+reproducing the run, and an HTML report with pictures of the open views. The texts come from the core (export_latex, export_script, report);
 this module gathers what is on screen and writes the files."""
 
 from __future__ import annotations
@@ -47,6 +47,14 @@ def latex_text(session, standalone: bool = True) -> str:
     params = {n: v for n, v in session.params.items() if n in parsed.parameters}
     initial = {n: v for n, v in session.initial.items() if n in parsed.states}
     return model_latex(parsed, params, initial, standalone=standalone, title=session.name)
+
+
+def model_text(session) -> str:
+    """The model text with the values now set (sliders, spin boxes) written into its lines."""
+    from orbitdesk.language.written_values import with_values
+
+    parsed = _checked_model(session)
+    return with_values(session.text, parsed, session.params, session.initial)
 
 
 def script_text(session, csv_name: str = "run.csv") -> str:
@@ -150,6 +158,10 @@ def export_latex(window, path, standalone: bool = True) -> Path:
     return _write(path, latex_text(window.session, standalone))
 
 
+def export_model_text(window, path) -> Path:
+    return _write(path, model_text(window.session))
+
+
 def export_script(window, path) -> Path:
     path = Path(path)
     return _write(path, script_text(window.session, path.with_suffix(".csv").name), executable=True)
@@ -231,6 +243,17 @@ def export_latex_dialog(window) -> bool:
     return _report(window, True, "the model as LaTeX", path)
 
 
+def export_model_text_dialog(window) -> bool:
+    path, _ = _ask_path(window, "Export Model with These Values", ".txt", "Model text (*.txt)")
+    if path is None:
+        return False
+    try:
+        export_model_text(window, path)
+    except (ExportError, ValueError) as e:
+        return _report(window, False, "the model with these values", message=str(e))
+    return _report(window, True, "the model with these values", path)
+
+
 def export_script_dialog(window) -> bool:
     path, _ = _ask_path(window, "Export Standalone Python Script", ".py", "Python script (*.py)")
     if path is None:
@@ -258,6 +281,9 @@ def install(window) -> None:
     entries = (
         ("Model as &LaTeX…", export_latex_dialog,
          "The equations, parameters and initial values as LaTeX (a document, or the equations alone)"),
+        ("Model with These &Values…", export_model_text_dialog,
+         "The model text with the values now set written into its lines: a model file to share or to run "
+         "on the command line"),
         ("Standalone &Python Script…", export_script_dialog,
          "A Python script (numpy and scipy only) that reproduces the current run and writes it as CSV"),
         ("HTML &Report…", export_report_dialog,
@@ -275,4 +301,5 @@ def install(window) -> None:
     window.file_menu.insertMenu(window.quit_action, menu)
     window.file_menu.insertSeparator(window.quit_action)
     window.export_menu = menu
-    window.export_latex_action, window.export_script_action, window.export_report_action = actions
+    (window.export_latex_action, window.export_model_text_action, window.export_script_action,
+     window.export_report_action) = actions

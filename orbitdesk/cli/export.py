@@ -1,6 +1,7 @@
-"""``orbitdesk export PATH (--latex [--standalone] | --script | --report | --fit-script) [-o FILE]``: the
-model as LaTeX, a standalone Python script reproducing the run, an HTML report, or a standalone script
-reproducing the project's fit to its data. Prints to stdout without -o."""
+"""``orbitdesk export PATH (--latex [--standalone] | --script | --report | --fit-script | --model) [-o FILE]``:
+the model as LaTeX, a standalone Python script reproducing the run, an HTML report, a standalone script
+reproducing the project's fit to its data, or the model text with the values in use written into it.
+Prints to stdout without -o."""
 
 from __future__ import annotations
 
@@ -22,6 +23,8 @@ def register(sub):
     what.add_argument("--report", action="store_true", help="a self-contained HTML report")
     what.add_argument("--fit-script", action="store_true", help="a Python script (numpy, scipy) reproducing the "
                       "fit set up in the project's Fit panel, on its stored data sets")
+    what.add_argument("--model", action="store_true", help="the model text with the project's values (and "
+                      "--set/--init) written into its lines: a model file any command reads")
     parser.add_argument("--standalone", action="store_true", help="with --latex: a complete document")
     parser.add_argument("-o", "--output", metavar="FILE", help="write to FILE instead of printing")
     add_value_options(parser)
@@ -114,6 +117,10 @@ def run(args) -> int:
             raise CommandError(str(err)) from None
     elif args.fit_script:
         text = _fit_script(source, system, p, u0, title)
+    elif args.model:
+        from orbitdesk.language.written_values import with_values
+
+        text = with_values(source.text, source.doc.parsed, system.param_dict(p), dict(zip(system.states, map(float, u0))))
     else:
         from orbitdesk.exports.report import render_report
 
