@@ -232,37 +232,34 @@ def _report(window, ok: bool, what: str, path=None, message: str = "") -> bool:
     return ok
 
 
-def export_latex_dialog(window) -> bool:
-    path, chosen = _ask_path(window, "Export Model as LaTeX", ".tex", f"{LATEX_DOCUMENT};;{LATEX_SNIPPET}")
+def _export_dialog(window, title: str, suffix: str, filters: str, export, failed: str, done: str) -> bool:
+    """Ask where, write with ``export(path, chosen_filter)``, say what happened (status bar or a warning)."""
+    path, chosen = _ask_path(window, title, suffix, filters)
     if path is None:
         return False
     try:
-        export_latex(window, path, standalone=chosen != LATEX_SNIPPET)
+        export(path, chosen)
     except (ExportError, ValueError) as e:
-        return _report(window, False, "the model as LaTeX", message=str(e))
-    return _report(window, True, "the model as LaTeX", path)
+        return _report(window, False, failed, message=str(e))
+    return _report(window, True, done, path)
+
+
+def export_latex_dialog(window) -> bool:
+    return _export_dialog(window, "Export Model as LaTeX", ".tex", f"{LATEX_DOCUMENT};;{LATEX_SNIPPET}",
+                          lambda path, chosen: export_latex(window, path, standalone=chosen != LATEX_SNIPPET),
+                          "the model as LaTeX", "the model as LaTeX")
 
 
 def export_model_text_dialog(window) -> bool:
-    path, _ = _ask_path(window, "Export Model with These Values", ".txt", "Model text (*.txt)")
-    if path is None:
-        return False
-    try:
-        export_model_text(window, path)
-    except (ExportError, ValueError) as e:
-        return _report(window, False, "the model with these values", message=str(e))
-    return _report(window, True, "the model with these values", path)
+    return _export_dialog(window, "Export Model with These Values", ".txt", "Model text (*.txt)",
+                          lambda path, _chosen: export_model_text(window, path),
+                          "the model with these values", "the model with these values")
 
 
 def export_script_dialog(window) -> bool:
-    path, _ = _ask_path(window, "Export Standalone Python Script", ".py", "Python script (*.py)")
-    if path is None:
-        return False
-    try:
-        export_script(window, path)
-    except ExportError as e:
-        return _report(window, False, "the script", message=str(e))
-    return _report(window, True, "a script that reproduces the run", path)
+    return _export_dialog(window, "Export Standalone Python Script", ".py", "Python script (*.py)",
+                          lambda path, _chosen: export_script(window, path),
+                          "the script", "a script that reproduces the run")
 
 
 def export_report_dialog(window) -> bool:
