@@ -8,7 +8,7 @@ from orbitdesk.analyses.basins import BasinSettings, basins
 from orbitdesk.engine.progress import Cancelled
 from orbitdesk.system.compiled_system import MAP
 
-from orbitdesk.cli.common import (CommandError, add_value_options, open_model, parse_axis, parse_number,
+from orbitdesk.cli.common import (add_outputs, CommandError, open_model, parse_axis, parse_number,
                                   parse_positive, print_json, stderr_progress, write_csv)
 
 
@@ -23,10 +23,8 @@ def register(sub):
     parser.add_argument("--strobe", metavar="T", help="forcing period: look once per period (stroboscopic basins)")
     parser.add_argument("--dt", metavar="H", help="integration step of flows")
     parser.add_argument("--escape", metavar="R", help="|state| beyond this counts as escape (default 1000)")
-    add_value_options(parser)
-    parser.add_argument("--csv", metavar="FILE", help="write one row per start: x, y, attractor (-1 escape)")
-    parser.add_argument("--json", action="store_true", help="print the basins as JSON (the default)")
-    parser.set_defaults(handler=run)
+    add_outputs(parser, run, "print the basins as JSON (the default)",
+                csv_help="write one row per start: x, y, attractor (-1 escape)")
 
 
 def run(args) -> int:

@@ -174,6 +174,16 @@ def add_value_options(parser, initial=True):
         parser.add_argument("--init", action="append", metavar="STATE=VALUE", help="set an initial value (repeatable)")
 
 
+def add_outputs(parser, handler, json_help: str = "print the result as JSON", csv_help: str | None = None) -> None:
+    """The tail every analysis command shares: --set/--init, --csv FILE (when ``csv_help``), --json, and
+    the function that runs the command."""
+    add_value_options(parser)
+    if csv_help is not None:
+        parser.add_argument("--csv", metavar="FILE", help=csv_help)
+    parser.add_argument("--json", action="store_true", help=json_help)
+    parser.set_defaults(handler=handler)
+
+
 def to_jsonable(value):
     if isinstance(value, dict):
         return {str(k): to_jsonable(v) for k, v in value.items()}

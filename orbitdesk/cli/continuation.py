@@ -5,7 +5,7 @@ their special points (fold, Hopf, branch point, cycle fold, period doubling, tor
 from orbitdesk.engine.progress import Cancelled
 from orbitdesk.system.compiled_system import MAP
 
-from orbitdesk.cli.common import (CommandError, add_interval_options, add_value_options, open_model,
+from orbitdesk.cli.common import (add_outputs, CommandError, add_interval_options, open_model,
                                   parse_guess, parse_interval, parse_number, print_json, stderr_progress)
 
 STARTS = ("equilibrium", "cycle", "fixed point")
@@ -33,9 +33,7 @@ def register(sub):
     parser.add_argument("--param2", metavar="NAME", help="the second parameter of a locus")
     parser.add_argument("--range2", metavar="LO:HI",
                         help="bounds of the second parameter (default: its slider range, else 10 units around it)")
-    add_value_options(parser)
-    parser.add_argument("--json", action="store_true", help="print the result as JSON")
-    parser.set_defaults(handler=run)
+    add_outputs(parser, run)
 
 
 def run(args) -> int:

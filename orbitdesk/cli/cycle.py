@@ -5,7 +5,7 @@ from orbitdesk.analyses.cycles import CycleError, find_cycle, find_map_cycle
 from orbitdesk.engine.progress import Cancelled
 from orbitdesk.system.compiled_system import MAP
 
-from orbitdesk.cli.common import (CommandError, add_value_options, open_model, parse_guess, parse_positive,
+from orbitdesk.cli.common import (add_outputs, CommandError, open_model, parse_guess, parse_positive,
                                   print_json, stderr_progress, write_csv)
 
 
@@ -19,10 +19,8 @@ def register(sub):
     parser.add_argument("--forcing-multiple", type=int, metavar="K",
                         help="the orbit's period in forcing periods (default: found from a transient run)")
     parser.add_argument("--period", type=int, metavar="K", help="period of a map cycle (maps only)")
-    add_value_options(parser)
-    parser.add_argument("--csv", metavar="FILE", help="write one period of the orbit (flows) or the points (maps)")
-    parser.add_argument("--json", action="store_true", help="print the result as JSON")
-    parser.set_defaults(handler=run)
+    add_outputs(parser, run, "print the result as JSON",
+                csv_help="write one period of the orbit (flows) or the points (maps)")
 
 
 def run(args) -> int:

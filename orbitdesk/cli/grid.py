@@ -8,7 +8,7 @@ from orbitdesk.engine.progress import Cancelled
 from orbitdesk.analyses.sweep import STROBE, GridSettings, SweepSettings, lyapunov_grid
 from orbitdesk.system.compiled_system import MAP
 
-from orbitdesk.cli.common import (CommandError, add_value_options, open_model, parse_axis, parse_number,
+from orbitdesk.cli.common import (add_outputs, CommandError, open_model, parse_axis, parse_number,
                                   parse_positive, print_json, stderr_progress, write_csv)
 
 MAX_POINTS = 1_000_000
@@ -29,10 +29,8 @@ def register(sub):
     parser.add_argument("--transient", metavar="T", help="time (flows) or iterations (maps) dropped first")
     parser.add_argument("--duration", metavar="T", help="averaging time or iterations of the exponent")
     parser.add_argument("--dt", metavar="H", help="integration step of flows")
-    add_value_options(parser)
-    parser.add_argument("--csv", metavar="FILE", help="write one row per grid point: x, y, value")
-    parser.add_argument("--json", action="store_true", help="print the grid as JSON (the default)")
-    parser.set_defaults(handler=run)
+    add_outputs(parser, run, "print the grid as JSON (the default)",
+                csv_help="write one row per grid point: x, y, value")
 
 
 def run(args) -> int:

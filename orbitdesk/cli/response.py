@@ -4,7 +4,7 @@ that starts each value from the previous value's final state."""
 
 from orbitdesk.engine.progress import Cancelled
 
-from orbitdesk.cli.common import (CommandError, add_interval_options, add_value_options, open_model,
+from orbitdesk.cli.common import (add_outputs, CommandError, add_interval_options, open_model,
                                   parse_guess, parse_interval, print_json, stderr_progress)
 
 
@@ -20,9 +20,7 @@ def register(sub):
                         help="most points per direction of the continued curve (default 400)")
     parser.add_argument("--guess", action="append", metavar="STATE=VALUE",
                         help="a state near the response to start the continuation from (repeatable)")
-    add_value_options(parser)
-    parser.add_argument("--json", action="store_true", help="print the result as JSON")
-    parser.set_defaults(handler=run)
+    add_outputs(parser, run)
 
 
 def run(args) -> int:
