@@ -105,14 +105,14 @@ def view_results(window) -> dict:
     out = {}
     for module, key in (("lyapunov", "lyapunov"), ("sweep", "sweep"), ("sections", "section")):
         view = window.views.get(module)
-        result = getattr(view, "result", None) if view is not None else None
+        result = view.result if view is not None else None
         if result is not None:
             out[key] = result
     return out
 
 
 def _caption(view) -> str:
-    title = getattr(view, "title", "View")
+    title = view.title
     try:
         d = view.view_settings()
     except Exception:  # noqa: BLE001
