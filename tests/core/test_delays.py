@@ -375,3 +375,23 @@ def test_section_on_a_derived_quantity_with_a_delay_finds_the_maxima():
     assert result.status == OK and result.complete
     assert result.times == pytest.approx([4.0, 8.0, 12.0], abs=1e-6)
     assert result.points[0] == pytest.approx([1.0, 1.0, 1.0], abs=1e-9)
+
+
+def test_report_of_a_delay_project_shows_the_delays_and_the_roots():
+    # a person reading the report sees x(t - tau) in the equations and derived quantities, the method of
+    # steps with its history, and the rightmost roots (W_0(-1.2) for a = 1.2, tau = 1; scipy's lambertw)
+    from scipy.special import lambertw
+
+    from orbitdesk.analyses.equilibria import find_equilibria
+    from orbitdesk.document.project import Project
+    from orbitdesk.exports.report import render_report
+
+    model = "a = 1.2\ntau = 1\nx' = -a*x(t - tau)\nx(t) = cos(t) for t <= 0\nlagged = x(t - tau)\n"
+    system = compile_model(model)
+    text = render_report(Project(name="Lag", model=model), system, {},
+                         equilibria=find_equilibria(system, exact=False, starts=5))
+    assert "= -a*x(t - tau)" in text and "= x(t - tau)" in text
+    assert "method of steps" in text and "history x(t) = cos(t) for t &lt;= 0" in text
+    root = complex(lambertw(-1.2))
+    assert "rightmost characteristic roots" in text
+    assert f"\u2212{-root.real:.4f} \u00b1 {root.imag:.3f}i" in text  # -0.1905 +- 1.439i
