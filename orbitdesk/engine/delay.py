@@ -188,15 +188,6 @@ class DelayIntegrator:
         q = Q[i]
         return y[i] + h * x * (q[0] + x * (q[1] + x * (q[2] + x * q[3])))
 
-    def values(self, times: np.ndarray) -> np.ndarray:
-        """All states at ``times`` (inside the run so far or before the start): shape (n, len(times))."""
-        times = np.asarray(times, dtype=float)
-        out = np.empty((self.n, times.size))
-        for j, s in enumerate(times):
-            for i in range(self.n):
-                out[i, j] = self.value(i, float(s))
-        return out
-
     def _lags(self, t: float, left: bool) -> list[float]:
         if left:
             return [self.value(i, t - tau, True) for i, tau in zip(self.lag_state, self.lag_tau)]
