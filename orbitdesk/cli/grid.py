@@ -5,7 +5,7 @@ import numpy as np
 
 from orbitdesk.analyses.parameter_maps import period_grid
 from orbitdesk.engine.progress import Cancelled
-from orbitdesk.analyses.sweep import STROBE, GridSettings, SweepSettings, lyapunov_grid
+from orbitdesk.analyses.sweep import MAXIMA, STROBE, GridSettings, SweepSettings, lyapunov_grid
 from orbitdesk.system.compiled_system import MAP
 
 from orbitdesk.cli.common import (add_outputs, CommandError, open_model, parse_axis, parse_number,
@@ -23,7 +23,7 @@ def register(sub):
     what.add_argument("--lyapunov", action="store_true", help="the largest Lyapunov exponent at each point")
     what.add_argument("--period", action="store_true",
                       help="the period of the attractor (maps: iterations; forced flows: forcing periods, "
-                           "with --strobe T)")
+                           "with --strobe T; autonomous flows: maxima per cycle and the period in time)")
     parser.add_argument("--strobe", metavar="T", help="forcing period of a flow (--period)")
     parser.add_argument("--max-period", type=int, default=32, metavar="K", help="longest period looked for (32)")
     parser.add_argument("--transient", metavar="T", help="time (flows) or iterations (maps) dropped first")
@@ -63,10 +63,13 @@ def run(args) -> int:
                 raise CommandError("--duration goes with --lyapunov")
             settings = SweepSettings(transient=1000.0 if system.kind == MAP else 200.0)
             if system.kind != MAP:
-                if args.strobe is None:
-                    raise CommandError("the period of a flow's attractor is counted in forcing periods: "
+                if args.strobe is not None:
+                    settings.mode, settings.period = STROBE, parse_positive(args.strobe, "--strobe")
+                elif not system.autonomous_at(p):
+                    raise CommandError("the period of a forced flow's attractor is counted in forcing periods: "
                                        "give --strobe T")
-                settings.mode, settings.period = STROBE, parse_positive(args.strobe, "--strobe")
+                else:
+                    settings.mode = MAXIMA
             elif args.strobe is not None:
                 raise CommandError("--strobe applies to flows; a map's period is counted in iterations")
             if transient is not None:
@@ -82,7 +85,11 @@ def run(args) -> int:
         raise CommandError("cancelled") from None
     if args.csv:
         gx, gy = np.meshgrid(xs, ys)
-        write_csv(args.csv, [x_name, y_name, label], [gx.ravel(), gy.ravel(), np.asarray(values, float).ravel()])
+        header, columns = [x_name, y_name, label], [gx.ravel(), gy.ravel(), np.asarray(values, float).ravel()]
+        if getattr(grid, "time_period", None) is not None:
+            header.append("period in time")
+            columns.append(np.asarray(grid.time_period, float).ravel())
+        write_csv(args.csv, header, columns)
     if args.json or not args.csv:
         print_json(data)
     return 0
