@@ -57,6 +57,8 @@ def test_history_of_a_second_order_equation_gives_the_derivative_its_history():
     ("x' = -x(t - 1)\ny' = 1\nx(t) = y for t <= 0\n", (3, 8, 9), "'y' is a state"),
     ("x' = -x(t - 1)\nx(t) = 1 for t <= 0\nx(t) = 2 for t <= 0\n", (3, 1, 5), "second history"),
     ("N = 3\nx_{i}' = -x_{i}(t - 1)   for i in 1..N\n", (2, 11, 17), "family members"),
+    ("x' = -x'(t - 1)\n", (1, 7, 16), "neutral equation"),
+    ("x'' = -x''(t - 1) - x\n", (1, 8, 18), "neutral equation"),
 ])
 def test_diagnostics_are_exact(text, where, words):
     errors = _errors(text)
