@@ -242,8 +242,9 @@ MACKEY_GLASS = ("beta = 0.2\ngamma = 0.1\ntau = {tau}\nx' = beta*x(t - tau)/(1 +
 
 @pytest.mark.slow
 def test_mackey_glass_largest_exponent_positive_at_a_chaotic_delay():
-    # Mackey & Glass, Science 197 (1977) 287 (reference from memory): chaotic at tau = 17 (Farmer, Physica 4D (1982): a positive
-    # largest exponent there); at tau = 5 the solution settles on a periodic orbit (exponent zero)
+    # Mackey & Glass, Science 197 (1977) 287 (reference from memory): chaotic at tau = 17
+    # (Farmer, Physica 4D (1982): a positive largest exponent there); at tau = 5 the solution settles
+    # on a periodic orbit (exponent zero)
     from orbitdesk.analyses.lyapunov import largest_lyapunov_two_trajectory
 
     chaotic = largest_lyapunov_two_trajectory(compile_model(MACKEY_GLASS.format(tau=17)), t_end=3500,
