@@ -28,6 +28,7 @@ def run(args) -> int:
                         "line": d.line} for d in parsed.delays],
             "history": {name: {"expression": str(expr), "line": parsed.history_lines.get(name)}
                         for name, expr in parsed.history.items()},
+            "events": [event.to_dict() for event in parsed.events],
             "structural_parameters": sorted(parsed.structural),
             "diagnostics": [
                 {"line": d.line, "column": d.column, "end_column": d.end_column,

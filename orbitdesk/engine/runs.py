@@ -70,6 +70,7 @@ class Trajectory:
     event_times: list[np.ndarray] = field(default_factory=list)
     event_states: list[np.ndarray] = field(default_factory=list)  # each (n_states, M)
     steps_taken: int = 0
+    model_events: list = field(default_factory=list)  # AppliedEvent of the model's 'when' lines, in time order
 
     @property
     def ok(self) -> bool:
@@ -125,6 +126,10 @@ def simulate(system: CompiledSystem, settings: RunSettings | None = None, u0=Non
         from orbitdesk.engine.delay import simulate_delay
 
         return simulate_delay(system, settings, u0, p, list(events), report)
+    if system.model.events:
+        from orbitdesk.engine.model_events import simulate_with_events
+
+        return simulate_with_events(system, settings, u0, p, list(events), report)
     if settings.method_info.family == "explicit_rk" and all(ev.plane is not None for ev in events):
         return _integrate_loop(system, settings, u0, p, list(events), report)
     return _integrate(system, settings, u0, p, list(events), report)

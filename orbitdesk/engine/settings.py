@@ -36,8 +36,10 @@ RULES = {
     "steps": ("count", 1, 10**8, False),
     "bound": ("positive", None, None, False),
     "transient": ("nonneg", None, None, False),
+    "event_rate": ("positive", None, None, False),
 }
-SAVED = ("method", "rtol", "atol", "max_step", "dt", "t_start", "t_end", "samples", "steps", "transient")
+SAVED = ("method", "rtol", "atol", "max_step", "dt", "t_start", "t_end", "samples", "steps", "transient",
+         "event_rate")
 
 
 def check_value(name: str, value):
@@ -89,6 +91,7 @@ class RunSettings:
     steps: int = 1000  # iterations of a map
     bound: float = 1e10  # |state| beyond this counts as blow-up
     transient: float = 0.0  # output before t_start + transient is dropped
+    event_rate: float = 10_000.0  # model events per unit time beyond which a run ends as chattering
 
     def __post_init__(self):
         for f in fields(self):
