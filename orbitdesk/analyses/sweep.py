@@ -31,6 +31,7 @@ from functools import partial
 
 import numpy as np
 
+from orbitdesk.engine.model_events import refuse_ensembles
 from orbitdesk.engine.chunks import compiled_system, run_chunks, split, worker_count
 from orbitdesk.engine.progress import Reporter
 from orbitdesk.engine.status import OK
@@ -290,6 +291,7 @@ def sweep(system, parameter: str, values, settings: SweepSettings | None = None,
     run by ``chunks.run_chunks`` (default executor: a local process pool); the model text and plain
     settings travel to the workers. ``Cancelled`` is raised when ``cancel`` is set. ``compiled``: None
     compiles the engine when the work pays for it, True always, False never (plain Python)."""
+    refuse_ensembles(system, "Sweeps (orbit diagrams)")
     settings = (settings or SweepSettings()).checked(system)
     if parameter not in system.parameters:
         raise ValueError(f"unknown parameter '{parameter}' (parameters: {', '.join(system.parameters) or 'none'})")
@@ -369,6 +371,7 @@ def lyapunov_grid(system, pname_x: str, xs, pname_y: str, ys, settings: GridSett
     whenever numba is there, False never; the choice is made once for the grid. Compiled chunks run
     on threads of this process by default (the loops release the GIL)."""
     system.refuse_delays("the two-parameter map of exponents")
+    refuse_ensembles(system, "Maps of the largest Lyapunov exponent")
     settings = settings or GridSettings()
     for name in (pname_x, pname_y):
         if name not in system.parameters:

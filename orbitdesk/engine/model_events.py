@@ -79,6 +79,28 @@ class EventPlan:
                 best, which = when, k
         return best, which
 
+    def return_time(self, k, t, u, p) -> float:
+        """How soon the solution would cross event k's boundary again after the reset to (t, u, p): 0 when
+        the flow does not carry it away from the boundary, else 2 |dg/dt| / |d2g/dt2| (a parabola's
+        return), inf when it does not come back or for an event at a known time."""
+        ev = self.events[k]
+        if ev.on_time:
+            return math.inf
+        row = self.plane_rows(t, u, p)[self.planes.index(k)]
+        normal = row[:-1]
+        try:
+            f = self.system.rhs(t, u, p)
+            rate = float(normal @ f)
+            h = 1e-7 * max(1.0, abs(t)) / max(1.0, float(np.max(np.abs(f))))
+            accel = (float(normal @ self.system.rhs(t + h, u + h * f, p)) - rate) / h
+        except ArithmeticError:
+            return math.inf
+        if not math.isfinite(rate) or ev.direction * rate >= 0:  # not carried away from the boundary
+            return 0.0
+        if ev.direction * accel <= 0:
+            return math.inf
+        return 2.0 * abs(rate) / abs(accel)
+
     def apply(self, k, t, u, p):
         """The states and parameters after event k at (t, u, p): every right side first, then the targets."""
         ev = self.events[k]
@@ -107,6 +129,15 @@ def saltation_refusal(system, what: str) -> str:
     return (f"{what} of a model with events are not computed: across each event a perturbation jumps by the "
             "saltation matrix, which this analysis does not apply, so its answer would be wrong. The model's "
             f"events: {describe_events(system)}")
+
+
+def refuse_ensembles(system, what: str) -> None:
+    """ValueError in plain words: ``what`` runs many members together on an ensemble engine that does not
+    stop at the model's events."""
+    if getattr(system.model, "events", None):
+        raise ValueError(f"{what} of a model with events are not computed yet: they run many members together "
+                         "on an ensemble engine that does not stop at the model's events "
+                         f"({describe_events(system)}). Single runs and Poincaré sections apply the events")
 
 
 def plan_for(system) -> EventPlan:
@@ -147,9 +178,11 @@ def simulate_with_events(system, settings, u0, p, extra, report):
     times, chunks, derived = [np.array([t0])], [y[:, None].copy()], []
     ev_t = [[] for _ in extra]
     ev_y = [[] for _ in extra]
+    ev_p = [[] for _ in extra]  # the parameters at each of the caller's crossings
     applied: list[AppliedEvent] = []
     recent = deque(maxlen=WINDOW)
     status, message, steps = OK, "", 0
+    end_hit = end_after = None
     seg_start = 0  # index into times/chunks where the current parameter values began
 
     def close_segment():
@@ -183,7 +216,7 @@ def simulate_with_events(system, settings, u0, p, extra, report):
         if hit_t is None:  # the end, or a caller's terminal plane, or trouble
             times.append(seg_t)
             chunks.append(seg_y)
-            _keep_extra(e_t, e_y, e_k, len(plan.planes), None, ev_t, ev_y)
+            _keep_extra(e_t, e_y, e_k, len(plan.planes), None, ev_t, ev_y, ev_p, p)
             if code != 0:
                 status = status_word(code) if isinstance(code, (int, np.integer)) else code
                 message = "cancelled" if status == CANCELLED else note or _describe_stop(
@@ -192,7 +225,7 @@ def simulate_with_events(system, settings, u0, p, extra, report):
         keep = seg_t <= hit_t
         times.append(seg_t[keep])
         chunks.append(seg_y[:, keep])
-        _keep_extra(e_t, e_y, e_k, len(plan.planes), hit_t, ev_t, ev_y)
+        _keep_extra(e_t, e_y, e_k, len(plan.planes), hit_t, ev_t, ev_y, ev_p, p)
         if every_step:
             times.append(np.array([hit_t]))
             chunks.append(np.asarray(hit_y, float)[:, None])
@@ -209,16 +242,23 @@ def simulate_with_events(system, settings, u0, p, extra, report):
             status, message = "diverged", (f"the event on line {event.line} ({event.rule}) at t = {hit_t:.6g} sets "
                                            f"a state beyond {settings.bound:g} in size")
             break
+        end_hit = (hit_t, hit_y)  # should the run end at this event, its last points are the event's
         if event.stop:
             status = STOPPED
             message = f"stopped by the event on line {event.line} ({event.rule}) at t = {hit_t:.6g}"
-            if event.assignments:
-                close_segment()
-                p = p_new
-                times.append(np.array([hit_t]))
-                chunks.append(y_new[:, None])
+            end_after = (y_new, p_new) if event.assignments else None
             break
         recent.append(hit_t)
+        back = plan.return_time(hit_k, hit_t, y_new, p_new)
+        if back * settings.event_rate < 1.0:
+            status = CHATTERING
+            again = "at once" if back == 0 else f"within {back:.3g} time units"
+            message = (f"at t = {hit_t:.6g} the event on line {event.line} ({event.rule}) leaves the solution on "
+                       f"its boundary, and the flow would carry it across again {again}, faster than the limit of "
+                       f"{settings.event_rate:g} events per unit time: the events pile up there (Zeno behaviour, "
+                       "such as a ball coming to rest on the floor, or a part pressed against its stop) or the "
+                       "solution would slide along the boundary. The run ends here")
+            break
         if len(recent) == WINDOW and (recent[-1] - recent[0]) * settings.event_rate < WINDOW - 1:
             span = recent[-1] - recent[0]
             status = CHATTERING
@@ -228,6 +268,7 @@ def simulate_with_events(system, settings, u0, p, extra, report):
                        "rest) or switches back and forth on a boundary (chattering). Raise the limit only if the "
                        "events are meant to come this fast")
             break
+        end_hit = None
         if not np.array_equal(p_new, p):
             close_segment()
         t, y, p = float(hit_t), y_new, p_new
@@ -239,6 +280,14 @@ def simulate_with_events(system, settings, u0, p, extra, report):
         except Cancelled:
             status, message = CANCELLED, "cancelled"
             break
+    if end_hit is not None and not every_step:
+        times.append(np.array([end_hit[0]]))
+        chunks.append(np.asarray(end_hit[1], float)[:, None])
+    if end_after is not None:
+        close_segment()
+        p = end_after[1]
+        times.append(np.array([end_hit[0]]))
+        chunks.append(end_after[0][:, None])
     close_segment()
     if explicit and not engine.compiled and perf_counter() - started > 0.3:
         compiled.prepare(system)
@@ -254,15 +303,21 @@ def simulate_with_events(system, settings, u0, p, extra, report):
                       derived_all, [np.array(v) for v in ev_t],
                       [np.array(v).reshape(-1, n).T if v else np.empty((n, 0)) for v in ev_y], steps_taken=steps)
     traj.model_events = applied
+    if not np.array_equal(p, p0):
+        traj.final_params = p.copy()
+    if any(not np.array_equal(q, p0) for v in ev_p for q in v):
+        m = len(system.parameters)
+        traj.event_params = [np.array(v).reshape(-1, m).T if v else np.empty((m, 0)) for v in ev_p]
     return traj
 
 
-def _keep_extra(e_t, e_y, e_k, first, until, ev_t, ev_y):
+def _keep_extra(e_t, e_y, e_k, first, until, ev_t, ev_y, ev_p, p):
     """The caller's plane crossings of a segment (indices from ``first`` on), up to ``until``."""
     for te, k, ye in zip(e_t, e_k, e_y.T):
         if k >= first and (until is None or te <= until):
             ev_t[k - first].append(float(te))
             ev_y[k - first].append(np.array(ye, dtype=float))
+            ev_p[k - first].append(np.array(p, dtype=float))
 
 
 def _explicit_segment(engine, settings, t, t_end, y, p, planes, grid, every_step, report):
@@ -297,4 +352,4 @@ def _stiff_segment(system, settings, t, t_end, y, p, planes, report):
             traj.steps_taken)
 
 
-__all__ = ["AppliedEvent", "EventPlan", "plan_for", "describe_events", "saltation_refusal", "simulate_with_events", "WINDOW"]
+__all__ = ["AppliedEvent", "EventPlan", "plan_for", "describe_events", "saltation_refusal", "refuse_ensembles", "simulate_with_events", "WINDOW"]

@@ -71,6 +71,16 @@ class Trajectory:
     event_states: list[np.ndarray] = field(default_factory=list)  # each (n_states, M)
     steps_taken: int = 0
     model_events: list = field(default_factory=list)  # AppliedEvent of the model's 'when' lines, in time order
+    final_params: np.ndarray | None = None  # parameters at the end when the model's events changed them
+    event_params: list = field(default_factory=list)  # per event of the caller: (n_params, M) when they changed
+
+    def end_params(self, p):
+        """The parameter values at the end of the run (``p`` unless the model's events changed them)."""
+        return p if self.final_params is None else self.final_params
+
+    def params_at_crossing(self, k, j, p):
+        """The parameter values at the caller's event k, crossing j (``p`` unless events changed them)."""
+        return p if not self.event_params else self.event_params[k][:, j]
 
     @property
     def ok(self) -> bool:

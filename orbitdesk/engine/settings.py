@@ -40,6 +40,7 @@ RULES = {
 }
 SAVED = ("method", "rtol", "atol", "max_step", "dt", "t_start", "t_end", "samples", "steps", "transient",
          "event_rate")
+SAVED_IF_CHANGED = ("event_rate",)  # written into a project only when it differs from the default
 
 
 def check_value(name: str, value):
@@ -105,7 +106,8 @@ class RunSettings:
 
     def saved(self) -> dict:
         """The fields a project stores."""
-        return {name: getattr(self, name) for name in SAVED}
+        return {name: getattr(self, name) for name in SAVED
+                if name not in SAVED_IF_CHANGED or getattr(self, name) != getattr(RunSettings, name)}
 
     @classmethod
     def from_mapping(cls, values: dict, base: "RunSettings | None" = None) -> "RunSettings":

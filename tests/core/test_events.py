@@ -251,3 +251,52 @@ def test_run_and_check_json_list_the_events(tmp_path, capsys):
     assert main(["check", str(path), "--json"]) == 0
     out = json.loads(capsys.readouterr().out)
     assert out["events"][0]["rule"] == "when x < 0 then x' = -e*x'"
+
+
+@pytest.mark.fallback
+def test_sections_follow_the_runs_through_events_that_change_parameters():
+    """The relay's crossings of y = 0 upwards come once per period 2 tau ln((K + h)/(K - h)) (closed form
+    above), also when the section is computed in several pieces that must carry the switched u along."""
+    from orbitdesk.analyses.sections import plane_section
+
+    period = 2 * math.log(1.1 / 0.9)
+    system = compile_model(RELAY)
+    section = plane_section(system, coordinate="y", value=0.0, direction="up", count=40, transient=1.0,
+                            settings=RunSettings(t_end=2.0))
+    assert section.status == OK and section.points.shape[1] == 40, section.message
+    assert np.allclose(np.diff(section.times), period, rtol=0, atol=1e-7)
+    down = plane_section(system, coordinate="y", value=0.0, direction="down", count=10, settings=RunSettings(t_end=2.0))
+    assert np.allclose(np.diff(down.times), period, rtol=0, atol=1e-7)
+
+
+def test_ensemble_analyses_fitting_and_the_script_refuse_models_with_events_in_plain_words():
+    from orbitdesk.analyses.basins import basins
+    from orbitdesk.analyses.fitting import FitSettings, fit
+    from orbitdesk.analyses.sweep import sweep
+    from orbitdesk.exports.run_script import run_script
+
+    system = compile_model(RELAY)
+    with pytest.raises(ValueError, match="ensemble engine that does not stop at the model's events"):
+        sweep(system, "K", [0.5, 1.0])
+    with pytest.raises(ValueError, match="line 5"):
+        basins(compile_model(BALL), "x", [0.5, 1.0], "x'", [0.0, 1.0])
+    with pytest.raises(ValueError, match="saltation matrix"):
+        fit(system, [], FitSettings(parameters=["K"]))
+    with pytest.raises(ValueError, match="does not apply events"):
+        run_script(system)
+
+
+@pytest.mark.fallback
+@pytest.mark.parametrize("e", [0.3, 0.05])
+def test_a_dead_ball_never_leaks_through_the_floor(e):
+    """With little restitution the rebounds shrink below what floating point resolves long before the
+    accumulation time t1 (1+e)/(1-e) (closed form above); the run must end there with the guard's
+    status, never step on with the ball below the floor."""
+    text = BALL.replace(f"e = {E}", f"e = {e}")
+    traj = simulate(compile_model(text), RunSettings(t_end=3.0, samples=300))
+    assert traj.status == CHATTERING, traj.message
+    assert "line 5" in traj.message
+    assert traj.model_events[-1].t < accumulation_time(e=e) + 1e-9
+    assert traj.states[0].min() > -1e-8 and traj.time[-1] < accumulation_time(e=e) + 1e-9
+    times = np.array([ev.t for ev in traj.model_events])
+    assert np.allclose(times, ball_impacts(len(times), e=e), atol=1e-8)
