@@ -291,7 +291,6 @@ def sweep(system, parameter: str, values, settings: SweepSettings | None = None,
     run by ``chunks.run_chunks`` (default executor: a local process pool); the model text and plain
     settings travel to the workers. ``Cancelled`` is raised when ``cancel`` is set. ``compiled``: None
     compiles the engine when the work pays for it, True always, False never (plain Python)."""
-    refuse_ensembles(system, "Sweeps (orbit diagrams)")
     settings = (settings or SweepSettings()).checked(system)
     if parameter not in system.parameters:
         raise ValueError(f"unknown parameter '{parameter}' (parameters: {', '.join(system.parameters) or 'none'})")
@@ -300,7 +299,12 @@ def sweep(system, parameter: str, values, settings: SweepSettings | None = None,
         raise ValueError("the parameter values must be finite numbers")
     base_p = system.param_values.astype(float) if p is None else np.asarray(p, dtype=float)
     u0 = system.initial.astype(float) if u0 is None else np.asarray(u0, dtype=float)
-    if executor is not None or chunk_size is not None:
+    if system.model.events:  # each value on its own through the single-run engine, which applies events
+        from orbitdesk.analyses.sweep_events import sweep_with_events
+
+        samples, times, lyap, status = sweep_with_events(system, parameter, values, settings, u0, base_p,
+                                                         cancel, progress)
+    elif executor is not None or chunk_size is not None:
         pieces = split(values.size, chunk_size or 64)
         text = system.model.text
         args = [(text, parameter, values[piece], settings, u0 if u0.ndim == 1 else u0[:, piece], base_p)

@@ -55,6 +55,7 @@ class ModelEvent:
     stop: bool = False
     column: int = 1
     end: int = 2
+    sides: tuple = ()  # (left, comparison, right) as written, in the model's symbols
 
     @property
     def on_time(self) -> bool:
@@ -193,7 +194,8 @@ def _event(builder, raw, rule, condition, actions) -> ModelEvent | None:
     assert isinstance(condition, Compare)
     g = left - right
     direction = 1 if condition.op in (">", ">=") else -1
-    event = ModelEvent(raw.line, rule, direction, g, stop=raw.stop, column=raw.column, end=raw.end)
+    event = ModelEvent(raw.line, rule, direction, g, stop=raw.stop, column=raw.column, end=raw.end,
+                       sides=(left, condition.op, right))
     if not _boundary(builder, m, event, condition):
         return None
     seen: dict[str, int] = {}
@@ -233,7 +235,7 @@ def _boundary(builder, m, event: ModelEvent, condition) -> bool:
                     "an event's boundary must be straight: both sides linear in the states (such as x < 0 or "
                     "x - y > h, with parameters as coefficients), so the crossing can be located exactly")
         return False
-    rest = sp.sympify(g.xreplace({s: sp.Integer(0) for s in states}))
+    rest = g.xreplace({s: sp.Integer(0) for s in states})
     if any(c != 0 for c in normal):
         if t in rest.free_symbols:
             builder.add(event.line, *at, ERROR,
@@ -251,7 +253,7 @@ def _boundary(builder, m, event: ModelEvent, condition) -> bool:
         builder.add(event.line, *at, ERROR,
                     "a condition on t alone must be linear in t, such as t > T, so its time is known")
         return False
-    event.time_rate, event.time_offset = rate, sp.sympify(g.xreplace({t: sp.Integer(0)}))
+    event.time_rate, event.time_offset = rate, g.xreplace({t: sp.Integer(0)})
     return True
 
 

@@ -272,12 +272,14 @@ def test_sections_follow_the_runs_through_events_that_change_parameters():
 def test_ensemble_analyses_fitting_and_the_script_refuse_models_with_events_in_plain_words():
     from orbitdesk.analyses.basins import basins
     from orbitdesk.analyses.fitting import FitSettings, fit
-    from orbitdesk.analyses.sweep import sweep
+    from orbitdesk.analyses.sweep import SweepSettings, lyapunov_grid, sweep
     from orbitdesk.exports.run_script import run_script
 
     system = compile_model(RELAY)
     with pytest.raises(ValueError, match="ensemble engine that does not stop at the model's events"):
-        sweep(system, "K", [0.5, 1.0])
+        lyapunov_grid(system, "K", [0.5, 1.0], "h", [0.1, 0.2])
+    with pytest.raises(ValueError, match="saltation matrix"):
+        sweep(system, "K", [0.5, 1.0], SweepSettings(mode="strobe", period=1.0, lyapunov=True))
     with pytest.raises(ValueError, match="line 5"):
         basins(compile_model(BALL), "x", [0.5, 1.0], "x'", [0.0, 1.0])
     with pytest.raises(ValueError, match="saltation matrix"):
@@ -300,3 +302,47 @@ def test_a_dead_ball_never_leaks_through_the_floor(e):
     assert traj.states[0].min() > -1e-8 and traj.time[-1] < accumulation_time(e=e) + 1e-9
     times = np.array([ev.t for ev in traj.model_events])
     assert np.allclose(times, ball_impacts(len(times), e=e), atol=1e-8)
+
+
+def test_latex_lists_the_events_as_typed():
+    from orbitdesk.exports.latex import model_latex
+
+    text = model_latex(BALL + "when x' >= 20 then stop\n")
+    assert r"\text{when } x < 0\text{ becomes true:}\quad \dot{x} \leftarrow - e \dot{x}" in text
+    assert r"\text{when } \dot{x} \ge 20\text{ becomes true:}\quad \text{stop}" in text
+
+
+FLAP = """\
+k = 1
+c = 0.05
+A = 0.3
+w = 0.8
+gap = 1
+r = 0.7
+x'' = -c*x' - k*x + A*cos(w*t)
+when x > gap then x' = -r*x'
+"""
+
+
+def test_a_sweep_follows_each_value_through_its_events():
+    """A shaken oscillator with a stop: no hit at gap = 1 (its free amplitude
+    A/sqrt((k - w^2)^2 + (c w)^2) = 0.828 < 1, closed form), a hit every other shake at 0.6 (two strobe
+    points), one per shake at 0.3; each sweep value must equal its own stroboscopic section, and the
+    maxima of x never pass the stop."""
+    from orbitdesk.analyses.sections import strobe_section
+    from orbitdesk.analyses.sweep import SweepSettings, sweep
+
+    system = compile_model(FLAP)
+    period = 2 * math.pi / 0.8
+    result = sweep(system, "gap", [1.0, 0.6, 0.3],
+                   SweepSettings(mode="strobe", period=period, transient=400.0, samples=20, observe="x"))
+    assert [len(set(np.round(result.points(i), 3))) for i in range(3)] == [1, 2, 1]
+    alone = strobe_section(system, system.param_vector({"gap": 0.6}), period=period, count=20, transient=400.0)
+    assert np.allclose(result.points(1), alone.points[0], atol=1e-9)
+    # no hit at gap = 1: the shaken spring's steady response x = A((k - w^2) cos wt + c w sin wt)/D,
+    # D = (k - w^2)^2 + (c w)^2, seen at wt = 2 pi j: A (k - w^2)/D = 0.823171 (closed form)
+    assert np.allclose(result.points(0), 0.3 * 0.36 / (0.36**2 + 0.04**2), atol=1e-4)
+    # maxima are where x' falls through zero: the free amplitude A/sqrt(D) = 0.828236 at gap = 1; a swing
+    # that ends on the stop has its peak at the event (x' jumps), which is not a maximum of the equation
+    highs = sweep(system, "gap", [1.0], SweepSettings(mode="maxima", observe="x", transient=400.0, samples=10))
+    assert np.allclose(highs.points(0), 0.3 / math.sqrt(0.36**2 + 0.04**2), atol=1e-4)
