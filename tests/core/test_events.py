@@ -346,3 +346,9 @@ def test_a_sweep_follows_each_value_through_its_events():
     # that ends on the stop has its peak at the event (x' jumps), which is not a maximum of the equation
     highs = sweep(system, "gap", [1.0], SweepSettings(mode="maxima", observe="x", transient=400.0, samples=10))
     assert np.allclose(highs.points(0), 0.3 / math.sqrt(0.36**2 + 0.04**2), atol=1e-4)
+
+
+def test_events_and_delays_together_are_refused_at_the_event():
+    found = [d for d in parse_model("tau = 1\nx' = -x(t - tau)\nwhen x < 0 then x = 1\n").diagnostics
+             if d.severity == "error"]
+    assert len(found) == 1 and found[0].line == 3 and "delays" in found[0].message
