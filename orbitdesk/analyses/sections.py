@@ -206,6 +206,7 @@ def plane_section(system: CompiledSystem, p=None, u0=None, coordinate: str = "",
         return _delay_plane_section(system, p, u, coordinate, value, direction, count, transient,
                                     settings or RunSettings(), cancel, t_max)
     g, rate = _section_function(system, coordinate, value, p)
+    functions = {np.asarray(p, dtype=float).tobytes(): (g, rate)}  # (g, rate) per parameter values met
     if coordinate in system.states:  # a plane: located inside the compiled loop
         event = Event.on_plane(np.eye(system.n_states)[system.states.index(coordinate)], value)
     else:
@@ -227,7 +228,7 @@ def plane_section(system: CompiledSystem, p=None, u0=None, coordinate: str = "",
         run = simulate(system, replace(base, t_start=t, t_end=t + transient), u, p, cancel=cancel)
         if not run.ok:
             return result([], [], run.status, f"during the transient: {run.message}")
-        u, t = run.final_state.copy(), t + transient
+        u, t, p = run.final_state.copy(), t + transient, run.end_params(p)
     t_begin = t
     t_limit = t_begin + 100.0 * span if t_max is None else max(float(t_max), t_begin)
     raw_t, raw_u, raw_r = [], [], []
@@ -237,16 +238,21 @@ def plane_section(system: CompiledSystem, p=None, u0=None, coordinate: str = "",
     while len(keep) < count and t < t_limit:
         t_end = min(t + chunk, t_limit)
         run = simulate(system, replace(base, t_start=t, t_end=t_end), u, p, events=[event], cancel=cancel)
-        for te, ue in zip(run.event_times[0], run.event_states[0].T):
-            te, ue = _refine(g, rate, system, p, float(te), ue)
+        for j, (te, ue) in enumerate(zip(run.event_times[0], run.event_states[0].T)):
+            pe = run.params_at_crossing(0, j, p)  # events of the model may have changed parameters
+            key = np.asarray(pe, dtype=float).tobytes()
+            if key not in functions:
+                functions[key] = _section_function(system, coordinate, value, pe)
+            ge, rate_e = functions[key]
+            te, ue = _refine(ge, rate_e, system, pe, float(te), ue)
             raw_t.append(te)
             raw_u.append(ue)
-            raw_r.append(_crossing_rate(g, rate, system, p, te, ue))
+            raw_r.append(_crossing_rate(ge, rate_e, system, pe, te, ue))
         keep, touch = _select(raw_t, raw_r, direction, tolerance)
         if not run.ok:
             status, message = run.status, run.message
             break
-        u, t = run.final_state.copy(), float(run.time[-1])
+        u, t, p = run.final_state.copy(), float(run.time[-1]), run.end_params(p)
         if not raw_t and t - t_begin >= span:
             message = (f"no crossing of {coordinate} = {value:g} in {t - t_begin:g} time units "
                        "after the transient: the plane may miss the orbit")
@@ -272,10 +278,18 @@ def plane_section(system: CompiledSystem, p=None, u0=None, coordinate: str = "",
 def _delay_plane_section(system, p, u, coordinate, value, direction, count, transient, settings, cancel, t_max):
     """Plane sections of a delay model: runs from the start, each twice as long as the last, until
     ``count`` crossings after the transient are found (the direction of each from the event that found it)."""
-    if coordinate not in system.states:
-        raise ValueError(f"for a model with delays the section's plane is set on a state ({', '.join(system.states)})")
-    normal = np.eye(system.n_states)[system.states.index(coordinate)]
-    events = [Event.on_plane(normal, value, +1), Event.on_plane(normal, value, -1)]
+    from orbitdesk.engine.delay import delayed_quantity, simulate_delay
+
+    attach = None
+    if coordinate in system.states:
+        normal = np.eye(system.n_states)[system.states.index(coordinate)]
+        events = [Event.on_plane(normal, value, +1), Event.on_plane(normal, value, -1)]
+    elif coordinate in system.derived_names:  # its delayed values are read off the run itself
+        g, attach = delayed_quantity(system, coordinate, p)
+        events = [Event(lambda t, u: g(t, u) - value, +1), Event(lambda t, u: g(t, u) - value, -1)]
+    else:
+        known = ", ".join([*system.states, *system.derived_names])
+        raise ValueError(f"unknown coordinate '{coordinate}' (states and derived quantities: {known})")
     t0 = float(settings.t_start)
     t_begin = t0 + transient
     span = abs(settings.t_end - settings.t_start) or 100.0
@@ -284,8 +298,8 @@ def _delay_plane_section(system, p, u, coordinate, value, direction, count, tran
     length = span
     while True:
         t_end = min(t_begin + length, t_limit)
-        run = simulate(system, replace(settings, t_start=t0, t_end=t_end, samples=2, transient=0.0), u, p,
-                       events=events, cancel=cancel)
+        run = simulate_delay(system, replace(settings, t_start=t0, t_end=t_end, samples=2, transient=0.0), u, p,
+                             events, Reporter(None, cancel), attach)
         found = sorted((float(te), sign, ue) for sign, k in ((1.0, 0), (-1.0, 1))
                        for te, ue in zip(run.event_times[k], run.event_states[k].T) if te >= t_begin)
         keep, touch = _select([f[0] for f in found], [f[1] for f in found], direction, tolerance)
@@ -349,7 +363,7 @@ def strobe_section(system: CompiledSystem, p=None, u0=None, period: float = 2 * 
                        progress=report.part(0.0, share) if progress else None)
         if not run.ok:
             return result(np.empty(0), np.empty((len(names), 0)), run.status, f"during the transient: {run.message}")
-        u = run.final_state.copy()
+        u, p = run.final_state.copy(), run.end_params(p)
     if count == 1:
         return result([t_first], u.reshape(-1, 1))
     t_last = t_first + (count - 1) * period

@@ -3,10 +3,11 @@
 from orbitdesk.engine.runs import simulate
 from orbitdesk.engine.methods import NAMES
 from orbitdesk.engine.settings import RunSettings, SettingsError
+from orbitdesk.engine.status import STOPPED
 from orbitdesk.system.compiled_system import MAP
 
-from orbitdesk.cli.common import (CommandError, add_value_options, load_system, parse_number, parse_positive, print_json, read_source,
-                     stderr_progress, values_for, write_csv)
+from orbitdesk.cli.common import (CommandError, add_value_options, open_model, parse_number, parse_positive,
+                                  print_json, stderr_progress, write_csv)
 
 
 def register(sub):
@@ -20,14 +21,17 @@ def register(sub):
     parser.add_argument("--method", choices=NAMES, help="integration method")
     parser.add_argument("--rtol", type=str, metavar="R")
     parser.add_argument("--atol", type=str, metavar="A")
+    parser.add_argument("--event-rate", type=str, metavar="R",
+                        help="events of the model per unit time beyond which a run ends as chattering "
+                             "(default 10000)")
     parser.add_argument("--csv", metavar="FILE", help="write the run as CSV")
     parser.add_argument("--json", action="store_true", help="print the run as JSON")
     parser.set_defaults(handler=run)
 
 
 def settings_for(source, args) -> RunSettings:
-    """Run settings: defaults, then the project's solver settings, then the command's options."""
-    settings = source.project.solver if source.project is not None else RunSettings()
+    """Run settings: defaults, then the project's solver settings (the live document's), then the
+    command's options."""
     changes = {}
     if getattr(args, "t_end", None) is not None:
         changes["t_end"] = parse_number(args.t_end, "--t-end")
@@ -37,20 +41,18 @@ def settings_for(source, args) -> RunSettings:
         changes["samples"] = args.samples
     if getattr(args, "method", None):
         changes["method"] = args.method
-    for name in ("rtol", "atol"):
+    for name in ("rtol", "atol", "event_rate"):
         if getattr(args, name, None) is not None:
-            changes[name] = parse_positive(getattr(args, name), f"--{name}")
+            changes[name] = parse_positive(getattr(args, name), "--" + name.replace("_", "-"))
     try:
-        return settings.replace(**changes)
+        return source.doc.run_settings(**changes)
     except SettingsError as problem:
         option = "--" + problem.name.replace("_", "-")
         raise CommandError(f"{option if problem.name in changes else problem.name}: {problem.message}") from None
 
 
 def run(args) -> int:
-    source = read_source(args.path)
-    system = load_system(source)
-    p, u0 = values_for(system, source, args.set, args.init)
+    source, system, p, u0 = open_model(args)
     settings = settings_for(source, args)
     try:
         traj = simulate(system, settings, u0, p, progress=stderr_progress("run"))
@@ -67,5 +69,6 @@ def run(args) -> int:
             time_key: traj.time,
             "states": {name: traj.states[i] for i, name in enumerate(system.states)},
             "derived": traj.derived,
+            "events": [event.to_dict() for event in traj.model_events],
         })
-    return 0 if traj.ok else 1
+    return 0 if traj.ok or traj.status == STOPPED else 1

@@ -2,8 +2,9 @@
 
 Explicit methods (Dormand-Prince 8(5,3) and 5(4), RK4) and maps run in the compiled loops of
 ``integrators`` on the model's kernels: output samples are read off each step's dense output in
-the same pass, plane events are located there by one root finder. Stiff methods, and events given
-as arbitrary functions, step with scipy's ``OdeSolver`` classes one step at a time. Every path
+the same pass, plane events are located there by one root finder. Stiff methods (``stiff.py``: scipy's
+steppers with each step's interpolant checked), and events given as arbitrary functions, step one
+step at a time here. Every path
 reports progress, stops cleanly on blow-up, undefined values or cancel and keeps what it computed.
 """
 
@@ -21,6 +22,7 @@ from scipy.optimize import brentq
 from orbitdesk.engine.methods import NAMES
 from orbitdesk.engine.settings import RunSettings
 from orbitdesk.engine import compiled, drivers, limits
+from orbitdesk.engine.stiff import StiffStepper
 from orbitdesk.engine.status import (C_CANCELLED, C_DIVERGED, C_STEP_FAILED, C_UNDEFINED, CANCELLED, DIVERGED,
                                  OK, STEP_FAILED, UNDEFINED)
 from orbitdesk.engine.status import word as status_word
@@ -68,6 +70,17 @@ class Trajectory:
     event_times: list[np.ndarray] = field(default_factory=list)
     event_states: list[np.ndarray] = field(default_factory=list)  # each (n_states, M)
     steps_taken: int = 0
+    model_events: list = field(default_factory=list)  # AppliedEvent of the model's 'when' lines, in time order
+    final_params: np.ndarray | None = None  # parameters at the end when the model's events changed them
+    event_params: list = field(default_factory=list)  # per event of the caller: (n_params, M) when they changed
+
+    def end_params(self, p):
+        """The parameter values at the end of the run (``p`` unless the model's events changed them)."""
+        return p if self.final_params is None else self.final_params
+
+    def params_at_crossing(self, k, j, p):
+        """The parameter values at the caller's event k, crossing j (``p`` unless events changed them)."""
+        return p if not self.event_params else self.event_params[k][:, j]
 
     @property
     def ok(self) -> bool:
@@ -124,6 +137,10 @@ def simulate(system: CompiledSystem, settings: RunSettings | None = None, u0=Non
         from orbitdesk.engine.delay import simulate_delay
 
         return simulate_delay(system, settings, u0, p, list(events), report)
+    if system.model.events:
+        from orbitdesk.engine.model_events import simulate_with_events
+
+        return simulate_with_events(system, settings, u0, p, list(events), report)
     if settings.method_info.family == "explicit_rk" and all(ev.plane is not None for ev in events):
         return _integrate_loop(system, settings, u0, p, list(events), report)
     return _integrate(system, settings, u0, p, list(events), report)
@@ -320,12 +337,14 @@ def _integrate(system, settings, u0, p, events, report) -> Trajectory:
     try:
         if settings.method == "rk4":
             solver = _RK4Stepper(fun, t0, u0, t1, settings.dt)
+        elif settings.method_info.stiff:  # every step's interpolant held to the tolerance (stiff.py)
+            solver = StiffStepper(settings.method_info.scipy_name, fun, lambda t, y: system.jac(t, y, p), t0, u0,
+                                  t1, settings.rtol, settings.atol, settings.max_step,
+                                  check=settings.samples > 2 or bool(events))  # only step ends read otherwise
         else:
             kwargs = dict(rtol=settings.rtol, atol=settings.atol)
             if settings.max_step:
                 kwargs["max_step"] = settings.max_step
-            if settings.method_info.stiff:
-                kwargs["jac"] = lambda t, y: system.jac(t, y, p)
             solver = getattr(scipy.integrate, settings.method_info.scipy_name)(fun, t0, u0, t1, **kwargs)
         if sample_t is None:
             ts.append(t0)

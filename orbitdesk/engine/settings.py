@@ -36,8 +36,11 @@ RULES = {
     "steps": ("count", 1, 10**8, False),
     "bound": ("positive", None, None, False),
     "transient": ("nonneg", None, None, False),
+    "event_rate": ("positive", None, None, False),
 }
-SAVED = ("method", "rtol", "atol", "max_step", "dt", "t_start", "t_end", "samples", "steps", "transient")
+SAVED = ("method", "rtol", "atol", "max_step", "dt", "t_start", "t_end", "samples", "steps", "transient",
+         "event_rate")
+SAVED_IF_CHANGED = ("event_rate",)  # written into a project only when it differs from the default
 
 
 def check_value(name: str, value):
@@ -89,6 +92,7 @@ class RunSettings:
     steps: int = 1000  # iterations of a map
     bound: float = 1e10  # |state| beyond this counts as blow-up
     transient: float = 0.0  # output before t_start + transient is dropped
+    event_rate: float = 10_000.0  # model events per unit time beyond which a run ends as chattering
 
     def __post_init__(self):
         for f in fields(self):
@@ -102,7 +106,8 @@ class RunSettings:
 
     def saved(self) -> dict:
         """The fields a project stores."""
-        return {name: getattr(self, name) for name in SAVED}
+        return {name: getattr(self, name) for name in SAVED
+                if name not in SAVED_IF_CHANGED or getattr(self, name) != getattr(RunSettings, name)}
 
     @classmethod
     def from_mapping(cls, values: dict, base: "RunSettings | None" = None) -> "RunSettings":

@@ -192,10 +192,11 @@ class ModelReadback(QWidget):
                 "summary": self._summary(system),
                 "equations": self._equations(system),
                 "derived": self._derived(system),
+                "events": self._events(system),
                 "jacobian": self._jacobian(system),
             }
         s = self._static_html
-        return "".join([s["summary"], s["equations"], self._initial(system), self._parameters(system),
+        return "".join([s["summary"], s["equations"], s["events"], self._initial(system), self._parameters(system),
                         s["derived"], s["jacobian"]])
 
     # small builders with inline styles (Qt's rich text honours those, not class rules, for margins)
@@ -256,6 +257,27 @@ class ModelReadback(QWidget):
                          f"{self._m(base + chr(39))} is the rate of change of {self._m(base)}")
         return self._heading(title) + self._table(rows) + (self._muted("<br>".join(notes), 4) if notes else "")
 
+    def _events(self, system) -> str:
+        """Each event as understood: when it happens (the boundary and its direction) and what it does."""
+        events = getattr(system.model, "events", [])
+        if not events:
+            return ""
+        rows = []
+        for ev in events:
+            if ev.on_time:
+                when = f"at {system.time_name} = {model_str(-ev.time_offset / ev.time_rate)}"
+            else:
+                when = f"{model_str(ev.condition)} {'rises' if ev.direction > 0 else 'falls'} through 0"
+            does = [f"{target} = {model_str(expr)}" for target, _, expr in ev.assignments]
+            if ev.stop:
+                does.append("stop")
+            rows.append("<tr>" + self._td(f"<span style='color:{self._c['muted']}'>line {ev.line}</span>", "right")
+                        + self._td(self._m(when)) + self._td("\u2192") + self._td(self._m(", ".join(does)))
+                        + "</tr>")
+        note = ("right sides are worked out with the values from before the event, then all are set; the "
+                "crossing is located on the integrator's dense output")
+        return self._heading("Events") + self._table(rows) + self._muted(note, 4)
+
     def _initial(self, system) -> str:
         current = getattr(self.session, "initial", None) or {}
         label = "Initial values" if _is_flow(system) else "Starting values"
@@ -290,7 +312,7 @@ class ModelReadback(QWidget):
         if not system.derived_names:
             return ""
         rows = [self._equation_row(n, model_str(e), self._c["derived"])
-                for n, e in zip(system.derived_names, system.derived_exprs)]
+                for n, e in zip(system.derived_names, system.derived_delayed or system.derived_exprs)]
         return self._heading("Derived quantities") + self._table(rows)
 
     def _jacobian(self, system) -> str:

@@ -8,6 +8,7 @@ from PySide6.QtCore import QSize, Qt
 from PySide6.QtGui import QColor, QIcon, QPainter, QPixmap
 from PySide6.QtWidgets import QHBoxLayout, QLabel, QListWidget, QListWidgetItem, QToolButton, QVBoxLayout
 
+from orbitdesk.app.plots.event_marks import EventMarks
 from orbitdesk.app.views import empty_hint, muted_colour, series_colour, style_plot
 from orbitdesk.app.plots.data_overlay import TIME, DataOverlay
 from orbitdesk.app.plots.plot_style import ScreenCurve
@@ -94,6 +95,7 @@ class TimeSeriesView(SessionView):
         self.plot.getViewBox().sigRangeChangedManually.connect(self._on_manual_range)
         session.heldChanged.connect(self._on_held)
         self.data_overlay = DataOverlay(session, self.plot, self._overlay_pairs)
+        self.event_marks = EventMarks(self.plot)
 
         options = control_row(self.log_y, self.spectrum, None, self.note, self.fit, spacing=6, stretch=False)
         right = QVBoxLayout()
@@ -236,6 +238,7 @@ class TimeSeriesView(SessionView):
         self.empty_hint.setVisible(traj is None)
         self.data_overlay.refresh()
         if traj is None:
+            self.event_marks.clear()
             return
         discrete = traj.kind == "map"
         missing = []
@@ -268,6 +271,9 @@ class TimeSeriesView(SessionView):
                               symbolPen=None, symbolBrush=colour, connect="finite")
             else:
                 curve.setData(x, y, pen=pen, symbol=None, connect="finite")
+        marks = [] if spectrum else [("t", n, series_colour(self._names.index(n) if n in self._names else 0, self))
+                                     for n in names if n in traj.state_names]
+        self.note.setText(self.event_marks.show(traj, marks) if marks else "")
         if missing:
             self.note.setText("Spectrum needs evenly spaced samples")
         if refit:
