@@ -63,7 +63,7 @@ def test_any_solver_and_view_settings_load_within_bounds_or_are_refused(solver_s
         assert err.message
         return
     s = p.solver
-    span = abs(s.t_end - s.t_start) + s.transient
+    span = abs(s.t_end - s.t_start)  # the transient is part of the run
     assert all(math.isfinite(v) and abs(v) <= limits.DEFAULTS.span for v in (s.t_start, s.t_end, s.transient))
     assert span / s.dt <= limits.DEFAULTS.steps
     for view_id, settings in p.views.items():
