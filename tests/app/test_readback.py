@@ -121,7 +121,7 @@ def test_events_are_listed_with_their_boundary_and_what_they_set(qtbot, session,
     view = show_readback(qtbot, session, text, size=(520, 640))
     shown = view.plain_text()
     assert "Events" in shown
-    assert "line 6" in shown and "x falls through 0" in shown and "x' = -e*x'" in shown
+    assert "line 6" in shown and "x falls below 0" in shown and "x' = -e*x'" in shown
     assert "line 7" in shown and "at t = T" in shown and "g = 0, stop" in shown
     qtbot.wait(30)
     assert view.grab().save(os.path.join(artifacts, "readback_events.png"))

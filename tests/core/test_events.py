@@ -352,3 +352,41 @@ def test_events_and_delays_together_are_refused_at_the_event():
     found = [d for d in parse_model("tau = 1\nx' = -x(t - tau)\nwhen x < 0 then x = 1\n").diagnostics
              if d.severity == "error"]
     assert len(found) == 1 and found[0].line == 3 and "delays" in found[0].message
+
+
+def test_the_html_report_lists_the_events_escaped(tmp_path):
+    """The report names each event with its line and boundary; a rule's text is escaped for HTML."""
+    from html.parser import HTMLParser
+
+    from orbitdesk.document.project import Project
+    from orbitdesk.exports.report import render_report
+
+    text = BALL + "when x' > 100 then stop   # <b>not bold</b>\n"
+    system = compile_model(text)
+    page = render_report(Project(name="ball", model=text), system)
+
+    class Cells(HTMLParser):
+        def __init__(self):
+            super().__init__()
+            self.cells, self.inside, self.bold = [], False, 0
+
+        def handle_starttag(self, tag, attrs):
+            if tag == "td":
+                self.inside = True
+                self.cells.append("")
+            self.bold += tag == "b"
+
+        def handle_endtag(self, tag):
+            if tag == "td":
+                self.inside = False
+
+        def handle_data(self, data):
+            if self.inside:
+                self.cells[-1] += data
+
+    reader = Cells()
+    reader.feed(page)
+    shown = " | ".join(reader.cells)
+    assert "when x < 0 then x' = -e*x'" in shown and "x falls below 0" in shown
+    assert "when x' > 100 then stop" in shown and "x' rises above 100" in shown
+    assert reader.bold == 0 and "&lt;b&gt;" in page  # the comment in the model is shown as text, never as markup

@@ -267,7 +267,8 @@ class ModelReadback(QWidget):
             if ev.on_time:
                 when = f"at {system.time_name} = {model_str(-ev.time_offset / ev.time_rate)}"
             else:
-                when = f"{model_str(ev.condition)} {'rises' if ev.direction > 0 else 'falls'} through 0"
+                left, _, right = ev.sides
+                when = f"{model_str(left)} {'rises above' if ev.direction > 0 else 'falls below'} {model_str(right)}"
             does = [f"{target} = {model_str(expr)}" for target, _, expr in ev.assignments]
             if ev.stop:
                 does.append("stop")
