@@ -105,11 +105,6 @@ GENERATED = {
     "product_of_2000_decimals_legal": (
         "2,000 different decimals multiplied: legal",
         lambda: ("x' = x * " + "*".join(f"1.{i:05d}7" for i in range(1, 2000))).encode(), "ok"),
-    "sum_of_4000_cosines_legal": (
-        "four definitions of 1,000 cosines each in one equation (a generated sum of 4,000 terms is too deep "
-        "for Python's compiler): legal",
-        lambda: ("\n".join(f"d{j} = " + "+".join(f"cos({i}*x+{j})" for i in range(1, 1001)) for j in range(4))
-                 + "\nx' = -x + 1e-6*(d0+d1+d2+d3)\n").encode(), "ok"),
     "tower_of_39_roots_legal": (
         "39 nested square roots, as deep as an equation may be: legal",
         lambda: ("x' = -x + " + "sqrt(1+" * 39 + "x" + ")" * 39 + "\n").encode(), "ok"),
