@@ -49,8 +49,9 @@ def read_source(path_text: str) -> Source:
         raise CommandError(f"{path}: {err}", EXIT_UNREADABLE) from None
 
 
-def load_system(source: Source):
-    """Compile the source's model; errors become a CommandError listing the diagnostics."""
+def load_system(source: Source, noise: bool = False):
+    """Compile the source's model; errors become a CommandError listing the diagnostics. A model with
+    noise, for a command that assumes determinism (``noise`` False), gets a note on stderr."""
     from orbitdesk.language.model import parse_model
     from orbitdesk.system.compiled_system import compile_model
 
@@ -58,7 +59,12 @@ def load_system(source: Source):
     if not parsed.ok:
         lines = [f"{source.path}:{d.format()}" for d in parsed.errors]
         raise CommandError("the model has errors:\n" + "\n".join(lines), EXIT_ERRORS)
-    return compile_model(parsed)
+    system = compile_model(parsed)
+    if system.stochastic and not noise:
+        from orbitdesk.language.noise import NOISE_FREE_NOTE
+
+        print(f"note: {NOISE_FREE_NOTE}", file=sys.stderr)
+    return system
 
 
 _ASSIGN = re.compile(r"^\s*([A-Za-z_][A-Za-z0-9_]*'*)\s*=\s*(.+?)\s*$")

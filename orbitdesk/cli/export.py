@@ -99,7 +99,7 @@ def run(args) -> int:
     if args.standalone and not args.latex:
         raise CommandError("--standalone goes with --latex")
     source = read_source(args.path)
-    system = load_system(source)
+    system = load_system(source, noise=True)
     p, u0 = values_for(system, source, args.set, args.init)
     title = source.project.name if source.project is not None else source.path.stem
     if args.latex:

@@ -2,7 +2,7 @@
 
 from orbitdesk.engine.runs import simulate
 from orbitdesk.engine.methods import NAMES
-from orbitdesk.engine.settings import RunSettings, SettingsError
+from orbitdesk.engine.settings import SCHEMES, RunSettings, SettingsError
 from orbitdesk.system.compiled_system import MAP
 
 from orbitdesk.cli.common import (CommandError, add_value_options, load_system, parse_number, parse_positive, print_json, read_source,
@@ -20,6 +20,11 @@ def register(sub):
     parser.add_argument("--method", choices=NAMES, help="integration method")
     parser.add_argument("--rtol", type=str, metavar="R")
     parser.add_argument("--atol", type=str, metavar="A")
+    noise = parser.add_argument_group("models with noise")
+    noise.add_argument("--seed", type=int, metavar="S", help="seed of the random increments (same seed, same run)")
+    noise.add_argument("--realisations", type=int, metavar="R", help="how many realisations to run")
+    noise.add_argument("--scheme", choices=tuple(SCHEMES), help="fixed-step scheme (default milstein)")
+    noise.add_argument("--dt", type=str, metavar="H", help="the fixed step (also of rk4)")
     parser.add_argument("--csv", metavar="FILE", help="write the run as CSV")
     parser.add_argument("--json", action="store_true", help="print the run as JSON")
     parser.set_defaults(handler=run)
@@ -37,6 +42,11 @@ def settings_for(source, args) -> RunSettings:
         changes["samples"] = args.samples
     if getattr(args, "method", None):
         changes["method"] = args.method
+    for name in ("seed", "realisations", "scheme"):
+        if getattr(args, name, None) is not None:
+            changes[name] = getattr(args, name)
+    if getattr(args, "dt", None) is not None:
+        changes["dt"] = parse_positive(args.dt, "--dt")
     for name in ("rtol", "atol"):
         if getattr(args, name, None) is not None:
             changes[name] = parse_positive(getattr(args, name), f"--{name}")
@@ -49,10 +59,15 @@ def settings_for(source, args) -> RunSettings:
 
 def run(args) -> int:
     source = read_source(args.path)
-    system = load_system(source)
+    system = load_system(source, noise=True)
     p, u0 = values_for(system, source, args.set, args.init)
     settings = settings_for(source, args)
-    traj = simulate(system, settings, u0, p, progress=stderr_progress("run"))
+    try:
+        traj = simulate(system, settings, u0, p, progress=stderr_progress("run"))
+    except ValueError as problem:  # a model with noise asked for too much or a backward run
+        raise CommandError(str(problem)) from None
+    if traj.realisations is not None:
+        return _noise_output(args, system, traj)
     time_key = "n" if system.kind == MAP else "t"
     if args.csv:
         header = [time_key, *system.states, *traj.derived]
@@ -65,4 +80,15 @@ def run(args) -> int:
             "states": {name: traj.states[i] for i, name in enumerate(system.states)},
             "derived": traj.derived,
         })
+    return 0 if traj.ok else 1
+
+
+def _noise_output(args, system, traj) -> int:
+    """A model with noise: the mean and standard deviation over the realisations, and the first one."""
+    R = traj.realisations
+    if args.csv:
+        header = ["t", *system.states, *(f"{s}_mean" for s in system.states), *(f"{s}_std" for s in system.states)]
+        write_csv(args.csv, header, [R.time, *R.states[0], *R.mean, *R.std])
+    if args.json or not args.csv:
+        print_json({"status": traj.status, "message": traj.message, **R.to_dict()})
     return 0 if traj.ok else 1

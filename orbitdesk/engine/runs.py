@@ -20,7 +20,7 @@ from scipy.optimize import brentq
 
 from orbitdesk.engine.methods import NAMES
 from orbitdesk.engine.settings import RunSettings
-from orbitdesk.engine import compiled, drivers
+from orbitdesk.engine import compiled, drivers, stochastic
 from orbitdesk.engine.status import (C_CANCELLED, C_DIVERGED, C_STEP_FAILED, C_UNDEFINED, CANCELLED, DIVERGED,
                                  OK, STEP_FAILED, UNDEFINED)
 from orbitdesk.engine.status import word as status_word
@@ -68,6 +68,7 @@ class Trajectory:
     event_times: list[np.ndarray] = field(default_factory=list)
     event_states: list[np.ndarray] = field(default_factory=list)  # each (n_states, M)
     steps_taken: int = 0
+    realisations: object = None  # a model with noise: engine.stochastic.Realisations (states = the first)
 
     @property
     def ok(self) -> bool:
@@ -119,6 +120,8 @@ def simulate(system: CompiledSystem, settings: RunSettings | None = None, u0=Non
     report = Reporter(progress, cancel)
     if system.kind == MAP:
         return _iterate(system, settings, u0, p, report)
+    if system.stochastic:  # realisations by a fixed-step scheme for noise (events are not located there)
+        return stochastic.simulate_noise(system, settings, u0, p, report)
     if settings.method_info.family == "explicit_rk" and all(ev.plane is not None for ev in events):
         return _integrate_loop(system, settings, u0, p, list(events), report)
     return _integrate(system, settings, u0, p, list(events), report)

@@ -23,7 +23,9 @@ class SettingsError(ValueError):
         self.name, self.message = name, message
 
 
-# field: (kind, low, high, allow None); kinds: method, positive, number, nonneg, count
+SCHEMES = {"milstein": "Milstein (strong order 1)", "euler_maruyama": "Euler–Maruyama (strong order 1/2)"}
+
+# field: (kind, low, high, allow None); kinds: method, scheme, positive, number, nonneg, count
 RULES = {
     "method": ("method", None, None, False),
     "rtol": ("positive", 1e-15, 1.0, False),
@@ -36,8 +38,12 @@ RULES = {
     "steps": ("count", 1, 10**8, False),
     "bound": ("positive", None, None, False),
     "transient": ("nonneg", None, None, False),
+    "scheme": ("scheme", None, None, False),  # models with noise: the fixed-step scheme (engine/stochastic.py)
+    "seed": ("count", 0, 2**31 - 1, False),  # models with noise: every run from one seed is the same
+    "realisations": ("count", 1, 100_000, False),
 }
-SAVED = ("method", "rtol", "atol", "max_step", "dt", "t_start", "t_end", "samples", "steps", "transient")
+SAVED = ("method", "rtol", "atol", "max_step", "dt", "t_start", "t_end", "samples", "steps", "transient",
+         "scheme", "seed", "realisations")
 
 
 def check_value(name: str, value):
@@ -52,6 +58,10 @@ def check_value(name: str, value):
     if kind == "method":
         if value not in NAMES:
             raise SettingsError(name, f"expected one of {', '.join(NAMES)}, got {value!r}")
+        return value
+    if kind == "scheme":
+        if value not in SCHEMES:
+            raise SettingsError(name, f"expected one of {', '.join(SCHEMES)}, got {value!r}")
         return value
     if kind == "count":
         if isinstance(value, float) and value.is_integer():
@@ -89,6 +99,9 @@ class RunSettings:
     steps: int = 1000  # iterations of a map
     bound: float = 1e10  # |state| beyond this counts as blow-up
     transient: float = 0.0  # output before t_start + transient is dropped
+    scheme: str = "milstein"  # models with noise: fixed step dt, realisations from seed
+    seed: int = 1
+    realisations: int = 20
 
     def __post_init__(self):
         for f in fields(self):
@@ -125,4 +138,4 @@ def defaults() -> dict:
     return {f.name: f.default for f in fields(RunSettings)}
 
 
-__all__ = ["RunSettings", "SettingsError", "RULES", "SAVED", "check_value", "defaults"]
+__all__ = ["RunSettings", "SettingsError", "RULES", "SAVED", "SCHEMES", "check_value", "defaults"]

@@ -20,6 +20,7 @@ from sympy.printing.pycode import PythonCodePrinter
 
 from orbitdesk.system.derivatives import jacobian_almost_everywhere
 from orbitdesk.language.model import FLOW, MAP, ParsedModel, parse_model
+from orbitdesk.language.noise import system_noise
 
 
 class ModelError(ValueError):
@@ -59,8 +60,15 @@ class CompiledSystem:
     state_symbols: list[sp.Symbol]
     param_symbols: list[sp.Symbol]
     nonsmooth: list[str] = field(default_factory=list)
+    noise_sources: list[str] = field(default_factory=list)  # white-noise sources (language/noise.py); f is the drift
+    diffusion: list[list[sp.Expr]] = field(default_factory=list)  # n x m: row per state, column per source
 
     # ------------------------------------------------------------ facts
+    @property
+    def stochastic(self) -> bool:
+        """The model has noise: runs are realisations (engine/stochastic.py); ``f`` is its noise-free part."""
+        return bool(self.noise_sources)
+
     @property
     def n_states(self) -> int:
         return len(self.states)
@@ -448,6 +456,7 @@ def compile_model(model: ParsedModel | str) -> CompiledSystem:
         state_symbols=[model.symbols[s] for s in states],
         param_symbols=[model.symbols[n] for n in params],
         nonsmooth=list(model.nonsmooth),
+        **system_noise(model, states),
     )
 
 
