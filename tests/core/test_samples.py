@@ -15,7 +15,7 @@ from orbitdesk.document.walkthrough import apply_step
 
 SAMPLES = Path(__file__).resolve().parents[2] / "sample_projects"
 NAMES = ["shaken_beam", "convection_loop", "relaxation_circuit", "clock_reaction", "pond_predators",
-         "insect_generations", "pendulum", "stirred_tank", "wagon_train", "bracket_pluck"]
+         "insect_generations", "pendulum", "stirred_tank", "wagon_train", "bracket_pluck", "rocking_buoy"]
 
 
 def load(name):
@@ -243,3 +243,25 @@ def test_bracket_sample_data_match_their_files_and_fit_back_to_what_made_them():
     for e in result.estimates:
         assert abs(e.value - truth[e.name]) < 3 * e.stderr, e
     assert project.views["fit"]["parameters"] == ["c", "k", "k3"]
+
+
+def test_rocking_buoy_stationary_spread_and_peak():
+    """x'' + c x' + k x = a xi (white noise): stationary variance a^2 / (2 c k) and a spectral peak near
+    sqrt(k) / (2 pi) for light damping (closed form of the linear oscillator driven by white noise;
+    Gardiner, Handbook of Stochastic Methods, 4.5.6)."""
+    from orbitdesk.analyses.noise_statistics import histogram
+    from orbitdesk.analyses.spectra import mean_power_spectrum
+
+    project = load("rocking_buoy")
+    system = compile_model(project.model)
+    assert system.stochastic
+    run = simulate(system, project.solver)
+    R = run.realisations
+    assert R.count == 40 and R.seed == 1
+    k, c, a = (system.param_values[system.parameters.index(n)] for n in "kca")
+    spread = histogram(R, "x", "stationary", 30.0)
+    # 40 realisations x 30 time units, correlation time about 2/c = 10: roughly 120 independent values,
+    # so the sample standard deviation scatters by about 1/sqrt(240) = 6.5 %: allow 4 of those
+    assert spread.std == pytest.approx(a / math.sqrt(2 * c * k), rel=0.26)
+    freq, power, count = mean_power_spectrum(R.time, R.series("x"))
+    assert count == 40 and freq[np.argmax(power)] == pytest.approx(math.sqrt(k) / (2 * math.pi), rel=0.1)

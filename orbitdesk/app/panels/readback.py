@@ -92,6 +92,17 @@ def partial_label(state: str) -> str:
     return "\u2202/\u2202" + _grouped(state)
 
 
+def noise_text(system, i: int) -> str:
+    """`` + g*noise(k)`` for each source acting on state ``i`` (plain ``noise`` for the equation's own)."""
+    out = ""
+    for key, g in zip(system.noise_sources, system.diffusion[i] if system.stochastic else ()):
+        if g == 0:
+            continue
+        word = f"noise{key}" if key.startswith("(") else "noise"
+        out += f" + {word}" if g == 1 else f" + ({model_str(g)})*{word}"
+    return out
+
+
 def time_dependent_states(system) -> list[str]:
     return [s for s, f in zip(system.states, system.f) if system.t_symbol in f.free_symbols]
 
@@ -284,9 +295,13 @@ class ModelReadback(QWidget):
 
     def _equations(self, system) -> str:
         title = "First-order form" if system.kind == FLOW else "Map"
-        rows = [self._equation_row(equation_lhs(system, s), model_str(f), self._c["lhs"])
-                for s, f in zip(system.states, system.f)]
+        rows = [self._equation_row(equation_lhs(system, s), model_str(f) + noise_text(system, i), self._c["lhs"])
+                for i, (s, f) in enumerate(zip(system.states, system.f))]
         notes = []
+        if system.stochastic:
+            notes.append(f"{self._m('noise')} is white noise in the Ito sense (x' = f + g noise is dx = f dt + g dW); "
+                         "runs are realisations, and equilibria, cycles, sections, sweeps, continuation and "
+                         "Lyapunov exponents use the noise-free part, the equations without the noise terms")
         for base, order in reduced_orders(system).items():
             new = ", ".join(self._m(base + "'" * k) for k in range(1, order))
             plural = order > 2

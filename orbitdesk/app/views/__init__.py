@@ -12,7 +12,7 @@ import importlib
 
 VIEW_MODULES = ["timeseries", "phase_plane", "phase_space_3d", "equilibria", "cycles", "sections", "sweep",
                 "lyapunov", "parameter_map", "basins", "bifurcation",
-                "fit"]
+                "fit", "noise_statistics"]
 DEFAULT_VISIBLE = ("timeseries", "phase_plane")
 
 # Our own series colours: muted, distinguishable on light and dark backgrounds (light, dark variants).
