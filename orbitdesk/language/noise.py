@@ -92,12 +92,13 @@ def _source_key(node, equation: str):
     return f"({text.lstrip('0') or '0'})" if text.isdigit() else f"({text})", None
 
 
-def _rewrite(builder, st, node, equation, keys):
-    """``node`` with each noise term replaced by its generated name; None after an error (reported)."""
+def _rewrite(node, equation, keys, report):
+    """``node`` with each noise term replaced by its generated name; None after a problem, which goes
+    to ``report(node, message)``."""
     if _is_noise(node):
         key, problem = _source_key(node, equation)
         if problem:
-            builder.add(st.line, node.column, node.end, ERROR, problem)
+            report(node, problem)
             return None
         if key not in keys:
             keys.append(key)
@@ -107,15 +108,23 @@ def _rewrite(builder, st, node, equation, keys):
     for child in _children_with_noise(node):
         problem = _why_not_here(node, child)
         if problem:
-            spot = next(item for item in walk(child) if _is_noise(item))
-            builder.add(st.line, spot.column, spot.end, ERROR, problem)
+            report(next(item for item in walk(child) if _is_noise(item)), problem)
             return None
     if isinstance(node, Unary):
-        operand = _rewrite(builder, st, node.operand, equation, keys)
+        operand = _rewrite(node.operand, equation, keys, report)
         return None if operand is None else replace(node, operand=operand)
-    left = _rewrite(builder, st, node.left, equation, keys)
-    right = _rewrite(builder, st, node.right, equation, keys) if left is not None else None
+    left = _rewrite(node.left, equation, keys, report)
+    right = _rewrite(node.right, equation, keys, report) if left is not None else None
     return None if right is None else replace(node, left=left, right=right)
+
+
+def marked_tree(tree, equation: str):
+    """``tree`` (an equation's right side as typed) with its noise terms as generated names, for
+    printers that re-read the text (the LaTeX export); ValueError where the checker would refuse it."""
+    def report(_node, message):
+        raise ValueError(message)
+
+    return _rewrite(tree, equation, [], report)
 
 
 def _children_with_noise(node):
@@ -160,8 +169,10 @@ def mark(builder, statements) -> None:
                         "not in a definition, an initial value or a function")
             st.tree = None
             continue
-        tree = _rewrite(builder, st, st.tree, st.name + "'" * st.primes, keys)
-        st.tree = tree
+        def report(node, message, st=st):
+            builder.add(st.line, node.column, node.end, ERROR, message)
+
+        st.tree = _rewrite(st.tree, st.name + "'" * st.primes, keys, report)
 
 
 def symbol(name: str) -> sp.Symbol | None:
@@ -208,4 +219,4 @@ def system_noise(model, states) -> dict:
             "diffusion": [[model.diffusion.get(s, {}).get(k, sp.Integer(0)) for k in sources] for s in states]}
 
 
-__all__ = ["WORD", "MARK", "NOISE_FREE_NOTE", "mark", "symbol", "split", "drop", "system_noise", "source_label"]
+__all__ = ["WORD", "MARK", "NOISE_FREE_NOTE", "mark", "marked_tree", "symbol", "split", "drop", "system_noise", "source_label"]
