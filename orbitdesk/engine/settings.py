@@ -23,7 +23,7 @@ class SettingsError(ValueError):
         self.name, self.message = name, message
 
 
-SCHEMES = {"milstein": "Milstein (strong order 1)", "euler_maruyama": "Euler–Maruyama (strong order 1/2)"}
+SCHEMES = {"milstein": "Milstein (order 1)", "euler_maruyama": "Euler–Maruyama (order 1/2)"}  # strong orders
 
 # field: (kind, low, high, allow None); kinds: method, scheme, positive, number, nonneg, count
 RULES = {

@@ -32,6 +32,8 @@ SDE_EULER, SDE_MILSTEIN = 0, 1
 SCHEME_CODES = {"euler_maruyama": SDE_EULER, "milstein": SDE_MILSTEIN}
 MAX_VALUES = 40_000_000  # realisations x states x samples kept
 _CHUNK_DRAWS = 200_000  # random numbers drawn per chunk (all realisations)
+WAIT_FOR_COMPILER = 3_000_000  # steps x realisations (x states / 3): about a minute of plain Python
+PREPARE_FROM = 20_000  # ... from which the model's kernels are compiled in the background for later runs
 
 
 @loop
@@ -171,8 +173,11 @@ def run_realisations(system, settings, u0, p, report=None, engine=None) -> Reali
     if scheme == SDE_MILSTEIN and not commutative:
         notes.append("the noise sources do not commute (L^j g_k differs from L^k g_j), and the Levy areas "
                      "this would need are not simulated: Milstein's scheme converges with order 1/2 here")
-    if engine is None:
-        engine = compiled.engine_for_work(system, R * total * (1 + n / 3))
+    if engine is None:  # wait for the compiler only when plain Python would take longer than compiling
+        work = R * total * (1 + n / 3)
+        engine = compiled.engine_for(system, wait=work >= WAIT_FOR_COMPILER)
+        if not engine.compiled and work >= PREPARE_FROM:
+            compiled.prepare(system)  # in the background, for the runs after this one
     rngs = increments(settings.seed, R)
     Y = np.ascontiguousarray(np.tile(np.asarray(u0, dtype=float), (R, 1)))
     p = np.ascontiguousarray(p, dtype=float)
