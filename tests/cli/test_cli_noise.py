@@ -37,7 +37,8 @@ def test_run_with_noise_csv(capsys, model, tmp_path):
 def test_deterministic_analyses_say_they_use_the_noise_free_part(capsys, model):
     code, out, err = run_cli(capsys, "equilibria", model(OU), "--json")
     assert code == 0 and "noise-free part" in err
-    assert json.loads(out)["equilibria"][0]["state"]["x"] == 0.0
+    found = json.loads(out)["equilibria"]
+    assert len(found) == 1 and abs(found[0]["state"]["x"]) < 1e-9  # the drift -theta x rests at 0 only
 
 
 def test_too_many_values_is_refused_plainly(capsys, model):
