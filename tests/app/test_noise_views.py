@@ -21,7 +21,7 @@ def test_time_series_draws_realisations_mean_and_band(qtbot, session):
     curve = ts._curves["x"]
     assert np.array_equal(curve.xData, R.time) and np.allclose(curve.yData, R.mean[0], equal_nan=True)
     faint = [item for item in ts._noise_items if hasattr(item, "xData") and item.xData is not None]
-    assert len(faint) >= 12 and "60 realisations (seed 4)" in ts.note.text()
+    assert len(faint) >= 12 and "60 realisations, seed 4" in ts.note.text()
     header, rows = ts.export_data()
     assert header == ["t", "x", "mean(x)", "std(x)"] and np.allclose(rows[:, 3], R.std[0])
     ts.grab().save(f"{ARTIFACTS}/noise_timeseries.png")
@@ -51,3 +51,11 @@ def test_noise_statistics_says_what_it_is_for_without_noise(qtbot, session):
     load_model(qtbot, session, "x' = -x\nx(0) = 1\n", dict(t_end=5.0, samples=51))
     view = open_view(qtbot, session, "noise_statistics")
     assert view.result is None and view.empty.isVisible()
+
+
+def test_views_that_assume_determinism_say_they_use_the_noise_free_part(qtbot, session):
+    load_model(qtbot, session, OU, SOLVER)
+    view = open_view(qtbot, session, "equilibria")
+    assert view.noise_note.isVisible() and "noise-free part" in view.noise_note.text()
+    load_model(qtbot, session, "x' = -x\nx(0) = 1\n", dict(t_end=5.0, samples=51))
+    assert not view.noise_note.isVisible()

@@ -6,7 +6,8 @@ import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import QSize, Qt
 from PySide6.QtGui import QColor, QIcon, QPainter, QPixmap
-from PySide6.QtWidgets import QHBoxLayout, QLabel, QListWidget, QListWidgetItem, QToolButton, QVBoxLayout
+from PySide6.QtWidgets import (QHBoxLayout, QLabel, QListWidget, QListWidgetItem, QSizePolicy, QToolButton,
+                               QVBoxLayout)
 
 from orbitdesk.analyses.spectra import mean_power_spectrum, power_spectrum
 from orbitdesk.app.views import empty_hint, muted_colour, series_colour, style_plot
@@ -65,6 +66,8 @@ class TimeSeriesView(SessionView):
         self.fit.clicked.connect(self.fit_view)
         self.note = QLabel()
         self.note.setStyleSheet("color: palette(placeholder-text);")
+        self.note.setMinimumWidth(0)
+        self.note.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)  # never widens the view
 
         self.plot_widget = pg.PlotWidget()
         self.plot_widget.setToolTip("")
@@ -80,6 +83,7 @@ class TimeSeriesView(SessionView):
         self.data_overlay = DataOverlay(session, self.plot, self._overlay_pairs)
 
         options = control_row(self.log_y, self.spectrum, None, self.note, self.fit, spacing=6, stretch=False)
+        options.setStretchFactor(self.note, 10)  # the note takes the free room (it never widens the view)
         right = QVBoxLayout()
         right.setContentsMargins(0, 0, 0, 0)
         right.setSpacing(4)
@@ -215,6 +219,7 @@ class TimeSeriesView(SessionView):
             if name not in names or traj is None:
                 self.plot.removeItem(self._curves.pop(name))
         self.note.setText("")
+        self.note.setToolTip("")
         for item in self._noise_items:
             self.plot.removeItem(item)
         self._noise_items = []
@@ -282,7 +287,7 @@ class TimeSeriesView(SessionView):
         spec = mean_power_spectrum(R.time, R.series(name))
         if spec is None:
             return None
-        self.note.setText(f"Power spectra averaged over {spec[2]} realisations")
+        self.note.setText(f"Spectra averaged over {spec[2]} realisations")
         return spec[:2]
 
     def _draw_realisations(self, name: str, colour: QColor, log_y: bool) -> np.ndarray:
@@ -313,8 +318,9 @@ class TimeSeriesView(SessionView):
             for item in (band, lo, hi):
                 self.plot.addItem(item)
                 self._noise_items.append(item)
-        self.note.setText(f"{R.count} realisations (seed {R.seed}): {min(R.count, FAINT_REALISATIONS)} drawn faintly, "
-                          "the mean bold, dashed ±1 standard deviation")
+        self.note.setText(f"{R.count} realisations, seed {R.seed}: mean, ±1 std")
+        self.note.setToolTip(f"{min(R.count, FAINT_REALISATIONS)} of the {R.count} realisations are drawn faintly, "
+                             "their mean bold and the band of one standard deviation either side dashed")
         return shown(R.mean[i])
 
     def _overlay_pairs(self) -> list:
