@@ -63,7 +63,7 @@ def run(args) -> int:
     p, u0 = values_for(system, source, args.set, args.init)
     settings = settings_for(source, args)
     try:
-        traj = simulate(system, settings, u0, p, progress=stderr_progress("run"))
+        traj = simulate(system, settings, u0, p, progress=stderr_progress("run"), noise=True)
     except ValueError as problem:  # a model with noise asked for too much or a backward run
         raise CommandError(str(problem)) from None
     if traj.realisations is not None:

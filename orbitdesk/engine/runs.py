@@ -112,15 +112,18 @@ def _check_state(system, t, u, bound):
 
 def simulate(system: CompiledSystem, settings: RunSettings | None = None, u0=None, p=None,
              events: list[Event] | tuple = (), cancel: CancelToken | None = None,
-             progress=None) -> Trajectory:
-    """One run of a flow or a map from ``u0`` (default: the model's) with parameters ``p``."""
+             progress=None, noise: bool = False) -> Trajectory:
+    """One run of a flow or a map from ``u0`` (default: the model's) with parameters ``p``.
+
+    A model with noise runs its noise-free part (what analyses that assume determinism use) unless
+    ``noise``: then realisations (``engine/stochastic.py``; forward in time, events not located)."""
     settings = settings or RunSettings()
     u0 = system.initial.copy() if u0 is None else np.asarray(u0, dtype=float)
     p = system.param_values.copy() if p is None else np.asarray(p, dtype=float)
     report = Reporter(progress, cancel)
     if system.kind == MAP:
         return _iterate(system, settings, u0, p, report)
-    if system.stochastic:  # realisations by a fixed-step scheme for noise (events are not located there)
+    if noise and system.stochastic:  # realisations by a fixed-step scheme for noise
         return stochastic.simulate_noise(system, settings, u0, p, report)
     if settings.method_info.family == "explicit_rk" and all(ev.plane is not None for ev in events):
         return _integrate_loop(system, settings, u0, p, list(events), report)

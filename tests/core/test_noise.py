@@ -13,11 +13,16 @@ import numpy as np
 import pytest
 
 from orbitdesk.engine import stochastic
-from orbitdesk.engine.runs import simulate
+from orbitdesk.engine import runs
 from orbitdesk.engine.settings import RunSettings, SettingsError
 from orbitdesk.language.model import parse_model
 from orbitdesk.system.codegen import noise_terms
 from orbitdesk.system.compiled_system import compile_model
+
+
+def simulate(*args, **kwargs):
+    """A run with its realisations (the default run of a model with noise is its noise-free part)."""
+    return runs.simulate(*args, noise=True, **kwargs)
 
 OU = "x' = -theta*x + sigma*noise\ntheta = 1\nsigma = 1\nx(0) = 0\n"
 GBM = "x' = mu*x + sigma*x*noise\nmu = 2\nsigma = 1\nx(0) = 1\n"
@@ -187,3 +192,9 @@ def test_cli_contract_fields():
     d = R.to_dict()
     assert set(d) >= {"t", "mean", "std", "states"} and len(d["t"]) == 11
     assert d["states"]["x"] == list(R.states[0, 0]) and len(d["std"]["x"]) == 11
+
+
+def test_without_noise_a_run_is_the_noise_free_part():
+    # what analyses that assume determinism get: x' = -theta x from x(0) = 1 is exp(-t) (closed form)
+    run = runs.simulate(compile_model("x' = -x + 3*noise\nx(0) = 1\n"), RunSettings(t_end=2, samples=5))
+    assert run.realisations is None and np.allclose(run.states[0], np.exp(-run.time), rtol=1e-7)

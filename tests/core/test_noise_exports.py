@@ -12,11 +12,16 @@ import numpy as np
 import pytest
 
 from orbitdesk.engine import compiled
-from orbitdesk.engine.runs import simulate
+from orbitdesk.engine import runs
 from orbitdesk.engine.settings import RunSettings
 from orbitdesk.exports.latex import model_latex
 from orbitdesk.exports.run_script import run_script
 from orbitdesk.system.compiled_system import compile_model
+
+
+def simulate(*args, **kwargs):
+    """A run with its realisations (the default run of a model with noise is its noise-free part)."""
+    return runs.simulate(*args, noise=True, **kwargs)
 
 TWO_SOURCES = ("x' = -theta*x + sigma*x*noise(1) + 0.1*noise\ny' = x - y + s2*noise(1)\n"
                "theta = 1\nsigma = 0.5\ns2 = 0.3\nx(0) = 1\ny(0) = -1\n")

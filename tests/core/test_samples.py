@@ -255,7 +255,7 @@ def test_rocking_buoy_stationary_spread_and_peak():
     project = load("rocking_buoy")
     system = compile_model(project.model)
     assert system.stochastic
-    run = simulate(system, project.solver)
+    run = simulate(system, project.solver, noise=True)
     R = run.realisations
     assert R.count == 40 and R.seed == 1
     k, c, a = (system.param_values[system.parameters.index(n)] for n in "kca")

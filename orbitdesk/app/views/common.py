@@ -481,7 +481,7 @@ def runs_job(session, system, starts, max_samples: int):
                 runs.append(None)
                 continue
             runs.append(simulate(system, settings[bool(backward)], np.asarray(u0, dtype=float), p,
-                                 cancel=cancel, progress=part))
+                                 cancel=cancel, progress=part, noise=not backward))  # (noise runs forward only)
         return runs
 
     return job
