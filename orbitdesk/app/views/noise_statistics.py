@@ -57,10 +57,7 @@ class NoiseStatisticsView(SessionView):
 
     # ------------------------------------------------------------ view protocol
     def view_settings(self) -> dict:
-        d = {"state": self.state.currentText(), "mode": MODES[self.mode.currentIndex()][0]}
-        if self._user_time:
-            d["time"] = float(self.time.value())
-        return d
+        return {"state": self.state.currentText(), "mode": self._mode(), "time": float(self.time.value())}
 
     def apply_view_settings(self, d: dict) -> None:
         if not isinstance(d, dict):
