@@ -1,8 +1,9 @@
 """The app: start to window shown, and the memory of a 1,000,000-point trajectory held and drawn.
 
 * Start: ``python -m orbitdesk open sample_projects/convection_loop.orbitdesk`` with
-  ``ORBITDESK_REPORT_SHOWN=quit``: the app prints the wall-clock time of the window's first paint
-  and quits. Timed from just before the child is spawned; goal ≤ 2 s. Baseline, run alternately
+  ``ORBITDESK_REPORT_SHOWN=quit``: the app prints the wall-clock time of the window's first paint,
+  opens the project (after that paint), prints the time once its first run is drawn, and quits. Timed
+  from just before the child is spawned; goal: the first paint under 1 s. Baseline, run alternately
   with it: ``python`` + ``import PySide6.QtWidgets`` + an empty QMainWindow of the same size, to
   its first paint (interpreter, Qt and the X connection, nothing of ours).
 * Memory, computed and held: peak traced allocations (tracemalloc) and peak resident size
@@ -153,8 +154,9 @@ def display():
             server.wait(timeout=10)
 
 
-def time_to_shown(args, env) -> float:
-    """Seconds from spawning ``args`` to the wall-clock time it prints as ``shown SECONDS``."""
+def time_to_shown(args, env, ready: list | None = None) -> float:
+    """Seconds from spawning ``args`` to the wall-clock time it prints as ``shown SECONDS``; the seconds to
+    ``ready SECONDS`` (the project open and its run drawn), when printed, are appended to ``ready``."""
     start = time.time()
     child = subprocess.Popen(args, stdout=subprocess.PIPE, stderr=subprocess.DEVNULL, env=env, text=True, cwd=ROOT)
     shown = None
@@ -162,6 +164,10 @@ def time_to_shown(args, env) -> float:
         for line in child.stdout:
             if line.startswith("shown "):
                 shown = float(line.split()[1])
+                if ready is None:
+                    break
+            elif line.startswith("ready ") and ready is not None:
+                ready.append(float(line.split()[1]) - start)
                 break
         child.wait(timeout=60)
     except subprocess.TimeoutExpired:
@@ -194,16 +200,20 @@ def run(log=print) -> list[Row]:
         ours_args = [sys.executable, "-m", "orbitdesk", "open", str(PROJECT)]
         bare_args = [sys.executable, "-c", BARE_SHOWN]
         time_to_shown(ours_args, ours_env)  # a first start fills the file caches for both
-        starts, bare = [], []
+        starts, bare, ready = [], [], []
         for _ in range(STARTS):
-            starts.append(time_to_shown(ours_args, ours_env))
+            starts.append(time_to_shown(ours_args, ours_env, ready))
             bare.append(time_to_shown(bare_args, env))
         log(f"start to first paint: {', '.join(f'{s:.2f}' for s in sorted(starts))} s; "
-            f"bare Qt window {', '.join(f'{s:.2f}' for s in sorted(bare))} s")
+            f"bare Qt window {', '.join(f'{s:.2f}' for s in sorted(bare))} s; "
+            f"project open and its run drawn {', '.join(f'{s:.2f}' for s in sorted(ready))} s")
         rows.append(Row(f"start to window shown: `orbitdesk open` convection_loop sample to the first paint "
                         f"(median of {STARTS}, {env['QT_QPA_PLATFORM']})", statistics.median(starts),
-                        statistics.median(bare), f"range {min(starts):.2f}–{max(starts):.2f} s",
-                        "python + PySide6.QtWidgets + empty QMainWindow to its first paint", "≤ 2 s"))
+                        statistics.median(bare), f"range {min(starts):.2f}–{max(starts):.2f} s; the project open "
+                        f"and its first run drawn: median {statistics.median(ready):.2f} s "
+                        f"(range {min(ready):.2f}–{max(ready):.2f})" if ready else
+                        f"range {min(starts):.2f}–{max(starts):.2f} s",
+                        "python + PySide6.QtWidgets + empty QMainWindow to its first paint", "< 1 s"))
 
         peak, current, held, rss, size = _memory(MEMORY, env)
         log(f"{size:,}-sample run: traced peak {peak / MIB:.0f} MiB, held {current / MIB:.0f} MiB, "

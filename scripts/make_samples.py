@@ -13,7 +13,7 @@ from pathlib import Path
 
 from orbitdesk.language.model import parse_model
 from orbitdesk.document.project import ParameterSetting, Project, dumps
-from orbitdesk.engine.settings import RunSettings as SolverSettings
+from orbitdesk.engine.settings import RunSettings
 from orbitdesk.document.view_settings import missing_names, unknown_keys
 from orbitdesk.document.walkthrough import apply_step, record_step
 
@@ -46,7 +46,7 @@ def sample(file, name, model, solver, views, notes, steps):
     return file, Project(
         name=name, model=model,
         parameters={n: ParameterSetting(p.value, p.lo, p.hi) for n, p in parsed.parameters.items()},
-        initial=initial, solver=SolverSettings(**solver), views=views, walkthrough=walkthrough, notes=notes)
+        initial=initial, solver=RunSettings(**solver), views=views, walkthrough=walkthrough, notes=notes)
 
 
 def bifurcation_view(model, param, lo, hi, follow="steady", measure=None, values=None, locus=None):
@@ -852,6 +852,74 @@ def bracket_sample():
     return file, project
 
 
+# ---------------------------------------------------------------- a shower with a long pipe
+
+SHOWER_MODEL = """\
+# Standing under a shower fed through a long pipe: the water at the head left the tap tau seconds ago.
+# You turn the tap by how wrong the water feels, and the tap answers no faster than your hand turns it.
+# u: temperature of the water leaving the tap (degrees C); felt: the water at the head, u a time tau ago
+# want: the temperature you want; k: how hard you turn for each degree wrong (1/s)
+# tau: time the water takes down the pipe (s); rate: fastest change of the tap temperature (degrees C/s)
+
+want = 38 in [30, 45]
+k = 0.5 in [0, 2]
+tau = 2 in [0.2, 5]
+rate = 4 in [0.5, 10]
+
+u' = -rate*tanh(k*(u(t - tau) - want)/rate)
+u(t) = 20 for t <= 0    # the tap stood at cold before you stepped in
+
+felt = u(t - tau)
+"""
+
+SHOWER = sample(
+    "long_shower.orbitdesk", "A shower with a long pipe", SHOWER_MODEL,
+    dict(method="dop853", t_end=120.0, samples=2400),
+    {"timeseries": {"series": ["u", "felt"]}, "phase_plane": {"x": "felt", "y": "u"}, "equilibria": {},
+     "sweep": {"parameter": "k", "from": 0.2, "to": 1.5, "count": 53, "observe": "u", "mode": "maxima",
+               "transient": 150.0, "duration": 40.0, "samples": 4}},
+    "A tap answered by the water a pipe's length later: a delay equation that settles or keeps swinging.",
+    [
+        ("The water you feel left the tap two seconds ago",
+         "You step in, the tap at cold (20 degrees), and start turning it towards the 38 you want. The "
+         "model's `u(t - tau)` is the water at the head: the tap's temperature **tau = 2** seconds ago. "
+         "The time series shows both: **felt** is the tap's curve moved right by two seconds, and "
+         "before the start it follows the history line `u(t) = 20 for t <= 0` (the run bar names the "
+         "history a run uses).\n\n"
+         "Turning gently (`k = 0.5` per second for each degree wrong) you overshoot to about 41 "
+         "degrees, come back, and settle at 38 in a few slow, shrinking swings.",
+         {"parameters": {"k": 0.5}, "open_views": ["timeseries", "phase_plane"]}),
+        ("Why it settles: the characteristic roots",
+         "At rest the tap stands at `want`, whatever the delay; whether it *stays* there depends on the "
+         "delay. Near rest the equation is `u' = -k (u(t - tau) - want)`, whose solutions grow like "
+         "`exp(lambda t)` with `lambda = -k exp(-lambda tau)`. This has infinitely many roots; the "
+         "Equilibria view lists the rightmost ones. At `k = 0.5` they are `-0.159 ± 0.669i`: negative "
+         "real part, so the swings die out, at the pace `exp(-0.159 t)`, with a period near "
+         "`2 pi / 0.669`, about 9.4 seconds (the time series agrees).",
+         {"parameters": {"k": 0.5}, "open_views": ["equilibria", "timeseries"]}),
+        ("Impatient hands: swings that never stop",
+         "Turn twice as hard, `k = 1`. Now the rightmost pair is `0.086 ± 0.837i`, to the right of the "
+         "imaginary axis: rest at 38 is **unstable**. The swings grow until the tap turns as fast as "
+         "it can (`rate`), and then keep going for ever between about 33.6 and 42.4 degrees, every 8 "
+         "seconds: a stable oscillation born from the delay alone.\n\n"
+         "The phase plane plots the tap against the water felt: the path winds onto a closed loop.",
+         {"parameters": {"k": 1.0}, "open_views": ["timeseries", "phase_plane", "equilibria"]}),
+        ("Where the swinging starts: k tau = pi/2",
+         "For `u' = -k u(t - tau)` the roots cross the imaginary axis exactly when `k tau = pi / 2`, "
+         "at `lambda = ± i pi / (2 tau)`: the first undying swing has the period `4 tau`, here 8 "
+         "seconds. With `tau = 2` that is at `k = 0.785`.\n\n"
+         "The sweep runs the shower for 53 values of `k` from 0.2 to 1.5 and plots the highest tap "
+         "temperature of each late swing: a single point at 38 until 0.785, then a branch that "
+         "opens smoothly, the larger the hand's gain the wider the swing. Close to 0.785 the swings die "
+         "out or grow only slowly, so there the points still spread after the settling time.",
+         {"parameters": {"k": 1.0}, "open_views": ["sweep"]}),
+        ("A shorter pipe",
+         "Keep the impatient `k = 1` and shorten the pipe to `tau = 1` second. Now `k tau = 1` is below "
+         "`pi / 2` again: the swings die out. The same hand is fine with a short pipe and hopeless with "
+         "a long one, which is why showers at the end of long runs of pipe are hard to set.",
+         {"parameters": {"k": 1.0, "tau": 1.0}, "open_views": ["timeseries", "equilibria"]}),
+    ])
+
 BRACKET = bracket_sample()
 
 # ---------------------------------------------------------------- a buoy rocked by choppy water
@@ -918,7 +986,7 @@ x'(0) = 0
     ])
 
 SAMPLES = [SHAKEN_BEAM, CONVECTION_LOOP, RELAXATION_CIRCUIT, CLOCK_REACTION, POND_PREDATORS,
-           INSECT_GENERATIONS, PENDULUM, STIRRED_TANK, WAGON_TRAIN, BRACKET, BUOY]
+           INSECT_GENERATIONS, PENDULUM, STIRRED_TANK, WAGON_TRAIN, BRACKET, SHOWER, BUOY]
 
 
 def main(argv=None) -> int:

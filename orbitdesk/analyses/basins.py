@@ -57,6 +57,7 @@ class BasinResult:
 def basins(system, x_name: str, xs, y_name: str, ys, settings: BasinSettings | None = None, u0=None, p=None,
            cancel=None, progress=None) -> BasinResult:
     """The basins of attraction over the grid ``ys x xs`` of starts (rows: y); see the module notes."""
+    system.refuse_delays("basins of attraction")
     s = settings or BasinSettings()
     for name in (x_name, y_name):
         if name not in system.states:

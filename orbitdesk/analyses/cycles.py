@@ -177,6 +177,7 @@ def find_cycle(system: CompiledSystem, p=None, guess=None, period_guess: float |
     CycleError when no orbit is found, ValueError for bad input. ``initial`` is where the transient
     run starts (default: the model's initial values).
     """
+    system.refuse_delays("the limit-cycle search")
     if system.kind == MAP:
         raise ValueError("this is a map: look for its cycles with a period K (find_map_cycle)")
     p = system.param_values.astype(float) if p is None else np.asarray(p, dtype=float)

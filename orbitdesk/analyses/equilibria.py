@@ -453,6 +453,10 @@ def find_equilibria(system: CompiledSystem, p=None, box: dict | None = None, sta
         if eq is not None:
             results.append(eq)
     results = wrap_equilibria(system, _thin_continuum(results, notes))  # an angle's turns are one point
+    if system.delays:  # stability from the characteristic equation of the delays
+        from orbitdesk.analyses.delay_stability import with_delay_stability
+
+        results = [with_delay_stability(system, p, eq) for eq in results]
     if not results:
         notes.append("no equilibrium found in the search box")
     return Equilibria(results, notes, full_box)

@@ -15,6 +15,7 @@ def direction_field(system: CompiledSystem, p, x_range, y_range, n: int = 20, *,
     ``base`` (default: the model's initial values). ``n`` is the number of points along each axis
     (an int, or a pair (nx, ny)). Points where the field is undefined come out as NaN.
     """
+    system.refuse_delays("the direction field")
     nx, ny = (int(n), int(n)) if np.ndim(n) == 0 else (int(n[0]), int(n[1]))
     if nx < 1 or ny < 1:
         raise ValueError("the grid needs at least one point along each axis")

@@ -334,6 +334,7 @@ def fit(system: CompiledSystem, datasets: list[DataSet], settings: FitSettings, 
 
     ``p0``/``u0`` are the starting parameter and initial vectors (default: the model's); ``ranges``
     maps parameter names to (lo, hi) bounds (default: the model's slider ranges)."""
+    system.refuse_delays("fitting to data")
     p0 = system.param_values.copy() if p0 is None else np.asarray(p0, dtype=float)
     u0 = system.initial.copy() if u0 is None else np.asarray(u0, dtype=float)
     ranges = dict(system.param_ranges if ranges is None else ranges)
@@ -485,6 +486,7 @@ def _residual_rms(problem: _Problem, x, predicted):
 def predict(system: CompiledSystem, dataset: DataSet, p, u0, t_start: float = 0.0, *, rtol: float = 1e-9,
             atol: float = 1e-11, method: str = "dop853") -> dict[str, np.ndarray]:
     """The model's value of every column of ``dataset`` at its sample times (for residuals)."""
+    system.refuse_delays("fitting to data")
     sens = Sensitivities(system, [])
     run = sens.run(u0, p, 0.0 if system.kind == MAP else t_start, dataset.time, rtol=rtol, atol=atol, method=method)
     obs = Observer(system, dataset.quantities())

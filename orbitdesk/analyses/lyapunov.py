@@ -150,6 +150,7 @@ def lyapunov_spectrum(system: CompiledSystem, p=None, u0=None, t_end: float | No
     ``settings.transient``, or a tenth of the run) is discarded. ``dt_renorm``: time between
     re-orthonormalisations of a flow; ``dt``: a fixed RK4 step instead of the adaptive method.
     """
+    system.refuse_delays("the Lyapunov spectrum (QR)")
     settings = settings or RunSettings()
     p = system.param_values.copy() if p is None else np.asarray(p, dtype=float)
     u = system.initial.copy() if u0 is None else np.asarray(u0, dtype=float)
@@ -261,6 +262,11 @@ def largest_lyapunov_two_trajectory(system: CompiledSystem, p=None, u0=None, t_e
     n = system.n_states
     report = Reporter(progress, cancel)
     direction = [1.0 / math.sqrt(n)] * n
+    if system.delays:  # the state is a segment of the solution: two nearby histories
+        from orbitdesk.analyses.delay_lyapunov import largest_delay_exponent
+
+        return largest_delay_exponent(system, p, u, start, end, transient, d0, renorm_every, settings, cancel,
+                                      progress)
     if system.kind == MAP:
         return _map_pair(system, p, u, end, transient, d0, renorm_every, direction, settings.bound, report)
     u, samples, times, failed = _transient_flow(system, settings, u, p, start, transient, cancel)

@@ -64,6 +64,7 @@ def saddle_manifolds(system: CompiledSystem, eq: Equilibrium, p=None, box: dict 
     ``eps`` is the initial offset (default 1e-6 of the box size); ``t_max`` the integration time
     (default: enough to grow from eps to the box size at the eigenvalue's rate, three times over).
     """
+    system.refuse_delays("the saddles' manifolds")
     if not is_planar_saddle(system, eq):
         raise ValueError("manifolds are computed for saddles of planar (two-state) flows")
     p = system.param_values.astype(float) if p is None else np.asarray(p, dtype=float)

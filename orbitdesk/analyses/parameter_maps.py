@@ -65,6 +65,7 @@ def period_grid(system, pname_x: str, xs, pname_y: str, ys, settings: SweepSetti
 
     Maps: periods in iterations. Forced flows: ``settings`` must sample once per forcing period (mode
     ``strobe``); periods in forcing periods. At least 2 * max_period + 1 samples are taken."""
+    system.refuse_delays("the two-parameter map of periods")
     for name in (pname_x, pname_y):
         if name not in system.parameters:
             raise ValueError(f"unknown parameter '{name}' (parameters: {', '.join(system.parameters) or 'none'})")

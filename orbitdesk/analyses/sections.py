@@ -194,6 +194,9 @@ def plane_section(system: CompiledSystem, p=None, u0=None, coordinate: str = "",
     settings = settings or RunSettings()
     p = system.param_values.copy() if p is None else np.asarray(p, dtype=float)
     u = system.initial.copy() if u0 is None else np.asarray(u0, dtype=float)
+    if system.delays:  # the history is part of the state: one run from the start, never restarted at a point
+        return _delay_plane_section(system, p, u, coordinate, value, direction, count, transient,
+                                    settings or RunSettings(), cancel, t_max)
     g, rate = _section_function(system, coordinate, value, p)
     if coordinate in system.states:  # a plane: located inside the compiled loop
         event = Event.on_plane(np.eye(system.n_states)[system.states.index(coordinate)], value)
@@ -258,6 +261,38 @@ def plane_section(system: CompiledSystem, p=None, u0=None, coordinate: str = "",
     return result([raw_t[k] for k in keep], [raw_u[k] for k in keep], status, message, touches)
 
 
+def _delay_plane_section(system, p, u, coordinate, value, direction, count, transient, settings, cancel, t_max):
+    """Plane sections of a delay model: runs from the start, each twice as long as the last, until
+    ``count`` crossings after the transient are found (the direction of each from the event that found it)."""
+    if coordinate not in system.states:
+        raise ValueError(f"for a model with delays the section's plane is set on a state ({', '.join(system.states)})")
+    normal = np.eye(system.n_states)[system.states.index(coordinate)]
+    events = [Event.on_plane(normal, value, +1), Event.on_plane(normal, value, -1)]
+    t0 = float(settings.t_start)
+    t_begin = t0 + transient
+    span = abs(settings.t_end - settings.t_start) or 100.0
+    t_limit = t_begin + 100.0 * span if t_max is None else max(float(t_max), t_begin)
+    tolerance = TOUCH_FACTOR * (settings.atol + settings.rtol * max(1.0, abs(value)))
+    length = span
+    while True:
+        t_end = min(t_begin + length, t_limit)
+        run = simulate(system, replace(settings, t_start=t0, t_end=t_end, samples=2, transient=0.0), u, p,
+                       events=events, cancel=cancel)
+        found = sorted((float(te), sign, ue) for sign, k in ((1.0, 0), (-1.0, 1))
+                       for te, ue in zip(run.event_times[k], run.event_states[k].T) if te >= t_begin)
+        keep, touch = _select([f[0] for f in found], [f[1] for f in found], direction, tolerance)
+        if len(keep) >= count or not run.ok or t_end >= t_limit:
+            break
+        length *= 2
+    keep = keep[:count]
+    message = run.message
+    if run.ok and len(keep) < count:
+        message = f"found {len(keep)} of {count} crossings by {system.time_name} = {t_end:.6g}"
+    points = np.array([found[k][2] for k in keep], dtype=float).reshape(-1, system.n_states).T
+    return SectionResult(points, np.array([found[k][0] for k in keep], dtype=float), list(system.states), count,
+                         run.status, message, sum(touch[:count]))
+
+
 # ---------------------------------------------------------------- stroboscopic sections
 def strobe_section(system: CompiledSystem, p=None, u0=None, period: float = 2 * math.pi, count: int = 100,
                    transient: float = 0.0, transient_periods: int | None = None, phase: float = 0.0,
@@ -268,6 +303,7 @@ def strobe_section(system: CompiledSystem, p=None, u0=None, period: float = 2 * 
     periods so every point has the same forcing phase. Points come from the integrator's dense
     output at exactly those times.
     """
+    system.refuse_delays("the stroboscopic section")
     if system.kind == MAP:
         raise ValueError("stroboscopic sections are for forced flows; a map is already sampled at each step")
     period = float(period)

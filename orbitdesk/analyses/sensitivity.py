@@ -51,6 +51,7 @@ class Sensitivities:
     """Evaluators of the stacked system for the parameters ``selected`` (indices into system.parameters)."""
 
     def __init__(self, system: CompiledSystem, selected: list[int]):
+        system.refuse_delays("sensitivities")
         if system.nonsmooth:
             raise ValueError(f"the model is not smooth where {', '.join(system.nonsmooth)}() switches, so its "
                              "sensitivities are undefined there; fitting needs a smooth model")

@@ -316,6 +316,10 @@ def sweep(system, parameter: str, values, settings: SweepSettings | None = None,
 def _sweep_arrays(system, parameter, values, settings, u0, base_p, cancel=None, progress=None, compiled=None):
     P = np.repeat(base_p[:, None], values.size, axis=1)
     P[system.parameters.index(parameter)] = values
+    if system.delays:  # one method-of-steps run per value
+        from orbitdesk.analyses.delay_sweep import delay_sweep_arrays
+
+        return delay_sweep_arrays(system, P, u0, settings, cancel, progress)
     sampler, exponents, result = run_members(system, P, u0, settings, cancel, progress, compiled)
     return sampler.values, sampler.times, exponents, result.status
 
@@ -363,6 +367,7 @@ def lyapunov_grid(system, pname_x: str, xs, pname_y: str, ys, settings: GridSett
     The engine is compiled with ``compiled`` None when the whole grid's work pays for compiling, True
     whenever numba is there, False never; the choice is made once for the grid. Compiled chunks run
     on threads of this process by default (the loops release the GIL)."""
+    system.refuse_delays("the two-parameter map of exponents")
     settings = settings or GridSettings()
     for name in (pname_x, pname_y):
         if name not in system.parameters:

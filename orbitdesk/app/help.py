@@ -227,7 +227,7 @@ def install(window) -> None:
     samples = QMenu("&Sample Projects", menu)
     samples.setToolTipsVisible(True)
     samples.setToolTip("Small studies with walkthroughs, opened as unsaved copies")
-    fill_samples_menu(window, samples)
+    samples.addAction("Sample projects").setEnabled(False)  # filled when opened (reading them waits till then)
     samples.aboutToShow.connect(lambda: fill_samples_menu(window, samples))
     menu.insertAction(first, reference)
     menu.insertMenu(first, samples)

@@ -46,28 +46,56 @@ def make_application(argv=None) -> QApplication:
 
 
 class _FirstPaint(QObject):
-    """``ORBITDESK_REPORT_SHOWN=1``: print ``shown SECONDS`` (``time.time()``) once the window has
-    painted for the first time; ``=quit``: then quit (the start-up benchmark)."""
+    """Opens the path given to ``open_after_paint`` once the window has painted for the first time (a project given on the command
+    line is opened then: parsing and compiling it load sympy, which the first paint does without).
+    ``report``: print ``shown SECONDS`` (``time.time()``) at that moment (``ORBITDESK_REPORT_SHOWN=1``);
+    ``quit``: then quit once the project is open and its run shown, printing ``ready SECONDS`` (the
+    start-up benchmark)."""
 
-    def __init__(self, window, quit: bool = False):
+    def __init__(self, window, report: bool = False, quit: bool = False):
         super().__init__(window)
-        self.quit = quit
+        self.report, self.quit = report, quit
+        self.then_open = None  # a path to open after the first paint (at once if it has been painted)
+        self.painted = False
         window.installEventFilter(self)
+
+    def open_after_paint(self, path) -> None:
+        self.then_open = path
+        if self.painted:  # a recovery question ran the event loop: the window has been painted already
+            QTimer.singleShot(0, self._open)
 
     def eventFilter(self, obj, event):
         if event.type() == QEvent.Type.Paint:
             obj.removeEventFilter(self)
-            QTimer.singleShot(0, self._report)  # after this first frame is painted
+            QTimer.singleShot(0, self._painted)  # after this first frame is painted
         return False
 
-    def _report(self):
-        print(f"shown {time.time():.6f}", flush=True)
+    def _painted(self):
+        self.painted = True
+        if self.report:
+            print(f"shown {time.time():.6f}", flush=True)
+        self._open()
         if self.quit:
-            QApplication.instance().quit()
+            self._poll = QTimer(self)
+            self._poll.timeout.connect(self._ready)
+            self._poll.start(5)
+
+    def _open(self):
+        path, self.then_open = self.then_open, None
+        if path is not None:
+            self.parent().open_path(path, ask=False)
+
+    def _ready(self):
+        session = self.parent().session
+        if session.busy or session.run_pending() or (session.system is not None and session.trajectory is None):
+            return
+        self._poll.stop()
+        QTimer.singleShot(0, lambda: (print(f"ready {time.time():.6f}", flush=True), QApplication.instance().quit()))
 
 
 def create(argv=None, path=None):
-    """Build the application and its window (shown); offer recovery, then open ``path``.
+    """Build the application and its window (shown); offer recovery, else open ``path`` once the window
+    has painted.
 
     Returns (app, window). ``window.autosaver`` keeps unsaved work safe; call ``finish(window)`` after
     the event loop ends.
@@ -93,14 +121,14 @@ def create(argv=None, path=None):
             data_problem = e
     if window.autosaver is not None:
         window.autosave_notice = file_guard.AutosaveNotice(window, window.autosaver)
-    if os.environ.get("ORBITDESK_REPORT_SHOWN"):
-        window._first_paint = _FirstPaint(window, quit=os.environ["ORBITDESK_REPORT_SHOWN"] == "quit")
+    report = os.environ.get("ORBITDESK_REPORT_SHOWN", "")
+    window._first_paint = first = _FirstPaint(window, report=bool(report), quit=report == "quit")
     window.show()
     if data_problem is not None:
         file_guard.tell_data_folder_unusable(window, data_problem)
     restored = data_problem is None and recovery.offer_recovery(window)
     if path is not None and not restored:
-        window.open_path(path, ask=False)
+        first.open_after_paint(path)
     return app, window
 
 

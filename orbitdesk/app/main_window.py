@@ -23,7 +23,7 @@ from orbitdesk.app import views as views_pkg
 from orbitdesk.app.errors import Notices
 from orbitdesk.app.file_guard import DocumentGuard
 from orbitdesk.app.panels.noise_controls import NoiseControls
-from orbitdesk.app.plain_text import menu_text, plain_message, rich_tip
+from orbitdesk.app.plain_text import make_plain, menu_text, plain_message, rich_tip
 from orbitdesk.app.result_store import RESULTS_KEY
 from orbitdesk.app.session import Session
 
@@ -106,6 +106,8 @@ class RunBar(QToolBar):
         self.method_action = self.addWidget(self.method)
         self.noise = NoiseControls(lambda **changes: self._set(**changes))
         self.noise_action = self.addWidget(self.noise)  # instead of the method menu for a model with noise
+        self.delay_note = make_plain(QLabel())  # delay models: the method of steps and the history used
+        self.delay_note_action = self.addWidget(self.delay_note)
         self.addWidget(self.t_end_label)
         self.t_end_action = self.addWidget(self.t_end)
         self.steps_action = self.addWidget(self.steps)
@@ -170,8 +172,17 @@ class RunBar(QToolBar):
             self._syncing = False
         is_map = s.system is not None and s.system.kind == "map"
         noisy = s.system is not None and s.system.stochastic
-        self.method_action.setVisible(not is_map and not noisy)
+        delays = s.system is not None and s.system.has_delays
+        self.method_action.setVisible(not is_map and not delays and not noisy)
         self.noise_action.setVisible(noisy)
+        self.delay_note_action.setVisible(delays)
+        if delays:
+            from orbitdesk.engine.delay import METHOD_LABEL, uses_history
+
+            history = uses_history(s.system)
+            self.delay_note.setText(f" Delays: Dormand–Prince 5(4), method of steps · {history} ")
+            self.delay_note.setToolTip(f"This model has delays: it runs with {METHOD_LABEL}; the method menu "
+                                       f"does not apply.\nBefore the start: {history}.")
         self.t_end_label.setText(" steps " if is_map else " until t = ")
         self.t_end_action.setVisible(not is_map)
         self.steps_action.setVisible(is_map)

@@ -19,7 +19,6 @@ import numpy as np
 from PySide6.QtCore import QObject, QTimer, Signal
 from PySide6.QtGui import QUndoCommand, QUndoStack
 
-from orbitdesk.language.families import with_structural_value
 from orbitdesk.document import project as core_project
 from orbitdesk.engine.settings import SAVED, RunSettings
 from orbitdesk.document.project import ParameterSetting, Project, ProjectError
@@ -330,6 +329,8 @@ class Session(QObject):
         parsed = self.parsed
         if parsed is not None and name in parsed.structural and name in parsed.parameters:
             # the size of a family: the model itself changes, so the new value goes into its line
+            from orbitdesk.language.families import with_structural_value  # sympy: after the window shows
+
             self.set_text(with_structural_value(self.text, parsed.parameters[name].line, name, value))
             self.validate_now()
             return

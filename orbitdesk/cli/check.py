@@ -24,6 +24,10 @@ def run(args) -> int:
             "functions": {name: {"arguments": list(args), "line": parsed.functions[name].line}
                           for name, args in parsed.function_arguments.items() if name in parsed.functions},
             "derived": list(parsed.derived),
+            "delays": [{"state": d.state, "delay": str(d.amount), "value": d.value, "written": d.label,
+                        "line": d.line} for d in parsed.delays],
+            "history": {name: {"expression": str(expr), "line": parsed.history_lines.get(name)}
+                        for name, expr in parsed.history.items()},
             "structural_parameters": sorted(parsed.structural),
             "diagnostics": [
                 {"line": d.line, "column": d.column, "end_column": d.end_column,
@@ -34,5 +38,6 @@ def run(args) -> int:
             print(d.format())
         if parsed.ok:
             print(f"ok: {parsed.kind} with {len(parsed.states)} states ({', '.join(parsed.states)}), "
-                  f"{len(parsed.parameters)} parameters")
+                  f"{len(parsed.parameters)} parameters"
+                  + (f", delayed values {', '.join(d.label for d in parsed.delays)}" if parsed.delays else ""))
     return EXIT_OK if parsed.ok else EXIT_ERRORS

@@ -114,7 +114,10 @@ def run(args) -> int:
         if system.kind != "map" and settings.t_end == settings.t_start:
             raise CommandError("the stored end time equals the start time")
         output = os.path.splitext(os.path.basename(args.output))[0] + ".csv" if args.output else "run.csv"
-        text = run_script(system, settings, u0, p, title=title, output=output)
+        try:
+            text = run_script(system, settings, u0, p, title=title, output=output)
+        except ValueError as err:  # a model the script cannot reproduce (delays), said plainly
+            raise CommandError(str(err)) from None
     elif args.fit_script:
         text = _fit_script(source, system, p, u0, title)
     else:

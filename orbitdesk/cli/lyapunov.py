@@ -18,7 +18,7 @@ def register(sub):
     span.add_argument("--steps", type=int, metavar="N", help="iterations of a map")
     parser.add_argument("--transient", metavar="T", help="time (or iterations) discarded first (default: a tenth)")
     parser.add_argument("--two-trajectory", action="store_true",
-                        help="only the largest exponent, from two nearby trajectories")
+                        help="only the largest exponent, from two nearby trajectories (always for delay models)")
     add_value_options(parser)
     parser.add_argument("--json", action="store_true", help="print the result as JSON")
     parser.set_defaults(handler=run)
@@ -38,7 +38,8 @@ def run(args) -> int:
         transient = parse_number(args.transient, "--transient")
         if transient < 0:
             raise CommandError("--transient must not be negative")
-    compute = largest_lyapunov_two_trajectory if args.two_trajectory else lyapunov_spectrum
+    # a delay model: the largest exponent from two nearby histories (the spectrum does not handle delays)
+    compute = largest_lyapunov_two_trajectory if args.two_trajectory or system.delays else lyapunov_spectrum
     progress = stderr_progress("lyapunov")
     try:
         result = compute(system, p, u0, transient=transient, settings=settings, progress=progress)

@@ -64,8 +64,8 @@ def run(args) -> int:
     settings = settings_for(source, args)
     try:
         traj = simulate(system, settings, u0, p, progress=stderr_progress("run"), noise=True)
-    except ValueError as problem:  # a model with noise asked for too much or a backward run
-        raise CommandError(str(problem)) from None
+    except ValueError as err:  # a delay model run backwards, a delay set to zero, too many realisations: said plainly
+        raise CommandError(str(err)) from None
     if traj.realisations is not None:
         return _noise_output(args, system, traj)
     time_key = "n" if system.kind == MAP else "t"

@@ -125,6 +125,10 @@ def simulate(system: CompiledSystem, settings: RunSettings | None = None, u0=Non
         return _iterate(system, settings, u0, p, report)
     if noise and system.stochastic:  # realisations by a fixed-step scheme for noise
         return stochastic.simulate_noise(system, settings, u0, p, report)
+    if system.delays:  # delay models: the method of steps (engine/delay.py)
+        from orbitdesk.engine.delay import simulate_delay
+
+        return simulate_delay(system, settings, u0, p, list(events), report)
     if settings.method_info.family == "explicit_rk" and all(ev.plane is not None for ev in events):
         return _integrate_loop(system, settings, u0, p, list(events), report)
     return _integrate(system, settings, u0, p, list(events), report)

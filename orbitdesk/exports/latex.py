@@ -163,6 +163,8 @@ def model_latex(model, parameters: dict | None = None, initial: dict | None = No
         return sp.latex(expr, symbol_names=names)
 
     noise_rows = _noise_names(parsed, names)
+    for d in parsed.delays:  # x(t - tau), the delay as the model writes it (Greek names as letters)
+        names[d.symbol] = rf"{latex_name(d.state)}(t - {tex(d.amount)})"
 
     lines: list[str] = []
     lhs_lines = _lhs_lines(parsed)
@@ -201,6 +203,10 @@ def model_latex(model, parameters: dict | None = None, initial: dict | None = No
             expr = _typed(parsed, _rhs_text(parsed, line), resolved) if line else resolved
             rows.append(f"{latex_name(name)} &= {tex(expr)}")
         sections.append(("derived quantities", rows))
+    if parsed.history_lines:
+        rows = [rf"{latex_name(name)}(t) &= {tex(parsed.history[name])} && \text{{for }} t \le 0"
+                for name in parsed.history_lines]
+        sections.append(("with the history", rows))
     rows = []
     for state in parsed.states:
         if is_map:

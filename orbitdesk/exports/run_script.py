@@ -7,7 +7,8 @@ and integrated as the engine does: dop853 by scipy's compiled Dormand-Prince sto
 time (models with kinks: ``solve_ivp``'s DOP853, as the engine does), rk45 and stiff by ``solve_ivp``
 (RK45, Radau), rk4 by a fixed-step loop written into the script;
 maps are printed with the ``math`` module, as the engine evaluates them, so the orbit is bit for bit
-the same. The script writes the columns of ``orbitdesk run --csv``: time, states, derived quantities.
+the same. Delay models carry the engine's method of steps (``delay_script.py``). The script writes the
+columns of ``orbitdesk run --csv``: time, states, derived quantities.
 
 Nothing a user or a file supplies can change how the script is read or what it runs: the first two
 lines (shebang and our own ``coding: utf-8`` declaration, which Python reads only there) are fixed;
@@ -93,6 +94,9 @@ def run_script(system: CompiledSystem, settings: RunSettings | None = None, u0=N
         head.append("from math import *  # noqa: F401,F403")
     if system.stochastic:
         head.append("import warnings")
+    elif system.delays:  # the engine's method of steps, its right-hand side printed as the engine's
+        head += ["from bisect import bisect_right", "from math import *  # noqa: F401,F403", "",
+                 "import numpy as np", "from scipy.integrate import RK45"]
     elif not is_map:
         head.append("from scipy.integrate import ode, solve_ivp")
     head += [
@@ -126,8 +130,17 @@ def run_script(system: CompiledSystem, settings: RunSettings | None = None, u0=N
             f"SAMPLES = {int(settings.samples)!r}",
             f"TRANSIENT = {float(settings.transient)!r}",
         ]
+    if system.delays:  # the method of steps: the method menu's settings do not apply
+        from orbitdesk.exports.delay_script import delay_head
+
+        head = [line for line in head if not line.startswith(("METHOD =", "SOLVER =", "STIFF =", "SMOOTH =", "DT ="))]
+        head += delay_head(system, p, u0)
     parts = ["\n".join(head)]
-    if is_map:
+    if system.delays:
+        from orbitdesk.exports.delay_script import delay_parts
+
+        parts += delay_parts(system, u0)
+    elif is_map:
         parts.append(scalar_function(system, "step", system.plain(system.f)))  # the engine's own arithmetic
     else:
         parts.append(_function("rhs", ["t", "u", "p"], system, system.f, np_printer))
@@ -136,9 +149,10 @@ def run_script(system: CompiledSystem, settings: RunSettings | None = None, u0=N
             jac = _function("_jac_entries", ["t", "u", "p"], system, list(system.jacobian), np_printer)
             parts.append(jac + f"\n\n\ndef jac(t, u, p):\n    return numpy.array(_jac_entries(t, u, p), "
                                f"dtype=float).reshape({n}, {n})")
-    if system.derived_exprs:
+    if system.derived_exprs and not system.delays:
         parts.append(_function("derived", ["t", "U", "p"], system, system.derived_exprs, np_printer))
-    parts.append(_MAP_RUN if is_map else _FLOW_RUN)
+    if not system.delays:
+        parts.append(_MAP_RUN if is_map else _FLOW_RUN)
     parts.append(_OUTPUT.replace("__TIME__", time_name).replace("__OUTPUT__", ascii(str(output))))
     return "\n\n\n".join(parts) + "\n"
 

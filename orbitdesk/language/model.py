@@ -17,6 +17,7 @@ from difflib import get_close_matches
 
 import sympy as sp
 
+from orbitdesk.language import delays
 from orbitdesk.language.diagnostics import ERROR, INFO, WARNING, Diagnostic, ParseError
 from orbitdesk.language.expression import (CONSTANTS, FUNCTIONS, KEYWORDS, MAX_LINE_LENGTH, NONSMOOTH_FUNCTIONS, Call, If, Name,
                          parse_expression, walk)
@@ -84,6 +85,9 @@ class ParsedModel:
     angles: list[str] = field(default_factory=list)  # states declared angles: wrapped to (-pi, pi]
     noise_sources: list[str] = field(default_factory=list)  # white-noise sources (noise.py); equations = drift
     diffusion: dict[str, dict[str, sp.Expr]] = field(default_factory=dict)  # state -> source -> coefficient
+    delays: list = field(default_factory=list)  # delays.Delay: each x(t - tau) the equations use
+    history: dict[str, sp.Expr] = field(default_factory=dict)  # state -> its value for t <= 0 (an expr of t)
+    history_lines: dict[str, int] = field(default_factory=dict)  # state -> line of its history as written
 
     @property
     def ok(self) -> bool:
@@ -127,6 +131,7 @@ class _Builder:
         self.cyclic: set[str] = set()  # definitions found in a loop (each reported once)
         self.angle_lines: list[tuple[int, int, int, str]] = []  # (line, column, end, name) of "angle NAME"
         self.suggestion_budget = SUGGESTION_BUDGET
+        self.history_lines, self.lag_symbols, self.lag_keys = [], {}, {}  # delays.py: x(t) = ... for t <= 0, x(t - tau)
 
     def add(self, line, col, end, severity, message, fix=None):
         self.diags.append(Diagnostic(line, col, max(end, col + 1), severity, message, fix))
@@ -162,6 +167,8 @@ class _Builder:
                 continue
             code = raw.split("#", 1)[0]
             if not code.strip():
+                continue
+            if delays.split_history_line(self, number, code):
                 continue
             angle = _ANGLE.match(code)
             if angle:
@@ -256,8 +263,10 @@ class _Builder:
             return self.model
         self.define_states(statements)
         self.define_parameters(statements)
+        delays.rewrite_delays(self, statements)
         define_functions(self, statements)
         self.resolve_expressions(statements)
+        delays.define_history(self)
         self.define_initial(statements)
         self.define_angles()
         return self.model
@@ -462,6 +471,8 @@ class _Builder:
             name, sub = node.name, node.subscript
             if name.startswith(noise.MARK):
                 return noise.symbol(name)
+            if name in self.lag_symbols:
+                return self.lag_symbols[name]
             base = name.rstrip("'")
             primes = len(name) - len(base)
             if sub is not None:

@@ -62,12 +62,28 @@ class CompiledSystem:
     nonsmooth: list[str] = field(default_factory=list)
     noise_sources: list[str] = field(default_factory=list)  # white-noise sources (language/noise.py); f is the drift
     diffusion: list[list[sp.Expr]] = field(default_factory=list)  # n x m: row per state, column per source
+    delays: list = field(default_factory=list)  # language.delays.Delay; f then holds them dropped (see below)
+    f_delayed: list[sp.Expr] = field(default_factory=list)  # f with the delayed values x(t - tau) (delay models)
+    derived_delayed: list[sp.Expr] = field(default_factory=list)
 
     # ------------------------------------------------------------ facts
     @property
     def stochastic(self) -> bool:
         """The model has noise: runs are realisations (engine/stochastic.py); ``f`` is its noise-free part."""
         return bool(self.noise_sources)
+
+    @property
+    def has_delays(self) -> bool:
+        """A delay model: ``f`` is its vector field with every delay dropped (the same equilibria);
+        runs go through engine/delay.py on ``f_delayed``; other analyses refuse (``refuse_delays``)."""
+        return bool(self.delays)
+
+    def refuse_delays(self, what: str) -> None:
+        """ValueError in plain words when this is a delay model and ``what`` does not handle delays."""
+        if self.delays:
+            raise ValueError(f"{what} is not available for models with delays such as "
+                             f"{self.delays[0].label}; runs, equilibria with their stability, sweeps, "
+                             "sections and the largest Lyapunov exponent are")
 
     @property
     def n_states(self) -> int:
@@ -439,8 +455,12 @@ def compile_model(model: ParsedModel | str) -> CompiledSystem:
         model = parse_model(model)
     if not model.ok:
         raise ModelError(model.errors)
+    from orbitdesk.language.delays import drop_delays
+
     states = list(model.states)
     params = list(model.parameters)
+    f = [model.equations[s] for s in states]
+    derived = list(model.derived.values())
     return CompiledSystem(
         model=model,
         kind=model.kind,
@@ -449,14 +469,17 @@ def compile_model(model: ParsedModel | str) -> CompiledSystem:
         param_values=np.array([model.parameters[n].value for n in params], dtype=float),
         param_ranges={n: (model.parameters[n].lo, model.parameters[n].hi) for n in params},
         initial=np.array([model.initial.get(s, 0.0) for s in states], dtype=float),
-        f=[model.equations[s] for s in states],
+        f=[drop_delays(model, e) for e in f],
         derived_names=list(model.derived),
-        derived_exprs=list(model.derived.values()),
+        derived_exprs=[drop_delays(model, e) for e in derived],
         t_symbol=model.time_symbol,
         state_symbols=[model.symbols[s] for s in states],
         param_symbols=[model.symbols[n] for n in params],
         nonsmooth=list(model.nonsmooth),
         **system_noise(model, states),
+        delays=list(model.delays),
+        f_delayed=f if model.delays else [],
+        derived_delayed=derived if model.delays else [],
     )
 
 

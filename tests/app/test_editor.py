@@ -213,6 +213,20 @@ def test_colours_say_what_each_left_side_defines(qtbot, session):
     assert colour_at(1, 15) is not None and colour_at(1, 15) != colour_at(1, 1)  # the comment
 
 
+def test_the_angle_declaration_is_coloured_as_a_keyword_with_its_states(qtbot, session):
+    from orbitdesk.app.panels.highlighter import KEYWORD
+
+    editor, _ = make_editor(qtbot, session)
+    session.load_project(Project(model="theta'' = -sin(theta)\n  angle theta, theta'  # wrapped\ntheta(0) = 1\n"))
+    dark = is_dark(editor.palette())
+    block = editor.document().findBlockByNumber(1)
+    spans = {(fr.start, fr.length): fr.format.foreground().color().name() for fr in block.layout().formats()}
+    assert spans[(2, 5)] == colour(KEYWORD, dark).name()          # "angle"
+    assert spans[(8, 5)] == colour(FLOW_EQ, dark).name()          # theta: a state, as its equation is coloured
+    assert spans[(15, 6)] == colour(FLOW_EQ, dark).name()         # theta'
+    assert any(start == 23 for start, _n in spans)                # the comment keeps its own colour
+
+
 def test_screenshot_editor_with_diagnostics(qtbot, session, artifacts):
     editor = EquationEditor(session)
     listing = DiagnosticsList(session, editor=editor)

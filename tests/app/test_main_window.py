@@ -423,3 +423,48 @@ def test_an_angle_is_drawn_wrapped_in_the_phase_plane(qtbot, window, tmp_path):
     (px,), _ = pp.cursor_marker.getData()
     expected = traj.series("theta")[np.searchsorted(traj.time, 7.3)]
     assert px == pytest.approx(np.pi - np.mod(np.pi - expected, 2 * np.pi), abs=0.05)
+
+
+def test_delay_model_run_bar_says_which_history_is_used(qtbot, window, tmp_path, artifacts):
+    text = ("beta = 0.2\ngamma = 0.1\ntau = 17\nx' = beta*x(t - tau)/(1 + x(t - tau)^10) - gamma*x\n"
+            "x(t) = 0.5 + 0.01*t for t <= 0\n")
+    _path, traj = open_model(qtbot, window, tmp_path, text, "cells.txt", t_end=600.0, samples=3000)
+    bar = window.run_bar
+    assert bar.delay_note_action.isVisible() and not bar.method_action.isVisible()
+    assert "x(t) = t/100 + 1/2 for t <= 0" in bar.delay_note.text()
+    # Mackey & Glass (1977): at tau = 17 the solution stays within roughly 0.4..1.4 (values from memory)
+    assert traj.ok and 0.2 < traj.states[0, traj.time > 100].min() < traj.states[0].max() < 1.6
+    window.grab().save(os.path.join(artifacts, "delay_run_bar.png"))
+
+
+@pytest.mark.slow
+def test_long_shower_walkthrough_shows_roots_and_the_onset(qtbot, window, artifacts):
+    # the sample's steps: the rightmost characteristic roots in the Equilibria view (W_0(-k tau)/tau at
+    # k = 0.5, tau = 2: -0.159 + 0.669i, scipy's lambertw), the sweep's branch opening at k = pi/4
+    from orbitdesk.app import help as help_ui
+
+    path = help_ui.SAMPLES_DIR / "long_shower.orbitdesk"
+    menu = window.samples_menu
+    menu.aboutToShow.emit()
+    next(a for a in menu.actions() if a.data() == str(path)).trigger()
+    panel, s = window.walkthrough_panel, window.session
+    for _ in range(2):
+        qtbot.mouseClick(panel.next_button, Qt.MouseButton.LeftButton)
+    view = window.views["equilibria"]
+    qtbot.waitUntil(lambda: bool(view.equilibria) and s.params["k"] == 0.5, timeout=60000)
+    eq = view.equilibria[0]
+    assert eq.eigenvalues[0] == pytest.approx(complex(-0.159065751, 0.668617851), abs=1e-6)
+    assert "stable" in view.table.item(0, view.table.columnCount() - 1).text() or eq.stable
+    window.grab().save(os.path.join(artifacts, "long_shower_roots.png"))
+    for _ in range(2):
+        qtbot.mouseClick(panel.next_button, Qt.MouseButton.LeftButton)
+    sweep = window.views["sweep"]
+    qtbot.waitUntil(lambda: sweep.result is not None and sweep.result.values.size == 53, timeout=300000)
+    r = sweep.result
+    for i, k in enumerate(r.values):
+        top = r.points(i)
+        if k < 0.74:
+            assert top.size == 0 or np.max(top) < 38.05, k
+        if k > 0.85:
+            assert top.size and np.max(top) > 38.5, k
+    window.grab().save(os.path.join(artifacts, "long_shower_sweep.png"))

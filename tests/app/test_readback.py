@@ -102,3 +102,12 @@ def test_empty_session_shows_a_hint(qtbot, session):
     view.resize(300, 200)
     assert view.browser.toolTip() and view.note.toolTip()
     assert view.browser.lineWrapMode() == view.browser.LineWrapMode.WidgetWidth  # long notes wrap, never cut off
+
+
+def test_delay_model_reads_back_with_its_delays_and_history(qtbot, session, artifacts):
+    view = show_readback(qtbot, session, "a = 1.2\ntau = 2\nx' = -a*x(t - tau)\nx(t) = cos(t) for t <= 0\n")
+    assert view.equation_lines() == ["dx/dt = -a*x(t - tau)"]
+    text = view.plain_text()
+    assert "delays: x(t - tau) (2)" in text and "history x(t) = cos(t) for t <= 0" in text
+    assert "Jacobian with the delays dropped" in text
+    view.grab().save(os.path.join(artifacts, "readback_delay.png"))

@@ -189,3 +189,43 @@ def test_added_starts_and_time_cursor(qtbot, session):
     assert view.added[-1]["u0"] == [1.0, 1.0, 1.0] and len(view.added_runs) == 3
     view.clear_extra()
     assert view.added == [] and view.view_settings()["starts"] == []
+
+
+# a damped pendulum that turns over a few times before it settles into swinging; z only decays, so the 3D
+# view has a third axis. theta is declared an angle: drawn wrapped to (-pi, pi], broken where it goes round.
+SPINNING = """theta'' = -sin(theta) - 0.05*theta'
+angle theta
+z' = -0.1*z
+theta(0) = 0
+theta'(0) = 3.2
+z(0) = 1
+"""
+
+
+def test_an_angle_axis_is_wrapped_and_the_line_broken_where_it_goes_round(qtbot, session, artifacts):
+    from scipy.integrate import solve_ivp
+
+    view = make_view(qtbot, session, (600, 450))
+    traj = load(qtbot, session, SPINNING, t_end=60.0, samples=6001)
+    view.set_axes("theta", "theta'", "z")
+    frame(qtbot, view)
+    assert view.main_item.mode == "lines"  # segments, none across the wrap
+    lo, hi = view._box[0]
+    theta = (view.main_item.pos[:, 0] + 5.0) / 10.0 * (hi - lo) + lo  # box coordinates back to data
+    assert theta.min() > -np.pi - 1e-6 and theta.max() <= np.pi + 1e-6
+    seg = theta.reshape(-1, 2)
+    assert np.max(np.abs(seg[:, 1] - seg[:, 0])) < np.pi  # no segment drawn across the plane
+    # the reference: scipy's solve_ivp on the same equations; the turns made = the times theta passed pi + 2 pi k
+    ref = solve_ivp(lambda t, u: [u[1], -np.sin(u[0]) - 0.05 * u[1]], (0, 60), [0.0, 3.2], rtol=1e-10, atol=1e-12,
+                    dense_output=True)
+    turns = int(np.floor((ref.sol(60.0)[0] - np.pi) / (2 * np.pi))) + 1
+    assert turns >= 2
+    drawn_segments = seg.shape[0]
+    assert drawn_segments == traj.time.size - 1 - turns  # one segment left out per turn
+    # the time cursor sits at the wrapped angle (read between samples unwrapped, then wrapped)
+    t = 7.77
+    session.set_time_cursor(t)
+    expected_theta = np.pi - np.mod(np.pi - ref.sol(t)[0], 2 * np.pi)
+    cursor = (view.cursor_item.pos[0, 0] + 5.0) / 10.0 * (hi - lo) + lo
+    assert abs(cursor - expected_theta) < 1e-3
+    view.grab_image().save(os.path.join(artifacts, "view_3d_spinning_pendulum.png"))

@@ -132,3 +132,18 @@ def test_settings_round_trip_and_stale_note(qtbot, session):
         session.set_param("r", 20.0)
     # below r_H about 24.74 the orbit settles on C+ or C-: no positive exponent (Strogatz sec. 9.2)
     assert blocker.args[0].exponents[0] < 0.01
+
+
+@pytest.mark.slow
+def test_delay_model_gets_its_largest_exponent_from_two_histories(qtbot, session, artifacts):
+    # Mackey-Glass at tau = 17 (Mackey & Glass, Science 1977): chaotic, a positive largest exponent
+    view = make_view(qtbot, session)
+    load(qtbot, session, "tau = 17\nx' = 0.2*x(t - tau)/(1 + x(t - tau)^10) - 0.1*x\nx(t) = 0.5 for t <= 0\n")
+    view.length.setValue(2500.0)
+    view.transient.setValue(300.0)
+    result = compute(qtbot, view, timeout=180000)
+    assert result.method == "two-trajectory" and result.exponents.size == 1
+    assert result.largest > 0.002
+    assert view.table.rowCount() == 1
+    qtbot.wait(30)
+    view.grab().save(os.path.join(artifacts, "view_lyapunov_delay.png"))

@@ -126,3 +126,36 @@ def test_an_internal_failure_is_one_line_not_a_traceback(capsys, lorenz_file, mo
     assert code == 1 and "Traceback" not in err
     assert err.strip() == ("orbitdesk: could not finish (RuntimeError: something inside broke); "
                            "this is a fault in OrbitDesk, please report it with the model")
+
+
+def test_check_json_lists_delays_and_history_and_run_integrates_them(capsys, tmp_path):
+    path = tmp_path / "lag.txt"
+    path.write_text("tau = 1\nx' = -x(t - tau)\nx(t) = 1 for t <= 0\n")
+    code, out, _ = run_cli(capsys, "check", path, "--json")
+    data = json.loads(out)
+    assert code == 0
+    assert data["delays"] == [{"state": "x", "delay": "tau", "value": 1.0, "written": "x(t - tau)", "line": 2}]
+    assert data["history"] == {"x": {"expression": "1", "line": 3}}
+    # method of steps by hand: x(2) = -1/2, x(3) = -1/6
+    code, out, _ = run_cli(capsys, "run", path, "--t-end", "3", "--samples", "4", "--json")
+    data = json.loads(out)
+    assert code == 0 and data["t"] == [0.0, 1.0, 2.0, 3.0]
+    assert data["states"]["x"] == pytest.approx([1.0, 0.0, -0.5, -1 / 6], abs=1e-12)
+    code, _, err = run_cli(capsys, "run", path, "--set", "tau=0", "--json")
+    assert code != 0 and "a delay must be" in err
+
+
+def test_equilibria_of_a_delay_model_list_characteristic_roots(capsys, tmp_path):
+    # x' = -a x(t - 1) at a = 1.2 < pi/2: stable; the rightmost root is W_0(-1.2) (scipy's lambertw)
+    from scipy.special import lambertw
+
+    path = tmp_path / "lag.txt"
+    path.write_text("a = 1.2\nx' = -a*x(t - 1)\n")
+    code, out, _ = run_cli(capsys, "equilibria", path, "--json")
+    data = json.loads(out)
+    assert code == 0
+    eq = data["equilibria"][0] if isinstance(data, dict) else data[0]
+    assert eq["stable"] is True
+    root = complex(lambertw(-1.2))
+    assert (eq["eigenvalues"][0]["re"], abs(eq["eigenvalues"][0]["im"])) == pytest.approx((root.real, abs(root.imag)),
+                                                                                           abs=1e-9)

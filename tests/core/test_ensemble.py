@@ -42,35 +42,6 @@ def test_rk4_members_equal_single_rk4_runs_of_the_engine():
         np.testing.assert_allclose(result.states[:, i], run.final_state, rtol=0, atol=1e-11)
 
 
-def test_rk4_observer_sees_every_step_and_can_stop_the_run():
-    system = compile_model(OSCILLATOR)
-    seen = []
-
-    def observer(step, t, U):
-        seen.append((step, t))
-        return step == 30
-
-    result = rk4_ensemble(system, _members(system, 2), None, t0=1.0, dt=0.1, n_steps=100, observer=observer)
-    assert [s for s, _ in seen] == list(range(31))
-    assert seen[-1][1] == pytest.approx(1.0 + 30 * 0.1, abs=1e-15)
-    assert np.all(result.steps == 30)
-
-
-def test_rk4_observer_with_rates_gets_f_at_the_state():
-    system = compile_model(OSCILLATOR)
-
-    class Check:
-        wants_rates = True
-        worst = 0.0
-
-        def __call__(self, step, t, U, F):
-            self.worst = max(self.worst, np.max(np.abs(F - system.rhs_vec(t, U, [2.0]))))
-
-    check = Check()
-    rk4_ensemble(system, _members(system, 3), [2.0], dt=0.05, n_steps=20, observer=check)
-    assert check.worst == 0.0
-
-
 def test_adaptive_members_with_very_different_speeds_are_both_accurate():
     # closed form x = cos(w t) for w = 1 and w = 50: each member chooses its own step
     system = compile_model(OSCILLATOR)

@@ -15,7 +15,7 @@ from orbitdesk.document.walkthrough import apply_step
 
 SAMPLES = Path(__file__).resolve().parents[2] / "sample_projects"
 NAMES = ["shaken_beam", "convection_loop", "relaxation_circuit", "clock_reaction", "pond_predators",
-         "insect_generations", "pendulum", "stirred_tank", "wagon_train", "bracket_pluck", "rocking_buoy"]
+         "insect_generations", "pendulum", "stirred_tank", "wagon_train", "bracket_pluck", "long_shower", "rocking_buoy"]
 
 
 def load(name):
@@ -245,23 +245,23 @@ def test_bracket_sample_data_match_their_files_and_fit_back_to_what_made_them():
     assert project.views["fit"]["parameters"] == ["c", "k", "k3"]
 
 
-def test_rocking_buoy_stationary_spread_and_peak():
-    """x'' + c x' + k x = a xi (white noise): stationary variance a^2 / (2 c k) and a spectral peak near
-    sqrt(k) / (2 pi) for light damping (closed form of the linear oscillator driven by white noise;
-    Gardiner, Handbook of Stochastic Methods, 4.5.6)."""
-    from orbitdesk.analyses.noise_statistics import histogram
-    from orbitdesk.analyses.spectra import mean_power_spectrum
+def test_long_shower_roots_and_onset_as_its_walkthrough_says():
+    # near rest u' = -k (u(t - tau) - want): rightmost roots W_0(-k tau)/tau (closed form, scipy's lambertw),
+    # stable exactly when k tau < pi/2, i.e. k < pi/4 = 0.785 at tau = 2
+    from scipy.special import lambertw
 
-    project = load("rocking_buoy")
+    from orbitdesk.analyses.equilibria import find_equilibria
+
+    project = load("long_shower")
     system = compile_model(project.model)
-    assert system.stochastic
-    run = simulate(system, project.solver, noise=True)
-    R = run.realisations
-    assert R.count == 40 and R.seed == 1
-    k, c, a = (system.param_values[system.parameters.index(n)] for n in "kca")
-    spread = histogram(R, "x", "stationary", 30.0)
-    # 40 realisations x 30 time units, correlation time about 2/c = 10: roughly 120 independent values,
-    # so the sample standard deviation scatters by about 1/sqrt(240) = 6.5 %: allow 4 of those
-    assert spread.std == pytest.approx(a / math.sqrt(2 * c * k), rel=0.26)
-    freq, power, count = mean_power_spectrum(R.time, R.series("x"))
-    assert count == 40 and freq[np.argmax(power)] == pytest.approx(math.sqrt(k) / (2 * math.pi), rel=0.1)
+    p, _ = step_values(project, system, "Why it settles")
+    eq = find_equilibria(system, p, exact=False, starts=5)[0]
+    assert eq.vector == pytest.approx([38.0])
+    assert eq.eigenvalues[0] == pytest.approx(complex(lambertw(-1.0) / 2.0), abs=1e-9)  # -0.159 + 0.669i
+    assert eq.stable is True
+    for k, stable in ((0.77, True), (0.80, False)):
+        assert find_equilibria(system, system.param_vector({"k": k}), exact=False, starts=5)[0].stable is stable
+    p, _ = step_values(project, system, "Impatient hands")
+    run = simulate(system, RunSettings(t_end=150, samples=3001), p=p)
+    late = run.states[0, run.time > 100]
+    assert 33.4 < late.min() < 33.8 and 42.2 < late.max() < 42.6  # "between about 33.6 and 42.4 degrees"

@@ -41,6 +41,7 @@ def steady_branches(system: CompiledSystem, param: str, lo: float, hi: float, p=
                     map_period: int = 1, settings: StepSettings | None = None, switch: bool = True,
                     initial=None, cancel: CancelToken | None = None, progress=None) -> BranchSet:
     """Branches of equilibria (flows) or of fixed points of f^K (maps, K = ``map_period``)."""
+    system.refuse_delays("continuation")
     lo, hi = check_interval(system, param, lo, hi)
     if not system.autonomous_at(p) and system.kind != MAP:
         raise ValueError(f"the equations depend on {system.time_name}: a forced flow has no equilibria; follow "

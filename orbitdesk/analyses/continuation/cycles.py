@@ -148,6 +148,7 @@ def cycle_branches(system: CompiledSystem, param: str, lo: float, hi: float, p=N
                    switch: bool = True, cancel: CancelToken | None = None, progress=None) -> BranchSet:
     """The branch of the cycle found near ``guess`` (or born at the Hopf point ``hopf``, a Special), and
     with ``switch`` the branches of doubled period born at its period doublings."""
+    system.refuse_delays("continuation of cycles")
     lo, hi = check_interval(system, param, lo, hi)
     if system.kind == MAP or not system.autonomous:
         raise ValueError("cycle branches are for autonomous flows; a forced flow's periodic response is "

@@ -174,6 +174,7 @@ def locus(system: CompiledSystem, kind: str, param: str, param2: str, lo: float,
     """The fold or Hopf curve through the special point found on the branch in ``param`` nearest its value.
 
     ``range2`` bounds the second parameter (default: its slider range, else 10 units around its value)."""
+    system.refuse_delays("continuation in two parameters")
     if kind not in (FOLD, HOPF):
         raise ValueError("a locus follows a fold or a Hopf point")
     if system.kind == MAP:

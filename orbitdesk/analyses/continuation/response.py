@@ -127,6 +127,7 @@ def response_curve(system: CompiledSystem, param: str, lo: float, hi: float, p=N
                    initial=None, settings: StepSettings | None = None, cancel: CancelToken | None = None,
                    progress=None) -> ResponseCurve:
     """The continued periodic response (one forcing period, or the multiple the search finds) against ``param``."""
+    system.refuse_delays("the frequency response")
     lo, hi = check_interval(system, param, lo, hi)
     observe = _observed(system, observe)
     funcs = ModelFunctions(system)
@@ -165,6 +166,7 @@ def stepped_sweep(system: CompiledSystem, param: str, lo: float, hi: float, dire
                   count: int = 60, p=None, observe=None, initial=None, max_periods: int = 400,
                   cancel: CancelToken | None = None, progress=None) -> ResponseCurve:
     """Step the parameter up or down; each value starts from the previous value's final state."""
+    system.refuse_delays("the stepped sweep")
     lo, hi = check_interval(system, param, lo, hi)
     if direction not in ("up", "down"):
         raise ValueError("a stepped sweep goes up or down")

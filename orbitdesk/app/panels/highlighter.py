@@ -1,5 +1,6 @@
 """Syntax colouring for model text: comments, numbers, functions and the left side of each
-statement by what it defines (flow equation, map equation, initial value, parameter, derived)."""
+statement by what it defines (flow equation, map equation, initial value, parameter, derived); the
+``angle`` declaration as a keyword with its states."""
 
 from __future__ import annotations
 
@@ -8,10 +9,10 @@ import re
 from PySide6.QtGui import QColor, QFont, QPalette, QSyntaxHighlighter, QTextCharFormat
 
 from orbitdesk.language.expression import CONSTANTS, FUNCTIONS
-from orbitdesk.language.model import _LHS_FORMS
 
 FLOW_EQ, MAP_EQ, INITIAL, PARAMETER, DERIVED = "flow", "map", "initial", "parameter", "derived"
 COMMENT, NUMBER, FUNCTION, CONSTANT, RANGE = "comment", "number", "function", "constant", "range"
+KEYWORD = "keyword"  # declarations such as angle
 
 # (light background, dark background); muted hues of our own that read on either.
 PALETTE = {
@@ -24,12 +25,22 @@ PALETTE = {
     FUNCTION: ("#4e4aa8", "#aeb0f2"),
     CONSTANT: ("#4e4aa8", "#aeb0f2"),
     RANGE: ("#6b6f76", "#9aa0a8"),
+    KEYWORD: ("#4e4aa8", "#aeb0f2"),
     COMMENT: ("#7a7f87", "#8d939b"),
 }
 
 _NUMBER = re.compile(r"(?<![A-Za-z_0-9.])(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?")
 _WORD = re.compile(r"[A-Za-z_][A-Za-z0-9_]*")
+_WORD_PRIMED = re.compile(r"[A-Za-z_][A-Za-z0-9_]*'*")
 _RANGE = re.compile(r"\bin\s*\[")
+
+
+def _forms():
+    """The statement forms and the angle declaration of the language (``language.model``, which imports
+    sympy: loaded on the first colouring, after the window shows)."""
+    from orbitdesk.language.model import _ANGLE, _LHS_FORMS
+
+    return _LHS_FORMS, _ANGLE
 
 
 def is_dark(palette: QPalette) -> bool:
@@ -43,7 +54,7 @@ def colour(role: str, dark: bool) -> QColor:
 def classify_lhs(lhs: str, rhs: str, kinds: dict[str, str] | None = None) -> str | None:
     """What a statement with this left side defines; ``kinds`` (name -> PARAMETER/DERIVED, from the
     last parse) settles ``name = ...`` lines, else a constant-looking right side means a parameter."""
-    for form, pattern in _LHS_FORMS:
+    for form, pattern in _forms()[0]:
         m = pattern.match(lhs)
         if not m:
             continue
@@ -77,7 +88,7 @@ class ModelHighlighter(QSyntaxHighlighter):
         for role in PALETTE:
             fmt = QTextCharFormat()
             fmt.setForeground(colour(role, dark))
-            if role in (FLOW_EQ, MAP_EQ, INITIAL, PARAMETER, DERIVED):
+            if role in (FLOW_EQ, MAP_EQ, INITIAL, PARAMETER, DERIVED, KEYWORD):
                 fmt.setFontWeight(QFont.Weight.DemiBold)
             if role == COMMENT:
                 fmt.setFontItalic(True)
@@ -101,6 +112,8 @@ class ModelHighlighter(QSyntaxHighlighter):
         if hash_:
             self.setFormat(len(code), len(text) - len(code), self._formats[COMMENT])
         eq = code.find("=")
+        if eq < 0 and code.lstrip().startswith("angle") and self._angle_line(code):
+            return
         rhs_start = 0
         if eq > 0:
             lhs_raw = code[:eq]
@@ -126,3 +139,14 @@ class ModelHighlighter(QSyntaxHighlighter):
             else:
                 continue
             self.setFormat(rhs_start + m.start(), len(word), self._formats[role])
+
+    def _angle_line(self, code: str) -> bool:
+        """``angle theta, phi``: the word as a keyword, each name in the colour of a state's equation."""
+        m = _forms()[1].match(code)
+        if not m:
+            return False
+        keyword = self._formats[KEYWORD]
+        self.setFormat(len(m.group(1)), len("angle"), keyword)
+        for name in _WORD_PRIMED.finditer(code, m.start(2)):
+            self.setFormat(name.start(), name.end() - name.start(), self._formats[FLOW_EQ])
+        return True

@@ -9,7 +9,6 @@ from PySide6.QtGui import QFontDatabase
 from PySide6.QtWidgets import (QAbstractSpinBox, QDoubleSpinBox, QFrame, QGridLayout, QHBoxLayout, QLabel,
                                QPushButton, QScrollArea, QSizePolicy, QSlider, QVBoxLayout, QWidget)
 
-from orbitdesk.language.model import FLOW
 
 SLIDER_STEPS = 1000
 SPIN_LIMIT = 1e12
@@ -235,7 +234,7 @@ class ParameterPanel(QWidget):
             lo, hi = ranges(name) if ranges is not None else system.param_ranges.get(name, (None, None))
             yield "param", name, name, float(value), slider_range(value, lo, hi), lo is not None
         for name, value in zip(system.states, system.initial):
-            label = f"{name}(0)" if system.kind == FLOW else f"{name}[0]"
+            label = f"{name}(0)" if system.kind == _flow() else f"{name}[0]"
             yield "initial", name, label, float(value), default_range(value), False
 
     def _update_model_values(self, system) -> None:
@@ -270,7 +269,7 @@ class ParameterPanel(QWidget):
         grid.setVerticalSpacing(3)
         grid.setColumnStretch(1, 1)
         row_index = 0
-        sections = (("param", "Parameters"), ("initial", "Initial values" if system.kind == FLOW else "Starting values"))
+        sections = (("param", "Parameters"), ("initial", "Initial values" if system.kind == _flow() else "Starting values"))
         entries = list(self._ranges(system))
         for kind, title in sections:
             items = [e for e in entries if e[0] == kind]
@@ -296,3 +295,9 @@ class ParameterPanel(QWidget):
                 row_index += 1
         grid.setRowStretch(row_index, 1)
         self.scroll.setWidget(body)
+
+
+def _flow() -> str:
+    from orbitdesk.language.model import FLOW  # loaded with the first model (it imports sympy)
+
+    return FLOW

@@ -5,69 +5,23 @@ from __future__ import annotations
 
 import html
 
-import sympy as sp
 from PySide6.QtCore import Qt, QTimer
 from PySide6.QtGui import QColor, QFontDatabase, QPalette
 from PySide6.QtWidgets import QLabel, QTextBrowser, QVBoxLayout, QWidget
-from sympy.printing.str import StrPrinter
-
-from orbitdesk.language.model import FLOW
 
 from orbitdesk.app.panels.highlighter import colour, is_dark, FLOW_EQ, MAP_EQ, PARAMETER, DERIVED, INITIAL
 
-_FUNCTION_NAMES = {"Abs": "abs", "Min": "min", "Max": "max", "Mod": "mod", "Heaviside": "heaviside",
-                   "DiracDelta": "\u03b4"}
+def _is_flow(system) -> bool:
+    from orbitdesk.language.model import FLOW  # loaded with the first model (it imports sympy)
 
-
-class _ModelPrinter(StrPrinter):
-    """Prints sympy expressions back in the model language's spelling (``^``, ``abs``, ``e``)."""
-
-    def _print_Function(self, expr):
-        name = _FUNCTION_NAMES.get(type(expr).__name__)
-        if name is None:
-            return super()._print_Function(expr)
-        return f"{name}({self.stringify(expr.args, ', ')})"
-
-    def _print_Heaviside(self, expr):
-        return f"heaviside({self._print(expr.args[0])})"
-
-    def _print_Min(self, expr):
-        return f"min({self.stringify(expr.args, ', ')})"
-
-    def _print_Max(self, expr):
-        return f"max({self.stringify(expr.args, ', ')})"
-
-    def _print_Exp1(self, expr):
-        return "e"
-
-    def _print_Piecewise(self, expr):
-        *rest, last = expr.args
-        text = self._print(last.expr) if last.cond == True else "nan"  # noqa: E712 (sympy's true)
-        for pair in reversed(rest):
-            text = f"if({self._print(pair.cond)}, {self._print(pair.expr)}, {text})"
-        return text
-
-    def _print_And(self, expr):
-        return " and ".join(f"({self._print(a)})" if isinstance(a, sp.Or) else self._print(a) for a in expr.args)
-
-    def _print_Or(self, expr):
-        return " or ".join(self._print(a) for a in expr.args)
-
-    def _print_Not(self, expr):
-        return f"not ({self._print(expr.args[0])})"
-
-    def _print_Float(self, expr):
-        return f"{float(expr):.10g}"
-
-
-_PRINTER = _ModelPrinter()
+    return system.kind == FLOW
 
 
 def model_str(expr) -> str:
-    """One expression as the model language would write it."""
-    if not isinstance(expr, sp.Basic):  # plain numbers only; text is never converted here
-        expr = sp.Integer(expr) if isinstance(expr, int) else sp.Float(float(expr))
-    return _PRINTER.doprint(expr).replace("**", "^")
+    """One expression as the model language would write it (``model_printer``, imported on first use)."""
+    from orbitdesk.app.panels.model_printer import model_str as printed
+
+    return printed(expr)
 
 
 def number_str(value: float) -> str:
@@ -82,7 +36,7 @@ def _grouped(state: str) -> str:
 def equation_lhs(system, state: str) -> str:
     """The left side of a state's first-order equation: dx/dt, d(x')/dt for the speed x' that a
     second-order equation introduces (never x'' or a bare x' that reads like the state), x[n+1] for maps."""
-    if system.kind != FLOW:
+    if not _is_flow(system):
         return f"{state}[n+1]"
     return f"d{_grouped(state)}/d{system.time_name}"
 
@@ -109,7 +63,7 @@ def time_dependent_states(system) -> list[str]:
 
 def reduced_orders(system) -> dict[str, int]:
     """Base names whose equation was typed above first order, with the typed order."""
-    typed = getattr(system.model, "typed_order", {}) if system.kind == FLOW else {}
+    typed = getattr(system.model, "typed_order", {}) if _is_flow(system) else {}
     return {base: k for base, k in typed.items() if k > 1}
 
 
@@ -172,7 +126,7 @@ class ModelReadback(QWidget):
         s = self._system
         if s is None:
             return []
-        return [f"{equation_lhs(s, state)} = {model_str(f)}" for state, f in zip(s.states, s.f)]
+        return [f"{equation_lhs(s, state)} = {model_str(f)}" for state, f in zip(s.states, s.f_delayed or s.f)]
 
     def jacobian_entries(self) -> list[list[str]]:
         s = self._system
@@ -229,7 +183,7 @@ class ModelReadback(QWidget):
             "text": text.name(),
             "muted": _blend(text, base, 0.42).name(),
             "cell": _blend(text, base, 0.06).name(),
-            "lhs": colour(FLOW_EQ if self._system is None or self._system.kind == FLOW else MAP_EQ, dark).name(),
+            "lhs": colour(FLOW_EQ if self._system is None or _is_flow(self._system) else MAP_EQ, dark).name(),
             "param": colour(PARAMETER, dark).name(),
             "derived": colour(DERIVED, dark).name(),
             "initial": colour(INITIAL, dark).name(),
@@ -278,7 +232,7 @@ class ModelReadback(QWidget):
 
     def _summary(self, system) -> str:
         n = system.n_states
-        kind = "Flow" if system.kind == FLOW else "Map"
+        kind = "Flow" if _is_flow(system) else "Map"
         states = ", ".join(self._m(s) for s in system.states)
         facts = []
         if system.autonomous:
@@ -286,6 +240,11 @@ class ModelReadback(QWidget):
         else:
             where = ", ".join(self._m(equation_lhs(system, s)) for s in time_dependent_states(system))
             facts.append(f"non-autonomous: depends on {self._m(system.time_name)} in {where}")
+        if system.delays:
+            from orbitdesk.engine.delay import uses_history
+
+            delays = ", ".join(self._m(f"{d.label} ({number_str(d.value)})") for d in system.delays)
+            facts.append(f"delays: {delays}; {_esc(uses_history(system))}")
         if system.smooth:
             facts.append("smooth")
         else:
@@ -294,9 +253,9 @@ class ModelReadback(QWidget):
                 + self._muted(" \u00b7 ".join(facts)))
 
     def _equations(self, system) -> str:
-        title = "First-order form" if system.kind == FLOW else "Map"
+        title = "First-order form" if _is_flow(system) else "Map"
         rows = [self._equation_row(equation_lhs(system, s), model_str(f) + noise_text(system, i), self._c["lhs"])
-                for i, (s, f) in enumerate(zip(system.states, system.f))]
+                for i, (s, f) in enumerate(zip(system.states, system.f_delayed or system.f))]
         notes = []
         if system.stochastic:
             notes.append(f"{self._m('noise')} is white noise in the Ito sense (x' = f + g noise is dx = f dt + g dW); "
@@ -314,8 +273,8 @@ class ModelReadback(QWidget):
 
     def _initial(self, system) -> str:
         current = getattr(self.session, "initial", None) or {}
-        label = "Initial values" if system.kind == FLOW else "Starting values"
-        rows = [self._value_row(f"{name}(0)" if system.kind == FLOW else f"{name}[0]", value, current.get(name),
+        label = "Initial values" if _is_flow(system) else "Starting values"
+        rows = [self._value_row(f"{name}(0)" if _is_flow(system) else f"{name}[0]", value, current.get(name),
                                 self._c["initial"], "")
                 for name, value in zip(system.states, system.initial)]
         return self._heading(label) + self._table(rows)
@@ -360,7 +319,8 @@ class ModelReadback(QWidget):
                             f"{self._m(model_str(J[i, j]))}</td>" for j in range(system.n_states))
             rows.append("<tr>" + self._td(self._m(equation_lhs(system, state), c["lhs"]), "right",
                                           "padding-right:8px") + cells + "</tr>")
-        return self._heading("Jacobian") + self._table(rows, spacing=2)
+        title = "Jacobian with the delays dropped" if system.delays else "Jacobian"
+        return self._heading(title) + self._table(rows, spacing=2)
 
 
 def _blend(a: QColor, b: QColor, t: float) -> QColor:

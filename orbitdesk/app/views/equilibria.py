@@ -354,16 +354,18 @@ class EquilibriaView(SessionView):
         vecs = [[complex_text(eq.eigenvectors[r, c], 4) for c in range(len(eq.eigenvalues))]
                 for r in range(len(states))]
         multipliers = bool(getattr(eq, "is_map", False))
+        counts = (f"{eq.n_stable} stable, {eq.n_unstable} unstable{f', {eq.n_center} neutral' if eq.n_center else ''}"
+                  f" direction{'s' if len(eq.eigenvalues) != 1 else ''}")
+        if s.delays:  # infinitely many characteristic roots: the rightmost are listed
+            counts = f"{len(eq.eigenvalues)} rightmost roots listed, {eq.n_unstable} with positive real part"
         html = [f"<div style='font-family:\"{family}\"'>",
                 f"<p><b>{'Fixed point' if multipliers else 'Equilibrium'} {i}: {eq.kind}</b> "
-                f"({_stability_text(eq)}; {eq.n_stable} stable, {eq.n_unstable} unstable"
-                f"{f', {eq.n_center} neutral' if eq.n_center else ''} direction"
-                f"{'s' if len(eq.eigenvalues) != 1 else ''})<br>{where}</p>",
-                "<p><b>Jacobian</b></p>",
+                f"({_stability_text(eq)}; {counts})<br>{where}</p>",
+                f"<p><b>Jacobian{' with the delays dropped' if s.delays else ''}</b></p>",
                 _matrix_html(J, [escape(partial_label(n)) for n in states],
                              [escape(equation_lhs(self.system, n)) for n in states]),
-                f"<p><b>{'Multipliers' if multipliers else 'Eigenvalues'} and eigenvectors</b> "
-                "(columns, unit length)</p>", _matrix_html(vecs, lam_heads, states)]
+                f"<p><b>{'Multipliers' if multipliers else 'Characteristic roots' if s.delays else 'Eigenvalues'}"
+                " and eigenvectors</b> (columns, unit length)</p>", _matrix_html(vecs, lam_heads, states)]
         if eq.warnings:
             html.append("<p><b>Notes</b></p><ul>" + "".join(f"<li>{w}</li>" for w in eq.warnings) + "</ul>")
         html.append(f"<p style='color:gray'>Found by {_method_text(eq.method)}.</p></div>")

@@ -165,6 +165,11 @@ class LyapunovView(SessionView):
         self.begin_computing()
 
         def job(cancel, report):
+            if s.delays:  # the largest exponent from two nearby histories (the spectrum needs no delays)
+                from orbitdesk.analyses.lyapunov import largest_lyapunov_two_trajectory
+
+                return largest_lyapunov_two_trajectory(s, p, u0, settings=settings, cancel=cancel, progress=report,
+                                                       t_end=kwargs["t_end"], transient=kwargs["transient"])
             return lyapunov_spectrum(s, p, u0, settings=settings, cancel=cancel, progress=report, **kwargs)
 
         self.strip.run("lyapunov", job, self._adopt, on_error=lambda m: None)
@@ -185,7 +190,8 @@ class LyapunovView(SessionView):
         self.restore_kept_result()
 
     def show_kept_result(self, result) -> None:
-        if result.kind != self.system.kind or np.asarray(result.exponents).size != self.system.n_states:
+        wanted = 1 if self.system.delays else self.system.n_states
+        if result.kind != self.system.kind or np.asarray(result.exponents).size != wanted:
             raise ValueError("the kept exponents belong to another kind of model")
         self.result = result
         self._draw()

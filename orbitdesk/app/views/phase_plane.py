@@ -298,6 +298,9 @@ class PhasePlaneView(SessionView):
         flat = self._plane_of_states()
         for box in (self.arrows, self.nullclines_box):
             box.setEnabled(flat)
+        self.arrows.setEnabled(flat and not s.delays)  # a delay model's direction depends on its past too
+        self.arrows.setToolTip("A model with delays has no direction field: its direction depends on the past"
+                               if s.delays else "Direction of the flow on a grid (two-state flows)")
         self.nullclines_box.setEnabled(flat and self._nullcline_function() is not None)
         clickable = self.x_name in s.states and self.y_name in s.states
         self.hint.setText("" if clickable else "Clicking starts trajectories when both axes are states")
@@ -487,7 +490,7 @@ class PhasePlaneView(SessionView):
         return (x0, x1), (y0, y1)
 
     def _update_field(self, *_args) -> None:
-        if not (self.arrows.isChecked() and self._plane_of_states()):
+        if not (self.arrows.isChecked() and self._plane_of_states()) or self.system.delays:
             self.field_item.setData([], [])
             return
         from orbitdesk.analyses.field import direction_field

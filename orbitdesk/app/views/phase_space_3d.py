@@ -20,6 +20,9 @@ from orbitdesk.app.views.common import (SessionView, check_box, combo_box, contr
                      apply_numbers, fill_combo, is_number, run_time_name, runs_job, set_quietly, values_at_time)
 from orbitdesk.app.plots.plot_style import (SCENE_BACKGROUND, SCENE_GRID, SCENE_MARKER, SCENE_TEXT, JobStrip, NumberBox, number_text,
                           rgba, time_colours)
+from orbitdesk.app.plots.scene3d import (_gl_item_classes, _solid, _solid_rgba, data_box, nice_ticks, strip_as_segments,
+                                         thin_indices, wrap_breaks)
+from orbitdesk.language.angles import angle_states, wrap
 
 HALF = 5.0                  # the box spans [-HALF, HALF] on every axis
 MAX_DRAWN_POINTS = 300_000  # the current trajectory is thinned evenly beyond this for drawing
@@ -31,93 +34,6 @@ MAX_ADDED = 40
 DEFAULT_CAMERA = {"distance": 23.0, "elevation": 22.0, "azimuth": -58.0, "center": [0.0, 0.0, 0.0], "fov": 60.0}
 COLOUR_MODES = ("time", "trajectory")
 WIDE_ASPECT = 1.6  # width / height up to which the starting camera shows the whole box
-
-
-_ITEM_CLASSES: dict = {}
-
-
-def _gl_item_classes(gl):
-    """Line and point items that keep one shader program per OpenGL context.
-
-    pyqtgraph 0.14 caches each item class's shader program for the first context that drew it, so
-    a second 3D scene (another view, or this one re-created) would draw with a program from a
-    foreign context (pyqtgraph issue #3455). These subclasses swap the cached program per context.
-    """
-    if _ITEM_CLASSES:
-        return _ITEM_CLASSES["line"], _ITEM_CLASSES["points"]
-    from PySide6.QtGui import QOpenGLContext
-
-    def per_context(base):
-        programs: dict[int, object] = {}
-
-        def paint(self):
-            ctx = QOpenGLContext.currentContext()
-            key = id(ctx)
-            if key not in programs and ctx is not None:
-                programs[key] = None
-                ctx.aboutToBeDestroyed.connect(lambda k=key: programs.pop(k, None))
-            base._shaderProgram = programs.get(key)
-            try:
-                base.paint(self)
-            finally:
-                programs[key] = base._shaderProgram
-
-        return type(base.__name__, (base,), {"paint": paint})
-
-    _ITEM_CLASSES["line"] = per_context(gl.GLLinePlotItem)
-    _ITEM_CLASSES["points"] = per_context(gl.GLScatterPlotItem)
-    return _ITEM_CLASSES["line"], _ITEM_CLASSES["points"]
-
-
-def thin_indices(n: int, limit: int) -> np.ndarray:
-    """Evenly spaced indices (first and last kept) so that at most ``limit`` of ``n`` points remain."""
-    if n <= limit:
-        return np.arange(n)
-    return np.unique(np.linspace(0, n - 1, limit).round().astype(np.int64))
-
-
-def nice_ticks(lo: float, hi: float, count: int = 5) -> np.ndarray:
-    """Round tick values (1, 2, 5 times a power of ten) inside [lo, hi]."""
-    span = hi - lo
-    if not (math.isfinite(span) and span > 0):
-        return np.array([lo])
-    raw = span / max(count, 1)
-    mag = 10 ** math.floor(math.log10(raw))
-    step = next(m * mag for m in (1, 2, 5, 10) if m * mag >= raw)
-    first = math.ceil(lo / step - 1e-9) * step
-    ticks = np.arange(first, hi + step * 1e-9, step)
-    return np.where(np.abs(ticks) < step * 1e-9, 0.0, ticks)
-
-
-def data_box(arrays, pad: float = 0.04):
-    """(lo, hi) per axis over the finite values of the given (N, 3) arrays, padded a little."""
-    lo, hi = np.full(3, np.inf), np.full(3, -np.inf)
-    for a in arrays:
-        if a is None or a.size == 0:
-            continue
-        finite = a[np.all(np.isfinite(a), axis=1)]
-        if finite.size:
-            lo, hi = np.minimum(lo, finite.min(axis=0)), np.maximum(hi, finite.max(axis=0))
-    out = []
-    for k in range(3):
-        a, b = lo[k], hi[k]
-        if not (math.isfinite(a) and math.isfinite(b)):
-            a, b = -1.0, 1.0
-        if b - a <= 1e-12 * max(1.0, abs(a), abs(b)):
-            w = max(abs(a) * 0.1, 1.0)
-            a, b = a - w, b + w
-        d = (b - a) * pad
-        out.append((a - d, b + d))
-    return out
-
-
-def _solid(colour: str, alpha: float, n: int) -> np.ndarray:
-    """One colour for n points as an (n, 4) array (items that once had per-point colours need arrays)."""
-    return _solid_rgba(QColor(colour), alpha, n)
-
-
-def _solid_rgba(colour, alpha: float, n: int) -> np.ndarray:
-    return np.tile(np.array(rgba(colour, alpha), dtype=np.float32), (max(n, 0), 1))
 
 
 class PhaseSpace3DView(SessionView):
@@ -495,14 +411,29 @@ class PhaseSpace3DView(SessionView):
         self.strip.run("phase_space_3d.spread", self._runs_job(starts), done)
 
     # ------------------------------------------------------------ drawing
-    def _coords(self, traj):
+    def _coords(self, traj, wrapped: bool = True):
+        """The run's values on the three axes; a state the model declares an angle wrapped to (-pi, pi]."""
         try:
             cols = [np.asarray(traj.series(n), dtype=float) for n in self.axes()]
         except KeyError:
             return None
         if any(c.shape != traj.time.shape for c in cols):
             return None
+        if wrapped:
+            cols = [wrap(c) if k in self._wrapped_columns() else c for k, c in enumerate(cols)]
         return np.column_stack(cols)
+
+    def _wrapped_columns(self) -> list[int]:
+        """The axes (0, 1, 2) showing a state the model declares an angle."""
+        angles = angle_states(self.system) if self.system is not None else []
+        return [k for k, name in enumerate(self.axes()) if name in angles]
+
+    def _line_data(self, pos, colour):
+        """(pos, colour, GL mode) of a run's line: one strip, or segments broken where an angle goes round."""
+        breaks = wrap_breaks(pos, self._wrapped_columns())
+        if breaks is None:
+            return pos, colour, "line_strip"
+        return (*strip_as_segments(pos, colour, breaks), "lines")
 
     def _to_box(self, xyz: np.ndarray) -> np.ndarray:
         out = np.empty_like(xyz, dtype=np.float32)
@@ -515,7 +446,9 @@ class PhaseSpace3DView(SessionView):
 
     def _redraw_all(self) -> None:
         main = self._coords(self.trajectory) if self.trajectory is not None and self.trajectory.time.size else None
-        self._main_xyz = main  # kept for the time cursor, which moves often
+        # kept for the time cursor, which moves often: unwrapped (read between samples, then wrapped)
+        self._main_xyz = self._coords(self.trajectory, wrapped=False) if self._wrapped_columns() and main is not None \
+            else main
         extras = []  # (xyz, time, kind, role index)
         for i, run in enumerate(self.added_runs):
             if run is not None and run.time.size:
@@ -546,11 +479,12 @@ class PhaseSpace3DView(SessionView):
         keep = thin_indices(xyz.shape[0], MAX_DRAWN_POINTS)
         pos, time = xyz[keep], traj.time[keep]
         ok = np.all(np.isfinite(pos), axis=1)
-        pos, time = self._to_box(pos[ok]), time[ok]
+        pos, time = pos[ok], time[ok]
         alpha = 0.3 if self.spread_runs else 0.95  # in the background while nearby starts are shown
         colour = time_colours(time, alpha) if self._colour_by_time() else _solid(SERIES_COLOURS[0][1], alpha, len(pos))
         coarse = thin_indices(len(pos), MOVING_POINTS)
-        self._main_data = ((pos, colour), (pos[coarse], colour[coarse]))
+        self._main_data = tuple((self._to_box(p), c, mode) for p, c, mode in
+                                (self._line_data(pos, colour), self._line_data(pos[coarse], colour[coarse])))
         self.main_item.setVisible(traj.kind != "map")
         self.main_points.setVisible(traj.kind == "map")
         self._show_main()
@@ -559,11 +493,11 @@ class PhaseSpace3DView(SessionView):
         """The run's line (or points), coarser while the camera moves: a software renderer then keeps up."""
         if self._main_data is None:
             return
-        pos, colour = self._main_data[1 if self._moving else 0]
+        pos, colour, mode = self._main_data[1 if self._moving else 0]
         if self.main_points.visible():
             self.main_points.setData(pos=pos, color=colour, size=3)
         else:
-            self.main_item.setData(pos=pos, color=colour, width=1.0 if self._moving else 1.6, mode="line_strip")
+            self.main_item.setData(pos=pos, color=colour, width=1.0 if self._moving else 1.6, mode=mode)
 
     def _set_moving(self, moving: bool) -> None:
         if moving != self._moving:
@@ -592,7 +526,7 @@ class PhaseSpace3DView(SessionView):
             keep = thin_indices(xyz.shape[0], MAX_EXTRA_POINTS)
             pos, t = xyz[keep], time[keep]
             ok = np.all(np.isfinite(pos), axis=1)
-            pos, t = self._to_box(pos[ok]), t[ok]
+            pos, t = pos[ok], t[ok]
             if role == "spread":  # one hue per nearby start, so their separation shows
                 colour = _solid(SERIES_COLOURS[i % len(SERIES_COLOURS)][1], 0.85, len(pos))
             elif by_time:
@@ -600,11 +534,12 @@ class PhaseSpace3DView(SessionView):
             else:
                 colour = _solid(SERIES_COLOURS[2][1], 0.85, len(pos))
             if kind == "map":
-                dots.setData(pos=pos, color=colour, size=2.5)
+                dots.setData(pos=self._to_box(pos), color=colour, size=2.5)
                 dots.setVisible(True)
                 line.setVisible(False)
             else:
-                line.setData(pos=pos, color=colour, width=1.2, mode="line_strip")
+                pos, colour, mode = self._line_data(pos, colour)
+                line.setData(pos=self._to_box(pos), color=colour, width=1.2, mode=mode)
                 line.setVisible(True)
                 dots.setVisible(False)
         for line, dots in self.extra_items[len(extras):]:
@@ -677,7 +612,10 @@ class PhaseSpace3DView(SessionView):
         if not pts:
             self.eq_item.setVisible(False)
             return
-        self.eq_item.setData(pos=self._to_box(np.array(pts, dtype=float)), size=np.array(sizes),
+        pts = np.array(pts, dtype=float)
+        for k in self._wrapped_columns():
+            pts[:, k] = wrap(pts[:, k])
+        self.eq_item.setData(pos=self._to_box(pts), size=np.array(sizes),
                              color=np.array(colours, dtype=np.float32))
         self.eq_item.setVisible(True)
 
@@ -688,10 +626,12 @@ class PhaseSpace3DView(SessionView):
         if not all(n in cols for n in names) or getattr(self, "_box", None) is None:
             self.cycle_item.setVisible(False)
             return
-        pos = self._to_box(np.column_stack([cols[n] for n in names]))
+        pos = np.column_stack([wrap(cols[n]) if k in self._wrapped_columns() else cols[n] for k, n in enumerate(names)])
         colour = _solid(SERIES_COLOURS[1][1], 1.0, len(pos))
-        self.cycle_item.setData(pos=pos, color=colour, width=3.0,
-                                mode="lines" if self.system.kind == "map" else "line_strip")
+        mode = "lines"
+        if self.system.kind != "map":
+            pos, colour, mode = self._line_data(pos, colour)
+        self.cycle_item.setData(pos=self._to_box(pos), color=colour, width=3.0, mode=mode)
         self.cycle_item.setVisible(True)
 
     def _update_cursor(self, t: float) -> None:
@@ -703,6 +643,9 @@ class PhaseSpace3DView(SessionView):
             self.cursor_item.setVisible(False)
             return
         (point,) = values_at_time(traj.time, t, traj.kind == "map", xyz)
+        point = np.array(point, dtype=float)
+        for k in self._wrapped_columns():
+            point[k] = wrap(point[k])
         if not np.all(np.isfinite(point)):
             self.cursor_item.setVisible(False)
             return

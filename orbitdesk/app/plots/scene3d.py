@@ -1,0 +1,118 @@
+"""Parts of the 3D scene that do not depend on the view: GL items with one shader program per context,
+thinning, round tick values, the data box, solid colour arrays, and lines broken where a wrapped angle goes
+round (drawn as separate segments)."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from PySide6.QtGui import QColor
+
+from orbitdesk.app.plots.plot_style import rgba
+
+_ITEM_CLASSES: dict = {}
+
+
+def _gl_item_classes(gl):
+    """Line and point items that keep one shader program per OpenGL context.
+
+    pyqtgraph 0.14 caches each item class's shader program for the first context that drew it, so
+    a second 3D scene (another view, or this one re-created) would draw with a program from a
+    foreign context (pyqtgraph issue #3455). These subclasses swap the cached program per context.
+    """
+    if _ITEM_CLASSES:
+        return _ITEM_CLASSES["line"], _ITEM_CLASSES["points"]
+    from PySide6.QtGui import QOpenGLContext
+
+    def per_context(base):
+        programs: dict[int, object] = {}
+
+        def paint(self):
+            ctx = QOpenGLContext.currentContext()
+            key = id(ctx)
+            if key not in programs and ctx is not None:
+                programs[key] = None
+                ctx.aboutToBeDestroyed.connect(lambda k=key: programs.pop(k, None))
+            base._shaderProgram = programs.get(key)
+            try:
+                base.paint(self)
+            finally:
+                programs[key] = base._shaderProgram
+
+        return type(base.__name__, (base,), {"paint": paint})
+
+    _ITEM_CLASSES["line"] = per_context(gl.GLLinePlotItem)
+    _ITEM_CLASSES["points"] = per_context(gl.GLScatterPlotItem)
+    return _ITEM_CLASSES["line"], _ITEM_CLASSES["points"]
+
+
+def thin_indices(n: int, limit: int) -> np.ndarray:
+    """Evenly spaced indices (first and last kept) so that at most ``limit`` of ``n`` points remain."""
+    if n <= limit:
+        return np.arange(n)
+    return np.unique(np.linspace(0, n - 1, limit).round().astype(np.int64))
+
+
+def nice_ticks(lo: float, hi: float, count: int = 5) -> np.ndarray:
+    """Round tick values (1, 2, 5 times a power of ten) inside [lo, hi]."""
+    span = hi - lo
+    if not (math.isfinite(span) and span > 0):
+        return np.array([lo])
+    raw = span / max(count, 1)
+    mag = 10 ** math.floor(math.log10(raw))
+    step = next(m * mag for m in (1, 2, 5, 10) if m * mag >= raw)
+    first = math.ceil(lo / step - 1e-9) * step
+    ticks = np.arange(first, hi + step * 1e-9, step)
+    return np.where(np.abs(ticks) < step * 1e-9, 0.0, ticks)
+
+
+def data_box(arrays, pad: float = 0.04):
+    """(lo, hi) per axis over the finite values of the given (N, 3) arrays, padded a little."""
+    lo, hi = np.full(3, np.inf), np.full(3, -np.inf)
+    for a in arrays:
+        if a is None or a.size == 0:
+            continue
+        finite = a[np.all(np.isfinite(a), axis=1)]
+        if finite.size:
+            lo, hi = np.minimum(lo, finite.min(axis=0)), np.maximum(hi, finite.max(axis=0))
+    out = []
+    for k in range(3):
+        a, b = lo[k], hi[k]
+        if not (math.isfinite(a) and math.isfinite(b)):
+            a, b = -1.0, 1.0
+        if b - a <= 1e-12 * max(1.0, abs(a), abs(b)):
+            w = max(abs(a) * 0.1, 1.0)
+            a, b = a - w, b + w
+        d = (b - a) * pad
+        out.append((a - d, b + d))
+    return out
+
+
+def _solid(colour: str, alpha: float, n: int) -> np.ndarray:
+    """One colour for n points as an (n, 4) array (items that once had per-point colours need arrays)."""
+    return _solid_rgba(QColor(colour), alpha, n)
+
+
+def _solid_rgba(colour, alpha: float, n: int) -> np.ndarray:
+    return np.tile(np.array(rgba(colour, alpha), dtype=np.float32), (max(n, 0), 1))
+
+
+def wrap_breaks(xyz: np.ndarray, wrapped_columns) -> np.ndarray | None:
+    """Indices i where the line from point i to i + 1 must not be drawn: a wrapped angle column jumps by more
+    than pi there (it went round); None when nothing breaks."""
+    if not wrapped_columns or xyz.shape[0] < 2:
+        return None
+    with np.errstate(invalid="ignore"):
+        jumps = np.any(np.abs(np.diff(xyz[:, list(wrapped_columns)], axis=0)) > np.pi, axis=1)
+    return np.flatnonzero(jumps) if jumps.any() else None
+
+
+def strip_as_segments(pos: np.ndarray, colour: np.ndarray, breaks: np.ndarray):
+    """A line strip as pairs of points (GL "lines" mode) without the segments that start at ``breaks``."""
+    keep = np.ones(max(pos.shape[0] - 1, 0), dtype=bool)
+    keep[breaks[breaks < keep.size]] = False
+    i = np.flatnonzero(keep)
+    pairs = np.empty(2 * i.size, dtype=np.int64)
+    pairs[0::2], pairs[1::2] = i, i + 1
+    return pos[pairs], colour[pairs]
