@@ -209,6 +209,18 @@ def split(model, state: str, expr, line: int, builder) -> sp.Expr:
     return expr.xreplace(zero)
 
 
+def terms_text(system, i: int, show=str) -> str:
+    """`` + g*noise(k)`` for each source acting on state ``i`` of a compiled system (plain ``noise`` for an
+    equation's own source), ``show`` printing each coefficient: how read-backs and reports write them."""
+    out = ""
+    for key, g in zip(system.noise_sources, system.diffusion[i] if system.noise_sources else ()):
+        if g == 0:
+            continue
+        word = f"noise{key}" if key.startswith("(") else "noise"
+        out += f" + {word}" if g == 1 else f" + ({show(g)})*{word}" if g.is_Add else f" + {show(g)}*{word}"
+    return out
+
+
 def drop(expr):
     """``expr`` without its noise terms (a derived quantity that uses a noisy right side)."""
     if not hasattr(expr, "free_symbols"):
@@ -225,4 +237,4 @@ def system_noise(model, states) -> dict:
             "diffusion": [[model.diffusion.get(s, {}).get(k, sp.Integer(0)) for k in sources] for s in states]}
 
 
-__all__ = ["WORD", "MARK", "NOISE_FREE_NOTE", "mark", "marked_tree", "symbol", "split", "drop", "system_noise", "source_label"]
+__all__ = ["WORD", "MARK", "NOISE_FREE_NOTE", "mark", "marked_tree", "terms_text", "symbol", "split", "drop", "system_noise", "source_label"]

@@ -66,3 +66,13 @@ def test_script_reproduces_the_realisations(tmp_path, scheme):
         assert np.array_equal(rows, expected)
     else:
         np.testing.assert_allclose(rows, expected, rtol=1e-10, atol=1e-12)
+
+
+def test_report_writes_the_noise_terms_and_the_realisations():
+    from orbitdesk.document.project import Project
+    from orbitdesk.exports.report import render_report
+
+    project = Project(name="two sources", model=TWO_SOURCES, solver=RunSettings(realisations=7, seed=5))
+    html = render_report(project, compile_model(TWO_SOURCES), equilibria=[])
+    assert "= -theta*x + sigma*x*noise(1) + 0.1*noise" in html.replace("&#x27;", "'")
+    assert "7 realisations from seed 5" in html and "noise-free part" in html

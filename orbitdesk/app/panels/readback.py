@@ -9,6 +9,7 @@ from PySide6.QtCore import Qt, QTimer
 from PySide6.QtGui import QColor, QFontDatabase, QPalette
 from PySide6.QtWidgets import QLabel, QTextBrowser, QVBoxLayout, QWidget
 
+from orbitdesk.language import noise
 from orbitdesk.app.panels.highlighter import colour, is_dark, FLOW_EQ, MAP_EQ, PARAMETER, DERIVED, INITIAL
 
 def _is_flow(system) -> bool:
@@ -44,17 +45,6 @@ def equation_lhs(system, state: str) -> str:
 def partial_label(state: str) -> str:
     """A Jacobian column head: the derivative with respect to a state, ∂/∂x or ∂/∂(x')."""
     return "\u2202/\u2202" + _grouped(state)
-
-
-def noise_text(system, i: int) -> str:
-    """`` + g*noise(k)`` for each source acting on state ``i`` (plain ``noise`` for the equation's own)."""
-    out = ""
-    for key, g in zip(system.noise_sources, system.diffusion[i] if system.stochastic else ()):
-        if g == 0:
-            continue
-        word = f"noise{key}" if key.startswith("(") else "noise"
-        out += f" + {word}" if g == 1 else f" + ({model_str(g)})*{word}"
-    return out
 
 
 def time_dependent_states(system) -> list[str]:
@@ -254,7 +244,7 @@ class ModelReadback(QWidget):
 
     def _equations(self, system) -> str:
         title = "First-order form" if _is_flow(system) else "Map"
-        rows = [self._equation_row(equation_lhs(system, s), model_str(f) + noise_text(system, i), self._c["lhs"])
+        rows = [self._equation_row(equation_lhs(system, s), model_str(f) + noise.terms_text(system, i, model_str), self._c["lhs"])
                 for i, (s, f) in enumerate(zip(system.states, system.f_delayed or system.f))]
         notes = []
         if system.stochastic:
