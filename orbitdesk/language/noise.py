@@ -30,6 +30,7 @@ WORD = "noise"
 MARK = "\u2020noise:"  # generated names of noise terms: '\u2020' cannot be typed in a name
 NOISE_FREE_NOTE = ("the model has noise; this analysis assumes determinism and uses the noise-free part "
                    "(the drift, the equations with every noise term left out)")
+MAX_SOURCES = 20
 _SOURCE = re.compile(r"^[A-Za-z_][A-Za-z0-9_]*$|^[0-9]+$")
 
 
@@ -101,6 +102,10 @@ def _rewrite(node, equation, keys, report):
             report(node, problem)
             return None
         if key not in keys:
+            if len(keys) >= MAX_SOURCES:
+                report(node, f"a model can have at most {MAX_SOURCES} noise sources (Milstein's scheme works with "
+                             "every pair of them); share sources with noise(k)")
+                return None
             keys.append(key)
         return Name(MARK + key, node.column, node.end)
     if not _has_noise(node):
@@ -191,8 +196,8 @@ def split(model, state: str, expr, line: int, builder) -> sp.Expr:
         builder.add(span[0], span[1], span[2], ERROR,
                     "noise and delays in one model are not supported: stochastic delay equations need a "
                     "scheme of their own; leave out the noise or the delay")
-        return expr.xreplace({s: 0 for s in found})
-    zero = {s: 0 for s in found}
+        return expr.xreplace({s: sp.Integer(0) for s in found})
+    zero = {s: sp.Integer(0) for s in found}
     coefficients = {}
     for s in found:
         g = sp.diff(expr, s)
@@ -225,7 +230,7 @@ def drop(expr):
     """``expr`` without its noise terms (a derived quantity that uses a noisy right side)."""
     if not hasattr(expr, "free_symbols"):
         return expr
-    zero = {s: 0 for s in expr.free_symbols if s.name.startswith(MARK)}
+    zero = {s: sp.Integer(0) for s in expr.free_symbols if s.name.startswith(MARK)}
     return expr.xreplace(zero) if zero else expr
 
 

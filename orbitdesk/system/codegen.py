@@ -191,13 +191,15 @@ def kernel_source(system: CompiledSystem, guard: bool) -> str:
     out += _indent(w.lines(entries, lambda values: [f"out[{k}] = {v}" for k, v in enumerate(values)]), guard)
     if system.stochastic:
         G, L, _ = noise_terms(system)
-        store_all = (lambda values: [f"out[{i}] = {v}" for i, v in enumerate(values)])
         out += ["", "", "@_sde_kernel", f"def sde(which, {t}, z, p, out):",
-                f"    # out = f (n), G (n x m row by row){', L (n x m x m) when which == 1' if L else ''}",
-                "    if which == 0:"]
-        out += _indent(w.lines(f + G, store_all, "z"), guard, " " * 8)
-        out += ["    else:"]
-        out += _indent(w.lines(f + G + L, store_all, "z"), guard, " " * 8)
+                f"    # out = f (n), G (n x m row by row){', L (n x m x m) when which == 1' if L else ''}; "
+                "the zero entries of G and L are filled by the loop, the others written one by one"]
+        for which, terms in ((0, f + G), (1, f + G + L)):
+            keep = [k for k, e in enumerate(terms) if k < n or e != 0]
+            body = [f"for _k in range({n}, {len(terms)}):", "    out[_k] = 0.0"] if len(keep) < len(terms) else []
+            body += w.lines([terms[k] for k in keep], lambda values, keep=keep: [f"out[{k}] = {v}"
+                                                                                 for k, v in zip(keep, values)], "z")
+            out += ["    if which == 0:" if which == 0 else "    else:"] + _indent(body, guard, " " * 8)
     return "\n".join(out) + "\n"
 
 

@@ -198,3 +198,18 @@ def test_without_noise_a_run_is_the_noise_free_part():
     # what analyses that assume determinism get: x' = -theta x from x(0) = 1 is exp(-t) (closed form)
     run = runs.simulate(compile_model("x' = -x + 3*noise\nx(0) = 1\n"), RunSettings(t_end=2, samples=5))
     assert run.realisations is None and np.allclose(run.states[0], np.exp(-run.time), rtol=1e-7)
+
+
+def test_a_pure_noise_equation_is_brownian_motion():
+    # x' = noise from 0: W(t), mean 0 and variance t (closed form); 2000 realisations, 4 standard errors
+    R = simulate(compile_model("x' = noise\n"), RunSettings(t_end=2, dt=0.01, samples=3, realisations=2000,
+                                                              seed=9)).realisations
+    end = R.series("x")[:, -1]
+    assert abs(end.mean()) < 4 * np.sqrt(2 / 2000) and abs(end.var(ddof=1) - 2) < 4 * 2 * np.sqrt(2 / 1999)
+
+
+def test_the_number_of_sources_is_bounded():
+    text = "x' = -x + " + " + ".join(f"noise({k})" for k in range(1, 23))
+    errors = _errors(text)
+    assert len(errors) == 1 and "at most 20 noise sources" in errors[0][3]
+    assert errors[0][1] == text.index("noise(21)") + 1
