@@ -9,7 +9,6 @@ from PySide6.QtCore import Qt, QTimer
 from PySide6.QtGui import QColor, QFontDatabase, QPalette
 from PySide6.QtWidgets import QLabel, QTextBrowser, QVBoxLayout, QWidget
 
-from orbitdesk.language import noise
 from orbitdesk.app.panels.highlighter import colour, is_dark, FLOW_EQ, MAP_EQ, PARAMETER, DERIVED, INITIAL
 
 def _is_flow(system) -> bool:
@@ -244,7 +243,9 @@ class ModelReadback(QWidget):
 
     def _equations(self, system) -> str:
         title = "First-order form" if _is_flow(system) else "Map"
-        rows = [self._equation_row(equation_lhs(system, s), model_str(f) + noise.terms_text(system, i, model_str), self._c["lhs"])
+        from orbitdesk.language.noise import terms_text  # (with sympy: never before the first paint)
+
+        rows = [self._equation_row(equation_lhs(system, s), model_str(f) + terms_text(system, i, model_str), self._c["lhs"])
                 for i, (s, f) in enumerate(zip(system.states, system.f_delayed or system.f))]
         notes = []
         if system.stochastic:
