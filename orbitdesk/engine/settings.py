@@ -60,7 +60,7 @@ def check_value(name: str, value):
             raise SettingsError(name, f"expected one of {', '.join(NAMES)}, got {value!r}")
         return value
     if kind == "scheme":
-        if value not in SCHEMES:
+        if not isinstance(value, str) or value not in SCHEMES:
             raise SettingsError(name, f"expected one of {', '.join(SCHEMES)}, got {value!r}")
         return value
     if kind == "count":
