@@ -24,9 +24,10 @@ from benchmarks.harness import Row
 from orbitdesk.analyses.continuation import HOPF, StepSettings, steady_branches
 from orbitdesk.analyses.continuation.response import response_curve, stepped_sweep
 from orbitdesk.system.compiled_system import compile_model
+from orbitdesk.samples.models import DUFFING_REF, model
 
 LORENZ = "sigma = 10\nr = 28\nbeta = 8/3\nx' = sigma*(y - x)\ny' = r*x - y - x*z\nz' = x*y - beta*z\n"
-BEAM = "delta = 0.1\ngamma = 0.05\nomega = 1.2\nx'' = -delta*x' + x - x^3 + gamma*cos(omega*t)\nx(0) = 1\n"
+BEAM = model(DUFFING_REF, delta=0.1, gamma=0.05)
 GRID = 3000
 
 

@@ -23,8 +23,9 @@ from benchmarks.harness import Row
 from orbitdesk.engine import compiled
 from orbitdesk.engine.ensembles import rk4_ensemble
 from orbitdesk.system.compiled_system import compile_model
+from orbitdesk.samples.models import LORENZ_REF, model
 
-LORENZ = "sigma = 10\nr = 28\nbeta = 8/3\nx' = sigma*(y - x)\ny' = x*(r - z) - y\nz' = x*y - beta*z\nx(0) = 1\n"
+LORENZ = model(LORENZ_REF, initial={'y(0)': None, 'z(0)': None})
 CHECK_STEPS, DT = 200, 0.01
 
 C_SOURCE = r"""

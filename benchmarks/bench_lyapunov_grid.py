@@ -22,8 +22,8 @@ import numpy as np
 from benchmarks.harness import Row
 from orbitdesk.analyses.sweep import GridSettings, lyapunov_grid
 from orbitdesk.system.compiled_system import compile_model
+from orbitdesk.samples.models import HENON
 
-HENON = "a = 1.4\nb = 0.3\nx[n+1] = 1 - a*x^2 + y\ny[n+1] = b*x\nx[0] = 0.1\ny[0] = 0.1\n"
 SIZE, TRANSIENT, DURATION, SUBSET = 500, 100, 1000, 150
 
 

@@ -16,8 +16,9 @@ from benchmarks.harness import Row, interleaved, interleaved_best
 from orbitdesk.engine.runs import RunSettings, simulate
 from orbitdesk.engine import compiled
 from orbitdesk.system.compiled_system import compile_model
+from orbitdesk.samples.models import LORENZ_REF, model
 
-LORENZ = "sigma = 10\nr = 28\nbeta = 8/3\nx' = sigma*(y - x)\ny' = x*(r - z) - y\nz' = x*y - beta*z\nx(0) = 1\n"
+LORENZ = model(LORENZ_REF, initial={'y(0)': None, 'z(0)': None})
 A, B, C, E3, E5 = D.A[:12, :12].copy(), D.B.copy(), D.C[:12].copy(), D.E3.copy(), D.E5.copy()
 
 

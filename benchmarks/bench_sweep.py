@@ -24,9 +24,9 @@ from scipy.integrate import solve_ivp
 from benchmarks.harness import Row
 from orbitdesk.analyses.sweep import STROBE, SweepSettings, sweep
 from orbitdesk.system.compiled_system import compile_model
+from orbitdesk.samples.models import DUFFING_REF, model
 
-DUFFING = ("delta = 0.3\ngamma = 0.3\nomega = 1.2\n"
-           "x'' = -delta*x' + x - x^3 + gamma*cos(omega*t)\nx(0) = 1\nx'(0) = 0\n")
+DUFFING = model(DUFFING_REF, gamma=0.3, initial={"x'(0)": 0})
 COUNT, TRANSIENT_PERIODS, SAMPLED_PERIODS, STEPS_PER_PERIOD, SUBSET = 400, 300, 100, 100, 8
 
 

@@ -80,12 +80,12 @@ def simulate(*args, **kwargs):  # the session's job looks simulate up when it ru
     marks["end"] = time.perf_counter()
     return result
 engine.simulate = simulate
-adopt = session._adopt_trajectory  # the run's result on the GUI thread, before any view has seen it
+adopt = session.doc.set_trajectory  # the run's result on the GUI thread, before any view has seen it
 def arrived(trajectory):
     marks["arrived"] = time.perf_counter()
     marks["trajectory"] = trajectory
     adopt(trajectory)
-session._adopt_trajectory = arrived
+session.doc.set_trajectory = arrived
 
 class PaintEnd(QObject):
     '''The end of the phase plane's first paint after the new trajectory arrived: taken when control

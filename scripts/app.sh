@@ -3,7 +3,7 @@
 set -euo pipefail
 here="$(cd "$(dirname "${BASH_SOURCE[0]}")/.." && pwd)"
 bash "$here/scripts/bootstrap.sh"
-target="${1:-$here/sample_projects/convection_loop.orbitdesk}"
+target="${1:-$here/orbitdesk/samples/convection_loop.orbitdesk}"
 if [ -z "${DISPLAY:-}" ] && [ -z "${WAYLAND_DISPLAY:-}" ]; then
   echo "orbitdesk: no screen found (DISPLAY is not set)." >&2
   echo "  On a desktop, run this from a terminal inside your session." >&2

@@ -1,4 +1,4 @@
-"""Writes the sample projects in sample_projects/ from the data below, so they always load and parse.
+"""Writes the sample projects in orbitdesk/samples/ from the data below, so they always load and parse.
 
 Run from the repository root:  .venv/bin/python scripts/make_samples.py
 Each sample is a scenario of our own with a teaching walkthrough; published models keep their names.
@@ -17,7 +17,7 @@ from orbitdesk.engine.settings import RunSettings
 from orbitdesk.document.view_settings import missing_names, unknown_keys
 from orbitdesk.document.walkthrough import apply_step, record_step
 
-OUT = Path(__file__).resolve().parent.parent / "sample_projects"
+OUT = Path(__file__).resolve().parent.parent / "orbitdesk" / "samples"
 
 
 def sample(file, name, model, solver, views, notes, steps):
@@ -816,7 +816,7 @@ def bracket_sample():
              {"open_views": ["timeseries", "fit"], "views": {"timeseries": {"series": ["x"]}}}),
             ("Loading a record",
              "A record is a CSV file: a header line, the time first, then columns named after the model's "
-             "states, units in brackets (`t [s], x [mm]`). These two are in `sample_projects/data/`; "
+             "states, units in brackets (`t [s], x [mm]`). These two are in `orbitdesk/samples/data/`; "
              "**File > Import Data...** reads one into the project and keeps the values, the file name and "
              "a checksum, so the project still opens where the file is gone. A column named differently "
              "is matched to a state in a dialog; a bad cell is refused with its line and column.\n\n"

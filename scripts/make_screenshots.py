@@ -19,7 +19,7 @@ import time
 from pathlib import Path
 
 ROOT = Path(__file__).resolve().parent.parent
-SAMPLES = ROOT / "sample_projects"
+SAMPLES = ROOT / "orbitdesk" / "samples"
 OUT = ROOT / "docs" / "screenshots"
 SCREEN = (1600, 1000)
 WINDOW = (1440, 900)

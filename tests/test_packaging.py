@@ -189,7 +189,7 @@ def test_spec_compiles_and_its_paths_exist():
         assert name in paths, f"{name} not defined in the spec"
         assert Path(paths[name]).exists(), f"{name} -> {paths[name]} missing"
     assert Path(paths["ENTRY_SCRIPT"]) == ROOT / "orbitdesk" / "__main__.py"
-    assert Path(paths["SAMPLE_PROJECTS"]) == ROOT / "sample_projects"
+    assert Path(paths["SAMPLE_PROJECTS"]) == ROOT / "orbitdesk" / "samples"
     assert '"*.orbitdesk"' in source
     assert 'name="orbitdesk"' in source
     # The bundle ships the desktop integration files; they must all exist.
@@ -210,3 +210,59 @@ def test_desktop_icon_name_is_installed_by_the_script():
     assert f'app_id="{icon}"' in script
     assert f'mime_type="{mime_type_element().get("type")}"' in script
     assert "sizes=(" + " ".join(map(str, ICON_SIZES)) + ")" in script
+
+
+# -- the wheel ---------------------------------------------------------------
+
+LIST_SAMPLES = """
+import json, sys
+import orbitdesk
+from PySide6.QtWidgets import QApplication, QMenu
+from orbitdesk.app.help import fill_samples_menu
+app = QApplication([])
+menu = QMenu()
+fill_samples_menu(None, menu)
+print(json.dumps({"package": orbitdesk.__file__,
+                  "menu": [[a.text(), a.data()] for a in menu.actions()]}))
+"""
+
+
+@pytest.mark.slow
+def test_a_built_wheel_carries_the_samples_and_the_menu_lists_them_from_an_installed_copy(tmp_path):
+    import json
+    import os
+    import shutil
+    import subprocess
+    import sys
+    import zipfile
+
+    from orbitdesk.samples import sample_paths
+
+    # build from a copy, so that nothing is written into the source tree
+    src = tmp_path / "src"
+    shutil.copytree(ROOT / "orbitdesk", src / "orbitdesk", ignore=shutil.ignore_patterns("__pycache__", "*.pyc"))
+    for name in ("pyproject.toml", "README.md", "LICENSE"):
+        if (ROOT / name).exists():
+            shutil.copy2(ROOT / name, src / name)
+    dist = tmp_path / "dist"
+    subprocess.run([sys.executable, "-m", "pip", "wheel", "--no-deps", "-q", "-w", str(dist), str(src)],
+                   check=True, cwd=tmp_path, capture_output=True)
+    wheel = next(dist.glob("orbitdesk-*.whl"))
+    names = set(zipfile.ZipFile(wheel).namelist())
+    samples = sample_paths()
+    assert len(samples) >= 10
+    for path in samples:
+        assert f"orbitdesk/samples/{path.name}" in names
+    for record in (ROOT / "orbitdesk" / "samples" / "data").iterdir():
+        assert f"orbitdesk/samples/data/{record.name}" in names
+    site = tmp_path / "site"
+    subprocess.run([sys.executable, "-m", "pip", "install", "--no-deps", "--no-index", "-q", "--target", str(site),
+                    str(wheel)], check=True, cwd=tmp_path, capture_output=True)
+    env = {**os.environ, "PYTHONPATH": str(site), "QT_QPA_PLATFORM": "offscreen", "PYTHONDONTWRITEBYTECODE": "1"}
+    out = subprocess.run([sys.executable, "-c", LIST_SAMPLES], check=True, cwd=tmp_path, env=env,
+                         capture_output=True, text=True).stdout
+    shown = json.loads(out.strip().splitlines()[-1])
+    assert Path(shown["package"]).resolve().is_relative_to(site.resolve())
+    listed = [Path(data) for _text, data in shown["menu"]]
+    assert [p.name for p in listed] == [p.name for p in samples]
+    assert all(p.resolve().is_relative_to(site.resolve()) and p.is_file() for p in listed)

@@ -6,8 +6,9 @@ All starts run together on the ensemble engine (RK4 for flows, iteration for map
 forcing period, which makes these the stroboscopic basins). Orbits that leave ``escape`` or fail are
 labelled escape (-1). The others are grouped by where their samples lie (the range of every state over
 the samples, to ``tol`` of the grid's size): each group is one attractor, described as an equilibrium
-(the samples do not move), a cycle of period k of the map or the stroboscopic map, or an oscillation /
-no period (limit cycles of autonomous flows, chaos).
+(the samples do not move), a cycle of period k of the map or the stroboscopic map, or for an autonomous
+flow a limit cycle with its period and Floquet multipliers (``analyses.cycles.find_cycle``, shot from the
+last sample of one orbit on it); no period found means chaotic or quasi-periodic.
 """
 
 from __future__ import annotations
@@ -24,6 +25,7 @@ from orbitdesk.system.compiled_system import MAP
 
 ESCAPE = -1
 MAX_STARTS = 250_000
+OSCILLATION = "oscillation"
 
 
 @dataclass
@@ -78,8 +80,12 @@ def basins(system, x_name: str, xs, y_name: str, ys, settings: BasinSettings | N
     U[system.states.index(x_name)] = gx.ravel()
     U[system.states.index(y_name)] = gy.ravel()
     report = Reporter(progress, cancel)
-    samples, ok = _run(system, U, p, s, report)
-    labels, attractors = _group(system, samples, ok, s, span=max(np.ptp(xs), np.ptp(ys), 1e-12))
+    cycles_part = 0.1 if system.kind != MAP and s.period is None else 0.0
+    samples, ok = _run(system, U, p, s, report.part(0.0, 1.0 - cycles_part))
+    labels, attractors, tracks = _group(system, samples, ok, s, span=max(np.ptp(xs), np.ptp(ys), 1e-12))
+    if cycles_part:
+        same = _cycle_periods(system, p, attractors, tracks, report.part(1.0 - cycles_part, cycles_part), cancel)
+        labels, attractors = _merged(labels, attractors, same)
     report(1.0)
     return BasinResult(x_name, xs, y_name, ys, labels.reshape(ys.size, xs.size), attractors,
                        stroboscopic=system.kind != MAP and s.period is not None)
@@ -139,7 +145,7 @@ def _group(system, samples, ok, s: BasinSettings, span: float):
     members = np.flatnonzero(ok)
     keys = np.round(signature[members] / (4 * tol)).astype(np.int64)
     _, first, inverse = np.unique(keys, axis=0, return_index=True, return_inverse=True)
-    group_label = {}
+    group_label, tracks = {}, []
     for g, i in enumerate(first):
         sig = signature[members[i]]
         match = next((a for a, c in enumerate(centres) if np.max(np.abs(c - sig)) <= 8 * tol), None)
@@ -147,11 +153,66 @@ def _group(system, samples, ok, s: BasinSettings, span: float):
             match = len(centres)
             centres.append(sig)
             attractors.append(_describe(system, samples[:, members[i], :], tol, s, match))
+            tracks.append(samples[:, members[i], :])
         group_label[g] = match
     labels[members] = np.array([group_label[g] for g in np.ravel(inverse)], dtype=int)
     for a in attractors:
         a["share"] = float(np.mean(labels == a["label"]))
-    return labels, attractors
+    return labels, attractors, tracks
+
+
+def _cycle_periods(system, p, attractors, tracks, progress, cancel) -> dict[int, int]:
+    """Autonomous flows: the period, stability and largest non-trivial Floquet multiplier of each
+    oscillating attractor, by shooting from the last sample of its orbit (``cycles.find_cycle``). Returns
+    {label: label} of groups that lie on a cycle found for an earlier group (their samples covered other
+    parts of the same cycle): one attractor."""
+    from orbitdesk.analyses.cycles import CycleError, find_cycle
+
+    moving = [a for a in attractors if a["kind"] == OSCILLATION]
+    found, same = [], {}
+    for k, a in enumerate(moving):
+        last = tracks[a["label"]][:, -1]
+        twin = next((b for b, orbit in found if _on_orbit(last, orbit)), None)
+        if twin is not None:
+            same[a["label"]] = twin["label"]
+            continue
+        try:
+            cycle = find_cycle(system, p, guess=last, transient=200.0, cancel=cancel,
+                               progress=progress.part(k / len(moving), 1 / len(moving)))
+        except (CycleError, ValueError, np.linalg.LinAlgError):
+            a["kind"] = "oscillation without a period found (chaotic or quasi-periodic)"
+            continue
+        others = cycle.nontrivial_multipliers
+        a.update(kind="limit cycle" if cycle.stable else "cycle (unstable: the samples only pass near it)",
+                 period=float(cycle.period), multiplier=float(np.max(np.abs(others))) if others.size else 0.0,
+                 centre={name: float(v) for name, v in zip(system.states, np.mean(cycle.orbit[:, :-1], axis=1))})
+        found.append((a, cycle.orbit))
+    return same
+
+
+def _on_orbit(u, orbit) -> bool:
+    """Whether the state u lies on the sampled closed orbit (n, K), to a small part of its size."""
+    gaps = np.linalg.norm(np.diff(orbit, axis=1), axis=0)
+    size = float(np.max(np.ptp(orbit, axis=1)))
+    distance = float(np.min(np.linalg.norm(orbit - np.asarray(u)[:, None], axis=0)))
+    return distance <= float(np.max(gaps, initial=0.0)) + 1e-3 * size
+
+
+def _merged(labels, attractors, same: dict[int, int]):
+    """Labels and attractors with the groups in ``same`` folded into their twins, numbered 0, 1, ... again."""
+    if not same:
+        return labels, attractors
+    labels = labels.copy()
+    for a, b in same.items():
+        labels[labels == a] = b
+    kept = [a for a in attractors if a["label"] not in same]
+    number = {a["label"]: k for k, a in enumerate(kept)}
+    moved = labels >= 0
+    labels[moved] = [number[v] for v in labels[moved]]
+    for a in kept:
+        a["label"] = number[a["label"]]
+        a["share"] = float(np.mean(labels == a["label"]))
+    return labels, kept
 
 
 def _describe(system, track, tol, s: BasinSettings, label: int) -> dict:
@@ -165,7 +226,7 @@ def _describe(system, track, tol, s: BasinSettings, label: int) -> dict:
         period = int(minimal_periods(track[0:1], track.shape[1] // 2, tol=1e-5)[0])
         kind = f"cycle of period {period}" if period > 0 else "no period (chaotic or quasi-periodic)"
     else:
-        kind, period = "oscillation (a limit cycle or more)", 0
+        kind, period = OSCILLATION, 0  # autonomous flows: settled by _cycle_periods
     return {"label": label, "kind": kind, "period": period, "centre": centre, "spread": spread}
 
 

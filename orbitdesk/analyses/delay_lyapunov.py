@@ -1,7 +1,7 @@
 """The largest Lyapunov exponent of a delay model from two nearby histories.
 
 The state of a delay equation is the whole solution segment over the last tau_max (Farmer, Physica
-4D (1982) 366-393, who measured the exponents of the Mackey-Glass equation this way). A reference
+4D (1982) 366-393, reference from memory, who measured the exponents of the Mackey-Glass equation this way). A reference
 solution and a companion that starts ``d0`` away are integrated side by side (``DelayModel.pair``: one
 step control, so the difference of their dense outputs is a smooth piecewise polynomial too); every
 renormalisation interval the separation is measured as the root-mean-square distance of the two

@@ -10,7 +10,8 @@ of them have negative real part.
 The rightmost roots are computed as eigenvalues of a spectral discretisation of the infinitesimal
 generator of the solution semigroup: Chebyshev collocation on [-tau_max, 0] (Breda, Maset and
 Vermiglio, "Pseudospectral differencing methods for characteristic roots of delay differential
-equations", SIAM J. Sci. Comput. 26 (2005) 1305-1324), with the Chebyshev differentiation matrix
+equations", SIAM J. Sci. Comput. 27 (2005) 482-495; volume and pages from memory), with the Chebyshev
+differentiation matrix
 of Trefethen, Spectral Methods in MATLAB (SIAM 2000), program cheb. Two discretisations (N and
 N + 16 nodes) are compared and only the roots on which they agree are kept (the far-left
 eigenvalues of the matrix are not roots). Each root's vector is the null vector of the

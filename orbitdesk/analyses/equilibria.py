@@ -1,8 +1,9 @@
 """Equilibria of flows (f(u) = 0) and fixed points of maps (f(u) = u), with their linearisation.
 
-Two searches are combined: an exact one (sympy, in a forked child process under a time limit,
-because a symbolic solve cannot be interrupted in-thread) and a multi-start Newton search from
-quasi-random starts in a box. Every point is refined with Newton steps before points are compared,
+Two searches are combined: a multi-start Newton search from quasi-random starts in a box, on the
+model's generated kernels (f and its sparse Jacobian), and beside it, for models of up to
+``EXACT_MAX_STATES`` states, an exact one (sympy, in a forked child process under a time limit,
+because a symbolic solve cannot be interrupted in-thread) whose points join at the end. Every point is refined with Newton steps before points are compared,
 so that genuinely distinct nearby equilibria stay distinct.
 """
 
@@ -11,6 +12,7 @@ from __future__ import annotations
 import json
 import math
 import multiprocessing
+import time
 from dataclasses import dataclass, field
 from fractions import Fraction
 
@@ -21,7 +23,7 @@ from scipy.stats import qmc
 
 from orbitdesk.language.angles import wrap_equilibria
 from orbitdesk.engine.progress import CancelToken, Cancelled, Reporter
-from orbitdesk.system.compiled_system import MAP, CompiledSystem, UndefinedValue
+from orbitdesk.system.compiled_system import MAP, CompiledSystem
 
 HYPERBOLIC_RTOL = 1e-9  # |Re lambda| (flows) or ||mu| - 1| (maps) below this * max(1, rho) counts as zero
 NEAR_UNIT_TOL = 1e-6  # maps: warn about a multiplier this close to +1, -1 or the unit circle
@@ -230,47 +232,72 @@ def _exact_child(conn, eqs, syms):
         conn.close()
 
 
+EXACT_MAX_STATES = 10  # the exact solve is tried up to this many states (beyond, sympy rarely finishes)
+
+
+class _ExactSolve:
+    """The exact solve in a forked child, started at once; ``answer`` collects it (or gives up)."""
+
+    def __init__(self, system: CompiledSystem, p):
+        self.notes: list[str] = []
+        self.child = None
+        if "fork" not in multiprocessing.get_all_start_methods():
+            self.notes.append("the exact solve needs the 'fork' start method, not available here; Newton search only")
+            return
+        eqs, syms = _exact_equations(system, p)
+        ctx = multiprocessing.get_context("fork")
+        self.receive, send = ctx.Pipe(duplex=False)
+        self.child = ctx.Process(target=_exact_child, args=(send, eqs, syms), daemon=True)
+        self.child.start()
+        send.close()
+        self.started = time.monotonic()
+
+    def answer(self, timeout: float, report=None) -> tuple[list, list[str]]:
+        """Real finite solutions if the child answers within ``timeout`` seconds of its start."""
+        if self.child is None:
+            return [], self.notes
+        notes, answer = self.notes, None
+        child, receive = self.child, self.receive
+        try:
+            while True:
+                waited = time.monotonic() - self.started
+                if waited >= timeout:
+                    break
+                if receive.poll(min(0.05, timeout - waited)):
+                    try:
+                        answer = json.loads(receive.recv_bytes().decode())
+                    except (EOFError, OSError, ValueError):
+                        answer = {"error": "the exact solver stopped without an answer"}
+                    break
+                if not child.is_alive() and not receive.poll(0):
+                    answer = {"error": "the exact solver stopped without an answer"}
+                    break
+                if report is not None:
+                    report(min((time.monotonic() - self.started) / timeout, 1.0))
+        finally:
+            self.close()
+        if answer is None:
+            notes.append(f"the exact solve did not finish within {timeout:g} s; Newton search only")
+            return [], notes
+        if "error" in answer:
+            notes.append(f"no exact solution ({answer['error']}); Newton search only")
+            return [], notes
+        if answer.get("continuum"):
+            notes.append("the equilibria include a curve or surface (a solution with a free coordinate)")
+        return [np.array(s, dtype=float) for s in answer["solutions"]], notes
+
+    def close(self) -> None:
+        if self.child is not None:
+            if self.child.is_alive():
+                self.child.kill()
+            self.child.join(1.0)
+            self.receive.close()
+            self.child = None
+
+
 def exact_solutions(system: CompiledSystem, p, timeout: float = 3.0, report=None) -> tuple[list, list[str]]:
     """Real finite solutions from sympy, computed in a forked child killed after ``timeout`` seconds."""
-    notes: list[str] = []
-    if "fork" not in multiprocessing.get_all_start_methods():
-        return [], ["the exact solve needs the 'fork' start method, not available here; Newton search only"]
-    eqs, syms = _exact_equations(system, p)
-    ctx = multiprocessing.get_context("fork")
-    receive, send = ctx.Pipe(duplex=False)
-    child = ctx.Process(target=_exact_child, args=(send, eqs, syms), daemon=True)
-    child.start()
-    send.close()
-    waited, answer = 0.0, None
-    try:
-        while waited < timeout:
-            wait = min(0.05, timeout - waited)
-            if receive.poll(wait):
-                try:
-                    answer = json.loads(receive.recv_bytes().decode())
-                except (EOFError, OSError, ValueError):
-                    answer = {"error": "the exact solver stopped without an answer"}
-                break
-            if not child.is_alive() and not receive.poll(0):
-                answer = {"error": "the exact solver stopped without an answer"}
-                break
-            waited += wait
-            if report is not None:
-                report(min(waited / timeout, 1.0))
-    finally:
-        if child.is_alive():
-            child.kill()
-        child.join(1.0)
-        receive.close()
-    if answer is None:
-        notes.append(f"the exact solve did not finish within {timeout:g} s; Newton search only")
-        return [], notes
-    if "error" in answer:
-        notes.append(f"no exact solution ({answer['error']}); Newton search only")
-        return [], notes
-    if answer.get("continuum"):
-        notes.append("the equilibria include a curve or surface (a solution with a free coordinate)")
-    return [np.array(s, dtype=float) for s in answer["solutions"]], notes
+    return _ExactSolve(system, p).answer(timeout, report)
 
 
 # ---------------------------------------------------------------- Newton search
@@ -291,22 +318,31 @@ class _Undefined(Exception):
 
 
 def _residual_functions(system: CompiledSystem, p):
+    """G(x) = f(x) (maps: f(x) - x) and its Jacobian from the model's kernels (engine/compiled.py:
+    generated code, the sparse Jacobian); _Undefined where a value is not a finite number."""
+    from orbitdesk.engine.compiled import python_engine
+
+    kernels = python_engine(system).kernels
     n = system.n_states
     eye = np.eye(n)
     is_map = system.kind == MAP
+    p = np.ascontiguousarray(p, dtype=float)
+    if p.size == 0:
+        p = np.zeros(1)
 
     def G(x):
-        try:
-            value = system.rhs(0.0, x, p)
-        except (UndefinedValue, OverflowError):
-            raise _Undefined from None
+        x = np.ascontiguousarray(x, dtype=float)
+        value = np.empty(n)
+        kernels.model(0, 0.0, x, p, value)
+        if not np.all(np.isfinite(value)):
+            raise _Undefined
         return value - x if is_map else value
 
     def DG(x):
-        try:
-            J = system.jac(0.0, x, p)
-        except (UndefinedValue, OverflowError):
-            raise _Undefined from None
+        J = np.zeros((n, n))
+        kernels.jac(0.0, np.ascontiguousarray(x, dtype=float), p, J)
+        if not np.all(np.isfinite(J)):
+            raise _Undefined
         return J - eye if is_map else J
 
     return G, DG
@@ -389,13 +425,21 @@ def find_equilibria(system: CompiledSystem, p=None, box: dict | None = None, sta
     n = system.n_states
     G, DG = _residual_functions(system, p)
 
-    exact_points: list[np.ndarray] = []
-    if exact:
-        exact_points, exact_notes = exact_solutions(system, p, exact_timeout, report.part(0.0, 0.3))
-        notes += exact_notes
-    report(0.3)
+    solve = None
+    if exact and n > EXACT_MAX_STATES:
+        notes.append(f"the exact solve is tried for up to {EXACT_MAX_STATES} states; Newton search only")
+    elif exact:
+        solve = _ExactSolve(system, p)  # runs beside the Newton search: the numeric answer never waits for it
+    try:
+        return _search(system, p, G, DG, box, starts, u0, solve, exact_timeout, report, notes)
+    finally:
+        if solve is not None:
+            solve.close()
 
-    full_box = default_box(system, p, u0, exact_points)
+
+def _search(system, p, G, DG, box, starts, u0, solve, exact_timeout, report, notes) -> "Equilibria":
+    n = system.n_states
+    full_box = default_box(system, p, u0)
     for name, (lo, hi) in (box or {}).items():
         if name not in system.states:
             raise KeyError(f"unknown state '{name}' in the search box")
@@ -424,16 +468,7 @@ def find_equilibria(system: CompiledSystem, p=None, box: dict | None = None, sta
                 return
         found.append([x, step, {method}])
 
-    for x in exact_points:
-        try:
-            refined = _refine(G, DG, x, max_steps=5)
-        except _Undefined:
-            refined = None
-        # keep the exact coordinates; the refinement only measures their uncertainty
-        step = refined[1] if refined is not None and math.isfinite(refined[1]) else 0.0
-        add(np.array(x, dtype=float), min(step, 1e-12 * max(1.0, float(np.linalg.norm(x)))), EXACT)
-
-    newton_report = report.part(0.3, 0.7)
+    newton_report = report.part(0.0, 0.7)
     for k, x0 in enumerate(candidates):
         newton_report(k / len(candidates))
         try:
@@ -444,12 +479,29 @@ def find_equilibria(system: CompiledSystem, p=None, box: dict | None = None, sta
             continue
         if _accept(refined, f_scale) and _inside(refined[0], lows, highs):
             add(refined[0], refined[1], NEWTON)
+    report(0.7)
+
+    if solve is not None:  # the exact points, when sympy answered in time; the box widened to hold them
+        exact_points, exact_notes = solve.answer(exact_timeout, report.part(0.7, 0.3))
+        notes += exact_notes
+        for x in exact_points:
+            try:
+                refined = _refine(G, DG, x, max_steps=5)
+            except _Undefined:
+                refined = None
+            # keep the exact coordinates; the refinement only measures their uncertainty
+            step = refined[1] if refined is not None and math.isfinite(refined[1]) else 0.0
+            add(np.array(x, dtype=float), min(step, 1e-12 * max(1.0, float(np.linalg.norm(x)))), EXACT)
+        if exact_points:
+            wider = default_box(system, p, u0, exact_points)
+            full_box = {name: (min(lo, wider[name][0]), max(hi, wider[name][1])) if name not in (box or {})
+                        else (lo, hi) for name, (lo, hi) in full_box.items()}
     report(1.0)
 
     results = []
     for x, _step, methods in sorted(found, key=lambda e: tuple(np.round(e[0], 12))):
         method = BOTH if len(methods) == 2 else next(iter(methods))
-        eq = _equilibrium(system, p, x, method)
+        eq = _equilibrium(system, x, method, DG)
         if eq is not None:
             results.append(eq)
     results = wrap_equilibria(system, _thin_continuum(results, notes))  # an angle's turns are one point
@@ -491,14 +543,12 @@ def _safe(G, x):
         return None
 
 
-def _equilibrium(system, p, x, method) -> Equilibrium | None:
-    try:
-        J = system.jac(0.0, x, p)
-    except UndefinedValue:
-        return None
-    if not np.all(np.isfinite(J)):
-        return None
+def _equilibrium(system, x, method, DG) -> Equilibrium | None:
     is_map = system.kind == MAP
+    try:
+        J = DG(x) + (np.eye(x.size) if is_map else 0.0)
+    except _Undefined:
+        return None
     J = zero_round_off(J)
     kind, stable, ns, nu, nc, warnings, values, vectors = classify(J, is_map)
     if system.nonsmooth:

@@ -264,10 +264,18 @@ def plane_section(system: CompiledSystem, p=None, u0=None, coordinate: str = "",
 def _delay_plane_section(system, p, u, coordinate, value, direction, count, transient, settings, cancel, t_max):
     """Plane sections of a delay model: runs from the start, each twice as long as the last, until
     ``count`` crossings after the transient are found (the direction of each from the event that found it)."""
-    if coordinate not in system.states:
-        raise ValueError(f"for a model with delays the section's plane is set on a state ({', '.join(system.states)})")
-    normal = np.eye(system.n_states)[system.states.index(coordinate)]
-    events = [Event.on_plane(normal, value, +1), Event.on_plane(normal, value, -1)]
+    from orbitdesk.engine.delay import delayed_quantity, simulate_delay
+
+    attach = None
+    if coordinate in system.states:
+        normal = np.eye(system.n_states)[system.states.index(coordinate)]
+        events = [Event.on_plane(normal, value, +1), Event.on_plane(normal, value, -1)]
+    elif coordinate in system.derived_names:  # its delayed values are read off the run itself
+        g, attach = delayed_quantity(system, coordinate, p)
+        events = [Event(lambda t, u: g(t, u) - value, +1), Event(lambda t, u: g(t, u) - value, -1)]
+    else:
+        known = ", ".join([*system.states, *system.derived_names])
+        raise ValueError(f"unknown coordinate '{coordinate}' (states and derived quantities: {known})")
     t0 = float(settings.t_start)
     t_begin = t0 + transient
     span = abs(settings.t_end - settings.t_start) or 100.0
@@ -276,8 +284,8 @@ def _delay_plane_section(system, p, u, coordinate, value, direction, count, tran
     length = span
     while True:
         t_end = min(t_begin + length, t_limit)
-        run = simulate(system, replace(settings, t_start=t0, t_end=t_end, samples=2, transient=0.0), u, p,
-                       events=events, cancel=cancel)
+        run = simulate_delay(system, replace(settings, t_start=t0, t_end=t_end, samples=2, transient=0.0), u, p,
+                             events, Reporter(None, cancel), attach)
         found = sorted((float(te), sign, ue) for sign, k in ((1.0, 0), (-1.0, 1))
                        for te, ue in zip(run.event_times[k], run.event_states[k].T) if te >= t_begin)
         keep, touch = _select([f[0] for f in found], [f[1] for f in found], direction, tolerance)

@@ -183,6 +183,7 @@ class MemberSamples:
 class MemberRun:
     status: np.ndarray  # (M,) status words
     time: np.ndarray  # (M,) where each member ended (a stopped member: when it stopped)
+    states: np.ndarray | None = None  # (n, M) the state there (period maps: has a flow's orbit settled?)
 
 
 def _observed(system, name, t, states, P):
@@ -275,7 +276,7 @@ def run_members(system, P, U0, settings: SweepSettings, cancel=None, progress=No
     status = words(out.codes)
     exponents = _exponents(out, status) if s.lyapunov else None
     report(1.0)
-    return MemberSamples(values, times, states), exponents, MemberRun(status, out.t)
+    return MemberSamples(values, times, states), exponents, MemberRun(status, out.t, out.states)
 
 
 def sweep(system, parameter: str, values, settings: SweepSettings | None = None, u0=None, p=None,

@@ -2,7 +2,7 @@
 
 ``data_store(session)`` returns the store, created on first use. Data sets live in
 ``session.project.datasets`` (saved with the project); adding, removing and editing them, applying
-fitted values and keeping them as a named parameter set are undoable commands on the session's stack.
+fitted values and keeping them as a named parameter set are undoable commands of the live document.
 The latest fit result and the residuals on screen are not saved.
 """
 
@@ -11,39 +11,8 @@ from __future__ import annotations
 import copy
 
 from PySide6.QtCore import QObject, Signal
-from PySide6.QtGui import QUndoCommand
 
 from orbitdesk.document.datasets import DataSet, unique_name
-
-
-class _Replace(QUndoCommand):
-    """Swap the list of data sets (or the kept parameter sets) for another."""
-
-    def __init__(self, store: "DataStore", label: str, attr: str, old, new):
-        super().__init__(label)
-        self.store, self.attr, self.old, self.new = store, attr, old, new
-
-    def redo(self):
-        self.store._set(self.attr, self.new)
-
-    def undo(self):
-        self.store._set(self.attr, self.old)
-
-
-class _ApplyValues(QUndoCommand):
-    """Put fitted values into the model's parameters and initial values (one undo step)."""
-
-    def __init__(self, session, label: str, params: dict, initial: dict):
-        super().__init__(label)
-        self.s = session
-        self.old = (dict(session.params), dict(session.initial))
-        self.new = ({**session.params, **params}, {**session.initial, **initial})
-
-    def redo(self):
-        self.s._apply_values(*self.new)
-
-    def undo(self):
-        self.s._apply_values(*self.old)
 
 
 class DataStore(QObject):
@@ -59,6 +28,7 @@ class DataStore(QObject):
         session.projectLoaded.connect(self._on_project_loaded)
         session.systemChanged.connect(lambda _s: self.clear_residuals())
         session.valuesChanged.connect(self.clear_residuals)
+        session.partChanged.connect(self._on_part_changed)
 
     # ------------------------------------------------------------ reading
     @property
@@ -96,16 +66,16 @@ class DataStore(QObject):
         return name
 
     def apply_values(self, params: dict, initial: dict, label: str = "Apply fitted values") -> None:
-        self.session.undo_stack.push(_ApplyValues(self.session, label, params, initial))
+        self.session.set_values(params, initial, label)
 
-    def _push(self, label, attr, new) -> None:
-        old = copy.copy(getattr(self.session.project, attr))
-        self.session.undo_stack.push(_Replace(self, label, attr, old, new))
+    def _push(self, label, part, new) -> None:
+        self.session.replace_part(part, new, label)
 
-    def _set(self, attr, value) -> None:
-        setattr(self.session.project, attr, copy.copy(value))
-        if attr == "datasets":
-            names = {d.name for d in value}
+    def _on_part_changed(self, part: str) -> None:
+        if part not in ("datasets", "parameter_sets"):
+            return
+        if part == "datasets":
+            names = {d.name for d in self.session.project.datasets}
             self.residuals = {k: v for k, v in self.residuals.items() if k in names}
         self.changed.emit()
 

@@ -1,5 +1,5 @@
-"""File > Export: the model as LaTeX, a standalone Python script reproducing the run, and an HTML report
-with pictures of the open views. The texts come from the core (export_latex, export_script, report);
+"""File > Export: the model as LaTeX, the model text with the values now set, a standalone Python script
+reproducing the run, and an HTML report with pictures of the open views. The texts come from the core (export_latex, export_script, report);
 this module gathers what is on screen and writes the files."""
 
 from __future__ import annotations
@@ -47,6 +47,14 @@ def latex_text(session, standalone: bool = True) -> str:
     params = {n: v for n, v in session.params.items() if n in parsed.parameters}
     initial = {n: v for n, v in session.initial.items() if n in parsed.states}
     return model_latex(parsed, params, initial, standalone=standalone, title=session.name)
+
+
+def model_text(session) -> str:
+    """The model text with the values now set (sliders, spin boxes) written into its lines."""
+    from orbitdesk.language.written_values import with_values
+
+    parsed = _checked_model(session)
+    return with_values(session.text, parsed, session.params, session.initial)
 
 
 def script_text(session, csv_name: str = "run.csv") -> str:
@@ -97,14 +105,14 @@ def view_results(window) -> dict:
     out = {}
     for module, key in (("lyapunov", "lyapunov"), ("sweep", "sweep"), ("sections", "section")):
         view = window.views.get(module)
-        result = getattr(view, "result", None) if view is not None else None
+        result = view.result if view is not None else None
         if result is not None:
             out[key] = result
     return out
 
 
 def _caption(view) -> str:
-    title = getattr(view, "title", "View")
+    title = view.title
     try:
         d = view.view_settings()
     except Exception:  # noqa: BLE001
@@ -115,11 +123,9 @@ def _caption(view) -> str:
 
 
 def _view_equilibria(window, system):
-    view = window.views.get("equilibria")
-    if view is None or getattr(view, "system", None) is not system:
-        return None
-    found = getattr(view, "equilibria", None)
-    return list(found) if found else None
+    """The equilibria the live document holds for this system and the present values (None: none found)."""
+    s = window.session
+    return list(s.equilibria) if s.system is system and s.equilibria else None
 
 
 def report_html(window, equilibria=None) -> str:
@@ -150,6 +156,10 @@ def _write(path, text: str, executable: bool = False) -> Path:
 
 def export_latex(window, path, standalone: bool = True) -> Path:
     return _write(path, latex_text(window.session, standalone))
+
+
+def export_model_text(window, path) -> Path:
+    return _write(path, model_text(window.session))
 
 
 def export_script(window, path) -> Path:
@@ -193,7 +203,7 @@ def export_report(window, path, on_done=None, search_equilibria: bool = True) ->
         return find_equilibria(system, p, u0=u0, exact_timeout=2.0, cancel=cancel, progress=report)
 
     window.statusBar().showMessage("Looking for equilibria for the report…")
-    session.jobs.submit("export_report", job, finish, on_error=lambda _msg: finish(None))
+    session.run_job("export_report", job, finish, on_error=lambda _msg: finish(None))
 
 
 # ---------------------------------------------------------------- dialogs and menu
@@ -222,26 +232,34 @@ def _report(window, ok: bool, what: str, path=None, message: str = "") -> bool:
     return ok
 
 
-def export_latex_dialog(window) -> bool:
-    path, chosen = _ask_path(window, "Export Model as LaTeX", ".tex", f"{LATEX_DOCUMENT};;{LATEX_SNIPPET}")
+def _export_dialog(window, title: str, suffix: str, filters: str, export, failed: str, done: str) -> bool:
+    """Ask where, write with ``export(path, chosen_filter)``, say what happened (status bar or a warning)."""
+    path, chosen = _ask_path(window, title, suffix, filters)
     if path is None:
         return False
     try:
-        export_latex(window, path, standalone=chosen != LATEX_SNIPPET)
+        export(path, chosen)
     except (ExportError, ValueError) as e:
-        return _report(window, False, "the model as LaTeX", message=str(e))
-    return _report(window, True, "the model as LaTeX", path)
+        return _report(window, False, failed, message=str(e))
+    return _report(window, True, done, path)
+
+
+def export_latex_dialog(window) -> bool:
+    return _export_dialog(window, "Export Model as LaTeX", ".tex", f"{LATEX_DOCUMENT};;{LATEX_SNIPPET}",
+                          lambda path, chosen: export_latex(window, path, standalone=chosen != LATEX_SNIPPET),
+                          "the model as LaTeX", "the model as LaTeX")
+
+
+def export_model_text_dialog(window) -> bool:
+    return _export_dialog(window, "Export Model with These Values", ".txt", "Model text (*.txt)",
+                          lambda path, _chosen: export_model_text(window, path),
+                          "the model with these values", "the model with these values")
 
 
 def export_script_dialog(window) -> bool:
-    path, _ = _ask_path(window, "Export Standalone Python Script", ".py", "Python script (*.py)")
-    if path is None:
-        return False
-    try:
-        export_script(window, path)
-    except ExportError as e:
-        return _report(window, False, "the script", message=str(e))
-    return _report(window, True, "a script that reproduces the run", path)
+    return _export_dialog(window, "Export Standalone Python Script", ".py", "Python script (*.py)",
+                          lambda path, _chosen: export_script(window, path),
+                          "the script", "a script that reproduces the run")
 
 
 def export_report_dialog(window) -> bool:
@@ -260,6 +278,9 @@ def install(window) -> None:
     entries = (
         ("Model as &LaTeX…", export_latex_dialog,
          "The equations, parameters and initial values as LaTeX (a document, or the equations alone)"),
+        ("Model with These &Values…", export_model_text_dialog,
+         "The model text with the values now set written into its lines: a model file to share or to run "
+         "on the command line"),
         ("Standalone &Python Script…", export_script_dialog,
          "A Python script (numpy and scipy only) that reproduces the current run and writes it as CSV"),
         ("HTML &Report…", export_report_dialog,
@@ -277,4 +298,5 @@ def install(window) -> None:
     window.file_menu.insertMenu(window.quit_action, menu)
     window.file_menu.insertSeparator(window.quit_action)
     window.export_menu = menu
-    window.export_latex_action, window.export_script_action, window.export_report_action = actions
+    (window.export_latex_action, window.export_model_text_action, window.export_script_action,
+     window.export_report_action) = actions

@@ -12,10 +12,9 @@ from PySide6.QtWidgets import (QHBoxLayout, QLabel, QLineEdit, QListWidget, QLis
 
 from orbitdesk.document import project as core_project
 from orbitdesk.document.project import ProjectError
+from orbitdesk.samples import SAMPLES_DIR, sample_paths  # noqa: F401 (SAMPLES_DIR: where the menu reads)
 
 LANGUAGE_FILE = Path(__file__).resolve().parent.parent / "help" / "language.md"
-SAMPLES_DIR = Path(__file__).resolve().parent.parent.parent / "sample_projects"
-SAMPLE_SUFFIX = ".orbitdesk"
 REFERENCE_CSS = ("code { font-family: monospace; } pre { font-family: monospace; } "
                  "td, th { padding: 3px 10px 3px 0; } th { text-align: left; }")
 
@@ -151,14 +150,6 @@ class LanguageReference(QWidget):
 
 
 # ---------------------------------------------------------------- sample projects
-
-def sample_paths(directory: Path | None = None) -> list[Path]:
-    directory = SAMPLES_DIR if directory is None else Path(directory)
-    try:
-        return sorted(p for p in directory.iterdir() if p.suffix == SAMPLE_SUFFIX and p.is_file())
-    except OSError:
-        return []
-
 
 def sample_label(path: Path) -> tuple[str, str]:
     """(menu text, tooltip) of a sample project: its name and the first sentence of its notes."""

@@ -549,7 +549,7 @@ class MainWindow(QMainWindow):
             log.exception("could not create the view %s", name)
             dock.setWidget(_Placeholder(f"This view could not be opened: {exc}"))
             return None
-        dock.setWindowTitle(getattr(cls, "title", views_pkg.module_title(name)))
+        dock.setWindowTitle(cls.title)
         dock.toggleViewAction().setText(dock.windowTitle())
         dock.setWidget(view)
         self.views[name] = view
@@ -605,7 +605,7 @@ class MainWindow(QMainWindow):
         kept = {}
         for view in self.views.values():
             try:
-                d = view.kept_result() if hasattr(view, "kept_result") else None
+                d = view.kept_result()
             except Exception:  # noqa: BLE001 - a result that cannot be kept is left out
                 log.exception("view %s could not keep its result", view)
                 d = None
@@ -659,7 +659,7 @@ class MainWindow(QMainWindow):
         if busy:
             self.progress.setValue(0)
             self.progress.show()
-            if self.session.jobs.running("run"):
+            if self.session.job_running("run"):
                 self.run_status.setText("Running…")
         else:
             self.progress.hide()

@@ -1,8 +1,9 @@
 """Computed results kept in the project file, so that reopening a project shows them again.
 
-``pack`` turns a core result dataclass (fields of numbers, text, lists and numpy arrays) into plain JSON
-data (NaN and infinities as null); ``unpack`` rebuilds it, refusing anything that does not fit the
-dataclass. Nothing read back is ever run: only numbers, text and lists are accepted.
+``pack`` turns a core result dataclass (fields of numbers, text, lists, numpy arrays and lists of small
+records such as the attractors of a basin map) into plain JSON data (NaN and infinities as null);
+``unpack`` rebuilds it, refusing anything that does not fit the dataclass. Nothing read back is ever run:
+only numbers, text, lists and records of them (two levels deep at most) are accepted.
 """
 
 from __future__ import annotations
@@ -50,6 +51,9 @@ def pack(result) -> dict | None:
             out[f.name] = {"float": _plain(value)}
         elif isinstance(value, (list, tuple)) and all(isinstance(v, (str, int, float)) for v in value):
             out[f.name] = {"list": _plain(list(value))}
+        elif isinstance(value, (list, tuple)) and all(_is_record(v) for v in value):
+            out[f.name] = {"records": [_plain_record(v) for v in value]}
+            numbers += sum(len(v) for v in value)
         else:
             return None
         if numbers > MAX_NUMBERS:
@@ -80,6 +84,11 @@ def unpack(cls, data):
                 values[f.name] = math.nan if v["float"] is None else float(v["float"])
             elif isinstance(v, dict) and "list" in v:
                 values[f.name] = list(v["list"])
+            elif isinstance(v, dict) and "records" in v:
+                records = v["records"]
+                if not isinstance(records, list) or not all(_is_record(r) for r in records):
+                    return None
+                values[f.name] = [dict(r) for r in records]
             elif v is None or isinstance(v, (bool, int, str)):
                 values[f.name] = v
             else:
@@ -87,6 +96,21 @@ def unpack(cls, data):
         return cls(**values)
     except (TypeError, ValueError):
         return None
+
+
+_SCALARS = (str, int, float, bool, type(None))
+
+
+def _is_record(value, depth: int = 0) -> bool:
+    """A dict with text keys whose values are numbers, text, None, or (one level down) such a dict."""
+    return isinstance(value, dict) and len(value) <= 1000 and all(
+        isinstance(k, str) and (isinstance(v, _SCALARS) or (depth == 0 and _is_record(v, 1)))
+        for k, v in value.items())
+
+
+def _plain_record(record: dict) -> dict:
+    """A record with its non-finite numbers as null (JSON has none)."""
+    return {k: _plain_record(v) if isinstance(v, dict) else _plain(v) for k, v in record.items()}
 
 
 def _nan_for_none(v):

@@ -8,8 +8,8 @@ from orbitdesk.analyses.basins import BasinSettings, basins
 from orbitdesk.engine.progress import Cancelled
 from orbitdesk.system.compiled_system import MAP
 
-from orbitdesk.cli.common import (CommandError, add_value_options, load_system, parse_axis, parse_number, parse_positive,
-                     print_json, read_source, stderr_progress, values_for, write_csv)
+from orbitdesk.cli.common import (add_outputs, CommandError, open_model, parse_axis, parse_number,
+                                  parse_positive, print_json, stderr_progress, write_csv)
 
 
 def register(sub):
@@ -23,16 +23,12 @@ def register(sub):
     parser.add_argument("--strobe", metavar="T", help="forcing period: look once per period (stroboscopic basins)")
     parser.add_argument("--dt", metavar="H", help="integration step of flows")
     parser.add_argument("--escape", metavar="R", help="|state| beyond this counts as escape (default 1000)")
-    add_value_options(parser)
-    parser.add_argument("--csv", metavar="FILE", help="write one row per start: x, y, attractor (-1 escape)")
-    parser.add_argument("--json", action="store_true", help="print the basins as JSON (the default)")
-    parser.set_defaults(handler=run)
+    add_outputs(parser, run, "print the basins as JSON (the default)",
+                csv_help="write one row per start: x, y, attractor (-1 escape)")
 
 
 def run(args) -> int:
-    source = read_source(args.path)
-    system = load_system(source)
-    p, u0 = values_for(system, source, args.set, args.init)
+    source, system, p, u0 = open_model(args)
     x_name, xs = parse_axis(args.x, "--x", system.states, "state")
     y_name, ys = parse_axis(args.y, "--y", system.states, "state")
     settings = BasinSettings()

@@ -6,7 +6,7 @@ import json
 import math
 import re
 import sys
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
@@ -22,11 +22,21 @@ class CommandError(Exception):
 
 @dataclass
 class Source:
-    """What a PATH holds: model text, and the project's stored values if it is a project."""
+    """What a PATH holds: model text, and the project's stored values if it is a project; ``doc`` is the
+    live document over it (the app's, headless) that the commands read values and settings from."""
 
     path: Path
     text: str
     project: object | None = None  # core.project.Project when PATH is a project
+    doc: object = field(default=None, repr=False)
+
+    def __post_init__(self):
+        if self.doc is None:
+            from orbitdesk.document.live import LiveDocument
+            from orbitdesk.document.project import Project
+
+            project = self.project if self.project is not None else Project(name=self.path.stem, model=self.text)
+            self.doc = LiveDocument.from_project(project)
 
 
 def read_source(path_text: str) -> Source:
@@ -52,19 +62,26 @@ def read_source(path_text: str) -> Source:
 def load_system(source: Source, noise: bool = False):
     """Compile the source's model; errors become a CommandError listing the diagnostics. A model with
     noise, for a command that assumes determinism (``noise`` False), gets a note on stderr."""
-    from orbitdesk.language.model import parse_model
-    from orbitdesk.system.compiled_system import compile_model
-
-    parsed = parse_model(source.text)
+    parsed = source.doc.parsed
     if not parsed.ok:
         lines = [f"{source.path}:{d.format()}" for d in parsed.errors]
         raise CommandError("the model has errors:\n" + "\n".join(lines), EXIT_ERRORS)
-    system = compile_model(parsed)
+    system = source.doc.compile_now()
     if system.stochastic and not noise:
         from orbitdesk.language.noise import NOISE_FREE_NOTE
 
         print(f"note: {NOISE_FREE_NOTE}", file=sys.stderr)
     return system
+
+
+def open_model(args, noise: bool = False):
+    """What most commands start with: the PATH's live document, its compiled system and the parameter and
+    initial vectors (project values, then --set/--init). Returns (source, system, p, u0). ``noise``: the
+    command runs a model with noise as such (no note that it uses the noise-free part)."""
+    source = read_source(args.path)
+    system = load_system(source, noise)
+    p, u0 = values_for(system, source, args.set, args.init)
+    return source, system, p, u0
 
 
 _ASSIGN = re.compile(r"^\s*([A-Za-z_][A-Za-z0-9_]*'*)\s*=\s*(.+?)\s*$")
@@ -107,19 +124,22 @@ def parse_positive(text: str, what: str) -> float:
 
 
 def values_for(system, source: Source, sets, inits):
-    """Parameter and initial vectors: the model's, then the project's stored ones, then --set/--init."""
-    params, initial = {}, {}
-    if source.project is not None:
-        params = {k: v.value for k, v in source.project.parameters.items() if k in system.parameters}
-        initial = {k: v for k, v in source.project.initial.items() if k in system.states}
+    """Parameter and initial vectors: the model's, then the project's stored ones (the live document's
+    values), then --set/--init (put into the document, so an exported project carries them)."""
+    doc = source.doc
+    params = {k: v for k, v in doc.params.items() if k in system.parameters}
+    initial = {k: v for k, v in doc.initial.items() if k in system.states}
     params.update(parse_assignments(sets, "set"))
     initial.update(parse_assignments(inits, "init"))
     try:
-        return system.param_vector(params), system.initial_vector(initial)
+        p, u0 = system.param_vector(params), system.initial_vector(initial)
     except KeyError as err:
         known_p = ", ".join(system.parameters) or "none"
         known_s = ", ".join(system.states)
         raise CommandError(f"{err.args[0]} (parameters: {known_p}; states: {known_s})") from None
+    if doc.system is system:
+        doc.show_state(params, initial)
+    return p, u0
 
 
 def add_interval_options(parser, what="the parameter that moves"):
@@ -159,6 +179,16 @@ def add_value_options(parser, initial=True):
     parser.add_argument("--set", action="append", metavar="NAME=VALUE", help="set a parameter (repeatable)")
     if initial:
         parser.add_argument("--init", action="append", metavar="STATE=VALUE", help="set an initial value (repeatable)")
+
+
+def add_outputs(parser, handler, json_help: str = "print the result as JSON", csv_help: str | None = None) -> None:
+    """The tail every analysis command shares: --set/--init, --csv FILE (when ``csv_help``), --json, and
+    the function that runs the command."""
+    add_value_options(parser)
+    if csv_help is not None:
+        parser.add_argument("--csv", metavar="FILE", help=csv_help)
+    parser.add_argument("--json", action="store_true", help=json_help)
+    parser.set_defaults(handler=handler)
 
 
 def to_jsonable(value):

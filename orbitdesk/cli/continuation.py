@@ -5,8 +5,8 @@ their special points (fold, Hopf, branch point, cycle fold, period doubling, tor
 from orbitdesk.engine.progress import Cancelled
 from orbitdesk.system.compiled_system import MAP
 
-from orbitdesk.cli.common import (CommandError, add_interval_options, add_value_options, load_system, parse_guess,
-                     parse_interval, parse_number, print_json, read_source, stderr_progress, values_for)
+from orbitdesk.cli.common import (add_outputs, CommandError, add_interval_options, open_model,
+                                  parse_guess, parse_interval, parse_number, print_json, stderr_progress)
 
 STARTS = ("equilibrium", "cycle", "fixed point")
 
@@ -33,15 +33,11 @@ def register(sub):
     parser.add_argument("--param2", metavar="NAME", help="the second parameter of a locus")
     parser.add_argument("--range2", metavar="LO:HI",
                         help="bounds of the second parameter (default: its slider range, else 10 units around it)")
-    add_value_options(parser)
-    parser.add_argument("--json", action="store_true", help="print the result as JSON")
-    parser.set_defaults(handler=run)
+    add_outputs(parser, run)
 
 
 def run(args) -> int:
-    source = read_source(args.path)
-    system = load_system(source)
-    p, u0 = values_for(system, source, args.set, args.init)
+    source, system, p, u0 = open_model(args)
     guess = parse_guess(args.guess, system)
     lo, hi = parse_interval(args, system)
     if args.max_points < 2:

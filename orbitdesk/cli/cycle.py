@@ -5,9 +5,8 @@ from orbitdesk.analyses.cycles import CycleError, find_cycle, find_map_cycle
 from orbitdesk.engine.progress import Cancelled
 from orbitdesk.system.compiled_system import MAP
 
-from orbitdesk.cli.common import (CommandError, add_value_options, load_system, parse_guess, parse_number, parse_positive,
-                     print_json,
-                     read_source, stderr_progress, values_for, write_csv)
+from orbitdesk.cli.common import (add_outputs, CommandError, open_model, parse_guess, parse_positive,
+                                  print_json, stderr_progress, write_csv)
 
 
 def register(sub):
@@ -20,16 +19,12 @@ def register(sub):
     parser.add_argument("--forcing-multiple", type=int, metavar="K",
                         help="the orbit's period in forcing periods (default: found from a transient run)")
     parser.add_argument("--period", type=int, metavar="K", help="period of a map cycle (maps only)")
-    add_value_options(parser)
-    parser.add_argument("--csv", metavar="FILE", help="write one period of the orbit (flows) or the points (maps)")
-    parser.add_argument("--json", action="store_true", help="print the result as JSON")
-    parser.set_defaults(handler=run)
+    add_outputs(parser, run, "print the result as JSON",
+                csv_help="write one period of the orbit (flows) or the points (maps)")
 
 
 def run(args) -> int:
-    source = read_source(args.path)
-    system = load_system(source)
-    p, u0 = values_for(system, source, args.set, args.init)
+    source, system, p, u0 = open_model(args)
     guess = parse_guess(args.guess, system)
     progress = stderr_progress("cycle")
     try:

@@ -5,8 +5,8 @@ from orbitdesk.analyses.manifolds import is_planar_saddle, saddle_manifolds
 from orbitdesk.engine.progress import Cancelled
 from orbitdesk.system.compiled_system import MAP
 
-from orbitdesk.cli.common import (CommandError, add_value_options, load_system, parse_number, print_json, read_source,
-                     stderr_progress, values_for)
+from orbitdesk.cli.common import (CommandError, add_value_options, open_model, parse_number, print_json,
+                                  stderr_progress)
 
 MANIFOLD_POINTS = 400  # points per branch in the JSON output
 
@@ -42,9 +42,7 @@ def parse_box(items, states) -> dict:
 
 
 def run(args) -> int:
-    source = read_source(args.path)
-    system = load_system(source)
-    p, u0 = values_for(system, source, args.set, args.init)
+    source, system, p, u0 = open_model(args)
     box = parse_box(args.box, system.states)
     if args.starts < 1:
         raise CommandError("--starts must be at least 1")

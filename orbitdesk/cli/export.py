@@ -1,16 +1,16 @@
-"""``orbitdesk export PATH (--latex [--standalone] | --script | --report | --fit-script) [-o FILE]``: the
-model as LaTeX, a standalone Python script reproducing the run, an HTML report, or a standalone script
-reproducing the project's fit to its data. Prints to stdout without -o."""
+"""``orbitdesk export PATH (--latex [--standalone] | --script | --report | --fit-script | --model) [-o FILE]``:
+the model as LaTeX, a standalone Python script reproducing the run, an HTML report, a standalone script
+reproducing the project's fit to its data, or the model text with the values in use written into it.
+Prints to stdout without -o."""
 
 from __future__ import annotations
 
-import copy
 import os
 import sys
 
-from orbitdesk.document.project import ParameterSetting, Project
+from orbitdesk.document.project import Project
 
-from orbitdesk.cli.common import CommandError, add_value_options, load_system, read_source, values_for
+from orbitdesk.cli.common import CommandError, add_value_options, open_model, values_for
 from orbitdesk.cli.run import settings_for
 
 
@@ -23,6 +23,8 @@ def register(sub):
     what.add_argument("--report", action="store_true", help="a self-contained HTML report")
     what.add_argument("--fit-script", action="store_true", help="a Python script (numpy, scipy) reproducing the "
                       "fit set up in the project's Fit panel, on its stored data sets")
+    what.add_argument("--model", action="store_true", help="the model text with the project's values (and "
+                      "--set/--init) written into its lines: a model file any command reads")
     parser.add_argument("--standalone", action="store_true", help="with --latex: a complete document")
     parser.add_argument("-o", "--output", metavar="FILE", help="write to FILE instead of printing")
     add_value_options(parser)
@@ -30,15 +32,12 @@ def register(sub):
 
 
 def _project_for(source, system, p, u0) -> Project:
-    """The project to export (a bare model file becomes one) with the effective values filled in."""
-    project = copy.deepcopy(source.project) if source.project is not None else Project(
-        name=source.path.stem, model=source.text)
-    for name, value in zip(system.parameters, p):
-        old = project.parameters.get(name)
-        lo, hi = system.param_ranges.get(name, (None, None))
-        project.parameters[name] = ParameterSetting(float(value), old.lo if old else lo, old.hi if old else hi)
-    project.initial = {name: float(v) for name, v in zip(system.states, u0)}
-    return project
+    """The project to export (a bare model file becomes one) with the effective values filled in: the
+    live document's project (``values_for`` put --set/--init into it)."""
+    if source.doc.system is not system:
+        source.doc.adopt_system(system, None)
+    source.doc.show_state(dict(zip(system.parameters, map(float, p))), dict(zip(system.states, map(float, u0))))
+    return source.doc.to_project()
 
 
 def _equilibria(system, p):
@@ -98,9 +97,7 @@ def _fit_script(source, system, p, u0, title) -> str:
 def run(args) -> int:
     if args.standalone and not args.latex:
         raise CommandError("--standalone goes with --latex")
-    source = read_source(args.path)
-    system = load_system(source, noise=True)
-    p, u0 = values_for(system, source, args.set, args.init)
+    source, system, p, u0 = open_model(args, noise=True)
     title = source.project.name if source.project is not None else source.path.stem
     if args.latex:
         from orbitdesk.exports.latex import model_latex
@@ -120,6 +117,10 @@ def run(args) -> int:
             raise CommandError(str(err)) from None
     elif args.fit_script:
         text = _fit_script(source, system, p, u0, title)
+    elif args.model:
+        from orbitdesk.language.written_values import with_values
+
+        text = with_values(source.text, source.doc.parsed, system.param_dict(p), dict(zip(system.states, map(float, u0))))
     else:
         from orbitdesk.exports.report import render_report
 

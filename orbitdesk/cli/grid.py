@@ -5,11 +5,11 @@ import numpy as np
 
 from orbitdesk.analyses.parameter_maps import period_grid
 from orbitdesk.engine.progress import Cancelled
-from orbitdesk.analyses.sweep import STROBE, GridSettings, SweepSettings, lyapunov_grid
+from orbitdesk.analyses.sweep import MAXIMA, STROBE, GridSettings, SweepSettings, lyapunov_grid
 from orbitdesk.system.compiled_system import MAP
 
-from orbitdesk.cli.common import (CommandError, add_value_options, load_system, parse_axis, parse_number, parse_positive,
-                     print_json, read_source, stderr_progress, values_for, write_csv)
+from orbitdesk.cli.common import (add_outputs, CommandError, open_model, parse_axis, parse_number,
+                                  parse_positive, print_json, stderr_progress, write_csv)
 
 MAX_POINTS = 1_000_000
 
@@ -23,22 +23,18 @@ def register(sub):
     what.add_argument("--lyapunov", action="store_true", help="the largest Lyapunov exponent at each point")
     what.add_argument("--period", action="store_true",
                       help="the period of the attractor (maps: iterations; forced flows: forcing periods, "
-                           "with --strobe T)")
+                           "with --strobe T; autonomous flows: maxima per cycle and the period in time)")
     parser.add_argument("--strobe", metavar="T", help="forcing period of a flow (--period)")
     parser.add_argument("--max-period", type=int, default=32, metavar="K", help="longest period looked for (32)")
     parser.add_argument("--transient", metavar="T", help="time (flows) or iterations (maps) dropped first")
     parser.add_argument("--duration", metavar="T", help="averaging time or iterations of the exponent")
     parser.add_argument("--dt", metavar="H", help="integration step of flows")
-    add_value_options(parser)
-    parser.add_argument("--csv", metavar="FILE", help="write one row per grid point: x, y, value")
-    parser.add_argument("--json", action="store_true", help="print the grid as JSON (the default)")
-    parser.set_defaults(handler=run)
+    add_outputs(parser, run, "print the grid as JSON (the default)",
+                csv_help="write one row per grid point: x, y, value")
 
 
 def run(args) -> int:
-    source = read_source(args.path)
-    system = load_system(source)
-    p, u0 = values_for(system, source, args.set, args.init)
+    source, system, p, u0 = open_model(args)
     x_name, xs = parse_axis(args.x, "--x", system.parameters, "parameter")
     y_name, ys = parse_axis(args.y, "--y", system.parameters, "parameter")
     if x_name == y_name:
@@ -67,10 +63,13 @@ def run(args) -> int:
                 raise CommandError("--duration goes with --lyapunov")
             settings = SweepSettings(transient=1000.0 if system.kind == MAP else 200.0)
             if system.kind != MAP:
-                if args.strobe is None:
-                    raise CommandError("the period of a flow's attractor is counted in forcing periods: "
+                if args.strobe is not None:
+                    settings.mode, settings.period = STROBE, parse_positive(args.strobe, "--strobe")
+                elif not system.autonomous_at(p):
+                    raise CommandError("the period of a forced flow's attractor is counted in forcing periods: "
                                        "give --strobe T")
-                settings.mode, settings.period = STROBE, parse_positive(args.strobe, "--strobe")
+                else:
+                    settings.mode = MAXIMA
             elif args.strobe is not None:
                 raise CommandError("--strobe applies to flows; a map's period is counted in iterations")
             if transient is not None:
@@ -86,7 +85,11 @@ def run(args) -> int:
         raise CommandError("cancelled") from None
     if args.csv:
         gx, gy = np.meshgrid(xs, ys)
-        write_csv(args.csv, [x_name, y_name, label], [gx.ravel(), gy.ravel(), np.asarray(values, float).ravel()])
+        header, columns = [x_name, y_name, label], [gx.ravel(), gy.ravel(), np.asarray(values, float).ravel()]
+        if getattr(grid, "time_period", None) is not None:
+            header.append("period in time")
+            columns.append(np.asarray(grid.time_period, float).ravel())
+        write_csv(args.csv, header, columns)
     if args.json or not args.csv:
         print_json(data)
     return 0

@@ -5,7 +5,7 @@ import sys
 from orbitdesk.analyses.lyapunov import largest_lyapunov_two_trajectory, lyapunov_spectrum
 from orbitdesk.system.compiled_system import MAP
 
-from orbitdesk.cli.common import CommandError, add_value_options, load_system, parse_number, print_json, read_source, \
+from orbitdesk.cli.common import add_outputs, CommandError, load_system, parse_number, print_json, read_source, \
     stderr_progress, values_for
 from orbitdesk.cli.run import settings_for
 
@@ -19,9 +19,7 @@ def register(sub):
     parser.add_argument("--transient", metavar="T", help="time (or iterations) discarded first (default: a tenth)")
     parser.add_argument("--two-trajectory", action="store_true",
                         help="only the largest exponent, from two nearby trajectories (always for delay models)")
-    add_value_options(parser)
-    parser.add_argument("--json", action="store_true", help="print the result as JSON")
-    parser.set_defaults(handler=run)
+    add_outputs(parser, run)
 
 
 def run(args) -> int:

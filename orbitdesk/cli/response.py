@@ -4,8 +4,8 @@ that starts each value from the previous value's final state."""
 
 from orbitdesk.engine.progress import Cancelled
 
-from orbitdesk.cli.common import (CommandError, add_interval_options, add_value_options, load_system, parse_guess,
-                     parse_interval, print_json, read_source, stderr_progress, values_for)
+from orbitdesk.cli.common import (add_outputs, CommandError, add_interval_options, open_model,
+                                  parse_guess, parse_interval, print_json, stderr_progress)
 
 
 def register(sub):
@@ -20,15 +20,11 @@ def register(sub):
                         help="most points per direction of the continued curve (default 400)")
     parser.add_argument("--guess", action="append", metavar="STATE=VALUE",
                         help="a state near the response to start the continuation from (repeatable)")
-    add_value_options(parser)
-    parser.add_argument("--json", action="store_true", help="print the result as JSON")
-    parser.set_defaults(handler=run)
+    add_outputs(parser, run)
 
 
 def run(args) -> int:
-    source = read_source(args.path)
-    system = load_system(source)
-    p, u0 = values_for(system, source, args.set, args.init)
+    source, system, p, u0 = open_model(args)
     guess = parse_guess(args.guess, system)
     lo, hi = parse_interval(args, system)
     if args.count < 2 or args.max_points < 2:

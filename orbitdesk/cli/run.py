@@ -5,8 +5,8 @@ from orbitdesk.engine.methods import NAMES
 from orbitdesk.engine.settings import SCHEMES, RunSettings, SettingsError
 from orbitdesk.system.compiled_system import MAP
 
-from orbitdesk.cli.common import (CommandError, add_value_options, load_system, parse_number, parse_positive, print_json, read_source,
-                     stderr_progress, values_for, write_csv)
+from orbitdesk.cli.common import (CommandError, add_value_options, open_model, parse_number, parse_positive,
+                                  print_json, stderr_progress, write_csv)
 
 
 def register(sub):
@@ -31,8 +31,8 @@ def register(sub):
 
 
 def settings_for(source, args) -> RunSettings:
-    """Run settings: defaults, then the project's solver settings, then the command's options."""
-    settings = source.project.solver if source.project is not None else RunSettings()
+    """Run settings: defaults, then the project's solver settings (the live document's), then the
+    command's options."""
     changes = {}
     if getattr(args, "t_end", None) is not None:
         changes["t_end"] = parse_number(args.t_end, "--t-end")
@@ -51,16 +51,14 @@ def settings_for(source, args) -> RunSettings:
         if getattr(args, name, None) is not None:
             changes[name] = parse_positive(getattr(args, name), f"--{name}")
     try:
-        return settings.replace(**changes)
+        return source.doc.run_settings(**changes)
     except SettingsError as problem:
         option = "--" + problem.name.replace("_", "-")
         raise CommandError(f"{option if problem.name in changes else problem.name}: {problem.message}") from None
 
 
 def run(args) -> int:
-    source = read_source(args.path)
-    system = load_system(source, noise=True)
-    p, u0 = values_for(system, source, args.set, args.init)
+    source, system, p, u0 = open_model(args, noise=True)
     settings = settings_for(source, args)
     try:
         traj = simulate(system, settings, u0, p, progress=stderr_progress("run"), noise=True)

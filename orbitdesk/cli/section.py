@@ -7,7 +7,7 @@ import sys
 from orbitdesk.analyses.sections import DIRECTIONS, plane_section, strobe_section
 from orbitdesk.system.compiled_system import MAP
 
-from orbitdesk.cli.common import (CommandError, add_value_options, load_system, parse_assignments, parse_number, print_json,
+from orbitdesk.cli.common import (add_outputs, CommandError, load_system, parse_assignments, parse_number, print_json,
                      read_source, stderr_progress, values_for, write_csv)
 from orbitdesk.cli.run import settings_for
 
@@ -22,10 +22,7 @@ def register(sub):
     parser.add_argument("--direction", choices=DIRECTIONS, default="up", help="crossing direction (default up)")
     parser.add_argument("--count", type=int, default=100, metavar="N", help="number of points (default 100)")
     parser.add_argument("--transient", metavar="T", help="time discarded first (strobe: rounded up to whole periods)")
-    add_value_options(parser)
-    parser.add_argument("--csv", metavar="FILE", help="write the points as CSV")
-    parser.add_argument("--json", action="store_true", help="print the points as JSON")
-    parser.set_defaults(handler=run)
+    add_outputs(parser, run, "print the points as JSON", csv_help="write the points as CSV")
 
 
 def run(args) -> int:

@@ -23,10 +23,10 @@ import re
 from orbitdesk.engine.settings import SAVED, SettingsError, check_value
 from orbitdesk.document.project import WalkthroughStep
 from orbitdesk.document.view_settings import VIEW_SETTINGS, missing_names, unknown_keys, without
+from orbitdesk.document.views import VIEW_IDS
 
 SNAPSHOT_KEYS = ("parameters", "initial", "solver", "views", "open_views", "camera",
                  "selected_equilibrium", "section", "time_cursor")
-VIEW_IDS = tuple(VIEW_SETTINGS)
 _AXIS_KEYS = ("x", "y", "z")
 _DIRECTIONS = ("up", "down", "both")
 _PLANE = re.compile(r"^\s*([A-Za-z_][A-Za-z0-9_]*'*)\s*=\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*$")

@@ -188,15 +188,6 @@ class DelayIntegrator:
         q = Q[i]
         return y[i] + h * x * (q[0] + x * (q[1] + x * (q[2] + x * q[3])))
 
-    def values(self, times: np.ndarray) -> np.ndarray:
-        """All states at ``times`` (inside the run so far or before the start): shape (n, len(times))."""
-        times = np.asarray(times, dtype=float)
-        out = np.empty((self.n, times.size))
-        for j, s in enumerate(times):
-            for i in range(self.n):
-                out[i, j] = self.value(i, float(s))
-        return out
-
     def _lags(self, t: float, left: bool) -> list[float]:
         if left:
             return [self.value(i, t - tau, True) for i, tau in zip(self.lag_state, self.lag_tau)]
@@ -339,8 +330,12 @@ class DelayModel:
                                list(self.taus) * 2, history, rtol, atol, max_step, t_bound)
 
 
-def simulate_delay(system: CompiledSystem, settings: RunSettings, u0, p, events=(), report: Reporter | None = None):
-    """One run of a delay model (``runs.simulate`` sends delay models here): a ``runs.Trajectory``."""
+def simulate_delay(system: CompiledSystem, settings: RunSettings, u0, p, events=(), report: Reporter | None = None,
+                   on_start=None):
+    """One run of a delay model (``runs.simulate`` sends delay models here): a ``runs.Trajectory``.
+
+    ``on_start(solver)``, if given, receives the integrator before the first step (events whose function
+    reads delayed values look them up there: ``delayed_quantity``)."""
     from orbitdesk.engine.runs import Trajectory, _check_state, _root
     from orbitdesk.engine.runs import _Stop as RunStop
 
@@ -354,6 +349,8 @@ def simulate_delay(system: CompiledSystem, settings: RunSettings, u0, p, events=
                          f"units: every step is at most one delay long")
     n = system.n_states
     solver = model.integrator(t0, u0, settings.rtol, settings.atol, settings.max_step, t1)
+    if on_start is not None:
+        on_start(solver)
     sample_t = np.linspace(t0, t1, settings.samples) if settings.samples > 1 else None
     ts, ys = [t0], [np.asarray(u0, float).copy()]
     next_sample = 1
@@ -420,6 +417,23 @@ def simulate_delay(system: CompiledSystem, settings: RunSettings, u0, p, events=
                       [np.array(v) for v in ev_t],
                       [np.array(v).reshape(-1, n).T if v else np.empty((n, 0)) for v in ev_y],
                       steps_taken=solver.steps)
+
+
+def delayed_quantity(system, name: str, p):
+    """(g, attach): ``g(t, u)`` is the derived quantity ``name`` with its delayed values read off the run
+    that ``attach(solver)`` (``simulate_delay``'s ``on_start``) names."""
+    aug = augmented(system)
+    taus = delay_values(system, p)
+    lag_state = [system.states.index(d.state) for d in system.delays]
+    holder = []
+
+    def g(t, u):
+        solver = holder[-1]
+        lags = [solver.value(i, float(t) - tau) for i, tau in zip(lag_state, taus)]
+        column = np.concatenate([np.asarray(u, dtype=float), lags])[:, None]
+        return float(aug.derived_values(np.array([float(t)]), column, p)[name][0])
+
+    return g, holder.append
 
 
 def _derived_along(system, solver, model, time, states) -> dict:

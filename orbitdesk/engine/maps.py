@@ -10,7 +10,7 @@ import numpy as np
 
 from orbitdesk.engine.explicit_rk import PAUSED, state_code
 from orbitdesk.engine.jitting import loop
-from orbitdesk.engine.tangent import orthonormalise
+from orbitdesk.engine.tangent import gram_schmidt
 
 
 @loop
@@ -54,7 +54,8 @@ def members_iterate(f, U, P, n0, n_end, keep_from, bound, samples, codes, reache
     n = nz // (m + 1)
     nxt = np.empty(nz)
     W = nxt[n:].reshape((n, m))
-    logs = np.empty(max(m, 1))
+    norms = np.empty(max(m, 1))
+    stretch = np.ones(max(m, 1))  # the product of the stretches since their logarithms were last added
     shared = P.shape[0] == 1
     K = samples.shape[1]
     for i in range(N):
@@ -62,12 +63,14 @@ def members_iterate(f, U, P, n0, n_end, keep_from, bound, samples, codes, reache
         z = U[i]
         k = n0
         code = 0
+        for j in range(m):
+            stretch[j] = 1.0
         while k < n_end:
             f(m, float(k), z, p, nxt)
             code = state_code(nxt[:n], bound)
             if code != 0:
                 break
-            if m > 0 and not orthonormalise(W, logs):  # the Jacobian is singular on the orbit
+            if m > 0 and not gram_schmidt(W, norms):  # the Jacobian is singular on the orbit
                 if k + 1 > keep_from:
                     code = 2
                     break
@@ -82,9 +85,14 @@ def members_iterate(f, U, P, n0, n_end, keep_from, bound, samples, codes, reache
                 if r < K:
                     for j in range(n):
                         samples[i, r, j] = z[j]
-                for j in range(m):
-                    sums[i, j] += logs[j]
+                for j in range(m):  # one logarithm per many steps: the stretches multiplied meanwhile
+                    stretch[j] *= norms[j]
+                    if not 1e-100 < stretch[j] < 1e100:
+                        sums[i, j] += math.log(stretch[j])
+                        stretch[j] = 1.0
                 sums[i, m] += 1.0
+        for j in range(m):
+            sums[i, j] += math.log(stretch[j])
         codes[i] = code
         reached[i] = k
         for r in range(max(0, k - keep_from), K):  # iterates never reached

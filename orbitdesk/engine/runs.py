@@ -2,8 +2,9 @@
 
 Explicit methods (Dormand-Prince 8(5,3) and 5(4), RK4) and maps run in the compiled loops of
 ``integrators`` on the model's kernels: output samples are read off each step's dense output in
-the same pass, plane events are located there by one root finder. Stiff methods, and events given
-as arbitrary functions, step with scipy's ``OdeSolver`` classes one step at a time. Every path
+the same pass, plane events are located there by one root finder. Stiff methods (``stiff.py``: scipy's
+steppers with each step's interpolant checked), and events given as arbitrary functions, step one
+step at a time here. Every path
 reports progress, stops cleanly on blow-up, undefined values or cancel and keeps what it computed.
 """
 
@@ -21,6 +22,7 @@ from scipy.optimize import brentq
 from orbitdesk.engine.methods import NAMES
 from orbitdesk.engine.settings import RunSettings
 from orbitdesk.engine import compiled, drivers, stochastic
+from orbitdesk.engine.stiff import StiffStepper
 from orbitdesk.engine.status import (C_CANCELLED, C_DIVERGED, C_STEP_FAILED, C_UNDEFINED, CANCELLED, DIVERGED,
                                  OK, STEP_FAILED, UNDEFINED)
 from orbitdesk.engine.status import word as status_word
@@ -314,12 +316,14 @@ def _integrate(system, settings, u0, p, events, report) -> Trajectory:
     try:
         if settings.method == "rk4":
             solver = _RK4Stepper(fun, t0, u0, t1, settings.dt)
+        elif settings.method_info.stiff:  # every step's interpolant held to the tolerance (stiff.py)
+            solver = StiffStepper(settings.method_info.scipy_name, fun, lambda t, y: system.jac(t, y, p), t0, u0,
+                                  t1, settings.rtol, settings.atol, settings.max_step,
+                                  check=settings.samples > 2 or bool(events))  # only step ends read otherwise
         else:
             kwargs = dict(rtol=settings.rtol, atol=settings.atol)
             if settings.max_step:
                 kwargs["max_step"] = settings.max_step
-            if settings.method_info.stiff:
-                kwargs["jac"] = lambda t, y: system.jac(t, y, p)
             solver = getattr(scipy.integrate, settings.method_info.scipy_name)(fun, t0, u0, t1, **kwargs)
         if sample_t is None:
             ts.append(t0)

@@ -20,8 +20,8 @@ from orbitdesk.engine.jitting import inner, loop
 
 
 @inner
-def orthonormalise(V, logs):
-    """Modified Gram-Schmidt on the columns of V in place; logs[j] = log of R's j-th diagonal.
+def gram_schmidt(V, norms):
+    """Modified Gram-Schmidt on the columns of V in place; norms[j] = R's j-th diagonal.
     Returns False when a column collapses to zero."""
     n, m = V.shape
     for j in range(m):
@@ -46,9 +46,19 @@ def orthonormalise(V, logs):
             before = norm
         if not norm > 0.0 or not math.isfinite(norm):
             return False
-        logs[j] = math.log(norm)
+        norms[j] = norm
         for i in range(n):
             V[i, j] /= norm
+    return True
+
+
+@inner
+def orthonormalise(V, logs):
+    """``gram_schmidt`` with logs[j] = the logarithm of R's j-th diagonal."""
+    if not gram_schmidt(V, logs):
+        return False
+    for j in range(V.shape[1]):
+        logs[j] = math.log(logs[j])
     return True
 
 

@@ -259,7 +259,7 @@ def render_report(project, system, figures: dict | None = None, equilibria=None,
 
     out.append("<h2>First-order form</h2>")
     rows = []
-    for i, (state, expr) in enumerate(zip(system.states, system.f)):
+    for i, (state, expr) in enumerate(zip(system.states, system.f_delayed or system.f)):  # a delay model with its delays
         lhs = f"{state}[n+1]" if is_map else f"d({state})/d{t}" if "'" in state else f"d{state}/d{t}"
         rhs = _expr(expr) + noise.terms_text(system, i, _expr)
         rows.append([f'<span class="math">{_e(lhs)}</span>', f'<span class="math">= {_e(rhs)}</span>'])
@@ -288,7 +288,7 @@ def render_report(project, system, figures: dict | None = None, equilibria=None,
     if system.derived_names:
         out.append("<h2>Derived quantities</h2>")
         rows = [[f'<span class="math">{_e(n)}</span>', f'<span class="math">= {_e(_expr(e))}</span>']
-                for n, e in zip(system.derived_names, system.derived_exprs)]
+                for n, e in zip(system.derived_names, system.derived_delayed or system.derived_exprs)]
         out.append(_table(["name", "definition"], rows))
 
     s = project.solver
@@ -300,8 +300,13 @@ def render_report(project, system, figures: dict | None = None, equilibria=None,
         if s.transient:
             run += f", first {_num(s.transient)} discarded as transient"
     else:
-        run = (f"from {t} = {_num(s.t_start)} to {_num(s.t_end)}, {s.samples} samples, method {_e(s.method_info.label)}"
-               + (f" (step {_num(s.dt)})" if not s.method_info.adaptive else
+        method = s.method_info.label
+        if system.delays:
+            from orbitdesk.engine.delay import METHOD_LABEL, uses_history
+
+            method = f"{METHOD_LABEL}, {uses_history(system)}"
+        run = (f"from {t} = {_num(s.t_start)} to {_num(s.t_end)}, {s.samples} samples, method {_e(method)}"
+               + (f" (step {_num(s.dt)})" if not s.method_info.adaptive and not system.delays else
                   f", tolerances {_num(s.rtol)} relative / {_num(s.atol)} absolute"))
         if s.transient:
             run += f", first {_num(s.transient)} discarded as transient"
@@ -311,7 +316,8 @@ def render_report(project, system, figures: dict | None = None, equilibria=None,
         out.append("<h2>" + ("Fixed points" if is_map else "Equilibria") + "</h2>")
         if len(equilibria):
             rows = [_equilibrium_row(eq, i + 1, system.states) for i, eq in enumerate(equilibria)]
-            out.append(_table(["#", "where", "kind", "multipliers" if is_map else "eigenvalues"], rows,
+            values = "multipliers" if is_map else "rightmost characteristic roots" if system.delays else "eigenvalues"
+            out.append(_table(["#", "where", "kind", values], rows,
                               numeric=(0,)))
         else:
             out.append('<p class="muted">None found in the search box.</p>')

@@ -125,7 +125,7 @@ def rewrite_delays(builder, statements) -> None:
 
     Problems become diagnostics on the statement (whose tree is then dropped)."""
     m = builder.model
-    states = set(m.states)
+    states = set(m.states) | {base + "'" * order for base, order in m.typed_order.items()}  # + highest derivatives
     for st in statements:
         if st.tree is None or st.form not in ("ode", "map", "name"):
             continue
@@ -147,6 +147,9 @@ def _delayed_name(builder, st, node: Call) -> Name:
         raise ParseError(f"delayed values such as {state}(t - 1) belong to flows; this model is a map", *where)
     if len(node.args) != 1:
         raise ParseError(f"a delayed value takes one time: {state}(t - tau)", *where)
+    if state not in m.states:  # the derivative the equation gives: x' = f(x'(t - tau)) is a neutral equation
+        raise ParseError(f"{state}(t - ...) delays the highest derivative of {state.rstrip(chr(39))} (a neutral "
+                         "equation), which is not supported; delay the states themselves", *where)
     arg = node.args[0]
     if isinstance(arg, Name) and arg.name == "t":
         raise ParseError(f"{state}(t) is the current value; write {state}", *where, f"write {state}")

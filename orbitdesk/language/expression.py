@@ -381,6 +381,9 @@ class _Parser:
         if tok.kind == "name":
             self.advance()
             if "{" in tok.text:
+                if self.tokens[self.pos].kind == "op" and self.tokens[self.pos].text == "(":
+                    raise ParseError(f"delayed values of family members such as {tok.text}(t - tau) are not "
+                                     "supported yet; write the members out", tok.column, self.tokens[self.pos].end)
                 return self.family_name(tok)
             if self.tok.kind == "op" and self.tok.text == "(":
                 return self.sum_call(tok) if tok.text == "sum" else self.call(tok)

@@ -264,13 +264,6 @@ def with_structural_value(text: str, line: int, name: str, value: float) -> str:
 
     A parameter that sets the size of a family changes the model itself, so a new value is written
     into its line (keeping its range and comment) and the model is read again."""
-    lines = text.split("\n")
-    if not 1 <= line <= len(lines):
-        return text
-    raw = lines[line - 1]
-    code, hash_, comment = raw.partition("#")
-    m = re.match(rf"^(\s*{re.escape(name)}\s*=\s*)(.*?)(\s+in\s*\[.*\])?(\s*)$", code)
-    if not m:
-        return text
-    lines[line - 1] = f"{m.group(1)}{int(round(value))}{m.group(3) or ''}{m.group(4)}{hash_}{comment}"
-    return "\n".join(lines)
+    from orbitdesk.language.written_values import with_line_value
+
+    return with_line_value(text, line, name, str(int(round(value))))

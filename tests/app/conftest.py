@@ -96,8 +96,7 @@ def window(qtbot):
     yield w
     w.session.shutdown()
     assert w.session.jobs.wait(180_000)  # as in the session fixture: an uninterruptible first compile ends
-    w.session.undo_stack.setClean()
-    w.session._forced_dirty = False
+    w.session.doc.mark_saved()
 
 
 def wait_for_trajectory(qtbot, session, action=None, timeout=20000, check=None):

@@ -363,7 +363,6 @@ def test_restored_work_still_checks_the_original_for_changes(qtbot, window, tmp_
         assert answers.titles == ["File changed on disk"] and w_on_disk(path) == 1.0
     finally:
         recovery.set_auto_answer(None)
-        restarted.session.undo_stack.setClean()
-        restarted.session._forced_dirty = False
+        restarted.session.doc.mark_saved()
         restarted.close()
         saver.finish()

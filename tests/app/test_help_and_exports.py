@@ -169,7 +169,25 @@ def test_exports_refuse_a_model_with_errors(qtbot, window, tmp_path, monkeypatch
 
 def test_export_menu_entries(window):
     texts = [a.text().replace("&", "") for a in window.export_menu.actions()]
-    assert texts == ["Model as LaTeX…", "Standalone Python Script…", "HTML Report…", "Python Script of the Fit…"]
+    assert texts == ["Model as LaTeX…", "Model with These Values…", "Standalone Python Script…", "HTML Report…",
+                     "Python Script of the Fit…"]
     assert all(a.toolTip() for a in window.export_menu.actions())
     file_texts = [a.text() for a in window.file_menu.actions()]
     assert file_texts.index("E&xport") < file_texts.index("&Quit")
+
+
+def test_model_with_these_values_reads_back_as_the_values_on_screen(qtbot, window, tmp_path):
+    from orbitdesk.document.project import Project
+    from orbitdesk.language.model import parse_model
+
+    s = window.session
+    text = "# decay\nx' = -k*x  # first order\nk = 0.5 in [0, 2]  # rate\nx(0) = 2\n"
+    wait_for_trajectory(qtbot, s, lambda: s.load_project(Project(name="decay", model=text)))
+    s.set_param("k", 0.125)
+    s.set_initial("x", 3.5)
+    path = exports.export_model_text(window, tmp_path / "decay.txt")
+    written = path.read_text(encoding="utf-8")
+    parsed = parse_model(written)
+    assert parsed.ok and parsed.parameters["k"].value == 0.125 and parsed.initial["x"] == 3.5
+    assert (parsed.parameters["k"].lo, parsed.parameters["k"].hi) == (0, 2)
+    assert "# rate" in written and "# first order" in written  # the user's comments stay

@@ -105,9 +105,11 @@ def test_empty_session_shows_a_hint(qtbot, session):
 
 
 def test_delay_model_reads_back_with_its_delays_and_history(qtbot, session, artifacts):
-    view = show_readback(qtbot, session, "a = 1.2\ntau = 2\nx' = -a*x(t - tau)\nx(t) = cos(t) for t <= 0\n")
+    view = show_readback(qtbot, session, "a = 1.2\ntau = 2\nx' = -a*x(t - tau)\nx(t) = cos(t) for t <= 0\n"
+                                         "felt = x(t - tau)\n")
     assert view.equation_lines() == ["dx/dt = -a*x(t - tau)"]
     text = view.plain_text()
     assert "delays: x(t - tau) (2)" in text and "history x(t) = cos(t) for t <= 0" in text
     assert "Jacobian with the delays dropped" in text
+    assert "Derived quantities\nfelt\n=\nx(t - tau)" in text  # with its delay, not the current value
     view.grab().save(os.path.join(artifacts, "readback_delay.png"))

@@ -4,17 +4,13 @@ switched off by its parameter are found as for an autonomous model."""
 
 import numpy as np
 import pytest
+from orbitdesk.samples.models import DUFFING_REF, model
 
 from .conftest import load_model, open_view, wait_for_trajectory
 
 # Two-well Duffing x'' + delta x' - x + x^3 = gamma cos(omega t): with gamma = 0 the rest points are
 # x = 0 (a saddle) and x = +-1 (stable foci for delta > 0) -- closed form.
-DUFFING = """delta = 0.3
-gamma = 0.5 in [0, 0.8]
-omega = 1.2
-x'' = -delta*x' + x - x^3 + gamma*cos(omega*t)
-x(0) = 1
-"""
+DUFFING = model(DUFFING_REF, ranges={'gamma': (0, 0.8)})
 
 
 def test_equilibria_of_a_forced_model_at_zero_forcing_and_stale_when_forcing_returns(qtbot, session):

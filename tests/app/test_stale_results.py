@@ -10,7 +10,7 @@ from PySide6.QtCore import QThreadPool
 from orbitdesk.engine.runs import simulate
 from orbitdesk.engine import RunSettings
 from orbitdesk.document.project import Project
-from orbitdesk.app import session as session_module
+from orbitdesk.document import live as live_module
 
 from .conftest import wait_for_trajectory
 
@@ -48,7 +48,7 @@ def test_thousand_moves_show_only_the_final_value(qtbot, window, monkeypatch):
     # undo merging reads a clock: one that ticks a millisecond per move keeps the 1,000 moves one quick
     # drag however loaded the machine is
     ticks = iter(range(10**9))
-    monkeypatch.setattr(session_module, "clock", lambda: next(ticks) * 1e-3)
+    monkeypatch.setattr(live_module, "clock", lambda: next(ticks) * 1e-3)
     shown = []
     s.trajectoryChanged.connect(lambda t: shown.append(t.params["r"]))
 

@@ -9,7 +9,7 @@ from pathlib import Path
 from .test_recovery import child_env
 
 ROOT = Path(__file__).resolve().parents[2]
-SAMPLE = ROOT / "sample_projects" / "convection_loop.orbitdesk"
+SAMPLE = ROOT / "orbitdesk" / "samples" / "convection_loop.orbitdesk"
 
 DRIVER = r"""
 import sys

@@ -2,9 +2,12 @@
 stable manifolds of the saddle between them drawn over."""
 
 import numpy as np
+import pyqtgraph as pg
+import pytest
+from PySide6.QtCore import Qt
 from scipy.integrate import solve_ivp
 
-from .conftest import load_model, open_view
+from .conftest import load_model, open_view, wait_for_trajectory
 
 # x'' = -0.3 x' + x - x^3: stable foci at x = +-1, a saddle at the origin (closed form)
 WELLS = "x'' = -0.3*x' + x - x^3\nx(0) = 0.5\n"
@@ -32,3 +35,54 @@ def test_two_wells_with_the_saddle_manifolds_between(qtbot, session, artifacts):
     header, rows = view.export_data()
     assert header[:2] == ["x", "x'"] and rows.shape == (1200, 3)
     view.grab().save(f"{artifacts}/basins_wells.png")
+
+
+# r' = -r (r^2 - 1)(r^2 - 4), theta' = 1: a stable focus at the origin inside the unstable circle r = 1, and the
+# stable limit cycle r = 2 of period 2 pi outside it (closed form)
+RINGS = "k = 1\ng = -(x^2 + y^2 - k)*(x^2 + y^2 - 4)\nx' = x*g - y\ny' = y*g + x\nx(0) = 0.5\ny(0) = 0\n"
+
+
+def test_a_limit_cycle_basin_is_kept_in_the_project_and_a_click_runs_the_orbit_from_a_cell(qtbot, window, tmp_path,
+                                                                                            artifacts):
+    from orbitdesk.document import project as core_project
+
+    from .test_main_window import open_model
+
+    open_model(qtbot, window, tmp_path, RINGS, "rings.txt", t_end=10.0, samples=500)
+    s = window.session
+    view = window.show_view("basins")
+    view.apply_view_settings({"x": {"state": "x", "from": -2.5, "to": 2.5, "count": 11},
+                              "y": {"state": "y", "from": -2.5, "to": 2.5, "count": 11}, "transient": 40.0})
+    with qtbot.waitSignal(view.resultChanged, timeout=120000, check_params_cb=lambda r: r is not None):
+        view.compute()
+    r = view.result
+    cycle = next(a for a in r.attractors if a["kind"] == "limit cycle")
+    assert cycle["period"] == pytest.approx(2 * np.pi, rel=1e-7)  # closed form
+    assert "limit cycle of period 6.2832" in view.legend.text()
+    # a click on a cell runs the orbit from that cell's start: it ends on the cycle r = 2, as solve_ivp's does
+    vb = view.plot.getViewBox()
+    qtbot.waitUntil(lambda: vb.sceneBoundingRect().width() > 0)
+    where = view.plot_widget.mapFromScene(vb.mapViewToScene(pg.Point(1.45, 0.05)))
+    with qtbot.waitSignal(view.orbitChanged, timeout=60000, check_params_cb=lambda o: o is not None):
+        qtbot.mouseClick(view.plot_widget.viewport(), Qt.MouseButton.LeftButton, pos=where)
+    x, y = view.orbit_item.getData()
+    assert (x[0], y[0]) == pytest.approx((1.5, 0.0))  # the cell's own start, not the clicked point
+    ref = solve_ivp(lambda t, u: [u[0] * -(u @ u - 1) * (u @ u - 4) - u[1], u[1] * -(u @ u - 1) * (u @ u - 4) + u[0]],
+                    (0, view.orbit.time[-1]), [1.5, 0.0], rtol=1e-10, atol=1e-12)
+    assert np.hypot(x[-1], y[-1]) == pytest.approx(np.hypot(*ref.y[:, -1]), abs=1e-3) and abs(np.hypot(x[-1], y[-1]) - 2) < 1e-3
+    view.grab().save(f"{artifacts}/basins_rings.png")
+    # kept in the project: reopening shows the same map, current; with another k it is marked stale
+    target = tmp_path / "rings.orbitdesk"
+    s.save(target)
+    wait_for_trajectory(qtbot, s, lambda: window.open_path(tmp_path / "rings.txt", ask=False))
+    assert view.result is None
+    wait_for_trajectory(qtbot, s, lambda: window.open_path(target, ask=False))
+    qtbot.waitUntil(lambda: view.result is not None, timeout=20000)
+    np.testing.assert_array_equal(view.result.labels, r.labels)
+    assert view.stale_bar.isHidden() and "limit cycle of period 6.2832" in view.legend.text()
+    saved = core_project.load(target)
+    saved.parameters["k"].value = 1.1
+    core_project.save(tmp_path / "moved.orbitdesk", saved)
+    wait_for_trajectory(qtbot, s, lambda: window.open_path(tmp_path / "moved.orbitdesk", ask=False))
+    qtbot.waitUntil(lambda: view.result is not None, timeout=20000)
+    assert not view.stale_bar.isHidden() and "k = 1 (now 1.1)" in view.stale_bar.label.text()

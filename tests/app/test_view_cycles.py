@@ -7,11 +7,11 @@ import math
 import numpy as np
 import pytest
 from scipy.integrate import simpson
+from orbitdesk.samples.models import LOGISTIC, VAN_DER_POL_REF, model
 
 from .conftest import load_model, open_view, wait_for_trajectory
 
-VAN_DER_POL = "mu = 1 in [0, 5]\nx'' = mu*(1 - x^2)*x' - x\nx(0) = 0.1\nx'(0) = 0\n"
-LOGISTIC = "r = 3.2\nx[n+1] = r*x*(1 - x)\nx[0] = 0.2\n"
+VAN_DER_POL = model(VAN_DER_POL_REF, ranges={'mu': (0, 5)}, initial={'x(0)': 0.1, "x'(0)": 0})
 
 
 def find(qtbot, view):

@@ -6,27 +6,12 @@ import os
 import numpy as np
 import pytest
 
+from orbitdesk.samples.models import HENON_REF, LORENZ, model
 
 from .conftest import load_model, wait_for_trajectory
 
-LORENZ = """sigma = 10
-r = 28
-beta = 8/3
-x' = sigma*(y - x)
-y' = x*(r - z) - y
-z' = x*y - beta*z
-x(0) = 1
-y(0) = 1
-z(0) = 1
-"""
 
-HENON = """a = 1.4
-b = 0.3
-x[n+1] = 1 - a*x^2 + y
-y[n+1] = b*x
-x[0] = 0.1
-y[0] = 0
-"""
+HENON = model(HENON_REF, initial={'y[0]': 0})
 
 KINKED = """# a forced oscillator with a one-sided spring
 k = 4

@@ -3,10 +3,11 @@ period doubling, the colour bar, clicks setting both parameters, CSV export and 
 
 import numpy as np
 import pytest
+from orbitdesk.samples.models import HENON_REF, model
 
 from .conftest import load_model, open_view
 
-HENON = "a = 1.4 in [0, 1.4]\nb = 0.3 in [0, 0.4]\nx[n+1] = 1 - a*x^2 + y\ny[n+1] = b*x\nx[0] = 0.1\ny[0] = 0.1\n"
+HENON = model(HENON_REF, ranges={'a': (0, 1.4), 'b': (0, 0.4)})
 
 
 def compute(qtbot, view):
@@ -30,7 +31,8 @@ def test_period_map_of_the_henon_map_and_click_sets_both_parameters(qtbot, sessi
         above = [i for i, a in enumerate(grid.xs) if threshold + 0.03 < a < threshold + 0.12]
         assert all(grid.period[j, i] == 1 for i in below), b
         assert all(grid.period[j, i] == 2 for i in above), b
-    assert view.colour_bar.levels() == (-1, 4)  # log2 of the period: none, 1, 2, 4, 8, 16
+    # log2 of the period: none, 1, 2, 4, 8, 16, each tick in the middle of its band (none cut off at the ends)
+    assert view.colour_bar.levels() == (-1.5, 4.5)
     assert np.nanmax(view.image.image) <= 4 and np.nanmin(view.image.image) >= -1
     assert "period" in view.colour_bar.getAxis("right").labelText
     header, rows = view.export_data()
@@ -63,3 +65,34 @@ def test_lyapunov_map_is_centred_on_zero_and_goes_stale(qtbot, session, artifact
     view.grab().save(f"{artifacts}/parameter_map_lyapunov.png")
     session.set_initial("x", 0.2)
     assert not view.stale_bar.isHidden() and "other initial values" in view.stale_bar.label.text()
+
+
+# the Hopf normal form r' = a r - r^3, theta' = w: the origin attracts for a < 0; for a > 0 a limit cycle of
+# period 2 pi / w (closed form)
+HOPF = "a = 0.5 in [-1, 1]\nw = 1 in [1, 2]\nx' = a*x - w*y - x*(x^2 + y^2)\ny' = w*x + a*y - y*(x^2 + y^2)\n" \
+       "x(0) = 0.1\ny(0) = 0\n"
+
+
+def test_period_map_of_an_autonomous_flow_shows_equilibria_and_the_cycles_period_in_time(qtbot, session, artifacts):
+    view = open_view(qtbot, session, "parameter_map", (900, 600))
+    load_model(qtbot, session, HOPF, dict(t_end=20.0, samples=400))
+    assert not view.period.isVisibleTo(view)  # no forcing period to give
+    view.apply_view_settings({"what": "period", "x": {"parameter": "a", "from": -1.0, "to": 1.0, "count": 4},
+                              "y": {"parameter": "w", "from": 1.0, "to": 2.0, "count": 2},
+                              "transient": 200, "max_period": 4})
+    grid = compute(qtbot, view)
+    assert grid.unit == "maxima per cycle"
+    assert grid.period.tolist() == [[-2, -2, 1, 1], [-2, -2, 1, 1]]
+    np.testing.assert_allclose(grid.time_period[:, 2:], [[2 * np.pi] * 2, [np.pi] * 2], rtol=1e-6)
+    assert view.colour_bar.levels() == (-2.5, 2.5)
+    ticks = [label for _v, label in view.colour_bar.getAxis("right")._tickLevels[0]]
+    assert ticks[:2] == ["equilibrium", "none"]
+    from PySide6.QtGui import QFontMetrics
+
+    axis = view.colour_bar.getAxis("right")  # wide enough that pyqtgraph draws the longest tick text
+    qtbot.waitUntil(lambda: axis.width() >= QFontMetrics(axis.font()).horizontalAdvance("equilibrium") + 20,
+                    timeout=3000)
+    assert "period 1: 4 (time 3.142 to 6.283)" in view.info.text() and "equilibrium: 4" in view.info.text()
+    header, rows = view.export_data()
+    assert header[-1] == "period in time" and rows.shape == (8, 4)
+    view.grab().save(f"{artifacts}/parameter_map_autonomous_period.png")

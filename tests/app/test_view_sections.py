@@ -6,6 +6,7 @@ import os
 import numpy as np
 import pytest
 
+from orbitdesk.samples.models import HENON_REF, model
 
 from .conftest import load_model
 
@@ -38,13 +39,7 @@ x'' = -delta*x' + x - x^3 + gamma*cos(w*t)
 x(0) = 0.1
 """
 
-HENON = """a = 1.4
-b = 0.3
-x[n+1] = 1 - a*x^2 + y
-y[n+1] = b*x
-x[0] = 0
-y[0] = 0
-"""
+HENON = model(HENON_REF, initial={'x[0]': 0, 'y[0]': 0})
 
 
 def load(qtbot, session, text, **solver):
@@ -188,3 +183,17 @@ def test_a_strobe_phase_samples_later_in_each_period(qtbot, session):
                       session.initial_vector(), session.param_vector())
     assert result.points[:, 0] == pytest.approx(direct.final_state, abs=1e-6)
     assert view.view_settings()["phase"] == 1.5
+
+
+def test_plane_section_of_a_delay_model(qtbot, session, artifacts):
+    # x' = -(pi/2) x(t - 1) with the history cos(pi t / 2): the solution stays cos(pi t / 2) (closed form),
+    # rising through 0 at t = 3, 7, 11, ... with x'(t) = pi/2 there
+    view = make_view(qtbot, session)
+    view.auto.setChecked(False)
+    load(qtbot, session, "a = pi/2\nx' = -a*x(t - 1)\nx(t) = cos(a*t) for t <= 0\ny' = -y + x\n")
+    view.set_plane("x", 0.0, "up")
+    view.count.setValue(5)
+    view.transient.setValue(0.0)
+    result = wait_section(qtbot, view, view.compute)
+    np.testing.assert_allclose(result.times, [3.0, 7.0, 11.0, 15.0, 19.0], atol=1e-6)
+    view.grab().save(os.path.join(artifacts, "view_sections_delay.png"))

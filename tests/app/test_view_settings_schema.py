@@ -2,12 +2,16 @@
 and reads back every one of them: a sample or a walkthrough step written against that definition is
 what the view shows."""
 
+import json
+
 import pytest
 
+from orbitdesk.document import project as core_project
 from orbitdesk.document.view_settings import VIEW_SETTINGS
+from orbitdesk.document.views import VIEWS
 from orbitdesk.app import views as views_pkg
 
-from .conftest import load_model
+from .conftest import load_model, wait_for_trajectory
 
 DUFFING = """delta = 0.3
 gamma = 0.5 in [0, 0.8]
@@ -54,3 +58,27 @@ def test_sweep_and_sections_read_the_defined_keys(qtbot, session):
     sections.apply_view_settings({"kind": "plane", "coordinate": "x'", "value": 0.25, "direction": "down"})
     got = sections.view_settings()
     assert (got["kind"], got["coordinate"], got["value"], got["direction"]) == ("plane", "x'", 0.25, "down")
+
+
+@pytest.mark.parametrize("info", VIEWS, ids=lambda v: v.id)
+def test_every_registered_view_round_trips_its_settings_through_a_project_file(qtbot, session, tmp_path, info):
+    load_model(qtbot, session, DUFFING, dict(t_end=20.0, samples=400))
+    cls = views_pkg.load_view_class(info.module)
+    assert (cls.view_id, cls.title) == (info.id, info.title)
+    view = cls(session)
+    qtbot.addWidget(view)
+    # switches flipped from their defaults (not "auto": that would start computing), so the file
+    # carries settings a new view would not have by itself
+    flips = {k: not v for k, v in view.view_settings().items()
+             if info.settings.get(k) == "bool" and k != "auto" and isinstance(v, bool)}
+    view.apply_view_settings({**view.view_settings(), **flips})
+    saved = view.view_settings()
+    assert {k: saved[k] for k in flips} == flips
+    project = session.to_project()
+    project.views[info.id] = saved
+    path = tmp_path / "views.orbitdesk"
+    core_project.save(path, project)
+    wait_for_trajectory(qtbot, session, lambda: session.open(path))
+    again = cls(session)
+    qtbot.addWidget(again)
+    assert again.view_settings() == json.loads(json.dumps(saved))

@@ -6,14 +6,13 @@ import os
 import numpy as np
 import pytest
 from PySide6.QtCore import QPoint, Qt
+from PySide6.QtWidgets import QApplication
 
+from orbitdesk.samples.models import LOGISTIC_REF, LORENZ_REF, model
 
 from .conftest import load_model, wait_for_trajectory
 
-LOGISTIC = """r = 3.5 in [2.5, 4]
-x[n+1] = r*x*(1 - x)
-x[0] = 0.3
-"""
+LOGISTIC = model(LOGISTIC_REF, r=3.5, ranges={'r': (2.5, 4)}, initial={'x[0]': 0.3})
 
 FORCED_LINEAR = """zeta = 0.1 in [0.05, 0.5]
 w = 1.4
@@ -23,16 +22,7 @@ x(0) = 0
 v(0) = 0
 """
 
-LORENZ = """sigma = 10
-r = 28 in [20, 200]
-beta = 8/3
-x' = sigma*(y - x)
-y' = x*(r - z) - y
-z' = x*y - beta*z
-x(0) = 1
-y(0) = 1
-z(0) = 1
-"""
+LORENZ = model(LORENZ_REF, ranges={'r': (20, 200)})
 
 
 def load(qtbot, session, text, **solver):
@@ -150,7 +140,7 @@ def test_cancelling_a_long_sweep(qtbot, session):
     assert "Cancelled" in view.strip.label.text()
     # the worker notices the cancel and stops; nothing is shown
     qtbot.waitUntil(lambda: session.jobs.pool.activeThreadCount() == 0, timeout=10000)
-    qtbot.wait(100)
+    QApplication.processEvents()  # what the worker sent before it ended is delivered now
     assert view.result is None and view.points.data.size == 0
     assert not session.jobs.running("sweep")
     # the window still answers: controls work and a small sweep runs to the end

@@ -290,3 +290,19 @@ def test_opening_another_project_ends_the_walkthrough(qtbot, window, tmp_path):
     window.session.new()
     assert not panel.in_walkthrough and panel.steps == [] and panel.current is None
     assert panel.title_label.text() == "No walkthrough yet"
+
+
+def test_a_step_brings_a_view_that_computes_on_request_up_to_date(qtbot, window, tmp_path):
+    # the equilibria view computes through the views' common contract (compute), so a step that opens it
+    # with Automatic off finds the rest points for the step's values; x'' = -w^2 x - c x' has one, the
+    # origin, a centre for c = 0 with eigenvalues +-i w (closed form)
+    step = WalkthroughStep("Rest point", "", {"parameters": {"w": 3.0}, "open_views": ["equilibria"],
+                                              "views": {"equilibria": {"auto": False}}})
+    open_oscillator(qtbot, window, tmp_path, [step])
+    s, panel = window.session, window.walkthrough_panel
+    panel.show_step(0)
+    view = window.views["equilibria"]
+    assert not view.auto.isChecked() and view.on_request and not view.follows_values()
+    qtbot.waitUntil(lambda: len(s.equilibria) == 1, timeout=30000)
+    eq = s.equilibria[0]
+    assert np.allclose(eq.vector, 0.0) and np.allclose(sorted(np.abs(np.imag(eq.eigenvalues))), [3.0, 3.0])

@@ -6,11 +6,12 @@ import sys
 
 import numpy as np
 import pytest
+from orbitdesk.samples.models import LORENZ_REF, model
 
 from .conftest import run_cli
 
 
-LORENZ = "sigma = 10\nr = 28\nbeta = 8/3\nx' = sigma*(y - x)\ny' = x*(r - z) - y\nz' = x*y - beta*z\nx(0) = 1\n"
+LORENZ = model(LORENZ_REF, initial={'y(0)': None, 'z(0)': None})
 
 
 @pytest.fixture

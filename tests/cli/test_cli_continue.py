@@ -4,11 +4,12 @@ import json
 import math
 
 import pytest
+from orbitdesk.samples.models import LOGISTIC_REF, model
 
 from .conftest import run_cli
 
 BRUSSELATOR = "a = 1.5\nb = 1\nx' = a - (b + 1)*x + x^2*y\ny' = b*x - x^2*y\n"
-LOGISTIC = "r = 2.8\nx[n+1] = r*x*(1 - x)\nx[0] = 0.3\n"
+LOGISTIC = model(LOGISTIC_REF, r=2.8, initial={'x[0]': 0.3})
 
 
 def test_continue_json_contract(capsys, model):

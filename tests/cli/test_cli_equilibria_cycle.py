@@ -6,12 +6,12 @@ import math
 
 import numpy as np
 import pytest
+from orbitdesk.samples.models import BRUSSELATOR_REF, LOGISTIC, model
 
 from .conftest import run_cli
 
-BRUSSELATOR = "a = 1\nb = 2.5\nx' = a - (b+1)*x + x^2*y\ny' = b*x - x^2*y\nx(0) = 1\ny(0) = 1.5\n"
+BRUSSELATOR = model(BRUSSELATOR_REF, b=2.5, initial={'x(0)': 1, 'y(0)': 1.5})
 SADDLE = "x' = x\ny' = -y + x^2\n"
-LOGISTIC = "r = 3.2\nx[n+1] = r*x*(1 - x)\nx[0] = 0.2\n"
 CIRCLE = "x' = x - y - x*(x^2 + y^2)\ny' = x + y - y*(x^2 + y^2)\nx(0) = 0.5\n"
 FORCED = "x' = -x + sin(t)\n"
 

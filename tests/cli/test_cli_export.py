@@ -1,6 +1,7 @@
 """The command line contract of export."""
 
 import csv
+import json
 import subprocess
 import sys
 from pathlib import Path
@@ -11,10 +12,11 @@ import pytest
 from orbitdesk.document import project as project_module
 from orbitdesk.engine.runs import simulate
 from orbitdesk.system.compiled_system import compile_model
+from orbitdesk.samples import SAMPLES_DIR
 
 from .conftest import run_cli
 
-SAMPLES = Path(__file__).resolve().parents[2] / "sample_projects"
+SAMPLES = SAMPLES_DIR
 PENDULUM = "g = 9.81\nL = 1\ntheta'' = -(g/L)*sin(theta)\ntheta(0) = 0.3\n"
 
 
@@ -73,7 +75,7 @@ def test_report_to_file(capsys, tmp_path):
 
 def test_bad_input_is_refused_cleanly(capsys, tmp_path, pendulum_file):
     code, _, err = run_cli(capsys, "export", pendulum_file)
-    assert code == 2 and "one of the arguments --latex --script --report --fit-script is required" in err
+    assert code == 2 and "one of the arguments --latex --script --report --fit-script --model is required" in err
     code, _, err = run_cli(capsys, "export", pendulum_file, "--latex", "--script")
     assert code == 2 and "not allowed with" in err
     code, _, err = run_cli(capsys, "export", pendulum_file, "--script", "--standalone")
@@ -88,3 +90,27 @@ def test_bad_input_is_refused_cleanly(capsys, tmp_path, pendulum_file):
     assert code == 2 and "no such file" in err
     code, _, err = run_cli(capsys, "export", pendulum_file, "--latex", "-o", tmp_path / "no" / "dir.tex")
     assert code == 1 and "cannot write" in err
+
+
+def test_model_text_carries_the_values_and_runs_to_the_closed_form(capsys, tmp_path):
+    source = tmp_path / "decay.txt"
+    source.write_text("x' = -k*x\nk = 0.5  # per second\nx(0) = 2\n")
+    target = tmp_path / "tuned.txt"
+    code, _out, _ = run_cli(capsys, "export", source, "--model", "--set", "k=0.25", "--init", "x=3", "-o", target)
+    assert code == 0
+    assert "k = 0.25  # per second" in target.read_text()
+    code, out, _ = run_cli(capsys, "run", target, "--t-end", "4", "--samples", "41")
+    data = json.loads(out)
+    # closed form x(t) = x0 exp(-k t)
+    np.testing.assert_allclose(data["states"]["x"], 3 * np.exp(-0.25 * np.array(data["t"])), rtol=1e-6)
+
+
+def test_model_text_of_a_project_reproduces_its_stored_run(capsys, tmp_path):
+    target = tmp_path / "circuit.txt"
+    code, _out, _ = run_cli(capsys, "export", SAMPLES / "relaxation_circuit.orbitdesk", "--model", "-o", target)
+    assert code == 0
+    code, out_file, _ = run_cli(capsys, "run", target, "--t-end", "5", "--samples", "11")
+    code2, out_project, _ = run_cli(capsys, "run", SAMPLES / "relaxation_circuit.orbitdesk", "--t-end", "5",
+                                    "--samples", "11")
+    assert code == code2 == 0
+    assert json.loads(out_file)["states"] == json.loads(out_project)["states"]

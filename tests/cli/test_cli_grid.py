@@ -5,10 +5,10 @@ import json
 import math
 
 import pytest
+from orbitdesk.samples.models import HENON
 
 from .conftest import run_cli
 
-HENON = "a = 1.4\nb = 0.3\nx[n+1] = 1 - a*x^2 + y\ny[n+1] = b*x\nx[0] = 0.1\ny[0] = 0.1\n"
 FORCED = "c = 0.5\nA = 1\nw = 1.3\nx'' = -c*x' - x + A*cos(w*t)\nx(0) = 0\nx'(0) = 0\n"
 
 
@@ -40,3 +40,19 @@ def test_lyapunov_grid_and_forced_flow_period(capsys, model):
     assert code != 0 and "--strobe T" in err
     code, _, err = run_cli(capsys, "grid", model(HENON), "--x", "a=0.2:0.4", "--y", "b=0.3:0.3:1", "--period")
     assert code != 0 and "NAME=LO:HI:N" in err
+
+
+def test_period_grid_of_an_autonomous_flow_gives_the_period_in_time(capsys, model, tmp_path):
+    # Hopf normal form r' = a r - r^3, theta' = w: equilibrium for a < 0, a cycle of period 2 pi / w for a > 0
+    hopf = "a = 0.5\nw = 1\nx' = a*x - w*y - x*(x^2 + y^2)\ny' = w*x + a*y - y*(x^2 + y^2)\nx(0) = 0.1\ny(0) = 0\n"
+    target = tmp_path / "hopf.csv"
+    code, out, _ = run_cli(capsys, "grid", model(hopf), "--x", "a=-0.5:0.5:2", "--y", "w=2:2:1", "--period",
+                           "--max-period", "4", "--csv", target, "--json")
+    assert code == 0
+    data = json.loads(out)
+    assert data["period"] == [[-2, 1]] and data["unit"] == "maxima per cycle"
+    assert data["time_period"][0][0] is None and data["time_period"][0][1] == pytest.approx(math.pi, rel=1e-6)
+    with open(target, newline="") as f:
+        rows = list(csv.reader(f))
+    assert rows[0] == ["a", "w", "period (maxima per cycle)", "period in time"]
+    assert float(rows[2][3]) == pytest.approx(math.pi, rel=1e-6)

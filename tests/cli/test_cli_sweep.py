@@ -7,13 +7,13 @@ import subprocess
 import sys
 
 import pytest
+from orbitdesk.samples.models import DUFFING_REF, LOGISTIC_REF, model
 
 from .conftest import run_cli
 
 
-LOGISTIC = "r = 3.5\nx[n+1] = r*x*(1 - x)\nx[0] = 0.2\n"
-DUFFING = ("delta = 0.3\ngamma = 0.3\nomega = 1.2\n"
-           "x'' = -delta*x' + x - x^3 + gamma*cos(omega*t)\nx(0) = 1\nx'(0) = 0\n")
+LOGISTIC = model(LOGISTIC_REF, r=3.5)
+DUFFING = model(DUFFING_REF, gamma=0.3, initial={"x'(0)": 0})
 PERIOD = 2 * math.pi / 1.2
 
 

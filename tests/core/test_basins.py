@@ -9,10 +9,11 @@ from scipy.integrate import solve_ivp
 from orbitdesk.analyses.basins import ESCAPE, BasinSettings, basins
 from orbitdesk.engine.progress import CancelToken, Cancelled
 from orbitdesk.system.compiled_system import compile_model
+from orbitdesk.samples.models import DUFFING_REF, HENON_REF, model
 
 # unforced two-well Duffing x'' = -delta x' + x - x^3: stable foci at x = +-1, a saddle at 0 (closed form)
-WELLS = "delta = 0.3\ngamma = 0\nomega = 1.2\nx'' = -delta*x' + x - x^3 + gamma*cos(omega*t)\nx(0) = 0\n"
-HENON = "a = 1.4\nb = 0.3\nx[n+1] = 1 - a*x^2 + y\ny[n+1] = b*x\nx[0] = 0\ny[0] = 0\n"
+WELLS = model(DUFFING_REF, gamma=0, initial={'x(0)': 0})
+HENON = model(HENON_REF, initial={'x[0]': 0, 'y[0]': 0})
 
 
 def reference_well(x0, v0):
@@ -61,3 +62,24 @@ def test_henon_attractor_and_escape_and_cancel():
         basins(system, "x", [0.0], "y", [0.0], BasinSettings(transient=10, samples=4), cancel=token)
     with pytest.raises(ValueError, match="not a state"):
         basins(system, "x", [0.0], "a", [0.0])
+
+
+# r' = -r (r^2 - 1)(r^2 - 4), theta' = 1 in Cartesian form: the origin is a stable focus, the circle r = 1 an
+# unstable cycle (the basin boundary) and the circle r = 2 a stable limit cycle of period 2 pi (closed form).
+RINGS = "g = -(x^2 + y^2 - 1)*(x^2 + y^2 - 4)\nx' = x*g - y\ny' = y*g + x\nx(0) = 0.5\ny(0) = 0\n"
+
+
+def test_an_autonomous_limit_cycle_is_found_with_its_period_beside_an_equilibrium():
+    system = compile_model(RINGS)
+    xs = ys = np.linspace(-2.5, 2.5, 9)
+    result = basins(system, "x", xs, "y", ys, BasinSettings(transient=40.0, samples=12, every=0.5))
+    by_kind = {a["kind"]: a for a in result.attractors}
+    assert set(by_kind) == {"equilibrium", "limit cycle"}
+    cycle = by_kind["limit cycle"]
+    assert cycle["period"] == pytest.approx(2 * math.pi, rel=1e-7)  # closed form
+    # the non-trivial Floquet multiplier: exp(T d(r g)/dr at r = 2) = exp(-48 pi), about 0 (closed form)
+    assert cycle["multiplier"] < 1e-6
+    gx, gy = np.meshgrid(xs, ys)
+    inside = np.hypot(gx, gy) < 1  # no start on the unstable circle r = 1 in this grid
+    assert np.all(result.labels[inside] == by_kind["equilibrium"]["label"])
+    assert np.all(result.labels[~inside] == cycle["label"])

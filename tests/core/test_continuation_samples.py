@@ -10,8 +10,9 @@ from orbitdesk.document import project as project_module
 from orbitdesk.analyses.continuation.results import Branch, locus_from_saved, response_from_saved
 from orbitdesk.engine.runs import RunSettings, simulate
 from orbitdesk.system.compiled_system import compile_model
+from orbitdesk.samples import SAMPLES_DIR
 
-SAMPLES = Path(__file__).resolve().parents[2] / "sample_projects"
+SAMPLES = SAMPLES_DIR
 
 
 def stored(name, title_word):

@@ -10,13 +10,12 @@ from scipy.special import ai_zeros
 from orbitdesk.analyses.cycles import CycleError, detect_forcing_period, find_cycle, find_map_cycle
 from orbitdesk.engine.progress import CancelToken, Cancelled
 from orbitdesk.system.compiled_system import compile_model
+from orbitdesk.samples.models import BRUSSELATOR_REF, LOGISTIC, VAN_DER_POL, model
 
 pytestmark = pytest.mark.fallback  # published values: run with the compiler and without
 
-VAN_DER_POL = "mu = 1\nx'' = mu*(1 - x^2)*x' - x\nx(0) = 0.5\n"
 CIRCLE = "x' = x - y - x*(x^2 + y^2)\ny' = x + y - y*(x^2 + y^2)\nx(0) = 0.5\n"
-BRUSSELATOR = "a = 1\nb = 2.5\nx' = a - (b+1)*x + x^2*y\ny' = b*x - x^2*y\nx(0) = 1\ny(0) = 1.5\n"
-LOGISTIC = "r = 3.2\nx[n+1] = r*x*(1 - x)\nx[0] = 0.2\n"
+BRUSSELATOR = model(BRUSSELATOR_REF, b=2.5, initial={'x(0)': 1, 'y(0)': 1.5})
 
 
 @pytest.fixture(scope="module")

@@ -23,9 +23,9 @@ from orbitdesk.engine.executors import ClusterExecutor, SchedulerError, cluster_
 from orbitdesk.engine.progress import CancelToken, Cancelled  # noqa: E402
 from orbitdesk.analyses.sweep import GridSettings, SweepSettings, lyapunov_grid, sweep  # noqa: E402
 from orbitdesk.system.compiled_system import compile_model  # noqa: E402
+from orbitdesk.samples.models import HENON, LOGISTIC_REF, model
 
-HENON = "a = 1.4\nb = 0.3\nx[n+1] = 1 - a*x^2 + y\ny[n+1] = b*x\nx[0] = 0.1\ny[0] = 0.1\n"
-LOGISTIC = "r = 3.5\nx[n+1] = r*x*(1 - x)\nx[0] = 0.3\n"
+LOGISTIC = model(LOGISTIC_REF, r=3.5, initial={'x[0]': 0.3})
 ROOT = Path(__file__).resolve().parents[2]
 
 

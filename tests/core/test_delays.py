@@ -56,6 +56,9 @@ def test_history_of_a_second_order_equation_gives_the_derivative_its_history():
     ("x' = -x(t - 1)\nz(t) = 1 for t <= 0\n", (2, 1, 5), "not a state"),
     ("x' = -x(t - 1)\ny' = 1\nx(t) = y for t <= 0\n", (3, 8, 9), "'y' is a state"),
     ("x' = -x(t - 1)\nx(t) = 1 for t <= 0\nx(t) = 2 for t <= 0\n", (3, 1, 5), "second history"),
+    ("N = 3\nx_{i}' = -x_{i}(t - 1)   for i in 1..N\n", (2, 11, 17), "family members"),
+    ("x' = -x'(t - 1)\n", (1, 7, 16), "neutral equation"),
+    ("x'' = -x''(t - 1) - x\n", (1, 8, 18), "neutral equation"),
 ])
 def test_diagnostics_are_exact(text, where, words):
     errors = _errors(text)
@@ -239,8 +242,9 @@ MACKEY_GLASS = ("beta = 0.2\ngamma = 0.1\ntau = {tau}\nx' = beta*x(t - tau)/(1 +
 
 @pytest.mark.slow
 def test_mackey_glass_largest_exponent_positive_at_a_chaotic_delay():
-    # Mackey & Glass, Science 197 (1977) 287: chaotic at tau = 17 (Farmer, Physica 4D (1982): a positive
-    # largest exponent there); at tau = 5 the solution settles on a periodic orbit (exponent zero)
+    # Mackey & Glass, Science 197 (1977) 287 (reference from memory): chaotic at tau = 17
+    # (Farmer, Physica 4D (1982): a positive largest exponent there); at tau = 5 the solution settles
+    # on a periodic orbit (exponent zero)
     from orbitdesk.analyses.lyapunov import largest_lyapunov_two_trajectory
 
     chaotic = largest_lyapunov_two_trajectory(compile_model(MACKEY_GLASS.format(tau=17)), t_end=3500,
@@ -348,3 +352,49 @@ def test_two_delays_against_an_exponential_solution():
     run = simulate(system, RunSettings(t_end=10, samples=101, rtol=1e-10, atol=1e-12))
     assert run.status == OK
     assert np.max(np.abs(run.states[0] - np.exp(lam * run.time))) < 1e-9
+
+
+def test_largest_exponent_at_a_stable_equilibrium_is_the_rightmost_root():
+    # near a stable equilibrium nearby histories close in at the rate of the rightmost characteristic root:
+    # x' = -a x(t - 1) - x^3 at a = 1.2 gives Re W_0(-1.2) (closed form; scipy's lambertw)
+    from scipy.special import lambertw
+
+    from orbitdesk.analyses.lyapunov import largest_lyapunov_two_trajectory
+
+    system = compile_model("a = 1.2\nx' = -a*x(t - 1) - x^3\nx(0) = 0.5\n")
+    result = largest_lyapunov_two_trajectory(system, t_end=120, transient=20)
+    assert result.ok
+    assert result.largest == pytest.approx(lambertw(-1.2).real, abs=0.01)
+
+
+def test_section_on_a_derived_quantity_with_a_delay_finds_the_maxima():
+    # x' = -(pi/2) x(t - 1), history cos(pi t / 2): x = cos(pi t / 2) (closed form); the rate, a derived
+    # quantity with the delayed value in it, falls through 0 at the maxima t = 4, 8, 12 where x = 1
+    from orbitdesk.analyses.sections import plane_section
+
+    system = compile_model("a = pi/2\nrate = -a*x(t - 1)\nx' = rate\nx(t) = cos(a*t) for t <= 0\n")
+    result = plane_section(system, coordinate="rate", value=0.0, direction="down", count=3, transient=1.0,
+                           settings=RunSettings(t_end=10, rtol=1e-10, atol=1e-12))
+    assert result.status == OK and result.complete
+    assert result.times == pytest.approx([4.0, 8.0, 12.0], abs=1e-6)
+    assert result.points[0] == pytest.approx([1.0, 1.0, 1.0], abs=1e-9)
+
+
+def test_report_of_a_delay_project_shows_the_delays_and_the_roots():
+    # a person reading the report sees x(t - tau) in the equations and derived quantities, the method of
+    # steps with its history, and the rightmost roots (W_0(-1.2) for a = 1.2, tau = 1; scipy's lambertw)
+    from scipy.special import lambertw
+
+    from orbitdesk.analyses.equilibria import find_equilibria
+    from orbitdesk.document.project import Project
+    from orbitdesk.exports.report import render_report
+
+    model = "a = 1.2\ntau = 1\nx' = -a*x(t - tau)\nx(t) = cos(t) for t <= 0\nlagged = x(t - tau)\n"
+    system = compile_model(model)
+    text = render_report(Project(name="Lag", model=model), system, {},
+                         equilibria=find_equilibria(system, exact=False, starts=5))
+    assert "= -a*x(t - tau)" in text and "= x(t - tau)" in text
+    assert "method of steps" in text and "history x(t) = cos(t) for t &lt;= 0" in text
+    root = complex(lambertw(-1.2))
+    assert "rightmost characteristic roots" in text
+    assert f"\u2212{-root.real:.4f} \u00b1 {root.imag:.3f}i" in text  # -0.1905 +- 1.439i

@@ -9,11 +9,12 @@ from orbitdesk.engine.ensembles import (DIVERGED, OK, UNDEFINED, dopri5_ensemble
                                      rk4_ensemble)
 from orbitdesk.engine.progress import CancelToken, Cancelled
 from orbitdesk.system.compiled_system import compile_model
+from orbitdesk.samples.models import LOGISTIC_REF, VAN_DER_POL_REF, model
 
 OSCILLATOR = "w = 1\nx'' = -w^2*x\nx(0) = 1\nx'(0) = 0\n"
-VAN_DER_POL = "mu = 1\nx'' = mu*(1 - x^2)*x' - x\nx(0) = 2\nx'(0) = 0\n"
+VAN_DER_POL = model(VAN_DER_POL_REF, initial={'x(0)': 2, "x'(0)": 0})
 BLOW_UP = "a = 1\nx' = a*x^2\nx(0) = 1\n"
-LOGISTIC = "r = 3.7\nx[n+1] = r*x*(1 - x)\nx[0] = 0.2\n"
+LOGISTIC = model(LOGISTIC_REF, r=3.7)
 
 
 def _members(system, n_members):

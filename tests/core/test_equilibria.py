@@ -8,10 +8,10 @@ import pytest
 from orbitdesk.analyses.equilibria import classify, find_equilibria
 from orbitdesk.engine.progress import CancelToken, Cancelled
 from orbitdesk.system.compiled_system import compile_model
+from orbitdesk.samples.models import BRUSSELATOR, LOGISTIC_REF, LORENZ_REF, model
 
-LORENZ = "sigma = 10\nr = 28\nbeta = 8/3\nx' = sigma*(y - x)\ny' = x*(r - z) - y\nz' = x*y - beta*z\nx(0) = 1\n"
-BRUSSELATOR = "a = 1\nb = 2\nx' = a - (b+1)*x + x^2*y\ny' = b*x - x^2*y\n"
-LOGISTIC = "r = 2.5\nx[n+1] = r*x*(1 - x)\nx[0] = 0.2\n"
+LORENZ = model(LORENZ_REF, initial={'y(0)': None, 'z(0)': None})
+LOGISTIC = model(LOGISTIC_REF, r=2.5)
 
 
 def nearest(eqs, point):

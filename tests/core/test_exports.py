@@ -18,14 +18,14 @@ from orbitdesk.exports.run_script import run_script
 from orbitdesk.document.project import ParameterSetting, Project, WalkthroughStep
 from orbitdesk.exports.report import render_report
 from orbitdesk.system.compiled_system import compile_model
+from orbitdesk.samples.models import LOGISTIC_REF, LORENZ_REF, VAN_DER_POL_REF, model
 
-LORENZ = ("sigma = 10 in [0, 20]\nr = 28\nbeta = 8/3\nx' = sigma*(y - x)\ny' = x*(r - z) - y\n"
-          "z' = x*y - beta*z\nx(0) = 1\n")
+LORENZ = model(LORENZ_REF, ranges={'sigma': (0, 20)}, initial={'y(0)': None, 'z(0)': None})
 BEAM = ("delta = 0.3 in [0, 1]\ngamma = 0.37\nomega = 1.2\nx'' = -delta*x' + x - x^3 + gamma*cos(omega*t)\n"
         "x(0) = 1\nx'(0) = 0\nenergy = x'^2/2 - x^2/2 + x^4/4\n")
-LOGISTIC = "r = 3.9 in [2.5, 4]\nx[n+1] = r*x*(1 - x)\nx[0] = 0.2\n"
+LOGISTIC = model(LOGISTIC_REF, r=3.9, ranges={'r': (2.5, 4)})
 HENON = "a = 1.4\nb = 0.3\nx[n+1] = 1 - a*x^2 + y\ny[n+1] = b*x\nx[0] = 0.1\ny[0] = 0.1\nsize = sqrt(x^2 + y^2)\n"
-VAN_DER_POL = "mu = 2 in [0, 5]\nx'' = mu*(1 - x^2)*x' - x\nx(0) = 0.5\n"
+VAN_DER_POL = model(VAN_DER_POL_REF, mu=2, ranges={'mu': (0, 5)})
 
 
 # ---------------------------------------------------------------- LaTeX

@@ -1,5 +1,5 @@
 """Nothing below orbitdesk/app imports Qt, pyqtgraph or OpenGL: every headless folder (language, system,
-engine, analyses, document, exports, cli) is read from the source and checked by importing it."""
+engine, analyses, document, exports, cli, samples) is read from the source and checked by importing it."""
 
 import ast
 import json
@@ -8,7 +8,7 @@ import sys
 from pathlib import Path
 
 PACKAGE = Path(__file__).resolve().parents[2] / "orbitdesk"
-HEADLESS = ("language", "system", "engine", "analyses", "document", "exports", "cli")
+HEADLESS = ("language", "system", "engine", "analyses", "document", "exports", "cli", "samples")
 FORBIDDEN = ("PySide6", "PySide2", "PyQt5", "PyQt6", "shiboken6", "shiboken2", "pyqtgraph", "OpenGL", "qtpy")
 
 

@@ -12,8 +12,9 @@ from orbitdesk.engine.runs import RunSettings, simulate
 from orbitdesk.language.model import parse_model
 from orbitdesk.system.compiled_system import compile_model
 from orbitdesk.document.walkthrough import apply_step
+from orbitdesk.samples import SAMPLES_DIR
 
-SAMPLES = Path(__file__).resolve().parents[2] / "sample_projects"
+SAMPLES = SAMPLES_DIR
 NAMES = ["shaken_beam", "convection_loop", "relaxation_circuit", "clock_reaction", "pond_predators",
          "insect_generations", "pendulum", "stirred_tank", "wagon_train", "bracket_pluck", "long_shower", "rocking_buoy"]
 

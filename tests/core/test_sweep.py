@@ -11,11 +11,10 @@ from orbitdesk.engine.progress import CancelToken, Cancelled
 from orbitdesk.analyses.sweep import (BOTH, DOWN, MAXIMA, PLANE, STROBE, UP, GridSettings, SweepSettings,
                                   grid_exponents, lyapunov_grid, sweep)
 from orbitdesk.system.compiled_system import compile_model
+from orbitdesk.samples.models import DUFFING_REF, HENON, LOGISTIC_REF, model
 
-LOGISTIC = "r = 3.5\nx[n+1] = r*x*(1 - x)\nx[0] = 0.2\n"
-HENON = "a = 1.4\nb = 0.3\nx[n+1] = 1 - a*x^2 + y\ny[n+1] = b*x\nx[0] = 0.1\ny[0] = 0.1\n"
-DUFFING = ("delta = 0.3\ngamma = 0.3\nomega = 1.2\n"
-           "x'' = -delta*x' + x - x^3 + gamma*cos(omega*t)\nx(0) = 1\nx'(0) = 0\n")
+LOGISTIC = model(LOGISTIC_REF, r=3.5)
+DUFFING = model(DUFFING_REF, gamma=0.3, initial={"x'(0)": 0})
 OSCILLATOR = "w = 1\nE = (x'^2 + w^2*x^2)/2\nx'' = -w^2*x\nx(0) = 1\nx'(0) = 0\n"
 PERIOD = 2 * math.pi / 1.2  # forcing period of DUFFING
 

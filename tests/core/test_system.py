@@ -5,8 +5,9 @@ import pytest
 import sympy as sp
 
 from orbitdesk.system.compiled_system import ModelError, UndefinedValue, compile_model
+from orbitdesk.samples.models import LORENZ_REF, model
 
-LORENZ = "sigma = 10\nr = 28\nbeta = 8/3\nx' = sigma*(y - x)\ny' = x*(r - z) - y\nz' = x*y - beta*z\nx(0) = 1\n"
+LORENZ = model(LORENZ_REF, initial={'y(0)': None, 'z(0)': None})
 
 
 def test_lorenz_jacobian_is_the_textbook_matrix():

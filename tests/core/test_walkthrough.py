@@ -6,8 +6,9 @@ from orbitdesk.document.project import WalkthroughStep, dumps, loads, Project
 from orbitdesk.system.compiled_system import compile_model
 from orbitdesk.document.walkthrough import (apply_step, delete_step, move_step, record_step, render_note,
                                         validate_snapshot)
+from orbitdesk.samples.models import LORENZ_REF, model
 
-LORENZ = "sigma = 10\nr = 28\nbeta = 8/3\nx' = sigma*(y - x)\ny' = x*(r - z) - y\nz' = x*y - beta*z\nx(0) = 1\n"
+LORENZ = model(LORENZ_REF, initial={'y(0)': None, 'z(0)': None})
 
 STATE = {
     "parameters": {"r": 24.5, "sigma": 10.0},

@@ -134,15 +134,14 @@ class EquationEditor(QPlainTextEdit):
         self.comment_action.triggered.connect(self.toggle_comment)
         self.addAction(self.comment_action)
 
-        text = getattr(session, "text", "") or ""
+        text = session.text
         if text:
             self._replace_text(text)
         self.textChanged.connect(self._on_user_edit)
         session.textChanged.connect(self.on_session_text)
         session.modelParsed.connect(self.on_model_parsed)
-        parsed = getattr(session, "parsed", None)
-        if parsed is not None:
-            self.on_model_parsed(parsed)
+        if session.parsed is not None:
+            self.on_model_parsed(session.parsed)
 
     # ------------------------------------------------------------ public API
     def diagnostics(self) -> list[Diagnostic]:
@@ -291,17 +290,16 @@ class EquationEditor(QPlainTextEdit):
     def event(self, event) -> bool:
         if event.type() == QEvent.Type.ShortcutOverride:
             if event.matches(QKeySequence.StandardKey.Undo) or event.matches(QKeySequence.StandardKey.Redo):
-                if getattr(self.session, "undo_stack", None) is not None:
-                    event.accept()
-                    return True
+                event.accept()
+                return True
         return super().event(event)
 
     def keyPressEvent(self, event) -> None:
-        stack = getattr(self.session, "undo_stack", None)
-        if stack is not None and event.matches(QKeySequence.StandardKey.Undo):
+        stack = self.session.undo_stack
+        if event.matches(QKeySequence.StandardKey.Undo):
             stack.undo()
             return
-        if stack is not None and event.matches(QKeySequence.StandardKey.Redo):
+        if event.matches(QKeySequence.StandardKey.Redo):
             stack.redo()
             return
         mods = event.modifiers() & ~(Qt.KeyboardModifier.ShiftModifier | Qt.KeyboardModifier.KeypadModifier)

@@ -178,7 +178,7 @@ class ParameterPanel(QWidget):
 
         session.systemChanged.connect(self.on_system_changed)
         session.valuesChanged.connect(self.on_values_changed)
-        self.on_system_changed(getattr(session, "system", None))
+        self.on_system_changed(session.system)
 
     # ---------------------------------------------------------------- public API
     def rows(self) -> dict[tuple[str, str], ValueRow]:
@@ -213,11 +213,10 @@ class ParameterPanel(QWidget):
         self.on_values_changed()
 
     def on_values_changed(self) -> None:
-        system = getattr(self.session, "system", None)
+        system = self.session.system
         if system is not None and self._rows:
             self._update_model_values(system)
-        params = getattr(self.session, "params", None) or {}
-        initial = getattr(self.session, "initial", None) or {}
+        params, initial = self.session.params, self.session.initial
         for (kind, name), row in self._rows.items():
             source = params if kind == "param" else initial
             if name in source and (kind, name) not in self._pending:
@@ -229,9 +228,8 @@ class ParameterPanel(QWidget):
         self.session.reset_values()
 
     def _ranges(self, system):
-        ranges = getattr(self.session, "param_range", None)
         for name, value in zip(system.parameters, system.param_values):
-            lo, hi = ranges(name) if ranges is not None else system.param_ranges.get(name, (None, None))
+            lo, hi = self.session.param_range(name)
             yield "param", name, name, float(value), slider_range(value, lo, hi), lo is not None
         for name, value in zip(system.states, system.initial):
             label = f"{name}(0)" if system.kind == _flow() else f"{name}[0]"

@@ -296,7 +296,7 @@ class ModelReadback(QWidget):
         if not system.derived_names:
             return ""
         rows = [self._equation_row(n, model_str(e), self._c["derived"])
-                for n, e in zip(system.derived_names, system.derived_exprs)]
+                for n, e in zip(system.derived_names, system.derived_delayed or system.derived_exprs)]
         return self._heading("Derived quantities") + self._table(rows)
 
     def _jacobian(self, system) -> str:

@@ -3,33 +3,30 @@
 Showing a step puts its snapshot on screen (values, solver settings, which views are open and how they
 are set, the 3D camera, the selected equilibrium, the section, the time cursor) without touching the
 undo history; leaving the walkthrough gives the user's own state back. Recording, deleting, moving and
-editing steps are undoable edits of the project. ``capture_state`` and ``put_on_screen`` translate between
-the window and the snapshot shape of ``orbitdesk.document.walkthrough``.
+editing steps are undoable edits of the live document. ``walkthrough_screen.capture_state`` and
+``put_on_screen`` translate between the window and the snapshot shape of ``orbitdesk.document.walkthrough``.
 """
 
 from __future__ import annotations
 
-import copy
 import html
-import math
-import time
 
 from PySide6.QtCore import QByteArray, QEvent, Qt, QTimer, Signal
-from PySide6.QtGui import QFont, QPalette, QUndoCommand
+from PySide6.QtGui import QFont, QPalette
 from PySide6.QtWidgets import (QAbstractItemView, QAbstractSlider, QAbstractSpinBox, QApplication, QComboBox,
                                QDockWidget, QFrame, QHBoxLayout, QLabel, QLineEdit, QListWidget, QListWidgetItem,
                                QPlainTextEdit, QPushButton, QSizePolicy, QSplitter, QTextBrowser, QTextEdit,
                                QToolButton, QVBoxLayout, QWidget)
 
 from orbitdesk.document.project import WalkthroughStep
-from orbitdesk.document.walkthrough import VIEW_IDS, apply_step, delete_step, move_step, record_step, render_note
+from orbitdesk.document.views import title_of
+from orbitdesk.document.walkthrough import apply_step, delete_step, move_step, record_step, render_note
 
-from orbitdesk.app import views as views_pkg
-from orbitdesk.app.dock_layout import is_open, keep_side_widths, show_docks
+from orbitdesk.app.dock_layout import keep_side_widths
 from orbitdesk.app.plain_text import rich_tip
-from orbitdesk.app.session import SOLVER_FIELDS
+from orbitdesk.app.panels.walkthrough_screen import apply_to_view, capture_state, model_info, put_on_screen
 
-EDIT_MERGE_SECONDS = 2.0
+_SELECTED = object()   # the row selected now
 TITLE_SCALE = (1.3, 2.3)       # step title: normal, presenting (times the panel's font)
 NOTE_SCALE = (1.0, 1.75)       # note text
 PRESENT_WIDTH = 0.32           # share of the window the panel takes while presenting
@@ -40,230 +37,6 @@ MARKUP_HINT = ("Note markup: a blank line starts a paragraph; *emphasis*, **stro
 PRESENT_KEYS = {Qt.Key.Key_Right: "next", Qt.Key.Key_PageDown: "next", Qt.Key.Key_Left: "previous",
                 Qt.Key.Key_PageUp: "previous", Qt.Key.Key_Escape: "stop"}
 KEYPAD = Qt.KeyboardModifier.KeypadModifier
-CAMERA_VIEW, EQUILIBRIA_VIEW, SECTIONS_VIEW = "phase_space_3d", "equilibria", "sections"
-
-
-# ---------------------------------------------------------------- window <-> snapshot
-
-def _view_modules(window) -> dict[str, str]:
-    """view_id -> module name for every view this window can show (module name when not yet imported)."""
-    out = {}
-    for module in window.view_docks:
-        view = window.views.get(module)
-        out[getattr(view, "view_id", module)] = module
-    return out
-
-
-def model_info(session):
-    """What apply_step checks names against: the active system, else the last parse, else nothing."""
-    if session.system is not None:
-        return session.system
-    if session.parsed is not None:
-        return session.parsed
-    return {"states": [], "parameters": []}
-
-
-def capture_state(window) -> dict:
-    """What is on screen now, in the snapshot shape of ``orbitdesk.document.walkthrough``."""
-    s = window.session
-    state = {"parameters": dict(s.params), "initial": dict(s.initial),
-             "solver": {k: getattr(s.solver, k) for k in SOLVER_FIELDS}}
-    open_views, settings = [], {}
-    for view_id, module in _view_modules(window).items():
-        if not is_open(window.view_docks[module]):
-            continue
-        open_views.append(view_id)
-        view = window.views.get(module)
-        if view is None:
-            continue
-        try:
-            d = copy.deepcopy(view.view_settings())
-        except Exception:  # noqa: BLE001 - a view that cannot report is left out of the step
-            continue
-        if view_id == CAMERA_VIEW and isinstance(d.get("camera"), dict):
-            state["camera"] = d.pop("camera")
-        if view_id == EQUILIBRIA_VIEW and "selected" in d:
-            selected = d.pop("selected")
-            state["selected_equilibrium"] = selected if isinstance(selected, int) else None
-        if view_id == SECTIONS_VIEW:
-            section = _section_of(d, s)
-            if section is not None:
-                state["section"] = section
-        settings[view_id] = d
-    state["open_views"] = open_views
-    state["views"] = settings
-    if s.trajectory is not None and math.isfinite(s.time_cursor):
-        state["time_cursor"] = float(s.time_cursor)
-    return state
-
-
-def _section_of(d: dict, session) -> dict | None:
-    """The snapshot's section ({"plane": "x=0", "direction": ...} or {"strobe": T}) from a sections view's settings."""
-    kind = d.get("kind")
-    states = list(session.system.states) if session.system is not None else []
-    if kind == "strobe" and isinstance(d.get("period"), (int, float)) and d["period"] > 0:
-        phase = d.get("phase")
-        if isinstance(phase, (int, float)) and phase > 0:
-            return {"strobe": float(d["period"]), "phase": float(phase)}
-        return {"strobe": float(d["period"])}
-    if kind == "plane" and d.get("coordinate") in states and isinstance(d.get("value"), (int, float)):
-        return {"plane": f"{d['coordinate']}={float(d['value'])!r}", "direction": d.get("direction", "up")}
-    return None
-
-
-def _apply_view(view, changes: dict) -> None:
-    """Apply ``changes`` over the view's present settings (views reset keys a partial dict leaves out)."""
-    try:
-        current = view.view_settings()
-    except Exception:  # noqa: BLE001
-        current = {}
-    view.apply_view_settings({**current, **changes})
-
-
-class ScreenResult:
-    """What ``put_on_screen`` could not do: ``problems`` (plain words) and views this build does not have."""
-
-    def __init__(self):
-        self.problems: list[str] = []
-        self.missing_views: list[str] = []
-
-
-def put_on_screen(window, new_state: dict, snapshot: dict, arrange: bool = True, defer=None) -> ScreenResult:
-    """Show ``new_state`` (from ``apply_step``) in the window; only what ``snapshot`` names is changed.
-
-    Settings for a view that has not been created yet go to ``defer(module, changes, section)``."""
-    s, out = window.session, ScreenResult()
-    modules = _view_modules(window)
-    generation = s.generation
-    s.show_state(new_state.get("parameters") if "parameters" in snapshot else None,
-                 new_state.get("initial") if "initial" in snapshot else None,
-                 new_state.get("solver") if "solver" in snapshot else None)
-
-    def unknown(view_id):
-        if view_id in VIEW_IDS:
-            if view_id not in out.missing_views:
-                out.missing_views.append(view_id)
-        else:
-            out.problems.append(f"this step names a view '{view_id}' that OrbitDesk does not have")
-
-    if "open_views" in snapshot:
-        wanted = []
-        for view_id in new_state.get("open_views", []):
-            if view_id in modules:
-                wanted.append(modules[view_id])
-            else:
-                unknown(view_id)
-        show_docks(window, wanted, arrange)
-        for module in wanted:
-            if window.ensure_view(module) is None:
-                out.problems.append(f"the {views_pkg.module_title(module).lower()} view could not be opened")
-
-    changes: dict[str, dict] = {}
-    for view_id in snapshot.get("views", {}) if isinstance(snapshot.get("views"), dict) else ():
-        if view_id in new_state.get("views", {}):
-            changes[view_id] = dict(new_state["views"][view_id])
-    if "camera" in snapshot and "camera" in new_state:
-        changes.setdefault(CAMERA_VIEW, {})["camera"] = new_state["camera"]
-    if "selected_equilibrium" in snapshot:
-        changes.setdefault(EQUILIBRIA_VIEW, {})["selected"] = new_state.get("selected_equilibrium")
-    section = new_state.get("section") if "section" in snapshot else None
-    if section is not None:
-        changes.setdefault(SECTIONS_VIEW, {})
-    for view_id, d in changes.items():
-        module = modules.get(view_id)
-        if module is None:
-            if view_id in snapshot.get("views", {}) or view_id == SECTIONS_VIEW:
-                unknown(view_id)
-            continue
-        view = window.views.get(module)
-        if view is None:
-            if defer is not None:
-                defer(module, d, section if view_id == SECTIONS_VIEW else None)
-            continue
-        _apply_to_view(view, d, section if view_id == SECTIONS_VIEW else None)
-
-    if "time_cursor" in snapshot and "time_cursor" in new_state:
-        s.set_time_cursor(new_state["time_cursor"])
-    if "open_views" in snapshot:
-        for view_id in new_state.get("open_views", []):
-            view = window.views.get(modules.get(view_id, ""))
-            if view is not None and view_id != SECTIONS_VIEW:
-                _bring_up_to_date(view, s.generation != generation)
-            if view is not None and hasattr(view, "fit_after_next_run"):
-                view.fit_after_next_run()  # the step's plots shown whole, once its run is in
-    return out
-
-
-def _bring_up_to_date(view, values_changed: bool) -> None:
-    """A view that computes only on request (a sweep, the Lyapunov spectrum) computes for the step's
-    values; views that follow the values by themselves are left alone."""
-    auto = getattr(view, "auto", None)
-    if auto is not None and hasattr(auto, "isChecked") and auto.isChecked():
-        return
-    compute = getattr(view, "compute", None) or getattr(view, "run", None)
-    if callable(compute) and (values_changed or getattr(view, "result", None) is None):
-        compute()
-
-
-def _apply_to_view(view, changes: dict, section: dict | None) -> None:
-    if changes:
-        _apply_view(view, changes)
-    if section is None:
-        return
-    if "strobe" in section and hasattr(view, "set_strobe"):
-        view.set_strobe(section["strobe"], section.get("phase", 0.0))
-    elif "plane" in section and hasattr(view, "set_plane"):
-        name, _, value = section["plane"].partition("=")
-        view.set_plane(name, float(value), section.get("direction", "up"))
-    compute = getattr(view, "compute", None)
-    if compute is not None:
-        compute()
-
-
-# ---------------------------------------------------------------- undo commands
-
-class _StepsCommand(QUndoCommand):
-    """Replace the whole list of steps (record, delete, move); ``select`` is the row to select after."""
-
-    def __init__(self, panel: "WalkthroughPanel", label: str, old: list, new: list, select_old, select_new):
-        super().__init__(label)
-        self.panel, self.old, self.new = panel, copy.deepcopy(old), copy.deepcopy(new)
-        self.select_old, self.select_new = select_old, select_new
-
-    def redo(self):
-        self.panel._set_steps(copy.deepcopy(self.new), self.select_new)
-
-    def undo(self):
-        self.panel._set_steps(copy.deepcopy(self.old), self.select_old)
-
-
-class _StepTextCommand(QUndoCommand):
-    """A step's title or note; consecutive typing in the same field merges into one undo step."""
-
-    ID = 2001
-
-    def __init__(self, panel: "WalkthroughPanel", index: int, field: str, old: str, new: str):
-        super().__init__("Edit step title" if field == "title" else "Edit step note")
-        self.panel, self.index, self.field, self.old, self.new = panel, index, field, old, new
-        self.stamp = time.monotonic()
-
-    def id(self):
-        return self.ID
-
-    def redo(self):
-        self.panel._set_text(self.index, self.field, self.new)
-
-    def undo(self):
-        self.panel._set_text(self.index, self.field, self.old)
-
-    def mergeWith(self, other):
-        if (other.id() != self.ID or (other.index, other.field) != (self.index, self.field)
-                or other.stamp - self.stamp > EDIT_MERGE_SECONDS):
-            return False
-        self.new, self.stamp = other.new, other.stamp
-        if self.new == self.old:
-            self.setObsolete(True)
-        return True
 
 
 # ---------------------------------------------------------------- the panel
@@ -313,6 +86,7 @@ class WalkthroughPanel(QWidget):
         self._syncing = False
         self._build()
         self.session.projectLoaded.connect(self._on_project_loaded)
+        self.session.stepChanged.connect(self._step_text_changed)
         for module, dock in window.view_docks.items():
             dock.visibilityChanged.connect(lambda visible, m=module: visible and self._apply_pending(m))
         self._refresh_list(None)
@@ -530,11 +304,14 @@ class WalkthroughPanel(QWidget):
     def _apply_pending(self, module: str) -> None:
         if module in self._pending and module in self.main_window.views:
             changes, section = self._pending.pop(module)
-            _apply_to_view(self.main_window.views[module], changes, section)
+            apply_to_view(self.main_window.views[module], changes, section)
 
     # ------------------------------------------------------------ editing (undoable)
-    def _push(self, label: str, new: list, select_new) -> None:
-        self.session.undo_stack.push(_StepsCommand(self, label, self.steps, new, self.selected_index(), select_new))
+    def _push(self, label: str, new: list, select_new, select_old=_SELECTED) -> None:
+        """Replace the steps (record, delete, move) as one undo step; the row to select after redo / undo."""
+        select_old = self.selected_index() if select_old is _SELECTED else select_old
+        self.session.replace_part("walkthrough", new, label,
+                                  after=lambda redone: self._steps_replaced(select_new if redone else select_old))
 
     def record(self, title: str | None = None, note: str = "") -> WalkthroughStep | None:
         """Add a step showing what is on screen now, after the selected step (else at the end)."""
@@ -600,11 +377,10 @@ class WalkthroughPanel(QWidget):
     def set_title(self, index: int, text: str) -> None:
         text = text if text.strip() else self.steps[index].title
         if text != self.steps[index].title:
-            self.session.undo_stack.push(_StepTextCommand(self, index, "title", self.steps[index].title, text))
+            self.session.doc.set_step_text(index, "title", text)
 
     def set_note(self, index: int, text: str) -> None:
-        if text != self.steps[index].note:
-            self.session.undo_stack.push(_StepTextCommand(self, index, "note", self.steps[index].note, text))
+        self.session.doc.set_step_text(index, "note", text)
 
     def _edited(self, field: str, text: str) -> None:
         i = self.selected_index()
@@ -620,21 +396,19 @@ class WalkthroughPanel(QWidget):
         new = [self.steps[k] for k in order]
         if self.current is not None:
             self.current = order.index(self.current)
-        self.session.undo_stack.push(_StepsCommand(self, "Move walkthrough step", self.steps, new,
-                                                   order[moved] if moved is not None else None, moved))
+        self._push("Move walkthrough step", new, moved, order[moved] if moved is not None else None)
 
-    # appliers called by the undo commands
-    def _set_steps(self, steps: list, select) -> None:
-        self.session.project.walkthrough = steps
+    # after the document's walkthrough changed
+    def _steps_replaced(self, select) -> None:
+        steps = self.steps
         if self.current is not None and self.current >= len(steps):
             self.current = len(steps) - 1 if steps else None
         self._refresh_list(select)
         self._update_controls()
 
-    def _set_text(self, index: int, field: str, value: str) -> None:
+    def _step_text_changed(self, index: int) -> None:
         if not 0 <= index < len(self.steps):
             return
-        setattr(self.steps[index], field, value)
         item = self.step_list.item(index)
         if item is not None:
             item.setText(self._item_text(index))
@@ -809,7 +583,7 @@ class WalkthroughPanel(QWidget):
         else:
             self.problems_label.hide()
         if self.missing_views:
-            names = [views_pkg.module_title(v) for v in self.missing_views]
+            names = [title_of(v) for v in self.missing_views]
             self.missing_label.setText(f"This step also uses the {', '.join(names)} "
                                        f"view{'s' if len(names) > 1 else ''}, not in this version of OrbitDesk.")
             self.missing_label.show()

@@ -100,7 +100,7 @@ def copy_plot(source, width: int, height: int, legend: bool = False, host=None, 
     """A PlotWidget, never shown on screen, holding a copy of the PlotItem ``source`` laid out at
     ``width`` x ``height`` pixels with the same view range, or (``fit``) a range fitted to the data the
     source fits to (and a legend of the named curves)."""
-    from orbitdesk.app.views import style_plot
+    from orbitdesk.app.plots.plot_style import style_plot
 
     widget = pg.PlotWidget()
     widget.setAttribute(Qt.WidgetAttribute.WA_DontShowOnScreen, True)

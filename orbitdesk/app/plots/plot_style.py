@@ -274,7 +274,7 @@ class JobStrip(QWidget):
 
     def cancel(self) -> None:
         if self.key is not None and self.running:
-            self.session.jobs.cancel(self.key)
+            self.session.cancel_job(self.key)
             self._end("cancelled", "Cancelled")
 
     def show_message(self, text: str) -> None:
@@ -288,7 +288,7 @@ class JobStrip(QWidget):
                 self._on_progress(fraction)
 
     def _check_alive(self) -> None:
-        if self.running and not self.session.jobs.running(self.key):
+        if self.running and not self.session.job_running(self.key):
             self._end("dropped", "Stopped: the model or its values changed")
 
     def _end(self, state: str, message: str) -> None:
@@ -435,4 +435,88 @@ def hint_label(text: str = "") -> QLabel:
     label.setStyleSheet("color: palette(placeholder-text);")
     label.setWordWrap(True)
     label.setAlignment(Qt.AlignmentFlag.AlignLeft | Qt.AlignmentFlag.AlignVCenter)
+    return label
+
+
+# ---------------------------------------------------------------- colours and plot styling shared by the views
+
+# Our own series colours: muted, distinguishable on light and dark backgrounds (light, dark variants).
+SERIES_COLOURS = [
+    ("#1f7a80", "#5cc3c9"),  # teal
+    ("#b0651c", "#e8a660"),  # amber
+    ("#6f4c9b", "#b79be0"),  # violet
+    ("#3d7a2e", "#8fcf7a"),  # moss
+    ("#a8435a", "#e88aa0"),  # rose
+    ("#39598f", "#8aa9e0"),  # slate blue
+    ("#7a6a1f", "#d6c46a"),  # olive
+    ("#5a5a5a", "#bdbdbd"),  # grey
+]
+
+
+def is_dark(widget=None) -> bool:
+    from PySide6.QtGui import QPalette
+    from PySide6.QtWidgets import QApplication
+
+    pal = widget.palette() if widget is not None else QApplication.palette()
+    return pal.color(QPalette.ColorRole.Base).lightness() < 128
+
+
+def series_colour(index: int, widget=None):
+    from PySide6.QtGui import QColor
+
+    light, dark = SERIES_COLOURS[index % len(SERIES_COLOURS)]
+    return QColor(dark if is_dark(widget) else light)
+
+
+def muted_colour(widget=None, alpha: int = 255):
+    """Text colour blended half way into the background: for grids, guides and arrows."""
+    from PySide6.QtGui import QColor, QPalette
+
+    pal = widget.palette()
+    fg, bg = pal.color(QPalette.ColorRole.Text), pal.color(QPalette.ColorRole.Base)
+    c = QColor((fg.red() + bg.red()) // 2, (fg.green() + bg.green()) // 2, (fg.blue() + bg.blue()) // 2)
+    c.setAlpha(alpha)
+    return c
+
+
+def style_plot(plot_widget, host=None) -> None:
+    """Colours from the system palette, a light grid, plain tick numbers (``plot_style.plain_axes``), no
+    pyqtgraph context menu or corner button."""
+    import pyqtgraph as pg
+    from PySide6.QtGui import QPalette
+
+    host = host or plot_widget
+    pal = host.palette()
+    bg = pal.color(QPalette.ColorRole.Base)
+    fg = pal.color(QPalette.ColorRole.Text)
+    plot_widget.setBackground(bg)
+    item = plot_widget.getPlotItem()
+    item.hideButtons()
+    item.setMenuEnabled(False)
+    axis_pen = pg.mkPen(muted_colour(host), width=1)
+    for name in ("left", "bottom", "right", "top"):
+        axis = item.getAxis(name)
+        axis.setPen(axis_pen)
+        axis.setTextPen(pg.mkPen(fg))
+    item.showGrid(x=True, y=True, alpha=0.12)
+    plain_axes(item)
+
+
+def empty_hint(plot_item, text: str):
+    """A quiet centred note shown in an empty plot (returns the item; hide it when data arrives)."""
+    import pyqtgraph as pg
+    from PySide6.QtWidgets import QGraphicsSimpleTextItem
+
+    label = QGraphicsSimpleTextItem(text)
+    host = plot_item.getViewWidget()
+    label.setBrush(pg.mkBrush(muted_colour(host) if host is not None else "#888888"))
+    label.setParentItem(plot_item.getViewBox())
+
+    def centre(*_args):
+        box = plot_item.getViewBox().boundingRect()
+        r = label.boundingRect()
+        label.setPos(box.center().x() - r.width() / 2, box.center().y() - r.height() / 2)
+
+    plot_item.getViewBox().sigResized.connect(centre)
+    centre()
     return label

@@ -1,7 +1,8 @@
 """Basins of attraction: a grid of starts in two states coloured by the attractor each reaches
 (``core.basins``, on the ensemble engine as a job with progress and Cancel), escape in grey; for a forced
 flow, once per forcing period (the stroboscopic basins). Over it, the stable manifolds of the saddles of a
-two-state flow (``core.manifolds``), which are the basin boundaries."""
+two-state flow (``core.manifolds``), which are the basin boundaries. A click on a cell runs the orbit from
+that start (drawn over the map, and started in the phase views too). The result is kept in the project."""
 
 from __future__ import annotations
 
@@ -15,20 +16,24 @@ from PySide6.QtWidgets import QLabel
 
 from orbitdesk.app.views import SERIES_COLOURS, empty_hint, is_dark, style_plot
 from orbitdesk.app.plots.plot_style import JobStrip, NumberBox, number_text, plain_axes
-from orbitdesk.app.views.common import (SessionView, apply_axis_settings, apply_numbers, check_box, combo_box, control_row, count_box,
-                     fill_combo, follow_forcing_period, grid_rect, push_button, quiet, select_text, set_quietly,
-                     status_label)
+from orbitdesk.analyses.basins import BasinResult
+from orbitdesk.app.views.common import (SessionView, apply_axis_settings, apply_numbers, check_box, clicked_point,
+                     combo_box, control_row, count_box, fill_combo, follow_forcing_period, grid_rect, push_button,
+                     quiet, select_text, set_quietly, status_label)
 
 ESCAPE_COLOUR = "#9a9a9a"
 MAX_SIDE = 300
-
+ORBIT_SAMPLES = 4000  # of the orbit run from a clicked cell
 
 
 class BasinsView(SessionView):
     view_id = "basins"
+    on_request = True
     title = "Basins of attraction"
+    result_class = BasinResult
 
     resultChanged = Signal(object)  # BasinResult or None
+    orbitChanged = Signal(object)   # the run from a clicked cell (Trajectory) or None
 
     def __init__(self, session, parent=None):
         super().__init__(session, parent)
@@ -61,6 +66,14 @@ class BasinsView(SessionView):
         self.plot.addItem(self.image)
         self.centres = pg.ScatterPlotItem(size=9, symbol="o")
         self.plot.addItem(self.centres)
+        self.orbit_item = pg.PlotDataItem(connect="finite")
+        self.orbit_item.setToolTip("The orbit from the clicked start")
+        self.orbit_start = pg.ScatterPlotItem(size=10, symbol="s")
+        for item in (self.orbit_item, self.orbit_start):
+            self.plot.addItem(item, ignoreBounds=True)
+        self.orbit = None
+        self.plot_widget.scene().sigMouseClicked.connect(self._on_click)
+        self.plot_widget.setToolTip("Click a cell to run the orbit from that start")
         self.empty = empty_hint(self.plot, "Compute colours each start by the attractor it reaches")
 
         layout = self.main_layout()
@@ -161,7 +174,15 @@ class BasinsView(SessionView):
                                         or self.result.y_name not in system.states):
             self._show(None)
         self._on_values()
+        self.restore_kept_result()
 
+    def show_kept_result(self, result) -> None:
+        if result.x_name not in self.system.states or result.y_name not in self.system.states:
+            raise ValueError("the kept basins are over states the model no longer has")
+        if result.labels.shape != (result.ys.size, result.xs.size) or any(
+                not isinstance(a.get("label"), int) or not isinstance(a.get("centre"), dict) for a in result.attractors):
+            raise ValueError("the kept basins do not fit together")
+        self._show(result)
     def _apply_wanted(self) -> None:
         wanted, self._wanted = getattr(self, "_wanted", None) or {}, None
         apply_axis_settings(wanted, (("x", self.x_state, self.x_lo, self.x_hi, self.x_count),
@@ -185,6 +206,7 @@ class BasinsView(SessionView):
 
     def _show(self, result) -> None:
         self.result = result
+        self._show_orbit(None)
         for item in self.manifold_items:
             self.plot.removeItem(item)
         self.manifold_items = []
@@ -212,13 +234,8 @@ class BasinsView(SessionView):
         self.centres.setData([p[0] for p in points], [p[1] for p in points],
                              brush=[pg.mkBrush("w") for _ in points],
                              pen=[pg.mkPen(self.colour_of(p[2]).darker(160), width=2) for p in points])
-        rows = []
-        for a in result.attractors:
-            c = self.colour_of(a["label"]).name()
-            where = ", ".join(f"{html.escape(k)} ≈ {number_text(v if abs(v) > 1e-7 else 0.0, 4)}"
-                              for k, v in a["centre"].items())  # round-off shown as 0
-            rows.append(f"<span style='color:{c}'>■</span> {html.escape(a['kind'])} near ({where}): "
-                        f"{a['share'] * 100:.0f}% of the starts")
+        rows = [f"<span style='color:{self.colour_of(a['label']).name()}'>■</span> {attractor_text(a)}: "
+                f"{a['share'] * 100:.0f}% of the starts" for a in result.attractors]
         escaped = float(np.mean(labels < 0))
         if escaped:
             rows.append(f"<span style='color:{ESCAPE_COLOUR}'>■</span> escape (ran off or failed): "
@@ -273,8 +290,86 @@ class BasinsView(SessionView):
         self.info.setText(f"{sum(len(m.stable) for m in found)} stable manifold branches of "
                           f"{len(found)} saddle{'s' if len(found) != 1 else ''} drawn" if found else "")
 
+    # ------------------------------------------------------------ the orbit from a clicked cell
+    def _on_click(self, event) -> None:
+        r, s = self.result, self.system
+        point = clicked_point(self.plot, event)
+        if r is None or s is None or point is None or r.x_name not in s.states or r.y_name not in s.states:
+            return
+        i = cell_index(r.xs, float(point.x()))
+        j = cell_index(r.ys, float(point.y()))
+        if i is None or j is None:
+            return
+        event.accept()
+        self.start_orbit(float(r.xs[i]), float(r.ys[j]))
+
+    def start_orbit(self, x: float, y: float) -> None:
+        """Run the orbit from the start (x, y) of the map (the other states at their initial values) over the
+        map's settling time, draw it over the map and start it in the phase views too."""
+        s, r = self.system, self.result
+        u0 = self.session.initial_vector().astype(float)
+        u0[s.states.index(r.x_name)], u0[s.states.index(r.y_name)] = x, y
+        settings = self.session.run_settings(samples=ORBIT_SAMPLES)
+        span = max(float(self.transient.value()), settings.t_end - settings.t_start)
+        if s.kind == "map":
+            span = float(int(span))
+        settings = self.session.run_settings(samples=ORBIT_SAMPLES, t_end=settings.t_start + span, transient=0.0)
+        p = self.session.param_vector()
+
+        def job(cancel, report):
+            from orbitdesk.engine.runs import simulate
+
+            return simulate(s, settings, u0, p, cancel=cancel, progress=report)
+
+        self._show_orbit(None)
+        self.orbit_start.setData([x], [y], brush=pg.mkBrush("w"), pen=pg.mkPen("k", width=1.5))
+        self.session.run_job("basins.orbit", job, self._show_orbit, label="Orbit from the clicked start")
+        self.session.note_clicked_start(u0)
+        self.session.request_starts([{"u0": u0.tolist()}])
+
+    def _show_orbit(self, run) -> None:
+        self.orbit = run
+        r = self.result
+        if run is None or r is None or run.time.size == 0:
+            self.orbit_item.setData([], [])
+            if run is None:
+                self.orbit_start.setData([], [])
+            self.orbitChanged.emit(None)
+            return
+        x, y = run.series(r.x_name), run.series(r.y_name)
+        pen = pg.mkPen("w" if is_dark(self) else "k", width=1.6)
+        if run.kind == "map":
+            self.orbit_item.setData(x, y, pen=None, symbol="o", symbolSize=3, symbolPen=None,
+                                    symbolBrush=pen.color())
+        else:
+            self.orbit_item.setData(x, y, pen=pen, symbol=None)
+        self.orbitChanged.emit(run)
+
     def _restyle(self) -> None:
         style_plot(self.plot_widget, self)
+
+
+def cell_index(values, v: float):
+    """The index of the grid value nearest ``v``, or None when ``v`` lies outside the grid's cells."""
+    values = np.asarray(values, dtype=float)
+    if values.size == 1:
+        return 0
+    half = abs(values[-1] - values[0]) / (values.size - 1) / 2
+    if not min(values[0], values[-1]) - half <= v <= max(values[0], values[-1]) + half:
+        return None
+    return int(np.argmin(np.abs(values - v)))
+
+
+def attractor_text(a: dict) -> str:
+    """One attractor of a basin map in words (HTML-escaped): what it is, its period, where it lies."""
+    where = ", ".join(f"{html.escape(str(k))} ≈ {number_text(v if abs(v) > 1e-7 else 0.0, 4)}"
+                      for k, v in a["centre"].items() if isinstance(v, (int, float)))  # round-off shown as 0
+    kind = html.escape(str(a.get("kind", "")))
+    if isinstance(a.get("period"), float) and a.get("multiplier") is not None:  # a cycle of an autonomous flow
+        m = a["multiplier"]
+        return (f"{kind} of period {number_text(a['period'], 5)} (largest Floquet multiplier "
+                f"{number_text(m if abs(m) > 1e-12 else 0.0, 3)}), around ({where})")
+    return f"{kind} near ({where})"
 
 
 VIEW = BasinsView

@@ -63,6 +63,7 @@ def _same_place(a, b) -> bool:
 
 class BifurcationView(SessionView):
     view_id = "bifurcation"
+    on_request = True
     title = "Bifurcation diagram"
 
     resultChanged = Signal()

@@ -48,12 +48,21 @@ class SessionView(QWidget):
     Results computed on request are marked stale the same way everywhere: call ``begin_computing()``
     when a computation starts, ``shown_computed()`` when its result is shown and ``shown_nothing()`` when
     the view is cleared; whenever the values, the solver settings or the model differ from those the
-    shown result was computed for, a bar over the view says so and offers ``recompute()``."""
+    shown result was computed for, a bar over the view says so and offers ``recompute()``.
 
-    view_id = ""
+    The analysis contract, read by the walkthrough and the exports without guessing: ``compute()``
+    computes the view's result for the values now set (in the background, through a JobStrip or
+    ``session.run_job``), ``result`` holds the latest result (None: none), ``auto`` is the view's
+    Automatic box (None: the view has none), ``on_request`` says the view computes only when asked, and
+    ``follows_values()`` whether it keeps up with the values by itself."""
+
+    view_id = ""                   # the id in the registry of views (document/views.py)
     title = ""
     stale_follows_solver = False   # results depend on the solver settings too (runs, sections)
     result_class = None            # the core result this view keeps in the project (see result_store)
+    on_request = False             # computes its result only when asked (or when its Automatic box is on)
+    result = None                  # the latest result shown
+    auto = None                    # the Automatic check box of views that have one
 
     def __init__(self, session, parent=None):
         super().__init__(parent)
@@ -226,13 +235,17 @@ class SessionView(QWidget):
     def show_kept_result(self, result) -> None:
         """Show a result read back from the project (views with ``result_class`` override this)."""
 
+    def compute(self) -> None:
+        """Compute this view's result for the values now set (views that only follow the session: nothing)."""
+
     def recompute(self) -> None:
-        """Compute the shown result again for the present values (the view's compute or run)."""
-        for name in ("compute", "run"):
-            method = getattr(self, name, None)
-            if callable(method):
-                method()
-                return
+        """Compute the shown result again for the present values."""
+        self.compute()
+
+    def follows_values(self) -> bool:
+        """The view keeps up with the model and its values by itself (nothing to compute on request, or
+        its Automatic box is on)."""
+        return not self.on_request or (self.auto is not None and self.auto.isChecked())
 
     def changeEvent(self, event) -> None:
         super().changeEvent(event)

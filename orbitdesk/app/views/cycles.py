@@ -25,6 +25,7 @@ STARTS = (END, CLICKED)
 
 class CyclesView(SessionView):
     view_id = "cycles"
+    on_request = True
     title = "Limit cycle"
 
     cycleChanged = Signal(object)  # the Cycle / MapCycle shown (None when cleared)

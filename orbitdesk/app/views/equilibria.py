@@ -73,6 +73,7 @@ def _matrix_html(rows, col_heads=None, row_heads=None) -> str:
 
 class EquilibriaView(SessionView):
     view_id = "equilibria"
+    on_request = True
     title = "Equilibria"
 
     equilibriaChanged = Signal(object)     # the Equilibria list after each search (may be empty)
@@ -201,7 +202,7 @@ class EquilibriaView(SessionView):
         self.summary.setText("")
         self.strip.run("equilibria", job, self._adopt, on_error=self._failed)
 
-    def recompute(self) -> None:
+    def compute(self) -> None:
         self.find()
 
     def selected_index(self) -> int | None:
@@ -377,10 +378,14 @@ class EquilibriaView(SessionView):
             if item.widget() is not None:
                 item.widget().deleteLater()
         eq = self.selected()
-        starts = eigen_starts(eq, float(self.eps.value())) if eq is not None else []
+        delays = self.system is not None and bool(self.system.delays)
+        starts = eigen_starts(eq, float(self.eps.value())) if eq is not None and not delays else []
         self.all_button.setEnabled(bool(starts))
-        self.eps.setEnabled(eq is not None)
-        if eq is not None and not starts:
+        self.eps.setEnabled(eq is not None and not delays)
+        if eq is not None and delays:  # a start of a delay model is a whole history, not a point
+            self.starts_note.setText("A start of a model with delays needs a history before it, so none is "
+                                     "offered along the roots' vectors")
+        elif eq is not None and not starts:
             self.starts_note.setText("No real eigen-direction: every eigenvalue is complex")
         elif eq is None:
             self.starts_note.setText("")

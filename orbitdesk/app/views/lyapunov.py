@@ -26,6 +26,7 @@ NEAR_ZERO = 0.01  # |exponent| below this (relative to the largest magnitude) is
 
 class LyapunovView(SessionView):
     view_id = "lyapunov"
+    on_request = True
     title = "Lyapunov exponents"
     result_class = LyapunovResult
 
@@ -219,8 +220,9 @@ class LyapunovView(SessionView):
         is_map = self._kind == "map"
         self.length_label.setText("Iterate" if is_map else "Run for")
         self.transient_label.setText("times, skip" if is_map else "settle")
+        delays = self.system is not None and bool(self.system.delays)  # the step follows the tolerances there
         for w in (self.auto_step, self.dt):
-            w.setVisible(not is_map)
+            w.setVisible(not is_map and not delays)
 
     # ------------------------------------------------------------ results
     def _clear(self) -> None:

@@ -1,16 +1,19 @@
 """Two-parameter map: the largest Lyapunov exponent (``core.sweep.lyapunov_grid``) or the period of the
 attractor (``core.parameter_maps.period_grid``) over a grid of two parameters, as a coloured map with a
-colour bar. Clicking the map sets both parameters there; a cross marks the values now set."""
+colour bar. Maps and forced flows: the period in iterations or forcing periods; autonomous flows: maxima per
+cycle (doublings) with the cycle's period in time, equilibria apart. Clicking the map sets both parameters
+there; a cross marks the values now set."""
 
 from __future__ import annotations
 
 import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import Qt, Signal
+from PySide6.QtGui import QFontMetrics
 from PySide6.QtWidgets import QLabel, QSpinBox, QStackedWidget
 
 from orbitdesk.app.views import empty_hint, muted_colour, style_plot
-from orbitdesk.app.plots.plot_style import JobStrip, NumberBox, plain_axes, round_significant
+from orbitdesk.app.plots.plot_style import JobStrip, NumberBox, number_text, plain_axes, round_significant
 from orbitdesk.app.views.common import (SessionView, apply_axis_settings, apply_numbers, clicked_point, combo_box, control_row,
                      count_box, fill_combo, follow_forcing_period, grid_rect, push_button, quiet, row_widget,
                      select_text, set_quietly, status_label)
@@ -19,11 +22,13 @@ LYAPUNOV, PERIOD = "lyapunov", "period"
 WHATS = (LYAPUNOV, PERIOD)
 WHAT_LABELS = {LYAPUNOV: "largest Lyapunov exponent", PERIOD: "period of the attractor"}
 MAX_SIDE = 400
+BAR_AXIS_WIDTH = 45  # pyqtgraph's width of a colour bar's axis: tick, about 20 px of text, the axis name
 
 
 
 class ParameterMapView(SessionView):
     view_id = "parameter_map"
+    on_request = True
     title = "Two-parameter map"
 
     resultChanged = Signal(object)  # LyapunovGrid / PeriodGrid, or None
@@ -119,8 +124,12 @@ class ParameterMapView(SessionView):
             return None
         gx, gy = np.meshgrid(r.xs, r.ys)
         values = r.exponent if hasattr(r, "exponent") else r.period
-        return [r.x_name, r.y_name, self._value_name()], np.column_stack([gx.ravel(), gy.ravel(),
-                                                                           np.asarray(values, float).ravel()])
+        header = [r.x_name, r.y_name, self._value_name()]
+        columns = [gx.ravel(), gy.ravel(), np.asarray(values, float).ravel()]
+        if getattr(r, "time_period", None) is not None:
+            header.append("period in time")
+            columns.append(np.asarray(r.time_period, float).ravel())
+        return header, np.column_stack(columns)
 
     # ------------------------------------------------------------ public
     def compute(self) -> None:
@@ -150,7 +159,7 @@ class ParameterMapView(SessionView):
             from orbitdesk.analyses.sweep import STROBE, SweepSettings
 
             settings = SweepSettings(transient=transient)
-            if s.kind != "map":
+            if self._forced():
                 settings.mode, settings.period = STROBE, float(self.period.value())
             max_period = self.max_period.value()
 
@@ -199,14 +208,20 @@ class ParameterMapView(SessionView):
     def _on_values(self) -> None:
         if self.system is not None and self.system.kind != "map":
             follow_forcing_period(self.period, self.system, self.session.param_vector(), self._user_period)
+        self._on_what()
         self._draw_marker()
+
+    def _forced(self) -> bool:
+        """A flow driven by the time (with its forcing on): its period is counted in forcing periods."""
+        s = self.system
+        return s is not None and s.kind != "map" and not s.autonomous_at(self.session.param_vector())
 
     def _on_what(self, _index=None) -> None:
         what = WHATS[self.what.currentIndex()]
         self.what_stack.setCurrentIndex(WHATS.index(what))
-        flow = self.system is not None and self.system.kind != "map"
-        self.period_label.setVisible(flow)
-        self.period.setVisible(flow)
+        forced = self._forced()
+        self.period_label.setVisible(forced)
+        self.period.setVisible(forced)
 
     def _default_range(self, combo, lo_box, hi_box) -> None:
         name = combo.currentText()
@@ -247,26 +262,31 @@ class ParameterMapView(SessionView):
             self.colour_bar.setColorMap(pg.colormap.get("CET-D1"))
             self.colour_bar.setLevels((-span, span))  # zero in the middle: chaos red, order blue
             self.colour_bar.getAxis("right").setTicks(None)
+            self._fit_bar_text([])
             finite = data[np.isfinite(data)]
             chaotic = int(np.sum(finite > 1e-3))
             self.info.setText(f"{chaotic} of {data.size} points with a positive exponent (red: chaos; blue: "
                               f"settling or periodic); blank: blew up")
         else:
             # coloured by log2 of the period, so a doubling cascade 1, 2, 4, 8 takes evenly spaced colours;
-            # none up to the longest period looked for at the dark end, a blow-up left blank
+            # none up to the longest period looked for at the dark end (an equilibrium below it), a blow-up
+            # left blank
             period = np.asarray(result.period)
+            steady = period == -2
             data = np.full(period.shape, np.nan)
             data[period == 0] = -1.0
+            data[steady] = -2.0
             data[period > 0] = np.log2(period[period > 0])
             top = float(np.log2(result.max_period))
             self.colour_bar.setColorMap(pg.colormap.get("turbo"))
-            self.colour_bar.setLevels((-1.0, max(top, 0.5)))
-            ticks = [(-1.0, "none")] + [(float(k), str(2 ** k)) for k in range(int(top) + 1)]
+            # half a band beyond the first and last: each category's colour is centred on its tick, and the
+            # end ticks' text is not cut off at the ends of the bar
+            self.colour_bar.setLevels((-2.5 if steady.any() else -1.5, top + 0.5))
+            ticks = ([(-2.0, "equilibrium")] if steady.any() else []) + [(-1.0, "none")] + [
+                (float(k), str(2 ** k)) for k in range(int(top) + 1)]
             self.colour_bar.getAxis("right").setTicks([ticks, []])
-            counts = {int(k): int(np.sum(result.period == k)) for k in np.unique(result.period) if k > 0}
-            common = ", ".join(f"period {k}: {n}" for k, n in sorted(counts.items(), key=lambda kv: -kv[1])[:4])
-            self.info.setText(f"In {result.unit}. {common or 'no period found'}; 0: none up to "
-                              f"{result.max_period}; blank: blew up")
+            self._fit_bar_text([label for _v, label in ticks])
+            self.info.setText(period_summary(result))
         self.image.setImage(data, autoLevels=False)
         self.image.setRect(grid_rect(xs, ys))
         self.plot.setLabel("bottom", result.x_name)
@@ -275,6 +295,14 @@ class ParameterMapView(SessionView):
         self.plot.autoRange(padding=0.02)
         self._draw_marker()
         self.resultChanged.emit(result)
+
+    def _fit_bar_text(self, labels) -> None:
+        """The colour bar's axis wide enough for its longest tick text (pyqtgraph fixes it at 45 px and leaves
+        out any text wider than that, such as "equilibrium")."""
+        axis = self.colour_bar.getAxis("right")
+        metrics = QFontMetrics(axis.style.get("tickFont") or axis.font())
+        widest = max((metrics.horizontalAdvance(text) for text in labels), default=0)
+        axis.setWidth(max(BAR_AXIS_WIDTH, widest + BAR_AXIS_WIDTH - 20))
 
     def _draw_marker(self) -> None:
         r = self.result
@@ -302,3 +330,23 @@ class ParameterMapView(SessionView):
 
 
 VIEW = ParameterMapView
+
+
+def period_summary(result) -> str:
+    """The commonest periods of a period map in words (with the periods in time of an autonomous flow)."""
+    counts = {int(k): int(np.sum(result.period == k)) for k in np.unique(result.period) if k > 0}
+    times = getattr(result, "time_period", None)
+    parts = []
+    for k, n in sorted(counts.items(), key=lambda kv: -kv[1])[:4]:
+        text = f"period {k}: {n}"
+        if times is not None:
+            t = times[(result.period == k) & np.isfinite(times)]
+            if t.size:
+                lo, hi = number_text(float(t.min()), 4), number_text(float(t.max()), 4)
+                text += f" (time {lo})" if lo == hi else f" (time {lo} to {hi})"
+        parts.append(text)
+    steady = int(np.sum(result.period == -2))
+    if steady:
+        parts.append(f"equilibrium: {steady}")
+    return (f"In {result.unit}. {', '.join(parts) or 'no period found'}; none: no period up to "
+            f"{result.max_period}; blank: blew up")

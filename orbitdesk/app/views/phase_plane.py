@@ -234,7 +234,7 @@ class PhasePlaneView(SessionView):
 
     def clear_seeds(self) -> None:
         self.seeds, self.seed_runs = [], []
-        self.session.jobs.cancel("phase_plane.seeds")
+        self.session.cancel_job("phase_plane.seeds")
         self._draw_seeds()
 
     def fit_view(self) -> None:

@@ -265,7 +265,7 @@ class PhaseSpace3DView(SessionView):
 
     def clear_extra(self) -> None:
         self.added, self.added_runs, self.spread_runs = [], [], []
-        self.session.jobs.cancel("phase_space_3d.added")
+        self.session.cancel_job("phase_space_3d.added")
         if self.spread_box.isChecked():
             self.spread_box.setChecked(False)  # cancels the spread job too
         self._redraw_all()
@@ -388,7 +388,7 @@ class PhaseSpace3DView(SessionView):
             self._run_spread()
         else:
             self.strip.cancel()
-            self.session.jobs.cancel("phase_space_3d.spread")
+            self.session.cancel_job("phase_space_3d.spread")
             self.spread_runs = []
             self._redraw_all()
             self.spreadChanged.emit()

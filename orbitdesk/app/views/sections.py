@@ -31,6 +31,7 @@ MAX_COUNT = 100_000
 
 class SectionsView(SessionView):
     view_id = "sections"
+    on_request = True
     title = "Poincaré section"
     stale_follows_solver = True
     result_class = SectionResult

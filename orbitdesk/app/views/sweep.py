@@ -62,6 +62,7 @@ def diagram_points(result):
 
 class SweepView(SessionView):
     view_id = "sweep"
+    on_request = True
     title = "Parameter sweep"
     result_class = SweepResult
 
@@ -249,6 +250,9 @@ class SweepView(SessionView):
             self.plane_value.setValue(float(value))
         if "direction" in kw:
             self.direction.setCurrentIndex(DIRECTIONS.index(kw["direction"]))
+
+    def compute(self) -> None:
+        self.run()
 
     def run(self) -> None:
         s = self.system

@@ -1,0 +1,563 @@
+"""The live document: one open project as it is being worked on, headless (no Qt).
+
+It holds the model text, the parsed model and compiled system, the values (parameters, initial values,
+slider ranges), the solver settings, the project's other parts (view settings, walkthrough, data sets,
+kept parameter sets) and the results that belong to the current system and values (the main run, the
+equilibria with the selected one, the limit cycle). Edits are undoable commands on ``undo``
+(document/undo.py); results are plain settings, cleared when the model or the values change.
+
+Every change is announced to plain Python callbacks: ``doc.subscribe(event, fn)``. Events and their
+arguments: ``text`` (text), ``parsed`` (ParsedModel), ``system`` (CompiledSystem), ``values`` (),
+``settings`` (), ``inputs`` () (what a run depends on changed: run again), ``trajectory`` (Trajectory),
+``time_cursor`` (t), ``equilibria`` (list), ``selection`` (index or None), ``cycle`` (cycle or None),
+``part`` (name of a project part replaced: "walkthrough", "datasets", "parameter_sets", "views"),
+``step`` (index of a walkthrough step whose title or note changed), ``loaded`` (), ``dirty`` (bool), ``message`` (plain words for a status line).
+
+The app's Session (app/session.py) is a Qt adapter over one LiveDocument (signals, timers, worker
+jobs); the command line and exports build one the same way (``LiveDocument.open``/``from_project``)
+and read values, settings and the project from it. Values the user set survive edits of the text
+unless the value written in the text for that name changes.
+"""
+
+from __future__ import annotations
+
+import copy
+import dataclasses
+import math
+import os
+import time
+from pathlib import Path
+
+import numpy as np
+
+from orbitdesk.document import project as core_project
+from orbitdesk.document.project import ParameterSetting, Project, ProjectError
+from orbitdesk.document.undo import Command, UndoStack
+from orbitdesk.engine.settings import SAVED, RunSettings
+
+TEXT_MERGE_SECONDS = 2.0     # typing pauses longer than this start a new undo step
+VALUE_MERGE_SECONDS = 1.5    # same for slider moves of one parameter
+clock = time.monotonic       # what undo merging reads (tests replace it to be independent of load)
+PROJECT_SUFFIXES = (".orbitdesk", ".json")
+SOLVER_FIELDS = SAVED
+PARTS = ("walkthrough", "datasets", "parameter_sets", "views")   # project parts replaced by ``replace_part``
+EVENTS = ("text", "parsed", "system", "values", "settings", "inputs", "trajectory", "time_cursor",
+          "equilibria", "selection", "cycle", "part", "step", "loaded", "dirty", "message")
+
+
+def parse(text):
+    from orbitdesk.language.model import parse_model  # sympy: imported on first use, after the window shows
+
+    return parse_model(text)
+
+
+def signature(parsed) -> tuple:
+    """What a compiled system depends on; equal signatures give the same system."""
+    return (
+        parsed.kind,
+        tuple(parsed.states),
+        tuple((s, str(parsed.equations[s])) for s in parsed.states),
+        tuple((n, i.value, i.lo, i.hi) for n, i in parsed.parameters.items()),
+        tuple(sorted(parsed.initial.items())),
+        tuple((n, str(e)) for n, e in parsed.derived.items()),
+        str(parsed.time_symbol),
+    )
+
+
+def compile_parsed(parsed):
+    """The compiled system of a valid parsed model with its evaluators built (slow: a worker's job)."""
+    from orbitdesk.system.compiled_system import compile_model
+
+    system = compile_model(parsed)
+    system.rhs_function()
+    system.rhs_vec(0.0, np.zeros((system.n_states, 1)))
+    return system
+
+
+# ---------------------------------------------------------------- reading files
+
+def read_document(path) -> tuple[Project, Path | None]:
+    """Read a project file or a plain model text file. Returns (project, project_path or None).
+
+    Raises ProjectError with a readable message for anything that cannot be opened.
+    """
+    return read_document_with_state(path)[:2]
+
+
+def read_document_with_state(path) -> tuple[Project, Path | None, object]:
+    """``read_document`` plus what a project file was on disk (a DiskState; UNCHECKED for model text)."""
+    from orbitdesk.language.model_file import read_model_file
+
+    path = Path(path)
+    if path.suffix.lower() in PROJECT_SUFFIXES:
+        return _project_with_state(path)
+    try:
+        text = read_model_file(path)
+    except FileNotFoundError:
+        raise ProjectError("$", f"cannot read {str(path)!r}: no such file") from None
+    except OSError as e:
+        raise ProjectError("$", f"cannot read {str(path)!r}: {e.strerror or e}") from None
+    except ValueError as e:
+        raise ProjectError("$", str(e)) from None
+    if text.lstrip().startswith("{"):
+        return _project_with_state(path)
+    return Project(name=path.stem or "Untitled", model=text.replace("\r\n", "\n")), None, core_project.UNCHECKED
+
+
+def _project_with_state(path: Path) -> tuple[Project, Path, object]:
+    project, state = core_project.load_with_state(path)
+    return project, path, state
+
+
+def _same_path(a: Path, b: Path) -> bool:
+    return os.path.realpath(a) == os.path.realpath(b)
+
+
+# ---------------------------------------------------------------- commands
+
+class _Swap(Command):
+    """Set something to ``new`` / back to ``old`` through ``apply(value)``."""
+
+    def __init__(self, label: str, apply, old, new):
+        super().__init__(label)
+        self.apply, self.old, self.new = apply, old, new
+
+    def redo(self):
+        self.apply(self.new)
+
+    def undo(self):
+        self.apply(self.old)
+
+
+class _Edit(_Swap):
+    """A swap that takes in the next one of the same kind and ``key`` pushed within ``window`` seconds
+    (typing, slider moves); back at its start it leaves the stack."""
+
+    def __init__(self, label: str, merge_id: str, key, apply, old, new, window: float):
+        super().__init__(label, apply, old, new)
+        self.merge_id, self.key, self.window = merge_id, key, window
+        self.stamp = clock()
+
+    def merge(self, other):
+        if other.key != self.key or other.stamp - self.stamp > self.window:
+            return False
+        self.new, self.stamp = other.new, other.stamp
+        self.obsolete = self.new == self.old
+        return True
+
+
+# ---------------------------------------------------------------- the document
+
+class LiveDocument:
+    def __init__(self):
+        self.project = Project()
+        self.path: Path | None = None
+        self.disk_state = core_project.UNCHECKED  # what the file at ``path`` was when opened or last saved
+        self.text = ""
+        self.parsed = None
+        self.system = None
+        self.params: dict[str, float] = {}
+        self.initial: dict[str, float] = {}
+        self.ranges: dict[str, tuple] = {}   # slider ranges the user set (overriding the model's)
+        self.solver = RunSettings()
+        self.trajectory = None
+        self.time_cursor = math.inf
+        self.equilibria: list = []                   # shared by the views that show equilibria
+        self.selected_equilibrium: int | None = None  # index into ``equilibria``
+        self.cycle = None                            # the limit cycle found for the current values
+        self.clicked_start: list[float] | None = None  # full state of the last trajectory started by a click
+        self.generation = 0       # grows whenever what results depend on changes (stale-result check)
+        self.text_generation = 0  # grows with every change of the text (a compile of older text is moot)
+        self.undo = UndoStack()
+        self.system_signature = None
+        self._listeners: dict[str, list] = {e: [] for e in EVENTS}
+        self._save_hooks: list = []
+        self._written_params: dict[str, float] = {}
+        self._written_ranges: dict[str, tuple] = {}
+        self._written_initial: dict[str, float] = {}
+        self._forced_dirty = False
+        self._last_dirty = False
+        self.undo.on_change(self._update_dirty)
+
+    # ------------------------------------------------------------ events
+    def subscribe(self, event: str, fn):
+        """Call ``fn(*arguments)`` after each ``event`` (see the module docstring); returns an unsubscriber."""
+        listeners = self._listeners[event]
+        listeners.append(fn)
+        return lambda: listeners.remove(fn) if fn in listeners else None
+
+    def emit(self, event: str, *args) -> None:
+        for fn in list(self._listeners[event]):
+            fn(*args)
+
+    # ------------------------------------------------------------ building
+    @classmethod
+    def from_project(cls, project: Project, path=None, disk_state=core_project.UNCHECKED,
+                     compile: bool = False) -> "LiveDocument":
+        """A document holding ``project``; with ``compile`` its model is compiled at once (headless use)."""
+        doc = cls()
+        doc.load_project(project, path, disk_state)
+        if compile:
+            doc.compile_now()
+        return doc
+
+    @classmethod
+    def open(cls, path, compile: bool = False) -> "LiveDocument":
+        """A document for a project or model text file (ProjectError when it cannot be read)."""
+        project, project_path, state = read_document_with_state(path)
+        doc = cls.from_project(project, project_path, state, compile=compile)
+        if project_path is None:
+            doc.source_path = Path(path)
+        return doc
+
+    # ------------------------------------------------------------ state
+    @property
+    def dirty(self) -> bool:
+        return self._forced_dirty or not self.undo.is_clean()
+
+    @property
+    def name(self) -> str:
+        return self.project.name or "Untitled"
+
+    def mark_dirty(self) -> None:
+        """Unsaved work that is not on the undo stack (e.g. restored from an autosave)."""
+        self._forced_dirty = True
+        self._update_dirty()
+
+    def mark_saved(self) -> None:
+        self._forced_dirty = False
+        self.undo.set_clean()
+        self._update_dirty()
+
+    def _update_dirty(self) -> None:
+        d = self.dirty
+        if d != self._last_dirty:
+            self._last_dirty = d
+            self.emit("dirty", d)
+
+    def param_range(self, name: str) -> tuple:
+        """Slider range (lo, hi) of a parameter: the user's, else the model's (either may be None)."""
+        if name in self.ranges:
+            return self.ranges[name]
+        return self._written_ranges.get(name, (None, None))
+
+    def written_values(self) -> tuple[dict, dict]:
+        """Parameter and initial values as written in the model text (last valid model)."""
+        return dict(self._written_params), dict(self._written_initial)
+
+    def param_vector(self) -> np.ndarray:
+        if self.system is None:
+            return np.array(list(self.params.values()), dtype=float)
+        return self.system.param_vector({n: v for n, v in self.params.items() if n in self.system.parameters})
+
+    def initial_vector(self) -> np.ndarray:
+        if self.system is None:
+            return np.array(list(self.initial.values()), dtype=float)
+        return self.system.initial_vector({n: v for n, v in self.initial.items() if n in self.system.states})
+
+    def run_settings(self, **changes) -> RunSettings:
+        """The current solver settings with ``changes`` applied (checked: SettingsError when they do not fit)."""
+        return self.solver.replace(**changes)
+
+    # ------------------------------------------------------------ edits (undoable)
+    def set_text(self, text: str) -> None:
+        if text != self.text:
+            self.undo.push(_Edit("Edit model", "text", None, self._apply_text, self.text, text, TEXT_MERGE_SECONDS))
+
+    def set_param(self, name: str, value: float) -> None:
+        value = float(value)
+        if self.params.get(name) == value:
+            return
+        parsed = self.parsed
+        if parsed is not None and name in parsed.structural and name in parsed.parameters:
+            # the size of a family: the model itself changes, so the new value goes into its line
+            from orbitdesk.language.families import with_structural_value  # sympy: after the window shows
+
+            self.set_text(with_structural_value(self.text, parsed.parameters[name].line, name, value))
+            self.parse_now()
+            return
+        self._push_value("params", name, value)
+
+    def set_initial(self, name: str, value: float) -> None:
+        value = float(value)
+        if self.initial.get(name) != value:
+            self._push_value("initial", name, value)
+
+    def _push_value(self, table: str, name: str, value: float) -> None:
+        """One parameter or initial value; consecutive changes of the same name merge."""
+        current = self.params if table == "params" else self.initial
+        label = f"Change {'parameter' if table == 'params' else 'initial value'} {name}"
+        self.undo.push(_Edit(label, "value", (table, name), lambda v: self._apply_value(table, name, v),
+                             current.get(name, value), value, VALUE_MERGE_SECONDS))
+
+    def set_values(self, params: dict, initial: dict, label: str) -> None:
+        """Put several values in at once (one undo step); names not given keep their values."""
+        old = (dict(self.params), dict(self.initial))
+        new = ({**self.params, **{n: float(v) for n, v in params.items()}},
+               {**self.initial, **{n: float(v) for n, v in initial.items()}})
+        self.undo.push(_Swap(label, lambda pu: self._apply_values(*pu), old, new))
+
+    def reset_values(self) -> None:
+        new_p = {n: self._written_params.get(n, v) for n, v in self.params.items()}
+        new_u = {n: self._written_initial.get(n, v) for n, v in self.initial.items()}
+        if (new_p, new_u) != (self.params, self.initial):
+            self.set_values(new_p, new_u, "Reset values")
+
+    def set_param_range(self, name: str, lo, hi) -> None:
+        new = (None if lo is None else float(lo), None if hi is None else float(hi))
+        if new != self.param_range(name):
+            self.undo.push(_Swap(f"Change range of {name}", lambda r: self._apply_range(name, r),
+                                 self.ranges.get(name), new))
+
+    def set_solver(self, **changes) -> None:
+        """Change solver settings (undoable); SettingsError says in plain words what does not fit."""
+        unknown = set(changes) - set(SOLVER_FIELDS)
+        if unknown:
+            raise KeyError(f"unknown solver setting(s): {', '.join(sorted(unknown))}")
+        new = dataclasses.replace(self.solver, **changes)
+        if new != self.solver:
+            self.undo.push(_Edit("Change solver settings", "solver", frozenset(changes), self._apply_solver,
+                                 copy.copy(self.solver), new, VALUE_MERGE_SECONDS))
+
+    def replace_part(self, part: str, new, label: str, after=None) -> None:
+        """Replace one part of the project (``PARTS``) as one undo step; ``after(redone: bool)`` runs
+        after every redo and undo (a panel selects the row that goes with it)."""
+        if part not in PARTS:
+            raise KeyError(f"not a replaceable part of a project: {part}")
+        old = getattr(self.project, part)
+
+        def apply(value):
+            self._apply_part(part, copy.deepcopy(value))
+            if after is not None:
+                after(value is new)
+
+        old, new = copy.deepcopy(old), copy.deepcopy(new)
+        self.undo.push(_Swap(label, apply, old, new))
+
+    def set_step_text(self, index: int, field: str, text: str) -> None:
+        """A walkthrough step's ``title`` or ``note`` (undoable, typing merges)."""
+        old = getattr(self.project.walkthrough[index], field)
+        if text != old:
+            self.undo.push(_Edit("Edit step title" if field == "title" else "Edit step note", "step text",
+                                 (index, field), lambda v: self._apply_step_text(index, field, v), old, text,
+                                 TEXT_MERGE_SECONDS))
+
+    # ------------------------------------------------------------ shown without an undo step
+    def show_state(self, params: dict | None = None, initial: dict | None = None,
+                   solver: dict | None = None) -> None:
+        """Put values and solver settings in without an undo step or an unsaved mark: a walkthrough
+        showing one of its steps, or giving the user's own state back."""
+        new_p = {**self.params, **{n: float(v) for n, v in (params or {}).items()}}
+        new_u = {**self.initial, **{n: float(v) for n, v in (initial or {}).items()}}
+        new_s = dataclasses.replace(self.solver, **{k: v for k, v in (solver or {}).items() if k in SOLVER_FIELDS})
+        if new_s != self.solver:
+            self._apply_solver(new_s)
+        if (new_p, new_u) != (self.params, self.initial):
+            self._apply_values(new_p, new_u)
+
+    def set_time_cursor(self, t: float) -> None:
+        t = float(t)
+        if t != self.time_cursor:
+            self.time_cursor = t
+            self.emit("time_cursor", t)
+
+    # ------------------------------------------------------------ results of the current system and values
+    def set_trajectory(self, trajectory) -> None:
+        """The main run for the current system, values and settings."""
+        self.trajectory = trajectory
+        if trajectory.status != "ok" and trajectory.message:
+            self.emit("message", trajectory.message[0].upper() + trajectory.message[1:])
+        self.emit("trajectory", trajectory)
+        if trajectory.time.size:
+            lo, hi = sorted((float(trajectory.time[0]), float(trajectory.time[-1])))
+            self.set_time_cursor(min(max(self.time_cursor, lo), hi))
+
+    def set_equilibria(self, items) -> None:
+        """The equilibria found for the current system and values; a selection that no longer points
+        into the list is dropped. Cleared when the model or its values change."""
+        self.equilibria = list(items or [])
+        self.emit("equilibria", list(self.equilibria))
+        if self.selected_equilibrium is not None and self.selected_equilibrium >= len(self.equilibria):
+            self.select_equilibrium(None)
+
+    def select_equilibrium(self, index) -> None:
+        """Select one of the equilibria by its index (None: no selection)."""
+        if index is not None and not 0 <= int(index) < len(self.equilibria):
+            index = None
+        index = None if index is None else int(index)
+        if index != self.selected_equilibrium:
+            self.selected_equilibrium = index
+            self.emit("selection", index)
+
+    def set_cycle(self, cycle) -> None:
+        """The limit cycle found for the current system and values (None: none)."""
+        self.cycle = cycle
+        self.emit("cycle", cycle)
+
+    def note_clicked_start(self, u0) -> None:
+        """A view started a trajectory from a clicked point: its full state (a start for a cycle search)."""
+        self.clicked_start = [float(v) for v in u0]
+
+    def _clear_results(self) -> None:
+        """Equilibria and the cycle belong to the values they were found for."""
+        if self.cycle is not None:
+            self.set_cycle(None)
+        if self.equilibria or self.selected_equilibrium is not None:
+            self.equilibria, self.selected_equilibrium = [], None
+            self.emit("equilibria", [])
+            self.emit("selection", None)
+
+    # ------------------------------------------------------------ appliers (run by the commands)
+    def _apply_text(self, text: str) -> None:
+        self.text = text
+        self.text_generation += 1
+        self.emit("text", text)
+
+    def _apply_value(self, table: str, name: str, value: float) -> None:
+        (self.params if table == "params" else self.initial)[name] = value
+        self._values_changed()
+
+    def _apply_values(self, params: dict, initial: dict) -> None:
+        self.params, self.initial = dict(params), dict(initial)
+        self._values_changed()
+
+    def _apply_range(self, name: str, value) -> None:
+        if value is None:
+            self.ranges.pop(name, None)
+        else:
+            self.ranges[name] = value
+        self.emit("values")
+
+    def _apply_solver(self, solver: RunSettings) -> None:
+        self.solver = copy.copy(solver)
+        self.generation += 1
+        self.emit("settings")
+        self.emit("inputs")
+
+    def _apply_part(self, part: str, value) -> None:
+        setattr(self.project, part, copy.copy(value))
+        self.emit("part", part)
+
+    def _apply_step_text(self, index: int, field: str, value: str) -> None:
+        if 0 <= index < len(self.project.walkthrough):
+            setattr(self.project.walkthrough[index], field, value)
+            self.emit("step", index)
+
+    def _values_changed(self) -> None:
+        self.generation += 1
+        self._clear_results()
+        self.emit("values")
+        self.emit("inputs")
+
+    # ------------------------------------------------------------ parsing and compiling
+    def parse_now(self):
+        """Parse the current text and announce it (``parsed``); returns the ParsedModel."""
+        parsed = parse(self.text)
+        self.parsed = parsed
+        self.emit("parsed", parsed)
+        return parsed
+
+    def needs_system(self, parsed) -> bool:
+        """Whether a valid ``parsed`` model gives another system than the one in use."""
+        return self.system is None or signature(parsed) != self.system_signature
+
+    def compile_now(self):
+        """Parse and compile here and now (the command line; the app compiles on a worker)."""
+        parsed = self.parsed if self.parsed is not None else self.parse_now()
+        if parsed.ok and self.needs_system(parsed):
+            self.adopt_system(compile_parsed(parsed), signature(parsed))
+        return self.system
+
+    def adopt_system(self, system, sig) -> None:
+        """Use a newly compiled system: values the user set stay unless the model's written value changed."""
+        model = system.model
+        written_p = {n: float(i.value) for n, i in model.parameters.items()}
+        written_r = {n: (i.lo, i.hi) for n, i in model.parameters.items()}
+        written_u = {s: float(model.initial.get(s, 0.0)) for s in system.states}
+        params = {n: (self.params[n] if n in self.params and self._written_params.get(n) == v else v)
+                  for n, v in written_p.items()}
+        initial = {s: (self.initial[s] if s in self.initial and self._written_initial.get(s) == v else v)
+                   for s, v in written_u.items()}
+        self.ranges = {n: r for n, r in self.ranges.items()
+                       if n in written_r and self._written_ranges.get(n, written_r[n]) == written_r[n]
+                       and r != written_r[n]}
+        values_changed = params != self.params or initial != self.initial
+        self.params, self.initial = params, initial
+        self._written_params, self._written_ranges, self._written_initial = written_p, written_r, written_u
+        self.system, self.system_signature = system, sig
+        self.generation += 1
+        self._clear_results()
+        self.emit("system", system)
+        if values_changed:
+            self.emit("values")
+        self.emit("inputs")
+
+    # ------------------------------------------------------------ the project
+    def add_save_hook(self, fn) -> None:
+        """``fn()`` runs before the document is turned into a Project (views write their settings)."""
+        self._save_hooks.append(fn)
+
+    def to_project(self) -> Project:
+        for hook in list(self._save_hooks):
+            hook()
+        proj = copy.deepcopy(self.project)
+        proj.model = self.text
+        proj.parameters = {n: ParameterSetting(v, *self.param_range(n)) for n, v in self.params.items()}
+        proj.initial = dict(self.initial)
+        proj.solver = copy.copy(self.solver)
+        return proj
+
+    def load_project(self, project: Project, path=None, disk_state=core_project.UNCHECKED):
+        """Replace the whole document (no undo); the model is parsed at once. Returns the ParsedModel.
+        ``disk_state``: what the file at ``path`` held when read (saving checks it has not changed since)."""
+        project = copy.deepcopy(project)
+        parsed = parse(project.model)
+        self.project, self.path = project, (Path(path) if path is not None else None)
+        self.disk_state = disk_state if path is not None else core_project.UNCHECKED
+        self.text = project.model
+        self._written_params = {n: float(i.value) for n, i in parsed.parameters.items()}
+        self._written_ranges = {n: (i.lo, i.hi) for n, i in parsed.parameters.items()}
+        self._written_initial = {s: float(parsed.initial.get(s, 0.0)) for s in parsed.states}
+        self.params = {n: float(s.value) for n, s in project.parameters.items()}
+        self.ranges = {n: (s.lo, s.hi) for n, s in project.parameters.items()
+                       if (s.lo, s.hi) != self._written_ranges.get(n, (None, None))}
+        self.initial = {k: float(v) for k, v in project.initial.items()}
+        self.solver = copy.copy(project.solver)
+        self.system, self.system_signature, self.trajectory = None, None, None
+        self.time_cursor = math.inf
+        self._clear_results()
+        self.generation += 1
+        self.text_generation += 1
+        self.undo.clear()
+        self.undo.set_clean()
+        self._forced_dirty = False
+        self.emit("text", self.text)
+        self.parsed = parsed
+        self.emit("parsed", parsed)
+        self.emit("settings")
+        self.emit("values")
+        self.emit("loaded")
+        self._update_dirty()
+        return parsed
+
+    def save(self, path=None, *, overwrite: bool = False, overwrite_read_only: bool = False) -> Path:
+        """Save to ``path`` (default: the current path); raises ProjectError on failure.
+
+        Saving over the open file raises ProjectConflict if it changed on disk since it was opened or last
+        saved (another window or program wrote it), unless ``overwrite``; a read-only file raises
+        ProjectReadOnly unless ``overwrite_read_only`` (it stays read-only).
+        """
+        target = Path(path) if path is not None else self.path
+        if target is None:
+            raise ProjectError("$", "no file name given")
+        proj = self.to_project()
+        if proj.name in ("", "Untitled"):
+            proj.name = target.stem
+        same_file = self.path is not None and _same_path(target, self.path)
+        expected = self.disk_state if same_file and not overwrite else core_project.UNCHECKED
+        self.disk_state = core_project.save(target, proj, expected=expected, overwrite_read_only=overwrite_read_only)
+        self.project.name = proj.name
+        self.project.views = copy.deepcopy(proj.views)
+        self.path = target
+        self.mark_saved()
+        return target

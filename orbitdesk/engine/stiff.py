@@ -1,0 +1,166 @@
+"""The stiff methods: scipy's implicit steppers with every step's interpolant held to the tolerance.
+
+scipy's Radau IIA and BDF control the error at the ends of their steps only. On a stiff problem
+whose solution is slaved to a slow forcing (a fast lag driven by a sine) they take steps of many
+forcing periods: the step ends are right, the polynomial in between is not, and samples or plane
+crossings read off it can be wrong by the size of the signal. ``StiffStepper`` therefore checks each
+step's interpolant where samples and crossings are read: at interior points it measures the defect
+r = p'(t) - f(t, p(t)) and turns it into an error estimate e = (I/h - J)^{-1} r (the integrated
+defect for slow components, -J^{-1} r for fast ones, where a stiff component's error is its defect
+over its rate). A step whose estimate exceeds the tolerance (rtol |y| + atol) is redone from its
+start with the step bounded by a quarter of its length; the bound is doubled after every RELAX
+steps that pass, so a run leaves a stretch that needed short steps.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import scipy.integrate
+
+CHECK_AT = (0.1, 0.4, 0.85)  # where inside each step the interpolant is checked (fractions of the step;
+#                              near the largest gaps of Radau IIA's cubic through 0, 0.155, 0.645, 1)
+SHRINK = 4.0  # a failing step is redone with the step bounded by its length / SHRINK
+RELAX = 10  # after this many steps in a row that pass, the bound doubles
+
+
+class StiffStepper:
+    """One scipy stiff solver (``scipy_name``), stepped like an ``OdeSolver`` (``step``, ``t``, ``y``,
+    ``t_old``, ``status``, ``dense_output``), whose accepted steps all pass the interpolant check."""
+
+    def __init__(self, scipy_name: str, fun, jac, t0: float, y0, t_bound: float, rtol: float, atol: float,
+                 max_step: float | None = None, check: bool = True):
+        self._cls = getattr(scipy.integrate, scipy_name)
+        self._fun, self._jac, self._t_bound = fun, jac, float(t_bound)
+        self.rtol, self.atol = float(rtol), float(atol)
+        self.max_step = self._user_max = np.inf if not max_step else float(max_step)
+        self._passed = 0
+        self.check = check  # False: nothing is read between step ends (no samples, no crossings)
+        self.redone = 0  # steps redone shorter because their interpolant missed the tolerance
+        self.t, self.y, self.t_old = float(t0), np.asarray(y0, dtype=float).copy(), None
+        self._start(self.t, self.y)
+
+    def _start(self, t, y):
+        self._solver = self._cls(self._fun, t, y, self._t_bound, rtol=self.rtol, atol=self.atol, jac=self._jac,
+                                 max_step=self.max_step)
+        self.status = self._solver.status
+
+    def step(self):
+        while True:
+            t_old, y_old = self.t, self.y
+            before = _snapshot(self._solver)
+            message = self._solver.step()
+            self.status = self._solver.status
+            if self.status == "failed":
+                return message
+            h = self._solver.t - t_old
+            if not self.check or self._interpolant_fits(t_old, y_old, h):
+                break
+            self.redone += 1
+            self._passed = 0
+            self.max_step = abs(h) / SHRINK
+            self._solver = before  # back to the step's start; the solver shortens its step to the bound
+            self._solver.max_step = self.max_step
+        self.t_old, self.t, self.y = t_old, self._solver.t, self._solver.y.copy()
+        self._passed += 1
+        if self._passed >= RELAX and self.max_step < self._user_max:
+            self.max_step = self._solver.max_step = min(2 * self.max_step, self._user_max)
+            self._passed = 0
+        return message
+
+    def dense_output(self):
+        return self._solver.dense_output()
+
+    def _interpolant_fits(self, t_old, y_old, h) -> bool:
+        if abs(h) <= 1e-9 * max(1.0, abs(t_old)):
+            return True  # shorter steps than this cannot be checked above round-off
+        sol = self._solver.dense_output()
+        y_new = self._solver.y
+        size = np.maximum(np.abs(y_old), np.abs(y_new))
+        # the slope is a central difference on the polynomial: below ~1e-11 |y| its round-off shows
+        scale = np.maximum(self.atol + self.rtol * size, 1e-11 * size)
+        n = y_new.size
+        delta = 1e-4 * h
+        try:
+            jac = np.asarray(self._jac(t_old + 0.5 * h, sol(t_old + 0.5 * h)), dtype=float).reshape(n, n)
+            filt = np.eye(n) / h - jac
+            for s in CHECK_AT:
+                tq = t_old + s * h
+                slope = (sol(tq + delta) - sol(tq - delta)) / (2 * delta)
+                defect = slope - np.asarray(self._fun(tq, sol(tq)), dtype=float)
+                error = np.linalg.solve(filt, defect)
+                if not np.all(np.isfinite(error)) or np.sqrt(np.mean((error / scale) ** 2)) > 1.0:
+                    return False
+        except (np.linalg.LinAlgError, ArithmeticError):
+            return True  # (I/h - J) singular: no estimate; the step's own error control stands
+        return True
+
+
+def _snapshot(solver):
+    """A copy of a scipy solver's state to step again from (its arrays copied: BDF updates some in place)."""
+    copy = object.__new__(type(solver))
+    copy.__dict__.update({k: (v.copy() if isinstance(v, np.ndarray) else v) for k, v in solver.__dict__.items()})
+    return copy
+
+
+def solve_at(scipy_name: str, fun, jac, t0: float, y0, t1: float, rtol: float, atol: float, grid,
+             report=None, max_step: float | None = None):
+    """The solution at the times ``grid`` (increasing towards t1, the last may be t1) by a checked
+    stiff stepper; (values (len(y0), len(grid)), steps, None) or (values so far, steps, the failure)."""
+    grid = np.asarray(grid, dtype=float)
+    inside = bool(np.any((grid - t1) * (1.0 if t1 >= t0 else -1.0) < 0))  # read off an interpolant
+    stepper = StiffStepper(scipy_name, fun, jac, t0, y0, t1, rtol, atol, max_step, check=inside)
+    out, k, steps = [], 0, 0
+    direction = 1.0 if t1 >= t0 else -1.0
+    while stepper.status == "running" and k < grid.size:
+        message = stepper.step()
+        steps += 1
+        if stepper.status == "failed":
+            return _columns(out, len(y0)), steps, message or "the step size collapsed"
+        if not np.all(np.isfinite(stepper.y)):
+            return _columns(out, len(y0)), steps, "the solution is not a number"
+        j = k
+        while j < grid.size and (grid[j] - stepper.t) * direction <= 0:
+            j += 1
+        if j > k:
+            values = np.asarray(stepper.dense_output()(grid[k:j]), dtype=float).reshape(len(y0), -1)
+            out.extend(values.T)
+            k = j
+        if report is not None:
+            report((stepper.t - t0) / (t1 - t0))
+    return _columns(out, len(y0)), steps, None
+
+
+def _columns(rows, n):
+    return np.array(rows, dtype=float).reshape(-1, n).T if rows else np.empty((n, 0))
+
+
+def spectral_radius(system, p, states) -> float:
+    """The largest |eigenvalue| of the Jacobian over the given states (columns): the fastest rate."""
+    rates = [0.0]
+    for u in np.asarray(states, dtype=float).T:
+        try:
+            rates.append(float(np.max(np.abs(np.linalg.eigvals(system.jac(0.0, u, p))))))
+        except (ArithmeticError, np.linalg.LinAlgError, ValueError):
+            continue
+    return max(rates)
+
+
+STIFF_STEPS = 20000  # an explicit run shorter than this is cheap whatever holds its step back
+
+
+def looks_stiff(system, p, run, min_steps: int = STIFF_STEPS) -> bool:
+    """Whether an explicit run was held back by stability rather than accuracy, enough for the implicit
+    method to pay: its step size collapsed, or it took more than ``min_steps`` steps and its mean step
+    times the fastest rate along it (spectral radius of the Jacobian at 40 of its samples) is above
+    1.5 (explicit Runge-Kutta methods are stable up to about 3 to 6 there; accuracy alone keeps it
+    well below 1 on non-stiff problems)."""
+    if run.status == "step_failed":
+        return True
+    if run.time.size < 2 or run.steps_taken < max(min_steps, 10):
+        return False
+    mean_step = abs(float(run.time[-1] - run.time[0])) / run.steps_taken
+    picks = np.linspace(0, run.time.size - 1, min(40, run.time.size)).astype(int)
+    return mean_step * spectral_radius(system, p, run.states[:, picks]) > 1.5
+
+
+__all__ = ["StiffStepper", "looks_stiff", "solve_at", "spectral_radius"]

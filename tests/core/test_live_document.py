@@ -1,0 +1,155 @@
+"""The headless live document (document/live.py) and its undo stack (document/undo.py), without Qt:
+what the window's Session and the command line both stand on."""
+
+import itertools
+
+import numpy as np
+import pytest
+
+from orbitdesk.document import live
+from orbitdesk.document.live import LiveDocument
+from orbitdesk.document.project import Project, WalkthroughStep
+from orbitdesk.engine.runs import simulate
+from orbitdesk.engine.settings import RunSettings
+
+DECAY = "x' = -k*x\nx(0) = 2\nk = 0.5 in [0, 2]\n"
+
+
+@pytest.fixture
+def ticks(monkeypatch):
+    """Undo merging reads a clock: one we advance by hand, so merging never depends on the machine's load."""
+    now = [0.0]
+    monkeypatch.setattr(live, "clock", lambda: now[0])
+    return now
+
+
+def events_of(doc):
+    seen = []
+    for name in live.EVENTS:
+        doc.subscribe(name, lambda *args, _n=name: seen.append(_n))
+    return seen
+
+
+def test_a_compiled_document_runs_the_closed_form():
+    doc = LiveDocument.from_project(Project(name="d", model=DECAY,
+                                            solver=RunSettings(t_end=4.0, samples=201)), compile=True)
+    assert doc.system.states == ["x"] and doc.params == {"k": 0.5} and doc.initial == {"x": 2.0}
+    doc.set_param("k", 0.25)
+    traj = simulate(doc.system, doc.run_settings(), doc.initial_vector(), doc.param_vector())
+    # closed form x(t) = x0 exp(-k t)
+    np.testing.assert_allclose(traj.series("x"), 2 * np.exp(-0.25 * traj.time), rtol=1e-6)
+    doc.set_trajectory(traj)
+    assert doc.time_cursor == pytest.approx(4.0)
+
+
+def test_edits_announce_themselves_and_undo_gives_the_old_values_back(ticks):
+    doc = LiveDocument.from_project(Project(model=DECAY), compile=True)
+    seen = events_of(doc)
+    doc.set_param("k", 1.0)
+    assert seen == ["values", "inputs", "dirty"] and doc.dirty
+    assert doc.undo.undo_label() == "Change parameter k"
+    doc.undo.undo()
+    assert doc.params["k"] == 0.5 and not doc.dirty
+    doc.undo.redo()
+    assert doc.params["k"] == 1.0
+    doc.set_solver(t_end=7.0)
+    assert doc.run_settings().t_end == 7.0 and seen.count("settings") == 1
+    doc.undo.undo()
+    assert doc.solver.t_end == RunSettings().t_end
+
+
+def test_slider_moves_merge_into_one_step_until_a_pause(ticks):
+    doc = LiveDocument.from_project(Project(model=DECAY), compile=True)
+    for i, v in enumerate((0.6, 0.7, 0.8)):
+        ticks[0] = 0.1 * i
+        doc.set_param("k", v)
+    assert doc.undo.count() == 1
+    ticks[0] = 10.0
+    doc.set_param("k", 0.9)
+    assert doc.undo.count() == 2
+    doc.undo.undo()
+    doc.undo.undo()
+    assert doc.params["k"] == 0.5
+    # moving back to where the step started leaves nothing to undo
+    doc.undo.clear()
+    doc.set_param("k", 0.7)
+    doc.set_param("k", 0.5)
+    assert doc.undo.count() == 0 and doc.params["k"] == 0.5
+
+
+def test_merging_stops_at_the_saved_state(ticks, tmp_path):
+    doc = LiveDocument.from_project(Project(model=DECAY), compile=True)
+    doc.set_param("k", 0.6)
+    doc.save(tmp_path / "d.orbitdesk")
+    assert not doc.dirty
+    doc.set_param("k", 0.7)
+    assert doc.undo.count() == 2 and doc.dirty
+    doc.undo.undo()
+    assert not doc.dirty and doc.params["k"] == 0.6
+
+
+def test_values_set_by_hand_survive_text_edits_unless_the_written_value_changes():
+    doc = LiveDocument.from_project(Project(model=DECAY), compile=True)
+    doc.set_param("k", 1.5)
+    doc.set_text(DECAY.replace("x(0) = 2", "x(0) = 3"))
+    doc.parse_now()
+    doc.compile_now()
+    assert doc.params["k"] == 1.5 and doc.initial["x"] == 3.0
+    doc.set_text(DECAY.replace("k = 0.5", "k = 0.25"))
+    doc.parse_now()
+    doc.compile_now()
+    assert doc.params["k"] == 0.25
+
+
+def test_results_belong_to_the_values_they_were_found_for():
+    doc = LiveDocument.from_project(Project(model=DECAY), compile=True)
+    doc.set_equilibria([{"state": {"x": 0.0}}])
+    doc.select_equilibrium(0)
+    doc.set_cycle("a cycle")
+    doc.set_param("k", 0.9)
+    assert doc.equilibria == [] and doc.selected_equilibrium is None and doc.cycle is None
+
+
+def test_walkthrough_and_data_parts_are_undoable(ticks):
+    doc = LiveDocument.from_project(Project(model=DECAY, walkthrough=[WalkthroughStep("One")]))
+    parts, after = [], []
+    doc.subscribe("part", parts.append)
+    doc.replace_part("walkthrough", [WalkthroughStep("One"), WalkthroughStep("Two")], "Record walkthrough step",
+                     after=after.append)
+    assert [s.title for s in doc.project.walkthrough] == ["One", "Two"] and parts == ["walkthrough"]
+    doc.set_step_text(1, "note", "a")
+    doc.set_step_text(1, "note", "ab")
+    assert doc.undo.count() == 2 and doc.project.walkthrough[1].note == "ab"
+    doc.undo.undo()
+    assert doc.project.walkthrough[1].note == ""
+    doc.undo.undo()
+    assert [s.title for s in doc.project.walkthrough] == ["One"] and after == [True, False]
+    with pytest.raises(KeyError):
+        doc.replace_part("model", "", "no")
+
+
+def test_a_macro_is_one_step():
+    doc = LiveDocument.from_project(Project(model=DECAY), compile=True)
+    doc.undo.begin_macro("Apply fitted values")
+    doc.set_param("k", 1.0)
+    doc.set_initial("x", 5.0)
+    doc.undo.end_macro()
+    assert doc.undo.count() == 1 and doc.undo.undo_label() == "Apply fitted values"
+    doc.undo.undo()
+    assert (doc.params, doc.initial) == ({"k": 0.5}, {"x": 2.0})
+
+
+def test_project_round_trip_through_the_document(tmp_path):
+    doc = LiveDocument.from_project(Project(name="d", model=DECAY), compile=True)
+    doc.set_param("k", 1.25)
+    doc.set_param_range("k", 0.0, 4.0)
+    hooks = itertools.count()
+    doc.add_save_hook(lambda: doc.project.views.update({"timeseries": {"log_y": bool(next(hooks) + 1)}}))
+    path = doc.save(tmp_path / "d.orbitdesk")
+    again = LiveDocument.open(path, compile=True)
+    assert again.params == {"k": 1.25} and again.param_range("k") == (0.0, 4.0)
+    assert again.project.views["timeseries"] == {"log_y": True}
+    text = tmp_path / "m.txt"
+    text.write_text(DECAY, encoding="utf-8")
+    plain = LiveDocument.open(text, compile=True)
+    assert plain.path is None and plain.name == "m" and plain.system.states == ["x"]

@@ -1,0 +1,100 @@
+"""Every method meets its tolerance at the reported samples and crossings, not only at its step ends.
+
+The reference is the stiff test problem with a closed form (Hairer & Wanner, Solving ODEs II, sec. IV.1,
+and Shampine's 'lag driven by a sine'): y' = -lambda (y - sin t) + cos t, whose solution is
+y(t) = sin t + (y(0) - 0) e^{-lambda t}. Samples are compared with it one by one.
+"""
+
+import math
+
+import numpy as np
+import pytest
+
+from orbitdesk.analyses.sections import plane_section
+from orbitdesk.engine.runs import OK, RunSettings, simulate
+from orbitdesk.engine.stiff import StiffStepper
+from orbitdesk.system.compiled_system import compile_model
+
+
+def lag(lam):
+    return compile_model(f"lam = {lam:g}\ny' = -lam*(y - sin(t)) + cos(t)\ny(0) = 1\n")
+
+
+def exact(t, lam):
+    return np.sin(t) + np.exp(-lam * t)
+
+
+def worst_ratio(run, lam, rtol, atol):
+    """The largest sample error over the tolerance rtol |y| + atol (|y| the larger of the solution's size
+    at the sample and one: the stepper's own scale)."""
+    y = exact(run.time, lam)
+    return float(np.max(np.abs(run.states[0] - y) / (atol + rtol * np.maximum(np.abs(y), 1.0))))
+
+
+@pytest.mark.parametrize("method", ["stiff", "bdf"])
+@pytest.mark.parametrize("rtol", [1e-6, 1e-8])
+def test_stiff_methods_meet_the_tolerance_at_every_sample(method, rtol):
+    # lambda = 1e6: the steppers' own error control allows steps of many forcing periods here; their
+    # interpolants were off by up to 2 (the size of the signal) at the samples before the check.
+    lam = 1e6
+    run = simulate(lag(lam), RunSettings(method=method, rtol=rtol, atol=1e-2 * rtol, t_end=60, samples=2401))
+    assert run.status == OK
+    assert worst_ratio(run, lam, rtol, 1e-2 * rtol) <= 3.0
+
+
+def test_rk45_meets_the_tolerance_at_every_sample():
+    lam = 1e3  # stiff enough that the explicit step sits at its stability limit
+    run = simulate(lag(lam), RunSettings(method="rk45", rtol=1e-8, atol=1e-10, t_end=20, samples=4001))
+    assert run.status == OK
+    assert worst_ratio(run, lam, 1e-8, 1e-10) <= 3.0
+
+
+def test_rk4_samples_are_as_accurate_as_its_steps():
+    # rk4 has a fixed step and no tolerance: its samples (cubic Hermite between steps, order 4 like the
+    # method) must be as close to the closed form as the step ends are
+    lam = 100.0
+    settings = RunSettings(method="rk4", dt=2e-3, t_end=10)
+    steps = simulate(lag(lam), settings.replace(samples=0))
+    samples = simulate(lag(lam), settings.replace(samples=3331))  # sample times fall between the steps
+    at_steps = np.max(np.abs(steps.states[0] - exact(steps.time, lam))[steps.time > 0.1])
+    at_samples = np.max(np.abs(samples.states[0] - exact(samples.time, lam))[samples.time > 0.1])
+    assert at_samples <= 3 * at_steps + 1e-12
+
+
+@pytest.mark.xfail(strict=True, reason="the 7th-order dense output of Dormand-Prince 8(5,3) loses accuracy "
+                   "between steps at the stability limit (0.3e-6 at samples, 3e-9 at step ends; scipy's "
+                   "DOP853 does the same): not yet checked like the stiff methods' interpolants")
+def test_dop853_meets_the_tolerance_at_every_sample():
+    lam = 1e3
+    run = simulate(lag(lam), RunSettings(method="dop853", rtol=1e-8, atol=1e-10, t_end=20, samples=4001))
+    assert worst_ratio(run, lam, 1e-8, 1e-10) <= 3.0
+
+
+def test_the_interpolant_check_redoes_long_steps_and_lets_them_grow_again():
+    lam = 1e6
+    f = lambda t, y: -lam * (y - np.sin(t)) + np.cos(t)
+    stepper = StiffStepper("Radau", f, lambda t, y: np.array([[-lam]]), 0.0, [1.0], 40.0, 1e-6, 1e-8)
+    longest = 0.0
+    while stepper.status == "running":
+        stepper.step()
+        longest = max(longest, stepper.t - stepper.t_old)
+    assert stepper.redone > 0
+    # a cubic over a step of h reproduces sin t to ~h^4/384 (its remainder term): the check keeps h
+    # well below one period, where the unchecked stepper took steps of 10 and more
+    assert longest < 1.0
+    assert stepper.y[0] == pytest.approx(math.sin(40.0), abs=1e-5)
+
+
+@pytest.mark.parametrize("method", ["stiff", "bdf"])
+def test_section_with_a_stiff_method_reports_the_exact_crossings(method):
+    # y = sin t after the transient: y = 1/2 rising at pi/6 + 2 pi k, falling at 5 pi/6 + 2 pi k
+    lam = 1e6
+    settings = RunSettings(method=method, rtol=1e-8, atol=1e-10, t_end=50)
+    up = plane_section(lag(lam), coordinate="y", value=0.5, direction="up", count=6, transient=1.0,
+                       settings=settings)
+    down = plane_section(lag(lam), coordinate="y", value=0.5, direction="down", count=6, transient=1.0,
+                         settings=settings)
+    k = np.arange(1, 7)
+    assert up.times == pytest.approx(math.pi / 6 + 2 * math.pi * k, abs=1e-6)
+    assert down.times == pytest.approx(5 * math.pi / 6 + 2 * math.pi * (k - 1), abs=1e-6)
+    assert np.all(np.abs(up.points[0] - 0.5) < 1e-8)
