@@ -726,6 +726,80 @@ train_centre = sum(x_{j}, j in 1..N)/N
     ])
 
 
+# ---------------------------------------------------------------- a flap rattling against a stop (events)
+
+FLAP_MODEL = """\
+# A thin sprung steel flap guards the outlet of a vibrating parts feeder. The feeder shakes it; when the
+# swing is large enough, the flap's tip hits a rubber-faced stop a small gap away and bounces back.
+# x: tip deflection towards the stop (mm); x': its speed. Time is counted so that the flap, left alone,
+# swings at 1 radian per unit of time (a full swing takes 2 pi = 6.28).
+k = 1                      # spring stiffness per unit mass
+c = 0.05 in [0, 0.5]       # damping
+A = 0.3 in [0, 1]          # shaking force of the feeder (per unit mass)
+w = 0.8 in [0.2, 4]        # shaking frequency (radians per unit time)
+gap = 1 in [0, 1.5]        # from the flap at rest to the stop (mm)
+r = 0.7 in [0, 1]          # restitution of the stop: the share of the speed the tip keeps at a hit
+
+x'' = -c*x' - k*x + A*cos(w*t)
+x(0) = 0
+x'(0) = 0
+
+when x > gap then x' = -r*x'       # a hit: located exactly, the speed reversed and reduced
+"""
+FLAP_PERIOD = round(2 * math.pi / 0.8, 6)
+FLAP_FAST = round(2 * math.pi / 2.8, 6)
+
+RATTLING_FLAP = sample(
+    "rattling_flap.orbitdesk", "A flap rattling against its stop", FLAP_MODEL,
+    dict(method="dop853", t_end=300.0, samples=12000),
+    {"timeseries": {"series": ["x"]}, "phase_plane": {"x": "x", "y": "x'", "arrows": False},
+     "sections": {"kind": "strobe", "period": FLAP_PERIOD, "count": 200, "transient": 300.0}},
+    "Impacts as events: a shaken flap that swings freely, rattles once or twice per shake, or rattles chaotically.",
+    [
+        ("Shaken, but not touching",
+         "The feeder shakes the flap at `w = 0.8`, below its own swing rate 1. Once the start-up has died "
+         "away the flap swings with the amplitude of a shaken spring, `A/sqrt((k - w^2)^2 + (c w)^2)` = "
+         "0.83 mm, which stays short of the stop at `gap = 1`: the last line of the model, "
+         "`when x > gap then x' = -r*x'`, is an **event**. During the start-up the swing overshoots and the "
+         "tip touches the stop once: the time series marks it with a ring (the values just before the "
+         "hit) and a dot (just after), and the read-back lists the event under **Events**.",
+         {"open_views": ["timeseries", "phase_plane"]}),
+        ("Closer to the stop: a hit every other shake",
+         "Move the stop to `gap = 0.6`. Now the tip reaches it on every swing towards it, but the hits "
+         "take turns: a harder one, then a softer one. Each hit is found where `x` crosses `gap` to the "
+         "integrator's tolerance, the speed is reversed and multiplied by `r = 0.7`, and the run goes on "
+         "from there. In the phase plane each hit is a jump straight down at `x = gap`.\n\n"
+         "The **stroboscopic section** photographs the flap once per shake: two dots, because the motion "
+         "repeats only every second shake.",
+         {"parameters": {"gap": 0.6}, "open_views": ["timeseries", "phase_plane", "sections"],
+          "section": {"strobe": FLAP_PERIOD}}),
+        ("Closer still: one hit per shake",
+         "At `gap = 0.3` the pattern locks to one hit per shake and the section shows a single dot. "
+         "`orbitdesk run rattling_flap.orbitdesk --set gap=0.3 --json` lists every hit with its time, the "
+         "model line and the values before and after it.",
+         {"parameters": {"gap": 0.3}, "open_views": ["timeseries", "phase_plane", "sections"],
+          "section": {"strobe": FLAP_PERIOD}}),
+        ("Fast, hard shaking: a chaotic rattle",
+         "Shake harder and faster, `A = 0.6`, `w = 2.8`, with the stop touching the flap at rest "
+         "(`gap = 0`) and a livelier stop, `r = 0.8`. The hits no longer repeat: the flash photographs, "
+         "now once per shake `2 pi/2.8`, spread over a folded curve, the mark of chaos in an impact "
+         "oscillator.",
+         {"parameters": {"A": 0.6, "w": 2.8, "gap": 0.0, "r": 0.8},
+          "open_views": ["timeseries", "sections"], "section": {"strobe": FLAP_FAST}}),
+        ("A dead stop: hits pile up",
+         "A dead stop that keeps only 5 % of the speed, `r = 0.05`, and a slow, strong push, `w = 0.3`, "
+         "`A = 0.6`: the push holds the flap against the stop, each rebound is a twentieth of the one "
+         "before, and the rebounds crowd together like a ball coming to rest, infinitely many of them "
+         "before a finite time. OrbitDesk does not step forever: the run ends at t = 1.26 with the status "
+         "*chattering* and says where and why (the status bar). The limit is "
+         "`orbitdesk run --event-rate R` (10,000 events per unit time by default).\n\n"
+         "What the analyses assume with events: equilibria are those of the equation between hits (you get "
+         "a note); Lyapunov exponents and limit cycles are refused with the reason (a perturbation jumps "
+         "at each hit by the saltation matrix, which they do not apply); sections follow the hits.",
+         {"parameters": {"gap": 0.3, "r": 0.05, "w": 0.3, "A": 0.6}, "open_views": ["timeseries", "phase_plane"]}),
+    ])
+
+
 # ---------------------------------------------------------------- a plucked bracket, fitted to an invented record
 
 BRACKET_MODEL = """\
@@ -986,7 +1060,7 @@ x'(0) = 0
     ])
 
 SAMPLES = [SHAKEN_BEAM, CONVECTION_LOOP, RELAXATION_CIRCUIT, CLOCK_REACTION, POND_PREDATORS,
-           INSECT_GENERATIONS, PENDULUM, STIRRED_TANK, WAGON_TRAIN, BRACKET, SHOWER, BUOY]
+           INSECT_GENERATIONS, PENDULUM, STIRRED_TANK, WAGON_TRAIN, RATTLING_FLAP, BRACKET, SHOWER, BUOY]
 
 
 def main(argv=None) -> int:

@@ -18,6 +18,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from orbitdesk.engine.model_events import refuse_ensembles
 from orbitdesk.engine.ensembles import iterate_ensemble, rk4_ensemble
 from orbitdesk.analyses.parameter_maps import minimal_periods
 from orbitdesk.engine.progress import Reporter
@@ -61,6 +62,7 @@ def basins(system, x_name: str, xs, y_name: str, ys, settings: BasinSettings | N
     """The basins of attraction over the grid ``ys x xs`` of starts (rows: y); see the module notes."""
     system.refuse_delays("basins of attraction")
     s = settings or BasinSettings()
+    refuse_ensembles(system, "Basins of attraction")
     for name in (x_name, y_name):
         if name not in system.states:
             raise ValueError(f"'{name}' is not a state (states: {', '.join(system.states)})")

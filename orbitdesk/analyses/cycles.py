@@ -20,6 +20,7 @@ from scipy.stats import qmc
 from orbitdesk.engine.runs import Event, RunSettings, simulate
 from orbitdesk.analyses.equilibria import NONSMOOTH_WARNING
 from orbitdesk.engine import compiled, drivers
+from orbitdesk.engine.model_events import saltation_refusal
 from orbitdesk.engine.status import C_CANCELLED
 from orbitdesk.engine.status import word as status_word
 from orbitdesk.engine.progress import CancelToken, Cancelled, Reporter
@@ -180,6 +181,9 @@ def find_cycle(system: CompiledSystem, p=None, guess=None, period_guess: float |
     system.refuse_delays("the limit-cycle search")
     if system.kind == MAP:
         raise ValueError("this is a map: look for its cycles with a period K (find_map_cycle)")
+    if system.model.events:
+        raise ValueError(saltation_refusal(system, "Limit cycles (by shooting, with Floquet multipliers)")
+                         + "; a run shows a periodic orbit's events, and a Poincaré section its period")
     p = system.param_values.astype(float) if p is None else np.asarray(p, dtype=float)
     report = Reporter(progress, cancel)
     flow = _Flow(system, p, rtol, atol, cancel)

@@ -22,6 +22,7 @@ from scipy.optimize import root
 from scipy.stats import qmc
 
 from orbitdesk.language.angles import wrap_equilibria
+from orbitdesk.engine.model_events import describe_events
 from orbitdesk.engine.progress import CancelToken, Cancelled, Reporter
 from orbitdesk.system.compiled_system import MAP, CompiledSystem
 
@@ -422,6 +423,10 @@ def find_equilibria(system: CompiledSystem, p=None, box: dict | None = None, sta
     p = system.param_values.astype(float) if p is None else np.asarray(p, dtype=float)
     report = Reporter(progress, cancel)
     notes: list[str] = []
+    if system.kind != MAP and system.model.events:
+        notes.append("these are equilibria of the equations between events; the model's events "
+                     f"({describe_events(system)}) are not considered: an equilibrium beyond an event's boundary "
+                     "is not reached by the runs, and a reset can move a solution away from one")
     n = system.n_states
     G, DG = _residual_functions(system, p)
 

@@ -25,6 +25,7 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy import optimize, stats
 
+from orbitdesk.engine.model_events import describe_events
 from orbitdesk.document.datasets import DataSet
 from orbitdesk.engine.progress import CancelToken, Reporter
 from orbitdesk.analyses.sensitivity import Observer, SensitivityFailure, Sensitivities
@@ -335,6 +336,10 @@ def fit(system: CompiledSystem, datasets: list[DataSet], settings: FitSettings, 
     ``p0``/``u0`` are the starting parameter and initial vectors (default: the model's); ``ranges``
     maps parameter names to (lo, hi) bounds (default: the model's slider ranges)."""
     system.refuse_delays("fitting to data")
+    if getattr(system.model, "events", None):
+        raise ValueError("fitting a model with events is not offered yet: the fit's sensitivities (du/dp) jump "
+                         "at each event by the saltation matrix, which it does not apply; the model's events: "
+                         f"{describe_events(system)}")
     p0 = system.param_values.copy() if p0 is None else np.asarray(p0, dtype=float)
     u0 = system.initial.copy() if u0 is None else np.asarray(u0, dtype=float)
     ranges = dict(system.param_ranges if ranges is None else ranges)

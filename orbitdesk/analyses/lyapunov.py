@@ -31,6 +31,8 @@ from orbitdesk.engine.runs import CANCELLED, DIVERGED, OK, UNDEFINED, RunSetting
 from orbitdesk.engine.progress import Cancelled, Reporter
 from orbitdesk.system.compiled_system import MAP, CompiledSystem
 from orbitdesk.engine import compiled, drivers
+from orbitdesk.engine.model_events import saltation_refusal
+from orbitdesk.engine.status import REFUSED
 from orbitdesk.engine.status import word as status_word
 
 QR, TWO_TRAJECTORY = "qr", "two-trajectory"
@@ -155,6 +157,8 @@ def lyapunov_spectrum(system: CompiledSystem, p=None, u0=None, t_end: float | No
     p = system.param_values.copy() if p is None else np.asarray(p, dtype=float)
     u = system.initial.copy() if u0 is None else np.asarray(u0, dtype=float)
     start, end, transient = _span(system, settings, t_end, steps, transient)
+    if saltation_refusal(system, "Lyapunov exponents"):
+        return _failed("flow", QR, REFUSED, saltation_refusal(system, "Lyapunov exponents"), system.n_states)
     if system.kind == MAP:
         result = _map_spectrum(system, p, u, end, transient, settings.bound, Reporter(progress, cancel))
     else:
@@ -260,6 +264,8 @@ def largest_lyapunov_two_trajectory(system: CompiledSystem, p=None, u0=None, t_e
     u = system.initial.copy() if u0 is None else np.asarray(u0, dtype=float)
     start, end, transient = _span(system, settings, t_end, steps, transient)
     n = system.n_states
+    if saltation_refusal(system, "Lyapunov exponents"):
+        return _failed("flow", TWO_TRAJECTORY, REFUSED, saltation_refusal(system, "Lyapunov exponents"), 1)
     report = Reporter(progress, cancel)
     direction = [1.0 / math.sqrt(n)] * n
     if system.delays:  # the state is a segment of the solution: two nearby histories

@@ -19,6 +19,7 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
+from orbitdesk.engine.model_events import refuse_ensembles
 from orbitdesk.engine.progress import Reporter
 from orbitdesk.analyses.sweep import ITERATE, MAXIMA, STROBE, SweepSettings, run_members
 from orbitdesk.system.compiled_system import MAP
@@ -101,6 +102,7 @@ def period_grid(system, pname_x: str, xs, pname_y: str, ys, settings: SweepSetti
     maxima per cycle and the period in time (see the module notes). At least 2 * max_period + 1 samples
     are taken."""
     system.refuse_delays("the two-parameter map of periods")
+    refuse_ensembles(system, "Maps of the period over two parameters")
     for name in (pname_x, pname_y):
         if name not in system.parameters:
             raise ValueError(f"unknown parameter '{name}' (parameters: {', '.join(system.parameters) or 'none'})")

@@ -198,6 +198,7 @@ def plane_section(system: CompiledSystem, p=None, u0=None, coordinate: str = "",
         return _delay_plane_section(system, p, u, coordinate, value, direction, count, transient,
                                     settings or RunSettings(), cancel, t_max)
     g, rate = _section_function(system, coordinate, value, p)
+    functions = {np.asarray(p, dtype=float).tobytes(): (g, rate)}  # (g, rate) per parameter values met
     if coordinate in system.states:  # a plane: located inside the compiled loop
         event = Event.on_plane(np.eye(system.n_states)[system.states.index(coordinate)], value)
     else:
@@ -219,7 +220,7 @@ def plane_section(system: CompiledSystem, p=None, u0=None, coordinate: str = "",
         run = simulate(system, replace(base, t_start=t, t_end=t + transient), u, p, cancel=cancel)
         if not run.ok:
             return result([], [], run.status, f"during the transient: {run.message}")
-        u, t = run.final_state.copy(), t + transient
+        u, t, p = run.final_state.copy(), t + transient, run.end_params(p)
     t_begin = t
     t_limit = t_begin + 100.0 * span if t_max is None else max(float(t_max), t_begin)
     raw_t, raw_u, raw_r = [], [], []
@@ -229,16 +230,21 @@ def plane_section(system: CompiledSystem, p=None, u0=None, coordinate: str = "",
     while len(keep) < count and t < t_limit:
         t_end = min(t + chunk, t_limit)
         run = simulate(system, replace(base, t_start=t, t_end=t_end), u, p, events=[event], cancel=cancel)
-        for te, ue in zip(run.event_times[0], run.event_states[0].T):
-            te, ue = _refine(g, rate, system, p, float(te), ue)
+        for j, (te, ue) in enumerate(zip(run.event_times[0], run.event_states[0].T)):
+            pe = run.params_at_crossing(0, j, p)  # events of the model may have changed parameters
+            key = np.asarray(pe, dtype=float).tobytes()
+            if key not in functions:
+                functions[key] = _section_function(system, coordinate, value, pe)
+            ge, rate_e = functions[key]
+            te, ue = _refine(ge, rate_e, system, pe, float(te), ue)
             raw_t.append(te)
             raw_u.append(ue)
-            raw_r.append(_crossing_rate(g, rate, system, p, te, ue))
+            raw_r.append(_crossing_rate(ge, rate_e, system, pe, te, ue))
         keep, touch = _select(raw_t, raw_r, direction, tolerance)
         if not run.ok:
             status, message = run.status, run.message
             break
-        u, t = run.final_state.copy(), float(run.time[-1])
+        u, t, p = run.final_state.copy(), float(run.time[-1]), run.end_params(p)
         if not raw_t and t - t_begin >= span:
             message = (f"no crossing of {coordinate} = {value:g} in {t - t_begin:g} time units "
                        "after the transient: the plane may miss the orbit")
@@ -346,7 +352,7 @@ def strobe_section(system: CompiledSystem, p=None, u0=None, period: float = 2 * 
                        progress=report.part(0.0, share) if progress else None)
         if not run.ok:
             return result(np.empty(0), np.empty((len(names), 0)), run.status, f"during the transient: {run.message}")
-        u = run.final_state.copy()
+        u, p = run.final_state.copy(), run.end_params(p)
     if count == 1:
         return result([t_first], u.reshape(-1, 1))
     t_last = t_first + (count - 1) * period

@@ -31,6 +31,7 @@ from functools import partial
 
 import numpy as np
 
+from orbitdesk.engine.model_events import refuse_ensembles
 from orbitdesk.engine.chunks import compiled_system, run_chunks, split, worker_count
 from orbitdesk.engine.progress import Reporter
 from orbitdesk.engine.status import OK
@@ -298,7 +299,12 @@ def sweep(system, parameter: str, values, settings: SweepSettings | None = None,
         raise ValueError("the parameter values must be finite numbers")
     base_p = system.param_values.astype(float) if p is None else np.asarray(p, dtype=float)
     u0 = system.initial.astype(float) if u0 is None else np.asarray(u0, dtype=float)
-    if executor is not None or chunk_size is not None:
+    if system.model.events:  # each value on its own through the single-run engine, which applies events
+        from orbitdesk.analyses.sweep_events import sweep_with_events
+
+        samples, times, lyap, status = sweep_with_events(system, parameter, values, settings, u0, base_p,
+                                                         cancel, progress)
+    elif executor is not None or chunk_size is not None:
         pieces = split(values.size, chunk_size or 64)
         text = system.model.text
         args = [(text, parameter, values[piece], settings, u0 if u0.ndim == 1 else u0[:, piece], base_p)
@@ -369,6 +375,7 @@ def lyapunov_grid(system, pname_x: str, xs, pname_y: str, ys, settings: GridSett
     whenever numba is there, False never; the choice is made once for the grid. Compiled chunks run
     on threads of this process by default (the loops release the GIL)."""
     system.refuse_delays("the two-parameter map of exponents")
+    refuse_ensembles(system, "Maps of the largest Lyapunov exponent")
     settings = settings or GridSettings()
     for name in (pname_x, pname_y):
         if name not in system.parameters:

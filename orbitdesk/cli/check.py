@@ -28,6 +28,7 @@ def run(args) -> int:
                         "line": d.line} for d in parsed.delays],
             "history": {name: {"expression": str(expr), "line": parsed.history_lines.get(name)}
                         for name, expr in parsed.history.items()},
+            "events": [event.to_dict() for event in parsed.events],
             "structural_parameters": sorted(parsed.structural),
             "diagnostics": [
                 {"line": d.line, "column": d.column, "end_column": d.end_column,
@@ -37,7 +38,8 @@ def run(args) -> int:
         for d in parsed.diagnostics:
             print(d.format())
         if parsed.ok:
+            events = f", {len(parsed.events)} event{'s' if len(parsed.events) != 1 else ''}" if parsed.events else ""
             print(f"ok: {parsed.kind} with {len(parsed.states)} states ({', '.join(parsed.states)}), "
-                  f"{len(parsed.parameters)} parameters"
+                  f"{len(parsed.parameters)} parameters{events}"
                   + (f", delayed values {', '.join(d.label for d in parsed.delays)}" if parsed.delays else ""))
     return EXIT_OK if parsed.ok else EXIT_ERRORS

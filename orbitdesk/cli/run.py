@@ -3,6 +3,7 @@
 from orbitdesk.engine.runs import simulate
 from orbitdesk.engine.methods import NAMES
 from orbitdesk.engine.settings import SCHEMES, RunSettings, SettingsError
+from orbitdesk.engine.status import STOPPED
 from orbitdesk.system.compiled_system import MAP
 
 from orbitdesk.cli.common import (CommandError, add_value_options, open_model, parse_number, parse_positive,
@@ -20,6 +21,9 @@ def register(sub):
     parser.add_argument("--method", choices=NAMES, help="integration method")
     parser.add_argument("--rtol", type=str, metavar="R")
     parser.add_argument("--atol", type=str, metavar="A")
+    parser.add_argument("--event-rate", type=str, metavar="R",
+                        help="events of the model per unit time beyond which a run ends as chattering "
+                             "(default 10000)")
     noise = parser.add_argument_group("models with noise")
     noise.add_argument("--seed", type=int, metavar="S", help="seed of the random increments (same seed, same run)")
     noise.add_argument("--realisations", type=int, metavar="R", help="how many realisations to run")
@@ -47,9 +51,9 @@ def settings_for(source, args) -> RunSettings:
             changes[name] = getattr(args, name)
     if getattr(args, "dt", None) is not None:
         changes["dt"] = parse_positive(args.dt, "--dt")
-    for name in ("rtol", "atol"):
+    for name in ("rtol", "atol", "event_rate"):
         if getattr(args, name, None) is not None:
-            changes[name] = parse_positive(getattr(args, name), f"--{name}")
+            changes[name] = parse_positive(getattr(args, name), "--" + name.replace("_", "-"))
     try:
         return source.doc.run_settings(**changes)
     except SettingsError as problem:
@@ -77,8 +81,9 @@ def run(args) -> int:
             time_key: traj.time,
             "states": {name: traj.states[i] for i, name in enumerate(system.states)},
             "derived": traj.derived,
+            "events": [event.to_dict() for event in traj.model_events],
         })
-    return 0 if traj.ok else 1
+    return 0 if traj.ok or traj.status == STOPPED else 1
 
 
 def _noise_output(args, system, traj) -> int:

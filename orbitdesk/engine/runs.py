@@ -71,6 +71,17 @@ class Trajectory:
     event_states: list[np.ndarray] = field(default_factory=list)  # each (n_states, M)
     steps_taken: int = 0
     realisations: object = None  # a model with noise: engine.stochastic.Realisations (states = the first)
+    model_events: list = field(default_factory=list)  # AppliedEvent of the model's 'when' lines, in time order
+    final_params: np.ndarray | None = None  # parameters at the end when the model's events changed them
+    event_params: list = field(default_factory=list)  # per event of the caller: (n_params, M) when they changed
+
+    def end_params(self, p):
+        """The parameter values at the end of the run (``p`` unless the model's events changed them)."""
+        return p if self.final_params is None else self.final_params
+
+    def params_at_crossing(self, k, j, p):
+        """The parameter values at the caller's event k, crossing j (``p`` unless events changed them)."""
+        return p if not self.event_params else self.event_params[k][:, j]
 
     @property
     def ok(self) -> bool:
@@ -131,6 +142,10 @@ def simulate(system: CompiledSystem, settings: RunSettings | None = None, u0=Non
         from orbitdesk.engine.delay import simulate_delay
 
         return simulate_delay(system, settings, u0, p, list(events), report)
+    if system.model.events:
+        from orbitdesk.engine.model_events import simulate_with_events
+
+        return simulate_with_events(system, settings, u0, p, list(events), report)
     if settings.method_info.family == "explicit_rk" and all(ev.plane is not None for ev in events):
         return _integrate_loop(system, settings, u0, p, list(events), report)
     return _integrate(system, settings, u0, p, list(events), report)

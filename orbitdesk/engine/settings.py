@@ -41,9 +41,11 @@ RULES = {
     "scheme": ("scheme", None, None, False),  # models with noise: the fixed-step scheme (engine/stochastic.py)
     "seed": ("count", 0, 2**31 - 1, False),  # models with noise: every run from one seed is the same
     "realisations": ("count", 1, 100_000, False),
+    "event_rate": ("positive", None, None, False),
 }
 SAVED = ("method", "rtol", "atol", "max_step", "dt", "t_start", "t_end", "samples", "steps", "transient",
-         "scheme", "seed", "realisations")
+         "event_rate", "scheme", "seed", "realisations")
+SAVED_IF_CHANGED = ("event_rate",)  # written into a project only when it differs from the default
 
 
 def check_value(name: str, value):
@@ -99,6 +101,7 @@ class RunSettings:
     steps: int = 1000  # iterations of a map
     bound: float = 1e10  # |state| beyond this counts as blow-up
     transient: float = 0.0  # output before t_start + transient is dropped
+    event_rate: float = 10_000.0  # model events per unit time beyond which a run ends as chattering
     scheme: str = "milstein"  # models with noise: fixed step dt, realisations from seed
     seed: int = 1
     realisations: int = 20
@@ -115,7 +118,8 @@ class RunSettings:
 
     def saved(self) -> dict:
         """The fields a project stores."""
-        return {name: getattr(self, name) for name in SAVED}
+        return {name: getattr(self, name) for name in SAVED
+                if name not in SAVED_IF_CHANGED or getattr(self, name) != getattr(RunSettings, name)}
 
     @classmethod
     def from_mapping(cls, values: dict, base: "RunSettings | None" = None) -> "RunSettings":

@@ -16,12 +16,16 @@ TABLE = (
     (2, "undefined", "an expression of the model was undefined (not a number)"),
     (3, "step_failed", "the adaptive step size collapsed or the step budget ran out"),
     (4, "cancelled", "stopped on request"),
+    (5, "stopped", "ended by an event of the model ('when ... then stop')"),
+    (6, "chattering", "events came faster than the limit on events per unit time (Zeno behaviour or chattering)"),
+    (7, "refused", "the analysis does not apply to this model; the message says why"),
 )
-OK, DIVERGED, UNDEFINED, STEP_FAILED, CANCELLED = (word for _, word, _ in TABLE)
+OK, DIVERGED, UNDEFINED, STEP_FAILED, CANCELLED, STOPPED, CHATTERING, REFUSED = (word for _, word, _ in TABLE)
 CODE = {word: code for code, word, _ in TABLE}
 WORD = {code: word for code, word, _ in TABLE}
 MEANING = {word: meaning for _, word, meaning in TABLE}
-C_OK, C_DIVERGED, C_UNDEFINED, C_STEP_FAILED, C_CANCELLED = (code for code, _, _ in TABLE)
+(C_OK, C_DIVERGED, C_UNDEFINED, C_STEP_FAILED, C_CANCELLED, C_STOPPED, C_CHATTERING,
+ C_REFUSED) = (code for code, _, _ in TABLE)
 WIDTH = "<U" + str(max(len(word) for word in WORD.values()))
 
 
@@ -38,5 +42,5 @@ def word(code: int) -> str:
     return WORD[int(code)]
 
 
-__all__ = ["TABLE", "OK", "DIVERGED", "UNDEFINED", "STEP_FAILED", "CANCELLED", "CODE", "WORD", "MEANING",
+__all__ = ["TABLE", "OK", "DIVERGED", "UNDEFINED", "STEP_FAILED", "CANCELLED", "STOPPED", "CHATTERING", "REFUSED", "CODE", "WORD", "MEANING",
            "C_OK", "C_DIVERGED", "C_UNDEFINED", "C_STEP_FAILED", "C_CANCELLED", "WIDTH", "words", "word"]

@@ -207,6 +207,18 @@ def model_latex(model, parameters: dict | None = None, initial: dict | None = No
         rows = [rf"{latex_name(name)}(t) &= {tex(parsed.history[name])} && \text{{for }} t \le 0"
                 for name in parsed.history_lines]
         sections.append(("with the history", rows))
+    if parsed.events:
+        relations = {"<": "<", "<=": r"\le", ">": ">", ">=": r"\ge"}
+        rows = []
+        for ev in parsed.events:
+            left, op, right = ev.sides
+            does = [f"{latex_name(target)} \\leftarrow {tex(expr)}" for target, _, expr in ev.assignments]
+            if ev.stop:
+                does.append(r"\text{stop}")
+            rows.append(rf"&\text{{when }} {tex(left)} {relations[op]} {tex(right)}\text{{ becomes true:}}\quad "
+                        + ",\\ ".join(does))
+        sections.append(("with the events (each applied at the crossing; right sides use the values before it)",
+                         rows))
     rows = []
     for state in parsed.states:
         if is_map:

@@ -291,6 +291,18 @@ def render_report(project, system, figures: dict | None = None, equilibria=None,
                 for n, e in zip(system.derived_names, system.derived_delayed or system.derived_exprs)]
         out.append(_table(["name", "definition"], rows))
 
+    events = getattr(system.model, "events", None) or []
+    if events:
+        out.append("<h2>Events</h2>")
+        rows = [[str(ev.line), f'<span class="math">{_e(ev.rule)}</span>',
+                 f"at {_e(t)} = {_e(_expr(-ev.time_offset / ev.time_rate))}" if ev.on_time else
+                 f'<span class="math">{_e(_expr(ev.sides[0]))}</span> '
+                 f'{"rises above" if ev.direction > 0 else "falls below"} '
+                 f'<span class="math">{_e(_expr(ev.sides[2]))}</span>'] for ev in events]
+        out.append(_table(["line", "event", "happens when"], rows, numeric=(0,)))
+        out.append('<p class="muted">Each crossing is located on the integrator\'s dense output; the right sides are '
+                   "worked out with the values from before the event, then all are set, and the run restarts.</p>")
+
     s = project.solver
     if is_map:
         run = f"{s.steps} iterations"

@@ -64,6 +64,10 @@ def run_script(system: CompiledSystem, settings: RunSettings | None = None, u0=N
                title: str = "OrbitDesk model", output: str = "run.csv") -> str:
     """The text of a script that reproduces ``simulate(system, settings, u0, p)`` and writes CSV."""
     settings = settings or RunSettings()
+    if getattr(system.model, "events", None):
+        raise ValueError("the standalone script does not apply events yet (when ... then ...), so it would not "
+                         "reproduce this model's runs; export the run's numbers as CSV instead "
+                         "(orbitdesk run --csv FILE)")
     u0 = list(system.initial if u0 is None else u0)
     p = list(system.param_values if p is None else p)
     is_map = system.kind == MAP

@@ -479,9 +479,9 @@ class _Parser:
         return Name(name_tok.text, name_tok.column, close.end, subscript=index)
 
 
-def _check_kinds(tree) -> None:
+def _check_kinds(tree, condition: bool = False) -> None:
     """Conditions only where a condition belongs (the first argument of if), numbers everywhere else."""
-    stack = [(tree, False)]
+    stack = [(tree, condition)]
     while stack:
         node, want_condition = stack.pop()
         if is_condition(node) != want_condition:
@@ -495,6 +495,36 @@ def _check_kinds(tree) -> None:
             stack.extend(((node.cond, True), (node.then, False), (node.other, False)))
         else:
             stack.extend((c, False) for c in children(node))
+
+
+def split_top_level_commas(text: str) -> list[tuple[str, int]]:
+    """The parts of ``text`` between commas outside parentheses, each with its 0-based offset."""
+    parts, depth, start = [], 0, 0
+    for i, ch in enumerate(text):
+        if ch in "([":
+            depth += 1
+        elif ch in ")]":
+            depth -= 1
+        elif ch == "," and depth == 0:
+            parts.append((text[start:i], start))
+            start = i + 1
+    parts.append((text[start:], start))
+    return parts
+
+
+def parse_condition(text: str, offset: int = 1):
+    """Parse one condition (comparisons joined by and, or, not); raise ParseError with exact columns."""
+    if len(text) > MAX_LINE_LENGTH:
+        raise ParseError(f"line is longer than {MAX_LINE_LENGTH} characters", offset, offset + 1)
+    parser = _Parser(tokenize(text, offset), text, offset)
+    if parser.tok.kind == "end":
+        raise ParseError("expected a condition such as x < 0", parser.tok.column, parser.tok.end)
+    node = parser.condition()
+    if parser.tok.kind != "end":
+        tok = parser.tok
+        raise ParseError(f"unexpected '{tok.text}' after the condition", tok.column, tok.end)
+    _check_kinds(node, True)
+    return node
 
 
 def parse_expression(text: str, offset: int = 1):

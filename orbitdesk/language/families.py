@@ -218,7 +218,7 @@ def expand_statements(builder, statements) -> list:
 
     Problems become diagnostics through ``builder.add``; statements keep their line and columns.
     """
-    env = _integer_constants(statements)
+    env = builder.integer_constants = _integer_constants(statements)
     model = builder.model
     out = []
     for st in statements:

@@ -20,8 +20,9 @@ import sympy as sp
 from orbitdesk.language import delays
 from orbitdesk.language.diagnostics import ERROR, INFO, WARNING, Diagnostic, ParseError
 from orbitdesk.language.expression import (CONSTANTS, FUNCTIONS, KEYWORDS, MAX_LINE_LENGTH, NONSMOOTH_FUNCTIONS, Call, If, Name,
-                         parse_expression, walk)
+                         parse_expression, split_top_level_commas, walk)
 from orbitdesk.language.families import expand_statements, parse_clause_bounds, split_family_clause
+from orbitdesk.language.events import ModelEvent, define_events, is_event_line, parse_event_line
 from orbitdesk.language.functions import define_functions, function_nonsmooth
 from orbitdesk.language import noise
 from orbitdesk.language.symbolic import ModelFunction, Span, constant_value, substitute, to_sympy, tree_size
@@ -88,6 +89,7 @@ class ParsedModel:
     delays: list = field(default_factory=list)  # delays.Delay: each x(t - tau) the equations use
     history: dict[str, sp.Expr] = field(default_factory=dict)  # state -> its value for t <= 0 (an expr of t)
     history_lines: dict[str, int] = field(default_factory=dict)  # state -> line of its history as written
+    events: list[ModelEvent] = field(default_factory=list)  # 'when COND then ...' (events.py)
 
     @property
     def ok(self) -> bool:
@@ -130,6 +132,7 @@ class _Builder:
         self.diags = self.model.diagnostics
         self.cyclic: set[str] = set()  # definitions found in a loop (each reported once)
         self.angle_lines: list[tuple[int, int, int, str]] = []  # (line, column, end, name) of "angle NAME"
+        self.event_lines: list = []  # 'when ... then ...' lines, read by events.py
         self.suggestion_budget = SUGGESTION_BUDGET
         self.history_lines, self.lag_symbols, self.lag_keys = [], {}, {}  # delays.py: x(t) = ... for t <= 0, x(t - tau)
 
@@ -178,10 +181,16 @@ class _Builder:
                     self.angle_lines.append((number, start, start + len(name.strip()), name.strip()))
                     col = start + len(name.strip())
                 continue
+            if is_event_line(code):
+                try:
+                    self.event_lines.append(parse_event_line(number, code))
+                except ParseError as err:
+                    self.add(number, err.column, err.end_column, ERROR, err.message, err.fix)
+                continue
             if "=" not in code:
                 col = len(code) - len(code.lstrip()) + 1
                 self.add(number, col, len(code.rstrip()) + 1, ERROR,
-                         "expected a statement such as x' = ..., x[n+1] = ..., x(0) = ... or name = ...")
+                         "expected a statement such as x' = ..., x[n+1] = ..., x(0) = ..., name = ... or when COND then ...")
                 continue
             eq = code.index("=")
             code, clause = split_family_clause(code, eq)
@@ -224,7 +233,7 @@ class _Builder:
             if m:
                 st.range_col = st.rhs_col + m.start()
                 inner, inner_col = m.group(1), st.rhs_col + m.start(1)
-                parts = _split_top_level_comma(inner)
+                parts = split_top_level_commas(inner)
                 if len(parts) != 2:
                     self.add(st.line, st.range_col, st.rhs_col + m.end(), ERROR,
                              "a range is written 'in [LO, HI]'")
@@ -269,6 +278,7 @@ class _Builder:
         delays.define_history(self)
         self.define_initial(statements)
         self.define_angles()
+        define_events(self, self.event_lines, getattr(self, "integer_constants", {}))
         return self.model
 
     def define_angles(self):
@@ -509,12 +519,9 @@ class _Builder:
             if name in derived_names:
                 deps.add(name)
                 return m.symbols[name]
-            if name == m.time_symbol.name:
-                return m.time_symbol
-            if name in CONSTANTS and name not in self.redefined:
-                return sp.pi if name == "pi" else sp.E
-            if name in FUNCTIONS or name in m.functions:
-                raise ParseError(f"{name} is a function; call it as {name}(...)", node.column, node.end)
+            fixed = self.fixed_name(node)
+            if fixed is not None:
+                return fixed
             if name in ("t", "n"):
                 other = "flows" if name == "t" else "maps"
                 raise ParseError(f"'{name}' is the time of {other}; this model is a {kind}", node.column, node.end)
@@ -541,6 +548,18 @@ class _Builder:
         key = f"eq:{st.name}" if st.form in ("ode", "map") else st.name
         self.depends[key] = deps
         return expr
+
+    def fixed_name(self, node):
+        """The time (t or n), pi and e as sympy objects; a function named without a call is an error;
+        None for any other name."""
+        m, name = self.model, node.name
+        if name == m.time_symbol.name:
+            return m.time_symbol
+        if name in CONSTANTS and name not in self.redefined:
+            return sp.pi if name == "pi" else sp.E
+        if name in FUNCTIONS or name in m.functions:
+            raise ParseError(f"{name} is a function; call it as {name}(...)", node.column, node.end)
+        return None
 
     def note_nonsmooth(self, line, tree):
         """Warn at each non-smooth call or if() of ``tree``; calls of model functions pass on theirs."""
@@ -655,20 +674,6 @@ class _Builder:
             else:  # a family line: one note for all its members
                 self.add(line, col, end, INFO, f"no initial values for {names[0]} ... {names[-1]} "
                          f"({len(names)} states); they start at 0 (write {forms[0]} = ... for i in ...)")
-
-
-def _split_top_level_comma(text: str) -> list[tuple[str, int]]:
-    parts, depth, start = [], 0, 0
-    for i, ch in enumerate(text):
-        if ch in "([":
-            depth += 1
-        elif ch in ")]":
-            depth -= 1
-        elif ch == "," and depth == 0:
-            parts.append((text[start:i], start))
-            start = i + 1
-    parts.append((text[start:], start))
-    return parts
 
 
 def _is_constant(tree, constants) -> bool:

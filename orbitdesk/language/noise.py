@@ -191,11 +191,12 @@ def split(model, state: str, expr, line: int, builder) -> sp.Expr:
     found = sorted((s for s in expr.free_symbols if s.name.startswith(MARK)), key=lambda s: s.name)
     if not found:
         return expr
-    if model.delays:
+    other = "delays" if model.delays else "events (when ...)" if getattr(builder, "event_lines", None) else None
+    if other:
         span = model.equation_spans.get(state, (line, 1, 2))
         builder.add(span[0], span[1], span[2], ERROR,
-                    "noise and delays in one model are not supported: stochastic delay equations need a "
-                    "scheme of their own; leave out the noise or the delay")
+                    f"noise and {other} in one model are not supported: the realisations' fixed-step schemes "
+                    "do not handle them; leave out the noise or the " + other.split(" ")[0])
         return expr.xreplace({s: sp.Integer(0) for s in found})
     zero = {s: sp.Integer(0) for s in found}
     coefficients = {}

@@ -227,6 +227,20 @@ def test_the_angle_declaration_is_coloured_as_a_keyword_with_its_states(qtbot, s
     assert any(start == 23 for start, _n in spans)                # the comment keeps its own colour
 
 
+def test_event_lines_colour_when_then_and_stop_as_keywords(qtbot, session):
+    from orbitdesk.app.panels.highlighter import FUNCTION, KEYWORD
+
+    editor, _ = make_editor(qtbot, session)
+    session.load_project(Project(model="e = 0.8\nx'' = -1\nwhen x < 0 then x' = -e*abs(x'), stop  # hit\n"))
+    dark = is_dark(editor.palette())
+    block = editor.document().findBlockByNumber(2)
+    spans = {(fr.start, fr.length): fr.format.foreground().color().name() for fr in block.layout().formats()}
+    keyword = colour(KEYWORD, dark).name()
+    assert spans[(0, 4)] == keyword and spans[(11, 4)] == keyword   # "when", "then"
+    assert spans[(33, 4)] == keyword                                 # "stop" as the action
+    assert spans[(24, 3)] == colour(FUNCTION, dark).name()           # abs
+
+
 def test_screenshot_editor_with_diagnostics(qtbot, session, artifacts):
     editor = EquationEditor(session)
     listing = DiagnosticsList(session, editor=editor)

@@ -113,3 +113,15 @@ def test_delay_model_reads_back_with_its_delays_and_history(qtbot, session, arti
     assert "Jacobian with the delays dropped" in text
     assert "Derived quantities\nfelt\n=\nx(t - tau)" in text  # with its delay, not the current value
     view.grab().save(os.path.join(artifacts, "readback_delay.png"))
+
+
+def test_events_are_listed_with_their_boundary_and_what_they_set(qtbot, session, artifacts):
+    text = ("g = 9.81\ne = 0.8\nT = 3\nx'' = -g\nx(0) = 1\nwhen x < 0 then x' = -e*x'\n"
+            "when t > T then g = 0, stop\n")
+    view = show_readback(qtbot, session, text, size=(520, 640))
+    shown = view.plain_text()
+    assert "Events" in shown
+    assert "line 6" in shown and "x falls below 0" in shown and "x' = -e*x'" in shown
+    assert "line 7" in shown and "at t = T" in shown and "g = 0, stop" in shown
+    qtbot.wait(30)
+    assert view.grab().save(os.path.join(artifacts, "readback_events.png"))

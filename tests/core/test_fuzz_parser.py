@@ -118,7 +118,8 @@ odd_text = st.text(st.characters(codec=None, exclude_categories=()), max_size=40
 model_like_text = st.lists(st.sampled_from(list(MODEL_CHARS) + ["**", "x' = ", "(0)", "[n+1]", "sin(", " in [",
                                                                "\x00", "\r", "\u202e", "\ufffd", "é", "\u2032",
                                                                "_{i}", "_{i+1}", " for i in 1..", "..", "if(",
-                                                               " and ", " not ", "sum(", " j in ", "f(a, b) = "]),
+                                                               " and ", " not ", "sum(", " j in ", "f(a, b) = ",
+                                                               "when ", " then ", " stop", "x' = -", ", "]),
                            max_size=120).map("".join)
 
 
@@ -318,3 +319,44 @@ def test_generated_family_models_parse_and_compile(text):
         check_diagnostics(text, model)
         if model.ok:
             check_compiled(model)
+
+
+# ---------------------------------------------------------------- (e) events
+
+
+@st.composite
+def event_models(draw):
+    """A flow with events: generated conditions (straight or not, on t, on parameters), assignments
+    (to states, parameters, x'' and unknown names) and stop, in any line order; a run must end with
+    a status, never hang or raise."""
+    names = ["x", "x'", "y", "k", "h", "t"]
+    lines = ["k = 1", "h = 0.5", "x'' = -k*x - 0.1*x' + y", "y' = -y + h", "x(0) = 1"]
+    for _ in range(draw(st.integers(1, 3))):
+        left = draw(st.sampled_from(["x", "x'", "y", "2*x - y", "x + k*y", "t"] * 3 + ["k", "x*y", "sin(x)", "t - y"]))
+        right = draw(st.one_of(st.sampled_from(["0", "h", "-h", "k*h", "1.5"]), expressions.map(
+            lambda e: bind(e, names))))
+        op = draw(st.sampled_from(["<", "<=", ">", ">="]))
+        targets = draw(st.lists(st.sampled_from(["x", "x'", "y", "k", "h", "stop"] * 4 + ["x''", "q", "t"]),
+                                min_size=1, max_size=3, unique=True))
+        values = st.one_of(st.sampled_from(["0", "-0.8*x'", "-y", "h", "k + 1"]), expressions.map(
+            lambda e: bind(e, names)))
+        actions = ", ".join(target if target == "stop" else f"{target} = {draw(values)}" for target in targets)
+        lines.append(f"when {left} {op} {right} then {actions}")
+    order = draw(st.permutations(range(len(lines))))
+    return "\n".join(lines[i] for i in order)
+
+
+@budget(120)
+@given(event_models())
+def test_generated_event_models_parse_compile_and_run(text):
+    from orbitdesk.engine.runs import RunSettings, simulate
+    from orbitdesk.engine.status import WORD
+
+    with hang_guard(text):
+        model = parse_model(text)
+        check_diagnostics(text, model)
+        if model.ok:
+            check_compiled(model)
+            traj = simulate(compile_model(model), RunSettings(t_end=3.0, samples=30))
+            assert traj.status in WORD.values() and (traj.status == "ok" or traj.message), (text, traj.status)
+            assert all(0.0 <= ev.t <= 3.0 for ev in traj.model_events)

@@ -8,6 +8,7 @@ import re
 
 from PySide6.QtGui import QColor, QFont, QPalette, QSyntaxHighlighter, QTextCharFormat
 
+from orbitdesk.language.events import is_event_line
 from orbitdesk.language.expression import CONSTANTS, FUNCTIONS
 
 FLOW_EQ, MAP_EQ, INITIAL, PARAMETER, DERIVED = "flow", "map", "initial", "parameter", "derived"
@@ -31,6 +32,7 @@ PALETTE = {
 
 _NUMBER = re.compile(r"(?<![A-Za-z_0-9.])(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?")
 _WORD = re.compile(r"[A-Za-z_][A-Za-z0-9_]*")
+_EVENT_WORDS = re.compile(r"^\s*(when)\b|\b(then)\b|(?:\bthen|,)\s*(stop)\s*(?=,|$)")  # stop: as an action
 _WORD_PRIMED = re.compile(r"[A-Za-z_][A-Za-z0-9_]*'*")
 _RANGE = re.compile(r"\bin\s*\[")
 
@@ -111,6 +113,13 @@ class ModelHighlighter(QSyntaxHighlighter):
         code, hash_, _ = text.partition("#")
         if hash_:
             self.setFormat(len(code), len(text) - len(code), self._formats[COMMENT])
+        if is_event_line(code):  # when COND then ASSIGN, ... | stop
+            self._expression(code, 0)
+            for m in _EVENT_WORDS.finditer(code.rstrip()):
+                for group in (1, 2, 3):
+                    if m.group(group):
+                        self.setFormat(m.start(group), len(m.group(group)), self._formats[KEYWORD])
+            return
         eq = code.find("=")
         if eq < 0 and code.lstrip().startswith("angle") and self._angle_line(code):
             return
@@ -123,6 +132,10 @@ class ModelHighlighter(QSyntaxHighlighter):
                 start = len(lhs_raw) - len(lhs_raw.lstrip())
                 self.setFormat(start, len(lhs), self._formats[role])
                 rhs_start = eq + 1
+        self._expression(code, rhs_start)
+
+    def _expression(self, code: str, rhs_start: int) -> None:
+        """Numbers, functions, constants and the words of conditions and ranges from ``rhs_start`` on."""
         rhs = code[rhs_start:]
         for m in _NUMBER.finditer(rhs):
             self.setFormat(rhs_start + m.start(), m.end() - m.start(), self._formats[NUMBER])

@@ -192,10 +192,11 @@ class ModelReadback(QWidget):
                 "summary": self._summary(system),
                 "equations": self._equations(system),
                 "derived": self._derived(system),
+                "events": self._events(system),
                 "jacobian": self._jacobian(system),
             }
         s = self._static_html
-        return "".join([s["summary"], s["equations"], self._initial(system), self._parameters(system),
+        return "".join([s["summary"], s["equations"], s["events"], self._initial(system), self._parameters(system),
                         s["derived"], s["jacobian"]])
 
     # small builders with inline styles (Qt's rich text honours those, not class rules, for margins)
@@ -261,6 +262,28 @@ class ModelReadback(QWidget):
                          f"{self._m(equation_lhs(system, base) + ' = ' + base + chr(39))} just says that "
                          f"{self._m(base + chr(39))} is the rate of change of {self._m(base)}")
         return self._heading(title) + self._table(rows) + (self._muted("<br>".join(notes), 4) if notes else "")
+
+    def _events(self, system) -> str:
+        """Each event as understood: when it happens (the boundary and its direction) and what it does."""
+        events = getattr(system.model, "events", [])
+        if not events:
+            return ""
+        rows = []
+        for ev in events:
+            if ev.on_time:
+                when = f"at {system.time_name} = {model_str(-ev.time_offset / ev.time_rate)}"
+            else:
+                left, _, right = ev.sides
+                when = f"{model_str(left)} {'rises above' if ev.direction > 0 else 'falls below'} {model_str(right)}"
+            does = [f"{target} = {model_str(expr)}" for target, _, expr in ev.assignments]
+            if ev.stop:
+                does.append("stop")
+            rows.append("<tr>" + self._td(f"<span style='color:{self._c['muted']}'>line {ev.line}</span>", "right")
+                        + self._td(self._m(when)) + self._td("\u2192") + self._td(self._m(", ".join(does)))
+                        + "</tr>")
+        note = ("right sides are worked out with the values from before the event, then all are set; the "
+                "crossing is located on the integrator's dense output")
+        return self._heading("Events") + self._table(rows) + self._muted(note, 4)
 
     def _initial(self, system) -> str:
         current = getattr(self.session, "initial", None) or {}

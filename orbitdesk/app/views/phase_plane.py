@@ -13,6 +13,7 @@ from orbitdesk.language.angles import angle_states, break_at_wraps, wrap
 
 from orbitdesk.app.views import empty_hint, muted_colour, series_colour, style_plot
 from orbitdesk.app.plots.data_overlay import DataOverlay
+from orbitdesk.app.plots.event_marks import EventMarks
 from orbitdesk.app.plots.plot_style import ScreenCurve
 from orbitdesk.app.views.common import (SessionView, check_box, clicked_point, combo_box, control_row, coordinate_names,
                      cut_at_escape, cycle_columns, equilibrium_coordinates, quiet, equilibrium_fields, fill_combo, runs_job, values_at_time)
@@ -103,6 +104,7 @@ class PhasePlaneView(SessionView):
         self.plot.addItem(self.eq_item, ignoreBounds=True)
         self.eq_item.setZValue(20)
         self.cursor_marker.setZValue(15)
+        self.event_marks = EventMarks(self.plot)
         self.empty_hint = empty_hint(self.plot, "The trajectory will be drawn here; click to start more")
         self.data_overlay = DataOverlay(session, self.plot, lambda: [(self.x_name, self.y_name, series_colour(1, self))])
         self.plot_widget.scene().sigMouseClicked.connect(self._on_click)
@@ -369,6 +371,7 @@ class PhasePlaneView(SessionView):
         traj = self.trajectory
         self.empty_hint.setVisible(traj is None)
         if traj is None or traj.time.size == 0:
+            self.event_marks.clear()
             self.curve.setData([], [])
             self.start_marker.setData([], [])
             self.cursor_marker.setData([], [])
@@ -384,6 +387,9 @@ class PhasePlaneView(SessionView):
             self.curve.setData(*_thin(x, y), pen=pg.mkPen(colour, width=1.4), symbol=None, connect="finite")
         self.start_marker.setData([x[0]], [y[0]], brush=pg.mkBrush(colour), pen=pg.mkPen(self._base(), width=1))
         self.start_marker.setToolTip(f"Start: {self.x_name} = {x[0]:.4g}, {self.y_name} = {y[0]:.4g}")
+        angles = angle_states(self.system) if self.system is not None else []
+        wrapped = self.x_name in angles or self.y_name in angles  # (marks of wrapped angles: not drawn)
+        self.event_marks.show(None if wrapped else traj, [(self.x_name, self.y_name, series_colour(1, self))])
         self._update_cursor(self.session.time_cursor)
 
     def _update_cursor(self, t: float) -> None:

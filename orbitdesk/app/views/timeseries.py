@@ -10,6 +10,7 @@ from PySide6.QtWidgets import (QHBoxLayout, QLabel, QListWidget, QListWidgetItem
                                QVBoxLayout)
 
 from orbitdesk.analyses.spectra import mean_power_spectrum, power_spectrum
+from orbitdesk.app.plots.event_marks import EventMarks
 from orbitdesk.app.views import empty_hint, muted_colour, series_colour, style_plot
 from orbitdesk.app.plots.data_overlay import TIME, DataOverlay
 from orbitdesk.app.plots.plot_style import ScreenCurve
@@ -81,6 +82,7 @@ class TimeSeriesView(SessionView):
         self.plot.getViewBox().sigRangeChangedManually.connect(self._on_manual_range)
         session.heldChanged.connect(self._on_held)
         self.data_overlay = DataOverlay(session, self.plot, self._overlay_pairs)
+        self.event_marks = EventMarks(self.plot)
 
         options = control_row(self.log_y, self.spectrum, None, self.note, self.fit, spacing=6, stretch=False)
         options.setStretchFactor(self.note, 10)  # the note takes the free room (it never widens the view)
@@ -238,6 +240,7 @@ class TimeSeriesView(SessionView):
         self.empty_hint.setVisible(traj is None)
         self.data_overlay.refresh()
         if traj is None:
+            self.event_marks.clear()
             return
         discrete = traj.kind == "map"
         missing = []
@@ -275,6 +278,9 @@ class TimeSeriesView(SessionView):
                               symbolPen=None, symbolBrush=colour, connect="finite")
             else:
                 curve.setData(x, y, pen=pen, symbol=None, connect="finite")
+        marks = [] if spectrum else [("t", n, series_colour(self._names.index(n) if n in self._names else 0, self))
+                                     for n in names if n in traj.state_names]
+        self.note.setText(self.event_marks.show(traj, marks) if marks else "")
         if missing:
             self.note.setText("Spectrum needs evenly spaced samples")
         if refit:
