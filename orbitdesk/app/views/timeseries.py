@@ -280,7 +280,9 @@ class TimeSeriesView(SessionView):
                 curve.setData(x, y, pen=pen, symbol=None, connect="finite")
         marks = [] if spectrum else [("t", n, series_colour(self._names.index(n) if n in self._names else 0, self))
                                      for n in names if n in traj.state_names]
-        self.note.setText(self.event_marks.show(traj, marks) if marks else "")
+        event_note = self.event_marks.show(traj, marks) if marks else ""
+        if event_note:  # (a model with noise has no events: its note about the realisations stays)
+            self.note.setText(event_note)
         if missing:
             self.note.setText("Spectrum needs evenly spaced samples")
         if refit:
