@@ -196,7 +196,9 @@ def test_camera_selected_equilibrium_and_time_cursor_come_back(qtbot, window, tm
     s.set_time_cursor(3.0)
     panel.show_step(0)
     cam = view3d.camera()
-    assert (cam["distance"], cam["elevation"], cam["azimuth"]) == (31.0, 12.0, 40.0)
+    # the step's angles; its distance, or further back where this dock's shape would cut the box off
+    assert (cam["elevation"], cam["azimuth"]) == (12.0, 40.0) and cam["distance"] >= 31.0
+    assert cam["distance"] == 31.0 or view3d.box_in_view()
     assert eq.selected_index() == 2 and s.time_cursor == 7.5
     panel.leave()
     cam = view3d.camera()

@@ -40,6 +40,8 @@ class PhaseSpace3DView(SessionView):
     view_id = "phase_space_3d"
     title = "Phase space 3D"
 
+    fit_own_state = False  # leaving a walkthrough brings the user's own camera back as it was (no fit_view)
+
     spreadChanged = Signal()  # the nearby-starts runs arrived (or were cleared)
     addedChanged = Signal()   # added trajectories arrived (or were cleared)
 
