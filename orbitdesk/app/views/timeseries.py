@@ -16,6 +16,8 @@ from orbitdesk.app.plots.data_overlay import TIME, DataOverlay
 from orbitdesk.app.plots.plot_style import ScreenCurve
 from orbitdesk.app.views.common import SessionView, check_box, control_row, run_time_name
 
+LIST_WIDTH, LIST_MAX_WIDTH = 112, 240  # the list of series: its width, and the most its names may widen it
+
 
 def swatch(colour: QColor, size: int = 12) -> QIcon:
     pix = QPixmap(size, size)
@@ -54,7 +56,7 @@ class TimeSeriesView(SessionView):
         self._noise_items: list = []  # realisations drawn faintly and the +-1 std bands (models with noise)
         self.series_list = QListWidget()
         self.series_list.setToolTip("Tick the quantities to plot")
-        self.series_list.setFixedWidth(112)
+        self.series_list.setFixedWidth(LIST_WIDTH)
         self.series_list.setIconSize(QSize(12, 12))
         self.series_list.itemChanged.connect(self._on_item_changed)
 
@@ -186,6 +188,9 @@ class TimeSeriesView(SessionView):
             item.setToolTip(f"{name} ({kind})")
             self.series_list.addItem(item)
         self.series_list.blockSignals(False)
+        # wide enough for the longest name (check box, swatch and scroll bar beside it), within reason
+        longest = max((self.series_list.fontMetrics().horizontalAdvance(n) for n in names), default=0)
+        self.series_list.setFixedWidth(int(min(LIST_MAX_WIDTH, max(LIST_WIDTH, longest + 64))))
         self._redraw(refit=True)
 
     def _on_project_loaded(self) -> None:
