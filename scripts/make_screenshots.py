@@ -206,8 +206,15 @@ def bracket_fit(sh: Shooter) -> None:
     sh.save("bracket_fit_results")
 
 
+def rocking_buoy_noise(sh: Shooter) -> None:
+    """A buoy rocked by choppy water: realisations with mean and band, the histogram of the stationary part."""
+    sh.open_sample("rocking_buoy")
+    sh.show_step(1)
+    sh.save("rocking_buoy_noise")
+
+
 SHOTS = [convection_loop_3d, shaken_beam_sections, pendulum_separatrix, insect_generations_sweep,
-         stirred_tank_bifurcation, walkthrough_presenting, language_reference, bracket_fit]
+         stirred_tank_bifurcation, walkthrough_presenting, language_reference, bracket_fit, rocking_buoy_noise]
 
 
 def main(argv=None) -> int:

@@ -22,6 +22,7 @@ from orbitdesk.document.project import ProjectError
 from orbitdesk.app import views as views_pkg
 from orbitdesk.app.errors import Notices
 from orbitdesk.app.file_guard import DocumentGuard
+from orbitdesk.app.panels.noise_controls import NoiseControls
 from orbitdesk.app.plain_text import make_plain, menu_text, plain_message, rich_tip
 from orbitdesk.app.result_store import RESULTS_KEY
 from orbitdesk.app.session import Session
@@ -103,6 +104,8 @@ class RunBar(QToolBar):
         self.samples.setToolTip("Number of evenly spaced output points of a run")
         self.samples.valueChanged.connect(lambda v: self._set(samples=int(v)))
         self.method_action = self.addWidget(self.method)
+        self.noise = NoiseControls(lambda **changes: self._set(**changes))
+        self.noise_action = self.addWidget(self.noise)  # instead of the method menu for a model with noise
         self.delay_note = make_plain(QLabel())  # delay models: the method of steps and the history used
         self.delay_note_action = self.addWidget(self.delay_note)
         self.addWidget(self.t_end_label)
@@ -164,11 +167,14 @@ class RunBar(QToolBar):
             self.t_end.setValue(solver.t_end)
             self.steps.setValue(solver.steps)
             self.samples.setValue(solver.samples)
+            self.noise.show_settings(solver)
         finally:
             self._syncing = False
         is_map = s.system is not None and s.system.kind == "map"
+        noisy = s.system is not None and s.system.stochastic
         delays = s.system is not None and s.system.has_delays
-        self.method_action.setVisible(not is_map and not delays)
+        self.method_action.setVisible(not is_map and not delays and not noisy)
+        self.noise_action.setVisible(noisy)
         self.delay_note_action.setVisible(delays)
         if delays:
             from orbitdesk.engine.delay import METHOD_LABEL, uses_history

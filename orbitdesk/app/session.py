@@ -184,7 +184,7 @@ class Session(QObject):
         def job(cancel, report):
             from orbitdesk.engine.runs import simulate
 
-            return simulate(system, settings, u0, p, cancel=cancel, progress=report)
+            return simulate(system, settings, u0, p, cancel=cancel, progress=report, noise=True)
 
         self.run_job("run", job, self.doc.set_trajectory, on_progress=self.runProgress.emit,
                      on_error=self._run_failed)

@@ -61,20 +61,27 @@ def read_source(path_text: str) -> Source:
         raise CommandError(f"{path}: {err}", EXIT_UNREADABLE) from None
 
 
-def load_system(source: Source):
-    """Compile the source's model; errors become a CommandError listing the diagnostics."""
+def load_system(source: Source, noise: bool = False):
+    """Compile the source's model; errors become a CommandError listing the diagnostics. A model with
+    noise, for a command that assumes determinism (``noise`` False), gets a note on stderr."""
     parsed = source.doc.parsed
     if not parsed.ok:
         lines = [f"{source.path}:{d.format()}" for d in parsed.errors]
         raise CommandError("the model has errors:\n" + "\n".join(lines), EXIT_ERRORS)
-    return source.doc.compile_now()
+    system = source.doc.compile_now()
+    if system.stochastic and not noise:
+        from orbitdesk.language.noise import NOISE_FREE_NOTE
+
+        print(f"note: {NOISE_FREE_NOTE}", file=sys.stderr)
+    return system
 
 
-def open_model(args):
+def open_model(args, noise: bool = False):
     """What most commands start with: the PATH's live document, its compiled system and the parameter and
-    initial vectors (project values, then --set/--init). Returns (source, system, p, u0)."""
+    initial vectors (project values, then --set/--init). Returns (source, system, p, u0). ``noise``: the
+    command runs a model with noise as such (no note that it uses the noise-free part)."""
     source = read_source(args.path)
-    system = load_system(source)
+    system = load_system(source, noise)
     p, u0 = values_for(system, source, args.set, args.init)
     return source, system, p, u0
 

@@ -97,7 +97,7 @@ def _fit_script(source, system, p, u0, title) -> str:
 def run(args) -> int:
     if args.standalone and not args.latex:
         raise CommandError("--standalone goes with --latex")
-    source, system, p, u0 = open_model(args)
+    source, system, p, u0 = open_model(args, noise=True)
     title = source.project.name if source.project is not None else source.path.stem
     if args.latex:
         from orbitdesk.exports.latex import model_latex

@@ -289,7 +289,7 @@ def project_from_dict(d) -> Project:
             kind = RULES[key][0]
             if x is not None and kind == "count":
                 x = _int_in(-MAX_INT, MAX_INT)(x, _sub(path, key))
-            elif x is not None and kind != "method":
+            elif x is not None and kind not in ("method", "scheme"):
                 x = _num(x, _sub(path, key))
             values[key] = x
         try:

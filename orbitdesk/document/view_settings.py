@@ -22,6 +22,7 @@ VIEW_SETTINGS: dict[str, dict] = {
                        "spread": {"on": "bool", "count": "integer", "radius": "number"},
                        "starts": "list", "camera": "table"},
     "equilibria": {"auto": "bool", "eps": "number", "selected": "integer"},
+    "noise_statistics": {"state": "state", "mode": ("stationary", "time"), "time": "number"},
     "sections": {"kind": ("plane", "strobe"), "coordinate": "state", "value": "number",
                  "direction": ("up", "down", "both"), "period": "number", "phase": "number",
                  "count": "integer", "transient": "number", "auto": "bool", "axes": "series list", "return_of": "series"},

@@ -39,6 +39,7 @@ VIEWS: tuple[ViewInfo, ...] = (
     ViewInfo("basins", "Basins of attraction", "basins"),
     ViewInfo("bifurcation", "Bifurcation diagram", "bifurcation"),
     ViewInfo("fit", "Fit to data", "fit"),
+    ViewInfo("noise_statistics", "Noise statistics", "noise_statistics"),
 )
 VIEW_IDS: tuple[str, ...] = tuple(v.id for v in VIEWS)
 _BY_ID = {v.id: v for v in VIEWS}

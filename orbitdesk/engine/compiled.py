@@ -26,9 +26,9 @@ from types import ModuleType, SimpleNamespace
 from orbitdesk.system import private_cache
 from orbitdesk.system.codegen import HEADER, kernel_source
 from orbitdesk.system.compiled_system import UNDEFINED_ERRORS
-from orbitdesk.engine import explicit_rk, jitting, maps, members, tangent
+from orbitdesk.engine import explicit_rk, jitting, maps, members, stochastic, tangent
 
-LOOP_MODULES = (explicit_rk, maps, tangent, members)
+LOOP_MODULES = (explicit_rk, maps, tangent, members, stochastic)
 _SIGNATURES = {"model": "MODEL"}  # the kernels the loops call; jac and jac_values stay plain Python
 _CACHE_OPTION = "cache=_ON_DISK"  # private_cache sets _ON_DISK: the module is backed by its verified file
 _lock = threading.Lock()
@@ -63,15 +63,20 @@ def module_source(system, jit: bool) -> str:
                     "from numba import cfunc", "from orbitdesk.engine import jitting", "", "",
                     "def _plain(f):", "    return f", ""]
             head += [f"_{name}_kernel = cfunc(jitting.signature({sig!r}), {_CACHE_OPTION}, error_model='numpy')"
-                     for name, sig in _SIGNATURES.items()]
+                     for name, sig in _signatures(system).items()]
         else:
             head = ["import math", "from math import *  # noqa: F401,F403", "import numpy as np", "", "",
                     "def _plain(f):", "    return f", "", "",
                     "def _fill_nan(a):", "    a[...] = math.nan", ""]
-            head += [f"_{name}_kernel = _plain" for name in _SIGNATURES]
+            head += [f"_{name}_kernel = _plain" for name in _signatures(system)]
         head += ["_jac_kernel = _jac_values_kernel = _plain  # called from Python (stiff solvers, Newton)"]
         cached = system.__dict__[key] = HEADER + "\n".join(head) + "\n\n\n" + kernel_source(system, guard=not jit) + "\n"
     return cached
+
+
+def _signatures(system) -> dict:
+    """The compiled kernels of this model: ``model``, and ``sde`` for a model with noise."""
+    return {**_SIGNATURES, "sde": "MODEL"} if system.stochastic else _SIGNATURES
 
 
 def _digest(source: str) -> str:

@@ -383,6 +383,10 @@ def warm_up(engine) -> None:
     flow_run(engine, "dop853", 0.0, 1e-9, y0, p, grid=np.array([0.0, 1e-9]), planes=planes)
     flow_tangent(engine, "dop853", 0.0, 1e-9, 0.0, y0, np.eye(n), p, 1e-9)
     members_run(engine, "dop853", 0.0, 1e-9, y0[:, None], p, grid=np.array([1e-9]), planes=planes, max_events=1)
+    if hasattr(k, "sde"):  # a model with noise (engine/stochastic.py)
+        from orbitdesk.engine.stochastic import warm_up_sde
+
+        warm_up_sde(engine)
 
 
 __all__ = ["FlowOutput", "TangentOutput", "MembersOutput", "flow_run", "map_run", "flow_tangent", "map_tangent",

@@ -21,7 +21,11 @@ from scipy.optimize import brentq
 
 from orbitdesk.engine.methods import NAMES
 from orbitdesk.engine.settings import RunSettings
+<<<<<<< HEAD
 from orbitdesk.engine import compiled, drivers, limits
+=======
+from orbitdesk.engine import compiled, drivers, stochastic
+>>>>>>> main
 from orbitdesk.engine.stiff import StiffStepper
 from orbitdesk.engine.status import (C_CANCELLED, C_DIVERGED, C_STEP_FAILED, C_UNDEFINED, CANCELLED, DIVERGED,
                                  OK, STEP_FAILED, UNDEFINED)
@@ -70,6 +74,7 @@ class Trajectory:
     event_times: list[np.ndarray] = field(default_factory=list)
     event_states: list[np.ndarray] = field(default_factory=list)  # each (n_states, M)
     steps_taken: int = 0
+    realisations: object = None  # a model with noise: engine.stochastic.Realisations (states = the first)
     model_events: list = field(default_factory=list)  # AppliedEvent of the model's 'when' lines, in time order
     final_params: np.ndarray | None = None  # parameters at the end when the model's events changed them
     event_params: list = field(default_factory=list)  # per event of the caller: (n_params, M) when they changed
@@ -124,8 +129,11 @@ def _check_state(system, t, u, bound):
 
 def simulate(system: CompiledSystem, settings: RunSettings | None = None, u0=None, p=None,
              events: list[Event] | tuple = (), cancel: CancelToken | None = None,
-             progress=None) -> Trajectory:
-    """One run of a flow or a map from ``u0`` (default: the model's) with parameters ``p``."""
+             progress=None, noise: bool = False) -> Trajectory:
+    """One run of a flow or a map from ``u0`` (default: the model's) with parameters ``p``.
+
+    A model with noise runs its noise-free part (what analyses that assume determinism use) unless
+    ``noise``: then realisations (``engine/stochastic.py``; forward in time, events not located)."""
     settings = settings or RunSettings()
     u0 = system.initial.copy() if u0 is None else np.asarray(u0, dtype=float)
     p = system.param_values.copy() if p is None else np.asarray(p, dtype=float)
@@ -133,6 +141,8 @@ def simulate(system: CompiledSystem, settings: RunSettings | None = None, u0=Non
     check_request(system, settings)
     if system.kind == MAP:
         return _iterate(system, settings, u0, p, report)
+    if noise and system.stochastic:  # realisations by a fixed-step scheme for noise
+        return stochastic.simulate_noise(system, settings, u0, p, report)
     if system.delays:  # delay models: the method of steps (engine/delay.py)
         from orbitdesk.engine.delay import simulate_delay
 

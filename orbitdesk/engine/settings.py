@@ -23,7 +23,9 @@ class SettingsError(ValueError):
         self.name, self.message = name, message
 
 
-# field: (kind, low, high, allow None); kinds: method, positive, number, nonneg, count
+SCHEMES = {"milstein": "Milstein (order 1)", "euler_maruyama": "Euler–Maruyama (order 1/2)"}  # strong orders
+
+# field: (kind, low, high, allow None); kinds: method, scheme, positive, number, nonneg, count
 RULES = {
     "method": ("method", None, None, False),
     "rtol": ("positive", 1e-15, 1.0, False),
@@ -36,10 +38,13 @@ RULES = {
     "steps": ("count", 1, 10**8, False),
     "bound": ("positive", None, None, False),
     "transient": ("nonneg", None, None, False),
+    "scheme": ("scheme", None, None, False),  # models with noise: the fixed-step scheme (engine/stochastic.py)
+    "seed": ("count", 0, 2**31 - 1, False),  # models with noise: every run from one seed is the same
+    "realisations": ("count", 1, 100_000, False),
     "event_rate": ("positive", None, None, False),
 }
 SAVED = ("method", "rtol", "atol", "max_step", "dt", "t_start", "t_end", "samples", "steps", "transient",
-         "event_rate")
+         "event_rate", "scheme", "seed", "realisations")
 SAVED_IF_CHANGED = ("event_rate",)  # written into a project only when it differs from the default
 
 
@@ -55,6 +60,10 @@ def check_value(name: str, value):
     if kind == "method":
         if value not in NAMES:
             raise SettingsError(name, f"expected one of {', '.join(NAMES)}, got {value!r}")
+        return value
+    if kind == "scheme":
+        if not isinstance(value, str) or value not in SCHEMES:
+            raise SettingsError(name, f"expected one of {', '.join(SCHEMES)}, got {value!r}")
         return value
     if kind == "count":
         if isinstance(value, float) and value.is_integer():
@@ -93,6 +102,9 @@ class RunSettings:
     bound: float = 1e10  # |state| beyond this counts as blow-up
     transient: float = 0.0  # output before t_start + transient is dropped
     event_rate: float = 10_000.0  # model events per unit time beyond which a run ends as chattering
+    scheme: str = "milstein"  # models with noise: fixed step dt, realisations from seed
+    seed: int = 1
+    realisations: int = 20
 
     def __post_init__(self):
         for f in fields(self):
@@ -130,4 +142,4 @@ def defaults() -> dict:
     return {f.name: f.default for f in fields(RunSettings)}
 
 
-__all__ = ["RunSettings", "SettingsError", "RULES", "SAVED", "check_value", "defaults"]
+__all__ = ["RunSettings", "SettingsError", "RULES", "SAVED", "SCHEMES", "check_value", "defaults"]

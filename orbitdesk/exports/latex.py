@@ -14,6 +14,7 @@ import sympy as sp
 
 from orbitdesk.language.expression import Num, parse_expression, walk
 from orbitdesk.language.model import FLOW, MAP, ParsedModel, derivative_name, parse_model
+from orbitdesk.language import noise
 from orbitdesk.language.symbolic import number_from_text, to_sympy
 
 _GREEK_OR_PLAIN = re.compile(r"^[A-Za-z]+$")
@@ -71,13 +72,18 @@ def _lhs_lines(parsed: ParsedModel) -> dict[str, int]:
     return out
 
 
-def _typed(parsed: ParsedModel, rhs: str, fallback: sp.Expr) -> sp.Expr:
-    """The right side re-read as typed (derived names kept, decimals kept as decimals)."""
+def _typed(parsed: ParsedModel, rhs: str, fallback: sp.Expr, equation: str | None = None) -> sp.Expr:
+    """The right side re-read as typed (derived names kept, decimals kept as decimals); ``equation``:
+    the name of the equation it belongs to (its noise terms become the symbols of ``noise``)."""
     try:
         tree = parse_expression(_strip_range(rhs))
+        if equation is not None and parsed.noise_sources:
+            tree = noise.marked_tree(tree, equation)
 
         def resolve(node):
             name = node.name
+            if name.startswith(noise.MARK):
+                return noise.symbol(name)
             if name in ("pi", "e") and name not in parsed.parameters:
                 return sp.pi if name == "pi" else sp.E
             return parsed.symbols.get(name) or (parsed.time_symbol if name == parsed.time_symbol.name
@@ -93,6 +99,31 @@ def _typed(parsed: ParsedModel, rhs: str, fallback: sp.Expr) -> sp.Expr:
         return expr.xreplace(decimals) if decimals else expr
     except Exception:  # noqa: BLE001  (any surprise: show the compiled form, which is equivalent)
         return fallback
+
+
+def _with_noise(parsed: ParsedModel, state: str) -> sp.Expr:
+    """The right side of ``state``'s equation with its noise terms (drift + sum of g * noise symbol)."""
+    terms = parsed.diffusion.get(state, {})
+    return parsed.equations[state] + sp.Add(*[g * noise.symbol(noise.MARK + k) for k, g in terms.items()])
+
+
+def _noise_names(parsed: ParsedModel, names: dict) -> list[str]:
+    """LaTeX names of the noise symbols put into ``names`` (xi(t), xi_1(t), xi_x(t)); one row per source
+    saying where it acts."""
+    own = [k for k in parsed.noise_sources if not k.startswith("(")]
+    rows = []
+    for key in parsed.noise_sources:
+        if key.startswith("("):
+            label = key[1:-1]
+            sub = label if label.isdigit() else rf"\mathrm{{{label.replace('_', chr(92) + '_')}}}"
+            text = rf"\xi_{{{sub}}}(t)"
+        else:
+            text = r"\xi(t)" if len(own) == 1 else rf"\xi_{{{latex_name(key.rstrip(chr(39)))}}}(t)"
+        names[noise.symbol(noise.MARK + key)] = text
+        where = [s for s, terms in parsed.diffusion.items() if key in terms]
+        acts = ", ".join(latex_name(s + "'") for s in where)  # the left sides: the state's rate
+        rows.append(rf"{text} &: \text{{{'shared by' if len(where) > 1 else 'in the equation of'} }}" + acts)
+    return rows
 
 
 def _strip_range(text: str) -> str:
@@ -131,6 +162,7 @@ def model_latex(model, parameters: dict | None = None, initial: dict | None = No
     def tex(expr):
         return sp.latex(expr, symbol_names=names)
 
+    noise_rows = _noise_names(parsed, names)
     for d in parsed.delays:  # x(t - tau), the delay as the model writes it (Greek names as letters)
         names[d.symbol] = rf"{latex_name(d.state)}(t - {tex(d.amount)})"
 
@@ -138,7 +170,8 @@ def model_latex(model, parameters: dict | None = None, initial: dict | None = No
     lhs_lines = _lhs_lines(parsed)
     for base, order in parsed.typed_order.items():
         top = derivative_name(base, order - 1) if parsed.kind == FLOW else base
-        expr = _typed(parsed, _rhs_text(parsed, parsed.equation_lines[top]), parsed.equations[top])
+        typed = derivative_name(base, order) if parsed.kind == FLOW else base
+        expr = _typed(parsed, _rhs_text(parsed, parsed.equation_lines[top]), _with_noise(parsed, top), typed)
         if is_map:
             text = latex_name(base)
             lhs = ("{" + text + "}" if "_" in text else text) + "_{n+1}"
@@ -147,6 +180,9 @@ def model_latex(model, parameters: dict | None = None, initial: dict | None = No
         lines.append(f"{lhs} &= {tex(expr)}")
 
     sections = []
+    if noise_rows:
+        sections.append((r"where each $\xi$ is a standard Gaussian white noise, independent of the others, read "
+                         r"in the It\^o sense ($\xi\,dt = dW$, a Wiener process)", noise_rows))
     if parsed.parameters:
         rows = []
         for name, info in parsed.parameters.items():

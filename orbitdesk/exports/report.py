@@ -9,6 +9,8 @@ import math
 
 import sympy as sp
 
+from orbitdesk.engine.settings import SCHEMES
+from orbitdesk.language import noise
 from orbitdesk.language.model import MAP
 from orbitdesk.document.walkthrough import render_note
 
@@ -257,10 +259,14 @@ def render_report(project, system, figures: dict | None = None, equilibria=None,
 
     out.append("<h2>First-order form</h2>")
     rows = []
-    for state, expr in zip(system.states, system.f_delayed or system.f):  # a delay model with its delays
+    for i, (state, expr) in enumerate(zip(system.states, system.f_delayed or system.f)):  # a delay model with its delays
         lhs = f"{state}[n+1]" if is_map else f"d({state})/d{t}" if "'" in state else f"d{state}/d{t}"
-        rows.append([f'<span class="math">{_e(lhs)}</span>', f'<span class="math">= {_e(_expr(expr))}</span>'])
+        rhs = _expr(expr) + noise.terms_text(system, i, _expr)
+        rows.append([f'<span class="math">{_e(lhs)}</span>', f'<span class="math">= {_e(rhs)}</span>'])
     out.append(_table(None, rows))
+    if system.stochastic:
+        out.append('<p class="muted">noise: standard Gaussian white noise in the Itô sense (x\' = f + g noise is '
+                   'dx = f dt + g dW); equilibria and other analyses that assume determinism use the noise-free part.</p>')
 
     if system.parameters:
         out.append("<h2>Parameters</h2>")
@@ -300,6 +306,11 @@ def render_report(project, system, figures: dict | None = None, equilibria=None,
     s = project.solver
     if is_map:
         run = f"{s.steps} iterations"
+    elif system.stochastic:
+        run = (f"{s.realisations} realisations from seed {s.seed}, from {t} = {_num(s.t_start)} to {_num(s.t_end)}, "
+               f"{_e(SCHEMES[s.scheme])} with the fixed step {_num(s.dt)}, {s.samples} samples")
+        if s.transient:
+            run += f", first {_num(s.transient)} discarded as transient"
     else:
         method = s.method_info.label
         if system.delays:

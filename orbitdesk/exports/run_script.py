@@ -77,7 +77,8 @@ def run_script(system: CompiledSystem, settings: RunSettings | None = None, u0=N
         "# -*- coding: utf-8 -*-",
         "# One run, exported from OrbitDesk.",
         f"# Title: {comment_text(title)}",
-        "# Standalone: needs numpy and scipy; draws a plot too when matplotlib is installed.",
+        ("# Standalone: needs numpy only; realisations of the model with noise from the seed." if system.stochastic
+         else "# Standalone: needs numpy and scipy; draws a plot too when matplotlib is installed."),
         f"# Usage: python this_script.py [OUTPUT.csv]   (default {comment_text(output)})",
         "#",
         "# The model as typed:",
@@ -90,12 +91,14 @@ def run_script(system: CompiledSystem, settings: RunSettings | None = None, u0=N
         "",
         "import numpy",
     ]
-    if is_map:  # the step is printed as the engine prints it: math functions by their bare names
+    if is_map or system.stochastic:  # printed as the engine prints it: math functions by their bare names
         head.append("from math import *  # noqa: F401,F403")
+    if system.stochastic:
+        head.append("import warnings")
     elif system.delays:  # the engine's method of steps, its right-hand side printed as the engine's
         head += ["from bisect import bisect_right", "from math import *  # noqa: F401,F403", "",
                  "import numpy as np", "from scipy.integrate import RK45"]
-    else:
+    elif not is_map:
         head.append("from scipy.integrate import ode, solve_ivp")
     head += [
         "",
@@ -104,6 +107,12 @@ def run_script(system: CompiledSystem, settings: RunSettings | None = None, u0=N
         "PARAMETERS = {" + ", ".join(f"{name!a}: {float(v)!r}" for name, v in zip(system.parameters, p)) + "}",
         f"INITIAL = [{', '.join(repr(float(v)) for v in u0)}]",
     ]
+    if system.stochastic:  # realisations from the seed (exports/noise_script.py)
+        from orbitdesk.exports.noise_script import noise_script_parts
+
+        parts = ["\n".join(head)] + noise_script_parts(system, settings, u0, p)
+        parts[-1] = parts[-1].replace("__OUTPUT__", ascii(str(output)))
+        return "\n\n\n".join(parts) + "\n"
     if is_map:
         head.append(f"STEPS = {int(settings.steps)!r}")
     else:

@@ -24,7 +24,12 @@ from orbitdesk.language.expression import (CONSTANTS, FUNCTIONS, KEYWORDS, MAX_L
 from orbitdesk.language.families import expand_statements, parse_clause_bounds, split_family_clause
 from orbitdesk.language.events import ModelEvent, define_events, is_event_line, parse_event_line
 from orbitdesk.language.functions import define_functions, function_nonsmooth
+<<<<<<< HEAD
 from orbitdesk.language.symbolic import ModelFunction, Span, constant_value, substitute, to_sympy, tree_depth, tree_size
+=======
+from orbitdesk.language import noise
+from orbitdesk.language.symbolic import ModelFunction, Span, constant_value, substitute, to_sympy, tree_size
+>>>>>>> main
 
 MAX_MODEL_CHARS = 1_000_000
 MAX_STATEMENTS = 5_000
@@ -87,6 +92,8 @@ class ParsedModel:
     equation_spans: dict[str, tuple[int, int, int]] = field(default_factory=dict)  # state -> line, col, end
     typed_order: dict[str, int] = field(default_factory=dict)  # base name -> order typed
     angles: list[str] = field(default_factory=list)  # states declared angles: wrapped to (-pi, pi]
+    noise_sources: list[str] = field(default_factory=list)  # white-noise sources (noise.py); equations = drift
+    diffusion: dict[str, dict[str, sp.Expr]] = field(default_factory=dict)  # state -> source -> coefficient
     delays: list = field(default_factory=list)  # delays.Delay: each x(t - tau) the equations use
     history: dict[str, sp.Expr] = field(default_factory=dict)  # state -> its value for t <= 0 (an expr of t)
     history_lines: dict[str, int] = field(default_factory=dict)  # state -> line of its history as written
@@ -99,6 +106,10 @@ class ParsedModel:
     @property
     def errors(self) -> list[Diagnostic]:
         return [d for d in self.diagnostics if d.severity == ERROR]
+
+    @property
+    def stochastic(self) -> bool:
+        return bool(self.diffusion)
 
     @property
     def autonomous(self) -> bool:
@@ -261,6 +272,7 @@ class _Builder:
         for st in statements:
             self.parse_rhs(st)
         statements = expand_statements(self, statements)
+        noise.mark(self, statements)
         self.classify(statements)
         if self.model.kind is None:
             if not any(d.severity == ERROR for d in self.diags):
@@ -434,11 +446,12 @@ class _Builder:
                 if m.kind == FLOW:
                     for k in range(order_k - 1):
                         m.equations[derivative_name(base, k)] = m.symbols[derivative_name(base, k + 1)]
-                    m.equations[derivative_name(base, order_k - 1)] = expr
+                    top = derivative_name(base, order_k - 1)
+                    m.equations[top] = noise.split(m, top, expr, m.equation_lines[top], self)
                 else:
                     m.equations[base] = expr
             else:
-                m.derived[key] = expr
+                m.derived[key] = noise.drop(expr)
         m.equations = {s: m.equations[s] for s in m.states if s in m.equations}  # in state order
 
     def resolve_one(self, key, expr, subs, st, resolved, sizes):
@@ -481,6 +494,8 @@ class _Builder:
 
         def resolve(node: Name):
             name, sub = node.name, node.subscript
+            if name.startswith(noise.MARK):
+                return noise.symbol(name)
             if name in self.lag_symbols:
                 return self.lag_symbols[name]
             base = name.rstrip("'")

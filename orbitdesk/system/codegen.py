@@ -9,7 +9,9 @@ or parameter, so any number of states and parameters works:
   zero elsewhere: the caller zeroes it once);
 * ``jac_values(t, u, p, vals)``: the same entries in the order of ``JAC_ROWS``/``JAC_COLS`` (a
   sparse matrix's data);
-* the products ``J(t, u) @ V`` inside ``model`` touch only the structural entries.
+* the products ``J(t, u) @ V`` inside ``model`` touch only the structural entries;
+* for a model with noise, ``sde(which, t, z, p, out)``: the drift f, the diffusion G and (with
+  ``which`` = 1) the derivative terms L of Milstein's scheme (``noise_terms``).
 
 Each kernel is decorated ``@_NAME_kernel``; the module that holds them (``integrators/compiled.py``)
 defines those decorators (numba ``cfunc`` with the kernel's signature, or nothing).
@@ -49,6 +51,53 @@ def sparse_jacobian(system: CompiledSystem):
                     entries.append(d)
         cached = system.__dict__["_sparse_jacobian"] = (rows, cols, entries)
     return cached
+
+
+def noise_terms(system: CompiledSystem):
+    """(G, L, commutative) of a model with noise, in the system's plain symbols (kept on the system).
+
+    ``G`` lists g_ij (n x m, row by row); ``L`` lists (L^j g_k)_i = sum_l g_lj dg_ik/du_l at index
+    (i m + j) m + k: the derivative of the diffusion along itself that Milstein's scheme needs
+    (Kloeden and Platen 1992, section 10.3). ``commutative``: L^j g_k = L^k g_j for every pair of
+    sources (one source, additive noise, or each source acting on its own state through that state):
+    then the products of increments stand for the double Ito integrals exactly and the scheme has
+    strong order 1; otherwise it needs Levy areas we do not simulate, and its order is 1/2.
+    """
+    cached = system.__dict__.get("_noise_terms")
+    if cached is None:
+        _, u, _, _ = system._plain
+        n, m = system.n_states, len(system.noise_sources)
+        G = [system.plain(row) for row in system.diffusion]
+        dG = [[jacobian_almost_everywhere([G[i][k]], u) if G[i][k].free_symbols & set(u) else None
+               for k in range(m)] for i in range(n)]
+        L = []
+        for i in range(n):
+            for j in range(m):
+                for k in range(m):
+                    d = dG[i][k]
+                    L.append(sp.Integer(0) if d is None else sp.Add(*[G[l][j] * d[0, l] for l in range(n)]))
+        commutative = all(_same(L[(i * m + j) * m + k], L[(i * m + k) * m + j])
+                          for i in range(n) for j in range(m) for k in range(j + 1, m))
+        cached = system.__dict__["_noise_terms"] = ([g for row in G for g in row], L, commutative)
+    return cached
+
+
+def _same(a, b) -> bool:
+    """Whether two expressions are equal: exactly after expansion, else at a few random points."""
+    if sp.expand(a - b) == 0:
+        return True
+    import random
+
+    rng = random.Random(7)
+    names = sorted((a - b).free_symbols, key=lambda s: s.name)
+    fn = sp.lambdify(names, a - b, modules="math", printer=_printer())
+    for _ in range(5):
+        try:
+            if abs(fn(*(rng.uniform(0.3, 1.7) for _ in names))) > 1e-9:
+                return False
+        except (ValueError, ZeroDivisionError, OverflowError, TypeError):
+            continue
+    return True
 
 
 def dense_jacobian(system: CompiledSystem) -> sp.Matrix:
@@ -113,7 +162,8 @@ def kernel_source(system: CompiledSystem, guard: bool) -> str:
     f = system.plain(system.f)
     out = [f"N_STATES = {n}", f"N_PARAMS = {len(w.p)}", f"IS_MAP = {system.kind == 'map'}",
            f"JAC_ROWS = np.array({rows!r}, dtype=np.int64)",
-           f"JAC_COLS = np.array({cols!r}, dtype=np.int64)", "", ""]
+           f"JAC_COLS = np.array({cols!r}, dtype=np.int64)"]
+    out += [f"N_NOISE = {len(system.noise_sources)}", "", ""] if system.stochastic else ["", ""]
     names = [f"_j{k}" for k in range(len(entries))]
 
     def products(values):
@@ -140,7 +190,18 @@ def kernel_source(system: CompiledSystem, guard: bool) -> str:
     out += ["", ""]
     out += ["@_jac_values_kernel", f"def jac_values({t}, u, p, out):"]
     out += _indent(w.lines(entries, lambda values: [f"out[{k}] = {v}" for k, v in enumerate(values)]), guard)
+    if system.stochastic:
+        G, L, _ = noise_terms(system)
+        out += ["", "", "@_sde_kernel", f"def sde(which, {t}, z, p, out):",
+                f"    # out = f (n), G (n x m row by row){', L (n x m x m) when which == 1' if L else ''}; "
+                "the zero entries of G and L are filled by the loop, the others written one by one"]
+        for which, terms in ((0, f + G), (1, f + G + L)):
+            keep = [k for k, e in enumerate(terms) if k < n or e != 0]
+            body = [f"for _k in range({n}, {len(terms)}):", "    out[_k] = 0.0"] if len(keep) < len(terms) else []
+            body += w.lines([terms[k] for k in keep], lambda values, keep=keep: [f"out[{k}] = {v}"
+                                                                                 for k, v in zip(keep, values)], "z")
+            out += ["    if which == 0:" if which == 0 else "    else:"] + _indent(body, guard, " " * 8)
     return "\n".join(out) + "\n"
 
 
-__all__ = ["HEADER", "sparse_jacobian", "dense_jacobian", "kernel_source", "scalar_function"]
+__all__ = ["HEADER", "sparse_jacobian", "noise_terms", "dense_jacobian", "kernel_source", "scalar_function"]

@@ -21,6 +21,7 @@ from sympy.printing.pycode import PythonCodePrinter
 from orbitdesk.system.derivatives import jacobian_almost_everywhere
 from orbitdesk.language.model import FLOW, MAP, ParsedModel, parse_model
 from orbitdesk.system.flat_code import flat_cse
+from orbitdesk.language.noise import system_noise
 
 
 class ModelError(ValueError):
@@ -62,11 +63,18 @@ class CompiledSystem:
     state_symbols: list[sp.Symbol]
     param_symbols: list[sp.Symbol]
     nonsmooth: list[str] = field(default_factory=list)
+    noise_sources: list[str] = field(default_factory=list)  # white-noise sources (language/noise.py); f is the drift
+    diffusion: list[list[sp.Expr]] = field(default_factory=list)  # n x m: row per state, column per source
     delays: list = field(default_factory=list)  # language.delays.Delay; f then holds them dropped (see below)
     f_delayed: list[sp.Expr] = field(default_factory=list)  # f with the delayed values x(t - tau) (delay models)
     derived_delayed: list[sp.Expr] = field(default_factory=list)
 
     # ------------------------------------------------------------ facts
+    @property
+    def stochastic(self) -> bool:
+        """The model has noise: runs are realisations (engine/stochastic.py); ``f`` is its noise-free part."""
+        return bool(self.noise_sources)
+
     @property
     def has_delays(self) -> bool:
         """A delay model: ``f`` is its vector field with every delay dropped (the same equilibria);
@@ -471,6 +479,7 @@ def compile_model(model: ParsedModel | str) -> CompiledSystem:
         state_symbols=[model.symbols[s] for s in states],
         param_symbols=[model.symbols[n] for n in params],
         nonsmooth=list(model.nonsmooth),
+        **system_noise(model, states),
         delays=list(model.delays),
         f_delayed=f if model.delays else [],
         derived_delayed=derived if model.delays else [],

@@ -93,7 +93,7 @@ def test_command_line_report_has_the_same_figures_as_the_app(qtbot, window, tmp_
             assert abs(int(p) - int(q)) <= 4, caption
 
 
-def test_the_3d_scene_is_drawn_at_the_report_size_even_when_hidden(qtbot, window):
+def test_the_3d_scene_is_drawn_at_the_report_size_even_when_hidden(qtbot, window, artifacts):
     from orbitdesk.app.plots.figures import scene_image
 
     from .conftest import load_model
@@ -106,11 +106,22 @@ def test_the_3d_scene_is_drawn_at_the_report_size_even_when_hidden(qtbot, window
     window.view_docks["phase_space_3d"].hide()
     image = scene_image(view, *REPORT_SIZE)
     assert image is not None and (image.width(), image.height()) == REPORT_SIZE
+    image.save(f"{artifacts}/report_3d_scene.png")
     rgb = pixels(image)
     lit = np.nonzero((rgb.max(axis=2) - rgb.min(axis=2)) > 60)  # the run's coloured line on the dark scene
     assert lit[0].size > 200
     # the helix x = cos t, y = sin t, z = e^-t sits in the middle of the picture, wider than a corner
     assert np.ptp(lit[1]) > 0.15 * REPORT_SIZE[0] and abs(np.mean(lit[1]) - REPORT_SIZE[0] / 2) < 0.25 * REPORT_SIZE[0]
+    # the axis numbers and names are in the picture, where the camera puts their points at this size
+    from orbitdesk.app.plots.plot_style import SCENE_TEXT
+
+    text = np.nonzero(np.abs(rgb - np.array(SCENE_TEXT[:3])).sum(axis=2) < 60)
+    labels = view.scene_labels()
+    assert {t for _p, t, _c, _f in labels} >= {"x", "y", "z", "0"}
+    where = view.scene_points([p for p, *_r in labels], *REPORT_SIZE)
+    for (x, y) in where[::3]:
+        near_text = (np.abs(text[1] - x) < 40) & (np.abs(text[0] - y) < 25)
+        assert near_text.sum() > 3, (x, y)
 
 
 def test_report_gives_the_orbit_diagram_and_its_numbers(qtbot, window, tmp_path, monkeypatch):

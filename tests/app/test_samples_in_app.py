@@ -69,7 +69,7 @@ def check_plots_show_the_whole_run(window, step):
     3D camera is the step's."""
     title, snap, traj = step["title"], step["snapshot"], window.session.trajectory
     open_views = snap.get("open_views", [])
-    if "timeseries" in open_views:
+    if "timeseries" in open_views and not window.views["timeseries"].spectrum.isChecked():  # (spectra: frequency)
         view = window.views["timeseries"]
         (t0, t1), (y0, y1) = view.plot.getViewBox().viewRange()
         assert inside(traj.time, t0, t1), title

@@ -229,3 +229,20 @@ def test_an_angle_axis_is_wrapped_and_the_line_broken_where_it_goes_round(qtbot,
     cursor = (view.cursor_item.pos[0, 0] + 5.0) / 10.0 * (hi - lo) + lo
     assert abs(cursor - expected_theta) < 1e-3
     view.grab_image().save(os.path.join(artifacts, "view_3d_spinning_pendulum.png"))
+
+
+def test_a_walkthrough_camera_in_a_wide_short_dock_is_moved_back_until_the_whole_box_shows(qtbot, session):
+    # the convection loop's third step looks across y from distance 23; its dock is about 850 x 380 px on a
+    # 1600 x 1000 screen, where that camera cut off the floor with the x axis's numbers and name
+    view = make_view(qtbot, session, (850, 440))
+    load(qtbot, session, LORENZ)
+    qtbot.waitUntil(lambda: view.glview.height() > 300)
+    view.set_camera({"azimuth": -90.0, "elevation": 8.0, "distance": 23.0, "center": [0.0, 0.0, 0.0]})
+    assert not view.box_in_view()  # what the step showed before
+    view.fit_view()
+    assert view.box_in_view()
+    cam = view.camera()
+    assert (cam["azimuth"], cam["elevation"]) == (-90.0, 8.0) and cam["distance"] > 23.0  # only moved back
+    before = cam["distance"]
+    view.fit_view()
+    assert view.camera()["distance"] == before  # in view already: left alone

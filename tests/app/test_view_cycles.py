@@ -81,3 +81,17 @@ def test_logistic_two_cycle(qtbot, session):
     # multiplier of the 2-cycle: 4 + 2r - r^2 (closed form)
     assert cycle.multipliers[0].real == pytest.approx(4 + 2 * r - r * r, abs=1e-8)
     assert "Cycle of period 2" in view.report.toPlainText()
+
+
+def test_in_a_wide_short_dock_the_numbers_show_without_scrolling(qtbot, session, artifacts):
+    # the size the relaxation-circuit walkthrough gives the panel below the phase plane (1600 x 1000 screen)
+    view = open_view(qtbot, session, "cycles", (700, 260))
+    load_model(qtbot, session, VAN_DER_POL, dict(t_end=60.0, samples=3000))
+    find(qtbot, view)
+    qtbot.waitUntil(lambda: view.report.width() > 0)
+    view.grab().save(f"{artifacts}/cycle_view_wide.png")
+    assert view.splitter.orientation().name == "Horizontal"
+    assert view.report.verticalScrollBar().maximum() == 0, "the period, ranges and multipliers need scrolling"
+    assert view.plot_widget.height() > 120
+    view.resize(600, 700)  # tall again: one above the other
+    qtbot.waitUntil(lambda: view.splitter.orientation().name == "Vertical")

@@ -143,3 +143,15 @@ def test_sweep_sampler_shows_its_whole_text(qtbot, session):
     combo = view.mode
     assert combo.currentText() == "every iterate"
     assert combo.width() > combo.fontMetrics().horizontalAdvance("every iterate")
+
+
+def test_the_series_list_is_wide_enough_for_long_names(qtbot, session):
+    from .conftest import load_model, open_view
+
+    view = open_view(qtbot, session, "timeseries", (800, 400))
+    load_model(qtbot, session, "k = 2\nx' = -k*x\nx(0) = 1\nfront_coupling_force = k*x\n", dict(t_end=1.0, samples=50))
+    names = view.series_list
+    widest = names.fontMetrics().horizontalAdvance("front_coupling_force")
+    assert names.width() >= widest + 40  # check box and swatch beside the whole name, not "front_coupli"
+    rect = names.visualItemRect(names.item(1))
+    assert rect.right() <= names.viewport().width()

@@ -17,7 +17,7 @@ from orbitdesk.samples import SAMPLES_DIR
 SAMPLES = SAMPLES_DIR
 NAMES = ["shaken_beam", "convection_loop", "relaxation_circuit", "clock_reaction", "pond_predators",
          "insect_generations", "pendulum", "stirred_tank", "wagon_train", "rattling_flap", "bracket_pluck",
-         "long_shower"]
+         "long_shower", "rocking_buoy"]
 
 
 def load(name):

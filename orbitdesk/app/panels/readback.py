@@ -244,9 +244,15 @@ class ModelReadback(QWidget):
 
     def _equations(self, system) -> str:
         title = "First-order form" if _is_flow(system) else "Map"
-        rows = [self._equation_row(equation_lhs(system, s), model_str(f), self._c["lhs"])
-                for s, f in zip(system.states, system.f_delayed or system.f)]
+        from orbitdesk.language.noise import terms_text  # (with sympy: never before the first paint)
+
+        rows = [self._equation_row(equation_lhs(system, s), model_str(f) + terms_text(system, i, model_str), self._c["lhs"])
+                for i, (s, f) in enumerate(zip(system.states, system.f_delayed or system.f))]
         notes = []
+        if system.stochastic:
+            notes.append(f"{self._m('noise')} is white noise in the Ito sense (x' = f + g noise is dx = f dt + g dW); "
+                         "runs are realisations, and equilibria, cycles, sections, sweeps, continuation and "
+                         "Lyapunov exponents use the noise-free part, the equations without the noise terms")
         for base, order in reduced_orders(system).items():
             new = ", ".join(self._m(base + "'" * k) for k in range(1, order))
             plural = order > 2

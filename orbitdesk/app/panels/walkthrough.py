@@ -62,6 +62,10 @@ class _StepList(QListWidget):
         self.setAlternatingRowColors(True)
         self.setToolTip("The steps of the walkthrough: click one to show it, drag to reorder")
         self.setSizePolicy(QSizePolicy.Policy.Preferred, QSizePolicy.Policy.Expanding)
+        # long titles wrap onto a second line instead of being cut off behind a sideways scroll bar
+        self.setWordWrap(True)
+        self.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
+        self.setResizeMode(QListWidget.ResizeMode.Adjust)
 
 
 class WalkthroughPanel(QWidget):

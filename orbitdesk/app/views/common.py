@@ -18,6 +18,9 @@ from orbitdesk.document.view_settings import clean_settings
 from orbitdesk.app.plots.plot_style import hint_label, number_text, orbit_middle
 
 DIRECTION_LABELS = ("upward", "downward", "both ways")
+# views whose analyses assume determinism: with a model that has noise they say they use its noise-free part
+NOISE_FREE_VIEWS = frozenset({"equilibria", "cycles", "sections", "sweep", "lyapunov", "bifurcation",
+                              "parameter_map", "basins"})
 
 
 class StaleBar(QFrame):
@@ -115,12 +118,23 @@ class SessionView(QWidget):
         """Zoom the plots to their data (views with plots override this)."""
 
     def main_layout(self) -> QVBoxLayout:
-        """The view's own layout: controls above the plots, with the margins every view uses."""
+        """The view's own layout: controls above the plots, with the margins every view uses; in a view
+        whose analysis assumes determinism, a note when the model has noise."""
         layout = QVBoxLayout(self)
         layout.setContentsMargins(6, 6, 6, 6)
         layout.setSpacing(4)
         layout.addWidget(self.stale_bar)
+        if self.view_id in NOISE_FREE_VIEWS:
+            self.noise_note = status_label()
+            self.noise_note.setText("This model has noise: computed for its noise-free part (the equations "
+                                    "without the noise terms)")
+            self.noise_note.setVisible(self.session.system is not None and self.session.system.stochastic)
+            self.session.systemChanged.connect(self._show_noise_note)
+            layout.addWidget(self.noise_note)
         return layout
+
+    def _show_noise_note(self, system) -> None:
+        self.noise_note.setVisible(bool(getattr(system, "stochastic", False)))
 
     def saved_view_settings(self) -> dict:
         """This view's settings as the open project keeps them, checked and clamped (view_settings.py)."""
@@ -482,7 +496,7 @@ def runs_job(session, system, starts, max_samples: int):
                 runs.append(None)
                 continue
             runs.append(simulate(system, settings[bool(backward)], np.asarray(u0, dtype=float), p,
-                                 cancel=cancel, progress=part))
+                                 cancel=cancel, progress=part, noise=not backward))  # (noise runs forward only)
         return runs
 
     return job

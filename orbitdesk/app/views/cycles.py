@@ -21,6 +21,7 @@ from orbitdesk.app.views.common import (SessionView, apply_numbers, combo_box, c
 END, CLICKED = "end", "clicked"
 START_LABELS = {END: "the end of the run", CLICKED: "the last clicked start"}
 STARTS = (END, CLICKED)
+WIDE = 1.8  # width / height beyond which the report and the plot sit side by side
 
 
 class CyclesView(SessionView):
@@ -61,7 +62,7 @@ class CyclesView(SessionView):
         self.plot.addLegend(offset=(-8, 8), labelTextSize="8pt")
         self.curves: list = []
         self.empty = empty_hint(self.plot, "One period of the cycle will be drawn here")
-        splitter = QSplitter(Qt.Orientation.Vertical)
+        self.splitter = splitter = QSplitter(Qt.Orientation.Vertical)
         splitter.addWidget(self.report)
         splitter.addWidget(self.plot_widget)
         splitter.setStretchFactor(0, 3)
@@ -82,6 +83,16 @@ class CyclesView(SessionView):
         layout.addWidget(splitter, 1)
         self._restyle()
         self.follow_session(trajectory=self._on_trajectory)
+
+    def resizeEvent(self, event) -> None:
+        """Report and plot one above the other, or side by side in a wide, short dock (the numbers then keep
+        their height instead of scrolling)."""
+        super().resizeEvent(event)
+        wide = self.width() > WIDE * self.height()
+        orientation = Qt.Orientation.Horizontal if wide else Qt.Orientation.Vertical
+        if self.splitter.orientation() != orientation:
+            self.splitter.setOrientation(orientation)
+            self.splitter.setSizes([3, 2])
 
     def _on_trajectory(self, _trajectory) -> None:
         if self._after_run and not self.session.run_pending():
@@ -230,10 +241,10 @@ class CyclesView(SessionView):
             extra = ""
             if c.forcing_period is not None:
                 extra = f" = {c.forcing_multiple} × the forcing period {number_text(c.forcing_period)}"
-            rows.append(f"<p><b>Period {number_text(c.period, 8)}</b>{esc(extra)} — {verdict}</p>")
+            rows.append(f"<p style='margin-top:0'><b>Period {number_text(c.period, 8)}</b>{esc(extra)} — {verdict}</p>")
         cols = cycle_columns(s, c, self.session.param_vector())
         head = "<tr><th align='left'>state</th><th align='right'>min</th><th align='right'>max</th>" \
-               "<th align='right'>amplitude (max − min)</th></tr>"
+               "<th align='right' title='max − min'>amplitude</th></tr>"
         body = "".join(
             f"<tr><td>{esc(n)}</td><td align='right'>{number_text(cols[n].min())}</td>"
             f"<td align='right'>{number_text(cols[n].max())}</td>"
@@ -250,9 +261,9 @@ class CyclesView(SessionView):
                     "outside the unit circle: disturbances grow"
             mult.append(f"<tr><td align='right'>{esc(complex_text(m))}</td><td align='right'>{number_text(size, 5)}"
                         f"</td><td>{esc(note)}</td></tr>")
-        what = "Multipliers (eigenvalues of the map's Jacobian over one cycle)" if is_map else \
-            "Floquet multipliers (eigenvalues of the monodromy matrix)"
-        rows.append(f"<p><b>{what}</b></p><table cellspacing='0' cellpadding='3'><tr><th align='right'>value"
+        what = "Multipliers</b> (eigenvalues of the map's Jacobian over one cycle)" if is_map else \
+            "Floquet multipliers</b> (of the monodromy matrix)"
+        rows.append(f"<p style='margin-top:6px; margin-bottom:0'><b>{what}</p><table cellspacing='0' cellpadding='3'><tr><th align='right'>value"
                     f"</th><th align='right'>modulus</th><th></th></tr>{''.join(mult)}</table>")
         for w in c.warnings:
             rows.append(f"<p><i>{esc(w)}</i></p>")

@@ -7,7 +7,7 @@ coordinates of very different size share one readable cube; ticks show the data 
 
 from __future__ import annotations
 
-import math
+import itertools
 
 import numpy as np
 from PySide6.QtCore import QEvent, QTimer, Signal
@@ -39,6 +39,8 @@ WIDE_ASPECT = 1.6  # width / height up to which the starting camera shows the wh
 class PhaseSpace3DView(SessionView):
     view_id = "phase_space_3d"
     title = "Phase space 3D"
+
+    fit_own_state = False  # leaving a walkthrough brings the user's own camera back as it was (no fit_view)
 
     spreadChanged = Signal()  # the nearby-starts runs arrived (or were cleared)
     addedChanged = Signal()   # added trajectories arrived (or were cleared)
@@ -227,6 +229,47 @@ class PhaseSpace3DView(SessionView):
         painter.drawImage(self.glview.geometry(), scene)
         painter.end()
         return image
+
+    def _clip_matrix(self, width: int, height: int) -> np.ndarray:
+        """Box coordinates -> clip coordinates of the camera for a picture of ``width`` x ``height``."""
+        viewport = (0, 0, max(1, int(width)), max(1, int(height)))
+        m = self.glview.projectionMatrix(viewport, viewport) * self.glview.viewMatrix()
+        return np.array(m.data(), dtype=float).reshape(4, 4).T  # Qt keeps its matrices column by column
+
+    def scene_points(self, points, width: int, height: int) -> np.ndarray:
+        """Pixel positions (x right, y down) of box-coordinate ``points`` (N, 3) in a picture of that size
+        (NaN behind the camera)."""
+        pts = np.asarray(points, dtype=float).reshape(-1, 3)
+        clip = np.column_stack([pts, np.ones(len(pts))]) @ self._clip_matrix(width, height).T
+        with np.errstate(divide="ignore", invalid="ignore"):
+            ndc = np.where(clip[:, 3:4] > 0, clip[:, :2] / clip[:, 3:4], np.nan)
+        return np.column_stack([(ndc[:, 0] + 1) / 2 * width, (1 - ndc[:, 1]) / 2 * height])
+
+    def scene_labels(self) -> list:
+        """The tick numbers and axis names of the scene: (box position, text, QColor, QFont) each; an
+        off-screen picture of the scene paints them itself (``figures.scene_image``)."""
+        return [(np.asarray(item.pos, dtype=float), str(item.text), QColor(item.color), QFont(item.font))
+                for item in self.text_items]
+
+    def box_in_view(self, margin: float = 0.97) -> bool:
+        """Whether the whole box, with room for its tick numbers and axis names, projects inside the scene."""
+        w, h = max(1, self.glview.width()), max(1, self.glview.height())
+        reach = HALF * 1.2  # the tick numbers and the names stand a little outside the box
+        corners = np.array(list(itertools.product((-reach, reach), repeat=3)))
+        xy = self.scene_points(corners, w, h)
+        inside = (np.abs(xy[:, 0] / w * 2 - 1) <= margin) & (np.abs(1 - xy[:, 1] / h * 2) <= margin)
+        return bool(np.all(inside))
+
+    def fit_view(self) -> None:
+        """Move the camera back (never closer) until the whole box shows: a walkthrough step's camera was
+        chosen in a dock of another shape."""
+        distance = float(self.glview.opts["distance"])
+        for _ in range(40):
+            if self.box_in_view():
+                break
+            distance *= 1.08
+            self.glview.setCameraPosition(distance=distance)
+        self.glview.update()
 
     def reset_camera(self) -> None:
         """The starting camera, moved back in wide, short views so that the whole box shows

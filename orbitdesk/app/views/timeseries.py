@@ -6,13 +6,17 @@ import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import QSize, Qt
 from PySide6.QtGui import QColor, QIcon, QPainter, QPixmap
-from PySide6.QtWidgets import QHBoxLayout, QLabel, QListWidget, QListWidgetItem, QToolButton, QVBoxLayout
+from PySide6.QtWidgets import (QHBoxLayout, QLabel, QListWidget, QListWidgetItem, QSizePolicy, QToolButton,
+                               QVBoxLayout)
 
+from orbitdesk.analyses.spectra import mean_power_spectrum, power_spectrum
 from orbitdesk.app.plots.event_marks import EventMarks
 from orbitdesk.app.views import empty_hint, muted_colour, series_colour, style_plot
 from orbitdesk.app.plots.data_overlay import TIME, DataOverlay
 from orbitdesk.app.plots.plot_style import ScreenCurve
 from orbitdesk.app.views.common import SessionView, check_box, control_row, run_time_name
+
+LIST_WIDTH, LIST_MAX_WIDTH = 112, 240  # the list of series: its width, and the most its names may widen it
 
 
 def swatch(colour: QColor, size: int = 12) -> QIcon:
@@ -27,25 +31,7 @@ def swatch(colour: QColor, size: int = 12) -> QIcon:
     return QIcon(pix)
 
 
-def power_spectrum(time: np.ndarray, values: np.ndarray):
-    """(frequency, power) of a uniformly sampled series, Hann-windowed, mean removed; None if not uniform."""
-    if time.size < 8:
-        return None
-    dt = np.diff(time)
-    step = float(np.median(dt))
-    if step <= 0 or np.max(np.abs(dt - step)) > 1e-6 * step + 1e-12:
-        return None
-    y = np.asarray(values, dtype=float)
-    ok = np.isfinite(y)
-    if not ok.all():
-        y = y[: int(np.argmin(ok))]  # the finite stretch before a blow-up
-    if y.size < 8:
-        return None
-    w = np.hanning(y.size)
-    spec = np.fft.rfft((y - y.mean()) * w)
-    power = (np.abs(spec) ** 2) / np.sum(w**2)
-    freq = np.fft.rfftfreq(y.size, step)
-    return freq[1:], power[1:]
+FAINT_REALISATIONS = 12  # a model with noise: realisations drawn faintly behind the mean
 
 
 def _span(traj):
@@ -67,9 +53,10 @@ class TimeSeriesView(SessionView):
         self._fitted = True              # follows the data until the user pans or zooms
         self._refit_on_release = False
 
+        self._noise_items: list = []  # realisations drawn faintly and the +-1 std bands (models with noise)
         self.series_list = QListWidget()
         self.series_list.setToolTip("Tick the quantities to plot")
-        self.series_list.setFixedWidth(112)
+        self.series_list.setFixedWidth(LIST_WIDTH)
         self.series_list.setIconSize(QSize(12, 12))
         self.series_list.itemChanged.connect(self._on_item_changed)
 
@@ -82,6 +69,8 @@ class TimeSeriesView(SessionView):
         self.fit.clicked.connect(self.fit_view)
         self.note = QLabel()
         self.note.setStyleSheet("color: palette(placeholder-text);")
+        self.note.setMinimumWidth(0)
+        self.note.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)  # never widens the view
 
         self.plot_widget = pg.PlotWidget()
         self.plot_widget.setToolTip("")
@@ -98,6 +87,7 @@ class TimeSeriesView(SessionView):
         self.event_marks = EventMarks(self.plot)
 
         options = control_row(self.log_y, self.spectrum, None, self.note, self.fit, spacing=6, stretch=False)
+        options.setStretchFactor(self.note, 10)  # the note takes the free room (it never widens the view)
         right = QVBoxLayout()
         right.setContentsMargins(0, 0, 0, 0)
         right.setSpacing(4)
@@ -131,10 +121,12 @@ class TimeSeriesView(SessionView):
         traj, names = self.trajectory, self.checked()
         if traj is None or not names:
             return None
+        R = getattr(traj, "realisations", None)
         if self.spectrum.isChecked():
             cols, freq = [], None
             for name in names:
-                spec = power_spectrum(traj.time, traj.series(name))
+                spec = (mean_power_spectrum(R.time, R.series(name)) if R is not None and name in R.state_names
+                        else power_spectrum(traj.time, traj.series(name)))
                 if spec is not None:
                     n = spec[0].size if freq is None else min(freq.size, spec[0].size)
                     freq = spec[0][:n]
@@ -142,6 +134,14 @@ class TimeSeriesView(SessionView):
             if freq is None:
                 return None
             return ["frequency"] + [f"power({n})" for n in names], np.column_stack([freq] + cols)
+        if R is not None:  # each state: the first realisation, the mean and the standard deviation
+            header, cols = [run_time_name(traj)], [R.time]
+            for n in names:
+                extra = n in R.state_names
+                header += [n] + ([f"mean({n})", f"std({n})"] if extra else [])
+                i = R.state_names.index(n) if extra else None
+                cols += [traj.series(n)] + ([R.mean[i], R.std[i]] if extra else [])
+            return header, np.column_stack(cols)
         return [run_time_name(traj)] + names, np.column_stack([traj.time] + [traj.series(n) for n in names])
 
     # ------------------------------------------------------------ selection
@@ -188,6 +188,9 @@ class TimeSeriesView(SessionView):
             item.setToolTip(f"{name} ({kind})")
             self.series_list.addItem(item)
         self.series_list.blockSignals(False)
+        # wide enough for the longest name (check box, swatch and scroll bar beside it), within reason
+        longest = max((self.series_list.fontMetrics().horizontalAdvance(n) for n in names), default=0)
+        self.series_list.setFixedWidth(int(min(LIST_MAX_WIDTH, max(LIST_WIDTH, longest + 64))))
         self._redraw(refit=True)
 
     def _on_project_loaded(self) -> None:
@@ -223,6 +226,10 @@ class TimeSeriesView(SessionView):
             if name not in names or traj is None:
                 self.plot.removeItem(self._curves.pop(name))
         self.note.setText("")
+        self.note.setToolTip("")
+        for item in self._noise_items:
+            self.plot.removeItem(item)
+        self._noise_items = []
         log_y = self.log_y.isChecked() or spectrum
         if bool(self.plot.getAxis("left").logMode) != log_y:  # (each change redraws the axes)
             self.plot.setLogMode(x=False, y=log_y)
@@ -249,14 +256,19 @@ class TimeSeriesView(SessionView):
             except KeyError:
                 continue
             x = traj.time
+            realisations = getattr(traj, "realisations", None)
+            noisy = realisations is not None and name in realisations.state_names
             if spectrum:
-                spec = power_spectrum(x, y)
+                spec = self._mean_spectrum(name) if noisy else power_spectrum(x, y)
                 if spec is None:
                     missing.append(name)
                     if name in self._curves:
                         self.plot.removeItem(self._curves.pop(name))
                     continue
                 x, y = spec
+            elif noisy:
+                y = self._draw_realisations(name, series_colour(index, self), log_y)
+                x = realisations.time
             elif log_y:
                 y = np.where(y > 0, y, np.nan)
             curve = self._curves.get(name)
@@ -273,12 +285,56 @@ class TimeSeriesView(SessionView):
                 curve.setData(x, y, pen=pen, symbol=None, connect="finite")
         marks = [] if spectrum else [("t", n, series_colour(self._names.index(n) if n in self._names else 0, self))
                                      for n in names if n in traj.state_names]
-        self.note.setText(self.event_marks.show(traj, marks) if marks else "")
+        event_note = self.event_marks.show(traj, marks) if marks else ""
+        if event_note:  # (a model with noise has no events: its note about the realisations stays)
+            self.note.setText(event_note)
         if missing:
             self.note.setText("Spectrum needs evenly spaced samples")
         if refit:
             self.fit_view()
         self._on_time_cursor(self.session.time_cursor)
+
+    def _mean_spectrum(self, name: str):
+        """The power spectrum of ``name`` averaged over the realisations (the note says over how many)."""
+        R = self.trajectory.realisations
+        spec = mean_power_spectrum(R.time, R.series(name))
+        if spec is None:
+            return None
+        self.note.setText(f"Spectra averaged over {spec[2]} realisations")
+        return spec[:2]
+
+    def _draw_realisations(self, name: str, colour: QColor, log_y: bool) -> np.ndarray:
+        """Some realisations faint and the band mean +- 1 standard deviation; returns the mean (drawn bold
+        by the caller)."""
+        R = self.trajectory.realisations
+        i = R.state_names.index(name)
+        t = R.time
+
+        def shown(v):
+            return np.where(v > 0, v, np.nan) if log_y else v
+
+        faint = QColor(colour)
+        faint.setAlpha(70)
+        for r in range(min(R.count, FAINT_REALISATIONS)):
+            curve = ScreenCurve(ordered_x=True)
+            curve.setData(t, shown(R.states[r, i]), pen=pg.mkPen(faint, width=1), connect="finite")
+            self.plot.addItem(curve)
+            self._noise_items.append(curve)
+        if R.count > 1:
+            edge = QColor(colour)
+            edge.setAlpha(150)
+            lo = pg.PlotDataItem(t, shown(R.mean[i] - R.std[i]), pen=pg.mkPen(edge, width=1, style=Qt.PenStyle.DashLine))
+            hi = pg.PlotDataItem(t, shown(R.mean[i] + R.std[i]), pen=pg.mkPen(edge, width=1, style=Qt.PenStyle.DashLine))
+            fill = QColor(colour)
+            fill.setAlpha(45)
+            band = pg.FillBetweenItem(lo, hi, brush=pg.mkBrush(fill))
+            for item in (band, lo, hi):
+                self.plot.addItem(item)
+                self._noise_items.append(item)
+        self.note.setText(f"{R.count} realisations, seed {R.seed}: mean, ±1 std")
+        self.note.setToolTip(f"{min(R.count, FAINT_REALISATIONS)} of the {R.count} realisations are drawn faintly, "
+                             "their mean bold and the band of one standard deviation either side dashed")
+        return shown(R.mean[i])
 
     def _overlay_pairs(self) -> list:
         """Measured data that belongs here: the ticked series against time (not their spectra)."""
