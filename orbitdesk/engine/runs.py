@@ -21,11 +21,7 @@ from scipy.optimize import brentq
 
 from orbitdesk.engine.methods import NAMES
 from orbitdesk.engine.settings import RunSettings
-<<<<<<< HEAD
-from orbitdesk.engine import compiled, drivers, limits
-=======
-from orbitdesk.engine import compiled, drivers, stochastic
->>>>>>> main
+from orbitdesk.engine import compiled, drivers, limits, stochastic
 from orbitdesk.engine.stiff import StiffStepper
 from orbitdesk.engine.status import (C_CANCELLED, C_DIVERGED, C_STEP_FAILED, C_UNDEFINED, CANCELLED, DIVERGED,
                                  OK, STEP_FAILED, UNDEFINED)

@@ -24,12 +24,8 @@ from orbitdesk.language.expression import (CONSTANTS, FUNCTIONS, KEYWORDS, MAX_L
 from orbitdesk.language.families import expand_statements, parse_clause_bounds, split_family_clause
 from orbitdesk.language.events import ModelEvent, define_events, is_event_line, parse_event_line
 from orbitdesk.language.functions import define_functions, function_nonsmooth
-<<<<<<< HEAD
-from orbitdesk.language.symbolic import ModelFunction, Span, constant_value, substitute, to_sympy, tree_depth, tree_size
-=======
 from orbitdesk.language import noise
-from orbitdesk.language.symbolic import ModelFunction, Span, constant_value, substitute, to_sympy, tree_size
->>>>>>> main
+from orbitdesk.language.symbolic import ModelFunction, Span, constant_value, substitute, to_sympy, tree_depth, tree_size
 
 MAX_MODEL_CHARS = 1_000_000
 MAX_STATEMENTS = 5_000
