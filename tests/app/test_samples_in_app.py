@@ -1,6 +1,6 @@
 """Every sample project opened from Help > Sample Projects in the main window, its walkthrough replayed
 through the walkthrough panel (Next until the end): each step puts the values written in the sample file
-on screen, runs cleanly and reports no problems; leaving gives the sample's own values back."""
+on screen, runs cleanly (or ends with the status its note explains) and reports no problems; leaving gives the sample's own values back."""
 
 import json
 import re
@@ -129,7 +129,9 @@ def test_sample_walkthrough_replays_in_the_app(qtbot, window, path):
                 assert window.views.get(view_id) is not None
         check_views_show_the_step(qtbot, window, raw, steps[i])
         wait_idle_run(qtbot, s)
-        assert s.trajectory.status == "ok", (steps[i]["title"], s.trajectory.message)
+        # a run ends well, unless the step is there to show how it ends otherwise and its note names the status
+        status = s.trajectory.status
+        assert status == "ok" or f"*{status}*" in steps[i]["note"], (steps[i]["title"], s.trajectory.message)
         check_plots_show_the_whole_run(window, steps[i])
         if panel.missing_views:
             print(f"{path.stem} step {i + 1}: views not in this build: {panel.missing_views}")
