@@ -21,7 +21,11 @@ from orbitdesk.engine.runs import Event, RunSettings, simulate
 from orbitdesk.analyses.equilibria import NONSMOOTH_WARNING
 from orbitdesk.engine import compiled, drivers
 from orbitdesk.engine.model_events import saltation_refusal
+from orbitdesk.engine.methods import DEFAULT as DEFAULT_METHOD
+from orbitdesk.engine.methods import method as method_named
 from orbitdesk.engine.status import C_CANCELLED
+from orbitdesk.engine.stiff import solve_at
+from orbitdesk.analyses.time_scales import MIN_WINDOW, choose_method, time_scale
 from orbitdesk.engine.status import word as status_word
 from orbitdesk.engine.progress import CancelToken, Cancelled, Reporter
 from orbitdesk.system.compiled_system import MAP, CompiledSystem
@@ -123,15 +127,19 @@ def detect_forcing_period(system: CompiledSystem, p=None) -> float | None:
 
 # ---------------------------------------------------------------- variational equations
 class _Flow:
-    """phi_T(u0) and its monodromy matrix: the state with n tangent vectors in the compiled loop
-    (Dormand-Prince 8(5,3), the model's kernel with its sparse Jacobian)."""
+    """phi_T(u0) and its monodromy matrix: the state with n tangent vectors, in the compiled loop
+    (Dormand-Prince 8(5,3), the model's kernel with its sparse Jacobian) or, for a stiff method, by
+    scipy's implicit stepper with its interpolant checked (engine/stiff.py)."""
 
-    def __init__(self, system: CompiledSystem, p, rtol, atol, cancel):
+    def __init__(self, system: CompiledSystem, p, rtol, atol, cancel, method: str = DEFAULT_METHOD):
         self.system, self.n = system, system.n_states
         self.p = np.asarray(p, dtype=float)
         self.rtol, self.atol = rtol, atol
         self.report = Reporter(None, cancel)
-        self.engine = compiled.engine_for_work(system, 1e6)
+        self.info = method_named(method)
+        if self.info.stiff:  # an implicit method's error control is costly below 1e-9
+            self.rtol, self.atol = max(rtol, 1e-9), max(atol, 1e-11)
+        self.engine = None if self.info.stiff else compiled.engine_for_work(system, 1e6)
 
     def rhs(self, t, u) -> np.ndarray:
         try:
@@ -139,29 +147,67 @@ class _Flow:
         except ArithmeticError as err:  # UndefinedValue
             raise CycleError(str(err)) from None
 
-    def _run(self, z0, t0, t1, grid, which):
+    def _run(self, z0, t0, t1, grid, which) -> np.ndarray:
+        if self.info.stiff:
+            return self._run_stiff(z0, t0, t1, grid, which)
         with np.errstate(all="ignore"):
-            out = drivers.flow_run(self.engine, "dop853", t0, t1, z0, self.p, self.rtol, self.atol, grid=grid,
-                                   which=which, report=self.report)
+            out = drivers.flow_run(self.engine, self.info.name if self.info.family == "explicit_rk" else "dop853",
+                                   t0, t1, z0, self.p, self.rtol, self.atol, grid=grid, dt=1e-3, which=which,
+                                   report=self.report)
         if out.code == C_CANCELLED:
             raise Cancelled("cancelled")
         if out.code != 0 or out.time.size != len(grid):
             where = f"{self.system.time_name} = {out.t:.6g}"
             raise CycleError(f"the integration over one period failed ({status_word(out.code)} near {where})")
-        return out
+        return out.states
+
+    def _run_stiff(self, z0, t0, t1, grid, which) -> np.ndarray:
+        n, system, p = self.n, self.system, self.p
+        eye = np.eye(which + 1)
+
+        def fun(t, z):
+            f = self.rhs(t, z[:n])
+            if not which:
+                return f
+            return np.concatenate([f, (system.jac(t, z[:n], p) @ z[n:].reshape(n, which)).ravel()])
+
+        def jac(t, z):  # the tangent columns' J in each block; their dependence on u left out (Newton only)
+            J = system.jac(t, z[:n], p)
+            if not which:
+                return J
+            full = np.zeros((n * (which + 1), n * (which + 1)))
+            full[:n, :n] = J
+            full[n:, n:] = np.kron(J, eye[:which, :which])
+            return full
+
+        def report(_fraction):
+            self.report(0.0)  # cancel polling
+
+        with np.errstate(all="ignore"):
+            states, _, failure = solve_at(self.info.scipy_name, fun, jac, t0, z0, t1, self.rtol, self.atol, grid,
+                                          report)
+        if failure is not None or states.shape[1] != len(grid):
+            raise CycleError(f"the integration over one period failed ({failure or 'stopped early'})")
+        return states
 
     def monodromy(self, u0, t0, T):
         n = self.n
         z0 = np.concatenate([np.asarray(u0, dtype=float), np.eye(n).ravel()])
-        end = self._run(z0, t0, t0 + T, [t0 + T], n).states[:, -1]
+        end = self._run(z0, t0, t0 + T, [t0 + T], n)[:, -1]
         if not np.all(np.isfinite(end)):
             raise CycleError("the integration over one period failed (not a number)")
         return end[:n], end[n:].reshape(n, n)
 
     def sample(self, u0, t0, T, samples):
         times = np.linspace(t0, t0 + T, samples)
-        out = self._run(np.asarray(u0, dtype=float), t0, t0 + T, times[1:], 0)
-        return times - t0, np.concatenate([np.asarray(u0, float)[:, None], out.states], axis=1)
+        tolerances = self.rtol, self.atol
+        if self.info.stiff:  # the orbit drawn: samples held to 1e-6 (the monodromy keeps the tight tolerance)
+            self.rtol, self.atol = max(self.rtol, 1e-6), max(self.atol, 1e-8)
+        try:
+            states = self._run(np.asarray(u0, dtype=float), t0, t0 + T, times[1:], 0)
+        finally:
+            self.rtol, self.atol = tolerances
+        return times - t0, np.concatenate([np.asarray(u0, float)[:, None], states], axis=1)
 
 
 # ---------------------------------------------------------------- flows
@@ -169,7 +215,7 @@ def find_cycle(system: CompiledSystem, p=None, guess=None, period_guess: float |
                section=None, forcing_period: float | None = None, forcing_multiple: int | None = None,
                transient: float | None = None, rtol: float = 1e-10, atol: float = 1e-12,
                max_iter: int = 40, samples: int = 2001, initial=None, cancel: CancelToken | None = None,
-               progress=None) -> Cycle:
+               progress=None, method: str | None = None) -> Cycle:
     """A periodic orbit of a flow near ``guess`` (state dict or vector; default: the end of a transient run).
 
     Autonomous flows: ``period_guess`` (default: the first return to the section) and ``section``
@@ -177,7 +223,10 @@ def find_cycle(system: CompiledSystem, p=None, guess=None, period_guess: float |
     ``forcing_period`` (default: detected from sin/cos(omega t) terms) and optionally
     ``forcing_multiple`` k (default: tried from the transient's stroboscopic points). Raises
     CycleError when no orbit is found, ValueError for bad input. ``initial`` is where the transient
-    run starts (default: the model's initial values).
+    run starts (default: the model's initial values). ``method``: an adaptive method of
+    engine/methods.py; default: the default method, or the stiff one when a probe run shows the
+    system stiff (time_scales.choose_method; the cycle's warnings say so). The transient defaults to
+    three slow time scales of the system (time_scales.time_scale), at least 200.
     """
     system.refuse_delays("the limit-cycle search")
     if system.kind == MAP:
@@ -186,11 +235,21 @@ def find_cycle(system: CompiledSystem, p=None, guess=None, period_guess: float |
         raise ValueError(saltation_refusal(system, "Limit cycles (by shooting, with Floquet multipliers)")
                          + "; a run shows a periodic orbit's events, and a Poincaré section its period")
     p = system.param_values.astype(float) if p is None else np.asarray(p, dtype=float)
+    if method is not None and not method_named(method).adaptive:
+        raise ValueError(f"cycles need an adaptive method; {method} has a fixed step")
     report = Reporter(progress, cancel)
-    flow = _Flow(system, p, rtol, atol, cancel)
     u_guess = _guess_vector(system, guess)
     start = system.initial if initial is None else np.asarray(initial, dtype=float)
     warnings = []
+    scale = time_scale(system, p, start if u_guess is None else u_guess)
+    window = scale.window() if transient is None else max(float(transient), 1.0)
+    if forcing_period is not None:
+        window = max(window, 50 * float(forcing_period))
+    choice = choose_method(system, p, start if u_guess is None else u_guess, window, method, cancel=cancel)
+    if choice.note:
+        warnings.append(choice.note)
+    flow = _Flow(system, p, rtol, atol, cancel, choice.method)
+    flow.scale = scale
     if system.nonsmooth:
         warnings.append(NONSMOOTH_WARNING.format(names=", ".join(system.nonsmooth)))
     if system.autonomous and forcing_period is not None:
@@ -227,8 +286,8 @@ def _guess_vector(system, guess):
     return u
 
 
-def _run(system, p, u0, t_end, samples, cancel, report, events=()):
-    settings = RunSettings(t_start=0.0, t_end=t_end, samples=samples)
+def _run(system, p, u0, t_end, samples, cancel, report, events=(), method=DEFAULT_METHOD, rtol=1e-8):
+    settings = RunSettings(method=method, t_start=0.0, t_end=t_end, samples=samples, rtol=rtol, atol=1e-2 * rtol)
     run = simulate(system, settings, u0, p, events=list(events), cancel=cancel, progress=report)
     if run.status == "cancelled":
         raise Cancelled("cancelled")
@@ -240,11 +299,16 @@ def _run(system, p, u0, t_end, samples, cancel, report, events=()):
 def _autonomous_cycle(system, p, flow, u_guess, start, period_guess, section, transient, max_iter, samples,
                       report, cancel) -> Cycle:
     n = system.n_states
-    transient = 200.0 if transient is None else float(transient)
-    if period_guess is not None:
-        transient = max(transient, 30 * period_guess)
+    if transient is None:
+        transient = flow.scale.window()
+        why = (f"{transient:.4g} = three times the slowest time scale {flow.scale.slow:.4g} of {flow.scale.source}"
+               if transient > MIN_WINDOW else f"{transient:.4g}, the shortest window")
+    else:
+        transient, why = float(transient), "the transient given"
+    if period_guess is not None and 30 * period_guess > transient:
+        transient, why = 30 * period_guess, "30 times the period guess"
     if u_guess is None:
-        run = _run(system, p, start, transient, 4000, cancel, report.part(0.0, 0.3))
+        run = _run(system, p, start, transient, 2, cancel, report.part(0.0, 0.3), method=flow.info.name)
         u_ref, where = run.final_state.copy(), "the run from the initial values settles"
     else:
         u_ref, where = u_guess, "the guess is"
@@ -260,7 +324,8 @@ def _autonomous_cycle(system, p, flow, u_guess, start, period_guess, section, tr
 
     T = period_guess
     if T is None:
-        T = _return_time(system, p, u_ref, normal, point, transient, cancel, report.part(0.3, 0.1))
+        T = _return_time(system, p, u_ref, normal, point, transient, why, flow.info.name, cancel,
+                         report.part(0.3, 0.1))
 
     u0 = u_ref.copy()
     phi, M = flow.monodromy(u0, 0.0, T)
@@ -328,16 +393,18 @@ def _shoot_residual(phi, u0, normal, point):
     return float(np.linalg.norm(np.concatenate([phi - u0, [normal @ (u0 - point)]])))
 
 
-def _return_time(system, p, u_ref, normal, point, t_max, cancel, report) -> float:
+def _return_time(system, p, u_ref, normal, point, t_max, why, method, cancel, report) -> float:
     """The first time the run from u_ref crosses the section again, near u_ref, in the same direction."""
     event = Event.on_plane(normal, float(normal @ point), direction=1)
-    run = _run(system, p, u_ref, t_max, 2000, cancel, report, events=[event])
+    # a first estimate for Newton: an implicit method's crossings need no more than 1e-6
+    run = _run(system, p, u_ref, t_max, 2000, cancel, report, events=[event], method=method,
+               rtol=1e-6 if method_named(method).stiff else 1e-8)
     size = float(np.linalg.norm(np.ptp(run.states, axis=1))) if run.states.size else 0.0
     times, states = run.event_times[0], run.event_states[0]
     if times.size == 0:
-        raise CycleError(f"the run from the guess never returns to the section through it within "
-                         f"{system.time_name} = {t_max:g}: no periodic orbit found (it may settle to an "
-                         "equilibrium)")
+        raise CycleError(f"the run from the guess did not return to the section through it within "
+                         f"{t_max:.4g} time units ({why}); a longer transient (--transient) or a period "
+                         "guess (--period-guess) lengthens the search")
     distances = np.linalg.norm(states - u_ref[:, None], axis=0)
     near = np.flatnonzero(distances <= 0.1 * max(size, 1e-12))
     return float(times[near[0]] if near.size else times[int(np.argmin(distances))])
@@ -350,7 +417,8 @@ def _forced_cycle(system, p, flow, u_guess, start, Tf, k_given, transient, max_i
     periods = max(int(math.ceil(transient / Tf)), 2 * MAX_FORCING_MULTIPLE)
     per = 8
     start = start if u_guess is None else u_guess
-    run = _run(system, p, start, periods * Tf, periods * per + 1, cancel, report.part(0.0, 0.3))
+    run = _run(system, p, start, periods * Tf, periods * per + 1, cancel, report.part(0.0, 0.3),
+               method=flow.info.name)
     strobe = run.states[:, ::per]
     if k_given is not None:
         if int(k_given) < 1:

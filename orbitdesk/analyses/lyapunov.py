@@ -34,11 +34,16 @@ from orbitdesk.engine import compiled, drivers, limits
 from orbitdesk.engine.model_events import saltation_refusal
 from orbitdesk.engine.status import REFUSED
 from orbitdesk.engine.status import word as status_word
+from orbitdesk.analyses.time_scales import time_scale
 
 QR, TWO_TRAJECTORY = "qr", "two-trajectory"
 MAX_RUNNING = 5000  # rows of running estimates kept
 STEP_TOLERANCE = 1e-5  # local RK4 error per step, relative to max(1, |u|), accepted by the dt check
 RENORM_STEPS = 10  # renormalisation interval in steps of a given dt (flows)
+CONVERGE_RTOL, CONVERGE_ATOL = 0.01, 0.002  # stop when each standard error <= rtol |exponent| + atol
+MIN_BLOCKS = 10  # block averages needed before the spread of them is trusted
+FLOW_CAP, MAP_CAP = 20000.0, 2_000_000  # the longest averaging (time units; iterations) when converging
+MAP_BLOCK = 1000  # iterations per block of a map
 NONSMOOTH_NOTE = ("the model uses {names}: the exponents use the Jacobian that holds almost everywhere "
                   "(kinks and jumps contribute nothing)")
 
@@ -57,6 +62,10 @@ class LyapunovResult:
     status: str = OK
     message: str = ""
     warnings: list[str] = field(default_factory=list)
+    uncertainty: np.ndarray | None = None  # standard error of each exponent: spread of block averages / sqrt(blocks)
+    blocks: int = 0  # block averages the uncertainty is read from
+    converged: bool | None = None  # None: a fixed length was asked for; False: the cap came first
+    tolerance: tuple[float, float] | None = None  # (rtol, atol) the run was to settle to
 
     @property
     def ok(self) -> bool:
@@ -149,27 +158,54 @@ def _sorted_result(sums, rows, row_times, kind, method, averaged, **extra):
 def lyapunov_spectrum(system: CompiledSystem, p=None, u0=None, t_end: float | None = None,
                       steps: int | None = None, transient: float | None = None,
                       dt_renorm: float | None = None, dt: float | None = None,
-                      settings: RunSettings | None = None, cancel=None, progress=None) -> LyapunovResult:
-    """All n exponents, in descending order, with running estimates and the Kaplan-Yorke dimension.
+                      settings: RunSettings | None = None, cancel=None, progress=None,
+                      converge: bool = False, rtol: float = CONVERGE_RTOL, atol: float = CONVERGE_ATOL,
+                      cap: float | None = None) -> LyapunovResult:
+    """All n exponents, in descending order, with running estimates, their uncertainty and the
+    Kaplan-Yorke dimension.
 
-    Flows run from ``settings.t_start`` to ``t_end`` (default ``settings.t_end``); maps for
-    ``steps`` iterations (default ``settings.steps``). The first ``transient`` (default
-    ``settings.transient``, or a tenth of the run) is discarded. ``dt_renorm``: time between
-    re-orthonormalisations of a flow; ``dt``: a fixed RK4 step instead of the adaptive method.
+    Fixed length: flows run from ``settings.t_start`` to ``t_end`` (default ``settings.t_end``); maps
+    for ``steps`` iterations (default ``settings.steps``). The first ``transient`` (default
+    ``settings.transient``, or a tenth of the run) is discarded. ``converge``: the run goes on in
+    blocks until the standard error of every exponent (the spread of at least MIN_BLOCKS block
+    averages over the square root of their number) is at most ``rtol`` |exponent| + ``atol``, or
+    until the cap (``cap`` time units or iterations after the transient, default FLOW_CAP / MAP_CAP;
+    or ``t_end`` / ``steps`` when given) - ``converged`` says which; the transient then defaults to the system's slow time scale (at least 200) or 1000
+    iterations. ``dt_renorm``: time between re-orthonormalisations of a flow; ``dt``: a fixed RK4 step
+    instead of the adaptive method.
     """
     system.refuse_delays("the Lyapunov spectrum (QR)")
     settings = settings or RunSettings()
     p = system.param_values.copy() if p is None else np.asarray(p, dtype=float)
     u = system.initial.copy() if u0 is None else np.asarray(u0, dtype=float)
+    if converge:
+        if not (rtol >= 0 and atol >= 0 and rtol + atol > 0):
+            raise ValueError("the convergence tolerance must be positive")
+        if transient is None and settings.transient <= 0:
+            transient = MAP_BLOCK if system.kind == MAP else time_scale(system, p, u).window(periods=1.0)
+        lead = transient if transient is not None else settings.transient
+        if system.kind == MAP and steps is None:
+            steps = int(lead) + int(MAP_CAP if cap is None else math.ceil(cap))
+        if system.kind != MAP and t_end is None:
+            t_end = settings.t_start + float(lead) + float(FLOW_CAP if cap is None else cap)
     start, end, transient = _span(system, settings, t_end, steps, transient)
+    tolerance = (float(rtol), float(atol)) if converge else None
     if saltation_refusal(system, "Lyapunov exponents"):
         return _failed("flow", QR, REFUSED, saltation_refusal(system, "Lyapunov exponents"), system.n_states)
     if system.kind == MAP:
-        result = _map_spectrum(system, p, u, end, transient, settings.bound, Reporter(progress, cancel))
+        result = _map_spectrum(system, p, u, end, transient, settings.bound, Reporter(progress, cancel), tolerance)
     else:
-        result = _flow_spectrum(system, p, u, start, end, transient, dt_renorm, dt, settings, cancel, progress)
+        result = _flow_spectrum(system, p, u, start, end, transient, dt_renorm, dt, settings, cancel, progress,
+                                tolerance)
     if system.nonsmooth:
         result.warnings.insert(0, NONSMOOTH_NOTE.format(names=", ".join(f"{f}()" for f in system.nonsmooth)))
+    if system.kind != MAP and not system.autonomous and result.kaplan_yorke_dimension is not None \
+            and math.isfinite(result.kaplan_yorke_dimension):
+        extended = kaplan_yorke_dimension(np.append(result.exponents, 0.0))
+        result.warnings.append(f"forced flow: the exponents and the Kaplan-Yorke dimension "
+                               f"{result.kaplan_yorke_dimension:.4g} are those of the {system.n_states} states; "
+                               f"counting the direction of time as a state (one more zero exponent) the "
+                               f"dimension is {extended:.4g}")
     return result
 
 
@@ -178,7 +214,7 @@ def _failed(kind, method, status, message, n, **extra):
                           status=status, message=message, **extra)
 
 
-def _flow_spectrum(system, p, u, t0, t1, transient, dt_renorm, dt, settings, cancel, progress):
+def _flow_spectrum(system, p, u, t0, t1, transient, dt_renorm, dt, settings, cancel, progress, tolerance=None):
     n = system.n_states
     report = Reporter(progress, cancel)
     u, samples, times, failed = _transient_flow(system, settings, u, p, t0, transient, cancel)
@@ -197,10 +233,20 @@ def _flow_spectrum(system, p, u, t0, t1, transient, dt_renorm, dt, settings, can
         limits.check_steps(limits.steps_of(t1 - ts, step), f"a run over {t1 - ts:g} time units with dt = {step:g}")
     if dt is not None and dt_renorm is None:
         interval = RENORM_STEPS * step
-    engine = compiled.engine_for_work(system, (t1 - ts) * 1500 * (n + 1) * max(1.0, n / 3))
-    with np.errstate(all="ignore"):
-        out = drivers.flow_tangent(engine, method, ts, t1, ts, u, np.eye(n), p, interval, settings.rtol,
-                                   settings.atol, settings.max_step, step, settings.bound, MAX_RUNNING, report)
+    work = (t1 - ts) if tolerance is None else min(t1 - ts, 2000.0)
+    engine = compiled.engine_for_work(system, work * 1500 * (n + 1) * max(1.0, n / 3))
+
+    def block(t, t_next, u, V, rows, part):
+        with np.errstate(all="ignore"):
+            return drivers.flow_tangent(engine, method, t, t_next, t, u, V, p, interval, settings.rtol,
+                                        settings.atol, settings.max_step, step, settings.bound, rows, part)
+
+    if tolerance is None:
+        out = block(ts, t1, u, np.eye(n), MAX_RUNNING, report)
+        blocks = None
+    else:
+        length = min(max(100 * interval, (t1 - ts) / 2000), (t1 - ts) / MIN_BLOCKS)
+        out, blocks = _in_blocks(block, ts, t1, length, u, n, tolerance, report)
     status, message = status_word(out.code), ""
     if out.code != 0:
         where = f"{system.time_name} = {out.t:.6g}"
@@ -209,14 +255,93 @@ def _flow_spectrum(system, p, u, t0, t1, transient, dt_renorm, dt, settings, can
                                  f"an expression is undefined (or the tangent vectors collapsed) near {where}"),
                    "step_failed": out.note or f"the step size collapsed near {where}; the system may be stiff",
                    "cancelled": "cancelled"}[status]
-    return _sorted_result(out.sums, out.rows, out.row_t, "flow", QR, out.averaged,
-                          dt=step if method == "rk4" else None, renorm_interval=interval,
-                          status=status, message=message)
+    result = _sorted_result(out.sums, out.rows, out.row_t, "flow", QR, out.averaged,
+                            dt=step if method == "rk4" else None, renorm_interval=interval,
+                            status=status, message=message)
+    return _with_uncertainty(result, out, ts, blocks, tolerance, "time units")
 
 
-def _map_spectrum(system, p, u, steps, transient, bound, report):
+def _in_blocks(block, ts, t_cap, length, u, n, tolerance, report):
+    """Runs of ``block(t, t_next, u, V, rows, report)`` one after the other from ``ts``, tangent
+    vectors carried over, until the block averages settle to ``tolerance`` or ``t_cap``.
+    Returns (one TangentOutput for the whole span, the block averages (B, n))."""
+    rtol, atol = tolerance
+    V, t = np.eye(n), ts
+    sums, averaged = np.zeros(n), 0.0
+    rows, row_t, averages = [], [], []
+    per_block = 50
+    out = None
+    while (t - t_cap) * 1.0 < 0:
+        t_next = min(t + length, t_cap)
+        if t_cap - t_next < 1e-9 * length:
+            t_next = t_cap
+        out = block(t, t_next, u, V, per_block, report.part((t - ts) / (t_cap - ts), (t_next - t) / (t_cap - ts)))
+        if out.row_t.size:  # the running estimates over the whole span so far
+            spent = out.row_t - t
+            rows.append((sums + out.rows * spent[:, None]) / (averaged + spent)[:, None])
+            row_t.append(out.row_t)
+        if out.code != 0:
+            break
+        averages.append(out.sums / out.averaged)
+        sums, averaged = sums + out.sums, averaged + out.averaged
+        u, V, t = out.y, out.V, t_next
+        if len(averages) >= MIN_BLOCKS:
+            values = np.asarray(averages)
+            error = np.std(values, axis=0, ddof=1) / math.sqrt(len(values))
+            if np.all(error <= rtol * np.abs(sums / averaged) + atol):
+                break
+    rows = np.concatenate(rows) if rows else np.empty((0, n))
+    row_t = np.concatenate(row_t) if row_t else np.empty(0)
+    keep = np.unique(np.append(np.arange(0, row_t.size, _stride(row_t.size)), row_t.size - 1)) if row_t.size else []
+    whole = drivers.TangentOutput(sums, averaged, rows[keep], row_t[keep], out.code, out.t, out.y,
+                                  getattr(out, "note", ""), V=out.V)
+    return whole, np.asarray(averages).reshape(-1, n)
+
+
+def _with_uncertainty(result, out, ts, blocks, tolerance, unit):
+    """The standard error of each exponent, and for a converging run whether it settled, in words."""
+    order = np.argsort(-(np.asarray(out.sums) / out.averaged if out.averaged > 0 else np.zeros(len(out.sums))),
+                       kind="stable")
+    if blocks is None:  # a fixed length: blocks read off the running estimates (ten of them)
+        blocks = _blocks_from_running(np.asarray(out.rows), np.asarray(out.row_t), ts)
+    else:
+        blocks = np.asarray(blocks)
+    if blocks.shape[0] >= 2:
+        result.uncertainty = (np.std(blocks, axis=0, ddof=1) / math.sqrt(blocks.shape[0]))[order]
+        result.blocks = int(blocks.shape[0])
+    result.tolerance = tolerance
+    if tolerance is not None and result.ok:
+        rtol, atol = tolerance
+        settled = result.uncertainty is not None and result.blocks >= MIN_BLOCKS and bool(
+            np.all(result.uncertainty <= rtol * np.abs(result.exponents) + atol))
+        result.converged = settled
+        if not settled:
+            result.warnings.append(f"the cap of {result.averaged_over:g} {unit} came before the estimates settled "
+                                   f"to {rtol:g} x |exponent| + {atol:g}; a longer cap (--cap) or a looser "
+                                   "tolerance (--tolerance) ends it")
+    elif tolerance is None and result.ok and result.uncertainty is not None \
+            and np.any(result.uncertainty > CONVERGE_RTOL * np.abs(result.exponents) + CONVERGE_ATOL):
+        result.warnings.append(f"after {result.averaged_over:g} {unit} the estimates still wander by more than "
+                               f"{CONVERGE_RTOL:g} x |exponent| + {CONVERGE_ATOL:g} (see the uncertainty); "
+                               "a longer run, or a run that stops when they settle, narrows them")
+    return result
+
+
+def _blocks_from_running(running, times, ts, count: int = 10):
+    """Block averages of a fixed-length run from its running (cumulative) estimates: ``count`` blocks."""
+    if running.shape[0] < count + 1:
+        return np.empty((0, running.shape[1] if running.ndim == 2 else 0))
+    spent = times - ts
+    totals = running * spent[:, None]
+    picks = np.unique(np.linspace(0, times.size - 1, count + 1).round().astype(int))
+    spans = np.diff(spent[picks])
+    good = spans > 0
+    return (np.diff(totals[picks], axis=0)[good] / spans[good, None])
+
+
+def _map_spectrum(system, p, u, steps, transient, bound, report, tolerance=None):
     n = system.n_states
-    engine = compiled.engine_for_work(system, steps * (n + 1) * max(1.0, n / 3))
+    engine = compiled.engine_for_work(system, min(steps, 10**6) * (n + 1) * max(1.0, n / 3))
     with np.errstate(all="ignore"):
         orbit, code = drivers.map_run(engine, 0, transient, u, p, bound)
         if code:
@@ -224,8 +349,16 @@ def _map_spectrum(system, p, u, steps, transient, bound, report):
             message = (f"the orbit escapes to infinity during the transient (n = {k + 1})" if code == 1 else
                        system.explain_undefined(k, orbit[:, -1], p) or f"undefined value at n = {k}")
             return _failed("map", QR, status_word(code), message, n)
-        out = drivers.map_tangent(engine, transient, steps, transient, orbit[:, -1], np.eye(n), p, bound,
-                                  MAX_RUNNING, report)
+
+        def block(k0, k1, y, V, rows, part):
+            return drivers.map_tangent(engine, int(k0), int(k1), int(k0), y, V, p, bound, rows, part)
+
+        if tolerance is None:
+            out = drivers.map_tangent(engine, transient, steps, transient, orbit[:, -1], np.eye(n), p, bound,
+                                      MAX_RUNNING, report)
+            blocks = None
+        else:
+            out, blocks = _in_blocks(block, transient, steps, MAP_BLOCK, orbit[:, -1], n, tolerance, report)
     status, message, warnings = status_word(out.code), "", []
     k = int(out.t)
     if status == "cancelled":
@@ -240,8 +373,9 @@ def _map_spectrum(system, p, u, steps, transient, bound, report):
             message = system.explain_undefined(k, out.y, p) or f"undefined value at n = {k}"
     if status != "diverged" and _defined(system, k, out.y, p) and np.array_equal(system.rhs(k, out.y, p), out.y):
         warnings.append("the orbit sits exactly on a fixed point (round-off); the exponents are that fixed point's")
-    return _sorted_result(out.sums, out.rows, out.row_t, "map", QR, out.averaged, status=status,
-                          message=message, warnings=warnings)
+    result = _sorted_result(out.sums, out.rows, out.row_t, "map", QR, out.averaged, status=status,
+                            message=message, warnings=warnings)
+    return _with_uncertainty(result, out, transient, blocks, tolerance, "iterations")
 
 
 def _defined(system, k, y, p) -> bool:

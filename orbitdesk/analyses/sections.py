@@ -18,6 +18,7 @@ from orbitdesk.engine.runs import CANCELLED, OK, Event, RunSettings, simulate
 from orbitdesk.engine.progress import Cancelled, Reporter
 from orbitdesk.system.compiled_system import MAP, CompiledSystem, lambdify
 from orbitdesk.engine import limits
+from orbitdesk.analyses.time_scales import MIN_WINDOW, time_scale
 
 DIRECTIONS = ("up", "down", "both")
 TOUCH_FACTOR = 10.0  # a pass nearer the plane than this many tolerances counts as a touch
@@ -185,8 +186,10 @@ def plane_section(system: CompiledSystem, p=None, u0=None, coordinate: str = "",
 
     ``coordinate`` is a state (``x'`` included) or a derived quantity. ``direction``: "up"
     (coordinate increasing), "down" or "both". The start itself is never a crossing. The flow is
-    integrated in chunks until enough crossings are found or ``t_max`` (default: 100 run lengths
-    of ``settings``) is passed; the search also gives up after one run length with no crossing.
+    integrated in chunks until enough crossings are found or ``t_max`` (default: 100 search spans)
+    is passed; the search also gives up after one span with no crossing. The span is the longer of
+    the run length of ``settings`` and three slow time scales of the system (time_scales.py: the
+    eigenvalues at the equilibrium nearest the start, the forcing period).
     """
     if system.kind == MAP:
         raise ValueError("hyperplane sections are for flows; a map's orbit is already a sequence of points")
@@ -211,7 +214,10 @@ def plane_section(system: CompiledSystem, p=None, u0=None, coordinate: str = "",
         event = Event.on_plane(np.eye(system.n_states)[system.states.index(coordinate)], value)
     else:
         event = Event(g, 0, rate=rate)
-    span = abs(settings.t_end - settings.t_start) or 100.0
+    scale = time_scale(system, p, u)
+    span = max(abs(settings.t_end - settings.t_start) or 100.0, scale.window())
+    why = (f"three times the slowest time scale {scale.slow:.4g} of {scale.source}" if span > abs(
+        settings.t_end - settings.t_start) else "the run length")
     t = float(settings.t_start)
     report = Reporter(progress, cancel)
     names = list(system.states)
@@ -231,6 +237,9 @@ def plane_section(system: CompiledSystem, p=None, u0=None, coordinate: str = "",
         u, t, p = run.final_state.copy(), t + transient, run.end_params(p)
     t_begin = t
     t_limit = t_begin + 100.0 * span if t_max is None else max(float(t_max), t_begin)
+    quiet = span if t_max is None else t_limit - t_begin  # a given duration is searched to its end
+    if t_max is not None:
+        why = "the duration given"
     raw_t, raw_u, raw_r = [], [], []
     keep, touch = [], []
     chunk = 0.1 * span  # grows to what the crossing rate so far says is left
@@ -253,9 +262,10 @@ def plane_section(system: CompiledSystem, p=None, u0=None, coordinate: str = "",
             status, message = run.status, run.message
             break
         u, t, p = run.final_state.copy(), float(run.time[-1]), run.end_params(p)
-        if not raw_t and t - t_begin >= span:
-            message = (f"no crossing of {coordinate} = {value:g} in {t - t_begin:g} time units "
-                       "after the transient: the plane may miss the orbit")
+        if not raw_t and t - t_begin >= quiet:
+            message = (f"no crossing of {coordinate} = {value:g} in {t - t_begin:.4g} time units after the "
+                       f"transient (the search gives up after {quiet:.4g} without a crossing: {why}); a longer "
+                       "duration (--duration) searches further, or the orbit may stay on one side of the plane")
             break
         found = len(keep)
         try:
@@ -269,7 +279,9 @@ def plane_section(system: CompiledSystem, p=None, u0=None, coordinate: str = "",
     keep = keep[:count]
     touches = sum(touch[:count])
     if status == OK and not message and len(keep) < count:
-        message = f"found {len(keep)} of {count} crossings by {system.time_name} = {t:.6g}"
+        message = (f"found {len(keep)} of {count} crossings by {system.time_name} = {t:.6g}, the end of the "
+                   f"search ({t_limit - t_begin:.4g} time units after the transient); a longer duration "
+                   "(--duration) finds more")
     elif status == OK and not message and touches:
         message = f"{touches} pass(es) only touched the plane; each is recorded once"
     return result([raw_t[k] for k in keep], [raw_u[k] for k in keep], status, message, touches)

@@ -178,6 +178,28 @@ def parse_axis(text: str, option: str, names, what: str):
     return name, np.linspace(lo, hi, count)
 
 
+def add_method_option(parser):
+    """``--method``: the integration method of an analysis (default: the default method, or the stiff one
+    when a probe run shows the system stiff)."""
+    from orbitdesk.engine.methods import NAMES
+
+    parser.add_argument("--method", choices=NAMES,
+                        help="integration method (default: the project's, else the default one or, when a short "
+                             "probe run shows the system stiff, the stiff one)")
+
+
+def method_for(system, p, u0, settings, args, window):
+    """The method an analysis integrates with: --method, a method the project sets, else the default one
+    or the stiff one when time_scales.choose_method finds the system stiff; with the note saying why."""
+    from orbitdesk.analyses.time_scales import choose_method
+    from orbitdesk.engine.methods import DEFAULT
+
+    if getattr(args, "method", None) or settings.method != DEFAULT:
+        return settings.method, ""
+    choice = choose_method(system, p, u0, window)
+    return choice.method, choice.note
+
+
 def add_value_options(parser, initial=True):
     parser.add_argument("--set", action="append", metavar="NAME=VALUE", help="set a parameter (repeatable)")
     if initial:

@@ -2,11 +2,12 @@
 cycle of a map (``--period K``)."""
 
 from orbitdesk.analyses.cycles import CycleError, find_cycle, find_map_cycle
+from orbitdesk.engine.methods import DEFAULT
 from orbitdesk.engine.progress import Cancelled
 from orbitdesk.system.compiled_system import MAP
 
-from orbitdesk.cli.common import (add_outputs, CommandError, open_model, parse_guess, parse_positive,
-                                  print_json, stderr_progress, write_csv)
+from orbitdesk.cli.common import (add_method_option, add_outputs, CommandError, open_model, parse_guess, parse_number,
+                                  parse_positive, print_json, stderr_progress, write_csv)
 
 
 def register(sub):
@@ -19,6 +20,10 @@ def register(sub):
     parser.add_argument("--forcing-multiple", type=int, metavar="K",
                         help="the orbit's period in forcing periods (default: found from a transient run)")
     parser.add_argument("--period", type=int, metavar="K", help="period of a map cycle (maps only)")
+    parser.add_argument("--transient", metavar="T",
+                        help="flows: the run before the search and the longest wait for a return (default: three "
+                             "slow time scales of the system, at least 200)")
+    add_method_option(parser)
     add_outputs(parser, run, "print the result as JSON",
                 csv_help="write one period of the orbit (flows) or the points (maps)")
 
@@ -30,7 +35,7 @@ def run(args) -> int:
     try:
         if system.kind == MAP:
             return _map_cycle(system, p, u0, guess, args, progress)
-        return _flow_cycle(system, p, u0, guess, args, progress)
+        return _flow_cycle(system, source, p, u0, guess, args, progress)
     except CycleError as err:
         raise CommandError(f"no cycle found: {err}") from None
     except ValueError as err:
@@ -44,12 +49,19 @@ def _map_cycle(system, p, u0, guess, args, progress) -> int:
                           ("--forcing-multiple", args.forcing_multiple)):
         if value is not None:
             raise CommandError(f"{option} applies to flows; a map's cycle has a whole period: use --period K")
+    if args.method is not None:
+        raise CommandError("--method applies to flows; a map is iterated, not integrated")
     if args.period is None:
         raise CommandError("a map needs the period of the cycle: --period K")
+    transient = 1000
+    if args.transient is not None:
+        transient = parse_number(args.transient, "--transient")
+        if transient < 0 or transient != int(transient):
+            raise CommandError("--transient of a map is a whole number of iterations, at least 0")
     if args.period < 1:
         raise CommandError("--period must be at least 1")
     cycle = find_map_cycle(system, p, args.period, guess=system.initial_vector(guess) if guess else None,
-                           initial=u0, progress=progress)
+                           initial=u0, progress=progress, transient=int(transient))
     if args.csv:
         write_csv(args.csv, ["k", *system.states], [list(range(cycle.period)), *cycle.points])
     if args.json or not args.csv:
@@ -65,7 +77,7 @@ def _map_cycle(system, p, u0, guess, args, progress) -> int:
     return 0
 
 
-def _flow_cycle(system, p, u0, guess, args, progress) -> int:
+def _flow_cycle(system, source, p, u0, guess, args, progress) -> int:
     if args.period is not None:
         raise CommandError("--period K is for maps; for a flow give --period-guess T")
     period_guess = parse_positive(args.period_guess, "--period-guess") if args.period_guess is not None else None
@@ -75,8 +87,13 @@ def _flow_cycle(system, p, u0, guess, args, progress) -> int:
     if not system.autonomous_at(p) and period_guess is not None:
         raise CommandError("this flow depends on time: its period is a multiple of the forcing period; "
                            "give --forcing-period (and --forcing-multiple) instead of --period-guess")
+    transient = parse_positive(args.transient, "--transient") if args.transient is not None else None
+    method = args.method
+    if method is None and source.project is not None and source.project.solver.method != DEFAULT:
+        method = source.project.solver.method
     cycle = find_cycle(system, p, guess=system.initial_vector(guess) if guess else None, period_guess=period_guess,
-                       forcing_period=forcing, forcing_multiple=args.forcing_multiple, initial=u0, progress=progress)
+                       forcing_period=forcing, forcing_multiple=args.forcing_multiple, initial=u0, progress=progress,
+                       transient=transient, method=method)
     if args.csv:
         write_csv(args.csv, [system.time_name, *system.states], [cycle.time, *cycle.orbit])
     if args.json:

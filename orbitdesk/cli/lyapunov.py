@@ -2,7 +2,8 @@
 
 import sys
 
-from orbitdesk.analyses.lyapunov import largest_lyapunov_two_trajectory, lyapunov_spectrum
+from orbitdesk.analyses.lyapunov import (CONVERGE_ATOL, CONVERGE_RTOL, FLOW_CAP, MAP_CAP,
+                                         largest_lyapunov_two_trajectory, lyapunov_spectrum)
 from orbitdesk.system.compiled_system import MAP
 
 from orbitdesk.cli.common import add_outputs, CommandError, load_system, parse_number, print_json, read_source, \
@@ -16,7 +17,15 @@ def register(sub):
     span = parser.add_mutually_exclusive_group()
     span.add_argument("--t-end", type=str, metavar="T", help="end time of a flow")
     span.add_argument("--steps", type=int, metavar="N", help="iterations of a map")
-    parser.add_argument("--transient", metavar="T", help="time (or iterations) discarded first (default: a tenth)")
+    parser.add_argument("--transient", metavar="T",
+                        help="time (or iterations) discarded first (default: the system's slow time scale, at "
+                             "least 200, or 1000 iterations; with --t-end/--steps a tenth of the run)")
+    parser.add_argument("--tolerance", metavar="R",
+                        help="without --t-end/--steps the run stops when each exponent's standard error is at "
+                             f"most R |exponent| + {CONVERGE_ATOL:g} (default R = {CONVERGE_RTOL:g})")
+    parser.add_argument("--cap", metavar="T",
+                        help=f"the longest averaging when stopping on convergence (default {FLOW_CAP:g} time "
+                             f"units or {MAP_CAP:g} iterations)")
     parser.add_argument("--two-trajectory", action="store_true",
                         help="only the largest exponent, from two nearby trajectories (always for delay models)")
     add_outputs(parser, run)
@@ -36,11 +45,29 @@ def run(args) -> int:
         transient = parse_number(args.transient, "--transient")
         if transient < 0:
             raise CommandError("--transient must not be negative")
+    fixed = args.t_end is not None or args.steps is not None
+    if fixed and (args.tolerance is not None or args.cap is not None):
+        raise CommandError("--tolerance and --cap apply when the run stops on convergence (without --t-end/--steps)")
+    if args.two_trajectory and (args.tolerance is not None or args.cap is not None):
+        raise CommandError("--tolerance and --cap apply to the spectrum; --two-trajectory runs a fixed length")
+    extra = {}
+    two = args.two_trajectory or bool(system.delays)  # delay models: two nearby histories (no spectrum)
+    if not fixed and not two:
+        extra["converge"] = True
+        if args.tolerance is not None:
+            extra["rtol"] = parse_number(args.tolerance, "--tolerance")
+            if not extra["rtol"] > 0:
+                raise CommandError("--tolerance must be positive")
+        if args.cap is not None:
+            cap = parse_number(args.cap, "--cap")
+            if not cap > 0:
+                raise CommandError("--cap must be positive")
+            extra["cap"] = cap
     # a delay model: the largest exponent from two nearby histories (the spectrum does not handle delays)
-    compute = largest_lyapunov_two_trajectory if args.two_trajectory or system.delays else lyapunov_spectrum
+    compute = largest_lyapunov_two_trajectory if two else lyapunov_spectrum
     progress = stderr_progress("lyapunov")
     try:
-        result = compute(system, p, u0, transient=transient, settings=settings, progress=progress)
+        result = compute(system, p, u0, transient=transient, settings=settings, progress=progress, **extra)
     except ValueError as err:
         raise CommandError(str(err)) from None
     if progress is not None:
@@ -48,9 +75,19 @@ def run(args) -> int:
     if args.json:
         print_json({"exponents": result.exponents, "kaplan_yorke_dimension": result.kaplan_yorke_dimension,
                     "method": result.method, "warnings": result.warnings, "status": result.status,
-                    "message": result.message, "averaged_over": result.averaged_over, "dt": result.dt})
+                    "message": result.message, "averaged_over": result.averaged_over, "dt": result.dt,
+                    "uncertainty": result.uncertainty, "blocks": result.blocks, "converged": result.converged,
+                    "tolerance": None if result.tolerance is None else
+                    {"rtol": result.tolerance[0], "atol": result.tolerance[1]}})
     else:
         print("exponents: " + ", ".join(f"{v:.6g}" for v in result.exponents))
+        if result.uncertainty is not None:
+            print("uncertainty (standard error of " + f"{result.blocks} block averages): "
+                  + ", ".join(f"±{v:.2g}" for v in result.uncertainty))
+        if result.converged is not None:
+            rtol, atol = result.tolerance
+            print(f"settled to {rtol:g} x |exponent| + {atol:g}" if result.converged
+                  else "stopped at the cap before settling")
         if result.kaplan_yorke_dimension is not None:
             print(f"Kaplan-Yorke dimension: {result.kaplan_yorke_dimension:.6g}")
         unit = "iterations" if system.kind == MAP else "time units"

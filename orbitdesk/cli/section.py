@@ -7,8 +7,8 @@ import sys
 from orbitdesk.analyses.sections import DIRECTIONS, plane_section, strobe_section
 from orbitdesk.system.compiled_system import MAP
 
-from orbitdesk.cli.common import (add_outputs, CommandError, load_system, parse_assignments, parse_number, print_json,
-                     read_source, stderr_progress, values_for, write_csv)
+from orbitdesk.cli.common import (add_method_option, add_outputs, CommandError, method_for, load_system, parse_assignments,
+                                  parse_number, print_json, read_source, stderr_progress, values_for, write_csv)
 from orbitdesk.cli.run import settings_for
 
 
@@ -22,6 +22,10 @@ def register(sub):
     parser.add_argument("--direction", choices=DIRECTIONS, default="up", help="crossing direction (default up)")
     parser.add_argument("--count", type=int, default=100, metavar="N", help="number of points (default 100)")
     parser.add_argument("--transient", metavar="T", help="time discarded first (strobe: rounded up to whole periods)")
+    parser.add_argument("--duration", metavar="T",
+                        help="plane: the longest search after the transient (default: 100 spans, a span being the "
+                             "longer of the run length and three slow time scales of the system)")
+    add_method_option(parser)
     add_outputs(parser, run, "print the points as JSON", csv_help="write the points as CSV")
 
 
@@ -40,14 +44,26 @@ def run(args) -> int:
         transient = parse_number(args.transient, "--transient")
         if transient < 0:
             raise CommandError("--transient must not be negative")
+    duration = None
+    if args.duration is not None:
+        if args.plane is None:
+            raise CommandError("--duration applies to --plane sections (a strobe takes --count periods)")
+        duration = parse_number(args.duration, "--duration")
+        if not duration > 0:
+            raise CommandError("--duration must be positive")
+    start = system.initial if u0 is None else u0
+    window = max(abs(settings.t_end - settings.t_start), transient + (duration or 0.0))
+    method, method_note = method_for(system, p, start, settings, args, window)
+    settings = settings.replace(method=method)
     progress = stderr_progress("section")
     try:
         if args.plane is not None:
             if args.phase is not None:
                 raise CommandError("--phase applies to --strobe sections")
             ((name, value),) = _plane(args.plane, system).items()
+            t_max = None if duration is None else settings.t_start + transient + duration
             result = plane_section(system, p, u0, name, value, args.direction, args.count, transient, settings,
-                                   progress=progress)
+                                   progress=progress, t_max=t_max)
         else:
             if args.direction != "up":
                 raise CommandError("--direction applies to --plane sections")
@@ -61,6 +77,8 @@ def run(args) -> int:
         raise CommandError(str(err)) from None
     if progress is not None:
         progress(1.0)
+    if method_note:
+        result.warnings.insert(0, method_note)
     if args.csv:
         header = [*system.states, "t"]
         write_csv(args.csv, header, [*result.points, result.times])

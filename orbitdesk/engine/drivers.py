@@ -187,6 +187,7 @@ class TangentOutput:
     t: float  # where it ended
     y: np.ndarray
     note: str = ""  # why the run stopped early, when the code alone does not say
+    V: np.ndarray | None = None  # (n, m) the tangent vectors where it ended (a following run starts from them)
 
 
 def flow_tangent(engine, name, t0, t1, keep_from, u0, V0, p, interval, rtol=1e-9, atol=1e-12,
@@ -223,7 +224,8 @@ def flow_tangent(engine, name, t0, t1, keep_from, u0, V0, p, interval, rtol=1e-9
                 break
     r = int(st[9])
     return TangentOutput(sums, float(st[10]), rows[:r].copy(), row_t[:r].copy(), int(code), float(st[0]), z[:n].copy(),
-                         note)
+                         note,
+                         V=z[n:].reshape(n, m).copy())
 
 
 def map_tangent(engine, n0, n_end, keep_from, u0, V0, p, bound=1e10, max_rows=5000, report=None) -> TangentOutput:
@@ -248,7 +250,8 @@ def map_tangent(engine, n0, n_end, keep_from, u0, V0, p, bound=1e10, max_rows=50
                 code = C_CANCELLED
                 break
     r = int(st[9])
-    return TangentOutput(sums, float(st[8]), rows[:r].copy(), row_t[:r].copy(), int(code), float(st[0]), z[:n].copy())
+    return TangentOutput(sums, float(st[8]), rows[:r].copy(), row_t[:r].copy(), int(code), float(st[0]), z[:n].copy(),
+                         V=z[n:].reshape(n, m).copy())
 
 
 @dataclass

@@ -209,3 +209,42 @@ def test_forced_duffing_sum_is_minus_delta():
     result = lyapunov_spectrum(system, t_end=1000, transient=100)
     assert result.exponents.sum() == pytest.approx(-0.3, abs=1e-3)
     assert result.exponents[0] > 0.05
+
+
+# ---------------------------------------------------------------- stopping on convergence
+def test_lorenz_converges_to_sprott_within_its_stated_uncertainty():
+    # Sprott (2003): 0.9056, 0, -14.5723; the run stops when each standard error is within 1% + 0.002
+    result = lyapunov_spectrum(compile_model(LORENZ), converge=True)
+    assert result.ok and result.converged is True and result.blocks >= 10
+    assert np.all(result.uncertainty <= 0.01 * np.abs(result.exponents) + 0.002 + 1e-12)
+    for value, published in zip(result.exponents, (0.9056, 0.0, -14.5723)):
+        assert abs(value - published) <= 0.02 * abs(published) + 0.01
+    assert result.largest == pytest.approx(0.9056, abs=4 * result.uncertainty[0] + 0.005)
+    assert result.running[-1] == pytest.approx(result.exponents)
+
+
+def test_henon_converges_to_the_published_exponents():
+    # Henon map a = 1.4, b = 0.3: 0.419 and -1.62 (Sprott 2003); their sum is ln b exactly (closed form)
+    result = lyapunov_spectrum(compile_model(HENON), converge=True)
+    assert result.converged is True
+    assert result.exponents[0] == pytest.approx(0.419, abs=max(4 * result.uncertainty[0], 0.006))
+    assert result.exponents[1] == pytest.approx(-1.62, abs=0.01)
+    assert result.exponents.sum() == pytest.approx(math.log(0.3), abs=1e-9)
+
+
+def test_a_cap_before_convergence_is_said():
+    result = lyapunov_spectrum(compile_model(LORENZ), converge=True, rtol=1e-6, atol=1e-6, cap=300.0)
+    assert result.converged is False
+    assert result.averaged_over == pytest.approx(300.0)
+    assert any("cap of 300" in w and "--cap" in w for w in result.warnings)
+
+
+def test_forced_flow_states_its_kaplan_yorke_convention():
+    # the forced Duffing oscillator (Ueda's chaotic regime x'' + 0.05 x' + x^3 = 7.5 cos t)
+    system = compile_model("x'' = -0.05*x' - x^3 + 7.5*cos(t)\nx(0) = 3\n")
+    result = lyapunov_spectrum(system, t_end=600, transient=100)
+    assert result.ok
+    note = [w for w in result.warnings if "forced flow" in w]
+    assert note and "direction of time" in note[0]
+    extended = kaplan_yorke_dimension(np.append(result.exponents, 0.0))
+    assert f"{extended:.4g}" in note[0]

@@ -1,0 +1,117 @@
+"""Time scales read from the system, and the choice of method, for analyses that integrate for a while.
+
+Cycles, sections and spectra need a window long enough for the flow to settle and to come round.
+A fixed number of time units is wrong for a system whose period is 1000; the window is read from the
+system instead: the eigenvalues of the Jacobian at the equilibrium nearest the start (found by
+Newton from it; the Jacobian at the start itself when none is near), the forcing period of a forced
+flow, and the return times an analysis observes. The method: an explicit run that stability holds
+back on a long window is handed to the stiff method (``choose_method``).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from orbitdesk.engine.methods import DEFAULT, method as method_named
+from orbitdesk.engine.runs import RunSettings, simulate
+from orbitdesk.engine.stiff import STIFF_STEPS, looks_stiff, spectral_radius
+from orbitdesk.system.compiled_system import CompiledSystem
+
+MIN_WINDOW = 200.0  # the shortest settling window of any analysis (time units)
+MAX_WINDOW = 1e7
+
+
+@dataclass
+class TimeScale:
+    slow: float  # the slowest time scale (a period 2 pi/|Im lambda| or a relaxation time 1/|Re lambda|)
+    fast: float  # the fastest (1/|lambda| largest)
+    source: str  # where it was read, in words
+
+    def window(self, periods: float = 3.0) -> float:
+        """A settling window: ``periods`` slow time scales, at least MIN_WINDOW."""
+        return float(min(max(MIN_WINDOW, periods * self.slow), MAX_WINDOW))
+
+
+def time_scale(system: CompiledSystem, p, u) -> TimeScale:
+    """The slow and fast time scales near ``u``: the eigenvalues at the equilibrium Newton reaches from
+    ``u`` within a few steps (it must lie within the size of ``u`` plus one), else the Jacobian at ``u``."""
+    p = np.asarray(p, dtype=float)
+    u = np.asarray(u, dtype=float)
+    point, source = _nearest_equilibrium(system, p, u)
+    try:
+        values = np.linalg.eigvals(system.jac(0.0, point, p))
+    except (ArithmeticError, np.linalg.LinAlgError, ValueError):
+        return TimeScale(1.0, 1.0, "no Jacobian at the start: one time unit assumed")
+    times = []
+    for lam in values:
+        if not np.isfinite(lam):
+            continue
+        if abs(lam.imag) > 1e-12 * max(1.0, abs(lam)):
+            times.append(2 * math.pi / abs(lam.imag))
+        if abs(lam.real) > 1e-12 * max(1.0, float(np.max(np.abs(values)))):
+            times.append(1.0 / abs(lam.real))
+    if not times:
+        return TimeScale(1.0, 1.0, f"every eigenvalue at {source} is zero: one time unit assumed")
+    slow, fast = max(times), min(times)
+    return TimeScale(slow, fast, f"the eigenvalues at {source}")
+
+
+def _nearest_equilibrium(system, p, u):
+    x = u.copy()
+    reach = 1.0 + float(np.max(np.abs(u), initial=0.0))
+    try:
+        for _ in range(30):
+            f = system.rhs(0.0, x, p)
+            if float(np.linalg.norm(f)) <= 1e-10 * max(1.0, float(np.linalg.norm(x))):
+                if float(np.max(np.abs(x - u))) <= 10 * reach:
+                    where = ", ".join(f"{s} = {v:.4g}" for s, v in zip(system.states, x))
+                    return x, f"the equilibrium {where}"
+                break
+            x = x - np.linalg.solve(system.jac(0.0, x, p), f)
+            if not np.all(np.isfinite(x)):
+                break
+    except (ArithmeticError, np.linalg.LinAlgError, ValueError):
+        pass
+    return u, "the start (no equilibrium found near it)"
+
+
+@dataclass
+class MethodChoice:
+    method: str
+    note: str = ""  # why the stiff method was picked ("" when the given or default method stands)
+
+
+def choose_method(system: CompiledSystem, p, u0, window: float, method: str | None = None,
+                  t0: float = 0.0, cancel=None) -> MethodChoice:
+    """The method for an analysis integrating about ``window`` time units from ``u0``.
+
+    A method given stands. Otherwise the default (explicit) method runs a probe of at most 2000
+    steps' worth at the fastest rate near the start; if stability held its step back
+    (engine/stiff.py ``looks_stiff``) and the whole window would take more than STIFF_STEPS steps, the
+    stiff method is picked and the note says why.
+    """
+    if method is not None:
+        method_named(method)  # ValueError naming the choices
+        return MethodChoice(method)
+    p = np.asarray(p, dtype=float)
+    u0 = np.asarray(u0, dtype=float)
+    rate = spectral_radius(system, p, u0[:, None])
+    probe = float(window) if rate <= 0 else min(float(window), 2000.0 / rate)
+    run = simulate(system, RunSettings(method=DEFAULT, t_start=t0, t_end=t0 + probe, samples=200), u0, p,
+                   cancel=cancel)
+    if run.status == "cancelled" or run.steps_taken == 0:
+        return MethodChoice(DEFAULT)
+    covered = max(abs(float(run.time[-1]) - t0), 1e-300)
+    needed = run.steps_taken * float(window) / covered
+    if run.status == "step_failed" or (needed > STIFF_STEPS and looks_stiff(system, p, run, min_steps=0)):
+        return MethodChoice("stiff", f"the system is stiff (the default method's step is held to "
+                                     f"{covered / max(run.steps_taken, 1):.3g} by stability near the start, "
+                                     f"about {needed:.3g} steps for {window:.4g} time units): the stiff "
+                                     "method is used")
+    return MethodChoice(DEFAULT)
+
+
+__all__ = ["TimeScale", "MethodChoice", "time_scale", "choose_method", "MIN_WINDOW"]
