@@ -55,6 +55,8 @@ class Cycle:
     iterations: int = 0
     residual: float = 0.0
     warnings: list[str] = field(default_factory=list)
+    resolution: float = 0.0  # multipliers smaller than this are zero to within the integrator's accuracy
+    stability: str = ""  # in words: stable, unstable, or neutral for a divergence-free (conservative) flow
 
     @property
     def nontrivial_multipliers(self) -> np.ndarray:
@@ -64,8 +66,11 @@ class Cycle:
 
     def to_dict(self) -> dict:
         data = {"period": self.period, "state": dict(self.state), "amplitude": dict(self.amplitude),
-                "multipliers": [{"re": float(m.real), "im": float(m.imag)} for m in self.multipliers],
-                "stable": self.stable, "warnings": list(self.warnings)}
+                "multipliers": [{"re": float(m.real), "im": float(m.imag),
+                                 "below_resolution": bool(k != self.trivial_index and abs(m) < self.resolution)}
+                                for k, m in enumerate(self.multipliers)],
+                "resolution": self.resolution, "stable": self.stable, "stability": self.stability or
+                ("stable" if self.stable else "unstable"), "warnings": list(self.warnings)}
         if self.forcing_period is not None:
             data["forcing_period"] = self.forcing_period
             data["forcing_multiple"] = self.forcing_multiple
@@ -140,6 +145,8 @@ class _Flow:
         if self.info.stiff:  # an implicit method's error control is costly below 1e-9
             self.rtol, self.atol = max(rtol, 1e-9), max(atol, 1e-11)
         self.engine = None if self.info.stiff else compiled.engine_for_work(system, 1e6)
+        self.scale = None  # the system's time scales (time_scales.TimeScale), set by find_cycle
+        self.probe = None  # the run that chose the method, when it covered the transient
 
     def rhs(self, t, u) -> np.ndarray:
         try:
@@ -250,6 +257,7 @@ def find_cycle(system: CompiledSystem, p=None, guess=None, period_guess: float |
         warnings.append(choice.note)
     flow = _Flow(system, p, rtol, atol, cancel, choice.method)
     flow.scale = scale
+    flow.probe = choice.run  # the default method's run over the whole window, when it was made
     if system.nonsmooth:
         warnings.append(NONSMOOTH_WARNING.format(names=", ".join(system.nonsmooth)))
     if system.autonomous and forcing_period is not None:
@@ -308,7 +316,10 @@ def _autonomous_cycle(system, p, flow, u_guess, start, period_guess, section, tr
     if period_guess is not None and 30 * period_guess > transient:
         transient, why = 30 * period_guess, "30 times the period guess"
     if u_guess is None:
-        run = _run(system, p, start, transient, 2, cancel, report.part(0.0, 0.3), method=flow.info.name)
+        if flow.probe is not None and flow.probe.time[-1] == transient:
+            run = flow.probe  # the probe that chose the method already ran this transient
+        else:
+            run = _run(system, p, start, transient, 2, cancel, report.part(0.0, 0.3), method=flow.info.name)
         u_ref, where = run.final_state.copy(), "the run from the initial values settles"
     else:
         u_ref, where = u_guess, "the guess is"
@@ -381,7 +392,8 @@ def _autonomous_cycle(system, p, flow, u_guess, start, period_guess, section, tr
         warnings.append("a multiplier lies on the unit circle: the cycle is at a bifurcation")
     report(0.9)
     time, orbit = flow.sample(u0, 0.0, T, samples)
-    return _cycle(system, T, u0, time, orbit, multipliers, trivial, stable, M, None, None, it, gap, warnings)
+    return _cycle(system, T, u0, time, orbit, multipliers, trivial, stable, M, None, None, it, gap, warnings,
+                  flow.rtol)
 
 
 def _travel(flow, u0, T) -> float:
@@ -459,7 +471,7 @@ def _forced_cycle(system, p, flow, u_guess, start, Tf, k_given, transient, max_i
             report(0.9)
             time, orbit = flow.sample(u0, 0.0, k * Tf, samples)
             return _cycle(system, k * Tf, u0, time, orbit, multipliers, None, stable, M, Tf, k, it, gap,
-                          warnings)
+                          warnings, flow.rtol)
     raise CycleError(f"no periodic orbit found with a period of up to {MAX_FORCING_MULTIPLE} forcing "
                      f"periods ({failure})")
 
@@ -512,11 +524,37 @@ def _sorted_multipliers(M):
     return values[np.lexsort((-values.imag, -np.abs(values)))]
 
 
-def _cycle(system, T, u0, time, orbit, multipliers, trivial, stable, M, Tf, k, it, gap, warnings) -> Cycle:
+CONSERVATIVE_NOTE = ("the flow is divergence-free (conservative): its Floquet multipliers stay on the unit "
+                     "circle and its periodic orbits come in families, so the orbit is neutral - neither "
+                     "attracting nor repelling - and nothing bifurcates here")
+
+
+def divergence_free(system: CompiledSystem) -> bool:
+    """Whether the trace of the Jacobian (the divergence of the vector field) is identically zero:
+    the flow keeps volumes, as every Hamiltonian system does."""
+    try:
+        return bool(sp.simplify(system.jacobian.trace()) == 0)
+    except (TypeError, ValueError, AttributeError):
+        return False
+
+
+def _cycle(system, T, u0, time, orbit, multipliers, trivial, stable, M, Tf, k, it, gap, warnings,
+           rtol: float = 1e-10) -> Cycle:
     amplitude = {name: float(np.ptp(orbit[i])) for i, name in enumerate(system.states)}
     state = {name: float(v) for name, v in zip(system.states, u0)}
+    # the monodromy matrix is accurate to about the tolerance times its size: smaller multipliers are noise
+    resolution = 100 * rtol * max(1.0, float(np.linalg.norm(M, 2)))
+    tiny = [j for j, m in enumerate(multipliers) if j != trivial and abs(m) < resolution]
+    if tiny:
+        warnings.append(f"{len(tiny)} Floquet multiplier(s) below the integrator's resolution (|m| < "
+                        f"{resolution:.1g}): zero to within the accuracy of the monodromy matrix (a strongly "
+                        "contracting direction); their printed values mean nothing")
+    stability = "stable" if stable else "unstable"
+    if divergence_free(system):
+        warnings = [w for w in warnings if "at a bifurcation" not in w] + [CONSERVATIVE_NOTE]
+        stable, stability = False, "neutral (conservative flow)"
     return Cycle(float(T), state, np.asarray(u0, dtype=float), time, orbit, amplitude, multipliers, trivial,
-                 stable, M, Tf, k, it, gap, warnings)
+                 stable, M, Tf, k, it, gap, warnings, resolution, stability)
 
 
 # ---------------------------------------------------------------- maps

@@ -216,8 +216,13 @@ def plane_section(system: CompiledSystem, p=None, u0=None, coordinate: str = "",
         event = Event(g, 0, rate=rate)
     scale = time_scale(system, p, u)
     span = max(abs(settings.t_end - settings.t_start) or 100.0, scale.window())
-    why = (f"three times the slowest time scale {scale.slow:.4g} of {scale.source}" if span > abs(
-        settings.t_end - settings.t_start) else "the run length")
+    if span <= abs(settings.t_end - settings.t_start):
+        why = "the run length"
+    elif span > MIN_WINDOW:
+        why = f"three times the slowest time scale {scale.slow:.4g}, from {scale.source}"
+    else:
+        why = f"the shortest search window ({scale.source} give a slowest time scale of {scale.slow:.4g})"
+
     t = float(settings.t_start)
     report = Reporter(progress, cancel)
     names = list(system.states)
@@ -264,7 +269,7 @@ def plane_section(system: CompiledSystem, p=None, u0=None, coordinate: str = "",
         u, t, p = run.final_state.copy(), float(run.time[-1]), run.end_params(p)
         if not raw_t and t - t_begin >= quiet:
             message = (f"no crossing of {coordinate} = {value:g} in {t - t_begin:.4g} time units after the "
-                       f"transient (the search gives up after {quiet:.4g} without a crossing: {why}); a longer "
+                       f"transient (the search gives up after {quiet:.4g} time units without a crossing: {why}); a longer "
                        "duration (--duration) searches further, or the orbit may stay on one side of the plane")
             break
         found = len(keep)

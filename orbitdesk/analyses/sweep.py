@@ -154,7 +154,30 @@ class SweepResult:
                 "samples": [self.points(i).tolist() for i in range(len(self.values))],
                 "observed": self.observed, "mode": self.mode,
                 "lyapunov": None if self.lyapunov is None else self.lyapunov.tolist(),
-                "status": [str(s) for s in self.status]}
+                "status": [str(s) for s in self.status], "requested": int(self.samples.shape[1]),
+                "found": self.found().tolist()}
+
+    def found(self) -> np.ndarray:
+        """How many samples each value got (fewer than asked when the sampling time ran out first)."""
+        return np.sum(np.isfinite(self.samples), axis=1).astype(int)
+
+    def shortfall(self, duration: float | None = None) -> str:
+        """In words, which values got fewer samples than asked and why; "" when none did."""
+        found, wanted = self.found(), int(self.samples.shape[1])
+        short = np.flatnonzero(found < wanted)
+        if short.size == 0:
+            return ""
+        ok = [i for i in short if str(self.status[i]) == "ok"] if len(self.status) else list(short)
+        fewest = int(short[np.argmin(found[short])])
+        text = (f"{short.size} of {len(self.values)} values got fewer than the {wanted} samples asked for "
+                f"(fewest: {found[fewest]} at {self.parameter} = {self.values[fewest]:.6g})")
+        if ok and self.mode in ("plane", "maxima"):
+            span = f" of {duration:g} time units" if duration is not None else ""
+            text += (f"; {len(ok)} of them ran to the end of the sampling time{span} after the transient "
+                     "(--duration lengthens it; an orbit settling to an equilibrium has no more)")
+        if len(ok) < short.size:
+            text += f"; {short.size - len(ok)} stopped early (see status)"
+        return text
 
 
 # ---------------------------------------------------------------- running members

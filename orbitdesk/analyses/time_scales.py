@@ -82,6 +82,7 @@ def _nearest_equilibrium(system, p, u):
 class MethodChoice:
     method: str
     note: str = ""  # why the stiff method was picked ("" when the given or default method stands)
+    run: object = None  # the probe run when it covered the whole window with the method chosen (reusable)
 
 
 def choose_method(system: CompiledSystem, p, u0, window: float, method: str | None = None,
@@ -111,7 +112,7 @@ def choose_method(system: CompiledSystem, p, u0, window: float, method: str | No
                                      f"{covered / max(run.steps_taken, 1):.3g} by stability near the start, "
                                      f"about {needed:.3g} steps for {window:.4g} time units): the stiff "
                                      "method is used")
-    return MethodChoice(DEFAULT)
+    return MethodChoice(DEFAULT, run=run if run.ok and probe >= float(window) else None)
 
 
 __all__ = ["TimeScale", "MethodChoice", "time_scale", "choose_method", "MIN_WINDOW"]

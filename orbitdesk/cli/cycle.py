@@ -99,12 +99,13 @@ def _flow_cycle(system, source, p, u0, guess, args, progress) -> int:
     if args.json:
         print_json(cycle.to_dict())
     elif not args.csv:
-        print(f"periodic orbit: period {cycle.period:.10g} ({'stable' if cycle.stable else 'unstable'})")
+        print(f"periodic orbit: period {cycle.period:.10g} ({cycle.stability})")
         if cycle.forcing_period is not None:
             print(f"  {cycle.forcing_multiple} x forcing period {cycle.forcing_period:.10g}")
         print("  point: " + ", ".join(f"{s} = {v:.10g}" for s, v in cycle.state.items()))
         print("  amplitude (max - min): " + ", ".join(f"{s} {v:.6g}" for s, v in cycle.amplitude.items()))
-        parts = [_complex(m) + (" (trivial)" if k == cycle.trivial_index else "")
+        parts = [(f"below resolution (|m| < {cycle.resolution:.1g})" if k != cycle.trivial_index
+                  and abs(m) < cycle.resolution else _complex(m)) + (" (trivial)" if k == cycle.trivial_index else "")
                  for k, m in enumerate(cycle.multipliers)]
         print("  Floquet multipliers: " + ", ".join(parts))
         for w in cycle.warnings:

@@ -2,6 +2,8 @@
 
 import argparse
 
+import sys
+
 import numpy as np
 
 from orbitdesk.engine.executors import SchedulerError, executor_for
@@ -112,8 +114,10 @@ def run(args) -> int:
     start, stop = parse_number(args.start, "--from"), parse_number(args.stop, "--to")
     if args.count < 1:
         raise CommandError("--count must be at least 1")
-    if start == stop:
-        raise CommandError("--from and --to must differ")
+    if start == stop and args.count > 1:
+        raise CommandError("--from and --to must differ for more than one value (--count 1 takes one value)")
+    if start != stop and args.count == 1:
+        raise CommandError("--count 1 takes one value: give it as both --from and --to")
     p, u0 = values_for(system, source, args.set, args.init)
     settings = sweep_settings(system, source, args)
     try:
@@ -154,4 +158,7 @@ def run(args) -> int:
         write_csv(args.csv, header, columns)
     else:
         print_json(result.to_dict())
+    note = result.shortfall(settings.duration if system.kind != MAP else None)
+    if note:
+        print(f"note: {note}", file=sys.stderr)
     return 0

@@ -114,3 +114,21 @@ def test_refusal_from_a_fresh_process_has_no_traceback(logistic_file):
                           capture_output=True, text=True, timeout=120)
     assert proc.returncode != 0 and proc.stdout == ""
     assert "applies to flows" in proc.stderr and "Traceback" not in proc.stderr
+
+
+def test_count_one_takes_one_value_and_a_shortfall_is_counted_and_explained(capsys, duffing_file):
+    # one value; 200 maxima asked in a sampling time of 20 forcing periods' worth: the Duffing response
+    # settles to the forcing period (2 pi / 1.2 = 5.24), so at most 20 * ... maxima fit in 100 time units
+    code, out, err = run_cli(capsys, "sweep", duffing_file, "--param", "gamma", "--from", "0.3", "--to", "0.3",
+                             "--count", "1", "--maxima", "--samples", "200", "--duration", "100",
+                             "--transient", "50", "--json")
+    assert code == 0
+    data = json.loads(out)
+    assert data["values"] == [0.3] and data["requested"] == 200
+    found = data["found"][0]
+    assert found == len(data["samples"][0]) and found < 200
+    assert found <= math.ceil(100 / PERIOD) * 2  # never more than a couple of maxima per forcing period
+    assert f"fewest: {found}" in err and "--duration" in err
+    code, _, err = run_cli(capsys, "sweep", duffing_file, "--param", "gamma", "--from", "0.3", "--to", "0.4",
+                           "--count", "1", "--maxima")
+    assert code != 0 and "--count 1" in err

@@ -75,3 +75,31 @@ def test_section_search_window_and_duration():
                          t_max=20.0)
     assert some.times == pytest.approx([1.5 * math.pi, 3.5 * math.pi, 5.5 * math.pi], abs=1e-6)
     assert "3 of 100" in some.message and "--duration" in some.message
+
+
+def test_conservative_cycle_is_neutral_and_not_at_a_bifurcation():
+    # x'' = -x - x^3 conserves H = v^2/2 + x^2/2 + x^4/4; from x = A at rest the period is
+    # 4 K(m) / sqrt(1 + A^2), m = A^2 / (2 (1 + A^2)) (closed form; scipy's ellipk takes m)
+    from scipy.special import ellipk
+
+    from orbitdesk.analyses.cycles import divergence_free
+
+    system = compile_model("x'' = -x - x^3\nx(0) = 1\n")
+    assert divergence_free(system) and not divergence_free(van_der_pol(1.0))
+    cycle = find_cycle(system, guess=[1.0, 0.0])
+    assert cycle.period == pytest.approx(4 * ellipk(0.25) / math.sqrt(2), rel=1e-8)
+    assert cycle.stability.startswith("neutral") and not cycle.stable
+    assert not any("bifurcation" in w and "nothing" not in w for w in cycle.warnings)
+    assert np.abs(cycle.multipliers) == pytest.approx([1.0, 1.0], abs=1e-6)
+
+
+def test_round_off_multipliers_are_reported_below_resolution():
+    # Van der Pol mu = 10: the nontrivial multiplier is exp(integral of mu (1 - x^2) dt over the cycle),
+    # far below 1e-10 (Strogatz sec. 7.5: the relaxation cycle is strongly attracting)
+    cycle = find_cycle(van_der_pol(10.0))
+    j = 1 - cycle.trivial_index
+    assert abs(cycle.multipliers[j]) < cycle.resolution
+    data = cycle.to_dict()
+    assert data["multipliers"][j]["below_resolution"] and not data["multipliers"][cycle.trivial_index]["below_resolution"]
+    assert any("below the integrator's resolution" in w for w in cycle.warnings)
+    assert cycle.stability == "stable"
