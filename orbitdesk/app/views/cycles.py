@@ -234,7 +234,7 @@ class CyclesView(SessionView):
         esc = html.escape
         is_map = s.kind == "map"
         rows = []
-        verdict = c.stability or ("stable" if c.stable else "unstable")
+        verdict = getattr(c, "stability", "") or ("stable" if c.stable else "unstable")
         if is_map:
             rows.append(f"<p><b>Cycle of period {c.period}</b> — {verdict}</p>")
         else:
