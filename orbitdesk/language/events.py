@@ -26,13 +26,14 @@ from dataclasses import dataclass, field
 import sympy as sp
 
 from orbitdesk.language.diagnostics import ERROR, ParseError
+from orbitdesk.language.expression import EVENT_LINE as _WHEN
+from orbitdesk.language.expression import is_event_line  # noqa: F401 - part of this module's interface
 from orbitdesk.language.expression import (CONSTANTS, FUNCTIONS, Compare, Logic, parse_condition, parse_expression,
                                            split_top_level_commas)
 from orbitdesk.language.families import (expand, index_range, needs_expansion, parse_clause_bounds, resolve_lhs_name,
                                          split_family_clause)
 from orbitdesk.language.symbolic import to_sympy
 
-_WHEN = re.compile(r"^(\s*)when\s+(?!=)")  # 'when = 3' stays a parameter named 'when'
 _THEN = re.compile(r"(?<![A-Za-z0-9_])then(?![A-Za-z0-9_'])")
 _TARGET = re.compile(r"^([A-Za-z_][A-Za-z0-9_]*(?:(?<=_)\{[^{}]*\})?)('*)$")
 MAX_EVENTS = 2_000  # events of one model once family lines are written out
@@ -78,10 +79,6 @@ class _RawEvent:
     actions: list  # (target text, column, end, tree)
     stop: bool
     family: tuple | None = None  # (index name, first tree, last tree)
-
-
-def is_event_line(code: str) -> bool:
-    return _WHEN.match(code) is not None
 
 
 def parse_event_line(line: int, code: str) -> _RawEvent:

@@ -33,6 +33,14 @@ COMPARISONS = ("<=", ">=", "<", ">")
 
 # ---------------------------------------------------------------- tokens
 
+# An event line, ``when COND then ...`` (read by language/events.py); here so that the editor's colouring
+# can recognise it without loading sympy. 'when = 3' stays a parameter named 'when'.
+EVENT_LINE = re.compile(r"^(\s*)when\s+(?!=)")
+
+
+def is_event_line(code: str) -> bool:
+    return EVENT_LINE.match(code) is not None
+
 
 @dataclass(frozen=True)
 class Token:

@@ -8,8 +8,7 @@ import re
 
 from PySide6.QtGui import QColor, QFont, QPalette, QSyntaxHighlighter, QTextCharFormat
 
-from orbitdesk.language.events import is_event_line
-from orbitdesk.language.expression import CONSTANTS, FUNCTIONS
+from orbitdesk.language.expression import CONSTANTS, FUNCTIONS, is_event_line
 
 FLOW_EQ, MAP_EQ, INITIAL, PARAMETER, DERIVED = "flow", "map", "initial", "parameter", "derived"
 COMMENT, NUMBER, FUNCTION, CONSTANT, RANGE = "comment", "number", "function", "constant", "range"
