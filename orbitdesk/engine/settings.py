@@ -84,6 +84,10 @@ def check_value(name: str, value):
     if kind == "nonneg" and value < 0:
         raise SettingsError(name, f"must not be negative, got {value:g}")
     if low is not None and value < low or high is not None and value > high:
+        if high is None:
+            raise SettingsError(name, f"expected a number of at least {low:g}, got {value:g}")
+        if low is None:
+            raise SettingsError(name, f"expected a number of at most {high:g}, got {value:g}")
         raise SettingsError(name, f"expected a number from {low:g} to {high:g}, got {value:g}")
     return value
 

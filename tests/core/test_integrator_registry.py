@@ -45,3 +45,15 @@ def test_status_table_round_trips_between_words_and_codes():
     codes = [code for code, _, _ in status.TABLE]
     assert list(status.words(codes)) == [word for _, word, _ in status.TABLE]
     assert all(status.CODE[status.word(c)] == c for c in codes)
+
+
+def test_a_tolerance_below_its_bound_is_refused_in_words_not_by_a_crash():
+    # found by the project fuzz: atol = 2.2250738585e-313 (below the bound 1e-300, which has no upper end)
+    from orbitdesk.document.project import ProjectError, project_from_dict
+    from orbitdesk.engine.settings import RunSettings, SettingsError
+
+    with pytest.raises(SettingsError, match="at least 1e-300"):
+        RunSettings(atol=2.2250738585e-313)
+    with pytest.raises(ProjectError, match="atol: expected a number of at least"):
+        project_from_dict({"format": "orbitdesk-project", "version": 1, "model": "x' = -x\n",
+                           "solver": {"atol": 2.2250738585e-313}})
