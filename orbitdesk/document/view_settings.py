@@ -118,7 +118,7 @@ BOUNDS: dict[tuple[str, str], tuple[float, float]] = {
     ("sections", "period"): (1e-9, 1e6), ("sections", "count"): (1, 100_000), ("sections", "transient"): (0.0, 1e6),
     ("sweep", "count"): (1, 10_000), ("sweep", "period"): (1e-9, 1e6), ("sweep", "transient"): (0.0, 1e6),
     ("sweep", "samples"): (1, 10_000), ("sweep", "dt"): (1e-9, 1e3), ("sweep", "duration"): (1e-9, 1e6),
-    ("cycles", "period_guess"): (0.0, 1e6), ("cycles", "forcing_multiple"): (1, 1000),
+    ("cycles", "period_guess"): (0.0, 1e6), ("cycles", "forcing_multiple"): (0, 64),  # 0: automatic
     ("cycles", "map_period"): (1, 1000), ("bifurcation", "tab"): (0, 10),
     ("lyapunov", "flow.length"): (1e-9, 1e7), ("lyapunov", "flow.transient"): (0.0, 1e7),
     ("lyapunov", "map.steps"): (1, 10_000_000), ("lyapunov", "map.transient"): (0, 10_000_000),
