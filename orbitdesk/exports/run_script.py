@@ -4,8 +4,10 @@ The right-hand side is printed by sympy's code printers from the compiled system
 generated names (``_t``, ``_u0``, ``_p0``...), so states such as ``x'`` need no renaming; common
 subexpressions are shared exactly as the engine shares them. Flows are printed with numpy functions
 and integrated as the engine does: dop853 by scipy's compiled Dormand-Prince stopped at every output
-time (models with kinks: ``solve_ivp``'s DOP853, as the engine does), rk45 and stiff by ``solve_ivp``
-(RK45, Radau), rk4 by a fixed-step loop written into the script;
+time (models with kinks: scipy's Python DOP853, as the engine does), rk45, stiff and bdf by scipy's
+RK45, Radau and BDF, also stopped at every output time (every sample a step end, none read off an
+interpolant: a stiff solver's polynomial over a long step misses the tolerance between its ends),
+rk4 by a fixed-step loop written into the script;
 maps are printed with the ``math`` module, as the engine evaluates them, so the orbit is bit for bit
 the same. Delay models carry the engine's method of steps (``delay_script.py``). The script writes the
 columns of ``orbitdesk run --csv``: time, states, derived quantities.
@@ -99,7 +101,7 @@ def run_script(system: CompiledSystem, settings: RunSettings | None = None, u0=N
         head += ["from bisect import bisect_right", "from math import *  # noqa: F401,F403", "",
                  "import numpy as np", "from scipy.integrate import RK45"]
     elif not is_map:
-        head.append("from scipy.integrate import ode, solve_ivp")
+        head.append("from scipy.integrate import ode")
     head += [
         "",
         f"STATES = {list(system.states)!a}",
@@ -119,7 +121,7 @@ def run_script(system: CompiledSystem, settings: RunSettings | None = None, u0=N
         max_step = float(settings.max_step) if settings.max_step else None
         head += [
             f"METHOD = {settings.method!a}  # {comment_text(method.label)}",
-            f"SOLVER = {method.scipy_name!a}  # scipy's solve_ivp method (None: the fixed-step loop below)",
+            f"SOLVER = {method.scipy_name!a}  # scipy's solver class (None: the fixed-step loop below)",
             f"STIFF = {method.stiff!r}",
             f"SMOOTH = {bool(system.smooth)!r}  # False: the model uses abs, min, sign, ... (kinks)",
             f"RTOL = {float(settings.rtol)!r}",
@@ -198,6 +200,33 @@ _FLOW_RUN = '''def rk4(fun, t0, t1, y0, dt, t_eval, args):
     return numpy.array(times), numpy.array(values).T
 
 
+def stopped_at_samples(t_eval, p):
+    """scipy's solver (SOLVER) stopped at every output time, so each sample is the end of a step: its
+    interpolant between steps is not held to the tolerance (a stiff solver's polynomial over a step of
+    many forcing periods can miss by the size of the signal). t_bound is the documented end of scipy's
+    OdeSolver, which never steps past it; moving it on restarts the solver where it stands."""
+    import scipy.integrate
+
+    options = {"rtol": RTOL, "atol": ATOL}
+    if MAX_STEP:
+        options["max_step"] = MAX_STEP
+    if STIFF:
+        options["jac"] = lambda t, y: jac(t, y, p)
+    # models with kinks (abs, min, sign, ...) step with scipy's Python Dormand-Prince, like the original run
+    solver = getattr(scipy.integrate, SOLVER)(lambda t, y: rhs(t, y, p), t_eval[0], INITIAL, t_eval[-1], **options)
+    times, values = [float(t_eval[0])], [numpy.array(INITIAL, dtype=float)]
+    for target in t_eval[1:]:
+        solver.t_bound, solver.status = float(target), "running"
+        while solver.status == "running":
+            message = solver.step()
+        if solver.status == "failed" or not numpy.all(numpy.isfinite(solver.y)):
+            print("integration stopped early at t =", solver.t, message or "", file=sys.stderr)
+            break
+        times.append(float(target))
+        values.append(solver.y.copy())
+    return numpy.array(times), numpy.array(values, dtype=float).T
+
+
 def run():
     """Integrate from T_START to T_END; returns the sample times and the states (one row per state)."""
     p = list(PARAMETERS.values())
@@ -222,16 +251,7 @@ def run():
             values.append(numpy.array(y, dtype=float))
         time, states = numpy.array(times), numpy.array(values, dtype=float).T
     else:
-        options = {"rtol": RTOL, "atol": ATOL}
-        if MAX_STEP:
-            options["max_step"] = MAX_STEP
-        if STIFF:
-            options["jac"] = jac
-        # models with kinks (abs, min, sign, ...) step with scipy's Python Dormand-Prince, like the original run
-        solution = solve_ivp(rhs, (T_START, T_END), INITIAL, method=SOLVER, t_eval=t_eval, args=(p,), **options)
-        if solution.status < 0:
-            print("integration stopped early:", solution.message, file=sys.stderr)
-        time, states = solution.t, solution.y
+        time, states = stopped_at_samples(t_eval, p)
     if TRANSIENT > 0:
         direction = 1.0 if T_END > T_START else -1.0
         keep = (time - (T_START + direction * TRANSIENT)) * direction >= 0

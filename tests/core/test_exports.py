@@ -108,6 +108,22 @@ def test_script_reproduces_a_flow(tmp_path, method):
     assert np.abs(data[:, 3] - reference.derived["energy"]).max() < 1e-6
 
 
+@pytest.mark.parametrize("method", ["stiff", "bdf", "rk45"])
+def test_script_meets_its_tolerance_at_every_sample_of_a_stiff_lag(tmp_path, method):
+    # the stiff test problem y' = -lambda (y - sin t) + cos t (Hairer & Wanner, Solving ODEs II, sec. IV.1),
+    # closed form y = sin t + (y(0) - 0) e^{-lambda t}. scipy's Radau takes steps of many periods here and
+    # its interpolant missed by up to the size of the signal at samples read off it
+    lam = 1e6 if method != "rk45" else 1e3
+    system = compile_model(f"lam = {lam:g}\ny' = -lam*(y - sin(t)) + cos(t)\ny(0) = 1\n")
+    rtol, atol = 1e-6, 1e-8
+    settings = RunSettings(method=method, t_end=30.0, samples=1201, rtol=rtol, atol=atol)
+    header, data = run_exported(tmp_path, run_script(system, settings))
+    t, y = data[:, 0], data[:, 1]
+    assert t == pytest.approx(np.linspace(0, 30, 1201), abs=1e-12)
+    exact = np.sin(t) + np.exp(-lam * t)
+    assert float(np.max(np.abs(y - exact) / (atol + rtol * np.maximum(np.abs(exact), 1.0)))) <= 3.0
+
+
 def test_script_reproduces_a_map_exactly(tmp_path):
     """A chaotic map amplifies any rounding difference, so equality over 2000 steps means the same arithmetic."""
     system = compile_model(HENON)
