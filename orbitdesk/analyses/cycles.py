@@ -11,12 +11,11 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from fractions import Fraction
 
 import numpy as np
-import sympy as sp
 from scipy.stats import qmc
 
+from orbitdesk.analyses.conservative import NEUTRAL_FLOW, divergence_free
 from orbitdesk.engine.runs import Event, RunSettings, simulate
 from orbitdesk.analyses.equilibria import NONSMOOTH_WARNING
 from orbitdesk.engine import compiled, drivers
@@ -25,7 +24,7 @@ from orbitdesk.engine.methods import DEFAULT as DEFAULT_METHOD
 from orbitdesk.engine.methods import method as method_named
 from orbitdesk.engine.status import C_CANCELLED
 from orbitdesk.engine.stiff import solve_at
-from orbitdesk.analyses.time_scales import MIN_WINDOW, choose_method, time_scale
+from orbitdesk.analyses.time_scales import MIN_WINDOW, choose_method, detect_forcing_period, time_scale
 from orbitdesk.engine.status import word as status_word
 from orbitdesk.engine.progress import CancelToken, Cancelled, Reporter
 from orbitdesk.system.compiled_system import MAP, CompiledSystem
@@ -93,43 +92,6 @@ class MapCycle:
 
 
 # ---------------------------------------------------------------- forcing period
-def detect_forcing_period(system: CompiledSystem, p=None) -> float | None:
-    """The common period of sin/cos/tan(omega*t + phase) terms when time enters only through them."""
-    if system.autonomous:
-        return None
-    p = system.param_values if p is None else np.asarray(p, dtype=float)
-    t = system.t_symbol
-    subs = {s: sp.Float(float(v)) for s, v in zip(system.param_symbols, p)}
-    periods = []
-    for expr in system.f:
-        expr = expr.xreplace(subs)
-        replacements = {}
-        for node in sp.preorder_traversal(expr):
-            if isinstance(node, (sp.sin, sp.cos, sp.tan)) and t in node.free_symbols:
-                arg = sp.expand(node.args[0])
-                if not arg.is_polynomial(t) or sp.degree(arg, t) != 1:
-                    return None
-                omega = arg.coeff(t, 1)
-                if omega.free_symbols or not omega.is_number:
-                    return None
-                omega = abs(float(omega))
-                if omega == 0:
-                    return None
-                periods.append(2 * math.pi / omega)
-                replacements[node] = sp.Dummy()
-        if t in expr.xreplace(replacements).free_symbols:
-            return None
-    if not periods:
-        return None
-    common = periods[0]
-    for other in periods[1:]:
-        ratio = Fraction(common / other).limit_denominator(64)
-        if abs(float(ratio) - common / other) > 1e-9 * common / other:
-            return None  # incommensurate frequencies: quasi-periodic forcing
-        common = common * ratio.denominator
-    return common
-
-
 # ---------------------------------------------------------------- variational equations
 class _Flow:
     """phi_T(u0) and its monodromy matrix: the state with n tangent vectors, in the compiled loop
@@ -529,15 +491,6 @@ CONSERVATIVE_NOTE = ("the flow is divergence-free (conservative): its Floquet mu
                      "attracting nor repelling - and nothing bifurcates here")
 
 
-def divergence_free(system: CompiledSystem) -> bool:
-    """Whether the trace of the Jacobian (the divergence of the vector field) is identically zero:
-    the flow keeps volumes, as every Hamiltonian system does."""
-    try:
-        return bool(sp.simplify(system.jacobian.trace()) == 0)
-    except (TypeError, ValueError, AttributeError):
-        return False
-
-
 def _cycle(system, T, u0, time, orbit, multipliers, trivial, stable, M, Tf, k, it, gap, warnings,
            rtol: float = 1e-10) -> Cycle:
     amplitude = {name: float(np.ptp(orbit[i])) for i, name in enumerate(system.states)}
@@ -552,7 +505,7 @@ def _cycle(system, T, u0, time, orbit, multipliers, trivial, stable, M, Tf, k, i
     stability = "stable" if stable else "unstable"
     if divergence_free(system):
         warnings = [w for w in warnings if "at a bifurcation" not in w] + [CONSERVATIVE_NOTE]
-        stable, stability = False, "neutral (conservative flow)"
+        stable, stability = False, NEUTRAL_FLOW
     return Cycle(float(T), state, np.asarray(u0, dtype=float), time, orbit, amplitude, multipliers, trivial,
                  stable, M, Tf, k, it, gap, warnings, resolution, stability)
 

@@ -21,6 +21,7 @@ import sympy as sp
 from scipy.optimize import root
 from scipy.stats import qmc
 
+from orbitdesk.analyses.conservative import neutral_point, neutral_words, stability_word
 from orbitdesk.language.angles import wrap_equilibria
 from orbitdesk.engine.model_events import describe_events
 from orbitdesk.engine.progress import CancelToken, Cancelled, Reporter
@@ -52,6 +53,10 @@ class Equilibrium:
     method: str
     warnings: list[str] = field(default_factory=list)
     is_map: bool = False
+    stability: str = ""  # in words: stable, unstable, undecided, or neutral (conservative flow / area-preserving map)
+
+    def __post_init__(self):
+        self.stability = self.stability or stability_word(self.stable)
 
     @property
     def hyperbolic(self) -> bool:
@@ -60,7 +65,7 @@ class Equilibrium:
     def to_dict(self) -> dict:
         eig = [{"re": float(v.real), "im": float(v.imag)} for v in self.eigenvalues]
         data = {"state": dict(self.state), "eigenvalues": eig, "kind": self.kind, "stable": self.stable,
-                "stable_dim": self.n_stable, "unstable_dim": self.n_unstable, "method": self.method,
+                "stability": self.stability, "stable_dim": self.n_stable, "unstable_dim": self.n_unstable, "method": self.method,
                 "warnings": list(self.warnings)}
         if self.is_map:
             data["multipliers"] = eig
@@ -511,7 +516,7 @@ def _search(system, p, G, DG, box, starts, u0, solve, exact_timeout, report, not
     results = []
     for x, _step, methods in sorted(found, key=lambda e: tuple(np.round(e[0], 12))):
         method = BOTH if len(methods) == 2 else next(iter(methods))
-        eq = _equilibrium(system, x, method, DG)
+        eq = _equilibrium(system, x, method, DG, p)
         if eq is not None:
             results.append(eq)
     results = wrap_equilibria(system, _thin_continuum(results, notes))  # an angle's turns are one point
@@ -553,7 +558,7 @@ def _safe(G, x):
         return None
 
 
-def _equilibrium(system, x, method, DG) -> Equilibrium | None:
+def _equilibrium(system, x, method, DG, p=None) -> Equilibrium | None:
     is_map = system.kind == MAP
     try:
         J = DG(x) + (np.eye(x.size) if is_map else 0.0)
@@ -561,11 +566,15 @@ def _equilibrium(system, x, method, DG) -> Equilibrium | None:
         return None
     J = zero_round_off(J)
     kind, stable, ns, nu, nc, warnings, values, vectors = classify(J, is_map)
+    stability = ""
+    if nc and neutral_point(system, nu, values, p):  # normal for a conservative system, not undecided
+        kind, stability, note = neutral_words(system, p)
+        warnings = [w for w in warnings if "decide" not in w and "Neimark-Sacker" not in w] + [note]
     if system.nonsmooth:
         warnings.append(NONSMOOTH_WARNING.format(names=", ".join(system.nonsmooth)))
     x = zero_round_off(np.where(np.abs(x) < 1e-300, 0.0, x))  # no negative zeros, no 6e-18 for 0
     return Equilibrium({s: float(v) for s, v in zip(system.states, x)}, x, J, values, vectors, kind, stable,
-                       ns, nu, nc, method, warnings, is_map)
+                       ns, nu, nc, method, warnings, is_map, stability)
 
 
 __all__ = ["Equilibrium", "Equilibria", "find_equilibria", "classify", "exact_solutions", "default_box",

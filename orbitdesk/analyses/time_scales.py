@@ -12,8 +12,10 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from fractions import Fraction
 
 import numpy as np
+import sympy as sp
 
 from orbitdesk.engine.methods import DEFAULT, method as method_named
 from orbitdesk.engine.runs import RunSettings, simulate
@@ -35,6 +37,43 @@ class TimeScale:
         return float(min(max(MIN_WINDOW, periods * self.slow), MAX_WINDOW))
 
 
+def detect_forcing_period(system: CompiledSystem, p=None) -> float | None:
+    """The common period of sin/cos/tan(omega*t + phase) terms when time enters only through them."""
+    if system.autonomous:
+        return None
+    p = system.param_values if p is None else np.asarray(p, dtype=float)
+    t = system.t_symbol
+    subs = {s: sp.Float(float(v)) for s, v in zip(system.param_symbols, p)}
+    periods = []
+    for expr in system.f:
+        expr = expr.xreplace(subs)
+        replacements = {}
+        for node in sp.preorder_traversal(expr):
+            if isinstance(node, (sp.sin, sp.cos, sp.tan)) and t in node.free_symbols:
+                arg = sp.expand(node.args[0])
+                if not arg.is_polynomial(t) or sp.degree(arg, t) != 1:
+                    return None
+                omega = arg.coeff(t, 1)
+                if omega.free_symbols or not omega.is_number:
+                    return None
+                omega = abs(float(omega))
+                if omega == 0:
+                    return None
+                periods.append(2 * math.pi / omega)
+                replacements[node] = sp.Dummy()
+        if t in expr.xreplace(replacements).free_symbols:
+            return None
+    if not periods:
+        return None
+    common = periods[0]
+    for other in periods[1:]:
+        ratio = Fraction(common / other).limit_denominator(64)
+        if abs(float(ratio) - common / other) > 1e-9 * common / other:
+            return None  # incommensurate frequencies: quasi-periodic forcing
+        common = common * ratio.denominator
+    return common
+
+
 def time_scale(system: CompiledSystem, p, u) -> TimeScale:
     """The slow and fast time scales near ``u``: the eigenvalues at the equilibrium Newton reaches from
     ``u`` within a few steps (it must lie within the size of ``u`` plus one), else the Jacobian at ``u``."""
@@ -53,8 +92,12 @@ def time_scale(system: CompiledSystem, p, u) -> TimeScale:
             times.append(2 * math.pi / abs(lam.imag))
         if abs(lam.real) > 1e-12 * max(1.0, float(np.max(np.abs(values)))):
             times.append(1.0 / abs(lam.real))
-    if not times:
+    forcing = detect_forcing_period(system, p)
+    if not times and forcing is None:
         return TimeScale(1.0, 1.0, f"every eigenvalue at {source} is zero: one time unit assumed")
+    if forcing is not None and (not times or forcing >= max(times)):
+        # a forced flow comes round with its forcing: the period bounds the window from below
+        return TimeScale(forcing, min(times) if times else forcing, f"the forcing period {forcing:.6g}")
     slow, fast = max(times), min(times)
     return TimeScale(slow, fast, f"the eigenvalues at {source}")
 
@@ -115,4 +158,4 @@ def choose_method(system: CompiledSystem, p, u0, window: float, method: str | No
     return MethodChoice(DEFAULT, run=run if run.ok and probe >= float(window) else None)
 
 
-__all__ = ["TimeScale", "MethodChoice", "time_scale", "choose_method", "MIN_WINDOW"]
+__all__ = ["TimeScale", "MethodChoice", "time_scale", "choose_method", "detect_forcing_period", "MIN_WINDOW"]

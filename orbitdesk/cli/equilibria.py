@@ -99,7 +99,7 @@ def print_table(system, eqs) -> None:
         header = [*system.states, "kind", "stable", values, "found by"]
         rows = []
         for eq in eqs:
-            stable = {True: "yes", False: "no", None: "undecided"}[eq.stable]
+            stable = {"stable": "yes", "unstable": "no"}.get(eq.stability, eq.stability)
             rows.append([*(_number(eq.state[s]) for s in system.states), eq.kind, stable,
                          _eigenvalues(eq.eigenvalues), eq.method])
         widths = [max(len(h), *(len(r[i]) for r in rows)) for i, h in enumerate(header)]

@@ -93,12 +93,16 @@ def test_logistic_flip_and_fold_warnings():
     assert "fold (multiplier near +1)" in eqs[0].warnings and eqs[0].stable is None
 
 
-def test_rotation_map_neimark_sacker_warning():
-    # a rotation by 1 radian: multipliers exp(±i) on the unit circle (closed form)
+def test_rotation_map_is_an_elliptic_fixed_point_not_a_bifurcation():
+    # a rotation by 1 radian: multipliers exp(±i) on the unit circle (closed form); it keeps areas
+    # (determinant cos^2 + sin^2 = 1), so the point is elliptic - neutral - for every parameter, not a
+    # Neimark-Sacker point
     system = compile_model("c = cos(1)\ns = sin(1)\nx[n+1] = c*x - s*y\ny[n+1] = s*x + c*y\n")
     eq = find_equilibria(system)[0]
     assert np.sort_complex(eq.eigenvalues) == pytest.approx(np.sort_complex([np.exp(-1j), np.exp(1j)]))
-    assert "Neimark-Sacker (complex pair on the unit circle)" in eq.warnings and eq.stable is None
+    assert not any("Neimark-Sacker" in w for w in eq.warnings) and eq.stable is None
+    assert eq.kind == "elliptic fixed point (area-preserving map)"
+    assert eq.stability == "neutral (area-preserving map)"
 
 
 @pytest.mark.parametrize("exact", [True, False])
@@ -135,9 +139,15 @@ def test_non_hyperbolic_but_unstable_direction_decides():
 
 def test_linear_centre_and_star_node():
     # x' = y, y' = -x: eigenvalues ±i (closed form); x' = -x, y' = -y: a star (degenerate) node
+    # the harmonic oscillator keeps areas: a true centre, worded as such; x' = y, y' = -x - x^2 y has the same
+    # linearisation but loses area off the axis (a weak focus): the nonlinear terms decide, and it says so
     centre = find_equilibria(compile_model("x' = y\ny' = -x\n"))[0]
-    assert centre.kind == "centre (linear)" and centre.stable is None
+    assert centre.kind == "centre (conservative flow)" and centre.stable is None
+    assert centre.stability == "neutral (conservative flow)"
     assert centre.eigenvalues == pytest.approx([1j, -1j])
+    weak = find_equilibria(compile_model("x' = y\ny' = -x - x^2*y\n"))[0]
+    assert weak.kind == "centre (linear)" and weak.stability == "undecided"
+    assert any("weak focus" in w for w in weak.warnings)
     star = find_equilibria(compile_model("x' = -x\ny' = -y\n"))[0]
     assert star.kind == "stable node" and star.stable is True
     # a degenerate node with a single eigenvector: x' = -x + y, y' = -y
@@ -151,7 +161,7 @@ def test_pendulum_exact_and_box():
     eqs = find_equilibria(system, box={"x": (5.0, 13.0), "v": (-1.0, 1.0)}, exact=False)
     assert sorted(round(e.vector[0] / math.pi, 9) for e in eqs) == [2.0, 3.0, 4.0]
     for e in eqs:
-        assert e.kind == ("saddle" if round(e.vector[0] / math.pi) % 2 else "centre (linear)")
+        assert e.kind == ("saddle" if round(e.vector[0] / math.pi) % 2 else "centre (conservative flow)")
 
 
 def test_exact_timeout_falls_back_to_newton():
@@ -188,7 +198,9 @@ def test_cancel_and_progress():
 def test_to_dict_contract():
     eq = find_equilibria(compile_model(BRUSSELATOR))[0]
     d = eq.to_dict()
-    assert set(d) == {"state", "eigenvalues", "kind", "stable", "stable_dim", "unstable_dim", "method", "warnings"}
+    assert set(d) == {"state", "eigenvalues", "kind", "stable", "stability", "stable_dim", "unstable_dim", "method",
+                      "warnings"}
+    assert d["stability"] == "undecided"  # the Brusselator at its default a = 1, b = 2: the Hopf point b = 1 + a^2
     assert d["state"] == {"x": pytest.approx(1.0), "y": pytest.approx(2.0)}
     assert all(set(v) == {"re", "im"} for v in d["eigenvalues"])
 

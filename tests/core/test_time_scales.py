@@ -103,3 +103,22 @@ def test_round_off_multipliers_are_reported_below_resolution():
     assert data["multipliers"][j]["below_resolution"] and not data["multipliers"][cycle.trivial_index]["below_resolution"]
     assert any("below the integrator's resolution" in w for w in cycle.warnings)
     assert cycle.stability == "stable"
+
+
+def test_section_window_of_a_slowly_forced_flow_follows_the_forcing_period():
+    # x' = -x + sin(w t), x(0) = 1, w = 2 pi / 10^4: x(t) = (sin wt - w cos wt)/(1 + w^2) + (1 + w/(1 + w^2)) e^-t
+    # (closed form). x = 0.5 is crossed upwards once per forcing period, the first time near t = 834: a
+    # window read from the eigenvalue -1 alone (200 time units without a crossing) gave up before it
+    from scipy.optimize import brentq
+
+    w = 2 * math.pi / 1e4
+    system = compile_model(f"w = {w!r}\nx' = -x + sin(w*t)\nx(0) = 1\n")
+    scale = time_scale(system, system.param_values, system.initial)
+    assert scale.slow == pytest.approx(1e4) and "forcing period" in scale.source
+
+    def exact(t):
+        return (math.sin(w * t) - w * math.cos(w * t)) / (1 + w * w) + (1 + w / (1 + w * w)) * math.exp(-t) - 0.5
+
+    expected = [brentq(exact, 1e4 * k + 10, 1e4 * k + 3000, xtol=1e-12) for k in range(3)]
+    section = plane_section(system, coordinate="x", value=0.5, direction="up", count=3)
+    assert section.status == "ok" and section.times == pytest.approx(expected, abs=1e-6)

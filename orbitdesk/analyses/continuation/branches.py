@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from orbitdesk.analyses.conservative import neutral_words
 from orbitdesk.analyses.cycles import CycleError, find_map_cycle
 from orbitdesk.analyses.equilibria import find_equilibria
 from orbitdesk.engine.progress import CancelToken, Reporter
@@ -83,7 +84,7 @@ def steady_branches(system: CompiledSystem, param: str, lo: float, hi: float, p=
         done += 1
         if len(curve.xs) < 2:
             continue
-        branch = _branch(kind, system, param, curve, K, origin)
+        branch = _branch(kind, system, param, curve, K, origin, pv)
         branches.append(branch)
         curves.append(np.array(curve.xs))
         if switch:
@@ -189,7 +190,7 @@ def _switches(funcs, pv, k, K, curve: Curve, settings):
     return out
 
 
-def _branch(kind, system, param, curve: Curve, K, origin=None) -> Branch:
+def _branch(kind, system, param, curve: Curve, K, origin=None, pv=None) -> Branch:
     xs = np.array(curve.xs)
     values, points = xs[:, -1], xs[:, :-1].T
     specials = []
@@ -202,7 +203,8 @@ def _branch(kind, system, param, curve: Curve, K, origin=None) -> Branch:
             continue  # the parameter turns at a pitchfork: the branch point says it
         specials.append(to_special(system, s))
     return Branch(kind, param, list(system.states), values, points, [d["stable"] for d in curve.data],
-                  [d["spectrum"] for d in curve.data], specials, list(curve.reasons), map_period=K)
+                  [d["spectrum"] for d in curve.data], specials, list(curve.reasons), map_period=K,
+                  neutral=neutral_words(system, pv, free=(param,))[1])
 
 
 def to_special(system, s, state_size=None) -> Special:

@@ -61,6 +61,12 @@ class Special:
         return data
 
 
+def _neutral_word(text) -> str:
+    from orbitdesk.analyses.conservative import NEUTRAL_FLOW, NEUTRAL_MAP
+
+    return text if text in (NEUTRAL_FLOW, NEUTRAL_MAP) else ""
+
+
 @dataclass
 class Branch:
     """One continued branch: the parameter values, the states and what each point's linearisation says."""
@@ -78,6 +84,11 @@ class Branch:
     maxima: dict[str, np.ndarray] | None = None  # cycles: max of each state over the orbit
     minima: dict[str, np.ndarray] | None = None
     map_period: int = 1  # maps: the period K of the fixed points of f^K
+    neutral: str = ""  # a conservative system's word for its points on the imaginary axis (conservative.py)
+
+    def stability(self, i: int) -> str:
+        """Point ``i``'s stability in words: stable, unstable, neutral (conservative) or undecided."""
+        return {True: "stable", False: "unstable"}.get(self.stable[i], self.neutral or "undecided")
 
     @property
     def size(self) -> int:
@@ -99,6 +110,7 @@ class Branch:
         points = []
         for i in range(self.size):
             entry = {"value": float(self.values[i]), "state": self.state_at(i), "stable": self.stable[i],
+                     "stability": self.stability(i),
                      self.spectrum_name: _complex_list(self.spectra[i])}
             if self.periods is not None:
                 entry["period"] = float(self.periods[i])
@@ -109,6 +121,8 @@ class Branch:
                 "ended": list(self.reasons)}
         if self.kind == FIXED_POINT:
             data["map_period"] = self.map_period
+        if self.neutral:
+            data["neutral"] = self.neutral
         return data
 
     # project storage: plain lists, read back by from_saved
@@ -145,7 +159,7 @@ class Branch:
                                    note=str(s.get("note", ""))))
         return cls(str(data["kind"]), str(data["parameter"]), states, values, points, stable, spectra, special,
                    [str(r) for r in data.get("ended", [])], periods, maxima, minima,
-                   int(data.get("map_period", 1)))
+                   int(data.get("map_period", 1)), _neutral_word(data.get("neutral")))
 
 
 @dataclass

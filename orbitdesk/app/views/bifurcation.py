@@ -37,9 +37,10 @@ STEPPED_COUNT = 41
 
 
 def stable_runs(values, measure, stable):
-    """Split a branch into runs of equal stability: [(x, y, stable)] sharing their end points."""
+    """Split a branch into runs of equal stability: [(x, y, stable)] sharing their end points (stable: True,
+    False, or None where the linearisation is neutral)."""
     runs, start = [], 0
-    flags = [bool(s) for s in stable]
+    flags = [None if s is None else bool(s) for s in stable]
     for i in range(1, len(flags) + 1):
         if i == len(flags) or flags[i] != flags[start]:
             end = min(i + 1, len(flags))
@@ -471,7 +472,8 @@ class BifurcationView(SessionView):
                         seen.add(key)
                         what = {"equilibrium": "steady state", "fixed point": "fixed point",
                                 "cycle": "cycle (lowest and highest)"}[branch.kind]
-                        name = f"{what}, {'stable' if stable else 'unstable'}"
+                        word = {True: "stable", False: "unstable"}.get(stable, branch.neutral or "undecided")
+                        name = f"{what}, {word}"
                     self.plot.addItem(pg.PlotDataItem(x, y, pen=self._pen(colour, stable), name=name))
             for s in branch.special:
                 if not any(t.type == s.type and _same_place(t, s) for t, _b in self._specials):
@@ -488,15 +490,16 @@ class BifurcationView(SessionView):
         self._show_info()
 
     def _pen(self, colour, stable):
-        return pg.mkPen(colour, width=2.2 if stable else 1.6,
-                        style=Qt.PenStyle.SolidLine if stable else Qt.PenStyle.DashLine)
+        style = Qt.PenStyle.DotLine if stable is None else Qt.PenStyle.SolidLine if stable else Qt.PenStyle.DashLine
+        return pg.mkPen(colour, width=2.2 if stable else 1.6, style=style)
 
     def _draw_response(self) -> None:
         r = self.response
         colour = series_colour(0, self)
         named = set()
         for x, y, stable in stable_runs(r.values, r.amplitudes, r.stable):
-            name = None if stable in named else f"response, {'stable' if stable else 'unstable'}"
+            word = {True: "stable", False: "unstable"}.get(stable, "undecided")
+            name = None if stable in named else f"response, {word}"
             named.add(stable)
             self.plot.addItem(pg.PlotDataItem(x, y, pen=self._pen(colour, stable), name=name))
         for curve, symbol, index in zip(self.stepped, ("t1", "t"), (3, 5)):

@@ -20,14 +20,6 @@ DEFAULT_EPS = 1e-3
 MAX_START_BUTTONS = 8    # eigen-directions offered as buttons (the largest models get the first ones)
 
 
-def _stability_text(eq) -> str:
-    if eq.stable is True:
-        return "stable"
-    if eq.stable is False:
-        return "unstable"
-    return "undecided"
-
-
 def _method_text(method: str) -> str:
     return {"exact": "exact solve", "newton": "Newton search", "exact+newton": "exact solve and Newton"}.get(
         method, method)
@@ -300,14 +292,14 @@ class EquilibriaView(SessionView):
         for r, eq in enumerate(items):
             values = [eigenvalues_text(eq.eigenvalues)]
             cells = [str(r + 1)] + [number_text(eq.state[n]) for n in states] + values + [
-                eq.kind, _stability_text(eq), _method_text(eq.method)]
+                eq.kind, eq.stability, _method_text(eq.method)]
             for c, text in enumerate(cells):
                 item = QTableWidgetItem(text)
                 if 0 < c <= len(states) + 1:
                     item.setFont(mono)
                 if 0 <= c <= len(states):
                     item.setTextAlignment(right)
-                tip = f"{point_word} {r + 1}: {eq.kind}, {_stability_text(eq)}"
+                tip = f"{point_word} {r + 1}: {eq.kind}, {eq.stability}"
                 if eq.warnings:
                     tip += "\n" + "\n".join(eq.warnings)
                 item.setToolTip(tip)
@@ -361,7 +353,7 @@ class EquilibriaView(SessionView):
             counts = f"{len(eq.eigenvalues)} rightmost roots listed, {eq.n_unstable} with positive real part"
         html = [f"<div style='font-family:\"{family}\"'>",
                 f"<p><b>{'Fixed point' if multipliers else 'Equilibrium'} {i}: {eq.kind}</b> "
-                f"({_stability_text(eq)}; {counts})<br>{where}</p>",
+                f"({eq.stability}; {counts})<br>{where}</p>",
                 f"<p><b>Jacobian{' with the delays dropped' if s.delays else ''}</b></p>",
                 _matrix_html(J, [escape(partial_label(n)) for n in states],
                              [escape(equation_lhs(self.system, n)) for n in states]),

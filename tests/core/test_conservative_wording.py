@@ -1,0 +1,88 @@
+"""Conservative systems are worded the same by equilibria, cycles and continuation: their centres are
+neutral, never undecided, at a bifurcation or Neimark-Sacker.
+
+References (closed forms): x'' = -x - x^3 keeps H = v^2/2 + x^2/2 + x^4/4, a strict minimum at the
+origin, so the origin is a centre surrounded by closed orbits; the frictionless pendulum x'' = -g sin x
+keeps H = v^2/2 - g cos x: a centre at x = 0 (eigenvalues +-i sqrt g) and a saddle at x = pi (+-sqrt g)
+(Strogatz, Nonlinear Dynamics and Chaos, sec. 6.5 and 6.7). An area-preserving map: the Hénon map with
+b = -1 has Jacobian determinant +1; its fixed point at a = 0.5 has multipliers on the unit circle.
+"""
+
+import json
+import math
+
+import numpy as np
+import pytest
+
+from orbitdesk.analyses.conservative import CENTRE_FLOW, NEUTRAL_FLOW, NEUTRAL_MAP, structure
+from orbitdesk.analyses.continuation.branches import steady_branches
+from orbitdesk.analyses.continuation.results import Branch
+from orbitdesk.analyses.cycles import find_cycle
+from orbitdesk.analyses.equilibria import find_equilibria
+from orbitdesk.system.compiled_system import compile_model
+
+DUFFING_CONSERVATIVE = "k = 1\nx'' = -k*x - x^3\nx(0) = 1\n"
+PENDULUM = "g = 2\nc = 0\nx' = v\nv' = -g*sin(x) + c\nx(0) = 1\nv(0) = 0\n"
+WORDS_NEVER = ("undecided", "Neimark-Sacker", "at a bifurcation", "weak focus")
+
+
+def _clean(texts):
+    return not any(w in t for t in texts for w in WORDS_NEVER)
+
+
+def test_centre_of_the_conservative_duffing_is_neutral_like_its_cycles():
+    system = compile_model(DUFFING_CONSERVATIVE)
+    (origin,) = find_equilibria(system)
+    assert origin.vector == pytest.approx([0.0, 0.0], abs=1e-12)
+    assert np.abs(origin.eigenvalues.imag) == pytest.approx([1.0, 1.0])  # +-i (closed form)
+    assert origin.kind == CENTRE_FLOW and origin.stability == NEUTRAL_FLOW
+    assert _clean(origin.warnings + [origin.kind, origin.stability])
+    assert origin.to_dict()["stability"] == NEUTRAL_FLOW
+    cycle = find_cycle(system, guess=[1.0, 0.0])
+    assert cycle.stability == origin.stability  # the same words as the cycle around it
+
+
+def test_pendulum_centre_and_saddle():
+    system = compile_model(PENDULUM)
+    points = sorted(find_equilibria(system, box={"x": (-1.0, 4.0), "v": (-1.0, 1.0)}), key=lambda e: e.vector[0])
+    centre, saddle = points[0], points[-1]
+    assert centre.vector[0] == pytest.approx(0.0, abs=1e-12) and saddle.vector[0] == pytest.approx(math.pi)
+    assert sorted(np.abs(centre.eigenvalues.imag)) == pytest.approx([math.sqrt(2)] * 2)
+    assert centre.kind == CENTRE_FLOW and centre.stability == NEUTRAL_FLOW and _clean(centre.warnings)
+    assert saddle.kind == "saddle" and saddle.stability == "unstable"
+    assert sorted(saddle.eigenvalues.real) == pytest.approx([-math.sqrt(2), math.sqrt(2)])
+
+
+def test_continuation_of_conservative_centres_words_them_neutral():
+    system = compile_model(PENDULUM)
+    branches = steady_branches(system, "c", -0.5, 0.5)
+    words = {b.stability(i) for b in branches.branches for i in range(b.size)}
+    assert words == {NEUTRAL_FLOW, "unstable"}  # centres (x near 0) and saddles (x near pi)
+    assert not any(s.type == "hopf" for b in branches.branches for s in b.special)
+    text = json.dumps([b.to_dict() for b in branches.branches])
+    assert _clean([text])
+    centre = next(b for b in branches.branches if NEUTRAL_FLOW in {b.stability(i) for i in range(b.size)})
+    # the centres sit where g sin x = c (closed form), and the word survives the project file
+    assert np.sin(centre.points[0]) * 2 == pytest.approx(centre.values, abs=1e-8)
+    again = Branch.from_saved(json.loads(json.dumps(centre.to_saved())))
+    assert again.stability(0) == NEUTRAL_FLOW
+
+
+def test_area_preserving_map_fixed_point_is_elliptic_not_neimark_sacker():
+    # Hénon map x -> 1 - a x^2 + y, y -> b x with b = -1: det = -b = 1. Fixed point x* = (-(1 - b) +
+    # sqrt((1 - b)^2 + 4a)) / (2a); the multipliers satisfy mu^2 + 2 a x* mu + 1 = 0: on the unit circle
+    # when |a x*| < 1 (a = 0.5: x* = sqrt(6) - 2 = 0.449, a x* = 0.22)
+    system = compile_model("a = 0.5\nb = -1\nx[n+1] = 1 - a*x^2 + y\ny[n+1] = b*x\nx[0] = 0.1\ny[0] = 0\n")
+    assert structure(system) == "map+1"
+    points = find_equilibria(system)
+    x_star = (-2 + math.sqrt(4 + 2)) / 1.0
+    elliptic = [e for e in points if e.vector[0] == pytest.approx(x_star)]
+    assert elliptic and np.abs(elliptic[0].eigenvalues) == pytest.approx([1.0, 1.0])
+    assert elliptic[0].stability == NEUTRAL_MAP and _clean(elliptic[0].warnings + [elliptic[0].kind])
+
+
+def test_dissipative_systems_keep_their_words():
+    damped = compile_model("x'' = -x - 0.1*x'\nx(0) = 1\n")
+    assert structure(damped) == ""
+    (origin,) = find_equilibria(damped)
+    assert origin.stability == "stable" and origin.kind == "stable focus"
