@@ -60,15 +60,17 @@ def module_source(system, jit: bool) -> str:
     if cached is None:
         if jit:
             head = ["import math", "from math import *  # noqa: F401,F403", "import numpy as np",
-                    "from numba import cfunc", "from orbitdesk.engine import jitting", "", "",
+                    "from numba import cfunc, njit", "from orbitdesk.engine import jitting", "", "",
                     "def _plain(f):", "    return f", ""]
             head += [f"_{name}_kernel = cfunc(jitting.signature({sig!r}), {_CACHE_OPTION}, error_model='numpy')"
                      for name, sig in _signatures(system).items()]
+            # parts of a large kernel (codegen._split_model): compiled with it, into its machine code
+            head += ["_part_kernel = njit(error_model='numpy', nogil=True)"]
         else:
             head = ["import math", "from math import *  # noqa: F401,F403", "import numpy as np", "", "",
                     "def _plain(f):", "    return f", "", "",
                     "def _fill_nan(a):", "    a[...] = math.nan", ""]
-            head += [f"_{name}_kernel = _plain" for name in _signatures(system)]
+            head += [f"_{name}_kernel = _plain" for name in list(_signatures(system)) + ["part"]]
         head += ["_jac_kernel = _jac_values_kernel = _plain  # called from Python (stiff solvers, Newton)"]
         cached = system.__dict__[key] = HEADER + "\n".join(head) + "\n\n\n" + kernel_source(system, guard=not jit) + "\n"
     return cached

@@ -148,6 +148,33 @@ def _indent(lines, guard: bool, pad: str = "    ") -> list[str]:
             + [pad + "except _UNDEFINED:", pad + "    _fill_nan(out)"])
 
 
+UNROLLED_ENTRIES = 96  # up to this many Jacobian entries the tangent products are written out one by one
+
+
+def _split_model(w: _Writer, f, entries, store_f, guard: bool) -> list[str]:
+    """``model`` of a large system as three functions: f once (``_rhs``), the Jacobian's entries
+    evaluated once per call into an array (``_tangent``), and its products with the tangent vectors
+    as one loop over the sparse structure (``JAC_ROWS``/``JAC_COLS``), so the code numba compiles
+    grows with the equations and the entries, not with entries x tangent vectors (numba's typing and
+    SSA passes are slower than linear in one function's length: 1,455 lines of the old single
+    function took 10 s at 100 states)."""
+    n, t = len(f), w.t.name
+    values = (lambda vals: [f"_jv[{k}] = {v}" for k, v in enumerate(vals)])
+    lines = ["@_part_kernel", f"def _rhs({t}, z, p, out):"] + _indent(w.lines(f, store_f, "z"), guard) + ["", ""]
+    products = [f"for _i in range({n}, {n} + {n} * which):", "    out[_i] = 0.0",
+                f"for _e in range({len(entries)}):",
+                f"    _o = {n} + JAC_ROWS[_e] * which",
+                f"    _s = {n} + JAC_COLS[_e] * which",
+                "    _v = _jv[_e]",
+                "    for _k in range(which):",
+                "        out[_o + _k] += _v * z[_s + _k]"]
+    lines += ["@_part_kernel", f"def _tangent(which, {t}, z, p, out):", f"    _jv = np.empty({len(entries)})"]
+    lines += _indent(w.lines(entries, values, "z") + products, guard) + ["", ""]
+    lines += ["@_model_kernel", f"def model(which, {t}, z, p, out):", f"    _rhs({t}, z, p, out)", "    if which != 0:",
+              f"        _tangent(which, {t}, z, p, out)"]
+    return lines
+
+
 def kernel_source(system: CompiledSystem, guard: bool) -> str:
     """The kernels' source; ``guard``: plain Python (undefined values become NaN, as in compiled code).
 
@@ -178,11 +205,14 @@ def kernel_source(system: CompiledSystem, guard: bool) -> str:
         return lines
 
     store_f = (lambda values: [f"out[{i}] = {v}" for i, v in enumerate(values)])
-    out += ["@_model_kernel", f"def model(which, {t}, z, p, out):", "    if which == 0:"]
-    out += _indent(w.lines(f, store_f, "z"), guard, " " * 8)
-    out += ["    else:", "        for _k in range(which):", "            if _k == 0:"]
-    out += _indent(w.lines(f, store_f, "z"), guard, " " * 16)
-    out += _indent(w.lines(entries, products, "z"), guard, " " * 12)
+    if len(entries) <= UNROLLED_ENTRIES:
+        out += ["@_model_kernel", f"def model(which, {t}, z, p, out):", "    if which == 0:"]
+        out += _indent(w.lines(f, store_f, "z"), guard, " " * 8)
+        out += ["    else:", "        for _k in range(which):", "            if _k == 0:"]
+        out += _indent(w.lines(f, store_f, "z"), guard, " " * 16)
+        out += _indent(w.lines(entries, products, "z"), guard, " " * 12)
+    else:
+        out += _split_model(w, f, entries, store_f, guard)
     out += ["", ""]
     out += ["@_jac_kernel", f"def jac({t}, u, p, out):"]
     out += _indent(w.lines(entries, lambda values: [f"out[{r}, {c}] = {v}" for r, c, v in zip(rows, cols, values)]),

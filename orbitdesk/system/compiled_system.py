@@ -169,12 +169,27 @@ class CompiledSystem:
         return self._compile(self.f, "numpy")
 
     @cached_property
+    def _jac_structure(self):
+        """(rows, cols) of the Jacobian's structural entries (codegen.sparse_jacobian)."""
+        from orbitdesk.system.codegen import sparse_jacobian
+
+        rows, cols, _ = sparse_jacobian(self)
+        return np.array(rows, dtype=np.intp), np.array(cols, dtype=np.intp)
+
+    def _compile_jacobian(self, modules):
+        # only the structural entries: a 200-state chain has 1,000 of them, not 40,000
+        from orbitdesk.system.codegen import sparse_jacobian
+
+        t, u, p, _ = self._plain
+        return lambdify([t, *u, *p], list(sparse_jacobian(self)[2]), modules)
+
+    @cached_property
     def _jac_scalar(self):
-        return self._compile(list(self.jacobian), "math")
+        return self._compile_jacobian("math")
 
     @cached_property
     def _jac_vector(self):
-        return self._compile(list(self.jacobian), "numpy")
+        return self._compile_jacobian("numpy")
 
     @cached_property
     def _derived_vector(self):
@@ -228,7 +243,9 @@ class CompiledSystem:
             values = self._jac_scalar(float(t), *map(float, u), *map(float, p))
         except (ValueError, ZeroDivisionError, TypeError, OverflowError) as exc:
             raise UndefinedValue(f"the Jacobian is undefined at this point ({exc})") from None
-        return np.array(values, dtype=float).reshape(n, n)
+        J = np.zeros((n, n))
+        J[self._jac_structure] = values
+        return J
 
     def rhs_vec(self, t, U, P=None) -> np.ndarray:
         """f for many members at once: U has shape (n_states, N); P is (n_params,) or (n_params, N)."""
@@ -245,7 +262,10 @@ class CompiledSystem:
         n = self.n_states
         with np.errstate(all="ignore"):
             values = self._jac_vector(t, *U, *P)
-        return _stack(values, U.shape[1:]).reshape((n, n) + U.shape[1:])
+        shape = U.shape[1:]
+        J = np.zeros((n, n) + shape)
+        J[self._jac_structure] = _stack(values, shape)
+        return J
 
     def derived_values(self, t, Y, p=None) -> dict[str, np.ndarray]:
         """Derived quantities along a run: t has shape (K,), Y shape (n_states, K)."""

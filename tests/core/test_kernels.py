@@ -60,6 +60,30 @@ def test_many_states_and_parameters_run_with_arrays(jit):
 
 
 @pytest.mark.parametrize("jit", PATHS)
+@pytest.mark.parametrize("masses", [4, 25])  # 18 Jacobian entries (written out) and 123 (one loop)
+def test_tangent_products_equal_sympys_jacobian_times_the_vectors(jit, masses):
+    # reference: sympy's dense Matrix.jacobian at a point, times tangent vectors with numpy
+    from orbitdesk.system.codegen import UNROLLED_ENTRIES
+
+    system = compile_model(chain(masses))
+    assert (len(sparse_jacobian(system)[0]) > UNROLLED_ENTRIES) == (masses == 25)
+    engine = compiled.engine_for(system, wait=True) if jit else compiled.python_engine(system)
+    n, m = system.n_states, 3
+    rng = np.random.default_rng(4)
+    u, V = rng.uniform(-1, 1, n), rng.uniform(-1, 1, (n, m))
+    t, syms, psyms, _ = system._plain
+    f = sp.Matrix(system.plain(system.f))
+    at = dict(zip(syms, u)) | dict(zip(psyms, system.param_values))
+    J = np.array(f.jacobian(sp.Matrix(syms)).xreplace(at), dtype=float)
+    out = np.empty(n * (m + 1))
+    engine.kernels.model(m, 0.0, np.concatenate([u, V.ravel()]), system.param_values.astype(float), out)
+    assert np.allclose(out[:n], np.array(f.xreplace(at), dtype=float).ravel(), rtol=1e-13, atol=1e-13)
+    assert np.allclose(out[n:].reshape(n, m), J @ V, rtol=1e-13, atol=1e-13)
+    engine.kernels.model(0, 0.0, u, system.param_values.astype(float), out[:n])
+    assert np.allclose(out[:n], np.array(f.xreplace(at), dtype=float).ravel(), rtol=1e-13, atol=1e-13)
+
+
+@pytest.mark.parametrize("jit", PATHS)
 def test_rk4_members_follow_the_stability_function(jit):
     # u' = lam u: one RK4 step multiplies by R(z) = 1 + z + z^2/2 + z^3/6 + z^4/24, z = lam h
     # (Hairer, Norsett & Wanner, Solving ODEs I, sec. IV.2, stability function of RK4)
