@@ -18,6 +18,7 @@ from scipy.stats import qmc
 from orbitdesk.analyses.conservative import NEUTRAL_FLOW, divergence_free
 from orbitdesk.engine.runs import Event, RunSettings, simulate
 from orbitdesk.analyses.equilibria import NONSMOOTH_WARNING
+from orbitdesk.analyses.newton import Singular, damped_newton
 from orbitdesk.engine import compiled, drivers
 from orbitdesk.engine.model_events import saltation_refusal
 from orbitdesk.engine.methods import DEFAULT as DEFAULT_METHOD
@@ -158,6 +159,13 @@ class _Flow:
         if failure is not None or states.shape[1] != len(grid):
             raise CycleError(f"the integration over one period failed ({failure or 'stopped early'})")
         return states
+
+    def end(self, u0, t0, T):
+        """phi_T(u0) alone (no tangent vectors)."""
+        end = self._run(np.asarray(u0, dtype=float), t0, t0 + T, [t0 + T], 0)[:, -1]
+        if not np.all(np.isfinite(end)):
+            raise CycleError("the integration over one period failed (not a number)")
+        return end
 
     def monodromy(self, u0, t0, T):
         n = self.n
@@ -300,47 +308,43 @@ def _autonomous_cycle(system, p, flow, u_guess, start, period_guess, section, tr
         T = _return_time(system, p, u_ref, normal, point, transient, why, flow.info.name, cancel,
                          report.part(0.3, 0.1))
 
-    u0 = u_ref.copy()
-    phi, M = flow.monodromy(u0, 0.0, T)
-    residual = _shoot_residual(phi, u0, normal, point)
-    newton = report.part(0.4, 0.5)
-    scale = max(1.0, float(np.max(np.abs(u0))))
-    it = 0
-    for it in range(1, max_iter + 1):
-        newton(it / max_iter)
-        if np.linalg.norm(phi - u0) <= 1e-10 * _travel(flow, u0, T):
-            break
+    monodromy = {}
+
+    def residual(x):  # one run without tangent vectors: a trial of the damped Newton iteration
+        return np.concatenate([flow.end(x[:n], 0.0, x[n]) - x[:n], [normal @ (x[:n] - point)]])
+
+    def jacobian(x):  # at accepted points only: the run with n tangent vectors
+        phi, M = flow.monodromy(x[:n], 0.0, x[n])
+        monodromy.update(x=x, M=M)
         A = np.zeros((n + 1, n + 1))
         A[:n, :n] = M - np.eye(n)
-        A[:n, n] = flow.rhs(T, phi)
+        A[:n, n] = flow.rhs(x[n], phi)
         A[n, :n] = normal
-        b = -np.concatenate([phi - u0, [normal @ (u0 - point)]])
-        try:
-            step = np.linalg.solve(A, b)
-        except np.linalg.LinAlgError:
-            raise CycleError("the shooting equations are singular here (a non-hyperbolic cycle or a "
-                             "family of cycles?); no isolated periodic orbit found") from None
-        lam, accepted = 1.0, False
-        while lam >= 1 / 64:
-            u_new, T_new = u0 + lam * step[:n], T + lam * step[n]
-            if T_new > 0.05 * T:
-                try:
-                    phi_new, M_new = flow.monodromy(u_new, 0.0, T_new)
-                    r_new = _shoot_residual(phi_new, u_new, normal, point)
-                except CycleError:
-                    r_new = math.inf
-                if r_new < residual:
-                    u0, T, phi, M, residual, accepted = u_new, T_new, phi_new, M_new, r_new, True
-                    break
-            lam /= 2
-        if not accepted:
-            break
-    gap = float(np.linalg.norm(phi - u0))
+        return A
+
+    newton = report.part(0.4, 0.5)
+
+    def converged(state):
+        newton(state.iterations / max_iter)
+        return np.linalg.norm(state.residual[:n]) <= 1e-10 * _travel(flow, state.x[:n], state.x[n])
+
+    try:
+        state = damped_newton(residual, jacobian, np.append(u_ref, T), done=converged, max_iter=max_iter,
+                              admissible=lambda x_new, x: x_new[n] > 0.05 * x[n], rejects=(CycleError,))
+    except Singular:
+        raise CycleError("the shooting equations are singular here (a non-hyperbolic cycle or a "
+                         "family of cycles?); no isolated periodic orbit found") from None
+    u0, T, it = state.x[:n], float(state.x[n]), state.iterations
+    scale = max(1.0, float(np.max(np.abs(u_ref))))
+    gap = float(np.linalg.norm(state.residual[:n]))
     if np.linalg.norm(flow.rhs(0.0, u0)) <= 1e-9 * scale:
         raise CycleError("the shooting converged to an equilibrium, not a periodic orbit")
     if not gap <= 1e-8 * _travel(flow, u0, T):
         raise CycleError(f"no periodic orbit found near the guess: the shooting did not converge "
                          f"(return gap {gap:.3g} after {it} Newton steps)")
+    if state.jacobian is None:
+        jacobian(state.x)
+    M = monodromy["M"]
 
     multipliers = _sorted_multipliers(M)
     trivial = int(np.argmin(np.abs(multipliers - 1)))
@@ -361,10 +365,6 @@ def _autonomous_cycle(system, p, flow, u_guess, start, period_guess, section, tr
 def _travel(flow, u0, T) -> float:
     """A length scale of the orbit: speed at u0 times the period (its length if the speed were uniform)."""
     return float(np.linalg.norm(flow.rhs(0.0, u0))) * T
-
-
-def _shoot_residual(phi, u0, normal, point):
-    return float(np.linalg.norm(np.concatenate([phi - u0, [normal @ (u0 - point)]])))
 
 
 def _return_time(system, p, u_ref, normal, point, t_max, why, method, cancel, report) -> float:
@@ -441,34 +441,24 @@ def _forced_cycle(system, p, flow, u_guess, start, Tf, k_given, transient, max_i
 def _strobe_newton(flow, u0, Tf, k, max_iter):
     n = flow.n
     u0 = np.asarray(u0, dtype=float).copy()
-    phi, M = flow.monodromy(u0, 0.0, k * Tf)
-    residual = float(np.linalg.norm(phi - u0))
     scale = max(1.0, float(np.max(np.abs(u0))))
-    it = 0
-    for it in range(1, max_iter + 1):
-        if residual <= 1e-9 * scale:
-            break
-        try:
-            step = np.linalg.solve(M - np.eye(n), -(phi - u0))
-        except np.linalg.LinAlgError:
-            raise CycleError("the stroboscopic map has a multiplier 1 here; no isolated orbit") from None
-        lam, accepted = 1.0, False
-        while lam >= 1 / 64:
-            u_new = u0 + lam * step
-            try:
-                phi_new, M_new = flow.monodromy(u_new, 0.0, k * Tf)
-                r_new = float(np.linalg.norm(phi_new - u_new))
-            except CycleError:
-                r_new = math.inf
-            if r_new < residual:
-                u0, phi, M, residual, accepted = u_new, phi_new, M_new, r_new, True
-                break
-            lam /= 2
-        if not accepted:
-            break
-    if not residual <= 1e-7 * scale:
-        raise CycleError(f"the Newton iteration on P^{k} did not converge (gap {residual:.3g})")
-    return u0, M, it, residual
+    monodromy = {}
+
+    def jacobian(u):
+        monodromy["M"] = flow.monodromy(u, 0.0, k * Tf)[1]
+        return monodromy["M"] - np.eye(n)
+
+    try:
+        state = damped_newton(lambda u: flow.end(u, 0.0, k * Tf) - u, jacobian, u0,
+                              done=lambda state: state.norm <= 1e-9 * scale, max_iter=max_iter,
+                              rejects=(CycleError,))
+    except Singular:
+        raise CycleError("the stroboscopic map has a multiplier 1 here; no isolated orbit") from None
+    if not state.norm <= 1e-7 * scale:
+        raise CycleError(f"the Newton iteration on P^{k} did not converge (gap {state.norm:.3g})")
+    if state.jacobian is None:
+        jacobian(state.x)
+    return state.x, monodromy["M"], state.iterations, state.norm
 
 
 def _minimal_multiple(flow, u0, Tf, k):
@@ -577,38 +567,30 @@ def find_map_cycle(system: CompiledSystem, p=None, period_k: int = 1, guess=None
 def _map_newton(system, f, p, u, k, max_iter):
     n = system.n_states
     eye = np.eye(n)
+    orbits = {}
 
     def orbit_of(u):
-        pts = [u]
-        product = eye
-        for _ in range(k):
-            product = system.jac(0.0, pts[-1], p) @ product
-            pts.append(np.asarray(f(0, pts[-1]), dtype=float))
-        return np.column_stack(pts), product
+        key = u.tobytes()
+        if key not in orbits:
+            pts = [u]
+            product = eye
+            for _ in range(k):
+                product = system.jac(0.0, pts[-1], p) @ product
+                pts.append(np.asarray(f(0, pts[-1]), dtype=float))
+            orbits.clear()
+            orbits[key] = np.column_stack(pts), product
+        return orbits[key]
 
+    failures = (ArithmeticError, ValueError, TypeError, np.linalg.LinAlgError)
     try:
-        pts, product = orbit_of(u)
-        residual = float(np.linalg.norm(pts[:, -1] - u))
-        for _ in range(max_iter):
-            scale = max(1.0, float(np.max(np.abs(u))))
-            if residual <= 1e-13 * scale:
-                break
-            step = np.linalg.solve(product - eye, -(pts[:, -1] - u))
-            lam, accepted = 1.0, False
-            while lam >= 1 / 64:
-                u_new = u + lam * step
-                pts_new, product_new = orbit_of(u_new)
-                r_new = float(np.linalg.norm(pts_new[:, -1] - u_new))
-                if r_new < residual:
-                    u, pts, product, residual, accepted = u_new, pts_new, product_new, r_new, True
-                    break
-                lam /= 2
-            if not accepted:
-                break
-    except (ArithmeticError, ValueError, TypeError, np.linalg.LinAlgError):
+        state = damped_newton(lambda u: orbit_of(u)[0][:, -1] - u, lambda u: orbit_of(u)[1] - eye,
+                              np.asarray(u, dtype=float), max_iter=max_iter, rejects=failures,
+                              done=lambda state: state.norm <= 1e-13 * max(1.0, float(np.max(np.abs(state.x)))))
+        pts, product = orbit_of(state.x)
+    except failures:
         return None
-    scale = max(1.0, float(np.max(np.abs(u))))
-    if not (np.all(np.isfinite(pts)) and residual <= 1e-10 * scale):
+    scale = max(1.0, float(np.max(np.abs(state.x))))
+    if not (np.all(np.isfinite(pts)) and state.norm <= 1e-10 * scale):
         return None
     return pts[:, :-1], product
 

@@ -26,6 +26,7 @@ from orbitdesk.language.angles import wrap_equilibria
 from orbitdesk.engine.model_events import describe_events
 from orbitdesk.engine.progress import CancelToken, Cancelled, Reporter
 from orbitdesk.system.compiled_system import MAP, CompiledSystem
+from orbitdesk.analyses.newton import damped_newton
 from orbitdesk.engine import limits
 
 HYPERBOLIC_RTOL = 1e-9  # |Re lambda| (flows) or ||mu| - 1| (maps) below this * max(1, rho) counts as zero
@@ -327,7 +328,8 @@ class _Undefined(Exception):
 
 
 def _residual_functions(system: CompiledSystem, p):
-    """G(x) = f(x) (maps: f(x) - x) and its Jacobian from the model's kernels (engine/compiled.py:
+    """G(x) = f(x) (maps: f(x) - x), its Jacobian, and for a system of more than SPARSE_STATES states
+    the Jacobian as a scipy sparse matrix (else None), from the model's kernels (engine/compiled.py:
     generated code, the sparse Jacobian); _Undefined where a value is not a finite number."""
     from orbitdesk.engine.compiled import python_engine
 
@@ -354,46 +356,58 @@ def _residual_functions(system: CompiledSystem, p):
             raise _Undefined
         return J - eye if is_map else J
 
-    return G, DG
+    if n <= SPARSE_STATES:
+        return G, DG, None
+    from scipy.sparse import csc_matrix, identity
+
+    rows, cols = kernels.JAC_ROWS, kernels.JAC_COLS
+    values = np.empty(rows.size)
+
+    def DG_sparse(x):
+        kernels.jac_values(0.0, np.ascontiguousarray(x, dtype=float), p, values)
+        if not np.all(np.isfinite(values)):
+            raise _Undefined
+        J = csc_matrix((values.copy(), (rows, cols)), shape=(n, n))
+        return J - identity(n, format="csc") if is_map else J
+
+    return G, DG, DG_sparse
 
 
 def _refine(G, DG, x, max_steps=100):
-    """Newton steps to full precision; returns (x, last step size, residual norm) or None."""
-    x = np.array(x, dtype=float)
-    r = G(x)
-    rn = float(np.linalg.norm(r))
-    step_norm, slow = math.inf, 0
-    for _ in range(max_steps):
-        if not np.all(np.isfinite(r)):
-            return None
-        if rn == 0.0:
-            step_norm = 0.0
-            break
-        J = DG(x)
-        if not np.all(np.isfinite(J)):
-            return None
-        try:
-            step = np.linalg.solve(J, -r)
-        except np.linalg.LinAlgError:  # exactly singular: the least-squares step
-            step = np.linalg.lstsq(J, -r, rcond=None)[0]
-        new = x + step
-        try:
-            r_new = G(new)
-        except _Undefined:
-            break
-        rn_new = float(np.linalg.norm(r_new))
-        if not np.isfinite(rn_new) or rn_new > rn:  # stuck at the rounding level
-            step_norm = min(step_norm, float(np.linalg.norm(step)))
-            break
-        new_norm = float(np.linalg.norm(step))
-        slow = slow + 1 if new_norm > 0.95 * step_norm else 0
-        step_norm = new_norm
-        x, r, rn = new, r_new, rn_new
-        if slow >= 5:  # not converging (a root at infinity, or a very high multiplicity)
-            break
-        if step_norm <= 1e-15 * max(1.0, float(np.linalg.norm(x))):
-            break
-    return x, step_norm, rn
+    """Newton steps to full precision (no damping: a step that does not lower |G| ends it, at the
+    rounding level); returns (x, last step size, residual norm) or None."""
+    track = {"steps": 0, "last": math.inf, "slow": 0}
+
+    def done(state):
+        if state.norm == 0.0:
+            state.step_norm = 0.0
+            return True
+        if state.steps > track["steps"]:
+            track["steps"] = state.steps
+            track["slow"] = track["slow"] + 1 if state.step_norm > 0.95 * track["last"] else 0
+            track["last"] = state.step_norm
+            # not converging (a root at infinity, a very high multiplicity), or converged
+            return track["slow"] >= 5 or state.step_norm <= 1e-15 * max(1.0, float(np.linalg.norm(state.x)))
+        return False
+
+    state = damped_newton(G, DG, x, done=done, max_iter=max_steps, min_damping=1.0, rejects=(_Undefined,),
+                          singular="lstsq")
+    if not np.all(np.isfinite(state.residual)):
+        return None
+    return state.x, (min(state.step_norm, state.tried) if state.stalled else state.step_norm), state.norm
+
+
+SPARSE_STATES = 24  # above this many states the starts run damped Newton on the sparse Jacobian, not hybr
+
+
+def _start(G, DG, DG_sparse, x0, f_scale):
+    """One start of the search: Powell's hybrid method (scipy, dense updates) on small systems; on
+    large ones damped Newton with the sparse Jacobian (hybr's updates cost n^2 an evaluation)."""
+    if DG_sparse is None:
+        return root(G, x0, jac=DG, method="hybr").x
+    state = damped_newton(G, DG_sparse, x0, max_iter=60, rejects=(_Undefined,), singular="lstsq",
+                          done=lambda state: state.norm <= 1e-10 * f_scale)
+    return state.x
 
 
 def _accept(refined, f_scale):
@@ -438,7 +452,7 @@ def find_equilibria(system: CompiledSystem, p=None, box: dict | None = None, sta
                      f"({describe_events(system)}) are not considered: an equilibrium beyond an event's boundary "
                      "is not reached by the runs, and a reset can move a solution away from one")
     n = system.n_states
-    G, DG = _residual_functions(system, p)
+    G, DG, DG_sparse = _residual_functions(system, p)
 
     solve = None
     if exact and n > EXACT_MAX_STATES:
@@ -446,13 +460,13 @@ def find_equilibria(system: CompiledSystem, p=None, box: dict | None = None, sta
     elif exact:
         solve = _ExactSolve(system, p)  # runs beside the Newton search: the numeric answer never waits for it
     try:
-        return _search(system, p, G, DG, box, starts, u0, solve, exact_timeout, report, notes)
+        return _search(system, p, G, DG, DG_sparse, box, starts, u0, solve, exact_timeout, report, notes)
     finally:
         if solve is not None:
             solve.close()
 
 
-def _search(system, p, G, DG, box, starts, u0, solve, exact_timeout, report, notes) -> "Equilibria":
+def _search(system, p, G, DG, DG_sparse, box, starts, u0, solve, exact_timeout, report, notes) -> "Equilibria":
     n = system.n_states
     full_box = default_box(system, p, u0)
     for name, (lo, hi) in (box or {}).items():
@@ -488,8 +502,7 @@ def _search(system, p, G, DG, box, starts, u0, solve, exact_timeout, report, not
         newton_report(k / len(candidates))
         try:
             with np.errstate(all="ignore"):
-                sol = root(G, x0, jac=DG, method="hybr")
-                refined = _refine(G, DG, sol.x)
+                refined = _refine(G, DG_sparse or DG, _start(G, DG, DG_sparse, x0, f_scale))
         except (_Undefined, np.linalg.LinAlgError, ValueError, FloatingPointError):
             continue
         if _accept(refined, f_scale) and _inside(refined[0], lows, highs):
