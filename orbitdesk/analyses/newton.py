@@ -1,10 +1,13 @@
 """One damped Newton iteration for G(x) = 0, shared by the analyses' solvers: the equilibria's
 refinement and their multi-start search on large systems, the shooting of limit cycles (autonomous
-and stroboscopic), the cycles of maps, and the time-scale probe's nearest equilibrium.
+and stroboscopic), the cycles of maps, the continuation's corrector and its stroboscopic polish, and
+the time-scale probe's nearest equilibrium.
 
 Each iteration solves J dx = -G(x) (a dense matrix by LAPACK, a scipy sparse one by its sparse LU)
 and tries x + lam dx for lam = 1, 1/2, ... down to ``min_damping``, taking the first trial that
 lowers |G|; when none does the iteration stops where it is (the rounding level, or no root in reach).
+Without damping (``min_damping=1``) it is Newton's plain iteration, stopping when a step does not
+lower |G|; ``monotone=False`` takes every finite step.
 G is evaluated at every trial, the Jacobian only at accepted points: for a cycle, a trial costs one
 run and the Jacobian a run with n tangent vectors (the monodromy matrix).
 """
@@ -64,7 +67,7 @@ def solve(J, b, singular: str = "raise") -> np.ndarray:
 def damped_newton(residual: Callable, jacobian: Callable, x0, *, done: Callable | None = None,
                   max_iter: int = 50, min_damping: float = 1 / 64, admissible: Callable | None = None,
                   rejects: tuple = (ArithmeticError,), singular: str = "raise", r0=None, J0=None,
-                  final_jacobian: bool = False) -> NewtonState:
+                  final_jacobian: bool = False, monotone: bool = True) -> NewtonState:
     """Newton's iteration on ``residual`` from ``x0`` with step halving.
 
     ``done(state)`` before each iteration: True stops (converged, or the caller's own stop).
@@ -72,6 +75,9 @@ def damped_newton(residual: Callable, jacobian: Callable, x0, *, done: Callable 
     residual raises one of ``rejects`` counts as not lowering |G|. ``singular`` as in ``solve``
     (with "raise", Singular propagates to the caller, who words it). ``r0``/``J0``: G and J at x0
     when the caller has them. ``final_jacobian``: make sure ``state.jacobian`` is J at the end point.
+    ``monotone=False``: plain Newton (every step with a finite residual is taken; the caller's
+    ``done`` judges convergence and divergence from ``state.step_norm``), as a continuation
+    corrector wants it.
     """
     x = np.array(x0, dtype=float)
     r = np.asarray(residual(x) if r0 is None else r0, dtype=float)
@@ -93,7 +99,7 @@ def damped_newton(residual: Callable, jacobian: Callable, x0, *, done: Callable 
                     n_new = float(np.linalg.norm(r_new))
                 except rejects:
                     n_new = math.inf
-                if n_new < state.norm:
+                if n_new < state.norm or (not monotone and math.isfinite(n_new)):
                     state.x, state.residual, state.norm, state.jacobian = x_new, r_new, n_new, None
                     state.step_norm, accepted = lam * state.tried, True
                     state.steps += 1

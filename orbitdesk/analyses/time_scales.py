@@ -17,6 +17,7 @@ from fractions import Fraction
 import numpy as np
 import sympy as sp
 
+from orbitdesk.analyses.newton import damped_newton
 from orbitdesk.engine.methods import DEFAULT, method as method_named
 from orbitdesk.engine.runs import RunSettings, simulate
 from orbitdesk.engine.stiff import STIFF_STEPS, looks_stiff, spectral_radius
@@ -103,21 +104,19 @@ def time_scale(system: CompiledSystem, p, u) -> TimeScale:
 
 
 def _nearest_equilibrium(system, p, u):
-    x = u.copy()
-    reach = 1.0 + float(np.max(np.abs(u), initial=0.0))
+    """Newton's plain iteration (analyses/newton.py) from u, at most 30 steps."""
+    def settled(state):
+        return state.norm <= 1e-10 * max(1.0, float(np.linalg.norm(state.x)))
+
     try:
-        for _ in range(30):
-            f = system.rhs(0.0, x, p)
-            if float(np.linalg.norm(f)) <= 1e-10 * max(1.0, float(np.linalg.norm(x))):
-                if float(np.max(np.abs(x - u))) <= 10 * reach:
-                    where = ", ".join(f"{s} = {v:.4g}" for s, v in zip(system.states, x))
-                    return x, f"the equilibrium {where}"
-                break
-            x = x - np.linalg.solve(system.jac(0.0, x, p), f)
-            if not np.all(np.isfinite(x)):
-                break
-    except (ArithmeticError, np.linalg.LinAlgError, ValueError):
-        pass
+        state = damped_newton(lambda x: system.rhs(0.0, x, p), lambda x: system.jac(0.0, x, p), u, done=settled,
+                              max_iter=30, min_damping=1.0, monotone=False, rejects=(ArithmeticError, ValueError))
+    except (ArithmeticError, np.linalg.LinAlgError, ValueError):  # Singular is an ArithmeticError
+        return u, "the start (no equilibrium found near it)"
+    reach = 1.0 + float(np.max(np.abs(u), initial=0.0))
+    if settled(state) and float(np.max(np.abs(state.x - u), initial=0.0)) <= 10 * reach:
+        where = ", ".join(f"{s} = {v:.4g}" for s, v in zip(system.states, state.x))
+        return state.x, f"the equilibrium {where}"
     return u, "the start (no equilibrium found near it)"
 
 

@@ -117,16 +117,24 @@ class _Writer:
     def __init__(self, system: CompiledSystem):
         self.t, self.u, self.p, _ = system._plain
         self.printer = _printer()
+        self.printed = system.__dict__.setdefault("_printed_kernel_lines", {})  # both paths' sources share it
 
-    def lines(self, exprs, store, array: str = "u") -> list[str]:
-        replacements, reduced = flat_cse(list(exprs), symbols=sp.numbered_symbols("_x"))
-        used = set()
-        for e in list(reduced) + [r for _, r in replacements]:
-            used |= e.free_symbols
-        lines = [f"{s.name} = {array}[{i}]" for i, s in enumerate(self.u) if s in used]
-        lines += [f"{s.name} = p[{i}]" for i, s in enumerate(self.p) if s in used]
-        lines += [f"{s.name} = {self.printer.doprint(e)}" for s, e in replacements]
-        return lines + store([self.printer.doprint(e) for e in reduced])
+    def lines(self, exprs, store, array: str = "u", key: str | None = None) -> list[str]:
+        """The loads, shared parts and ``store(printed values)``; ``key`` names ``exprs`` (one of the
+        system's lists, "f" or "entries") so their printing is done once per system."""
+        cached = self.printed.get((key, array)) if key is not None else None
+        if cached is None:
+            replacements, reduced = flat_cse(list(exprs), symbols=sp.numbered_symbols("_x"))
+            used = set()
+            for e in list(reduced) + [r for _, r in replacements]:
+                used |= e.free_symbols
+            lines = [f"{s.name} = {array}[{i}]" for i, s in enumerate(self.u) if s in used]
+            lines += [f"{s.name} = p[{i}]" for i, s in enumerate(self.p) if s in used]
+            lines += [f"{s.name} = {self.printer.doprint(e)}" for s, e in replacements]
+            cached = lines, [self.printer.doprint(e) for e in reduced]
+            if key is not None:
+                self.printed[(key, array)] = cached
+        return cached[0] + store(cached[1])
 
 
 def scalar_function(system: CompiledSystem, name: str, exprs) -> str:
@@ -160,7 +168,8 @@ def _split_model(w: _Writer, f, entries, store_f, guard: bool) -> list[str]:
     function took 10 s at 100 states)."""
     n, t = len(f), w.t.name
     values = (lambda vals: [f"_jv[{k}] = {v}" for k, v in enumerate(vals)])
-    lines = ["@_part_kernel", f"def _rhs({t}, z, p, out):"] + _indent(w.lines(f, store_f, "z"), guard) + ["", ""]
+    lines = ["@_part_kernel", f"def _rhs({t}, z, p, out):"] + _indent(w.lines(f, store_f, "z", "f"), guard)
+    lines += ["", ""]
     products = [f"for _i in range({n}, {n} + {n} * which):", "    out[_i] = 0.0",
                 f"for _e in range({len(entries)}):",
                 f"    _o = {n} + JAC_ROWS[_e] * which",
@@ -169,7 +178,7 @@ def _split_model(w: _Writer, f, entries, store_f, guard: bool) -> list[str]:
                 "    for _k in range(which):",
                 "        out[_o + _k] += _v * z[_s + _k]"]
     lines += ["@_part_kernel", f"def _tangent(which, {t}, z, p, out):", f"    _jv = np.empty({len(entries)})"]
-    lines += _indent(w.lines(entries, values, "z") + products, guard) + ["", ""]
+    lines += _indent(w.lines(entries, values, "z", "entries") + products, guard) + ["", ""]
     lines += ["@_model_kernel", f"def model(which, {t}, z, p, out):", f"    _rhs({t}, z, p, out)", "    if which != 0:",
               f"        _tangent(which, {t}, z, p, out)"]
     return lines
@@ -207,19 +216,20 @@ def kernel_source(system: CompiledSystem, guard: bool) -> str:
     store_f = (lambda values: [f"out[{i}] = {v}" for i, v in enumerate(values)])
     if len(entries) <= UNROLLED_ENTRIES:
         out += ["@_model_kernel", f"def model(which, {t}, z, p, out):", "    if which == 0:"]
-        out += _indent(w.lines(f, store_f, "z"), guard, " " * 8)
+        out += _indent(w.lines(f, store_f, "z", "f"), guard, " " * 8)
         out += ["    else:", "        for _k in range(which):", "            if _k == 0:"]
-        out += _indent(w.lines(f, store_f, "z"), guard, " " * 16)
-        out += _indent(w.lines(entries, products, "z"), guard, " " * 12)
+        out += _indent(w.lines(f, store_f, "z", "f"), guard, " " * 16)
+        out += _indent(w.lines(entries, products, "z", "entries"), guard, " " * 12)
     else:
         out += _split_model(w, f, entries, store_f, guard)
     out += ["", ""]
     out += ["@_jac_kernel", f"def jac({t}, u, p, out):"]
-    out += _indent(w.lines(entries, lambda values: [f"out[{r}, {c}] = {v}" for r, c, v in zip(rows, cols, values)]),
-                   guard)
+    out += _indent(w.lines(entries, lambda values: [f"out[{r}, {c}] = {v}" for r, c, v in zip(rows, cols, values)],
+                           key="entries"), guard)
     out += ["", ""]
     out += ["@_jac_values_kernel", f"def jac_values({t}, u, p, out):"]
-    out += _indent(w.lines(entries, lambda values: [f"out[{k}] = {v}" for k, v in enumerate(values)]), guard)
+    out += _indent(w.lines(entries, lambda values: [f"out[{k}] = {v}" for k, v in enumerate(values)], key="entries"),
+                   guard)
     if system.stochastic:
         G, L, _ = noise_terms(system)
         out += ["", "", "@_sde_kernel", f"def sde(which, {t}, z, p, out):",

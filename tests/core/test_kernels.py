@@ -128,3 +128,32 @@ def test_kernels_are_cached_in_a_private_folder_and_checked(tmp_path, monkeypatc
     assert compiled.cache_folder() is None
     os.chmod(folder, 0o700)
     assert compiled.cache_folder() == folder
+
+
+def test_200_state_chain_has_one_equilibrium_with_the_closed_form_eigenvalues():
+    # 100 masses between two walls: the origin is the only equilibrium (springs and the cubic term both
+    # pull back); its eigenvalues are -c/2 +- i sqrt(4 k sin^2(j pi / (2 (N + 1))) - c^2/4), j = 1..N
+    # (the fixed-end chain's Laplacian, closed form); found by damped Newton on the sparse Jacobian
+    from orbitdesk.analyses.equilibria import find_equilibria
+
+    N, k, c = 100, 1.0, 0.05
+    system = compile_model(chain(N))
+    found = find_equilibria(system, exact=False, starts=6)
+    assert len(found) == 1 and np.max(np.abs(found[0].vector)) < 1e-12
+    values = found[0].eigenvalues
+    omega = np.sqrt(4 * k * np.sin(np.arange(1, N + 1) * np.pi / (2 * (N + 1))) ** 2 - c**2 / 4)
+    assert np.allclose(values.real, -c / 2, atol=1e-9)
+    assert np.allclose(np.sort(np.abs(values.imag)), np.sort(np.concatenate([omega, omega])), atol=1e-9)
+    assert found[0].stable and found[0].kind == "stable focus"
+
+
+@needs_numba
+def test_200_state_chain_spectrum_sums_to_the_trace():
+    # the sum of all exponents is the time average of the Jacobian's trace: -N c for the chain (closed
+    # form: each velocity carries -c); 200 tangent vectors through the kernel's sparse products
+    from orbitdesk.analyses.lyapunov import lyapunov_spectrum
+
+    system = compile_model(chain(100))
+    result = lyapunov_spectrum(system, t_end=3.0, transient=0.5)
+    assert result.ok and result.exponents.size == 200 and np.all(np.isfinite(result.exponents))
+    assert result.exponents.sum() == pytest.approx(-100 * 0.05, abs=1e-6)

@@ -23,6 +23,7 @@ import numpy as np
 
 from orbitdesk.engine.progress import CancelToken, Reporter
 from orbitdesk.analyses.continuation.functions import ContinuationError
+from orbitdesk.analyses.newton import Singular, damped_newton
 
 STEP_REASONS = {
     "end": "reached the end of the parameter interval",
@@ -62,7 +63,9 @@ class Curve:
 
 
 def newton_bordered(problem, x_pred, tangent, settings: StepSettings, anchor=None, target=0.0):
-    """Correct ``x_pred`` onto G = 0 with the hyperplane t.(x - anchor) = target (anchor: x_pred).
+    """Correct ``x_pred`` onto G = 0 with the hyperplane t.(x - anchor) = target (anchor: x_pred):
+    Newton's plain iteration (analyses/newton.py), failing when a step after the second is more than
+    twice the one before it.
 
     Returns (x, iterations) or (None, iterations) when the corrector fails."""
     anchor = x_pred if anchor is None else anchor
@@ -70,30 +73,34 @@ def newton_bordered(problem, x_pred, tangent, settings: StepSettings, anchor=Non
     scale = 1.0 + float(np.linalg.norm(x))
     # problems whose residual comes from an integration set a looser tolerance (``problem.tolerance``)
     tolerance = max(settings.tolerance, getattr(problem, "tolerance", 0.0))
-    last = math.inf
-    for it in range(1, settings.max_iterations + 1):
-        try:
-            with np.errstate(all="ignore"):
-                G = problem.residual(x)
-                A = np.vstack([problem.jacobian(x), tangent])
-            rhs = -np.concatenate([G, [float(tangent @ (x - anchor)) - target]])
-            dx = np.linalg.solve(A, rhs)
-        except (ContinuationError, np.linalg.LinAlgError, ValueError):
-            return None, it
-        if not np.all(np.isfinite(dx)):
-            return None, it
-        size = float(np.linalg.norm(dx))
-        if it > 2 and size > 2 * last:
-            return None, it
-        x = x + dx
-        last = size
-        if size <= tolerance * scale:
-            try:
-                ok = np.all(np.isfinite(problem.residual(x)))
-            except ContinuationError:
-                return None, it
-            return (x, it) if ok else (None, it)
-    return None, settings.max_iterations
+    outcome = {"last": math.inf, "converged": False}
+
+    def residual(z):
+        with np.errstate(all="ignore"):
+            return np.concatenate([problem.residual(z), [float(tangent @ (z - anchor)) - target]])
+
+    def jacobian(z):
+        with np.errstate(all="ignore"):
+            return np.vstack([problem.jacobian(z), tangent])
+
+    def done(state):
+        if state.steps == 0:
+            return False
+        size, last = state.step_norm, outcome["last"]
+        outcome["last"] = size
+        if state.steps > 2 and size > 2 * last:
+            return True  # diverging
+        outcome["converged"] = size <= tolerance * scale
+        return outcome["converged"] or state.steps >= settings.max_iterations
+
+    try:
+        state = damped_newton(residual, jacobian, x, done=done, max_iter=settings.max_iterations + 1,
+                              min_damping=1.0, monotone=False, rejects=(ContinuationError, ValueError))
+    except (ContinuationError, ValueError, Singular):
+        return None, 1
+    if not outcome["converged"]:
+        return None, max(state.steps, 1)
+    return state.x, state.steps
 
 
 def tangent_at(problem, x, reference) -> np.ndarray | None:

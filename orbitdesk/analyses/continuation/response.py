@@ -26,6 +26,7 @@ from orbitdesk.analyses.continuation.branches import check_interval, default_set
 from orbitdesk.analyses.continuation.functions import ContinuationError, ModelFunctions, extreme, integrate
 from orbitdesk.analyses.continuation.points import FixedPointProblem, map_stability
 from orbitdesk.analyses.continuation.results import ResponseCurve
+from orbitdesk.analyses.newton import Singular, damped_newton
 
 SAMPLES = 200
 
@@ -228,19 +229,24 @@ def _settle(funcs, problem, u, pv, max_periods, cancel, tol=1e-9):
 
 
 def _newton_strobe(problem, u, pv, iterations=8):
-    """Newton on P(u) = u, accepted only when it converges to a stable response (the one the run approaches)."""
-    x = np.append(u, pv[problem.k])
-    for _ in range(iterations):
-        P, M, _ = problem.mapping(x[:-1], pv, problem.k)
-        try:
-            step = np.linalg.solve(M - np.eye(len(u)), -(P - x[:-1]))
-        except np.linalg.LinAlgError:
-            return None
-        x[:-1] += step
-        if np.linalg.norm(step) < 1e-11 * (1 + np.linalg.norm(x[:-1])):
-            M = problem.mapping(x[:-1], pv, problem.k)[1]
-            if map_stability(np.linalg.eigvals(M)) and np.linalg.norm(x[:-1] - u) < 0.1 * (1 + np.linalg.norm(u)):
-                return x[:-1]
-            return None
-    return None
+    """Newton on P(u) = u (plain steps, analyses/newton.py), accepted only when it converges to a
+    stable response (the one the run approaches)."""
+    maps = {}
 
+    def residual(v):
+        P, maps["M"], _ = problem.mapping(v, pv, problem.k)
+        return P - v
+
+    def small(state):
+        return state.steps > 0 and state.step_norm < 1e-11 * (1 + np.linalg.norm(state.x))
+
+    try:
+        state = damped_newton(residual, lambda v: maps["M"] - np.eye(len(u)), np.array(u, dtype=float),
+                              done=lambda state: small(state) or state.steps >= iterations,
+                              max_iter=iterations + 1, min_damping=1.0, monotone=False, rejects=())
+    except Singular:
+        return None
+    if small(state) and map_stability(np.linalg.eigvals(maps["M"])) \
+            and np.linalg.norm(state.x - u) < 0.1 * (1 + np.linalg.norm(u)):
+        return state.x
+    return None
