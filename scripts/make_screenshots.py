@@ -2,6 +2,10 @@
 """Regenerate the README's screenshots from the real app: ``docs/screenshots/*.png``.
 
     .venv/bin/python scripts/make_screenshots.py [--only NAME ...] [--out DIR]
+    .venv/bin/python scripts/make_screenshots.py --steps [SAMPLE ...] --out DIR
+
+With --steps, every walkthrough step of every sample (or of the samples named) instead: one PNG per step,
+SAMPLE-NN.png, in a 1600x1000 window, to look at each step as a user meets it.
 
 Opens sample projects in the main window, shows walkthrough steps, waits until every background job
 has finished and saves the whole window. Without a screen (DISPLAY unset) it starts a private Xvfb,
@@ -85,7 +89,7 @@ class Shooter:
             self.app.processEvents()
             time.sleep(0.01)
 
-    def settle(self, timeout: float = 60.0, quiet: float = 0.8) -> None:
+    def settle(self, timeout: float = 180.0, quiet: float = 0.8) -> None:
         """Until no background job has run for ``quiet`` seconds (or ``timeout``)."""
         s = self.window.session
         end, calm_since = time.monotonic() + timeout, None
@@ -217,16 +221,37 @@ SHOTS = [convection_loop_3d, shaken_beam_sections, pendulum_separatrix, insect_g
          stirred_tank_bifurcation, walkthrough_presenting, language_reference, bracket_fit, rocking_buoy_noise]
 
 
+def walkthrough_steps(sh: Shooter, names: list[str]) -> None:
+    """Every step of each sample's walkthrough, one picture per step (SAMPLE-NN.png, NN from 01)."""
+    sh.window.resize(*SCREEN)
+    for name in names or sorted(p.stem for p in SAMPLES.glob("*.orbitdesk")):
+        print(f"{name}:")
+        sh.open_sample(name)
+        panel = sh.window.walkthrough_panel
+        for i in range(len(panel.steps)):
+            sh.show_step(i)
+            sh.save(f"{name}-{i + 1:02d}")
+        panel.leave()
+        sh.settle()
+
+
 def main(argv=None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--only", nargs="*", metavar="NAME", help="just these shots: "
                         + ", ".join(f.__name__ for f in SHOTS))
     parser.add_argument("--out", type=Path, default=OUT, help=f"folder for the PNG files (default {OUT})")
+    parser.add_argument("--steps", nargs="*", metavar="SAMPLE", default=None,
+                        help="a picture of every walkthrough step of these samples (all when none are named)")
     args = parser.parse_args(argv)
-    wanted = [f for f in SHOTS if not args.only or f.__name__ in args.only]
-    unknown = set(args.only or ()) - {f.__name__ for f in SHOTS}
-    if unknown:
-        parser.error(f"no shot called {', '.join(sorted(unknown))}")
+    if args.steps is not None:
+        wanted = [lambda sh: walkthrough_steps(sh, args.steps)]
+        wanted[0].__doc__ = "every walkthrough step"
+        wanted[0].__name__ = "walkthrough_steps"
+    else:
+        wanted = [f for f in SHOTS if not args.only or f.__name__ in args.only]
+        unknown = set(args.only or ()) - {f.__name__ for f in SHOTS}
+        if unknown:
+            parser.error(f"no shot called {', '.join(sorted(unknown))}")
     xvfb = ensure_display()
     try:
         args.out.mkdir(parents=True, exist_ok=True)
