@@ -83,10 +83,18 @@ class Shooter:
         self.out = out
         self.spin(0.5)
 
+    def pump(self) -> None:
+        """What the app's event loop does each round, deleting the objects marked for deletion too
+        (processEvents alone leaves them on screen: stale tab bars and labels seen nowhere in the app)."""
+        from PySide6.QtCore import QCoreApplication, QEvent
+
+        self.app.processEvents()
+        QCoreApplication.sendPostedEvents(None, QEvent.Type.DeferredDelete)
+
     def spin(self, seconds: float) -> None:
         end = time.monotonic() + seconds
         while time.monotonic() < end:
-            self.app.processEvents()
+            self.pump()
             time.sleep(0.01)
 
     def settle(self, timeout: float = 180.0, quiet: float = 0.8) -> None:
@@ -94,7 +102,7 @@ class Shooter:
         s = self.window.session
         end, calm_since = time.monotonic() + timeout, None
         while time.monotonic() < end:
-            self.app.processEvents()
+            self.pump()
             busy = s.busy or s._run_timer.isActive() or s._validate_timer.isActive()
             if busy:
                 calm_since = None

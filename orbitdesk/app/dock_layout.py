@@ -5,46 +5,11 @@ their widths. Used when a walkthrough step opens its views and when the user ope
 from __future__ import annotations
 
 from PySide6.QtCore import QTimer, Qt
-from PySide6.QtWidgets import QDockWidget, QStyle, QTabBar
+from PySide6.QtWidgets import QStyle
 
 
 def is_open(dock) -> bool:
     return dock.toggleViewAction().isChecked()
-
-
-def hide_stray_tab_bars(window) -> int:
-    """Hide the window's dock tab bars that belong to no tab group of open docks any more.
-
-    Restoring a saved layout (Qt 6.11) can leave the tab bar of a group it took apart on screen, drawn over
-    the docks below it ("Phase plane | Time series" over a table after leaving a walkthrough). A tab bar of
-    the window is kept when its tabs are open docks that Qt counts as one tab group. Returns how many were
-    hidden."""
-    open_docks = {}
-    for dock in window.findChildren(QDockWidget):
-        if dock.parent() is window and is_open(dock) and not dock.isFloating():
-            open_docks.setdefault(dock.windowTitle(), []).append(dock)
-    hidden = 0
-    for bar in window.findChildren(QTabBar):
-        if bar.parent() is not window or not bar.isVisible():
-            continue
-        titles = [bar.tabText(i) for i in range(bar.count())]
-        if not titles or not _one_group(window, [open_docks.get(t, []) for t in titles]):
-            bar.hide()
-            hidden += 1
-    return hidden
-
-
-def _one_group(window, candidates: list[list]) -> bool:
-    """Whether some choice of one dock per title (all open) forms one tab group."""
-    if any(not c for c in candidates):
-        return False
-    if len(candidates) == 1:
-        return True
-    for first in candidates[0]:
-        group = set(window.tabifiedDockWidgets(first)) | {first}
-        if all(any(d in group for d in c) for c in candidates[1:]):
-            return True
-    return False
 
 
 def show_docks(window, wanted: list[str], arrange: bool) -> None:
@@ -148,7 +113,6 @@ def _rebuild_docks(window, docks: list) -> None:
     docks[-1].raise_()
     def settle():  # once the new layout has settled: side panels as they were, rows of equal height
         widths(first)
-        hide_stray_tab_bars(window)
         if len(rows) > 1:
             height = sum(row[0].height() for row in rows) // len(rows)
             window.resizeDocks([row[0] for row in rows], [height] * len(rows), V)

@@ -20,7 +20,6 @@ from orbitdesk.engine.settings import SettingsError
 from orbitdesk.document.project import ProjectError
 
 from orbitdesk.app import views as views_pkg
-from orbitdesk.app.dock_layout import hide_stray_tab_bars
 from orbitdesk.app.errors import Notices
 from orbitdesk.app.file_guard import DocumentGuard
 from orbitdesk.app.panels.noise_controls import NoiseControls
@@ -627,13 +626,6 @@ class MainWindow(QMainWindow):
         except UnicodeEncodeError:
             return False
         return bool(self.restoreState(data))
-
-    def restoreState(self, state, version: int = 0) -> bool:  # noqa: N802 - Qt's name
-        """QMainWindow.restoreState, then no tab bar left over from the layout before (dock_layout)."""
-        done = super().restoreState(state, version)
-        hide_stray_tab_bars(self)
-        QTimer.singleShot(0, self, lambda: hide_stray_tab_bars(self))
-        return done
 
     def reset_layout(self) -> None:
         self.restoreState(self._default_state)
