@@ -887,7 +887,8 @@ def bracket_sample():
              "The points are drawn over the model's run (started at the large pluck). With the first "
              "guesses `c = 1`, `k = 120`, `k3 = 0` the model swings too slowly: it falls behind the points "
              "within a second.",
-             {"open_views": ["timeseries", "fit"], "views": {"timeseries": {"series": ["x"]}}}),
+             {"open_views": ["timeseries", "fit"],
+              "views": {"timeseries": {"series": ["x"]}, "fit": {"page": "set up"}}}),
             ("Loading a record",
              "A record is a CSV file: a header line, the time first, then columns named after the model's "
              "states, units in brackets (`t [s], x [mm]`). These two are in `orbitdesk/samples/data/`; "
@@ -895,24 +896,24 @@ def bracket_sample():
              "a checksum, so the project still opens where the file is gone. A column named differently "
              "is matched to a state in a dialog; a bad cell is refused with its line and column.\n\n"
              "The Fit panel lists the data sets. Each keeps its own starting deflection.",
-             {"open_views": ["fit", "timeseries"]}),
+             {"open_views": ["fit", "timeseries"], "views": {"fit": {"page": "set up"}}}),
             ("Fitting both plucks at once",
              "In the Fit panel `c`, `k`, `k3` and the starting deflection `x(0)` are ticked; the bounds are "
              "the slider ranges. Press **Fit**: both records are fitted together, sharing the bracket's "
              "parameters, each with its own `x(0)`. The sensitivity equations give the derivatives, so "
              f"the fit needs only a few model runs ({both.evaluations} here).",
-             {"open_views": ["fit", "timeseries"]}),
+             {"open_views": ["fit", "timeseries"], "views": {"fit": {"page": "set up"}}}),
             ("The fitted bracket",
-             f"The fit gives {_pm(c)} per second, {_pm(k)} and {_pm(k3)} (estimate ± standard "
+             f"This step has run the fit (the Result page of the Fit panel). It gives {_pm(c)} per second, {_pm(k)} and {_pm(k3)} (estimate ± standard "
              f"error). The records were made with `c = {BRACKET_TRUTH['c']}`, `k = {BRACKET_TRUTH['k']:g}`, "
              f"`k3 = {BRACKET_TRUTH['k3']:g}`: each estimate is within a few standard errors of it.\n\n"
              f"The model now runs through the points; the residual RMS is {rms:.3f} mm, the size of the "
              "gauge noise. Tick **Show residuals** to see the misfit at each point. **Apply to model** "
              "puts these values into the model (Edit > Undo takes them back); **Keep as set** stores "
              "them under a name instead.",
-             {"parameters": fitted, "open_views": ["timeseries", "fit"]}),
+             {"parameters": fitted, "open_views": ["timeseries", "fit"], "views": {"fit": {"page": "result"}}}),
             ("Reading the uncertainty",
-             f"The 95 % interval of `k3` runs from {k3.interval[0]:.3g} to {k3.interval[1]:.3g}: a range "
+             f"The Result page lists each estimate with its 95 % interval: that of `k3` runs from {k3.interval[0]:.3g} to {k3.interval[1]:.3g}: a range "
              "the data cannot narrow further. The correlation table shows how estimates lean on each "
              f"other: `k` and `k3` have correlation {r_k_k3:+.2f}, because a stiffer spring can partly "
              "stand in for a stronger stiffening.\n\n"
@@ -920,7 +921,7 @@ def bracket_sample():
              f"Fitted alone, the small pluck gives `k3 = {small_k3.value:.3g} ± {small_k3.stderr:.2g}`: "
              "far less certain. When the panel warns of strongly correlated or nearly undetermined "
              "estimates, fix one of them or add a record that separates them.",
-             {"parameters": fitted, "open_views": ["fit", "phase_plane"]}),
+             {"parameters": fitted, "open_views": ["fit", "phase_plane"], "views": {"fit": {"page": "result"}}}),
         ])
     project.datasets = sets
     return file, project

@@ -39,7 +39,7 @@ VIEW_SETTINGS: dict[str, dict] = {
                     "tab": "integer", "branches": "list", "response": "table", "stepped_sweeps": "list",
                     "locus": "table"},
     "fit": {"parameters": "list", "local": "list", "initial": "list", "bounds": "list", "weights": "list",
-            "segments": "integer", "max_evaluations": "integer"},
+            "segments": "integer", "max_evaluations": "integer", "page": ("set up", "result")},
     "basins": {"x": {"state": "state", "from": "number", "to": "number", "count": "integer"},
                "y": {"state": "state", "from": "number", "to": "number", "count": "integer"},
                "transient": "number", "strobe": "bool", "period": "number", "manifolds": "bool"},

@@ -166,3 +166,50 @@ def test_run_as_a_data_set_and_take_the_model_values(qtbot, session, loaded):
     assert loaded.datasets[0].initial == {"x": 1.0, "x'": 0.0}
     session.undo_stack.undo()
     assert loaded.datasets[0].initial == {"x": 0.7}
+
+
+def test_bracket_walkthrough_shows_the_fit_its_notes_read_off(qtbot, window):
+    """The bracket sample's last steps speak of the fitted values, their intervals and the correlation of k
+    and k3: those steps show the Fit panel's Result page with the fit for the step's values (the step runs
+    it), and the numbers there are the ones the notes quote (written by scripts/make_samples.py from the
+    core's fit of the invented records; the records were made with c = 0.9, k = 158, k3 = 22). The first
+    steps, before the note says "press Fit", run no fit."""
+    import re
+
+    from orbitdesk.app import help as help_ui
+    from orbitdesk.app.datastore import data_store
+    from tests.app.test_samples_in_app import wait_idle_run
+
+    s, panel = window.session, window.walkthrough_panel
+    help_ui.open_sample(window, help_ui.SAMPLES_DIR / "bracket_pluck.orbitdesk")
+    wait_idle_run(qtbot, s)
+    store = data_store(s)
+    for i in range(3):
+        panel.show_step(i)
+        wait_idle_run(qtbot, s)
+        view = window.views["fit"]
+        assert view.tabs.tabText(view.tabs.currentIndex()) == "Set up" and not s.busy and store.result is None
+    for i in (3, 4):
+        panel.show_step(i)
+        view = window.views["fit"]
+        qtbot.waitUntil(lambda: store.result is not None and not s.jobs.running("fit"), timeout=120000)
+        assert view.tabs.tabText(view.tabs.currentIndex()) == "Result"
+        rows = {view.results.item(r, 0).text(): r for r in range(view.results.rowCount())}
+        note = panel.steps[i].note
+        if i == 3:  # "c = 0.8989 ± 0.0015": the value and standard error on the page
+            for name, value, err in re.findall(r"`(\w+) = ([\d.]+) ± ([\d.]+)`", note):
+                r = rows[name]
+                assert float(view.results.item(r, 1).text()) == pytest.approx(float(value), abs=10 ** -len(
+                    value.split(".")[1]))
+                assert float(view.results.item(r, 2).text()) == pytest.approx(float(err), rel=0.05)
+        else:  # "runs from 21.9 to 22.1", "correlation -0.76"
+            lo, hi = map(float, re.search(r"`k3` runs from ([\d.]+) to ([\d.]+)", note).groups())
+            shown = view.results.item(rows["k3"], 3).text().split(" … ")
+            assert float(shown[0]) == pytest.approx(lo, abs=0.05) and float(shown[1]) == pytest.approx(hi, abs=0.05)
+            corr = re.search(r"correlation ([-+][\d.]+)", note).group(1)
+            names = [view.correlation.horizontalHeaderItem(c).text() for c in range(view.correlation.columnCount())]
+            assert view.correlation.item(names.index("k"), names.index("k3")).text() == f"{float(corr):+.2f}"
+            assert view.correlation.isVisibleTo(view)
+    fits = store.result
+    panel.show_step(4)  # the same values again: the fit shown is kept, nothing runs
+    assert store.result is fits and not s.jobs.running("fit")

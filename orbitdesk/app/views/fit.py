@@ -102,9 +102,17 @@ def _parse_bound(text: str):
     return v if math.isfinite(v) else None
 
 
+PAGES = ("set up", "result")
+
+
 class FitView(SessionView):
+    """The Fit to data panel. Its analysis contract: ``compute()`` runs the fit, ``result`` is the latest fit
+    result; it computes on request only while its Result page is shown (a walkthrough step that shows the
+    Result page shows the fit for the step's values: the step runs it)."""
+
     view_id = "fit"
     title = "Fit to data"
+    on_request = True
 
     def __init__(self, session, parent=None):
         super().__init__(session, parent)
@@ -210,7 +218,8 @@ class FitView(SessionView):
         return {"parameters": list(ch["parameters"]), "local": list(ch["local"]), "initial": list(ch["initial"]),
                 "bounds": [[k, lo, hi] for k, (lo, hi) in ch["bounds"].items()],
                 "weights": [[k, w] for k, w in ch["weights"].items()],
-                "segments": self.segments.value(), "max_evaluations": self.max_evals.value()}
+                "segments": self.segments.value(), "max_evaluations": self.max_evals.value(),
+                "page": PAGES[self.tabs.currentIndex()]}
 
     def apply_view_settings(self, d: dict) -> None:
         if not isinstance(d, dict):
@@ -224,6 +233,8 @@ class FitView(SessionView):
         self.max_evals.setValue(ev if isinstance(ev, int) and not isinstance(ev, bool) else 400)
         self._fill_unknowns(read=False)
         self._fill_weights(read=False)
+        if d.get("page") in PAGES:
+            self.tabs.setCurrentIndex(PAGES.index(d["page"]))
 
     def _on_project_loaded(self) -> None:
         self.apply_view_settings(self.saved_view_settings())
@@ -402,6 +413,19 @@ class FitView(SessionView):
                            bounds=bounds, weights=dict(ch.get("weights", {})),
                            multiple_shooting=self.segments.value(), max_evaluations=self.max_evals.value(),
                            t_start=s.t_start, method=s.method)
+
+    # ------------------------------------------------------------ the analysis contract
+    @property
+    def result(self):
+        """The latest fit result (None: none yet)."""
+        return self.store.result
+
+    def follows_values(self) -> bool:
+        """Nothing to compute while the set-up page is shown; the Result page shows a fit of the values now set."""
+        return PAGES[self.tabs.currentIndex()] != "result"
+
+    def compute(self) -> None:
+        self.run_fit()
 
     # ------------------------------------------------------------ running
     def run_fit(self) -> None:
