@@ -753,7 +753,8 @@ RATTLING_FLAP = sample(
     "rattling_flap.orbitdesk", "A flap rattling against its stop", FLAP_MODEL,
     dict(method="dop853", t_end=300.0, samples=12000),
     {"timeseries": {"series": ["x"]}, "phase_plane": {"x": "x", "y": "x'", "arrows": False},
-     "sections": {"kind": "strobe", "period": FLAP_PERIOD, "count": 200, "transient": 300.0}},
+     "sections": {"kind": "strobe", "period": FLAP_PERIOD, "count": 200, "transient": 300.0,
+                  "axes": ["x", "x'"]}},
     "Impacts as events: a shaken flap that swings freely, rattles once or twice per shake, or rattles chaotically.",
     [
         ("Shaken, but not touching",

@@ -197,3 +197,22 @@ def test_plane_section_of_a_delay_model(qtbot, session, artifacts):
     result = wait_section(qtbot, view, view.compute)
     np.testing.assert_allclose(result.times, [3.0, 7.0, 11.0, 15.0, 19.0], atol=1e-6)
     view.grab().save(os.path.join(artifacts, "view_sections_delay.png"))
+
+
+def test_a_period_one_section_is_shown_as_a_dot_at_the_scale_of_the_run(qtbot, session):
+    """The steady response of a damped linear oscillator is periodic with the forcing period, so its strobe
+    section is one point (closed form in the test above); the plot shows it at the scale of the run (a
+    twentieth of the run's range at least), not its round-off spread blown up to fill the axes."""
+    view = make_view(qtbot, session)
+    view.count.setValue(20)
+    view.transient.setValue(150.0)
+    result = wait_section(qtbot, view, lambda: load(qtbot, session, FORCED_LINEAR))
+    x, v = result.points
+    traj = session.trajectory
+    assert np.ptp(x) < 1e-6 and np.ptp(v) < 1e-6  # one point, to round-off
+    for plot, extents in ((view.section_plot, (np.ptp(traj.series("x")), np.ptp(traj.series("v")))),
+                          (view.return_plot, (np.ptp(traj.series("x")),) * 2)):
+        for (lo, hi), extent in zip(plot.getViewBox().viewRange(), extents):
+            assert hi - lo >= 0.05 * extent * (1 - 1e-9)
+    (lo, hi), _ = view.section_plot.getViewBox().viewRange()
+    assert lo <= x.min() and x.max() <= hi  # and the dot is in sight

@@ -430,6 +430,18 @@ class SectionsView(SessionView):
         if refit:
             self.section_plot.autoRange(padding=0.06)
             self.return_plot.autoRange(padding=0.06)
+            widen_to_scale(self.section_plot, self._run_extent(h), self._run_extent(v))
+            widen_to_scale(self.return_plot, self._run_extent(r), self._run_extent(r))
+
+    def _run_extent(self, name: str) -> float:
+        """How far ``name`` ranges over the run (0: not known): the scale a section of it is shown at."""
+        traj = self.session.trajectory
+        try:
+            values = np.asarray(traj.series(name), dtype=float) if traj is not None and name else np.empty(0)
+        except KeyError:
+            return 0.0
+        values = values[np.isfinite(values)]
+        return float(values.max() - values.min()) if values.size else 0.0
 
     def _restyle(self) -> None:
         style_plot(self.plot_widget, self)
@@ -438,3 +450,17 @@ class SectionsView(SessionView):
 
 
 VIEW = SectionsView
+
+MIN_SHARE = 0.05  # a section's axis spans at least this share of the run's range in that coordinate
+
+
+def widen_to_scale(plot, x_extent: float, y_extent: float) -> None:
+    """Widen a fitted plot whose points all but coincide to a span set by the run (``MIN_SHARE`` of its
+    range in each coordinate; lacking one, a thousandth of the value): a period-1 section is a dot, not a
+    line of round-off magnified to fill the plot (with tick labels like 2.1872e-1)."""
+    vb = plot.getViewBox()
+    for (lo, hi), extent, set_range in zip(vb.viewRange(), (x_extent, y_extent), (vb.setXRange, vb.setYRange)):
+        centre = 0.5 * (lo + hi)
+        floor = MIN_SHARE * extent if extent > 0 else 1e-3 * max(1.0, abs(centre))
+        if hi - lo < floor:
+            set_range(centre - floor / 2, centre + floor / 2, padding=0)
