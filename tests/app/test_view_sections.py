@@ -216,3 +216,16 @@ def test_a_period_one_section_is_shown_as_a_dot_at_the_scale_of_the_run(qtbot, s
             assert hi - lo >= 0.05 * extent * (1 - 1e-9)
     (lo, hi), _ = view.section_plot.getViewBox().viewRange()
     assert lo <= x.min() and x.max() <= hi  # and the dot is in sight
+
+
+def test_a_model_after_a_one_state_model_gets_its_own_section_axes(qtbot, session):
+    """After a one-state model (its section points can only be drawn against the time) a forced oscillator's
+    section is drawn x against x' (the picture of a strobe section), not x against the time kept from before
+    (seen on opening the shaken beam and flap samples: two columns of dots against t where the notes speak of
+    "two dots")."""
+    view = make_view(qtbot, session)
+    load(qtbot, session, "k = 1\nu' = -k*u\nu(0) = 1\n")
+    qtbot.waitUntil(lambda: view.v_combo.currentText() == "t")
+    load(qtbot, session, DUFFING)
+    qtbot.waitUntil(lambda: view.h_combo.currentText() == "x")
+    assert view.v_combo.currentText() == "x'"

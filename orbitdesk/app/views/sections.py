@@ -262,8 +262,9 @@ class SectionsView(SessionView):
                 states = list(system.states)
                 self.coordinate.setCurrentIndex(plane_names.index(keep[0]) if keep[0] in plane_names else 0)
                 h = keep[1] if keep[1] in names and keep[1] != system.time_name else states[0]
-                v = keep[2] if keep[2] in names and keep[2] != h else (states[1] if len(states) > 1
-                                                                         else system.time_name)
+                # the time only when nothing else is left: a time kept from a one-state model before is not a choice
+                v = keep[2] if keep[2] in plane_names and keep[2] != h else (states[1] if len(states) > 1
+                                                                             else system.time_name)
                 self.h_combo.setCurrentIndex(names.index(h))
                 self.v_combo.setCurrentIndex(names.index(v))
                 self.r_combo.setCurrentIndex(plane_names.index(keep[3]) if keep[3] in plane_names else 0)
