@@ -155,3 +155,21 @@ def test_the_series_list_is_wide_enough_for_long_names(qtbot, session):
     assert names.width() >= widest + 40  # check box and swatch beside the whole name, not "front_coupli"
     rect = names.visualItemRect(names.item(1))
     assert rect.right() <= names.viewport().width()
+
+
+def test_the_phase_planes_hint_is_read_whole(qtbot, session):
+    """With a derived quantity on an axis the phase plane says why clicking starts nothing; at the width the
+    window gives it beside the model panel and a walkthrough (about 860 px) the hint was cut off after "are s"
+    (the shower sample's first step). Its whole text fits in the label, on two lines if need be."""
+    from .conftest import load_model, open_view
+
+    view = open_view(qtbot, session, "phase_plane", (860, 500))
+    qtbot.waitExposed(view)
+    load_model(qtbot, session, "k = 2\nx' = -k*x\nx(0) = 1\nhalf = x/2\n", dict(t_end=1.0, samples=50))
+    view.set_axes("half", "x")
+    hint = view.hint
+    qtbot.waitUntil(lambda: hint.text().startswith("Clicking starts"))
+    qtbot.waitUntil(lambda: hint.height() >= hint.heightForWidth(hint.width()))
+    lines = -(-hint.fontMetrics().horizontalAdvance(hint.text()) // max(1, hint.width()))  # lines the text needs
+    assert hint.height() >= lines * hint.fontMetrics().lineSpacing()
+    assert hint.geometry().right() < view.clear_button.geometry().left()  # not under the buttons beside it

@@ -16,7 +16,8 @@ from orbitdesk.app.plots.data_overlay import DataOverlay
 from orbitdesk.app.plots.event_marks import EventMarks
 from orbitdesk.app.plots.plot_style import ScreenCurve
 from orbitdesk.app.views.common import (SessionView, check_box, clicked_point, combo_box, control_row, coordinate_names,
-                     cut_at_escape, cycle_columns, equilibrium_coordinates, quiet, equilibrium_fields, fill_combo, runs_job, values_at_time)
+                     cut_at_escape, cycle_columns, equilibrium_coordinates, quiet, equilibrium_fields, fill_combo, runs_job, status_label,
+                     values_at_time)
 
 FIELD_POINTS = 21          # arrows along the longer side of the view
 MAX_SEEDS = 40
@@ -80,9 +81,7 @@ class PhasePlaneView(SessionView):
         self.fit_button = QToolButton(text="Fit")
         self.fit_button.setToolTip("Zoom to the trajectory")
         self.fit_button.clicked.connect(self.fit_view)
-        self.hint = QLabel()
-        self.hint.setStyleSheet("color: palette(placeholder-text);")
-        self.hint.setMinimumWidth(1)  # a long hint is clipped rather than widening the whole window
+        self.hint = status_label()  # a long hint wraps onto a second line, neither cut off nor widening the window
 
         self.plot_widget = pg.PlotWidget()
         self.plot = self.plot_widget.getPlotItem()
@@ -119,8 +118,9 @@ class PhasePlaneView(SessionView):
         self._seed_timer.timeout.connect(self._rerun_seeds)
 
         bar = control_row(self.x_combo, "against", self.y_combo, 8, self.arrows,
-                          self.nullclines_box, self.backward, None, self.hint, self.clear_button, self.fit_button,
+                          self.nullclines_box, self.backward, self.hint, self.clear_button, self.fit_button,
                           spacing=6, stretch=False)
+        bar.setStretchFactor(self.hint, 1)  # the hint takes the room left (and wraps in it)
         layout = self.main_layout()
         layout.addLayout(bar)
         layout.addWidget(self.plot_widget, 1)
