@@ -229,16 +229,41 @@ SHOTS = [convection_loop_3d, shaken_beam_sections, pendulum_separatrix, insect_g
          stirred_tank_bifurcation, walkthrough_presenting, language_reference, bracket_fit, rocking_buoy_noise]
 
 
-def walkthrough_steps(sh: Shooter, names: list[str]) -> None:
+def export_each_view(sh: Shooter, name: str, step: int, seen: set) -> None:
+    """Export every plot of each open view not exported before as PNG and SVG, and its data as CSV, the way
+    File > Export does (files NAME-NN-VIEW[-K].png/.svg/.csv), to open them as a person would."""
+    from orbitdesk.app.plots import figures
+
+    w = sh.window
+    for module, view in w.views.items():
+        dock = w.view_docks.get(module)
+        if view is None or dock is None or not dock.isVisible() or module in seen:
+            continue
+        seen.add(module)
+        stem = sh.out / f"{name}-{step:02d}-{module}"
+        plots = figures.view_plots(view) or [None]
+        for k, choice in enumerate(plots):
+            suffix = f"-{k + 1}" if len(plots) > 1 else ""
+            for ext in ("png", "svg"):
+                ok = w.export_plot(f"{stem}{suffix}.{ext}", view=view, plot=None if choice is None else choice.plot)
+                print(f"  {'wrote' if ok else 'nothing for'} {stem.name}{suffix}.{ext}")
+        if w.export_data(f"{stem}.csv", view=view):
+            print(f"  wrote {stem.name}.csv")
+
+
+def walkthrough_steps(sh: Shooter, names: list[str], exports: bool = False) -> None:
     """Every step of each sample's walkthrough, one picture per step (SAMPLE-NN.png, NN from 01)."""
     sh.window.resize(*SCREEN)
     for name in names or sorted(p.stem for p in SAMPLES.glob("*.orbitdesk")):
         print(f"{name}:")
         sh.open_sample(name)
         panel = sh.window.walkthrough_panel
+        seen: set = set()
         for i in range(len(panel.steps)):
             sh.show_step(i)
             sh.save(f"{name}-{i + 1:02d}")
+            if exports:
+                export_each_view(sh, name, i + 1, seen)
         panel.leave()
         sh.settle()
 
@@ -250,9 +275,11 @@ def main(argv=None) -> int:
     parser.add_argument("--out", type=Path, default=OUT, help=f"folder for the PNG files (default {OUT})")
     parser.add_argument("--steps", nargs="*", metavar="SAMPLE", default=None,
                         help="a picture of every walkthrough step of these samples (all when none are named)")
+    parser.add_argument("--exports", action="store_true",
+                        help="with --steps: also export each view once per sample (PNG, SVG, CSV) as File > Export does")
     args = parser.parse_args(argv)
     if args.steps is not None:
-        wanted = [lambda sh: walkthrough_steps(sh, args.steps)]
+        wanted = [lambda sh: walkthrough_steps(sh, args.steps, args.exports)]
         wanted[0].__doc__ = "every walkthrough step"
         wanted[0].__name__ = "walkthrough_steps"
     else:

@@ -229,3 +229,15 @@ def test_a_model_after_a_one_state_model_gets_its_own_section_axes(qtbot, sessio
     load(qtbot, session, DUFFING)
     qtbot.waitUntil(lambda: view.h_combo.currentText() == "x")
     assert view.v_combo.currentText() == "x'"
+
+
+def test_a_model_without_forcing_after_a_forced_one_gets_a_plane_section(qtbot, session):
+    """Opening an autonomous model after a forced one (the flap sample, then the shower sample): the section
+    is a plane again, not the forced model's stroboscopic section (which a model with nothing periodic
+    driving it has no period for, and which a delay model refuses)."""
+    view = make_view(qtbot, session)
+    wait_section(qtbot, view, lambda: load(qtbot, session, DUFFING))
+    assert view.section_kind() == "strobe"
+    load(qtbot, session, LORENZ)
+    qtbot.waitUntil(lambda: view.system is session.system)
+    assert view.section_kind() == "plane"

@@ -270,9 +270,11 @@ class SectionsView(SessionView):
                 self.r_combo.setCurrentIndex(plane_names.index(keep[3]) if keep[3] in plane_names else 0)
             self._apply_wanted_names()
         period = follow_forcing_period(self.period, system, self.session.param_vector(), self._user_period)
-        if period is not None and not self._user_period:
-            if not (self._wanted and self._wanted.get("kind") in (PLANE, STROBE)):
+        if not (self._wanted and self._wanted.get("kind") in (PLANE, STROBE)):  # the project does not say
+            if period is not None and not self._user_period:
                 self.kind.setCurrentIndex(1)
+            elif period is None:  # nothing drives it: a plane, not the strobe of the model before
+                self.kind.setCurrentIndex(0)
         self._wanted = None
         self._update_period_note(period)
         for w in (self.kind, self.kind_stack, self.transient, self.compute_button):
