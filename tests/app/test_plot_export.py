@@ -178,3 +178,20 @@ def test_the_3d_scene_exports_as_a_picture_of_the_size_picked(qtbot, window, tmp
     assert (image.width(), image.height()) == (700, 500)
     rgb = pixels(image)
     assert ((rgb.max(axis=2) - rgb.min(axis=2)) > 60).sum() > 100  # the coloured orbit on the dark scene
+
+
+def test_an_exported_single_series_names_what_it_plots(qtbot, window, tmp_path, oscillator):
+    """A time series of one series exported on its own (File > Export, or the report) says which series it
+    is: the name on its vertical axis, as on screen (several series get a legend instead). Seen on the flap
+    sample's exported time series: a curve with numbers and no name."""
+    import xml.etree.ElementTree as ET
+
+    path = tmp_path / "plot.svg"
+    assert window.export_plot(path, oscillator)
+    texts = ["".join(e.itertext()).strip() for e in ET.parse(path).iter() if e.tag.endswith("text")]
+    assert "x" in texts and "t" in texts  # both axes named in the file a person opens
+    png = tmp_path / "plot.png"
+    assert window.export_plot(png, oscillator)
+    check_against_screen(QImage(str(png)), oscillator, "x", series_colour(0, oscillator))  # still where the screen has it
+    oscillator.set_series(["x", "x'"])
+    qtbot.waitUntil(lambda: oscillator.plot.getAxis("left").labelText == "")

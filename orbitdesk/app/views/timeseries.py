@@ -240,7 +240,8 @@ class TimeSeriesView(SessionView):
             self.plot.setLabel("left", "power")
         else:
             self.plot.setLabel("bottom", time_label)
-            self.plot.setLabel("left", "")
+            # one series: its name on the axis (a picture of the plot says what it shows; several: a legend)
+            self.plot.setLabel("left", names[0] if len(names) == 1 else "")
         self.cursor.setVisible(not spectrum and traj is not None)
         self.empty_hint.setVisible(traj is None)
         self.data_overlay.refresh()
