@@ -195,3 +195,32 @@ def test_an_exported_single_series_names_what_it_plots(qtbot, window, tmp_path, 
     check_against_screen(QImage(str(png)), oscillator, "x", series_colour(0, oscillator))  # still where the screen has it
     oscillator.set_series(["x", "x'"])
     qtbot.waitUntil(lambda: oscillator.plot.getAxis("left").labelText == "")
+
+
+def test_labels_in_the_plot_and_named_markers_come_along(qtbot, tmp_path):
+    """The bifurcation diagram names its special points with text in the plot ("fold") and its stepped sweeps
+    with named markers: an exported picture keeps both (they were missing from the shaken beam's exported
+    frequency response: two unnamed diamonds and a legend without the triangles)."""
+    import xml.etree.ElementTree as ET
+
+    import pyqtgraph as pg
+
+    from orbitdesk.app.plots import figures
+
+    widget = pg.PlotWidget()
+    qtbot.addWidget(widget)
+    widget.resize(600, 400)
+    plot = widget.getPlotItem()
+    plot.addItem(pg.PlotDataItem([0, 1, 2], [0, 1, 0], name="response, stable"))
+    plot.addItem(pg.PlotDataItem([0, 1, 2], [1, 0, 1], name="response, unstable"))
+    plot.addItem(pg.ScatterPlotItem(x=[0.5, 1.5], y=[0.5, 0.5], symbol="t1", name="stepped up"))
+    label = pg.TextItem("fold", anchor=(0, 1))
+    label.setPos(1.0, 1.0)
+    plot.addItem(label)
+    path = tmp_path / "diagram.svg"
+    assert figures.save_plot(plot, path, 600, 400, legend=figures.has_named_curves(plot))
+    texts = {"".join(e.itertext()).strip() for e in ET.parse(path).iter() if e.tag.endswith("text")}
+    assert {"fold", "stepped up", "response, stable"} <= texts
+    copy = figures.copy_plot(plot, 600, 400)
+    placed = [i for i in copy.getPlotItem().items if isinstance(i, pg.TextItem)]
+    assert [(i.toPlainText(), i.pos().x(), i.pos().y()) for i in placed] == [("fold", 1.0, 1.0)]

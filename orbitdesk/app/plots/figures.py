@@ -81,7 +81,15 @@ def _copy_scatter(item):
     sizes = np.where(d["size"] < 0, item.opts["size"], d["size"])
     symbols = [s if s is not None else item.opts["symbol"] for s in d["symbol"]]
     return pg.ScatterPlotItem(x=d["x"].copy(), y=d["y"].copy(), size=sizes, symbol=symbols, pen=pens,
-                              brush=brushes, pxMode=item.opts["pxMode"])
+                              brush=brushes, pxMode=item.opts["pxMode"], name=item.name())
+
+
+def _copy_text(item):
+    """A label placed in the data (the name of a special point): same text, colour, font, anchor, place."""
+    copy = pg.TextItem(item.toPlainText(), color=item.color, anchor=(item.anchor[0], item.anchor[1]))
+    copy.setFont(item.textItem.font())
+    copy.setPos(item.pos())
+    return copy
 
 
 def _copy_item(item):
@@ -93,6 +101,8 @@ def _copy_item(item):
         return _copy_scatter(item)
     if isinstance(item, pg.InfiniteLine):
         return pg.InfiniteLine(pos=item.value(), angle=item.angle, pen=item.pen)
+    if isinstance(item, pg.TextItem):
+        return _copy_text(item)
     return None
 
 
