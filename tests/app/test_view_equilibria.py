@@ -194,3 +194,28 @@ def test_jacobian_rows_and_columns_are_labelled_as_in_the_read_back(qtbot, sessi
     details, listing = view.details.toPlainText(), readback.plain_text()
     for label in ("dx/dt", "d(x')/dt", "\u2202/\u2202x", "\u2202/\u2202(x')"):
         assert label in details and label in listing, label
+
+
+def test_the_csv_of_a_delay_models_equilibrium_has_a_column_for_every_root(qtbot, session, tmp_path):
+    """A delay model lists more characteristic roots than it has states: the exported table has a header cell
+    for each value in its rows (it had one eigenvalue's pair of headers over eight roots' values), and the
+    roots read back from the file solve the characteristic equation lambda = -k exp(-lambda tau) of
+    u' = -k u(t - tau) at rest (closed form of the linear delay equation)."""
+    import csv
+
+    from orbitdesk.exports.csv_table import write_csv
+
+    view = make_view(qtbot, session)
+    wait_found(qtbot, view, lambda: load(qtbot, session, "k = 1\ntau = 1\nu' = -k*u(t - tau)\nu(t) = 1 for t <= 0\n"))
+    header, rows = view.export_data()
+    path = tmp_path / "equilibria.csv"
+    write_csv(path, header, np.atleast_2d(rows).tolist())
+    with open(path, newline="", encoding="utf-8") as f:
+        table = list(csv.reader(f))
+    head, body = table[0], table[1:]
+    assert all(len(r) == len(head) for r in body)
+    roots = [complex(float(body[0][i]), float(body[0][i + 1]))
+             for i, name in enumerate(head) if name.startswith("re(characteristic root")]
+    assert len(roots) > 1
+    for lam in roots:
+        assert abs(lam + np.exp(-lam)) < 1e-6 * max(1.0, abs(lam))

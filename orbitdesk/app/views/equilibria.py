@@ -161,16 +161,20 @@ class EquilibriaView(SessionView):
     def export_data(self):
         if not self.equilibria or self.system is None:
             return None
-        n = self.system.n_states
+        # as many columns as the longest list (a delay model lists its rightmost characteristic roots, more
+        # than it has states); a shorter list leaves its last cells empty
+        n = max(len(eq.eigenvalues) for eq in self.equilibria)
+        what = "characteristic root" if self.system.delays else "eigenvalue"
         header = list(self.system.states)
         for k in range(n):
-            header += [f"re(eigenvalue {k + 1})", f"im(eigenvalue {k + 1})"]
+            header += [f"re({what} {k + 1})", f"im({what} {k + 1})"]
         header += ["stable (1 yes, 0 no, empty undecided)", "unstable dimension"]
         rows = []
         for eq in self.equilibria:
             row = list(eq.vector)
             for lam in eq.eigenvalues:
                 row += [lam.real, lam.imag]
+            row += [np.nan, np.nan] * (n - len(eq.eigenvalues))
             row += [{True: 1.0, False: 0.0}.get(eq.stable, np.nan), float(eq.n_unstable)]
             rows.append(row)
         return header, np.array(rows, dtype=float)
