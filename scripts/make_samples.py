@@ -486,12 +486,12 @@ x[0] = 0.1
          "With `r = 2.8` the count overshoots and undershoots for a few years and then settles at "
          "`1 - 1/r`, about 0.643. That value is a **stable fixed point** of the map: its multiplier "
          "`2 - r = -0.8` is inside the unit circle, and being negative it makes the approach zig-zag.",
-         {"parameters": {"r": 2.8}, "open_views": ["timeseries", "equilibria"]}),
+         {"parameters": {"r": 2.8}, "open_views": ["timeseries", "equilibria"], "selected_equilibrium": 1}),
         ("Boom and bust",
          "At `r = 3.2` the count no longer settles. Good and bad years take turns for ever: a cycle "
          "of **period 2**. The fixed point is still there, but its multiplier `2 - r` has passed -1, "
          "so it repels; the change happened at `r = 3`.",
-         {"parameters": {"r": 3.2}, "open_views": ["timeseries", "equilibria"]}),
+         {"parameters": {"r": 3.2}, "open_views": ["timeseries", "equilibria"], "selected_equilibrium": 1}),
         ("Period four",
          "At `r = 3.5` the pattern repeats only every four years. Each doubling comes sooner than the "
          "last, the gaps shrinking by a nearly constant factor.",
