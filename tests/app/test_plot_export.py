@@ -224,3 +224,24 @@ def test_labels_in_the_plot_and_named_markers_come_along(qtbot, tmp_path):
     copy = figures.copy_plot(plot, 600, 400)
     placed = [i for i in copy.getPlotItem().items if isinstance(i, pg.TextItem)]
     assert [(i.toPlainText(), i.pos().x(), i.pos().y()) for i in placed] == [("fold", 1.0, 1.0)]
+
+
+def test_an_exported_svg_names_fonts_every_viewer_knows(qtbot, window, tmp_path, oscillator):
+    """Qt names its default face "Sans Serif", which browsers do not know: Chromium drew the axis names and the
+    legend of an exported SVG in a serif face. Every text of the file lists a CSS generic family last, after
+    the face the app drew with."""
+    import xml.etree.ElementTree as ET
+
+    from PySide6.QtGui import QFontInfo
+
+    path = tmp_path / "plot.svg"
+    assert window.export_plot(path, oscillator)
+    texts = [e for e in ET.parse(path).iter() if e.tag.endswith("text")]
+    assert texts
+    face = QFontInfo(oscillator.plot_widget.font()).family()
+    for e in texts:
+        families = [f.strip() for f in e.get("font-family").split(",")]
+        assert families[-1] in ("sans-serif", "serif", "monospace") and face in families
+    widget = oscillator.plot_widget  # and the picture is the same as before
+    check_against_screen(svg_image(path, QSize(widget.width(), widget.height())), oscillator, "x",
+                         series_colour(0, oscillator))

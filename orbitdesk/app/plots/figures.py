@@ -10,12 +10,14 @@ The same copies make the figures of the HTML report (``exports.view_figures``) a
 
 from __future__ import annotations
 
+import html
+import re
 from dataclasses import dataclass
 
 import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import QBuffer, QByteArray, QIODevice, QPointF, QRect, QRectF, QSize, Qt, QTimer
-from PySide6.QtGui import QImage, QPainter
+from PySide6.QtGui import QFontInfo, QImage, QPainter
 from PySide6.QtWidgets import QApplication
 
 from orbitdesk.app.plots.plot_style import ScreenCurve
@@ -203,10 +205,26 @@ def plot_svg(source, width: int, height: int, legend: bool = False, host=None, t
         painter = QPainter(gen)
         widget.render(painter, QRectF(0, 0, width, height), QRect(0, 0, int(width), int(height)))
         painter.end()
+        family = QFontInfo(widget.font()).family()
     finally:
         buffer.close()
         _finish(widget)
-    return bytes(data)
+    return with_css_families(bytes(data), family)
+
+
+def with_css_families(svg: bytes, family: str) -> bytes:
+    """Qt writes its own generic font names ("Sans Serif"), which browsers do not know: they drew the axis
+    names and legends of an exported SVG in a serif face. Each family list gets the face the app drew with
+    and the CSS generic family after it."""
+    generic = {b"Sans Serif": b"sans-serif", b"Serif": b"serif", b"Monospace": b"monospace"}
+
+    def fixed(match):
+        name = match.group(1)
+        tail = generic.get(name, b"sans-serif")
+        face = html.escape(family.replace(",", " "), quote=True).encode("utf-8", "replace")
+        return b'font-family="' + b", ".join(dict.fromkeys([name, face, tail])) + b'"'
+
+    return re.sub(rb'font-family="([^",]*)"', fixed, svg)
 
 
 def png_data(image: QImage) -> bytes:
