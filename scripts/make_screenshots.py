@@ -264,6 +264,16 @@ def walkthrough_steps(sh: Shooter, names: list[str], exports: bool = False) -> N
             sh.save(f"{name}-{i + 1:02d}")
             if exports:
                 export_each_view(sh, name, i + 1, seen)
+        if exports:  # the window's HTML report at the last step, as File > Export > HTML Report writes it
+            from orbitdesk.app import exports as app_exports
+
+            done = []
+            app_exports.export_report(sh.window, sh.out / f"{name}-report.html", on_done=lambda *a: done.append(a))
+            end = time.monotonic() + 300
+            while not done and time.monotonic() < end:
+                sh.pump()
+                time.sleep(0.02)
+            print(f"  report: {done[0] if done else 'not written in time'}")
         panel.leave()
         sh.settle()
 
