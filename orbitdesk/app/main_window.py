@@ -282,7 +282,7 @@ class MainWindow(QMainWindow):
         self._default_state = self.saveState()
 
         s.dirtyChanged.connect(self._update_title)
-        s.statusMessage.connect(lambda m: self.statusBar().showMessage(m, 10_000))
+        s.statusMessage.connect(self.show_status)
         s.busyChanged.connect(self._on_busy)
         s.runProgress.connect(self._on_progress)
         s.trajectoryChanged.connect(self._on_trajectory)
@@ -481,6 +481,7 @@ class MainWindow(QMainWindow):
         bar.addPermanentWidget(self.run_status)
         bar.addPermanentWidget(self.progress)
         bar.addPermanentWidget(self.cancel_button)
+        bar.messageChanged.connect(lambda m: m or bar.setToolTip(""))  # the tip goes with the message
 
     def _make_menus(self) -> None:
         mb = self.menuBar()
@@ -652,6 +653,17 @@ class MainWindow(QMainWindow):
         dirty = self.session.dirty
         self.setWindowTitle(f"{'• ' if dirty else ''}{self.session.name} — {APP_NAME}")
         self.revert_action.setEnabled(self.session.path is not None)
+
+    def show_status(self, text: str, msec: int = 10_000) -> None:
+        """A message in the status bar, cut with "…" where it would run under the run state and the buttons
+        at the right (a run's long message was cut off mid-word); the whole text is the bar's tip meanwhile."""
+        bar = self.statusBar()
+        right = sum(w.width() for w in (self.jobs_label, self.run_status, self.progress, self.cancel_button)
+                    if w.isVisible())
+        room = max(80, bar.width() - right - 30)
+        shown = bar.fontMetrics().elidedText(text, Qt.TextElideMode.ElideRight, room)
+        bar.setToolTip(rich_tip(text) if shown != text else "")
+        bar.showMessage(shown, msec)
 
     def _on_busy(self, busy: bool) -> None:
         self.cancel_button.setEnabled(busy)

@@ -468,3 +468,22 @@ def test_long_shower_walkthrough_shows_roots_and_the_onset(qtbot, window, artifa
         if k > 0.85:
             assert top.size and np.max(top) > 38.5, k
     window.grab().save(os.path.join(artifacts, "long_shower_sweep.png"))
+
+
+def test_a_long_status_message_is_cut_with_an_ellipsis_and_whole_in_the_tip(qtbot, window):
+    """A run's long message (the flap sample's chattering stop, 200 characters) ran under the run state at the
+    right of the status bar and was cut off mid-word ("per unit tim"): shown, it ends in "…" before the
+    permanent widgets, and the bar's tip holds all of it; a short message is shown as it is."""
+    long = ("At t = 1.25976 the event on line 16 (when x > gap then x' = -r*x') leaves the solution on its "
+            "boundary, and the flow would carry it across again within 2.38e-05 time units, faster than the "
+            "limit of 10000 events per unit time")
+    window.session.statusMessage.emit(long)
+    bar = window.statusBar()
+    shown = bar.currentMessage()
+    assert shown.endswith("…") and shown[:-1] in long
+    right = min(w.geometry().left() for w in (window.run_status, window.progress, window.cancel_button)
+                if w.isVisible())
+    assert bar.fontMetrics().horizontalAdvance(shown) < right
+    assert "faster than the limit of 10000 events per unit time" in bar.toolTip()
+    window.session.statusMessage.emit("Saved model.orbitdesk")
+    assert bar.currentMessage() == "Saved model.orbitdesk" and bar.toolTip() == ""
