@@ -12,15 +12,18 @@ Each case runs in a child process on X (the current DISPLAY or a private Xvfb, s
   worker thread (``engine.simulate`` wrapped for the measurement) and when ``trajectoryChanged``
   arrived. Baseline, after each move once everything is idle: the bare engine run for the same
   system, settings and values on this thread. Goal ≤ 50 ms.
-* Orbit: a 1,000,000-sample Lorenz run shown in the 3D view (which thins the line it draws);
-  the other views closed, so the scene has the size a person orbiting it would give it; the camera's
-  azimuth is stepped and each frame forced: ``repaint()``, ``glFinish()`` and
-  ``processEvents()``; median time per frame over 30 frames, with the left mouse button held on the
-  scene (orbiting by hand: the view draws a coarser line until it is let go), and again without. Baselines, frames alternating with
-  ours: a bare pyqtgraph GLViewWidget of the same size and surface format drawing all 1,000,000
-  points as one line (what drawing without thinning costs), and the same widget empty (the
-  floor: clearing, multisample resolve and putting the frame on the screen). With Mesa's
-  software renderer (llvmpipe) every vertex and fragment is computed by the CPU.
+* Orbit: a 1,000,000-sample Lorenz run shown in the 3D view (which thins the line it draws), twice:
+  the other views closed, so the scene has the size a person orbiting it would give it, and the dock
+  opened beside the others (smaller); the camera's azimuth is stepped and each frame forced:
+  ``repaint()``, ``glFinish()`` and ``processEvents()``; median time per frame over 30 frames (wall
+  and CPU time of the process, llvmpipe's threads included: under load the CPU time says more), with
+  the left mouse button held on the scene (orbiting by hand: the view draws a coarser line without
+  multisampling until it is let go), and again without (the full line, 4x multisampled). Baselines,
+  frames alternating with ours, bare pyqtgraph GLViewWidgets of the same size: empty without
+  multisampling (the floor of a moving frame: clearing and putting the frame on the screen), empty
+  with 4x multisampling (the floor at rest: four samples cleared and resolved), and one drawing all
+  1,000,000 points as one line with 4x (what drawing without thinning costs). With Mesa's software
+  renderer (llvmpipe) every vertex and fragment is computed by the CPU.
 """
 
 from __future__ import annotations
@@ -148,27 +151,27 @@ session.load_project(Project(name="orbit", model=LORENZ, solver=RunSettings(t_en
 wait(lambda: session.trajectory is not None and not session.busy, 600)
 # opened where it is seen, as the View menu does (after the load: a project brings its own layout)
 view = window.show_view("phase_space_3d")
-for name, dock in window.view_docks.items():  # the 3D view alone beside the model panel: a working size
-    if name != "phase_space_3d":
-        dock.hide()
+if sys.argv[1] == "alone":  # the 3D view alone beside the model panel: the size a person orbiting it gives it
+    for name, dock in window.view_docks.items():
+        if name != "phase_space_3d":
+            dock.hide()
 wait(lambda: False, 1.0)
 scene = view.glview
 size = (scene.width(), scene.height())
 scene.makeCurrent()
-msaa = int(GL.glGetIntegerv(GL.GL_SAMPLES))  # of the widget's framebuffer (format() shows the context's)
 renderer = GL.glGetString(GL.GL_RENDERER).decode()
 scene.doneCurrent()
 
-# the baselines: the same widget class, size and surface format; pyqtgraph's line item with one shader
-# program per context (the view's own subclass), all points in the view's box coordinates
+# the baselines: the same widget class and size; pyqtgraph's line item with one shader program per
+# context (the view's own subclass), all points in the view's box coordinates
 Line, _points = _gl_item_classes(gl)
 run = session.trajectory
 xyz = np.column_stack([run.series(name) for name in "xyz"])
 box = view._to_box(xyz)
-def bare_widget(with_line):
+def bare_widget(with_line, samples):
     widget = gl.GLViewWidget()
     surface = QSurfaceFormat.defaultFormat()
-    surface.setSamples(msaa)
+    surface.setSamples(samples)
     widget.setFormat(surface)
     widget.setBackgroundColor(QColor(*SCENE_BACKGROUND))
     widget.resize(*size)
@@ -179,18 +182,24 @@ def bare_widget(with_line):
                              azimuth=scene.opts["azimuth"])
     widget.show()
     return widget
-full, empty = bare_widget(True), bare_widget(False)
+full, empty4, empty0 = bare_widget(True, 4), bare_widget(False, 4), bare_widget(False, 0)
 wait(lambda: False, 1.0)
+samples = {}
+for name, widget in (("full", full), ("empty4", empty4), ("empty0", empty0)):
+    widget.makeCurrent()
+    samples[name] = int(GL.glGetIntegerv(GL.GL_SAMPLES))  # of the widget's framebuffer
+    widget.doneCurrent()
 
 def frame(widget, azimuth):
-    start = time.perf_counter()
+    '''Wall and CPU seconds (the CPU time of every thread of the process: llvmpipe's too) of one frame.'''
+    start, cpu = time.perf_counter(), time.process_time()
     widget.setCameraPosition(azimuth=azimuth)
     widget.repaint()
     widget.makeCurrent()
     GL.glFinish()
     widget.doneCurrent()
     QApplication.processEvents()
-    return time.perf_counter() - start
+    return time.perf_counter() - start, time.process_time() - cpu
 
 from PySide6.QtCore import QPointF, Qt
 from PySide6.QtGui import QMouseEvent
@@ -199,33 +208,33 @@ def mouse(kind):
     QApplication.sendEvent(scene, QMouseEvent(kind, centre, scene.mapToGlobal(centre), Qt.MouseButton.LeftButton,
                                               Qt.MouseButton.LeftButton, Qt.KeyboardModifier.NoModifier))
 
-times = {"ours": [], "full": [], "empty": [], "still": []}
+times = {name: [] for name in ("ours", "full", "empty4", "empty0", "still", "still_empty4")}
 mouse(QEvent.Type.MouseButtonPress)  # orbiting by hand
-moving_drawn = int(len(view.main_item.pos))
+moving_drawn, moving_smooth = int(len(view.main_item.pos)), not scene.moving
 for k in range(FRAMES + 3):
     azimuth = -58.0 + 4.0 * k
-    for name, widget in (("ours", scene), ("full", full), ("empty", empty)):
+    for name, widget in (("ours", scene), ("empty0", empty0), ("empty4", empty4), ("full", full)):
         t = frame(widget, azimuth)
         if k >= 3:
             times[name].append(t)
 mouse(QEvent.Type.MouseButtonRelease)
+still_smooth = not scene.moving and scene.smooth()
 for k in range(FRAMES + 3):
-    t = frame(scene, -58.0 - 4.0 * k)
-    if k >= 3:
-        times["still"].append(t)
-full.makeCurrent()
-same = int(GL.glGetIntegerv(GL.GL_SAMPLES)) == msaa
-full.doneCurrent()
+    for name, widget in (("still", scene), ("still_empty4", empty4)):
+        t = frame(widget, -58.0 - 4.0 * k)
+        if k >= 3:
+            times[name].append(t)
 median = statistics.median
-print(json.dumps({"ours": median(times["ours"]), "full": median(times["full"]), "empty": median(times["empty"]),
-                  "still": median(times["still"]), "moving_drawn": moving_drawn,
-                  "renderer": renderer, "size": list(size), "samples": int(run.time.size),
-                  "drawn": int(len(view.main_item.pos)), "msaa": msaa, "same": same, "frames": FRAMES}))
+out = {name: median(t[0] for t in ts) for name, ts in times.items()}
+out.update({f"{name}_cpu": median(t[1] for t in ts) for name, ts in times.items()})
+print(json.dumps(dict(out, moving_drawn=moving_drawn, renderer=renderer, size=list(size), samples=int(run.time.size),
+                      drawn=int(len(view.main_item.pos)), bare_samples=samples, moving_smooth=moving_smooth,
+                      still_smooth=still_smooth, frames=FRAMES)))
 """.replace("FRAMES", str(FRAMES))
 
 
-def _child(script: str, env) -> dict:
-    out = subprocess.run([sys.executable, "-c", script], capture_output=True, text=True, cwd=ROOT, env=env,
+def _child(script: str, env, *args: str) -> dict:
+    out = subprocess.run([sys.executable, "-c", script, *args], capture_output=True, text=True, cwd=ROOT, env=env,
                          timeout=1800)
     lines = [line for line in out.stdout.splitlines() if line.startswith("{")]
     if out.returncode != 0 or not lines:
@@ -250,19 +259,32 @@ def run(log=print) -> list[Row]:
             f"new run shown every time: {s['all_new']}",
             "the bare engine run, same settings", "≤ 50 ms"))
 
-        o = _child(ORBIT, env)
-        log(f"3D orbit: {1e3 * o['ours']:.0f} ms per frame ({1 / o['ours']:.1f} fps) with the mouse held "
-            f"({o['moving_drawn']:,} points), {1e3 * o['still']:.0f} ms at rest; all points "
-            f"{1e3 * o['full']:.0f} ms, empty scene {1e3 * o['empty']:.0f} ms; {o['renderer']}, "
-            f"{o['size'][0]}x{o['size'][1]} px, {o['msaa']}x multisampling")
-        rows.append(Row(
-            f"3D view orbiting a {o['samples']:,}-point Lorenz run, time per frame (median of {o['frames']}): "
-            f"{1 / o['ours']:.1f} frames per second", o["ours"], o["full"],
-            f"{o['moving_drawn']:,} points drawn while the camera moves, {o['drawn']:,} at rest "
-            f"({1e3 * o['still']:.0f} ms per frame); empty scene {1e3 * o['empty']:.0f} ms per frame; {o['renderer']}, "
-            f"{o['size'][0]}x{o['size'][1]} px, {o['msaa']}x multisampling (both: {o['same']})",
-            f"bare GLViewWidget, all {o['samples']:,} points as one line"))
+        for layout, where in (("alone", "the other views closed"), ("beside", "the dock opened beside the others")):
+            rows += _orbit_rows(_child(ORBIT, env, layout), where, log)
     return rows
+
+
+def _orbit_rows(o: dict, where: str, log) -> list[Row]:
+    ms = {k: 1e3 * v for k, v in o.items() if isinstance(v, float)}
+    w, h = o["size"]
+    log(f"3D orbit, {where}, {w}x{h} px: {ms['ours']:.1f} ms per frame ({1e3 / ms['ours']:.1f} fps; CPU "
+        f"{ms['ours_cpu']:.1f} ms) with the mouse held ({o['moving_drawn']:,} points, multisampled: "
+        f"{o['moving_smooth']}), empty widget without multisampling {ms['empty0']:.1f} ms (CPU "
+        f"{ms['empty0_cpu']:.1f}), with 4x {ms['empty4']:.1f} ms; at rest {ms['still']:.1f} ms (CPU "
+        f"{ms['still_cpu']:.1f}; multisampled: {o['still_smooth']}), empty widget with 4x {ms['still_empty4']:.1f} ms; "
+        f"all points {ms['full']:.0f} ms; {o['renderer']}; baselines' samples {o['bare_samples']}")
+    case = f"3D view orbiting a {o['samples']:,}-point Lorenz run, {where}, {w}x{h} px (median of {o['frames']} frames)"
+    return [
+        Row(f"{case}, camera moving: {1e3 / ms['ours']:.1f} frames per second", o["ours"], o["empty0"],
+            f"{o['moving_drawn']:,} points 1 px wide, no multisampling; CPU per frame {ms['ours_cpu']:.1f} ms "
+            f"(empty {ms['empty0_cpu']:.1f}); empty with 4x {ms['empty4']:.1f} ms; bare widget drawing all points "
+            f"with 4x {ms['full']:.0f} ms; {o['renderer']}",
+            "empty GLViewWidget, same size, no multisampling, frames alternating", "≥ 20 fps"),
+        Row(f"{case}, at rest: {1e3 / ms['still']:.1f} frames per second", o["still"], o["still_empty4"],
+            f"{o['drawn']:,} points 1.6 px wide, 4x multisampling ({o['still_smooth']}); CPU per frame "
+            f"{ms['still_cpu']:.1f} ms (empty {ms['still_empty4_cpu']:.1f})",
+            "empty GLViewWidget, same size, 4x multisampling, frames alternating"),
+    ]
 
 
 if __name__ == "__main__":

@@ -246,3 +246,49 @@ def test_a_walkthrough_camera_in_a_wide_short_dock_is_moved_back_until_the_whole
     before = cam["distance"]
     view.fit_view()
     assert view.camera()["distance"] == before  # in view already: left alone
+
+
+def _text_near_labels(view, px) -> float:
+    """The share of the scene's labels with text-coloured pixels next to their anchor point."""
+    from orbitdesk.app.plots.plot_style import SCENE_TEXT
+
+    h, w = px.shape[:2]
+    text = np.nonzero(np.abs(px - np.array(SCENE_TEXT[:3])).sum(axis=2) < 60)
+    labels = view.scene_labels()
+    where = view.scene_points([p for p, *_r in labels], w, h)
+    found = [((np.abs(text[1] - x - 8) < 14) & (np.abs(text[0] - y + 5) < 8)).sum() > 3 for x, y in where]
+    return float(np.mean(found)) if found else 0.0
+
+
+def test_the_scene_is_smoothed_at_rest_and_drawn_plain_while_the_camera_moves(qtbot, session, artifacts):
+    from PySide6.QtCore import Qt
+
+    from orbitdesk.app.plots.plot_style import SCENE_BACKGROUND
+
+    view = make_view(qtbot, session, (700, 640))
+    load(qtbot, session, LORENZ)  # 8,001 samples: the line while moving holds every point too
+    scene = view.glview
+    at_rest = pixels(frame(qtbot, view))
+    assert not scene.moving and scene.smooth()
+    centre = scene.rect().center()
+    qtbot.mousePress(scene, Qt.MouseButton.LeftButton, pos=centre)  # grabbed, not yet turned: the same camera
+    assert scene.moving
+    image = frame(qtbot, view)
+    image.save(os.path.join(artifacts, "view_3d_moving.png"))
+    moving = pixels(image)
+    qtbot.mouseRelease(scene, Qt.MouseButton.LeftButton, pos=centre)
+    assert not scene.moving
+    image = frame(qtbot, view)
+    image.save(os.path.join(artifacts, "view_3d_at_rest.png"))
+    again = pixels(image)
+
+    def lit(px):
+        return int((np.abs(px - np.array(SCENE_BACKGROUND)).sum(axis=2) > 12).sum())
+
+    # at rest four samples per pixel soften every edge (pixels a line only partly covers are tinted) and the
+    # run's line is 1.6 px wide; while moving each line is one hard pixel wide: fewer pixels differ from the
+    # background, and the attractor is still there
+    assert lit(at_rest) > 1.15 * lit(moving) > 0.02 * moving.shape[0] * moving.shape[1] * 1.15
+    assert np.abs(again - at_rest).max() <= 2  # the smooth picture comes back on release
+    # the tick numbers and axis names are painted in both
+    assert _text_near_labels(view, at_rest) > 0.8 and _text_near_labels(view, moving) > 0.8

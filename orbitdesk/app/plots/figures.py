@@ -16,7 +16,7 @@ from dataclasses import dataclass
 
 import numpy as np
 import pyqtgraph as pg
-from PySide6.QtCore import QBuffer, QByteArray, QIODevice, QPointF, QRect, QRectF, QSize, Qt, QTimer
+from PySide6.QtCore import QBuffer, QByteArray, QIODevice, QRect, QRectF, QSize, Qt, QTimer
 from PySide6.QtGui import QFontInfo, QImage, QPainter
 from PySide6.QtWidgets import QApplication
 
@@ -266,28 +266,15 @@ def has_data(plot_item) -> bool:
 
 
 def scene_image(view, width: int, height: int) -> QImage | None:
-    """A 3D view's scene (``view.glview``) rendered off screen at ``width`` x ``height``; None for other
-    views or a scene that has never been drawn (no OpenGL context yet)."""
+    """A 3D view's scene (``view.glview``) with its labels, rendered off screen at ``width`` x ``height``; None
+    for other views or a scene that has never been drawn (no OpenGL context yet)."""
     glview = getattr(view, "glview", None)
-    if glview is None or not glview.isValid() or glview.context() is None:
+    if glview is None or not hasattr(glview, "render_image"):
         return None
     try:
-        array = glview.renderToArray((int(width), int(height)))
+        return glview.render_image(width, height)
     except Exception:  # noqa: BLE001 - no offscreen framebuffer on this driver
         return None
-    image = pg.functions.makeQImage(array, alpha=True, transpose=False).copy()
-    labels = view.scene_labels() if hasattr(view, "scene_labels") else []
-    if labels:  # the scene's text items paint on the widget, not into an off-screen picture: paint them here
-        where = view.scene_points([pos for pos, *_rest in labels], width, height)
-        painter = QPainter(image)
-        painter.setRenderHints(QPainter.RenderHint.Antialiasing | QPainter.RenderHint.TextAntialiasing)
-        for (_pos, text, colour, font), (x, y) in zip(labels, where):
-            if np.isfinite(x) and np.isfinite(y):
-                painter.setPen(colour)
-                painter.setFont(font)
-                painter.drawText(QPointF(float(x), float(y)), text)
-        painter.end()
-    return image
 
 
 def curve_names(plot_item) -> list[str]:

@@ -11,7 +11,7 @@ import itertools
 
 import numpy as np
 from PySide6.QtCore import QEvent, QTimer, Signal
-from PySide6.QtGui import QColor, QFont, QImage, QPainter, QSurfaceFormat, QVector3D
+from PySide6.QtGui import QColor, QFont, QImage, QPainter, QVector3D
 from PySide6.QtWidgets import QSpinBox, QToolButton
 
 from orbitdesk.app.views import SERIES_COLOURS
@@ -48,6 +48,8 @@ class PhaseSpace3DView(SessionView):
     def __init__(self, session, parent=None):
         super().__init__(session, parent)
         import pyqtgraph.opengl as gl  # imported with this view only
+
+        from orbitdesk.app.plots.gl_scene import SceneWidget
 
         self._gl = gl
         self._Line, self._Points = _gl_item_classes(gl)
@@ -92,17 +94,13 @@ class PhaseSpace3DView(SessionView):
         self.strip = JobStrip(session, "Running")
 
         # ---- scene
-        self.glview = gl.GLViewWidget()
-        fmt = QSurfaceFormat.defaultFormat()
-        fmt.setSamples(4)  # multisampling: smooth lines without per-line smoothing (which dots them)
-        self.glview.setFormat(fmt)
+        self.glview = SceneWidget()  # multisampled at rest, not while the camera moves; labels in one pass
         self.glview.setBackgroundColor(QColor(*SCENE_BACKGROUND))
         self.glview.setToolTip("Drag to turn, wheel to zoom, middle-drag (or Ctrl+drag) to move")
         self.glview.setMinimumSize(200, 160)
         self.plot_widget = self.glview  # image export grabs the scene
         self.grid_item = self._Line(mode="lines", antialias=False, glOptions="translucent")
         self.axes_item = self._Line(mode="lines", antialias=False, width=1.5, glOptions="translucent")
-        self.text_items: list = []
         self.main_item = self._Line(mode="line_strip", antialias=False, width=1.6, glOptions="translucent")
         self.main_points = self._Points(pxMode=True, size=3, glOptions="translucent")
         self.extra_items: list = []
@@ -230,26 +228,14 @@ class PhaseSpace3DView(SessionView):
         painter.end()
         return image
 
-    def _clip_matrix(self, width: int, height: int) -> np.ndarray:
-        """Box coordinates -> clip coordinates of the camera for a picture of ``width`` x ``height``."""
-        viewport = (0, 0, max(1, int(width)), max(1, int(height)))
-        m = self.glview.projectionMatrix(viewport, viewport) * self.glview.viewMatrix()
-        return np.array(m.data(), dtype=float).reshape(4, 4).T  # Qt keeps its matrices column by column
-
     def scene_points(self, points, width: int, height: int) -> np.ndarray:
         """Pixel positions (x right, y down) of box-coordinate ``points`` (N, 3) in a picture of that size
         (NaN behind the camera)."""
-        pts = np.asarray(points, dtype=float).reshape(-1, 3)
-        clip = np.column_stack([pts, np.ones(len(pts))]) @ self._clip_matrix(width, height).T
-        with np.errstate(divide="ignore", invalid="ignore"):
-            ndc = np.where(clip[:, 3:4] > 0, clip[:, :2] / clip[:, 3:4], np.nan)
-        return np.column_stack([(ndc[:, 0] + 1) / 2 * width, (1 - ndc[:, 1]) / 2 * height])
+        return self.glview.pixel_points(points, width, height)
 
     def scene_labels(self) -> list:
-        """The tick numbers and axis names of the scene: (box position, text, QColor, QFont) each; an
-        off-screen picture of the scene paints them itself (``figures.scene_image``)."""
-        return [(np.asarray(item.pos, dtype=float), str(item.text), QColor(item.color), QFont(item.font))
-                for item in self.text_items]
+        """The tick numbers and axis names of the scene: (box position, text, QColor, QFont) each."""
+        return list(self.glview.labels)
 
     def box_in_view(self, margin: float = 0.97) -> bool:
         """Whether the whole box, with room for its tick numbers and axis names, projects inside the scene."""
@@ -545,6 +531,7 @@ class PhaseSpace3DView(SessionView):
     def _set_moving(self, moving: bool) -> None:
         if moving != self._moving:
             self._moving = moving
+            self.glview.set_moving(moving)
             self._show_main()
 
     def eventFilter(self, obj, event) -> bool:
@@ -594,9 +581,6 @@ class PhaseSpace3DView(SessionView):
 
         Seen from the starting camera (from +x, -y, above): x runs along the front-left floor edge,
         y along the front-right one, z up the left corner; the walls x = low and y = high are behind."""
-        for item in self.text_items:
-            self.glview.removeItem(item)
-        self.text_items = []
         ticks = [nice_ticks(lo, hi, 5) for lo, hi in self._box]
         tx, ty, tz = ((t - lo) / (hi - lo) * 2 * HALF - HALF for t, (lo, hi) in zip(ticks, self._box))
         h = HALF
@@ -621,20 +605,17 @@ class PhaseSpace3DView(SessionView):
         bold.setBold(True)
         text = QColor(*SCENE_TEXT)
         names = self.axes()
+        labels = []
         label_pos = [(0.0, -h * 1.28, -h), (h * 1.28, 0.0, -h), (-h * 1.08, -h * 1.08, h * 1.1)]
         for k in range(3):
             for v, b in zip(ticks[k], (tx, ty, tz)[k]):
                 if abs(b) > h * 0.94 and (k < 2 or b < 0):
                     continue  # keep the corners free for the neighbouring axis
                 where = [(b, -h * 1.1, -h), (h * 1.1, b, -h), (-h * 1.08, -h * 1.08, b)][k]
-                self._text(where, number_text(v, 4), text, font)
+                labels.append((np.array(where, dtype=float), number_text(v, 4), text, font))
             if names[k]:
-                self._text(label_pos[k], names[k], text, bold)
-
-    def _text(self, pos, text, colour, font) -> None:
-        item = self._gl.GLTextItem(pos=np.array(pos, dtype=float), text=text, color=colour, font=font)
-        self.glview.addItem(item)
-        self.text_items.append(item)
+                labels.append((np.array(label_pos[k], dtype=float), names[k], text, bold))
+        self.glview.set_labels(labels)
 
     def _draw_equilibria(self) -> None:
         s = self.system
