@@ -94,7 +94,7 @@ def view_figures(window) -> dict[str, bytes]:
                 add(choice.caption, figures.png_data(figures.plot_image(
                     choice.plot, *figures.REPORT_SIZE, legend=figures.has_named_curves(choice.plot), host=view,
                     fit=True)))
-        image = figures.scene_image(view, *figures.REPORT_SIZE)
+        image = figures.scene_image(view, *figures.REPORT_SIZE, framed=True)
         if image is not None:
             add(_caption(view), figures.png_data(image))
     return found

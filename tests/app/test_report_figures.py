@@ -124,6 +124,41 @@ def test_the_3d_scene_is_drawn_at_the_report_size_even_when_hidden(qtbot, window
         assert near_text.sum() > 3, (x, y)
 
 
+def test_the_report_frames_the_3d_box_to_fill_its_figure_whatever_the_zoom_on_screen(qtbot, window, tmp_path,
+                                                                                     monkeypatch, artifacts):
+    from orbitdesk.app.plots.plot_style import SCENE_BACKGROUND
+
+    from .conftest import load_model
+
+    window.view_docks["phase_space_3d"].show()
+    view = window.ensure_view("phase_space_3d")
+    load_model(qtbot, window.session, "x' = -y\ny' = x\nz' = -z\nx(0) = 1\nz(0) = 1\n",
+               {"t_end": 20.0, "samples": 2000})
+    qtbot.wait(200)
+    far = {"distance": 90.0, "elevation": 25.0, "azimuth": -50.0, "center": [1.0, -2.0, 0.5], "fov": 60.0}
+    view.set_camera(far)  # zoomed far out and moved aside on screen: the box is a small thing off centre
+    html = write_report(qtbot, window, monkeypatch, tmp_path / "far.html")
+    assert view.camera() == far  # the camera on screen stays where the user put it
+    image = next(im for caption, im in report_images(html).items() if caption.startswith("Phase space 3D"))
+    image.save(f"{artifacts}/report_3d_framed.png")
+    with open(f"{artifacts}/report_3d_framed.html", "w", encoding="utf-8") as out:
+        out.write(html)
+    assert (image.width(), image.height()) == REPORT_SIZE
+    rgb = pixels(image)
+    rows, cols = np.nonzero(np.abs(rgb - np.array(SCENE_BACKGROUND[:3])).sum(axis=2) > 40)  # box, grid, line, text
+    w, h = REPORT_SIZE
+    # the box with its numbers and names fills the figure's height (the tighter side here) and sits in its middle
+    assert np.ptp(rows) > 0.8 * h and np.ptp(cols) > 0.45 * w
+    assert rows.min() > 0.01 * h and rows.max() < 0.99 * h  # nothing cut off at the edges
+    assert abs((cols.min() + cols.max()) / 2 - w / 2) < 0.1 * w and abs((rows.min() + rows.max()) / 2 - h / 2) < 0.1 * h
+    # the same camera as on screen, unframed, shows the box small: what the report showed before
+    from orbitdesk.app.plots.figures import scene_image
+
+    small = pixels(scene_image(view, w, h))
+    rows, cols = np.nonzero(np.abs(small - np.array(SCENE_BACKGROUND[:3])).sum(axis=2) > 40)
+    assert np.ptp(rows) < 0.5 * h
+
+
 def test_report_gives_the_orbit_diagram_and_its_numbers(qtbot, window, tmp_path, monkeypatch):
     from .conftest import load_model
 

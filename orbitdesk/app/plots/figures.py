@@ -265,13 +265,16 @@ def has_data(plot_item) -> bool:
     return False
 
 
-def scene_image(view, width: int, height: int) -> QImage | None:
-    """A 3D view's scene (``view.glview``) with its labels, rendered off screen at ``width`` x ``height``; None
-    for other views or a scene that has never been drawn (no OpenGL context yet)."""
+def scene_image(view, width: int, height: int, framed: bool = False) -> QImage | None:
+    """A 3D view's scene (``view.glview``) with its labels, rendered off screen at ``width`` x ``height``: as
+    the camera on screen shows it, or ``framed`` (report figures) with the whole box filling the picture;
+    None for other views or a scene that has never been drawn (no OpenGL context yet)."""
     glview = getattr(view, "glview", None)
     if glview is None or not hasattr(glview, "render_image"):
         return None
     try:
+        if framed and hasattr(view, "figure_image"):
+            return view.figure_image(width, height)
         return glview.render_image(width, height)
     except Exception:  # noqa: BLE001 - no offscreen framebuffer on this driver
         return None

@@ -8,18 +8,21 @@
 * The labels (tick numbers, axis names) are plain data, ``(box position, text, QColor, QFont)``, painted
   with one QPainter after the items (one GL text item per label opened a QPainter per label per frame).
 * ``render_image`` draws the same scene, multisampled, with its labels, into a picture of any size
-  (reports and exports), without touching the widget's camera or size.
+  (reports and exports), without touching the widget's camera or size; ``framed_image`` first aims the
+  camera (same direction) so that the data box with its labels fills the picture (report figures).
 
 Imported with the 3D view only (it loads pyqtgraph.opengl).
 """
 
 from __future__ import annotations
 
+import itertools
+
 import numpy as np
 import pyqtgraph.opengl as gl
 from OpenGL import GL
 from PySide6.QtCore import QPointF
-from PySide6.QtGui import QImage, QPainter, QSurfaceFormat
+from PySide6.QtGui import QFontMetrics, QImage, QPainter, QSurfaceFormat, QVector3D
 from PySide6.QtOpenGL import QOpenGLFramebufferObject, QOpenGLFramebufferObjectFormat
 
 SMOOTH_SAMPLES = 4
@@ -43,10 +46,12 @@ def _framebuffer(width: int, height: int, samples: int) -> QOpenGLFramebufferObj
 
 
 class SceneWidget(gl.GLViewWidget):
-    """A GLViewWidget multisampled at rest only, with ``labels`` painted over the items in one pass."""
+    """A GLViewWidget multisampled at rest only, with ``labels`` painted over the items in one pass; the data
+    sit in a box of half-size ``half`` around the origin."""
 
-    def __init__(self, parent=None):
+    def __init__(self, half: float, parent=None):
         super().__init__(parent)
+        self.half = float(half)
         surface = QSurfaceFormat.defaultFormat()
         surface.setSamples(0)  # the widget's own framebuffer: the frames drawn while moving
         self.setFormat(surface)
@@ -85,6 +90,74 @@ class SceneWidget(gl.GLViewWidget):
     def label_points(self, width: int, height: int) -> np.ndarray:
         """Pixel positions of the labels in a picture of ``width`` x ``height``."""
         return self.pixel_points([pos for pos, *_rest in self.labels], width, height)
+
+    # ------------------------------------------------------------ framing the box
+    def frame_extent(self, width: int, height: int):
+        """The pixel rectangle ((left, top), (right, bottom)) the box's corners and the text of the labels
+        cover in a picture of ``width`` x ``height`` seen by this camera; None when part of it is behind."""
+        corners = np.array(list(itertools.product((-self.half, self.half), repeat=3)))
+        xy = self.pixel_points(np.vstack([corners] + [np.reshape(pos, (1, 3)) for pos, *_r in self.labels]),
+                               width, height)
+        if not np.all(np.isfinite(xy)):
+            return None
+        lo, hi = xy.copy(), xy.copy()  # a corner is a point, a label its text
+        for k, (_pos, text, _colour, font) in enumerate(self.labels, start=len(corners)):
+            rect = QFontMetrics(font).tightBoundingRect(text)  # drawn with its baseline starting at the point
+            lo[k] += (rect.left(), rect.top())
+            hi[k] += (rect.right(), rect.bottom())
+        return lo.min(axis=0), hi.max(axis=0)
+
+    def frame_fits(self, width: int, height: int, margin: float) -> bool:
+        """Whether the box with its labels lies inside ``margin`` of the half-width and half-height of a
+        picture of ``width`` x ``height`` from its middle."""
+        w, h = max(1, int(width)), max(1, int(height))
+        extent = self.frame_extent(w, h)
+        if extent is None:
+            return False
+        (left, top), (right, bottom) = extent
+        pad_x, pad_y = (1 - margin) * w / 2, (1 - margin) * h / 2
+        return bool(left >= pad_x and right <= w - pad_x and top >= pad_y and bottom <= h - pad_y)
+
+    def fitting_distance(self, width: int, height: int, margin: float) -> float:
+        """The nearest camera distance (same direction, aim and field of view) at which the box with its
+        labels fits (``frame_fits``) a picture of ``width`` x ``height``."""
+        opts = self.opts
+        saved = opts["distance"]
+        try:
+            near, far = self.half * 0.5, max(float(saved), self.half * 4)
+            opts["distance"] = far
+            while not self.frame_fits(width, height, margin) and far < 1e6:
+                near, far = far, far * 2
+                opts["distance"] = far
+            for _ in range(40):  # bisection on the ratio of the distances: the projection shrinks as it grows
+                mid = (near * far) ** 0.5
+                opts["distance"] = mid
+                near, far = (near, mid) if self.frame_fits(width, height, margin) else (mid, far)
+            return float(far)
+        finally:
+            opts["distance"] = saved
+
+    def framed_image(self, width: int, height: int, margin: float) -> QImage | None:
+        """``render_image`` with the camera turned as it is but aimed so that the box with its labels sits in
+        the middle of the picture, as close as ``margin`` allows; the camera is left as it was."""
+        opts = self.opts
+        saved = opts["distance"], QVector3D(opts["center"])
+        opts["center"] = QVector3D(0.0, 0.0, 0.0)
+        try:
+            for _ in range(3):  # fit, then move the aim so that what is drawn sits in the middle, and fit again
+                opts["distance"] = self.fitting_distance(width, height, margin)
+                extent = self.frame_extent(width, height)
+                if extent is None or self.width() < 1:
+                    break
+                (left, top), (right, bottom) = extent
+                per_pixel = self.width() / width  # pan() moves the picture by pixels of the widget (y down)
+                self.pan(-(left + right - width) / 2 * per_pixel, -(top + bottom - height) / 2 * per_pixel, 0,
+                         relative="view")
+            opts["distance"] = self.fitting_distance(width, height, margin)
+            return self.render_image(width, height)
+        finally:
+            opts["distance"], opts["center"] = saved
+            self.update()
 
     # ------------------------------------------------------------ drawing
     def _smooth_framebuffer(self, width: int, height: int):

@@ -7,8 +7,6 @@ coordinates of very different size share one readable cube; ticks show the data 
 
 from __future__ import annotations
 
-import itertools
-
 import numpy as np
 from PySide6.QtCore import QEvent, QTimer, Signal
 from PySide6.QtGui import QColor, QFont, QImage, QPainter, QVector3D
@@ -34,6 +32,7 @@ MAX_ADDED = 40
 DEFAULT_CAMERA = {"distance": 23.0, "elevation": 22.0, "azimuth": -58.0, "center": [0.0, 0.0, 0.0], "fov": 60.0}
 COLOUR_MODES = ("time", "trajectory")
 WIDE_ASPECT = 1.6  # width / height up to which the starting camera shows the whole box
+FIGURE_MARGIN = 0.94  # a figure's box with its labels reaches this share of the half-width or half-height
 
 
 class PhaseSpace3DView(SessionView):
@@ -94,7 +93,7 @@ class PhaseSpace3DView(SessionView):
         self.strip = JobStrip(session, "Running")
 
         # ---- scene
-        self.glview = SceneWidget()  # multisampled at rest, not while the camera moves; labels in one pass
+        self.glview = SceneWidget(HALF)  # multisampled at rest, not while the camera moves; labels in one pass
         self.glview.setBackgroundColor(QColor(*SCENE_BACKGROUND))
         self.glview.setToolTip("Drag to turn, wheel to zoom, middle-drag (or Ctrl+drag) to move")
         self.glview.setMinimumSize(200, 160)
@@ -237,25 +236,25 @@ class PhaseSpace3DView(SessionView):
         """The tick numbers and axis names of the scene: (box position, text, QColor, QFont) each."""
         return list(self.glview.labels)
 
-    def box_in_view(self, margin: float = 0.97) -> bool:
-        """Whether the whole box, with room for its tick numbers and axis names, projects inside the scene."""
-        w, h = max(1, self.glview.width()), max(1, self.glview.height())
-        reach = HALF * 1.2  # the tick numbers and the names stand a little outside the box
-        corners = np.array(list(itertools.product((-reach, reach), repeat=3)))
-        xy = self.scene_points(corners, w, h)
-        inside = (np.abs(xy[:, 0] / w * 2 - 1) <= margin) & (np.abs(1 - xy[:, 1] / h * 2) <= margin)
-        return bool(np.all(inside))
+    def box_in_view(self, margin: float = 0.97, size=None) -> bool:
+        """Whether the whole box with its tick numbers and axis names projects inside the scene, or inside a
+        picture of ``size`` (width, height) seen by the same camera; ``margin`` is the share of the half-width
+        and half-height they may reach from the middle."""
+        w, h = size if size is not None else (self.glview.width(), self.glview.height())
+        return self.glview.frame_fits(w, h, margin)
 
     def fit_view(self) -> None:
         """Move the camera back (never closer) until the whole box shows: a walkthrough step's camera was
         chosen in a dock of another shape."""
-        distance = float(self.glview.opts["distance"])
-        for _ in range(40):
-            if self.box_in_view():
-                break
-            distance *= 1.08
-            self.glview.setCameraPosition(distance=distance)
+        if not self.box_in_view():
+            self.glview.setCameraPosition(distance=self.glview.fitting_distance(self.glview.width(),
+                                                                                self.glview.height(), 0.97))
         self.glview.update()
+
+    def figure_image(self, width: int, height: int) -> QImage | None:
+        """The scene as a figure of ``width`` x ``height`` (reports): the box with its labels filling it, seen
+        from the direction of the camera on screen (which is left as it was)."""
+        return self.glview.framed_image(width, height, FIGURE_MARGIN)
 
     def reset_camera(self) -> None:
         """The starting camera, moved back in wide, short views so that the whole box shows
