@@ -241,3 +241,24 @@ def test_a_model_without_forcing_after_a_forced_one_gets_a_plane_section(qtbot, 
     load(qtbot, session, LORENZ)
     qtbot.waitUntil(lambda: view.system is session.system)
     assert view.section_kind() == "plane"
+
+
+def test_a_closed_section_view_waits_until_it_is_opened_again(qtbot, window, tmp_path):
+    """A section view whose dock is closed computed a section of every model opened after it (work nobody
+    saw, and the bracket sample's report listed "Section: 0 crossings of 500" left from the convection loop):
+    closed, it computes nothing; opened again, it computes the section of the model now open."""
+    from .test_main_window import open_model
+
+    open_model(qtbot, window, tmp_path, DUFFING, "duffing.txt")
+    view = window.show_view("sections")
+    qtbot.waitUntil(lambda: view.result is not None, timeout=60000)
+    window.view_docks["sections"].close()
+    qtbot.waitUntil(lambda: not window.view_docks["sections"].isVisible())
+    open_model(qtbot, window, tmp_path, LORENZ, "lorenz.txt")
+    s = window.session
+    qtbot.waitUntil(lambda: view.system is s.system and not s.busy, timeout=60000)
+    assert view.result is None and not s.jobs.running("sections")
+    assert not view._timer.isActive()
+    with qtbot.waitSignal(view.sectionChanged, timeout=120000) as blocker:
+        window.show_view("sections")
+    assert blocker.args[0].state_names == list(s.system.states)

@@ -11,8 +11,8 @@ import math
 
 import numpy as np
 import pyqtgraph as pg
-from PySide6.QtCore import Qt, Signal
-from PySide6.QtWidgets import QSpinBox, QSplitter, QStackedWidget, QVBoxLayout, QWidget
+from PySide6.QtCore import Qt, QTimer, Signal
+from PySide6.QtWidgets import QDockWidget, QSpinBox, QSplitter, QStackedWidget, QVBoxLayout, QWidget
 
 from orbitdesk.language.angles import wrap_columns
 from orbitdesk.analyses.sections import SectionResult
@@ -358,8 +358,30 @@ class SectionsView(SessionView):
         s = self.system
         if s is None or s.kind == "map" or not self.auto.isChecked():
             return
+        if self._dock_closed():  # nobody looks: computed when the view is opened again
+            self._pending = True
+            return
         if force or self._computed_once:
             self._timer.start()
+
+    def _dock_closed(self) -> bool:
+        """Whether the view sits in a dock the user (or the project's layout) has closed. A closed view kept
+        computing sections of every model opened after it: work nobody saw, and a section of the previous
+        sample's kind in the next one's report."""
+        dock = self.parentWidget()
+        while dock is not None and not isinstance(dock, QDockWidget):
+            dock = dock.parentWidget()
+        return dock is not None and not dock.toggleViewAction().isChecked()
+
+    def showEvent(self, event) -> None:  # noqa: N802 - Qt's name
+        super().showEvent(event)
+        if getattr(self, "_pending", False):  # once the dock counts as open again
+            QTimer.singleShot(0, self, self._catch_up)
+
+    def _catch_up(self) -> None:
+        if getattr(self, "_pending", False) and not self._dock_closed():
+            self._pending = False
+            self._schedule(force=True)
 
     # ------------------------------------------------------------ results
     def _adopt(self, result) -> None:
