@@ -73,9 +73,10 @@ def script_text(session, csv_name: str = "run.csv") -> str:
 
 
 def view_figures(window) -> dict[str, bytes]:
-    """Caption -> PNG of every plot of every view the window has made (in sight, behind a tab or closed),
-    drawn off screen at one fixed, readable size from what each plot holds, fitted to its data (plots
-    without data are left out); the 3D scene rendered at that size too when it has drawn once."""
+    """Caption -> PNG of every plot of every view the open project uses (in sight, behind a tab or closed
+    since: ``window.views_in_project``), drawn off screen at one fixed, readable size from what each plot
+    holds, fitted to its data (plots without data are left out); the 3D scene rendered at that size too when
+    it has drawn once. Views made for a project opened before and closed in this one are left out."""
     from orbitdesk.app.plots import figures
 
     found: dict[str, bytes] = {}
@@ -86,8 +87,9 @@ def view_figures(window) -> dict[str, bytes]:
             name, k = f"{caption} ({k})", k + 1
         found[name] = data
 
+    in_project = getattr(window, "views_in_project", None)
     for module, view in window.views.items():
-        if module in NO_FIGURE_VIEWS:
+        if module in NO_FIGURE_VIEWS or (in_project is not None and module not in in_project):
             continue
         for choice in figures.view_plots(view, module):
             if figures.has_data(choice.plot):

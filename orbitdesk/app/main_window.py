@@ -257,6 +257,7 @@ class MainWindow(QMainWindow):
         super().__init__(parent)
         self.session = session or Session(self)
         self.view_docks: dict[str, QDockWidget] = {}
+        self.views_in_project: set[str] = set()
         self.views: dict[str, QWidget] = {}
         self.panel_parts: dict[str, QWidget] = {}
         self._active_view: str | None = None
@@ -415,7 +416,7 @@ class MainWindow(QMainWindow):
             dock.setObjectName(f"view_{name}")
             dock.setWidget(_Placeholder(""))
             dock.toggleViewAction().setToolTip(f"Show or hide the {views_pkg.module_title(name).lower()} view")
-            dock.visibilityChanged.connect(lambda visible, n=name: visible and self.ensure_view(n))
+            dock.visibilityChanged.connect(lambda visible, n=name: visible and self._seen(n))
             dock.toggleViewAction().triggered.connect(lambda checked, n=name: checked and self.show_view(n))
             self.view_docks[name] = dock
             if name not in views_pkg.DEFAULT_VISIBLE:
@@ -538,6 +539,10 @@ class MainWindow(QMainWindow):
         help_ui.install(self)
 
     # ------------------------------------------------------------ views
+    def _seen(self, name: str):
+        self.views_in_project.add(name)
+        return self.ensure_view(name)
+
     def ensure_view(self, name: str):
         """The view widget of module ``name``, imported and created on first use."""
         if name in self.views:
@@ -554,6 +559,7 @@ class MainWindow(QMainWindow):
         dock.toggleViewAction().setText(dock.windowTitle())
         dock.setWidget(view)
         self.views[name] = view
+        self.views_in_project.add(name)
         from orbitdesk.app.plots.figures import equip_plots
 
         equip_plots(self, view)
@@ -646,6 +652,9 @@ class MainWindow(QMainWindow):
             self.reset_layout()
             if self.isVisible():
                 QTimer.singleShot(0, self.apply_default_sizes)  # after other panels have reacted to the load
+        # the views this project uses: open in its layout, or opened or made while it is open (the report
+        # leaves out views made for a project before and closed in this one)
+        self.views_in_project = {n for n, d in self.view_docks.items() if d.toggleViewAction().isChecked()}
         self.run_status.setText("")
         self._update_title()
 

@@ -98,10 +98,10 @@ def test_the_3d_scene_is_drawn_at_the_report_size_even_when_hidden(qtbot, window
 
     from .conftest import load_model
 
-    window.view_docks["phase_space_3d"].show()
-    view = window.ensure_view("phase_space_3d")
     load_model(qtbot, window.session, "x' = -y\ny' = x\nz' = -z\nx(0) = 1\nz(0) = 1\n",
                {"t_end": 20.0, "samples": 2000})
+    window.view_docks["phase_space_3d"].show()  # opened for this project (a view of a project before is not in its report)
+    view = window.ensure_view("phase_space_3d")
     qtbot.wait(200)
     window.view_docks["phase_space_3d"].hide()
     image = scene_image(view, *REPORT_SIZE)
@@ -130,10 +130,10 @@ def test_the_report_frames_the_3d_box_to_fill_its_figure_whatever_the_zoom_on_sc
 
     from .conftest import load_model
 
-    window.view_docks["phase_space_3d"].show()
-    view = window.ensure_view("phase_space_3d")
     load_model(qtbot, window.session, "x' = -y\ny' = x\nz' = -z\nx(0) = 1\nz(0) = 1\n",
                {"t_end": 20.0, "samples": 2000})
+    window.view_docks["phase_space_3d"].show()  # opened for this project (a view of a project before is not in its report)
+    view = window.ensure_view("phase_space_3d")
     qtbot.wait(200)
     far = {"distance": 90.0, "elevation": 25.0, "azimuth": -50.0, "center": [1.0, -2.0, 0.5], "fov": 60.0}
     view.set_camera(far)  # zoomed far out and moved aside on screen: the box is a small thing off centre
@@ -180,3 +180,22 @@ def test_report_gives_the_orbit_diagram_and_its_numbers(qtbot, window, tmp_path,
     diagram = [c for c in images if c.startswith("Parameter sweep") or c.startswith("Sweep")]
     assert diagram, list(images)
     assert all((images[c].width(), images[c].height()) == REPORT_SIZE for c in diagram)
+
+
+def test_views_of_a_project_before_are_left_out_of_the_next_ones_report(qtbot, window, tmp_path):
+    """The bracket sample's report showed a 3D figure of x, x', t and a section nobody made for it: views
+    made for the convection loop before, closed in the bracket's layout, still drawn from the new run. A
+    report holds the views the open project uses: open in its layout, or opened while it is open."""
+    from .test_main_window import open_model
+
+    open_spring(qtbot, window, tmp_path)
+    window.show_view("phase_space_3d")
+    qtbot.waitUntil(lambda: any(c.startswith("Phase space 3D") for c in exports.view_figures(window)),
+                    timeout=60000)
+    open_model(qtbot, window, tmp_path, "k = 1\nu' = -k*u\nu(0) = 1\n", "decay.txt")
+    assert not window.view_docks["phase_space_3d"].toggleViewAction().isChecked()  # its layout: the default
+    captions = list(exports.view_figures(window))
+    assert captions and not any(c.startswith("Phase space 3D") for c in captions), captions
+    window.show_view("phase_space_3d")  # opened for this project: in its report again
+    qtbot.waitUntil(lambda: any(c.startswith("Phase space 3D") for c in exports.view_figures(window)),
+                    timeout=60000)
