@@ -24,7 +24,7 @@ from orbitdesk.engine.model_events import saltation_refusal
 from orbitdesk.engine.methods import DEFAULT as DEFAULT_METHOD
 from orbitdesk.engine.methods import method as method_named
 from orbitdesk.engine.status import C_CANCELLED
-from orbitdesk.engine.stiff import solve_at
+from orbitdesk.engine.stiff import solve_at, variational
 from orbitdesk.analyses.time_scales import MIN_WINDOW, choose_method, detect_forcing_period, time_scale
 from orbitdesk.engine.status import word as status_word
 from orbitdesk.engine.progress import CancelToken, Cancelled, Reporter
@@ -132,23 +132,7 @@ class _Flow:
         return out.states
 
     def _run_stiff(self, z0, t0, t1, grid, which) -> np.ndarray:
-        n, system, p = self.n, self.system, self.p
-        eye = np.eye(which + 1)
-
-        def fun(t, z):
-            f = self.rhs(t, z[:n])
-            if not which:
-                return f
-            return np.concatenate([f, (system.jac(t, z[:n], p) @ z[n:].reshape(n, which)).ravel()])
-
-        def jac(t, z):  # the tangent columns' J in each block; their dependence on u left out (Newton only)
-            J = system.jac(t, z[:n], p)
-            if not which:
-                return J
-            full = np.zeros((n * (which + 1), n * (which + 1)))
-            full[:n, :n] = J
-            full[n:, n:] = np.kron(J, eye[:which, :which])
-            return full
+        fun, jac = variational(self.system, self.p, which, self.rhs)
 
         def report(_fraction):
             self.report(0.0)  # cancel polling

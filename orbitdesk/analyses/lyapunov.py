@@ -8,9 +8,15 @@ factorisation) every renormalisation interval; the logarithms of R's diagonal, a
 time after the transient, are the exponents. All of it runs in the compiled loops of
 ``integrators/tangent.py`` on the model's kernel (J Phi through the sparse Jacobian).
 
-Flows step with the run's explicit method and tolerances (a stiff choice steps with Dormand-Prince
-8(5,3)), or with RK4 at a fixed ``dt`` when one is given; they are renormalised every
-``dt_renorm`` (default: five over the Jacobian's largest rate along the transient). A forced
+Flows step with the method given (``method``), else the run's, else the default one; or with RK4 at a
+fixed ``dt`` when one is given. Explicit methods run the compiled loops; a stiff method runs the
+variational equations through engine/stiff.py (``tangent_run``). When a probe run shows the system
+stiff (time_scales.choose_method) the default method still integrates the spectrum, with a note: the
+spectrum holds the exponent of the fastest contracting direction, which only steps shorter than one
+over its rate resolve whatever the method (the implicit method would take as many steps, each far
+dearer), while the explicit method is stable at that step. They are renormalised every ``dt_renorm``
+(default: five over the Jacobian's largest rate along the transient, so that a tangent vector never
+shrinks below its absolute tolerance between renormalisations). A forced
 (non-autonomous) flow gets its n state exponents; the direction of time itself would add one zero
 exponent only if the forcing phase were a state, so none is reported for it.
 
@@ -34,7 +40,10 @@ from orbitdesk.engine import compiled, drivers, limits
 from orbitdesk.engine.model_events import saltation_refusal
 from orbitdesk.engine.status import REFUSED
 from orbitdesk.engine.status import word as status_word
-from orbitdesk.analyses.time_scales import time_scale
+from orbitdesk.analyses.time_scales import MIN_WINDOW, MethodChoice, choose_method, time_scale
+from orbitdesk.engine.methods import DEFAULT as DEFAULT_METHOD
+from orbitdesk.engine.methods import method as method_named
+from orbitdesk.engine.stiff import tangent_run
 
 QR, TWO_TRAJECTORY = "qr", "two-trajectory"
 MAX_RUNNING = 5000  # rows of running estimates kept
@@ -66,6 +75,7 @@ class LyapunovResult:
     blocks: int = 0  # block averages the uncertainty is read from
     converged: bool | None = None  # None: a fixed length was asked for; False: the cap came first
     tolerance: tuple[float, float] | None = None  # (rtol, atol) the run was to settle to
+    integrator: str = ""  # the integration method of a flow (engine/methods.py name)
 
     @property
     def ok(self) -> bool:
@@ -164,7 +174,7 @@ def lyapunov_spectrum(system: CompiledSystem, p=None, u0=None, t_end: float | No
                       dt_renorm: float | None = None, dt: float | None = None,
                       settings: RunSettings | None = None, cancel=None, progress=None,
                       converge: bool = False, rtol: float = CONVERGE_RTOL, atol: float = CONVERGE_ATOL,
-                      cap: float | None = None) -> LyapunovResult:
+                      cap: float | None = None, method: str | None = None) -> LyapunovResult:
     """All n exponents, in descending order, with running estimates, their uncertainty and the
     Kaplan-Yorke dimension.
 
@@ -176,7 +186,8 @@ def lyapunov_spectrum(system: CompiledSystem, p=None, u0=None, t_end: float | No
     until the cap (``cap`` time units or iterations after the transient, default FLOW_CAP / MAP_CAP;
     or ``t_end`` / ``steps`` when given) - ``converged`` says which; the transient then defaults to the system's slow time scale (at least 200) or 1000
     iterations. ``dt_renorm``: time between re-orthonormalisations of a flow; ``dt``: a fixed RK4 step
-    instead of the adaptive method.
+    instead of the adaptive method; ``method``: the adaptive method of a flow (default: the settings' one;
+    a stiff system keeps the default method with a warning that says why).
     """
     system.refuse_delays("the Lyapunov spectrum (QR)")
     settings = settings or RunSettings()
@@ -199,8 +210,11 @@ def lyapunov_spectrum(system: CompiledSystem, p=None, u0=None, t_end: float | No
     if system.kind == MAP:
         result = _map_spectrum(system, p, u, end, transient, settings.bound, Reporter(progress, cancel), tolerance)
     else:
+        chosen = _flow_method(system, p, u, start, end, dt, settings, method, cancel)
         result = _flow_spectrum(system, p, u, start, end, transient, dt_renorm, dt, settings, cancel, progress,
-                                tolerance)
+                                tolerance, chosen.method)
+        if chosen.note:
+            result.warnings.append(chosen.note)
     if system.nonsmooth:
         result.warnings.insert(0, NONSMOOTH_NOTE.format(names=", ".join(f"{f}()" for f in system.nonsmooth)))
     if system.kind != MAP and not system.autonomous and result.kaplan_yorke_dimension is not None \
@@ -218,9 +232,30 @@ def _failed(kind, method, status, message, n, **extra):
                           status=status, message=message, **extra)
 
 
-def _flow_spectrum(system, p, u, t0, t1, transient, dt_renorm, dt, settings, cancel, progress, tolerance=None):
+def _flow_method(system, p, u, start, end, dt, settings, method, cancel) -> MethodChoice:
+    """The adaptive method a flow's spectrum integrates with: given, the settings' own, or chosen."""
+    if dt is not None:
+        return MethodChoice("rk4")
+    if method is not None:
+        return choose_method(system, p, u, end - start, method)
+    if settings.method != DEFAULT_METHOD or not settings.method_info.adaptive:
+        return MethodChoice(settings.method if settings.method_info.adaptive else DEFAULT_METHOD)
+    probe = choose_method(system, p, u, min(end - start, MIN_WINDOW * 10), None, t0=start, cancel=cancel)
+    if probe.method == DEFAULT_METHOD:
+        return probe
+    # the spectrum follows the fastest contracting direction: its exponent (-|rate|) is resolved only by steps
+    # shorter than 1/|rate| whatever the method, so the compiled explicit loop, stable at that step, stays
+    return MethodChoice(DEFAULT_METHOD, f"{probe.note.split(':')[0]}; the spectrum resolves the fastest rate "
+                                        "whatever the method, so the default method stays (--method stiff "
+                                        "integrates with the stiff one)")
+
+
+def _flow_spectrum(system, p, u, t0, t1, transient, dt_renorm, dt, settings, cancel, progress, tolerance=None,
+                   method=DEFAULT_METHOD):
     n = system.n_states
     report = Reporter(progress, cancel)
+    info = method_named(method)
+    settings = replace(settings, method=method if info.adaptive else settings.method)
     u, samples, times, failed = _transient_flow(system, settings, u, p, t0, transient, cancel)
     if failed is not None:
         return _failed("flow", QR, failed.status, f"during the transient: {failed.message}", n)
@@ -228,8 +263,6 @@ def _flow_spectrum(system, p, u, t0, t1, transient, dt_renorm, dt, settings, can
     interval = float(dt_renorm) if dt_renorm is not None else _renorm_interval(system, p, samples, times, t1 - ts)
     if not (math.isfinite(interval) and interval > 0):
         raise ValueError("the renormalisation interval must be positive")
-    method = "rk4" if dt is not None else (settings.method if settings.method_info.family == "explicit_rk"
-                                           else "dop853")
     step = float(dt) if dt is not None else settings.dt
     if not (math.isfinite(step) and step > 0):
         raise ValueError("the step dt must be positive")
@@ -238,9 +271,12 @@ def _flow_spectrum(system, p, u, t0, t1, transient, dt_renorm, dt, settings, can
     if dt is not None and dt_renorm is None:
         interval = RENORM_STEPS * step
     work = (t1 - ts) if tolerance is None else min(t1 - ts, 2000.0)
-    engine = compiled.engine_for_work(system, work * 1500 * (n + 1) * max(1.0, n / 3))
+    engine = None if info.stiff else compiled.engine_for_work(system, work * 1500 * (n + 1) * max(1.0, n / 3))
 
     def block(t, t_next, u, V, rows, part):
+        if info.stiff:
+            return tangent_run(system, info.scipy_name, t, t_next, t, u, V, p, interval, settings.rtol,
+                               settings.atol, settings.bound, rows, part)
         with np.errstate(all="ignore"):
             return drivers.flow_tangent(engine, method, t, t_next, t, u, V, p, interval, settings.rtol,
                                         settings.atol, settings.max_step, step, settings.bound, rows, part)
@@ -261,7 +297,7 @@ def _flow_spectrum(system, p, u, t0, t1, transient, dt_renorm, dt, settings, can
                    "cancelled": "cancelled"}[status]
     result = _sorted_result(out.sums, out.rows, out.row_t, "flow", QR, out.averaged,
                             dt=step if method == "rk4" else None, renorm_interval=interval,
-                            status=status, message=message)
+                            status=status, message=message, integrator=method)
     return _with_uncertainty(result, out, ts, blocks, tolerance, "time units")
 
 

@@ -10,11 +10,15 @@ After a transient each member contributes samples of an observed quantity:
   dense output;
 * ``iterate``: iterates of a map.
 
-The accuracy is set like a run's: adaptive Dormand-Prince (``method``, ``rtol``, ``atol``, the
-defaults of a single run) unless a fixed step ``dt`` is given (classical RK4; a strobe period is
-divided exactly). Optionally the largest Lyapunov exponent per value: one tangent vector evolved
-with the model's Jacobian (for non-smooth models the one that holds almost everywhere) beside
-each member and renormalised every time unit (maps: every step).
+The accuracy is set like a run's: an adaptive method (``method``, ``rtol``, ``atol``, the defaults
+of a single run) unless a fixed step ``dt`` is given (classical RK4; a strobe period is divided
+exactly). The method is taken like a run's: the one given, else Dormand-Prince 8(5,3), or the stiff
+method when a probe run at the middle value shows the system stiff (time_scales.choose_method; the
+result's note says so). Explicit methods run every value in the member loops; a stiff method runs
+each value through ``sections`` (``sweep_events.sweep_value_by_value``), as models with events do.
+Optionally the largest Lyapunov exponent per value, by the ``lyapunov`` command's own path
+(``lyapunov.lyapunov_spectrum`` stopping on convergence, capped at the sampling time, with its
+standard error): the same function, the same rule, the same number for the same settings.
 
 Large sweeps and two-parameter grids can be split into chunks run on any
 ``concurrent.futures.Executor`` (``chunks.py``); workers recompile the model text. The engine is
@@ -53,7 +57,7 @@ class SweepSettings:
     transient: float = 100.0  # time (flows; strobe: rounded up to whole periods) or iterations (maps) dropped
     samples: int = 100  # samples kept per value
     dt: float | None = None  # a fixed RK4 step (strobe: the nearest step dividing T that is not larger)
-    method: str = "dop853"  # without dt: an adaptive explicit method of engine/methods.py
+    method: str | None = None  # without dt: an adaptive method of engine/methods.py; None: chosen (see above)
     rtol: float = 1e-8  # its tolerances (a single run's defaults)
     atol: float = 1e-10
     duration: float = 500.0  # plane/maxima: longest sampling time after the transient
@@ -107,28 +111,31 @@ class SweepSettings:
 
 
 def accuracy_like(run) -> dict:
-    """A sweep's (or grid's) accuracy fields from a single run's settings (``engine.settings.RunSettings``):
-    a fixed-step method keeps its step, an adaptive explicit one its tolerances; a stiff method's
-    tolerances go to DOP853 (sweeps run explicit methods)."""
+    """A sweep's accuracy fields from a single run's settings (``engine.settings.RunSettings``): a
+    fixed-step method keeps its step, an adaptive one its name and tolerances; the default method is left
+    to the sweep's own choice (None: the stiff one where the default is held back by stiffness)."""
+    from orbitdesk.engine.methods import DEFAULT
+
     info = run.method_info
     if not info.adaptive:
-        return {"dt": run.dt, "method": "dop853", "rtol": run.rtol, "atol": run.atol}
-    name = run.method if info.family == "explicit_rk" else "dop853"
-    return {"dt": None, "method": name, "rtol": run.rtol, "atol": run.atol}
+        return {"dt": run.dt, "method": None, "rtol": run.rtol, "atol": run.atol}
+    return {"dt": None, "method": None if run.method == DEFAULT else run.method, "rtol": run.rtol, "atol": run.atol}
 
 
-def _check_accuracy(s) -> None:
+def _check_accuracy(s, stiff_allowed: bool = True) -> None:
     """The step or the adaptive method and tolerances of a sweep or grid; ValueError in plain words."""
-    from orbitdesk.engine.methods import method
+    from orbitdesk.engine.methods import NAMES, method
 
     if s.dt is not None:
         if not (math.isfinite(s.dt) and s.dt > 0):
             raise ValueError("the step dt must be positive")
         return
-    info = method(s.method)
-    if info.family != "explicit_rk" or not info.adaptive:
-        raise ValueError(f"sweeps run an adaptive explicit method (dop853 or rk45) or a fixed step dt; "
-                         f"'{s.method}' is not one")
+    if s.method is not None:
+        info = method(s.method)
+        if not info.adaptive or (info.stiff and not stiff_allowed):
+            allowed = [m for m in NAMES if method(m).adaptive and (stiff_allowed or not method(m).stiff)]
+            raise ValueError(f"this runs an adaptive method ({', '.join(allowed)}) or a fixed step dt; "
+                             f"'{s.method}' is not one")
     if not (0 < s.rtol <= 1 and s.atol > 0 and math.isfinite(s.atol)):
         raise ValueError("the tolerances must be positive (rtol at most 1)")
 
@@ -143,6 +150,9 @@ class SweepResult:
     lyapunov: np.ndarray | None = None  # (M,), NaN for members that diverged
     status: np.ndarray = field(default_factory=lambda: np.empty(0, dtype=str))  # (M,) per value
     times: np.ndarray | None = None  # (M, K) time (or step) of each sample
+    lyapunov_error: np.ndarray | None = None  # (M,) the standard error of each exponent (lyapunov.py)
+    method: str = ""  # the integration method of a flow's sweep ("rk4" with a fixed step)
+    notes: list[str] = field(default_factory=list)  # the stiff method chosen, exponents capped before settling
 
     def points(self, i: int) -> np.ndarray:
         """The samples of value ``i`` without padding."""
@@ -155,7 +165,8 @@ class SweepResult:
                 "observed": self.observed, "mode": self.mode,
                 "lyapunov": None if self.lyapunov is None else self.lyapunov.tolist(),
                 "status": [str(s) for s in self.status], "requested": int(self.samples.shape[1]),
-                "found": self.found().tolist()}
+                "found": self.found().tolist(), "method": self.method, "notes": list(self.notes),
+                "lyapunov_error": None if self.lyapunov_error is None else self.lyapunov_error.tolist()}
 
     def found(self) -> np.ndarray:
         """How many samples each value got (fewer than asked when the sampling time ran out first)."""
@@ -286,7 +297,7 @@ def run_members(system, P, U0, settings: SweepSettings, cancel=None, progress=No
                 events = K
             steps = abs(t_end - t0) / (h or 0.05)
             engine = _engine(system, M * steps * (4 if h else 12) * (2 if s.lyapunov else 1), compiled)
-            method = "rk4" if h else s.method
+            method = "rk4" if h else (s.method or "dop853")
             out = drivers.members_run(engine, method, t0, t_end, U0, P, rtol=s.rtol, atol=s.atol, dt=h or 0.01,
                                       bound=s.bound, grid=grid, planes=planes, max_events=events, report=report,
                                       t_keep=t_keep, tangents=tangents, interval=interval,
@@ -317,6 +328,7 @@ def sweep(system, parameter: str, values, settings: SweepSettings | None = None,
     compiles the engine when the work pays for it, True always, False never (plain Python)."""
     settings = (settings or SweepSettings()).checked(system)
     check_sweep_size(system, len(np.ravel(values)), settings)
+    wanted = settings
     if parameter not in system.parameters:
         raise ValueError(f"unknown parameter '{parameter}' (parameters: {', '.join(system.parameters) or 'none'})")
     values = np.asarray(values, dtype=float).ravel()
@@ -324,11 +336,25 @@ def sweep(system, parameter: str, values, settings: SweepSettings | None = None,
         raise ValueError("the parameter values must be finite numbers")
     base_p = system.param_values.astype(float) if p is None else np.asarray(p, dtype=float)
     u0 = system.initial.astype(float) if u0 is None else np.asarray(u0, dtype=float)
-    if system.model.events:  # each value on its own through the single-run engine, which applies events
-        from orbitdesk.analyses.sweep_events import sweep_with_events
+    notes = []
+    if system.kind != MAP and not system.delays:
+        choice = _sweep_method(system, parameter, values, settings, u0, base_p, cancel)
+        settings = replace(settings, method=choice.method)
+        notes += [choice.note] if choice.note else []
+    report = Reporter(progress, cancel)
+    exponents_after = settings.lyapunov and not system.delays  # by the lyapunov command's path, below
+    if exponents_after:
+        if system.model.events:
+            from orbitdesk.analyses.sweep_events import refuse_exponents
 
-        samples, times, lyap, status = sweep_with_events(system, parameter, values, settings, u0, base_p,
-                                                         cancel, progress)
+            refuse_exponents(system)
+        settings, progress = replace(settings, lyapunov=False), report.part(0.0, 0.5)
+    if system.model.events or (settings.dt is None and settings.method and _is_stiff(settings.method)):
+        # each value on its own through sections: they follow the model's events and take the stiff method
+        from orbitdesk.analyses.sweep_events import sweep_value_by_value
+
+        samples, times, lyap, status = sweep_value_by_value(system, parameter, values, settings, u0, base_p,
+                                                            cancel, progress)
     elif executor is not None or chunk_size is not None:
         pieces = split(values.size, chunk_size or 64)
         text = system.model.text
@@ -342,7 +368,79 @@ def sweep(system, parameter: str, values, settings: SweepSettings | None = None,
     else:
         samples, times, lyap, status = _sweep_arrays(system, parameter, values, settings, u0, base_p,
                                                      cancel, progress, compiled)
-    return SweepResult(parameter, values, samples, settings.observe, settings.mode, lyap, status, times)
+    error = None
+    if exponents_after:
+        lyap, error, capped = sweep_exponents(system, parameter, values, wanted, u0, base_p, wanted.method,
+                                              cancel, report.part(0.5, 0.5))
+        notes += [capped] if capped else []
+    report(1.0)
+    method = "" if system.kind == MAP else "rk4" if settings.dt else settings.method
+    return SweepResult(parameter, values, samples, settings.observe, settings.mode, lyap, status, times, error,
+                       method, notes)
+
+
+def _is_stiff(name: str) -> bool:
+    from orbitdesk.engine.methods import method
+
+    return method(name).stiff
+
+
+def _sweep_method(system, parameter, values, settings, u0, base_p, cancel):
+    """The method of a flow's sweep: the one given (or RK4 with a fixed step), else the default or, when a
+    probe run at the middle value shows stiffness, the stiff one (time_scales.choose_method)."""
+    from orbitdesk.analyses.time_scales import MethodChoice, choose_method
+
+    if settings.dt is not None or settings.method is not None:
+        return MethodChoice(settings.method)
+    i = len(values) // 2
+    p = np.array(base_p, dtype=float)
+    p[system.parameters.index(parameter)] = values[i]
+    start = u0 if u0.ndim == 1 else u0[:, i]
+    length = settings.transient + (settings.samples * settings.period if settings.mode == STROBE
+                                   else settings.duration)
+    choice = choose_method(system, p, start, length, None, t0=settings.t_start, cancel=cancel)
+    if choice.note:
+        choice.note = f"at {parameter} = {values[i]:.6g}, {choice.note} for every value"
+    return choice
+
+
+def sweep_exponents(system, parameter, values, settings, u0, base_p, method=None, cancel=None, progress=None):
+    """The largest Lyapunov exponent of each value by the ``lyapunov`` command's path: ``lyapunov_spectrum``
+    stopping on convergence (its tolerance; capped at the sweep's sampling time for flows) after the
+    sweep's transient, with the sweep's method (None: as the command without --method), step and
+    tolerances. (exponents (M,), standard errors (M,), a note on values capped before settling)."""
+    from orbitdesk.analyses.lyapunov import lyapunov_spectrum
+    from orbitdesk.engine.settings import RunSettings
+
+    report = Reporter(progress, cancel)
+    M = len(values)
+    exponents, errors, capped = np.full(M, np.nan), np.full(M, np.nan), []
+    run = RunSettings(rtol=settings.rtol, atol=settings.atol, bound=settings.bound, t_start=settings.t_start)
+    # the longest averaging: a flow's sampling time (the lyapunov command's default cap for maps)
+    cap = None if system.kind == MAP else (settings.samples * settings.period if settings.mode == STROBE
+                                           else settings.duration)
+    for i, value in enumerate(values):
+        p = np.array(base_p, dtype=float)
+        p[system.parameters.index(parameter)] = value
+        start = u0 if np.ndim(u0) == 1 else u0[:, i]
+        result = lyapunov_spectrum(system, p, start, transient=settings.transient, dt=settings.dt, settings=run,
+                                   converge=True, cap=cap, cancel=cancel, progress=report.part(i / M, 1 / M),
+                                   method=None if settings.dt or system.kind == MAP else method)
+        if result.status == "cancelled":
+            from orbitdesk.engine.progress import Cancelled
+
+            raise Cancelled("cancelled")
+        if result.ok:
+            exponents[i] = result.largest
+            if result.uncertainty is not None:
+                errors[i] = float(result.uncertainty[0])
+            if result.converged is False:
+                capped.append(value)
+    note = ""
+    if capped:
+        note = (f"the exponent of {len(capped)} of {M} values reached the cap before its estimate settled (first at "
+                f"{parameter} = {capped[0]:.6g}); their standard errors say how far")
+    return exponents, errors, note
 
 
 def check_sweep_size(system, count: int, s: SweepSettings) -> None:
@@ -432,7 +530,7 @@ def lyapunov_grid(system, pname_x: str, xs, pname_y: str, ys, settings: GridSett
     if xs.size == 0 or ys.size == 0 or not (np.all(np.isfinite(xs)) and np.all(np.isfinite(ys))):
         raise ValueError("the grid values must be finite numbers")
     if system.kind != MAP:
-        _check_accuracy(settings)
+        _check_accuracy(settings, stiff_allowed=False)
         if not (settings.duration > 0):
             raise ValueError("the averaging duration must be positive")
     base_p = system.param_values.astype(float) if p is None else np.asarray(p, dtype=float)
@@ -507,7 +605,8 @@ def grid_exponents(system, P, u0, grid: GridSettings, cancel=None, progress=None
             h = grid.dt
             span = grid.transient + grid.duration
             engine = _engine(system, M * _grid_work(system, grid), compiled)
-            out = drivers.members_run(engine, "rk4" if h else grid.method, t0, t0 + span, U0, P, rtol=grid.rtol,
+            out = drivers.members_run(engine, "rk4" if h else (grid.method or "dop853"), t0, t0 + span, U0, P,
+                                      rtol=grid.rtol,
                                       atol=grid.atol, dt=h or 0.01, bound=grid.bound, report=report,
                                       t_keep=t0 + grid.transient, tangents=v0,
                                       interval=1.0 if h is None else h * max(1, round(1.0 / h)), keep_going=True)

@@ -1,11 +1,13 @@
-"""Sweeps (orbit diagrams) of flows with events: one value at a time through the single-run engine.
+"""Sweeps (orbit diagrams) one value at a time through the single-run engine: flows with events, and
+sweeps with a stiff method.
 
-The ensemble engine of ``sweep.py`` runs all values together in loops that do not stop at the model's
-events (``when ... then ...``). Here each value runs on its own through ``sections``, which follow
-the runs through their events: strobe mode is the stroboscopic section, plane mode the plane
-section, maxima of a state ``x`` whose rate ``x'`` is a state are the downward crossings of
-``x' = 0`` (a peak cut off by an event, where ``x'`` jumps, is not a maximum of the equation). The result is the same ``SweepResult``. Lyapunov exponents are refused (a perturbation
-jumps by the saltation matrix at each event).
+The ensemble engine of ``sweep.py`` runs all values together in explicit loops that do not stop at the
+model's events (``when ... then ...``). Here each value runs on its own through ``sections``, which
+follow the runs through their events and take any method of engine/methods.py: strobe mode is the
+stroboscopic section, plane mode the plane section, maxima of a state ``x`` whose rate ``x'`` is a
+state are the downward crossings of ``x' = 0`` (a peak cut off by an event, where ``x'`` jumps, is not
+a maximum of the equation). The result is the same ``SweepResult``. Lyapunov exponents of models with
+events are refused (a perturbation jumps by the saltation matrix at each event).
 """
 
 from __future__ import annotations
@@ -22,18 +24,26 @@ from orbitdesk.engine.settings import RunSettings
 _DIRECTIONS = {1: "up", -1: "down", 0: "both"}
 
 
-def sweep_with_events(system, parameter, values, settings, u0, base_p, cancel=None, progress=None):
+def refuse_exponents(system) -> None:
+    """ValueError for exponents of a model with events (a perturbation jumps at each event)."""
+    if system.model.events:
+        raise ValueError(saltation_refusal(system, "Lyapunov exponents"))
+
+
+def sweep_value_by_value(system, parameter, values, settings, u0, base_p, cancel=None, progress=None):
     """(samples (M, K), times (M, K), None, status (M,)) as ``sweep._sweep_arrays`` gives them."""
     from orbitdesk.analyses.sweep import MAXIMA, PLANE, STROBE
 
     s = settings
     if s.lyapunov:
-        raise ValueError(saltation_refusal(system, "Lyapunov exponents"))
+        refuse_exponents(system)
+        raise ValueError("exponents of a sweep value by value are taken by the lyapunov command's path")
     if s.mode == MAXIMA and s.observe + "'" not in system.states:
-        raise ValueError(f"in a model with events ({describe_events(system)}) maxima are found where the rate "
-                         f"crosses zero, so {s.observe}' must be a state (write {s.observe}'' = ...); or sample "
-                         "with a plane or a strobe period")
-    run = RunSettings(method=s.method if s.dt is None else "rk4", rtol=s.rtol, atol=s.atol,
+        where = f"in a model with events ({describe_events(system)})" if system.model.events else \
+            f"with the method {s.method}"
+        raise ValueError(f"{where} maxima are found where the rate crosses zero, so {s.observe}' must be a state "
+                         f"(write {s.observe}'' = ...); or sample with a plane or a strobe period")
+    run = RunSettings(method=(s.method or "dop853") if s.dt is None else "rk4", rtol=s.rtol, atol=s.atol,
                       dt=s.dt or 0.01, t_start=s.t_start, t_end=s.t_start + max(s.duration, 1.0), bound=s.bound)
     report = Reporter(progress, cancel)
     M, K = len(values), int(s.samples)
@@ -68,4 +78,4 @@ def _observed(system, name, section, p) -> np.ndarray:
     return np.asarray(system.derived_values(section.times, section.points, p)[name], dtype=float)
 
 
-__all__ = ["sweep_with_events"]
+__all__ = ["sweep_value_by_value", "refuse_exponents"]

@@ -4,6 +4,7 @@ import sys
 
 from orbitdesk.analyses.lyapunov import (CONVERGE_ATOL, CONVERGE_RTOL, FLOW_CAP, MAP_CAP,
                                          largest_lyapunov_two_trajectory, lyapunov_spectrum)
+from orbitdesk.engine.methods import METHODS, NAMES
 from orbitdesk.system.compiled_system import MAP
 
 from orbitdesk.cli.common import add_outputs, CommandError, load_system, parse_number, print_json, read_source, \
@@ -26,6 +27,9 @@ def register(sub):
     parser.add_argument("--cap", metavar="T",
                         help=f"the longest averaging when stopping on convergence (default {FLOW_CAP:g} time "
                              f"units or {MAP_CAP:g} iterations)")
+    parser.add_argument("--method", choices=[m for m in NAMES if METHODS[m].adaptive],
+                        help="the adaptive method of a flow (default: the project's, or dop853 - the stiff one when "
+                             "a probe run shows the system stiff)")
     parser.add_argument("--two-trajectory", action="store_true",
                         help="only the largest exponent, from two nearby trajectories (always for delay models)")
     add_outputs(parser, run)
@@ -51,7 +55,11 @@ def run(args) -> int:
     if args.two_trajectory and (args.tolerance is not None or args.cap is not None):
         raise CommandError("--tolerance and --cap apply to the spectrum; --two-trajectory runs a fixed length")
     extra = {}
-    two = args.two_trajectory or bool(system.delays)  # delay models: two nearby histories (no spectrum)
+    two = args.two_trajectory or bool(system.delays)
+    if args.method is not None:
+        if system.kind == MAP or two:
+            raise CommandError("--method applies to the spectrum of a flow")
+        extra["method"] = args.method  # delay models: two nearby histories (no spectrum)
     if not fixed and not two:
         extra["converge"] = True
         if args.tolerance is not None:
@@ -77,6 +85,7 @@ def run(args) -> int:
                     "method": result.method, "warnings": result.warnings, "status": result.status,
                     "message": result.message, "averaged_over": result.averaged_over, "dt": result.dt,
                     "uncertainty": result.uncertainty, "blocks": result.blocks, "converged": result.converged,
+                    "integrator": result.integrator,
                     "tolerance": None if result.tolerance is None else
                     {"rtol": result.tolerance[0], "atol": result.tolerance[1]}})
     else:
@@ -91,7 +100,8 @@ def run(args) -> int:
         if result.kaplan_yorke_dimension is not None:
             print(f"Kaplan-Yorke dimension: {result.kaplan_yorke_dimension:.6g}")
         unit = "iterations" if system.kind == MAP else "time units"
-        print(f"method: {result.method}, averaged over {result.averaged_over:g} {unit}")
+        print(f"method: {result.method}{f' ({result.integrator})' if result.integrator else ''}, averaged over "
+              f"{result.averaged_over:g} {unit}")
     for note in ([result.message] if result.message else []) + result.warnings:
         print(f"note: {note}", file=sys.stderr)
     return 0 if result.ok else 1

@@ -10,6 +10,7 @@ from orbitdesk.engine.executors import SchedulerError, executor_for
 from orbitdesk.analyses.sweep import (BOTH, DOWN, ITERATE, MAXIMA, PLANE, STROBE, UP, SweepSettings, accuracy_like,
                                       check_sweep_size, sweep)
 from orbitdesk.engine.limits import LimitExceeded
+from orbitdesk.engine.methods import METHODS, NAMES
 from orbitdesk.system.compiled_system import MAP
 
 from orbitdesk.cli.common import (CommandError, add_value_options, load_system, parse_assignments, parse_number, parse_positive,
@@ -38,6 +39,9 @@ def register(sub):
     parser.add_argument("--duration", metavar="T", help="longest sampling time for --plane/--maxima")
     parser.add_argument("--dt", metavar="H", help="a fixed RK4 step (a strobe period is divided exactly); "
                         "default: adaptive steps with the run's tolerances")
+    parser.add_argument("--method", choices=[m for m in NAMES if METHODS[m].adaptive],
+                        help="the adaptive method (default: the project's, or dop853 - the stiff one when a probe "
+                             "run shows the system stiff)")
     parser.add_argument("--rtol", metavar="R", help="relative tolerance of the adaptive steps (default: the run's)")
     parser.add_argument("--atol", metavar="A", help="absolute tolerance of the adaptive steps (default: the run's)")
     parser.add_argument("--lyapunov", action="store_true", help="also the largest Lyapunov exponent per value")
@@ -78,12 +82,12 @@ def sweep_settings(system, source, args) -> SweepSettings:
         if is_map:
             raise CommandError("--duration applies to flows; a map runs --samples iterations")
         settings.duration = parse_positive(args.duration, "--duration")
-    for option in ("dt", "rtol", "atol"):
+    for option in ("dt", "rtol", "atol", "method"):
         if getattr(args, option) is not None and is_map:
             raise CommandError(f"--{option} applies to flows")
     if args.dt is not None:
-        if args.rtol is not None or args.atol is not None:
-            raise CommandError("--dt fixes the step; --rtol and --atol go with adaptive steps")
+        if args.rtol is not None or args.atol is not None or args.method is not None:
+            raise CommandError("--dt fixes the step; --method, --rtol and --atol go with adaptive steps")
         settings.dt = parse_positive(args.dt, "--dt")
     for option in ("rtol", "atol"):
         if getattr(args, option) is not None:
@@ -97,6 +101,8 @@ def sweep_settings(system, source, args) -> SweepSettings:
         if args.samples < 1:
             raise CommandError("--samples must be at least 1")
         settings.samples = args.samples
+    if args.method is not None:
+        settings.method, settings.dt = args.method, None
     settings.observe = args.observe
     settings.lyapunov = bool(args.lyapunov)
     try:
@@ -159,6 +165,6 @@ def run(args) -> int:
     else:
         print_json(result.to_dict())
     note = result.shortfall(settings.duration if system.kind != MAP else None)
-    if note:
-        print(f"note: {note}", file=sys.stderr)
+    for text in result.notes + ([note] if note else []):
+        print(f"note: {text}", file=sys.stderr)
     return 0

@@ -14,6 +14,12 @@ from __future__ import annotations
 
 import math
 
+from orbitdesk.engine.methods import METHODS
+
+# the views' method choices, read off the one registry ("automatic": the default, or the stiff method when stiff)
+_METHOD_CHOICES = ("automatic", *METHODS)
+_ADAPTIVE_CHOICES = ("automatic", *(name for name, info in METHODS.items() if info.adaptive))
+
 VIEW_SETTINGS: dict[str, dict] = {
     "timeseries": {"series": "series list", "log_y": "bool", "spectrum": "bool"},
     "phase_plane": {"x": "series", "y": "series", "arrows": "bool", "nullclines": "bool", "backward": "bool",
@@ -30,7 +36,7 @@ VIEW_SETTINGS: dict[str, dict] = {
               "observe": "series", "mode": ("maxima", "strobe", "plane", "iterate"),
               "plane": {"state": "state", "value": "number", "direction": (1, -1, 0)},
               "period": "number", "transient": "number", "samples": "integer", "dt": "number",
-              "duration": "number", "lyapunov": "bool"},
+              "duration": "number", "lyapunov": "bool", "method": _METHOD_CHOICES},
     "cycles": {"start": ("end", "clicked"), "period_guess": "number", "forcing_multiple": "integer",
                "map_period": "integer"},
     "bifurcation": {"follow": ("steady", "cycles", "cycle", "response"), "parameter": "parameter", "from": "number",
@@ -48,7 +54,8 @@ VIEW_SETTINGS: dict[str, dict] = {
                       "y": {"parameter": "parameter", "from": "number", "to": "number", "count": "integer"},
                       "transient": "number", "duration": "number", "max_period": "integer", "period": "number"},
     "lyapunov": {"flow": {"length": "number", "transient": "number"},
-                 "map": {"steps": "integer", "transient": "integer"}, "dt": "number", "auto": "bool"},
+                 "map": {"steps": "integer", "transient": "integer"}, "dt": "number", "auto": "bool",
+                 "method": _ADAPTIVE_CHOICES, "settle": "bool"},
 }
 
 # Saved by the window for every view with plots, once the user names an axis quantity

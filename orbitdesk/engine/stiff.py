@@ -130,6 +130,94 @@ def solve_at(scipy_name: str, fun, jac, t0: float, y0, t1: float, rtol: float, a
     return _columns(out, len(y0)), steps, None
 
 
+def variational(system, p, m: int, rhs=None):
+    """(fun, jac) of the state with m tangent vectors z = (u, V (n x m) by rows) for a scipy stiff solver:
+    u' = f(u), V' = J(u) V. jac gives the tangent columns their J in each block and leaves out their
+    dependence on u (it serves Newton's iteration only). ``rhs(t, u)``: the right-hand side (default the
+    system's at ``p``)."""
+    n = system.n_states
+    rhs = rhs or (lambda t, u: system.rhs(t, u, p))
+    eye = np.eye(max(m, 1))
+
+    def fun(t, z):
+        f = rhs(t, z[:n])
+        if not m:
+            return f
+        return np.concatenate([f, (system.jac(t, z[:n], p) @ z[n:].reshape(n, m)).ravel()])
+
+    def jac(t, z):
+        J = system.jac(t, z[:n], p)
+        if not m:
+            return J
+        full = np.zeros((n * (m + 1), n * (m + 1)))
+        full[:n, :n] = J
+        full[n:, n:] = np.kron(J, eye)
+        return full
+
+    return fun, jac
+
+
+def tangent_run(system, scipy_name: str, t0: float, t1: float, keep_from: float, u0, V0, p, interval: float,
+                rtol: float, atol: float, bound: float = 1e10, max_rows: int = 5000, report=None):
+    """Lyapunov sums of a flow by a stiff method, as ``drivers.flow_tangent`` gives them for the explicit
+    ones: the state with the tangent vectors V0 (n x m) from t0 to t1, re-orthonormalised (QR) every
+    ``interval``, the logarithms of R's diagonal summed after ``keep_from``. Each interval is one checked
+    stiff run of the variational equations (``variational``) ending on the renormalisation time."""
+    from orbitdesk.engine.drivers import TangentOutput
+    from orbitdesk.engine.progress import Cancelled
+    from orbitdesk.engine.status import C_CANCELLED, C_DIVERGED, C_STEP_FAILED
+
+    u = np.asarray(u0, dtype=float).copy()
+    V = np.asarray(V0, dtype=float).copy()
+    n, m = V.shape
+    p = np.asarray(p, dtype=float)
+    fun, jac = variational(system, p, m)
+    sums, averaged = np.zeros(m), 0.0
+    count = max(1.0, abs(t1 - keep_from) / interval)
+    stride = max(1, int(np.ceil(count / max_rows)))
+    rows, row_t = [], []
+    t, k, code, note = float(t0), 0, 0, ""
+    while t < t1 - 1e-12 * max(1.0, abs(t1)):
+        t_next = min(t + interval, t1)
+        if t1 - t_next < 1e-9 * interval:
+            t_next = t1
+        with np.errstate(all="ignore"):
+            values, _, failure = solve_at(scipy_name, fun, jac, t, np.concatenate([u, V.ravel()]), t_next, rtol, atol,
+                                          [t_next])
+        if failure is not None or values.shape[1] != 1 or not np.all(np.isfinite(values)):
+            code, note = C_STEP_FAILED, f"the stiff method stopped near {system.time_name} = {t:.6g}: " \
+                f"{failure or 'not a number'}"
+            break
+        z = values[:, 0]
+        u, V = z[:n], z[n:].reshape(n, m)
+        if float(np.max(np.abs(u))) > bound:
+            code = C_DIVERGED
+            break
+        Q, R = np.linalg.qr(V)
+        signs = np.where(np.diag(R) < 0, -1.0, 1.0)
+        V = Q * signs
+        if t_next > keep_from:
+            span = t_next - max(t, keep_from)
+            sums += np.log(np.abs(np.diag(R))) * (span / (t_next - t))
+            averaged += span
+            k += 1
+            if k % stride == 0:
+                rows.append(sums / averaged)
+                row_t.append(t_next)
+        t = t_next
+        if report is not None:
+            try:
+                report((t - t0) / (t1 - t0))
+            except Cancelled:
+                code = C_CANCELLED
+                break
+    if averaged > 0 and (not row_t or row_t[-1] != t):
+        rows.append(sums / averaged)
+        row_t.append(t)
+    return TangentOutput(sums, averaged, np.array(rows, dtype=float).reshape(-1, m), np.array(row_t, dtype=float),
+                         int(code), float(t), u.copy(), note, V=V.copy())
+
+
 def _columns(rows, n):
     return np.array(rows, dtype=float).reshape(-1, n).T if rows else np.empty((n, 0))
 
@@ -163,4 +251,4 @@ def looks_stiff(system, p, run, min_steps: int = STIFF_STEPS) -> bool:
     return mean_step * spectral_radius(system, p, run.states[:, picks]) > 1.5
 
 
-__all__ = ["StiffStepper", "looks_stiff", "solve_at", "spectral_radius"]
+__all__ = ["StiffStepper", "looks_stiff", "solve_at", "spectral_radius", "tangent_run", "variational"]

@@ -54,7 +54,7 @@ def test_lorenz_spectrum(qtbot, session, artifacts):
     assert lam[0] == pytest.approx(0.906, abs=0.1)
     assert result.kaplan_yorke_dimension == pytest.approx(2.06, abs=0.02)
     assert view.table.rowCount() == 3
-    assert view.table.item(0, 1).text().startswith("0.9")
+    assert float(view.table.item(0, 1).text()) == pytest.approx(lam[0], rel=1e-4)
     assert "Kaplan–Yorke dimension" in view.summary.text()
     assert len(view.curves) == 3
     header, rows = view.export_data()
@@ -132,3 +132,24 @@ def test_delay_model_gets_its_largest_exponent_from_two_histories(qtbot, session
     assert view.table.rowCount() == 1
     qtbot.wait(30)
     view.grab().save(os.path.join(artifacts, "view_lyapunov_delay.png"))
+
+
+def test_uncertainty_per_exponent_and_the_cap(qtbot, session, artifacts):
+    view = make_view(qtbot, session)
+    load(qtbot, session, LORENZ)
+    view.length.setValue(60.0)  # a cap far too short for the estimates to settle to 1 %
+    view.transient.setValue(20.0)
+    assert view.settle.isChecked()
+    result = compute(qtbot, view)
+    assert result.converged is False and result.uncertainty is not None
+    assert view.table.columnCount() == 3
+    for k in range(3):
+        shown = view.table.item(k, 2).text()
+        assert shown.startswith("± ") and float(shown[2:]) == pytest.approx(result.uncertainty[k], rel=0.05)
+    assert "Stopped at the cap of 60" in view.summary.text()
+    qtbot.wait(200)  # the layout takes the new text in
+    view.grab().save(os.path.join(artifacts, "lyapunov_uncertainty.png"))
+    view.settle.setChecked(False)  # a fixed length: no cap to speak of
+    result = compute(qtbot, view)
+    assert result.converged is None and "cap" not in view.summary.text()
+    assert view.view_settings()["settle"] is False and view.view_settings()["method"] == "automatic"

@@ -213,3 +213,22 @@ def test_a_sweep_draws_its_pieces_as_they_arrive_and_keeps_them_when_cancelled(q
     np.testing.assert_allclose(kept.samples[:8, :direct.samples.shape[1]], direct.samples, equal_nan=True)
     header, rows = view.export_data()
     assert set(np.unique(rows[:, 0])) <= set(kept.values)
+
+
+def test_method_choice_reads_the_registry_and_reaches_the_sweep(qtbot, session):
+    from orbitdesk.engine.methods import METHODS
+
+    view = make_view(qtbot, session)
+    load(qtbot, session, FORCED_LINEAR)
+    labels = [view.method.itemText(i) for i in range(view.method.count())]
+    assert labels == ["Automatic", *(m.label for m in METHODS.values())]
+    assert view.settings().method is None and view.settings().dt is None and not view.dt.isVisible()
+    view.method.setCurrentIndex(view.method.findData("stiff"))
+    assert view.settings().method == "stiff" and view.settings().dt is None
+    view.method.setCurrentIndex(view.method.findData("rk4"))
+    assert view.dt.isVisible() and view.settings().method is None and view.settings().dt == view.dt.value()
+    assert view.view_settings()["method"] == "rk4"
+    view.apply_view_settings({"method": "bdf"})
+    assert view.settings().method == "bdf"
+    view.apply_view_settings({"dt": 0.02})  # saved before the method choice: the fixed step it ran
+    assert view.settings().dt == pytest.approx(0.02)

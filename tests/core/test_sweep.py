@@ -183,8 +183,12 @@ def test_rk45_sweep_agrees_with_dop853():
     a = sweep(system, "gamma", [0.2, 0.25], settings)
     b = sweep(system, "gamma", [0.2, 0.25], SweepSettings(**{**settings.__dict__, "method": "rk45"}))
     np.testing.assert_allclose(a.samples, b.samples, atol=1e-6)
-    with pytest.raises(ValueError, match="adaptive explicit method"):
-        sweep(system, "gamma", [0.2], SweepSettings(**{**settings.__dict__, "method": "stiff"}))
+    # the stiff method, given, runs each value through the plane section: the same crossings
+    c = sweep(system, "gamma", [0.2, 0.25], SweepSettings(**{**settings.__dict__, "method": "stiff"}))
+    assert c.method == "stiff"
+    np.testing.assert_allclose(a.samples, c.samples, atol=1e-5)
+    with pytest.raises(ValueError, match="adaptive method"):
+        sweep(system, "gamma", [0.2], SweepSettings(**{**settings.__dict__, "method": "rk4"}))
 
 
 def test_flow_sweep_equals_each_value_alone():
@@ -220,7 +224,9 @@ def test_periodic_response_exponent_is_minus_half_the_damping():
     settings = SweepSettings(mode=STROBE, period=PERIOD, transient=20 * PERIOD, samples=100, dt=PERIOD / 50,
                              lyapunov=True)
     result = sweep(system, "gamma", [0.2, 0.25], settings)
-    np.testing.assert_allclose(result.lyapunov, [-0.15, -0.15], atol=0.003)
+    # the lyapunov command's path stops when the standard error is within 1 % + 0.002: held to it
+    assert np.all(np.abs(result.lyapunov + 0.15) <= 3 * result.lyapunov_error + 1e-3)
+    assert np.all(result.lyapunov_error < 0.01)
 
 
 def test_non_smooth_flow_exponent_with_the_jacobian_that_holds_almost_everywhere():

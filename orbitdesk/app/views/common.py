@@ -281,6 +281,39 @@ def direction_combo(tip: str, slot=None) -> QComboBox:
     return combo_box(tip, DIRECTION_LABELS, slot)
 
 
+AUTOMATIC = "automatic"  # the method choice that takes the default, or the stiff method for a stiff system
+
+
+def method_combo(tip: str, fixed_step: bool = False, slot=None) -> QComboBox:
+    """The integration method, from the one registry (engine/methods.py): "Automatic" first (the default
+    method, or the stiff one when a probe run shows stiffness), then every adaptive method by its label;
+    with ``fixed_step`` the fixed-step ones too. Each entry's data is the method's name."""
+    from orbitdesk.engine.methods import METHODS
+
+    combo = combo_box(tip)
+    combo.addItem("Automatic", AUTOMATIC)
+    for name, info in METHODS.items():
+        if info.adaptive or fixed_step:
+            combo.addItem(info.label, name)
+    if slot is not None:
+        combo.currentIndexChanged.connect(slot)
+    return combo
+
+
+def chosen_method(combo: QComboBox) -> str | None:
+    """The method name of a ``method_combo`` (None: automatic)."""
+    name = combo.currentData()
+    return None if name in (None, AUTOMATIC) else str(name)
+
+
+def choose_method_quietly(combo: QComboBox, name) -> None:
+    """Select the entry of method ``name`` ("automatic" or None: Automatic) without signals."""
+    i = combo.findData(AUTOMATIC if name is None else name)
+    if i >= 0:
+        with quiet(combo):
+            combo.setCurrentIndex(i)
+
+
 def check_box(text: str, tip: str, checked: bool = False, slot=None) -> QCheckBox:
     box = QCheckBox(text)
     box.setChecked(checked)

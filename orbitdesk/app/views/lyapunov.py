@@ -13,10 +13,12 @@ from PySide6.QtWidgets import (QAbstractItemView, QHeaderView, QLabel, QSplitter
                                QVBoxLayout, QWidget)
 
 from orbitdesk.analyses.lyapunov import LyapunovResult
+from orbitdesk.engine.methods import METHODS
 
 from orbitdesk.app.views import muted_colour, series_colour, style_plot
 from orbitdesk.app.plots.plot_style import JobStrip, NumberBox, hint_label, mono_font, number_text
-from orbitdesk.app.views.common import SessionView, auto_timer, check_box, control_row, push_button, quiet, set_quietly
+from orbitdesk.app.views.common import (AUTOMATIC, SessionView, auto_timer, check_box, choose_method_quietly,
+                                        chosen_method, control_row, method_combo, push_button, quiet, set_quietly)
 
 FLOW_LENGTH, FLOW_TRANSIENT = 500.0, 50.0
 MAP_LENGTH, MAP_TRANSIENT = 20000, 1000
@@ -49,6 +51,13 @@ class LyapunovView(SessionView):
         self.dt.setToolTip("Fixed Runge-Kutta step of the tangent equations")
         self.dt.setEnabled(False)
         self.auto_step.toggled.connect(lambda on: self.dt.setEnabled(not on))
+        self.method = method_combo("How the orbit and its tangent vectors are integrated (with Auto step): "
+                                   "Automatic takes Dormand–Prince 8(5,3), or the stiff method when a trial run "
+                                   "shows the system stiff", slot=self._on_controls)
+        self.auto_step.toggled.connect(lambda on: self.method.setEnabled(on))
+        self.settle = check_box("Until settled", "Stop when every exponent's standard error (the spread of block "
+                                "averages) is within 1% of it plus 0.002; the run length is then the longest run "
+                                "(the cap)", True, self._on_controls)
         for w in (self.length, self.transient, self.dt):
             w.valueChanged.connect(self._on_controls)
         self.auto_step.toggled.connect(self._on_controls)
@@ -57,14 +66,15 @@ class LyapunovView(SessionView):
                               lambda on: on and self._schedule())
         self.strip = JobStrip(session, "Lyapunov exponents: following tangent vectors")
 
-        self.table = QTableWidget(0, 2)
-        self.table.setHorizontalHeaderLabels(["", "Exponent"])
+        self.table = QTableWidget(0, 3)
+        self.table.setHorizontalHeaderLabels(["", "Exponent", "± std. error"])
         self.table.verticalHeader().setVisible(False)
         self.table.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
         self.table.setSelectionMode(QAbstractItemView.SelectionMode.NoSelection)
         self.table.setFocusPolicy(Qt.FocusPolicy.NoFocus)
         self.table.horizontalHeader().setSectionResizeMode(0, QHeaderView.ResizeMode.ResizeToContents)
         self.table.horizontalHeader().setSectionResizeMode(1, QHeaderView.ResizeMode.Stretch)
+        self.table.horizontalHeader().setSectionResizeMode(2, QHeaderView.ResizeMode.ResizeToContents)
         self.table.setToolTip("Average exponential rates of growth of small perturbations, largest first")
         self.summary = QLabel()
         self.summary.setWordWrap(True)
@@ -98,8 +108,8 @@ class LyapunovView(SessionView):
         left.setMinimumWidth(180)
         self.splitter.setChildrenCollapsible(False)
 
-        row = control_row(self.length_label, self.length, 4, self.transient_label, self.transient, 8,
-                          self.auto_step, self.dt, 8, self.compute_button, self.auto)
+        row = control_row(self.length_label, self.length, 4, self.transient_label, self.transient, 4, self.settle, 8,
+                          self.auto_step, self.dt, self.method, 8, self.compute_button, self.auto)
         layout = self.main_layout()
         layout.addLayout(row)
         layout.addWidget(self.splitter, 1)
@@ -114,7 +124,8 @@ class LyapunovView(SessionView):
         self._remember_lengths()
         return {"flow": {"length": self._lengths["flow"][0], "transient": self._lengths["flow"][1]},
                 "map": {"steps": int(self._lengths["map"][0]), "transient": int(self._lengths["map"][1])},
-                "dt": None if self.auto_step.isChecked() else float(self.dt.value()), "auto": self.auto.isChecked()}
+                "dt": None if self.auto_step.isChecked() else float(self.dt.value()), "auto": self.auto.isChecked(),
+                "method": chosen_method(self.method) or AUTOMATIC, "settle": self.settle.isChecked()}
 
     def apply_view_settings(self, d: dict) -> None:
         if not isinstance(d, dict):
@@ -134,6 +145,9 @@ class LyapunovView(SessionView):
         if num(dt) and dt > 0:
             set_quietly(self.dt, float(dt))
         self.auto.setChecked(bool(d.get("auto", False)))
+        choose_method_quietly(self.method, d.get("method", AUTOMATIC))
+        self.method.setEnabled(not num(dt))
+        set_quietly(self.settle, bool(d.get("settle", True)))
         self._show_lengths()
 
     def export_data(self):
@@ -158,11 +172,18 @@ class LyapunovView(SessionView):
         settings = self.session.run_settings(transient=0.0)
         length, transient = self._lengths[self._kind]
         dt = None if self.auto_step.isChecked() else float(self.dt.value())
+        settle = self.settle.isChecked() and not s.delays
         if s.kind == "map":
-            kwargs = {"steps": int(length) + int(transient), "transient": int(transient)}
+            kwargs = {"transient": int(transient)}
+            kwargs.update({"cap": int(length)} if settle else {"steps": int(length) + int(transient)})
         else:
-            kwargs = {"t_end": settings.t_start + float(length) + float(transient), "transient": float(transient),
-                      "dt": dt}
+            kwargs = {"transient": float(transient), "dt": dt}
+            kwargs.update({"cap": float(length)} if settle else
+                          {"t_end": settings.t_start + float(length) + float(transient)})
+            if dt is None and not s.delays:
+                kwargs["method"] = chosen_method(self.method)
+        if settle:
+            kwargs["converge"] = True
         self.begin_computing()
 
         def job(cancel, report):
@@ -170,7 +191,8 @@ class LyapunovView(SessionView):
                 from orbitdesk.analyses.lyapunov import largest_lyapunov_two_trajectory
 
                 return largest_lyapunov_two_trajectory(s, p, u0, settings=settings, cancel=cancel, progress=report,
-                                                       t_end=kwargs["t_end"], transient=kwargs["transient"])
+                                                       t_end=settings.t_start + float(length) + float(transient),
+                                                       transient=kwargs["transient"])
             return lyapunov_spectrum(s, p, u0, settings=settings, cancel=cancel, progress=report, **kwargs)
 
         self.strip.run("lyapunov", job, self._adopt, on_error=lambda m: None)
@@ -261,8 +283,15 @@ class LyapunovView(SessionView):
             reading = ("about zero" if math.isfinite(v) and abs(v) < NEAR_ZERO * max(scale, 1e-300)
                        else "growing" if v > 0 else "shrinking")
             value.setToolTip(f"λ{k + 1} = {v!r} {per} ({reading})")
+            error = r.uncertainty[k] if r.uncertainty is not None and k < len(r.uncertainty) else math.nan
+            spread = QTableWidgetItem(f"± {number_text(error, 2)}" if math.isfinite(error) else "–")
+            spread.setFont(mono)
+            spread.setTextAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
+            spread.setToolTip(f"standard error of λ{k + 1}: the spread of {r.blocks} block averages over the square "
+                              "root of their number" if math.isfinite(error) else "too few blocks for a spread")
             self.table.setItem(k, 0, name)
             self.table.setItem(k, 1, value)
+            self.table.setItem(k, 2, spread)
         self.table.resizeRowsToContents()
         rows_height = sum(self.table.rowHeight(k) for k in range(values.size))
         frame = 2 * self.table.frameWidth() + 2
@@ -274,12 +303,20 @@ class LyapunovView(SessionView):
             lines.append(f"Sum {number_text(values.sum(), 5)} {per}")
         method = "QR of the tangent vectors" if r.method == "qr" else "two nearby trajectories"
         over = f"{int(r.averaged_over)} steps" if r.kind == "map" else f"{number_text(r.averaged_over, 4)} time units"
+        if r.converged is True:
+            lines.append(f"Settled to {r.tolerance[0]:g} × |λ| + {r.tolerance[1]:g} after {over}")
+        elif r.converged is False:
+            lines.append(f"<b>Stopped at the cap of {over}</b> before every estimate settled to "
+                         f"{r.tolerance[0]:g} × |λ| + {r.tolerance[1]:g}: a longer run narrows them")
         detail = f"by {method}, averaged over {over}"
+        if r.integrator and not r.dt:
+            detail += f" ({METHODS[r.integrator].label})" if r.integrator in METHODS else f" ({r.integrator})"
         if r.dt:
             detail += f", step {number_text(r.dt, 3)}"
         lines.append(f"<span style='color:{muted_colour(self).name()}'>{detail}</span>")
         self.summary.setText("<br>".join(lines))
-        notes = list(r.warnings)
+        # the cap is said above in the view's words (the warning names the command line's options)
+        notes = [w for w in r.warnings if not (r.converged is False and w.startswith("the cap of"))]
         if r.status != "ok" and r.message:
             notes.insert(0, r.message[:1].upper() + r.message[1:])
         self.notes.setText("\n".join(f"• {n}" for n in notes))

@@ -19,9 +19,10 @@ from orbitdesk.analyses.sweep import SweepResult
 
 from orbitdesk.app.views import muted_colour, series_colour, style_plot
 from orbitdesk.app.plots.plot_style import JobStrip, NumberBox, number_text
-from orbitdesk.app.views.common import (SessionView, apply_numbers, check_box, clicked_point, combo_box, control_row,
-                     direction_combo, fill_combo, fill_default_range, follow_forcing_period, is_number,
-                     push_button, put_through_orbit, quiet, row_widget, select_text, status_label)
+from orbitdesk.app.views.common import (AUTOMATIC, SessionView, apply_numbers, check_box, choose_method_quietly,
+                     chosen_method, clicked_point, combo_box, control_row, direction_combo, fill_combo,
+                     fill_default_range, follow_forcing_period, is_number, method_combo, push_button,
+                     put_through_orbit, quiet, row_widget, select_text, status_label)
 
 PLANE, STROBE, MAXIMA, ITERATE = "plane", "strobe", "maxima", "iterate"
 FLOW_MODES = (MAXIMA, STROBE, PLANE)
@@ -48,7 +49,9 @@ def join_sweeps(parts):
         samples=np.vstack([padded(p.samples) for p in parts]), observed=first.observed, mode=first.mode,
         lyapunov=None if first.lyapunov is None else np.concatenate([p.lyapunov for p in parts]),
         status=np.concatenate([p.status for p in parts]),
-        times=None if first.times is None else np.vstack([padded(p.times) for p in parts]))
+        times=None if first.times is None else np.vstack([padded(p.times) for p in parts]),
+        lyapunov_error=None if first.lyapunov_error is None else np.concatenate([p.lyapunov_error for p in parts]),
+        method=first.method, notes=list(dict.fromkeys(n for p in parts for n in p.notes)))
 MAX_SAMPLES = 5000
 
 
@@ -115,6 +118,11 @@ class SweepView(SessionView):
         self.samples.setToolTip("Points kept for each parameter value")
         self.dt = NumberBox(0.01, 1e-6, 10.0, ratio=2.0)
         self.dt.setToolTip("Fixed time step of the sweep's Runge-Kutta integration")
+        self.method = method_combo("How each orbit is integrated: Automatic takes Dormand–Prince 8(5,3), or the "
+                                   "stiff method when a trial run shows the system stiff; the fixed-step "
+                                   "Runge–Kutta method uses the step beside it", fixed_step=True,
+                                   slot=lambda _i: self._show_step())
+        choose_method_quietly(self.method, None)
         self.duration = NumberBox(400.0, 1e-3, 1e9, step=50.0)
         self.duration.setToolTip("Longest time spent collecting the points of one value (maxima and planes)")
         self.lyapunov = check_box("Lyapunov exponent", "Also estimate the largest Lyapunov exponent at every value "
@@ -157,8 +165,9 @@ class SweepView(SessionView):
         self.dt_label = QLabel("step")
         self.duration_label = QLabel("collect for at most")
         self.points_label = QLabel("points,")
-        row3 = control_row(self.transient_label, self.transient, "keep", self.samples, self.points_label, self.dt_label,
-                           self.dt, self.duration_label, self.duration)
+        self.method_label = QLabel("by")
+        row3 = control_row(self.transient_label, self.transient, "keep", self.samples, self.points_label,
+                           self.method_label, self.method, self.dt_label, self.dt, self.duration_label, self.duration)
         bottom = control_row(stretch=False)
         bottom.addWidget(self.info, 1)
         bottom.addWidget(self.strip, 1)
@@ -182,7 +191,8 @@ class SweepView(SessionView):
                           "direction": DIRECTIONS[self.direction.currentIndex()]},
                 "period": float(self.period.value()), "transient": float(self.transient.value()),
                 "samples": self.samples.value(), "dt": float(self.dt.value()),
-                "duration": float(self.duration.value()), "lyapunov": self.lyapunov.isChecked()}
+                "duration": float(self.duration.value()), "lyapunov": self.lyapunov.isChecked(),
+                "method": chosen_method(self.method) or AUTOMATIC}
 
     def apply_view_settings(self, d: dict) -> None:
         if not isinstance(d, dict):
@@ -193,8 +203,17 @@ class SweepView(SessionView):
                           (self.dt, "dt", float), (self.duration, "duration", float)))
         self._user_period = isinstance(d.get("period"), (int, float))
         self.lyapunov.setChecked(bool(d.get("lyapunov", False)))
+        # settings saved before the method choice ran the fixed step
+        choose_method_quietly(self.method, d.get("method", "rk4" if "dt" in d else AUTOMATIC))
+        self._show_step()
         if self.system is not None:
             self._apply_wanted()
+
+    def _show_step(self) -> None:
+        """The fixed step shows with the fixed-step method only (and never for a map)."""
+        fixed = chosen_method(self.method) == "rk4" and not (self.system is not None and self.system.kind == "map")
+        self.dt.setVisible(fixed)
+        self.dt_label.setVisible(fixed)
 
     def export_data(self):
         """Every point of the diagram: parameter value, observed value (and the exponent at that value)."""
@@ -220,9 +239,11 @@ class SweepView(SessionView):
         from orbitdesk.analyses.sweep import SweepSettings
 
         mode = self.sampling_mode()
+        method = chosen_method(self.method)
         s = SweepSettings(mode=mode, observe=self.observe.currentText() or None,
                           transient=float(self.transient.value()), samples=self.samples.value(),
-                          dt=float(self.dt.value()), duration=float(self.duration.value()),
+                          dt=float(self.dt.value()) if method == "rk4" else None,
+                          method=None if method == "rk4" else method, duration=float(self.duration.value()),
                           lyapunov=self.lyapunov.isChecked(), t_start=float(self.session.solver.t_start))
         if mode == PLANE:
             s.plane = (self.plane_state.currentText(), float(self.plane_value.value()))
@@ -345,8 +366,9 @@ class SweepView(SessionView):
                     self.mode.setCurrentIndex(FLOW_MODES.index(keep[3]))
                 else:
                     self.mode.setCurrentIndex(FLOW_MODES.index(STROBE if period is not None else MAXIMA))
-        for w in (self.dt, self.dt_label, self.duration, self.duration_label):
+        for w in (self.method, self.method_label, self.duration, self.duration_label):
             w.setVisible(not is_map)
+        self._show_step()
         self.transient_label.setText("Skip the first" if is_map else "Settle for")
         self.points_label.setText("points" if is_map else "points,")  # a map has no step to follow
         if self.parameter.currentText() != self._range_for:
@@ -478,6 +500,7 @@ class SweepView(SessionView):
             parts.append(f"{failed} value{'s' if failed != 1 else ''} blew up or failed")
         if empty:
             parts.append(f"{empty} value{'s' if empty != 1 else ''} gave no points")
+        parts += list(getattr(result, "notes", []))
         self.info.setText("; ".join(parts))
         self._update_marker()
 
