@@ -292,3 +292,18 @@ def test_the_scene_is_smoothed_at_rest_and_drawn_plain_while_the_camera_moves(qt
     assert np.abs(again - at_rest).max() <= 2  # the smooth picture comes back on release
     # the tick numbers and axis names are painted in both
     assert _text_near_labels(view, at_rest) > 0.8 and _text_near_labels(view, moving) > 0.8
+
+
+def test_a_grab_of_the_view_shows_the_tick_numbers_and_names(qtbot, session, artifacts):
+    # screenshots grab the window (scripts/make_screenshots.py): a QPainter opened on the GL widget is
+    # redirected during a grab, which put the labels under the scene; they are painted into its framebuffer
+    from PySide6.QtCore import QPoint
+
+    view = make_view(qtbot, session, (640, 560))
+    load(qtbot, session, LORENZ)
+    frame(qtbot, view)
+    image = view.grab().toImage()
+    image.save(os.path.join(artifacts, "view_3d_grab.png"))
+    corner = view.glview.mapTo(view, QPoint(0, 0))
+    scene = image.copy(corner.x(), corner.y(), view.glview.width(), view.glview.height())
+    assert _text_near_labels(view, pixels(scene)) > 0.8

@@ -23,7 +23,7 @@ import pyqtgraph.opengl as gl
 from OpenGL import GL
 from PySide6.QtCore import QPointF
 from PySide6.QtGui import QFontMetrics, QImage, QPainter, QSurfaceFormat, QVector3D
-from PySide6.QtOpenGL import QOpenGLFramebufferObject, QOpenGLFramebufferObjectFormat
+from PySide6.QtOpenGL import QOpenGLFramebufferObject, QOpenGLFramebufferObjectFormat, QOpenGLPaintDevice
 
 SMOOTH_SAMPLES = 4
 
@@ -185,8 +185,11 @@ class SceneWidget(gl.GLViewWidget):
             GL.glBindFramebuffer(GL.GL_DRAW_FRAMEBUFFER, target)
             GL.glBlitFramebuffer(0, 0, w, h, 0, 0, w, h, GL.GL_COLOR_BUFFER_BIT, GL.GL_NEAREST)
             GL.glBindFramebuffer(GL.GL_FRAMEBUFFER, target)
-        if self.labels:
-            painter = QPainter(self)
+        if self.labels:  # into the framebuffer being drawn: a QPainter on the widget itself is redirected
+            # while the window is grabbed (screenshots), and the labels went under the scene there
+            device = QOpenGLPaintDevice(w, h)
+            device.setDevicePixelRatio(self.devicePixelRatioF())
+            painter = QPainter(device)
             paint_labels(painter, self.labels, self.label_points(self.width(), self.height()))
             painter.end()
 
