@@ -102,17 +102,6 @@ def view_figures(window) -> dict[str, bytes]:
     return found
 
 
-def view_results(window) -> dict:
-    """The computed results the report gives the numbers of (``core.report._results_html``)."""
-    out = {}
-    for module, key in (("lyapunov", "lyapunov"), ("sweep", "sweep"), ("sections", "section")):
-        view = window.views.get(module)
-        result = view.result if view is not None else None
-        if result is not None:
-            out[key] = result
-    return out
-
-
 def _caption(view) -> str:
     title = view.title
     try:
@@ -131,7 +120,7 @@ def _view_equilibria(window, system):
 
 
 def report_html(window, equilibria=None) -> str:
-    from orbitdesk.exports.report import render_report
+    from orbitdesk.exports.report import document_results, render_report
 
     session = window.session
     system = _current_system(session)
@@ -139,8 +128,9 @@ def report_html(window, equilibria=None) -> str:
     if equilibria is None:
         equilibria = _view_equilibria(window, system)
     fit = getattr(getattr(session, "_data_store", None), "result", None)  # the Fit panel's latest result
-    return render_report(project, system, view_figures(window), equilibria=equilibria,
-                         results=view_results(window), fit=fit)
+    results, stale = document_results(session.doc)
+    return render_report(project, system, view_figures(window), equilibria=equilibria, results=results, fit=fit,
+                         stale=stale)
 
 
 # ---------------------------------------------------------------- writing

@@ -24,7 +24,6 @@ from orbitdesk.app.errors import Notices
 from orbitdesk.app.file_guard import DocumentGuard
 from orbitdesk.app.panels.noise_controls import NoiseControls
 from orbitdesk.app.plain_text import make_plain, menu_text, plain_message, rich_tip
-from orbitdesk.app.result_store import RESULTS_KEY
 from orbitdesk.app.session import Session
 
 log = logging.getLogger("orbitdesk.app.main_window")
@@ -609,20 +608,6 @@ class MainWindow(QMainWindow):
         if self.session.trajectory is not None and np.isfinite(self.session.time_cursor):
             window["time_cursor"] = float(self.session.time_cursor)
         views[WINDOW_KEY] = window
-        kept = {}
-        for view in self.views.values():
-            try:
-                d = view.kept_result()
-            except Exception:  # noqa: BLE001 - a result that cannot be kept is left out
-                log.exception("view %s could not keep its result", view)
-                d = None
-            if d is not None:
-                kept[view.view_id] = d
-        previous = views.get(RESULTS_KEY)
-        for view_id, d in (previous.items() if isinstance(previous, dict) else ()):
-            if view_id not in kept and view_id not in {v.view_id for v in self.views.values()}:
-                kept[view_id] = d  # a view not opened in this session keeps what the file had
-        views[RESULTS_KEY] = kept
 
     def restore_layout(self, window_settings: dict) -> bool:
         state = window_settings.get("state") if isinstance(window_settings, dict) else None

@@ -62,6 +62,7 @@ class Session(QObject):
     equilibriumSelected = Signal(object) # index into that list, or None
     startsRequested = Signal(object)     # list of {"u0": [...], "backward": bool}: trajectories to start
     cycleChanged = Signal(object)        # the limit cycle (core Cycle / MapCycle) for these values, or None
+    resultChanged = Signal(str)          # a kept result of this kind was set or cleared (document/results.py)
     heldChanged = Signal(bool)           # a value's slider is held by the hand (views keep their ranges)
 
     def __init__(self, parent=None):
@@ -91,6 +92,7 @@ class Session(QObject):
         on("equilibria", self.equilibriaChanged.emit)
         on("selection", self.equilibriumSelected.emit)
         on("cycle", self.cycleChanged.emit)
+        on("result", self.resultChanged.emit)
         on("part", self.partChanged.emit)
         on("step", self.stepChanged.emit)
         on("loaded", self._validate_timer.stop)
@@ -260,7 +262,8 @@ for _name in ("project", "path", "disk_state", "text", "parsed", "system", "para
 for _name in ("param_range", "written_values", "param_vector", "initial_vector", "run_settings",
               "set_text", "set_param", "set_initial", "set_values", "reset_values", "set_param_range",
               "set_solver", "replace_part", "show_state", "set_time_cursor", "set_equilibria",
-              "select_equilibrium", "set_cycle", "note_clicked_start", "mark_dirty", "mark_saved", "add_save_hook",
+              "select_equilibrium", "set_cycle", "set_result", "clear_result", "result", "result_stale", "basis",
+              "note_clicked_start", "mark_dirty", "mark_saved", "add_save_hook",
               "to_project"):
     setattr(Session, _name, _call(_name))
 del _name

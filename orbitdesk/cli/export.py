@@ -61,7 +61,7 @@ def _figures_and_results(project, equilibria):
         from orbitdesk.app.plots.figures import headless_report_parts
     except ImportError as err:
         print(f"orbitdesk export: no figures ({err})", file=sys.stderr)
-        return {}, {}
+        return {}, ({}, {})
     return headless_report_parts(project, equilibria)
 
 
@@ -126,7 +126,7 @@ def run(args) -> int:
 
         project = _project_for(source, system, p, u0)
         equilibria = _equilibria(system, p)
-        figures, results = _figures_and_results(project, equilibria)
-        text = render_report(project, system, figures, equilibria=equilibria, results=results)
+        figures, (results, stale) = _figures_and_results(project, equilibria)
+        text = render_report(project, system, figures, equilibria=equilibria, results=results, stale=stale)
     _write(text, args.output)
     return 0

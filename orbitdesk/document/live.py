@@ -3,13 +3,16 @@
 It holds the model text, the parsed model and compiled system, the values (parameters, initial values,
 slider ranges), the solver settings, the project's other parts (view settings, walkthrough, data sets,
 kept parameter sets) and the results that belong to the current system and values (the main run, the
-equilibria with the selected one, the limit cycle). Edits are undoable commands on ``undo``
-(document/undo.py); results are plain settings, cleared when the model or the values change.
+equilibria with the selected one, the limit cycle) and the kept results of the analyses (sweep, Lyapunov
+spectrum, section, basins, two-parameter map: document/results.py, each once, marked stale rather than
+dropped when the values change, saved in the project file). Edits are undoable commands on ``undo``
+(document/undo.py); the run, the equilibria and the cycle are cleared when the model or the values change.
 
 Every change is announced to plain Python callbacks: ``doc.subscribe(event, fn)``. Events and their
 arguments: ``text`` (text), ``parsed`` (ParsedModel), ``system`` (CompiledSystem), ``values`` (),
 ``settings`` (), ``inputs`` () (what a run depends on changed: run again), ``trajectory`` (Trajectory),
 ``time_cursor`` (t), ``equilibria`` (list), ``selection`` (index or None), ``cycle`` (cycle or None),
+``result`` (kind: a kept result of that kind was set or cleared, see document/results.py),
 ``part`` (name of a project part replaced: "walkthrough", "datasets", "parameter_sets", "views"),
 ``step`` (index of a walkthrough step whose title or note changed), ``loaded`` (), ``dirty`` (bool), ``message`` (plain words for a status line).
 
@@ -32,6 +35,7 @@ import numpy as np
 
 from orbitdesk.document import project as core_project
 from orbitdesk.document.project import ParameterSetting, Project, ProjectError
+from orbitdesk.document.results import RESULTS_KEY, Basis, Results, stale_words, text_digest
 from orbitdesk.document.undo import Command, UndoStack
 from orbitdesk.engine.settings import SAVED, RunSettings
 
@@ -42,7 +46,7 @@ PROJECT_SUFFIXES = (".orbitdesk", ".json")
 SOLVER_FIELDS = SAVED
 PARTS = ("walkthrough", "datasets", "parameter_sets", "views")   # project parts replaced by ``replace_part``
 EVENTS = ("text", "parsed", "system", "values", "settings", "inputs", "trajectory", "time_cursor",
-          "equilibria", "selection", "cycle", "part", "step", "loaded", "dirty", "message")
+          "equilibria", "selection", "cycle", "result", "part", "step", "loaded", "dirty", "message")
 
 
 def parse(text):
@@ -109,6 +113,11 @@ def _project_with_state(path: Path) -> tuple[Project, Path, object]:
     return project, path, state
 
 
+def _listed(value):
+    """Tuples as lists, all the way down (as a project file gives them back)."""
+    return [_listed(v) for v in value] if isinstance(value, (list, tuple)) else value
+
+
 def _same_path(a: Path, b: Path) -> bool:
     return os.path.realpath(a) == os.path.realpath(b)
 
@@ -163,9 +172,11 @@ class LiveDocument:
         self.trajectory = None
         self.time_cursor = math.inf
         self.equilibria: list = []                   # shared by the views that show equilibria
+        self.equilibria_notes: list[str] = []        # what the search that found them said
         self.selected_equilibrium: int | None = None  # index into ``equilibria``
         self.cycle = None                            # the limit cycle found for the current values
         self.clicked_start: list[float] | None = None  # full state of the last trajectory started by a click
+        self.results = Results()  # kept results of the analyses by kind (read with ``result(kind)``)
         self.generation = 0       # grows whenever what results depend on changes (stale-result check)
         self.text_generation = 0  # grows with every change of the text (a compile of older text is moot)
         self.undo = UndoStack()
@@ -374,8 +385,10 @@ class LiveDocument:
 
     def set_equilibria(self, items) -> None:
         """The equilibria found for the current system and values; a selection that no longer points
-        into the list is dropped. Cleared when the model or its values change."""
+        into the list is dropped. Cleared when the model or its values change. A search result's ``notes``
+        are kept beside them (``equilibria_notes``)."""
         self.equilibria = list(items or [])
+        self.equilibria_notes = [str(n) for n in getattr(items, "notes", None) or []]
         self.emit("equilibria", list(self.equilibria))
         if self.selected_equilibrium is not None and self.selected_equilibrium >= len(self.equilibria):
             self.select_equilibrium(None)
@@ -394,6 +407,37 @@ class LiveDocument:
         self.cycle = cycle
         self.emit("cycle", cycle)
 
+    # ------------------------------------------------------------ kept results of the analyses (results.py)
+    def basis(self, skip=(), solver: bool = False) -> Basis:
+        """What a result computed now is computed for: the values, the model of the system in use and
+        (``solver``) the solver settings; ``skip``: parameters the result runs over."""
+        skip = (skip,) if isinstance(skip, str) else tuple(skip or ())
+        model = text_digest(self.system.model.text) if self.system is not None else None
+        return Basis(dict(self.params), dict(self.initial), model,
+                     _listed(dataclasses.astuple(self.solver)) if solver else None, skip)
+
+    def set_result(self, kind: str, result, basis: Basis | None = None) -> None:
+        """Keep ``result`` (a core result dataclass) as the project's result of ``kind`` (results.KINDS),
+        computed for ``basis`` (default: now); None clears it. Announced by the ``result`` event."""
+        self.results.set(kind, result, basis if basis is not None else self.basis())
+        self.emit("result", kind)
+
+    def clear_result(self, kind: str) -> None:
+        if self.results.get(kind) is not None:
+            self.set_result(kind, None)
+
+    def result(self, kind: str):
+        """The kept result of ``kind`` (None: none)."""
+        return self.results.get(kind)
+
+    def result_stale(self, kind: str) -> str:
+        """Plain words when the kept result of ``kind`` was computed for another model or other values than
+        those now set ("" when it is current or there is none)."""
+        then = self.results.basis(kind)
+        if then is None:
+            return ""
+        return stale_words(then, self.basis(then.skip, solver=then.solver is not None))
+
     def note_clicked_start(self, u0) -> None:
         """A view started a trajectory from a clicked point: its full state (a start for a cycle search)."""
         self.clicked_start = [float(v) for v in u0]
@@ -403,7 +447,7 @@ class LiveDocument:
         if self.cycle is not None:
             self.set_cycle(None)
         if self.equilibria or self.selected_equilibrium is not None:
-            self.equilibria, self.selected_equilibrium = [], None
+            self.equilibria, self.equilibria_notes, self.selected_equilibrium = [], [], None
             self.emit("equilibria", [])
             self.emit("selection", None)
 
@@ -505,6 +549,10 @@ class LiveDocument:
         proj.parameters = {n: ParameterSetting(v, *self.param_range(n)) for n, v in self.params.items()}
         proj.initial = dict(self.initial)
         proj.solver = copy.copy(self.solver)
+        results = self.results.to_json()
+        proj.views.pop(RESULTS_KEY, None)
+        if results:
+            proj.views[RESULTS_KEY] = results
         return proj
 
     def load_project(self, project: Project, path=None, disk_state=core_project.UNCHECKED):
@@ -512,6 +560,8 @@ class LiveDocument:
         ``disk_state``: what the file at ``path`` held when read (saving checks it has not changed since)."""
         project = copy.deepcopy(project)
         parsed = parse(project.model)
+        kept_before = self.results.kinds()
+        kept_now = self.results.load_json(project.views.pop(RESULTS_KEY, None))
         self.project, self.path = project, (Path(path) if path is not None else None)
         self.disk_state = disk_state if path is not None else core_project.UNCHECKED
         self.text = project.model
@@ -536,6 +586,8 @@ class LiveDocument:
         self.emit("parsed", parsed)
         self.emit("settings")
         self.emit("values")
+        for kind in dict.fromkeys(kept_before + kept_now):
+            self.emit("result", kind)
         self.emit("loaded")
         self._update_dirty()
         return parsed
@@ -557,7 +609,7 @@ class LiveDocument:
         expected = self.disk_state if same_file and not overwrite else core_project.UNCHECKED
         self.disk_state = core_project.save(target, proj, expected=expected, overwrite_read_only=overwrite_read_only)
         self.project.name = proj.name
-        self.project.views = copy.deepcopy(proj.views)
+        self.project.views = {k: v for k, v in copy.deepcopy(proj.views).items() if k != RESULTS_KEY}
         self.path = target
         self.mark_saved()
         return target

@@ -203,9 +203,27 @@ def _section_rows(r) -> list[list[str]]:
     return rows
 
 
-def _results_html(results: dict, system) -> list[str]:
+REPORTED = (("lyapunov", "lyapunov"), ("sweep", "sweep"), ("sections", "section"))  # document kind, results key
+
+
+def document_results(doc) -> tuple[dict, dict]:
+    """The kept results of a live document the report gives the numbers of (``results`` of
+    ``render_report``), and for each that is stale the words saying what it was computed for (``stale``)."""
+    results, stale = {}, {}
+    for kind, key in REPORTED:
+        result = doc.result(kind)
+        if result is not None:
+            results[key] = result
+            words = doc.result_stale(kind) if doc.system is not None else ""
+            if words:
+                stale[key] = words
+    return results, stale
+
+
+def _results_html(results: dict, system, stale: dict | None = None) -> list[str]:
     """Numbers of the computed results the caller passes: ``{"lyapunov": LyapunovResult,
-    "sweep": SweepResult, "section": SectionResult}`` (any may be missing)."""
+    "sweep": SweepResult, "section": SectionResult}`` (any may be missing); ``stale``: for a result
+    computed for other values or another model, words that say so (``document_results``)."""
     out = []
     parts = (("lyapunov", "Lyapunov exponents", lambda r: _lyapunov_rows(r, system.time_name)),
              ("sweep", "Parameter sweep", _sweep_rows), ("section", "Section", _section_rows))
@@ -219,6 +237,8 @@ def _results_html(results: dict, system) -> list[str]:
         status = getattr(result, "status", "ok")  # (a sweep has one per value)
         if isinstance(status, str) and status != "ok" and getattr(result, "message", ""):
             notes.insert(0, result.message)
+        if (stale or {}).get(key):
+            notes.insert(0, f"{stale[key]}: not the values above")
         out.extend(f'<p class="muted">{_e(note)}</p>' for note in notes)
     if out:
         out.insert(0, "<h2>Computed results</h2>")
@@ -226,10 +246,11 @@ def _results_html(results: dict, system) -> list[str]:
 
 
 def render_report(project, system, figures: dict | None = None, equilibria=None, results: dict | None = None,
-                  fit=None) -> str:
+                  fit=None, stale: dict | None = None) -> str:
     """The report as HTML text. ``figures`` maps a caption to PNG bytes (drawn by the caller);
     ``equilibria`` is a list of Equilibrium objects or their ``to_dict()`` forms, or None; ``results``
-    holds the other computed results whose numbers go in (see ``_results_html``); ``fit`` a FitResult for
+    holds the other computed results whose numbers go in (see ``_results_html``; ``document_results`` reads
+    them and ``stale`` from a live document); ``fit`` a FitResult for
     the project's data sets (None: the fit saved in the project is run, if any)."""
     figures = dict(figures or {})
     for title, data in figures.items():
@@ -336,7 +357,7 @@ def render_report(project, system, figures: dict | None = None, equilibria=None,
         for note in getattr(equilibria, "notes", []) or []:
             out.append(f'<p class="muted">{_e(note)}</p>')
 
-    out.extend(_results_html(results or {}, system))
+    out.extend(_results_html(results or {}, system, stale))
 
     if getattr(project, "datasets", None):
         from orbitdesk.exports.report_fit import fit_for_report, fit_section

@@ -225,13 +225,22 @@ def test_clicking_the_phase_plane_starts_trajectories(qtbot, window, tmp_path):
 
 def test_equilibria_markers(qtbot, window, tmp_path):
     open_model(qtbot, window, tmp_path, OSCILLATOR)
+    from orbitdesk.analyses.equilibria import Equilibrium
+
     pp = window.views["phase_plane"]
-    pp.set_equilibria([{"state": {"x": 0.0, "x'": 0.0}, "stable": None, "kind": "centre (linear)"},
-                       {"state": {"x": 1.0, "x'": 0.0}, "stable": False, "kind": "saddle"},
-                       {"state": {"x": -1.0, "x'": 0.0}, "stable": True, "kind": "stable node"}])
+
+    def point(x, stable, kind):
+        lam = {None: [1j, -1j], False: [1.0, -1.0], True: [-1.0, -2.0]}[stable]
+        return Equilibrium({"x": x, "x'": 0.0}, np.array([x, 0.0]), np.eye(2), np.array(lam, dtype=complex),
+                           np.eye(2, dtype=complex), kind, stable, sum(np.real(lam) < 0), sum(np.real(lam) > 0),
+                           sum(np.real(lam) == 0), "newton")
+
+    # the markers show the live document's equilibria (one list, whichever view or command put it there)
+    window.session.set_equilibria([point(0.0, None, "centre (linear)"), point(1.0, False, "saddle"),
+                                   point(-1.0, True, "stable node")])
     spots = pp.eq_item.points()
     assert [p.symbol() for p in spots] == ["s", "x", "o"]
-    pp.set_equilibria([])
+    window.session.set_equilibria([])
     assert len(pp.eq_item.points()) == 0
 
 

@@ -464,7 +464,7 @@ def _wait(done, seconds: float) -> bool:
 
 
 def headless_report_parts(project, equilibria=None, timeout: float = 600.0):
-    """(figures, results) of the HTML report for ``project`` with no window, as the app's report makes
+    """(figures, (results, stale)) of the HTML report for ``project`` with no window, as the app's report makes
     them: a Session loads the project on Qt's offscreen platform (when no application runs yet and
     QT_QPA_PLATFORM names none), the views that draw from the run by themselves are made with the project's view settings
     (time series, phase plane, and the section when the project keeps settings for it), the
@@ -473,7 +473,8 @@ def headless_report_parts(project, equilibria=None, timeout: float = 600.0):
     import os
     from types import SimpleNamespace
 
-    from orbitdesk.app.exports import view_figures, view_results
+    from orbitdesk.app.exports import view_figures
+    from orbitdesk.exports.report import document_results
     from orbitdesk.app.session import Session
     from orbitdesk.app.views import DEFAULT_VISIBLE, load_view_class
 
@@ -498,7 +499,7 @@ def headless_report_parts(project, equilibria=None, timeout: float = 600.0):
         _wait(lambda: not any(t.isActive() for t in timers) and not session.busy, timeout)
         QApplication.processEvents()
         holder = SimpleNamespace(views=views)
-        return view_figures(holder), view_results(holder)
+        return view_figures(holder), document_results(session.doc)
     finally:
         session.shutdown()
         for view in views.values():

@@ -16,7 +16,6 @@ from PySide6.QtWidgets import QLabel
 
 from orbitdesk.app.views import SERIES_COLOURS, empty_hint, is_dark, style_plot
 from orbitdesk.app.plots.plot_style import JobStrip, NumberBox, number_text, plain_axes
-from orbitdesk.analyses.basins import BasinResult
 from orbitdesk.app.views.common import (SessionView, apply_axis_settings, apply_numbers, check_box, clicked_point,
                      combo_box, control_row, count_box, fill_combo, follow_forcing_period, grid_rect, push_button,
                      quiet, select_text, set_quietly, status_label)
@@ -30,14 +29,13 @@ class BasinsView(SessionView):
     view_id = "basins"
     on_request = True
     title = "Basins of attraction"
-    result_class = BasinResult
+    result_kind = "basins"
 
     resultChanged = Signal(object)  # BasinResult or None
     orbitChanged = Signal(object)   # the run from a clicked cell (Trajectory) or None
 
     def __init__(self, session, parent=None):
         super().__init__(session, parent)
-        self.result = None
         self.manifold_items: list = []
         self._user_period = False
         self.x_state, self.y_state = combo_box("The state across"), combo_box("The state up")
@@ -152,7 +150,7 @@ class BasinsView(SessionView):
     # ------------------------------------------------------------ session events
     def _on_project_loaded(self) -> None:
         self.system, self._wanted = None, None
-        self._show(None)
+        self.show_no_result()
         self.apply_view_settings(self.saved_view_settings())
 
     def _on_system(self, system) -> None:
@@ -170,13 +168,10 @@ class BasinsView(SessionView):
         self.strobe.setEnabled(system.kind != "map")
         if forced and not self.strobe.isChecked() and not self._user_period:
             set_quietly(self.strobe, True)
-        if self.result is not None and (self.result.x_name not in system.states
-                                        or self.result.y_name not in system.states):
-            self._show(None)
         self._on_values()
-        self.restore_kept_result()
+        self.show_document_result()
 
-    def show_kept_result(self, result) -> None:
+    def show_result(self, result) -> None:
         if result.x_name not in self.system.states or result.y_name not in self.system.states:
             raise ValueError("the kept basins are over states the model no longer has")
         if result.labels.shape != (result.ys.size, result.xs.size) or any(
@@ -194,8 +189,7 @@ class BasinsView(SessionView):
 
     # ------------------------------------------------------------ results
     def _adopt(self, result) -> None:
-        self._show(result)
-        self.shown_computed()
+        self.keep_result(result)
         self._request_manifolds()
 
     def colour_of(self, label: int) -> QColor:
@@ -204,14 +198,15 @@ class BasinsView(SessionView):
         light, dark = SERIES_COLOURS[label % len(SERIES_COLOURS)]
         return QColor(dark if is_dark(self) else light)
 
+    def show_no_result(self) -> None:
+        self._show(None)
+
     def _show(self, result) -> None:
-        self.result = result
         self._show_orbit(None)
         for item in self.manifold_items:
             self.plot.removeItem(item)
         self.manifold_items = []
         if result is None:
-            self.shown_nothing()
             self.image.clear()
             self.centres.setData([], [])
             self.legend.setText("")

@@ -323,12 +323,12 @@ class BifurcationView(SessionView):
         self.resultChanged.emit()
         self.session.mark_dirty()  # the branches are kept in the project
 
-    def values_now(self, skip=None) -> dict:
+    def values_now(self, skip=None):
         """Branches do not depend on the initial state (it only picks where the search starts), so a
         click that moves the state onto a branch does not make them stale."""
-        values = super().values_now(skip)
-        values["initial"] = None
-        return values
+        basis = super().values_now(skip)
+        basis.initial = {}
+        return basis
 
     # ------------------------------------------------------------ session events
     def _on_project_loaded(self) -> None:

@@ -4,7 +4,6 @@ views that draw trajectories."""
 
 from __future__ import annotations
 
-import dataclasses
 import math
 from contextlib import contextmanager
 
@@ -13,9 +12,10 @@ from PySide6.QtCore import QEvent, Qt, QTimer
 from PySide6.QtWidgets import (QAbstractButton, QCheckBox, QComboBox, QFrame, QHBoxLayout, QLabel, QPushButton,
                                QSizePolicy, QVBoxLayout, QWidget)
 
+from orbitdesk.document.results import stale_words
 from orbitdesk.document.view_settings import clean_settings
 
-from orbitdesk.app.plots.plot_style import hint_label, number_text, orbit_middle
+from orbitdesk.app.plots.plot_style import hint_label, orbit_middle
 
 DIRECTION_LABELS = ("upward", "downward", "both ways")
 # views whose analyses assume determinism: with a model that has noise they say they use its noise-free part
@@ -48,8 +48,10 @@ class SessionView(QWidget):
     change calls ``_restyle``. Subclasses define ``_on_project_loaded`` and ``_on_system``.
 
     Results computed on request are marked stale the same way everywhere: call ``begin_computing()``
-    when a computation starts, ``shown_computed()`` when its result is shown and ``shown_nothing()`` when
-    the view is cleared; whenever the values, the solver settings or the model differ from those the
+    when a computation starts. A view with ``result_kind`` keeps its result in the live document
+    (``keep_result``; document/results.py) and draws it in ``show_result`` when the document announces
+    it (also after a project is opened: the project keeps it); other views call ``shown_computed()`` /
+    ``shown_nothing()``. Whenever the values, the solver settings or the model differ from those the
     shown result was computed for, a bar over the view says so and offers ``recompute()``.
 
     The analysis contract, read by the walkthrough and the exports without guessing: ``compute()``
@@ -61,20 +63,18 @@ class SessionView(QWidget):
     view_id = ""                   # the id in the registry of views (document/views.py)
     title = ""
     stale_follows_solver = False   # results depend on the solver settings too (runs, sections)
-    result_class = None            # the core result this view keeps in the project (see result_store)
+    result_kind = None             # the kind of result it shows from the live document (document/results.py)
     on_request = False             # computes its result only when asked (or when its Automatic box is on)
-    result = None                  # the latest result shown
     auto = None                    # the Automatic check box of views that have one
 
     def __init__(self, session, parent=None):
         super().__init__(parent)
         self.session = session
         self.system = None
+        self._own_result = None
         self._computing_for = None
         self._computed_for = None
-        self._stale_skip = None
         self._fit_pending = False
-        self._restore_pending = True
         self.stale_bar = StaleBar(self.recompute)
 
     def follow_session(self, values=None, settings=None, trajectory=None, cursor=None) -> None:
@@ -88,8 +88,9 @@ class SessionView(QWidget):
                                 (s.trajectoryChanged, trajectory), (s.timeCursorChanged, cursor)):
             if handler is not None:
                 signal.connect(handler)
-        s.projectLoaded.connect(lambda: setattr(self, "_restore_pending", True))
         s.projectLoaded.connect(self._on_project_loaded)
+        if self.result_kind is not None:
+            s.resultChanged.connect(self._on_result_changed)
         for signal in (s.valuesChanged, s.settingsChanged, s.systemChanged):
             signal.connect(self.update_stale)
         self._on_project_loaded()
@@ -140,20 +141,52 @@ class SessionView(QWidget):
         """This view's settings as the open project keeps them, checked and clamped (view_settings.py)."""
         return clean_settings(self.view_id, self.session.project.views.get(self.view_id, {}))[0]
 
-    # ------------------------------------------------------------ stale results
-    def values_now(self, skip=None) -> dict:
-        """What a result computed now is computed for (``skip``: a parameter, or a list of parameters, the
-        result runs over)."""
-        s = self.session
-        skip = (skip,) if isinstance(skip, str) else tuple(skip or ())
-        return {"params": {n: v for n, v in s.params.items() if n not in skip}, "initial": dict(s.initial),
-                "system": id(self.system),
-                "solver": dataclasses.astuple(s.solver) if self.stale_follows_solver else None}
+    # ------------------------------------------------------------ the document's equilibria (one copy)
+    @property
+    def equilibria(self) -> list:
+        """The equilibria the live document holds for the current system and values (every view reads
+        this one list; the Equilibria view finds them and puts them in with ``session.set_equilibria``)."""
+        return self.session.equilibria
 
-    def begin_computing(self, skip: str | None = None) -> None:
-        self._computing_for, self._stale_skip = self.values_now(skip), skip
+    @property
+    def selected_equilibrium(self):
+        """The one of them selected (in the Equilibria view's table), or None."""
+        i, items = self.session.selected_equilibrium, self.session.equilibria
+        return items[i] if i is not None and 0 <= i < len(items) else None
+
+    # ------------------------------------------------------------ results and their staleness
+    @property
+    def result(self):
+        """The latest result shown: for a view with ``result_kind``, the live document's (one copy)."""
+        if self.result_kind is not None:
+            return self.session.doc.result(self.result_kind)
+        return self._own_result
+
+    @result.setter
+    def result(self, value) -> None:
+        if self.result_kind is not None:
+            raise AttributeError("this view's result lives in the document: keep_result / drop_result")
+        self._own_result = value
+
+    def values_now(self, skip=None):
+        """What a result computed now is computed for (``skip``: a parameter, or a list of parameters, the
+        result runs over): the document's ``basis``."""
+        return self.session.doc.basis(skip, solver=self.stale_follows_solver)
+
+    def begin_computing(self, skip=None) -> None:
+        self._computing_for = self.values_now(skip)
+
+    def keep_result(self, result) -> None:
+        """Put a result computed since ``begin_computing`` into the document (views with ``result_kind``);
+        the document's ``result`` event then shows it here (``show_result``) and wherever else it is read."""
+        self.session.set_result(self.result_kind, result, self._computing_for)
+
+    def drop_result(self) -> None:
+        """Clear this view's result in the document (it no longer fits the model)."""
+        self.session.clear_result(self.result_kind)
 
     def shown_computed(self) -> None:
+        """A result of a view without ``result_kind`` is shown, computed since ``begin_computing``."""
         self._computed_for = self._computing_for
         self.update_stale()
 
@@ -161,81 +194,49 @@ class SessionView(QWidget):
         self._computed_for = None
         self.update_stale()
 
-    def is_stale(self) -> bool:
-        return self._computed_for is not None and self._computed_for != self.values_now(self._stale_skip)
+    def _on_result_changed(self, kind: str) -> None:
+        if kind == self.result_kind and self.system is not None:
+            self.show_document_result()
+
+    def show_document_result(self) -> bool:
+        """Show the document's result of this view's kind, or nothing (call at the end of ``_on_system``):
+        one that does not fit the model (``show_result`` raised) is dropped from the document. Returns
+        whether a result is shown."""
+        if self.result_kind is None or self.system is None:
+            return False
+        result, shown = self.result, False
+        if result is not None:
+            try:
+                self.show_result(result)
+                shown = True
+            except (AttributeError, KeyError, IndexError, TypeError, ValueError):
+                self.show_no_result()
+                self.drop_result()
+        else:
+            self.show_no_result()
+        self.update_stale()
+        return shown
+
+    def show_result(self, result) -> None:
+        """Draw a result of this view's kind (raise ValueError when it does not fit the model)."""
+
+    def show_no_result(self) -> None:
+        """Clear the drawing of the result."""
 
     def stale_text(self) -> str:
-        then, now = self._computed_for, self.values_now(self._stale_skip)
-        if then is None or then == now:
-            return ""
-        parts = []
-        if then["system"] != now["system"]:
-            parts.append("an earlier version of the model")
-        changed = [n for n in then["params"] if n in now["params"] and then["params"][n] != now["params"][n]]
-        if changed:
-            parts.append(", ".join(f"{n} = {number_text(then['params'][n])} (now {number_text(now['params'][n])})"
-                                   for n in changed[:3]) + (", …" if len(changed) > 3 else ""))
-        if then["initial"] != now["initial"]:
-            parts.append("other initial values")
-        if then["solver"] != now["solver"]:
-            parts.append("other solver settings")
-        return "Computed for " + ("; ".join(parts) if parts else "other values")
+        if self.result_kind is not None:
+            return self.session.result_stale(self.result_kind) if self.system is not None else ""
+        then = self._computed_for
+        return "" if then is None else stale_words(then, self.values_now(then.skip))
+
+    def is_stale(self) -> bool:
+        return bool(self.stale_text())
 
     def update_stale(self, *_args) -> None:
         text = self.stale_text()
         self.stale_bar.label.setText(text)
         self.stale_bar.label.setToolTip(text)
         self.stale_bar.setVisible(bool(text))
-
-    # ------------------------------------------------------------ results kept in the project
-    def kept_result(self) -> dict | None:
-        """The shown result as the project keeps it, with the values it was computed for."""
-        from orbitdesk.app.result_store import pack, text_digest
-
-        r, f = getattr(self, "result", None), self._computed_for
-        if self.result_class is None or r is None or f is None:
-            return None
-        data = pack(r)
-        if data is None:
-            return None
-        current = f["system"] == id(self.system)
-        return {"for": {"params": f["params"], "initial": f["initial"],
-                        "solver": None if f["solver"] is None else list(f["solver"]),
-                        "model": text_digest(self.session.text) if current else None},
-                "skip": self._stale_skip, "data": data}
-
-    def restore_kept_result(self) -> bool:
-        """Once after a project is opened (call at the end of ``_on_system``): show the result the
-        project kept, marked stale if the model or the values differ from those it was computed for."""
-        from orbitdesk.app.result_store import RESULTS_KEY, text_digest, unpack
-
-        if not self._restore_pending or self.result_class is None or self.system is None:
-            return False
-        self._restore_pending = False
-        kept = self.session.project.views.get(RESULTS_KEY, {})
-        d = kept.get(self.view_id) if isinstance(kept, dict) else None
-        if not isinstance(d, dict) or not isinstance(d.get("for"), dict):
-            return False
-        result = unpack(self.result_class, d.get("data"))
-        f = d["for"]
-        if result is None or not isinstance(f.get("params"), dict) or not isinstance(f.get("initial"), dict):
-            return False
-        try:
-            self.show_kept_result(result)
-        except (AttributeError, KeyError, IndexError, TypeError, ValueError):
-            return False  # a kept result that does not fit this model is left out
-        same_model = f.get("model") == text_digest(self.session.text)
-        self._computed_for = {"params": f["params"], "initial": f["initial"],
-                              "system": id(self.system) if same_model else -1,
-                              "solver": None if f.get("solver") is None else tuple(f["solver"])}
-        skip = d.get("skip")
-        self._stale_skip = skip if isinstance(skip, str) or (
-            isinstance(skip, list) and all(isinstance(n, str) for n in skip)) else None
-        self.update_stale()
-        return True
-
-    def show_kept_result(self, result) -> None:
-        """Show a result read back from the project (views with ``result_class`` override this)."""
 
     def compute(self) -> None:
         """Compute this view's result for the values now set (views that only follow the session: nothing)."""

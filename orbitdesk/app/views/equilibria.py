@@ -74,7 +74,6 @@ class EquilibriaView(SessionView):
 
     def __init__(self, session, parent=None):
         super().__init__(session, parent)
-        self.equilibria: list = []
         self.notes: list[str] = []
         self._wanted_selection: int | None = None
         self._searched_generation = None
@@ -140,6 +139,7 @@ class EquilibriaView(SessionView):
 
         self._timer = auto_timer(self, AUTO_DELAY_MS, self.find, self._auto_ok)
         session.equilibriumSelected.connect(self._on_shared_selection)
+        session.equilibriaChanged.connect(lambda _items: self._show_equilibria())
         self.follow_session(values=self._on_values)
 
     # ------------------------------------------------------------ view protocol
@@ -231,12 +231,12 @@ class EquilibriaView(SessionView):
     # ------------------------------------------------------------ session events
     def _on_project_loaded(self) -> None:
         self.system = None
-        self._set_results([], [])
+        self._show_equilibria()
         self.apply_view_settings(self.saved_view_settings())
 
     def _on_system(self, system) -> None:
         self.system = system
-        self._set_results([], [])
+        self._show_equilibria()
         self._schedule()
 
     def _on_values(self) -> None:
@@ -262,23 +262,21 @@ class EquilibriaView(SessionView):
                                  "sense (switch the forcing off to find the rest points)")
 
     def _failed(self, message: str) -> None:
-        if self._owns_shared_list():
-            self.session.set_equilibria([])
-        self._set_results([], [])
+        self.session.set_equilibria([])
         self.summary.setText("")
 
     def _adopt(self, result) -> None:
-        items = list(result)
-        self.session.set_equilibria(items)  # shared first, so that the selection indexes this list
-        self._set_results(items, list(getattr(result, "notes", [])))
+        self.session.set_equilibria(result)  # the table shows the document's list (its event redraws it)
         self.shown_computed()
         self._publish_selection()
         self.equilibriaChanged.emit(result)
 
     # ------------------------------------------------------------ table and details
-    def _set_results(self, items, notes) -> None:
+    def _show_equilibria(self) -> None:
+        """The table of the document's equilibria, with the notes of the search that found them."""
         previous = self.selected_index()
-        self.equilibria, self.notes = items, notes
+        items, notes = self.equilibria, list(self.session.doc.equilibria_notes)
+        self.notes = notes
         if not items:
             self.shown_nothing()
         s = self.system
@@ -402,18 +400,12 @@ class EquilibriaView(SessionView):
                 self.starts_grid.addWidget(b, row, col)
         self.starts_grid.setColumnStretch(3, 1)
 
-    # ------------------------------------------------------------ the session's shared equilibria
-    def _owns_shared_list(self) -> bool:
-        """Whether the session's shared equilibria are the ones in this table."""
-        shared = self.session.equilibria
-        return len(shared) == len(self.equilibria) and all(a is b for a, b in zip(shared, self.equilibria))
-
+    # ------------------------------------------------------------ the document's selection
     def _publish_selection(self) -> None:
-        if self._owns_shared_list():
-            self.session.select_equilibrium(self.selected_index())
+        self.session.select_equilibrium(self.selected_index())
 
     def _on_shared_selection(self, index) -> None:
-        if index is not None and self._owns_shared_list() and index != self.selected_index():
+        if index is not None and index != self.selected_index():
             self.select(index)
 
 

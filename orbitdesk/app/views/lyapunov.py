@@ -12,7 +12,6 @@ from PySide6.QtCore import Qt, Signal
 from PySide6.QtWidgets import (QAbstractItemView, QHeaderView, QLabel, QSplitter, QTableWidget, QTableWidgetItem,
                                QVBoxLayout, QWidget)
 
-from orbitdesk.analyses.lyapunov import LyapunovResult
 from orbitdesk.engine.methods import METHODS
 
 from orbitdesk.app.views import muted_colour, series_colour, style_plot
@@ -30,13 +29,12 @@ class LyapunovView(SessionView):
     view_id = "lyapunov"
     on_request = True
     title = "Lyapunov exponents"
-    result_class = LyapunovResult
+    result_kind = "lyapunov"
 
     resultChanged = Signal(object)  # the LyapunovResult shown (None when cleared)
 
     def __init__(self, session, parent=None):
         super().__init__(session, parent)
-        self.result = None
         self._lengths = {"flow": [FLOW_LENGTH, FLOW_TRANSIENT], "map": [MAP_LENGTH, MAP_TRANSIENT]}
         self._kind = "flow"
 
@@ -200,7 +198,7 @@ class LyapunovView(SessionView):
     # ------------------------------------------------------------ session events
     def _on_project_loaded(self) -> None:
         self.system = None
-        self._clear()
+        self.show_no_result()
         self.apply_view_settings(self.saved_view_settings())
 
     def _on_system(self, system) -> None:
@@ -208,17 +206,20 @@ class LyapunovView(SessionView):
         self.system = system
         self._kind = "map" if system.kind == "map" else "flow"
         self._show_lengths()
-        self._clear()
+        self.show_document_result()
         self._schedule()
-        self.restore_kept_result()
 
-    def show_kept_result(self, result) -> None:
+    def show_result(self, result) -> None:
         wanted = 1 if self.system.delays else self.system.n_states
-        if result.kind != self.system.kind or np.asarray(result.exponents).size != wanted:
+        if result.kind != self.system.kind or np.asarray(result.exponents).size not in (1, wanted):
             raise ValueError("the kept exponents belong to another kind of model")
-        self.result = result
+        self._clear_drawing()
         self._draw()
         self.resultChanged.emit(result)
+
+    def show_no_result(self) -> None:
+        self._clear_drawing()
+        self.resultChanged.emit(None)
 
     def _on_values(self) -> None:
         self._schedule()
@@ -247,9 +248,7 @@ class LyapunovView(SessionView):
             w.setVisible(not is_map and not delays)
 
     # ------------------------------------------------------------ results
-    def _clear(self) -> None:
-        self.result = None
-        self.shown_nothing()
+    def _clear_drawing(self) -> None:
         self.table.setRowCount(0)
         self.summary.setText("")
         self.notes.setText("")
@@ -258,11 +257,7 @@ class LyapunovView(SessionView):
         self.curves = []
 
     def _adopt(self, result) -> None:
-        self._clear()
-        self.result = result
-        self.shown_computed()
-        self._draw()
-        self.resultChanged.emit(result)
+        self.keep_result(result)
 
     def _draw(self) -> None:
         r = self.result
@@ -336,9 +331,7 @@ class LyapunovView(SessionView):
         style_plot(self.plot_widget, self)
         self.zero.setPen(pg.mkPen(muted_colour(self), width=1, style=Qt.PenStyle.DashLine))
         if self.result is not None:
-            result = self.result
-            self._clear()
-            self.result = result
+            self._clear_drawing()
             self._draw()
 
 

@@ -30,12 +30,12 @@ class ParameterMapView(SessionView):
     view_id = "parameter_map"
     on_request = True
     title = "Two-parameter map"
+    result_kind = "parameter_map"
 
     resultChanged = Signal(object)  # LyapunovGrid / PeriodGrid, or None
 
     def __init__(self, session, parent=None):
         super().__init__(session, parent)
-        self.result = None
         self._user_period = False
         self.what = combo_box("What is coloured at each pair of values", [WHAT_LABELS[w] for w in WHATS],
                               self._on_what)
@@ -174,7 +174,7 @@ class ParameterMapView(SessionView):
     # ------------------------------------------------------------ session events
     def _on_project_loaded(self) -> None:
         self.system = None
-        self._show(None)
+        self.show_no_result()
         self._wanted = None
         self.apply_view_settings(self.saved_view_settings())
 
@@ -194,11 +194,19 @@ class ParameterMapView(SessionView):
         self._default_range(self.x_param, self.x_lo, self.x_hi)
         self._default_range(self.y_param, self.y_lo, self.y_hi)
         self._apply_wanted()
-        if self.result is not None and (self.result.x_name not in system.parameters
-                                        or self.result.y_name not in system.parameters):
-            self._show(None)
         self._on_what()
         self._on_values()
+        self.show_document_result()
+
+    def show_result(self, result) -> None:
+        if result.x_name not in self.system.parameters or result.y_name not in self.system.parameters:
+            raise ValueError("the kept map is over parameters the model no longer has")
+        if np.shape(getattr(result, "exponent", getattr(result, "period", None))) != (result.ys.size, result.xs.size):
+            raise ValueError("the kept map does not fit together")
+        self._show(result)
+
+    def show_no_result(self) -> None:
+        self._show(None)
 
     def _apply_wanted(self) -> None:
         wanted, self._wanted = getattr(self, "_wanted", None) or {}, None
@@ -236,8 +244,7 @@ class ParameterMapView(SessionView):
 
     # ------------------------------------------------------------ results
     def _adopt(self, result) -> None:
-        self._show(result)
-        self.shown_computed()
+        self.keep_result(result)
 
     def _value_name(self) -> str:
         r = self.result
@@ -246,9 +253,7 @@ class ParameterMapView(SessionView):
         return "largest Lyapunov exponent" if hasattr(r, "exponent") else f"period ({r.unit})"
 
     def _show(self, result) -> None:
-        self.result = result
         if result is None:
-            self.shown_nothing()
             self.image.clear()
             self.empty.setVisible(True)
             self.resultChanged.emit(None)

@@ -60,7 +60,6 @@ class PhasePlaneView(SessionView):
         self.trajectory = None
         self.seeds: list[dict] = []        # {"u0": [...], "both": bool}
         self.seed_runs: list[tuple] = []   # (forward Trajectory, backward Trajectory | None) per seed
-        self.equilibria: list = []
         self._names: list[str] = []
         self._wanted_axes: tuple | None = None
         self._fitted = False
@@ -126,13 +125,11 @@ class PhasePlaneView(SessionView):
         layout.addWidget(self.plot_widget, 1)
 
         self._restyle()
-        session.equilibriaChanged.connect(self.set_equilibria)
+        session.equilibriaChanged.connect(lambda _items: self._draw_equilibria())
         session.cycleChanged.connect(lambda _c: self._draw_cycle())
         session.startsRequested.connect(self._on_starts_requested)
         session.heldChanged.connect(self._on_held)
         self.follow_session(values=self._on_values, trajectory=self._on_trajectory, cursor=self._update_cursor)
-        if session.equilibria:
-            self.set_equilibria(session.equilibria)
 
     # ------------------------------------------------------------ view protocol
     def view_settings(self) -> dict:
@@ -193,16 +190,6 @@ class PhasePlaneView(SessionView):
                 combo.blockSignals(False)
             self._on_axes()
 
-    def set_equilibria(self, items) -> None:
-        """Show equilibria: each an Equilibrium (core.equilibria) or a dict with ``state`` ({name: value}),
-        ``stable`` (True / False / None) and ``kind`` (a saddle if the word 'saddle' is in it).
-
-        Stable points are filled circles, unstable ones hollow circles, saddles crosses and points whose
-        stability the linearisation does not decide hollow squares. An empty list removes them.
-        """
-        self.equilibria = list(items or [])
-        self._draw_equilibria()
-
     def start_trajectory(self, x: float, y: float, both: bool | None = None) -> bool:
         """Start a trajectory at the point (x, y) of the plane (other states at their initial values)."""
         system = self.system
@@ -250,7 +237,6 @@ class PhasePlaneView(SessionView):
         self.system = None
         self._names = []
         self.seeds, self.seed_runs = [], []
-        self.equilibria = []
         self._fitted = False
         self.apply_view_settings(self.saved_view_settings())
         self._draw_seeds()
@@ -262,7 +248,6 @@ class PhasePlaneView(SessionView):
         names = coordinate_names(system)
         if old is not None and list(old.states) != list(system.states):
             self.seeds, self.seed_runs = [], []
-        self.equilibria = []
         if names != self._names:
             want = self._wanted_axes or (self.x_name, self.y_name)
             self._names = names
@@ -280,8 +265,6 @@ class PhasePlaneView(SessionView):
         self._schedule_seeds()
 
     def _on_values(self) -> None:
-        self.equilibria = []
-        self._draw_equilibria()
         self._field_timer.start()
         self._nullcline_timer.start()
         self._schedule_seeds()
@@ -563,6 +546,10 @@ class PhasePlaneView(SessionView):
 
     # ------------------------------------------------------------ equilibria
     def _draw_equilibria(self) -> None:
+        """The document's equilibria: each an Equilibrium (analyses/equilibria.py) or a dict with ``state``
+        ({name: value}), ``stable`` (True / False / None) and ``kind`` (a saddle if 'saddle' is in it).
+        Stable points are filled circles, unstable ones hollow circles, saddles crosses and points whose
+        stability the linearisation does not decide hollow squares."""
         s = self.system
         if s is None or not self.equilibria:
             self.eq_item.setData([])

@@ -56,8 +56,6 @@ class PhaseSpace3DView(SessionView):
         self.added: list[dict] = []       # {"u0": [...], "backward": bool}
         self.added_runs: list = []        # Trajectory per added start (None until it arrives)
         self.spread_runs: list = []
-        self.equilibria: list = []
-        self.selected_equilibrium = None
         self._names: list[str] = []
         self._wanted_axes: tuple | None = None
         self._box = [(-1.0, 1.0)] * 3
@@ -129,14 +127,11 @@ class PhaseSpace3DView(SessionView):
         self.glview.installEventFilter(self)
         self._rerun_timer.timeout.connect(self._rerun_extra)
         self.reset_camera()
-        session.equilibriaChanged.connect(self.set_equilibria)
-        session.equilibriumSelected.connect(self._on_equilibrium_selected)
+        session.equilibriaChanged.connect(lambda _items: self._draw_equilibria())
+        session.equilibriumSelected.connect(lambda _index: self._draw_equilibria())
         session.cycleChanged.connect(lambda _c: self._draw_cycle())
         session.startsRequested.connect(self._on_starts_requested)
         self.follow_session(values=self._on_values, trajectory=self._on_trajectory, cursor=self._update_cursor)
-        if session.equilibria:
-            self.set_equilibria(session.equilibria)
-            self._on_equilibrium_selected(session.selected_equilibrium)
 
     # ------------------------------------------------------------ view protocol
     def view_settings(self) -> dict:
@@ -300,20 +295,6 @@ class PhaseSpace3DView(SessionView):
         self.addedChanged.emit()
         self.spreadChanged.emit()
 
-    def set_equilibria(self, items) -> None:
-        self.equilibria = list(items or [])
-        if not any(eq is self.selected_equilibrium for eq in self.equilibria):
-            self.selected_equilibrium = None
-        self._draw_equilibria()
-
-    def select_equilibrium(self, eq) -> None:
-        self.selected_equilibrium = eq
-        self._draw_equilibria()
-
-    def _on_equilibrium_selected(self, index) -> None:
-        ok = index is not None and 0 <= index < len(self.equilibria)
-        self.select_equilibrium(self.equilibria[index] if ok else None)
-
     def _on_starts_requested(self, starts) -> None:
         if self.system is not None:
             self.add_starts(starts)
@@ -334,7 +315,6 @@ class PhaseSpace3DView(SessionView):
         self.system, self.trajectory = None, None
         self._names = []
         self.added, self.added_runs, self.spread_runs = [], [], []
-        self.equilibria, self.selected_equilibrium = [], None
         saved = self.saved_view_settings()
         if not isinstance(saved.get("camera"), dict):
             self.reset_camera()  # the starting camera, never the one of the project before
@@ -346,7 +326,6 @@ class PhaseSpace3DView(SessionView):
         self.system = system
         if old is not None and list(old.states) != list(system.states):
             self.added, self.added_runs = [], []
-        self.equilibria, self.selected_equilibrium = [], None
         names = coordinate_names(system)
         if names != self._names:
             want = self._wanted_axes or tuple(self.axes())
@@ -364,8 +343,6 @@ class PhaseSpace3DView(SessionView):
         self._schedule_extra()
 
     def _on_values(self) -> None:
-        self.equilibria, self.selected_equilibrium = [], None
-        self._draw_equilibria()
         self._schedule_extra()
 
     def _on_trajectory(self, trajectory) -> None:

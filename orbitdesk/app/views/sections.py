@@ -15,7 +15,6 @@ from PySide6.QtCore import Qt, QTimer, Signal
 from PySide6.QtWidgets import QDockWidget, QSpinBox, QSplitter, QStackedWidget, QVBoxLayout, QWidget
 
 from orbitdesk.language.angles import wrap_columns
-from orbitdesk.analyses.sections import SectionResult
 
 from orbitdesk.app.views import muted_colour, series_colour, style_plot
 from orbitdesk.app.plots.plot_style import JobStrip, NumberBox, hint_label, number_text
@@ -34,19 +33,19 @@ class SectionsView(SessionView):
     on_request = True
     title = "Poincaré section"
     stale_follows_solver = True
-    result_class = SectionResult
+    result_kind = "sections"
 
     sectionChanged = Signal(object)  # the SectionResult shown (None when cleared)
 
     def __init__(self, session, parent=None):
         super().__init__(session, parent)
-        self.result = None            # SectionResult of the last computation (flows)
         self._columns: dict[str, np.ndarray] = {}   # name -> values at the section points
         self._names: list[str] = []
         self._wanted: dict | None = None
         self._user_value = False
         self._user_period = False
         self._computed_once = False
+        self._just_opened = True      # the next system is the first of an opened project
 
         # ---- what to section
         self.kind = combo_box("Section by a plane COORDINATE = VALUE, or sample the state once every forcing "
@@ -235,8 +234,8 @@ class SectionsView(SessionView):
 
     # ------------------------------------------------------------ session events
     def _on_project_loaded(self) -> None:
-        self.system, self.result = None, None
-        self.shown_nothing()
+        self.system = None
+        self._just_opened = True
         self._names, self._columns = [], {}
         self._computed_once = False
         self._user_value = self._user_period = False
@@ -245,8 +244,6 @@ class SectionsView(SessionView):
 
     def _on_system(self, system) -> None:
         self.system = system
-        self.result = None
-        self.shown_nothing()
         self._columns = {}
         is_map = system.kind == "map"
         plane_names = list(system.states) + list(system.derived_names)
@@ -285,13 +282,22 @@ class SectionsView(SessionView):
                               "of the current run")
         self._default_plane_value()
         self._draw()
-        if not self.restore_kept_result():
+        kept = self.show_document_result() and self._just_opened  # the project's own section: shown as kept
+        self._just_opened = False
+        if not kept:
             self._schedule(force=True)
 
-    def show_kept_result(self, result) -> None:
+    def show_result(self, result) -> None:
         if self.system.kind == "map" or list(result.state_names) != list(self.system.states):
             raise ValueError("the kept section belongs to other states")
         self._show_section(result)
+        self.sectionChanged.emit(result)
+
+    def show_no_result(self) -> None:
+        if (self.system is None or self.system.kind != "map") and self._columns:
+            self._columns = {}
+            self._draw()
+            self.sectionChanged.emit(None)
 
     def _on_values(self) -> None:
         if self.system is not None and self.system.kind != "map":
@@ -385,12 +391,9 @@ class SectionsView(SessionView):
 
     # ------------------------------------------------------------ results
     def _adopt(self, result) -> None:
-        self.shown_computed()
-        self._show_section(result)
-        self.sectionChanged.emit(result)
+        self.keep_result(result)
 
     def _show_section(self, result) -> None:
-        self.result = result
         s = self.system
         cols = {s.time_name: np.asarray(result.times, dtype=float)}
         for i, name in enumerate(result.state_names):

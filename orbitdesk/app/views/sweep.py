@@ -15,7 +15,6 @@ from PySide6.QtCore import Qt, Signal
 from PySide6.QtGui import QColor
 from PySide6.QtWidgets import QLabel, QSpinBox, QStackedWidget, QWidget
 
-from orbitdesk.analyses.sweep import SweepResult
 
 from orbitdesk.app.views import muted_colour, series_colour, style_plot
 from orbitdesk.app.plots.plot_style import JobStrip, NumberBox, number_text
@@ -67,13 +66,12 @@ class SweepView(SessionView):
     view_id = "sweep"
     on_request = True
     title = "Parameter sweep"
-    result_class = SweepResult
+    result_kind = "sweep"
 
     sweepChanged = Signal(object)  # the SweepResult shown (None when cleared)
 
     def __init__(self, session, parent=None):
         super().__init__(session, parent)
-        self.result = None
         self._wanted: dict | None = None
         self._user_period = False
         self._user_plane_value = False
@@ -319,25 +317,22 @@ class SweepView(SessionView):
         parts = list(self._parts)
         if len(parts) > self._parts_shown:
             self._parts_shown = len(parts)
-            self.result = join_sweeps(parts)
-            self.shown_computed()
-            self._draw(refit=True)
+            partial = join_sweeps(parts)  # drawn as it grows; the document gets the whole (or a cancelled) sweep
+            self._draw(partial, refit=True)
             self.plot.setXRange(*self._parts_range, padding=0.01)  # the whole sweep's range, filling in
-            done = self.result.values.size
+            done = partial.values.size
             self.info.setText(f"{done} of {self._parts_total} values so far")
 
     def _on_strip_finished(self, state: str) -> None:
         if state == "cancelled" and self._parts:
-            self._parts_shown = 0
-            self._show_parts()
+            self.keep_result(join_sweeps(list(self._parts)))
             done = self.result.values.size
             self.info.setText(f"Cancelled: the diagram holds the first {done} of {self._parts_total} values")
-            self.sweepChanged.emit(self.result)
 
     # ------------------------------------------------------------ session events
     def _on_project_loaded(self) -> None:
         self.system = None
-        self._clear_result()
+        self.show_no_result()
         self._range_for = None
         self._user_period = self._user_plane_value = False
         self.apply_view_settings(self.saved_view_settings())
@@ -345,14 +340,12 @@ class SweepView(SessionView):
     def _on_system(self, system) -> None:
         old = self.system
         self.system = system
-        if old is None or list(old.parameters) != list(system.parameters) or list(old.states) != list(system.states):
-            self._clear_result()
         is_map = system.kind == "map"
         keep = (self.parameter.currentText(), self.observe.currentText(), self.plane_state.currentText(),
                 self.sampling_mode() if old is not None else None)
         with quiet(self.parameter, self.observe, self.plane_state, self.mode):
             fill_combo(self.parameter, system.parameters)
-            fill_combo(self.observe, list(system.states) + list(system.derived_names))
+            fill_combo(self.observe, self.observe_names())
             fill_combo(self.plane_state, system.states)
             fill_combo(self.mode, [MODE_LABELS[ITERATE]] if is_map else [MODE_LABELS[m] for m in FLOW_MODES])
             ranged = [n for n in system.parameters if None not in self.session.param_range(n)]
@@ -382,14 +375,16 @@ class SweepView(SessionView):
             self.info.setText("The model has no parameter to sweep")
         elif self.result is None:
             self.info.setText("Run draws the orbit diagram: the plotted points of each orbit against the parameter")
-        self.restore_kept_result()
+        self.show_document_result()
 
-    def show_kept_result(self, result) -> None:
-        if result.parameter not in self.system.parameters:
-            raise ValueError("the kept diagram sweeps a parameter the model no longer has")
-        self.result = result
+    def show_result(self, result) -> None:
+        if result.parameter not in self.system.parameters or result.observed not in self.observe_names():
+            raise ValueError("the kept diagram sweeps a parameter or plots a quantity the model no longer has")
         self._draw(refit=True)
         self.sweepChanged.emit(result)
+
+    def observe_names(self) -> list[str]:
+        return list(self.system.states) + list(self.system.derived_names) if self.system is not None else []
 
     def _apply_wanted(self) -> None:
         d, self._wanted = self._wanted, None
@@ -455,22 +450,18 @@ class SweepView(SessionView):
                           self._user_plane_value)
 
     # ------------------------------------------------------------ the diagram
-    def _clear_result(self) -> None:
-        self.result = None
-        self.shown_nothing()
+    def show_no_result(self) -> None:
         self.points.setData([], [])
         self.lyap_curve.setData([], [])
         self.lyap_widget.hide()
         self.info.setText("")
+        self.sweepChanged.emit(None)
 
     def _adopt(self, result) -> None:
-        self.result = result
-        self.shown_computed()
-        self._draw(refit=True)
-        self.sweepChanged.emit(result)
+        self.keep_result(result)
 
-    def _draw(self, refit: bool = False) -> None:
-        result = self.result
+    def _draw(self, result=None, refit: bool = False) -> None:
+        result = result if result is not None else self.result
         if result is None:
             return
         M, K = result.samples.shape

@@ -3,7 +3,7 @@
 import numpy as np
 
 from orbitdesk.analyses.basins import BasinResult
-from orbitdesk.app.result_store import pack, unpack
+from orbitdesk.document.results import pack, unpack
 
 
 def basin_result():
