@@ -116,7 +116,7 @@ def _caption(view) -> str:
 def _view_equilibria(window, system):
     """The equilibria the live document holds for this system and the present values (None: none found)."""
     s = window.session
-    return list(s.equilibria) if s.system is system and s.equilibria else None
+    return s.doc.current_equilibria() if s.system is system and s.doc.current_equilibria() else None
 
 
 def report_html(window, equilibria=None) -> str:

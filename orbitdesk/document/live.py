@@ -173,6 +173,7 @@ class LiveDocument:
         self.time_cursor = math.inf
         self.equilibria: list = []                   # shared by the views that show equilibria
         self.equilibria_notes: list[str] = []        # what the search that found them said
+        self.equilibria_basis: Basis | None = None   # the values they were found for (results.py)
         self.selected_equilibrium: int | None = None  # index into ``equilibria``
         self.cycle = None                            # the limit cycle found for the current values
         self.clicked_start: list[float] | None = None  # full state of the last trajectory started by a click
@@ -383,15 +384,28 @@ class LiveDocument:
             lo, hi = sorted((float(trajectory.time[0]), float(trajectory.time[-1])))
             self.set_time_cursor(min(max(self.time_cursor, lo), hi))
 
-    def set_equilibria(self, items) -> None:
-        """The equilibria found for the current system and values; a selection that no longer points
-        into the list is dropped. Cleared when the model or its values change. A search result's ``notes``
-        are kept beside them (``equilibria_notes``)."""
+    def set_equilibria(self, items, basis: Basis | None = None) -> None:
+        """The equilibria found for the current system and the values of ``basis`` (default: now); a
+        selection that no longer points into the list is dropped. Cleared when the model changes; with
+        other values they are kept but stale (``equilibria_stale``, ``current_equilibria``). A search
+        result's ``notes`` are kept beside them (``equilibria_notes``)."""
         self.equilibria = list(items or [])
+        self.equilibria_basis = basis if basis is not None else self.basis()
         self.equilibria_notes = [str(n) for n in getattr(items, "notes", None) or []]
         self.emit("equilibria", list(self.equilibria))
         if self.selected_equilibrium is not None and self.selected_equilibrium >= len(self.equilibria):
             self.select_equilibrium(None)
+
+    def equilibria_stale(self) -> str:
+        """Plain words when the equilibria were found for other values than those now set ("" if not)."""
+        then = self.equilibria_basis
+        if not self.equilibria or then is None:
+            return ""
+        return stale_words(then, self.basis(then.skip, solver=then.solver is not None))
+
+    def current_equilibria(self) -> list:
+        """The equilibria if they were found for the values now set, else none (what markers show)."""
+        return [] if self.equilibria_stale() else list(self.equilibria)
 
     def select_equilibrium(self, index) -> None:
         """Select one of the equilibria by its index (None: no selection)."""
@@ -442,11 +456,12 @@ class LiveDocument:
         """A view started a trajectory from a clicked point: its full state (a start for a cycle search)."""
         self.clicked_start = [float(v) for v in u0]
 
-    def _clear_results(self) -> None:
-        """Equilibria and the cycle belong to the values they were found for."""
+    def _clear_results(self, equilibria: bool = True) -> None:
+        """The cycle belongs to the values it was found for; equilibria to the system (with other values they
+        are kept, stale: ``current_equilibria``)."""
         if self.cycle is not None:
             self.set_cycle(None)
-        if self.equilibria or self.selected_equilibrium is not None:
+        if equilibria and (self.equilibria or self.selected_equilibrium is not None):
             self.equilibria, self.equilibria_notes, self.selected_equilibrium = [], [], None
             self.emit("equilibria", [])
             self.emit("selection", None)
@@ -489,7 +504,7 @@ class LiveDocument:
 
     def _values_changed(self) -> None:
         self.generation += 1
-        self._clear_results()
+        self._clear_results(equilibria=False)
         self.emit("values")
         self.emit("inputs")
 

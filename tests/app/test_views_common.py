@@ -37,8 +37,12 @@ def test_shared_equilibria_selection_and_clearing(qtbot, session):
     session.select_equilibrium(0)
     session.set_equilibria(items[:1])  # index 0 still points into the list
     assert session.selected_equilibrium == 0
-    # a changed value makes them stale: the session clears the list and the selection
+    # a changed value makes them stale: kept once in the document, but no view draws them as current
     session.set_param("a", 2.0)
+    assert session.equilibria == items[:1] and session.doc.current_equilibria() == []
+    assert session.doc.equilibria_stale().startswith("Computed for a = ")
+    # another model: the list and the selection go
+    session.doc.adopt_system(session.system, None)
     assert session.equilibria == [] and session.selected_equilibrium is None
     assert seen[-1] == [] and picked[-1] is None
 

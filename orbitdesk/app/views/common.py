@@ -144,14 +144,14 @@ class SessionView(QWidget):
     # ------------------------------------------------------------ the document's equilibria (one copy)
     @property
     def equilibria(self) -> list:
-        """The equilibria the live document holds for the current system and values (every view reads
+        """The live document's equilibria when they were found for the values now set (every view reads
         this one list; the Equilibria view finds them and puts them in with ``session.set_equilibria``)."""
-        return self.session.equilibria
+        return self.session.doc.current_equilibria()
 
     @property
     def selected_equilibrium(self):
         """The one of them selected (in the Equilibria view's table), or None."""
-        i, items = self.session.selected_equilibrium, self.session.equilibria
+        i, items = self.session.selected_equilibrium, self.equilibria
         return items[i] if i is not None and 0 <= i < len(items) else None
 
     # ------------------------------------------------------------ results and their staleness

@@ -72,6 +72,14 @@ class EquilibriaView(SessionView):
     equilibriumSelected = Signal(object)   # the selected Equilibrium, or None
     startsRequested = Signal(object)       # list of start dicts (see eigen_starts)
 
+    @property
+    def equilibria(self) -> list:
+        """The document's equilibria, also when found for other values (shown under the stale bar)."""
+        return self.session.equilibria
+
+    def stale_text(self) -> str:
+        return self.session.doc.equilibria_stale() if self.system is not None else ""
+
     def __init__(self, session, parent=None):
         super().__init__(session, parent)
         self.notes: list[str] = []
@@ -266,8 +274,7 @@ class EquilibriaView(SessionView):
         self.summary.setText("")
 
     def _adopt(self, result) -> None:
-        self.session.set_equilibria(result)  # the table shows the document's list (its event redraws it)
-        self.shown_computed()
+        self.session.set_equilibria(result, self._computing_for)  # the table shows the document's list
         self._publish_selection()
         self.equilibriaChanged.emit(result)
 
@@ -277,8 +284,7 @@ class EquilibriaView(SessionView):
         previous = self.selected_index()
         items, notes = self.equilibria, list(self.session.doc.equilibria_notes)
         self.notes = notes
-        if not items:
-            self.shown_nothing()
+        self.update_stale()
         s = self.system
         states = list(s.states) if s is not None else []
         point_word = "fixed point" if s is not None and s.kind == "map" else "equilibrium"

@@ -265,6 +265,7 @@ class PhasePlaneView(SessionView):
         self._schedule_seeds()
 
     def _on_values(self) -> None:
+        self._draw_equilibria()  # found for other values: not drawn
         self._field_timer.start()
         self._nullcline_timer.start()
         self._schedule_seeds()

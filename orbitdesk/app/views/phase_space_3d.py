@@ -343,6 +343,7 @@ class PhaseSpace3DView(SessionView):
         self._schedule_extra()
 
     def _on_values(self) -> None:
+        self._draw_equilibria()  # found for other values: not drawn
         self._schedule_extra()
 
     def _on_trajectory(self, trajectory) -> None:
