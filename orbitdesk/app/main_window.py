@@ -7,7 +7,7 @@ import logging
 from pathlib import Path
 
 import numpy as np
-from PySide6.QtCore import QByteArray, QSettings, QSize, Qt, QTimer, Signal
+from PySide6.QtCore import QByteArray, QEvent, QSettings, QSize, Qt, QTimer, Signal
 from PySide6.QtGui import QAction, QKeySequence
 from PySide6.QtWidgets import (QApplication, QComboBox, QDockWidget, QDoubleSpinBox, QFileDialog, QLabel,
                                QMainWindow, QMessageBox, QProgressBar, QPushButton, QSizePolicy, QSlider,
@@ -18,6 +18,7 @@ from orbitdesk.exports.csv_table import write_csv
 from orbitdesk.engine.methods import METHODS
 from orbitdesk.engine.settings import SettingsError
 from orbitdesk.document.project import ProjectError
+from orbitdesk.document.views import WINDOW_KEY
 
 from orbitdesk.app import views as views_pkg
 from orbitdesk.app.errors import Notices
@@ -30,7 +31,7 @@ log = logging.getLogger("orbitdesk.app.main_window")
 
 APP_NAME = "OrbitDesk"
 MAX_RECENT = 8
-WINDOW_KEY = "_window"
+LAYOUT_DELAY_MS = 300   # the dock layout goes into the project this long after it last changed
 PROJECT_FILTER = "OrbitDesk projects (*.orbitdesk)"
 OPEN_FILTER = "OrbitDesk projects and models (*.orbitdesk *.txt *.model);;Model text (*.txt *.model);;All files (*)"
 SLIDER_STEPS = 1000
@@ -287,7 +288,12 @@ class MainWindow(QMainWindow):
         s.runProgress.connect(self._on_progress)
         s.trajectoryChanged.connect(self._on_trajectory)
         s.runFailed.connect(lambda m: self.run_status.setText("Run failed"))
-        s.add_save_hook(self.store_view_settings)
+        self._layout_timer = QTimer(self, singleShot=True, interval=LAYOUT_DELAY_MS)
+        self._layout_timer.timeout.connect(self.store_layout)
+        for dock in self.findChildren(QDockWidget):
+            for signal in (dock.dockLocationChanged, dock.visibilityChanged, dock.topLevelChanged):
+                signal.connect(self._layout_changed)
+            dock.installEventFilter(self)  # resized: written when the resizing stops
         self.guard = DocumentGuard(self)
         self.notices = Notices(self)
         QApplication.instance().focusChanged.connect(self._on_focus_changed)
@@ -594,20 +600,25 @@ class MainWindow(QMainWindow):
                     return
             w = w.parentWidget()
 
-    def store_view_settings(self) -> None:
-        """Write each view's settings and the dock layout into the session's project."""
-        from orbitdesk.app.plots import plot_tools
+    def _layout_changed(self, *_args) -> None:
+        self.store_layout()
+        self._layout_timer.start()  # and once more when the docks have settled
 
-        views = self.session.project.views
-        for name, view in self.views.items():
-            try:
-                views[view.view_id] = {**view.view_settings(), **plot_tools.settings(view)}
-            except Exception:  # noqa: BLE001 - keep what was there
-                log.exception("view %s could not report its settings", name)
-        window = {"state": bytes(self.saveState().toBase64()).decode("ascii")}
-        if self.session.trajectory is not None and np.isfinite(self.session.time_cursor):
-            window["time_cursor"] = float(self.session.time_cursor)
-        views[WINDOW_KEY] = window
+    def store_layout(self, *_args) -> None:
+        """Write the dock layout into the project (shortly after a dock moved, showed, hid or was resized;
+        each view writes its own settings as they change)."""
+        if self._sized:
+            self.session.set_view_settings(WINDOW_KEY, {"state": bytes(self.saveState().toBase64()).decode("ascii")})
+
+    def eventFilter(self, watched, event) -> bool:
+        if event.type() == QEvent.Type.Resize and isinstance(watched, QDockWidget):
+            self._layout_timer.start()
+        return super().eventFilter(watched, event)
+
+    def resizeEvent(self, event) -> None:
+        super().resizeEvent(event)
+        if hasattr(self, "_layout_timer"):
+            self._layout_timer.start()
 
     def restore_layout(self, window_settings: dict) -> bool:
         state = window_settings.get("state") if isinstance(window_settings, dict) else None

@@ -53,6 +53,7 @@ class Session(QObject):
     dirtyChanged = Signal(bool)
     projectLoaded = Signal()           # a project was opened/new; views re-read their settings
     partChanged = Signal(str)          # a project part was replaced (walkthrough, datasets, parameter_sets, views)
+    viewSettingsChanged = Signal(str)  # a view wrote its settings into the project (its id)
     stepChanged = Signal(int)          # a walkthrough step's title or note changed (its index)
     statusMessage = Signal(str)
     busyChanged = Signal(bool)         # any background job running
@@ -94,6 +95,7 @@ class Session(QObject):
         on("cycle", self.cycleChanged.emit)
         on("result", self.resultChanged.emit)
         on("part", self.partChanged.emit)
+        on("view_settings", self.viewSettingsChanged.emit)
         on("step", self.stepChanged.emit)
         on("loaded", self._validate_timer.stop)
         on("loaded", self.projectLoaded.emit)
@@ -263,7 +265,7 @@ for _name in ("param_range", "written_values", "param_vector", "initial_vector",
               "set_text", "set_param", "set_initial", "set_values", "reset_values", "set_param_range",
               "set_solver", "replace_part", "show_state", "set_time_cursor", "set_equilibria",
               "select_equilibrium", "set_cycle", "set_result", "clear_result", "result", "result_stale", "basis",
-              "note_clicked_start", "mark_dirty", "mark_saved", "add_save_hook",
+              "note_clicked_start", "mark_dirty", "mark_saved", "set_view_settings",
               "to_project"):
     setattr(Session, _name, _call(_name))
 del _name

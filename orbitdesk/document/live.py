@@ -1,8 +1,8 @@
 """The live document: one open project as it is being worked on, headless (no Qt).
 
 It holds the model text, the parsed model and compiled system, the values (parameters, initial values,
-slider ranges), the solver settings, the project's other parts (view settings, walkthrough, data sets,
-kept parameter sets) and the results that belong to the current system and values (the main run, the
+slider ranges), the solver settings, the project's other parts (view settings, written by the views as
+they change; walkthrough, data sets, kept parameter sets) and the results that belong to the current system and values (the main run, the
 equilibria with the selected one, the limit cycle) and the kept results of the analyses (sweep, Lyapunov
 spectrum, section, basins, two-parameter map: document/results.py, each once, marked stale rather than
 dropped when the values change, saved in the project file). Edits are undoable commands on ``undo``
@@ -14,6 +14,7 @@ arguments: ``text`` (text), ``parsed`` (ParsedModel), ``system`` (CompiledSystem
 ``time_cursor`` (t), ``equilibria`` (list), ``selection`` (index or None), ``cycle`` (cycle or None),
 ``result`` (kind: a kept result of that kind was set or cleared, see document/results.py),
 ``part`` (name of a project part replaced: "walkthrough", "datasets", "parameter_sets", "views"),
+``view_settings`` (a view's id: its settings in the project changed, see ``set_view_settings``),
 ``step`` (index of a walkthrough step whose title or note changed), ``loaded`` (), ``dirty`` (bool), ``message`` (plain words for a status line).
 
 The app's Session (app/session.py) is a Qt adapter over one LiveDocument (signals, timers, worker
@@ -37,6 +38,7 @@ from orbitdesk.document import project as core_project
 from orbitdesk.document.project import ParameterSetting, Project, ProjectError
 from orbitdesk.document.results import RESULTS_KEY, Basis, Results, stale_words, text_digest
 from orbitdesk.document.undo import Command, UndoStack
+from orbitdesk.document.views import WINDOW_KEY
 from orbitdesk.engine.settings import SAVED, RunSettings
 
 TEXT_MERGE_SECONDS = 2.0     # typing pauses longer than this start a new undo step
@@ -46,7 +48,7 @@ PROJECT_SUFFIXES = (".orbitdesk", ".json")
 SOLVER_FIELDS = SAVED
 PARTS = ("walkthrough", "datasets", "parameter_sets", "views")   # project parts replaced by ``replace_part``
 EVENTS = ("text", "parsed", "system", "values", "settings", "inputs", "trajectory", "time_cursor",
-          "equilibria", "selection", "cycle", "result", "part", "step", "loaded", "dirty", "message")
+          "equilibria", "selection", "cycle", "result", "part", "view_settings", "step", "loaded", "dirty", "message")
 
 
 def parse(text):
@@ -183,7 +185,6 @@ class LiveDocument:
         self.undo = UndoStack()
         self.system_signature = None
         self._listeners: dict[str, list] = {e: [] for e in EVENTS}
-        self._save_hooks: list = []
         self._written_params: dict[str, float] = {}
         self._written_ranges: dict[str, tuple] = {}
         self._written_initial: dict[str, float] = {}
@@ -345,6 +346,16 @@ class LiveDocument:
 
         old, new = copy.deepcopy(old), copy.deepcopy(new)
         self.undo.push(_Swap(label, apply, old, new))
+
+    def set_view_settings(self, view_id: str, settings: dict) -> None:
+        """A view's settings as they are now, written by the view whenever they change, so that the project
+        is always current (the walkthrough, the exports, a save and an autosave read it). Not an undo step and
+        not an unsaved change by itself: how a view is set up is no edit of the model (a walkthrough's own
+        steps keep the settings a step shows)."""
+        settings = copy.deepcopy(settings)
+        if self.project.views.get(view_id) != settings:
+            self.project.views[view_id] = settings
+            self.emit("view_settings", view_id)
 
     def set_step_text(self, index: int, field: str, text: str) -> None:
         """A walkthrough step's ``title`` or ``note`` (undoable, typing merges)."""
@@ -552,18 +563,19 @@ class LiveDocument:
         self.emit("inputs")
 
     # ------------------------------------------------------------ the project
-    def add_save_hook(self, fn) -> None:
-        """``fn()`` runs before the document is turned into a Project (views write their settings)."""
-        self._save_hooks.append(fn)
-
     def to_project(self) -> Project:
-        for hook in list(self._save_hooks):
-            hook()
+        """The project as it is now: the views write their settings into it as they change
+        (``set_view_settings``), the results and the time cursor are added here."""
         proj = copy.deepcopy(self.project)
         proj.model = self.text
         proj.parameters = {n: ParameterSetting(v, *self.param_range(n)) for n, v in self.params.items()}
         proj.initial = dict(self.initial)
         proj.solver = copy.copy(self.solver)
+        window = {k: v for k, v in (proj.views.get(WINDOW_KEY) or {}).items() if k != "time_cursor"}
+        if self.trajectory is not None and math.isfinite(self.time_cursor):
+            window["time_cursor"] = float(self.time_cursor)
+        if window:
+            proj.views[WINDOW_KEY] = window
         results = self.results.to_json()
         proj.views.pop(RESULTS_KEY, None)
         if results:

@@ -26,6 +26,8 @@ class ViewInfo:
         return VIEW_SETTINGS[self.id]
 
 
+WINDOW_KEY = "_window"   # in Project.views: the window's dock layout ("state") and the time cursor
+
 VIEWS: tuple[ViewInfo, ...] = (
     ViewInfo("timeseries", "Time series", "timeseries", shown_at_start=True),
     ViewInfo("phase_plane", "Phase plane", "phase_plane", shown_at_start=True),

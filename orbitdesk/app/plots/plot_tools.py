@@ -247,6 +247,8 @@ def set_axis_names(view, names) -> None:
             quantity = getattr(axis, "_quantity", None)
             if isinstance(quantity, str) and quantity:
                 axis.setLabel(quantity)
+    if hasattr(view, "settings_changed"):
+        view.settings_changed()  # the names are kept in the view's settings
 
 
 def edit_axis_names(view, parent=None) -> bool:

@@ -322,6 +322,7 @@ class BifurcationView(SessionView):
         self._redraw()
         self.resultChanged.emit()
         self.session.mark_dirty()  # the branches are kept in the project
+        self.settings_changed()
 
     def values_now(self, skip=None):
         """Branches do not depend on the initial state (it only picks where the search starts), so a

@@ -4,20 +4,24 @@ views that draw trajectories."""
 
 from __future__ import annotations
 
+import logging
 import math
 from contextlib import contextmanager
 
 import numpy as np
 from PySide6.QtCore import QEvent, Qt, QTimer
-from PySide6.QtWidgets import (QAbstractButton, QCheckBox, QComboBox, QFrame, QHBoxLayout, QLabel, QPushButton,
-                               QSizePolicy, QVBoxLayout, QWidget)
+from PySide6.QtWidgets import (QAbstractButton, QAbstractSpinBox, QCheckBox, QComboBox, QDoubleSpinBox, QFrame,
+                               QHBoxLayout, QLabel, QLineEdit, QListWidget, QPushButton, QSizePolicy, QSpinBox, QTableWidget,
+                               QVBoxLayout, QWidget)
 
 from orbitdesk.document.results import stale_words
 from orbitdesk.document.view_settings import clean_settings
 
 from orbitdesk.app.plots.plot_style import hint_label, orbit_middle
 
+log = logging.getLogger("orbitdesk.app.views")
 DIRECTION_LABELS = ("upward", "downward", "both ways")
+SETTINGS_DELAY_MS = 150   # a view's settings go into the document again this long after its last change
 # views whose analyses assume determinism: with a model that has noise they say they use its noise-free part
 NOISE_FREE_VIEWS = frozenset({"equilibria", "cycles", "sections", "sweep", "lyapunov", "bifurcation",
                               "parameter_map", "basins"})
@@ -75,6 +79,8 @@ class SessionView(QWidget):
         self._computing_for = None
         self._computed_for = None
         self._fit_pending = False
+        self._settings_timer = None
+        self._caught_up_with = None   # the project whose system (and saved settings) the view has taken in
         self.stale_bar = StaleBar(self.recompute)
 
     def follow_session(self, values=None, settings=None, trajectory=None, cursor=None) -> None:
@@ -82,6 +88,7 @@ class SessionView(QWidget):
         holds now: the saved view settings, the system and (with ``trajectory``) the current run."""
         s = self.session
         s.systemChanged.connect(self._on_system)
+        s.systemChanged.connect(lambda _system: setattr(self, "_caught_up_with", s.doc.project))
         if trajectory is not None:
             trajectory = self._fitting_after(trajectory)
         for signal, handler in ((s.valuesChanged, values), (s.settingsChanged, settings),
@@ -89,6 +96,7 @@ class SessionView(QWidget):
             if handler is not None:
                 signal.connect(handler)
         s.projectLoaded.connect(self._on_project_loaded)
+        self._watch_settings()
         if self.result_kind is not None:
             s.resultChanged.connect(self._on_result_changed)
         for signal in (s.valuesChanged, s.settingsChanged, s.systemChanged):
@@ -96,8 +104,52 @@ class SessionView(QWidget):
         self._on_project_loaded()
         if s.system is not None:
             self._on_system(s.system)
+            self._caught_up_with = s.doc.project
         if trajectory is not None and s.trajectory is not None:
             trajectory(s.trajectory)
+
+    # ------------------------------------------------------------ settings written into the document
+    def _watch_settings(self) -> None:
+        """Write this view's settings into the document whenever any of its controls changes or a plot's
+        range moves (views with state no control holds call ``settings_changed()`` themselves)."""
+        self._settings_timer = QTimer(self, singleShot=True, interval=SETTINGS_DELAY_MS)
+        self._settings_timer.timeout.connect(self.store_settings)
+        self.session.projectLoaded.connect(self._settings_timer.stop)  # nothing of the project before
+        for widget in self.findChildren(QWidget):
+            signal = _change_signal(widget)
+            if signal is not None:
+                signal.connect(self.settings_changed)
+        import pyqtgraph as pg
+
+        for plot in self.findChildren(pg.PlotWidget):
+            plot.getViewBox().sigRangeChanged.connect(self.settings_changed)
+
+    def settings_changed(self, *_args) -> None:
+        """Something this view saves changed: its settings go into the document now, and once more when
+        the view has settled (a change that sets several controls in turn ends with all of them)."""
+        if self._settings_timer is not None:
+            if self._caught_up():
+                self.store_settings()
+            self._settings_timer.start()
+
+    def _caught_up(self) -> bool:
+        """The view shows the open project (while another one is being opened, what it shows still
+        belongs to the one before, whose settings must not go into the new one)."""
+        return self._caught_up_with is not None and self._caught_up_with is self.session.doc.project
+
+    def store_settings(self) -> None:
+        """This view's settings (and the axis names given on its plots) into the live document now; not
+        before the view has caught up with an opened project (its saved settings are still to apply)."""
+        if not self._caught_up():
+            return
+        from orbitdesk.app.plots import plot_tools
+
+        try:
+            settings = {**self.view_settings(), **plot_tools.settings(self)}
+        except Exception:  # noqa: BLE001 - the project keeps what it had
+            log.exception("view %s could not report its settings", self.view_id)
+            return
+        self.session.set_view_settings(self.view_id, settings)
 
     def _fitting_after(self, handler):
         def on_trajectory(trajectory):
@@ -263,6 +315,23 @@ class SessionView(QWidget):
 
     def _on_system(self, system) -> None:
         raise NotImplementedError
+
+
+def _change_signal(widget):
+    """The signal a control emits when the user changes it (None: not a control that holds a setting)."""
+    if isinstance(widget, QComboBox):
+        return widget.currentIndexChanged
+    if isinstance(widget, QAbstractButton):
+        return widget.toggled if widget.isCheckable() else None
+    if isinstance(widget, (QSpinBox, QDoubleSpinBox)):
+        return widget.valueChanged
+    if isinstance(widget, QLineEdit) and not isinstance(widget.parent(), (QAbstractSpinBox, QComboBox)):
+        return widget.textChanged
+    if isinstance(widget, QListWidget):
+        return widget.itemChanged      # ticked entries
+    if isinstance(widget, QTableWidget):
+        return widget.itemSelectionChanged
+    return None
 
 
 # ---------------------------------------------------------------- controls

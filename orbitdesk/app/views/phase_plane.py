@@ -139,6 +139,8 @@ class PhasePlaneView(SessionView):
         if self._fitted is False and self.trajectory is not None:
             (x0, x1), (y0, y1) = self.plot.getViewBox().viewRange()
             d["range"] = [[x0, x1], [y0, y1]]
+        elif self._fitted is False and self.saved_view_settings().get("range"):
+            d["range"] = self.saved_view_settings()["range"]  # the project's zoom, until the run is drawn
         return d
 
     def apply_view_settings(self, d: dict) -> None:
@@ -189,6 +191,7 @@ class PhasePlaneView(SessionView):
                 combo.setCurrentIndex(i)
                 combo.blockSignals(False)
             self._on_axes()
+            self.settings_changed()
 
     def start_trajectory(self, x: float, y: float, both: bool | None = None) -> bool:
         """Start a trajectory at the point (x, y) of the plane (other states at their initial values)."""
@@ -206,6 +209,7 @@ class PhasePlaneView(SessionView):
         seed = {"u0": [float(v) for v in u0], "both": bool(self.backward.isChecked() if both is None else both)}
         self.seeds.append(seed)
         self.seed_runs.append((None, None))
+        self.settings_changed()
         index = len(self.seeds) - 1
         self.session.run_job(f"phase_plane.seed.{id(seed)}", self._seed_job([seed]),
                              lambda runs: self._seed_done(index, seed, runs[0]))
@@ -223,6 +227,7 @@ class PhasePlaneView(SessionView):
 
     def clear_seeds(self) -> None:
         self.seeds, self.seed_runs = [], []
+        self.settings_changed()
         self.session.cancel_job("phase_plane.seeds")
         self._draw_seeds()
 

@@ -279,6 +279,7 @@ class PhaseSpace3DView(SessionView):
             self.added_runs.append(None)
         del self.added[:-MAX_ADDED]
         del self.added_runs[:-MAX_ADDED]
+        self.settings_changed()
         self._run_added()
 
     def keep_current_start(self) -> None:
@@ -288,6 +289,7 @@ class PhaseSpace3DView(SessionView):
 
     def clear_extra(self) -> None:
         self.added, self.added_runs, self.spread_runs = [], [], []
+        self.settings_changed()
         self.session.cancel_job("phase_space_3d.added")
         if self.spread_box.isChecked():
             self.spread_box.setChecked(False)  # cancels the spread job too
@@ -510,6 +512,8 @@ class PhaseSpace3DView(SessionView):
             self._moving = moving
             self.glview.set_moving(moving)
             self._show_main()
+            if not moving:
+                self.settings_changed()  # the camera came to rest
 
     def eventFilter(self, obj, event) -> bool:
         kind = event.type()

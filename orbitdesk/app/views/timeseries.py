@@ -156,6 +156,7 @@ class TimeSeriesView(SessionView):
     def set_series(self, names: list[str]) -> None:
         """Tick exactly these series."""
         self._set_checked(names)
+        self.settings_changed()
 
     def _set_checked(self, names) -> None:
         self.series_list.blockSignals(True)
