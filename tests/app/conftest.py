@@ -129,11 +129,8 @@ def show_view(qtbot, view, size):
 
 
 def open_view(qtbot, session, module, size=(800, 600)):
-    """A view of ``module`` (views.VIEW_MODULES) on ``session``, shown at ``size``."""
+    """A view of ``module`` (the registry, document/views.py) on ``session``, shown at ``size`` and on screen:
+    the one set-up of the view tests (each test module names its view and size once)."""
     from orbitdesk.app import views as views_pkg
 
-    view = views_pkg.load_view_class(module)(session)
-    qtbot.addWidget(view)
-    view.resize(*size)
-    view.show()
-    return view
+    return show_view(qtbot, views_pkg.load_view_class(module)(session), size)

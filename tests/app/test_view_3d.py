@@ -4,20 +4,9 @@ import os
 
 import numpy as np
 
+from orbitdesk.samples.models import LORENZ  # sigma = 10, r = 28, beta = 8/3, starting at (1, 1, 1)
 
-from .conftest import load_model, wait_for_trajectory
-
-LORENZ = """# Lorenz equations
-sigma = 10
-r = 28
-beta = 8/3
-x' = sigma*(y - x)
-y' = x*(r - z) - y
-z' = x*y - beta*z
-x(0) = 1
-y(0) = 1
-z(0) = 1
-"""
+from .conftest import load_model, open_view, wait_for_trajectory
 
 
 def load(qtbot, session, text, **solver):
@@ -25,14 +14,7 @@ def load(qtbot, session, text, **solver):
 
 
 def make_view(qtbot, session, size=(760, 560)):
-    from orbitdesk.app.views.phase_space_3d import PhaseSpace3DView
-
-    view = PhaseSpace3DView(session)
-    qtbot.addWidget(view)
-    view.resize(*size)
-    view.show()
-    qtbot.waitExposed(view)
-    return view
+    return open_view(qtbot, session, "phase_space_3d", size)
 
 
 def frame(qtbot, view):

@@ -4,7 +4,7 @@ click on a row sets the parameter and state, results kept in the view's settings
 import numpy as np
 import pytest
 
-from .conftest import load_model, show_view
+from .conftest import load_model, open_view
 
 BRUSSELATOR = "a = 1.5\nb = 2 in [0, 5]\nx' = a - (b + 1)*x + x^2*y\ny' = b*x - x^2*y\nx(0) = 1\ny(0) = 1\n"
 DUFFING = ("c = 0.05\nb = 0.1\nF = 0.1\nw = 1.0 in [0.8, 1.4]\nx'' = -c*x' - x - b*x^3 + F*cos(w*t)\n"
@@ -12,9 +12,7 @@ DUFFING = ("c = 0.05\nb = 0.1\nF = 0.1\nw = 1.0 in [0.8, 1.4]\nx'' = -c*x' - x -
 
 
 def make_view(qtbot, session):
-    from orbitdesk.app.views.bifurcation import BifurcationView
-
-    return show_view(qtbot, BifurcationView(session), (1000, 640))
+    return open_view(qtbot, session, "bifurcation", (1000, 640))
 
 
 def compute(qtbot, view, timeout=120000):

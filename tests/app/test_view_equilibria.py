@@ -6,20 +6,11 @@ import os
 import numpy as np
 import pytest
 
+from orbitdesk.samples.models import LORENZ_REF, model
 
-from .conftest import load_model
+from .conftest import load_model, open_view
 
-LORENZ = """# Lorenz equations
-sigma = 10
-r = 28 in [0, 200]
-beta = 8/3
-x' = sigma*(y - x)
-y' = x*(r - z) - y
-z' = x*y - beta*z
-x(0) = 1
-y(0) = 1
-z(0) = 1
-"""
+LORENZ = model(LORENZ_REF, ranges={"r": (0, 200)})
 
 SADDLE_2D = """x' = y
 y' = x - x^3
@@ -32,13 +23,7 @@ def load(qtbot, session, text, **solver):
 
 
 def make_view(qtbot, session):
-    from orbitdesk.app.views.equilibria import EquilibriaView
-
-    view = EquilibriaView(session)
-    qtbot.addWidget(view)
-    view.resize(820, 560)
-    view.show()
-    return view
+    return open_view(qtbot, session, "equilibria", (820, 560))
 
 
 def wait_found(qtbot, view, action=None):

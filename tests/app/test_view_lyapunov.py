@@ -8,7 +8,7 @@ import pytest
 
 from orbitdesk.samples.models import HENON_REF, LORENZ, model
 
-from .conftest import load_model, wait_for_trajectory
+from .conftest import load_model, open_view, wait_for_trajectory
 
 
 HENON = model(HENON_REF, initial={'y[0]': 0})
@@ -24,13 +24,7 @@ def load(qtbot, session, text, **solver):
 
 
 def make_view(qtbot, session):
-    from orbitdesk.app.views.lyapunov import LyapunovView
-
-    view = LyapunovView(session)
-    qtbot.addWidget(view)
-    view.resize(900, 460)
-    view.show()
-    return view
+    return open_view(qtbot, session, "lyapunov", (900, 460))
 
 
 def compute(qtbot, view, timeout=60000):

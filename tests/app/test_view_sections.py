@@ -8,7 +8,7 @@ import pytest
 
 from orbitdesk.samples.models import HENON_REF, model
 
-from .conftest import load_model
+from .conftest import load_model, open_view
 
 # x'' + 2 zeta x' + x = cos(w t), written as a first-order model
 FORCED_LINEAR = """zeta = 0.1
@@ -47,13 +47,7 @@ def load(qtbot, session, text, **solver):
 
 
 def make_view(qtbot, session):
-    from orbitdesk.app.views.sections import SectionsView
-
-    view = SectionsView(session)
-    qtbot.addWidget(view)
-    view.resize(980, 520)
-    view.show()
-    return view
+    return open_view(qtbot, session, "sections", (980, 520))
 
 
 def wait_section(qtbot, view, action=None, timeout=30000):

@@ -10,7 +10,7 @@ from PySide6.QtWidgets import QApplication
 
 from orbitdesk.samples.models import LOGISTIC_REF, LORENZ_REF, model
 
-from .conftest import load_model, wait_for_trajectory
+from .conftest import load_model, open_view, wait_for_trajectory
 
 LOGISTIC = model(LOGISTIC_REF, r=3.5, ranges={'r': (2.5, 4)}, initial={'x[0]': 0.3})
 
@@ -30,14 +30,7 @@ def load(qtbot, session, text, **solver):
 
 
 def make_view(qtbot, session):
-    from orbitdesk.app.views.sweep import SweepView
-
-    view = SweepView(session)
-    qtbot.addWidget(view)
-    view.resize(1100, 600)
-    view.show()
-    qtbot.waitExposed(view)
-    return view
+    return open_view(qtbot, session, "sweep", (1100, 600))
 
 
 def run_sweep(qtbot, view, timeout=30000):
