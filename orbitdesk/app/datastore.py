@@ -3,7 +3,8 @@
 ``data_store(session)`` returns the store, created on first use. Data sets live in
 ``session.project.datasets`` (saved with the project); adding, removing and editing them, applying
 fitted values and keeping them as a named parameter set are undoable commands of the live document.
-The latest fit result and the residuals on screen are not saved.
+The latest fit result is the live document's result of kind "fit" (document/results.py: stale when the
+values change; not written into the file); the residuals on screen are not kept.
 """
 
 from __future__ import annotations
@@ -22,13 +23,13 @@ class DataStore(QObject):
     def __init__(self, session):
         super().__init__(session)
         self.session = session
-        self.result = None
         self.residuals: dict[str, dict] = {}   # data set name -> {quantity: model value at each sample}
         self.show_residuals = False
         session.projectLoaded.connect(self._on_project_loaded)
         session.systemChanged.connect(lambda _s: self.clear_residuals())
         session.valuesChanged.connect(self.clear_residuals)
         session.partChanged.connect(self._on_part_changed)
+        session.resultChanged.connect(lambda kind: self.resultChanged.emit(self.result) if kind == "fit" else None)
 
     # ------------------------------------------------------------ reading
     @property
@@ -79,10 +80,14 @@ class DataStore(QObject):
             self.residuals = {k: v for k, v in self.residuals.items() if k in names}
         self.changed.emit()
 
-    # ------------------------------------------------------------ results (not saved)
+    # ------------------------------------------------------------ the fit result (the document's)
+    @property
+    def result(self):
+        """The latest FitResult (None: none), kept once in the live document."""
+        return self.session.doc.result("fit")
+
     def set_result(self, result) -> None:
-        self.result = result
-        self.resultChanged.emit(result)
+        self.session.set_result("fit", result)
 
     def set_residuals(self, residuals: dict) -> None:
         self.residuals = dict(residuals)
@@ -95,8 +100,7 @@ class DataStore(QObject):
             self.changed.emit()
 
     def _on_project_loaded(self) -> None:
-        self.residuals, self.show_residuals = {}, False
-        self.set_result(None)
+        self.residuals, self.show_residuals = {}, False   # (the document dropped the fit of the project before)
         self.changed.emit()
 
 

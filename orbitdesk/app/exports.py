@@ -127,7 +127,7 @@ def report_html(window, equilibria=None) -> str:
     project = session.to_project()
     if equilibria is None:
         equilibria = _view_equilibria(window, system)
-    fit = getattr(getattr(session, "_data_store", None), "result", None)  # the Fit panel's latest result
+    fit = session.doc.result("fit")  # the Fit panel's latest result
     results, stale = document_results(session.doc)
     return render_report(project, system, view_figures(window), equilibria=equilibria, results=results, fit=fit,
                          stale=stale)

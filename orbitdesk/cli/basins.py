@@ -2,21 +2,19 @@
 each labelled by the attractor it reaches (-1: escape), as JSON or CSV; ``--strobe T`` for the
 stroboscopic basins of a forced flow."""
 
-import numpy as np
 
 from orbitdesk.analyses.basins import BasinSettings, basins
 from orbitdesk.engine.progress import Cancelled
 from orbitdesk.system.compiled_system import MAP
 
-from orbitdesk.cli.common import (add_outputs, CommandError, open_model, parse_axis, parse_number,
-                                  parse_positive, print_json, stderr_progress, write_csv)
+from orbitdesk.cli.common import (add_grid_axes, add_outputs, CommandError, grid_axes, open_model, parse_number,
+                                  parse_positive, stderr_progress, write_grid)
 
 
 def register(sub):
     parser = sub.add_parser("basins", help="basins of attraction: which attractor each start in a grid reaches")
     parser.add_argument("path")
-    parser.add_argument("--x", required=True, metavar="STATE=LO:HI:N", help="the state across, N starts")
-    parser.add_argument("--y", required=True, metavar="STATE=LO:HI:N", help="the state up, N starts")
+    add_grid_axes(parser, "state", "starts")
     parser.add_argument("--transient", metavar="T", help="time (flows) or iterations (maps) before looking")
     parser.add_argument("--samples", type=int, metavar="K", help="states looked at per start (default 48)")
     parser.add_argument("--every", metavar="T", help="time or iterations between them (flows without --strobe)")
@@ -24,13 +22,12 @@ def register(sub):
     parser.add_argument("--dt", metavar="H", help="integration step of flows")
     parser.add_argument("--escape", metavar="R", help="|state| beyond this counts as escape (default 1000)")
     add_outputs(parser, run, "print the basins as JSON (the default)",
-                csv_help="write one row per start: x, y, attractor (-1 escape)")
+                csv_help="write one row per start: x, y, attractor (-1: escape)")
 
 
 def run(args) -> int:
     source, system, p, u0 = open_model(args)
-    x_name, xs = parse_axis(args.x, "--x", system.states, "state")
-    y_name, ys = parse_axis(args.y, "--y", system.states, "state")
+    x_name, xs, y_name, ys = grid_axes(args, system.states, "state")
     settings = BasinSettings()
     if args.transient is not None:
         settings.transient = parse_number(args.transient, "--transient")
@@ -52,9 +49,5 @@ def run(args) -> int:
         raise CommandError(str(err)) from None
     except Cancelled:
         raise CommandError("cancelled") from None
-    if args.csv:
-        gx, gy = np.meshgrid(xs, ys)
-        write_csv(args.csv, [x_name, y_name, "attractor"], [gx.ravel(), gy.ravel(), result.labels.ravel()])
-    if args.json or not args.csv:
-        print_json(result.to_dict())
+    write_grid(args, result, result.to_dict())
     return 0

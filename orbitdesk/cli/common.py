@@ -178,6 +178,40 @@ def parse_axis(text: str, option: str, names, what: str):
     return name, np.linspace(lo, hi, count)
 
 
+MAX_GRID_POINTS = 1_000_000   # points of a grid command (basins, grid)
+
+
+def add_grid_axes(parser, noun: str, unit: str) -> None:
+    """``--x NAME=LO:HI:N`` and ``--y NAME=LO:HI:N``: the two axes of a grid command (``noun``: state or
+    parameter; ``unit``: what the N counts)."""
+    for option, where in (("--x", "across"), ("--y", "up")):
+        parser.add_argument(option, required=True, metavar=f"{noun.upper()}=LO:HI:N",
+                            help=f"the {noun} {where}, N {unit}")
+
+
+def grid_axes(args, names, noun: str):
+    """(x name, x values, y name, y values) of ``--x`` and ``--y``: two different ``names``, at most
+    MAX_GRID_POINTS points."""
+    x_name, xs = parse_axis(args.x, "--x", names, noun)
+    y_name, ys = parse_axis(args.y, "--y", names, noun)
+    if x_name == y_name:
+        raise CommandError(f"--x and --y need two different {noun}s")
+    if xs.size * ys.size > MAX_GRID_POINTS:
+        raise CommandError(f"the grid has {xs.size * ys.size:,} points; the limit is {MAX_GRID_POINTS:,}")
+    return x_name, xs, y_name, ys
+
+
+def write_grid(args, result, data: dict) -> None:
+    """A grid command's output: the CSV table of ``--csv`` (one row per grid point,
+    exports/csv_table.grid_table, as the window's data export) and/or ``data`` as JSON."""
+    if args.csv:
+        from orbitdesk.exports.csv_table import grid_table
+
+        write_csv(args.csv, *grid_table(result))
+    if args.json or not args.csv:
+        print_json(data)
+
+
 def add_method_option(parser):
     """``--method``: the integration method of an analysis (default: the default method, or the stiff one
     when a probe run shows the system stiff)."""

@@ -1,24 +1,20 @@
 """``orbitdesk grid PATH --x NAME=LO:HI:N --y NAME=LO:HI:N (--lyapunov | --period)``: a two-parameter map of
 the largest Lyapunov exponent or of the period of the attractor, as JSON or CSV (one row per grid point)."""
 
-import numpy as np
 
 from orbitdesk.analyses.parameter_maps import period_grid
 from orbitdesk.engine.progress import Cancelled
 from orbitdesk.analyses.sweep import MAXIMA, STROBE, GridSettings, SweepSettings, lyapunov_grid
 from orbitdesk.system.compiled_system import MAP
 
-from orbitdesk.cli.common import (add_outputs, CommandError, open_model, parse_axis, parse_number,
-                                  parse_positive, print_json, stderr_progress, write_csv)
-
-MAX_POINTS = 1_000_000
+from orbitdesk.cli.common import (add_grid_axes, add_outputs, CommandError, grid_axes, open_model, parse_number,
+                                  parse_positive, stderr_progress, write_grid)
 
 
 def register(sub):
     parser = sub.add_parser("grid", help="two-parameter map of the largest Lyapunov exponent or of the period")
     parser.add_argument("path")
-    parser.add_argument("--x", required=True, metavar="NAME=LO:HI:N", help="the parameter across, N values")
-    parser.add_argument("--y", required=True, metavar="NAME=LO:HI:N", help="the parameter up, N values")
+    add_grid_axes(parser, "parameter", "values")
     what = parser.add_mutually_exclusive_group(required=True)
     what.add_argument("--lyapunov", action="store_true", help="the largest Lyapunov exponent at each point")
     what.add_argument("--period", action="store_true",
@@ -35,12 +31,7 @@ def register(sub):
 
 def run(args) -> int:
     source, system, p, u0 = open_model(args)
-    x_name, xs = parse_axis(args.x, "--x", system.parameters, "parameter")
-    y_name, ys = parse_axis(args.y, "--y", system.parameters, "parameter")
-    if x_name == y_name:
-        raise CommandError("--x and --y need two different parameters")
-    if xs.size * ys.size > MAX_POINTS:
-        raise CommandError(f"the grid has {xs.size * ys.size:,} points; the limit is {MAX_POINTS:,}")
+    x_name, xs, y_name, ys = grid_axes(args, system.parameters, "parameter")
     transient = parse_number(args.transient, "--transient") if args.transient is not None else None
     if transient is not None and transient < 0:
         raise CommandError("--transient must be zero or positive")
@@ -57,7 +48,7 @@ def run(args) -> int:
             if args.dt is not None:
                 settings.dt = parse_positive(args.dt, "--dt")
             grid = lyapunov_grid(system, x_name, xs, y_name, ys, settings, u0=u0, p=p, progress=progress)
-            values, label, data = grid.exponent, "largest Lyapunov exponent", grid.to_dict()
+            data = grid.to_dict()
         else:
             if args.duration is not None:
                 raise CommandError("--duration goes with --lyapunov")
@@ -78,18 +69,10 @@ def run(args) -> int:
                 settings.dt = parse_positive(args.dt, "--dt")
             grid = period_grid(system, x_name, xs, y_name, ys, settings, max_period=args.max_period, u0=u0, p=p,
                                progress=progress)
-            values, label, data = grid.period, f"period ({grid.unit})", grid.to_dict()
+            data = grid.to_dict()
     except ValueError as err:
         raise CommandError(str(err)) from None
     except Cancelled:
         raise CommandError("cancelled") from None
-    if args.csv:
-        gx, gy = np.meshgrid(xs, ys)
-        header, columns = [x_name, y_name, label], [gx.ravel(), gy.ravel(), np.asarray(values, float).ravel()]
-        if getattr(grid, "time_period", None) is not None:
-            header.append("period in time")
-            columns.append(np.asarray(grid.time_period, float).ravel())
-        write_csv(args.csv, header, columns)
-    if args.json or not args.csv:
-        print_json(data)
+    write_grid(args, grid, data)
     return 0

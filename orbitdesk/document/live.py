@@ -2,11 +2,12 @@
 
 It holds the model text, the parsed model and compiled system, the values (parameters, initial values,
 slider ranges), the solver settings, the project's other parts (view settings, written by the views as
-they change; walkthrough, data sets, kept parameter sets) and the results that belong to the current system and values (the main run, the
-equilibria with the selected one, the limit cycle) and the kept results of the analyses (sweep, Lyapunov
-spectrum, section, basins, two-parameter map: document/results.py, each once, marked stale rather than
-dropped when the values change, saved in the project file). Edits are undoable commands on ``undo``
-(document/undo.py); the run, the equilibria and the cycle are cleared when the model or the values change.
+they change; walkthrough, data sets, kept parameter sets), the main run and the limit cycle of the
+current system and values, the equilibria with the selected one and the values they were found for, and
+the kept results of the analyses (sweep, Lyapunov spectrum, section, basins, two-parameter map:
+document/results.py, each once, marked stale rather than dropped when the values change, saved in the
+project file). Edits are undoable commands on ``undo`` (document/undo.py); the run and the cycle are
+cleared when the model or the values change, the equilibria when the model changes.
 
 Every change is announced to plain Python callbacks: ``doc.subscribe(event, fn)``. Events and their
 arguments: ``text`` (text), ``parsed`` (ParsedModel), ``system`` (CompiledSystem), ``values`` (),
@@ -437,7 +438,7 @@ class LiveDocument:
         """What a result computed now is computed for: the values, the model of the system in use and
         (``solver``) the solver settings; ``skip``: parameters the result runs over."""
         skip = (skip,) if isinstance(skip, str) else tuple(skip or ())
-        model = text_digest(self.system.model.text) if self.system is not None else None
+        model = text_digest(self.system.model.text if self.system is not None else self.text)  # (not compiled yet)
         return Basis(dict(self.params), dict(self.initial), model,
                      _listed(dataclasses.astuple(self.solver)) if solver else None, skip)
 

@@ -34,7 +34,9 @@ KINDS = {
     "lyapunov": (("orbitdesk.analyses.lyapunov", "LyapunovResult"),),
     "sections": (("orbitdesk.analyses.sections", "SectionResult"),),
     "basins": (("orbitdesk.analyses.basins", "BasinResult"),),
-    "parameter_map": (("orbitdesk.analyses.parameter_maps", "PeriodGrid"), ("orbitdesk.analyses.sweep", "LyapunovGrid")),
+    "parameter_map": (("orbitdesk.analyses.parameter_maps", "PeriodGrid"),
+                      ("orbitdesk.analyses.sweep", "LyapunovGrid")),
+    "fit": (("orbitdesk.analyses.fitting", "FitResult"),),   # kept while open; its records are not file data
 }
 
 
@@ -124,8 +126,9 @@ def stale_words(then: Basis | None, now: Basis | None) -> str:
 
 @dataclasses.dataclass
 class Kept:
-    value: object   # the core result dataclass
+    value: object   # the core result dataclass (None until first read: ``data`` holds the file's form)
     basis: Basis
+    data: dict | None = None   # {"class", "data"} as read from a project file, rebuilt on first read
 
 
 class Results:
@@ -137,7 +140,17 @@ class Results:
         self._foreign: dict = {}   # results of kinds this version does not know, kept as they were in the file
 
     def get(self, kind: str):
+        """The result of ``kind``; one read from a file is rebuilt here, on first use (so that opening a
+        project imports no analysis module), and dropped if it does not fit its class."""
         kept = self._kept.get(kind)
+        if kept is not None and kept.value is None:
+            name = kept.data.get("class")
+            cls = result_class(kind, name if isinstance(name, str) else None)
+            kept.value = None if cls is None else unpack(cls, kept.data.get("data"))
+            kept.data = None
+            if kept.value is None:
+                del self._kept[kind]
+                return None
         return None if kept is None else kept.value
 
     def basis(self, kind: str) -> Basis | None:
@@ -165,6 +178,9 @@ class Results:
         """Every result small enough to keep, as plain data for the project file."""
         out = dict(self._foreign)
         for kind, kept in self._kept.items():
+            if kept.value is None:   # read from the file and not used since: written back as it was
+                out[kind] = {"for": kept.basis.to_json(), **kept.data}
+                continue
             data = pack(kept.value)
             if data is not None:
                 out[kind] = {"for": kept.basis.to_json(), "class": type(kept.value).__name__, "data": data}
@@ -185,11 +201,8 @@ class Results:
                 continue
             if "skip" in d and not d["for"].get("skip"):   # files of earlier versions kept skip beside "for"
                 basis = Basis.from_json({**d["for"], "skip": d["skip"]}) or basis
-            name = d.get("class")
-            cls = result_class(kind, name if isinstance(name, str) else None)
-            value = None if cls is None else unpack(cls, d.get("data"))
-            if value is not None:
-                self._kept[kind] = Kept(value, basis)
+            if isinstance(d.get("data"), dict):
+                self._kept[kind] = Kept(None, basis, {"class": d.get("class"), "data": d["data"]})
         return list(self._kept)
 
 

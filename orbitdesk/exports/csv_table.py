@@ -15,6 +15,8 @@ import csv
 import io
 from typing import Iterable, Sequence
 
+import numpy as np
+
 from orbitdesk.document.safe_files import atomic_write
 
 FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
@@ -40,4 +42,24 @@ def write_csv(path, header: Sequence, rows: Iterable[Sequence]) -> None:
     atomic_write(str(path), buffer.getvalue().encode("utf-8"), None)
 
 
-__all__ = ["FORMULA_STARTS", "number_cell", "text_cell", "write_csv"]
+def grid_table(result) -> tuple[list[str], list]:
+    """A grid result (basins, a two-parameter map of the exponent or the period) as one row per grid point:
+    (header, columns) with the two axes' values first, then what was found there (the basins' attractor,
+    -1 for escape; the exponent; the period and, for autonomous flows, the period in time)."""
+    gx, gy = np.meshgrid(result.xs, result.ys)
+    header, columns = [result.x_name, result.y_name], [gx.ravel(), gy.ravel()]
+    if hasattr(result, "labels"):
+        named = {"attractor (-1: escape)": result.labels}
+    elif hasattr(result, "exponent"):
+        named = {"largest Lyapunov exponent": result.exponent}
+    else:
+        named = {f"period ({result.unit})": result.period}
+        if getattr(result, "time_period", None) is not None:
+            named["period in time"] = result.time_period
+    for name, values in named.items():
+        header.append(name)
+        columns.append(np.asarray(values, dtype=float).ravel())
+    return header, columns
+
+
+__all__ = ["FORMULA_STARTS", "grid_table", "number_cell", "text_cell", "write_csv"]

@@ -232,13 +232,14 @@ def _results_html(results: dict, system, stale: dict | None = None) -> list[str]
         if result is None:
             continue
         out.append(f"<h3>{heading}</h3>")
+        if (stale or {}).get(key):
+            out.append(f'<p class="muted">{_e(stale[key])}: these numbers belong to those values, not to the '
+                       f'parameters above.</p>')
         out.append(_table(None, rows_of(result), numeric=(1,)))
         notes = list(getattr(result, "warnings", []) or [])
         status = getattr(result, "status", "ok")  # (a sweep has one per value)
         if isinstance(status, str) and status != "ok" and getattr(result, "message", ""):
             notes.insert(0, result.message)
-        if (stale or {}).get(key):
-            notes.insert(0, f"{stale[key]}: not the values above")
         out.extend(f'<p class="muted">{_e(note)}</p>' for note in notes)
     if out:
         out.insert(0, "<h2>Computed results</h2>")

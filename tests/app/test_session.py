@@ -129,6 +129,7 @@ def test_project_round_trip_keeps_everything(qtbot, session, tmp_path):
     assert session.param_range("k") == (0.1, 3.0)
     path = session.save(tmp_path / "decay.orbitdesk")
     again = core_project.load(path)
+    assert again.views.pop("_window") == {"time_cursor": 3.0}  # the cursor, at the run's end, goes in too
     assert again == proj
     assert not session.dirty and session.path == path
 

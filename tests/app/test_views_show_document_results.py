@@ -56,5 +56,5 @@ def test_the_report_gives_the_numbers_of_the_documents_results_and_says_when_the
         session.set_param("r", 3.9)
     results, stale = document_results(session.doc)
     html = render_report(session.to_project(), session.system, results=results, stale=stale)
-    assert "Computed for r = 3.2 (now 3.9): not the values above" in html
+    assert "Computed for r = 3.2 (now 3.9): these numbers belong to those values" in html
     assert math.isclose(results["lyapunov"].exponents[0], math.log(2))

@@ -19,6 +19,6 @@ def test_basins_json_and_csv(capsys, model, tmp_path):
     assert [centres[label] for label in data["labels"][0]] == [-1.0, 1.0]
     with open(target, newline="") as f:
         rows = list(csv.reader(f))
-    assert rows[0] == ["x", "x'", "attractor"] and len(rows) == 3
+    assert rows[0] == ["x", "x'", "attractor (-1: escape)"] and len(rows) == 3
     code, _, err = run_cli(capsys, "basins", model(WELLS), "--x", "v=0:1:2", "--y", "x'=0:1:2")
     assert code != 0 and "unknown state 'v'" in err

@@ -16,9 +16,9 @@ from PySide6.QtWidgets import QLabel
 
 from orbitdesk.app.views import SERIES_COLOURS, empty_hint, is_dark, style_plot
 from orbitdesk.app.plots.plot_style import JobStrip, NumberBox, number_text, plain_axes
-from orbitdesk.app.views.common import (SessionView, apply_axis_settings, apply_numbers, check_box, clicked_point,
-                     combo_box, control_row, count_box, fill_combo, follow_forcing_period, grid_rect, push_button,
-                     quiet, select_text, set_quietly, status_label)
+from orbitdesk.app.views.common import (SessionView, apply_numbers, check_box, clicked_point, control_row,
+                                        follow_forcing_period, push_button, set_quietly, status_label, status_row)
+from orbitdesk.app.views.grid_axes import GridAxes, grid_export, grid_rect
 
 ESCAPE_COLOUR = "#9a9a9a"
 MAX_SIDE = 300
@@ -38,10 +38,7 @@ class BasinsView(SessionView):
         super().__init__(session, parent)
         self.manifold_items: list = []
         self._user_period = False
-        self.x_state, self.y_state = combo_box("The state across"), combo_box("The state up")
-        self.x_lo, self.x_hi = NumberBox(-2.0, step=0.1), NumberBox(2.0, step=0.1)
-        self.y_lo, self.y_hi = NumberBox(-2.0, step=0.1), NumberBox(2.0, step=0.1)
-        self.x_count, self.y_count = count_box(80, MAX_SIDE), count_box(60, MAX_SIDE)
+        self.axes = GridAxes("state", {"x": (-2.0, 2.0, 80), "y": (-2.0, 2.0, 60)}, MAX_SIDE)
         self.transient = NumberBox(200.0, 0.0, 1e9, step=10.0)
         self.transient.setToolTip("Time (flows) or iterations (maps) before looking where a start has gone")
         self.strobe = check_box("Once per forcing period", "The stroboscopic basins of a forced flow: look at "
@@ -75,15 +72,10 @@ class BasinsView(SessionView):
         self.empty = empty_hint(self.plot, "Compute colours each start by the attractor it reaches")
 
         layout = self.main_layout()
-        layout.addLayout(control_row("Across", self.x_state, "from", self.x_lo, "to", self.x_hi, self.x_count,
-                                     "starts", None, self.run_button, stretch=False))
-        layout.addLayout(control_row("Up", self.y_state, "from", self.y_lo, "to", self.y_hi, self.y_count,
-                                     "starts"))
+        layout.addLayout(self.axes.row("x", "starts", None, self.run_button, stretch=False))
+        layout.addLayout(self.axes.row("y", "starts"))
         layout.addLayout(control_row("Settle for", self.transient, 8, self.strobe, self.period, 8, self.manifolds))
-        row = control_row(self.info, stretch=False)
-        row.setStretch(0, 1)
-        row.addWidget(self.strip, 1)
-        layout.addLayout(row)
+        layout.addLayout(status_row(self.info, self.strip))
         layout.addWidget(self.plot_widget, 1)
         layout.addWidget(self.legend)
         self._restyle()
@@ -91,11 +83,7 @@ class BasinsView(SessionView):
 
     # ------------------------------------------------------------ view protocol
     def view_settings(self) -> dict:
-        return {"x": {"state": self.x_state.currentText(), "from": float(self.x_lo.value()),
-                      "to": float(self.x_hi.value()), "count": self.x_count.value()},
-                "y": {"state": self.y_state.currentText(), "from": float(self.y_lo.value()),
-                      "to": float(self.y_hi.value()), "count": self.y_count.value()},
-                "transient": float(self.transient.value()), "strobe": self.strobe.isChecked(),
+        return {**self.axes.settings(), "transient": float(self.transient.value()), "strobe": self.strobe.isChecked(),
                 "period": float(self.period.value()), "manifolds": self.manifolds.isChecked()}
 
     def apply_view_settings(self, d: dict) -> None:
@@ -107,17 +95,12 @@ class BasinsView(SessionView):
             set_quietly(self.strobe, d["strobe"])
         if isinstance(d.get("manifolds"), bool):
             set_quietly(self.manifolds, d["manifolds"])
-        self._wanted = {k: d[k] for k in ("x", "y") if isinstance(d.get(k), dict)}
+        self.axes.want(d)
         if self.system is not None:
-            self._apply_wanted()
+            self.axes.apply_wanted()
 
     def export_data(self):
-        r = self.result
-        if r is None:
-            return None
-        gx, gy = np.meshgrid(r.xs, r.ys)
-        return [r.x_name, r.y_name, "attractor (-1: escape)"], np.column_stack(
-            [gx.ravel(), gy.ravel(), r.labels.ravel().astype(float)])
+        return grid_export(self.result)
 
     # ------------------------------------------------------------ public
     def compute(self) -> None:
@@ -125,14 +108,13 @@ class BasinsView(SessionView):
         if s is None or s.n_states < 2:
             self.info.setText("Basins need a model with at least two states")
             return
-        xn, yn = self.x_state.currentText(), self.y_state.currentText()
-        if xn == yn:
-            self.info.setText("Choose two different states")
+        try:
+            xn, xs, yn, ys = self.axes.chosen()
+        except ValueError as e:
+            self.info.setText(str(e))
             return
         from orbitdesk.analyses.basins import BasinSettings, basins
 
-        xs = np.linspace(self.x_lo.value(), self.x_hi.value(), self.x_count.value())
-        ys = np.linspace(self.y_lo.value(), self.y_hi.value(), self.y_count.value())
         settings = BasinSettings(transient=float(self.transient.value()),
                                  dt=float(getattr(self.session.solver, "dt", None) or 0.01))
         if s.kind != "map" and self.strobe.isChecked():
@@ -149,21 +131,14 @@ class BasinsView(SessionView):
 
     # ------------------------------------------------------------ session events
     def _on_project_loaded(self) -> None:
-        self.system, self._wanted = None, None
+        self.system = None
         self.show_no_result()
         self.apply_view_settings(self.saved_view_settings())
 
     def _on_system(self, system) -> None:
         self.system = system
-        keep = (self.x_state.currentText(), self.y_state.currentText())
-        with quiet(self.x_state, self.y_state):
-            fill_combo(self.x_state, system.states)
-            fill_combo(self.y_state, system.states)
-            if len(system.states) > 1:
-                self.y_state.setCurrentIndex(1)
-            select_text(self.x_state, keep[0])
-            select_text(self.y_state, keep[1])
-        self._apply_wanted()
+        self.axes.offer(system.states)
+        self.axes.apply_wanted()
         forced = system.kind != "map" and not system.autonomous
         self.strobe.setEnabled(system.kind != "map")
         if forced and not self.strobe.isChecked() and not self._user_period:
@@ -178,11 +153,6 @@ class BasinsView(SessionView):
                 not isinstance(a.get("label"), int) or not isinstance(a.get("centre"), dict) for a in result.attractors):
             raise ValueError("the kept basins do not fit together")
         self._show(result)
-    def _apply_wanted(self) -> None:
-        wanted, self._wanted = getattr(self, "_wanted", None) or {}, None
-        apply_axis_settings(wanted, (("x", self.x_state, self.x_lo, self.x_hi, self.x_count),
-                                     ("y", self.y_state, self.y_lo, self.y_hi, self.y_count)), "state")
-
     def _on_values(self) -> None:
         if self.system is not None and self.system.kind != "map":
             follow_forcing_period(self.period, self.system, self.session.param_vector(), self._user_period)

@@ -22,7 +22,8 @@ from PySide6.QtWidgets import (QAbstractItemView, QGraphicsPolygonItem, QHeaderV
 from orbitdesk.app.views import muted_colour, series_colour, style_plot
 from orbitdesk.app.plots.plot_style import JobStrip, NumberBox, number_text
 from orbitdesk.app.views.common import (SessionView, check_box, clicked_point, combo_box, control_row, fill_combo,
-                     fill_default_range, is_number, push_button, quiet, select_text, status_label)
+                                        fill_default_range, is_number, push_button, quiet, select_text,
+                                        status_label, status_row)
 
 STEADY, CYCLES, CYCLE_HERE, RESPONSE = "steady", "cycles", "cycle", "response"
 FOLLOW_LABELS = {STEADY: "steady states", CYCLES: "steady states and their cycles",
@@ -167,10 +168,7 @@ class BifurcationView(SessionView):
         self.tabs.addTab(loci_tab, "Two parameters")
         main = self.main_layout()
         main.addWidget(self.tabs, 1)
-        bottom = control_row(stretch=False)
-        bottom.addWidget(self.info, 1)
-        bottom.addWidget(self.strip, 1)
-        main.addLayout(bottom)
+        main.addLayout(status_row(self.info, self.strip))
         self._restyle()
         self.follow_session(values=self._on_values)
 

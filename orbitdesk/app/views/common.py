@@ -11,8 +11,8 @@ from contextlib import contextmanager
 import numpy as np
 from PySide6.QtCore import QEvent, Qt, QTimer
 from PySide6.QtWidgets import (QAbstractButton, QAbstractSpinBox, QCheckBox, QComboBox, QDoubleSpinBox, QFrame,
-                               QHBoxLayout, QLabel, QLineEdit, QListWidget, QPushButton, QSizePolicy, QSpinBox, QTableWidget,
-                               QVBoxLayout, QWidget)
+                               QHBoxLayout, QLabel, QLineEdit, QListWidget, QPushButton, QSizePolicy, QSpinBox,
+                               QTableWidget, QVBoxLayout, QWidget)
 
 from orbitdesk.document.results import stale_words
 from orbitdesk.document.view_settings import clean_settings
@@ -121,8 +121,8 @@ class SessionView(QWidget):
                 signal.connect(self.settings_changed)
         import pyqtgraph as pg
 
-        for plot in self.findChildren(pg.PlotWidget):
-            plot.getViewBox().sigRangeChanged.connect(self.settings_changed)
+        for plot in self.findChildren(pg.PlotWidget):  # (many per second while panning: written when it stops)
+            plot.getViewBox().sigRangeChanged.connect(self._settings_timer.start)
 
     def settings_changed(self, *_args) -> None:
         """Something this view saves changed: its settings go into the document now, and once more when
@@ -437,43 +437,19 @@ def fill_default_range(session, name: str, lo_box, hi_box) -> None:
     hi_box.setValue(hi)
 
 
+def status_row(info, strip) -> QHBoxLayout:
+    """The bottom row of an analysis view: its status words and its job strip, half the width each."""
+    row = control_row(stretch=False)
+    row.addWidget(info, 1)
+    row.addWidget(strip, 1)
+    return row
+
+
 def row_widget(*items, spacing: int = 4) -> QWidget:
     """``control_row`` in a widget of its own (a page of a QStackedWidget)."""
     widget = QWidget()
     widget.setLayout(control_row(*items, spacing=spacing))
     return widget
-
-
-def count_box(value: int, maximum: int, tip: str = "How many values, evenly spaced"):
-    """A spin box for the number of grid values along one axis (2 .. ``maximum``)."""
-    from PySide6.QtWidgets import QSpinBox
-
-    box = QSpinBox()
-    box.setRange(2, maximum)
-    box.setValue(value)
-    box.setKeyboardTracking(False)
-    box.setToolTip(tip)
-    return box
-
-
-def grid_rect(xs, ys):
-    """The rectangle an image of one cell per grid point covers: cells centred on the values."""
-    from PySide6.QtCore import QRectF
-
-    dx = (xs[-1] - xs[0]) / (xs.size - 1) if xs.size > 1 else 1.0
-    dy = (ys[-1] - ys[0]) / (ys.size - 1) if ys.size > 1 else 1.0
-    return QRectF(xs[0] - dx / 2, ys[0] - dy / 2, dx * xs.size, dy * ys.size)
-
-
-def apply_axis_settings(wanted: dict, axes, name_key: str) -> None:
-    """Settings {"x": {name_key: NAME, "from", "to", "count"}, "y": {...}} onto the controls of two grid axes:
-    ``axes`` holds (key, combo, from box, to box, count box)."""
-    for key, combo, lo, hi, count in axes:
-        d = wanted.get(key)
-        if d:
-            with quiet(combo):
-                select_text(combo, d.get(name_key))
-            apply_numbers(d, ((lo, "from", float), (hi, "to", float), (count, "count", int)))
 
 
 def auto_timer(parent, delay_ms: int, action, enabled) -> QTimer:

@@ -14,9 +14,9 @@ from PySide6.QtWidgets import QLabel, QSpinBox, QStackedWidget
 
 from orbitdesk.app.views import empty_hint, muted_colour, style_plot
 from orbitdesk.app.plots.plot_style import JobStrip, NumberBox, number_text, plain_axes, round_significant
-from orbitdesk.app.views.common import (SessionView, apply_axis_settings, apply_numbers, clicked_point, combo_box, control_row,
-                     count_box, fill_combo, follow_forcing_period, grid_rect, push_button, quiet, row_widget,
-                     select_text, set_quietly, status_label)
+from orbitdesk.app.views.common import (SessionView, apply_numbers, clicked_point, combo_box, control_row,
+                                        follow_forcing_period, push_button, row_widget, status_label, status_row)
+from orbitdesk.app.views.grid_axes import GridAxes, grid_export, grid_rect
 
 LYAPUNOV, PERIOD = "lyapunov", "period"
 WHATS = (LYAPUNOV, PERIOD)
@@ -39,13 +39,9 @@ class ParameterMapView(SessionView):
         self._user_period = False
         self.what = combo_box("What is coloured at each pair of values", [WHAT_LABELS[w] for w in WHATS],
                               self._on_what)
-        self.x_param = combo_box("The parameter across")
-        self.y_param = combo_box("The parameter up")
-        self.x_lo, self.x_hi = NumberBox(0.0, step=0.1), NumberBox(1.0, step=0.1)
-        self.y_lo, self.y_hi = NumberBox(0.0, step=0.1), NumberBox(1.0, step=0.1)
-        self.x_count, self.y_count = count_box(60, MAX_SIDE), count_box(40, MAX_SIDE)
-        self.x_param.currentIndexChanged.connect(lambda _i: self._default_range(self.x_param, self.x_lo, self.x_hi))
-        self.y_param.currentIndexChanged.connect(lambda _i: self._default_range(self.y_param, self.y_lo, self.y_hi))
+        self.axes = GridAxes("parameter", {"x": (0.0, 1.0, 60), "y": (0.0, 1.0, 40)}, MAX_SIDE)
+        for key in ("x", "y"):
+            self.axes.combo[key].currentIndexChanged.connect(lambda _i, key=key: self._default_range(key))
         self.transient = NumberBox(200.0, 0.0, 1e9, step=10.0)
         self.transient.setToolTip("Time (flows) or iterations (maps) dropped before measuring")
         self.duration = NumberBox(500.0, 1.0, 1e9, step=100.0)
@@ -84,25 +80,16 @@ class ParameterMapView(SessionView):
         layout = self.main_layout()
         layout.addLayout(control_row("Colour by", self.what, 8, self.what_stack, None, self.run_button,
                                      stretch=False))
-        layout.addLayout(control_row("Across", self.x_param, "from", self.x_lo, "to", self.x_hi, self.x_count,
-                                     "values", spacing=4))
-        layout.addLayout(control_row("Up", self.y_param, "from", self.y_lo, "to", self.y_hi, self.y_count, "values",
-                                     8, "settle for", self.transient, spacing=4))
-        row = control_row(self.info, stretch=False)
-        row.setStretch(0, 1)
-        row.addWidget(self.strip, 1)
-        layout.addLayout(row)
+        layout.addLayout(self.axes.row("x", "values", spacing=4))
+        layout.addLayout(self.axes.row("y", "values", 8, "settle for", self.transient, spacing=4))
+        layout.addLayout(status_row(self.info, self.strip))
         layout.addWidget(self.plot_widget, 1)
         self._restyle()
         self.follow_session(values=self._on_values)
 
     # ------------------------------------------------------------ view protocol
     def view_settings(self) -> dict:
-        return {"what": WHATS[self.what.currentIndex()],
-                "x": {"parameter": self.x_param.currentText(), "from": float(self.x_lo.value()),
-                      "to": float(self.x_hi.value()), "count": self.x_count.value()},
-                "y": {"parameter": self.y_param.currentText(), "from": float(self.y_lo.value()),
-                      "to": float(self.y_hi.value()), "count": self.y_count.value()},
+        return {"what": WHATS[self.what.currentIndex()], **self.axes.settings(),
                 "transient": float(self.transient.value()), "duration": float(self.duration.value()),
                 "max_period": self.max_period.value(), "period": float(self.period.value())}
 
@@ -114,22 +101,12 @@ class ParameterMapView(SessionView):
         apply_numbers(d, ((self.transient, "transient", float), (self.duration, "duration", float),
                           (self.max_period, "max_period", int), (self.period, "period", float)))
         self._user_period = isinstance(d.get("period"), (int, float))
-        self._wanted = {k: d[k] for k in ("x", "y") if isinstance(d.get(k), dict)}
+        self.axes.want(d)
         if self.system is not None:
-            self._apply_wanted()
+            self.axes.apply_wanted()
 
     def export_data(self):
-        r = self.result
-        if r is None:
-            return None
-        gx, gy = np.meshgrid(r.xs, r.ys)
-        values = r.exponent if hasattr(r, "exponent") else r.period
-        header = [r.x_name, r.y_name, self._value_name()]
-        columns = [gx.ravel(), gy.ravel(), np.asarray(values, float).ravel()]
-        if getattr(r, "time_period", None) is not None:
-            header.append("period in time")
-            columns.append(np.asarray(r.time_period, float).ravel())
-        return header, np.column_stack(columns)
+        return grid_export(self.result)
 
     # ------------------------------------------------------------ public
     def compute(self) -> None:
@@ -137,12 +114,11 @@ class ParameterMapView(SessionView):
         if s is None or len(s.parameters) < 2:
             self.info.setText("A two-parameter map needs a model with two parameters")
             return
-        xn, yn = self.x_param.currentText(), self.y_param.currentText()
-        if xn == yn:
-            self.info.setText("Choose two different parameters")
+        try:
+            xn, xs, yn, ys = self.axes.chosen()
+        except ValueError as e:
+            self.info.setText(str(e))
             return
-        xs = np.linspace(self.x_lo.value(), self.x_hi.value(), self.x_count.value())
-        ys = np.linspace(self.y_lo.value(), self.y_hi.value(), self.y_count.value())
         p, u0 = self.session.param_vector(), self.session.initial_vector()
         what = WHATS[self.what.currentIndex()]
         transient = float(self.transient.value())
@@ -175,25 +151,15 @@ class ParameterMapView(SessionView):
     def _on_project_loaded(self) -> None:
         self.system = None
         self.show_no_result()
-        self._wanted = None
         self.apply_view_settings(self.saved_view_settings())
 
     def _on_system(self, system) -> None:
         self.system = system
-        keep = (self.x_param.currentText(), self.y_param.currentText())
-        with quiet(self.x_param, self.y_param):
-            fill_combo(self.x_param, system.parameters)
-            fill_combo(self.y_param, system.parameters)
-            ranged = [n for n in system.parameters if None not in self.session.param_range(n)]
-            order = ranged + [n for n in system.parameters if n not in ranged]
-            if len(order) >= 2:
-                select_text(self.x_param, order[0])
-                select_text(self.y_param, order[1])
-            select_text(self.x_param, keep[0])
-            select_text(self.y_param, keep[1])
-        self._default_range(self.x_param, self.x_lo, self.x_hi)
-        self._default_range(self.y_param, self.y_lo, self.y_hi)
-        self._apply_wanted()
+        ranged = [n for n in system.parameters if None not in self.session.param_range(n)]
+        self.axes.offer(system.parameters, (ranged + [n for n in system.parameters if n not in ranged])[:2])
+        self._default_range("x")
+        self._default_range("y")
+        self.axes.apply_wanted()
         self._on_what()
         self._on_values()
         self.show_document_result()
@@ -207,11 +173,6 @@ class ParameterMapView(SessionView):
 
     def show_no_result(self) -> None:
         self._show(None)
-
-    def _apply_wanted(self) -> None:
-        wanted, self._wanted = getattr(self, "_wanted", None) or {}, None
-        apply_axis_settings(wanted, (("x", self.x_param, self.x_lo, self.x_hi, self.x_count),
-                                     ("y", self.y_param, self.y_lo, self.y_hi, self.y_count)), "parameter")
 
     def _on_values(self) -> None:
         if self.system is not None and self.system.kind != "map":
@@ -231,16 +192,15 @@ class ParameterMapView(SessionView):
         self.period_label.setVisible(forced)
         self.period.setVisible(forced)
 
-    def _default_range(self, combo, lo_box, hi_box) -> None:
-        name = combo.currentText()
+    def _default_range(self, key: str) -> None:
+        name = self.axes.name(key)
         if not name or self.system is None:
             return
         lo, hi = self.session.param_range(name)
         value = self.session.params.get(name, 0.0)
         if lo is None or hi is None:
             lo, hi = (value - 1.0, value + 1.0) if value == 0 else (value * 0.5, value * 1.5)
-        set_quietly(lo_box, float(min(lo, hi)))
-        set_quietly(hi_box, float(max(lo, hi)))
+        self.axes.set_range(key, lo, hi)
 
     # ------------------------------------------------------------ results
     def _adopt(self, result) -> None:

@@ -18,9 +18,10 @@ from orbitdesk.language.angles import wrap_columns
 
 from orbitdesk.app.views import muted_colour, series_colour, style_plot
 from orbitdesk.app.plots.plot_style import JobStrip, NumberBox, hint_label, number_text
-from orbitdesk.app.views.common import (SessionView, apply_numbers, auto_timer, check_box, combo_box, control_row, detected_period,
-                     direction_combo, fill_combo, follow_forcing_period, push_button, put_through_orbit, quiet,
-                     row_widget, select_text, set_quietly, status_label)
+from orbitdesk.app.views.common import (SessionView, apply_numbers, auto_timer, check_box, combo_box, control_row,
+                                        detected_period, direction_combo, fill_combo, follow_forcing_period,
+                                        push_button, put_through_orbit, quiet, row_widget, select_text, set_quietly,
+                                        status_label, status_row)
 
 PLANE, STROBE = "plane", "strobe"
 DIRECTIONS = ("up", "down", "both")
@@ -129,10 +130,7 @@ class SectionsView(SessionView):
         layout.addLayout(row1)
         layout.addLayout(row2)
         layout.addWidget(self.splitter, 1)
-        bottom = control_row(spacing=6, stretch=False)
-        bottom.addWidget(self.info, 1)
-        bottom.addWidget(self.strip, 1)
-        layout.addLayout(bottom)
+        layout.addLayout(status_row(self.info, self.strip))
 
         self._timer = auto_timer(self, AUTO_DELAY_MS, self.compute, self.auto.isChecked)
         self._restyle()

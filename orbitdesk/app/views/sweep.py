@@ -21,7 +21,8 @@ from orbitdesk.app.plots.plot_style import JobStrip, NumberBox, number_text
 from orbitdesk.app.views.common import (AUTOMATIC, SessionView, apply_numbers, check_box, choose_method_quietly,
                      chosen_method, clicked_point, combo_box, control_row, direction_combo, fill_combo,
                      fill_default_range, follow_forcing_period, is_number, method_combo, push_button,
-                     put_through_orbit, quiet, row_widget, select_text, status_label)
+                     put_through_orbit, quiet, row_widget, select_text, status_label,
+                     status_row)
 
 PLANE, STROBE, MAXIMA, ITERATE = "plane", "strobe", "maxima", "iterate"
 FLOW_MODES = (MAXIMA, STROBE, PLANE)
@@ -166,16 +167,13 @@ class SweepView(SessionView):
         self.method_label = QLabel("by")
         row3 = control_row(self.transient_label, self.transient, "keep", self.samples, self.points_label,
                            self.method_label, self.method, self.dt_label, self.dt, self.duration_label, self.duration)
-        bottom = control_row(stretch=False)
-        bottom.addWidget(self.info, 1)
-        bottom.addWidget(self.strip, 1)
         layout = self.main_layout()
         layout.addLayout(row1)
         layout.addLayout(row2)
         layout.addLayout(row3)
         layout.addWidget(self.plot_widget, 3)
         layout.addWidget(self.lyap_widget, 1)
-        layout.addLayout(bottom)
+        layout.addLayout(status_row(self.info, self.strip))
 
         self._restyle()
         self.follow_session(values=self._on_values)
