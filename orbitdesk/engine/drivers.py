@@ -80,7 +80,7 @@ def flow_run(engine, name, t0, t1, y0, p, rtol=1e-8, atol=1e-10, max_step=None, 
     steps_t, steps_y, events = [], [], []
     span = t1 - t0
     note = ""
-    pace = _Pace(t0, t1)
+    pace = _Pace(t0, t1, engine.compiled)
     while True:
         code = engine.loops.erk_advance(engine.f, kind, which, adaptive, y, p, K, F, st, float(t1), rtol, atol, max_step,
                                   float(bound), grid, out_t, out_y, bool(every_step), rows, dirs, terminal,
@@ -123,15 +123,16 @@ def flow_run(engine, name, t0, t1, y0, p, rtol=1e-8, atol=1e-10, max_step=None, 
 
 class _Pace:
     """Judges a run's pace at each pause: it ends (a plain-words reason) when the steps it still needs
-    exceed the step limit (limits.py), at the pace of the last SLOW_WINDOWS pauses (a solution that
-    starts sliding along a jump late in the run) or, after STEP_CHECK_AFTER steps, of the whole run."""
+    exceed the step limit (limits.step_limit: smaller when the loops run as plain Python), at the pace
+    of the last SLOW_WINDOWS pauses (a solution that starts sliding along a jump late in the run) or,
+    after STEP_CHECK_AFTER steps, of the whole run. Runs, tangent runs and each ensemble member."""
 
-    def __init__(self, t0, t1):
-        self.t0, self.t1 = float(t0), float(t1)
+    def __init__(self, t0, t1, compiled=True):
+        self.t0, self.t1, self.compiled = float(t0), float(t1), bool(compiled)
         self.last_t, self.last_taken, self.slow = float(t0), 0.0, 0
 
     def check(self, st) -> str:
-        taken, t, limit = st[2] + st[3], st[0], limits.current().steps
+        taken, t, limit = st[2] + st[3], st[0], limits.step_limit(self.compiled)
         window, advanced = taken - self.last_taken, abs(t - self.last_t)
         self.last_t, self.last_taken = t, taken
         remaining = abs(self.t1 - t)
@@ -147,7 +148,7 @@ class _Pace:
         if projected <= limit:
             return ""
         return (f"the run stopped after {int(taken):,} steps at t = {t:.6g}: at this pace it would need about "
-                f"{projected:.2g} steps (the limit is {limit:,.0f}; {limits.TABLE['steps'][1]} raises it). The "
+                f"{projected:.2g} steps ({limits.step_limit_words(self.compiled)}). The "
                 "solution may be sliding along a kink or jump of the model (abs, sign, heaviside, mod, floor, if) "
                 "where the right side switches back and forth, or the system is stiff: try the stiff method, a "
                 "looser tolerance or a shorter run")
@@ -206,7 +207,7 @@ def flow_tangent(engine, name, t0, t1, keep_from, u0, V0, p, interval, rtol=1e-9
     count = max(1.0, abs(t1 - keep_from) / interval)
     stride = max(1, math.ceil(count / max_rows))
     rows, row_t = np.empty((max_rows + 2, m)), np.empty(max_rows + 2)
-    note, pace = "", _Pace(t0, t1)
+    note, pace = "", _Pace(t0, t1, engine.compiled)
     while True:
         code = engine.loops.flow_tangent(engine.f, kind, adaptive, z, p, K, F, st, float(t1), rtol, atol, max_step, float(bound),
                                    float(interval), int(m), sums, float(keep_from), rows, row_t, int(stride), 64)
@@ -266,6 +267,7 @@ class MembersOutput:
     event_count: np.ndarray | None  # (N,)
     log_sums: np.ndarray | None = None  # (N, m) summed logarithms of the tangent vectors' stretches after t_keep
     log_span: np.ndarray | None = None  # (N,) the time they cover
+    notes: dict = field(default_factory=dict)  # member index -> why it stopped early, when the code alone does not say
 
 
 def _member_rows(U0, P, tangents):
@@ -299,7 +301,9 @@ def members_run(engine, name, t0, t_end, U0, P, rtol=1e-8, atol=1e-10, max_step=
     With ``tangents`` = m > 0 each member carries m tangent vectors (starting as the first m
     columns of the identity, or ``tangents`` columns given as an (n, m) array), re-orthonormalised
     every ``interval``; ``log_sums`` / ``log_span`` are their exponents' sums after ``t_keep``.
-    The loop pauses every ``MEMBER_PAUSE_STEPS`` steps for progress and cancel (raising Cancelled)."""
+    The loop pauses every ``MEMBER_PAUSE_STEPS`` steps for progress and cancel (raising Cancelled);
+    there each member's pace is judged as a run's is (``_Pace``): a member that would need more steps
+    than the limit (sliding along a kink) stops with step_failed and its reason in ``notes``."""
     kind, adaptive, rtol, atol, max_step = _step_options(name, rtol, atol, max_step, dt)
     U, rows, n, m = _member_rows(U0, P, tangents)
     N, nz = U.shape
@@ -322,6 +326,7 @@ def members_run(engine, name, t0, t_end, U0, P, rtol=1e-8, atol=1e-10, max_step=
     sums = np.zeros((N, m + 1))
     keep = float(t0 if t_keep is None else t_keep)
     K, F, st, mst = np.zeros((16, nz)), np.zeros((7, nz)), np.zeros(12), np.zeros(8)
+    notes, pace, judged = {}, None, -1
     while True:
         code = engine.loops.members_advance(engine.f, kind, adaptive, U, rows, float(t0), ends, rtol, atol, max_step,
                                             float(bound), grid, samples, plane_rows, dirs, terminal, ev_t, ev_y,
@@ -329,8 +334,15 @@ def members_run(engine, name, t0, t_end, U0, P, rtol=1e-8, atol=1e-10, max_step=
                                             bool(keep_going), sums, K, F, st, mst, MEMBER_PAUSE_STEPS)
         if code != PAUSED:
             break
+        i = int(mst[0])
+        if i < N and mst[1]:
+            if i != judged:
+                pace, judged = _Pace(t0, ends[i], engine.compiled), i
+            note = pace.check(st)
+            if note:
+                mst[6] = 1.0  # the loop stops this member with step_failed when it goes on
+                notes[i] = note.replace("the run stopped", f"member {i + 1} stopped", 1)
         if report is not None:
-            i = int(mst[0])
             span = ends[i] - t0 if i < N else 1.0
             within = min(1.0, max(0.0, (st[0] - t0) / span)) if mst[1] and span else 0.0
             report((i + within) / N)  # Cancelled goes to the caller
@@ -343,7 +355,7 @@ def members_run(engine, name, t0, t_end, U0, P, rtol=1e-8, atol=1e-10, max_step=
                          ev_t if planes is not None else None,
                          np.moveaxis(ev_y[:, :, :n], 2, 0) if planes is not None else None,
                          count if planes is not None else None,
-                         sums[:, :m] if m else None, sums[:, m] if m else None)
+                         sums[:, :m] if m else None, sums[:, m] if m else None, notes)
 
 
 def members_iterate(engine, n0, n_end, keep_from, U0, P, samples=0, bound=1e10, tangents=0, report=None,

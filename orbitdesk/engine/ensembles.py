@@ -17,7 +17,7 @@ adaptive step collapses) with the time it happened; the others continue. Cancell
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -34,6 +34,7 @@ class EnsembleResult:
     rejected: np.ndarray | None = None  # (N,) rejected steps (adaptive method)
     sample_times: np.ndarray | None = None  # (K,)
     samples: np.ndarray | None = None  # (n, N, K) states at sample_times; NaN where a member never got there
+    notes: dict = field(default_factory=dict)  # member index -> why it stopped early (its pace: drivers._Pace)
 
     @property
     def ok(self) -> np.ndarray:
@@ -99,7 +100,7 @@ def _members(system, method, U, P, t0, t_end, report, evaluations, compiled=None
         samples[:, :, ts != t0] = out.samples
     report(1.0)
     return EnsembleResult(time=out.t, states=out.states, status=words(out.codes), steps=out.steps,
-                          sample_times=ts, samples=samples)
+                          sample_times=ts, samples=samples, notes=out.notes)
 
 
 def iterate_ensemble(system, U0, P=None, n_steps: int = 1000, cancel=None, progress=None,

@@ -58,6 +58,23 @@ def using_limits(steps: float | None = None, memory: float | None = None):
         _current = previous
 
 
+PLAIN_PYTHON_SHARE = 25  # the loops as plain Python run tens of times slower: there runs get 1/25 of the steps
+
+
+def step_limit(compiled: bool = True) -> float:
+    """The steps a run may take: the limit, or for loops running as plain Python (the compiler off, or a
+    model's kernels not compiled yet) 1/PLAIN_PYTHON_SHARE of it, so a run judged by its pace
+    (drivers._Pace) ends in minutes there too; --max-steps raises both."""
+    return _current.steps if compiled else _current.steps / PLAIN_PYTHON_SHARE
+
+
+def step_limit_words(compiled: bool = True) -> str:
+    """The limit as a message states it, with the option that raises it."""
+    limit = step_limit(compiled)
+    where = "" if compiled else f" in plain Python, 1/{PLAIN_PYTHON_SHARE} of the compiled loops' limit"
+    return f"the limit is {_shown(limit)}{where}; {TABLE['steps'][1]} raises it"
+
+
 def _shown(value: float) -> str:
     if not math.isfinite(value):
         return "an unbounded number"
@@ -120,4 +137,5 @@ def check_run_settings(settings, is_map: bool | None = None) -> None:
 
 
 __all__ = ["DEFAULTS", "LimitExceeded", "Limits", "TABLE", "check_memory", "check_run_settings", "check_span",
-           "check_steps", "current", "using_limits", "steps_of"]
+           "check_steps", "current", "using_limits", "steps_of", "step_limit", "step_limit_words",
+           "PLAIN_PYTHON_SHARE"]

@@ -19,6 +19,7 @@ import numpy as np
 
 from orbitdesk.engine.explicit_rk import PAUSED, erk_advance
 from orbitdesk.engine.jitting import loop
+from orbitdesk.engine.status import C_STEP_FAILED
 from orbitdesk.engine.tangent import orthonormalise
 
 
@@ -37,8 +38,10 @@ def members_advance(f, kind, adaptive, U, P, t0, t_end, rtol, atol, max_step, bo
     cover (tangent vectors renormalised every ``interval``).
 
     Returns 0 when every member is done, or PAUSED after about ``max_steps`` steps: ``K``, ``F``,
-    ``st`` (erk_advance's) and ``mst`` ([member, started, sampling, full, crossings, interval start])
-    hold where it stopped and the next call goes on from there (mst zero at the first call)."""
+    ``st`` (erk_advance's) and ``mst`` ([member, started, sampling, full, crossings, interval start,
+    give up]) hold where it stopped and the next call goes on from there (mst zero at the first call).
+    The caller sets mst[6] at a pause to stop the member under way with C_STEP_FAILED (its pace would
+    need more steps than the limit: drivers._Pace)."""
     N, nz = U.shape
     n = nz // (m + 1)
     out_t = np.empty(grid.shape[0])
@@ -65,10 +68,15 @@ def members_advance(f, kind, adaptive, U, P, t0, t_end, rtol, atol, max_step, bo
             mst[3] = 0.0
             mst[4] = 0.0
             mst[5] = t0
+            mst[6] = 0.0
         code = 0
         while (end - st[0]) * direction > 1e-13 * max(1.0, abs(end)):
             if used >= max_steps:
                 return PAUSED
+            if mst[6] != 0.0:  # the caller gave up on this member at the pause
+                mst[6] = 0.0
+                code = C_STEP_FAILED
+                break
             sampling = mst[2] != 0.0
             full = mst[3] != 0.0
             target = end

@@ -11,6 +11,7 @@ import math
 from dataclasses import dataclass
 
 import sympy as sp
+from sympy.functions.elementary.piecewise import ExprCondPair
 
 from orbitdesk.language.diagnostics import ParseError
 from orbitdesk.language.expression import FUNCTIONS, Binary, Call, Compare, If, Logic, Name, Num, Unary, children
@@ -345,6 +346,44 @@ def _chain(op, left, right, node):
     return _Terms(op, [_materialize(left), right], node)
 
 
+MAX_CONDITION_SIZE = 4000  # nodes of one condition once the if()s inside it are written out
+
+
+def _piecewise(pairs, where) -> sp.Piecewise:
+    """``Piecewise(*pairs)`` with every condition free of if(): see ``_fold_condition``."""
+    return sp.Piecewise(*[(e, _fold_condition(c, where)) for e, c in pairs])
+
+
+def _fold_condition(cond, where):
+    """The condition with each if() inside it written out: R(if(c, a, b)) becomes (c and R(a)) or
+    (not c and R(b)). sympy folds such a condition itself when a Piecewise is built, but decides there
+    whether the pieces cover every real number by solving inequalities in the model's expressions,
+    which can take without bound (minutes for a chain of a few dozen definitions): here it is plain
+    substitution, and a condition that grows beyond MAX_CONDITION_SIZE nodes is refused."""
+    if not isinstance(cond, sp.Basic) or not cond.has(sp.Piecewise):
+        return cond
+    while True:
+        inner = [p for p in cond.atoms(sp.Piecewise) if not any(a.has(sp.Piecewise) for a in p.args)]
+        if not inner:
+            return cond
+        piece = min(inner, key=sp.default_sort_key)
+        parts, before = [], sp.true
+        for e, c in piece.args:
+            parts.append(sp.And(before, c, cond.xreplace({piece: e})))
+            before = sp.And(before, sp.Not(c))
+        cond = sp.Or(*parts)
+        if _size_beyond(cond, MAX_CONDITION_SIZE):
+            raise ParseError("this condition holds too many if() (directly or through definitions) to be "
+                             "written out; split it into simpler conditions", where.column, where.end)
+
+
+def _size_beyond(expr, limit: int) -> bool:
+    for count, _ in enumerate(sp.preorder_traversal(expr)):
+        if count >= limit:
+            return True
+    return False
+
+
 _RELATIONS = {"<": sp.StrictLessThan, "<=": sp.LessThan, ">": sp.StrictGreaterThan, ">=": sp.GreaterThan}
 _LOGIC = {"and": sp.And, "or": sp.Or, "not": sp.Not}
 
@@ -388,7 +427,7 @@ def to_sympy(node, resolve, functions=None) -> sp.Expr:
         if isinstance(item, Logic):
             return _LOGIC[item.op](*args)
         if isinstance(item, If):
-            return _checked_constant(sp.Piecewise((args[1], args[0]), (args[2], True)), item)
+            return _checked_constant(_piecewise([(args[1], args[0]), (args[2], True)], item), item)
         if isinstance(item, Call):
             _check_call(item, functions)
             if item.func in FUNCTIONS:
@@ -431,6 +470,10 @@ def substitute(expr: sp.Expr, values: dict, where: Span) -> sp.Expr:
             return _checked_constant(sp.Mul(*args), where)
         if item.is_Add:
             return _checked_constant(sp.Add(*args), where)
+        if isinstance(item, sp.Piecewise):
+            return _checked_constant(_piecewise([pair.args for pair in args], where), where)
+        if isinstance(item, ExprCondPair):
+            return ExprCondPair(args[0], _fold_condition(args[1], where))
         try:
             rebuilt = item.func(*args)
         except (ZeroDivisionError, ValueError, TypeError, ArithmeticError):

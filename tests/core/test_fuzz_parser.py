@@ -6,6 +6,8 @@ side is finite or raises UndefinedValue; (c) random edits of the Lorenz model ne
 parser raise. Every diagnostic must point inside the text: 1 <= column < end_column, and the
 line exists.
 
+Every example runs in a worker process (fuzz_worker.py): one that hangs is reported as a failure with
+its input, and nothing it does (a cut into sympy's caches, a crash) reaches the examples after it.
 The default run tries a few thousand examples in all (well under a minute). For a long, deep
 run set ORBITDESK_FUZZ_EXAMPLES to the number of examples per test, e.g.
 
@@ -14,12 +16,9 @@ run set ORBITDESK_FUZZ_EXAMPLES to the number of examples per test, e.g.
 
 from __future__ import annotations
 
-import contextlib
 import math
 import os
 import re
-import signal
-import threading
 
 import numpy as np
 import pytest
@@ -32,6 +31,8 @@ from orbitdesk.language.expression import FUNCTIONS
 from orbitdesk.language.model import MAX_STATEMENTS, parse_model
 from orbitdesk.system.compiled_system import UndefinedValue, compile_model
 
+from .fuzz_worker import WORKER
+
 _DEEP = int(os.environ.get("ORBITDESK_FUZZ_EXAMPLES", "0"))
 
 
@@ -39,28 +40,6 @@ def budget(default: int):
     return settings(max_examples=_DEEP or default, deadline=None, derandomize=not _DEEP,
                     suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large,
                                            HealthCheck.filter_too_much])
-
-
-HANG_LIMIT = 20  # seconds for one example: a hang detector, not a speed test
-
-
-@contextlib.contextmanager
-def hang_guard(text: str):
-    """Turn an example that runs for HANG_LIMIT seconds into a failure hypothesis can shrink."""
-    if not hasattr(signal, "SIGALRM") or threading.current_thread() is not threading.main_thread():
-        yield
-        return
-
-    def hung(signum, frame):
-        raise TimeoutError(f"one example ran for more than {HANG_LIMIT} s: {text!r}")
-
-    previous = signal.signal(signal.SIGALRM, hung)
-    signal.alarm(HANG_LIMIT)
-    try:
-        yield
-    finally:
-        signal.alarm(0)
-        signal.signal(signal.SIGALRM, previous)
 
 
 def check_diagnostics(text: str, model) -> None:
@@ -126,11 +105,16 @@ model_like_text = st.lists(st.sampled_from(list(MODEL_CHARS) + ["**", "x' = ", "
 @budget(1500)
 @given(st.one_of(odd_text, model_like_text))
 def test_arbitrary_text_only_gives_diagnostics(text):
-    with hang_guard(text):
-        model = parse_model(text)
-        check_diagnostics(text, model)
-        if model.ok:
-            check_compiled(model)
+    WORKER.run(check_text, text)
+
+
+def check_text(text: str):
+    """Any text parses to a model with diagnostics that point inside it; a clean model compiles."""
+    model = parse_model(text)
+    check_diagnostics(text, model)
+    if model.ok:
+        check_compiled(model)
+    return model
 
 
 # ---------------------------------------------------------------- (b) generated models
@@ -214,14 +198,16 @@ def models(draw):
 @budget(600)
 @given(models())
 def test_generated_models_parse_and_compile(text):
-    with hang_guard(text):
-        model = parse_model(text)
-        check_diagnostics(text, model)
-        if model.ok:
-            check_compiled(model)
-            for name, order in model.typed_order.items():
-                for j in range(order - 1):
-                    assert model.equations[name + "'" * j] == model.symbols[name + "'" * (j + 1)]
+    WORKER.run(check_generated_model, text)
+
+
+def check_generated_model(text: str) -> None:
+    """As check_text, and each typed higher derivative is chained through its first-order states."""
+    model = check_text(text)
+    if model.ok:
+        for name, order in model.typed_order.items():
+            for j in range(order - 1):
+                assert model.equations[name + "'" * j] == model.symbols[name + "'" * (j + 1)]
 
 
 def test_the_generator_reaches_clean_models():
@@ -278,12 +264,7 @@ def apply_edits(text: str, edits) -> str:
 @budget(1200)
 @given(st.lists(edit, min_size=1, max_size=6))
 def test_mutations_of_lorenz_never_raise(edits):
-    text = apply_edits(LORENZ, edits)
-    with hang_guard(text):
-        model = parse_model(text)
-        check_diagnostics(text, model)
-        if model.ok:
-            check_compiled(model)
+    WORKER.run(check_text, apply_edits(LORENZ, edits))
 
 
 def test_unmutated_lorenz_is_clean():
@@ -314,11 +295,7 @@ def family_models(draw):
 @budget(300)
 @given(family_models())
 def test_generated_family_models_parse_and_compile(text):
-    with hang_guard(text):
-        model = parse_model(text)
-        check_diagnostics(text, model)
-        if model.ok:
-            check_compiled(model)
+    WORKER.run(check_text, text)
 
 
 # ---------------------------------------------------------------- (e) events
@@ -349,17 +326,18 @@ def event_models(draw):
 @budget(120)
 @given(event_models())
 def test_generated_event_models_parse_compile_and_run(text):
+    WORKER.run(check_event_model, text)
+
+
+def check_event_model(text: str) -> None:
     from orbitdesk.engine.runs import RunSettings, simulate
     from orbitdesk.engine.status import WORD
 
-    with hang_guard(text):
-        model = parse_model(text)
-        check_diagnostics(text, model)
-        if model.ok:
-            check_compiled(model)
-            traj = simulate(compile_model(model), RunSettings(t_end=3.0, samples=30))
-            assert traj.status in WORD.values() and (traj.status == "ok" or traj.message), (text, traj.status)
-            assert all(0.0 <= ev.t <= 3.0 for ev in traj.model_events)
+    model = check_text(text)
+    if model.ok:
+        traj = simulate(compile_model(model), RunSettings(t_end=3.0, samples=30))
+        assert traj.status in WORD.values() and (traj.status == "ok" or traj.message), (text, traj.status)
+        assert all(0.0 <= ev.t <= 3.0 for ev in traj.model_events)
 
 
 # ---------------------------------------------------------------- (f) deep chains and wide sums
@@ -383,26 +361,28 @@ def deep_models(draw):
     return "\n".join(lines) + "\nx(0) = 0.5\n"
 
 
-@pytest.mark.skipif(not os.environ.get("ORBITDESK_FUZZ_EXAMPLES"),
-                    reason="deep runs only (ORBITDESK_FUZZ_EXAMPLES=N): on a loaded machine the hang guard's alarm "
-                           "can cut into sympy and break its cache for the examples after it")
+@pytest.mark.skipif(not _DEEP, reason="deep runs only (ORBITDESK_FUZZ_EXAMPLES=N): one example takes up to a "
+                    "minute on a loaded machine (the Jacobian of a wide sum), beyond the quick run's budget")
 @budget(25)
 @given(deep_models())
 def test_deep_chains_and_wide_sums_end_in_a_model_or_a_diagnostic(text):
+    WORKER.run(check_deep_model, text)
+
+
+def check_deep_model(text: str) -> None:
     import sys
 
     limit = sys.getrecursionlimit()
-    with hang_guard(text):
-        model = parse_model(text)
-        check_diagnostics(text, model)
-        if model.ok:
-            system = compile_model(model)
-            try:
-                value = system.rhs(0.0, [0.5])[0]
-                jac = system.jac(0.0, [0.5])
-            except UndefinedValue:
-                return
-            assert math.isfinite(value) and jac.shape == (1, 1)
-        else:
-            assert any("levels deep" in d.message or "parts" in d.message for d in model.errors), model.errors
+    model = parse_model(text)
+    check_diagnostics(text, model)
+    if model.ok:
+        system = compile_model(model)
+        try:
+            value = system.rhs(0.0, [0.5])[0]
+            jac = system.jac(0.0, [0.5])
+        except UndefinedValue:
+            return
+        assert math.isfinite(value) and jac.shape == (1, 1)
+    else:
+        assert any("levels deep" in d.message or "parts" in d.message for d in model.errors), model.errors
     assert sys.getrecursionlimit() == limit

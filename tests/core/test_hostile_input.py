@@ -296,6 +296,31 @@ def test_legal_hostile_looking_inputs_evaluate_correctly(outcomes):
     smooth_parts = outcomes["nonsmooth_jacobian.txt"]
     assert smooth_parts["jac"] == [[0.0, 1.0], [pytest.approx(0.2), 1.0]]
     assert smooth_parts["rhs"][1] == pytest.approx(-1.25 + 0.5 + 1 - 0.1 + 0.2 * 0.25 + 0.5 + 1.25)
+    # the chain of conditions over conditions, evaluated step by step in Python at x = 0.5
+    a = min(0.5, 1)
+    for step in ("sqrt", "sqrt", "sqrt", "sin", "abs", "sin", "min", "min", "tanh", "if", "floor", "if", "tanh",
+                 "sin", "if", "mod", "frac", "floor", "tanh", "min", "min", "min", "atan2", "sqrt", "tanh", "exp",
+                 "mod", "floor", "sqrt", "floor", "sqrt", "sqrt"):
+        a = {"sqrt": lambda v: math.sqrt(1 + v), "sin": math.sin, "abs": abs, "min": lambda v: min(v, 1),
+             "tanh": math.tanh, "if": lambda v: 1 if v > 0 else -1, "floor": math.floor,
+             "mod": lambda v: math.fmod(v + 1, 3) % 3, "frac": lambda v: v * v / (1 + v * v),
+             "atan2": lambda v: math.atan2(v, 2), "exp": lambda v: 0.5 * math.exp(-v)}[step](a)
+    assert outcomes["condition_over_conditions_chain.txt"]["rhs"] == [pytest.approx(-0.5 + 0.1 * a, rel=1e-12)]
+
+
+def test_if_inside_a_condition_keeps_its_meaning():
+    """if() inside conditions is written out by substitution (symbolic._fold_condition): the same values
+    as the nested conditions read directly, on both sides of every switch."""
+    from orbitdesk.system.compiled_system import compile_model
+
+    system = compile_model("x' = if(if(x > 1, x, -x) > 0.5 and not if(y < 0, 1, 0) > 0.5, 1, 2)\n"
+                           "y' = if(min(if(x > 0, y, 2*y), 1) >= 0.25, x, y)\n")
+    for x in (-2.0, -0.7, -0.3, 0.3, 0.7, 1.2, 3.0):
+        for y in (-1.0, 0.1, 0.2, 0.3, 2.0):
+            inner = x if x > 1 else -x
+            first = 1.0 if inner > 0.5 and not (1 if y < 0 else 0) > 0.5 else 2.0
+            second = x if min(y if x > 0 else 2 * y, 1) >= 0.25 else y
+            assert list(system.rhs(0.0, [x, y])) == [first, second], (x, y)
 
 
 # ---------------------------------------------------------------- in-process checks of the guards

@@ -298,3 +298,40 @@ def test_compiled_code_comes_from_the_tree_not_the_text():
     assert trap.generated_sources
     for source in trap.generated_sources:
         assert "system" not in source and "exec_rate" not in source
+
+
+def test_noise_terms_come_from_the_tree_through_the_one_lambdify():
+    """The commutativity check of a model with noise (codegen._same, non-commuting sources) is generated
+    by compiled_system.lambdify like every other function: names that look like Python never reach the
+    generated code, and the seeded realisations are exactly those of the same model with plain names."""
+    import numpy as np
+
+    from orbitdesk.engine.runs import simulate
+    from orbitdesk.engine.settings import RunSettings
+    from orbitdesk.system.codegen import noise_terms
+
+    hostile = "system' = -system + exec_rate*system*noise(exec) + noise(os)\nexec_rate = 0.5\nsystem(0) = 1\n"
+    plain = "x' = -x + a*x*noise(a1) + noise(a2)\na = 0.5\nx(0) = 1\n"
+    with traps() as trap:
+        system = compile_model(hostile)
+        commutative = noise_terms(system)[2]
+    assert trap.calls == [] and trap.generated_sources
+    for source in trap.generated_sources:
+        assert "system" not in source and "exec" not in source and "noise" not in source, source
+    reference = compile_model(plain)
+    assert commutative is False and noise_terms(reference)[2] is False  # L^1 g_2 = 0, L^2 g_1 = a
+    settings = RunSettings(t_end=1.0, dt=0.01, samples=11, seed=11, realisations=4)
+    ours = simulate(system, settings, noise=True).realisations
+    theirs = simulate(reference, settings, noise=True).realisations
+    assert np.array_equal(ours.states, theirs.states) and np.isfinite(ours.states).all()
+
+
+def test_sympy_lambdify_is_called_in_one_place():
+    """Every generated evaluator goes through compiled_system.lambdify (our printers, flat code)."""
+    import re
+
+    package = Path(__file__).resolve().parents[2] / "orbitdesk"
+    calls = [f"{path.relative_to(package)}:{n}" for path in sorted(package.rglob("*.py"))
+             for n, line in enumerate(path.read_text(encoding="utf-8").splitlines(), 1)
+             if re.search(r"\b(sp|sympy)\.lambdify\(|\bfrom sympy(\.\w+)* import .*\blambdify\b", line)]
+    assert len(calls) == 1 and calls[0].startswith("system/compiled_system.py:"), calls
