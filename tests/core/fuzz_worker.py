@@ -4,7 +4,8 @@ An alarm raised inside the test process can cut into sympy (or any library) in t
 of its caches and leave them broken for every later example. Here each example runs in one long-lived
 worker process fed over a pipe (forked from the test process, so everything already imported and
 compiled is there at once); the parent only waits. An example that uses more than ``limit`` seconds of
-the worker's CPU time (or ten times that in wall time: on a loaded machine wall time says little) is
+the worker's CPU time (or, waiting without using any, WALL_FACTOR times that in wall time: on a loaded
+machine, with the run niced, a worker gets a small share and wall time says little) is
 reported as a failure naming its input, the worker is killed and a fresh one forked for the next
 example; a worker that dies (a crash in compiled code) is reported the same way. Nothing the example
 does can change the parent.
@@ -21,6 +22,7 @@ import time
 import traceback
 
 HANG_LIMIT = 20.0  # seconds of CPU time for one example: a hang detector, not a speed test
+WALL_FACTOR = 60  # a worker blocked without using CPU time: it hangs after WALL_FACTOR * HANG_LIMIT seconds
 
 
 class ExampleFailed(AssertionError):
@@ -89,17 +91,20 @@ class ExampleWorker:
                 code = self.process.exitcode
                 self.stop()
                 raise ExampleFailed(f"the worker died (exit code {code}) on the input {args!r}")
-            if (used is not None and used > self.limit) or wall > 10 * self.limit or (used is None and
-                                                                                      wall > self.limit):
+            over_cpu = used is not None and used > self.limit
+            if over_cpu or wall > (self.limit if used is None else WALL_FACTOR * self.limit):
                 self.stop()
                 self.restarts += 1
-                raise ExampleFailed(f"one example ran for more than {self.limit:g} s of CPU time "
-                                    f"({wall:.0f} s in all): {args!r}")
+                spent = f"{used:.0f} s of CPU time" if used is not None else "an unknown CPU time"
+                raise ExampleFailed(f"one example ran for {wall:.0f} s ({spent}; the limit is {self.limit:g} s of "
+                                    f"CPU time, or {WALL_FACTOR * self.limit:g} s waiting): {args!r}")
         try:
             status, summary, trace = self.conn.recv()
         except EOFError:
+            self.process.join(5)
+            code = self.process.exitcode
             self.stop()
-            raise ExampleFailed(f"the worker died on the input {args!r}") from None
+            raise ExampleFailed(f"the worker died (exit code {code}) on the input {args!r}") from None
         if status != "ok":
             raise ExampleFailed(f"{summary}\non the input {args!r}\n--- in the worker:\n{trace}")
 
