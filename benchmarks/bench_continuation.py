@@ -16,11 +16,10 @@
 from __future__ import annotations
 
 import math
-import time
 
 import numpy as np
 
-from benchmarks.harness import Row
+from benchmarks.harness import Row, timed
 from orbitdesk.analyses.continuation import HOPF, StepSettings, steady_branches
 from orbitdesk.analyses.continuation.response import response_curve, stepped_sweep
 from orbitdesk.system.compiled_system import compile_model
@@ -63,14 +62,10 @@ def run(log=print) -> list[Row]:
     r_hopf = sigma * (sigma + beta + 3) / (sigma - beta - 1)
     system = compile_model(LORENZ)
     steady_branches(system, "r", 0, 30)  # warm-up: generated code
-    start = time.perf_counter()
-    ours = steady_branches(system, "r", 0, 30)
-    ours_time = time.perf_counter() - start
+    ours_time, ours = timed(lambda: steady_branches(system, "r", 0, 30))
     hopfs = [s.value for b in ours.branches for s in b.special if s.type == HOPF]
     n_points = sum(b.size for b in ours.branches)
-    start = time.perf_counter()
-    grid = _lorenz_grid(system)
-    grid_time = time.perf_counter() - start
+    grid_time, grid = timed(lambda: _lorenz_grid(system))
     grid_hopf = [v for v in grid if abs(v - r_hopf) < 1]
     rows.append(Row(f"Lorenz equilibrium branches, r in [0, 30], {n_points} points, branch point and 2 Hopf points",
                     ours_time, grid_time,
@@ -81,14 +76,10 @@ def run(log=print) -> list[Row]:
     beam = compile_model(BEAM)
     settings = StepSettings(ds=0.005, ds_min=1e-9, ds_max=0.012, max_points=400)
     response_curve(beam, "omega", 0.8, 1.8, settings=settings)  # warm-up
-    start = time.perf_counter()
-    curve = response_curve(beam, "omega", 0.8, 1.8, settings=settings)
-    ours_time = time.perf_counter() - start
+    ours_time, curve = timed(lambda: response_curve(beam, "omega", 0.8, 1.8, settings=settings))
     folds = sorted(s.value for s in curve.special)
-    start = time.perf_counter()
-    up = stepped_sweep(beam, "omega", 0.8, 1.8, "up", 200)
-    down = stepped_sweep(beam, "omega", 0.8, 1.8, "down", 200)
-    sweep_time = time.perf_counter() - start
+    sweep_time, (up, down) = timed(lambda: (stepped_sweep(beam, "omega", 0.8, 1.8, "up", 200),
+                                            stepped_sweep(beam, "omega", 0.8, 1.8, "down", 200)))
     j_up = int(np.argmax(np.diff(up.amplitudes)))
     j_down = int(np.argmin(np.diff(down.amplitudes)))
     jump_up = 0.5 * (up.values[j_up] + up.values[j_up + 1])

@@ -23,6 +23,13 @@ class Row:
         return None
 
 
+def timed(fn):
+    """(wall seconds, value) of one call ``fn()``."""
+    start = time.perf_counter()
+    value = fn()
+    return time.perf_counter() - start, value
+
+
 def median_time(fn, repeats: int = 5, warmup: int = 1) -> float:
     """Median wall time of ``fn()`` over ``repeats`` runs after ``warmup`` runs."""
     for _ in range(warmup):
@@ -35,33 +42,40 @@ def median_time(fn, repeats: int = 5, warmup: int = 1) -> float:
     return statistics.median(times)
 
 
-def interleaved(ours, baseline, repeats: int = 5) -> tuple[float, float]:
-    """Medians of two callables timed alternately, so machine noise hits both alike."""
+def alternate(ours, baseline, repeats: int = 5) -> tuple[list[float], list[float]]:
+    """Wall times of two callables timed alternately (after one untimed call of each), so machine
+    noise hits both alike."""
     ours(), baseline()
     a, b = [], []
     for _ in range(repeats):
-        start = time.perf_counter()
-        ours()
-        a.append(time.perf_counter() - start)
-        start = time.perf_counter()
-        baseline()
-        b.append(time.perf_counter() - start)
+        for fn, times in ((ours, a), (baseline, b)):
+            start = time.perf_counter()
+            fn()
+            times.append(time.perf_counter() - start)
+    return a, b
+
+
+def interleaved(ours, baseline, repeats: int = 5) -> tuple[float, float]:
+    """Medians of two callables timed alternately."""
+    a, b = alternate(ours, baseline, repeats)
     return statistics.median(a), statistics.median(b)
 
 
 def interleaved_best(ours, baseline, repeats: int = 21) -> tuple[float, float]:
     """Fastest of each of two callables timed alternately: for runs of a few milliseconds on a loaded
     machine, where the median measures how often the process was preempted."""
-    ours(), baseline()
-    a, b = [], []
-    for _ in range(repeats):
-        start = time.perf_counter()
-        ours()
-        a.append(time.perf_counter() - start)
-        start = time.perf_counter()
-        baseline()
-        b.append(time.perf_counter() - start)
+    a, b = alternate(ours, baseline, repeats)
     return min(a), min(b)
+
+
+def child_command(argv, env=None):
+    """A callable that runs ``argv`` in a child process (output discarded) and raises if it fails."""
+    import subprocess
+
+    def run():
+        subprocess.run(argv, check=True, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, env=env)
+
+    return run
 
 
 def fmt_seconds(value: float | None) -> str:

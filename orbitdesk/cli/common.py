@@ -256,6 +256,8 @@ def to_jsonable(value):
     if isinstance(value, (list, tuple)):
         return [to_jsonable(v) for v in value]
     if isinstance(value, np.ndarray):
+        if value.dtype.kind in "fiub" and np.isfinite(value).all():
+            return value.tolist()  # plain floats and ints already (the common case, thousands of samples)
         return to_jsonable(value.tolist())
     if isinstance(value, (np.floating, float)):
         v = float(value)
@@ -268,7 +270,7 @@ def to_jsonable(value):
 
 
 def print_json(data) -> None:
-    json.dump(to_jsonable(data), sys.stdout, allow_nan=False)
+    sys.stdout.write(json.dumps(to_jsonable(data), allow_nan=False))  # dumps: the C encoder, in one piece
     sys.stdout.write("\n")
 
 

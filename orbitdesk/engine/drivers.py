@@ -95,16 +95,9 @@ def flow_run(engine, name, t0, t1, y0, p, rtol=1e-8, atol=1e-10, max_step=None, 
             st[7] = 0
         if code != PAUSED:
             break
-        note = pace.check(st)
-        if note:
-            code = C_STEP_FAILED
+        code, note = _paused(pace, st, report, t0, span)
+        if code != PAUSED:
             break
-        if report is not None:
-            try:
-                report((st[0] - t0) / span)
-            except Cancelled:
-                code = C_CANCELLED
-                break
     if every_step:
         time = np.concatenate([[t0]] + steps_t)
         states = np.concatenate([y0[None, :]] + steps_y).T if steps_y else np.asarray(y0, float)[:, None].copy()
@@ -119,6 +112,20 @@ def flow_run(engine, name, t0, t1, y0, p, rtol=1e-8, atol=1e-10, max_step=None, 
     else:
         out.event_y = np.empty((n, 0))
     return out
+
+
+def _paused(pace, st, report, t0, span):
+    """At a pause of a flow loop: (PAUSED, "") to go on, or the code that ends the run and why (too slow
+    a pace: step_failed with the reason; cancelled by the user)."""
+    note = pace.check(st)
+    if note:
+        return C_STEP_FAILED, note
+    if report is not None:
+        try:
+            report((st[0] - t0) / span)
+        except Cancelled:
+            return C_CANCELLED, ""
+    return PAUSED, ""
 
 
 class _Pace:
@@ -213,16 +220,9 @@ def flow_tangent(engine, name, t0, t1, keep_from, u0, V0, p, interval, rtol=1e-9
                                    float(interval), int(m), sums, float(keep_from), rows, row_t, int(stride), 64)
         if code != PAUSED:
             break
-        note = pace.check(st)
-        if note:
-            code = C_STEP_FAILED
+        code, note = _paused(pace, st, report, t0, t1 - t0)
+        if code != PAUSED:
             break
-        if report is not None:
-            try:
-                report((st[0] - t0) / (t1 - t0))
-            except Cancelled:
-                code = C_CANCELLED
-                break
     r = int(st[9])
     return TangentOutput(sums, float(st[10]), rows[:r].copy(), row_t[:r].copy(), int(code), float(st[0]), z[:n].copy(),
                          note,

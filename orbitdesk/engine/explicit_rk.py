@@ -3,8 +3,10 @@ Dormand-Prince 5(4) with its quartic dense output, and classical RK4 (fixed step
 dense output) — one loop for all three.
 
 Tableaux: Dormand & Prince (1980) and Prince & Dormand (1981) as printed in Hairer, Norsett &
-Wanner, Solving ODEs I (2nd ed.), sec. II.5 and II.6, taken from scipy's ``RK45`` and
-``dop853_coefficients``. Error control as there: a step is accepted when the scaled error norm is
+Wanner, Solving ODEs I (2nd ed.), sec. II.5 and II.6: Dormand-Prince 5(4) written out below (with
+Shampine's dense output for the optimal c_6, as scipy's ``RK45``), DOP853's read from scipy's
+``dop853_coefficients`` file alone (``_dop853_table``), so a run on these loops never imports
+``scipy.integrate`` (about 0.6 s of a cold start). Error control as there: a step is accepted when the scaled error norm is
 at most 1 (scale ``atol + rtol * max(|y|, |y_new|)``), the next step is ``h * min(10, max(0.2,
 0.9 * err^(-1/(q+1))))`` and never grows right after a rejection. DOP853 estimates its error with
 the 5th- and 3rd-order combination of the Fortran code.
@@ -18,13 +20,53 @@ read has its dense output checked by its defect (``interpolant_fits``); where it
 inside that step come from sub-steps of the method from the step's start (``point_value``).
 """
 
+import importlib.util
 import math
+import sys
 
 import numpy as np
-from scipy.integrate import RK45 as _RK45
-from scipy.integrate._ivp import dop853_coefficients as _D853
 
 from orbitdesk.engine.jitting import inner, loop
+
+
+def _dop853_table():
+    """scipy's table of DOP853 coefficients (a file that imports only numpy), loaded without importing
+    the ``scipy.integrate`` package around it; the package's import when its layout differs."""
+    name = "scipy.integrate._ivp.dop853_coefficients"
+    if name in sys.modules:
+        return sys.modules[name]
+    scipy_spec = importlib.util.find_spec("scipy")
+    for folder in scipy_spec.submodule_search_locations or ():
+        path = f"{folder}/integrate/_ivp/dop853_coefficients.py"
+        spec = importlib.util.spec_from_file_location("_orbitdesk_dop853_coefficients", path)
+        try:
+            table = importlib.util.module_from_spec(spec)
+            spec.loader.exec_module(table)
+        except (OSError, ImportError):
+            continue
+        return table
+    return importlib.import_module(name)
+
+
+_D853 = _dop853_table()
+# Dormand-Prince 5(4) (Dormand & Prince 1980), its error weights and dense output (Shampine 1986)
+_DP5_A = np.array([[0, 0, 0, 0, 0],
+                   [1 / 5, 0, 0, 0, 0],
+                   [3 / 40, 9 / 40, 0, 0, 0],
+                   [44 / 45, -56 / 15, 32 / 9, 0, 0],
+                   [19372 / 6561, -25360 / 2187, 64448 / 6561, -212 / 729, 0],
+                   [9017 / 3168, -355 / 33, 46732 / 5247, 49 / 176, -5103 / 18656]])
+_DP5_B = np.array([35 / 384, 0, 500 / 1113, 125 / 192, -2187 / 6784, 11 / 84])
+_DP5_C = np.array([0, 1 / 5, 3 / 10, 4 / 5, 8 / 9, 1])
+_DP5_E = np.array([-71 / 57600, 0, 71 / 16695, -71 / 1920, 17253 / 339200, -22 / 525, 1 / 40])
+_DP5_P = np.array([
+    [1, -8048581381 / 2820520608, 8663915743 / 2820520608, -12715105075 / 11282082432],
+    [0, 0, 0, 0],
+    [0, 131558114200 / 32700410799, -68118460800 / 10900136933, 87487479700 / 32700410799],
+    [0, -1754552775 / 470086768, 14199869525 / 1410260304, -10690763975 / 1880347072],
+    [0, 127303824393 / 49829197408, -318862633887 / 49829197408, 701980252875 / 199316789632],
+    [0, -282668133 / 205662961, 2019193451 / 616988883, -1453857185 / 822651844],
+    [0, 40617522 / 29380423, -110615467 / 29380423, 69997945 / 29380423]])
 
 KIND_DOP853, KIND_DOPRI5, KIND_RK4 = 0, 1, 2
 KINDS = {"dop853": KIND_DOP853, "dopri5": KIND_DOPRI5, "rk4": KIND_RK4}
@@ -46,11 +88,11 @@ C_ALL[0] = _D853.C
 E_ALL[0, :13] = _D853.E5
 E3[:13] = _D853.E3
 D853[:, :] = _D853.D
-A_ALL[1, :6, :5] = _RK45.A
-B_ALL[1, :6] = _RK45.B
-C_ALL[1, :6] = _RK45.C
-E_ALL[1, :7] = _RK45.E
-P5[:7] = _RK45.P
+A_ALL[1, :6, :5] = _DP5_A
+B_ALL[1, :6] = _DP5_B
+C_ALL[1, :6] = _DP5_C
+E_ALL[1, :7] = _DP5_E
+P5[:7] = _DP5_P
 A_ALL[2, 1, 0], A_ALL[2, 2, 1], A_ALL[2, 3, 2] = 0.5, 0.5, 1.0
 B_ALL[2, :4] = 1.0 / 6.0, 1.0 / 3.0, 1.0 / 3.0, 1.0 / 6.0
 C_ALL[2, :4] = 0.0, 0.5, 0.5, 1.0

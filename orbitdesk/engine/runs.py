@@ -16,8 +16,6 @@ from dataclasses import dataclass, field
 from typing import Callable
 
 import numpy as np
-import scipy.integrate
-from scipy.optimize import brentq
 
 from orbitdesk.engine.methods import NAMES
 from orbitdesk.engine.settings import RunSettings
@@ -321,6 +319,8 @@ def _root(fn, ta, tb):
     On the dense output an end value can differ from the step's by round-off and lose the sign
     change (brentq would refuse); the zero then sits at that end.
     """
+    from scipy.optimize import brentq  # only runs with events given as functions get here
+
     fa, fb = fn(ta), fn(tb)
     if fa == 0 or fb == 0 or fa * fb > 0:
         return ta if abs(fa) <= abs(fb) else tb
@@ -348,6 +348,8 @@ def _integrate(system, settings, u0, p, events, report) -> Trajectory:
                                   t1, settings.rtol, settings.atol, settings.max_step,
                                   check=settings.samples > 2 or bool(events))  # only step ends read otherwise
         else:
+            import scipy.integrate
+
             kwargs = dict(rtol=settings.rtol, atol=settings.atol)
             if settings.max_step:
                 kwargs["max_step"] = settings.max_step

@@ -15,7 +15,6 @@ steps that pass, so a run leaves a stretch that needed short steps.
 from __future__ import annotations
 
 import numpy as np
-import scipy.integrate
 
 CHECK_AT = (0.1, 0.4, 0.85)  # where inside each step the interpolant is checked (fractions of the step;
 #                              near the largest gaps of Radau IIA's cubic through 0, 0.155, 0.645, 1)
@@ -29,6 +28,8 @@ class StiffStepper:
 
     def __init__(self, scipy_name: str, fun, jac, t0: float, y0, t_bound: float, rtol: float, atol: float,
                  max_step: float | None = None, check: bool = True):
+        import scipy.integrate  # imported by the stiff path only (a cold start of the others skips it)
+
         self._cls = getattr(scipy.integrate, scipy_name)
         self._fun, self._jac, self._t_bound = fun, jac, float(t_bound)
         self.rtol, self.atol = float(rtol), float(atol)
