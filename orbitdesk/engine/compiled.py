@@ -19,7 +19,7 @@ import hashlib
 import math
 import sys
 import threading
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 from types import ModuleType, SimpleNamespace
 
@@ -43,10 +43,18 @@ class Engine:
     loops: SimpleNamespace
     kernels: ModuleType
     compiled: bool
+    _entries: dict = field(default_factory=dict, repr=False)
 
     @property
     def f(self):
         return self.kernels.model
+
+    def entry(self, name: str):
+        """The loop ``name`` for repeated calls from Python (``jitting.entry``), kept per engine."""
+        found = self._entries.get(name)
+        if found is None:
+            found = self._entries[name] = jitting.entry(getattr(self.loops, name))
+        return found
 
 
 def available() -> bool:

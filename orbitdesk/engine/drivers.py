@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
+from time import perf_counter
 
 import numpy as np
 
@@ -19,7 +20,9 @@ from orbitdesk.engine.explicit_rk import KINDS, PAUSED
 from orbitdesk.engine.methods import method as method_info
 from orbitdesk.engine.status import C_CANCELLED, C_STEP_FAILED
 
-PAUSE_STEPS = 512
+PAUSE_STEPS = 512  # steps before a flow run's first pause; then more while pauses come faster than PAUSE_EVERY
+MAX_PAUSE_STEPS = 65536
+PAUSE_EVERY = 0.02  # seconds
 MEMBER_PAUSE_STEPS = 5_000  # ensembles: steps between pauses (summed over members)
 # a run whose pace would need more steps than the step limit (limits.py; judged after STEP_CHECK_AFTER
 # steps) ends with step_failed: a solution sliding along a kink (sign, abs, if) otherwise steps for days
@@ -81,10 +84,12 @@ def flow_run(engine, name, t0, t1, y0, p, rtol=1e-8, atol=1e-10, max_step=None, 
     span = t1 - t0
     note = ""
     pace = _Pace(t0, t1, engine.compiled)
+    advance, budget, paused = engine.entry("erk_advance"), PAUSE_STEPS, perf_counter()
     while True:
-        code = engine.loops.erk_advance(engine.f, kind, which, adaptive, y, p, K, F, st, float(t1), rtol, atol, max_step,
-                                  float(bound), grid, out_t, out_y, bool(every_step), rows, dirs, terminal,
-                                  ev_t, ev_y, ev_k, PAUSE_STEPS)
+        code = advance(engine.f, kind, which, adaptive, y, p, K, F, st, float(t1), rtol, atol, max_step,
+                       float(bound), grid, out_t, out_y, bool(every_step), rows, dirs, terminal,
+                       ev_t, ev_y, ev_k, budget)
+        budget, paused = _next_budget(budget, paused)
         if every_step and st[5]:
             steps_t.append(out_t[:int(st[5])].copy())
             steps_y.append(out_y[:int(st[5])].copy())
@@ -114,6 +119,16 @@ def flow_run(engine, name, t0, t1, y0, p, rtol=1e-8, atol=1e-10, max_step=None, 
     return out
 
 
+def _next_budget(budget, paused):
+    """Steps before the next pause: doubled (up to MAX_PAUSE_STEPS) while pauses come more often than
+    every PAUSE_EVERY seconds, so a fast run does not spend its time pausing and a slow one still
+    reports progress and notices a cancel within a fraction of a second."""
+    now = perf_counter()
+    if now - paused < PAUSE_EVERY and budget < MAX_PAUSE_STEPS:
+        budget *= 2
+    return budget, now
+
+
 def _paused(pace, st, report, t0, span):
     """At a pause of a flow loop: (PAUSED, "") to go on, or the code that ends the run and why (too slow
     a pace: step_failed with the reason; cancelled by the user)."""
@@ -126,6 +141,70 @@ def _paused(pace, st, report, t0, span):
         except Cancelled:
             return C_CANCELLED, ""
     return PAUSED, ""
+
+
+class ExplicitStepper:
+    """An explicit method of the compiled loop taken one accepted step at a time, with each step's
+    dense output: the interface of scipy's ``OdeSolver`` (``step``, ``t``, ``y``, ``t_old``,
+    ``status``, ``dense_output``) that ``StiffStepper`` shares, for runs whose events are Python
+    functions (runs.py locates them on the dense output). ``code`` is the status code of a failure."""
+
+    def __init__(self, engine, name, t0, y0, t_bound, p, rtol=1e-8, atol=1e-10, max_step=None, dt=0.01,
+                 bound=1e10):
+        self.kind, self.adaptive, self.rtol, self.atol, self.max_step = _step_options(name, rtol, atol, max_step, dt)
+        self.engine, self.bound = engine, float(bound)
+        self.y = np.array(y0, dtype=float)
+        n = self.y.size
+        self.p = np.ascontiguousarray(p, dtype=float)
+        self.K, self.F, self.st = np.zeros((16, n)), np.zeros((7, n)), np.zeros(12)
+        self.t, self.t_old, self.t_bound = float(t0), None, float(t_bound)
+        self.st[0] = self.t
+        self.status, self.code = "running", 0
+        self._grid, self._out_t, self._out_y = np.empty(0), np.empty(0), np.empty((0, n))
+        self._planes = _no_planes(n)
+        self._ev = (np.empty(1), np.empty((1, n)), np.empty(1, dtype=np.int64))
+        self._y_old, self._f_old, self._stages = self.y.copy(), np.zeros(n), np.zeros((16, n))
+        self._advance = engine.entry("erk_advance")
+        engine.loops.evaluate(engine.f, 0, self.t, self.y, self.p, self.K[0])
+        if abs(self.t_bound - self.t) <= 1e-13 * max(1.0, abs(self.t_bound)):
+            self.status = "finished"
+
+    def step(self):
+        """One accepted step (or the failure that stopped it: status "failed", ``code``)."""
+        self._y_old[:] = self.y
+        self._f_old[:] = self.K[0]
+        t_old = self.t
+        rows, dirs, terminal = self._planes
+        code = self._advance(
+            self.engine.f, self.kind, 0, self.adaptive, self.y, self.p, self.K, self.F, self.st, self.t_bound,
+            self.rtol, self.atol, self.max_step, self.bound, self._grid, self._out_t, self._out_y, False, rows, dirs,
+            terminal, *self._ev, 1)
+        if code not in (0, PAUSED):
+            self.status, self.code = "failed", int(code)
+            return None
+        self.t_old, self.t = t_old, float(self.st[0])
+        if code == 0:
+            self.status = "finished"
+        return None
+
+    def dense_output(self):
+        """The last step's dense output: ``sol(t)`` (n,) for a time, (n, k) for k times."""
+        t0, h = self.t_old, self.t - self.t_old
+        y0 = self._y_old.copy()
+        stages = self._stages
+        stages[:] = self.K
+        stages[0] = self._f_old  # the step's first stage (erk_advance moved f at its end there)
+        F = np.zeros_like(self.F)
+        loops, kind = self.engine.loops, self.kind
+        loops.erk_dense_prepare(self.engine.f, kind, 0, t0, y0, self.y.copy(), h, self.p, stages, F)
+
+        def sol(tq):
+            xs = np.atleast_1d(np.asarray((np.asarray(tq, dtype=float) - t0) / h, dtype=float))
+            out = np.empty((xs.size, y0.size))
+            loops.erk_dense_at(kind, F, y0, np.ascontiguousarray(xs), out)
+            return out[0] if np.ndim(tq) == 0 else out.T
+
+        return sol
 
 
 class _Pace:
@@ -397,6 +476,9 @@ def warm_up(engine) -> None:
     planes = (np.zeros((1, n + 1)), np.zeros(1, dtype=np.int64), np.zeros(1, dtype=np.bool_))
     flow_run(engine, "dop853", 0.0, 1e-9, y0, p, grid=np.array([0.0, 1e-9]), planes=planes)
     flow_tangent(engine, "dop853", 0.0, 1e-9, 0.0, y0, np.eye(n), p, 1e-9)
+    stepper = ExplicitStepper(engine, "dop853", 0.0, y0, 1e-9, p)
+    stepper.step()
+    stepper.dense_output()(5e-10)
     members_run(engine, "dop853", 0.0, 1e-9, y0[:, None], p, grid=np.array([1e-9]), planes=planes, max_events=1)
     if hasattr(k, "sde"):  # a model with noise (engine/stochastic.py)
         from orbitdesk.engine.stochastic import warm_up_sde
@@ -404,6 +486,6 @@ def warm_up(engine) -> None:
         warm_up_sde(engine)
 
 
-__all__ = ["FlowOutput", "TangentOutput", "MembersOutput", "flow_run", "map_run", "flow_tangent", "map_tangent",
+__all__ = ["ExplicitStepper", "FlowOutput", "TangentOutput", "MembersOutput", "flow_run", "map_run", "flow_tangent", "map_tangent",
            "members_run", "members_iterate", "warm_up",
            "PAUSE_STEPS"]

@@ -585,3 +585,24 @@ def erk_advance(f, kind, which, adaptive, y, p, K, F, st, t_end, rtol, atol, max
         if stop:
             _save(st, t, h_abs, n_out, gi, n_ev)
             return 0
+
+
+@loop
+def evaluate(f, which, t, z, p, out):
+    """The kernel once, called from Python (the stiff solvers' right-hand side)."""
+    f(which, t, z, p, out)
+
+
+@loop
+def erk_dense_prepare(f, kind, which, t, y, y_new, h, p, K, F):
+    """The dense-output coefficients F of a step erk_advance took from (t, y) to y_new, from its
+    stages K (as the step left them, with K[0] set back to f(t, y)); read off by ``erk_dense_at``."""
+    tmp = np.empty(y.shape[0])
+    dense_coefficients(f, kind, which, t, y, y_new, h, p, K, F, tmp)
+
+
+@loop
+def erk_dense_at(kind, F, y, xs, out):
+    """The dense output at the fractions ``xs`` of the step from y (out: len(xs) x n)."""
+    for j in range(xs.shape[0]):
+        dense_value(kind, F, y, xs[j], out[j])

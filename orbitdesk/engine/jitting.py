@@ -85,6 +85,41 @@ def compiled_loops(*modules) -> SimpleNamespace:
     return _loops(modules, _numba)
 
 
+def entry(fn):
+    """``fn`` for many calls from Python (a stepper's step, a solver's right-hand side, a run's
+    pauses): a compiled loop is called through numba's entry point for the argument types of its
+    first call, skipping numba's typing of every argument on each call (the kernel argument's alone
+    costs about 70 µs, more than a step); a call whose arrays or scalars differ in kind from the
+    first goes through numba's dispatcher as usual. Plain Python is returned as it is."""
+    overloads = getattr(fn, "overloads", None)
+    if overloads is None:
+        return fn
+    known = {}
+
+    def call(*args):
+        key = _kinds(args)
+        found = known.get(key)
+        if found is not None:
+            return found(*args)
+        types = tuple(fn.typeof_pyval(a) for a in args)
+        result = fn(*args)
+        compiled = overloads.get(types)
+        if compiled is not None:
+            known[key] = compiled.entry_point
+        return result
+
+    return call
+
+
+def _kinds(args) -> tuple:
+    """What numba's typing of ``args`` depends on, cheaply: arrays' dtype, dimensions, layout and
+    writability; the type of anything else (the kernel: its own object, one signature per engine)."""
+    import numpy as np
+
+    return tuple((a.dtype.num, a.ndim, a.flags.c_contiguous, a.flags.f_contiguous, a.flags.writeable)
+                 if isinstance(a, np.ndarray) else (type(a), id(a)) if callable(a) else type(a) for a in args)
+
+
 def signature(name: str):
     """The numba signature of a kernel: MODEL (model(which, t, z, p, out)), JAC (jac(t, u, p, out))
     or VALUES (jac_values(t, u, p, out))."""
@@ -95,4 +130,4 @@ def signature(name: str):
             "VALUES": t.void(t.float64, a1, a1, a1)}[name]
 
 
-__all__ = ["enabled", "loop", "inner", "python_loops", "compiled_loops", "signature"]
+__all__ = ["enabled", "entry", "loop", "inner", "python_loops", "compiled_loops", "signature"]

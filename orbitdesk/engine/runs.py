@@ -1,10 +1,11 @@
 """Single runs: integrate a flow or iterate a map, with sampling, events, bounds and cancel.
 
-Explicit methods (Dormand-Prince 8(5,3) and 5(4), RK4) and maps run in the compiled loops of
-``integrators`` on the model's kernels: output samples are read off each step's dense output in
-the same pass, plane events are located there by one root finder. Stiff methods (``stiff.py``: scipy's
-steppers with each step's interpolant checked), and events given as arbitrary functions, step one
-step at a time here. Every path
+Explicit methods (Dormand-Prince 8(5,3) and 5(4), RK4) and maps run in the compiled loops
+(``explicit_rk.py``, ``maps.py``) on the model's kernels: output samples are read off each step's
+dense output in the same pass, plane events are located there by one root finder. Stiff methods
+(``stiff.py``: scipy's steppers on the model's kernels and sparse Jacobian, each step's interpolant
+checked), and events given as Python functions (the same compiled loop taken one step at a time,
+``drivers.ExplicitStepper``), step one step at a time here. Every path
 reports progress, stops cleanly on blow-up, undefined values or cancel and keeps what it computed.
 """
 
@@ -19,7 +20,7 @@ import numpy as np
 
 from orbitdesk.engine.methods import NAMES
 from orbitdesk.engine.settings import RunSettings
-from orbitdesk.engine import compiled, drivers, limits, stochastic
+from orbitdesk.engine import compiled, drivers, limits, stiff, stochastic
 from orbitdesk.engine.stiff import StiffStepper
 from orbitdesk.engine.status import (C_CANCELLED, C_DIVERGED, C_STEP_FAILED, C_UNDEFINED, CANCELLED, DIVERGED,
                                  OK, STEP_FAILED, UNDEFINED)
@@ -261,58 +262,6 @@ def _iterate(system, settings, u0, p, report) -> Trajectory:
                       system.derived_values(n_time, states, p), steps_taken=states.shape[1] - 1)
 
 
-class _RK4Stepper:
-    """Fixed-step classical Runge-Kutta with a cubic Hermite dense output per step."""
-
-    def __init__(self, fun, t0, y0, t_bound, dt):
-        self.fun, self.t, self.y, self.t_bound = fun, t0, np.asarray(y0, float), t_bound
-        self.h = abs(dt) * (1 if t_bound >= t0 else -1)
-        self.status = "running"
-        self.f = np.asarray(fun(t0, self.y), float)
-        self.t_old = None
-
-    def step(self):
-        h = self.h
-        if (self.t + h - self.t_bound) * np.sign(h) > 0:
-            h = self.t_bound - self.t
-        t, y, fun = self.t, self.y, self.fun
-        k1 = self.f
-        k2 = np.asarray(fun(t + h / 2, y + h / 2 * k1), float)
-        k3 = np.asarray(fun(t + h / 2, y + h / 2 * k2), float)
-        k4 = np.asarray(fun(t + h, y + h * k3), float)
-        self.y_old, self.f_old, self.t_old = y, k1, t
-        self.y = y + h / 6 * (k1 + 2 * k2 + 2 * k3 + k4)
-        self.t = t + h
-        self.f = np.asarray(fun(self.t, self.y), float)
-        if abs(self.t - self.t_bound) <= 1e-12 * max(1.0, abs(self.t_bound)):
-            self.status = "finished"
-
-    def dense_output(self):
-        t0, h, y0, y1, f0, f1 = self.t_old, self.t - self.t_old, self.y_old, self.y, self.f_old, self.f
-
-        def sol(tq):
-            s = (np.asarray(tq, float) - t0) / h
-            h00, h10, h01, h11 = 2 * s**3 - 3 * s**2 + 1, s**3 - 2 * s**2 + s, -2 * s**3 + 3 * s**2, s**3 - s**2
-            if np.ndim(s) == 0:
-                return h00 * y0 + h10 * h * f0 + h01 * y1 + h11 * h * f1
-            return (np.outer(y0, h00) + np.outer(h * f0, h10) + np.outer(y1, h01) + np.outer(h * f1, h11))
-
-        return sol
-
-
-def _make_rhs(system, p):
-    f = system.rhs_function(p)
-
-    def fun(t, y):
-        try:
-            return f(t, y)
-        except (ValueError, ZeroDivisionError, TypeError, OverflowError):
-            raise _Stop(UNDEFINED, system.explain_undefined(t, y, p)
-                        or f"an expression is undefined at {system.time_name} = {t:.6g}") from None
-
-    return fun
-
-
 def _root(fn, ta, tb):
     """A zero of fn between ta and tb, where the step's end values showed a sign change.
 
@@ -331,7 +280,6 @@ def _integrate(system, settings, u0, p, events, report) -> Trajectory:
     t0, t1 = float(settings.t_start), float(settings.t_end)
     if not t1 != t0 or not (math.isfinite(t0) and math.isfinite(t1)):
         raise ValueError("the end time must differ from the start time")
-    fun = _make_rhs(system, p)
     direction = 1.0 if t1 > t0 else -1.0
     n = system.n_states
     sample_t = np.linspace(t0, t1, settings.samples) if settings.samples > 1 else None
@@ -341,19 +289,15 @@ def _integrate(system, settings, u0, p, events, report) -> Trajectory:
     ev_y = [[] for _ in events]
     status, message, steps = OK, "", 0
     try:
-        if settings.method == "rk4":
-            solver = _RK4Stepper(fun, t0, u0, t1, settings.dt)
-        elif settings.method_info.stiff:  # every step's interpolant held to the tolerance (stiff.py)
-            solver = StiffStepper(settings.method_info.scipy_name, fun, lambda t, y: system.jac(t, y, p), t0, u0,
-                                  t1, settings.rtol, settings.atol, settings.max_step,
-                                  check=settings.samples > 2 or bool(events))  # only step ends read otherwise
-        else:
-            import scipy.integrate
-
-            kwargs = dict(rtol=settings.rtol, atol=settings.atol)
-            if settings.max_step:
-                kwargs["max_step"] = settings.max_step
-            solver = getattr(scipy.integrate, settings.method_info.scipy_name)(fun, t0, u0, t1, **kwargs)
+        if settings.method_info.stiff:  # every step's interpolant held to the tolerance (stiff.py)
+            fun, jac = stiff.model_functions(system, p)
+            solver = StiffStepper(settings.method_info.scipy_name, fun, jac, t0, u0, t1, settings.rtol, settings.atol,
+                                  settings.max_step, check=settings.samples > 2 or bool(events))  # else step ends only
+        else:  # the compiled loop one step at a time
+            per_time = 4 / settings.dt if settings.method == "rk4" else 1200
+            engine = compiled.engine_for_work(system, abs(t1 - t0) * per_time * max(1.0, n / 3))
+            solver = drivers.ExplicitStepper(engine, settings.method, t0, u0, t1, p, settings.rtol, settings.atol,
+                                             settings.max_step, settings.dt, settings.bound)
         if sample_t is None:
             ts.append(t0)
             ys.append(u0.copy())
@@ -366,6 +310,9 @@ def _integrate(system, settings, u0, p, events, report) -> Trajectory:
         while solver.status == "running":
             message_step = solver.step()
             steps += 1
+            if solver.status == "failed" and getattr(solver, "code", 0):  # the compiled loop's own stop
+                raise _Stop(status_word(solver.code), _describe_stop(system, solver.code, solver.t, solver.y, p,
+                                                                      1e-12 * max(1.0, abs(solver.t)), settings.bound))
             if solver.status == "failed":
                 raise _Stop(STEP_FAILED, f"the step size collapsed at {system.time_name} = {solver.t:.6g} "
                                          f"({message_step}); the system may be stiff: try the stiff method")
@@ -417,6 +364,8 @@ def _integrate(system, settings, u0, p, events, report) -> Trajectory:
             report((t_new - t0) / (t1 - t0))
     except _Stop as stop:
         status, message = stop.status, stop.message
+    except UndefinedValue as err:  # the stiff path's right-hand side or Jacobian
+        status, message = UNDEFINED, str(err)
     except Cancelled:
         status, message = CANCELLED, "cancelled"
     time = np.array(ts, dtype=float)

@@ -82,18 +82,32 @@ class StiffStepper:
         n = y_new.size
         delta = 1e-4 * h
         try:
-            jac = np.asarray(self._jac(t_old + 0.5 * h, sol(t_old + 0.5 * h)), dtype=float).reshape(n, n)
-            filt = np.eye(n) / h - jac
-            for s in CHECK_AT:
+            jac = self._jac(t_old + 0.5 * h, sol(t_old + 0.5 * h))
+            defects = np.empty((n, len(CHECK_AT)))
+            for k, s in enumerate(CHECK_AT):
                 tq = t_old + s * h
                 slope = (sol(tq + delta) - sol(tq - delta)) / (2 * delta)
-                defect = slope - np.asarray(self._fun(tq, sol(tq)), dtype=float)
-                error = np.linalg.solve(filt, defect)
-                if not np.all(np.isfinite(error)) or np.sqrt(np.mean((error / scale) ** 2)) > 1.0:
-                    return False
-        except (np.linalg.LinAlgError, ArithmeticError):
+                defects[:, k] = slope - np.asarray(self._fun(tq, sol(tq)), dtype=float)
+            errors = _solve_shifted(jac, h, defects)
+        except (np.linalg.LinAlgError, ArithmeticError, RuntimeError):  # RuntimeError: SuperLU's singular factor
             return True  # (I/h - J) singular: no estimate; the step's own error control stands
+        for k in range(len(CHECK_AT)):
+            error = errors[:, k]
+            if not np.all(np.isfinite(error)) or np.sqrt(np.mean((error / scale) ** 2)) > 1.0:
+                return False
         return True
+
+
+def _solve_shifted(jac, h, rhs):
+    """(I/h - J)^{-1} rhs for a dense or sparse (SuperLU) Jacobian, all columns with one factorisation."""
+    import scipy.sparse
+
+    n = rhs.shape[0]
+    if scipy.sparse.issparse(jac):
+        from scipy.sparse.linalg import splu
+
+        return splu(scipy.sparse.identity(n, format="csc") / h - scipy.sparse.csc_matrix(jac)).solve(rhs)
+    return np.linalg.solve(np.eye(n) / h - np.asarray(jac, dtype=float).reshape(n, n), rhs)
 
 
 def _snapshot(solver):
@@ -154,6 +168,60 @@ def variational(system, p, m: int, rhs=None):
         full[:n, :n] = J
         full[n:, n:] = np.kron(J, eye)
         return full
+
+
+SPARSE_FROM = 30  # states from which the stiff solvers get the Jacobian as a sparse matrix (SuperLU)
+
+
+def model_functions(system, p, which: int = 0):
+    """(fun, jac) of the model for the stiff steppers, on its kernels (``codegen.py``): ``fun(t, z)`` the
+    compiled right-hand side when the model's kernels are compiled (their plain-Python twin until then),
+    with ``which`` tangent vectors the variational equations too (z = (u, V), V n x which row by row);
+    ``jac(t, z)`` the Jacobian's structural entries (``jac_values``, each equation differentiated only by
+    the states it holds) as a sparse matrix from SPARSE_FROM states on, dense below (for the tangent
+    columns the same J in each block, their dependence on u left out: it serves Newton's iteration
+    only). An undefined value raises UndefinedValue."""
+    from orbitdesk.engine import compiled
+    from orbitdesk.system.compiled_system import UNDEFINED_ERRORS, UndefinedValue
+
+    engine = compiled.engine_for(system)
+    kernels, evaluate, f = engine.kernels, engine.entry("evaluate"), engine.f
+    n = system.n_states
+    size = n * (which + 1)
+    p = np.ascontiguousarray(p, dtype=float)
+    p_list = p.tolist()
+    rows, cols = np.asarray(kernels.JAC_ROWS, dtype=np.int64), np.asarray(kernels.JAC_COLS, dtype=np.int64)
+    all_rows, all_cols = rows, cols
+    if which:  # block diagonal: J for u, kron(J, I) for V stored row by row
+        all_rows = np.concatenate([rows, (n + rows[:, None] * which + np.arange(which)[None, :]).ravel()])
+        all_cols = np.concatenate([cols, (n + cols[:, None] * which + np.arange(which)[None, :]).ravel()])
+    values = np.empty(rows.size)
+    sparse = size >= SPARSE_FROM
+    if sparse:
+        import scipy.sparse
+
+    def fun(t, z):
+        z = np.ascontiguousarray(z, dtype=float)
+        out = np.empty(size)
+        evaluate(f, which, float(t), z, p, out)
+        if not np.isfinite(out).all():
+            raise UndefinedValue(system.explain_undefined(t, z[:n], p)
+                                 or f"an expression is undefined at {system.time_name} = {t:.6g}")
+        return out
+
+    def jac(t, z):
+        try:
+            kernels.jac_values(float(t), np.asarray(z[:n], dtype=float).tolist(), p_list, values)
+        except UNDEFINED_ERRORS:
+            values[:] = np.nan
+        if not np.isfinite(values).all():
+            raise UndefinedValue(f"the Jacobian is undefined at {system.time_name} = {t:.6g}")
+        data = np.concatenate([values, np.repeat(values, which)]) if which else values.copy()
+        if sparse:
+            return scipy.sparse.csc_matrix((data, (all_rows, all_cols)), shape=(size, size))
+        dense = np.zeros((size, size))
+        dense[all_rows, all_cols] = data
+        return dense
 
     return fun, jac
 
@@ -219,6 +287,8 @@ def tangent_run(system, scipy_name: str, t0: float, t1: float, keep_from: float,
                          int(code), float(t), u.copy(), note, V=V.copy())
 
 
+
+
 def _columns(rows, n):
     return np.array(rows, dtype=float).reshape(-1, n).T if rows else np.empty((n, 0))
 
@@ -252,4 +322,5 @@ def looks_stiff(system, p, run, min_steps: int = STIFF_STEPS) -> bool:
     return mean_step * spectral_radius(system, p, run.states[:, picks]) > 1.5
 
 
-__all__ = ["StiffStepper", "looks_stiff", "solve_at", "spectral_radius", "tangent_run", "variational"]
+__all__ = ["StiffStepper", "looks_stiff", "model_functions", "solve_at", "spectral_radius", "tangent_run",
+           "variational", "SPARSE_FROM"]

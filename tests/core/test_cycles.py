@@ -31,6 +31,14 @@ def test_van_der_pol_small_mu_amplitude(vdp):
     assert cycle.period == pytest.approx(2 * math.pi, rel=0.01)  # same averaging: frequency 1 + O(mu^2)
 
 
+def test_van_der_pol_cycle_by_the_stiff_method(vdp):
+    # the same cycle with Radau on the model's kernels and its Jacobian (the monodromy's tangent
+    # columns too); period 6.6633 at mu = 1 (from memory), Floquet: one multiplier 1 (the flow direction)
+    cycle = find_cycle(vdp, vdp.param_vector({"mu": 1.0}), method="stiff", rtol=1e-9, atol=1e-11)
+    assert cycle.period == pytest.approx(6.6633, abs=5e-5)
+    assert min(abs(m - 1) for m in cycle.multipliers) < 1e-5
+
+
 def test_van_der_pol_mu_one_period(vdp):
     # period of the Van der Pol cycle at mu = 1: 6.6633 (value from memory, four figures)
     cycle = find_cycle(vdp, vdp.param_vector({"mu": 1.0}))

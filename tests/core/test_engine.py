@@ -25,6 +25,23 @@ def test_harmonic_oscillator_matches_closed_form(method, tol):
     assert np.max(np.abs(run.series("x'") + 2 * np.sin(2 * run.time))) < 2 * tol
 
 
+@pytest.mark.parametrize("method", ["dop853", "rk45", "rk4"])
+def test_events_as_functions_and_as_planes_are_found_by_the_same_loop(method):
+    # an event given as a Python function steps the compiled loop one step at a time and is located on
+    # the same dense output as a plane inside the loop: the same steps, the same crossings (round-off apart).
+    # Closed form as the outside check: x = cos 2t falls through 0 at t = pi/4 + k pi/2 ... rising at 3pi/4 + k pi
+    system = compile_model(OSCILLATOR)
+    settings = RunSettings(method=method, t_end=10, samples=101, dt=1e-3)
+    by_function = simulate(system, settings, events=[Event(lambda t, u: u[0], direction=1)])
+    by_plane = simulate(system, settings, events=[Event.on_plane([1.0, 0.0], 0.0, direction=1)])
+    assert by_function.steps_taken == by_plane.steps_taken
+    assert np.max(np.abs(by_function.states - by_plane.states)) < 1e-12
+    times = by_function.event_times[0]
+    assert times == pytest.approx(by_plane.event_times[0], abs=1e-12)
+    assert times == pytest.approx(3 * np.pi / 4 + np.pi * np.arange(times.size), abs=1e-6)
+    assert times.size == 3
+
+
 @pytest.mark.parametrize("amplitude", [0.1, 1.0, 2.0, 3.0])
 def test_pendulum_period_against_complete_elliptic_integral(amplitude):
     # T = 4 sqrt(L/g) K(m) with m = sin^2(theta0/2) (scipy.special.ellipk takes the parameter m)

@@ -108,3 +108,28 @@ def test_section_reports_the_exact_crossings(method, lam):
     assert up.times == pytest.approx(math.pi / 6 + 2 * math.pi * k, abs=1e-6)
     assert down.times == pytest.approx(5 * math.pi / 6 + 2 * math.pi * (k - 1), abs=1e-6)
     assert np.all(np.abs(up.points[0] - 0.5) < 1e-8)
+
+
+def test_a_large_stiff_model_runs_on_its_sparse_jacobian():
+    # the heat equation on 40 interior points, u_i' = d (u_{i-1} - 2 u_i + u_{i+1}), u = 0 at both ends,
+    # d = 41^2 (rates from -9.9 to -6,700: stiff). From the first mode u_i = sin(pi i / 41) the solution is
+    # that mode times exp(lambda_1 t), lambda_1 = -4 d sin^2(pi / 82) (closed form, the discrete Laplacian's
+    # eigenpairs)
+    from orbitdesk.engine.stiff import SPARSE_FROM, model_functions
+
+    N, d = 40, 41.0 ** 2
+    lines = [f"d = {d:g}"]
+    for i in range(1, N + 1):
+        left, right = (f"u{i - 1}" if i > 1 else "0"), (f"u{i + 1}" if i < N else "0")
+        lines += [f"u{i}' = d*({left} - 2*u{i} + {right})", f"u{i}(0) = {math.sin(math.pi * i / (N + 1))!r}"]
+    system = compile_model("\n".join(lines) + "\n")
+    _, jac = model_functions(system, system.param_values)
+    J = jac(0.0, system.initial)
+    assert N >= SPARSE_FROM and J.format == "csc" and J.nnz == 3 * N - 2  # the tridiagonal structure only
+    rate = -4 * d * math.sin(math.pi / (2 * (N + 1))) ** 2
+    mode = np.sin(np.pi * np.arange(1, N + 1) / (N + 1))
+    for method in ("stiff", "bdf"):
+        run = simulate(system, RunSettings(method=method, rtol=1e-8, atol=1e-10, t_end=0.3, samples=31))
+        assert run.status == OK
+        exact_states = mode[:, None] * np.exp(rate * run.time)[None, :]
+        assert np.max(np.abs(run.states - exact_states)) < 1e-6
