@@ -10,7 +10,6 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from time import perf_counter
 
 import numpy as np
 
@@ -20,9 +19,7 @@ from orbitdesk.engine.explicit_rk import KINDS, PAUSED
 from orbitdesk.engine.methods import method as method_info
 from orbitdesk.engine.status import C_CANCELLED, C_STEP_FAILED
 
-PAUSE_STEPS = 512  # steps before a flow run's first pause; then more while pauses come faster than PAUSE_EVERY
-MAX_PAUSE_STEPS = 65536
-PAUSE_EVERY = 0.02  # seconds
+PAUSE_STEPS = 512
 MEMBER_PAUSE_STEPS = 5_000  # ensembles: steps between pauses (summed over members)
 # a run whose pace would need more steps than the step limit (limits.py; judged after STEP_CHECK_AFTER
 # steps) ends with step_failed: a solution sliding along a kink (sign, abs, if) otherwise steps for days
@@ -84,12 +81,11 @@ def flow_run(engine, name, t0, t1, y0, p, rtol=1e-8, atol=1e-10, max_step=None, 
     span = t1 - t0
     note = ""
     pace = _Pace(t0, t1, engine.compiled)
-    advance, budget, paused = engine.entry("erk_advance"), PAUSE_STEPS, perf_counter()
+    advance = engine.entry("erk_advance")
     while True:
         code = advance(engine.f, kind, which, adaptive, y, p, K, F, st, float(t1), rtol, atol, max_step,
                        float(bound), grid, out_t, out_y, bool(every_step), rows, dirs, terminal,
-                       ev_t, ev_y, ev_k, budget)
-        budget, paused = _next_budget(budget, paused)
+                       ev_t, ev_y, ev_k, PAUSE_STEPS)
         if every_step and st[5]:
             steps_t.append(out_t[:int(st[5])].copy())
             steps_y.append(out_y[:int(st[5])].copy())
@@ -117,16 +113,6 @@ def flow_run(engine, name, t0, t1, y0, p, rtol=1e-8, atol=1e-10, max_step=None, 
     else:
         out.event_y = np.empty((n, 0))
     return out
-
-
-def _next_budget(budget, paused):
-    """Steps before the next pause: doubled (up to MAX_PAUSE_STEPS) while pauses come more often than
-    every PAUSE_EVERY seconds, so a fast run does not spend its time pausing and a slow one still
-    reports progress and notices a cancel within a fraction of a second."""
-    now = perf_counter()
-    if now - paused < PAUSE_EVERY and budget < MAX_PAUSE_STEPS:
-        budget *= 2
-    return budget, now
 
 
 def _paused(pace, st, report, t0, span):
