@@ -169,6 +169,8 @@ def variational(system, p, m: int, rhs=None):
         full[n:, n:] = np.kron(J, eye)
         return full
 
+    return fun, jac
+
 
 SPARSE_FROM = 30  # states from which the stiff solvers get the Jacobian as a sparse matrix (SuperLU)
 
@@ -285,8 +287,6 @@ def tangent_run(system, scipy_name: str, t0: float, t1: float, keep_from: float,
         row_t.append(t)
     return TangentOutput(sums, averaged, np.array(rows, dtype=float).reshape(-1, m), np.array(row_t, dtype=float),
                          int(code), float(t), u.copy(), note, V=V.copy())
-
-
 
 
 def _columns(rows, n):
