@@ -14,6 +14,7 @@ from orbitdesk.analyses.cycles import CycleError, find_cycle
 from orbitdesk.analyses.sections import plane_section
 from orbitdesk.analyses.time_scales import MIN_WINDOW, choose_method, time_scale
 from orbitdesk.engine.runs import RunSettings
+from orbitdesk.samples.models import LORENZ
 from orbitdesk.system.compiled_system import compile_model
 
 
@@ -44,6 +45,17 @@ def test_the_default_method_stands_unless_the_system_is_stiff():
     mild = van_der_pol(1.0)
     assert choose_method(mild, mild.param_values, mild.initial, 200.0).method == "dop853"
     assert choose_method(stiff, stiff.param_values, stiff.initial, 3000.0, method="rk45").method == "rk45"
+
+
+def test_a_flow_settling_on_a_stable_focus_is_not_taken_for_stiff():
+    # Lorenz (1963) at r = 20 and 21 (below r_H = 24.74, Sparrow 1982) settles on a stable focus whose
+    # eigenvalues are all of size 1 to 23: nothing stiff, yet the default method's step near it reached
+    # 3 / 23, which the old threshold (1.5) read as stiffness and the stiff method then could not take
+    # the sweep's maxima. The default method is stable to about 6 there.
+    lorenz = compile_model(LORENZ)
+    for r in (20.2, 21.0, 30.0):
+        choice = choose_method(lorenz, [10.0, r, 8.0 / 3.0], [1.0, 1.0, 1.0], 5000.0)
+        assert choice.method == "dop853", (r, choice.note)
 
 
 @pytest.mark.slow
