@@ -32,6 +32,7 @@ LOOP_MODULES = (explicit_rk, maps, tangent, members, stochastic)
 _SIGNATURES = {"model": "MODEL"}  # the kernels the loops call; jac and jac_values stay plain Python
 _CACHE_OPTION = "cache=_ON_DISK"  # private_cache sets _ON_DISK: the module is backed by its verified file
 _lock = threading.Lock()
+_batch_lock = threading.RLock()
 _engines: dict[str, "Engine"] = {}  # source hash -> compiled engine, its loops ready
 _pending: dict[str, threading.Thread] = {}
 
@@ -43,6 +44,8 @@ class Engine:
     loops: SimpleNamespace
     kernels: ModuleType
     compiled: bool
+    batch_text: str = ""  # the source of the batched kernel's module (compiled when first used)
+    _batch: object = None
     _entries: dict = field(default_factory=dict, repr=False)
 
     @property
@@ -56,17 +59,36 @@ class Engine:
             found = self._entries[name] = jitting.entry(getattr(self.loops, name))
         return found
 
+    @property
+    def batch(self):
+        """The batched kernel (``codegen.batch_source``): its own module, compiled (or loaded from
+        the cache) the first time members run, so a single run never waits for it."""
+        if self._batch is None:
+            with _batch_lock:
+                if self._batch is None:
+                    digest = _digest(self.batch_text)
+                    module = (_import_compiled(self.batch_text, digest, "b") if self.compiled
+                              else _exec_module(self.batch_text, f"pyb{digest}"))
+                    self._batch = module.batch
+        return self._batch
+
 
 def available() -> bool:
     return jitting.enabled()
 
 
-def module_source(system, jit: bool) -> str:
-    """The kernels' module text (kept on the system)."""
-    key = "_kernel_source_jit" if jit else "_kernel_source_py"
+def module_source(system, jit: bool, batch: bool = False) -> str:
+    """The kernels' module text (kept on the system); ``batch``: the batched kernel's module."""
+    key = ("_kernel_source_jit" if jit else "_kernel_source_py") + ("_batch" if batch else "")
     cached = system.__dict__.get(key)
     if cached is None:
-        if jit:
+        if batch:
+            head = ["import math", "from math import *  # noqa: F401,F403", "import numpy as np"]
+            head += (["from numba import cfunc", "from orbitdesk.engine import jitting", "",
+                      f"_batch_kernel = cfunc(jitting.signature('BATCH'), {_CACHE_OPTION}, error_model='numpy')"]
+                     if jit else ["", "", "def _batch_kernel(f):", "    return f", "", "",
+                                  "def _fill_nan(a):", "    a[...] = math.nan"])
+        elif jit:
             head = ["import math", "from math import *  # noqa: F401,F403", "import numpy as np",
                     "from numba import cfunc, njit", "from orbitdesk.engine import jitting", "", "",
                     "def _plain(f):", "    return f", ""]
@@ -79,8 +101,10 @@ def module_source(system, jit: bool) -> str:
                     "def _plain(f):", "    return f", "", "",
                     "def _fill_nan(a):", "    a[...] = math.nan", ""]
             head += [f"_{name}_kernel = _plain" for name in list(_signatures(system)) + ["part"]]
-        head += ["_jac_kernel = _jac_values_kernel = _plain  # called from Python (stiff solvers, Newton)"]
-        cached = system.__dict__[key] = HEADER + "\n".join(head) + "\n\n\n" + kernel_source(system, guard=not jit) + "\n"
+        if not batch:
+            head += ["_jac_kernel = _jac_values_kernel = _plain  # called from Python (stiff solvers, Newton)"]
+        cached = system.__dict__[key] = HEADER + "\n".join(head) + "\n\n\n" + kernel_source(
+            system, guard=not jit, batch=batch) + "\n"
     return cached
 
 
@@ -118,19 +142,19 @@ def _exec_module(source: str, name: str, folder: Path | None = None) -> ModuleTy
                                             module_name=f"orbitdesk_kernels_{name}", on_disk_flag="_ON_DISK")
 
 
-def _import_compiled(source: str, digest: str) -> ModuleType:
+def _import_compiled(source: str, digest: str, prefix: str = "m") -> ModuleType:
     import numba
 
     folder = cache_folder()
     if folder is None or numba.config.CACHE_DIR:  # no safe place for its machine code: compile in memory
-        return _exec_module(source, f"m{digest}")  # no folder: _ON_DISK is False
-    return _exec_module(source, f"m{digest}", folder)
+        return _exec_module(source, f"{prefix}{digest}")  # no folder: _ON_DISK is False
+    return _exec_module(source, f"{prefix}{digest}", folder)
 
 
-def _compile(source: str, digest: str) -> Engine:
+def _compile(source: str, digest: str, batch_text: str) -> Engine:
     from orbitdesk.engine.drivers import warm_up
 
-    engine = Engine(jitting.compiled_loops(*LOOP_MODULES), _import_compiled(source, digest), True)
+    engine = Engine(jitting.compiled_loops(*LOOP_MODULES), _import_compiled(source, digest), True, batch_text)
     warm_up(engine)  # compile the loops for these kernels (or load them from numba's cache)
     with _lock:
         _engines[digest] = engine
@@ -143,7 +167,8 @@ def python_engine(system) -> Engine:
     cached = system.__dict__.get("_python_engine")
     if cached is None:
         kernels = _exec_module(module_source(system, jit=False), f"py{id(system)}")
-        cached = system.__dict__["_python_engine"] = Engine(jitting.python_loops(*LOOP_MODULES), kernels, False)
+        cached = system.__dict__["_python_engine"] = Engine(jitting.python_loops(*LOOP_MODULES), kernels, False,
+                                                            module_source(system, jit=False, batch=True))
     return cached
 
 
@@ -169,7 +194,7 @@ def engine_for(system, wait: bool = False) -> Engine:
         with _lock:
             if digest in _engines:
                 return _engines[digest]
-    return _compile(source, digest)
+    return _compile(source, digest, module_source(system, jit=True, batch=True))
 
 
 def _cached_on_disk(digest: str) -> bool:
@@ -191,14 +216,15 @@ def prepare(system) -> None:
     with _lock:
         if digest in _engines or digest in _pending:
             return
-        thread = _pending[digest] = threading.Thread(target=_background, args=(source, digest), daemon=True,
+        thread = _pending[digest] = threading.Thread(target=_background, daemon=True,
+                                                     args=(source, digest, module_source(system, jit=True, batch=True)),
                                                      name="orbitdesk-compile")
     thread.start()
 
 
-def _background(source, digest):
+def _background(source, digest, batch_text):
     try:
-        _compile(source, digest)
+        _compile(source, digest, batch_text)
     except Exception:  # the Python engine keeps serving; a later wait=True call reports the problem
         with _lock:
             _pending.pop(digest, None)

@@ -16,6 +16,7 @@ import numpy as np
 from orbitdesk.engine import limits
 from orbitdesk.engine.progress import Cancelled
 from orbitdesk.engine.explicit_rk import KINDS, PAUSED
+from orbitdesk.engine.members import MS_ROWS, R_ACC, R_GIVE_UP, R_ID, R_REJ, R_T
 from orbitdesk.engine.methods import method as method_info
 from orbitdesk.engine.status import C_CANCELLED, C_STEP_FAILED
 
@@ -355,6 +356,38 @@ def _member_rows(U0, P, tangents):
     return np.ascontiguousarray(U), rows, n, m
 
 
+BLOCK_MEMBERS = 256  # members in flight at most (their stages stay in the cache)
+
+
+def _block(N, nz, n_params):
+    """Work arrays of the members in flight: Z, Pb, K, Y1, ACC, TS, MS, BS (members.members_advance)."""
+    B = max(1, min(N, BLOCK_MEMBERS, max(8, 65536 // (17 * nz))))
+    return (np.zeros((nz, B)), np.zeros((n_params, B)), np.zeros((16, nz, B)), np.zeros((nz, B)),
+            np.zeros((nz, B)), np.zeros(B), np.zeros((MS_ROWS, B)), np.zeros(3))
+
+
+def _judge_members(MS, flying, t0, ends, compiled, paces, notes) -> None:
+    """Each member in flight judged by its pace as a run is (``_Pace``); one whose pace would need more
+    steps than the limit gets MS[R_GIVE_UP] set (the loop stops it with step_failed) and a note. Only
+    members whose whole-run pace is past a sixteenth of the limit are looked at one by one."""
+    if not flying:
+        return
+    ids = MS[R_ID, :flying].astype(np.int64)
+    taken = MS[R_ACC, :flying] + MS[R_REJ, :flying]
+    done = np.abs(MS[R_T, :flying] - t0)
+    with np.errstate(all="ignore"):
+        projected = np.where(done > 0, taken * np.abs(ends[ids] - t0) / done, np.inf)
+    for c in np.flatnonzero(projected > limits.step_limit(compiled) / 16):
+        i = int(ids[c])
+        pace = paces.setdefault(i, _Pace(t0, ends[i], compiled))
+        st = np.zeros(4)
+        st[0], st[2], st[3] = MS[R_T, c], MS[R_ACC, c], MS[R_REJ, c]
+        note = pace.check(st)
+        if note:
+            MS[R_GIVE_UP, c] = 1.0
+            notes[i] = note.replace("the run stopped", f"member {i + 1} stopped", 1)
+
+
 def members_run(engine, name, t0, t_end, U0, P, rtol=1e-8, atol=1e-10, max_step=None, dt=0.01, bound=1e10,
                 grid=None, planes=None, max_events=0, report=None, t_keep=None, tangents=0,
                 interval=1.0, keep_going=False) -> MembersOutput:
@@ -390,27 +423,24 @@ def members_run(engine, name, t0, t_end, U0, P, rtol=1e-8, atol=1e-10, max_step=
     codes, t_reached, steps = np.zeros(N, dtype=np.int64), np.zeros(N), np.zeros(N)
     sums = np.zeros((N, m + 1))
     keep = float(t0 if t_keep is None else t_keep)
-    K, F, st, mst = np.zeros((16, nz)), np.zeros((7, nz)), np.zeros(12), np.zeros(8)
-    notes, pace, judged = {}, None, -1
+    work = _block(N, nz, rows.shape[1])
+    g = engine.batch
+    notes, paces = {}, {}
     while True:
-        code = engine.loops.members_advance(engine.f, kind, adaptive, U, rows, float(t0), ends, rtol, atol, max_step,
+        code = engine.loops.members_advance(engine.f, g, kind, adaptive, U, rows, float(t0), ends, rtol, atol, max_step,
                                             float(bound), grid, samples, plane_rows, dirs, terminal, ev_t, ev_y,
                                             ev_count, codes, t_reached, steps, keep, int(m), float(interval),
-                                            bool(keep_going), sums, K, F, st, mst, MEMBER_PAUSE_STEPS)
+                                            bool(keep_going), sums, *work, MEMBER_PAUSE_STEPS)
         if code != PAUSED:
             break
-        i = int(mst[0])
-        if i < N and mst[1]:
-            if i != judged:
-                pace, judged = _Pace(t0, ends[i], engine.compiled), i
-            note = pace.check(st)
-            if note:
-                mst[6] = 1.0  # the loop stops this member with step_failed when it goes on
-                notes[i] = note.replace("the run stopped", f"member {i + 1} stopped", 1)
+        _judge_members(work[-2], int(work[-1][0]), t0, ends, engine.compiled, paces, notes)
         if report is not None:
-            span = ends[i] - t0 if i < N else 1.0
-            within = min(1.0, max(0.0, (st[0] - t0) / span)) if mst[1] and span else 0.0
-            report((i + within) / N)  # Cancelled goes to the caller
+            MS, BS = work[-2], work[-1]
+            flying = int(BS[0])
+            span = np.where(ends[MS[R_ID, :flying].astype(np.int64)] != t0,
+                            ends[MS[R_ID, :flying].astype(np.int64)] - t0, 1.0)
+            within = np.clip((MS[R_T, :flying] - t0) / span, 0.0, 1.0).sum()
+            report((BS[2] + within) / N)  # Cancelled goes to the caller
     count = ev_count.astype(np.int64)
     beyond = np.arange(E)[None, :] >= count[:, None]
     ev_t[beyond] = np.nan
@@ -423,26 +453,30 @@ def members_run(engine, name, t0, t_end, U0, P, rtol=1e-8, atol=1e-10, max_step=
                          sums[:, :m] if m else None, sums[:, m] if m else None, notes)
 
 
-def members_iterate(engine, n0, n_end, keep_from, U0, P, samples=0, bound=1e10, tangents=0, report=None,
-                    chunk=None) -> MembersOutput:
+def members_iterate(engine, n0, n_end, keep_from, U0, P, samples=0, bound=1e10, tangents=0,
+                    report=None) -> MembersOutput:
     """Iterate the columns of U0 (n, N) of a map from step n0 to ``n_end`` with parameters P
     ((n_p,) shared or (n_p, N)); the first ``samples`` iterates after ``keep_from`` kept; with
     ``tangents`` (m, or an (n, m) start) the tangent vectors' log sums after ``keep_from``
-    (``log_span`` counts the steps). Chunks of members between progress reports."""
+    (``log_span`` counts the steps). The loop pauses for progress and cancel (raising Cancelled)."""
     U, rows, n, m = _member_rows(U0, P, tangents)
-    N = U.shape[0]
+    N, nz = U.shape
     out = np.empty((N, int(samples), n))
     codes, reached = np.zeros(N, dtype=np.int64), np.zeros(N, dtype=np.int64)
     sums = np.zeros((N, m + 1))
-    chunk = chunk or max(1, min(256, N // 16))
-    for start in range(0, N, chunk):
-        stop = min(N, start + chunk)
-        part = rows if rows.shape[0] == 1 else rows[start:stop]
-        engine.loops.members_iterate(engine.f, U[start:stop], part, int(n0), int(n_end), int(keep_from),
-                                     float(bound), out[start:stop], codes[start:stop], reached[start:stop], int(m),
-                                     sums[start:stop])
+    B = max(1, min(N, BLOCK_MEMBERS))
+    work = (np.zeros((nz, B)), np.zeros((rows.shape[1], B)), np.zeros((nz, B)), np.zeros(B),
+            np.zeros(B, dtype=np.int64), np.ones((max(m, 1), B)), np.zeros(3 + B))
+    total = max(1, N * (int(n_end) - int(n0)))
+    while True:
+        code = engine.loops.members_iterate(engine.batch, U, rows, int(n0), int(n_end), int(keep_from), float(bound),
+                                            out, codes, reached, int(m), sums, *work, MEMBER_PAUSE_STEPS * 8)
+        if code != PAUSED:
+            break
         if report is not None:
-            report(stop / N)
+            BS, KS = work[-1], work[-3]
+            flying = int(BS[0])
+            report(min(1.0, (BS[2] * (int(n_end) - int(n0)) + float((KS[:flying] - int(n0)).sum())) / total))
     return MembersOutput(U[:, :n].T.copy(), codes, reached.astype(float), reached - int(n0),
                          np.moveaxis(out, 2, 0), None, None, None,
                          sums[:, :m] if m else None, sums[:, m] if m else None)

@@ -337,10 +337,17 @@ def interpolant_fits(f, kind, which, t, y, y_new, h, p, F, rtol, atol, tmp, tmp2
 @inner
 def first_step(f, kind, which, t, y, p, K, direction, rtol, atol, max_step, tmp, tmp2):
     """A starting step (Hairer, Norsett & Wanner, Solving ODEs I, sec. II.4, as scipy's)."""
-    n = y.shape[0]
     if kind == 2:
         return max_step
-    order = 8.0 if kind == 0 else 5.0
+    h0 = first_trial(y, K, direction, rtol, atol, max_step, tmp)
+    f(which, t + h0 * direction, tmp, p, tmp2)
+    return first_choice(kind, y, K, h0, tmp2, rtol, atol, max_step)
+
+
+@inner
+def first_trial(y, K, direction, rtol, atol, max_step, tmp):
+    """``first_step``'s trial step h0, and tmp = the explicit Euler point there (f is wanted at it)."""
+    n = y.shape[0]
     d0 = 0.0
     d1 = 0.0
     for i in range(n):
@@ -353,11 +360,21 @@ def first_step(f, kind, which, t, y, p, K, direction, rtol, atol, max_step, tmp,
     h0 = min(h0, max_step)
     for i in range(n):
         tmp[i] = y[i] + h0 * direction * K[0, i]
-    f(which, t + h0 * direction, tmp, p, tmp2)
+    return h0
+
+
+@inner
+def first_choice(kind, y, K, h0, f1, rtol, atol, max_step):
+    """``first_step``'s choice from the trial h0 and f1 = f at its Euler point."""
+    n = y.shape[0]
+    order = 8.0 if kind == 0 else 5.0
+    d1 = 0.0
     d2 = 0.0
     for i in range(n):
         scale = atol + abs(y[i]) * rtol
-        d2 += ((tmp2[i] - K[0, i]) / scale) ** 2
+        d1 += (K[0, i] / scale) ** 2
+        d2 += ((f1[i] - K[0, i]) / scale) ** 2
+    d1 = math.sqrt(d1 / n)
     d2 = math.sqrt(d2 / n) / h0
     if d1 <= 1e-15 and d2 <= 1e-15:
         h1 = max(1e-6, h0 * 1e-3)
@@ -412,6 +429,90 @@ def _save(st, t, h_abs, n_out, gi, n_ev):
     st[5] = n_out
     st[6] = gi
     st[7] = n_ev
+
+
+@inner
+def read_points(f, kind, which, adaptive, t, t_new, h, direction, y, y_new, p, K, F, K2, rtol, atol, tmp, tmp2, tmp3,
+                grid, gi, out_t, out_y, planes, plane_dir, terminal, first, ev_t, ev_y, ev_k, n_ev):
+    """The points read inside an accepted step (t, t_new]: samples at ``grid`` from index gi on (into
+    out_t / out_y), crossings of the planes and turning points (events from n_ev on, ``first``: the
+    run's first step, whose start on a plane is no crossing), off the step's dense output when it
+    meets the tolerance, else from sub-steps. Returns (gi, n_ev, stop: a terminal plane crossed)."""
+    n = y.shape[0]
+    s_n = STAGES[kind]
+    n_planes = planes.shape[0]
+    dense_ready = False
+    trusted = True
+    # samples on the grid inside (t, t_new]
+    while gi < grid.shape[0] and (grid[gi] - t_new) * direction <= 0.0:
+        if not dense_ready:
+            trusted = _read_step(f, kind, which, adaptive, t, y, y_new, h, p, K, F, K2, rtol, atol, tmp, tmp2,
+                                 tmp3)
+            dense_ready = True
+        x = (grid[gi] - t) / h
+        if grid[gi] == t_new:
+            for i in range(n):
+                out_y[gi, i] = y_new[i]
+        else:
+            point_value(f, kind, which, t, y, h, p, F, K2, trusted, x, tmp, False)
+            for i in range(n):
+                out_y[gi, i] = tmp[i]
+        out_t[gi] = grid[gi]
+        gi += 1
+    stop = False
+    for k in range(n_planes):
+        ga = -planes[k, n]
+        gb = -planes[k, n]
+        ra = 0.0
+        rb = 0.0
+        size = abs(planes[k, n])
+        for i in range(n):
+            ga += planes[k, i] * y[i]
+            gb += planes[k, i] * y_new[i]
+            ra += planes[k, i] * K[0, i]
+            rb += planes[k, i] * K[s_n, i]
+            size += abs(planes[k, i] * y[i])
+        if plane_dir[k] == TURNS_DOWN:  # maxima of normal . y: its rate goes from + to -
+            if ra > 0.0 and rb <= 0.0 and n_ev < ev_t.shape[0]:
+                if not dense_ready:
+                    trusted = _read_step(f, kind, which, adaptive, t, y, y_new, h, p, K, F, K2, rtol, atol, tmp,
+                                         tmp2, tmp3)
+                    dense_ready = True
+                x = dense_root(f, kind, which, t, y, h, p, F, K2, trusted, planes[k, :n], 0.0, 0.0, ra * h, 1.0, rb * h, tmp, True)
+                n_ev = _event(f, kind, which, t, y, h, p, F, K2, trusted, x, k, ev_t, ev_y, ev_k, n_ev, tmp)
+                if terminal[k]:
+                    stop = True
+            continue
+        if first and abs(ga) <= 1e-14 * size:  # the start on the plane to round-off is no crossing
+            ga = 0.0
+        if (ra > 0.0) == (rb > 0.0) and not ((ga < 0.0) != (gb < 0.0) or (gb == 0.0 and ga != 0.0)):
+            continue
+        if not dense_ready:
+            trusted = _read_step(f, kind, which, adaptive, t, y, y_new, h, p, K, F, K2, rtol, atol, tmp, tmp2,
+                                 tmp3)
+            dense_ready = True
+        # the rate turns inside the step: split it where g turns (a near-grazing pass crosses twice)
+        x_turn = 1.0
+        if (ra > 0.0) != (rb > 0.0):
+            x_turn = dense_root(f, kind, which, t, y, h, p, F, K2, trusted, planes[k, :n], 0.0, 0.0, ra * h, 1.0, rb * h, tmp, True)
+        pieces = 1 if x_turn <= 0.0 or x_turn >= 1.0 else 2
+        xa = 0.0
+        g_left = ga
+        for m in range(1, pieces + 1):
+            xb = 1.0 if m == pieces else x_turn
+            g_right = gb if m == pieces else plane_value(f, kind, which, t, y, h, p, F, K2, trusted, xb, planes[k, :n], planes[k, n], tmp, False)
+            crossed = (g_left < 0.0) != (g_right < 0.0) or (g_right == 0.0 and g_left != 0.0)
+            if crossed and g_left != 0.0:
+                rising = g_right > g_left
+                if plane_dir[k] == 0 or (plane_dir[k] > 0) == rising:
+                    if n_ev < ev_t.shape[0]:
+                        x = dense_root(f, kind, which, t, y, h, p, F, K2, trusted, planes[k, :n], planes[k, n], xa, g_left, xb, g_right, tmp, False)
+                        n_ev = _event(f, kind, which, t, y, h, p, F, K2, trusted, x, k, ev_t, ev_y, ev_k, n_ev, tmp)
+                        if terminal[k]:
+                            stop = True
+            xa = xb
+            g_left = g_right
+    return gi, n_ev, stop
 
 
 @loop
@@ -500,78 +601,12 @@ def erk_advance(f, kind, which, adaptive, y, p, K, F, st, t_end, rtol, atol, max
             return code
         steps += 1
         st[2] += 1
-        dense_ready = False
-        trusted = True
-        # samples on the grid inside (t, t_new]
-        while gi < grid.shape[0] and (grid[gi] - t_new) * direction <= 0.0:
-            if not dense_ready:
-                trusted = _read_step(f, kind, which, adaptive, t, y, y_new, h, p, K, F, K2, rtol, atol, tmp, tmp2,
-                                     tmp3)
-                dense_ready = True
-            x = (grid[gi] - t) / h
-            if grid[gi] == t_new:
-                for i in range(n):
-                    out_y[gi, i] = y_new[i]
-            else:
-                point_value(f, kind, which, t, y, h, p, F, K2, trusted, x, tmp, False)
-                for i in range(n):
-                    out_y[gi, i] = tmp[i]
-            out_t[gi] = grid[gi]
-            gi += 1
+        gi_before = gi
+        gi, n_ev, stop = read_points(f, kind, which, adaptive, t, t_new, h, direction, y, y_new, p, K, F, K2, rtol, atol,
+                                     tmp, tmp2, tmp3, grid, gi, out_t, out_y, planes, plane_dir, terminal,
+                                     st[2] == 1.0, ev_t, ev_y, ev_k, n_ev)
+        if gi != gi_before:
             n_out = gi
-        stop = False
-        for k in range(n_planes):
-            ga = -planes[k, n]
-            gb = -planes[k, n]
-            ra = 0.0
-            rb = 0.0
-            size = abs(planes[k, n])
-            for i in range(n):
-                ga += planes[k, i] * y[i]
-                gb += planes[k, i] * y_new[i]
-                ra += planes[k, i] * K[0, i]
-                rb += planes[k, i] * K[s_n, i]
-                size += abs(planes[k, i] * y[i])
-            if plane_dir[k] == TURNS_DOWN:  # maxima of normal . y: its rate goes from + to -
-                if ra > 0.0 and rb <= 0.0 and n_ev < ev_t.shape[0]:
-                    if not dense_ready:
-                        trusted = _read_step(f, kind, which, adaptive, t, y, y_new, h, p, K, F, K2, rtol, atol, tmp,
-                                             tmp2, tmp3)
-                        dense_ready = True
-                    x = dense_root(f, kind, which, t, y, h, p, F, K2, trusted, planes[k, :n], 0.0, 0.0, ra * h, 1.0, rb * h, tmp, True)
-                    n_ev = _event(f, kind, which, t, y, h, p, F, K2, trusted, x, k, ev_t, ev_y, ev_k, n_ev, tmp)
-                    if terminal[k]:
-                        stop = True
-                continue
-            if st[2] == 1.0 and abs(ga) <= 1e-14 * size:  # the start on the plane to round-off is no crossing
-                ga = 0.0
-            if (ra > 0.0) == (rb > 0.0) and not ((ga < 0.0) != (gb < 0.0) or (gb == 0.0 and ga != 0.0)):
-                continue
-            if not dense_ready:
-                trusted = _read_step(f, kind, which, adaptive, t, y, y_new, h, p, K, F, K2, rtol, atol, tmp, tmp2,
-                                     tmp3)
-                dense_ready = True
-            # the rate turns inside the step: split it where g turns (a near-grazing pass crosses twice)
-            x_turn = 1.0
-            if (ra > 0.0) != (rb > 0.0):
-                x_turn = dense_root(f, kind, which, t, y, h, p, F, K2, trusted, planes[k, :n], 0.0, 0.0, ra * h, 1.0, rb * h, tmp, True)
-            pieces = 1 if x_turn <= 0.0 or x_turn >= 1.0 else 2
-            xa = 0.0
-            g_left = ga
-            for m in range(1, pieces + 1):
-                xb = 1.0 if m == pieces else x_turn
-                g_right = gb if m == pieces else plane_value(f, kind, which, t, y, h, p, F, K2, trusted, xb, planes[k, :n], planes[k, n], tmp, False)
-                crossed = (g_left < 0.0) != (g_right < 0.0) or (g_right == 0.0 and g_left != 0.0)
-                if crossed and g_left != 0.0:
-                    rising = g_right > g_left
-                    if plane_dir[k] == 0 or (plane_dir[k] > 0) == rising:
-                        if n_ev < ev_t.shape[0]:
-                            x = dense_root(f, kind, which, t, y, h, p, F, K2, trusted, planes[k, :n], planes[k, n], xa, g_left, xb, g_right, tmp, False)
-                            n_ev = _event(f, kind, which, t, y, h, p, F, K2, trusted, x, k, ev_t, ev_y, ev_k, n_ev, tmp)
-                            if terminal[k]:
-                                stop = True
-                xa = xb
-                g_left = g_right
         if every_step:
             out_t[n_out] = t_new
             for i in range(n):

@@ -121,12 +121,14 @@ def _kinds(args) -> tuple:
 
 
 def signature(name: str):
-    """The numba signature of a kernel: MODEL (model(which, t, z, p, out)), JAC (jac(t, u, p, out))
+    """The numba signature of a kernel: MODEL (model(which, t, z, p, out)), BATCH (batch(which, T, z,
+    p, out, count), members in columns), JAC (jac(t, u, p, out))
     or VALUES (jac_values(t, u, p, out))."""
     from numba import types as t
 
     a1, a2 = t.float64[::1], t.float64[:, ::1]
-    return {"MODEL": t.void(t.int64, t.float64, a1, a1, a1), "JAC": t.void(t.float64, a1, a1, a2),
+    return {"MODEL": t.void(t.int64, t.float64, a1, a1, a1),
+            "BATCH": t.void(t.int64, a1, a2, a2, a2, t.int64), "JAC": t.void(t.float64, a1, a1, a2),
             "VALUES": t.void(t.float64, a1, a1, a1)}[name]
 
 

@@ -1,7 +1,9 @@
 """Iterated maps u[k+1] = f(k, u[k]): the orbit loop, and many members (starts and/or parameter
-sets) one after the other with their iterates and tangent vectors (sweeps, exponent grids).
+sets) mapped together by the batched kernel, with their iterates and tangent vectors (sweeps,
+exponent grids).
 
-The model's kernel ``f`` (here: the map) comes in as an argument, as in ``explicit_rk.py``.
+The model's kernel ``f`` (here: the map; for members the batched ``g``) comes in as an argument, as
+in ``explicit_rk.py``.
 """
 
 import math
@@ -44,58 +46,123 @@ def map_advance(f, y, p, st, n_end, out_y, bound, max_steps):
 
 
 @loop
-def members_iterate(f, U, P, n0, n_end, keep_from, bound, samples, codes, reached, m, sums):
+def members_iterate(g, U, P, n0, n_end, keep_from, bound, samples, codes, reached, m, sums, Z, Pb, NXT, TS, KS,
+                    STR, BS, max_steps):
     """Iterate every row of U (N x n(m+1), in place) from step n0 to ``n_end`` with the parameters
-    P[i] (or P[0] for all); the iterates after step ``keep_from`` go to ``samples[i]`` (the first K).
-    With m tangent vectors (z = (u, V), the kernel's ``which = m``) V is re-orthonormalised every
-    step and the logarithms after ``keep_from`` summed into ``sums[i, :m]`` (``sums[i, m]`` counts the
-    steps). ``codes``, ``reached``: per member status code and the step reached."""
+    P[i] (or P[0] for all), up to B = Z.shape[1] members at a time (columns of Z (nz, B), Pb, NXT;
+    each member's step in KS, its index in BS[3:], BS = [in flight, next to start, finished, ...]):
+    one call of the batched kernel maps them all. The iterates after step ``keep_from`` go to
+    ``samples[i]`` (the first K). With m tangent vectors (z = (u, V), the kernel's ``which = m``) V
+    is re-orthonormalised every step and the logarithms after ``keep_from`` summed into
+    ``sums[i, :m]`` (``sums[i, m]`` counts the steps). ``codes``, ``reached``: per member status code
+    and the step reached. Returns 0 when all are done, or PAUSED after about ``max_steps``
+    member-steps (the next call goes on)."""
     N, nz = U.shape
     n = nz // (m + 1)
-    nxt = np.empty(nz)
-    W = nxt[n:].reshape((n, m))
+    B = Z.shape[1]
+    W = np.empty((n, max(m, 1)))
     norms = np.empty(max(m, 1))
-    stretch = np.ones(max(m, 1))  # the product of the stretches since their logarithms were last added
-    shared = P.shape[0] == 1
     K = samples.shape[1]
-    for i in range(N):
-        p = P[0] if shared else P[i]
-        z = U[i]
-        k = n0
-        code = 0
-        for j in range(m):
-            stretch[j] = 1.0
-        while k < n_end:
-            f(m, float(k), z, p, nxt)
-            code = state_code(nxt[:n], bound)
-            if code != 0:
-                break
-            if m > 0 and not gram_schmidt(W, norms):  # the Jacobian is singular on the orbit
-                if k + 1 > keep_from:
+    shared = P.shape[0] == 1
+    if n_end <= n0:  # nothing to iterate
+        for i in range(N):
+            codes[i] = 0
+            reached[i] = n0
+            for r in range(max(0, n0 - keep_from), K):
+                for j in range(n):
+                    samples[i, r, j] = math.nan
+        return 0
+    count = int(BS[0])
+    used = 0
+    while True:
+        while count < B and BS[1] < N:  # free columns take the members waiting
+            i = int(BS[1])
+            BS[1] += 1
+            for j in range(nz):
+                Z[j, count] = U[i, j]
+            for j in range(Pb.shape[0]):
+                Pb[j, count] = P[0, j] if shared else P[i, j]
+            KS[count] = n0
+            BS[3 + count] = i
+            for j in range(m):
+                STR[j, count] = 1.0
+            count += 1
+        BS[0] = count
+        if count == 0:
+            return 0
+        if used >= max_steps:
+            return PAUSED
+        for c in range(count):
+            TS[c] = float(KS[c])
+        g(m, TS, Z, Pb, NXT, count)
+        used += count
+        c = 0
+        while c < count:
+            i = int(BS[3 + c])
+            k = KS[c]
+            code = 0
+            for j in range(n):
+                v = NXT[j, c]
+                if v != v:
                     code = 2
                     break
-                for a in range(n):  # within the transient (a start that lands on a critical point): afresh
+                if not abs(v) <= bound:
+                    code = 1
+            if code == 0 and m > 0:
+                for a in range(n):
                     for b in range(m):
-                        W[a, b] = 1.0 if a == b else 0.0
+                        W[a, b] = NXT[n + a * m + b, c]
+                if not gram_schmidt(W, norms):  # the Jacobian is singular on the orbit
+                    if k + 1 > keep_from:
+                        code = 2
+                    else:  # within the transient (a start that lands on a critical point): afresh
+                        for a in range(n):
+                            for b in range(m):
+                                W[a, b] = 1.0 if a == b else 0.0
+                if code == 0:
+                    for a in range(n):
+                        for b in range(m):
+                            NXT[n + a * m + b, c] = W[a, b]
+            if code == 0:
+                for j in range(nz):
+                    Z[j, c] = NXT[j, c]
+                k += 1
+                KS[c] = k
+                if k > keep_from:
+                    r = k - keep_from - 1
+                    if r < K:
+                        for j in range(n):
+                            samples[i, r, j] = Z[j, c]
+                    for j in range(m):  # one logarithm per many steps: the stretches multiplied meanwhile
+                        STR[j, c] *= norms[j]
+                        if not 1e-100 < STR[j, c] < 1e100:
+                            sums[i, j] += math.log(STR[j, c])
+                            STR[j, c] = 1.0
+                    sums[i, m] += 1.0
+                if k < n_end:
+                    c += 1
+                    continue
+            # member i ends: its state, status and the samples it never reached
+            for j in range(m):
+                sums[i, j] += math.log(STR[j, c])
+            codes[i] = code
+            reached[i] = k
             for j in range(nz):
-                z[j] = nxt[j]
-            k += 1
-            if k > keep_from:
-                r = k - keep_from - 1
-                if r < K:
-                    for j in range(n):
-                        samples[i, r, j] = z[j]
-                for j in range(m):  # one logarithm per many steps: the stretches multiplied meanwhile
-                    stretch[j] *= norms[j]
-                    if not 1e-100 < stretch[j] < 1e100:
-                        sums[i, j] += math.log(stretch[j])
-                        stretch[j] = 1.0
-                sums[i, m] += 1.0
-        for j in range(m):
-            sums[i, j] += math.log(stretch[j])
-        codes[i] = code
-        reached[i] = k
-        for r in range(max(0, k - keep_from), K):  # iterates never reached
-            for j in range(n):
-                samples[i, r, j] = math.nan
-    return 0
+                U[i, j] = Z[j, c]
+            for r in range(max(0, k - keep_from), K):
+                for j in range(n):
+                    samples[i, r, j] = math.nan
+            BS[2] += 1
+            last = count - 1  # the last column moves into this one (not yet looked at this round)
+            if last != c:
+                for j in range(nz):
+                    Z[j, c] = Z[j, last]
+                    NXT[j, c] = NXT[j, last]
+                for j in range(Pb.shape[0]):
+                    Pb[j, c] = Pb[j, last]
+                for j in range(m):
+                    STR[j, c] = STR[j, last]
+                KS[c] = KS[last]
+                BS[3 + c] = BS[3 + last]
+            count -= 1
+        BS[0] = count

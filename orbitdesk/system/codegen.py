@@ -119,21 +119,22 @@ class _Writer:
         self.printer = _printer()
         self.printed = system.__dict__.setdefault("_printed_kernel_lines", {})  # both paths' sources share it
 
-    def lines(self, exprs, store, array: str = "u", key: str | None = None) -> list[str]:
+    def lines(self, exprs, store, array: str = "u", key: str | None = None, column: str = "") -> list[str]:
         """The loads, shared parts and ``store(printed values)``; ``key`` names ``exprs`` (one of the
-        system's lists, "f" or "entries") so their printing is done once per system."""
-        cached = self.printed.get((key, array)) if key is not None else None
+        system's lists, "f" or "entries") so their printing is done once per system; ``column``
+        (``", _c"``): the states and parameters are columns of 2-D arrays (the batched kernel)."""
+        cached = self.printed.get((key, array, column)) if key is not None else None
         if cached is None:
             replacements, reduced = flat_cse(list(exprs), symbols=sp.numbered_symbols("_x"))
             used = set()
             for e in list(reduced) + [r for _, r in replacements]:
                 used |= e.free_symbols
-            lines = [f"{s.name} = {array}[{i}]" for i, s in enumerate(self.u) if s in used]
-            lines += [f"{s.name} = p[{i}]" for i, s in enumerate(self.p) if s in used]
+            lines = [f"{s.name} = {array}[{i}{column}]" for i, s in enumerate(self.u) if s in used]
+            lines += [f"{s.name} = p[{i}{column}]" for i, s in enumerate(self.p) if s in used]
             lines += [f"{s.name} = {self.printer.doprint(e)}" for s, e in replacements]
             cached = lines, [self.printer.doprint(e) for e in reduced]
             if key is not None:
-                self.printed[(key, array)] = cached
+                self.printed[(key, array, column)] = cached
         return cached[0] + store(cached[1])
 
 
@@ -146,14 +147,14 @@ def scalar_function(system: CompiledSystem, name: str, exprs) -> str:
     return "\n".join([f"def {name}({w.t.name}, u, p):"] + ["    " + line for line in body])
 
 
-def _indent(lines, guard: bool, pad: str = "    ") -> list[str]:
+def _indent(lines, guard: bool, pad: str = "    ", fill: str = "out") -> list[str]:
     if not lines:
         return [pad + "pass"]
     if not guard:
         return [pad + line for line in lines]
     # plain Python raises for undefined values where compiled code gives NaN: give NaN too
     return ([pad + "try:"] + [pad + "    " + line for line in lines]
-            + [pad + "except _UNDEFINED:", pad + "    _fill_nan(out)"])
+            + [pad + "except _UNDEFINED:", pad + f"    _fill_nan({fill})"])
 
 
 UNROLLED_ENTRIES = 96  # up to this many Jacobian entries the tangent products are written out one by one
@@ -184,13 +185,14 @@ def _split_model(w: _Writer, f, entries, store_f, guard: bool) -> list[str]:
     return lines
 
 
-def kernel_source(system: CompiledSystem, guard: bool) -> str:
+def kernel_source(system: CompiledSystem, guard: bool, batch: bool = False) -> str:
     """The kernels' source; ``guard``: plain Python (undefined values become NaN, as in compiled code).
 
     ``model(which, t, z, p, out)``: with ``which`` = 0, ``out = f(t, z, p)``; with ``which`` = m > 0,
     z = (u, V) holds m tangent vectors (V n x m, row by row) and ``out = (f(t, u), J(t, u) V)``
-    (for a map: the next state and the tangent vectors mapped). ``jac`` and ``jac_values`` as in
-    the module's description."""
+    (for a map: the next state and the tangent vectors mapped). ``batch`` is ``model`` for many
+    members at once (``batch_source``), printed alone with ``batch`` (its own module, compiled only
+    when members run). ``jac`` and ``jac_values`` as in the module's description."""
     w = _Writer(system)
     n = system.n_states
     t = w.t.name
@@ -200,6 +202,8 @@ def kernel_source(system: CompiledSystem, guard: bool) -> str:
            f"JAC_ROWS = np.array({rows!r}, dtype=np.int64)",
            f"JAC_COLS = np.array({cols!r}, dtype=np.int64)"]
     out += [f"N_NOISE = {len(system.noise_sources)}", "", ""] if system.stochastic else ["", ""]
+    if batch:
+        return "\n".join(out + batch_source(w, f, rows, cols, entries, n, guard)) + "\n"
     names = [f"_j{k}" for k in range(len(entries))]
 
     def products(values):
@@ -242,6 +246,35 @@ def kernel_source(system: CompiledSystem, guard: bool) -> str:
                                                                                  for k, v in zip(keep, values)], "z")
             out += ["    if which == 0:" if which == 0 else "    else:"] + _indent(body, guard, " " * 8)
     return "\n".join(out) + "\n"
+
+
+def batch_source(w: _Writer, f, rows, cols, entries, n: int, guard: bool) -> list[str]:
+    """``batch(which, T, z, p, out, count)``: ``model`` for the members in columns 0 .. count - 1
+    of z (rows as in ``model``'s z), p (one column per member) and out, member c at time T[c]. The
+    arithmetic is inlined in one loop over the members, so a stage of many members costs one call
+    through the kernel's pointer (the member loops of ``engine/members.py`` and ``engine/maps.py``)."""
+    t = w.t.name
+    names = [f"_j{k}" for k in range(len(entries))]
+
+    def products(values):
+        lines = [f"{name} = {v}" for name, v in zip(names, values)]
+        terms: dict[int, list[str]] = {}
+        for k, (r, c) in enumerate(zip(rows, cols)):
+            terms.setdefault(r, []).append(f"{names[k]} * z[{n} + {c} * which + _k, _c]")
+        for r in range(n):
+            lines.append(f"out[{n} + {r} * which + _k, _c] = " + (" + ".join(terms[r]) if r in terms else "0.0"))
+        return lines
+
+    store_f = (lambda values: [f"out[{i}, _c] = {v}" for i, v in enumerate(values)])
+    fill = "out[:, _c]"
+    out = ["@_batch_kernel", f"def batch(which, T, z, p, out, count):", "    if which == 0:",
+           "        for _c in range(count):", f"            {t} = T[_c]"]
+    out += _indent(w.lines(f, store_f, "z", "f", ", _c"), guard, " " * 12, fill)
+    out += ["    else:", "        for _c in range(count):", f"            {t} = T[_c]",
+            "            for _k in range(which):", "                if _k == 0:"]
+    out += _indent(w.lines(f, store_f, "z", "f", ", _c"), guard, " " * 20, fill)
+    out += _indent(w.lines(entries, products, "z", "entries", ", _c"), guard, " " * 16, fill)
+    return out
 
 
 __all__ = ["HEADER", "sparse_jacobian", "noise_terms", "dense_jacobian", "kernel_source", "scalar_function"]

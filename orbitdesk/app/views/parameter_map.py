@@ -123,18 +123,18 @@ class ParameterMapView(SessionView):
         what = WHATS[self.what.currentIndex()]
         transient = float(self.transient.value())
         if what == LYAPUNOV:
-            from orbitdesk.analyses.sweep import GridSettings, lyapunov_grid
+            from orbitdesk.analyses.sweep import GridSettings, accuracy_like, lyapunov_grid
 
             settings = GridSettings(transient=transient, duration=float(self.duration.value()),
-                                    dt=float(getattr(self.session.solver, "dt", None) or 0.01))
+                                    **accuracy_like(self.session.solver))
 
             def job(cancel, report):
                 return lyapunov_grid(s, xn, xs, yn, ys, settings, u0=u0, p=p, cancel=cancel, progress=report)
         else:
             from orbitdesk.analyses.parameter_maps import period_grid
-            from orbitdesk.analyses.sweep import STROBE, SweepSettings
+            from orbitdesk.analyses.sweep import STROBE, SweepSettings, accuracy_like
 
-            settings = SweepSettings(transient=transient)
+            settings = SweepSettings(transient=transient, **accuracy_like(self.session.solver))
             if self._forced():
                 settings.mode, settings.period = STROBE, float(self.period.value())
             max_period = self.max_period.value()
