@@ -432,13 +432,17 @@ def _save(st, t, h_abs, n_out, gi, n_ev):
 
 
 @inner
-def read_points(f, kind, which, adaptive, t, t_new, h, direction, y, y_new, p, K, F, K2, rtol, atol, tmp, tmp2, tmp3,
+def read_points(f, kind, which, adaptive, t, t_new, h, direction, y, y_new, p, K, F, K2, rtol, atol, tmps,
                 grid, gi, out_t, out_y, planes, plane_dir, terminal, first, ev_t, ev_y, ev_k, n_ev):
     """The points read inside an accepted step (t, t_new]: samples at ``grid`` from index gi on (into
     out_t / out_y), crossings of the planes and turning points (events from n_ev on, ``first``: the
     run's first step, whose start on a plane is no crossing), off the step's dense output when it
-    meets the tolerance, else from sub-steps. Returns (gi, n_ev, stop: a terminal plane crossed)."""
+    meets the tolerance, else from sub-steps (``tmps``: three rows of scratch). Returns (gi, n_ev, stop:
+    a terminal plane crossed). Fewer than 30 arguments: numba cannot inline a call with more."""
     n = y.shape[0]
+    tmp = tmps[0]
+    tmp2 = tmps[1]
+    tmp3 = tmps[2]
     s_n = STAGES[kind]
     n_planes = planes.shape[0]
     dense_ready = False
@@ -535,9 +539,9 @@ def erk_advance(f, kind, which, adaptive, y, p, K, F, st, t_end, rtol, atol, max
     direction = 1.0 if t_end > t else -1.0
     s_n = STAGES[kind]
     y_new = np.empty(n)
-    tmp = np.empty(n)
-    tmp2 = np.empty(n)
-    tmp3 = np.empty(n)
+    tmps = np.empty((3, n))
+    tmp = tmps[0]
+    tmp2 = tmps[1]
     K2 = np.empty((K.shape[0], K.shape[1]))  # the stages of sub-steps to points of an untrusted interpolant
     n_out = int(st[5])
     gi = int(st[6])
@@ -601,12 +605,14 @@ def erk_advance(f, kind, which, adaptive, y, p, K, F, st, t_end, rtol, atol, max
             return code
         steps += 1
         st[2] += 1
-        gi_before = gi
-        gi, n_ev, stop = read_points(f, kind, which, adaptive, t, t_new, h, direction, y, y_new, p, K, F, K2, rtol, atol,
-                                     tmp, tmp2, tmp3, grid, gi, out_t, out_y, planes, plane_dir, terminal,
-                                     st[2] == 1.0, ev_t, ev_y, ev_k, n_ev)
-        if gi != gi_before:
-            n_out = gi
+        stop = False
+        if n_planes or gi < grid.shape[0] and (grid[gi] - t_new) * direction <= 0.0:
+            gi_before = gi
+            gi, n_ev, stop = read_points(f, kind, which, adaptive, t, t_new, h, direction, y, y_new, p, K, F, K2, rtol,
+                                         atol, tmps, grid, gi, out_t, out_y, planes, plane_dir, terminal, st[2] == 1.0,
+                                         ev_t, ev_y, ev_k, n_ev)
+            if gi != gi_before:
+                n_out = gi
         if every_step:
             out_t[n_out] = t_new
             for i in range(n):

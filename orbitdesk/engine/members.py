@@ -179,7 +179,7 @@ def members_advance(f, g, kind, adaptive, U, P, t0, t_end, rtol, atol, max_step,
     O1 = np.empty((nz, 1))
     tmp = np.empty(nz)
     tmp2 = np.empty(nz)
-    tmp3 = np.empty(nz)
+    tmps = np.empty((3, nz))
     F = np.empty((7, nz))
     ev_k = np.empty(E, dtype=np.int64)
     yc = np.empty(nz)  # one member's column, copied out for member_outputs
@@ -314,7 +314,7 @@ def members_advance(f, g, kind, adaptive, U, P, t0, t_end, rtol, atol, max_step,
                         or looking and _plane_met(planes, plane_dir, Z, Y1, K, s_n, c)):
                     stop = member_outputs(f, kind, m, adaptive, c, i, t, t_new, h, direction, Z, Y1, K, Pb, MS, rtol,
                                           atol, grid, samples, planes, plane_dir, terminal, ev_t, ev_y, looking,
-                                          keep_going, yc, ync, Kc, K2, pc, F, tmp, tmp2, tmp3, out_t, ev_k)
+                                          keep_going, yc, ync, Kc, K2, pc, F, tmps, out_t, ev_k)
                 for j in range(nz):
                     Z[j, c] = Y1[j, c]
                     K[0, j, c] = K[s_n, j, c]
@@ -378,8 +378,8 @@ def members_advance(f, g, kind, adaptive, U, P, t0, t_end, rtol, atol, max_step,
 
 @loop
 def member_outputs(f, kind, m, adaptive, c, i, t, t_new, h, direction, Z, Y1, K, Pb, MS, rtol, atol, grid, samples,
-                   planes, plane_dir, terminal, ev_t, ev_y, looking, keep_going, yc, ync, Kc, K2, pc, F, tmp, tmp2,
-                   tmp3, out_t, ev_k):
+                   planes, plane_dir, terminal, ev_t, ev_y, looking, keep_going, yc, ync, Kc, K2, pc, F, tmps, out_t,
+                   ev_k):
     """Member c's samples on the grid inside its step and (``looking``) its crossings of the planes, read
     as a single run reads them (``explicit_rk.read_points``, with the model's own kernel ``f``: the
     dense output where it meets the tolerance, else sub-steps), from the member's column copied out.
@@ -397,7 +397,7 @@ def member_outputs(f, kind, m, adaptive, c, i, t, t_new, h, direction, Z, Y1, K,
     E = ev_t.shape[1]
     n_planes = planes.shape[0] if looking else 0
     gi, n_ev, stop = read_points(f, kind, m, adaptive, t, t_new, h, direction, yc, ync, pc, Kc, F, K2, rtol, atol,
-                                 tmp, tmp2, tmp3, grid, int(MS[R_GI, c]), out_t, samples[i], planes[:n_planes],
+                                 tmps, grid, int(MS[R_GI, c]), out_t, samples[i], planes[:n_planes],
                                  plane_dir[:n_planes], terminal[:n_planes], MS[R_ACC, c] == 1.0, ev_t[i], ev_y[i],
                                  ev_k, int(MS[R_NEV, c]))
     MS[R_GI, c] = gi
