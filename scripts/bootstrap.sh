@@ -7,10 +7,12 @@ cd "$here"
 
 need_apt=()
 command -v Xvfb >/dev/null 2>&1 || need_apt+=(xvfb xauth)
+# read the library cache once: 'ldconfig -p | grep -q' under pipefail fails when grep stops reading early
+known_libs="$(ldconfig -p 2>/dev/null || true)"
 for lib in libxkbcommon-x11.so.0 libxcb-cursor.so.0 libxcb-icccm.so.4 libxcb-keysyms.so.1 \
            libxcb-shape.so.0 libxcb-randr.so.0 libxcb-render-util.so.0 libxcb-xinerama.so.0 \
            libxcb-image.so.0 libEGL.so.1 libGL.so.1 libfontconfig.so.1 libdbus-1.so.3; do
-  if ! ldconfig -p 2>/dev/null | grep -q "$lib"; then need_apt+=(needs-libs); break; fi
+  if ! grep -qF "$lib" <<< "$known_libs"; then need_apt+=(needs-libs); break; fi
 done
 if [ ${#need_apt[@]} -gt 0 ]; then
   if [ "$(id -u)" = 0 ] && command -v apt-get >/dev/null 2>&1; then
