@@ -8,6 +8,8 @@ before any test starts, by one short run of a flow and one of a map.
 
 import os
 
+import orbitdesk  # noqa: F401  (sets the BLAS thread count before numpy loads)
+
 import pytest
 
 
