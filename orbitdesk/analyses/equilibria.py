@@ -12,6 +12,7 @@ from __future__ import annotations
 import json
 import math
 import multiprocessing
+import os
 import time
 from dataclasses import dataclass, field
 from fractions import Fraction
@@ -243,6 +244,17 @@ def _exact_child(conn, system, p):
 
 
 EXACT_MAX_STATES = 10  # the exact solve is tried up to this many states (beyond, sympy rarely finishes)
+WALL_FACTOR = 20.0  # the exact solve's wait ends after this many times its limit in wall-clock time
+
+
+def _cpu_seconds(pid: int) -> float | None:
+    """Processor time (user + system) a running child has used, from /proc; None where unreadable."""
+    try:
+        with open(f"/proc/{int(pid)}/stat", "rb") as f:
+            fields = f.read().rsplit(b")", 1)[1].split()
+        return (int(fields[11]) + int(fields[12])) / os.sysconf("SC_CLK_TCK")
+    except (OSError, ValueError, IndexError):
+        return None
 
 
 class _ExactSolve:
@@ -263,7 +275,11 @@ class _ExactSolve:
         self.started = time.monotonic()
 
     def answer(self, timeout: float, report=None) -> tuple[list, list[str]]:
-        """Real finite solutions if the child answers within ``timeout`` seconds of its start."""
+        """Real finite solutions if the child answers within ``timeout`` seconds of its own computing.
+
+        The limit counts the child's processor time (read from the system where it can be), so a busy
+        machine gives the solve the same work as an idle one and the answer does not depend on the load;
+        a wall-clock bound of WALL_FACTOR times the limit still ends the wait."""
         if self.child is None:
             return [], self.notes
         notes, answer = self.notes, None
@@ -271,9 +287,11 @@ class _ExactSolve:
         try:
             while True:
                 waited = time.monotonic() - self.started
-                if waited >= timeout:
+                used = _cpu_seconds(child.pid)
+                used = waited if used is None else used
+                if used >= timeout or waited >= WALL_FACTOR * timeout:
                     break
-                if receive.poll(min(0.05, timeout - waited)):
+                if receive.poll(min(0.05, max(timeout - used, 0.0))):
                     try:
                         answer = json.loads(receive.recv_bytes().decode())
                     except (EOFError, OSError, ValueError):
@@ -283,11 +301,11 @@ class _ExactSolve:
                     answer = {"error": "the exact solver stopped without an answer"}
                     break
                 if report is not None:
-                    report(min((time.monotonic() - self.started) / timeout, 1.0))
+                    report(min(used / timeout, 1.0) if timeout > 0 else 1.0)
         finally:
             self.close()
         if answer is None:
-            notes.append(f"the exact solve did not finish within {timeout:g} s; Newton search only")
+            notes.append(f"the exact solve did not finish within {timeout:g} s of computing; Newton search only")
             return [], notes
         if "error" in answer:
             notes.append(f"no exact solution ({answer['error']}); Newton search only")

@@ -1,6 +1,8 @@
 """Equilibria and fixed points against closed forms and published values."""
 
 import math
+import os
+import time
 
 import numpy as np
 import pytest
@@ -234,3 +236,17 @@ def test_forcing_switched_off_leaves_the_unforced_equilibria():
     assert [e.kind for e in found] == ["stable focus", "saddle", "stable focus"]
     with pytest.raises(ValueError, match="depend on the time"):
         find_equilibria(system, p=system.param_vector({"gamma": 0.1}))
+
+
+def test_the_exact_solve_limit_counts_the_childs_own_processor_time():
+    # the limit is the solve's computing time, so a busy machine gives it the same work as an idle one:
+    # the reading matches the process's own clock (os.times, the reference) to the clock tick
+    from orbitdesk.analyses.equilibria import _cpu_seconds
+
+    deadline = time.process_time() + 0.3
+    while time.process_time() < deadline:
+        pass
+    own = os.times()
+    read = _cpu_seconds(os.getpid())
+    assert read is not None and read == pytest.approx(own.user + own.system, abs=0.05)
+    assert _cpu_seconds(2**22 + 12345) is None  # no such process: unreadable, the wall clock serves

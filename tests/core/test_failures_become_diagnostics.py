@@ -142,7 +142,7 @@ def test_every_symbolic_step_of_the_exact_solve_runs_under_its_time_limit(monkey
     monkeypatch.setattr(equilibria, "_exact_equations", slow_equations)
     system = compile_model("x' = x*(1 - x)\n")
     points, notes = equilibria.exact_solutions(system, system.param_values, timeout=0.5)
-    assert points == [] and notes == ["the exact solve did not finish within 0.5 s; Newton search only"]
+    assert points == [] and notes == ["the exact solve did not finish within 0.5 s of computing; Newton search only"]
 
 
 # started off the jumps (at x = 1, y = 0 floor and sign jump: the solution is not unique there)
