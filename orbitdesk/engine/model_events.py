@@ -42,6 +42,19 @@ class AppliedEvent:
         return {"t": self.t, "line": self.line, "rule": self.rule, "before": self.before, "after": self.after}
 
 
+_HUGE = 2 ** 1000  # an exact integer beyond this cannot be converted to a float in generated code
+
+
+def _float_sized(e):
+    """An event's coefficient with exact numbers too large for a float (10^300 / sqrt(1 + 10^600), what
+    sin(atan(1e300)) becomes exactly) evaluated to 20 digits, so the generated code only meets floats."""
+    import sympy as sp
+
+    if isinstance(e, sp.Basic) and any(abs(a.p) > _HUGE or abs(a.q) > _HUGE for a in e.atoms(sp.Rational)):
+        return e.evalf(n=20)
+    return e
+
+
 class EventPlan:
     """The events of one compiled system as numbers: plane rows, event times, assignments."""
 
@@ -50,12 +63,12 @@ class EventPlan:
         self.events = list(system.model.events)
         self.planes = [k for k, ev in enumerate(self.events) if not ev.on_time]
         self.timed = [k for k, ev in enumerate(self.events) if ev.on_time]
-        rows = [e for k in self.planes for e in (*self.events[k].normal, -self.events[k].offset)]
+        rows = [_float_sized(e) for k in self.planes for e in (*self.events[k].normal, -self.events[k].offset)]
         self._rows = system._compile(rows, "math") if rows else None
-        times = [e for k in self.timed for e in (self.events[k].time_rate, self.events[k].time_offset)]
+        times = [_float_sized(e) for k in self.timed for e in (self.events[k].time_rate, self.events[k].time_offset)]
         self._times = system._compile(times, "math") if times else None
-        self._values = [system._compile([e for _, _, e in ev.assignments], "math") if ev.assignments else None
-                        for ev in self.events]
+        self._values = [system._compile([_float_sized(e) for _, _, e in ev.assignments], "math")
+                        if ev.assignments else None for ev in self.events]
         self.directions = np.array([self.events[k].direction for k in self.planes], dtype=np.int64)
 
     def plane_rows(self, t, u, p) -> np.ndarray:

@@ -390,3 +390,15 @@ def test_the_html_report_lists_the_events_escaped(tmp_path):
     assert "when x < 0 then x' = -e*x'" in shown and "x falls below 0" in shown
     assert "when x' > 100 then stop" in shown and "x' rises above 100" in shown
     assert reader.bold == 0 and "&lt;b&gt;" in page  # the comment in the model is shown as text, never as markup
+
+
+def test_an_event_constant_held_exactly_beyond_a_float_is_evaluated_as_one():
+    # sin(atan(1e300)) is exactly 10^300 / sqrt(1 + 10^600), whose parts overflow a float; its value is 1
+    # (closed form: sin(atan(x)) = x / sqrt(1 + x^2)), so x' = 1 from 0 meets the boundary at t = 1 and a
+    # reset to the same constant puts x back at 1. Found by the event-model fuzz (an OverflowError).
+    system = compile_model("x' = 1\nx(0) = 0\nwhen x > sin(atan(1e300)) then stop\n")
+    run = simulate(system, RunSettings(t_end=5.0, samples=50), system.initial, system.param_values)
+    assert run.status == STOPPED and run.time[-1] == pytest.approx(1.0, abs=1e-9)
+    timed = compile_model("x' = 0\nx(0) = 0\nwhen t > 2 then x = sin(atan(1e300))\n")
+    run = simulate(timed, RunSettings(t_end=3.0, samples=31), timed.initial, timed.param_values)
+    assert run.states[0, -1] == pytest.approx(1.0, abs=1e-12)
