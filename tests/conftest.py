@@ -22,5 +22,14 @@ def compiled_loops_ready():
     from orbitdesk.samples.models import HENON, LORENZ
     from orbitdesk.system.compiled_system import compile_model
 
-    simulate(compile_model(LORENZ), RunSettings(t_end=0.1, samples=11))
-    simulate(compile_model(HENON), RunSettings(t_end=10, samples=11))
+    from orbitdesk.analyses.sweep import SweepSettings, sweep
+
+    lorenz, henon = compile_model(LORENZ), compile_model(HENON)
+    simulate(lorenz, RunSettings(t_end=0.1, samples=11))
+    simulate(henon, RunSettings(t_end=10, samples=11))
+    # the member loops (adaptive, fixed step, maps) and the batched kernels, used by sweeps, ensembles and grids
+    sweep(lorenz, "r", [20.0, 28.0], SweepSettings(mode="maxima", observe="z", transient=0.5, duration=1.0,
+                                                   samples=2, method="dop853"))
+    sweep(lorenz, "r", [20.0, 28.0], SweepSettings(mode="maxima", observe="z", transient=0.5, duration=1.0,
+                                                   samples=2, dt=0.01))
+    sweep(henon, henon.parameters[0], [1.0, 1.4], SweepSettings(transient=10, samples=5, lyapunov=True))

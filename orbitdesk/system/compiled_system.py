@@ -302,6 +302,10 @@ class _ScalarPrinter(PythonCodePrinter):
     def _print_Float(self, expr):
         return repr(float(expr))
 
+    def _print_ComplexInfinity(self, expr):
+        # x / 0 folded by sympy (x / if(c, x, 0) where c fails): undefined in the reals, nan in floats
+        return 'float("nan")'
+
     def _print_Pow(self, expr, rational=False):
         # a negative base to a fractional power is undefined (math.pow raises) rather than complex
         exp = expr.exp
@@ -318,6 +322,9 @@ class VectorPrinter(NumPyPrinter):
     broadcast a parameter (a number) against states (arrays) where select() and reduce() do not;
     integers beyond 2^53 written as floats (numpy has no ufuncs for Python's big integers, so
     sin(10^299) would fail as an object array)."""
+
+    def _print_ComplexInfinity(self, expr):
+        return self._module_format("numpy.nan")
 
     def _print_Piecewise(self, expr):
         *rest, last = expr.args

@@ -363,7 +363,8 @@ def test_the_status_bar_names_each_job_under_way_with_its_progress(qtbot, window
     lyap.length.setValue(1e5)
     lyap.compute()
     qtbot.waitUntil(lambda: "Sweeping r over 400 values" in window.jobs_label.text()
-                    and "Lyapunov" in window.jobs_label.text() and "%" in window.jobs_label.text(), timeout=20000)
+                    and "Lyapunov" in window.jobs_label.text() and "%" in window.jobs_label.text(),
+                    timeout=180000)  # on a fresh clone the first sweep compiles its member loops before it reports
     window.session.cancel_all()
     qtbot.waitUntil(lambda: window.jobs_label.text() == "", timeout=20000)
 

@@ -54,12 +54,13 @@ def check_diagnostics(text: str, model) -> None:
 
 
 def overflows_floats(system, t, u) -> bool:
-    """True when some right side is really beyond the float range (then inf is the right float answer)."""
+    """True when some right side is really beyond the float range or undefined in exact arithmetic too (then
+    inf or nan is the right float answer: x / if(..., x, 0) divides by zero where the condition fails)."""
     values = {system.t_symbol: t, **dict(zip(system.state_symbols, u)),
               **dict(zip(system.param_symbols, system.param_values))}
     for expr in system.f:
         exact = expr.xreplace({k: sp.Float(float(v), 30) for k, v in values.items()}).evalf(30)
-        if exact.is_finite is False or (exact.is_Number and abs(exact) > 1.7e308):
+        if exact is sp.nan or exact.is_finite is False or (exact.is_Number and abs(exact) > 1.7e308):
             return True
     return False
 
