@@ -17,9 +17,10 @@ from __future__ import annotations
 
 import atexit
 import multiprocessing
-import os
 import time
 import traceback
+
+from orbitdesk.analyses.equilibria import _cpu_seconds  # the one reader of a process's CPU time
 
 HANG_LIMIT = 20.0  # seconds of CPU time for one example: a hang detector, not a speed test
 WALL_FACTOR = 60  # a worker blocked without using CPU time: it hangs after WALL_FACTOR * HANG_LIMIT seconds
@@ -42,16 +43,6 @@ def _serve(conn) -> None:
             conn.send(("failed", f"{type(exc).__name__}: {exc}", traceback.format_exc()))
         else:
             conn.send(("ok", "", ""))
-
-
-def _cpu_seconds(pid: int) -> float | None:
-    """User + system CPU time of a process (Linux /proc), or None where it cannot be read."""
-    try:
-        with open(f"/proc/{pid}/stat", "rb") as f:
-            fields = f.read().rsplit(b")", 1)[1].split()
-        return (int(fields[11]) + int(fields[12])) / os.sysconf("SC_CLK_TCK")
-    except (OSError, ValueError, IndexError):
-        return None
 
 
 class ExampleWorker:
