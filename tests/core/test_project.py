@@ -392,7 +392,11 @@ def _slots(value, trail=()):
             yield from _slots(v, trail + (i,))
 
 
-@settings(max_examples=300, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+# deep fuzz runs set ORBITDESK_FUZZ_EXAMPLES (see test_fuzz_parser.py)
+_DEEP = int(os.environ.get("ORBITDESK_FUZZ_EXAMPLES", "0"))
+
+
+@settings(max_examples=_DEEP or 300, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(data=st.data(), value=_json, new_key=st.booleans())
 def test_random_json_anywhere_only_raises_project_error(data, value, new_key):
     doc = valid_doc()
@@ -414,7 +418,7 @@ def test_random_json_anywhere_only_raises_project_error(data, value, new_key):
             assert loads(dumps(p)) == p  # whatever is accepted can be saved and read back
 
 
-@settings(max_examples=300, deadline=None)
+@settings(max_examples=_DEEP or 300, deadline=None)
 @given(text=st.text(alphabet=st.sampled_from('{}[]":,.-+eE0123456789 \\ntrufalsNIy\x00\ud800'), max_size=60)
        | st.binary(max_size=60).map(lambda b: b.decode("latin-1")))
 def test_random_text_only_raises_project_error(text):
