@@ -47,4 +47,19 @@ def mean_power_spectrum(time: np.ndarray, realisations: np.ndarray):
     return spectra[0][0], np.mean([s[1] for s in spectra], axis=0), len(spectra)
 
 
-__all__ = ["power_spectrum", "mean_power_spectrum"]
+def spectrum_extent(freq, power, fraction: float = 1e-3, margin: float = 1.25) -> float | None:
+    """The highest frequency worth showing of a spectrum: ``margin`` beyond the last frequency whose
+    power reaches ``fraction`` of the peak (30 dB below it by default), and at least 2.5 times the
+    peak's frequency, so the peak stands inside the axis and not at its left edge; never beyond the
+    spectrum's last frequency. None when no power is finite and positive."""
+    freq, power = np.asarray(freq, dtype=float), np.asarray(power, dtype=float)
+    ok = np.isfinite(power) & (power > 0) & np.isfinite(freq)
+    if not ok.any():
+        return None
+    peak = int(np.argmax(np.where(ok, power, -np.inf)))
+    above = np.nonzero(ok & (power >= fraction * power[peak]))[0]
+    top = max(margin * freq[above[-1]], 2.5 * freq[peak])
+    return float(min(top, freq[ok][-1]))
+
+
+__all__ = ["power_spectrum", "mean_power_spectrum", "spectrum_extent"]

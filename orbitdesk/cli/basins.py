@@ -4,11 +4,10 @@ stroboscopic basins of a forced flow."""
 
 
 from orbitdesk.analyses.basins import BasinSettings, basins
-from orbitdesk.engine.progress import Cancelled
 from orbitdesk.system.compiled_system import MAP
 
-from orbitdesk.cli.common import (add_grid_axes, add_outputs, CommandError, grid_axes, open_model, parse_number,
-                                  parse_positive, stderr_progress, write_grid)
+from orbitdesk.cli.common import (analysis_errors, add_grid_axes, add_outputs, CommandError, grid_axes, open_model,
+                                  parse_number, parse_positive, stderr_progress, write_grid)
 
 
 def register(sub):
@@ -43,11 +42,7 @@ def run(args) -> int:
         settings.dt = parse_positive(args.dt, "--dt")
     if args.escape is not None:
         settings.escape = parse_positive(args.escape, "--escape")
-    try:
+    with analysis_errors():
         result = basins(system, x_name, xs, y_name, ys, settings, u0=u0, p=p, progress=stderr_progress("basins"))
-    except ValueError as err:
-        raise CommandError(str(err)) from None
-    except Cancelled:
-        raise CommandError("cancelled") from None
     write_grid(args, result, result.to_dict())
     return 0

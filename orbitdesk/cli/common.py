@@ -6,6 +6,7 @@ import json
 import math
 import re
 import sys
+from contextlib import contextmanager
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -144,11 +145,55 @@ def values_for(system, source: Source, sets, inits):
     return p, u0
 
 
-def add_interval_options(parser, what="the parameter that moves"):
-    """--param NAME --from A --to B, read back by ``parse_interval``."""
+def add_span_options(parser) -> None:
+    """How long a run goes: --t-end T (flows) or --steps N (maps), checked by ``check_span``."""
+    span = parser.add_mutually_exclusive_group()
+    span.add_argument("--t-end", type=str, metavar="T", help="end time of a flow")
+    span.add_argument("--steps", type=int, metavar="N", help="iterations of a map")
+
+
+def check_span(args, system) -> None:
+    """Refuse --t-end for a map and --steps for a flow (each would be ignored)."""
+    if system.kind == "map" and args.t_end is not None:
+        raise CommandError("--t-end applies to flows; a map runs for --steps N")
+    if system.kind != "map" and args.steps is not None:
+        raise CommandError("--steps applies to maps; a flow runs to --t-end T")
+
+
+def add_interval_options(parser, what: str, guess_help: str):
+    """The options of a command that follows a curve as a parameter moves: --param NAME --from A --to B,
+    --guess STATE=VALUE (repeatable) and --max-points N, read back by ``open_interval``."""
     parser.add_argument("--param", required=True, metavar="NAME", help=what)
     parser.add_argument("--from", dest="lo", required=True, metavar="A", help="one end of the parameter interval")
     parser.add_argument("--to", dest="hi", required=True, metavar="B", help="the other end")
+    parser.add_argument("--guess", action="append", metavar="STATE=VALUE", help=guess_help + " (repeatable)")
+    parser.add_argument("--max-points", type=int, default=400, metavar="N",
+                        help="most points per direction of the curve followed (default 400)")
+
+
+def open_interval(args):
+    """(system, p, u0, guess, lo, hi) of a command with ``add_interval_options``: the model opened by
+    ``open_model``, the --guess states checked against it, the parameter and its interval."""
+    _source, system, p, u0 = open_model(args)
+    guess = parse_guess(args.guess, system)
+    lo, hi = parse_interval(args, system)
+    if args.max_points < 2:
+        raise CommandError("--max-points must be at least 2")
+    return system, p, u0, guess, lo, hi
+
+
+@contextmanager
+def analysis_errors(*refusals, prefix: str = ""):
+    """An analysis's refusals (ValueError and ``refusals``; a KeyError's words are its name) and a cancel
+    as the command's error."""
+    from orbitdesk.engine.progress import Cancelled
+
+    try:
+        yield
+    except Cancelled:
+        raise CommandError("cancelled") from None
+    except (ValueError, *refusals) as err:
+        raise CommandError(prefix + str(err.args[0] if isinstance(err, KeyError) else err)) from None
 
 
 def parse_interval(args, system) -> tuple[float, float]:

@@ -2,11 +2,10 @@
 their special points (fold, Hopf, branch point, cycle fold, period doubling, torus), or with
 ``--locus fold|hopf`` the curve of a fold or Hopf point in two parameters."""
 
-from orbitdesk.engine.progress import Cancelled
 from orbitdesk.system.compiled_system import MAP
 
-from orbitdesk.cli.common import (add_outputs, CommandError, add_interval_options, open_model,
-                                  parse_guess, parse_interval, parse_number, print_json, stderr_progress)
+from orbitdesk.cli.common import (add_outputs, analysis_errors, CommandError, add_interval_options, open_interval,
+                                  parse_number, print_json, stderr_progress)
 
 STARTS = ("equilibrium", "cycle", "fixed point")
 
@@ -15,17 +14,13 @@ def register(sub):
     parser = sub.add_parser("continue", help="follow equilibria, fixed points or cycles as a parameter moves "
                                              "and locate their bifurcations")
     parser.add_argument("path")
-    add_interval_options(parser)
+    add_interval_options(parser, "the parameter that moves", "continue only the solution nearest this point")
     parser.add_argument("--start", choices=STARTS, metavar="WHAT",
                         help="what to continue: equilibrium (flows), fixed point (maps) or cycle (the cycle "
                              "found from --guess; default: equilibrium for flows, fixed point for maps)")
     parser.add_argument("--cycles", action="store_true",
                         help="also continue the cycles born at every Hopf point found")
-    parser.add_argument("--guess", action="append", metavar="STATE=VALUE",
-                        help="continue only the solution nearest this point (repeatable)")
     parser.add_argument("--period", type=int, metavar="K", help="maps: continue fixed points of the K-th iterate")
-    parser.add_argument("--max-points", type=int, default=400, metavar="N",
-                        help="most points per direction of a branch (default 400)")
     parser.add_argument("--no-switch", action="store_true",
                         help="do not follow the other branches through branch points and period doublings")
     parser.add_argument("--locus", choices=("fold", "hopf"),
@@ -37,11 +32,7 @@ def register(sub):
 
 
 def run(args) -> int:
-    source, system, p, u0 = open_model(args)
-    guess = parse_guess(args.guess, system)
-    lo, hi = parse_interval(args, system)
-    if args.max_points < 2:
-        raise CommandError("--max-points must be at least 2")
+    system, p, u0, guess, lo, hi = open_interval(args)
     start = args.start or ("fixed point" if system.kind == MAP else "equilibrium")
     if system.kind == MAP and start == "equilibrium":
         start = "fixed point"
@@ -56,7 +47,7 @@ def run(args) -> int:
     from orbitdesk.analyses.continuation.branches import default_settings
 
     settings: StepSettings = default_settings(lo, hi, args.max_points)
-    try:
+    with analysis_errors(ContinuationError, KeyError):
         if args.locus:
             return _locus(system, p, u0, guess, lo, hi, args, progress)
         if args.param2 or args.range2:
@@ -74,10 +65,6 @@ def run(args) -> int:
                 from orbitdesk.analyses.continuation.cycles import cycles_from_hopf_points
 
                 result = cycles_from_hopf_points(system, result, lo, hi, p, settings)
-    except (ContinuationError, ValueError, KeyError) as err:
-        raise CommandError(str(err.args[0] if isinstance(err, KeyError) else err)) from None
-    except Cancelled:
-        raise CommandError("cancelled") from None
     if args.json:
         print_json(result.to_dict())
     else:

@@ -3,11 +3,10 @@ cycle of a map (``--period K``)."""
 
 from orbitdesk.analyses.cycles import CycleError, find_cycle, find_map_cycle
 from orbitdesk.engine.methods import DEFAULT
-from orbitdesk.engine.progress import Cancelled
 from orbitdesk.system.compiled_system import MAP
 
-from orbitdesk.cli.common import (add_method_option, add_outputs, CommandError, open_model, parse_guess, parse_number,
-                                  parse_positive, print_json, stderr_progress, write_csv)
+from orbitdesk.cli.common import (add_method_option, add_outputs, analysis_errors, CommandError, open_model,
+                                  parse_guess, parse_number, parse_positive, print_json, stderr_progress, write_csv)
 
 
 def register(sub):
@@ -32,16 +31,13 @@ def run(args) -> int:
     source, system, p, u0 = open_model(args)
     guess = parse_guess(args.guess, system)
     progress = stderr_progress("cycle")
-    try:
-        if system.kind == MAP:
-            return _map_cycle(system, p, u0, guess, args, progress)
-        return _flow_cycle(system, source, p, u0, guess, args, progress)
-    except CycleError as err:
-        raise CommandError(f"no cycle found: {err}") from None
-    except ValueError as err:
-        raise CommandError(str(err)) from None
-    except Cancelled:
-        raise CommandError("cancelled") from None
+    with analysis_errors():
+        try:
+            if system.kind == MAP:
+                return _map_cycle(system, p, u0, guess, args, progress)
+            return _flow_cycle(system, source, p, u0, guess, args, progress)
+        except CycleError as err:
+            raise CommandError(f"no cycle found: {err}") from None
 
 
 def _map_cycle(system, p, u0, guess, args, progress) -> int:

@@ -2,11 +2,10 @@
 
 from orbitdesk.analyses.equilibria import find_equilibria
 from orbitdesk.analyses.manifolds import is_planar_saddle, saddle_manifolds
-from orbitdesk.engine.progress import Cancelled
 from orbitdesk.system.compiled_system import MAP
 
-from orbitdesk.cli.common import (CommandError, add_value_options, open_model, parse_number, print_json,
-                                  stderr_progress)
+from orbitdesk.cli.common import (analysis_errors, CommandError, add_value_options, open_model, parse_number,
+                                  print_json, stderr_progress)
 
 MANIFOLD_POINTS = 400  # points per branch in the JSON output
 
@@ -50,7 +49,7 @@ def run(args) -> int:
     if timeout < 0:
         raise CommandError("--timeout must be zero or positive")
     progress = stderr_progress("equilibria")
-    try:
+    with analysis_errors():
         eqs = find_equilibria(system, p, box=box, starts=args.starts, exact=not args.no_exact and timeout > 0,
                               exact_timeout=timeout, progress=progress, u0=u0)
         entries = []
@@ -59,10 +58,6 @@ def run(args) -> int:
             if is_planar_saddle(system, eq):
                 entry["manifolds"] = saddle_manifolds(system, eq, p, box=eqs.box).to_dict(MANIFOLD_POINTS)
             entries.append(entry)
-    except ValueError as err:
-        raise CommandError(str(err)) from None
-    except Cancelled:
-        raise CommandError("cancelled") from None
     if args.json:
         print_json({"equilibria": entries, "notes": eqs.notes})
     else:

@@ -2,12 +2,11 @@
 
 from orbitdesk.document.datasets import DataError, read_data_file
 from orbitdesk.analyses.fitting import FitError, FitSettings, fit
-from orbitdesk.engine.progress import Cancelled
 from orbitdesk.analyses.sensitivity import SensitivityFailure
 from orbitdesk.system.compiled_system import MAP
 
-from orbitdesk.cli.common import (EXIT_UNREADABLE, CommandError, load_system, parse_assignments, parse_number, print_json,
-                     read_source, stderr_progress, values_for)
+from orbitdesk.cli.common import (EXIT_UNREADABLE, CommandError, analysis_errors, load_system, parse_assignments,
+                                  parse_number, print_json, read_source, stderr_progress, values_for)
 
 
 def register(sub):
@@ -114,12 +113,8 @@ def run(args) -> int:
                            multiple_shooting=args.multiple_shooting, max_evaluations=args.max_evaluations,
                            t_start=solver.t_start if solver else 0.0,
                            method=solver.method if solver else "dop853")
-    try:
+    with analysis_errors(FitError, SensitivityFailure, prefix="cannot fit: "):
         result = fit(system, datasets, settings, p, u0, ranges, progress=stderr_progress("fit"))
-    except (FitError, SensitivityFailure, ValueError) as err:
-        raise CommandError(f"cannot fit: {err}") from None
-    except Cancelled:
-        raise CommandError("cancelled") from None
     if args.json:
         print_json(result.to_dict())
     else:

@@ -3,12 +3,11 @@ the largest Lyapunov exponent or of the period of the attractor, as JSON or CSV 
 
 
 from orbitdesk.analyses.parameter_maps import period_grid
-from orbitdesk.engine.progress import Cancelled
 from orbitdesk.analyses.sweep import MAXIMA, STROBE, GridSettings, SweepSettings, lyapunov_grid
 from orbitdesk.system.compiled_system import MAP
 
-from orbitdesk.cli.common import (add_grid_axes, add_outputs, CommandError, grid_axes, open_model, parse_number,
-                                  parse_positive, stderr_progress, write_grid)
+from orbitdesk.cli.common import (analysis_errors, add_grid_axes, add_outputs, CommandError, grid_axes, open_model,
+                                  parse_number, parse_positive, stderr_progress, write_grid)
 
 
 def register(sub):
@@ -36,7 +35,7 @@ def run(args) -> int:
     if transient is not None and transient < 0:
         raise CommandError("--transient must be zero or positive")
     progress = stderr_progress("grid")
-    try:
+    with analysis_errors():
         if args.lyapunov:
             if args.strobe is not None or args.max_period != 32:
                 raise CommandError("--strobe and --max-period go with --period")
@@ -70,9 +69,5 @@ def run(args) -> int:
             grid = period_grid(system, x_name, xs, y_name, ys, settings, max_period=args.max_period, u0=u0, p=p,
                                progress=progress)
             data = grid.to_dict()
-    except ValueError as err:
-        raise CommandError(str(err)) from None
-    except Cancelled:
-        raise CommandError("cancelled") from None
     write_grid(args, grid, data)
     return 0

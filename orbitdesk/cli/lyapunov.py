@@ -7,17 +7,15 @@ from orbitdesk.analyses.lyapunov import (CONVERGE_ATOL, CONVERGE_RTOL, FLOW_CAP,
 from orbitdesk.engine.methods import METHODS, NAMES
 from orbitdesk.system.compiled_system import MAP
 
-from orbitdesk.cli.common import add_outputs, CommandError, load_system, parse_number, print_json, read_source, \
-    stderr_progress, values_for
+from orbitdesk.cli.common import (add_outputs, add_span_options, check_span, CommandError, load_system, parse_number,
+                                  print_json, read_source, stderr_progress, values_for)
 from orbitdesk.cli.run import settings_for
 
 
 def register(sub):
     parser = sub.add_parser("lyapunov", help="Lyapunov exponents of a flow or a map")
     parser.add_argument("path")
-    span = parser.add_mutually_exclusive_group()
-    span.add_argument("--t-end", type=str, metavar="T", help="end time of a flow")
-    span.add_argument("--steps", type=int, metavar="N", help="iterations of a map")
+    add_span_options(parser)
     parser.add_argument("--transient", metavar="T",
                         help="time (or iterations) discarded first (default: the system's slow time scale, at "
                              "least 200, or 1000 iterations; with --t-end/--steps a tenth of the run)")
@@ -38,10 +36,7 @@ def register(sub):
 def run(args) -> int:
     source = read_source(args.path)
     system = load_system(source)
-    if system.kind == MAP and args.t_end is not None:
-        raise CommandError("--t-end applies to flows; a map runs for --steps N")
-    if system.kind != MAP and args.steps is not None:
-        raise CommandError("--steps applies to maps; a flow runs to --t-end T")
+    check_span(args, system)
     p, u0 = values_for(system, source, args.set, args.init)
     settings = settings_for(source, args)
     transient = settings.transient if settings.transient > 0 else None

@@ -6,16 +6,14 @@ from orbitdesk.engine.settings import SCHEMES, RunSettings, SettingsError
 from orbitdesk.engine.status import STOPPED
 from orbitdesk.system.compiled_system import MAP
 
-from orbitdesk.cli.common import (CommandError, add_value_options, open_model, parse_number, parse_positive,
-                                  print_json, stderr_progress, write_csv)
+from orbitdesk.cli.common import (CommandError, add_span_options, add_value_options, check_span, open_model,
+                                  parse_number, parse_positive, print_json, stderr_progress, write_csv)
 
 
 def register(sub):
     parser = sub.add_parser("run", help="integrate a flow or iterate a map")
     parser.add_argument("path")
-    span = parser.add_mutually_exclusive_group()
-    span.add_argument("--t-end", type=str, metavar="T", help="end time of a flow")
-    span.add_argument("--steps", type=int, metavar="N", help="iterations of a map")
+    add_span_options(parser)
     parser.add_argument("--samples", type=int, metavar="K", help="output points of a flow")
     add_value_options(parser)
     parser.add_argument("--method", choices=NAMES, help="integration method")
@@ -63,6 +61,7 @@ def settings_for(source, args) -> RunSettings:
 
 def run(args) -> int:
     source, system, p, u0 = open_model(args, noise=True)
+    check_span(args, system)
     settings = settings_for(source, args)
     try:
         traj = simulate(system, settings, u0, p, progress=stderr_progress("run"), noise=True)

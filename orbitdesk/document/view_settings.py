@@ -16,9 +16,9 @@ import math
 
 from orbitdesk.engine.methods import METHODS
 
-# the views' method choices, read off the one registry ("automatic": the default, or the stiff method when stiff)
+# the views' method choices, read off the one registry ("automatic": the default, or the stiff method when stiff;
+# "rk4" with the saved "dt": the fixed step)
 _METHOD_CHOICES = ("automatic", *METHODS)
-_ADAPTIVE_CHOICES = ("automatic", *(name for name, info in METHODS.items() if info.adaptive))
 
 VIEW_SETTINGS: dict[str, dict] = {
     "timeseries": {"series": "series list", "log_y": "bool", "spectrum": "bool"},
@@ -55,7 +55,7 @@ VIEW_SETTINGS: dict[str, dict] = {
                       "transient": "number", "duration": "number", "max_period": "integer", "period": "number"},
     "lyapunov": {"flow": {"length": "number", "transient": "number"},
                  "map": {"steps": "integer", "transient": "integer"}, "dt": "number", "auto": "bool",
-                 "method": _ADAPTIVE_CHOICES, "settle": "bool"},
+                 "method": _METHOD_CHOICES, "settle": "bool"},
 }
 
 # Saved by the window for every view with plots, once the user names an axis quantity

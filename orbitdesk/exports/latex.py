@@ -219,6 +219,9 @@ def model_latex(model, parameters: dict | None = None, initial: dict | None = No
                         + ",\\ ".join(does))
         sections.append(("with the events (each applied at the crossing; right sides use the values before it)",
                          rows))
+    if parsed.angles:  # `angle theta`: the state lives on a circle, shown wrapped (language reference)
+        sections.append((r"where the angles are read modulo $2\pi$ (and shown wrapped to $(-\pi, \pi]$)",
+                         [rf"{latex_name(name)} &\equiv {latex_name(name)} + 2\pi" for name in parsed.angles]))
     rows = []
     for state in parsed.states:
         if is_map:

@@ -119,6 +119,21 @@ def load_model(qtbot, session, text, defaults, **solver):
         Project(name="m", model=text, solver=session.solver)))
 
 
+SHORT_RUN = dict(t_end=20.0, samples=1001, steps=500)  # the analysis views' tests: a short run to start from
+
+
+def load_short(qtbot, session, text, **solver):
+    """``load_model`` with a short run (SHORT_RUN, updated by ``solver``)."""
+    return load_model(qtbot, session, text, SHORT_RUN, **solver)
+
+
+def click_for_result(qtbot, button, signal, timeout):
+    """Click a view's compute button and wait for ``signal``; returns the signal's first argument."""
+    with qtbot.waitSignal(signal, timeout=timeout) as blocker:
+        button.click()
+    return blocker.args[0]
+
+
 def show_view(qtbot, view, size):
     """Show a view widget at ``size`` and wait until it is on screen."""
     qtbot.addWidget(view)

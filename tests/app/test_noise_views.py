@@ -59,3 +59,22 @@ def test_views_that_assume_determinism_say_they_use_the_noise_free_part(qtbot, s
     assert view.noise_note.isVisible() and "noise-free part" in view.noise_note.text()
     load_model(qtbot, session, "x' = -x\nx(0) = 1\n", dict(t_end=5.0, samples=51))
     assert not view.noise_note.isVisible()
+
+
+def test_the_spectrum_axis_is_chosen_from_where_the_power_is(qtbot, session):
+    # a lightly damped oscillator shaken by white noise (the rocking-buoy sample's model): its displacement's
+    # spectrum peaks at sqrt(k - c^2/2) / (2 pi) = 0.3175 cycles per unit time (closed form); samples every
+    # 0.02 reach frequencies up to 25, where the power is a hundred million times below the peak
+    text = "k = 4\nc = 0.2\nx'' = -k*x - c*x' + 0.3*noise\nx(0) = 0.5\nx'(0) = 0\n"
+    load_model(qtbot, session, text, dict(t_end=60.0, samples=3001, dt=0.01, realisations=20, seed=1))
+    ts = open_view(qtbot, session, "timeseries", (900, 500))
+    ts.set_series(["x"])
+    ts.spectrum.setChecked(True)
+    header, rows = ts.export_data()
+    peak = rows[np.argmax(rows[:, 1]), 0]
+    assert peak == pytest.approx(np.sqrt(4 - 0.02) / (2 * np.pi), abs=1 / 60)
+    (x0, x1), (y0, y1) = ts.plot.viewRange()
+    assert x0 <= 0.0 and x1 < 5.0
+    assert 0.2 <= (peak - x0) / (x1 - x0) <= 0.8, (x0, x1, peak)  # the peak in the middle of the axis
+    assert y1 >= np.log10(rows[:, 1].max())  # (log axis) the peak is not cut off
+    ts.grab().save(f"{ARTIFACTS}/noise_spectrum_axis.png")

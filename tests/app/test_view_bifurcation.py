@@ -1,6 +1,8 @@
 """Bifurcation diagram view: branches computed in the background, special points listed in words, a
 click on a row sets the parameter and state, results kept in the view's settings."""
 
+import re
+
 import numpy as np
 import pytest
 
@@ -35,6 +37,8 @@ def test_hopf_point_listed_in_words_and_click_goes_there(qtbot, session):
     # closed form: Hopf at b = 1 + a^2 = 3.25 with frequency a = 1.5, supercritical
     assert label == "Hopf" and at == "b = 3.25"
     assert "soft onset" in meaning and "frequency 1.5" in meaning
+    # the status under both tabs says which diagram its counts are of (one Hopf point, one row above)
+    assert re.match(r"One-parameter diagram: \d+ branch(es)?, 1 special point\b", view.info.text())
     view.table.cellClicked.emit(0, 0)
     assert session.params["b"] == pytest.approx(3.25)
     assert session.initial["x"] == pytest.approx(1.5) and session.initial["y"] == pytest.approx(3.25 / 1.5)

@@ -5,7 +5,9 @@ import csv
 import math
 
 import numpy as np
+import pyqtgraph as pg
 import pytest
+from PySide6.QtCore import QPointF
 from scipy.integrate import simpson
 from orbitdesk.samples.models import LOGISTIC, VAN_DER_POL_REF, model
 
@@ -95,3 +97,35 @@ def test_in_a_wide_short_dock_the_numbers_show_without_scrolling(qtbot, session,
     assert view.plot_widget.height() > 120
     view.resize(600, 700)  # tall again: one above the other
     qtbot.waitUntil(lambda: view.splitter.orientation().name == "Vertical")
+
+
+def _points_under_legend(plot_item) -> int:
+    """How many data points of the plot's curves lie under its legend, both taken in scene pixels."""
+    box = plot_item.legend.sceneBoundingRect()
+    vb = plot_item.getViewBox()
+    under = 0
+    for item in plot_item.items:
+        if isinstance(item, pg.PlotDataItem) and item.name():
+            x, y = item.xData, item.yData
+            xs = np.interp(np.linspace(0, x.size - 1, 8 * x.size), np.arange(x.size), x)
+            ys = np.interp(np.linspace(0, y.size - 1, 8 * y.size), np.arange(y.size), y)
+            under += sum(box.contains(vb.mapViewToScene(QPointF(a, b))) for a, b in zip(xs, ys))
+    return under
+
+
+def test_the_legend_leaves_the_cycle_uncovered_on_screen_and_in_the_figure(qtbot, session, artifacts):
+    from orbitdesk.app.plots.figures import copy_plot
+
+    # the relaxation-circuit sample's step 4: the Van der Pol cycle at mu = 1 in a short, wide dock
+    view = open_view(qtbot, session, "cycles", (740, 260))
+    load_model(qtbot, session, VAN_DER_POL, dict(t_end=60.0, samples=3000))
+    find(qtbot, view)
+    qtbot.waitUntil(lambda: view.plot.legend.isVisible() and view.plot.getViewBox().width() > 0)
+    assert _points_under_legend(view.plot) == 0
+    view.grab().save(f"{artifacts}/cycle_legend.png")
+    figure = copy_plot(view.plot, 640, 300, legend=True, fit=True)
+    plot = figure.getPlotItem()
+    assert plot.legend is not None and len(plot.legend.items) == 2
+    assert _points_under_legend(plot) == 0
+    figure.grab().save(f"{artifacts}/cycle_legend_figure.png")
+    figure.close()

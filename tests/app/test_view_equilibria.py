@@ -204,3 +204,19 @@ def test_the_csv_of_a_delay_models_equilibrium_has_a_column_for_every_root(qtbot
     assert len(roots) > 1
     for lam in roots:
         assert abs(lam + np.exp(-lam)) < 1e-6 * max(1.0, abs(lam))
+
+
+def test_a_short_dock_still_shows_four_rows_of_the_table(qtbot, session, artifacts):
+    # x' = x - x^3, y' = y - y^3: nine equilibria, every (x, y) in {-1, 0, 1}^2 (closed form)
+    view = open_view(qtbot, session, "equilibria", (760, 290))  # a third of a 1000-pixel window's column
+    found = wait_found(qtbot, view, lambda: load(qtbot, session, "x' = x - x^3\ny' = y - y^3\nx(0) = 0.5\n"))
+    assert len(found) == 9
+    assert sorted((round(e.state["x"], 9), round(e.state["y"], 9)) for e in found) == [
+        (float(a), float(b)) for a in (-1, 0, 1) for b in (-1, 0, 1)]
+    qtbot.wait(30)
+    table = view.table
+    seen = [r for r in range(table.rowCount()) if 0 <= table.rowViewportPosition(r)
+            and table.rowViewportPosition(r) + table.rowHeight(r) <= table.viewport().height()]
+    view.grab().save(os.path.join(artifacts, "view_equilibria_short.png"))
+    assert len(seen) >= 4, f"only rows {seen} show in a {table.viewport().height()}-pixel table"
+    assert view.details.height() > 0 and view.lower.isVisible()  # the linearisation below, scrolled if need be

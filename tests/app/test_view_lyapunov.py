@@ -8,7 +8,7 @@ import pytest
 
 from orbitdesk.samples.models import HENON_REF, LORENZ, model
 
-from .conftest import load_model, open_view, wait_for_trajectory
+from .conftest import click_for_result, load_short as load, open_view, wait_for_trajectory
 
 
 HENON = model(HENON_REF, initial={'y[0]': 0})
@@ -19,18 +19,12 @@ x'' = -0.2*x' - k*max(x, 0) - x + 2*cos(1.3*t)
 """
 
 
-def load(qtbot, session, text, **solver):
-    return load_model(qtbot, session, text, dict(t_end=20.0, samples=1001, steps=500), **solver)
-
-
 def make_view(qtbot, session):
     return open_view(qtbot, session, "lyapunov", (900, 460))
 
 
 def compute(qtbot, view, timeout=60000):
-    with qtbot.waitSignal(view.resultChanged, timeout=timeout) as blocker:
-        view.compute_button.click()
-    return blocker.args[0]
+    return click_for_result(qtbot, view.compute_button, view.resultChanged, timeout)
 
 
 def test_lorenz_spectrum(qtbot, session, artifacts):
@@ -92,11 +86,14 @@ def test_settings_round_trip_and_stale_note(qtbot, session):
     load(qtbot, session, LORENZ)
     view.length.setValue(50.0)
     view.transient.setValue(5.0)
-    view.auto_step.setChecked(False)
+    assert not view.dt.isVisible()  # the step shows with the fixed-step method only
+    view.method.setCurrentIndex(view.method.findData("rk4"))
+    assert view.dt.isVisible()
     view.dt.setValue(0.005)
     compute(qtbot, view)
     d = view.view_settings()
     assert d["flow"] == {"length": 50.0, "transient": 5.0} and d["dt"] == 0.005 and d["auto"] is False
+    assert d["method"] == "rk4"
     assert view.result.dt == pytest.approx(0.005)
     wait_for_trajectory(qtbot, session, lambda: session.set_param("r", 30.0))
     assert view.is_stale() and not view.stale_bar.isHidden()
@@ -147,3 +144,21 @@ def test_uncertainty_per_exponent_and_the_cap(qtbot, session, artifacts):
     result = compute(qtbot, view)
     assert result.converged is None and "cap" not in view.summary.text()
     assert view.view_settings()["settle"] is False and view.view_settings()["method"] == "automatic"
+
+
+def test_the_method_and_step_pair_is_the_sweeps(qtbot, session):
+    """The Lyapunov view and the sweep offer the same integration choices (one control pair) and read
+    them back the same way."""
+    view = make_view(qtbot, session)
+    sweep = open_view(qtbot, session, "sweep", (900, 500))
+    load(qtbot, session, LORENZ)
+    both = [[(v.method.itemText(i), v.method.itemData(i)) for i in range(v.method.count())] for v in (view, sweep)]
+    assert both[0] == both[1] and ("Automatic", "automatic") in both[0]
+    for v in (view, sweep):
+        v.apply_view_settings({"method": "stiff", "dt": 0.02})
+        assert v.view_settings()["method"] == "stiff" and not v.dt.isVisible()
+        v.apply_view_settings({"dt": 0.02})  # saved before the method choice: the fixed step it ran
+        assert v.view_settings()["method"] == "rk4" and v.dt.isVisible() and v.dt.value() == pytest.approx(0.02)
+    view.length.setValue(20.0)
+    view.transient.setValue(2.0)
+    assert compute(qtbot, view).dt == pytest.approx(0.02)

@@ -10,7 +10,7 @@ from PySide6.QtWidgets import QApplication
 
 from orbitdesk.samples.models import LOGISTIC_REF, LORENZ_REF, model
 
-from .conftest import load_model, open_view, wait_for_trajectory
+from .conftest import click_for_result, load_short as load, open_view, wait_for_trajectory
 
 LOGISTIC = model(LOGISTIC_REF, r=3.5, ranges={'r': (2.5, 4)}, initial={'x[0]': 0.3})
 
@@ -25,18 +25,12 @@ v(0) = 0
 LORENZ = model(LORENZ_REF, ranges={'r': (20, 200)})
 
 
-def load(qtbot, session, text, **solver):
-    return load_model(qtbot, session, text, dict(t_end=20.0, samples=1001, steps=500), **solver)
-
-
 def make_view(qtbot, session):
     return open_view(qtbot, session, "sweep", (1100, 600))
 
 
 def run_sweep(qtbot, view, timeout=30000):
-    with qtbot.waitSignal(view.sweepChanged, timeout=timeout) as blocker:
-        view.run_button.click()
-    return blocker.args[0]
+    return click_for_result(qtbot, view.run_button, view.sweepChanged, timeout)
 
 
 def points_near(result, value):

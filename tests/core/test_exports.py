@@ -60,6 +60,15 @@ def test_latex_map_uses_subscripts():
     assert latex_name("k_1") == "k_{1}" and latex_name("theta''") == r"\ddot{\theta}"
 
 
+def test_latex_declares_the_angles():
+    # the language reference: `angle theta` makes theta an angle, read modulo 2 pi and shown in (-pi, pi]
+    text = model_latex("g = 9.81\ntheta'' = -g*sin(theta)\nphi_1' = 1\nangle theta, phi_1\ntheta'(0) = 6.5\n")
+    assert r"\intertext{where the angles are read modulo $2\pi$ (and shown wrapped to $(-\pi, \pi]$)}" in text
+    assert r"\theta &\equiv \theta + 2\pi" in text and r"\phi_{1} &\equiv \phi_{1} + 2\pi" in text
+    assert r"\dot{\theta} &\equiv" not in text  # the angle's rate is no angle
+    assert "modulo" not in model_latex(BEAM)
+
+
 def test_latex_refuses_models_with_errors():
     with pytest.raises(ValueError, match="errors"):
         model_latex("x' = y +\n")

@@ -7,7 +7,9 @@ import math
 from PySide6.QtCore import Qt, QTimer, Signal
 from PySide6.QtGui import QFontDatabase
 from PySide6.QtWidgets import (QAbstractSpinBox, QDoubleSpinBox, QFrame, QGridLayout, QHBoxLayout, QLabel,
-                               QPushButton, QScrollArea, QSizePolicy, QSlider, QVBoxLayout, QWidget)
+                               QPushButton, QScrollArea, QSizePolicy, QSlider, QWidget)
+
+from orbitdesk.app.layouts import column
 
 
 SLIDER_STEPS = 1000
@@ -156,14 +158,10 @@ class ParameterPanel(QWidget):
         self._flush_timer.setInterval(0)
         self._flush_timer.timeout.connect(self.flush)
 
-        outer = QVBoxLayout(self)
-        outer.setContentsMargins(0, 0, 0, 0)
-        outer.setSpacing(4)
         self.scroll = QScrollArea(self)
         self.scroll.setWidgetResizable(True)
         self.scroll.setFrameShape(QFrame.Shape.NoFrame)
         self.scroll.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
-        outer.addWidget(self.scroll, 1)
         bar = QHBoxLayout()
         bar.setContentsMargins(8, 0, 8, 6)
         self.reset_button = QPushButton("Back to the model's values")
@@ -171,7 +169,7 @@ class ParameterPanel(QWidget):
         self.reset_button.clicked.connect(self._reset)
         bar.addStretch(1)
         bar.addWidget(self.reset_button)
-        outer.addLayout(bar)
+        column(self, (self.scroll, 1), bar, spacing=4)
         self.empty = QLabel("No parameters yet. Write a line such as <tt>a = 1.5 in [0, 3]</tt> in the model.")
         self.empty.setWordWrap(True)
         self.empty.setToolTip("Parameters and initial values of the model appear here")

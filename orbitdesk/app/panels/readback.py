@@ -7,8 +7,9 @@ import html
 
 from PySide6.QtCore import Qt, QTimer
 from PySide6.QtGui import QColor, QFontDatabase, QPalette
-from PySide6.QtWidgets import QLabel, QTextBrowser, QVBoxLayout, QWidget
+from PySide6.QtWidgets import QLabel, QTextBrowser, QWidget
 
+from orbitdesk.app.layouts import column
 from orbitdesk.app.panels.highlighter import colour, is_dark, FLOW_EQ, MAP_EQ, PARAMETER, DERIVED, INITIAL
 
 def _is_flow(system) -> bool:
@@ -68,9 +69,6 @@ class ModelReadback(QWidget):
         self.session = session
         self._system = None
         self._static_html: dict[str, str] = {}
-        layout = QVBoxLayout(self)
-        layout.setContentsMargins(0, 0, 0, 0)
-        layout.setSpacing(0)
         self.note = QLabel(self)
         self.note.setWordWrap(True)
         self.note.setTextFormat(Qt.TextFormat.RichText)
@@ -83,8 +81,7 @@ class ModelReadback(QWidget):
         self.browser.setToolTip("What the tool understood from the model text")
         self.browser.setLineWrapMode(QTextBrowser.LineWrapMode.WidgetWidth)  # notes wrap, never cut off
         self.browser.document().setDocumentMargin(12)
-        layout.addWidget(self.note)
-        layout.addWidget(self.browser, 1)
+        column(self, self.note, (self.browser, 1), spacing=0)
         self._values_timer = QTimer(self)
         self._values_timer.setSingleShot(True)
         self._values_timer.setInterval(80)

@@ -23,6 +23,7 @@ from orbitdesk.document.views import title_of
 from orbitdesk.document.walkthrough import apply_step, delete_step, move_step, record_step, render_note
 
 from orbitdesk.app.dock_layout import keep_side_widths
+from orbitdesk.app.layouts import column
 from orbitdesk.app.plain_text import rich_tip
 from orbitdesk.app.panels.walkthrough_screen import apply_to_view, capture_state, model_info, put_on_screen
 
@@ -146,22 +147,14 @@ class WalkthroughPanel(QWidget):
         nav.addWidget(self.next_button)
         nav.addStretch(1)
 
-        show = QWidget()
-        show_layout = QVBoxLayout(show)
-        show_layout.setContentsMargins(0, 0, 0, 0)
-        show_layout.setSpacing(6)
-        show_layout.addWidget(self.position_label)
-        show_layout.addWidget(self.title_label)
-        show_layout.addWidget(self.note_view, 1)
-        show_layout.addWidget(self.problems_label)
-        show_layout.addWidget(self.missing_label)
-        show_layout.addLayout(nav)
         leave_row = QHBoxLayout()
         leave_row.setSpacing(6)
         leave_row.addWidget(self.present_button)
         leave_row.addStretch(1)
         leave_row.addWidget(self.leave_button)
-        show_layout.addLayout(leave_row)
+        show = QWidget()
+        column(show, self.position_label, self.title_label, (self.note_view, 1), self.problems_label,
+               self.missing_label, nav, leave_row)
 
         # ---- the list of steps and its editing tools
         self.step_list = _StepList()
@@ -191,28 +184,17 @@ class WalkthroughPanel(QWidget):
         self.note_edit.setPlaceholderText("What should the reader look at? " + MARKUP_HINT)
         self.note_edit.setToolTip(MARKUP_HINT)
         self.note_edit.textChanged.connect(lambda: self._edited("note", self.note_edit.toPlainText()))
-        self.edit_box = QWidget()
-        edit_layout = QVBoxLayout(self.edit_box)
-        edit_layout.setContentsMargins(0, 0, 0, 0)
-        edit_layout.setSpacing(4)
-        edit_layout.addWidget(self.title_edit)
-        edit_layout.addWidget(self.note_edit, 1)
         hint = QLabel(MARKUP_HINT)
         hint.setWordWrap(True)
         hint.setStyleSheet("color: palette(placeholder-text);")
-        edit_layout.addWidget(hint)
+        self.edit_box = QWidget()
+        column(self.edit_box, self.title_edit, (self.note_edit, 1), hint, spacing=4)
         self.edit_box.hide()
 
-        steps = QWidget()
-        steps_layout = QVBoxLayout(steps)
-        steps_layout.setContentsMargins(0, 0, 0, 0)
-        steps_layout.setSpacing(4)
         heading = QLabel("Steps")
         heading.setStyleSheet("font-weight: 600;")
-        steps_layout.addWidget(heading)
-        steps_layout.addWidget(self.step_list, 1)
-        steps_layout.addLayout(tools)
-        steps_layout.addWidget(self.edit_box, 2)
+        steps = QWidget()
+        column(steps, heading, (self.step_list, 1), tools, (self.edit_box, 2), spacing=4)
         self.steps_box = steps
 
         self.splitter = QSplitter(Qt.Orientation.Vertical)

@@ -21,6 +21,7 @@ from PySide6.QtGui import QFontInfo, QImage, QPainter
 from PySide6.QtWidgets import QApplication
 
 from orbitdesk.app.plots.plot_style import ScreenCurve
+from orbitdesk.app.plots.legends import place_legend
 
 REPORT_SIZE = (960, 560)       # every report figure, whatever the size of its view on screen
 _CURVE_OPTIONS = ("pen", "shadowPen", "symbol", "symbolSize", "symbolPen", "symbolBrush", "connect",
@@ -151,6 +152,8 @@ def copy_plot(source, width: int, height: int, legend: bool = False, host=None, 
         vb.autoRange()
     else:
         vb.setRange(xRange=(x0, x1), yRange=(y0, y1), padding=0)
+    if legend:
+        place_legend(plot)  # where it covers the least of the curves
     return widget
 
 

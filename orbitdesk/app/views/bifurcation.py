@@ -682,8 +682,8 @@ class BifurcationView(SessionView):
         parts = []
         if self.branches:
             n = len(self.branches)
-            parts.append(f"{n} branch{'es' if n != 1 else ''}, {len(self._specials)} special point"
-                         f"{'s' if len(self._specials) != 1 else ''}")
+            parts.append(f"One-parameter diagram: {n} branch{'es' if n != 1 else ''}, "
+                         f"{len(self._specials)} special point{'s' if len(self._specials) != 1 else ''}")
         if self.response is not None:
             folds = [s for s in self.response.special if s.type == "fold"]
             if folds:

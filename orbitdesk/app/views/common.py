@@ -17,6 +17,7 @@ from PySide6.QtWidgets import (QAbstractButton, QAbstractSpinBox, QCheckBox, QCo
 from orbitdesk.document.results import stale_words
 from orbitdesk.document.view_settings import clean_settings
 
+from orbitdesk.app.layouts import row as lined_row
 from orbitdesk.app.plots.plot_style import hint_label, orbit_middle
 
 log = logging.getLogger("orbitdesk.app.views")
@@ -311,7 +312,14 @@ class SessionView(QWidget):
         """Colours from the (new) palette; views with plots redraw."""
 
     def _on_project_loaded(self) -> None:
-        raise NotImplementedError
+        """A project was opened: no model yet, nothing drawn, the project's saved settings in the controls
+        (views that keep more state reset it first, then call this)."""
+        self.system = None
+        self.show_no_result()
+        self.apply_view_settings(self.saved_view_settings())
+
+    def apply_view_settings(self, d: dict) -> None:
+        """Put saved settings (checked by ``saved_view_settings``) into the controls."""
 
     def _on_system(self, system) -> None:
         raise NotImplementedError
@@ -351,39 +359,6 @@ def direction_combo(tip: str, slot=None) -> QComboBox:
     return combo_box(tip, DIRECTION_LABELS, slot)
 
 
-AUTOMATIC = "automatic"  # the method choice that takes the default, or the stiff method for a stiff system
-
-
-def method_combo(tip: str, fixed_step: bool = False, slot=None) -> QComboBox:
-    """The integration method, from the one registry (engine/methods.py): "Automatic" first (the default
-    method, or the stiff one when a probe run shows stiffness), then every adaptive method by its label;
-    with ``fixed_step`` the fixed-step ones too. Each entry's data is the method's name."""
-    from orbitdesk.engine.methods import METHODS
-
-    combo = combo_box(tip)
-    combo.addItem("Automatic", AUTOMATIC)
-    for name, info in METHODS.items():
-        if info.adaptive or fixed_step:
-            combo.addItem(info.label, name)
-    if slot is not None:
-        combo.currentIndexChanged.connect(slot)
-    return combo
-
-
-def chosen_method(combo: QComboBox) -> str | None:
-    """The method name of a ``method_combo`` (None: automatic)."""
-    name = combo.currentData()
-    return None if name in (None, AUTOMATIC) else str(name)
-
-
-def choose_method_quietly(combo: QComboBox, name) -> None:
-    """Select the entry of method ``name`` ("automatic" or None: Automatic) without signals."""
-    i = combo.findData(AUTOMATIC if name is None else name)
-    if i >= 0:
-        with quiet(combo):
-            combo.setCurrentIndex(i)
-
-
 def check_box(text: str, tip: str, checked: bool = False, slot=None) -> QCheckBox:
     box = QCheckBox(text)
     box.setChecked(checked)
@@ -411,18 +386,7 @@ def status_label() -> QLabel:
 def control_row(*items, spacing: int = 4, stretch: bool = True) -> QHBoxLayout:
     """A row of controls without margins: widgets, text (becomes a label), an int (extra space) or
     None (a stretch); a final stretch unless ``stretch`` is False."""
-    row = QHBoxLayout()
-    row.setContentsMargins(0, 0, 0, 0)
-    row.setSpacing(spacing)
-    for item in items:
-        if item is None:
-            row.addStretch(1)
-        elif isinstance(item, str):
-            row.addWidget(QLabel(item))
-        elif isinstance(item, int):
-            row.addSpacing(item)
-        else:
-            row.addWidget(item)
+    row = lined_row(*items, spacing=spacing)
     if stretch:
         row.addStretch(1)
     return row

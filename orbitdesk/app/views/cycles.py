@@ -15,6 +15,7 @@ from PySide6.QtWidgets import QLabel, QSpinBox, QSplitter, QTextBrowser
 
 from orbitdesk.app.views import empty_hint, series_colour, style_plot
 from orbitdesk.app.plots.plot_style import JobStrip, NumberBox, complex_text, number_text, plain_axes
+from orbitdesk.app.plots.legends import keep_legend_clear
 from orbitdesk.app.views.common import (SessionView, apply_numbers, combo_box, control_row, cycle_columns, push_button,
                      set_quietly, status_label)
 
@@ -164,10 +165,8 @@ class CyclesView(SessionView):
         self.strip.run("cycles", job, self._adopt, on_error=self._failed)
 
     # ------------------------------------------------------------ session events
-    def _on_project_loaded(self) -> None:
-        self.system = None
+    def show_no_result(self) -> None:
         self._show(None)
-        self.apply_view_settings(self.saved_view_settings())
 
     def _on_system(self, system) -> None:
         self.system = system
@@ -290,6 +289,7 @@ class CyclesView(SessionView):
             curve = self.plot.plot(t, cols[name], pen=pen, name=name, **kwargs)
             self.curves.append(curve)
         self.plot.autoRange(padding=0.05)
+        keep_legend_clear(self.plot)  # in the corner the curves leave free
 
     def _restyle(self) -> None:
         style_plot(self.plot_widget, self)

@@ -7,8 +7,10 @@ from html import escape
 
 import numpy as np
 from PySide6.QtCore import Qt, Signal
-from PySide6.QtWidgets import (QAbstractItemView, QGridLayout, QHeaderView, QLabel, QSplitter, QTableWidget,
-                               QTableWidgetItem, QTextBrowser, QToolButton, QVBoxLayout, QWidget)
+from PySide6.QtWidgets import (QAbstractItemView, QFrame, QGridLayout, QHeaderView, QLabel, QLayout, QScrollArea,
+                               QSplitter, QTableWidget, QTableWidgetItem, QTextBrowser, QToolButton, QWidget)
+
+from orbitdesk.app.layouts import column
 
 from orbitdesk.app.panels.readback import equation_lhs, partial_label
 from orbitdesk.app.plots.plot_style import JobStrip, NumberBox, complex_text, eigenvalues_text, hint_label, mono_font, number_text
@@ -17,6 +19,7 @@ from orbitdesk.app.views.common import SessionView, auto_timer, check_box, contr
 AUTO_MAX_STATES = 4      # models this small are searched again by themselves when they change
 AUTO_DELAY_MS = 350
 DEFAULT_EPS = 1e-3
+TABLE_ROWS = 4           # rows the table always has room for (more scroll)
 MAX_START_BUTTONS = 8    # eigen-directions offered as buttons (the largest models get the first ones)
 
 
@@ -124,21 +127,26 @@ class EquilibriaView(SessionView):
         top.addWidget(self.summary, 1)
         top.addWidget(self.strip, 1)
 
+        # the table keeps room for TABLE_ROWS rows however short the dock; the linearisation and the start
+        # buttons below it scroll when the dock is short (three views sharing a column's height)
+        self.details.setMinimumHeight(3 * self.details.fontMetrics().lineSpacing())
         lower = QWidget()
-        lower_layout = QVBoxLayout(lower)
-        lower_layout.setContentsMargins(0, 0, 0, 0)
-        lower_layout.setSpacing(4)
-        lower_layout.addWidget(self.details, 1)
-        lower_layout.addLayout(control_row("Start trajectories off it, offset", self.eps, self.all_button,
-                                           spacing=6))
-        lower_layout.addWidget(self.starts_box)
-        lower_layout.addWidget(self.starts_note)
+        column(lower, (self.details, 1), control_row("Start trajectories off it, offset", self.eps,
+                                                     self.all_button, spacing=6),
+               self.starts_box, self.starts_note, spacing=4).setSizeConstraint(QLayout.SizeConstraint.SetMinimumSize)
+        self.lower = QScrollArea()
+        self.lower.setWidget(lower)
+        self.lower.setWidgetResizable(True)
+        self.lower.setFrameShape(QFrame.Shape.NoFrame)
+        self.lower.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
+        self.lower.setMinimumHeight(4 * self.details.fontMetrics().lineSpacing())
+        self._fit_table_rows()
 
         self.splitter = QSplitter(Qt.Orientation.Vertical)
         self.splitter.addWidget(self.table)
-        self.splitter.addWidget(lower)
-        self.splitter.setStretchFactor(0, 2)
-        self.splitter.setStretchFactor(1, 3)
+        self.splitter.addWidget(self.lower)
+        self.splitter.setStretchFactor(0, 3)
+        self.splitter.setStretchFactor(1, 2)
         self.splitter.setChildrenCollapsible(False)
 
         layout = self.main_layout()
@@ -237,10 +245,9 @@ class EquilibriaView(SessionView):
         return starts
 
     # ------------------------------------------------------------ session events
-    def _on_project_loaded(self) -> None:
-        self.system = None
+    def show_no_result(self) -> None:
+        """With no model (a project being opened): the table of nothing."""
         self._show_equilibria()
-        self.apply_view_settings(self.saved_view_settings())
 
     def _on_system(self, system) -> None:
         self.system = system
@@ -316,6 +323,7 @@ class EquilibriaView(SessionView):
         header.setSectionResizeMode(QHeaderView.ResizeMode.ResizeToContents)
         header.setStretchLastSection(True)
         self.table.blockSignals(False)
+        self._fit_table_rows()
         if not items:
             self.summary.setText("; ".join(notes).capitalize() if notes else "")
         else:
@@ -332,6 +340,13 @@ class EquilibriaView(SessionView):
             self.select(want if want is not None and want < len(items) else 0)
         else:
             self._on_selection()
+
+    def _fit_table_rows(self) -> None:
+        """The table's least height: its header and TABLE_ROWS rows (and a horizontal scroll bar's room)."""
+        t = self.table
+        header = max(t.horizontalHeader().sizeHint().height(), t.fontMetrics().height() + 8)
+        bar = t.horizontalScrollBar().sizeHint().height()
+        t.setMinimumHeight(header + TABLE_ROWS * t.verticalHeader().defaultSectionSize() + bar + 2 * t.frameWidth())
 
     def _on_selection(self) -> None:
         eq = self.selected()

@@ -10,14 +10,16 @@ import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import Qt, Signal
 from PySide6.QtWidgets import (QAbstractItemView, QHeaderView, QLabel, QSplitter, QTableWidget, QTableWidgetItem,
-                               QVBoxLayout, QWidget)
+                               QWidget)
 
 from orbitdesk.engine.methods import METHODS
 
+from orbitdesk.app.layouts import column
 from orbitdesk.app.views import muted_colour, series_colour, style_plot
 from orbitdesk.app.plots.plot_style import JobStrip, NumberBox, hint_label, mono_font, number_text
-from orbitdesk.app.views.common import (AUTOMATIC, SessionView, auto_timer, check_box, choose_method_quietly,
-                                        chosen_method, control_row, method_combo, push_button, quiet, set_quietly)
+from orbitdesk.app.views.common import (SessionView, auto_timer, check_box, control_row, push_button, quiet,
+                                        set_quietly)
+from orbitdesk.app.views.method_step import MethodStep
 
 FLOW_LENGTH, FLOW_TRANSIENT = 500.0, 50.0
 MAP_LENGTH, MAP_TRANSIENT = 20000, 1000
@@ -43,22 +45,16 @@ class LyapunovView(SessionView):
         self.transient = NumberBox(FLOW_TRANSIENT, 0.0, 1e12, step=10.0)
         self.transient.setToolTip("The first part of the run, left out of the averages so the orbit can settle")
         self.length_label, self.transient_label = QLabel("Run for"), QLabel("settle")
-        self.auto_step = check_box("Auto step", "Choose the fixed integration step from the model's fastest rate "
-                                   "(flows)", True)
-        self.dt = NumberBox(0.01, 1e-7, 10.0, ratio=2.0)
-        self.dt.setToolTip("Fixed Runge-Kutta step of the tangent equations")
-        self.dt.setEnabled(False)
-        self.auto_step.toggled.connect(lambda on: self.dt.setEnabled(not on))
-        self.method = method_combo("How the orbit and its tangent vectors are integrated (with Auto step): "
-                                   "Automatic takes Dormand–Prince 8(5,3), or the stiff method when a trial run "
-                                   "shows the system stiff", slot=self._on_controls)
-        self.auto_step.toggled.connect(lambda on: self.method.setEnabled(on))
+        self.integration = MethodStep("How the orbit and its tangent vectors are integrated: Automatic takes "
+                                      "Dormand–Prince 8(5,3), or the stiff method when a trial run shows the "
+                                      "system stiff; the fixed-step Runge–Kutta method uses the step beside it",
+                                      "Fixed Runge-Kutta step of the tangent equations", changed=self._on_controls)
+        self.method, self.dt = self.integration.method, self.integration.dt
         self.settle = check_box("Until settled", "Stop when every exponent's standard error (the spread of block "
                                 "averages) is within 1% of it plus 0.002; the run length is then the longest run "
                                 "(the cap)", True, self._on_controls)
-        for w in (self.length, self.transient, self.dt):
+        for w in (self.length, self.transient):
             w.valueChanged.connect(self._on_controls)
-        self.auto_step.toggled.connect(self._on_controls)
         self.compute_button = push_button("Compute", "Compute the exponents with the current values", self.compute)
         self.auto = check_box("Automatic", "Compute again whenever the model or its values change", False,
                               lambda on: on and self._schedule())
@@ -90,13 +86,7 @@ class LyapunovView(SessionView):
         self.curves: list[pg.PlotDataItem] = []
 
         left = QWidget()
-        ll = QVBoxLayout(left)
-        ll.setContentsMargins(0, 0, 0, 0)
-        ll.setSpacing(6)
-        ll.addWidget(self.table)
-        ll.addWidget(self.summary)
-        ll.addWidget(self.notes)
-        ll.addStretch(1)
+        column(left, self.table, self.summary, self.notes, None)
         self.splitter = QSplitter(Qt.Orientation.Horizontal)
         self.splitter.addWidget(left)
         self.splitter.addWidget(self.plot_widget)
@@ -107,7 +97,7 @@ class LyapunovView(SessionView):
         self.splitter.setChildrenCollapsible(False)
 
         row = control_row(self.length_label, self.length, 4, self.transient_label, self.transient, 4, self.settle, 8,
-                          self.auto_step, self.dt, self.method, 8, self.compute_button, self.auto)
+                          *self.integration.widgets(), 8, self.compute_button, self.auto)
         layout = self.main_layout()
         layout.addLayout(row)
         layout.addWidget(self.splitter, 1)
@@ -122,8 +112,7 @@ class LyapunovView(SessionView):
         self._remember_lengths()
         return {"flow": {"length": self._lengths["flow"][0], "transient": self._lengths["flow"][1]},
                 "map": {"steps": int(self._lengths["map"][0]), "transient": int(self._lengths["map"][1])},
-                "dt": None if self.auto_step.isChecked() else float(self.dt.value()), "auto": self.auto.isChecked(),
-                "method": chosen_method(self.method) or AUTOMATIC, "settle": self.settle.isChecked()}
+                "auto": self.auto.isChecked(), "settle": self.settle.isChecked(), **self.integration.settings()}
 
     def apply_view_settings(self, d: dict) -> None:
         if not isinstance(d, dict):
@@ -137,14 +126,8 @@ class LyapunovView(SessionView):
             self._lengths["flow"] = [float(flow["length"]), float(flow["transient"])]
         if isinstance(maps, dict) and num(maps.get("steps")) and num(maps.get("transient")):
             self._lengths["map"] = [int(maps["steps"]), int(maps["transient"])]
-        dt = d.get("dt")
-        set_quietly(self.auto_step, not num(dt))
-        self.dt.setEnabled(num(dt))
-        if num(dt) and dt > 0:
-            set_quietly(self.dt, float(dt))
+        self.integration.apply(d)
         self.auto.setChecked(bool(d.get("auto", False)))
-        choose_method_quietly(self.method, d.get("method", AUTOMATIC))
-        self.method.setEnabled(not num(dt))
         set_quietly(self.settle, bool(d.get("settle", True)))
         self._show_lengths()
 
@@ -169,7 +152,7 @@ class LyapunovView(SessionView):
         p, u0 = self.session.param_vector(), self.session.initial_vector()
         settings = self.session.run_settings(transient=0.0)
         length, transient = self._lengths[self._kind]
-        dt = None if self.auto_step.isChecked() else float(self.dt.value())
+        dt = self.integration.step()
         settle = self.settle.isChecked() and not s.delays
         if s.kind == "map":
             kwargs = {"transient": int(transient)}
@@ -179,7 +162,7 @@ class LyapunovView(SessionView):
             kwargs.update({"cap": float(length)} if settle else
                           {"t_end": settings.t_start + float(length) + float(transient)})
             if dt is None and not s.delays:
-                kwargs["method"] = chosen_method(self.method)
+                kwargs["method"] = self.integration.method_name()
         if settle:
             kwargs["converge"] = True
         self.begin_computing()
@@ -196,11 +179,6 @@ class LyapunovView(SessionView):
         self.strip.run("lyapunov", job, self._adopt, on_error=lambda m: None)
 
     # ------------------------------------------------------------ session events
-    def _on_project_loaded(self) -> None:
-        self.system = None
-        self.show_no_result()
-        self.apply_view_settings(self.saved_view_settings())
-
     def _on_system(self, system) -> None:
         self._remember_lengths()
         self.system = system
@@ -244,8 +222,7 @@ class LyapunovView(SessionView):
         self.length_label.setText("Iterate" if is_map else "Run for")
         self.transient_label.setText("times, skip" if is_map else "settle")
         delays = self.system is not None and bool(self.system.delays)  # the step follows the tolerances there
-        for w in (self.auto_step, self.dt):
-            w.setVisible(not is_map and not delays)
+        self.integration.set_hidden(is_map or delays)
 
     # ------------------------------------------------------------ results
     def _clear_drawing(self) -> None:

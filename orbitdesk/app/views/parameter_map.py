@@ -148,11 +148,6 @@ class ParameterMapView(SessionView):
         self.strip.run("parameter_map", job, self._adopt, on_error=lambda m: self.info.setText(m[:1].upper() + m[1:]))
 
     # ------------------------------------------------------------ session events
-    def _on_project_loaded(self) -> None:
-        self.system = None
-        self.show_no_result()
-        self.apply_view_settings(self.saved_view_settings())
-
     def _on_system(self, system) -> None:
         self.system = system
         ranged = [n for n in system.parameters if None not in self.session.param_range(n)]

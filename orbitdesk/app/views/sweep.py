@@ -18,9 +18,10 @@ from PySide6.QtWidgets import QLabel, QSpinBox, QStackedWidget, QWidget
 
 from orbitdesk.app.views import muted_colour, series_colour, style_plot
 from orbitdesk.app.plots.plot_style import JobStrip, NumberBox, number_text
-from orbitdesk.app.views.common import (AUTOMATIC, SessionView, apply_numbers, check_box, choose_method_quietly,
-                     chosen_method, clicked_point, combo_box, control_row, direction_combo, fill_combo,
-                     fill_default_range, follow_forcing_period, is_number, method_combo, push_button,
+from orbitdesk.app.views.method_step import MethodStep
+from orbitdesk.app.views.common import (SessionView, apply_numbers, check_box, clicked_point, combo_box,
+                     control_row, direction_combo, fill_combo, fill_default_range, follow_forcing_period, is_number,
+                     push_button,
                      put_through_orbit, quiet, row_widget, select_text, status_label,
                      status_row)
 
@@ -115,13 +116,11 @@ class SweepView(SessionView):
         self.samples.setRange(1, MAX_SAMPLES)
         self.samples.setValue(80)
         self.samples.setToolTip("Points kept for each parameter value")
-        self.dt = NumberBox(0.01, 1e-6, 10.0, ratio=2.0)
-        self.dt.setToolTip("Fixed time step of the sweep's Runge-Kutta integration")
-        self.method = method_combo("How each orbit is integrated: Automatic takes Dormand–Prince 8(5,3), or the "
-                                   "stiff method when a trial run shows the system stiff; the fixed-step "
-                                   "Runge–Kutta method uses the step beside it", fixed_step=True,
-                                   slot=lambda _i: self._show_step())
-        choose_method_quietly(self.method, None)
+        self.integration = MethodStep("How each orbit is integrated: Automatic takes Dormand–Prince 8(5,3), or "
+                                      "the stiff method when a trial run shows the system stiff; the fixed-step "
+                                      "Runge–Kutta method uses the step beside it",
+                                      "Fixed time step of the sweep's Runge-Kutta integration")
+        self.method, self.dt = self.integration.method, self.integration.dt
         self.duration = NumberBox(400.0, 1e-3, 1e9, step=50.0)
         self.duration.setToolTip("Longest time spent collecting the points of one value (maxima and planes)")
         self.lyapunov = check_box("Lyapunov exponent", "Also estimate the largest Lyapunov exponent at every value "
@@ -161,12 +160,10 @@ class SweepView(SessionView):
         row2 = control_row("Plot", self.observe, "at", self.mode, self.mode_stack, None, self.lyapunov,
                            stretch=False)
         self.transient_label = QLabel("Settle for")
-        self.dt_label = QLabel("step")
         self.duration_label = QLabel("collect for at most")
         self.points_label = QLabel("points,")
-        self.method_label = QLabel("by")
         row3 = control_row(self.transient_label, self.transient, "keep", self.samples, self.points_label,
-                           self.method_label, self.method, self.dt_label, self.dt, self.duration_label, self.duration)
+                           *self.integration.widgets(), self.duration_label, self.duration)
         layout = self.main_layout()
         layout.addLayout(row1)
         layout.addLayout(row2)
@@ -186,9 +183,8 @@ class SweepView(SessionView):
                 "plane": {"state": self.plane_state.currentText(), "value": float(self.plane_value.value()),
                           "direction": DIRECTIONS[self.direction.currentIndex()]},
                 "period": float(self.period.value()), "transient": float(self.transient.value()),
-                "samples": self.samples.value(), "dt": float(self.dt.value()),
-                "duration": float(self.duration.value()), "lyapunov": self.lyapunov.isChecked(),
-                "method": chosen_method(self.method) or AUTOMATIC}
+                "samples": self.samples.value(), "duration": float(self.duration.value()),
+                "lyapunov": self.lyapunov.isChecked(), **self.integration.settings()}
 
     def apply_view_settings(self, d: dict) -> None:
         if not isinstance(d, dict):
@@ -196,20 +192,12 @@ class SweepView(SessionView):
         self._wanted = dict(d)
         apply_numbers(d, ((self.count, "count", int), (self.period, "period", float),
                           (self.transient, "transient", float), (self.samples, "samples", int),
-                          (self.dt, "dt", float), (self.duration, "duration", float)))
+                          (self.duration, "duration", float)))
         self._user_period = isinstance(d.get("period"), (int, float))
         self.lyapunov.setChecked(bool(d.get("lyapunov", False)))
-        # settings saved before the method choice ran the fixed step
-        choose_method_quietly(self.method, d.get("method", "rk4" if "dt" in d else AUTOMATIC))
-        self._show_step()
+        self.integration.apply(d)
         if self.system is not None:
             self._apply_wanted()
-
-    def _show_step(self) -> None:
-        """The fixed step shows with the fixed-step method only (and never for a map)."""
-        fixed = chosen_method(self.method) == "rk4" and not (self.system is not None and self.system.kind == "map")
-        self.dt.setVisible(fixed)
-        self.dt_label.setVisible(fixed)
 
     def export_data(self):
         """Every point of the diagram: parameter value, observed value (and the exponent at that value)."""
@@ -235,11 +223,10 @@ class SweepView(SessionView):
         from orbitdesk.analyses.sweep import SweepSettings
 
         mode = self.sampling_mode()
-        method = chosen_method(self.method)
         s = SweepSettings(mode=mode, observe=self.observe.currentText() or None,
                           transient=float(self.transient.value()), samples=self.samples.value(),
-                          dt=float(self.dt.value()) if method == "rk4" else None,
-                          method=None if method == "rk4" else method, duration=float(self.duration.value()),
+                          dt=self.integration.step(), method=self.integration.method_name(),
+                          duration=float(self.duration.value()),
                           lyapunov=self.lyapunov.isChecked(), t_start=float(self.session.solver.t_start))
         if mode == PLANE:
             s.plane = (self.plane_state.currentText(), float(self.plane_value.value()))
@@ -329,11 +316,9 @@ class SweepView(SessionView):
 
     # ------------------------------------------------------------ session events
     def _on_project_loaded(self) -> None:
-        self.system = None
-        self.show_no_result()
         self._range_for = None
         self._user_period = self._user_plane_value = False
-        self.apply_view_settings(self.saved_view_settings())
+        super()._on_project_loaded()
 
     def _on_system(self, system) -> None:
         old = self.system
@@ -357,9 +342,9 @@ class SweepView(SessionView):
                     self.mode.setCurrentIndex(FLOW_MODES.index(keep[3]))
                 else:
                     self.mode.setCurrentIndex(FLOW_MODES.index(STROBE if period is not None else MAXIMA))
-        for w in (self.method, self.method_label, self.duration, self.duration_label):
+        self.integration.set_hidden(is_map)
+        for w in (self.duration, self.duration_label):
             w.setVisible(not is_map)
-        self._show_step()
         self.transient_label.setText("Skip the first" if is_map else "Settle for")
         self.points_label.setText("points" if is_map else "points,")  # a map has no step to follow
         if self.parameter.currentText() != self._range_for:

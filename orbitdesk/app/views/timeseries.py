@@ -9,7 +9,7 @@ from PySide6.QtGui import QColor, QIcon, QPainter, QPixmap
 from PySide6.QtWidgets import (QHBoxLayout, QLabel, QListWidget, QListWidgetItem, QSizePolicy, QToolButton,
                                QVBoxLayout)
 
-from orbitdesk.analyses.spectra import mean_power_spectrum, power_spectrum
+from orbitdesk.analyses.spectra import mean_power_spectrum, power_spectrum, spectrum_extent
 from orbitdesk.app.plots.event_marks import EventMarks
 from orbitdesk.app.views import empty_hint, muted_colour, series_colour, style_plot
 from orbitdesk.app.plots.data_overlay import TIME, DataOverlay
@@ -52,6 +52,7 @@ class TimeSeriesView(SessionView):
         self._moving_cursor = False
         self._fitted = True              # follows the data until the user pans or zooms
         self._refit_on_release = False
+        self._spectrum_top: float | None = None  # the frequency the spectra are shown up to (spectrum_extent)
 
         self._noise_items: list = []  # realisations drawn faintly and the +-1 std bands (models with noise)
         self.series_list = QListWidget()
@@ -250,7 +251,7 @@ class TimeSeriesView(SessionView):
             self.event_marks.clear()
             return
         discrete = traj.kind == "map"
-        missing = []
+        missing, tops = [], []
         for name in names:
             index = self._names.index(name) if name in self._names else len(self._curves)
             try:
@@ -268,6 +269,7 @@ class TimeSeriesView(SessionView):
                         self.plot.removeItem(self._curves.pop(name))
                     continue
                 x, y = spec
+                tops.append(spectrum_extent(x, y))
             elif noisy:
                 y = self._draw_realisations(name, series_colour(index, self), log_y)
                 x = realisations.time
@@ -292,6 +294,8 @@ class TimeSeriesView(SessionView):
             self.note.setText(event_note)
         if missing:
             self.note.setText("Spectrum needs evenly spaced samples")
+        tops = [top for top in tops if top is not None]
+        self._spectrum_top = max(tops) if tops else None
         if refit:
             self.fit_view()
         self._on_time_cursor(self.session.time_cursor)
@@ -345,9 +349,18 @@ class TimeSeriesView(SessionView):
         return [(TIME, n, series_colour(self._names.index(n) if n in self._names else 0, self)) for n in self.checked()]
 
     def fit_view(self) -> None:
+        """Zoom to the data; spectra from zero to where their power has fallen well below the peak
+        (the power axis fitted to that band)."""
         self._fitted = True
+        box = self.plot.getViewBox()
+        top = self._spectrum_top if self.spectrum.isChecked() else None
+        box.setAutoVisible(y=top is not None)
         self.plot.enableAutoRange()
-        self.plot.autoRange()
+        if top is None:
+            self.plot.autoRange()
+            return
+        self.plot.setXRange(0.0, top, padding=0.02)  # (turns the x auto-range off, keeps the y one)
+        box.updateAutoRange()
 
     # ------------------------------------------------------------ time cursor
     def _on_time_cursor(self, t: float) -> None:
