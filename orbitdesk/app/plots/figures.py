@@ -153,7 +153,7 @@ def copy_plot(source, width: int, height: int, legend: bool = False, host=None, 
     else:
         vb.setRange(xRange=(x0, x1), yRange=(y0, y1), padding=0)
     if legend:
-        place_legend(plot)  # where it covers the least of the curves
+        place_legend(plot, make_room=True)  # where it covers the least of the curves
     return widget
 
 

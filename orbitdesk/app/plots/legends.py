@@ -51,26 +51,60 @@ def covered(points: np.ndarray, box) -> int:
         return int(np.count_nonzero((px >= left) & (px <= right) & (py >= top) & (py <= bottom)))
 
 
-def place_legend(plot_item) -> tuple[int, int] | None:
-    """Anchor the plot's legend in the corner where it covers the fewest drawn points; returns the
-    corner (right?, bottom?) or None when the plot has no legend with entries."""
+def place_legend(plot_item, make_room: bool = False) -> tuple[int, int] | None:
+    """Anchor the plot's legend in the corner where it covers the fewest drawn points (its entries in one
+    row when every corner covers some); with ``make_room``, when even then no corner is free, the view
+    range grows upward to leave a free band for it at the top. Returns the corner (right?, bottom?), or
+    None when the plot has no legend with entries."""
     legend = plot_item.legend
     if legend is None or not legend.items:
         return None
     view_box = plot_item.getViewBox()
     points = drawn_points(plot_item)
-    corner = min(CORNERS, key=lambda c: covered(points, legend_box(view_box, legend, c)))
+
+    def best():
+        legend.layout.activate()  # (its size after a change of columns)
+        legend.updateSize()
+        return min((covered(points, legend_box(view_box, legend, c)), c) for c in CORNERS)
+
+    if legend.columnCount != 1:
+        legend.setColumnCount(1)
+    count, corner = best()
+    if count:
+        legend.setColumnCount(len(legend.items))  # one row: a thin strip
+        count, corner = best()
+    if count and make_room:
+        corner = CORNERS[0]
+        _make_room(view_box, points, legend_box(view_box, legend, corner))
     right, bottom = corner
     legend.anchor(itemPos=corner, parentPos=corner,
                   offset=(-MARGIN if right else MARGIN, -MARGIN if bottom else MARGIN))
     return corner
 
 
+def _make_room(view_box, points, box) -> None:
+    """Raise the top of the view range until no point under ``box`` (a top corner's) is higher than its
+    bottom edge plus the margin."""
+    (x0, x1), (y0, y1) = view_box.viewRange()
+    H = view_box.height()
+    left, _top, right, bottom = box
+    px, py = points
+    under = (px >= left) & (px <= right)
+    if not under.any() or H <= 0:
+        return
+    highest = y1 - float(np.nanmin(py[under])) / H * (y1 - y0)  # the highest point there, in data units
+    free = (bottom + MARGIN) / H  # the part of the height the legend's band takes
+    if free >= 0.6 or not np.isfinite(highest):
+        return
+    view_box.setYRange(y0, (highest - free * y0) / (1 - free), padding=0)
+
+
 def keep_legend_clear(plot_item) -> None:
-    """Place the plot's legend now and again whenever its range or size changes."""
+    """Place the plot's legend now (making room for it if need be: call after fitting the range to new
+    data) and again, in a corner, whenever its range or size changes."""
     view_box = plot_item.getViewBox()
     if not getattr(plot_item, "_legend_follows", False):
         plot_item._legend_follows = True
         view_box.sigRangeChanged.connect(lambda *_a: place_legend(plot_item))
         view_box.sigResized.connect(lambda *_a: place_legend(plot_item))
-    place_legend(plot_item)
+    place_legend(plot_item, make_room=True)
