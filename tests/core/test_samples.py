@@ -36,6 +36,18 @@ def test_every_sample_is_listed_and_the_app_sample_exists():
 
 
 @pytest.mark.parametrize("name", NAMES)
+def test_samples_integrate_their_sweeps_and_spectra_by_the_default_method(name):
+    """A step saved without a method means the fixed-step method (the views' settings from before the
+    method choice); no sample is about fixed steps, so none saves a sweep or a Lyapunov step that way."""
+    project = load(name)
+    saved = [project.views] + [step.snapshot.get("views", {}) for step in project.walkthrough]
+    for views in saved:
+        for view_id in ("sweep", "lyapunov"):
+            settings = views.get(view_id, {})
+            assert "dt" not in settings or settings.get("method") == "rk4", (name, view_id, settings)
+
+
+@pytest.mark.parametrize("name", NAMES)
 def test_sample_opens_replays_and_runs(name):
     project = load(name)
     assert project.load_warnings == []
