@@ -44,6 +44,12 @@ class FlowOutput:
     note: str = ""  # why the run stopped early, when the code alone does not say
 
 
+def _arg(a, dtype=float):
+    """``a`` as the loops take it: C-contiguous and writable (a copy when a view is read-only, e.g. from
+    np.broadcast_to), so every call passes the same argument types and each loop compiles once."""
+    return np.require(a, dtype, ("C", "W"))
+
+
 def _no_planes(n):
     return (np.empty((0, n + 1)), np.empty(0, dtype=np.int64), np.empty(0, dtype=np.bool_))
 
@@ -64,19 +70,19 @@ def flow_run(engine, name, t0, t1, y0, p, rtol=1e-8, atol=1e-10, max_step=None, 
     kind, adaptive, rtol, atol, max_step = _step_options(name, rtol, atol, max_step, dt)
     y = np.array(y0, dtype=float)
     n = y.size
-    p = np.ascontiguousarray(p, dtype=float)
+    p = _arg(p)
     K = np.zeros((16, n))
     F = np.zeros((7, n))
     st = np.zeros(12)
     st[0] = t0
-    grid = np.empty(0) if grid is None else np.ascontiguousarray(grid, dtype=float)
+    grid = np.empty(0) if grid is None else _arg(grid)
     if every_step:
         out_t, out_y = np.empty(_BUFFER), np.empty((_BUFFER, n))
     else:
         out_t, out_y = np.empty(grid.size), np.empty((grid.size, n))
     rows, dirs, terminal = _no_planes(n) if planes is None else (
-        np.ascontiguousarray(planes[0], dtype=float), np.ascontiguousarray(planes[1], dtype=np.int64),
-        np.ascontiguousarray(planes[2], dtype=np.bool_))
+        _arg(planes[0]), _arg(planes[1], np.int64),
+        _arg(planes[2], np.bool_))
     ev_t, ev_y, ev_k = np.empty(256), np.empty((256, n)), np.empty(256, dtype=np.int64)
     steps_t, steps_y, events = [], [], []
     span = t1 - t0
@@ -142,7 +148,7 @@ class ExplicitStepper:
         self.engine, self.bound = engine, float(bound)
         self.y = np.array(y0, dtype=float)
         n = self.y.size
-        self.p = np.ascontiguousarray(p, dtype=float)
+        self.p = _arg(p)
         self.K, self.F, self.st = np.zeros((16, n)), np.zeros((7, n)), np.zeros(12)
         self.t, self.t_old, self.t_bound = float(t0), None, float(t_bound)
         self.st[0] = self.t
@@ -188,7 +194,7 @@ class ExplicitStepper:
         def sol(tq):
             xs = np.atleast_1d(np.asarray((np.asarray(tq, dtype=float) - t0) / h, dtype=float))
             out = np.empty((xs.size, y0.size))
-            loops.erk_dense_at(kind, F, y0, np.ascontiguousarray(xs), out)
+            loops.erk_dense_at(kind, F, y0, _arg(xs), out)
             return out[0] if np.ndim(tq) == 0 else out.T
 
         return sol
@@ -237,7 +243,7 @@ def map_run(engine, n0, n_end, y0, p, bound=1e10, report=None):
     view = out[1:]
     st = np.zeros(12)
     st[0] = n0
-    p = np.ascontiguousarray(p, dtype=float)
+    p = _arg(p)
     while True:
         code = engine.loops.map_advance(engine.f, y, p, st, int(n_end), view, float(bound), 65536)
         if code != PAUSED:
@@ -271,7 +277,7 @@ def flow_tangent(engine, name, t0, t1, keep_from, u0, V0, p, interval, rtol=1e-9
     kind, adaptive, rtol, atol, max_step = _step_options(name, rtol, atol, max_step, dt)
     n, m = V0.shape
     z = np.concatenate([np.asarray(u0, float), np.asarray(V0, float).ravel()])
-    p = np.ascontiguousarray(p, dtype=float)
+    p = _arg(p)
     K = np.zeros((16, z.size))
     F = np.zeros((7, z.size))
     st = np.zeros(14)
@@ -299,7 +305,7 @@ def map_tangent(engine, n0, n_end, keep_from, u0, V0, p, bound=1e10, max_rows=50
     V0 = np.asarray(V0, dtype=float)
     n, m = V0.shape
     z = np.concatenate([np.asarray(u0, float), V0.ravel()])
-    p = np.ascontiguousarray(p, dtype=float)
+    p = _arg(p)
     st = np.zeros(12)
     st[0] = n0
     sums = np.zeros(m)
@@ -350,10 +356,10 @@ def _member_rows(U0, P, tangents):
     if m:
         U = np.hstack([U, np.repeat(V0.ravel()[None, :], N, axis=0)])
     P = np.asarray(P, dtype=float)
-    rows = np.ascontiguousarray(P[None, :] if P.ndim == 1 else P.T)
+    rows = _arg(P[None, :] if P.ndim == 1 else P.T)
     if rows.shape[1] == 0:
         rows = np.zeros((rows.shape[0], 1))
-    return np.ascontiguousarray(U), rows, n, m
+    return _arg(U), rows, n, m
 
 
 BLOCK_MEMBERS = 256  # members in flight at most (their stages stay in the cache)
@@ -405,8 +411,8 @@ def members_run(engine, name, t0, t_end, U0, P, rtol=1e-8, atol=1e-10, max_step=
     kind, adaptive, rtol, atol, max_step = _step_options(name, rtol, atol, max_step, dt)
     U, rows, n, m = _member_rows(U0, P, tangents)
     N, nz = U.shape
-    ends = np.ascontiguousarray(np.broadcast_to(np.asarray(t_end, dtype=float), (N,)))
-    grid = np.empty(0) if grid is None else np.ascontiguousarray(grid, dtype=float)
+    ends = _arg(np.broadcast_to(np.asarray(t_end, dtype=float), (N,)))
+    grid = np.empty(0) if grid is None else _arg(grid)
     samples = np.empty((N, grid.size, nz))
     if planes is None:
         plane_rows, dirs, terminal = _no_planes(nz)
@@ -415,8 +421,8 @@ def members_run(engine, name, t0, t_end, U0, P, rtol=1e-8, atol=1e-10, max_step=
         given = np.asarray(planes[0], dtype=float)
         plane_rows[:, :n] = given[:, :n]
         plane_rows[:, nz] = given[:, n]
-        dirs = np.ascontiguousarray(planes[1], dtype=np.int64)
-        terminal = np.ascontiguousarray(planes[2], dtype=np.bool_)
+        dirs = _arg(planes[1], np.int64)
+        terminal = _arg(planes[2], np.bool_)
     E = max(int(max_events), 1)
     ev_t, ev_y = np.full((N, E), np.nan), np.full((N, E, nz), np.nan)
     ev_count = np.zeros(N)

@@ -26,7 +26,7 @@ import sys
 
 import numpy as np
 
-from orbitdesk.engine.jitting import inner, loop
+from orbitdesk.engine.jitting import inner, leaf, loop
 
 
 def _dop853_table():
@@ -138,7 +138,7 @@ def rk_step(f, kind, which, t, y, h, p, K, y_new, tmp):
     f(which, t + h, y_new, p, K[s_n])
 
 
-@inner
+@leaf
 def error_norm(kind, h, y, y_new, K, rtol, atol):
     n = y.shape[0]
     E = E_ALL[kind]
@@ -197,7 +197,7 @@ def dense_coefficients(f, kind, which, t, y, y_new, h, p, K, F, tmp):
             F[2, i] = -2.0 * (y_new[i] - y[i]) + h * (K[0, i] + K[4, i])
 
 
-@inner
+@leaf
 def dense_value(kind, F, y, x, out):
     """The dense output at x in [0, 1] of the step (fraction of the step)."""
     n = y.shape[0]
@@ -214,7 +214,7 @@ def dense_value(kind, F, y, x, out):
             out[i] = y[i] + x * (F[0, i] + x * (F[1, i] + x * F[2, i]))
 
 
-@inner
+@leaf
 def dense_slope(kind, F, x, out):
     """d/dx of the dense output at x (the rate times the step)."""
     n = out.shape[0]
@@ -237,7 +237,7 @@ def dense_slope(kind, F, x, out):
             out[i] = F[0, i] + x * (2.0 * F[1, i] + x * 3.0 * F[2, i])
 
 
-@inner
+@loop
 def point_value(f, kind, which, t, y, h, p, F, K2, trusted, x, out, slope):
     """The solution at x (fraction of the step) into ``out`` (with ``slope``: its d/dx instead): off the
     dense output when the step's interpolant is ``trusted``, else from a step of x h from the step's
@@ -270,7 +270,7 @@ def plane_value(f, kind, which, t, y, h, p, F, K2, trusted, x, normal, value, tm
     return g
 
 
-@inner
+@loop
 def dense_root(f, kind, which, t, y, h, p, F, K2, trusted, normal, value, xa, ga, xb, gb, tmp, slope):
     """The zero on [xa, xb] of g = normal . y(x) - value (or, with ``slope``, of its derivative)
     where it changes sign: the Illinois method, the one root finder of the loops."""
@@ -344,7 +344,7 @@ def first_step(f, kind, which, t, y, p, K, direction, rtol, atol, max_step, tmp,
     return first_choice(kind, y, K, h0, tmp2, rtol, atol, max_step)
 
 
-@inner
+@leaf
 def first_trial(y, K, direction, rtol, atol, max_step, tmp):
     """``first_step``'s trial step h0, and tmp = the explicit Euler point there (f is wanted at it)."""
     n = y.shape[0]
@@ -363,7 +363,7 @@ def first_trial(y, K, direction, rtol, atol, max_step, tmp):
     return h0
 
 
-@inner
+@leaf
 def first_choice(kind, y, K, h0, f1, rtol, atol, max_step):
     """``first_step``'s choice from the trial h0 and f1 = f at its Euler point."""
     n = y.shape[0]
@@ -386,7 +386,7 @@ def first_choice(kind, y, K, h0, f1, rtol, atol, max_step):
     return h
 
 
-@inner
+@leaf
 def state_code(y, bound):
     """0 when every entry is finite and within the bound, 2 for NaN, 1 for a blow-up."""
     bad = 0
@@ -410,7 +410,7 @@ def _event(f, kind, which, t, y, h, p, F, K2, trusted, x, k, ev_t, ev_y, ev_k, n
     return n_ev + 1
 
 
-@inner
+@loop
 def _read_step(f, kind, which, adaptive, t, y, y_new, h, p, K, F, K2, rtol, atol, tmp, tmp2, tmp3):
     """Ready the step for reading points inside it: its dense output, and whether that output is trusted
     (``interpolant_fits``); when not, points come from sub-steps (``point_value``) and K2[0] is set."""
@@ -422,7 +422,7 @@ def _read_step(f, kind, which, adaptive, t, y, y_new, h, p, K, F, K2, rtol, atol
     return False
 
 
-@inner
+@leaf
 def _save(st, t, h_abs, n_out, gi, n_ev):
     st[0] = t
     st[1] = h_abs
@@ -431,7 +431,7 @@ def _save(st, t, h_abs, n_out, gi, n_ev):
     st[7] = n_ev
 
 
-@inner
+@loop
 def read_points(f, kind, which, adaptive, t, t_new, h, direction, y, y_new, p, K, F, K2, rtol, atol, tmps,
                 grid, gi, out_t, out_y, planes, plane_dir, terminal, first, ev_t, ev_y, ev_k, n_ev):
     """The points read inside an accepted step (t, t_new]: samples at ``grid`` from index gi on (into

@@ -1,7 +1,11 @@
 """Compiling the loops of this package with numba, or running them as plain Python.
 
-Loops are marked ``@loop`` (or ``@inner`` for helpers that receive a kernel: those are inlined into
-their callers). The modules stay plain Python; ``compiled_loops`` makes numba versions of every
+Loops are marked ``@loop``; helpers ``@inner`` (inlined into every caller: only the few on the hot
+path that call the kernel, e.g. one Runge-Kutta step) or ``@leaf`` (compiled once per argument types
+and linked into their callers, where LLVM still inlines what is small). Every inlined copy goes
+through all of numba's passes again, so a helper inlined at many sites multiplies the cold compile;
+a rarely taken branch that calls the kernel (dense output, sub-steps, root finding) is a ``@loop`` of
+its own, called. The modules stay plain Python; ``compiled_loops`` makes numba versions of every
 marked function in one namespace (``cache=True``: machine code kept next to this package, compiled
 once per machine) and ``python_loops`` gives the plain ones. Importing this package therefore never
 imports numba: a short run that uses plain Python starts as fast as numpy and scipy.
@@ -40,6 +44,12 @@ def loop(f):
 def inner(f):
     """Mark ``f`` as a helper to compile inlined into its callers."""
     setattr(f, _MARK, "inner")
+    return f
+
+
+def leaf(f):
+    """Mark ``f`` as a helper compiled apart (once per argument types) and called."""
+    setattr(f, _MARK, "leaf")
     return f
 
 
@@ -132,4 +142,4 @@ def signature(name: str):
             "VALUES": t.void(t.float64, a1, a1, a1)}[name]
 
 
-__all__ = ["enabled", "entry", "loop", "inner", "python_loops", "compiled_loops", "signature"]
+__all__ = ["enabled", "entry", "loop", "inner", "leaf", "python_loops", "compiled_loops", "signature"]

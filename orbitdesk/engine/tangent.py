@@ -16,10 +16,10 @@ import math
 import numpy as np
 
 from orbitdesk.engine.explicit_rk import PAUSED, erk_advance, state_code
-from orbitdesk.engine.jitting import inner, loop
+from orbitdesk.engine.jitting import leaf, loop
 
 
-@inner
+@leaf
 def gram_schmidt(V, norms):
     """Modified Gram-Schmidt on the columns of V in place; norms[j] = R's j-th diagonal.
     Returns False when a column collapses to zero."""
@@ -52,7 +52,7 @@ def gram_schmidt(V, norms):
     return True
 
 
-@inner
+@leaf
 def orthonormalise(V, logs):
     """``gram_schmidt`` with logs[j] = the logarithm of R's j-th diagonal."""
     if not gram_schmidt(V, logs):
@@ -62,7 +62,7 @@ def orthonormalise(V, logs):
     return True
 
 
-@inner
+@leaf
 def _record(sums, span, rows, row_t, st, t):
     r = int(st[9])
     if r < rows.shape[0]:
@@ -94,6 +94,10 @@ def flow_tangent(f, kind, adaptive, z, p, K, F, st, t_end, rtol, atol, max_step,
     ev_t = np.empty(1)
     ev_y = np.empty((1, z.shape[0]))
     ev_k = np.empty(1, dtype=np.int64)
+    # erk_advance's every_step and step budget as run-time values: numba compiles a called loop anew
+    # for literal arguments (False, a global constant), a second copy of the whole stepping loop
+    every_step = np.zeros(1, dtype=np.bool_)
+    budget = np.full(1, INTERVAL_STEPS)
     direction = 1.0 if t_end > st[0] else -1.0
     done = 0
     while (t_end - st[0]) * direction > 1e-13 * max(1.0, abs(t_end)):
@@ -108,8 +112,8 @@ def flow_tangent(f, kind, adaptive, z, p, K, F, st, t_end, rtol, atol, max_step,
         # a budget of steps per call: an interval that needs millions (a solution sliding along a jump)
         # pauses inside, so the driver can judge the pace, report progress and cancel
         code = erk_advance(f, kind, m, adaptive, z, p, K, F, st, target, rtol, atol, max_step, bound,
-                           grid, out_t, out_y, False, planes, plane_dir, terminal, ev_t, ev_y, ev_k,
-                           INTERVAL_STEPS)
+                           grid, out_t, out_y, every_step[0], planes, plane_dir, terminal, ev_t, ev_y, ev_k,
+                           budget[0])
         if code == PAUSED:
             return PAUSED
         st[13] = 0.0
