@@ -13,6 +13,7 @@ from pathlib import Path
 
 from orbitdesk.language.model import parse_model
 from orbitdesk.document.project import ParameterSetting, Project, dumps
+from orbitdesk.document.results import RESULTS_KEY, results_from_view_settings
 from orbitdesk.engine.settings import RunSettings
 from orbitdesk.document.view_settings import missing_names, unknown_keys
 from orbitdesk.document.walkthrough import apply_step, record_step
@@ -43,6 +44,9 @@ def sample(file, name, model, solver, views, notes, steps):
         if problems:
             raise SystemExit(f"{file}: step '{title}': {problems}")
         walkthrough.append(step)
+    if "bifurcation" in views:   # computed branches are the project's results, not the view's settings
+        settings, results = results_from_view_settings(views["bifurcation"], params, model)
+        views = {**views, "bifurcation": settings, RESULTS_KEY: results}
     return file, Project(
         name=name, model=model,
         parameters={n: ParameterSetting(p.value, p.lo, p.hi) for n, p in parsed.parameters.items()},
@@ -50,8 +54,8 @@ def sample(file, name, model, solver, views, notes, steps):
 
 
 def bifurcation_view(model, param, lo, hi, follow="steady", measure=None, values=None, locus=None):
-    """The bifurcation view's settings with its branches computed now (core.continuation), so the sample
-    opens with the diagram drawn. ``locus``: (kind, second parameter, lo2, hi2) for the second tab."""
+    """The bifurcation view's settings with its branches computed now (analyses.continuation), so the sample
+    (the project's results, see ``sample``) and its walkthrough steps open with the diagram drawn. ``locus``: (kind, second parameter, lo2, hi2) for the second tab."""
     from orbitdesk.analyses.continuation import steady_branches
     from orbitdesk.analyses.continuation.cycles import cycles_from_hopf_points
     from orbitdesk.analyses.continuation.loci import locus as follow_locus

@@ -107,6 +107,44 @@ class FitResult:
                 "evaluations": int(self.evaluations),
                 "warnings": list(self.warnings)}
 
+    # project storage (the live document's result of kind "fit", document/results.py): plain numbers and text
+    def to_saved(self) -> dict:
+        return {"status": self.status, "message": self.message,
+                "estimates": [{"name": e.name, "kind": e.kind, "target": e.target, "dataset": e.dataset,
+                               "value": e.value, "start": e.start, "stderr": e.stderr,
+                               "interval": list(e.interval) if e.interval else None,
+                               "lower": e.lower if math.isfinite(e.lower) else None,
+                               "upper": e.upper if math.isfinite(e.upper) else None} for e in self.estimates],
+                "correlation": [[float(v) for v in row] for row in self.correlation],
+                "residual_rms": dict(self.residual_rms), "evaluations": int(self.evaluations),
+                "warnings": list(self.warnings), "dof": int(self.dof), "cost": float(self.cost),
+                "datasets": [{k: v for k, v in d.items() if k != "model"} for d in self.datasets]}  # (curves: not kept)
+
+    @classmethod
+    def from_saved(cls, data: dict) -> "FitResult":
+        """A FitResult from ``to_saved``'s form (numbers and text only; TypeError, KeyError or ValueError when
+        it does not fit)."""
+        def number(v, default=math.nan):
+            return default if v is None else float(v)
+
+        estimates = []
+        for e in data["estimates"]:
+            interval = e.get("interval")
+            estimates.append(Estimate(str(e["name"]), str(e["kind"]), str(e["target"]),
+                                      None if e.get("dataset") is None else str(e["dataset"]), number(e["value"]),
+                                      number(e.get("start")), None if e.get("stderr") is None else float(e["stderr"]),
+                                      (number(interval[0]), number(interval[1])) if interval else None,
+                                      number(e.get("lower"), -math.inf), number(e.get("upper"), math.inf)))
+        n = len(estimates)
+        correlation = np.array([[number(v) for v in row] for row in data["correlation"]], dtype=float).reshape(n, n)
+        datasets = data.get("datasets") or []
+        if not all(isinstance(d, dict) and isinstance(d.get("name"), str) for d in datasets):
+            raise ValueError("data sets without names")
+        return cls(str(data["status"]), str(data["message"]), estimates, correlation,
+                   {str(k): number(v) for k, v in data["residual_rms"].items()}, int(data["evaluations"]),
+                   [str(w) for w in data.get("warnings") or []], int(data["dof"]), number(data["cost"]),
+                   [dict(d) for d in datasets])
+
 
 # ---------------------------------------------------------------- the problem
 

@@ -3,8 +3,8 @@
 ``data_store(session)`` returns the store, created on first use. Data sets live in
 ``session.project.datasets`` (saved with the project); adding, removing and editing them, applying
 fitted values and keeping them as a named parameter set are undoable commands of the live document.
-The latest fit result is the live document's result of kind "fit" (document/results.py: stale when the
-values change; not written into the file); the residuals on screen are not kept.
+The latest fit result is the live document's result of kind "fit" (document/results.py: saved in the project
+file, stale when the values or the data sets it was fitted to change); the residuals on screen are not kept.
 """
 
 from __future__ import annotations
@@ -86,8 +86,12 @@ class DataStore(QObject):
         """The latest FitResult (None: none), kept once in the live document."""
         return self.session.doc.result("fit")
 
-    def set_result(self, result) -> None:
-        self.session.set_result("fit", result)
+    def set_result(self, result, basis=None) -> None:
+        """Keep ``result`` as the document's fit, computed for ``basis`` (default: the values now set and the
+        data sets it names, as they are now)."""
+        if basis is None and result is not None:
+            basis = self.session.doc.basis(data=[d["name"] for d in result.datasets])
+        self.session.set_result("fit", result, basis)
 
     def set_residuals(self, residuals: dict) -> None:
         self.residuals = dict(residuals)
@@ -100,7 +104,7 @@ class DataStore(QObject):
             self.changed.emit()
 
     def _on_project_loaded(self) -> None:
-        self.residuals, self.show_residuals = {}, False   # (the document dropped the fit of the project before)
+        self.residuals, self.show_residuals = {}, False   # (the document holds the opened project's fit)
         self.changed.emit()
 
 

@@ -1,13 +1,16 @@
 """File > Export: the model as LaTeX, the model text with the values now set, a standalone Python script
-reproducing the run, and an HTML report with pictures of the open views. The texts come from the core (export_latex, export_script, report);
+reproducing the run, an HTML report with pictures of the open views, a view's plot (PNG, SVG) and data (CSV). The texts come from the core (export_latex, export_script, report);
 this module gathers what is on screen and writes the files."""
 
 from __future__ import annotations
 
 from pathlib import Path
 
+import numpy as np
 from PySide6.QtGui import QAction
 from PySide6.QtWidgets import QFileDialog, QMenu
+
+from orbitdesk.exports.csv_table import write_csv
 
 from orbitdesk.app.plain_text import plain_message
 
@@ -261,6 +264,94 @@ def export_report_dialog(window) -> bool:
     export_report(window, path, on_done=lambda written, message: _report(
         window, written is not None, "the report", written, message))
     return True
+
+
+# ---------------------------------------------------------------- plots and a view's data
+
+def export_plot(window, path, view=None, size=None, legend=None, plot=None) -> bool:
+    """Save a plot of the active (or given) view as PNG or SVG, chosen by the file suffix, drawn off
+    screen at ``size`` (width, height; default: as big as on screen) with the same view range;
+    ``plot`` picks one of the view's plots (``figures.view_plots``), ``legend`` names the curves."""
+    from orbitdesk.app.plots import figures
+
+    view = view or window.active_view()
+    if view is None:
+        return False
+    if plot is None:
+        plots = figures.view_plots(view)
+        if not plots and getattr(view, "glview", None) is not None:  # the 3D scene, as a picture
+            scene = view.glview
+            size = size or ((scene.width(), scene.height()) if scene.isVisible() else figures.REPORT_SIZE)
+            return figures.save_scene(view, path, *size)
+        if not plots:
+            return False
+        plot = plots[0].plot
+    if size is None:
+        shown = plot.getViewWidget()
+        size = (shown.width(), shown.height()) if shown is not None and shown.isVisible() else \
+            figures.REPORT_SIZE
+    if legend is None:
+        legend = figures.has_named_curves(plot)
+    title = f"{window.session.name} — {getattr(view, 'title', 'plot')}"
+    return figures.save_plot(plot, path, *size, legend=legend, host=view, title=title)
+
+def export_data(window, path, view=None) -> bool:
+    """Write the active (or given) view's data (full resolution) as CSV."""
+    view = view or window.active_view()
+    getter = getattr(view, "export_data", None)
+    data = getter() if getter is not None else None
+    if not data:
+        return False
+    header, rows = data
+    rows = np.atleast_2d(np.asarray(rows, dtype=float))
+    write_csv(path, header, rows.tolist())  # atomic: a failure leaves no partial file
+    return True
+
+def export_plot_dialog(window, kind: str, plot=None) -> bool:
+    """Ask which plot (default: ``plot``, else the active view's), its size, a legend and the format;
+    then the file name; the status bar says which plot went where."""
+    from orbitdesk.app.plots.figures import ExportPlotDialog
+
+    form = ExportPlotDialog(window, kind, plot)
+    if form.choice is None:
+        window.statusBar().showMessage("No plot to export", 5000)
+        return False
+    if form.dialog.exec() != form.dialog.DialogCode.Accepted:
+        return False
+    kind = form.kind
+    name = f"{window.session.name} {getattr(form.choice.view, 'title', 'plot')}.{kind}"
+    start = (window.session.path.parent if window.session.path else Path.home()) / name
+    flt = "PNG image (*.png)" if kind == "png" else "SVG drawing (*.svg)"
+    path, _ = QFileDialog.getSaveFileName(window, "Export Plot", str(start), flt)
+    if not path:
+        return False
+    if not path.lower().endswith("." + kind):
+        path += "." + kind
+    ok = form.export(path)
+    size = f"{form.width.value()}×{form.height.value()}"
+    window.statusBar().showMessage(f"Exported {form.choice.caption} to {Path(path).name} ({size})" if ok
+                                 else f"Could not write {Path(path).name}", 8000)
+    return ok
+
+def export_data_dialog(window) -> bool:
+    view = window.active_view()
+    if view is None or not hasattr(view, "export_data"):
+        window.statusBar().showMessage("The active view has no data to export", 5000)
+        return False
+    name = f"{window.session.name} {getattr(view, 'title', 'data')}.csv"
+    start = (window.session.path.parent if window.session.path else Path.home()) / name
+    path, _ = QFileDialog.getSaveFileName(window, "Export Data", str(start), "CSV (*.csv)")
+    if not path:
+        return False
+    if not path.lower().endswith(".csv"):
+        path += ".csv"
+    try:
+        ok = export_data(window, path, view)
+    except OSError as e:
+        plain_message(window, "warning", "Export Data", f"Could not write {Path(path).name}: {e.strerror or e}")
+        return False
+    window.statusBar().showMessage(f"Exported {Path(path).name}" if ok else "Nothing to export yet", 5000)
+    return ok
 
 
 def install(window) -> None:

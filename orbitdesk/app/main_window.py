@@ -1,4 +1,5 @@
-"""The main window: a model panel, dockable views, a run bar with a shared time cursor, menus."""
+"""The main window: a model panel, dockable views, the run bar (run_bar.py) with a shared time cursor, menus;
+its export actions are app/exports.py's."""
 
 from __future__ import annotations
 
@@ -9,22 +10,17 @@ from pathlib import Path
 import numpy as np
 from PySide6.QtCore import QByteArray, QEvent, QSettings, QSize, Qt, QTimer, Signal
 from PySide6.QtGui import QAction, QKeySequence
-from PySide6.QtWidgets import (QApplication, QComboBox, QDockWidget, QDoubleSpinBox, QFileDialog, QLabel,
-                               QMainWindow, QMessageBox, QProgressBar, QPushButton, QSizePolicy, QSlider,
-                               QSpinBox, QSplitter, QStyle, QTabWidget, QToolBar, QToolButton, QVBoxLayout,
-                               QWidget)
+from PySide6.QtWidgets import (QApplication, QDockWidget, QFileDialog, QLabel, QMainWindow, QMessageBox,
+                               QProgressBar, QPushButton, QSplitter, QTabWidget, QVBoxLayout, QWidget)
 
-from orbitdesk.exports.csv_table import write_csv
-from orbitdesk.engine.methods import METHODS
-from orbitdesk.engine.settings import SettingsError
 from orbitdesk.document.project import ProjectError
 from orbitdesk.document.views import WINDOW_KEY
 
 from orbitdesk.app import views as views_pkg
 from orbitdesk.app.errors import Notices
 from orbitdesk.app.file_guard import DocumentGuard
-from orbitdesk.app.panels.noise_controls import NoiseControls
-from orbitdesk.app.plain_text import make_plain, menu_text, plain_message, rich_tip
+from orbitdesk.app.plain_text import menu_text, plain_message, rich_tip
+from orbitdesk.app.run_bar import RunBar
 from orbitdesk.app.session import Session
 
 log = logging.getLogger("orbitdesk.app.main_window")
@@ -34,9 +30,6 @@ MAX_RECENT = 8
 LAYOUT_DELAY_MS = 300   # the dock layout goes into the project this long after it last changed
 PROJECT_FILTER = "OrbitDesk projects (*.orbitdesk)"
 OPEN_FILTER = "OrbitDesk projects and models (*.orbitdesk *.txt *.model);;Model text (*.txt *.model);;All files (*)"
-SLIDER_STEPS = 1000
-PLAY_SECONDS = 8.0
-PLAY_INTERVAL_MS = 30
 
 # Model panel parts written elsewhere: (module, class, title, placeholder text)
 PANEL_PARTS = [
@@ -52,200 +45,12 @@ def settings() -> QSettings:
     return QSettings(APP_NAME, APP_NAME)
 
 
-def _number_text(x: float) -> str:
-    return f"{x:.6g}"
-
-
 class _Placeholder(QLabel):
     def __init__(self, text: str, parent=None):
         super().__init__(text, parent)
         self.setAlignment(Qt.AlignmentFlag.AlignCenter)
         self.setWordWrap(True)
         self.setStyleSheet("color: palette(placeholder-text); padding: 12px;")
-
-
-class RunBar(QToolBar):
-    """Method, end time / steps, samples, Run, and the time cursor (play and scrub)."""
-
-    def __init__(self, window: "MainWindow"):
-        super().__init__("Run bar", window)
-        self.setObjectName("run_bar")
-        self.setMovable(False)
-        self.setIconSize(QSize(18, 18))
-        self.session = window.session
-        self._syncing = False
-
-        self.addAction(window.run_action)
-        self.addSeparator()
-        self.method = QComboBox()
-        for entry in METHODS.values():
-            self.method.addItem(entry.summary, entry.name)
-        self.method.setToolTip("Integration method for flows")
-        self.method.currentIndexChanged.connect(self._method_changed)
-        self.t_end_label = QLabel(" until t = ")
-        self.t_end = QDoubleSpinBox()
-        self.t_end.setRange(-1e9, 1e9)
-        self.t_end.setDecimals(3)
-        self.t_end.setKeyboardTracking(False)
-        self.t_end.setToolTip("End time of the run")
-        self.t_end.setMaximumWidth(120)
-        self.t_end.valueChanged.connect(lambda v: self._set(t_end=float(v)))
-        self.steps = QSpinBox()
-        self.steps.setRange(1, 10**8)
-        self.steps.setKeyboardTracking(False)
-        self.steps.setToolTip("Number of iterations of the map")
-        self.steps.setMaximumWidth(120)
-        self.steps.valueChanged.connect(lambda v: self._set(steps=int(v)))
-        self.samples_label = QLabel("  samples ")
-        self.samples = QSpinBox()
-        self.samples.setRange(2, 10**7)
-        self.samples.setSingleStep(1000)
-        self.samples.setKeyboardTracking(False)
-        self.samples.setToolTip("Number of evenly spaced output points of a run")
-        self.samples.valueChanged.connect(lambda v: self._set(samples=int(v)))
-        self.method_action = self.addWidget(self.method)
-        self.noise = NoiseControls(lambda **changes: self._set(**changes))
-        self.noise_action = self.addWidget(self.noise)  # instead of the method menu for a model with noise
-        self.delay_note = make_plain(QLabel())  # delay models: the method of steps and the history used
-        self.delay_note_action = self.addWidget(self.delay_note)
-        self.addWidget(self.t_end_label)
-        self.t_end_action = self.addWidget(self.t_end)
-        self.steps_action = self.addWidget(self.steps)
-        self.samples_label_action = self.addWidget(self.samples_label)
-        self.samples_action = self.addWidget(self.samples)
-        self.addSeparator()
-
-        self.play = QToolButton()
-        self.play.setCheckable(True)
-        self.play.setToolButtonStyle(Qt.ToolButtonStyle.ToolButtonTextBesideIcon)
-        self.play.setIcon(self.style().standardIcon(QStyle.StandardPixmap.SP_MediaPlay))
-        self.play.setText("Play")
-        self.play.setToolTip("Move the time cursor through the run (Space when the slider has focus)")
-        self.play.toggled.connect(self._play_toggled)
-        self.slider = QSlider(Qt.Orientation.Horizontal)
-        self.slider.setRange(0, SLIDER_STEPS)
-        self.slider.setValue(SLIDER_STEPS)
-        self.slider.setMinimumWidth(180)
-        self.slider.setSizePolicy(QSizePolicy.Policy.Expanding, QSizePolicy.Policy.Preferred)
-        self.slider.setToolTip("Time cursor shared by the views: drag to scrub")
-        self.slider.valueChanged.connect(self._slider_moved)
-        self.time_label = QLabel()
-        self.time_label.setMinimumWidth(110)
-        self.time_label.setToolTip("Time at the cursor")
-        self.addWidget(QLabel(" Time cursor "))
-        self.addWidget(self.play)
-        self.addWidget(self.slider)
-        self.addWidget(self.time_label)
-        self._timer = QTimer(self, interval=PLAY_INTERVAL_MS)
-        self._timer.timeout.connect(self._tick)
-
-        s = self.session
-        s.settingsChanged.connect(self.sync)
-        s.systemChanged.connect(self.sync)
-        s.projectLoaded.connect(self.sync)
-        s.timeCursorChanged.connect(self._cursor_changed)
-        s.trajectoryChanged.connect(lambda _t: self._cursor_changed(s.time_cursor))
-        self.sync()
-
-    # ------------------------------------------------------------ settings
-    def _set(self, **changes) -> None:
-        if not self._syncing:
-            try:
-                self.session.set_solver(**changes)
-            except SettingsError as problem:
-                self.window().statusBar().showMessage(f"Not changed: {problem}", 8000)
-                self.sync()
-
-    def _method_changed(self, _index) -> None:
-        self._set(method=self.method.currentData())
-
-    def sync(self, *_args) -> None:
-        s, solver = self.session, self.session.solver
-        self._syncing = True
-        try:
-            self.method.setCurrentIndex(max(0, self.method.findData(solver.method)))
-            self.t_end.setValue(solver.t_end)
-            self.steps.setValue(solver.steps)
-            self.samples.setValue(solver.samples)
-            self.noise.show_settings(solver)
-        finally:
-            self._syncing = False
-        is_map = s.system is not None and s.system.kind == "map"
-        noisy = s.system is not None and s.system.stochastic
-        delays = s.system is not None and s.system.has_delays
-        self.method_action.setVisible(not is_map and not delays and not noisy)
-        self.noise_action.setVisible(noisy)
-        self.delay_note_action.setVisible(delays)
-        if delays:
-            from orbitdesk.engine.delay import METHOD_LABEL, uses_history
-
-            history = uses_history(s.system)
-            self.delay_note.setText(f" Delays: Dormand–Prince 5(4), method of steps · {history} ")
-            self.delay_note.setToolTip(f"This model has delays: it runs with {METHOD_LABEL}; the method menu "
-                                       f"does not apply.\nBefore the start: {history}.")
-        self.t_end_label.setText(" steps " if is_map else " until t = ")
-        self.t_end_action.setVisible(not is_map)
-        self.steps_action.setVisible(is_map)
-        self.samples_label_action.setVisible(not is_map)
-        self.samples_action.setVisible(not is_map)
-
-    # ------------------------------------------------------------ time cursor
-    def time_span(self):
-        traj = self.session.trajectory
-        if traj is None or traj.time.size == 0:
-            return None
-        return float(traj.time[0]), float(traj.time[-1])
-
-    def _slider_moved(self, value: int) -> None:
-        if self._syncing:
-            return
-        span = self.time_span()
-        if span is not None:
-            t0, t1 = span
-            self.session.set_time_cursor(t0 + (t1 - t0) * value / SLIDER_STEPS)
-
-    def _cursor_changed(self, t: float) -> None:
-        span = self.time_span()
-        name = self.session.system.time_name if self.session.system is not None else "t"
-        if span is None or not np.isfinite(t):
-            self.time_label.setText("")
-            return
-        t0, t1 = span
-        frac = 0.0 if t1 == t0 else (t - t0) / (t1 - t0)
-        self._syncing = True
-        try:
-            self.slider.setValue(int(round(min(max(frac, 0.0), 1.0) * SLIDER_STEPS)))
-        finally:
-            self._syncing = False
-        self.time_label.setText(f" {name} = {t:.0f}" if name == "n" else f" {name} = {_number_text(t)}")
-
-    def _play_toggled(self, on: bool) -> None:
-        self.play.setText("Pause" if on else "Play")
-        self.play.setIcon(self.style().standardIcon(
-            QStyle.StandardPixmap.SP_MediaPause if on else QStyle.StandardPixmap.SP_MediaPlay))
-        span = self.time_span()
-        if on and span is not None:
-            t0, t1 = span
-            if abs(self.session.time_cursor - t1) <= 1e-12 * max(1.0, abs(t1)):
-                self.session.set_time_cursor(t0)
-            self._timer.start()
-        else:
-            self._timer.stop()
-            if on:
-                self.play.setChecked(False)
-
-    def _tick(self) -> None:
-        span = self.time_span()
-        if span is None:
-            self.play.setChecked(False)
-            return
-        t0, t1 = span
-        step = (t1 - t0) * PLAY_INTERVAL_MS / 1000.0 / PLAY_SECONDS
-        t = self.session.time_cursor + step
-        if (t - t1) * np.sign(t1 - t0) >= 0:
-            t = t1
-            self.play.setChecked(False)
-        self.session.set_time_cursor(t)
 
 
 class MainWindow(QMainWindow):
@@ -553,21 +358,22 @@ class MainWindow(QMainWindow):
         if name in self.views:
             return self.views[name]
         dock = self.view_docks[name]
-        try:
-            cls = views_pkg.load_view_class(name)
-            view = cls(self.session, dock)
-        except Exception as exc:  # noqa: BLE001 - one broken view must not take the window down
-            log.exception("could not create the view %s", name)
-            dock.setWidget(_Placeholder(f"This view could not be opened: {exc}"))
-            return None
-        dock.setWindowTitle(cls.title)
-        dock.toggleViewAction().setText(dock.windowTitle())
-        dock.setWidget(view)
-        self.views[name] = view
-        self.views_in_project.add(name)
-        from orbitdesk.app.plots.figures import equip_plots
+        with self.session.program():   # a view opened sets its own controls: no edit of the project
+            try:
+                cls = views_pkg.load_view_class(name)
+                view = cls(self.session, dock)
+            except Exception as exc:  # noqa: BLE001 - one broken view must not take the window down
+                log.exception("could not create the view %s", name)
+                dock.setWidget(_Placeholder(f"This view could not be opened: {exc}"))
+                return None
+            dock.setWindowTitle(cls.title)
+            dock.toggleViewAction().setText(dock.windowTitle())
+            dock.setWidget(view)
+            self.views[name] = view
+            self.views_in_project.add(name)
+            from orbitdesk.app.plots.figures import equip_plots
 
-        equip_plots(self, view)
+            equip_plots(self, view)
         if self._active_view is None:
             self._active_view = name
         return view
@@ -703,7 +509,7 @@ class MainWindow(QMainWindow):
             if traj.kind == "map":
                 text = f"{n:,} points, n = 0 … {int(traj.time[-1]) if n else 0}"
             else:
-                text = f"{n:,} points, t = {_number_text(traj.time[0])} … {_number_text(traj.time[-1])}" if n \
+                text = f"{n:,} points, t = {traj.time[0]:.6g} … {traj.time[-1]:.6g}" if n \
                     else "no points"
         else:
             labels = {"diverged": "Blew up", "undefined": "Undefined value", "cancelled": "Stopped",
@@ -817,91 +623,28 @@ class MainWindow(QMainWindow):
             clear = self.recent_menu.addAction("Clear List")
             clear.triggered.connect(lambda: settings().setValue("recent_files", []))
 
-    # ------------------------------------------------------------ export
+    # ------------------------------------------------------------ export (app/exports.py, imported when used)
     def export_plot(self, path, view=None, size=None, legend=None, plot=None) -> bool:
-        """Save a plot of the active (or given) view as PNG or SVG, chosen by the file suffix, drawn off
-        screen at ``size`` (width, height; default: as big as on screen) with the same view range;
-        ``plot`` picks one of the view's plots (``figures.view_plots``), ``legend`` names the curves."""
-        from orbitdesk.app.plots import figures
+        """A plot of the active (or given) view as PNG or SVG (``exports.export_plot``)."""
+        from orbitdesk.app import exports
 
-        view = view or self.active_view()
-        if view is None:
-            return False
-        if plot is None:
-            plots = figures.view_plots(view)
-            if not plots and getattr(view, "glview", None) is not None:  # the 3D scene, as a picture
-                scene = view.glview
-                size = size or ((scene.width(), scene.height()) if scene.isVisible() else figures.REPORT_SIZE)
-                return figures.save_scene(view, path, *size)
-            if not plots:
-                return False
-            plot = plots[0].plot
-        if size is None:
-            shown = plot.getViewWidget()
-            size = (shown.width(), shown.height()) if shown is not None and shown.isVisible() else \
-                figures.REPORT_SIZE
-        if legend is None:
-            legend = figures.has_named_curves(plot)
-        title = f"{self.session.name} — {getattr(view, 'title', 'plot')}"
-        return figures.save_plot(plot, path, *size, legend=legend, host=view, title=title)
+        return exports.export_plot(self, path, view, size, legend, plot)
 
     def export_data(self, path, view=None) -> bool:
-        """Write the active view's data (full resolution) as CSV."""
-        view = view or self.active_view()
-        getter = getattr(view, "export_data", None)
-        data = getter() if getter is not None else None
-        if not data:
-            return False
-        header, rows = data
-        rows = np.atleast_2d(np.asarray(rows, dtype=float))
-        write_csv(path, header, rows.tolist())  # atomic: a failure leaves no partial file
-        return True
+        """The active (or given) view's data as CSV (``exports.export_data``)."""
+        from orbitdesk.app import exports
+
+        return exports.export_data(self, path, view)
 
     def export_plot_dialog(self, kind: str, plot=None) -> bool:
-        """Ask which plot (default: ``plot``, else the active view's), its size, a legend and the format;
-        then the file name; the status bar says which plot went where."""
-        from orbitdesk.app.plots.figures import ExportPlotDialog
+        from orbitdesk.app import exports
 
-        form = ExportPlotDialog(self, kind, plot)
-        if form.choice is None:
-            self.statusBar().showMessage("No plot to export", 5000)
-            return False
-        if form.dialog.exec() != form.dialog.DialogCode.Accepted:
-            return False
-        kind = form.kind
-        name = f"{self.session.name} {getattr(form.choice.view, 'title', 'plot')}.{kind}"
-        start = (self.session.path.parent if self.session.path else Path.home()) / name
-        flt = "PNG image (*.png)" if kind == "png" else "SVG drawing (*.svg)"
-        path, _ = QFileDialog.getSaveFileName(self, "Export Plot", str(start), flt)
-        if not path:
-            return False
-        if not path.lower().endswith("." + kind):
-            path += "." + kind
-        ok = form.export(path)
-        size = f"{form.width.value()}×{form.height.value()}"
-        self.statusBar().showMessage(f"Exported {form.choice.caption} to {Path(path).name} ({size})" if ok
-                                     else f"Could not write {Path(path).name}", 8000)
-        return ok
+        return exports.export_plot_dialog(self, kind, plot)
 
     def export_data_dialog(self) -> bool:
-        view = self.active_view()
-        if view is None or not hasattr(view, "export_data"):
-            self.statusBar().showMessage("The active view has no data to export", 5000)
-            return False
-        name = f"{self.session.name} {getattr(view, 'title', 'data')}.csv"
-        start = (self.session.path.parent if self.session.path else Path.home()) / name
-        path, _ = QFileDialog.getSaveFileName(self, "Export Data", str(start), "CSV (*.csv)")
-        if not path:
-            return False
-        if not path.lower().endswith(".csv"):
-            path += ".csv"
-        try:
-            ok = self.export_data(path, view)
-        except OSError as e:
-            plain_message(self, "warning", "Export Data", f"Could not write {Path(path).name}: {e.strerror or e}")
-            return False
-        self.statusBar().showMessage(f"Exported {Path(path).name}" if ok else "Nothing to export yet", 5000)
-        return ok
+        from orbitdesk.app import exports
+
+        return exports.export_data_dialog(self)
 
     # ------------------------------------------------------------ misc
     def about(self) -> None:

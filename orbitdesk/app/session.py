@@ -13,6 +13,8 @@ editing goes through the document's commands (``set_text``, ``set_param``, ... o
 
 from __future__ import annotations
 
+from contextlib import contextmanager
+
 from PySide6.QtCore import QObject, QTimer, Signal
 
 from orbitdesk.document import project as core_project
@@ -54,6 +56,7 @@ class Session(QObject):
     projectLoaded = Signal()           # a project was opened/new; views re-read their settings
     partChanged = Signal(str)          # a project part was replaced (walkthrough, datasets, parameter_sets, views)
     viewSettingsChanged = Signal(str)  # a view wrote its settings into the project (its id)
+    viewSettingsRestored = Signal(str) # undo or redo put a view's settings back (its id): the view shows them
     stepChanged = Signal(int)          # a walkthrough step's title or note changed (its index)
     statusMessage = Signal(str)
     busyChanged = Signal(bool)         # any background job running
@@ -79,7 +82,10 @@ class Session(QObject):
         self._validate_timer.timeout.connect(self.validate_now)
         self._run_timer = QTimer(self, singleShot=True, interval=0)
         self._run_timer.timeout.connect(self.run)
-        on = self.doc.subscribe
+        self._answering = 0   # > 0 while the document's events or a job's result are handed to the views
+
+        def on(event, fn):
+            self.doc.subscribe(event, self._answer(fn))
         on("text", self.textChanged.emit)
         on("text", lambda _t: self._validate_timer.start())
         on("parsed", self.modelParsed.emit)
@@ -96,11 +102,35 @@ class Session(QObject):
         on("result", self.resultChanged.emit)
         on("part", self.partChanged.emit)
         on("view_settings", self.viewSettingsChanged.emit)
+        on("view_restored", self.viewSettingsRestored.emit)
         on("step", self.stepChanged.emit)
         on("loaded", self._validate_timer.stop)
         on("loaded", self.projectLoaded.emit)
         on("dirty", self._on_dirty)
         on("message", self.statusMessage.emit)
+
+    def _answer(self, fn):
+        """``fn`` run as the program's answer to the document or a job (``answering``)."""
+        def answer(*args):
+            with self.program():
+                return fn(*args)
+        return answer
+
+    @contextmanager
+    def program(self):
+        """What the views set on their controls inside this is the program's (a view being opened, a
+        walkthrough step shown), not a gesture of the user: no undo step (SessionView.settings_changed)."""
+        self._answering += 1
+        try:
+            yield
+        finally:
+            self._answering -= 1
+
+    @property
+    def answering(self) -> bool:
+        """The views are being told of a change of the document or a job's result, or set up by the program
+        (``program``): what they set on their controls now is no gesture of the user."""
+        return self._answering > 0
 
     def _on_dirty(self, dirty: bool) -> None:
         try:
@@ -206,7 +236,7 @@ class Session(QObject):
         generation = self.doc.generation
         if on_error is None:
             on_error = lambda msg: self.statusMessage.emit(msg)  # noqa: E731
-        return self.jobs.submit(key, fn, on_done, on_progress, on_error,
+        return self.jobs.submit(key, fn, self._answer(on_done), on_progress, on_error,
                                 is_current=lambda: generation == self.doc.generation, label=label)
 
     def cancel_job(self, key: str) -> None:
@@ -265,7 +295,7 @@ for _name in ("param_range", "written_values", "param_vector", "initial_vector",
               "set_text", "set_param", "set_initial", "set_values", "reset_values", "set_param_range",
               "set_solver", "replace_part", "show_state", "set_time_cursor", "set_equilibria",
               "select_equilibrium", "set_cycle", "set_result", "clear_result", "result", "result_stale", "basis",
-              "note_clicked_start", "mark_dirty", "mark_saved", "set_view_settings",
+              "note_clicked_start", "mark_dirty", "mark_saved", "set_view_settings", "change_view_settings",
               "to_project"):
     setattr(Session, _name, _call(_name))
 del _name

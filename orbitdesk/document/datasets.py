@@ -278,6 +278,14 @@ def dataset_to_json(d: DataSet) -> dict:
     }
 
 
+def dataset_digest(d: DataSet) -> str:
+    """SHA-256 of what a data set holds (times, columns, what they compare with, weights, its own values):
+    a result computed from it (a fit) is stale when this changes."""
+    import json
+
+    return hashlib.sha256(json.dumps(dataset_to_json(d), sort_keys=True).encode("utf-8")).hexdigest()
+
+
 def datasets_from_json(v, path: str, warnings: list[str]) -> list[DataSet]:
     """Validate the project's ``datasets`` array; raises ProjectError naming the JSON path."""
     from orbitdesk.document.project import _REQUIRED, ProjectError, _expected, _fields, _named, _num, _sub, _text

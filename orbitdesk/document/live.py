@@ -4,7 +4,8 @@ It holds the model text, the parsed model and compiled system, the values (param
 slider ranges), the solver settings, the project's other parts (view settings, written by the views as
 they change; walkthrough, data sets, kept parameter sets), the main run and the limit cycle of the
 current system and values, the equilibria with the selected one and the values they were found for, and
-the kept results of the analyses (sweep, Lyapunov spectrum, section, basins, two-parameter map:
+the kept results of the analyses (sweep, Lyapunov spectrum, section, basins, two-parameter map, bifurcation
+diagram, fit:
 document/results.py, each once, marked stale rather than dropped when the values change, saved in the
 project file). Edits are undoable commands on ``undo`` (document/undo.py); the run and the cycle are
 cleared when the model or the values change, the equilibria when the model changes.
@@ -16,6 +17,7 @@ arguments: ``text`` (text), ``parsed`` (ParsedModel), ``system`` (CompiledSystem
 ``result`` (kind: a kept result of that kind was set or cleared, see document/results.py),
 ``part`` (name of a project part replaced: "walkthrough", "datasets", "parameter_sets", "views"),
 ``view_settings`` (a view's id: its settings in the project changed, see ``set_view_settings``),
+``view_restored`` (a view's id: undo or redo put its settings back, ``change_view_settings``),
 ``step`` (index of a walkthrough step whose title or note changed), ``loaded`` (), ``dirty`` (bool), ``message`` (plain words for a status line).
 
 The app's Session (app/session.py) is a Qt adapter over one LiveDocument (signals, timers, worker
@@ -37,7 +39,8 @@ import numpy as np
 
 from orbitdesk.document import project as core_project
 from orbitdesk.document.project import ParameterSetting, Project, ProjectError
-from orbitdesk.document.results import RESULTS_KEY, Basis, Results, stale_words, text_digest
+from orbitdesk.document.results import (RESULTS_KEY, Basis, Results, results_from_view_settings, stale_words,
+                                        text_digest)
 from orbitdesk.document.undo import Command, UndoStack
 from orbitdesk.document.views import WINDOW_KEY
 from orbitdesk.engine.settings import SAVED, RunSettings
@@ -49,7 +52,8 @@ PROJECT_SUFFIXES = (".orbitdesk", ".json")
 SOLVER_FIELDS = SAVED
 PARTS = ("walkthrough", "datasets", "parameter_sets", "views")   # project parts replaced by ``replace_part``
 EVENTS = ("text", "parsed", "system", "values", "settings", "inputs", "trajectory", "time_cursor",
-          "equilibria", "selection", "cycle", "result", "part", "view_settings", "step", "loaded", "dirty", "message")
+          "equilibria", "selection", "cycle", "result", "part", "view_settings", "view_restored", "step", "loaded",
+          "dirty", "message")
 
 
 def parse(text):
@@ -191,6 +195,7 @@ class LiveDocument:
         self._written_initial: dict[str, float] = {}
         self._forced_dirty = False
         self._last_dirty = False
+        self._pushing_view = False
         self.undo.on_change(self._update_dirty)
 
     # ------------------------------------------------------------ events
@@ -358,6 +363,36 @@ class LiveDocument:
             self.project.views[view_id] = settings
             self.emit("view_settings", view_id)
 
+    def change_view_settings(self, view_id: str, settings: dict, label: str | None = None) -> None:
+        """A view's settings changed by the user: when what it computes changed (view_settings.PROJECT_KEYS:
+        the swept parameter, a section's plane, ranges...) one undo step (changes of the same view within
+        VALUE_MERGE_SECONDS merge: a drag is one step) and an unsaved change; undoing and redoing put the
+        settings back and announce ``view_restored`` (the view shows them again). Changes of how it is shown
+        only are written as ``set_view_settings`` writes them."""
+        from orbitdesk.document.view_settings import project_part
+        from orbitdesk.document.views import title_of
+
+        settings = copy.deepcopy(settings)
+        old = self.project.views.get(view_id)
+        before = project_part(view_id, old)   # (a key written for the first time is no edit)
+        if before == {k: v for k, v in project_part(view_id, settings).items() if k in before}:
+            self.set_view_settings(view_id, settings)
+            return
+        self._pushing_view = True
+        try:
+            title = title_of(view_id)
+            self.undo.push(_Edit(label or f"Change {title[:1].lower()}{title[1:]} settings", "view settings", view_id,
+                                 lambda v: self._apply_view_settings(view_id, v), copy.deepcopy(old), settings,
+                                 VALUE_MERGE_SECONDS))
+        finally:
+            self._pushing_view = False
+
+    def _apply_view_settings(self, view_id: str, settings) -> None:
+        self.project.views[view_id] = copy.deepcopy(settings)
+        self.emit("view_settings", view_id)
+        if not self._pushing_view:     # an undo or redo: the view shows them again
+            self.emit("view_restored", view_id)
+
     def set_step_text(self, index: int, field: str, text: str) -> None:
         """A walkthrough step's ``title`` or ``note`` (undoable, typing merges)."""
         old = getattr(self.project.walkthrough[index], field)
@@ -434,13 +469,22 @@ class LiveDocument:
         self.emit("cycle", cycle)
 
     # ------------------------------------------------------------ kept results of the analyses (results.py)
-    def basis(self, skip=(), solver: bool = False) -> Basis:
-        """What a result computed now is computed for: the values, the model of the system in use and
-        (``solver``) the solver settings; ``skip``: parameters the result runs over."""
+    def basis(self, skip=(), solver: bool = False, initial: bool = True, data=None) -> Basis:
+        """What a result computed now is computed for: the values (the initial ones unless ``initial`` is
+        False), the model of the system in use and (``solver``) the solver settings; ``skip``: parameters
+        the result runs over; ``data``: names of the project's data sets it is computed from."""
         skip = (skip,) if isinstance(skip, str) else tuple(skip or ())
         model = text_digest(self.system.model.text if self.system is not None else self.text)  # (not compiled yet)
-        return Basis(dict(self.params), dict(self.initial), model,
-                     _listed(dataclasses.astuple(self.solver)) if solver else None, skip)
+        return Basis(dict(self.params), dict(self.initial) if initial else None, model,
+                     _listed(dataclasses.astuple(self.solver)) if solver else None, skip,
+                     None if data is None else self._data_digests(data))
+
+    def _data_digests(self, names) -> dict:
+        """name -> digest of each named data set of the project (None: there is none of that name)."""
+        from orbitdesk.document.datasets import dataset_digest
+
+        held = {d.name: d for d in self.project.datasets}
+        return {n: dataset_digest(held[n]) if n in held else None for n in names}
 
     def set_result(self, kind: str, result, basis: Basis | None = None) -> None:
         """Keep ``result`` (a core result dataclass) as the project's result of ``kind`` (results.KINDS),
@@ -462,7 +506,8 @@ class LiveDocument:
         then = self.results.basis(kind)
         if then is None:
             return ""
-        return stale_words(then, self.basis(then.skip, solver=then.solver is not None))
+        return stale_words(then, self.basis(then.skip, solver=then.solver is not None,
+                                            initial=then.initial is not None, data=then.data))
 
     def note_clicked_start(self, u0) -> None:
         """A view started a trajectory from a clicked point: its full state (a start for a cycle search)."""
@@ -589,7 +634,13 @@ class LiveDocument:
         project = copy.deepcopy(project)
         parsed = parse(project.model)
         kept_before = self.results.kinds()
-        kept_now = self.results.load_json(project.views.pop(RESULTS_KEY, None))
+        stored = project.views.pop(RESULTS_KEY, None)
+        view, moved = results_from_view_settings(project.views.get("bifurcation"),
+                                                 {n: s.value for n, s in project.parameters.items()}, project.model)
+        if moved:   # a file of an earlier version: its branches were kept in the view's settings
+            project.views["bifurcation"] = view
+            stored = {**moved, **(stored if isinstance(stored, dict) else {})}
+        kept_now = self.results.load_json(stored)
         self.project, self.path = project, (Path(path) if path is not None else None)
         self.disk_state = disk_state if path is not None else core_project.UNCHECKED
         self.text = project.model

@@ -11,7 +11,11 @@ announces every change with its ``result`` event, and writes the results into th
 ``pack`` turns a result dataclass (fields of numbers, text, lists, numpy arrays and lists of small records
 such as the attractors of a basin map) into plain JSON data (NaN and infinities as null); ``unpack``
 rebuilds it, refusing anything that does not fit the dataclass. Nothing read back is ever run: only
-numbers, text, lists and records of them (two levels deep at most) are accepted.
+numbers, text, lists and records of them (two levels deep at most) are accepted. A result made of nested
+parts (the bifurcation diagram's branches, a fit's estimates) gives its own plain form: a ``to_saved()``
+method and a ``from_saved(data)`` classmethod that reads numbers and text back (KeyError, TypeError or
+ValueError when they do not fit); ``pack`` checks that form is plain JSON data (``MAX_DEPTH`` levels,
+``MAX_NUMBERS`` values) and ``unpack`` checks it again before ``from_saved`` reads it.
 """
 
 from __future__ import annotations
@@ -25,6 +29,7 @@ import numpy as np
 
 RESULTS_KEY = "_results"      # in Project.views, beside the views' own settings
 MAX_NUMBERS = 400_000         # a result larger than this is not kept in the file (the file stays small)
+MAX_DEPTH = 8                 # nesting of a result's own plain form (to_saved)
 _KINDS = {"f": float, "i": int, "U": str, "b": bool}
 
 # kind (= the id of the view that shows it) -> the core dataclasses it may be (module, class name),
@@ -36,7 +41,9 @@ KINDS = {
     "basins": (("orbitdesk.analyses.basins", "BasinResult"),),
     "parameter_map": (("orbitdesk.analyses.parameter_maps", "PeriodGrid"),
                       ("orbitdesk.analyses.sweep", "LyapunovGrid")),
-    "fit": (("orbitdesk.analyses.fitting", "FitResult"),),   # kept while open; its records are not file data
+    "bifurcation": (("orbitdesk.analyses.continuation.results", "ContinuationResult"),),
+    "bifurcation_locus": (("orbitdesk.analyses.continuation.results", "Locus"),),   # the two-parameter tab
+    "fit": (("orbitdesk.analyses.fitting", "FitResult"),),
 }
 
 
@@ -58,20 +65,24 @@ def text_digest(text: str) -> str:
 class Basis:
     """The model and values a result was computed for. ``skip``: parameters the result runs over (a sweep's
     parameter, a map's two axes), left out of the comparison; ``solver``: the solver settings as a list,
-    None for results that do not depend on them."""
+    None for results that do not depend on them; ``initial`` None for results that do not depend on the
+    initial values (continuation: the state only picks where the search starts); ``data``: the data sets
+    the result was computed from (a fit), name -> digest (datasets.dataset_digest; None: no data)."""
     params: dict
-    initial: dict
+    initial: dict | None
     model: str | None            # digest of the model text of the system used (None: unknown)
     solver: list | None = None
     skip: tuple = ()
+    data: dict | None = None
 
     def compared(self) -> tuple:
         return ({n: v for n, v in self.params.items() if n not in self.skip}, self.initial, self.model,
-                self.solver)
+                self.solver, self.data)
 
     def to_json(self) -> dict:
-        return {"params": dict(self.params), "initial": dict(self.initial), "model": self.model,
-                "solver": self.solver, "skip": list(self.skip)}
+        return {"params": dict(self.params), "initial": None if self.initial is None else dict(self.initial),
+                "model": self.model,
+                "solver": self.solver, "skip": list(self.skip), "data": self.data}
 
     @classmethod
     def from_json(cls, d) -> "Basis | None":
@@ -79,18 +90,21 @@ class Basis:
         if not isinstance(d, dict):
             return None
         params, initial = d.get("params"), d.get("initial")
-        if not (_number_table(params) and _number_table(initial)):
+        if not (_number_table(params) and (initial is None or _number_table(initial))):
             return None
-        model, solver, skip = d.get("model"), d.get("solver"), d.get("skip", ())
+        model, solver, skip, data = d.get("model"), d.get("solver"), d.get("skip", ()), d.get("data")
         if skip is None:
             skip = ()
         if isinstance(skip, str):          # files of earlier versions wrote one skipped name as text
             skip = (skip,)
         if not isinstance(model, (str, type(None))) or not (
                 solver is None or (isinstance(solver, list) and all(isinstance(v, _SCALARS) for v in solver))) \
-                or not (isinstance(skip, (list, tuple)) and all(isinstance(n, str) for n in skip)):
+                or not (isinstance(skip, (list, tuple)) and all(isinstance(n, str) for n in skip)) \
+                or not (data is None or (isinstance(data, dict) and all(
+                    isinstance(k, str) and isinstance(v, (str, type(None))) for k, v in data.items()))):
             return None
-        return cls(dict(params), dict(initial), model, None if solver is None else list(solver), tuple(skip))
+        return cls(dict(params), None if initial is None else dict(initial), model, None if solver is None else list(solver), tuple(skip),
+                   None if data is None else dict(data))
 
 
 def _number_table(d) -> bool:
@@ -119,7 +133,45 @@ def stale_words(then: Basis | None, now: Basis | None) -> str:
         parts.append("other initial values")
     if then.solver != now.solver:
         parts.append("other solver settings")
+    if then.data != now.data:
+        gone = [n for n in then.data or {} if (now.data or {}).get(n) is None]
+        edited = [n for n in then.data or {} if n not in gone and then.data[n] != now.data[n]]
+        if edited:
+            parts.append("an earlier version of the data " + ", ".join(edited[:3]))
+        if gone:
+            parts.append("the data " + ", ".join(gone[:3]) + " (now removed)")
     return "Computed for " + ("; ".join(parts) if parts else "other values")
+
+
+# ---------------------------------------------------------------- results of earlier files
+
+VIEW_HELD = ("branches", "response", "stepped_sweeps", "locus", "notes")  # the bifurcation view held its results
+
+
+def results_from_view_settings(settings, params: dict, model_text: str) -> tuple[dict, dict]:
+    """Files of earlier versions kept the bifurcation diagram's branches (and its two-parameter curve) in the
+    view's own settings: (the view's settings without them, the results data for ``Results.load_json``),
+    computed for the file's ``params`` and model (the initial values only picked where the search started).
+    Plain data moved, nothing rebuilt here (that happens on first read, by the same checks as any result)."""
+    if not isinstance(settings, dict) or not any(settings.get(k) for k in VIEW_HELD):
+        return settings, {}
+    settings = dict(settings)
+    held = {k: settings.pop(k) for k in VIEW_HELD if k in settings}
+    numbers = {n: float(v) for n, v in params.items() if isinstance(v, (int, float)) and not isinstance(v, bool)}
+    digest = text_digest(model_text)
+    out = {}
+    if held.get("branches") or held.get("response"):
+        data = {k: held[k] for k in ("branches", "response", "stepped_sweeps", "notes") if k in held}
+        data.update({k: settings[k] for k in ("follow", "parameter", "from", "to") if k in settings})
+        out["bifurcation"] = {"for": Basis(numbers, None, digest, None, (str(settings.get("parameter", "")),)).to_json(),
+                              "class": "ContinuationResult", "data": {"saved": data}}
+    locus = held.get("locus")
+    if isinstance(locus, dict) and locus:
+        names = locus.get("parameters")
+        skip = tuple(str(n) for n in names) if isinstance(names, list) else ()
+        out["bifurcation_locus"] = {"for": Basis(numbers, None, digest, None, skip).to_json(), "class": "Locus",
+                                    "data": {"saved": locus}}
+    return settings, out
 
 
 # ---------------------------------------------------------------- the document's results
@@ -220,6 +272,9 @@ def pack(result) -> dict | None:
     """The fields of ``result`` as JSON data, or None if it is too large or holds something else."""
     if not dataclasses.is_dataclass(result):
         return None
+    if _has_own_form(type(result)):
+        data = _plain_json(result.to_saved())
+        return {"saved": data} if data is not None else None
     out, numbers = {}, 0
     for f in dataclasses.fields(result):
         value = getattr(result, f.name)
@@ -250,6 +305,14 @@ def unpack(cls, data):
     """A ``cls`` rebuilt from ``pack`` data, or None when the data does not fit it."""
     if not isinstance(data, dict) or not dataclasses.is_dataclass(cls):
         return None
+    if _has_own_form(cls):
+        saved = data.get("saved")
+        if not isinstance(saved, dict) or _plain_json(saved) is None:
+            return None
+        try:
+            return cls.from_saved(saved)
+        except (KeyError, TypeError, ValueError, AttributeError, IndexError):
+            return None
     values = {}
     try:
         for f in dataclasses.fields(cls):
@@ -284,6 +347,40 @@ def unpack(cls, data):
 
 
 _SCALARS = (str, int, float, bool, type(None))
+
+
+def _has_own_form(cls) -> bool:
+    return callable(getattr(cls, "to_saved", None)) and callable(getattr(cls, "from_saved", None))
+
+
+def _plain_json(value) -> dict | None:
+    """``value`` (a result's own plain form) with non-finite numbers as null, or None when it holds anything
+    but dicts with text keys, lists, text, numbers, booleans and null, nests deeper than MAX_DEPTH or holds
+    more than MAX_NUMBERS values."""
+    count = 0
+
+    def plain(v, depth):
+        nonlocal count
+        count += 1
+        if count > MAX_NUMBERS or depth > MAX_DEPTH:
+            raise ValueError
+        if isinstance(v, float):
+            return v if math.isfinite(v) else None
+        if isinstance(v, (np.floating, np.integer, np.bool_)):
+            return plain(v.item(), depth)
+        if isinstance(v, _SCALARS):
+            return v
+        if isinstance(v, (list, tuple)):
+            return [plain(x, depth + 1) for x in v]
+        if isinstance(v, dict) and all(isinstance(k, str) for k in v):
+            return {k: plain(x, depth + 1) for k, x in v.items()}
+        raise ValueError
+
+    try:
+        out = plain(value, 0)
+    except (ValueError, RecursionError):
+        return None
+    return out if isinstance(out, dict) else None
 
 
 def _is_record(value, depth: int = 0) -> bool:

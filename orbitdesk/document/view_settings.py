@@ -42,8 +42,11 @@ VIEW_SETTINGS: dict[str, dict] = {
     "bifurcation": {"follow": ("steady", "cycles", "cycle", "response"), "parameter": "parameter", "from": "number",
                     "to": "number", "measure": "text", "overlay": "bool", "stepped": "bool",
                     "locus_kind": ("fold", "Hopf"), "param2": "parameter", "from2": "number", "to2": "number",
-                    "tab": "integer", "branches": "list", "response": "table", "stepped_sweeps": "list",
-                    "locus": "table"},
+                    "tab": "integer",
+                    # computed results a walkthrough step (or a file of an earlier version) holds: the view
+                    # puts them into the document (results.results_from_view_settings), never saves them
+                    "branches": "list", "response": "table", "stepped_sweeps": "list", "locus": "table",
+                    "notes": "list"},
     "fit": {"parameters": "list", "local": "list", "initial": "list", "bounds": "list", "weights": "list",
             "segments": "integer", "max_evaluations": "integer", "page": ("set up", "result")},
     "basins": {"x": {"state": "state", "from": "number", "to": "number", "count": "integer"},
@@ -57,6 +60,26 @@ VIEW_SETTINGS: dict[str, dict] = {
                  "map": {"steps": "integer", "transient": "integer"}, "dt": "number", "auto": "bool",
                  "method": _METHOD_CHOICES, "settle": "bool"},
 }
+
+# The settings that say what a view computes from the model: a user's change of one of them is an edit of
+# the project (an undo step, an unsaved change: LiveDocument.change_view_settings); the others (plot ranges,
+# shown series, tabs, camera) only say how it is shown and go into the project without either.
+PROJECT_KEYS: dict[str, frozenset] = {
+    "sweep": frozenset({"parameter", "from", "to", "observe", "mode", "plane", "period"}),
+    "sections": frozenset({"kind", "coordinate", "value", "direction", "period", "phase"}),
+    "bifurcation": frozenset({"follow", "parameter", "from", "to", "locus_kind", "param2", "from2", "to2"}),
+    "parameter_map": frozenset({"what", "x", "y"}),
+    "basins": frozenset({"x", "y", "strobe", "period"}),
+    "fit": frozenset({"parameters", "local", "initial", "bounds"}),
+    "noise_statistics": frozenset({"state", "mode", "time"}),
+}
+
+
+def project_part(view_id: str, settings) -> dict:
+    """The part of a view's settings that is an edit of the project (``PROJECT_KEYS``)."""
+    keys = PROJECT_KEYS.get(view_id, frozenset())
+    return {k: v for k, v in settings.items() if k in keys} if isinstance(settings, dict) else {}
+
 
 # Saved by the window for every view with plots, once the user names an axis quantity
 # (``ui.plot_tools``): {quantity: {"text": name, "units": units}}.

@@ -203,7 +203,23 @@ def _section_rows(r) -> list[list[str]]:
     return rows
 
 
-REPORTED = (("lyapunov", "lyapunov"), ("sweep", "sweep"), ("sections", "section"))  # document kind, results key
+def _bifurcation_rows(r) -> list[list[str]]:
+    """The bifurcation diagram: what was followed, then each special point where it lies."""
+    what = {"steady": "steady states", "cycles": "steady states and their cycles", "cycle": "the cycle of the run",
+            "response": "forced response"}.get(r.follow, r.follow)
+    name = f'<span class="math">{_e(r.parameter)}</span>'
+    rows = [["followed", _e(what), f"{name} from {_num(r.lo)} to {_num(r.hi)}"]]
+    for s in r.specials:
+        state = ", ".join(f"{k} = {_num(v, 5)}" for k, v in s.state.items())
+        meaning = s.meaning(response=r.response is not None and not r.branches)
+        rows.append([_e(s.describe()), f"{name} = {_num(s.value, 6)}", _e("; ".join(p for p in (state, meaning) if p))])
+    if len(rows) == 1:
+        rows.append(["special points", "none", "in the interval followed"])
+    return rows
+
+
+REPORTED = (("lyapunov", "lyapunov"), ("sweep", "sweep"), ("sections", "section"),
+            ("bifurcation", "bifurcation"))  # document kind, results key
 
 
 def document_results(doc) -> tuple[dict, dict]:
@@ -226,7 +242,8 @@ def _results_html(results: dict, system, stale: dict | None = None) -> list[str]
     computed for other values or another model, words that say so (``document_results``)."""
     out = []
     parts = (("lyapunov", "Lyapunov exponents", lambda r: _lyapunov_rows(r, system.time_name)),
-             ("sweep", "Parameter sweep", _sweep_rows), ("section", "Section", _section_rows))
+             ("sweep", "Parameter sweep", _sweep_rows), ("section", "Section", _section_rows),
+             ("bifurcation", "Bifurcation diagram", _bifurcation_rows))
     for key, heading, rows_of in parts:
         result = results.get(key)
         if result is None:

@@ -74,7 +74,7 @@ def test_overlay_on_time_series_and_phase_plane(qtbot, session, loaded):
     assert len(overlay_points(ts)) == 2
 
 
-def test_fit_panel_runs_applies_keeps_and_shows_residuals(qtbot, session, loaded, monkeypatch, artifacts):
+def test_fit_panel_runs_applies_keeps_and_shows_residuals(qtbot, session, loaded, monkeypatch, artifacts, tmp_path):
     from orbitdesk.app.views.fit import FitView
     from orbitdesk.app.views.timeseries import TimeSeriesView
 
@@ -123,6 +123,20 @@ def test_fit_panel_runs_applies_keeps_and_shows_residuals(qtbot, session, loaded
     xs, ys = sticks[0].getData()
     assert xs.size == 2 * loaded.datasets[0].n_samples
     np.testing.assert_array_equal(ys[0::2], loaded.datasets[0].columns[0].values)
+
+    # the fit is kept in the project: reopened, the panel shows it, current for these values and this data
+    view.residuals_box.setChecked(False)
+    session.open(session.doc.save(tmp_path / "fitted.orbitdesk"))
+    qtbot.waitUntil(lambda: loaded.result is not None and view.results.rowCount() == 3, timeout=20000)
+    assert [e.value for e in loaded.result.estimates] == pytest.approx(got, rel=1e-12)
+    assert view.results.item(0, 0).text() == "c" and view.stale_bar.isHidden()
+    edited = record()
+    edited.columns[0].values[3] += 0.5
+    loaded.replace("shaker", edited, "Edit data shaker")
+    assert not view.stale_bar.isHidden()
+    assert view.stale_bar.label.text() == "Computed for an earlier version of the data shaker"
+    session.undo_stack.undo()
+    assert view.stale_bar.isHidden()
 
 
 def test_import_with_mapping_dialog(qtbot, window, tmp_path, monkeypatch, message_boxes):

@@ -1,5 +1,5 @@
 """Bifurcation diagram view: branches computed in the background, special points listed in words, a
-click on a row sets the parameter and state, results kept in the view's settings."""
+click on a row sets the parameter and state, the branches kept in the live document (and the project file)."""
 
 import re
 
@@ -45,12 +45,25 @@ def test_hopf_point_listed_in_words_and_click_goes_there(qtbot, session):
     session.undo_stack.undo()  # one undo step takes the whole jump back
     assert session.params["b"] == 2.0 and session.initial["x"] == 1.0
 
-    saved = view.view_settings()
-    assert saved["branches"] and saved["branches"][0]["special"][0]["type"] == "hopf"
+    # the branches are the live document's result, not the view's settings: a second view shows them too
+    assert "branches" not in view.view_settings()
+    assert session.doc.result("bifurcation").specials[0].type == "hopf"
     again = make_view(qtbot, session)
-    again.apply_view_settings(saved)
-    again._redraw()
     assert table_rows(again.table) == rows
+    session.set_param("a", 2.0)   # other values: kept, shown with the stale note
+    qtbot.waitUntil(lambda: view.stale_bar.isVisible())
+    assert "a = 1.5 (now 2)" in view.stale_bar.label.text() and table_rows(view.table) == rows
+
+
+def test_branches_saved_in_the_project_show_on_reopening(qtbot, session, tmp_path):
+    load_model(qtbot, session, BRUSSELATOR, dict(t_end=20.0, samples=501))
+    view = make_view(qtbot, session)
+    compute(qtbot, view)
+    rows = table_rows(view.table)
+    path = session.doc.save(tmp_path / "diagram.orbitdesk")
+    with qtbot.waitSignal(view.resultChanged, timeout=60000):
+        session.open(path)
+    assert table_rows(view.table) == rows and not view.stale_bar.isVisible()
 
 
 def test_frequency_response_with_stepped_sweeps(qtbot, session):

@@ -56,7 +56,8 @@ def results_for(kind, doc):
     raise KeyError(kind)
 
 
-FILE_KINDS = sorted(set(KINDS) - {"fit"})   # a fit's estimates are records of records: kept while open only
+# (the fit below; branches and two-parameter curves in test_document_continuation.py)
+FILE_KINDS = sorted(set(KINDS) - {"fit", "bifurcation", "bifurcation_locus"})
 
 
 @pytest.mark.parametrize("kind", FILE_KINDS)
@@ -111,20 +112,44 @@ def test_the_kept_orbit_diagram_reads_back_the_closed_forms(tmp_path):
     np.testing.assert_allclose(sorted(set(np.round(back.points(1), 9))), cycle, atol=1e-8)
 
 
-def test_the_fit_is_kept_while_open_marked_stale_and_not_written_into_the_file(tmp_path):
+def test_the_fit_is_saved_read_back_and_stale_when_the_values_or_its_data_change(tmp_path):
     from orbitdesk.analyses.fitting import Estimate, FitResult
+    from orbitdesk.document.datasets import parse_data
 
     doc = opened(SPRING)
-    fit = FitResult("ok", "", [Estimate("w", "parameter", "w", None, 1.0, 0.8, 0.01, (0.98, 1.02))],
-                    np.eye(1), {"run": 0.001}, 12, [], 40, 1e-5, [{"name": "run"}])
+    # x = cos(w t) with w = 1 (closed form), sampled at t = 0, 1, 2
+    run = parse_data("t,x\n" + "".join(f"{t},{math.cos(t)!r}\n" for t in (0, 1, 2)), "run")
+    doc.replace_part("datasets", [run], "Import data run")
+    fit = FitResult("ok", "converged", [Estimate("w", "parameter", "w", None, 1.0, 0.8, 0.01, (0.98, 1.02), 0.0)],
+                    np.eye(1), {"x": 0.001}, 12, ["a warning"], 2, 1e-5,
+                    [{"name": "run", "parameters": {"w": 1.0}, "initial": {"x": 1.0, "v": 0.0},
+                      "residual_rms": {"x": 0.001}, "model": {"x": np.zeros(3)}}])
     seen = []
     doc.subscribe("result", seen.append)
-    doc.set_result("fit", fit)
+    doc.set_result("fit", fit, doc.basis(data=["run"]))
     assert seen == ["fit"] and doc.result("fit") is fit
     doc.set_param("w", 1.5)
     assert doc.result_stale("fit") == "Computed for w = 1 (now 1.5)"
+    doc.set_param("w", 1.0)
+
     back = LiveDocument.open(doc.save(tmp_path / "f.orbitdesk"), compile=True)
-    assert back.result("fit") is None
+    again = back.result("fit")
+    assert isinstance(again, FitResult) and back.result_stale("fit") == ""
+    (w,) = again.estimates
+    assert (w.name, w.value, w.start, w.stderr, w.interval, w.lower, w.upper) == ("w", 1.0, 0.8, 0.01, (0.98, 1.02),
+                                                                                 0.0, math.inf)
+    assert again.residual_rms == {"x": 0.001} and again.message == "converged" and again.warnings == ["a warning"]
+    assert [d["name"] for d in again.datasets] == ["run"] and "model" not in again.datasets[0]
+    np.testing.assert_array_equal(again.correlation, np.eye(1))
+
+    edited = parse_data("t,x\n0,1\n1,0.5\n2,-0.4\n", "run")
+    back.replace_part("datasets", [edited], "Edit data run")
+    assert back.result_stale("fit") == "Computed for an earlier version of the data run"
+    back.replace_part("datasets", [], "Remove data run")
+    assert back.result_stale("fit") == "Computed for the data run (now removed)"
+    back.undo.undo()
+    back.undo.undo()
+    assert back.result_stale("fit") == ""
 
 
 def test_a_swept_parameter_does_not_make_the_result_stale():

@@ -158,3 +158,29 @@ def test_project_round_trip_through_the_document(tmp_path):
     text.write_text(DECAY, encoding="utf-8")
     plain = LiveDocument.open(text, compile=True)
     assert plain.path is None and plain.name == "m" and plain.system.states == ["x"]
+
+
+def test_a_views_setting_of_what_it_computes_is_an_undo_step_and_a_drag_one_step(ticks):
+    doc = LiveDocument.from_project(Project(model=DECAY + "a = 1 in [0, 3]\n"), compile=True)
+    sweep = {"parameter": "k", "from": 0.0, "to": 2.0, "count": 200}
+    doc.set_view_settings("sweep", sweep)            # the view's settings as it opened: no edit
+    assert not doc.dirty and doc.undo.count() == 0
+    restored = []
+    doc.subscribe("view_restored", restored.append)
+    for i, hi in enumerate((1.5, 1.2, 1.0)):          # a drag of the interval's end: one step
+        ticks[0] = 0.2 * i
+        doc.change_view_settings("sweep", {**sweep, "to": hi})
+    ticks[0] = 10.0
+    doc.change_view_settings("sweep", {**sweep, "to": 1.0, "parameter": "a"})
+    assert doc.undo.count() == 2 and doc.dirty and restored == []
+    assert doc.undo.undo_label() == "Change parameter sweep settings"
+    doc.undo.undo()
+    assert doc.project.views["sweep"]["parameter"] == "k" and doc.project.views["sweep"]["to"] == 1.0
+    doc.undo.undo()
+    assert doc.project.views["sweep"] == sweep and not doc.dirty and restored == ["sweep", "sweep"]
+    doc.undo.redo()
+    assert doc.project.views["sweep"]["to"] == 1.0 and doc.dirty and restored[-1] == "sweep"
+    # how a view is shown (its plot's range, its tab) is no edit of the project
+    doc.undo.undo()
+    doc.change_view_settings("sweep", {**sweep, "range": [0, 1, 0, 1]})
+    assert doc.project.views["sweep"]["range"] == [0, 1, 0, 1] and not doc.dirty and doc.undo.can_redo()

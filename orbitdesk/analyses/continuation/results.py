@@ -17,6 +17,11 @@ LABELS = {FOLD: "fold", HOPF: "Hopf", BRANCH_POINT: "branch point", CYCLE_FOLD: 
 EQUILIBRIUM, CYCLE, FIXED_POINT = "equilibrium", "cycle", "fixed point"
 
 
+def _words_number(x) -> str:
+    """6 significant digits, a true minus sign (as the app writes numbers)."""
+    return f"{float(x):.6g}".replace("-", "\u2212")
+
+
 def _complex_list(values):
     return [{"re": float(np.real(v)), "im": float(np.imag(v))} for v in values]
 
@@ -50,6 +55,25 @@ class Special:
             elif l1 > 0:
                 text += " (subcritical: hard onset)"
         return text
+
+    def meaning(self, response: bool = False) -> str:
+        """What the point means for the system, in words (the bifurcation view's table, the report);
+        ``response``: a point of a forced response."""
+        if response and self.type == FOLD:
+            return "the stable and unstable responses meet: a slow sweep jumps here"
+        if self.type == HOPF:
+            l1 = self.first_lyapunov_coefficient
+            onset = ("a small stable oscillation grows gently (soft onset)" if l1 is not None and l1 < 0 else
+                     "oscillation starts with a jump (hard onset)" if l1 is not None and l1 > 0 else "")
+            freq = f"frequency {_words_number(self.frequency)}, " if self.frequency is not None else ""
+            coeff = f" (first Lyapunov coefficient {l1:.4g})" if l1 is not None else ""
+            return f"{freq}{onset}{coeff}"
+        period = f" (period {_words_number(self.period)})" if self.period else ""
+        return {FOLD: "two steady states meet and vanish: a jump happens here",
+                BRANCH_POINT: "two branches cross: the other branch is drawn too",
+                CYCLE_FOLD: "two cycles meet and vanish" + period,
+                PERIOD_DOUBLING: "a multiplier passes -1: the period doubles",
+                TORUS: "a pair of multipliers leaves the unit circle: a second frequency appears"}.get(self.type, "")
 
     def to_dict(self) -> dict:
         data = {"type": self.type, "value": self.value, "state": dict(self.state)}
@@ -195,6 +219,14 @@ class Locus:
         return {"kind": self.kind, "parameters": [p1, p2], "states": list(self.states), "curve": curve,
                 "special": [dict(s) for s in self.special], "ended": list(self.reasons)}
 
+    # project storage (the live document's result of kind "bifurcation_locus"): the JSON form itself
+    def to_saved(self) -> dict:
+        return self.to_dict()
+
+    @classmethod
+    def from_saved(cls, data: dict) -> "Locus":
+        return locus_from_saved(data)
+
 
 @dataclass
 class ResponseCurve:
@@ -247,3 +279,61 @@ def locus_from_saved(data: dict) -> Locus:
     points = np.array([[float(c["state"][s]) for c in curve] for s in states]).reshape(len(states), -1)
     return Locus(str(data["kind"]), (p1, p2), states, values, points, [dict(s) for s in data.get("special", [])],
                  [str(r) for r in data.get("ended", [])])
+
+
+# ---------------------------------------------------------------- what the live document keeps
+
+FOLLOW_MODES = ("steady", "cycles", "cycle", "response")   # steady states, + their cycles, the run's cycle, forced
+
+
+@dataclass
+class ContinuationResult:
+    """One Compute of the bifurcation diagram: what was followed (``follow``: one of FOLLOW_MODES, over
+    ``parameter`` from ``lo`` to ``hi``) and what came out: the branches with their special points and the
+    run's notes, or for a forced flow the continued response with the stepped sweeps up and down. The live
+    document keeps it (document/results.py, kind "bifurcation"); ``to_saved``/``from_saved`` are its plain
+    form in the project file (numbers and text only, read back without running anything)."""
+
+    follow: str
+    parameter: str
+    lo: float
+    hi: float
+    branches: list[Branch] = field(default_factory=list)
+    notes: list[str] = field(default_factory=list)
+    response: ResponseCurve | None = None
+    stepped: list[ResponseCurve] = field(default_factory=list)
+
+    @property
+    def specials(self) -> list[Special]:
+        """Every special point: those of the branches, then those of the response."""
+        out = [s for b in self.branches for s in b.special]
+        return out + (list(self.response.special) if self.response is not None else [])
+
+    def to_saved(self) -> dict:
+        return {"follow": self.follow, "parameter": self.parameter, "from": float(self.lo), "to": float(self.hi),
+                "branches": [b.to_saved() for b in self.branches], "notes": list(self.notes),
+                "response": self.response.to_dict() if self.response is not None else {},
+                "stepped_sweeps": [c.to_dict() for c in self.stepped]}
+
+    @classmethod
+    def from_saved(cls, data: dict) -> "ContinuationResult":
+        """The result from ``to_saved``'s form (also the bifurcation view's settings of earlier versions,
+        which held the same keys); KeyError, TypeError, ValueError... when it does not fit."""
+        branches = [Branch.from_saved(b) for b in data.get("branches") or []]
+        response = data.get("response") or None
+        response = response_from_saved(response) if response is not None else None
+        stepped = [response_from_saved(c) for c in data.get("stepped_sweeps") or []]
+        follow = data.get("follow")
+        if follow not in FOLLOW_MODES:
+            follow = "response" if response is not None else "steady"
+        parameter = (branches[0].parameter if branches else response.parameter if response is not None
+                     else data.get("parameter"))
+        values = [b.values for b in branches] + ([response.values] if response is not None else [])
+        lo, hi = data.get("from"), data.get("to")
+        if not isinstance(lo, (int, float)) or not isinstance(hi, (int, float)):
+            lo, hi = ((min(float(np.min(v)) for v in values if len(v)), max(float(np.max(v)) for v in values if len(v)))
+                      if any(len(v) for v in values) else (0.0, 1.0))
+        if not isinstance(parameter, str) or not (branches or response is not None):
+            raise ValueError("no branches")
+        return cls(follow, parameter, float(lo), float(hi), branches, [str(n) for n in data.get("notes") or []],
+                   response, stepped)

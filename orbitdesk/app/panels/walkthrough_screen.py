@@ -101,6 +101,11 @@ def put_on_screen(window, new_state: dict, snapshot: dict, arrange: bool = True,
     """Show ``new_state`` (from ``apply_step``) in the window; only what ``snapshot`` names is changed.
 
     Settings for a view that has not been created yet go to ``defer(module, changes, section)``."""
+    with window.session.program():   # a step shown is no edit of the project (no undo step)
+        return _put_on_screen(window, new_state, snapshot, arrange, defer)
+
+
+def _put_on_screen(window, new_state: dict, snapshot: dict, arrange: bool, defer) -> ScreenResult:
     s, out = window.session, ScreenResult()
     modules = _view_modules(window)
     generation = s.generation
@@ -171,13 +176,14 @@ def _bring_up_to_date(view, values_changed: bool) -> None:
 
 
 def apply_to_view(view, changes: dict, section: dict | None) -> None:
-    if changes:
-        _apply_view(view, changes)
-    if section is None:
-        return
-    if "strobe" in section:
-        view.set_strobe(section["strobe"], section.get("phase", 0.0))
-    elif "plane" in section:
-        name, _, value = section["plane"].partition("=")
-        view.set_plane(name, float(value), section.get("direction", "up"))
-    view.compute()
+    with view.not_a_gesture():   # a step shows settings: no edit of the project (no undo step)
+        if changes:
+            _apply_view(view, changes)
+        if section is None:
+            return
+        if "strobe" in section:
+            view.set_strobe(section["strobe"], section.get("phase", 0.0))
+        elif "plane" in section:
+            name, _, value = section["plane"].partition("=")
+            view.set_plane(name, float(value), section.get("direction", "up"))
+        view.compute()

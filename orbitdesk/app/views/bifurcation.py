@@ -4,8 +4,11 @@ and listed in words, and a second tab with fold and Hopf curves in two parameter
 
 Stable parts are drawn solid, unstable parts dashed. Clicking a branch or a row of the table sets the
 parameter (and the state) there, so the run shows what happens at that point. All computing is done by
-``orbitdesk.analyses.continuation`` in session jobs with progress and Cancel; the branches are kept in the
-project with the view's settings, so walkthrough steps can show them.
+``orbitdesk.analyses.continuation`` in session jobs with progress and Cancel; what comes out is the live
+document's result of kind "bifurcation" (a ``ContinuationResult``; the two-parameter tab's curve, kind
+"bifurcation_locus", lives in bifurcation_locus.py), saved in the project and marked stale when the values
+change. A walkthrough step (or a file of an earlier version) may hold branches in the view's settings: they
+are put into the document when applied.
 """
 
 from __future__ import annotations
@@ -14,26 +17,23 @@ import math
 
 import numpy as np
 import pyqtgraph as pg
-from PySide6.QtCore import QPointF, Qt, Signal
-from PySide6.QtGui import QColor, QPolygonF
-from PySide6.QtWidgets import (QAbstractItemView, QGraphicsPolygonItem, QHeaderView, QSplitter, QTableWidget,
-                               QTableWidgetItem, QTabWidget, QVBoxLayout, QWidget)
+from PySide6.QtCore import Qt, Signal
+from PySide6.QtWidgets import (QAbstractItemView, QHeaderView, QSplitter, QTableWidget, QTableWidgetItem, QTabWidget,
+                               QVBoxLayout, QWidget)
 
 from orbitdesk.app.views import muted_colour, series_colour, style_plot
 from orbitdesk.app.plots.plot_style import JobStrip, NumberBox, number_text
+from orbitdesk.app.views.bifurcation_locus import (LOCUS_KIND, SYMBOL_COLOUR, SYMBOLS, LocusTab, label_anchor,
+                                                   region_between_fold_curves)
 from orbitdesk.app.views.common import (SessionView, check_box, clicked_point, combo_box, control_row, fill_combo,
-                                        fill_default_range, is_number, push_button, quiet, select_text,
+                                        is_number, push_button, quiet, range_for_parameter, select_text,
                                         status_label, status_row)
+from orbitdesk.document.results import results_from_view_settings, result_class, unpack
 
 STEADY, CYCLES, CYCLE_HERE, RESPONSE = "steady", "cycles", "cycle", "response"
 FOLLOW_LABELS = {STEADY: "steady states", CYCLES: "steady states and their cycles",
                  CYCLE_HERE: "the cycle the run settles on", RESPONSE: "forced response"}
 NORM, PERIOD, AMPLITUDE = "size of the state (norm)", "period", "amplitude"
-# a marker shape per kind of point (pyqtgraph symbols); colours come from the series palette
-SYMBOLS = {"fold": "d", "hopf": "star", "branch point": "+", "cycle fold": "d", "period doubling": "s",
-           "torus": "o", "cusp": "t", "bogdanov-takens": "p", "generalised hopf": "h"}
-SYMBOL_COLOUR = {"fold": 1, "cycle fold": 1, "hopf": 4, "branch point": 5, "period doubling": 2, "torus": 6,
-                 "cusp": 1, "bogdanov-takens": 5, "generalised hopf": 4}
 STEPPED_COUNT = 41
 
 
@@ -50,12 +50,6 @@ def stable_runs(values, measure, stable):
     return runs
 
 
-def _label_anchor(x, span):
-    """Labels right of a point in the left part of the plot, left of it in the right part (never clipped)."""
-    lo, hi = span
-    return (1.1, 1.1) if x > lo + 0.7 * (hi - lo) else (-0.15, 1.1)
-
-
 def _same_place(a, b) -> bool:
     """Two special points at one parameter value and state (found on two branches through it)."""
     scale = 1.0 + abs(a.value) + sum(abs(v) for v in a.state.values())
@@ -67,21 +61,15 @@ class BifurcationView(SessionView):
     view_id = "bifurcation"
     on_request = True
     title = "Bifurcation diagram"
+    result_kind = "bifurcation"
 
     resultChanged = Signal()
 
     def __init__(self, session, parent=None):
         super().__init__(session, parent)
-        self.branches = []  # core Branch objects (steady states and cycles)
-        self.response = None  # ResponseCurve (continued)
-        self.stepped = []  # ResponseCurve (stepped up / down)
-        self.locus_result = None
-        self.locus_region = None  # the shaded region between fold curves meeting at a cusp
-        self.notes: list[str] = []
         self._wanted = None
         self._range_for = None
         self._specials = []  # (Special, Branch or None) in table order
-        self._shown_request = None  # (follow, parameter, from, to, stepped) of the branches shown
 
         # ---- one-parameter controls
         self.follow = combo_box("What to follow: the steady states (equilibria of a flow, fixed points of a map), "
@@ -134,55 +122,57 @@ class BifurcationView(SessionView):
         split.setStretchFactor(1, 1)
         layout.addWidget(split, 1)
 
-        # ---- two-parameter controls
-        self.locus_kind = combo_box("Which point to follow in two parameters", ["fold", "Hopf"])
-        self.param2 = combo_box("The second parameter")
-        self.lo2 = NumberBox(-1.0, -1e12, 1e12, step=0.1)
-        self.lo2.setToolTip("Lowest value of the second parameter")
-        self.hi2 = NumberBox(1.0, -1e12, 1e12, step=0.1)
-        self.hi2.setToolTip("Highest value of the second parameter")
-        self.locus_button = push_button("Compute", "Follow the fold or Hopf point found on the branch (first tab's "
-                                        "parameter and interval) as both parameters move", self.compute_locus)
-        self.locus_widget = pg.PlotWidget()
-        self.locus_plot = self.locus_widget.getPlotItem()
-        self.locus_widget.setToolTip("Click to set both parameters there")
-        self.locus_widget.scene().sigMouseClicked.connect(self._on_locus_click)
-        self.locus_here = pg.ScatterPlotItem(size=11, symbol="x")
-        self.locus_plot.addItem(self.locus_here)
-        self.locus_table = QTableWidget(0, 3)
-        self.locus_table.setHorizontalHeaderLabels(["Point", "At", "What it means"])
-        self.locus_table.verticalHeader().setVisible(False)
-        self.locus_table.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
-        self.locus_table.horizontalHeader().setSectionResizeMode(2, QHeaderView.ResizeMode.Stretch)
-        self.locus_table.setMaximumHeight(110)
-        loci_tab = QWidget()
-        l2 = QVBoxLayout(loci_tab)
-        l2.setContentsMargins(0, 4, 0, 0)
-        l2.addLayout(control_row("Follow the", self.locus_kind, "point in", self.param2, "from", self.lo2, "to",
-                                 self.hi2, None, self.locus_button, stretch=False))
-        l2.addWidget(self.locus_widget, 1)
-        l2.addWidget(self.locus_table)
+        # ---- two-parameter tab
+        self.locus_tab = LocusTab(self)
+        self.locus_kind, self.param2 = self.locus_tab.kind, self.locus_tab.param2
+        self.lo2, self.hi2, self.locus_button = self.locus_tab.lo2, self.locus_tab.hi2, self.locus_tab.button
+        self.locus_widget, self.locus_plot = self.locus_tab.widget, self.locus_tab.plot
 
         self.tabs = QTabWidget()
         self.tabs.addTab(branches_tab, "One parameter")
-        self.tabs.addTab(loci_tab, "Two parameters")
+        self.tabs.addTab(self.locus_tab, "Two parameters")
+        self.tabs.currentChanged.connect(self.update_stale)
         main = self.main_layout()
         main.addWidget(self.tabs, 1)
         main.addLayout(status_row(self.info, self.strip))
         self._restyle()
         self.follow_session(values=self._on_values)
 
+    # ------------------------------------------------------------ the document's results
+    @property
+    def branches(self) -> list:
+        """The branches of the document's diagram (steady states and cycles)."""
+        return list(self.result.branches) if self.result is not None else []
+
+    @property
+    def response(self):
+        """The continued response of a forced flow (None: none)."""
+        return self.result.response if self.result is not None else None
+
+    @property
+    def stepped(self) -> list:
+        """The stepped sweeps up and down beside the response."""
+        return list(self.result.stepped) if self.result is not None else []
+
+    @property
+    def notes(self) -> list[str]:
+        return list(self.result.notes) if self.result is not None else []
+
+    @property
+    def locus_result(self):
+        return self.locus_tab.result
+
+    @property
+    def locus_region(self):
+        return self.locus_tab.region
+
     # ------------------------------------------------------------ view protocol
     def view_settings(self) -> dict:
-        d = {"follow": self.follow_mode(), "parameter": self.parameter.currentText(), "from": float(self.lo.value()),
-             "to": float(self.hi.value()), "measure": self.measure.currentText(), "overlay": self.overlay.isChecked(),
-             "stepped": self.stepped_box.isChecked(), "locus_kind": self.locus_kind.currentText(),
-             "param2": self.param2.currentText(), "from2": float(self.lo2.value()), "to2": float(self.hi2.value()),
-             "tab": self.tabs.currentIndex(), "branches": [b.to_saved() for b in self.branches],
-             "response": self.response.to_dict() if self.response is not None else {},
-             "stepped_sweeps": [c.to_dict() for c in self.stepped],
-             "locus": self.locus_result.to_dict() if self.locus_result is not None else {}}
-        return d
+        return {"follow": self.follow_mode(), "parameter": self.parameter.currentText(),
+                "from": float(self.lo.value()), "to": float(self.hi.value()), "measure": self.measure.currentText(),
+                "overlay": self.overlay.isChecked(), "stepped": self.stepped_box.isChecked(),
+                "locus_kind": self.locus_kind.currentText(), "param2": self.param2.currentText(),
+                "from2": float(self.lo2.value()), "to2": float(self.hi2.value()), "tab": self.tabs.currentIndex()}
 
     def apply_view_settings(self, d: dict) -> None:
         if not isinstance(d, dict):
@@ -192,18 +182,27 @@ class BifurcationView(SessionView):
         self.stepped_box.setChecked(bool(d.get("stepped", True)))
         if isinstance(d.get("tab"), int) and 0 <= d["tab"] < self.tabs.count():
             self.tabs.setCurrentIndex(d["tab"])
-        self._restore_results(d)
-        if self.branches or self.response is not None:
-            # stored branches are shown as they are: they were computed for the values set with them
-            self._shown_request = (d.get("follow"), d.get("parameter"), d.get("from"), d.get("to"),
-                                   bool(d.get("stepped", True)))
-            self.begin_computing(skip=d.get("parameter"))
-            self.shown_computed()
+        self._keep_held_results(d)
         if self.system is not None:
             self._apply_wanted()
             self._fill_measures()
             select_text(self.measure, d.get("measure"))
             self._redraw()
+
+    def _keep_held_results(self, d: dict) -> None:
+        """Branches a walkthrough step holds in its settings for this view go into the document: they were
+        computed for the values the step sets (now set)."""
+        _settings, held = results_from_view_settings(d, self.session.params, self.session.text)
+        unreadable = False
+        for kind, entry in held.items():
+            result = unpack(result_class(kind, entry["class"]), entry["data"])
+            if result is None:
+                unreadable = True
+                continue
+            skip = result.parameters if kind == LOCUS_KIND else result.parameter
+            self.session.set_result(kind, result, self.values_now(skip))
+        if unreadable:
+            self.info.setText("The saved branches could not be read; press Compute to follow them again")
 
     def export_data(self):
         """Every point of every branch: branch number, parameter, state, stability."""
@@ -230,8 +229,7 @@ class BifurcationView(SessionView):
 
     def compute(self) -> None:
         """Follow the branches for the controls' settings (nothing to do when they are shown already)."""
-        if (self.branches or self.response is not None) and self._shown_request == self.request() \
-                and not self.is_stale():
+        if self.shown_request() == self.request() and not self.is_stale():
             return
         s = self.system
         if s is None or not s.parameters:
@@ -245,6 +243,7 @@ class BifurcationView(SessionView):
         observe = self.measure.currentText() if self.measure.currentText() in s.states else None
         u0, p = self.session.initial_vector(), self.session.param_vector()
         from orbitdesk.analyses import continuation as cont
+        from orbitdesk.analyses.continuation.results import ContinuationResult
 
         def job(cancel, report):
             if mode == RESPONSE:
@@ -275,75 +274,83 @@ class BifurcationView(SessionView):
             return ("branches", result, None)
 
         self.info.setText("")
-        self._pending_request = self.request()
         self.begin_computing(skip=name)
+
+        def adopt(outcome):
+            kind, result, extra = outcome
+            if kind == "response":
+                kept = ContinuationResult(mode, name, lo, hi, response=result, stepped=list(extra or []))
+            else:
+                kept = ContinuationResult(mode, name, lo, hi, list(result.branches), list(result.notes))
+            self.keep_result(kept)
+            self.computed_by_user()
+
         self.strip.what = f"Following {FOLLOW_LABELS[mode]} in {name}"
-        self.strip.run("bifurcation", job, self._adopt, on_error=lambda m: None)
+        self.strip.run("bifurcation", job, adopt, on_error=lambda m: None)
 
-    def compute_locus(self) -> None:
-        s = self.system
-        if s is None or len(s.parameters) < 2:
-            self.info.setText("Two-parameter curves need a model with two parameters")
-            return
-        name, name2 = self.parameter.currentText(), self.param2.currentText()
-        if name == name2:
-            self.info.setText("Choose a second parameter other than the first tab's parameter")
-            return
-        lo, hi = float(self.lo.value()), float(self.hi.value())
-        range2 = (float(self.lo2.value()), float(self.hi2.value()))
-        kind = "fold" if self.locus_kind.currentIndex() == 0 else "hopf"
-        u0, p = self.session.initial_vector(), self.session.param_vector()
+    def shown_request(self):
+        """What the document's diagram followed, as ``request()`` gives it (None: no diagram)."""
+        r = self.result
+        if r is None:
+            return None
+        return (r.follow, r.parameter, r.lo, r.hi, bool(r.stepped) if r.follow == RESPONSE
+                else self.stepped_box.isChecked())
 
-        def job(cancel, report):
-            from orbitdesk.analyses.continuation.loci import locus
-
-            return ("locus", locus(s, kind, name, name2, lo, hi, p, initial=u0, range2=range2, cancel=cancel,
-                                   progress=report), None)
-
-        self.strip.what = f"Following the {kind} point in {name} and {name2}"
-        self.strip.run("bifurcation-locus", job, self._adopt, on_error=lambda m: None)
-
-    def _adopt(self, outcome) -> None:
-        kind, result, extra = outcome
-        if kind == "locus":
-            self.locus_result = result
-            self.tabs.setCurrentIndex(1)
-        elif kind == "response":
-            self.branches, self.response, self.stepped, self.notes = [], result, list(extra or []), []
-        else:
-            self.branches, self.response, self.stepped = list(result.branches), None, []
-            self.notes = list(result.notes)
-        if kind != "locus":
-            self._shown_request = getattr(self, "_pending_request", None)
-            self.shown_computed()
-        self._fill_measures()
-        self._redraw()
-        self.resultChanged.emit()
-        self.session.mark_dirty()  # the branches are kept in the project
-        self.settings_changed()
+    def computed_by_user(self) -> None:
+        """A result the user asked for is in the document: the project has unsaved work."""
+        self.session.mark_dirty()
 
     def values_now(self, skip=None):
         """Branches do not depend on the initial state (it only picks where the search starts), so a
         click that moves the state onto a branch does not make them stale."""
-        basis = super().values_now(skip)
-        basis.initial = {}
-        return basis
+        return self.session.doc.basis(skip, initial=False)
+
+    def show_result(self, result) -> None:
+        names = self.system.parameters
+        if result.parameter not in names or any(b.states != list(self.system.states) for b in result.branches):
+            raise ValueError("the kept diagram follows a parameter or states the model no longer has")
+        self._fill_measures()
+        self._redraw()
+        self.resultChanged.emit()
+
+    def show_no_result(self) -> None:
+        self._redraw()
+
+    def _on_result_changed(self, kind: str) -> None:
+        super()._on_result_changed(kind)
+        if kind == LOCUS_KIND and self.system is not None:
+            self._show_locus()
+            self.resultChanged.emit()
+
+    def _show_locus(self) -> None:
+        L = self.locus_tab.result
+        if L is not None and not set(L.parameters) <= set(self.system.parameters):
+            self.session.clear_result(LOCUS_KIND)
+            return
+        self.locus_tab.draw((float(self.lo.value()), float(self.hi.value()), float(self.lo2.value()),
+                             float(self.hi2.value())))
+        self.update_stale()
+
+    def stale_text(self) -> str:
+        """The stale words of the tab in sight: the branches', or the two-parameter curve's."""
+        if self.tabs.currentWidget() is self.locus_tab and self.system is not None:
+            return self.session.result_stale(LOCUS_KIND)
+        return super().stale_text()
+
+    def recompute(self) -> None:
+        if self.tabs.currentWidget() is self.locus_tab:
+            self.locus_tab.compute()
+        else:
+            self.compute()
 
     # ------------------------------------------------------------ session events
     def _on_project_loaded(self) -> None:
         self.system = None
-        self.branches, self.response, self.stepped, self.locus_result = [], None, [], None
         self._range_for = None
-        self.shown_nothing()
         self.apply_view_settings(self.saved_view_settings())
 
     def _on_system(self, system) -> None:
-        old = self.system
         self.system = system
-        if old is not None and (list(old.parameters) != list(system.parameters)
-                                or list(old.states) != list(system.states)):
-            self.branches, self.response, self.stepped, self.locus_result = [], None, [], None
-            self.shown_nothing()
         keep = (self.parameter.currentText(), self.param2.currentText(), self.follow_mode())
         forced = system.kind != "map" and not system.autonomous
         with quiet(self.parameter, self.param2, self.follow):
@@ -363,10 +370,10 @@ class BifurcationView(SessionView):
         self._apply_wanted()
         self._on_parameter()
         self._fill_measures()
-        self._redraw()
-        if not (self.branches or self.response):
+        if not self.show_document_result():
             self.info.setText("Compute follows every steady state through the interval, unstable ones included, "
                               "and marks where the behaviour changes")
+        self._show_locus()
 
     def _apply_wanted(self) -> None:
         d, self._wanted = self._wanted, None
@@ -387,21 +394,6 @@ class BifurcationView(SessionView):
         self._fill_measures()
         select_text(self.measure, d.get("measure"))
 
-    def _restore_results(self, d) -> None:
-        from orbitdesk.analyses.continuation.results import Branch, locus_from_saved, response_from_saved
-
-        self.branches, self.response, self.stepped, self.locus_result = [], None, [], None
-        try:
-            self.branches = [Branch.from_saved(b) for b in d.get("branches", [])]
-            if isinstance(d.get("response"), dict) and d["response"]:
-                self.response = response_from_saved(d["response"])
-            self.stepped = [response_from_saved(c) for c in d.get("stepped_sweeps", [])]
-            if isinstance(d.get("locus"), dict) and d["locus"]:
-                self.locus_result = locus_from_saved(d["locus"])
-        except (KeyError, TypeError, ValueError, AttributeError, IndexError):
-            self.branches, self.response, self.stepped, self.locus_result = [], None, [], None
-            self.info.setText("The saved branches could not be read; press Compute to follow them again")
-
     def _on_values(self) -> None:
         self._update_markers()
 
@@ -409,13 +401,8 @@ class BifurcationView(SessionView):
         self._fill_measures()
 
     def _on_parameter(self, _index=None) -> None:
-        name = self.parameter.currentText()
-        if not name or self.system is None:
-            return
-        if self._range_for != name:
-            fill_default_range(self.session, name, self.lo, self.hi)
-            self._range_for = name
-        self._update_markers()
+        if range_for_parameter(self, self.parameter, self.lo, self.hi):
+            self._update_markers()
 
     def _fill_measures(self) -> None:
         if self.system is None:
@@ -485,7 +472,6 @@ class BifurcationView(SessionView):
         self.plot.setLabel("bottom", self._x_name())
         self.plot.setLabel("left", self._y_label())
         self._update_markers()
-        self._draw_locus()
         self._show_info()
 
     def _pen(self, colour, stable):
@@ -510,8 +496,7 @@ class BifurcationView(SessionView):
             self._specials.append((s, None))
 
     def _draw_overlay(self) -> None:
-        view = getattr(self.window(), "views", {}).get("sweep")
-        result = getattr(view, "result", None)
+        result = self.session.doc.result("sweep")  # the Parameter sweep view's orbit diagram
         if result is None or result.parameter != self._x_name():
             return
         from orbitdesk.app.views.sweep import diagram_points
@@ -552,7 +537,7 @@ class BifurcationView(SessionView):
             if key in labelled:
                 continue
             labelled.add(key)
-            text = pg.TextItem(s.label, color=text_colour, anchor=_label_anchor(s.value, self._x_span()))
+            text = pg.TextItem(s.label, color=text_colour, anchor=label_anchor(s.value, self._x_span()))
             text.setPos(s.value, y)
             self.plot.addItem(text)
 
@@ -562,79 +547,13 @@ class BifurcationView(SessionView):
         for row, (s, branch) in enumerate(self._specials):
             size = max([1.0] + [abs(v) for v in s.state.values()])
             state = ", ".join(f"{k} = {number_text(v if abs(v) > 1e-10 * size else 0.0)}" for k, v in s.state.items())
-            cells = [s.label, f"{name} = {s.value:.10g}", state, self._meaning(s, branch is None)]
+            cells = [s.label, f"{name} = {s.value:.10g}", state, s.meaning(response=branch is None)]
             for col, text in enumerate(cells):
                 item = QTableWidgetItem(text)
                 item.setToolTip(text)
                 self.table.setItem(row, col, item)
         self.table.resizeColumnsToContents()
         self.table.resizeRowsToContents()
-
-    @staticmethod
-    def _meaning(s, response=False) -> str:
-        if response and s.type == "fold":
-            return "the stable and unstable responses meet: a slow sweep jumps here"
-        if s.type == "hopf":
-            l1 = s.first_lyapunov_coefficient
-            onset = ("a small stable oscillation grows gently (soft onset)" if l1 is not None and l1 < 0 else
-                     "oscillation starts with a jump (hard onset)" if l1 is not None and l1 > 0 else "")
-            freq = f"frequency {number_text(s.frequency)}, " if s.frequency is not None else ""
-            coeff = f" (first Lyapunov coefficient {l1:.4g})" if l1 is not None else ""
-            return f"{freq}{onset}{coeff}"
-        return {"fold": "two steady states meet and vanish: a jump happens here",
-                "branch point": "two branches cross: the other branch is drawn too",
-                "cycle fold": "two cycles meet and vanish" + (f" (period {number_text(s.period)})" if s.period else ""),
-                "period doubling": "a multiplier passes -1: the period doubles",
-                "torus": "a pair of multipliers leaves the unit circle: a second frequency appears"}.get(s.type, "")
-
-    def _draw_locus(self) -> None:
-        self.locus_plot.clear()
-        self.locus_plot.addItem(self.locus_here)
-        self.locus_table.setRowCount(0)
-        L = self.locus_result
-        if L is None:
-            return
-        colour = series_colour(1 if L.kind == "fold" else 4, self)
-        self.locus_region = None
-        if L.kind == "fold" and any(s["type"] == "cusp" for s in L.special):
-            box = (float(self.lo.value()), float(self.hi.value()), float(self.lo2.value()), float(self.hi2.value()))
-            corners = region_between_fold_curves(L.values[0], L.values[1], box)
-            if corners is not None:
-                fill = QColor(colour)
-                fill.setAlpha(45)
-                inside = QPolygonF([QPointF(box[0], box[2]), QPointF(box[1], box[2]), QPointF(box[1], box[3]),
-                                    QPointF(box[0], box[3])])
-                polygon = QPolygonF([QPointF(x, y) for x, y in corners]).intersected(inside)
-                self.locus_region = QGraphicsPolygonItem(polygon)
-                self.locus_region.setBrush(fill)
-                self.locus_region.setPen(pg.mkPen(None))
-                self.locus_region.setToolTip("Between the fold curves: two more steady states than outside, so the "
-                                             "state depends on the way there (hysteresis)")
-                self.locus_plot.addItem(self.locus_region)
-        self.locus_plot.plot(L.values[0], L.values[1], pen=pg.mkPen(colour, width=2))
-        p1, p2 = L.parameters
-        self.locus_plot.setLabel("bottom", p1)
-        self.locus_plot.setLabel("left", p2)
-        from orbitdesk.analyses.continuation.results import LABELS
-
-        text_colour = self.palette().color(self.foregroundRole())
-        self.locus_table.setRowCount(len(L.special))
-        meanings = {"cusp": "two fold curves meet: the region of two steady states ends here",
-                    "bogdanov-takens": "the Hopf curve ends on the fold curve (zero frequency)",
-                    "generalised hopf": "the onset of oscillation turns from soft to hard"}
-        for row, s in enumerate(L.special):
-            x, y = s["values"][p1], s["values"][p2]
-            symbol_colour = series_colour(SYMBOL_COLOUR.get(s["type"], 1), self)
-            self.locus_plot.addItem(pg.ScatterPlotItem([x], [y], symbol=SYMBOLS.get(s["type"], "o"), size=13,
-                                                       pen=pg.mkPen(symbol_colour), brush=pg.mkBrush(symbol_colour)))
-            span = (float(np.min(L.values[0])), float(np.max(L.values[0])))
-            label = pg.TextItem(LABELS.get(s["type"], s["type"]), color=text_colour, anchor=_label_anchor(x, span))
-            label.setPos(x, y)
-            self.locus_plot.addItem(label)
-            cells = [LABELS.get(s["type"], s["type"]), f"{p1} = {x:.8g}, {p2} = {y:.8g}", meanings.get(s["type"], "")]
-            for col, text in enumerate(cells):
-                self.locus_table.setItem(row, col, QTableWidgetItem(text))
-        self.locus_table.resizeColumnsToContents()
 
     def _place_legend(self) -> None:
         """Put the legend in the corner of the plot where the fewest drawn points lie."""
@@ -702,10 +621,7 @@ class BifurcationView(SessionView):
         self.marker.setVisible(bool(show))
         if show:
             self.marker.setValue(value)
-        L = self.locus_result
-        if L is not None:
-            a, b = (self.session.params.get(n) for n in L.parameters)
-            self.locus_here.setData([a], [b]) if a is not None and b is not None else self.locus_here.setData([], [])
+        self.locus_tab.update_marker()
 
     # ------------------------------------------------------------ gestures
     def _on_click(self, event) -> None:
@@ -763,20 +679,6 @@ class BifurcationView(SessionView):
         finally:
             s.undo_stack.endMacro()
 
-    def _on_locus_click(self, event) -> None:
-        point = clicked_point(self.locus_plot, event)
-        if point is None or self.locus_result is None:
-            return
-        p1, p2 = self.locus_result.parameters
-        s = self.session
-        s.undo_stack.beginMacro(f"go to {p1}, {p2}")
-        try:
-            s.set_param(p1, float(point.x()))
-            s.set_param(p2, float(point.y()))
-        finally:
-            s.undo_stack.endMacro()
-        event.accept()
-
     # ------------------------------------------------------------ look
     def _restyle(self) -> None:
         style_plot(self.plot_widget, self)
@@ -786,40 +688,12 @@ class BifurcationView(SessionView):
         style_plot(self.locus_widget, self)
         accent = muted_colour(self)
         self.marker.setPen(pg.mkPen(accent, width=1, style=Qt.PenStyle.DotLine))
-        self.locus_here.setPen(pg.mkPen(accent, width=2))
+        self.locus_tab.here.setPen(pg.mkPen(accent, width=2))
         if self.system is not None:
             self._redraw()
+            self._show_locus()
 
 
 VIEW = BifurcationView
 
-__all__ = ["BifurcationView", "VIEW", "stable_runs"]
-
-
-def region_between_fold_curves(x, y, box):
-    """The polygon between the two arms of a fold curve that meet at a cusp, closed along the edge of the
-    computed range ``box`` = (x0, x1, y0, y1) where the arms leave it (through its corner when they leave by
-    two adjacent edges); None when an arm ends inside the range or the arms leave by opposite edges (the
-    region is then not drawn)."""
-    x, y = np.asarray(x, float), np.asarray(y, float)
-    if len(x) < 3:
-        return None
-    size = (max(box[1] - box[0], 1e-300), max(box[3] - box[2], 1e-300))
-
-    def edge(i):
-        beyond = [(box[0] - x[i]) / size[0], (x[i] - box[1]) / size[0],
-                  (box[2] - y[i]) / size[1], (y[i] - box[3]) / size[1]]
-        k = int(np.argmax(beyond))
-        return k if beyond[k] > -0.01 else None
-
-    first, last = edge(0), edge(-1)
-    if first is None or last is None:
-        return None
-    points = list(zip(x, y))
-    if first != last:
-        if {first, last} in ({0, 1}, {2, 3}):
-            return None
-        vertical = last if last in (0, 1) else first
-        horizontal = last if last in (2, 3) else first
-        points.append((box[vertical], box[horizontal]))
-    return points
+__all__ = ["BifurcationView", "VIEW", "region_between_fold_curves", "stable_runs"]

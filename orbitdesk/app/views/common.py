@@ -72,9 +72,17 @@ class SessionView(QWidget):
     on_request = False             # computes its result only when asked (or when its Automatic box is on)
     auto = None                    # the Automatic check box of views that have one
 
+    def __init_subclass__(cls, **kwargs):
+        super().__init_subclass__(**kwargs)
+        for name in ("apply_view_settings", "_on_system", "_on_project_loaded"):
+            if name in cls.__dict__:   # what these set on the controls is no gesture of the user
+                setattr(cls, name, _not_a_gesture(cls.__dict__[name]))
+
     def __init__(self, session, parent=None):
         super().__init__(parent)
         self.session = session
+        self._applying = 0            # > 0 while the view sets its own controls (settings, a new system)
+        self._gesture_pending = False  # the settings to store when the view settles come from the user
         self.system = None
         self._own_result = None
         self._computing_for = None
@@ -97,6 +105,7 @@ class SessionView(QWidget):
             if handler is not None:
                 signal.connect(handler)
         s.projectLoaded.connect(self._on_project_loaded)
+        s.viewSettingsRestored.connect(self._on_settings_restored)
         self._watch_settings()
         if self.result_kind is not None:
             s.resultChanged.connect(self._on_result_changed)
@@ -114,7 +123,7 @@ class SessionView(QWidget):
         """Write this view's settings into the document whenever any of its controls changes or a plot's
         range moves (views with state no control holds call ``settings_changed()`` themselves)."""
         self._settings_timer = QTimer(self, singleShot=True, interval=SETTINGS_DELAY_MS)
-        self._settings_timer.timeout.connect(self.store_settings)
+        self._settings_timer.timeout.connect(self._store_settled)
         self.session.projectLoaded.connect(self._settings_timer.stop)  # nothing of the project before
         for widget in self.findChildren(QWidget):
             signal = _change_signal(widget)
@@ -127,11 +136,31 @@ class SessionView(QWidget):
 
     def settings_changed(self, *_args) -> None:
         """Something this view saves changed: its settings go into the document now, and once more when
-        the view has settled (a change that sets several controls in turn ends with all of them)."""
+        the view has settled (a change that sets several controls in turn ends with all of them). A change
+        the user made (not while the view sets its own controls) goes in as an edit of the project: an
+        undo step when it changes what the view computes (``LiveDocument.change_view_settings``)."""
         if self._settings_timer is not None:
+            self._gesture_pending = self._gesture_pending or self._is_gesture()
             if self._caught_up():
                 self.store_settings()
             self._settings_timer.start()
+
+    @contextmanager
+    def not_a_gesture(self):
+        """Set controls of this view from the program (a walkthrough step, restored settings): what they
+        change goes into the project without an undo step."""
+        self._applying += 1
+        try:
+            yield
+        finally:
+            self._applying -= 1
+
+    def _on_settings_restored(self, view_id: str) -> None:
+        """Undo or redo put this view's settings back: show them."""
+        if view_id == self.view_id and self._caught_up():
+            self._settings_timer.stop()
+            self._gesture_pending = False
+            self.apply_view_settings(self.saved_view_settings())
 
     def _caught_up(self) -> bool:
         """The view shows the open project (while another one is being opened, what it shows still
@@ -150,7 +179,19 @@ class SessionView(QWidget):
         except Exception:  # noqa: BLE001 - the project keeps what it had
             log.exception("view %s could not report its settings", self.view_id)
             return
-        self.session.set_view_settings(self.view_id, settings)
+        if self._gesture_pending and self._is_gesture():
+            self.session.change_view_settings(self.view_id, settings)
+        else:
+            self.session.set_view_settings(self.view_id, settings)
+
+    def _is_gesture(self) -> bool:
+        """Controls changing now change by the user's hand: not while the view sets them itself (its saved
+        settings, a new system, a walkthrough step) nor while it answers the document or a job."""
+        return not self._applying and not self.session.answering
+
+    def _store_settled(self) -> None:
+        self.store_settings()
+        self._gesture_pending = False
 
     def _fitting_after(self, handler):
         def on_trajectory(trajectory):
@@ -325,6 +366,19 @@ class SessionView(QWidget):
         raise NotImplementedError
 
 
+def _not_a_gesture(method):
+    """``method`` of a view run as the program's setting of its controls (see SessionView.not_a_gesture)."""
+    def wrapped(self, *args, **kwargs):
+        self._applying += 1
+        try:
+            return method(self, *args, **kwargs)
+        finally:
+            self._applying -= 1
+
+    wrapped.__name__, wrapped.__doc__, wrapped.__wrapped__ = method.__name__, method.__doc__, method
+    return wrapped
+
+
 def _change_signal(widget):
     """The signal a control emits when the user changes it (None: not a control that holds a setting)."""
     if isinstance(widget, QComboBox):
@@ -399,6 +453,18 @@ def fill_default_range(session, name: str, lo_box, hi_box) -> None:
     lo, hi = slider_range(session.params.get(name, 0.0), *session.param_range(name))
     lo_box.setValue(lo)
     hi_box.setValue(hi)
+
+
+def range_for_parameter(view, combo, lo_box, hi_box) -> str:
+    """The parameter chosen in ``combo`` ("" when none, or the view has no system yet); the first time it is
+    chosen its slider range goes into the two number boxes (``view._range_for`` remembers for which)."""
+    name = combo.currentText()
+    if not name or view.system is None:
+        return ""
+    if view._range_for != name:
+        fill_default_range(view.session, name, lo_box, hi_box)
+        view._range_for = name
+    return name
 
 
 def status_row(info, strip) -> QHBoxLayout:

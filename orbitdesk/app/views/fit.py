@@ -207,6 +207,7 @@ class FitView(SessionView):
 
         self.store.changed.connect(self._refresh_data)
         self.store.resultChanged.connect(self._show_result)
+        self.store.changed.connect(self.update_stale)   # (a data set edited: the fit may be stale)
         self.follow_session(values=lambda: self._fill_unknowns())
         self._refresh_data()
         self._show_result(self.store.result)
@@ -436,10 +437,12 @@ class FitView(SessionView):
         p0, u0 = self.session.param_vector(), self.session.initial_vector()
         ranges = {n: self.session.param_range(n) for n in system.parameters}
 
+        basis = self.session.doc.basis(data=[d.name for d in sets])  # what the fit is computed for
+
         def job(cancel, report):
             return fit(system, sets, settings, p0, u0, ranges, cancel=cancel, progress=report)
 
-        self.strip.run("fit", job, self.store.set_result, on_error=self._failed)
+        self.strip.run("fit", job, lambda result: self.store.set_result(result, basis), on_error=self._failed)
 
     def _failed(self, message: str) -> None:
         self.warnings.setText(f"The fit could not run: {message}")
@@ -470,7 +473,12 @@ class FitView(SessionView):
         self.session.run_job("fit-residuals", job, self.store.set_residuals)
 
     # ------------------------------------------------------------ results
+    def stale_text(self) -> str:
+        """Words when the document's fit was computed for other values or other data (document/results.py)."""
+        return self.session.result_stale("fit") if self.store.result is not None else ""
+
     def _show_result(self, result) -> None:
+        self.update_stale()
         self.apply_button.setEnabled(result is not None)
         self.keep_button.setEnabled(result is not None)
         if result is None:

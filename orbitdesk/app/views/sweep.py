@@ -20,9 +20,9 @@ from orbitdesk.app.views import muted_colour, series_colour, style_plot
 from orbitdesk.app.plots.plot_style import JobStrip, NumberBox, number_text
 from orbitdesk.app.views.method_step import MethodStep
 from orbitdesk.app.views.common import (SessionView, apply_numbers, check_box, clicked_point, combo_box,
-                     control_row, direction_combo, fill_combo, fill_default_range, follow_forcing_period, is_number,
+                     control_row, direction_combo, fill_combo, follow_forcing_period, is_number,
                      push_button,
-                     put_through_orbit, quiet, row_widget, select_text, status_label,
+                     put_through_orbit, quiet, range_for_parameter, row_widget, select_text, status_label,
                      status_row)
 
 PLANE, STROBE, MAXIMA, ITERATE = "plane", "strobe", "maxima", "iterate"
@@ -397,12 +397,9 @@ class SweepView(SessionView):
 
     # ------------------------------------------------------------ controls
     def _on_parameter(self, _index=None) -> None:
-        name = self.parameter.currentText()
-        if not name or self.system is None:
+        name = range_for_parameter(self, self.parameter, self.lo, self.hi)
+        if not name:
             return
-        if self._range_for != name:
-            fill_default_range(self.session, name, self.lo, self.hi)
-            self._range_for = name
         self.plot.setLabel("bottom", name)
         self.lyap_plot.setLabel("bottom", name)
         self._show_range()
