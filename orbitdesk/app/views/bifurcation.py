@@ -182,12 +182,14 @@ class BifurcationView(SessionView):
         self.stepped_box.setChecked(bool(d.get("stepped", True)))
         if isinstance(d.get("tab"), int) and 0 <= d["tab"] < self.tabs.count():
             self.tabs.setCurrentIndex(d["tab"])
-        self._keep_held_results(d)
         if self.system is not None:
             self._apply_wanted()
             self._fill_measures()
             select_text(self.measure, d.get("measure"))
+        self._keep_held_results(d)   # (after the intervals: the shaded region is closed along them)
+        if self.system is not None:
             self._redraw()
+            self._show_locus()
 
     def _keep_held_results(self, d: dict) -> None:
         """Branches a walkthrough step holds in its settings for this view go into the document: they were
