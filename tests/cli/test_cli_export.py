@@ -73,6 +73,20 @@ def test_report_to_file(capsys, tmp_path):
     assert "A window of period three" in text
 
 
+def test_report_gives_the_kept_branches_of_the_project(capsys, tmp_path):
+    # the stirred tank keeps its bifurcation diagram in the project: folds where T^2 - heat T + heat = 0
+    # (heat = 6: T = 3 -+ sqrt 3) at stay = T exp(-T) / (heat - T) (closed form)
+    import math
+
+    target = tmp_path / "tank.html"
+    code, _, _ = run_cli(capsys, "export", SAMPLES / "stirred_tank.orbitdesk", "--report", "-o", target)
+    assert code == 0
+    text = target.read_text()
+    assert "<h3>Bifurcation diagram</h3>" in text and text.count("two steady states meet and vanish") == 2
+    for T in (3 - math.sqrt(3), 3 + math.sqrt(3)):
+        assert f"= {T * math.exp(-T) / (6 - T):.6g}<" in text
+
+
 def test_bad_input_is_refused_cleanly(capsys, tmp_path, pendulum_file):
     code, _, err = run_cli(capsys, "export", pendulum_file)
     assert code == 2 and "one of the arguments --latex --script --report --fit-script --model is required" in err

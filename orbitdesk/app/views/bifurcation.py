@@ -23,8 +23,7 @@ from PySide6.QtWidgets import (QAbstractItemView, QHeaderView, QSplitter, QTable
 
 from orbitdesk.app.views import muted_colour, series_colour, style_plot
 from orbitdesk.app.plots.plot_style import JobStrip, NumberBox, number_text
-from orbitdesk.app.views.bifurcation_locus import (LOCUS_KIND, SYMBOL_COLOUR, SYMBOLS, LocusTab, label_anchor,
-                                                   region_between_fold_curves)
+from orbitdesk.app.views.bifurcation_locus import LOCUS_KIND, SYMBOL_COLOUR, SYMBOLS, LocusTab, label_anchor
 from orbitdesk.app.views.common import (SessionView, check_box, clicked_point, combo_box, control_row, fill_combo,
                                         is_number, push_button, quiet, range_for_parameter, select_text,
                                         status_label, status_row)
@@ -698,4 +697,4 @@ class BifurcationView(SessionView):
 
 VIEW = BifurcationView
 
-__all__ = ["BifurcationView", "VIEW", "region_between_fold_curves", "stable_runs"]
+__all__ = ["BifurcationView", "VIEW", "stable_runs"]
