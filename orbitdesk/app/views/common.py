@@ -10,15 +10,15 @@ from contextlib import contextmanager
 
 import numpy as np
 from PySide6.QtCore import QEvent, Qt, QTimer
-from PySide6.QtWidgets import (QAbstractButton, QAbstractSpinBox, QCheckBox, QComboBox, QDoubleSpinBox, QFrame,
-                               QHBoxLayout, QLabel, QLineEdit, QListWidget, QPushButton, QSizePolicy, QSpinBox,
-                               QTableWidget, QVBoxLayout, QWidget)
+from PySide6.QtWidgets import (QAbstractButton, QCheckBox, QComboBox, QFrame, QHBoxLayout, QLabel, QPushButton,
+                               QSizePolicy, QVBoxLayout, QWidget)
 
 from orbitdesk.document.results import stale_words
 from orbitdesk.document.view_settings import clean_settings
 
 from orbitdesk.app.layouts import row as lined_row
 from orbitdesk.app.plots.plot_style import hint_label, orbit_middle
+from orbitdesk.app.views import gestures
 
 log = logging.getLogger("orbitdesk.app.views")
 DIRECTION_LABELS = ("upward", "downward", "both ways")
@@ -76,7 +76,9 @@ class SessionView(QWidget):
         super().__init_subclass__(**kwargs)
         for name in ("apply_view_settings", "_on_system", "_on_project_loaded"):
             if name in cls.__dict__:   # what these set on the controls is no gesture of the user
-                setattr(cls, name, _not_a_gesture(cls.__dict__[name]))
+                setattr(cls, name, gestures.not_a_gesture(cls.__dict__[name]))
+        if "__init__" in cls.__dict__:   # nor what a view sets while it is being built
+            setattr(cls, "__init__", gestures.while_building(cls.__dict__["__init__"]))
 
     def __init__(self, session, parent=None):
         super().__init__(parent)
@@ -126,7 +128,7 @@ class SessionView(QWidget):
         self._settings_timer.timeout.connect(self._store_settled)
         self.session.projectLoaded.connect(self._settings_timer.stop)  # nothing of the project before
         for widget in self.findChildren(QWidget):
-            signal = _change_signal(widget)
+            signal = gestures.change_signal(widget)
             if signal is not None:
                 signal.connect(self.settings_changed)
         import pyqtgraph as pg
@@ -187,7 +189,7 @@ class SessionView(QWidget):
     def _is_gesture(self) -> bool:
         """Controls changing now change by the user's hand: not while the view sets them itself (its saved
         settings, a new system, a walkthrough step) nor while it answers the document or a job."""
-        return not self._applying and not self.session.answering
+        return not self._applying and not self.session.answering and not gestures.building()
 
     def _store_settled(self) -> None:
         self.store_settings()
@@ -364,36 +366,6 @@ class SessionView(QWidget):
 
     def _on_system(self, system) -> None:
         raise NotImplementedError
-
-
-def _not_a_gesture(method):
-    """``method`` of a view run as the program's setting of its controls (see SessionView.not_a_gesture)."""
-    def wrapped(self, *args, **kwargs):
-        self._applying += 1
-        try:
-            return method(self, *args, **kwargs)
-        finally:
-            self._applying -= 1
-
-    wrapped.__name__, wrapped.__doc__, wrapped.__wrapped__ = method.__name__, method.__doc__, method
-    return wrapped
-
-
-def _change_signal(widget):
-    """The signal a control emits when the user changes it (None: not a control that holds a setting)."""
-    if isinstance(widget, QComboBox):
-        return widget.currentIndexChanged
-    if isinstance(widget, QAbstractButton):
-        return widget.toggled if widget.isCheckable() else None
-    if isinstance(widget, (QSpinBox, QDoubleSpinBox)):
-        return widget.valueChanged
-    if isinstance(widget, QLineEdit) and not isinstance(widget.parent(), (QAbstractSpinBox, QComboBox)):
-        return widget.textChanged
-    if isinstance(widget, QListWidget):
-        return widget.itemChanged      # ticked entries
-    if isinstance(widget, QTableWidget):
-        return widget.itemSelectionChanged
-    return None
 
 
 # ---------------------------------------------------------------- controls
