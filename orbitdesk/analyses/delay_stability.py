@@ -143,7 +143,8 @@ def with_delay_stability(system, p, eq):
         kind = f"unstable ({n_unstable} root{'s' if n_unstable > 1 else ''} with positive real part)"
         stable = False
     warnings.append(f"delays: the eigenvalues listed are {METHOD}; the Jacobian shown has the delays dropped")
-    return replace(eq, eigenvalues=shown, eigenvectors=vectors, kind=kind, stable=stable,
+    # (stability="" : the word follows the roots, not the Jacobian with the delays dropped)
+    return replace(eq, eigenvalues=shown, eigenvectors=vectors, kind=kind, stable=stable, stability="",
                    n_stable=int(shown.size) - n_unstable - n_center, n_unstable=n_unstable, n_center=n_center,
                    warnings=warnings)
 

@@ -122,6 +122,8 @@ def test_the_legend_leaves_the_cycle_uncovered_on_screen_and_in_the_figure(qtbot
     find(qtbot, view)
     qtbot.waitUntil(lambda: view.plot.legend.isVisible() and view.plot.getViewBox().width() > 0)
     assert _points_under_legend(view.plot) == 0
+    # its names in the text colour, not a faint grey
+    assert view.plot.legend.opts["labelTextColor"] == view.palette().color(view.foregroundRole())
     view.grab().save(f"{artifacts}/cycle_legend.png")
     figure = copy_plot(view.plot, 640, 300, legend=True, fit=True)
     plot = figure.getPlotItem()

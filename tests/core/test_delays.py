@@ -204,6 +204,7 @@ def test_equilibrium_stable_exactly_when_a_tau_below_half_pi(a, stable):
     eqs = find_equilibria(system, exact=False, starts=5)
     assert len(eqs) == 1 and eqs[0].vector == pytest.approx([0.0], abs=1e-12)
     assert eqs[0].stable is stable
+    assert eqs[0].stability == ("stable" if stable else "unstable")  # the word the Equilibria table shows
     assert any("Breda, Maset and Vermiglio" in w for w in eqs[0].warnings)
 
 

@@ -16,18 +16,17 @@ from PySide6.QtWidgets import QLabel
 
 from orbitdesk.app.views import SERIES_COLOURS, empty_hint, is_dark, style_plot
 from orbitdesk.app.plots.plot_style import JobStrip, NumberBox, number_text, plain_axes
-from orbitdesk.app.views.common import (SessionView, apply_numbers, check_box, clicked_point, control_row,
-                                        follow_forcing_period, push_button, set_quietly, status_label, status_row)
-from orbitdesk.app.views.grid_axes import GridAxes, grid_export, grid_rect
+from orbitdesk.app.views.common import (apply_numbers, check_box, clicked_point, control_row, push_button,
+                                        set_quietly, status_label, status_row)
+from orbitdesk.app.views.grid_axes import GridAxes, GridView, grid_rect
 
 ESCAPE_COLOUR = "#9a9a9a"
 MAX_SIDE = 300
 ORBIT_SAMPLES = 4000  # of the orbit run from a clicked cell
 
 
-class BasinsView(SessionView):
+class BasinsView(GridView):
     view_id = "basins"
-    on_request = True
     title = "Basins of attraction"
     result_kind = "basins"
 
@@ -95,12 +94,7 @@ class BasinsView(SessionView):
             set_quietly(self.strobe, d["strobe"])
         if isinstance(d.get("manifolds"), bool):
             set_quietly(self.manifolds, d["manifolds"])
-        self.axes.want(d)
-        if self.system is not None:
-            self.axes.apply_wanted()
-
-    def export_data(self):
-        return grid_export(self.result)
+        self._want_axes(d)
 
     # ------------------------------------------------------------ public
     def compute(self) -> None:
@@ -124,10 +118,7 @@ class BasinsView(SessionView):
         def job(cancel, report):
             return basins(s, xn, xs, yn, ys, settings, u0=u0, p=p, cancel=cancel, progress=report)
 
-        self.begin_computing()
-        self.info.setText("")
-        self.strip.what = f"Running {xs.size * ys.size:,} starts"
-        self.strip.run("basins", job, self._adopt, on_error=lambda m: self.info.setText(m[:1].upper() + m[1:]))
+        self._run_grid("basins", job, f"Running {xs.size * ys.size:,} starts")
 
     # ------------------------------------------------------------ session events
     def _on_system(self, system) -> None:
@@ -148,13 +139,9 @@ class BasinsView(SessionView):
                 not isinstance(a.get("label"), int) or not isinstance(a.get("centre"), dict) for a in result.attractors):
             raise ValueError("the kept basins do not fit together")
         self._show(result)
-    def _on_values(self) -> None:
-        if self.system is not None and self.system.kind != "map":
-            follow_forcing_period(self.period, self.system, self.session.param_vector(), self._user_period)
-
     # ------------------------------------------------------------ results
     def _adopt(self, result) -> None:
-        self.keep_result(result)
+        super()._adopt(result)
         self._request_manifolds()
 
     def colour_of(self, label: int) -> QColor:
@@ -162,9 +149,6 @@ class BasinsView(SessionView):
             return QColor(ESCAPE_COLOUR)
         light, dark = SERIES_COLOURS[label % len(SERIES_COLOURS)]
         return QColor(dark if is_dark(self) else light)
-
-    def show_no_result(self) -> None:
-        self._show(None)
 
     def _show(self, result) -> None:
         self._show_orbit(None)

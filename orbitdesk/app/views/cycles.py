@@ -293,6 +293,7 @@ class CyclesView(SessionView):
 
     def _restyle(self) -> None:
         style_plot(self.plot_widget, self)
+        self.plot.legend.setLabelTextColor(self.palette().color(self.foregroundRole()))  # readable, not faint
         self._draw()
 
 

@@ -10,7 +10,8 @@ from PySide6.QtCore import QRectF
 from PySide6.QtWidgets import QSpinBox
 
 from orbitdesk.app.plots.plot_style import NumberBox
-from orbitdesk.app.views.common import apply_numbers, combo_box, control_row, fill_combo, quiet, select_text
+from orbitdesk.app.views.common import (SessionView, apply_numbers, combo_box, control_row, fill_combo,
+                                        follow_forcing_period, quiet, select_text)
 
 AXES = (("x", "Across", "across"), ("y", "Up", "up"))
 
@@ -41,6 +42,43 @@ def grid_export(result):
 
     header, columns = grid_table(result)
     return header, np.column_stack(columns)
+
+
+class GridView(SessionView):
+    """An analysis view over a grid of two axes (``self.axes``: GridAxes), with ``info`` (status words),
+    ``strip`` (its JobStrip), ``period`` (a forced flow's period box, ``_user_period`` once typed) and
+    ``_show(result or None)``: the basins and the two-parameter map."""
+
+    on_request = True
+
+    def export_data(self):
+        return grid_export(self.result)
+
+    def show_no_result(self) -> None:
+        self._show(None)
+
+    def _want_axes(self, d: dict) -> None:
+        """The saved axes, applied now if the model's names are there, else once they are."""
+        self.axes.want(d)
+        if self.system is not None:
+            self.axes.apply_wanted()
+
+    def _run_grid(self, key: str, job, what: str, skip=None) -> None:
+        """Start the grid's computation (``job``, saying ``what`` it does): the result goes to ``_adopt``."""
+        self.begin_computing(skip=skip)
+        self.info.setText("")
+        self.strip.what = what
+        self.strip.run(key, job, self._adopt, on_error=lambda m: self.info.setText(m[:1].upper() + m[1:]))
+
+    def _adopt(self, result) -> None:
+        self.keep_result(result)
+
+    def _on_values(self) -> None:
+        if self.system is not None and self.system.kind != "map":
+            follow_forcing_period(self.period, self.system, self.session.param_vector(), self._user_period)
+
+    def _show(self, result) -> None:
+        raise NotImplementedError
 
 
 class GridAxes:

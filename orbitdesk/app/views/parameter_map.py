@@ -14,9 +14,9 @@ from PySide6.QtWidgets import QLabel, QSpinBox, QStackedWidget
 
 from orbitdesk.app.views import empty_hint, muted_colour, style_plot
 from orbitdesk.app.plots.plot_style import JobStrip, NumberBox, number_text, plain_axes, round_significant
-from orbitdesk.app.views.common import (SessionView, apply_numbers, clicked_point, combo_box, control_row,
-                                        follow_forcing_period, push_button, row_widget, status_label, status_row)
-from orbitdesk.app.views.grid_axes import GridAxes, grid_export, grid_rect
+from orbitdesk.app.views.common import (apply_numbers, clicked_point, combo_box, control_row, push_button, row_widget,
+                                        status_label, status_row)
+from orbitdesk.app.views.grid_axes import GridAxes, GridView, grid_rect
 
 LYAPUNOV, PERIOD = "lyapunov", "period"
 WHATS = (LYAPUNOV, PERIOD)
@@ -26,9 +26,8 @@ BAR_AXIS_WIDTH = 45  # pyqtgraph's width of a colour bar's axis: tick, about 20 
 
 
 
-class ParameterMapView(SessionView):
+class ParameterMapView(GridView):
     view_id = "parameter_map"
-    on_request = True
     title = "Two-parameter map"
     result_kind = "parameter_map"
 
@@ -101,12 +100,7 @@ class ParameterMapView(SessionView):
         apply_numbers(d, ((self.transient, "transient", float), (self.duration, "duration", float),
                           (self.max_period, "max_period", int), (self.period, "period", float)))
         self._user_period = isinstance(d.get("period"), (int, float))
-        self.axes.want(d)
-        if self.system is not None:
-            self.axes.apply_wanted()
-
-    def export_data(self):
-        return grid_export(self.result)
+        self._want_axes(d)
 
     # ------------------------------------------------------------ public
     def compute(self) -> None:
@@ -142,10 +136,8 @@ class ParameterMapView(SessionView):
             def job(cancel, report):
                 return period_grid(s, xn, xs, yn, ys, settings, max_period=max_period, u0=u0, p=p,
                                    cancel=cancel, progress=report)
-        self.begin_computing(skip=[xn, yn])
-        self.info.setText("")
-        self.strip.what = f"Mapping the {WHAT_LABELS[what]} over {xs.size} × {ys.size} values"
-        self.strip.run("parameter_map", job, self._adopt, on_error=lambda m: self.info.setText(m[:1].upper() + m[1:]))
+        self._run_grid("parameter_map", job, f"Mapping the {WHAT_LABELS[what]} over {xs.size} × {ys.size} values",
+                       skip=[xn, yn])
 
     # ------------------------------------------------------------ session events
     def _on_system(self, system) -> None:
@@ -166,12 +158,8 @@ class ParameterMapView(SessionView):
             raise ValueError("the kept map does not fit together")
         self._show(result)
 
-    def show_no_result(self) -> None:
-        self._show(None)
-
     def _on_values(self) -> None:
-        if self.system is not None and self.system.kind != "map":
-            follow_forcing_period(self.period, self.system, self.session.param_vector(), self._user_period)
+        super()._on_values()
         self._on_what()
         self._draw_marker()
 
@@ -198,9 +186,6 @@ class ParameterMapView(SessionView):
         self.axes.set_range(key, lo, hi)
 
     # ------------------------------------------------------------ results
-    def _adopt(self, result) -> None:
-        self.keep_result(result)
-
     def _value_name(self) -> str:
         r = self.result
         if r is None:
