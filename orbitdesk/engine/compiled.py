@@ -29,7 +29,15 @@ from orbitdesk.system.compiled_system import UNDEFINED_ERRORS
 from orbitdesk.engine import explicit_rk, jitting, maps, members, stochastic, tangent
 
 LOOP_MODULES = (explicit_rk, maps, tangent, members, stochastic)
-_SIGNATURES = {"model": "MODEL"}  # the kernels the loops call; jac and jac_values stay plain Python
+_SIGNATURES = {}  # kernels compiled as cfuncs on arrays (sde); model: inlined into model_at, on pointers
+# the loops' entry to the model's kernel: its arrays' data as pointers (jitting.at), made arrays again
+_MODEL_AT = """
+
+@cfunc(jitting.signature('MODEL_AT'), cache=_ON_DISK, error_model='numpy')
+def model_at(which, t, z, p, out):
+    size = N_STATES * (which + 1)
+    model(which, t, carray(z, size), carray(p, N_PARAMS), carray(out, size))
+"""
 _CACHE_OPTION = "cache=_ON_DISK"  # private_cache sets _ON_DISK: the module is backed by its verified file
 _lock = threading.Lock()
 _batch_lock = threading.RLock()
@@ -50,7 +58,7 @@ class Engine:
 
     @property
     def f(self):
-        return self.kernels.model
+        return self.kernels.model_at
 
     def entry(self, name: str):
         """The loop ``name`` for repeated calls from Python (``jitting.entry``), kept per engine."""
@@ -90,8 +98,9 @@ def module_source(system, jit: bool, batch: bool = False) -> str:
                                   "def _fill_nan(a):", "    a[...] = math.nan"])
         elif jit:
             head = ["import math", "from math import *  # noqa: F401,F403", "import numpy as np",
-                    "from numba import cfunc, njit", "from orbitdesk.engine import jitting", "", "",
-                    "def _plain(f):", "    return f", ""]
+                    "from numba import carray, cfunc, njit", "from orbitdesk.engine import jitting", "", "",
+                    "def _plain(f):", "    return f", "",
+                    "_model_kernel = njit(error_model='numpy', inline='always')  # compiled into model_at"]
             head += [f"_{name}_kernel = cfunc(jitting.signature({sig!r}), {_CACHE_OPTION}, error_model='numpy')"
                      for name, sig in _signatures(system).items()]
             # parts of a large kernel (codegen._split_model): compiled with it, into its machine code
@@ -100,11 +109,12 @@ def module_source(system, jit: bool, batch: bool = False) -> str:
             head = ["import math", "from math import *  # noqa: F401,F403", "import numpy as np", "", "",
                     "def _plain(f):", "    return f", "", "",
                     "def _fill_nan(a):", "    a[...] = math.nan", ""]
-            head += [f"_{name}_kernel = _plain" for name in list(_signatures(system)) + ["part"]]
+            head += [f"_{name}_kernel = _plain" for name in list(_signatures(system)) + ["model", "part"]]
         if not batch:
             head += ["_jac_kernel = _jac_values_kernel = _plain  # called from Python (stiff solvers, Newton)"]
+        foot = "" if batch else _MODEL_AT if jit else "\n\nmodel_at = model\n"
         cached = system.__dict__[key] = HEADER + "\n".join(head) + "\n\n\n" + kernel_source(
-            system, guard=not jit, batch=batch) + "\n"
+            system, guard=not jit, batch=batch) + foot + "\n"
     return cached
 
 

@@ -15,7 +15,7 @@ import numpy as np
 
 from orbitdesk.engine import limits
 from orbitdesk.engine.progress import Cancelled
-from orbitdesk.engine.explicit_rk import KINDS, PAUSED
+from orbitdesk.engine.explicit_rk import KINDS, PAUSED, WORK_ROWS
 from orbitdesk.engine.members import MS_ROWS, R_ACC, R_GIVE_UP, R_ID, R_REJ, R_T
 from orbitdesk.engine.methods import method as method_info
 from orbitdesk.engine.status import C_CANCELLED, C_STEP_FAILED
@@ -73,6 +73,7 @@ def flow_run(engine, name, t0, t1, y0, p, rtol=1e-8, atol=1e-10, max_step=None, 
     p = _arg(p)
     K = np.zeros((16, n))
     F = np.zeros((7, n))
+    W = np.zeros((WORK_ROWS, n))
     st = np.zeros(12)
     st[0] = t0
     grid = np.empty(0) if grid is None else _arg(grid)
@@ -90,7 +91,7 @@ def flow_run(engine, name, t0, t1, y0, p, rtol=1e-8, atol=1e-10, max_step=None, 
     pace = _Pace(t0, t1, engine.compiled)
     advance = engine.entry("erk_advance")
     while True:
-        code = advance(engine.f, kind, which, adaptive, y, p, K, F, st, float(t1), rtol, atol, max_step,
+        code = advance(engine.f, kind, which, adaptive, y, p, K, F, W, st, float(t1), rtol, atol, max_step,
                        float(bound), grid, out_t, out_y, bool(every_step), rows, dirs, terminal,
                        ev_t, ev_y, ev_k, PAUSE_STEPS)
         if every_step and st[5]:
@@ -149,7 +150,7 @@ class ExplicitStepper:
         self.y = np.array(y0, dtype=float)
         n = self.y.size
         self.p = _arg(p)
-        self.K, self.F, self.st = np.zeros((16, n)), np.zeros((7, n)), np.zeros(12)
+        self.K, self.F, self.W, self.st = np.zeros((16, n)), np.zeros((7, n)), np.zeros((WORK_ROWS, n)), np.zeros(12)
         self.t, self.t_old, self.t_bound = float(t0), None, float(t_bound)
         self.st[0] = self.t
         self.status, self.code = "running", 0
@@ -169,7 +170,7 @@ class ExplicitStepper:
         t_old = self.t
         rows, dirs, terminal = self._planes
         code = self._advance(
-            self.engine.f, self.kind, 0, self.adaptive, self.y, self.p, self.K, self.F, self.st, self.t_bound,
+            self.engine.f, self.kind, 0, self.adaptive, self.y, self.p, self.K, self.F, self.W, self.st, self.t_bound,
             self.rtol, self.atol, self.max_step, self.bound, self._grid, self._out_t, self._out_y, False, rows, dirs,
             terminal, *self._ev, 1)
         if code not in (0, PAUSED):

@@ -26,7 +26,7 @@ import sys
 
 import numpy as np
 
-from orbitdesk.engine.jitting import inner, leaf, loop
+from orbitdesk.engine.jitting import at, inner, loop, noref
 
 
 def _dop853_table():
@@ -97,6 +97,7 @@ A_ALL[2, 1, 0], A_ALL[2, 2, 1], A_ALL[2, 3, 2] = 0.5, 0.5, 1.0
 B_ALL[2, :4] = 1.0 / 6.0, 1.0 / 3.0, 1.0 / 3.0, 1.0 / 6.0
 C_ALL[2, :4] = 0.0, 0.5, 0.5, 1.0
 SAFETY, MIN_FACTOR, MAX_FACTOR = 0.9, 0.2, 10.0
+WORK_ROWS = 20  # erk_advance's work rows: the new point, three of scratch, the stages of sub-steps
 # returned by the loops besides the status codes (status.py): the loop paused
 PAUSED = -1
 # a plane direction beyond +1 / -1 / 0: the turning points where normal . y has a maximum
@@ -108,10 +109,8 @@ def _combine(A, s, y, h, K, out):
     n = y.shape[0]
     for i in range(n):
         acc = 0.0
-        for j in range(s):
-            a = A[s, j]
-            if a != 0.0:
-                acc += a * K[j, i]
+        for j in range(s):  # zero weights too: a test per weight cost more than the product
+            acc += A[s, j] * K[j, i]
         out[i] = y[i] + h * acc
 
 
@@ -124,7 +123,7 @@ def rk_step(f, kind, which, t, y, h, p, K, y_new, tmp):
     s_n = STAGES[kind]
     for s in range(1, s_n):
         _combine(A, s, y, h, K, tmp)
-        f(which, t + C[s] * h, tmp, p, K[s])
+        f(which, t + C[s] * h, at(tmp), at(p), at(K[s]))
     n = y.shape[0]
     if kind == 2:  # classical RK4 in its textbook order of operations
         for i in range(n):
@@ -135,10 +134,10 @@ def rk_step(f, kind, which, t, y, h, p, K, y_new, tmp):
             for j in range(s_n):
                 acc += B[j] * K[j, i]
             y_new[i] = y[i] + h * acc
-    f(which, t + h, y_new, p, K[s_n])
+    f(which, t + h, at(y_new), at(p), at(K[s_n]))
 
 
-@leaf
+@noref
 def error_norm(kind, h, y, y_new, K, rtol, atol):
     n = y.shape[0]
     E = E_ALL[kind]
@@ -172,7 +171,7 @@ def dense_coefficients(f, kind, which, t, y, y_new, h, p, K, F, tmp):
         C = C_ALL[0]
         for s in range(13, 16):
             _combine(A, s, y, h, K, tmp)
-            f(which, t + C[s] * h, tmp, p, K[s])
+            f(which, t + C[s] * h, at(tmp), at(p), at(K[s]))
         for i in range(n):
             dy = y_new[i] - y[i]
             F[0, i] = dy
@@ -197,29 +196,33 @@ def dense_coefficients(f, kind, which, t, y, y_new, h, p, K, F, tmp):
             F[2, i] = -2.0 * (y_new[i] - y[i]) + h * (K[0, i] + K[4, i])
 
 
-@leaf
+@noref
 def dense_value(kind, F, y, x, out):
     """The dense output at x in [0, 1] of the step (fraction of the step)."""
     n = y.shape[0]
-    for i in range(n):
-        if kind == 0:
+    if kind == 0:
+        xm = 1.0 - x
+        for i in range(n):
             acc = 0.0
             for r in range(6, -1, -1):
                 acc += F[r, i]
-                acc *= x if (6 - r) % 2 == 0 else 1.0 - x
+                acc *= x if (6 - r) % 2 == 0 else xm
             out[i] = y[i] + acc
-        elif kind == 1:
+    elif kind == 1:
+        for i in range(n):
             out[i] = y[i] + x * (F[0, i] + x * (F[1, i] + x * (F[2, i] + x * F[3, i])))
-        else:
+    else:
+        for i in range(n):
             out[i] = y[i] + x * (F[0, i] + x * (F[1, i] + x * F[2, i]))
 
 
-@leaf
+@noref
 def dense_slope(kind, F, x, out):
     """d/dx of the dense output at x (the rate times the step)."""
     n = out.shape[0]
-    for i in range(n):
-        if kind == 0:
+    if kind == 0:
+        xm = 1.0 - x
+        for i in range(n):
             acc = 0.0
             dacc = 0.0
             for r in range(6, -1, -1):
@@ -228,16 +231,18 @@ def dense_slope(kind, F, x, out):
                     dacc = dacc * x + acc
                     acc *= x
                 else:
-                    dacc = dacc * (1.0 - x) - acc
-                    acc *= 1.0 - x
+                    dacc = dacc * xm - acc
+                    acc *= xm
             out[i] = dacc
-        elif kind == 1:
+    elif kind == 1:
+        for i in range(n):
             out[i] = F[0, i] + x * (2.0 * F[1, i] + x * (3.0 * F[2, i] + x * 4.0 * F[3, i]))
-        else:
+    else:
+        for i in range(n):
             out[i] = F[0, i] + x * (2.0 * F[1, i] + x * 3.0 * F[2, i])
 
 
-@loop
+@noref
 def point_value(f, kind, which, t, y, h, p, F, K2, trusted, x, out, slope):
     """The solution at x (fraction of the step) into ``out`` (with ``slope``: its d/dx instead): off the
     dense output when the step's interpolant is ``trusted``, else from a step of x h from the step's
@@ -270,7 +275,7 @@ def plane_value(f, kind, which, t, y, h, p, F, K2, trusted, x, normal, value, tm
     return g
 
 
-@loop
+@noref
 def dense_root(f, kind, which, t, y, h, p, F, K2, trusted, normal, value, xa, ga, xb, gb, tmp, slope):
     """The zero on [xa, xb] of g = normal . y(x) - value (or, with ``slope``, of its derivative)
     where it changes sign: the Illinois method, the one root finder of the loops."""
@@ -323,7 +328,7 @@ def interpolant_fits(f, kind, which, t, y, y_new, h, p, F, rtol, atol, tmp, tmp2
         x = CHECK_AT[c]
         dense_value(kind, F, y, x, tmp)
         dense_slope(kind, F, x, tmp2)
-        f(which, t + x * h, tmp, p, tmp3)
+        f(which, t + x * h, at(tmp), at(p), at(tmp3))
         e = 0.0
         for i in range(n):
             scale = atol + rtol * max(abs(y[i]), abs(y_new[i]))
@@ -340,11 +345,11 @@ def first_step(f, kind, which, t, y, p, K, direction, rtol, atol, max_step, tmp,
     if kind == 2:
         return max_step
     h0 = first_trial(y, K, direction, rtol, atol, max_step, tmp)
-    f(which, t + h0 * direction, tmp, p, tmp2)
+    f(which, t + h0 * direction, at(tmp), at(p), at(tmp2))
     return first_choice(kind, y, K, h0, tmp2, rtol, atol, max_step)
 
 
-@leaf
+@noref
 def first_trial(y, K, direction, rtol, atol, max_step, tmp):
     """``first_step``'s trial step h0, and tmp = the explicit Euler point there (f is wanted at it)."""
     n = y.shape[0]
@@ -363,7 +368,7 @@ def first_trial(y, K, direction, rtol, atol, max_step, tmp):
     return h0
 
 
-@leaf
+@noref
 def first_choice(kind, y, K, h0, f1, rtol, atol, max_step):
     """``first_step``'s choice from the trial h0 and f1 = f at its Euler point."""
     n = y.shape[0]
@@ -386,7 +391,7 @@ def first_choice(kind, y, K, h0, f1, rtol, atol, max_step):
     return h
 
 
-@leaf
+@noref
 def state_code(y, bound):
     """0 when every entry is finite and within the bound, 2 for NaN, 1 for a blow-up."""
     bad = 0
@@ -410,7 +415,7 @@ def _event(f, kind, which, t, y, h, p, F, K2, trusted, x, k, ev_t, ev_y, ev_k, n
     return n_ev + 1
 
 
-@loop
+@noref
 def _read_step(f, kind, which, adaptive, t, y, y_new, h, p, K, F, K2, rtol, atol, tmp, tmp2, tmp3):
     """Ready the step for reading points inside it: its dense output, and whether that output is trusted
     (``interpolant_fits``); when not, points come from sub-steps (``point_value``) and K2[0] is set."""
@@ -422,7 +427,7 @@ def _read_step(f, kind, which, adaptive, t, y, y_new, h, p, K, F, K2, rtol, atol
     return False
 
 
-@leaf
+@noref
 def _save(st, t, h_abs, n_out, gi, n_ev):
     st[0] = t
     st[1] = h_abs
@@ -431,7 +436,7 @@ def _save(st, t, h_abs, n_out, gi, n_ev):
     st[7] = n_ev
 
 
-@loop
+@noref
 def read_points(f, kind, which, adaptive, t, t_new, h, direction, y, y_new, p, K, F, K2, rtol, atol, tmps,
                 grid, gi, out_t, out_y, planes, plane_dir, terminal, first, ev_t, ev_y, ev_k, n_ev):
     """The points read inside an accepted step (t, t_new]: samples at ``grid`` from index gi on (into
@@ -519,13 +524,14 @@ def read_points(f, kind, which, adaptive, t, t_new, h, direction, y, y_new, p, K
     return gi, n_ev, stop
 
 
-@loop
-def erk_advance(f, kind, which, adaptive, y, p, K, F, st, t_end, rtol, atol, max_step, bound,
+@noref
+def erk_advance(f, kind, which, adaptive, y, p, K, F, W, st, t_end, rtol, atol, max_step, bound,
                 grid, out_t, out_y, every_step, planes, plane_dir, terminal, ev_t, ev_y, ev_k,
                 max_steps):
     """Advance one trajectory of ``f(which, ...)`` from st[0] = t, y (in place) towards t_end for at most ``max_steps``
     steps.
 
+    ``W`` (WORK_ROWS, n): work rows (the loop makes no arrays: it is compiled without reference counting).
     ``st``: [t, h (next step, 0 before the first), accepted, rejected, last step rejected,
     outputs written, grid index, events written, -, -, -, y changed by the caller]. Samples at ``grid`` times (ordered in the
     direction of time) are read off each step's dense output; with ``every_step`` each accepted
@@ -538,23 +544,23 @@ def erk_advance(f, kind, which, adaptive, y, p, K, F, st, t_end, rtol, atol, max
     t = st[0]
     direction = 1.0 if t_end > t else -1.0
     s_n = STAGES[kind]
-    y_new = np.empty(n)
-    tmps = np.empty((3, n))
+    y_new = W[0]
+    tmps = W[1:4]
     tmp = tmps[0]
     tmp2 = tmps[1]
-    K2 = np.empty((K.shape[0], K.shape[1]))  # the stages of sub-steps to points of an untrusted interpolant
+    K2 = W[4:20]  # the stages of sub-steps to points of an untrusted interpolant
     n_out = int(st[5])
     gi = int(st[6])
     n_ev = int(st[7])
     n_planes = planes.shape[0]
     if st[1] == 0.0:
-        f(which, t, y, p, K[0])
+        f(which, t, at(y), at(p), at(K[0]))
         code = state_code(K[0], math.inf)
         if code == 2:
             return 2
         st[1] = first_step(f, kind, which, t, y, p, K, direction, rtol, atol, max_step, tmp, tmp2) if adaptive else max_step
     elif st[11] != 0.0:  # the caller changed y since the last call
-        f(which, t, y, p, K[0])
+        f(which, t, at(y), at(p), at(K[0]))
     st[11] = 0.0
     h_abs = st[1]
     exponent = ERROR_EXPONENT[kind]
@@ -628,10 +634,10 @@ def erk_advance(f, kind, which, adaptive, y, p, K, F, st, t_end, rtol, atol, max
             return 0
 
 
-@loop
+@noref
 def evaluate(f, which, t, z, p, out):
     """The kernel once, called from Python (the stiff solvers' right-hand side)."""
-    f(which, t, z, p, out)
+    f(which, t, at(z), at(p), at(out))
 
 
 @loop
@@ -642,7 +648,7 @@ def erk_dense_prepare(f, kind, which, t, y, y_new, h, p, K, F):
     dense_coefficients(f, kind, which, t, y, y_new, h, p, K, F, tmp)
 
 
-@loop
+@noref
 def erk_dense_at(kind, F, y, xs, out):
     """The dense output at the fractions ``xs`` of the step from y (out: len(xs) x n)."""
     for j in range(xs.shape[0]):

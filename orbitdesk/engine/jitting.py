@@ -1,8 +1,11 @@
 """Compiling the loops of this package with numba, or running them as plain Python.
 
-Loops are marked ``@loop``; helpers ``@inner`` (inlined into every caller: only the few on the hot
-path that call the kernel, e.g. one Runge-Kutta step) or ``@leaf`` (compiled once per argument types
-and linked into their callers, where LLVM still inlines what is small). Every inlined copy goes
+Loops are marked ``@loop``, or ``@noref`` when they make no arrays: those are compiled without numba's
+reference counting (every array view and every call passing arrays otherwise costs atomic increments
+and decrements: a quarter of a Dormand-Prince step, half of a step that reads samples). Helpers are
+``@noref`` too (compiled once per argument types and linked into their callers, where LLVM still
+inlines what is small), or ``@inner`` (inlined into every caller: only the few on the hot path that
+call the kernel, e.g. one Runge-Kutta step). Every inlined copy goes
 through all of numba's passes again, so a helper inlined at many sites multiplies the cold compile;
 a rarely taken branch that calls the kernel (dense output, sub-steps, root finding) is a ``@loop`` of
 its own, called. The modules stay plain Python; ``compiled_loops`` makes numba versions of every
@@ -47,14 +50,41 @@ def inner(f):
     return f
 
 
-def leaf(f):
-    """Mark ``f`` as a helper compiled apart (once per argument types) and called."""
-    setattr(f, _MARK, "leaf")
+def noref(f):
+    """Mark ``f`` as a loop or helper compiled apart, without reference counting: it must make no
+    arrays (views of its arguments are fine)."""
+    setattr(f, _MARK, "noref")
     return f
 
 
-def _loops(modules, wrap) -> SimpleNamespace:
-    """The modules' names in one namespace, each marked function rebuilt on it and passed to ``wrap``."""
+def at(a):
+    """What the loops hand the model's kernel for the array ``a``: in plain Python the array itself; in
+    the compiled loops a pointer to its data (``_numba_at``: C-contiguous arrays only), which the
+    compiled kernel (``compiled.py``: ``model_at``) wraps back into arrays. Three array structures
+    passed by value cost more than Lorenz's arithmetic: a Dormand-Prince 8 step took 560 ns with them,
+    290 ns with pointers. Call the kernel as ``f(which, t, at(z), at(p), at(out))``."""
+    return a
+
+
+def _numba_at():
+    from numba import types
+    from numba.extending import intrinsic
+
+    @intrinsic
+    def at(typingctx, a):
+        if not (isinstance(a, types.Array) and a.dtype == types.float64 and a.layout == "C"):
+            return None  # a typing error: only the data of a C-contiguous float array is a kernel's vector
+        def codegen(context, builder, signature, args):
+            return context.make_array(signature.args[0])(context, builder, args[0]).data
+
+        return types.CPointer(types.float64)(a), codegen
+
+    return at
+
+
+def _loops(modules, wrap, overrides=None) -> SimpleNamespace:
+    """The modules' names in one namespace (with ``overrides``), each marked function rebuilt on it and
+    passed to ``wrap``."""
     key = (wrap.__name__,) + tuple(m.__name__ for m in modules)
     with _lock:
         cached = _namespaces.get(key)
@@ -62,6 +92,7 @@ def _loops(modules, wrap) -> SimpleNamespace:
             namespace = {}
             for module in modules:
                 namespace.update(vars(module))
+            namespace.update(overrides() if overrides else {})
             for name, value in list(namespace.items()):
                 kind = getattr(value, _MARK, None)
                 if kind is not None:
@@ -82,6 +113,8 @@ def _numba(f, kind):
     options = dict(cache=True, error_model="numpy", nogil=True)
     if kind == "inner":
         options["inline"] = "always"
+    elif kind == "noref":
+        options["_nrt"] = False
     return numba.njit(**options)(f)
 
 
@@ -92,7 +125,7 @@ def python_loops(*modules) -> SimpleNamespace:
 
 def compiled_loops(*modules) -> SimpleNamespace:
     """numba versions of the marked functions of ``modules``, calling each other compiled."""
-    return _loops(modules, _numba)
+    return _loops(modules, _numba, lambda: {"at": _numba_at()})
 
 
 def entry(fn):
@@ -131,15 +164,15 @@ def _kinds(args) -> tuple:
 
 
 def signature(name: str):
-    """The numba signature of a kernel: MODEL (model(which, t, z, p, out)), BATCH (batch(which, T, z,
-    p, out, count), members in columns), JAC (jac(t, u, p, out))
-    or VALUES (jac_values(t, u, p, out))."""
+    """The numba signature of a kernel: MODEL (model(which, t, z, p, out)), MODEL_AT (the same on
+    pointers to the arrays' data, ``at``), BATCH (batch(which, T, z, p, out, count), members in
+    columns), JAC (jac(t, u, p, out)) or VALUES (jac_values(t, u, p, out))."""
     from numba import types as t
 
-    a1, a2 = t.float64[::1], t.float64[:, ::1]
-    return {"MODEL": t.void(t.int64, t.float64, a1, a1, a1),
+    a1, a2, ptr = t.float64[::1], t.float64[:, ::1], t.CPointer(t.float64)
+    return {"MODEL": t.void(t.int64, t.float64, a1, a1, a1), "MODEL_AT": t.void(t.int64, t.float64, ptr, ptr, ptr),
             "BATCH": t.void(t.int64, a1, a2, a2, a2, t.int64), "JAC": t.void(t.float64, a1, a1, a2),
             "VALUES": t.void(t.float64, a1, a1, a1)}[name]
 
 
-__all__ = ["enabled", "entry", "loop", "inner", "leaf", "python_loops", "compiled_loops", "signature"]
+__all__ = ["at", "enabled", "entry", "loop", "inner", "noref", "python_loops", "compiled_loops", "signature"]

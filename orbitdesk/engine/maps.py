@@ -11,7 +11,7 @@ import math
 import numpy as np
 
 from orbitdesk.engine.explicit_rk import PAUSED, state_code
-from orbitdesk.engine.jitting import loop
+from orbitdesk.engine.jitting import at, loop
 from orbitdesk.engine.tangent import gram_schmidt
 
 
@@ -30,7 +30,7 @@ def map_advance(f, y, p, st, n_end, out_y, bound, max_steps):
         if steps >= max_steps or written >= out_y.shape[0]:
             code = PAUSED
             break
-        f(0, float(k), y, p, nxt)
+        f(0, float(k), at(y), at(p), at(nxt))
         code = state_code(nxt, bound)
         if code != 0:
             break

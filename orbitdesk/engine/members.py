@@ -26,7 +26,7 @@ import numpy as np
 
 from orbitdesk.engine.explicit_rk import (A_ALL, B_ALL, C_ALL, ERROR_EXPONENT, MAX_FACTOR, MIN_FACTOR, PAUSED, SAFETY,
                                           STAGES, error_norm, first_choice, first_trial, read_points, state_code)
-from orbitdesk.engine.jitting import inner, leaf, loop
+from orbitdesk.engine.jitting import inner, loop, noref
 from orbitdesk.engine.status import C_STEP_FAILED
 from orbitdesk.engine.tangent import orthonormalise
 
@@ -50,7 +50,7 @@ def one_call(g, which, t, y, p, out, T1, Z1, P1, O1):
         out[j] = O1[j, 0]
 
 
-@leaf
+@noref
 def _combine_columns(w, s, skip, Z, K, MS, out, count):
     """out = Z + step * sum_j w[j] K[j] for the members in columns 0 .. count - 1 (``skip``: zero
     weights left out, as ``explicit_rk._combine`` does), in the same order of operations as one member."""
@@ -69,7 +69,7 @@ def _combine_columns(w, s, skip, Z, K, MS, out, count):
             out[i, c] = Z[i, c] + MS[R_STEP, c] * out[i, c]
 
 
-@leaf
+@noref
 def _swap(A, a, b):
     for r in range(A.shape[0]):
         v = A[r, a]
@@ -113,7 +113,7 @@ def _start(g, kind, m, adaptive, c, i, U, P, Z, Pb, K, MS, t0, t_end, t_keep, rt
     return 0
 
 
-@leaf
+@noref
 def _finish(c, code, U, Z, MS, codes, t_reached, steps, ev_count, samples, grid):
     i = int(MS[R_ID, c])
     codes[i] = code
@@ -376,7 +376,7 @@ def members_advance(f, g, kind, adaptive, U, P, t0, t_end, rtol, atol, max_step,
         BS[0] = count
 
 
-@loop
+@noref
 def member_outputs(f, kind, m, adaptive, c, i, t, t_new, h, direction, Z, Y1, K, Pb, MS, rtol, atol, grid, samples,
                    planes, plane_dir, terminal, ev_t, ev_y, looking, keep_going, yc, ync, Kc, K2, pc, F, tmps, out_t,
                    ev_k):
@@ -410,7 +410,7 @@ def member_outputs(f, kind, m, adaptive, c, i, t, t_new, h, direction, Z, Y1, K,
     return stop
 
 
-@leaf
+@noref
 def _plane_met(planes, plane_dir, Z, Y1, K, s_n, c):
     """Whether member c's step may cross a plane or turn (its value or rate changes sign): then
     ``member_outputs`` looks closely."""

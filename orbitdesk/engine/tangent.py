@@ -15,11 +15,11 @@ import math
 
 import numpy as np
 
-from orbitdesk.engine.explicit_rk import PAUSED, erk_advance, state_code
-from orbitdesk.engine.jitting import leaf, loop
+from orbitdesk.engine.explicit_rk import PAUSED, WORK_ROWS, erk_advance, state_code
+from orbitdesk.engine.jitting import at, loop, noref
 
 
-@leaf
+@noref
 def gram_schmidt(V, norms):
     """Modified Gram-Schmidt on the columns of V in place; norms[j] = R's j-th diagonal.
     Returns False when a column collapses to zero."""
@@ -52,7 +52,7 @@ def gram_schmidt(V, norms):
     return True
 
 
-@leaf
+@noref
 def orthonormalise(V, logs):
     """``gram_schmidt`` with logs[j] = the logarithm of R's j-th diagonal."""
     if not gram_schmidt(V, logs):
@@ -62,7 +62,7 @@ def orthonormalise(V, logs):
     return True
 
 
-@leaf
+@noref
 def _record(sums, span, rows, row_t, st, t):
     r = int(st[9])
     if r < rows.shape[0]:
@@ -94,6 +94,7 @@ def flow_tangent(f, kind, adaptive, z, p, K, F, st, t_end, rtol, atol, max_step,
     ev_t = np.empty(1)
     ev_y = np.empty((1, z.shape[0]))
     ev_k = np.empty(1, dtype=np.int64)
+    W = np.empty((WORK_ROWS, z.shape[0]))
     # erk_advance's every_step and step budget as run-time values: numba compiles a called loop anew
     # for literal arguments (False, a global constant), a second copy of the whole stepping loop
     every_step = np.zeros(1, dtype=np.bool_)
@@ -111,7 +112,7 @@ def flow_tangent(f, kind, adaptive, z, p, K, F, st, t_end, rtol, atol, max_step,
         target = st[12]
         # a budget of steps per call: an interval that needs millions (a solution sliding along a jump)
         # pauses inside, so the driver can judge the pace, report progress and cancel
-        code = erk_advance(f, kind, m, adaptive, z, p, K, F, st, target, rtol, atol, max_step, bound,
+        code = erk_advance(f, kind, m, adaptive, z, p, K, F, W, st, target, rtol, atol, max_step, bound,
                            grid, out_t, out_y, every_step[0], planes, plane_dir, terminal, ev_t, ev_y, ev_k,
                            budget[0])
         if code == PAUSED:
@@ -152,7 +153,7 @@ def map_tangent(f, z, m, p, st, n_end, keep_from, sums, bound, rows, row_t, stri
         if steps >= max_steps:
             st[0] = k
             return PAUSED
-        f(m, float(k), z, p, nxt)
+        f(m, float(k), at(z), at(p), at(nxt))
         code = state_code(nxt[:n], bound)
         if code != 0:
             st[0] = k

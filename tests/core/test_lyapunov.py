@@ -150,7 +150,7 @@ def test_tangent_kernel_of_a_map_is_the_jacobian_henon():
     engine = compiled.engine_for(system)
     z = np.array([0.2, -0.1, 1.0, 0.0, 0.0, 1.0])
     out = np.empty(6)
-    engine.f(2, 0.0, z, system.param_values, out)
+    engine.loops.evaluate(engine.f, 2, 0.0, z, np.asarray(system.param_values, dtype=float), out)
     assert np.allclose(out[:2], [1 - 1.4 * 0.04 - 0.1, 0.3 * 0.2])
     assert np.allclose(out[2:].reshape(2, 2), [[-2 * 1.4 * 0.2, 1.0], [0.3, 0.0]])
 
