@@ -8,6 +8,8 @@ from __future__ import annotations
 import os
 import sys
 
+import numpy as np
+
 from orbitdesk.document.project import Project
 
 from orbitdesk.cli.common import CommandError, add_value_options, open_model, values_for
@@ -63,6 +65,15 @@ def _figures_and_results(project, equilibria):
         print(f"orbitdesk export: no figures ({err})", file=sys.stderr)
         return {}, ({}, {})
     return headless_report_parts(project, equilibria)
+
+
+def _kept_fit(source, system, p, u0):
+    """The fit the project keeps (the live document's), when it was computed for these values and data;
+    None otherwise (the report then runs the fit set up in the project)."""
+    doc = source.doc
+    fit = doc.result("fit")
+    same = np.array_equal(p, doc.param_vector()) and np.array_equal(u0, doc.initial_vector())
+    return fit if fit is not None and same and system is doc.system and not doc.result_stale("fit") else None
 
 
 def _write(text: str, output: str | None) -> None:
@@ -127,6 +138,7 @@ def run(args) -> int:
         project = _project_for(source, system, p, u0)
         equilibria = _equilibria(system, p)
         figures, (results, stale) = _figures_and_results(project, equilibria)
-        text = render_report(project, system, figures, equilibria=equilibria, results=results, stale=stale)
+        text = render_report(project, system, figures, equilibria=equilibria, results=results, stale=stale,
+                             fit=_kept_fit(source, system, p, u0))
     _write(text, args.output)
     return 0

@@ -87,6 +87,25 @@ def test_report_gives_the_kept_branches_of_the_project(capsys, tmp_path):
         assert f"= {T * math.exp(-T) / (6 - T):.6g}<" in text
 
 
+def test_report_gives_the_fit_the_project_keeps(capsys, tmp_path):
+    """A fit kept in the project (the Fit panel's, for these values and data) is the report's: its numbers, not
+    a fit run again (a kept estimate of c = 0.8765432 is what the report lists)."""
+    from orbitdesk.analyses.fitting import Estimate, FitResult
+    from orbitdesk.document.live import LiveDocument
+
+    doc = LiveDocument.open(SAMPLES / "bracket_pluck.orbitdesk", compile=True)
+    names = [d.name for d in doc.project.datasets]
+    estimates = [Estimate("c", "parameter", "c", None, 0.8765432, 1.0, 0.0015, (0.8735, 0.8795))]
+    kept = FitResult("ok", "converged", estimates, np.eye(1), {"x": 0.0097}, 19, [], 597, 0.028,
+                     [{"name": n, "parameters": dict(doc.params), "initial": dict(doc.initial),
+                       "residual_rms": {"x": 0.0097}} for n in names])
+    doc.set_result("fit", kept, doc.basis(data=names))
+    path = doc.save(tmp_path / "fitted.orbitdesk")
+    target = tmp_path / "fitted.html"
+    code, _, _ = run_cli(capsys, "export", path, "--report", "-o", target)
+    assert code == 0 and "0.8765432" in target.read_text()
+
+
 def test_bad_input_is_refused_cleanly(capsys, tmp_path, pendulum_file):
     code, _, err = run_cli(capsys, "export", pendulum_file)
     assert code == 2 and "one of the arguments --latex --script --report --fit-script --model is required" in err

@@ -98,3 +98,19 @@ def test_a_two_parameter_curve_read_from_a_step_keeps_its_cusp():
                                  {"saved": "text"}])
 def test_branches_that_do_not_fit_are_left_out(bad):
     assert unpack(ContinuationResult, bad) is None
+
+
+def test_a_number_the_file_holds_as_null_reads_back_as_nan():
+    # JSON has no NaN: a multiplier or period that could not be computed is written as null, read back as NaN
+    import numpy as np
+
+    from orbitdesk.analyses.continuation.results import Branch
+    from orbitdesk.document.results import pack
+
+    branch = Branch("cycle", "b", ["x", "y"], np.array([2.0, 2.5]), np.array([[1.0, 1.1], [2.0, 2.1]]), [True, None],
+                    [np.array([1.0 + 0j, 0.5 + 0j]), np.array([1.0 + 0j, complex(math.nan, 0.0)])],
+                    periods=np.array([6.28, math.nan]))
+    back = unpack(ContinuationResult, pack(ContinuationResult("cycles", "b", 2.0, 2.5, [branch])))
+    (again,) = back.branches
+    assert again.periods[0] == 6.28 and math.isnan(again.periods[1]) and math.isnan(again.spectra[1][1].real)
+    assert again.stable == [True, None] and again.spectra[0][1] == 0.5

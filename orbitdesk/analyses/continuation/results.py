@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -20,6 +21,11 @@ EQUILIBRIUM, CYCLE, FIXED_POINT = "equilibrium", "cycle", "fixed point"
 def _words_number(x) -> str:
     """6 significant digits, a true minus sign (as the app writes numbers)."""
     return f"{float(x):.6g}".replace("-", "\u2212")
+
+
+def _real(v) -> float:
+    """A number read back from a project file, where NaN and infinities were written as null."""
+    return math.nan if v is None else float(v)
 
 
 def _complex_list(values):
@@ -164,11 +170,11 @@ class Branch:
         states = [str(s) for s in data["states"]]
         pts = data["points"]
         spectrum = "eigenvalues" if data["kind"] == EQUILIBRIUM else "multipliers"
-        values = np.array([float(p["value"]) for p in pts])
-        points = np.array([[float(p["state"][s]) for p in pts] for s in states]).reshape(len(states), len(pts))
+        values = np.array([_real(p["value"]) for p in pts])
+        points = np.array([[_real(p["state"][s]) for p in pts] for s in states]).reshape(len(states), len(pts))
         stable = [p.get("stable") if p.get("stable") in (True, False) else None for p in pts]
-        spectra = [np.array([complex(float(e["re"]), float(e["im"])) for e in p.get(spectrum, [])]) for p in pts]
-        periods = np.array([float(p["period"]) for p in pts]) if pts and "period" in pts[0] else None
+        spectra = [np.array([complex(_real(e["re"]), _real(e["im"])) for e in p.get(spectrum, [])]) for p in pts]
+        periods = np.array([_real(p["period"]) for p in pts]) if pts and "period" in pts[0] else None
         maxima = minima = None
         if "maxima" in data:
             maxima = {s: np.array(data["maxima"][s], dtype=float) for s in states}
@@ -176,7 +182,7 @@ class Branch:
         special = []
         for s in data.get("special", []):
             special.append(Special(str(s["type"]), float(s["value"]),
-                                   {k: float(v) for k, v in s.get("state", {}).items()},
+                                   {k: _real(v) for k, v in s.get("state", {}).items()},
                                    frequency=s.get("frequency"),
                                    first_lyapunov_coefficient=s.get("first_lyapunov_coefficient"),
                                    period=s.get("period"), amplitude=s.get("amplitude"),
@@ -261,12 +267,12 @@ def response_from_saved(data: dict) -> ResponseCurve:
     """A ResponseCurve from its ``to_dict`` form (as a project keeps it)."""
     points = data["points"]
     states = [str(s) for s in data["states"]] if "states" in data else sorted(points[0]["state"]) if points else []
-    special = [Special(str(s["type"]), float(s["value"]), {k: float(v) for k, v in s.get("state", {}).items()},
+    special = [Special(str(s["type"]), float(s["value"]), {k: _real(v) for k, v in s.get("state", {}).items()},
                        amplitude=s.get("amplitude")) for s in data.get("special", [])]
-    return ResponseCurve(str(data["parameter"]), str(data["observe"]), np.array([float(p["value"]) for p in points]),
-                         np.array([float(p["amplitude"]) for p in points]),
+    return ResponseCurve(str(data["parameter"]), str(data["observe"]), np.array([_real(p["value"]) for p in points]),
+                         np.array([_real(p["amplitude"]) for p in points]),
                          [p.get("stable") if p.get("stable") in (True, False) else None for p in points], states,
-                         np.array([[float(p["state"][s]) for p in points] for s in states]).reshape(len(states), -1),
+                         np.array([[_real(p["state"][s]) for p in points] for s in states]).reshape(len(states), -1),
                          special, [str(r) for r in data.get("ended", [])], data.get("stepped"))
 
 
@@ -275,8 +281,8 @@ def locus_from_saved(data: dict) -> Locus:
     p1, p2 = (str(n) for n in data["parameters"])
     states = [str(s) for s in data["states"]]
     curve = data["curve"]
-    values = np.array([[float(c["values"][p1]) for c in curve], [float(c["values"][p2]) for c in curve]])
-    points = np.array([[float(c["state"][s]) for c in curve] for s in states]).reshape(len(states), -1)
+    values = np.array([[_real(c["values"][p1]) for c in curve], [_real(c["values"][p2]) for c in curve]])
+    points = np.array([[_real(c["state"][s]) for c in curve] for s in states]).reshape(len(states), -1)
     return Locus(str(data["kind"]), (p1, p2), states, values, points, [dict(s) for s in data.get("special", [])],
                  [str(r) for r in data.get("ended", [])])
 
