@@ -90,3 +90,27 @@ def test_a_slide_just_under_the_step_limit_in_plain_python_stops_at_the_plain_py
     needed = float(out.note.split("would need about ")[1].split(" steps")[0])
     assert 400_000 < needed < 1e7  # a pace the compiled loops would have been allowed to go on at
     assert out.steps + out.rejected < 50_000
+
+
+def test_members_sliding_in_the_compiled_loop_stop_with_a_reason(monkeypatch):
+    """The same members in the compiled member loop (the tests above may run them as plain Python, the work
+    being small): the driver's verdict reaches the compiled loop, which freezes that member only."""
+    from orbitdesk.engine import compiled as kernels
+
+    if not kernels.available():
+        pytest.skip("the compiler is turned off")
+    monkeypatch.setattr(drivers, "STEP_CHECK_AFTER", 2_000)
+    monkeypatch.setattr(drivers, "MEMBER_PAUSE_STEPS", 1_000)
+    system = compile_model(SLIDING_MEMBERS)
+    engine = kernels.engine_for(system, wait=True)
+    assert engine.compiled
+    with limits.using_limits(steps=200_000):
+        out = drivers.members_run(engine, "rk45", 0.0, 100.0, np.full((1, 3), 0.2), np.array([[0.5, 1.5, 0.25]]),
+                                  grid=np.linspace(10.0, 100.0, 10))
+    assert list(out.codes) == [3, 0, 3]  # step_failed, ok, step_failed
+    for i in (0, 2):
+        assert out.notes[i].startswith(f"member {i + 1} stopped after") and "the limit is 200,000;" in out.notes[i]
+        assert out.t[i] < 100.0 and out.states[0, i] == pytest.approx(0.0, abs=1e-6)
+        assert np.isnan(out.samples[0, i, -1])
+        assert out.steps[i] < 20_000  # judged within a few pauses, not at the step limit
+    assert out.t[1] == 100.0 and out.states[0, 1] > 50.0 and not np.isnan(out.samples[0, 1]).any()
