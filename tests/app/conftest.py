@@ -108,15 +108,15 @@ def wait_for_trajectory(qtbot, session, action=None, timeout=20000, check=None):
     return blocker.args[0]
 
 
-def load_model(qtbot, session, text, defaults, **solver):
-    """Load ``text`` as a fresh project with solver settings ``defaults`` updated by ``solver``, and
-    wait for its first trajectory."""
+def load_model(qtbot, session, text, defaults, views=None, **solver):
+    """Load ``text`` as a fresh project with solver settings ``defaults`` updated by ``solver`` (and the
+    views' saved settings ``views``), and wait for its first trajectory."""
     from orbitdesk.engine import RunSettings
     from orbitdesk.document.project import Project
 
     session.solver = RunSettings(**{**defaults, **solver})
     return wait_for_trajectory(qtbot, session, lambda: session.load_project(
-        Project(name="m", model=text, solver=session.solver)))
+        Project(name="m", model=text, solver=session.solver, views=dict(views or {}))))
 
 
 SHORT_RUN = dict(t_end=20.0, samples=1001, steps=500)  # the analysis views' tests: a short run to start from
