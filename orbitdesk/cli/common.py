@@ -32,14 +32,17 @@ class Source:
     text: str
     project: object | None = None  # core.project.Project when PATH is a project
     doc: object = field(default=None, repr=False)
+    disk_state: object = field(default=None, repr=False)  # what the project file was when read (saving checks it)
 
     def __post_init__(self):
         if self.doc is None:
             from orbitdesk.document.live import LiveDocument
-            from orbitdesk.document.project import Project
+            from orbitdesk.document.project import UNCHECKED, Project
 
-            project = self.project if self.project is not None else Project(name=self.path.stem, model=self.text)
-            self.doc = LiveDocument.from_project(project)
+            if self.project is None:
+                self.doc = LiveDocument.from_project(Project(name=self.path.stem, model=self.text))
+            else:
+                self.doc = LiveDocument.from_project(self.project, self.path, self.disk_state or UNCHECKED)
 
 
 def read_source(path_text: str) -> Source:
@@ -48,12 +51,12 @@ def read_source(path_text: str) -> Source:
         from orbitdesk.document import project as project_module
 
         try:
-            project = project_module.load(path)
+            project, state = project_module.load_with_state(path)
         except project_module.ProjectError as err:
             raise CommandError(f"{path}: {err}", EXIT_UNREADABLE) from None
         except OSError as err:
             raise CommandError(f"{path}: cannot read: {err.strerror or err}", EXIT_UNREADABLE) from None
-        return Source(path, project.model, project)
+        return Source(path, project.model, project, disk_state=state)
     from orbitdesk.language.model_file import read_model_file
 
     try:
@@ -172,14 +175,46 @@ def add_interval_options(parser, what: str, guess_help: str):
 
 
 def open_interval(args):
-    """(system, p, u0, guess, lo, hi) of a command with ``add_interval_options``: the model opened by
-    ``open_model``, the --guess states checked against it, the parameter and its interval."""
-    _source, system, p, u0 = open_model(args)
+    """(source, system, p, u0, guess, lo, hi) of a command with ``add_interval_options``: the model opened
+    by ``open_model``, the --guess states checked against it, the parameter and its interval."""
+    source, system, p, u0 = open_model(args)
     guess = parse_guess(args.guess, system)
     lo, hi = parse_interval(args, system)
     if args.max_points < 2:
         raise CommandError("--max-points must be at least 2")
-    return system, p, u0, guess, lo, hi
+    return source, system, p, u0, guess, lo, hi
+
+
+def add_keep_option(parser, what: str, where: str) -> None:
+    """--keep: the command's result goes into the project PATH as the app keeps it (``keep_in_project``)."""
+    parser.add_argument("--keep", action="store_true",
+                        help=f"keep {what} in the project PATH (a .orbitdesk file), where the app's {where} shows "
+                             "it; the values it was computed for (with --set/--init) are kept too")
+
+
+def check_keep(args, source: Source) -> None:
+    """Refuse --keep before any work when PATH is no project file."""
+    if args.keep and source.project is None:
+        raise CommandError("--keep writes into a project file (.orbitdesk); PATH is model text")
+
+
+def keep_in_project(source: Source, kind: str, result, skip, view_id: str, settings: dict) -> None:
+    """Put ``result`` into the project's live document as its result of ``kind`` (document/results.py), computed
+    for the document's values with the parameters ``skip`` running (the initial values only pick a start, as in
+    the app's bifurcation view), write ``settings`` into the view ``view_id`` that shows it, and save the
+    project in place (its backup kept). A project changed on disk since it was read is not overwritten."""
+    from orbitdesk.document.project import ProjectConflict, ProjectError
+
+    doc = source.doc
+    doc.set_result(kind, result, doc.basis(skip, initial=False))
+    doc.set_view_settings(view_id, {**(doc.project.views.get(view_id) or {}), **settings})
+    try:
+        doc.save(source.path)
+    except ProjectConflict:
+        raise CommandError(f"{source.path}: changed on disk while this ran; nothing written (run again)") from None
+    except ProjectError as err:
+        raise CommandError(f"{source.path}: not saved: {err}") from None
+    print(f"kept in {source.path}", file=sys.stderr)
 
 
 @contextmanager

@@ -4,8 +4,9 @@ their special points (fold, Hopf, branch point, cycle fold, period doubling, tor
 
 from orbitdesk.system.compiled_system import MAP
 
-from orbitdesk.cli.common import (add_outputs, analysis_errors, CommandError, add_interval_options, open_interval,
-                                  parse_number, print_json, stderr_progress)
+from orbitdesk.cli.common import (add_keep_option, add_outputs, analysis_errors, check_keep, CommandError,
+                                  add_interval_options, keep_in_project, open_interval, parse_number, print_json,
+                                  stderr_progress)
 
 STARTS = ("equilibrium", "cycle", "fixed point")
 
@@ -28,11 +29,13 @@ def register(sub):
     parser.add_argument("--param2", metavar="NAME", help="the second parameter of a locus")
     parser.add_argument("--range2", metavar="LO:HI",
                         help="bounds of the second parameter (default: its slider range, else 10 units around it)")
+    add_keep_option(parser, "the branches (or the locus)", "bifurcation diagram")
     add_outputs(parser, run)
 
 
 def run(args) -> int:
-    system, p, u0, guess, lo, hi = open_interval(args)
+    source, system, p, u0, guess, lo, hi = open_interval(args)
+    check_keep(args, source)
     start = args.start or ("fixed point" if system.kind == MAP else "equilibrium")
     if system.kind == MAP and start == "equilibrium":
         start = "fixed point"
@@ -49,7 +52,7 @@ def run(args) -> int:
     settings: StepSettings = default_settings(lo, hi, args.max_points)
     with analysis_errors(ContinuationError, KeyError):
         if args.locus:
-            return _locus(system, p, u0, guess, lo, hi, args, progress)
+            return _locus(source, system, p, u0, guess, lo, hi, args, progress)
         if args.param2 or args.range2:
             raise CommandError("--param2 and --range2 go with --locus fold|hopf")
         if start == "cycle":
@@ -65,6 +68,14 @@ def run(args) -> int:
                 from orbitdesk.analyses.continuation.cycles import cycles_from_hopf_points
 
                 result = cycles_from_hopf_points(system, result, lo, hi, p, settings)
+    if args.keep:
+        from orbitdesk.analyses.continuation.results import ContinuationResult
+
+        follow = "cycle" if start == "cycle" else "cycles" if args.cycles else "steady"
+        kept = ContinuationResult(follow, args.param, min(lo, hi), max(lo, hi), list(result.branches),
+                                  list(result.notes))
+        keep_in_project(source, "bifurcation", kept, args.param, "bifurcation",
+                        {"follow": follow, "parameter": args.param, "from": kept.lo, "to": kept.hi, "tab": 0})
     if args.json:
         print_json(result.to_dict())
     else:
@@ -96,7 +107,7 @@ def print_branches(result) -> None:
         print(f"note: {note}")
 
 
-def _locus(system, p, u0, guess, lo, hi, args, progress) -> int:
+def _locus(source, system, p, u0, guess, lo, hi, args, progress) -> int:
     from orbitdesk.analyses.continuation.loci import locus
     from orbitdesk.analyses.continuation.results import LABELS
 
@@ -113,6 +124,12 @@ def _locus(system, p, u0, guess, lo, hi, args, progress) -> int:
         range2 = (parse_number(lo2, "--range2"), parse_number(hi2, "--range2"))
     result = locus(system, args.locus, args.param, args.param2, lo, hi, p, guess=guess or None, initial=u0,
                    range2=range2, progress=progress)
+    if args.keep:
+        settings = {"parameter": args.param, "from": min(lo, hi), "to": max(lo, hi), "param2": args.param2, "tab": 1,
+                    "locus_kind": {"fold": "fold", "hopf": "Hopf"}[args.locus]}
+        if range2 is not None:
+            settings.update({"from2": min(range2), "to2": max(range2)})
+        keep_in_project(source, "bifurcation_locus", result, (args.param, args.param2), "bifurcation", settings)
     if args.json:
         print_json(result.to_dict())
         return 0

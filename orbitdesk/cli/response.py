@@ -19,7 +19,7 @@ def register(sub):
 
 
 def run(args) -> int:
-    system, p, u0, guess, lo, hi = open_interval(args)
+    _source, system, p, u0, guess, lo, hi = open_interval(args)
     if args.count < 2:
         raise CommandError("--count must be at least 2")
     from orbitdesk.analyses.continuation import ContinuationError

@@ -3,6 +3,7 @@
 import json
 import math
 
+import numpy as np
 import pytest
 from orbitdesk.samples.models import LOGISTIC_REF, model
 
@@ -111,3 +112,39 @@ def test_continue_locus_json_contract(capsys, model):
     code, _, err = run_cli(capsys, "continue", model("a = 0.1\nb = 1\nx' = a + b*x - x^3\n"), "--locus", "fold",
                            "--param", "a", "--from", "-1", "--to", "1")
     assert code != 0 and "--param2" in err
+
+
+def test_continue_keeps_its_branches_in_the_project_as_the_app_does(capsys, tmp_path, model):
+    from orbitdesk.document.live import LiveDocument
+    from orbitdesk.document.project import Project, save
+
+    path = tmp_path / "brusselator.orbitdesk"
+    save(path, Project(name="Brusselator", model=BRUSSELATOR))
+    code, _, err = run_cli(capsys, "continue", path, "--param", "b", "--from", "0", "--to", "4", "--keep")
+    assert code == 0 and f"kept in {path}" in err
+    doc = LiveDocument.open(path)  # what the app opens: the document's result, current for the values saved
+    kept = doc.result("bifurcation")
+    assert kept.follow == "steady" and kept.parameter == "b" and (kept.lo, kept.hi) == (0.0, 4.0)
+    (hopf,) = kept.specials
+    assert hopf.type == "hopf" and hopf.value == pytest.approx(3.25, rel=1e-12)  # closed form b = 1 + a^2
+    assert doc.result_stale("bifurcation") == ""
+    assert {k: doc.project.views["bifurcation"][k] for k in ("follow", "parameter", "from", "to")} == {
+        "follow": "steady", "parameter": "b", "from": 0.0, "to": 4.0}
+    doc.set_param("a", 2.0)
+    assert doc.result_stale("bifurcation").startswith("Computed for a = 1.5")
+
+    code, _, err = run_cli(capsys, "continue", path, "--locus", "hopf", "--param", "b", "--param2", "a",
+                           "--from", "1", "--to", "6", "--range2", "0.5:2", "--keep")
+    assert code == 0
+    doc = LiveDocument.open(path)
+    locus = doc.result("bifurcation_locus")
+    b, a = locus.values  # closed form: the Hopf curve b = 1 + a^2
+    assert b.size > 3 and np.allclose(b, 1 + a ** 2, atol=1e-8)
+    assert doc.result("bifurcation").specials[0].value == pytest.approx(3.25, rel=1e-12)  # the branches stay
+    assert doc.project.views["bifurcation"]["param2"] == "a" and doc.project.views["bifurcation"]["tab"] == 1
+
+
+def test_continue_keeps_nothing_without_a_project(capsys, model):
+    path = model(BRUSSELATOR)
+    code, _, err = run_cli(capsys, "continue", path, "--param", "b", "--from", "0", "--to", "4", "--keep")
+    assert code != 0 and "project file" in err and path.read_text() == BRUSSELATOR
