@@ -123,15 +123,13 @@ def test_values_change_searches_again(qtbot, session):
 def test_time_dependent_model_explains_itself(qtbot, session):
     view = make_view(qtbot, session)
     load(qtbot, session, "x' = -x + cos(t)\n")
-    qtbot.wait(AUTO_WAIT)
+    qtbot.waitUntil(lambda: "depend on time" in view.summary.text())
+    # no search is under way nor waiting to start (rather than waiting a while to see that none comes)
+    assert not view._timer.isActive() and not session.job_running("equilibria")
     assert view.table.rowCount() == 0
-    assert "depend on time" in view.summary.text()
     with qtbot.waitSignal(view.strip.finished, timeout=10000) as blocker:
         view.find()
     assert blocker.args[0] == "failed" and "no equilibria" in view.strip.label.text()
-
-
-AUTO_WAIT = 500
 
 
 def test_in_the_window_equilibria_reach_the_other_views(qtbot, window, artifacts):
