@@ -73,9 +73,9 @@ held = run.states.nbytes + run.time.nbytes
 print(peak, current, held, resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024, run.time.size)
 """
 
-DRAWN = r"""
-import resource, sys, time, tracemalloc
-from PySide6.QtCore import QEventLoop, QStandardPaths, QTimer
+WINDOW_CHILD = r"""
+import json, resource, statistics, sys, time, tracemalloc
+from PySide6.QtCore import QEvent, QEventLoop, QObject, QStandardPaths, QTimer
 QStandardPaths.setTestModeEnabled(True)
 from orbitdesk.app.launch import make_application
 app = make_application(["orbitdesk-benchmark"])
@@ -84,19 +84,24 @@ from orbitdesk.document.project import Project
 from orbitdesk.app.main_window import MainWindow
 
 def wait(done, seconds):
+    '''Run the event loop (sleeping when idle) until done() or the time is up.'''
     loop, poll = QEventLoop(), QTimer()
     poll.timeout.connect(lambda: done() and loop.quit())
-    poll.start(5)
+    poll.start(1)
     QTimer.singleShot(int(seconds * 1000), loop.quit)
     if not done():
         loop.exec()
     poll.stop()
+    return done()
 
 window = MainWindow()
 window.resize(1440, 900)
 window.show()
-wait(lambda: False, 0.5)
 session = window.session
+"""  # the start of every child script that measures the real main window (here and bench_ui_interaction)
+
+DRAWN = WINDOW_CHILD + r"""
+wait(lambda: False, 0.5)
 if sys.argv[2] == "trace":
     tracemalloc.start()
 session.load_project(Project(name="memory", model=sys.argv[1],

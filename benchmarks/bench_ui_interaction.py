@@ -33,40 +33,13 @@ import statistics
 import subprocess
 import sys
 
-from benchmarks.bench_app import ROOT, display
+from benchmarks.bench_app import ROOT, WINDOW_CHILD, display
 from benchmarks.harness import Row
 
 MOVES = 30
 FRAMES = 30
 
-CHILD_SETUP = r"""
-import json, sys, time, statistics
-from PySide6.QtCore import QEvent, QEventLoop, QObject, QStandardPaths, QTimer
-QStandardPaths.setTestModeEnabled(True)
-from orbitdesk.app.launch import make_application
-app = make_application(["orbitdesk-benchmark"])
-from orbitdesk.engine import RunSettings
-from orbitdesk.document.project import Project
-from orbitdesk.app.main_window import MainWindow
-
-def wait(done, seconds):
-    '''Run the event loop (sleeping when idle) until done() or the time is up.'''
-    loop, poll = QEventLoop(), QTimer()
-    poll.timeout.connect(lambda: done() and loop.quit())
-    poll.start(1)
-    QTimer.singleShot(int(seconds * 1000), loop.quit)
-    if not done():
-        loop.exec()
-    poll.stop()
-    return done()
-
-window = MainWindow()
-window.resize(1440, 900)
-window.show()
-session = window.session
-"""
-
-SLIDER = CHILD_SETUP + r"""
+SLIDER = WINDOW_CHILD + r"""
 import orbitdesk.engine.runs as engine
 
 VDP = "mu = 1.5 in [0.5, 3]\nx' = y\ny' = mu*(1 - x^2)*y - x\nx(0) = 2\ny(0) = 0\n"
@@ -137,7 +110,7 @@ print(json.dumps({"total": median(total), "to_start": median(to_start), "in_work
                   "all_new": all(shown_new), "moves": MOVES}))
 """.replace("MOVES", str(MOVES))
 
-ORBIT = CHILD_SETUP + r"""
+ORBIT = WINDOW_CHILD + r"""
 import numpy as np
 import pyqtgraph.opengl as gl
 from OpenGL import GL

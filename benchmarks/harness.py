@@ -34,12 +34,7 @@ def median_time(fn, repeats: int = 5, warmup: int = 1) -> float:
     """Median wall time of ``fn()`` over ``repeats`` runs after ``warmup`` runs."""
     for _ in range(warmup):
         fn()
-    times = []
-    for _ in range(repeats):
-        start = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - start)
-    return statistics.median(times)
+    return statistics.median(timed(fn)[0] for _ in range(repeats))
 
 
 def alternate(ours, baseline, repeats: int = 5) -> tuple[list[float], list[float]]:
@@ -49,9 +44,7 @@ def alternate(ours, baseline, repeats: int = 5) -> tuple[list[float], list[float
     a, b = [], []
     for _ in range(repeats):
         for fn, times in ((ours, a), (baseline, b)):
-            start = time.perf_counter()
-            fn()
-            times.append(time.perf_counter() - start)
+            times.append(timed(fn)[0])
     return a, b
 
 

@@ -57,3 +57,13 @@ def test_a_tolerance_below_its_bound_is_refused_in_words_not_by_a_crash():
     with pytest.raises(ProjectError, match="atol: expected a number of at least"):
         project_from_dict({"format": "orbitdesk-project", "version": 1, "model": "x' = -x\n",
                            "solver": {"atol": 2.2250738585e-313}})
+
+
+def test_every_method_without_a_scipy_solver_has_its_loop_in_the_exported_script():
+    # the script runs scipy's solver by its name, or a fixed-step loop written into it: a method with
+    # neither would be exported as some other method
+    from orbitdesk.exports import run_script
+
+    for entry in METHODS.values():
+        if entry.scipy_name is None:
+            assert f"def {entry.name}(" in run_script._FLOW_RUN, entry.name
