@@ -37,6 +37,7 @@ from orbitdesk.engine.runs import CANCELLED, DIVERGED, OK, UNDEFINED, RunSetting
 from orbitdesk.engine.progress import Cancelled, Reporter
 from orbitdesk.system.compiled_system import MAP, CompiledSystem
 from orbitdesk.engine import compiled, drivers, limits
+from orbitdesk.engine.maps import MERGED
 from orbitdesk.engine.model_events import saltation_refusal
 from orbitdesk.engine.status import REFUSED
 from orbitdesk.engine.status import word as status_word
@@ -511,45 +512,24 @@ def largest_lyapunov_two_trajectory(system: CompiledSystem, p=None, u0=None, t_e
 
 
 def _map_pair(system, p, u, steps, transient, d0, renorm_every, direction, bound, report):
-    f = system.rhs_function(p)
+    """Two nearby orbits of a map in the compiled map loop (``engine/maps.map_pair``)."""
     every = 1 if renorm_every is None else max(1, int(round(renorm_every)))
-    a = [float(v) for v in u]
-    k, total, measured = 0, 0.0, 0  # measured: iterations whose growth is in total
-    rows, row_times = [], []
-    run = steps - transient
-    stride = _stride(math.ceil(run / every))
+    engine = compiled.engine_for_work(system, 2.0 * steps * max(1.0, system.n_states / 3))
+    with np.errstate(all="ignore"):
+        out = drivers.map_pair(engine, 0, steps, transient, u, direction, p, d0, every, bound,
+                               report=report)
+    k = int(out.t)
     status, message = OK, ""
-    try:
-        for k in range(transient):
-            a = list(f(k, a))
-        b = [x + d0 * s for x, s in zip(a, direction)]
-        renorms = 0
-        for k in range(transient, steps):
-            a, b = list(f(k, a)), list(f(k, b))
-            if not all(abs(v) <= bound for v in a):
-                status, message = DIVERGED, f"the orbit escapes to infinity at n = {k + 1}"
-                break
-            done = k + 1 - transient
-            if done % every == 0 or done == run:
-                sep = [y - x for x, y in zip(a, b)]
-                dist = math.sqrt(sum(s * s for s in sep))
-                if not dist > 0:
-                    raise ZeroDivisionError("the two orbits merged")
-                total += math.log(dist / d0)
-                measured = done
-                b = [x + d0 * s / dist for x, s in zip(a, sep)]
-                renorms += 1
-                if renorms % stride == 0 or done == run:
-                    rows.append([total / done])
-                    row_times.append(k + 1)
-            if done % 2000 == 0:
-                report(done / run)
-    except OverflowError:
-        status, message = DIVERGED, f"the orbit escapes to infinity at n = {k + 1}"
-    except (ValueError, ZeroDivisionError, TypeError) as err:
-        status = UNDEFINED
-        message = system.explain_undefined(k, a, p) or f"{err} at n = {k}"
-    except Cancelled:
-        status, message = CANCELLED, "cancelled"
-    return _sorted_result([total], rows, row_times, "map", TWO_TRAJECTORY, float(measured), status=status,
+    if out.code == MERGED:
+        status, message = UNDEFINED, f"the two orbits merged at n = {k}: no separation is left to measure"
+    elif out.code:
+        status = status_word(out.code)
+        if status == CANCELLED:
+            message = "cancelled"
+        elif status == DIVERGED:
+            message = f"the orbit escapes to infinity at n = {k + 1}"
+        else:
+            message = system.explain_undefined(k, out.y, p) or f"undefined value at n = {k}"
+    rows = out.rows if out.rows.size else np.empty((0, 1))
+    return _sorted_result(out.sums, rows, out.row_t, "map", TWO_TRAJECTORY, out.averaged, status=status,
                           message=message)

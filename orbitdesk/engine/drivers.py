@@ -328,6 +328,37 @@ def map_tangent(engine, n0, n_end, keep_from, u0, V0, p, bound=1e10, max_rows=50
                          V=z[n:].reshape(n, m).copy())
 
 
+def map_pair(engine, n0, n_end, keep_from, u0, direction, p, d0, every=1, bound=1e10, max_rows=5000,
+             report=None) -> TangentOutput:
+    """The largest exponent of a map from two nearby orbits (``maps.map_pair``): the reference from
+    ``u0`` at step n0, the companion ``d0`` away along ``direction`` from ``keep_from`` on, pulled back
+    every ``every`` steps; ``sums`` (1,) the summed logarithms over ``averaged`` steps, ``code`` a status
+    code or ``maps.MERGED``; cancel (``report`` raising Cancelled) ends it with C_CANCELLED."""
+    a = np.array(u0, dtype=float)
+    b = np.array(direction, dtype=float)
+    p = np.ascontiguousarray(p, dtype=float)
+    st = np.zeros(12)
+    st[0] = n0
+    runs = max(1, math.ceil(max(1, int(n_end) - int(keep_from)) / max(1, int(every))))
+    stride = max(1, math.ceil(runs / max_rows))
+    rows, row_t = np.empty((max_rows + 2, 1)), np.empty(max_rows + 2)
+    pair = engine.entry("map_pair")
+    while True:
+        code = pair(engine.f, a, b, p, st, int(n_end), int(keep_from), float(d0), max(1, int(every)), float(bound),
+                    rows, row_t, int(stride), 16384)
+        if code != PAUSED:
+            break
+        if report is not None:
+            try:
+                report((st[0] - n0) / max(1, int(n_end) - int(n0)))
+            except Cancelled:
+                code = C_CANCELLED
+                break
+    r = int(st[9])
+    return TangentOutput(st[1:2].copy(), float(st[2]), rows[:r].copy(), row_t[:r].copy(), int(code), float(st[0]),
+                         a)
+
+
 @dataclass
 class MembersOutput:
     states: np.ndarray  # (n, N) where each member ended (a stopped member: its last good state)
@@ -498,6 +529,7 @@ def warm_up(engine) -> None:
     if k.IS_MAP:
         map_run(engine, 0, 1, y0, p)
         map_tangent(engine, 0, 1, 0, y0, np.eye(n), p)
+        map_pair(engine, 0, 2, 1, y0, np.ones(n), p, 1e-8)
         members_iterate(engine, 0, 1, 0, y0[:, None], p, samples=1, tangents=1)
         return
     planes = (np.zeros((1, n + 1)), np.zeros(1, dtype=np.int64), np.zeros(1, dtype=np.bool_))
@@ -513,6 +545,6 @@ def warm_up(engine) -> None:
         warm_up_sde(engine)
 
 
-__all__ = ["ExplicitStepper", "FlowOutput", "TangentOutput", "MembersOutput", "flow_run", "map_run", "flow_tangent", "map_tangent",
+__all__ = ["ExplicitStepper", "FlowOutput", "TangentOutput", "MembersOutput", "flow_run", "map_run", "flow_tangent", "map_tangent", "map_pair",
            "members_run", "members_iterate", "warm_up",
            "PAUSE_STEPS"]

@@ -1,6 +1,6 @@
-"""Iterated maps u[k+1] = f(k, u[k]): the orbit loop, and many members (starts and/or parameter
-sets) mapped together by the batched kernel, with their iterates and tangent vectors (sweeps,
-exponent grids).
+"""Iterated maps u[k+1] = f(k, u[k]): the orbit loop, two nearby orbits renormalised (the largest
+Lyapunov exponent without a Jacobian), and many members (starts and/or parameter sets) mapped
+together by the batched kernel, with their iterates and tangent vectors (sweeps, exponent grids).
 
 The model's kernel ``f`` (here: the map; for members the batched ``g``) comes in as an argument, as
 in ``explicit_rk.py``.
@@ -12,7 +12,9 @@ import numpy as np
 
 from orbitdesk.engine.explicit_rk import PAUSED, state_code
 from orbitdesk.engine.jitting import at, loop
-from orbitdesk.engine.tangent import gram_schmidt
+from orbitdesk.engine.tangent import _record, gram_schmidt
+
+MERGED = -2  # map_pair: the two orbits met (no separation left to measure), a code of this loop only
 
 
 @loop
@@ -43,6 +45,62 @@ def map_advance(f, y, p, st, n_end, out_y, bound, max_steps):
     st[0] = k
     st[5] = written
     return code
+
+
+@loop
+def map_pair(f, a, b, p, st, n_end, keep_from, d0, every, bound, rows, row_t, stride, max_steps):
+    """The reference orbit ``a`` and its companion ``b`` (in place) from step st[0] to ``n_end``
+    (before ``keep_from`` only ``a`` is iterated; at ``keep_from`` b starts d0 away from it along
+    ``b``'s entries as a direction): every ``every`` steps after ``keep_from``, and at the end, the
+    logarithm of their distance over ``d0`` is added to st[1] and b pulled back to distance d0 along
+    their separation (Benettin et al. 1976). st[2]: the steps whose growth st[1] holds, st[3] the
+    renormalisations; running estimates st[1] / st[2] into ``rows`` every ``stride`` renormalisations
+    (st[9] rows written). Returns a status code (1: an orbit escapes, 2: an undefined value, MERGED:
+    the two orbits met) or PAUSED after ``max_steps`` steps (the next call goes on)."""
+    n = a.shape[0]
+    na = np.empty(n)
+    nb = np.empty(n)
+    k = int(st[0])
+    code = 0
+    for _ in range(min(max_steps, n_end - k)):
+        if k == keep_from and st[4] == 0.0:  # the companion starts d0 away along the direction it holds
+            for i in range(n):
+                b[i] = a[i] + d0 * b[i]
+            st[4] = 1.0
+        paired = k >= keep_from  # before: the transient, the reference orbit alone
+        f(0, float(k), at(a), at(p), at(na))
+        code = state_code(na, bound)
+        if paired:
+            f(0, float(k), at(b), at(p), at(nb))
+            if code == 0:
+                code = state_code(nb, bound)
+        if code != 0:
+            break
+        for i in range(n):
+            a[i] = na[i]
+            if paired:
+                b[i] = nb[i]
+        k += 1
+        if not paired:
+            continue
+        done = k - keep_from
+        if done % every == 0 or k == n_end:
+            dist = 0.0
+            for i in range(n):
+                dist += (b[i] - a[i]) ** 2
+            dist = math.sqrt(dist)
+            if not dist > 0.0:
+                code = MERGED
+                break
+            st[1] += math.log(dist / d0)
+            st[2] = done
+            st[3] += 1.0
+            for i in range(n):
+                b[i] = a[i] + d0 * (b[i] - a[i]) / dist
+            if int(st[3]) % stride == 0 or k == n_end:
+                _record(st[1:2], st[2], rows, row_t, st, float(k))
+    st[0] = k
+    return PAUSED if code == 0 and k < n_end else code
 
 
 @loop

@@ -74,8 +74,36 @@ def test_henon_spectrum_sprott():
 
 
 def test_henon_two_trajectory():
+    # Sprott, Chaos and Time-Series Analysis (2003): 0.41922 for a = 1.4, b = 0.3 (value from memory)
     two = largest_lyapunov_two_trajectory(compile_model(HENON), steps=50000, transient=500)
+    assert two.ok and two.method == TWO_TRAJECTORY
     assert two.largest == pytest.approx(0.419, abs=0.01)
+    assert two.averaged_over == 49500
+    assert two.running.shape[1] == 1 and two.running[-1, 0] == pytest.approx(two.largest, abs=1e-12)
+
+
+def test_logistic_map_at_four_two_trajectory_is_ln2():
+    # closed form: x = sin^2(pi theta) conjugates r = 4 to the doubling map, lambda = ln 2.
+    two = largest_lyapunov_two_trajectory(compile_model(LOGISTIC), steps=100000, transient=100)
+    assert two.ok
+    assert two.largest == pytest.approx(math.log(2), abs=1e-2)
+    # renormalised every 5 steps the separation still stays small: the same exponent
+    five = largest_lyapunov_two_trajectory(compile_model(LOGISTIC), steps=100000, transient=100, d0=1e-12,
+                                           renorm_every=5)
+    assert five.largest == pytest.approx(math.log(2), abs=2e-2) and five.averaged_over == 99900
+
+
+def test_two_trajectory_map_pair_in_the_compiled_loop_matches_plain_python():
+    # the one map loop, compiled and as plain Python: the same arithmetic, the same estimate
+    from orbitdesk.engine import compiled, drivers
+
+    system = compile_model(HENON)
+    p, u = system.param_values, system.initial
+    plain = drivers.map_pair(compiled.python_engine(system), 0, 3000, 100, u, [0.6, 0.8], p, 1e-8)
+    fast = drivers.map_pair(compiled.engine_for(system, wait=True), 0, 3000, 100, u, [0.6, 0.8], p, 1e-8)
+    assert plain.code == fast.code == 0 and plain.averaged == fast.averaged == 2900
+    assert fast.sums[0] == pytest.approx(plain.sums[0], rel=1e-9)
+    assert np.allclose(fast.rows, plain.rows, rtol=1e-9)
 
 
 def test_logistic_map_at_four_is_ln2():
