@@ -20,6 +20,7 @@ import numpy as np
 
 from orbitdesk.engine.model_events import refuse_ensembles
 from orbitdesk.engine.ensembles import iterate_ensemble, rk4_ensemble
+from orbitdesk.analyses.grids import GridAxes
 from orbitdesk.analyses.parameter_maps import minimal_periods
 from orbitdesk.engine.progress import Reporter
 from orbitdesk.system.compiled_system import MAP
@@ -41,20 +42,14 @@ class BasinSettings:
 
 
 @dataclass
-class BasinResult:
-    x_name: str
-    xs: np.ndarray  # (nx,)
-    y_name: str
-    ys: np.ndarray  # (ny,)
+class BasinResult(GridAxes):  # x_name, xs, y_name, ys: the two states
     labels: np.ndarray  # (ny, nx): index into attractors, or ESCAPE
     attractors: list[dict] = field(default_factory=list)  # {"label", "kind", "period", "centre", "share"}
     stroboscopic: bool = False
 
     def to_dict(self) -> dict:
-        return {"x": {"state": self.x_name, "values": self.xs.tolist()},
-                "y": {"state": self.y_name, "values": self.ys.tolist()},
-                "labels": self.labels.tolist(), "attractors": self.attractors, "escape": ESCAPE,
-                "stroboscopic": self.stroboscopic}
+        return {**self.axes_dict("state"), "labels": self.labels.tolist(), "attractors": self.attractors,
+                "escape": ESCAPE, "stroboscopic": self.stroboscopic}
 
 
 def basins(system, x_name: str, xs, y_name: str, ys, settings: BasinSettings | None = None, u0=None, p=None,

@@ -21,6 +21,7 @@ import numpy as np
 
 from orbitdesk.engine.model_events import refuse_ensembles
 from orbitdesk.engine.progress import Reporter
+from orbitdesk.analyses.grids import GridAxes
 from orbitdesk.analyses.sweep import ITERATE, MAXIMA, STROBE, SweepSettings, run_members
 from orbitdesk.system.compiled_system import MAP
 
@@ -31,21 +32,15 @@ CHUNK = 2048  # grid points per ensemble (memory, progress and cancel between ch
 
 
 @dataclass
-class PeriodGrid:
-    x_name: str
-    xs: np.ndarray  # (nx,)
-    y_name: str
-    ys: np.ndarray  # (ny,)
+class PeriodGrid(GridAxes):  # x_name, xs, y_name, ys: the two parameters
     period: np.ndarray  # (ny, nx) ints: 1, 2, ...; 0 none up to max_period; -1 blew up
     max_period: int
     unit: str  # "iterations", "forcing periods" or "maxima per cycle"
     time_period: np.ndarray | None = None  # (ny, nx) autonomous flows: the cycle's period in time, NaN if none
 
     def to_dict(self) -> dict:
-        data = {"x": {"parameter": self.x_name, "values": self.xs.tolist()},
-                "y": {"parameter": self.y_name, "values": self.ys.tolist()},
-                "period": self.period.tolist(), "max_period": self.max_period, "unit": self.unit,
-                "legend": {"0": f"no period up to {self.max_period}", "-1": "blew up"}}
+        data = {**self.axes_dict("parameter"), "period": self.period.tolist(), "max_period": self.max_period,
+                "unit": self.unit, "legend": {"0": f"no period up to {self.max_period}", "-1": "blew up"}}
         if self.time_period is not None:
             data["time_period"] = [[v if np.isfinite(v) else None for v in row] for row in self.time_period.tolist()]
             data["legend"]["-2"] = "settles at an equilibrium"

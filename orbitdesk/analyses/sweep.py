@@ -39,6 +39,7 @@ from orbitdesk.engine.model_events import refuse_ensembles
 from orbitdesk.engine.chunks import compiled_system, run_chunks, split, worker_count
 from orbitdesk.engine.progress import Reporter
 from orbitdesk.engine.status import OK
+from orbitdesk.analyses.grids import GridAxes
 from orbitdesk.system.compiled_system import MAP
 from orbitdesk.engine import limits
 
@@ -492,18 +493,12 @@ class GridSettings:
 
 
 @dataclass
-class LyapunovGrid:
-    x_name: str
-    xs: np.ndarray  # (nx,)
-    y_name: str
-    ys: np.ndarray  # (ny,)
+class LyapunovGrid(GridAxes):  # x_name, xs, y_name, ys: the two parameters
     exponent: np.ndarray  # (ny, nx); NaN where the orbit diverged
     status: np.ndarray  # (ny, nx)
 
     def to_dict(self) -> dict:
-        return {"x": {"parameter": self.x_name, "values": self.xs.tolist()},
-                "y": {"parameter": self.y_name, "values": self.ys.tolist()},
-                "lyapunov": self.exponent.tolist(), "status": self.status.tolist()}
+        return {**self.axes_dict("parameter"), "lyapunov": self.exponent.tolist(), "status": self.status.tolist()}
 
 
 def lyapunov_grid(system, pname_x: str, xs, pname_y: str, ys, settings: GridSettings | None = None,

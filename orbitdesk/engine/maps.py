@@ -158,14 +158,7 @@ def members_iterate(g, U, P, n0, n_end, keep_from, bound, samples, codes, reache
         while c < count:
             i = int(BS[3 + c])
             k = KS[c]
-            code = 0
-            for j in range(n):
-                v = NXT[j, c]
-                if v != v:
-                    code = 2
-                    break
-                if not abs(v) <= bound:
-                    code = 1
+            code = state_code(NXT[:n, c], bound)
             if code == 0 and m > 0:
                 for a in range(n):
                     for b in range(m):

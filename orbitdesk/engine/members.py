@@ -70,6 +70,16 @@ def _combine_columns(w, s, skip, Z, K, MS, out, count):
 
 
 @noref
+def _step_code(Y1, Ks, c, bound):
+    """Member c's step: 0 when its new state is finite within the bound and its rate there a number,
+    1 for a blow-up, 2 for an undefined value."""
+    code = state_code(Y1[:, c], bound)
+    if code == 0 and state_code(Ks[:, c], math.inf) == 2:
+        code = 2
+    return code
+
+
+@noref
 def _swap(A, a, b):
     for r in range(A.shape[0]):
         v = A[r, a]
@@ -288,22 +298,8 @@ def members_advance(f, g, kind, adaptive, U, P, t0, t_end, rtol, atol, max_step,
                         h_next = max(h_next, MS[R_HTRY, c])
                     MS[R_H, c] = h_next
             if not done:
-                bad = 0
-                for j in range(nz):
-                    v = Y1[j, c]
-                    if v != v:
-                        bad = 2
-                        break
-                    if not abs(v) <= bound:
-                        bad = 1
-                if bad == 0:
-                    for j in range(nz):
-                        v = K[s_n, j, c]
-                        if v != v:
-                            bad = 2
-                            break
-                code = bad
-                done = bad != 0
+                code = _step_code(Y1, K[s_n], c, bound)
+                done = code != 0
             if not done:
                 MS[R_ACC, c] += 1.0
                 sampling = MS[R_SAMP, c] != 0.0
