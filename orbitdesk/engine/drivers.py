@@ -22,7 +22,6 @@ from orbitdesk.engine.status import C_CANCELLED, C_STEP_FAILED
 
 PAUSE_STEPS = 512
 MEMBER_PAUSE_STEPS = 5_000  # ensembles: steps between pauses (summed over members)
-COMPILED_PAUSE_FACTOR = 8  # compiled member loops take this many times as many between pauses (still well under 0.1 s)
 # a run whose pace would need more steps than the step limit (limits.py; judged after STEP_CHECK_AFTER
 # steps) ends with step_failed: a solution sliding along a kink (sign, abs, if) otherwise steps for days
 STEP_CHECK_AFTER = 100_000
@@ -466,12 +465,11 @@ def members_run(engine, name, t0, t_end, U0, P, rtol=1e-8, atol=1e-10, max_step=
     g = engine.batch
     notes, paces = {}, {}
     advance = engine.entry("members_advance")
-    budget = MEMBER_PAUSE_STEPS * (COMPILED_PAUSE_FACTOR if engine.compiled else 1)
     while True:
         code = advance(engine.f, g, kind, adaptive, U, rows, float(t0), ends, rtol, atol, max_step,
                        float(bound), grid, samples, plane_rows, dirs, terminal, ev_t, ev_y,
                        ev_count, codes, t_reached, steps, keep, int(m), float(interval),
-                       bool(keep_going), sums, *work, budget)
+                       bool(keep_going), sums, *work, MEMBER_PAUSE_STEPS)
         if code != PAUSED:
             break
         _judge_members(work[-2], int(work[-1][0]), t0, ends, engine.compiled, paces, notes)
