@@ -13,14 +13,20 @@ from .conftest import load_model, open_view, wait_for_trajectory
 WELLS = "x'' = -0.3*x' + x - x^3\nx(0) = 0.5\n"
 
 
-def test_two_wells_with_the_saddle_manifolds_between(qtbot, session, artifacts):
+def wells(qtbot, session, columns, rows, manifolds):
+    """The basins view on the two wells over x, x' in [-2, 2], computed on a grid of ``columns`` x ``rows``."""
     view = open_view(qtbot, session, "basins", (900, 700))
     load_model(qtbot, session, WELLS, dict(t_end=20.0, samples=500))
-    view.apply_view_settings({"x": {"state": "x", "from": -2.0, "to": 2.0, "count": 40},
-                              "y": {"state": "x'", "from": -2.0, "to": 2.0, "count": 30},
-                              "transient": 120.0, "manifolds": True})
+    view.apply_view_settings({"x": {"state": "x", "from": -2.0, "to": 2.0, "count": columns},
+                              "y": {"state": "x'", "from": -2.0, "to": 2.0, "count": rows},
+                              "transient": 120.0, "manifolds": manifolds})
     with qtbot.waitSignal(view.resultChanged, timeout=120000, check_params_cb=lambda r: r is not None):
         view.compute()
+    return view
+
+
+def test_two_wells_with_the_saddle_manifolds_between(qtbot, session, artifacts):
+    view = wells(qtbot, session, 40, 30, True)
     r = view.result
     assert sorted(round(a["centre"]["x"], 3) for a in r.attractors) == [-1.0, 1.0]
     sign = {a["label"]: np.sign(a["centre"]["x"]) for a in r.attractors}

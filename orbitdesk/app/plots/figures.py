@@ -95,9 +95,56 @@ def _copy_text(item):
     return copy
 
 
+def _copy_image(item):
+    """A coloured grid (basins, two-parameter maps): the same values, colours, levels and place."""
+    if item.image is None:
+        return None
+    copy = pg.ImageItem(axisOrder=item.axisOrder)
+    copy.setImage(np.array(item.image), autoLevels=False, levels=item.getLevels())
+    cmap = item.getColorMap()
+    if cmap is not None:
+        copy.setColorMap(cmap)
+    elif item.lut is not None:
+        copy.setLookupTable(item.lut)
+    copy.setTransform(item.transform())
+    copy.setPos(item.pos())
+    return copy
+
+
+def _colour_bar(plot_item):
+    """The colour bar a view put beside its plot (``ColorBarItem.setImageItem(..., insert_in=plot)``), or None."""
+    layout = plot_item.layout
+    for i in range(layout.count()):
+        item = layout.itemAt(i)
+        if isinstance(item, pg.ColorBarItem) and item.isVisible():
+            return item
+    return None
+
+
+def _copy_colour_bar(source_bar, plot, image) -> None:
+    """The colour bar beside the copied plot: same colours, levels, tick texts, name and axis width."""
+    bar = pg.ColorBarItem(values=tuple(source_bar.levels()), width=source_bar.layout.columnMaximumWidth(1),
+                          colorMap=source_bar.colorMap(), interactive=False, colorMapMenu=False)
+    src_axis, axis = source_bar.getAxis("right"), bar.getAxis("right")
+    axis.enableAutoSIPrefix(False)
+    ticks = src_axis._tickLevels
+    if ticks is not None:
+        axis.setTicks(ticks)
+    axis.setWidth(int(src_axis.width()))
+    if src_axis.labelText:
+        axis.setLabel(src_axis.labelText, units=src_axis.labelUnits or None)
+    for name in ("left", "bottom", "right", "top"):
+        bar.getAxis(name).setPen(source_bar.getAxis(name).pen())
+        bar.getAxis(name).setTextPen(source_bar.getAxis(name).textPen())
+    bar.setImageItem(image, insert_in=plot)
+    bar.setLevels(tuple(source_bar.levels()))
+
+
 def _copy_item(item):
     if not item.isVisible() or getattr(item, "_plot_tool", False):  # readout marks stay on screen
         return None
+    if isinstance(item, pg.ImageItem):
+        return _copy_image(item)
     if isinstance(item, pg.PlotDataItem):
         return _copy_curve(item)
     if isinstance(item, pg.ScatterPlotItem):
@@ -133,12 +180,18 @@ def copy_plot(source, width: int, height: int, legend: bool = False, host=None, 
     if legend:
         plot.addLegend(offset=(-12, 12), labelTextColor=widget.palette().color(widget.foregroundRole()))
     bounded = source.getViewBox().addedItems
+    source_bar = _colour_bar(source)
     for item in source.items:
         copy = _copy_item(item)
         if copy is None:
             continue
         copy.setZValue(item.zValue())
         plot.addItem(copy, ignoreBounds=item not in bounded)
+        if source_bar is not None and isinstance(copy, pg.ImageItem) and item in [r() for r in source_bar.img_list]:
+            _copy_colour_bar(source_bar, plot, copy)
+    key = getattr(host, "figure_legend", None)
+    if key is not None and source is getattr(host, "plot", None):
+        _key_below(plot, key(), widget)
     vb = plot.getViewBox()
     (x0, x1), (y0, y1) = source.getViewBox().viewRange()
     # the range is set before the first layout too: axes widen for the widest tick text they ever drew
@@ -155,6 +208,20 @@ def copy_plot(source, width: int, height: int, legend: bool = False, host=None, 
     if legend:
         place_legend(plot, make_room=True)  # where it covers the least of the curves
     return widget
+
+
+def _key_below(plot, entries, widget) -> None:
+    """A key of coloured squares under the plot (a basin map's attractors): ``entries`` of (QColor, words),
+    in up to two columns, in the figure's text colour."""
+    if not entries:
+        return
+    colour = widget.palette().color(widget.foregroundRole())
+    key = pg.LegendItem(colCount=2 if len(entries) > 3 else 1, labelTextColor=colour, labelTextSize="9pt",
+                        brush=None, pen=None)
+    for c, text in entries:
+        key.addItem(pg.ScatterPlotItem(symbol="s", size=10, brush=pg.mkBrush(c), pen=pg.mkPen(c.darker(140))), text)
+    plot.layout.addItem(key, 5, 1)
+    plot.layout.setRowFixedHeight(5, key.boundingRect().height() + 6)
 
 
 def _lay_out(widget, width: int, height: int) -> None:
@@ -264,6 +331,8 @@ def has_data(plot_item) -> bool:
             if x is not None and len(x):
                 return True
         elif isinstance(item, pg.ScatterPlotItem) and item.data.size:
+            return True
+        elif isinstance(item, pg.ImageItem) and item.image is not None:
             return True
     return False
 

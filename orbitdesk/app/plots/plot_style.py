@@ -502,6 +502,19 @@ def style_plot(plot_widget, host=None) -> None:
     plain_axes(item)
 
 
+def style_colour_bar(bar, host) -> None:
+    """A plot's colour bar in the plot's own colours: frame in the axis colour, tick texts and name in the text
+    colour (pyqtgraph's grey text was hard to read on screen and in exported figures)."""
+    import pyqtgraph as pg
+    from PySide6.QtGui import QPalette
+
+    axis_pen = pg.mkPen(muted_colour(host), width=1)
+    text_pen = pg.mkPen(host.palette().color(QPalette.ColorRole.Text))
+    for name in ("left", "bottom", "right", "top"):
+        bar.getAxis(name).setPen(axis_pen)
+        bar.getAxis(name).setTextPen(text_pen)
+
+
 def empty_hint(plot_item, text: str):
     """A quiet centred note shown in an empty plot (returns the item; hide it when data arrives)."""
     import pyqtgraph as pg

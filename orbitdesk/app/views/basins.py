@@ -10,9 +10,9 @@ import html
 
 import numpy as np
 import pyqtgraph as pg
-from PySide6.QtCore import Signal
+from PySide6.QtCore import Qt, Signal
 from PySide6.QtGui import QColor
-from PySide6.QtWidgets import QLabel
+from PySide6.QtWidgets import QFrame, QLabel, QScrollArea, QSizePolicy
 
 from orbitdesk.app.views import SERIES_COLOURS, empty_hint, is_dark, style_plot
 from orbitdesk.app.plots.plot_style import JobStrip, NumberBox, number_text, plain_axes
@@ -23,6 +23,8 @@ from orbitdesk.app.views.grid_axes import GridAxes, GridView, grid_rect
 ESCAPE_COLOUR = "#9a9a9a"
 MAX_SIDE = 300
 ORBIT_SAMPLES = 4000  # of the orbit run from a clicked cell
+FIGURE_ENTRIES = 8   # attractors named under an exported figure (the rest counted in one line)
+LEGEND_LINES = 6     # lines of the attractor list in sight under the map (the rest scrolls)
 
 
 class BasinsView(GridView):
@@ -52,6 +54,16 @@ class BasinsView(GridView):
         self.info = status_label()
         self.legend = QLabel()
         self.legend.setWordWrap(True)
+        self.legend.setAlignment(Qt.AlignmentFlag.AlignTop | Qt.AlignmentFlag.AlignLeft)
+        # the attractor list scrolls below a few lines: a map with many attractors must not push the map
+        # out of the view (it once grew the window past the screen)
+        self.legend_scroll = QScrollArea()
+        self.legend_scroll.setWidget(self.legend)
+        self.legend_scroll.setWidgetResizable(True)
+        self.legend_scroll.setFrameShape(QFrame.Shape.NoFrame)
+        self.legend_scroll.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
+        self.legend_scroll.setMaximumHeight(LEGEND_LINES * self.fontMetrics().lineSpacing() + 4)
+        self.legend_scroll.setSizePolicy(QSizePolicy.Policy.Preferred, QSizePolicy.Policy.Maximum)
 
         self.plot_widget = pg.PlotWidget()
         self.plot = self.plot_widget.getPlotItem()
@@ -76,7 +88,7 @@ class BasinsView(GridView):
         layout.addLayout(control_row("Settle for", self.transient, 8, self.strobe, self.period, 8, self.manifolds))
         layout.addLayout(status_row(self.info, self.strip))
         layout.addWidget(self.plot_widget, 1)
-        layout.addWidget(self.legend)
+        layout.addWidget(self.legend_scroll)
         self._restyle()
         self.follow_session(values=self._on_values)
 
@@ -178,17 +190,32 @@ class BasinsView(GridView):
         self.centres.setData([p[0] for p in points], [p[1] for p in points],
                              brush=[pg.mkBrush("w") for _ in points],
                              pen=[pg.mkPen(self.colour_of(p[2]).darker(160), width=2) for p in points])
-        rows = [f"<span style='color:{self.colour_of(a['label']).name()}'>■</span> {attractor_text(a)}: "
-                f"{a['share'] * 100:.0f}% of the starts" for a in result.attractors]
-        escaped = float(np.mean(labels < 0))
-        if escaped:
-            rows.append(f"<span style='color:{ESCAPE_COLOUR}'>■</span> escape (ran off or failed): "
-                        f"{escaped * 100:.0f}%")
+        rows = [f"<span style='color:{colour.name()}'>■</span> {text}" for colour, text in self.figure_legend(None, result)]
         what = "stroboscopic basins, once per forcing period" if result.stroboscopic else "basins"
         self.legend.setText(f"<b>{len(result.attractors)} attractor{'s' if len(result.attractors) != 1 else ''}"
                             f"</b> ({what})<br>" + "<br>".join(rows))
         self.plot.autoRange(padding=0.02)
         self.resultChanged.emit(result)
+
+    def figure_legend(self, most: int | None = FIGURE_ENTRIES, result=None) -> list[tuple[QColor, str]]:
+        """(colour, words) of each attractor of the result shown, the largest basins first, then escape: the
+        legend under the map on screen and under an exported figure (``most`` entries there, the rest
+        counted in one line)."""
+        r = result if result is not None else self.result
+        if r is None:
+            return []
+        entries = [(self.colour_of(a["label"]), f"{attractor_text(a)}: {a['share'] * 100:.0f}% of the starts", a["share"])
+                   for a in sorted(r.attractors, key=lambda a: -a["share"])]
+        if most is not None and len(entries) > most:
+            rest = entries[most - 1:]
+            entries = entries[:most - 1] + [(QColor(self.palette().color(self.foregroundRole())),
+                                             f"{len(rest)} more attractors: {sum(e[2] for e in rest) * 100:.0f}% "
+                                             f"of the starts", 0.0)]
+        out = [(c, text) for c, text, _share in entries]
+        escaped = float(np.mean(r.labels < 0))
+        if escaped:
+            out.append((QColor(ESCAPE_COLOUR), f"escape (ran off or failed): {escaped * 100:.0f}%"))
+        return out
 
     # ------------------------------------------------------------ saddle manifolds
     def _manifolds_toggled(self, on: bool) -> None:

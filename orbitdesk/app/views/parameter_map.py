@@ -12,6 +12,7 @@ from PySide6.QtCore import Qt, Signal
 from PySide6.QtGui import QFontMetrics
 from PySide6.QtWidgets import QLabel, QSpinBox, QStackedWidget
 
+from orbitdesk.app.plots.plot_style import style_colour_bar
 from orbitdesk.app.views import empty_hint, muted_colour, style_plot
 from orbitdesk.app.plots.plot_style import JobStrip, NumberBox, number_text, plain_axes, round_significant
 from orbitdesk.app.views.common import (apply_numbers, clicked_point, combo_box, control_row, push_button, row_widget,
@@ -271,6 +272,7 @@ class ParameterMapView(GridView):
 
     def _restyle(self) -> None:
         style_plot(self.plot_widget, self)
+        style_colour_bar(self.colour_bar, self)
         self.marker.setPen(pg.mkPen(muted_colour(self), width=2))
 
 

@@ -1,0 +1,102 @@
+"""Exported pictures of the coloured grids (two-parameter maps, basins) as a person sees them: the map's cells
+and its colour bar are in the PNG and the SVG, where the plot on screen has them (the first exports held only
+the axes and the parameter marker: the image and its colour bar were not copied)."""
+
+import numpy as np
+from PySide6.QtCore import QSize
+from PySide6.QtGui import QImage
+
+from orbitdesk.app.plots import figures
+from orbitdesk.samples.models import HENON_REF, model
+
+from .conftest import load_model, open_view
+from .test_plot_export import on_screen, pixels, svg_image
+from .test_view_basins import wells
+
+HENON = model(HENON_REF, ranges={'a': (0, 1.4), 'b': (0, 0.4)})
+
+
+def period_map(qtbot, session):
+    view = open_view(qtbot, session, "parameter_map", (900, 600))
+    load_model(qtbot, session, HENON, dict(steps=200))
+    view.apply_view_settings({"what": "period", "x": {"parameter": "a", "from": 0.0, "to": 1.4, "count": 36},
+                              "y": {"parameter": "b", "from": 0.0, "to": 0.4, "count": 11},
+                              "transient": 2000, "max_period": 16})
+    with qtbot.waitSignal(view.resultChanged, timeout=60000, check_params_cb=lambda r: r is not None):
+        view.compute()
+    qtbot.wait(100)
+    return view
+
+
+def doubling_column(rgb, widget, b):
+    """Along the row of ``b``, the first column whose colour leaves the period-1 band's colour (read at a = 0.2)."""
+    col0, row = (int(round(v)) for v in on_screen(widget, 0.2, b))
+    one = rgb[row, col0]
+    right, _ = on_screen(widget, 1.4, b)
+    for col in range(col0, int(right)):
+        if np.abs(rgb[row, col] - one).sum() > 60:
+            return col
+    return None
+
+
+def test_an_exported_period_map_shows_its_cells_and_colour_bar_where_the_screen_does(qtbot, session, tmp_path,
+                                                                                      artifacts):
+    view = period_map(qtbot, session)
+    widget = view.plot_widget
+    w, h = widget.width(), widget.height()
+    screen = pixels(widget.grab().toImage().scaled(QSize(w, h)))
+    png, svg = tmp_path / "map.png", tmp_path / "map.svg"
+    assert figures.save_plot(view.plot, png, w, h, host=view)
+    assert figures.save_plot(view.plot, svg, w, h, host=view)
+    QImage(str(png)).save(f"{artifacts}/export_period_map.png")
+    for image in (QImage(str(png)), svg_image(svg, QSize(w, h))):
+        assert (image.width(), image.height()) == (w, h)
+        rgb = pixels(image)
+        # the cells: the Henon map's fixed point doubles at a = 3 (1 - b)^2 / 4 (closed form); the colour
+        # changes there in the exported picture, at the column the screen has for that value (one cell wide)
+        cell = on_screen(widget, 1.4 / 35, 0)[0] - on_screen(widget, 0.0, 0)[0]
+        for b in (0.08, 0.2, 0.32):
+            col = doubling_column(rgb, widget, b)
+            assert col is not None, b
+            expected, _ = on_screen(widget, 3 * (1 - b) ** 2 / 4, b)
+            assert abs(col - expected) <= 1.5 * cell, (b, col, expected)
+        # the picture matches the screen over the map (the cells' colours, not only the axes)
+        (x0, y0), (x1, y1) = on_screen(widget, 0.05, 0.38), on_screen(widget, 1.35, 0.02)
+        inside = (slice(int(y0), int(y1)), slice(int(x0), int(x1)))
+        assert np.mean(np.abs(rgb[inside] - screen[inside]).sum(axis=2) < 40) > 0.95
+        # the colour bar beside the map: a strip of the bar's colours right of the plot, its tick texts and name
+        bar = view.colour_bar
+        top = widget.mapFromScene(bar.mapRectToScene(bar.getViewBox().boundingRect()).topLeft())
+        bottom = widget.mapFromScene(bar.mapRectToScene(bar.getViewBox().boundingRect()).bottomRight())
+        strip = rgb[top.y() + 5: bottom.y() - 5, top.x() + 3: bottom.x() - 3]
+        assert strip.size and np.abs(strip - screen[top.y() + 5: bottom.y() - 5, top.x() + 3: bottom.x() - 3]).sum(
+            axis=2).mean() < 30
+        assert len({tuple(c) for c in strip[:, strip.shape[1] // 2]}) > 5  # a range of colours, not a blank
+        right = rgb[top.y():bottom.y(), bottom.x() + 4:]
+        assert (right.sum(axis=2) < 300).sum() > 100  # the tick texts and the bar's name are drawn
+
+
+def test_an_exported_basin_map_has_its_cells_and_a_key_naming_each_attractor(qtbot, session, tmp_path, artifacts):
+    view = wells(qtbot, session, 30, 24, False)  # x'' = -0.3 x' + x - x^3: stable foci at x = +-1 (closed form)
+    qtbot.wait(100)
+    r = view.result
+    w, h = 900, 640
+    png, svg = tmp_path / "basins.png", tmp_path / "basins.svg"
+    assert figures.save_plot(view.plot, png, w, h, host=view)
+    assert figures.save_plot(view.plot, svg, w, h, host=view)
+    QImage(str(png)).save(f"{artifacts}/export_basins.png")
+    key = view.figure_legend()
+    assert [text.split(" near ")[0] for _c, text in key] == ["equilibrium", "equilibrium"]
+    for image in (QImage(str(png)), svg_image(svg, QSize(w, h))):
+        rgb = pixels(image)
+        # each well's colour covers about its share of the map (the cells are in the picture), and the rest of
+        # the picture is the key under the axes: a square of each colour below the map's lowest coloured row
+        for a in r.attractors:
+            c = view.colour_of(a["label"])
+            rows, cols = np.nonzero(np.abs(rgb - np.array([c.red(), c.green(), c.blue()])).sum(axis=2) < 30)
+            body = rows < 0.8 * h
+            assert body.sum() > 0.5 * a["share"] * (0.7 * w) * (0.6 * h), a["centre"]
+            square = rows > rows[body].max() + 20
+            assert 20 <= square.sum() <= 400, a["centre"]  # one small square in the key
+        # the key's words are drawn under the map in the text colour
+        assert (rgb[int(0.88 * h):].sum(axis=2) < 200).sum() > 200
