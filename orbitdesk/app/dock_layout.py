@@ -61,23 +61,53 @@ def keep_side_widths(window, walkthrough_width: int | None = None):
     return restore
 
 
-def _rows(window, docks: list) -> list[list]:
-    """Rows of docks, top to bottom: two or more side by side only where their controls fit the width
-    the views have beside the model panel and the walkthrough."""
-    if len(docks) <= 2:
-        return [[d] for d in docks]
-    side = sum(d.width() for d in (getattr(window, "model_dock", None), getattr(window, "walkthrough_dock", None))
-               if d is not None and d.isVisible() and not d.isFloating())
-    room = window.width() - side - 24
+READABLE = 100   # pixels of plot (or table) a view keeps below its controls when views share the height
+GAP = 8          # pixels between docks side by side or one above the other
 
-    def fits(row):
-        return sum(d.minimumSizeHint().width() for d in row) + 8 * (len(row) - 1) <= room
 
-    if len(docks) == 3:
-        return [docks[:1], docks[1:]] if fits(docks[1:]) else [[d] for d in docks]
-    half = (len(docks) + 1) // 2
-    pairs = [docks[:half], docks[half:]]
-    return pairs if all(fits(r) for r in pairs) else [docks[:1], docks[1:2], docks[2:]]
+def _room(window) -> tuple[int, int]:
+    """Width and height the view docks have: beside the model panel and the walkthrough, between the run bar
+    and the status bar (the model panel spans that height)."""
+    side = [d for d in (getattr(window, "model_dock", None), getattr(window, "walkthrough_dock", None))
+            if d is not None and d.isVisible() and not d.isFloating()]
+    width = window.width() - sum(d.width() for d in side) - 24
+    model = getattr(window, "model_dock", None)
+    height = model.height() if model is not None and model.isVisible() and not model.isFloating() \
+        else window.height() - 100
+    return width, height
+
+
+def _rows(window, docks: list) -> tuple[list[list], list]:
+    """Rows of docks, top to bottom, and the docks that do not fit. Two or more side by side only where their
+    controls fit the width the views have; as many rows as leave each view its controls and ``READABLE``
+    pixels of plot. When all do not fit, the first ones and the last (the view just opened) stay in sight and
+    the others wait as tabs behind the last: a plot squeezed to a strip, or a window grown past the screen,
+    helps nobody."""
+    if len(docks) <= 1:
+        return [[d] for d in docks], []
+    width, height = _room(window)
+
+    def pack(candidate):
+        if len(candidate) <= 2:
+            return [[d] for d in candidate]
+        rows = [[candidate[0]]]  # the first (the time series) across the top
+        for d in candidate[1:]:
+            row = rows[-1]
+            if len(rows) > 1 and sum(e.minimumSizeHint().width() for e in row + [d]) + GAP * len(row) <= width:
+                row.append(d)
+            else:
+                rows.append([d])
+        return rows
+
+    def tall(rows):
+        return sum(max(d.minimumSizeHint().height() for d in row) + READABLE for row in rows) + GAP * (len(rows) - 1)
+
+    for k in range(len(docks), 1, -1):
+        shown = docks[:k - 1] + [docks[-1]]
+        rows = pack(shown)
+        if tall(rows) <= height:
+            return rows, [d for d in docks if d not in shown]
+    return [[docks[-1]]], docks[:-1]
 
 
 def _rebuild_docks(window, docks: list) -> None:
@@ -87,12 +117,12 @@ def _rebuild_docks(window, docks: list) -> None:
     if not docks:
         return
     V, H = Qt.Orientation.Vertical, Qt.Orientation.Horizontal
+    widths, (rows, waiting) = keep_side_widths(window), _rows(window, docks)
     others = [d for d in window.view_docks.values() if d not in docks and not d.isFloating()]
-    widths, rows = keep_side_widths(window), _rows(window, docks)
     for dock in list(window.view_docks.values()):
         if not dock.isFloating():
             window.removeDockWidget(dock)
-    first = docks[0]
+    first = rows[0][0]
     window.addDockWidget(Qt.DockWidgetArea.RightDockWidgetArea, first)
     first.show()
     walkthrough = getattr(window, "walkthrough_dock", None)
@@ -105,15 +135,20 @@ def _rebuild_docks(window, docks: list) -> None:
     for row in rows:
         for left, right in zip(row, row[1:]):
             window.splitDockWidget(left, right, H)
-    for dock in docks:
+    for row in rows:
+        for dock in row:
+            dock.show()
+    for dock in waiting:  # open, a tab behind the view just opened
+        window.tabifyDockWidget(docks[-1], dock)
         dock.show()
     for dock in others:
         window.tabifyDockWidget(docks[-1], dock)
         dock.hide()
     docks[-1].raise_()
-    def settle():  # once the new layout has settled: side panels as they were, rows of equal height
+    def settle():  # once the new layout has settled: side panels as they were, each row the same room for its plot
         widths(first)
         if len(rows) > 1:
-            height = sum(row[0].height() for row in rows) // len(rows)
-            window.resizeDocks([row[0] for row in rows], [height] * len(rows), V)
+            controls = [max(d.minimumSizeHint().height() for d in row) for row in rows]
+            extra = max(0, sum(row[0].height() for row in rows) - sum(controls)) // len(rows)
+            window.resizeDocks([row[0] for row in rows], [c + extra for c in controls], V)
     QTimer.singleShot(0, settle)

@@ -497,3 +497,36 @@ def test_a_long_status_message_is_cut_with_an_ellipsis_and_whole_in_the_tip(qtbo
     assert "faster than the limit of 10000 events per unit time" in bar.toolTip()
     window.session.statusMessage.emit("Saved model.orbitdesk")
     assert bar.currentMessage() == "Saved model.orbitdesk" and bar.toolTip() == ""
+
+
+def test_views_opened_one_after_another_stay_readable_and_the_window_keeps_its_size(qtbot, window, tmp_path):
+    """Seven views opened from the menu once put five docks side by side in one row: the window grew to
+    3,878 px wide, far past the screen, and the plots were strips a few dozen pixels tall. Now a row holds
+    what fits, the rows leave each plot room, and the views that do not fit wait as tabs behind the one
+    just opened (still open, one click away)."""
+    import pyqtgraph as pg
+
+    from orbitdesk.app.dock_layout import READABLE
+
+    open_model(qtbot, window, tmp_path, OSCILLATOR, "spring.txt")
+    size = window.size()
+    opened = ["sweep", "sections", "lyapunov", "basins", "parameter_map", "bifurcation"]
+    for name in opened:
+        window.show_view(name)
+        qtbot.wait(100)
+        assert window.size() == size, name
+        dock = window.view_docks[name]
+        assert dock.isVisible() and not dock.visibleRegion().isEmpty(), name  # the one just opened is in sight
+        for plot in window.views[name].findChildren(pg.PlotWidget):
+            if plot.isVisible():
+                assert plot.height() >= READABLE - 20, (name, plot.height())
+    docks = window.view_docks
+    in_sight = [n for n, d in docks.items() if d.isVisible() and not d.visibleRegion().isEmpty()]
+    assert "bifurcation" in in_sight and "timeseries" in in_sight
+    for n in ["timeseries", "phase_plane", *opened]:
+        assert docks[n].toggleViewAction().isChecked(), n  # all still open
+        if n not in in_sight:  # behind a tab of a view in sight
+            assert any(d in window.tabifiedDockWidgets(docks[n]) for d in (docks[m] for m in in_sight)), n
+    for n in in_sight:
+        geometry = docks[n].geometry()
+        assert geometry.right() <= window.width() and geometry.bottom() <= window.height(), n
