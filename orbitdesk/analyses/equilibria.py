@@ -257,6 +257,9 @@ def _cpu_seconds(pid: int) -> float | None:
         return None
 
 
+FREE_COORDINATE = "a solution with a free coordinate"  # replaced by words that say what it means
+
+
 class _ExactSolve:
     """The exact solve in a forked child, started at once; ``answer`` collects it (or gives up)."""
 
@@ -311,7 +314,7 @@ class _ExactSolve:
             notes.append(f"no exact solution ({answer['error']}); Newton search only")
             return [], notes
         if answer.get("continuum"):
-            notes.append("the equilibria include a curve or surface (a solution with a free coordinate)")
+            notes.append(FREE_COORDINATE)  # worded when the points are known (_free_coordinate)
         return [np.array(s, dtype=float) for s in answer["solutions"]], notes
 
     def close(self) -> None:
@@ -550,6 +553,7 @@ def _search(system, p, G, DG, DG_sparse, box, starts, u0, solve, exact_timeout, 
         eq = _equilibrium(system, x, method, DG, p)
         if eq is not None:
             results.append(eq)
+    _free_coordinate(results, notes)
     results = wrap_equilibria(system, _thin_continuum(results, notes))  # an angle's turns are one point
     if system.delays:  # stability from the characteristic equation of the delays
         from orbitdesk.analyses.delay_stability import with_delay_stability
@@ -560,12 +564,32 @@ def _search(system, p, G, DG, DG_sparse, box, starts, u0, solve, exact_timeout, 
     return Equilibria(results, notes, full_box)
 
 
+def _free_coordinate(results, notes) -> None:
+    """sympy answers with a coordinate left free both for a curve of equilibria and for an equation it could not
+    solve in closed form (the stirred tank's c = stay (1 - c) exp(heat c)). Points on a curve of equilibria have
+    a singular Jacobian; when every point found has none, they are isolated and the note says what happened."""
+    if FREE_COORDINATE not in notes:
+        return
+    at = notes.index(FREE_COORDINATE)
+    if any(_singular(eq) for eq in results):
+        notes[at] = "the equilibria include a curve or surface (a solution with a free coordinate)"
+    elif results:
+        notes[at] = ("found by Newton's method (sympy has no closed form); isolated: no zero eigenvalue")
+    else:
+        notes[at] = "no closed form (an equation sympy could not solve); Newton search only"
+
+
+def _singular(eq) -> bool:
+    """A zero eigenvalue (a multiplier 1 for a map) at round-off level: the point is not isolated."""
+    zero = np.abs(eq.eigenvalues - (1.0 if eq.is_map else 0.0)) <= 1e-9 * max(1.0, float(np.max(np.abs(eq.eigenvalues))))
+    return bool(np.any(zero))
+
+
 def _thin_continuum(results, notes, keep=5, limit=10):
     """Many points with a zero eigenvalue from the Newton search lie on a curve or surface of
     equilibria: list a few of them, say so, and keep every isolated point."""
     def singular(eq):
-        zero = np.abs(eq.eigenvalues - (1.0 if eq.is_map else 0.0)) <= 1e-9 * max(1.0, float(np.max(np.abs(eq.eigenvalues))))
-        return bool(np.any(zero)) and eq.method == NEWTON
+        return _singular(eq) and eq.method == NEWTON
     loose = [eq for eq in results if singular(eq)]
     if len(loose) <= limit:
         return results

@@ -63,6 +63,7 @@ def keep_side_widths(window, walkthrough_width: int | None = None):
 
 READABLE = 100   # pixels of plot (or table) a view keeps below its controls when views share the height
 GAP = 8          # pixels between docks side by side or one above the other
+IN_SIGHT = 3     # views always in sight together (a walkthrough step opens up to three), however short
 
 
 def _room(window) -> tuple[int, int]:
@@ -82,7 +83,7 @@ def _rows(window, docks: list) -> tuple[list[list], list]:
     controls fit the width the views have; as many rows as leave each view its controls and ``READABLE``
     pixels of plot. When all do not fit, the first ones and the last (the view just opened) stay in sight and
     the others wait as tabs behind the last: a plot squeezed to a strip, or a window grown past the screen,
-    helps nobody."""
+    helps nobody. ``IN_SIGHT`` views stay in sight whatever the height."""
     if len(docks) <= 1:
         return [[d] for d in docks], []
     width, height = _room(window)
@@ -99,15 +100,26 @@ def _rows(window, docks: list) -> tuple[list[list], list]:
                 rows.append([d])
         return rows
 
-    def tall(rows):
-        return sum(max(d.minimumSizeHint().height() for d in row) + READABLE for row in rows) + GAP * (len(rows) - 1)
+    def need(d):  # a view with a plot keeps READABLE pixels of it; a table alone (equilibria) its own minimum
+        return d.minimumSizeHint().height() + (READABLE if _has_plot(d) else 0)
 
-    for k in range(len(docks), 1, -1):
+    def tall(rows):
+        return sum(max(need(d) for d in row) for row in rows) + GAP * (len(rows) - 1)
+
+    for k in range(len(docks), IN_SIGHT, -1):
         shown = docks[:k - 1] + [docks[-1]]
         rows = pack(shown)
         if tall(rows) <= height:
             return rows, [d for d in docks if d not in shown]
-    return [[docks[-1]]], docks[:-1]
+    shown = docks[:IN_SIGHT - 1] + [docks[-1]]
+    return pack(shown), [d for d in docks if d not in shown]
+
+
+def _has_plot(dock) -> bool:
+    import pyqtgraph as pg
+
+    widget = dock.widget()
+    return widget is not None and (bool(widget.findChildren(pg.PlotWidget)) or hasattr(widget, "glview"))
 
 
 def _rebuild_docks(window, docks: list) -> None:

@@ -104,8 +104,10 @@ def complex_text(z, digits: int = 5, tol: float = 1e-12) -> str:
     return f"{number_text(re, digits)} {sign} {number_text(abs(im), digits)}i"
 
 
-def eigenvalues_text(values, digits: int = 4) -> str:
-    """Eigenvalues in one line, a complex-conjugate pair written once as ``a ± bi``."""
+def eigenvalues_text(values, digits: int = 4, most: int | None = None) -> str:
+    """Eigenvalues in one line, a complex-conjugate pair written once as ``a ± bi``; with ``most``, the first
+    ``most`` entries and how many there are in all (a table cell: eight characteristic roots of a delay model
+    pushed the type and stability out of sight)."""
     values = [complex(v) for v in values]
     out, used = [], [False] * len(values)
     for i, z in enumerate(values):
@@ -125,6 +127,8 @@ def eigenvalues_text(values, digits: int = 4) -> str:
                 out.append(complex_text(z, digits))
         else:
             out.append(complex_text(z, digits))
+    if most is not None and len(out) > most:
+        return ",  ".join(out[:most]) + f",  … ({len(values)} in all)"
     return ",  ".join(out)
 
 

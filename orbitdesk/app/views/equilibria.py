@@ -20,6 +20,7 @@ AUTO_MAX_STATES = 4      # models this small are searched again by themselves wh
 AUTO_DELAY_MS = 350
 DEFAULT_EPS = 1e-3
 TABLE_ROWS = 4           # rows the table always has room for (more scroll)
+TABLE_ROOTS = 2          # eigenvalue entries (a conjugate pair is one) in the table; all of them below and in the tip
 MAX_START_BUTTONS = 8    # eigen-directions offered as buttons (the largest models get the first ones)
 
 
@@ -305,7 +306,7 @@ class EquilibriaView(SessionView):
         mono = mono_font()
         right = Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter
         for r, eq in enumerate(items):
-            values = [eigenvalues_text(eq.eigenvalues)]
+            values = [eigenvalues_text(eq.eigenvalues, most=TABLE_ROOTS)]
             cells = [str(r + 1)] + [number_text(eq.state[n]) for n in states] + values + [
                 eq.kind, eq.stability, _method_text(eq.method)]
             for c, text in enumerate(cells):
@@ -315,6 +316,8 @@ class EquilibriaView(SessionView):
                 if 0 <= c <= len(states):
                     item.setTextAlignment(right)
                 tip = f"{point_word} {r + 1}: {eq.kind}, {eq.stability}"
+                if c == len(states) + 1 and text != eigenvalues_text(eq.eigenvalues):
+                    tip += "\n" + eigenvalues_text(eq.eigenvalues)  # all of them
                 if eq.warnings:
                     tip += "\n" + "\n".join(eq.warnings)
                 item.setToolTip(tip)

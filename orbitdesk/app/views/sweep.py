@@ -226,6 +226,7 @@ class SweepView(SessionView):
         s = SweepSettings(mode=mode, observe=self.observe.currentText() or None,
                           transient=float(self.transient.value()), samples=self.samples.value(),
                           dt=self.integration.step(), method=self.integration.method_name(),
+                          rtol=float(self.session.solver.rtol), atol=float(self.session.solver.atol),
                           duration=float(self.duration.value()),
                           lyapunov=self.lyapunov.isChecked(), t_start=float(self.session.solver.t_start))
         if mode == PLANE:
