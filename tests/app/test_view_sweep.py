@@ -117,7 +117,7 @@ def test_cancelling_a_long_sweep(qtbot, session):
     load(qtbot, session, LORENZ)
     view.set_range("r", 20.0, 200.0, 2000)
     view.set_sampling("maxima", observe="z")
-    view.transient.setValue(2000.0)  # about a minute of work: far longer than the test waits
+    view.transient.setValue(20000.0)  # minutes of work even compiled: far longer than the test waits
     view.lyapunov.setChecked(True)
     view.run_button.click()
     assert view.strip.running and view.strip.cancel_button.isVisible()
