@@ -44,7 +44,30 @@ def lambdify(args, exprs, modules="math"):
     # scalar code uses the printer that writes non-integer powers as math.pow: float arithmetic,
     # so 2^floor(x) with a large x overflows instead of building an exact huge integer
     printer = _printer() if modules == "math" else _vector_printer() if modules == "numpy" else None
+    args, exprs = _generated_names(args, exprs)
     return sp.lambdify(args, exprs, modules=modules, cse=flat_cse, printer=printer)
+
+
+def _generated_names(args, exprs):
+    """The arguments (symbols, nested in lists) renamed ``_a0``, ``_a1``, ... in them and in ``exprs``: a
+    model's own names (``pow``, ``where``, ``math``, ``_f0`` of the shared parts) never reach the code, where
+    they would stand in for the printer's functions or another name."""
+    swap: dict = {}
+
+    def rename(arg):
+        if isinstance(arg, (list, tuple)):
+            return [rename(a) for a in arg]
+        if isinstance(arg, sp.Symbol):
+            return swap.setdefault(arg, sp.Symbol(f"_a{len(swap)}", **arg.assumptions0))
+        return arg
+
+    def put_in(e):
+        if isinstance(e, (list, tuple)):
+            return type(e)(put_in(x) for x in e)
+        return e.xreplace(swap) if hasattr(e, "xreplace") else e
+
+    args = rename(args)
+    return args, put_in(exprs)
 
 
 @dataclass
