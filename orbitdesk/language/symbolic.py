@@ -386,6 +386,21 @@ def _size_beyond(expr, limit: int) -> bool:
 
 _RELATIONS = {"<": sp.StrictLessThan, "<=": sp.LessThan, ">": sp.StrictGreaterThan, ">=": sp.GreaterThan}
 _LOGIC = {"and": sp.And, "or": sp.Or, "not": sp.Not}
+_DECIDE = {"<": lambda a, b: a < b, "<=": lambda a, b: a <= b, ">": lambda a, b: a > b, ">=": lambda a, b: a >= b}
+
+
+def _relation(op: str, left: sp.Expr, right: sp.Expr):
+    """``left op right``. Between two constants that sympy leaves open, decided here in the numbers the
+    model computes with: ``1 < tanh(1140)`` (the two differ in the 990th digit) stays open in sympy, which
+    then, building the if() around it, works without bound to decide it."""
+    relation = _RELATIONS[op](left, right)
+    if isinstance(relation, sp.Rel) and not relation.free_symbols:
+        try:
+            a, b = _approx(left).real, _approx(right).real
+        except (ValueError, TypeError, ArithmeticError):
+            return relation  # checked constants are defined; should one not be, sympy's relation says what it can
+        return sp.true if _DECIDE[op](a, b) else sp.false
+    return relation
 
 
 @dataclass(frozen=True)
@@ -423,7 +438,7 @@ def to_sympy(node, resolve, functions=None) -> sp.Expr:
         if isinstance(item, Unary):
             return -args[0]
         if isinstance(item, Compare):
-            return _RELATIONS[item.op](*args)
+            return _relation(item.op, *args)
         if isinstance(item, Logic):
             return _LOGIC[item.op](*args)
         if isinstance(item, If):

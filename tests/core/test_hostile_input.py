@@ -296,6 +296,11 @@ def test_legal_hostile_looking_inputs_evaluate_correctly(outcomes):
     smooth_parts = outcomes["nonsmooth_jacobian.txt"]
     assert smooth_parts["jac"] == [[0.0, 1.0], [pytest.approx(0.2), 1.0]]
     assert smooth_parts["rhs"][1] == pytest.approx(-1.25 + 0.5 + 1 - 0.1 + 0.2 * 0.25 + 0.5 + 1.25)
+    # comparisons of constants decided in doubles: 1 - tanh(1140) = 2/(e^2280 + 1) and cosh(690) - sinh(690) =
+    # e^-690 are far below half an ulp of 1 and of cosh(690), so tanh(1140) = 1.0 and cosh(690) = sinh(690):
+    # x' = 2 + 10 - 0, y' = 200 + y at y = 2 (y < 1 fails, and 1 < 1 fails)
+    assert math.tanh(1140) == 1.0 and math.cosh(690) == math.sinh(690)
+    assert outcomes["condition_between_close_constants.txt"]["rhs"] == [12.0, 202.0]
     # the chain of conditions over conditions, evaluated step by step in Python at x = 0.5
     a = min(0.5, 1)
     for step in ("sqrt", "sqrt", "sqrt", "sin", "abs", "sin", "min", "min", "tanh", "if", "floor", "if", "tanh",
