@@ -216,9 +216,11 @@ class DelayIntegrator:
         h0 = 1e-6 if d0 < 1e-5 or d1 < 1e-5 else 0.01 * d0 / d1
         h0 = min(h0, self.h_cap)
         f1 = self._f(self.t + h0, self.y + h0 * f0)
-        d2 = math.sqrt(np.mean(((f1 - f0) / scale) ** 2)) / h0
+        # h0 = 0 when the slope is beyond the float range (d1 = inf): the smallest start, as explicit_rk's
+        d2 = math.sqrt(np.mean(((f1 - f0) / scale) ** 2)) / h0 if h0 > 0 else math.inf
         h1 = max(1e-6, h0 * 1e-3) if max(d1, d2) <= 1e-15 else (0.01 / max(d1, d2)) ** 0.2
-        return min(100 * h0, h1, self.h_cap)
+        h = min(100 * h0, h1, self.h_cap)
+        return h if h > 0 and math.isfinite(h) else min(1e-6, self.h_cap)
 
     def step(self, t_limit: float) -> None:
         """One accepted step, not beyond ``t_limit``, a discontinuity or the shortest delay."""

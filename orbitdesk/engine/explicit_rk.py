@@ -380,7 +380,7 @@ def first_choice(kind, y, K, h0, f1, rtol, atol, max_step):
         d1 += (K[0, i] / scale) ** 2
         d2 += ((f1[i] - K[0, i]) / scale) ** 2
     d1 = math.sqrt(d1 / n)
-    d2 = math.sqrt(d2 / n) / h0
+    d2 = math.sqrt(d2 / n) / h0 if h0 > 0.0 else math.inf  # h0 = 0: a slope beyond the float range (d1 = inf)
     if d1 <= 1e-15 and d2 <= 1e-15:
         h1 = max(1e-6, h0 * 1e-3)
     else:

@@ -198,6 +198,9 @@ def models(draw):
 @pytest.mark.slow
 @budget(600)
 @given(models())
+@example("x[n+1] = x\ny[n+1] = if(z < -x and not 838 / 40e-2 < 1, n, sqrt((13e5)))\nd1 = abs(13e-3)\n"
+         "z[n+1] = atan2(atan2(151, 69e7), log10(energy))\n"
+         "energy = if(max(-227, sign(69e7)) < tanh(sqrt((13e5))) and not (log(n)) < 1, 0.015, energy)")  # deep run
 def test_generated_models_parse_and_compile(text):
     WORKER.run(check_generated_model, text)
 
@@ -382,6 +385,7 @@ def event_models(draw):
 
 @budget(120)
 @given(event_models())
+@example("k = 1\nh = 0.5\nx'' = -k*x - 0.1*x' + y\ny' = -y + h\nx(0) = 1\nwhen t > h then x = 0, h = cosh(690)")  # deep run
 def test_generated_event_models_parse_compile_and_run(text):
     WORKER.run(check_event_model, text)
 
