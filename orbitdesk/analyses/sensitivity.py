@@ -176,6 +176,6 @@ class Observer:
             du[i] = 1.0
             return run.states[i], du, np.zeros((P, T))
         with np.errstate(all="ignore"):
-            values = self._derived[q](run.time, *run.states, *(float(v) for v in p))
+            values = self._derived[q](run.time, *run.states, *np.asarray(p, dtype=float))  # numpy's numbers
         arr = np.array([np.broadcast_to(np.asarray(v, dtype=float), (T,)) for v in values])
         return arr[0], arr[1:1 + n], arr[1 + n:]

@@ -272,19 +272,20 @@ class CompiledSystem:
 
     def rhs_vec(self, t, U, P=None) -> np.ndarray:
         """f for many members at once: U has shape (n_states, N); P is (n_params,) or (n_params, N)."""
+        # numbers as numpy's (t too): both branches of an if() are computed, and a Python float's 0.0 ** -1 raises
         U = np.asarray(U, dtype=float)
-        P = self.param_values if P is None else np.asarray(P, dtype=float)
+        P = np.asarray(self.param_values if P is None else P, dtype=float)
         with np.errstate(all="ignore"):
-            values = self._f_vector(t, *U, *P)
+            values = self._f_vector(np.asarray(t, dtype=float), *U, *P)
         return _stack(values, U.shape[1:])
 
     def jac_vec(self, t, U, P=None) -> np.ndarray:
         """Jacobians for many members: shape (n_states, n_states, N)."""
         U = np.asarray(U, dtype=float)
-        P = self.param_values if P is None else np.asarray(P, dtype=float)
+        P = np.asarray(self.param_values if P is None else P, dtype=float)
         n = self.n_states
         with np.errstate(all="ignore"):
-            values = self._jac_vector(t, *U, *P)
+            values = self._jac_vector(np.asarray(t, dtype=float), *U, *P)  # numpy's numbers, as rhs_vec
         shape = U.shape[1:]
         J = np.zeros((n, n) + shape)
         J[self._jac_structure] = _stack(values, shape)
@@ -295,7 +296,7 @@ class CompiledSystem:
         if not self.derived_exprs:
             return {}
         Y = np.asarray(Y, dtype=float)
-        p = self.param_values if p is None else p
+        p = np.asarray(self.param_values if p is None else p, dtype=float)
         with np.errstate(all="ignore"):
             values = self._derived_vector(np.asarray(t, dtype=float), *Y, *p)
         stacked = _stack(values, Y.shape[1:])

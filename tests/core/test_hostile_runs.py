@@ -48,3 +48,31 @@ def test_a_delay_run_with_a_slope_beyond_the_float_range_ends_with_a_status():
     run = simulate(system, RunSettings(t_end=3.0, samples=30))
     assert run.status == "diverged" and run.message
     assert run.time[-1] < 0.1  # at once
+
+
+def test_vector_evaluators_take_both_branches_of_an_if_in_numpy_numbers():
+    """numpy's where() computes both branches of an if(); with t or a parameter passed as a Python float,
+    the branch not taken raised ZeroDivisionError (0.0 ** -1) out of the vector evaluator (found by the
+    family-model fuzz: x / if(x < 1 and not 1 < 1, 0, t) at t = 0). Each column must be what the scalar
+    evaluator gives: where the branch taken divides by zero (x < 1 here: x / 0), nan."""
+    system = compile_model("c = 0\nx' = x / if(x < 1, 0, t) + 1 / if(x > 5, c, 1)\nd = 1 / if(x > 5, c, t + 1)\n"
+                           "x(0) = 0\n")
+    from orbitdesk.system.compiled_system import UndefinedValue
+
+    U = np.array([[0.0, 2.0, 3.0]])
+    for t in (0.0, 0.5):
+        columns = system.rhs_vec(t, U)
+        for k in range(3):
+            try:
+                expected = system.rhs(t, U[:, k])[0]
+            except UndefinedValue:  # x / t at t = 0
+                assert not np.isfinite(columns[0, k])
+                continue
+            assert np.array_equal(columns[0, k], expected, equal_nan=True), (t, k, columns, expected)
+        assert np.isnan(columns[0, 0])  # x < 1: 0 / 0
+        if t:
+            assert columns[0, 1:].tolist() == [2.0 / t + 1.0, 3.0 / t + 1.0]
+        jac = system.jac_vec(t, U)
+        assert jac.shape == (1, 1, 3) and not np.isfinite(jac[0, 0, 0])
+    values = system.derived_values(np.array([0.0, 1.0]), np.array([[2.0, 2.0]]))["d"]
+    assert values.tolist() == [1.0, 0.5]  # 1 / (t + 1): the branch c = 0 is not taken
