@@ -538,6 +538,8 @@ def warm_up(engine) -> None:
     flow_tangent(engine, "dop853", 0.0, 1e-9, 0.0, y0, np.eye(n), p, 1e-9)
     stepper = ExplicitStepper(engine, "dop853", 0.0, y0, 1e-9, p)
     stepper.step()
+    if stepper.t_old is None:  # the model is undefined at the warm-up point: its step failed, the dense
+        stepper.t_old, stepper.t = 0.0, 1e-9  # output's loops are compiled all the same (on NaN values)
     stepper.dense_output()(5e-10)
     members_run(engine, "dop853", 0.0, 1e-9, y0[:, None], p, grid=np.array([1e-9]), planes=planes, max_events=1)
     if hasattr(k, "sde"):  # a model with noise (engine/stochastic.py)

@@ -262,12 +262,11 @@ class CompiledSystem:
     def jac(self, t, u, p=None) -> np.ndarray:
         p = self.param_values if p is None else p
         n = self.n_states
-        try:
-            values = self._jac_scalar(float(t), *map(float, u), *map(float, p))
-        except (ValueError, ZeroDivisionError, TypeError, OverflowError) as exc:
-            raise UndefinedValue(f"the Jacobian is undefined at this point ({exc})") from None
         J = np.zeros((n, n))
-        J[self._jac_structure] = values
+        try:
+            J[self._jac_structure] = self._jac_scalar(float(t), *map(float, u), *map(float, p))
+        except (ValueError, ZeroDivisionError, TypeError, OverflowError) as exc:  # TypeError: a complex value too
+            raise UndefinedValue(f"the Jacobian is undefined at this point ({exc})") from None
         return J
 
     def rhs_vec(self, t, U, P=None) -> np.ndarray:

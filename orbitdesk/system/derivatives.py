@@ -70,8 +70,15 @@ def jacobian_almost_everywhere(exprs, symbols) -> sp.Matrix:
     if not symbols:
         return sp.zeros(len(exprs), 0)
     flat = [_swap(e, _TO_FLAT) for e in exprs]
-    rows = [[_swap(sp.diff(e, s), _FROM_FLAT) for s in symbols] for e in flat]
+    rows = [[_real(_swap(sp.diff(e, s), _FROM_FLAT)) for s in symbols] for e in flat]
     return sp.Matrix(rows)
+
+
+def _real(derivative: sp.Expr) -> sp.Expr:
+    """A derivative that holds the imaginary unit is undefined for the real model: nan. d (-1)^x / dx =
+    (-1)^x i pi (sympy's log(-1)), where (-1)^x itself is real only at whole x: the evaluators returned a
+    complex number, which no Jacobian array holds."""
+    return sp.nan if derivative.has(sp.I) else derivative
 
 
 __all__ = ["jacobian_almost_everywhere"]

@@ -198,6 +198,7 @@ def models(draw):
 @pytest.mark.slow
 @budget(600)
 @given(models())
+@example("x'' = -y'\ny' = 1\nz' = x'' ^ x")  # a deep run of edits: d (-1)^x / dx is complex
 @example("x[n+1] = x\ny[n+1] = if(z < -x and not 838 / 40e-2 < 1, n, sqrt((13e5)))\nd1 = abs(13e-3)\n"
          "z[n+1] = atan2(atan2(151, 69e7), log10(energy))\n"
          "energy = if(max(-227, sign(69e7)) < tanh(sqrt((13e5))) and not (log(n)) < 1, 0.015, energy)")  # deep run

@@ -76,3 +76,29 @@ def test_vector_evaluators_take_both_branches_of_an_if_in_numpy_numbers():
         assert jac.shape == (1, 1, 3) and not np.isfinite(jac[0, 0, 0])
     values = system.derived_values(np.array([0.0, 1.0]), np.array([[2.0, 2.0]]))["d"]
     assert values.tolist() == [1.0, 0.5]  # 1 / (t + 1): the branch c = 0 is not taken
+
+
+def test_a_model_undefined_where_the_compiler_warms_up_compiles():
+    """The loops are warmed up on a model's kernels at states 0.5; log(x - 1) is undefined there, the warm-up
+    step failed and its dense output raised TypeError out of engine_for: every compiled run, sweep or
+    ensemble of such a model failed (found by the Jacobian fuzz example below)."""
+    from orbitdesk.engine import compiled as kernels
+
+    if not kernels.available():
+        pytest.skip("the compiler is turned off")
+    system = compile_model("x' = log(x - 1)\nx(0) = 2\n")
+    engine = kernels.engine_for(system, wait=True)
+    assert engine.compiled
+    out = drivers.flow_run(engine, "dop853", 0.0, 1.0, system.initial, system.param_values,
+                           grid=np.linspace(0.0, 1.0, 5)[1:])
+    assert WORD[out.code] == "ok" and out.y[0] == 2.0  # x = 2 is an equilibrium: log(1) = 0
+
+
+def test_a_jacobian_entry_that_is_not_real_is_undefined():
+    """d (-1)^x / dx = (-1)^x i pi: the Jacobian held a complex number, which raised TypeError out of jac()
+    (found by the fuzz of edited generated models: z' = x''^x with x'' = -1)."""
+    system = compile_model("x'' = -y'\ny' = 1\nz' = x'' ^ x\n")
+    J = system.jac(0.0, system.initial)
+    assert np.isnan(J[3, 0]) and J[0, 1] == 1.0 and np.count_nonzero(J) == 2
+    Jv = system.jac_vec(0.0, np.zeros((4, 2)))
+    assert np.isnan(Jv[3, 0]).all() and Jv.dtype == float
