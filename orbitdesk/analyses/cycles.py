@@ -15,7 +15,7 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy.stats import qmc
 
-from orbitdesk.analyses.conservative import NEUTRAL_FLOW, divergence_free
+from orbitdesk.analyses.conservative import NEUTRAL_FLOW, flow_reason, holds_at, structure
 from orbitdesk.engine.runs import Event, RunSettings, simulate
 from orbitdesk.analyses.equilibria import NONSMOOTH_WARNING
 from orbitdesk.analyses.newton import Singular, damped_newton
@@ -343,7 +343,7 @@ def _autonomous_cycle(system, p, flow, u_guess, start, period_guess, section, tr
     report(0.9)
     time, orbit = flow.sample(u0, 0.0, T, samples)
     return _cycle(system, T, u0, time, orbit, multipliers, trivial, stable, M, None, None, it, gap, warnings,
-                  flow.rtol)
+                  flow.rtol, p)
 
 
 def _travel(flow, u0, T) -> float:
@@ -417,7 +417,7 @@ def _forced_cycle(system, p, flow, u_guess, start, Tf, k_given, transient, max_i
             report(0.9)
             time, orbit = flow.sample(u0, 0.0, k * Tf, samples)
             return _cycle(system, k * Tf, u0, time, orbit, multipliers, None, stable, M, Tf, k, it, gap,
-                          warnings, flow.rtol)
+                          warnings, flow.rtol, p)
     raise CycleError(f"no periodic orbit found with a period of up to {MAX_FORCING_MULTIPLE} forcing "
                      f"periods ({failure})")
 
@@ -460,13 +460,13 @@ def _sorted_multipliers(M):
     return values[np.lexsort((-values.imag, -np.abs(values)))]
 
 
-CONSERVATIVE_NOTE = ("the flow is divergence-free (conservative): its Floquet multipliers stay on the unit "
-                     "circle and its periodic orbits come in families, so the orbit is neutral - neither "
-                     "attracting nor repelling - and nothing bifurcates here")
+CONSERVATIVE_NOTE = ("{why}: its Floquet multipliers stay on the unit circle and its periodic orbits come in "
+                     "families, so the orbit is neutral - neither attracting nor repelling - and nothing "
+                     "bifurcates here")
 
 
 def _cycle(system, T, u0, time, orbit, multipliers, trivial, stable, M, Tf, k, it, gap, warnings,
-           rtol: float = 1e-10) -> Cycle:
+           rtol: float = 1e-10, p=None) -> Cycle:
     amplitude = {name: float(np.ptp(orbit[i])) for i, name in enumerate(system.states)}
     state = {name: float(v) for name, v in zip(system.states, u0)}
     # the monodromy matrix is accurate to about the tolerance times its size: smaller multipliers are noise
@@ -477,8 +477,9 @@ def _cycle(system, T, u0, time, orbit, multipliers, trivial, stable, M, Tf, k, i
                         f"{resolution:.1g}): zero to within the accuracy of the monodromy matrix (a strongly "
                         "contracting direction); their printed values mean nothing")
     stability = "stable" if stable else "unstable"
-    if divergence_free(system):
-        warnings = [w for w in warnings if "at a bifurcation" not in w] + [CONSERVATIVE_NOTE]
+    if structure(system, p) == "flow" and holds_at(system, orbit, p):
+        warnings = [w for w in warnings if "at a bifurcation" not in w] + [
+            CONSERVATIVE_NOTE.format(why=flow_reason(system, p))]
         stable, stability = False, NEUTRAL_FLOW
     return Cycle(float(T), state, np.asarray(u0, dtype=float), time, orbit, amplitude, multipliers, trivial,
                  stable, M, Tf, k, it, gap, warnings, resolution, stability)

@@ -622,7 +622,7 @@ def _equilibrium(system, x, method, DG, p=None) -> Equilibrium | None:
     J = zero_round_off(J)
     kind, stable, ns, nu, nc, warnings, values, vectors = classify(J, is_map)
     stability = ""
-    if nc and neutral_point(system, nu, values, p):  # normal for a conservative system, not undecided
+    if nc and neutral_point(system, nu, values, p, x):  # normal for a conservative system, not undecided
         kind, stability, note = neutral_words(system, p)
         warnings = [w for w in warnings if "decide" not in w and "Neimark-Sacker" not in w] + [note]
     if system.nonsmooth:

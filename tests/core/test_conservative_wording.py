@@ -86,3 +86,79 @@ def test_dissipative_systems_keep_their_words():
     assert structure(damped) == ""
     (origin,) = find_equilibria(damped)
     assert origin.stability == "stable" and origin.kind == "stable focus"
+
+
+# Lotka-Volterra predator and prey, x' = a x - b x y, y' = -c y + d x y: not divergence-free (div f =
+# a - b y - c + d x), but f / (x y) is, so V = d x - c ln x + b y - a ln y is kept along every orbit
+# (Volterra 1926; closed form). The interior point (c/d, a/b) has eigenvalues +-i sqrt(a c) and is a
+# centre surrounded by the closed level curves of V (Hirsch, Smale & Devaney, Differential Equations,
+# Dynamical Systems and an Introduction to Chaos, ch. 11; from memory).
+LOTKA_VOLTERRA = "a = 1\nb = 0.5\nc = 0.75\nd = 0.25\nx' = a*x - b*x*y\ny' = -c*y + d*x*y\nx(0) = 4\ny(0) = 1\n"
+
+
+def test_lotka_volterra_interior_point_is_a_centre_by_its_jacobi_multiplier():
+    from orbitdesk.analyses.conservative import multiplier
+
+    system = compile_model(LOTKA_VOLTERRA)
+    assert structure(system) == "flow" and multiplier(system) == (-1, -1)  # 1/(x y)
+    points = sorted(find_equilibria(system), key=lambda e: e.vector[0])
+    origin, interior = points[0], points[-1]
+    assert interior.vector == pytest.approx([0.75 / 0.25, 1 / 0.5])
+    assert sorted(interior.eigenvalues.imag) == pytest.approx([-math.sqrt(0.75), math.sqrt(0.75)])
+    assert interior.kind == CENTRE_FLOW and interior.stability == NEUTRAL_FLOW
+    assert _clean(interior.warnings) and any("1/(x*y)" in w for w in interior.warnings)
+    assert origin.kind == "saddle" and origin.stability == "unstable"  # where 1/(x y) is infinite: no claim
+
+
+def test_lotka_volterra_cycle_is_neutral_and_keeps_its_conserved_quantity():
+    system = compile_model(LOTKA_VOLTERRA)
+    a, b, c, d = 1.0, 0.5, 0.75, 0.25
+    # a small cycle round the centre (10 % of its distance from the axes): its period tends to
+    # 2 pi / sqrt(a c) (the linearisation, closed form) as the amplitude shrinks
+    small = find_cycle(system, guess=[3.3, 2.0])
+    assert small.stability == NEUTRAL_FLOW and small.stable is False
+    assert small.period == pytest.approx(2 * math.pi / math.sqrt(a * c), rel=2e-3)
+    assert _clean(small.warnings)
+    big = find_cycle(system, guess=[4.0, 1.0])
+    assert big.stability == NEUTRAL_FLOW
+    x, y = big.orbit
+    V = d * x - c * np.log(x) + b * y - a * np.log(y)
+    assert np.ptp(V) < 1e-7 * abs(V.mean())  # on one level curve of the closed-form invariant
+
+
+def test_lotka_volterra_branch_is_neutral_without_hopf_points():
+    system = compile_model(LOTKA_VOLTERRA)
+    branches = steady_branches(system, "a", 0.5, 2.0)
+    interior = [br for br in branches.branches if np.all(br.points[0] > 1)]
+    assert interior and all(br.stability(i) == NEUTRAL_FLOW for br in interior for i in range(br.size))
+    assert not any(s.type == "hopf" for br in branches.branches for s in br.special)
+    # the interior point moves as (c/d, a/b) (closed form)
+    assert interior[0].points[1] == pytest.approx(interior[0].values / 0.5, rel=1e-8)
+
+
+def test_logistic_prey_is_not_conservative():
+    # with the prey's growth limited (x' = a x (1 - x/K) - b x y) the interior point is a stable focus:
+    # div(f / (x y)) = -a / (K y) != 0 and no power product of the states is a multiplier
+    system = compile_model("a = 1\nK = 8\nb = 0.5\nc = 0.6\nd = 0.2\nx' = a*x*(1 - x/K) - b*x*y\n"
+                           "y' = -c*y + d*x*y\nx(0) = 4\ny(0) = 1\n")
+    assert structure(system) == ""
+    interior = max(find_equilibria(system), key=lambda e: e.vector[0] * e.vector[1])
+    assert interior.stability == "stable" and "focus" in interior.kind
+
+
+def test_area_preserving_branch_has_no_torus_points():
+    # along the Hénon map's elliptic fixed points (b = -1, det = +1) every multiplier stays on the unit
+    # circle (mu^2 + 2 a x* mu + 1 = 0, |a x*| < 1 for a in [0.1, 1.5]): nothing bifurcates
+    system = compile_model("a = 0.5\nb = -1\nx[n+1] = 1 - a*x^2 + y\ny[n+1] = b*x\nx[0] = 0.1\ny[0] = 0\n")
+    branches = steady_branches(system, "a", 0.1, 1.5)
+    assert not any(s.type == "torus" for br in branches.branches for s in br.special)
+    assert NEUTRAL_MAP in {br.stability(i) for br in branches.branches for i in range(br.size)}
+
+
+def test_cycles_of_a_conservative_flow_are_not_continued_as_if_isolated():
+    from orbitdesk.analyses.continuation.cycles import cycle_branches
+    from orbitdesk.analyses.continuation.functions import ContinuationError
+
+    system = compile_model(DUFFING_CONSERVATIVE)
+    with pytest.raises(ContinuationError, match="families"):
+        cycle_branches(system, "k", 0.5, 2.0, guess=[1.0, 0.0])

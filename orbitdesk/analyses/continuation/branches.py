@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from orbitdesk.analyses.conservative import neutral_words
+from orbitdesk.analyses.conservative import holds_at, neutral_words
 from orbitdesk.analyses.cycles import CycleError, find_map_cycle
 from orbitdesk.analyses.equilibria import find_equilibria
 from orbitdesk.engine.progress import CancelToken, Reporter
@@ -71,6 +71,8 @@ def steady_branches(system: CompiledSystem, param: str, lo: float, hi: float, p=
         u, tangent, K, origin = queue.pop(0)
         problem = _problem(funcs, pv, k, K)
         x0 = np.append(np.asarray(u, dtype=float), pv[k]) if tangent is None else u
+        problem.conservative = bool(neutral_words(system, pv, free=(param,))[1]) and \
+            holds_at(system, x0[:-1], pv, free=(param,))
         if tangent is None:
             _scale_steps(settings, lo, hi, x0)
             x0, tangent = _first_point(problem, x0, settings)
@@ -204,7 +206,7 @@ def _branch(kind, system, param, curve: Curve, K, origin=None, pv=None) -> Branc
         specials.append(to_special(system, s))
     return Branch(kind, param, list(system.states), values, points, [d["stable"] for d in curve.data],
                   [d["spectrum"] for d in curve.data], specials, list(curve.reasons), map_period=K,
-                  neutral=neutral_words(system, pv, free=(param,))[1])
+                  neutral=neutral_words(system, pv, free=(param,))[1] if holds_at(system, points, pv, (param,)) else "")
 
 
 def to_special(system, s, state_size=None) -> Special:

@@ -30,6 +30,7 @@ import math
 
 import numpy as np
 
+from orbitdesk.analyses.conservative import flow_reason, structure
 from orbitdesk.analyses.cycles import CycleError, find_cycle
 from orbitdesk.engine.progress import CancelToken, Reporter
 from orbitdesk.system.compiled_system import MAP, CompiledSystem
@@ -157,6 +158,11 @@ def cycle_branches(system: CompiledSystem, param: str, lo: float, hi: float, p=N
     funcs = ModelFunctions(system)
     k = funcs.param_index(param)
     pv = (system.param_values if p is None else np.asarray(p, dtype=float)).astype(float).copy()
+    if structure(system, pv, free=(param,)) == "flow":
+        raise ContinuationError(f"{flow_reason(system, pv, (param,))} at every value of {param}: its cycles come "
+                                "in families, one through each point near a centre, not one isolated cycle that "
+                                f"could be followed as {param} changes; the cycle command (or the limit-cycle "
+                                "view) finds the cycle through a chosen point at each value")
     settings = settings or default_settings(lo, hi, 200)
     if hopf is not None:
         x0, tangent, problem = _from_hopf(funcs, pv, k, hopf, settings, max_period_factor)

@@ -55,6 +55,9 @@ class SteadyProblem:
         self.p_vector = np.array(p_vector, dtype=float)
         self.size = self.n + 1
         self.names = list(funcs.system.states)
+        # a conservative system's neutral points (conservative.py) have their eigenvalues (multipliers) on the
+        # imaginary axis (unit circle) all along a branch: no Hopf or torus test there, its sign is round-off
+        self.conservative = False
 
     def params(self, x) -> np.ndarray:
         pv = self.p_vector.copy()
@@ -121,7 +124,7 @@ class EquilibriumProblem(SteadyProblem):
 
     def tests(self, x, tangent, data, only=None):
         out = self.common_tests(x, tangent, only)
-        if only in (None, HOPF) and self.n >= 2:
+        if only in (None, HOPF) and self.n >= 2 and not self.conservative:
             out[HOPF] = pair_product(data["spectrum"], lambda a, b: a + b)
         return out
 
@@ -175,7 +178,7 @@ class FixedPointProblem(SteadyProblem):
         values = data["spectrum"]
         if only in (None, PERIOD_DOUBLING):
             out[PERIOD_DOUBLING] = float(np.prod(values + 1.0).real)
-        if only in (None, TORUS) and self.n >= 2:
+        if only in (None, TORUS) and self.n >= 2 and not self.conservative:
             out[TORUS] = pair_product(values, lambda a, b: a * b - 1.0)
         return out
 
