@@ -310,7 +310,8 @@ def _autonomous_cycle(system, p, flow, u_guess, start, period_guess, section, tr
 
     def converged(state):
         newton(state.iterations / max_iter)
-        return np.linalg.norm(state.residual[:n]) <= 1e-10 * _travel(flow, state.x[:n], state.x[n])
+        return np.linalg.norm(state.residual[:n]) <= 1e-10 * _travel(flow, state.x[:n], state.x[n]) + \
+            _resolution(flow, state.x[:n])
 
     try:
         state = damped_newton(residual, jacobian, np.append(u_ref, T), done=converged, max_iter=max_iter,
@@ -323,7 +324,7 @@ def _autonomous_cycle(system, p, flow, u_guess, start, period_guess, section, tr
     gap = float(np.linalg.norm(state.residual[:n]))
     if np.linalg.norm(flow.rhs(0.0, u0)) <= 1e-9 * scale:
         raise CycleError("the shooting converged to an equilibrium, not a periodic orbit")
-    if not gap <= 1e-8 * _travel(flow, u0, T):
+    if not gap <= 1e-8 * _travel(flow, u0, T) + 10 * _resolution(flow, u0):
         raise CycleError(f"no periodic orbit found near the guess: the shooting did not converge "
                          f"(return gap {gap:.3g} after {it} Newton steps)")
     if state.jacobian is None:
@@ -349,6 +350,12 @@ def _autonomous_cycle(system, p, flow, u_guess, start, period_guess, section, tr
 def _travel(flow, u0, T) -> float:
     """A length scale of the orbit: speed at u0 times the period (its length if the speed were uniform)."""
     return float(np.linalg.norm(flow.rhs(0.0, u0))) * T
+
+
+def _resolution(flow, u0) -> float:
+    """How closely a run over one period can return at all: the tolerances at the state's size (a small
+    cycle far from the origin, say round a centre at (3, 2), travels less than the runs' error allows)."""
+    return 10 * (flow.rtol * float(np.max(np.abs(u0), initial=0.0)) + flow.atol)
 
 
 def _return_time(system, p, u_ref, normal, point, t_max, why, method, cancel, report) -> float:

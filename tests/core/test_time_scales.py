@@ -94,7 +94,7 @@ def test_conservative_cycle_is_neutral_and_not_at_a_bifurcation():
     # 4 K(m) / sqrt(1 + A^2), m = A^2 / (2 (1 + A^2)) (closed form; scipy's ellipk takes m)
     from scipy.special import ellipk
 
-    from orbitdesk.analyses.cycles import divergence_free
+    from orbitdesk.analyses.conservative import divergence_free
 
     system = compile_model("x'' = -x - x^3\nx(0) = 1\n")
     assert divergence_free(system) and not divergence_free(van_der_pol(1.0))
