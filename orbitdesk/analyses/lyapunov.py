@@ -294,7 +294,10 @@ def _flow_spectrum(system, p, u, t0, t1, transient, dt_renorm, dt, settings, can
         message = {"diverged": f"the solution blows up near {where}",
                    "undefined": (system.explain_undefined(out.t, out.y, p) or
                                  f"an expression is undefined (or the tangent vectors collapsed) near {where}"),
-                   "step_failed": out.note or f"the step size collapsed near {where}; the system may be stiff",
+                   "step_failed": out.note or (f"the step size of {info.label} collapsed near {where}: it cannot follow "
+                                              "the solution there at these tolerances" + (
+                                                  "" if info.stiff else "; if the system is stiff there, "
+                                                  "the stiff method (--method stiff) can")),
                    "cancelled": "cancelled"}[status]
     result = _sorted_result(out.sums, out.rows, out.row_t, "flow", QR, out.averaged,
                             dt=step if method == "rk4" else None, renorm_interval=interval,

@@ -270,7 +270,8 @@ def plane_section(system: CompiledSystem, p=None, u0=None, coordinate: str = "",
         if not raw_t and t - t_begin >= quiet:
             message = (f"no crossing of {coordinate} = {value:g} in {t - t_begin:.4g} time units after the "
                        f"transient (the search gives up after {quiet:.4g} time units without a crossing: {why}); a longer "
-                       "duration (--duration) searches further, or the orbit may stay on one side of the plane")
+                       "duration (--duration) searches further, unless the orbit stays on one side of the plane (the run's "
+                       f"range of {coordinate} shows whether it reaches {value:g})")
             break
         found = len(keep)
         try:

@@ -42,6 +42,7 @@ def test_stiff_methods_meet_the_tolerance_at_every_sample(method, rtol):
     assert worst_ratio(run, lam, rtol, 1e-2 * rtol) <= 3.0
 
 
+@pytest.mark.fallback
 def test_rk45_meets_the_tolerance_at_every_sample():
     lam = 1e3  # stiff enough that the explicit step sits at its stability limit
     run = simulate(lag(lam), RunSettings(method="rk45", rtol=1e-8, atol=1e-10, t_end=20, samples=4001))
@@ -61,6 +62,7 @@ def test_rk4_samples_are_as_accurate_as_its_steps():
     assert at_samples <= 3 * at_steps + 1e-12
 
 
+@pytest.mark.fallback
 def test_dop853_meets_the_tolerance_at_every_sample():
     # at the stability limit (|lambda h| near 6) the 7th-order dense output was off by 0.3e-6 (30 times the
     # tolerance) while the step ends were right to 3e-9; the defect check reads such steps' samples off
@@ -78,6 +80,28 @@ def test_dop853_samples_of_a_non_stiff_flow_meet_a_loose_tolerance():
     run = simulate(system, RunSettings(method="dop853", rtol=1e-5, atol=1e-7, t_end=6, samples=6001))
     err = np.abs(run.states[0] - np.cos(run.time)) / (1e-7 + 1e-5 * np.maximum(np.abs(np.cos(run.time)), 1.0))
     assert float(np.max(err)) <= 3.0
+
+
+@pytest.mark.fallback
+@pytest.mark.parametrize("method", ["dop853", "rk45"])
+def test_sweep_members_meet_the_tolerance_at_samples_and_crossings(method):
+    # the member loops (sweeps, ensembles) read points as a single run does: strobe samples of
+    # y' = -lambda (y - a sin t) + a cos t, y(0) = 0 (closed form y = a sin t) at the explicit methods'
+    # stability limit, and the crossings of y = 1/4 rising at t = asin(1/(4a)) + 2 pi k
+    from orbitdesk.analyses.sweep import PLANE, STROBE, SweepSettings, sweep
+
+    system = compile_model("a = 1\nlam = 1000\ny' = -lam*(y - a*sin(t)) + a*cos(t)\ny(0) = 0\n")
+    values = np.array([0.5, 1.0, 2.0])
+    common = dict(transient=1.0, rtol=1e-8, atol=1e-10, method=method)
+    strobe = sweep(system, "a", values, SweepSettings(mode=STROBE, period=0.37, samples=60, **common))
+    exact = values[:, None] * np.sin(strobe.times)
+    assert list(strobe.status) == ["ok"] * 3
+    assert float(np.max(np.abs(strobe.samples - exact) / (1e-10 + 1e-8 * np.maximum(np.abs(exact), 1.0)))) <= 3.0
+    plane = sweep(system, "a", values, SweepSettings(mode=PLANE, plane=("y", 0.25), direction=1, samples=8, **common))
+    for times, a in zip(plane.times, values):
+        phase = (times - np.arcsin(0.25 / a)) / (2 * np.pi)
+        assert np.abs(phase - np.round(phase)).max() * 2 * np.pi < 1e-7
+        assert times.size == 8
 
 
 def test_the_interpolant_check_redoes_long_steps_and_lets_them_grow_again():

@@ -139,8 +139,8 @@ class CycleProblem:
             return (f"the cycle shrank to an equilibrium at {self.funcs.system.parameters[self.k]} = {x[-1]:.6g} "
                     "(a Hopf point)")
         if x[-2] > self.max_period:
-            return (f"the period grew beyond {self.max_period:.6g} (the cycle may be approaching a "
-                    "homoclinic orbit)")
+            return (f"the period grew beyond {self.max_period:.6g}, the longest this continuation follows (a "
+                    "period growing without bound is the sign of a homoclinic orbit or a saddle-node on the cycle)")
         return None
 
 

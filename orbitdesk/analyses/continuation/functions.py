@@ -182,7 +182,9 @@ class ModelFunctions:
         z0 = np.concatenate([np.asarray(u0, dtype=float), np.eye(n).ravel(), np.zeros(n if param is not None else 0)])
         z = integrate(self.stacked_rhs(param, p), z0, t0, t1, rtol, atol)
         if z is None or not np.all(np.isfinite(z)):
-            raise ContinuationError("the integration over one period failed (the solution may blow up)")
+            raise ContinuationError(f"the integration over one period (t = {t0:.6g} to {t1:.6g}, DOP853 at rtol "
+                                    f"{rtol:g}) stopped short: the state or its tangent matrix became undefined "
+                                    "or too large, or the step size collapsed")
         w = z[n + n * n:] if param is not None else np.zeros(n)
         return z[:n], z[n:n + n * n].reshape(n, n), w
 
