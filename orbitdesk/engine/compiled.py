@@ -23,12 +23,14 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from types import ModuleType, SimpleNamespace
 
+import numpy as np
+
 from orbitdesk.system import private_cache
 from orbitdesk.system.codegen import HEADER, kernel_source
 from orbitdesk.system.compiled_system import UNDEFINED_ERRORS
-from orbitdesk.engine import explicit_rk, jitting, maps, members, stochastic, tangent
+from orbitdesk.engine import explicit_rk, jitting, maps, members, members_fixed, stochastic, tangent
 
-LOOP_MODULES = (explicit_rk, maps, tangent, members, stochastic)
+LOOP_MODULES = (explicit_rk, maps, tangent, members, members_fixed, stochastic)
 _SIGNATURES = {}  # kernels compiled as cfuncs on arrays (sde); model: inlined into model_at, on pointers
 # the loops' entry to the model's kernel: its arrays' data as pointers (jitting.at), made arrays again
 _MODEL_AT = """
@@ -178,8 +180,30 @@ def python_engine(system) -> Engine:
     if cached is None:
         kernels = _exec_module(module_source(system, jit=False), f"py{id(system)}")
         cached = system.__dict__["_python_engine"] = Engine(jitting.python_loops(*LOOP_MODULES), kernels, False,
-                                                            module_source(system, jit=False, batch=True))
+                                                            module_source(system, jit=False, batch=True),
+                                                            numpy_batch(system))
     return cached
+
+
+def numpy_batch(system):
+    """The batched kernel of the plain-Python engine: ``batch(which, T, z, p, out, count)`` as
+    ``codegen.batch_source`` defines it, each row one numpy expression over the members (the system's
+    vectorised evaluators: f, and the Jacobian's structural entries times the tangent vectors) instead
+    of a Python loop over them. Undefined values come out as NaN and a division by zero as infinite,
+    as in the compiled kernels (numpy's error model)."""
+    n = system.n_states
+    rows, cols = system.jac_structure
+
+    def batch(which, T, z, p, out, count):
+        t, U, P = T[:count], z[:n, :count], p[:, :count]
+        out[:n, :count] = system.rhs_vec(t, U, P)
+        if which:
+            V = z[n:n + n * which, :count].reshape(n, which, count)
+            JV = np.zeros((n, which, count))
+            np.add.at(JV, rows, system.jac_entries_vec(t, U, P)[:, None, :] * V[cols])
+            out[n:n + n * which, :count] = JV.reshape(n * which, count)
+
+    return batch
 
 
 def is_compiled(system) -> bool:

@@ -22,6 +22,7 @@ from orbitdesk.engine.status import C_CANCELLED, C_STEP_FAILED
 
 PAUSE_STEPS = 512
 MEMBER_PAUSE_STEPS = 5_000  # ensembles: steps between pauses (summed over members)
+MEMBER_PAUSE_CAP = 500_000  # compiled fixed-step members: at most this many (_member_budget)
 # a run whose pace would need more steps than the step limit (limits.py; judged after STEP_CHECK_AFTER
 # steps) ends with step_failed: a solution sliding along a kink (sign, abs, if) otherwise steps for days
 STEP_CHECK_AFTER = 100_000
@@ -404,6 +405,15 @@ def _block(N, nz, n_params):
             np.zeros((nz, B)), np.zeros(B), np.zeros((MS_ROWS, B)), np.zeros(3))
 
 
+def _member_budget(work, compiled) -> int:
+    """Member-steps between pauses of the lean loop: MEMBER_PAUSE_STEPS, or for a long compiled job a
+    64th of it (at most MEMBER_PAUSE_CAP: a few milliseconds), so pausing costs little against steps of
+    a few nanoseconds and progress still moves in small parts."""
+    if not compiled or not math.isfinite(work):
+        return MEMBER_PAUSE_STEPS
+    return int(min(MEMBER_PAUSE_CAP, max(MEMBER_PAUSE_STEPS, work / 64)))
+
+
 def _judge_members(MS, flying, t0, ends, compiled, paces, notes) -> None:
     """Each member in flight judged by its pace as a run is (``_Pace``); one whose pace would need more
     steps than the limit gets MS[R_GIVE_UP] set (the loop stops it with step_failed) and a note. Only
@@ -464,12 +474,22 @@ def members_run(engine, name, t0, t_end, U0, P, rtol=1e-8, atol=1e-10, max_step=
     work = _block(N, nz, rows.shape[1])
     g = engine.batch
     notes, paces = {}, {}
-    advance = engine.entry("members_advance")
+    outputs = (float(bound), grid, samples, plane_rows, dirs, terminal, ev_t, ev_y, ev_count, codes, t_reached, steps,
+               keep, int(m), float(interval), bool(keep_going), sums, *work)
+    if not adaptive and N and np.all(ends == ends[0]):  # one step, one end: the lean loop (members_fixed.py)
+        fixed = engine.entry("members_fixed")
+        budget = _member_budget(N * abs(ends[0] - t0) / max_step, engine.compiled)
+
+        def advance():
+            return fixed(engine.f, g, U, rows, float(t0), ends, max_step, *outputs, budget)
+    else:
+        adaptive_loop = engine.entry("members_advance")
+
+        def advance():
+            return adaptive_loop(engine.f, g, kind, adaptive, U, rows, float(t0), ends, rtol, atol, max_step, *outputs,
+                                 MEMBER_PAUSE_STEPS)
     while True:
-        code = advance(engine.f, g, kind, adaptive, U, rows, float(t0), ends, rtol, atol, max_step,
-                       float(bound), grid, samples, plane_rows, dirs, terminal, ev_t, ev_y,
-                       ev_count, codes, t_reached, steps, keep, int(m), float(interval),
-                       bool(keep_going), sums, *work, MEMBER_PAUSE_STEPS)
+        code = advance()
         if code != PAUSED:
             break
         _judge_members(work[-2], int(work[-1][0]), t0, ends, engine.compiled, paces, notes)
@@ -542,6 +562,8 @@ def warm_up(engine) -> None:
         stepper.t_old, stepper.t = 0.0, 1e-9  # output's loops are compiled all the same (on NaN values)
     stepper.dense_output()(5e-10)
     members_run(engine, "dop853", 0.0, 1e-9, y0[:, None], p, grid=np.array([1e-9]), planes=planes, max_events=1)
+    members_run(engine, "rk4", 0.0, 1e-9, y0[:, None], p, dt=1e-9, grid=np.array([1e-9]), planes=planes,
+                max_events=1, tangents=1)
     if hasattr(k, "sde"):  # a model with noise (engine/stochastic.py)
         from orbitdesk.engine.stochastic import warm_up_sde
 

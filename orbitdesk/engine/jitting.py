@@ -57,6 +57,18 @@ def noref(f):
     return f
 
 
+def numpy_version(plain):
+    """Mark a block helper (``@noref``) whose plain-Python version is ``plain``: the same arithmetic on
+    whole slices with numpy. The element-by-element loops numba compiles to a few instructions cost a
+    Python bytecode each when the loops run as plain Python (ORBITDESK_NO_JIT, or before numba is
+    ready); ``python_loops`` puts ``plain`` in their place."""
+    def mark(f):
+        f._orbitdesk_numpy = plain
+        return f
+
+    return mark
+
+
 def at(a):
     """What the loops hand the model's kernel for the array ``a``: in plain Python the array itself; in
     the compiled loops a pointer to its data (``_numba_at``: C-contiguous arrays only), which the
@@ -95,7 +107,9 @@ def _loops(modules, wrap, overrides=None) -> SimpleNamespace:
             namespace.update(overrides() if overrides else {})
             for name, value in list(namespace.items()):
                 kind = getattr(value, _MARK, None)
-                if kind is not None:
+                if kind is not None and wrap is _plain and hasattr(value, "_orbitdesk_numpy"):
+                    namespace[name] = value._orbitdesk_numpy
+                elif kind is not None:
                     copy = FunctionType(value.__code__, namespace, name, value.__defaults__, value.__closure__)
                     copy.__module__, copy.__qualname__ = value.__module__, value.__qualname__
                     namespace[name] = wrap(copy, kind)

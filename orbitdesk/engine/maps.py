@@ -12,6 +12,7 @@ import numpy as np
 
 from orbitdesk.engine.explicit_rk import PAUSED, state_code
 from orbitdesk.engine.jitting import at, loop
+from orbitdesk.engine.members import load_member
 from orbitdesk.engine.tangent import _record, gram_schmidt
 
 MERGED = -2  # map_pair: the two orbits met (no separation left to measure), a code of this loop only
@@ -121,7 +122,6 @@ def members_iterate(g, U, P, n0, n_end, keep_from, bound, samples, codes, reache
     W = np.empty((n, max(m, 1)))
     norms = np.empty(max(m, 1))
     K = samples.shape[1]
-    shared = P.shape[0] == 1
     if n_end <= n0:  # nothing to iterate
         for i in range(N):
             codes[i] = 0
@@ -136,10 +136,7 @@ def members_iterate(g, U, P, n0, n_end, keep_from, bound, samples, codes, reache
         while count < B and BS[1] < N:  # free columns take the members waiting
             i = int(BS[1])
             BS[1] += 1
-            for j in range(nz):
-                Z[j, count] = U[i, j]
-            for j in range(Pb.shape[0]):
-                Pb[j, count] = P[0, j] if shared else P[i, j]
+            load_member(U, P, i, Z, Pb, count)
             KS[count] = n0
             BS[3 + count] = i
             for j in range(m):

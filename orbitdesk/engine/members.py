@@ -87,26 +87,53 @@ def _swap(A, a, b):
         A[r, b] = v
 
 
-@loop
-def _start(g, kind, m, adaptive, c, i, U, P, Z, Pb, K, MS, t0, t_end, t_keep, rtol, atol, max_step, T1, Z1, P1, O1,
-           tmp, tmp2):
-    """Put member i into column c: its state, parameters, f at the start and its first step.
-    Returns a status code (2: f undefined at the start)."""
-    nz = Z.shape[0]
-    for j in range(nz):
+@noref
+def load_member(U, P, i, Z, Pb, c):
+    """Member i's state (row i of U) and parameters (row i of P, or its only row) into column c."""
+    for j in range(Z.shape[0]):
         Z[j, c] = U[i, j]
     shared = P.shape[0] == 1
     for j in range(Pb.shape[0]):
         Pb[j, c] = P[0, j] if shared else P[i, j]
-    end = t_end[i]
-    direction = 1.0 if end > t0 else -1.0
+
+
+@noref
+def enter_member(U, P, i, Z, Pb, MS, c, t0, end, t_keep):
+    """Member i into column c at t0 (``load_member``), its rows of MS afresh (sampling from the start
+    when there is no transient before ``t_keep``)."""
+    load_member(U, P, i, Z, Pb, c)
     for r in range(MS_ROWS):
         MS[r, c] = 0.0
     MS[R_T, c] = t0
     MS[R_END, c] = end
     MS[R_ID, c] = i
     MS[R_ISTART, c] = t0
-    MS[R_SAMP, c] = 0.0 if (t_keep - t0) * direction > 0.0 else 1.0
+    MS[R_SAMP, c] = 0.0 if (t_keep - t0) * (1.0 if end > t0 else -1.0) > 0.0 else 1.0
+
+
+@noref
+def _drop(c, count, Z, Y1, Pb, MS, K):
+    """Column c freed: the last column of the block moves into it. Returns the new count."""
+    last = count - 1
+    if last != c:
+        _swap(Z, c, last)
+        _swap(Y1, c, last)
+        _swap(Pb, c, last)
+        _swap(MS, c, last)
+        for s in range(K.shape[0]):
+            _swap(K[s], c, last)
+    return last
+
+
+@loop
+def _start(g, kind, m, adaptive, c, i, U, P, Z, Pb, K, MS, t0, t_end, t_keep, rtol, atol, max_step, T1, Z1, P1, O1,
+           tmp, tmp2):
+    """Put member i into column c: its state, parameters, f at the start and its first step.
+    Returns a status code (2: f undefined at the start)."""
+    nz = Z.shape[0]
+    end = t_end[i]
+    direction = 1.0 if end > t0 else -1.0
+    enter_member(U, P, i, Z, Pb, MS, c, t0, end, t_keep)
     y = Z[:, c]
     p = Pb[:, c]
     K0 = K[0, :, c]
@@ -357,15 +384,7 @@ def members_advance(f, g, kind, adaptive, U, P, t0, t_end, rtol, atol, max_step,
                 else:
                     moved = True
                 if moved:  # the last column moves into this one (its step of this round not yet looked at)
-                    last = count - 1
-                    if last != c:
-                        _swap(Z, c, last)
-                        _swap(Y1, c, last)
-                        _swap(Pb, c, last)
-                        _swap(MS, c, last)
-                        for s in range(K.shape[0]):
-                            _swap(K[s], c, last)
-                    count -= 1
+                    count = _drop(c, count, Z, Y1, Pb, MS, K)
                     BS[0] = count
                     continue
             c += 1

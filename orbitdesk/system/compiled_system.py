@@ -281,14 +281,24 @@ class CompiledSystem:
     def jac_vec(self, t, U, P=None) -> np.ndarray:
         """Jacobians for many members: shape (n_states, n_states, N)."""
         U = np.asarray(U, dtype=float)
-        P = np.asarray(self.param_values if P is None else P, dtype=float)
         n = self.n_states
+        J = np.zeros((n, n) + U.shape[1:])
+        J[self._jac_structure] = self.jac_entries_vec(t, U, P)
+        return J
+
+    def jac_entries_vec(self, t, U, P=None) -> np.ndarray:
+        """The Jacobian's structural entries (rows and columns: ``jac_structure``) for many members:
+        shape (entries, N); a large model's dense Jacobians would not fit."""
+        U = np.asarray(U, dtype=float)
+        P = np.asarray(self.param_values if P is None else P, dtype=float)
         with np.errstate(all="ignore"):
             values = self._jac_vector(np.asarray(t, dtype=float), *U, *P)  # numpy's numbers, as rhs_vec
-        shape = U.shape[1:]
-        J = np.zeros((n, n) + shape)
-        J[self._jac_structure] = _stack(values, shape)
-        return J
+        return _stack(values, U.shape[1:])
+
+    @property
+    def jac_structure(self):
+        """(rows, cols) of the Jacobian's structural entries."""
+        return self._jac_structure
 
     def derived_values(self, t, Y, p=None) -> dict[str, np.ndarray]:
         """Derived quantities along a run: t has shape (K,), Y shape (n_states, K)."""
