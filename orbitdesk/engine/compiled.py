@@ -191,11 +191,11 @@ def numpy_batch(system):
     vectorised evaluators: f, and the Jacobian's structural entries times the tangent vectors) instead
     of a Python loop over them. Undefined values come out as NaN and a division by zero as infinite,
     as in the compiled kernels (numpy's error model)."""
-    n = system.n_states
+    n, n_p = system.n_states, len(system.parameters)
     rows, cols = system.jac_structure
 
-    def batch(which, T, z, p, out, count):
-        t, U, P = T[:count], z[:n, :count], p[:, :count]
+    def batch(which, T, z, p, out, count):  # p may have a padding row (a model without parameters)
+        t, U, P = T[:count], z[:n, :count], p[:n_p, :count]
         out[:n, :count] = system.rhs_vec(t, U, P)
         if which:
             V = z[n:n + n * which, :count].reshape(n, which, count)
