@@ -134,7 +134,7 @@ SHAKEN_BEAM = sample(
          "energy out and nothing puts it back.",
          {"parameters": {"gamma": 0.0}, "initial": {"x": 0.2, "x'": 0.9},
           "open_views": ["timeseries", "phase_plane"],
-          "views": {"timeseries": {"series": ["x", "energy"]}}}),
+          "views": {"timeseries": {"series": ["x", "energy"]}, "phase_plane": {"seeds": [], "range": []}}}),
         ("Three rest positions, two of them stable",
          "Without shaking the strip can rest wherever `x' = 0` and `x - x^3 = 0`: at `x = -1`, `0` and "
          "`+1`. Linearising the equation there tells them apart:\n\n"
@@ -143,18 +143,21 @@ SHAKEN_BEAM = sample(
          "- standing straight up, `x = 0`, they are `0.86` and `-1.16`: a **saddle**. The strip could "
          "balance there in principle, but the smallest push sends it to one side.\n\n"
          "Which magnet wins depends on where the strip starts. Started at `x = -0.4` with speed 0.9 "
-         "it swings over the hump and ends on the right; started at `x = -0.6` with speed 0.5 (this "
-         "step) it stays on the left. The stable curves of the saddle divide the phase plane into the "
-         "two *basins*, which wind around each other in bands.",
+         "it swings over the hump and ends on the right (the second path in the phase plane, started "
+         "there as a click would); started at `x = -0.6` with speed 0.5 (this step's run) it stays on "
+         "the left. The stable curves of the saddle divide the phase plane into the two *basins*, "
+         "which wind around each other in bands.",
          {"parameters": {"gamma": 0.0}, "initial": {"x": -0.6, "x'": 0.5},
-          "open_views": ["phase_plane", "timeseries"]}),
+          "open_views": ["phase_plane", "timeseries"],
+          "views": {"phase_plane": {"seeds": [{"u0": [-0.4, 0.9], "both": False}],
+                                    "range": [[-1.75, 1.75], [-1.2, 1.2]]}}}),
         ("Gentle shaking: a steady wobble",
          "Now the shaker runs with `gamma = 0.2`. After a short settling time the strip wobbles about "
          "one magnet, once per shaking period `T = 2 pi / omega`, about 5.24.\n\n"
          "The **stroboscopic section** looks at the strip once per period, like a flash photograph. "
          "A motion that repeats every period shows up as a *single dot*.",
          {"parameters": {"gamma": 0.2}, "open_views": ["timeseries", "phase_plane", "sections"],
-          "section": {"strobe": round(FORCING_PERIOD, 6)}}),
+          "views": {"phase_plane": {"seeds": [], "range": []}}, "section": {"strobe": round(FORCING_PERIOD, 6)}}),
         ("Harder shaking: period doubling",
          "At `gamma = 0.28` the wobble repeats only every *second* shaking period: the section shows "
          "**two dots**, and the time series has a tall and a short swing taking turns. A little "
@@ -223,7 +226,7 @@ z(0) = 1
     {"timeseries": {"series": ["x"]}, "phase_space_3d": {"axes": ["x", "y", "z"]},
      "phase_plane": {"x": "x", "y": "z"}, "equilibria": {},
      "sections": {"kind": "plane", "coordinate": "z", "value": 27.0, "direction": "up", "count": 500},
-     "lyapunov": {"flow": {"length": 400.0, "transient": 20.0}}},
+     "lyapunov": {"flow": {"length": 10000.0, "transient": 20.0}}},
     "Water warmed from below in an upright ring of tubing: still, circulating, or reversing at random.",
     [
         ("Too little heat: the water stays still",
@@ -268,7 +271,10 @@ z(0) = 1
          "- a zero exponent, along the path itself;\n"
          "- a strongly negative one: the flattening onto the sheet.\n\n"
          "A check you can make by hand: the three add up to `-(sigma + 1 + beta)`, about -13.67, "
-         "because the flow shrinks every volume at that constant rate.",
+         "because the flow shrinks every volume at that constant rate.\n\n"
+         "With **Until settled** ticked the view keeps averaging until every estimate's standard error "
+         "is small against its size (the zero exponent needs the longest: several thousand time units); "
+         "the table gives each exponent with that error.",
          {"parameters": {"r": 28.0}, "open_views": ["lyapunov", "timeseries"]}),
     ])
 
@@ -398,6 +404,8 @@ CLOCK_REACTION = sample(
 
 # ---------------------------------------------------------------- predators and prey in a pond
 
+POND_PLANE = {"phase_plane": {"range": [[-0.5, 10.5], [-0.7, 2.0]]}}  # both axes, every rest state
+
 POND_PREDATORS = sample(
     "pond_predators.orbitdesk", "Water fleas and fish in a garden pond",
     """\
@@ -430,7 +438,8 @@ fish(0) = 1
          "Put in twenty fish (`fish(0) = 0.2`). They feast, multiply, eat the fleas down, then starve "
          "back. The booms and busts come round again and again, each a little smaller, until both "
          "counts settle.",
-         {"initial": {"fleas": 8.0, "fish": 0.2}, "open_views": ["timeseries", "phase_plane"]}),
+         {"initial": {"fleas": 8.0, "fish": 0.2}, "open_views": ["timeseries", "phase_plane"],
+          "views": POND_PLANE}),
         ("Nullclines: where a count stands still",
          "The phase plane draws the **nullclines**, the curves where one count is momentarily "
          "not changing:\n\n"
@@ -440,7 +449,7 @@ fish(0) = 1
          "`fleas = death / (efficiency attack)`, here 3.\n\n"
          "Where a fleas-nullcline meets a fish-nullcline, nothing changes: an equilibrium. Between "
          "them the arrows show the turning, counter-clockwise motion of the booms and busts.",
-         {"initial": {"fleas": 8.0, "fish": 0.2}, "open_views": ["phase_plane"]}),
+         {"initial": {"fleas": 8.0, "fish": 0.2}, "open_views": ["phase_plane"], "views": POND_PLANE}),
         ("Three kinds of rest",
          "The equilibria view finds three rest states:\n\n"
          "- the empty pond `(0, 0)`: a **saddle**, since fleas put in alone grow away from it;\n"
@@ -448,7 +457,7 @@ fish(0) = 1
          "- both together `(3, 1.25)`: a **stable focus**, eigenvalues `-0.19 ± 0.58i`. The complex "
          "pair is the boom-and-bust swing; the negative real part damps it.",
          {"initial": {"fleas": 8.0, "fish": 0.2}, "open_views": ["equilibria", "phase_plane"],
-          "selected_equilibrium": 1}),
+          "views": POND_PLANE, "selected_equilibrium": 1}),
         ("A richer pond",
          "Feed the algae so the pond can hold 20 hundred fleas. Surprisingly, the fleas at the shared "
          "rest state stay at 3: more food only means **more fish** (1.7 instead of 1.25). The swings "
@@ -458,10 +467,10 @@ fish(0) = 1
         ("Fish that die too fast",
          "Raise the fish death rate to 2. Fish now need 10 hundred fleas to break even, more than "
          "the pond can hold, and they die out. The state with fleas only, `(8, 0)`, has turned into a "
-         "**stable node**; the shared state has moved to a negative number of fish, outside the "
-         "meaningful part of the plane.",
+         "**stable node**; the shared state has moved to a negative number of fish, `(10, -0.5)`, "
+         "below the axis, outside the meaningful part of the plane.",
          {"parameters": {"death": 2.0}, "initial": {"fleas": 4.0, "fish": 1.0},
-          "open_views": ["timeseries", "phase_plane", "equilibria"]}),
+          "open_views": ["timeseries", "phase_plane", "equilibria"], "views": POND_PLANE}),
     ])
 
 # ---------------------------------------------------------------- insect generations
@@ -483,7 +492,7 @@ x[0] = 0.1
     {"timeseries": {"series": ["x"]}, "equilibria": {},
      "sweep": {"parameter": "r", "from": 2.5, "to": 4.0, "count": 600, "observe": "x", "transient": 500,
                "samples": 200},
-     "lyapunov": {"map": {"steps": 5000, "transient": 500}}},
+     "lyapunov": {"map": {"steps": 50000, "transient": 500}}},
     "A yearly count that settles, alternates, doubles its period and turns chaotic: the logistic map.",
     [
         ("A steady population",
@@ -552,11 +561,13 @@ energy = theta'^2/2 + (g/L)*(1 - cos(theta))    # per unit of mass times L^2; 0 
          "Released from 0.3 radians (about 17 degrees) the pendulum swings with a period close to "
          "`2 pi sqrt(L / g)`, about 2.006 s for a one-metre rod. In the phase plane the motion is a "
          "small closed oval around the resting point.",
-         {"initial": {"theta": 0.3, "theta'": 0.0}, "open_views": ["timeseries", "phase_plane"]}),
+         {"initial": {"theta": 0.3, "theta'": 0.0}, "open_views": ["timeseries", "phase_plane"],
+          "views": {"phase_plane": {"seeds": [], "range": []}}}),
         ("Wide swings take longer",
          "Released from 2.5 radians (143 degrees) the pendulum lingers near the top of each swing, and "
          "the period grows to about 3.30 s. The oval in the phase plane has become lemon-shaped.",
-         {"initial": {"theta": 2.5, "theta'": 0.0}, "open_views": ["timeseries", "phase_plane"]}),
+         {"initial": {"theta": 2.5, "theta'": 0.0}, "open_views": ["timeseries", "phase_plane"],
+          "views": {"phase_plane": {"seeds": [], "range": []}}}),
         ("Energy is kept",
          "Plot the derived quantity **energy** next to the angle. Without friction it is a flat line: "
          "the swing trades motion for height and back, and nothing is lost. A flat energy curve is "
@@ -569,24 +580,32 @@ energy = theta'^2/2 + (g/L)*(1 - cos(theta))    # per unit of mass times L^2; 0 
          "`angle theta`, so the phase plane shows the angle wrapped to (-pi, pi]: each turn crosses the "
          "strip once as a wavy line, leaving at `theta = pi` and coming back in at `-pi`, the same "
          "upright position.",
-         {"initial": {"theta": 0.0, "theta'": 6.5}, "open_views": ["phase_plane", "timeseries"]}),
+         {"initial": {"theta": 0.0, "theta'": 6.5}, "open_views": ["phase_plane", "timeseries"],
+          "views": {"phase_plane": {"seeds": [], "range": []}}}),
         ("The separatrix",
          "Between swinging and turning lies a single borderline motion with energy exactly `2 g / L`: "
          "a push of `theta'(0) = 2 sqrt(g / L)`, about 6.264, sends the pendulum creeping up towards "
          "the top for ever, never quite arriving. In the phase plane this curve, the **separatrix**, "
          "joins the upside-down positions.\n\n"
+         "The phase plane shows the two sides and the border: the run, a push of 6.2, swings back just "
+         "short of the top; a push of 6.3 (started as a second trajectory, as a click in the plane "
+         "does) goes over it; and the separatrix itself, started at 6.264 forwards and backwards in "
+         "time and at -6.264 too, closes the eye between the two upright positions.\n\n"
          "The equilibria view shows why: hanging down is a **centre** (the linearisation alone "
          "cannot settle this; the kept energy does), and standing on end, `theta = pi`, is a "
-         "**saddle**, listed once because `theta` is an angle (`-pi` is the same position). Try pushes "
-         "of 6.2 and 6.3 to see the two sides.",
-         {"initial": {"theta": 0.0, "theta'": 6.2}, "open_views": ["phase_plane", "equilibria"]}),
+         "**saddle**, listed once because `theta` is an angle (`-pi` is the same position).",
+         {"initial": {"theta": 0.0, "theta'": 6.2}, "open_views": ["phase_plane", "equilibria"],
+          "views": {"phase_plane": {"range": [[-3.4, 3.4], [-7.2, 7.2]], "seeds": [
+              {"u0": [0.0, 6.3], "both": False},
+              {"u0": [0.0, _rounded(2 * math.sqrt(G))], "both": True},
+              {"u0": [0.0, -_rounded(2 * math.sqrt(G))], "both": True}]}}}),
         ("Friction",
          "Add friction, `c = 0.3`. Each swing is a little smaller than the one before, the energy "
          "curve steps down, and the phase-plane path spirals into the resting point, which has "
          "become a **stable focus**.",
          {"parameters": {"c": 0.3}, "initial": {"theta": 2.5, "theta'": 0.0},
           "open_views": ["timeseries", "phase_plane"],
-          "views": {"timeseries": {"series": ["theta", "energy"]}}}),
+          "views": {"timeseries": {"series": ["theta", "energy"]}, "phase_plane": {"seeds": [], "range": []}}}),
     ])
 
 # ---------------------------------------------------------------- a tank that ignites and goes out
@@ -624,21 +643,23 @@ STIRRED_TANK = sample(
          "Little of the compound breaks down before it is pumped out, little heat is given off, and the "
          "tank settles a bit above the feed temperature: `T` about 0.2.",
          {"parameters": {"stay": 0.03}, "initial": {"c": 0.0, "T": 0.0},
-          "open_views": ["timeseries", "phase_plane"]}),
+          "open_views": ["timeseries", "phase_plane"], "views": {"phase_plane": {"seeds": [], "range": []}}}),
         ("A slower feed: it lights up",
          "Slow the pump so that the liquid stays `0.08`. At first the tank warms a little, as before; "
          "then the warmth speeds up the break-down, which gives more heat, and `T` shoots up to about 5.8: "
          "the tank has **ignited**. Nearly all the compound now breaks down (`c` near 1).",
          {"parameters": {"stay": 0.08}, "initial": {"c": 0.0, "T": 0.0},
-          "open_views": ["timeseries", "phase_plane"]}),
+          "open_views": ["timeseries", "phase_plane"], "views": {"phase_plane": {"seeds": [], "range": []}}}),
         ("Back to a faster feed: it stays hot",
          "Now speed the pump up again to `stay = 0.05`, starting from the hot tank. It does *not* go back "
-         "to the cool state: it stays hot. Start the same setting from a cold tank (step 1's start) and it "
-         "stays cool. At `stay = 0.05` the tank has **two stable steady states**; where it ends up depends "
-         "on its history. The equilibria view lists three: cool and hot are stable nodes, the one between "
-         "is a saddle, the watershed between them.",
+         "to the cool state: it stays hot. Start the same setting from a cold tank (step 1's start, the "
+         "second path in the phase plane) and it stays cool. At `stay = 0.05` the tank has **two stable "
+         "steady states**; where it ends up depends on its history. The equilibria view lists three: cool "
+         "and hot are stable nodes, the one between is a saddle, the watershed between them.",
          {"parameters": {"stay": 0.05}, "initial": {"c": 0.8, "T": 4.8},
-          "open_views": ["timeseries", "phase_plane", "equilibria"]}),
+          "open_views": ["timeseries", "phase_plane", "equilibria"],
+          "views": {"phase_plane": {"seeds": [{"u0": [0.0, 0.0], "both": False}],
+                                    "range": [[-0.05, 1.05], [-0.3, 6.3]]}}}),
         ("The S-shaped curve",
          "The bifurcation diagram follows the steady temperature as `stay` goes from 0 to 0.15. It is an "
          "S: solid where the state is stable, dashed in the middle where it is not. The two **fold** "
@@ -708,7 +729,8 @@ train_centre = sum(x_{j}, j in 1..N)/N
          "force.",
          {"parameters": {"k": 16.0}, "open_views": ["timeseries"]}),
         ("Heavier wagons",
-         "Loaded wagons, `m = 4` with the first couplings: the wave slows to one wagon per second, and "
+         "Loaded wagons, `m = 4`, with the original couplings (`k = 4`): the wave slows to one wagon "
+         "per second, and "
          "the rear of the train only starts to move after about twelve seconds.",
          {"parameters": {"m": 4.0}, "open_views": ["timeseries"]}),
         ("A snatch start",
@@ -906,10 +928,12 @@ def bracket_sample():
              "In the Fit panel `c`, `k`, `k3` and the starting deflection `x(0)` are ticked; the bounds are "
              "the slider ranges. Press **Fit**: both records are fitted together, sharing the bracket's "
              "parameters, each with its own `x(0)`. The sensitivity equations give the derivatives, so "
-             f"the fit needs only a few model runs ({both.evaluations} here).",
+             f"the fit needs only a few model runs ({both.evaluations} from these first guesses).",
              {"open_views": ["fit", "timeseries"], "views": {"fit": {"page": "set up"}}}),
             ("The fitted bracket",
-             f"This step has run the fit (the Result page of the Fit panel). It gives {_pm(c)} per second, {_pm(k)} and {_pm(k3)} (estimate ± standard "
+             "This step has run the fit (the Result page of the Fit panel), started from the fitted values "
+             "it puts in, so it confirms them in a handful of model runs. "
+             f"It gives {_pm(c)} per second, {_pm(k)} and {_pm(k3)} (estimate ± standard "
              f"error). The records were made with `c = {BRACKET_TRUTH['c']}`, `k = {BRACKET_TRUTH['k']:g}`, "
              f"`k3 = {BRACKET_TRUTH['k3']:g}`: each estimate is within a few standard errors of it.\n\n"
              f"The model now runs through the points; the residual RMS is {rms:.3f} mm, the size of the "
@@ -926,7 +950,7 @@ def bracket_sample():
              f"Fitted alone, the small pluck gives `k3 = {small_k3.value:.3g} ± {small_k3.stderr:.2g}`: "
              "far less certain. When the panel warns of strongly correlated or nearly undetermined "
              "estimates, fix one of them or add a record that separates them.",
-             {"parameters": fitted, "open_views": ["fit", "phase_plane"], "views": {"fit": {"page": "result"}}}),
+             {"parameters": fitted, "open_views": ["fit", "timeseries"], "views": {"fit": {"page": "result"}}}),
         ])
     project.datasets = sets
     return file, project
@@ -989,9 +1013,11 @@ SHOWER = sample(
          "at `lambda = ± i pi / (2 tau)`: the first undying swing has the period `4 tau`, here 8 "
          "seconds. With `tau = 2` that is at `k = 0.785`.\n\n"
          "The sweep runs the shower for 53 values of `k` from 0.2 to 1.5 and plots the highest tap "
-         "temperature of each late swing: a single point at 38 until 0.785, then a branch that "
-         "opens smoothly, the larger the hand's gain the wider the swing. Close to 0.785 the swings die "
-         "out or grow only slowly, so there the points still spread after the settling time.",
+         "temperature of each late swing. The gentlest hands, `k` below about 0.4, leave no late swing "
+         "at all: the tap has crept to 38 and stays there, so there is no peak to plot (the line under "
+         "the plot counts these values). From there to 0.785 the peaks that remain sit at 38; then a "
+         "branch opens smoothly, the larger the hand's gain the wider the swing. Close to 0.785 the "
+         "swings die out or grow only slowly, so there the points still spread after the settling time.",
          {"parameters": {"k": 1.0}, "open_views": ["sweep"]}),
         ("A shorter pipe",
          "Keep the impatient `k = 1` and shorten the pipe to `tau = 1` second. Now `k tau = 1` is below "
@@ -1047,8 +1073,8 @@ x'(0) = 0
          {"open_views": ["timeseries"], "views": {"timeseries": {"series": ["x"], "spectrum": True}}}),
         ("More damping",
          "A skirt under the buoy raises the damping to `c = 0.8`. The band is half as wide "
-         "(`a / sqrt(2 c k)` = 0.119) and the spectrum's peak lower and broader: the buoy no longer "
-         "rings at its own note for long.",
+         "(`a / sqrt(2 c k)` = 0.119), and with **Spectrum** ticked the peak is lower and broader: "
+         "the buoy no longer rings at its own note for long.",
          {"parameters": {"c": 0.8}, "open_views": ["timeseries", "noise_statistics"],
           "views": {"timeseries": {"series": ["x"], "spectrum": False}}}),
         ("The calm-water picture",

@@ -213,6 +213,26 @@ def _solve_all(eqs, syms):
         return [dict(zip(syms, sol)) for sol in solutions]
 
 
+def _holds_along(eqs, syms, sol, tries: int = 3) -> bool:
+    """Whether a solution with free coordinates is a curve or surface of equilibria: every equation holds
+    at points along it. sympy also answers with a partial solution where it cannot eliminate a coordinate
+    (a transcendental equation left over, or a coordinate given as a set): that is no continuum."""
+    if not all(isinstance(v, sp.Expr) for v in sol.values()):
+        return False
+    rest = [e.subs(sol) for e in eqs]
+    free = sorted(set().union(*(r.free_symbols for r in rest)) & set(syms), key=str)
+    for k in range(tries):
+        at = {s: sp.Float(0.31 + 0.17 * k + 0.05 * i) for i, s in enumerate(free)}
+        for r in rest:
+            try:
+                v = complex(sp.N(r.subs(at), 30))
+            except (TypeError, ValueError):
+                return False
+            if not (math.isfinite(v.real) and math.isfinite(v.imag)) or abs(v) > 1e-9:
+                return False
+    return True
+
+
 def _exact_child(conn, system, p):
     """Runs in the forked child: build the equations (expand can blow up too: 176 s on a 699-factor
     product), solve, evaluate numerically, send back JSON (plain floats)."""
@@ -221,7 +241,7 @@ def _exact_child(conn, system, p):
         out, continuum = [], False
         for sol in _solve_all(eqs, syms):
             if any(s not in sol for s in syms) or any(sol[s].free_symbols for s in syms):
-                continuum = True
+                continuum = continuum or _holds_along(eqs, syms, sol)
                 continue
             point = []
             for s in syms:

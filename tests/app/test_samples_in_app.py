@@ -64,7 +64,7 @@ def inside(values, lo, hi):
     return values.size == 0 or (values.min() >= lo - slack and values.max() <= hi + slack)
 
 
-def check_plots_show_the_whole_run(window, step):
+def check_plots_show_the_whole_run(qtbot, window, step):
     """The time series and the phase plane of a step show the whole run (nothing leaves the axes); the
     3D camera is the step's."""
     title, snap, traj = step["title"], step["snapshot"], window.session.trajectory
@@ -80,9 +80,33 @@ def check_plots_show_the_whole_run(window, step):
         (x0, x1), (y0, y1) = view.plot.getViewBox().viewRange()
         x, y = view._xy(traj)  # as drawn: an angle wrapped
         assert inside(x, x0, x1) and inside(y, y0, y1), title
+    if "phase_plane" in open_views:
+        check_phase_plane_shows_what_the_note_names(qtbot, window, title, "equilibria" in open_views)
     if "camera" in snap and "phase_space_3d" in open_views:
         cam = window.views["phase_space_3d"].camera()
         assert (cam["azimuth"], cam["elevation"]) == (snap["camera"]["azimuth"], snap["camera"]["elevation"])
+
+
+def check_phase_plane_shows_what_the_note_names(qtbot, window, title, with_equilibria):
+    """The phase plane's range holds the extra paths the step starts (a second start the note compares)
+    and, with the equilibria view beside it, every equilibrium it lists (the rest states the note names)."""
+    view, s = window.views["phase_plane"], window.session
+    qtbot.waitUntil(lambda: len(view.seed_runs) == len(view.seeds) and all(r[0] is not None for r in view.seed_runs)
+                    and not s.busy, timeout=60000)  # run after a pause
+    (x0, x1), (y0, y1) = view.plot.getViewBox().viewRange()
+    for runs in view.seed_runs:
+        for run in runs:
+            if run is not None:
+                x, y = view._xy(run)
+                assert inside(x, x0, x1) and inside(y, y0, y1), (title, "a second path leaves the plot")
+    if with_equilibria:
+        states = list(s.system.states)
+        qtbot.waitUntil(lambda: bool(s.doc.current_equilibria()) and not s.busy, timeout=60000)  # searched after a pause
+        found = s.doc.current_equilibria()
+        for eq in found:
+            x, y = (eq.vector[states.index(n)] if n in states else None for n in (view.x_name, view.y_name))
+            if x is not None and y is not None:
+                assert x0 <= x <= x1 and y0 <= y <= y1, (title, "an equilibrium outside the phase plane", x, y)
 
 
 def test_every_sample_is_listed():
@@ -105,6 +129,7 @@ def test_sample_walkthrough_replays_in_the_app(qtbot, window, path):
     assert window.walkthrough_dock.isVisible()
     wait_idle_run(qtbot, s)
     own = dict(s.params)
+    width = window.width()
     steps = raw["walkthrough"]
     assert len(panel.steps) == len(steps) > 0
     seen = []
@@ -129,10 +154,12 @@ def test_sample_walkthrough_replays_in_the_app(qtbot, window, path):
                 assert window.views.get(view_id) is not None
         check_views_show_the_step(qtbot, window, raw, steps[i])
         wait_idle_run(qtbot, s)
+        qtbot.waitUntil(lambda: not s.busy, timeout=120000)  # the views' own jobs too (equilibria, second paths)
+        assert window.width() <= width, (steps[i]["title"], "the views pushed the window wider", window.width())
         # a run ends well, unless the step is there to show how it ends otherwise and its note names the status
         status = s.trajectory.status
         assert status == "ok" or f"*{status}*" in steps[i]["note"], (steps[i]["title"], s.trajectory.message)
-        check_plots_show_the_whole_run(window, steps[i])
+        check_plots_show_the_whole_run(qtbot, window, steps[i])
         if panel.missing_views:
             print(f"{path.stem} step {i + 1}: views not in this build: {panel.missing_views}")
     assert seen == list(range(len(steps)))

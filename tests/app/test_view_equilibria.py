@@ -218,3 +218,18 @@ def test_a_short_dock_still_shows_four_rows_of_the_table(qtbot, session, artifac
     view.grab().save(os.path.join(artifacts, "view_equilibria_short.png"))
     assert len(seen) >= 4, f"only rows {seen} show in a {table.viewport().height()}-pixel table"
     assert view.details.height() > 0 and view.lower.isVisible()  # the linearisation below, scrolled if need be
+
+
+def test_a_long_note_wraps_instead_of_widening_the_window(qtbot, session):
+    # a hint that cannot wrap sets the dock's minimum width: with three views side by side it pushed the
+    # main window past a 1600-pixel screen (the stirred tank sample's third step, 1878 pixels wide)
+    view = make_view(qtbot, session)
+    wait_found(qtbot, view, lambda: load(qtbot, session, "x' = x*y\ny' = -y\n"))  # a line of equilibria
+    note = view.summary.text()
+    assert "curve or surface" in note and view.summary.fontMetrics().horizontalAdvance(note) > 400
+    assert view.minimumSizeHint().width() < 400
+    view.resize(400, 560)
+    qtbot.waitUntil(lambda: view.width() == 400)
+    qtbot.wait(50)
+    label = view.summary
+    assert label.width() <= 400 and label.height() >= label.heightForWidth(label.width())  # all of it shown

@@ -216,6 +216,20 @@ def test_line_of_equilibria_is_reported_as_such():
     assert len({round(e.vector[0], 6) for e in eqs}) == len(eqs)
 
 
+def test_isolated_equilibria_sympy_cannot_eliminate_are_no_curve():
+    # Exothermic stirred tank (Uppal, Ray and Poore 1974, the stirred_tank sample) at stay = 0.05, heat = 6:
+    # sympy answers with c in terms of T and T as a set, yet the equilibria are three isolated points: on
+    # each, c = stay e^T / (1 + stay e^T) and T = heat c (closed form from the two equations)
+    eqs = find_equilibria(compile_model("stay = 0.05\nheat = 6\nc' = -c + stay*(1 - c)*exp(T)\n"
+                                        "T' = -T + heat*stay*(1 - c)*exp(T)\nc(0) = 0\nT(0) = 0\n"))
+    assert not any("curve or surface" in note for note in eqs.notes), eqs.notes
+    assert len(eqs) == 3
+    for e in eqs:
+        c, T = e.vector
+        assert T == pytest.approx(6 * c, abs=1e-9)
+        assert c == pytest.approx(0.05 * math.exp(T) / (1 + 0.05 * math.exp(T)), abs=1e-9)
+
+
 def test_search_from_a_worker_thread():
     # the app runs analyses on worker threads; the exact solve's child process must work from there
     import threading

@@ -8,7 +8,7 @@ from html import escape
 import numpy as np
 from PySide6.QtCore import Qt, Signal
 from PySide6.QtWidgets import (QAbstractItemView, QFrame, QGridLayout, QHeaderView, QLabel, QLayout, QScrollArea,
-                               QSplitter, QTableWidget, QTableWidgetItem, QTextBrowser, QToolButton, QWidget)
+                               QSizePolicy, QSplitter, QTableWidget, QTableWidgetItem, QTextBrowser, QToolButton, QWidget)
 
 from orbitdesk.app.layouts import column
 
@@ -95,8 +95,8 @@ class EquilibriaView(SessionView):
                               f"(models with up to {AUTO_MAX_STATES} states)", True,
                               lambda on: on and self._schedule())
         self.strip = JobStrip(session, "Searching")
-        self.summary = hint_label()
-        self.summary.setWordWrap(False)
+        self.summary = hint_label()  # wrapped: a long note must not widen the dock (and the window) past the screen
+        self.summary.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
 
         self.table = QTableWidget(0, 0)
         self.table.setSelectionBehavior(QAbstractItemView.SelectionBehavior.SelectRows)

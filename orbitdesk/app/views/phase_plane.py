@@ -155,15 +155,25 @@ class PhasePlaneView(SessionView):
         self.backward.setChecked(bool(d.get("backward", False)))
         seeds = d.get("seeds", [])
         if isinstance(seeds, list):
-            self.seeds = [{"u0": [float(v) for v in s["u0"]], "both": bool(s.get("both", False))}
-                          for s in seeds[:MAX_SEEDS]
-                          if isinstance(s, dict) and isinstance(s.get("u0"), list)
-                          and all(isinstance(v, (int, float)) for v in s["u0"])]
+            wanted = [{"u0": [float(v) for v in s["u0"]], "both": bool(s.get("both", False))}
+                      for s in seeds[:MAX_SEEDS]
+                      if isinstance(s, dict) and isinstance(s.get("u0"), list)
+                      and all(isinstance(v, (int, float)) for v in s["u0"])]
+            if wanted != self.seeds:  # a walkthrough step's starts: run now, not only when the values change
+                self.seeds, self.seed_runs = wanted, []
+                self.session.cancel_job("phase_plane.seeds")
+                self._draw_seeds()
+                self._schedule_seeds()
         rng = d.get("range")
         if (isinstance(rng, list) and len(rng) == 2 and all(isinstance(r, list) and len(r) == 2 for r in rng)
                 and all(isinstance(v, (int, float)) for r in rng for v in r)):
             self.plot.getViewBox().setRange(xRange=rng[0], yRange=rng[1], padding=0)
             self._fitted = False
+        elif "range" in d and rng in ([], None):  # a walkthrough step's "fit the run" after another's zoom
+            if self.trajectory is not None:
+                self.fit_view()
+            else:
+                self._fitted = True
 
     def export_data(self):
         traj = self.trajectory
