@@ -131,9 +131,11 @@ def _digest(source: str) -> str:
 
 
 def _numba_version() -> str:
-    """numba's version without importing it (a plain-Python run never pays for that import)."""
-    if "numba" in sys.modules:
-        return sys.modules["numba"].__version__
+    """numba's version without importing it (a plain-Python run never pays for that import). A module
+    another thread is still importing has no ``__version__`` yet: the installed package's metadata then."""
+    known = getattr(sys.modules.get("numba"), "__version__", None)
+    if known is not None:
+        return known
     from importlib.metadata import version
 
     return version("numba")

@@ -195,3 +195,15 @@ def test_temporary_files_are_unpredictable_and_exclusive(cache, tmp_path):
     private_cache.load_source_module(folder, "mgen", "VALUE = 1\n")
     assert victim.read_text() == "keep me"
     assert target.read_text() == "VALUE = 1\n" and not stat.S_ISLNK(os.lstat(target).st_mode)
+
+
+def test_kernel_digest_while_another_thread_is_still_importing_numba(monkeypatch):
+    # a plain-Python run that starts the compiler in the background digests the kernel's source with numba's
+    # version while a view's worker thread may be half way through importing numba (seen in the app: the
+    # phase plane's second paths failed with "partially initialized module 'numba' has no attribute
+    # '__version__'"); the installed package's metadata gives the same version
+    import types
+    from importlib.metadata import version
+
+    monkeypatch.setitem(sys.modules, "numba", types.ModuleType("numba"))  # imported, not yet initialised
+    assert compiled._numba_version() == version("numba")
