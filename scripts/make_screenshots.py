@@ -2,10 +2,9 @@
 """Regenerate the README's screenshots from the real app: ``docs/screenshots/*.png``.
 
     .venv/bin/python scripts/make_screenshots.py [--only NAME ...] [--out DIR]
-    .venv/bin/python scripts/make_screenshots.py --steps [SAMPLE ...] --out DIR
 
-With --steps, every walkthrough step of every sample (or of the samples named) instead: one PNG per step,
-SAMPLE-NN.png, in a 1600x1000 window, to look at each step as a user meets it.
+Every walkthrough step of the samples, one picture each: scripts/walkthrough_shots.py (it uses the
+Shooter below).
 
 Opens sample projects in the main window, shows walkthrough steps, waits until every background job
 has finished and saves the whole window. Without a screen (DISPLAY unset) it starts a private Xvfb,
@@ -251,31 +250,17 @@ def export_each_view(sh: Shooter, name: str, step: int, seen: set) -> None:
             print(f"  wrote {stem.name}.csv")
 
 
-def walkthrough_steps(sh: Shooter, names: list[str], exports: bool = False) -> None:
-    """Every step of each sample's walkthrough, one picture per step (SAMPLE-NN.png, NN from 01)."""
-    sh.window.resize(*SCREEN)
-    for name in names or sorted(p.stem for p in SAMPLES.glob("*.orbitdesk")):
-        print(f"{name}:")
-        sh.open_sample(name)
-        panel = sh.window.walkthrough_panel
-        seen: set = set()
-        for i in range(len(panel.steps)):
-            sh.show_step(i)
-            sh.save(f"{name}-{i + 1:02d}")
-            if exports:
-                export_each_view(sh, name, i + 1, seen)
-        if exports:  # the window's HTML report at the last step, as File > Export > HTML Report writes it
-            from orbitdesk.app import exports as app_exports
+def export_report(sh: Shooter, path: Path) -> None:
+    """The window's HTML report, as File > Export > HTML Report writes it."""
+    from orbitdesk.app import exports as app_exports
 
-            done = []
-            app_exports.export_report(sh.window, sh.out / f"{name}-report.html", on_done=lambda *a: done.append(a))
-            end = time.monotonic() + 300
-            while not done and time.monotonic() < end:
-                sh.pump()
-                time.sleep(0.02)
-            print(f"  report: {done[0] if done else 'not written in time'}")
-        panel.leave()
-        sh.settle()
+    done = []
+    app_exports.export_report(sh.window, path, on_done=lambda *a: done.append(a))
+    end = time.monotonic() + 300
+    while not done and time.monotonic() < end:
+        sh.pump()
+        time.sleep(0.02)
+    print(f"  report: {done[0] if done else 'not written in time'}")
 
 
 def main(argv=None) -> int:
@@ -283,20 +268,11 @@ def main(argv=None) -> int:
     parser.add_argument("--only", nargs="*", metavar="NAME", help="just these shots: "
                         + ", ".join(f.__name__ for f in SHOTS))
     parser.add_argument("--out", type=Path, default=OUT, help=f"folder for the PNG files (default {OUT})")
-    parser.add_argument("--steps", nargs="*", metavar="SAMPLE", default=None,
-                        help="a picture of every walkthrough step of these samples (all when none are named)")
-    parser.add_argument("--exports", action="store_true",
-                        help="with --steps: also export each view once per sample (PNG, SVG, CSV) as File > Export does")
     args = parser.parse_args(argv)
-    if args.steps is not None:
-        wanted = [lambda sh: walkthrough_steps(sh, args.steps, args.exports)]
-        wanted[0].__doc__ = "every walkthrough step"
-        wanted[0].__name__ = "walkthrough_steps"
-    else:
-        wanted = [f for f in SHOTS if not args.only or f.__name__ in args.only]
-        unknown = set(args.only or ()) - {f.__name__ for f in SHOTS}
-        if unknown:
-            parser.error(f"no shot called {', '.join(sorted(unknown))}")
+    wanted = [f for f in SHOTS if not args.only or f.__name__ in args.only]
+    unknown = set(args.only or ()) - {f.__name__ for f in SHOTS}
+    if unknown:
+        parser.error(f"no shot called {', '.join(sorted(unknown))}")
     xvfb = ensure_display()
     try:
         args.out.mkdir(parents=True, exist_ok=True)

@@ -50,6 +50,13 @@ def test_time_series_and_phase_plane_mark_each_impact_before_and_after(qtbot, se
     jx, jy = pp.event_marks.jumps.getData()
     assert len(jx) == 12 and np.allclose(jx, 0.0, atol=1e-8)  # each jump is vertical, on the floor x = 0
     assert np.isclose(jy[0], -v0) and np.isclose(jy[1], 0.8 * v0)
+    # the drawn path reaches the floor and goes on from the rebound: at each impact the curve holds the values
+    # before and after it with a break between (no straight line from the last sample above the floor to
+    # the first after the bounce, which cut the corner in the rattling flap's phase plane)
+    cx, cy = pp.curve.xData, pp.curve.yData
+    for ev in traj.model_events:
+        k = int(np.flatnonzero((cx == ev.before["x"]) & (cy == ev.before["x'"]))[0])
+        assert np.isnan(cx[k + 1]) and (cx[k + 2], cy[k + 2]) == (ev.after["x"], ev.after["x'"])
     qtbot.wait(50)
     assert pp.grab().save(os.path.join(artifacts, "events_phase_plane.png"))
     # a run without events leaves no marks

@@ -68,6 +68,29 @@ class EventMarks:
         return f"{len(events):,} event{'s' if len(events) != 1 else ''}{more}: ring before, dot after"
 
 
+def through_events(trajectory, x_name: str, y_name: str, x, y):
+    """``x``, ``y`` (the run's values of ``x_name``, ``y_name`` at its samples) with each event's values
+    before and after it put in at its time and the line broken between them: a drawn curve ends on the
+    boundary the event fired at and goes on from the values the event set (the marks' dashed line is
+    the jump), instead of a straight line from the last sample before the event to the first after it."""
+    events = list(getattr(trajectory, "model_events", None) or []) if trajectory is not None else []
+    if not events or x is None or len(x) != len(trajectory.time):
+        return x, y
+    put, xs, ys = [], [], []
+    for ev in events:
+        xb, yb = _value(ev, ev.before, x_name), _value(ev, ev.before, y_name)
+        xa, ya = _value(ev, ev.after, x_name), _value(ev, ev.after, y_name)
+        if None in (xb, yb, xa, ya):
+            continue
+        put.append(ev.t)
+        xs += [xb, np.nan, xa]
+        ys += [yb, np.nan, ya]
+    if not put:
+        return x, y
+    at = np.repeat(np.searchsorted(trajectory.time, np.asarray(put, dtype=float), side="right"), 3)
+    return np.insert(np.asarray(x, dtype=float), at, xs), np.insert(np.asarray(y, dtype=float), at, ys)
+
+
 def _value(ev, values: dict, name: str):
     if name in ("t", "n"):
         return float(ev.t)
@@ -79,4 +102,4 @@ def _tip(x, y, data):
     return str(data)
 
 
-__all__ = ["EventMarks", "MAX_MARKED"]
+__all__ = ["EventMarks", "MAX_MARKED", "through_events"]

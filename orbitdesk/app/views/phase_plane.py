@@ -13,7 +13,7 @@ from orbitdesk.language.angles import angle_states, break_at_wraps, wrap
 
 from orbitdesk.app.views import empty_hint, muted_colour, series_colour, style_plot
 from orbitdesk.app.plots.data_overlay import DataOverlay
-from orbitdesk.app.plots.event_marks import EventMarks
+from orbitdesk.app.plots.event_marks import EventMarks, through_events
 from orbitdesk.app.plots.plot_style import ScreenCurve
 from orbitdesk.app.views.common import (SessionView, check_box, clicked_point, combo_box, control_row, coordinate_names,
                      cut_at_escape, cycle_columns, equilibrium_coordinates, quiet, equilibrium_fields, fill_combo, runs_job, status_label,
@@ -360,10 +360,14 @@ class PhasePlaneView(SessionView):
         return x, y
 
     def _drawn_xy(self, traj):
-        """``_xy`` broken where a wrapped angle goes round (no line across the plane)."""
+        """``_xy`` broken where a wrapped angle goes round (no line across the plane) and at the model's
+        events (the curve reaches the boundary, the marks show the jump)."""
         x, y = self._xy(traj)
         if x is None or traj.kind == "map":
             return x, y
+        angles = angle_states(self.system) if self.system is not None else []
+        if self.x_name not in angles and self.y_name not in angles:  # (an event's values are not wrapped)
+            x, y = through_events(traj, self.x_name, self.y_name, x, y)
         return break_at_wraps(x, y)
 
     def _draw_trajectory(self) -> None:
