@@ -134,7 +134,7 @@ SHAKEN_BEAM = sample(
          "energy out and nothing puts it back.",
          {"parameters": {"gamma": 0.0}, "initial": {"x": 0.2, "x'": 0.9},
           "open_views": ["timeseries", "phase_plane"],
-          "views": {"timeseries": {"series": ["x", "energy"]}, "phase_plane": {"seeds": [], "range": []}}}),
+          "views": {"timeseries": {"series": ["x", "energy"]}, "phase_plane": {"seeds": []}}}),
         ("Three rest positions, two of them stable",
          "Without shaking the strip can rest wherever `x' = 0` and `x - x^3 = 0`: at `x = -1`, `0` and "
          "`+1`. Linearising the equation there tells them apart:\n\n"
@@ -157,7 +157,7 @@ SHAKEN_BEAM = sample(
          "The **stroboscopic section** looks at the strip once per period, like a flash photograph. "
          "A motion that repeats every period shows up as a *single dot*.",
          {"parameters": {"gamma": 0.2}, "open_views": ["timeseries", "phase_plane", "sections"],
-          "views": {"phase_plane": {"seeds": [], "range": []}}, "section": {"strobe": round(FORCING_PERIOD, 6)}}),
+          "views": {"phase_plane": {"seeds": []}}, "section": {"strobe": round(FORCING_PERIOD, 6)}}),
         ("Harder shaking: period doubling",
          "At `gamma = 0.28` the wobble repeats only every *second* shaking period: the section shows "
          "**two dots**, and the time series has a tall and a short swing taking turns. A little "
@@ -562,12 +562,12 @@ energy = theta'^2/2 + (g/L)*(1 - cos(theta))    # per unit of mass times L^2; 0 
          "`2 pi sqrt(L / g)`, about 2.006 s for a one-metre rod. In the phase plane the motion is a "
          "small closed oval around the resting point.",
          {"initial": {"theta": 0.3, "theta'": 0.0}, "open_views": ["timeseries", "phase_plane"],
-          "views": {"phase_plane": {"seeds": [], "range": []}}}),
+          "views": {"phase_plane": {"seeds": []}}}),
         ("Wide swings take longer",
          "Released from 2.5 radians (143 degrees) the pendulum lingers near the top of each swing, and "
          "the period grows to about 3.30 s. The oval in the phase plane has become lemon-shaped.",
          {"initial": {"theta": 2.5, "theta'": 0.0}, "open_views": ["timeseries", "phase_plane"],
-          "views": {"phase_plane": {"seeds": [], "range": []}}}),
+          "views": {"phase_plane": {"seeds": []}}}),
         ("Energy is kept",
          "Plot the derived quantity **energy** next to the angle. Without friction it is a flat line: "
          "the swing trades motion for height and back, and nothing is lost. A flat energy curve is "
@@ -581,7 +581,7 @@ energy = theta'^2/2 + (g/L)*(1 - cos(theta))    # per unit of mass times L^2; 0 
          "strip once as a wavy line, leaving at `theta = pi` and coming back in at `-pi`, the same "
          "upright position.",
          {"initial": {"theta": 0.0, "theta'": 6.5}, "open_views": ["phase_plane", "timeseries"],
-          "views": {"phase_plane": {"seeds": [], "range": []}}}),
+          "views": {"phase_plane": {"seeds": []}}}),
         ("The separatrix",
          "Between swinging and turning lies a single borderline motion with energy exactly `2 g / L`: "
          "a push of `theta'(0) = 2 sqrt(g / L)`, about 6.264, sends the pendulum creeping up towards "
@@ -605,7 +605,7 @@ energy = theta'^2/2 + (g/L)*(1 - cos(theta))    # per unit of mass times L^2; 0 
          "become a **stable focus**.",
          {"parameters": {"c": 0.3}, "initial": {"theta": 2.5, "theta'": 0.0},
           "open_views": ["timeseries", "phase_plane"],
-          "views": {"timeseries": {"series": ["theta", "energy"]}, "phase_plane": {"seeds": [], "range": []}}}),
+          "views": {"timeseries": {"series": ["theta", "energy"]}, "phase_plane": {"seeds": []}}}),
     ])
 
 # ---------------------------------------------------------------- a tank that ignites and goes out
@@ -643,13 +643,13 @@ STIRRED_TANK = sample(
          "Little of the compound breaks down before it is pumped out, little heat is given off, and the "
          "tank settles a bit above the feed temperature: `T` about 0.2.",
          {"parameters": {"stay": 0.03}, "initial": {"c": 0.0, "T": 0.0},
-          "open_views": ["timeseries", "phase_plane"], "views": {"phase_plane": {"seeds": [], "range": []}}}),
+          "open_views": ["timeseries", "phase_plane"], "views": {"phase_plane": {"seeds": []}}}),
         ("A slower feed: it lights up",
          "Slow the pump so that the liquid stays `0.08`. At first the tank warms a little, as before; "
          "then the warmth speeds up the break-down, which gives more heat, and `T` shoots up to about 5.8: "
          "the tank has **ignited**. Nearly all the compound now breaks down (`c` near 1).",
          {"parameters": {"stay": 0.08}, "initial": {"c": 0.0, "T": 0.0},
-          "open_views": ["timeseries", "phase_plane"], "views": {"phase_plane": {"seeds": [], "range": []}}}),
+          "open_views": ["timeseries", "phase_plane"], "views": {"phase_plane": {"seeds": []}}}),
         ("Back to a faster feed: it stays hot",
          "Now speed the pump up again to `stay = 0.05`, starting from the hot tank. It does *not* go back "
          "to the cool state: it stays hot. Start the same setting from a cold tank (step 1's start, the "

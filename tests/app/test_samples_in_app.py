@@ -167,3 +167,25 @@ def test_sample_walkthrough_replays_in_the_app(qtbot, window, path):
     assert not s.dirty  # looking at a walkthrough is not an edit
     panel.leave()
     assert s.params == own and not panel.in_walkthrough and not s.dirty
+
+
+@pytest.mark.slow
+def test_a_step_back_from_a_framed_phase_plane_fits_its_own_run(qtbot, window):
+    # the stirred tank's third step frames the whole plane (every rest state in sight) and keeps that frame
+    # when its run arrives; the first step, shown after it, shows its own run fitted, not that frame
+    path = help_ui.SAMPLES_DIR / "stirred_tank.orbitdesk"
+    help_ui.open_sample(window, path)
+    s, panel = window.session, window.walkthrough_panel
+    wait_idle_run(qtbot, s)
+    panel.show_step(2)
+    wait_idle_run(qtbot, s)
+    view = window.views["phase_plane"]
+    assert view.plot.getViewBox().viewRange()[1] == pytest.approx([-0.3, 6.3])
+    panel.show_step(0)  # the cool tank: T rises to about 0.2
+    wait_idle_run(qtbot, s)
+    qtbot.waitUntil(lambda: view.plot.getViewBox().viewRange()[1][1] < 1.0, timeout=20000)
+    (x0, x1), (y0, y1) = view.plot.getViewBox().viewRange()
+    x, y = view._xy(s.trajectory)
+    assert inside(x, x0, x1) and inside(y, y0, y1)
+    assert (y.max() - y.min()) > 0.8 * (y1 - y0)  # fitted to the run, not the frame of the step before
+    panel.leave()

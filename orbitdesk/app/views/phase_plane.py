@@ -169,11 +169,6 @@ class PhasePlaneView(SessionView):
                 and all(isinstance(v, (int, float)) for r in rng for v in r)):
             self.plot.getViewBox().setRange(xRange=rng[0], yRange=rng[1], padding=0)
             self._fitted = False
-        elif "range" in d and rng in ([], None):  # a walkthrough step's "fit the run" after another's zoom
-            if self.trajectory is not None:
-                self.fit_view()
-            else:
-                self._fitted = True
 
     def export_data(self):
         traj = self.trajectory
