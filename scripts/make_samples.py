@@ -818,8 +818,8 @@ RATTLING_FLAP = sample(
          "`A = 0.6`: the push holds the flap against the stop, each rebound is a twentieth of the one "
          "before, and the rebounds crowd together like a ball coming to rest, infinitely many of them "
          "before a finite time. OrbitDesk does not step forever: the run ends at t = 1.26 with the status "
-         "*chattering* and says where and why (the status bar). The limit is "
-         "`orbitdesk run --event-rate R` (10,000 events per unit time by default).\n\n"
+         "*chattering* and says where and why in the status bar (hover over it for the whole message). "
+         "The limit is `orbitdesk run --event-rate R` (10,000 events per unit time by default).\n\n"
          "What the analyses assume with events: equilibria are those of the equation between hits (you get "
          "a note); Lyapunov exponents and limit cycles are refused with the reason (a perturbation jumps "
          "at each hit by the saltation matrix, which they do not apply); sections follow the hits.",
