@@ -163,7 +163,8 @@ def _put_on_screen(window, new_state: dict, snapshot: dict, arrange: bool, defer
             view = window.views.get(modules.get(view_id, ""))
             if view is not None and view_id != SECTIONS_VIEW:
                 _bring_up_to_date(view, s.generation != generation)
-            zoomed = bool(changes.get(view_id, {}).get("range"))  # a zoom the step chose stays
+            own = snapshot["views"].get(view_id) if isinstance(snapshot.get("views"), dict) else None
+            zoomed = isinstance(own, dict) and bool(own.get("range"))  # a zoom the step itself chose stays
             if view is not None and not zoomed and (arrange or getattr(view, "fit_own_state", True)):
                 view.fit_after_next_run()  # the step's plots shown whole, once its run is in
     return out
