@@ -59,8 +59,14 @@ def overflows_floats(system, t, u) -> bool:
     values = {system.t_symbol: t, **dict(zip(system.state_symbols, u)),
               **dict(zip(system.param_symbols, system.param_values))}
     for expr in system.f:
-        exact = expr.xreplace({k: sp.Float(float(v), 30) for k, v in values.items()}).evalf(30)
-        if exact is sp.nan or exact.is_finite is False or (exact.is_Number and abs(exact) > 1.7e308):
+        try:
+            exact = expr.xreplace({k: sp.Float(float(v), 30) for k, v in values.items()}).evalf(30)
+        except TypeError:  # "Invalid NaN comparison": a condition compares an undefined value (atan2(0, 0))
+            return True
+        if exact.is_Number:  # a Float nan or beyond the double range (comparing sympy's nan Float raises)
+            if not (abs(float(exact)) <= 1.7e308):
+                return True
+        elif exact is sp.nan or exact.is_finite is False:
             return True
     return False
 
@@ -199,6 +205,7 @@ def models(draw):
 @budget(600)
 @given(models())
 @example("x'' = -y'\ny' = 1\nz' = x'' ^ x")  # a deep run of edits: d (-1)^x / dx is complex
+@example("x' = x\ny' = x\nz' = x\nv' = x / if(x <= atan2(x, x) or not x < 1, 0, x)")  # exactly a nan Float
 @example("x[n+1] = x\ny[n+1] = if(z < -x and not 838 / 40e-2 < 1, n, sqrt((13e5)))\nd1 = abs(13e-3)\n"
          "z[n+1] = atan2(atan2(151, 69e7), log10(energy))\n"
          "energy = if(max(-227, sign(69e7)) < tanh(sqrt((13e5))) and not (log(n)) < 1, 0.015, energy)")  # deep run
