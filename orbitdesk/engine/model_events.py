@@ -23,6 +23,7 @@ from orbitdesk.engine import compiled, drivers
 from orbitdesk.engine.progress import Cancelled
 from orbitdesk.engine.status import CANCELLED, CHATTERING, OK, STOPPED, STEP_FAILED
 from orbitdesk.engine.status import word as status_word
+from orbitdesk.system.compiled_system import UNDEFINED_ERRORS
 
 WINDOW = 20  # events over which the rate is judged
 
@@ -77,6 +78,18 @@ class EventPlan:
             return np.empty((0, n + 1))
         return np.array(self._rows(t, *u, *p), dtype=float).reshape(len(self.planes), n + 1)
 
+    def undefined_boundary(self, t, u, p) -> str:
+        """Which event's boundary (or time) is undefined at (t, u, p), in words."""
+        for k, ev in enumerate(self.events):
+            parts = (ev.time_rate, ev.time_offset) if ev.on_time else (*ev.normal, -ev.offset)
+            try:
+                values = [float(v) for v in self.system._compile([_float_sized(e) for e in parts], "math")(t, *u, *p)]
+            except UNDEFINED_ERRORS:
+                values = [math.nan]
+            if not all(math.isfinite(v) for v in values):
+                return f"the boundary of the event on line {ev.line} ({ev.rule}) is undefined at t = {t:.6g}"
+        return f"the boundary of an event is undefined at t = {t:.6g}"
+
     def next_time(self, t, t_end, p):
         """(time, event index) of the first time event in (t, t_end], or (None, None)."""
         if self._times is None:
@@ -99,14 +112,13 @@ class EventPlan:
         ev = self.events[k]
         if ev.on_time:
             return math.inf
-        row = self.plane_rows(t, u, p)[self.planes.index(k)]
-        normal = row[:-1]
         try:
+            normal = self.plane_rows(t, u, p)[self.planes.index(k)][:-1]
             f = self.system.rhs(t, u, p)
             rate = float(normal @ f)
             h = 1e-7 * max(1.0, abs(t)) / max(1.0, float(np.max(np.abs(f))))
             accel = (float(normal @ self.system.rhs(t + h, u + h * f, p)) - rate) / h
-        except ArithmeticError:
+        except (ArithmeticError, ValueError, TypeError):  # an undefined boundary: the next segment says so
             return math.inf
         if not math.isfinite(rate) or ev.direction * rate >= 0:  # not carried away from the boundary
             return 0.0
@@ -200,14 +212,18 @@ def simulate_with_events(system, settings, u0, p, extra, report):
 
     def close_segment():
         nonlocal seg_start
-        tt = np.concatenate(times[seg_start:])
-        yy = np.concatenate(chunks[seg_start:], axis=1)
-        derived.append(system.derived_values(tt, yy, p) if tt.size else {})
+        if len(times) > seg_start:  # none: the run ended where the parameters changed
+            tt = np.concatenate(times[seg_start:])
+            derived.append(system.derived_values(tt, np.concatenate(chunks[seg_start:], axis=1), p) if tt.size else {})
         seg_start = len(times)
 
     while True:
-        rows = plan.plane_rows(t, y, p)
-        t_time, k_time = plan.next_time(t, t1, p)
+        try:
+            rows = plan.plane_rows(t, y, p)
+            t_time, k_time = plan.next_time(t, t1, p)
+        except UNDEFINED_ERRORS:  # asin(k + 1) as a boundary: no run can follow it
+            status, message = "undefined", plan.undefined_boundary(t, y, p)
+            break
         seg_end = t1 if t_time is None else t_time
         planes = [Event.on_plane(r[:n], r[n], int(d), True) for r, d in zip(rows, plan.directions)] + list(extra)
 

@@ -396,6 +396,7 @@ def event_models(draw):
 @budget(120)
 @given(event_models())
 @example("k = 1\nh = 0.5\nx'' = -k*x - 0.1*x' + y\ny' = -y + h\nx(0) = 1\nwhen t > h then x = 0, h = cosh(690)")  # deep run
+@example("k = 1\nh = 0.5\nx'' = -k*x - 0.1*x' + y\ny' = -y + h\nx(0) = 1\nwhen x < asin(k + 1) then x = 0")  # deep run
 def test_generated_event_models_parse_compile_and_run(text):
     WORKER.run(check_event_model, text)
 

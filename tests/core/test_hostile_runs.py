@@ -102,3 +102,19 @@ def test_a_jacobian_entry_that_is_not_real_is_undefined():
     assert np.isnan(J[3, 0]) and J[0, 1] == 1.0 and np.count_nonzero(J) == 2
     Jv = system.jac_vec(0.0, np.zeros((4, 2)))
     assert np.isnan(Jv[3, 0]).all() and Jv.dtype == float
+
+
+@pytest.mark.parametrize("text, line, at", [
+    ("k = 1\nx' = -x\nx(0) = 1\nwhen x < asin(k + 1) then x = 0\n", 4, 0.0),
+    # undefined only once an earlier event changed k: x = e^-t reaches 0.5 at t = ln 2
+    ("k = 1\nx' = -x\nd = 2*x\nx(0) = 1\nwhen x < 0.5 then k = 3\nwhen x > asin(k - 1) then x = 1\n", 6, np.log(2)),
+    ("k = 1\nx' = -x\nx(0) = 1\nwhen t > 0.5 then k = 3\nwhen t > asin(k - 1) + 1 then x = 1\n", 5, 0.5),
+])
+def test_an_event_whose_boundary_is_undefined_ends_the_run_with_a_reason(text, line, at):
+    """An event boundary undefined for the parameters in force (asin(2)) raised ValueError out of the run
+    (found by the event-model fuzz: when x < asin(k + 1) then x = 0)."""
+    run = simulate(compile_model(text), RunSettings(t_end=3.0, samples=30))
+    assert run.status == "undefined"
+    assert run.message.startswith(f"the boundary of the event on line {line} (") and "is undefined at t = " in run.message
+    assert float(run.message.rsplit("t = ", 1)[1]) == pytest.approx(at, rel=1e-5, abs=1e-12)
+    assert run.time[-1] <= at + 1e-9
