@@ -83,6 +83,8 @@ def basins(system, x_name: str, xs, y_name: str, ys, settings: BasinSettings | N
     if cycles_part:
         same = _cycle_periods(system, p, attractors, tracks, report.part(1.0 - cycles_part, cycles_part), cancel)
         labels, attractors = _merged(labels, attractors, same)
+        tracks = [t for a, t in zip(range(len(tracks)), tracks) if a not in same]
+    labels, attractors = _merged(labels, attractors, _same_chaos(attractors, tracks))
     report(1.0)
     return BasinResult(x_name, xs, y_name, ys, labels.reshape(ys.size, xs.size), attractors,
                        stroboscopic=system.kind != MAP and s.period is not None)
@@ -184,6 +186,30 @@ def _cycle_periods(system, p, attractors, tracks, progress, cancel) -> dict[int,
                  period=float(cycle.period), multiplier=float(np.max(np.abs(others))) if others.size else 0.0,
                  centre={name: float(v) for name, v in zip(system.states, np.mean(cycle.orbit[:, :-1], axis=1))})
         found.append((a, cycle.orbit))
+    return same
+
+
+def _same_chaos(attractors, tracks, overlap: float = 0.5) -> dict[int, int]:
+    """{label: label} folding together the attractors without a period whose samples cover the same region: the
+    samples of a chaotic attractor from different starts never span quite the same ranges, so each start became
+    an attractor of its own (128 "chaotic" attractors in the shaken beam's basin map, all one). Two are one when
+    their sample boxes overlap by ``overlap`` of the smaller box's extent in every state."""
+    loose = [a for a in attractors if a["kind"].startswith(("no period", "oscillation without a period"))]
+    same: dict[int, int] = {}
+    boxes = {a["label"]: (np.min(tracks[a["label"]], axis=1), np.max(tracks[a["label"]], axis=1)) for a in loose}
+    kept: list[int] = []
+    for a in loose:
+        lo, hi = boxes[a["label"]]
+        for b in kept:
+            blo, bhi = boxes[b]
+            shared = np.minimum(hi, bhi) - np.maximum(lo, blo)
+            least = np.maximum(np.minimum(hi - lo, bhi - blo), 1e-12)
+            if np.all(shared >= overlap * least):
+                same[a["label"]] = b
+                boxes[b] = (np.minimum(lo, blo), np.maximum(hi, bhi))
+                break
+        else:
+            kept.append(a["label"])
     return same
 
 

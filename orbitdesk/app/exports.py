@@ -6,11 +6,10 @@ from __future__ import annotations
 
 from pathlib import Path
 
-import numpy as np
 from PySide6.QtGui import QAction
 from PySide6.QtWidgets import QFileDialog, QMenu
 
-from orbitdesk.exports.csv_table import write_csv
+from orbitdesk.exports.csv_table import whole_columns, write_csv
 
 from orbitdesk.app.plain_text import plain_message
 
@@ -303,8 +302,7 @@ def export_data(window, path, view=None) -> bool:
     if not data:
         return False
     header, rows = data
-    rows = np.atleast_2d(np.asarray(rows, dtype=float))
-    write_csv(path, header, rows.tolist())  # atomic: a failure leaves no partial file
+    write_csv(path, header, whole_columns(rows))  # atomic: a failure leaves no partial file
     return True
 
 def export_plot_dialog(window, kind: str, plot=None) -> bool:

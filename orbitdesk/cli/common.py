@@ -355,10 +355,10 @@ def print_json(data) -> None:
 
 
 def write_csv(path: str, header: list[str], columns) -> None:
-    from orbitdesk.exports.csv_table import write_csv as write_table
+    from orbitdesk.exports.csv_table import whole_columns, write_csv as write_table
 
     try:
-        write_table(path, header, np.column_stack(columns).tolist() if len(columns) else [])
+        write_table(path, header, whole_columns(np.column_stack(columns)) if len(columns) else [])
     except OSError as err:
         raise CommandError(f"cannot write {path}: {err.strerror or err}") from None
 

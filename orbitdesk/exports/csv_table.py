@@ -29,7 +29,18 @@ def text_cell(value) -> str:
 
 
 def number_cell(value) -> str:
+    if isinstance(value, (int, np.integer)) and not isinstance(value, bool):
+        return str(int(value))  # a label, a count, a period in iterations: written as the whole number it is
     return repr(float(value))
+
+
+def whole_columns(rows: np.ndarray) -> list:
+    """The rows of a 2-D float array as lists, the columns holding only whole numbers (attractor labels, branch
+    numbers, stability flags, periods) as ints, so the file reads ``2``, not ``2.0``."""
+    rows = np.atleast_2d(np.asarray(rows, dtype=float))
+    whole = [bool(col.size and np.all(np.isfinite(col)) and np.all(col == np.round(col)) and np.all(np.abs(col) < 2.0 ** 53))
+             for col in rows.T]
+    return [[int(v) if w else v for v, w in zip(row, whole)] for row in rows.tolist()]
 
 
 def write_csv(path, header: Sequence, rows: Iterable[Sequence]) -> None:
@@ -62,4 +73,4 @@ def grid_table(result) -> tuple[list[str], list]:
     return header, columns
 
 
-__all__ = ["FORMULA_STARTS", "grid_table", "number_cell", "text_cell", "write_csv"]
+__all__ = ["FORMULA_STARTS", "grid_table", "number_cell", "text_cell", "whole_columns", "write_csv"]

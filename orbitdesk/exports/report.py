@@ -7,6 +7,8 @@ import base64
 import html
 import math
 
+import numpy as np
+
 import sympy as sp
 
 from orbitdesk.engine.settings import SCHEMES
@@ -218,8 +220,58 @@ def _bifurcation_rows(r) -> list[list[str]]:
     return rows
 
 
+def _grid_row(r, what: str) -> list[str]:
+    return ["grid", f"{r.xs.size} × {r.ys.size} {what}",
+            f'<span class="math">{_e(r.x_name)}</span> from {_num(r.xs[0])} to {_num(r.xs[-1])}, '
+            f'<span class="math">{_e(r.y_name)}</span> from {_num(r.ys[0])} to {_num(r.ys[-1])}']
+
+
+REPORT_ATTRACTORS = 8  # attractors of a basin map listed by name (the largest basins), the rest counted
+
+
+def _basin_rows(r) -> list[list[str]]:
+    """A basin map: its grid of starts, then each attractor (largest basin first) with its share and place."""
+    rows = [_grid_row(r, "starts")]
+    ranked = sorted(r.attractors, key=lambda a: -float(a.get("share", 0.0)))
+    for a in ranked[:REPORT_ATTRACTORS]:
+        where = ", ".join(f"{k} ≈ {_num(v, 4)}" for k, v in a.get("centre", {}).items() if isinstance(v, (int, float)))
+        rows.append([_e(a.get("kind", "attractor")), f"{_num(100 * float(a.get('share', 0.0)), 3)}%",
+                     _e(f"of the starts; near {where}" if where else "of the starts")])
+    rest = ranked[REPORT_ATTRACTORS:]
+    if rest:
+        rows.append([f"{len(rest)} more attractors", f"{_num(100 * sum(float(a.get('share', 0.0)) for a in rest), 3)}%",
+                     "of the starts"])
+    escaped = float(np.mean(np.asarray(r.labels) < 0)) if np.asarray(r.labels).size else 0.0
+    if escaped:
+        rows.append(["escape", f"{_num(100 * escaped, 3)}%", "ran off or failed"])
+    return rows
+
+
+def _parameter_map_rows(r) -> list[list[str]]:
+    """A two-parameter map: its grid, then the largest exponent's range and how much of it is chaotic, or the
+    periods found with how many points have each."""
+    if hasattr(r, "exponent"):
+        values = np.asarray(r.exponent, dtype=float)
+        finite = values[np.isfinite(values)]
+        rows = [_grid_row(r, "values")]
+        if finite.size:
+            rows.append(["largest exponent", f"{_num(finite.min(), 4)} to {_num(finite.max(), 4)}",
+                         f"positive (chaotic) at {int(np.sum(finite > 1e-3))} of {values.size} points"])
+        if finite.size < values.size:
+            rows.append(["blew up", _num(values.size - finite.size), "points"])
+        return rows
+    period = np.asarray(r.period)
+    rows = [_grid_row(r, "values")]
+    words = {-2: "equilibrium", -1: "blew up", 0: f"no period up to {r.max_period}"}
+    for k, n in sorted(((int(k), int(np.sum(period == k))) for k in np.unique(period)), key=lambda kn: -kn[1]):
+        rows.append([_e(words.get(k, f"period {k}")), _num(n), f"of {period.size} points"
+                     + (f" ({_e(r.unit)})" if k > 0 else "")])
+    return rows
+
+
 REPORTED = (("lyapunov", "lyapunov"), ("sweep", "sweep"), ("sections", "section"),
-            ("bifurcation", "bifurcation"))  # document kind, results key
+            ("bifurcation", "bifurcation"), ("basins", "basins"), ("parameter_map", "parameter_map"))
+# (document kind, results key)
 
 
 def document_results(doc) -> tuple[dict, dict]:
@@ -243,7 +295,8 @@ def _results_html(results: dict, system, stale: dict | None = None) -> list[str]
     out = []
     parts = (("lyapunov", "Lyapunov exponents", lambda r: _lyapunov_rows(r, system.time_name)),
              ("sweep", "Parameter sweep", _sweep_rows), ("section", "Section", _section_rows),
-             ("bifurcation", "Bifurcation diagram", _bifurcation_rows))
+             ("bifurcation", "Bifurcation diagram", _bifurcation_rows),
+             ("basins", "Basins of attraction", _basin_rows), ("parameter_map", "Two-parameter map", _parameter_map_rows))
     for key, heading, rows_of in parts:
         result = results.get(key)
         if result is None:

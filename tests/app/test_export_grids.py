@@ -100,3 +100,20 @@ def test_an_exported_basin_map_has_its_cells_and_a_key_naming_each_attractor(qtb
             assert 20 <= square.sum() <= 400, a["centre"]  # one small square in the key
         # the key's words are drawn under the map in the text colour
         assert (rgb[int(0.88 * h):].sum(axis=2) < 200).sum() > 200
+
+
+def test_a_basin_maps_csv_reads_back_with_whole_attractor_numbers(qtbot, session, tmp_path):
+    import csv
+
+    from orbitdesk.app.exports import export_data
+
+    view = wells(qtbot, session, 12, 10, False)  # x'' = -0.3 x' + x - x^3: two wells (closed form)
+    path = tmp_path / "basins.csv"
+    assert export_data(None, path, view)
+    with open(path, newline="", encoding="utf-8") as f:
+        rows = list(csv.reader(f))
+    assert rows[0] == ["x", "x'", "attractor (-1: escape)"] and len(rows) == 1 + 12 * 10
+    labels = [r[2] for r in rows[1:]]
+    assert set(labels) == {"0", "1"}  # the attractor's number as written in the legend, not 0.0 and 1.0
+    assert [int(v) for v in labels] == view.result.labels.ravel().tolist()
+    assert float(rows[1][0]) == -2.0 and float(rows[-1][1]) == 2.0

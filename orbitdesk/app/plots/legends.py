@@ -8,6 +8,7 @@ import numpy as np
 import pyqtgraph as pg
 
 MARGIN = 8  # pixels between the legend and the plot's edge
+CLEARANCE = 24  # pixels around the legend where drawn points and names still count against a corner
 CORNERS = ((1, 0), (0, 0), (1, 1), (0, 1))  # (right?, bottom?): top right first, the tie's winner
 
 
@@ -41,7 +42,17 @@ def drawn_points(plot_item) -> np.ndarray:
             x = np.interp(np.arange(0, x.size - 0.5, 0.25), np.arange(x.size), x)
             y = np.interp(np.arange(0, y.size - 0.5, 0.25), np.arange(y.size), y)
         parts.append(np.vstack([(x - x0) / (x1 - x0) * W, (y1 - y) / (y1 - y0) * H]))
+    for item in plot_item.items:  # names written in the plot (a special point's "fold"): their box's outline
+        if isinstance(item, pg.TextItem) and item.isVisible():
+            r = view_box.mapRectFromScene(item.sceneBoundingRect())
+            gx, gy = np.meshgrid(np.linspace(r.left(), r.right(), 5), np.linspace(r.top(), r.bottom(), 3))
+            parts.append(np.vstack([gx.ravel(), gy.ravel()]))
     return np.hstack(parts) if parts else np.zeros((2, 0))
+
+
+def _grown(box, by: float):
+    left, top, right, bottom = box
+    return left - by, top - by, right + by, bottom + by
 
 
 def covered(points: np.ndarray, box) -> int:
@@ -65,7 +76,11 @@ def place_legend(plot_item, make_room: bool = False) -> tuple[int, int] | None:
     def best():
         legend.layout.activate()  # (its size after a change of columns)
         legend.updateSize()
-        return min((covered(points, legend_box(view_box, legend, c)), c) for c in CORNERS)
+        # fewest points under it, then fewest close by (a name or a marker just beside it), then top right first
+        ranked = min(((covered(points, legend_box(view_box, legend, c)),
+                       covered(points, _grown(legend_box(view_box, legend, c), CLEARANCE)), k), c)
+                     for k, c in enumerate(CORNERS))
+        return ranked[0][0], ranked[1]
 
     if legend.columnCount != 1:
         legend.setColumnCount(1)
