@@ -277,9 +277,6 @@ def _cpu_seconds(pid: int) -> float | None:
         return None
 
 
-FREE_COORDINATE = "a solution with a free coordinate"  # replaced by words that say what it means
-
-
 class _ExactSolve:
     """The exact solve in a forked child, started at once; ``answer`` collects it (or gives up)."""
 
@@ -334,7 +331,7 @@ class _ExactSolve:
             notes.append(f"no exact solution ({answer['error']}); Newton search only")
             return [], notes
         if answer.get("continuum"):
-            notes.append(FREE_COORDINATE)  # worded when the points are known (_free_coordinate)
+            notes.append("the equilibria include a curve or surface (a solution with a free coordinate)")
         return [np.array(s, dtype=float) for s in answer["solutions"]], notes
 
     def close(self) -> None:
@@ -573,7 +570,6 @@ def _search(system, p, G, DG, DG_sparse, box, starts, u0, solve, exact_timeout, 
         eq = _equilibrium(system, x, method, DG, p)
         if eq is not None:
             results.append(eq)
-    _free_coordinate(results, notes)
     results = wrap_equilibria(system, _thin_continuum(results, notes))  # an angle's turns are one point
     if system.delays:  # stability from the characteristic equation of the delays
         from orbitdesk.analyses.delay_stability import with_delay_stability
@@ -582,21 +578,6 @@ def _search(system, p, G, DG, DG_sparse, box, starts, u0, solve, exact_timeout, 
     if not results:
         notes.append("no equilibrium found in the search box")
     return Equilibria(results, notes, full_box)
-
-
-def _free_coordinate(results, notes) -> None:
-    """sympy answers with a coordinate left free both for a curve of equilibria and for an equation it could not
-    solve in closed form (the stirred tank's c = stay (1 - c) exp(heat c)). Points on a curve of equilibria have
-    a singular Jacobian; when every point found has none, they are isolated and the note says what happened."""
-    if FREE_COORDINATE not in notes:
-        return
-    at = notes.index(FREE_COORDINATE)
-    if any(_singular(eq) for eq in results):
-        notes[at] = "the equilibria include a curve or surface (a solution with a free coordinate)"
-    elif results:
-        notes[at] = ("found by Newton's method (sympy has no closed form); isolated: no zero eigenvalue")
-    else:
-        notes[at] = "no closed form (an equation sympy could not solve); Newton search only"
 
 
 def _singular(eq) -> bool:
