@@ -24,7 +24,7 @@ from orbitdesk.engine.model_events import saltation_refusal
 from orbitdesk.engine.methods import DEFAULT as DEFAULT_METHOD
 from orbitdesk.engine.methods import method as method_named
 from orbitdesk.engine.status import C_CANCELLED
-from orbitdesk.engine.stiff import solve_at, variational
+from orbitdesk.engine.stiff import model_functions, solve_at
 from orbitdesk.analyses.time_scales import MIN_WINDOW, choose_method, detect_forcing_period, time_scale
 from orbitdesk.engine.status import word as status_word
 from orbitdesk.engine.progress import CancelToken, Cancelled, Reporter
@@ -132,14 +132,17 @@ class _Flow:
         return out.states
 
     def _run_stiff(self, z0, t0, t1, grid, which) -> np.ndarray:
-        fun, jac = variational(self.system, self.p, which, self.rhs)
+        fun, jac = model_functions(self.system, self.p, which)
 
         def report(_fraction):
             self.report(0.0)  # cancel polling
 
-        with np.errstate(all="ignore"):
-            states, _, failure = solve_at(self.info.scipy_name, fun, jac, t0, z0, t1, self.rtol, self.atol, grid,
-                                          report)
+        try:
+            with np.errstate(all="ignore"):
+                states, _, failure = solve_at(self.info.scipy_name, fun, jac, t0, z0, t1, self.rtol, self.atol, grid,
+                                              report)
+        except ArithmeticError as err:  # UndefinedValue
+            raise CycleError(str(err)) from None
         if failure is not None or states.shape[1] != len(grid):
             raise CycleError(f"the integration over one period failed ({failure or 'stopped early'})")
         return states

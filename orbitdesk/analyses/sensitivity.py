@@ -1,13 +1,17 @@
 """Forward sensitivities: a run together with the derivatives of its states by parameters and start.
 
-For a flow u' = f(t, u, p) the stacked state is ``(u, S, Phi)`` with ``S = du/dp_sel`` (n x m, zero at
-the start) and ``Phi = du/du(t_a)`` (n x n, the identity at the start), integrated together:
+For a flow u' = f(t, u, p) the stacked state is ``(u, S, Phi)`` with ``S = du/dp`` (n x P, every
+parameter, zero at the start) and ``Phi = du/du(t_a)`` (n x n, the identity at the start), integrated
+together:
 
-    S' = J S + df/dp_sel,      Phi' = J Phi.
+    S' = J S + df/dp,      Phi' = J Phi.
 
 For a map the same recursion is applied step by step (the chain rule through the map):
-``S[k+1] = J S[k] + df/dp_sel``, ``Phi[k+1] = J Phi[k]``. J and df/dp are the compiled system's
-symbolic derivatives, turned into one generated function by ``sympy.lambdify`` (never from text).
+``S[k+1] = J S[k] + df/dp``, ``Phi[k+1] = J Phi[k]``. Both come from the model's sensitivity kernel
+(``codegen.sensitivity_source``: the model's kernel with its sparse Jacobian, forced by the sparse
+df/dp), run by the engine's compiled loops like any run with tangent vectors (``drivers.flow_run``:
+the same Runge-Kutta family, statuses, pauses for cancel), or for a stiff method by the checked
+stiff stepper (``engine/stiff.py``). The selected parameters' columns of S are returned.
 
 Observed quantities may be states or derived quantities h(t, u, p); ``Observer`` gives h and its
 gradients by u and p at many samples at once.
@@ -20,19 +24,22 @@ from functools import cached_property
 
 import numpy as np
 import sympy as sp
-from scipy.integrate import solve_ivp
 
-from orbitdesk.engine.progress import CancelToken
-from orbitdesk.system.compiled_system import MAP, UNDEFINED_ERRORS, CompiledSystem, lambdify
+from orbitdesk.engine import compiled, drivers
 from orbitdesk.engine.methods import METHODS
+from orbitdesk.engine.progress import CancelToken, Cancelled, Reporter
+from orbitdesk.engine.status import C_CANCELLED, MEANING, word
+from orbitdesk.system.compiled_system import MAP, CompiledSystem, UndefinedValue, lambdify
 
-CANCEL_EVERY = 2000  # right-hand-side calls between cancel checks
+CANCEL_EVERY = 2000  # map steps between cancel checks
+BOUND = 1e150  # a state or sensitivity beyond this has overflowed
+RUNS = 1e6  # right-hand-side evaluations a fit's many runs are estimated at: worth waiting for the compiler
 
 
-def _scipy_method(name: str) -> str:
-    """The registry's scipy solver for ``name``; fixed-step and unknown methods use DOP853."""
+def _method(name: str):
+    """The registry's entry for ``name``; fixed-step and unknown methods run as Dormand-Prince 8(5,3)."""
     entry = METHODS.get(name)
-    return entry.scipy_name if entry is not None and entry.scipy_name else "DOP853"
+    return entry if entry is not None and entry.adaptive else METHODS["dop853"]
 
 
 class SensitivityFailure(Exception):
@@ -48,7 +55,7 @@ class SensitivityRun:
 
 
 class Sensitivities:
-    """Evaluators of the stacked system for the parameters ``selected`` (indices into system.parameters)."""
+    """Runs of the stacked system for the parameters ``selected`` (indices into system.parameters)."""
 
     def __init__(self, system: CompiledSystem, selected: list[int]):
         system.refuse_delays("sensitivities")
@@ -59,68 +66,82 @@ class Sensitivities:
         self.selected = list(selected)
         self.n = system.n_states
         self.m = len(self.selected)
+        self.P = len(system.parameters)
+        self.which = self.P + self.n  # tangent vectors: one per parameter, then one per start value
 
     @cached_property
-    def _stacked(self):
-        system, n, m = self.system, self.n, self.m
-        t, u, p, _ = system._plain
-        jac = sp.Matrix(n, n, system.plain(list(system.jacobian)))
-        pj = system.param_jacobian
-        fp = sp.Matrix(n, m, lambda i, j: system.plain([pj[i, self.selected[j]]])[0]) if m else sp.zeros(n, 0)
-        s = sp.Matrix(n, m, [sp.Symbol(f"_s{i}", real=True) for i in range(n * m)]) if m else sp.zeros(n, 0)
-        phi = sp.Matrix(n, n, [sp.Symbol(f"_m{i}", real=True) for i in range(n * n)])
-        exprs = list(system.plain(system.f)) + list(jac * s + fp) + list(jac * phi)
-        z = list(u) + list(s) + list(phi)
-        return lambdify([t, *z, *p], exprs)
+    def _engine(self):
+        engine = compiled.engine_for_work(self.system, RUNS)
+        return engine, compiled.sensitivity_kernel(engine, self.system)
 
     def start(self, u0) -> np.ndarray:
-        n, m = self.n, self.m
-        return np.concatenate([np.asarray(u0, dtype=float), np.zeros(n * m), np.eye(n).ravel()])
+        n = self.n
+        V = np.zeros((n, self.which))
+        V[:, self.P:] = np.eye(n)
+        return np.concatenate([np.asarray(u0, dtype=float), V.ravel()])
 
     def _split(self, Z: np.ndarray, times) -> SensitivityRun:
-        n, m = self.n, self.m
-        T = Z.shape[1]
-        return SensitivityRun(np.asarray(times, dtype=float), Z[:n],
-                              Z[n:n + n * m].reshape(n, m, T), Z[n + n * m:].reshape(n, n, T))
+        n, T = self.n, Z.shape[1]
+        V = Z[n:].reshape(n, self.which, T)
+        return SensitivityRun(np.asarray(times, dtype=float), Z[:n], V[:, self.selected, :], V[:, self.P:, :])
 
     def run(self, u0, p, t_start: float, times, *, rtol: float = 1e-8, atol: float = 1e-10,
             method: str = "dop853", cancel: CancelToken | None = None) -> SensitivityRun:
         """States and sensitivities at ``times`` (increasing, >= t_start) from ``u0`` at ``t_start``."""
         times = np.asarray(times, dtype=float)
         z0 = self.start(u0)
-        pv = tuple(float(v) for v in p)
-        fn = self._stacked
+        p = np.ascontiguousarray(p, dtype=float)
         if self.system.kind == MAP:
-            return self._split(self._iterate(fn, z0, pv, int(round(t_start)), times, cancel), times)
-        calls = [0]
-
-        def rhs(tt, zz):
-            calls[0] += 1
-            if cancel is not None and calls[0] % CANCEL_EVERY == 0:
-                cancel.check()
-            try:
-                return fn(tt, *zz, *pv)
-            except UNDEFINED_ERRORS:
-                raise SensitivityFailure(f"an expression of the model is undefined at {self.system.time_name} "
-                                         f"= {tt:.6g}") from None
-
+            return self._split(self._iterate(z0, p, int(round(t_start)), times, cancel), times)
         if times.size == 0:
             return self._split(np.empty((z0.size, 0)), times)
-        t_end = float(times[-1])
-        if t_end == t_start:
-            return self._split(np.repeat(z0[:, None], times.size, axis=1), times)
-        with np.errstate(all="ignore"):
-            sol = solve_ivp(rhs, (float(t_start), t_end), z0, method=_scipy_method(method),
-                            t_eval=times, rtol=rtol, atol=atol)
-        if sol.status != 0 or sol.y.shape[1] != times.size or not np.all(np.isfinite(sol.y)):
-            raise SensitivityFailure(f"the model could not be integrated to {self.system.time_name} = {t_end:.6g} "
-                                     f"({sol.message})")
-        return self._split(sol.y, times)
+        # the samples after the start, each once (a record may repeat a time); those at the start are z0
+        later, back = np.unique(times, return_inverse=True)
+        first = int(np.searchsorted(later, t_start, side="right"))
+        Z = np.repeat(z0[:, None], later.size, axis=1)
+        if first < later.size:
+            Z[:, first:] = self._flow(z0, p, float(t_start), later[first:], rtol, atol, _method(method), cancel)
+        return self._split(Z[:, back.ravel()], times)
 
-    def _iterate(self, fn, z0, pv, n0: int, times, cancel) -> np.ndarray:
+    def _flow(self, z0, p, t_start, grid, rtol, atol, info, cancel) -> np.ndarray:
+        name, t_end = self.system.time_name, float(grid[-1])
+        if info.stiff:
+            return self._stiff(z0, p, t_start, grid, rtol, atol, info, cancel)
+        engine, kernel = self._engine
+        with np.errstate(all="ignore"):
+            out = drivers.flow_run(engine, info.name, t_start, t_end, z0, p, rtol, atol, grid=grid, which=self.which,
+                                   kernel=kernel, bound=BOUND, report=Reporter(None, cancel))
+        if out.code == C_CANCELLED:
+            raise Cancelled("cancelled")
+        if out.code != 0 or out.time.size != grid.size:
+            why = out.note or (f"{MEANING[word(out.code)]}" if out.code else "stopped early")
+            raise SensitivityFailure(f"the model could not be integrated to {name} = {t_end:.6g} ({why} near "
+                                     f"{name} = {out.t:.6g})")
+        return out.states
+
+    def _stiff(self, z0, p, t_start, grid, rtol, atol, info, cancel) -> np.ndarray:
+        from orbitdesk.engine.stiff import model_functions, solve_at
+
+        name, t_end = self.system.time_name, float(grid[-1])
+        fun, jac = model_functions(self.system, p, self.which, sensitivity=True)
+        report = Reporter(None, cancel)
+        try:
+            with np.errstate(all="ignore"):
+                states, _, failure = solve_at(info.scipy_name, fun, jac, t_start, z0, t_end, rtol, atol, grid, report)
+        except UndefinedValue as err:
+            raise SensitivityFailure(f"the model could not be integrated to {name} = {t_end:.6g} ({err})") from None
+        if failure is not None or states.shape[1] != grid.size or not np.all(np.isfinite(states)):
+            raise SensitivityFailure(f"the model could not be integrated to {name} = {t_end:.6g} "
+                                     f"({failure or 'not a number'})")
+        return states
+
+    def _iterate(self, z0, p, n0: int, times, cancel) -> np.ndarray:
+        engine, kernel = self._engine
+        evaluate = engine.entry("evaluate")
         steps = np.round(times).astype(int)
         out = np.empty((z0.size, steps.size))
-        z = [float(v) for v in z0]
+        z, nxt = z0.copy(), np.empty(z0.size)
+        n, which = self.n, self.which
         k, j = n0, 0
         while j < steps.size and steps[j] == k:
             out[:, j] = z
@@ -128,13 +149,14 @@ class Sensitivities:
         while j < steps.size:
             if cancel is not None and k % CANCEL_EVERY == 0:
                 cancel.check()
-            try:
-                z = fn(k, *z, *pv)
-            except UNDEFINED_ERRORS:
-                raise SensitivityFailure(f"an expression of the map is undefined at n = {k}") from None
+            with np.errstate(all="ignore"):
+                evaluate(kernel, which, float(k), z, p, nxt)
             k += 1
-            if not all(abs(v) < 1e150 for v in z[:self.n]):
+            if np.isnan(nxt[:n]).any():
+                raise SensitivityFailure(f"an expression of the map is undefined at n = {k - 1}")
+            if not np.all(np.abs(nxt[:n]) < BOUND):
                 raise SensitivityFailure(f"the orbit escapes to infinity at n = {k}")
+            z, nxt = nxt, z
             while j < steps.size and steps[j] == k:
                 out[:, j] = z
                 j += 1

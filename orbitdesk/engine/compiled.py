@@ -32,13 +32,17 @@ from orbitdesk.engine import explicit_rk, jitting, maps, members, members_fixed,
 
 LOOP_MODULES = (explicit_rk, maps, tangent, members, members_fixed, stochastic)
 _SIGNATURES = {}  # kernels compiled as cfuncs on arrays (sde); model: inlined into model_at, on pointers
-# the loops' entry to the model's kernel: its arrays' data as pointers (jitting.at), made arrays again
-_MODEL_AT = """
+
+
+def _at_kernel(name: str) -> str:
+    """The loops' entry to the kernel ``name`` (``model``, ``sensitivity``): ``{name}_at``, a cfunc on
+    its arrays' data as pointers (jitting.at), made arrays again, with the kernel inlined."""
+    return f"""
 
 @cfunc(jitting.signature('MODEL_AT'), cache=_ON_DISK, error_model='numpy')
-def model_at(which, t, z, p, out):
+def {name}_at(which, t, z, p, out):
     size = N_STATES * (which + 1)
-    model(which, t, carray(z, size), carray(p, N_PARAMS), carray(out, size))
+    {name}(which, t, carray(z, size), carray(p, N_PARAMS), carray(out, size))
 """
 _CACHE_OPTION = "cache=_ON_DISK"  # private_cache sets _ON_DISK: the module is backed by its verified file
 _lock = threading.Lock()
@@ -57,6 +61,7 @@ class Engine:
     batch_text: str = ""  # the source of the batched kernel's module (compiled when first used)
     _batch: object = None
     _entries: dict = field(default_factory=dict, repr=False)
+    _parts: dict = field(default_factory=dict, repr=False)  # kernels of their own modules, by name
 
     @property
     def f(self):
@@ -83,16 +88,35 @@ class Engine:
         return self._batch
 
 
+def sensitivity_kernel(engine: Engine, system):
+    """The model's sensitivity kernel (``codegen.sensitivity_source``: ``model`` with the forcing df/dp,
+    the same arguments, so the engine's loops take it in place of ``engine.f``), compiled like the
+    engine's kernels (or plain Python with them) in a module of its own the first time it is asked."""
+    found = engine._parts.get("sensitivity")
+    if found is None:
+        with _batch_lock:
+            found = engine._parts.get("sensitivity")
+            if found is None:
+                text = module_source(system, jit=engine.compiled, part="sensitivity")
+                digest = _digest(text)
+                module = _import_compiled(text, digest, "s") if engine.compiled else _exec_module(text, f"pys{digest}")
+                found = engine._parts["sensitivity"] = module.sensitivity_at
+    return found
+
+
 def available() -> bool:
     return jitting.enabled()
 
 
-def module_source(system, jit: bool, batch: bool = False) -> str:
-    """The kernels' module text (kept on the system); ``batch``: the batched kernel's module."""
-    key = ("_kernel_source_jit" if jit else "_kernel_source_py") + ("_batch" if batch else "")
+def module_source(system, jit: bool, batch: bool = False, part: str = "") -> str:
+    """The kernels' module text (kept on the system); ``batch`` or ``part`` = "batch": the batched
+    kernel's module; ``part`` = "sensitivity": the sensitivity kernel's (``codegen.sensitivity_source``)."""
+    part = "batch" if batch else part
+    key = ("_kernel_source_jit" if jit else "_kernel_source_py") + (f"_{part}" if part else "")
     cached = system.__dict__.get(key)
     if cached is None:
-        if batch:
+        inlined = part or "model"  # the kernel the loops call through its pointer cfunc (``_at_kernel``)
+        if part == "batch":
             head = ["import math", "from math import *  # noqa: F401,F403", "import numpy as np"]
             head += (["from numba import cfunc", "from orbitdesk.engine import jitting", "",
                       f"_batch_kernel = cfunc(jitting.signature('BATCH'), {_CACHE_OPTION}, error_model='numpy')"]
@@ -102,32 +126,43 @@ def module_source(system, jit: bool, batch: bool = False) -> str:
             head = ["import math", "from math import *  # noqa: F401,F403", "import numpy as np",
                     "from numba import carray, cfunc, njit", "from orbitdesk.engine import jitting", "", "",
                     "def _plain(f):", "    return f", "",
-                    "_model_kernel = njit(error_model='numpy', inline='always')  # compiled into model_at"]
+                    f"_{inlined}_kernel = njit(error_model='numpy', inline='always')  # compiled into {inlined}_at"]
             head += [f"_{name}_kernel = cfunc(jitting.signature({sig!r}), {_CACHE_OPTION}, error_model='numpy')"
-                     for name, sig in _signatures(system).items()]
+                     for name, sig in _signatures(system, part).items()]
             # parts of a large kernel (codegen._split_model): compiled with it, into its machine code
             head += ["_part_kernel = njit(error_model='numpy', nogil=True)"]
         else:
             head = ["import math", "from math import *  # noqa: F401,F403", "import numpy as np", "", "",
                     "def _plain(f):", "    return f", "", "",
                     "def _fill_nan(a):", "    a[...] = math.nan", ""]
-            head += [f"_{name}_kernel = _plain" for name in list(_signatures(system)) + ["model", "part"]]
-        if not batch:
+            head += [f"_{name}_kernel = _plain" for name in list(_signatures(system, part)) + [inlined, "part"]]
+        if not part:
             head += ["_jac_kernel = _jac_values_kernel = _plain  # called from Python (stiff solvers, Newton)"]
-        foot = "" if batch else _MODEL_AT if jit else "\n\nmodel_at = model\n"
+        foot = "" if part == "batch" else _at_kernel(inlined) if jit else f"\n\n{inlined}_at = {inlined}\n"
         cached = system.__dict__[key] = HEADER + "\n".join(head) + "\n\n\n" + kernel_source(
-            system, guard=not jit, batch=batch) + foot + "\n"
+            system, guard=not jit, part=part) + foot + "\n"
     return cached
 
 
-def _signatures(system) -> dict:
-    """The compiled kernels of this model: ``model``, and ``sde`` for a model with noise."""
+def _signatures(system, part: str = "") -> dict:
+    """The kernels of this model's module compiled as cfuncs on arrays: ``sde`` for a model with noise
+    (``model``, and the sensitivity module's ``sensitivity``, are inlined into their ``_at`` cfuncs)."""
+    if part == "sensitivity":
+        return {}  # sensitivity: inlined into sensitivity_at, on pointers
     return {**_SIGNATURES, "sde": "MODEL"} if system.stochastic else _SIGNATURES
 
 
 def _digest(source: str) -> str:
     text = f"{source}\n# numba {_numba_version()}, python {sys.version_info[:2]}, loaded by private_cache"
     return hashlib.sha256(text.encode()).hexdigest()[:32]
+
+
+def _model_digest(system) -> str:
+    """``_digest`` of the model's kernel module (kept on the system: callers ask for the engine often)."""
+    cached = system.__dict__.get("_kernel_digest")
+    if cached is None:
+        cached = system.__dict__["_kernel_digest"] = _digest(module_source(system, jit=True))
+    return cached
 
 
 def _numba_version() -> str:
@@ -209,7 +244,7 @@ def numpy_batch(system):
 
 
 def is_compiled(system) -> bool:
-    return available() and _digest(module_source(system, jit=True)) in _engines
+    return available() and _model_digest(system) in _engines
 
 
 def engine_for(system, wait: bool = False) -> Engine:
@@ -217,7 +252,7 @@ def engine_for(system, wait: bool = False) -> Engine:
     if not available():
         return python_engine(system)
     source = module_source(system, jit=True)
-    digest = _digest(source)
+    digest = _model_digest(system)
     with _lock:
         engine = _engines.get(digest)
         thread = _pending.get(digest)
@@ -248,7 +283,7 @@ def prepare(system) -> None:
     if not available():
         return
     source = module_source(system, jit=True)
-    digest = _digest(source)
+    digest = _model_digest(system)
     with _lock:
         if digest in _engines or digest in _pending:
             return
@@ -275,4 +310,4 @@ def engine_for_work(system, evaluations: float) -> Engine:
 
 
 __all__ = ["Engine", "available", "module_source", "cache_folder", "engine_for", "engine_for_work", "prepare",
-           "python_engine", "is_compiled", "WORTH_COMPILING"]
+           "python_engine", "sensitivity_kernel", "is_compiled", "WORTH_COMPILING"]

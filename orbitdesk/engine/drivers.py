@@ -64,10 +64,11 @@ def _step_options(name, rtol, atol, max_step, dt):
 
 
 def flow_run(engine, name, t0, t1, y0, p, rtol=1e-8, atol=1e-10, max_step=None, dt=0.01, bound=1e10,
-             grid=None, every_step=False, planes=None, report=None, which=0) -> FlowOutput:
+             grid=None, every_step=False, planes=None, report=None, which=0, kernel=None) -> FlowOutput:
     """Integrate from t0 to t1 with the method ``name``: samples at ``grid`` (read off the dense
     output) or every step's end; crossings of ``planes`` = (rows [normal..., value], directions,
-    terminal flags)."""
+    terminal flags). ``kernel``: another kernel of the model with ``model``'s arguments (the
+    sensitivity equations, compiled.sensitivity_kernel) in place of ``engine.f``."""
     kind, adaptive, rtol, atol, max_step = _step_options(name, rtol, atol, max_step, dt)
     y = np.array(y0, dtype=float)
     n = y.size
@@ -91,8 +92,9 @@ def flow_run(engine, name, t0, t1, y0, p, rtol=1e-8, atol=1e-10, max_step=None, 
     note = ""
     pace = _Pace(t0, t1, engine.compiled)
     advance = engine.entry("erk_advance")
+    f = engine.f if kernel is None else kernel
     while True:
-        code = advance(engine.f, kind, which, adaptive, y, p, K, F, W, st, float(t1), rtol, atol, max_step,
+        code = advance(f, kind, which, adaptive, y, p, K, F, W, st, float(t1), rtol, atol, max_step,
                        float(bound), grid, out_t, out_y, bool(every_step), rows, dirs, terminal,
                        ev_t, ev_y, ev_k, PAUSE_STEPS)
         if every_step and st[5]:

@@ -145,40 +145,14 @@ def solve_at(scipy_name: str, fun, jac, t0: float, y0, t1: float, rtol: float, a
     return _columns(out, len(y0)), steps, None
 
 
-def variational(system, p, m: int, rhs=None):
-    """(fun, jac) of the state with m tangent vectors z = (u, V (n x m) by rows) for a scipy stiff solver:
-    u' = f(u), V' = J(u) V. jac gives the tangent columns their J in each block and leaves out their
-    dependence on u (it serves Newton's iteration only). ``rhs(t, u)``: the right-hand side (default the
-    system's at ``p``)."""
-    n = system.n_states
-    rhs = rhs or (lambda t, u: system.rhs(t, u, p))
-    eye = np.eye(max(m, 1))
-
-    def fun(t, z):
-        f = rhs(t, z[:n])
-        if not m:
-            return f
-        return np.concatenate([f, (system.jac(t, z[:n], p) @ z[n:].reshape(n, m)).ravel()])
-
-    def jac(t, z):
-        J = system.jac(t, z[:n], p)
-        if not m:
-            return J
-        full = np.zeros((n * (m + 1), n * (m + 1)))
-        full[:n, :n] = J
-        full[n:, n:] = np.kron(J, eye)
-        return full
-
-    return fun, jac
-
-
 SPARSE_FROM = 30  # states from which the stiff solvers get the Jacobian as a sparse matrix (SuperLU)
 
 
-def model_functions(system, p, which: int = 0):
+def model_functions(system, p, which: int = 0, sensitivity: bool = False):
     """(fun, jac) of the model for the stiff steppers, on its kernels (``codegen.py``): ``fun(t, z)`` the
     compiled right-hand side when the model's kernels are compiled (their plain-Python twin until then),
-    with ``which`` tangent vectors the variational equations too (z = (u, V), V n x which row by row);
+    with ``which`` tangent vectors the variational equations too (z = (u, V), V n x which row by row;
+    ``sensitivity``: the first N_PARAMS of them forced by df/dp, compiled.sensitivity_kernel);
     ``jac(t, z)`` the Jacobian's structural entries (``jac_values``, each equation differentiated only by
     the states it holds) as a sparse matrix from SPARSE_FROM states on, dense below (for the tangent
     columns the same J in each block, their dependence on u left out: it serves Newton's iteration
@@ -187,7 +161,8 @@ def model_functions(system, p, which: int = 0):
     from orbitdesk.system.compiled_system import UNDEFINED_ERRORS, UndefinedValue
 
     engine = compiled.engine_for(system)
-    kernels, evaluate, f = engine.kernels, engine.entry("evaluate"), engine.f
+    kernels, evaluate = engine.kernels, engine.entry("evaluate")
+    f = compiled.sensitivity_kernel(engine, system) if sensitivity else engine.f
     n = system.n_states
     size = n * (which + 1)
     p = np.ascontiguousarray(p, dtype=float)
@@ -233,7 +208,8 @@ def tangent_run(system, scipy_name: str, t0: float, t1: float, keep_from: float,
     """Lyapunov sums of a flow by a stiff method, as ``drivers.flow_tangent`` gives them for the explicit
     ones: the state with the tangent vectors V0 (n x m) from t0 to t1, re-orthonormalised (QR) every
     ``interval``, the logarithms of R's diagonal summed after ``keep_from``. Each interval is one checked
-    stiff run of the variational equations (``variational``) ending on the renormalisation time."""
+    stiff run of the variational equations (``model_functions`` with m tangent vectors) ending on the
+    renormalisation time."""
     from orbitdesk.engine.drivers import TangentOutput
     from orbitdesk.engine.progress import Cancelled
     from orbitdesk.engine.status import C_CANCELLED, C_DIVERGED, C_STEP_FAILED
@@ -242,7 +218,7 @@ def tangent_run(system, scipy_name: str, t0: float, t1: float, keep_from: float,
     V = np.asarray(V0, dtype=float).copy()
     n, m = V.shape
     p = np.asarray(p, dtype=float)
-    fun, jac = variational(system, p, m)
+    fun, jac = model_functions(system, p, m)
     sums, averaged = np.zeros(m), 0.0
     count = max(1.0, abs(t1 - keep_from) / interval)
     stride = max(1, int(np.ceil(count / max_rows)))
@@ -326,4 +302,4 @@ def looks_stiff(system, p, run, min_steps: int = STIFF_STEPS) -> bool:
 
 
 __all__ = ["StiffStepper", "looks_stiff", "model_functions", "solve_at", "spectral_radius", "tangent_run",
-           "variational", "SPARSE_FROM"]
+           "SPARSE_FROM"]

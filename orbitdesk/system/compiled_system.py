@@ -18,7 +18,6 @@ from sympy.functions.elementary.piecewise import ExprCondPair
 from sympy.printing.numpy import NumPyPrinter
 from sympy.printing.pycode import PythonCodePrinter
 
-from orbitdesk.system.derivatives import jacobian_almost_everywhere
 from orbitdesk.language.model import FLOW, MAP, ParsedModel, parse_model
 from orbitdesk.system.flat_code import flat_cse
 from orbitdesk.language.noise import system_noise
@@ -171,8 +170,11 @@ class CompiledSystem:
 
     @cached_property
     def param_jacobian(self) -> sp.Matrix:
-        """d f_i / d p_k in the model's symbols."""
-        return jacobian_almost_everywhere(self.f, self.param_symbols)
+        """d f_i / d p_k in the model's symbols (each equation differentiated only by the parameters it
+        holds: codegen.parameter_derivatives)."""
+        from orbitdesk.system.codegen import dense_jacobian
+
+        return dense_jacobian(self, parameters=True)
 
     def plain(self, exprs):
         swap = self._plain[3]
@@ -205,10 +207,6 @@ class CompiledSystem:
 
         t, u, p, _ = self._plain
         return lambdify([t, *u, *p], list(sparse_jacobian(self)[2]), modules)
-
-    @cached_property
-    def _jac_scalar(self):
-        return self._compile_jacobian("math")
 
     @cached_property
     def _jac_vector(self):
@@ -252,21 +250,44 @@ class CompiledSystem:
 
         return rhs
 
+    def _kernels(self):
+        """The model's engine (engine/compiled.py): its compiled kernels when ready, their plain-Python
+        twin until then; the compiled one is kept once it is there."""
+        engine = self.__dict__.get("_kernel_engine")
+        if engine is None:
+            from orbitdesk.engine import compiled  # the kernels are printed by codegen from this system
+
+            engine = compiled.engine_for(self)
+            if engine.compiled or not compiled.available():
+                self.__dict__["_kernel_engine"] = engine
+        return engine
+
     def rhs(self, t, u, p=None) -> np.ndarray:
-        p = self.param_values if p is None else p
-        try:
-            return np.array(self._f_scalar(float(t), *map(float, u), *map(float, p)), dtype=float)
-        except (ValueError, ZeroDivisionError, TypeError, OverflowError) as exc:
-            raise UndefinedValue(self.explain_undefined(t, u, p) or str(exc)) from None
+        """f(t, u, p) by the model's kernel (``model`` with no tangent vectors); an undefined value
+        raises UndefinedValue with the subexpression that fails."""
+        p = np.ascontiguousarray(self.param_values if p is None else p, dtype=float)
+        z = np.ascontiguousarray(u, dtype=float)
+        out = np.empty(self.n_states)
+        engine = self._kernels()
+        with np.errstate(all="ignore"):
+            engine.entry("evaluate")(engine.f, 0, float(t), z, p, out)
+        if np.isnan(out).any() and np.isfinite(z).all() and np.isfinite(p).all():
+            raise UndefinedValue(self.explain_undefined(t, z, p) or
+                                 f"an expression is undefined at {self.time_name} = {float(t):.6g}")
+        return out
 
     def jac(self, t, u, p=None) -> np.ndarray:
-        p = self.param_values if p is None else p
+        """The Jacobian's structural entries by the model's kernel ``jac`` (dense n x n)."""
+        p = [float(v) for v in (self.param_values if p is None else p)]
+        u = [float(v) for v in u]
         n = self.n_states
         J = np.zeros((n, n))
         try:
-            J[self._jac_structure] = self._jac_scalar(float(t), *map(float, u), *map(float, p))
+            self._kernels().kernels.jac(float(t), u, p, J)
         except (ValueError, ZeroDivisionError, TypeError, OverflowError) as exc:  # TypeError: a complex value too
             raise UndefinedValue(f"the Jacobian is undefined at this point ({exc})") from None
+        if np.isnan(J).any() and np.isfinite(u).all() and np.isfinite(p).all():
+            raise UndefinedValue("the Jacobian is undefined at this point")
         return J
 
     def rhs_vec(self, t, U, P=None) -> np.ndarray:
