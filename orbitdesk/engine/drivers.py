@@ -558,7 +558,9 @@ def warm_up(engine) -> None:
     planes = (np.zeros((1, n + 1)), np.zeros(1, dtype=np.int64), np.zeros(1, dtype=np.bool_))
     flow_run(engine, "dop853", 0.0, 1e-9, y0, p, grid=np.array([0.0, 1e-9]), planes=planes)
     flow_tangent(engine, "dop853", 0.0, 1e-9, 0.0, y0, np.eye(n), p, 1e-9)
-    stepper = ExplicitStepper(engine, "dop853", 0.0, y0, 1e-9, p)
+    # no bound: a model whose right-hand side is huge at the warm-up's state (a constant near 1e300) still
+    # takes its step, so the dense output's loops are compiled too
+    stepper = ExplicitStepper(engine, "dop853", 0.0, y0, 1e-9, p, bound=math.inf)
     stepper.step()
     if stepper.t_old is None:  # the model is undefined at the warm-up point: its step failed, the dense
         stepper.t_old, stepper.t = 0.0, 1e-9  # output's loops are compiled all the same (on NaN values)
