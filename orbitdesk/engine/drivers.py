@@ -549,6 +549,8 @@ def warm_up(engine) -> None:
     n = int(k.N_STATES)
     y0 = np.full(n, 0.5)
     p = np.full(int(k.N_PARAMS), 0.5)
+    with np.errstate(all="ignore"):  # the kernel from Python (rhs(), stiff solvers, map sensitivities)
+        engine.entry("evaluate")(engine.f, 0, 0.0, y0, p, np.empty(n))
     if k.IS_MAP:
         map_run(engine, 0, 1, y0, p)
         map_tangent(engine, 0, 1, 0, y0, np.eye(n), p)
