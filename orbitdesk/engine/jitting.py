@@ -21,6 +21,7 @@ into a compiled function that is not inlined, makes every call through it severa
 
 from __future__ import annotations
 
+import functools
 import importlib.util
 import os
 import threading
@@ -35,6 +36,13 @@ def enabled() -> bool:
     """numba can be imported and the plain-Python path is not forced (ORBITDESK_NO_JIT=1)."""
     if os.environ.get("ORBITDESK_NO_JIT", "").strip().lower() not in ("", "0", "no", "off", "false"):
         return False
+    return _numba_installed()
+
+
+@functools.lru_cache(maxsize=None)
+def _numba_installed() -> bool:
+    # once per process: the search for the package costs about a millisecond, and every evaluation of
+    # the model from Python (CompiledSystem.rhs/jac until its kernels are compiled) asks
     return importlib.util.find_spec("numba") is not None
 
 
