@@ -24,6 +24,10 @@ def period_map(qtbot, session):
                               "transient": 2000, "max_period": 16})
     with qtbot.waitSignal(view.resultChanged, timeout=60000, check_params_cb=lambda r: r is not None):
         view.compute()
+        # while it computes, the empty plot already spans the grid asked for, with its parameters' names
+        (x0, x1), (y0, y1) = view.plot.getViewBox().viewRange()
+        assert x0 < 0.0 < 1.4 < x1 < 1.5 and y0 < 0.0 < 0.4 < y1 < 0.45
+        assert view.plot.getAxis("bottom").labelText == "a" and view.plot.getAxis("left").labelText == "b"
     qtbot.wait(100)
     return view
 
@@ -45,6 +49,7 @@ def test_an_exported_period_map_shows_its_cells_and_colour_bar_where_the_screen_
     widget = view.plot_widget
     w, h = widget.width(), widget.height()
     screen = pixels(widget.grab().toImage().scaled(QSize(w, h)))
+    widget.grab().save(f"{artifacts}/screen_period_map.png")
     png, svg = tmp_path / "map.png", tmp_path / "map.svg"
     assert figures.save_plot(view.plot, png, w, h, host=view)
     assert figures.save_plot(view.plot, svg, w, h, host=view)
@@ -117,3 +122,18 @@ def test_a_basin_maps_csv_reads_back_with_whole_attractor_numbers(qtbot, session
     assert set(labels) == {"0", "1"}  # the attractor's number as written in the legend, not 0.0 and 1.0
     assert [int(v) for v in labels] == view.result.labels.ravel().tolist()
     assert float(rows[1][0]) == -2.0 and float(rows[-1][1]) == 2.0
+
+
+def test_the_colour_bar_is_named_as_long_as_its_height_allows(qtbot, session):
+    view = period_map(qtbot, session)
+    axis = view.colour_bar.getAxis("right")
+    assert axis.labelText == "period (iterations)"  # a tall map: the whole name
+    view.resize(900, 250)
+    qtbot.waitUntil(lambda: axis.labelText == "period", timeout=5000)  # a short one: the name fits beside it
+    assert axis.label.boundingRect().width() <= view.colour_bar.getViewBox().height()
+    widget = figures.copy_plot(view.plot, 900, 640, host=view)  # a tall figure of it: the whole name again
+    try:
+        bar = figures._colour_bar(widget.getPlotItem())
+        assert bar.getAxis("right").labelText == "period (iterations)"
+    finally:
+        figures._finish(widget)

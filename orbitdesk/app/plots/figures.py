@@ -138,6 +138,7 @@ def _copy_colour_bar(source_bar, plot, image) -> None:
         bar.getAxis(name).setTextPen(source_bar.getAxis(name).textPen())
     bar.setImageItem(image, insert_in=plot)
     bar.setLevels(tuple(source_bar.levels()))
+    return bar
 
 
 def _copy_item(item):
@@ -180,7 +181,7 @@ def copy_plot(source, width: int, height: int, legend: bool = False, host=None, 
     if legend:
         plot.addLegend(offset=(-12, 12), labelTextColor=widget.palette().color(widget.foregroundRole()))
     bounded = source.getViewBox().addedItems
-    source_bar = _colour_bar(source)
+    source_bar, bar = _colour_bar(source), None
     for item in source.items:
         copy = _copy_item(item)
         if copy is None:
@@ -188,7 +189,7 @@ def copy_plot(source, width: int, height: int, legend: bool = False, host=None, 
         copy.setZValue(item.zValue())
         plot.addItem(copy, ignoreBounds=item not in bounded)
         if source_bar is not None and isinstance(copy, pg.ImageItem) and item in [r() for r in source_bar.img_list]:
-            _copy_colour_bar(source_bar, plot, copy)
+            bar = _copy_colour_bar(source_bar, plot, copy)
     key = getattr(host, "figure_legend", None)
     if key is not None and source is getattr(host, "plot", None):
         _key_below(plot, key(), widget)
@@ -201,6 +202,11 @@ def copy_plot(source, width: int, height: int, legend: bool = False, host=None, 
         vb.disableAutoRange()
         vb.setRange(xRange=(x0, x1), yRange=(y0, y1), padding=0)
     _lay_out(widget, width, height)
+    if bar is not None and hasattr(host, "bar_names"):  # the bar's name as long as this picture's bar allows
+        from orbitdesk.app.plots.plot_style import name_bar
+
+        name_bar(bar, host.bar_names())
+        _lay_out(widget, width, height)
     if fit:
         vb.autoRange()
     else:

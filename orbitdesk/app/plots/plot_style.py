@@ -519,6 +519,18 @@ def style_colour_bar(bar, host) -> None:
         bar.getAxis(name).setTextPen(text_pen)
 
 
+def name_bar(bar, names) -> None:
+    """Name a colour bar with the longest of ``names`` that fits its height (the last one however short)."""
+    from PySide6.QtGui import QFontMetrics
+
+    axis = bar.getAxis("right")
+    room = bar.getViewBox().height() - 4
+    metrics = QFontMetrics(axis.label.font())
+    name = next((n for n in names if metrics.horizontalAdvance(n) <= room), names[-1])
+    if axis.labelText != name:
+        axis.setLabel(name)
+
+
 def empty_hint(plot_item, text: str):
     """A quiet centred note shown in an empty plot (returns the item; hide it when data arrives)."""
     import pyqtgraph as pg

@@ -67,6 +67,12 @@ class GridView(SessionView):
         """Start the grid's computation (``job``, saying ``what`` it does): the result goes to ``_adopt``."""
         self.begin_computing(skip=skip)
         self.info.setText("")
+        if getattr(self, "image", None) is not None and self.image.image is None:
+            # an empty plot shows the grid being computed (its axes' names and ranges), not -0.5 to 0.5
+            xn, xs, yn, ys = self.axes.chosen()
+            self.plot.setLabel("bottom", xn)
+            self.plot.setLabel("left", yn)
+            self.plot.setRange(xRange=(float(xs[0]), float(xs[-1])), yRange=(float(ys[0]), float(ys[-1])), padding=0.02)
         self.strip.what = what
         self.strip.run(key, job, self._adopt, on_error=lambda m: self.info.setText(m[:1].upper() + m[1:]))
 

@@ -12,7 +12,7 @@ from PySide6.QtCore import Qt, Signal
 from PySide6.QtGui import QFontMetrics
 from PySide6.QtWidgets import QLabel, QSpinBox, QStackedWidget
 
-from orbitdesk.app.plots.plot_style import style_colour_bar
+from orbitdesk.app.plots.plot_style import name_bar, style_colour_bar
 from orbitdesk.app.views import empty_hint, muted_colour, style_plot
 from orbitdesk.app.plots.plot_style import JobStrip, NumberBox, number_text, plain_axes, round_significant
 from orbitdesk.app.views.common import (apply_numbers, clicked_point, combo_box, control_row, push_button, row_widget,
@@ -74,6 +74,7 @@ class ParameterMapView(GridView):
         self.colour_bar = pg.ColorBarItem(values=(0, 1), width=14, interactive=False)
         self.colour_bar.setImageItem(self.image, insert_in=self.plot)
         self.colour_bar.getAxis("right").enableAutoSIPrefix(False)  # plain numbers, no "(x0.001)"
+        self.plot.getViewBox().sigResized.connect(lambda *_a: self._name_bar())
         self.empty = empty_hint(self.plot, "Compute draws the map; click it to set both parameters")
         self.plot_widget.scene().sigMouseClicked.connect(self._on_click)
 
@@ -187,11 +188,19 @@ class ParameterMapView(GridView):
         self.axes.set_range(key, lo, hi)
 
     # ------------------------------------------------------------ results
-    def _value_name(self) -> str:
+    def bar_names(self) -> tuple[str, ...]:
+        """The colour bar's name, longest first: the longest that fits the bar's height is shown (on screen and
+        in an exported figure: "largest Lyapunov exponent" was cut off beside a short map)."""
         r = self.result
         if r is None:
-            return ""
-        return "largest Lyapunov exponent" if hasattr(r, "exponent") else f"period ({r.unit})"
+            return ("",)
+        if hasattr(r, "exponent"):
+            return ("largest Lyapunov exponent", "largest exponent", "\u03bb\u2081")
+        return (f"period ({r.unit})", "period")
+
+    def _name_bar(self) -> None:
+        if self.result is not None:
+            name_bar(self.colour_bar, self.bar_names())
 
     def _show(self, result) -> None:
         if result is None:
@@ -237,7 +246,7 @@ class ParameterMapView(GridView):
         self.image.setRect(grid_rect(xs, ys))
         self.plot.setLabel("bottom", result.x_name)
         self.plot.setLabel("left", result.y_name)
-        self.colour_bar.getAxis("right").setLabel(self._value_name())
+        self._name_bar()
         self.plot.autoRange(padding=0.02)
         self._draw_marker()
         self.resultChanged.emit(result)
