@@ -1,7 +1,8 @@
 """One damped Newton iteration for G(x) = 0, shared by the analyses' solvers: the equilibria's
 refinement and their multi-start search on large systems, the shooting of limit cycles (autonomous
-and stroboscopic), the cycles of maps, the continuation's corrector and its stroboscopic polish, and
-the time-scale probe's nearest equilibrium.
+and stroboscopic), the cycles of maps, the continuation's corrector, its stroboscopic polish and the
+location of folds and Hopf points on their augmented systems, and the time-scale probe's nearest
+equilibrium.
 
 Each iteration solves J dx = -G(x) (a dense matrix by LAPACK, a scipy sparse one by its sparse LU)
 and tries x + lam dx for lam = 1, 1/2, ... down to ``min_damping``, taking the first trial that
@@ -64,6 +65,20 @@ def solve(J, b, singular: str = "raise") -> np.ndarray:
         return np.linalg.lstsq(J, b, rcond=None)[0]
 
 
+def difference_gradient(fn, x, value=None) -> np.ndarray:
+    """The gradient of the scalar ``fn`` at x by forward differences (steps sqrt(eps) (1 + |x_j|)): the
+    row of a Newton matrix that no kernel gives (a bordered test function's, say)."""
+    x = np.asarray(x, dtype=float)
+    value = fn(x) if value is None else value
+    out = np.empty(x.size)
+    for j in range(x.size):
+        h = 1.5e-8 * (1.0 + abs(x[j]))
+        shifted = x.copy()
+        shifted[j] += h
+        out[j] = (fn(shifted) - value) / h
+    return out
+
+
 def damped_newton(residual: Callable, jacobian: Callable, x0, *, done: Callable | None = None,
                   max_iter: int = 50, min_damping: float = 1 / 64, admissible: Callable | None = None,
                   rejects: tuple = (ArithmeticError,), singular: str = "raise", r0=None, J0=None,
@@ -113,4 +128,4 @@ def damped_newton(residual: Callable, jacobian: Callable, x0, *, done: Callable 
     return state
 
 
-__all__ = ["NewtonState", "Singular", "damped_newton", "solve"]
+__all__ = ["NewtonState", "Singular", "damped_newton", "difference_gradient", "solve"]

@@ -66,17 +66,25 @@ def return_map(points, coordinate) -> tuple[np.ndarray, np.ndarray]:
 
 # ---------------------------------------------------------------- hyperplane sections
 def _section_function(system: CompiledSystem, coordinate: str, value: float, p):
-    """(g, rate): g(t, u) = coordinate - value, and dg/dt along the flow (None if not smooth)."""
+    """(g, rate): g(t, u) = coordinate - value, and dg/dt along the flow (None if not smooth): a state's
+    rate by the model's kernel, a derived quantity's (its derivative along the flow, no kernel holds it)
+    generated here."""
     t, u, ps, _ = system._plain
     pv = tuple(float(v) for v in p)
     if coordinate in system.states:
         i = system.states.index(coordinate)
-        rate_expr = system.plain([system.f[i]])[0]
-        rate_fn = lambdify([t, *u, *ps], rate_expr)
 
         def g(tt, uu):
             return uu[i] - value
-    elif coordinate in system.derived_names:
+
+        def rate(tt, uu):  # the state's own rate: the model's kernel
+            try:
+                return float(system.rhs(tt, uu, p)[i])
+            except ArithmeticError:  # UndefinedValue
+                return math.nan
+
+        return g, rate
+    if coordinate in system.derived_names:
         expr = system.plain([system.derived_exprs[system.derived_names.index(coordinate)]])[0]
         g_fn = lambdify([t, *u, *ps], expr)
         f = system.plain(system.f)

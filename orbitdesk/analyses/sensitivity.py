@@ -55,11 +55,13 @@ class SensitivityRun:
 
 
 class Sensitivities:
-    """Runs of the stacked system for the parameters ``selected`` (indices into system.parameters)."""
+    """Runs of the stacked system for the parameters ``selected`` (indices into system.parameters).
+    ``kinks``: a model with kinks is taken with its almost-everywhere derivatives (continuation's
+    Newton steps); a fit refuses it."""
 
-    def __init__(self, system: CompiledSystem, selected: list[int]):
+    def __init__(self, system: CompiledSystem, selected: list[int], kinks: bool = False):
         system.refuse_delays("sensitivities")
-        if system.nonsmooth:
+        if system.nonsmooth and not kinks:
             raise ValueError(f"the model is not smooth where {', '.join(system.nonsmooth)}() switches, so its "
                              "sensitivities are undefined there; fitting needs a smooth model")
         self.system = system

@@ -86,3 +86,26 @@ def test_failures_and_cancel_come_with_the_engine_statuses():
                                            atol=1e-12, cancel=token)
     engine = compiled.engine_for(oscillator)
     assert compiled.sensitivity_kernel(engine, oscillator) is compiled.sensitivity_kernel(engine, oscillator)
+
+
+def test_continuation_functions_come_from_the_kernels():
+    # the linear oscillator x' = y, y' = -k x (closed form, by hand): over T the state transition
+    # matrix is [[cos wT, sin(wT)/w], [-w sin wT, cos wT]] with w = sqrt(k), and d/dk of the state from
+    # (1, 0) is (-T sin(wT) / (2w), -(sin(wT)/w + T cos wT) / 2); df/dk = (0, -x)
+    from orbitdesk.analyses.continuation.functions import ModelFunctions
+
+    funcs = ModelFunctions(compile_model("k = 2\nx' = y\ny' = -k*x\n"))
+    k, T = 2.0, 1.7
+    w = np.sqrt(k)
+    end, M, dk = funcs.flow([1.0, 0.0], [k], 0.0, T, 0)
+    assert np.allclose(end, [np.cos(w * T), -w * np.sin(w * T)], atol=1e-9)
+    assert np.allclose(M, [[np.cos(w * T), np.sin(w * T) / w], [-w * np.sin(w * T), np.cos(w * T)]], atol=1e-9)
+    assert np.allclose(dk, [-T * np.sin(w * T) / (2 * w), -(np.sin(w * T) / w + T * np.cos(w * T)) / 2], atol=1e-8)
+    assert np.allclose(funcs.fp([0.3, 0.4], [k], 0), [0.0, -0.3])
+    assert np.allclose(funcs.jac([0.3, 0.4], [k]), [[0.0, 1.0], [-k, 0.0]])
+    # f^3 of the map x -> a x + b from x = 1 (closed form as in the map test above)
+    mapping = ModelFunctions(compile_model("a = 0.9\nb = 0.5\nx[n+1] = a*x[n] + b\n"))
+    u, J, da = mapping.iterate([1.0], [0.9, 0.5], 3, 0)
+    assert u[0] == pytest.approx(0.9 ** 3 + 0.5 * (0.9 ** 3 - 1) / (0.9 - 1), rel=1e-14)
+    assert J[0, 0] == pytest.approx(0.9 ** 3, rel=1e-14)
+    assert da[0] == pytest.approx(3 * 0.81 + 0.5 * (2 * 0.9 + 1), rel=1e-12)  # d/da of a^3 + b (a^2 + a + 1)

@@ -1,12 +1,18 @@
 """The model's functions as continuation needs them, at fixed time: f, Jacobian, parameter Jacobian,
 the multilinear forms B and C, compositions of a map, and flows with their sensitivities.
 
-Everything is generated with ``sympy.lambdify`` from the compiled system's trees (never from text),
-in plain generated symbols, once per model and cached on the ``ModelFunctions`` object. The
-multilinear forms are exact directional derivatives:
+f, J and df/dp are the model's kernels (``codegen.py``: ``CompiledSystem.rhs``/``jac`` and the
+sensitivity kernel's df/dp); compositions of a map and flows over a period with their state
+transition matrix and parameter derivative are forward sensitivities (``analyses/sensitivity.py``:
+the sensitivity kernel run by the engine's loops), orbits are runs of the engine's loops. Only the
+multilinear forms, the exact directional derivatives
 
     B(a, b)_i    = sum_jk  d2 f_i / du_j du_k  a_j b_k
     C(a, b, c)_i = sum_jkl d3 f_i / du_j du_k du_l  a_j b_k c_l
+
+that the normal forms need (no kernel holds second or third derivatives), are generated here with
+``lambdify`` from the compiled system's trees (never from text), in plain generated symbols, once per
+model and cached on the ``ModelFunctions`` object.
 """
 
 from __future__ import annotations
@@ -16,11 +22,11 @@ from functools import cached_property
 
 import numpy as np
 import sympy as sp
-from scipy.integrate import ode, solve_ivp
 
 from orbitdesk.system.compiled_system import MAP, CompiledSystem, UndefinedValue, lambdify
 
 UNDEFINED = (ValueError, ZeroDivisionError, TypeError, OverflowError)
+RUNS = 1e6  # right-hand-side evaluations a continuation's many runs are estimated at: worth the compiler
 
 
 class ContinuationError(ArithmeticError):
@@ -39,8 +45,9 @@ class ModelFunctions:
         self.p = [sp.Symbol(f"_p{i}", real=True) for i in range(len(system.parameters))]
         swap = {system.t_symbol: self.t, **dict(zip(system.state_symbols, self.u)),
                 **dict(zip(system.param_symbols, self.p))}
+        self._swap = swap
         self.f_exprs = [e.xreplace(swap) for e in system.f]
-        self.jac_exprs = sp.Matrix(self.f_exprs).jacobian(sp.Matrix(self.u)) if self.n else sp.zeros(0, 0)
+        self._sensitivities = {}
 
     def param_index(self, name: str) -> int:
         if name not in self.system.parameters:
@@ -51,25 +58,35 @@ class ModelFunctions:
     # ------------------------------------------------------------ values
     def f(self, u, p, t=0.0) -> np.ndarray:
         try:
-            values = self._f(float(t), *map(float, u), *map(float, p))
-        except UNDEFINED:
-            raise ContinuationError(self._where(u, p, t)) from None
-        return np.array(values, dtype=float)
+            return self.system.rhs(float(t), u, p)
+        except UndefinedValue as err:
+            raise ContinuationError(str(err)) from None
 
     def jac(self, u, p, t=0.0) -> np.ndarray:
         try:
-            values = self._jac(float(t), *map(float, u), *map(float, p))
-        except UNDEFINED:
-            raise ContinuationError(self._where(u, p, t)) from None
-        return np.array(values, dtype=float).reshape(self.n, self.n)
+            J = self.system.jac(float(t), u, p)
+        except UndefinedValue:
+            J = None
+        if J is None or not np.all(np.isfinite(J)) and np.all(np.isfinite(u)) and np.all(np.isfinite(p)):
+            raise ContinuationError(self._where(u, p, t))
+        return J
 
     def fp(self, u, p, k: int, t=0.0) -> np.ndarray:
-        """d f / d p_k at (u, p)."""
-        try:
-            values = self._fp[k](float(t), *map(float, u), *map(float, p))
-        except UNDEFINED:
-            raise ContinuationError(self._where(u, p, t)) from None
-        return np.array(values, dtype=float)
+        """d f / d p_k at (u, p): the sensitivity kernel's forcing (its sensitivities S zero)."""
+        from orbitdesk.engine import compiled
+
+        n, P = self.n, len(self.p)
+        engine = compiled.engine_for(self.system)
+        z = np.zeros(n * (P + 1))
+        z[:n] = u
+        out = np.empty(z.size)
+        with np.errstate(all="ignore"):
+            engine.entry("evaluate")(compiled.sensitivity_kernel(engine, self.system), P, float(t), z,
+                                     np.ascontiguousarray(p, dtype=float), out)
+        column = out[n:].reshape(n, P)[:, k]
+        if not np.all(np.isfinite(column)) and np.all(np.isfinite(u)) and np.all(np.isfinite(p)):
+            raise ContinuationError(self._where(u, p, t))
+        return column.copy()
 
     def B(self, u, p, a, b) -> np.ndarray:
         """The bilinear form at (u, p), for real or complex vectors."""
@@ -94,18 +111,13 @@ class ModelFunctions:
         where = ", ".join(f"{s} = {float(v):.6g}" for s, v in zip(self.system.states, u))
         return text or f"the model is undefined at {where}"
 
-    # ------------------------------------------------------------ generated code
+    # ------------------------------------------------------------ generated code (the normal forms)
     @cached_property
-    def _f(self):
-        return lambdify([self.t, *self.u, *self.p], self.f_exprs)
+    def jac_exprs(self) -> sp.Matrix:
+        """The almost-everywhere Jacobian in this object's symbols (codegen's sparse one)."""
+        from orbitdesk.system.codegen import dense_jacobian
 
-    @cached_property
-    def _jac(self):
-        return lambdify([self.t, *self.u, *self.p], list(self.jac_exprs))
-
-    @cached_property
-    def _fp(self):
-        return [lambdify([self.t, *self.u, *self.p], [sp.diff(e, s) for e in self.f_exprs]) for s in self.p]
+        return dense_jacobian(self.system).xreplace(self._swap)
 
     @cached_property
     def _vectors(self):
@@ -131,100 +143,56 @@ class ModelFunctions:
                  for e in self._bilinear_exprs]
         return lambdify([*self.u, *self.p, *a, *b, *c], exprs)
 
-    @cached_property
-    def _stacked_exprs(self):
-        """The flow with its variational and parameter-sensitivity equations, per parameter index."""
-        n = self.n
-        phi = sp.Matrix(n, n, [sp.Symbol(f"_m{i}", real=True) for i in range(n * n)])
-        w = [sp.Symbol(f"_w{i}", real=True) for i in range(n)]
-        jphi = self.jac_exprs * phi
-        jw = self.jac_exprs * sp.Matrix(w)
-        return phi, w, jphi, jw
+    # ------------------------------------------------------------ maps and flows: forward sensitivities
+    def _sensitivity_run(self, u0, p, t0, t1, param: int | None, failure: str):
+        """The state at t1 (a step count for a map) with its derivatives by the start and by the
+        parameter ``param`` (zeros when None): ``Sensitivities`` (the sensitivity kernel in the engine's
+        loops, Dormand-Prince 8(5,3) at rtol 1e-10 for a flow)."""
+        from orbitdesk.analyses.sensitivity import SensitivityFailure, Sensitivities
 
-    def stacked_rhs(self, k: int | None, p):
-        """``rhs(t, z)`` of z = (u, Phi, w): u' = f, Phi' = J Phi, w' = J w + df/dp_k (w omitted if k is None)."""
-        key = ("stacked", k)
-        cache = self.__dict__.setdefault("_stacked_cache", {})
-        if key not in cache:
-            phi, w, jphi, jw = self._stacked_exprs
-            exprs = list(self.f_exprs) + list(jphi)
-            args = [self.t, *self.u, *phi]
-            if k is not None:
-                exprs += [jw[i] + sp.diff(self.f_exprs[i], self.p[k]) for i in range(self.n)]
-                args += w
-            cache[key] = lambdify([*args, *self.p], exprs)
-        fn = cache[key]
-        pv = tuple(float(v) for v in p)
+        selected = () if param is None else (param,)
+        runs = self._sensitivities.get(selected)
+        if runs is None:
+            runs = self._sensitivities[selected] = Sensitivities(self.system, list(selected), kinks=True)
+        try:
+            run = runs.run(np.asarray(u0, dtype=float), p, t0, np.array([t1], dtype=float), rtol=1e-10,
+                           atol=1e-12, method="dop853")
+        except SensitivityFailure as err:
+            raise ContinuationError(f"{failure} ({err})") from None
+        w = run.dparams[:, 0, -1] if param is not None else np.zeros(self.n)
+        return run.states[:, -1], run.dstart[:, :, -1], w
 
-        def rhs(t, z):
-            return fn(t, *z, *pv)
-
-        return rhs
-
-    # ------------------------------------------------------------ maps
     def iterate(self, u, p, k: int, param: int | None = None):
         """f^k(u) with its Jacobian and, for ``param``, its derivative in that parameter (chain rule)."""
-        u = np.asarray(u, dtype=float)
-        M = np.eye(self.n)
-        w = np.zeros(self.n)
-        for step in range(k):
-            J = self.jac(u, p, step)
-            if param is not None:
-                w = J @ w + self.fp(u, p, param, step)
-            M = J @ M
-            u = self.f(u, p, step)
-        return u, M, w
+        return self._sensitivity_run(u, p, 0, k, param, "the map could not be iterated")
 
-    # ------------------------------------------------------------ flows
-    def flow(self, u0, p, t0: float, t1: float, param: int | None = None, rtol=1e-10, atol=1e-12):
+    def flow(self, u0, p, t0: float, t1: float, param: int | None = None):
         """phi(t1; t0, u0) with its state transition matrix and, for ``param``, d phi / d p."""
-        n = self.n
-        z0 = np.concatenate([np.asarray(u0, dtype=float), np.eye(n).ravel(), np.zeros(n if param is not None else 0)])
-        z = integrate(self.stacked_rhs(param, p), z0, t0, t1, rtol, atol)
-        if z is None or not np.all(np.isfinite(z)):
-            raise ContinuationError(f"the integration over one period (t = {t0:.6g} to {t1:.6g}, DOP853 at rtol "
-                                    f"{rtol:g}) stopped short: the state or its tangent matrix became undefined "
-                                    "or too large, or the step size collapsed")
-        w = z[n + n * n:] if param is not None else np.zeros(n)
-        return z[:n], z[n:n + n * n].reshape(n, n), w
+        return self._sensitivity_run(u0, p, t0, t1, param, f"the integration over one period (t = {t0:.6g} to "
+                                     f"{t1:.6g}, DOP853 at rtol 1e-10) stopped short")
 
     def orbit(self, u0, p, t0: float, t1: float, samples: int = 200, rtol=1e-10, atol=1e-12):
         """(times, states (n, samples)) along one stretch of a flow, sampled evenly."""
-        f = self._f
-        pv = tuple(float(v) for v in p)
-
-        def rhs(t, u):
-            return f(t, *u, *pv)
-
         times = np.linspace(t0, t1, samples)
-        try:
-            with np.errstate(all="ignore"):
-                sol = solve_ivp(rhs, (t0, t1), np.asarray(u0, dtype=float), method="DOP853", t_eval=times,
-                                rtol=rtol, atol=atol)
-        except UNDEFINED:
-            sol = None
-        if sol is None or sol.status != 0 or sol.y.shape[1] != samples:
-            raise ContinuationError("the integration along the orbit failed")
-        return times, sol.y
+        return times, self._run(u0, p, t0, t1, times, rtol, atol, "the integration along the orbit failed")
 
+    def end(self, u0, p, t0: float, t1: float, rtol=1e-10, atol=1e-12) -> np.ndarray:
+        """phi(t1; t0, u0), the state alone."""
+        if t1 == t0:
+            return np.asarray(u0, dtype=float)
+        return self._run(u0, p, t0, t1, np.array([t1]), rtol, atol, "the run blew up")[:, -1]
 
-def _solver(rhs, y0, t0, rtol, atol):
-    solver = ode(rhs).set_integrator("dop853", rtol=rtol, atol=atol, nsteps=200000)
-    solver.set_initial_value(np.asarray(y0, dtype=float), t0)
-    return solver
+    def _run(self, u0, p, t0, t1, grid, rtol, atol, failure: str) -> np.ndarray:
+        """A run of the engine's loops (Dormand-Prince 8(5,3)) sampled at ``grid``."""
+        from orbitdesk.engine import compiled, drivers
 
-
-def integrate(rhs, y0, t0: float, t1: float, rtol=1e-10, atol=1e-12):
-    """The state at t1 by DOP853 (scipy's ode), or None when the integration fails."""
-    if t1 == t0:
-        return np.asarray(y0, dtype=float)
-    solver = _solver(rhs, y0, t0, rtol, atol)
-    try:
+        engine = compiled.engine_for_work(self.system, RUNS)
         with np.errstate(all="ignore"):
-            y = solver.integrate(t1)
-    except UNDEFINED:
-        return None
-    return y if solver.successful() else None
+            out = drivers.flow_run(engine, "dop853", float(t0), float(t1), np.asarray(u0, dtype=float),
+                                   np.asarray(p, dtype=float), rtol, atol, grid=grid, bound=1e150)
+        if out.code != 0 or out.time.size != len(grid) or not np.all(np.isfinite(out.states)):
+            raise ContinuationError(failure)
+        return out.states
 
 
 def _complex_multilinear(real_form, *vectors):

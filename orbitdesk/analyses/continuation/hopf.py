@@ -4,7 +4,9 @@ The augmented system in z = (u, p, v_re, v_im, omega):
 
     f(u, p) = 0,   J v_re + omega v_im = 0,   J v_im - omega v_re = 0,   c.v_re = 1,   c.v_im = 0
 
-(J v = i omega v for v = v_re + i v_im), solved by Newton with a finite-difference Jacobian.
+(J v = i omega v for v = v_re + i v_im), solved by Newton's iteration (analyses/newton.py) with its
+exact Jacobian but for dJ/dp (by central differences): the kernels' J and df/dp, the bilinear form B
+for d(J v)/du.
 
 The first Lyapunov coefficient follows Kuznetsov, Elements of Applied Bifurcation Theory (3rd ed.,
 2004), formula (3.20), with A q = i omega q, A^T p = -i omega p, <p, q> = 1:
@@ -23,9 +25,9 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy.optimize import root
 
 from orbitdesk.analyses.continuation.functions import ContinuationError, ModelFunctions
+from orbitdesk.analyses.newton import Singular, damped_newton
 
 IMAGINARY_PAIR_RTOL = 1e-6
 
@@ -70,21 +72,39 @@ def polish_hopf(funcs: ModelFunctions, p_vector, k: int, u, p_value, tol=1e-13):
     vr, vi = q.real * scale, q.imag * scale
     c = vr / float(vr @ vr)
 
+    def parts(z):
+        return z[:n], z[n], z[n + 1:2 * n + 1], z[2 * n + 1:3 * n + 1], z[-1]
+
     def F(z):
-        uu, pp = z[:n], z[n]
-        vr_, vi_, w = z[n + 1:2 * n + 1], z[2 * n + 1:3 * n + 1], z[-1]
+        uu, pp, vr_, vi_, w = parts(z)
         pv = params(pp)
         A = funcs.jac(uu, pv)
         return np.concatenate([funcs.f(uu, pv), A @ vr_ + w * vi_, A @ vi_ - w * vr_, [c @ vr_ - 1.0, c @ vi_]])
 
+    def DF(z):
+        uu, pp, vr_, vi_, w = parts(z)
+        pv = params(pp)
+        A, eye = funcs.jac(uu, pv), np.eye(n)
+        h = 1e-6 * (1.0 + abs(pp))
+        dA = (funcs.jac(uu, params(pp + h)) - funcs.jac(uu, params(pp - h))) / (2 * h)
+        Br = np.column_stack([funcs.B(uu, pv, vr_, e) for e in eye])  # d(A v_re)/du
+        Bi = np.column_stack([funcs.B(uu, pv, vi_, e) for e in eye])
+        zero, none = np.zeros((n, n)), np.zeros(n)
+        return np.vstack([
+            np.column_stack([A, funcs.fp(uu, pv, k), zero, zero, none]),
+            np.column_stack([Br, dA @ vr_, A, w * eye, vi_]),
+            np.column_stack([Bi, dA @ vi_, -w * eye, A, -vr_]),
+            np.concatenate([none, [0.0], c, none, [0.0]]),
+            np.concatenate([none, [0.0], none, c, [0.0]])])
+
     z0 = np.concatenate([np.asarray(u, float), [p_value], vr, vi, [omega]])
     try:
         with np.errstate(all="ignore"):
-            sol = root(F, z0, method="hybr", options={"xtol": tol})
-    except (ContinuationError, ValueError, np.linalg.LinAlgError):
-        sol = None
-    z = sol.x if sol is not None and np.all(np.isfinite(sol.x)) else z0
-    if sol is None or np.linalg.norm(F(z)) > 1e-8 * (1 + np.linalg.norm(z)):
+            z = damped_newton(F, DF, z0, max_iter=30, rejects=(ContinuationError, np.linalg.LinAlgError),
+                              done=lambda s: s.norm <= tol * 1e-2 * (1 + np.linalg.norm(s.x))).x
+    except (ContinuationError, ValueError, np.linalg.LinAlgError, Singular):
+        z = z0
+    if not np.all(np.isfinite(z)) or np.linalg.norm(F(z)) > 1e-8 * (1 + np.linalg.norm(z)):
         z = z0  # keep the test-function location
     uu, pp, w = z[:n], float(z[n]), float(z[-1])
     q = z[n + 1:2 * n + 1] + 1j * z[2 * n + 1:3 * n + 1]

@@ -14,8 +14,8 @@ the stroboscopic map of a forced flow): G = P(u, p) - u. Test functions, zero at
 from __future__ import annotations
 
 import numpy as np
-from scipy.optimize import root
 
+from orbitdesk.analyses.newton import Singular, damped_newton, difference_gradient
 from orbitdesk.analyses.continuation.arclength import SpecialPoint, bordered_determinant
 from orbitdesk.analyses.continuation.functions import ContinuationError, ModelFunctions
 from orbitdesk.analyses.continuation.hopf import IMAGINARY_PAIR_RTOL, critical_pair, first_lyapunov_coefficient, polish_hopf
@@ -84,26 +84,32 @@ class SteadyProblem:
         return None
 
     def polish_fold(self, x):
-        """Newton on (G, g) = 0 where g is the border of [[DG_u, b], [c^T, 0]] (v, g) = (0, 1)."""
+        """Newton on (G, g) = 0 (analyses/newton.py) where g is the border of [[DG_u, b], [c^T, 0]] (v, g)
+        = (0, 1): the rows of G from the problem's Jacobian, g's by differences."""
         A = self.jacobian(x)[:, :-1]
         U, _, Vt = np.linalg.svd(A)
         b, c = U[:, -1], Vt[-1]
+        rhs = np.zeros(self.n + 1)
+        rhs[-1] = 1.0
+
+        def border(z, DG=None):
+            M = (self.jacobian(z) if DG is None else DG)[:, :-1]
+            return np.linalg.solve(np.block([[M, b[:, None]], [c[None, :], np.zeros((1, 1))]]), rhs)[-1]
 
         def F(z):
-            M = self.jacobian(z)[:, :-1]
-            bordered = np.block([[M, b[:, None]], [c[None, :], np.zeros((1, 1))]])
-            rhs = np.zeros(self.n + 1)
-            rhs[-1] = 1.0
-            g = np.linalg.solve(bordered, rhs)[-1]
-            return np.concatenate([self.residual(z), [g]])
+            return np.append(self.residual(z), border(z))
+
+        def DF(z):
+            DG = self.jacobian(z)
+            return np.vstack([DG, difference_gradient(border, z, border(z, DG))])
 
         try:
             with np.errstate(all="ignore"):
-                sol = root(F, x, method="hybr", options={"xtol": 1e-14})
-            if np.all(np.isfinite(sol.x)) and np.linalg.norm(sol.x - x) < 1e-3 * (1 + np.linalg.norm(x)) \
-                    and np.linalg.norm(F(sol.x)) <= np.linalg.norm(F(x)):
-                return sol.x
-        except (ContinuationError, np.linalg.LinAlgError, ValueError):
+                state = damped_newton(F, DF, x, max_iter=20, rejects=(ContinuationError, np.linalg.LinAlgError),
+                                      done=lambda s: s.norm <= 1e-15 * (1 + np.linalg.norm(s.x)))
+            if np.all(np.isfinite(state.x)) and np.linalg.norm(state.x - x) < 1e-3 * (1 + np.linalg.norm(x)):
+                return state.x
+        except (ContinuationError, np.linalg.LinAlgError, Singular):
             pass
         return x
 

@@ -23,7 +23,7 @@ from orbitdesk.engine.progress import CancelToken, Reporter
 from orbitdesk.system.compiled_system import MAP, CompiledSystem, lambdify
 from orbitdesk.analyses.continuation.arclength import StepSettings, continue_curve, newton_bordered, null_tangent
 from orbitdesk.analyses.continuation.branches import check_interval, default_settings, to_special
-from orbitdesk.analyses.continuation.functions import ContinuationError, ModelFunctions, extreme, integrate
+from orbitdesk.analyses.continuation.functions import ContinuationError, ModelFunctions, extreme
 from orbitdesk.analyses.continuation.points import FixedPointProblem, map_stability
 from orbitdesk.analyses.continuation.results import ResponseCurve
 from orbitdesk.analyses.newton import Singular, damped_newton
@@ -204,18 +204,14 @@ def stepped_sweep(system: CompiledSystem, param: str, lo: float, hi: float, dire
 def _settle(funcs, problem, u, pv, max_periods, cancel, tol=1e-9):
     """Run whole forcing periods from u until the stroboscopic point stops moving (Newton to finish)."""
     T = problem.period(pv)
-    fn = funcs._f
-    values = tuple(float(v) for v in pv)
-
-    def rhs(t, y):
-        return fn(t, *y, *values)
-
     for period in range(max_periods):
         if cancel is not None and period % 10 == 0:
             cancel.check()
-        nxt = integrate(rhs, u, 0.0, T, 1e-10, 1e-12)
-        if nxt is None or not np.all(np.isfinite(nxt)):
-            raise ContinuationError(f"the run blew up at {funcs.system.parameters[problem.k]} = {pv[problem.k]:.6g}")
+        try:
+            nxt = funcs.end(u, pv, 0.0, T)
+        except ContinuationError:
+            raise ContinuationError(f"the run blew up at {funcs.system.parameters[problem.k]} = {pv[problem.k]:.6g}") \
+                from None
         gap = float(np.linalg.norm(nxt - u))
         u = nxt
         scale = 1.0 + float(np.linalg.norm(u))
