@@ -111,7 +111,7 @@ def _rows(window, docks: list) -> tuple[list[list], list]:
         rows = pack(shown)
         if tall(rows) <= height:
             return rows, [d for d in docks if d not in shown]
-    shown = docks[:IN_SIGHT - 1] + [docks[-1]]
+    shown = docks if len(docks) <= IN_SIGHT else docks[:IN_SIGHT - 1] + [docks[-1]]  # (each dock once)
     return pack(shown), [d for d in docks if d not in shown]
 
 

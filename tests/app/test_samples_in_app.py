@@ -156,6 +156,9 @@ def test_sample_walkthrough_replays_in_the_app(qtbot, window, path):
         wait_idle_run(qtbot, s)
         qtbot.waitUntil(lambda: not s.busy, timeout=120000)  # the views' own jobs too (equilibria, second paths)
         assert window.width() <= width, (steps[i]["title"], "the views pushed the window wider", window.width())
+        shown = [d.geometry() for d in window.view_docks.values() if d.isVisible() and not d.isFloating()]
+        assert not any(a.intersects(b) for k, a in enumerate(shown) for b in shown[k + 1:]), \
+            (steps[i]["title"], "two views drawn over each other")
         # a run ends well, unless the step is there to show how it ends otherwise and its note names the status
         status = s.trajectory.status
         assert status == "ok" or f"*{status}*" in steps[i]["note"], (steps[i]["title"], s.trajectory.message)
