@@ -280,8 +280,11 @@ def export_plot(window, path, view=None, size=None, legend=None, plot=None) -> b
         plots = figures.view_plots(view)
         if not plots and getattr(view, "glview", None) is not None:  # the 3D scene, as a picture
             scene = view.glview
-            size = size or ((scene.width(), scene.height()) if scene.isVisible() else figures.REPORT_SIZE)
-            return figures.save_scene(view, path, *size)
+            shown = (scene.width(), scene.height()) if scene.isVisible() else None
+            size = tuple(size or shown or figures.REPORT_SIZE)
+            # as on screen at the screen's size; at another size the camera aims at the box so that it fills the
+            # picture (the same direction: a 1000 x 700 export of a short dock's scene was a small box in a void)
+            return figures.save_scene(view, path, *size, framed=size != shown)
         if not plots:
             return False
         plot = plots[0].plot

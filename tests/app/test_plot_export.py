@@ -178,6 +178,11 @@ def test_the_3d_scene_exports_as_a_picture_of_the_size_picked(qtbot, window, tmp
     assert (image.width(), image.height()) == (700, 500)
     rgb = pixels(image)
     assert ((rgb.max(axis=2) - rgb.min(axis=2)) > 60).sum() > 100  # the coloured orbit on the dark scene
+    # at a size other than the screen's, the box with its labels fills the picture (it was a small box in a void)
+    from orbitdesk.app.plots.plot_style import SCENE_BACKGROUND
+
+    rows, cols = np.nonzero(np.abs(rgb - np.array(SCENE_BACKGROUND[:3])).sum(axis=2) > 40)
+    assert np.ptp(rows) > 0.75 * 500 or np.ptp(cols) > 0.75 * 700
 
 
 def test_an_exported_single_series_names_what_it_plots(qtbot, window, tmp_path, oscillator):

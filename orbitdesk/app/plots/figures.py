@@ -381,11 +381,12 @@ def all_plots(window) -> list[PlotChoice]:
     return out
 
 
-def save_scene(view, path, width: int, height: int) -> bool:
-    """A 3D view's scene at ``width`` x ``height`` as PNG, or as SVG holding that picture."""
+def save_scene(view, path, width: int, height: int, framed: bool = False) -> bool:
+    """A 3D view's scene at ``width`` x ``height`` as PNG, or as SVG holding that picture (``framed``: the box
+    filling the picture, see ``scene_image``)."""
     import base64
 
-    image = scene_image(view, width, height)
+    image = scene_image(view, width, height, framed=framed)
     if image is None:
         return False
     data = png_data(image)
