@@ -479,19 +479,12 @@ def members_run(engine, name, t0, t_end, U0, P, rtol=1e-8, atol=1e-10, max_step=
     outputs = (float(bound), grid, samples, plane_rows, dirs, terminal, ev_t, ev_y, ev_count, codes, t_reached, steps,
                keep, int(m), float(interval), bool(keep_going), sums, *work)
     if not adaptive and N and np.all(ends == ends[0]):  # one step, one end: the lean loop (members_fixed.py)
-        fixed = engine.entry("members_fixed")
+        advance = engine.entry("members_fixed")
         budget = _member_budget(N * abs(ends[0] - t0) / max_step, engine.compiled)
-
-        def advance():
-            return fixed(engine.f, g, U, rows, float(t0), ends, max_step, *outputs, budget)
     else:
-        adaptive_loop = engine.entry("members_advance")
-
-        def advance():
-            return adaptive_loop(engine.f, g, kind, adaptive, U, rows, float(t0), ends, rtol, atol, max_step, *outputs,
-                                 MEMBER_PAUSE_STEPS)
+        advance, budget = engine.entry("members_advance"), MEMBER_PAUSE_STEPS
     while True:
-        code = advance()
+        code = advance(engine.f, g, kind, adaptive, U, rows, float(t0), ends, rtol, atol, max_step, *outputs, budget)
         if code != PAUSED:
             break
         _judge_members(work[-2], int(work[-1][0]), t0, ends, engine.compiled, paces, notes)

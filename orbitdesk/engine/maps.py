@@ -151,7 +151,7 @@ def members_iterate(g, U, P, n0, n_end, keep_from, bound, samples, codes, reache
             TS[c] = float(KS[c])
         g(m, TS, Z, Pb, NXT, count)
         used += count
-        c = 0
+        c = np.int64(0)  # not a literal: callees get one compiled version
         while c < count:
             i = int(BS[3 + c])
             k = KS[c]

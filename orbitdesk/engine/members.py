@@ -287,7 +287,7 @@ def members_advance(f, g, kind, adaptive, U, P, t0, t_end, rtol, atol, max_step,
             TS[c] = MS[R_T, c] + MS[R_STEP, c]
         g(m, TS, Y1, Pb, K[s_n], count)
         # each member on its own: accept or reject, samples, crossings, renormalisation, its end
-        c = 0
+        c = np.int64(0)  # not a literal: callees get one compiled version
         while c < count:
             used += 1
             h = MS[R_STEP, c]

@@ -24,9 +24,6 @@ from orbitdesk.engine.members import (R_ACC, R_FULL, R_GI, R_GIVE_UP, R_ID, R_IS
                                       _plane_met, _renormalise, enter_member, member_outputs)
 from orbitdesk.engine.status import C_STEP_FAILED
 
-KIND_RK4 = 2
-
-
 def _stage_block_numpy(Z, Kj, a, step, out, count):
     out[:, :count] = Z[:, :count] + step * (a * Kj[:, :count])
 
@@ -173,10 +170,10 @@ def _cohort(g, m, U, P, Z, Pb, K, Y1, MS, BS, TS, t0, end, t_keep, codes, t_reac
         return 0
     _fill(TS, t0, count)
     g(m, TS, Z, Pb, K[0], count)
-    c = 0
+    c = np.int64(0)  # not a literal: callees get one compiled version
     while c < count:
         if state_code(K[0, :, c], math.inf) == 2:
-            _finish(c, 2, U, Z, MS, codes, t_reached, steps, ev_count, samples, grid)
+            _finish(c, np.int64(2), U, Z, MS, codes, t_reached, steps, ev_count, samples, grid)
             BS[2] += 1
             count = _drop(c, count, Z, Y1, Pb, MS, K)
             continue
@@ -190,10 +187,10 @@ def _renormalise_cohort(g, m, count, U, Z, Pb, K, Y1, MS, BS, Vs, logs, T1, Z1, 
     """Every member's tangent vectors re-orthonormalised (``members._renormalise``), with ``summing`` the
     logarithms of their stretches and ``span`` added to ``sums``; a member whose vectors collapsed ends
     (undefined). Returns how many are left in flight."""
-    c = 0
+    c = np.int64(0)  # not a literal: callees get one compiled version
     while c < count:
         if not _renormalise(g, m, c, Z, Pb, K, MS, Vs, logs, T1, Z1, P1, O1):
-            _finish(c, 2, U, Z, MS, codes, t_reached, steps, ev_count, samples, grid)
+            _finish(c, np.int64(2), U, Z, MS, codes, t_reached, steps, ev_count, samples, grid)
             BS[2] += 1
             count = _drop(c, count, Z, Y1, Pb, MS, K)
             continue
@@ -207,17 +204,19 @@ def _renormalise_cohort(g, m, count, U, Z, Pb, K, Y1, MS, BS, Vs, logs, T1, Z1, 
 
 
 @loop
-def members_fixed(f, g, U, P, t0, t_end, h, bound, grid, samples, planes, plane_dir, terminal, ev_t, ev_y,
-                  ev_count, codes, t_reached, steps, t_keep, m, interval, keep_going, sums, Z, Pb, K, Y1, ACC, TS,
-                  MS, BS, max_steps):
-    """``members.members_advance`` (same arguments and work arrays, ``t_end`` the same for every member)
-    for classical RK4 at the step ``h``, the members of a cohort sharing their time. Returns 0 when every
+def members_fixed(f, g, kind, adaptive, U, P, t0, t_end, rtol, atol, h, bound, grid, samples, planes, plane_dir,
+                  terminal, ev_t, ev_y, ev_count, codes, t_reached, steps, t_keep, m, interval, keep_going, sums, Z,
+                  Pb, K, Y1, ACC, TS, MS, BS, max_steps):
+    """``members.members_advance`` (the same arguments and work arrays; ``kind`` RK4, not ``adaptive``,
+    ``t_end`` the same for every member) at the step ``h``, the members of a cohort sharing their time.
+    Callees get run-time values (``np.int64(...)`` for a constant code), never literals: numba would
+    compile a second version of each for them. Returns 0 when every
     member is done, or PAUSED after about ``max_steps`` member-steps (the next call goes on)."""
     N, nz = U.shape
     if N == 0:
         return 0
     n = nz // (m + 1)
-    s_n = STAGES[KIND_RK4]
+    s_n = STAGES[kind]
     n_planes = planes.shape[0]
     G = grid.shape[0]
     E = ev_t.shape[1]
@@ -243,10 +242,10 @@ def members_fixed(f, g, U, P, t0, t_end, h, bound, grid, samples, planes, plane_
     t, acc, gi, samp, istart = t0, 0.0, 0, 0.0, t0
     if count > 0:  # going on after a pause: the cohort's values, members the driver gave up on
         t, acc, gi, samp, istart = MS[R_T, 0], MS[R_ACC, 0], int(MS[R_GI, 0]), MS[R_SAMP, 0], MS[R_ISTART, 0]
-        c = 0
+        c = np.int64(0)  # not a literal: callees get one compiled version
         while c < count:
             if MS[R_GIVE_UP, c] != 0.0:
-                _finish(c, C_STEP_FAILED, U, Z, MS, codes, t_reached, steps, ev_count, samples, grid)
+                _finish(c, np.int64(C_STEP_FAILED), U, Z, MS, codes, t_reached, steps, ev_count, samples, grid)
                 BS[2] += 1
                 count = _drop(c, count, Z, Y1, Pb, MS, K)
                 continue
@@ -299,7 +298,7 @@ def members_fixed(f, g, U, P, t0, t_end, h, bound, grid, samples, planes, plane_
         g(m, TS, Y1, Pb, K[s_n], count)
         if _bad_block(Y1, K[s_n], bound, count) > 0:  # members stop at their last good state
             _share(MS, count, t, acc, gi, samp, istart)
-            c = 0
+            c = np.int64(0)  # not a literal: callees get one compiled version
             while c < count:
                 code = state_code(Y1[:, c], bound)
                 if code == 0 and state_code(K[s_n, :, c], math.inf) == 2:
@@ -318,20 +317,20 @@ def members_fixed(f, g, U, P, t0, t_end, h, bound, grid, samples, planes, plane_
         if reading or near_any:  # samples and crossings, member by member
             _share(MS, count, t, acc, gi, samp, istart)
             gi_new = gi
-            c = 0
+            c = np.int64(0)  # not a literal: callees get one compiled version
             while c < count:
                 i = int(MS[R_ID, c])
                 seeking = samp != 0.0 and n_planes > 0 and MS[R_FULL, c] == 0.0
                 if reading or seeking and near[c] != 0.0:
-                    stop = member_outputs(f, KIND_RK4, m, 0, c, i, t, t_new, step, direction, Z, Y1, K, Pb, MS, 1.0,
-                                          1.0, grid, samples, planes, plane_dir, terminal, ev_t, ev_y, seeking,
+                    stop = member_outputs(f, kind, m, adaptive, c, i, t, t_new, step, direction, Z, Y1, K, Pb, MS,
+                                          rtol, atol, grid, samples, planes, plane_dir, terminal, ev_t, ev_y, seeking,
                                           keep_going, yc, ync, Kc, K2, pc, F, tmps, out_t, ev_k)
                     gi_new = int(MS[R_GI, c])
                     if stop:  # a terminal plane, or all its crossings: it ends here
                         for j in range(nz):
                             Z[j, c] = Y1[j, c]
                         MS[R_T, c] = t_new
-                        _finish(c, 0, U, Z, MS, codes, t_reached, steps, ev_count, samples, grid)
+                        _finish(c, np.int64(0), U, Z, MS, codes, t_reached, steps, ev_count, samples, grid)
                         BS[2] += 1
                         count = _drop(c, count, Z, Y1, Pb, MS, K)
                         near[c] = near[count]
@@ -360,6 +359,6 @@ def members_fixed(f, g, U, P, t0, t_end, h, bound, grid, samples, planes, plane_
         if target == end:
             _share(MS, count, t, acc, gi, samp, istart)
             for c in range(count):
-                _finish(c, 0, U, Z, MS, codes, t_reached, steps, ev_count, samples, grid)
+                _finish(c, np.int64(0), U, Z, MS, codes, t_reached, steps, ev_count, samples, grid)
             BS[2] += count
             count = 0
