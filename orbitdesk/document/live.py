@@ -388,9 +388,17 @@ class LiveDocument:
             self._pushing_view = False
 
     def _apply_view_settings(self, view_id: str, settings) -> None:
-        self.project.views[view_id] = copy.deepcopy(settings)
+        if self._pushing_view:
+            self.project.views[view_id] = copy.deepcopy(settings)
+        else:   # an undo or redo: what the view computes goes back; how it is shown stays as it is now
+            from orbitdesk.document.view_settings import PROJECT_KEYS, project_part
+
+            keys = PROJECT_KEYS.get(view_id, frozenset())
+            now = self.project.views.get(view_id)
+            shown = {k: v for k, v in now.items() if k not in keys} if isinstance(now, dict) else {}
+            self.project.views[view_id] = {**shown, **copy.deepcopy(project_part(view_id, settings))}
         self.emit("view_settings", view_id)
-        if not self._pushing_view:     # an undo or redo: the view shows them again
+        if not self._pushing_view:     # the view shows them again
             self.emit("view_restored", view_id)
 
     def set_step_text(self, index: int, field: str, text: str) -> None:

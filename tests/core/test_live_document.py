@@ -184,3 +184,20 @@ def test_a_views_setting_of_what_it_computes_is_an_undo_step_and_a_drag_one_step
     doc.undo.undo()
     doc.change_view_settings("sweep", {**sweep, "range": [0, 1, 0, 1]})
     assert doc.project.views["sweep"]["range"] == [0, 1, 0, 1] and not doc.dirty and doc.undo.can_redo()
+
+
+def test_undo_and_redo_of_a_views_setting_leave_how_it_is_shown_as_it_is_now(ticks):
+    # the undo step holds what the view computes (view_settings.PROJECT_KEYS); the plot's range, the
+    # number of values and the like, changed since, stay as they are when the step is undone or redone
+    doc = LiveDocument.from_project(Project(model=DECAY + "a = 1 in [0, 3]\n"), compile=True)
+    sweep = {"parameter": "k", "from": 0.0, "to": 2.0, "count": 200, "range": [0, 2, 0, 1]}
+    doc.set_view_settings("sweep", sweep)
+    doc.change_view_settings("sweep", {**sweep, "parameter": "a", "to": 3.0})
+    ticks[0] = 10.0
+    shown = {**doc.project.views["sweep"], "range": [0, 3, -1, 1], "count": 50}
+    doc.set_view_settings("sweep", shown)            # then zoomed and fewer values: no edit
+    doc.undo.undo()
+    assert doc.project.views["sweep"] == {**shown, "parameter": "k", "to": 2.0}
+    doc.set_view_settings("sweep", {**doc.project.views["sweep"], "range": [0, 2, 0, 0.5]})
+    doc.undo.redo()
+    assert doc.project.views["sweep"] == {**shown, "parameter": "a", "to": 3.0, "range": [0, 2, 0, 0.5]}
