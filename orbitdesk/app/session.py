@@ -294,7 +294,7 @@ for _name in ("project", "path", "disk_state", "text", "parsed", "system", "para
 for _name in ("param_range", "written_values", "param_vector", "initial_vector", "run_settings",
               "set_text", "set_param", "set_initial", "set_values", "reset_values", "set_param_range",
               "set_solver", "replace_part", "show_state", "set_time_cursor", "set_equilibria",
-              "select_equilibrium", "set_cycle", "set_result", "clear_result", "result", "result_stale", "basis",
+              "select_equilibrium", "set_cycle", "current_cycle", "cycle_stale", "set_result", "clear_result", "result", "result_stale", "basis",
               "note_clicked_start", "mark_dirty", "mark_saved", "set_view_settings", "change_view_settings",
               "to_project"):
     setattr(Session, _name, _call(_name))

@@ -3,12 +3,12 @@
 It holds the model text, the parsed model and compiled system, the values (parameters, initial values,
 slider ranges), the solver settings, the project's other parts (view settings, written by the views as
 they change; walkthrough, data sets, kept parameter sets), the main run and the limit cycle of the
-current system and values, the equilibria with the selected one and the values they were found for, and
+current system, the equilibria with the selected one and the values both were found for, and
 the kept results of the analyses (sweep, Lyapunov spectrum, section, basins, two-parameter map, bifurcation
 diagram, fit:
 document/results.py, each once, marked stale rather than dropped when the values change, saved in the
-project file). Edits are undoable commands on ``undo`` (document/undo.py); the run and the cycle are
-cleared when the model or the values change, the equilibria when the model changes.
+project file). Edits are undoable commands on ``undo`` (document/undo.py); the run is replaced when the
+model or the values change, the cycle and the equilibria are cleared when the model changes.
 
 Every change is announced to plain Python callbacks: ``doc.subscribe(event, fn)``. Events and their
 arguments: ``text`` (text), ``parsed`` (ParsedModel), ``system`` (CompiledSystem), ``values`` (),
@@ -182,7 +182,8 @@ class LiveDocument:
         self.equilibria_notes: list[str] = []        # what the search that found them said
         self.equilibria_basis: Basis | None = None   # the values they were found for (results.py)
         self.selected_equilibrium: int | None = None  # index into ``equilibria``
-        self.cycle = None                            # the limit cycle found for the current values
+        self.cycle = None                            # the limit cycle found for the current system
+        self.cycle_basis: Basis | None = None        # the values it was found for
         self.clicked_start: list[float] | None = None  # full state of the last trajectory started by a click
         self.results = Results()  # kept results of the analyses by kind (read with ``result(kind)``)
         self.generation = 0       # grows whenever what results depend on changes (stale-result check)
@@ -453,10 +454,7 @@ class LiveDocument:
 
     def equilibria_stale(self) -> str:
         """Plain words when the equilibria were found for other values than those now set ("" if not)."""
-        then = self.equilibria_basis
-        if not self.equilibria or then is None:
-            return ""
-        return stale_words(then, self.basis(then.skip, solver=then.solver is not None))
+        return self._stale_since(self.equilibria_basis) if self.equilibria else ""
 
     def current_equilibria(self) -> list:
         """The equilibria if they were found for the values now set, else none (what markers show)."""
@@ -471,10 +469,22 @@ class LiveDocument:
             self.selected_equilibrium = index
             self.emit("selection", index)
 
-    def set_cycle(self, cycle) -> None:
-        """The limit cycle found for the current system and values (None: none)."""
+    def set_cycle(self, cycle, basis: Basis | None = None) -> None:
+        """The limit cycle found for the current system and the values of ``basis`` (default: now; None: no
+        cycle). Cleared when the model changes; with other values it is kept but stale (``cycle_stale``,
+        ``current_cycle``), as the equilibria are: the Limit cycle view shows it marked so, the plots draw
+        only a current one."""
         self.cycle = cycle
+        self.cycle_basis = None if cycle is None else basis if basis is not None else self.basis()
         self.emit("cycle", cycle)
+
+    def cycle_stale(self) -> str:
+        """Plain words when the cycle was found for other values than those now set ("" if not)."""
+        return self._stale_since(self.cycle_basis) if self.cycle is not None else ""
+
+    def current_cycle(self):
+        """The cycle if it was found for the values now set, else None (what the plots draw)."""
+        return None if self.cycle_stale() else self.cycle
 
     # ------------------------------------------------------------ kept results of the analyses (results.py)
     def basis(self, skip=(), solver: bool = False, initial: bool = True, data=None) -> Basis:
@@ -511,7 +521,11 @@ class LiveDocument:
     def result_stale(self, kind: str) -> str:
         """Plain words when the kept result of ``kind`` was computed for another model or other values than
         those now set ("" when it is current or there is none)."""
-        then = self.results.basis(kind)
+        return self._stale_since(self.results.basis(kind))
+
+    def _stale_since(self, then: Basis | None) -> str:
+        """Plain words when what was computed for ``then`` (None: nothing) differs from what is set now, by
+        the same parts ``then`` holds (the solver settings, the initial values, data sets)."""
         if then is None:
             return ""
         return stale_words(then, self.basis(then.skip, solver=then.solver is not None,
@@ -521,12 +535,17 @@ class LiveDocument:
         """A view started a trajectory from a clicked point: its full state (a start for a cycle search)."""
         self.clicked_start = [float(v) for v in u0]
 
-    def _clear_results(self, equilibria: bool = True) -> None:
-        """The cycle belongs to the values it was found for; equilibria to the system (with other values they
-        are kept, stale: ``current_equilibria``)."""
+    def _clear_results(self, model: bool = True) -> None:
+        """The cycle and the equilibria belong to the system: cleared when the model changed (``model``); with
+        other values they are kept, stale (``current_cycle``, ``current_equilibria``), and the cycle is
+        announced again (the plots draw only a current one)."""
+        if not model:
+            if self.cycle is not None:
+                self.emit("cycle", self.cycle)
+            return
         if self.cycle is not None:
             self.set_cycle(None)
-        if equilibria and (self.equilibria or self.selected_equilibrium is not None):
+        if self.equilibria or self.selected_equilibrium is not None:
             self.equilibria, self.equilibria_notes, self.selected_equilibrium = [], [], None
             self.emit("equilibria", [])
             self.emit("selection", None)
@@ -569,7 +588,7 @@ class LiveDocument:
 
     def _values_changed(self) -> None:
         self.generation += 1
-        self._clear_results(equilibria=False)
+        self._clear_results(model=False)
         self.emit("values")
         self.emit("inputs")
 

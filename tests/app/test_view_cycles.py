@@ -51,10 +51,19 @@ def test_van_der_pol_cycle_from_the_end_of_the_run(qtbot, session, tmp_path, art
     x, y = plane.cycle_item.getData()
     assert x.size == table.shape[0] and np.allclose(x, table[:, 1]) and np.allclose(y, table[:, 2])
     view.grab().save(f"{artifacts}/cycle_view.png")
-    # new values: the shared cycle goes, the view says what its cycle was computed for
+    # new values: the document keeps its one cycle, stale: the phase plane no longer draws it, the view
+    # shows it and says what it was computed for; back at mu = 1 it is current again
     wait_for_trajectory(qtbot, session, lambda: session.set_param("mu", 2.0))
-    assert session.cycle is None and plane.cycle_item.getData()[0] is None or len(plane.cycle_item.getData()[0]) == 0
+    assert session.cycle is cycle and view.cycle is cycle and session.current_cycle() is None
+    assert plane.cycle_item.getData()[0] is None or len(plane.cycle_item.getData()[0]) == 0
     assert not view.stale_bar.isHidden() and "mu = 1 (now 2)" in view.stale_bar.label.text()
+    wait_for_trajectory(qtbot, session, lambda: session.set_param("mu", 1.0))
+    assert session.current_cycle() is cycle and view.stale_bar.isHidden()
+    assert plane.cycle_item.getData()[0].size == table.shape[0]
+    # a new model: the cycle goes everywhere
+    with qtbot.waitSignal(session.systemChanged, timeout=20000):
+        session.set_text(session.text + "a = 1\n")
+    assert session.cycle is None and view.cycle is None and "Period" not in view.report.toPlainText()
 
 
 def test_cycle_from_a_clicked_start(qtbot, session):

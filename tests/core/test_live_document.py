@@ -106,14 +106,16 @@ def test_results_belong_to_the_values_they_were_found_for():
     doc.select_equilibrium(0)
     doc.set_cycle("a cycle")
     doc.set_param("k", 0.9)
-    assert doc.cycle is None and doc.current_equilibria() == []
+    assert doc.current_cycle() is None and doc.current_equilibria() == []
     assert doc.equilibria_stale() == "Computed for k = 0.5 (now 0.9)" and doc.selected_equilibrium == 0  # kept, stale
+    assert doc.cycle == "a cycle" and doc.cycle_stale() == "Computed for k = 0.5 (now 0.9)"
     doc.set_param("k", 0.5)
     assert doc.current_equilibria() == [{"state": {"x": 0.0}}] and doc.equilibria_stale() == ""
+    assert doc.current_cycle() == "a cycle" and doc.cycle_stale() == ""
     doc.set_text(DECAY.replace("-k*x", "-k*x^3"))
     doc.parse_now()
     doc.compile_now()
-    assert doc.equilibria == [] and doc.selected_equilibrium is None  # another model: gone
+    assert doc.equilibria == [] and doc.selected_equilibrium is None and doc.cycle is None  # another model: gone
 
 
 def test_walkthrough_and_data_parts_are_undoable(ticks):

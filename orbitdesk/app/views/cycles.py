@@ -34,7 +34,6 @@ class CyclesView(SessionView):
 
     def __init__(self, session, parent=None):
         super().__init__(session, parent)
-        self.cycle = None
         self._after_run = False
         self.start = combo_box("Where the search starts: the last state of the current run, or the trajectory "
                                "started by the last click in the phase plane (run on until it settles)",
@@ -83,6 +82,7 @@ class CyclesView(SessionView):
         layout.addLayout(strip_row)
         layout.addWidget(splitter, 1)
         self._restyle()
+        session.cycleChanged.connect(lambda _cycle: self._show())
         self.follow_session(trajectory=self._on_trajectory)
 
     def resizeEvent(self, event) -> None:
@@ -124,8 +124,14 @@ class CyclesView(SessionView):
 
     # ------------------------------------------------------------ public
     @property
+    def cycle(self):
+        """The live document's cycle (one copy: the phase plane and the 3D view draw it while it is current);
+        shown here with the stale bar when it was found for other values."""
+        return self.session.cycle
+
+    @property
     def result(self):
-        return self.cycle
+        return self.session.cycle
 
     def compute(self) -> None:
         """Look for the cycle from the chosen start (in the background)."""
@@ -166,11 +172,11 @@ class CyclesView(SessionView):
 
     # ------------------------------------------------------------ session events
     def show_no_result(self) -> None:
-        self._show(None)
+        self._show()
 
     def _on_system(self, system) -> None:
         self.system = system
-        self._show(None)
+        self._show()   # (a new model has cleared the document's cycle)
         self._show_controls()
 
     def _show_controls(self) -> None:
@@ -187,6 +193,9 @@ class CyclesView(SessionView):
     def update_stale(self, *_args) -> None:
         super().update_stale()
         self._show_controls()
+
+    def stale_text(self) -> str:
+        return self.session.cycle_stale() if self.system is not None else ""
 
     def _start_point(self):
         """(guess, initial, words): the search starts at ``guess`` (settled already) or runs on from
@@ -210,22 +219,18 @@ class CyclesView(SessionView):
 
     # ------------------------------------------------------------ results
     def _failed(self, message: str) -> None:
-        self._show(None)
+        self.session.set_cycle(None)   # the one found before is no answer to this search either
         self.report.setHtml(f"<p>No cycle found: {html.escape(message)}</p>")
 
     def _adopt(self, cycle) -> None:
-        self._show(cycle)
-        self.shown_computed()
-        self.session.set_cycle(cycle)
+        self.session.set_cycle(cycle, self._computing_for)
 
-    def _show(self, cycle) -> None:
-        self.cycle = cycle
-        if cycle is None:
-            self.shown_nothing()
-            self.report.setHtml("")
-        else:
-            self.report.setHtml(self._report_html(cycle))
+    def _show(self) -> None:
+        """Show the document's cycle (or nothing) with its stale bar."""
+        cycle = self.cycle if self.system is not None else None
+        self.report.setHtml(self._report_html(cycle) if cycle is not None else "")
         self._draw()
+        self.update_stale()
         self.cycleChanged.emit(cycle)
 
     def _report_html(self, c) -> str:

@@ -327,7 +327,7 @@ class PhasePlaneView(SessionView):
         self._refit_on_release = False
 
     def _draw_cycle(self) -> None:
-        cols = cycle_columns(self.system, self.session.cycle, self.session.param_vector())
+        cols = cycle_columns(self.system, self.session.current_cycle(), self.session.param_vector())
         if self.x_name not in cols or self.y_name not in cols:
             self.cycle_item.setData([], [])
             return

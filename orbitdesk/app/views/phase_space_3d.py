@@ -626,7 +626,7 @@ class PhaseSpace3DView(SessionView):
 
     def _draw_cycle(self) -> None:
         """The limit cycle of the cycle view, bold and in the highlight colour (a map's: its points)."""
-        cols = cycle_columns(self.system, self.session.cycle, self.session.param_vector())
+        cols = cycle_columns(self.system, self.session.current_cycle(), self.session.param_vector())
         names = self.axes()
         if not all(n in cols for n in names) or getattr(self, "_box", None) is None:
             self.cycle_item.setVisible(False)
