@@ -20,6 +20,7 @@ import math
 import sys
 import threading
 from dataclasses import dataclass, field
+from functools import partial
 from pathlib import Path
 from types import ModuleType, SimpleNamespace
 
@@ -58,7 +59,9 @@ class Engine:
     loops: SimpleNamespace
     kernels: ModuleType
     compiled: bool
-    batch_text: str = ""  # the source of the batched kernel's module (compiled when first used)
+    batch_text: object = ""  # the batched kernel's module source (compiled when first used), or a function
+    #                          that writes it then (the plain-Python engine: a model of thousands of terms
+    #                          waits for no batched kernel it never uses)
     _batch: object = None
     _entries: dict = field(default_factory=dict, repr=False)
     _parts: dict = field(default_factory=dict, repr=False)  # kernels of their own modules, by name
@@ -81,6 +84,8 @@ class Engine:
         if self._batch is None:
             with _batch_lock:
                 if self._batch is None:
+                    if callable(self.batch_text):
+                        self.batch_text = self.batch_text()
                     digest = _digest(self.batch_text)
                     module = (_import_compiled(self.batch_text, digest, "b") if self.compiled
                               else _exec_module(self.batch_text, f"pyb{digest}"))
@@ -217,7 +222,7 @@ def python_engine(system) -> Engine:
     if cached is None:
         kernels = _exec_module(module_source(system, jit=False), f"py{id(system)}")
         cached = system.__dict__["_python_engine"] = Engine(jitting.python_loops(*LOOP_MODULES), kernels, False,
-                                                            module_source(system, jit=False, batch=True),
+                                                            partial(module_source, system, jit=False, batch=True),
                                                             numpy_batch(system))
     return cached
 

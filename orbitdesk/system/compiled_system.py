@@ -19,7 +19,7 @@ from sympy.printing.numpy import NumPyPrinter
 from sympy.printing.pycode import PythonCodePrinter
 
 from orbitdesk.language.model import FLOW, MAP, ParsedModel, parse_model
-from orbitdesk.system.flat_code import flat_cse
+from orbitdesk.system.flat_code import flat_cse, rename
 from orbitdesk.language.noise import system_noise
 
 
@@ -66,7 +66,8 @@ def _generated_names(args, exprs):
         return e.xreplace(swap) if hasattr(e, "xreplace") else e
 
     args = rename(args)
-    return args, put_in(exprs)
+    with sp.evaluate(False):  # names swapped, nothing to simplify: no node evaluated again (flat_code.rename)
+        return args, put_in(exprs)
 
 
 @dataclass
@@ -177,8 +178,7 @@ class CompiledSystem:
         return dense_jacobian(self, parameters=True)
 
     def plain(self, exprs):
-        swap = self._plain[3]
-        return [e.xreplace(swap) for e in exprs]
+        return rename(exprs, self._plain[3])
 
     def _compile(self, exprs, modules):
         t, u, p, _ = self._plain
