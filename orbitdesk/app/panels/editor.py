@@ -542,8 +542,7 @@ class DiagnosticsList(QListWidget):
         session.modelParsed.connect(self.on_model_parsed)
         if editor is not None:
             self.set_editor(editor)
-        parsed = getattr(session, "parsed", None)
-        self.on_model_parsed(parsed)
+        self.on_model_parsed(session.parsed)
 
     def set_editor(self, editor: EquationEditor) -> None:
         if self.editor is not None:
@@ -590,7 +589,7 @@ class DiagnosticsList(QListWidget):
         if fix is None:
             return False
         text = self.editor.toPlainText() if self.editor is not None else self.session.text
-        parsed = getattr(self.session, "parsed", None)
+        parsed = self.session.parsed
         if parsed is None or parsed.text != text:
             return False  # the list is of an older text: its fixes may no longer fit
         new = apply_fix(text, fix)

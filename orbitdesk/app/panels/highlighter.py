@@ -101,9 +101,9 @@ class ModelHighlighter(QSyntaxHighlighter):
 
     def set_model(self, parsed) -> None:
         """Take parameter/derived names from a parse; re-colours only when they changed."""
-        kinds = {name: PARAMETER for name in getattr(parsed, "parameters", {})}
-        kinds.update({name: DERIVED for name in getattr(parsed, "derived", {})})
-        functions = frozenset(getattr(parsed, "function_arguments", {}))
+        kinds = {name: PARAMETER for name in parsed.parameters}
+        kinds.update({name: DERIVED for name in parsed.derived})
+        functions = frozenset(parsed.function_arguments)
         if kinds != self._kinds or functions != self._functions:
             self._kinds, self._functions = kinds, functions
             self.rehighlight()

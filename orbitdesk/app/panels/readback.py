@@ -53,7 +53,7 @@ def time_dependent_states(system) -> list[str]:
 
 def reduced_orders(system) -> dict[str, int]:
     """Base names whose equation was typed above first order, with the typed order."""
-    typed = getattr(system.model, "typed_order", {}) if _is_flow(system) else {}
+    typed = system.model.typed_order if _is_flow(system) else {}
     return {base: k for base, k in typed.items() if k > 1}
 
 
@@ -90,8 +90,8 @@ class ModelReadback(QWidget):
         session.modelParsed.connect(self.on_model_parsed)
         session.valuesChanged.connect(self._values_timer.start)
         self._style_note()
-        self.on_system_changed(getattr(session, "system", None))
-        self.on_model_parsed(getattr(session, "parsed", None))
+        self.on_system_changed(session.system)
+        self.on_model_parsed(session.parsed)
 
     # ------------------------------------------------------------ public API
     @property
@@ -262,7 +262,7 @@ class ModelReadback(QWidget):
 
     def _events(self, system) -> str:
         """Each event as understood: when it happens (the boundary and its direction) and what it does."""
-        events = getattr(system.model, "events", [])
+        events = system.model.events
         if not events:
             return ""
         rows = []
@@ -283,7 +283,7 @@ class ModelReadback(QWidget):
         return self._heading("Events") + self._table(rows) + self._muted(note, 4)
 
     def _initial(self, system) -> str:
-        current = getattr(self.session, "initial", None) or {}
+        current = self.session.initial
         label = "Initial values" if _is_flow(system) else "Starting values"
         rows = [self._value_row(f"{name}(0)" if _is_flow(system) else f"{name}[0]", value, current.get(name),
                                 self._c["initial"], "")
@@ -293,7 +293,7 @@ class ModelReadback(QWidget):
     def _parameters(self, system) -> str:
         if not system.parameters:
             return self._heading("Parameters") + self._muted("none", 0)
-        current = getattr(self.session, "params", None) or {}
+        current = self.session.params
         rows = []
         for name, value in zip(system.parameters, system.param_values):
             lo, hi = system.param_ranges.get(name, (None, None))

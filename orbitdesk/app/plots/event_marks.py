@@ -39,7 +39,7 @@ class EventMarks:
     def show(self, trajectory, pairs) -> str:
         """Mark the events of ``trajectory`` for each (x, y, colour) of ``pairs``; a note in words."""
         self.clear()
-        events = list(getattr(trajectory, "model_events", None) or []) if trajectory is not None else []
+        events = list(trajectory.model_events) if trajectory is not None else []
         if not events:
             return ""
         shown = events[:MAX_MARKED]

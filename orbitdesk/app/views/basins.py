@@ -122,7 +122,7 @@ class BasinsView(GridView):
         from orbitdesk.analyses.basins import BasinSettings, basins
 
         settings = BasinSettings(transient=float(self.transient.value()),
-                                 dt=float(getattr(self.session.solver, "dt", None) or 0.01))
+                                 dt=float(self.session.solver.dt or 0.01))
         if s.kind != "map" and self.strobe.isChecked():
             settings.period = float(self.period.value())
         p, u0 = self.session.param_vector(), self.session.initial_vector()

@@ -231,7 +231,7 @@ class SessionView(QWidget):
         return layout
 
     def _show_noise_note(self, system) -> None:
-        self.noise_note.setVisible(bool(getattr(system, "stochastic", False)))
+        self.noise_note.setVisible(system is not None and system.stochastic)
 
     def saved_view_settings(self) -> dict:
         """This view's settings as the open project keeps them, checked and clamped (view_settings.py)."""

@@ -35,7 +35,7 @@ def eigen_starts(eq, eps: float) -> list[dict]:
 
     Each start is {"u0": list, "backward": bool, "label": str, "eigenvalue": float, "index": k}."""
     out = []
-    is_map = bool(getattr(eq, "is_map", False))
+    is_map = eq.is_map
     values, vectors = np.asarray(eq.eigenvalues), np.asarray(eq.eigenvectors)
     scale = max(1.0, abs(complex(values[0])) if values.size else 1.0)
     for k, lam in enumerate(values):
@@ -372,7 +372,7 @@ class EquilibriaView(SessionView):
         lam_heads = [f"λ{k + 1} = {complex_text(v, 5)}" for k, v in enumerate(eq.eigenvalues)]
         vecs = [[complex_text(eq.eigenvectors[r, c], 4) for c in range(len(eq.eigenvalues))]
                 for r in range(len(states))]
-        multipliers = bool(getattr(eq, "is_map", False))
+        multipliers = eq.is_map
         counts = (f"{eq.n_stable} stable, {eq.n_unstable} unstable{f', {eq.n_center} neutral' if eq.n_center else ''}"
                   f" direction{'s' if len(eq.eigenvalues) != 1 else ''}")
         if s.delays:  # infinitely many characteristic roots: the rightmost are listed

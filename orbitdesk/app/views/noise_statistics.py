@@ -97,7 +97,7 @@ class NoiseStatisticsView(SessionView):
 
     def _on_trajectory(self, trajectory) -> None:
         self.trajectory = trajectory
-        R = getattr(trajectory, "realisations", None)
+        R = trajectory.realisations if trajectory is not None else None
         if R is not None and not self._user_time:
             default = R.time[0] + (R.time[-1] - R.time[0]) / 2 if self._mode() == STATIONARY else R.time[-1]
             set_quietly(self.time, float(default))
@@ -122,7 +122,7 @@ class NoiseStatisticsView(SessionView):
 
     # ------------------------------------------------------------ drawing
     def _redraw(self, *_args) -> None:
-        R = getattr(self.trajectory, "realisations", None)
+        R = self.trajectory.realisations if self.trajectory is not None else None
         name = self.state.currentText()
         self.result = None
         if R is None or name not in R.state_names:

@@ -46,6 +46,7 @@ class SectionsView(SessionView):
         self._user_value = False
         self._user_period = False
         self._computed_once = False
+        self._pending = False         # an automatic computation waits for the closed dock to open again
         self._just_opened = True      # the next system is the first of an opened project
 
         # ---- what to section
@@ -379,11 +380,11 @@ class SectionsView(SessionView):
 
     def showEvent(self, event) -> None:  # noqa: N802 - Qt's name
         super().showEvent(event)
-        if getattr(self, "_pending", False):  # once the dock counts as open again
+        if self._pending:  # once the dock counts as open again
             QTimer.singleShot(0, self, self._catch_up)
 
     def _catch_up(self) -> None:
-        if getattr(self, "_pending", False) and not self._dock_closed():
+        if self._pending and not self._dock_closed():
             self._pending = False
             self._schedule(force=True)
 

@@ -472,7 +472,7 @@ class SweepView(SessionView):
             parts.append(f"{failed} value{'s' if failed != 1 else ''} blew up or failed")
         if empty:
             parts.append(f"{empty} value{'s' if empty != 1 else ''} gave no points")
-        parts += list(getattr(result, "notes", []))
+        parts += list(result.notes)
         self.info.setText("; ".join(parts))
         self._update_marker()
 

@@ -122,7 +122,7 @@ class TimeSeriesView(SessionView):
         traj, names = self.trajectory, self.checked()
         if traj is None or not names:
             return None
-        R = getattr(traj, "realisations", None)
+        R = traj.realisations
         if self.spectrum.isChecked():
             cols, freq = [], None
             for name in names:
@@ -259,7 +259,7 @@ class TimeSeriesView(SessionView):
             except KeyError:
                 continue
             x = traj.time
-            realisations = getattr(traj, "realisations", None)
+            realisations = traj.realisations
             noisy = realisations is not None and name in realisations.state_names
             if spectrum:
                 spec = self._mean_spectrum(name) if noisy else power_spectrum(x, y)
