@@ -20,10 +20,9 @@ from benchmarks.harness import Row, timed
 from orbitdesk.engine.runs import RunSettings, simulate
 from orbitdesk.engine import compiled
 from orbitdesk.analyses.lyapunov import lyapunov_spectrum
+from orbitdesk.samples.models import LORENZ
 from orbitdesk.system.compiled_system import compile_model
 
-LORENZ = ("x' = sigma*(y - x)\ny' = x*(r - z) - y\nz' = x*y - beta*z\n"
-          "sigma = 10\nr = 28\nbeta = 8/3\nx(0) = 1\ny(0) = 1\nz(0) = 1\n")
 T_END, TRANSIENT, TAU = 1020.0, 20.0, 1.0
 
 

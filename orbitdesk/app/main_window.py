@@ -454,11 +454,22 @@ class MainWindow(QMainWindow):
             self.reset_layout()
             if self.isVisible():
                 QTimer.singleShot(0, self.apply_default_sizes)  # after other panels have reacted to the load
+            self._show_kept_results()
         # the views this project uses: open in its layout, or opened or made while it is open (the report
         # leaves out views made for a project before and closed in this one)
         self.views_in_project = {n for n, d in self.view_docks.items() if d.toggleViewAction().isChecked()}
         self.run_status.setText("")
         self._update_title()
+
+    def _show_kept_results(self) -> None:
+        """A project without a saved layout (written by the command line, say `orbitdesk continue --keep`)
+        opens with the views that show its kept results beside the starting ones."""
+        from orbitdesk.app.dock_layout import show_docks
+        from orbitdesk.document.views import views_showing
+
+        kept = [v.module for v in views_showing(self.session.doc.results.kinds()) if v.module in self.view_docks]
+        if kept:
+            show_docks(self, [n for n in views_pkg.DEFAULT_VISIBLE if n in self.view_docks] + kept, arrange=True)
 
     def _update_title(self, *_args) -> None:
         dirty = self.session.dirty

@@ -19,6 +19,7 @@ class ViewInfo:
     title: str                   # what the user reads (dock title, menu, walkthrough problems)
     module: str                  # orbitdesk.app.views.<module> exposes VIEW = the view class
     shown_at_start: bool = False
+    results: tuple[str, ...] = ()  # the kinds of kept result it shows (document/results.py KINDS)
 
     @property
     def settings(self) -> dict:
@@ -34,13 +35,13 @@ VIEWS: tuple[ViewInfo, ...] = (
     ViewInfo("phase_space_3d", "Phase space 3D", "phase_space_3d"),
     ViewInfo("equilibria", "Equilibria", "equilibria"),
     ViewInfo("cycles", "Limit cycle", "cycles"),
-    ViewInfo("sections", "Poincaré section", "sections"),
-    ViewInfo("sweep", "Parameter sweep", "sweep"),
-    ViewInfo("lyapunov", "Lyapunov exponents", "lyapunov"),
-    ViewInfo("parameter_map", "Two-parameter map", "parameter_map"),
-    ViewInfo("basins", "Basins of attraction", "basins"),
-    ViewInfo("bifurcation", "Bifurcation diagram", "bifurcation"),
-    ViewInfo("fit", "Fit to data", "fit"),
+    ViewInfo("sections", "Poincaré section", "sections", results=("sections",)),
+    ViewInfo("sweep", "Parameter sweep", "sweep", results=("sweep",)),
+    ViewInfo("lyapunov", "Lyapunov exponents", "lyapunov", results=("lyapunov",)),
+    ViewInfo("parameter_map", "Two-parameter map", "parameter_map", results=("parameter_map",)),
+    ViewInfo("basins", "Basins of attraction", "basins", results=("basins",)),
+    ViewInfo("bifurcation", "Bifurcation diagram", "bifurcation", results=("bifurcation", "bifurcation_locus")),
+    ViewInfo("fit", "Fit to data", "fit", results=("fit",)),
     ViewInfo("noise_statistics", "Noise statistics", "noise_statistics"),
 )
 VIEW_IDS: tuple[str, ...] = tuple(v.id for v in VIEWS)
@@ -53,6 +54,12 @@ def view_info(view_id: str) -> ViewInfo:
         return _BY_ID[view_id]
     except KeyError:
         raise KeyError(f"there is no view {view_id!r} (views: {', '.join(VIEW_IDS)})") from None
+
+
+def views_showing(kinds) -> list[ViewInfo]:
+    """The views that show results of these kinds (document/results.py), in the registry's order."""
+    kinds = set(kinds)
+    return [v for v in VIEWS if kinds & set(v.results)]
 
 
 def title_of(view_id: str) -> str:

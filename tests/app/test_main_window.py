@@ -531,3 +531,19 @@ def test_views_opened_one_after_another_stay_readable_and_the_window_keeps_its_s
     for n in in_sight:
         geometry = docks[n].geometry()
         assert geometry.right() <= window.width() and geometry.bottom() <= window.height(), n
+
+
+def test_a_project_the_command_line_kept_a_diagram_in_opens_with_the_view_that_shows_it(qtbot, window, tmp_path):
+    from orbitdesk.cli import main
+    from orbitdesk.samples.models import BRUSSELATOR
+
+    path = tmp_path / "kept.orbitdesk"
+    core_project.save(path, core_project.Project(name="kept", model=BRUSSELATOR))
+    assert main(["continue", str(path), "--param", "b", "--from", "0", "--to", "4", "--keep"]) == 0
+    wait_for_trajectory(qtbot, window.session, lambda: window.open_path(path))
+    dock = window.view_docks["bifurcation"]
+    qtbot.waitUntil(lambda: dock.isVisible() and not dock.visibleRegion().isEmpty(), timeout=10000)
+    view = window.views["bifurcation"]
+    # the Brusselator's Hopf point at b = 1 + a^2 = 2 (closed form), listed, current for the values saved
+    assert [round(s.value, 9) for s in view.result.specials] == [2.0] and view.stale_bar.isHidden()
+    assert window.view_docks["timeseries"].isVisible() and window.view_docks["phase_plane"].isVisible()

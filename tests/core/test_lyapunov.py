@@ -9,12 +9,11 @@ from scipy.linalg import expm
 from orbitdesk.analyses.lyapunov import (QR, TWO_TRAJECTORY, kaplan_yorke_dimension, largest_lyapunov_two_trajectory,
                                      lyapunov_spectrum)
 from orbitdesk.engine.progress import CancelToken
+from orbitdesk.samples.models import LORENZ
 from orbitdesk.system.compiled_system import compile_model
 
 pytestmark = pytest.mark.fallback  # published values: run with the compiler and without
 
-LORENZ = ("x' = sigma*(y - x)\ny' = x*(r - z) - y\nz' = x*y - beta*z\n"
-          "sigma = 10\nr = 28\nbeta = 8/3\nx(0) = 1\ny(0) = 1\nz(0) = 1\n")
 HENON = "x[n+1] = 1 - a*x^2 + y\ny[n+1] = b*x\na = 1.4\nb = 0.3\nx[0] = 0.1\ny[0] = 0.1\n"
 # r = 4: start away from the dyadic points, whose float orbits fall onto 0 (0.5 -> 1 -> 0).
 LOGISTIC = "x[n+1] = r*x*(1 - x)\nr = 4\nx[0] = 0.1234567\n"

@@ -7,14 +7,14 @@ import pytest
 
 from orbitdesk.engine.runs import Event, RunSettings, simulate
 from orbitdesk.analyses.sections import SectionResult, plane_section, return_map, strobe_section
+from orbitdesk.samples import models
 from orbitdesk.system.compiled_system import compile_model
 
 pytestmark = pytest.mark.fallback  # published values: run with the compiler and without
 
 OSCILLATOR = "x' = y\ny' = -w^2*x\nw = 2\nx(0) = 0.3\ny(0) = 1\n"
 CIRCLE = "x' = y\ny' = -x\nx(0) = 0\ny(0) = 1\n"  # orbits on x^2 + y^2 = 1, period 2 pi
-LORENZ = ("x' = sigma*(y - x)\ny' = x*(r - z) - y\nz' = x*y - beta*z\n"
-          "sigma = 10\nr = 28\nbeta = 8/3\nx(0) = 1\ny(0) = 1\nz(0) = 1\ns = x + y\n")
+LORENZ = models.LORENZ + "s = x + y\n"
 DUFFING = ("x'' = -delta*x' + x - x^3 + gamma*cos(omega*t)\n"
            "delta = 0.3\ngamma = 0.005\nomega = 1.2\nx(0) = 1\nx'(0) = 0\n")
 

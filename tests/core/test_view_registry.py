@@ -65,3 +65,18 @@ def test_sample_walkthrough_steps_name_only_existing_views_and_settings(path):
             assert view_id in VIEW_IDS, (path.stem, step.title, view_id)
             assert unknown_keys(view_id, settings) == [], (path.stem, step.title, view_id)
             assert missing_names(view_id, settings, known) == [], (path.stem, step.title, view_id)
+
+
+def test_every_kind_of_kept_result_is_shown_by_one_view_and_each_view_declares_what_it_shows():
+    from orbitdesk.document.results import KINDS
+    from orbitdesk.document.views import views_showing
+
+    for kind in KINDS:
+        assert len(views_showing([kind])) == 1, kind
+    for info in VIEWS:
+        tree = ast.parse((ROOT / "orbitdesk" / "app" / "views" / f"{info.module}.py").read_text(encoding="utf-8"))
+        declared = [node.value.value for node in ast.walk(tree) if isinstance(node, ast.Assign)
+                    and any(isinstance(t, ast.Name) and t.id == "result_kind" for t in node.targets)
+                    and isinstance(node.value, ast.Constant) and node.value.value is not None]
+        assert set(declared) <= set(info.results), info.id
+    assert [v.id for v in views_showing(["bifurcation_locus", "sweep"])] == ["sweep", "bifurcation"]
