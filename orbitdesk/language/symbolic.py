@@ -272,6 +272,8 @@ def _checked_call(func: str, args, node) -> sp.Expr:
             except ZeroDivisionError:
                 raise ParseError(f"{func}() divides by zero here", node.column, node.end) from None
             return _checked_constant(sp.Float(value), node, f"{func}() of this constant")
+        if not all(a.is_Rational for a in args):
+            return _checked_constant(_whole_part(func, args, values, node), node, f"{func}() of this constant")
     try:
         result = SYMPY_FUNCTIONS[func](*args)
     except ZeroDivisionError:
@@ -279,6 +281,25 @@ def _checked_call(func: str, args, node) -> sp.Expr:
     except (ValueError, TypeError, ArithmeticError):
         raise ParseError(f"{func}() of this constant is undefined", node.column, node.end) from None
     return _checked_constant(result, node, f"{func}() of this constant")
+
+
+def _whole_part(func: str, args, values, node) -> sp.Expr:
+    """floor(a) or mod(a, m) of constants that are not plain numbers, without sympy's evaluation, which works
+    to ever more digits when those of the quotient cancel (mod(417, sinh(690) - cosh(690) - atan(1e300)):
+    seconds to minutes): the whole part k of the quotient from its value, exact where the quotient is clear of
+    an integer (k, or the value of a - k m), else the doubles' answer, as for constants beyond 2^53."""
+    if func == "mod" and values[1] == 0:
+        raise ParseError("mod() divides by zero here", node.column, node.end)
+    q = values[0] if func == "floor" else values[0] / values[1]
+    if not math.isfinite(q):
+        raise _too_large(node, f"{func}() of this constant")
+    k = math.floor(q)
+    if min(q - k, k + 1 - q) > 1e-9 * max(1.0, abs(q)):
+        if func == "floor":
+            return sp.Integer(k)
+        # a - k m as its value: written out, its terms could cancel in the generated code's doubles
+        return sp.Float(_approx(args[0] - sp.Integer(k) * args[1]).real)
+    return sp.Float(MATH_FUNCTIONS[func](*values))
 
 
 def fold(node, leaf, combine):

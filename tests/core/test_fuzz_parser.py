@@ -362,6 +362,7 @@ def family_models(draw):
 
 @budget(300)
 @given(family_models())
+@example("x_{i}' = -mod(417, sinh(690) - cosh(690) - atan(1e300))   for i in 0..N\nN = 0")  # deep run: minutes
 @example("N = 1\nc = 0.5\nsat(u) = u/(1 + abs(u))\npull(a, b) = -b*sat(a)\n"
          "x_{i}' = x_{i} / if(x_{i} < 1 and not 1 < 1, 0, t)   for i in 1..N\nx_{0} = 0\nx_{i}(0) = 0*i   for i in 1..N")
 def test_generated_family_models_parse_and_compile(text):

@@ -301,6 +301,8 @@ def test_legal_hostile_looking_inputs_evaluate_correctly(outcomes):
     # x' = 2 + 10 - 0, y' = 200 + y at y = 2 (y < 1 fails, and 1 < 1 fails)
     assert math.tanh(1140) == 1.0 and math.cosh(690) == math.sinh(690)
     assert outcomes["condition_between_close_constants.txt"]["rhs"] == [12.0, 202.0]
+    # Python's floor-mod of the doubles: 417 % (-pi/2) (sinh(690) = cosh(690) as doubles), and floor(pi) = 3
+    assert outcomes["mod_of_cancelling_constants.txt"]["rhs"] == [pytest.approx(417 % (-math.pi / 2) + 3, rel=1e-12)]
     # the chain of conditions over conditions, evaluated step by step in Python at x = 0.5
     a = min(0.5, 1)
     for step in ("sqrt", "sqrt", "sqrt", "sin", "abs", "sin", "min", "min", "tanh", "if", "floor", "if", "tanh",
