@@ -184,9 +184,9 @@ def test_a_sweep_draws_its_pieces_as_they_arrive_and_keeps_them_when_cancelled(q
     load(qtbot, session, LORENZ)
     view.set_range("r", 20.0, 40.0, 96)
     view.set_sampling("maxima", observe="z")
-    view.transient.setValue(300.0)
+    view.transient.setValue(3000.0)  # long enough that the cancel comes before the end, compiled or not
     view.run_button.click()
-    qtbot.waitUntil(lambda: "so far" in view.info.text(), timeout=60000)  # drawn before the end
+    qtbot.waitUntil(lambda: "so far" in view.info.text(), timeout=180000)  # drawn before the end
     assert view.strip.running and view.points.data.size > 0
     qtbot.mouseClick(view.strip.cancel_button, Qt.MouseButton.LeftButton)
     qtbot.waitUntil(lambda: session.jobs.pool.activeThreadCount() == 0, timeout=30000)
