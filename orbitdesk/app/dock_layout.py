@@ -19,6 +19,7 @@ def show_docks(window, wanted: list[str], arrange: bool) -> None:
         if module not in wanted and is_open(dock):
             dock.hide()
     docks = [window.view_docks[m] for m in wanted]
+    width = window.width()
     for dock in docks:
         if not is_open(dock):
             dock.show()
@@ -26,9 +27,12 @@ def show_docks(window, wanted: list[str], arrange: bool) -> None:
     if not arrange or len(docks) < 2:
         return
     shared = any(d in window.tabifiedDockWidgets(other) for i, d in enumerate(docks) for other in docks[:i])
-    if not shared:
+    too_wide = window.minimumSizeHint().width() > width  # side by side they would grow the window
+    if not (shared or too_wide):
         return
     _rebuild_docks(window, [d for d in docks if not d.isFloating()])
+    if too_wide:  # the window grew while they stood side by side: back to its width once the rows are laid out
+        QTimer.singleShot(0, lambda: window.width() > width and window.resize(width, window.height()))
 
 
 def keep_side_widths(window, walkthrough_width: int | None = None):

@@ -192,3 +192,26 @@ def test_a_step_back_from_a_framed_phase_plane_fits_its_own_run(qtbot, window):
     assert inside(x, x0, x1) and inside(y, y0, y1)
     assert (y.max() - y.min()) > 0.8 * (y1 - y0)  # fitted to the run, not the frame of the step before
     panel.leave()
+
+
+def test_views_too_wide_side_by_side_are_stacked_at_the_screen_size(qtbot, window):
+    # the convection loop's section step opens the 3D view and the section (two plots and a row of controls)
+    # after the 3D view stood beside the equilibria: side by side they need about 1,720 px, more than a
+    # 1600 x 1000 screen, so they go one above the other and the window keeps its width
+    window.resize(1600, 1000)
+    qtbot.waitUntil(lambda: window.width() == 1600)
+    path = next(p for p in SAMPLES if p.stem == "convection_loop")
+    menu = window.samples_menu
+    menu.aboutToShow.emit()
+    next(a for a in menu.actions() if a.data() == str(path)).trigger()
+    s, panel = window.session, window.walkthrough_panel
+    wait_idle_run(qtbot, s)
+    while True:
+        before = panel.current
+        qtbot.mouseClick(panel.next_button, Qt.MouseButton.LeftButton)
+        if panel.current == before:
+            break
+        qtbot.waitUntil(lambda: not s.busy, timeout=120000)
+        qtbot.waitUntil(lambda: window.width() <= 1600, timeout=5000)
+        shown = [d.geometry() for d in window.view_docks.values() if d.isVisible() and not d.isFloating()]
+        assert not any(a.intersects(b) for k, a in enumerate(shown) for b in shown[k + 1:])

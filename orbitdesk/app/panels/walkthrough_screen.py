@@ -127,10 +127,10 @@ def _put_on_screen(window, new_state: dict, snapshot: dict, arrange: bool, defer
                 wanted.append(modules[view_id])
             else:
                 unknown(view_id)
-        show_docks(window, wanted, arrange)
-        for module in wanted:
+        for module in wanted:  # made before they are laid out, so the layout knows the room they need
             if window.ensure_view(module) is None:
                 out.problems.append(f"the {title_of(module).lower()} view could not be opened")
+        show_docks(window, wanted, arrange)
 
     changes: dict[str, dict] = {}
     for view_id in snapshot.get("views", {}) if isinstance(snapshot.get("views"), dict) else ():
