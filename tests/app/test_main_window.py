@@ -12,22 +12,13 @@ from PySide6.QtWidgets import QFileDialog, QMessageBox
 
 from orbitdesk.document import project as core_project
 from orbitdesk.document.project import ProjectError
+from orbitdesk.samples.models import LORENZ_REF, model
 
 from .conftest import wait_for_trajectory
 
 # Lorenz, "Deterministic nonperiodic flow", J. Atmos. Sci. 20 (1963); Strogatz, Nonlinear Dynamics and
 # Chaos, 2nd ed., sec. 9.2, with sigma = 10, r = 28, b = 8/3.
-LORENZ = """# Lorenz convection model
-x' = sigma*(y - x)
-y' = r*x - y - x*z
-z' = x*y - beta*z
-sigma = 10 in [0, 20]
-r = 28 in [0, 50]
-beta = 8/3 in [0, 5]
-x(0) = 1
-y(0) = 1
-z(0) = 1
-"""
+LORENZ = model(LORENZ_REF, ranges={"sigma": (0, 20), "r": (0, 50), "beta": (0, 5)})
 
 # Harmonic oscillator x'' = -w^2 x: x(t) = cos(w t) for x(0) = 1, x'(0) = 0 (closed form).
 OSCILLATOR = """# spring

@@ -11,21 +11,13 @@ from orbitdesk.engine.runs import simulate
 from orbitdesk.engine import RunSettings
 from orbitdesk.document.project import Project
 from orbitdesk.document import live as live_module
+from orbitdesk.samples.models import LORENZ_REF, model
 
 from .conftest import wait_for_trajectory
 
 # Lorenz (Strogatz, Nonlinear Dynamics and Chaos, 2nd ed., sec. 9.2); long enough runs that most are
 # cancelled before they finish.
-LORENZ = """x' = sigma*(y - x)
-y' = r*x - y - x*z
-z' = x*y - beta*z
-sigma = 10
-r = 28 in [0, 50]
-beta = 8/3
-x(0) = 1
-y(0) = 1
-z(0) = 1
-"""
+LORENZ = model(LORENZ_REF, ranges={"r": (0, 50)})
 
 
 @pytest.mark.slow

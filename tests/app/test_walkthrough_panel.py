@@ -9,6 +9,7 @@ import pytest
 from PySide6.QtCore import QModelIndex, Qt
 
 from orbitdesk.document.project import Project, WalkthroughStep
+from orbitdesk.samples.models import LORENZ
 
 from .conftest import wait_for_trajectory
 
@@ -174,8 +175,7 @@ def test_camera_selected_equilibrium_and_time_cursor_come_back(qtbot, window, tm
     # Lorenz (1963) at r = 28 has three equilibria: the origin and (+-sqrt(beta (r - 1)), ..., r - 1)
     # (Strogatz, Nonlinear Dynamics and Chaos, 2nd ed., sec. 9.2).
     path = tmp_path / "lorenz.txt"
-    path.write_text("sigma = 10\nr = 28\nbeta = 8/3\nx' = sigma*(y - x)\ny' = x*(r - z) - y\n"
-                    "z' = x*y - beta*z\nx(0) = 1\ny(0) = 1\nz(0) = 1\n", encoding="utf-8")
+    path.write_text(LORENZ, encoding="utf-8")
     s, panel = window.session, window.walkthrough_panel
     wait_for_trajectory(qtbot, s, lambda: window.open_path(path, ask=False))
     wait_for_trajectory(qtbot, s, lambda: s.set_solver(t_end=20.0))

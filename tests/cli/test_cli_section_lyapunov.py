@@ -7,14 +7,13 @@ import math
 import numpy as np
 import pytest
 
+from orbitdesk.samples.models import HENON, LORENZ
+
 from .conftest import run_cli
 
 OSCILLATOR = "x' = y\ny' = -w^2*x\nw = 2\nx(0) = 0.3\ny(0) = 1\n"
 DUFFING = ("x'' = -delta*x' + x - x^3 + gamma*cos(omega*t)\n"
            "delta = 0.3\ngamma = 0.005\nomega = 1.2\nx(0) = 1\nx'(0) = 0\nE = x'^2/2 - x^2/2 + x^4/4\n")
-LORENZ = ("x' = sigma*(y - x)\ny' = x*(r - z) - y\nz' = x*y - beta*z\n"
-          "sigma = 10\nr = 28\nbeta = 8/3\nx(0) = 1\ny(0) = 1\nz(0) = 1\n")
-HENON = "x[n+1] = 1 - a*x^2 + y\ny[n+1] = b*x\na = 1.4\nb = 0.3\nx[0] = 0.1\ny[0] = 0.1\n"
 
 
 # ---------------------------------------------------------------- section
