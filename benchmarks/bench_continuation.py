@@ -23,9 +23,9 @@ from benchmarks.harness import Row, timed
 from orbitdesk.analyses.continuation import HOPF, StepSettings, steady_branches
 from orbitdesk.analyses.continuation.response import response_curve, stepped_sweep
 from orbitdesk.system.compiled_system import compile_model
-from orbitdesk.samples.models import DUFFING_REF, model
+from orbitdesk.samples.models import DUFFING_REF, LORENZ_REF, model
 
-LORENZ = "sigma = 10\nr = 28\nbeta = 8/3\nx' = sigma*(y - x)\ny' = r*x - y - x*z\nz' = x*y - beta*z\n"
+LORENZ = model(LORENZ_REF, initial={"x(0)": None, "y(0)": None, "z(0)": None})
 BEAM = model(DUFFING_REF, delta=0.1, gamma=0.05)
 GRID = 3000
 

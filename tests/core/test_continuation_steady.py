@@ -10,9 +10,9 @@ from orbitdesk.analyses.continuation.functions import ModelFunctions
 from orbitdesk.analyses.continuation.hopf import first_lyapunov_coefficient
 from orbitdesk.engine.progress import CancelToken, Cancelled
 from orbitdesk.system.compiled_system import compile_model
-from orbitdesk.samples.models import LOGISTIC_REF, model
+from orbitdesk.samples.models import LOGISTIC_REF, LORENZ_REF, model
 
-LORENZ = "sigma = 10\nr = 28\nbeta = 8/3\nx' = sigma*(y - x)\ny' = r*x - y - x*z\nz' = x*y - beta*z\nx(0) = 1\n"
+LORENZ = model(LORENZ_REF, initial={"y(0)": None, "z(0)": None})
 BRUSSELATOR = "a = 1.5\nb = 1\nx' = a - (b + 1)*x + x^2*y\ny' = b*x - x^2*y\n"
 CUSP = "a = 0.1\nb = 1\nx' = a + b*x - x^3\n"
 LOGISTIC = model(LOGISTIC_REF, r=2.5, initial={'x[0]': 0.3})
