@@ -95,17 +95,17 @@ def test_a_lyapunov_run_of_a_sliding_mod_model_ends():
     assert not result.ok and "sliding along a kink or jump" in result.message and "--max-steps" in result.message
 
 
-def test_the_command_line_states_the_limit_and_its_option(tmp_path, capsys):
+def test_the_command_line_states_the_limit_and_its_option(tmp_path, capfd):
     from orbitdesk.cli import main
 
     path = tmp_path / "logistic.txt"
     path.write_text(LOGISTIC)
     assert main(["run", "--steps", "100000000", str(path)]) == 1
-    err = capsys.readouterr().err
+    err = capfd.readouterr().err  # what the user's terminal shows, whichever stream object wrote it
     assert err.strip().endswith("a run of 100,000,000 iterations asks for 100,000,000 steps; the "
                            "limit is 50,000,000 (ask for less, or raise it with --max-steps N)")
     assert main(["run", "--steps", "2000000", "--max-steps", "1e6", str(path)]) == 1
-    assert "the limit is 1,000,000" in capsys.readouterr().err
+    assert "the limit is 1,000,000" in capfd.readouterr().err
     assert main(["run", "--steps", "2000000", "--max-steps", "3e6", "--csv", str(tmp_path / "out.csv"), str(path)]) == 0
     assert main(["sweep", "--param", "r", "--from", "3", "--to", "4", "--count", "1000000000", str(path)]) == 1
-    assert "a sweep of 1,000,000,000 values" in capsys.readouterr().err
+    assert "a sweep of 1,000,000,000 values" in capfd.readouterr().err
