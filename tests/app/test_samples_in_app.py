@@ -8,7 +8,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-from PySide6.QtCore import Qt
+from PySide6.QtCore import QPoint, Qt
 
 from orbitdesk.document.view_settings import names_in, unknown_keys
 from orbitdesk.app import help as help_ui
@@ -109,6 +109,22 @@ def check_phase_plane_shows_what_the_note_names(qtbot, window, title, with_equil
                 assert x0 <= x <= x1 and y0 <= y <= y1, (title, "an equilibrium outside the phase plane", x, y)
 
 
+def check_model_panel_readable(window, title):
+    """Every value box of the model panel is whole in sight beside its slider (the convection loop's section
+    and Lyapunov steps squeezed the panel to 180 px and cut the boxes off)."""
+    from orbitdesk.app.panels.parameters import SLIDER_LEAST
+
+    panel = window.panel_parts["ParameterPanel"]
+    if not window.model_dock.isVisible() or window.model_tabs.currentWidget() is not panel:
+        return
+    viewport = panel.scroll.viewport()
+    for (kind, name), row in panel.rows().items():
+        left = row.spin.mapTo(viewport, QPoint(0, 0)).x()
+        assert left >= 0 and left + row.spin.width() <= viewport.width(), (title, name, left, viewport.width())
+        assert row.slider.width() >= SLIDER_LEAST and row.label.width() >= row.label.minimumSizeHint().width(), \
+            (title, name)
+
+
 def test_every_sample_is_listed():
     assert len(SAMPLES) >= 7
     names = {p.name for p in SAMPLES}
@@ -163,6 +179,7 @@ def test_sample_walkthrough_replays_in_the_app(qtbot, window, path):
         status = s.trajectory.status
         assert status == "ok" or f"*{status}*" in steps[i]["note"], (steps[i]["title"], s.trajectory.message)
         check_plots_show_the_whole_run(qtbot, window, steps[i])
+        check_model_panel_readable(window, steps[i]["title"])
         if panel.missing_views:
             print(f"{path.stem} step {i + 1}: views not in this build: {panel.missing_views}")
     assert seen == list(range(len(steps)))
@@ -215,3 +232,4 @@ def test_views_too_wide_side_by_side_are_stacked_at_the_screen_size(qtbot, windo
         qtbot.waitUntil(lambda: window.width() <= 1600, timeout=5000)
         shown = [d.geometry() for d in window.view_docks.values() if d.isVisible() and not d.isFloating()]
         assert not any(a.intersects(b) for k, a in enumerate(shown) for b in shown[k + 1:])
+        check_model_panel_readable(window, panel.title_label.text())

@@ -14,6 +14,7 @@ from orbitdesk.app.layouts import column
 
 SLIDER_STEPS = 1000
 SPIN_LIMIT = 1e12
+SLIDER_LEAST = 70  # pixels a slider keeps however narrow the panel (its value box is never clipped)
 
 
 def default_range(value: float) -> tuple[float, float]:
@@ -54,7 +55,7 @@ class ValueRow:
         self.slider = QSlider(Qt.Orientation.Horizontal)
         self.slider.setRange(0, SLIDER_STEPS)
         self.slider.setPageStep(SLIDER_STEPS // 20)
-        self.slider.setMinimumWidth(90)
+        self.slider.setMinimumWidth(SLIDER_LEAST)
         self.slider.setSizePolicy(QSizePolicy.Policy.Expanding, QSizePolicy.Policy.Fixed)
         self.spin = QDoubleSpinBox()
         self.spin.setRange(-SPIN_LIMIT, SPIN_LIMIT)
@@ -257,6 +258,7 @@ class ParameterPanel(QWidget):
         if system is None:
             self.scroll.setWidget(self.empty)
             self.empty.show()
+            self.setMinimumWidth(0)
             return
         body = QWidget()
         grid = QGridLayout(body)
@@ -291,6 +293,10 @@ class ParameterPanel(QWidget):
                 row_index += 1
         grid.setRowStretch(row_index, 1)
         self.scroll.setWidget(body)
+        # never narrower than a row's label, slider and whole value box: the panel (and the model dock it sits
+        # in) keeps that width when views and a walkthrough share the window, instead of clipping the boxes
+        bar = self.scroll.verticalScrollBar().sizeHint().width()
+        self.setMinimumWidth(body.minimumSizeHint().width() + bar)
 
 
 def _flow() -> str:

@@ -7,10 +7,10 @@ from html import escape
 
 import numpy as np
 from PySide6.QtCore import Qt, Signal
-from PySide6.QtWidgets import (QAbstractItemView, QFrame, QGridLayout, QHeaderView, QLabel, QLayout, QScrollArea,
-                               QSizePolicy, QSplitter, QTableWidget, QTableWidgetItem, QTextBrowser, QToolButton, QWidget)
+from PySide6.QtWidgets import (QAbstractItemView, QFrame, QGridLayout, QLabel, QLayout, QScrollArea, QSizePolicy,
+                               QSplitter, QTableWidget, QTableWidgetItem, QToolButton, QWidget)
 
-from orbitdesk.app.layouts import column
+from orbitdesk.app.layouts import FittedColumns, WholeText, column, row
 
 from orbitdesk.app.panels.readback import equation_lhs, partial_label
 from orbitdesk.app.plots.plot_style import JobStrip, NumberBox, complex_text, eigenvalues_text, hint_label, mono_font, number_text
@@ -107,8 +107,9 @@ class EquilibriaView(SessionView):
         self.table.setWordWrap(False)
         self.table.setToolTip("Equilibria found; select one to see its linearisation")
         self.table.itemSelectionChanged.connect(self._on_selection)
+        self.columns = FittedColumns(self.table)  # the words give way (elided, whole in the tip) to the numbers
 
-        self.details = QTextBrowser()
+        self.details = WholeText()  # the pane below scrolls as one: no second bar inside it
         self.details.setOpenLinks(False)
         self.details.setToolTip("Jacobian and eigenvectors of the selected equilibrium")
         self.eps = NumberBox(DEFAULT_EPS, 1e-9, 1.0, ratio=2.0)
@@ -125,16 +126,16 @@ class EquilibriaView(SessionView):
         self.starts_note = hint_label()
 
         top = control_row(self.find_button, self.auto, spacing=8, stretch=False)
-        top.addWidget(self.summary, 1)
         top.addWidget(self.strip, 1)
 
         # the table keeps room for TABLE_ROWS rows however short the dock; the linearisation and the start
-        # buttons below it scroll when the dock is short (three views sharing a column's height)
-        self.details.setMinimumHeight(3 * self.details.fontMetrics().lineSpacing())
+        # buttons below it scroll together when the dock is short (three views sharing a column's height)
+        starts_title = QLabel("Start trajectories off it along its eigenvectors")
+        starts_title.setWordWrap(True)
         lower = QWidget()
-        column(lower, (self.details, 1), control_row("Start trajectories off it, offset", self.eps,
-                                                     self.all_button, spacing=6),
-               self.starts_box, self.starts_note, spacing=4).setSizeConstraint(QLayout.SizeConstraint.SetMinimumSize)
+        column(lower, self.details, starts_title, row("offset", self.eps, self.all_button, None, spacing=6),
+               self.starts_box, self.starts_note, None, spacing=4).setSizeConstraint(
+            QLayout.SizeConstraint.SetMinimumSize)
         self.lower = QScrollArea()
         self.lower.setWidget(lower)
         self.lower.setWidgetResizable(True)
@@ -152,6 +153,7 @@ class EquilibriaView(SessionView):
 
         layout = self.main_layout()
         layout.addLayout(top)
+        layout.addWidget(self.summary)  # a line of its own: beside the buttons a narrow dock cut it ("3 equil")
         layout.addWidget(self.splitter, 1)
 
         self._timer = auto_timer(self, AUTO_DELAY_MS, self.find, self._auto_ok)
@@ -315,17 +317,15 @@ class EquilibriaView(SessionView):
                     item.setFont(mono)
                 if 0 <= c <= len(states):
                     item.setTextAlignment(right)
-                tip = f"{point_word} {r + 1}: {eq.kind}, {eq.stability}"
+                tip = f"{point_word} {r + 1}: {eq.kind}, {eq.stability}, found by {_method_text(eq.method)}"
                 if c == len(states) + 1 and text != eigenvalues_text(eq.eigenvalues):
                     tip += "\n" + eigenvalues_text(eq.eigenvalues)  # all of them
                 if eq.warnings:
                     tip += "\n" + "\n".join(eq.warnings)
                 item.setToolTip(tip)
                 self.table.setItem(r, c, item)
-        header = self.table.horizontalHeader()
-        header.setSectionResizeMode(QHeaderView.ResizeMode.ResizeToContents)
-        header.setStretchLastSection(True)
         self.table.blockSignals(False)
+        self.columns.set_elastic(range(len(states) + 1, len(heads)))
         self._fit_table_rows()
         if not items:
             self.summary.setText("; ".join(notes).capitalize() if notes else "")

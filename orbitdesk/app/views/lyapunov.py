@@ -9,8 +9,8 @@ import math
 import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import Qt, Signal
-from PySide6.QtWidgets import (QAbstractItemView, QHeaderView, QLabel, QSplitter, QTableWidget, QTableWidgetItem,
-                               QWidget)
+from PySide6.QtWidgets import (QAbstractItemView, QFrame, QHeaderView, QLabel, QScrollArea, QSplitter, QTableWidget,
+                               QTableWidgetItem, QWidget)
 
 from orbitdesk.engine.methods import METHODS
 
@@ -85,15 +85,25 @@ class LyapunovView(SessionView):
         self.plot.addItem(self.zero, ignoreBounds=True)
         self.curves: list[pg.PlotDataItem] = []
 
+        # the table, the summary and the notes scroll together (one bar) when the dock is short; the table is
+        # as tall as its rows, so it never scrolls on its own
+        self.table.setVerticalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
+        self.table.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
+        self._fit_table_height()
         left = QWidget()
         column(left, self.table, self.summary, self.notes, None)
+        self.left = QScrollArea()
+        self.left.setWidget(left)
+        self.left.setWidgetResizable(True)
+        self.left.setFrameShape(QFrame.Shape.NoFrame)
+        self.left.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
+        self.left.setMinimumWidth(180)
         self.splitter = QSplitter(Qt.Orientation.Horizontal)
-        self.splitter.addWidget(left)
+        self.splitter.addWidget(self.left)
         self.splitter.addWidget(self.plot_widget)
         self.splitter.setStretchFactor(0, 0)
         self.splitter.setStretchFactor(1, 1)
-        self.splitter.setSizes([240, 600])
-        left.setMinimumWidth(180)
+        self.splitter.setSizes([250, 600])
         self.splitter.setChildrenCollapsible(False)
 
         row = control_row(self.length_label, self.length, 4, self.transient_label, self.transient, 4, self.settle, 8,
@@ -227,6 +237,7 @@ class LyapunovView(SessionView):
     # ------------------------------------------------------------ results
     def _clear_drawing(self) -> None:
         self.table.setRowCount(0)
+        self._fit_table_height()
         self.summary.setText("")
         self.notes.setText("")
         for curve in self.curves:
@@ -265,9 +276,7 @@ class LyapunovView(SessionView):
             self.table.setItem(k, 1, value)
             self.table.setItem(k, 2, spread)
         self.table.resizeRowsToContents()
-        rows_height = sum(self.table.rowHeight(k) for k in range(values.size))
-        frame = 2 * self.table.frameWidth() + 2
-        self.table.setMaximumHeight(self.table.horizontalHeader().height() + rows_height + frame)
+        self._fit_table_height()
         lines = []
         if r.kaplan_yorke_dimension is not None and math.isfinite(r.kaplan_yorke_dimension):
             lines.append(f"Kaplan–Yorke dimension <b>{number_text(r.kaplan_yorke_dimension, 4)}</b>")
@@ -303,6 +312,13 @@ class LyapunovView(SessionView):
             self.curves.append(curve)
         self.plot.enableAutoRange()
         self.plot.autoRange(padding=0.05)
+
+    def _fit_table_height(self) -> None:
+        """The table exactly as tall as its header and rows."""
+        t = self.table
+        rows = sum(t.rowHeight(k) for k in range(t.rowCount()))
+        header = max(t.horizontalHeader().sizeHint().height(), t.horizontalHeader().height())
+        t.setFixedHeight(header + rows + 2 * t.frameWidth() + 2)
 
     def _restyle(self) -> None:
         style_plot(self.plot_widget, self)
