@@ -1,5 +1,5 @@
 """The model as LaTeX: equations as typed (x'' as \\ddot{x}, maps as x_{n+1}), parameters with their
-values and ranges, derived quantities and initial values, in an ``align*`` environment.
+values and ranges, derived quantities and initial values, in ``align*`` (the equations) and ``alignat*`` environments (the rest).
 
 Right-hand sides are re-read from the model text with the whitelisting expression parser (so derived
 names stay as typed instead of being substituted) and printed with ``sympy.latex``.
@@ -18,23 +18,45 @@ from orbitdesk.language import noise
 from orbitdesk.language.symbolic import number_from_text, to_sympy
 
 _GREEK_OR_PLAIN = re.compile(r"^[A-Za-z]+$")
+_GREEK = re.compile(r"^(alpha|beta|gamma|delta|epsilon|zeta|eta|theta|iota|kappa|lambda|mu|nu|xi|omicron|pi|rho|sigma|"
+                    r"tau|upsilon|phi|chi|psi|omega)$", re.IGNORECASE)
 _TEX_SPECIAL = {"\\": r"\textbackslash{}", "{": r"\{", "}": r"\}", "$": r"\$", "&": r"\&", "#": r"\#",
                 "%": r"\%", "_": r"\_", "^": r"\^{}", "~": r"\~{}"}
 
 
 def latex_name(name: str) -> str:
-    """A model name in LaTeX: Greek names as letters, longer names upright-italic, x' as \\dot{x}."""
+    """A model name in LaTeX: Greek names as letters, longer names upright-italic (a word after an underscore
+    too: T_amb as T with the subscript amb), x' as \\dot{x} and x_1' as \\dot{x}_{1} (the dot on the letter)."""
     base = name.rstrip("'")
     primes = len(name) - len(base)
     text = sp.latex(sp.Symbol(base))
     head, sep, tail = text.partition("_")
     if _GREEK_OR_PLAIN.match(head) and len(head) > 1:
-        text = rf"\mathit{{{head}}}" + sep + tail
+        head = rf"\mathit{{{head}}}"
+    word = re.fullmatch(r"\{([A-Za-z]{2,})\}", tail)
+    if word and not _GREEK.match(word.group(1)):
+        tail = rf"{{\mathit{{{word.group(1)}}}}}"
     if primes == 0:
-        return text
+        return head + sep + tail
     if primes <= 3:
-        return {1: r"\dot", 2: r"\ddot", 3: r"\dddot"}[primes] + "{" + text + "}"
-    return "{" + text + "}^{(" + str(primes) + ")}"
+        return {1: r"\dot", 2: r"\ddot", 3: r"\dddot"}[primes] + "{" + head + "}" + sep + tail
+    return "{" + head + sep + tail + "}^{(" + str(primes) + ")}"
+
+
+def _natural_order(expr: sp.Expr, names: dict, time) -> tuple[sp.Expr, dict]:
+    """``expr`` with symbols renamed so that sympy, which orders names as text, lists numbered ones in counting
+    order (x_2 before x_10) and the time after the other factors of a product (cos(w t), as people write it,
+    not cos(t w)); and ``names`` with the LaTeX of the renamed symbols."""
+    swap = {}
+    for sym in getattr(expr, "free_symbols", ()):
+        if sym == time:
+            swap[sym] = sp.Symbol("~" + sym.name + "\u2063", **sym.assumptions0)
+        elif isinstance(sym, sp.Symbol) and sym in names and re.search(r"\d", sym.name):
+            padded = re.sub(r"\d+", lambda m: m.group().zfill(9), sym.name)
+            swap[sym] = sp.Symbol(padded + "\u2063", **sym.assumptions0)  # (an invisible mark: no model name)
+    if not swap:
+        return expr, names
+    return expr.xreplace(swap), {**names, **{new: names.get(old, sp.latex(old)) for old, new in swap.items()}}
 
 
 def tex_escape(text: str) -> str:
@@ -139,6 +161,18 @@ def _number(value: float) -> str:
     return text
 
 
+def _rows_text(rows: list[str]) -> str:
+    """Rows of the alignment, a little more room under a row with a fraction or cases (the next row's
+    fraction bar otherwise touches it)."""
+    out = []
+    for k, row in enumerate(rows):
+        out.append(row)
+        if k < len(rows) - 1:
+            tall = r"\frac" in row or r"\begin{cases}" in row or r"\frac" in rows[k + 1]
+            out.append(" \\\\[0.6ex]\n" if tall else " \\\\\n")
+    return "".join(out)
+
+
 def model_latex(model, parameters: dict | None = None, initial: dict | None = None, *,
                 standalone: bool = False, title: str | None = None) -> str:
     """LaTeX for a model (text, ParsedModel or CompiledSystem) with optional parameter/initial overrides."""
@@ -160,7 +194,8 @@ def model_latex(model, parameters: dict | None = None, initial: dict | None = No
             names[parsed.symbols[state]] = ("{" + text + "}" if "_" in text else text) + "_{n}"
 
     def tex(expr):
-        return sp.latex(expr, symbol_names=names)
+        ordered, symbol_names = _natural_order(expr, names, parsed.time_symbol)
+        return sp.latex(ordered, symbol_names=symbol_names)
 
     noise_rows = _noise_names(parsed, names)
     for d in parsed.delays:  # x(t - tau), the delay as the model writes it (Greek names as letters)
@@ -193,7 +228,7 @@ def model_latex(model, parameters: dict | None = None, initial: dict | None = No
                 shown = f"{tex(typed)} \\approx {shown}"  # typed as 8/3 or 2*pi: show both
             row = f"{latex_name(name)} &= {shown}"
             if info.lo is not None and info.hi is not None:
-                row += rf" && \text{{in }} [{_number(info.lo)}, {_number(info.hi)}]"
+                row += rf" &&\qquad \text{{in }} [{_number(info.lo)}, {_number(info.hi)}]"
             rows.append(row)
         sections.append(("with the parameters", rows))
     if parsed.derived:
@@ -202,9 +237,9 @@ def model_latex(model, parameters: dict | None = None, initial: dict | None = No
             line = lhs_lines.get(name)
             expr = _typed(parsed, _rhs_text(parsed, line), resolved) if line else resolved
             rows.append(f"{latex_name(name)} &= {tex(expr)}")
-        sections.append(("derived quantities", rows))
+        sections.append(("with the derived quantities", rows))
     if parsed.history_lines:
-        rows = [rf"{latex_name(name)}(t) &= {tex(parsed.history[name])} && \text{{for }} t \le 0"
+        rows = [rf"{latex_name(name)}(t) &= {tex(parsed.history[name])} &&\qquad \text{{for }} t \le 0"
                 for name in parsed.history_lines]
         sections.append(("with the history", rows))
     if parsed.events:
@@ -232,12 +267,13 @@ def model_latex(model, parameters: dict | None = None, initial: dict | None = No
         rows.append(f"{lhs} &= {_number(initial.get(state, 0.0))}")
     sections.append(("and the initial values", rows))
 
-    body = [r"\begin{align*}", " \\\\\n".join(lines)]
+    # the equations in one alignment, each part after them in its own (a sentence, then its rows): one
+    # alignment for all would set the ranges (and a history's "for t <= 0") beyond the widest equation, at
+    # the far side of the page; alignat keeps that column a \\qquad after the values
+    body = [r"\begin{align*}", _rows_text(lines), r"\end{align*}"]
     for heading, rows in sections:
-        body[-1] += " \\\\"
-        body.append(rf"\intertext{{{heading}}}")
-        body.append(" \\\\\n".join(rows))
-    body.append(r"\end{align*}")
+        body += [rf"\noindent {heading[:1].upper()}{heading[1:]}:", r"\begin{alignat*}{2}", _rows_text(rows),
+                 r"\end{alignat*}"]
     where = (f"% OrbitDesk model: a {'map in the step n' if is_map else 'flow in time t'}, "
              f"states {', '.join(parsed.states)}")
     snippet = where + "\n" + "\n".join(body) + "\n"

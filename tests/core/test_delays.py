@@ -301,7 +301,7 @@ def test_latex_writes_the_delay_and_the_history(tmp_path):
 
     text = model_latex(MACKEY_GLASS.format(tau=17).replace("x(t) = 0.5", "x(t) = 0.5 + t/100"), standalone=True)
     assert r"\frac{\beta x(t - \tau)}{x(t - \tau)^{10} + 1} - \gamma x" in text
-    assert r"x(t) &= \frac{t}{100} + \frac{1}{2} && \text{for } t \le 0" in text
+    assert r"x(t) &= \frac{t}{100} + \frac{1}{2} &&\qquad \text{for } t \le 0" in text
     if shutil.which("pdflatex") is None:
         pytest.skip("pdflatex is not installed; the document was checked for its parts only")
     (tmp_path / "m.tex").write_text(text)

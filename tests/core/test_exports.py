@@ -35,7 +35,7 @@ def test_latex_fragments_of_a_flow():
     assert r"\begin{align*}" in text and r"\end{align*}" in text
     assert r"\dot{x} &= \sigma" in text
     assert r"\beta &= \frac{8}{3} \approx 2.666666667" in text
-    assert r"\sigma &= 10 && \text{in } [0, 20]" in text
+    assert r"\sigma &= 10 &&\qquad \text{in } [0, 20]" in text
     assert "x(0) &= 1" in text and "z(0) &= 0" in text
 
 
@@ -63,7 +63,7 @@ def test_latex_map_uses_subscripts():
 def test_latex_declares_the_angles():
     # the language reference: `angle theta` makes theta an angle, read modulo 2 pi and shown in (-pi, pi]
     text = model_latex("g = 9.81\ntheta'' = -g*sin(theta)\nphi_1' = 1\nangle theta, phi_1\ntheta'(0) = 6.5\n")
-    assert r"\intertext{where the angles are read modulo $2\pi$ (and shown wrapped to $(-\pi, \pi]$)}" in text
+    assert r"\noindent Where the angles are read modulo $2\pi$ (and shown wrapped to $(-\pi, \pi]$):" in text
     assert r"\theta &\equiv \theta + 2\pi" in text and r"\phi_{1} &\equiv \phi_{1} + 2\pi" in text
     assert r"\dot{\theta} &\equiv" not in text  # the angle's rate is no angle
     assert "modulo" not in model_latex(BEAM)
