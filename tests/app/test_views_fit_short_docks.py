@@ -8,6 +8,7 @@ the summary and the notes beside the plot scroll together with one bar, none of 
 import json
 
 import numpy as np
+from PySide6.QtGui import QTextCursor
 from PySide6.QtWidgets import QAbstractScrollArea
 
 from orbitdesk.app import help as help_ui
@@ -51,9 +52,18 @@ def test_a_narrow_dock_keeps_every_column_and_one_scroll_bar(qtbot, session, art
     # the linearisation and the start buttons below the table: one vertical bar for the pane
     bars = visible_bars(view.lower, "verticalScrollBar")
     assert bars == [view.lower], [type(b).__name__ for b in bars]
-    # the characteristic roots table is wider than the pane: it scrolls sideways inside, the text is whole
+    # the characteristic roots table is wider than the pane: it scrolls sideways inside, every number whole on
+    # its line (a cell wrapped after "λ1 =" and after "0.")
     details = view.details
     assert details.height() >= details.document().size().height()
+    assert details.document().idealWidth() > details.viewport().width() and details.horizontalScrollBar().isVisible()
+    block, cells = details.document().begin(), 0
+    while block.isValid():
+        if QTextCursor(block).currentTable() is not None and block.text():
+            cells += 1
+            assert block.layout().lineCount() == 1 + block.text().count("\u2028"), block.text()  # (<br>: a line)
+        block = block.next()
+    assert cells >= 8 * 2  # the roots' heads and their vectors' entries
 
 
 def test_a_short_lyapunov_dock_scrolls_its_numbers_and_notes_as_one(qtbot, session, artifacts):

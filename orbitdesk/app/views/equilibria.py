@@ -58,11 +58,14 @@ def eigen_starts(eq, eps: float) -> list[dict]:
 def _matrix_html(rows, col_heads=None, row_heads=None) -> str:
     cells = []
     if col_heads:
-        head = "".join(f"<th align='right' style='padding:1px 10px'>{h}</th>" for h in col_heads)
+        head = "".join(f"<th align='right' nowrap style='padding:1px 10px; white-space:nowrap'>{h}</th>"
+                       for h in col_heads)
         cells.append(f"<tr>{'<th></th>' if row_heads else ''}{head}</tr>")
     for i, row in enumerate(rows):
-        lead = f"<th align='right' style='padding:1px 8px'>{row_heads[i]}</th>" if row_heads else ""
-        body = "".join(f"<td align='right' style='padding:1px 10px'>{c}</td>" for c in row)
+        lead = (f"<th align='right' nowrap style='padding:1px 8px; white-space:nowrap'>{row_heads[i]}</th>"
+                if row_heads else "")
+        # cells never wrap (a number broken after its sign): a matrix wider than the pane scrolls sideways
+        body = "".join(f"<td align='right' nowrap style='padding:1px 10px; white-space:nowrap'>{c}</td>" for c in row)
         cells.append(f"<tr>{lead}{body}</tr>")
     return f"<table cellspacing='0'>{''.join(cells)}</table>"
 
@@ -369,7 +372,7 @@ class EquilibriaView(SessionView):
         family = mono_font().family()
         where = ", ".join(f"{n} = {number_text(eq.state[n], 8)}" for n in states)
         J = [[number_text(v, 5) for v in row] for row in np.asarray(eq.jacobian)]
-        lam_heads = [f"λ{k + 1} = {complex_text(v, 5)}" for k, v in enumerate(eq.eigenvalues)]
+        lam_heads = [f"λ{k + 1} =<br>{complex_text(v, 5)}" for k, v in enumerate(eq.eigenvalues)]
         vecs = [[complex_text(eq.eigenvectors[r, c], 4) for c in range(len(eq.eigenvalues))]
                 for r in range(len(states))]
         multipliers = eq.is_map
