@@ -201,9 +201,19 @@ def _checked_constant(expr: sp.Expr, node, what: str = "this constant") -> sp.Ex
     if abs(value.imag) > 1e-12 * max(1.0, abs(value.real)):
         raise ParseError(f"{what} is not a real number", node.column, node.end)
     if (floats_only or abs(value) < MIN_MAGNITUDE and expr != 0
-            or expr.is_Rational and max(abs(expr.p), expr.q) > MAX_EXACT):
-        return sp.Float(value.real)  # the double: exact forms of 3^(-10^10) make sympy's mod, floor, ... hang
+            or expr.is_Rational and max(abs(expr.p), expr.q) > MAX_EXACT or _holds_huge_number(expr)):
+        # the double: exact forms of 3^(-10^10) make sympy's mod, floor, ... hang, and a part beyond the
+        # double range (sin(atan(1e300)) = 10^300/sqrt(10^600 + 1)) overflows in the generated code
+        return sp.Float(value.real)
     return expr
+
+
+def _holds_huge_number(expr: sp.Expr) -> bool:
+    """A number beyond MAX_MAGNITUDE (or an exact rational beyond MAX_EXACT) inside a constant expression."""
+    if expr.is_Number:
+        return False  # a number alone was sized by its caller
+    return any(abs(n) > MAX_MAGNITUDE or n.is_Rational and max(abs(n.p), n.q) > MAX_EXACT
+               for n in expr.atoms(sp.Number))
 
 
 def _check_exponent(exponent: sp.Expr, node) -> None:
