@@ -11,7 +11,8 @@ when some alternative accepts it:
 - a finite value: within 1e-6 (relative) of the exact or the doubles value, or the two disagree (an
   ill-conditioned expression, where this reference cannot judge);
 - inf: the exact value is beyond the double range or undefined, or the doubles overflow too;
-- nan (an undefined value): undefined exactly or in doubles.
+- nan (an undefined value): undefined exactly or in doubles, or a comparison of if() has an undefined side
+  (compiled code may call the whole right side undefined there).
 
 So a wrong branch, a wrong function or a wrong sign from the printer fails unless it happens to agree
 with arithmetic. ``judge(system, t, u)`` returns, per right side, the list of alternatives.
@@ -54,6 +55,8 @@ def doubles(expr, values: dict, decided: dict):
     _UNKNOWN where it meets a node it does not know."""
     if expr in decided:
         return decided[expr]
+    if _undefined_condition(expr, decided):
+        return np.float64(np.nan)
     if expr is sp.true or expr is sp.false:
         return bool(expr)
     if expr in values:
@@ -61,8 +64,6 @@ def doubles(expr, values: dict, decided: dict):
     if expr.is_Number or expr in (sp.pi, sp.E):
         if expr in (sp.nan, sp.zoo):
             return np.float64(np.nan)
-        if expr in (sp.oo, -sp.oo):
-            return np.float64(float(expr))
         return np.float64(float(expr))
     if isinstance(expr, sp.Piecewise):  # the first branch whose condition holds; nan past the last
         for pair in expr.args:
@@ -101,6 +102,8 @@ def exact(expr, values: dict, decided: dict):
     """``expr`` at 30 digits with the comparisons in ``decided`` replaced by their truth: a float (inf
     beyond the double range), None where it is undefined (nan, complex, division by zero), _UNKNOWN where
     sympy leaves it unevaluated."""
+    if _undefined_condition(expr, decided):
+        return None
     replaced = expr.xreplace({r: sp.true if v else sp.false for r, v in decided.items()})
     try:
         value = replaced.xreplace({k: sp.Float(float(v), 30) for k, v in values.items()}).evalf(30)
@@ -108,12 +111,15 @@ def exact(expr, values: dict, decided: dict):
         return None
     if value in (sp.nan, sp.zoo) or value.has(sp.nan, sp.zoo, sp.I):
         return None
-    if value in (sp.oo, -sp.oo):
-        return float(value)
-    if not value.is_Number:
-        return None if value.is_real is False else _UNKNOWN
+    if not value.is_Number or value in (sp.oo, -sp.oo):  # oo: log(0), a pole, never merely beyond the range
+        return None if value.is_real is False or value in (sp.oo, -sp.oo) else _UNKNOWN
     number = float(value)
     return number if math.isfinite(number) else None
+
+
+def _undefined_condition(expr, decided: dict) -> bool:
+    """A comparison inside ``expr`` is taken as undefined (None: one of its sides is)."""
+    return None in decided.values() and any(decided.get(r, False) is None for r in expr.atoms(sp.Rel))
 
 
 def _tie(a, b) -> bool:
@@ -129,8 +135,10 @@ def _well(e, d) -> bool:
 def _possible(rel, values: dict, decided: dict) -> list[bool]:
     """The truth values a comparison may have in doubles, given the comparisons inside it."""
     sides = [(exact(side, values, decided), doubles(side, values, decided)) for side in rel.args]
+    if any(e is None or d is not _UNKNOWN and math.isnan(d) for e, d in sides):
+        return [True, False, None]  # an undefined side: compiled code may call the whole undefined or go on
     if not all(_well(e, d) for e, d in sides):
-        return [True, False]  # undefined, beyond the range or ill-conditioned: either branch
+        return [True, False]  # beyond the range or ill-conditioned: either branch
     (ea, da), (eb, db) = sides
     truth = bool(_COMPARE[rel.rel_op](ea, eb))
     if _tie(ea, eb) or _tie(float(da), float(db)) or truth != bool(_COMPARE[rel.rel_op](da, db)):
