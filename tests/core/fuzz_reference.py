@@ -31,6 +31,7 @@ CLOSE = 1e-6  # the model's value against a reference value
 WELL = 1e-9  # the exact and the doubles value agree this well: the expression is well-conditioned
 MAX_ALTERNATIVES = 256  # beyond this many ties (never seen) the point is not judged
 BIG = 1.7976931348623157e308
+HUGE = 1e300  # a part beyond this: exact arithmetic is not tried (it could need endless digits)
 
 _UNKNOWN = object()  # a node the doubles evaluator does not know: no opinion
 
@@ -50,9 +51,17 @@ _COMPARE = {"<": np.less, "<=": np.less_equal, ">": np.greater, ">=": np.greater
             "!=": np.not_equal}
 
 
-def doubles(expr, values: dict, decided: dict):
+def doubles(expr, values: dict, decided: dict, track: dict | None = None):
     """``expr`` evaluated node by node in float64 with the comparisons in ``decided`` taken as given;
-    _UNKNOWN where it meets a node it does not know."""
+    _UNKNOWN where it meets a node it does not know. ``track["huge"]`` is set when a part is beyond
+    HUGE or infinite (sinh(sinh(x)) at x = 1e299: its exact value has more digits than memory holds)."""
+    value = _doubles(expr, values, decided, track)
+    if track is not None and value is not _UNKNOWN and not isinstance(value, bool) and not abs(value) <= HUGE:
+        track["huge"] = track.get("huge", False) or not np.isnan(value)
+    return value
+
+
+def _doubles(expr, values: dict, decided: dict, track):
     if expr in decided:
         return decided[expr]
     if _undefined_condition(expr, decided):
@@ -67,13 +76,13 @@ def doubles(expr, values: dict, decided: dict):
         return np.float64(float(expr))
     if isinstance(expr, sp.Piecewise):  # the first branch whose condition holds; nan past the last
         for pair in expr.args:
-            cond = doubles(pair.cond, values, decided)
+            cond = doubles(pair.cond, values, decided, track)
             if cond is _UNKNOWN:
                 return _UNKNOWN
             if cond:
-                return doubles(pair.expr, values, decided)
+                return doubles(pair.expr, values, decided, track)
         return np.float64(np.nan)
-    args = [doubles(a, values, decided) for a in expr.args]
+    args = [doubles(a, values, decided, track) for a in expr.args]
     if any(a is _UNKNOWN for a in args):
         return _UNKNOWN
     if isinstance(expr, sp.Rel):
@@ -104,11 +113,17 @@ def exact(expr, values: dict, decided: dict):
     sympy leaves it unevaluated."""
     if _undefined_condition(expr, decided):
         return None
+    track = {}
+    doubles(expr, values, decided, track)
+    if track.get("huge"):
+        return _UNKNOWN  # sin(sinh(1e299)) exactly needs some 1e299 digits; doubles judge alone
     replaced = expr.xreplace({r: sp.true if v else sp.false for r, v in decided.items()})
     try:
         value = replaced.xreplace({k: sp.Float(float(v), 30) for k, v in values.items()}).evalf(30)
     except (TypeError, ValueError, ZeroDivisionError):  # e.g. an undecided comparison with an undefined value
         return None
+    except (OverflowError, RecursionError, MemoryError):
+        return _UNKNOWN
     if value in (sp.nan, sp.zoo) or value.has(sp.nan, sp.zoo, sp.I):
         return None
     if not value.is_Number or value in (sp.oo, -sp.oo):  # oo: log(0), a pole, never merely beyond the range
@@ -135,8 +150,10 @@ def _well(e, d) -> bool:
 def _possible(rel, values: dict, decided: dict) -> list[bool]:
     """The truth values a comparison may have in doubles, given the comparisons inside it."""
     sides = [(exact(side, values, decided), doubles(side, values, decided)) for side in rel.args]
-    if any(e is None or d is not _UNKNOWN and math.isnan(d) for e, d in sides):
-        return [True, False, None]  # an undefined side: compiled code may call the whole undefined or go on
+    if any(e is None or d is not _UNKNOWN and not math.isfinite(d) for e, d in sides):
+        # an undefined side (or an infinite one: log(0) or an overflow): compiled code may call the whole
+        # right side undefined or go on
+        return [True, False, None]
     if not all(_well(e, d) for e, d in sides):
         return [True, False]  # beyond the range or ill-conditioned: either branch
     (ea, da), (eb, db) = sides
