@@ -276,6 +276,28 @@ def _root(fn, ta, tb):
     return brentq(fn, ta, tb, xtol=1e-14)
 
 
+def _read_inside(sample_t, events, direction):
+    """For the stiff stepper (``reads``): whether a step's interior is read, i.e. it holds a sample time or
+    a crossing of an event's function (a sign change of g, or of its rate: g turns inside), as found below."""
+    keys = None if sample_t is None else np.asarray(sample_t, dtype=float) * direction  # increasing
+    if (keys is None or keys.size <= 2) and not events:
+        return False  # samples at the run's two ends only: they are step ends
+
+    def reads(t_old, y_old, t_new, y_new) -> bool:
+        if keys is not None and np.searchsorted(keys, t_new * direction, side="left") > \
+                np.searchsorted(keys, t_old * direction, side="right"):
+            return True
+        for ev in events:
+            ga, gb = ev.g(t_old, y_old), ev.g(t_new, y_new)
+            if ga * gb < 0 or (gb == 0 and ga != 0):
+                return True
+            if ev.rate is not None and ev.rate(t_old, y_old) * ev.rate(t_new, y_new) < 0:
+                return True
+        return False
+
+    return reads
+
+
 def _integrate(system, settings, u0, p, events, report) -> Trajectory:
     t0, t1 = float(settings.t_start), float(settings.t_end)
     if not t1 != t0 or not (math.isfinite(t0) and math.isfinite(t1)):
@@ -292,7 +314,7 @@ def _integrate(system, settings, u0, p, events, report) -> Trajectory:
         if settings.method_info.stiff:  # every step's interpolant held to the tolerance (stiff.py)
             fun, jac = stiff.model_functions(system, p)
             solver = StiffStepper(settings.method_info.scipy_name, fun, jac, t0, u0, t1, settings.rtol, settings.atol,
-                                  settings.max_step, check=settings.samples > 2 or bool(events))  # else step ends only
+                                  settings.max_step, reads=_read_inside(sample_t, events, direction))
         else:  # the compiled loop one step at a time
             per_time = 4 / settings.dt if settings.method == "rk4" else 1200
             engine = compiled.engine_for_work(system, abs(t1 - t0) * per_time * max(1.0, n / 3))

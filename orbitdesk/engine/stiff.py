@@ -7,9 +7,13 @@ crossings read off it can be wrong by the size of the signal. ``StiffStepper`` t
 step's interpolant where samples and crossings are read: at interior points it measures the defect
 r = p'(t) - f(t, p(t)) and turns it into an error estimate e = (I/h - J)^{-1} r (the integrated
 defect for slow components, -J^{-1} r for fast ones, where a stiff component's error is its defect
-over its rate). A step whose estimate exceeds the tolerance (rtol |y| + atol) is redone from its
-start with the step bounded by a quarter of its length; the bound is doubled after every RELAX
-steps that pass, so a run leaves a stretch that needed short steps.
+over its rate). The check is made only on the steps whose interior is read (``reads``: a step that holds
+a sample time or a sign change of a plane's function): such a step whose estimate exceeds the tolerance
+(rtol |y| + atol) is covered again from its start by shorter steps (a copy of the solver bounded by a
+quarter of the step and ending at the step's end; those of its steps that are read are checked the same
+way). The run then goes on from the accepted long step with the step size the method's own error control
+chose after it: the shortening serves the read step only, so a relaxation oscillator's jump through a
+plane costs a few dozen extra steps, not a run of short ones.
 """
 
 from __future__ import annotations
@@ -18,64 +22,71 @@ import numpy as np
 
 CHECK_AT = (0.1, 0.4, 0.85)  # where inside each step the interpolant is checked (fractions of the step;
 #                              near the largest gaps of Radau IIA's cubic through 0, 0.155, 0.645, 1)
-SHRINK = 4.0  # a failing step is redone with the step bounded by its length / SHRINK
-RELAX = 10  # after this many steps in a row that pass, the bound doubles
+SHRINK = 10.0  # a failing step is covered again by steps of at most its length / 2 to its length / SHRINK
+ORDER = 4  # the interpolant's error inside a step goes like h^ORDER (Radau IIA's cubic: stage order 3)
 
 
 class StiffStepper:
     """One scipy stiff solver (``scipy_name``), stepped like an ``OdeSolver`` (``step``, ``t``, ``y``,
-    ``t_old``, ``status``, ``dense_output``), whose accepted steps all pass the interpolant check."""
+    ``t_old``, ``status``, ``dense_output``), whose accepted steps that are read all pass the interpolant
+    check. ``reads``: True (every step's interior is read), False (none: step ends only) or a function
+    (t_old, y_old, t_new, y_new) -> bool saying whether samples or crossings are read inside that step."""
 
     def __init__(self, scipy_name: str, fun, jac, t0: float, y0, t_bound: float, rtol: float, atol: float,
-                 max_step: float | None = None, check: bool = True):
+                 max_step: float | None = None, reads=True):
         import scipy.integrate  # imported by the stiff path only (a cold start of the others skips it)
 
-        self._cls = getattr(scipy.integrate, scipy_name)
-        self._fun, self._jac, self._t_bound = fun, jac, float(t_bound)
+        self._fun, self._jac = fun, jac
         self.rtol, self.atol = float(rtol), float(atol)
-        self.max_step = self._user_max = np.inf if not max_step else float(max_step)
-        self._passed = 0
-        self.check = check  # False: nothing is read between step ends (no samples, no crossings)
-        self.redone = 0  # steps redone shorter because their interpolant missed the tolerance
+        self._reads = reads
+        self.redone = 0  # steps covered again by shorter ones because their interpolant missed the tolerance
         self.t, self.y, self.t_old = float(t0), np.asarray(y0, dtype=float).copy(), None
-        self._start(self.t, self.y)
+        solver = getattr(scipy.integrate, scipy_name)(fun, self.t, self.y, float(t_bound), rtol=self.rtol,
+                                                      atol=self.atol, jac=jac,
+                                                      max_step=np.inf if not max_step else float(max_step))
+        self._stack = [solver]  # the run's solver, then the copies covering a failed step again (innermost last)
+        self._last = solver  # the solver whose last step was handed out (its dense output)
+        self.status = solver.status
 
-    def _start(self, t, y):
-        self._solver = self._cls(self._fun, t, y, self._t_bound, rtol=self.rtol, atol=self.atol, jac=self._jac,
-                                 max_step=self.max_step)
-        self.status = self._solver.status
+    def _read(self, t_old, y_old, t_new, y_new) -> bool:
+        if callable(self._reads):
+            return bool(self._reads(t_old, y_old, t_new, y_new))
+        return bool(self._reads)
 
     def step(self):
         while True:
-            t_old, y_old = self.t, self.y
-            before = _snapshot(self._solver)
-            message = self._solver.step()
-            self.status = self._solver.status
-            if self.status == "failed":
+            solver = self._stack[-1]
+            t_old, y_old = solver.t, solver.y.copy()
+            before = _snapshot(solver) if self._reads is not False else None
+            message = solver.step()
+            if solver.status == "failed":
+                self.status = "failed"
                 return message
-            h = self._solver.t - t_old
-            if not self.check or self._interpolant_fits(t_old, y_old, h):
+            h = solver.t - t_old
+            if before is None or not self._read(t_old, y_old, solver.t, solver.y):
                 break
-            self.redone += 1
-            self._passed = 0
-            self.max_step = abs(h) / SHRINK
-            self._solver = before  # back to the step's start; the solver shortens its step to the bound
-            self._solver.max_step = self.max_step
-        self.t_old, self.t, self.y = t_old, self._solver.t, self._solver.y.copy()
-        self._passed += 1
-        if self._passed >= RELAX and self.max_step < self._user_max:
-            self.max_step = self._solver.max_step = min(2 * self.max_step, self._user_max)
-            self._passed = 0
+            miss = self._interpolant_miss(solver, t_old, y_old, h)
+            if miss <= 1.0:
+                break
+            self.redone += 1  # covered again from its start; the accepted long step goes on after it
+            before.t_bound = solver.t
+            before.max_step = min(before.max_step, abs(h) * _shortening(miss))
+            self._stack.append(before)
+        self.t_old, self.t, self.y, self._last = t_old, solver.t, solver.y.copy(), solver
+        while len(self._stack) > 1 and self._stack[-1].status == "finished":
+            self._stack.pop()  # its span is covered: the solver under it has its step's end there
+        self.status = "running" if len(self._stack) > 1 else self._stack[0].status
         return message
 
     def dense_output(self):
-        return self._solver.dense_output()
+        return self._last.dense_output()
 
-    def _interpolant_fits(self, t_old, y_old, h) -> bool:
+    def _interpolant_miss(self, solver, t_old, y_old, h) -> float:
+        """The interpolant's largest estimated error over the tolerance at the CHECK_AT points (0: unchecked)."""
         if abs(h) <= 1e-9 * max(1.0, abs(t_old)):
-            return True  # shorter steps than this cannot be checked above round-off
-        sol = self._solver.dense_output()
-        y_new = self._solver.y
+            return 0.0  # shorter steps than this cannot be checked above round-off
+        sol = solver.dense_output()
+        y_new = solver.y
         size = np.maximum(np.abs(y_old), np.abs(y_new))
         # the slope is a central difference on the polynomial: below ~1e-11 |y| its round-off shows
         scale = np.maximum(self.atol + self.rtol * size, 1e-11 * size)
@@ -90,12 +101,16 @@ class StiffStepper:
                 defects[:, k] = slope - np.asarray(self._fun(tq, sol(tq)), dtype=float)
             errors = _solve_shifted(jac, h, defects)
         except (np.linalg.LinAlgError, ArithmeticError, RuntimeError):  # RuntimeError: SuperLU's singular factor
-            return True  # (I/h - J) singular: no estimate; the step's own error control stands
-        for k in range(len(CHECK_AT)):
-            error = errors[:, k]
-            if not np.all(np.isfinite(error)) or np.sqrt(np.mean((error / scale) ** 2)) > 1.0:
-                return False
-        return True
+            return 0.0  # (I/h - J) singular: no estimate; the step's own error control stands
+        if not np.all(np.isfinite(errors)):
+            return np.inf
+        return float(np.max(np.sqrt(np.mean((errors / scale[:, None]) ** 2, axis=0))))
+
+
+def _shortening(miss: float) -> float:
+    """The bound on the steps that cover a step again, as a fraction of its length, from how far its
+    interpolant missed: the interpolant's error inside a step shrinks like h^ORDER."""
+    return min(1.0 / 2, max(1.0 / SHRINK, 0.8 * miss ** (-1.0 / ORDER)))
 
 
 def _solve_shifted(jac, h, rhs):
@@ -122,10 +137,16 @@ def solve_at(scipy_name: str, fun, jac, t0: float, y0, t1: float, rtol: float, a
     """The solution at the times ``grid`` (increasing towards t1, the last may be t1) by a checked
     stiff stepper; (values (len(y0), len(grid)), steps, None) or (values so far, steps, the failure)."""
     grid = np.asarray(grid, dtype=float)
-    inside = bool(np.any((grid - t1) * (1.0 if t1 >= t0 else -1.0) < 0))  # read off an interpolant
-    stepper = StiffStepper(scipy_name, fun, jac, t0, y0, t1, rtol, atol, max_step, check=inside)
-    out, k, steps = [], 0, 0
     direction = 1.0 if t1 >= t0 else -1.0
+    keys = grid * direction  # increasing
+
+    def reads(t_old, y_old, t_new, y_new):  # a grid time inside the step: read off its interpolant
+        return np.searchsorted(keys, t_new * direction, side="left") > \
+            np.searchsorted(keys, t_old * direction, side="right")
+
+    inside = bool(np.any((grid - t1) * direction < 0))
+    stepper = StiffStepper(scipy_name, fun, jac, t0, y0, t1, rtol, atol, max_step, reads=reads if inside else False)
+    out, k, steps = [], 0, 0
     while stepper.status == "running" and k < grid.size:
         message = stepper.step()
         steps += 1
