@@ -2,6 +2,7 @@
 
 import sys
 
+from orbitdesk.analyses.error_digits import value_with_error
 from orbitdesk.analyses.lyapunov import (CONVERGE_ATOL, CONVERGE_RTOL, FLOW_CAP, MAP_CAP,
                                          largest_lyapunov_two_trajectory, lyapunov_spectrum)
 from orbitdesk.engine.methods import METHODS, NAMES
@@ -84,10 +85,12 @@ def run(args) -> int:
                     "tolerance": None if result.tolerance is None else
                     {"rtol": result.tolerance[0], "atol": result.tolerance[1]}})
     else:
-        print("exponents: " + ", ".join(f"{v:.6g}" for v in result.exponents))
+        errors = result.uncertainty if result.uncertainty is not None else [None] * len(result.exponents)
+        shown = [value_with_error(v, e) for v, e in zip(result.exponents, errors)]  # the digits the error supports
+        print("exponents: " + ", ".join(f"{pair[0]} ± {pair[1]}" if pair else f"{v:.6g}"
+                                        for v, pair in zip(result.exponents, shown)))
         if result.uncertainty is not None:
-            print("uncertainty (standard error of " + f"{result.blocks} block averages): "
-                  + ", ".join(f"±{v:.2g}" for v in result.uncertainty))
+            print(f"± the standard error of {result.blocks} block averages (full digits: --json)")
         if result.converged is not None:
             rtol, atol = result.tolerance
             print(f"settled to {rtol:g} x |exponent| + {atol:g}" if result.converged

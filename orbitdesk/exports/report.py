@@ -11,6 +11,7 @@ import numpy as np
 
 import sympy as sp
 
+from orbitdesk.analyses.error_digits import value_with_error
 from orbitdesk.engine.settings import SCHEMES
 from orbitdesk.language import noise
 from orbitdesk.language.model import MAP
@@ -80,7 +81,11 @@ def _num(value, digits: int = 6) -> str:
         return "\u2014"
     if v == 0:
         return "0"
-    text = f"{v:.{digits}g}"
+    return _typeset(f"{v:.{digits}g}")
+
+
+def _typeset(text: str) -> str:
+    """A number written by Python (``2.5e-08``) for reading: 2.5 × 10⁻⁸ and a true minus sign."""
     if "e" in text:
         mantissa, exponent = text.split("e")
         power = "10" + str(int(exponent)).translate(_SUPERSCRIPT)
@@ -167,7 +172,12 @@ def _step_summary(snapshot: dict, params: dict, initial: dict) -> str:
 def _lyapunov_rows(r, time_name: str) -> list[list[str]]:
     per = "per step" if r.kind == MAP else f"per unit {time_name}"
     values = [float(v) for v in r.exponents]
-    rows = [[f"\u03bb{k + 1}", _num(v, 5), per] for k, v in enumerate(values)]
+    errors = list(r.uncertainty) if r.uncertainty is not None else [None] * len(values)
+    rows = []
+    for k, (v, error) in enumerate(zip(values, errors)):
+        shown = value_with_error(v, error)  # the digits the standard error supports
+        rows.append([f"\u03bb{k + 1}", f"{_typeset(shown[0])} \u00b1 {_typeset(shown[1])}" if shown else _num(v, 5),
+                     per + (f" (\u00b1 standard error of {r.blocks} block averages)" if shown else "")])
     if len(values) > 1 and all(math.isfinite(v) for v in values):
         rows.append(["sum", _num(sum(values), 5), per])
     if r.kaplan_yorke_dimension is not None and math.isfinite(r.kaplan_yorke_dimension):

@@ -42,7 +42,14 @@ def test_lorenz_spectrum(qtbot, session, artifacts):
     assert lam[0] == pytest.approx(0.906, abs=0.1)
     assert result.kaplan_yorke_dimension == pytest.approx(2.06, abs=0.02)
     assert view.table.rowCount() == 3
-    assert float(view.table.item(0, 1).text()) == pytest.approx(lam[0], rel=1e-4)
+    for k in range(3):  # each value to the decimal place of its standard error's second significant digit
+        value, error = view.table.item(k, 1).text().replace("−", "-"), view.table.item(k, 2).text()
+        assert error.startswith("± ") and "×" not in value + error
+        decimals = len(error.split(".")[1]) if "." in error else 0
+        assert (len(value.split(".")[1]) if "." in value else 0) == decimals
+        assert len(error.lstrip("± 0.").replace(".", "")) == 2  # two significant digits
+        assert abs(float(value) - lam[k]) <= 0.5 * 10.0 ** -decimals + 1e-12
+        assert float(error[2:]) == pytest.approx(result.uncertainty[k], abs=0.5 * 10.0 ** -decimals + 1e-12)
     assert "Kaplan–Yorke dimension" in view.summary.text()
     assert len(view.curves) == 3
     header, rows = view.export_data()

@@ -121,6 +121,26 @@ def test_lyapunov_flow_json_contract(capsys, model):
     assert all("still wander" in w for w in data["warnings"])
 
 
+def test_lyapunov_text_shows_the_digits_the_error_supports(capsys, model):
+    # the text rounds each exponent to its standard error (2 significant digits, the value to the same decimal
+    # place: the rule worked by hand in tests/core/test_error_digits.py); JSON keeps every digit and the error
+    args = ("lyapunov", model(LORENZ), "--t-end", "320", "--transient", "20")
+    code, out, _ = run_cli(capsys, *args)
+    assert code == 0
+    code, data, _ = run_cli(capsys, *args, "--json")
+    data = json.loads(data)
+    line = out.splitlines()[0]
+    assert line.startswith("exponents: ")
+    shown = [item.split(" ± ") for item in line[len("exponents: "):].split(", ")]
+    for (value, error), exact, spread in zip(shown, data["exponents"], data["uncertainty"]):
+        decimals = len(error.split(".")[1]) if "." in error else 0
+        assert len(value.split(".")[1] if "." in value else "") == decimals
+        assert abs(float(value) - exact) <= 0.5 * 10.0 ** -decimals + 1e-12
+        assert abs(float(error) - spread) <= 0.5 * 10.0 ** -decimals + 1e-12
+        assert float(value) != exact  # the JSON value has more digits than the text
+    assert "standard error of 10 block averages" in out
+
+
 def test_lyapunov_map_with_set_and_plain_output(capsys, model):
     # Henon: sum = ln b exactly (det J = -b); a = 1.4, b = 0.3 gives 0.419, -1.623 (Sprott 2003)
     code, out, _ = run_cli(capsys, "lyapunov", model(HENON), "--steps", "20000", "--set", "b=0.3", "--json")

@@ -83,7 +83,11 @@ def number_text(x, digits: int = 6) -> str:
         return "∞" if x > 0 else "−∞"
     if x == 0:
         x = 0.0
-    text = f"{x:.{digits}g}"
+    return typeset(f"{x:.{digits}g}")
+
+
+def typeset(text: str) -> str:
+    """A number written by Python (``1.5e-07``, ``-0.25``) as the views show it: ×10^ and a true minus sign."""
     if "e" in text:
         mant, exp = text.split("e")
         text = f"{mant}×10^{int(exp)}"

@@ -12,11 +12,12 @@ from PySide6.QtCore import Qt, Signal
 from PySide6.QtWidgets import (QAbstractItemView, QFrame, QHeaderView, QLabel, QScrollArea, QSplitter, QTableWidget,
                                QTableWidgetItem, QWidget)
 
+from orbitdesk.analyses.error_digits import value_with_error
 from orbitdesk.engine.methods import METHODS
 
 from orbitdesk.app.layouts import column
 from orbitdesk.app.views import muted_colour, series_colour, style_plot
-from orbitdesk.app.plots.plot_style import JobStrip, NumberBox, hint_label, mono_font, number_text
+from orbitdesk.app.plots.plot_style import JobStrip, NumberBox, hint_label, mono_font, number_text, typeset
 from orbitdesk.app.views.common import (SessionView, auto_timer, check_box, control_row, push_button, quiet,
                                         set_quietly)
 from orbitdesk.app.views.method_step import MethodStep
@@ -260,14 +261,15 @@ class LyapunovView(SessionView):
             name = QTableWidgetItem(f"λ{k + 1}")
             name.setForeground(series_colour(k, self))
             name.setFont(mono)
-            value = QTableWidgetItem(number_text(v, 5))
+            error = r.uncertainty[k] if r.uncertainty is not None and k < len(r.uncertainty) else math.nan
+            shown = value_with_error(v, error)  # the digits the standard error supports
+            value = QTableWidgetItem(typeset(shown[0]) if shown else number_text(v, 5))
             value.setFont(mono)
             value.setTextAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
             reading = ("about zero" if math.isfinite(v) and abs(v) < NEAR_ZERO * max(scale, 1e-300)
                        else "growing" if v > 0 else "shrinking")
             value.setToolTip(f"λ{k + 1} = {v!r} {per} ({reading})")
-            error = r.uncertainty[k] if r.uncertainty is not None and k < len(r.uncertainty) else math.nan
-            spread = QTableWidgetItem(f"± {number_text(error, 2)}" if math.isfinite(error) else "–")
+            spread = QTableWidgetItem(f"± {typeset(shown[1])}" if shown else "–")
             spread.setFont(mono)
             spread.setTextAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
             spread.setToolTip(f"standard error of λ{k + 1}: the spread of {r.blocks} block averages over the square "
