@@ -176,6 +176,17 @@ def _describe_stop(system, code, t, y, p, h, bound) -> str:
     return ""
 
 
+def _collapse_words(system, settings, t, why) -> str:
+    """A step-by-step run whose step size collapsed: what was tried, and the option that goes further."""
+    head = f"the step size collapsed at {system.time_name} = {t:.6g} ({why})"
+    if settings.method_info.stiff:  # the stiff method already: its error control asked for less than round-off
+        return (f"{head}: the {settings.method_info.label} at rtol {settings.rtol:g}, atol {settings.atol:g} "
+                "needed steps below the round-off of the time. Either the solution or its rate grows without bound "
+                "there (the run's last values show it; no method goes past such a point) or the tolerance is "
+                "tighter than the method can follow there (a looser --rtol, --atol)")
+    return f"{head}; the system may be stiff: try the stiff method"
+
+
 def _explain_near(system, t, y, p, h) -> str | None:
     """Name what is undefined at the run's last good point, or just beyond it along the flow."""
     found = system.explain_undefined(t, y, p)
@@ -336,8 +347,7 @@ def _integrate(system, settings, u0, p, events, report) -> Trajectory:
                 raise _Stop(status_word(solver.code), _describe_stop(system, solver.code, solver.t, solver.y, p,
                                                                       1e-12 * max(1.0, abs(solver.t)), settings.bound))
             if solver.status == "failed":
-                raise _Stop(STEP_FAILED, f"the step size collapsed at {system.time_name} = {solver.t:.6g} "
-                                         f"({message_step}); the system may be stiff: try the stiff method")
+                raise _Stop(STEP_FAILED, _collapse_words(system, settings, solver.t, message_step))
             t_new, y_new = solver.t, solver.y
             _check_state(system, t_new, y_new, settings.bound)
             sol = None

@@ -157,3 +157,14 @@ def test_a_large_stiff_model_runs_on_its_sparse_jacobian():
         assert run.status == OK
         exact_states = mode[:, None] * np.exp(rate * run.time)[None, :]
         assert np.max(np.abs(run.states - exact_states)) < 1e-6
+
+
+@pytest.mark.parametrize("method", ["stiff", "bdf"])
+def test_a_stiff_run_that_cannot_go_on_says_what_was_tried(method):
+    # x' = -1/x, x(0) = 1: x = sqrt(1 - 2t) (closed form) ends at t = 1/2, where its rate grows without bound.
+    # The stiff method stops there and says so, with the tolerance it tried; it never sends the user to itself
+    run = simulate(compile_model("x' = -1/x\nx(0) = 1\n"), RunSettings(method=method, t_end=1, samples=11))
+    assert run.status != OK
+    assert run.time[-1] <= 0.5 and run.states[0, :-1] == pytest.approx(np.sqrt(1 - 2 * run.time[:-1]), abs=1e-6)
+    assert "t = 0.5" in run.message and "rtol 1e-08, atol 1e-10" in run.message and "--rtol" in run.message
+    assert "try the stiff method" not in run.message
