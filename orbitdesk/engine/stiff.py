@@ -9,9 +9,9 @@ r = p'(t) - f(t, p(t)) and turns it into an error estimate e = (I/h - J)^{-1} r 
 defect for slow components, -J^{-1} r for fast ones, where a stiff component's error is its defect
 over its rate). The check is made only on the steps whose interior is read (``reads``: a step that holds
 a sample time or a sign change of a plane's function): such a step whose estimate exceeds the tolerance
-(rtol |y| + atol) is covered again from its start by shorter steps (a copy of the solver bounded by a
-quarter of the step and ending at the step's end; those of its steps that are read are checked the same
-way). The run then goes on from the accepted long step with the step size the method's own error control
+(rtol |y| + atol) is covered again from its start by shorter steps (a copy of the solver ending at the
+step's end, its steps bounded by 1/2 to 1/SHRINK of the failed one, from how far the interpolant missed;
+those of its steps that are read are checked the same way). The run then goes on from the accepted long step with the step size the method's own error control
 chose after it: the shortening serves the read step only, so a relaxation oscillator's jump through a
 plane costs a few dozen extra steps, not a run of short ones.
 """
