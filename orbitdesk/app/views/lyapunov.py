@@ -286,11 +286,14 @@ class LyapunovView(SessionView):
             lines.append(f"Sum {number_text(values.sum(), 5)} {per}")
         method = "QR of the tangent vectors" if r.method == "qr" else "two nearby trajectories"
         over = f"{int(r.averaged_over)} steps" if r.kind == "map" else f"{number_text(r.averaged_over, 4)} time units"
+        # the bound on the standard error as one piece of text: a line never breaks inside |λ|
+        # (no-break spaces, and word joiners beside the bars, after which a line may otherwise break)
+        bound = f"{r.tolerance[0]:g}\u00a0×\u00a0|\u2060λ\u2060|\u00a0+\u00a0{r.tolerance[1]:g}" if r.tolerance else ""
         if r.converged is True:
-            lines.append(f"Settled to {r.tolerance[0]:g} × |λ| + {r.tolerance[1]:g} after {over}")
+            lines.append(f"Settled to {bound} after {over}")
         elif r.converged is False:
             lines.append(f"<b>Stopped at the cap of {over}</b> before every estimate settled to "
-                         f"{r.tolerance[0]:g} × |λ| + {r.tolerance[1]:g}: a longer run narrows them")
+                         f"{bound}: a longer run narrows them")
         detail = f"by {method}, averaged over {over}"
         if r.integrator and not r.dt:
             detail += f" ({METHODS[r.integrator].label})" if r.integrator in METHODS else f" ({r.integrator})"
