@@ -63,11 +63,17 @@ def test_report_draws_hidden_views_at_a_readable_size_with_the_lyapunov_numbers(
     section = html[html.index("<h3>Lyapunov exponents</h3>"):]
     shown = re.findall(r"<td>λ(\d)</td><td class=\"num\">([^<]+)</td>", section)
     assert [k for k, _ in shown] == ["1", "2"]
-    values = [float(v.replace("\u2212", "-").replace(" \u00d7 10", "e").translate(
-        str.maketrans("\u207b\u2070\u00b9\u00b2\u00b3\u2074\u2075\u2076\u2077\u2078\u2079", "-0123456789")))
-        for _, v in shown]
-    assert values == pytest.approx(list(lyapunov.result.exponents), rel=1e-4, abs=1e-12)
-    assert max(abs(v) for v in values) < 0.05
+    def number(text):
+        return float(text.replace("\u2212", "-").replace(" \u00d7 10", "e").translate(
+            str.maketrans("\u207b\u2070\u00b9\u00b2\u00b3\u2074\u2075\u2076\u2077\u2078\u2079", "-0123456789")))
+
+    # each exponent with its standard error, the value to the error's decimal place (0.0000 ± 0.0041)
+    pairs = [[number(part) for part in v.split(" \u00b1 ")] for _, v in shown]
+    exact = list(lyapunov.result.exponents)
+    errors = list(lyapunov.result.uncertainty)
+    for (value, error), e, sigma in zip(pairs, exact, errors):
+        assert error == pytest.approx(sigma, rel=0.05) and abs(value - e) <= 0.05 * error
+    assert max(abs(value) for value, _ in pairs) < 0.05
 
 
 def test_command_line_report_has_the_same_figures_as_the_app(qtbot, window, tmp_path, monkeypatch):
