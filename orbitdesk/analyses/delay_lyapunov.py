@@ -18,7 +18,9 @@ import math
 import numpy as np
 
 from orbitdesk.engine.delay import DelayModel, _Stop, history_functions
+from orbitdesk.engine.compiled import engine_loops
 from orbitdesk.engine.progress import Cancelled, Reporter
+from orbitdesk.engine.tangent import renormalise
 from orbitdesk.engine.runs import CANCELLED, OK, UNDEFINED
 from orbitdesk.system.compiled_system import UNDEFINED_ERRORS
 
@@ -27,13 +29,17 @@ NOTE = ("delays: the distance between the two solutions is the root-mean-square 
         "segments over the longest delay, and the whole segment is renormalised")
 
 
-def _distance(solver, n, T, tau_max) -> float:
-    total = 0.0
-    for s in np.linspace(T - tau_max, T, SEGMENT_POINTS):
+def _log_growth(loops, solver, n, T, tau_max, d0) -> float | None:
+    """The logarithm of the two segments' root-mean-square separation over [T - tau_max, T] over ``d0``
+    (None when they met), by the engine's one renormalisation (``tangent.renormalise``) of the
+    separation as one vector: its stretch is the distance, its logarithm the growth."""
+    D = np.empty((SEGMENT_POINTS * n, 1))
+    for k, s in enumerate(np.linspace(T - tau_max, T, SEGMENT_POINTS)):
         for i in range(n):
-            d = solver.value(n + i, float(s)) - solver.value(i, float(s))
-            total += d * d
-    return math.sqrt(total / SEGMENT_POINTS)
+            D[k * n + i, 0] = solver.value(n + i, float(s)) - solver.value(i, float(s))
+    D /= d0 * math.sqrt(SEGMENT_POINTS)
+    logs = np.empty(1)
+    return float(logs[0]) if renormalise(loops, D, logs) else None
 
 
 def _pull_back(solver, n, T, tau_max, scale) -> None:
@@ -58,6 +64,7 @@ def largest_delay_exponent(system, p, u, start, end, transient, d0, renorm_every
     from orbitdesk.analyses.lyapunov import TWO_TRAJECTORY, _failed, _sorted_result, _stride
 
     model = DelayModel(system, p)
+    loops = engine_loops()
     n = system.n_states
     tau_max = float(max(model.taus))
     report = Reporter(progress, cancel)
@@ -80,18 +87,18 @@ def largest_delay_exponent(system, p, u, start, end, transient, d0, renorm_every
     try:
         while solver.t < first:
             solver.step(first)
-        scale = d0 / max(_distance(solver, n, first, tau_max), 1e-300)
-        _pull_back(solver, n, first, tau_max, scale)
+        growth = _log_growth(loops, solver, n, first, tau_max, d0)
+        _pull_back(solver, n, first, tau_max, 1.0 if growth is None else math.exp(-growth))
         for k, t_next in enumerate(times):
             while solver.t < t_next:
                 solver.step(t_next)
             if not np.all(np.isfinite(solver.y)) or np.max(np.abs(solver.y)) > settings.bound:
                 raise _Stop(UNDEFINED, f"the solution blows up near {system.time_name} = {solver.t:.6g}")
-            dist = _distance(solver, n, t_next, tau_max)
-            if not dist > 0:
+            growth = _log_growth(loops, solver, n, t_next, tau_max, d0)
+            if growth is None:
                 raise _Stop(UNDEFINED, f"the two solutions merged near {system.time_name} = {t_next:.6g}")
-            total += math.log(dist / d0)
-            _pull_back(solver, n, t_next, tau_max, d0 / dist)
+            total += growth
+            _pull_back(solver, n, t_next, tau_max, math.exp(-growth))
             solver.forget_before(t_next - 2 * tau_max)
             if (k + 1) % stride == 0 or k == len(times) - 1:
                 rows.append([total / (t_next - first)])

@@ -113,6 +113,12 @@ def available() -> bool:
     return jitting.enabled()
 
 
+def engine_loops():
+    """The engine's loops without a model's kernels (a delay model runs in Python): compiled where numba
+    is (each loaded from numba's cache when first called), plain Python otherwise."""
+    return jitting.compiled_loops(*LOOP_MODULES) if available() else jitting.python_loops(*LOOP_MODULES)
+
+
 def module_source(system, jit: bool, batch: bool = False, part: str = "") -> str:
     """The kernels' module text (kept on the system); ``batch`` or ``part`` = "batch": the batched
     kernel's module; ``part`` = "sensitivity": the sensitivity kernel's (``codegen.sensitivity_source``)."""
@@ -229,21 +235,17 @@ def python_engine(system) -> Engine:
 
 def numpy_batch(system):
     """The batched kernel of the plain-Python engine: ``batch(which, T, z, p, out, count)`` as
-    ``codegen.batch_source`` defines it, each row one numpy expression over the members (the system's
-    vectorised evaluators: f, and the Jacobian's structural entries times the tangent vectors) instead
-    of a Python loop over them. Undefined values come out as NaN and a division by zero as infinite,
-    as in the compiled kernels (numpy's error model)."""
-    n, n_p = system.n_states, len(system.parameters)
-    rows, cols = system.jac_structure
+    ``codegen.batch_source`` defines it, each row one numpy expression over the members
+    (``codegen.vector_source``, which ``CompiledSystem.rhs_vec``/``jac_vec`` use too) instead of a Python
+    loop over them. Undefined values come out as NaN and a division by zero as infinite, as in the
+    compiled kernels (numpy's error model)."""
+    from orbitdesk.system.codegen import vector_kernels
 
-    def batch(which, T, z, p, out, count):  # p may have a padding row (a model without parameters)
-        t, U, P = T[:count], z[:n, :count], p[:n_p, :count]
-        out[:n, :count] = system.rhs_vec(t, U, P)
-        if which:
-            V = z[n:n + n * which, :count].reshape(n, which, count)
-            JV = np.zeros((n, which, count))
-            np.add.at(JV, rows, system.jac_entries_vec(t, U, P)[:, None, :] * V[cols])
-            out[n:n + n * which, :count] = JV.reshape(n * which, count)
+    kernel = vector_kernels(system).batch
+
+    def batch(which, T, z, p, out, count):
+        with np.errstate(all="ignore"):
+            kernel(which, T, z, p, out, count)
 
     return batch
 
@@ -314,5 +316,5 @@ def engine_for_work(system, evaluations: float) -> Engine:
     return engine_for(system, wait=math.isfinite(evaluations) and evaluations >= WORTH_COMPILING)
 
 
-__all__ = ["Engine", "available", "module_source", "cache_folder", "engine_for", "engine_for_work", "prepare",
+__all__ = ["Engine", "available", "engine_loops", "module_source", "cache_folder", "engine_for", "engine_for_work", "prepare",
            "python_engine", "sensitivity_kernel", "is_compiled", "WORTH_COMPILING"]

@@ -344,9 +344,9 @@ def first_step(f, kind, which, t, y, p, K, direction, rtol, atol, max_step, tmp,
     """A starting step (Hairer, Norsett & Wanner, Solving ODEs I, sec. II.4, as scipy's)."""
     if kind == 2:
         return max_step
-    h0 = first_trial(y, K, direction, rtol, atol, max_step, tmp)
+    h0 = first_trial(any_layout(y), any_layout(K), direction, rtol, atol, max_step, tmp)
     f(which, t + h0 * direction, at(tmp), at(p), at(tmp2))
-    return first_choice(kind, y, K, h0, tmp2, rtol, atol, max_step)
+    return first_choice(kind, any_layout(y), any_layout(K), h0, tmp2, rtol, atol, max_step)
 
 
 @noref
@@ -391,6 +391,14 @@ def first_choice(kind, y, K, h0, f1, rtol, atol, max_step):
     return h
 
 
+@inner
+def any_layout(a):
+    """``a`` as a view typed with any layout (numba's 'A'): the helpers called both with whole arrays (a
+    single run) and with members' columns (members.py: strided views) are then compiled once, not once
+    per layout (two cold compiles)."""
+    return a[::np.int64(1)]
+
+
 @noref
 def state_code(y, bound):
     """0 when every entry is finite and within the bound, 2 for NaN, 1 for a blow-up."""
@@ -407,7 +415,7 @@ def state_code(y, bound):
 @inner
 def _event(f, kind, which, t, y, h, p, F, K2, trusted, x, k, ev_t, ev_y, ev_k, n_ev, tmp):
     """Record the crossing of plane k at x (fraction of the step) as event n_ev; returns n_ev + 1."""
-    point_value(f, kind, which, t, y, h, p, F, K2, trusted, x, tmp, False)
+    point_value(f, kind, which, t, y, h, p, F, K2, trusted, x, tmp, np.bool_(False))
     ev_t[n_ev] = t + x * h
     for i in range(y.shape[0]):
         ev_y[n_ev, i] = tmp[i]
@@ -463,7 +471,7 @@ def read_points(f, kind, which, adaptive, t, t_new, h, direction, y, y_new, p, K
             for i in range(n):
                 out_y[gi, i] = y_new[i]
         else:
-            point_value(f, kind, which, t, y, h, p, F, K2, trusted, x, tmp, False)
+            point_value(f, kind, which, t, y, h, p, F, K2, trusted, x, tmp, np.bool_(False))
             for i in range(n):
                 out_y[gi, i] = tmp[i]
         out_t[gi] = grid[gi]
@@ -487,7 +495,7 @@ def read_points(f, kind, which, adaptive, t, t_new, h, direction, y, y_new, p, K
                     trusted = _read_step(f, kind, which, adaptive, t, y, y_new, h, p, K, F, K2, rtol, atol, tmp,
                                          tmp2, tmp3)
                     dense_ready = True
-                x = dense_root(f, kind, which, t, y, h, p, F, K2, trusted, planes[k, :n], 0.0, 0.0, ra * h, 1.0, rb * h, tmp, True)
+                x = dense_root(f, kind, which, t, y, h, p, F, K2, trusted, planes[k, :n], 0.0, 0.0, ra * h, 1.0, rb * h, tmp, np.bool_(True))
                 n_ev = _event(f, kind, which, t, y, h, p, F, K2, trusted, x, k, ev_t, ev_y, ev_k, n_ev, tmp)
                 if terminal[k]:
                     stop = True
@@ -503,19 +511,20 @@ def read_points(f, kind, which, adaptive, t, t_new, h, direction, y, y_new, p, K
         # the rate turns inside the step: split it where g turns (a near-grazing pass crosses twice)
         x_turn = 1.0
         if (ra > 0.0) != (rb > 0.0):
-            x_turn = dense_root(f, kind, which, t, y, h, p, F, K2, trusted, planes[k, :n], 0.0, 0.0, ra * h, 1.0, rb * h, tmp, True)
+            x_turn = dense_root(f, kind, which, t, y, h, p, F, K2, trusted, planes[k, :n], 0.0, 0.0, ra * h, 1.0, rb * h, tmp, np.bool_(True))
         pieces = 1 if x_turn <= 0.0 or x_turn >= 1.0 else 2
         xa = 0.0
         g_left = ga
         for m in range(1, pieces + 1):
             xb = 1.0 if m == pieces else x_turn
-            g_right = gb if m == pieces else plane_value(f, kind, which, t, y, h, p, F, K2, trusted, xb, planes[k, :n], planes[k, n], tmp, False)
+            g_right = gb if m == pieces else plane_value(f, kind, which, t, y, h, p, F, K2, trusted, xb, planes[k, :n], planes[k, n], tmp, np.bool_(False))
             crossed = (g_left < 0.0) != (g_right < 0.0) or (g_right == 0.0 and g_left != 0.0)
             if crossed and g_left != 0.0:
                 rising = g_right > g_left
                 if plane_dir[k] == 0 or (plane_dir[k] > 0) == rising:
                     if n_ev < ev_t.shape[0]:
-                        x = dense_root(f, kind, which, t, y, h, p, F, K2, trusted, planes[k, :n], planes[k, n], xa, g_left, xb, g_right, tmp, False)
+                        x = dense_root(f, kind, which, t, y, h, p, F, K2, trusted, planes[k, :n], planes[k, n], xa, g_left, xb, g_right, tmp,
+                                       np.bool_(False))
                         n_ev = _event(f, kind, which, t, y, h, p, F, K2, trusted, x, k, ev_t, ev_y, ev_k, n_ev, tmp)
                         if terminal[k]:
                             stop = True
@@ -555,7 +564,7 @@ def erk_advance(f, kind, which, adaptive, y, p, K, F, W, st, t_end, rtol, atol, 
     n_planes = planes.shape[0]
     if st[1] == 0.0:
         f(which, t, at(y), at(p), at(K[0]))
-        code = state_code(K[0], math.inf)
+        code = state_code(any_layout(K[0]), math.inf)
         if code == 2:
             return 2
         st[1] = first_step(f, kind, which, t, y, p, K, direction, rtol, atol, max_step, tmp, tmp2) if adaptive else max_step
@@ -584,7 +593,7 @@ def erk_advance(f, kind, which, adaptive, y, p, K, F, W, st, t_end, rtol, atol, 
         h = t_new - t
         rk_step(f, kind, which, t, y, h, p, K, y_new, tmp)
         if adaptive:
-            err = error_norm(kind, h, y, y_new, K, rtol, atol)
+            err = error_norm(kind, h, any_layout(y), any_layout(y_new), any_layout(K), rtol, atol)
             if not (err <= 1.0):  # rejected, or NaN
                 st[3] += 1
                 factor = MIN_FACTOR if err != err else max(MIN_FACTOR, SAFETY * err ** exponent)
@@ -592,7 +601,7 @@ def erk_advance(f, kind, which, adaptive, y, p, K, F, W, st, t_end, rtol, atol, 
                 st[4] = 1.0
                 if h_abs < min_step:
                     _save(st, t, h_abs, n_out, gi, n_ev)
-                    return 2 if state_code(y_new, bound) == 2 else 3
+                    return 2 if state_code(any_layout(y_new), bound) == 2 else 3
                 continue
             factor = MAX_FACTOR if err == 0.0 else min(MAX_FACTOR, SAFETY * err ** exponent)
             if st[4] != 0.0:
@@ -603,9 +612,9 @@ def erk_advance(f, kind, which, adaptive, y, p, K, F, W, st, t_end, rtol, atol, 
                 h_next = max(h_next, h_try)
         else:
             h_next = h_abs
-        code = state_code(y_new, bound)
+        code = state_code(any_layout(y_new), bound)
         if code == 0:
-            code = 2 if state_code(K[s_n], math.inf) == 2 else 0
+            code = 2 if state_code(any_layout(K[s_n]), math.inf) == 2 else 0
         if code != 0:
             _save(st, t, h_abs, n_out, gi, n_ev)
             return code

@@ -10,7 +10,7 @@ import math
 
 import numpy as np
 
-from orbitdesk.engine.explicit_rk import PAUSED, state_code
+from orbitdesk.engine.explicit_rk import PAUSED, any_layout, state_code
 from orbitdesk.engine.jitting import at, loop
 from orbitdesk.engine.members import load_member
 from orbitdesk.engine.tangent import _record, gram_schmidt
@@ -34,7 +34,7 @@ def map_advance(f, y, p, st, n_end, out_y, bound, max_steps):
             code = PAUSED
             break
         f(0, float(k), at(y), at(p), at(nxt))
-        code = state_code(nxt, bound)
+        code = state_code(any_layout(nxt), bound)
         if code != 0:
             break
         for i in range(n):
@@ -70,11 +70,11 @@ def map_pair(f, a, b, p, st, n_end, keep_from, d0, every, bound, rows, row_t, st
             st[4] = 1.0
         paired = k >= keep_from  # before: the transient, the reference orbit alone
         f(0, float(k), at(a), at(p), at(na))
-        code = state_code(na, bound)
+        code = state_code(any_layout(na), bound)
         if paired:
             f(0, float(k), at(b), at(p), at(nb))
             if code == 0:
-                code = state_code(nb, bound)
+                code = state_code(any_layout(nb), bound)
         if code != 0:
             break
         for i in range(n):

@@ -272,7 +272,7 @@ def members_advance(f, g, kind, adaptive, U, P, t0, t_end, rtol, atol, max_step,
             MS[R_STEP, c] = t_new - t
         # the stages, all members in one kernel call each
         for s in range(1, s_n):
-            _combine_columns(A[s], s, True, Z, K, MS, ACC, count)
+            _combine_columns(A[s], s, np.bool_(True), Z, K, MS, ACC, count)
             for c in range(count):
                 TS[c] = MS[R_T, c] + C[s] * MS[R_STEP, c]
             g(m, TS, ACC, Pb, K[s], count)
@@ -282,7 +282,7 @@ def members_advance(f, g, kind, adaptive, U, P, t0, t_end, rtol, atol, max_step,
                     Y1[i, c] = Z[i, c] + MS[R_STEP, c] / 6.0 * (K[0, i, c] + 2.0 * K[1, i, c] + 2.0 * K[2, i, c]
                                                                 + K[3, i, c])
         else:
-            _combine_columns(Bw, s_n, False, Z, K, MS, Y1, count)
+            _combine_columns(Bw, s_n, np.bool_(False), Z, K, MS, Y1, count)
         for c in range(count):
             TS[c] = MS[R_T, c] + MS[R_STEP, c]
         g(m, TS, Y1, Pb, K[s_n], count)

@@ -160,7 +160,7 @@ def _cohort(g, m, U, P, Z, Pb, K, Y1, MS, BS, TS, t0, end, t_keep, codes, t_reac
     Returns how many are in flight."""
     N, nz = U.shape
     B = Z.shape[1]
-    count = 0
+    count = np.int64(0)  # not a literal: enter_member gets one compiled version
     while count < B and BS[1] < N:
         i = int(BS[1])
         BS[1] += 1
@@ -354,7 +354,8 @@ def members_fixed(f, g, kind, adaptive, U, P, t0, t_end, rtol, atol, h, bound, g
             if m > 0 and istart != target:  # the transient ends inside an interval: afresh
                 _share(MS, count, t, acc, gi, samp, istart)
                 count = _renormalise_cohort(g, m, count, U, Z, Pb, K, Y1, MS, BS, Vs, logs, T1, Z1, P1, O1, sums,
-                                            False, 0.0, codes, t_reached, steps, ev_count, samples, grid)
+                                            np.bool_(False), 0.0, codes, t_reached, steps, ev_count, samples,
+                                            grid)
                 istart = target
         if target == end:
             _share(MS, count, t, acc, gi, samp, istart)

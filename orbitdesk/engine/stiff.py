@@ -227,20 +227,23 @@ def model_functions(system, p, which: int = 0, sensitivity: bool = False):
 def tangent_run(system, scipy_name: str, t0: float, t1: float, keep_from: float, u0, V0, p, interval: float,
                 rtol: float, atol: float, bound: float = 1e10, max_rows: int = 5000, report=None):
     """Lyapunov sums of a flow by a stiff method, as ``drivers.flow_tangent`` gives them for the explicit
-    ones: the state with the tangent vectors V0 (n x m) from t0 to t1, re-orthonormalised (QR) every
-    ``interval``, the logarithms of R's diagonal summed after ``keep_from``. Each interval is one checked
-    stiff run of the variational equations (``model_functions`` with m tangent vectors) ending on the
-    renormalisation time."""
+    ones: the state with the tangent vectors V0 (n x m) from t0 to t1, re-orthonormalised every
+    ``interval`` by the loops' own Gram-Schmidt (``tangent.renormalise``), the logarithms of the
+    stretches summed after ``keep_from``. Each interval is one checked stiff run of the variational
+    equations (``model_functions`` with m tangent vectors) ending on the renormalisation time."""
+    from orbitdesk.engine import compiled
     from orbitdesk.engine.drivers import TangentOutput
     from orbitdesk.engine.progress import Cancelled
-    from orbitdesk.engine.status import C_CANCELLED, C_DIVERGED, C_STEP_FAILED
+    from orbitdesk.engine.status import C_CANCELLED, C_DIVERGED, C_STEP_FAILED, C_UNDEFINED
+    from orbitdesk.engine.tangent import renormalise
 
     u = np.asarray(u0, dtype=float).copy()
     V = np.asarray(V0, dtype=float).copy()
     n, m = V.shape
     p = np.asarray(p, dtype=float)
     fun, jac = model_functions(system, p, m)
-    sums, averaged = np.zeros(m), 0.0
+    loops = compiled.engine_for(system).loops  # the engine model_functions runs on: its renormalisation
+    sums, averaged, logs = np.zeros(m), 0.0, np.empty(m)
     count = max(1.0, abs(t1 - keep_from) / interval)
     stride = max(1, int(np.ceil(count / max_rows)))
     rows, row_t = [], []
@@ -261,12 +264,13 @@ def tangent_run(system, scipy_name: str, t0: float, t1: float, keep_from: float,
         if float(np.max(np.abs(u))) > bound:
             code = C_DIVERGED
             break
-        Q, R = np.linalg.qr(V)
-        signs = np.where(np.diag(R) < 0, -1.0, 1.0)
-        V = Q * signs
+        V = V.copy()  # C-contiguous and writable: the one renormalisation works in place
+        if not renormalise(loops, V, logs):
+            code, note = C_UNDEFINED, f"a tangent vector collapsed near {system.time_name} = {t_next:.6g}"
+            break
         if t_next > keep_from:
             span = t_next - max(t, keep_from)
-            sums += np.log(np.abs(np.diag(R))) * (span / (t_next - t))
+            sums += logs * (span / (t_next - t))
             averaged += span
             k += 1
             if k % stride == 0:

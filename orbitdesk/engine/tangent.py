@@ -8,6 +8,10 @@ are re-orthonormalised by modified Gram-Schmidt (a QR factorisation, with a seco
 first cancels most of a column) and the logarithms of R's diagonal are summed from ``keep_from``
 on. Running estimates go to ``rows`` every ``stride`` renormalisations.
 
+``orthonormalise`` is the one renormalisation of the package: these loops, the member loops
+(members.py, members_fixed.py), and from Python (``renormalise``) the stiff methods' tangent runs
+(stiff.tangent_run) and the delay models' two-solution exponent (analyses/delay_lyapunov.py).
+
 The model's kernel comes in as an argument, as in ``explicit_rk.py``.
 """
 
@@ -15,51 +19,97 @@ import math
 
 import numpy as np
 
-from orbitdesk.engine.explicit_rk import PAUSED, WORK_ROWS, erk_advance, state_code
-from orbitdesk.engine.jitting import at, loop, noref
+from orbitdesk.engine.explicit_rk import PAUSED, WORK_ROWS, any_layout, erk_advance, state_code
+from orbitdesk.engine.jitting import at, loop, noref, numpy_version
+
+
+def _column_norm_numpy(V, j):
+    v = V[:, j]
+    return math.sqrt(float(v @ v))
+
+
+@numpy_version(_column_norm_numpy)
+@noref
+def _column_norm(V, j):
+    """The length of V's column j."""
+    s = 0.0
+    for i in range(V.shape[0]):
+        s += V[i, j] * V[i, j]
+    return math.sqrt(s)
+
+
+def _project_out_numpy(V, j):
+    if j:
+        Q = V[:, :j]
+        V[:, j] -= Q @ (Q.T @ V[:, j])
+
+
+@numpy_version(_project_out_numpy)
+@noref
+def _project_out(V, j):
+    """Column j less its projections on the columns before it (orthonormal already): one column at a
+    time compiled (modified Gram-Schmidt), all at once with numpy's products in plain Python."""
+    n = V.shape[0]
+    for q in range(j):
+        d = 0.0
+        for i in range(n):
+            d += V[i, q] * V[i, j]
+        for i in range(n):
+            V[i, j] -= d * V[i, q]
+
+
+def _divide_column_numpy(V, j, norm):
+    V[:, j] /= norm
+
+
+@numpy_version(_divide_column_numpy)
+@noref
+def _divide_column(V, j, norm):
+    for i in range(V.shape[0]):
+        V[i, j] /= norm
 
 
 @noref
 def gram_schmidt(V, norms):
-    """Modified Gram-Schmidt on the columns of V in place; norms[j] = R's j-th diagonal.
-    Returns False when a column collapses to zero."""
-    n, m = V.shape
-    for j in range(m):
-        before = 0.0
-        for i in range(n):
-            before += V[i, j] * V[i, j]
-        before = math.sqrt(before)
+    """Gram-Schmidt on the columns of V in place, with a second pass when the first cancels most of a
+    column ("twice is enough"); norms[j] = R's j-th diagonal. Returns False when a column collapses to
+    zero. The same code compiled and in plain Python (its helpers there are numpy's whole columns)."""
+    for j in range(V.shape[1]):
+        before = _column_norm(V, j)
         norm = before
         for _ in range(2):
-            for q in range(j):
-                d = 0.0
-                for i in range(n):
-                    d += V[i, q] * V[i, j]
-                for i in range(n):
-                    V[i, j] -= d * V[i, q]
-            norm = 0.0
-            for i in range(n):
-                norm += V[i, j] * V[i, j]
-            norm = math.sqrt(norm)
+            _project_out(V, j)
+            norm = _column_norm(V, j)
             if norm > 0.5 * before or norm == 0.0:
                 break
             before = norm
         if not norm > 0.0 or not math.isfinite(norm):
             return False
         norms[j] = norm
-        for i in range(n):
-            V[i, j] /= norm
+        _divide_column(V, j, norm)
     return True
 
 
 @noref
 def orthonormalise(V, logs):
-    """``gram_schmidt`` with logs[j] = the logarithm of R's j-th diagonal."""
+    """``gram_schmidt`` with logs[j] = the logarithm of R's j-th diagonal: the one renormalisation of
+    tangent vectors (Lyapunov spectra), the compiled loops' (flows, maps, members) and, from Python on
+    the engine's loops (``renormalise``), the stiff methods' and the delay models' two-solution exponent."""
     if not gram_schmidt(V, logs):
         return False
     for j in range(V.shape[1]):
         logs[j] = math.log(logs[j])
     return True
+
+
+def renormalise(loops, V, logs) -> bool:
+    """``orthonormalise`` called from Python on ``loops`` (an engine's: compiled, or plain Python with its
+    numpy version): V (n x m) re-orthonormalised in place, logs[j] the logarithm of the j-th column's
+    stretch; False when a column collapsed (or is not finite). V is made C-contiguous and writable by
+    the caller's copy, so the compiled helper keeps its one signature."""
+    if not (V.flags.c_contiguous and V.flags.writeable and logs.flags.c_contiguous and logs.flags.writeable):
+        raise ValueError("renormalise works in place on C-contiguous writable arrays")
+    return bool(loops.orthonormalise(V, logs))
 
 
 @noref
@@ -133,8 +183,8 @@ def flow_tangent(f, kind, adaptive, z, p, K, F, st, t_end, rtol, atol, max_step,
             if int(st[8]) % stride == 0 or (t_end - st[0]) * direction <= 1e-13 * max(1.0, abs(t_end)):
                 _record(sums, st[10], rows, row_t, st, st[0])
         done += 1
-        if state_code(z[:n], bound) != 0:
-            return state_code(z[:n], bound)
+        if state_code(any_layout(z[:n]), bound) != 0:
+            return state_code(any_layout(z[:n]), bound)
     return 0
 
 
@@ -154,7 +204,7 @@ def map_tangent(f, z, m, p, st, n_end, keep_from, sums, bound, rows, row_t, stri
             st[0] = k
             return PAUSED
         f(m, float(k), at(z), at(p), at(nxt))
-        code = state_code(nxt[:n], bound)
+        code = state_code(any_layout(nxt[:n]), bound)
         if code != 0:
             st[0] = k
             return code

@@ -190,27 +190,12 @@ class CompiledSystem:
         return self._compile(self.f, "math")
 
     @cached_property
-    def _f_vector(self):
-        return self._compile(self.f, "numpy")
-
-    @cached_property
     def _jac_structure(self):
         """(rows, cols) of the Jacobian's structural entries (codegen.sparse_jacobian)."""
         from orbitdesk.system.codegen import sparse_jacobian
 
         rows, cols, _ = sparse_jacobian(self)
         return np.array(rows, dtype=np.intp), np.array(cols, dtype=np.intp)
-
-    def _compile_jacobian(self, modules):
-        # only the structural entries: a 200-state chain has 1,000 of them, not 40,000
-        from orbitdesk.system.codegen import sparse_jacobian
-
-        t, u, p, _ = self._plain
-        return lambdify([t, *u, *p], list(sparse_jacobian(self)[2]), modules)
-
-    @cached_property
-    def _jac_vector(self):
-        return self._compile_jacobian("numpy")
 
     @cached_property
     def _derived_vector(self):
@@ -289,14 +274,34 @@ class CompiledSystem:
             raise UndefinedValue(f"the Jacobian is undefined at this point ({exc})") from None
         return J
 
-    def rhs_vec(self, t, U, P=None) -> np.ndarray:
-        """f for many members at once: U has shape (n_states, N); P is (n_params,) or (n_params, N)."""
-        # numbers as numpy's (t too): both branches of an if() are computed, and a Python float's 0.0 ** -1 raises
+    def _members(self, which, t, U, P, rows):
+        """The generated batched kernels (``codegen.vector_kernels``: the numpy twin of ``batch``) on the
+        members in the columns of U (n_states x ...), each at its time (t broadcast) with its parameters
+        (P: (n_params,) or (n_params, ...)): ``which`` 0 gives f, -1 the Jacobian's structural entries."""
+        from orbitdesk.system.codegen import vector_kernels
+
         U = np.asarray(U, dtype=float)
+        shape = U.shape[1:]
+        count = int(np.prod(shape, dtype=np.int64))
+        z = U.reshape(self.n_states, count)
         P = np.asarray(self.param_values if P is None else P, dtype=float)
-        with np.errstate(all="ignore"):
-            values = self._f_vector(np.asarray(t, dtype=float), *U, *P)
-        return _stack(values, U.shape[1:])
+        p = np.broadcast_to(P.reshape(P.shape + (1,) * (1 + len(shape) - P.ndim)),
+                            (len(self.parameters),) + shape).reshape(len(self.parameters), count)
+        T = np.broadcast_to(np.asarray(t, dtype=float), shape).reshape(count)
+        out = np.empty((rows, count))
+        kernels = vector_kernels(self)
+        with np.errstate(all="ignore"):  # numbers as numpy's: an undefined value is NaN, a division by zero inf
+            if which < 0:
+                kernels.entries(T, z, p, out, count)
+            else:
+                kernels.batch(0, T, z, p, out, count)
+        return out.reshape((rows,) + shape)
+
+    def rhs_vec(self, t, U, P=None) -> np.ndarray:
+        """f for many members at once: U has shape (n_states, N); P is (n_params,) or (n_params, N); t a
+        number or one per member. The generated batched kernel (both branches of an if() computed, in
+        numpy's numbers: the one not taken may be undefined without raising)."""
+        return self._members(0, t, U, P, self.n_states)
 
     def jac_vec(self, t, U, P=None) -> np.ndarray:
         """Jacobians for many members: shape (n_states, n_states, N)."""
@@ -309,11 +314,7 @@ class CompiledSystem:
     def jac_entries_vec(self, t, U, P=None) -> np.ndarray:
         """The Jacobian's structural entries (rows and columns: ``jac_structure``) for many members:
         shape (entries, N); a large model's dense Jacobians would not fit."""
-        U = np.asarray(U, dtype=float)
-        P = np.asarray(self.param_values if P is None else P, dtype=float)
-        with np.errstate(all="ignore"):
-            values = self._jac_vector(np.asarray(t, dtype=float), *U, *P)  # numpy's numbers, as rhs_vec
-        return _stack(values, U.shape[1:])
+        return self._members(-1, t, U, P, len(self._jac_structure[0]))
 
     @property
     def jac_structure(self):
