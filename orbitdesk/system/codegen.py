@@ -129,6 +129,7 @@ class _Writer:
         self.t, self.u, self.p, _ = system._plain
         self.vector = vector  # numpy's printer: whole rows over the members (``vector_source``)
         self.printer = _vector_printer() if vector else _printer()
+        self.imports: set = set()  # (module, name) the printed code names bare (numpy's printer: functools.reduce)
         self.printed = system.__dict__.setdefault("_printed_kernel_lines", {})  # both paths' sources share it
 
     def lines(self, exprs, store, array: str = "u", key: str | None = None, column: str = "") -> list[str]:
@@ -144,9 +145,13 @@ class _Writer:
             lines = [f"{s.name} = {array}[{i}{column}]" for i, s in enumerate(self.u) if s in used]
             lines += [f"{s.name} = p[{i}{column}]" for i, s in enumerate(self.p) if s in used]
             lines += [f"{s.name} = {self.printer.doprint(e)}" for s, e in replacements]
-            cached = lines, [self.printer.doprint(e) for e in reduced]
+            values = [self.printer.doprint(e) for e in reduced]
+            imports = {(module, name) for module, names in getattr(self.printer, "module_imports", {}).items()
+                       for name in names}
+            cached = lines, values, imports
             if key is not None:
                 self.printed[(key, array, column, self.vector)] = cached
+        self.imports |= cached[2]
         return cached[0] + store(cached[1])
 
 
@@ -361,7 +366,8 @@ def vector_source(system: CompiledSystem) -> str:
                     "entries", column)
     lines += ["def entries(T, z, p, out, count):", f"    {t} = T[:count]"] + _indent(store, True,
                                                                                     fill="out[:, :count]")
-    return HEADER + VECTOR_HEAD + "\n" + "\n".join(head + lines) + "\n"
+    imports = [f"from {module} import {name}" for module, name in sorted(w.imports)]
+    return HEADER + VECTOR_HEAD + "\n".join(imports) + "\n\n" + "\n".join(head + lines) + "\n"
 
 
 def vector_kernels(system: CompiledSystem):
