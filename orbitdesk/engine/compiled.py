@@ -20,7 +20,6 @@ import math
 import sys
 import threading
 from dataclasses import dataclass, field
-from functools import partial
 from pathlib import Path
 from types import ModuleType, SimpleNamespace
 
@@ -59,9 +58,8 @@ class Engine:
     loops: SimpleNamespace
     kernels: ModuleType
     compiled: bool
-    batch_text: object = ""  # the batched kernel's module source (compiled when first used), or a function
-    #                          that writes it then (the plain-Python engine: a model of thousands of terms
-    #                          waits for no batched kernel it never uses)
+    batch_text: str = ""  # the compiled batched kernel's module source (compiled when first used); the
+    #                       plain-Python engine's batched kernel is numpy_batch (codegen.vector_source)
     _batch: object = None
     _entries: dict = field(default_factory=dict, repr=False)
     _parts: dict = field(default_factory=dict, repr=False)  # kernels of their own modules, by name
@@ -84,8 +82,6 @@ class Engine:
         if self._batch is None:
             with _batch_lock:
                 if self._batch is None:
-                    if callable(self.batch_text):
-                        self.batch_text = self.batch_text()
                     digest = _digest(self.batch_text)
                     module = (_import_compiled(self.batch_text, digest, "b") if self.compiled
                               else _exec_module(self.batch_text, f"pyb{digest}"))
@@ -127,12 +123,12 @@ def module_source(system, jit: bool, batch: bool = False, part: str = "") -> str
     cached = system.__dict__.get(key)
     if cached is None:
         inlined = part or "model"  # the kernel the loops call through its pointer cfunc (``_at_kernel``)
-        if part == "batch":
-            head = ["import math", "from math import *  # noqa: F401,F403", "import numpy as np"]
-            head += (["from numba import cfunc", "from orbitdesk.engine import jitting", "",
-                      f"_batch_kernel = cfunc(jitting.signature('BATCH'), {_CACHE_OPTION}, error_model='numpy')"]
-                     if jit else ["", "", "def _batch_kernel(f):", "    return f", "", "",
-                                  "def _fill_nan(a):", "    a[...] = math.nan"])
+        if part == "batch":  # compiled only: the plain-Python engine's is numpy's (numpy_batch)
+            if not jit:
+                raise ValueError("the plain-Python batched kernel is codegen.vector_source's")
+            head = ["import math", "from math import *  # noqa: F401,F403", "import numpy as np",
+                    "from numba import cfunc", "from orbitdesk.engine import jitting", "",
+                    f"_batch_kernel = cfunc(jitting.signature('BATCH'), {_CACHE_OPTION}, error_model='numpy')"]
         elif jit:
             head = ["import math", "from math import *  # noqa: F401,F403", "import numpy as np",
                     "from numba import carray, cfunc, njit", "from orbitdesk.engine import jitting", "", "",
@@ -228,8 +224,7 @@ def python_engine(system) -> Engine:
     if cached is None:
         kernels = _exec_module(module_source(system, jit=False), f"py{id(system)}")
         cached = system.__dict__["_python_engine"] = Engine(jitting.python_loops(*LOOP_MODULES), kernels, False,
-                                                            partial(module_source, system, jit=False, batch=True),
-                                                            numpy_batch(system))
+                                                            _batch=numpy_batch(system))
     return cached
 
 
@@ -241,11 +236,9 @@ def numpy_batch(system):
     compiled kernels (numpy's error model)."""
     from orbitdesk.system.codegen import vector_kernels
 
-    kernel = vector_kernels(system).batch
-
-    def batch(which, T, z, p, out, count):
+    def batch(which, T, z, p, out, count):  # printed when members first run: a single run never waits for it
         with np.errstate(all="ignore"):
-            kernel(which, T, z, p, out, count)
+            vector_kernels(system).batch(which, T, z, p, out, count)
 
     return batch
 
