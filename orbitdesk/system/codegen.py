@@ -344,7 +344,7 @@ def vector_source(system: CompiledSystem) -> str:
     defines it, each row one numpy expression over the members (numpy's printer: if() as where(), so
     both branches are computed and the one not taken may be undefined), and ``entries(T, z, p, out,
     count)``: the Jacobian's structural entries (in the order of ``JAC_ROWS``/``JAC_COLS``) for each
-    member, row by row. The plain-Python engine's members run on ``batch``; ``CompiledSystem.rhs_vec``
+    member, row by row; ``derived(T, z, p, out, count)`` (a model with derived quantities): their values. The plain-Python engine's members run on ``batch``; ``CompiledSystem.rhs_vec``
     and ``jac_vec`` on both: one generated right-hand side and Jacobian per model. An undefined value
     is NaN (numpy's error model; the caller silences its warnings), anything that raises makes the
     whole block NaN."""
@@ -366,6 +366,12 @@ def vector_source(system: CompiledSystem) -> str:
                     "entries", column)
     lines += ["def entries(T, z, p, out, count):", f"    {t} = T[:count]"] + _indent(store, True,
                                                                                     fill="out[:, :count]")
+    if system.derived_exprs:  # the derived quantities along a run (CompiledSystem.derived_values)
+        store = w.lines(system.plain(system.derived_exprs),
+                        lambda values: [f"out[{k}{column}] = {v}" for k, v in enumerate(values)], "z", "derived",
+                        column)
+        lines += ["", "", "def derived(T, z, p, out, count):", f"    {t} = T[:count]"] + _indent(
+            store, True, fill="out[:, :count]")
     imports = [f"from {module} import {name}" for module, name in sorted(w.imports)]
     return HEADER + VECTOR_HEAD + "\n".join(imports) + "\n\n" + "\n".join(head + lines) + "\n"
 

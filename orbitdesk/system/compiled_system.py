@@ -198,10 +198,6 @@ class CompiledSystem:
         return np.array(rows, dtype=np.intp), np.array(cols, dtype=np.intp)
 
     @cached_property
-    def _derived_vector(self):
-        return self._compile(self.derived_exprs, "numpy") if self.derived_exprs else None
-
-    @cached_property
     def _f_packed(self):
         t, u, p, _ = self._plain
         return lambdify([t, u, p], self.plain(self.f))
@@ -277,7 +273,8 @@ class CompiledSystem:
     def _members(self, which, t, U, P, rows):
         """The generated batched kernels (``codegen.vector_kernels``: the numpy twin of ``batch``) on the
         members in the columns of U (n_states x ...), each at its time (t broadcast) with its parameters
-        (P: (n_params,) or (n_params, ...)): ``which`` 0 gives f, -1 the Jacobian's structural entries."""
+        (P: (n_params,) or (n_params, ...)): ``which`` 0 gives f, -1 the Jacobian's structural entries, -2
+        the derived quantities."""
         from orbitdesk.system.codegen import vector_kernels
 
         U = np.asarray(U, dtype=float)
@@ -291,7 +288,9 @@ class CompiledSystem:
         out = np.empty((rows, count))
         kernels = vector_kernels(self)
         with np.errstate(all="ignore"):  # numbers as numpy's: an undefined value is NaN, a division by zero inf
-            if which < 0:
+            if which == -2:
+                kernels.derived(T, z, p, out, count)
+            elif which == -1:
                 kernels.entries(T, z, p, out, count)
             else:
                 kernels.batch(0, T, z, p, out, count)
@@ -325,12 +324,8 @@ class CompiledSystem:
         """Derived quantities along a run: t has shape (K,), Y shape (n_states, K)."""
         if not self.derived_exprs:
             return {}
-        Y = np.asarray(Y, dtype=float)
-        p = np.asarray(self.param_values if p is None else p, dtype=float)
-        with np.errstate(all="ignore"):
-            values = self._derived_vector(np.asarray(t, dtype=float), *Y, *p)
-        stacked = _stack(values, Y.shape[1:])
-        return {name: stacked[i] for i, name in enumerate(self.derived_names)}
+        values = self._members(-2, t, Y, p, len(self.derived_exprs))
+        return {name: values[i] for i, name in enumerate(self.derived_names)}
 
     # ------------------------------------------------------------ explanations
     def explain_undefined(self, t, u, p=None) -> str | None:
@@ -508,13 +503,6 @@ def _compile_binder(source: str):
 
 def _missing(name, what):
     raise KeyError(f"unknown {what} '{name}'")
-
-
-def _stack(values, shape) -> np.ndarray:
-    out = np.empty((len(values),) + tuple(shape), dtype=float)
-    for i, v in enumerate(values):
-        out[i] = v
-    return out
 
 
 def _first_undefined(expr, values):

@@ -76,3 +76,16 @@ def test_an_undefined_member_is_nan_and_the_others_are_not():
     J = system.jac_vec(0.0, U)
     assert J[:, :, 1].tolist() == [[0.25, 1.0], [0.25, 0.0]]  # d log(x)/dx = 1/x, d sqrt(x)/dx = 1/(2 sqrt x)
     assert np.isnan(J[1, 0, 0]) and J[0, 1, 0] == 1.0
+
+
+def test_derived_quantities_along_a_run_with_parameters_per_member():
+    # closed forms: E = (x^2 + y^2)/2 + k z, and a quantity of the parameters alone broadcast to every point
+    system = compile_model("k = 2\nx' = y\ny' = -x\nz' = 0\nE = (x^2 + y^2)/2 + k*z\nhalf = k/2\n")
+    rng = np.random.default_rng(2)
+    Y = rng.normal(size=(3, 6))
+    t = np.linspace(0.0, 1.0, 6)
+    k = np.linspace(1.0, 3.0, 6)
+    values = system.derived_values(t, Y, k[None, :])
+    assert np.allclose(values["E"], (Y[0] ** 2 + Y[1] ** 2) / 2 + k * Y[2], rtol=1e-15)
+    assert np.array_equal(values["half"], k / 2)
+    assert system.derived_values(t, Y)["half"].tolist() == [1.0] * 6
