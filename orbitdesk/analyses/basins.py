@@ -1,9 +1,12 @@
 """Basins of attraction: a grid of starts in two states (the other states at their initial values), each
 labelled by the attractor its orbit settles on.
 
-All starts run together on the ensemble engine (RK4 for flows, iteration for maps): a transient, then
-``samples`` states taken every ``every`` (time, or iterations of a map; a forced flow is sampled once per
-forcing period, which makes these the stroboscopic basins). Orbits that leave ``escape`` or fail are
+All starts run together on the ensemble engine's member loops: a flow by an adaptive explicit method with
+its tolerances (``method``, ``rtol``, ``atol``: Dormand-Prince 8(5,3) by default, each start with its own
+step control, the states at the sample times read off each step's dense output) or by classical RK4 at a
+fixed step ``dt``; a map by iteration. A transient, then ``samples`` states taken every ``every`` (time, or
+iterations of a map; a forced flow is sampled once per forcing period, which makes these the stroboscopic
+basins). The stiff methods are refused: they run one start at a time, not as members. Orbits that leave ``escape`` or fail are
 labelled escape (-1). The others are grouped by where their samples lie (the range of every state over
 the samples, to ``tol`` of the grid's size): each group is one attractor, described as an equilibrium
 (the samples do not move), a cycle of period k of the map or the stroboscopic map, or for an autonomous
@@ -18,10 +21,12 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from orbitdesk.engine.methods import DEFAULT
 from orbitdesk.engine.model_events import refuse_ensembles
 from orbitdesk.engine.ensembles import iterate_ensemble, rk4_ensemble
 from orbitdesk.analyses.grids import GridAxes
 from orbitdesk.analyses.parameter_maps import minimal_periods
+from orbitdesk.analyses.sweep import _check_accuracy as check_accuracy
 from orbitdesk.engine.progress import Reporter
 from orbitdesk.system.compiled_system import MAP
 
@@ -36,7 +41,10 @@ class BasinSettings:
     samples: int = 48         # states kept per start after the transient
     every: float = 0.5        # between samples (flows without forcing); maps: iterations (rounded)
     period: float | None = None  # forcing period: sample once per period (stroboscopic basins)
-    dt: float = 0.01          # RK4 step (a forcing period is divided exactly)
+    dt: float | None = None   # a fixed RK4 step (a forcing period is divided exactly); None: adaptive steps
+    method: str | None = None  # without dt: an adaptive explicit method of engine/methods.py (None: dop853)
+    rtol: float = 1e-8        # its tolerances (a single run's defaults)
+    atol: float = 1e-10
     escape: float = 1e3       # |state| beyond this counts as escape
     tol: float = 1e-3         # attractors closer than this (relative to the grid's size) are one
 
@@ -46,10 +54,11 @@ class BasinResult(GridAxes):  # x_name, xs, y_name, ys: the two states
     labels: np.ndarray  # (ny, nx): index into attractors, or ESCAPE
     attractors: list[dict] = field(default_factory=list)  # {"label", "kind", "period", "centre", "share"}
     stroboscopic: bool = False
+    method: str = ""  # how a flow's starts were integrated: the adaptive method's name, or "rk4" (fixed step)
 
     def to_dict(self) -> dict:
         return {**self.axes_dict("state"), "labels": self.labels.tolist(), "attractors": self.attractors,
-                "escape": ESCAPE, "stroboscopic": self.stroboscopic}
+                "escape": ESCAPE, "stroboscopic": self.stroboscopic, "method": self.method}
 
 
 def basins(system, x_name: str, xs, y_name: str, ys, settings: BasinSettings | None = None, u0=None, p=None,
@@ -70,6 +79,8 @@ def basins(system, x_name: str, xs, y_name: str, ys, settings: BasinSettings | N
         raise ValueError(f"{xs.size * ys.size:,} starts is more than the {MAX_STARTS:,} allowed")
     if int(s.samples) < 4 or not (s.transient >= 0 and s.escape > 0 and s.tol > 0):
         raise ValueError("basins need at least 4 samples, a transient of 0 or more and a positive escape bound")
+    if system.kind != MAP:
+        check_basin_accuracy(s)
     p = system.param_values.astype(float) if p is None else np.asarray(p, dtype=float)
     u0 = system.initial.astype(float) if u0 is None else np.asarray(u0, dtype=float)
     gx, gy = np.meshgrid(xs, ys)
@@ -87,7 +98,20 @@ def basins(system, x_name: str, xs, y_name: str, ys, settings: BasinSettings | N
     labels, attractors = _merged(labels, attractors, _same_chaos(attractors, tracks))
     report(1.0)
     return BasinResult(x_name, xs, y_name, ys, labels.reshape(ys.size, xs.size), attractors,
-                       stroboscopic=system.kind != MAP and s.period is not None)
+                       stroboscopic=system.kind != MAP and s.period is not None,
+                       method="" if system.kind == MAP else "rk4" if s.dt is not None else s.method or DEFAULT)
+
+
+def check_basin_accuracy(s: BasinSettings) -> None:
+    """A flow's step or adaptive method and tolerances; ValueError in plain words (a stiff method: why not)."""
+    from orbitdesk.engine.methods import NAMES, method
+
+    if s.dt is None and s.method is not None and s.method in NAMES and method(s.method).stiff:
+        raise ValueError(f"basins run every start together in the explicit member loops; the stiff method "
+                         f"'{s.method}' runs one orbit at a time. Choose "
+                         f"{', '.join(m for m in NAMES if method(m).adaptive and not method(m).stiff)} "
+                         "or a fixed RK4 step")
+    check_accuracy(s, stiff_allowed=False)
 
 
 def _run(system, U, p, s: BasinSettings, report):
@@ -103,6 +127,8 @@ def _run(system, U, p, s: BasinSettings, report):
         def advance(V, n_steps, t, part):
             return iterate_ensemble(system, V, p, n_steps=n_steps, n0=int(t), bound=s.escape, cancel=report.cancel,
                                     progress=part), float(n_steps)
+    elif s.dt is None:  # adaptive: one run of every member, the samples read off the dense output
+        return _run_adaptive(system, U, p, s, report)
     else:
         if s.period is not None:
             T = float(s.period)
@@ -127,6 +153,41 @@ def _run(system, U, p, s: BasinSettings, report):
         done += n_steps
         report(done / total)  # also where a cancel is noticed
         out[:, :, k] = V
+    ok &= np.all(np.isfinite(out), axis=(0, 2)) & np.all(np.abs(np.nan_to_num(out, nan=np.inf)) <= s.escape, axis=(0, 2))
+    return out, ok
+
+
+def sample_times(s: BasinSettings) -> np.ndarray:
+    """The times a flow's starts are looked at (from t = 0): after the transient (a forced flow: whole
+    forcing periods, then once per period), ``samples`` of them ``every`` apart."""
+    K = int(s.samples)
+    if s.period is not None:
+        T = float(s.period)
+        return T * (math.ceil(s.transient / T - 1e-9) + np.arange(K))
+    return float(s.transient) + float(s.every) * np.arange(K)
+
+
+def _run_adaptive(system, U, p, s: BasinSettings, report):
+    """``_run`` of a flow by an adaptive method: every start a member of one ``drivers.members_run`` with its
+    own step control, stopped where it passes the escape bound."""
+    from orbitdesk.engine import compiled as kernels
+    from orbitdesk.engine import drivers
+    from orbitdesk.engine.status import OK, words
+
+    grid = sample_times(s)
+    n, M = U.shape
+    out = np.full((n, M, grid.size), np.nan)
+    later = grid > 0.0
+    out[:, :, ~later] = U[:, :, None]  # (a transient of 0: the starts are the first samples)
+    ok = np.ones(M, dtype=bool)
+    if later.any():
+        engine = kernels.engine_for_work(system, 12.0 * M * grid[-1] / 0.05)
+        with np.errstate(all="ignore"):
+            run = drivers.members_run(engine, s.method or DEFAULT, 0.0, float(grid[-1]), U, p, rtol=s.rtol,
+                                      atol=s.atol, bound=s.escape, grid=grid[later], report=report)
+        out[:, :, later] = run.samples
+        ok = words(run.codes) == OK
+    report(1.0)
     ok &= np.all(np.isfinite(out), axis=(0, 2)) & np.all(np.abs(np.nan_to_num(out, nan=np.inf)) <= s.escape, axis=(0, 2))
     return out, ok
 

@@ -292,6 +292,34 @@ def write_grid(args, result, data: dict) -> None:
         print_json(data)
 
 
+def add_accuracy_options(parser, methods, what: str) -> None:
+    """``--dt`` (a fixed RK4 step), ``--method`` (one of ``methods``), ``--rtol``, ``--atol``: how the flows of a
+    command that runs many orbits (sweep, basins) are integrated; read by ``apply_accuracy``."""
+    parser.add_argument("--dt", metavar="H", help="a fixed RK4 step (a strobe period is divided exactly); "
+                        "default: adaptive steps with the run's tolerances")
+    parser.add_argument("--method", choices=list(methods), help=what)
+    parser.add_argument("--rtol", metavar="R", help="relative tolerance of the adaptive steps (default: the run's)")
+    parser.add_argument("--atol", metavar="A", help="absolute tolerance of the adaptive steps (default: the run's)")
+
+
+def apply_accuracy(settings, args, is_map: bool) -> None:
+    """``add_accuracy_options``' options onto ``settings`` (fields dt, method, rtol, atol): --dt fixes the step,
+    --method, --rtol and --atol make it adaptive; a map takes none of them."""
+    for option in ("dt", "rtol", "atol", "method"):
+        if getattr(args, option) is not None and is_map:
+            raise CommandError(f"--{option} applies to flows")
+    if args.dt is not None:
+        if args.rtol is not None or args.atol is not None or args.method is not None:
+            raise CommandError("--dt fixes the step; --method, --rtol and --atol go with adaptive steps")
+        settings.dt = parse_positive(args.dt, "--dt")
+    for option in ("rtol", "atol"):
+        if getattr(args, option) is not None:
+            setattr(settings, option, parse_positive(getattr(args, option), f"--{option}"))
+            settings.dt = None
+    if args.method is not None:
+        settings.method, settings.dt = args.method, None
+
+
 def add_method_option(parser):
     """``--method``: the integration method of an analysis (default: the default method, or the stiff one
     when a probe run shows the system stiff)."""

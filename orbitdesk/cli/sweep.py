@@ -13,7 +13,7 @@ from orbitdesk.engine.limits import LimitExceeded
 from orbitdesk.engine.methods import METHODS, NAMES
 from orbitdesk.system.compiled_system import MAP
 
-from orbitdesk.cli.common import (CommandError, add_value_options, load_system, parse_assignments, parse_number, parse_positive,
+from orbitdesk.cli.common import (CommandError, add_accuracy_options, add_value_options, apply_accuracy, load_system, parse_assignments, parse_number, parse_positive,
                      print_json,
                      read_source, stderr_progress, values_for, write_csv)
 from orbitdesk.cli.run import settings_for
@@ -37,13 +37,9 @@ def register(sub):
     parser.add_argument("--transient", metavar="T", help="time (flows) or iterations (maps) dropped first")
     parser.add_argument("--samples", type=int, metavar="K", help="samples per value (default 100)")
     parser.add_argument("--duration", metavar="T", help="longest sampling time for --plane/--maxima")
-    parser.add_argument("--dt", metavar="H", help="a fixed RK4 step (a strobe period is divided exactly); "
-                        "default: adaptive steps with the run's tolerances")
-    parser.add_argument("--method", choices=[m for m in NAMES if METHODS[m].adaptive],
-                        help="the adaptive method (default: the project's, or dop853 - the stiff one when a probe "
-                             "run shows the system stiff)")
-    parser.add_argument("--rtol", metavar="R", help="relative tolerance of the adaptive steps (default: the run's)")
-    parser.add_argument("--atol", metavar="A", help="absolute tolerance of the adaptive steps (default: the run's)")
+    add_accuracy_options(parser, [m for m in NAMES if METHODS[m].adaptive],
+                         "the adaptive method (default: the project's, or dop853 - the stiff one when a probe run "
+                         "shows the system stiff)")
     parser.add_argument("--lyapunov", action="store_true", help="also the largest Lyapunov exponent per value")
     where = parser.add_argument_group("where the sweep runs (default: one ensemble in this process)")
     where.add_argument("--workers", type=int, metavar="N",
@@ -82,17 +78,7 @@ def sweep_settings(system, source, args) -> SweepSettings:
         if is_map:
             raise CommandError("--duration applies to flows; a map runs --samples iterations")
         settings.duration = parse_positive(args.duration, "--duration")
-    for option in ("dt", "rtol", "atol", "method"):
-        if getattr(args, option) is not None and is_map:
-            raise CommandError(f"--{option} applies to flows")
-    if args.dt is not None:
-        if args.rtol is not None or args.atol is not None or args.method is not None:
-            raise CommandError("--dt fixes the step; --method, --rtol and --atol go with adaptive steps")
-        settings.dt = parse_positive(args.dt, "--dt")
-    for option in ("rtol", "atol"):
-        if getattr(args, option) is not None:
-            setattr(settings, option, parse_positive(getattr(args, option), f"--{option}"))
-            settings.dt = None
+    apply_accuracy(settings, args, is_map)
     if args.transient is not None:
         settings.transient = parse_number(args.transient, "--transient")
         if settings.transient < 0:
@@ -101,8 +87,6 @@ def sweep_settings(system, source, args) -> SweepSettings:
         if args.samples < 1:
             raise CommandError("--samples must be at least 1")
         settings.samples = args.samples
-    if args.method is not None:
-        settings.method, settings.dt = args.method, None
     settings.observe = args.observe
     settings.lyapunov = bool(args.lyapunov)
     try:

@@ -289,3 +289,79 @@ def test_a_grab_of_the_view_shows_the_tick_numbers_and_names(qtbot, session, art
     corner = view.glview.mapTo(view, QPoint(0, 0))
     scene = image.copy(corner.x(), corner.y(), view.glview.width(), view.glview.height())
     assert _text_near_labels(view, pixels(scene)) > 0.8
+
+
+def test_equilibrium_markers_sit_inside_the_box_in_the_runs_scale(qtbot, session, artifacts):
+    # the convection loop's second step (Lorenz at r = 10): the run settles on one steady circulation, and the
+    # origin and the other circulation lay outside the run's box: their markers floated beyond the axes
+    from orbitdesk.analyses.equilibria import find_equilibria
+    from orbitdesk.app.plots.plot_style import SCENE_MARKER
+    from orbitdesk.app.views.phase_space_3d import HALF
+
+    view = make_view(qtbot, session, (700, 600))
+    load(qtbot, session, LORENZ.replace("r = 28", "r = 10"))
+    found = find_equilibria(session.system, session.param_vector())
+    # closed form (Lorenz 1963): the origin and x = y = +-sqrt(beta (r - 1)), z = r - 1
+    c = np.sqrt(8 / 3 * 9)
+    expected = np.array(sorted([(0.0, 0.0, 0.0), (c, c, 9.0), (-c, -c, 9.0)]))
+    assert np.allclose(sorted(tuple(e.vector) for e in found), expected, atol=1e-8)
+    assert max(session.trajectory.series("x")) < c + 4  # the run alone stays near one of them
+    session.set_equilibria(list(found))
+    px = pixels(frame(qtbot, view))
+    pos = np.asarray(view.eq_item.pos, dtype=float)
+    assert pos.shape == (3, 3)
+    assert np.all(np.abs(pos) <= HALF + 1e-6)  # inside the box the axes draw
+    # in the scale of the run and the ticks: box coordinates back to data give the equilibria
+    back = np.array([(pos[:, k] + HALF) / (2 * HALF) * (hi - lo) + lo for k, (lo, hi) in enumerate(view._box)]).T
+    assert np.allclose(sorted(map(tuple, back)), expected, atol=1e-5)
+    # and a marker is painted where each one projects
+    h, w = px.shape[:2]
+    marker = np.array(SCENE_MARKER[:3])
+    for x, y in view.scene_points(pos, w, h):
+        patch = px[int(y) - 3:int(y) + 4, int(x) - 3:int(x) + 4]
+        assert patch.size and np.min(np.abs(patch - marker).sum(axis=2)) < 90  # (drawn at 0.9 opacity)
+    view.grab_image().save(os.path.join(artifacts, "view_3d_equilibria_in_box.png"))
+    # an equilibrium far beyond the run (more than FAR of its spans) is left out instead of squeezing the run
+    from dataclasses import replace
+
+    from orbitdesk.app.views.phase_space_3d import FAR
+
+    far = replace(found[0], vector=np.full(3, 1e6), state={n: 1e6 for n in session.system.states})
+    session.set_equilibria(list(found) + [far])
+    frame(qtbot, view)
+    assert np.asarray(view.eq_item.pos).shape == (3, 3)
+    assert all(hi - lo < 2 * (FAR + 1) * 20 for lo, hi in view._box)
+
+
+BOUNCING = """g = 9.81
+e = 0.8
+x'' = -g             # height of a ball above the floor
+y' = 1               # it moves along at unit speed
+x(0) = 1
+y(0) = 0
+when x < 0 then x' = -e*x'
+"""
+
+
+def test_the_line_is_broken_at_each_event_not_drawn_up_the_jump(qtbot, session, artifacts):
+    # the rattling flap's speed jumps at each hit: the line must end at the value before and go on from the one
+    # after, never joining them (a straight line across the scene)
+    view = make_view(qtbot, session, (600, 500))
+    for samples in (3001, 0):  # on a grid of samples, and every step kept (the event's time twice in the run)
+        traj = load(qtbot, session, BOUNCING, t_end=3.0, samples=samples)
+        assert len(traj.model_events) == 6
+        view.set_axes("y", "x", "x'")
+        frame(qtbot, view)
+        assert view.main_item.mode == "lines"
+        pos = np.asarray(view.main_item.pos, dtype=float)
+        data = np.array([(pos[:, k] + 5.0) / 10.0 * (hi - lo) + lo for k, (lo, hi) in enumerate(view._box)]).T
+        seg = data.reshape(-1, 2, 3)
+        jumps = np.abs(seg[:, 1, 2] - seg[:, 0, 2])
+        # between samples the speed changes by g dt at most (closed form x'' = -g); each bounce jumps by ~8
+        step = np.max(np.diff(traj.time)) if samples else 0.5
+        assert np.max(jumps) < 9.81 * step + 1e-6
+        # each segment ending at an impact ends at the speed before it (-sqrt(2 g h) at the first, h = 1)
+        first = traj.model_events[0]
+        ends = seg[np.isclose(seg[:, 1, 0], first.t), 1, 2]
+        assert np.any(np.isclose(ends, -np.sqrt(2 * 9.81), rtol=1e-6))
+    view.grab_image().save(os.path.join(artifacts, "view_3d_events_broken.png"))

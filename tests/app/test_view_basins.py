@@ -92,3 +92,31 @@ def test_a_limit_cycle_basin_is_kept_in_the_project_and_a_click_runs_the_orbit_f
     wait_for_trajectory(qtbot, s, lambda: window.open_path(tmp_path / "moved.orbitdesk", ask=False))
     qtbot.waitUntil(lambda: view.result is not None, timeout=20000)
     assert not view.stale_bar.isHidden() and "k = 1 (now 1.1)" in view.stale_bar.label.text()
+
+
+def test_the_basins_integrate_by_the_method_chosen_with_the_runs_tolerances(qtbot, session, artifacts):
+    # the two wells are mirror images ((x, x') -> (-x, -x')): on a grid symmetric about the saddle each basin holds
+    # half the starts, whichever method integrates them; the method and step are the view's settings
+    from orbitdesk.engine.methods import METHODS
+
+    view = open_view(qtbot, session, "basins", (900, 700))
+    load_model(qtbot, session, WELLS, dict(t_end=20.0, samples=500, rtol=1e-7, atol=1e-9))
+    combo = view.integration.method
+    offered = [combo.itemData(i) for i in range(combo.count())]
+    assert offered[0] == "automatic" and "rk4" in offered and "rk45" in offered
+    assert not any(METHODS[m].stiff for m in offered[1:])  # the starts run together: no stiff method offered
+    base = {"x": {"state": "x", "from": -2.0, "to": 2.0, "count": 12},
+            "y": {"state": "x'", "from": -2.0, "to": 2.0, "count": 8}, "transient": 120.0, "manifolds": False}
+    for chosen, shown in (({"method": "automatic"}, "Dormand–Prince 8(5,3)"), ({"method": "rk45"}, "Dormand–Prince 5(4)"),
+                          ({"method": "rk4", "dt": 0.02}, "Classical Runge–Kutta at a fixed step")):
+        view.apply_view_settings({**base, **chosen})
+        assert view.integration.dt.isVisible() == (chosen["method"] == "rk4")
+        with qtbot.waitSignal(view.resultChanged, timeout=120000, check_params_cb=lambda r: r is not None):
+            view.compute()
+        r = view.result
+        assert r.method == ("dop853" if chosen["method"] == "automatic" else chosen["method"])
+        assert [a["share"] for a in r.attractors] == [0.5, 0.5]
+        assert f"integrated by {shown}" in view.legend.text()
+        assert view.view_settings()["method"] == chosen["method"]
+    assert view.view_settings()["dt"] == 0.02
+    view.grab().save(f"{artifacts}/basins_method.png")

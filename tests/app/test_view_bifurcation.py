@@ -136,3 +136,41 @@ def test_fold_curves_meeting_at_a_cusp_shade_the_region_of_three_steady_states(q
             margin = 4 * b ** 3 - 27 * a ** 2
             if abs(margin) > 0.15:
                 assert polygon.containsPoint(QPointF(a, b), Qt.FillRule.OddEvenFill) == (margin > 0), (a, b)
+
+
+def test_a_constant_branch_gets_a_readable_axis_on_screen_and_in_the_export(qtbot, session, artifacts):
+    # the Brusselator's steady state has x = a = 1.5 for every b (closed form): the branch of x is flat, and the
+    # axis once spanned 1.4999999 .. 1.5000001 with every tick reading the same long number
+    import os
+
+    from orbitdesk.app.plots.figures import copy_plot, plot_image
+    from orbitdesk.app.views import series_colour
+
+    from .test_plot_export import near, pixels
+
+    load_model(qtbot, session, BRUSSELATOR, dict(t_end=20.0, samples=501))
+    view = make_view(qtbot, session)
+    compute(qtbot, view)
+    view.measure.setCurrentText("x")
+    qtbot.wait(50)
+    ys = np.concatenate([item.getData()[1] for item in view.plot.listDataItems() if item.getData()[1] is not None])
+    assert np.allclose(ys, 1.5, atol=1e-6)  # the branch: x = a
+
+    def readable(plot, height):
+        (y0, y1) = plot.getViewBox().viewRange()[1]
+        assert y0 < 1.5 < y1 and 0.1 <= y1 - y0 <= 1.0  # a span around the value, in its scale
+        axis = plot.getAxis("left")
+        texts = [text for spacing, values in axis.tickValues(y0, y1, height)
+                 for text in axis.tickStrings(values, 1.0, spacing)]
+        assert "1.5" in texts and all(len(t) <= 5 for t in texts) and len(set(texts)) == len(texts)
+        assert not axis.autoSIPrefix or axis.autoSIPrefixScale == 1.0
+
+    readable(view.plot, view.plot_widget.height())
+    for fit in (False, True):  # the export as on screen and fitted to the data
+        copy = copy_plot(view.plot, 640, 420, host=view, fit=fit)
+        readable(copy.getPlotItem(), 420)
+        copy.close()
+    image = plot_image(view.plot, 640, 420, host=view, fit=True)
+    image.save(os.path.join(artifacts, "bifurcation_flat_branch.png"))
+    rows = np.nonzero(near(pixels(image), series_colour(0, view)).any(axis=1))[0]
+    assert rows.size and 0.3 * 420 < np.median(rows) < 0.7 * 420  # the branch runs across the middle

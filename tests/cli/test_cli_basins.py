@@ -22,3 +22,18 @@ def test_basins_json_and_csv(capsys, model, tmp_path):
     assert rows[0] == ["x", "x'", "attractor (-1: escape)"] and len(rows) == 3
     code, _, err = run_cli(capsys, "basins", model(WELLS), "--x", "v=0:1:2", "--y", "x'=0:1:2")
     assert code != 0 and "unknown state 'v'" in err
+
+
+def test_basins_take_the_method_and_tolerances_or_a_fixed_step(capsys, model):
+    # by symmetry (x, x') -> (-x, -x') the two wells' basins on a grid symmetric about the saddle are half and half
+    grid = ["--x", "x=-2:2:6", "--y", "x'=-1.5:1.5:4", "--transient", "120", "--samples", "6"]
+    for options, method in ((["--method", "rk45", "--rtol", "1e-7"], "rk45"), (["--dt", "0.02"], "rk4"), ([], "dop853")):
+        code, out, err = run_cli(capsys, "basins", model(WELLS), *grid, *options)
+        assert code == 0, err
+        data = json.loads(out)
+        assert data["method"] == method
+        assert sorted(a["share"] for a in data["attractors"]) == [0.5, 0.5]
+    code, _, err = run_cli(capsys, "basins", model(WELLS), *grid, "--dt", "0.02", "--method", "rk45")
+    assert code != 0 and "--dt fixes the step" in err
+    code, _, err = run_cli(capsys, "basins", model(WELLS), *grid, "--method", "stiff")
+    assert code != 0 and "invalid choice" in err

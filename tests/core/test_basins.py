@@ -83,3 +83,40 @@ def test_an_autonomous_limit_cycle_is_found_with_its_period_beside_an_equilibriu
     inside = np.hypot(gx, gy) < 1  # no start on the unstable circle r = 1 in this grid
     assert np.all(result.labels[inside] == by_kind["equilibrium"]["label"])
     assert np.all(result.labels[~inside] == cycle["label"])
+
+
+@pytest.mark.parametrize("how", [dict(method="dop853"), dict(method="rk45", rtol=1e-7, atol=1e-9), dict(dt=0.02)])
+def test_the_double_wells_basins_are_half_and_half_by_symmetry_with_each_method(how):
+    # x'' = -delta x' + x - x^3 is unchanged by (x, x') -> (-x, -x'): on a grid symmetric about the saddle each
+    # start's mirror image goes to the other well, so the two basins hold exactly half the starts each
+    system = compile_model(WELLS)
+    xs, ys = np.linspace(-2, 2, 10), np.linspace(-1.5, 1.5, 8)  # even counts: no start on the saddle
+    result = basins(system, "x", xs, "x'", ys, BasinSettings(transient=150.0, samples=8, every=0.5, **how))
+    assert result.method == how.get("method", "rk4") and result.to_dict()["method"] == result.method
+    assert [a["share"] for a in result.attractors] == [0.5, 0.5]
+    assert sorted(round(a["centre"]["x"], 4) for a in result.attractors) == [-1.0, 1.0]  # closed form
+    assert np.all(result.labels != result.labels[::-1, ::-1])  # the mirror start: the other well
+    sign = {a["label"]: 1 if a["centre"]["x"] > 0 else -1 for a in result.attractors}
+    for j in (0, 3, 6):  # a few starts against single runs of scipy's solve_ivp
+        for i in (1, 4, 8):
+            assert sign[result.labels[j, i]] == reference_well(xs[i], ys[j]), (xs[i], ys[j])
+
+
+def test_a_damped_linear_oscillator_has_one_basin_the_whole_grid():
+    # x'' = -0.5 x' - x: every start decays to the origin (closed form: a stable focus, eigenvalues -0.25 +- 0.97i)
+    system = compile_model("x'' = -0.5*x' - x\nx(0) = 1\n")
+    grid = np.linspace(-5, 5, 12)
+    result = basins(system, "x", grid, "x'", grid, BasinSettings(transient=80.0, samples=6, every=1.0))
+    assert result.method == "dop853"
+    (only,) = result.attractors
+    assert only["kind"] == "equilibrium" and only["share"] == 1.0
+    assert abs(only["centre"]["x"]) < 1e-6 and abs(only["centre"]["x'"]) < 1e-6
+    assert np.all(result.labels == only["label"])
+
+
+def test_basins_refuse_a_stiff_method_and_bad_tolerances_in_words():
+    system = compile_model(WELLS)
+    with pytest.raises(ValueError, match="stiff method 'stiff' runs one orbit at a time"):
+        basins(system, "x", [0.0, 1.0], "x'", [0.0], BasinSettings(method="stiff"))
+    with pytest.raises(ValueError, match="tolerances must be positive"):
+        basins(system, "x", [0.0, 1.0], "x'", [0.0], BasinSettings(rtol=0.0))

@@ -68,27 +68,57 @@ class EventMarks:
         return f"{len(events):,} event{'s' if len(events) != 1 else ''}{more}: ring before, dot after"
 
 
-def through_events(trajectory, x_name: str, y_name: str, x, y):
-    """``x``, ``y`` (the run's values of ``x_name``, ``y_name`` at its samples) with each event's values
-    before and after it put in at its time and the line broken between them: a drawn curve ends on the
-    boundary the event fired at and goes on from the values the event set (the marks' dashed line is
-    the jump), instead of a straight line from the last sample before the event to the first after it."""
+TIME_NAMES = ("t", "n")
+
+
+def through_events(trajectory, names, columns, time=None):
+    """``columns`` (the run's values of ``names`` at the sample times ``time``, by default the run's own)
+    broken at each of the run's events, the one way every view draws a trajectory of a model with events
+    (time series, phase plane, 3D, their exported pictures): a drawn line ends on the boundary the event
+    fired at and goes on from the values the event set (the marks' dashed line is the jump), instead of a
+    straight line from the last sample before the event to the first after it (a vertical line in the time
+    series where a speed is reset). Each event puts in its values before and after it at its time with a
+    gap (NaN) between; the time column ("t", "n") holds the event's time in all three rows, so it stays
+    ordered. A column the event's record does not hold (a derived quantity) gets NaN there: the line is
+    still broken. Where the samples already hold the event's time twice (every step kept, stiff methods:
+    before, then after), only the gap goes between them. Returns a list of arrays."""
+    columns = [None if c is None else np.asarray(c, dtype=float) for c in columns]
     events = list(getattr(trajectory, "model_events", None) or []) if trajectory is not None else []
-    if not events or x is None or len(x) != len(trajectory.time):
-        return x, y
-    put, xs, ys = [], [], []
+    time = np.asarray(trajectory.time if time is None and trajectory is not None else time, dtype=float)
+    if not events or time.size == 0 or any(c is None or c.shape != time.shape for c in columns):
+        return columns
+    at, rows = [], []
     for ev in events:
-        xb, yb = _value(ev, ev.before, x_name), _value(ev, ev.before, y_name)
-        xa, ya = _value(ev, ev.after, x_name), _value(ev, ev.after, y_name)
-        if None in (xb, yb, xa, ya):
+        t = float(ev.t)
+        if not time[0] <= t <= time[-1]:  # (in a transient left out, or beyond what is drawn)
             continue
-        put.append(ev.t)
-        xs += [xb, np.nan, xa]
-        ys += [yb, np.nan, ya]
-    if not put:
-        return x, y
-    at = np.repeat(np.searchsorted(trajectory.time, np.asarray(put, dtype=float), side="right"), 3)
-    return np.insert(np.asarray(x, dtype=float), at, xs), np.insert(np.asarray(y, dtype=float), at, ys)
+        gap = [t if n in TIME_NAMES else np.nan for n in names]
+        left, right = int(np.searchsorted(time, t, side="left")), int(np.searchsorted(time, t, side="right"))
+        if right - left >= 2:  # the samples hold the values before and after: break between them
+            at.append(left + 1)
+            rows.append(gap)
+            continue
+        before = [_known(_value(ev, ev.before, n)) for n in names]
+        after = [_known(_value(ev, ev.after, n)) for n in names]
+        if right - left == 1 and _same(before, [c[left] for c in columns]):
+            at += [right, right]  # the one sample at the event holds the values before it
+            rows += [gap, after]
+        else:
+            at += [left] * 3
+            rows += [before, gap, after]
+    if not at:
+        return columns
+    at = np.asarray(at, dtype=np.int64)
+    values = np.asarray(rows, dtype=float)
+    return [np.insert(c, at, values[:, k]) for k, c in enumerate(columns)]
+
+
+def _known(value):
+    return np.nan if value is None else value
+
+
+def _same(a, b) -> bool:
+    return all(np.isnan(u) or u == v for u, v in zip(a, b))
 
 
 def _value(ev, values: dict, name: str):
@@ -102,4 +132,4 @@ def _tip(x, y, data):
     return str(data)
 
 
-__all__ = ["EventMarks", "MAX_MARKED", "through_events"]
+__all__ = ["EventMarks", "MAX_MARKED", "TIME_NAMES", "through_events"]

@@ -356,10 +356,62 @@ def _plain_tick_strings(axis, values, scale, spacing):
     return tick_texts([v * scale for v in values], spacing * scale)
 
 
+FLAT = 1e-6  # data whose span is at most this share of its size is flat: shown over FLAT_SPAN around it
+FLAT_SPAN = 0.1  # a flat range's half-width as a share of its value (1 around zero)
+
+
+def readable_span(lo, hi):
+    """(lo, hi) of data to fit a plot to, a flat range (a constant branch, round-off of about 1e-9 on 1.5)
+    widened to FLAT_SPAN of its value either side, 1 around zero: never an axis from 1.4999999 to
+    1.5000001 whose tick numbers all read 1.5, nor pyqtgraph's keeping the previous range's scale."""
+    if lo is None or hi is None or not (math.isfinite(lo) and math.isfinite(hi)):
+        return lo, hi
+    size = max(abs(lo), abs(hi))
+    if hi - lo > FLAT * size:
+        return lo, hi
+    mid = 0.5 * (lo + hi)
+    half = FLAT_SPAN * abs(mid) if mid != 0 else 1.0
+    return mid - half, mid + half
+
+
+# the items whose bounds are their data (a text's are its anchor, a guide line's (0, 0), an image's none)
+_DATA_ITEMS = (pg.PlotDataItem, pg.PlotCurveItem, pg.ScatterPlotItem)
+
+
+def _readable_bounds(vb) -> None:
+    """The view box fits itself (auto-range, ``autoRange``) to ``readable_span`` of its items' bounds."""
+    if getattr(vb, "_readable_bounds", False):
+        return
+    vb._readable_bounds = True
+    bounds = vb.childrenBounds
+
+    def children_bounds(frac=None, orthoRange=(None, None), items=None):
+        full = bounds(frac, orthoRange, items)
+        # flatness is judged on the items' data as they hold it: a text's or a marker's extent is in pixels,
+        # so in data units it follows the range shown, and the view's mapping adds round-off of its own
+        listed = vb.addedItems if items is None else items
+        data = [i for i in listed if isinstance(i, _DATA_ITEMS) and i.isVisible() and i.scene() is vb.scene()]
+        out = []
+        for ax, r in enumerate(full):
+            spans = [i.dataBounds(ax, frac=(frac or (1.0, 1.0))[ax], orthoRange=orthoRange[ax]) for i in data]
+            spans = [b for b in spans if b is not None and None not in b[:2] and np.all(np.isfinite(b[:2]))]
+            if r is None or not spans:
+                out.append(r)
+                continue
+            core = (min(float(b[0]) for b in spans), max(float(b[1]) for b in spans))
+            wide = readable_span(*core)
+            out.append(r if wide == core else [min(r[0], wide[0]), max(r[1], wide[1])])  # (an image's extent too)
+        return out
+
+    vb.childrenBounds = children_bounds
+
+
 def plain_axes(plot_item) -> None:
     """Tick labels in the data's own numbers on every axis of a plot: no automatic SI-prefix scale
-    factors ("x (x0.001)" with ticks of 800 misleads), ticks formatted by ``tick_texts``. Every plot of
-    the app goes through this (``views.style_plot`` calls it)."""
+    factors ("x (x0.001)" with ticks of 800 misleads), ticks formatted by ``tick_texts``, and a flat range
+    of data fitted to a readable span around its value (``readable_span``). Every plot of the app goes
+    through this (``views.style_plot`` calls it; so does a copy for export)."""
+    _readable_bounds(plot_item.getViewBox())
     for name in ("left", "bottom", "right", "top"):
         axis = plot_item.getAxis(name)
         axis.enableAutoSIPrefix(False)

@@ -45,7 +45,9 @@ def curve_values_at(plot_item, x: float) -> list[tuple[str, float]]:
         k = min(max(k, 1), len(xs) - 1)
         x0, x1 = float(xs[k - 1]), float(xs[k])
         w = 0.0 if x1 == x0 else (x - x0) / (x1 - x0)
-        out.append((str(item.name()), float(ys[k - 1] + w * (ys[k] - ys[k - 1]))))
+        value = float(ys[k - 1] + w * (ys[k] - ys[k - 1]))
+        if np.isfinite(value):  # (not in a gap: a curve broken at an event)
+            out.append((str(item.name()), value))
     return out
 
 

@@ -1,6 +1,7 @@
 """Parts of the 3D scene that do not depend on the view: GL items with one shader program per context,
-thinning, round tick values, the data box, solid colour arrays, and lines broken where a wrapped angle goes
-round (drawn as separate segments)."""
+thinning, round tick values, the data box and its frame (grid, edges, tick numbers and names), solid colour
+arrays, and lines broken at gaps (the model's events) and where a wrapped angle goes round (drawn as separate
+segments)."""
 
 from __future__ import annotations
 
@@ -108,6 +109,20 @@ def wrap_breaks(xyz: np.ndarray, wrapped_columns) -> np.ndarray | None:
     return np.flatnonzero(jumps) if jumps.any() else None
 
 
+def broken_line(pos: np.ndarray, colour: np.ndarray, wrapped_columns):
+    """(pos, colour, breaks) of a line's finite points, with the indices i where the line from point i to
+    i + 1 must not be drawn: a gap (points not finite between them: an event's break, a part left out) or a
+    wrapped angle going round; breaks None when the line is one strip."""
+    ok = np.all(np.isfinite(pos), axis=1)
+    index = np.flatnonzero(ok)
+    pos, colour = pos[ok], colour[ok]
+    breaks = np.flatnonzero(np.diff(index) > 1)
+    wraps = wrap_breaks(pos, wrapped_columns)
+    if wraps is not None:
+        breaks = np.union1d(breaks, wraps)
+    return pos, colour, (breaks if breaks.size else None)
+
+
 def strip_as_segments(pos: np.ndarray, colour: np.ndarray, breaks: np.ndarray):
     """A line strip as pairs of points (GL "lines" mode) without the segments that start at ``breaks``."""
     keep = np.ones(max(pos.shape[0] - 1, 0), dtype=bool)
@@ -116,3 +131,43 @@ def strip_as_segments(pos: np.ndarray, colour: np.ndarray, breaks: np.ndarray):
     pairs = np.empty(2 * i.size, dtype=np.int64)
     pairs[0::2], pairs[1::2] = i, i + 1
     return pos[pairs], colour[pairs]
+
+
+def box_frame(box, half: float, names, font, text_colour):
+    """(grid segments, box edges, labels) of the frame around the data ``box`` [(lo, hi)] * 3 drawn as the
+    cube [-half, half]^3: a floor grid, two back walls, the three axes with tick values and ``names``.
+    Labels are (box position, text, colour, font) each, the names in bold.
+
+    Seen from the starting camera (from +x, -y, above): x runs along the front-left floor edge,
+    y along the front-right one, z up the left corner; the walls x = low and y = high are behind."""
+    from PySide6.QtGui import QFont
+
+    from orbitdesk.app.plots.plot_style import number_text
+
+    ticks = [nice_ticks(lo, hi, 5) for lo, hi in box]
+    tx, ty, tz = ((t - lo) / (hi - lo) * 2 * half - half for t, (lo, hi) in zip(ticks, box))
+    h = half
+    seg = []
+    for x in tx:  # floor, and up the back wall y = high
+        seg += [(x, -h, -h), (x, h, -h), (x, h, -h), (x, h, h)]
+    for y in ty:  # floor, and up the back wall x = low
+        seg += [(-h, y, -h), (h, y, -h), (-h, y, -h), (-h, y, h)]
+    for z in tz:  # rungs on both back walls
+        seg += [(-h, -h, z), (-h, h, z), (-h, h, z), (h, h, z)]
+    edges = [(-h, -h, -h), (h, -h, -h),   # x axis
+             (h, -h, -h), (h, h, -h),     # y axis
+             (-h, -h, -h), (-h, -h, h),   # z axis
+             (-h, h, -h), (-h, h, h), (h, h, -h), (h, h, h), (-h, -h, h), (-h, h, h), (-h, h, h), (h, h, h)]
+    bold = QFont(font)
+    bold.setBold(True)
+    labels = []
+    label_pos = [(0.0, -h * 1.28, -h), (h * 1.28, 0.0, -h), (-h * 1.08, -h * 1.08, h * 1.1)]
+    for k in range(3):
+        for v, b in zip(ticks[k], (tx, ty, tz)[k]):
+            if abs(b) > h * 0.94 and (k < 2 or b < 0):
+                continue  # keep the corners free for the neighbouring axis
+            where = [(b, -h * 1.1, -h), (h * 1.1, b, -h), (-h * 1.08, -h * 1.08, b)][k]
+            labels.append((np.array(where, dtype=float), number_text(v, 4), text_colour, font))
+        if names[k]:
+            labels.append((np.array(label_pos[k], dtype=float), names[k], text_colour, bold))
+    return (np.array(seg, dtype=np.float32).reshape(-1, 3), np.array(edges, dtype=np.float32), labels)

@@ -19,6 +19,7 @@ from orbitdesk.app.plots.plot_style import JobStrip, NumberBox, number_text, pla
 from orbitdesk.app.views.common import (apply_numbers, check_box, clicked_point, control_row, push_button,
                                         set_quietly, status_label, status_row)
 from orbitdesk.app.views.grid_axes import GridAxes, GridView, grid_rect
+from orbitdesk.app.views.method_step import MethodStep
 
 ESCAPE_COLOUR = "#9a9a9a"
 MAX_SIDE = 300
@@ -47,6 +48,12 @@ class BasinsView(GridView):
         self.period = NumberBox(2 * np.pi, 1e-9, 1e9, step=0.1)
         self.period.setToolTip("The forcing period")
         self.period.valueChanged.connect(lambda _v: setattr(self, "_user_period", True))
+        self.integration = MethodStep("How each start is integrated: Automatic takes Dormand–Prince 8(5,3) with "
+                                      "the run's tolerances, each start with its own step; or another adaptive "
+                                      "method; or classical Runge–Kutta at a fixed step. (The stiff methods run "
+                                      "one orbit at a time, not every start together: not offered here.)",
+                                      "The fixed step of classical Runge–Kutta (a forcing period is divided "
+                                      "exactly)", stiff=False)
         self.manifolds = check_box("Saddle manifolds", "Draw the stable manifolds of the saddles (two-state "
                                    "flows): the edges of the basins", True, self._manifolds_toggled)
         self.run_button = push_button("Compute", "Run every start and colour it by where it goes", self.compute)
@@ -85,7 +92,8 @@ class BasinsView(GridView):
         layout = self.main_layout()
         layout.addLayout(self.axes.row("x", "starts", None, self.run_button, stretch=False))
         layout.addLayout(self.axes.row("y", "starts"))
-        layout.addLayout(control_row("Settle for", self.transient, 8, self.strobe, self.period, 8, self.manifolds))
+        layout.addLayout(control_row("Settle for", self.transient, *self.integration.widgets(), 8, self.strobe,
+                                     self.period, 8, self.manifolds))
         layout.addLayout(status_row(self.info, self.strip))
         layout.addWidget(self.plot_widget, 1)
         layout.addWidget(self.legend_scroll)
@@ -95,7 +103,8 @@ class BasinsView(GridView):
     # ------------------------------------------------------------ view protocol
     def view_settings(self) -> dict:
         return {**self.axes.settings(), "transient": float(self.transient.value()), "strobe": self.strobe.isChecked(),
-                "period": float(self.period.value()), "manifolds": self.manifolds.isChecked()}
+                "period": float(self.period.value()), "manifolds": self.manifolds.isChecked(),
+                **self.integration.settings()}
 
     def apply_view_settings(self, d: dict) -> None:
         if not isinstance(d, dict):
@@ -106,6 +115,8 @@ class BasinsView(GridView):
             set_quietly(self.strobe, d["strobe"])
         if isinstance(d.get("manifolds"), bool):
             set_quietly(self.manifolds, d["manifolds"])
+        if "method" in d or "dt" in d:  # (saved before the method choice: the control keeps "Automatic")
+            self.integration.apply(d)
         self._want_axes(d)
 
     # ------------------------------------------------------------ public
@@ -121,8 +132,9 @@ class BasinsView(GridView):
             return
         from orbitdesk.analyses.basins import BasinSettings, basins
 
-        settings = BasinSettings(transient=float(self.transient.value()),
-                                 dt=float(self.session.solver.dt or 0.01))
+        settings = BasinSettings(transient=float(self.transient.value()), dt=self.integration.step(),
+                                 method=self.integration.method_name(), rtol=float(self.session.solver.rtol),
+                                 atol=float(self.session.solver.atol))
         if s.kind != "map" and self.strobe.isChecked():
             settings.period = float(self.period.value())
         p, u0 = self.session.param_vector(), self.session.initial_vector()
@@ -139,6 +151,7 @@ class BasinsView(GridView):
         self.axes.apply_wanted()
         forced = system.kind != "map" and not system.autonomous
         self.strobe.setEnabled(system.kind != "map")
+        self.integration.set_hidden(system.kind == "map")
         if forced and not self.strobe.isChecked() and not self._user_period:
             set_quietly(self.strobe, True)
         self._on_values()
@@ -192,6 +205,8 @@ class BasinsView(GridView):
                              pen=[pg.mkPen(self.colour_of(p[2]).darker(160), width=2) for p in points])
         rows = [f"<span style='color:{colour.name()}'>■</span> {text}" for colour, text in self.figure_legend(None, result)]
         what = "stroboscopic basins, once per forcing period" if result.stroboscopic else "basins"
+        if getattr(result, "method", ""):
+            what += f", integrated by {method_words(result.method)}"
         self.legend.setText(f"<b>{len(result.attractors)} attractor{'s' if len(result.attractors) != 1 else ''}"
                             f"</b> ({what})<br>" + "<br>".join(rows))
         self.plot.autoRange(padding=0.02)
@@ -318,6 +333,16 @@ class BasinsView(GridView):
 
     def _restyle(self) -> None:
         style_plot(self.plot_widget, self)
+
+
+def method_words(name: str) -> str:
+    """A method of the registry by its label (classical Runge–Kutta: at a fixed step)."""
+    from orbitdesk.engine.methods import METHODS
+
+    info = METHODS.get(name)
+    if info is None:
+        return html.escape(name)
+    return html.escape(info.label) + ("" if info.adaptive else " at a fixed step")
 
 
 def cell_index(values, v: float):

@@ -1,4 +1,4 @@
-"""How a view that integrates for itself (the sweep, the Lyapunov exponents) integrates: one control pair
+"""How a view that integrates for itself (the sweep, the Lyapunov exponents, the basins) integrates: one control pair
 for both, the method off the one registry (engine/methods.py) and the fixed step beside it, shown only
 when the fixed-step method is chosen. Saved as ``{"method": NAME or "automatic", "dt": STEP}``."""
 
@@ -13,16 +13,17 @@ AUTOMATIC = "automatic"  # the method choice that takes the default, or the stif
 FIXED = "rk4"            # the fixed-step method: the step box shows with it
 
 
-def method_combo(tip: str, fixed_step: bool = False, slot=None) -> QComboBox:
+def method_combo(tip: str, fixed_step: bool = False, slot=None, stiff: bool = True) -> QComboBox:
     """The integration method, from the one registry (engine/methods.py): "Automatic" first (the default
     method, or the stiff one when a probe run shows stiffness), then every adaptive method by its label;
-    with ``fixed_step`` the fixed-step ones too. Each entry's data is the method's name."""
+    with ``fixed_step`` the fixed-step ones too; without ``stiff`` no stiff method (work that runs many
+    orbits together in the explicit member loops: basins). Each entry's data is the method's name."""
     from orbitdesk.engine.methods import METHODS
 
     combo = combo_box(tip)
     combo.addItem("Automatic", AUTOMATIC)
     for name, info in METHODS.items():
-        if info.adaptive or fixed_step:
+        if (info.adaptive or fixed_step) and (stiff or not info.stiff):
             combo.addItem(info.label, name)
     if slot is not None:
         combo.currentIndexChanged.connect(slot)
@@ -49,9 +50,9 @@ class MethodStep:
     """The method combo box ("by ...") and the fixed step ("step ...") of a view, as four widgets for its
     control row (``widgets()``). ``changed`` (optional) is called when either changes."""
 
-    def __init__(self, tip: str, step_tip: str, changed=None, step: float = 0.01):
+    def __init__(self, tip: str, step_tip: str, changed=None, step: float = 0.01, stiff: bool = True):
         self.method_label, self.dt_label = QLabel("by"), QLabel("step")
-        self.method = method_combo(tip, fixed_step=True, slot=self._on_method)
+        self.method = method_combo(tip, fixed_step=True, slot=self._on_method, stiff=stiff)
         choose_method_quietly(self.method, None)
         self.dt = NumberBox(step, 1e-7, 10.0, ratio=2.0)
         self.dt.setToolTip(step_tip)

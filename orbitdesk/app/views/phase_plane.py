@@ -362,7 +362,7 @@ class PhasePlaneView(SessionView):
             return x, y
         angles = angle_states(self.system) if self.system is not None else []
         if self.x_name not in angles and self.y_name not in angles:  # (an event's values are not wrapped)
-            x, y = through_events(traj, self.x_name, self.y_name, x, y)
+            x, y = through_events(traj, (self.x_name, self.y_name), (x, y))
         return break_at_wraps(x, y)
 
     def _draw_trajectory(self) -> None:

@@ -16,10 +16,11 @@ from orbitdesk.app.views import SERIES_COLOURS
 from orbitdesk.app.views.common import (SessionView, check_box, combo_box, control_row, coordinate_names, cycle_columns,
                      equilibrium_coordinates,
                      apply_numbers, fill_combo, is_number, run_time_name, runs_job, set_quietly, values_at_time)
-from orbitdesk.app.plots.plot_style import (SCENE_BACKGROUND, SCENE_GRID, SCENE_MARKER, SCENE_TEXT, JobStrip, NumberBox, number_text,
+from orbitdesk.app.plots.plot_style import (SCENE_BACKGROUND, SCENE_GRID, SCENE_MARKER, SCENE_TEXT, JobStrip, NumberBox,
                           rgba, time_colours)
-from orbitdesk.app.plots.scene3d import (_gl_item_classes, _solid, _solid_rgba, data_box, nice_ticks, strip_as_segments,
-                                         thin_indices, wrap_breaks)
+from orbitdesk.app.plots.event_marks import through_events
+from orbitdesk.app.plots.scene3d import (_gl_item_classes, _solid, _solid_rgba, box_frame, broken_line, data_box,
+                                         strip_as_segments, thin_indices)
 from orbitdesk.language.angles import angle_states, wrap
 
 HALF = 5.0                  # the box spans [-HALF, HALF] on every axis
@@ -33,6 +34,7 @@ DEFAULT_CAMERA = {"distance": 23.0, "elevation": 22.0, "azimuth": -58.0, "center
 COLOUR_MODES = ("time", "trajectory")
 WIDE_ASPECT = 1.6  # width / height up to which the starting camera shows the whole box
 FIGURE_MARGIN = 0.94  # a figure's box with its labels reaches this share of the half-width or half-height
+FAR = 10.0  # an equilibrium farther than this many spans of the runs' box beyond it is left out (not drawn)
 
 
 class PhaseSpace3DView(SessionView):
@@ -127,9 +129,9 @@ class PhaseSpace3DView(SessionView):
         self.glview.installEventFilter(self)
         self._rerun_timer.timeout.connect(self._rerun_extra)
         self.reset_camera()
-        session.equilibriaChanged.connect(lambda _items: self._draw_equilibria())
+        session.equilibriaChanged.connect(lambda _items: self._draw_markers())
         session.equilibriumSelected.connect(lambda _index: self._draw_equilibria())
-        session.cycleChanged.connect(lambda _c: self._draw_cycle())
+        session.cycleChanged.connect(lambda _c: self._draw_markers())
         session.startsRequested.connect(self._on_starts_requested)
         self.follow_session(values=self._on_values, trajectory=self._on_trajectory, cursor=self._update_cursor)
 
@@ -345,7 +347,7 @@ class PhaseSpace3DView(SessionView):
         self._schedule_extra()
 
     def _on_values(self) -> None:
-        self._draw_equilibria()  # found for other values: not drawn
+        self._draw_markers()  # equilibria found for other values: not drawn
         self._schedule_extra()
 
     def _on_trajectory(self, trajectory) -> None:
@@ -437,11 +439,23 @@ class PhaseSpace3DView(SessionView):
         return [k for k, name in enumerate(self.axes()) if name in angles]
 
     def _line_data(self, pos, colour):
-        """(pos, colour, GL mode) of a run's line: one strip, or segments broken where an angle goes round."""
-        breaks = wrap_breaks(pos, self._wrapped_columns())
+        """(pos, colour, GL mode) of a run's line (its finite points): one strip, or segments broken at the
+        model's events (the gaps ``_run_line`` put in) and where an angle goes round."""
+        pos, colour, breaks = broken_line(pos, colour, self._wrapped_columns())
         if breaks is None:
             return pos, colour, "line_strip"
         return (*strip_as_segments(pos, colour, breaks), "lines")
+
+    def _run_line(self, run, xyz, limit: int):
+        """(pos, time) of a run's line: at most ``limit`` of its samples, broken at the model's events like
+        every view's trajectory (``event_marks.through_events``; an event's values are not wrapped, so not
+        where an angle is shown wrapped: that line breaks where the angle goes round)."""
+        keep = thin_indices(xyz.shape[0], limit)
+        pos, time = xyz[keep], run.time[keep]
+        if run.kind != "map" and getattr(run, "model_events", None) and not self._wrapped_columns():
+            *cols, time = through_events(run, self.axes() + ["t"], [pos[:, 0], pos[:, 1], pos[:, 2], time], time)
+            pos = np.column_stack(cols)
+        return pos, time
 
     def _to_box(self, xyz: np.ndarray) -> np.ndarray:
         out = np.empty_like(xyz, dtype=np.float32)
@@ -457,24 +471,43 @@ class PhaseSpace3DView(SessionView):
         # kept for the time cursor, which moves often: unwrapped (read between samples, then wrapped)
         self._main_xyz = self._coords(self.trajectory, wrapped=False) if self._wrapped_columns() and main is not None \
             else main
-        extras = []  # (xyz, time, kind, role index)
+        extras = []  # (run, xyz, role index)
         for i, run in enumerate(self.added_runs):
             if run is not None and run.time.size:
                 xyz = self._coords(run)
                 if xyz is not None:
-                    extras.append((xyz, run.time, run.kind, ("added", i)))
+                    extras.append((run, xyz, ("added", i)))
         for i, run in enumerate(self.spread_runs):
             if run is not None and run.time.size:
                 xyz = self._coords(run)
                 if xyz is not None:
-                    extras.append((xyz, run.time, run.kind, ("spread", i)))
-        self._box = data_box([main] + [e[0] for e in extras])
+                    extras.append((run, xyz, ("spread", i)))
+        self._runs_xyz = [main] + [e[1] for e in extras]
+        self._box = self._scene_box()
         self._draw_frame()
         self._draw_main(main)
         self._draw_extras(extras)
         self._draw_equilibria()
         self._draw_cycle()
         self._update_cursor(self.session.time_cursor)
+
+    def _scene_box(self):
+        """The data box: the runs, the cycle and the equilibria (those not farther than FAR of the runs'
+        spans beyond them) all inside it, so every item is drawn in the box the axes show, to their scale."""
+        runs = [a for a in getattr(self, "_runs_xyz", []) if a is not None]
+        cycle = self._cycle_xyz()
+        if cycle is not None:
+            runs.append(cycle)
+        points = self._equilibrium_xyz()
+        return data_box(runs + ([points] if points is not None and len(points) else []))
+
+    def _draw_markers(self) -> None:
+        """The equilibria and the cycle after they changed: the whole scene again when its box changes."""
+        if self._scene_box() != self._box:
+            self._redraw_all()
+            return
+        self._draw_equilibria()
+        self._draw_cycle()
 
     def _draw_main(self, xyz) -> None:
         traj = self.trajectory
@@ -484,13 +517,11 @@ class PhaseSpace3DView(SessionView):
             self.main_item.setVisible(False)
             self.main_points.setVisible(False)
             return
-        keep = thin_indices(xyz.shape[0], MAX_DRAWN_POINTS)
-        pos, time = xyz[keep], traj.time[keep]
-        ok = np.all(np.isfinite(pos), axis=1)
-        pos, time = pos[ok], time[ok]
         alpha = 0.3 if self.spread_runs else 0.95  # in the background while nearby starts are shown
+        pos, time = self._run_line(traj, xyz, MAX_DRAWN_POINTS)
         colour = time_colours(time, alpha) if self._colour_by_time() else _solid(SERIES_COLOURS[0][1], alpha, len(pos))
-        coarse = thin_indices(len(pos), MOVING_POINTS)
+        # while the camera moves: a subset, keeping the gaps (events) so the line stays broken there
+        coarse = np.union1d(thin_indices(len(pos), MOVING_POINTS), np.flatnonzero(~np.isfinite(pos).all(axis=1)))
         self._main_data = tuple((self._to_box(p), c, mode) for p, c, mode in
                                 (self._line_data(pos, colour), self._line_data(pos[coarse], colour[coarse])))
         self.main_item.setVisible(traj.kind != "map")
@@ -533,23 +564,21 @@ class PhaseSpace3DView(SessionView):
             self.glview.addItem(dots)
             self.extra_items.append((line, dots))
         by_time = self._colour_by_time()
-        for (line, dots), (xyz, time, kind, (role, i)) in zip(self.extra_items, extras):
-            keep = thin_indices(xyz.shape[0], MAX_EXTRA_POINTS)
-            pos, t = xyz[keep], time[keep]
-            ok = np.all(np.isfinite(pos), axis=1)
-            pos, t = pos[ok], t[ok]
+        for (line, dots), (run, xyz, (role, i)) in zip(self.extra_items, extras):
+            pos, t = self._run_line(run, xyz, MAX_EXTRA_POINTS)
+            kind = run.kind
             if role == "spread":  # one hue per nearby start, so their separation shows
                 colour = _solid(SERIES_COLOURS[i % len(SERIES_COLOURS)][1], 0.85, len(pos))
             elif by_time:
                 colour = time_colours(np.abs(t - t[0]) if t.size else t, 0.8)
             else:
                 colour = _solid(SERIES_COLOURS[2][1], 0.85, len(pos))
+            pos, colour, mode = self._line_data(pos, colour)
             if kind == "map":
                 dots.setData(pos=self._to_box(pos), color=colour, size=2.5)
                 dots.setVisible(True)
                 line.setVisible(False)
             else:
-                pos, colour, mode = self._line_data(pos, colour)
                 line.setData(pos=self._to_box(pos), color=colour, width=1.2, mode=mode)
                 line.setVisible(True)
                 dots.setVisible(False)
@@ -558,80 +587,73 @@ class PhaseSpace3DView(SessionView):
             dots.setVisible(False)
 
     def _draw_frame(self) -> None:
-        """A floor grid, two back walls, the three axes with tick values and names, scaled to the data.
-
-        Seen from the starting camera (from +x, -y, above): x runs along the front-left floor edge,
-        y along the front-right one, z up the left corner; the walls x = low and y = high are behind."""
-        ticks = [nice_ticks(lo, hi, 5) for lo, hi in self._box]
-        tx, ty, tz = ((t - lo) / (hi - lo) * 2 * HALF - HALF for t, (lo, hi) in zip(ticks, self._box))
-        h = HALF
-        seg = []
-        for x in tx:  # floor, and up the back wall y = high
-            seg += [(x, -h, -h), (x, h, -h), (x, h, -h), (x, h, h)]
-        for y in ty:  # floor, and up the back wall x = low
-            seg += [(-h, y, -h), (h, y, -h), (-h, y, -h), (-h, y, h)]
-        for z in tz:  # rungs on both back walls
-            seg += [(-h, -h, z), (-h, h, z), (-h, h, z), (h, h, z)]
-        self.grid_item.setData(pos=np.array(seg, dtype=np.float32).reshape(-1, 3),
-                               color=_solid_rgba(SCENE_GRID, 0.28, len(seg)), width=1.0, mode="lines")
-        edges = [(-h, -h, -h), (h, -h, -h),   # x axis
-                 (h, -h, -h), (h, h, -h),     # y axis
-                 (-h, -h, -h), (-h, -h, h),   # z axis
-                 (-h, h, -h), (-h, h, h), (h, h, -h), (h, h, h), (-h, -h, h), (-h, h, h), (-h, h, h), (h, h, h)]
-        self.axes_item.setData(pos=np.array(edges, dtype=np.float32), color=_solid_rgba(SCENE_GRID, 0.9, len(edges)),
-                               width=1.4, mode="lines")
+        """A floor grid, two back walls, the three axes with tick values and names, scaled to the data
+        (``scene3d.box_frame``)."""
         font = QFont(self.font())
         font.setPointSizeF(max(7.0, font.pointSizeF() * 0.85))
-        bold = QFont(font)
-        bold.setBold(True)
-        text = QColor(*SCENE_TEXT)
-        names = self.axes()
-        labels = []
-        label_pos = [(0.0, -h * 1.28, -h), (h * 1.28, 0.0, -h), (-h * 1.08, -h * 1.08, h * 1.1)]
-        for k in range(3):
-            for v, b in zip(ticks[k], (tx, ty, tz)[k]):
-                if abs(b) > h * 0.94 and (k < 2 or b < 0):
-                    continue  # keep the corners free for the neighbouring axis
-                where = [(b, -h * 1.1, -h), (h * 1.1, b, -h), (-h * 1.08, -h * 1.08, b)][k]
-                labels.append((np.array(where, dtype=float), number_text(v, 4), text, font))
-            if names[k]:
-                labels.append((np.array(label_pos[k], dtype=float), names[k], text, bold))
+        grid, edges, labels = box_frame(self._box, HALF, self.axes(), font, QColor(*SCENE_TEXT))
+        self.grid_item.setData(pos=grid, color=_solid_rgba(SCENE_GRID, 0.28, len(grid)), width=1.0, mode="lines")
+        self.axes_item.setData(pos=edges, color=_solid_rgba(SCENE_GRID, 0.9, len(edges)), width=1.4, mode="lines")
         self.glview.set_labels(labels)
 
-    def _draw_equilibria(self) -> None:
+    def _equilibria_shown(self) -> list:
+        """(equilibrium, its point on the three axes) of each equilibrium drawn: found for the values in use,
+        with coordinates on the axes, and not far beyond the runs (FAR)."""
         s = self.system
         if s is None or not self.equilibria:
-            self.eq_item.setVisible(False)
-            return
-        pts, sizes, colours = [], [], []
-        names = self.axes()
-        p = self.session.param_vector()
+            return []
+        names, p = self.axes(), self.session.param_vector()
+        wrapped = self._wrapped_columns()
+        out = []
         for eq in self.equilibria:
             found = equilibrium_coordinates(s, eq, names, p)
             if found is None:
                 continue
-            pts.append(found[1])
-            chosen = eq is self.selected_equilibrium
-            sizes.append(15.0 if chosen else 9.0)
-            colours.append(rgba(QColor(SERIES_COLOURS[1][1]), 1.0) if chosen else rgba(SCENE_MARKER, 0.9))
-        if not pts:
+            point = np.array(found[1], dtype=float)
+            point[wrapped] = wrap(point[wrapped])
+            if np.all(np.isfinite(point)):
+                out.append((eq, point))
+        runs = [a for a in getattr(self, "_runs_xyz", []) if a is not None and np.isfinite(a).all(axis=1).any()]
+        if runs and out:
+            box = np.array(data_box(runs, pad=0.0))
+            span = np.maximum(box[:, 1] - box[:, 0], 1e-12)
+            out = [(eq, x) for eq, x in out
+                   if np.all((x >= box[:, 0] - FAR * span) & (x <= box[:, 1] + FAR * span))]
+        return out
+
+    def _equilibrium_xyz(self):
+        shown = self._equilibria_shown()
+        return np.array([x for _eq, x in shown], dtype=float) if shown else None
+
+    def _draw_equilibria(self) -> None:
+        shown = self._equilibria_shown()
+        if not shown:
             self.eq_item.setVisible(False)
             return
-        pts = np.array(pts, dtype=float)
-        for k in self._wrapped_columns():
-            pts[:, k] = wrap(pts[:, k])
+        pts = np.array([x for _eq, x in shown], dtype=float)
+        chosen = [eq is self.selected_equilibrium for eq, _x in shown]
+        sizes = [15.0 if c else 9.0 for c in chosen]
+        colours = [rgba(QColor(SERIES_COLOURS[1][1]), 1.0) if c else rgba(SCENE_MARKER, 0.9) for c in chosen]
         self.eq_item.setData(pos=self._to_box(pts), size=np.array(sizes),
                              color=np.array(colours, dtype=np.float32))
         self.eq_item.setVisible(True)
 
-    def _draw_cycle(self) -> None:
-        """The limit cycle of the cycle view, bold and in the highlight colour (a map's: its points)."""
+    def _cycle_xyz(self):
+        """The limit cycle of the cycle view on the three axes (None: none, or not on these axes)."""
+        if self.system is None:
+            return None
         cols = cycle_columns(self.system, self.session.current_cycle(), self.session.param_vector())
         names = self.axes()
-        if not all(n in cols for n in names) or getattr(self, "_box", None) is None:
+        if not all(n in cols for n in names):
+            return None
+        return np.column_stack([wrap(cols[n]) if k in self._wrapped_columns() else cols[n] for k, n in enumerate(names)])
+
+    def _draw_cycle(self) -> None:
+        """The limit cycle of the cycle view, bold and in the highlight colour (a map's: its points)."""
+        pos = self._cycle_xyz()
+        if pos is None:
             self.cycle_item.setVisible(False)
             return
-        pos = np.column_stack([wrap(cols[n]) if k in self._wrapped_columns() else cols[n] for k, n in enumerate(names)])
         colour = _solid(SERIES_COLOURS[1][1], 1.0, len(pos))
         mode = "lines"
         if self.system.kind != "map":

@@ -10,7 +10,7 @@ from PySide6.QtWidgets import (QHBoxLayout, QLabel, QListWidget, QListWidgetItem
                                QVBoxLayout)
 
 from orbitdesk.analyses.spectra import mean_power_spectrum, power_spectrum, spectrum_extent
-from orbitdesk.app.plots.event_marks import EventMarks
+from orbitdesk.app.plots.event_marks import EventMarks, through_events
 from orbitdesk.app.views import empty_hint, muted_colour, series_colour, style_plot
 from orbitdesk.app.plots.data_overlay import TIME, DataOverlay
 from orbitdesk.app.plots.plot_style import ScreenCurve
@@ -273,8 +273,10 @@ class TimeSeriesView(SessionView):
             elif noisy:
                 y = self._draw_realisations(name, series_colour(index, self), log_y)
                 x = realisations.time
-            elif log_y:
-                y = np.where(y > 0, y, np.nan)
+            else:  # broken at the model's events: no line drawn up or down the jump
+                x, y = through_events(traj, ("t", name), (x, y))
+                if log_y:
+                    y = np.where(y > 0, y, np.nan)
             curve = self._curves.get(name)
             if curve is None:
                 curve = ScreenCurve(name=name, ordered_x=True)  # min/max per pixel column of what is in view
