@@ -120,3 +120,30 @@ def test_the_basins_integrate_by_the_method_chosen_with_the_runs_tolerances(qtbo
         assert view.view_settings()["method"] == chosen["method"]
     assert view.view_settings()["dt"] == 0.02
     view.grab().save(f"{artifacts}/basins_method.png")
+
+
+FORCED_WELLS = "gamma = 0 in [0, 1]\nx'' = -0.3*x' + x - x^3 + gamma*cos(1.2*t)\nx(0) = 0.5\n"
+
+
+def test_a_forcing_switched_off_by_its_parameter_gives_the_autonomous_basins(qtbot, session):
+    # at gamma = 0 the shaken wells are the unforced ones: looked at in time, two equilibria (closed form x = +-1);
+    # with the forcing on, the view looks once per forcing period (the stroboscopic basins)
+    view = open_view(qtbot, session, "basins", (900, 700))
+    load_model(qtbot, session, FORCED_WELLS, dict(t_end=20.0, samples=500))
+    assert not view.strobe.isChecked()
+    view.apply_view_settings({"x": {"state": "x", "from": -2.0, "to": 2.0, "count": 6},
+                              "y": {"state": "x'", "from": -2.0, "to": 2.0, "count": 4}, "transient": 60.0,
+                              "manifolds": False})
+    with qtbot.waitSignal(view.resultChanged, timeout=120000, check_params_cb=lambda r: r is not None):
+        view.compute()
+    assert not view.result.stroboscopic
+    assert sorted((round(a["centre"]["x"], 4), a["kind"]) for a in view.result.attractors) == [
+        (-1.0, "equilibrium"), (1.0, "equilibrium")]
+    session.set_param("gamma", 0.05)
+    assert view.strobe.isChecked()
+    session.set_param("gamma", 0.0)
+    assert not view.strobe.isChecked()  # ticked for the forcing, unticked with it
+    view.strobe.click()  # the user's own choice stays
+    session.set_param("gamma", 0.1)
+    session.set_param("gamma", 0.0)
+    assert view.strobe.isChecked()

@@ -40,6 +40,7 @@ class BasinsView(GridView):
         super().__init__(session, parent)
         self.manifold_items: list = []
         self._user_period = False
+        self._auto_strobe = False  # the strobe was ticked because the flow is forced (not by the user)
         self.axes = GridAxes("state", {"x": (-2.0, 2.0, 80), "y": (-2.0, 2.0, 60)}, MAX_SIDE)
         self.transient = NumberBox(200.0, 0.0, 1e9, step=10.0)
         self.transient.setToolTip("Time (flows) or iterations (maps) before looking where a start has gone")
@@ -48,6 +49,7 @@ class BasinsView(GridView):
         self.period = NumberBox(2 * np.pi, 1e-9, 1e9, step=0.1)
         self.period.setToolTip("The forcing period")
         self.period.valueChanged.connect(lambda _v: setattr(self, "_user_period", True))
+        self.strobe.clicked.connect(lambda _on: setattr(self, "_auto_strobe", False))
         self.integration = MethodStep("How each start is integrated: Automatic takes Dormand–Prince 8(5,3) with "
                                       "the run's tolerances, each start with its own step; or another adaptive "
                                       "method; or classical Runge–Kutta at a fixed step. (The stiff methods run "
@@ -149,13 +151,28 @@ class BasinsView(GridView):
         self.system = system
         self.axes.offer(system.states)
         self.axes.apply_wanted()
-        forced = system.kind != "map" and not system.autonomous
         self.strobe.setEnabled(system.kind != "map")
         self.integration.set_hidden(system.kind == "map")
-        if forced and not self.strobe.isChecked() and not self._user_period:
-            set_quietly(self.strobe, True)
         self._on_values()
         self.show_document_result()
+
+    def _on_values(self) -> None:
+        super()._on_values()
+        self._strobe_if_forced()
+
+    def _strobe_if_forced(self) -> None:
+        """A forced flow is looked at once per forcing period unless the user chose otherwise; a forcing switched
+        off by its parameter (its amplitude at 0) leaves an autonomous flow, looked at in time (its equilibria)."""
+        s = self.system
+        if s is None or s.kind == "map" or s.autonomous:
+            return
+        forced = not s.autonomous_at(self.session.param_vector())
+        if forced and not self.strobe.isChecked() and not self._user_period:
+            set_quietly(self.strobe, True)
+            self._auto_strobe = True
+        elif not forced and self.strobe.isChecked() and self._auto_strobe:
+            set_quietly(self.strobe, False)
+            self._auto_strobe = False
 
     def show_result(self, result) -> None:
         if result.x_name not in self.system.states or result.y_name not in self.system.states:
