@@ -365,3 +365,16 @@ def test_the_line_is_broken_at_each_event_not_drawn_up_the_jump(qtbot, session, 
         ends = seg[np.isclose(seg[:, 1, 0], first.t), 1, 2]
         assert np.any(np.isclose(ends, -np.sqrt(2 * 9.81), rtol=1e-6))
     view.grab_image().save(os.path.join(artifacts, "view_3d_events_broken.png"))
+
+
+def test_a_flat_axis_gets_a_span_around_its_value_with_plain_distinct_ticks(qtbot, session):
+    # y moves by 2e-10 around 1.5 (closed form y = 1.5 + 1e-10 sin t): its axis once spanned 2e-10 with every
+    # tick number reading 1.5; like the 2D plots' flat ranges it now spans 10% of the value either side
+    view = make_view(qtbot, session, (600, 500))
+    load(qtbot, session, "x' = -x\ny' = 1e-10*cos(t)\nz' = -0.5*z\nx(0) = 1\ny(0) = 1.5\nz(0) = 1\n")
+    frame(qtbot, view)
+    lo, hi = view._box[1]
+    assert lo < 1.5 < hi and 0.25 < hi - lo < 0.4
+    names = ["x", "y", "z"]
+    texts = [text for pos, text, *_r in view.scene_labels() if text not in names and abs(pos[1]) < 5.0 and pos[0] > 5.0]
+    assert "1.5" in texts and len(set(texts)) == len(texts) >= 3

@@ -8,9 +8,9 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from PySide6.QtGui import QColor
+from PySide6.QtGui import QColor, QFont
 
-from orbitdesk.app.plots.plot_style import rgba
+from orbitdesk.app.plots.plot_style import number_text, readable_span, rgba
 
 _ITEM_CLASSES: dict = {}
 
@@ -82,9 +82,7 @@ def data_box(arrays, pad: float = 0.04):
         a, b = lo[k], hi[k]
         if not (math.isfinite(a) and math.isfinite(b)):
             a, b = -1.0, 1.0
-        if b - a <= 1e-12 * max(1.0, abs(a), abs(b)):
-            w = max(abs(a) * 0.1, 1.0)
-            a, b = a - w, b + w
+        a, b = readable_span(a, b)  # a flat axis: a span around its value (the 2D plots' rule)
         d = (b - a) * pad
         out.append((a - d, b + d))
     return out
@@ -140,10 +138,6 @@ def box_frame(box, half: float, names, font, text_colour):
 
     Seen from the starting camera (from +x, -y, above): x runs along the front-left floor edge,
     y along the front-right one, z up the left corner; the walls x = low and y = high are behind."""
-    from PySide6.QtGui import QFont
-
-    from orbitdesk.app.plots.plot_style import number_text
-
     ticks = [nice_ticks(lo, hi, 5) for lo, hi in box]
     tx, ty, tz = ((t - lo) / (hi - lo) * 2 * half - half for t, (lo, hi) in zip(ticks, box))
     h = half
