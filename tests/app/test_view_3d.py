@@ -13,6 +13,17 @@ def load(qtbot, session, text, **solver):
     return load_model(qtbot, session, text, dict(t_end=40.0, samples=8001), **solver)
 
 
+def seen_segments(item):
+    """(the (k, k + 1) index pairs of a GL line strip's segments that are seen, how many breaks it has): a break
+    is a run of joins with a fully transparent end."""
+    alpha = np.asarray(item.color)[:, 3] if np.ndim(item.color) == 2 else np.ones(len(item.pos))
+    assert item.mode == "line_strip"
+    seen = (alpha[:-1] > 0) & (alpha[1:] > 0)
+    k = np.flatnonzero(seen)
+    breaks = int(np.sum(np.diff(np.concatenate([[1], seen.astype(int)])) == -1))
+    return np.column_stack([k, k + 1]), breaks
+
+
 def make_view(qtbot, session, size=(760, 560)):
     return open_view(qtbot, session, "phase_space_3d", size)
 
@@ -191,19 +202,17 @@ def test_an_angle_axis_is_wrapped_and_the_line_broken_where_it_goes_round(qtbot,
     traj = load(qtbot, session, SPINNING, t_end=60.0, samples=6001)
     view.set_axes("theta", "theta'", "z")
     frame(qtbot, view)
-    assert view.main_item.mode == "lines"  # segments, none across the wrap
     lo, hi = view._box[0]
     theta = (view.main_item.pos[:, 0] + 5.0) / 10.0 * (hi - lo) + lo  # box coordinates back to data
     assert theta.min() > -np.pi - 1e-6 and theta.max() <= np.pi + 1e-6
-    seg = theta.reshape(-1, 2)
-    assert np.max(np.abs(seg[:, 1] - seg[:, 0])) < np.pi  # no segment drawn across the plane
+    seg, hidden = seen_segments(view.main_item)  # one strip, its joins across the wrap fully transparent
+    assert np.max(np.abs(np.diff(theta[seg], axis=1))) < np.pi  # no segment seen across the plane
     # the reference: scipy's solve_ivp on the same equations; the turns made = the times theta passed pi + 2 pi k
     ref = solve_ivp(lambda t, u: [u[1], -np.sin(u[0]) - 0.05 * u[1]], (0, 60), [0.0, 3.2], rtol=1e-10, atol=1e-12,
                     dense_output=True)
     turns = int(np.floor((ref.sol(60.0)[0] - np.pi) / (2 * np.pi))) + 1
     assert turns >= 2
-    drawn_segments = seg.shape[0]
-    assert drawn_segments == traj.time.size - 1 - turns  # one segment left out per turn
+    assert seg.shape[0] == traj.time.size - 1 - turns and hidden == turns  # one segment left out per turn
     # the time cursor sits at the wrapped angle (read between samples unwrapped, then wrapped)
     t = 7.77
     session.set_time_cursor(t)
@@ -352,10 +361,11 @@ def test_the_line_is_broken_at_each_event_not_drawn_up_the_jump(qtbot, session, 
         assert len(traj.model_events) == 6
         view.set_axes("y", "x", "x'")
         frame(qtbot, view)
-        assert view.main_item.mode == "lines"
         pos = np.asarray(view.main_item.pos, dtype=float)
         data = np.array([(pos[:, k] + 5.0) / 10.0 * (hi - lo) + lo for k, (lo, hi) in enumerate(view._box)]).T
-        seg = data.reshape(-1, 2, 3)
+        index, hidden = seen_segments(view.main_item)
+        assert hidden == 6  # one break per impact
+        seg = data[index]
         jumps = np.abs(seg[:, 1, 2] - seg[:, 0, 2])
         # between samples the speed changes by g dt at most (closed form x'' = -g); each bounce jumps by ~8
         step = np.max(np.diff(traj.time)) if samples else 0.5

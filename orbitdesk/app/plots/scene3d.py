@@ -1,7 +1,7 @@
 """Parts of the 3D scene that do not depend on the view: GL items with one shader program per context,
 thinning, round tick values, the data box and its frame (grid, edges, tick numbers and names), solid colour
-arrays, and lines broken at gaps (the model's events) and where a wrapped angle goes round (drawn as separate
-segments)."""
+arrays, and lines broken at gaps (the model's events) and where a wrapped angle goes round (one strip with
+invisible joins)."""
 
 from __future__ import annotations
 
@@ -108,27 +108,30 @@ def wrap_breaks(xyz: np.ndarray, wrapped_columns) -> np.ndarray | None:
 
 
 def broken_line(pos: np.ndarray, colour: np.ndarray, wrapped_columns):
-    """(pos, colour, breaks) of a line's finite points, with the indices i where the line from point i to
-    i + 1 must not be drawn: a gap (points not finite between them: an event's break, a part left out) or a
-    wrapped angle going round; breaks None when the line is one strip."""
+    """(pos, colour) of a line's finite points as one strip, broken where it must not be drawn on: at a gap
+    (points not finite between them: an event's break, a part left out) and where a wrapped angle goes round.
+    A break is an invisible join (its two ends again, fully transparent), not separate segments: GL draws a
+    strip of short segments solid, the same segments drawn one by one came out dotted."""
     ok = np.all(np.isfinite(pos), axis=1)
     index = np.flatnonzero(ok)
-    pos, colour = pos[ok], colour[ok]
+    pos, colour = pos[ok], np.asarray(colour, dtype=np.float32)[ok]
     breaks = np.flatnonzero(np.diff(index) > 1)
     wraps = wrap_breaks(pos, wrapped_columns)
     if wraps is not None:
         breaks = np.union1d(breaks, wraps)
-    return pos, colour, (breaks if breaks.size else None)
+    if not breaks.size:
+        return pos, colour
+    at = np.repeat(breaks + 1, 2)
+    ends = np.column_stack([breaks, breaks + 1]).ravel()  # point i and point i + 1 of each break, again
+    hidden = colour[ends].copy()
+    hidden[:, 3] = 0.0
+    return np.insert(pos, at, pos[ends], axis=0), np.insert(colour, at, hidden, axis=0)
 
 
-def strip_as_segments(pos: np.ndarray, colour: np.ndarray, breaks: np.ndarray):
-    """A line strip as pairs of points (GL "lines" mode) without the segments that start at ``breaks``."""
-    keep = np.ones(max(pos.shape[0] - 1, 0), dtype=bool)
-    keep[breaks[breaks < keep.size]] = False
-    i = np.flatnonzero(keep)
-    pairs = np.empty(2 * i.size, dtype=np.int64)
-    pairs[0::2], pairs[1::2] = i, i + 1
-    return pos[pairs], colour[pairs]
+def hidden_joins(colour: np.ndarray) -> np.ndarray:
+    """Indices i of a strip made by ``broken_line`` whose segment from point i to i + 1 is not seen."""
+    alpha = np.asarray(colour)[:, 3]
+    return np.flatnonzero((alpha[:-1] == 0) | (alpha[1:] == 0))
 
 
 def box_frame(box, half: float, names, font, text_colour):

@@ -20,7 +20,7 @@ from orbitdesk.app.plots.plot_style import (SCENE_BACKGROUND, SCENE_GRID, SCENE_
                           rgba, time_colours)
 from orbitdesk.app.plots.event_marks import through_events
 from orbitdesk.app.plots.scene3d import (_gl_item_classes, _solid, _solid_rgba, box_frame, broken_line, data_box,
-                                         strip_as_segments, thin_indices)
+                                         thin_indices)
 from orbitdesk.language.angles import angle_states, wrap
 
 HALF = 5.0                  # the box spans [-HALF, HALF] on every axis
@@ -439,12 +439,9 @@ class PhaseSpace3DView(SessionView):
         return [k for k, name in enumerate(self.axes()) if name in angles]
 
     def _line_data(self, pos, colour):
-        """(pos, colour, GL mode) of a run's line (its finite points): one strip, or segments broken at the
+        """(pos, colour, GL mode) of a run's line (its finite points): one strip, broken (invisible joins) at the
         model's events (the gaps ``_run_line`` put in) and where an angle goes round."""
-        pos, colour, breaks = broken_line(pos, colour, self._wrapped_columns())
-        if breaks is None:
-            return pos, colour, "line_strip"
-        return (*strip_as_segments(pos, colour, breaks), "lines")
+        return (*broken_line(pos, colour, self._wrapped_columns()), "line_strip")
 
     def _run_line(self, run, xyz, limit: int):
         """(pos, time) of a run's line: at most ``limit`` of its samples, broken at the model's events like
