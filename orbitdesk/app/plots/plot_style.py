@@ -400,7 +400,9 @@ def _readable_bounds(vb) -> None:
                 continue
             core = (min(float(b[0]) for b in spans), max(float(b[1]) for b in spans))
             wide = readable_span(*core)
-            out.append(r if wide == core else [min(r[0], wide[0]), max(r[1], wide[1])])  # (an image's extent too)
+            # widened only where everything shown is narrower than that span (an image's extent, a text's: kept)
+            narrow = wide != core and r[1] - r[0] < wide[1] - wide[0]
+            out.append([min(r[0], wide[0]), max(r[1], wide[1])] if narrow else r)
         return out
 
     vb.childrenBounds = children_bounds
