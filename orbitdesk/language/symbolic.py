@@ -188,6 +188,11 @@ def _checked_constant(expr: sp.Expr, node, what: str = "this constant") -> sp.Ex
                          for a in numbers}
                 if any(tamed[a] is not a for a in numbers):
                     expr = expr.func(*[tamed.get(a, a) for a in expr.args])
+        powers = {part: _float_exponent(part) for part in (expr, *expr.args)
+                  if (part.is_Pow or isinstance(part, sp.exp)) and part.exp.free_symbols}
+        changed = {part: new for part, new in powers.items() if new is not part}
+        if changed:
+            expr = changed[expr] if expr in changed else expr.func(*[changed.get(a, a) for a in expr.args])
         return expr
     floats_only = False
     try:
@@ -214,6 +219,25 @@ def _holds_huge_number(expr: sp.Expr) -> bool:
         return False  # a number alone was sized by its caller
     return any(abs(n) > MAX_MAGNITUDE or n.is_Rational and max(abs(n.p), n.q) > MAX_EXACT
                for n in expr.atoms(sp.Number))
+
+
+def _float_exponent(power: sp.Expr) -> sp.Expr:
+    """``power`` (b^e or exp(e)) with each whole coefficient beyond MAX_SYMBOLIC_EXPONENT in ``e`` as a float.
+
+    sympy's polynomial code (which its own mod calls for a gcd) reads exp(10^299 x) as exp(x) to the
+    power 10^299 and builds a list of that length: mod(c, exp(1e299*x)) never ended. A float
+    coefficient is not split off, and the model computes in doubles anyway."""
+    base, exponent = power.as_base_exp()
+    terms = sp.Add.make_args(exponent)
+    new_terms = []
+    for term in terms:
+        coefficient, rest = term.as_coeff_Mul(rational=True)
+        if coefficient.is_Rational and abs(coefficient.p) > MAX_SYMBOLIC_EXPONENT and rest.free_symbols:
+            term = sp.Mul(sp.Float(coefficient), rest, evaluate=False)
+        new_terms.append(term)
+    if all(a is b for a, b in zip(new_terms, terms)):
+        return power
+    return sp.Pow(base, sp.Add(*new_terms, evaluate=False))
 
 
 def _check_exponent(exponent: sp.Expr, node) -> None:

@@ -43,7 +43,8 @@ def _log(x, base=None):
 _DOUBLE_OF = {
     sp.sin: np.sin, sp.cos: np.cos, sp.tan: np.tan, sp.asin: np.arcsin, sp.acos: np.arccos, sp.atan: np.arctan,
     sp.atan2: np.arctan2, sp.sinh: np.sinh, sp.cosh: np.cosh, sp.tanh: np.tanh, sp.exp: np.exp, sp.log: _log,
-    sp.Abs: np.abs, sp.sign: np.sign, sp.floor: np.floor, sp.ceiling: np.ceil, sp.Min: lambda *a: reduce(np.minimum, a), sp.Max: lambda *a: reduce(np.maximum, a),
+    sp.Abs: np.abs, sp.sign: np.sign, sp.floor: np.floor, sp.ceiling: np.ceil,
+    sp.Min: lambda *a: reduce(np.minimum, a), sp.Max: lambda *a: reduce(np.maximum, a),  # nan if any is
     sp.Mod: lambda a, b: a - b * np.floor(a / b),  # sympy's Mod: the sign of the divisor
     sp.Heaviside: lambda x, *_: np.nan if np.isnan(x) else (0.0 if x < 0 else (0.5 if x == 0 else 1.0)),
 }

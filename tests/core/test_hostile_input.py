@@ -305,6 +305,8 @@ def test_legal_hostile_looking_inputs_evaluate_correctly(outcomes):
     assert outcomes["mod_of_cancelling_constants.txt"]["rhs"] == [pytest.approx(417 % (-math.pi / 2) + 3, rel=1e-12)]
     # sin(atan(y)) = y/sqrt(1 + y^2) and y cos(atan(y)) = y/sqrt(1 + y^2): both 1 within 1e-600 for y = 1e300
     assert outcomes["constant_with_huge_parts.txt"]["rhs"] == [pytest.approx(2.0, rel=1e-15)]
+    # mod(2.5, e^0) + mod(7, 2^2) at x = 0
+    assert outcomes["mod_of_exp_with_huge_coefficient.txt"]["rhs"] == [3.5]
     # the chain of conditions over conditions, evaluated step by step in Python at x = 0.5
     a = min(0.5, 1)
     for step in ("sqrt", "sqrt", "sqrt", "sin", "abs", "sin", "min", "min", "tanh", "if", "floor", "if", "tanh",
