@@ -26,15 +26,13 @@ import numpy as np
 
 from orbitdesk.engine.explicit_rk import (A_ALL, B_ALL, C_ALL, ERROR_EXPONENT, MAX_FACTOR, MIN_FACTOR, PAUSED, SAFETY,
                                           STAGES, error_norm, first_choice, first_trial, read_points, state_code)
-from orbitdesk.engine.jitting import inner, loop, noref
+from orbitdesk.engine import members_numpy
+from orbitdesk.engine.jitting import inner, loop, noref, numpy_version
 from orbitdesk.engine.status import C_STEP_FAILED
 from orbitdesk.engine.tangent import orthonormalise
-
-# rows of MS, the per-member scalars of the members in flight
-R_T, R_H, R_ACC, R_REJ, R_LASTREJ, R_END, R_SAMP, R_FULL, R_NEV, R_ISTART, R_GI, R_STEP, R_CLAMP, R_HTRY = range(14)
-R_ID, R_TARGET, R_MIN, R_GIVE_UP = 14, 15, 16, 17  # R_GIVE_UP: set by the driver (its pace, drivers._Pace)
-MS_ROWS = 18
-# BS: [members in flight, next member to start, members finished]
+from orbitdesk.engine.member_rows import (MS_ROWS, R_ACC, R_CLAMP, R_CODE, R_END, R_FULL, R_GI, R_GIVE_UP, R_H,
+                                          R_HTRY, R_ID, R_ISTART, R_LASTREJ, R_MIN, R_NEV, R_REJ, R_SAMP, R_STEP,
+                                          R_T, R_TARGET, R_VERDICT, V_END, V_LOOK, V_PASSED)
 
 
 @inner
@@ -51,6 +49,7 @@ def one_call(g, which, t, y, p, out, T1, Z1, P1, O1):
 
 
 @noref
+@numpy_version(members_numpy.combine_columns)
 def _combine_columns(w, s, skip, Z, K, MS, out, count):
     """out = Z + step * sum_j w[j] K[j] for the members in columns 0 .. count - 1 (``skip``: zero
     weights left out, as ``explicit_rk._combine`` does), in the same order of operations as one member."""
@@ -207,7 +206,6 @@ def members_advance(f, g, kind, adaptive, U, P, t0, t_end, rtol, atol, max_step,
     A = A_ALL[kind]
     Bw = B_ALL[kind]
     C = C_ALL[kind]
-    exponent = ERROR_EXPONENT[kind]
     n_planes = planes.shape[0]
     E = ev_t.shape[1]
     T1 = np.empty(1)
@@ -246,87 +244,38 @@ def members_advance(f, g, kind, adaptive, U, P, t0, t_end, rtol, atol, max_step,
             return 0
         if used >= max_steps:
             return PAUSED
-        # each member's step towards its segment's end
-        for c in range(count):
-            t = MS[R_T, c]
-            end = MS[R_END, c]
-            direction = 1.0 if end > t0 else -1.0
-            target = end
-            if MS[R_SAMP, c] == 0.0 and (target - t_keep) * direction > 0.0:
-                target = t_keep
-            boundary = MS[R_ISTART, c] + direction * interval
-            if m > 0 and (target - boundary) * direction > 1e-9 * interval:
-                target = boundary
-            MS[R_TARGET, c] = target
-            min_step = 10.0 * abs(np.nextafter(t, direction * math.inf) - t)
-            MS[R_MIN, c] = min_step
-            h_try = min(MS[R_H, c], max_step)
-            if h_try < min_step:
-                h_try = min_step
-            t_new = t + direction * h_try
-            MS[R_CLAMP, c] = 0.0
-            if (t_new - target) * direction > 0.0 or (target - t_new) * direction <= 1e-13 * max(1.0, abs(target)):
-                t_new = target
-                MS[R_CLAMP, c] = 1.0
-            MS[R_HTRY, c] = h_try
-            MS[R_STEP, c] = t_new - t
+        _plan_round(MS, count, t0, t_keep, m, interval, max_step)  # each member's step towards its segment's end
         # the stages, all members in one kernel call each
         for s in range(1, s_n):
             _combine_columns(A[s], s, np.bool_(True), Z, K, MS, ACC, count)
-            for c in range(count):
-                TS[c] = MS[R_T, c] + C[s] * MS[R_STEP, c]
+            _stage_times(TS, MS, C[s], count)
             g(m, TS, ACC, Pb, K[s], count)
         if kind == 2:  # classical RK4 in its textbook order of operations
-            for i in range(nz):
-                for c in range(count):
-                    Y1[i, c] = Z[i, c] + MS[R_STEP, c] / 6.0 * (K[0, i, c] + 2.0 * K[1, i, c] + 2.0 * K[2, i, c]
-                                                                + K[3, i, c])
+            _rk4_columns(Z, K, MS, Y1, count)
         else:
             _combine_columns(Bw, s_n, np.bool_(False), Z, K, MS, Y1, count)
-        for c in range(count):
-            TS[c] = MS[R_T, c] + MS[R_STEP, c]
+        _stage_times(TS, MS, np.float64(1.0), count)
         g(m, TS, Y1, Pb, K[s_n], count)
-        # each member on its own: accept or reject, samples, crossings, renormalisation, its end
+        used += count
+        # accept or reject every member's step; the steps that need nothing more are taken there
+        _judge_round(kind, adaptive, Z, Y1, K, MS, count, t0, rtol, atol, bound, grid, planes, plane_dir)
+        # the members that need more, one by one: samples, crossings, renormalisation, their end
         c = np.int64(0)  # not a literal: callees get one compiled version
         while c < count:
-            used += 1
+            verdict = MS[R_VERDICT, c]
+            if verdict == V_PASSED:
+                c += 1
+                continue
+            MS[R_VERDICT, c] = V_PASSED
             h = MS[R_STEP, c]
             t = MS[R_T, c]
             t_new = t + h if MS[R_CLAMP, c] == 0.0 else MS[R_TARGET, c]
             end = MS[R_END, c]
             direction = 1.0 if end > t0 else -1.0
             i = int(MS[R_ID, c])
-            code = 0
-            done = False
+            code = int(MS[R_CODE, c])
+            done = verdict == V_END
             moved = False
-            if MS[R_GIVE_UP, c] != 0.0:  # the driver gave up on this member at the pause: this step is not taken
-                code = C_STEP_FAILED
-                done = True
-            elif adaptive:
-                err = error_norm(kind, h, Z[:, c], Y1[:, c], K[:, :, c], rtol, atol)
-                if not (err <= 1.0):  # rejected, or NaN
-                    MS[R_REJ, c] += 1.0
-                    factor = MIN_FACTOR if err != err else max(MIN_FACTOR, SAFETY * err ** exponent)
-                    MS[R_H, c] = abs(h) * factor
-                    MS[R_LASTREJ, c] = 1.0
-                    if MS[R_H, c] < MS[R_MIN, c]:
-                        code = 2 if state_code(Y1[:, c], bound) == 2 else 3
-                        done = True
-                    else:
-                        c += 1
-                        continue
-                else:
-                    factor = MAX_FACTOR if err == 0.0 else min(MAX_FACTOR, SAFETY * err ** exponent)
-                    if MS[R_LASTREJ, c] != 0.0:
-                        factor = min(1.0, factor)
-                    MS[R_LASTREJ, c] = 0.0
-                    h_next = abs(h) * factor
-                    if MS[R_CLAMP, c] != 0.0:  # a step shortened to land on its end says nothing against a longer one
-                        h_next = max(h_next, MS[R_HTRY, c])
-                    MS[R_H, c] = h_next
-            if not done:
-                code = _step_code(Y1, K[s_n], c, bound)
-                done = code != 0
             if not done:
                 MS[R_ACC, c] += 1.0
                 sampling = MS[R_SAMP, c] != 0.0
@@ -389,6 +338,113 @@ def members_advance(f, g, kind, adaptive, U, P, t0, t_end, rtol, atol, max_step,
                     continue
             c += 1
         BS[0] = count
+
+
+@noref
+@numpy_version(members_numpy.plan_round)
+def _plan_round(MS, count, t0, t_keep, m, interval, max_step):
+    """Each member's next step (rows R_TARGET, R_MIN, R_CLAMP, R_HTRY, R_STEP): towards its segment's end
+    (the end of the transient, of the renormalisation interval, of its run), clamped onto it."""
+    for c in range(count):
+        t = MS[R_T, c]
+        end = MS[R_END, c]
+        direction = 1.0 if end > t0 else -1.0
+        target = end
+        if MS[R_SAMP, c] == 0.0 and (target - t_keep) * direction > 0.0:
+            target = t_keep
+        boundary = MS[R_ISTART, c] + direction * interval
+        if m > 0 and (target - boundary) * direction > 1e-9 * interval:
+            target = boundary
+        MS[R_TARGET, c] = target
+        min_step = 10.0 * abs(np.nextafter(t, direction * math.inf) - t)
+        MS[R_MIN, c] = min_step
+        h_try = min(MS[R_H, c], max_step)
+        if h_try < min_step:
+            h_try = min_step
+        t_new = t + direction * h_try
+        MS[R_CLAMP, c] = 0.0
+        if (t_new - target) * direction > 0.0 or (target - t_new) * direction <= 1e-13 * max(1.0, abs(target)):
+            t_new = target
+            MS[R_CLAMP, c] = 1.0
+        MS[R_HTRY, c] = h_try
+        MS[R_STEP, c] = t_new - t
+
+
+@noref
+@numpy_version(members_numpy.stage_times)
+def _stage_times(TS, MS, cs, count):
+    """The members' times at the stage at fraction ``cs`` of their steps."""
+    for c in range(count):
+        TS[c] = MS[R_T, c] + cs * MS[R_STEP, c]
+
+
+@noref
+@numpy_version(members_numpy.rk4_columns)
+def _rk4_columns(Z, K, MS, Y1, count):
+    """Classical RK4's step ends of the members, in the textbook order of operations."""
+    for i in range(Z.shape[0]):
+        for c in range(count):
+            Y1[i, c] = Z[i, c] + MS[R_STEP, c] / 6.0 * (K[0, i, c] + 2.0 * K[1, i, c] + 2.0 * K[2, i, c] + K[3, i, c])
+
+
+@noref
+@numpy_version(members_numpy.judge_round)
+def _judge_round(kind, adaptive, Z, Y1, K, MS, count, t0, rtol, atol, bound, grid, planes, plane_dir):
+    """Every member's step accepted or rejected by its error (``erk_advance``'s rules), its next step size,
+    and its verdict (row R_VERDICT): V_PASSED when nothing more is to be done this round (a rejected step;
+    an accepted one that holds no sample, may cross no plane and ends no segment: taken here), V_LOOK for
+    an accepted step to be looked at one by one, V_END for a member that ends with the code in R_CODE
+    (a failure, or given up by the driver)."""
+    s_n = STAGES[kind]
+    exponent = ERROR_EXPONENT[kind]
+    nz = Z.shape[0]
+    for c in range(count):
+        MS[R_VERDICT, c] = V_PASSED
+        MS[R_CODE, c] = 0.0
+        h = MS[R_STEP, c]
+        if MS[R_GIVE_UP, c] != 0.0:  # the driver gave up on this member at the pause: this step is not taken
+            MS[R_VERDICT, c] = V_END
+            MS[R_CODE, c] = C_STEP_FAILED
+            continue
+        if adaptive:
+            err = error_norm(kind, h, Z[:, c], Y1[:, c], K[:, :, c], rtol, atol)
+            if not (err <= 1.0):  # rejected, or NaN
+                MS[R_REJ, c] += 1.0
+                factor = MIN_FACTOR if err != err else max(MIN_FACTOR, SAFETY * err ** exponent)
+                MS[R_H, c] = abs(h) * factor
+                MS[R_LASTREJ, c] = 1.0
+                if MS[R_H, c] < MS[R_MIN, c]:
+                    MS[R_VERDICT, c] = V_END
+                    MS[R_CODE, c] = 2.0 if state_code(Y1[:, c], bound) == 2 else 3.0
+                continue
+            factor = MAX_FACTOR if err == 0.0 else min(MAX_FACTOR, SAFETY * err ** exponent)
+            if MS[R_LASTREJ, c] != 0.0:
+                factor = min(1.0, factor)
+            MS[R_LASTREJ, c] = 0.0
+            h_next = abs(h) * factor
+            if MS[R_CLAMP, c] != 0.0:  # a step shortened to land on its end says nothing against a longer one
+                h_next = max(h_next, MS[R_HTRY, c])
+            MS[R_H, c] = h_next
+        code = _step_code(Y1, K[s_n], c, bound)
+        if code != 0:
+            MS[R_VERDICT, c] = V_END
+            MS[R_CODE, c] = code
+            continue
+        t_new = MS[R_T, c] + h if MS[R_CLAMP, c] == 0.0 else MS[R_TARGET, c]
+        direction = 1.0 if MS[R_END, c] > t0 else -1.0
+        gi = int(MS[R_GI, c])
+        target = MS[R_TARGET, c]
+        if (gi < grid.shape[0] and (grid[gi] - t_new) * direction <= 0.0
+                or (target - t_new) * direction <= 1e-13 * max(1.0, abs(target))
+                or MS[R_SAMP, c] != 0.0 and MS[R_FULL, c] == 0.0 and planes.shape[0] > 0
+                and _plane_met(planes, plane_dir, Z, Y1, K, s_n, c)):
+            MS[R_VERDICT, c] = V_LOOK
+            continue
+        MS[R_ACC, c] += 1.0
+        for j in range(nz):
+            Z[j, c] = Y1[j, c]
+            K[0, j, c] = K[s_n, j, c]
+        MS[R_T, c] = t_new
 
 
 @noref
