@@ -18,7 +18,7 @@ from scipy.stats import qmc
 from orbitdesk.analyses.conservative import NEUTRAL_FLOW, flow_reason, holds_at, structure
 from orbitdesk.engine.runs import Event, RunSettings, simulate
 from orbitdesk.analyses.equilibria import NONSMOOTH_WARNING
-from orbitdesk.analyses.newton import Singular, damped_newton
+from orbitdesk.analyses.newton import Singular, damped_newton, newton_starts
 from orbitdesk.engine import compiled, drivers
 from orbitdesk.engine.model_events import saltation_refusal
 from orbitdesk.engine.methods import DEFAULT as DEFAULT_METHOD
@@ -503,7 +503,9 @@ def find_map_cycle(system: CompiledSystem, p=None, period_k: int = 1, guess=None
 
     Starts: the guess, then points of a transient orbit from the guess (or the initial values), then
     quasi-random points in that orbit's bounding box (the orbit starts at ``initial``, default the
-    model's initial values, when no guess is given). Raises CycleError when none converges.
+    model's initial values, when no guess is given), all in the multi-start Newton loop (blocks of
+    starts, in this order, until one ends on a cycle of minimal period k: the first such start gives
+    the cycle). Raises CycleError when none converges.
     """
     if system.kind != MAP:
         raise ValueError("this is a flow: look for its periodic orbits with find_cycle")
@@ -534,14 +536,24 @@ def find_map_cycle(system: CompiledSystem, p=None, period_k: int = 1, guess=None
         points = qmc.scale(qmc.LatinHypercube(d=n, seed=7).random(starts), lo - pad, hi + pad)
         candidates += list(points)
     f = system.rhs_function(p)
+    accepted: dict[int, tuple] = {}  # start -> (orbit points, product of Jacobians, minimal period) or None
+
+    def enough(ends) -> bool:  # the first start in order that ends on a cycle of minimal period k
+        scale = np.maximum(1.0, np.max(np.abs(ends.x), axis=1))
+        for i in np.flatnonzero((ends.codes >= 0) & (ends.norm <= 1e-10 * scale)):  # converged, or stalled there
+            if int(i) not in accepted:
+                accepted[int(i)] = _map_orbit(system, f, p, ends.x[i], k)
+        return any(found is not None and found[2] == k for found in accepted.values())
+
+    # every start in the compiled multi-start Newton loop (engine/newton_starts.py) on f^k(u) - u
+    newton_starts(system, np.array(candidates, dtype=float).reshape(-1, n), p, iterate=k, max_iter=max_iter,
+                  frel=1e-13, xtol=0.0, slow=0, report=report, enough=enough)
     lower = None
-    for index, u in enumerate(candidates):
-        report(index / len(candidates))
-        found = _map_newton(system, f, p, np.asarray(u, dtype=float), k, max_iter)
+    for i in sorted(accepted):
+        found = accepted[i]
         if found is None:
             continue
-        points, product = found
-        m = _map_minimal_period(points)
+        points, product, m = found
         if m != k:
             lower = m
             continue
@@ -559,35 +571,24 @@ def find_map_cycle(system: CompiledSystem, p=None, period_k: int = 1, guess=None
     raise CycleError(f"no cycle of minimal period {k} found{extra}")
 
 
-def _map_newton(system, f, p, u, k, max_iter):
+def _map_orbit(system, f, p, u, k):
+    """(the k points of the orbit from u, the product of the Jacobians along it, its minimal period) when
+    the orbit returns to u (|f^k(u) - u| <= 1e-10 max(1, |u|_inf)) with finite values, else None."""
     n = system.n_states
-    eye = np.eye(n)
-    orbits = {}
-
-    def orbit_of(u):
-        key = u.tobytes()
-        if key not in orbits:
-            pts = [u]
-            product = eye
-            for _ in range(k):
-                product = system.jac(0.0, pts[-1], p) @ product
-                pts.append(np.asarray(f(0, pts[-1]), dtype=float))
-            orbits.clear()
-            orbits[key] = np.column_stack(pts), product
-        return orbits[key]
-
-    failures = (ArithmeticError, ValueError, TypeError, np.linalg.LinAlgError)
+    points, product = [np.asarray(u, dtype=float)], np.eye(n)
     try:
-        state = damped_newton(lambda u: orbit_of(u)[0][:, -1] - u, lambda u: orbit_of(u)[1] - eye,
-                              np.asarray(u, dtype=float), max_iter=max_iter, rejects=failures,
-                              done=lambda state: state.norm <= 1e-13 * max(1.0, float(np.max(np.abs(state.x)))))
-        pts, product = orbit_of(state.x)
-    except failures:
+        with np.errstate(all="ignore"):
+            for _ in range(k):
+                product = system.jac(0.0, points[-1], p) @ product
+                points.append(np.asarray(f(0, points[-1]), dtype=float))
+    except (ArithmeticError, ValueError, TypeError):
         return None
-    scale = max(1.0, float(np.max(np.abs(state.x))))
-    if not (np.all(np.isfinite(pts)) and state.norm <= 1e-10 * scale):
+    pts = np.column_stack(points)
+    scale = max(1.0, float(np.max(np.abs(pts[:, 0]))))
+    if not (np.all(np.isfinite(pts)) and np.all(np.isfinite(product))
+            and np.linalg.norm(pts[:, -1] - pts[:, 0]) <= 1e-10 * scale):
         return None
-    return pts[:, :-1], product
+    return pts[:, :-1], product, _map_minimal_period(pts[:, :-1])
 
 
 def _map_minimal_period(points):

@@ -19,7 +19,6 @@ from fractions import Fraction
 
 import numpy as np
 import sympy as sp
-from scipy.optimize import root
 from scipy.stats import qmc
 
 from orbitdesk.analyses.conservative import neutral_point, neutral_words, stability_word
@@ -27,8 +26,8 @@ from orbitdesk.language.angles import wrap_equilibria
 from orbitdesk.engine.model_events import describe_events
 from orbitdesk.engine.progress import CancelToken, Cancelled, Reporter
 from orbitdesk.system.compiled_system import MAP, CompiledSystem
-from orbitdesk.analyses.newton import damped_newton
-from orbitdesk.engine import limits
+from orbitdesk.analyses.newton import damped_newton, newton_starts
+from orbitdesk.engine import limits, status
 
 HYPERBOLIC_RTOL = 1e-9  # |Re lambda| (flows) or ||mu| - 1| (maps) below this * max(1, rho) counts as zero
 NEAR_UNIT_TOL = 1e-6  # maps: warn about a multiplier this close to +1, -1 or the unit circle
@@ -75,12 +74,14 @@ class Equilibrium:
 
 
 class Equilibria(list):
-    """The equilibria found (a list), plus notes about the search itself (``notes``)."""
+    """The equilibria found (a list), plus notes about the search itself (``notes``), its box and how
+    its Newton starts ended (``starts``: status word -> count, engine/status.py)."""
 
-    def __init__(self, items=(), notes=None, box=None):
+    def __init__(self, items=(), notes=None, box=None, starts=None):
         super().__init__(items)
         self.notes: list[str] = list(notes or [])
         self.box: dict[str, tuple[float, float]] = dict(box or {})
+        self.starts: dict[str, int] = dict(starts or {})
 
 
 # ---------------------------------------------------------------- classification
@@ -435,14 +436,13 @@ def _refine(G, DG, x, max_steps=100):
     return state.x, (min(state.step_norm, state.tried) if state.stalled else state.step_norm), state.norm
 
 
-SPARSE_STATES = 24  # above this many states the starts run damped Newton on the sparse Jacobian, not hybr
+SPARSE_STATES = 200  # above this many states the starts run one by one on the sparse Jacobian (the dense
+#                    LU of the compiled multi-start loop costs n^3/3 an iteration: at 200 states, as much as
+#                    scipy's sparse LU with its Python calls on a chain)
 
 
-def _start(G, DG, DG_sparse, x0, f_scale):
-    """One start of the search: Powell's hybrid method (scipy, dense updates) on small systems; on
-    large ones damped Newton with the sparse Jacobian (hybr's updates cost n^2 an evaluation)."""
-    if DG_sparse is None:
-        return root(G, x0, jac=DG, method="hybr").x
+def _start(G, DG_sparse, x0, f_scale):
+    """One start of the search on a large system: damped Newton with the sparse Jacobian."""
     state = damped_newton(G, DG_sparse, x0, max_iter=60, rejects=(_Undefined,), singular="lstsq",
                           done=lambda state: state.norm <= 1e-10 * f_scale)
     return state.x
@@ -536,15 +536,29 @@ def _search(system, p, G, DG, DG_sparse, box, starts, u0, solve, exact_timeout, 
         found.append([x, step, {method}])
 
     newton_report = report.part(0.0, 0.7)
-    for k, x0 in enumerate(candidates):
-        newton_report(k / len(candidates))
-        try:
-            with np.errstate(all="ignore"):
-                refined = _refine(G, DG_sparse or DG, _start(G, DG, DG_sparse, x0, f_scale))
-        except (_Undefined, np.linalg.LinAlgError, ValueError, FloatingPointError):
-            continue
-        if _accept(refined, f_scale) and _inside(refined[0], lows, highs):
-            add(refined[0], refined[1], NEWTON)
+    if DG_sparse is None:  # every start in the compiled multi-start loop (dense LU), a status each
+        scale = max(1.0, float(np.max(np.abs(np.concatenate([lows, highs])))))
+        ends = newton_starts(system, np.array(candidates), p, iterate=1 if system.kind == MAP else 0,
+                             max_iter=100, xtol=1e-15, slow=5, bound=1e10 * scale, report=newton_report)
+        for x, step, norm in zip(ends.x, ends.step, ends.norm):
+            if _accept((x, step, norm), f_scale) and _inside(x, lows, highs):
+                add(x, step, NEWTON)
+        counts = ends.counts()
+    else:  # a large system: start by start, damped Newton on the sparse Jacobian (scipy's sparse LU)
+        counts = {}
+        for k, x0 in enumerate(candidates):
+            newton_report(k / len(candidates))
+            try:
+                with np.errstate(all="ignore"):
+                    refined = _refine(G, DG_sparse, _start(G, DG_sparse, x0, f_scale))
+                word = status.OK if _accept(refined, f_scale) else status.STALLED
+            except _Undefined:
+                refined, word = None, status.UNDEFINED
+            except (np.linalg.LinAlgError, ValueError, FloatingPointError):
+                refined, word = None, status.SINGULAR
+            counts[word] = counts.get(word, 0) + 1
+            if word == status.OK and _inside(refined[0], lows, highs):
+                add(refined[0], refined[1], NEWTON)
     report(0.7)
 
     if solve is not None:  # the exact points, when sympy answered in time; the box widened to hold them
@@ -577,7 +591,7 @@ def _search(system, p, G, DG, DG_sparse, box, starts, u0, solve, exact_timeout, 
         results = [with_delay_stability(system, p, eq) for eq in results]
     if not results:
         notes.append("no equilibrium found in the search box")
-    return Equilibria(results, notes, full_box)
+    return Equilibria(results, notes, full_box, counts)
 
 
 def _singular(eq) -> bool:

@@ -1,5 +1,9 @@
-"""One damped Newton iteration for G(x) = 0, shared by the analyses' solvers: the equilibria's
-refinement and their multi-start search on large systems, the shooting of limit cycles (autonomous
+"""One damped Newton iteration for G(x) = 0, shared by the analyses' solvers, in two forms:
+``newton_starts`` runs it from many starts at once in the compiled loop of engine/newton_starts.py
+(the equilibria's and fixed points' multi-start search, the starts of a map's cycle search: the
+model's batched kernel, dense LU, a status per start); ``damped_newton`` runs it from one start on
+any residual and Jacobian given as Python functions: the equilibria's refinement of exact points and
+their search on large systems (a sparse Jacobian), the shooting of limit cycles (autonomous
 and stroboscopic), the cycles of maps, the continuation's corrector, its stroboscopic polish and the
 location of folds and Hopf points on their augmented systems, and the time-scale probe's nearest
 equilibrium.
@@ -20,6 +24,8 @@ from dataclasses import dataclass
 from typing import Callable
 
 import numpy as np
+
+from orbitdesk.engine.newton_starts import NewtonStarts, newton_starts  # the multi-start form, re-exported
 
 
 class Singular(ArithmeticError):
@@ -128,4 +134,5 @@ def damped_newton(residual: Callable, jacobian: Callable, x0, *, done: Callable 
     return state
 
 
-__all__ = ["NewtonState", "Singular", "damped_newton", "difference_gradient", "solve"]
+__all__ = ["NewtonState", "NewtonStarts", "Singular", "damped_newton", "difference_gradient", "newton_starts",
+           "solve"]

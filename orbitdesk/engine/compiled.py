@@ -28,9 +28,9 @@ import numpy as np
 from orbitdesk.system import private_cache
 from orbitdesk.system.codegen import HEADER, kernel_source
 from orbitdesk.system.compiled_system import UNDEFINED_ERRORS
-from orbitdesk.engine import explicit_rk, jitting, maps, members, members_fixed, stochastic, tangent
+from orbitdesk.engine import explicit_rk, jitting, maps, members, members_fixed, newton_starts, stochastic, tangent
 
-LOOP_MODULES = (explicit_rk, maps, tangent, members, members_fixed, stochastic)
+LOOP_MODULES = (explicit_rk, maps, tangent, members, members_fixed, stochastic, newton_starts)
 _SIGNATURES = {}  # kernels compiled as cfuncs on arrays (sde); model: inlined into model_at, on pointers
 
 

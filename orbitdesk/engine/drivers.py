@@ -544,6 +544,9 @@ def warm_up(engine) -> None:
     p = np.full(int(k.N_PARAMS), 0.5)
     with np.errstate(all="ignore"):  # the kernel from Python (rhs(), stiff solvers, map sensitivities)
         engine.entry("evaluate")(engine.f, 0, 0.0, y0, p, np.empty(n))
+    from orbitdesk.engine.newton_starts import newton_starts  # the multi-start Newton loop
+
+    newton_starts(None, y0[None, :], p, iterate=int(k.IS_MAP), max_iter=1, engine=engine)
     if k.IS_MAP:
         map_run(engine, 0, 1, y0, p)
         map_tangent(engine, 0, 1, 0, y0, np.eye(n), p)

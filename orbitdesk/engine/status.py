@@ -19,13 +19,16 @@ TABLE = (
     (5, "stopped", "ended by an event of the model ('when ... then stop')"),
     (6, "chattering", "events came faster than the limit on events per unit time (Zeno behaviour or chattering)"),
     (7, "refused", "the analysis does not apply to this model; the message says why"),
+    (8, "singular", "the Newton matrix was singular and no regularised step lowered the residual"),
+    (9, "stalled", "no Newton step lowered the residual (a minimum that is no root), or the iterations ran out"),
 )
-OK, DIVERGED, UNDEFINED, STEP_FAILED, CANCELLED, STOPPED, CHATTERING, REFUSED = (word for _, word, _ in TABLE)
+OK, DIVERGED, UNDEFINED, STEP_FAILED, CANCELLED, STOPPED, CHATTERING, REFUSED, SINGULAR, STALLED = (
+    word for _, word, _ in TABLE)
 CODE = {word: code for code, word, _ in TABLE}
 WORD = {code: word for code, word, _ in TABLE}
 MEANING = {word: meaning for _, word, meaning in TABLE}
 (C_OK, C_DIVERGED, C_UNDEFINED, C_STEP_FAILED, C_CANCELLED, C_STOPPED, C_CHATTERING,
- C_REFUSED) = (code for code, _, _ in TABLE)
+ C_REFUSED, C_SINGULAR, C_STALLED) = (code for code, _, _ in TABLE)
 WIDTH = "<U" + str(max(len(word) for word in WORD.values()))
 
 
@@ -42,5 +45,5 @@ def word(code: int) -> str:
     return WORD[int(code)]
 
 
-__all__ = ["TABLE", "OK", "DIVERGED", "UNDEFINED", "STEP_FAILED", "CANCELLED", "STOPPED", "CHATTERING", "REFUSED", "CODE", "WORD", "MEANING",
-           "C_OK", "C_DIVERGED", "C_UNDEFINED", "C_STEP_FAILED", "C_CANCELLED", "WIDTH", "words", "word"]
+__all__ = ["TABLE", "OK", "DIVERGED", "UNDEFINED", "STEP_FAILED", "CANCELLED", "STOPPED", "CHATTERING", "REFUSED", "SINGULAR", "STALLED", "CODE", "WORD", "MEANING",
+           "C_OK", "C_DIVERGED", "C_UNDEFINED", "C_STEP_FAILED", "C_CANCELLED", "C_SINGULAR", "C_STALLED", "WIDTH", "words", "word"]
