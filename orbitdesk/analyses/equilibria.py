@@ -82,6 +82,7 @@ class Equilibria(list):
         self.notes: list[str] = list(notes or [])
         self.box: dict[str, tuple[float, float]] = dict(box or {})
         self.starts: dict[str, int] = dict(starts or {})
+        self.search = None  # what the search found (equilibria._Search), for refine_exactly
 
 
 # ---------------------------------------------------------------- classification
@@ -467,13 +468,19 @@ def _same(a, b) -> bool:
 # ---------------------------------------------------------------- the search
 def find_equilibria(system: CompiledSystem, p=None, box: dict | None = None, starts: int = 200,
                     exact: bool = True, exact_timeout: float = 3.0, cancel: CancelToken | None = None,
-                    progress=None, u0=None) -> Equilibria:
+                    progress=None, u0=None, on_numeric=None) -> Equilibria:
     """Equilibria of a flow (fixed points of a map) with their classification, as an ``Equilibria`` list.
 
     ``box`` ({state: (lo, hi)}, partial allowed) bounds the Newton starts; by default a box around the
     initial values (``u0``, default the model's), the origin and the exact solutions. Raises ValueError
     for a flow whose right-hand side depends on time at these parameter values (equilibria are then
     not defined); a forcing term whose amplitude is zero does not count.
+
+    The exact solve (``exact``, up to EXACT_MAX_STATES states) starts in its child process at once and
+    never holds the numeric answer back: ``on_numeric(equilibria)`` is called with the Newton search's
+    result as soon as it is there, before the wait for sympy (at most ``exact_timeout`` seconds of its
+    computing); the value returned holds the exact refinements. ``refine_exactly`` does the second
+    half for a result found with ``exact=False`` (the app: two jobs, the table filled by the first).
     """
     if not system.autonomous_at(p):
         what = "step n" if system.kind == MAP else f"time {system.time_name}"
@@ -489,23 +496,53 @@ def find_equilibria(system: CompiledSystem, p=None, box: dict | None = None, sta
         notes.append("these are equilibria of the equations between events; the model's events "
                      f"({describe_events(system)}) are not considered: an equilibrium beyond an event's boundary "
                      "is not reached by the runs, and a reset can move a solution away from one")
-    n = system.n_states
-    G, DG, DG_sparse = _residual_functions(system, p)
-
     solve = None
-    if exact and n > EXACT_MAX_STATES:
+    if exact and system.n_states > EXACT_MAX_STATES:
         notes.append(f"the exact solve is tried for up to {EXACT_MAX_STATES} states; Newton search only")
     elif exact:
         solve = _ExactSolve(system, p)  # runs beside the Newton search: the numeric answer never waits for it
     try:
-        return _search(system, p, G, DG, DG_sparse, box, starts, u0, solve, exact_timeout, report, notes)
+        numeric = _search(system, p, box, starts, u0, report.part(0.0, 0.7 if solve else 1.0), notes)
+        if solve is None:
+            return numeric
+        if on_numeric is not None:
+            on_numeric(numeric)
+        return _with_exact(system, p, numeric, solve, exact_timeout, report.part(0.7, 0.3))
     finally:
         if solve is not None:
             solve.close()
 
 
-def _search(system, p, G, DG, DG_sparse, box, starts, u0, solve, exact_timeout, report, notes) -> "Equilibria":
+def refine_exactly(system: CompiledSystem, equilibria: Equilibria, p=None, timeout: float = 3.0,
+                   cancel: CancelToken | None = None, progress=None) -> Equilibria:
+    """``equilibria`` (from ``find_equilibria(..., exact=False)`` at the same values) with the exact
+    solve's points joined, when sympy answers within ``timeout`` seconds of its computing: the points
+    it confirms marked "exact+newton" (with its coordinates), those it adds "exact". A new list; the
+    one given is returned as it is for a model beyond EXACT_MAX_STATES states."""
+    p = system.param_values.astype(float) if p is None else np.asarray(p, dtype=float)
+    if system.n_states > EXACT_MAX_STATES or equilibria.search is None:
+        return equilibria
+    solve = _ExactSolve(system, p)
+    try:
+        return _with_exact(system, p, equilibria, solve, timeout, Reporter(progress, cancel))
+    finally:
+        solve.close()
+
+
+def _add(found: list, x, step, method) -> None:
+    """Join the point x (with its uncertainty ``step``) to ``found`` ([x, step, methods] entries)."""
+    for entry in found:
+        if _same((entry[0], entry[1]), (x, step)):
+            entry[2].add(method)
+            if method == EXACT:  # exact coordinates are the better ones
+                entry[0], entry[1] = x, step
+            return
+    found.append([x, step, {method}])
+
+
+def _search(system, p, box, starts, u0, report, notes) -> "Equilibria":
     n = system.n_states
+    G, DG, DG_sparse = _residual_functions(system, p)
     full_box = default_box(system, p, u0)
     for name, (lo, hi) in (box or {}).items():
         if name not in system.states:
@@ -525,29 +562,18 @@ def _search(system, p, G, DG, DG_sparse, box, starts, u0, solve, exact_timeout, 
     f_scale = max([1.0] + [float(np.max(v)) for v in f_values if np.all(np.isfinite(v))])
 
     found: list[list] = []  # [x, step, methods set]
-
-    def add(x, step, method):
-        for entry in found:
-            if _same((entry[0], entry[1]), (x, step)):
-                entry[2].add(method)
-                if method == EXACT:  # exact coordinates are the better ones
-                    entry[0], entry[1] = x, step
-                return
-        found.append([x, step, {method}])
-
-    newton_report = report.part(0.0, 0.7)
     if DG_sparse is None:  # every start in the compiled multi-start loop (dense LU), a status each
         scale = max(1.0, float(np.max(np.abs(np.concatenate([lows, highs])))))
         ends = newton_starts(system, np.array(candidates), p, iterate=1 if system.kind == MAP else 0,
-                             max_iter=100, xtol=1e-15, slow=5, bound=1e10 * scale, report=newton_report)
+                             max_iter=100, xtol=1e-15, slow=5, bound=1e10 * scale, report=report)
         for x, step, norm in zip(ends.x, ends.step, ends.norm):
             if _accept((x, step, norm), f_scale) and _inside(x, lows, highs):
-                add(x, step, NEWTON)
+                _add(found, x, step, NEWTON)
         counts = ends.counts()
     else:  # a large system: start by start, damped Newton on the sparse Jacobian (scipy's sparse LU)
         counts = {}
         for k, x0 in enumerate(candidates):
-            newton_report(k / len(candidates))
+            report(k / len(candidates))
             try:
                 with np.errstate(all="ignore"):
                     refined = _refine(G, DG_sparse, _start(G, DG_sparse, x0, f_scale))
@@ -558,30 +584,58 @@ def _search(system, p, G, DG, DG_sparse, box, starts, u0, solve, exact_timeout, 
                 refined, word = None, status.SINGULAR
             counts[word] = counts.get(word, 0) + 1
             if word == status.OK and _inside(refined[0], lows, highs):
-                add(refined[0], refined[1], NEWTON)
-    report(0.7)
-
-    if solve is not None:  # the exact points, when sympy answered in time; the box widened to hold them
-        exact_points, exact_notes = solve.answer(exact_timeout, report.part(0.7, 0.3))
-        notes += exact_notes
-        for x in exact_points:
-            try:
-                refined = _refine(G, DG, x, max_steps=5)
-            except _Undefined:
-                refined = None
-            # keep the exact coordinates; the refinement only measures their uncertainty
-            step = refined[1] if refined is not None and math.isfinite(refined[1]) else 0.0
-            add(np.array(x, dtype=float), min(step, 1e-12 * max(1.0, float(np.linalg.norm(x)))), EXACT)
-        if exact_points:
-            wider = default_box(system, p, u0, exact_points)
-            full_box = {name: (min(lo, wider[name][0]), max(hi, wider[name][1])) if name not in (box or {})
-                        else (lo, hi) for name, (lo, hi) in full_box.items()}
+                _add(found, refined[0], refined[1], NEWTON)
     report(1.0)
+    search = _Search(found, full_box, dict(box or {}), u0, counts, list(notes))
+    return _results(system, p, search, DG)
 
+
+@dataclass
+class _Search:
+    """What a search found, kept on its result so that the exact solve's points can join it later."""
+
+    found: list  # [x, step, methods set]
+    box: dict  # the box searched
+    given: dict  # the part of it the caller gave
+    u0: object
+    counts: dict  # status word -> starts
+    notes: list
+
+
+def _with_exact(system, p, numeric: Equilibria, solve: _ExactSolve, timeout, report) -> Equilibria:
+    """The numeric result with the exact points joined, when sympy answered in time; the box widened
+    to hold them (the parts the caller gave stay)."""
+    search = numeric.search
+    G, DG, _ = _residual_functions(system, p)
+    exact_points, exact_notes = solve.answer(timeout, report)
+    found = [[x, step, set(methods)] for x, step, methods in search.found]
+    full_box = dict(search.box)
+    for x in exact_points:
+        try:
+            refined = _refine(G, DG, x, max_steps=5)
+        except _Undefined:
+            refined = None
+        # keep the exact coordinates; the refinement only measures their uncertainty
+        step = refined[1] if refined is not None and math.isfinite(refined[1]) else 0.0
+        _add(found, np.array(x, dtype=float), min(step, 1e-12 * max(1.0, float(np.linalg.norm(x)))), EXACT)
+    if exact_points:
+        wider = default_box(system, p, search.u0, exact_points)
+        full_box = {name: (min(lo, wider[name][0]), max(hi, wider[name][1])) if name not in search.given
+                    else (lo, hi) for name, (lo, hi) in full_box.items()}
+    report(1.0)
+    return _results(system, p, _Search(found, full_box, search.given, search.u0, search.counts,
+                                       search.notes + exact_notes), DG)
+
+
+def _results(system, p, search: _Search, DG) -> Equilibria:
+    """The found points classified, sorted, thinned (a continuum), wrapped (angles), as an Equilibria."""
+    notes = list(search.notes)
     results = []
-    for x, _step, methods in sorted(found, key=lambda e: tuple(np.round(e[0], 12))):
+    for x, step, methods in sorted(search.found, key=lambda e: tuple(np.round(e[0], 12))):
         method = BOTH if len(methods) == 2 else next(iter(methods))
-        eq = _equilibrium(system, x, method, DG, p)
+        # a coordinate within the point's own uncertainty (its last Newton step) of 0 is 0: the origin
+        # reached to 1e-32, not printed as -9.9e-32 (zero_round_off does the same beside larger coordinates)
+        eq = _equilibrium(system, np.where(np.abs(x) <= step, 0.0, x), method, DG, p)
         if eq is not None:
             results.append(eq)
     results = wrap_equilibria(system, _thin_continuum(results, notes))  # an angle's turns are one point
@@ -591,7 +645,9 @@ def _search(system, p, G, DG, DG_sparse, box, starts, u0, solve, exact_timeout, 
         results = [with_delay_stability(system, p, eq) for eq in results]
     if not results:
         notes.append("no equilibrium found in the search box")
-    return Equilibria(results, notes, full_box, counts)
+    out = Equilibria(results, notes, search.box, search.counts)
+    out.search = search
+    return out
 
 
 def _singular(eq) -> bool:
@@ -647,5 +703,5 @@ def _equilibrium(system, x, method, DG, p=None) -> Equilibrium | None:
                        ns, nu, nc, method, warnings, is_map, stability)
 
 
-__all__ = ["Equilibrium", "Equilibria", "find_equilibria", "classify", "exact_solutions", "default_box",
+__all__ = ["Equilibrium", "Equilibria", "find_equilibria", "refine_exactly", "classify", "exact_solutions", "default_box",
            "Cancelled"]

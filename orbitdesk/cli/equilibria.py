@@ -1,4 +1,10 @@
-"""``orbitdesk equilibria PATH``: equilibria of a flow or fixed points of a map, classified."""
+"""``orbitdesk equilibria PATH``: equilibria of a flow or fixed points of a map, classified.
+
+The table of the Newton search comes first; the exact solve (sympy, up to --timeout seconds) follows:
+a line naming the rows it confirms, or the table again when it adds or moves points (--json: one
+document at the end)."""
+
+import sys
 
 from orbitdesk.analyses.equilibria import find_equilibria
 from orbitdesk.analyses.manifolds import is_planar_saddle, saddle_manifolds
@@ -49,9 +55,17 @@ def run(args) -> int:
     if timeout < 0:
         raise CommandError("--timeout must be zero or positive")
     progress = stderr_progress("equilibria")
+    numeric = []  # the table printed as soon as the Newton search ends: the exact solve never holds it back
+
+    def numeric_first(found) -> None:
+        if not args.json:
+            numeric.append(found)
+            print_table(system, found)
+            sys.stdout.flush()
+
     with analysis_errors():
         eqs = find_equilibria(system, p, box=box, starts=args.starts, exact=not args.no_exact and timeout > 0,
-                              exact_timeout=timeout, progress=progress, u0=u0)
+                              exact_timeout=timeout, progress=progress, u0=u0, on_numeric=numeric_first)
         entries = []
         for eq in eqs:
             entry = eq.to_dict()
@@ -60,9 +74,33 @@ def run(args) -> int:
             entries.append(entry)
     if args.json:
         print_json({"equilibria": entries, "notes": eqs.notes})
+    elif numeric:
+        print_refinement(system, numeric[0], eqs)
     else:
         print_table(system, eqs)
     return 0
+
+
+def print_refinement(system, numeric, eqs) -> None:
+    """What the exact solve changed in the table printed before it: nothing but the method (the rows it
+    confirms), or the whole table again after it."""
+    same = len(numeric) == len(eqs) and all(
+        a.kind == b.kind and all(abs(a.state[s] - b.state[s]) <= 1e-9 * max(1.0, abs(a.state[s]))
+                                 for s in system.states) for a, b in zip(numeric, eqs))
+    confirmed = [k for k, eq in enumerate(eqs, start=1) if eq.method != "newton"]
+    if same and eqs:
+        if confirmed:
+            print(f"the exact solve confirms row{'s' if len(confirmed) > 1 else ''} "
+                  f"{', '.join(map(str, confirmed))}")
+    elif same:
+        pass
+    else:
+        print("after the exact solve:")
+        print_table(system, eqs)
+        return
+    for note in eqs.notes:
+        if note not in numeric.notes:
+            print(f"note: {note}")
 
 
 def _number(v: float) -> str:

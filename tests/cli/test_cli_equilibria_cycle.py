@@ -153,3 +153,13 @@ def test_cycle_bad_input(capsys, model):
         code, out, err = run_cli(capsys, *args)
         assert code == 1, args
         assert message in err and "Traceback" not in err, (args, err)
+
+
+def test_equilibria_table_comes_before_the_exact_solve(capsys, model):
+    # the Newton search's table first, then what the exact solve confirms (Brusselator: (a, b/a), closed form)
+    code, out, _ = run_cli(capsys, "equilibria", model(BRUSSELATOR), "--timeout", "30")
+    assert code == 0
+    lines = out.splitlines()
+    assert lines[0].split()[-2:] == ["found", "by"] and lines[1].split()[-1] == "newton"
+    assert lines[1].split()[:2] == ["1", "2.5"]
+    assert lines[2] == "the exact solve confirms row 1"

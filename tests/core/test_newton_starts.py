@@ -136,3 +136,22 @@ def test_map_fixed_points_and_two_cycle_of_the_henon_map():
     fixed = [(-(1 - b) + s * math.sqrt((1 - b) ** 2 + 4 * a)) / (2 * a) for s in (1, -1)]
     cycle = [((1 - b) + s * math.sqrt(4 * a - 3 * (1 - b) ** 2)) / (2 * a) for s in (1, -1)]
     assert sorted(found) == pytest.approx(sorted(fixed + cycle), abs=1e-9)
+
+
+def test_numeric_answer_comes_before_the_exact_refinement():
+    # Lorenz (closed form as above): the Newton search's list is handed over before the wait for sympy;
+    # the list returned carries the exact solve's points, and refine_exactly does the same afterwards
+    from orbitdesk.analyses.equilibria import refine_exactly
+
+    system = system_of(LORENZ)
+    first = []
+    final = find_equilibria(system, exact_timeout=30.0, on_numeric=first.append)
+    assert len(first) == 1 and [eq.method for eq in first[0]] == ["newton"] * 3
+    assert [eq.method for eq in final] == ["exact+newton"] * 3
+    c = math.sqrt(8.0 / 3.0 * 27.0)
+    assert sorted(eq.state["x"] for eq in final) == [-c, 0.0, c]  # the exact coordinates, to the last digit
+    numeric = find_equilibria(system, exact=False)
+    assert [eq.method for eq in numeric] == ["newton"] * 3 and numeric.notes == []
+    refined = refine_exactly(system, numeric, timeout=30.0)
+    assert [eq.method for eq in refined] == ["exact+newton"] * 3
+    assert [eq.method for eq in numeric] == ["newton"] * 3  # a new list; the numeric one is left as it was
