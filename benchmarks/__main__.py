@@ -10,6 +10,7 @@ import time
 from benchmarks.harness import print_table
 
 MODULES = ["bench_single_run", "bench_cold_start", "bench_stiff", "bench_stiff_crossings", "bench_validation", "bench_ensemble", "bench_sweep", "bench_sweep_lyapunov", "bench_lyapunov",
+           "bench_equilibria",
            "bench_lyapunov_grid", "bench_fit", "bench_growth", "bench_app", "bench_ui_interaction",
            "bench_keystroke",
            "bench_continuation", "bench_noise"]

@@ -70,6 +70,9 @@ def _matrix_html(rows, col_heads=None, row_heads=None) -> str:
     return f"<table cellspacing='0'>{''.join(cells)}</table>"
 
 
+EXACT_JOB = "equilibria-exact"  # the exact solve after the Newton search's table: a job of its own, no strip
+
+
 class EquilibriaView(SessionView):
     view_id = "equilibria"
     on_request = True
@@ -214,11 +217,20 @@ class EquilibriaView(SessionView):
         self._searched_generation = self.session.generation
         self.begin_computing()
 
-        def job(cancel, report):
-            return find_equilibria(system, p, u0=u0, cancel=cancel, progress=report)
+        def job(cancel, report):  # the Newton search: the table fills before the exact solve starts
+            return find_equilibria(system, p, u0=u0, exact=False, cancel=cancel, progress=report)
 
+        def exact_job(found):  # then the exact solve (sympy, time-limited) refines the table quietly
+            from orbitdesk.analyses.equilibria import EXACT_MAX_STATES, refine_exactly
+
+            self._adopt(found)
+            if system.n_states <= EXACT_MAX_STATES:
+                self.session.run_job(EXACT_JOB, lambda cancel, report: refine_exactly(
+                    system, found, p, cancel=cancel, progress=report), self._refined, on_error=lambda _message: None)
+
+        self.session.cancel_job(EXACT_JOB)
         self.summary.setText("")
-        self.strip.run("equilibria", job, self._adopt, on_error=self._failed)
+        self.strip.run("equilibria", job, exact_job, on_error=self._failed)
 
     def compute(self) -> None:
         self.find()
@@ -290,6 +302,26 @@ class EquilibriaView(SessionView):
         self.session.set_equilibria(result, self._computing_for)  # the table shows the document's list
         self._publish_selection()
         self.equilibriaChanged.emit(result)
+
+    def _refined(self, result) -> None:
+        """The exact solve's answer after the Newton search's table. Where it confirms the points shown
+        (as many, at the same places, of the same kinds) they take its coordinates and "Found by" in
+        place: the selection, the starts made from it and the other views' references stay. Otherwise
+        (it adds points) the new list is adopted."""
+        shown = self.equilibria
+        if len(shown) != len(result) or any(
+                a.kind != b.kind or not np.allclose(a.vector, b.vector, rtol=1e-9, atol=1e-12)
+                for a, b in zip(shown, result)):
+            self._adopt(result)
+            return
+        column = self.table.columnCount() - 1
+        for r, (eq, better) in enumerate(zip(shown, result)):
+            eq.method, eq.state, eq.vector = better.method, better.state, better.vector
+            item = self.table.item(r, column)
+            if item is not None:
+                item.setText(_method_text(eq.method))
+        if self.selected() is not None:
+            self._show_details(self.selected())
 
     # ------------------------------------------------------------ table and details
     def _show_equilibria(self) -> None:
