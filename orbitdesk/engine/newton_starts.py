@@ -10,9 +10,9 @@ the first trial that lowers |G|; where DG is exactly singular the step is the re
 least-squares one, (DG^T DG + mu I) dx = -DG^T G with mu = 1e-12 |DG|_F^2 (a point on a curve of
 equilibria is still reached). Where no damping helps (a valley of |G| that Newton's direction
 leaves), the start takes Levenberg-Marquardt steps (mu from 1e-4 |DG|_F^2, times 10 while they fail,
-a tenth after each success, back to Newton below 1e-4; at most TURNS times per start): this finds
-what Powell's hybrid method found from the same starts, and more (Lorenz-96 at 16 states: 31
-equilibria from 200 starts against 14). The rules of ``analyses/newton.damped_newton``, start by start:
+a tenth after each success, back to Newton below 1e-4; at most TURNS times per start): from the same
+starts this finds as many equilibria as Powell's hybrid method did or more, not always the same ones
+where there are many (Lorenz-96 at 16 states: 31 from 200 starts against 14, 9 of those among them). The rules of ``analyses/newton.damped_newton``, start by start:
 
 * converged (``C_OK``): |G| <= ftol + frel max(1, |x|_inf) before an iteration, or an accepted
   step no longer than xtol max(1, |x|_2), or a full step that shrank to that size and no longer
