@@ -78,7 +78,8 @@ class EquilibriaView(SessionView):
     on_request = True
     title = "Equilibria"
 
-    equilibriaChanged = Signal(object)     # the Equilibria list after each search (may be empty)
+    equilibriaChanged = Signal(object)     # the Equilibria list after each search (may be empty), the exact
+    #                                        solve's refinement included (the table shows the Newton search's before)
     equilibriumSelected = Signal(object)   # the selected Equilibrium, or None
     startsRequested = Signal(object)       # list of start dicts (see eigen_starts)
 
@@ -223,10 +224,12 @@ class EquilibriaView(SessionView):
         def exact_job(found):  # then the exact solve (sympy, time-limited) refines the table quietly
             from orbitdesk.analyses.equilibria import EXACT_MAX_STATES, refine_exactly
 
-            self._adopt(found)
-            if system.n_states <= EXACT_MAX_STATES:
+            exact = system.n_states <= EXACT_MAX_STATES
+            self._adopt(found, final=not exact)  # the table now; the search's end is signalled after sympy
+            if exact:
                 self.session.run_job(EXACT_JOB, lambda cancel, report: refine_exactly(
-                    system, found, p, cancel=cancel, progress=report), self._refined, on_error=lambda _message: None)
+                    system, found, p, cancel=cancel, progress=report), self._refined,
+                    on_error=lambda _message: self.equilibriaChanged.emit(found))
 
         self.session.cancel_job(EXACT_JOB)
         self.summary.setText("")
@@ -298,16 +301,17 @@ class EquilibriaView(SessionView):
         self.session.set_equilibria([])
         self.summary.setText("")
 
-    def _adopt(self, result) -> None:
+    def _adopt(self, result, final: bool = True) -> None:
         self.session.set_equilibria(result, self._computing_for)  # the table shows the document's list
         self._publish_selection()
-        self.equilibriaChanged.emit(result)
+        if final:
+            self.equilibriaChanged.emit(result)
 
     def _refined(self, result) -> None:
         """The exact solve's answer after the Newton search's table. Where it confirms the points shown
         (as many, at the same places, of the same kinds) they take its coordinates and "Found by" in
         place: the selection, the starts made from it and the other views' references stay. Otherwise
-        (it adds points) the new list is adopted."""
+        (it adds points) the new list is adopted. Either way the search has ended: equilibriaChanged."""
         shown = self.equilibria
         if len(shown) != len(result) or any(
                 a.kind != b.kind or not np.allclose(a.vector, b.vector, rtol=1e-9, atol=1e-12)
@@ -315,13 +319,23 @@ class EquilibriaView(SessionView):
             self._adopt(result)
             return
         column = self.table.columnCount() - 1
+        selected = self.selected()
+        if selected is not None:  # the details' last line names it too: replaced in place, the pane not laid out again
+            i = shown.index(selected)
+            found = self.details.document().find(f"Found by {_method_text(selected.method)}.")
+            if not found.isNull():
+                found.insertText(f"Found by {_method_text(result[i].method)}.")
         for r, (eq, better) in enumerate(zip(shown, result)):
+            before, after = f"found by {_method_text(eq.method)}", f"found by {_method_text(better.method)}"
             eq.method, eq.state, eq.vector = better.method, better.state, better.vector
+            for c in range(column + 1):  # every cell's tip names how the point was found
+                item = self.table.item(r, c)
+                if item is not None:
+                    item.setToolTip(item.toolTip().replace(before, after))
             item = self.table.item(r, column)
             if item is not None:
                 item.setText(_method_text(eq.method))
-        if self.selected() is not None:
-            self._show_details(self.selected())
+        self.equilibriaChanged.emit(type(result)(shown, result.notes, result.box, result.starts))  # the shown points
 
     # ------------------------------------------------------------ table and details
     def _show_equilibria(self) -> None:
