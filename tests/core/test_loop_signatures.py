@@ -13,7 +13,7 @@ from orbitdesk.engine import compiled, jitting
 # helpers they call show their versions only when compiled in this process (a clean clone, as CI runs): loaded
 # from numba's cache, a loop brings its callees' machine code along and they list none
 WARMED = ("erk_advance", "flow_tangent", "map_tangent", "map_pair", "map_advance", "members_advance",
-          "members_fixed", "members_iterate", "erk_dense_prepare", "erk_dense_at", "evaluate")
+          "members_fixed", "members_iterate", "erk_dense_prepare", "erk_dense_at", "evaluate", "newton_block")
 
 
 def _versions():
