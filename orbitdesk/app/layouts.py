@@ -67,12 +67,22 @@ class FittedColumns(QObject):
             self.fit()
         return False
 
-    def widths(self, room: int) -> list[int]:
-        """The width of each column in ``room`` pixels."""
+    def _wanted(self) -> tuple[list[int], list[int]]:
+        """Each column's width at its content, and the least it may have."""
         t, header = self.table, self.table.horizontalHeader()
         n = t.model().columnCount() if t.model() is not None else 0
         want = [max(t.sizeHintForColumn(c), header.sectionSizeHint(c)) for c in range(n)]
-        least = [min(header.sectionSizeHint(c), want[c]) if c in self.elastic else want[c] for c in range(n)]
+        return want, [min(header.sectionSizeHint(c), want[c]) if c in self.elastic else want[c] for c in range(n)]
+
+    def least_width(self) -> int:
+        """The table's width with every column at its least (and room for a vertical scroll bar)."""
+        t = self.table
+        return sum(self._wanted()[1]) + 2 * t.frameWidth() + t.verticalScrollBar().sizeHint().width()
+
+    def widths(self, room: int) -> list[int]:
+        """The width of each column in ``room`` pixels."""
+        want, least = self._wanted()
+        n = len(want)
         excess = sum(want) - room
         if excess <= 0:
             if n:

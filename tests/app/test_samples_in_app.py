@@ -125,6 +125,19 @@ def check_model_panel_readable(window, title):
             (title, name)
 
 
+def check_equilibria_columns_in_sight(window, title):
+    """The equilibria table, when open, shows every column whole (the convection loop's fourth step put it
+    beside the 3D view, squeezed to its coordinates with the type and stability out of sight)."""
+    view, dock = window.views.get("equilibria"), window.view_docks.get("equilibria")
+    if view is None or not dock.isVisible() or view.table.columnCount() == 0:
+        return
+    table, header = view.table, view.table.horizontalHeader()
+    for c in range(table.columnCount()):
+        name = table.horizontalHeaderItem(c).text()
+        assert header.sectionViewportPosition(c) + header.sectionSize(c) <= table.viewport().width(), (title, name)
+        assert header.sectionSize(c) >= header.fontMetrics().horizontalAdvance(name), (title, name)
+
+
 def test_every_sample_is_listed():
     assert len(SAMPLES) >= 7
     names = {p.name for p in SAMPLES}
@@ -180,6 +193,7 @@ def test_sample_walkthrough_replays_in_the_app(qtbot, window, path):
         assert status == "ok" or f"*{status}*" in steps[i]["note"], (steps[i]["title"], s.trajectory.message)
         check_plots_show_the_whole_run(qtbot, window, steps[i])
         check_model_panel_readable(window, steps[i]["title"])
+        check_equilibria_columns_in_sight(window, steps[i]["title"])
         if panel.missing_views:
             print(f"{path.stem} step {i + 1}: views not in this build: {panel.missing_views}")
     assert seen == list(range(len(steps)))
@@ -233,3 +247,4 @@ def test_views_too_wide_side_by_side_are_stacked_at_the_screen_size(qtbot, windo
         shown = [d.geometry() for d in window.view_docks.values() if d.isVisible() and not d.isFloating()]
         assert not any(a.intersects(b) for k, a in enumerate(shown) for b in shown[k + 1:])
         check_model_panel_readable(window, panel.title_label.text())
+        check_equilibria_columns_in_sight(window, panel.title_label.text())

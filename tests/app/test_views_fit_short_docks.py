@@ -88,3 +88,20 @@ def test_a_short_lyapunov_dock_scrolls_its_numbers_and_notes_as_one(qtbot, sessi
         assert label.height() >= label.heightForWidth(label.width())
     assert visible_bars(view.left, "verticalScrollBar") == [view.left]  # short: one bar, the column's
     assert not visible_bars(view.left, "horizontalScrollBar")
+
+
+def test_the_phase_planes_hint_leaves_its_controls_on_one_line(qtbot, session, artifacts):
+    # the shower's phase plane plots the water felt (a derived quantity) against the tap: clicking cannot start
+    # a path there, and the hint saying so, squeezed between the controls, made their row a third of the view
+    view = open_view(qtbot, session, "phase_plane", (480, 420))
+    load_model(qtbot, session, SHOWER, dict(t_end=60.0, samples=601), views={"phase_plane": {"x": "felt", "y": "u"}})
+    qtbot.waitUntil(lambda: view.x_name == "felt" and view.hint.isVisible(), timeout=10000)
+    qtbot.wait(50)
+    view.grab().save(f"{artifacts}/phase_plane_hint.png")
+    hint, combo = view.hint, view.x_combo
+    assert "both axes are states" in hint.text() and hint.height() >= hint.heightForWidth(hint.width())
+    assert hint.width() > view.width() // 2  # across the view, not squeezed between the buttons
+    assert combo.geometry().top() < hint.geometry().top() < view.plot_widget.geometry().top()
+    line = hint.fontMetrics().lineSpacing()
+    assert view.plot_widget.geometry().top() - combo.geometry().bottom() <= hint.height() + line
+    assert hint.height() <= 3 * line

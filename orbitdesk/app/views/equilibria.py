@@ -21,6 +21,7 @@ AUTO_DELAY_MS = 350
 DEFAULT_EPS = 1e-3
 TABLE_ROWS = 4           # rows the table always has room for (more scroll)
 TABLE_ROOTS = 2          # eigenvalue entries (a conjugate pair is one) in the table; all of them below and in the tip
+TABLE_WIDEST_LEAST = 520  # pixels: the most the table asks for to keep every column in sight
 MAX_START_BUTTONS = 8    # eigen-directions offered as buttons (the largest models get the first ones)
 
 
@@ -375,6 +376,9 @@ class EquilibriaView(SessionView):
                 self.table.setItem(r, c, item)
         self.table.blockSignals(False)
         self.columns.set_elastic(range(len(states) + 1, len(heads)))
+        # the dock keeps every column in sight (up to a width that leaves room for the views beside it; a model
+        # of many states scrolls sideways): beside the 3D view, Lorenz's table was squeezed to its coordinates
+        self.table.setMinimumWidth(min(self.columns.least_width(), TABLE_WIDEST_LEAST))
         self._fit_table_rows()
         if not items:
             self.summary.setText("; ".join(notes).capitalize() if notes else "")

@@ -80,7 +80,7 @@ class PhasePlaneView(SessionView):
         self.fit_button = QToolButton(text="Fit")
         self.fit_button.setToolTip("Zoom to the trajectory")
         self.fit_button.clicked.connect(self.fit_view)
-        self.hint = status_label()  # a long hint wraps onto a second line, neither cut off nor widening the window
+        self.hint = status_label()  # a long hint wraps, neither cut off nor widening the window
 
         self.plot_widget = pg.PlotWidget()
         self.plot = self.plot_widget.getPlotItem()
@@ -117,11 +117,14 @@ class PhasePlaneView(SessionView):
         self._seed_timer.timeout.connect(self._rerun_seeds)
 
         bar = control_row(self.x_combo, "against", self.y_combo, 8, self.arrows,
-                          self.nullclines_box, self.backward, self.hint, self.clear_button, self.fit_button,
+                          self.nullclines_box, self.backward, None, self.clear_button, self.fit_button,
                           spacing=6, stretch=False)
-        bar.setStretchFactor(self.hint, 1)  # the hint takes the room left (and wraps in it)
         layout = self.main_layout()
         layout.addLayout(bar)
+        # the hint on a line of its own, across the view: squeezed between the controls of a narrow dock it
+        # wrapped a word to a line and made the row of controls as tall as a third of the view
+        layout.addWidget(self.hint)
+        self.hint.hide()  # until there is something to say
         layout.addWidget(self.plot_widget, 1)
 
         self._restyle()
@@ -203,6 +206,7 @@ class PhasePlaneView(SessionView):
         system = self.system
         if system is None or self.x_name not in system.states or self.y_name not in system.states:
             self.hint.setText("Pick two states as axes to start trajectories by clicking")
+            self.hint.show()
             return False
         if len(self.seeds) >= MAX_SEEDS:
             self.seeds.pop(0)
@@ -300,6 +304,7 @@ class PhasePlaneView(SessionView):
         self.nullclines_box.setEnabled(flat and self._nullcline_function() is not None)
         clickable = self.x_name in s.states and self.y_name in s.states
         self.hint.setText("" if clickable else "Clicking starts trajectories when both axes are states")
+        self.hint.setVisible(not clickable)
         self._draw_trajectory()
         self._draw_seeds()
         self._draw_equilibria()
