@@ -1079,7 +1079,7 @@ x'(0) = 0
           "views": {"timeseries": {"series": ["x"], "spectrum": False}}}),
         ("The calm-water picture",
          "Equilibria assume a model without chance, so they use the **noise-free part**, the "
-         "equations with the noise term left out (the model panel says so too). Upright, `x = 0`, is "
+         "equations with the noise term left out (the Equilibria view says so above its table). Upright, `x = 0`, is "
          "a **stable focus**: in calm water the buoy rings down to it. The chop keeps it from ever "
          "resting there.",
          {"open_views": ["equilibria", "phase_plane"]}),

@@ -68,6 +68,7 @@ def keep_side_widths(window, walkthrough_width: int | None = None):
 READABLE = 100   # pixels of plot (or table) a view keeps below its controls when views share the height
 GAP = 8          # pixels between docks side by side or one above the other
 IN_SIGHT = 3     # views always in sight together (a walkthrough step opens up to three), however short
+TABLE_SHARE = 0.35  # the share of the spare height a row without a plot takes (a row of plots takes 1)
 
 
 def _room(window) -> tuple[int, int]:
@@ -142,7 +143,9 @@ def _rebuild_docks(window, docks: list) -> None:
     window.addDockWidget(Qt.DockWidgetArea.RightDockWidgetArea, first)
     first.show()
     walkthrough = getattr(window, "walkthrough_dock", None)
-    beside = (walkthrough is not None and walkthrough.isVisible() and not walkthrough.isFloating()
+    # the walkthrough to the right of the views, also while hidden: a project whose kept results open their
+    # views at load lays them out before its walkthrough is shown, which then came up above the views
+    beside = (walkthrough is not None and not walkthrough.isFloating()
               and window.dockWidgetArea(walkthrough) == Qt.DockWidgetArea.RightDockWidgetArea)
     if beside:
         window.splitDockWidget(first, walkthrough, H)
@@ -161,10 +164,14 @@ def _rebuild_docks(window, docks: list) -> None:
         window.tabifyDockWidget(docks[-1], dock)
         dock.hide()
     docks[-1].raise_()
-    def settle():  # once the new layout has settled: side panels as they were, each row the same room for its plot
+    def settle():  # once the new layout has settled: side panels as they were, the room left to the plots
         widths(first)
         if len(rows) > 1:
             controls = [max(d.minimumSizeHint().height() for d in row) for row in rows]
-            extra = max(0, sum(row[0].height() for row in rows) - sum(controls)) // len(rows)
-            window.resizeDocks([row[0] for row in rows], [c + extra for c in controls], V)
+            # a row of plots takes a full share of the height left over, a row of tables alone (the equilibria)
+            # a smaller one: it already holds its rows, and an equal share squeezed the phase plane above it
+            shares = [1.0 if any(_has_plot(d) for d in row) else TABLE_SHARE for row in rows]
+            spare = max(0, sum(row[0].height() for row in rows) - sum(controls))
+            window.resizeDocks([row[0] for row in rows],
+                               [c + int(spare * k / sum(shares)) for c, k in zip(controls, shares)], V)
     QTimer.singleShot(0, settle)

@@ -248,3 +248,30 @@ def test_views_too_wide_side_by_side_are_stacked_at_the_screen_size(qtbot, windo
         assert not any(a.intersects(b) for k, a in enumerate(shown) for b in shown[k + 1:])
         check_model_panel_readable(window, panel.title_label.text())
         check_equilibria_columns_in_sight(window, panel.title_label.text())
+
+
+def check_walkthrough_beside_the_views(window, title):
+    """The walkthrough stands to the right of every view in sight, as tall as the window's middle."""
+    dock = window.walkthrough_dock
+    views = [d.geometry() for d in window.view_docks.values() if d.isVisible() and not d.isFloating()]
+    assert dock.isVisible() and views, title
+    assert dock.geometry().left() >= max(g.right() for g in views), (title, "the walkthrough is not beside the views")
+    assert dock.geometry().height() >= max(g.bottom() for g in views) - min(g.top() for g in views), title
+
+
+def test_a_sample_with_kept_results_opens_its_walkthrough_beside_the_views(qtbot, window):
+    # the stirred tank keeps its bifurcation diagram: its view is laid out at load, before the walkthrough is
+    # shown, and the walkthrough came up above the views, squeezing them into the lower third
+    window.resize(1600, 1000)
+    path = next(p for p in SAMPLES if p.stem == "stirred_tank")
+    help_ui.open_sample(window, path)
+    s, panel = window.session, window.walkthrough_panel
+    wait_idle_run(qtbot, s)
+    qtbot.wait(50)
+    check_walkthrough_beside_the_views(window, "opened")
+    panel.show_step(2)  # three views: the time series, the phase plane and the equilibria
+    wait_idle_run(qtbot, s)
+    qtbot.waitUntil(lambda: not s.busy, timeout=60000)
+    qtbot.wait(50)
+    check_walkthrough_beside_the_views(window, panel.title_label.text())
+    panel.leave()

@@ -19,7 +19,7 @@ from orbitdesk.app.views.common import SessionView, auto_timer, check_box, contr
 AUTO_MAX_STATES = 4      # models this small are searched again by themselves when they change
 AUTO_DELAY_MS = 350
 DEFAULT_EPS = 1e-3
-TABLE_ROWS = 4           # rows the table always has room for (more scroll)
+TABLE_ROWS = 3           # rows the table always has room for (more scroll): three views share a column's height
 TABLE_ROOTS = 2          # eigenvalue entries (a conjugate pair is one) in the table; all of them below and in the tip
 TABLE_WIDEST_LEAST = 520  # pixels: the most the table asks for to keep every column in sight
 MAX_START_BUTTONS = 8    # eigen-directions offered as buttons (the largest models get the first ones)
@@ -149,7 +149,7 @@ class EquilibriaView(SessionView):
         self.lower.setWidgetResizable(True)
         self.lower.setFrameShape(QFrame.Shape.NoFrame)
         self.lower.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
-        self.lower.setMinimumHeight(4 * self.details.fontMetrics().lineSpacing())
+        self.lower.setMinimumHeight(3 * self.details.fontMetrics().lineSpacing())
         self._fit_table_rows()
 
         self.splitter = QSplitter(Qt.Orientation.Vertical)
@@ -398,11 +398,11 @@ class EquilibriaView(SessionView):
             self._on_selection()
 
     def _fit_table_rows(self) -> None:
-        """The table's least height: its header and TABLE_ROWS rows (and a horizontal scroll bar's room)."""
+        """The table's least height: its header and TABLE_ROWS rows (the columns fit the width: no scroll bar
+        below them but for a model of many states, which then shows one row less)."""
         t = self.table
         header = max(t.horizontalHeader().sizeHint().height(), t.fontMetrics().height() + 8)
-        bar = t.horizontalScrollBar().sizeHint().height()
-        t.setMinimumHeight(header + TABLE_ROWS * t.verticalHeader().defaultSectionSize() + bar + 2 * t.frameWidth())
+        t.setMinimumHeight(header + TABLE_ROWS * t.verticalHeader().defaultSectionSize() + 2 * t.frameWidth())
 
     def _on_selection(self) -> None:
         eq = self.selected()
