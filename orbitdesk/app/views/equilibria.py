@@ -19,7 +19,7 @@ from orbitdesk.app.views.common import SessionView, auto_timer, check_box, contr
 AUTO_MAX_STATES = 4      # models this small are searched again by themselves when they change
 AUTO_DELAY_MS = 350
 DEFAULT_EPS = 1e-3
-TABLE_ROWS = 3           # rows the table always has room for (more scroll): three views share a column's height
+TABLE_ROWS = 4           # rows the table always has room for (more scroll)
 TABLE_ROOTS = 2          # eigenvalue entries (a conjugate pair is one) in the table; all of them below and in the tip
 TABLE_WIDEST_LEAST = 520  # pixels: the most the table asks for to keep every column in sight
 MAX_START_BUTTONS = 8    # eigen-directions offered as buttons (the largest models get the first ones)
