@@ -452,9 +452,10 @@ class MainWindow(QMainWindow):
             self.session.time_cursor = float(cursor)
         if not self.restore_layout(window):
             self.reset_layout()
-            if self.isVisible():
-                QTimer.singleShot(0, self.apply_default_sizes)  # after other panels have reacted to the load
             self._show_kept_results()
+            if self.isVisible():  # after other panels have reacted to the load and the kept results' views are
+                # laid out (their layout gives the side panels back the widths they had before the reset)
+                QTimer.singleShot(0, self.apply_default_sizes)
         # the views this project uses: open in its layout, or opened or made while it is open (the report
         # leaves out views made for a project before and closed in this one)
         self.views_in_project = {n for n, d in self.view_docks.items() if d.toggleViewAction().isChecked()}

@@ -269,6 +269,9 @@ def test_a_sample_with_kept_results_opens_its_walkthrough_beside_the_views(qtbot
     wait_idle_run(qtbot, s)
     qtbot.wait(50)
     check_walkthrough_beside_the_views(window, "opened")
+    # and the model panel at its starting width (430 px), not the one it had before the layout was reset (the
+    # kept results' views were laid out after the starting sizes and gave it back: 645 px, the views squeezed)
+    assert window.model_dock.width() <= 440, window.model_dock.width()
     panel.show_step(2)  # three views: the time series, the phase plane and the equilibria
     wait_idle_run(qtbot, s)
     qtbot.waitUntil(lambda: not s.busy, timeout=60000)
