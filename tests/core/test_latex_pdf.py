@@ -40,8 +40,8 @@ def nfc(text: str) -> str:
 DOT, DDOT = "\u0307", "\u0308"  # combining dot and two dots above: x' and x''
 
 # what the page says for each sample, read off the sample's model text (the equation as typed, in the order
-# sympy prints a sum); the Duffing form of the shaken beam is Guckenheimer & Holmes, Nonlinear Oscillations
-# (1983), eq. 2.2.1; the moths follow the logistic map of May, Nature 261 (1976)
+# sympy prints a sum); the shaken beam is the two-well Duffing equation of Guckenheimer & Holmes, Nonlinear
+# Oscillations (1983), sec. 2.2, and the moths the logistic map of May, Nature 261 (1976) (both forms from memory)
 SAMPLES = {
     "shaken_beam": [  # forced: the time in the equation
         f"x{DDOT}=−δx{DOT}+γcos(ωt)−x3+x", "Withtheparameters:", "δ=0.3in[0,1]", "γ=0.5in[0,0.8]", "ω=1.2in[0.5,2]",
