@@ -37,12 +37,13 @@ PREPARE_FROM = 20_000  # ... from which the model's kernels are compiled in the 
 
 
 @loop
-def sde_advance(sde, scheme, t0, h, first, n_steps, stride, total, Y, p, dW, out, bound, work, incr, codes):
+def sde_advance(sde, scheme, t0, h, first, n_steps, stride, total, Y, p, dW, out, offset, bound, work, incr, codes):
     """Advance every row of Y (R x n, in place) by ``n_steps`` steps from global step ``first``.
 
     ``dW`` (R, n_steps, m): the Brownian increments; after global step g the state is written to
-    ``out[r, q]`` when g is a multiple of ``stride`` or the last step ``total`` (q counts those within
-    this call). ``codes[r]``: 0 running, 1 blown up / not finite (that row is NaN from then on).
+    ``out[r, offset + q]`` when g is a multiple of ``stride`` or the last step ``total`` (q counts those
+    within this call; the whole ``out`` and an offset, not a slice of it, so the loop sees one array layout
+    whatever the count of realisations and is compiled once). ``codes[r]``: 0 running, 1 blown up / not finite (that row is NaN from then on).
     Returns the number of samples written per row."""
     R, n = Y.shape
     m = dW.shape[2]
@@ -76,7 +77,7 @@ def sde_advance(sde, scheme, t0, h, first, n_steps, stride, total, Y, p, dW, out
                         y[i] = np.nan
             if (g + 1) % stride == 0 or g + 1 == total:
                 for i in range(n):
-                    out[r, q, i] = y[i]
+                    out[r, offset + q, i] = y[i]
                 q += 1
         written = q
     return written
@@ -196,7 +197,7 @@ def run_realisations(system, settings, u0, p, report=None, engine=None) -> Reali
             for r in range(R):
                 dW[r] = rngs[r].standard_normal((steps, m)) * sqrt_h
             written = engine.loops.sde_advance(engine.kernels.sde, scheme, t0, h, first, steps, stride, total, Y, p,
-                                               dW, out[:, q:, :], float(settings.bound), work, incr, codes)
+                                               dW, out, q, float(settings.bound), work, incr, codes)
             q += written
             first += steps
             if report is not None:
@@ -228,7 +229,7 @@ def final_states(system, u0, p, t0: float, h: float, dW, scheme: str, bound: flo
     codes = np.zeros(R, dtype=np.int64)
     with np.errstate(all="ignore"):
         engine.loops.sde_advance(engine.kernels.sde, SCHEME_CODES[scheme], float(t0), float(h), 0, N, N, N, Y,
-                                 np.ascontiguousarray(p, dtype=float), dW, out[:, 0:, :], float(bound),
+                                 np.ascontiguousarray(p, dtype=float), dW, out, 0, float(bound),
                                  np.zeros(n + n * m + n * m * m), np.zeros(n), codes)
     return Y
 
@@ -239,7 +240,7 @@ def warm_up_sde(engine) -> None:
     n, m = int(k.N_STATES), int(k.N_NOISE)
     out = np.empty((1, 1, n))
     engine.loops.sde_advance(k.sde, 1, 0.0, 1e-9, 0, 1, 1, 1, np.full((1, n), 0.5), np.full(int(k.N_PARAMS), 0.5),
-                             np.zeros((1, 1, m)), out[:, 0:, :], 1e10, np.zeros(n + n * m + n * m * m),
+                             np.zeros((1, 1, m)), out, 0, 1e10, np.zeros(n + n * m + n * m * m),
                              np.zeros(n), np.zeros(1, dtype=np.int64))
 
 
