@@ -32,6 +32,7 @@ WELL = 1e-9  # the exact and the doubles value agree this well: the expression i
 MAX_ALTERNATIVES = 256  # beyond this many ties (never seen) the point is not judged
 BIG = 1.7976931348623157e308
 HUGE = 1e300  # a part beyond this: exact arithmetic is not tried (it could need endless digits)
+WHOLE = 2.0 ** 53  # a quotient beyond this has no fractional digits left in doubles: mod() is not judged
 
 _UNKNOWN = object()  # a node the doubles evaluator does not know: no opinion
 
@@ -103,6 +104,9 @@ def _doubles(expr, values: dict, decided: dict, track):
         if float(exp) == 0.5:
             return np.sqrt(base)
         return np.power(base, exp)
+    if isinstance(expr, sp.Mod) and not abs(args[0] / args[1]) < WHOLE:
+        return _UNKNOWN  # mod(1e299, 0.7): the quotient's whole part is beyond the doubles' digits, and the
+        # model's documented answer (the exact remainder of the double 1e299) is neither 0 nor sympy's
     if expr.func in _DOUBLE_OF:
         return np.float64(_DOUBLE_OF[expr.func](*args))
     return _UNKNOWN
