@@ -513,9 +513,11 @@ def newton_block(g, k, X, Pb, count, max_iter, ftol, frel, xtol, slow, bound, mi
     block's Jacobians are made together), Z1, OUT1 (n(n+1) x 1), R, RN, XN, D (n x block), NN, T
     (block), IDX (block, integers), A, B (n x n), w (n) are work arrays."""
     n = X.shape[0]
+    zero, one = np.int64(0), np.int64(1)  # not literals: a helper called with a literal 0 or 1 in one place and
+    # a variable in another is compiled twice (tests/core/test_loop_signatures.py)
     _nt_all(IDX, count)
     _nt_gather(X, IDX, count, Z, n)
-    _nt_evaluate(g, 0, k, n, Z, Pb, T, OUT, count)
+    _nt_evaluate(g, zero, k, n, Z, Pb, T, OUT, count)
     _nt_residuals(OUT, X, k, n, count, R, NN)
     _nt_start(NN, X, count, ftol, frel, S, CODE)
     for _ in range(max_iter):
@@ -527,9 +529,9 @@ def newton_block(g, k, X, Pb, count, max_iter, ftol, frel, xtol, slow, bound, mi
                 c = IDX[j]
                 for i in range(n):
                     Z1[i, 0] = X[i, c]
-                _nt_identity(Z1, n, 1)
-                _nt_evaluate(g, n, k, n, Z1, Pb, T, OUT1, 1)
-                _nt_direction(OUT1, 0, c, n, k, R, S, D, CODE, A, B, w)
+                _nt_identity(Z1, n, one)
+                _nt_evaluate(g, n, k, n, Z1, Pb, T, OUT1, one)
+                _nt_direction(OUT1, zero, c, n, k, R, S, D, CODE, A, B, w)
         else:
             _nt_gather(X, IDX, a, Z, n)
             _nt_identity(Z, n, a)
@@ -538,7 +540,7 @@ def newton_block(g, k, X, Pb, count, max_iter, ftol, frel, xtol, slow, bound, mi
         s = _nt_active(CODE, IDX, count)
         while s > 0:
             _nt_trial(X, D, S, IDX, s, Z, XN, n)
-            _nt_evaluate(g, 0, k, n, Z, Pb, T, OUT, s)
+            _nt_evaluate(g, zero, k, n, Z, Pb, T, OUT, s)
             _nt_residuals(OUT, XN, k, n, s, RN, NN)
             s = _nt_accept(RN, NN, XN, IDX, s, n, S, X, R, CODE, min_damping, xtol, slow, bound)
         _nt_converged(X, count, ftol, frel, S, CODE)

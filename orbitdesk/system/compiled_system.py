@@ -348,6 +348,13 @@ UNDEFINED_ERRORS = (ValueError, ZeroDivisionError, TypeError, OverflowError)
 class _ScalarPrinter(PythonCodePrinter):
     """lambdify's printer for the ``math`` module, with floats printed exactly."""
 
+    def _print_Mod(self, expr):
+        # Python's % binds like *, left to right: sympy's bare "a % b" inside a product read -x*x % y as
+        # (-x*x) % y for -x*mod(x, y), and mod(a, b*c) as (a % b)*c; so the whole and each side are parenthesised
+        level = sp.printing.precedence.PRECEDENCE["Mul"]
+        a, b = (self.parenthesize(arg, level) for arg in expr.args)  # wrapped at Mul's level or below
+        return f"({a} % {b})"
+
     def _print_Float(self, expr):
         return repr(float(expr))
 
