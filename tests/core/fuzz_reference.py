@@ -122,8 +122,8 @@ def exact(expr, values: dict, decided: dict):
     doubles(expr, values, decided, track)
     if track.get("huge"):
         return _UNKNOWN  # sin(sinh(1e299)) exactly needs some 1e299 digits; doubles judge alone
-    replaced = expr.xreplace({r: sp.true if v else sp.false for r, v in decided.items()})
-    try:
+    try:  # deciding a comparison can rebuild min(x, asin(pi)), which sympy refuses: undefined in the reals
+        replaced = expr.xreplace({r: sp.true if v else sp.false for r, v in decided.items()})
         value = replaced.xreplace({k: sp.Float(float(v), 30) for k, v in values.items()}).evalf(30)
     except (TypeError, ValueError, ZeroDivisionError):  # e.g. an undecided comparison with an undefined value
         return None
