@@ -2,9 +2,10 @@
 
 Autonomous flows: Newton on the unknowns (u0, T) with phi_T(u0) = u0 and the phase condition that
 u0 lies on a hyperplane section through the guess, normal to the flow there. Periodically forced
-flows: Newton on the stroboscopic map P^k(u) = u, P advancing one forcing period. The monodromy
-matrix comes from the variational equations dPhi/dt = J(t, u) Phi integrated alongside; its
-eigenvalues are the Floquet multipliers.
+flows: Newton on the stroboscopic map P^k(u) = u, P advancing one forcing period, from every pair of
+forcing multiple and start together. Both run on engine/shooting.py (all starts of an iteration in one
+call of the member loop, a status per start). The monodromy matrix comes from the variational
+equations dPhi/dt = J(t, u) Phi integrated alongside; its eigenvalues are the Floquet multipliers.
 """
 
 from __future__ import annotations
@@ -18,12 +19,13 @@ from scipy.stats import qmc
 from orbitdesk.analyses.conservative import NEUTRAL_FLOW, flow_reason, holds_at, structure
 from orbitdesk.engine.runs import Event, RunSettings, simulate
 from orbitdesk.analyses.equilibria import NONSMOOTH_WARNING
-from orbitdesk.analyses.newton import Singular, damped_newton, newton_starts
+from orbitdesk.analyses.newton import newton_starts
 from orbitdesk.engine import compiled, drivers
 from orbitdesk.engine.model_events import saltation_refusal
 from orbitdesk.engine.methods import DEFAULT as DEFAULT_METHOD
 from orbitdesk.engine.methods import method as method_named
-from orbitdesk.engine.status import C_CANCELLED
+from orbitdesk.engine.shooting import flow_ends, shooting_starts
+from orbitdesk.engine.status import C_CANCELLED, C_SINGULAR, C_UNDEFINED
 from orbitdesk.engine.stiff import model_functions, solve_at
 from orbitdesk.analyses.time_scales import MIN_WINDOW, choose_method, detect_forcing_period, time_scale
 from orbitdesk.engine.status import word as status_word
@@ -147,20 +149,35 @@ class _Flow:
             raise CycleError(f"the integration over one period failed ({failure or 'stopped early'})")
         return states
 
-    def end(self, u0, t0, T):
-        """phi_T(u0) alone (no tangent vectors)."""
-        end = self._run(np.asarray(u0, dtype=float), t0, t0 + T, [t0 + T], 0)[:, -1]
-        if not np.all(np.isfinite(end)):
-            raise CycleError("the integration over one period failed (not a number)")
-        return end
+    def ends(self, U, T, tangents):
+        """phi_T(u) of every row of U (m x n), each over its own T[j] from 0, with (``tangents``) the
+        monodromy matrices: (ends, M or None, ok), engine/shooting.flow_ends's form. The explicit
+        methods run every row in one call of the member loop; a stiff method runs them one by one."""
+        if not self.info.stiff:
+            name = self.info.name if self.info.family == "explicit_rk" else "dop853"
+            return flow_ends(self.engine, name, U, T, self.p, self.rtol, self.atol, tangents, report=self.report)
+        U = np.atleast_2d(np.asarray(U, dtype=float))
+        m, n = U.shape
+        rows = np.full((m, n * (n + 1) if tangents else n), np.nan)
+        for j in range(m):
+            z0 = np.concatenate([U[j], np.eye(n).ravel()]) if tangents else U[j]
+            try:
+                rows[j] = self._run_stiff(z0, 0.0, float(T[j]), [float(T[j])], n if tangents else 0)[:, -1]
+            except CycleError:
+                pass
+        ok = np.all(np.isfinite(rows), axis=1)
+        return rows[:, :n], rows[:, n:].reshape(m, n, n) if tangents else None, ok
 
-    def monodromy(self, u0, t0, T):
-        n = self.n
-        z0 = np.concatenate([np.asarray(u0, dtype=float), np.eye(n).ravel()])
-        end = self._run(z0, t0, t0 + T, [t0 + T], n)[:, -1]
-        if not np.all(np.isfinite(end)):
+    def rates(self, T, U) -> np.ndarray:
+        """f at each row of U (times T)."""
+        return np.array([self.rhs(float(t), u) for t, u in zip(T, U)]).reshape(len(U), self.n)
+
+    def monodromy(self, u0, T):
+        """phi_T(u0) from time 0 and its monodromy matrix."""
+        ends, M, ok = self.ends(np.asarray(u0, dtype=float)[None, :], [T], True)
+        if not ok[0]:
             raise CycleError("the integration over one period failed (not a number)")
-        return end[:n], end[n:].reshape(n, n)
+        return ends[0], M[0]
 
     def sample(self, u0, t0, T, samples):
         times = np.linspace(t0, t0 + T, samples)
@@ -295,44 +312,28 @@ def _autonomous_cycle(system, p, flow, u_guess, start, period_guess, section, tr
         T = _return_time(system, p, u_ref, normal, point, transient, why, flow.info.name, cancel,
                          report.part(0.3, 0.1))
 
-    monodromy = {}
-
-    def residual(x):  # one run without tangent vectors: a trial of the damped Newton iteration
-        return np.concatenate([flow.end(x[:n], 0.0, x[n]) - x[:n], [normal @ (x[:n] - point)]])
-
-    def jacobian(x):  # at accepted points only: the run with n tangent vectors
-        phi, M = flow.monodromy(x[:n], 0.0, x[n])
-        monodromy.update(x=x, M=M)
-        A = np.zeros((n + 1, n + 1))
-        A[:n, :n] = M - np.eye(n)
-        A[:n, n] = flow.rhs(x[n], phi)
-        A[n, :n] = normal
-        return A
-
     newton = report.part(0.4, 0.5)
 
-    def converged(state):
-        newton(state.iterations / max_iter)
-        return np.linalg.norm(state.residual[:n]) <= 1e-10 * _travel(flow, state.x[:n], state.x[n]) + \
-            _resolution(flow, state.x[:n])
+    def goal(_idx, X, _G):
+        return np.array([1e-10 * _travel(flow, x[:n], x[n]) + _resolution(flow, x[:n]) for x in X])
 
-    try:
-        state = damped_newton(residual, jacobian, np.append(u_ref, T), done=converged, max_iter=max_iter,
-                              admissible=lambda x_new, x: x_new[n] > 0.05 * x[n], rejects=(CycleError,))
-    except Singular:
+    # the shooting Newton (engine/shooting.py; the monodromy from the run with the n tangent vectors)
+    ends = shooting_starts(flow.ends, u_ref[None, :], [T], goal=goal, sections=(normal[None, :], point[None, :]),
+                           rhs=flow.rates, max_iter=max_iter, report=newton)
+    if ends.codes[0] == C_SINGULAR:
         raise CycleError("the shooting equations are singular here (a non-hyperbolic cycle or a "
-                         "family of cycles?); no isolated periodic orbit found") from None
-    u0, T, it = state.x[:n], float(state.x[n]), state.iterations
+                         "family of cycles?); no isolated periodic orbit found")
+    if ends.codes[0] == C_UNDEFINED:
+        raise CycleError("the integration over one period failed (not a number)")
+    u0, T, it = ends.x[0, :n], float(ends.x[0, n]), int(ends.iterations[0])
     scale = max(1.0, float(np.max(np.abs(u_ref))))
-    gap = float(np.linalg.norm(state.residual[:n]))
+    gap = float(ends.gap[0])
     if np.linalg.norm(flow.rhs(0.0, u0)) <= 1e-9 * scale:
         raise CycleError("the shooting converged to an equilibrium, not a periodic orbit")
     if not gap <= 1e-8 * _travel(flow, u0, T) + 10 * _resolution(flow, u0):
         raise CycleError(f"no periodic orbit found near the guess: the shooting did not converge "
                          f"(return gap {gap:.3g} after {it} Newton steps)")
-    if state.jacobian is None:
-        jacobian(state.x)
-    M = monodromy["M"]
+    M = ends.monodromy[0] if np.all(np.isfinite(ends.monodromy[0])) else flow.monodromy(u0, T)[1]
 
     multipliers = _sorted_multipliers(M)
     trivial = int(np.argmin(np.abs(multipliers - 1)))
@@ -402,64 +403,90 @@ def _forced_cycle(system, p, flow, u_guess, start, Tf, k_given, transient, max_i
     # the phase of the section: the transient ends at t_end, a whole number of forcing periods
     starts = [u_guess] if u_guess is not None else []
     starts.append(strobe[:, -1])
+    # every (multiple, start) pair in the order they are wanted; the first multiple's pairs are shot first,
+    # then all the others together (engine/shooting.py: one member loop call per run for all of them)
+    pairs = [(k, u) for k in order for u in starts]
+    groups = [pairs[:len(starts)], pairs[len(starts):]]
     newton = report.part(0.3, 0.6)
-    failure = "the Newton iteration on the stroboscopic map did not converge"
-    for index, k in enumerate(order):
-        for u_start in starts:
-            newton(index / len(order))
-            try:
-                u0, M, it, gap = _strobe_newton(flow, u_start, Tf, k, max_iter)
-            except CycleError as err:
-                failure = str(err)
-                continue
-            k_min = _minimal_multiple(flow, u0, Tf, k)
-            if k_min != k:
-                if k_given is not None:
-                    failure = f"the orbit found repeats after {k_min} forcing periods, not {k}"
-                    continue
-                k = k_min
-                _, M = flow.monodromy(u0, 0.0, k * Tf)
-            multipliers = _sorted_multipliers(M)
-            stable = bool(np.all(np.abs(multipliers) < 1))
-            warnings = []
-            if np.any(np.abs(np.abs(multipliers) - 1) < 1e-6):
-                warnings.append("a multiplier lies on the unit circle: the orbit is at a bifurcation")
-            report(0.9)
-            time, orbit = flow.sample(u0, 0.0, k * Tf, samples)
-            return _cycle(system, k * Tf, u0, time, orbit, multipliers, None, stable, M, Tf, k, it, gap,
-                          warnings, flow.rtol, p)
+    failure = ["the Newton iteration on the stroboscopic map did not converge"]
+    judged: dict[int, tuple | None] = {}
+
+    def judge(ends, group, i):
+        """The orbit of pair i of the group (u0, M, k, iterations, gap) when it is one, else None."""
+        if i not in judged:
+            judged[i] = _strobe_orbit(flow, ends, i, group[i][0], Tf, k_given, scales[i], failure)
+        return judged[i]
+
+    for number, group in enumerate(groups):
+        if not group:
+            continue
+        judged.clear()
+        U = np.array([u for _, u in group], dtype=float)
+        scales = np.maximum(1.0, np.max(np.abs(U), axis=1))
+
+        def enough(ends):  # the first pair in order that ends on an orbit decides; the later ones need not finish
+            for i in range(len(group)):
+                if ends.codes[i] < 0:
+                    return False
+                if judge(ends, group, i) is not None:
+                    return True
+            return False
+
+        ends = shooting_starts(flow.ends, U, [k * Tf for k, _ in group], goal=lambda idx, X, G: 1e-9 * scales[idx],
+                               max_iter=max_iter, enough=enough, report=newton.part(0.5 * number, 0.5))
+        for i in range(len(group)):
+            if ends.codes[i] < 0:
+                break
+            found = judge(ends, group, i)
+            if found is not None:
+                u0, M, k, it, gap = found
+                multipliers = _sorted_multipliers(M)
+                stable = bool(np.all(np.abs(multipliers) < 1))
+                warnings = []
+                if np.any(np.abs(np.abs(multipliers) - 1) < 1e-6):
+                    warnings.append("a multiplier lies on the unit circle: the orbit is at a bifurcation")
+                report(0.9)
+                time, orbit = flow.sample(u0, 0.0, k * Tf, samples)
+                return _cycle(system, k * Tf, u0, time, orbit, multipliers, None, stable, M, Tf, k, it, gap,
+                              warnings, flow.rtol, p)
     raise CycleError(f"no periodic orbit found with a period of up to {MAX_FORCING_MULTIPLE} forcing "
-                     f"periods ({failure})")
+                     f"periods ({failure[0]})")
 
 
-def _strobe_newton(flow, u0, Tf, k, max_iter):
-    n = flow.n
-    u0 = np.asarray(u0, dtype=float).copy()
-    scale = max(1.0, float(np.max(np.abs(u0))))
-    monodromy = {}
-
-    def jacobian(u):
-        monodromy["M"] = flow.monodromy(u, 0.0, k * Tf)[1]
-        return monodromy["M"] - np.eye(n)
-
-    try:
-        state = damped_newton(lambda u: flow.end(u, 0.0, k * Tf) - u, jacobian, u0,
-                              done=lambda state: state.norm <= 1e-9 * scale, max_iter=max_iter,
-                              rejects=(CycleError,))
-    except Singular:
-        raise CycleError("the stroboscopic map has a multiplier 1 here; no isolated orbit") from None
-    if not state.norm <= 1e-7 * scale:
-        raise CycleError(f"the Newton iteration on P^{k} did not converge (gap {state.norm:.3g})")
-    if state.jacobian is None:
-        jacobian(state.x)
-    return state.x, monodromy["M"], state.iterations, state.norm
+def _strobe_orbit(flow, ends, i, k, Tf, k_given, scale, failure):
+    """(u0, M, k, iterations, gap) of start i of a stroboscopic shooting when it ended on an orbit of
+    minimal multiple k (or, with no multiple given, of a divisor of k: then k is that), else None with
+    the reason in failure[0]. ``scale``: max(1, |start|_inf)."""
+    code = int(ends.codes[i])
+    if code == C_SINGULAR:
+        failure[0] = "the stroboscopic map has a multiplier 1 here; no isolated orbit"
+        return None
+    if code == C_UNDEFINED:
+        failure[0] = "the integration over one period failed (not a number)"
+        return None
+    u0 = ends.x[i]
+    gap = float(ends.gap[i])
+    if not gap <= 1e-7 * scale:
+        failure[0] = f"the Newton iteration on P^{k} did not converge (gap {gap:.3g})"
+        return None
+    M = ends.monodromy[i]
+    if not np.all(np.isfinite(M)):
+        _, M = flow.monodromy(u0, k * Tf)
+    k_min = _minimal_multiple(flow, u0, Tf, k)
+    if k_min != k:
+        if k_given is not None:
+            failure[0] = f"the orbit found repeats after {k_min} forcing periods, not {k}"
+            return None
+        k = k_min
+        _, M = flow.monodromy(u0, k * Tf)
+    return u0, M, k, int(ends.iterations[i]), gap
 
 
 def _minimal_multiple(flow, u0, Tf, k):
     scale = max(1.0, float(np.max(np.abs(u0))))
     for d in range(1, k):
         if k % d == 0:
-            phi, _ = flow.monodromy(u0, 0.0, d * Tf)
+            phi, _ = flow.monodromy(u0, d * Tf)
             if np.linalg.norm(phi - u0) <= 1e-6 * scale:
                 return d
     return k

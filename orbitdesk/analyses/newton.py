@@ -3,8 +3,7 @@
 (the equilibria's and fixed points' multi-start search, the starts of a map's cycle search: the
 model's batched kernel, dense LU, a status per start); ``damped_newton`` runs it from one start on
 any residual and Jacobian given as Python functions: the equilibria's refinement of exact points and
-their search on large systems (a sparse Jacobian), the shooting of limit cycles (autonomous
-and stroboscopic), the cycles of maps, the continuation's corrector, its stroboscopic polish and the
+their search on large systems (a sparse Jacobian), the cycles of maps, the continuation's corrector, its stroboscopic polish and the
 location of folds and Hopf points on their augmented systems, and the time-scale probe's nearest
 equilibrium.
 

@@ -440,7 +440,7 @@ def _judge_members(MS, flying, t0, ends, compiled, paces, notes) -> None:
 
 def members_run(engine, name, t0, t_end, U0, P, rtol=1e-8, atol=1e-10, max_step=None, dt=0.01, bound=1e10,
                 grid=None, planes=None, max_events=0, report=None, t_keep=None, tangents=0,
-                interval=1.0, keep_going=False) -> MembersOutput:
+                interval=1.0, keep_going=False, tangent_samples=False) -> MembersOutput:
     """Run the columns of U0 (n, N) from t0 to t_end (a number or one per member) with parameters
     P ((n_p,) shared or (n_p, N)); samples at ``grid``; the first ``max_events`` crossings of
     ``planes`` per member after ``t_keep`` (then the member stops, or with ``keep_going`` runs on
@@ -448,7 +448,8 @@ def members_run(engine, name, t0, t_end, U0, P, rtol=1e-8, atol=1e-10, max_step=
 
     With ``tangents`` = m > 0 each member carries m tangent vectors (starting as the first m
     columns of the identity, or ``tangents`` columns given as an (n, m) array), re-orthonormalised
-    every ``interval``; ``log_sums`` / ``log_span`` are their exponents' sums after ``t_keep``.
+    every ``interval``; ``log_sums`` / ``log_span`` are their exponents' sums after ``t_keep``;
+    ``tangent_samples``: the samples hold the tangent vectors too (rows n + a m + b: V[a, b]).
     The loop pauses every ``MEMBER_PAUSE_STEPS`` steps for progress and cancel (raising Cancelled);
     there each member's pace is judged as a run's is (``_Pace``): a member that would need more steps
     than the limit (sliding along a kink) stops with step_failed and its reason in ``notes``."""
@@ -500,7 +501,7 @@ def members_run(engine, name, t0, t_end, U0, P, rtol=1e-8, atol=1e-10, max_step=
     ev_t[beyond] = np.nan
     ev_y[beyond] = np.nan
     return MembersOutput(U[:, :n].T.copy(), codes, t_reached, steps.astype(np.int64),
-                         np.moveaxis(samples[:, :, :n], 2, 0) if grid.size else None,
+                         np.moveaxis(samples if tangent_samples else samples[:, :, :n], 2, 0) if grid.size else None,
                          ev_t if planes is not None else None,
                          np.moveaxis(ev_y[:, :, :n], 2, 0) if planes is not None else None,
                          count if planes is not None else None,

@@ -200,7 +200,7 @@ def _nt_load_jacobian(OUT, j, n, k, A):
     return True
 
 
-def _nt_solve_all(M, b):
+def solve_stack(M, b):
     """M[q] x[q] = b[q] for a stack, by numpy's LU; NaN rows where M[q] is singular."""
     try:
         return np.linalg.solve(M, b[..., None])[..., 0]
@@ -229,7 +229,7 @@ def _nt_directions_numpy(OUT, R, IDX, a, n, k, S, D, CODE, A, B, w):
     newton = mu == 0.0
     with np.errstate(all="ignore"):
         if np.any(newton):
-            steps[newton] = _nt_solve_all(J[newton], rhs[newton])
+            steps[newton] = solve_stack(J[newton], rhs[newton])
             singular = newton & ~np.all(np.isfinite(steps), axis=1)
             S[NS_REG, c[newton]] = 0.0
             S[NS_REG, c[singular]] = 1.0
@@ -240,7 +240,7 @@ def _nt_directions_numpy(OUT, R, IDX, a, n, k, S, D, CODE, A, B, w):
             JT = np.transpose(Js, (0, 2, 1))
             size = mu[marquardt] * np.sum(Js * Js, axis=(1, 2))
             M = JT @ Js + size[:, None, None] * np.eye(n)
-            steps[marquardt] = _nt_solve_all(M, (JT @ rhs[marquardt][..., None])[..., 0])
+            steps[marquardt] = solve_stack(M, (JT @ rhs[marquardt][..., None])[..., 0])
     good = np.all(np.isfinite(steps), axis=1)
     CODE[c[~good]] = C_SINGULAR
     D[:, c[good]] = steps[good].T
@@ -640,4 +640,4 @@ def newton_starts(system, starts, p, *, iterate: int = 0, max_iter: int = 60, ft
     return result
 
 
-__all__ = ["NewtonStarts", "newton_starts", "newton_block", "RUNNING"]
+__all__ = ["NewtonStarts", "newton_starts", "newton_block", "solve_stack", "RUNNING"]
