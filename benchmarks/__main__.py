@@ -13,7 +13,7 @@ MODULES = ["bench_single_run", "bench_cold_start", "bench_stiff", "bench_stiff_c
            "bench_equilibria",
            "bench_lyapunov_grid", "bench_fit", "bench_growth", "bench_app", "bench_ui_interaction",
            "bench_keystroke",
-           "bench_continuation", "bench_noise"]
+           "bench_continuation", "bench_noise", "bench_cycles"]
 
 
 def main(argv=None) -> int:

@@ -12,7 +12,8 @@ Cases: the forced two-well Duffing oscillator (samples/models.DUFFING_REF, the s
 gamma = 0.5 (chaotic) and 0.28 (a period-2 orbit), each from 2 starts (the end of a transient and the
 initial values) x 8 forcing multiples = 16 searches, as a forced cycle search with a guess tries them;
 Van der Pol at mu = 1 (autonomous, one start from a transient, the relaxation-circuit sample) and
-from 8 points of a transient orbit at once. Kernels are compiled first; wall times are the fastest
+from 8 points of a transient orbit at once; the damped chain of bench_growth at 100 states (one start,
+no cycle: 101 x 101 Newton systems, where the baseline's LAPACK solve spins its threads). Kernels are compiled first; wall times are the fastest
 of runs timed alternately (runs of milliseconds on a shared machine), processor times beside them.
 """
 
@@ -24,6 +25,7 @@ import time
 
 import numpy as np
 
+from benchmarks.bench_growth import chain
 from benchmarks.harness import Row, alternate
 from orbitdesk.analyses import cycles as C
 from orbitdesk.analyses.newton import Singular, damped_newton
@@ -78,7 +80,7 @@ def _forced_ours(flow, pairs, Tf):
     U = np.array([u for _, u in pairs])
     scales = np.maximum(1.0, np.max(np.abs(U), axis=1))
     ends = shooting_starts(flow.ends, U, [k * Tf for k, _ in pairs], goal=lambda idx, X, G: 1e-9 * scales[idx],
-                           max_iter=MAX_ITER)
+                           max_iter=MAX_ITER, engine=flow.loops)
     return [(ends.x[i], ends.codes[i] == C_OK) for i in range(len(pairs))]
 
 
@@ -114,7 +116,8 @@ def _goal(flow, x):
 
 def _autonomous_ours(flow, starts, periods, normals):
     ends = shooting_starts(flow.ends, starts, periods, sections=(normals, starts), rhs=flow.rates,
-                           goal=lambda idx, X, G: np.array([_goal(flow, x) for x in X]), max_iter=MAX_ITER)
+                           goal=lambda idx, X, G: np.array([_goal(flow, x) for x in X]), max_iter=MAX_ITER,
+                           engine=flow.loops)
     return [(ends.x[i], ends.codes[i] == C_OK) for i in range(len(starts))]
 
 
@@ -128,10 +131,10 @@ def _forced_case(gamma):
     return system, p, pairs, Tf
 
 
-def _autonomous_case(count):
-    system = compile_model(VAN_DER_POL)
+def _autonomous_case(count, text=VAN_DER_POL, t_end=100):
+    system = compile_model(text)
     p = system.param_values.astype(float)
-    run = simulate(system, RunSettings(t_end=100, samples=2001), system.initial, p)
+    run = simulate(system, RunSettings(t_end=t_end, samples=2001), system.initial, p)
     picks = run.states[:, -1 - 37 * np.arange(count)].T.copy()  # points round the settled orbit
     normals = np.array([system.rhs(0.0, u, p) for u in picks])
     normals /= np.linalg.norm(normals, axis=1)[:, None]
@@ -177,6 +180,13 @@ def run(log=print, repeats: int = 7) -> list[Row]:
         rows.append(_compare(f"Van der Pol mu = 1: {count} start(s)", lambda: _autonomous_ours(
             flow, starts, periods, normals), lambda: _autonomous_baseline(flow, starts, periods, normals), repeats,
             log))
+    # the damped chain of benchmarks/bench_growth at 100 states: no cycle (the search must say so); its Newton
+    # systems are 101 x 101
+    system, p, starts, periods, normals = _autonomous_case(1, chain(50), 20)
+    compiled.engine_for(system, wait=True)
+    flow = C._Flow(system, p, RTOL, ATOL, None)
+    rows.append(_compare("damped chain, 100 states: 1 start (no cycle)", lambda: _autonomous_ours(
+        flow, starts, periods, normals), lambda: _autonomous_baseline(flow, starts, periods, normals), 3, log))
     return rows
 
 

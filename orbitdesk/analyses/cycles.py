@@ -110,6 +110,7 @@ class _Flow:
         if self.info.stiff:  # an implicit method's error control is costly below 1e-9
             self.rtol, self.atol = max(rtol, 1e-9), max(atol, 1e-11)
         self.engine = None if self.info.stiff else compiled.engine_for_work(system, 1e6)
+        self.loops = self.engine or compiled.engine_for(system)  # the Newton systems' solves (shooting.py)
         self.scale = None  # the system's time scales (time_scales.TimeScale), set by find_cycle
         self.probe = None  # the run that chose the method, when it covered the transient
 
@@ -319,7 +320,7 @@ def _autonomous_cycle(system, p, flow, u_guess, start, period_guess, section, tr
 
     # the shooting Newton (engine/shooting.py; the monodromy from the run with the n tangent vectors)
     ends = shooting_starts(flow.ends, u_ref[None, :], [T], goal=goal, sections=(normal[None, :], point[None, :]),
-                           rhs=flow.rates, max_iter=max_iter, report=newton)
+                           rhs=flow.rates, max_iter=max_iter, report=newton, engine=flow.loops)
     if ends.codes[0] == C_SINGULAR:
         raise CycleError("the shooting equations are singular here (a non-hyperbolic cycle or a "
                          "family of cycles?); no isolated periodic orbit found")
@@ -433,7 +434,8 @@ def _forced_cycle(system, p, flow, u_guess, start, Tf, k_given, transient, max_i
             return False
 
         ends = shooting_starts(flow.ends, U, [k * Tf for k, _ in group], goal=lambda idx, X, G: 1e-9 * scales[idx],
-                               max_iter=max_iter, enough=enough, report=newton.part(0.5 * number, 0.5))
+                               max_iter=max_iter, enough=enough, report=newton.part(0.5 * number, 0.5),
+                               engine=flow.loops)
         for i in range(len(group)):
             if ends.codes[i] < 0:
                 break

@@ -13,10 +13,13 @@ Each iteration runs the state with its n tangent vectors (the variational equati
 the identity) from every start still iterating that has no DG at its point yet: one call of
 ``flow_ends`` (``drivers.members_run``: every start a member, each to its own end time, the
 monodromy read off the dense output at that time; below MEMBERS_FROM starts one ``flow_run`` each,
-which costs less there); solves every start's Newton system at once
-(``newton_starts.solve_stack``, numpy's stacked LU); then tries x + lam dx, lam = 1, 1/2, ... down to
-``min_damping``, the trials of every start together, runs without tangent vectors, taking the first
-trial that lowers |G| (analyses/newton.damped_newton's rules, start by start). Statuses
+which costs less there); solves every start's Newton system (``newton_starts.solve_each``: the
+multi-start Newton's own LU, compiled; or numpy's stacked solve); then tries x + lam dx, lam = 1,
+1/2, ... down to ``min_damping``, the trials of every start together, taking the first trial that
+lowers |G| (analyses/newton.damped_newton's rules, start by start). Up to TANGENT_TRIALS states the
+full step of a start whose last step was full (Newton converging) is tried with the tangent vectors,
+so when it is taken its DG comes along: one run per Newton step instead of two; damped trials run
+without them (a start still searching rejects many). Statuses
 (engine/status.py), as ``newton_starts`` gives them:
 
 * ``C_OK``: |G_u| = |phi_T(u) - u| within the caller's ``goal`` before an iteration;
@@ -108,7 +111,7 @@ class ShootingStarts:
 def shooting_starts(flow: Callable, starts, periods, *, goal: Callable, sections=None, rhs: Callable | None = None,
                     max_iter: int = 40, min_damping: float = 1 / 64, bound: float = 1e12, min_period: float = 0.05,
                     enough: Callable | None = None, report: Callable | None = None,
-                    tangent_trials: bool | None = None) -> ShootingStarts:
+                    tangent_trials: bool | None = None, engine=None) -> ShootingStarts:
     """Damped Newton on the shooting equations from every row of ``starts`` (m x n) at once.
 
     ``flow(U, T, tangents)`` -> (ends, M or None, ok), as ``flow_ends``. ``periods`` (m,): each start's
@@ -118,8 +121,11 @@ def shooting_starts(flow: Callable, starts, periods, *, goal: Callable, sections
     current one is not tried. ``goal(idx, X, G)`` -> the largest |phi_T(u) - u| that counts as
     converged for each start idx[j] at X[j] (its G beside it). ``enough(result)`` after every iteration: True
     stops, the starts still iterating left RUNNING. ``report(fraction)`` between iterations (it may
-    raise Cancelled). ``tangent_trials``: the trials run with the tangent vectors, so an accepted trial
-    brings DG along (default: up to TANGENT_TRIALS states, where they cost little beside the state's)."""
+    raise Cancelled). ``tangent_trials``: full steps after a full step are tried with the tangent
+    vectors, so a taken one brings DG along (default: up to TANGENT_TRIALS states, where they cost
+    little beside the state's).
+    ``engine``: its loop ``solve_each`` solves the Newton systems (compiled: no LAPACK threads; default
+    numpy's stacked solve)."""
     U0 = np.atleast_2d(np.asarray(starts, dtype=float))
     m, n = U0.shape
     autonomous = sections is not None
@@ -139,12 +145,12 @@ def shooting_starts(flow: Callable, starts, periods, *, goal: Callable, sections
         tangent_trials = n <= TANGENT_TRIALS
     trial_M, trial_rate = np.full((m, n, n), np.nan), np.full((m, n), np.nan)
 
-    def residuals(Xs, idx):
+    def residuals(Xs, idx, tangents):
         """G at the rows Xs of the starts idx: (G, |G|, |G_u|), inf where a run failed; with
-        ``tangent_trials`` the monodromy there too (and f at the end), kept when the point is."""
+        ``tangents`` the monodromy there too (and f at the end), kept when the point is."""
         Ts = Xs[:, n] if autonomous else T0[idx]
-        ends, M, ok = flow(Xs[:, :n], Ts, tangent_trials)
-        if tangent_trials:
+        ends, M, ok = flow(Xs[:, :n], Ts, tangents)
+        if tangents:
             trial_M[idx], trial_rate[idx] = np.nan, np.nan
             trial_M[idx[ok]] = M[ok]
             if autonomous:
@@ -160,11 +166,13 @@ def shooting_starts(flow: Callable, starts, periods, *, goal: Callable, sections
         return G, norm, gap
 
     everyone = np.arange(m)
-    G, norm, gap = residuals(X, everyone)
+    G, norm, gap = residuals(X, everyone, tangent_trials)
+    full = np.ones(m, dtype=bool)  # the start's last step was a full Newton step (or it has taken none)
     result.residual[:], result.gap[:] = G, gap
     result.codes[~np.isfinite(norm)] = C_UNDEFINED
     if tangent_trials:
         result.monodromy[:], result.rate[:] = trial_M, trial_rate
+        trial_M[:], trial_rate[:] = np.nan, np.nan
         have[:] = np.all(np.isfinite(trial_M), axis=(1, 2))
     for it in range(1, max_iter + 1):
         live = np.flatnonzero(result.codes == RUNNING)
@@ -196,7 +204,11 @@ def shooting_starts(flow: Callable, starts, periods, *, goal: Callable, sections
             A[:, :n, n] = result.rate[live]
             A[:, n, :n] = normals[live]
         with np.errstate(all="ignore"):
-            steps = solve_stack(A, -result.residual[live])
+            if engine is None:
+                steps = solve_stack(A, -result.residual[live])
+            else:
+                steps = np.ascontiguousarray(-result.residual[live])
+                engine.entry("solve_each")(A, steps, int(live.size))
         good = np.all(np.isfinite(A), axis=(1, 2)) & np.all(np.isfinite(steps), axis=1)
         result.codes[live[~good]] = C_SINGULAR
         live, steps = live[good], steps[good]
@@ -206,15 +218,21 @@ def shooting_starts(flow: Callable, starts, periods, *, goal: Callable, sections
             allowed = trial[:, n] > min_period * X[live, n] if autonomous else np.ones(live.size, dtype=bool)
             G_new = np.full((live.size, size), np.nan)
             norm_new, gap_new = np.full(live.size, math.inf), np.full(live.size, math.inf)
-            if np.any(allowed):
-                G_new[allowed], norm_new[allowed], gap_new[allowed] = residuals(trial[allowed], live[allowed])
+            # a full step from a start whose last step was full carries the tangent vectors (with
+            # tangent_trials): Newton converging; the damped trials of a start still searching do not
+            for tangents in (True, False):
+                part = allowed & (((lam == 1.0) & full[live] & tangent_trials) == tangents)
+                if np.any(part):
+                    G_new[part], norm_new[part], gap_new[part] = residuals(trial[part], live[part], tangents)
             better = norm_new < norm[live]
             took = live[better]
             X[took], norm[took] = trial[better], norm_new[better]
             result.residual[took], result.gap[took] = G_new[better], gap_new[better]
-            # made again at the new point when needed (with tangent_trials: the trial's)
+            full[took] = lam[better] == 1.0
+            # made again at the new point when needed (or the trial's, when it carried the tangent vectors)
             result.monodromy[took], result.rate[took] = trial_M[took], trial_rate[took]
             have[took] = np.all(np.isfinite(trial_M[took]), axis=(1, 2))
+            trial_M[live], trial_rate[live] = np.nan, np.nan
             far = took[np.max(np.abs(X[took, :n]), axis=1) > bound]
             result.codes[far] = C_DIVERGED
             lam = lam[~better] * 0.5

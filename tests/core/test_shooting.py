@@ -135,3 +135,19 @@ def test_enough_leaves_the_later_starts_unfinished():
                            goal=lambda idx, X, G: np.where(idx == 0, 1e-10, -1.0), enough=enough)
     assert ends.codes.tolist() == [C_OK, RUNNING]
     assert asked[-1] == [C_OK, RUNNING] and len(asked) == ends.iterations[1]
+
+
+def test_the_newton_systems_solved_without_lapack_match_numpy():
+    # newton_starts.solve_each (the multi-start loop's own LU with partial pivoting) against numpy's LAPACK
+    # solve; an exactly singular matrix gives a row of NaN
+    system = compile_model(FORCED)
+    engine = compiled.engine_for(system, wait=True)
+    rng = np.random.default_rng(5)
+    M = rng.normal(size=(3, 7, 7))
+    M[2, :, 3] = 0.0
+    B = rng.normal(size=(3, 7))
+    expected = [np.linalg.solve(M[q], B[q]) for q in range(2)]
+    A, X = M.copy(), B.copy()
+    engine.entry("solve_each")(A, X, 3)
+    assert X[:2] == pytest.approx(np.array(expected), rel=1e-10, abs=1e-12)
+    assert np.isnan(X[2]).all()
