@@ -48,6 +48,7 @@ from orbitdesk.engine.status import C_CANCELLED, C_DIVERGED, C_OK, C_SINGULAR, C
 
 
 TANGENT_TRIALS = 4  # states up to which trials carry the tangent vectors: one run per Newton step, not two
+OWN_LU_FROM = 32  # unknowns from which the Newton systems go through solve_each (below, numpy is quick there)
 MEMBERS_FROM = 8  # starts from which one member-loop call beats a run for each (benchmarks/bench_cycles.py)
 
 
@@ -124,8 +125,8 @@ def shooting_starts(flow: Callable, starts, periods, *, goal: Callable, sections
     raise Cancelled). ``tangent_trials``: full steps after a full step are tried with the tangent
     vectors, so a taken one brings DG along (default: up to TANGENT_TRIALS states, where they cost
     little beside the state's).
-    ``engine``: its loop ``solve_each`` solves the Newton systems (compiled: no LAPACK threads; default
-    numpy's stacked solve)."""
+    ``engine``: its loop ``solve_each`` solves the Newton systems of OWN_LU_FROM unknowns or more
+    (compiled: no LAPACK threads; otherwise numpy's stacked solve)."""
     U0 = np.atleast_2d(np.asarray(starts, dtype=float))
     m, n = U0.shape
     autonomous = sections is not None
@@ -204,7 +205,7 @@ def shooting_starts(flow: Callable, starts, periods, *, goal: Callable, sections
             A[:, :n, n] = result.rate[live]
             A[:, n, :n] = normals[live]
         with np.errstate(all="ignore"):
-            if engine is None:
+            if engine is None or size < OWN_LU_FROM:
                 steps = solve_stack(A, -result.residual[live])
             else:
                 steps = np.ascontiguousarray(-result.residual[live])
