@@ -54,6 +54,7 @@ CONVERGE_RTOL, CONVERGE_ATOL = 0.01, 0.002  # stop when each standard error <= r
 MIN_BLOCKS = 10  # block averages needed before the spread of them is trusted
 FLOW_CAP, MAP_CAP = 20000.0, 2_000_000  # the longest averaging (time units; iterations) when converging
 MAP_BLOCK = 1000  # iterations per block of a map
+LONE_AFTER = 2 * MIN_BLOCKS  # map_exponents: an orbit not settled after this many blocks goes on alone
 NONSMOOTH_NOTE = ("the model uses {names}: the exponents use the Jacobian that holds almost everywhere "
                   "(kinks and jumps contribute nothing)")
 
@@ -422,6 +423,77 @@ def _map_spectrum(system, p, u, steps, transient, bound, report, tolerance=None)
     return _with_uncertainty(result, out, transient, blocks, tolerance, "iterations")
 
 
+def map_exponents(engine, P, U0, transient, bound=1e10, tolerance=(CONVERGE_RTOL, CONVERGE_ATOL), cap=None,
+                  report=None):
+    """The spectra of many orbits of a map at once - the columns of U0 (n, M) with the parameters P
+    ((n_p,) shared or (n_p, M)) - each as ``lyapunov_spectrum(..., converge=True)`` finds it alone:
+    ``transient`` iterations, then blocks of MAP_BLOCK iterations, tangent vectors carried over (from the
+    identity), until the block averages settle to ``tolerance`` or ``cap`` iterations after the
+    transient (default MAP_CAP). A block is one call of the member loop for the orbits still going
+    (``maps.members_iterate``: per iterate one batched kernel call and one Gram-Schmidt over the block);
+    an orbit not settled after LONE_AFTER blocks goes on alone (``drivers.map_tangent``: for the few
+    slowest, in plain Python, a pass over a block costs more than it saves). That choice rests on the
+    orbit's own block count, so each orbit's numbers are the same whatever orbits go with it.
+    Returns (exponents (M, n) descending, their standard errors (M, n) (NaN with fewer than two blocks),
+    settled (M,), status codes (M,)); an orbit that stopped early has NaN exponents."""
+    from orbitdesk.engine.members_maps import iterate_rows
+
+    report = report or (lambda fraction: None)
+    rtol, atol = tolerance
+    U0 = np.asarray(U0, dtype=float)
+    n, M = U0.shape
+    t_cap = int(transient) + int(MAP_CAP if cap is None else math.ceil(cap))
+    first = drivers.members_iterate(engine, 0, int(transient), int(transient), U0, P, bound=bound)
+    codes = first.codes.copy()
+    Z, rows, _, m = drivers._member_rows(first.states, P, n)  # each orbit with the identity as its V
+    sums, averaged = np.zeros((M, n)), np.zeros(M)
+    averages = [[] for _ in range(M)]
+    settled = np.zeros(M, dtype=bool)
+    going, k = np.flatnonzero(codes == 0), int(transient)
+    while going.size and k < t_cap:
+        k_next = min(k + MAP_BLOCK, t_cap)
+        share = np.ones(M)  # progress: an orbit still going is counted by its blocks against twice the fewest
+        share[going] = np.minimum(1.0, np.array([len(averages[i]) for i in going.tolist()]) / (2 * MIN_BLOCKS))
+        done = float(share.mean())
+        got, logs = np.zeros(going.size, dtype=np.int64), np.zeros((going.size, m + 1))
+        lone = np.array([len(averages[i]) >= LONE_AFTER for i in going.tolist()], dtype=bool)
+        crowd = going[~lone]
+        if crowd.size:  # one call of the member loop for the orbits in their first LONE_AFTER blocks
+            block = np.ascontiguousarray(Z[crowd])
+            crowd_rows = rows if rows.shape[0] == 1 else np.ascontiguousarray(rows[crowd])
+            got[~lone], _, logs[~lone], _ = iterate_rows(engine, k, k_next, k, block, crowd_rows, m, bound,
+                                                         lambda fraction: report(done))
+            Z[crowd] = block
+        for c in np.flatnonzero(lone).tolist():  # the slow to settle each alone
+            i = int(going[c])
+            out = drivers.map_tangent(engine, k, k_next, k, Z[i, :n], Z[i, n:].reshape(n, m),
+                                      rows[0 if rows.shape[0] == 1 else i], bound, report=lambda f: report(done))
+            got[c], logs[c, :m], logs[c, m] = out.code, out.sums, out.averaged
+            Z[i, :n], Z[i, n:] = out.y, out.V.ravel()
+        for c, i in enumerate(going.tolist()):
+            if got[c] != 0:
+                codes[i] = got[c]
+                continue
+            averages[i].append(logs[c, :m] / logs[c, m])
+            sums[i], averaged[i] = sums[i] + logs[c, :m], averaged[i] + logs[c, m]
+            if len(averages[i]) >= MIN_BLOCKS:
+                values = np.asarray(averages[i])
+                error = np.std(values, axis=0, ddof=1) / math.sqrt(len(values))
+                settled[i] = bool(np.all(error <= rtol * np.abs(sums[i] / averaged[i]) + atol))
+        going = going[(codes[going] == 0) & ~settled[going]]
+        k = k_next
+    exponents, errors = np.full((M, n), np.nan), np.full((M, n), np.nan)
+    for i in np.flatnonzero((codes == 0) & (averaged > 0)).tolist():
+        values = sums[i] / averaged[i]
+        order = np.argsort(-values, kind="stable")
+        exponents[i] = values[order]
+        if len(averages[i]) >= 2:
+            blocks = np.asarray(averages[i])
+            errors[i] = (np.std(blocks, axis=0, ddof=1) / math.sqrt(blocks.shape[0]))[order]
+        settled[i] = len(averages[i]) >= MIN_BLOCKS and bool(np.all(errors[i] <= rtol * np.abs(exponents[i]) + atol))
+    return exponents, errors, settled, codes
+
+
 def _defined(system, k, y, p) -> bool:
     try:
         system.rhs(k, y, p)
@@ -472,6 +544,7 @@ def largest_lyapunov_two_trajectory(system: CompiledSystem, p=None, u0=None, t_e
     dt = (end - ts) / n_steps
     every = RENORM_STEPS if renorm_every is None else max(1, int(round(float(renorm_every) / dt)))
     engine = compiled.engine_for_work(system, 8 * n_steps * max(1.0, n / 3))
+    pull_back = engine.entry("pull_back")
     a = np.asarray(u, dtype=float)
     b = a + d0 * np.asarray(direction)
     total, done, renorms = 0.0, 0, 0
@@ -491,13 +564,11 @@ def largest_lyapunov_two_trajectory(system: CompiledSystem, p=None, u0=None, t_e
             break
         done += block
         a, b = pair.states[:, 0].copy(), pair.states[:, 1].copy()
-        sep = b - a
-        dist = float(np.linalg.norm(sep))
-        if not dist > 0:
+        growth = pull_back(a, b, float(d0))  # the maps' own pull-back (tangent.pull_back), b in place
+        if growth != growth:
             status, message = UNDEFINED, f"the two trajectories merged near {system.time_name} = {t_next:.6g}"
             break
-        total += math.log(dist / d0)
-        b = a + d0 * sep / dist
+        total += growth
         renorms += 1
         if renorms % stride == 0 or done == n_steps:
             rows.append([total / (t_next - ts)])

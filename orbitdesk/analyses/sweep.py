@@ -372,7 +372,7 @@ def sweep(system, parameter: str, values, settings: SweepSettings | None = None,
     error = None
     if exponents_after:
         lyap, error, capped = sweep_exponents(system, parameter, values, wanted, u0, base_p, wanted.method,
-                                              cancel, report.part(0.5, 0.5))
+                                              cancel, report.part(0.5, 0.5), compiled)
         notes += [capped] if capped else []
     report(1.0)
     method = "" if system.kind == MAP else "rk4" if settings.dt else settings.method
@@ -405,17 +405,22 @@ def _sweep_method(system, parameter, values, settings, u0, base_p, cancel):
     return choice
 
 
-def sweep_exponents(system, parameter, values, settings, u0, base_p, method=None, cancel=None, progress=None):
+def sweep_exponents(system, parameter, values, settings, u0, base_p, method=None, cancel=None, progress=None,
+                    compiled: bool | None = None):
     """The largest Lyapunov exponent of each value by the ``lyapunov`` command's path: ``lyapunov_spectrum``
     stopping on convergence (its tolerance; capped at the sweep's sampling time for flows) after the
     sweep's transient, with the sweep's method (None: as the command without --method), step and
-    tolerances. (exponents (M,), standard errors (M,), a note on values capped before settling)."""
+    tolerances; a map's values all at once by the same steps (``lyapunov.map_exponents``: the member
+    loop, one batched call per iterate). (exponents (M,), standard errors (M,), a note on values capped
+    before settling.) ``compiled`` as ``sweep``'s (maps)."""
     from orbitdesk.analyses.lyapunov import lyapunov_spectrum
     from orbitdesk.engine.settings import RunSettings
 
     report = Reporter(progress, cancel)
     M = len(values)
     exponents, errors, capped = np.full(M, np.nan), np.full(M, np.nan), []
+    if system.kind == MAP:
+        return _map_sweep_exponents(system, parameter, values, settings, u0, base_p, report, compiled)
     run = RunSettings(rtol=settings.rtol, atol=settings.atol, bound=settings.bound, t_start=settings.t_start)
     # the longest averaging: a flow's sampling time (the lyapunov command's default cap for maps)
     cap = None if system.kind == MAP else (settings.samples * settings.period if settings.mode == STROBE
@@ -442,6 +447,25 @@ def sweep_exponents(system, parameter, values, settings, u0, base_p, method=None
         note = (f"the exponent of {len(capped)} of {M} values reached the cap before its estimate settled (first at "
                 f"{parameter} = {capped[0]:.6g}); their standard errors say how far")
     return exponents, errors, note
+
+
+def _map_sweep_exponents(system, parameter, values, settings, u0, base_p, report, compiled):
+    from orbitdesk.analyses.lyapunov import MAP_BLOCK, MIN_BLOCKS, map_exponents
+
+    M, n = len(values), system.n_states
+    P = np.repeat(np.asarray(base_p, dtype=float)[:, None], M, axis=1)
+    P[system.parameters.index(parameter)] = values
+    transient = int(round(settings.transient))
+    engine = _engine(system, M * (transient + 2 * MIN_BLOCKS * MAP_BLOCK) * (n + 1) * max(1.0, n / 3), compiled)
+    with np.errstate(all="ignore"):
+        exponents, errors, settled, codes = map_exponents(engine, P, np.broadcast_to(
+            np.asarray(u0, dtype=float).reshape(n, -1), (n, M)), transient, settings.bound, report=report)
+    capped = values[(codes == 0) & ~settled & np.isfinite(exponents[:, 0])]
+    note = ""
+    if capped.size:
+        note = (f"the exponent of {capped.size} of {M} values reached the cap before its estimate settled (first at "
+                f"{parameter} = {capped[0]:.6g}); their standard errors say how far")
+    return exponents[:, 0], errors[:, 0], note
 
 
 def check_sweep_size(system, count: int, s: SweepSettings) -> None:

@@ -11,9 +11,10 @@ import math
 import numpy as np
 
 from orbitdesk.engine.explicit_rk import PAUSED, any_layout, state_code
-from orbitdesk.engine.jitting import at, loop
+from orbitdesk.engine.jitting import at, loop, noref, numpy_version
 from orbitdesk.engine.members import load_member
-from orbitdesk.engine.tangent import _record, gram_schmidt
+from orbitdesk.engine.members_numpy import state_codes
+from orbitdesk.engine.tangent import SMALL_BLOCK, _gram_schmidt_block_numpy, _record, gram_schmidt_block, pull_back
 
 MERGED = -2  # map_pair: the two orbits met (no separation left to measure), a code of this loop only
 
@@ -54,7 +55,7 @@ def map_pair(f, a, b, p, st, n_end, keep_from, d0, every, bound, rows, row_t, st
     (before ``keep_from`` only ``a`` is iterated; at ``keep_from`` b starts d0 away from it along
     ``b``'s entries as a direction): every ``every`` steps after ``keep_from``, and at the end, the
     logarithm of their distance over ``d0`` is added to st[1] and b pulled back to distance d0 along
-    their separation (Benettin et al. 1976). st[2]: the steps whose growth st[1] holds, st[3] the
+    their separation (``tangent.pull_back``, Benettin et al. 1976). st[2]: the steps whose growth st[1] holds, st[3] the
     renormalisations; running estimates st[1] / st[2] into ``rows`` every ``stride`` renormalisations
     (st[9] rows written). Returns a status code (1: an orbit escapes, 2: an undefined value, MERGED:
     the two orbits met) or PAUSED after ``max_steps`` steps (the next call goes on)."""
@@ -86,22 +87,137 @@ def map_pair(f, a, b, p, st, n_end, keep_from, d0, every, bound, rows, row_t, st
             continue
         done = k - keep_from
         if done % every == 0 or k == n_end:
-            dist = 0.0
-            for i in range(n):
-                dist += (b[i] - a[i]) ** 2
-            dist = math.sqrt(dist)
-            if not dist > 0.0:
+            growth = pull_back(a, b, d0)
+            if growth != growth:
                 code = MERGED
                 break
-            st[1] += math.log(dist / d0)
+            st[1] += growth
             st[2] = done
             st[3] += 1.0
-            for i in range(n):
-                b[i] = a[i] + d0 * (b[i] - a[i]) / dist
             if int(st[3]) % stride == 0 or k == n_end:
                 _record(st[1:2], st[2], rows, row_t, st, float(k))
     st[0] = k
     return PAUSED if code == 0 and k < n_end else code
+
+
+def _judge_iterates_numpy(NXT, n, m, count, bound, KS, keep_from, CODES, NORMS):
+    if count <= SMALL_BLOCK:
+        return _judge_iterates(NXT, n, m, count, bound, KS, keep_from, CODES, NORMS)
+    CODES[:count] = state_codes(NXT[:n, :count], bound)
+    if m > 0 and _gram_schmidt_block_numpy(NXT, n, n, m, NORMS, count):
+        for c in np.flatnonzero(NORMS[0, :count] == 0.0):
+            _collapsed(NXT, n, m, c, KS, keep_from, CODES)
+
+
+@numpy_version(_judge_iterates_numpy)
+@noref
+def _judge_iterates(NXT, n, m, count, bound, KS, keep_from, CODES, NORMS):
+    """Each new iterate's status code into CODES (``state_code``), and with m tangent vectors their
+    re-orthonormalisation for the whole block (``gram_schmidt_block``, the stretches into NORMS)."""
+    for c in range(count):
+        CODES[c] = state_code(NXT[:n, c], bound)
+    if m > 0 and gram_schmidt_block(NXT, n, n, m, NORMS, count):
+        for c in range(count):
+            if NORMS[0, c] == 0.0:
+                _collapsed(NXT, n, m, c, KS, keep_from, CODES)
+
+
+@noref
+def _collapsed(NXT, n, m, c, KS, keep_from, CODES):
+    """Member c's tangent vectors collapsed (the Jacobian is singular on its orbit): an undefined
+    exponent after the transient; within it (a start that lands on a critical point) afresh."""
+    if KS[c] + 1 > keep_from:
+        if CODES[c] == 0:
+            CODES[c] = 2
+    else:
+        for a in range(n):
+            for b in range(m):
+                NXT[n + a * m + b, c] = 1.0 if a == b else 0.0
+
+
+def _take_iterates_numpy(Z, NXT, KS, BS, samples, STR, NORMS, sums, CODES, count, n, m, keep_from):
+    if count <= SMALL_BLOCK:
+        return _take_iterates(Z, NXT, KS, BS, samples, STR, NORMS, sums, CODES, count, n, m, keep_from)
+    live = CODES[:count] == 0
+    if live.all():  # the usual round: whole slices
+        cols = np.arange(count)
+        Z[:, :count] = NXT[:, :count]
+        KS[:count] += 1
+    else:
+        cols = np.flatnonzero(live)
+        Z[:, cols] = NXT[:, cols]
+        KS[cols] += 1
+    after = cols[KS[cols] > keep_from]
+    if after.size == 0:
+        return
+    who = BS[3 + after].astype(np.int64)
+    if samples.shape[1]:
+        r = KS[after] - keep_from - 1
+        kept = r < samples.shape[1]
+        samples[who[kept], r[kept], :] = Z[:n, after[kept]].T
+    for j in range(m):  # one logarithm per many steps: the stretches multiplied meanwhile
+        stretch = STR[j, after] * NORMS[j, after]
+        STR[j, after] = stretch
+        wide = ~((1e-100 < stretch) & (stretch < 1e100))
+        if wide.any():
+            for c in after[wide].tolist():
+                sums[int(BS[3 + c]), j] += math.log(STR[j, c])
+                STR[j, c] = 1.0
+    sums[who, m] += 1.0
+
+
+@numpy_version(_take_iterates_numpy)
+@noref
+def _take_iterates(Z, NXT, KS, BS, samples, STR, NORMS, sums, CODES, count, n, m, keep_from):
+    """The members whose new iterate is good take it (CODES[c] == 0): step KS[c] + 1, its sample
+    after ``keep_from``, its stretches multiplied in and the logarithms summed."""
+    K = samples.shape[1]
+    nz = Z.shape[0]
+    for c in range(count):
+        if CODES[c] != 0:
+            continue
+        i = int(BS[3 + c])
+        for j in range(nz):
+            Z[j, c] = NXT[j, c]
+        k = KS[c] + 1
+        KS[c] = k
+        if k > keep_from:
+            r = k - keep_from - 1
+            if r < K:
+                for j in range(n):
+                    samples[i, r, j] = Z[j, c]
+            for j in range(m):  # one logarithm per many steps: the stretches multiplied meanwhile
+                STR[j, c] *= NORMS[j, c]
+                if not 1e-100 < STR[j, c] < 1e100:
+                    sums[i, j] += math.log(STR[j, c])
+                    STR[j, c] = 1.0
+            sums[i, m] += 1.0
+
+
+def _ending_numpy(CODES, KS, n_end, count):
+    return int(np.count_nonzero((CODES[:count] != 0) | (KS[:count] >= n_end)))
+
+
+@numpy_version(_ending_numpy)
+@noref
+def _ending(CODES, KS, n_end, count):
+    """How many members of the block stop after this iterate (a status code, or the last step)."""
+    ending = 0
+    for c in range(count):
+        if CODES[c] != 0 or KS[c] >= n_end:
+            ending += 1
+    return ending
+
+
+def _step_times_numpy(TS, KS, count):
+    TS[:count] = KS[:count]
+
+
+@numpy_version(_step_times_numpy)
+@noref
+def _step_times(TS, KS, count):
+    for c in range(count):
+        TS[c] = float(KS[c])
 
 
 @loop
@@ -115,12 +231,14 @@ def members_iterate(g, U, P, n0, n_end, keep_from, bound, samples, codes, reache
     is re-orthonormalised every step and the logarithms after ``keep_from`` summed into
     ``sums[i, :m]`` (``sums[i, m]`` counts the steps). ``codes``, ``reached``: per member status code
     and the step reached. Returns 0 when all are done, or PAUSED after about ``max_steps``
-    member-steps (the next call goes on)."""
+    member-steps (the next call goes on). Each iterate is a few passes over the whole block (status,
+    Gram-Schmidt, taking the new iterates: numpy over the members in plain Python); only members that
+    stop are looked at one by one."""
     N, nz = U.shape
     n = nz // (m + 1)
     B = Z.shape[1]
-    W = np.empty((n, max(m, 1)))
-    norms = np.empty(max(m, 1))
+    CODES = np.zeros(B, dtype=np.int64)
+    NORMS = np.ones((max(m, 1), B))
     K = samples.shape[1]
     if n_end <= n0:  # nothing to iterate
         for i in range(N):
@@ -147,53 +265,24 @@ def members_iterate(g, U, P, n0, n_end, keep_from, bound, samples, codes, reache
             return 0
         if used >= max_steps:
             return PAUSED
-        for c in range(count):
-            TS[c] = float(KS[c])
+        _step_times(TS, KS, count)
         g(m, TS, Z, Pb, NXT, count)
         used += count
-        c = np.int64(0)  # not a literal: callees get one compiled version
-        while c < count:
+        _judge_iterates(NXT, n, m, count, bound, KS, keep_from, CODES, NORMS)
+        _take_iterates(Z, NXT, KS, BS, samples, STR, NORMS, sums, CODES, count, n, m, keep_from)
+        if _ending(CODES, KS, n_end, count) == 0:
+            continue
+        c = count - 1  # from the last column down: the column moved into an ended one's is done already
+        while c >= 0:
+            if CODES[c] == 0 and KS[c] < n_end:
+                c -= 1
+                continue
+            # member i ends: its state, status and the samples it never reached
             i = int(BS[3 + c])
             k = KS[c]
-            code = state_code(NXT[:n, c], bound)
-            if code == 0 and m > 0:
-                for a in range(n):
-                    for b in range(m):
-                        W[a, b] = NXT[n + a * m + b, c]
-                if not gram_schmidt(W, norms):  # the Jacobian is singular on the orbit
-                    if k + 1 > keep_from:
-                        code = 2
-                    else:  # within the transient (a start that lands on a critical point): afresh
-                        for a in range(n):
-                            for b in range(m):
-                                W[a, b] = 1.0 if a == b else 0.0
-                if code == 0:
-                    for a in range(n):
-                        for b in range(m):
-                            NXT[n + a * m + b, c] = W[a, b]
-            if code == 0:
-                for j in range(nz):
-                    Z[j, c] = NXT[j, c]
-                k += 1
-                KS[c] = k
-                if k > keep_from:
-                    r = k - keep_from - 1
-                    if r < K:
-                        for j in range(n):
-                            samples[i, r, j] = Z[j, c]
-                    for j in range(m):  # one logarithm per many steps: the stretches multiplied meanwhile
-                        STR[j, c] *= norms[j]
-                        if not 1e-100 < STR[j, c] < 1e100:
-                            sums[i, j] += math.log(STR[j, c])
-                            STR[j, c] = 1.0
-                    sums[i, m] += 1.0
-                if k < n_end:
-                    c += 1
-                    continue
-            # member i ends: its state, status and the samples it never reached
             for j in range(m):
                 sums[i, j] += math.log(STR[j, c])
-            codes[i] = code
+            codes[i] = CODES[c]
             reached[i] = k
             for j in range(nz):
                 U[i, j] = Z[j, c]
@@ -201,16 +290,17 @@ def members_iterate(g, U, P, n0, n_end, keep_from, bound, samples, codes, reache
                 for j in range(n):
                     samples[i, r, j] = math.nan
             BS[2] += 1
-            last = count - 1  # the last column moves into this one (not yet looked at this round)
+            last = count - 1  # the last column moves into this one
             if last != c:
                 for j in range(nz):
                     Z[j, c] = Z[j, last]
-                    NXT[j, c] = NXT[j, last]
                 for j in range(Pb.shape[0]):
                     Pb[j, c] = Pb[j, last]
                 for j in range(m):
                     STR[j, c] = STR[j, last]
                 KS[c] = KS[last]
+                CODES[c] = CODES[last]
                 BS[3 + c] = BS[3 + last]
             count -= 1
+            c -= 1
         BS[0] = count

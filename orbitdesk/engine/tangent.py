@@ -23,71 +23,119 @@ from orbitdesk.engine.explicit_rk import PAUSED, WORK_ROWS, any_layout, erk_adva
 from orbitdesk.engine.jitting import at, loop, noref, numpy_version
 
 
-def _column_norm_numpy(V, j):
-    v = V[:, j]
-    return math.sqrt(float(v @ v))
+SMALL_BLOCK = 8  # plain Python: up to this many members, element by element is cheaper than numpy's calls
 
 
-@numpy_version(_column_norm_numpy)
+def _lengths_numpy(S, rows, count):
+    """The length of each member's vector whose entries are the given rows of S."""
+    s = S[rows[0], :count] * S[rows[0], :count]
+    for r in rows[1:]:
+        s = s + S[r, :count] * S[r, :count]
+    return np.sqrt(s)
+
+
+def _gram_schmidt_block_numpy(S, first, n, m, norms, count):
+    if count <= SMALL_BLOCK:  # each member on Python floats (a list): the same code as compiled, member by member
+        failed = 0
+        for c in range(count):
+            v, lengths = S[first:first + n * m, c].tolist(), [0.0] * m
+            good = orthonormal_columns(v, n, m, lengths)
+            S[first:first + n * m, c] = v
+            norms[:m, c] = lengths if good else 0.0
+            failed += not good
+        return failed
+    with np.errstate(all="ignore"):
+        rows = [[first + a * m + j for a in range(n)] for j in range(m)]  # column j's entries, by row of V
+        good = np.ones(count, dtype=np.bool_)
+        everyone = True  # no member has failed or been left out yet: no masks needed
+        for j in range(m):
+            before = _lengths_numpy(S, rows[j], count)
+            norm = before
+            again = good.copy()  # members still in the loop of passes (a failed member is left as it is)
+            for _ in range(2):
+                whole = everyone and bool(again.all())
+                for q in range(j):
+                    d = S[rows[q][0], :count] * S[rows[j][0], :count]
+                    for a in range(1, n):
+                        d = d + S[rows[q][a], :count] * S[rows[j][a], :count]
+                    for a in range(n):
+                        less = S[rows[j][a], :count] - d * S[rows[q][a], :count]
+                        S[rows[j][a], :count] = less if whole else np.where(again, less, S[rows[j][a], :count])
+                new = _lengths_numpy(S, rows[j], count)
+                norm = new if whole else np.where(again, new, norm)
+                stop = (new > 0.5 * before) | (new == 0.0)
+                before = new if whole else np.where(again, new, before)
+                again &= ~stop
+                if not again.any():
+                    break
+            good &= (norm > 0.0) & np.isfinite(norm)
+            everyone = everyone and bool(good.all())
+            norms[j, :count] = norm
+            for a in range(n):
+                S[rows[j][a], :count] = (S[rows[j][a], :count] / norm if everyone else
+                                         np.where(good, S[rows[j][a], :count] / norm, S[rows[j][a], :count]))
+        if not everyone:
+            norms[:, :count][:, ~good] = 0.0
+    return int(count - np.count_nonzero(good))
+
+
 @noref
-def _column_norm(V, j):
-    """The length of V's column j."""
-    s = 0.0
-    for i in range(V.shape[0]):
-        s += V[i, j] * V[i, j]
-    return math.sqrt(s)
-
-
-def _project_out_numpy(V, j):
-    if j:
-        Q = V[:, :j]
-        V[:, j] -= Q @ (Q.T @ V[:, j])
-
-
-@numpy_version(_project_out_numpy)
-@noref
-def _project_out(V, j):
-    """Column j less its projections on the columns before it (orthonormal already): one column at a
-    time compiled (modified Gram-Schmidt), all at once with numpy's products in plain Python."""
-    n = V.shape[0]
-    for q in range(j):
-        d = 0.0
-        for i in range(n):
-            d += V[i, q] * V[i, j]
-        for i in range(n):
-            V[i, j] -= d * V[i, q]
-
-
-def _divide_column_numpy(V, j, norm):
-    V[:, j] /= norm
-
-
-@numpy_version(_divide_column_numpy)
-@noref
-def _divide_column(V, j, norm):
-    for i in range(V.shape[0]):
-        V[i, j] /= norm
-
-
-@noref
-def gram_schmidt(V, norms):
-    """Gram-Schmidt on the columns of V in place, with a second pass when the first cancels most of a
-    column ("twice is enough"); norms[j] = R's j-th diagonal. Returns False when a column collapses to
-    zero. The same code compiled and in plain Python (its helpers there are numpy's whole columns)."""
-    for j in range(V.shape[1]):
-        before = _column_norm(V, j)
+def orthonormal_columns(v, n, m, norms):
+    """Modified Gram-Schmidt of one matrix held by rows in v (V[a, j] = v[a m + j], n x m) in place, with a
+    second pass when the first cancels most of a column ("twice is enough"); norms[j] = R's j-th diagonal.
+    Returns False when a column collapses (to zero, or not finite), the later columns left as they were."""
+    for j in range(m):
+        before = 0.0
+        for a in range(n):
+            before += v[a * m + j] * v[a * m + j]
+        before = math.sqrt(before)
         norm = before
         for _ in range(2):
-            _project_out(V, j)
-            norm = _column_norm(V, j)
+            for q in range(j):
+                d = 0.0
+                for a in range(n):
+                    d += v[a * m + q] * v[a * m + j]
+                for a in range(n):
+                    v[a * m + j] -= d * v[a * m + q]
+            norm = 0.0
+            for a in range(n):
+                norm += v[a * m + j] * v[a * m + j]
+            norm = math.sqrt(norm)
             if norm > 0.5 * before or norm == 0.0:
                 break
             before = norm
         if not norm > 0.0 or not math.isfinite(norm):
             return False
         norms[j] = norm
-        _divide_column(V, j, norm)
+        for a in range(n):
+            v[a * m + j] /= norm
     return True
+
+
+@numpy_version(_gram_schmidt_block_numpy)
+@noref
+def gram_schmidt_block(S, first, n, m, norms, count):
+    """``orthonormal_columns`` of the tangent vectors of members 0 .. count-1 in place: member c's are
+    the columns of the n x m matrix V[a, j] = S[first + a m + j, c] (a member loop's block of states
+    (u, V) by columns; one matrix as S = V.reshape((n m, 1))); norms[j, c] = R's j-th diagonal. Returns
+    how many members' vectors collapsed: their norms[:, c] are 0. Compiled: member by member; plain
+    Python: a few members the same way on Python floats, a larger block the same operations in the same
+    order on all its members at once with numpy (``_gram_schmidt_block_numpy``): the same numbers."""
+    failed = 0
+    for c in range(count):
+        if not orthonormal_columns(S[first:first + n * m, c], n, m, norms[:, c]):
+            for q in range(m):
+                norms[q, c] = 0.0
+            failed += 1
+    return failed
+
+
+@noref
+def gram_schmidt(V, norms):
+    """``gram_schmidt_block`` of one matrix V (n x m, C-contiguous) in place; norms[j] = R's j-th
+    diagonal. Returns False when a column collapses."""
+    n, m = V.shape
+    return gram_schmidt_block(V.reshape((n * m, 1)), np.int64(0), n, m, norms.reshape((m, 1)), np.int64(1)) == 0
 
 
 @noref
@@ -100,6 +148,24 @@ def orthonormalise(V, logs):
     for j in range(V.shape[1]):
         logs[j] = math.log(logs[j])
     return True
+
+
+@noref
+def pull_back(a, b, d0):
+    """The companion orbit ``b`` pulled back in place to distance ``d0`` from the reference ``a`` along
+    their separation (Benettin, Galgani & Strelcyn 1976): returns the logarithm of their distance over
+    ``d0`` (the growth since the last pull-back), NaN when they met (no separation left to measure).
+    The one pull-back of the two-trajectory exponent: maps' loop (maps.map_pair) and, called from
+    Python, flows' (analyses/lyapunov.largest_lyapunov_two_trajectory)."""
+    dist = 0.0
+    for i in range(a.shape[0]):
+        dist += (b[i] - a[i]) ** 2
+    dist = math.sqrt(dist)
+    if not dist > 0.0:
+        return math.nan
+    for i in range(a.shape[0]):
+        b[i] = a[i] + d0 * (b[i] - a[i]) / dist
+    return math.log(dist / d0)
 
 
 def renormalise(loops, V, logs) -> bool:
