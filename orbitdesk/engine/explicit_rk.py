@@ -407,7 +407,13 @@ def interpolant_fits(f, kind, which, t, y, y_new, h, p, F, rtol, atol, tmp, tmp2
     ratio = DEFECT_TO_ERROR[kind]
     for c in range(CHECK_COUNT[kind]):
         x = CHECK_AT[kind, c]
-        dense_value_slope(kind, F, y, x, tmp, tmp2)
+        if kind == 0:  # DOP853's one point: its value and slope read here (a call cost more than the reading)
+            for i in range(n):
+                value, d = _d853_at(F, i, x)
+                tmp[i] = y[i] + value
+                tmp2[i] = d
+        else:
+            dense_value_slope(kind, F, y, x, tmp, tmp2)
         f(which, t + x * h, at(tmp), at(p), at(tmp3))
         e = 0.0
         for i in range(n):
@@ -505,6 +511,12 @@ def _event(f, kind, which, t, y, h, p, F, K2, trusted, x, k, ev_t, ev_y, ev_k, n
 
 @noref
 def _read_step(f, kind, which, adaptive, t, y, y_new, h, p, K, F, K2, rtol, atol, tmp, tmp2, tmp3):
+    """``ready_step`` called: read_points' three sites share one compiled copy (erk_advance inlines its own)."""
+    return ready_step(f, kind, which, adaptive, t, y, y_new, h, p, K, F, K2, rtol, atol, tmp, tmp2, tmp3)
+
+
+@inner
+def ready_step(f, kind, which, adaptive, t, y, y_new, h, p, K, F, K2, rtol, atol, tmp, tmp2, tmp3):
     """Ready the step for reading points inside it: its dense output, and whether that output is trusted
     (``interpolant_fits``); when not, points come from sub-steps (``point_value``) and K2[0] is set."""
     dense_coefficients(f, kind, which, t, y, y_new, h, p, K, F, tmp)
@@ -524,6 +536,27 @@ def _save(st, t, h_abs, n_out, gi, n_ev):
     st[7] = n_ev
 
 
+@inner
+def read_samples(f, kind, which, t, t_new, h, direction, y, y_new, p, F, K2, trusted, tmp, grid, gi, out_t, out_y):
+    """The samples at ``grid`` from index gi on inside the step (t, t_new] into out_t / out_y, off its
+    dense output (``trusted``, as ``_read_step`` found) or from sub-steps; returns the next index."""
+    n = y.shape[0]
+    while gi < grid.shape[0] and (grid[gi] - t_new) * direction <= 0.0:
+        x = (grid[gi] - t) / h
+        if grid[gi] == t_new:
+            for i in range(n):
+                out_y[gi, i] = y_new[i]
+        elif trusted:  # the common case read here directly: a call per sample cost a fifth of a step
+            dense_value(kind, F, y, x, out_y[gi])
+        else:
+            point_value(f, kind, which, t, y, h, p, F, K2, trusted, x, tmp, np.bool_(False))
+            for i in range(n):
+                out_y[gi, i] = tmp[i]
+        out_t[gi] = grid[gi]
+        gi += 1
+    return gi
+
+
 @noref
 def read_points(f, kind, which, adaptive, t, t_new, h, direction, y, y_new, p, K, F, K2, rtol, atol, tmps,
                 grid, gi, out_t, out_y, planes, plane_dir, terminal, first, ev_t, ev_y, ev_k, n_ev):
@@ -541,23 +574,11 @@ def read_points(f, kind, which, adaptive, t, t_new, h, direction, y, y_new, p, K
     dense_ready = False
     trusted = True
     # samples on the grid inside (t, t_new]
-    while gi < grid.shape[0] and (grid[gi] - t_new) * direction <= 0.0:
-        if not dense_ready:
-            trusted = _read_step(f, kind, which, adaptive, t, y, y_new, h, p, K, F, K2, rtol, atol, tmp, tmp2,
-                                 tmp3)
-            dense_ready = True
-        x = (grid[gi] - t) / h
-        if grid[gi] == t_new:
-            for i in range(n):
-                out_y[gi, i] = y_new[i]
-        elif trusted:  # the common case read here directly: a call per sample cost a fifth of a step
-            dense_value(kind, F, y, x, out_y[gi])
-        else:
-            point_value(f, kind, which, t, y, h, p, F, K2, trusted, x, tmp, np.bool_(False))
-            for i in range(n):
-                out_y[gi, i] = tmp[i]
-        out_t[gi] = grid[gi]
-        gi += 1
+    if gi < grid.shape[0] and (grid[gi] - t_new) * direction <= 0.0:
+        trusted = _read_step(f, kind, which, adaptive, t, y, y_new, h, p, K, F, K2, rtol, atol, tmp, tmp2, tmp3)
+        dense_ready = True
+        gi = read_samples(f, kind, which, t, t_new, h, direction, y, y_new, p, F, K2, trusted, tmp, grid, gi, out_t,
+                          out_y)
     stop = False
     for k in range(n_planes):
         ga = -planes[k, n]
@@ -703,7 +724,15 @@ def erk_advance(f, kind, which, adaptive, y, p, K, F, W, st, t_end, rtol, atol, 
         steps += 1
         st[2] += 1
         stop = False
-        if n_planes or gi < grid.shape[0] and (grid[gi] - t_new) * direction <= 0.0:
+        if n_planes == 0:  # samples only (most runs): read here; a call of read_points (29 arguments, most of
+            # them arrays passed field by field) cost about 100 ns a sampled step, a fifth of the step
+            if gi < grid.shape[0] and (grid[gi] - t_new) * direction <= 0.0:
+                trusted = ready_step(f, kind, which, adaptive, t, y, y_new, h, p, K, F, K2, rtol, atol, tmp, tmp2,
+                                     tmps[2])
+                gi = read_samples(f, kind, which, t, t_new, h, direction, y, y_new, p, F, K2, trusted, tmp, grid, gi,
+                                  out_t, out_y)
+                n_out = gi
+        else:
             gi_before = gi
             gi, n_ev, stop = read_points(f, kind, which, adaptive, t, t_new, h, direction, y, y_new, p, K, F, K2, rtol,
                                          atol, tmps, grid, gi, out_t, out_y, planes, plane_dir, terminal, st[2] == 1.0,
