@@ -511,12 +511,6 @@ def _event(f, kind, which, t, y, h, p, F, K2, trusted, x, k, ev_t, ev_y, ev_k, n
 
 @noref
 def _read_step(f, kind, which, adaptive, t, y, y_new, h, p, K, F, K2, rtol, atol, tmp, tmp2, tmp3):
-    """``ready_step`` called: read_points' three sites share one compiled copy (erk_advance inlines its own)."""
-    return ready_step(f, kind, which, adaptive, t, y, y_new, h, p, K, F, K2, rtol, atol, tmp, tmp2, tmp3)
-
-
-@inner
-def ready_step(f, kind, which, adaptive, t, y, y_new, h, p, K, F, K2, rtol, atol, tmp, tmp2, tmp3):
     """Ready the step for reading points inside it: its dense output, and whether that output is trusted
     (``interpolant_fits``); when not, points come from sub-steps (``point_value``) and K2[0] is set."""
     dense_coefficients(f, kind, which, t, y, y_new, h, p, K, F, tmp)
@@ -727,7 +721,7 @@ def erk_advance(f, kind, which, adaptive, y, p, K, F, W, st, t_end, rtol, atol, 
         if n_planes == 0:  # samples only (most runs): read here; a call of read_points (29 arguments, most of
             # them arrays passed field by field) cost about 100 ns a sampled step, a fifth of the step
             if gi < grid.shape[0] and (grid[gi] - t_new) * direction <= 0.0:
-                trusted = ready_step(f, kind, which, adaptive, t, y, y_new, h, p, K, F, K2, rtol, atol, tmp, tmp2,
+                trusted = _read_step(f, kind, which, adaptive, t, y, y_new, h, p, K, F, K2, rtol, atol, tmp, tmp2,
                                      tmps[2])
                 gi = read_samples(f, kind, which, t, t_new, h, direction, y, y_new, p, F, K2, trusted, tmp, grid, gi,
                                   out_t, out_y)
