@@ -291,9 +291,9 @@ _ARRAY_FLAGS = 0x1 | 0x2 | 0x100 | 0x400
 
 def _kinds(args) -> tuple:
     """What numba's typing of ``args`` depends on, cheaply: arrays' dtype, dimensions, layout,
-    alignment and writability (one read of numpy's flag bits, not an attribute each: a loop's call
-    from Python with twenty arrays took 6.6 µs for this, now about half); the type of anything else
-    (the kernel: its own object, one signature per engine)."""
+    alignment and writability (one read of numpy's flag bits, not an attribute each: about 40% less
+    for erk_advance's 27 arguments, timed side by side); the type of anything else (the kernel: its own
+    object, one signature per engine)."""
     import numpy as np
 
     ndarray = np.ndarray
