@@ -25,7 +25,7 @@ from types import ModuleType, SimpleNamespace
 
 import numpy as np
 
-from orbitdesk.system import private_cache
+from orbitdesk.system import float_math, private_cache
 from orbitdesk.system.codegen import HEADER, kernel_source
 from orbitdesk.system.compiled_system import UNDEFINED_ERRORS
 from orbitdesk.engine import explicit_rk, jitting, maps, members, members_fixed, newton_starts, stochastic, tangent
@@ -139,7 +139,9 @@ def module_source(system, jit: bool, batch: bool = False, part: str = "") -> str
             # parts of a large kernel (codegen._split_model): compiled with it, into its machine code
             head += ["_part_kernel = njit(error_model='numpy', nogil=True)"]
         else:
-            head = ["import math", "from math import *  # noqa: F401,F403", "import numpy as np", "", "",
+            head = ["import math", "from math import *  # noqa: F401,F403",
+                    f"{', '.join(float_math.NAMES)} = _OVERFLOW_IS_INF  # float_math's: an overflow is inf, as compiled",
+                    "import numpy as np", "", "",
                     "def _plain(f):", "    return f", "", "",
                     "def _fill_nan(a):", "    a[...] = math.nan", ""]
             head += [f"_{name}_kernel = _plain" for name in list(_signatures(system, part)) + [inlined, "part"]]
@@ -194,7 +196,8 @@ def cache_folder() -> Path | None:
 
 def _exec_module(source: str, name: str, folder: Path | None = None) -> ModuleType:
     """The module of ``source`` (our printer's output, never model text), kept in ``folder`` if given."""
-    return private_cache.load_source_module(folder, name, source, {"_UNDEFINED": UNDEFINED_ERRORS},
+    names = {"_UNDEFINED": UNDEFINED_ERRORS, "_OVERFLOW_IS_INF": tuple(float_math.NAMES.values())}
+    return private_cache.load_source_module(folder, name, source, names,
                                             module_name=f"orbitdesk_kernels_{name}", on_disk_flag="_ON_DISK")
 
 

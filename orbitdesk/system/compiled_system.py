@@ -19,6 +19,7 @@ from sympy.printing.numpy import NumPyPrinter
 from sympy.printing.pycode import PythonCodePrinter
 
 from orbitdesk.language.model import FLOW, MAP, ParsedModel, parse_model
+from orbitdesk.system import float_math
 from orbitdesk.system.flat_code import flat_cse, rename
 from orbitdesk.language.noise import system_noise
 
@@ -44,6 +45,8 @@ def lambdify(args, exprs, modules="math"):
     # so 2^floor(x) with a large x overflows instead of building an exact huge integer
     printer = _printer() if modules == "math" else _vector_printer() if modules == "numpy" else None
     args, exprs = _generated_names(args, exprs)
+    if modules == "math":
+        modules = [float_math.NAMES, "math"]  # an overflow is inf, as in compiled code
     return sp.lambdify(args, exprs, modules=modules, cse=flat_cse, printer=printer)
 
 
@@ -368,8 +371,10 @@ class _ScalarPrinter(PythonCodePrinter):
         if exp == 2:  # a product, rounded once the same way by Python, numpy and compiled code
             base = self.parenthesize(expr.base, sp.printing.precedence.PRECEDENCE["Mul"], strict=False)
             return f"({base}*{base})"
-        if exp.is_Integer or exp in (sp.S.Half, -sp.S.Half):
+        if exp in (-1, sp.S.Half, -sp.S.Half):  # 1/x, sqrt(x), 1/sqrt(x)
             return super()._print_Pow(expr, rational)
+        # other whole powers by pow() too, as compiled code computes x**k: the same bits in Python (C's pow
+        # either way), and an overflow is inf through float_math's pow rather than an error of **
         return f"pow({self._print(expr.base)}, {self._print(exp)})"
 
 
@@ -501,6 +506,7 @@ def _compile_binder(source: str):
     global _generated_count
     _generated_count += 1
     namespace = {name: getattr(math, name) for name in dir(math) if not name.startswith("_")}
+    namespace.update(float_math.NAMES)  # an overflow is inf, as in compiled code
     namespace.update(_UNDEFINED=UNDEFINED_ERRORS, math=math)
     filename = f"<orbitdesk-generated-{_generated_count}>"
     linecache.cache[filename] = (len(source), None, source.splitlines(True), filename)
