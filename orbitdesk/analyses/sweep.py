@@ -18,7 +18,9 @@ result's note says so). Explicit methods run every value in the member loops; a 
 each value through ``sections`` (``sweep_events.sweep_value_by_value``), as models with events do.
 Optionally the largest Lyapunov exponent per value, by the ``lyapunov`` command's own path
 (``lyapunov.lyapunov_spectrum`` stopping on convergence, capped at the sampling time, with its
-standard error): the same function, the same rule, the same number for the same settings.
+standard error): the same function, the same rule, the same number for the same settings. A map's
+values run together (``lyapunov.map_exponents``: the same blocks and rule in the member loop, each
+value's number that of the command to ~1e-14, and the same whatever values go with it).
 
 Large sweeps and two-parameter grids can be split into chunks run on any
 ``concurrent.futures.Executor`` (``chunks.py``); workers recompile the model text. The engine is
