@@ -467,7 +467,8 @@ def map_exponents(engine, P, U0, transient, bound=1e10, tolerance=(CONVERGE_RTOL
         for c in np.flatnonzero(lone).tolist():  # the slow to settle each alone
             i = int(going[c])
             out = drivers.map_tangent(engine, k, k_next, k, Z[i, :n], Z[i, n:].reshape(n, m),
-                                      rows[0 if rows.shape[0] == 1 else i], bound, report=lambda f: report(done))
+                                      rows[0 if rows.shape[0] == 1 else i], bound, max_rows=1,
+                                      report=lambda f: report(done))  # no running estimates: one row a block
             got[c], logs[c, :m], logs[c, m] = out.code, out.sums, out.averaged
             Z[i, :n], Z[i, n:] = out.y, out.V.ravel()
         for c, i in enumerate(going.tolist()):
