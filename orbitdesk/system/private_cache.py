@@ -83,6 +83,8 @@ def private_folder(*parts: str, create: bool = True) -> Path | None:
             folder.mkdir(parents=True, exist_ok=True)
         return folder if folder.is_dir() else None
     try:
+        if create and not root.parent.exists():  # a fresh account has no ~/.cache yet: made private
+            root.parent.mkdir(mode=0o700, parents=True, exist_ok=True)
         # the root's parent may be shared (like /tmp, with the sticky bit) or a link (~/.cache), but
         # nobody else may be able to replace the root in it
         why = _problem(root.parent, os.stat(root.parent), ours=False)

@@ -56,6 +56,18 @@ def test_the_cache_folder_is_created_private(cache):
 
 
 @posix
+def test_a_fresh_account_without_a_cache_home_gets_one(tmp_path, monkeypatch, caplog):
+    # a new user (or a new machine) has no ~/.cache: the folders are made, private, not refused
+    monkeypatch.delenv("ORBITDESK_CACHE", raising=False)
+    monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "home" / ".cache"))
+    with caplog.at_level(logging.WARNING):
+        folder = private_cache.private_folder("kernels")
+    assert folder == tmp_path / "home" / ".cache" / "orbitdesk" / "kernels" and folder.is_dir()
+    assert _mode(tmp_path / "home" / ".cache") == 0o700 and _mode(folder) == 0o700
+    assert "not used" not in caplog.text
+
+
+@posix
 @needs_numba
 def test_numba_cache_files_stay_in_the_private_folder(cache, monkeypatch, tmp_path):
     import numba
