@@ -455,6 +455,7 @@ def map_exponents(engine, P, U0, transient, bound=1e10, tolerance=(CONVERGE_RTOL
         share = np.ones(M)  # progress: an orbit still going is counted by its blocks against twice the fewest
         share[going] = np.minimum(1.0, np.array([len(averages[i]) for i in going.tolist()]) / (2 * MIN_BLOCKS))
         done = float(share.mean())
+        report(done)  # progress, and a cancel taken, once a block (the loop's own pauses are rarer for a few orbits)
         got, logs = np.zeros(going.size, dtype=np.int64), np.zeros((going.size, m + 1))
         lone = np.array([len(averages[i]) >= LONE_AFTER for i in going.tolist()], dtype=bool)
         crowd = going[~lone]

@@ -146,3 +146,22 @@ def test_map_sweep_exponents_plain_equal_compiled_bit_for_bit():
     together = sweep(system, "a", values, settings, compiled=True)
     np.testing.assert_array_equal(plain.lyapunov, together.lyapunov)
     np.testing.assert_array_equal(plain.lyapunov_error, together.lyapunov_error)
+
+
+def test_map_sweep_exponents_report_progress_and_cancel():
+    # two values whose exponents take many blocks (a = 1.4 settles in about 14): progress rises block by block
+    # and a cancel is taken between blocks
+    from orbitdesk.engine.progress import CancelToken, Cancelled
+
+    system = compile_model(HENON)
+    token, seen = CancelToken(), []
+
+    def progress(fraction):
+        seen.append(fraction)
+        if fraction > 0.7:
+            token.cancel()
+
+    with pytest.raises(Cancelled):
+        sweep(system, "a", [1.39, 1.4], SweepSettings(transient=100, samples=10, lyapunov=True), cancel=token,
+              progress=progress)
+    assert seen == sorted(seen) and 0.7 < seen[-1] < 1.0
