@@ -165,3 +165,17 @@ def test_map_sweep_exponents_report_progress_and_cancel():
         sweep(system, "a", [1.39, 1.4], SweepSettings(transient=100, samples=10, lyapunov=True), cancel=token,
               progress=progress)
     assert seen == sorted(seen) and 0.7 < seen[-1] < 1.0
+
+
+@pytest.mark.parametrize("compiled", [False, True])
+def test_the_pull_back_of_a_companion_orbit(compiled):
+    # closed form: a separation (3, 4) d0 has length 5 d0; pulled back along it to (0.6, 0.8) d0; orbits that met: NaN
+    from orbitdesk.engine.tangent import pull_back
+
+    if compiled and not kernels.available():
+        pytest.skip("numba is not installed or ORBITDESK_NO_JIT=1")
+    step = jitting.compiled_loops(*kernels.LOOP_MODULES).pull_back if compiled else pull_back
+    a, b = np.array([1.0, -2.0]), np.array([1.0 + 3e-8, -2.0 + 4e-8])
+    assert step(a, b, 1e-8) == pytest.approx(math.log(5.0), rel=1e-7)
+    np.testing.assert_allclose(b - a, [0.6e-8, 0.8e-8], rtol=1e-7)
+    assert math.isnan(step(a, a.copy(), 1e-8))
