@@ -99,11 +99,13 @@ def _doubles(expr, values: dict, decided: dict, track):
         return np.float64(sum(args[1:], args[0]))
     if expr.is_Mul:
         return np.float64(math.prod(args[1:], start=args[0]))
-    if expr.is_Pow:
-        base, exp = args
-        if float(exp) == 0.5:
-            return np.sqrt(base)
-        return np.power(base, exp)
+    if expr.is_Pow or isinstance(expr, sp.exp):
+        value = np.exp(args[0]) if isinstance(expr, sp.exp) else (
+            np.sqrt(args[0]) if float(args[1]) == 0.5 else np.power(*args))
+        if value == 0 and track is not None and all(a != 0 and np.isfinite(a) for a in args):
+            track["huge"] = True  # an underflow: 0.25^cosh(690) exactly has an exponent of -6e299, which
+            # sympy's mod of it expands into a 10^299-digit fraction; doubles judge alone
+        return value
     if isinstance(expr, sp.Mod) and not abs(args[0] / args[1]) < WHOLE:
         return _UNKNOWN  # mod(1e299, 0.7): the quotient's whole part is beyond the doubles' digits, and the
         # model's documented answer (the exact remainder of the double 1e299) is neither 0 nor sympy's
