@@ -436,7 +436,7 @@ def map_exponents(engine, P, U0, transient, bound=1e10, tolerance=(CONVERGE_RTOL
     orbit's own block count, so each orbit's numbers are the same whatever orbits go with it.
     Returns (exponents (M, n) descending, their standard errors (M, n) (NaN with fewer than two blocks),
     settled (M,), status codes (M,)); an orbit that stopped early has NaN exponents."""
-    from orbitdesk.engine.members_maps import iterate_rows
+    from orbitdesk.engine.drivers import iterate_rows
 
     report = report or (lambda fraction: None)
     rtol, atol = tolerance

@@ -515,7 +515,23 @@ def members_iterate(engine, n0, n_end, keep_from, U0, P, samples=0, bound=1e10, 
     ``tangents`` (m, or an (n, m) start) the tangent vectors' log sums after ``keep_from``
     (``log_span`` counts the steps). The loop pauses for progress and cancel (raising Cancelled)."""
     U, rows, n, m = _member_rows(U0, P, tangents)
-    N, nz = U.shape
+    codes, reached, sums, out = iterate_rows(engine, n0, n_end, keep_from, U, rows, m, bound, report, samples)
+    return MembersOutput(U[:, :n].T.copy(), codes, reached.astype(float), reached - int(n0),
+                         np.moveaxis(out, 2, 0), None, None, None,
+                         sums[:, :m] if m else None, sums[:, m] if m else None)
+
+
+def iterate_rows(engine, n0, n_end, keep_from, Z, rows, m, bound=1e10, report=None, samples=0):
+    """The map member loop (``maps.members_iterate``) on rows the caller keeps: iterate the members' rows
+    Z = (u, V) (N x n(m+1), C-contiguous, in place) from step n0 to ``n_end`` with the parameter rows
+    ``rows`` (1 or N rows), their m tangent vectors re-orthonormalised every step and the logarithms of
+    the stretches after ``keep_from`` summed, so a spectrum can be averaged block after block with every
+    member's V going on where it stopped (``analyses/lyapunov.map_exponents``). Returns (codes (N,),
+    steps reached (N,), sums (N, m + 1): the m sums and the steps they cover, the first ``samples``
+    states after ``keep_from`` (N, samples, n)). ``report(fraction)`` is called at pauses (it raises
+    Cancelled to stop)."""
+    N, nz = Z.shape
+    n = nz // (m + 1)
     out = np.empty((N, int(samples), n))
     codes, reached = np.zeros(N, dtype=np.int64), np.zeros(N, dtype=np.int64)
     sums = np.zeros((N, m + 1))
@@ -524,7 +540,7 @@ def members_iterate(engine, n0, n_end, keep_from, U0, P, samples=0, bound=1e10, 
             np.zeros(B, dtype=np.int64), np.ones((max(m, 1), B)), np.zeros(3 + B))
     total = max(1, N * (int(n_end) - int(n0)))
     while True:
-        code = engine.loops.members_iterate(engine.batch, U, rows, int(n0), int(n_end), int(keep_from), float(bound),
+        code = engine.loops.members_iterate(engine.batch, Z, rows, int(n0), int(n_end), int(keep_from), float(bound),
                                             out, codes, reached, int(m), sums, *work, MEMBER_PAUSE_STEPS * 8)
         if code != PAUSED:
             break
@@ -532,9 +548,7 @@ def members_iterate(engine, n0, n_end, keep_from, U0, P, samples=0, bound=1e10, 
             BS, KS = work[-1], work[-3]
             flying = int(BS[0])
             report(min(1.0, (BS[2] * (int(n_end) - int(n0)) + float((KS[:flying] - int(n0)).sum())) / total))
-    return MembersOutput(U[:, :n].T.copy(), codes, reached.astype(float), reached - int(n0),
-                         np.moveaxis(out, 2, 0), None, None, None,
-                         sums[:, :m] if m else None, sums[:, m] if m else None)
+    return codes, reached, sums, out
 
 
 def warm_up(engine) -> None:

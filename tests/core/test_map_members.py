@@ -81,21 +81,6 @@ def test_compiled_block_renormalisation_equals_the_plain_one():
     np.testing.assert_array_equal(a[:, good], b[:, good])
 
 
-@needs_compiler
-def test_plain_block_grid_equals_the_compiled_grid_bit_for_bit():
-    # Henon (a, b) grid with escapes (a = 1.5 leaves the basin): every exponent equal, plain and compiled.
-    # Sprott, Chaos and Time-Series Analysis (2003): (1.4, 0.3) has lambda = 0.41922 (from memory)
-    system = compile_model(HENON)
-    settings = GridSettings(transient=100, duration=2000)
-    xs, ys = np.linspace(1.0, 1.5, 21), np.array([0.1, 0.2, 0.3])
-    plain = lyapunov_grid(system, "a", xs, "b", ys, settings, chunk_size=1000, compiled=False)
-    together = lyapunov_grid(system, "a", xs, "b", ys, settings, chunk_size=1000, compiled=True)
-    np.testing.assert_array_equal(plain.status, together.status)
-    assert (plain.status == "diverged").any() and (plain.status == "ok").any()
-    np.testing.assert_array_equal(plain.exponent, together.exponent)
-    assert plain.exponent[2, 16] == pytest.approx(0.41922, abs=0.01)
-
-
 def test_lozi_grid_largest_exponent_sprott():
     # Lozi map, a = 1.7, b = 0.5: largest exponent 0.4703 (Sprott 2003, from memory), by the member loop
     system = compile_model(LOZI)
