@@ -189,7 +189,7 @@ def _checked_constant(expr: sp.Expr, node, what: str = "this constant") -> sp.Ex
                 if any(tamed[a] is not a for a in numbers):
                     expr = expr.func(*[tamed.get(a, a) for a in expr.args])
         powers = {part: _float_exponent(part) for part in (expr, *expr.args)
-                  if (part.is_Pow or isinstance(part, sp.exp)) and part.exp.free_symbols}
+                  if part.is_Pow or isinstance(part, sp.exp)}
         changed = {part: new for part, new in powers.items() if new is not part}
         if changed:
             expr = changed[expr] if expr in changed else expr.func(*[changed.get(a, a) for a in expr.args])
@@ -214,26 +214,35 @@ def _checked_constant(expr: sp.Expr, node, what: str = "this constant") -> sp.Ex
 
 
 def _holds_huge_number(expr: sp.Expr) -> bool:
-    """A number beyond MAX_MAGNITUDE (or an exact rational beyond MAX_EXACT) inside a constant expression."""
+    """A number beyond MAX_MAGNITUDE (or an exact rational beyond MAX_EXACT) inside a constant expression,
+    or a power whose exact exponent has a numerator beyond MAX_SYMBOLIC_EXPONENT: sympy's polynomial code
+    (which its mod calls for a gcd) reads exp(p/q) as exp(1/q) to the power p and builds a list of that
+    length, so mod(c, exp(0.325^27)), whose exponent is 13^27/40^27, never ended."""
     if expr.is_Number:
         return False  # a number alone was sized by its caller
-    return any(abs(n) > MAX_MAGNITUDE or n.is_Rational and max(abs(n.p), n.q) > MAX_EXACT
-               for n in expr.atoms(sp.Number))
+    if any(abs(n) > MAX_MAGNITUDE or n.is_Rational and max(abs(n.p), n.q) > MAX_EXACT
+           for n in expr.atoms(sp.Number)):
+        return True
+    exponents = (power.as_base_exp()[1] for power in expr.atoms(sp.Pow, sp.exp))
+    return any(e.is_Rational and abs(e.p) > MAX_SYMBOLIC_EXPONENT for e in exponents)
 
 
 def _float_exponent(power: sp.Expr) -> sp.Expr:
-    """``power`` (b^e or exp(e)) with each whole coefficient beyond MAX_SYMBOLIC_EXPONENT in ``e`` as a float.
+    """``power`` (b^e or exp(e)) with each exact coefficient in ``e`` whose numerator is beyond
+    MAX_SYMBOLIC_EXPONENT as a float (a whole one only where it multiplies a symbol).
 
     sympy's polynomial code (which its own mod calls for a gcd) reads exp(10^299 x) as exp(x) to the
-    power 10^299 and builds a list of that length: mod(c, exp(1e299*x)) never ended. A float
-    coefficient is not split off, and the model computes in doubles anyway."""
+    power 10^299 and builds a list of that length: mod(c, exp(1e299*x)) never ended; so did mod(c, x^r)
+    and mod(c, exp(x + r)) for r = 0.325^27 = 13^27/40^27 never ended either.
+    A float coefficient is not split off, and the model computes in doubles anyway."""
     base, exponent = power.as_base_exp()
     terms = sp.Add.make_args(exponent)
     new_terms = []
     for term in terms:
         coefficient, rest = term.as_coeff_Mul(rational=True)
-        if coefficient.is_Rational and abs(coefficient.p) > MAX_SYMBOLIC_EXPONENT and rest.free_symbols:
-            term = sp.Mul(sp.Float(coefficient), rest, evaluate=False)
+        if (coefficient.is_Rational and abs(coefficient.p) > MAX_SYMBOLIC_EXPONENT
+                and (rest.free_symbols or not coefficient.is_Integer)):
+            term = sp.Float(coefficient) if rest == 1 else sp.Mul(sp.Float(coefficient), rest, evaluate=False)
         new_terms.append(term)
     if all(a is b for a, b in zip(new_terms, terms)):
         return power

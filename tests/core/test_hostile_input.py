@@ -323,6 +323,10 @@ def test_legal_hostile_looking_inputs_evaluate_correctly(outcomes):
     assert outcomes["constant_with_huge_parts.txt"]["rhs"] == [pytest.approx(2.0, rel=1e-15)]
     # mod(2.5, e^0) + mod(7, 2^2) at x = 0
     assert outcomes["mod_of_exp_with_huge_coefficient.txt"]["rhs"] == [3.5]
+    # Python's floor-mod of the doubles at x = 1, r = 0.325^27 (the file's comment)
+    r = 0.325**27
+    assert outcomes["mod_of_power_with_huge_exact_exponent.txt"]["rhs"] == [pytest.approx(
+        2.5 % math.exp(r) + 2.5 % 1.0 + 2.5 % math.exp(1 + r) + 2.5 % math.pi**r - 1, rel=1e-12)]
     # the chain of conditions over conditions, evaluated step by step in Python at x = 0.5
     a = min(0.5, 1)
     for step in ("sqrt", "sqrt", "sqrt", "sin", "abs", "sin", "min", "min", "tanh", "if", "floor", "if", "tanh",
