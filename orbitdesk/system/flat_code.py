@@ -33,7 +33,7 @@ def flat_cse(exprs, symbols=None):
     # what sympy.cse does with optimizations=None, in two steps, without sorting every node's arguments
     # (their order as the trees hold them is as deterministic) and without evaluating a node rebuilt
     # with names put in (see rename): minutes saved on a model of thousands of terms
-    opt_subs = opt_cse(exprs, order="none")
+    opt_subs = {part: sub for part, sub in opt_cse(exprs, order="none").items() if not _negated_sum(part, sub)}
     with sp.evaluate(False):
         shared, reduced = tree_cse(exprs, names, opt_subs, order="none")
         out: list = []
@@ -42,6 +42,14 @@ def flat_cse(exprs, symbols=None):
             out.append((sym, cutter.cut(expr)))
         reduced = [cutter.cut(e) for e in reduced]
     return out, (reduced[0] if single else reduced)
+
+
+def _negated_sum(part, sub) -> bool:
+    """Whether sympy's shared-part search would write the sum ``part`` as -(its negation): 1/4 - v as
+    -(v - 1/4). The two differ in the sign of an exact zero (v = 1/4: +0 as written, -0 negated), which
+    atan2 and division see: atan2(1/4 - v, -1) is pi as written and was -pi in the generated code (found
+    by the fuzz of generated models). Sums are written as the model's trees hold them."""
+    return isinstance(part, sp.Add) and sub.func is sp.Mul and sub.args[0] == sp.S.NegativeOne
 
 
 def rename(exprs, swap: dict) -> list:
