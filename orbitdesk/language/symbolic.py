@@ -232,9 +232,9 @@ def _float_exponent(power: sp.Expr) -> sp.Expr:
     MAX_SYMBOLIC_EXPONENT as a float (a whole one only where it multiplies a symbol).
 
     sympy's polynomial code (which its own mod calls for a gcd) reads exp(10^299 x) as exp(x) to the
-    power 10^299 and builds a list of that length: mod(c, exp(1e299*x)) never ended; so did mod(c, x^r)
-    and mod(c, exp(x + r)) for r = 0.325^27 = 13^27/40^27 never ended either.
-    A float coefficient is not split off, and the model computes in doubles anyway."""
+    power 10^299 and builds a list of that length: mod(c, exp(1e299*x)) never ended, nor did mod(c, x^r)
+    or mod(c, exp(x + r)) for r = 0.325^27 = 13^27/40^27. A float coefficient is not split off, and the
+    model computes in doubles anyway."""
     base, exponent = power.as_base_exp()
     terms = sp.Add.make_args(exponent)
     new_terms = []
