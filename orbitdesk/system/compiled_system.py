@@ -435,12 +435,14 @@ def hoist_constants(exprs, params):
     """Pull the non-trivial subexpressions of ``params`` and numbers alone out of ``exprs``.
 
     Returns ``(constants, exprs)``: ``constants`` is a list of ``(symbol, expression)`` to be computed
-    once per parameter set; inside Add and Mul the parameter-only arguments are grouped together."""
+    once per parameter set; inside Add and Mul the parameter-only arguments are grouped together. Only
+    expressions are named: a branch of if() (the pair of a value and its condition, ``(1, True)``) or a
+    condition of the parameters alone is kept in its place, as a Piecewise needs them."""
     params = set(params)
     found: dict = {}
 
     def const(e):
-        return not e.is_Atom and e.free_symbols <= params
+        return isinstance(e, sp.Expr) and not e.is_Atom and e.free_symbols <= params
 
     def name(e):
         if e not in found:

@@ -96,6 +96,19 @@ def test_unit_delay_method_of_steps_by_hand():
     assert run.states[0, 300] == pytest.approx(-1 / 6, abs=1e-12)
 
 
+def test_if_with_a_constant_branch_and_a_condition_of_the_parameters_alone():
+    # x' = -a x(t - 1) r(t), r = t/2 before t = 2 and 1 after, x = 1 for t <= 0, a = 1 (the second if() is 1).
+    # By hand, piece by piece: [0,1]: x' = -t/2, x = 1 - t^2/4, x(1) = 3/4;
+    # [1,2]: x' = -(t/2)(1 - (t-1)^2/4), x(2) = 3/4 - 3/4 + int_0^1 (s+1) s^2/8 ds = 7/96.
+    # The if()'s last branch, the pair (1, True), and the condition a > 2 hold no state: the plain-Python
+    # evaluator the delay engine runs on once took them for constants of the parameters and failed.
+    system = compile_model("a = 1\nx' = -a*x(t - 1)*if(t < 2, t/2, 1)*if(a > 2, 0, 1)\nx(t) = 1 for t <= 0\n")
+    run = simulate(system, RunSettings(t_end=2, samples=201, rtol=1e-10, atol=1e-12))
+    assert run.status == OK, run.message
+    assert run.states[0, 100] == pytest.approx(3 / 4, abs=1e-10)
+    assert run.states[0, 200] == pytest.approx(7 / 96, abs=1e-10)
+
+
 def test_discontinuities_are_stepped_onto():
     assert breakpoints(0.0, 3.5, [1.0]) == [1.0, 2.0, 3.0]
     assert breakpoints(0.0, 2.0, [1.0, 0.75]) == [0.75, 1.0, 1.5, 1.75, 2.0]
