@@ -223,8 +223,13 @@ def _holds_huge_number(expr: sp.Expr) -> bool:
     if any(abs(n) > MAX_MAGNITUDE or n.is_Rational and max(abs(n.p), n.q) > MAX_EXACT
            for n in expr.atoms(sp.Number)):
         return True
-    exponents = (power.as_base_exp()[1] for power in expr.atoms(sp.Pow, sp.exp))
-    return any(e.is_Rational and abs(e.p) > MAX_SYMBOLIC_EXPONENT for e in exponents)
+    return any(_huge_exact_exponent(power.as_base_exp()[1]) for power in expr.atoms(sp.Pow, sp.exp))
+
+
+def _huge_exact_exponent(number: sp.Expr) -> bool:
+    """An exact exponent (or coefficient in one) whose numerator is beyond MAX_SYMBOLIC_EXPONENT: sympy's
+    polynomial code reads exp(p/q) as exp(1/q) to the power p and builds a list of that length."""
+    return bool(number.is_Rational and abs(number.p) > MAX_SYMBOLIC_EXPONENT)
 
 
 def _float_exponent(power: sp.Expr) -> sp.Expr:
@@ -240,8 +245,7 @@ def _float_exponent(power: sp.Expr) -> sp.Expr:
     new_terms = []
     for term in terms:
         coefficient, rest = term.as_coeff_Mul(rational=True)
-        if (coefficient.is_Rational and abs(coefficient.p) > MAX_SYMBOLIC_EXPONENT
-                and (rest.free_symbols or not coefficient.is_Integer)):
+        if _huge_exact_exponent(coefficient) and (rest.free_symbols or not coefficient.is_Integer):
             term = sp.Float(coefficient) if rest == 1 else sp.Mul(sp.Float(coefficient), rest, evaluate=False)
         new_terms.append(term)
     if all(a is b for a, b in zip(new_terms, terms)):
