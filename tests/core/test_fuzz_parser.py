@@ -25,6 +25,7 @@ import pytest
 from hypothesis import HealthCheck, assume, example, given, settings
 from hypothesis import strategies as st
 
+from orbitdesk.engine import compiled
 from orbitdesk.language.diagnostics import SEVERITIES
 from orbitdesk.language.expression import FUNCTIONS
 from orbitdesk.language.model import MAX_STATEMENTS, parse_model
@@ -77,8 +78,16 @@ def check_compiled(model) -> None:
         if value is None:
             continue
         assert value.shape == (system.n_states,)
-        # the vectorized evaluator and the Jacobian (derivatives between the jumps of floor, mod, ...)
-        assert system.rhs_vec(t, np.reshape(u, (-1, 1)).astype(float)).shape == (system.n_states, 1)
+        # the vectorized evaluator (numpy's error model: NaN where undefined, inf for a division by zero) and
+        # the kernel the compiled engine is built from, as plain Python
+        column = system.rhs_vec(t, np.reshape(u, (-1, 1)).astype(float))
+        assert column.shape == (system.n_states, 1)
+        _agrees(model.text, t, column[:, 0], reference)
+        engine, out = compiled.python_engine(system), np.empty(system.n_states)
+        with np.errstate(all="ignore"):
+            engine.entry("evaluate")(engine.f, 0, t, np.asarray(u, float), np.asarray(system.param_values, float), out)
+        _agrees(model.text, t, out, reference)
+        # the Jacobian (derivatives between the jumps of floor, mod, ...)
         try:
             assert system.jac(t, u).shape == (system.n_states, system.n_states)
         except UndefinedValue as exc:
