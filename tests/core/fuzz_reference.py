@@ -32,7 +32,6 @@ WELL = 1e-9  # the exact and the doubles value agree this well: the expression i
 MAX_ALTERNATIVES = 256  # beyond this many ties (never seen) the point is not judged
 BIG = 1.7976931348623157e308
 HUGE = 1e300  # a part beyond this: exact arithmetic is not tried (it could need endless digits)
-WHOLE = 2.0 ** 53  # a quotient beyond this has no fractional digits left in doubles: mod() is not judged
 
 _UNKNOWN = object()  # a node the doubles evaluator does not know: no opinion
 
@@ -46,7 +45,8 @@ _DOUBLE_OF = {
     sp.atan2: np.arctan2, sp.sinh: np.sinh, sp.cosh: np.cosh, sp.tanh: np.tanh, sp.exp: np.exp, sp.log: _log,
     sp.Abs: np.abs, sp.sign: np.sign, sp.floor: np.floor, sp.ceiling: np.ceil,
     sp.Min: lambda *a: reduce(np.minimum, a), sp.Max: lambda *a: reduce(np.maximum, a),  # nan if any is
-    sp.Mod: lambda a, b: a - b * np.floor(a / b),  # sympy's Mod: the sign of the divisor
+    sp.Mod: np.mod,  # the exact remainder of the doubles with the sign of the divisor, as the language documents:
+    # at its jump (mod(0.25, 0.001), where 0.001 in doubles is just above 1/1000) that is 0.000999..., not 0
     sp.Heaviside: lambda x, *_: np.nan if np.isnan(x) else (0.0 if x < 0 else (0.5 if x == 0 else 1.0)),
 }
 _COMPARE = {"<": np.less, "<=": np.less_equal, ">": np.greater, ">=": np.greater_equal, "==": np.equal,
@@ -106,9 +106,6 @@ def _doubles(expr, values: dict, decided: dict, track):
             track["huge"] = True  # an underflow: 0.25^cosh(690) exactly has an exponent of -6e299, which
             # sympy's mod of it expands into a 10^299-digit fraction; doubles judge alone
         return value
-    if isinstance(expr, sp.Mod) and not abs(args[0] / args[1]) < WHOLE:
-        return _UNKNOWN  # mod(1e299, 0.7): the quotient's whole part is beyond the doubles' digits, and the
-        # model's documented answer (the exact remainder of the double 1e299) is neither 0 nor sympy's
     if expr.func in _DOUBLE_OF:
         return np.float64(_DOUBLE_OF[expr.func](*args))
     return _UNKNOWN

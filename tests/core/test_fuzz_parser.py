@@ -224,7 +224,8 @@ def models(draw):
 @example("x' = y\ny' = mod(cosh(2.5E-1), exp(1e299 * x))")  # deep run: sympy's mod built a 10^299-term polynomial
 @example("x' = -x\nc = exp(690)\nenergy = mod(sinh(689.5) + c, exp(0.325 ** 27))")  # deep run: an exponent 13^27/40^27
 @example("x' = atan2(.25 - v, x - 5e2)\ny' = 2.5E-1\nz' = (x)\nv' = z")  # deep run: -(v - 1/4) is -0 where 1/4 - v is +0
-@example("x[n+1] = mod(10^299, n)")  # deep run: the quotient's whole part is beyond doubles (the reference abstains)
+@example("x[n+1] = mod(10^299, n)")  # deep run: the quotient's whole part is beyond doubles (only their remainder is defined)
+@example("x' = mod(x, 0.001)")  # deep run: at x = 0.25 the remainder of the doubles is 0.000999..., exactly 0
 def test_generated_models_parse_and_compile(text):
     WORKER.run(check_generated_model, text)
 
