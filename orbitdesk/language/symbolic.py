@@ -257,6 +257,8 @@ def _check_exponent(exponent: sp.Expr, node) -> None:
     """Refuse a constant exponent beyond MAX_SYMBOLIC_EXPONENT on a power of an expression."""
     if exponent.free_symbols:
         return
+    if exponent.is_Rational and abs(exponent.p) <= MAX_SYMBOLIC_EXPONENT * exponent.q:
+        return  # the usual case (x^2, x^(1/3)), decided in integers without evaluating anything
     size = abs(_approx(exponent))
     if size > MAX_SYMBOLIC_EXPONENT:
         shown = sp.sstr(exponent) if exponent.is_Integer and size < 1e15 else f"{_approx(exponent).real:g}"
