@@ -33,7 +33,7 @@ def flat_cse(exprs, symbols=None):
     # what sympy.cse does with optimizations=None, in two steps, without sorting every node's arguments
     # (their order as the trees hold them is as deterministic) and without evaluating a node rebuilt
     # with names put in (see rename): minutes saved on a model of thousands of terms
-    opt_subs = {part: sub for part, sub in opt_cse(exprs, order="none").items() if not _negated_sum(part, sub)}
+    opt_subs = {part: sub for part, sub in opt_cse(exprs, order="none").items() if not _rewritten(part, sub)}
     with sp.evaluate(False):
         shared, reduced = tree_cse(exprs, names, opt_subs, order="none")
         out: list = []
@@ -44,12 +44,21 @@ def flat_cse(exprs, symbols=None):
     return out, (reduced[0] if single else reduced)
 
 
-def _negated_sum(part, sub) -> bool:
-    """Whether sympy's shared-part search would write the sum ``part`` as -(its negation): 1/4 - v as
-    -(v - 1/4). The two differ in the sign of an exact zero (v = 1/4: +0 as written, -0 negated), which
-    atan2 and division see: atan2(1/4 - v, -1) is pi as written and was -pi in the generated code (found
-    by the fuzz of generated models). Sums are written as the model's trees hold them."""
-    return isinstance(part, sp.Add) and sub.func is sp.Mul and sub.args[0] == sp.S.NegativeOne
+def _rewritten(part, sub) -> bool:
+    """Whether sympy's shared-part search would write ``part`` otherwise than the model's tree holds it,
+    in a way doubles can tell apart (found by the fuzz of generated models):
+
+    - a sum as -(its negation): 1/4 - v as -(v - 1/4). The two differ in the sign of an exact zero
+      (v = 1/4: +0 as written, -0 negated), which atan2 and division see: atan2(1/4 - v, -1) is pi as
+      written and was -pi in the generated code;
+    - a power whose exponent looks negative as 1/(its base to the negated exponent): x^(log10(1.001)),
+      whose exponent sympy holds as -3 + log(1001)/log(10), as 1/x^(3 - log(1001)/log(10)), which is
+      1/0 at x = 0 where the power as written is 0 (the model was called undefined there).
+
+    Sums and powers are written as the model's trees hold them."""
+    if isinstance(part, sp.Add):
+        return sub.func is sp.Mul and sub.args[0] == sp.S.NegativeOne
+    return isinstance(part, sp.Pow)
 
 
 def rename(exprs, swap: dict) -> list:

@@ -226,6 +226,7 @@ def models(draw):
 @example("x' = atan2(.25 - v, x - 5e2)\ny' = 2.5E-1\nz' = (x)\nv' = z")  # deep run: -(v - 1/4) is -0 where 1/4 - v is +0
 @example("x[n+1] = mod(10^299, n)")  # deep run: the quotient's whole part is beyond doubles (only their remainder is defined)
 @example("x' = mod(x, 0.001)")  # deep run: at x = 0.25 the remainder of the doubles is 0.000999..., exactly 0
+@example("x' = x\nz' = x ^ log10(1.001)")  # deep run: written as 1/x^(3 - log(1001)/log(10)), undefined at x = 0
 def test_generated_models_parse_and_compile(text):
     WORKER.run(check_generated_model, text)
 
