@@ -176,6 +176,11 @@ def _checked_constant(expr: sp.Expr, node, what: str = "this constant") -> sp.Ex
     if not isinstance(expr, sp.Expr):
         return expr  # a condition of if() (true, false or a relation): no magnitude to check
     if expr.free_symbols:
+        if isinstance(expr, sp.Piecewise):  # sympy takes a power into the branches: if(c, x, 1e12)^26 holds
+            # the number 10^312 in a branch (a branch undefined where it is not taken stays: x / if(x < 1, 0, t))
+            if any(n.is_finite and abs(n) > MAX_MAGNITUDE for e, _ in expr.args for n in e.atoms(sp.Number)):
+                raise _too_large(node, "a branch of this if()")
+            return expr
         for part in (expr, *expr.args):
             if part.is_Pow:
                 _check_exponent(part.exp, node)
@@ -323,6 +328,8 @@ def _checked_call(func: str, args, node) -> sp.Expr:
             return _checked_constant(sp.Float(value), node, f"{func}() of this constant")
         if not all(a.is_Rational for a in args):
             return _checked_constant(_whole_part(func, args, values, node), node, f"{func}() of this constant")
+    if func in AS_WRITTEN and any(a.free_symbols for a in args):
+        return _checked_constant(_as_written(func, args, node), node)
     try:
         result = SYMPY_FUNCTIONS[func](*args)
     except ZeroDivisionError:
@@ -330,6 +337,25 @@ def _checked_call(func: str, args, node) -> sp.Expr:
     except (ValueError, TypeError, ArithmeticError):
         raise ParseError(f"{func}() of this constant is undefined", node.column, node.end) from None
     return _checked_constant(result, node, f"{func}() of this constant")
+
+
+AS_WRITTEN = {"mod": sp.Mod, "min": sp.Min, "max": sp.Max}
+_WRITTEN_NAME = {f: name for name, f in AS_WRITTEN.items()}
+
+
+def _as_written(func: str, args, node) -> sp.Expr:
+    """mod(), min() or max() of expressions as written, not evaluated by sympy: its Mod takes a polynomial gcd
+    of the sides, which expands them, and its Min and Max factor their arguments to compare them (rebuilding
+    any mod() inside): mod() or min() of a chain of nested roots and quotients ran for minutes (found by the
+    deep-chain fuzz). Of numbers they are evaluated as before; a divisor of mod() that is zero is refused."""
+    if func == "mod" and not args[1].free_symbols:
+        try:
+            zero = _approx(args[1]).real == 0  # (1/3)^(10^10) too
+        except ValueError:
+            raise ParseError("mod() is undefined here", node.column, node.end) from None
+        if zero:
+            raise ParseError("mod() divides by zero here", node.column, node.end)
+    return AS_WRITTEN[func](*args, evaluate=False)
 
 
 def _whole_part(func: str, args, values, node) -> sp.Expr:
@@ -559,6 +585,8 @@ def substitute(expr: sp.Expr, values: dict, where: Span) -> sp.Expr:
             return _checked_constant(_piecewise([pair.args for pair in args], where), where)
         if isinstance(item, ExprCondPair):
             return ExprCondPair(args[0], _fold_condition(args[1], where))
+        if item.func in _WRITTEN_NAME:
+            return _checked_call(_WRITTEN_NAME[item.func], args, where)
         try:
             rebuilt = item.func(*args)
         except (ZeroDivisionError, ValueError, TypeError, ArithmeticError):

@@ -12,7 +12,8 @@ when some alternative accepts it:
   ill-conditioned expression, where this reference cannot judge);
 - inf: the exact value is beyond the double range or undefined, or the doubles overflow too;
 - nan (an undefined value): undefined exactly or in doubles, or a comparison of if() has an undefined side
-  (compiled code may call the whole right side undefined there).
+  (compiled code may call the whole right side undefined there); a part at a pole (log(0), 1/0) counts as
+  undefined even where the whole has a limit (x/log(x) at x = 0 is 0 in doubles).
 
 So a wrong branch, a wrong function or a wrong sign from the printer fails unless it happens to agree
 with arithmetic. ``judge(system, t, u)`` returns, per right side, the list of alternatives.
@@ -99,6 +100,9 @@ def _doubles(expr, values: dict, decided: dict, track):
         return np.float64(sum(args[1:], args[0]))
     if expr.is_Mul:
         return np.float64(math.prod(args[1:], start=args[0]))
+    if track is not None and (isinstance(expr, sp.log) and args[0] == 0 or expr.is_Pow and args[0] == 0 and args[1] < 0):
+        track["pole"] = True  # log(0) or 1/0 on the way, even where the whole has a limit (0/log(0) is 0 in
+        # doubles): undefined in the reals, which the plain-Python evaluators say
     if expr.is_Pow or isinstance(expr, sp.exp):
         value = np.exp(args[0]) if isinstance(expr, sp.exp) else (
             np.sqrt(args[0]) if float(args[1]) == 0.5 else np.power(*args))
@@ -119,6 +123,8 @@ def exact(expr, values: dict, decided: dict):
         return None
     track = {}
     doubles(expr, values, decided, track)
+    if track.get("pole"):
+        return None
     if track.get("huge"):
         return _UNKNOWN  # sin(sinh(1e299)) exactly needs some 1e299 digits; doubles judge alone
     try:  # deciding a comparison can rebuild min(x, asin(pi)), which sympy refuses: undefined in the reals

@@ -19,6 +19,7 @@ from __future__ import annotations
 import math
 import os
 import re
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -226,6 +227,7 @@ def models(draw):
 @example("x' = atan2(.25 - v, x - 5e2)\ny' = 2.5E-1\nz' = (x)\nv' = z")  # deep run: -(v - 1/4) is -0 where 1/4 - v is +0
 @example("x[n+1] = mod(10^299, n)")  # deep run: the quotient's whole part is beyond doubles (only their remainder is defined)
 @example("x' = mod(x, 0.001)")  # deep run: at x = 0.25 the remainder of the doubles is 0.000999..., exactly 0
+@example("x[n+1] = x\ny[n+1] = if(x < x or not energy < 1, x, 0)\nd1 = x\nenergy = x / log(x)")  # deep run: 0/log(0)
 @example("x' = x\nz' = x ^ log10(1.001)")  # deep run: written as 1/x^(3 - log(1001)/log(10)), undefined at x = 0
 def test_generated_models_parse_and_compile(text):
     WORKER.run(check_generated_model, text)
@@ -383,6 +385,8 @@ def family_models(draw):
 @example("x_{i}' = -mod(417, sinh(690) - cosh(690) - atan(1e300))   for i in 0..N\nN = 0")  # deep run: minutes
 @example("N = 1\nc = 0.5\nsat(u) = u/(1 + abs(u))\npull(a, b) = -b*sat(a)\n"
          "x_{i}' = x_{i} / if(x_{i} < 1 and not 1 < 1, 0, t)   for i in 1..N\nx_{0} = 0\nx_{i}(0) = 0*i   for i in 1..N")
+@example("N = 1\nx_{i}' = if(x_{i} < x_{i} or not x_{i} < 1, x_{i}, 1e12) ^ 26   for i in 1..N\n"
+         "x_{i}(0) = 0*i   for i in 1..N")  # deep run: the power taken into the branches held 10^312, unchecked
 def test_generated_family_models_parse_and_compile(text):
     WORKER.run(check_text, text)
 
@@ -456,6 +460,7 @@ def deep_models(draw):
                     "minute on a loaded machine (the Jacobian of a wide sum), beyond the quick run's budget")
 @budget(25)
 @given(deep_models())
+@example((Path(__file__).parents[1] / "data" / "hostile" / "mod_and_min_of_a_deep_chain.txt").read_text())  # 287 s
 def test_deep_chains_and_wide_sums_end_in_a_model_or_a_diagnostic(text):
     WORKER.run(check_deep_model, text)
 
