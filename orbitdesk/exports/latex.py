@@ -11,6 +11,7 @@ import re
 import unicodedata
 
 import sympy as sp
+from sympy.printing.latex import LatexPrinter
 
 from orbitdesk.language.expression import Num, parse_expression, walk
 from orbitdesk.language.model import FLOW, MAP, ParsedModel, derivative_name, parse_model
@@ -173,6 +174,14 @@ def _rows_text(rows: list[str]) -> str:
     return "".join(out)
 
 
+class _ModelLatex(LatexPrinter):
+    """sympy's LaTeX printer, with a power of an if() (which the model language keeps as one power) in brackets."""
+
+    def _print_Piecewise(self, expr, exp=None):
+        tex = super()._print_Piecewise(expr)
+        return tex if exp is None else rf"\left({tex}\right)^{{{exp}}}"
+
+
 def model_latex(model, parameters: dict | None = None, initial: dict | None = None, *,
                 standalone: bool = False, title: str | None = None) -> str:
     """LaTeX for a model (text, ParsedModel or CompiledSystem) with optional parameter/initial overrides."""
@@ -195,7 +204,7 @@ def model_latex(model, parameters: dict | None = None, initial: dict | None = No
 
     def tex(expr):
         ordered, symbol_names = _natural_order(expr, names, parsed.time_symbol)
-        return sp.latex(ordered, symbol_names=symbol_names)
+        return _ModelLatex({"symbol_names": symbol_names}).doprint(ordered)
 
     noise_rows = _noise_names(parsed, names)
     for d in parsed.delays:  # x(t - tau), the delay as the model writes it (Greek names as letters)

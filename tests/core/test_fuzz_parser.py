@@ -461,6 +461,7 @@ def deep_models(draw):
 @budget(25)
 @given(deep_models())
 @example((Path(__file__).parents[1] / "data" / "hostile" / "mod_and_min_of_a_deep_chain.txt").read_text())  # 287 s
+@example((Path(__file__).parents[1] / "data" / "hostile" / "abs_of_a_deep_chain.txt").read_text())  # over 20 s
 def test_deep_chains_and_wide_sums_end_in_a_model_or_a_diagnostic(text):
     WORKER.run(check_deep_model, text)
 
