@@ -296,6 +296,9 @@ def _checked_power(base: sp.Expr, exponent: sp.Expr, node) -> sp.Expr:
         kept = not whole and (isinstance(base, sp.Piecewise) or isinstance(exponent, sp.Piecewise))
         return _checked_constant(sp.Pow(base, exponent, evaluate=not kept), node)
     b, x = _approx(base).real, _approx(exponent).real
+    if b < 0 and not x.is_integer():  # cos(pi)^atan2(pi, cosh(690)): an exponent of 2e-300 left an imaginary part
+        # below the constants' tolerance, and a complex number reached the evaluators (found by the fuzz)
+        raise ParseError("a negative number to a power that is not whole is not a real number", node.column, node.end)
     if b == 0 and x < 0:
         raise ParseError("division by zero (0 raised to a negative power)", node.column, node.end)
     try:
