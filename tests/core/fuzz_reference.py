@@ -26,6 +26,7 @@ from functools import reduce
 
 import numpy as np
 import sympy as sp
+from sympy.core.evalf import PrecisionExhausted
 
 ULPS = 4  # sides of a comparison this close in doubles are a tie
 CLOSE = 1e-6  # the model's value against a reference value
@@ -132,7 +133,7 @@ def exact(expr, values: dict, decided: dict):
         value = replaced.xreplace({k: sp.Float(float(v), 30) for k, v in values.items()}).evalf(30)
     except (TypeError, ValueError, ZeroDivisionError):  # e.g. an undecided comparison with an undefined value
         return None
-    except (OverflowError, RecursionError, MemoryError):
+    except (OverflowError, RecursionError, MemoryError, PrecisionExhausted):  # floor(cosh(690)) needs 300 digits
         return _UNKNOWN
     if value in (sp.nan, sp.zoo) or value.has(sp.nan, sp.zoo, sp.I):
         return None

@@ -228,6 +228,7 @@ def models(draw):
 @example("x[n+1] = mod(10^299, n)")  # deep run: the quotient's whole part is beyond doubles (only their remainder is defined)
 @example("x' = mod(x, 0.001)")  # deep run: at x = 0.25 the remainder of the doubles is 0.000999..., exactly 0
 @example("x[n+1] = x\ny[n+1] = if(x < x or not energy < 1, x, 0)\nd1 = x\nenergy = x / log(x)")  # deep run: 0/log(0)
+@example("x[n+1] = floor(max(x, cosh(690)))")  # deep run: the reference's exact floor of cosh(690) needs 300 digits
 @example("x[n+1] = cos(pi) ^ atan2(pi, cosh(690))")  # deep run: (-1)^(2e-300), complex, reached the evaluators
 @example("x' = x\nz' = x ^ log10(1.001)")  # deep run: written as 1/x^(3 - log(1001)/log(10)), undefined at x = 0
 def test_generated_models_parse_and_compile(text):
