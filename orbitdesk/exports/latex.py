@@ -17,6 +17,7 @@ from orbitdesk.language.expression import Num, parse_expression, walk
 from orbitdesk.language.model import FLOW, MAP, ParsedModel, derivative_name, parse_model
 from orbitdesk.language import noise
 from orbitdesk.language.symbolic import number_from_text, to_sympy
+from orbitdesk.system.flat_code import rename
 
 _GREEK_OR_PLAIN = re.compile(r"^[A-Za-z]+$")
 _GREEK = re.compile(r"^(alpha|beta|gamma|delta|epsilon|zeta|eta|theta|iota|kappa|lambda|mu|nu|xi|omicron|pi|rho|sigma|"
@@ -57,7 +58,7 @@ def _natural_order(expr: sp.Expr, names: dict, time) -> tuple[sp.Expr, dict]:
             swap[sym] = sp.Symbol(padded + "\u2063", **sym.assumptions0)  # (an invisible mark: no model name)
     if not swap:
         return expr, names
-    return expr.xreplace(swap), {**names, **{new: names.get(old, sp.latex(old)) for old, new in swap.items()}}
+    return rename([expr], swap)[0], {**names, **{new: names.get(old, sp.latex(old)) for old, new in swap.items()}}
 
 
 def tex_escape(text: str) -> str:

@@ -14,6 +14,7 @@ import sympy as sp
 from sympy.functions.elementary.piecewise import ExprCondPair
 
 from orbitdesk.language.diagnostics import ParseError
+from orbitdesk.language import real_hyperbolic
 from orbitdesk.language.expression import FUNCTIONS, Binary, Call, Compare, If, Logic, Name, Num, Unary, children
 
 MAX_MAGNITUDE = 1e300
@@ -29,7 +30,8 @@ def _log10(x):
 
 SYMPY_FUNCTIONS = {
     "sin": sp.sin, "cos": sp.cos, "tan": sp.tan, "asin": sp.asin, "acos": sp.acos, "atan": sp.atan,
-    "atan2": sp.atan2, "sinh": sp.sinh, "cosh": sp.cosh, "tanh": sp.tanh, "exp": sp.exp,
+    "atan2": sp.atan2, "sinh": real_hyperbolic.sinh, "cosh": real_hyperbolic.cosh, "tanh": real_hyperbolic.tanh,
+    "exp": sp.exp,
     "log": sp.log, "log10": _log10, "sqrt": sp.sqrt, "abs": sp.Abs, "sign": sp.sign,
     "min": sp.Min, "max": sp.Max, "heaviside": sp.Heaviside, "mod": sp.Mod, "floor": sp.floor,
 }
@@ -120,6 +122,7 @@ _FLOAT_OF = {
     sp.ceiling: math.ceil, sp.Mod: MATH_FUNCTIONS["mod"], sp.Min: min, sp.Max: max,
     sp.log: lambda x, base=None: math.log(x) if base is None else math.log(x, base),
     sp.Heaviside: lambda x, *_: MATH_FUNCTIONS["heaviside"](x),
+    real_hyperbolic.sinh: math.sinh, real_hyperbolic.cosh: math.cosh, real_hyperbolic.tanh: math.tanh,
 }
 
 
@@ -357,7 +360,8 @@ def _checked_call(func: str, args, node) -> sp.Expr:
     return _checked_constant(result, node, f"{func}() of this constant")
 
 
-AS_WRITTEN = {"mod": sp.Mod, "min": sp.Min, "max": sp.Max, "abs": sp.Abs, "sign": sp.sign, "floor": sp.floor}
+AS_WRITTEN = {"mod": sp.Mod, "min": sp.Min, "max": sp.Max, "abs": sp.Abs, "sign": sp.sign, "floor": sp.floor,
+              "heaviside": sp.Heaviside}
 _WRITTEN_NAME = {f: name for name, f in AS_WRITTEN.items()}
 
 

@@ -348,6 +348,13 @@ class CompiledSystem:
 UNDEFINED_ERRORS = (ValueError, ZeroDivisionError, TypeError, OverflowError)
 
 
+def _step_parts(printer, expr) -> tuple[str, str]:
+    """The printed argument of heaviside() and its value at 0. Both printers write heaviside() out
+    themselves: sympy's rewrites it as a Piecewise, whose constructor solves the inequality u < 0 over
+    u's whole tree (25 s over a chain of roots; found by the deep-chain fuzz)."""
+    return printer._print(expr.args[0]), printer._print(expr.args[1]) if len(expr.args) > 1 else "0.5"
+
+
 class _ScalarPrinter(PythonCodePrinter):
     """lambdify's printer for the ``math`` module, with floats printed exactly."""
 
@@ -360,6 +367,10 @@ class _ScalarPrinter(PythonCodePrinter):
 
     def _print_Float(self, expr):
         return repr(float(expr))
+
+    def _print_Heaviside(self, expr):
+        u, at_zero = _step_parts(self, expr)
+        return f"((0.0) if (({u}) < 0) else ({at_zero}) if (({u}) == 0) else (1.0))"
 
     def _print_ComplexInfinity(self, expr):
         # x / 0 folded by sympy (x / if(c, x, 0) where c fails): undefined in the reals, nan in floats
@@ -386,6 +397,11 @@ class VectorPrinter(NumPyPrinter):
 
     def _print_ComplexInfinity(self, expr):
         return self._module_format("numpy.nan")
+
+    def _print_Heaviside(self, expr):
+        u, at_zero = _step_parts(self, expr)
+        where, less, equal = (self._module_format(f"numpy.{name}") for name in ("where", "less", "equal"))
+        return f"{where}({less}({u}, 0), 0.0, {where}({equal}({u}, 0), {at_zero}, 1.0))"
 
     def _print_Piecewise(self, expr):
         *rest, last = expr.args

@@ -1,9 +1,10 @@
 """Derivatives that hold almost everywhere, for Jacobians of models with non-smooth functions.
 
-``floor``, ``sign``, ``heaviside`` and ``mod`` jump on isolated surfaces. sympy differentiates them
+``floor``, ``sign``, ``heaviside`` and ``mod`` jump on isolated surfaces (``min``, ``max`` and ``abs`` bend). sympy differentiates them
 into objects no evaluator can print (an unevaluated ``Derivative(floor(x), x)``) or into Dirac
 deltas. Between the jumps the derivatives are plain: d floor(u) = 0, d sign(u) = 0,
-d heaviside(u) = 0, and d mod(a, m) = da - floor(a/m) dm; d abs(u) = sign(u) du (the model's values
+d heaviside(u) = 0, and d mod(a, m) = da - floor(a/m) dm; d min(a, b) = heaviside(b - a) da +
+heaviside(a - b) db (and max() the other way round); d abs(u) = sign(u) du (the model's values
 are real even where sympy cannot tell). Those are the ones used here, so every
 Jacobian can be evaluated; the model's warning about non-smooth functions says where they fail
 (on the jumps themselves).
@@ -38,7 +39,7 @@ class _RealAbs(sp.Function):
     write re() and im() parts that no evaluator knows)."""
 
     def fdiff(self, argindex=1):
-        return sp.sign(self.args[0])
+        return _FlatSign(self.args[0])
 
 
 class _SawMod(sp.Function):
@@ -48,19 +49,46 @@ class _SawMod(sp.Function):
 
     def fdiff(self, argindex=1):
         a, m = self.args
-        return sp.S.One if argindex == 1 else -sp.floor(a / m)
+        return sp.S.One if argindex == 1 else -_FlatFloor(a / m)
+
+
+class _FlatMin(sp.Function):
+    """min(a, b, ...): slope 1 in the smallest argument, 0 in the others, shared where they are equal (sympy's
+    own derivative builds its Heaviside evaluated, which splits the difference into real and imaginary parts:
+    over a chain of nested roots that ran for minutes, found by the deep-chain fuzz)."""
+
+    def fdiff(self, argindex=1):
+        return _FlatStep(_others(self, argindex) - self.args[argindex - 1])
+
+
+class _FlatMax(sp.Function):
+    """max(a, b, ...): slope 1 in the largest argument, as min()."""
+
+    def fdiff(self, argindex=1):
+        return _FlatStep(self.args[argindex - 1] - _others(self, argindex))
+
+
+def _others(extreme, argindex):
+    """The min() or max() of the arguments but one (sympy holds max(max(a, b), c) as one Max of three)."""
+    others = extreme.args[:argindex - 1] + extreme.args[argindex:]
+    return others[0] if len(others) == 1 else extreme.func(*others)
 
 
 _TO_FLAT = ((sp.floor, _FlatFloor), (sp.sign, _FlatSign), (sp.Heaviside, _FlatStep), (sp.Mod, _SawMod),
-            (sp.Abs, _RealAbs))
-_FROM_FLAT = ((_FlatFloor, sp.floor), (_FlatSign, sp.sign), (_FlatStep, sp.Heaviside), (_SawMod, sp.Mod),
-              (_RealAbs, sp.Abs))
+            (sp.Abs, _RealAbs), (sp.Min, _FlatMin), (sp.Max, _FlatMax))
+_FROM_FLAT = tuple((flat, written) for written, flat in _TO_FLAT)
 
 
 def _swap(expr: sp.Expr, table) -> sp.Expr:
-    for old, new in table:
-        if expr.has(old):
-            expr = expr.replace(old, new)
+    """``expr`` with each function of ``table`` replaced by its partner, every node rebuilt as it stands.
+    Swapping a function for its twin leaves nothing to simplify, but evaluated, sympy's Min, Max, Abs and
+    Heaviside (and every sum and product above them, rebuilt by ``replace``) ask questions of sign and
+    realness, each a search through the whole tree below: 26 s over a chain of 36 definitions (found by the
+    deep-chain fuzz). The model language builds them the same way (symbolic._as_written)."""
+    with sp.evaluate(False):
+        for old, new in table:
+            if expr.has(old):
+                expr = expr.replace(old, new)
     return expr
 
 

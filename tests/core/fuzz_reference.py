@@ -111,8 +111,9 @@ def _doubles(expr, values: dict, decided: dict, track):
             track["huge"] = True  # an underflow: 0.25^cosh(690) exactly has an exponent of -6e299, which
             # sympy's mod of it expands into a 10^299-digit fraction; doubles judge alone
         return value
-    if expr.func in _DOUBLE_OF:
-        return np.float64(_DOUBLE_OF[expr.func](*args))
+    for kind in type(expr).__mro__:  # the model's sinh, cosh and tanh are sympy's, by subclass
+        if kind in _DOUBLE_OF:
+            return np.float64(_DOUBLE_OF[kind](*args))
     return _UNKNOWN
 
 

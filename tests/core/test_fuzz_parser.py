@@ -230,6 +230,7 @@ def models(draw):
 @example("x[n+1] = x\ny[n+1] = if(x < x or not energy < 1, x, 0)\nd1 = x\nenergy = x / log(x)")  # deep run: 0/log(0)
 @example("x[n+1] = floor(max(x, cosh(690)))")  # deep run: the reference's exact floor of cosh(690) needs 300 digits
 @example("x[n+1] = cos(pi) ^ atan2(pi, cosh(690))")  # deep run: (-1)^(2e-300), complex, reached the evaluators
+@example("x[n+1] = max(min(x, n), max(x, 0))")  # deep run: a Max of three arguments in the Jacobian
 @example("x' = x\nz' = x ^ log10(1.001)")  # deep run: written as 1/x^(3 - log(1001)/log(10)), undefined at x = 0
 def test_generated_models_parse_and_compile(text):
     WORKER.run(check_generated_model, text)
@@ -440,7 +441,8 @@ def check_event_model(text: str) -> None:
 # ---------------------------------------------------------------- (f) deep chains and wide sums
 
 WRAPPERS = ["sqrt(1 + {})", "sin({})", "0.5*exp(-{})", "abs({})", "mod({} + 1, 3)", "atan2({}, 2)", "({})^2/(1 + ({})^2)",
-            "if({} > 0, 1, -1)", "floor({})", "tanh({})", "log(1 + ({})^2)", "min({}, 1)"]
+            "if({} > 0, 1, -1)", "floor({})", "tanh({})", "log(1 + ({})^2)", "min({}, 1)", "max({}, 0.5)",
+            "heaviside({} - 1)", "sinh(0.1*{})", "1/cosh({})"]
 
 
 @st.composite
@@ -464,6 +466,8 @@ def deep_models(draw):
 @given(deep_models())
 @example((Path(__file__).parents[1] / "data" / "hostile" / "mod_and_min_of_a_deep_chain.txt").read_text())  # 287 s
 @example((Path(__file__).parents[1] / "data" / "hostile" / "abs_of_a_deep_chain.txt").read_text())  # over 20 s
+@example((Path(__file__).parents[1] / "data" / "hostile" / "tanh_of_a_deep_chain.txt").read_text())  # over 100 s
+@example((Path(__file__).parents[1] / "data" / "hostile" / "heaviside_of_max_of_a_chain.txt").read_text())  # 10-25 s
 def test_deep_chains_and_wide_sums_end_in_a_model_or_a_diagnostic(text):
     WORKER.run(check_deep_model, text)
 

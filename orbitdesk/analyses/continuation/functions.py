@@ -24,6 +24,7 @@ import numpy as np
 import sympy as sp
 
 from orbitdesk.system.compiled_system import MAP, CompiledSystem, UndefinedValue, lambdify
+from orbitdesk.system.flat_code import rename
 
 UNDEFINED = (ValueError, ZeroDivisionError, TypeError, OverflowError)
 RUNS = 1e6  # right-hand-side evaluations a continuation's many runs are estimated at: worth the compiler
@@ -46,7 +47,7 @@ class ModelFunctions:
         swap = {system.t_symbol: self.t, **dict(zip(system.state_symbols, self.u)),
                 **dict(zip(system.param_symbols, self.p))}
         self._swap = swap
-        self.f_exprs = [e.xreplace(swap) for e in system.f]
+        self.f_exprs = rename(system.f, swap)
         self._sensitivities = {}
 
     def param_index(self, name: str) -> int:
@@ -117,7 +118,7 @@ class ModelFunctions:
         """The almost-everywhere Jacobian in this object's symbols (codegen's sparse one)."""
         from orbitdesk.system.codegen import dense_jacobian
 
-        return dense_jacobian(self.system).xreplace(self._swap)
+        return sp.Matrix(rename(dense_jacobian(self.system), self._swap)).reshape(self.n, self.n)
 
     @cached_property
     def _vectors(self):
