@@ -84,10 +84,12 @@ def _swap(expr: sp.Expr, table) -> sp.Expr:
     Swapping a function for its twin leaves nothing to simplify, but evaluated, sympy's Min, Max, Abs and
     Heaviside (and every sum and product above them, rebuilt by ``replace``) ask questions of sign and
     realness, each a search through the whole tree below: 26 s over a chain of 36 definitions (found by the
-    deep-chain fuzz). The model language builds them the same way (symbolic._as_written)."""
-    with sp.evaluate(False):
-        for old, new in table:
-            if expr.has(old):
+    deep-chain fuzz). The model language builds them the same way (symbolic._as_written). Only when there
+    is something to swap: switching sympy's evaluation off and on again empties its cache."""
+    present = [(old, new) for old, new in table if expr.has(old)]
+    if present:
+        with sp.evaluate(False):
+            for old, new in present:
                 expr = expr.replace(old, new)
     return expr
 
