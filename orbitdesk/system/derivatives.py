@@ -1,13 +1,13 @@
 """Derivatives that hold almost everywhere, for Jacobians of models with non-smooth functions.
 
-``floor``, ``sign``, ``heaviside`` and ``mod`` jump on isolated surfaces (``min``, ``max`` and ``abs`` bend). sympy differentiates them
-into objects no evaluator can print (an unevaluated ``Derivative(floor(x), x)``) or into Dirac
-deltas. Between the jumps the derivatives are plain: d floor(u) = 0, d sign(u) = 0,
-d heaviside(u) = 0, and d mod(a, m) = da - floor(a/m) dm; d min(a, b) = heaviside(b - a) da +
-heaviside(a - b) db (and max() the other way round); d abs(u) = sign(u) du (the model's values
-are real even where sympy cannot tell). Those are the ones used here, so every
-Jacobian can be evaluated; the model's warning about non-smooth functions says where they fail
-(on the jumps themselves).
+``floor``, ``sign``, ``heaviside`` and ``mod`` jump on isolated surfaces (``min``, ``max`` and ``abs``
+bend there). sympy differentiates them into objects no evaluator can print (an unevaluated
+``Derivative(floor(x), x)``) or into Dirac deltas. Between the jumps the derivatives are plain:
+d floor(u) = 0, d sign(u) = 0, d heaviside(u) = 0, and d mod(a, m) = da - floor(a/m) dm;
+d min(a, b) = heaviside(b - a) da + heaviside(a - b) db (and max() the other way round);
+d abs(u) = sign(u) du (the model's values are real even where sympy cannot tell). Those are the ones
+used here, so every Jacobian can be evaluated; the model's warning about non-smooth functions says
+where they fail (on the jumps themselves).
 """
 
 from __future__ import annotations
